@@ -1,0 +1,330 @@
+//! FITS header cards: parsing the 80-character card images of one HDU into typed values.
+//!
+//! Owns the representation of a header as an ordered list of cards, the parsing rules of the
+//! FITS Standard 4.0 (Pence et al. 2010, A&A 524, A42, section 4) for fixed- and free-format
+//! values, and typed look-ups (`get_f64`, `get_str`, ...). It knows nothing of WCS or units:
+//! those modules read what they need through [`Header`].
+
+use std::fmt;
+
+/// One value of a header card.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Value {
+    /// A character string, with the FITS doubled quotes undone and trailing blanks removed.
+    Str(String),
+    /// A logical `T` or `F`.
+    Bool(bool),
+    /// An integer that fits in 64 bits.
+    Int(i64),
+    /// A real number (Fortran `D` exponents accepted).
+    Float(f64),
+    /// Anything else (complex numbers, malformed values), kept verbatim.
+    Other(String),
+}
+
+impl Value {
+    /// The value as a real number, when it is numeric.
+    pub fn as_f64(&self) -> Option<f64> {
+        match self {
+            Value::Int(i) => Some(*i as f64),
+            Value::Float(f) => Some(*f),
+            _ => None,
+        }
+    }
+}
+
+impl fmt::Display for Value {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Value::Str(s) => write!(f, "'{s}'"),
+            Value::Bool(b) => write!(f, "{}", if *b { "T" } else { "F" }),
+            Value::Int(i) => write!(f, "{i}"),
+            Value::Float(x) => write!(f, "{x:e}"),
+            Value::Other(s) => write!(f, "{s}"),
+        }
+    }
+}
+
+/// One header card: keyword, optional value and comment.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Card {
+    /// Keyword, upper case, trailing blanks removed (`HIERARCH` keywords keep their full name).
+    pub key: String,
+    /// The value, for value cards (`= ` in columns 9-10).
+    pub value: Option<Value>,
+    /// The comment after the `/`, or the text of commentary cards.
+    pub comment: String,
+}
+
+/// The cards of one HDU header, in order.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Header {
+    cards: Vec<Card>,
+}
+
+impl Header {
+    /// An empty header.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Parses a header from its concatenated 80-character card images (as stored in a FITS
+    /// file, or as returned by CFITSIO's `fits_hdr2str`). Parsing stops at `END`.
+    pub fn parse(text: &str) -> Self {
+        let bytes = text.as_bytes();
+        let mut cards = Vec::new();
+        for chunk in bytes.chunks(80) {
+            let line = String::from_utf8_lossy(chunk);
+            let line = line.as_ref();
+            let key = line.get(..8.min(line.len())).unwrap_or("").trim_end().to_string();
+            if key == "END" {
+                break;
+            }
+            cards.push(parse_card(line));
+        }
+        Header { cards }
+    }
+
+    /// Builds a header from cards.
+    pub fn from_cards(cards: Vec<Card>) -> Self {
+        Header { cards }
+    }
+
+    /// All cards, in order.
+    pub fn cards(&self) -> &[Card] {
+        &self.cards
+    }
+
+    /// Appends a value card, or replaces the value of the first card with that keyword.
+    pub fn set(&mut self, key: &str, value: Value, comment: &str) {
+        let key = key.to_ascii_uppercase();
+        if let Some(card) = self.cards.iter_mut().find(|c| c.key == key && c.value.is_some()) {
+            card.value = Some(value);
+            card.comment = comment.to_string();
+        } else {
+            self.cards.push(Card { key, value: Some(value), comment: comment.to_string() });
+        }
+    }
+
+    /// Removes every value card with this keyword.
+    pub fn remove(&mut self, key: &str) {
+        let key = key.to_ascii_uppercase();
+        self.cards.retain(|c| !(c.key == key && c.value.is_some()));
+    }
+
+    /// The value of the first value card with this keyword (case-insensitive).
+    pub fn get(&self, key: &str) -> Option<&Value> {
+        let key = key.to_ascii_uppercase();
+        self.cards
+            .iter()
+            .find(|c| c.key == key && c.value.is_some())
+            .and_then(|c| c.value.as_ref())
+    }
+
+    /// Whether a value card with this keyword exists.
+    pub fn contains(&self, key: &str) -> bool {
+        self.get(key).is_some()
+    }
+
+    /// A numeric value (integers are converted).
+    pub fn get_f64(&self, key: &str) -> Option<f64> {
+        self.get(key).and_then(Value::as_f64)
+    }
+
+    /// An integer value.
+    pub fn get_i64(&self, key: &str) -> Option<i64> {
+        match self.get(key)? {
+            Value::Int(i) => Some(*i),
+            Value::Float(f) if f.fract() == 0.0 && f.abs() < 9.0e15 => Some(*f as i64),
+            _ => None,
+        }
+    }
+
+    /// A string value, trailing blanks removed.
+    pub fn get_str(&self, key: &str) -> Option<&str> {
+        match self.get(key)? {
+            Value::Str(s) => Some(s.as_str()),
+            _ => None,
+        }
+    }
+
+    /// A logical value.
+    pub fn get_bool(&self, key: &str) -> Option<bool> {
+        match self.get(key)? {
+            Value::Bool(b) => Some(*b),
+            _ => None,
+        }
+    }
+
+    /// Renders the header as card images (without `END`), each exactly 80 characters.
+    pub fn to_card_images(&self) -> Vec<String> {
+        self.cards.iter().map(format_card).collect()
+    }
+}
+
+fn parse_card(line: &str) -> Card {
+    let key_field = line.get(..8.min(line.len())).unwrap_or("");
+    let key = key_field.trim_end().to_ascii_uppercase();
+    if key == "HIERARCH" {
+        // HIERARCH long keywords: "HIERARCH A B C = value / comment"
+        let rest = line.get(8..).unwrap_or("");
+        if let Some(eq) = rest.find('=') {
+            let name = rest[..eq].trim().to_ascii_uppercase();
+            let (value, comment) = parse_value(&rest[eq + 1..]);
+            return Card { key: name, value, comment };
+        }
+    }
+    let has_value = line.len() >= 10 && &line[8..10] == "= ";
+    if has_value && key != "COMMENT" && key != "HISTORY" && !key.is_empty() {
+        let (value, comment) = parse_value(&line[10..]);
+        Card { key, value, comment }
+    } else {
+        Card { key, value: None, comment: line.get(8..).unwrap_or("").trim_end().to_string() }
+    }
+}
+
+/// Parses the value field of a card: returns the value and the comment.
+fn parse_value(field: &str) -> (Option<Value>, String) {
+    let s = field.trim_start();
+    if let Some(rest) = s.strip_prefix('\'') {
+        // String: '' inside is an escaped quote.
+        let mut out = String::new();
+        let mut chars = rest.char_indices().peekable();
+        let mut end = rest.len();
+        while let Some((i, c)) = chars.next() {
+            if c == '\'' {
+                if matches!(chars.peek(), Some((_, '\''))) {
+                    out.push('\'');
+                    chars.next();
+                } else {
+                    end = i + 1;
+                    break;
+                }
+            } else {
+                out.push(c);
+            }
+        }
+        let after = &rest[end.min(rest.len())..];
+        let comment = after.find('/').map(|p| after[p + 1..].trim().to_string()).unwrap_or_default();
+        return (Some(Value::Str(out.trim_end().to_string())), comment);
+    }
+    let (raw, comment) = match s.find('/') {
+        Some(p) => (s[..p].trim(), s[p + 1..].trim().to_string()),
+        None => (s.trim(), String::new()),
+    };
+    if raw.is_empty() {
+        return (None, comment);
+    }
+    let value = match raw {
+        "T" => Value::Bool(true),
+        "F" => Value::Bool(false),
+        _ => {
+            if let Ok(i) = raw.parse::<i64>() {
+                Value::Int(i)
+            } else if let Ok(f) = raw.replace(['D', 'd'], "E").parse::<f64>() {
+                Value::Float(f)
+            } else {
+                Value::Other(raw.to_string())
+            }
+        }
+    };
+    (Some(value), comment)
+}
+
+fn format_card(card: &Card) -> String {
+    let mut s = match &card.value {
+        None => format!("{:<8}{}", card.key, card.comment),
+        Some(v) => {
+            let vtxt = match v {
+                Value::Str(t) => {
+                    let q = format!("'{:<8}'", t.replace('\'', "''"));
+                    format!("{q:<20}")
+                }
+                Value::Bool(b) => format!("{:>20}", if *b { "T" } else { "F" }),
+                Value::Int(i) => format!("{i:>20}"),
+                Value::Float(x) => format!("{:>20}", format_float(*x)),
+                Value::Other(t) => format!("{t:>20}"),
+            };
+            if card.key.len() > 8 {
+                format!("HIERARCH {} = {} / {}", card.key, vtxt.trim(), card.comment)
+            } else if card.comment.is_empty() {
+                format!("{:<8}= {}", card.key, vtxt)
+            } else {
+                format!("{:<8}= {} / {}", card.key, vtxt, card.comment)
+            }
+        }
+    };
+    if s.len() > 80 {
+        s.truncate(80);
+    }
+    format!("{s:<80}")
+}
+
+/// Formats a real so that it round-trips exactly and fits in a 20-character value field.
+pub fn format_float(x: f64) -> String {
+    if x == 0.0 {
+        return "0.0".to_string();
+    }
+    // Rust's shortest round-trip representation, in exponent form when long.
+    let plain = format!("{x:?}");
+    if plain.len() <= 20 {
+        return if plain.contains('.') || plain.contains('e') || plain.contains("inf") || plain.contains("NaN") {
+            plain.replace('e', "E")
+        } else {
+            format!("{plain}.0")
+        };
+    }
+    let e = format!("{x:E}");
+    if e.contains('.') { e } else { e.replacen('E', ".0E", 1) }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn card(s: &str) -> String {
+        format!("{s:<80}")
+    }
+
+    #[test]
+    fn parses_fixed_and_free_format_values() {
+        // Card images written as in the FITS Standard 4.0, section 4.2 examples.
+        let text = [
+            card("SIMPLE  =                    T / conforms"),
+            card("BITPIX  =                  -32"),
+            card("CDELT1  =  -1.3888888888889E-03 / deg"),
+            card("CRVAL2  = 1.5D+01"),
+            card("CTYPE1  = 'RA---TAN'           / projection"),
+            card("OBJECT  = 'it''s a test'"),
+            card("COMMENT this is a comment = not a value"),
+            card("END"),
+            card("AFTER   = 1"),
+        ]
+        .concat();
+        let h = Header::parse(&text);
+        assert_eq!(h.get_bool("SIMPLE"), Some(true));
+        assert_eq!(h.get_i64("BITPIX"), Some(-32));
+        assert_eq!(h.get_f64("cdelt1"), Some(-1.3888888888889e-3));
+        assert_eq!(h.get_f64("CRVAL2"), Some(15.0));
+        assert_eq!(h.get_str("CTYPE1"), Some("RA---TAN"));
+        assert_eq!(h.get_str("OBJECT"), Some("it's a test"));
+        assert!(h.get("COMMENT").is_none());
+        assert!(h.get("AFTER").is_none(), "parsing stops at END");
+    }
+
+    #[test]
+    fn formatted_cards_round_trip() {
+        let mut h = Header::new();
+        h.set("CDELT1", Value::Float(-0.0013888888888888889), "deg");
+        h.set("NAXIS1", Value::Int(512), "");
+        h.set("BUNIT", Value::Str("MJy/sr".into()), "");
+        h.set("PI", Value::Float(std::f64::consts::PI), "");
+        let text: String = h.to_card_images().concat();
+        assert!(h.to_card_images().iter().all(|c| c.len() == 80));
+        let back = Header::parse(&text);
+        assert_eq!(back.get_f64("CDELT1"), Some(-0.0013888888888888889));
+        assert_eq!(back.get_f64("PI"), Some(std::f64::consts::PI));
+        assert_eq!(back.get_i64("NAXIS1"), Some(512));
+        assert_eq!(back.get_str("BUNIT"), Some("MJy/sr"));
+    }
+}

@@ -1,0 +1,8 @@
+//! cairn: find dense cores and clumps in maps of molecular clouds, see how they nest, measure
+//! them and judge their gravitational state.
+//!
+//! Data flows one way: map loading ([`header`], [`wcs`], [`units`], [`map`]) -> hierarchy ->
+//! measurements -> physics -> writers and figures. Each module's doc comment says what it owns
+//! and which papers it implements.
+
+pub mod header;
