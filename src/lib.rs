@@ -5,4 +5,9 @@
 //! measurements -> physics -> writers and figures. Each module's doc comment says what it owns
 //! and which papers it implements.
 
+pub mod error;
 pub mod header;
+pub mod map;
+pub mod noise;
+pub mod units;
+pub mod wcs;

@@ -1,0 +1,734 @@
+//! Loading a FITS image into a map: pixels, missing-pixel mask, sky coordinates, units, beam
+//! and wavelength.
+//!
+//! Owns the choice of HDU (the primary, or the first image HDU that holds data, or the one
+//! named by `--hdu`), the checks made before any pixel is read (the file is FITS, its header
+//! is complete, the file holds all the data the header claims), the reading of every BITPIX
+//! with BSCALE/BZERO applied and BLANK or NaN turned into missing pixels (FITS Standard 4.0,
+//! Pence et al. 2010, sections 4.4 and 5), squeezing of length-1 axes and the choice of one
+//! plane of a cube, and the reading of the beam (BMAJ/BMIN/BPA, or the AIPS `HISTORY` card
+//! convention) and of the wavelength (RESTFRQ/RESTFREQ, a FREQ or WAVE axis, WAVELEN).
+//!
+//! Pixel values are held as 32-bit floats (about 7 significant digits), with NaN for missing
+//! pixels; pixel coordinates are zero-based with (0, 0) the centre of the first pixel, x
+//! along NAXIS1 (array column) and y along NAXIS2 (array row).
+//!
+//! The pixels are read by CFITSIO (Pence 1999, ASP Conf. Ser. 172, 487) through the `fitsio`
+//! crate's bindings, opened with `fits_open_diskfile` so that file names are never parsed as
+//! CFITSIO's extended file-name syntax.
+
+use std::ffi::{CStr, CString};
+use std::io::Read;
+use std::path::{Path, PathBuf};
+
+use fitsio::sys;
+use ndarray::Array2;
+
+use crate::error::{Error, Result};
+use crate::header::Header;
+use crate::units::{self, Dimension, ExtinctionBand, PixelUnit, Quantity};
+use crate::wcs::Wcs;
+
+/// Which HDU to read.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum HduChoice {
+    /// The primary HDU if it holds an image, else the first image extension with data.
+    Auto,
+    /// An HDU by zero-based index (0 is the primary HDU).
+    Index(usize),
+    /// An HDU by EXTNAME (case-insensitive).
+    Name(String),
+}
+
+impl HduChoice {
+    /// Parses `--hdu N|NAME`.
+    pub fn parse(text: &str) -> Self {
+        match text.trim().parse::<usize>() {
+            Ok(i) => HduChoice::Index(i),
+            Err(_) => HduChoice::Name(text.trim().to_string()),
+        }
+    }
+}
+
+/// A beam: a 2-D Gaussian given by its full widths at half maximum.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct Beam {
+    /// Major-axis FWHM in degrees.
+    pub major_deg: f64,
+    /// Minor-axis FWHM in degrees.
+    pub minor_deg: f64,
+    /// Position angle of the major axis in degrees, east of north.
+    pub pa_deg: f64,
+}
+
+impl Beam {
+    /// Solid angle of the Gaussian beam, pi/(4 ln 2) * major * minor, in steradians.
+    pub fn solid_angle_sr(&self) -> f64 {
+        std::f64::consts::PI / (4.0 * std::f64::consts::LN_2)
+            * (self.major_deg * units::DEG)
+            * (self.minor_deg * units::DEG)
+    }
+
+    /// Parses `--beam MAJ[,MIN[,PA]]` (for example `18.2arcsec` or `20arcsec,15arcsec,30deg`).
+    pub fn parse(text: &str) -> std::result::Result<Beam, String> {
+        let parts: Vec<&str> = text.split(',').collect();
+        if parts.is_empty() || parts.len() > 3 {
+            return Err(format!(
+                "--beam '{text}' is not understood: give the FWHM, such as 18.2arcsec, or major,minor,angle such as 20arcsec,15arcsec,30deg."
+            ));
+        }
+        let angle = |s: &str| units::parse_quantity(s, &[Dimension::Angle], "--beam");
+        let major = angle(parts[0])?.si / units::DEG;
+        let minor = if parts.len() > 1 { angle(parts[1])?.si / units::DEG } else { major };
+        let pa = if parts.len() > 2 { angle(parts[2])?.si / units::DEG } else { 0.0 };
+        let beam = Beam { major_deg: major.max(minor), minor_deg: major.min(minor), pa_deg: pa };
+        beam.check().map_err(|e| format!("--beam '{text}': {e}"))?;
+        Ok(beam)
+    }
+
+    fn check(&self) -> std::result::Result<(), String> {
+        if !(self.major_deg > 0.0 && self.minor_deg > 0.0)
+            || !self.major_deg.is_finite()
+            || !self.pa_deg.is_finite()
+        {
+            return Err(format!(
+                "the beam must have positive, finite widths (major {} deg, minor {} deg)",
+                self.major_deg, self.minor_deg
+            ));
+        }
+        Ok(())
+    }
+}
+
+/// How to load a map.
+#[derive(Debug, Clone)]
+pub struct LoadOptions {
+    /// Which HDU.
+    pub hdu: HduChoice,
+    /// For a cube: the zero-based plane to take along its one long extra axis.
+    pub plane: Option<usize>,
+    /// A unit to use instead of BUNIT (same spellings).
+    pub unit: Option<String>,
+    /// The band of an extinction map in magnitudes.
+    pub band: ExtinctionBand,
+    /// A beam to use instead of the header's.
+    pub beam: Option<Beam>,
+    /// A wavelength or frequency to use instead of the header's.
+    pub wavelength: Option<Quantity>,
+    /// Whether a missing or unknown unit is an error (`true` for every command that measures).
+    pub require_unit: bool,
+}
+
+impl Default for LoadOptions {
+    fn default() -> Self {
+        LoadOptions {
+            hdu: HduChoice::Auto,
+            plane: None,
+            unit: None,
+            band: ExtinctionBand::V,
+            beam: None,
+            wavelength: None,
+            require_unit: true,
+        }
+    }
+}
+
+/// Where a value came from: the header or the command line.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Source {
+    /// Read from the FITS header.
+    Header,
+    /// Given on the command line.
+    Option,
+}
+
+/// A loaded map.
+#[derive(Debug, Clone)]
+pub struct Map {
+    /// The file it came from.
+    pub path: PathBuf,
+    /// Zero-based index of the HDU read.
+    pub hdu_index: usize,
+    /// EXTNAME of that HDU, if any.
+    pub hdu_name: Option<String>,
+    /// BITPIX of the stored data.
+    pub bitpix: i64,
+    /// The axis lengths as stored (NAXIS1, NAXIS2, ...).
+    pub stored_axes: Vec<usize>,
+    /// The plane taken from a cube, if any.
+    pub plane: Option<usize>,
+    /// The pixels, rows along y, NaN where missing.
+    pub data: Array2<f32>,
+    /// The HDU's header.
+    pub header: Header,
+    /// What the pixels measure (`None` only when loaded with `require_unit = false`).
+    pub unit: Option<PixelUnit>,
+    /// The unit text as read or given.
+    pub unit_text: String,
+    /// Where the unit came from.
+    pub unit_source: Source,
+    /// Sky coordinates, if the header has a celestial WCS.
+    pub wcs: Option<Wcs>,
+    /// The beam, if known.
+    pub beam: Option<Beam>,
+    /// Where the beam came from.
+    pub beam_source: Option<Source>,
+    /// Wavelength in metres, if known.
+    pub wavelength_m: Option<f64>,
+    /// Where the wavelength came from.
+    pub wavelength_source: Option<Source>,
+    /// Things the user should know (shown on stderr and in `inspect`).
+    pub warnings: Vec<String>,
+}
+
+impl Map {
+    /// Number of columns (NAXIS1).
+    pub fn nx(&self) -> usize {
+        self.data.ncols()
+    }
+
+    /// Number of rows (NAXIS2).
+    pub fn ny(&self) -> usize {
+        self.data.nrows()
+    }
+
+    /// Number of missing pixels.
+    pub fn missing_count(&self) -> usize {
+        self.data.iter().filter(|v| v.is_nan()).count()
+    }
+}
+
+/// An open CFITSIO file, closed on drop.
+struct FitsHandle {
+    ptr: *mut sys::fitsfile,
+}
+
+impl Drop for FitsHandle {
+    fn drop(&mut self) {
+        let mut status = 0;
+        // SAFETY: ptr came from a successful ffdkopn and is closed once.
+        unsafe {
+            sys::ffclos(self.ptr, &mut status);
+        }
+    }
+}
+
+/// CFITSIO's text for a status code.
+fn cfitsio_text(status: i32) -> String {
+    let mut buf = [0 as std::os::raw::c_char; 32];
+    // SAFETY: ffgerr writes at most 31 characters plus NUL.
+    unsafe { sys::ffgerr(status, buf.as_mut_ptr()) };
+    // SAFETY: NUL-terminated by ffgerr.
+    unsafe { CStr::from_ptr(buf.as_ptr()) }.to_string_lossy().trim().to_string()
+}
+
+/// Bytes per pixel of a BITPIX.
+fn bytes_per_pixel(bitpix: i64) -> Option<u64> {
+    match bitpix {
+        8 => Some(1),
+        16 => Some(2),
+        32 | -32 => Some(4),
+        64 | -64 => Some(8),
+        _ => None,
+    }
+}
+
+/// Checks the file's first bytes: a FITS file starts with `SIMPLE  =`.
+fn check_signature(path: &Path) -> Result<u64> {
+    let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
+        std::io::ErrorKind::NotFound => {
+            Error::input(path, "no such file; check the path.")
+        }
+        _ => Error::input(path, format!("cannot be read ({e}); check its permissions.")),
+    })?;
+    if meta.is_dir() {
+        return Err(Error::input(path, "is a folder, not a FITS file; give the map's file name."));
+    }
+    let mut first = [0u8; 80];
+    let mut f = std::fs::File::open(path)
+        .map_err(|e| Error::input(path, format!("cannot be opened ({e}); check its permissions.")))?;
+    let n = read_up_to(&mut f, &mut first)
+        .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
+    if n < 80 || !first.starts_with(b"SIMPLE  =") {
+        return Err(Error::input(
+            path,
+            "is not a FITS file (it does not begin with the card SIMPLE = T); give a FITS image.",
+        ));
+    }
+    Ok(meta.len())
+}
+
+fn read_up_to(f: &mut std::fs::File, buf: &mut [u8]) -> std::io::Result<usize> {
+    let mut n = 0;
+    while n < buf.len() {
+        let k = f.read(&mut buf[n..])?;
+        if k == 0 {
+            break;
+        }
+        n += k;
+    }
+    Ok(n)
+}
+
+/// Loads a map as described by `opts`.
+pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
+    let file_len = check_signature(path)?;
+    let cpath = CString::new(path.as_os_str().as_encoded_bytes())
+        .map_err(|_| Error::input(path, "has a NUL byte in its name; rename it."))?;
+    let mut status = 0;
+    let mut ptr = std::ptr::null_mut();
+    // SAFETY: cpath is a valid C string; ptr receives a new handle on success.
+    unsafe { sys::ffdkopn(&mut ptr, cpath.as_ptr(), 0, &mut status) };
+    if status != 0 || ptr.is_null() {
+        return Err(Error::input(
+            path,
+            format!(
+                "is truncated or its header is damaged (CFITSIO: {}); re-export or re-download the file.",
+                cfitsio_text(status)
+            ),
+        ));
+    }
+    let fits = FitsHandle { ptr };
+    let nhdu = count_hdus(&fits, path)?;
+    let index = choose_hdu(&fits, path, &opts.hdu, nhdu)?;
+    move_to(&fits, path, index)?;
+    let header = read_header(&fits, path)?;
+    let (bitpix, axes) = image_shape(&fits, path, index)?;
+    let (nx, ny, firstpix, plane) = plan_read(path, &header, &axes, opts.plane)?;
+
+    // The header's promise, checked against the file before any pixel buffer exists.
+    let bpp = bytes_per_pixel(bitpix)
+        .ok_or_else(|| Error::input(path, format!("has BITPIX = {bitpix}, which FITS does not define; the file is damaged.")))?;
+    let total: u64 = axes.iter().map(|&a| a as u64).product::<u64>();
+    let (mut head0, mut data0, mut end0) = (0i64, 0i64, 0i64);
+    // SAFETY: valid handle, out-pointers to locals.
+    unsafe { sys::ffghadll(fits.ptr, &mut head0, &mut data0, &mut end0, &mut status) };
+    let needed = (data0 as u64).saturating_add(total.saturating_mul(bpp));
+    if status != 0 || needed > file_len {
+        return Err(Error::input(
+            path,
+            format!(
+                "is truncated: its header promises {} bytes of data for HDU {index} but the file ends {} bytes short; re-export or re-download it.",
+                total.saturating_mul(bpp),
+                needed.saturating_sub(file_len)
+            ),
+        ));
+    }
+
+    let npix = nx.checked_mul(ny).ok_or_else(|| Error::input(path, "is too large to address."))?;
+    let mut buf: Vec<f32> = Vec::new();
+    buf.try_reserve_exact(npix).map_err(|_| {
+        Error::input(path, format!("needs {} MB of memory for its pixels, more than this machine can give.", npix * 4 / 1_000_000))
+    })?;
+    buf.resize(npix, 0.0);
+    let mut first = firstpix.clone();
+    let mut nulval = f32::NAN;
+    let mut anynul = 0;
+    // SAFETY: buf holds npix floats; firstpix has one entry per axis; TFLOAT matches f32.
+    unsafe {
+        sys::ffgpxvll(
+            fits.ptr,
+            sys::TFLOAT as i32,
+            first.as_mut_ptr(),
+            npix as i64,
+            &mut nulval as *mut f32 as *mut _,
+            buf.as_mut_ptr() as *mut _,
+            &mut anynul,
+            &mut status,
+        )
+    };
+    if status != 0 {
+        return Err(Error::input(
+            path,
+            format!("could not be read (CFITSIO: {}); the file may be damaged.", cfitsio_text(status)),
+        ));
+    }
+    drop(fits);
+    let data = Array2::from_shape_vec((ny, nx), buf).map_err(|e| Error::internal(e.to_string()))?;
+
+    let mut warnings = Vec::new();
+    let hdu_name = header.get_str("EXTNAME").map(str::to_string);
+
+    // Units.
+    let (unit_text, unit_source) = match &opts.unit {
+        Some(u) => (u.clone(), Source::Option),
+        None => (header.get_str("BUNIT").unwrap_or("").to_string(), Source::Header),
+    };
+    let unit = units::parse_pixel_unit(&unit_text, opts.band);
+    if unit.is_none() && opts.require_unit {
+        let why = if unit_text.trim().is_empty() {
+            match unit_source {
+                Source::Header => "has no BUNIT keyword, so cairn cannot tell what its pixels measure".to_string(),
+                Source::Option => "was given an empty --unit".to_string(),
+            }
+        } else {
+            format!("has BUNIT '{}', which cairn does not understand", unit_text)
+        };
+        return Err(Error::input(
+            path,
+            format!("{why}; give --unit with one of cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel."),
+        ));
+    }
+
+    // Sky coordinates.
+    let wcs = Wcs::from_header(&header).map_err(|e| Error::input(path, format!("{e}")))?;
+    if wcs.is_none() {
+        warnings.push("the map has no celestial WCS: positions and sizes are in pixels, and anything that needs sky units will say so".to_string());
+    }
+
+    // Beam.
+    let (beam, beam_source) = match opts.beam {
+        Some(b) => (Some(b), Some(Source::Option)),
+        None => match beam_from_header(&header) {
+            Ok(Some(b)) => (Some(b), Some(Source::Header)),
+            Ok(None) => (None, None),
+            Err(e) => return Err(Error::input(path, format!("{e}; give the beam with --beam, such as --beam 18.2arcsec."))),
+        },
+    };
+
+    // Wavelength.
+    let (wavelength_m, wavelength_source) = match opts.wavelength {
+        Some(q) => (Some(wavelength_from_quantity(q)), Some(Source::Option)),
+        None => match wavelength_from_header(&header, &mut warnings) {
+            Some(w) => (Some(w), Some(Source::Header)),
+            None => (None, None),
+        },
+    };
+
+    Ok(Map {
+        path: path.to_path_buf(),
+        hdu_index: index,
+        hdu_name,
+        bitpix,
+        stored_axes: axes,
+        plane,
+        data,
+        header,
+        unit,
+        unit_text,
+        unit_source,
+        wcs,
+        beam,
+        beam_source,
+        wavelength_m,
+        wavelength_source,
+        warnings,
+    })
+}
+
+/// A wavelength (length) or frequency quantity as a wavelength in metres.
+pub fn wavelength_from_quantity(q: Quantity) -> f64 {
+    match q.dim {
+        Dimension::Frequency => units::C_LIGHT / q.si,
+        _ => q.si,
+    }
+}
+
+fn count_hdus(fits: &FitsHandle, path: &Path) -> Result<usize> {
+    let mut n = 0;
+    let mut status = 0;
+    // SAFETY: valid handle.
+    unsafe { sys::ffthdu(fits.ptr, &mut n, &mut status) };
+    if status != 0 {
+        return Err(Error::input(
+            path,
+            format!("is truncated or damaged after its first header (CFITSIO: {}); re-export the file.", cfitsio_text(status)),
+        ));
+    }
+    Ok(n.max(1) as usize)
+}
+
+fn move_to(fits: &FitsHandle, path: &Path, index: usize) -> Result<i32> {
+    let mut status = 0;
+    let mut hdutype = 0;
+    // SAFETY: valid handle; HDU numbers are 1-based in CFITSIO.
+    unsafe { sys::ffmahd(fits.ptr, index as i32 + 1, &mut hdutype, &mut status) };
+    if status != 0 {
+        return Err(Error::input(
+            path,
+            format!("HDU {index} cannot be read (CFITSIO: {}); the file is truncated or damaged.", cfitsio_text(status)),
+        ));
+    }
+    Ok(hdutype)
+}
+
+fn read_header(fits: &FitsHandle, path: &Path) -> Result<Header> {
+    let mut status = 0;
+    let mut text: *mut std::os::raw::c_char = std::ptr::null_mut();
+    let mut nkeys = 0;
+    // SAFETY: valid handle; CFITSIO allocates `text`, freed below with fffree.
+    unsafe { sys::ffhdr2str(fits.ptr, 0, std::ptr::null_mut(), 0, &mut text, &mut nkeys, &mut status) };
+    if status != 0 || text.is_null() {
+        return Err(Error::input(path, format!("its header cannot be read (CFITSIO: {}).", cfitsio_text(status))));
+    }
+    // SAFETY: NUL-terminated string from CFITSIO.
+    let s = unsafe { CStr::from_ptr(text) }.to_string_lossy().into_owned();
+    // SAFETY: allocated by CFITSIO.
+    unsafe { sys::fffree(text as *mut _, &mut status) };
+    Ok(Header::parse(&s))
+}
+
+/// BITPIX and axis lengths of the current HDU if it is an image.
+fn image_shape(fits: &FitsHandle, path: &Path, index: usize) -> Result<(i64, Vec<usize>)> {
+    let mut status = 0;
+    let mut hdutype = 0;
+    // SAFETY: valid handle.
+    unsafe { sys::ffghdt(fits.ptr, &mut hdutype, &mut status) };
+    if hdutype != sys::IMAGE_HDU as i32 {
+        return Err(Error::input(path, format!("HDU {index} is a table, not an image; choose an image HDU with --hdu.")));
+    }
+    let mut bitpix = 0;
+    let mut naxis = 0;
+    // SAFETY: valid handle.
+    unsafe {
+        sys::ffgidt(fits.ptr, &mut bitpix, &mut status);
+        sys::ffgidm(fits.ptr, &mut naxis, &mut status);
+    }
+    if status != 0 {
+        return Err(Error::input(path, format!("HDU {index} has a damaged image header (CFITSIO: {}).", cfitsio_text(status))));
+    }
+    let mut sizes = vec![0i64; naxis.max(0) as usize];
+    if naxis > 0 {
+        // SAFETY: sizes has naxis entries.
+        unsafe { sys::ffgiszll(fits.ptr, naxis, sizes.as_mut_ptr(), &mut status) };
+    }
+    Ok((bitpix as i64, sizes.into_iter().map(|s| s.max(0) as usize).collect()))
+}
+
+fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -> Result<usize> {
+    match choice {
+        HduChoice::Index(i) => {
+            if *i >= nhdu {
+                return Err(Error::input(path, format!("has {nhdu} HDUs (0 to {}), so --hdu {i} does not exist.", nhdu - 1)));
+            }
+            Ok(*i)
+        }
+        HduChoice::Name(name) => {
+            let mut names = Vec::new();
+            for i in 0..nhdu {
+                move_to(fits, path, i)?;
+                let h = read_header(fits, path)?;
+                if let Some(n) = h.get_str("EXTNAME") {
+                    if n.eq_ignore_ascii_case(name) {
+                        return Ok(i);
+                    }
+                    names.push(n.to_string());
+                }
+            }
+            let known = if names.is_empty() { "none".to_string() } else { names.join(", ") };
+            Err(Error::input(path, format!("has no HDU named '{name}' (EXTNAMEs present: {known}); choose one with --hdu NAME or --hdu N.")))
+        }
+        HduChoice::Auto => {
+            for i in 0..nhdu {
+                let hdutype = move_to(fits, path, i)?;
+                if hdutype != sys::IMAGE_HDU as i32 {
+                    continue;
+                }
+                let (_, axes) = image_shape(fits, path, i)?;
+                if !axes.is_empty() && axes.iter().all(|&a| a > 0) {
+                    return Ok(i);
+                }
+            }
+            Err(Error::input(path, "holds no image data in any HDU; give a FITS file with an image."))
+        }
+    }
+}
+
+/// Decides which 2-D slice to read: returns (nx, ny, first pixel (1-based), plane).
+fn plan_read(path: &Path, header: &Header, axes: &[usize], plane: Option<usize>) -> Result<(usize, usize, Vec<i64>, Option<usize>)> {
+    match axes.len() {
+        0 => return Err(Error::input(path, "has no image data (NAXIS = 0) in this HDU; choose another with --hdu.")),
+        1 => {
+            return Err(Error::input(
+                path,
+                format!("holds a one-dimensional array (NAXIS = 1, {} values), not an image; give a 2-D map.", axes[0]),
+            ))
+        }
+        _ => {}
+    }
+    let (nx, ny) = (axes[0], axes[1]);
+    if nx == 0 || ny == 0 {
+        return Err(Error::input(path, "has an empty image (an axis of length 0)."));
+    }
+    let long: Vec<usize> = (2..axes.len()).filter(|&k| axes[k] > 1).collect();
+    let mut first = vec![1i64; axes.len()];
+    let axis_name = |k: usize| {
+        header.get_str(&format!("CTYPE{}", k + 1)).map(|s| s.trim().to_string()).filter(|s| !s.is_empty())
+    };
+    match (long.len(), plane) {
+        (0, None) => Ok((nx, ny, first, None)),
+        (0, Some(p)) => {
+            if p == 0 {
+                Ok((nx, ny, first, None))
+            } else {
+                Err(Error::usage(format!("--plane {p} was given but {} is a single image (plane 0 only).", path.display())))
+            }
+        }
+        (1, Some(p)) => {
+            let k = long[0];
+            if p >= axes[k] {
+                return Err(Error::usage(format!(
+                    "--plane {p} is outside axis {} of {}, which has planes 0 to {}.",
+                    k + 1,
+                    path.display(),
+                    axes[k] - 1
+                )));
+            }
+            first[k] = p as i64 + 1;
+            Ok((nx, ny, first, Some(p)))
+        }
+        (1, None) => {
+            let k = long[0];
+            let name = axis_name(k).map(|n| format!(" ({n})")).unwrap_or_default();
+            Err(Error::input(
+                path,
+                format!(
+                    "is a cube: axis {}{name} has {} planes; choose one with --plane K (0 to {}).",
+                    k + 1,
+                    axes[k],
+                    axes[k] - 1
+                ),
+            ))
+        }
+        _ => Err(Error::input(
+            path,
+            format!(
+                "has {} axes longer than 1 beyond the first two (lengths {:?}); cairn reads 2-D maps or one plane of a 3-D cube.",
+                long.len(),
+                &axes[2..]
+            ),
+        )),
+    }
+}
+
+/// Reads the beam from BMAJ/BMIN/BPA (degrees), or from the last AIPS-style
+/// `HISTORY ... BMAJ= x BMIN= y BPA= z` card (common practice in interferometer images).
+pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String> {
+    let from_keys = match (h.get_f64("BMAJ"), h.get_f64("BMIN")) {
+        (Some(a), Some(b)) => Some((a, b, h.get_f64("BPA").unwrap_or(0.0))),
+        (Some(a), None) => Some((a, a, h.get_f64("BPA").unwrap_or(0.0))),
+        _ => None,
+    };
+    let found = from_keys.or_else(|| {
+        h.cards()
+            .iter()
+            .rev()
+            .filter(|c| c.key == "HISTORY" && c.comment.contains("BMAJ="))
+            .find_map(|c| {
+                let get = |k: &str| -> Option<f64> {
+                    let p = c.comment.find(k)? + k.len();
+                    c.comment[p..].split_whitespace().next()?.parse().ok()
+                };
+                Some((get("BMAJ=")?, get("BMIN=")?, get("BPA=").unwrap_or(0.0)))
+            })
+    });
+    match found {
+        None => Ok(None),
+        Some((a, b, pa)) => {
+            let beam = Beam { major_deg: a.max(b), minor_deg: a.min(b), pa_deg: pa };
+            beam.check().map(|_| Some(beam)).map_err(|e| format!("its header gives an unusable beam: {e}"))
+        }
+    }
+}
+
+/// Reads the wavelength in metres from the header: RESTFRQ/RESTFREQ/FREQ (Hz), a length-1
+/// spectral axis with CTYPEn FREQ or WAVE, or WAVELEN/WAVELNTH with a unit in its comment.
+pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
+    for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
+        if let Some(f) = h.get_f64(key).filter(|f| *f > 0.0) {
+            return Some(units::C_LIGHT / f);
+        }
+    }
+    for k in 3..=4 {
+        let ctype = h.get_str(&format!("CTYPE{k}")).unwrap_or("").trim().to_ascii_uppercase();
+        let Some(v) = h.get_f64(&format!("CRVAL{k}")).filter(|v| *v > 0.0) else { continue };
+        let cunit = h.get_str(&format!("CUNIT{k}")).unwrap_or("").trim().to_string();
+        if ctype.starts_with("FREQ") {
+            let factor = match cunit.as_str() {
+                "GHz" => 1e9,
+                "MHz" => 1e6,
+                "kHz" => 1e3,
+                _ => 1.0,
+            };
+            return Some(units::C_LIGHT / (v * factor));
+        }
+        if ctype.starts_with("WAVE") {
+            let factor = match cunit.as_str() {
+                "um" => 1e-6,
+                "mm" => 1e-3,
+                "cm" => 1e-2,
+                "nm" => 1e-9,
+                _ => 1.0,
+            };
+            return Some(v * factor);
+        }
+    }
+    for key in ["WAVELEN", "WAVELNTH"] {
+        let Some(v) = h.get_f64(key).filter(|v| *v > 0.0) else { continue };
+        let comment = h
+            .cards()
+            .iter()
+            .find(|c| c.key == key)
+            .map(|c| c.comment.to_ascii_lowercase())
+            .unwrap_or_default();
+        let factor = if comment.contains("micron") || comment.contains("um") {
+            Some(1e-6)
+        } else if comment.contains("mm") {
+            Some(1e-3)
+        } else if comment.contains("[m]") || comment.contains("metre") || comment.contains("meter") {
+            Some(1.0)
+        } else if v < 0.01 {
+            Some(1.0)
+        } else if v >= 1.0 {
+            Some(1e-6)
+        } else {
+            None
+        };
+        match factor {
+            Some(f) => return Some(v * f),
+            None => warnings.push(format!("{key} = {v} has no unit in its comment and could be metres or micrometres; give --wavelength")),
+        }
+    }
+    None
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn beam_option_parses_and_rejects() {
+        let b = Beam::parse("18.2arcsec").unwrap();
+        assert!((b.major_deg * 3600.0 - 18.2).abs() < 1e-12 && b.major_deg == b.minor_deg);
+        let b = Beam::parse("15arcsec,20arcsec,30deg").unwrap();
+        assert!((b.major_deg * 3600.0 - 20.0).abs() < 1e-12 && (b.pa_deg - 30.0).abs() < 1e-12);
+        assert!(Beam::parse("fast").unwrap_err().contains("--beam 'fast'"));
+        assert!(Beam::parse("0arcsec").unwrap_err().contains("positive"));
+        assert!(Beam::parse("-3arcsec").is_err());
+    }
+
+    #[test]
+    fn beam_from_history_card() {
+        let text = [
+            format!("{:<80}", "BUNIT   = 'Jy/beam '"),
+            format!("{:<80}", "HISTORY AIPS   CLEAN BMAJ=  5.0000E-04 BMIN=  4.0000E-04 BPA=  30.00"),
+        ]
+        .concat();
+        let b = beam_from_header(&Header::parse(&text)).unwrap().unwrap();
+        assert_eq!((b.major_deg, b.minor_deg, b.pa_deg), (5e-4, 4e-4, 30.0));
+    }
+
+    #[test]
+    fn wavelength_from_keywords() {
+        let mut w = Vec::new();
+        let h = Header::parse(&format!("{:<80}", "RESTFRQ =         3.5297E+11"));
+        let l = wavelength_from_header(&h, &mut w).unwrap();
+        assert!((l - units::C_LIGHT / 3.5297e11).abs() < 1e-15);
+        let h = Header::parse(&format!("{:<80}", "WAVELEN =                850.0 / [um]"));
+        assert!((wavelength_from_header(&h, &mut w).unwrap() - 850e-6).abs() < 1e-18);
+        let h = Header::parse(&format!("{:<80}", "WAVELEN =                 0.5"));
+        assert!(wavelength_from_header(&h, &mut w).is_none());
+        assert_eq!(w.len(), 1);
+    }
+}

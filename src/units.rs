@@ -1,0 +1,502 @@
+//! Physical units: quantities typed on the command line and the units of map pixels (BUNIT).
+//!
+//! Owns one small parser for quantities written with their unit (`18.2arcsec`, `850um`,
+//! `300pc`, `12K`, `3sigma`, `2e21cm-2`, `3beam`), conversion of each to SI, and the reading
+//! of a FITS `BUNIT` string into the kind of quantity a map holds (column density, extinction,
+//! surface brightness, flux density per beam or per pixel). Unit strings follow the FITS
+//! Standard 4.0 (Pence et al. 2010, section 4.3 and table 28 on prefixes and units) with the
+//! common spellings found in archive headers (`cm^-2`, `MJy sr-1`, `JY/BEAM`).
+//!
+//! Conventions: an all-upper-case `BUNIT` such as `MJY/SR` is read case-insensitively, with
+//! `M` as mega (common practice for headers written by older software); `mJy` is recognised
+//! only in its mixed-case spelling.
+
+use std::fmt;
+
+/// Degrees, arcminutes and arcseconds in radians.
+pub const DEG: f64 = std::f64::consts::PI / 180.0;
+/// One arcminute in radians.
+pub const ARCMIN: f64 = DEG / 60.0;
+/// One arcsecond in radians.
+pub const ARCSEC: f64 = DEG / 3600.0;
+/// The parsec in metres (IAU 2015 Resolution B2: 648000/pi au, au = 149597870700 m).
+pub const PARSEC: f64 = 648000.0 / std::f64::consts::PI * 149_597_870_700.0;
+/// The astronomical unit in metres (IAU 2012 Resolution B2).
+pub const AU: f64 = 149_597_870_700.0;
+/// The speed of light in m/s (exact, SI).
+pub const C_LIGHT: f64 = 299_792_458.0;
+/// The nominal solar mass in kg used by astropy 8.0.2 (IAU 2015 Resolution B3 with
+/// G from CODATA 2018: M_sun = GM_sun / G).
+pub const M_SUN: f64 = 1.988409870698051e30;
+/// One jansky in SI (W m^-2 Hz^-1).
+pub const JANSKY: f64 = 1e-26;
+
+/// What a quantity measures.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Dimension {
+    /// An angle on the sky (SI: radians).
+    Angle,
+    /// A length: distance, size or wavelength (SI: metres).
+    Length,
+    /// A frequency (SI: hertz).
+    Frequency,
+    /// A temperature (SI: kelvin).
+    Temperature,
+    /// A mass (SI: kilograms).
+    Mass,
+    /// A speed, such as a velocity dispersion (SI: m/s).
+    Speed,
+    /// A column density (SI: m^-2).
+    ColumnDensity,
+    /// A volume density of particles (SI: m^-3).
+    VolumeDensity,
+    /// Magnitudes of extinction.
+    Magnitude,
+    /// A multiple of the map's noise (`3sigma`).
+    Sigma,
+    /// A number of pixels (`px`).
+    Pixels,
+    /// A number of beams (`beam`), for areas.
+    Beams,
+    /// An area on the sky (SI: steradians).
+    SolidAngle,
+    /// A surface brightness (SI: W m^-2 Hz^-1 sr^-1).
+    SurfaceBrightness,
+    /// A flux density per beam (SI: W m^-2 Hz^-1 per beam).
+    FluxPerBeam,
+    /// A flux density per pixel (SI: W m^-2 Hz^-1 per pixel).
+    FluxPerPixel,
+    /// A mass absorption coefficient (SI: m^2/kg).
+    Opacity,
+    /// A plain number with no unit.
+    Pure,
+}
+
+impl Dimension {
+    /// Words for error messages, with an example.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Dimension::Angle => "an angle, such as 18.2arcsec, 0.5arcmin or 0.01deg",
+            Dimension::Length => "a length, such as 300pc, 0.1pc, 850um or 1.3mm",
+            Dimension::Frequency => "a frequency, such as 353GHz",
+            Dimension::Temperature => "a temperature, such as 12K",
+            Dimension::Mass => "a mass, such as 2.5Msun",
+            Dimension::Speed => "a speed, such as 0.3km/s",
+            Dimension::ColumnDensity => "a column density, such as 2e21cm-2",
+            Dimension::VolumeDensity => "a volume density, such as 1e4cm-3",
+            Dimension::Magnitude => "an extinction, such as 5mag",
+            Dimension::Sigma => "a multiple of the noise, such as 3sigma",
+            Dimension::Pixels => "a number of pixels, such as 9px",
+            Dimension::Beams => "a number of beams, such as 1beam",
+            Dimension::SolidAngle => "an area on the sky, such as 400arcsec2",
+            Dimension::SurfaceBrightness => "a surface brightness, such as 20MJy/sr",
+            Dimension::FluxPerBeam => "a flux density per beam, such as 0.05Jy/beam",
+            Dimension::FluxPerPixel => "a flux density per pixel, such as 0.01Jy/pixel",
+            Dimension::Opacity => "a dust opacity, such as 0.01cm2/g",
+            Dimension::Pure => "a plain number, such as 2",
+        }
+    }
+}
+
+/// A number with its dimension, held in SI units (see [`Dimension`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Quantity {
+    /// The value in the SI unit of its dimension (or the count, for sigma, px, beam, mag).
+    pub si: f64,
+    /// What it measures.
+    pub dim: Dimension,
+}
+
+impl fmt::Display for Quantity {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let (v, u) = match self.dim {
+            Dimension::Angle => (self.si / ARCSEC, "arcsec"),
+            Dimension::Length => {
+                if self.si > 1e12 {
+                    (self.si / PARSEC, "pc")
+                } else {
+                    (self.si * 1e6, "um")
+                }
+            }
+            Dimension::Frequency => (self.si / 1e9, "GHz"),
+            Dimension::Temperature => (self.si, "K"),
+            Dimension::Mass => (self.si / M_SUN, "Msun"),
+            Dimension::Speed => (self.si / 1e3, "km/s"),
+            Dimension::ColumnDensity => (self.si * 1e-4, "cm-2"),
+            Dimension::VolumeDensity => (self.si * 1e-6, "cm-3"),
+            Dimension::Magnitude => (self.si, "mag"),
+            Dimension::Sigma => (self.si, "sigma"),
+            Dimension::Pixels => (self.si, "px"),
+            Dimension::Beams => (self.si, "beam"),
+            Dimension::SolidAngle => (self.si / (ARCSEC * ARCSEC), "arcsec2"),
+            Dimension::SurfaceBrightness => (self.si / (1e6 * JANSKY), "MJy/sr"),
+            Dimension::FluxPerBeam => (self.si / JANSKY, "Jy/beam"),
+            Dimension::FluxPerPixel => (self.si / JANSKY, "Jy/pixel"),
+            Dimension::Opacity => (self.si * 10.0, "cm2/g"),
+            Dimension::Pure => (self.si, ""),
+        };
+        write!(f, "{}{}", trim_number(v), u)
+    }
+}
+
+fn trim_number(v: f64) -> String {
+    let s = format!("{v:.6e}");
+    let parsed: f64 = s.parse().unwrap_or(v);
+    let plain = format!("{parsed}");
+    if plain.len() <= 12 { plain } else { format!("{parsed:e}") }
+}
+
+/// Units the quantity parser knows: spelling, dimension, factor to SI.
+fn unit_table() -> &'static [(&'static str, Dimension, f64)] {
+    use Dimension::*;
+    const JY: f64 = JANSKY;
+    &[
+        ("arcsec", Angle, ARCSEC),
+        ("\"", Angle, ARCSEC),
+        ("as", Angle, ARCSEC),
+        ("mas", Angle, ARCSEC * 1e-3),
+        ("arcmin", Angle, ARCMIN),
+        ("'", Angle, ARCMIN),
+        ("amin", Angle, ARCMIN),
+        ("deg", Angle, DEG),
+        ("rad", Angle, 1.0),
+        ("pc", Length, PARSEC),
+        ("kpc", Length, PARSEC * 1e3),
+        ("au", Length, AU),
+        ("AU", Length, AU),
+        ("km", Length, 1e3),
+        ("m", Length, 1.0),
+        ("cm", Length, 1e-2),
+        ("mm", Length, 1e-3),
+        ("um", Length, 1e-6),
+        ("micron", Length, 1e-6),
+        ("µm", Length, 1e-6),
+        ("nm", Length, 1e-9),
+        ("Hz", Frequency, 1.0),
+        ("kHz", Frequency, 1e3),
+        ("MHz", Frequency, 1e6),
+        ("GHz", Frequency, 1e9),
+        ("THz", Frequency, 1e12),
+        ("K", Temperature, 1.0),
+        ("Msun", Mass, M_SUN),
+        ("Msol", Mass, M_SUN),
+        ("kg", Mass, 1.0),
+        ("g", Mass, 1e-3),
+        ("km/s", Speed, 1e3),
+        ("m/s", Speed, 1.0),
+        ("cm/s", Speed, 1e-2),
+        ("cm-2", ColumnDensity, 1e4),
+        ("m-2", ColumnDensity, 1.0),
+        ("cm-3", VolumeDensity, 1e6),
+        ("m-3", VolumeDensity, 1.0),
+        ("mag", Magnitude, 1.0),
+        ("sigma", Sigma, 1.0),
+        ("px", Pixels, 1.0),
+        ("pix", Pixels, 1.0),
+        ("pixel", Pixels, 1.0),
+        ("pixels", Pixels, 1.0),
+        ("beam", Beams, 1.0),
+        ("beams", Beams, 1.0),
+        ("arcsec2", SolidAngle, ARCSEC * ARCSEC),
+        ("arcmin2", SolidAngle, ARCMIN * ARCMIN),
+        ("deg2", SolidAngle, DEG * DEG),
+        ("sr", SolidAngle, 1.0),
+        ("MJy/sr", SurfaceBrightness, 1e6 * JY),
+        ("Jy/sr", SurfaceBrightness, JY),
+        ("Jy/beam", FluxPerBeam, JY),
+        ("mJy/beam", FluxPerBeam, 1e-3 * JY),
+        ("uJy/beam", FluxPerBeam, 1e-6 * JY),
+        ("Jy/pixel", FluxPerPixel, JY),
+        ("Jy/px", FluxPerPixel, JY),
+        ("mJy/pixel", FluxPerPixel, 1e-3 * JY),
+        ("cm2/g", Opacity, 0.1),
+        ("m2/kg", Opacity, 1.0),
+    ]
+}
+
+/// Normalises the spelling of a unit: `^`, `**`, blanks and ` sr-1`-style powers.
+fn normalise_unit(u: &str) -> String {
+    let mut s = u.trim().replace("**", "").replace('^', "").replace(' ', "");
+    for (from, to) in [
+        ("cm2", "cm2"),
+        ("sr-1", "/sr"),
+        ("beam-1", "/beam"),
+        ("pixel-1", "/pixel"),
+        ("pix-1", "/pixel"),
+        ("s-1", "/s"),
+        ("g-1", "/g"),
+        ("/pix", "/pixel"),
+    ] {
+        if s.ends_with(from) && from != to {
+            let cut = s.len() - from.len();
+            s = format!("{}{}", &s[..cut], to);
+        }
+    }
+    s = s.replace("/pixelel", "/pixel");
+    if s.starts_with("/cm2") || s == "1/cm2" {
+        s = "cm-2".into();
+    }
+    s
+}
+
+/// Parses `text` as a number followed by a unit whose dimension is one of `allowed`.
+///
+/// `what` names the option or keyword for the error sentence (for example `--beam`).
+/// A bare number is accepted only when `Dimension::Pure` is allowed.
+pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Quantity, String> {
+    let t = text.trim();
+    let expected = allowed.iter().map(|d| d.describe()).collect::<Vec<_>>().join(", or ");
+    let bad = || format!("{what} '{text}' is not understood: give {expected}.");
+    let split = number_prefix_len(t);
+    if split == 0 {
+        return Err(bad());
+    }
+    let number: f64 = t[..split].parse().map_err(|_| bad())?;
+    if !number.is_finite() {
+        return Err(bad());
+    }
+    let unit = normalise_unit(&t[split..]);
+    if unit.is_empty() {
+        if allowed.contains(&Dimension::Pure) {
+            return Ok(Quantity { si: number, dim: Dimension::Pure });
+        }
+        return Err(format!("{what} '{text}' has no unit: give {expected}."));
+    }
+    for (name, dim, factor) in unit_table() {
+        if *name == unit {
+            if !allowed.contains(dim) {
+                return Err(format!(
+                    "{what} '{text}' is {}, but {expected} is needed.",
+                    article_of(*dim)
+                ));
+            }
+            return Ok(Quantity { si: number * factor, dim: *dim });
+        }
+    }
+    Err(bad())
+}
+
+fn article_of(d: Dimension) -> &'static str {
+    let s = d.describe();
+    s.split(',').next().unwrap_or(s)
+}
+
+/// Length of the leading decimal number (sign, digits, point, exponent) in `t`.
+fn number_prefix_len(t: &str) -> usize {
+    let b = t.as_bytes();
+    let mut i = 0;
+    if i < b.len() && (b[i] == b'+' || b[i] == b'-') {
+        i += 1;
+    }
+    let start_digits = i;
+    while i < b.len() && (b[i].is_ascii_digit() || b[i] == b'.') {
+        i += 1;
+    }
+    if i == start_digits {
+        return 0;
+    }
+    // Exponent, only when followed by a digit (so "2em" is not eaten).
+    if i < b.len() && (b[i] == b'e' || b[i] == b'E') {
+        let mut j = i + 1;
+        if j < b.len() && (b[j] == b'+' || b[j] == b'-') {
+            j += 1;
+        }
+        if j < b.len() && b[j].is_ascii_digit() {
+            while j < b.len() && b[j].is_ascii_digit() {
+                j += 1;
+            }
+            i = j;
+        }
+    }
+    i
+}
+
+/// The extinction band of a map in magnitudes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+pub enum ExtinctionBand {
+    /// Visual extinction A_V.
+    V,
+    /// K-band extinction A_K.
+    K,
+}
+
+/// What the pixels of a map measure, with the factor from the stated unit to the SI unit of
+/// that kind.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[serde(tag = "kind")]
+pub enum PixelUnit {
+    /// H2 column density; `to_si` converts to m^-2.
+    ColumnDensity { to_si: f64 },
+    /// Extinction in magnitudes in a band.
+    Extinction { band: ExtinctionBand },
+    /// Surface brightness; `to_si` converts to W m^-2 Hz^-1 sr^-1.
+    SurfaceBrightness { to_si: f64 },
+    /// Flux density per beam; `to_si` converts to W m^-2 Hz^-1 (per beam).
+    FluxPerBeam { to_si: f64 },
+    /// Flux density per pixel; `to_si` converts to W m^-2 Hz^-1 (per pixel).
+    FluxPerPixel { to_si: f64 },
+}
+
+impl PixelUnit {
+    /// Words for the summary, such as "H2 column density".
+    pub fn kind_name(&self) -> &'static str {
+        match self {
+            PixelUnit::ColumnDensity { .. } => "H2 column density",
+            PixelUnit::Extinction { band: ExtinctionBand::V } => "visual extinction A_V",
+            PixelUnit::Extinction { band: ExtinctionBand::K } => "K-band extinction A_K",
+            PixelUnit::SurfaceBrightness { .. } => "surface brightness",
+            PixelUnit::FluxPerBeam { .. } => "flux density per beam",
+            PixelUnit::FluxPerPixel { .. } => "flux density per pixel",
+        }
+    }
+
+    /// Whether this is dust emission (needs a wavelength and temperature to become a column).
+    pub fn is_emission(&self) -> bool {
+        matches!(
+            self,
+            PixelUnit::SurfaceBrightness { .. }
+                | PixelUnit::FluxPerBeam { .. }
+                | PixelUnit::FluxPerPixel { .. }
+        )
+    }
+}
+
+/// Reads a FITS `BUNIT` (or a `--unit` value) into what the pixels measure.
+///
+/// `band` chooses the extinction band for `mag` maps. Returns `None` for strings that name no
+/// quantity cairn can use (`K` brightness temperature, counts, empty).
+pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> {
+    let raw = bunit.trim();
+    if raw.is_empty() {
+        return None;
+    }
+    let all_upper = raw.chars().any(|c| c.is_ascii_alphabetic())
+        && !raw.chars().any(|c| c.is_ascii_lowercase());
+    let s = normalise_unit(raw);
+    let s = s.trim_start_matches("1").to_string();
+    let lower = s.to_ascii_lowercase();
+    // Column density, with optional species prefix such as "N(H2)" or "H2".
+    let col = lower
+        .trim_start_matches("n(h2)")
+        .trim_start_matches("nh2")
+        .trim_start_matches("h2")
+        .trim_start_matches("molecules")
+        .trim_start_matches("particles")
+        .trim_start_matches("/")
+        .to_string();
+    match col.as_str() {
+        "cm-2" | "/cm2" | "cm2-1" => return Some(PixelUnit::ColumnDensity { to_si: 1e4 }),
+        "m-2" | "/m2" => return Some(PixelUnit::ColumnDensity { to_si: 1.0 }),
+        _ => {}
+    }
+    match lower.as_str() {
+        "mag" | "magnitude" | "magnitudes" => return Some(PixelUnit::Extinction { band }),
+        "mag(av)" | "av" | "mag(a_v)" | "a_v" => {
+            return Some(PixelUnit::Extinction { band: ExtinctionBand::V });
+        }
+        "mag(ak)" | "ak" | "mag(a_k)" | "a_k" => {
+            return Some(PixelUnit::Extinction { band: ExtinctionBand::K });
+        }
+        _ => {}
+    }
+    // Emission: prefix + Jy + per-what. Case matters (mJy vs MJy) unless all upper case.
+    let (prefix, rest) = split_jansky(&s, all_upper)?;
+    let rest_l = rest.to_ascii_lowercase();
+    let si = prefix * JANSKY;
+    match rest_l.as_str() {
+        "/sr" | "/steradian" => Some(PixelUnit::SurfaceBrightness { to_si: si }),
+        "/beam" => Some(PixelUnit::FluxPerBeam { to_si: si }),
+        "/pixel" | "/pix" | "/px" => Some(PixelUnit::FluxPerPixel { to_si: si }),
+        _ => None,
+    }
+}
+
+/// Splits "MJy/sr" into (1e6, "/sr"); `None` if the string has no jansky in it.
+fn split_jansky(s: &str, all_upper: bool) -> Option<(f64, String)> {
+    let lower = s.to_ascii_lowercase();
+    let pos = lower.find("jy")?;
+    let prefix_txt = &s[..pos];
+    let rest = s[pos + 2..].to_string();
+    let prefix = if all_upper {
+        match prefix_txt {
+            "" => 1.0,
+            "M" => 1e6,
+            "K" => 1e3,
+            "G" => 1e9,
+            "U" => 1e-6,
+            _ => return None,
+        }
+    } else {
+        match prefix_txt {
+            "" => 1.0,
+            "M" => 1e6,
+            "k" => 1e3,
+            "G" => 1e9,
+            "m" => 1e-3,
+            "u" | "µ" => 1e-6,
+            _ => return None,
+        }
+    };
+    Some((prefix, rest))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use Dimension::*;
+
+    #[test]
+    fn parses_the_quantities_of_the_command_line() {
+        let q = parse_quantity("18.2arcsec", &[Angle], "--beam").unwrap();
+        assert!((q.si - 18.2 * ARCSEC).abs() < 1e-18);
+        let q = parse_quantity("850um", &[Length, Frequency], "--wavelength").unwrap();
+        assert!((q.si - 850e-6).abs() < 1e-18);
+        let q = parse_quantity("300pc", &[Length], "--distance").unwrap();
+        assert!((q.si / PARSEC - 300.0).abs() < 1e-12);
+        assert_eq!(parse_quantity("12K", &[Temperature], "--temperature").unwrap().si, 12.0);
+        assert_eq!(parse_quantity("3sigma", &[Sigma, ColumnDensity], "--floor").unwrap().dim, Sigma);
+        let q = parse_quantity("2e21cm-2", &[Sigma, ColumnDensity], "--floor").unwrap();
+        assert_eq!(q.dim, ColumnDensity);
+        assert!((q.si - 2e25).abs() < 1e10);
+        let q = parse_quantity("2e21 cm^-2", &[ColumnDensity], "--floor").unwrap();
+        assert!((q.si - 2e25).abs() < 1e10);
+        let q = parse_quantity("0.3km/s", &[Speed], "--sigma-nt").unwrap();
+        assert!((q.si - 300.0).abs() < 1e-12);
+        assert_eq!(parse_quantity("3beam", &[Pixels, Beams, SolidAngle], "--min-area").unwrap().dim, Beams);
+        assert_eq!(parse_quantity("-1.5e-3Jy/beam", &[FluxPerBeam], "--floor").unwrap().si, -1.5e-3 * JANSKY);
+    }
+
+    #[test]
+    fn nonsense_gets_one_sentence_naming_option_and_example() {
+        let e = parse_quantity("fast", &[Angle], "--beam").unwrap_err();
+        assert!(e.starts_with("--beam 'fast' is not understood"), "{e}");
+        assert!(e.contains("18.2arcsec"));
+        let e = parse_quantity("12", &[Temperature], "--temperature").unwrap_err();
+        assert!(e.contains("has no unit"), "{e}");
+        let e = parse_quantity("12pc", &[Temperature], "--temperature").unwrap_err();
+        assert!(e.contains("is a length"), "{e}");
+        assert!(parse_quantity("1e999K", &[Temperature], "--temperature").is_err());
+    }
+
+    #[test]
+    fn reads_bunit_spellings() {
+        let v = ExtinctionBand::V;
+        for s in ["cm-2", "cm^-2", "cm**-2", "1/cm2", "/cm2", "N(H2) cm-2", "cm-2 "] {
+            assert_eq!(parse_pixel_unit(s, v), Some(PixelUnit::ColumnDensity { to_si: 1e4 }), "{s}");
+        }
+        assert_eq!(parse_pixel_unit("m-2", v), Some(PixelUnit::ColumnDensity { to_si: 1.0 }));
+        assert_eq!(parse_pixel_unit("mag", ExtinctionBand::K), Some(PixelUnit::Extinction { band: ExtinctionBand::K }));
+        for s in ["MJy/sr", "MJy sr-1", "MJY/SR", "MJy/sr"] {
+            assert_eq!(parse_pixel_unit(s, v), Some(PixelUnit::SurfaceBrightness { to_si: 1e6 * JANSKY }), "{s}");
+        }
+        for s in ["Jy/beam", "JY/BEAM", "Jy beam-1", "Jy/beam "] {
+            assert_eq!(parse_pixel_unit(s, v), Some(PixelUnit::FluxPerBeam { to_si: 1e-26 }), "{s}");
+        }
+        assert_eq!(parse_pixel_unit("mJy/beam", v), Some(PixelUnit::FluxPerBeam { to_si: 1e-3 * JANSKY }));
+        assert_eq!(parse_pixel_unit("Jy/pixel", v), Some(PixelUnit::FluxPerPixel { to_si: 1e-26 }));
+        assert_eq!(parse_pixel_unit("Jy/pix", v), Some(PixelUnit::FluxPerPixel { to_si: 1e-26 }));
+        for s in ["", "K", "counts", "furlongs", "xJy/beam"] {
+            assert_eq!(parse_pixel_unit(s, v), None, "{s}");
+        }
+    }
+}
