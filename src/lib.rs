@@ -5,8 +5,10 @@
 //! measurements -> physics -> writers and figures. Each module's doc comment says what it owns
 //! and which papers it implements.
 
+pub mod angles;
 pub mod error;
 pub mod header;
+pub mod inspect;
 pub mod map;
 pub mod noise;
 pub mod units;

@@ -500,3 +500,40 @@ mod tests {
         }
     }
 }
+
+/// Parses a value in the units of a map's pixels: a plain number is taken in the map's own
+/// unit (its BUNIT); a quantity with a unit of the same kind is converted to it.
+pub fn parse_map_value(text: &str, unit: Option<PixelUnit>, what: &str) -> Result<f64, String> {
+    let dims: &[Dimension] = match unit {
+        Some(PixelUnit::ColumnDensity { .. }) => &[Dimension::Pure, Dimension::ColumnDensity],
+        Some(PixelUnit::Extinction { .. }) => &[Dimension::Pure, Dimension::Magnitude],
+        Some(PixelUnit::SurfaceBrightness { .. }) => &[Dimension::Pure, Dimension::SurfaceBrightness],
+        Some(PixelUnit::FluxPerBeam { .. }) => &[Dimension::Pure, Dimension::FluxPerBeam],
+        Some(PixelUnit::FluxPerPixel { .. }) => &[Dimension::Pure, Dimension::FluxPerPixel],
+        None => &[Dimension::Pure],
+    };
+    let q = parse_quantity(text, dims, what)?;
+    let to_si = match unit {
+        Some(PixelUnit::ColumnDensity { to_si })
+        | Some(PixelUnit::SurfaceBrightness { to_si })
+        | Some(PixelUnit::FluxPerBeam { to_si })
+        | Some(PixelUnit::FluxPerPixel { to_si }) => to_si,
+        _ => 1.0,
+    };
+    Ok(if q.dim == Dimension::Pure { q.si } else { q.si / to_si })
+}
+
+#[cfg(test)]
+mod map_value_tests {
+    use super::*;
+
+    #[test]
+    fn map_values_convert_to_the_map_unit() {
+        let mjy = Some(PixelUnit::SurfaceBrightness { to_si: 1e6 * JANSKY });
+        assert_eq!(parse_map_value("2.5", mjy, "--noise").unwrap(), 2.5);
+        assert!((parse_map_value("3e6Jy/sr", mjy, "--noise").unwrap() - 3.0).abs() < 1e-12);
+        let col = Some(PixelUnit::ColumnDensity { to_si: 1e4 });
+        assert!((parse_map_value("2e21cm-2", col, "--floor").unwrap() - 2e21).abs() < 1e6);
+        assert!(parse_map_value("2e21cm-2", mjy, "--floor").is_err());
+    }
+}

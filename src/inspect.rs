@@ -1,0 +1,442 @@
+//! `cairn inspect`: what a map is, in words and as JSON.
+//!
+//! Owns the summary of a loaded map (HDU, shape, data type, what the unit is understood as,
+//! sky frame and projection, centre, pixel scale, beam, wavelength, value range, missing
+//! fraction, noise estimates) and the suggested thresholds for `segment`, which follow common
+//! practice: a floor 3 noise widths above the clipped median (the background level), a
+//! prominence of 3 noise widths, and a minimum area of one beam.
+//! The JSON keys are documented in the README.
+
+use std::path::Path;
+
+use serde::Serialize;
+
+use crate::angles;
+use crate::error::{Error, Result};
+use crate::map::{self, LoadOptions, Map, Source};
+use crate::noise;
+use crate::units;
+use crate::wcs::SkyFrame;
+
+/// How the noise was set.
+#[derive(Debug, Clone)]
+pub enum NoiseChoice {
+    /// Estimated from the map.
+    Estimate,
+    /// Given as one value in map units (`--noise`).
+    Value(f64),
+    /// Given as a map of the same grid (`--noise-map`).
+    Map(std::path::PathBuf),
+}
+
+/// Sky-coordinate facts of a map.
+#[derive(Debug, Clone, Serialize)]
+pub struct SkySummary {
+    /// Frame: "ICRS", "FK5 J2000", "galactic", ...
+    pub frame: String,
+    /// Projection code, such as "TAN".
+    pub projection: String,
+    /// Longitude (RA or l) of the map centre in degrees.
+    pub centre_lon_deg: f64,
+    /// Latitude (Dec or b) of the map centre in degrees.
+    pub centre_lat_deg: f64,
+    /// The centre as text (sexagesimal for equatorial frames).
+    pub centre_text: String,
+    /// Angular size of a pixel step along x and y at the centre, in arcsec.
+    pub pixel_scale_arcsec: [f64; 2],
+    /// Solid angle of the centre pixel in steradians.
+    pub pixel_solid_angle_sr: f64,
+}
+
+/// The beam, in arcsec and in pixels.
+#[derive(Debug, Clone, Serialize)]
+pub struct BeamSummary {
+    /// Major-axis FWHM in arcsec.
+    pub major_arcsec: f64,
+    /// Minor-axis FWHM in arcsec.
+    pub minor_arcsec: f64,
+    /// Position angle in degrees east of north.
+    pub pa_deg: f64,
+    /// Major-axis FWHM in pixels (at the map centre), when the map has a WCS.
+    pub major_px: Option<f64>,
+    /// Minor-axis FWHM in pixels.
+    pub minor_px: Option<f64>,
+    /// Beam solid angle (pi/(4 ln 2) major minor) in pixels.
+    pub area_px: Option<f64>,
+    /// "header" or "option".
+    pub source: Source,
+}
+
+/// Wavelength and frequency.
+#[derive(Debug, Clone, Serialize)]
+pub struct WavelengthSummary {
+    /// Wavelength in micrometres.
+    pub wavelength_um: f64,
+    /// Frequency in GHz.
+    pub frequency_ghz: f64,
+    /// "header" or "option".
+    pub source: Source,
+}
+
+/// Pixel values.
+#[derive(Debug, Clone, Serialize)]
+pub struct ValueSummary {
+    /// Smallest finite value (null if none).
+    pub min: Option<f64>,
+    /// Largest finite value.
+    pub max: Option<f64>,
+    /// All pixels.
+    pub n_pixels: usize,
+    /// Missing pixels (NaN or BLANK).
+    pub n_missing: usize,
+    /// n_missing / n_pixels.
+    pub fraction_missing: f64,
+}
+
+/// Noise, in map units.
+#[derive(Debug, Clone, Serialize)]
+pub struct NoiseSummary {
+    /// The noise that `segment` would use (null when none can be had).
+    pub sigma: Option<f64>,
+    /// "clipped estimate", "--noise" or "--noise-map (median)".
+    pub source: String,
+    /// The clipped estimate's statistics, when it could be made.
+    pub clipped: Option<noise::ClippedStats>,
+    /// The difference (DER_SNR) estimate, when it could be made.
+    pub difference_sigma: Option<f64>,
+    /// Why no estimate could be made, when none could.
+    pub why_none: Option<String>,
+}
+
+/// Thresholds suggested as a starting point for `segment`.
+#[derive(Debug, Clone, Serialize)]
+pub struct Suggested {
+    /// Floor in map units.
+    pub floor: f64,
+    /// Prominence in map units.
+    pub prominence: f64,
+    /// Minimum area in pixels.
+    pub min_area_px: f64,
+}
+
+/// Everything `inspect` reports.
+#[derive(Debug, Clone, Serialize)]
+pub struct Summary {
+    /// The file.
+    pub file: String,
+    /// Zero-based HDU index.
+    pub hdu: usize,
+    /// EXTNAME of the HDU.
+    pub hdu_name: Option<String>,
+    /// [nx, ny] of the 2-D map.
+    pub shape: [usize; 2],
+    /// Axis lengths as stored (NAXIS1, NAXIS2, ...).
+    pub stored_axes: Vec<usize>,
+    /// Plane taken from a cube.
+    pub plane: Option<usize>,
+    /// BITPIX of the stored data.
+    pub bitpix: i64,
+    /// BITPIX in words.
+    pub data_type: String,
+    /// The unit as written.
+    pub unit: String,
+    /// What the unit is understood as (null if not understood).
+    pub unit_kind: Option<String>,
+    /// "header" or "option".
+    pub unit_source: Source,
+    /// Sky coordinates (null without a celestial WCS).
+    pub sky: Option<SkySummary>,
+    /// Beam (null if unknown).
+    pub beam: Option<BeamSummary>,
+    /// Wavelength (null if unknown).
+    pub wavelength: Option<WavelengthSummary>,
+    /// Value range and missing pixels.
+    pub values: ValueSummary,
+    /// Noise.
+    pub noise: NoiseSummary,
+    /// Suggested thresholds (null without a noise).
+    pub suggested: Option<Suggested>,
+    /// Warnings.
+    pub warnings: Vec<String>,
+}
+
+fn frame_name(f: &SkyFrame) -> String {
+    match f {
+        SkyFrame::Icrs => "ICRS".into(),
+        SkyFrame::Fk5 { equinox } => format!("FK5 J{equinox}"),
+        SkyFrame::Fk4 { equinox } => format!("FK4 B{equinox}"),
+        SkyFrame::Galactic => "galactic".into(),
+        SkyFrame::Ecliptic => "ecliptic".into(),
+        SkyFrame::Other(s) => s.clone(),
+    }
+}
+
+fn data_type(bitpix: i64) -> String {
+    let w = match bitpix {
+        8 => "8-bit unsigned integer",
+        16 => "16-bit integer",
+        32 => "32-bit integer",
+        64 => "64-bit integer",
+        -32 => "32-bit float",
+        -64 => "64-bit float",
+        _ => "unknown",
+    };
+    format!("{w} (BITPIX {bitpix})")
+}
+
+/// The noise used for `choice` on `map`: (sigma in map units, description).
+pub fn noise_for(map: &Map, choice: &NoiseChoice) -> Result<(Option<f64>, String)> {
+    match choice {
+        NoiseChoice::Value(v) => {
+            if !(*v > 0.0 && v.is_finite()) {
+                return Err(Error::usage(format!("--noise must be a positive number in map units, not {v}.")));
+            }
+            Ok((Some(*v), "--noise".into()))
+        }
+        NoiseChoice::Map(path) => {
+            let nm = load_noise_map(map, path)?;
+            let mut vals = noise::finite_sample(nm.view());
+            if vals.is_empty() {
+                return Err(Error::input(path, "has no finite pixels to use as noise; check the file."));
+            }
+            Ok((Some(noise::median_in_place(&mut vals)), "--noise-map (median)".into()))
+        }
+        NoiseChoice::Estimate => match noise::clipped_stats(map.data.view()) {
+            Ok(c) => Ok((Some(c.std), "clipped estimate".into())),
+            Err(_) => Ok((None, "clipped estimate".into())),
+        },
+    }
+}
+
+/// Loads a noise map and checks it lies on the same grid as `map`.
+pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
+    let opts = LoadOptions { require_unit: false, ..LoadOptions::default() };
+    let nm = map::load(path, &opts)?;
+    if nm.data.dim() != map.data.dim() {
+        return Err(Error::input(
+            path,
+            format!(
+                "is {}x{} pixels but the map {} is {}x{}; give a noise map on the same grid.",
+                nm.nx(),
+                nm.ny(),
+                map.path.display(),
+                map.nx(),
+                map.ny()
+            ),
+        ));
+    }
+    if nm.data.iter().any(|v| v.is_finite() && *v <= 0.0) {
+        return Err(Error::input(path, "has zero or negative noise values; a noise map must be positive where defined."));
+    }
+    Ok(nm.data)
+}
+
+/// Builds the summary of a loaded map.
+pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
+    let (nx, ny) = (map.nx(), map.ny());
+    let (cx, cy) = ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0);
+    let sky = map.wcs.as_ref().and_then(|w| {
+        let (lon, lat) = w.pixel_to_sky(cx, cy)?;
+        let (sx, sy) = w.pixel_scale(cx, cy);
+        let equatorial = matches!(w.frame(), SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. });
+        let centre_text = if equatorial {
+            format!("{} {}", angles::format_hms(lon, 2), angles::format_dms(lat, 1))
+        } else {
+            format!("{lon:.5} {lat:+.5}")
+        };
+        Some(SkySummary {
+            frame: frame_name(w.frame()),
+            projection: w.projection().to_string(),
+            centre_lon_deg: lon,
+            centre_lat_deg: lat,
+            centre_text,
+            pixel_scale_arcsec: [sx * 3600.0, sy * 3600.0],
+            pixel_solid_angle_sr: w.pixel_solid_angle(cx, cy),
+        })
+    });
+    let beam = map.beam.map(|b| {
+        let px = sky.as_ref().map(|s| (s.pixel_scale_arcsec[0] * s.pixel_scale_arcsec[1]).sqrt());
+        BeamSummary {
+            major_arcsec: b.major_deg * 3600.0,
+            minor_arcsec: b.minor_deg * 3600.0,
+            pa_deg: b.pa_deg,
+            major_px: px.map(|p| b.major_deg * 3600.0 / p),
+            minor_px: px.map(|p| b.minor_deg * 3600.0 / p),
+            area_px: sky.as_ref().map(|s| b.solid_angle_sr() / s.pixel_solid_angle_sr),
+            source: map.beam_source.unwrap_or(Source::Header),
+        }
+    });
+    let wavelength = map.wavelength_m.map(|w| WavelengthSummary {
+        wavelength_um: w * 1e6,
+        frequency_ghz: units::C_LIGHT / w / 1e9,
+        source: map.wavelength_source.unwrap_or(Source::Header),
+    });
+    let n_missing = map.missing_count();
+    let n_pixels = nx * ny;
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for &v in map.data.iter().filter(|v| v.is_finite()) {
+        lo = lo.min(v as f64);
+        hi = hi.max(v as f64);
+    }
+    let values = ValueSummary {
+        min: lo.is_finite().then_some(lo),
+        max: hi.is_finite().then_some(hi),
+        n_pixels,
+        n_missing,
+        fraction_missing: n_missing as f64 / n_pixels as f64,
+    };
+    let clipped = noise::clipped_stats(map.data.view());
+    let difference = noise::difference_sigma(map.data.view());
+    let (sigma, source) = noise_for(map, noise_choice)?;
+    let why_none = match (&clipped, sigma) {
+        (Err(e), None) => Some(format!("no noise estimate is possible: {e}")),
+        _ => None,
+    };
+    let background = clipped.as_ref().map(|c| c.median).ok();
+    let suggested = match (sigma, background) {
+        (Some(s), Some(bg)) => Some(Suggested {
+            floor: bg + 3.0 * s,
+            prominence: 3.0 * s,
+            min_area_px: beam.as_ref().and_then(|b| b.area_px).map(|a| a.round().max(1.0)).unwrap_or(9.0),
+        }),
+        _ => None,
+    };
+    let mut warnings = map.warnings.clone();
+    if let (Ok(c), Ok(d)) = (&clipped, &difference) {
+        let ratio = c.std / d;
+        if !(0.5..=2.0).contains(&ratio) {
+            warnings.push(format!(
+                "the clipped noise estimate ({:.4e}) and the pixel-difference estimate ({:.4e}) differ by a factor {:.1}: the map may have little emission-free area or noise correlated over several pixels; consider --noise",
+                c.std, d, ratio
+            ));
+        }
+    }
+    if map.beam.is_none() {
+        warnings.push("no beam in the header (BMAJ/BMIN): give --beam for areas in beams and physical sizes".into());
+    }
+    Ok(Summary {
+        file: map.path.display().to_string(),
+        hdu: map.hdu_index,
+        hdu_name: map.hdu_name.clone(),
+        shape: [nx, ny],
+        stored_axes: map.stored_axes.clone(),
+        plane: map.plane,
+        bitpix: map.bitpix,
+        data_type: data_type(map.bitpix),
+        unit: map.unit_text.clone(),
+        unit_kind: map.unit.map(|u| u.kind_name().to_string()),
+        unit_source: map.unit_source,
+        sky,
+        beam,
+        wavelength,
+        values,
+        noise: NoiseSummary {
+            sigma,
+            source,
+            clipped: clipped.ok(),
+            difference_sigma: difference.ok(),
+            why_none,
+        },
+        suggested,
+        warnings,
+    })
+}
+
+fn g(v: f64) -> String {
+    if v == 0.0 {
+        return "0".into();
+    }
+    let a = v.abs();
+    if (1e-3..1e5).contains(&a) { format!("{v:.5}").trim_end_matches('0').trim_end_matches('.').to_string() } else { format!("{v:.4e}") }
+}
+
+/// The summary as text for people.
+pub fn render_text(s: &Summary) -> String {
+    let mut out = String::new();
+    let mut line = |k: &str, v: String| out.push_str(&format!("{k:<16}{v}\n"));
+    line("file", s.file.clone());
+    line(
+        "hdu",
+        match &s.hdu_name {
+            Some(n) => format!("{} ({n})", s.hdu),
+            None => s.hdu.to_string(),
+        },
+    );
+    let mut shape = format!("{} x {} pixels", s.shape[0], s.shape[1]);
+    if s.stored_axes.len() > 2 {
+        shape.push_str(&format!(" (stored as {:?}", s.stored_axes));
+        if let Some(p) = s.plane {
+            shape.push_str(&format!(", plane {p}"));
+        }
+        shape.push(')');
+    }
+    line("shape", shape);
+    line("data type", s.data_type.clone());
+    line(
+        "unit",
+        format!(
+            "{} -> {}{}",
+            if s.unit.is_empty() { "(none)" } else { &s.unit },
+            s.unit_kind.clone().unwrap_or_else(|| "not understood".into()),
+            if matches!(s.unit_source, Source::Option) { " (from --unit)" } else { "" }
+        ),
+    );
+    match &s.sky {
+        Some(k) => {
+            line("sky frame", format!("{}, {} projection", k.frame, k.projection));
+            line("centre", format!("{} ({:.6}, {:+.6} deg)", k.centre_text, k.centre_lon_deg, k.centre_lat_deg));
+            line(
+                "pixel scale",
+                format!("{:.4}\" x {:.4}\" ({:.4e} sr per pixel)", k.pixel_scale_arcsec[0], k.pixel_scale_arcsec[1], k.pixel_solid_angle_sr),
+            );
+        }
+        None => line("sky frame", "none (pixel units only)".into()),
+    }
+    match &s.beam {
+        Some(b) => {
+            let mut t = format!("{:.2}\" x {:.2}\" at PA {:.1} deg", b.major_arcsec, b.minor_arcsec, b.pa_deg);
+            if let (Some(a), Some(bm), Some(area)) = (b.major_px, b.minor_px, b.area_px) {
+                t.push_str(&format!(" = {a:.2} x {bm:.2} pixels, {area:.1} pixels per beam"));
+            }
+            if matches!(b.source, Source::Option) {
+                t.push_str(" (from --beam)");
+            }
+            line("beam", t);
+        }
+        None => line("beam", "unknown (give --beam)".into()),
+    }
+    match &s.wavelength {
+        Some(w) => line("wavelength", format!("{:.1} um ({:.2} GHz)", w.wavelength_um, w.frequency_ghz)),
+        None => line("wavelength", "unknown".into()),
+    }
+    let range = match (s.values.min, s.values.max) {
+        (Some(a), Some(b)) => format!("{} to {}", g(a), g(b)),
+        _ => "no finite pixels".into(),
+    };
+    line("values", range);
+    line(
+        "missing",
+        format!("{} of {} pixels ({:.2}%)", s.values.n_missing, s.values.n_pixels, 100.0 * s.values.fraction_missing),
+    );
+    match (s.noise.sigma, &s.noise.why_none) {
+        (Some(sig), _) => {
+            let mut t = format!("{} ({})", g(sig), s.noise.source);
+            if let Some(d) = s.noise.difference_sigma {
+                t.push_str(&format!("; pixel-difference estimate {}", g(d)));
+            }
+            line("noise", t);
+        }
+        (None, Some(why)) => line("noise", why.clone()),
+        (None, None) => line("noise", "unknown".into()),
+    }
+    if let Some(sg) = &s.suggested {
+        line(
+            "suggested",
+            format!("--floor {} --prominence {} --min-area {}px (a starting point)", g(sg.floor), g(sg.prominence), sg.min_area_px),
+        );
+    }
+    for w in &s.warnings {
+        out.push_str(&format!("warning: {w}\n"));
+    }
+    out
+}

@@ -1,0 +1,207 @@
+//! Bad input to `cairn inspect`: one sentence naming the file and the problem, exit code 2,
+//! no panic, nothing written. The FITS files here are assembled byte by byte following the
+//! FITS Standard 4.0 (2880-byte blocks of 80-character cards, big-endian data).
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+struct Outcome {
+    code: i32,
+    stderr: String,
+    stdout: String,
+}
+
+fn cairn(args: &[&str], dir: &Path) -> Outcome {
+    let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("run cairn");
+    Outcome {
+        code: out.status.code().unwrap_or(-1),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+    }
+}
+
+/// A FITS file from header cards and big-endian f32 pixels.
+fn fits_bytes(cards: &[String], pixels: &[f32]) -> Vec<u8> {
+    let mut h = String::new();
+    for c in cards {
+        h.push_str(&format!("{c:<80}"));
+    }
+    h.push_str(&format!("{:<80}", "END"));
+    while h.len() % 2880 != 0 {
+        h.push(' ');
+    }
+    let mut bytes = h.into_bytes();
+    for p in pixels {
+        bytes.extend_from_slice(&p.to_be_bytes());
+    }
+    while bytes.len() % 2880 != 0 {
+        bytes.push(0);
+    }
+    bytes
+}
+
+fn image_cards(nx: usize, ny: usize, extra: &[&str]) -> Vec<String> {
+    let mut c = vec![
+        "SIMPLE  =                    T".to_string(),
+        "BITPIX  =                  -32".to_string(),
+        "NAXIS   =                    2".to_string(),
+        format!("NAXIS1  = {nx:>20}"),
+        format!("NAXIS2  = {ny:>20}"),
+    ];
+    c.extend(extra.iter().map(|s| s.to_string()));
+    c
+}
+
+fn sky_cards(ctype1: &str, ctype2: &str) -> Vec<String> {
+    vec![
+        format!("CTYPE1  = '{ctype1}'"),
+        format!("CTYPE2  = '{ctype2}'"),
+        "CRPIX1  =                  8.0".into(),
+        "CRPIX2  =                  8.0".into(),
+        "CRVAL1  =                120.0".into(),
+        "CRVAL2  =                -30.0".into(),
+        "CDELT1  =          -0.00111111".into(),
+        "CDELT2  =           0.00111111".into(),
+    ]
+}
+
+fn good_pixels(n: usize) -> Vec<f32> {
+    (0..n).map(|i| ((i * 37) % 101) as f32 * 0.1).collect()
+}
+
+struct Scratch {
+    dir: tempfile::TempDir,
+}
+
+impl Scratch {
+    fn new() -> Self {
+        Scratch { dir: tempfile::tempdir().unwrap() }
+    }
+    fn write(&self, name: &str, bytes: &[u8]) -> PathBuf {
+        let p = self.dir.path().join(name);
+        std::fs::write(&p, bytes).unwrap();
+        p
+    }
+    fn listing(&self) -> Vec<String> {
+        let mut v: Vec<String> = std::fs::read_dir(self.dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        v.sort();
+        v
+    }
+}
+
+/// The rule for bad input: exit 2, one line on stderr naming `names`, no panic, nothing new.
+fn assert_refused(s: &Scratch, args: &[&str], names: &str, says: &str) {
+    let before = s.listing();
+    let o = cairn(args, s.dir.path());
+    assert_eq!(o.code, 2, "exit code for {args:?}: stderr {}", o.stderr);
+    assert!(!o.stderr.contains("panicked"), "panic for {args:?}: {}", o.stderr);
+    assert_eq!(o.stderr.trim_end().lines().count(), 1, "one sentence for {args:?}: {}", o.stderr);
+    assert!(o.stderr.contains(names), "{args:?}: stderr should name {names}: {}", o.stderr);
+    assert!(o.stderr.contains(says), "{args:?}: stderr should say '{says}': {}", o.stderr);
+    assert!(o.stdout.is_empty(), "{args:?}: nothing on stdout: {}", o.stdout);
+    assert_eq!(s.listing(), before, "{args:?}: nothing written");
+}
+
+#[test]
+fn not_a_fits_file() {
+    let s = Scratch::new();
+    s.write("notes.fits", b"these are observing notes, not an image\n");
+    assert_refused(&s, &["inspect", "notes.fits"], "notes.fits", "is not a FITS file");
+    assert_refused(&s, &["inspect", "absent.fits"], "absent.fits", "no such file");
+}
+
+#[test]
+fn truncated_files() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    let full = fits_bytes(&cards, &good_pixels(256));
+    s.write("cut_data.fits", &full[..2880 + 500]);
+    assert_refused(&s, &["inspect", "cut_data.fits"], "cut_data.fits", "is truncated");
+    s.write("cut_header.fits", &full[..1000]);
+    assert_refused(&s, &["inspect", "cut_header.fits"], "cut_header.fits", "truncated");
+}
+
+#[test]
+fn header_claiming_more_data_than_the_file_holds() {
+    // 100000 x 100000 float32 would need 40 GB: refused before any allocation.
+    let s = Scratch::new();
+    let cards = image_cards(100_000, 100_000, &["BUNIT   = 'cm-2'"]);
+    s.write("huge_claim.fits", &fits_bytes(&cards, &good_pixels(720)));
+    assert_refused(&s, &["inspect", "huge_claim.fits"], "huge_claim.fits", "is truncated");
+}
+
+#[test]
+fn one_dimensional_and_cube() {
+    let s = Scratch::new();
+    let fx = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures/fits");
+    let line = fx.join("line1d.fits");
+    assert_refused(&s, &["inspect", line.to_str().unwrap()], "line1d.fits", "NAXIS = 1");
+    let cube = fx.join("cube.fits");
+    assert_refused(&s, &["inspect", cube.to_str().unwrap()], "cube.fits", "--plane");
+}
+
+#[test]
+fn unknown_projection_code() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---QQQ", "DEC--QQQ"));
+    s.write("odd_projection.fits", &fits_bytes(&cards, &good_pixels(256)));
+    assert_refused(&s, &["inspect", "odd_projection.fits"], "odd_projection.fits", "QQQ");
+}
+
+#[test]
+fn unparseable_or_missing_bunit_suggests_unit() {
+    let s = Scratch::new();
+    s.write("odd_unit.fits", &fits_bytes(&image_cards(16, 16, &["BUNIT   = 'furlongs'"]), &good_pixels(256)));
+    assert_refused(&s, &["inspect", "odd_unit.fits"], "odd_unit.fits", "--unit");
+    s.write("no_unit.fits", &fits_bytes(&image_cards(16, 16, &[]), &good_pixels(256)));
+    assert_refused(&s, &["inspect", "no_unit.fits"], "no_unit.fits", "no BUNIT");
+    // With --unit the same file reads.
+    let o = cairn(&["inspect", "no_unit.fits", "--unit", "MJy/sr"], s.dir.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stdout.contains("surface brightness (from --unit)"), "{}", o.stdout);
+}
+
+#[test]
+fn negative_or_zero_beam() {
+    let s = Scratch::new();
+    let cards = image_cards(16, 16, &["BUNIT   = 'Jy/beam'", "BMAJ    =               -0.001", "BMIN    =                0.001"]);
+    s.write("bad_beam.fits", &fits_bytes(&cards, &good_pixels(256)));
+    assert_refused(&s, &["inspect", "bad_beam.fits"], "bad_beam.fits", "beam");
+    s.write("ok.fits", &fits_bytes(&image_cards(16, 16, &["BUNIT   = 'Jy/beam'"]), &good_pixels(256)));
+    assert_refused(&s, &["inspect", "ok.fits", "--beam", "0arcsec"], "--beam", "positive");
+}
+
+#[test]
+fn nonsense_on_the_command_line() {
+    let s = Scratch::new();
+    s.write("ok.fits", &fits_bytes(&image_cards(16, 16, &["BUNIT   = 'Jy/beam'"]), &good_pixels(256)));
+    assert_refused(&s, &["inspect", "ok.fits", "--beam", "fast"], "--beam 'fast'", "18.2arcsec");
+    assert_refused(&s, &["inspect", "ok.fits", "--wavelength", "blue"], "--wavelength 'blue'", "850um");
+    assert_refused(&s, &["inspect", "ok.fits", "--noise", "loud"], "--noise 'loud'", "not understood");
+}
+
+#[test]
+fn all_missing_and_constant_maps_are_reported_plainly() {
+    let s = Scratch::new();
+    let cards = image_cards(8, 8, &["BUNIT   = 'cm-2'"]);
+    s.write("empty.fits", &fits_bytes(&cards, &[f32::NAN; 64]));
+    s.write("flat.fits", &fits_bytes(&cards, &[3.0e21; 64]));
+    let o = cairn(&["inspect", "empty.fits"], s.dir.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stdout.contains("64 of 64 pixels (100.00%)"), "{}", o.stdout);
+    assert!(o.stdout.contains("every pixel is missing"), "{}", o.stdout);
+    let o = cairn(&["inspect", "flat.fits", "--json"], s.dir.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let v: serde_json::Value = serde_json::from_str(&o.stdout).unwrap();
+    assert!(v["noise"]["sigma"].is_null());
+    assert!(v["noise"]["why_none"].as_str().unwrap().contains("same value"), "{}", o.stdout);
+}

@@ -1,0 +1,82 @@
+//! Map loading checked against astropy: every BITPIX with BSCALE/BZERO/BLANK, extensions,
+//! squeezed axes and cube planes.
+//!
+//! Reference: the FITS files and the values in fixtures/fits/ are written and read back by
+//! astropy 8.0.2 astropy.io.fits (tests/oracle/fits_astropy.py). cairn holds pixels as 32-bit
+//! floats, so each astropy value is compared after rounding to f32.
+
+mod common;
+
+use cairn::map::{self, HduChoice, LoadOptions};
+use common::{fixture_json, fixture_path, nums};
+
+fn opts() -> LoadOptions {
+    LoadOptions::default()
+}
+
+fn assert_same_pixels(data: &ndarray::Array2<f32>, reference: &[f64], what: &str) {
+    assert_eq!(data.len(), reference.len(), "{what}: pixel count");
+    for (i, (a, b)) in data.iter().zip(reference).enumerate() {
+        if b.is_nan() {
+            assert!(a.is_nan(), "{what}: pixel {i} should be missing, cairn read {a}");
+        } else {
+            // astropy 8.0.2 value rounded to f32, since cairn stores f32.
+            assert_eq!(*a, *b as f32, "{what}: pixel {i}");
+        }
+    }
+}
+
+#[test]
+fn every_bitpix_reads_as_astropy_reads_it() {
+    let v = fixture_json("fits/values.json");
+    for bitpix in [8, 16, 32, 64, -32, -64] {
+        let name = format!("bitpix_{bitpix}.fits");
+        let reference = &v["files"][&name];
+        let m = map::load(&fixture_path(&format!("fits/{name}")), &opts()).unwrap();
+        assert_eq!(m.bitpix, bitpix);
+        let shape = nums(&reference["shape"]);
+        assert_eq!((m.ny(), m.nx()), (shape[0] as usize, shape[1] as usize));
+        let values = nums(&reference["values"]);
+        assert_same_pixels(&m.data, &values, &name);
+        let n_missing = values.iter().filter(|x| x.is_nan()).count();
+        assert!(n_missing >= 2, "{name}: the fixture has missing pixels");
+        assert_eq!(m.missing_count(), n_missing, "{name}: missing pixels (BLANK/NaN) kept as a mask");
+    }
+}
+
+#[test]
+fn extensions_are_found_by_default_index_and_name() {
+    let v = fixture_json("fits/values.json");
+    let r = &v["files"]["extensions.fits"];
+    let path = fixture_path("fits/extensions.fits");
+    // Default: the primary HDU is empty, so the first image extension with data.
+    let m = map::load(&path, &opts()).unwrap();
+    assert_eq!(m.hdu_index, 1);
+    assert_eq!(m.hdu_name.as_deref(), Some("SIGNAL"));
+    assert_same_pixels(&m.data, &nums(&r["hdu1"]), "default HDU");
+    let m = map::load(&path, &LoadOptions { hdu: HduChoice::Name("error".into()), ..opts() }).unwrap();
+    assert_eq!(m.hdu_index, 2);
+    assert_same_pixels(&m.data, &nums(&r["hdu2"]), "--hdu ERROR");
+    let m = map::load(&path, &LoadOptions { hdu: HduChoice::Index(2), ..opts() }).unwrap();
+    assert_same_pixels(&m.data, &nums(&r["hdu2"]), "--hdu 2");
+    let e = map::load(&path, &LoadOptions { hdu: HduChoice::Name("NOPE".into()), ..opts() }).unwrap_err();
+    assert!(e.message.contains("no HDU named 'NOPE'") && e.message.contains("SIGNAL"), "{e}");
+    let e = map::load(&path, &LoadOptions { hdu: HduChoice::Index(5), ..opts() }).unwrap_err();
+    assert!(e.message.contains("has 3 HDUs"), "{e}");
+}
+
+#[test]
+fn length_one_axes_are_squeezed_and_cube_planes_chosen() {
+    let v = fixture_json("fits/values.json");
+    let m = map::load(&fixture_path("fits/squeeze3d.fits"), &opts()).unwrap();
+    assert_eq!(m.stored_axes, vec![7, 5, 1]);
+    assert_same_pixels(&m.data, &nums(&v["files"]["squeeze3d.fits"]["values"]), "squeezed");
+    let cube = fixture_path("fits/cube.fits");
+    let e = map::load(&cube, &opts()).unwrap_err();
+    assert!(e.message.contains("is a cube: axis 3 (VRAD) has 4 planes") && e.message.contains("--plane"), "{e}");
+    assert_eq!(e.exit_code(), 2);
+    let m = map::load(&cube, &LoadOptions { plane: Some(2), ..opts() }).unwrap();
+    assert_same_pixels(&m.data, &nums(&v["files"]["cube.fits"]["plane2"]), "plane 2");
+    let e = map::load(&cube, &LoadOptions { plane: Some(4), ..opts() }).unwrap_err();
+    assert!(e.message.contains("planes 0 to 3"), "{e}");
+}

@@ -1,0 +1,109 @@
+"""FITS images of every BITPIX, written and read back by astropy, for cairn's map loader.
+
+Source: astropy 8.0.2 astropy.io.fits (pinned in requirements.txt). For each BITPIX in
+8, 16, 32, 64, -32, -64 the script writes a small image with BSCALE/BZERO (and BLANK for the
+integer types, NaN for the float types), then reads it back with astropy and stores the
+values astropy returns (scaled, missing pixels as NaN) in fixtures/fits/values.json.
+Also written: a file whose primary HDU is empty with the image in a named extension, a 3-D
+image with a length-1 third axis, a real cube, and a one-dimensional array. Pixel values are
+invented.
+"""
+import os
+
+import numpy as np
+from astropy.io import fits
+
+from common import out_dir, write_json
+
+OUT = out_dir("fits")
+NX, NY = 7, 5
+
+
+def base_header(unit="MJy/sr"):
+    h = fits.Header()
+    h["BUNIT"] = unit
+    return h
+
+
+def pattern(seed):
+    rng = np.random.default_rng(seed)
+    return rng.integers(0, 200, size=(NY, NX))
+
+
+def write(name, hdul):
+    path = os.path.join(OUT, name)
+    hdul.writeto(path, overwrite=True, output_verify="exception")
+    return path
+
+
+def read_values(path, ext=None):
+    with fits.open(path) as hdul:
+        hdu = hdul[ext] if ext is not None else hdul[0]
+        data = np.asarray(hdu.data, dtype=np.float64)
+    return data
+
+
+results = {}
+ints = {8: np.uint8, 16: np.int16, 32: np.int32, 64: np.int64}
+for bitpix, dtype in ints.items():
+    raw = pattern(bitpix).astype(dtype)
+    blank = 7 if bitpix == 8 else -99
+    raw[1, 2] = blank
+    raw[4, 6] = blank
+    h = base_header()
+    hdu = fits.PrimaryHDU(raw, header=h)
+    # Integer data with scaling keywords: physical = BZERO + BSCALE * stored.
+    hdu.header["BSCALE"] = 0.25
+    hdu.header["BZERO"] = -3.5
+    hdu.header["BLANK"] = blank
+    hdu.header["BUNIT"] = "MJy/sr"
+    name = f"bitpix_{bitpix}.fits"
+    # do_not_scale_image_data keeps the stored integers and the keywords as given.
+    path = write(name, fits.HDUList([hdu]))
+    with fits.open(path) as hdul:
+        data = hdul[0].data.astype(np.float64)  # astropy applies BSCALE/BZERO, BLANK -> NaN
+    results[name] = {"bitpix": bitpix, "shape": [NY, NX], "values": data.ravel()}
+
+for bitpix, dtype in {-32: np.float32, -64: np.float64}.items():
+    raw = (pattern(-bitpix).astype(np.float64) / 3.0).astype(dtype)
+    raw[0, 0] = np.nan
+    raw[3, 5] = np.nan
+    hdu = fits.PrimaryHDU(raw, header=base_header())
+    hdu.header["BSCALE"] = 2.0
+    hdu.header["BZERO"] = 1.0
+    name = f"bitpix_{bitpix}.fits"
+    path = write(name, fits.HDUList([hdu]))
+    with fits.open(path) as hdul:
+        data = hdul[0].data.astype(np.float64)
+    results[name] = {"bitpix": bitpix, "shape": [NY, NX], "values": data.ravel()}
+
+# Image in a named extension after an empty primary HDU, and a second image extension.
+sig = (pattern(3) * 0.5).astype(np.float32)
+other = (pattern(4) * 2.0).astype(np.float32)
+hdul = fits.HDUList([
+    fits.PrimaryHDU(),
+    fits.ImageHDU(sig, header=base_header("Jy/beam"), name="SIGNAL"),
+    fits.ImageHDU(other, header=base_header("Jy/beam"), name="ERROR"),
+])
+write("extensions.fits", hdul)
+results["extensions.fits"] = {
+    "hdu1": read_values(os.path.join(OUT, "extensions.fits"), 1).ravel(),
+    "hdu2": read_values(os.path.join(OUT, "extensions.fits"), "ERROR").ravel(),
+    "shape": [NY, NX],
+}
+
+# 3-D with a length-1 spectral axis, and a real cube of 4 planes.
+d3 = (pattern(5) * 1.0).astype(np.float32)[None, :, :]
+h = base_header("cm-2")
+h["CTYPE3"] = "FREQ"
+write("squeeze3d.fits", fits.HDUList([fits.PrimaryHDU(d3, header=h)]))
+results["squeeze3d.fits"] = {"values": read_values(os.path.join(OUT, "squeeze3d.fits"))[0].ravel(), "shape": [NY, NX]}
+cube = np.stack([pattern(10 + k) * 1.0 for k in range(4)]).astype(np.float32)
+h = base_header("cm-2")
+h["CTYPE3"] = "VRAD"
+write("cube.fits", fits.HDUList([fits.PrimaryHDU(cube, header=h)]))
+results["cube.fits"] = {"plane2": read_values(os.path.join(OUT, "cube.fits"))[2].ravel(), "shape": [NY, NX], "planes": 4}
+
+write("line1d.fits", fits.HDUList([fits.PrimaryHDU(np.arange(10, dtype=np.float32), header=base_header())]))
+
+write_json(os.path.join(OUT, "values.json"), {"astropy": __import__("astropy").__version__, "files": results})
