@@ -32,22 +32,34 @@ pub struct Error {
 impl Error {
     /// A problem with an input file: "FILE: problem; fix."
     pub fn input(path: &Path, message: impl AsRef<str>) -> Self {
-        Error { kind: ErrorKind::Input, message: format!("{}: {}", path.display(), message.as_ref()) }
+        Error {
+            kind: ErrorKind::Input,
+            message: format!("{}: {}", path.display(), message.as_ref()),
+        }
     }
 
     /// A problem with an option.
     pub fn usage(message: impl Into<String>) -> Self {
-        Error { kind: ErrorKind::Usage, message: message.into() }
+        Error {
+            kind: ErrorKind::Usage,
+            message: message.into(),
+        }
     }
 
     /// A problem with an output path.
     pub fn output(path: &Path, message: impl AsRef<str>) -> Self {
-        Error { kind: ErrorKind::Output, message: format!("{}: {}", path.display(), message.as_ref()) }
+        Error {
+            kind: ErrorKind::Output,
+            message: format!("{}: {}", path.display(), message.as_ref()),
+        }
     }
 
     /// A failure that should not happen.
     pub fn internal(message: impl Into<String>) -> Self {
-        Error { kind: ErrorKind::Internal, message: message.into() }
+        Error {
+            kind: ErrorKind::Internal,
+            message: message.into(),
+        }
     }
 
     /// The process exit code for this failure.

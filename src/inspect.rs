@@ -189,7 +189,9 @@ pub fn noise_for(map: &Map, choice: &NoiseChoice) -> Result<(Option<f64>, String
     match choice {
         NoiseChoice::Value(v) => {
             if !(*v > 0.0 && v.is_finite()) {
-                return Err(Error::usage(format!("--noise must be a positive number in map units, not {v}.")));
+                return Err(Error::usage(format!(
+                    "--noise must be a positive number in map units, not {v}."
+                )));
             }
             Ok((Some(*v), "--noise".into()))
         }
@@ -197,9 +199,15 @@ pub fn noise_for(map: &Map, choice: &NoiseChoice) -> Result<(Option<f64>, String
             let nm = load_noise_map(map, path)?;
             let mut vals = noise::finite_sample(nm.view());
             if vals.is_empty() {
-                return Err(Error::input(path, "has no finite pixels to use as noise; check the file."));
+                return Err(Error::input(
+                    path,
+                    "has no finite pixels to use as noise; check the file.",
+                ));
             }
-            Ok((Some(noise::median_in_place(&mut vals)), "--noise-map (median)".into()))
+            Ok((
+                Some(noise::median_in_place(&mut vals)),
+                "--noise-map (median)".into(),
+            ))
         }
         NoiseChoice::Estimate => match noise::clipped_stats(map.data.view()) {
             Ok(c) => Ok((Some(c.std), "clipped estimate".into())),
@@ -210,7 +218,10 @@ pub fn noise_for(map: &Map, choice: &NoiseChoice) -> Result<(Option<f64>, String
 
 /// Loads a noise map and checks it lies on the same grid as `map`.
 pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
-    let opts = LoadOptions { require_unit: false, ..LoadOptions::default() };
+    let opts = LoadOptions {
+        require_unit: false,
+        ..LoadOptions::default()
+    };
     let nm = map::load(path, &opts)?;
     if nm.data.dim() != map.data.dim() {
         return Err(Error::input(
@@ -226,7 +237,10 @@ pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
         ));
     }
     if nm.data.iter().any(|v| v.is_finite() && *v <= 0.0) {
-        return Err(Error::input(path, "has zero or negative noise values; a noise map must be positive where defined."));
+        return Err(Error::input(
+            path,
+            "has zero or negative noise values; a noise map must be positive where defined.",
+        ));
     }
     Ok(nm.data)
 }
@@ -238,9 +252,16 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
     let sky = map.wcs.as_ref().and_then(|w| {
         let (lon, lat) = w.pixel_to_sky(cx, cy)?;
         let (sx, sy) = w.pixel_scale(cx, cy);
-        let equatorial = matches!(w.frame(), SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. });
+        let equatorial = matches!(
+            w.frame(),
+            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
+        );
         let centre_text = if equatorial {
-            format!("{} {}", angles::format_hms(lon, 2), angles::format_dms(lat, 1))
+            format!(
+                "{} {}",
+                angles::format_hms(lon, 2),
+                angles::format_dms(lat, 1)
+            )
         } else {
             format!("{lon:.5} {lat:+.5}")
         };
@@ -255,14 +276,18 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         })
     });
     let beam = map.beam.map(|b| {
-        let px = sky.as_ref().map(|s| (s.pixel_scale_arcsec[0] * s.pixel_scale_arcsec[1]).sqrt());
+        let px = sky
+            .as_ref()
+            .map(|s| (s.pixel_scale_arcsec[0] * s.pixel_scale_arcsec[1]).sqrt());
         BeamSummary {
             major_arcsec: b.major_deg * 3600.0,
             minor_arcsec: b.minor_deg * 3600.0,
             pa_deg: b.pa_deg,
             major_px: px.map(|p| b.major_deg * 3600.0 / p),
             minor_px: px.map(|p| b.minor_deg * 3600.0 / p),
-            area_px: sky.as_ref().map(|s| b.solid_angle_sr() / s.pixel_solid_angle_sr),
+            area_px: sky
+                .as_ref()
+                .map(|s| b.solid_angle_sr() / s.pixel_solid_angle_sr),
             source: map.beam_source.unwrap_or(Source::Header),
         }
     });
@@ -297,7 +322,11 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         (Some(s), Some(bg)) => Some(Suggested {
             floor: bg + 3.0 * s,
             prominence: 3.0 * s,
-            min_area_px: beam.as_ref().and_then(|b| b.area_px).map(|a| a.round().max(1.0)).unwrap_or(9.0),
+            min_area_px: beam
+                .as_ref()
+                .and_then(|b| b.area_px)
+                .map(|a| a.round().max(1.0))
+                .unwrap_or(9.0),
         }),
         _ => None,
     };
@@ -312,7 +341,10 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         }
     }
     if map.beam.is_none() {
-        warnings.push("no beam in the header (BMAJ/BMIN): give --beam for areas in beams and physical sizes".into());
+        warnings.push(
+            "no beam in the header (BMAJ/BMIN): give --beam for areas in beams and physical sizes"
+                .into(),
+        );
     }
     Ok(Summary {
         file: map.path.display().to_string(),
@@ -347,7 +379,14 @@ fn g(v: f64) -> String {
         return "0".into();
     }
     let a = v.abs();
-    if (1e-3..1e5).contains(&a) { format!("{v:.5}").trim_end_matches('0').trim_end_matches('.').to_string() } else { format!("{v:.4e}") }
+    if (1e-3..1e5).contains(&a) {
+        format!("{v:.5}")
+            .trim_end_matches('0')
+            .trim_end_matches('.')
+            .to_string()
+    } else {
+        format!("{v:.4e}")
+    }
 }
 
 /// The summary as text for people.
@@ -377,26 +416,49 @@ pub fn render_text(s: &Summary) -> String {
         format!(
             "{} -> {}{}",
             if s.unit.is_empty() { "(none)" } else { &s.unit },
-            s.unit_kind.clone().unwrap_or_else(|| "not understood".into()),
-            if matches!(s.unit_source, Source::Option) { " (from --unit)" } else { "" }
+            s.unit_kind
+                .clone()
+                .unwrap_or_else(|| "not understood".into()),
+            if matches!(s.unit_source, Source::Option) {
+                " (from --unit)"
+            } else {
+                ""
+            }
         ),
     );
     match &s.sky {
         Some(k) => {
-            line("sky frame", format!("{}, {} projection", k.frame, k.projection));
-            line("centre", format!("{} ({:.6}, {:+.6} deg)", k.centre_text, k.centre_lon_deg, k.centre_lat_deg));
+            line(
+                "sky frame",
+                format!("{}, {} projection", k.frame, k.projection),
+            );
+            line(
+                "centre",
+                format!(
+                    "{} ({:.6}, {:+.6} deg)",
+                    k.centre_text, k.centre_lon_deg, k.centre_lat_deg
+                ),
+            );
             line(
                 "pixel scale",
-                format!("{:.4}\" x {:.4}\" ({:.4e} sr per pixel)", k.pixel_scale_arcsec[0], k.pixel_scale_arcsec[1], k.pixel_solid_angle_sr),
+                format!(
+                    "{:.4}\" x {:.4}\" ({:.4e} sr per pixel)",
+                    k.pixel_scale_arcsec[0], k.pixel_scale_arcsec[1], k.pixel_solid_angle_sr
+                ),
             );
         }
         None => line("sky frame", "none (pixel units only)".into()),
     }
     match &s.beam {
         Some(b) => {
-            let mut t = format!("{:.2}\" x {:.2}\" at PA {:.1} deg", b.major_arcsec, b.minor_arcsec, b.pa_deg);
+            let mut t = format!(
+                "{:.2}\" x {:.2}\" at PA {:.1} deg",
+                b.major_arcsec, b.minor_arcsec, b.pa_deg
+            );
             if let (Some(a), Some(bm), Some(area)) = (b.major_px, b.minor_px, b.area_px) {
-                t.push_str(&format!(" = {a:.2} x {bm:.2} pixels, {area:.1} pixels per beam"));
+                t.push_str(&format!(
+                    " = {a:.2} x {bm:.2} pixels, {area:.1} pixels per beam"
+                ));
             }
             if matches!(b.source, Source::Option) {
                 t.push_str(" (from --beam)");
@@ -406,7 +468,10 @@ pub fn render_text(s: &Summary) -> String {
         None => line("beam", "unknown (give --beam)".into()),
     }
     match &s.wavelength {
-        Some(w) => line("wavelength", format!("{:.1} um ({:.2} GHz)", w.wavelength_um, w.frequency_ghz)),
+        Some(w) => line(
+            "wavelength",
+            format!("{:.1} um ({:.2} GHz)", w.wavelength_um, w.frequency_ghz),
+        ),
         None => line("wavelength", "unknown".into()),
     }
     let range = match (s.values.min, s.values.max) {
@@ -416,7 +481,12 @@ pub fn render_text(s: &Summary) -> String {
     line("values", range);
     line(
         "missing",
-        format!("{} of {} pixels ({:.2}%)", s.values.n_missing, s.values.n_pixels, 100.0 * s.values.fraction_missing),
+        format!(
+            "{} of {} pixels ({:.2}%)",
+            s.values.n_missing,
+            s.values.n_pixels,
+            100.0 * s.values.fraction_missing
+        ),
     );
     match (s.noise.sigma, &s.noise.why_none) {
         (Some(sig), _) => {
@@ -432,7 +502,12 @@ pub fn render_text(s: &Summary) -> String {
     if let Some(sg) = &s.suggested {
         line(
             "suggested",
-            format!("--floor {} --prominence {} --min-area {}px (a starting point)", g(sg.floor), g(sg.prominence), sg.min_area_px),
+            format!(
+                "--floor {} --prominence {} --min-area {}px (a starting point)",
+                g(sg.floor),
+                g(sg.prominence),
+                sg.min_area_px
+            ),
         );
     }
     for w in &s.warnings {

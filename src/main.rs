@@ -72,13 +72,28 @@ impl MapArgs {
         let band = match self.extinction_band.trim().to_ascii_uppercase().as_str() {
             "V" | "AV" | "A_V" => ExtinctionBand::V,
             "K" | "AK" | "A_K" => ExtinctionBand::K,
-            other => return Err(Error::usage(format!("--extinction-band '{other}' is not understood: give V or K."))),
+            other => {
+                return Err(Error::usage(format!(
+                    "--extinction-band '{other}' is not understood: give V or K."
+                )));
+            }
         };
-        let beam = self.beam.as_deref().map(Beam::parse).transpose().map_err(Error::usage)?;
+        let beam = self
+            .beam
+            .as_deref()
+            .map(Beam::parse)
+            .transpose()
+            .map_err(Error::usage)?;
         let wavelength = self
             .wavelength
             .as_deref()
-            .map(|w| units::parse_quantity(w, &[Dimension::Length, Dimension::Frequency], "--wavelength"))
+            .map(|w| {
+                units::parse_quantity(
+                    w,
+                    &[Dimension::Length, Dimension::Frequency],
+                    "--wavelength",
+                )
+            })
             .transpose()
             .map_err(Error::usage)?;
         if let Some(w) = wavelength
@@ -87,7 +102,11 @@ impl MapArgs {
             return Err(Error::usage("--wavelength must be positive."));
         }
         Ok(LoadOptions {
-            hdu: self.hdu.as_deref().map(HduChoice::parse).unwrap_or(HduChoice::Auto),
+            hdu: self
+                .hdu
+                .as_deref()
+                .map(HduChoice::parse)
+                .unwrap_or(HduChoice::Auto),
             plane: self.plane,
             unit: self.unit.clone(),
             band,
@@ -102,7 +121,9 @@ impl MapArgs {
             return Ok(NoiseChoice::Map(p.clone()));
         }
         match &self.noise {
-            Some(text) => Ok(NoiseChoice::Value(units::parse_map_value(text, map.unit, "--noise").map_err(Error::usage)?)),
+            Some(text) => Ok(NoiseChoice::Value(
+                units::parse_map_value(text, map.unit, "--noise").map_err(Error::usage)?,
+            )),
             None => Ok(NoiseChoice::Estimate),
         }
     }
@@ -114,7 +135,8 @@ fn run_inspect(args: &InspectArgs) -> Result<()> {
     let choice = args.read.noise_choice(&m)?;
     let summary = inspect::summarise(&m, &choice)?;
     if args.json {
-        let text = serde_json::to_string_pretty(&summary).map_err(|e| Error::internal(e.to_string()))?;
+        let text =
+            serde_json::to_string_pretty(&summary).map_err(|e| Error::internal(e.to_string()))?;
         println!("{text}");
     } else {
         print!("{}", inspect::render_text(&summary));

@@ -79,9 +79,21 @@ impl Beam {
         }
         let angle = |s: &str| units::parse_quantity(s, &[Dimension::Angle], "--beam");
         let major = angle(parts[0])?.si / units::DEG;
-        let minor = if parts.len() > 1 { angle(parts[1])?.si / units::DEG } else { major };
-        let pa = if parts.len() > 2 { angle(parts[2])?.si / units::DEG } else { 0.0 };
-        let beam = Beam { major_deg: major.max(minor), minor_deg: major.min(minor), pa_deg: pa };
+        let minor = if parts.len() > 1 {
+            angle(parts[1])?.si / units::DEG
+        } else {
+            major
+        };
+        let pa = if parts.len() > 2 {
+            angle(parts[2])?.si / units::DEG
+        } else {
+            0.0
+        };
+        let beam = Beam {
+            major_deg: major.max(minor),
+            minor_deg: major.min(minor),
+            pa_deg: pa,
+        };
         beam.check().map_err(|e| format!("--beam '{text}': {e}"))?;
         Ok(beam)
     }
@@ -220,7 +232,10 @@ fn cfitsio_text(status: i32) -> String {
     // SAFETY: ffgerr writes at most 31 characters plus NUL.
     unsafe { sys::ffgerr(status, buf.as_mut_ptr()) };
     // SAFETY: NUL-terminated by ffgerr.
-    unsafe { CStr::from_ptr(buf.as_ptr()) }.to_string_lossy().trim().to_string()
+    unsafe { CStr::from_ptr(buf.as_ptr()) }
+        .to_string_lossy()
+        .trim()
+        .to_string()
 }
 
 /// Bytes per pixel of a BITPIX.
@@ -237,17 +252,25 @@ fn bytes_per_pixel(bitpix: i64) -> Option<u64> {
 /// Checks the file's first bytes: a FITS file starts with `SIMPLE  =`.
 fn check_signature(path: &Path) -> Result<u64> {
     let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
-        std::io::ErrorKind::NotFound => {
-            Error::input(path, "no such file; check the path.")
-        }
-        _ => Error::input(path, format!("cannot be read ({e}); check its permissions.")),
+        std::io::ErrorKind::NotFound => Error::input(path, "no such file; check the path."),
+        _ => Error::input(
+            path,
+            format!("cannot be read ({e}); check its permissions."),
+        ),
     })?;
     if meta.is_dir() {
-        return Err(Error::input(path, "is a folder, not a FITS file; give the map's file name."));
+        return Err(Error::input(
+            path,
+            "is a folder, not a FITS file; give the map's file name.",
+        ));
     }
     let mut first = [0u8; 80];
-    let mut f = std::fs::File::open(path)
-        .map_err(|e| Error::input(path, format!("cannot be opened ({e}); check its permissions.")))?;
+    let mut f = std::fs::File::open(path).map_err(|e| {
+        Error::input(
+            path,
+            format!("cannot be opened ({e}); check its permissions."),
+        )
+    })?;
     let n = read_up_to(&mut f, &mut first)
         .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
     if n < 80 || !first.starts_with(b"SIMPLE  =") {
@@ -298,8 +321,12 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     let (nx, ny, firstpix, plane) = plan_read(path, &header, &axes, opts.plane)?;
 
     // The header's promise, checked against the file before any pixel buffer exists.
-    let bpp = bytes_per_pixel(bitpix)
-        .ok_or_else(|| Error::input(path, format!("has BITPIX = {bitpix}, which FITS does not define; the file is damaged.")))?;
+    let bpp = bytes_per_pixel(bitpix).ok_or_else(|| {
+        Error::input(
+            path,
+            format!("has BITPIX = {bitpix}, which FITS does not define; the file is damaged."),
+        )
+    })?;
     let total: u64 = axes.iter().map(|&a| a as u64).product::<u64>();
     let (mut head0, mut data0, mut end0) = (0i64, 0i64, 0i64);
     // SAFETY: valid handle, out-pointers to locals.
@@ -316,10 +343,18 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         ));
     }
 
-    let npix = nx.checked_mul(ny).ok_or_else(|| Error::input(path, "is too large to address."))?;
+    let npix = nx
+        .checked_mul(ny)
+        .ok_or_else(|| Error::input(path, "is too large to address."))?;
     let mut buf: Vec<f32> = Vec::new();
     buf.try_reserve_exact(npix).map_err(|_| {
-        Error::input(path, format!("needs {} MB of memory for its pixels, more than this machine can give.", npix * 4 / 1_000_000))
+        Error::input(
+            path,
+            format!(
+                "needs {} MB of memory for its pixels, more than this machine can give.",
+                npix * 4 / 1_000_000
+            ),
+        )
     })?;
     buf.resize(npix, 0.0);
     let mut first = firstpix.clone();
@@ -341,7 +376,10 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     if status != 0 {
         return Err(Error::input(
             path,
-            format!("could not be read (CFITSIO: {}); the file may be damaged.", cfitsio_text(status)),
+            format!(
+                "could not be read (CFITSIO: {}); the file may be damaged.",
+                cfitsio_text(status)
+            ),
         ));
     }
     drop(fits);
@@ -353,13 +391,18 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     // Units.
     let (unit_text, unit_source) = match &opts.unit {
         Some(u) => (u.clone(), Source::Option),
-        None => (header.get_str("BUNIT").unwrap_or("").to_string(), Source::Header),
+        None => (
+            header.get_str("BUNIT").unwrap_or("").to_string(),
+            Source::Header,
+        ),
     };
     let unit = units::parse_pixel_unit(&unit_text, opts.band);
     if unit.is_none() && opts.require_unit {
         let why = if unit_text.trim().is_empty() {
             match unit_source {
-                Source::Header => "has no BUNIT keyword, so cairn cannot tell what its pixels measure".to_string(),
+                Source::Header => {
+                    "has no BUNIT keyword, so cairn cannot tell what its pixels measure".to_string()
+                }
                 Source::Option => "was given an empty --unit".to_string(),
             }
         } else {
@@ -367,7 +410,9 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         };
         return Err(Error::input(
             path,
-            format!("{why}; give --unit with one of cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel."),
+            format!(
+                "{why}; give --unit with one of cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel."
+            ),
         ));
     }
 
@@ -383,7 +428,12 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         None => match beam_from_header(&header) {
             Ok(Some(b)) => (Some(b), Some(Source::Header)),
             Ok(None) => (None, None),
-            Err(e) => return Err(Error::input(path, format!("{e}; give the beam with --beam, such as --beam 18.2arcsec."))),
+            Err(e) => {
+                return Err(Error::input(
+                    path,
+                    format!("{e}; give the beam with --beam, such as --beam 18.2arcsec."),
+                ));
+            }
         },
     };
 
@@ -433,7 +483,10 @@ fn count_hdus(fits: &FitsHandle, path: &Path) -> Result<usize> {
     if status != 0 {
         return Err(Error::input(
             path,
-            format!("is truncated or damaged after its first header (CFITSIO: {}); re-export the file.", cfitsio_text(status)),
+            format!(
+                "is truncated or damaged after its first header (CFITSIO: {}); re-export the file.",
+                cfitsio_text(status)
+            ),
         ));
     }
     Ok(n.max(1) as usize)
@@ -447,7 +500,10 @@ fn move_to(fits: &FitsHandle, path: &Path, index: usize) -> Result<i32> {
     if status != 0 {
         return Err(Error::input(
             path,
-            format!("HDU {index} cannot be read (CFITSIO: {}); the file is truncated or damaged.", cfitsio_text(status)),
+            format!(
+                "HDU {index} cannot be read (CFITSIO: {}); the file is truncated or damaged.",
+                cfitsio_text(status)
+            ),
         ));
     }
     Ok(hdutype)
@@ -458,12 +514,30 @@ fn read_header(fits: &FitsHandle, path: &Path) -> Result<Header> {
     let mut text: *mut std::os::raw::c_char = std::ptr::null_mut();
     let mut nkeys = 0;
     // SAFETY: valid handle; CFITSIO allocates `text`, freed below with fffree.
-    unsafe { sys::ffhdr2str(fits.ptr, 0, std::ptr::null_mut(), 0, &mut text, &mut nkeys, &mut status) };
+    unsafe {
+        sys::ffhdr2str(
+            fits.ptr,
+            0,
+            std::ptr::null_mut(),
+            0,
+            &mut text,
+            &mut nkeys,
+            &mut status,
+        )
+    };
     if status != 0 || text.is_null() {
-        return Err(Error::input(path, format!("its header cannot be read (CFITSIO: {}).", cfitsio_text(status))));
+        return Err(Error::input(
+            path,
+            format!(
+                "its header cannot be read (CFITSIO: {}).",
+                cfitsio_text(status)
+            ),
+        ));
     }
     // SAFETY: NUL-terminated string from CFITSIO.
-    let s = unsafe { CStr::from_ptr(text) }.to_string_lossy().into_owned();
+    let s = unsafe { CStr::from_ptr(text) }
+        .to_string_lossy()
+        .into_owned();
     // SAFETY: allocated by CFITSIO.
     unsafe { sys::fffree(text as *mut _, &mut status) };
     Ok(Header::parse(&s))
@@ -476,7 +550,10 @@ fn image_shape(fits: &FitsHandle, path: &Path, index: usize) -> Result<(i64, Vec
     // SAFETY: valid handle.
     unsafe { sys::ffghdt(fits.ptr, &mut hdutype, &mut status) };
     if hdutype != sys::IMAGE_HDU as i32 {
-        return Err(Error::input(path, format!("HDU {index} is a table, not an image; choose an image HDU with --hdu.")));
+        return Err(Error::input(
+            path,
+            format!("HDU {index} is a table, not an image; choose an image HDU with --hdu."),
+        ));
     }
     let mut bitpix = 0;
     let mut naxis = 0;
@@ -486,21 +563,36 @@ fn image_shape(fits: &FitsHandle, path: &Path, index: usize) -> Result<(i64, Vec
         sys::ffgidm(fits.ptr, &mut naxis, &mut status);
     }
     if status != 0 {
-        return Err(Error::input(path, format!("HDU {index} has a damaged image header (CFITSIO: {}).", cfitsio_text(status))));
+        return Err(Error::input(
+            path,
+            format!(
+                "HDU {index} has a damaged image header (CFITSIO: {}).",
+                cfitsio_text(status)
+            ),
+        ));
     }
     let mut sizes = vec![0i64; naxis.max(0) as usize];
     if naxis > 0 {
         // SAFETY: sizes has naxis entries.
         unsafe { sys::ffgiszll(fits.ptr, naxis, sizes.as_mut_ptr(), &mut status) };
     }
-    Ok((bitpix as i64, sizes.into_iter().map(|s| s.max(0) as usize).collect()))
+    Ok((
+        bitpix as i64,
+        sizes.into_iter().map(|s| s.max(0) as usize).collect(),
+    ))
 }
 
 fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -> Result<usize> {
     match choice {
         HduChoice::Index(i) => {
             if *i >= nhdu {
-                return Err(Error::input(path, format!("has {nhdu} HDUs (0 to {}), so --hdu {i} does not exist.", nhdu - 1)));
+                return Err(Error::input(
+                    path,
+                    format!(
+                        "has {nhdu} HDUs (0 to {}), so --hdu {i} does not exist.",
+                        nhdu - 1
+                    ),
+                ));
             }
             Ok(*i)
         }
@@ -516,8 +608,17 @@ fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -
                     names.push(n.to_string());
                 }
             }
-            let known = if names.is_empty() { "none".to_string() } else { names.join(", ") };
-            Err(Error::input(path, format!("has no HDU named '{name}' (EXTNAMEs present: {known}); choose one with --hdu NAME or --hdu N.")))
+            let known = if names.is_empty() {
+                "none".to_string()
+            } else {
+                names.join(", ")
+            };
+            Err(Error::input(
+                path,
+                format!(
+                    "has no HDU named '{name}' (EXTNAMEs present: {known}); choose one with --hdu NAME or --hdu N."
+                ),
+            ))
         }
         HduChoice::Auto => {
             for i in 0..nhdu {
@@ -530,31 +631,53 @@ fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -
                     return Ok(i);
                 }
             }
-            Err(Error::input(path, "holds no image data in any HDU; give a FITS file with an image."))
+            Err(Error::input(
+                path,
+                "holds no image data in any HDU; give a FITS file with an image.",
+            ))
         }
     }
 }
 
 /// Decides which 2-D slice to read: returns (nx, ny, first pixel (1-based), plane).
-fn plan_read(path: &Path, header: &Header, axes: &[usize], plane: Option<usize>) -> Result<(usize, usize, Vec<i64>, Option<usize>)> {
+fn plan_read(
+    path: &Path,
+    header: &Header,
+    axes: &[usize],
+    plane: Option<usize>,
+) -> Result<(usize, usize, Vec<i64>, Option<usize>)> {
     match axes.len() {
-        0 => return Err(Error::input(path, "has no image data (NAXIS = 0) in this HDU; choose another with --hdu.")),
+        0 => {
+            return Err(Error::input(
+                path,
+                "has no image data (NAXIS = 0) in this HDU; choose another with --hdu.",
+            ));
+        }
         1 => {
             return Err(Error::input(
                 path,
-                format!("holds a one-dimensional array (NAXIS = 1, {} values), not an image; give a 2-D map.", axes[0]),
-            ))
+                format!(
+                    "holds a one-dimensional array (NAXIS = 1, {} values), not an image; give a 2-D map.",
+                    axes[0]
+                ),
+            ));
         }
         _ => {}
     }
     let (nx, ny) = (axes[0], axes[1]);
     if nx == 0 || ny == 0 {
-        return Err(Error::input(path, "has an empty image (an axis of length 0)."));
+        return Err(Error::input(
+            path,
+            "has an empty image (an axis of length 0).",
+        ));
     }
     let long: Vec<usize> = (2..axes.len()).filter(|&k| axes[k] > 1).collect();
     let mut first = vec![1i64; axes.len()];
     let axis_name = |k: usize| {
-        header.get_str(&format!("CTYPE{}", k + 1)).map(|s| s.trim().to_string()).filter(|s| !s.is_empty())
+        header
+            .get_str(&format!("CTYPE{}", k + 1))
+            .map(|s| s.trim().to_string())
+            .filter(|s| !s.is_empty())
     };
     match (long.len(), plane) {
         (0, None) => Ok((nx, ny, first, None)),
@@ -562,7 +685,10 @@ fn plan_read(path: &Path, header: &Header, axes: &[usize], plane: Option<usize>)
             if p == 0 {
                 Ok((nx, ny, first, None))
             } else {
-                Err(Error::usage(format!("--plane {p} was given but {} is a single image (plane 0 only).", path.display())))
+                Err(Error::usage(format!(
+                    "--plane {p} was given but {} is a single image (plane 0 only).",
+                    path.display()
+                )))
             }
         }
         (1, Some(p)) => {
@@ -626,8 +752,14 @@ pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String>
     match found {
         None => Ok(None),
         Some((a, b, pa)) => {
-            let beam = Beam { major_deg: a.max(b), minor_deg: a.min(b), pa_deg: pa };
-            beam.check().map(|_| Some(beam)).map_err(|e| format!("its header gives an unusable beam: {e}"))
+            let beam = Beam {
+                major_deg: a.max(b),
+                minor_deg: a.min(b),
+                pa_deg: pa,
+            };
+            beam.check()
+                .map(|_| Some(beam))
+                .map_err(|e| format!("its header gives an unusable beam: {e}"))
         }
     }
 }
@@ -641,9 +773,19 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
         }
     }
     for k in 3..=4 {
-        let ctype = h.get_str(&format!("CTYPE{k}")).unwrap_or("").trim().to_ascii_uppercase();
-        let Some(v) = h.get_f64(&format!("CRVAL{k}")).filter(|v| *v > 0.0) else { continue };
-        let cunit = h.get_str(&format!("CUNIT{k}")).unwrap_or("").trim().to_string();
+        let ctype = h
+            .get_str(&format!("CTYPE{k}"))
+            .unwrap_or("")
+            .trim()
+            .to_ascii_uppercase();
+        let Some(v) = h.get_f64(&format!("CRVAL{k}")).filter(|v| *v > 0.0) else {
+            continue;
+        };
+        let cunit = h
+            .get_str(&format!("CUNIT{k}"))
+            .unwrap_or("")
+            .trim()
+            .to_string();
         if ctype.starts_with("FREQ") {
             let factor = match cunit.as_str() {
                 "GHz" => 1e9,
@@ -665,7 +807,9 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {
-        let Some(v) = h.get_f64(key).filter(|v| *v > 0.0) else { continue };
+        let Some(v) = h.get_f64(key).filter(|v| *v > 0.0) else {
+            continue;
+        };
         let comment = h
             .cards()
             .iter()
@@ -676,7 +820,8 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
             Some(1e-6)
         } else if comment.contains("mm") {
             Some(1e-3)
-        } else if comment.contains("[m]") || comment.contains("metre") || comment.contains("meter") {
+        } else if comment.contains("[m]") || comment.contains("metre") || comment.contains("meter")
+        {
             Some(1.0)
         } else if v < 0.01 {
             Some(1.0)
@@ -712,7 +857,10 @@ mod tests {
     fn beam_from_history_card() {
         let text = [
             format!("{:<80}", "BUNIT   = 'Jy/beam '"),
-            format!("{:<80}", "HISTORY AIPS   CLEAN BMAJ=  5.0000E-04 BMIN=  4.0000E-04 BPA=  30.00"),
+            format!(
+                "{:<80}",
+                "HISTORY AIPS   CLEAN BMAJ=  5.0000E-04 BMIN=  4.0000E-04 BPA=  30.00"
+            ),
         ]
         .concat();
         let b = beam_from_header(&Header::parse(&text)).unwrap().unwrap();

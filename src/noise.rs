@@ -16,7 +16,7 @@
 //!   Insensitive to smooth emission, but low when the noise is correlated over several pixels
 //!   (for example smoothed by the beam). When the two disagree by much, give `--noise`.
 //!
-//! Maps larger than 2^22 finite pixels are estimated from a regular subsample of that many
+//! Maps larger than 2^21 finite pixels are estimated from a regular subsample of that many
 //! pixels (every k-th finite pixel in storage order), so the result stays deterministic.
 
 use ndarray::ArrayView2;
@@ -26,7 +26,7 @@ use ndarray::ArrayView2;
 pub const MAD_TO_SIGMA: f64 = 1.482602218505602;
 
 /// At most this many pixels are used for an estimate.
-pub const MAX_SAMPLE: usize = 1 << 22;
+pub const MAX_SAMPLE: usize = 1 << 21;
 
 /// The result of the clipped estimate.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -57,8 +57,14 @@ pub enum NoNoise {
 impl std::fmt::Display for NoNoise {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self {
-            NoNoise::AllMissing => write!(f, "every pixel is missing (NaN or BLANK), so there is nothing to measure"),
-            NoNoise::Constant(v) => write!(f, "every pixel has the same value ({v}), so the map has no noise to measure"),
+            NoNoise::AllMissing => write!(
+                f,
+                "every pixel is missing (NaN or BLANK), so there is nothing to measure"
+            ),
+            NoNoise::Constant(v) => write!(
+                f,
+                "every pixel has the same value ({v}), so the map has no noise to measure"
+            ),
         }
     }
 }
@@ -98,11 +104,15 @@ pub fn mad_std(v: &[f64]) -> f64 {
 }
 
 /// Iterative 3-sigma clipping about the median with the MAD width (see the module doc).
-pub fn clipped_stats_of(values: &[f64], sigma: f64, max_passes: usize) -> Result<ClippedStats, NoNoise> {
+pub fn clipped_stats_of(
+    values: Vec<f64>,
+    sigma: f64,
+    max_passes: usize,
+) -> Result<ClippedStats, NoNoise> {
     if values.is_empty() {
         return Err(NoNoise::AllMissing);
     }
-    let mut kept = values.to_vec();
+    let mut kept = values;
     let n_used = kept.len();
     let mut passes = 0;
     let mut scratch = Vec::with_capacity(kept.len());
@@ -126,16 +136,25 @@ pub fn clipped_stats_of(values: &[f64], sigma: f64, max_passes: usize) -> Result
     let mean = kept.iter().sum::<f64>() / n;
     let var = kept.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / n;
     let std = var.sqrt();
-    let median = median_in_place(&mut kept.clone());
+    scratch.clear();
+    scratch.extend_from_slice(&kept);
+    let median = median_in_place(&mut scratch);
     if std == 0.0 {
         return Err(NoNoise::Constant(median));
     }
-    Ok(ClippedStats { mean, median, std, n_used, n_kept: kept.len(), passes })
+    Ok(ClippedStats {
+        mean,
+        median,
+        std,
+        n_used,
+        n_kept: kept.len(),
+        passes,
+    })
 }
 
 /// The default noise estimate of a map (3-sigma clipping, at most 10 passes).
 pub fn clipped_stats(map: ArrayView2<f32>) -> Result<ClippedStats, NoNoise> {
-    clipped_stats_of(&finite_sample(map), 3.0, 10)
+    clipped_stats_of(finite_sample(map), 3.0, 10)
 }
 
 /// The DER_SNR difference estimate along rows (see the module doc).
@@ -143,7 +162,11 @@ pub fn difference_sigma(map: ArrayView2<f32>) -> Result<f64, NoNoise> {
     let mut d = Vec::new();
     let n_rows = map.nrows();
     let row_stride = (map.len().div_ceil(MAX_SAMPLE)).max(1);
-    for row in map.rows().into_iter().step_by(row_stride.min(n_rows.max(1))) {
+    for row in map
+        .rows()
+        .into_iter()
+        .step_by(row_stride.min(n_rows.max(1)))
+    {
         let r: Vec<f32> = row.iter().copied().collect();
         for i in 2..r.len().saturating_sub(2) {
             let (a, b, c) = (r[i - 2], r[i], r[i + 2]);
@@ -157,7 +180,11 @@ pub fn difference_sigma(map: ArrayView2<f32>) -> Result<f64, NoNoise> {
     }
     let s = MAD_TO_SIGMA / 6f64.sqrt() * median_in_place(&mut d);
     if s == 0.0 {
-        let v = map.iter().find(|v| v.is_finite()).copied().unwrap_or(f32::NAN);
+        let v = map
+            .iter()
+            .find(|v| v.is_finite())
+            .copied()
+            .unwrap_or(f32::NAN);
         return Err(NoNoise::Constant(v as f64));
     }
     Ok(s)

@@ -143,7 +143,11 @@ fn trim_number(v: f64) -> String {
     let s = format!("{v:.6e}");
     let parsed: f64 = s.parse().unwrap_or(v);
     let plain = format!("{parsed}");
-    if plain.len() <= 12 { plain } else { format!("{parsed:e}") }
+    if plain.len() <= 12 {
+        plain
+    } else {
+        format!("{parsed:e}")
+    }
 }
 
 /// Units the quantity parser knows: spelling, dimension, factor to SI.
@@ -245,7 +249,11 @@ fn normalise_unit(u: &str) -> String {
 /// A bare number is accepted only when `Dimension::Pure` is allowed.
 pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Quantity, String> {
     let t = text.trim();
-    let expected = allowed.iter().map(|d| d.describe()).collect::<Vec<_>>().join(", or ");
+    let expected = allowed
+        .iter()
+        .map(|d| d.describe())
+        .collect::<Vec<_>>()
+        .join(", or ");
     let bad = || format!("{what} '{text}' is not understood: give {expected}.");
     let split = number_prefix_len(t);
     if split == 0 {
@@ -258,7 +266,10 @@ pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Q
     let unit = normalise_unit(&t[split..]);
     if unit.is_empty() {
         if allowed.contains(&Dimension::Pure) {
-            return Ok(Quantity { si: number, dim: Dimension::Pure });
+            return Ok(Quantity {
+                si: number,
+                dim: Dimension::Pure,
+            });
         }
         return Err(format!("{what} '{text}' has no unit: give {expected}."));
     }
@@ -270,7 +281,10 @@ pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Q
                     article_of(*dim)
                 ));
             }
-            return Ok(Quantity { si: number * factor, dim: *dim });
+            return Ok(Quantity {
+                si: number * factor,
+                dim: *dim,
+            });
         }
     }
     Err(bad())
@@ -342,8 +356,12 @@ impl PixelUnit {
     pub fn kind_name(&self) -> &'static str {
         match self {
             PixelUnit::ColumnDensity { .. } => "H2 column density",
-            PixelUnit::Extinction { band: ExtinctionBand::V } => "visual extinction A_V",
-            PixelUnit::Extinction { band: ExtinctionBand::K } => "K-band extinction A_K",
+            PixelUnit::Extinction {
+                band: ExtinctionBand::V,
+            } => "visual extinction A_V",
+            PixelUnit::Extinction {
+                band: ExtinctionBand::K,
+            } => "K-band extinction A_K",
             PixelUnit::SurfaceBrightness { .. } => "surface brightness",
             PixelUnit::FluxPerBeam { .. } => "flux density per beam",
             PixelUnit::FluxPerPixel { .. } => "flux density per pixel",
@@ -392,10 +410,14 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
     match lower.as_str() {
         "mag" | "magnitude" | "magnitudes" => return Some(PixelUnit::Extinction { band }),
         "mag(av)" | "av" | "mag(a_v)" | "a_v" => {
-            return Some(PixelUnit::Extinction { band: ExtinctionBand::V });
+            return Some(PixelUnit::Extinction {
+                band: ExtinctionBand::V,
+            });
         }
         "mag(ak)" | "ak" | "mag(a_k)" | "a_k" => {
-            return Some(PixelUnit::Extinction { band: ExtinctionBand::K });
+            return Some(PixelUnit::Extinction {
+                band: ExtinctionBand::K,
+            });
         }
         _ => {}
     }
@@ -453,8 +475,18 @@ mod tests {
         assert!((q.si - 850e-6).abs() < 1e-18);
         let q = parse_quantity("300pc", &[Length], "--distance").unwrap();
         assert!((q.si / PARSEC - 300.0).abs() < 1e-12);
-        assert_eq!(parse_quantity("12K", &[Temperature], "--temperature").unwrap().si, 12.0);
-        assert_eq!(parse_quantity("3sigma", &[Sigma, ColumnDensity], "--floor").unwrap().dim, Sigma);
+        assert_eq!(
+            parse_quantity("12K", &[Temperature], "--temperature")
+                .unwrap()
+                .si,
+            12.0
+        );
+        assert_eq!(
+            parse_quantity("3sigma", &[Sigma, ColumnDensity], "--floor")
+                .unwrap()
+                .dim,
+            Sigma
+        );
         let q = parse_quantity("2e21cm-2", &[Sigma, ColumnDensity], "--floor").unwrap();
         assert_eq!(q.dim, ColumnDensity);
         assert!((q.si - 2e25).abs() < 1e10);
@@ -462,8 +494,18 @@ mod tests {
         assert!((q.si - 2e25).abs() < 1e10);
         let q = parse_quantity("0.3km/s", &[Speed], "--sigma-nt").unwrap();
         assert!((q.si - 300.0).abs() < 1e-12);
-        assert_eq!(parse_quantity("3beam", &[Pixels, Beams, SolidAngle], "--min-area").unwrap().dim, Beams);
-        assert_eq!(parse_quantity("-1.5e-3Jy/beam", &[FluxPerBeam], "--floor").unwrap().si, -1.5e-3 * JANSKY);
+        assert_eq!(
+            parse_quantity("3beam", &[Pixels, Beams, SolidAngle], "--min-area")
+                .unwrap()
+                .dim,
+            Beams
+        );
+        assert_eq!(
+            parse_quantity("-1.5e-3Jy/beam", &[FluxPerBeam], "--floor")
+                .unwrap()
+                .si,
+            -1.5e-3 * JANSKY
+        );
     }
 
     #[test]
@@ -481,20 +523,61 @@ mod tests {
     #[test]
     fn reads_bunit_spellings() {
         let v = ExtinctionBand::V;
-        for s in ["cm-2", "cm^-2", "cm**-2", "1/cm2", "/cm2", "N(H2) cm-2", "cm-2 "] {
-            assert_eq!(parse_pixel_unit(s, v), Some(PixelUnit::ColumnDensity { to_si: 1e4 }), "{s}");
+        for s in [
+            "cm-2",
+            "cm^-2",
+            "cm**-2",
+            "1/cm2",
+            "/cm2",
+            "N(H2) cm-2",
+            "cm-2 ",
+        ] {
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                Some(PixelUnit::ColumnDensity { to_si: 1e4 }),
+                "{s}"
+            );
         }
-        assert_eq!(parse_pixel_unit("m-2", v), Some(PixelUnit::ColumnDensity { to_si: 1.0 }));
-        assert_eq!(parse_pixel_unit("mag", ExtinctionBand::K), Some(PixelUnit::Extinction { band: ExtinctionBand::K }));
+        assert_eq!(
+            parse_pixel_unit("m-2", v),
+            Some(PixelUnit::ColumnDensity { to_si: 1.0 })
+        );
+        assert_eq!(
+            parse_pixel_unit("mag", ExtinctionBand::K),
+            Some(PixelUnit::Extinction {
+                band: ExtinctionBand::K
+            })
+        );
         for s in ["MJy/sr", "MJy sr-1", "MJY/SR", "MJy/sr"] {
-            assert_eq!(parse_pixel_unit(s, v), Some(PixelUnit::SurfaceBrightness { to_si: 1e6 * JANSKY }), "{s}");
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                Some(PixelUnit::SurfaceBrightness {
+                    to_si: 1e6 * JANSKY
+                }),
+                "{s}"
+            );
         }
         for s in ["Jy/beam", "JY/BEAM", "Jy beam-1", "Jy/beam "] {
-            assert_eq!(parse_pixel_unit(s, v), Some(PixelUnit::FluxPerBeam { to_si: 1e-26 }), "{s}");
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                Some(PixelUnit::FluxPerBeam { to_si: 1e-26 }),
+                "{s}"
+            );
         }
-        assert_eq!(parse_pixel_unit("mJy/beam", v), Some(PixelUnit::FluxPerBeam { to_si: 1e-3 * JANSKY }));
-        assert_eq!(parse_pixel_unit("Jy/pixel", v), Some(PixelUnit::FluxPerPixel { to_si: 1e-26 }));
-        assert_eq!(parse_pixel_unit("Jy/pix", v), Some(PixelUnit::FluxPerPixel { to_si: 1e-26 }));
+        assert_eq!(
+            parse_pixel_unit("mJy/beam", v),
+            Some(PixelUnit::FluxPerBeam {
+                to_si: 1e-3 * JANSKY
+            })
+        );
+        assert_eq!(
+            parse_pixel_unit("Jy/pixel", v),
+            Some(PixelUnit::FluxPerPixel { to_si: 1e-26 })
+        );
+        assert_eq!(
+            parse_pixel_unit("Jy/pix", v),
+            Some(PixelUnit::FluxPerPixel { to_si: 1e-26 })
+        );
         for s in ["", "K", "counts", "furlongs", "xJy/beam"] {
             assert_eq!(parse_pixel_unit(s, v), None, "{s}");
         }
@@ -507,7 +590,9 @@ pub fn parse_map_value(text: &str, unit: Option<PixelUnit>, what: &str) -> Resul
     let dims: &[Dimension] = match unit {
         Some(PixelUnit::ColumnDensity { .. }) => &[Dimension::Pure, Dimension::ColumnDensity],
         Some(PixelUnit::Extinction { .. }) => &[Dimension::Pure, Dimension::Magnitude],
-        Some(PixelUnit::SurfaceBrightness { .. }) => &[Dimension::Pure, Dimension::SurfaceBrightness],
+        Some(PixelUnit::SurfaceBrightness { .. }) => {
+            &[Dimension::Pure, Dimension::SurfaceBrightness]
+        }
         Some(PixelUnit::FluxPerBeam { .. }) => &[Dimension::Pure, Dimension::FluxPerBeam],
         Some(PixelUnit::FluxPerPixel { .. }) => &[Dimension::Pure, Dimension::FluxPerPixel],
         None => &[Dimension::Pure],
@@ -520,7 +605,11 @@ pub fn parse_map_value(text: &str, unit: Option<PixelUnit>, what: &str) -> Resul
         | Some(PixelUnit::FluxPerPixel { to_si }) => to_si,
         _ => 1.0,
     };
-    Ok(if q.dim == Dimension::Pure { q.si } else { q.si / to_si })
+    Ok(if q.dim == Dimension::Pure {
+        q.si
+    } else {
+        q.si / to_si
+    })
 }
 
 #[cfg(test)]
@@ -529,7 +618,9 @@ mod map_value_tests {
 
     #[test]
     fn map_values_convert_to_the_map_unit() {
-        let mjy = Some(PixelUnit::SurfaceBrightness { to_si: 1e6 * JANSKY });
+        let mjy = Some(PixelUnit::SurfaceBrightness {
+            to_si: 1e6 * JANSKY,
+        });
         assert_eq!(parse_map_value("2.5", mjy, "--noise").unwrap(), 2.5);
         assert!((parse_map_value("3e6Jy/sr", mjy, "--noise").unwrap() - 3.0).abs() < 1e-12);
         let col = Some(PixelUnit::ColumnDensity { to_si: 1e4 });

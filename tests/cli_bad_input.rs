@@ -79,7 +79,9 @@ struct Scratch {
 
 impl Scratch {
     fn new() -> Self {
-        Scratch { dir: tempfile::tempdir().unwrap() }
+        Scratch {
+            dir: tempfile::tempdir().unwrap(),
+        }
     }
     fn write(&self, name: &str, bytes: &[u8]) -> PathBuf {
         let p = self.dir.path().join(name);
@@ -101,11 +103,32 @@ fn assert_refused(s: &Scratch, args: &[&str], names: &str, says: &str) {
     let before = s.listing();
     let o = cairn(args, s.dir.path());
     assert_eq!(o.code, 2, "exit code for {args:?}: stderr {}", o.stderr);
-    assert!(!o.stderr.contains("panicked"), "panic for {args:?}: {}", o.stderr);
-    assert_eq!(o.stderr.trim_end().lines().count(), 1, "one sentence for {args:?}: {}", o.stderr);
-    assert!(o.stderr.contains(names), "{args:?}: stderr should name {names}: {}", o.stderr);
-    assert!(o.stderr.contains(says), "{args:?}: stderr should say '{says}': {}", o.stderr);
-    assert!(o.stdout.is_empty(), "{args:?}: nothing on stdout: {}", o.stdout);
+    assert!(
+        !o.stderr.contains("panicked"),
+        "panic for {args:?}: {}",
+        o.stderr
+    );
+    assert_eq!(
+        o.stderr.trim_end().lines().count(),
+        1,
+        "one sentence for {args:?}: {}",
+        o.stderr
+    );
+    assert!(
+        o.stderr.contains(names),
+        "{args:?}: stderr should name {names}: {}",
+        o.stderr
+    );
+    assert!(
+        o.stderr.contains(says),
+        "{args:?}: stderr should say '{says}': {}",
+        o.stderr
+    );
+    assert!(
+        o.stdout.is_empty(),
+        "{args:?}: nothing on stdout: {}",
+        o.stdout
+    );
     assert_eq!(s.listing(), before, "{args:?}: nothing written");
 }
 
@@ -113,8 +136,18 @@ fn assert_refused(s: &Scratch, args: &[&str], names: &str, says: &str) {
 fn not_a_fits_file() {
     let s = Scratch::new();
     s.write("notes.fits", b"these are observing notes, not an image\n");
-    assert_refused(&s, &["inspect", "notes.fits"], "notes.fits", "is not a FITS file");
-    assert_refused(&s, &["inspect", "absent.fits"], "absent.fits", "no such file");
+    assert_refused(
+        &s,
+        &["inspect", "notes.fits"],
+        "notes.fits",
+        "is not a FITS file",
+    );
+    assert_refused(
+        &s,
+        &["inspect", "absent.fits"],
+        "absent.fits",
+        "no such file",
+    );
 }
 
 #[test]
@@ -124,9 +157,19 @@ fn truncated_files() {
     cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
     let full = fits_bytes(&cards, &good_pixels(256));
     s.write("cut_data.fits", &full[..2880 + 500]);
-    assert_refused(&s, &["inspect", "cut_data.fits"], "cut_data.fits", "is truncated");
+    assert_refused(
+        &s,
+        &["inspect", "cut_data.fits"],
+        "cut_data.fits",
+        "is truncated",
+    );
     s.write("cut_header.fits", &full[..1000]);
-    assert_refused(&s, &["inspect", "cut_header.fits"], "cut_header.fits", "truncated");
+    assert_refused(
+        &s,
+        &["inspect", "cut_header.fits"],
+        "cut_header.fits",
+        "truncated",
+    );
 }
 
 #[test]
@@ -135,7 +178,12 @@ fn header_claiming_more_data_than_the_file_holds() {
     let s = Scratch::new();
     let cards = image_cards(100_000, 100_000, &["BUNIT   = 'cm-2'"]);
     s.write("huge_claim.fits", &fits_bytes(&cards, &good_pixels(720)));
-    assert_refused(&s, &["inspect", "huge_claim.fits"], "huge_claim.fits", "is truncated");
+    assert_refused(
+        &s,
+        &["inspect", "huge_claim.fits"],
+        "huge_claim.fits",
+        "is truncated",
+    );
 }
 
 #[test]
@@ -143,9 +191,19 @@ fn one_dimensional_and_cube() {
     let s = Scratch::new();
     let fx = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures/fits");
     let line = fx.join("line1d.fits");
-    assert_refused(&s, &["inspect", line.to_str().unwrap()], "line1d.fits", "NAXIS = 1");
+    assert_refused(
+        &s,
+        &["inspect", line.to_str().unwrap()],
+        "line1d.fits",
+        "NAXIS = 1",
+    );
     let cube = fx.join("cube.fits");
-    assert_refused(&s, &["inspect", cube.to_str().unwrap()], "cube.fits", "--plane");
+    assert_refused(
+        &s,
+        &["inspect", cube.to_str().unwrap()],
+        "cube.fits",
+        "--plane",
+    );
 }
 
 #[test]
@@ -153,40 +211,104 @@ fn unknown_projection_code() {
     let s = Scratch::new();
     let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
     cards.extend(sky_cards("RA---QQQ", "DEC--QQQ"));
-    s.write("odd_projection.fits", &fits_bytes(&cards, &good_pixels(256)));
-    assert_refused(&s, &["inspect", "odd_projection.fits"], "odd_projection.fits", "QQQ");
+    s.write(
+        "odd_projection.fits",
+        &fits_bytes(&cards, &good_pixels(256)),
+    );
+    assert_refused(
+        &s,
+        &["inspect", "odd_projection.fits"],
+        "odd_projection.fits",
+        "QQQ",
+    );
 }
 
 #[test]
 fn unparseable_or_missing_bunit_suggests_unit() {
     let s = Scratch::new();
-    s.write("odd_unit.fits", &fits_bytes(&image_cards(16, 16, &["BUNIT   = 'furlongs'"]), &good_pixels(256)));
+    s.write(
+        "odd_unit.fits",
+        &fits_bytes(
+            &image_cards(16, 16, &["BUNIT   = 'furlongs'"]),
+            &good_pixels(256),
+        ),
+    );
     assert_refused(&s, &["inspect", "odd_unit.fits"], "odd_unit.fits", "--unit");
-    s.write("no_unit.fits", &fits_bytes(&image_cards(16, 16, &[]), &good_pixels(256)));
+    s.write(
+        "no_unit.fits",
+        &fits_bytes(&image_cards(16, 16, &[]), &good_pixels(256)),
+    );
     assert_refused(&s, &["inspect", "no_unit.fits"], "no_unit.fits", "no BUNIT");
     // With --unit the same file reads.
-    let o = cairn(&["inspect", "no_unit.fits", "--unit", "MJy/sr"], s.dir.path());
+    let o = cairn(
+        &["inspect", "no_unit.fits", "--unit", "MJy/sr"],
+        s.dir.path(),
+    );
     assert_eq!(o.code, 0, "{}", o.stderr);
-    assert!(o.stdout.contains("surface brightness (from --unit)"), "{}", o.stdout);
+    assert!(
+        o.stdout.contains("surface brightness (from --unit)"),
+        "{}",
+        o.stdout
+    );
 }
 
 #[test]
 fn negative_or_zero_beam() {
     let s = Scratch::new();
-    let cards = image_cards(16, 16, &["BUNIT   = 'Jy/beam'", "BMAJ    =               -0.001", "BMIN    =                0.001"]);
+    let cards = image_cards(
+        16,
+        16,
+        &[
+            "BUNIT   = 'Jy/beam'",
+            "BMAJ    =               -0.001",
+            "BMIN    =                0.001",
+        ],
+    );
     s.write("bad_beam.fits", &fits_bytes(&cards, &good_pixels(256)));
     assert_refused(&s, &["inspect", "bad_beam.fits"], "bad_beam.fits", "beam");
-    s.write("ok.fits", &fits_bytes(&image_cards(16, 16, &["BUNIT   = 'Jy/beam'"]), &good_pixels(256)));
-    assert_refused(&s, &["inspect", "ok.fits", "--beam", "0arcsec"], "--beam", "positive");
+    s.write(
+        "ok.fits",
+        &fits_bytes(
+            &image_cards(16, 16, &["BUNIT   = 'Jy/beam'"]),
+            &good_pixels(256),
+        ),
+    );
+    assert_refused(
+        &s,
+        &["inspect", "ok.fits", "--beam", "0arcsec"],
+        "--beam",
+        "positive",
+    );
 }
 
 #[test]
 fn nonsense_on_the_command_line() {
     let s = Scratch::new();
-    s.write("ok.fits", &fits_bytes(&image_cards(16, 16, &["BUNIT   = 'Jy/beam'"]), &good_pixels(256)));
-    assert_refused(&s, &["inspect", "ok.fits", "--beam", "fast"], "--beam 'fast'", "18.2arcsec");
-    assert_refused(&s, &["inspect", "ok.fits", "--wavelength", "blue"], "--wavelength 'blue'", "850um");
-    assert_refused(&s, &["inspect", "ok.fits", "--noise", "loud"], "--noise 'loud'", "not understood");
+    s.write(
+        "ok.fits",
+        &fits_bytes(
+            &image_cards(16, 16, &["BUNIT   = 'Jy/beam'"]),
+            &good_pixels(256),
+        ),
+    );
+    assert_refused(
+        &s,
+        &["inspect", "ok.fits", "--beam", "fast"],
+        "--beam 'fast'",
+        "18.2arcsec",
+    );
+    assert_refused(
+        &s,
+        &["inspect", "ok.fits", "--wavelength", "blue"],
+        "--wavelength 'blue'",
+        "850um",
+    );
+    assert_refused(
+        &s,
+        &["inspect", "ok.fits", "--noise", "loud"],
+        "--noise 'loud'",
+        "not understood",
+    );
 }
 
 #[test]
@@ -197,11 +319,22 @@ fn all_missing_and_constant_maps_are_reported_plainly() {
     s.write("flat.fits", &fits_bytes(&cards, &[3.0e21; 64]));
     let o = cairn(&["inspect", "empty.fits"], s.dir.path());
     assert_eq!(o.code, 0, "{}", o.stderr);
-    assert!(o.stdout.contains("64 of 64 pixels (100.00%)"), "{}", o.stdout);
+    assert!(
+        o.stdout.contains("64 of 64 pixels (100.00%)"),
+        "{}",
+        o.stdout
+    );
     assert!(o.stdout.contains("every pixel is missing"), "{}", o.stdout);
     let o = cairn(&["inspect", "flat.fits", "--json"], s.dir.path());
     assert_eq!(o.code, 0, "{}", o.stderr);
     let v: serde_json::Value = serde_json::from_str(&o.stdout).unwrap();
     assert!(v["noise"]["sigma"].is_null());
-    assert!(v["noise"]["why_none"].as_str().unwrap().contains("same value"), "{}", o.stdout);
+    assert!(
+        v["noise"]["why_none"]
+            .as_str()
+            .unwrap()
+            .contains("same value"),
+        "{}",
+        o.stdout
+    );
 }

@@ -18,7 +18,10 @@ fn assert_same_pixels(data: &ndarray::Array2<f32>, reference: &[f64], what: &str
     assert_eq!(data.len(), reference.len(), "{what}: pixel count");
     for (i, (a, b)) in data.iter().zip(reference).enumerate() {
         if b.is_nan() {
-            assert!(a.is_nan(), "{what}: pixel {i} should be missing, cairn read {a}");
+            assert!(
+                a.is_nan(),
+                "{what}: pixel {i} should be missing, cairn read {a}"
+            );
         } else {
             // astropy 8.0.2 value rounded to f32, since cairn stores f32.
             assert_eq!(*a, *b as f32, "{what}: pixel {i}");
@@ -40,7 +43,11 @@ fn every_bitpix_reads_as_astropy_reads_it() {
         assert_same_pixels(&m.data, &values, &name);
         let n_missing = values.iter().filter(|x| x.is_nan()).count();
         assert!(n_missing >= 2, "{name}: the fixture has missing pixels");
-        assert_eq!(m.missing_count(), n_missing, "{name}: missing pixels (BLANK/NaN) kept as a mask");
+        assert_eq!(
+            m.missing_count(),
+            n_missing,
+            "{name}: missing pixels (BLANK/NaN) kept as a mask"
+        );
     }
 }
 
@@ -54,14 +61,45 @@ fn extensions_are_found_by_default_index_and_name() {
     assert_eq!(m.hdu_index, 1);
     assert_eq!(m.hdu_name.as_deref(), Some("SIGNAL"));
     assert_same_pixels(&m.data, &nums(&r["hdu1"]), "default HDU");
-    let m = map::load(&path, &LoadOptions { hdu: HduChoice::Name("error".into()), ..opts() }).unwrap();
+    let m = map::load(
+        &path,
+        &LoadOptions {
+            hdu: HduChoice::Name("error".into()),
+            ..opts()
+        },
+    )
+    .unwrap();
     assert_eq!(m.hdu_index, 2);
     assert_same_pixels(&m.data, &nums(&r["hdu2"]), "--hdu ERROR");
-    let m = map::load(&path, &LoadOptions { hdu: HduChoice::Index(2), ..opts() }).unwrap();
+    let m = map::load(
+        &path,
+        &LoadOptions {
+            hdu: HduChoice::Index(2),
+            ..opts()
+        },
+    )
+    .unwrap();
     assert_same_pixels(&m.data, &nums(&r["hdu2"]), "--hdu 2");
-    let e = map::load(&path, &LoadOptions { hdu: HduChoice::Name("NOPE".into()), ..opts() }).unwrap_err();
-    assert!(e.message.contains("no HDU named 'NOPE'") && e.message.contains("SIGNAL"), "{e}");
-    let e = map::load(&path, &LoadOptions { hdu: HduChoice::Index(5), ..opts() }).unwrap_err();
+    let e = map::load(
+        &path,
+        &LoadOptions {
+            hdu: HduChoice::Name("NOPE".into()),
+            ..opts()
+        },
+    )
+    .unwrap_err();
+    assert!(
+        e.message.contains("no HDU named 'NOPE'") && e.message.contains("SIGNAL"),
+        "{e}"
+    );
+    let e = map::load(
+        &path,
+        &LoadOptions {
+            hdu: HduChoice::Index(5),
+            ..opts()
+        },
+    )
+    .unwrap_err();
     assert!(e.message.contains("has 3 HDUs"), "{e}");
 }
 
@@ -70,13 +108,39 @@ fn length_one_axes_are_squeezed_and_cube_planes_chosen() {
     let v = fixture_json("fits/values.json");
     let m = map::load(&fixture_path("fits/squeeze3d.fits"), &opts()).unwrap();
     assert_eq!(m.stored_axes, vec![7, 5, 1]);
-    assert_same_pixels(&m.data, &nums(&v["files"]["squeeze3d.fits"]["values"]), "squeezed");
+    assert_same_pixels(
+        &m.data,
+        &nums(&v["files"]["squeeze3d.fits"]["values"]),
+        "squeezed",
+    );
     let cube = fixture_path("fits/cube.fits");
     let e = map::load(&cube, &opts()).unwrap_err();
-    assert!(e.message.contains("is a cube: axis 3 (VRAD) has 4 planes") && e.message.contains("--plane"), "{e}");
+    assert!(
+        e.message.contains("is a cube: axis 3 (VRAD) has 4 planes")
+            && e.message.contains("--plane"),
+        "{e}"
+    );
     assert_eq!(e.exit_code(), 2);
-    let m = map::load(&cube, &LoadOptions { plane: Some(2), ..opts() }).unwrap();
-    assert_same_pixels(&m.data, &nums(&v["files"]["cube.fits"]["plane2"]), "plane 2");
-    let e = map::load(&cube, &LoadOptions { plane: Some(4), ..opts() }).unwrap_err();
+    let m = map::load(
+        &cube,
+        &LoadOptions {
+            plane: Some(2),
+            ..opts()
+        },
+    )
+    .unwrap();
+    assert_same_pixels(
+        &m.data,
+        &nums(&v["files"]["cube.fits"]["plane2"]),
+        "plane 2",
+    );
+    let e = map::load(
+        &cube,
+        &LoadOptions {
+            plane: Some(4),
+            ..opts()
+        },
+    )
+    .unwrap_err();
     assert!(e.message.contains("planes 0 to 3"), "{e}");
 }
