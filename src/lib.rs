@@ -11,5 +11,7 @@ pub mod header;
 pub mod inspect;
 pub mod map;
 pub mod noise;
+pub mod output;
+pub mod table;
 pub mod units;
 pub mod wcs;

@@ -1,0 +1,167 @@
+//! Writing a set of output files safely: all or nothing, never over existing files unless
+//! asked.
+//!
+//! Owns the rule that outputs are written under temporary names in the destination folder
+//! and renamed into place only once every one of them is complete, that existing outputs are
+//! not overwritten without `--force`, and that a failure part-way leaves no partial output.
+
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, Result};
+
+/// A planned set of output files in one folder.
+#[derive(Debug)]
+pub struct Outputs {
+    dir: PathBuf,
+    created_dir: bool,
+    planned: Vec<(PathBuf, PathBuf)>,
+    committed: bool,
+}
+
+impl Outputs {
+    /// Plans outputs named `names` in `dir` (created if missing). Refuses, before anything is
+    /// written, if any already exists and `force` is false.
+    pub fn plan(dir: &Path, names: &[String], force: bool) -> Result<Outputs> {
+        let mut created_dir = false;
+        if dir.exists() {
+            if !dir.is_dir() {
+                return Err(Error::output(
+                    dir,
+                    "exists and is not a folder; choose another output folder with -o.",
+                ));
+            }
+        } else {
+            std::fs::create_dir_all(dir).map_err(|e| {
+                Error::output(
+                    dir,
+                    format!("cannot be created ({e}); choose a writable output folder with -o."),
+                )
+            })?;
+            created_dir = true;
+        }
+        let mut existing = Vec::new();
+        let mut planned = Vec::new();
+        for (k, name) in names.iter().enumerate() {
+            let target = dir.join(name);
+            if target.exists() && !force {
+                existing.push(name.clone());
+            }
+            let tmp = dir.join(format!(".{name}.partial-{}-{k}", std::process::id()));
+            planned.push((target, tmp));
+        }
+        if !existing.is_empty() {
+            return Err(Error::output(
+                dir,
+                format!(
+                    "already holds {} from an earlier run; add --force to replace them or choose another folder with -o.",
+                    existing.join(", ")
+                ),
+            ));
+        }
+        // Probe that the folder is writable before any real work.
+        let probe = dir.join(format!(".cairn-write-probe-{}", std::process::id()));
+        std::fs::write(&probe, b"").map_err(|e| {
+            if created_dir {
+                let _ = std::fs::remove_dir(dir);
+            }
+            Error::output(
+                dir,
+                format!("is not writable ({e}); choose a writable output folder with -o."),
+            )
+        })?;
+        let _ = std::fs::remove_file(&probe);
+        Ok(Outputs {
+            dir: dir.to_path_buf(),
+            created_dir,
+            planned,
+            committed: false,
+        })
+    }
+
+    /// The output folder.
+    pub fn dir(&self) -> &Path {
+        &self.dir
+    }
+
+    /// The temporary path to write the output `name` to.
+    pub fn temp(&self, name: &str) -> PathBuf {
+        self.planned
+            .iter()
+            .find(|(t, _)| t.file_name().map(|f| f == name).unwrap_or(false))
+            .map(|(_, tmp)| tmp.clone())
+            .unwrap_or_else(|| panic!("output {name} was not planned"))
+    }
+
+    /// Renames every temporary file into place. Every planned output must have been written.
+    pub fn commit(mut self) -> Result<Vec<PathBuf>> {
+        for (target, tmp) in &self.planned {
+            if !tmp.exists() {
+                return Err(Error::internal(format!(
+                    "output {} was planned but not written",
+                    target.display()
+                )));
+            }
+        }
+        let mut done = Vec::new();
+        for (target, tmp) in &self.planned {
+            std::fs::rename(tmp, target)
+                .map_err(|e| Error::output(target, format!("cannot be put in place ({e}).")))?;
+            done.push(target.clone());
+        }
+        self.committed = true;
+        Ok(done)
+    }
+}
+
+impl Drop for Outputs {
+    fn drop(&mut self) {
+        if self.committed {
+            return;
+        }
+        for (_, tmp) in &self.planned {
+            let _ = std::fs::remove_file(tmp);
+        }
+        if self.created_dir {
+            let _ = std::fs::remove_dir(&self.dir);
+        }
+    }
+}
+
+/// Writes `bytes` to `path` (used for the temporary files of an [`Outputs`]).
+pub fn write_bytes(path: &Path, bytes: &[u8]) -> Result<()> {
+    std::fs::write(path, bytes)
+        .map_err(|e| Error::output(path, format!("cannot be written ({e}).")))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn all_or_nothing_and_no_overwrite_without_force() {
+        let d = tempfile::tempdir().unwrap();
+        let out = d.path().join("run");
+        let names = vec!["a.csv".to_string(), "b.json".to_string()];
+        let o = Outputs::plan(&out, &names, false).unwrap();
+        write_bytes(&o.temp("a.csv"), b"1").unwrap();
+        drop(o); // failure part-way: nothing left, folder removed
+        assert!(!out.exists());
+        let o = Outputs::plan(&out, &names, false).unwrap();
+        write_bytes(&o.temp("a.csv"), b"1").unwrap();
+        write_bytes(&o.temp("b.json"), b"2").unwrap();
+        o.commit().unwrap();
+        assert_eq!(std::fs::read(out.join("a.csv")).unwrap(), b"1");
+        let e = Outputs::plan(&out, &names, false).unwrap_err();
+        assert!(
+            e.message.contains("--force") && e.message.contains("a.csv, b.json"),
+            "{e}"
+        );
+        let o = Outputs::plan(&out, &names, true).unwrap();
+        write_bytes(&o.temp("a.csv"), b"3").unwrap();
+        write_bytes(&o.temp("b.json"), b"4").unwrap();
+        o.commit().unwrap();
+        assert_eq!(std::fs::read(out.join("a.csv")).unwrap(), b"3");
+        let listing: Vec<_> = std::fs::read_dir(&out).unwrap().collect();
+        assert_eq!(listing.len(), 2, "no temporary files left");
+    }
+}
