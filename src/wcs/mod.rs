@@ -244,8 +244,16 @@ impl Wcs {
             code = "SIN".into();
         }
         let phi0 = num(h, &format!("PV{lo}_1"))?;
-        let theta0 = num(h, &format!("PV{lo}_2"))?;
-        let proj = Projection::new(&code, &pv, phi0, theta0).map_err(|e| {
+        let mut theta0 = num(h, &format!("PV{lo}_2"))?;
+        let mut use_offset = num(h, &format!("PV{lo}_0"))?.is_some_and(|v| v != 0.0);
+        if code == "GLS" && theta0.is_none() {
+            // GLS is SFL with the fiducial point at native latitude delta0, offset to the
+            // plane's origin, so that native and celestial poles coincide (Paper II
+            // sec. 6.1.4).
+            theta0 = Some(lat0);
+            use_offset = true;
+        }
+        let proj = Projection::new(&code, &pv, phi0, theta0, use_offset).map_err(|e| {
             if e.starts_with("unknown projection code") {
                 WcsError(format!(
                     "{e} in CTYPE{lo} = '{}' (cairn reads {})",
@@ -402,7 +410,7 @@ impl Wcs {
     ) -> Result<(f64, f64, f64), String> {
         const TOL: f64 = 1.0e-10;
         // Default LONPOLE: 0 if delta0 >= theta0, else 180 (plus phi0 when phi0 != 0).
-        let phip = lonpole.unwrap_or(if lat0 < theta0 { 180.0 } else { 0.0 } + phi0);
+        let phip = lonpole.unwrap_or((if lat0 < theta0 { 180.0 } else { 0.0 }) + phi0);
         let latpole = latpole.unwrap_or(90.0);
         if theta0 == 90.0 {
             // Reference point at the native pole: the native pole is the reference point.

@@ -28,9 +28,11 @@ pub struct Projection {
     /// Native longitude and latitude of the fiducial point (phi0, theta0), degrees.
     pub phi0: f64,
     pub theta0: f64,
-    /// Offset (x, y) subtracted so that (phi0, theta0) maps to (0, 0) when they differ from
-    /// the projection's default (Paper II sec. 2.5).
+    /// Offset (x, y) subtracted so that (phi0, theta0) maps to (0, 0), applied only when
+    /// requested by a non-zero PVi_0 of the longitude axis (Paper II sec. 2.5, Table 13).
     offset: (f64, f64),
+    /// Whether `offset` is in use.
+    pub offset_applied: bool,
 }
 
 #[derive(Debug, Clone)]
@@ -119,13 +121,15 @@ pub type Params = [Option<f64>; 30];
 
 impl Projection {
     /// Builds a projection from its code and parameters. `phi0`/`theta0` override the
-    /// fiducial point when given (PVi_1, PVi_2 of the longitude axis). Errors are sentences
-    /// without the keyword context, which the caller adds.
+    /// fiducial point when given (PVi_1, PVi_2 of the longitude axis); `use_offset` (PVi_0
+    /// of the longitude axis non-zero) shifts the plane so that the fiducial point is at
+    /// (0, 0). Errors are sentences without the keyword context, which the caller adds.
     pub fn new(
         code: &str,
         pv: &Params,
         phi0: Option<f64>,
         theta0: Option<f64>,
+        use_offset: bool,
     ) -> Result<Projection, String> {
         let p = |m: usize, d: f64| pv[m].unwrap_or(d);
         let need = |m: usize| {
@@ -307,7 +311,7 @@ impl Projection {
                     "COD" => "COD",
                     _ => "COO",
                 };
-                return Projection::finish(name, kind, theta_a, phi0, theta0);
+                return Projection::finish(name, kind, theta_a, phi0, theta0, use_offset);
             }
             "BON" => {
                 let theta1 = need(1)?;
@@ -324,7 +328,7 @@ impl Projection {
             "PCO" => (Kind::Pco, 0.0, "PCO"),
             _ => return Err(format!("unknown projection code '{code}'")),
         };
-        Projection::finish(name, kind, default_theta0, phi0, theta0)
+        Projection::finish(name, kind, default_theta0, phi0, theta0, use_offset)
     }
 
     fn finish(
@@ -333,6 +337,7 @@ impl Projection {
         default_theta0: f64,
         phi0: Option<f64>,
         theta0: Option<f64>,
+        use_offset: bool,
     ) -> Result<Projection, String> {
         let mut proj = Projection {
             code: name.to_string(),
@@ -340,8 +345,10 @@ impl Projection {
             phi0: phi0.unwrap_or(0.0),
             theta0: theta0.unwrap_or(default_theta0),
             offset: (0.0, 0.0),
+            offset_applied: false,
         };
-        if proj.phi0 != 0.0 || proj.theta0 != default_theta0 {
+        if use_offset && (proj.phi0 != 0.0 || proj.theta0 != default_theta0) {
+            proj.offset_applied = true;
             proj.offset = proj
                 .raw_s2x(proj.phi0, proj.theta0)
                 .ok_or("the fiducial point (PVi_1, PVi_2 of the longitude axis) has no image in this projection")?;
