@@ -6,3 +6,4 @@
 //! and which papers it implements.
 
 pub mod header;
+pub mod hierarchy;
