@@ -57,8 +57,10 @@
 //!   structure always passes. A root's `merge_level` is `None`.
 //! * **Pixels of a structure.** A leaf's pixels are its component down to its merge level
 //!   (its own pixels plus those of the weak peaks it absorbed). A branch's pixels are its
-//!   descendants' pixels plus its own. `labels` gives, for each pixel, the smallest structure
-//!   containing it.
+//!   descendants' pixels plus its own: the pixels that joined below the level where it starts
+//!   and those of weak pieces absorbed into it (which may lie above that level, for instance
+//!   a narrow spike failing `min_area`). `labels` gives, for each pixel, the smallest
+//!   structure containing it.
 //! * **Ids.** Structures are numbered 0.. in the order of their peaks (the pixel order above);
 //!   a branch shares its peak with one of its descendants and comes before it (ancestors
 //!   first). So id 0 is the root holding the highest pixel.
