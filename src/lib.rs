@@ -15,3 +15,4 @@ pub mod output;
 pub mod table;
 pub mod units;
 pub mod wcs;
+pub mod hierarchy;

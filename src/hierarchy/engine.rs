@@ -1,0 +1,475 @@
+//! The sweep: sort, union-find with on-the-fly simplification, then numbering and labels.
+
+use super::{Hierarchy, HierarchyError, Params, Structure, moments};
+use ndarray::{Array2, ArrayView2};
+use petgraph::graph::{DiGraph, NodeIndex};
+use rayon::prelude::*;
+use std::borrow::Cow;
+
+/// Marks a union-find root; the low 31 bits then hold the component's open node.
+const ROOT: u32 = 1 << 31;
+/// No parent.
+const NONE: u32 = u32::MAX;
+/// How many pixels are swept between two progress calls.
+const PROGRESS_STEP: usize = 1 << 20;
+
+/// An order-preserving 32-bit image of a value (`-0.0` counts as `+0.0`; no NaN comes here).
+#[inline]
+pub(super) fn order_key(v: f32) -> u32 {
+    let b = (v + 0.0).to_bits();
+    if b & 0x8000_0000 != 0 {
+        !b
+    } else {
+        b | 0x8000_0000
+    }
+}
+
+/// The sort key of pixel `idx`: ascending keys visit higher values first, then lower indices.
+#[inline]
+pub(super) fn sort_key(v: f32, idx: usize) -> u64 {
+    ((!order_key(v) as u64) << 32) | idx as u64
+}
+
+/// A candidate peak, branch or finished structure met during the sweep.
+#[derive(Clone, Copy)]
+struct Node {
+    /// Node this one was absorbed into (itself when not absorbed).
+    alias: u32,
+    /// Linear index of the peak.
+    peak: u32,
+    /// Value of the peak.
+    peak_val: f32,
+    /// Pixels of the component while this node is the component's open node.
+    area: u32,
+    /// Parent node once the structure is closed, else `NONE`.
+    parent: u32,
+    /// For a branch, the value where it starts; NaN for a peak candidate.
+    level: f32,
+    /// Value where it was closed as a child (NaN while open).
+    merge: f32,
+}
+
+/// Whether peak (va, ia) comes before peak (vb, ib) in the pixel order.
+#[inline]
+fn before(va: f32, ia: u32, vb: f32, ib: u32) -> bool {
+    va > vb || (va == vb && ia < ib)
+}
+
+#[inline]
+fn find(parent: &mut [u32], mut x: u32) -> u32 {
+    loop {
+        let px = parent[x as usize];
+        if px & ROOT != 0 {
+            return x;
+        }
+        let ppx = parent[px as usize];
+        if ppx & ROOT != 0 {
+            return px;
+        }
+        parent[x as usize] = ppx;
+        x = ppx;
+    }
+}
+
+fn find_alias(nodes: &mut [Node], x: u32) -> u32 {
+    let mut r = x;
+    while nodes[r as usize].alias != r {
+        r = nodes[r as usize].alias;
+    }
+    let mut y = x;
+    while nodes[y as usize].alias != r {
+        let next = nodes[y as usize].alias;
+        nodes[y as usize].alias = r;
+        y = next;
+    }
+    r
+}
+
+/// Builds the hierarchy of `map` (rows = y, columns = x; NaN = missing). See the module
+/// documentation for the exact rules.
+pub fn build(map: ArrayView2<f32>, params: &Params) -> Result<Hierarchy, HierarchyError> {
+    build_with_progress(map, params, &|_| {})
+}
+
+/// [`build`], calling `progress` with the fraction done (0 to 1) a few dozen times per run
+/// (about every 2^20 pixels swept), always from the calling thread.
+pub fn build_with_progress(
+    map: ArrayView2<f32>,
+    params: &Params,
+    progress: &dyn Fn(f64),
+) -> Result<Hierarchy, HierarchyError> {
+    let (nrows, ncols) = map.dim();
+    let npix = nrows * ncols;
+    if params.prominence.is_nan() || params.prominence < 0.0 {
+        return Err(HierarchyError::BadProminence(params.prominence));
+    }
+    if params.floor.is_nan() {
+        return Err(HierarchyError::BadFloor);
+    }
+    if params.min_area > npix {
+        return Err(HierarchyError::MinAreaTooLarge {
+            min_area: params.min_area,
+            npix,
+        });
+    }
+    if npix >= ROOT as usize {
+        return Err(HierarchyError::MapTooLarge(npix));
+    }
+    let data: Cow<[f32]> = match map.as_slice() {
+        Some(s) => Cow::Borrowed(s),
+        None => Cow::Owned(map.iter().copied().collect()),
+    };
+    let data: &[f32] = &data;
+    let max = data
+        .par_iter()
+        .copied()
+        .filter(|v| !v.is_nan())
+        .reduce(|| f32::NEG_INFINITY, f32::max);
+    if npix == 0 || data.iter().all(|v| v.is_nan()) {
+        return Err(HierarchyError::NoValidPixels);
+    }
+    if params.floor > max as f64 {
+        return Err(HierarchyError::FloorAboveMaximum {
+            floor: params.floor,
+            max: max as f64,
+        });
+    }
+    progress(0.0);
+
+    // 1. Pixel order.
+    let floor = params.floor;
+    let mut keys: Vec<u64> = data
+        .par_iter()
+        .enumerate()
+        .filter(|&(_, &v)| !v.is_nan() && v as f64 >= floor)
+        .map(|(i, &v)| sort_key(v, i))
+        .collect();
+    keys.par_sort_unstable();
+    progress(0.3);
+
+    // 2. Sweep.
+    let mut labels: Vec<i32> = vec![-1; npix];
+    let mut nodes = sweep(data, ncols, &keys, params, &mut labels, progress);
+    drop(keys);
+    progress(0.9);
+
+    // 3. Accepted structures, ids, labels.
+    let nn = nodes.len();
+    for n in 0..nn as u32 {
+        find_alias(&mut nodes, n);
+    }
+    let mut has_child = vec![false; nn];
+    for n in 0..nn {
+        let nd = nodes[n];
+        if nd.alias == n as u32 && nd.parent != NONE {
+            let p = find_alias(&mut nodes, nd.parent);
+            nodes[n].parent = p;
+            has_child[p as usize] = true;
+        }
+    }
+    let accepted: Vec<bool> = (0..nn)
+        .map(|n| {
+            let nd = &nodes[n];
+            nd.alias == n as u32
+                && (nd.parent != NONE
+                    || has_child[n]
+                    || (nd.peak_val as f64 - floor >= params.prominence
+                        && nd.area as usize >= params.min_area))
+        })
+        .collect();
+    // Parents are always created after their children, so a descending sweep sees parents
+    // first.
+    let mut depth = vec![0u32; nn];
+    for n in (0..nn).rev() {
+        if accepted[n] && nodes[n].parent != NONE {
+            depth[n] = depth[nodes[n].parent as usize] + 1;
+        }
+    }
+    let mut order: Vec<u32> = (0..nn as u32).filter(|&n| accepted[n as usize]).collect();
+    order.sort_unstable_by(|&a, &b| {
+        let (na, nb) = (&nodes[a as usize], &nodes[b as usize]);
+        sort_key(na.peak_val, na.peak as usize)
+            .cmp(&sort_key(nb.peak_val, nb.peak as usize))
+            .then(depth[a as usize].cmp(&depth[b as usize]))
+    });
+    let mut node_id = vec![-1i32; nn];
+    for (id, &n) in order.iter().enumerate() {
+        node_id[n as usize] = id as i32;
+    }
+    let label_of: Vec<i32> = (0..nn).map(|n| node_id[nodes[n].alias as usize]).collect();
+    labels.par_iter_mut().for_each(|l| {
+        if *l >= 0 {
+            *l = label_of[*l as usize];
+        }
+    });
+
+    let mut structures: Vec<Structure> = order
+        .iter()
+        .enumerate()
+        .map(|(id, &n)| {
+            let nd = &nodes[n as usize];
+            let parent = (nd.parent != NONE).then(|| node_id[nd.parent as usize] as u32);
+            Structure {
+                id: id as u32,
+                parent,
+                children: Vec::new(),
+                peak_value: nd.peak_val as f64,
+                peak_x: nd.peak as usize % ncols,
+                peak_y: nd.peak as usize / ncols,
+                merge_level: parent.map(|_| nd.merge as f64),
+                min_value: f64::NAN,
+                npix: 0,
+                npix_own: 0,
+                sums: Default::default(),
+                depth: depth[n as usize],
+                touches_edge: false,
+                touches_missing: false,
+            }
+        })
+        .collect();
+    for id in 0..structures.len() {
+        if let Some(p) = structures[id].parent {
+            structures[p as usize].children.push(id as u32);
+        }
+    }
+    // Children before parents: increasing node index.
+    let mut bottom_up: Vec<u32> = order.iter().map(|&n| node_id[n as usize] as u32).collect();
+    bottom_up.sort_unstable_by_key(|&id| order[id as usize]);
+    drop(nodes);
+    moments::fill(
+        data,
+        ncols,
+        &labels,
+        params.connectivity,
+        &mut structures,
+        &bottom_up,
+    );
+
+    let mut graph: DiGraph<u32, ()> = DiGraph::with_capacity(structures.len(), structures.len());
+    for s in &structures {
+        graph.add_node(s.id);
+    }
+    for s in &structures {
+        if let Some(p) = s.parent {
+            graph.add_edge(
+                NodeIndex::new(p as usize),
+                NodeIndex::new(s.id as usize),
+                (),
+            );
+        }
+    }
+    let labels = Array2::from_shape_vec((nrows, ncols), labels).expect("label shape");
+    progress(1.0);
+    Ok(Hierarchy {
+        structures,
+        labels,
+        graph,
+        params: *params,
+    })
+}
+
+/// Visits the pixels in `keys` order, merging components and simplifying on the fly. Writes
+/// the open node of each pixel's component at the time it was visited into `labels`.
+fn sweep(
+    data: &[f32],
+    ncols: usize,
+    keys: &[u64],
+    params: &Params,
+    labels: &mut [i32],
+    progress: &dyn Fn(f64),
+) -> Vec<Node> {
+    let npix = data.len();
+    let nrows = npix / ncols;
+    let mut uf: Vec<u32> = vec![0; npix];
+    let mut nodes: Vec<Node> = Vec::new();
+    let eight = matches!(params.connectivity, super::Connectivity::Eight);
+    let min_area = params.min_area;
+    let prominence = params.prominence;
+    let nkeys = keys.len();
+    for (step, &key) in keys.iter().enumerate() {
+        if step % PROGRESS_STEP == 0 && step > 0 {
+            progress(0.3 + 0.6 * step as f64 / nkeys as f64);
+        }
+        let p = key as u32 as usize;
+        let v = data[p];
+        let x = p % ncols;
+        let y = p / ncols;
+        // Distinct components among the neighbours visited before p.
+        let mut roots = [0u32; 8];
+        let mut k = 0usize;
+        let mut visit = |q: usize, uf: &mut Vec<u32>| {
+            let vq = data[q];
+            if vq > v || (vq == v && q < p) {
+                let r = find(uf, q as u32);
+                if !roots[..k].contains(&r) {
+                    roots[k] = r;
+                    k += 1;
+                }
+            }
+        };
+        let (left, right, up, down) = (x > 0, x + 1 < ncols, y > 0, y + 1 < nrows);
+        if up {
+            if eight && left {
+                visit(p - ncols - 1, &mut uf);
+            }
+            visit(p - ncols, &mut uf);
+            if eight && right {
+                visit(p - ncols + 1, &mut uf);
+            }
+        }
+        if left {
+            visit(p - 1, &mut uf);
+        }
+        if right {
+            visit(p + 1, &mut uf);
+        }
+        if down {
+            if eight && left {
+                visit(p + ncols - 1, &mut uf);
+            }
+            visit(p + ncols, &mut uf);
+            if eight && right {
+                visit(p + ncols + 1, &mut uf);
+            }
+        }
+        match k {
+            0 => {
+                let n = nodes.len() as u32;
+                nodes.push(Node {
+                    alias: n,
+                    peak: p as u32,
+                    peak_val: v,
+                    area: 1,
+                    parent: NONE,
+                    level: f32::NAN,
+                    merge: f32::NAN,
+                });
+                uf[p] = ROOT | n;
+                labels[p] = n as i32;
+            }
+            1 => {
+                let r = roots[0];
+                let n = uf[r as usize] & !ROOT;
+                nodes[n as usize].area += 1;
+                uf[p] = r;
+                labels[p] = n as i32;
+            }
+            _ => {
+                // Union by size: the largest component's root stays the root.
+                let mut big = roots[0];
+                let mut big_area = 0u32;
+                for &r in &roots[..k] {
+                    let a = nodes[(uf[r as usize] & !ROOT) as usize].area;
+                    if a > big_area {
+                        big_area = a;
+                        big = r;
+                    }
+                }
+                let t = merge(&uf, &mut nodes, &roots[..k], v, min_area, prominence);
+                for &r in &roots[..k] {
+                    if r != big {
+                        uf[r as usize] = big;
+                    }
+                }
+                uf[big as usize] = ROOT | t;
+                uf[p] = big;
+                labels[p] = t as i32;
+            }
+        }
+    }
+    nodes
+}
+
+/// Joins the components rooted at `roots` at pixel value `v`; returns the open node of the
+/// joined component (with its area counting the new pixel). Areas of the old open nodes are
+/// left untouched for the caller's union by size.
+fn merge(
+    uf: &[u32],
+    nodes: &mut Vec<Node>,
+    roots: &[u32],
+    v: f32,
+    min_area: usize,
+    prominence: f64,
+) -> u32 {
+    let mut open = [0u32; 8];
+    let mut sig = [false; 8];
+    let k = roots.len();
+    let mut nsig = 0;
+    let mut total: u32 = 1;
+    let mut best = 0usize; // index of the best peak among all
+    let mut best_sig: Option<usize> = None; // best peak among significant
+    let mut best_same: Option<usize> = None; // best peak among same-level branches
+    for i in 0..k {
+        let n = uf[roots[i] as usize] & !ROOT;
+        open[i] = n;
+        let nd = &nodes[n as usize];
+        total += nd.area;
+        let pv = nd.peak_val;
+        sig[i] = nd.area as usize >= min_area && pv > v && pv as f64 - v as f64 >= prominence;
+        let better = |j: usize, nodes: &Vec<Node>| {
+            let o = &nodes[open[j] as usize];
+            before(pv, nd.peak, o.peak_val, o.peak)
+        };
+        if i > 0 && better(best, nodes) {
+            best = i;
+        }
+        if sig[i] {
+            nsig += 1;
+            if best_sig.is_none_or(|j| better(j, nodes)) {
+                best_sig = Some(i);
+            }
+            if nd.level == v && best_same.is_none_or(|j| better(j, nodes)) {
+                best_same = Some(i);
+            }
+        }
+    }
+    let top = nodes[open[best] as usize];
+    let t = if nsig >= 2 {
+        let t = match best_same {
+            Some(i) => open[i],
+            None => {
+                let t = nodes.len() as u32;
+                nodes.push(Node {
+                    alias: t,
+                    peak: top.peak,
+                    peak_val: top.peak_val,
+                    area: 0,
+                    parent: NONE,
+                    level: v,
+                    merge: f32::NAN,
+                });
+                t
+            }
+        };
+        for i in 0..k {
+            let n = open[i];
+            if n == t {
+                continue;
+            }
+            let nd = &mut nodes[n as usize];
+            if sig[i] && nd.level != v {
+                nd.parent = t;
+                nd.merge = v;
+            } else {
+                nd.alias = t;
+            }
+        }
+        t
+    } else {
+        let t = match best_sig {
+            Some(i) => open[i],
+            None => open[best],
+        };
+        for &n in &open[..k] {
+            if n != t {
+                nodes[n as usize].alias = t;
+            }
+        }
+        t
+    };
+    let nd = &mut nodes[t as usize];
+    nd.area = total;
+    nd.peak = top.peak;
+    nd.peak_val = top.peak_val;
+    t
+}

@@ -1,0 +1,250 @@
+//! The hierarchy engine: finds the peaks of a map and how they nest, as a simplified
+//! component tree of its upper level sets.
+//!
+//! Owns [`build`] (map -> [`Hierarchy`]), the per-structure moment sums ([`Moments`]) and the
+//! optional watershed growth of leaf footprints ([`grow_leaves`]). It knows nothing of files,
+//! units or world coordinates.
+//!
+//! # Vocabulary
+//! A *structure* is any node of the hierarchy; a *leaf* has no children (a core candidate); a
+//! *branch* has two or more children; a *root* has no parent.
+//!
+//! # Method
+//! The component tree (max-tree) of the upper level sets `{map >= t}` is built by union-find
+//! over flat arrays, visiting pixels from the highest down (Najman & Couprie 2006, IEEE TIP 15,
+//! 3531; Berger et al. 2007, ICIP; review by Carlinet & Geraud 2014, IEEE TIP 23, 3885). The
+//! pixel order comes from one parallel sort of 64-bit keys (order-preserving 32-bit image of the
+//! value, then the linear index). The tree is simplified *while* components merge, so the full
+//! max-tree is never stored.
+//!
+//! # Exact rules
+//! * **Pixels considered.** A pixel takes part iff its value is not NaN and `value >= floor`.
+//!   Other pixels belong to no structure (label -1). `-0.0` counts as `+0.0`.
+//! * **Order and ties.** Pixels are visited in a strict total order: higher value first; among
+//!   equal values, lower linear index (`row * ncols + col`) first. A pixel `q` is "above" `p`
+//!   iff it comes earlier in this order. Every choice below that needs a winner uses it, so
+//!   results never depend on the thread count or scheduling.
+//! * **Peak.** The peak of a set of pixels is its first pixel in that order: the highest
+//!   value, and among equal highest values the lowest linear index. On a flat top (plateau)
+//!   the peak is the plateau pixel with the lowest linear index.
+//! * **Merge test.** When pixel `p` of value `v` joins two or more components, each component
+//!   `C` (the pixels above `p` connected to it without `p`) is *significant* iff
+//!   `peak(C) - v >= prominence` **and** `peak(C) > v` **and** `area(C) >= min_area`, where
+//!   `area(C)` counts the pixels of `C` (all strictly above `p` in the order). The strict
+//!   `peak(C) > v` keeps a plateau one structure even with `prominence = 0`: pieces of one
+//!   flat zone that meet at their own level are never separate peaks.
+//!   - two or more significant components: each one's structure is closed with
+//!     `merge_level = v` and becomes a child of a branch that starts at `p`; the weak
+//!     components' pixels become the branch's own pixels;
+//!   - exactly one significant component: its structure simply continues and the weak
+//!     components' pixels join it (they are *absorbed* into the neighbour they meet);
+//!   - none: the pieces join into one component that keeps the highest peak and is tested
+//!     again at its next merge.
+//! * **Plateau branches.** If, among the significant components at level `v`, some already
+//!   carry a branch that started at exactly the value `v` (several merges on one flat level),
+//!   the other significant structures join that branch (the one whose peak comes first) as
+//!   further children, and other such same-level branches are fused into it. Hence all
+//!   children of a branch have `merge_level` equal to the value where the branch starts.
+//! * **Collapse.** A structure never has exactly one child: a component whose only partners
+//!   at a merge are weak continues as the *same* structure (same id, same peak) below that
+//!   level. So "a node with one surviving child" is the child itself, continued down to the
+//!   next level where it meets another significant structure or to the end of its component.
+//! * **Roots.** When all pixels have been visited, each remaining component is a root iff
+//!   `peak - floor >= prominence` and `area >= min_area` (it meets nothing, so the floor is
+//!   its reference level; no strict test, so with `prominence = 0` and `min_area = 1` the
+//!   roots are exactly the connected components of `{map >= floor}`). A component failing
+//!   this test is dropped: its pixels get label -1. A component holding any accepted
+//!   structure always passes. A root's `merge_level` is `None`.
+//! * **Pixels of a structure.** A leaf's pixels are its component down to its merge level
+//!   (its own pixels plus those of the weak peaks it absorbed). A branch's pixels are its
+//!   descendants' pixels plus its own: the pixels that joined below the level where it starts
+//!   and those of weak pieces absorbed into it (which may lie above that level, for instance
+//!   a narrow spike failing `min_area`). `labels` gives, for each pixel, the smallest
+//!   structure containing it.
+//! * **Ids.** Structures are numbered 0.. in the order of their peaks (the pixel order above);
+//!   a branch shares its peak with one of its descendants and comes before it (ancestors
+//!   first). So id 0 is the root holding the highest pixel.
+//!
+//! # Memory
+//! Besides the map: 8 bytes per considered pixel for the sorted keys, 4 bytes per pixel for
+//! the union-find forest and the 4-byte label array that is returned, plus 24 bytes per
+//! candidate peak (regional maximum) met during the sweep. Moment sums are gathered after the
+//! sweep, from the label map, for the accepted structures only (so candidate peaks that end
+//! up absorbed never carry sums).
+
+mod engine;
+mod grow;
+mod moments;
+
+use ndarray::Array2;
+use petgraph::graph::DiGraph;
+use std::fmt;
+
+pub use engine::{build, build_with_progress};
+pub use grow::grow_leaves;
+pub use moments::Moments;
+
+/// Which pixels touch: 4 (edges) or 8 (edges and corners).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Connectivity {
+    /// Pixels sharing an edge.
+    Four,
+    /// Pixels sharing an edge or a corner.
+    Eight,
+}
+
+impl Connectivity {
+    /// The (row, column) offsets of the neighbours.
+    pub fn offsets(self) -> &'static [(isize, isize)] {
+        const FOUR: [(isize, isize); 4] = [(-1, 0), (0, -1), (0, 1), (1, 0)];
+        const EIGHT: [(isize, isize); 8] = [
+            (-1, -1),
+            (-1, 0),
+            (-1, 1),
+            (0, -1),
+            (0, 1),
+            (1, -1),
+            (1, 0),
+            (1, 1),
+        ];
+        match self {
+            Connectivity::Four => &FOUR,
+            Connectivity::Eight => &EIGHT,
+        }
+    }
+}
+
+/// Thresholds of the hierarchy.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Params {
+    /// Lowest level considered: pixels below it belong to nothing.
+    pub floor: f64,
+    /// How far a peak must rise above the level where it meets a neighbouring structure.
+    pub prominence: f64,
+    /// Least number of pixels of a leaf (its pixels above its merge level).
+    pub min_area: usize,
+    /// Pixel adjacency.
+    pub connectivity: Connectivity,
+}
+
+/// One node of the hierarchy.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Structure {
+    /// Index in [`Hierarchy::structures`] (and graph node index).
+    pub id: u32,
+    /// The smallest structure strictly containing this one.
+    pub parent: Option<u32>,
+    /// Children, in increasing id.
+    pub children: Vec<u32>,
+    /// Highest value.
+    pub peak_value: f64,
+    /// Column of the peak.
+    pub peak_x: usize,
+    /// Row of the peak.
+    pub peak_y: usize,
+    /// Value of the pixel where this structure joins its parent (the level where the parent
+    /// branch starts); `None` for roots, whose reference level is the floor.
+    pub merge_level: Option<f64>,
+    /// Lowest value among its pixels (descendants included).
+    pub min_value: f64,
+    /// Number of pixels, descendants included.
+    pub npix: u64,
+    /// Number of pixels whose smallest structure is this one.
+    pub npix_own: u64,
+    /// Moment sums over all its pixels, descendants included.
+    pub sums: Moments,
+    /// Number of ancestors (0 for roots).
+    pub depth: u32,
+    /// Whether one of its pixels lies on the map border.
+    pub touches_edge: bool,
+    /// Whether one of its pixels has a missing (NaN) neighbour.
+    pub touches_missing: bool,
+}
+
+impl Structure {
+    /// Whether it has no children.
+    pub fn is_leaf(&self) -> bool {
+        self.children.is_empty()
+    }
+}
+
+/// The simplified component tree of a map.
+#[derive(Debug, Clone)]
+pub struct Hierarchy {
+    /// All structures, indexed by id.
+    pub structures: Vec<Structure>,
+    /// Smallest structure containing each pixel, -1 for none; same shape as the map.
+    pub labels: Array2<i32>,
+    /// Parent -> child edges; node index `i` holds structure id `i`.
+    pub graph: DiGraph<u32, ()>,
+    /// The thresholds used.
+    pub params: Params,
+}
+
+impl Hierarchy {
+    /// Ids of the leaves, increasing.
+    pub fn leaves(&self) -> Vec<u32> {
+        self.structures
+            .iter()
+            .filter(|s| s.is_leaf())
+            .map(|s| s.id)
+            .collect()
+    }
+
+    /// Ids of the roots, increasing.
+    pub fn roots(&self) -> Vec<u32> {
+        self.structures
+            .iter()
+            .filter(|s| s.parent.is_none())
+            .map(|s| s.id)
+            .collect()
+    }
+}
+
+/// Why a hierarchy cannot be built.
+#[derive(Debug, Clone, PartialEq)]
+pub enum HierarchyError {
+    /// The prominence is negative or not a number.
+    BadProminence(f64),
+    /// The floor is not a number.
+    BadFloor,
+    /// `min_area` exceeds the number of pixels.
+    MinAreaTooLarge { min_area: usize, npix: usize },
+    /// The floor lies above every pixel.
+    FloorAboveMaximum { floor: f64, max: f64 },
+    /// The map has no pixel that is not missing.
+    NoValidPixels,
+    /// The map has more pixels than the engine's 31-bit indices can hold.
+    MapTooLarge(usize),
+}
+
+impl fmt::Display for HierarchyError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            HierarchyError::BadProminence(p) => {
+                write!(f, "the prominence must be a non-negative number, not {p}")
+            }
+            HierarchyError::BadFloor => write!(f, "the floor must be a number, not NaN"),
+            HierarchyError::MinAreaTooLarge { min_area, npix } => write!(
+                f,
+                "the minimum area of {min_area} pixels is larger than the map's {npix} pixels"
+            ),
+            HierarchyError::FloorAboveMaximum { floor, max } => write!(
+                f,
+                "the floor {floor} lies above the map's highest value {max}, so nothing is left"
+            ),
+            HierarchyError::NoValidPixels => {
+                write!(f, "the map has no pixel with a value (all are missing)")
+            }
+            HierarchyError::MapTooLarge(n) => write!(
+                f,
+                "the map has {n} pixels, more than the 2^31 - 1 the hierarchy engine supports"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for HierarchyError {}
+
+#[cfg(test)]
+mod tests;

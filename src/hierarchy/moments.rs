@@ -1,0 +1,211 @@
+//! Moment sums of a structure's pixels, gathered from the label map after the sweep.
+
+use super::{Connectivity, Structure};
+use rayon::prelude::*;
+
+/// Raw sums over a set of pixels with values `v` at column `x` and row `y` (pixel centres at
+/// integer coordinates, 0-based). Weighted sums use the value as weight.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Moments {
+    /// Number of pixels.
+    pub n: u64,
+    /// Sum of v.
+    pub sum: f64,
+    /// Sum of v^2.
+    pub sum2: f64,
+    /// Sum of v x.
+    pub sx: f64,
+    /// Sum of v y.
+    pub sy: f64,
+    /// Sum of v x^2.
+    pub sxx: f64,
+    /// Sum of v y^2.
+    pub syy: f64,
+    /// Sum of v x y.
+    pub sxy: f64,
+    /// Sum of x.
+    pub ux: f64,
+    /// Sum of y.
+    pub uy: f64,
+    /// Sum of x^2.
+    pub uxx: f64,
+    /// Sum of y^2.
+    pub uyy: f64,
+    /// Sum of x y.
+    pub uxy: f64,
+}
+
+impl Moments {
+    /// Adds one pixel.
+    #[inline]
+    pub fn add(&mut self, x: f64, y: f64, v: f64) {
+        self.n += 1;
+        self.sum += v;
+        self.sum2 += v * v;
+        self.sx += v * x;
+        self.sy += v * y;
+        self.sxx += v * x * x;
+        self.syy += v * y * y;
+        self.sxy += v * x * y;
+        self.ux += x;
+        self.uy += y;
+        self.uxx += x * x;
+        self.uyy += y * y;
+        self.uxy += x * y;
+    }
+
+    /// Adds the sums of another set of pixels.
+    pub fn merge(&mut self, o: &Moments) {
+        self.n += o.n;
+        self.sum += o.sum;
+        self.sum2 += o.sum2;
+        self.sx += o.sx;
+        self.sy += o.sy;
+        self.sxx += o.sxx;
+        self.syy += o.syy;
+        self.sxy += o.sxy;
+        self.ux += o.ux;
+        self.uy += o.uy;
+        self.uxx += o.uxx;
+        self.uyy += o.uyy;
+        self.uxy += o.uxy;
+    }
+
+    /// Unweighted centroid (x, y).
+    pub fn centroid(&self) -> (f64, f64) {
+        let n = self.n as f64;
+        (self.ux / n, self.uy / n)
+    }
+
+    /// Value-weighted centroid (x, y).
+    pub fn weighted_centroid(&self) -> (f64, f64) {
+        (self.sx / self.sum, self.sy / self.sum)
+    }
+}
+
+/// What one structure gathers from its own pixels.
+#[derive(Clone, Copy)]
+struct Own {
+    m: Moments,
+    min: f32,
+    edge: bool,
+    missing: bool,
+}
+
+const EMPTY: Own = Own {
+    m: Moments {
+        n: 0,
+        sum: 0.0,
+        sum2: 0.0,
+        sx: 0.0,
+        sy: 0.0,
+        sxx: 0.0,
+        syy: 0.0,
+        sxy: 0.0,
+        ux: 0.0,
+        uy: 0.0,
+        uxx: 0.0,
+        uyy: 0.0,
+        uxy: 0.0,
+    },
+    min: f32::INFINITY,
+    edge: false,
+    missing: false,
+};
+
+/// Fills `npix`, `npix_own`, `sums`, `min_value`, `touches_edge` and `touches_missing` of
+/// every structure from the final labels. `bottom_up` lists the ids so that every child comes
+/// before its parent.
+///
+/// Rows are cut into blocks whose number depends only on the map size and the number of
+/// structures (never on the thread count), each block is summed on its own and the blocks are
+/// added in row order, so the floating-point sums are identical for any thread count.
+pub(super) fn fill(
+    map: &[f32],
+    ncols: usize,
+    labels: &[i32],
+    conn: Connectivity,
+    structures: &mut [Structure],
+    bottom_up: &[u32],
+) {
+    let ns = structures.len();
+    if ns == 0 {
+        return;
+    }
+    let nrows = labels.len() / ncols;
+    let npix = labels.len();
+    let nblocks = (npix / (ns * 64)).clamp(1, 32).min(nrows.max(1));
+    let rows_per = nrows.div_ceil(nblocks);
+    let offs = conn.offsets();
+    let blocks: Vec<Vec<Own>> = (0..nblocks)
+        .into_par_iter()
+        .map(|b| {
+            let mut acc = vec![EMPTY; ns];
+            let r0 = b * rows_per;
+            let r1 = ((b + 1) * rows_per).min(nrows);
+            for y in r0..r1 {
+                for x in 0..ncols {
+                    let p = y * ncols + x;
+                    let l = labels[p];
+                    if l < 0 {
+                        continue;
+                    }
+                    let v = map[p];
+                    let a = &mut acc[l as usize];
+                    a.m.add(x as f64, y as f64, v as f64);
+                    if v < a.min {
+                        a.min = v;
+                    }
+                    if x == 0 || y == 0 || x + 1 == ncols || y + 1 == nrows {
+                        a.edge = true;
+                    }
+                    if !a.missing {
+                        for &(dy, dx) in offs {
+                            let yy = y as isize + dy;
+                            let xx = x as isize + dx;
+                            if yy >= 0
+                                && xx >= 0
+                                && (yy as usize) < nrows
+                                && (xx as usize) < ncols
+                                && map[yy as usize * ncols + xx as usize].is_nan()
+                            {
+                                a.missing = true;
+                                break;
+                            }
+                        }
+                    }
+                }
+            }
+            acc
+        })
+        .collect();
+    let mut total = vec![EMPTY; ns];
+    for block in &blocks {
+        for (t, o) in total.iter_mut().zip(block) {
+            t.m.merge(&o.m);
+            t.min = t.min.min(o.min);
+            t.edge |= o.edge;
+            t.missing |= o.missing;
+        }
+    }
+    drop(blocks);
+    for s in structures.iter_mut() {
+        s.npix_own = total[s.id as usize].m.n;
+    }
+    for &id in bottom_up {
+        let own = total[id as usize];
+        let s = &mut structures[id as usize];
+        s.sums = own.m;
+        s.npix = own.m.n;
+        s.min_value = own.min as f64;
+        s.touches_edge = own.edge;
+        s.touches_missing = own.missing;
+        if let Some(p) = s.parent {
+            let t = &mut total[p as usize];
+            t.m.merge(&own.m);
+            t.min = t.min.min(own.min);
+            t.edge |= own.edge;
+            t.missing |= own.missing;
+        }
+    }
+}

@@ -1,0 +1,229 @@
+//! Unit tests on small hand-made maps.
+
+use super::*;
+use ndarray::{Array2, array};
+
+fn params(floor: f64, prominence: f64, min_area: usize, conn: Connectivity) -> Params {
+    Params {
+        floor,
+        prominence,
+        min_area,
+        connectivity: conn,
+    }
+}
+
+fn row(v: &[f32]) -> Array2<f32> {
+    Array2::from_shape_vec((1, v.len()), v.to_vec()).unwrap()
+}
+
+#[test]
+fn two_peaks_and_a_saddle() {
+    let m = row(&[1.0, 5.0, 2.0, 4.0, 1.0]);
+    let h = build(m.view(), &params(0.0, 1.0, 1, Connectivity::Four)).unwrap();
+    assert_eq!(h.structures.len(), 3);
+    // id 0: root (peak 5, ancestors first), id 1: leaf at 5, id 2: leaf at 4.
+    let r = &h.structures[0];
+    assert_eq!(
+        (r.parent, r.children.clone(), r.peak_x, r.depth),
+        (None, vec![1, 2], 1, 0)
+    );
+    assert_eq!(r.merge_level, None);
+    assert_eq!(r.npix, 5);
+    assert_eq!(r.npix_own, 3);
+    assert_eq!(r.min_value, 1.0);
+    let a = &h.structures[1];
+    assert_eq!(
+        (a.parent, a.peak_x, a.npix, a.merge_level),
+        (Some(0), 1, 1, Some(2.0))
+    );
+    let b = &h.structures[2];
+    assert_eq!(
+        (b.parent, b.peak_x, b.npix, b.merge_level),
+        (Some(0), 3, 1, Some(2.0))
+    );
+    assert_eq!(h.labels.row(0).to_vec(), vec![0, 1, 0, 2, 0]);
+    assert_eq!(h.graph.edge_count(), 2);
+    assert_eq!(h.leaves(), vec![1, 2]);
+    assert_eq!(h.roots(), vec![0]);
+}
+
+#[test]
+fn prominence_equal_to_the_drop_is_kept_and_above_it_is_absorbed() {
+    let m = row(&[1.0, 5.0, 2.0, 4.0, 1.0]);
+    let kept = build(m.view(), &params(0.0, 2.0, 1, Connectivity::Four)).unwrap();
+    assert_eq!(kept.leaves().len(), 2);
+    let gone = build(m.view(), &params(0.0, 2.5, 1, Connectivity::Four)).unwrap();
+    assert_eq!(gone.structures.len(), 1);
+    let s = &gone.structures[0];
+    assert!(s.is_leaf() && s.parent.is_none());
+    assert_eq!((s.peak_x, s.npix), (1, 5));
+    assert!(gone.labels.iter().all(|&l| l == 0));
+}
+
+#[test]
+fn min_area_absorbs_a_narrow_spike() {
+    // A one-pixel spike at x=1 beside a broad bump at x=3..5.
+    let m = row(&[0.0, 9.0, 1.0, 5.0, 6.0, 5.0, 0.0]);
+    let h = build(m.view(), &params(0.5, 1.0, 2, Connectivity::Four)).unwrap();
+    assert_eq!(h.structures.len(), 1);
+    let s = &h.structures[0];
+    // The spike is absorbed: the structure keeps the highest pixel as its peak.
+    assert_eq!((s.peak_x, s.npix), (1, 5));
+    assert_eq!(h.labels.row(0).to_vec(), vec![-1, 0, 0, 0, 0, 0, -1]);
+    let h1 = build(m.view(), &params(0.5, 1.0, 1, Connectivity::Four)).unwrap();
+    assert_eq!(h1.leaves().len(), 2);
+}
+
+#[test]
+fn a_plateau_met_from_two_sides_is_one_peak() {
+    let m = array![[5.0f32, 1.0, 5.0], [5.0, 5.0, 5.0]];
+    let h = build(m.view(), &params(0.0, 0.0, 1, Connectivity::Four)).unwrap();
+    assert_eq!(h.structures.len(), 1);
+    assert_eq!((h.structures[0].peak_x, h.structures[0].peak_y), (0, 0));
+    assert_eq!(h.structures[0].npix, 6);
+}
+
+#[test]
+fn three_peaks_meeting_on_one_level_share_one_branch() {
+    let m = row(&[9.0, 1.0, 8.0, 1.0, 7.0]);
+    let h = build(m.view(), &params(0.0, 0.5, 1, Connectivity::Four)).unwrap();
+    assert_eq!(h.structures.len(), 4);
+    assert_eq!(h.structures[0].children, vec![1, 2, 3]);
+    for c in 1..4 {
+        assert_eq!(h.structures[c].merge_level, Some(1.0));
+        assert_eq!(h.structures[c].depth, 1);
+    }
+}
+
+#[test]
+fn missing_pixels_and_floor_split_roots() {
+    let m = array![[3.0f32, f32::NAN, 4.0], [2.0, f32::NAN, 0.5]];
+    let h = build(m.view(), &params(1.0, 0.0, 1, Connectivity::Eight)).unwrap();
+    assert_eq!(h.roots().len(), 2);
+    assert_eq!(h.labels, array![[1, -1, 0], [1, -1, -1]]);
+    assert!(
+        h.structures
+            .iter()
+            .all(|s| s.touches_missing && s.touches_edge)
+    );
+}
+
+#[test]
+fn connectivity_decides_whether_corners_join() {
+    let m = array![[2.0f32, 0.0], [0.0, 3.0]];
+    let four = build(m.view(), &params(1.0, 0.0, 1, Connectivity::Four)).unwrap();
+    assert_eq!(four.roots().len(), 2);
+    let eight = build(m.view(), &params(1.0, 0.0, 1, Connectivity::Eight)).unwrap();
+    assert_eq!(eight.roots().len(), 1);
+    assert_eq!(eight.structures[0].npix, 2);
+}
+
+#[test]
+fn moments_match_a_direct_sum() {
+    let m = array![[1.0f32, 2.0, 0.0], [3.0, 4.0, 0.5], [0.2, 6.0, 1.5]];
+    let h = build(m.view(), &params(0.4, 0.0, 1, Connectivity::Four)).unwrap();
+    let mut want = Moments::default();
+    for ((y, x), &v) in m.indexed_iter() {
+        if v as f64 >= 0.4 {
+            want.add(x as f64, y as f64, v as f64);
+        }
+    }
+    let roots = h.roots();
+    assert_eq!(roots.len(), 1);
+    let got = h.structures[roots[0] as usize].sums;
+    assert_eq!(got.n, want.n);
+    for (a, b) in [
+        (got.sum, want.sum),
+        (got.sum2, want.sum2),
+        (got.sx, want.sx),
+        (got.syy, want.syy),
+        (got.sxy, want.sxy),
+        (got.uxx, want.uxx),
+        (got.uxy, want.uxy),
+    ] {
+        assert!((a - b).abs() <= 1e-12 * b.abs().max(1.0), "{a} vs {b}");
+    }
+}
+
+#[test]
+fn nothing_left_gives_an_empty_hierarchy() {
+    let m = row(&[1.0, 2.0, 1.5]);
+    let h = build(m.view(), &params(0.0, 10.0, 1, Connectivity::Four)).unwrap();
+    assert!(h.structures.is_empty());
+    assert!(h.labels.iter().all(|&l| l == -1));
+    assert_eq!(h.graph.node_count(), 0);
+}
+
+#[test]
+fn bad_thresholds_are_errors_with_one_sentence() {
+    let m = row(&[1.0, 2.0, f32::NAN]);
+    let p = params(0.0, -1.0, 1, Connectivity::Four);
+    let e = build(m.view(), &p).unwrap_err();
+    assert_eq!(e, HierarchyError::BadProminence(-1.0));
+    assert!(e.to_string().contains("non-negative"));
+    let e = build(m.view(), &params(0.0, 0.0, 4, Connectivity::Four)).unwrap_err();
+    assert_eq!(
+        e,
+        HierarchyError::MinAreaTooLarge {
+            min_area: 4,
+            npix: 3
+        }
+    );
+    let e = build(m.view(), &params(2.5, 0.0, 1, Connectivity::Four)).unwrap_err();
+    assert_eq!(
+        e,
+        HierarchyError::FloorAboveMaximum {
+            floor: 2.5,
+            max: 2.0
+        }
+    );
+    let nan = row(&[f32::NAN, f32::NAN]);
+    let e = build(nan.view(), &params(0.0, 0.0, 1, Connectivity::Four)).unwrap_err();
+    assert_eq!(e, HierarchyError::NoValidPixels);
+    let e = build(m.view(), &params(f64::NAN, 0.0, 1, Connectivity::Four)).unwrap_err();
+    assert_eq!(e, HierarchyError::BadFloor);
+}
+
+#[test]
+fn progress_runs_from_zero_to_one() {
+    let m = row(&[1.0, 5.0, 2.0, 4.0, 1.0]);
+    let seen = std::cell::RefCell::new(Vec::new());
+    build_with_progress(m.view(), &params(0.0, 1.0, 1, Connectivity::Four), &|f| {
+        seen.borrow_mut().push(f)
+    })
+    .unwrap();
+    let seen = seen.into_inner();
+    assert_eq!(seen.first(), Some(&0.0));
+    assert_eq!(seen.last(), Some(&1.0));
+    assert!(seen.windows(2).all(|w| w[0] <= w[1]));
+}
+
+#[test]
+fn non_contiguous_views_give_the_same_result() {
+    let m = array![[1.0f32, 5.0, 2.0], [4.0, 1.0, 3.0], [0.0, 2.0, 6.0]];
+    let t = m.t().to_owned();
+    let p = params(0.0, 0.5, 1, Connectivity::Four);
+    let a = build(m.t(), &p).unwrap();
+    let b = build(t.view(), &p).unwrap();
+    assert_eq!(a.labels, b.labels);
+    assert_eq!(a.structures, b.structures);
+}
+
+#[test]
+fn grown_leaves_cover_everything_above_the_floor() {
+    let m = row(&[1.0, 5.0, 2.0, 4.0, 1.0, 0.0, 3.0]);
+    let h = build(m.view(), &params(0.5, 1.0, 1, Connectivity::Four)).unwrap();
+    let g = grow_leaves(m.view(), &h, 0.5);
+    let leaf_at = |x: usize| h.labels[(0, x)];
+    // The saddle pixel (value 2) is reached first from the higher side's queue order.
+    assert_eq!(g.row(0).to_vec()[..2], [leaf_at(1), leaf_at(1)]);
+    assert_eq!(g[(0, 3)], leaf_at(3));
+    assert_eq!(g[(0, 4)], leaf_at(3));
+    assert_eq!(g[(0, 5)], -1);
+    assert_eq!(g[(0, 6)], leaf_at(6));
+    assert!(
+        g.iter()
+            .zip(m.iter())
+            .all(|(&l, &v)| (l >= 0) == (v >= 0.5))
+    );
+}
