@@ -5,4 +5,7 @@
 //! measurements -> physics -> writers and figures. Each module's doc comment says what it owns
 //! and which papers it implements.
 
+pub mod fits_write;
 pub mod header;
+pub mod physics;
+pub mod synth;

@@ -1,0 +1,1 @@
+//! Synthetic maps (in progress).
