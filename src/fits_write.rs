@@ -92,6 +92,14 @@ fn write_image<T: WriteImage + Copy>(
         let hdu = f
             .primary_hdu()
             .map_err(|e| fail("opening the primary HDU", &e))?;
+        // The fitsio crate names the primary HDU EXTNAME = '_PRIMARY'; drop that card so the
+        // file holds only the caller's header (status 202 = keyword not found is fine).
+        let mut status = 0;
+        let extname = c"EXTNAME";
+        // SAFETY: the pointer comes from an open FitsFile; `extname` is NUL-terminated.
+        unsafe {
+            fitsio::sys::ffdkey(f.as_raw(), extname.as_ptr(), &mut status);
+        }
         for (card, image) in header.cards().iter().zip(header.to_card_images()) {
             if is_structural(&card.key) {
                 continue;
@@ -155,6 +163,10 @@ mod tests {
         assert_eq!(
             hdu.read_key::<String>(&mut f, "CTYPE1").unwrap(),
             "RA---TAN"
+        );
+        assert!(
+            hdu.read_key::<String>(&mut f, "EXTNAME").is_err(),
+            "no EXTNAME added"
         );
         assert_eq!(hdu.read_key::<f64>(&mut f, "CDELT1").unwrap(), -1.0 / 720.0);
 

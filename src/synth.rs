@@ -365,9 +365,11 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
         check_profile(&c.profile)?;
     }
     if let Some(p) = &spec.population {
-        if !(pos(p.mass_min_msun) && p.mass_max_msun >= p.mass_min_msun)
-            || !(pos(p.radius_min_pc) && p.radius_max_pc >= p.radius_min_pc)
-        {
+        let ranges_ok = pos(p.mass_min_msun)
+            && p.mass_max_msun >= p.mass_min_msun
+            && pos(p.radius_min_pc)
+            && p.radius_max_pc >= p.radius_min_pc;
+        if !ranges_ok {
             return bad("core population needs 0 < min <= max for mass and radius".into());
         }
         if !(p.margin_px >= 0.0
@@ -890,16 +892,16 @@ fn make_header(spec: &SynthSpec, unit: &str) -> Header {
         key: "COMMENT".into(),
         value: None,
         comment: format!(
-            " synthetic map made by cairn {}; spec (JSON):",
+            "synthetic map made by cairn {}; spec (JSON):",
             env!("CARGO_PKG_VERSION")
         ),
     });
     let chars: Vec<char> = json.chars().collect();
-    for chunk in chars.chunks(70) {
+    for chunk in chars.chunks(72) {
         cards.push(Card {
             key: "COMMENT".into(),
             value: None,
-            comment: format!(" {}", chunk.iter().collect::<String>()),
+            comment: chunk.iter().collect::<String>(),
         });
     }
     Header::from_cards(cards)
