@@ -129,6 +129,12 @@ fn injected_mass_is_exact_up_to_float_rounding() {
             tol < 1e-5 * truth.mass_msun,
             "bound {tol} is tight enough to mean something"
         );
+        eprintln!(
+            "core {}: relative mass error {:.2e} (bound {:.2e})",
+            truth.id,
+            (mass - truth.mass_msun).abs() / truth.mass_msun,
+            tol / truth.mass_msun
+        );
     }
 }
 

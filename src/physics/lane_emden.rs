@@ -233,6 +233,11 @@ impl BonnorEbertProjection {
         }
     }
 
+    /// The projected profile of the critical sphere (xi_max = xi_crit).
+    pub fn critical() -> Self {
+        Self::new(LaneEmden::new(7.0, 1e-3).xi_crit())
+    }
+
     /// The truncation radius xi_max.
     pub fn xi_max(&self) -> f64 {
         self.xi_max
