@@ -56,8 +56,7 @@ impl DustOpacity {
 /// Optically thin modified blackbody intensity I_nu [W m^-2 Hz^-1 sr^-1] of an H2 column
 /// density `n_h2_m2` [m^-2] at frequency `nu_hz` and dust temperature `t_k`:
 ///
-/// I_nu = N(H2) mu_H2 m_H kappa_nu B_nu(T)   (Hildebrand 1983; Kauffmann et al. 2008, eq. A10
-/// rearranged).
+/// I_nu = N(H2) mu_H2 m_H kappa_nu B_nu(T)   (Hildebrand 1983; Kauffmann et al. 2008, appendix A).
 pub fn intensity_from_column(n_h2_m2: f64, nu_hz: f64, t_k: f64, opacity: &DustOpacity) -> f64 {
     n_h2_m2 * MU_H2 * M_H * opacity.kappa_si(nu_hz) * planck_nu(nu_hz, t_k)
 }
@@ -102,7 +101,7 @@ pub fn jeans_length(t_k: f64, n_h2_m3: f64) -> f64 {
 }
 
 /// Jeans mass M_J = (pi^(5/2) / 6) c_s^3 G^(-3/2) rho^(-1/2) [kg] (the mass of a sphere of
-/// diameter lambda_J; common practice, e.g. Stahler & Palla 2004, section 9.1), with the same
+/// diameter lambda_J; common practice, e.g. Stahler & Palla 2004, cited from memory), with the same
 /// conventions as [`jeans_length`].
 pub fn jeans_mass(t_k: f64, n_h2_m3: f64) -> f64 {
     let cs = sound_speed(t_k);

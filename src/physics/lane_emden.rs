@@ -1,7 +1,7 @@
 //! The isothermal Lane-Emden equation and the Bonnor-Ebert sphere.
 //!
 //! With rho = rho_c exp(-psi), r = xi (c_s^2 / (4 pi G rho_c))^(1/2), hydrostatic equilibrium
-//! of an isothermal self-gravitating gas reads (Chandrasekhar 1939, chapter IV, eq. 4.356)
+//! of an isothermal self-gravitating gas reads (Chandrasekhar 1939, chapter IV)
 //!
 //! psi'' + (2 / xi) psi' = exp(-psi),  psi(0) = psi'(0) = 0.
 //!
@@ -11,7 +11,7 @@
 //! where the neglected xi^10 term is below 1e-17. Values between nodes come from one partial
 //! Runge-Kutta step from the node below, so they keep fourth-order accuracy.
 //!
-//! Dimensionless mass (Bonnor 1956, eq. 2.6; the standard definition used since):
+//! Dimensionless mass (Bonnor 1956; the standard definition used since):
 //!
 //! m(xi) = (4 pi)^(-1/2) (rho / rho_c)^(1/2) xi^2 psi'(xi),
 //!

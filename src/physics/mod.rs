@@ -3,7 +3,7 @@
 //! the Jeans mass.
 //!
 //! Sources:
-//! - Physical constants: CODATA 2022 recommended values (Mohr et al. 2024); astronomical
+//! - Physical constants: CODATA 2022 recommended values; astronomical
 //!   constants: IAU 2012 Resolution B2 (astronomical unit) and IAU 2015 Resolutions B2/B3
 //!   (parsec definition, nominal solar mass parameter) — the releases astropy 8.0.2 uses by
 //!   default.
@@ -18,7 +18,8 @@
 //!   217), Bonnor (1956, MNRAS 116, 351).
 //! - Jeans mass and length: Jeans (1902); the form M_J = (pi^(5/2) / 6) c_s^3 G^(-3/2)
 //!   rho^(-1/2) is the mass of a sphere of diameter lambda_J = (pi c_s^2 / (G rho))^(1/2)
-//!   (common practice, e.g. Stahler & Palla 2004, *The Formation of Stars*, section 9.1).
+//!   (common practice; e.g. Stahler & Palla 2004, *The Formation of Stars*, chapter 9, cited
+//!   from memory).
 
 pub mod constants;
 pub mod dust;
