@@ -7,12 +7,15 @@
 
 pub mod angles;
 pub mod error;
+pub mod fits_write;
 pub mod header;
+pub mod hierarchy;
 pub mod inspect;
 pub mod map;
 pub mod noise;
 pub mod output;
+pub mod physics;
+pub mod synth;
 pub mod table;
 pub mod units;
 pub mod wcs;
-pub mod hierarchy;
