@@ -350,14 +350,14 @@ mod tests {
     #[test]
     fn formatted_cards_round_trip() {
         let mut h = Header::new();
-        h.set("CDELT1", Value::Float(-0.0013888888888888889), "deg");
+        h.set("CDELT1", Value::Float(-1.0 / 720.0), "deg");
         h.set("NAXIS1", Value::Int(512), "");
         h.set("BUNIT", Value::Str("MJy/sr".into()), "");
         h.set("PI", Value::Float(std::f64::consts::PI), "");
         let text: String = h.to_card_images().concat();
         assert!(h.to_card_images().iter().all(|c| c.len() == 80));
         let back = Header::parse(&text);
-        assert_eq!(back.get_f64("CDELT1"), Some(-0.0013888888888888889));
+        assert_eq!(back.get_f64("CDELT1"), Some(-1.0 / 720.0));
         assert_eq!(back.get_f64("PI"), Some(std::f64::consts::PI));
         assert_eq!(back.get_i64("NAXIS1"), Some(512));
         assert_eq!(back.get_str("BUNIT"), Some("MJy/sr"));

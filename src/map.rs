@@ -99,10 +99,8 @@ impl Beam {
     }
 
     fn check(&self) -> std::result::Result<(), String> {
-        if !(self.major_deg > 0.0 && self.minor_deg > 0.0)
-            || !self.major_deg.is_finite()
-            || !self.pa_deg.is_finite()
-        {
+        let positive = self.major_deg > 0.0 && self.minor_deg > 0.0;
+        if !positive || !self.major_deg.is_finite() || !self.pa_deg.is_finite() {
             return Err(format!(
                 "the beam must have positive, finite widths (major {} deg, minor {} deg)",
                 self.major_deg, self.minor_deg
@@ -820,10 +818,11 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
             Some(1e-6)
         } else if comment.contains("mm") {
             Some(1e-3)
-        } else if comment.contains("[m]") || comment.contains("metre") || comment.contains("meter")
+        } else if comment.contains("[m]")
+            || comment.contains("metre")
+            || comment.contains("meter")
+            || v < 0.01
         {
-            Some(1.0)
-        } else if v < 0.01 {
             Some(1.0)
         } else if v >= 1.0 {
             Some(1e-6)

@@ -19,17 +19,16 @@ pub const DEG: f64 = std::f64::consts::PI / 180.0;
 pub const ARCMIN: f64 = DEG / 60.0;
 /// One arcsecond in radians.
 pub const ARCSEC: f64 = DEG / 3600.0;
-/// The parsec in metres (IAU 2015 Resolution B2: 648000/pi au, au = 149597870700 m).
-pub const PARSEC: f64 = 648000.0 / std::f64::consts::PI * 149_597_870_700.0;
-/// The astronomical unit in metres (IAU 2012 Resolution B2).
-pub const AU: f64 = 149_597_870_700.0;
+/// The parsec in metres (from [`crate::physics::constants`]).
+pub const PARSEC: f64 = crate::physics::constants::PC;
+/// The astronomical unit in metres.
+pub const AU: f64 = crate::physics::constants::AU;
 /// The speed of light in m/s (exact, SI).
-pub const C_LIGHT: f64 = 299_792_458.0;
-/// The nominal solar mass in kg used by astropy 8.0.2 (IAU 2015 Resolution B3 with
-/// G from CODATA 2018: M_sun = GM_sun / G).
-pub const M_SUN: f64 = 1.988409870698051e30;
+pub const C_LIGHT: f64 = crate::physics::constants::C;
+/// The solar mass in kg, as astropy 8.0.2 defines it (see [`crate::physics::constants`]).
+pub const M_SUN: f64 = crate::physics::constants::M_SUN;
 /// One jansky in SI (W m^-2 Hz^-1).
-pub const JANSKY: f64 = 1e-26;
+pub const JANSKY: f64 = crate::physics::constants::JY;
 
 /// What a quantity measures.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -220,7 +219,7 @@ fn unit_table() -> &'static [(&'static str, Dimension, f64)] {
 
 /// Normalises the spelling of a unit: `^`, `**`, blanks and ` sr-1`-style powers.
 fn normalise_unit(u: &str) -> String {
-    let mut s = u.trim().replace("**", "").replace('^', "").replace(' ', "");
+    let mut s = u.trim().replace("**", "").replace(['^', ' '], "");
     for (from, to) in [
         ("cm2", "cm2"),
         ("sr-1", "/sr"),
