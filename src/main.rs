@@ -9,6 +9,7 @@ use cairn::error::{Error, Result};
 use cairn::inspect::{self, NoiseChoice};
 use cairn::map::{self, Beam, HduChoice, LoadOptions};
 use cairn::units::{self, Dimension, ExtinctionBand};
+use cairn::{fits_write, output, synth};
 
 /// Find dense cores and clumps in maps of molecular clouds, see how they nest, measure them.
 #[derive(Parser)]
@@ -25,6 +26,84 @@ struct Cli {
 enum Command {
     /// Say what a map is: shape, unit, sky frame, beam, wavelength, noise, suggested thresholds.
     Inspect(InspectArgs),
+    /// Make a synthetic map with known truth: turbulent background, cores, beam and noise.
+    Synth(SynthArgs),
+}
+
+#[derive(Args)]
+struct SynthArgs {
+    /// Output folder for NAME.fits, NAME-truth.csv and NAME-spec.json.
+    #[arg(short, long, value_name = "DIR")]
+    output: PathBuf,
+    /// Base name of the output files.
+    #[arg(long, default_value = "synth")]
+    name: String,
+    /// A full specification as JSON (as written to NAME-spec.json); other options then refine it.
+    #[arg(long, value_name = "FILE")]
+    spec: Option<PathBuf>,
+    /// Map size in pixels: `N` or `NXxNY`, such as 512 or 600x400 [default: 256].
+    #[arg(long, value_name = "N|NXxNY")]
+    size: Option<String>,
+    /// Pixel size, such as 6arcsec [default: 6arcsec].
+    #[arg(long, value_name = "ANGLE")]
+    pixel: Option<String>,
+    /// Map centre as `lon,lat` in degrees (invented positions) [default: 201.375,-31.625].
+    #[arg(long, value_name = "LON,LAT", allow_hyphen_values = true)]
+    centre: Option<String>,
+    /// Sky frame: icrs, fk5 or galactic [default: icrs].
+    #[arg(long, value_name = "FRAME")]
+    frame: Option<String>,
+    /// Distance of the invented cloud, such as 250pc [default: 250pc].
+    #[arg(long, value_name = "LENGTH")]
+    distance: Option<String>,
+    /// Beam FWHM, such as 18arcsec; 0arcsec for no smoothing [default: 18arcsec].
+    #[arg(long, value_name = "ANGLE")]
+    beam: Option<String>,
+    /// Mean column density of the log-normal background, such as 3e21cm-2 [default: 3e21cm-2].
+    #[arg(long, value_name = "COLUMN")]
+    background: Option<String>,
+    /// Width (standard deviation of ln N) of the background's log-normal distribution [default: 0.4].
+    #[arg(long, value_name = "SIGMA")]
+    background_width: Option<f64>,
+    /// Power-spectrum index of the background, P(k) ~ k^-INDEX [default: 3].
+    #[arg(long, value_name = "INDEX")]
+    background_index: Option<f64>,
+    /// No background: cores on an empty sky.
+    #[arg(long, conflicts_with_all = ["background", "background_width", "background_index"])]
+    no_background: bool,
+    /// Number of randomly placed cores to add.
+    #[arg(long, value_name = "N")]
+    cores: Option<usize>,
+    /// Core mass range, such as 0.5Msun,20Msun [default: 0.5Msun,20Msun].
+    #[arg(long, value_name = "MIN,MAX")]
+    core_mass: Option<String>,
+    /// Index of the core mass distribution dN/dM ~ M^-INDEX [default: 2.35].
+    #[arg(long, value_name = "INDEX")]
+    core_mass_index: Option<f64>,
+    /// Core radius range, such as 0.02pc,0.08pc (drawn uniformly in log) [default: 0.02pc,0.08pc].
+    #[arg(long, value_name = "MIN,MAX")]
+    core_radius: Option<String>,
+    /// Core profile: gaussian or bonnor-ebert (critical sphere) [default: gaussian].
+    #[arg(long, value_name = "PROFILE")]
+    profile: Option<String>,
+    /// Make dust emission at this wavelength (such as 850um) instead of column density.
+    #[arg(long, value_name = "LENGTH")]
+    emission: Option<String>,
+    /// Dust temperature for --emission, such as 15K [default: 15K].
+    #[arg(long, value_name = "TEMPERATURE")]
+    temperature: Option<String>,
+    /// Unit of emission maps: MJy/sr or Jy/beam [default: MJy/sr].
+    #[arg(long, value_name = "UNIT")]
+    emission_unit: Option<String>,
+    /// White-noise rms in the output unit (a number, or a quantity such as 1e20cm-2).
+    #[arg(long, value_name = "VALUE")]
+    noise: Option<String>,
+    /// Seed of every random stream.
+    #[arg(long)]
+    seed: Option<u64>,
+    /// Replace existing outputs.
+    #[arg(long)]
+    force: bool,
 }
 
 /// Options that say how to read a map; shared by every command that reads one.
@@ -144,11 +223,213 @@ fn run_inspect(args: &InspectArgs) -> Result<()> {
     Ok(())
 }
 
+fn pair(text: &str, dim: Dimension, what: &str) -> Result<(f64, f64)> {
+    let parts: Vec<&str> = text.split(',').collect();
+    if parts.len() != 2 {
+        return Err(Error::usage(format!(
+            "{what} '{text}' needs two values separated by a comma, such as {}.",
+            match dim {
+                Dimension::Mass => "0.5Msun,20Msun",
+                _ => "0.02pc,0.08pc",
+            }
+        )));
+    }
+    let a = units::parse_quantity(parts[0], &[dim], what)
+        .map_err(Error::usage)?
+        .si;
+    let b = units::parse_quantity(parts[1], &[dim], what)
+        .map_err(Error::usage)?
+        .si;
+    Ok((a, b))
+}
+
+fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
+    let q = |text: &str, dims: &[Dimension], what: &str| {
+        units::parse_quantity(text, dims, what).map_err(Error::usage)
+    };
+    let mut spec = match &a.spec {
+        Some(p) => {
+            let text = std::fs::read_to_string(p)
+                .map_err(|e| Error::input(p, format!("cannot be read ({e}).")))?;
+            serde_json::from_str(&text).map_err(|e| Error::input(p, format!("is not a synth specification ({e}); start from a NAME-spec.json that cairn wrote.")))?
+        }
+        None => synth::SynthSpec::default(),
+    };
+    if let Some(size) = &a.size {
+        let bad = || {
+            Error::usage(format!(
+                "--size '{size}' is not understood: give N or NXxNY, such as 512 or 600x400."
+            ))
+        };
+        let (nx, ny) = match size.split_once(['x', 'X']) {
+            Some((x, y)) => (
+                x.trim().parse().map_err(|_| bad())?,
+                y.trim().parse().map_err(|_| bad())?,
+            ),
+            None => {
+                let n: usize = size.trim().parse().map_err(|_| bad())?;
+                (n, n)
+            }
+        };
+        spec.nx = nx;
+        spec.ny = ny;
+    }
+    if let Some(p) = &a.pixel {
+        spec.pixel_arcsec = q(p, &[Dimension::Angle], "--pixel")?.si / units::ARCSEC;
+    }
+    if let Some(c) = &a.centre {
+        let bad = || {
+            Error::usage(format!(
+                "--centre '{c}' is not understood: give lon,lat in degrees, such as 201.375,-31.625."
+            ))
+        };
+        let (lon, lat) = c.split_once(',').ok_or_else(bad)?;
+        spec.centre_lon_deg = lon.trim().parse().map_err(|_| bad())?;
+        spec.centre_lat_deg = lat.trim().parse().map_err(|_| bad())?;
+    }
+    if let Some(f) = &a.frame {
+        spec.frame = match f.to_ascii_lowercase().as_str() {
+            "icrs" => synth::Frame::Icrs,
+            "fk5" => synth::Frame::Fk5,
+            "galactic" | "gal" => synth::Frame::Galactic,
+            _ => {
+                return Err(Error::usage(format!(
+                    "--frame '{f}' is not understood: give icrs, fk5 or galactic."
+                )));
+            }
+        };
+    }
+    if let Some(d) = &a.distance {
+        spec.distance_pc = q(d, &[Dimension::Length], "--distance")?.si / units::PARSEC;
+    }
+    if let Some(b) = &a.beam {
+        spec.beam_fwhm_arcsec = q(b, &[Dimension::Angle], "--beam")?.si / units::ARCSEC;
+    }
+    if a.no_background {
+        spec.background = None;
+    } else if a.background.is_some() || a.background_width.is_some() || a.background_index.is_some()
+    {
+        let mut bg = spec.background.clone().unwrap_or_default();
+        if let Some(t) = &a.background {
+            bg.mean_column_cm2 = q(t, &[Dimension::ColumnDensity], "--background")?.si * 1e-4;
+        }
+        if let Some(w) = a.background_width {
+            bg.sigma_ln = w;
+        }
+        if let Some(i) = a.background_index {
+            bg.spectral_index = i;
+        }
+        spec.background = Some(bg);
+    }
+    let profile = match a.profile.as_deref().map(str::to_ascii_lowercase).as_deref() {
+        None | Some("gaussian") => synth::Profile::Gaussian,
+        Some("bonnor-ebert") | Some("be") => synth::Profile::critical_bonnor_ebert(),
+        Some(other) => {
+            return Err(Error::usage(format!(
+                "--profile '{other}' is not understood: give gaussian or bonnor-ebert."
+            )));
+        }
+    };
+    if let Some(n) = a.cores {
+        let (m0, m1) = match &a.core_mass {
+            Some(t) => pair(t, Dimension::Mass, "--core-mass")?,
+            None => (0.5 * units::M_SUN, 20.0 * units::M_SUN),
+        };
+        let (r0, r1) = match &a.core_radius {
+            Some(t) => pair(t, Dimension::Length, "--core-radius")?,
+            None => (0.02 * units::PARSEC, 0.08 * units::PARSEC),
+        };
+        spec.population = Some(synth::CorePopulation {
+            count: n,
+            mass_min_msun: m0 / units::M_SUN,
+            mass_max_msun: m1 / units::M_SUN,
+            mass_index: a.core_mass_index.unwrap_or(2.35),
+            radius_min_pc: r0 / units::PARSEC,
+            radius_max_pc: r1 / units::PARSEC,
+            profile,
+            margin_px: 10.0,
+        });
+    }
+    if let Some(w) = &a.emission {
+        let wl = q(w, &[Dimension::Length], "--emission")?.si;
+        let t = match &a.temperature {
+            Some(t) => q(t, &[Dimension::Temperature], "--temperature")?.si,
+            None => 15.0,
+        };
+        let unit = match a.emission_unit.as_deref() {
+            None | Some("MJy/sr") => synth::EmissionUnit::MJyPerSr,
+            Some("Jy/beam") => synth::EmissionUnit::JyPerBeam,
+            Some(u) => {
+                return Err(Error::usage(format!(
+                    "--emission-unit '{u}' is not understood: give MJy/sr or Jy/beam."
+                )));
+            }
+        };
+        spec.output = synth::Output::DustEmission {
+            wavelength_um: wl * 1e6,
+            temperature_k: t,
+            unit,
+            opacity: cairn::physics::DustOpacity::default(),
+        };
+    }
+    if let Some(n) = &a.noise {
+        let unit = match &spec.output {
+            synth::Output::ColumnDensity => units::PixelUnit::ColumnDensity { to_si: 1e4 },
+            synth::Output::DustEmission {
+                unit: synth::EmissionUnit::MJyPerSr,
+                ..
+            } => units::PixelUnit::SurfaceBrightness {
+                to_si: 1e6 * units::JANSKY,
+            },
+            synth::Output::DustEmission { .. } => units::PixelUnit::FluxPerBeam {
+                to_si: units::JANSKY,
+            },
+        };
+        spec.noise_rms = units::parse_map_value(n, Some(unit), "--noise").map_err(Error::usage)?;
+    }
+    if let Some(s) = a.seed {
+        spec.seed = s;
+    }
+    Ok(spec)
+}
+
+fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
+    let spec = synth_spec(a)?;
+    let names = [
+        format!("{}.fits", a.name),
+        format!("{}-truth.csv", a.name),
+        format!("{}-spec.json", a.name),
+    ];
+    let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
+    let map = synth::generate(&spec)
+        .map_err(|e| Error::usage(format!("cannot make this synthetic map: {}", e.0)))?;
+    fits_write::write_image_f32(&outputs.temp(&names[0]), map.data.view(), &map.header, true)
+        .map_err(|e| Error::output(&a.output.join(&names[0]), e.0))?;
+    synth::write_truth_csv(&outputs.temp(&names[1]), &map.truth).map_err(|e| {
+        Error::output(
+            &a.output.join(&names[1]),
+            format!("cannot be written ({e})."),
+        )
+    })?;
+    let spec_text =
+        serde_json::to_string_pretty(&spec).map_err(|e| Error::internal(e.to_string()))? + "\n";
+    output::write_bytes(&outputs.temp(&names[2]), spec_text.as_bytes())?;
+    let written = outputs.commit()?;
+    if !quiet {
+        for p in written {
+            eprintln!("wrote {}", p.display());
+        }
+        eprintln!("{} cores injected", map.truth.len());
+    }
+    Ok(())
+}
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let _quiet = cli.quiet;
     let result = match &cli.command {
         Command::Inspect(a) => run_inspect(a),
+        Command::Synth(a) => run_synth(a, cli.quiet),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
