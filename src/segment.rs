@@ -1,0 +1,461 @@
+//! `cairn segment`: from a loaded map to the hierarchy, the catalogue, label maps, the tree
+//! file and the run record.
+//!
+//! Owns the reading of thresholds written with units (`5sigma`, `2e21cm-2`, `3beam`,
+//! `400arcsec2`, `12px`), the defaults (a floor 3 noise widths above the clipped median, a
+//! prominence of 3 noise widths, a minimum area of one beam or 9 pixels: common practice, to
+//! be tuned), and the files a run writes. Noise-unit thresholds use one noise value for the
+//! whole map (with `--noise-map`, its median).
+
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+use serde::Serialize;
+use sha2::{Digest, Sha256};
+
+use crate::error::{Error, Result};
+use crate::header::{Header, Value};
+use crate::hierarchy::{self, Connectivity, Hierarchy, Params};
+use crate::inspect::{self, NoiseChoice};
+use crate::map::Map;
+use crate::measure::{self, Kind, Measurement};
+use crate::noise;
+use crate::output::{self, Outputs};
+use crate::table::Table;
+use crate::units::{self, Dimension};
+use crate::wcs::SkyFrame;
+
+/// A level threshold: in map units or in noise units.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Level {
+    /// In map units.
+    Value(f64),
+    /// A multiple of the noise.
+    Sigma(f64),
+}
+
+/// An area threshold.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Area {
+    /// Pixels.
+    Pixels(f64),
+    /// Beams (needs a beam and a WCS).
+    Beams(f64),
+    /// Steradians (needs a WCS).
+    SolidAngle(f64),
+}
+
+/// Parses `--floor`/`--prominence`: `5sigma`, a plain number in map units, or a quantity of
+/// the map's kind.
+pub fn parse_level(text: &str, map: &Map, what: &str) -> Result<Level> {
+    if let Ok(q) = units::parse_quantity(text, &[Dimension::Sigma], what) {
+        return Ok(Level::Sigma(q.si));
+    }
+    match units::parse_map_value(text, map.unit, what) {
+        Ok(v) => Ok(Level::Value(v)),
+        Err(_) => Err(Error::usage(format!(
+            "{what} '{text}' is not understood: give a multiple of the noise such as 5sigma, or a value in the map's unit ({}) such as {}.",
+            if map.unit_text.is_empty() { "none" } else { &map.unit_text },
+            example_value(map)
+        ))),
+    }
+}
+
+fn example_value(map: &Map) -> &'static str {
+    match map.unit {
+        Some(units::PixelUnit::ColumnDensity { .. }) => "2e21cm-2",
+        Some(units::PixelUnit::Extinction { .. }) => "3mag",
+        Some(units::PixelUnit::SurfaceBrightness { .. }) => "20MJy/sr",
+        Some(units::PixelUnit::FluxPerBeam { .. }) => "0.05Jy/beam",
+        Some(units::PixelUnit::FluxPerPixel { .. }) => "0.01Jy/pixel",
+        None => "2.5",
+    }
+}
+
+/// Parses `--min-area`: `12px` or a plain number of pixels, `1.5beam`, `400arcsec2`.
+pub fn parse_area(text: &str) -> Result<Area> {
+    let q = units::parse_quantity(text, &[Dimension::Pure, Dimension::Pixels, Dimension::Beams, Dimension::SolidAngle], "--min-area")
+        .map_err(Error::usage)?;
+    if !(q.si >= 0.0) {
+        return Err(Error::usage(format!("--min-area '{text}' must not be negative.")));
+    }
+    Ok(match q.dim {
+        Dimension::Beams => Area::Beams(q.si),
+        Dimension::SolidAngle => Area::SolidAngle(q.si),
+        _ => Area::Pixels(q.si),
+    })
+}
+
+/// The options of a segmentation run.
+#[derive(Debug, Clone)]
+pub struct SegmentOptions {
+    /// Lowest level considered (default: 3 sigma above the clipped median).
+    pub floor: Option<Level>,
+    /// Least rise of a peak above where it meets a neighbour (default: 3 sigma).
+    pub prominence: Option<Level>,
+    /// Least area of a leaf (default: one beam, or 9 pixels without a beam).
+    pub min_area: Option<Area>,
+    /// Pixel adjacency.
+    pub connectivity: Connectivity,
+    /// Also write leaf footprints grown down to the floor.
+    pub grow_leaves: bool,
+    /// Catalogue leaves only.
+    pub leaves_only: bool,
+    /// Noise choice.
+    pub noise: NoiseChoice,
+    /// Output folder.
+    pub output: PathBuf,
+    /// Replace existing outputs.
+    pub force: bool,
+    /// The command line, for the run record.
+    pub command_line: Vec<String>,
+}
+
+/// Thresholds resolved to map units and pixels.
+#[derive(Debug, Clone, Serialize)]
+pub struct Resolved {
+    /// Floor, map units.
+    pub floor: f64,
+    /// Prominence, map units.
+    pub prominence: f64,
+    /// Minimum area, pixels (rounded up).
+    pub min_area_px: usize,
+    /// Noise used, map units (null if none).
+    pub noise: Option<f64>,
+    /// How the noise was set.
+    pub noise_source: String,
+    /// Background level (clipped median), map units.
+    pub background: Option<f64>,
+    /// How each threshold was given, as text.
+    pub given: [String; 3],
+}
+
+/// Resolves thresholds against the map's noise, beam and pixel size.
+pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
+    let (sigma, source) = inspect::noise_for(map, &o.noise)?;
+    let background = noise::clipped_stats(map.data.view()).ok().map(|c| c.median);
+    let need_sigma = |what: &str| -> Result<f64> {
+        sigma.ok_or_else(|| {
+            Error::input(
+                &map.path,
+                format!("has no measurable noise, so {what} cannot be given in sigma; give it in map units or set --noise."),
+            )
+        })
+    };
+    let floor = match o.floor {
+        Some(Level::Value(v)) => v,
+        Some(Level::Sigma(k)) => k * need_sigma("--floor")?,
+        None => background.unwrap_or(0.0) + 3.0 * need_sigma("the default floor (3 sigma above the background)")?,
+    };
+    let prominence = match o.prominence {
+        Some(Level::Value(v)) => v,
+        Some(Level::Sigma(k)) => k * need_sigma("--prominence")?,
+        None => 3.0 * need_sigma("the default prominence (3 sigma)")?,
+    };
+    if !(prominence >= 0.0) {
+        return Err(Error::usage(format!("--prominence must not be negative (it is {prominence}).")));
+    }
+    let centre = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
+    let pixel_sr = map.wcs.as_ref().map(|w| w.pixel_solid_angle(centre.0, centre.1));
+    let beam_px = match (map.beam, pixel_sr) {
+        (Some(b), Some(p)) => Some(b.solid_angle_sr() / p),
+        _ => None,
+    };
+    let area_px = match o.min_area {
+        Some(Area::Pixels(n)) => n,
+        Some(Area::Beams(k)) => {
+            k * beam_px.ok_or_else(|| {
+                Error::input(&map.path, "has no beam or no celestial WCS, so --min-area cannot be given in beams; give --beam, or give the area in px.")
+            })?
+        }
+        Some(Area::SolidAngle(sr)) => {
+            sr / pixel_sr.ok_or_else(|| {
+                Error::input(&map.path, "has no celestial WCS, so --min-area cannot be given as a sky area; give it in px.")
+            })?
+        }
+        None => beam_px.unwrap_or(9.0),
+    };
+    let min_area_px = (area_px - 1e-9).ceil().max(1.0) as usize;
+    if min_area_px > map.nx() * map.ny() {
+        return Err(Error::usage(format!(
+            "--min-area of {min_area_px} pixels is larger than the whole map ({} pixels).",
+            map.nx() * map.ny()
+        )));
+    }
+    let show = |l: Option<Level>| match l {
+        Some(Level::Value(v)) => format!("{v}"),
+        Some(Level::Sigma(k)) => format!("{k}sigma"),
+        None => "default".to_string(),
+    };
+    let area_text = match o.min_area {
+        Some(Area::Pixels(n)) => format!("{n}px"),
+        Some(Area::Beams(k)) => format!("{k}beam"),
+        Some(Area::SolidAngle(sr)) => format!("{}arcsec2", sr / (units::ARCSEC * units::ARCSEC)),
+        None => "default".to_string(),
+    };
+    Ok(Resolved {
+        floor,
+        prominence,
+        min_area_px,
+        noise: sigma,
+        noise_source: source,
+        background,
+        given: [show(o.floor), show(o.prominence), area_text],
+    })
+}
+
+/// Names of the output files of a run.
+pub mod names {
+    /// The catalogue as CSV.
+    pub const CSV: &str = "structures.csv";
+    /// The catalogue as a FITS binary table.
+    pub const FITS_TABLE: &str = "structures.fits";
+    /// The catalogue as VOTable.
+    pub const VOTABLE: &str = "structures.vot";
+    /// Smallest structure per pixel.
+    pub const LABELS: &str = "labels.fits";
+    /// Leaf footprints grown down to the floor.
+    pub const GROWN: &str = "leaves-grown.fits";
+    /// The tree as JSON.
+    pub const TREE_JSON: &str = "hierarchy.json";
+    /// The tree as Graphviz DOT.
+    pub const TREE_DOT: &str = "hierarchy.dot";
+    /// The run record.
+    pub const RUN: &str = "run.json";
+}
+
+/// What a finished run reports.
+#[derive(Debug, Clone, Serialize)]
+pub struct RunSummary {
+    /// Leaves found.
+    pub leaves: usize,
+    /// Branches (with a parent).
+    pub branches: usize,
+    /// Roots (top-level structures, leaves or not).
+    pub roots: usize,
+    /// Thresholds used.
+    pub thresholds: Resolved,
+    /// Seconds taken.
+    pub seconds: f64,
+    /// Files written.
+    pub files: Vec<PathBuf>,
+}
+
+fn sky_names(map: &Map) -> (&'static str, &'static str) {
+    match map.wcs.as_ref().map(|w| w.frame()) {
+        Some(SkyFrame::Galactic) => ("glon", "glat"),
+        Some(SkyFrame::Icrs) | Some(SkyFrame::Fk5 { .. }) | Some(SkyFrame::Fk4 { .. }) => ("ra", "dec"),
+        Some(_) => ("lon", "lat"),
+        None => ("lon", "lat"),
+    }
+}
+
+/// Builds the catalogue table from the measurements.
+pub fn catalogue(map: &Map, rows: &[&Measurement], r: &Resolved, run_meta: &[(String, String, String)]) -> Table {
+    let u = if map.unit_text.is_empty() { String::new() } else { map.unit_text.clone() };
+    let usum = if u.is_empty() { "pixel".to_string() } else { format!("{u} pixel") };
+    let (lon, lat) = sky_names(map);
+    let mut t = Table { name: "STRUCTURES".into(), meta: run_meta.to_vec(), ..Default::default() };
+    t.notes.push("kind: leaf = no children (core candidate), branch = children and a parent, root = children and no parent; a top-level structure without children is a leaf with parent -1".into());
+    t.notes.push("pixel coordinates are zero-based, (0,0) the centre of the first pixel; centroids and sizes are weighted by the map value".into());
+    t.notes.push(format!("thresholds: floor {} , prominence {}, min area {} px", r.floor, r.prominence, r.min_area_px));
+    let f = |g: &dyn Fn(&Measurement) -> f64| rows.iter().map(|m| g(m)).collect::<Vec<f64>>();
+    let i = |g: &dyn Fn(&Measurement) -> i64| rows.iter().map(|m| g(m)).collect::<Vec<i64>>();
+    t.push_i64("id", "", "structure id (ids number structures by decreasing peak; 0 holds the highest pixel)", i(&|m| m.id as i64));
+    t.push_text("kind", "leaf, branch or root", rows.iter().map(|m| m.kind.word().to_string()).collect());
+    t.push_i64("parent", "", "id of the smallest enclosing structure, -1 for none", i(&|m| m.parent));
+    t.push_i64("n_children", "", "number of children", i(&|m| m.n_children as i64));
+    t.push_i64("depth", "", "number of ancestors", i(&|m| m.depth as i64));
+    t.push_i64("peak_x", "pixel", "column of the peak", i(&|m| m.peak_x as i64));
+    t.push_i64("peak_y", "pixel", "row of the peak", i(&|m| m.peak_y as i64));
+    t.push_f64("peak", &u, "peak value", f(&|m| m.peak));
+    if map.wcs.is_some() {
+        t.push_f64(&format!("{lon}_peak"), "deg", "longitude of the peak", f(&|m| m.peak_lon));
+        t.push_f64(&format!("{lat}_peak"), "deg", "latitude of the peak", f(&|m| m.peak_lat));
+    }
+    t.push_f64("x", "pixel", "value-weighted centroid column", f(&|m| m.x));
+    t.push_f64("y", "pixel", "value-weighted centroid row", f(&|m| m.y));
+    if map.wcs.is_some() {
+        t.push_f64(lon, "deg", "longitude of the centroid", f(&|m| m.lon));
+        t.push_f64(lat, "deg", "latitude of the centroid", f(&|m| m.lat));
+    }
+    t.push_i64("area_px", "pixel", "number of pixels, descendants included", i(&|m| m.area_px as i64));
+    t.push_f64("radius_px", "pixel", "effective radius sqrt(area/pi)", f(&|m| m.radius_px));
+    t.push_f64("sigma_major_px", "pixel", "major-axis standard deviation of the weighted pixel positions", f(&|m| m.sigma_major_px));
+    t.push_f64("sigma_minor_px", "pixel", "minor-axis standard deviation", f(&|m| m.sigma_minor_px));
+    t.push_f64("angle_px", "deg", "major-axis angle from +x toward +y", f(&|m| m.angle_px_deg));
+    if map.wcs.is_some() {
+        t.push_f64("area_sky", "arcsec2", "solid angle", f(&|m| m.area_arcsec2));
+        t.push_f64("radius", "arcsec", "effective radius sqrt(area/pi)", f(&|m| m.radius_arcsec));
+        t.push_f64("fwhm_major", "arcsec", "major-axis FWHM (2.3548 sigma) on the sky", f(&|m| m.fwhm_major_arcsec));
+        t.push_f64("fwhm_minor", "arcsec", "minor-axis FWHM on the sky", f(&|m| m.fwhm_minor_arcsec));
+        t.push_f64("pa", "deg", "position angle of the major axis, east of north, 0 to 180", f(&|m| m.pa_deg));
+    }
+    t.push_f64("aspect", "", "major / minor axis ratio", f(&|m| m.aspect));
+    t.push_f64("sum", &usum, "sum of the map over the structure", f(&|m| m.sum));
+    t.push_f64("mean", &u, "mean value", f(&|m| m.mean));
+    t.push_f64("merge_level", &u, "level where it joins its parent (the floor for roots)", f(&|m| m.merge_level));
+    t.push_f64("excess_sum", &usum, "sum of (value - merge_level): the structure above its surroundings", f(&|m| m.sum_above_merge));
+    t.push_bool("at_edge", "touches the map border", rows.iter().map(|m| m.touches_edge).collect());
+    t.push_bool("at_missing", "touches a missing pixel", rows.iter().map(|m| m.touches_missing).collect());
+    t
+}
+
+/// The hierarchy as JSON: structures with parent, children and levels.
+pub fn tree_json(h: &Hierarchy, ms: &[Measurement], map: &Map) -> serde_json::Value {
+    let structures: Vec<serde_json::Value> = h
+        .structures
+        .iter()
+        .zip(ms)
+        .map(|(s, m)| {
+            serde_json::json!({
+                "id": s.id,
+                "kind": m.kind.word(),
+                "parent": s.parent,
+                "children": s.children,
+                "peak": s.peak_value,
+                "peak_x": s.peak_x,
+                "peak_y": s.peak_y,
+                "merge_level": m.merge_level,
+                "area_px": s.npix,
+                "depth": s.depth,
+            })
+        })
+        .collect();
+    serde_json::json!({
+        "unit": map.unit_text,
+        "floor": h.params.floor,
+        "prominence": h.params.prominence,
+        "min_area_px": h.params.min_area,
+        "connectivity": match h.params.connectivity { Connectivity::Four => 4, Connectivity::Eight => 8 },
+        "roots": h.roots(),
+        "structures": structures,
+    })
+}
+
+/// The hierarchy as Graphviz DOT (petgraph's writer), nodes labelled by id.
+pub fn tree_dot(h: &Hierarchy) -> String {
+    use petgraph::dot::{Config, Dot};
+    let g = h.graph.map(|_, id| *id, |_, _| "");
+    format!("{}", Dot::with_config(&g, &[Config::EdgeNoLabel]))
+}
+
+/// SHA-256 of a file, hex.
+pub fn sha256_file(path: &Path) -> Result<String> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path).map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
+    let mut hasher = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = f.read(&mut buf).map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
+        if n == 0 {
+            break;
+        }
+        hasher.update(&buf[..n]);
+    }
+    Ok(hasher.finalize().iter().map(|b| format!("{b:02x}")).collect())
+}
+
+/// A header for a label map: the input's WCS, BUNIT empty, a description.
+fn label_header(map: &Map, what: &str) -> Header {
+    let mut h = Header::new();
+    if let Some(w) = &map.wcs {
+        for c in w.header_cards() {
+            if let Some(v) = c.value {
+                h.set(&c.key, v, &c.comment);
+            }
+        }
+    }
+    h.set("CONTENT", Value::Str(what.into()), "what the pixel values are");
+    h.set("BLANKID", Value::Int(-1), "value of pixels in no structure");
+    h.set("ORIGIN", Value::Str(format!("cairn {}", env!("CARGO_PKG_VERSION"))), "");
+    h
+}
+
+/// Runs the whole segmentation and writes the outputs. `progress` receives fractions 0..1.
+pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Result<RunSummary> {
+    let t0 = Instant::now();
+    let r = resolve(map, o)?;
+    let mut names_list: Vec<String> = [names::CSV, names::FITS_TABLE, names::VOTABLE, names::LABELS, names::TREE_JSON, names::TREE_DOT, names::RUN]
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    if o.grow_leaves {
+        names_list.push(names::GROWN.into());
+    }
+    let outputs = Outputs::plan(&o.output, &names_list, o.force)?;
+    let params = Params { floor: r.floor, prominence: r.prominence, min_area: r.min_area_px, connectivity: o.connectivity };
+    let t_tree = Instant::now();
+    let h = match hierarchy::build_with_progress(map.data.view(), &params, &|f| progress("hierarchy", f)) {
+        Ok(h) => h,
+        Err(hierarchy::HierarchyError::FloorAboveMaximum { floor, max }) => {
+            return Err(Error::usage(format!(
+                "--floor {floor} lies above the highest value of {} ({max}); lower it (cairn inspect suggests one).",
+                map.path.display()
+            )));
+        }
+        Err(e) => return Err(Error::input(&map.path, format!("{e}."))),
+    };
+    let tree_seconds = t_tree.elapsed().as_secs_f64();
+    progress("measure", 0.0);
+    let ms = measure::measure_all(&h, map.wcs.as_ref());
+    let grown = o.grow_leaves.then(|| hierarchy::grow_leaves(map.data.view(), &h, r.floor));
+    progress("measure", 1.0);
+
+    let input_sha = sha256_file(&map.path)?;
+    let meta: Vec<(String, String, String)> = vec![
+        ("input".into(), map.path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default(), "input map".into()),
+        ("input_sha256".into(), input_sha.clone(), "SHA-256 of the input file".into()),
+        ("hdu".into(), map.hdu_index.to_string(), "HDU read".into()),
+        ("unit".into(), map.unit_text.clone(), "unit of the map".into()),
+        ("floor".into(), format!("{}", r.floor), format!("map units (given as {})", r.given[0])),
+        ("prominence".into(), format!("{}", r.prominence), format!("map units (given as {})", r.given[1])),
+        ("min_area".into(), r.min_area_px.to_string(), format!("pixels (given as {})", r.given[2])),
+        ("connectivity".into(), match o.connectivity { Connectivity::Four => "4", Connectivity::Eight => "8" }.into(), "pixel adjacency".into()),
+        ("noise".into(), r.noise.map(|n| format!("{n}")).unwrap_or_else(|| "none".into()), r.noise_source.clone()),
+        ("version".into(), env!("CARGO_PKG_VERSION").into(), "cairn version".into()),
+    ];
+    let rows: Vec<&Measurement> = ms.iter().filter(|m| !o.leaves_only || m.kind == Kind::Leaf).collect();
+    let table = catalogue(map, &rows, &r, &meta);
+    output::write_bytes(&outputs.temp(names::CSV), table.to_csv().as_bytes())?;
+    table.write_fits(&outputs.temp(names::FITS_TABLE))?;
+    output::write_bytes(&outputs.temp(names::VOTABLE), table.to_votable().as_bytes())?;
+    crate::fits_write::write_image_i32(&outputs.temp(names::LABELS), h.labels.view(), &label_header(map, "smallest structure id per pixel"), true)
+        .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
+    if let Some(g) = &grown {
+        crate::fits_write::write_image_i32(&outputs.temp(names::GROWN), g.view(), &label_header(map, "leaf id per pixel, grown to the floor"), true)
+            .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
+    }
+    let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map)).map_err(|e| Error::internal(e.to_string()))? + "\n";
+    output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
+    output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
+
+    let leaves = ms.iter().filter(|m| m.kind == Kind::Leaf).count();
+    let branches = ms.iter().filter(|m| m.kind == Kind::Branch).count();
+    let roots = h.roots().len();
+    let seconds = t0.elapsed().as_secs_f64();
+    let record = serde_json::json!({
+        "cairn_version": env!("CARGO_PKG_VERSION"),
+        "command_line": o.command_line,
+        "input": { "path": map.path.display().to_string(), "sha256": input_sha, "hdu": map.hdu_index, "plane": map.plane },
+        "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()) },
+        "parameters": {
+            "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0] },
+            "prominence": { "value": r.prominence, "unit": map.unit_text, "given": r.given[1] },
+            "min_area": { "value": r.min_area_px, "unit": "pixel", "given": r.given[2] },
+            "connectivity": match o.connectivity { Connectivity::Four => 4, Connectivity::Eight => 8 },
+            "grow_leaves": o.grow_leaves,
+            "leaves_only": o.leaves_only,
+        },
+        "noise": { "value": r.noise, "unit": map.unit_text, "source": r.noise_source, "background": r.background },
+        "beam": map.beam,
+        "result": { "leaves": leaves, "branches": branches, "roots": roots, "structures": ms.len() },
+        "timings_seconds": { "hierarchy": tree_seconds, "total_before_writing": seconds },
+        "threads": rayon::current_num_threads(),
+        "warnings": map.warnings,
+    });
+    let rec = serde_json::to_string_pretty(&record).map_err(|e| Error::internal(e.to_string()))? + "\n";
+    output::write_bytes(&outputs.temp(names::RUN), rec.as_bytes())?;
+    let files = outputs.commit()?;
+    Ok(RunSummary { leaves, branches, roots, thresholds: r, seconds: t0.elapsed().as_secs_f64(), files })
+}
