@@ -758,6 +758,13 @@ impl Wcs {
                 ));
             }
         }
+        if self.proj.offset_applied {
+            out.push(card(
+                format!("PV{lo}_0"),
+                Value::Float(1.0),
+                "fiducial point offset to (0, 0)",
+            ));
+        }
         out.push(card(
             format!("PV{lo}_1"),
             Value::Float(self.proj.phi0),

@@ -902,7 +902,10 @@ fn air_r(xi: f64, cxi: f64) -> f64 {
         return 0.0;
     }
     let t = tand(xi);
-    -(cosd(xi).ln() / t + cxi * t)
+    // ln(cos xi) = ln(1 - 2 sin^2(xi/2)), exact to rounding also for tiny xi.
+    let h = sind(xi / 2.0);
+    let ln_cos = (-2.0 * h * h).ln_1p();
+    -(ln_cos / t + cxi * t)
 }
 
 fn poly(p: &[f64], z: f64) -> f64 {
