@@ -181,12 +181,10 @@ impl Projection {
             ),
             "ARC" => (Kind::Arc, 90.0, "ARC"),
             "ZPN" => {
-                let mut last = 0;
-                for m in 0..30 {
-                    if pv[m].is_some_and(|v| v != 0.0) {
-                        last = m;
-                    }
-                }
+                let last = pv
+                    .iter()
+                    .rposition(|v| v.is_some_and(|v| v != 0.0))
+                    .unwrap_or(0);
                 let coeffs: Vec<f64> = (0..=last).map(|m| p(m, 0.0)).collect();
                 let (zd_max, r_max) = zpn_limit(&coeffs)?;
                 (
