@@ -357,13 +357,16 @@ fn header_cards_reproduce_the_same_sky() {
 #[test]
 fn frame_conversions_match_astropy_coordinates() {
     // Source: astropy 8.0.2 astropy.coordinates.SkyCoord.transform_to between ICRS, Galactic
-    // and FK5(equinox=J2000); 1e-9 degree on the sky (longitude scaled by cos(lat)).
+    // and FK5 (equinox J2000, J1975, J2030); 1e-9 degree on the sky (longitude scaled by
+    // cos(lat)).
     let f = fixture_json("wcs/frames.json");
     let (lon, lat) = (nums(&f["lon"]), nums(&f["lat"]));
     let frames = [
         ("icrs", SkyFrame::Icrs),
         ("galactic", SkyFrame::Galactic),
         ("fk5", SkyFrame::Fk5 { equinox: 2000.0 }),
+        ("fk5_1975", SkyFrame::Fk5 { equinox: 1975.0 }),
+        ("fk5_2030", SkyFrame::Fk5 { equinox: 2030.0 }),
     ];
     let mut worst: f64 = 0.0;
     for (a, fa) in &frames {

@@ -6,7 +6,8 @@
 //! given next to each one). The domain rules follow the paper: a point with no image (the far
 //! hemisphere of SIN, the outside of AIT's ellipse, ...) gives `None`. After every inverse
 //! projection the native coordinates must lie in phi in [-180, 180], theta in [-90, 90]
-//! (within 1e-13 degree, then clamped), as Paper II's native longitude range requires.
+//! (within 1e-12 of the limit, i.e. ~2e-10 degree in longitude, then clamped), as Paper II's
+//! native coordinate ranges require.
 
 use super::trig::{D2R, R2D, asind, atan2d, cosd, sind, tand};
 
@@ -808,10 +809,10 @@ fn asind_checked(s: f64) -> Option<f64> {
     Some(asind(s))
 }
 
-/// Rejects values beyond +-limit by more than the tolerance, clamps the rest.
+/// Rejects values beyond +-limit by more than 1e-12 of the limit, clamps the rest.
 fn bound(v: f64, limit: f64) -> Option<f64> {
     if v.abs() > limit {
-        if v.abs() > limit + TOL * limit.max(1.0) * 10.0 {
+        if v.abs() > limit * (1.0 + 1e-12) {
             return None;
         }
         return Some(limit.copysign(v));

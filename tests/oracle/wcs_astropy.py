@@ -20,7 +20,7 @@ For each header, with astropy.wcs.WCS (origin 0 = cairn's zero-based pixels):
   (about 1e-12 where the projection's distortion varies on a scale of a radian); round-off
   is about 1e-15 rad / s = 1e-12 relative.
 
-Frame conversions ICRS <-> galactic <-> FK5 (equinox J2000) come from
+Frame conversions ICRS <-> galactic <-> FK5 (equinoxes J2000, J1975, J2030) come from
 astropy.coordinates.SkyCoord on a set of invented positions.
 """
 import glob
@@ -304,7 +304,8 @@ def frames():
     lat = np.concatenate([np.degrees(np.arcsin(rng.uniform(-1, 1, 40))),
                           [0.0, 89.99, -89.99, 45.0, -30.0, 60.0]])
     out = {"lon": lon, "lat": lat}
-    frames_ = {"icrs": "icrs", "galactic": "galactic", "fk5": FK5(equinox="J2000")}
+    frames_ = {"icrs": "icrs", "galactic": "galactic", "fk5": FK5(equinox="J2000"),
+               "fk5_1975": FK5(equinox="J1975"), "fk5_2030": FK5(equinox="J2030")}
     for src in frames_:
         for dst in frames_:
             if src == dst:
