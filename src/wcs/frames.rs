@@ -13,9 +13,16 @@
 //!   27.12825118085622 deg, l_NCP = 122.9319185680026 deg (the Hipparcos catalogue,
 //!   ESA 1997, vol. 1 sec. 1.5.3, gives the same pole to its quoted 1e-5 degree).
 //!
+//! * FK5 J2000 -> FK5 at another Julian equinox: the IAU 2006 precession (Capitaine et al.
+//!   2003, A&A 412, 567; Hilton et al. 2006, Celest. Mech. Dyn. Astr. 94, 351) as the
+//!   Fukushima-Williams angles gamma_bar, phi_bar, psi_bar, epsilon_A (IERS Conventions 2010,
+//!   eqs. 5.39-5.40): P(t) = F(t) F(0)^T with F = R1(-eps_A) R3(-psi_bar) R1(phi_bar)
+//!   R3(gamma_bar), t in Julian centuries of TT from J2000 (the equinox in Julian years taken
+//!   as a TT epoch), which is the precession astropy.coordinates.FK5 applies.
+//!
 //! Here R1, R2, R3 are rotations of the coordinate system about the x, y, z axes:
 //! R3(a) = [[cos a, sin a, 0], [-sin a, cos a, 0], [0, 0, 1]], and likewise for x and y.
-//! FK5 at other equinoxes (precession), FK4 and ecliptic frames are not converted (`None`).
+//! FK4 and ecliptic frames are not converted (`None`).
 
 use super::SkyFrame;
 use super::trig::{atan2d, norm360, sincosd};
@@ -83,20 +90,73 @@ fn fk5_to_galactic() -> Mat {
     )
 }
 
+/// Fukushima-Williams bias-precession matrix F(t) of IAU 2006, t in Julian centuries (TT)
+/// from J2000; polynomial coefficients in arcseconds (IERS Conventions 2010, eq. 5.40, and
+/// eq. 5.39 for the obliquity epsilon_A).
+fn fukushima_williams(t: f64) -> Mat {
+    let poly = |c: [f64; 6]| c.iter().rev().fold(0.0, |acc, &k| acc * t + k) / 3600.0;
+    let gamb = poly([
+        -0.052928,
+        10.556378,
+        0.4932044,
+        -0.00031238,
+        -0.000002788,
+        0.0000000260,
+    ]);
+    let phib = poly([
+        84381.412819,
+        -46.811016,
+        0.0511268,
+        0.00053289,
+        -0.000000440,
+        -0.0000000176,
+    ]);
+    let psib = poly([
+        -0.041775,
+        5038.481484,
+        1.5584175,
+        -0.00018522,
+        -0.000026452,
+        -0.0000000148,
+    ]);
+    let epsa = poly([
+        84381.406,
+        -46.836769,
+        -0.0001831,
+        0.00200340,
+        -0.000000576,
+        -0.0000000434,
+    ]);
+    mul(
+        &mul(&rot(0, -epsa), &rot(2, -psib)),
+        &mul(&rot(0, phib), &rot(2, gamb)),
+    )
+}
+
+/// Precession matrix from FK5 J2000 to FK5 at a Julian equinox (years).
+fn precession_from_j2000(equinox: f64) -> Mat {
+    if equinox == 2000.0 {
+        return identity();
+    }
+    let t = (equinox - 2000.0) / 100.0;
+    mul(&fukushima_williams(t), &transpose(&fukushima_williams(0.0)))
+}
+
 /// Matrix taking a frame's unit vectors to ICRS, when the frame is supported.
 fn to_icrs(frame: &SkyFrame) -> Option<Mat> {
     match frame {
         SkyFrame::Icrs => Some(identity()),
-        SkyFrame::Fk5 { equinox } if (equinox - 2000.0).abs() < 1e-9 => {
-            Some(transpose(&icrs_to_fk5()))
-        }
+        SkyFrame::Fk5 { equinox } if equinox.is_finite() => Some(transpose(&mul(
+            &precession_from_j2000(*equinox),
+            &icrs_to_fk5(),
+        ))),
         SkyFrame::Galactic => Some(transpose(&mul(&fk5_to_galactic(), &icrs_to_fk5()))),
         _ => None,
     }
 }
 
 /// Converts a position (degrees) from one frame to another; longitude in [0, 360). `None`
-/// when either frame is not among ICRS, FK5 (equinox 2000) and galactic.
+/// when either frame is not among ICRS, FK5 (any Julian equinox) and galactic.
 pub fn convert_frame(lon: f64, lat: f64, from: &SkyFrame, to: &SkyFrame) -> Option<(f64, f64)> {
     if !lon.is_finite() || !lat.is_finite() {
         return None;

@@ -6,7 +6,8 @@
 //! given next to each one). The domain rules follow the paper: a point with no image (the far
 //! hemisphere of SIN, the outside of AIT's ellipse, ...) gives `None`. After every inverse
 //! projection the native coordinates must lie in phi in [-180, 180], theta in [-90, 90]
-//! (within 1e-13 degree, then clamped), as Paper II's native longitude range requires.
+//! (within 1e-12 of the limit, i.e. ~2e-10 degree in longitude, then clamped), as Paper II's
+//! native coordinate ranges require.
 
 use super::trig::{D2R, R2D, asind, atan2d, cosd, sind, tand};
 
@@ -181,12 +182,10 @@ impl Projection {
             ),
             "ARC" => (Kind::Arc, 90.0, "ARC"),
             "ZPN" => {
-                let mut last = 0;
-                for m in 0..30 {
-                    if pv[m].is_some_and(|v| v != 0.0) {
-                        last = m;
-                    }
-                }
+                let last = pv
+                    .iter()
+                    .rposition(|v| v.is_some_and(|v| v != 0.0))
+                    .unwrap_or(0);
                 let coeffs: Vec<f64> = (0..=last).map(|m| p(m, 0.0)).collect();
                 let (zd_max, r_max) = zpn_limit(&coeffs)?;
                 (
@@ -810,10 +809,10 @@ fn asind_checked(s: f64) -> Option<f64> {
     Some(asind(s))
 }
 
-/// Rejects values beyond +-limit by more than the tolerance, clamps the rest.
+/// Rejects values beyond +-limit by more than 1e-12 of the limit, clamps the rest.
 fn bound(v: f64, limit: f64) -> Option<f64> {
     if v.abs() > limit {
-        if v.abs() > limit + TOL * limit.max(1.0) * 10.0 {
+        if v.abs() > limit * (1.0 + 1e-12) {
             return None;
         }
         return Some(limit.copysign(v));
@@ -902,7 +901,10 @@ fn air_r(xi: f64, cxi: f64) -> f64 {
         return 0.0;
     }
     let t = tand(xi);
-    -(cosd(xi).ln() / t + cxi * t)
+    // ln(cos xi) = ln(1 - 2 sin^2(xi/2)), exact to rounding also for tiny xi.
+    let h = sind(xi / 2.0);
+    let ln_cos = (-2.0 * h * h).ln_1p();
+    -(ln_cos / t + cxi * t)
 }
 
 fn poly(p: &[f64], z: f64) -> f64 {

@@ -12,14 +12,15 @@ For each header, with astropy.wcs.WCS (origin 0 = cairn's zero-based pixels):
 * pixel -> sky on a grid that extends beyond the map (so that points outside a projection's
   domain give NaN), and sky -> pixel of every finite result;
 * the pixel area at the reference pixel, astropy.wcs.utils.proj_plane_pixel_area (deg^2);
-* the solid angle and the two pixel scales at off-reference pixels, from astropy's
-  pixel -> sky by a five-point central difference of the unit vector n on the sky with a
-  step of h = 0.5 pixel: dn/dx = (n(x-2h) - 8 n(x-h) + 8 n(x+h) - n(x+2h)) / (12 h), solid
-  angle |dn/dx x dn/dy| (sr), scales |dn/dx|, |dn/dy| (deg). Truncation error is
-  O((h * pixel size in rad)^4) relative, below 1e-11 for these maps; round-off is about
-  1e-16 / (h * pixel size in rad), below 1e-10 relative for pixels of 0.01 deg or more.
+* the solid angle and the two pixel scales at off-reference pixels (and, as "ref_stencil",
+  at the reference pixel), from astropy's pixel -> sky by a five-point central difference
+  of the unit vector n on the sky: dn/dx = (n(x-2h) - 8 n(x-h) + 8 n(x+h) - n(x+2h)) / (12 h)
+  with h = min(0.5 pixel, 1e-3 rad on the sky); solid angle |dn/dx x dn/dy| (sr), scales
+  |dn/dx|, |dn/dy| (deg). Truncation error is O(s^4) relative for a step s = 1e-3 rad
+  (about 1e-12 where the projection's distortion varies on a scale of a radian); round-off
+  is about 1e-15 rad / s = 1e-12 relative.
 
-Frame conversions ICRS <-> galactic <-> FK5 (equinox J2000) come from
+Frame conversions ICRS <-> galactic <-> FK5 (equinoxes J2000, J1975, J2030) come from
 astropy.coordinates.SkyCoord on a set of invented positions.
 """
 import glob
@@ -227,8 +228,12 @@ def world2pix(w, lon, lat):
     return x, y
 
 
-def local_jacobian(w, x, y, h=0.5):
-    """Five-point central differences of the sky unit vector in pixel x and y."""
+def local_jacobian(w, x, y):
+    """Five-point central differences of the sky unit vector in pixel x and y, with a step
+    of half a pixel or 1e-3 rad on the sky, whichever is smaller."""
+    size = np.sqrt(abs(np.linalg.det(w.celestial.pixel_scale_matrix)))  # deg per pixel
+    h = min(0.5, np.degrees(1e-3) / size)
+
     def d(dx, dy):
         pts = [pix2world(w, [x + k * dx], [y + k * dy]) for k in (-2, -1, 1, 2)]
         n = [unit_vectors(p[0][0], p[1][0]) for p in pts]
@@ -278,8 +283,12 @@ def compute(name, cards):
                     "solid_angle_sr": float(np.linalg.norm(np.cross(jx, jy))),
                     "scale_x_deg": float(np.degrees(np.linalg.norm(jx))),
                     "scale_y_deg": float(np.degrees(np.linalg.norm(jy)))})
+    rx, ry = w.wcs.crpix[0] - 1, w.wcs.crpix[1] - 1
+    jx, jy = local_jacobian(w, rx, ry)
+    ref_stencil = float(np.linalg.norm(np.cross(jx, jy)))
     return {
         "cards": cards,
+        "ref_stencil_sr": ref_stencil,
         "projection": w.wcs.ctype[0][5:8] if w.wcs.lng == 0 else w.wcs.ctype[1][5:8],
         "frame": frame_name(w),
         "x": xs, "y": ys, "lon": lon, "lat": lat, "back_x": bx, "back_y": by,
@@ -295,7 +304,8 @@ def frames():
     lat = np.concatenate([np.degrees(np.arcsin(rng.uniform(-1, 1, 40))),
                           [0.0, 89.99, -89.99, 45.0, -30.0, 60.0]])
     out = {"lon": lon, "lat": lat}
-    frames_ = {"icrs": "icrs", "galactic": "galactic", "fk5": FK5(equinox="J2000")}
+    frames_ = {"icrs": "icrs", "galactic": "galactic", "fk5": FK5(equinox="J2000"),
+               "fk5_1975": FK5(equinox="J1975"), "fk5_2030": FK5(equinox="J2030")}
     for src in frames_:
         for dst in frames_:
             if src == dst:
