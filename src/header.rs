@@ -76,7 +76,11 @@ impl Header {
         for chunk in bytes.chunks(80) {
             let line = String::from_utf8_lossy(chunk);
             let line = line.as_ref();
-            let key = line.get(..8.min(line.len())).unwrap_or("").trim_end().to_string();
+            let key = line
+                .get(..8.min(line.len()))
+                .unwrap_or("")
+                .trim_end()
+                .to_string();
             if key == "END" {
                 break;
             }
@@ -98,11 +102,19 @@ impl Header {
     /// Appends a value card, or replaces the value of the first card with that keyword.
     pub fn set(&mut self, key: &str, value: Value, comment: &str) {
         let key = key.to_ascii_uppercase();
-        if let Some(card) = self.cards.iter_mut().find(|c| c.key == key && c.value.is_some()) {
+        if let Some(card) = self
+            .cards
+            .iter_mut()
+            .find(|c| c.key == key && c.value.is_some())
+        {
             card.value = Some(value);
             card.comment = comment.to_string();
         } else {
-            self.cards.push(Card { key, value: Some(value), comment: comment.to_string() });
+            self.cards.push(Card {
+                key,
+                value: Some(value),
+                comment: comment.to_string(),
+            });
         }
     }
 
@@ -171,15 +183,27 @@ fn parse_card(line: &str) -> Card {
         if let Some(eq) = rest.find('=') {
             let name = rest[..eq].trim().to_ascii_uppercase();
             let (value, comment) = parse_value(&rest[eq + 1..]);
-            return Card { key: name, value, comment };
+            return Card {
+                key: name,
+                value,
+                comment,
+            };
         }
     }
     let has_value = line.len() >= 10 && &line[8..10] == "= ";
     if has_value && key != "COMMENT" && key != "HISTORY" && !key.is_empty() {
         let (value, comment) = parse_value(&line[10..]);
-        Card { key, value, comment }
+        Card {
+            key,
+            value,
+            comment,
+        }
     } else {
-        Card { key, value: None, comment: line.get(8..).unwrap_or("").trim_end().to_string() }
+        Card {
+            key,
+            value: None,
+            comment: line.get(8..).unwrap_or("").trim_end().to_string(),
+        }
     }
 }
 
@@ -205,7 +229,10 @@ fn parse_value(field: &str) -> (Option<Value>, String) {
             }
         }
         let after = &rest[end.min(rest.len())..];
-        let comment = after.find('/').map(|p| after[p + 1..].trim().to_string()).unwrap_or_default();
+        let comment = after
+            .find('/')
+            .map(|p| after[p + 1..].trim().to_string())
+            .unwrap_or_default();
         return (Some(Value::Str(out.trim_end().to_string())), comment);
     }
     let (raw, comment) = match s.find('/') {
@@ -268,14 +295,22 @@ pub fn format_float(x: f64) -> String {
     // Rust's shortest round-trip representation, in exponent form when long.
     let plain = format!("{x:?}");
     if plain.len() <= 20 {
-        return if plain.contains('.') || plain.contains('e') || plain.contains("inf") || plain.contains("NaN") {
+        return if plain.contains('.')
+            || plain.contains('e')
+            || plain.contains("inf")
+            || plain.contains("NaN")
+        {
             plain.replace('e', "E")
         } else {
             format!("{plain}.0")
         };
     }
     let e = format!("{x:E}");
-    if e.contains('.') { e } else { e.replacen('E', ".0E", 1) }
+    if e.contains('.') {
+        e
+    } else {
+        e.replacen('E', ".0E", 1)
+    }
 }
 
 #[cfg(test)]

@@ -64,7 +64,11 @@ pub fn ellipse(a: f64, b: f64, c: f64) -> Ellipse {
     let l1 = mean + half;
     let l2 = (mean - half).max(0.0);
     let angle = 0.5 * (2.0 * b).atan2(a - c);
-    Ellipse { sigma_major: l1.max(0.0).sqrt(), sigma_minor: l2.sqrt(), angle }
+    Ellipse {
+        sigma_major: l1.max(0.0).sqrt(),
+        sigma_minor: l2.sqrt(),
+        angle,
+    }
 }
 
 /// Everything measured for one structure.
@@ -162,14 +166,24 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
     let m = &s.sums;
     let n = m.n as f64;
     let kind = if !s.children.is_empty() {
-        if s.parent.is_some() { Kind::Branch } else { Kind::Root }
+        if s.parent.is_some() {
+            Kind::Branch
+        } else {
+            Kind::Root
+        }
     } else {
         Kind::Leaf
     };
     let (x, y, cxx, cxy, cyy) = if m.sum > 0.0 {
         let x = m.sx / m.sum;
         let y = m.sy / m.sum;
-        (x, y, m.sxx / m.sum - x * x, m.sxy / m.sum - x * y, m.syy / m.sum - y * y)
+        (
+            x,
+            y,
+            m.sxx / m.sum - x * x,
+            m.sxy / m.sum - x * y,
+            m.syy / m.sum - y * y,
+        )
     } else {
         (f64::NAN, f64::NAN, f64::NAN, f64::NAN, f64::NAN)
     };
@@ -216,7 +230,11 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
             out.peak_lat = b;
         }
         // Where the weighted centroid is undefined, the peak stands in for sky scales.
-        let (ax, ay) = if x.is_finite() { (x, y) } else { (s.peak_x as f64, s.peak_y as f64) };
+        let (ax, ay) = if x.is_finite() {
+            (x, y)
+        } else {
+            (s.peak_x as f64, s.peak_y as f64)
+        };
         if x.is_finite()
             && let Some((l, b)) = w.pixel_to_sky(x, y)
         {
@@ -257,7 +275,10 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
 /// Measures every structure of a hierarchy, in id order.
 pub fn measure_all(h: &Hierarchy, wcs: Option<&Wcs>) -> Vec<Measurement> {
     use rayon::prelude::*;
-    h.structures.par_iter().map(|s| measure(s, h, wcs)).collect()
+    h.structures
+        .par_iter()
+        .map(|s| measure(s, h, wcs))
+        .collect()
 }
 
 #[cfg(test)]

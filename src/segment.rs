@@ -55,7 +55,11 @@ pub fn parse_level(text: &str, map: &Map, what: &str) -> Result<Level> {
         Ok(v) => Ok(Level::Value(v)),
         Err(_) => Err(Error::usage(format!(
             "{what} '{text}' is not understood: give a multiple of the noise such as 5sigma, or a value in the map's unit ({}) such as {}.",
-            if map.unit_text.is_empty() { "none" } else { &map.unit_text },
+            if map.unit_text.is_empty() {
+                "none"
+            } else {
+                &map.unit_text
+            },
             example_value(map)
         ))),
     }
@@ -74,10 +78,21 @@ fn example_value(map: &Map) -> &'static str {
 
 /// Parses `--min-area`: `12px` or a plain number of pixels, `1.5beam`, `400arcsec2`.
 pub fn parse_area(text: &str) -> Result<Area> {
-    let q = units::parse_quantity(text, &[Dimension::Pure, Dimension::Pixels, Dimension::Beams, Dimension::SolidAngle], "--min-area")
-        .map_err(Error::usage)?;
+    let q = units::parse_quantity(
+        text,
+        &[
+            Dimension::Pure,
+            Dimension::Pixels,
+            Dimension::Beams,
+            Dimension::SolidAngle,
+        ],
+        "--min-area",
+    )
+    .map_err(Error::usage)?;
     if !(q.si >= 0.0) {
-        return Err(Error::usage(format!("--min-area '{text}' must not be negative.")));
+        return Err(Error::usage(format!(
+            "--min-area '{text}' must not be negative."
+        )));
     }
     Ok(match q.dim {
         Dimension::Beams => Area::Beams(q.si),
@@ -145,7 +160,10 @@ pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
     let floor = match o.floor {
         Some(Level::Value(v)) => v,
         Some(Level::Sigma(k)) => k * need_sigma("--floor")?,
-        None => background.unwrap_or(0.0) + 3.0 * need_sigma("the default floor (3 sigma above the background)")?,
+        None => {
+            background.unwrap_or(0.0)
+                + 3.0 * need_sigma("the default floor (3 sigma above the background)")?
+        }
     };
     let prominence = match o.prominence {
         Some(Level::Value(v)) => v,
@@ -153,10 +171,15 @@ pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
         None => 3.0 * need_sigma("the default prominence (3 sigma)")?,
     };
     if !(prominence >= 0.0) {
-        return Err(Error::usage(format!("--prominence must not be negative (it is {prominence}).")));
+        return Err(Error::usage(format!(
+            "--prominence must not be negative (it is {prominence})."
+        )));
     }
     let centre = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
-    let pixel_sr = map.wcs.as_ref().map(|w| w.pixel_solid_angle(centre.0, centre.1));
+    let pixel_sr = map
+        .wcs
+        .as_ref()
+        .map(|w| w.pixel_solid_angle(centre.0, centre.1));
     let beam_px = match (map.beam, pixel_sr) {
         (Some(b), Some(p)) => Some(b.solid_angle_sr() / p),
         _ => None,
@@ -244,34 +267,97 @@ pub struct RunSummary {
 fn sky_names(map: &Map) -> (&'static str, &'static str) {
     match map.wcs.as_ref().map(|w| w.frame()) {
         Some(SkyFrame::Galactic) => ("glon", "glat"),
-        Some(SkyFrame::Icrs) | Some(SkyFrame::Fk5 { .. }) | Some(SkyFrame::Fk4 { .. }) => ("ra", "dec"),
+        Some(SkyFrame::Icrs) | Some(SkyFrame::Fk5 { .. }) | Some(SkyFrame::Fk4 { .. }) => {
+            ("ra", "dec")
+        }
         Some(_) => ("lon", "lat"),
         None => ("lon", "lat"),
     }
 }
 
 /// Builds the catalogue table from the measurements.
-pub fn catalogue(map: &Map, rows: &[&Measurement], r: &Resolved, run_meta: &[(String, String, String)]) -> Table {
-    let u = if map.unit_text.is_empty() { String::new() } else { map.unit_text.clone() };
-    let usum = if u.is_empty() { "pixel".to_string() } else { format!("{u} pixel") };
+pub fn catalogue(
+    map: &Map,
+    rows: &[&Measurement],
+    r: &Resolved,
+    run_meta: &[(String, String, String)],
+) -> Table {
+    let u = if map.unit_text.is_empty() {
+        String::new()
+    } else {
+        map.unit_text.clone()
+    };
+    let usum = if u.is_empty() {
+        "pixel".to_string()
+    } else {
+        format!("{u} pixel")
+    };
     let (lon, lat) = sky_names(map);
-    let mut t = Table { name: "STRUCTURES".into(), meta: run_meta.to_vec(), ..Default::default() };
+    let mut t = Table {
+        name: "STRUCTURES".into(),
+        meta: run_meta.to_vec(),
+        ..Default::default()
+    };
     t.notes.push("kind: leaf = no children (core candidate), branch = children and a parent, root = children and no parent; a top-level structure without children is a leaf with parent -1".into());
     t.notes.push("pixel coordinates are zero-based, (0,0) the centre of the first pixel; centroids and sizes are weighted by the map value".into());
-    t.notes.push(format!("thresholds: floor {} , prominence {}, min area {} px", r.floor, r.prominence, r.min_area_px));
+    t.notes.push(format!(
+        "thresholds: floor {}, prominence {}, min area {} px",
+        crate::table::fmt_f64(r.floor),
+        crate::table::fmt_f64(r.prominence),
+        r.min_area_px
+    ));
     let f = |g: &dyn Fn(&Measurement) -> f64| rows.iter().map(|m| g(m)).collect::<Vec<f64>>();
     let i = |g: &dyn Fn(&Measurement) -> i64| rows.iter().map(|m| g(m)).collect::<Vec<i64>>();
-    t.push_i64("id", "", "structure id (ids number structures by decreasing peak; 0 holds the highest pixel)", i(&|m| m.id as i64));
-    t.push_text("kind", "leaf, branch or root", rows.iter().map(|m| m.kind.word().to_string()).collect());
-    t.push_i64("parent", "", "id of the smallest enclosing structure, -1 for none", i(&|m| m.parent));
-    t.push_i64("n_children", "", "number of children", i(&|m| m.n_children as i64));
+    t.push_i64(
+        "id",
+        "",
+        "structure id (ids number structures by decreasing peak; 0 holds the highest pixel)",
+        i(&|m| m.id as i64),
+    );
+    t.push_text(
+        "kind",
+        "leaf, branch or root",
+        rows.iter().map(|m| m.kind.word().to_string()).collect(),
+    );
+    t.push_i64(
+        "parent",
+        "",
+        "id of the smallest enclosing structure, -1 for none",
+        i(&|m| m.parent),
+    );
+    t.push_i64(
+        "n_children",
+        "",
+        "number of children",
+        i(&|m| m.n_children as i64),
+    );
     t.push_i64("depth", "", "number of ancestors", i(&|m| m.depth as i64));
-    t.push_i64("peak_x", "pixel", "column of the peak", i(&|m| m.peak_x as i64));
-    t.push_i64("peak_y", "pixel", "row of the peak", i(&|m| m.peak_y as i64));
+    t.push_i64(
+        "peak_x",
+        "pixel",
+        "column of the peak",
+        i(&|m| m.peak_x as i64),
+    );
+    t.push_i64(
+        "peak_y",
+        "pixel",
+        "row of the peak",
+        i(&|m| m.peak_y as i64),
+    );
     t.push_f64("peak", &u, "peak value", f(&|m| m.peak));
     if map.wcs.is_some() {
-        t.push_f64(&format!("{lon}_peak"), "deg", "longitude of the peak", f(&|m| m.peak_lon));
-        t.push_f64(&format!("{lat}_peak"), "deg", "latitude of the peak", f(&|m| m.peak_lat));
+        t.push_f64(
+            &format!("{lon}_peak"),
+            "deg",
+            "longitude of the peak",
+            f(&|m| m.peak_lon),
+        );
+        t.push_f64(
+            &format!("{lat}_peak"),
+            "deg",
+            "latitude of the peak",
+            f(&|m| m.peak_lat),
+        );
     }
     t.push_f64("x", "pixel", "value-weighted centroid column", f(&|m| m.x));
     t.push_f64("y", "pixel", "value-weighted centroid row", f(&|m| m.y));
@@ -279,25 +365,93 @@ pub fn catalogue(map: &Map, rows: &[&Measurement], r: &Resolved, run_meta: &[(St
         t.push_f64(lon, "deg", "longitude of the centroid", f(&|m| m.lon));
         t.push_f64(lat, "deg", "latitude of the centroid", f(&|m| m.lat));
     }
-    t.push_i64("area_px", "pixel", "number of pixels, descendants included", i(&|m| m.area_px as i64));
-    t.push_f64("radius_px", "pixel", "effective radius sqrt(area/pi)", f(&|m| m.radius_px));
-    t.push_f64("sigma_major_px", "pixel", "major-axis standard deviation of the weighted pixel positions", f(&|m| m.sigma_major_px));
-    t.push_f64("sigma_minor_px", "pixel", "minor-axis standard deviation", f(&|m| m.sigma_minor_px));
-    t.push_f64("angle_px", "deg", "major-axis angle from +x toward +y", f(&|m| m.angle_px_deg));
+    t.push_i64(
+        "area_px",
+        "pixel",
+        "number of pixels, descendants included",
+        i(&|m| m.area_px as i64),
+    );
+    t.push_f64(
+        "radius_px",
+        "pixel",
+        "effective radius sqrt(area/pi)",
+        f(&|m| m.radius_px),
+    );
+    t.push_f64(
+        "sigma_major_px",
+        "pixel",
+        "major-axis standard deviation of the weighted pixel positions",
+        f(&|m| m.sigma_major_px),
+    );
+    t.push_f64(
+        "sigma_minor_px",
+        "pixel",
+        "minor-axis standard deviation",
+        f(&|m| m.sigma_minor_px),
+    );
+    t.push_f64(
+        "angle_px",
+        "deg",
+        "major-axis angle from +x toward +y",
+        f(&|m| m.angle_px_deg),
+    );
     if map.wcs.is_some() {
         t.push_f64("area_sky", "arcsec2", "solid angle", f(&|m| m.area_arcsec2));
-        t.push_f64("radius", "arcsec", "effective radius sqrt(area/pi)", f(&|m| m.radius_arcsec));
-        t.push_f64("fwhm_major", "arcsec", "major-axis FWHM (2.3548 sigma) on the sky", f(&|m| m.fwhm_major_arcsec));
-        t.push_f64("fwhm_minor", "arcsec", "minor-axis FWHM on the sky", f(&|m| m.fwhm_minor_arcsec));
-        t.push_f64("pa", "deg", "position angle of the major axis, east of north, 0 to 180", f(&|m| m.pa_deg));
+        t.push_f64(
+            "radius",
+            "arcsec",
+            "effective radius sqrt(area/pi)",
+            f(&|m| m.radius_arcsec),
+        );
+        t.push_f64(
+            "fwhm_major",
+            "arcsec",
+            "major-axis FWHM (2.3548 sigma) on the sky",
+            f(&|m| m.fwhm_major_arcsec),
+        );
+        t.push_f64(
+            "fwhm_minor",
+            "arcsec",
+            "minor-axis FWHM on the sky",
+            f(&|m| m.fwhm_minor_arcsec),
+        );
+        t.push_f64(
+            "pa",
+            "deg",
+            "position angle of the major axis, east of north, 0 to 180",
+            f(&|m| m.pa_deg),
+        );
     }
     t.push_f64("aspect", "", "major / minor axis ratio", f(&|m| m.aspect));
-    t.push_f64("sum", &usum, "sum of the map over the structure", f(&|m| m.sum));
+    t.push_f64(
+        "sum",
+        &usum,
+        "sum of the map over the structure",
+        f(&|m| m.sum),
+    );
     t.push_f64("mean", &u, "mean value", f(&|m| m.mean));
-    t.push_f64("merge_level", &u, "level where it joins its parent (the floor for roots)", f(&|m| m.merge_level));
-    t.push_f64("excess_sum", &usum, "sum of (value - merge_level): the structure above its surroundings", f(&|m| m.sum_above_merge));
-    t.push_bool("at_edge", "touches the map border", rows.iter().map(|m| m.touches_edge).collect());
-    t.push_bool("at_missing", "touches a missing pixel", rows.iter().map(|m| m.touches_missing).collect());
+    t.push_f64(
+        "merge_level",
+        &u,
+        "level where it joins its parent (the floor for roots)",
+        f(&|m| m.merge_level),
+    );
+    t.push_f64(
+        "excess_sum",
+        &usum,
+        "sum of (value - merge_level): the structure above its surroundings",
+        f(&|m| m.sum_above_merge),
+    );
+    t.push_bool(
+        "at_edge",
+        "touches the map border",
+        rows.iter().map(|m| m.touches_edge).collect(),
+    );
+    t.push_bool(
+        "at_missing",
+        "touches a missing pixel",
+        rows.iter().map(|m| m.touches_missing).collect(),
+    );
     t
 }
 
@@ -343,17 +497,24 @@ pub fn tree_dot(h: &Hierarchy) -> String {
 /// SHA-256 of a file, hex.
 pub fn sha256_file(path: &Path) -> Result<String> {
     use std::io::Read;
-    let mut f = std::fs::File::open(path).map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
+    let mut f = std::fs::File::open(path)
+        .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
     let mut hasher = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
     loop {
-        let n = f.read(&mut buf).map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
+        let n = f
+            .read(&mut buf)
+            .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
         if n == 0 {
             break;
         }
         hasher.update(&buf[..n]);
     }
-    Ok(hasher.finalize().iter().map(|b| format!("{b:02x}")).collect())
+    Ok(hasher
+        .finalize()
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect())
 }
 
 /// A header for a label map: the input's WCS, BUNIT empty, a description.
@@ -366,9 +527,17 @@ fn label_header(map: &Map, what: &str) -> Header {
             }
         }
     }
-    h.set("CONTENT", Value::Str(what.into()), "what the pixel values are");
+    h.set(
+        "CONTENT",
+        Value::Str(what.into()),
+        "what the pixel values are",
+    );
     h.set("BLANKID", Value::Int(-1), "value of pixels in no structure");
-    h.set("ORIGIN", Value::Str(format!("cairn {}", env!("CARGO_PKG_VERSION"))), "");
+    h.set(
+        "ORIGIN",
+        Value::Str(format!("cairn {}", env!("CARGO_PKG_VERSION"))),
+        "",
+    );
     h
 }
 
@@ -376,17 +545,32 @@ fn label_header(map: &Map, what: &str) -> Header {
 pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Result<RunSummary> {
     let t0 = Instant::now();
     let r = resolve(map, o)?;
-    let mut names_list: Vec<String> = [names::CSV, names::FITS_TABLE, names::VOTABLE, names::LABELS, names::TREE_JSON, names::TREE_DOT, names::RUN]
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
+    let mut names_list: Vec<String> = [
+        names::CSV,
+        names::FITS_TABLE,
+        names::VOTABLE,
+        names::LABELS,
+        names::TREE_JSON,
+        names::TREE_DOT,
+        names::RUN,
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
     if o.grow_leaves {
         names_list.push(names::GROWN.into());
     }
     let outputs = Outputs::plan(&o.output, &names_list, o.force)?;
-    let params = Params { floor: r.floor, prominence: r.prominence, min_area: r.min_area_px, connectivity: o.connectivity };
+    let params = Params {
+        floor: r.floor,
+        prominence: r.prominence,
+        min_area: r.min_area_px,
+        connectivity: o.connectivity,
+    };
     let t_tree = Instant::now();
-    let h = match hierarchy::build_with_progress(map.data.view(), &params, &|f| progress("hierarchy", f)) {
+    let h = match hierarchy::build_with_progress(map.data.view(), &params, &|f| {
+        progress("hierarchy", f)
+    }) {
         Ok(h) => h,
         Err(hierarchy::HierarchyError::FloorAboveMaximum { floor, max }) => {
             return Err(Error::usage(format!(
@@ -399,34 +583,96 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let tree_seconds = t_tree.elapsed().as_secs_f64();
     progress("measure", 0.0);
     let ms = measure::measure_all(&h, map.wcs.as_ref());
-    let grown = o.grow_leaves.then(|| hierarchy::grow_leaves(map.data.view(), &h, r.floor));
+    let grown = o
+        .grow_leaves
+        .then(|| hierarchy::grow_leaves(map.data.view(), &h, r.floor));
     progress("measure", 1.0);
 
     let input_sha = sha256_file(&map.path)?;
     let meta: Vec<(String, String, String)> = vec![
-        ("input".into(), map.path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default(), "input map".into()),
-        ("input_sha256".into(), input_sha.clone(), "SHA-256 of the input file".into()),
+        (
+            "input".into(),
+            map.path
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default(),
+            "input map".into(),
+        ),
+        (
+            "input_sha256".into(),
+            input_sha.clone(),
+            "SHA-256 of the input file".into(),
+        ),
         ("hdu".into(), map.hdu_index.to_string(), "HDU read".into()),
-        ("unit".into(), map.unit_text.clone(), "unit of the map".into()),
-        ("floor".into(), format!("{}", r.floor), format!("map units (given as {})", r.given[0])),
-        ("prominence".into(), format!("{}", r.prominence), format!("map units (given as {})", r.given[1])),
-        ("min_area".into(), r.min_area_px.to_string(), format!("pixels (given as {})", r.given[2])),
-        ("connectivity".into(), match o.connectivity { Connectivity::Four => "4", Connectivity::Eight => "8" }.into(), "pixel adjacency".into()),
-        ("noise".into(), r.noise.map(|n| format!("{n}")).unwrap_or_else(|| "none".into()), r.noise_source.clone()),
-        ("version".into(), env!("CARGO_PKG_VERSION").into(), "cairn version".into()),
+        (
+            "unit".into(),
+            map.unit_text.clone(),
+            "unit of the map".into(),
+        ),
+        (
+            "floor".into(),
+            crate::table::fmt_f64(r.floor),
+            format!("map units (given as {})", r.given[0]),
+        ),
+        (
+            "prominence".into(),
+            crate::table::fmt_f64(r.prominence),
+            format!("map units (given as {})", r.given[1]),
+        ),
+        (
+            "min_area".into(),
+            r.min_area_px.to_string(),
+            format!("pixels (given as {})", r.given[2]),
+        ),
+        (
+            "connectivity".into(),
+            match o.connectivity {
+                Connectivity::Four => "4",
+                Connectivity::Eight => "8",
+            }
+            .into(),
+            "pixel adjacency".into(),
+        ),
+        (
+            "noise".into(),
+            r.noise
+                .map(crate::table::fmt_f64)
+                .unwrap_or_else(|| "none".into()),
+            r.noise_source.clone(),
+        ),
+        (
+            "version".into(),
+            env!("CARGO_PKG_VERSION").into(),
+            "cairn version".into(),
+        ),
     ];
-    let rows: Vec<&Measurement> = ms.iter().filter(|m| !o.leaves_only || m.kind == Kind::Leaf).collect();
+    let rows: Vec<&Measurement> = ms
+        .iter()
+        .filter(|m| !o.leaves_only || m.kind == Kind::Leaf)
+        .collect();
     let table = catalogue(map, &rows, &r, &meta);
     output::write_bytes(&outputs.temp(names::CSV), table.to_csv().as_bytes())?;
     table.write_fits(&outputs.temp(names::FITS_TABLE))?;
     output::write_bytes(&outputs.temp(names::VOTABLE), table.to_votable().as_bytes())?;
-    crate::fits_write::write_image_i32(&outputs.temp(names::LABELS), h.labels.view(), &label_header(map, "smallest structure id per pixel"), true)
-        .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
+    crate::fits_write::write_image_i32(
+        &outputs.temp(names::LABELS),
+        h.labels.view(),
+        &label_header(map, "smallest structure id per pixel"),
+        true,
+    )
+    .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
     if let Some(g) = &grown {
-        crate::fits_write::write_image_i32(&outputs.temp(names::GROWN), g.view(), &label_header(map, "leaf id per pixel, grown to the floor"), true)
-            .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
+        crate::fits_write::write_image_i32(
+            &outputs.temp(names::GROWN),
+            g.view(),
+            &label_header(map, "leaf id per pixel, grown to the floor"),
+            true,
+        )
+        .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
     }
-    let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map)).map_err(|e| Error::internal(e.to_string()))? + "\n";
+    let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
+        .map_err(|e| Error::internal(e.to_string()))?
+        + "\n";
     output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
     output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
 
@@ -454,8 +700,16 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         "threads": rayon::current_num_threads(),
         "warnings": map.warnings,
     });
-    let rec = serde_json::to_string_pretty(&record).map_err(|e| Error::internal(e.to_string()))? + "\n";
+    let rec =
+        serde_json::to_string_pretty(&record).map_err(|e| Error::internal(e.to_string()))? + "\n";
     output::write_bytes(&outputs.temp(names::RUN), rec.as_bytes())?;
     let files = outputs.commit()?;
-    Ok(RunSummary { leaves, branches, roots, thresholds: r, seconds: t0.elapsed().as_secs_f64(), files })
+    Ok(RunSummary {
+        leaves,
+        branches,
+        roots,
+        thresholds: r,
+        seconds: t0.elapsed().as_secs_f64(),
+        files,
+    })
 }

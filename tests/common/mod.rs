@@ -5,7 +5,9 @@ use std::path::PathBuf;
 
 /// Path of a file under `fixtures/`.
 pub fn fixture_path(rel: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures").join(rel)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("fixtures")
+        .join(rel)
 }
 
 /// Reads a JSON fixture written by a script in `tests/oracle/`.
@@ -35,5 +37,9 @@ pub fn nums(v: &serde_json::Value) -> Vec<f64> {
 /// Asserts |a - b| <= abs_tol + rel_tol * |b|, with a message naming what is compared.
 pub fn assert_close(a: f64, b: f64, rel_tol: f64, abs_tol: f64, what: &str) {
     let ok = (a.is_nan() && b.is_nan()) || (a - b).abs() <= abs_tol + rel_tol * b.abs();
-    assert!(ok, "{what}: cairn {a:.17e}, reference {b:.17e}, difference {:.3e}", a - b);
+    assert!(
+        ok,
+        "{what}: cairn {a:.17e}, reference {b:.17e}, difference {:.3e}",
+        a - b
+    );
 }
