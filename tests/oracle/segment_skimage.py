@@ -1,0 +1,91 @@
+"""Reference measurements of cairn's structures, made on cairn's own label map.
+
+Inputs (made by cairn, see examples/make_segment_fixture.rs): fixtures/segment/map.fits, and
+run/labels.fits, run/hierarchy.json, run/structures.csv under fixtures/segment/.
+
+For every structure, its pixels are those whose smallest structure is it or one of its
+descendants (from hierarchy.json). Sources:
+* scikit-image 0.26.0 skimage.measure.regionprops on the structure's mask with the map as
+  intensity image: area, centroid, centroid_weighted, moments_weighted_central (weighted
+  covariance = mu / mu00), orientation, axis_major_length and axis_minor_length (unweighted,
+  4 standard deviations). regionprops' orientation is the angle between the rows axis and
+  the major axis; the direction of that axis in (column, row) is (sin o, cos o).
+* astropy 8.0.2 astropy.wcs.WCS.all_pix2world (origin 0) of cairn's catalogue pixel
+  positions (peak_x, peak_y and the weighted centroid x, y).
+"""
+import csv
+import json
+import os
+
+import numpy as np
+from astropy.io import fits
+from astropy.wcs import WCS
+from skimage.measure import regionprops
+
+from common import fixtures_dir, out_dir, write_json
+
+SRC = os.path.join(fixtures_dir(), "segment")
+OUT = out_dir("segment")
+
+with fits.open(os.path.join(SRC, "map.fits")) as h:
+    image = h[0].data.astype(np.float64)
+    wcs = WCS(h[0].header)
+with fits.open(os.path.join(SRC, "run", "labels.fits")) as h:
+    labels = h[0].data.astype(np.int64)
+with open(os.path.join(SRC, "run", "hierarchy.json")) as f:
+    tree = json.load(f)
+with open(os.path.join(SRC, "run", "structures.csv")) as f:
+    rows = list(csv.DictReader(line for line in f if not line.startswith("#")))
+
+children = {s["id"]: s["children"] for s in tree["structures"]}
+
+
+def subtree(i):
+    out, todo = [], [i]
+    while todo:
+        k = todo.pop()
+        out.append(k)
+        todo.extend(children[k])
+    return out
+
+
+result = {}
+for s in tree["structures"]:
+    i = s["id"]
+    mask = np.isin(labels, subtree(i)).astype(np.int64)
+    # Missing pixels never carry a label, so the intensity image has no NaN inside the mask.
+    intensity = np.where(np.isfinite(image), image, 0.0)
+    p = regionprops(mask, intensity_image=intensity)[0]
+    mu = p.moments_weighted_central
+    o = p.orientation
+    result[str(i)] = {
+        "area": p.area,
+        "centroid_row": p.centroid[0],
+        "centroid_col": p.centroid[1],
+        "weighted_row": p.centroid_weighted[0],
+        "weighted_col": p.centroid_weighted[1],
+        "cov_rr": mu[2, 0] / mu[0, 0],
+        "cov_cc": mu[0, 2] / mu[0, 0],
+        "cov_rc": mu[1, 1] / mu[0, 0],
+        "major_dir_col": np.sin(o),
+        "major_dir_row": np.cos(o),
+        "axis_major_length": p.axis_major_length,
+        "axis_minor_length": p.axis_minor_length,
+    }
+
+sky = {}
+for r in rows:
+    px, py = float(r["peak_x"]), float(r["peak_y"])
+    cx, cy = float(r["x"]), float(r["y"])
+    (plon, plat), (clon, clat) = wcs.all_pix2world([[px, py], [cx, cy]], 0)
+    sky[r["id"]] = {"peak_lon": plon, "peak_lat": plat, "lon": clon, "lat": clat}
+
+import astropy
+import skimage
+
+write_json(os.path.join(OUT, "reference.json"), {
+    "skimage": skimage.__version__,
+    "astropy": astropy.__version__,
+    "regionprops": result,
+    "sky": sky,
+})

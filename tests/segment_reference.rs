@@ -1,0 +1,225 @@
+//! The catalogue and label maps of `cairn segment` against scikit-image and astropy.
+//!
+//! fixtures/segment/ holds a synthetic map and cairn's stored run on it; the reference values
+//! in fixtures/segment/reference.json come from tests/oracle/segment_skimage.py:
+//! scikit-image 0.26.0 `regionprops` on cairn's own label map, and astropy 8.0.2
+//! `WCS.all_pix2world` of cairn's catalogue pixel positions.
+
+mod common;
+#[allow(dead_code)]
+#[path = "common/segment_fixture.rs"]
+mod segment_fixture;
+
+use std::collections::HashMap;
+
+use cairn::hierarchy::{self, Params};
+use cairn::map::{self, LoadOptions};
+use common::{assert_close, fixture_json, fixture_path, num};
+
+fn read_csv(path: &std::path::Path) -> Vec<HashMap<String, String>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    lines
+        .map(|l| {
+            header
+                .iter()
+                .cloned()
+                .zip(l.split(',').map(str::to_string))
+                .collect()
+        })
+        .collect()
+}
+
+fn f(row: &HashMap<String, String>, k: &str) -> f64 {
+    row[k].parse().unwrap_or(f64::NAN)
+}
+
+#[test]
+fn stored_run_is_what_cairn_makes_now() {
+    // The oracle measured the stored run; it must still be cairn's output, byte for byte.
+    let m = map::load(&fixture_path("segment/map.fits"), &LoadOptions::default()).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("run");
+    cairn::segment::run(&m, &segment_fixture::fixture_options(&out), &|_, _| {}).unwrap();
+    for name in [
+        "structures.csv",
+        "structures.fits",
+        "structures.vot",
+        "labels.fits",
+        "leaves-grown.fits",
+        "hierarchy.json",
+        "hierarchy.dot",
+    ] {
+        let fresh = std::fs::read(out.join(name)).unwrap();
+        let stored = std::fs::read(fixture_path(&format!("segment/run/{name}"))).unwrap();
+        assert!(
+            fresh == stored,
+            "{name} differs from fixtures/segment/run/{name}: re-run the example and the oracle"
+        );
+    }
+}
+
+#[test]
+fn catalogue_matches_regionprops_on_cairns_label_map() {
+    let reference = fixture_json("segment/reference.json");
+    let rp = reference["regionprops"].as_object().unwrap();
+    let rows = read_csv(&fixture_path("segment/run/structures.csv"));
+    assert_eq!(rows.len(), rp.len());
+    assert!(rows.iter().any(|r| r["kind"] == "leaf") && rows.iter().any(|r| r["kind"] == "branch"));
+    // The unweighted sums come from the library's hierarchy with the run's thresholds.
+    let m = map::load(&fixture_path("segment/map.fits"), &LoadOptions::default()).unwrap();
+    let params = Params {
+        floor: 3.2e21,
+        prominence: 6.0e20,
+        min_area: 4,
+        connectivity: hierarchy::Connectivity::Eight,
+    };
+    let h = hierarchy::build(m.data.view(), &params).unwrap();
+    for row in &rows {
+        let id = &row["id"];
+        let r = &rp[id.as_str()];
+        let what = |k: &str| format!("structure {id} {k}");
+        // scikit-image 0.26.0 regionprops: area and value-weighted centroid.
+        assert_eq!(f(row, "area_px"), num(&r["area"]), "{}", what("area"));
+        assert_close(
+            f(row, "x"),
+            num(&r["weighted_col"]),
+            1e-12,
+            1e-9,
+            &what("weighted centroid x"),
+        );
+        assert_close(
+            f(row, "y"),
+            num(&r["weighted_row"]),
+            1e-12,
+            1e-9,
+            &what("weighted centroid y"),
+        );
+        // regionprops moments_weighted_central / mu00: the weighted covariance, whose
+        // eigenvalues are cairn's sigma_major_px^2 and sigma_minor_px^2.
+        let (a, b, c) = (num(&r["cov_cc"]), num(&r["cov_rc"]), num(&r["cov_rr"]));
+        let mean = 0.5 * (a + c);
+        let half = (0.25 * (a - c) * (a - c) + b * b).sqrt();
+        assert_close(
+            f(row, "sigma_major_px"),
+            (mean + half).sqrt(),
+            1e-9,
+            1e-9,
+            &what("sigma_major_px"),
+        );
+        assert_close(
+            f(row, "sigma_minor_px"),
+            (mean - half).max(0.0).sqrt(),
+            1e-9,
+            1e-9,
+            &what("sigma_minor_px"),
+        );
+        let phi = f(row, "angle_px").to_radians();
+        let expected = 0.5 * (2.0 * b).atan2(a - c);
+        assert!(
+            ((phi - expected).sin()).abs() < 1e-9,
+            "{}: {phi} vs {expected}",
+            what("angle_px")
+        );
+        // regionprops centroid, orientation and axis lengths (unweighted) against the same
+        // structure's unweighted sums in cairn's hierarchy.
+        let s = &h.structures[id.parse::<usize>().unwrap()];
+        let n = s.sums.n as f64;
+        let (ux, uy) = s.sums.centroid();
+        assert_close(
+            ux,
+            num(&r["centroid_col"]),
+            1e-12,
+            1e-9,
+            &what("centroid x"),
+        );
+        assert_close(
+            uy,
+            num(&r["centroid_row"]),
+            1e-12,
+            1e-9,
+            &what("centroid y"),
+        );
+        let cxx = s.sums.uxx / n - ux * ux;
+        let cyy = s.sums.uyy / n - uy * uy;
+        let cxy = s.sums.uxy / n - ux * uy;
+        let e = cairn::measure::ellipse(cxx, cxy, cyy);
+        // regionprops axis lengths are 4 standard deviations.
+        assert_close(
+            4.0 * e.sigma_major,
+            num(&r["axis_major_length"]),
+            1e-9,
+            1e-9,
+            &what("axis_major_length"),
+        );
+        assert_close(
+            4.0 * e.sigma_minor,
+            num(&r["axis_minor_length"]),
+            1e-9,
+            1e-7,
+            &what("axis_minor_length"),
+        );
+        if (e.sigma_major - e.sigma_minor) > 1e-6 {
+            // regionprops orientation o: major axis along (column, row) = (sin o, cos o).
+            let dot =
+                e.angle.cos() * num(&r["major_dir_col"]) + e.angle.sin() * num(&r["major_dir_row"]);
+            assert!(
+                (dot.abs() - 1.0).abs() < 1e-9,
+                "{}: |cos| = {}",
+                what("major-axis direction"),
+                dot.abs()
+            );
+        }
+    }
+}
+
+#[test]
+fn catalogue_sky_positions_match_astropy() {
+    let reference = fixture_json("segment/reference.json");
+    let rows = read_csv(&fixture_path("segment/run/structures.csv"));
+    for row in &rows {
+        let r = &reference["sky"][row["id"].as_str()];
+        // astropy 8.0.2 WCS.all_pix2world (origin 0) of cairn's own pixel positions.
+        for (mine, theirs) in [
+            ("ra_peak", "peak_lon"),
+            ("dec_peak", "peak_lat"),
+            ("ra", "lon"),
+            ("dec", "lat"),
+        ] {
+            assert_close(
+                f(row, mine),
+                num(&r[theirs]),
+                0.0,
+                1e-9,
+                &format!("structure {} {mine}", row["id"]),
+            );
+        }
+    }
+}
+
+#[test]
+fn label_maps_carry_the_maps_sky_coordinates() {
+    let m = map::load(&fixture_path("segment/map.fits"), &LoadOptions::default()).unwrap();
+    let opts = LoadOptions {
+        require_unit: false,
+        ..LoadOptions::default()
+    };
+    let l = map::load(&fixture_path("segment/run/labels.fits"), &opts).unwrap();
+    let (w1, w2) = (m.wcs.unwrap(), l.wcs.unwrap());
+    for (x, y) in [(0.0, 0.0), (159.0, 127.0), (80.5, 3.25)] {
+        let (a, b) = (
+            w1.pixel_to_sky(x, y).unwrap(),
+            w2.pixel_to_sky(x, y).unwrap(),
+        );
+        assert!(
+            (a.0 - b.0).abs() < 1e-12 && (a.1 - b.1).abs() < 1e-12,
+            "({x}, {y}): {a:?} vs {b:?}"
+        );
+    }
+}
