@@ -4,7 +4,7 @@
 //! `cargo bench --bench hierarchy -- 4096` to add 4096^2. Plain std::time timing, best of a
 //! few runs.
 
-use cairn::hierarchy::{Connectivity, Params, build};
+use cairn::hierarchy::{Connectivity, Params, build, build_with_progress};
 use ndarray::Array2;
 use rayon::prelude::*;
 use std::time::{Duration, Instant};
@@ -121,6 +121,18 @@ fn main() {
                 connectivity: Connectivity::Eight,
             };
             let (t, h) = best_of(runs, || build(map.view(), &p).unwrap());
+            // Phase times from the progress hook: it reports 0.3 after the sort and 0.9 after
+            // the sweep.
+            let start = Instant::now();
+            let marks = std::cell::RefCell::new(Vec::new());
+            build_with_progress(map.view(), &p, &|f| {
+                if f == 0.3 || f == 0.9 {
+                    marks.borrow_mut().push(start.elapsed().as_secs_f64());
+                }
+            })
+            .unwrap();
+            let total = start.elapsed().as_secs_f64();
+            let m = marks.into_inner();
             println!(
                 "{n}^2 {label}: engine {:.3} s, sort {:.3} s, ratio {:.2} ({} structures, {} leaves)",
                 t.as_secs_f64(),
@@ -128,6 +140,12 @@ fn main() {
                 t.as_secs_f64() / t_sort.as_secs_f64(),
                 h.structures.len(),
                 h.leaves().len()
+            );
+            println!(
+                "    phases of one more run: checks + sort {:.3} s, sweep {:.3} s, labels + moments {:.3} s",
+                m[0],
+                m[1] - m[0],
+                total - m[1]
             );
         }
     }

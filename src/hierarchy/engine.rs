@@ -310,7 +310,7 @@ pub fn build_with_progress(
 }
 
 /// How many pixels ahead the sweep prefetches.
-const AHEAD: usize = 12;
+const AHEAD: usize = 32;
 
 /// Visits the pixels in `keys` order, merging components and simplifying on the fly. Returns
 /// the nodes and, per pixel, `1 +` the open node of its component when it was visited (0 for
