@@ -35,8 +35,8 @@ fn blur_rows(a: &mut Array2<f32>, r: usize) {
         for i in 0..=2 * r {
             s += row[i.saturating_sub(r).min(n - 1)] as f64;
         }
-        for x in 0..n {
-            buf[x] = (s / (2 * r + 1) as f64) as f32;
+        for (x, b) in buf.iter_mut().enumerate() {
+            *b = (s / (2 * r + 1) as f64) as f32;
             let out = x.saturating_sub(r);
             let inn = (x + r + 1).min(n - 1);
             s += row[inn] as f64 - row[out] as f64;
