@@ -24,6 +24,16 @@ pub(super) fn order_key(v: f32) -> u32 {
     }
 }
 
+/// The value whose [`order_key`] is `k`.
+#[inline]
+pub(super) fn from_order_key(k: u32) -> f32 {
+    f32::from_bits(if k & 0x8000_0000 != 0 {
+        k & 0x7fff_ffff
+    } else {
+        !k
+    })
+}
+
 /// The sort key of pixel `idx`: ascending keys visit higher values first, then lower indices.
 #[inline]
 pub(super) fn sort_key(v: f32, idx: usize) -> u64 {
@@ -55,20 +65,49 @@ fn before(va: f32, ia: u32, vb: f32, ib: u32) -> bool {
     va > vb || (va == vb && ia < ib)
 }
 
+/// Low half of a cell: union-find parent, or `ROOT | open node` at a component root.
 #[inline]
-fn find(parent: &mut [u32], mut x: u32) -> u32 {
+fn link(c: u64) -> u32 {
+    c as u32
+}
+
+/// Sets the low half of a cell.
+#[inline]
+fn set_link(cells: &mut [u64], x: u32, to: u32) {
+    let c = &mut cells[x as usize];
+    *c = (*c & !0xFFFF_FFFF) | to as u64;
+}
+
+#[inline]
+fn find(cells: &mut [u64], mut x: u32) -> u32 {
     loop {
-        let px = parent[x as usize];
+        let px = link(cells[x as usize]);
         if px & ROOT != 0 {
             return x;
         }
-        let ppx = parent[px as usize];
+        let ppx = link(cells[px as usize]);
         if ppx & ROOT != 0 {
             return px;
         }
-        parent[x as usize] = ppx;
+        set_link(cells, x, ppx);
         x = ppx;
     }
+}
+
+/// Asks the processor to fetch the cache line holding `cells[i]`.
+#[inline(always)]
+fn prefetch(cells: &[u64], i: usize) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        let ptr = cells[i..].as_ptr() as *const i8;
+        // SAFETY: a prefetch is only a hint; it never faults and `ptr` points into `cells`.
+        #[allow(unused_unsafe)]
+        unsafe {
+            std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(ptr)
+        };
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = (cells, i);
 }
 
 fn find_alias(nodes: &mut [Node], x: u32) -> u32 {
@@ -148,8 +187,7 @@ pub fn build_with_progress(
     progress(0.3);
 
     // 2. Sweep.
-    let mut labels: Vec<i32> = vec![-1; npix];
-    let mut nodes = sweep(data, ncols, &keys, params, &mut labels, progress);
+    let (mut nodes, cells) = sweep(npix, ncols, &keys, params, progress);
     drop(keys);
     progress(0.9);
 
@@ -197,11 +235,14 @@ pub fn build_with_progress(
         node_id[n as usize] = id as i32;
     }
     let label_of: Vec<i32> = (0..nn).map(|n| node_id[nodes[n].alias as usize]).collect();
-    labels.par_iter_mut().for_each(|l| {
-        if *l >= 0 {
-            *l = label_of[*l as usize];
-        }
-    });
+    let labels: Vec<i32> = cells
+        .par_iter()
+        .map(|&c| match c >> 32 {
+            0 => -1,
+            n => label_of[n as usize - 1],
+        })
+        .collect();
+    drop(cells);
 
     let mut structures: Vec<Structure> = order
         .iter()
@@ -268,19 +309,25 @@ pub fn build_with_progress(
     })
 }
 
-/// Visits the pixels in `keys` order, merging components and simplifying on the fly. Writes
-/// the open node of each pixel's component at the time it was visited into `labels`.
+/// How many pixels ahead the sweep prefetches.
+const AHEAD: usize = 32;
+
+/// Visits the pixels in `keys` order, merging components and simplifying on the fly. Returns
+/// the nodes and, per pixel, `1 +` the open node of its component when it was visited (0 for
+/// pixels never visited).
+///
+/// Each pixel has one 64-bit cell: high half `1 + node` once visited (so "visited before p"
+/// is "high half non-zero", with no look at the map), low half its union-find link. Keeping
+/// both in one word halves the cache misses of the sweep, whose order is spatially random.
 fn sweep(
-    data: &[f32],
+    npix: usize,
     ncols: usize,
     keys: &[u64],
     params: &Params,
-    labels: &mut [i32],
     progress: &dyn Fn(f64),
-) -> Vec<Node> {
-    let npix = data.len();
+) -> (Vec<Node>, Vec<u64>) {
     let nrows = npix / ncols;
-    let mut uf: Vec<u32> = vec![0; npix];
+    let mut cells: Vec<u64> = vec![0; npix];
     let mut nodes: Vec<Node> = Vec::new();
     let eight = matches!(params.connectivity, super::Connectivity::Eight);
     let min_area = params.min_area;
@@ -290,17 +337,22 @@ fn sweep(
         if step % PROGRESS_STEP == 0 && step > 0 {
             progress(0.3 + 0.6 * step as f64 / nkeys as f64);
         }
+        if let Some(&ahead) = keys.get(step + AHEAD) {
+            let q = ahead as u32 as usize;
+            prefetch(&cells, q.saturating_sub(ncols));
+            prefetch(&cells, q);
+            prefetch(&cells, (q + ncols).min(npix - 1));
+        }
         let p = key as u32 as usize;
-        let v = data[p];
+        let v = from_order_key(!((key >> 32) as u32));
         let x = p % ncols;
         let y = p / ncols;
         // Distinct components among the neighbours visited before p.
         let mut roots = [0u32; 8];
         let mut k = 0usize;
-        let mut visit = |q: usize, uf: &mut Vec<u32>| {
-            let vq = data[q];
-            if vq > v || (vq == v && q < p) {
-                let r = find(uf, q as u32);
+        let mut visit = |q: usize, cells: &mut Vec<u64>| {
+            if cells[q] >> 32 != 0 {
+                let r = find(cells, q as u32);
                 if !roots[..k].contains(&r) {
                     roots[k] = r;
                     k += 1;
@@ -310,29 +362,29 @@ fn sweep(
         let (left, right, up, down) = (x > 0, x + 1 < ncols, y > 0, y + 1 < nrows);
         if up {
             if eight && left {
-                visit(p - ncols - 1, &mut uf);
+                visit(p - ncols - 1, &mut cells);
             }
-            visit(p - ncols, &mut uf);
+            visit(p - ncols, &mut cells);
             if eight && right {
-                visit(p - ncols + 1, &mut uf);
+                visit(p - ncols + 1, &mut cells);
             }
         }
         if left {
-            visit(p - 1, &mut uf);
+            visit(p - 1, &mut cells);
         }
         if right {
-            visit(p + 1, &mut uf);
+            visit(p + 1, &mut cells);
         }
         if down {
             if eight && left {
-                visit(p + ncols - 1, &mut uf);
+                visit(p + ncols - 1, &mut cells);
             }
-            visit(p + ncols, &mut uf);
+            visit(p + ncols, &mut cells);
             if eight && right {
-                visit(p + ncols + 1, &mut uf);
+                visit(p + ncols + 1, &mut cells);
             }
         }
-        match k {
+        let (link_p, node_p) = match k {
             0 => {
                 let n = nodes.len() as u32;
                 nodes.push(Node {
@@ -344,47 +396,45 @@ fn sweep(
                     level: f32::NAN,
                     merge: f32::NAN,
                 });
-                uf[p] = ROOT | n;
-                labels[p] = n as i32;
+                (ROOT | n, n)
             }
             1 => {
                 let r = roots[0];
-                let n = uf[r as usize] & !ROOT;
+                let n = link(cells[r as usize]) & !ROOT;
                 nodes[n as usize].area += 1;
-                uf[p] = r;
-                labels[p] = n as i32;
+                (r, n)
             }
             _ => {
                 // Union by size: the largest component's root stays the root.
                 let mut big = roots[0];
                 let mut big_area = 0u32;
                 for &r in &roots[..k] {
-                    let a = nodes[(uf[r as usize] & !ROOT) as usize].area;
+                    let a = nodes[(link(cells[r as usize]) & !ROOT) as usize].area;
                     if a > big_area {
                         big_area = a;
                         big = r;
                     }
                 }
-                let t = merge(&uf, &mut nodes, &roots[..k], v, min_area, prominence);
+                let t = merge(&cells, &mut nodes, &roots[..k], v, min_area, prominence);
                 for &r in &roots[..k] {
                     if r != big {
-                        uf[r as usize] = big;
+                        set_link(&mut cells, r, big);
                     }
                 }
-                uf[big as usize] = ROOT | t;
-                uf[p] = big;
-                labels[p] = t as i32;
+                set_link(&mut cells, big, ROOT | t);
+                (big, t)
             }
-        }
+        };
+        cells[p] = ((node_p as u64 + 1) << 32) | link_p as u64;
     }
-    nodes
+    (nodes, cells)
 }
 
 /// Joins the components rooted at `roots` at pixel value `v`; returns the open node of the
 /// joined component (with its area counting the new pixel). Areas of the old open nodes are
 /// left untouched for the caller's union by size.
 fn merge(
-    uf: &[u32],
+    cells: &[u64],
     nodes: &mut Vec<Node>,
     roots: &[u32],
     v: f32,
@@ -400,7 +450,7 @@ fn merge(
     let mut best_sig: Option<usize> = None; // best peak among significant
     let mut best_same: Option<usize> = None; // best peak among same-level branches
     for i in 0..k {
-        let n = uf[roots[i] as usize] & !ROOT;
+        let n = link(cells[roots[i] as usize]) & !ROOT;
         open[i] = n;
         let nd = &nodes[n as usize];
         total += nd.area;

@@ -137,6 +137,7 @@ pub(super) fn fill(
     let nblocks = (npix / (ns * 64)).clamp(1, 32).min(nrows.max(1));
     let rows_per = nrows.div_ceil(nblocks);
     let offs = conn.offsets();
+    let any_missing = map.par_iter().any(|v| v.is_nan());
     let blocks: Vec<Vec<Own>> = (0..nblocks)
         .into_par_iter()
         .map(|b| {
@@ -159,7 +160,7 @@ pub(super) fn fill(
                     if x == 0 || y == 0 || x + 1 == ncols || y + 1 == nrows {
                         a.edge = true;
                     }
-                    if !a.missing {
+                    if any_missing && !a.missing {
                         for &(dy, dx) in offs {
                             let yy = y as isize + dy;
                             let xx = x as isize + dx;

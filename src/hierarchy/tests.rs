@@ -227,3 +227,26 @@ fn grown_leaves_cover_everything_above_the_floor() {
             .all(|(&l, &v)| (l >= 0) == (v >= 0.5))
     );
 }
+
+#[test]
+fn order_keys_sort_values_and_decode_back() {
+    let vals = [
+        f32::NEG_INFINITY,
+        -3.5,
+        -1e-30,
+        -0.0,
+        0.0,
+        1e-30,
+        2.0,
+        f32::INFINITY,
+    ];
+    for w in vals.windows(2) {
+        assert!(engine::order_key(w[0]) <= engine::order_key(w[1]), "{w:?}");
+    }
+    assert_eq!(engine::order_key(-0.0), engine::order_key(0.0));
+    for v in vals {
+        let back = engine::from_order_key(engine::order_key(v));
+        assert_eq!(back, v + 0.0);
+        assert_eq!(back.to_bits(), (v + 0.0).to_bits());
+    }
+}
