@@ -51,10 +51,10 @@ struct SegmentArgs {
     #[arg(long, value_name = "LEVEL", allow_hyphen_values = true)]
     floor: Option<String>,
     /// How far a peak must rise above the level where it meets a neighbour (3sigma, or map units).
-    #[arg(long, value_name = "LEVEL")]
+    #[arg(long, value_name = "LEVEL", allow_hyphen_values = true)]
     prominence: Option<String>,
     /// Least area of a leaf: pixels (12px or 12), beams (1beam) or sky area (400arcsec2).
-    #[arg(long, value_name = "AREA")]
+    #[arg(long, value_name = "AREA", allow_hyphen_values = true)]
     min_area: Option<String>,
     /// Pixel adjacency: 4 (edges) or 8 (edges and corners).
     #[arg(long, default_value = "8", value_name = "4|8")]

@@ -1,0 +1,208 @@
+//! `cairn segment` from the command line: outputs, empty results and bad thresholds. Each
+//! refusal is one sentence, exit code 2, no panic and no output written.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+fn cairn(args: &[&str], dir: &Path) -> (i32, String, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap();
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+fn fixture_map() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures/segment/map.fits")
+}
+
+fn refused(dir: &Path, args: &[&str], says: &str) {
+    let before: Vec<_> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    let (code, stdout, stderr) = cairn(args, dir);
+    assert_eq!(code, 2, "{args:?}: {stderr}");
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert_eq!(
+        stderr.trim_end().lines().count(),
+        1,
+        "one sentence: {stderr}"
+    );
+    assert!(
+        stderr.contains(says),
+        "{args:?} should say '{says}': {stderr}"
+    );
+    assert!(stdout.is_empty(), "{stdout}");
+    let after: Vec<_> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    assert_eq!(before, after, "{args:?}: nothing written");
+}
+
+#[test]
+fn writes_every_output_and_refuses_to_overwrite_without_force() {
+    let d = tempfile::tempdir().unwrap();
+    let map = fixture_map();
+    let m = map.to_str().unwrap();
+    let (code, stdout, stderr) = cairn(
+        &[
+            "segment",
+            m,
+            "-o",
+            "run",
+            "--floor",
+            "3.2e21",
+            "--prominence",
+            "6e20",
+            "--noise",
+            "1e20",
+            "--grow-leaves",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stdout.contains("leaves") && stdout.contains("branches") && stdout.contains("roots"),
+        "{stdout}"
+    );
+    for name in [
+        "structures.csv",
+        "structures.fits",
+        "structures.vot",
+        "labels.fits",
+        "leaves-grown.fits",
+        "hierarchy.json",
+        "hierarchy.dot",
+        "run.json",
+    ] {
+        assert!(d.path().join("run").join(name).is_file(), "{name} written");
+    }
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("run/run.json")).unwrap())
+            .unwrap();
+    assert_eq!(run["input"]["sha256"].as_str().unwrap().len(), 64);
+    assert_eq!(run["parameters"]["floor"]["unit"], "cm-2");
+    assert!(run["threads"].as_u64().unwrap() >= 1);
+    let before = std::fs::read(d.path().join("run/structures.csv")).unwrap();
+    let (code, _, stderr) = cairn(&["segment", m, "-o", "run", "--floor", "4e21"], d.path());
+    assert_eq!(code, 2);
+    assert!(stderr.contains("--force"), "{stderr}");
+    assert_eq!(
+        std::fs::read(d.path().join("run/structures.csv")).unwrap(),
+        before,
+        "untouched without --force"
+    );
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            m,
+            "-o",
+            "run",
+            "--floor",
+            "4e21",
+            "--noise",
+            "1e20",
+            "--force",
+            "--leaves-only",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let csv = std::fs::read_to_string(d.path().join("run/structures.csv")).unwrap();
+    assert!(
+        !csv.contains(",branch,") && !csv.contains(",root,"),
+        "leaves only"
+    );
+}
+
+#[test]
+fn thresholds_that_leave_nothing_give_valid_empty_outputs() {
+    let d = tempfile::tempdir().unwrap();
+    let map = fixture_map();
+    let (code, stdout, stderr) = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "empty",
+            "--floor",
+            "3e21",
+            "--prominence",
+            "1e30",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stdout.contains("0 leaves") && stdout.contains("no structure passes"),
+        "{stdout}"
+    );
+    let csv = std::fs::read_to_string(d.path().join("empty/structures.csv")).unwrap();
+    let data_lines: Vec<_> = csv.lines().filter(|l| !l.starts_with('#')).collect();
+    assert_eq!(data_lines.len(), 1, "header row only: {csv}");
+    let tree: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(d.path().join("empty/hierarchy.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(tree["structures"].as_array().unwrap().len(), 0);
+}
+
+#[test]
+fn bad_thresholds_and_output_folders_are_refused() {
+    let d = tempfile::tempdir().unwrap();
+    let map = fixture_map();
+    let m = map.to_str().unwrap();
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--floor", "1e30"],
+        "lies above the highest value",
+    );
+    refused(
+        d.path(),
+        &[
+            "segment",
+            m,
+            "-o",
+            "a",
+            "--prominence",
+            "-3sigma",
+            "--noise",
+            "1e20",
+        ],
+        "must not be negative",
+    );
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--min-area", "99999999px"],
+        "larger than the whole map",
+    );
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--floor", "high"],
+        "--floor 'high' is not understood",
+    );
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--min-area", "3parsecs"],
+        "--min-area '3parsecs'",
+    );
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--connectivity", "6"],
+        "give 4 or 8",
+    );
+    std::fs::write(d.path().join("afile"), b"x").unwrap();
+    refused(d.path(), &["segment", m, "-o", "afile"], "is not a folder");
+    refused(
+        d.path(),
+        &["segment", m, "-o", "afile/sub"],
+        "cannot be created",
+    );
+}
