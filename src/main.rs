@@ -47,6 +47,8 @@ struct SegmentArgs {
     output: PathBuf,
     #[command(flatten)]
     read: MapArgs,
+    #[command(flatten)]
+    physics: PhysicsArgs,
     /// Lowest level considered: a multiple of the noise (5sigma) or a value in the map's unit.
     #[arg(long, value_name = "LEVEL", allow_hyphen_values = true)]
     floor: Option<String>,
@@ -175,12 +177,138 @@ struct MapArgs {
     noise_map: Option<PathBuf>,
 }
 
+/// Physical assumptions: distance, temperature, dust opacity, molecular weights.
+#[derive(Args, Clone)]
+struct PhysicsArgs {
+    /// Distance to the cloud, such as 300pc (without it only angular quantities are reported).
+    #[arg(long, value_name = "LENGTH")]
+    distance: Option<String>,
+    /// Dust temperature, such as 12K (for emission maps and for the gravitational state).
+    #[arg(long, value_name = "TEMPERATURE", conflicts_with = "temperature_map")]
+    temperature: Option<String>,
+    /// A FITS map of the dust temperature in K on the same grid.
+    #[arg(long, value_name = "FILE")]
+    temperature_map: Option<PathBuf>,
+    /// Dust opacity per gram of gas at --opacity-frequency [default: 0.1cm2/g].
+    #[arg(long, value_name = "OPACITY")]
+    opacity: Option<String>,
+    /// Reference frequency of --opacity [default: 1THz].
+    #[arg(long, value_name = "FREQ")]
+    opacity_frequency: Option<String>,
+    /// Dust emissivity index beta [default: 2].
+    #[arg(long, value_name = "BETA")]
+    beta: Option<f64>,
+    /// Mean molecular weight per H2 molecule [default: 2.8].
+    #[arg(long, value_name = "MU")]
+    mu_h2: Option<f64>,
+    /// Mean molecular weight per free particle [default: 2.33].
+    #[arg(long, value_name = "MU")]
+    mu_particle: Option<f64>,
+    /// N(H2) per magnitude of A_V [default: 9.4e20cm-2].
+    #[arg(long, value_name = "COLUMN")]
+    column_per_av: Option<String>,
+    /// A_V per magnitude of A_K [default: 8.93].
+    #[arg(long, value_name = "RATIO")]
+    av_per_ak: Option<f64>,
+    /// Non-thermal velocity dispersion, such as 0.3km/s (enables the virial parameter).
+    #[arg(long, value_name = "SPEED", conflicts_with = "sigma_nt_map")]
+    sigma_nt: Option<String>,
+    /// A FITS map of the non-thermal velocity dispersion in km/s on the same grid.
+    #[arg(long, value_name = "FILE")]
+    sigma_nt_map: Option<PathBuf>,
+}
+
+impl PhysicsArgs {
+    fn context(&self, map: &map::Map) -> Result<cairn::score::Context> {
+        use cairn::score::{Context, Field};
+        let q = |text: &str, dims: &[Dimension], what: &str| {
+            units::parse_quantity(text, dims, what).map_err(Error::usage)
+        };
+        let positive = |v: f64, what: &str| -> Result<f64> {
+            if v > 0.0 && v.is_finite() {
+                Ok(v)
+            } else {
+                Err(Error::usage(format!("{what} must be positive.")))
+            }
+        };
+        let mut c = Context::default();
+        if let Some(d) = &self.distance {
+            c.distance_m = Some(positive(
+                q(d, &[Dimension::Length], "--distance")?.si,
+                "--distance",
+            )?);
+        }
+        if let Some(t) = &self.temperature {
+            c.temperature_k = Some(Field::Uniform(positive(
+                q(t, &[Dimension::Temperature], "--temperature")?.si,
+                "--temperature",
+            )?));
+        }
+        if let Some(p) = &self.temperature_map {
+            c.temperature_k = Some(Field::Map(inspect::load_noise_map(map, p)?));
+        }
+        if let Some(k) = &self.opacity {
+            c.opacity.kappa0_cm2_per_g = positive(
+                q(k, &[Dimension::Opacity], "--opacity")?.si * 10.0,
+                "--opacity",
+            )?;
+        }
+        if let Some(f) = &self.opacity_frequency {
+            let v = q(
+                f,
+                &[Dimension::Frequency, Dimension::Length],
+                "--opacity-frequency",
+            )?;
+            c.opacity.nu0_hz = positive(
+                if v.dim == Dimension::Length {
+                    units::C_LIGHT / v.si
+                } else {
+                    v.si
+                },
+                "--opacity-frequency",
+            )?;
+        }
+        if let Some(b) = self.beta {
+            c.opacity.beta = b;
+        }
+        if let Some(m) = self.mu_h2 {
+            c.mu_h2 = positive(m, "--mu-h2")?;
+        }
+        if let Some(m) = self.mu_particle {
+            c.mu_p = positive(m, "--mu-particle")?;
+        }
+        if let Some(n) = &self.column_per_av {
+            c.nh2_per_av_m2 = positive(
+                q(n, &[Dimension::ColumnDensity], "--column-per-av")?.si,
+                "--column-per-av",
+            )?;
+        }
+        if let Some(r) = self.av_per_ak {
+            c.av_per_ak = positive(r, "--av-per-ak")?;
+        }
+        if let Some(s) = &self.sigma_nt {
+            let v = q(s, &[Dimension::Speed], "--sigma-nt")?.si;
+            if v < 0.0 {
+                return Err(Error::usage("--sigma-nt must not be negative."));
+            }
+            c.sigma_nt = Some(Field::Uniform(v));
+        }
+        if let Some(p) = &self.sigma_nt_map {
+            let m = inspect::load_noise_map(map, p)?;
+            c.sigma_nt = Some(Field::Map(m.mapv(|v| v * 1e3)));
+        }
+        Ok(c)
+    }
+}
+
 #[derive(Args)]
 struct InspectArgs {
     /// The FITS map.
     map: PathBuf,
     #[command(flatten)]
     read: MapArgs,
+    #[command(flatten)]
+    physics: PhysicsArgs,
     /// Print JSON (keys documented in the README) instead of text.
     #[arg(long)]
     json: bool,
@@ -501,6 +629,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         output: a.output.clone(),
         force: a.force,
         command_line: std::env::args().collect(),
+        physics: a.physics.context(&m)?,
     };
     let bar = progress_bar(quiet, m.nx() * m.ny());
     let summary = segment::run(&m, &so, &|stage, f| {
@@ -533,6 +662,15 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         unit,
         t.noise_source
     );
+    if let Some(states) = &summary.leaf_states {
+        let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
+        println!("leaves by state: {}", words.join(", "));
+    }
+    if let Some(note) = &summary.physics_note {
+        println!("no masses: {note}");
+    } else if a.physics.distance.is_none() {
+        println!("no masses: give --distance (and --temperature for the gravitational state)");
+    }
     if summary.leaves == 0 {
         println!(
             "no structure passes these thresholds: the outputs are written but empty; lower --floor or --prominence"

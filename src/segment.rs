@@ -124,6 +124,8 @@ pub struct SegmentOptions {
     pub force: bool,
     /// The command line, for the run record.
     pub command_line: Vec<String>,
+    /// Physical assumptions (distance, temperature, opacity, ...).
+    pub physics: crate::score::Context,
 }
 
 /// Thresholds resolved to map units and pixels.
@@ -262,6 +264,10 @@ pub struct RunSummary {
     pub seconds: f64,
     /// Files written.
     pub files: Vec<PathBuf>,
+    /// Why no physical quantities were computed, if none were.
+    pub physics_note: Option<String>,
+    /// Count of leaves by state, when masses were computed.
+    pub leaf_states: Option<std::collections::BTreeMap<String, usize>>,
 }
 
 fn sky_names(map: &Map) -> (&'static str, &'static str) {
@@ -279,6 +285,8 @@ fn sky_names(map: &Map) -> (&'static str, &'static str) {
 pub fn catalogue(
     map: &Map,
     rows: &[&Measurement],
+    phys: Option<&[&crate::score::Physical]>,
+    with_distance: bool,
     r: &Resolved,
     run_meta: &[(String, String, String)],
 ) -> Table {
@@ -452,7 +460,127 @@ pub fn catalogue(
         "touches a missing pixel",
         rows.iter().map(|m| m.touches_missing).collect(),
     );
+    if let Some(ph) = phys {
+        physics_columns(&mut t, ph, with_distance);
+    }
     t
+}
+
+fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance: bool) {
+    use crate::score::Physical;
+    let p = |g: &dyn Fn(&Physical) -> f64| ph.iter().map(|x| g(x)).collect::<Vec<f64>>();
+    t.push_f64(
+        "n_peak",
+        "cm-2",
+        "peak H2 column density",
+        p(&|x| x.n_peak_cm2),
+    );
+    t.push_f64(
+        "n_peak_err",
+        "cm-2",
+        "noise uncertainty of n_peak",
+        p(&|x| x.n_peak_err_cm2),
+    );
+    t.push_f64(
+        "n_mean",
+        "cm-2",
+        "mean H2 column density over the footprint",
+        p(&|x| x.n_mean_cm2),
+    );
+    t.push_f64(
+        "temperature",
+        "K",
+        "mass-weighted dust temperature used",
+        p(&|x| x.temperature_k),
+    );
+    if !with_distance {
+        return;
+    }
+    t.push_f64(
+        "mass",
+        "solMass",
+        "gas mass within the footprint",
+        p(&|x| x.mass),
+    );
+    t.push_f64(
+        "mass_excess",
+        "solMass",
+        "gas mass above the merge level (used for density and state)",
+        p(&|x| x.mass_excess),
+    );
+    t.push_f64(
+        "mass_err",
+        "solMass",
+        "noise uncertainty of the masses (systematics not included)",
+        p(&|x| x.mass_err),
+    );
+    t.push_f64(
+        "radius_pc",
+        "pc",
+        "effective radius d sqrt(area/pi)",
+        p(&|x| x.radius_pc),
+    );
+    t.push_f64(
+        "radius_deconv_pc",
+        "pc",
+        "effective radius with half the beam removed in quadrature (empty if unresolved)",
+        p(&|x| x.radius_deconv_pc),
+    );
+    t.push_bool(
+        "unresolved",
+        "effective radius at most half the beam",
+        ph.iter().map(|x| x.unresolved).collect(),
+    );
+    t.push_f64(
+        "density",
+        "cm-3",
+        "mean n(H2) of a uniform sphere of the effective radius",
+        p(&|x| x.density_cm3),
+    );
+    t.push_f64(
+        "jeans_mass",
+        "solMass",
+        "Jeans mass at the mean density and temperature",
+        p(&|x| x.jeans_mass),
+    );
+    t.push_f64(
+        "jeans_length",
+        "pc",
+        "Jeans length at the mean density and temperature",
+        p(&|x| x.jeans_length_pc),
+    );
+    t.push_f64(
+        "be_mass",
+        "solMass",
+        "critical Bonnor-Ebert mass 2.43 R c_s^2 / G",
+        p(&|x| x.be_mass),
+    );
+    t.push_f64("alpha_be", "", "be_mass / mass_excess", p(&|x| x.alpha_be));
+    t.push_f64(
+        "sigma_v",
+        "km/s",
+        "total velocity dispersion (thermal and non-thermal)",
+        p(&|x| x.sigma_kms),
+    );
+    t.push_f64(
+        "alpha_vir",
+        "",
+        "virial parameter 5 sigma_v^2 R / (G mass_excess)",
+        p(&|x| x.alpha_vir),
+    );
+    t.push_f64(
+        "t_ff",
+        "yr",
+        "free-fall time at the mean density",
+        p(&|x| x.t_ff_yr),
+    );
+    t.push_text(
+        "state",
+        "bound, marginal, unbound or unknown (see the notes)",
+        ph.iter().map(|x| x.state.to_string()).collect(),
+    );
+    t.notes.push("state: with a velocity dispersion, bound if alpha_vir <= 2, marginal if <= 4, else unbound; without one, bound if alpha_be <= 1, marginal if <= 2, else unbound; indicative only".into());
+    t.notes.push("caution: masses carry factor-of-two systematics from dust opacity, temperature and distance; mass_err is the map noise only".into());
 }
 
 /// The hierarchy as JSON: structures with parent, children and levels.
@@ -583,6 +711,15 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let tree_seconds = t_tree.elapsed().as_secs_f64();
     progress("measure", 0.0);
     let ms = measure::measure_all(&h, map.wcs.as_ref());
+    let mut physics_note = None;
+    let phys = match crate::score::score(map, &h, &ms, &o.physics, r.noise) {
+        Ok(p) => Some(p),
+        Err(why) => {
+            physics_note = Some(why);
+            None
+        }
+    };
+    let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
     let grown = o
         .grow_leaves
         .then(|| hierarchy::grow_leaves(map.data.view(), &h, r.floor));
@@ -646,11 +783,15 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             "cairn version".into(),
         ),
     ];
-    let rows: Vec<&Measurement> = ms
-        .iter()
-        .filter(|m| !o.leaves_only || m.kind == Kind::Leaf)
+    let keep: Vec<usize> = (0..ms.len())
+        .filter(|&i| !o.leaves_only || ms[i].kind == Kind::Leaf)
         .collect();
-    let table = catalogue(map, &rows, &r, &meta);
+    let rows: Vec<&Measurement> = keep.iter().map(|&i| &ms[i]).collect();
+    let phys_rows: Option<Vec<&crate::score::Physical>> =
+        phys.as_ref().map(|p| keep.iter().map(|&i| &p[i]).collect());
+    let mut meta = meta;
+    meta.extend(physics_meta(&o.physics, map));
+    let table = catalogue(map, &rows, phys_rows.as_deref(), with_distance, &r, &meta);
     output::write_bytes(&outputs.temp(names::CSV), table.to_csv().as_bytes())?;
     table.write_fits(&outputs.temp(names::FITS_TABLE))?;
     output::write_bytes(&outputs.temp(names::VOTABLE), table.to_votable().as_bytes())?;
@@ -699,11 +840,21 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         "timings_seconds": { "hierarchy": tree_seconds, "total_before_writing": seconds },
         "threads": rayon::current_num_threads(),
         "warnings": map.warnings,
+        "physics": physics_record(&o.physics, map, r.noise, physics_note.as_deref()),
     });
     let rec =
         serde_json::to_string_pretty(&record).map_err(|e| Error::internal(e.to_string()))? + "\n";
     output::write_bytes(&outputs.temp(names::RUN), rec.as_bytes())?;
     let files = outputs.commit()?;
+    let leaf_states = phys.as_ref().filter(|_| with_distance).map(|p| {
+        let mut c = std::collections::BTreeMap::new();
+        for (m, x) in ms.iter().zip(p) {
+            if m.kind == Kind::Leaf {
+                *c.entry(x.state.to_string()).or_insert(0usize) += 1;
+            }
+        }
+        c
+    });
     Ok(RunSummary {
         leaves,
         branches,
@@ -711,5 +862,107 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         thresholds: r,
         seconds: t0.elapsed().as_secs_f64(),
         files,
+        physics_note,
+        leaf_states,
+    })
+}
+
+fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, String)> {
+    use crate::table::fmt_f64;
+    let mut v = vec![];
+    if let Some(d) = ctx.distance_m {
+        v.push((
+            "distance".into(),
+            fmt_f64(d / crate::physics::constants::PC),
+            "pc".into(),
+        ));
+    }
+    if let Some(t) = &ctx.temperature_k {
+        v.push((
+            "temperature".into(),
+            t.describe("K"),
+            "dust temperature".into(),
+        ));
+    }
+    if map.unit.map(|u| u.is_emission()).unwrap_or(false) {
+        v.push((
+            "kappa0".into(),
+            fmt_f64(ctx.opacity.kappa0_cm2_per_g),
+            "cm2/g of gas at nu0".into(),
+        ));
+        v.push(("nu0".into(), fmt_f64(ctx.opacity.nu0_hz), "Hz".into()));
+        v.push((
+            "beta".into(),
+            fmt_f64(ctx.opacity.beta),
+            "dust emissivity index".into(),
+        ));
+        if let Some(w) = map.wavelength_m {
+            v.push(("wavelength".into(), fmt_f64(w * 1e6), "um".into()));
+        }
+    }
+    if matches!(map.unit, Some(units::PixelUnit::Extinction { .. })) {
+        v.push((
+            "nh2_per_av".into(),
+            fmt_f64(ctx.nh2_per_av_m2 * 1e-4),
+            "cm-2 mag-1".into(),
+        ));
+        v.push(("av_per_ak".into(), fmt_f64(ctx.av_per_ak), String::new()));
+    }
+    v.push((
+        "mu_h2".into(),
+        fmt_f64(ctx.mu_h2),
+        "mean molecular weight per H2".into(),
+    ));
+    v.push((
+        "mu_p".into(),
+        fmt_f64(ctx.mu_p),
+        "mean molecular weight per particle".into(),
+    ));
+    if let Some(s) = &ctx.sigma_nt {
+        v.push((
+            "sigma_nt".into(),
+            s.describe("m/s"),
+            "non-thermal velocity dispersion".into(),
+        ));
+    }
+    v
+}
+
+/// The physical context as recorded in run.json (also read by `compare`): assumptions, the
+/// linear resolution (geometric-mean beam FWHM times distance) and the mass sensitivity (the
+/// mass of one beam at the noise level, 1 sigma).
+pub fn physics_record(
+    ctx: &crate::score::Context,
+    map: &Map,
+    noise: Option<f64>,
+    note: Option<&str>,
+) -> serde_json::Value {
+    use crate::physics::constants::{M_H, M_SUN, PC};
+    let beam_arcsec = map
+        .beam
+        .map(|b| (b.major_deg * b.minor_deg).sqrt() * 3600.0);
+    let resolution_pc = match (beam_arcsec, ctx.distance_m) {
+        (Some(b), Some(d)) => Some(b * units::ARCSEC * d / PC),
+        _ => None,
+    };
+    let sensitivity = crate::score::Converter::new(map, ctx).ok().and_then(|c| {
+        let (d, n, b) = (ctx.distance_m?, noise?, map.beam?);
+        let column = n * c.central_factor();
+        Some(ctx.mu_h2 * M_H * column * b.solid_angle_sr() * d * d / M_SUN)
+    });
+    serde_json::json!({
+        "distance_pc": ctx.distance_m.map(|d| d / PC),
+        "temperature": ctx.temperature_k.as_ref().map(|t| t.describe("K")),
+        "opacity": { "kappa0_cm2_per_g": ctx.opacity.kappa0_cm2_per_g, "nu0_hz": ctx.opacity.nu0_hz, "beta": ctx.opacity.beta },
+        "mu_h2": ctx.mu_h2,
+        "mu_p": ctx.mu_p,
+        "nh2_per_av_cm2": ctx.nh2_per_av_m2 * 1e-4,
+        "av_per_ak": ctx.av_per_ak,
+        "sigma_nt": ctx.sigma_nt.as_ref().map(|s| s.describe("m/s")),
+        "wavelength_um": map.wavelength_m.map(|w| w * 1e6),
+        "beam_fwhm_arcsec": beam_arcsec,
+        "linear_resolution_pc": resolution_pc,
+        "mass_sensitivity_msun": sensitivity,
+        "note": note,
     })
 }

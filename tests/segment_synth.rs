@@ -20,6 +20,7 @@ fn options(out: &std::path::Path, floor: Level, prominence: Level, noise: f64) -
         output: out.to_path_buf(),
         force: true,
         command_line: vec![],
+        physics: Default::default(),
     }
 }
 

@@ -19,5 +19,6 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
         output: out.to_path_buf(),
         force: true,
         command_line: vec!["fixture".into()],
+        physics: Default::default(),
     }
 }

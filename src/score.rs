@@ -1,0 +1,462 @@
+//! Physical scoring: every pixel as an H2 column density, and every structure's mass, size,
+//! density and gravitational state.
+//!
+//! Owns the physical context of a run (distance, dust temperature, opacity law, mean
+//! molecular weights, extinction-to-column factors, non-thermal velocity dispersion), the
+//! per-pixel conversion to N(H2), the per-structure sums it needs, and the derived quantities.
+//!
+//! Conversions and laws (all with their units in the catalogue header):
+//! * Column density maps are used as they are. Extinction maps: N(H2) = 9.4e20 cm^-2 mag^-1
+//!   A_V (Bohlin, Savage & Drake 1978, ApJ 224, 132, for R_V = 3.1; their N(H) = 1.87e21 A_V
+//!   counted as N(HI) + 2 N(H2), so N(H2) = N(H)/2 for fully molecular gas, rounded as is
+//!   common practice), and A_V = A_K / 0.112 (Rieke & Lebofsky 1985, ApJ 288, 618).
+//! * Dust emission, optically thin: I_nu = N(H2) mu_H2 m_H kappa_nu B_nu(T_d) (Hildebrand
+//!   1983), with kappa_nu = 0.1 cm^2 g^-1 (nu / 1 THz)^2 per gram of gas (Beckwith et al.
+//!   1990; gas-to-dust ratio 100, Hildebrand 1983). Jy/beam is divided by the Gaussian beam's
+//!   solid angle pi/(4 ln 2) theta_maj theta_min, Jy/pixel by the pixel's solid angle at that
+//!   pixel, so all three emission units give the same column density.
+//! * Mass M = mu_H2 m_H d^2 Omega_pix sum N(H2) over the footprint, with mu_H2 = 2.8
+//!   (Kauffmann et al. 2008, A&A 487, 993) and Omega_pix at the structure's centroid. The
+//!   *excess mass* subtracts, pixel by pixel, the column density of the structure's merge
+//!   level (the floor for roots): the structure above its surroundings.
+//! * Sizes: R_eff = d sqrt(A/pi); deconvolved R = sqrt(R_eff^2 - (theta_beam/2)^2 d^2) with
+//!   theta_beam the geometric mean FWHM (common practice); a structure with R_eff <= theta_beam
+//!   d / 2 is flagged unresolved.
+//! * Mean density n(H2) = M / (4/3 pi R_eff^3 mu_H2 m_H): a uniform sphere of the effective
+//!   radius (an assumption; real cores are centrally condensed).
+//! * Sound speed c_s = (k T / (mu_p m_H))^(1/2) with mu_p = 2.33 (Kauffmann et al. 2008).
+//! * Jeans mass and length at the mean density (Jeans 1902); critical Bonnor-Ebert mass
+//!   M_BE = C R_eff c_s^2 / G with C = xi_crit psi'(xi_crit) = 2.43 (Ebert 1955; Bonnor 1956),
+//!   alpha_BE = M_BE / M; virial parameter alpha_vir = 5 sigma^2 R_eff / (G M) (Bertoldi &
+//!   McKee 1992, ApJ 395, 140) with sigma^2 = c_s^2 + sigma_nt^2; free-fall time
+//!   t_ff = (3 pi / (32 G rho))^(1/2).
+//! * State (indicative only): when a velocity dispersion is known, `bound` if alpha_vir <= 2,
+//!   `marginal` if 2 < alpha_vir <= 4, `unbound` above; otherwise the same words for
+//!   alpha_BE <= 1, 1 < alpha_BE <= 2, above 2. Computed with the excess mass for every
+//!   structure. `unknown` without distance and temperature.
+//! * Noise: the map noise sigma is carried to the peak (sigma times the conversion) and to the
+//!   mass as sigma sqrt(N_pix N_beam) (noise correlated over a beam of N_beam pixels; 1
+//!   without a beam).
+//!
+//! Systematics dominate: opacity (a factor of about 2), temperature and distance (mass goes
+//! as d^2) each move masses by tens of per cent or more; the state is indicative.
+
+use std::sync::OnceLock;
+
+use ndarray::Array2;
+use serde::Serialize;
+
+use crate::hierarchy::Hierarchy;
+use crate::map::Map;
+use crate::measure::Measurement;
+use crate::physics::constants::{G, M_H, M_SUN, PC};
+use crate::physics::{self, DustOpacity};
+use crate::units::{self, ExtinctionBand, PixelUnit};
+
+/// H2 column density per magnitude of A_V: 9.4e20 cm^-2 (Bohlin, Savage & Drake 1978).
+pub const NH2_PER_AV_CM2: f64 = 9.4e20;
+/// A_V / A_K = 1 / 0.112 (Rieke & Lebofsky 1985).
+pub const AV_PER_AK: f64 = 1.0 / 0.112;
+/// Seconds per Julian year.
+pub const YEAR: f64 = 365.25 * 86400.0;
+
+/// A value given once for the map or pixel by pixel.
+#[derive(Debug, Clone)]
+pub enum Field {
+    /// One value everywhere.
+    Uniform(f64),
+    /// One value per pixel (same grid as the map); NaN where unknown.
+    Map(Array2<f32>),
+}
+
+impl Field {
+    fn at(&self, y: usize, x: usize) -> f64 {
+        match self {
+            Field::Uniform(v) => *v,
+            Field::Map(m) => m[(y, x)] as f64,
+        }
+    }
+
+    /// A description for records.
+    pub fn describe(&self, unit: &str) -> String {
+        match self {
+            Field::Uniform(v) => format!("{v} {unit}"),
+            Field::Map(_) => "per pixel (map)".into(),
+        }
+    }
+}
+
+/// The physical assumptions of a run.
+#[derive(Debug, Clone)]
+pub struct Context {
+    /// Distance in metres (None: angular quantities only).
+    pub distance_m: Option<f64>,
+    /// Dust temperature in kelvin (None: no emission conversion and no stability).
+    pub temperature_k: Option<Field>,
+    /// Opacity law per gram of gas.
+    pub opacity: DustOpacity,
+    /// Mean molecular weight per H2 molecule.
+    pub mu_h2: f64,
+    /// Mean molecular weight per free particle.
+    pub mu_p: f64,
+    /// N(H2) per magnitude of A_V, in m^-2.
+    pub nh2_per_av_m2: f64,
+    /// A_V per magnitude of A_K.
+    pub av_per_ak: f64,
+    /// Non-thermal velocity dispersion in m/s (None: virial parameter not computed).
+    pub sigma_nt: Option<Field>,
+}
+
+impl Default for Context {
+    fn default() -> Self {
+        Context {
+            distance_m: None,
+            temperature_k: None,
+            opacity: DustOpacity::default(),
+            mu_h2: physics::MU_H2,
+            mu_p: physics::MU_P,
+            nh2_per_av_m2: NH2_PER_AV_CM2 * 1e4,
+            av_per_ak: AV_PER_AK,
+            sigma_nt: None,
+        }
+    }
+}
+
+/// Why a map cannot be converted to column density.
+pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
+    let unit = map.unit?;
+    if !unit.is_emission() {
+        return None;
+    }
+    if map.wavelength_m.is_none() {
+        return Some("the map's wavelength is unknown: give --wavelength, such as 850um".into());
+    }
+    if ctx.temperature_k.is_none() {
+        return Some("a dust-emission map needs a dust temperature for column densities and masses: give --temperature, such as 15K, or --temperature-map".into());
+    }
+    if matches!(unit, PixelUnit::FluxPerBeam { .. }) && map.beam.is_none() {
+        return Some("a Jy/beam map needs its beam: give --beam".into());
+    }
+    if matches!(unit, PixelUnit::FluxPerPixel { .. }) && map.wcs.is_none() {
+        return Some("a Jy/pixel map needs a celestial WCS to know the pixel's solid angle".into());
+    }
+    None
+}
+
+/// Per-pixel conversion from map units to N(H2) in m^-2.
+pub struct Converter<'a> {
+    map: &'a Map,
+    ctx: &'a Context,
+    kind: PixelUnit,
+    /// Factor for the unit (to SI intensity or column), without temperature.
+    base: f64,
+    nu: f64,
+}
+
+impl<'a> Converter<'a> {
+    /// A converter, or the reason there is none.
+    pub fn new(map: &'a Map, ctx: &'a Context) -> Result<Converter<'a>, String> {
+        if let Some(why) = conversion_blocker(map, ctx) {
+            return Err(why);
+        }
+        let kind = map
+            .unit
+            .ok_or_else(|| "the map's unit is unknown: give --unit".to_string())?;
+        let nu = map
+            .wavelength_m
+            .map(|w| units::C_LIGHT / w)
+            .unwrap_or(f64::NAN);
+        let base = match kind {
+            PixelUnit::ColumnDensity { to_si } => to_si,
+            PixelUnit::Extinction {
+                band: ExtinctionBand::V,
+            } => ctx.nh2_per_av_m2,
+            PixelUnit::Extinction {
+                band: ExtinctionBand::K,
+            } => ctx.nh2_per_av_m2 * ctx.av_per_ak,
+            PixelUnit::SurfaceBrightness { to_si } => to_si,
+            PixelUnit::FluxPerBeam { to_si } => {
+                to_si / map.beam.map(|b| b.solid_angle_sr()).unwrap_or(f64::NAN)
+            }
+            PixelUnit::FluxPerPixel { to_si } => to_si,
+        };
+        Ok(Converter {
+            map,
+            ctx,
+            kind,
+            base,
+            nu,
+        })
+    }
+
+    /// N(H2) [m^-2] per map unit at pixel (y, x).
+    pub fn factor(&self, y: usize, x: usize) -> f64 {
+        if !self.kind.is_emission() {
+            return self.base;
+        }
+        let t = self
+            .ctx
+            .temperature_k
+            .as_ref()
+            .map(|t| t.at(y, x))
+            .unwrap_or(f64::NAN);
+        let per_intensity = 1.0
+            / (self.ctx.mu_h2
+                * M_H
+                * self.ctx.opacity.kappa_si(self.nu)
+                * physics::planck_nu(self.nu, t));
+        let mut f = self.base * per_intensity;
+        if let PixelUnit::FluxPerPixel { .. } = self.kind
+            && let Some(w) = &self.map.wcs
+        {
+            f /= w.pixel_solid_angle(x as f64, y as f64);
+        }
+        f
+    }
+
+    /// The factor at the map centre (shown by `inspect`).
+    pub fn central_factor(&self) -> f64 {
+        self.factor(self.map.ny() / 2, self.map.nx() / 2)
+    }
+}
+
+/// Sums over a structure's pixels (descendants included) that the physics needs.
+#[derive(Debug, Clone, Copy, Default)]
+struct Sums {
+    n_col: f64,
+    f: f64,
+    f2: f64,
+    n_t: f64,
+    n_t_weight: f64,
+    n_s2: f64,
+    n_s2_weight: f64,
+}
+
+/// Physical quantities of one structure (NaN where not computable).
+#[derive(Debug, Clone, Serialize)]
+pub struct Physical {
+    /// Peak N(H2), cm^-2.
+    pub n_peak_cm2: f64,
+    /// Its noise uncertainty, cm^-2.
+    pub n_peak_err_cm2: f64,
+    /// Mean N(H2) over the footprint, cm^-2.
+    pub n_mean_cm2: f64,
+    /// Mass within the footprint, M_sun.
+    pub mass: f64,
+    /// Mass above the merge level, M_sun.
+    pub mass_excess: f64,
+    /// Noise uncertainty of either mass, M_sun.
+    pub mass_err: f64,
+    /// Effective radius, pc.
+    pub radius_pc: f64,
+    /// Beam-deconvolved effective radius, pc (NaN if unresolved).
+    pub radius_deconv_pc: f64,
+    /// Whether R_eff <= half the beam.
+    pub unresolved: bool,
+    /// Mean n(H2), cm^-3 (uniform sphere of R_eff, excess mass).
+    pub density_cm3: f64,
+    /// Mass-weighted dust temperature, K.
+    pub temperature_k: f64,
+    /// Jeans mass at the mean density, M_sun.
+    pub jeans_mass: f64,
+    /// Jeans length, pc.
+    pub jeans_length_pc: f64,
+    /// Critical Bonnor-Ebert mass for R_eff and T, M_sun.
+    pub be_mass: f64,
+    /// M_BE / M_excess.
+    pub alpha_be: f64,
+    /// Total velocity dispersion (thermal + non-thermal), km/s.
+    pub sigma_kms: f64,
+    /// Virial parameter 5 sigma^2 R / (G M).
+    pub alpha_vir: f64,
+    /// Free-fall time, years.
+    pub t_ff_yr: f64,
+    /// State word.
+    pub state: &'static str,
+}
+
+/// C = xi_crit psi'(xi_crit) of the critical Bonnor-Ebert sphere, computed once.
+pub fn be_coefficient() -> f64 {
+    static C: OnceLock<f64> = OnceLock::new();
+    *C.get_or_init(|| physics::LaneEmden::new(7.0, 1e-3).critical_mass_coefficient())
+}
+
+/// The state word from the stability ratios (see the module doc).
+pub fn state_of(alpha_vir: f64, alpha_be: f64) -> &'static str {
+    let (ratio, bound_at) = if alpha_vir.is_finite() {
+        (alpha_vir, 2.0)
+    } else if alpha_be.is_finite() {
+        (alpha_be, 1.0)
+    } else {
+        return "unknown";
+    };
+    if ratio <= bound_at {
+        "bound"
+    } else if ratio <= 2.0 * bound_at {
+        "marginal"
+    } else {
+        "unbound"
+    }
+}
+
+/// Scores every structure. `noise` is the map noise in map units (None if unknown).
+pub fn score(
+    map: &Map,
+    h: &Hierarchy,
+    ms: &[Measurement],
+    ctx: &Context,
+    noise: Option<f64>,
+) -> Result<Vec<Physical>, String> {
+    let conv = Converter::new(map, ctx)?;
+    let ns = h.structures.len();
+    let mut own = vec![Sums::default(); ns];
+    for ((y, x), &l) in h.labels.indexed_iter() {
+        if l < 0 {
+            continue;
+        }
+        let v = map.data[(y, x)] as f64;
+        let f = conv.factor(y, x);
+        let n = f * v;
+        let s = &mut own[l as usize];
+        s.n_col += n;
+        s.f += f;
+        s.f2 += f * f;
+        if let Some(t) = &ctx.temperature_k {
+            let tv = t.at(y, x);
+            if tv.is_finite() {
+                s.n_t += n * tv;
+                s.n_t_weight += n;
+            }
+        }
+        if let Some(sig) = &ctx.sigma_nt {
+            let sv = sig.at(y, x);
+            if sv.is_finite() {
+                s.n_s2 += n * sv * sv;
+                s.n_s2_weight += n;
+            }
+        }
+    }
+    // Children have larger ids than their parents: add from the last id down.
+    let mut total = own.clone();
+    for id in (0..ns).rev() {
+        if let Some(p) = h.structures[id].parent {
+            let c = total[id];
+            let t = &mut total[p as usize];
+            t.n_col += c.n_col;
+            t.f += c.f;
+            t.f2 += c.f2;
+            t.n_t += c.n_t;
+            t.n_t_weight += c.n_t_weight;
+            t.n_s2 += c.n_s2;
+            t.n_s2_weight += c.n_s2_weight;
+        }
+    }
+    let beam_px = match (map.beam, &map.wcs) {
+        (Some(b), Some(w)) => {
+            b.solid_angle_sr()
+                / w.pixel_solid_angle((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0)
+        }
+        _ => 1.0,
+    };
+    let beam_rad = map
+        .beam
+        .map(|b| (b.major_deg * b.minor_deg).sqrt().to_radians());
+    let out = h
+        .structures
+        .iter()
+        .zip(ms)
+        .zip(&total)
+        .map(|((s, m), t)| {
+            let npix = s.npix as f64;
+            let f_peak = conv.factor(s.peak_y, s.peak_x);
+            let nan = f64::NAN;
+            let mut p = Physical {
+                n_peak_cm2: s.peak_value * f_peak * 1e-4,
+                n_peak_err_cm2: noise.map(|n| n * f_peak * 1e-4).unwrap_or(nan),
+                n_mean_cm2: t.n_col / npix * 1e-4,
+                mass: nan,
+                mass_excess: nan,
+                mass_err: nan,
+                radius_pc: nan,
+                radius_deconv_pc: nan,
+                unresolved: false,
+                density_cm3: nan,
+                temperature_k: if t.n_t_weight > 0.0 {
+                    t.n_t / t.n_t_weight
+                } else {
+                    nan
+                },
+                jeans_mass: nan,
+                jeans_length_pc: nan,
+                be_mass: nan,
+                alpha_be: nan,
+                sigma_kms: nan,
+                alpha_vir: nan,
+                t_ff_yr: nan,
+                state: "unknown",
+            };
+            let (Some(d), Some(w)) = (ctx.distance_m, map.wcs.as_ref()) else {
+                return p;
+            };
+            let (cx, cy) = if m.x.is_finite() {
+                (m.x, m.y)
+            } else {
+                (s.peak_x as f64, s.peak_y as f64)
+            };
+            let area_m2 = w.pixel_solid_angle(cx, cy) * d * d;
+            let unit_mass = ctx.mu_h2 * M_H * area_m2;
+            p.mass = unit_mass * t.n_col / M_SUN;
+            p.mass_excess = unit_mass * (t.n_col - m.merge_level * t.f) / M_SUN;
+            p.mass_err = noise
+                .map(|n| unit_mass * n * (t.f2 * beam_px.min(npix)).sqrt() / M_SUN)
+                .unwrap_or(nan);
+            let r_eff = (m.area_arcsec2 / std::f64::consts::PI).sqrt() * units::ARCSEC * d;
+            p.radius_pc = r_eff / PC;
+            if let Some(b) = beam_rad {
+                let half = 0.5 * b * d;
+                p.unresolved = r_eff <= half;
+                if !p.unresolved {
+                    p.radius_deconv_pc = (r_eff * r_eff - half * half).sqrt() / PC;
+                }
+            }
+            let m_kg = p.mass_excess * M_SUN;
+            let volume = 4.0 / 3.0 * std::f64::consts::PI * r_eff.powi(3);
+            let rho = m_kg / volume;
+            let n_h2 = rho / (ctx.mu_h2 * M_H);
+            p.density_cm3 = n_h2 * 1e-6;
+            if rho > 0.0 {
+                p.t_ff_yr = (3.0 * std::f64::consts::PI / (32.0 * G * rho)).sqrt() / YEAR;
+            }
+            let temp = p.temperature_k;
+            if temp.is_finite() && temp > 0.0 {
+                let cs = (crate::physics::constants::K_B * temp / (ctx.mu_p * M_H)).sqrt();
+                if n_h2 > 0.0 {
+                    let lj = (std::f64::consts::PI * cs * cs / (G * rho)).sqrt();
+                    p.jeans_length_pc = lj / PC;
+                    p.jeans_mass = std::f64::consts::PI.powf(2.5) / 6.0 * cs.powi(3)
+                        / (G.powf(1.5) * rho.sqrt())
+                        / M_SUN;
+                }
+                p.be_mass = be_coefficient() * r_eff * cs * cs / G / M_SUN;
+                if m_kg > 0.0 {
+                    p.alpha_be = p.be_mass / p.mass_excess;
+                }
+                let s2_nt = if t.n_s2_weight > 0.0 {
+                    t.n_s2 / t.n_s2_weight
+                } else {
+                    nan
+                };
+                if s2_nt.is_finite() {
+                    let sigma2 = cs * cs + s2_nt;
+                    p.sigma_kms = sigma2.sqrt() / 1e3;
+                    if m_kg > 0.0 {
+                        p.alpha_vir = 5.0 * sigma2 * r_eff / (G * m_kg);
+                    }
+                }
+                p.state = state_of(p.alpha_vir, p.alpha_be);
+            }
+            p
+        })
+        .collect();
+    Ok(out)
+}

@@ -1,0 +1,180 @@
+//! Masses recovered end to end on synthetic maps (made by cairn's `synth`: a consistency check
+//! of loading, segmentation, unit conversion and mass sums, with the injected masses as truth):
+//! isolated cores with peak S/N >= 20 within 15% from a column-density map and within 20% from
+//! an 850 um emission map at the known temperature; an extinction map made from the same
+//! column densities gives the same masses.
+
+use cairn::hierarchy::Connectivity;
+use cairn::inspect::NoiseChoice;
+use cairn::score::{Context, Field};
+use cairn::segment::{Area, Level, SegmentOptions};
+use cairn::synth::{self, CorePopulation, EmissionUnit, Output, Profile, SynthSpec};
+
+const DISTANCE_PC: f64 = 280.0;
+const BEAM_PX: f64 = 3.0;
+
+fn spec(output: Output, noise: f64) -> SynthSpec {
+    SynthSpec {
+        nx: 480,
+        ny: 480,
+        pixel_arcsec: 6.0,
+        beam_fwhm_arcsec: 18.0,
+        distance_pc: DISTANCE_PC,
+        background: None,
+        population: Some(CorePopulation {
+            count: 40,
+            mass_min_msun: 1.0,
+            mass_max_msun: 12.0,
+            mass_index: 2.0,
+            radius_min_pc: 0.01,
+            radius_max_pc: 0.03,
+            profile: Profile::Gaussian,
+            margin_px: 20.0,
+        }),
+        output,
+        noise_rms: noise,
+        seed: 31,
+        ..SynthSpec::default()
+    }
+}
+
+fn run(
+    dir: &std::path::Path,
+    name: &str,
+    data: &ndarray::Array2<f32>,
+    header: &cairn::header::Header,
+    noise: f64,
+) -> Vec<(f64, f64, f64)> {
+    let path = dir.join(format!("{name}.fits"));
+    cairn::fits_write::write_image_f32(&path, data.view(), header, true).unwrap();
+    let map = cairn::map::load(&path, &Default::default()).unwrap();
+    let out = dir.join(name);
+    let o = SegmentOptions {
+        floor: Some(Level::Sigma(2.0)),
+        prominence: Some(Level::Sigma(5.0)),
+        min_area: Some(Area::Beams(0.5)),
+        connectivity: Connectivity::Eight,
+        grow_leaves: false,
+        leaves_only: true,
+        noise: NoiseChoice::Value(noise),
+        output: out.clone(),
+        force: true,
+        command_line: vec![],
+        physics: Context {
+            distance_m: Some(DISTANCE_PC * cairn::physics::constants::PC),
+            temperature_k: Some(Field::Uniform(15.0)),
+            ..Context::default()
+        },
+    };
+    cairn::segment::run(&map, &o, &|_, _| {}).unwrap();
+    let text = std::fs::read_to_string(out.join("structures.csv")).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
+    let (px, py, m) = (col("peak_x"), col("peak_y"), col("mass"));
+    lines
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (
+                f[px].parse().unwrap(),
+                f[py].parse().unwrap(),
+                f[m].parse().unwrap(),
+            )
+        })
+        .collect()
+}
+
+/// (truth mass, recovered mass) of isolated cores with peak S/N >= 20 found as one leaf.
+fn matched(truth: &[synth::TruthCore], leaves: &[(f64, f64, f64)], noise: f64) -> Vec<(f64, f64)> {
+    truth
+        .iter()
+        .filter(|c| c.peak >= 20.0 * noise)
+        .filter(|c| {
+            truth.iter().all(|o| {
+                o.id == c.id || ((o.x - c.x).powi(2) + (o.y - c.y).powi(2)).sqrt() > 6.0 * BEAM_PX
+            })
+        })
+        .filter_map(|c| {
+            let near: Vec<_> = leaves
+                .iter()
+                .filter(|(x, y, _)| ((x - c.x).powi(2) + (y - c.y).powi(2)).sqrt() <= BEAM_PX)
+                .collect();
+            (near.len() == 1).then(|| (c.mass_msun, near[0].2))
+        })
+        .collect()
+}
+
+#[test]
+fn masses_from_column_density_emission_and_extinction_maps() {
+    let dir = tempfile::tempdir().unwrap();
+    let noise_col = 1.0e20;
+    let col = synth::generate(&spec(Output::ColumnDensity, noise_col)).unwrap();
+    let leaves = run(dir.path(), "column", &col.data, &col.header, noise_col);
+    let pairs = matched(&col.truth, &leaves, noise_col);
+    assert!(
+        pairs.len() >= 10,
+        "enough isolated bright cores: {}",
+        pairs.len()
+    );
+    let worst = pairs
+        .iter()
+        .map(|(t, g)| (g / t - 1.0).abs())
+        .fold(0.0, f64::max);
+    eprintln!(
+        "column density: {} cores, worst relative error {worst:.3}",
+        pairs.len()
+    );
+    for (truth, got) in &pairs {
+        assert!(
+            (got / truth - 1.0).abs() <= 0.15,
+            "column-density map: injected {truth} Msun, recovered {got} Msun"
+        );
+    }
+
+    // The same scene as 850 um dust emission at 15 K, with noise of the same S/N.
+    let opacity = cairn::physics::DustOpacity::default();
+    let nu = cairn::physics::constants::C / 850e-6;
+    let per_column = cairn::physics::intensity_from_column(1.0e4, nu, 15.0, &opacity) / 1e-20; // MJy/sr per cm^-2
+    let noise_em = noise_col * per_column;
+    let em_out = Output::DustEmission {
+        wavelength_um: 850.0,
+        temperature_k: 15.0,
+        unit: EmissionUnit::MJyPerSr,
+        opacity,
+    };
+    let em = synth::generate(&spec(em_out, noise_em)).unwrap();
+    let leaves = run(dir.path(), "emission", &em.data, &em.header, noise_em);
+    let pairs_em = matched(&em.truth, &leaves, noise_em);
+    assert!(pairs_em.len() >= 10, "{}", pairs_em.len());
+    let worst = pairs_em
+        .iter()
+        .map(|(t, g)| (g / t - 1.0).abs())
+        .fold(0.0, f64::max);
+    eprintln!(
+        "850 um: {} cores, worst relative error {worst:.3}",
+        pairs_em.len()
+    );
+    for (truth, got) in &pairs_em {
+        assert!(
+            (got / truth - 1.0).abs() <= 0.20,
+            "850 um map: injected {truth} Msun, recovered {got} Msun"
+        );
+    }
+
+    // Extinction: A_V = N(H2) / 9.4e20 (Bohlin, Savage & Drake 1978), same scene and noise.
+    let av = col.data.mapv(|v| (v as f64 / 9.4e20) as f32);
+    let mut h = col.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("mag".into()), "A_V");
+    let leaves_av = run(dir.path(), "extinction", &av, &h, noise_col / 9.4e20);
+    let leaves_col = run(dir.path(), "column2", &col.data, &col.header, noise_col);
+    assert_eq!(leaves_av.len(), leaves_col.len());
+    for (a, c) in leaves_av.iter().zip(&leaves_col) {
+        assert_eq!((a.0, a.1), (c.0, c.1), "same leaves");
+        assert!(
+            (a.2 / c.2 - 1.0).abs() < 1e-5,
+            "extinction mass {} vs column mass {}",
+            a.2,
+            c.2
+        );
+    }
+}
