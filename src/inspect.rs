@@ -119,6 +119,19 @@ pub struct Suggested {
     pub min_area_px: f64,
 }
 
+/// The conversion `segment` would use from map units to H2 column density and mass.
+#[derive(Debug, Clone, Serialize)]
+pub struct ConversionSummary {
+    /// N(H2) in cm^-2 per map unit at the map centre (null when no conversion is possible).
+    pub column_per_unit_cm2: Option<f64>,
+    /// Gas mass in M_sun of one pixel at the map centre holding one map unit (null without a distance).
+    pub mass_per_unit_pixel_msun: Option<f64>,
+    /// The assumptions used, in words.
+    pub assumptions: Vec<String>,
+    /// Why there is no conversion, when there is none.
+    pub why_none: Option<String>,
+}
+
 /// Everything `inspect` reports.
 #[derive(Debug, Clone, Serialize)]
 pub struct Summary {
@@ -156,6 +169,8 @@ pub struct Summary {
     pub noise: NoiseSummary,
     /// Suggested thresholds (null without a noise).
     pub suggested: Option<Suggested>,
+    /// Conversion to column density and mass.
+    pub conversion: ConversionSummary,
     /// Warnings.
     pub warnings: Vec<String>,
 }
@@ -246,6 +261,91 @@ pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
 }
 
 /// Builds the summary of a loaded map.
+/// The conversion factors of `ctx` for `map`.
+pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
+    use crate::physics::constants::{M_H, M_SUN, PC};
+    let mut assumptions = Vec::new();
+    if let Some(u) = map.unit {
+        match u {
+            units::PixelUnit::Extinction { band } => {
+                assumptions.push(format!(
+                    "N(H2) = {:e} cm-2 per mag of A_V (Bohlin et al. 1978)",
+                    ctx.nh2_per_av_m2 * 1e-4
+                ));
+                if band == units::ExtinctionBand::K {
+                    assumptions.push(format!(
+                        "A_V = {:.3} A_K (Rieke & Lebofsky 1985)",
+                        ctx.av_per_ak
+                    ));
+                }
+            }
+            u if u.is_emission() => {
+                let o = &ctx.opacity;
+                let k = map
+                    .wavelength_m
+                    .map(|w| o.kappa_cm2_per_g(units::C_LIGHT / w));
+                assumptions.push(format!(
+                    "kappa = {} cm2/g of gas (nu/{} GHz)^{} (Beckwith et al. 1990), {} at this wavelength; optically thin",
+                    o.kappa0_cm2_per_g,
+                    o.nu0_hz / 1e9,
+                    o.beta,
+                    k.map(|k| format!("{k:.5} cm2/g")).unwrap_or_else(|| "unknown".into())
+                ));
+                if let Some(t) = &ctx.temperature_k {
+                    assumptions.push(format!("dust temperature {}", t.describe("K")));
+                }
+            }
+            _ => {}
+        }
+    }
+    assumptions.push(format!(
+        "mu_H2 = {}, mu_p = {} (Kauffmann et al. 2008)",
+        ctx.mu_h2, ctx.mu_p
+    ));
+    if let Some(d) = ctx.distance_m {
+        assumptions.push(format!("distance {} pc", d / PC));
+    }
+    match crate::score::Converter::new(map, ctx) {
+        Ok(c) => {
+            let f = c.central_factor();
+            let mass = match (ctx.distance_m, &map.wcs) {
+                (Some(d), Some(w)) => {
+                    let omega = w.pixel_solid_angle(
+                        (map.nx() as f64 - 1.0) / 2.0,
+                        (map.ny() as f64 - 1.0) / 2.0,
+                    );
+                    Some(ctx.mu_h2 * M_H * f * omega * d * d / M_SUN)
+                }
+                _ => None,
+            };
+            ConversionSummary {
+                column_per_unit_cm2: Some(f * 1e-4),
+                mass_per_unit_pixel_msun: mass,
+                assumptions,
+                why_none: None,
+            }
+        }
+        Err(why) => ConversionSummary {
+            column_per_unit_cm2: None,
+            mass_per_unit_pixel_msun: None,
+            assumptions,
+            why_none: Some(why),
+        },
+    }
+}
+
+/// Builds the summary of a loaded map, with the physical assumptions of `segment`.
+pub fn summarise_with(
+    map: &Map,
+    noise_choice: &NoiseChoice,
+    ctx: &crate::score::Context,
+) -> Result<Summary> {
+    let mut s = summarise(map, noise_choice)?;
+    s.conversion = conversion(map, ctx);
+    Ok(s)
+}
+
+/// Builds the summary of a loaded map with the default physical assumptions.
 pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
     let (nx, ny) = (map.nx(), map.ny());
     let (cx, cy) = ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0);
@@ -370,6 +470,7 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
             why_none,
         },
         suggested,
+        conversion: conversion(map, &crate::score::Context::default()),
         warnings,
     })
 }
@@ -509,6 +610,21 @@ pub fn render_text(s: &Summary) -> String {
                 sg.min_area_px
             ),
         );
+    }
+    let c = &s.conversion;
+    match (c.column_per_unit_cm2, &c.why_none) {
+        (Some(f), _) => {
+            let mut t = format!("N(H2) = {} cm-2 per map unit", g(f));
+            if let Some(m) = c.mass_per_unit_pixel_msun {
+                t.push_str(&format!("; {} Msun per map unit per pixel", g(m)));
+            }
+            out.push_str(&format!("{:<16}{t}\n", "conversion"));
+            for a in &c.assumptions {
+                out.push_str(&format!("{:<16}{a}\n", ""));
+            }
+        }
+        (None, Some(why)) => out.push_str(&format!("{:<16}none: {why}\n", "conversion")),
+        _ => {}
     }
     for w in &s.warnings {
         out.push_str(&format!("warning: {w}\n"));

@@ -380,7 +380,8 @@ fn run_inspect(args: &InspectArgs) -> Result<()> {
     let opts = args.read.load_options(true)?;
     let m = map::load(&args.map, &opts)?;
     let choice = args.read.noise_choice(&m)?;
-    let summary = inspect::summarise(&m, &choice)?;
+    let ctx = args.physics.context(&m)?;
+    let summary = inspect::summarise_with(&m, &choice, &ctx)?;
     if args.json {
         let text =
             serde_json::to_string_pretty(&summary).map_err(|e| Error::internal(e.to_string()))?;
