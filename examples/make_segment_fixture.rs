@@ -25,8 +25,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         nx: 160,
         ny: 128,
         pixel_arcsec: 6.0,
-        centre_lon_deg: 64.3125,
-        centre_lat_deg: 27.84375,
+        centre_lon_deg: 152.8125,
+        centre_lat_deg: 11.40625,
         beam_fwhm_arcsec: 18.0,
         distance_pc: 310.0,
         background: Some(Background {

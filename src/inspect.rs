@@ -98,9 +98,11 @@ pub struct ValueSummary {
 pub struct NoiseSummary {
     /// The noise that `segment` would use (null when none can be had).
     pub sigma: Option<f64>,
-    /// "clipped estimate", "--noise" or "--noise-map (median)".
+    /// "estimate" (clipped statistics of the map minus a box-median background), "--noise" or
+    /// "--noise-map (median)".
     pub source: String,
-    /// The clipped estimate's statistics, when it could be made.
+    /// Clipped statistics of the map itself (its median is the background level used by the
+    /// suggested floor), when they could be made.
     pub clipped: Option<noise::ClippedStats>,
     /// The difference (DER_SNR) estimate, when it could be made.
     pub difference_sigma: Option<f64>,
@@ -224,11 +226,27 @@ pub fn noise_for(map: &Map, choice: &NoiseChoice) -> Result<(Option<f64>, String
                 "--noise-map (median)".into(),
             ))
         }
-        NoiseChoice::Estimate => match noise::clipped_stats(map.data.view()) {
-            Ok(c) => Ok((Some(c.std), "clipped estimate".into())),
-            Err(_) => Ok((None, "clipped estimate".into())),
+        NoiseChoice::Estimate => match noise::residual_stats(map.data.view(), noise_box_px(map)) {
+            Ok(c) => Ok((Some(c.std), "estimate".into())),
+            Err(_) => Ok((None, "estimate".into())),
         },
     }
+}
+
+/// The box size of the residual noise estimate: five beams, or 32 pixels without a beam.
+pub fn noise_box_px(map: &Map) -> usize {
+    let beam_px = match (map.beam, &map.wcs) {
+        (Some(b), Some(w)) => {
+            let (sx, sy) =
+                w.pixel_scale((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
+            Some(b.major_deg / (sx * sy).sqrt())
+        }
+        _ => None,
+    };
+    beam_px
+        .map(|b| (5.0 * b).round() as usize)
+        .unwrap_or(32)
+        .max(8)
 }
 
 /// Loads a noise map and checks it lies on the same grid as `map`.
@@ -431,12 +449,11 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         _ => None,
     };
     let mut warnings = map.warnings.clone();
-    if let (Ok(c), Ok(d)) = (&clipped, &difference) {
-        let ratio = c.std / d;
+    if let (NoiseChoice::Estimate, Some(sg), Ok(d)) = (noise_choice, sigma, &difference) {
+        let ratio = sg / d;
         if !(0.5..=2.0).contains(&ratio) {
             warnings.push(format!(
-                "the clipped noise estimate ({:.4e}) and the pixel-difference estimate ({:.4e}) differ by a factor {:.1}: the map may have little emission-free area or noise correlated over several pixels; consider --noise",
-                c.std, d, ratio
+                "the noise estimate ({sg:.4e}) and the pixel-difference estimate ({d:.4e}) differ by a factor {ratio:.1}: either the noise is correlated over several pixels (then the first is right) or emission smaller than the background boxes remains; check, or give --noise"
             ));
         }
     }

@@ -16,6 +16,13 @@
 //!   Insensitive to smooth emission, but low when the noise is correlated over several pixels
 //!   (for example smoothed by the beam). When the two disagree by much, give `--noise`.
 //!
+//! * **Residual estimate (what `inspect` and `segment` use by default).** The clipped
+//!   estimate applied to the map minus a smooth background: medians in square boxes of
+//!   `box_px` pixels (five beams by default), interpolated bilinearly between box centres
+//!   (a common practice for removing extended emission before measuring noise). Structure
+//!   larger than the boxes no longer inflates the estimate, while noise correlated over a beam
+//!   is kept, which the difference estimate misses.
+//!
 //! Maps larger than 2^21 finite pixels are estimated from a regular subsample of that many
 //! pixels (every k-th finite pixel in storage order), so the result stays deterministic.
 
@@ -157,6 +164,101 @@ pub fn clipped_stats(map: ArrayView2<f32>) -> Result<ClippedStats, NoNoise> {
     clipped_stats_of(finite_sample(map), 3.0, 10)
 }
 
+/// A smooth background of box medians (see the module doc). Boxes with less than a quarter
+/// of their pixels finite take the median of the whole map.
+pub struct BoxBackground {
+    grid: Vec<f64>,
+    gx: usize,
+    cx: Vec<f64>,
+    cy: Vec<f64>,
+}
+
+impl BoxBackground {
+    /// Medians of `map` in boxes of `box_px` pixels (at least 4).
+    pub fn new(map: ArrayView2<f32>, box_px: usize) -> Self {
+        let (ny, nx) = map.dim();
+        let b = box_px.max(4);
+        let (gy, gx) = (ny.div_ceil(b), nx.div_ceil(b));
+        let mut all = finite_sample(map);
+        let global = if all.is_empty() {
+            0.0
+        } else {
+            median_in_place(&mut all)
+        };
+        drop(all);
+        let mut grid = vec![global; gx * gy];
+        let mut buf = Vec::with_capacity(b * b);
+        for j in 0..gy {
+            for i in 0..gx {
+                buf.clear();
+                let (y1, x1) = (((j + 1) * b).min(ny), ((i + 1) * b).min(nx));
+                for y in j * b..y1 {
+                    for x in i * b..x1 {
+                        let v = map[(y, x)];
+                        if v.is_finite() {
+                            buf.push(v as f64);
+                        }
+                    }
+                }
+                let size = (y1 - j * b) * (x1 - i * b);
+                if !buf.is_empty() && buf.len() * 4 >= size {
+                    grid[j * gx + i] = median_in_place(&mut buf);
+                }
+            }
+        }
+        let centre =
+            |k: usize, n: usize| (k * b) as f64 + (((k + 1) * b).min(n) - k * b) as f64 / 2.0 - 0.5;
+        BoxBackground {
+            grid,
+            gx,
+            cx: (0..gx).map(|i| centre(i, nx)).collect(),
+            cy: (0..gy).map(|j| centre(j, ny)).collect(),
+        }
+    }
+
+    fn locate(c: &[f64], v: f64) -> (usize, usize, f64) {
+        if c.len() == 1 || v <= c[0] {
+            return (0, 0, 0.0);
+        }
+        if v >= c[c.len() - 1] {
+            let l = c.len() - 1;
+            return (l, l, 0.0);
+        }
+        let k = c.partition_point(|&q| q <= v) - 1;
+        (k, k + 1, (v - c[k]) / (c[k + 1] - c[k]))
+    }
+
+    /// The background at pixel (y, x): bilinear between box centres, constant beyond them.
+    pub fn at(&self, y: usize, x: usize) -> f64 {
+        let (j0, j1, ty) = Self::locate(&self.cy, y as f64);
+        let (i0, i1, tx) = Self::locate(&self.cx, x as f64);
+        let g = |j: usize, i: usize| self.grid[j * self.gx + i];
+        let top = g(j0, i0) * (1.0 - tx) + g(j0, i1) * tx;
+        let bot = g(j1, i0) * (1.0 - tx) + g(j1, i1) * tx;
+        top * (1.0 - ty) + bot * ty
+    }
+}
+
+/// The residual estimate (see the module doc): clipped statistics of the map minus its box
+/// background, over the same regular subsample as [`finite_sample`].
+pub fn residual_stats(map: ArrayView2<f32>, box_px: usize) -> Result<ClippedStats, NoNoise> {
+    let bg = BoxBackground::new(map, box_px);
+    let n_finite = map.iter().filter(|v| v.is_finite()).count();
+    let stride = n_finite.div_ceil(MAX_SAMPLE).max(1);
+    let sample: Vec<f64> = map
+        .indexed_iter()
+        .filter(|(_, v)| v.is_finite())
+        .step_by(stride)
+        .map(|((y, x), &v)| v as f64 - bg.at(y, x))
+        .collect();
+    match clipped_stats_of(sample, 3.0, 10) {
+        Err(NoNoise::Constant(_)) => Err(clipped_stats(map)
+            .err()
+            .unwrap_or(NoNoise::Constant(f64::NAN))),
+        other => other,
+    }
+}
+
 /// The DER_SNR difference estimate along rows (see the module doc).
 pub fn difference_sigma(map: ArrayView2<f32>) -> Result<f64, NoNoise> {
     let mut d = Vec::new();
@@ -212,6 +314,23 @@ mod tests {
         assert!((c.std / 2.5 - 1.0).abs() < 0.02, "{c:?}");
         let d = difference_sigma(m.view()).unwrap();
         assert!((d / 2.5 - 1.0).abs() < 0.02, "{d}");
+    }
+
+    #[test]
+    fn residual_estimate_ignores_extended_emission_but_keeps_the_noise() {
+        // White noise of sigma 1 on a broad Gaussian hill 40 sigma high.
+        let mut m = gaussian_map(256, 1.0, 11);
+        for ((y, x), v) in m.indexed_iter_mut() {
+            let r2 = (x as f32 - 128.0).powi(2) + (y as f32 - 128.0).powi(2);
+            *v += 40.0 * (-r2 / (2.0 * 60.0 * 60.0)).exp();
+        }
+        let plain = clipped_stats(m.view()).unwrap().std;
+        let resid = residual_stats(m.view(), 16).unwrap().std;
+        assert!(
+            plain > 5.0,
+            "the hill dominates the plain estimate: {plain}"
+        );
+        assert!((resid - 1.0).abs() < 0.05, "{resid}");
     }
 
     #[test]
