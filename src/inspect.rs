@@ -443,7 +443,7 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
             min_area_px: beam
                 .as_ref()
                 .and_then(|b| b.area_px)
-                .map(|a| a.round().max(1.0))
+                .map(|a| (a - 1e-9).ceil().max(1.0))
                 .unwrap_or(9.0),
         }),
         _ => None,

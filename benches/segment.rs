@@ -1,0 +1,158 @@
+//! The whole `segment` run (hierarchy, labels, measurements, physics, all outputs) on synthetic
+//! maps, with in-run references.
+//!
+//! ```text
+//! cargo bench --bench segment                       # 1024^2 and 2048^2
+//! cargo bench --bench segment -- 1024 2048 4096 8192
+//! CAIRN_BENCH_PYTHON=/path/to/venv/bin/python cargo bench --bench segment -- 1024 2048
+//! ```
+//!
+//! For each size N x N it makes a synthetic column-density map (log-normal background, 400
+//! cores, noise; `cairn::synth`), writes it as FITS, and measures in child processes:
+//! * the reference: a parallel sort of the map's pixel keys (the least any exact method
+//!   must do);
+//! * cairn's segmentation with outputs, its time and peak resident memory;
+//! * with `CAIRN_BENCH_PYTHON` set (a Python with the packages of tests/oracle/requirements.txt),
+//!   scikit-image's `max_tree` on the same map (the raw tree only), timed inside Python
+//!   after loading. Not run above 2048^2: it grows faster than N log N.
+
+use std::path::Path;
+use std::process::Command;
+use std::time::Instant;
+
+use rayon::prelude::*;
+
+fn peak_rss_bytes() -> u64 {
+    std::fs::read_to_string("/proc/self/status")
+        .unwrap_or_default()
+        .lines()
+        .find(|l| l.starts_with("VmHWM:"))
+        .and_then(|l| l.split_whitespace().nth(1))
+        .and_then(|k| k.parse::<u64>().ok())
+        .map(|k| k * 1024)
+        .unwrap_or(0)
+}
+
+fn child_segment(path: &Path, out: &Path) {
+    let map = cairn::map::load(path, &cairn::map::LoadOptions::default()).unwrap();
+    let base = peak_rss_bytes();
+    let opts = cairn::segment::SegmentOptions {
+        floor: Some(cairn::segment::Level::Value(3.0e21)),
+        prominence: Some(cairn::segment::Level::Value(3.0e20)),
+        min_area: Some(cairn::segment::Area::Pixels(10.0)),
+        connectivity: cairn::hierarchy::Connectivity::Eight,
+        grow_leaves: false,
+        leaves_only: false,
+        noise: cairn::inspect::NoiseChoice::Value(1.0e20),
+        output: out.to_path_buf(),
+        force: true,
+        command_line: vec![],
+        physics: cairn::score::Context {
+            distance_m: Some(300.0 * cairn::physics::constants::PC),
+            temperature_k: Some(cairn::score::Field::Uniform(12.0)),
+            ..Default::default()
+        },
+    };
+    let t = Instant::now();
+    let s = cairn::segment::run(&map, &opts, &|_, _| {}).unwrap();
+    let secs = t.elapsed().as_secs_f64();
+    println!("{secs} {} {} {}", peak_rss_bytes(), base, s.leaves);
+}
+
+fn child_sort(path: &Path) {
+    let map = cairn::map::load(path, &cairn::map::LoadOptions::default()).unwrap();
+    let mut best = f64::INFINITY;
+    for _ in 0..3 {
+        let t = Instant::now();
+        let mut keys: Vec<u64> = map
+            .data
+            .as_slice()
+            .unwrap()
+            .par_iter()
+            .enumerate()
+            .map(|(i, v)| {
+                let b = v.to_bits();
+                let k = if b >> 31 == 1 { !b } else { b | 0x8000_0000 };
+                ((k as u64) << 32) | i as u64
+            })
+            .collect();
+        keys.par_sort_unstable();
+        std::hint::black_box(&keys);
+        best = best.min(t.elapsed().as_secs_f64());
+    }
+    println!("{best}");
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().collect();
+    if args.len() > 3 && args[1] == "--child-segment" {
+        return child_segment(Path::new(&args[2]), Path::new(&args[3]));
+    }
+    if args.len() > 2 && args[1] == "--child-sort" {
+        return child_sort(Path::new(&args[2]));
+    }
+    let mut sizes: Vec<usize> = args.iter().skip(1).filter_map(|a| a.parse().ok()).collect();
+    if sizes.is_empty() {
+        sizes = vec![1024, 2048];
+    }
+    let python = std::env::var("CAIRN_BENCH_PYTHON").ok();
+    let exe = std::env::current_exe().unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    println!("| size | sort (reference) | segment | segment / sort | peak memory above map / pixel | leaves | max_tree | max_tree / segment |");
+    println!("| --- | --- | --- | --- | --- | --- | --- | --- |");
+    for n in sizes {
+        let spec = cairn::synth::SynthSpec {
+            nx: n,
+            ny: n,
+            pixel_arcsec: 4.0,
+            beam_fwhm_arcsec: 12.0,
+            background: Some(cairn::synth::Background { mean_column_cm2: 3e21, sigma_ln: 0.4, spectral_index: 3.0 }),
+            population: Some(cairn::synth::CorePopulation {
+                count: 400,
+                mass_min_msun: 0.5,
+                mass_max_msun: 20.0,
+                mass_index: 2.35,
+                radius_min_pc: 0.01,
+                radius_max_pc: 0.05,
+                profile: cairn::synth::Profile::Gaussian,
+                margin_px: 10.0,
+            }),
+            noise_rms: 1.0e20,
+            seed: 1234,
+            ..Default::default()
+        };
+        let map = cairn::synth::generate(&spec).unwrap();
+        let path = dir.path().join(format!("map{n}.fits"));
+        cairn::fits_write::write_image_f32(&path, map.data.view(), &map.header, true).unwrap();
+        drop(map);
+        let sort = Command::new(&exe).args(["--child-sort", path.to_str().unwrap()]).output().unwrap();
+        let sort_s: f64 = String::from_utf8_lossy(&sort.stdout).trim().parse().unwrap();
+        let out = dir.path().join(format!("run{n}"));
+        let seg = Command::new(&exe)
+            .args(["--child-segment", path.to_str().unwrap(), out.to_str().unwrap()])
+            .output()
+            .unwrap();
+        let text = String::from_utf8_lossy(&seg.stdout).to_string();
+        let f: Vec<f64> = text.split_whitespace().map(|x| x.parse().unwrap()).collect();
+        let (seg_s, peak, base, leaves) = (f[0], f[1], f[2], f[3]);
+        let npix = (n * n) as f64;
+        // Memory above what the process held with the map loaded, per pixel.
+        let per_pixel = (peak - base) / npix;
+        let maxtree = python.as_ref().filter(|_| n <= 2048).map(|py| {
+            let script = format!(
+                "import time, numpy as np\nfrom astropy.io import fits\nfrom skimage.morphology import max_tree\nd = fits.getdata(r'{}').astype(np.float32)\nt = time.perf_counter()\nmax_tree(d, connectivity=2)\nprint(time.perf_counter() - t)\n",
+                path.display()
+            );
+            let o = Command::new(py).args(["-c", &script]).output().unwrap();
+            String::from_utf8_lossy(&o.stdout).trim().parse::<f64>().unwrap_or(f64::NAN)
+        });
+        let (mt, ratio) = match maxtree {
+            Some(t) => (format!("{t:.2} s"), format!("{:.0}x", t / seg_s)),
+            None => ("not run".into(), "".into()),
+        };
+        println!(
+            "| {n}^2 | {sort_s:.3} s | {seg_s:.3} s | {:.1} | {per_pixel:.1} B | {leaves} | {mt} | {ratio} |",
+            seg_s / sort_s
+        );
+    }
+}
