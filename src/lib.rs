@@ -12,6 +12,7 @@ pub mod inspect;
 pub mod map;
 pub mod noise;
 pub mod output;
+pub mod render;
 pub mod table;
 pub mod units;
 pub mod wcs;
