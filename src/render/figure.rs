@@ -567,12 +567,23 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
 
     // Beam and scale bar.
     let white_halo = Some((Rgba(255, 255, 255, 235), 0.16 * fs));
+    let mut keep_out: Vec<(f64, f64, f64, f64)> = Vec::new();
     if let Some(b) = &lay.beam {
         let pts: Vec<(f64, f64)> = b
             .polygon(96)
             .into_iter()
             .map(|(x, y)| lay.map_to_figure(x, y))
             .collect();
+        let bbox = pts.iter().fold(
+            (
+                f64::INFINITY,
+                f64::INFINITY,
+                f64::NEG_INFINITY,
+                f64::NEG_INFINITY,
+            ),
+            |b, &(x, y)| (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y)),
+        );
+        keep_out.push(bbox);
         sc.path(
             PathData::polygon(&pts),
             vec![
@@ -599,6 +610,13 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             ],
             "scale-bar",
         );
+        let tw = text::width(label, lfs);
+        keep_out.push((
+            ax.min(0.5 * (ax + bx) - tw / 2.0),
+            ay - cap - m.gap - text::cap_height(lfs),
+            bx.max(0.5 * (ax + bx) + tw / 2.0),
+            ay + cap,
+        ));
         sc.text(
             label,
             0.5 * (ax + bx),
@@ -612,9 +630,11 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         );
     }
 
-    // Leaf labels: greedy placement around each peak, avoiding earlier labels.
+    // Leaf labels: greedy placement around each peak, avoiding the beam, the scale bar and
+    // earlier labels. A label that finds no free place near its leaf is left out rather
+    // than printed over another.
     let label_fs = 0.85 * fs;
-    let mut placed: Vec<(f64, f64, f64, f64)> = Vec::new();
+    let mut placed: Vec<(f64, f64, f64, f64)> = keep_out.clone();
     let cap_h = text::cap_height(label_fs);
     let hpad = 0.15 * label_fs;
     for leaf in &o.leaves {
@@ -626,7 +646,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             continue;
         }
         let w = text::width(&leaf.label, label_fs);
-        let mut best: Option<(f64, (f64, f64))> = None;
+        let mut best: Option<(f64, f64)> = None;
         'search: for ring in 1..=4 {
             let r = 0.45 * label_fs * ring as f64;
             // Baseline-left positions of the label for offsets around the peak.
@@ -653,15 +673,15 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                         ox * oy
                     })
                     .sum();
-                if best.is_none_or(|(o, _)| overlap < o) {
-                    best = Some((overlap, (bx, by)));
-                }
                 if overlap == 0.0 {
+                    best = Some((bx, by));
                     break 'search;
                 }
             }
         }
-        let (bx, by) = best.map(|b| b.1).unwrap_or((px, py));
+        let Some((bx, by)) = best else {
+            continue;
+        };
         placed.push((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
         sc.text(
             &leaf.label,
