@@ -458,7 +458,7 @@ pub fn axis_ticks(
 /// Round values between `lo` and `hi` for a linear scale: about `n` of them, as (value,
 /// label) with labels in fixed notation or as m×10^e when the numbers are large or small.
 pub fn linear_ticks(lo: f64, hi: f64, n: usize) -> Vec<(f64, String)> {
-    if !(hi > lo) || !lo.is_finite() || !hi.is_finite() {
+    if hi <= lo || !lo.is_finite() || !hi.is_finite() {
         return Vec::new();
     }
     let raw = (hi - lo) / n.max(1) as f64;
@@ -477,7 +477,7 @@ pub fn linear_ticks(lo: f64, hi: f64, n: usize) -> Vec<(f64, String)> {
     let k0 = (lo / step - 1e-9).ceil() as i64;
     let k1 = (hi / step + 1e-9).floor() as i64;
     let big = lo.abs().max(hi.abs());
-    let sci = big >= 1e4 || big < 1e-2;
+    let sci = !(1e-2..1e4).contains(&big);
     (k0..=k1)
         .map(|k| {
             let v = (k * m) as f64 * 10f64.powi(e);

@@ -446,34 +446,40 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         o.labels.slice(s![wy0..wy1, wx0..wx1]),
         (wx0 as f64, wy0 as f64),
     );
+    // All dark casings first, then all coloured lines, so where two leaves share an edge
+    // the gaps of one's dashes show the other's colour.
     let lw = 0.85 * m.pt;
+    let mut colour_passes = Vec::new();
     for leaf in &o.leaves {
         let Some(rings) = traced.get(&leaf.id) else {
             continue;
         };
         let dash = state_dash(leaf.state, lw);
+        colour_passes.push(Item::Reuse {
+            id: format!("leaf-{}", leaf.id),
+            paints: vec![Paint::Stroke(Line {
+                color: state_colour(leaf.state),
+                width: lw,
+                dash: dash.clone(),
+                round: true,
+            })],
+            clip: true,
+        });
         sc.items.push(Item::Path {
             d: to_path(rings),
-            paints: vec![
-                Paint::Stroke(Line {
-                    color: Rgba(0, 0, 0, 200),
-                    width: lw + 1.1 * m.pt,
-                    dash: dash.clone(),
-                    round: true,
-                }),
-                Paint::Stroke(Line {
-                    color: state_colour(leaf.state),
-                    width: lw,
-                    dash,
-                    round: true,
-                }),
-            ],
+            paints: vec![Paint::Stroke(Line {
+                color: Rgba(0, 0, 0, 200),
+                width: lw + 1.1 * m.pt,
+                dash,
+                round: true,
+            })],
             clip: true,
             id: Some(format!("leaf-{}", leaf.id)),
             class: format!("leaf state-{} {}", leaf.state, state_line_style(leaf.state)),
             label: Some(format!("leaf {}", leaf.label)),
         });
     }
+    sc.items.extend(colour_passes);
 
     // Frame and ticks.
     sc.path(

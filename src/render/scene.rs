@@ -162,6 +162,13 @@ pub(crate) enum Item {
         /// Readable text for the SVG (`aria-label`), used for text drawn as outlines.
         label: Option<String>,
     },
+    /// Paints again the geometry of the earlier path with this id (so all casings can go
+    /// under all coloured lines while each outline stays one path element in the SVG).
+    Reuse {
+        id: String,
+        paints: Vec<Paint>,
+        clip: bool,
+    },
 }
 
 /// A figure: its size, resolution, the map frame used for clipping, and the items in order.
@@ -253,6 +260,16 @@ impl Scene {
             m.fill_path(&p, sk::FillRule::Winding, false, sk::Transform::identity());
             Some(m)
         });
+        let by_id: std::collections::BTreeMap<&str, &PathData> = self
+            .items
+            .iter()
+            .filter_map(|it| match it {
+                Item::Path {
+                    d, id: Some(id), ..
+                } => Some((id.as_str(), d)),
+                _ => None,
+            })
+            .collect();
         for item in &self.items {
             match item {
                 Item::Image { x, y, w, h, rgb } => {
@@ -273,14 +290,24 @@ impl Scene {
                         None,
                     );
                 }
-                Item::Path {
-                    d, paints, clip, ..
-                } => {
+                Item::Path { .. } | Item::Reuse { .. } => {
+                    let (d, paints, clip) = match item {
+                        Item::Path {
+                            d, paints, clip, ..
+                        } => (d, paints, clip),
+                        Item::Reuse { id, paints, clip } => match by_id.get(id.as_str()) {
+                            Some(d) => (*d, paints, clip),
+                            None => continue,
+                        },
+                        Item::Image { .. } => unreachable!("matched above"),
+                    };
                     let Some(path) = to_skia(d) else { continue };
                     let m = if *clip { mask.as_ref() } else { None };
                     for p in paints {
-                        let mut paint = sk::Paint::default();
-                        paint.anti_alias = true;
+                        let mut paint = sk::Paint {
+                            anti_alias: true,
+                            ..Default::default()
+                        };
                         match p {
                             Paint::Fill(c) => {
                                 paint.set_color_rgba8(c.0, c.1, c.2, c.3);
@@ -356,6 +383,14 @@ impl Scene {
                 num(h)
             );
         }
+        let reused: std::collections::BTreeSet<&str> = self
+            .items
+            .iter()
+            .filter_map(|it| match it {
+                Item::Reuse { id, .. } => Some(id.as_str()),
+                _ => None,
+            })
+            .collect();
         let mut auto_id = 0usize;
         for item in &self.items {
             match item {
@@ -390,7 +425,8 @@ impl Scene {
                         .as_ref()
                         .map(|l| format!(" aria-label=\"{}\"", xml_escape(l)))
                         .unwrap_or_default();
-                    if paints.len() == 1 {
+                    let shared = id.as_deref().is_some_and(|i| reused.contains(i));
+                    if paints.len() == 1 && !shared {
                         let id_attr = id
                             .as_ref()
                             .map(|i| format!(" id=\"{}\"", xml_escape(i)))
@@ -420,6 +456,21 @@ impl Scene {
                                 paint_attrs(p)
                             );
                         }
+                    }
+                }
+                Item::Reuse { id, paints, clip } => {
+                    let clip_attr = if *clip && self.clip.is_some() {
+                        " clip-path=\"url(#frame-clip)\""
+                    } else {
+                        ""
+                    };
+                    let pid = xml_escape(id);
+                    for p in paints {
+                        let _ = writeln!(
+                            s,
+                            "<use href=\"#{pid}\" xlink:href=\"#{pid}\"{clip_attr} {}/>",
+                            paint_attrs(p)
+                        );
                     }
                 }
             }
