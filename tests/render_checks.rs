@@ -180,6 +180,13 @@ fn check_rings(l: &Array2<i32>, id: i32, rings: &[Vec<(f64, f64)>], tol: f64) {
                 a.0 == b.0 || a.1 == b.1,
                 "leaf {id}: diagonal step {a:?}-{b:?}"
             );
+            // Collinear edges are merged: the path turns at every vertex.
+            let prev = cs[(i + cs.len() - 1) % cs.len()];
+            let turn = (a.0 - prev.0) * (b.1 - a.1) - (a.1 - prev.1) * (b.0 - a.0);
+            assert!(
+                turn != 0,
+                "leaf {id}: vertex {a:?} lies inside a straight run"
+            );
             // Split the side into unit edges.
             let n = ((b.0 - a.0).abs() + (b.1 - a.1).abs()) / 2;
             assert!(n >= 1, "leaf {id}: repeated vertex {a:?}");
@@ -745,4 +752,70 @@ fn mismatched_inputs_are_refused_with_a_sentence() {
         render_png(&o, &bad_region),
         Err(render::RenderError::BadRegion(_))
     ));
+}
+
+#[test]
+fn leaf_labels_do_not_overlap_each_other() {
+    // Many small leaves packed closely, so labels compete for room.
+    let (h, w) = (60, 90);
+    let mut l = Array2::from_elem((h, w), -1);
+    for ((y, x), v) in l.indexed_iter_mut() {
+        if x % 6 < 3 && y % 5 < 3 {
+            *v = ((y / 5) * 15 + x / 6) as i32;
+        }
+    }
+    let map = smooth_map(h, w);
+    let leaves: Vec<LeafStyle> = leaves_of(&l)
+        .into_iter()
+        .map(|mut s| {
+            s.label = format!("{}", 1000 + s.id);
+            s.peak = (s.peak.0 + 1.0, s.peak.1 + 1.0);
+            s
+        })
+        .collect();
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: l.view(),
+        branch_labels: None,
+        leaves,
+        states: states(),
+        sky: None,
+        beam: Some((3.0, 2.0, 10.0)),
+        scale_bar: Some((10.0, "1 pc".into())),
+        title: None,
+    };
+    let style = Style {
+        width_px: 1200,
+        dpi: 200.0,
+        ..Style::default()
+    };
+    let svg = render_svg(&o, &style).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let mut boxes: Vec<(f64, f64, f64, f64)> = Vec::new();
+    for n in doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("leaf-label"))
+    {
+        let nums: Vec<f64> = n
+            .attribute("d")
+            .unwrap()
+            .split(|c: char| c.is_ascii_alphabetic() || c == ' ')
+            .filter(|s| !s.is_empty())
+            .map(|s| s.parse().unwrap())
+            .collect();
+        let mut b = (f64::MAX, f64::MAX, f64::MIN, f64::MIN);
+        for p in nums.chunks(2) {
+            b = (b.0.min(p[0]), b.1.min(p[1]), b.2.max(p[0]), b.3.max(p[1]));
+        }
+        boxes.push(b);
+    }
+    assert!(boxes.len() >= 10, "only {} labels placed", boxes.len());
+    for (i, a) in boxes.iter().enumerate() {
+        for b in &boxes[i + 1..] {
+            let ox = a.2.min(b.2) - a.0.max(b.0);
+            let oy = a.3.min(b.3) - a.1.max(b.1);
+            assert!(ox <= 0.0 || oy <= 0.0, "labels {a:?} and {b:?} overlap");
+        }
+    }
 }

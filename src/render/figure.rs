@@ -357,6 +357,48 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     Ok(lay)
 }
 
+/// Boxes (left, top, right, bottom) already taken on the figure, bucketed on a grid so a
+/// query looks only at nearby boxes.
+struct BoxIndex {
+    cell: f64,
+    boxes: Vec<(f64, f64, f64, f64)>,
+    grid: std::collections::HashMap<(i64, i64), Vec<usize>>,
+}
+
+impl BoxIndex {
+    fn new(cell: f64) -> Self {
+        BoxIndex {
+            cell: cell.max(1.0),
+            boxes: Vec::new(),
+            grid: std::collections::HashMap::new(),
+        }
+    }
+    fn cells(&self, b: (f64, f64, f64, f64)) -> impl Iterator<Item = (i64, i64)> {
+        let c = self.cell;
+        let (i0, i1) = ((b.0 / c).floor() as i64, (b.2 / c).floor() as i64);
+        let (j0, j1) = ((b.1 / c).floor() as i64, (b.3 / c).floor() as i64);
+        (j0..=j1).flat_map(move |j| (i0..=i1).map(move |i| (i, j)))
+    }
+    fn insert(&mut self, b: (f64, f64, f64, f64)) {
+        let k = self.boxes.len();
+        self.boxes.push(b);
+        let cells: Vec<(i64, i64)> = self.cells(b).collect();
+        for c in cells {
+            self.grid.entry(c).or_default().push(k);
+        }
+    }
+    fn overlaps(&self, b: (f64, f64, f64, f64)) -> bool {
+        self.cells(b).any(|c| {
+            self.grid.get(&c).is_some_and(|v| {
+                v.iter().any(|&k| {
+                    let p = self.boxes[k];
+                    b.2.min(p.2) > b.0.max(p.0) && b.3.min(p.3) > b.1.max(p.1)
+                })
+            })
+        })
+    }
+}
+
 /// Builds the whole map figure.
 pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     let lay = overlay_layout(o, s)?;
@@ -640,7 +682,10 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     // earlier labels. A label that finds no free place near its leaf is left out rather
     // than printed over another.
     let label_fs = 0.85 * fs;
-    let mut placed: Vec<(f64, f64, f64, f64)> = keep_out.clone();
+    let mut placed = BoxIndex::new(2.0 * label_fs);
+    for b in &keep_out {
+        placed.insert(*b);
+    }
     let cap_h = text::cap_height(label_fs);
     let hpad = 0.15 * label_fs;
     for leaf in &o.leaves {
@@ -671,15 +716,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                 if bb.0 < fx || bb.2 > fx + fw || bb.1 < fy || bb.3 > fy + fh {
                     continue;
                 }
-                let overlap: f64 = placed
-                    .iter()
-                    .map(|p| {
-                        let ox = (bb.2.min(p.2) - bb.0.max(p.0)).max(0.0);
-                        let oy = (bb.3.min(p.3) - bb.1.max(p.1)).max(0.0);
-                        ox * oy
-                    })
-                    .sum();
-                if overlap == 0.0 {
+                if !placed.overlaps(bb) {
                     best = Some((bx, by));
                     break 'search;
                 }
@@ -688,7 +725,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         let Some((bx, by)) = best else {
             continue;
         };
-        placed.push((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
+        placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
         sc.text(
             &leaf.label,
             bx,
@@ -700,6 +737,9 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             Rgba::BLACK,
             white_halo,
         );
+        if let Some(Item::Path { class, .. }) = sc.items.last_mut() {
+            *class = "leaf-label".into();
+        }
     }
 
     // Colour bar.

@@ -83,6 +83,8 @@ pub struct Overlay<'a> {
     /// Optional branch footprints, outlined thinly when [`Style::show_branches`] is set.
     pub branch_labels: Option<ArrayView2<'a, i32>>,
     /// The leaves to outline and label; ids in `labels` that are not listed are not drawn.
+    /// Labels are placed greedily in this order; one that finds no free place near its
+    /// peak is left out rather than printed over another.
     pub leaves: Vec<LeafStyle>,
     /// Legend entries, indexed by [`LeafStyle::state`].
     pub states: Vec<StateLegend>,
@@ -166,6 +168,7 @@ pub struct TreeNode {
     pub top: f64,
     /// Merge level (where it joins its parent), or the floor for roots.
     pub bottom: f64,
+    /// Must agree with the tree: a structure marked as a leaf may not have children.
     pub is_leaf: bool,
     /// Index into the states legend, or None (drawn in dark grey).
     pub state: Option<usize>,

@@ -73,6 +73,14 @@ pub fn tree_layout(nodes: &[TreeNode]) -> Result<TreeLayout, RenderError> {
             }
         }
     }
+    for n in by_id.values() {
+        if n.is_leaf && children.contains_key(&n.id) {
+            return Err(RenderError::BadTree(format!(
+                "structure {} is marked as a leaf but has children",
+                n.id
+            )));
+        }
+    }
     if x.len() != by_id.len() {
         return Err(RenderError::BadTree(
             "some structures are not reachable from a root (a cycle of parents)".into(),
@@ -411,6 +419,9 @@ mod tests {
         let nodes = vec![node(1, Some(2)), node(2, Some(1))];
         assert!(tree_layout(&nodes).is_err());
         let nodes = vec![node(1, Some(9))];
+        assert!(tree_layout(&nodes).is_err());
+        let mut nodes = vec![node(1, None), node(2, Some(1))];
+        nodes[0].is_leaf = true;
         assert!(tree_layout(&nodes).is_err());
     }
 }
