@@ -1,7 +1,8 @@
 //! Draws the figures of an invented cloud so they can be looked at.
 //!
 //! `cargo run --release --example render_demo -- OUT_DIR` writes `map.png`, `map.svg`,
-//! `map_galactic_zoom.png`, `map_pixels_grey.png`, `tree.png` and `tree.svg`. The map is made
+//! `map_galactic_zoom.png`, `map_pixels_grey.png`, `map_strip.png`, `tree.png`, `tree.svg` and
+//! `tree_log.png`. The map is made
 //! up: Gaussian cores on a sloping background with a missing corner, footprints cut at a
 //! fraction of each core's peak (one with a hole, two touching, one on the map edge), seen
 //! through a gnomonic projection turned by 20 degrees.
@@ -192,6 +193,25 @@ fn main() {
     std::fs::write(
         format!("{out}/map_pixels_grey.png"),
         render_png(&o3, &grey).unwrap(),
+    )
+    .unwrap();
+
+    // A narrow strip of the map, at single-column width.
+    let strip = Style {
+        region: Some((130, 0, 60, 240)),
+        width_px: 1000,
+        stretch: Stretch::Sqrt,
+        colormap: ColorMap::Cividis,
+        ..Style::default()
+    };
+    let o4 = Overlay {
+        sky: Some(&eq),
+        title: Some("Strip".into()),
+        ..o3
+    };
+    std::fs::write(
+        format!("{out}/map_strip.png"),
+        render_png(&o4, &strip).unwrap(),
     )
     .unwrap();
 
