@@ -752,6 +752,12 @@ fn mismatched_inputs_are_refused_with_a_sentence() {
         render_png(&o, &bad_region),
         Err(render::RenderError::BadRegion(_))
     ));
+    let swapped = Style {
+        limits: Limits::Values(5.0, 1.0),
+        ..Style::default()
+    };
+    let e = render_svg(&o, &swapped).unwrap_err();
+    assert!(e.to_string().contains("swap them"), "{e}");
 }
 
 #[test]

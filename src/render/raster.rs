@@ -11,7 +11,14 @@ pub(crate) const MISSING: [u8; 3] = [204, 204, 204];
 /// The data values shown at the bottom and top of the colour scale.
 pub fn display_limits(map: ArrayView2<f32>, limits: Limits) -> Result<(f64, f64), RenderError> {
     let (lo, hi) = match limits {
-        Limits::Values(lo, hi) => (lo, hi),
+        Limits::Values(lo, hi) => {
+            if lo > hi {
+                return Err(RenderError::BadStyle(format!(
+                    "the lower display limit {lo} is above the upper one {hi}; swap them"
+                )));
+            }
+            (lo, hi)
+        }
         Limits::Percentiles(plo, phi) => {
             if !(0.0..=100.0).contains(&plo) || !(0.0..=100.0).contains(&phi) || plo >= phi {
                 return Err(RenderError::BadStyle(format!(
