@@ -1,0 +1,848 @@
+//! The map figure: layout (frame, margins, ticks, beam, scale bar, colour bar, legend) and the
+//! drawing of every element into a [`Scene`].
+
+use super::axes::{self, AxisTicks, Edge, Region};
+use super::outline::trace_outlines;
+use super::raster::{self, Lut, Scale};
+use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
+use super::text;
+use super::{
+    ColorMap, Overlay, RenderError, SkyAxes, Stretch, Style, state_colour, state_dash,
+    state_line_style,
+};
+use ndarray::s;
+
+/// The beam ellipse: centre and semi-axis vectors, all in map pixels.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BeamGeometry {
+    pub centre: (f64, f64),
+    /// Half the major FWHM along the major axis.
+    pub semi_major: (f64, f64),
+    /// Half the minor FWHM along the minor axis.
+    pub semi_minor: (f64, f64),
+}
+
+impl BeamGeometry {
+    /// Points around the ellipse in map pixels.
+    pub fn polygon(&self, n: usize) -> Vec<(f64, f64)> {
+        (0..n)
+            .map(|i| {
+                let t = std::f64::consts::TAU * i as f64 / n as f64;
+                let (c, s) = (t.cos(), t.sin());
+                (
+                    self.centre.0 + c * self.semi_major.0 + s * self.semi_minor.0,
+                    self.centre.1 + c * self.semi_major.1 + s * self.semi_minor.1,
+                )
+            })
+            .collect()
+    }
+}
+
+/// The beam of FWHM `major` x `minor` pixels at position angle `pa_deg` (east of north),
+/// centred at `at` (map pixels). North and east are taken from `sky` at that point when
+/// given; otherwise north is +y and east is -x.
+pub fn beam_geometry(
+    major: f64,
+    minor: f64,
+    pa_deg: f64,
+    sky: Option<&dyn SkyAxes>,
+    at: (f64, f64),
+) -> BeamGeometry {
+    let mut north = (0.0, 1.0);
+    let mut east = (-1.0, 0.0);
+    if let Some(sky) = sky
+        && let Some((lon, lat)) = sky.pixel_to_sky(at.0, at.1)
+    {
+        let d = sky.pixel_scale_deg().abs().max(1e-9);
+        let cosd = lat.to_radians().cos().max(1e-6);
+        let dir = |p: Option<(f64, f64)>| {
+            p.and_then(|(x, y)| {
+                let (dx, dy) = (x - at.0, y - at.1);
+                let n = dx.hypot(dy);
+                (n > 0.0).then(|| (dx / n, dy / n))
+            })
+        };
+        if let (Some(n), Some(e)) = (
+            dir(sky.sky_to_pixel(lon, lat + d)),
+            dir(sky.sky_to_pixel(lon + d / cosd, lat)),
+        ) {
+            north = n;
+            east = e;
+        }
+    }
+    let pa = pa_deg.to_radians();
+    let (c, s) = (pa.cos(), pa.sin());
+    let mut u = (c * north.0 + s * east.0, c * north.1 + s * east.1);
+    let n = u.0.hypot(u.1);
+    u = (u.0 / n, u.1 / n);
+    let v = (-u.1, u.0);
+    BeamGeometry {
+        centre: at,
+        semi_major: (u.0 * major / 2.0, u.1 * major / 2.0),
+        semi_minor: (v.0 * minor / 2.0, v.1 * minor / 2.0),
+    }
+}
+
+/// Where everything goes on a map figure, in output pixels (origin top left, y down).
+#[derive(Debug, Clone)]
+pub struct Layout {
+    pub width: u32,
+    pub height: u32,
+    /// The shown part of the map: x0, y0, width, height in map pixels.
+    pub region: Region,
+    /// The map frame: left, top, width, height (whole output pixels).
+    pub frame: (f64, f64, f64, f64),
+    /// Output pixels per map pixel along x and y.
+    pub kx: f64,
+    pub ky: f64,
+    /// Data values at the ends of the colour scale.
+    pub limits: (f64, f64),
+    pub ticks: AxisTicks,
+    /// The beam, in map pixels.
+    pub beam: Option<BeamGeometry>,
+    /// Ends of the scale bar in map pixels.
+    pub scale_bar: Option<((f64, f64), (f64, f64))>,
+    /// Text size in output pixels (9 pt).
+    pub font_px: f64,
+    colorbar: (f64, f64, f64, f64),
+    legend_top: f64,
+    legend_rows: Vec<Vec<(usize, f64)>>,
+}
+
+impl Layout {
+    /// Map pixel coordinates to output pixels.
+    pub fn map_to_figure(&self, x: f64, y: f64) -> (f64, f64) {
+        let (x0, y0, _, _) = self.region;
+        let (fx, fy, _, fh) = self.frame;
+        (
+            fx + (x - (x0 as f64 - 0.5)) * self.kx,
+            fy + fh - (y - (y0 as f64 - 0.5)) * self.ky,
+        )
+    }
+    /// Output pixels to map pixel coordinates.
+    pub fn figure_to_map(&self, fx: f64, fy: f64) -> (f64, f64) {
+        let (x0, y0, _, _) = self.region;
+        let (ox, oy, _, fh) = self.frame;
+        (
+            (fx - ox) / self.kx + x0 as f64 - 0.5,
+            (oy + fh - fy) / self.ky + y0 as f64 - 0.5,
+        )
+    }
+}
+
+/// Sizes derived from the print resolution.
+struct Metrics {
+    fs: f64,
+    pt: f64,
+    pad: f64,
+    gap: f64,
+    tick: f64,
+}
+
+impl Metrics {
+    fn new(dpi: f64) -> Self {
+        let pt = dpi / 72.0;
+        let fs = 9.0 * pt;
+        Metrics {
+            fs,
+            pt,
+            pad: 0.6 * fs,
+            gap: 0.35 * fs,
+            tick: 0.35 * fs,
+        }
+    }
+}
+
+fn validate(o: &Overlay, s: &Style) -> Result<Region, RenderError> {
+    let (h, w) = o.map.dim();
+    if h == 0 || w == 0 {
+        return Err(RenderError::EmptyMap);
+    }
+    if o.labels.dim() != (h, w) {
+        return Err(RenderError::ShapeMismatch {
+            what: "leaf label map",
+            expected: (h, w),
+            found: o.labels.dim(),
+        });
+    }
+    if let Some(b) = o.branch_labels
+        && b.dim() != (h, w)
+    {
+        return Err(RenderError::ShapeMismatch {
+            what: "branch label map",
+            expected: (h, w),
+            found: b.dim(),
+        });
+    }
+    if !(s.dpi.is_finite() && s.dpi >= 30.0 && s.dpi <= 2400.0) {
+        return Err(RenderError::BadStyle(format!(
+            "dpi must be between 30 and 2400, got {}",
+            s.dpi
+        )));
+    }
+    let region = s.region.unwrap_or((0, 0, w, h));
+    let (x0, y0, rw, rh) = region;
+    if rw == 0 || rh == 0 || x0 + rw > w || y0 + rh > h {
+        return Err(RenderError::BadRegion(region));
+    }
+    if let Some((maj, min, pa)) = o.beam
+        && !(maj > 0.0 && min > 0.0 && min <= maj && pa.is_finite())
+    {
+        return Err(RenderError::BadStyle(format!(
+            "the beam needs 0 < minor <= major and a finite angle, got major {maj}, minor {min}, angle {pa}"
+        )));
+    }
+    if let Some((len, _)) = &o.scale_bar
+        && !(*len > 0.0 && len.is_finite())
+    {
+        return Err(RenderError::BadStyle(format!(
+            "the scale bar length must be positive, got {len}"
+        )));
+    }
+    Ok(region)
+}
+
+fn colorbar_ticks(lo: f64, hi: f64, stretch: Stretch) -> Vec<(f64, String)> {
+    let t = if stretch == Stretch::Log && lo > 0.0 {
+        axes::log_ticks(lo, hi)
+    } else {
+        Vec::new()
+    };
+    if t.len() >= 2 {
+        t
+    } else {
+        axes::linear_ticks(lo, hi, 5)
+    }
+}
+
+fn legend_label(o: &Overlay, i: usize) -> String {
+    let st = &o.states[i];
+    if st.description.is_empty() {
+        st.name.clone()
+    } else {
+        format!("{}: {}", st.name, st.description)
+    }
+}
+
+/// Computes the layout of a map figure (including the display limits of the colour scale).
+pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
+    let region = validate(o, s)?;
+    let (x0, y0, rw, rh) = region;
+    let m = Metrics::new(s.dpi);
+    let fs = m.fs;
+    let lfs = 0.9 * fs; // tick labels
+    let w_total = s.width_px as f64;
+
+    let view = o.map.slice(s![y0..y0 + rh, x0..x0 + rw]);
+    let limits = raster::display_limits(view, s.limits)?;
+    // Right margin: colour bar, its labels and the unit label.
+    let cb_ticks = colorbar_ticks(limits.0, limits.1, s.stretch);
+    let cb_lab_w = cb_ticks
+        .iter()
+        .map(|(_, l)| text::width(l, lfs))
+        .fold(0.0, f64::max);
+    let cb_w = 0.8 * fs;
+    let right = m.gap * 2.0 + cb_w + m.tick + m.gap + cb_lab_w + m.gap + 1.2 * fs + m.pad;
+    let top = m.pad
+        + if o.title.is_some() {
+            1.15 * fs * 1.3 + m.gap
+        } else {
+            0.0
+        };
+
+    // Ticks: as many as fit without overlapping labels.
+    let mut nb = 6usize;
+    let mut nl = 7usize;
+    let (ticks, left, fw, fh, kx, ky) = loop {
+        let ticks = axes::axis_ticks(o.sky, region, nb, nl);
+        let left_lab_w = ticks
+            .ticks
+            .iter()
+            .filter(|t| t.edge == Edge::Left)
+            .map(|t| text::width(&t.label, lfs))
+            .fold(0.0, f64::max);
+        let left = m.pad + 1.2 * fs + m.gap + left_lab_w + m.gap + m.tick;
+        let fw = (w_total - left - right).floor();
+        if fw < 16.0 {
+            return Err(RenderError::BadStyle(format!(
+                "a figure {} pixels wide at {} dpi leaves no room for the map; make it wider or lower the dpi",
+                s.width_px, s.dpi
+            )));
+        }
+        let fh = (fw * rh as f64 / rw as f64).round().max(1.0);
+        let kx = fw / rw as f64;
+        let ky = fh / rh as f64;
+        // Check overlaps along each labelled edge.
+        let mut bottom: Vec<(f64, f64)> = ticks
+            .ticks
+            .iter()
+            .filter(|t| t.edge == Edge::Bottom)
+            .map(|t| ((t.x - (x0 as f64 - 0.5)) * kx, text::width(&t.label, lfs)))
+            .collect();
+        bottom.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let b_ok = bottom
+            .windows(2)
+            .all(|p| p[0].0 + p[0].1 / 2.0 + 1.5 * m.gap < p[1].0 - p[1].1 / 2.0);
+        let mut leftp: Vec<f64> = ticks
+            .ticks
+            .iter()
+            .filter(|t| t.edge == Edge::Left)
+            .map(|t| (t.y - (y0 as f64 - 0.5)) * ky)
+            .collect();
+        leftp.sort_by(f64::total_cmp);
+        let l_ok = leftp.windows(2).all(|p| p[1] - p[0] > 1.6 * lfs);
+        if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
+            break (ticks, left, fw, fh, kx, ky);
+        }
+        if !b_ok && nb > 2 {
+            nb -= 1;
+        }
+        if !l_ok && nl > 2 {
+            nl -= 1;
+        }
+    };
+    let left = left.round();
+    let frame = (left, top.round(), fw, fh);
+
+    // Legend rows below the axis title.
+    let sample = 2.6 * fs;
+    let mut rows: Vec<Vec<(usize, f64)>> = Vec::new();
+    let mut x = 0.0;
+    let avail = w_total - 2.0 * m.pad;
+    for i in 0..o.states.len() {
+        let ew = sample + m.gap + text::width(&legend_label(o, i), fs);
+        if rows.is_empty() || (x > 0.0 && x + ew > avail) {
+            rows.push(Vec::new());
+            x = 0.0;
+        }
+        rows.last_mut().expect("a row exists").push((i, x));
+        x += ew + 1.5 * fs;
+    }
+    let below = m.tick + m.gap + 1.25 * lfs + m.gap + 1.3 * fs;
+    let legend_top = frame.1 + fh + below + m.pad;
+    let legend_h = rows.len() as f64 * 1.5 * fs;
+    let height = (legend_top + legend_h + m.pad).ceil() as u32;
+
+    let mut lay = Layout {
+        width: s.width_px,
+        height,
+        region,
+        frame,
+        kx,
+        ky,
+        limits,
+        ticks,
+        beam: None,
+        scale_bar: None,
+        font_px: fs,
+        colorbar: (left + fw + 2.0 * m.gap, frame.1, cb_w, fh),
+        legend_top,
+        legend_rows: rows,
+    };
+
+    // Beam in the lower left corner, scale bar in the lower right, inside the frame.
+    let inset = 0.6 * fs;
+    if let Some((maj, min, pa)) = o.beam {
+        let probe = beam_geometry(maj, min, pa, o.sky, lay.figure_to_map(left, frame.1 + fh));
+        let ex = (probe.semi_major.0 * kx).hypot(probe.semi_minor.0 * kx);
+        let ey = (probe.semi_major.1 * ky).hypot(probe.semi_minor.1 * ky);
+        let c = lay.figure_to_map(left + inset + ex, frame.1 + fh - inset - ey);
+        lay.beam = Some(beam_geometry(maj, min, pa, o.sky, c));
+    }
+    if let Some((len, _)) = &o.scale_bar {
+        let (ex, ey) = (left + fw - inset, frame.1 + fh - inset - 0.3 * fs);
+        let end = lay.figure_to_map(ex, ey);
+        lay.scale_bar = Some(((end.0 - len, end.1), end));
+    }
+    Ok(lay)
+}
+
+/// Boxes (left, top, right, bottom) already taken on the figure, bucketed on a grid so a
+/// query looks only at nearby boxes.
+struct BoxIndex {
+    cell: f64,
+    boxes: Vec<(f64, f64, f64, f64)>,
+    grid: std::collections::HashMap<(i64, i64), Vec<usize>>,
+}
+
+impl BoxIndex {
+    fn new(cell: f64) -> Self {
+        BoxIndex {
+            cell: cell.max(1.0),
+            boxes: Vec::new(),
+            grid: std::collections::HashMap::new(),
+        }
+    }
+    fn cells(&self, b: (f64, f64, f64, f64)) -> impl Iterator<Item = (i64, i64)> {
+        let c = self.cell;
+        let (i0, i1) = ((b.0 / c).floor() as i64, (b.2 / c).floor() as i64);
+        let (j0, j1) = ((b.1 / c).floor() as i64, (b.3 / c).floor() as i64);
+        (j0..=j1).flat_map(move |j| (i0..=i1).map(move |i| (i, j)))
+    }
+    fn insert(&mut self, b: (f64, f64, f64, f64)) {
+        let k = self.boxes.len();
+        self.boxes.push(b);
+        let cells: Vec<(i64, i64)> = self.cells(b).collect();
+        for c in cells {
+            self.grid.entry(c).or_default().push(k);
+        }
+    }
+    fn overlaps(&self, b: (f64, f64, f64, f64)) -> bool {
+        self.cells(b).any(|c| {
+            self.grid.get(&c).is_some_and(|v| {
+                v.iter().any(|&k| {
+                    let p = self.boxes[k];
+                    b.2.min(p.2) > b.0.max(p.0) && b.3.min(p.3) > b.1.max(p.1)
+                })
+            })
+        })
+    }
+}
+
+/// Builds the whole map figure.
+pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
+    let lay = overlay_layout(o, s)?;
+    let m = Metrics::new(s.dpi);
+    let fs = m.fs;
+    let lfs = 0.9 * fs;
+    let (x0, y0, rw, rh) = lay.region;
+    let (fx, fy, fw, fh) = lay.frame;
+    let title = o.title.clone().unwrap_or_else(|| "map".to_string());
+    let mut sc = Scene::new(lay.width, lay.height, s.dpi, &text::plain(&title));
+    sc.clip = Some(lay.frame);
+    let scale = Scale {
+        lo: lay.limits.0,
+        hi: lay.limits.1,
+        stretch: s.stretch,
+    };
+
+    // The map image.
+    let view = o.map.slice(s![y0..y0 + rh, x0..x0 + rw]);
+    let (iw, ih) = (fw as usize, fh as usize);
+    let vals = raster::resample(view, iw, ih);
+    let lut = Lut::new(s.colormap);
+    let mut rgb = vec![0u8; iw * ih * 3];
+    for (k, (px, &v)) in rgb.chunks_exact_mut(3).zip(vals.iter()).enumerate() {
+        let c = if v.is_nan() && s.colormap == ColorMap::Grey {
+            // On a grey ramp plain grey would read as data: hatch missing pixels instead.
+            let (i, j) = (k % iw, k / iw);
+            if (i + j) % 8 < 2 {
+                [150, 150, 150]
+            } else {
+                [235, 235, 235]
+            }
+        } else {
+            lut.get(scale.pos(v as f64))
+        };
+        px.copy_from_slice(&c);
+    }
+    sc.items.push(Item::Image {
+        x: fx as i32,
+        y: fy as i32,
+        w: iw as u32,
+        h: ih as u32,
+        rgb,
+    });
+
+    // Outlines, traced on a window one pixel larger than the region so footprints cut by
+    // the region's edge get their boundary outside the frame (clipped away).
+    let (mh, mw) = o.map.dim();
+    let wx0 = x0.saturating_sub(1);
+    let wy0 = y0.saturating_sub(1);
+    let wx1 = (x0 + rw + 1).min(mw);
+    let wy1 = (y0 + rh + 1).min(mh);
+    let to_path = |rings: &[Vec<(f64, f64)>]| {
+        let mut d = PathData::new();
+        for r in rings {
+            for (i, &(x, y)) in r.iter().enumerate() {
+                let (a, b) = lay.map_to_figure(x, y);
+                if i == 0 {
+                    d.move_to(a, b)
+                } else {
+                    d.line_to(a, b)
+                }
+            }
+            d.close();
+        }
+        d
+    };
+    if s.show_branches
+        && let Some(bl) = o.branch_labels
+    {
+        let traced = trace_outlines(bl.slice(s![wy0..wy1, wx0..wx1]), (wx0 as f64, wy0 as f64));
+        for (id, rings) in &traced {
+            sc.items.push(Item::Path {
+                d: to_path(rings),
+                paints: vec![
+                    Paint::Stroke(Line::solid(Rgba(0, 0, 0, 110), 1.0 * m.pt)),
+                    Paint::Stroke(Line::solid(Rgba(255, 255, 255, 230), 0.45 * m.pt)),
+                ],
+                clip: true,
+                id: Some(format!("branch-{id}")),
+                class: "branch".into(),
+                label: None,
+            });
+        }
+    }
+    let traced = trace_outlines(
+        o.labels.slice(s![wy0..wy1, wx0..wx1]),
+        (wx0 as f64, wy0 as f64),
+    );
+    // All dark casings first, then all coloured lines, so where two leaves share an edge
+    // the gaps of one's dashes show the other's colour.
+    let lw = 0.85 * m.pt;
+    let mut colour_passes = Vec::new();
+    for leaf in &o.leaves {
+        let Some(rings) = traced.get(&leaf.id) else {
+            continue;
+        };
+        let dash = state_dash(leaf.state, lw);
+        colour_passes.push(Item::Reuse {
+            id: format!("leaf-{}", leaf.id),
+            paints: vec![Paint::Stroke(Line {
+                color: state_colour(leaf.state),
+                width: lw,
+                dash: dash.clone(),
+                round: true,
+            })],
+            clip: true,
+        });
+        sc.items.push(Item::Path {
+            d: to_path(rings),
+            paints: vec![Paint::Stroke(Line {
+                color: Rgba(0, 0, 0, 200),
+                width: lw + 1.1 * m.pt,
+                dash,
+                round: true,
+            })],
+            clip: true,
+            id: Some(format!("leaf-{}", leaf.id)),
+            class: format!("leaf state-{} {}", leaf.state, state_line_style(leaf.state)),
+            label: Some(format!("leaf {}", leaf.label)),
+        });
+    }
+    sc.items.extend(colour_passes);
+
+    // Frame and ticks.
+    sc.path(
+        PathData::rect(fx, fy, fw, fh),
+        vec![Paint::Stroke(Line::solid(Rgba::BLACK, 0.7 * m.pt))],
+        "frame",
+    );
+    let mut marks = PathData::new();
+    for t in &lay.ticks.ticks {
+        let (px, py) = lay.map_to_figure(t.x, t.y);
+        let (dx, dy) = match t.edge {
+            Edge::Bottom => (0.0, m.tick),
+            Edge::Top => (0.0, -m.tick),
+            Edge::Left => (-m.tick, 0.0),
+            Edge::Right => (m.tick, 0.0),
+        };
+        marks.move_to(px, py);
+        marks.line_to(px + dx, py + dy);
+    }
+    if !marks.0.is_empty() {
+        sc.path(
+            marks,
+            vec![Paint::Stroke(Line::solid(Rgba::BLACK, 0.6 * m.pt))],
+            "ticks",
+        );
+    }
+    for t in &lay.ticks.ticks {
+        let (px, py) = lay.map_to_figure(t.x, t.y);
+        match t.edge {
+            Edge::Bottom => sc.text(
+                &t.label,
+                px,
+                py + m.tick + m.gap,
+                lfs,
+                0.5,
+                1.0,
+                false,
+                Rgba::BLACK,
+                None,
+            ),
+            Edge::Left => sc.text(
+                &t.label,
+                px - m.tick - m.gap,
+                py,
+                lfs,
+                1.0,
+                0.5,
+                false,
+                Rgba::BLACK,
+                None,
+            ),
+            _ => {}
+        }
+    }
+    let title_y = fy + fh + m.tick + m.gap + 1.25 * lfs + m.gap + text::cap_height(fs);
+    sc.text(
+        &lay.ticks.bottom_title,
+        fx + fw / 2.0,
+        title_y,
+        fs,
+        0.5,
+        0.0,
+        false,
+        Rgba::BLACK,
+        None,
+    );
+    sc.text(
+        &lay.ticks.left_title,
+        m.pad + text::cap_height(fs),
+        fy + fh / 2.0,
+        fs,
+        0.5,
+        0.0,
+        true,
+        Rgba::BLACK,
+        None,
+    );
+    if let Some(t) = &o.title {
+        sc.text(
+            t,
+            fx + fw / 2.0,
+            m.pad + text::cap_height(1.15 * fs),
+            1.15 * fs,
+            0.5,
+            0.0,
+            false,
+            Rgba::BLACK,
+            None,
+        );
+    }
+
+    // Beam and scale bar.
+    let white_halo = Some((Rgba(255, 255, 255, 235), 0.16 * fs));
+    let mut keep_out: Vec<(f64, f64, f64, f64)> = Vec::new();
+    if let Some(b) = &lay.beam {
+        let pts: Vec<(f64, f64)> = b
+            .polygon(96)
+            .into_iter()
+            .map(|(x, y)| lay.map_to_figure(x, y))
+            .collect();
+        let bbox = pts.iter().fold(
+            (
+                f64::INFINITY,
+                f64::INFINITY,
+                f64::NEG_INFINITY,
+                f64::NEG_INFINITY,
+            ),
+            |b, &(x, y)| (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y)),
+        );
+        keep_out.push(bbox);
+        sc.path(
+            PathData::polygon(&pts),
+            vec![
+                Paint::Fill(Rgba(255, 255, 255, 255)),
+                Paint::Stroke(Line::solid(Rgba::BLACK, 0.8 * m.pt)),
+            ],
+            "beam",
+        );
+    }
+    if let (Some((a, b)), Some((_, label))) = (lay.scale_bar, &o.scale_bar) {
+        let (ax, ay) = lay.map_to_figure(a.0, a.1);
+        let (bx, by) = lay.map_to_figure(b.0, b.1);
+        let cap = 0.25 * fs;
+        let mut d = PathData::line(ax, ay, bx, by);
+        d.move_to(ax, ay - cap);
+        d.line_to(ax, ay + cap);
+        d.move_to(bx, by - cap);
+        d.line_to(bx, by + cap);
+        sc.path(
+            d,
+            vec![
+                Paint::Stroke(Line::solid(Rgba(255, 255, 255, 235), 2.6 * m.pt)),
+                Paint::Stroke(Line::solid(Rgba::BLACK, 1.0 * m.pt)),
+            ],
+            "scale-bar",
+        );
+        let tw = text::width(label, lfs);
+        keep_out.push((
+            ax.min(0.5 * (ax + bx) - tw / 2.0),
+            ay - cap - m.gap - text::cap_height(lfs),
+            bx.max(0.5 * (ax + bx) + tw / 2.0),
+            ay + cap,
+        ));
+        sc.text(
+            label,
+            0.5 * (ax + bx),
+            ay - cap - m.gap,
+            lfs,
+            0.5,
+            0.0,
+            false,
+            Rgba::BLACK,
+            white_halo,
+        );
+    }
+
+    // Leaf labels: greedy placement around each peak, avoiding the beam, the scale bar and
+    // earlier labels. A label that finds no free place near its leaf is left out rather
+    // than printed over another.
+    let label_fs = 0.85 * fs;
+    let mut placed = BoxIndex::new(2.0 * label_fs);
+    for b in &keep_out {
+        placed.insert(*b);
+    }
+    let cap_h = text::cap_height(label_fs);
+    let hpad = 0.15 * label_fs;
+    for leaf in &o.leaves {
+        if !traced.contains_key(&leaf.id) {
+            continue;
+        }
+        let (px, py) = lay.map_to_figure(leaf.peak.0, leaf.peak.1);
+        if px < fx || px > fx + fw || py < fy || py > fy + fh {
+            continue;
+        }
+        let w = text::width(&leaf.label, label_fs);
+        let mut best: Option<(f64, f64)> = None;
+        'search: for ring in 1..=4 {
+            let r = 0.45 * label_fs * ring as f64;
+            // Baseline-left positions of the label for offsets around the peak.
+            let cands = [
+                (px + r, py - r),
+                (px - r - w, py - r),
+                (px + r, py + r + cap_h),
+                (px - r - w, py + r + cap_h),
+                (px - w / 2.0, py - r),
+                (px - w / 2.0, py + r + cap_h),
+                (px + r, py + cap_h / 2.0),
+                (px - r - w, py + cap_h / 2.0),
+            ];
+            for (bx, by) in cands {
+                let bb = (bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad);
+                if bb.0 < fx || bb.2 > fx + fw || bb.1 < fy || bb.3 > fy + fh {
+                    continue;
+                }
+                if !placed.overlaps(bb) {
+                    best = Some((bx, by));
+                    break 'search;
+                }
+            }
+        }
+        let Some((bx, by)) = best else {
+            continue;
+        };
+        placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
+        sc.text(
+            &leaf.label,
+            bx,
+            by,
+            label_fs,
+            0.0,
+            0.0,
+            false,
+            Rgba::BLACK,
+            white_halo,
+        );
+        if let Some(Item::Path { class, .. }) = sc.items.last_mut() {
+            *class = "leaf-label".into();
+        }
+    }
+
+    // Colour bar.
+    let (cx, cy, cw, ch) = lay.colorbar;
+    let (cwi, chi) = (cw.round().max(1.0) as u32, ch as u32);
+    let mut cb = Vec::with_capacity((cwi * chi * 3) as usize);
+    for j in 0..chi {
+        let t = 1.0 - (j as f64 + 0.5) / chi as f64;
+        let c = raster::color_at(s.colormap, t);
+        for _ in 0..cwi {
+            cb.extend_from_slice(&c);
+        }
+    }
+    sc.items.push(Item::Image {
+        x: cx.round() as i32,
+        y: cy as i32,
+        w: cwi,
+        h: chi,
+        rgb: cb,
+    });
+    let cx = cx.round();
+    sc.path(
+        PathData::rect(cx, cy, cwi as f64, ch),
+        vec![Paint::Stroke(Line::solid(Rgba::BLACK, 0.6 * m.pt))],
+        "colorbar-frame",
+    );
+    let mut cmarks = PathData::new();
+    let mut last_y = f64::INFINITY;
+    let mut labels = Vec::new();
+    for (v, l) in colorbar_ticks(lay.limits.0, lay.limits.1, s.stretch) {
+        if v < lay.limits.0 || v > lay.limits.1 {
+            continue;
+        }
+        let y = cy + ch - scale.pos(v) * ch;
+        let xr = cx + cwi as f64;
+        cmarks.move_to(xr, y);
+        cmarks.line_to(xr + m.tick, y);
+        if last_y - y >= 1.3 * lfs {
+            labels.push((y, l));
+            last_y = y;
+        }
+    }
+    sc.path(
+        cmarks,
+        vec![Paint::Stroke(Line::solid(Rgba::BLACK, 0.6 * m.pt))],
+        "colorbar-ticks",
+    );
+    let lab_x = cx + cwi as f64 + m.tick + m.gap;
+    let mut max_w: f64 = 0.0;
+    for (y, l) in labels {
+        max_w = max_w.max(text::width(&l, lfs));
+        sc.text(&l, lab_x, y, lfs, 0.0, 0.5, false, Rgba::BLACK, None);
+    }
+    let unit_x = (lab_x + max_w + m.gap + text::cap_height(fs)).min(lay.width as f64 - m.pad);
+    sc.text(
+        &o.unit_label,
+        unit_x,
+        cy + ch / 2.0,
+        fs,
+        0.5,
+        0.0,
+        true,
+        Rgba::BLACK,
+        None,
+    );
+
+    // Legend of states.
+    let sample = 2.6 * fs;
+    for (r, row) in lay.legend_rows.iter().enumerate() {
+        let yc = lay.legend_top + (r as f64 + 0.5) * 1.5 * fs;
+        for &(i, x) in row {
+            let x = m.pad + x;
+            let dash = state_dash(i, lw);
+            sc.path(
+                PathData::line(x + 0.2 * fs, yc, x + sample - 0.2 * fs, yc),
+                vec![
+                    Paint::Stroke(Line {
+                        color: Rgba(0, 0, 0, 200),
+                        width: lw + 1.1 * m.pt,
+                        dash: dash.clone(),
+                        round: true,
+                    }),
+                    Paint::Stroke(Line {
+                        color: state_colour(i),
+                        width: lw,
+                        dash,
+                        round: true,
+                    }),
+                ],
+                "legend-sample",
+            );
+            sc.text(
+                &legend_label(o, i),
+                x + sample + m.gap,
+                yc,
+                fs,
+                0.0,
+                0.5,
+                false,
+                Rgba::BLACK,
+                None,
+            );
+        }
+    }
+    Ok(sc)
+}

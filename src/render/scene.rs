@@ -1,0 +1,602 @@
+//! A small list of drawing primitives in output-pixel coordinates (origin top left, y down)
+//! and its two back ends: an anti-aliased raster through `tiny-skia`, written as PNG with the
+//! resolution recorded, and SVG text with the same geometry.
+//!
+//! Both back ends draw the same items in the same order, so the PNG and the SVG of a figure
+//! agree. Output is deterministic: numbers in the SVG are printed with a fixed number of
+//! decimals, and nothing depends on time, locale or hash order.
+
+use super::RenderError;
+use base64::Engine;
+use std::fmt::Write as _;
+
+/// One segment of a path.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Seg {
+    M(f64, f64),
+    L(f64, f64),
+    Q(f64, f64, f64, f64),
+    C(f64, f64, f64, f64, f64, f64),
+    Z,
+}
+
+/// Path geometry: any number of subpaths.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub(crate) struct PathData(pub Vec<Seg>);
+
+impl PathData {
+    pub fn new() -> Self {
+        PathData(Vec::new())
+    }
+    pub fn move_to(&mut self, x: f64, y: f64) {
+        self.0.push(Seg::M(x, y));
+    }
+    pub fn line_to(&mut self, x: f64, y: f64) {
+        self.0.push(Seg::L(x, y));
+    }
+    pub fn close(&mut self) {
+        self.0.push(Seg::Z);
+    }
+    pub fn line(x0: f64, y0: f64, x1: f64, y1: f64) -> Self {
+        PathData(vec![Seg::M(x0, y0), Seg::L(x1, y1)])
+    }
+    pub fn rect(x: f64, y: f64, w: f64, h: f64) -> Self {
+        PathData(vec![
+            Seg::M(x, y),
+            Seg::L(x + w, y),
+            Seg::L(x + w, y + h),
+            Seg::L(x, y + h),
+            Seg::Z,
+        ])
+    }
+    pub fn polygon(pts: &[(f64, f64)]) -> Self {
+        let mut p = PathData::new();
+        for (i, &(x, y)) in pts.iter().enumerate() {
+            if i == 0 {
+                p.move_to(x, y)
+            } else {
+                p.line_to(x, y)
+            }
+        }
+        p.close();
+        p
+    }
+    /// Moves every point by (dx, dy) after turning it by `quarter_turns_ccw` quarter turns
+    /// counter-clockwise as seen on the page, about the origin.
+    pub fn placed(&self, dx: f64, dy: f64, rotate_ccw: bool) -> Self {
+        let t = |x: f64, y: f64| {
+            if rotate_ccw {
+                (dx + y, dy - x)
+            } else {
+                (dx + x, dy + y)
+            }
+        };
+        PathData(
+            self.0
+                .iter()
+                .map(|s| match *s {
+                    Seg::M(x, y) => {
+                        let (a, b) = t(x, y);
+                        Seg::M(a, b)
+                    }
+                    Seg::L(x, y) => {
+                        let (a, b) = t(x, y);
+                        Seg::L(a, b)
+                    }
+                    Seg::Q(x1, y1, x, y) => {
+                        let (a, b) = t(x1, y1);
+                        let (c, d) = t(x, y);
+                        Seg::Q(a, b, c, d)
+                    }
+                    Seg::C(x1, y1, x2, y2, x, y) => {
+                        let (a, b) = t(x1, y1);
+                        let (c, d) = t(x2, y2);
+                        let (e, f) = t(x, y);
+                        Seg::C(a, b, c, d, e, f)
+                    }
+                    Seg::Z => Seg::Z,
+                })
+                .collect(),
+        )
+    }
+}
+
+/// An sRGB colour with alpha.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct Rgba(pub u8, pub u8, pub u8, pub u8);
+
+impl Rgba {
+    pub const BLACK: Rgba = Rgba(0, 0, 0, 255);
+    pub fn hex(self) -> String {
+        format!("#{:02X}{:02X}{:02X}", self.0, self.1, self.2)
+    }
+}
+
+/// How a line is stroked.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Line {
+    pub color: Rgba,
+    pub width: f64,
+    /// Dash pattern in pixels (on, off, ...); empty for a solid line.
+    pub dash: Vec<f64>,
+    pub round: bool,
+}
+
+impl Line {
+    pub fn solid(color: Rgba, width: f64) -> Self {
+        Line {
+            color,
+            width,
+            dash: Vec::new(),
+            round: false,
+        }
+    }
+}
+
+/// One way of painting a path; a path may be painted several times (a dark casing under a
+/// coloured line, a halo under a letter).
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum Paint {
+    Fill(Rgba),
+    Stroke(Line),
+}
+
+#[derive(Debug, Clone)]
+pub(crate) enum Item {
+    /// Opaque RGB pixels placed at whole output pixels.
+    Image {
+        x: i32,
+        y: i32,
+        w: u32,
+        h: u32,
+        rgb: Vec<u8>,
+    },
+    Path {
+        d: PathData,
+        paints: Vec<Paint>,
+        /// Clip to the map frame.
+        clip: bool,
+        /// SVG id (must be unique) and class.
+        id: Option<String>,
+        class: String,
+        /// Readable text for the SVG (`aria-label`), used for text drawn as outlines.
+        label: Option<String>,
+    },
+    /// Paints again the geometry of the earlier path with this id (so all casings can go
+    /// under all coloured lines while each outline stays one path element in the SVG).
+    Reuse {
+        id: String,
+        paints: Vec<Paint>,
+        clip: bool,
+    },
+}
+
+/// A figure: its size, resolution, the map frame used for clipping, and the items in order.
+pub(crate) struct Scene {
+    pub width: u32,
+    pub height: u32,
+    pub dpi: f64,
+    pub clip: Option<(f64, f64, f64, f64)>,
+    pub items: Vec<Item>,
+    pub title: String,
+}
+
+impl Scene {
+    pub fn new(width: u32, height: u32, dpi: f64, title: &str) -> Self {
+        Scene {
+            width,
+            height,
+            dpi,
+            clip: None,
+            items: Vec::new(),
+            title: title.to_string(),
+        }
+    }
+
+    pub fn path(&mut self, d: PathData, paints: Vec<Paint>, class: &str) {
+        self.items.push(Item::Path {
+            d,
+            paints,
+            clip: false,
+            id: None,
+            class: class.to_string(),
+            label: None,
+        });
+    }
+
+    /// Text drawn as outlines. `ha`: 0 left, 0.5 centre, 1 right aligned at x; `va`: 0 the
+    /// baseline at y, 0.5 capitals centred on y, 1 capital tops at y. With `rotate` the text
+    /// reads upwards and the alignments apply along the rotated line.
+    #[allow(clippy::too_many_arguments)]
+    pub fn text(
+        &mut self,
+        s: &str,
+        x: f64,
+        y: f64,
+        size: f64,
+        ha: f64,
+        va: f64,
+        rotate: bool,
+        color: Rgba,
+        halo: Option<(Rgba, f64)>,
+    ) {
+        if s.is_empty() {
+            return;
+        }
+        let sh = super::text::shape(s, size);
+        let ox = -ha * sh.width;
+        let oy = va * sh.ascent;
+        let d = sh.path.placed(ox, oy, false).placed(x, y, rotate);
+        let mut paints = Vec::new();
+        if let Some((c, w)) = halo {
+            paints.push(Paint::Stroke(Line {
+                color: c,
+                width: w,
+                dash: Vec::new(),
+                round: true,
+            }));
+        }
+        paints.push(Paint::Fill(color));
+        self.items.push(Item::Path {
+            d,
+            paints,
+            clip: false,
+            id: None,
+            class: "text".to_string(),
+            label: Some(super::text::plain(s)),
+        });
+    }
+
+    /// Rasterises the scene and encodes it as an RGB PNG with its resolution recorded.
+    pub fn to_png(&self) -> Result<Vec<u8>, RenderError> {
+        use tiny_skia as sk;
+        let mut pm = sk::Pixmap::new(self.width, self.height)
+            .ok_or_else(|| RenderError::Encode("figure size is zero or too large".into()))?;
+        pm.fill(sk::Color::WHITE);
+        let mask = self.clip.and_then(|(x, y, w, h)| {
+            let mut m = sk::Mask::new(self.width, self.height)?;
+            let r = sk::Rect::from_xywh(x as f32, y as f32, w as f32, h as f32)?;
+            let p = sk::PathBuilder::from_rect(r);
+            m.fill_path(&p, sk::FillRule::Winding, false, sk::Transform::identity());
+            Some(m)
+        });
+        let by_id: std::collections::BTreeMap<&str, &PathData> = self
+            .items
+            .iter()
+            .filter_map(|it| match it {
+                Item::Path {
+                    d, id: Some(id), ..
+                } => Some((id.as_str(), d)),
+                _ => None,
+            })
+            .collect();
+        for item in &self.items {
+            match item {
+                Item::Image { x, y, w, h, rgb } => {
+                    let mut rgba = Vec::with_capacity((*w as usize) * (*h as usize) * 4);
+                    for px in rgb.chunks_exact(3) {
+                        rgba.extend_from_slice(&[px[0], px[1], px[2], 255]);
+                    }
+                    let size = sk::IntSize::from_wh(*w, *h)
+                        .ok_or_else(|| RenderError::Encode("empty image".into()))?;
+                    let img = sk::Pixmap::from_vec(rgba, size)
+                        .ok_or_else(|| RenderError::Encode("bad image buffer".into()))?;
+                    pm.draw_pixmap(
+                        *x,
+                        *y,
+                        img.as_ref(),
+                        &sk::PixmapPaint::default(),
+                        sk::Transform::identity(),
+                        None,
+                    );
+                }
+                Item::Path { .. } | Item::Reuse { .. } => {
+                    let (d, paints, clip) = match item {
+                        Item::Path {
+                            d, paints, clip, ..
+                        } => (d, paints, clip),
+                        Item::Reuse { id, paints, clip } => match by_id.get(id.as_str()) {
+                            Some(d) => (*d, paints, clip),
+                            None => continue,
+                        },
+                        Item::Image { .. } => unreachable!("matched above"),
+                    };
+                    let Some(path) = to_skia(d) else { continue };
+                    let m = if *clip { mask.as_ref() } else { None };
+                    for p in paints {
+                        let mut paint = sk::Paint {
+                            anti_alias: true,
+                            ..Default::default()
+                        };
+                        match p {
+                            Paint::Fill(c) => {
+                                paint.set_color_rgba8(c.0, c.1, c.2, c.3);
+                                pm.fill_path(
+                                    &path,
+                                    &paint,
+                                    sk::FillRule::Winding,
+                                    sk::Transform::identity(),
+                                    m,
+                                );
+                            }
+                            Paint::Stroke(l) => {
+                                paint.set_color_rgba8(l.color.0, l.color.1, l.color.2, l.color.3);
+                                let mut st = sk::Stroke {
+                                    width: l.width as f32,
+                                    ..Default::default()
+                                };
+                                if l.round {
+                                    st.line_cap = sk::LineCap::Round;
+                                    st.line_join = sk::LineJoin::Round;
+                                } else {
+                                    st.line_join = sk::LineJoin::Miter;
+                                }
+                                if !l.dash.is_empty() {
+                                    st.dash = sk::StrokeDash::new(
+                                        l.dash.iter().map(|&v| v as f32).collect(),
+                                        0.0,
+                                    );
+                                }
+                                pm.stroke_path(&path, &paint, &st, sk::Transform::identity(), m);
+                            }
+                        }
+                    }
+                }
+            }
+        }
+        let data = pm.take();
+        let mut rgb = Vec::with_capacity(data.len() / 4 * 3);
+        for px in data.chunks_exact(4) {
+            rgb.extend_from_slice(&px[..3]);
+        }
+        encode_png(&rgb, self.width, self.height, Some(self.dpi))
+    }
+
+    /// Writes the scene as SVG; text is outlines, the raster image is an embedded PNG.
+    pub fn to_svg(&self) -> Result<String, RenderError> {
+        let mut s = String::new();
+        let inch = |px: u32| num(px as f64 / self.dpi);
+        let _ = writeln!(
+            s,
+            "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<svg xmlns=\"http://www.w3.org/2000/svg\" \
+             xmlns:xlink=\"http://www.w3.org/1999/xlink\" version=\"1.1\" width=\"{}in\" \
+             height=\"{}in\" viewBox=\"0 0 {} {}\">",
+            inch(self.width),
+            inch(self.height),
+            self.width,
+            self.height
+        );
+        let _ = writeln!(s, "<title>{}</title>", xml_escape(&self.title));
+        let _ = writeln!(
+            s,
+            "<rect x=\"0\" y=\"0\" width=\"{}\" height=\"{}\" fill=\"#FFFFFF\"/>",
+            self.width, self.height
+        );
+        if let Some((x, y, w, h)) = self.clip {
+            let _ = writeln!(
+                s,
+                "<defs><clipPath id=\"frame-clip\"><rect x=\"{}\" y=\"{}\" width=\"{}\" \
+                 height=\"{}\"/></clipPath></defs>",
+                num(x),
+                num(y),
+                num(w),
+                num(h)
+            );
+        }
+        let reused: std::collections::BTreeSet<&str> = self
+            .items
+            .iter()
+            .filter_map(|it| match it {
+                Item::Reuse { id, .. } => Some(id.as_str()),
+                _ => None,
+            })
+            .collect();
+        let mut auto_id = 0usize;
+        for item in &self.items {
+            match item {
+                Item::Image { x, y, w, h, rgb } => {
+                    let png = encode_png(rgb, *w, *h, None)?;
+                    let b64 = base64::engine::general_purpose::STANDARD.encode(png);
+                    let _ = writeln!(
+                        s,
+                        "<image x=\"{x}\" y=\"{y}\" width=\"{w}\" height=\"{h}\" \
+                         preserveAspectRatio=\"none\" style=\"image-rendering:pixelated\" \
+                         xlink:href=\"data:image/png;base64,{b64}\"/>"
+                    );
+                }
+                Item::Path {
+                    d,
+                    paints,
+                    clip,
+                    id,
+                    class,
+                    label,
+                } => {
+                    let dstr = path_string(d);
+                    if dstr.is_empty() {
+                        continue;
+                    }
+                    let clip_attr = if *clip && self.clip.is_some() {
+                        " clip-path=\"url(#frame-clip)\""
+                    } else {
+                        ""
+                    };
+                    let label_attr = label
+                        .as_ref()
+                        .map(|l| format!(" aria-label=\"{}\"", xml_escape(l)))
+                        .unwrap_or_default();
+                    let shared = id.as_deref().is_some_and(|i| reused.contains(i));
+                    if paints.len() == 1 && !shared {
+                        let id_attr = id
+                            .as_ref()
+                            .map(|i| format!(" id=\"{}\"", xml_escape(i)))
+                            .unwrap_or_default();
+                        let _ = writeln!(
+                            s,
+                            "<path{id_attr} class=\"{class}\"{label_attr}{clip_attr} {} d=\"{dstr}\"/>",
+                            paint_attrs(&paints[0])
+                        );
+                    } else {
+                        // One path element holds the geometry; each painting refers to it.
+                        let pid = match id {
+                            Some(i) => xml_escape(i),
+                            None => {
+                                auto_id += 1;
+                                format!("p{auto_id}")
+                            }
+                        };
+                        let _ = writeln!(
+                            s,
+                            "<defs><path id=\"{pid}\" class=\"{class}\"{label_attr} d=\"{dstr}\"/></defs>"
+                        );
+                        for p in paints {
+                            let _ = writeln!(
+                                s,
+                                "<use href=\"#{pid}\" xlink:href=\"#{pid}\"{clip_attr} {}/>",
+                                paint_attrs(p)
+                            );
+                        }
+                    }
+                }
+                Item::Reuse { id, paints, clip } => {
+                    let clip_attr = if *clip && self.clip.is_some() {
+                        " clip-path=\"url(#frame-clip)\""
+                    } else {
+                        ""
+                    };
+                    let pid = xml_escape(id);
+                    for p in paints {
+                        let _ = writeln!(
+                            s,
+                            "<use href=\"#{pid}\" xlink:href=\"#{pid}\"{clip_attr} {}/>",
+                            paint_attrs(p)
+                        );
+                    }
+                }
+            }
+        }
+        s.push_str("</svg>\n");
+        Ok(s)
+    }
+}
+
+fn paint_attrs(p: &Paint) -> String {
+    match p {
+        Paint::Fill(c) => {
+            let mut a = format!("fill=\"{}\" stroke=\"none\"", c.hex());
+            if c.3 != 255 {
+                let _ = write!(a, " fill-opacity=\"{}\"", num(c.3 as f64 / 255.0));
+            }
+            a
+        }
+        Paint::Stroke(l) => {
+            let mut a = format!(
+                "fill=\"none\" stroke=\"{}\" stroke-width=\"{}\"",
+                l.color.hex(),
+                num(l.width)
+            );
+            if l.color.3 != 255 {
+                let _ = write!(a, " stroke-opacity=\"{}\"", num(l.color.3 as f64 / 255.0));
+            }
+            if l.round {
+                a.push_str(" stroke-linecap=\"round\" stroke-linejoin=\"round\"");
+            } else {
+                a.push_str(" stroke-linejoin=\"miter\" stroke-miterlimit=\"4\"");
+            }
+            if !l.dash.is_empty() {
+                let d: Vec<String> = l.dash.iter().map(|&v| num(v)).collect();
+                let _ = write!(a, " stroke-dasharray=\"{}\"", d.join(" "));
+            }
+            a
+        }
+    }
+}
+
+/// A number with at most two decimals and no trailing zeros.
+pub(crate) fn num(v: f64) -> String {
+    let mut s = format!("{:.2}", v);
+    if s.contains('.') {
+        while s.ends_with('0') {
+            s.pop();
+        }
+        if s.ends_with('.') {
+            s.pop();
+        }
+    }
+    if s == "-0" { "0".to_string() } else { s }
+}
+
+fn path_string(d: &PathData) -> String {
+    let mut s = String::new();
+    for seg in &d.0 {
+        let _ = match *seg {
+            Seg::M(x, y) => write!(s, "M{} {}", num(x), num(y)),
+            Seg::L(x, y) => write!(s, "L{} {}", num(x), num(y)),
+            Seg::Q(a, b, x, y) => write!(s, "Q{} {} {} {}", num(a), num(b), num(x), num(y)),
+            Seg::C(a, b, c, e, x, y) => write!(
+                s,
+                "C{} {} {} {} {} {}",
+                num(a),
+                num(b),
+                num(c),
+                num(e),
+                num(x),
+                num(y)
+            ),
+            Seg::Z => write!(s, "Z"),
+        };
+    }
+    s
+}
+
+fn to_skia(d: &PathData) -> Option<tiny_skia::Path> {
+    let mut pb = tiny_skia::PathBuilder::new();
+    for seg in &d.0 {
+        match *seg {
+            Seg::M(x, y) => pb.move_to(x as f32, y as f32),
+            Seg::L(x, y) => pb.line_to(x as f32, y as f32),
+            Seg::Q(a, b, x, y) => pb.quad_to(a as f32, b as f32, x as f32, y as f32),
+            Seg::C(a, b, c, e, x, y) => {
+                pb.cubic_to(a as f32, b as f32, c as f32, e as f32, x as f32, y as f32)
+            }
+            Seg::Z => pb.close(),
+        }
+    }
+    pb.finish()
+}
+
+pub(crate) fn xml_escape(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+/// Encodes RGB pixels as PNG, recording the resolution when given.
+pub(crate) fn encode_png(
+    rgb: &[u8],
+    w: u32,
+    h: u32,
+    dpi: Option<f64>,
+) -> Result<Vec<u8>, RenderError> {
+    let mut out = Vec::new();
+    {
+        let mut enc = png::Encoder::new(&mut out, w, h);
+        enc.set_color(png::ColorType::Rgb);
+        enc.set_depth(png::BitDepth::Eight);
+        if let Some(dpi) = dpi {
+            let ppm = (dpi / 0.0254).round() as u32;
+            enc.set_pixel_dims(Some(png::PixelDimensions {
+                xppu: ppm,
+                yppu: ppm,
+                unit: png::Unit::Meter,
+            }));
+        }
+        let mut wr = enc
+            .write_header()
+            .map_err(|e| RenderError::Encode(e.to_string()))?;
+        wr.write_image_data(rgb)
+            .map_err(|e| RenderError::Encode(e.to_string()))?;
+    }
+    Ok(out)
+}

@@ -1,0 +1,827 @@
+//! Checks of the figure module on invented maps: outline geometry, beam and scale bar sizes,
+//! well-formed SVG and decodable PNG, tick positions against the sky mapping, determinism.
+
+use cairn::render::{
+    self, AxisTicks, Coord, Edge, LeafStyle, Limits, Overlay, SkyAxes, StateLegend, Stretch, Style,
+    TreeNode, axis_ticks, beam_geometry, overlay_layout, render_png, render_svg, trace_outlines,
+    tree_png, tree_svg,
+};
+use ndarray::{Array2, array};
+use proptest::prelude::*;
+use std::collections::BTreeMap;
+
+/// A flat mapping: pixel offsets turned by `rot_deg`, scaled, added to a reference point;
+/// longitude runs to the left (east left) and is stretched by 1/cos(lat0).
+struct Flat {
+    lon0: f64,
+    lat0: f64,
+    scale: f64,
+    rot_deg: f64,
+    equatorial: bool,
+}
+
+impl SkyAxes for Flat {
+    fn pixel_to_sky(&self, x: f64, y: f64) -> Option<(f64, f64)> {
+        let (s, c) = self.rot_deg.to_radians().sin_cos();
+        let u = c * x - s * y;
+        let v = s * x + c * y;
+        let lon = self.lon0 - u * self.scale / self.lat0.to_radians().cos();
+        Some((lon.rem_euclid(360.0), self.lat0 + v * self.scale))
+    }
+    fn sky_to_pixel(&self, lon: f64, lat: f64) -> Option<(f64, f64)> {
+        let dl = (lon - self.lon0 + 540.0).rem_euclid(360.0) - 180.0;
+        let u = -dl * self.lat0.to_radians().cos() / self.scale;
+        let v = (lat - self.lat0) / self.scale;
+        let (s, c) = self.rot_deg.to_radians().sin_cos();
+        Some((c * u + s * v, -s * u + c * v))
+    }
+    fn equatorial(&self) -> bool {
+        self.equatorial
+    }
+    fn pixel_scale_deg(&self) -> f64 {
+        self.scale
+    }
+}
+
+/// A gnomonic projection turned by `rot_deg` (curved lines of constant coordinate).
+struct Tan {
+    crval: (f64, f64),
+    scale: f64,
+    rot_deg: f64,
+}
+
+impl SkyAxes for Tan {
+    fn pixel_to_sky(&self, x: f64, y: f64) -> Option<(f64, f64)> {
+        let (s, c) = self.rot_deg.to_radians().sin_cos();
+        let xi = (-(c * x - s * y) * self.scale).to_radians();
+        let eta = ((s * x + c * y) * self.scale).to_radians();
+        let (a0, d0) = (self.crval.0.to_radians(), self.crval.1.to_radians());
+        let den = d0.cos() - eta * d0.sin();
+        let a = a0 + xi.atan2(den);
+        let d = (d0.sin() + eta * d0.cos()).atan2(xi.hypot(den));
+        Some((a.to_degrees().rem_euclid(360.0), d.to_degrees()))
+    }
+    fn sky_to_pixel(&self, lon: f64, lat: f64) -> Option<(f64, f64)> {
+        let (a0, d0) = (self.crval.0.to_radians(), self.crval.1.to_radians());
+        let (a, d) = (lon.to_radians(), lat.to_radians());
+        let cosc = d0.sin() * d.sin() + d0.cos() * d.cos() * (a - a0).cos();
+        if cosc <= 0.0 {
+            return None;
+        }
+        let xi = (d.cos() * (a - a0).sin() / cosc).to_degrees() / self.scale;
+        let eta = ((d0.cos() * d.sin() - d0.sin() * d.cos() * (a - a0).cos()) / cosc).to_degrees()
+            / self.scale;
+        let (s, c) = self.rot_deg.to_radians().sin_cos();
+        let (u, v) = (-xi, eta);
+        Some((c * u + s * v, -s * u + c * v))
+    }
+    fn equatorial(&self) -> bool {
+        true
+    }
+    fn pixel_scale_deg(&self) -> f64 {
+        self.scale
+    }
+}
+
+/// A label map with a leaf holding a hole (1), a leaf touching it (2), a leaf on the map's
+/// edge in two parts (3), and two pixels meeting only at a corner (4).
+fn tricky_labels() -> Array2<i32> {
+    array![
+        [3, 3, -1, -1, -1, -1, -1, -1, -1, 4],
+        [3, -1, 1, 1, 1, 1, 2, 2, 4, -1],
+        [-1, -1, 1, -1, -1, 1, 2, 2, -1, -1],
+        [-1, -1, 1, -1, 1, 1, 2, -1, -1, -1],
+        [-1, -1, 1, 1, 1, 1, -1, -1, -1, 3],
+        [-1, -1, -1, -1, -1, -1, -1, -1, 3, 3],
+    ]
+}
+
+type Corner = (i64, i64);
+
+/// Boundary unit edges of the footprint of `id`, each as a sorted pair of corners in doubled
+/// coordinates (corner (x - 0.5, y - 0.5) of pixel (x, y) is (2x - 1, 2y - 1)).
+fn boundary_edges(l: &Array2<i32>, id: i32) -> BTreeMap<(Corner, Corner), usize> {
+    let (h, w) = l.dim();
+    let at = |x: i64, y: i64| {
+        if x < 0 || y < 0 || x >= w as i64 || y >= h as i64 {
+            -1
+        } else {
+            l[[y as usize, x as usize]]
+        }
+    };
+    let mut e = BTreeMap::new();
+    for y in 0..h as i64 {
+        for x in 0..w as i64 {
+            if at(x, y) != id {
+                continue;
+            }
+            let (x0, x1, y0, y1) = (2 * x - 1, 2 * x + 1, 2 * y - 1, 2 * y + 1);
+            if at(x, y - 1) != id {
+                *e.entry(((x0, y0), (x1, y0))).or_insert(0) += 1;
+            }
+            if at(x, y + 1) != id {
+                *e.entry(((x0, y1), (x1, y1))).or_insert(0) += 1;
+            }
+            if at(x - 1, y) != id {
+                *e.entry(((x0, y0), (x0, y1))).or_insert(0) += 1;
+            }
+            if at(x + 1, y) != id {
+                *e.entry(((x1, y0), (x1, y1))).or_insert(0) += 1;
+            }
+        }
+    }
+    e
+}
+
+/// Doubled integer coordinates of a corner, or None if the point is not on a pixel corner.
+fn corner(p: (f64, f64), tol: f64) -> Option<Corner> {
+    let cx = 2.0 * p.0;
+    let cy = 2.0 * p.1;
+    let (rx, ry) = (cx.round(), cy.round());
+    let odd = |v: f64| (v as i64).rem_euclid(2) == 1;
+    ((cx - rx).abs() <= tol && (cy - ry).abs() <= tol && odd(rx) && odd(ry))
+        .then_some((rx as i64, ry as i64))
+}
+
+/// True if the footprint of `id` changes at corner `c`: of the four pixels sharing it, some
+/// carry the id and some do not.
+fn footprint_changes_at(l: &Array2<i32>, id: i32, c: Corner) -> bool {
+    let (h, w) = l.dim();
+    let (px, py) = ((c.0 + 1) / 2, (c.1 + 1) / 2); // pixel whose lower-left corner is c
+    let mut inside = 0;
+    for (x, y) in [(px - 1, py - 1), (px, py - 1), (px - 1, py), (px, py)] {
+        if x >= 0 && y >= 0 && x < w as i64 && y < h as i64 && l[[y as usize, x as usize]] == id {
+            inside += 1;
+        }
+    }
+    inside > 0 && inside < 4
+}
+
+/// Checks rings of one leaf against its footprint; rings are given in map pixel coordinates.
+fn check_rings(l: &Array2<i32>, id: i32, rings: &[Vec<(f64, f64)>], tol: f64) {
+    let mut covered: BTreeMap<(Corner, Corner), usize> = BTreeMap::new();
+    for ring in rings {
+        assert!(
+            ring.len() >= 4,
+            "leaf {id}: a ring has {} corners",
+            ring.len()
+        );
+        let cs: Vec<Corner> = ring
+            .iter()
+            .map(|&p| corner(p, tol).unwrap_or_else(|| panic!("leaf {id}: {p:?} is off-corner")))
+            .collect();
+        for (i, &a) in cs.iter().enumerate() {
+            assert!(
+                footprint_changes_at(l, id, a),
+                "leaf {id}: vertex {a:?} is not where the footprint changes"
+            );
+            let b = cs[(i + 1) % cs.len()];
+            assert!(
+                a.0 == b.0 || a.1 == b.1,
+                "leaf {id}: diagonal step {a:?}-{b:?}"
+            );
+            // Collinear edges are merged: the path turns at every vertex.
+            let prev = cs[(i + cs.len() - 1) % cs.len()];
+            let turn = (a.0 - prev.0) * (b.1 - a.1) - (a.1 - prev.1) * (b.0 - a.0);
+            assert!(
+                turn != 0,
+                "leaf {id}: vertex {a:?} lies inside a straight run"
+            );
+            // Split the side into unit edges.
+            let n = ((b.0 - a.0).abs() + (b.1 - a.1).abs()) / 2;
+            assert!(n >= 1, "leaf {id}: repeated vertex {a:?}");
+            let (sx, sy) = ((b.0 - a.0).signum() * 2, (b.1 - a.1).signum() * 2);
+            for k in 0..n {
+                let p = (a.0 + k * sx, a.1 + k * sy);
+                let q = (p.0 + sx, p.1 + sy);
+                let key = if p < q { (p, q) } else { (q, p) };
+                *covered.entry(key).or_insert(0) += 1;
+            }
+        }
+    }
+    let expected = boundary_edges(l, id);
+    assert_eq!(
+        covered, expected,
+        "leaf {id}: the path does not cover each boundary edge exactly once"
+    );
+}
+
+#[test]
+fn outline_vertices_are_boundary_corners_and_cover_every_boundary_edge() {
+    let l = tricky_labels();
+    let traced = trace_outlines(l.view(), (0.0, 0.0));
+    let ids: Vec<i32> = traced.keys().copied().collect();
+    assert_eq!(ids, vec![1, 2, 3, 4]);
+    for (&id, rings) in &traced {
+        check_rings(&l, id, rings, 1e-12);
+    }
+    // Leaf 1 has its outer ring and one hole; leaves 3 and 4 come in two parts each.
+    assert_eq!(traced[&1].len(), 2);
+    assert_eq!(traced[&3].len(), 2);
+    assert_eq!(traced[&4].len(), 2);
+}
+
+proptest! {
+    #[test]
+    fn outlines_of_random_label_maps_cover_every_boundary_edge(
+        cells in proptest::collection::vec(-1i32..3, 7 * 9)
+    ) {
+        let l = Array2::from_shape_vec((7, 9), cells).unwrap();
+        let traced = trace_outlines(l.view(), (0.0, 0.0));
+        for id in 0..3 {
+            let present = l.iter().any(|&v| v == id);
+            prop_assert_eq!(present, traced.contains_key(&id));
+            if let Some(rings) = traced.get(&id) {
+                check_rings(&l, id, rings, 1e-12);
+            }
+        }
+    }
+}
+
+fn states() -> Vec<StateLegend> {
+    vec![
+        StateLegend {
+            name: "bound".into(),
+            description: "virial parameter below 2".into(),
+        },
+        StateLegend {
+            name: "unbound".into(),
+            description: String::new(),
+        },
+        StateLegend {
+            name: "unknown".into(),
+            description: String::new(),
+        },
+    ]
+}
+
+/// An invented smooth map the size of `labels`, with some missing pixels.
+fn smooth_map(h: usize, w: usize) -> Array2<f32> {
+    Array2::from_shape_fn((h, w), |(y, x)| {
+        if x == 0 && y == 0 {
+            f32::NAN
+        } else {
+            (1.0e21 * (1.0 + (x as f64 * 0.7).sin() + 0.3 * y as f64)) as f32
+        }
+    })
+}
+
+fn leaves_of(l: &Array2<i32>) -> Vec<LeafStyle> {
+    let mut ids: Vec<i32> = l.iter().copied().filter(|&v| v >= 0).collect();
+    ids.sort();
+    ids.dedup();
+    ids.iter()
+        .enumerate()
+        .map(|(i, &id)| {
+            let (y, x) = l
+                .indexed_iter()
+                .find(|&(_, &v)| v == id)
+                .map(|(p, _)| p)
+                .unwrap();
+            LeafStyle {
+                id,
+                label: id.to_string(),
+                state: i % 3,
+                peak: (x as f64, y as f64),
+            }
+        })
+        .collect()
+}
+
+/// Parses an SVG path of M/L/Z commands into rings.
+fn parse_rings(d: &str) -> Vec<Vec<(f64, f64)>> {
+    let mut rings = Vec::new();
+    let mut cur: Vec<(f64, f64)> = Vec::new();
+    let mut tok = String::new();
+    let mut cmds: Vec<(char, String)> = Vec::new();
+    for ch in d.chars() {
+        if ch.is_ascii_alphabetic() {
+            if let Some(last) = cmds.last_mut() {
+                last.1 = std::mem::take(&mut tok);
+            }
+            cmds.push((ch, String::new()));
+        } else {
+            tok.push(ch);
+        }
+    }
+    if let Some(last) = cmds.last_mut() {
+        last.1 = tok;
+    }
+    for (c, args) in cmds {
+        let v: Vec<f64> = args
+            .split_whitespace()
+            .map(|s| s.parse().unwrap())
+            .collect();
+        match c {
+            'M' | 'L' => cur.push((v[0], v[1])),
+            'Z' => rings.push(std::mem::take(&mut cur)),
+            other => panic!("unexpected command {other} in a leaf outline"),
+        }
+    }
+    rings
+}
+
+#[test]
+fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "N(H_2) [cm^-2]".into(),
+        labels: l.view(),
+        branch_labels: None,
+        leaves: leaves_of(&l),
+        states: states(),
+        sky: None,
+        beam: Some((2.0, 1.5, 40.0)),
+        scale_bar: Some((3.0, "0.1 pc".into())),
+        title: Some("Test".into()),
+    };
+    let style = Style {
+        width_px: 900,
+        dpi: 150.0,
+        ..Style::default()
+    };
+    let svg = render_svg(&o, &style).unwrap();
+    let doc = roxmltree::Document::parse(&svg).expect("the SVG is well-formed XML");
+    let lay = overlay_layout(&o, &style).unwrap();
+    let traced = trace_outlines(l.view(), (0.0, 0.0));
+    let mut seen = BTreeMap::new();
+    for n in doc.descendants().filter(|n| n.has_tag_name("path")) {
+        let class = n.attribute("class").unwrap_or("");
+        if !class.split_whitespace().any(|c| c == "leaf") {
+            continue;
+        }
+        let id: i32 = n
+            .attribute("id")
+            .and_then(|s| s.strip_prefix("leaf-"))
+            .expect("leaf paths are named leaf-ID")
+            .parse()
+            .unwrap();
+        *seen.entry(id).or_insert(0) += 1;
+        // The drawn path, taken back to map pixels, lies on the traced boundary corners.
+        let rings: Vec<Vec<(f64, f64)>> = parse_rings(n.attribute("d").unwrap())
+            .into_iter()
+            .map(|r| {
+                r.into_iter()
+                    .map(|(fx, fy)| lay.figure_to_map(fx, fy))
+                    .collect()
+            })
+            .collect();
+        let tol = 2.0 * 0.006 / lay.kx.min(lay.ky);
+        check_rings(&l, id, &rings, tol);
+        assert_eq!(rings.len(), traced[&id].len());
+    }
+    let expected: BTreeMap<i32, i32> = traced.keys().map(|&k| (k, 1)).collect();
+    assert_eq!(seen, expected, "exactly one outline path per leaf");
+}
+
+#[test]
+fn png_decodes_to_the_requested_width_and_output_is_deterministic() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    let sky = Flat {
+        lon0: 83.8,
+        lat0: -5.4,
+        scale: 2.0 / 3600.0,
+        rot_deg: 15.0,
+        equatorial: true,
+    };
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "MJy/sr".into(),
+        labels: l.view(),
+        branch_labels: Some(l.view()),
+        leaves: leaves_of(&l),
+        states: states(),
+        sky: Some(&sky),
+        beam: Some((2.0, 1.0, 0.0)),
+        scale_bar: Some((3.0, "0.1 pc".into())),
+        title: None,
+    };
+    for style in [
+        Style {
+            width_px: 700,
+            dpi: 100.0,
+            show_branches: true,
+            ..Style::default()
+        },
+        Style {
+            width_px: 640,
+            dpi: 120.0,
+            stretch: Stretch::Log,
+            limits: Limits::Values(1.0e21, 6.0e21),
+            colormap: render::ColorMap::Grey,
+            region: Some((2, 1, 5, 4)),
+            ..Style::default()
+        },
+    ] {
+        let png = render_png(&o, &style).unwrap();
+        let img = image::load_from_memory(&png).expect("the PNG decodes");
+        let lay = overlay_layout(&o, &style).unwrap();
+        assert_eq!(img.width(), style.width_px);
+        assert_eq!(img.height(), lay.height);
+        assert_eq!(png, render_png(&o, &style).unwrap(), "PNG bytes repeat");
+        let svg = render_svg(&o, &style).unwrap();
+        assert_eq!(svg, render_svg(&o, &style).unwrap(), "SVG text repeats");
+        roxmltree::Document::parse(&svg).expect("the SVG is well-formed XML");
+    }
+}
+
+#[test]
+fn beam_axes_equal_the_given_fwhm_and_point_along_the_angle() {
+    let len = |v: (f64, f64)| v.0.hypot(v.1);
+    let b = beam_geometry(8.0, 5.0, 0.0, None, (10.0, 10.0));
+    assert!((2.0 * len(b.semi_major) - 8.0).abs() < 1e-12);
+    assert!((2.0 * len(b.semi_minor) - 5.0).abs() < 1e-12);
+    // Position angle 0: major axis north (+y); 90: east (-x without sky coordinates).
+    assert!(b.semi_major.0.abs() < 1e-12 && b.semi_major.1 > 0.0);
+    let b = beam_geometry(8.0, 5.0, 90.0, None, (10.0, 10.0));
+    assert!(b.semi_major.1.abs() < 1e-12 && b.semi_major.0 < 0.0);
+    // With a sky mapping turned by 30 degrees the major axis follows the sky's north.
+    let sky = Flat {
+        lon0: 30.0,
+        lat0: 0.0,
+        scale: 1.0 / 3600.0,
+        rot_deg: 30.0,
+        equatorial: false,
+    };
+    let b = beam_geometry(6.0, 3.0, 0.0, Some(&sky), (5.0, 5.0));
+    assert!((2.0 * len(b.semi_major) - 6.0).abs() < 1e-9);
+    assert!((2.0 * len(b.semi_minor) - 3.0).abs() < 1e-9);
+    let (lon, lat) = sky.pixel_to_sky(5.0, 5.0).unwrap();
+    let n = sky.sky_to_pixel(lon, lat + 1e-3).unwrap();
+    let (nx, ny) = (n.0 - 5.0, n.1 - 5.0);
+    let cosang = (nx * b.semi_major.0 + ny * b.semi_major.1) / (nx.hypot(ny) * 3.0);
+    assert!(
+        (cosang - 1.0).abs() < 1e-9,
+        "major axis is not north: {cosang}"
+    );
+    // Axes are perpendicular.
+    let dot = b.semi_major.0 * b.semi_minor.0 + b.semi_major.1 * b.semi_minor.1;
+    assert!(dot.abs() < 1e-9);
+    // The polygon drawn lies on the ellipse.
+    for (x, y) in b.polygon(16) {
+        let (dx, dy) = (x - 5.0, y - 5.0);
+        let u = (dx * b.semi_major.0 + dy * b.semi_major.1) / 9.0;
+        let v = (dx * b.semi_minor.0 + dy * b.semi_minor.1) / 2.25;
+        assert!((u * u + v * v - 1.0).abs() < 1e-9);
+    }
+}
+
+#[test]
+fn beam_in_the_figure_and_scale_bar_have_the_requested_sizes() {
+    let l = Array2::from_elem((50, 80), -1);
+    let map = smooth_map(50, 80);
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: l.view(),
+        branch_labels: None,
+        leaves: Vec::new(),
+        states: Vec::new(),
+        sky: None,
+        beam: Some((7.0, 4.0, 25.0)),
+        scale_bar: Some((17.3, "1 pc".into())),
+        title: None,
+    };
+    for (width, region) in [(1000, None), (600, Some((10, 5, 30, 20)))] {
+        let style = Style {
+            width_px: width,
+            dpi: 150.0,
+            region,
+            ..Style::default()
+        };
+        let lay = overlay_layout(&o, &style).unwrap();
+        let b = lay.beam.unwrap();
+        let len = |v: (f64, f64)| v.0.hypot(v.1);
+        assert!((2.0 * len(b.semi_major) - 7.0).abs() < 1e-9);
+        assert!((2.0 * len(b.semi_minor) - 4.0).abs() < 1e-9);
+        let (a, e) = lay.scale_bar.unwrap();
+        let l_map = (e.0 - a.0).hypot(e.1 - a.1);
+        assert!((l_map - 17.3).abs() < 0.5, "scale bar {l_map} pixels");
+        // The bar drawn in the SVG: its first segment, back in map pixels.
+        let svg = render_svg(&o, &style).unwrap();
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let bar = doc
+            .descendants()
+            .find(|n| n.attribute("class") == Some("scale-bar"))
+            .expect("a scale bar is drawn");
+        let d = bar.attribute("d").unwrap();
+        let nums: Vec<f64> = d
+            .split(|c: char| c.is_ascii_alphabetic() || c == ' ')
+            .filter(|s| !s.is_empty())
+            .take(4)
+            .map(|s| s.parse().unwrap())
+            .collect();
+        let p = lay.figure_to_map(nums[0], nums[1]);
+        let q = lay.figure_to_map(nums[2], nums[3]);
+        let drawn = (q.0 - p.0).hypot(q.1 - p.1);
+        assert!((drawn - 17.3).abs() < 0.5, "drawn scale bar {drawn} pixels");
+    }
+}
+
+/// Parses a tick label back to degrees (or pixels).
+fn parse_label(label: &str, coord: Coord, equatorial: bool) -> f64 {
+    let t = render::plain_text(label).replace('\u{2212}', "-");
+    if coord == Coord::X || coord == Coord::Y {
+        return t.parse().unwrap();
+    }
+    if !equatorial {
+        return t.trim_end_matches('°').parse().unwrap();
+    }
+    let (sign, body) = match t.strip_prefix('-') {
+        Some(rest) => (-1.0, rest.to_string()),
+        None => (1.0, t.clone()),
+    };
+    let mut total = 0.0;
+    let mut num = String::new();
+    for ch in body.chars() {
+        let unit = match (coord, ch) {
+            (Coord::Lon, 'h') => Some(15.0),
+            (Coord::Lon, 'm') => Some(15.0 / 60.0),
+            (Coord::Lon, 's') => Some(15.0 / 3600.0),
+            (Coord::Lat, '°') => Some(1.0),
+            (Coord::Lat, '′') => Some(1.0 / 60.0),
+            (Coord::Lat, '″') => Some(1.0 / 3600.0),
+            _ => None,
+        };
+        match unit {
+            Some(u) => total += num.parse::<f64>().unwrap() * u,
+            None => {
+                num.push(ch);
+                continue;
+            }
+        }
+        num.clear();
+    }
+    sign * total
+}
+
+fn check_ticks(sky: &dyn SkyAxes, region: (usize, usize, usize, usize), t: &AxisTicks) {
+    let (x0, y0, w, h) = region;
+    let (xl, xr) = (x0 as f64 - 0.5, (x0 + w) as f64 - 0.5);
+    let (yb, yt) = (y0 as f64 - 0.5, (y0 + h) as f64 - 0.5);
+    let labelled: Vec<_> = t
+        .ticks
+        .iter()
+        .filter(|k| matches!(k.edge, Edge::Bottom | Edge::Left))
+        .collect();
+    assert!(
+        labelled.len() >= 4,
+        "only {} labelled ticks",
+        labelled.len()
+    );
+    let mut coords_seen = (false, false);
+    for k in &t.ticks {
+        let on_edge = match k.edge {
+            Edge::Bottom => (k.y - yb).abs() < 1e-9 && k.x >= xl - 1e-9 && k.x <= xr + 1e-9,
+            Edge::Top => (k.y - yt).abs() < 1e-9 && k.x >= xl - 1e-9 && k.x <= xr + 1e-9,
+            Edge::Left => (k.x - xl).abs() < 1e-9 && k.y >= yb - 1e-9 && k.y <= yt + 1e-9,
+            Edge::Right => (k.x - xr).abs() < 1e-9 && k.y >= yb - 1e-9 && k.y <= yt + 1e-9,
+        };
+        assert!(on_edge, "tick {k:?} is not on its frame edge");
+        let (lon, lat) = sky.pixel_to_sky(k.x, k.y).unwrap();
+        let err = match k.coord {
+            Coord::Lon => {
+                coords_seen.0 = true;
+                ((lon - k.value + 540.0).rem_euclid(360.0) - 180.0).abs()
+            }
+            Coord::Lat => {
+                coords_seen.1 = true;
+                (lat - k.value).abs()
+            }
+            _ => panic!("pixel tick on a sky frame"),
+        };
+        assert!(err < 1e-6, "tick {k:?} is {err} degrees off");
+        let parsed = parse_label(&k.label, k.coord, sky.equatorial());
+        let perr = ((parsed - k.value + 540.0).rem_euclid(360.0) - 180.0).abs();
+        assert!(
+            perr < 1e-9,
+            "label {} reads {parsed}, value {}",
+            k.label,
+            k.value
+        );
+    }
+    assert!(coords_seen.0 && coords_seen.1);
+}
+
+#[test]
+fn tick_positions_give_the_labelled_sky_values() {
+    let region = (0, 0, 400, 300);
+    for rot in [0.0, 20.0, -35.0] {
+        for (equatorial, lon0, lat0) in [(true, 83.8, -5.4), (false, 0.05, 0.1), (true, 0.01, 30.0)]
+        {
+            let sky = Flat {
+                lon0,
+                lat0,
+                scale: 3.0 / 3600.0,
+                rot_deg: rot,
+                equatorial,
+            };
+            let t = axis_ticks(Some(&sky), region, 6, 6);
+            check_ticks(&sky, region, &t);
+            if equatorial {
+                assert!(t.bottom_title.starts_with("RA") || t.bottom_title.starts_with("Dec"));
+            } else {
+                assert!(t.bottom_title.starts_with("Galactic"));
+            }
+        }
+    }
+    // A curved projection and a zoomed region.
+    let tan = Tan {
+        crval: (210.0, 54.0),
+        scale: 30.0 / 3600.0,
+        rot_deg: 25.0,
+    };
+    let region = (0, 0, 600, 500);
+    check_ticks(&tan, region, &axis_ticks(Some(&tan), region, 5, 5));
+    check_ticks(
+        &tan,
+        (100, 50, 80, 60),
+        &axis_ticks(Some(&tan), (100, 50, 80, 60), 5, 5),
+    );
+}
+
+#[test]
+fn pixel_axes_tick_at_round_pixel_values() {
+    let t = axis_ticks(None, (10, 20, 300, 200), 6, 6);
+    assert_eq!(t.bottom_title, "x [pixel]");
+    let xs: Vec<f64> = t
+        .ticks
+        .iter()
+        .filter(|k| k.edge == Edge::Bottom)
+        .map(|k| k.x)
+        .collect();
+    assert!(xs.len() >= 3);
+    for k in &t.ticks {
+        let v = parse_label(&k.label, k.coord, false);
+        let pos = if k.coord == Coord::X { k.x } else { k.y };
+        assert_eq!(v, pos);
+        assert_eq!(v, k.value);
+    }
+    // Equal spacing of round values.
+    let step = xs[1] - xs[0];
+    assert!(xs.windows(2).all(|p| (p[1] - p[0] - step).abs() < 1e-9));
+    assert!([1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 100.0].contains(&step));
+}
+
+fn tree_nodes() -> Vec<TreeNode> {
+    let n = |id, parent, top, bottom, leaf, state| TreeNode {
+        id,
+        parent,
+        top,
+        bottom,
+        is_leaf: leaf,
+        state,
+    };
+    vec![
+        n(10, None, 9.0, 1.0, false, None),
+        n(11, Some(10), 9.0, 3.0, false, Some(1)),
+        n(1, Some(11), 9.0, 5.0, true, Some(0)),
+        n(2, Some(11), 6.0, 5.0, true, Some(1)),
+        n(3, Some(10), 4.0, 3.0, true, Some(2)),
+    ]
+}
+
+#[test]
+fn tree_figure_has_one_path_per_structure_and_decodes() {
+    let nodes = tree_nodes();
+    let style = Style {
+        width_px: 800,
+        dpi: 150.0,
+        ..Style::default()
+    };
+    let svg = tree_svg(&nodes, &states(), "level [K]", &style).unwrap();
+    let doc = roxmltree::Document::parse(&svg).expect("the tree SVG is well-formed XML");
+    let mut ids: Vec<String> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("path"))
+        .filter_map(|n| n.attribute("id"))
+        .filter(|id| id.starts_with("node-"))
+        .map(str::to_string)
+        .collect();
+    ids.sort();
+    assert_eq!(ids, ["node-1", "node-10", "node-11", "node-2", "node-3"]);
+    let png = tree_png(&nodes, &states(), "level [K]", &style).unwrap();
+    let img = image::load_from_memory(&png).unwrap();
+    assert_eq!(img.width(), 800);
+    assert_eq!(
+        png,
+        tree_png(&nodes, &states(), "level [K]", &style).unwrap()
+    );
+    // A log axis needs positive levels.
+    let mut bad = tree_nodes();
+    bad[0].bottom = 0.0;
+    let log = Style {
+        stretch: Stretch::Log,
+        ..style
+    };
+    assert!(tree_png(&bad, &states(), "level", &log).is_err());
+    assert!(tree_png(&nodes, &states(), "level", &log).is_ok());
+}
+
+#[test]
+fn mismatched_inputs_are_refused_with_a_sentence() {
+    let map = smooth_map(6, 10);
+    let l = Array2::from_elem((5, 10), -1);
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: l.view(),
+        branch_labels: None,
+        leaves: Vec::new(),
+        states: Vec::new(),
+        sky: None,
+        beam: None,
+        scale_bar: None,
+        title: None,
+    };
+    let e = render_png(&o, &Style::default()).unwrap_err();
+    assert!(e.to_string().contains("leaf label map is 10 x 5"), "{e}");
+    let l = Array2::from_elem((6, 10), -1);
+    let o = Overlay {
+        labels: l.view(),
+        ..o
+    };
+    let bad_region = Style {
+        region: Some((5, 0, 6, 6)),
+        ..Style::default()
+    };
+    assert!(matches!(
+        render_png(&o, &bad_region),
+        Err(render::RenderError::BadRegion(_))
+    ));
+    let swapped = Style {
+        limits: Limits::Values(5.0, 1.0),
+        ..Style::default()
+    };
+    let e = render_svg(&o, &swapped).unwrap_err();
+    assert!(e.to_string().contains("swap them"), "{e}");
+}
+
+#[test]
+fn leaf_labels_do_not_overlap_each_other() {
+    // Many small leaves packed closely, so labels compete for room.
+    let (h, w) = (60, 90);
+    let mut l = Array2::from_elem((h, w), -1);
+    for ((y, x), v) in l.indexed_iter_mut() {
+        if x % 6 < 3 && y % 5 < 3 {
+            *v = ((y / 5) * 15 + x / 6) as i32;
+        }
+    }
+    let map = smooth_map(h, w);
+    let leaves: Vec<LeafStyle> = leaves_of(&l)
+        .into_iter()
+        .map(|mut s| {
+            s.label = format!("{}", 1000 + s.id);
+            s.peak = (s.peak.0 + 1.0, s.peak.1 + 1.0);
+            s
+        })
+        .collect();
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: l.view(),
+        branch_labels: None,
+        leaves,
+        states: states(),
+        sky: None,
+        beam: Some((3.0, 2.0, 10.0)),
+        scale_bar: Some((10.0, "1 pc".into())),
+        title: None,
+    };
+    let style = Style {
+        width_px: 1200,
+        dpi: 200.0,
+        ..Style::default()
+    };
+    let svg = render_svg(&o, &style).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let mut boxes: Vec<(f64, f64, f64, f64)> = Vec::new();
+    for n in doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("leaf-label"))
+    {
+        let nums: Vec<f64> = n
+            .attribute("d")
+            .unwrap()
+            .split(|c: char| c.is_ascii_alphabetic() || c == ' ')
+            .filter(|s| !s.is_empty())
+            .map(|s| s.parse().unwrap())
+            .collect();
+        let mut b = (f64::MAX, f64::MAX, f64::MIN, f64::MIN);
+        for p in nums.chunks(2) {
+            b = (b.0.min(p[0]), b.1.min(p[1]), b.2.max(p[0]), b.3.max(p[1]));
+        }
+        boxes.push(b);
+    }
+    assert!(boxes.len() >= 10, "only {} labels placed", boxes.len());
+    for (i, a) in boxes.iter().enumerate() {
+        for b in &boxes[i + 1..] {
+            let ox = a.2.min(b.2) - a.0.max(b.0);
+            let oy = a.3.min(b.3) - a.1.max(b.1);
+            assert!(ox <= 0.0 || oy <= 0.0, "labels {a:?} and {b:?} overlap");
+        }
+    }
+}
