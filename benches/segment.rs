@@ -98,7 +98,9 @@ fn main() {
     let python = std::env::var("CAIRN_BENCH_PYTHON").ok();
     let exe = std::env::current_exe().unwrap();
     let dir = tempfile::tempdir().unwrap();
-    println!("| size | sort (reference) | segment | segment / sort | peak memory above map / pixel | leaves | max_tree | max_tree / segment |");
+    println!(
+        "| size | sort (reference) | segment | segment / sort | peak memory above map / pixel | leaves | max_tree | max_tree / segment |"
+    );
     println!("| --- | --- | --- | --- | --- | --- | --- | --- |");
     for n in sizes {
         let spec = cairn::synth::SynthSpec {
@@ -106,7 +108,11 @@ fn main() {
             ny: n,
             pixel_arcsec: 4.0,
             beam_fwhm_arcsec: 12.0,
-            background: Some(cairn::synth::Background { mean_column_cm2: 3e21, sigma_ln: 0.4, spectral_index: 3.0 }),
+            background: Some(cairn::synth::Background {
+                mean_column_cm2: 3e21,
+                sigma_ln: 0.4,
+                spectral_index: 3.0,
+            }),
             population: Some(cairn::synth::CorePopulation {
                 count: 400,
                 mass_min_msun: 0.5,
@@ -125,15 +131,28 @@ fn main() {
         let path = dir.path().join(format!("map{n}.fits"));
         cairn::fits_write::write_image_f32(&path, map.data.view(), &map.header, true).unwrap();
         drop(map);
-        let sort = Command::new(&exe).args(["--child-sort", path.to_str().unwrap()]).output().unwrap();
-        let sort_s: f64 = String::from_utf8_lossy(&sort.stdout).trim().parse().unwrap();
+        let sort = Command::new(&exe)
+            .args(["--child-sort", path.to_str().unwrap()])
+            .output()
+            .unwrap();
+        let sort_s: f64 = String::from_utf8_lossy(&sort.stdout)
+            .trim()
+            .parse()
+            .unwrap();
         let out = dir.path().join(format!("run{n}"));
         let seg = Command::new(&exe)
-            .args(["--child-segment", path.to_str().unwrap(), out.to_str().unwrap()])
+            .args([
+                "--child-segment",
+                path.to_str().unwrap(),
+                out.to_str().unwrap(),
+            ])
             .output()
             .unwrap();
         let text = String::from_utf8_lossy(&seg.stdout).to_string();
-        let f: Vec<f64> = text.split_whitespace().map(|x| x.parse().unwrap()).collect();
+        let f: Vec<f64> = text
+            .split_whitespace()
+            .map(|x| x.parse().unwrap())
+            .collect();
         let (seg_s, peak, base, leaves) = (f[0], f[1], f[2], f[3]);
         let npix = (n * n) as f64;
         // Memory above what the process held with the map loaded, per pixel.

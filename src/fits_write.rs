@@ -118,8 +118,16 @@ fn write_image<T: WriteImage + Copy>(
                 )));
             }
         }
-        let flat: Vec<T> = data.iter().copied().collect();
-        hdu.write_image(&mut f, &flat)
+        // Write straight from the array when it is contiguous (no copy of the pixels).
+        let owned: Vec<T>;
+        let flat: &[T] = match data.as_slice() {
+            Some(s) => s,
+            None => {
+                owned = data.iter().copied().collect();
+                &owned
+            }
+        };
+        hdu.write_image(&mut f, flat)
             .map_err(|e| fail("writing the pixels", &e))?;
         drop(f);
         std::fs::rename(&tmp, path).map_err(|e| fail("renaming the temporary file", &e))

@@ -150,7 +150,12 @@ pub struct Resolved {
 /// Resolves thresholds against the map's noise, beam and pixel size.
 pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
     let (sigma, source) = inspect::noise_for(map, &o.noise)?;
-    let background = noise::clipped_stats(map.data.view()).ok().map(|c| c.median);
+    // The background level (clipped median) is needed only for the default floor.
+    let background = if o.floor.is_none() {
+        noise::clipped_stats(map.data.view()).ok().map(|c| c.median)
+    } else {
+        None
+    };
     let need_sigma = |what: &str| -> Result<f64> {
         sigma.ok_or_else(|| {
             Error::input(
@@ -672,7 +677,11 @@ fn label_header(map: &Map, what: &str) -> Header {
 /// Runs the whole segmentation and writes the outputs. `progress` receives fractions 0..1.
 pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Result<RunSummary> {
     let t0 = Instant::now();
+    // The input's SHA-256 is computed beside the real work.
+    let path = map.path.clone();
+    let hashing = std::thread::spawn(move || sha256_file(&path));
     let r = resolve(map, o)?;
+    let t_resolve = t0.elapsed().as_secs_f64();
     let mut names_list: Vec<String> = [
         names::CSV,
         names::FITS_TABLE,
@@ -710,7 +719,10 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     };
     let tree_seconds = t_tree.elapsed().as_secs_f64();
     progress("measure", 0.0);
+    let t_measure = Instant::now();
     let ms = measure::measure_all(&h, map.wcs.as_ref());
+    let measure_seconds = t_measure.elapsed().as_secs_f64();
+    let t_physics = Instant::now();
     let mut physics_note = None;
     let phys = match crate::score::score(map, &h, &ms, &o.physics, r.noise) {
         Ok(p) => Some(p),
@@ -719,13 +731,17 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             None
         }
     };
+    let physics_seconds = t_physics.elapsed().as_secs_f64();
     let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
+    let t_write = Instant::now();
     let grown = o
         .grow_leaves
         .then(|| hierarchy::grow_leaves(map.data.view(), &h, r.floor));
     progress("measure", 1.0);
 
-    let input_sha = sha256_file(&map.path)?;
+    let input_sha = hashing
+        .join()
+        .map_err(|_| Error::internal("hashing the input failed"))??;
     let meta: Vec<(String, String, String)> = vec![
         (
             "input".into(),
@@ -837,7 +853,14 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         "noise": { "value": r.noise, "unit": map.unit_text, "source": r.noise_source, "background": r.background },
         "beam": map.beam,
         "result": { "leaves": leaves, "branches": branches, "roots": roots, "structures": ms.len() },
-        "timings_seconds": { "hierarchy": tree_seconds, "total_before_writing": seconds },
+        "timings_seconds": {
+            "thresholds_and_noise": t_resolve,
+            "hierarchy": tree_seconds,
+            "measurements": measure_seconds,
+            "physics": physics_seconds,
+            "outputs_except_this_record": t_write.elapsed().as_secs_f64(),
+            "total": seconds,
+        },
         "threads": rayon::current_num_threads(),
         "warnings": map.warnings,
         "physics": physics_record(&o.physics, map, r.noise, physics_note.as_deref()),

@@ -276,45 +276,12 @@ impl Table {
             descs.push(d.create().map_err(fail)?);
         }
         let hdu = f.create_table(self.name.clone(), &descs).map_err(fail)?;
+        // Every keyword goes in before any data, so CFITSIO never has to move written rows.
         for (i, c) in self.columns.iter().enumerate() {
             if !c.unit.is_empty() {
                 hdu.write_key(&mut f, &format!("TUNIT{}", i + 1), c.unit.as_str())
                     .map_err(fail)?;
             }
-            match &c.values {
-                Values::F64(v) => {
-                    hdu.write_col(&mut f, c.name.as_str(), v).map_err(fail)?;
-                }
-                Values::I64(v) => {
-                    hdu.write_col(&mut f, c.name.as_str(), v).map_err(fail)?;
-                }
-                Values::Text(v) => {
-                    hdu.write_col(&mut f, c.name.as_str(), v).map_err(fail)?;
-                }
-                Values::Bool(v) => {
-                    let mut flags: Vec<std::os::raw::c_char> =
-                        v.iter().map(|&b| b as std::os::raw::c_char).collect();
-                    let mut status = 0;
-                    // SAFETY: the file is open on this table; `flags` holds one byte per row.
-                    unsafe {
-                        fitsio::sys::ffpcll(
-                            f.as_raw(),
-                            i as i32 + 1,
-                            1,
-                            1,
-                            flags.len() as i64,
-                            flags.as_mut_ptr(),
-                            &mut status,
-                        )
-                    };
-                    if status != 0 {
-                        return Err(Error::output(
-                            path,
-                            format!("cannot be written as FITS (CFITSIO status {status})."),
-                        ));
-                    }
-                }
-            };
         }
         for (k, v, c) in &self.meta {
             let key = fits_key(k);
@@ -327,6 +294,57 @@ impl Table {
                     .map_err(fail)?,
             }
         }
+        // The rows are laid out in memory (big-endian, as FITS stores them) and written in one
+        // call: column-by-column writes make CFITSIO seek back and forth through the table.
+        let widths: Vec<usize> = self
+            .columns
+            .iter()
+            .map(|c| match &c.values {
+                Values::F64(_) | Values::I64(_) => 8,
+                Values::Bool(_) => 1,
+                Values::Text(v) => v.iter().map(|s| s.len()).max().unwrap_or(1).max(1),
+            })
+            .collect();
+        let row_len: usize = widths.iter().sum();
+        let nrows = self.nrows();
+        let mut bytes = Vec::with_capacity(row_len * nrows);
+        for r in 0..nrows {
+            for (c, &w) in self.columns.iter().zip(&widths) {
+                match &c.values {
+                    Values::F64(v) => bytes.extend_from_slice(&v[r].to_be_bytes()),
+                    Values::I64(v) => bytes.extend_from_slice(&v[r].to_be_bytes()),
+                    Values::Bool(v) => bytes.push(if v[r] { b'T' } else { b'F' }),
+                    Values::Text(v) => {
+                        let t = v[r].as_bytes();
+                        bytes.extend_from_slice(t);
+                        bytes.extend(std::iter::repeat_n(b' ', w - t.len()));
+                    }
+                }
+            }
+        }
+        if nrows > 0 {
+            let mut status = 0;
+            // SAFETY: the file is open on this table, whose rows are `row_len` bytes wide (the
+            // column formats above); `bytes` holds `nrows` such rows.
+            unsafe {
+                fitsio::sys::ffirow(f.as_raw(), 0, nrows as i64, &mut status);
+                fitsio::sys::ffptbb(
+                    f.as_raw(),
+                    1,
+                    1,
+                    bytes.len() as i64,
+                    bytes.as_mut_ptr(),
+                    &mut status,
+                );
+            }
+            if status != 0 {
+                return Err(Error::output(
+                    path,
+                    format!("cannot be written as FITS (CFITSIO status {status})."),
+                ));
+            }
+        }
+        let _ = &hdu;
         Ok(())
     }
 }

@@ -8,16 +8,28 @@ fn demo_maps_are_reproducible_from_their_specifications() {
     let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps");
     let tmp = tempfile::tempdir().unwrap();
     for name in ["velloran-column", "velloran-850um"] {
-        let spec: cairn::synth::SynthSpec =
-            serde_json::from_str(&std::fs::read_to_string(dir.join(format!("{name}-spec.json"))).unwrap()).unwrap();
+        let spec: cairn::synth::SynthSpec = serde_json::from_str(
+            &std::fs::read_to_string(dir.join(format!("{name}-spec.json"))).unwrap(),
+        )
+        .unwrap();
         let map = cairn::synth::generate(&spec).unwrap();
         let out = tmp.path().join(format!("{name}.fits"));
         cairn::fits_write::write_image_f32(&out, map.data.view(), &map.header, true).unwrap();
         let stored = std::fs::read(dir.join(format!("{name}.fits"))).unwrap();
-        assert!(stored.len() <= 2_000_000, "{name}.fits is {} bytes", stored.len());
-        assert!(std::fs::read(&out).unwrap() == stored, "{name}.fits differs from what its spec makes now");
+        assert!(
+            stored.len() <= 2_000_000,
+            "{name}.fits is {} bytes",
+            stored.len()
+        );
+        assert!(
+            std::fs::read(&out).unwrap() == stored,
+            "{name}.fits differs from what its spec makes now"
+        );
         let truth = tmp.path().join(format!("{name}-truth.csv"));
         cairn::synth::write_truth_csv(&truth, &map.truth).unwrap();
-        assert_eq!(std::fs::read(&truth).unwrap(), std::fs::read(dir.join(format!("{name}-truth.csv"))).unwrap());
+        assert_eq!(
+            std::fs::read(&truth).unwrap(),
+            std::fs::read(dir.join(format!("{name}-truth.csv"))).unwrap()
+        );
     }
 }
