@@ -16,6 +16,7 @@ pub mod measure;
 pub mod noise;
 pub mod output;
 pub mod physics;
+pub mod populations;
 pub mod segment;
 pub mod synth;
 pub mod table;
