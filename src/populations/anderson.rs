@@ -141,6 +141,8 @@ pub fn anderson_ksamp(samples: &[&[f64]]) -> Result<AndersonKSample, Error> {
 
 /// Least-squares quadratic [c2, c1, c0] through (x, y), highest power first, as numpy's
 /// `polyfit(x, y, 2)`: Vandermonde columns scaled to unit norm, then Householder QR.
+/// (Index loops mirror the matrix algebra.)
+#[allow(clippy::needless_range_loop)]
 fn polyfit2(x: &[f64], y: &[f64]) -> [f64; 3] {
     let n = x.len();
     let mut a: Vec<[f64; 3]> = x.iter().map(|&v| [v * v, v, 1.0]).collect();

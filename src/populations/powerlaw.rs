@@ -10,8 +10,9 @@
 //!   (CSN eq. 3.2, the large-n Fisher error; powerlaw 2.0.0 reports the same as `sigma`).
 //! - x_min, when not given (CSN section 3.3): every distinct mass is a candidate except the
 //!   largest `min_tail_distinct - 1` distinct masses, so the tail above a candidate holds at
-//!   least `min_tail_distinct` distinct masses (default 2, which is powerlaw 2.0.0's rule of
-//!   never trying the largest value). For each candidate the tail is fitted and the
+//!   least `min_tail_distinct` distinct masses. The default, 3, is powerlaw 2.0.0's rule: its
+//!   candidate range is the masses strictly below the maximum, and it then drops the last
+//!   remaining candidate, so the two largest distinct masses are never tried. For each candidate the tail is fitted and the
 //!   Kolmogorov-Smirnov distance D = max |F_fit(u) - S(u)| is taken over the distinct tail
 //!   masses u, where S(u) is the fraction of the tail strictly below u (the empirical CDF just
 //!   before the step, as powerlaw 2.0.0 computes it). The candidate with the smallest D among
@@ -42,17 +43,18 @@ use crate::error::Error;
 /// How x_min is searched for when not given.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct XminSearch {
-    /// Smallest number of distinct masses in the tail above a candidate x_min (at least 2).
+    /// Smallest number of distinct masses in the tail above a candidate x_min (at least 2;
+    /// default 3 as powerlaw 2.0.0).
     pub min_tail_distinct: usize,
     /// Open interval of admissible alpha for a candidate.
     pub alpha_range: (f64, f64),
 }
 
 impl Default for XminSearch {
-    /// powerlaw 2.0.0's choices: every distinct value but the largest; alpha in (1, 3).
+    /// powerlaw 2.0.0's choices: every distinct value but the two largest; alpha in (1, 3).
     fn default() -> Self {
         XminSearch {
-            min_tail_distinct: 2,
+            min_tail_distinct: 3,
             alpha_range: (1.0, 3.0),
         }
     }
@@ -355,13 +357,13 @@ mod tests {
         let data = [1.0, 1.0, 2.0, 3.0, 5.0, 8.0];
         let c = scan_xmin(&data, &XminSearch::default()).unwrap();
         let xs: Vec<f64> = c.iter().map(|c| c.xmin).collect();
-        assert_eq!(xs, vec![1.0, 2.0, 3.0, 5.0]);
+        assert_eq!(xs, vec![1.0, 2.0, 3.0]);
         assert_eq!(c[0].n_tail, 6);
         let search = XminSearch {
-            min_tail_distinct: 3,
+            min_tail_distinct: 2,
             ..XminSearch::default()
         };
-        assert_eq!(scan_xmin(&data, &search).unwrap().len(), 3);
+        assert_eq!(scan_xmin(&data, &search).unwrap().len(), 4);
     }
 
     #[test]
