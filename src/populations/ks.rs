@@ -462,6 +462,63 @@ mod tests {
         assert!((r.pvalue - 0.2).abs() < 1e-15);
     }
 
+    /// Null distribution of D * lcm(m, n) by enumerating every arrangement of m + n ranks.
+    fn brute_force_counts(m: usize, n: usize) -> Vec<i64> {
+        let lcm = (m * n / gcd(m, n)) as i64;
+        let mut out = Vec::new();
+        for mask in 0u32..(1 << (m + n)) {
+            if mask.count_ones() as usize != m {
+                continue;
+            }
+            let (mut i, mut j, mut d) = (0i64, 0i64, 0i64);
+            for bit in 0..(m + n) {
+                if mask >> bit & 1 == 1 {
+                    i += 1;
+                } else {
+                    j += 1;
+                }
+                d = d.max((i * lcm / m as i64 - j * lcm / n as i64).abs());
+            }
+            out.push(d);
+        }
+        out
+    }
+
+    #[test]
+    fn exact_p_values_match_full_enumeration() {
+        // Self-consistency: under the null every arrangement of the pooled ranks is equally
+        // likely, so P(D >= h / lcm) is a count over all C(m + n, m) arrangements.
+        for &(m, n) in &[(4usize, 6usize), (5, 7), (6, 6), (3, 9), (8, 5)] {
+            let counts = brute_force_counts(m, n);
+            let g = gcd(m, n);
+            let lcm = (m * n / g) as i64;
+            for h in 1..=lcm {
+                let brute = counts.iter().filter(|&&d| d >= h).count() as f64 / counts.len() as f64;
+                let ours = if m == n {
+                    prob_outside_square(m as i64, h)
+                } else {
+                    outer_prob_inside(m as i64, n as i64, g as i64, h)
+                };
+                assert!(
+                    (ours.min(1.0) - brute).abs() < 1e-12,
+                    "m {m} n {n} h {h}: {ours} vs {brute}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn auto_switches_to_asymptotic_above_ten_thousand() {
+        let a: Vec<f64> = (0..10_001).map(|i| i as f64).collect();
+        let b: Vec<f64> = (0..10_002).map(|i| i as f64 + 500.5).collect();
+        let auto = ks_2samp(&a, &b, KsMethod::Auto).unwrap();
+        let asym = ks_2samp(&a, &b, KsMethod::Asymptotic).unwrap();
+        assert_eq!(auto.method, KsMethod::Asymptotic);
+        assert_eq!(auto, asym);
+        let small = ks_2samp(&a[..100], &b[..120], KsMethod::Auto).unwrap();
+        assert_eq!(small.method, KsMethod::Exact);
+    }
+
     #[test]
     fn kolmogorov_algorithms_agree_where_they_overlap() {
         // Durbin's matrix is exact for every x; the Birnbaum-Tingey tail (2 x one-sided) is
