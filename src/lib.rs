@@ -16,6 +16,7 @@ pub mod measure;
 pub mod noise;
 pub mod output;
 pub mod physics;
+pub mod populations;
 pub mod render;
 pub mod score;
 pub mod segment;

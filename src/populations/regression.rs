@@ -1,0 +1,172 @@
+//! Mass-size relation by ordinary least squares, and the comparison of two fitted slopes.
+//!
+//! `fit_line` is ordinary least squares of y on x (y = a + b x) with the textbook standard
+//! errors, written as `scipy.stats.linregress` writes them: with population (co)variances
+//! s_xx, s_xy, s_yy (divisor n) and r = s_xy / sqrt(s_xx s_yy),
+//! b = s_xy / s_xx, a = mean(y) - b mean(x), se(b) = sqrt((1 - r^2) s_yy / s_xx / (n - 2)),
+//! se(a) = se(b) sqrt(s_xx + mean(x)^2). `fit_mass_size` applies it to log10 M against
+//! log10 R. The rms scatter is sqrt(mean(residual^2)) in dex (divisor n); the residual
+//! standard deviation with divisor n - 2 is given too.
+//!
+//! Two slopes b1 +/- s1 and b2 +/- s2 from independent populations differ by b1 - b2 with
+//! combined uncertainty sqrt(s1^2 + s2^2) (independent Gaussian errors); the significance is
+//! |b1 - b2| / sqrt(s1^2 + s2^2) in sigma.
+
+use super::check_values;
+use crate::error::Error;
+
+/// A least-squares straight line y = intercept + slope x.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LineFit {
+    /// Slope b.
+    pub slope: f64,
+    /// Intercept a.
+    pub intercept: f64,
+    /// Standard error of the slope.
+    pub slope_error: f64,
+    /// Standard error of the intercept.
+    pub intercept_error: f64,
+    /// Pearson correlation coefficient.
+    pub r: f64,
+    /// Root-mean-square residual about the line, divisor n.
+    pub rms_scatter: f64,
+    /// Residual standard deviation, divisor n - 2.
+    pub residual_std: f64,
+    /// Number of points.
+    pub n: usize,
+}
+
+/// Least-squares fit of y = a + b x (at least three points, x not all equal).
+pub fn fit_line(x: &[f64], y: &[f64]) -> Result<LineFit, Error> {
+    check_values(x, "x values", false)?;
+    check_values(y, "y values", false)?;
+    if x.len() != y.len() {
+        return Err(Error::usage(format!(
+            "a line fit needs as many y values as x values, but {} and {} were given",
+            x.len(),
+            y.len()
+        )));
+    }
+    let n = x.len();
+    if n < 3 {
+        return Err(Error::usage(
+            "a line fit with standard errors needs at least three points",
+        ));
+    }
+    let nf = n as f64;
+    let xm = x.iter().sum::<f64>() / nf;
+    let ym = y.iter().sum::<f64>() / nf;
+    let (mut sxx, mut sxy, mut syy) = (0.0, 0.0, 0.0);
+    for (&xi, &yi) in x.iter().zip(y) {
+        let (dx, dy) = (xi - xm, yi - ym);
+        sxx += dx * dx;
+        sxy += dx * dy;
+        syy += dy * dy;
+    }
+    let (sxx, sxy, syy) = (sxx / nf, sxy / nf, syy / nf);
+    if sxx == 0.0 {
+        return Err(Error::usage(
+            "all x values are equal, so no slope can be fitted",
+        ));
+    }
+    let r = if syy == 0.0 {
+        0.0
+    } else {
+        (sxy / (sxx * syy).sqrt()).clamp(-1.0, 1.0)
+    };
+    let slope = sxy / sxx;
+    let intercept = ym - slope * xm;
+    let df = nf - 2.0;
+    let slope_error = ((1.0 - r * r) * syy / sxx / df).sqrt();
+    let intercept_error = slope_error * (sxx + xm * xm).sqrt();
+    let ss_res: f64 = x
+        .iter()
+        .zip(y)
+        .map(|(&xi, &yi)| (yi - intercept - slope * xi).powi(2))
+        .sum();
+    Ok(LineFit {
+        slope,
+        intercept,
+        slope_error,
+        intercept_error,
+        r,
+        rms_scatter: (ss_res / nf).sqrt(),
+        residual_std: (ss_res / df).sqrt(),
+        n,
+    })
+}
+
+/// Fits log10 M = a + b log10 R to positive radii and masses (any consistent units).
+pub fn fit_mass_size(radii: &[f64], masses: &[f64]) -> Result<LineFit, Error> {
+    check_values(radii, "radii", true)?;
+    check_values(masses, "masses", true)?;
+    let lr: Vec<f64> = radii.iter().map(|r| r.log10()).collect();
+    let lm: Vec<f64> = masses.iter().map(|m| m.log10()).collect();
+    fit_line(&lr, &lm)
+}
+
+/// The difference of two independently measured slopes.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SlopeDifference {
+    /// First slope minus second.
+    pub difference: f64,
+    /// Combined uncertainty sqrt(s1^2 + s2^2).
+    pub error: f64,
+    /// |difference| / error, in sigma.
+    pub significance: f64,
+}
+
+/// Compares two slopes given as (value, standard error), e.g. two mass-size slopes or two
+/// power-law exponents.
+pub fn slope_difference(first: (f64, f64), second: (f64, f64)) -> Result<SlopeDifference, Error> {
+    let values = [first.0, first.1, second.0, second.1];
+    check_values(&values, "slopes and their errors", false)?;
+    if first.1 < 0.0 || second.1 < 0.0 || first.1 + second.1 == 0.0 {
+        return Err(Error::usage(
+            "slope errors must be non-negative and not both zero",
+        ));
+    }
+    let difference = first.0 - second.0;
+    let error = first.1.hypot(second.1);
+    Ok(SlopeDifference {
+        difference,
+        error,
+        significance: difference.abs() / error,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn exact_line_has_zero_errors() {
+        let x = [1.0, 2.0, 3.0, 4.0];
+        let y: Vec<f64> = x.iter().map(|v| 0.5 + 2.0 * v).collect();
+        let f = fit_line(&x, &y).unwrap();
+        assert!((f.slope - 2.0).abs() < 1e-14 && (f.intercept - 0.5).abs() < 1e-14);
+        assert!(f.slope_error < 1e-7 && f.rms_scatter < 1e-14);
+        assert!(fit_line(&[1.0, 1.0, 1.0], &[1.0, 2.0, 3.0]).is_err());
+        assert!(fit_line(&[1.0, 2.0], &[1.0, 2.0]).is_err());
+    }
+
+    #[test]
+    fn three_point_line_by_hand() {
+        // x = 0, 1, 2; y = 0, 2, 1: b = 0.5, a = 0.5, residuals -0.5, 1, -0.5.
+        let f = fit_line(&[0.0, 1.0, 2.0], &[0.0, 2.0, 1.0]).unwrap();
+        assert!((f.slope - 0.5).abs() < 1e-15 && (f.intercept - 0.5).abs() < 1e-15);
+        assert!((f.rms_scatter - 0.5f64.sqrt()).abs() < 1e-15);
+        assert!((f.residual_std - 1.5f64.sqrt()).abs() < 1e-15);
+        // se(b) = s / sqrt(sum dx^2) = sqrt(1.5)/sqrt(2).
+        assert!((f.slope_error - (0.75f64).sqrt()).abs() < 1e-15);
+    }
+
+    #[test]
+    fn slope_difference_adds_errors_in_quadrature() {
+        let d = slope_difference((2.0, 0.3), (1.5, 0.4)).unwrap();
+        assert!((d.difference - 0.5).abs() < 1e-15);
+        assert!((d.error - 0.5).abs() < 1e-15);
+        assert!((d.significance - 1.0).abs() < 1e-15);
+        assert!(slope_difference((1.0, 0.0), (1.0, 0.0)).is_err());
+    }
+}
