@@ -46,7 +46,7 @@ fn write_map(path: &std::path::Path, n: usize) {
     for c in cards {
         h.push_str(&format!("{c:<80}"));
     }
-    while h.len() % 2880 != 0 {
+    while !h.len().is_multiple_of(2880) {
         h.push(' ');
     }
     f.write_all(h.as_bytes()).unwrap();

@@ -478,7 +478,7 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
         spec.background = None;
     } else if a.background.is_some() || a.background_width.is_some() || a.background_index.is_some()
     {
-        let mut bg = spec.background.clone().unwrap_or_default();
+        let mut bg = spec.background.unwrap_or_default();
         if let Some(t) = &a.background {
             bg.mean_column_cm2 = q(t, &[Dimension::ColumnDensity], "--background")?.si * 1e-4;
         }

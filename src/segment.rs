@@ -89,7 +89,7 @@ pub fn parse_area(text: &str) -> Result<Area> {
         "--min-area",
     )
     .map_err(Error::usage)?;
-    if !(q.si >= 0.0) {
+    if q.si.is_nan() || q.si < 0.0 {
         return Err(Error::usage(format!(
             "--min-area '{text}' must not be negative."
         )));
@@ -177,7 +177,7 @@ pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
         Some(Level::Sigma(k)) => k * need_sigma("--prominence")?,
         None => 3.0 * need_sigma("the default prominence (3 sigma)")?,
     };
-    if !(prominence >= 0.0) {
+    if prominence.is_nan() || prominence < 0.0 {
         return Err(Error::usage(format!(
             "--prominence must not be negative (it is {prominence})."
         )));

@@ -31,14 +31,14 @@ fn fits_bytes(cards: &[String], pixels: &[f32]) -> Vec<u8> {
         h.push_str(&format!("{c:<80}"));
     }
     h.push_str(&format!("{:<80}", "END"));
-    while h.len() % 2880 != 0 {
+    while !h.len().is_multiple_of(2880) {
         h.push(' ');
     }
     let mut bytes = h.into_bytes();
     for p in pixels {
         bytes.extend_from_slice(&p.to_be_bytes());
     }
-    while bytes.len() % 2880 != 0 {
+    while !bytes.len().is_multiple_of(2880) {
         bytes.push(0);
     }
     bytes
