@@ -29,6 +29,8 @@ enum Command {
     /// Find the structures of a map: hierarchy, catalogue, label maps, tree file and run record.
     #[command(after_help = SEGMENT_HELP)]
     Segment(SegmentArgs),
+    /// Draw the figures of a finished run again, with other style options.
+    Draw(DrawArgs),
     /// Make a synthetic map with known truth: turbulent background, cores, beam and noise.
     Synth(SynthArgs),
 }
@@ -67,6 +69,11 @@ struct SegmentArgs {
     /// Catalogue leaves only (a plain core list).
     #[arg(long)]
     leaves_only: bool,
+    /// Draw no figures (overlay.png/svg, tree.png/svg).
+    #[arg(long)]
+    no_figure: bool,
+    #[command(flatten)]
+    style: StyleArgs,
     /// Replace existing outputs.
     #[arg(long)]
     force: bool,
@@ -299,6 +306,184 @@ impl PhysicsArgs {
         }
         Ok(c)
     }
+}
+
+/// How figures look.
+#[derive(Args, Clone)]
+struct StyleArgs {
+    /// Colour stretch: linear, sqrt, log or asinh.
+    #[arg(long, default_value = "linear", value_name = "STRETCH")]
+    stretch: String,
+    /// Colour limits as percentiles of the shown pixels, `LOW,HIGH`.
+    #[arg(
+        long,
+        default_value = "0.5,99.5",
+        value_name = "LOW,HIGH",
+        conflicts_with = "range"
+    )]
+    limits: String,
+    /// Colour limits as map values, `LOW,HIGH` (instead of --limits).
+    #[arg(long, value_name = "LOW,HIGH", allow_hyphen_values = true)]
+    range: Option<String>,
+    /// Colour map: viridis, inferno, magma, cividis or grey (for print).
+    #[arg(long, default_value = "viridis", value_name = "NAME")]
+    colormap: String,
+    /// Figure width in pixels (PNG).
+    #[arg(long, default_value_t = 1600, value_name = "PX")]
+    width: u32,
+    /// Print resolution recorded in the PNG; text is 9 pt at this resolution.
+    #[arg(long, default_value_t = 300.0, value_name = "DPI")]
+    dpi: f64,
+    /// Also outline the top-level structures that have children.
+    #[arg(long)]
+    branches: bool,
+    /// Draw only a square part: `X,Y,SIZE` with a pixel centre and a size in px (256,192,100px)
+    /// or a sky centre in degrees and an angular size (152.81,11.40,5arcmin).
+    #[arg(long, value_name = "X,Y,SIZE", allow_hyphen_values = true)]
+    region: Option<String>,
+}
+
+impl StyleArgs {
+    fn style(&self, map: &map::Map) -> Result<cairn::render::Style> {
+        use cairn::render::{ColorMap, Limits, Stretch, Style};
+        let pair = |t: &str, what: &str| -> Result<(f64, f64)> {
+            let bad = || {
+                Error::usage(format!(
+                    "{what} '{t}' is not understood: give two numbers separated by a comma, such as 1,99."
+                ))
+            };
+            let (a, b) = t.split_once(',').ok_or_else(bad)?;
+            Ok((
+                a.trim().parse().map_err(|_| bad())?,
+                b.trim().parse().map_err(|_| bad())?,
+            ))
+        };
+        let stretch = match self.stretch.to_ascii_lowercase().as_str() {
+            "linear" => Stretch::Linear,
+            "sqrt" => Stretch::Sqrt,
+            "log" => Stretch::Log,
+            "asinh" => Stretch::Asinh,
+            o => {
+                return Err(Error::usage(format!(
+                    "--stretch '{o}' is not understood: give linear, sqrt, log or asinh."
+                )));
+            }
+        };
+        let colormap = match self.colormap.to_ascii_lowercase().as_str() {
+            "viridis" => ColorMap::Viridis,
+            "inferno" => ColorMap::Inferno,
+            "magma" => ColorMap::Magma,
+            "cividis" => ColorMap::Cividis,
+            "grey" | "gray" => ColorMap::Grey,
+            o => {
+                return Err(Error::usage(format!(
+                    "--colormap '{o}' is not understood: give viridis, inferno, magma, cividis or grey."
+                )));
+            }
+        };
+        let limits = match &self.range {
+            Some(r) => {
+                let (a, b) = pair(r, "--range")?;
+                Limits::Values(a, b)
+            }
+            None => {
+                let (a, b) = pair(&self.limits, "--limits")?;
+                Limits::Percentiles(a, b)
+            }
+        };
+        if self.width < 200 || self.width > 20000 {
+            return Err(Error::usage(format!(
+                "--width {} is outside 200 to 20000 pixels.",
+                self.width
+            )));
+        }
+        if !(self.dpi > 10.0 && self.dpi < 5000.0) {
+            return Err(Error::usage(format!(
+                "--dpi {} is outside 10 to 5000.",
+                self.dpi
+            )));
+        }
+        let region = self
+            .region
+            .as_deref()
+            .map(|r| parse_region(r, map))
+            .transpose()?;
+        Ok(Style {
+            stretch,
+            limits,
+            colormap,
+            width_px: self.width,
+            dpi: self.dpi,
+            show_branches: self.branches,
+            region,
+        })
+    }
+}
+
+/// `X,Y,SIZE` to (x0, y0, width, height) in pixels, clipped to the map.
+fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usize)> {
+    let bad = || {
+        Error::usage(format!(
+            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px or 152.81,11.40,5arcmin."
+        ))
+    };
+    let parts: Vec<&str> = text.split(',').collect();
+    if parts.len() != 3 {
+        return Err(bad());
+    }
+    let a: f64 = parts[0].trim().parse().map_err(|_| bad())?;
+    let b: f64 = parts[1].trim().parse().map_err(|_| bad())?;
+    let size = units::parse_quantity(
+        parts[2],
+        &[Dimension::Pixels, Dimension::Pure, Dimension::Angle],
+        "--region",
+    )
+    .map_err(Error::usage)?;
+    let (cx, cy, half) = if size.dim == Dimension::Angle {
+        let w = map.wcs.as_ref().ok_or_else(|| Error::usage("--region with a sky centre needs a map with a celestial WCS; give the centre and size in pixels."))?;
+        let (x, y) = w.sky_to_pixel(a, b).ok_or_else(|| {
+            Error::usage(format!(
+                "--region centre {a},{b} is outside the map's projection."
+            ))
+        })?;
+        let (sx, sy) = w.pixel_scale(x, y);
+        (x, y, size.si.to_degrees() / (sx * sy).sqrt() / 2.0)
+    } else {
+        (a, b, size.si / 2.0)
+    };
+    let (nx, ny) = (map.nx() as f64, map.ny() as f64);
+    let x0 = (cx - half).round().max(0.0);
+    let y0 = (cy - half).round().max(0.0);
+    let x1 = (cx + half).round().min(nx);
+    let y1 = (cy + half).round().min(ny);
+    if x1 - x0 < 4.0 || y1 - y0 < 4.0 {
+        return Err(Error::usage(format!(
+            "--region '{text}' leaves less than 4 pixels of the map to draw."
+        )));
+    }
+    Ok((
+        x0 as usize,
+        y0 as usize,
+        (x1 - x0) as usize,
+        (y1 - y0) as usize,
+    ))
+}
+
+#[derive(Args)]
+struct DrawArgs {
+    /// The folder of a finished `cairn segment` run.
+    run: PathBuf,
+    /// The map, if it is no longer where the run found it.
+    #[arg(long, value_name = "FILE")]
+    map: Option<PathBuf>,
+    /// Where to write the figures [default: the run folder].
+    #[arg(short, long, value_name = "DIR")]
+    output: Option<PathBuf>,
+    /// Replace existing figures.
+    #[arg(long)]
+    force: bool,
+    #[command(flatten)]
+    style: StyleArgs,
 }
 
 #[derive(Args)]
@@ -631,6 +816,11 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         force: a.force,
         command_line: std::env::args().collect(),
         physics: a.physics.context(&m)?,
+        figure: if a.no_figure {
+            None
+        } else {
+            Some(a.style.style(&m)?)
+        },
     };
     let bar = progress_bar(quiet, m.nx() * m.ny());
     let summary = segment::run(&m, &so, &|stage, f| {
@@ -685,6 +875,42 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     Ok(())
 }
 
+fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
+    use cairn::segment::names;
+    let run = cairn::draw::read_run(&a.run, a.map.as_deref())?;
+    let style = a.style.style(&run.map)?;
+    let input = cairn::draw::FigureInput {
+        map: &run.map,
+        labels: run.labels.view(),
+        structures: run.structures.clone(),
+        distance_pc: run.distance_pc,
+        title: None,
+    };
+    let (png, svg, tpng, tsvg) = cairn::draw::figures(&input, &style)?;
+    let dir = a.output.clone().unwrap_or_else(|| a.run.clone());
+    let mut list = vec![
+        names::OVERLAY_PNG.to_string(),
+        names::OVERLAY_SVG.to_string(),
+    ];
+    if !tpng.is_empty() {
+        list.push(names::TREE_PNG.into());
+        list.push(names::TREE_SVG.into());
+    }
+    let outputs = output::Outputs::plan(&dir, &list, a.force)?;
+    output::write_bytes(&outputs.temp(names::OVERLAY_PNG), &png)?;
+    output::write_bytes(&outputs.temp(names::OVERLAY_SVG), svg.as_bytes())?;
+    if !tpng.is_empty() {
+        output::write_bytes(&outputs.temp(names::TREE_PNG), &tpng)?;
+        output::write_bytes(&outputs.temp(names::TREE_SVG), tsvg.as_bytes())?;
+    }
+    for p in outputs.commit()? {
+        if !quiet {
+            eprintln!("wrote {}", p.display());
+        }
+    }
+    Ok(())
+}
+
 /// A progress bar on stderr for maps over a million pixels, when stderr is a terminal.
 fn progress_bar(quiet: bool, npix: usize) -> Option<indicatif::ProgressBar> {
     use std::io::IsTerminal;
@@ -706,6 +932,7 @@ fn main() -> ExitCode {
         Command::Inspect(a) => run_inspect(a),
         Command::Synth(a) => run_synth(a, cli.quiet),
         Command::Segment(a) => run_segment(a, cli.quiet),
+        Command::Draw(a) => run_draw(a, cli.quiet),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

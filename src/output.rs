@@ -92,6 +92,12 @@ impl Outputs {
             .unwrap_or_else(|| panic!("output {name} was not planned"))
     }
 
+    /// Drops a planned output that turned out to have nothing to hold.
+    pub fn skip(&mut self, name: &str) {
+        self.planned
+            .retain(|(t, _)| t.file_name().map(|f| f != name).unwrap_or(true));
+    }
+
     /// Renames every temporary file into place. Every planned output must have been written.
     pub fn commit(mut self) -> Result<Vec<PathBuf>> {
         for (target, tmp) in &self.planned {

@@ -126,6 +126,8 @@ pub struct SegmentOptions {
     pub command_line: Vec<String>,
     /// Physical assumptions (distance, temperature, opacity, ...).
     pub physics: crate::score::Context,
+    /// Figure style; `None` draws no figures (`--no-figure`).
+    pub figure: Option<crate::render::Style>,
 }
 
 /// Thresholds resolved to map units and pixels.
@@ -252,6 +254,14 @@ pub mod names {
     pub const TREE_DOT: &str = "hierarchy.dot";
     /// The run record.
     pub const RUN: &str = "run.json";
+    /// The map with its leaves (PNG).
+    pub const OVERLAY_PNG: &str = "overlay.png";
+    /// The map with its leaves (SVG).
+    pub const OVERLAY_SVG: &str = "overlay.svg";
+    /// The tree diagram (PNG).
+    pub const TREE_PNG: &str = "tree.png";
+    /// The tree diagram (SVG).
+    pub const TREE_SVG: &str = "tree.svg";
 }
 
 /// What a finished run reports.
@@ -697,7 +707,17 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     if o.grow_leaves {
         names_list.push(names::GROWN.into());
     }
-    let outputs = Outputs::plan(&o.output, &names_list, o.force)?;
+    if o.figure.is_some() {
+        for n in [
+            names::OVERLAY_PNG,
+            names::OVERLAY_SVG,
+            names::TREE_PNG,
+            names::TREE_SVG,
+        ] {
+            names_list.push(n.into());
+        }
+    }
+    let mut outputs = Outputs::plan(&o.output, &names_list, o.force)?;
     let params = Params {
         floor: r.floor,
         prominence: r.prominence,
@@ -827,6 +847,48 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         )
         .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
     }
+    if let Some(style) = &o.figure {
+        let input = crate::draw::FigureInput {
+            map,
+            labels: h.labels.view(),
+            structures: h
+                .structures
+                .iter()
+                .zip(&ms)
+                .enumerate()
+                .map(|(i, (st, m))| crate::draw::FigStructure {
+                    id: st.id,
+                    parent: st.parent,
+                    is_leaf: st.is_leaf(),
+                    peak: (st.peak_x, st.peak_y),
+                    peak_value: st.peak_value,
+                    merge_level: m.merge_level,
+                    state: phys
+                        .as_ref()
+                        .filter(|_| with_distance)
+                        .map(|p| p[i].state.to_string()),
+                })
+                .collect(),
+            distance_pc: o
+                .physics
+                .distance_m
+                .map(|d| d / crate::physics::constants::PC),
+            title: None,
+        };
+        progress("figures", 0.0);
+        let (png, svg, tpng, tsvg) = crate::draw::figures(&input, style)?;
+        output::write_bytes(&outputs.temp(names::OVERLAY_PNG), &png)?;
+        output::write_bytes(&outputs.temp(names::OVERLAY_SVG), svg.as_bytes())?;
+        if tpng.is_empty() {
+            // No structure: there is no tree to draw.
+            outputs.skip(names::TREE_PNG);
+            outputs.skip(names::TREE_SVG);
+        } else {
+            output::write_bytes(&outputs.temp(names::TREE_PNG), &tpng)?;
+            output::write_bytes(&outputs.temp(names::TREE_SVG), tsvg.as_bytes())?;
+        }
+        progress("figures", 1.0);
+    }
     let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
         .map_err(|e| Error::internal(e.to_string()))?
         + "\n";
@@ -840,7 +902,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let record = serde_json::json!({
         "cairn_version": env!("CARGO_PKG_VERSION"),
         "command_line": o.command_line,
-        "input": { "path": map.path.display().to_string(), "sha256": input_sha, "hdu": map.hdu_index, "plane": map.plane },
+        "input": { "path": std::fs::canonicalize(&map.path).unwrap_or_else(|_| map.path.clone()).display().to_string(), "sha256": input_sha, "hdu": map.hdu_index, "plane": map.plane },
         "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()) },
         "parameters": {
             "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0] },

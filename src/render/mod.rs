@@ -274,16 +274,17 @@ pub fn tree_svg(
     tree::scene(nodes, states, level_label, s)?.to_svg()
 }
 
-/// Okabe & Ito (2008) colours, in the order states use them: vermillion, sky blue, yellow,
-/// bluish green, reddish purple, orange, blue.
+/// Okabe & Ito (2008) colours, in the order states use them: vermillion, orange, sky blue,
+/// reddish purple, bluish green, blue, yellow. Yellow comes last because it is the bright end
+/// of the default colour maps.
 const STATE_COLOURS: [(u8, u8, u8); 7] = [
     (0xD5, 0x5E, 0x00),
-    (0x56, 0xB4, 0xE9),
-    (0xF0, 0xE4, 0x42),
-    (0x00, 0x9E, 0x73),
-    (0xCC, 0x79, 0xA7),
     (0xE6, 0x9F, 0x00),
+    (0x56, 0xB4, 0xE9),
+    (0xCC, 0x79, 0xA7),
+    (0x00, 0x9E, 0x73),
     (0x00, 0x72, 0xB2),
+    (0xF0, 0xE4, 0x42),
 ];
 
 /// Colour of state `i`.

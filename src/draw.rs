@@ -1,0 +1,388 @@
+//! Figures of a run: the map with its leaves, beam, scale bar and colour bar, and the tree
+//! diagram, from a run in memory or from a finished run's folder.
+//!
+//! Owns the bridge from cairn's data (map, label map, structures, states, distance) to the
+//! plain-data figures of [`crate::render`]: which outlines are drawn (every leaf; with
+//! `show_branches`, the outlines of the top-level structures that have children), the state
+//! legend, the beam in pixels, and a scale bar of a round length in parsecs (about a fifth of
+//! the shown width) when the distance is known.
+
+use std::path::{Path, PathBuf};
+
+use ndarray::{Array2, ArrayView2};
+
+use crate::error::{Error, Result};
+use crate::map::{self, LoadOptions, Map};
+use crate::render::{self, LeafStyle, SkyAxes, StateLegend, Style, TreeNode};
+use crate::units::{self, PixelUnit};
+use crate::wcs::{SkyFrame, Wcs};
+
+impl SkyAxes for Wcs {
+    fn pixel_to_sky(&self, x: f64, y: f64) -> Option<(f64, f64)> {
+        Wcs::pixel_to_sky(self, x, y)
+    }
+    fn sky_to_pixel(&self, lon: f64, lat: f64) -> Option<(f64, f64)> {
+        Wcs::sky_to_pixel(self, lon, lat)
+    }
+    fn equatorial(&self) -> bool {
+        matches!(
+            self.frame(),
+            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
+        )
+    }
+    fn pixel_scale_deg(&self) -> f64 {
+        // At the reference of the figure: the geometric mean of the two axes at the centre of
+        // the projection plane's first pixel is close enough for a scale bar and a beam; the
+        // figure code asks at the point it needs when it can.
+        let (sx, sy) = self.pixel_scale(0.0, 0.0);
+        (sx * sy).sqrt()
+    }
+}
+
+/// The states in legend order.
+pub const STATES: [(&str, &str); 4] = [
+    ("bound", "alpha_BE <= 1 (or alpha_vir <= 2)"),
+    ("marginal", "within a factor 2 of bound"),
+    ("unbound", "further from bound"),
+    ("unknown", "no distance or temperature"),
+];
+
+fn state_index(s: Option<&str>) -> usize {
+    match s {
+        Some("bound") => 0,
+        Some("marginal") => 1,
+        Some("unbound") => 2,
+        _ => 3,
+    }
+}
+
+/// What a figure needs to know of one structure.
+#[derive(Debug, Clone)]
+pub struct FigStructure {
+    /// Id.
+    pub id: u32,
+    /// Parent id.
+    pub parent: Option<u32>,
+    /// Whether it has no children.
+    pub is_leaf: bool,
+    /// Peak pixel.
+    pub peak: (usize, usize),
+    /// Peak value.
+    pub peak_value: f64,
+    /// Merge level (the floor for roots).
+    pub merge_level: f64,
+    /// State word, when known.
+    pub state: Option<String>,
+}
+
+/// Everything the figures of a run draw from.
+pub struct FigureInput<'a> {
+    /// The map.
+    pub map: &'a Map,
+    /// Smallest structure per pixel, -1 for none.
+    pub labels: ArrayView2<'a, i32>,
+    /// The structures, indexed by id.
+    pub structures: Vec<FigStructure>,
+    /// Distance in pc, if known.
+    pub distance_pc: Option<f64>,
+    /// A title.
+    pub title: Option<String>,
+}
+
+/// A round scale-bar length in pc near a fifth of `width_pc`.
+pub fn scale_bar_length(width_pc: f64) -> f64 {
+    let target = width_pc / 5.0;
+    let mut best = 0.001;
+    for exp in -3..=3 {
+        for m in [1.0, 2.0, 5.0] {
+            let v = m * 10f64.powi(exp);
+            if v <= target {
+                best = v;
+            }
+        }
+    }
+    best
+}
+
+fn unit_label(map: &Map) -> String {
+    match map.unit {
+        Some(PixelUnit::ColumnDensity { .. }) => {
+            format!("N(H_2) [{}]", map.unit_text.replace("cm-2", "cm^-2"))
+        }
+        Some(PixelUnit::Extinction {
+            band: units::ExtinctionBand::V,
+        }) => "A_V [mag]".into(),
+        Some(PixelUnit::Extinction {
+            band: units::ExtinctionBand::K,
+        }) => "A_K [mag]".into(),
+        _ => map.unit_text.clone(),
+    }
+}
+
+/// Draws the overlay and the tree: (overlay PNG, overlay SVG, tree PNG, tree SVG).
+pub fn figures(input: &FigureInput, style: &Style) -> Result<(Vec<u8>, String, Vec<u8>, String)> {
+    let map = input.map;
+    let (ny, nx) = map.data.dim();
+    let leaf_ids: Vec<bool> = input.structures.iter().map(|s| s.is_leaf).collect();
+    let leaf_labels = input.labels.mapv(|l| {
+        if l >= 0 && leaf_ids.get(l as usize).copied().unwrap_or(false) {
+            l
+        } else {
+            -1
+        }
+    });
+    let branch_labels: Option<Array2<i32>> = style.show_branches.then(|| {
+        // The top-level ancestor of each labelled pixel, for structures that have children.
+        let mut top = vec![-1i32; input.structures.len()];
+        for s in &input.structures {
+            let mut a = s.id;
+            while let Some(p) = input.structures[a as usize].parent {
+                a = p;
+            }
+            top[s.id as usize] = if input.structures[a as usize].is_leaf {
+                -1
+            } else {
+                a as i32
+            };
+        }
+        input
+            .labels
+            .mapv(|l| if l >= 0 { top[l as usize] } else { -1 })
+    });
+    let leaves: Vec<LeafStyle> = input
+        .structures
+        .iter()
+        .filter(|s| s.is_leaf)
+        .map(|s| LeafStyle {
+            id: s.id as i32,
+            label: s.id.to_string(),
+            state: state_index(s.state.as_deref()),
+            peak: (s.peak.0 as f64, s.peak.1 as f64),
+        })
+        .collect();
+    let states: Vec<StateLegend> = STATES
+        .iter()
+        .map(|(n, d)| StateLegend {
+            name: n.to_string(),
+            description: d.to_string(),
+        })
+        .collect();
+    let sky: Option<&dyn SkyAxes> = map.wcs.as_ref().map(|w| w as &dyn SkyAxes);
+    let (cx, cy) = match style.region {
+        Some((x0, y0, w, h)) => (x0 as f64 + w as f64 / 2.0, y0 as f64 + h as f64 / 2.0),
+        None => ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0),
+    };
+    let pixel_deg = map.wcs.as_ref().map(|w| {
+        let (sx, sy) = w.pixel_scale(cx, cy);
+        (sx * sy).sqrt()
+    });
+    let beam = match (map.beam, pixel_deg) {
+        (Some(b), Some(p)) => Some((b.major_deg / p, b.minor_deg / p, b.pa_deg)),
+        _ => None,
+    };
+    let shown_width_px = style.region.map(|r| r.2).unwrap_or(nx) as f64;
+    let scale_bar = match (input.distance_pc, pixel_deg) {
+        (Some(d), Some(p)) => {
+            let pc_per_px = d * p.to_radians();
+            let len = scale_bar_length(shown_width_px * pc_per_px);
+            let text = if len >= 1.0 {
+                format!("{len} pc")
+            } else {
+                format!("{len} pc")
+            };
+            Some((len / pc_per_px, text))
+        }
+        _ => None,
+    };
+    let overlay = render::Overlay {
+        map: map.data.view(),
+        unit_label: unit_label(map),
+        labels: leaf_labels.view(),
+        branch_labels: branch_labels.as_ref().map(|b| b.view()),
+        leaves,
+        states: states.clone(),
+        sky,
+        beam,
+        scale_bar,
+        title: input.title.clone(),
+    };
+    let png = render::render_png(&overlay, style)
+        .map_err(|e| Error::usage(format!("cannot draw the figure: {e}.")))?;
+    let svg = render::render_svg(&overlay, style)
+        .map_err(|e| Error::usage(format!("cannot draw the figure: {e}.")))?;
+    let nodes: Vec<TreeNode> = input
+        .structures
+        .iter()
+        .map(|s| TreeNode {
+            id: s.id,
+            parent: s.parent,
+            top: s.peak_value,
+            bottom: s.merge_level,
+            is_leaf: s.is_leaf,
+            state: s.is_leaf.then(|| state_index(s.state.as_deref())),
+        })
+        .collect();
+    let level = format!("level [{}]", map.unit_text);
+    let (tpng, tsvg) = if nodes.is_empty() {
+        (Vec::new(), String::new())
+    } else {
+        (
+            render::tree_png(&nodes, &states, &level, style)
+                .map_err(|e| Error::usage(format!("cannot draw the tree: {e}.")))?,
+            render::tree_svg(&nodes, &states, &level, style)
+                .map_err(|e| Error::usage(format!("cannot draw the tree: {e}.")))?,
+        )
+    };
+    Ok((png, svg, tpng, tsvg))
+}
+
+/// A finished run read back from its folder (for `cairn draw`).
+pub struct SavedRun {
+    /// The map.
+    pub map: Map,
+    /// The label map.
+    pub labels: Array2<i32>,
+    /// The structures.
+    pub structures: Vec<FigStructure>,
+    /// Distance in pc.
+    pub distance_pc: Option<f64>,
+}
+
+/// Reads a run folder: run.json, labels.fits, hierarchy.json and structures.csv; the map from
+/// `map_override` or the path recorded in run.json.
+pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
+    let read = |name: &str| -> Result<String> {
+        let p = dir.join(name);
+        std::fs::read_to_string(&p).map_err(|_| {
+            Error::input(
+                &p,
+                "is missing or unreadable; give the folder of a finished `cairn segment` run.",
+            )
+        })
+    };
+    let run: serde_json::Value = serde_json::from_str(&read("run.json")?)
+        .map_err(|e| Error::input(&dir.join("run.json"), format!("is not a run record ({e}).")))?;
+    let map_path: PathBuf = match map_override {
+        Some(p) => p.to_path_buf(),
+        None => PathBuf::from(run["input"]["path"].as_str().unwrap_or("")),
+    };
+    let mut opts = LoadOptions {
+        require_unit: false,
+        ..LoadOptions::default()
+    };
+    if let Some(h) = run["input"]["hdu"].as_u64() {
+        opts.hdu = map::HduChoice::Index(h as usize);
+    }
+    opts.plane = run["input"]["plane"].as_u64().map(|p| p as usize);
+    if let Some(u) = run["map"]["unit"].as_str()
+        && !u.is_empty()
+    {
+        opts.unit = Some(u.to_string());
+    }
+    if let Some(b) = run["beam"].as_object() {
+        let g = |k: &str| b.get(k).and_then(|v| v.as_f64());
+        if let (Some(a), Some(m), Some(p)) = (g("major_deg"), g("minor_deg"), g("pa_deg")) {
+            opts.beam = Some(map::Beam {
+                major_deg: a,
+                minor_deg: m,
+                pa_deg: p,
+            });
+        }
+    }
+    let map = map::load(&map_path, &opts).map_err(|e| {
+        Error::input(
+            &map_path,
+            format!("the run's map cannot be read ({e}); give it with --map."),
+        )
+    })?;
+    let recorded = run["input"]["sha256"].as_str().unwrap_or("");
+    let now = crate::segment::sha256_file(&map_path)?;
+    if !recorded.is_empty() && recorded != now {
+        return Err(Error::input(
+            &map_path,
+            "is not the map this run was made from (its SHA-256 differs); give the right one with --map.",
+        ));
+    }
+    let lab_path = dir.join(crate::segment::names::LABELS);
+    let labels = map::load(
+        &lab_path,
+        &LoadOptions {
+            require_unit: false,
+            ..LoadOptions::default()
+        },
+    )?
+    .data
+    .mapv(|v| if v.is_finite() { v as i32 } else { -1 });
+    if labels.dim() != map.data.dim() {
+        return Err(Error::input(
+            &lab_path,
+            "does not have the map's shape; the run folder is inconsistent.",
+        ));
+    }
+    let tree: serde_json::Value = serde_json::from_str(&read(crate::segment::names::TREE_JSON)?)
+        .map_err(|e| {
+            Error::input(
+                &dir.join(crate::segment::names::TREE_JSON),
+                format!("is not a hierarchy file ({e})."),
+            )
+        })?;
+    let states = read_states(&read(crate::segment::names::CSV)?);
+    let mut structures = Vec::new();
+    for s in tree["structures"].as_array().cloned().unwrap_or_default() {
+        let id = s["id"].as_u64().unwrap_or(0) as u32;
+        structures.push(FigStructure {
+            id,
+            parent: s["parent"].as_u64().map(|p| p as u32),
+            is_leaf: s["children"]
+                .as_array()
+                .map(|c| c.is_empty())
+                .unwrap_or(true),
+            peak: (
+                s["peak_x"].as_u64().unwrap_or(0) as usize,
+                s["peak_y"].as_u64().unwrap_or(0) as usize,
+            ),
+            peak_value: s["peak"].as_f64().unwrap_or(f64::NAN),
+            merge_level: s["merge_level"].as_f64().unwrap_or(f64::NAN),
+            state: states.get(&id).cloned(),
+        });
+    }
+    Ok(SavedRun {
+        map,
+        labels,
+        structures,
+        distance_pc: run["physics"]["distance_pc"].as_f64(),
+    })
+}
+
+/// The `state` column of a catalogue, by id (empty if the column is absent).
+fn read_states(csv: &str) -> std::collections::HashMap<u32, String> {
+    let mut lines = csv.lines().filter(|l| !l.starts_with('#'));
+    let Some(header) = lines.next() else {
+        return Default::default();
+    };
+    let cols: Vec<&str> = header.split(',').collect();
+    let (Some(i), Some(s)) = (
+        cols.iter().position(|c| *c == "id"),
+        cols.iter().position(|c| *c == "state"),
+    ) else {
+        return Default::default();
+    };
+    lines
+        .filter_map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            Some((f.get(i)?.parse().ok()?, f.get(s)?.to_string()))
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scale_bars_are_round_and_about_a_fifth() {
+        assert_eq!(scale_bar_length(2.6), 0.5);
+        assert_eq!(scale_bar_length(0.6), 0.1);
+        assert_eq!(scale_bar_length(12.0), 2.0);
+    }
+}
