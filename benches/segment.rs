@@ -52,6 +52,7 @@ fn child_segment(path: &Path, out: &Path) {
             temperature_k: Some(cairn::score::Field::Uniform(12.0)),
             ..Default::default()
         },
+        figure: None,
     };
     let t = Instant::now();
     let s = cairn::segment::run(&map, &opts, &|_, _| {}).unwrap();

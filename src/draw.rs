@@ -119,10 +119,48 @@ fn unit_label(map: &Map) -> String {
     }
 }
 
+/// Centre and local pixel size (degrees) of the shown part of the map.
+fn shown_centre(
+    map: &Map,
+    region: Option<(usize, usize, usize, usize)>,
+) -> ((f64, f64), Option<f64>) {
+    let (ny, nx) = map.data.dim();
+    let c = match region {
+        Some((x0, y0, w, h)) => (x0 as f64 + w as f64 / 2.0, y0 as f64 + h as f64 / 2.0),
+        None => ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0),
+    };
+    let deg = map.wcs.as_ref().map(|w| {
+        let (sx, sy) = w.pixel_scale(c.0, c.1);
+        (sx * sy).sqrt()
+    });
+    (c, deg)
+}
+
+/// The beam in pixels at the centre of the shown part: (major, minor, PA east of north).
+pub fn beam_px(map: &Map, region: Option<(usize, usize, usize, usize)>) -> Option<(f64, f64, f64)> {
+    let (_, p) = shown_centre(map, region);
+    let (b, p) = (map.beam?, p?);
+    Some((b.major_deg / p, b.minor_deg / p, b.pa_deg))
+}
+
+/// The scale bar: its length in pixels and its text, a round number of parsecs near a fifth
+/// of the shown width (needs a distance and a WCS).
+pub fn scale_bar(
+    map: &Map,
+    distance_pc: Option<f64>,
+    region: Option<(usize, usize, usize, usize)>,
+) -> Option<(f64, String)> {
+    let (_, p) = shown_centre(map, region);
+    let (d, p) = (distance_pc?, p?);
+    let pc_per_px = d * p.to_radians();
+    let shown_width_px = region.map(|r| r.2).unwrap_or(map.nx()) as f64;
+    let len = scale_bar_length(shown_width_px * pc_per_px);
+    Some((len / pc_per_px, format!("{len} pc")))
+}
+
 /// Draws the overlay and the tree: (overlay PNG, overlay SVG, tree PNG, tree SVG).
 pub fn figures(input: &FigureInput, style: &Style) -> Result<(Vec<u8>, String, Vec<u8>, String)> {
     let map = input.map;
-    let (ny, nx) = map.data.dim();
     let leaf_ids: Vec<bool> = input.structures.iter().map(|s| s.is_leaf).collect();
     let leaf_labels = input.labels.mapv(|l| {
         if l >= 0 && leaf_ids.get(l as usize).copied().unwrap_or(false) {
@@ -168,32 +206,8 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<(Vec<u8>, String, V
         })
         .collect();
     let sky: Option<&dyn SkyAxes> = map.wcs.as_ref().map(|w| w as &dyn SkyAxes);
-    let (cx, cy) = match style.region {
-        Some((x0, y0, w, h)) => (x0 as f64 + w as f64 / 2.0, y0 as f64 + h as f64 / 2.0),
-        None => ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0),
-    };
-    let pixel_deg = map.wcs.as_ref().map(|w| {
-        let (sx, sy) = w.pixel_scale(cx, cy);
-        (sx * sy).sqrt()
-    });
-    let beam = match (map.beam, pixel_deg) {
-        (Some(b), Some(p)) => Some((b.major_deg / p, b.minor_deg / p, b.pa_deg)),
-        _ => None,
-    };
-    let shown_width_px = style.region.map(|r| r.2).unwrap_or(nx) as f64;
-    let scale_bar = match (input.distance_pc, pixel_deg) {
-        (Some(d), Some(p)) => {
-            let pc_per_px = d * p.to_radians();
-            let len = scale_bar_length(shown_width_px * pc_per_px);
-            let text = if len >= 1.0 {
-                format!("{len} pc")
-            } else {
-                format!("{len} pc")
-            };
-            Some((len / pc_per_px, text))
-        }
-        _ => None,
-    };
+    let beam = beam_px(map, style.region);
+    let scale_bar = scale_bar(map, input.distance_pc, style.region);
     let overlay = render::Overlay {
         map: map.data.view(),
         unit_label: unit_label(map),

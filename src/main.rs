@@ -25,14 +25,14 @@ struct Cli {
 #[derive(Subcommand)]
 enum Command {
     /// Say what a map is: shape, unit, sky frame, beam, wavelength, noise, suggested thresholds.
-    Inspect(InspectArgs),
+    Inspect(Box<InspectArgs>),
     /// Find the structures of a map: hierarchy, catalogue, label maps, tree file and run record.
     #[command(after_help = SEGMENT_HELP)]
-    Segment(SegmentArgs),
+    Segment(Box<SegmentArgs>),
     /// Draw the figures of a finished run again, with other style options.
-    Draw(DrawArgs),
+    Draw(Box<DrawArgs>),
     /// Make a synthetic map with known truth: turbulent background, cores, beam and noise.
-    Synth(SynthArgs),
+    Synth(Box<SynthArgs>),
 }
 
 const SEGMENT_HELP: &str = "Thresholds take units: --floor 5sigma or 2e21cm-2, --prominence 3sigma, --min-area 1beam, 400arcsec2 or 12px.

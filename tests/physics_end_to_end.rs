@@ -65,6 +65,7 @@ fn run(
             temperature_k: Some(Field::Uniform(15.0)),
             ..Context::default()
         },
+        figure: None,
     };
     cairn::segment::run(&map, &o, &|_, _| {}).unwrap();
     let text = std::fs::read_to_string(out.join("structures.csv")).unwrap();

@@ -20,5 +20,6 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
         force: true,
         command_line: vec!["fixture".into()],
         physics: Default::default(),
+        figure: None,
     }
 }
