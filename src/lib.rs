@@ -6,6 +6,7 @@
 //! and which papers it implements.
 
 pub mod angles;
+pub mod compare;
 pub mod draw;
 pub mod error;
 pub mod fits_write;

@@ -31,6 +31,8 @@ enum Command {
     Segment(Box<SegmentArgs>),
     /// Draw the figures of a finished run again, with other style options.
     Draw(Box<DrawArgs>),
+    /// Compare the core populations of finished runs: mass functions, tests, mass-size relations.
+    Compare(Box<CompareArgs>),
     /// Make a synthetic map with known truth: turbulent background, cores, beam and noise.
     Synth(Box<SynthArgs>),
 }
@@ -470,6 +472,37 @@ fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usiz
 }
 
 #[derive(Args)]
+struct CompareArgs {
+    /// Run folders (or their structures.csv files), two or more.
+    #[arg(required = true, num_args = 1..)]
+    runs: Vec<PathBuf>,
+    /// A name for each run, in order [default: the folder names].
+    #[arg(long, value_name = "NAME")]
+    label: Vec<String>,
+    /// Output folder for report.md, the CSV tables and the plots.
+    #[arg(short, long, value_name = "DIR")]
+    output: PathBuf,
+    /// Which mass to compare: mass_excess (above the merge level) or mass (whole footprint).
+    #[arg(long, default_value = "mass_excess", value_name = "COLUMN")]
+    mass_column: String,
+    /// Fix the lower mass of the power-law tail, such as 1Msun [default: minimise the KS distance].
+    #[arg(long, value_name = "MASS")]
+    mass_min: Option<String>,
+    /// Bootstrap resamples for the tail's uncertainty.
+    #[arg(long, default_value_t = 500)]
+    resamples: usize,
+    /// Seed of the bootstrap.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Width of the mass-function bins in dex.
+    #[arg(long, default_value_t = 0.2, value_name = "DEX")]
+    bin_width: f64,
+    /// Replace existing outputs.
+    #[arg(long)]
+    force: bool,
+}
+
+#[derive(Args)]
 struct DrawArgs {
     /// The folder of a finished `cairn segment` run.
     run: PathBuf,
@@ -875,6 +908,110 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     Ok(())
 }
 
+fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
+    use cairn::compare;
+    if a.runs.len() < 2 {
+        return Err(Error::usage("compare needs at least two runs."));
+    }
+    if !a.label.is_empty() && a.label.len() != a.runs.len() {
+        return Err(Error::usage(format!(
+            "{} labels were given for {} runs; give one --label per run or none.",
+            a.label.len(),
+            a.runs.len()
+        )));
+    }
+    if a.mass_column != "mass" && a.mass_column != "mass_excess" {
+        return Err(Error::usage(format!(
+            "--mass-column '{}' is not understood: give mass or mass_excess.",
+            a.mass_column
+        )));
+    }
+    if !(a.bin_width > 0.0 && a.bin_width <= 2.0) {
+        return Err(Error::usage(format!(
+            "--bin-width {} is outside (0, 2] dex.",
+            a.bin_width
+        )));
+    }
+    let mass_min = a
+        .mass_min
+        .as_deref()
+        .map(|t| {
+            units::parse_quantity(t, &[Dimension::Mass], "--mass-min").map(|q| q.si / units::M_SUN)
+        })
+        .transpose()
+        .map_err(Error::usage)?;
+    let mut pops = Vec::new();
+    for (i, r) in a.runs.iter().enumerate() {
+        let label = a.label.get(i).cloned().unwrap_or_else(|| {
+            let p = if r.is_dir() {
+                r.as_path()
+            } else {
+                r.parent().unwrap_or(r)
+            };
+            p.file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_else(|| format!("run{}", i + 1))
+        });
+        pops.push(compare::read_population(r, &label, &a.mass_column)?);
+    }
+    let o = compare::Options {
+        mass_min,
+        resamples: a.resamples,
+        seed: a.seed,
+        bin_dex: a.bin_width,
+    };
+    let c = compare::compare(&pops, &o);
+    let names = [
+        "report.md",
+        "populations.csv",
+        "mass_functions.csv",
+        "tests.csv",
+    ]
+    .map(String::from);
+    let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
+    output::write_bytes(
+        &outputs.temp("report.md"),
+        compare::report(&c, &pops, &o).as_bytes(),
+    )?;
+    output::write_bytes(
+        &outputs.temp("populations.csv"),
+        compare::summary_table(&c).to_csv().as_bytes(),
+    )?;
+    output::write_bytes(
+        &outputs.temp("mass_functions.csv"),
+        compare::mass_function_table(&c).to_csv().as_bytes(),
+    )?;
+    output::write_bytes(
+        &outputs.temp("tests.csv"),
+        compare::tests_table(&c).to_csv().as_bytes(),
+    )?;
+    let files = outputs.commit()?;
+    for s in &c.summaries {
+        let tail = s
+            .tail
+            .as_ref()
+            .map(|t| {
+                format!(
+                    "alpha {:.2} +/- {:.2} above {:.3} Msun",
+                    t.alpha,
+                    s.tail_bootstrap.map(|b| b.0).unwrap_or(t.alpha_error),
+                    t.xmin
+                )
+            })
+            .unwrap_or_else(|| "no tail fit".into());
+        println!("{}: {} leaves, {tail}", s.label, s.n);
+    }
+    for w in &c.warnings {
+        println!("warning: {w}");
+    }
+    if !quiet {
+        for f in files {
+            eprintln!("wrote {}", f.display());
+        }
+    }
+    Ok(())
+}
+
 fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     use cairn::segment::names;
     let run = cairn::draw::read_run(&a.run, a.map.as_deref())?;
@@ -933,6 +1070,7 @@ fn main() -> ExitCode {
         Command::Synth(a) => run_synth(a, cli.quiet),
         Command::Segment(a) => run_segment(a, cli.quiet),
         Command::Draw(a) => run_draw(a, cli.quiet),
+        Command::Compare(a) => run_compare(a, cli.quiet),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

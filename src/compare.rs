@@ -1,0 +1,901 @@
+//! `cairn compare`: core populations of several runs side by side, with the statistics of
+//! [`crate::populations`] and warnings when the comparison is not fair.
+//!
+//! Owns reading finished runs (a run folder, or a catalogue CSV with its `run.json` beside
+//! it), the choice of the population (the leaves: core candidates), the per-population
+//! summary (counts by state, mass function, power-law tail with bootstrap, log-normal fit,
+//! mass-size relation, median density), the pairwise tests (Kolmogorov-Smirnov on masses and
+//! sizes, slope differences) and the k-sample Anderson-Darling tests, the fairness checks, and
+//! the report (Markdown and CSV tables).
+//!
+//! Fairness (common practice): populations extracted at linear resolutions (beam FWHM times
+//! distance) that differ by more than a factor 1.5, or with mass sensitivities (the mass of one
+//! beam at the map noise) that differ by more than 1.5, or under different assumptions
+//! (opacity law, temperature, molecular weights) or thresholds (given in different ways), are
+//! flagged with the difference named. `cairn segment --common-resolution` is the remedy for
+//! resolution.
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, Result};
+use crate::populations::{self, Binning, Bootstrap, KsMethod, XminSearch};
+use crate::table::Table;
+
+/// One population read from a run.
+#[derive(Debug, Clone)]
+pub struct Population {
+    /// Its name in the report.
+    pub label: String,
+    /// Where it came from.
+    pub source: PathBuf,
+    /// Leaf masses (M_sun), in catalogue order; only positive finite values.
+    pub masses: Vec<f64>,
+    /// Leaf radii (pc) paired with `masses`.
+    pub radii: Vec<f64>,
+    /// Mean densities (cm^-3) of the same leaves.
+    pub densities: Vec<f64>,
+    /// Leaves by state.
+    pub states: std::collections::BTreeMap<String, usize>,
+    /// Leaves dropped for a missing or non-positive mass.
+    pub dropped: usize,
+    /// The run record (null if none was found).
+    pub run: serde_json::Value,
+}
+
+fn read_csv(path: &Path) -> Result<(Vec<String>, Vec<Vec<String>>)> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
+    let mut lines = text
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.trim().is_empty());
+    let header: Vec<String> = lines
+        .next()
+        .ok_or_else(|| Error::input(path, "is empty; give a catalogue written by cairn segment."))?
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    // Catalogue values never contain commas except in quoted text, which compare does not read.
+    let rows = lines
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    Ok((header, rows))
+}
+
+/// Reads a population from a run folder or a catalogue file. `mass_column` chooses the mass
+/// (`mass_excess` by default).
+pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Population> {
+    let (csv, run_path) = if path.is_dir() {
+        (
+            path.join(crate::segment::names::CSV),
+            path.join(crate::segment::names::RUN),
+        )
+    } else {
+        (
+            path.to_path_buf(),
+            path.with_file_name(crate::segment::names::RUN),
+        )
+    };
+    let (header, rows) = read_csv(&csv)?;
+    let col = |name: &str| header.iter().position(|h| h == name);
+    let (Some(kind), Some(mass), Some(radius)) = (col("kind"), col(mass_column), col("radius_pc"))
+    else {
+        return Err(Error::input(
+            &csv,
+            format!(
+                "has no '{mass_column}' or 'radius_pc' column: run cairn segment with --distance (and --temperature for emission maps) first."
+            ),
+        ));
+    };
+    let (state, density) = (col("state"), col("density"));
+    let mut p = Population {
+        label: label.to_string(),
+        source: path.to_path_buf(),
+        masses: vec![],
+        radii: vec![],
+        densities: vec![],
+        states: Default::default(),
+        dropped: 0,
+        run: serde_json::Value::Null,
+    };
+    for r in rows {
+        if r.get(kind).map(String::as_str) != Some("leaf") {
+            continue;
+        }
+        let num = |i: usize| {
+            r.get(i)
+                .and_then(|v| v.parse::<f64>().ok())
+                .unwrap_or(f64::NAN)
+        };
+        let (m, rad) = (num(mass), num(radius));
+        if let Some(s) = state.and_then(|i| r.get(i)) {
+            *p.states.entry(s.clone()).or_insert(0) += 1;
+        }
+        if m.is_finite() && m > 0.0 && rad.is_finite() && rad > 0.0 {
+            p.masses.push(m);
+            p.radii.push(rad);
+            p.densities.push(density.map(num).unwrap_or(f64::NAN));
+        } else {
+            p.dropped += 1;
+        }
+    }
+    if p.masses.len() < 3 {
+        return Err(Error::input(
+            &csv,
+            format!(
+                "holds {} leaves with a positive mass; a population needs at least 3.",
+                p.masses.len()
+            ),
+        ));
+    }
+    if let Ok(text) = std::fs::read_to_string(&run_path) {
+        p.run = serde_json::from_str(&text).unwrap_or(serde_json::Value::Null);
+    }
+    Ok(p)
+}
+
+/// What is measured of one population.
+#[derive(Debug, Clone)]
+pub struct Summary {
+    /// Name.
+    pub label: String,
+    /// Leaves used.
+    pub n: usize,
+    /// Leaves without a usable mass.
+    pub dropped: usize,
+    /// Leaves by state.
+    pub states: std::collections::BTreeMap<String, usize>,
+    /// Power-law tail fit.
+    pub tail: Option<populations::PowerLawFit>,
+    /// Its bootstrap.
+    pub tail_bootstrap: Option<(f64, f64)>,
+    /// Log-normal fit.
+    pub lognormal: Option<populations::LogNormalFit>,
+    /// Mass-size relation.
+    pub mass_size: Option<populations::LineFit>,
+    /// Median mass.
+    pub median_mass: f64,
+    /// Median density (cm^-3).
+    pub median_density: f64,
+    /// Differential mass function.
+    pub mass_function: Option<populations::MassFunction>,
+    /// Why a fit is missing.
+    pub notes: Vec<String>,
+}
+
+/// Options of a comparison.
+#[derive(Debug, Clone)]
+pub struct Options {
+    /// A fixed lower mass of the power-law tail (else by minimising the KS distance).
+    pub mass_min: Option<f64>,
+    /// Bootstrap resamples.
+    pub resamples: usize,
+    /// Seed of the bootstrap.
+    pub seed: u64,
+    /// Width of the mass-function bins in dex.
+    pub bin_dex: f64,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Options {
+            mass_min: None,
+            resamples: 500,
+            seed: 1,
+            bin_dex: 0.2,
+        }
+    }
+}
+
+/// Summarises one population.
+pub fn summarise(p: &Population, o: &Options) -> Summary {
+    let mut notes = vec![];
+    let search = XminSearch::default();
+    let tail = match populations::fit_power_law(&p.masses, o.mass_min, &search) {
+        Ok(t) => Some(t),
+        Err(e) => {
+            notes.push(format!("no power-law tail: {}", e.message));
+            None
+        }
+    };
+    let tail_bootstrap = tail.as_ref().and_then(|_| {
+        populations::bootstrap_power_law(
+            &p.masses,
+            o.mass_min,
+            &search,
+            &Bootstrap {
+                resamples: o.resamples,
+                seed: o.seed,
+            },
+        )
+        .ok()
+        .map(|b| (b.alpha_std, b.xmin_std))
+    });
+    let lognormal = populations::fit_lognormal(&p.masses).ok();
+    let mass_size = match populations::fit_mass_size(&p.radii, &p.masses) {
+        Ok(f) => Some(f),
+        Err(e) => {
+            notes.push(format!("no mass-size fit: {}", e.message));
+            None
+        }
+    };
+    let dens: Vec<f64> = p
+        .densities
+        .iter()
+        .copied()
+        .filter(|d| d.is_finite())
+        .collect();
+    Summary {
+        label: p.label.clone(),
+        n: p.masses.len(),
+        dropped: p.dropped,
+        states: p.states.clone(),
+        tail,
+        tail_bootstrap,
+        lognormal,
+        mass_size,
+        median_mass: populations::median(&p.masses).unwrap_or(f64::NAN),
+        median_density: populations::median(&dens).unwrap_or(f64::NAN),
+        mass_function: populations::mass_function(&p.masses, &Binning::WidthDex(o.bin_dex)).ok(),
+        notes,
+    }
+}
+
+/// A pairwise comparison.
+#[derive(Debug, Clone)]
+pub struct Pair {
+    /// First population.
+    pub a: String,
+    /// Second population.
+    pub b: String,
+    /// KS test of the masses.
+    pub ks_mass: Option<populations::KsTwoSample>,
+    /// KS test of the radii.
+    pub ks_radius: Option<populations::KsTwoSample>,
+    /// Difference of the tail exponents alpha (a - b) and its combined uncertainty.
+    pub alpha_difference: Option<populations::SlopeDifference>,
+    /// Difference of the mass-size slopes.
+    pub mass_size_difference: Option<populations::SlopeDifference>,
+}
+
+/// Fairness warnings between the populations, each naming the difference.
+pub fn fairness(pops: &[Population]) -> Vec<String> {
+    let mut w = vec![];
+    let get = |p: &Population, path: &[&str]| -> Option<serde_json::Value> {
+        let mut v = &p.run;
+        for k in path {
+            v = v.get(*k)?;
+        }
+        (!v.is_null()).then(|| v.clone())
+    };
+    for (k, what, ratio_limit) in [
+        (
+            &["physics", "linear_resolution_pc"][..],
+            "linear resolution (beam x distance)",
+            1.5,
+        ),
+        (
+            &["physics", "mass_sensitivity_msun"][..],
+            "mass sensitivity (one beam at the noise)",
+            1.5,
+        ),
+    ] {
+        let vals: Vec<(String, f64)> = pops
+            .iter()
+            .filter_map(|p| Some((p.label.clone(), get(p, k)?.as_f64()?)))
+            .collect();
+        if vals.len() < pops.len() {
+            w.push(format!(
+                "the {what} is unknown for some populations, so it cannot be compared"
+            ));
+            continue;
+        }
+        let (lo, hi) = vals.iter().fold((&vals[0], &vals[0]), |(lo, hi), v| {
+            (
+                if v.1 < lo.1 { v } else { lo },
+                if v.1 > hi.1 { v } else { hi },
+            )
+        });
+        if hi.1 > ratio_limit * lo.1 {
+            w.push(format!(
+                "the {what} differs by a factor {:.2}: {} has {:.4}, {} has {:.4}{}",
+                hi.1 / lo.1,
+                hi.0,
+                hi.1,
+                lo.0,
+                lo.1,
+                if what.starts_with("linear") {
+                    "; re-run segment with --common-resolution"
+                } else {
+                    ""
+                }
+            ));
+        }
+    }
+    for (k, what) in [
+        (&["physics", "opacity"][..], "dust opacity law"),
+        (&["physics", "temperature"][..], "temperature"),
+        (&["physics", "mu_h2"][..], "mean molecular weight"),
+        (&["parameters", "floor", "given"][..], "floor (as given)"),
+        (
+            &["parameters", "prominence", "given"][..],
+            "prominence (as given)",
+        ),
+        (
+            &["parameters", "min_area", "given"][..],
+            "minimum area (as given)",
+        ),
+    ] {
+        let vals: Vec<(String, String)> = pops
+            .iter()
+            .map(|p| {
+                (
+                    p.label.clone(),
+                    get(p, k)
+                        .map(|v| v.to_string())
+                        .unwrap_or_else(|| "unknown".into()),
+                )
+            })
+            .collect();
+        if vals.iter().any(|v| v.1 != vals[0].1) {
+            let list: Vec<String> = vals.iter().map(|(l, v)| format!("{l}: {v}")).collect();
+            w.push(format!("the {what} differs ({})", list.join("; ")));
+        }
+    }
+    w
+}
+
+/// The whole comparison.
+#[derive(Debug, Clone)]
+pub struct Comparison {
+    /// Per population.
+    pub summaries: Vec<Summary>,
+    /// Per pair.
+    pub pairs: Vec<Pair>,
+    /// k-sample Anderson-Darling on masses (all populations).
+    pub ad_mass: Option<populations::AndersonKSample>,
+    /// k-sample Anderson-Darling on radii.
+    pub ad_radius: Option<populations::AndersonKSample>,
+    /// Fairness warnings.
+    pub warnings: Vec<String>,
+}
+
+/// Compares populations.
+pub fn compare(pops: &[Population], o: &Options) -> Comparison {
+    use rayon::prelude::*;
+    let summaries: Vec<Summary> = pops.par_iter().map(|p| summarise(p, o)).collect();
+    let mut pairs = vec![];
+    for i in 0..pops.len() {
+        for j in i + 1..pops.len() {
+            let (a, b) = (&pops[i], &pops[j]);
+            let (sa, sb) = (&summaries[i], &summaries[j]);
+            let alpha_difference = match (&sa.tail, &sb.tail) {
+                (Some(x), Some(y)) => {
+                    let ex = sa.tail_bootstrap.map(|t| t.0).unwrap_or(x.alpha_error);
+                    let ey = sb.tail_bootstrap.map(|t| t.0).unwrap_or(y.alpha_error);
+                    populations::slope_difference((x.alpha, ex), (y.alpha, ey)).ok()
+                }
+                _ => None,
+            };
+            let mass_size_difference = match (&sa.mass_size, &sb.mass_size) {
+                (Some(x), Some(y)) => populations::slope_difference(
+                    (x.slope, x.slope_error),
+                    (y.slope, y.slope_error),
+                )
+                .ok(),
+                _ => None,
+            };
+            pairs.push(Pair {
+                a: a.label.clone(),
+                b: b.label.clone(),
+                ks_mass: populations::ks_2samp(&a.masses, &b.masses, KsMethod::Auto).ok(),
+                ks_radius: populations::ks_2samp(&a.radii, &b.radii, KsMethod::Auto).ok(),
+                alpha_difference,
+                mass_size_difference,
+            });
+        }
+    }
+    let ms: Vec<&[f64]> = pops.iter().map(|p| p.masses.as_slice()).collect();
+    let rs: Vec<&[f64]> = pops.iter().map(|p| p.radii.as_slice()).collect();
+    Comparison {
+        summaries,
+        pairs,
+        ad_mass: (pops.len() >= 2)
+            .then(|| populations::anderson_ksamp(&ms).ok())
+            .flatten(),
+        ad_radius: (pops.len() >= 2)
+            .then(|| populations::anderson_ksamp(&rs).ok())
+            .flatten(),
+        warnings: fairness(pops),
+    }
+}
+
+fn f(x: f64) -> String {
+    if !x.is_finite() {
+        return "-".into();
+    }
+    let a = x.abs();
+    if a != 0.0 && !(1e-3..1e5).contains(&a) {
+        format!("{x:.3e}")
+    } else {
+        format!("{x:.3}")
+    }
+}
+
+/// The summary table (one row per population).
+pub fn summary_table(c: &Comparison) -> Table {
+    let mut t = Table {
+        name: "POPULATIONS".into(),
+        ..Default::default()
+    };
+    let s = &c.summaries;
+    let g = |h: &dyn Fn(&Summary) -> f64| s.iter().map(h).collect::<Vec<f64>>();
+    t.push_text(
+        "population",
+        "label",
+        s.iter().map(|x| x.label.clone()).collect(),
+    );
+    t.push_i64(
+        "n",
+        "",
+        "leaves with a positive mass",
+        s.iter().map(|x| x.n as i64).collect(),
+    );
+    for st in ["bound", "marginal", "unbound", "unknown"] {
+        t.push_i64(
+            &format!("n_{st}"),
+            "",
+            &format!("leaves in the state {st}"),
+            s.iter()
+                .map(|x| *x.states.get(st).unwrap_or(&0) as i64)
+                .collect(),
+        );
+    }
+    t.push_f64(
+        "alpha",
+        "",
+        "power-law exponent of dN/dM above mass_min (maximum likelihood)",
+        g(&|x| x.tail.as_ref().map(|t| t.alpha).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "alpha_err",
+        "",
+        "(alpha - 1)/sqrt(n_tail)",
+        g(&|x| x.tail.as_ref().map(|t| t.alpha_error).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "alpha_err_boot",
+        "",
+        "bootstrap standard deviation of alpha",
+        g(&|x| x.tail_bootstrap.map(|b| b.0).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "mass_min",
+        "solMass",
+        "lower mass of the tail",
+        g(&|x| x.tail.as_ref().map(|t| t.xmin).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "mass_min_err_boot",
+        "solMass",
+        "bootstrap standard deviation of mass_min",
+        g(&|x| x.tail_bootstrap.map(|b| b.1).unwrap_or(f64::NAN)),
+    );
+    t.push_i64(
+        "n_tail",
+        "",
+        "leaves above mass_min",
+        s.iter()
+            .map(|x| x.tail.as_ref().map(|t| t.n_tail as i64).unwrap_or(0))
+            .collect(),
+    );
+    t.push_f64(
+        "ks_distance_tail",
+        "",
+        "KS distance of the tail to the fitted law",
+        g(&|x| x.tail.as_ref().map(|t| t.ks_distance).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "lognormal_peak",
+        "solMass",
+        "exp(mu): peak of dN/dlogM of the log-normal fit",
+        g(&|x| {
+            x.lognormal
+                .as_ref()
+                .map(|l| l.peak_mass())
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "lognormal_mu",
+        "",
+        "mean of ln M",
+        g(&|x| x.lognormal.as_ref().map(|l| l.mu).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "lognormal_mu_err",
+        "",
+        "its uncertainty",
+        g(&|x| x.lognormal.as_ref().map(|l| l.mu_error).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "lognormal_sigma",
+        "",
+        "standard deviation of ln M",
+        g(&|x| x.lognormal.as_ref().map(|l| l.sigma).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "lognormal_sigma_err",
+        "",
+        "its uncertainty",
+        g(&|x| {
+            x.lognormal
+                .as_ref()
+                .map(|l| l.sigma_error)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "mass_size_slope",
+        "",
+        "b in log10 M = a + b log10 R",
+        g(&|x| x.mass_size.as_ref().map(|l| l.slope).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "mass_size_slope_err",
+        "",
+        "its standard error",
+        g(&|x| {
+            x.mass_size
+                .as_ref()
+                .map(|l| l.slope_error)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "mass_size_intercept",
+        "",
+        "a (M in solMass, R in pc)",
+        g(&|x| {
+            x.mass_size
+                .as_ref()
+                .map(|l| l.intercept)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "mass_size_scatter",
+        "dex",
+        "rms scatter of log10 M about the fit",
+        g(&|x| {
+            x.mass_size
+                .as_ref()
+                .map(|l| l.rms_scatter)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "median_mass",
+        "solMass",
+        "median leaf mass",
+        g(&|x| x.median_mass),
+    );
+    t.push_f64(
+        "median_density",
+        "cm-3",
+        "median mean n(H2)",
+        g(&|x| x.median_density),
+    );
+    t
+}
+
+/// The mass functions (one row per population and bin).
+pub fn mass_function_table(c: &Comparison) -> Table {
+    let mut t = Table {
+        name: "MASS_FUNCTIONS".into(),
+        ..Default::default()
+    };
+    let mut lab = vec![];
+    let (mut lo, mut hi, mut n, mut dn, mut err, mut l84, mut u84) =
+        (vec![], vec![], vec![], vec![], vec![], vec![], vec![]);
+    for s in &c.summaries {
+        for b in s.mass_function.iter().flat_map(|m| &m.bins) {
+            lab.push(s.label.clone());
+            lo.push(b.lo);
+            hi.push(b.hi);
+            n.push(b.count as i64);
+            dn.push(b.dn_dlogm);
+            err.push(b.error);
+            l84.push(b.lower_limit);
+            u84.push(b.upper_limit);
+        }
+    }
+    t.push_text("population", "label", lab);
+    t.push_f64("mass_lo", "solMass", "lower bin edge", lo);
+    t.push_f64("mass_hi", "solMass", "upper bin edge", hi);
+    t.push_i64("count", "", "leaves in the bin", n);
+    t.push_f64("dn_dlogm", "dex-1", "dN/dlog10 M", dn);
+    t.push_f64(
+        "dn_dlogm_err",
+        "dex-1",
+        "Poisson error sqrt(N) / bin width",
+        err,
+    );
+    t.push_f64(
+        "dn_dlogm_lo84",
+        "dex-1",
+        "lower 84% limit (Gehrels 1986)",
+        l84,
+    );
+    t.push_f64(
+        "dn_dlogm_hi84",
+        "dex-1",
+        "upper 84% limit (Gehrels 1986)",
+        u84,
+    );
+    t
+}
+
+/// The pairwise tests.
+pub fn tests_table(c: &Comparison) -> Table {
+    let mut t = Table {
+        name: "TESTS".into(),
+        ..Default::default()
+    };
+    let p = &c.pairs;
+    let g = |h: &dyn Fn(&Pair) -> f64| p.iter().map(h).collect::<Vec<f64>>();
+    t.push_text(
+        "a",
+        "first population",
+        p.iter().map(|x| x.a.clone()).collect(),
+    );
+    t.push_text(
+        "b",
+        "second population",
+        p.iter().map(|x| x.b.clone()).collect(),
+    );
+    t.push_f64(
+        "ks_mass_d",
+        "",
+        "two-sample KS statistic on masses",
+        g(&|x| x.ks_mass.as_ref().map(|k| k.statistic).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "ks_mass_p",
+        "",
+        "its p-value",
+        g(&|x| x.ks_mass.as_ref().map(|k| k.pvalue).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "ks_radius_d",
+        "",
+        "two-sample KS statistic on radii",
+        g(&|x| {
+            x.ks_radius
+                .as_ref()
+                .map(|k| k.statistic)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "ks_radius_p",
+        "",
+        "its p-value",
+        g(&|x| x.ks_radius.as_ref().map(|k| k.pvalue).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "alpha_diff",
+        "",
+        "alpha(a) - alpha(b)",
+        g(&|x| {
+            x.alpha_difference
+                .as_ref()
+                .map(|d| d.difference)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "alpha_diff_err",
+        "",
+        "combined uncertainty (bootstrap where available)",
+        g(&|x| {
+            x.alpha_difference
+                .as_ref()
+                .map(|d| d.error)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "alpha_diff_sigma",
+        "",
+        "difference in units of its uncertainty",
+        g(&|x| {
+            x.alpha_difference
+                .as_ref()
+                .map(|d| d.significance)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "mass_size_diff",
+        "",
+        "mass-size slope(a) - slope(b)",
+        g(&|x| {
+            x.mass_size_difference
+                .as_ref()
+                .map(|d| d.difference)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "mass_size_diff_sigma",
+        "",
+        "in units of its uncertainty",
+        g(&|x| {
+            x.mass_size_difference
+                .as_ref()
+                .map(|d| d.significance)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t
+}
+
+/// The Markdown report.
+pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
+    let mut s = String::new();
+    let _ = writeln!(s, "# Core populations compared\n");
+    let _ = writeln!(
+        s,
+        "Written by cairn {}. Leaves (structures without children) are the cores; masses are `mass_excess` unless chosen otherwise.\n",
+        env!("CARGO_PKG_VERSION")
+    );
+    let _ = writeln!(
+        s,
+        "| population | source | leaves | bound | marginal | unbound | median mass [Msun] | median n(H2) [cm-3] |"
+    );
+    let _ = writeln!(s, "| --- | --- | --- | --- | --- | --- | --- | --- |");
+    for (x, p) in c.summaries.iter().zip(pops) {
+        let st = |k: &str| x.states.get(k).copied().unwrap_or(0);
+        let _ = writeln!(
+            s,
+            "| {} | `{}` | {} | {} | {} | {} | {} | {} |",
+            x.label,
+            p.source.display(),
+            x.n,
+            st("bound"),
+            st("marginal"),
+            st("unbound"),
+            f(x.median_mass),
+            f(x.median_density)
+        );
+    }
+    let _ = writeln!(s, "\n## Mass functions\n");
+    let _ = writeln!(
+        s,
+        "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood mean and width of ln M.\n",
+        match o.mass_min {
+            Some(m) => format!("fixed at {m} Msun"),
+            None => "chosen by minimising the KS distance".into(),
+        },
+        o.resamples,
+        o.seed
+    );
+    let _ = writeln!(
+        s,
+        "| population | alpha | +/- (analytic) | +/- (bootstrap) | mass_min [Msun] | n_tail | log-normal peak [Msun] | sigma(ln M) |"
+    );
+    let _ = writeln!(s, "| --- | --- | --- | --- | --- | --- | --- | --- |");
+    for x in &c.summaries {
+        let (a, ae, mm, nt) = x
+            .tail
+            .as_ref()
+            .map(|t| (t.alpha, t.alpha_error, t.xmin, t.n_tail))
+            .unwrap_or((f64::NAN, f64::NAN, f64::NAN, 0));
+        let be = x.tail_bootstrap.map(|b| b.0).unwrap_or(f64::NAN);
+        let (lp, ls) = x
+            .lognormal
+            .as_ref()
+            .map(|l| (l.peak_mass(), l.sigma))
+            .unwrap_or((f64::NAN, f64::NAN));
+        let _ = writeln!(
+            s,
+            "| {} | {} | {} | {} | {} | {} | {} | {} |",
+            x.label,
+            f(a),
+            f(ae),
+            f(be),
+            f(mm),
+            nt,
+            f(lp),
+            f(ls)
+        );
+    }
+    let _ = writeln!(
+        s,
+        "\n## Mass-size relation\n\nLeast squares log10 M = a + b log10 R (M in Msun, R the effective radius in pc), with the rms scatter of log10 M about the fit.\n"
+    );
+    let _ = writeln!(s, "| population | b | +/- | a | scatter [dex] |");
+    let _ = writeln!(s, "| --- | --- | --- | --- | --- |");
+    for x in &c.summaries {
+        if let Some(l) = &x.mass_size {
+            let _ = writeln!(
+                s,
+                "| {} | {} | {} | {} | {} |",
+                x.label,
+                f(l.slope),
+                f(l.slope_error),
+                f(l.intercept),
+                f(l.rms_scatter)
+            );
+        }
+    }
+    if !c.pairs.is_empty() {
+        let _ = writeln!(
+            s,
+            "\n## Between populations\n\nTwo-sample Kolmogorov-Smirnov tests (p-values as scipy.stats.ks_2samp computes them); differences of the tail exponents and mass-size slopes with their combined uncertainties.\n"
+        );
+        let _ = writeln!(
+            s,
+            "| a | b | KS masses D | p | KS radii D | p | alpha(a) - alpha(b) | sigma | slope difference | sigma |"
+        );
+        let _ = writeln!(
+            s,
+            "| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |"
+        );
+        for p in &c.pairs {
+            let k = |x: &Option<populations::KsTwoSample>| {
+                x.as_ref()
+                    .map(|k| (f(k.statistic), f(k.pvalue)))
+                    .unwrap_or(("-".into(), "-".into()))
+            };
+            let d = |x: &Option<populations::SlopeDifference>| {
+                x.as_ref()
+                    .map(|d| (f(d.difference), f(d.significance)))
+                    .unwrap_or(("-".into(), "-".into()))
+            };
+            let (km, kr, ad, md) = (
+                k(&p.ks_mass),
+                k(&p.ks_radius),
+                d(&p.alpha_difference),
+                d(&p.mass_size_difference),
+            );
+            let _ = writeln!(
+                s,
+                "| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+                p.a, p.b, km.0, km.1, kr.0, kr.1, ad.0, ad.1, md.0, md.1
+            );
+        }
+        for (what, ad) in [("masses", &c.ad_mass), ("radii", &c.ad_radius)] {
+            if let Some(a) = ad {
+                let _ = writeln!(
+                    s,
+                    "\nk-sample Anderson-Darling test on {what} (Scholz & Stephens 1987, midrank): statistic {}, p-value {}{}.",
+                    f(a.statistic),
+                    f(a.pvalue),
+                    if a.pvalue_capped {
+                        " (capped to the tabulated range 0.001-0.25)"
+                    } else {
+                        ""
+                    }
+                );
+            }
+        }
+    }
+    let _ = writeln!(s, "\n## Fairness\n");
+    if c.warnings.is_empty() {
+        let _ = writeln!(
+            s,
+            "No difference in linear resolution, mass sensitivity, assumptions or thresholds was found."
+        );
+    } else {
+        for w in &c.warnings {
+            let _ = writeln!(s, "- warning: {w}.");
+        }
+    }
+    let _ = writeln!(
+        s,
+        "\nMasses carry factor-of-two systematics from dust opacity, temperature and distance; differences between clouds smaller than that need the same assumptions on both sides."
+    );
+    s
+}
