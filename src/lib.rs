@@ -20,6 +20,7 @@ pub mod output;
 pub mod physics;
 pub mod populations;
 pub mod render;
+pub mod resolution;
 pub mod score;
 pub mod segment;
 pub mod synth;

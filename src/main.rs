@@ -71,6 +71,10 @@ struct SegmentArgs {
     /// Catalogue leaves only (a plain core list).
     #[arg(long)]
     leaves_only: bool,
+    /// Smooth (and regrid) the map to this linear resolution before extraction, such as
+    /// 0.05pc (needs --distance and a beam), so clouds at different distances compare fairly.
+    #[arg(long, value_name = "LENGTH")]
+    common_resolution: Option<String>,
     /// Draw no figures (overlay.png/svg, tree.png/svg).
     #[arg(long)]
     no_figure: bool,
@@ -814,7 +818,31 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
 fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     use cairn::segment;
     let opts = a.read.load_options(true)?;
-    let m = map::load(&a.map, &opts)?;
+    let mut m = map::load(&a.map, &opts)?;
+    if let Some(r) = &a.common_resolution {
+        let res = units::parse_quantity(r, &[Dimension::Length], "--common-resolution")
+            .map_err(Error::usage)?
+            .si;
+        let d = a
+            .physics
+            .distance
+            .as_deref()
+            .ok_or_else(|| {
+                Error::usage(
+                    "--common-resolution needs --distance to turn the resolution into an angle.",
+                )
+            })
+            .and_then(|d| {
+                units::parse_quantity(d, &[Dimension::Length], "--distance").map_err(Error::usage)
+            })?
+            .si;
+        if a.read.noise.is_some() || a.read.noise_map.is_some() {
+            return Err(Error::usage(
+                "--common-resolution changes the noise, which is then estimated afresh: leave out --noise and --noise-map.",
+            ));
+        }
+        m = cairn::resolution::to_common_resolution(&m, res, d)?;
+    }
     if !quiet {
         for w in &m.warnings {
             eprintln!("warning: {w}");

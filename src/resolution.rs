@@ -1,0 +1,269 @@
+//! Bringing a map to a common linear resolution, so that clouds at different distances can be
+//! compared fairly (`cairn segment --common-resolution 0.05pc`).
+//!
+//! Owns the smoothing kernel, the convolution and the regridding:
+//! * the target is a circular Gaussian beam of FWHM theta_t = resolution / distance (small
+//!   angles); the kernel is the Gaussian whose covariance is the target's minus the map's beam
+//!   (Gaussians convolve by adding covariances, common practice), carried to pixel axes through
+//!   the local Jacobian of the projection at the map centre; a beam larger than the target in
+//!   any direction is refused;
+//! * the convolution is done by FFT on a zero-padded grid as a normalised convolution
+//!   (Knutsson & Westin 1993): missing pixels get no weight and stay missing;
+//! * units: intensive units (column density, extinction, MJy/sr, Jy/sr) keep their values'
+//!   meaning; Jy/beam values are multiplied by the ratio of the new to the old beam solid
+//!   angle; Jy/pixel values keep their per-pixel meaning;
+//! * regridding: when the target beam spans more than six pixels, blocks of k x k pixels are
+//!   averaged (summed for Jy/pixel), with k the largest integer keeping at least three pixels
+//!   per FWHM, and the WCS is scaled to match (CD or CDELT times k; CRPIX moved so the sky
+//!   position of every block centre is kept). Block averaging broadens the beam by the box's
+//!   variance, (k^2 - 1)/12 pixel^2 per axis, which the smoothing kernel leaves room for.
+
+use ndarray::Array2;
+use rustfft::{FftPlanner, num_complex::Complex};
+
+use crate::error::{Error, Result};
+use crate::header::Value;
+use crate::map::{Beam, Map};
+use crate::units::PixelUnit;
+
+/// A 2x2 symmetric matrix [[a, b], [b, c]].
+type Cov = (f64, f64, f64);
+
+/// Covariance (in degrees^2, axes east and north) of a Gaussian beam of FWHM major/minor at
+/// position angle `pa` east of north.
+fn beam_cov(major: f64, minor: f64, pa_deg: f64) -> Cov {
+    let k = 1.0 / (8.0 * std::f64::consts::LN_2);
+    let (sa, sb) = (major * major * k, minor * minor * k);
+    // Major axis direction: east component sin(pa), north component cos(pa).
+    let (s, c) = pa_deg.to_radians().sin_cos();
+    (
+        sa * s * s + sb * c * c,
+        (sa - sb) * s * c,
+        sa * c * c + sb * s * s,
+    )
+}
+
+fn convolve_fft(data: &Array2<f32>, cov_px: Cov) -> Array2<f32> {
+    let (ny, nx) = data.dim();
+    let (a, b, c) = cov_px;
+    let sigma_max = (0.5 * (a + c) + (0.25 * (a - c) * (a - c) + b * b).sqrt()).sqrt();
+    let pad = (4.0 * sigma_max).ceil() as usize + 1;
+    let (py, px) = (ny + 2 * pad, nx + 2 * pad);
+    let mut planner = FftPlanner::<f64>::new();
+    let (fx, fy) = (planner.plan_fft_forward(px), planner.plan_fft_forward(py));
+    let (ix, iy) = (planner.plan_fft_inverse(px), planner.plan_fft_inverse(py));
+    let fft2 =
+        |g: &mut Vec<Complex<f64>>, row: &dyn rustfft::Fft<f64>, col: &dyn rustfft::Fft<f64>| {
+            for r in g.chunks_mut(px) {
+                row.process(r);
+            }
+            let mut colbuf = vec![Complex::new(0.0, 0.0); py];
+            for x in 0..px {
+                for y in 0..py {
+                    colbuf[y] = g[y * px + x];
+                }
+                col.process(&mut colbuf);
+                for y in 0..py {
+                    g[y * px + x] = colbuf[y];
+                }
+            }
+        };
+    // Kernel sampled at pixel offsets, normalised to unit sum, centred at (0, 0) with wrap.
+    let det = a * c - b * b;
+    let (ia, ib, ic) = (c / det, -b / det, a / det);
+    let mut kern = vec![Complex::new(0.0, 0.0); px * py];
+    let mut total = 0.0;
+    let r = pad as i64;
+    for dy in -r..=r {
+        for dx in -r..=r {
+            let (x, y) = (dx as f64, dy as f64);
+            let v = (-0.5 * (ia * x * x + 2.0 * ib * x * y + ic * y * y)).exp();
+            let (xx, yy) = (
+                dx.rem_euclid(px as i64) as usize,
+                dy.rem_euclid(py as i64) as usize,
+            );
+            kern[yy * px + xx].re += v;
+            total += v;
+        }
+    }
+    for k in kern.iter_mut() {
+        k.re /= total;
+    }
+    fft2(&mut kern, fx.as_ref(), fy.as_ref());
+    let mut vals = vec![Complex::new(0.0, 0.0); px * py];
+    let mut wts = vec![Complex::new(0.0, 0.0); px * py];
+    for ((y, x), &v) in data.indexed_iter() {
+        if v.is_finite() {
+            vals[(y + pad) * px + x + pad].re = v as f64;
+            wts[(y + pad) * px + x + pad].re = 1.0;
+        }
+    }
+    fft2(&mut vals, fx.as_ref(), fy.as_ref());
+    fft2(&mut wts, fx.as_ref(), fy.as_ref());
+    for i in 0..px * py {
+        vals[i] *= kern[i];
+        wts[i] *= kern[i];
+    }
+    fft2(&mut vals, ix.as_ref(), iy.as_ref());
+    fft2(&mut wts, ix.as_ref(), iy.as_ref());
+    Array2::from_shape_fn((ny, nx), |(y, x)| {
+        if !data[(y, x)].is_finite() {
+            return f32::NAN;
+        }
+        let i = (y + pad) * px + x + pad;
+        (vals[i].re / wts[i].re) as f32
+    })
+}
+
+/// The map smoothed (and regridded) to a circular beam of `resolution_m` at `distance_m`.
+pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Result<Map> {
+    let path = &map.path;
+    let w = map.wcs.as_ref().ok_or_else(|| {
+        Error::input(
+            path,
+            "has no celestial WCS, so it cannot be brought to a linear resolution.",
+        )
+    })?;
+    let beam = map.beam.ok_or_else(|| {
+        Error::input(
+            path,
+            "has no beam; give --beam so the smoothing kernel can be found.",
+        )
+    })?;
+    let target_deg = (resolution_m / distance_m).to_degrees();
+    if target_deg < beam.major_deg * (1.0 - 1e-9) {
+        return Err(Error::usage(format!(
+            "--common-resolution asks for a beam of {:.2}\" at this distance, finer than the map's {:.2}\" beam; choose a coarser resolution.",
+            target_deg * 3600.0,
+            beam.major_deg * 3600.0
+        )));
+    }
+    let (cx, cy) = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
+    let j = crate::measure::local_jacobian(w, cx, cy).ok_or_else(|| {
+        Error::input(
+            path,
+            "has a WCS that cannot be evaluated at the map centre.",
+        )
+    })?;
+    // Sky covariance of the kernel (arcsec^2), then pixel covariance K = J^-1 S J^-T.
+    let bc = beam_cov(
+        beam.major_deg * 3600.0,
+        beam.minor_deg * 3600.0,
+        beam.pa_deg,
+    );
+    let t = target_deg * 3600.0;
+    let tc = beam_cov(t, t, 0.0);
+    let s = (tc.0 - bc.0, tc.1 - bc.1, tc.2 - bc.2);
+    // J maps pixel offsets to (east, north) arcsec: columns are the +x and +y steps.
+    let (j00, j01, j10, j11) = (j[0][0], j[1][0], j[0][1], j[1][1]);
+    let det = j00 * j11 - j01 * j10;
+    let (i00, i01, i10, i11) = (j11 / det, -j01 / det, -j10 / det, j00 / det);
+    let m = [[s.0, s.1], [s.1, s.2]];
+    let inv = [[i00, i01], [i10, i11]];
+    let mut tmp = [[0.0; 2]; 2];
+    for r in 0..2 {
+        for k in 0..2 {
+            tmp[r][k] = inv[r][0] * m[0][k] + inv[r][1] * m[1][k];
+        }
+    }
+    let mut kc = [[0.0; 2]; 2];
+    for r in 0..2 {
+        for k in 0..2 {
+            kc[r][k] = tmp[r][0] * inv[k][0] + tmp[r][1] * inv[k][1];
+        }
+    }
+    // Regridding by blocks of k x k pixels (see below) is itself a convolution with a box of
+    // variance (k^2 - 1)/12 pixel^2 per axis: the kernel leaves that much room.
+    let (sx, sy) = w.pixel_scale(cx, cy);
+    let per_fwhm = target_deg / (sx * sy).sqrt();
+    let k = if per_fwhm > 6.0 {
+        (per_fwhm / 3.0).floor() as usize
+    } else {
+        1
+    };
+    let boxvar = ((k * k) as f64 - 1.0) / 12.0;
+    let kcov = (
+        kc[0][0] - boxvar,
+        0.5 * (kc[0][1] + kc[1][0]),
+        kc[1][1] - boxvar,
+    );
+    let mut data = if kcov.0 > 1e-6 && kcov.2 > 1e-6 && kcov.0 * kcov.2 - kcov.1 * kcov.1 > 1e-9 {
+        convolve_fft(&map.data, kcov)
+    } else {
+        map.data.clone()
+    };
+    let new_beam = Beam {
+        major_deg: target_deg,
+        minor_deg: target_deg,
+        pa_deg: 0.0,
+    };
+    if let Some(PixelUnit::FluxPerBeam { .. }) = map.unit {
+        let f = (new_beam.solid_angle_sr() / beam.solid_angle_sr()) as f32;
+        data.mapv_inplace(|v| v * f);
+    }
+    let mut out = map.clone();
+    out.beam = Some(new_beam);
+    out.beam_source = Some(crate::map::Source::Option);
+    // Regrid by whole blocks keeping at least three pixels per FWHM.
+    if k >= 2 {
+        let sum = matches!(map.unit, Some(PixelUnit::FluxPerPixel { .. }));
+        let (ny, nx) = (map.ny() / k, map.nx() / k);
+        data = Array2::from_shape_fn((ny, nx), |(y, x)| {
+            let (mut s, mut n) = (0.0f64, 0usize);
+            for yy in y * k..(y + 1) * k {
+                for xx in x * k..(x + 1) * k {
+                    let v = data[(yy, xx)];
+                    if v.is_finite() {
+                        s += v as f64;
+                        n += 1;
+                    }
+                }
+            }
+            if n * 2 < k * k {
+                f32::NAN
+            } else if sum {
+                (s / n as f64 * (k * k) as f64) as f32
+            } else {
+                (s / n as f64) as f32
+            }
+        });
+        let mut h = map.header.clone();
+        for key in ["CD1_1", "CD1_2", "CD2_1", "CD2_2", "CDELT1", "CDELT2"] {
+            if let Some(v) = h.get_f64(key) {
+                h.set(key, Value::Float(v * k as f64), "");
+            }
+        }
+        for axis in [1, 2] {
+            let key = format!("CRPIX{axis}");
+            let v = h.get_f64(&key).unwrap_or(0.0);
+            // FITS pixel p (1-based) of the old grid falls at (p - 0.5) / k + 0.5 on the new.
+            h.set(&key, Value::Float((v - 0.5) / k as f64 + 0.5), "");
+        }
+        h.set("NAXIS1", Value::Int(nx as i64), "");
+        h.set("NAXIS2", Value::Int(ny as i64), "");
+        out.wcs = crate::wcs::Wcs::from_header(&h).map_err(|e| Error::internal(e.to_string()))?;
+        out.header = h;
+    }
+    let mut h = out.header.clone();
+    h.set(
+        "BMAJ",
+        Value::Float(target_deg),
+        "deg, after smoothing to a common resolution",
+    );
+    h.set("BMIN", Value::Float(target_deg), "deg");
+    h.set("BPA", Value::Float(0.0), "deg");
+    out.header = h;
+    out.data = data;
+    out.warnings.push(format!(
+        "smoothed to a {:.2}\" beam ({} pc at {} pc){}",
+        target_deg * 3600.0,
+        resolution_m / crate::physics::constants::PC,
+        distance_m / crate::physics::constants::PC,
+        if k >= 2 {
+            format!(" and regridded by {k} x {k} pixels")
+        } else {
+            String::new()
+        }
+    ));
+    Ok(out)
+}
