@@ -69,7 +69,10 @@ fn mass_function_plot() -> Plot {
         (0..=10)
             .map(|i| {
                 let m = 0.7 * 10f64.powf(i as f64 * 0.2);
-                (m, 0.4 * 400.0 * 1.3 * (m / 0.5).powf(-1.3))
+                (
+                    m,
+                    std::f64::consts::LN_10 * 400.0 * 1.3 * (m / 0.5).powf(-1.3),
+                )
             })
             .collect(),
     );

@@ -249,7 +249,7 @@ fn log_tick_values(lo: f64, hi: f64, max_labels: usize) -> Vec<TickValue> {
     let max_labels = max_labels.max(2);
     let compact = |e: i32| (-2..=3).contains(&e);
     if nd >= 2 {
-        let every = nd.div_ceil(max_labels).max(1) as i32;
+        let every = nd.div_ceil(max_labels + max_labels / 2).max(1) as i32;
         let all_compact = decades.iter().all(|&e| compact(e));
         let mut out = Vec::new();
         for e in e_lo..=e_hi {
@@ -373,18 +373,47 @@ fn check_range(r: (f64, f64), scale: AxisScale, which: &str) -> Result<(), Rende
     Ok(())
 }
 
-/// Every value the series put on one axis (x when `x`), for the automatic range.
+/// Every value the series put on one axis (x when `x`), for the automatic range: points that
+/// can be shown on both axes with their error bars, the outer edges of step lines, and the
+/// points of lines.
 fn data_values(p: &Plot, x: bool) -> Vec<f64> {
-    let mut v = Vec::new();
+    let ok = |v: f64, sc: AxisScale| v.is_finite() && (sc == AxisScale::Linear || v > 0.0);
+    let shown = |q: &(f64, f64)| ok(q.0, p.x_scale) && ok(q.1, p.y_scale);
     let pick = |q: &(f64, f64)| if x { q.0 } else { q.1 };
+    let mut v = Vec::new();
     for s in &p.series {
-        v.extend(s.points.iter().map(pick));
-        if let Some(l) = &s.line {
-            v.extend(l.iter().map(pick));
-        }
         let errs = if x { &s.x_errors } else { &s.y_errors };
-        if let Some(e) = errs {
-            v.extend(e.iter().flat_map(|&(a, b)| [a, b]));
+        for (k, q) in s.points.iter().enumerate() {
+            if !shown(q) {
+                continue;
+            }
+            v.push(pick(q));
+            if let Some(&(a, b)) = errs.as_ref().and_then(|e| e.get(k)) {
+                v.extend([a, b]);
+            }
+        }
+        if s.steps && x {
+            let xm = AxisMap::new(p.x_scale, 1.0, 10.0, 0.0, 1.0);
+            let mut ts: Vec<f64> = s
+                .points
+                .iter()
+                .filter(|q| shown(q))
+                .filter_map(|q| xm.t(q.0))
+                .collect();
+            ts.sort_by(f64::total_cmp);
+            if let (Some(&a), Some(&b)) = (ts.first(), ts.last()) {
+                let n = ts.len();
+                let (h0, h1) = if n == 1 {
+                    (0.5, 0.5)
+                } else {
+                    (0.5 * (ts[1] - ts[0]), 0.5 * (ts[n - 1] - ts[n - 2]))
+                };
+                let back = |t: f64| if xm.log { 10f64.powf(t) } else { t };
+                v.extend([back(a - h0), back(b + h1)]);
+            }
+        }
+        if let Some(l) = &s.line {
+            v.extend(l.iter().filter(|q| shown(q)).map(pick));
         }
     }
     v
@@ -460,8 +489,8 @@ fn layout(p: &Plot, width_px: u32, dpi: f64) -> Result<Layout, RenderError> {
     let w = width_px as f64;
     let inches = w / dpi;
     // About one labelled tick per 0.6 inch of axis.
-    let nx = ((inches * 0.8 / 0.6).floor() as usize).clamp(3, 10);
-    let ny = ((inches * 0.6 / 0.55).floor() as usize).clamp(3, 8);
+    let nx = ((inches * 0.8 / 0.55).floor() as usize).clamp(3, 10);
+    let ny = ((inches * 0.6 / 0.4).floor() as usize).clamp(3, 8);
     // First pass for the label widths, then the real frame.
     let y_lab_w = scale_ticks(p.y_scale, yr.0, yr.1, 1.0, 0.0, ny)
         .iter()
@@ -1086,7 +1115,8 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
     // Guides, under the data.
     let mut gg = Group::new("guides", "guides", None);
     let grey = Rgba(150, 150, 150, 255);
-    let mut guide_labels = Vec::new();
+    let mut guide_labels: Vec<(String, Vec<(f64, f64, bool)>)> = Vec::new();
+    let mut guide_samples: Vec<Vec<(f64, f64)>> = Vec::new();
     for (i, g) in p.guides.iter().enumerate() {
         let runs = polyline(&g.points, xm, ym, cut);
         let mut sm = Vec::new();
@@ -1100,10 +1130,18 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             class: format!("guide guide-{i}"),
             label: Some(text::plain(&g.label)),
         });
-        // The label goes at the last point of the guide that is inside the frame.
-        if let Some(&(x, y)) = sm.iter().rev().find(|&&(x, y)| inside(x, y, -0.5 * pt)) {
-            guide_labels.push((g.label.clone(), x, y));
+        // Places for the label: samples along the guide inside the frame, last first, with
+        // the local direction (rising to the right on the page or not).
+        let mut cands = Vec::new();
+        for j in (1..sm.len()).rev() {
+            let ((x0, y0), (x1, y1)) = (sm[j - 1], sm[j]);
+            if inside(x1, y1, -0.5 * pt) && (x1 - x0).abs() + (y1 - y0).abs() > 0.0 {
+                let rising = (y1 - y0) * (x1 - x0).signum() < 0.0;
+                cands.push((x1, y1, rising));
+            }
         }
+        guide_samples.push(sm);
+        guide_labels.push((g.label.clone(), cands));
     }
 
     // Series.
@@ -1124,7 +1162,6 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
         // Fitted line.
         if let Some(l) = &s.line {
             let runs = polyline(l, xm, ym, cut);
-            sample_runs(&runs, 0.3 * fs, &mut Vec::new());
             let mut sm = Vec::new();
             sample_runs(&runs, 0.3 * fs, &mut sm);
             samples.extend(sm.iter().map(|&q| (q, 1.0)));
@@ -1219,7 +1256,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                     color: colour,
                     width: lw,
                     dash: dash.clone(),
-                    round: false,
+                    round: true,
                 })],
                 true,
                 "steps",
@@ -1277,8 +1314,10 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             .map(|c| {
                 let b = corner_box(ax.frame, c, w, h, inset);
                 let mut score = cover(b, &samples, r);
-                for (_, x, y) in &guide_labels {
-                    if inside(*x, *y, 0.0) && cover(b, &[((*x, *y), 1.0)], 2.0 * fs) > 0.0 {
+                for (_, cands) in &guide_labels {
+                    if let Some(&(x, y, _)) = cands.first()
+                        && cover(b, &[((x, y), 1.0)], 2.0 * fs) > 0.0
+                    {
                         score += 0.5;
                     }
                 }
@@ -1365,16 +1404,73 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
         );
     }
 
-    // Guide labels: at the visible end, kept inside the frame, on a white halo.
-    for (label, x, y) in &guide_labels {
+    // Guide labels: near the visible end of each guide, on the open side of the line, clear
+    // of the data, the other guides, the legend, the notes and labels already placed.
+    let mut taken: Vec<(f64, f64, f64, f64)> = legend_box.into_iter().chain(notes_box).collect();
+    let cap_l = text::cap_height(lfs);
+    for (gi, (label, cands)) in guide_labels.iter().enumerate() {
         let w = text::width(label, lfs);
-        let (ha, tx) = if *x + 0.3 * fs + w > fx + fw - 0.3 * fs {
-            (1.0, (*x - 0.3 * fs).max(fx + 0.3 * fs + w))
-        } else {
-            (0.0, *x + 0.3 * fs)
-        };
-        let ty = (*y - 0.35 * fs).clamp(fy + 0.3 * fs + text::cap_height(lfs), fy + fh - 0.3 * fs);
-        gg.text(label, tx, ty, lfs, ha, 0.0, false, Some(0.25 * fs));
+        let mut others: Vec<((f64, f64), f64)> = samples
+            .iter()
+            .filter(|(_, wt)| *wt >= 0.5)
+            .copied()
+            .collect();
+        for (gj, sm) in guide_samples.iter().enumerate() {
+            if gj != gi {
+                others.extend(sm.iter().map(|&q| (q, 1.0)));
+            }
+        }
+        let mut best: Option<(f64, f64, f64, f64)> = None;
+        let mut best_score = f64::INFINITY;
+        // Each place offers both open sides of the line: above it first, then below.
+        let boxes = cands.iter().flat_map(|&(x, y, rising)| {
+            [false, true].map(|below| {
+                let base = if below {
+                    y + 0.3 * fs + cap_l
+                } else {
+                    y - 0.3 * fs
+                };
+                let bx = if rising != below {
+                    x - 0.2 * fs - w
+                } else {
+                    x + 0.2 * fs
+                };
+                (bx, base - cap_l, w, cap_l + 0.3 * lfs)
+            })
+        });
+        for b in boxes {
+            if b.0 < fx + 0.2 * fs
+                || b.0 + b.2 > fx + fw - 0.2 * fs
+                || b.1 < fy + 0.2 * fs
+                || b.1 + b.3 > fy + fh - 0.2 * fs
+            {
+                continue;
+            }
+            let mut score = cover(b, &others, 0.6 * r);
+            if taken.iter().any(|t| overlaps(*t, b)) {
+                score += 1e6;
+            }
+            if score < best_score {
+                best_score = score;
+                best = Some(b);
+                if score == 0.0 {
+                    break;
+                }
+            }
+        }
+        if let Some(b) = best {
+            gg.text(
+                label,
+                b.0,
+                b.1 + cap_l,
+                lfs,
+                0.0,
+                0.0,
+                false,
+                Some(0.25 * fs),
+            );
+            taken.push(b);
+        }
     }
 
     let mut lg = Group::new("legend", "legend", None);
@@ -1399,7 +1495,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                         color: state_colour(s.style),
                         width: lw,
                         dash: state_dash(s.style, lw),
-                        round: !s.steps,
+                        round: true,
                     })],
                     false,
                     "legend-sample",
