@@ -205,7 +205,7 @@ fn linear_tick_values(lo: f64, hi: f64, max_labels: usize) -> Vec<TickValue> {
     }
     let step = scaled(m, e);
     let big = lo.abs().max(hi.abs());
-    let sci = big >= 1e5 || big < 1e-3;
+    let sci = !(1e-3..1e5).contains(&big);
     let decimals = if e < 0 { (-e) as usize } else { 0 };
     let minor_div = if m == 2 { 4 } else { 5 };
     let k0 = (lo / step - 1e-9).ceil() as i64 - 1;
@@ -336,11 +336,11 @@ impl AxisMap {
             Some(v)
         }
     }
-    fn from_t(&self, t: f64) -> f64 {
+    fn at_t(&self, t: f64) -> f64 {
         self.start + (t - self.t0) / (self.t1 - self.t0) * (self.end - self.start)
     }
     fn pos(&self, v: f64) -> Option<f64> {
-        self.t(v).map(|t| self.from_t(t))
+        self.t(v).map(|t| self.at_t(t))
     }
 }
 
@@ -490,7 +490,7 @@ fn layout(p: &Plot, width_px: u32, dpi: f64) -> Result<Layout, RenderError> {
     let inches = w / dpi;
     // About one labelled tick per 0.6 inch of axis.
     let nx = ((inches * 0.8 / 0.55).floor() as usize).clamp(3, 10);
-    let ny = ((inches * 0.6 / 0.4).floor() as usize).clamp(3, 8);
+    let ny = ((inches * 0.6 / 0.33).floor() as usize).clamp(3, 8);
     // First pass for the label widths, then the real frame.
     let y_lab_w = scale_ticks(p.y_scale, yr.0, yr.1, 1.0, 0.0, ny)
         .iter()
@@ -834,12 +834,10 @@ fn clip_segment(
             }
         }
     }
-    (t0 <= t1).then(|| {
-        (
-            (a.0 + t0 * dx, a.1 + t0 * dy),
-            (a.0 + t1 * dx, a.1 + t1 * dy),
-        )
-    })
+    (t0 <= t1).then_some((
+        (a.0 + t0 * dx, a.1 + t0 * dy),
+        (a.0 + t1 * dx, a.1 + t1 * dy),
+    ))
 }
 
 /// Darker version of a colour (for error bars, which are thin).
@@ -1020,8 +1018,8 @@ fn step_pixels(pts: &[(f64, f64)], xm: &AxisMap, ym: &AxisMap) -> Vec<Option<(f6
         };
         match ym.pos(c[i].1) {
             Some(y) => {
-                out.push(Some((xm.from_t(left), y)));
-                out.push(Some((xm.from_t(right), y)));
+                out.push(Some((xm.at_t(left), y)));
+                out.push(Some((xm.at_t(right), y)));
                 prev_ok = true;
             }
             None => {
@@ -1050,6 +1048,12 @@ fn sample_runs(runs: &[Vec<(f64, f64)>], step: f64, out: &mut Vec<(f64, f64)>) {
     }
 }
 
+/// A rectangle: left, top, width, height.
+type Rect = (f64, f64, f64, f64);
+
+/// A point on a guide and whether the guide rises to the right there.
+type Place = (f64, f64, bool);
+
 /// A box of legend or notes in one of the frame's inner corners: (x, y, w, h).
 fn corner_box(
     frame: (f64, f64, f64, f64),
@@ -1059,7 +1063,7 @@ fn corner_box(
     inset: f64,
 ) -> (f64, f64, f64, f64) {
     let (fx, fy, fw, fh) = frame;
-    let x = if corner % 2 == 0 {
+    let x = if corner.is_multiple_of(2) {
         fx + fw - inset - w
     } else {
         fx + inset
@@ -1115,7 +1119,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
     // Guides, under the data.
     let mut gg = Group::new("guides", "guides", None);
     let grey = Rgba(150, 150, 150, 255);
-    let mut guide_labels: Vec<(String, Vec<(f64, f64, bool)>)> = Vec::new();
+    let mut guide_labels: Vec<(String, Vec<Place>)> = Vec::new();
     let mut guide_samples: Vec<Vec<(f64, f64)>> = Vec::new();
     for (i, g) in p.guides.iter().enumerate() {
         let runs = polyline(&g.points, xm, ym, cut);
@@ -1326,13 +1330,10 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                 }
                 (c, b, score)
             })
-            .fold(
-                None,
-                |acc: Option<(usize, (f64, f64, f64, f64), f64)>, c| match acc {
-                    Some(a) if a.2 <= c.2 => Some(a),
-                    _ => Some(c),
-                },
-            )
+            .fold(None, |acc: Option<(usize, Rect, f64)>, c| match acc {
+                Some(a) if a.2 <= c.2 => Some(a),
+                _ => Some(c),
+            })
             .map(|(_, b, _)| b)
             .expect("four corners")
     };
