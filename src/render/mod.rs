@@ -24,6 +24,7 @@
 pub mod axes;
 mod figure;
 pub mod outline;
+pub mod plot;
 pub mod raster;
 mod scene;
 mod text;

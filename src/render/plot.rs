@@ -1,0 +1,1607 @@
+//! Scientific x-y plots (for `cairn compare`): markers with error bars, fitted lines,
+//! histogram-like step lines, thin grey reference lines, a legend and notes, on linear or
+//! logarithmic axes, written as PNG or SVG.
+//!
+//! The inputs are plain data ([`Plot`], [`Series`], [`Guide`]). Each series is drawn in the
+//! Okabe & Ito colour of its `style` index (as states are in the map figure), with a marker
+//! shape of its own (circle, square, triangle, diamond, inverted triangle, pentagon, cross)
+//! and the line style of the same index (solid, dashed, dotted, dash-dot, long dash), so
+//! series stay apart in greyscale print and for readers with colour-vision deficiency.
+//!
+//! Axes carry ticks on all four sides, pointing inwards; labelled ticks sit at round values
+//! (1-2-5 steps on linear axes, decades on logarithmic ones with minor ticks at 2..9). The
+//! legend goes into the inner corner of the frame that covers the fewest drawn data, the notes
+//! into the emptiest corner left. Points, lines and error bars are clipped to the frame.
+//! Values that cannot be shown (not finite, or not positive on a logarithmic axis) are left
+//! out; a line breaks where it meets one.
+//!
+//! The SVG holds one `<g>` per series (`id="series-N"`, `class="series style-S"`, the legend
+//! text as `aria-label`) and one `<g id="guides">` with a path per guide, so the figure can be
+//! edited by hand. Both outputs are byte-identical from run to run.
+
+use super::RenderError;
+use super::axes::sci_label;
+use super::scene::{Item, Line, Paint, PathData, Rgba, Scene, Seg, num, xml_escape};
+use super::text;
+use super::{state_colour, state_dash};
+use std::fmt::Write as _;
+
+/// How values map to positions along an axis.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum AxisScale {
+    #[default]
+    Linear,
+    /// Logarithmic; values that are not positive are not drawn.
+    Log10,
+}
+
+/// One set of data.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Series {
+    /// Legend text (markup as in axis labels); empty leaves the series out of the legend.
+    pub label: String,
+    /// Index into the shared colours, marker shapes and line styles.
+    pub style: usize,
+    /// Drawn as markers, or as a step line when `steps` is set.
+    pub points: Vec<(f64, f64)>,
+    /// Lower and upper ends (absolute y values) of each point's error bar; one per point.
+    pub y_errors: Option<Vec<(f64, f64)>>,
+    /// Left and right ends (absolute x values) of each point's error bar; one per point.
+    pub x_errors: Option<Vec<(f64, f64)>>,
+    /// A polyline (e.g. a fitted power law) drawn with the style's line pattern.
+    pub line: Option<Vec<(f64, f64)>>,
+    /// Draw `points` as a histogram-like step line: each point is a bin centre, the bin edges
+    /// lie midway between neighbouring centres (midway in log10 on a logarithmic x axis).
+    pub steps: bool,
+}
+
+/// A thin grey reference line (e.g. constant column density), labelled at its visible end.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Guide {
+    pub label: String,
+    pub points: Vec<(f64, f64)>,
+}
+
+/// Everything drawn on an x-y plot.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Plot {
+    pub title: Option<String>,
+    /// Axis titles; `^{...}` writes exponents, `_{...}` indices, e.g. `"M [M_{sun}]"`.
+    pub x_label: String,
+    pub y_label: String,
+    pub x_scale: AxisScale,
+    pub y_scale: AxisScale,
+    /// Shown ranges; None sets them from the series (points, error bars, lines; not the
+    /// guides) with a margin of 4% of the span (of the log10 span on logarithmic axes).
+    pub x_range: Option<(f64, f64)>,
+    pub y_range: Option<(f64, f64)>,
+    pub series: Vec<Series>,
+    pub guides: Vec<Guide>,
+    /// Text lines written in a corner, e.g. fitted slopes.
+    pub notes: Vec<String>,
+}
+
+/// One tick mark of an axis.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlotTick {
+    pub value: f64,
+    /// Figure position in output pixels: x for the x axis, y (downwards) for the y axis.
+    pub position: f64,
+    /// Major ticks are longer; only they can carry a label.
+    pub major: bool,
+    /// Text under (x) or beside (y) the tick, with markup; None for unlabelled ticks.
+    pub label: Option<String>,
+}
+
+/// Where the frame and the ticks of a plot lie, in output pixels (origin top left).
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlotAxes {
+    pub width: u32,
+    pub height: u32,
+    /// The frame: left, top, width, height.
+    pub frame: (f64, f64, f64, f64),
+    pub x_range: (f64, f64),
+    pub y_range: (f64, f64),
+    pub x_ticks: Vec<PlotTick>,
+    pub y_ticks: Vec<PlotTick>,
+}
+
+/// Draws the plot as PNG bytes (RGB, resolution recorded), `width_px` wide; the height
+/// follows from the frame's 4:3 shape and the margins. Text is 9 pt at `dpi`.
+pub fn plot_png(p: &Plot, width_px: u32, dpi: f64) -> Result<Vec<u8>, RenderError> {
+    build(p, width_px, dpi)?.to_png()
+}
+
+/// Draws the plot as SVG text (see [`plot_png`]).
+pub fn plot_svg(p: &Plot, width_px: u32, dpi: f64) -> Result<String, RenderError> {
+    Ok(build(p, width_px, dpi)?.to_svg())
+}
+
+/// The frame, ranges and ticks the plot is drawn with.
+pub fn plot_axes(p: &Plot, width_px: u32, dpi: f64) -> Result<PlotAxes, RenderError> {
+    Ok(layout(p, width_px, dpi)?.axes)
+}
+
+/// Ticks for values `lo`..`hi` on an axis of the given scale drawn from figure position
+/// `start` (at `lo`) to `end` (at `hi`), with at most about `max_labels` labelled ticks.
+///
+/// Linear axes step by 1, 2 or 5 times a power of ten, with minor ticks between. Logarithmic
+/// axes put major ticks at decades (every second or more when there are many), minor ticks at
+/// 2..9 times them; when fewer than two decades are shown, 2 and 5 times a decade are labelled
+/// too, and when even that gives fewer than two labels the labelled ticks follow linear
+/// steps. Decades are written 0.01, 0.1, 1, 10, 100, 1000 when all labels fit that form,
+/// as 10^{n} otherwise.
+pub fn scale_ticks(
+    scale: AxisScale,
+    lo: f64,
+    hi: f64,
+    start: f64,
+    end: f64,
+    max_labels: usize,
+) -> Vec<PlotTick> {
+    if !(lo.is_finite() && hi.is_finite() && hi > lo) {
+        return Vec::new();
+    }
+    let vals = match scale {
+        AxisScale::Linear => linear_tick_values(lo, hi, max_labels),
+        AxisScale::Log10 if lo > 0.0 => log_tick_values(lo, hi, max_labels),
+        AxisScale::Log10 => Vec::new(),
+    };
+    let map = AxisMap::new(scale, lo, hi, start, end);
+    vals.into_iter()
+        .filter_map(|(value, major, label)| {
+            map.pos(value).map(|position| PlotTick {
+                value,
+                position,
+                major,
+                label,
+            })
+        })
+        .collect()
+}
+
+/// A value as `n / 10^-e` or `n * 10^e`, so round values stay as round as f64 allows.
+fn scaled(n: i64, e: i32) -> f64 {
+    if e >= 0 {
+        n as f64 * 10f64.powi(e)
+    } else {
+        n as f64 / 10f64.powi(-e)
+    }
+}
+
+/// A number in fixed notation with `decimals` places and a true minus sign.
+fn fixed(v: f64, decimals: usize) -> String {
+    let s = format!("{:.*}", decimals, v);
+    let s = if s
+        .trim_start_matches('-')
+        .chars()
+        .all(|c| c == '0' || c == '.')
+    {
+        s.trim_start_matches('-').to_string()
+    } else {
+        s
+    };
+    s.replace('-', "\u{2212}")
+}
+
+type TickValue = (f64, bool, Option<String>);
+
+fn linear_tick_values(lo: f64, hi: f64, max_labels: usize) -> Vec<TickValue> {
+    let n = max_labels.max(2) as f64;
+    let span = hi - lo;
+    let mut e = (span / n).log10().floor() as i32 - 1;
+    let mut m = 1i64;
+    // The smallest 1-2-5 step giving at most `n` labelled ticks.
+    'search: for _ in 0..8 {
+        for mm in [1i64, 2, 5] {
+            let step = scaled(mm, e);
+            let count = ((hi / step + 1e-9).floor() - (lo / step - 1e-9).ceil()) + 1.0;
+            if count <= n {
+                m = mm;
+                break 'search;
+            }
+        }
+        e += 1;
+    }
+    let step = scaled(m, e);
+    let big = lo.abs().max(hi.abs());
+    let sci = !(1e-3..1e5).contains(&big);
+    let decimals = if e < 0 { (-e) as usize } else { 0 };
+    let minor_div = if m == 2 { 4 } else { 5 };
+    let k0 = (lo / step - 1e-9).ceil() as i64 - 1;
+    let k1 = (hi / step + 1e-9).floor() as i64 + 1;
+    let mut out = Vec::new();
+    for k in k0..=k1 {
+        for j in 0..minor_div {
+            // Value (k * minor_div + j) * step / minor_div, kept as an integer times 10^e'.
+            let (num_, e2) = if minor_div == 5 {
+                ((k * minor_div + j) * m * 2, e - 1)
+            } else {
+                ((k * minor_div + j) * 5, e - 1)
+            };
+            let v = scaled(num_, e2);
+            if v < lo - 1e-9 * span || v > hi + 1e-9 * span {
+                continue;
+            }
+            if j == 0 {
+                let label = if sci {
+                    sci_label(k * m, e)
+                } else {
+                    fixed(v, decimals)
+                };
+                out.push((v, true, Some(label)));
+            } else {
+                out.push((v, false, None));
+            }
+        }
+    }
+    out
+}
+
+fn log_tick_values(lo: f64, hi: f64, max_labels: usize) -> Vec<TickValue> {
+    let l0 = lo.log10();
+    let l1 = hi.log10();
+    let e_lo = (l0 - 1e-9).floor() as i32;
+    let e_hi = (l1 + 1e-9).floor() as i32;
+    let inside = |v: f64| v >= lo * (1.0 - 1e-9) && v <= hi * (1.0 + 1e-9);
+    let decades: Vec<i32> = (e_lo..=e_hi).filter(|&e| inside(scaled(1, e))).collect();
+    let nd = decades.len();
+    let max_labels = max_labels.max(2);
+    let compact = |e: i32| (-2..=3).contains(&e);
+    if nd >= 2 {
+        let every = nd.div_ceil(max_labels + max_labels / 2).max(1) as i32;
+        let all_compact = decades.iter().all(|&e| compact(e));
+        let mut out = Vec::new();
+        for e in e_lo..=e_hi {
+            let v = scaled(1, e);
+            if inside(v) {
+                let label = (e.rem_euclid(every) == 0).then(|| {
+                    if all_compact {
+                        fixed(v, (-e).max(0) as usize)
+                    } else {
+                        format!("10^{{{}}}", e.to_string().replace('-', "\u{2212}"))
+                    }
+                });
+                out.push((v, true, label));
+            }
+            if every == 1 || nd <= 12 {
+                for m in 2..=9 {
+                    let v = scaled(m, e);
+                    if inside(v) {
+                        out.push((v, false, None));
+                    }
+                }
+            }
+        }
+        return out;
+    }
+    // Less than two decades: label 1, 2 and 5 times a decade.
+    let mut out = Vec::new();
+    let all_compact = (e_lo..=e_hi).all(compact);
+    let lab = |m: i64, e: i32| {
+        if all_compact {
+            fixed(scaled(m, e), (-e).max(0) as usize)
+        } else {
+            sci_label(m, e)
+        }
+    };
+    for e in e_lo..=e_hi {
+        for m in 1..=9 {
+            let v = scaled(m, e);
+            if inside(v) {
+                let major = m == 1 || m == 2 || m == 5;
+                out.push((v, major, major.then(|| lab(m, e))));
+            }
+        }
+    }
+    if out.iter().filter(|t| t.2.is_some()).count() >= 2 {
+        return out;
+    }
+    // Even narrower: round linear steps placed on the logarithmic axis.
+    linear_tick_values(lo, hi, max_labels.min(5))
+        .into_iter()
+        .filter(|t| t.0 > 0.0)
+        .collect()
+}
+
+/// Maps values of one axis to figure positions.
+#[derive(Debug, Clone, Copy)]
+struct AxisMap {
+    log: bool,
+    t0: f64,
+    t1: f64,
+    start: f64,
+    end: f64,
+}
+
+impl AxisMap {
+    fn new(scale: AxisScale, lo: f64, hi: f64, start: f64, end: f64) -> Self {
+        let log = scale == AxisScale::Log10;
+        let t = |v: f64| if log { v.log10() } else { v };
+        AxisMap {
+            log,
+            t0: t(lo),
+            t1: t(hi),
+            start,
+            end,
+        }
+    }
+    /// The transformed value (log10 on log axes); None when it cannot be shown.
+    fn t(&self, v: f64) -> Option<f64> {
+        if !v.is_finite() || (self.log && v <= 0.0) {
+            None
+        } else if self.log {
+            Some(v.log10())
+        } else {
+            Some(v)
+        }
+    }
+    fn at_t(&self, t: f64) -> f64 {
+        self.start + (t - self.t0) / (self.t1 - self.t0) * (self.end - self.start)
+    }
+    fn pos(&self, v: f64) -> Option<f64> {
+        self.t(v).map(|t| self.at_t(t))
+    }
+}
+
+/// Output geometry shared by the drawing and [`plot_axes`].
+struct Layout {
+    axes: PlotAxes,
+    xm: AxisMap,
+    ym: AxisMap,
+    pt: f64,
+    fs: f64,
+    lfs: f64,
+    gap: f64,
+    pad: f64,
+}
+
+fn check_range(r: (f64, f64), scale: AxisScale, which: &str) -> Result<(), RenderError> {
+    let ok = r.0.is_finite() && r.1.is_finite() && r.1 > r.0;
+    if !ok {
+        return Err(RenderError::BadStyle(format!(
+            "the {which} range {} to {} is not an increasing pair of finite numbers; give lower then upper",
+            r.0, r.1
+        )));
+    }
+    if scale == AxisScale::Log10 && r.0 <= 0.0 {
+        return Err(RenderError::BadStyle(format!(
+            "the {which} range starts at {}, but a logarithmic axis needs positive values; give a positive lower end",
+            r.0
+        )));
+    }
+    Ok(())
+}
+
+/// Every value the series put on one axis (x when `x`), for the automatic range: points that
+/// can be shown on both axes with their error bars, the outer edges of step lines, and the
+/// points of lines.
+fn data_values(p: &Plot, x: bool) -> Vec<f64> {
+    let ok = |v: f64, sc: AxisScale| v.is_finite() && (sc == AxisScale::Linear || v > 0.0);
+    let shown = |q: &(f64, f64)| ok(q.0, p.x_scale) && ok(q.1, p.y_scale);
+    let pick = |q: &(f64, f64)| if x { q.0 } else { q.1 };
+    let mut v = Vec::new();
+    for s in &p.series {
+        let errs = if x { &s.x_errors } else { &s.y_errors };
+        for (k, q) in s.points.iter().enumerate() {
+            if !shown(q) {
+                continue;
+            }
+            v.push(pick(q));
+            if let Some(&(a, b)) = errs.as_ref().and_then(|e| e.get(k)) {
+                v.extend([a, b]);
+            }
+        }
+        if s.steps && x {
+            let xm = AxisMap::new(p.x_scale, 1.0, 10.0, 0.0, 1.0);
+            let mut ts: Vec<f64> = s
+                .points
+                .iter()
+                .filter(|q| shown(q))
+                .filter_map(|q| xm.t(q.0))
+                .collect();
+            ts.sort_by(f64::total_cmp);
+            if let (Some(&a), Some(&b)) = (ts.first(), ts.last()) {
+                let n = ts.len();
+                let (h0, h1) = if n == 1 {
+                    (0.5, 0.5)
+                } else {
+                    (0.5 * (ts[1] - ts[0]), 0.5 * (ts[n - 1] - ts[n - 2]))
+                };
+                let back = |t: f64| if xm.log { 10f64.powf(t) } else { t };
+                v.extend([back(a - h0), back(b + h1)]);
+            }
+        }
+        if let Some(l) = &s.line {
+            v.extend(l.iter().filter(|q| shown(q)).map(pick));
+        }
+    }
+    v
+}
+
+fn auto_range(vals: &[f64], scale: AxisScale) -> (f64, f64) {
+    let log = scale == AxisScale::Log10;
+    let ts: Vec<f64> = vals
+        .iter()
+        .filter(|v| v.is_finite() && (!log || **v > 0.0))
+        .map(|&v| if log { v.log10() } else { v })
+        .collect();
+    let (mut a, mut b) = ts
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &t| {
+            (a.min(t), b.max(t))
+        });
+    if ts.is_empty() {
+        (a, b) = (0.0, 1.0);
+    } else if b - a <= 1e-12 * a.abs().max(1.0) {
+        let h = if log { 0.5 } else { (a.abs() * 0.1).max(0.5) };
+        (a, b) = (a - h, b + h);
+    } else {
+        let m = 0.04 * (b - a);
+        (a, b) = (a - m, b + m);
+    }
+    if log {
+        (10f64.powf(a), 10f64.powf(b))
+    } else {
+        (a, b)
+    }
+}
+
+fn layout(p: &Plot, width_px: u32, dpi: f64) -> Result<Layout, RenderError> {
+    if !(dpi.is_finite() && (30.0..=2400.0).contains(&dpi)) {
+        return Err(RenderError::BadStyle(format!(
+            "dpi must be between 30 and 2400, got {dpi}"
+        )));
+    }
+    for s in &p.series {
+        for (what, e) in [("y", &s.y_errors), ("x", &s.x_errors)] {
+            if let Some(e) = e
+                && e.len() != s.points.len()
+            {
+                return Err(RenderError::BadStyle(format!(
+                    "series \"{}\" has {} points but {} {what} error bars; give one per point",
+                    text::plain(&s.label),
+                    s.points.len(),
+                    e.len()
+                )));
+            }
+        }
+    }
+    let xr = match p.x_range {
+        Some(r) => {
+            check_range(r, p.x_scale, "x")?;
+            r
+        }
+        None => auto_range(&data_values(p, true), p.x_scale),
+    };
+    let yr = match p.y_range {
+        Some(r) => {
+            check_range(r, p.y_scale, "y")?;
+            r
+        }
+        None => auto_range(&data_values(p, false), p.y_scale),
+    };
+    let pt = dpi / 72.0;
+    let fs = 9.0 * pt;
+    let lfs = 0.9 * fs;
+    let pad = 0.6 * fs;
+    let gap = 0.45 * fs;
+    let w = width_px as f64;
+    let inches = w / dpi;
+    // About one labelled tick per 0.6 inch of axis.
+    let nx = ((inches * 0.8 / 0.55).floor() as usize).clamp(3, 10);
+    let ny = ((inches * 0.6 / 0.33).floor() as usize).clamp(3, 8);
+    // First pass for the label widths, then the real frame.
+    let y_lab_w = scale_ticks(p.y_scale, yr.0, yr.1, 1.0, 0.0, ny)
+        .iter()
+        .filter_map(|t| t.label.as_ref().map(|l| text::width(l, lfs)))
+        .fold(0.0, f64::max);
+    let x_last_w = scale_ticks(p.x_scale, xr.0, xr.1, 0.0, 1.0, nx)
+        .iter()
+        .filter(|t| t.label.is_some() && t.position > 0.97)
+        .filter_map(|t| t.label.as_ref().map(|l| text::width(l, lfs)))
+        .fold(0.0, f64::max);
+    let has_y_label = !p.y_label.is_empty();
+    let left = (pad + if has_y_label { 1.45 * fs + gap } else { 0.0 } + y_lab_w + gap).round();
+    let right = (pad + 0.5 * x_last_w).max(pad + 0.5 * fs).round();
+    let top = (pad
+        + if p.title.is_some() {
+            1.6 * fs
+        } else {
+            0.4 * fs
+        })
+    .round();
+    let bottom = (gap
+        + 1.3 * lfs
+        + if p.x_label.is_empty() {
+            0.0
+        } else {
+            gap + 1.45 * fs
+        }
+        + pad)
+        .round();
+    let pw = w - left - right;
+    if pw < 4.0 * fs {
+        return Err(RenderError::BadStyle(format!(
+            "a plot {width_px} pixels wide at {dpi} dpi leaves no room for the frame; make it wider or lower the dpi"
+        )));
+    }
+    let ph = (0.75 * pw).round();
+    let height = (top + ph + bottom).ceil() as u32;
+    let frame = (left, top, pw, ph);
+    let xm = AxisMap::new(p.x_scale, xr.0, xr.1, left, left + pw);
+    let ym = AxisMap::new(p.y_scale, yr.0, yr.1, top + ph, top);
+    let x_ticks = scale_ticks(p.x_scale, xr.0, xr.1, left, left + pw, nx);
+    let y_ticks = scale_ticks(p.y_scale, yr.0, yr.1, top + ph, top, ny);
+    Ok(Layout {
+        axes: PlotAxes {
+            width: width_px,
+            height,
+            frame,
+            x_range: xr,
+            y_range: yr,
+            x_ticks,
+            y_ticks,
+        },
+        xm,
+        ym,
+        pt,
+        fs,
+        lfs,
+        gap,
+        pad,
+    })
+}
+
+/// One painted path of the figure.
+struct Op {
+    d: PathData,
+    paints: Vec<Paint>,
+    clip: bool,
+    class: String,
+    label: Option<String>,
+}
+
+/// A named group of paths (one `<g>` in the SVG).
+struct Group {
+    id: String,
+    class: String,
+    label: Option<String>,
+    ops: Vec<Op>,
+}
+
+struct Figure {
+    width: u32,
+    height: u32,
+    dpi: f64,
+    frame: (f64, f64, f64, f64),
+    title: String,
+    groups: Vec<Group>,
+}
+
+impl Group {
+    fn new(id: &str, class: &str, label: Option<String>) -> Self {
+        Group {
+            id: id.to_string(),
+            class: class.to_string(),
+            label,
+            ops: Vec::new(),
+        }
+    }
+    fn path(&mut self, d: PathData, paints: Vec<Paint>, clip: bool, class: &str) {
+        if d.0.is_empty() {
+            return;
+        }
+        self.ops.push(Op {
+            d,
+            paints,
+            clip,
+            class: class.to_string(),
+            label: None,
+        });
+    }
+    /// Text as outlines; alignment as in the scene's text (`ha` 0 left .. 1 right, `va` 0
+    /// baseline .. 1 capital tops at y).
+    #[allow(clippy::too_many_arguments)]
+    fn text(
+        &mut self,
+        s: &str,
+        x: f64,
+        y: f64,
+        size: f64,
+        ha: f64,
+        va: f64,
+        rotate: bool,
+        halo: Option<f64>,
+    ) {
+        if s.is_empty() {
+            return;
+        }
+        let sh = text::shape(s, size);
+        let d = sh
+            .path
+            .placed(-ha * sh.width, va * sh.ascent, false)
+            .placed(x, y, rotate);
+        let mut paints = Vec::new();
+        if let Some(w) = halo {
+            paints.push(Paint::Stroke(Line {
+                color: Rgba(255, 255, 255, 255),
+                width: w,
+                dash: Vec::new(),
+                round: true,
+            }));
+        }
+        paints.push(Paint::Fill(Rgba::BLACK));
+        self.ops.push(Op {
+            d,
+            paints,
+            clip: false,
+            class: "text".into(),
+            label: Some(text::plain(s)),
+        });
+    }
+}
+
+impl Figure {
+    fn to_png(&self) -> Result<Vec<u8>, RenderError> {
+        let mut sc = Scene::new(self.width, self.height, self.dpi, &self.title);
+        sc.clip = Some(self.frame);
+        for g in &self.groups {
+            for op in &g.ops {
+                sc.items.push(Item::Path {
+                    d: op.d.clone(),
+                    paints: op.paints.clone(),
+                    clip: op.clip,
+                    id: None,
+                    class: op.class.clone(),
+                    label: None,
+                });
+            }
+        }
+        sc.to_png()
+    }
+
+    fn to_svg(&self) -> String {
+        let mut s = String::new();
+        let inch = |px: u32| num(px as f64 / self.dpi);
+        let _ = writeln!(
+            s,
+            "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<svg xmlns=\"http://www.w3.org/2000/svg\" \
+             version=\"1.1\" width=\"{}in\" height=\"{}in\" viewBox=\"0 0 {} {}\">",
+            inch(self.width),
+            inch(self.height),
+            self.width,
+            self.height
+        );
+        let _ = writeln!(s, "<title>{}</title>", xml_escape(&self.title));
+        let (x, y, w, h) = self.frame;
+        let _ = writeln!(
+            s,
+            "<defs><clipPath id=\"frame-clip\"><rect x=\"{}\" y=\"{}\" width=\"{}\" \
+             height=\"{}\"/></clipPath></defs>",
+            num(x),
+            num(y),
+            num(w),
+            num(h)
+        );
+        let _ = writeln!(
+            s,
+            "<rect x=\"0\" y=\"0\" width=\"{}\" height=\"{}\" fill=\"#FFFFFF\"/>",
+            self.width, self.height
+        );
+        for g in &self.groups {
+            let label = g
+                .label
+                .as_ref()
+                .map(|l| format!(" aria-label=\"{}\"", xml_escape(l)))
+                .unwrap_or_default();
+            let _ = writeln!(
+                s,
+                "<g id=\"{}\" class=\"{}\"{label}>",
+                xml_escape(&g.id),
+                xml_escape(&g.class)
+            );
+            for op in &g.ops {
+                let d = path_string(&op.d);
+                if d.is_empty() {
+                    continue;
+                }
+                let clip = if op.clip {
+                    " clip-path=\"url(#frame-clip)\""
+                } else {
+                    ""
+                };
+                let label = op
+                    .label
+                    .as_ref()
+                    .map(|l| format!(" aria-label=\"{}\"", xml_escape(l)))
+                    .unwrap_or_default();
+                // A fill with an edge is one element; any other painting (a halo under
+                // text) is one element per paint, in order.
+                let groups: Vec<Vec<&Paint>> = match op.paints.as_slice() {
+                    [f @ Paint::Fill(_), st @ Paint::Stroke(_)] => vec![vec![f, st]],
+                    ps => ps.iter().map(|p| vec![p]).collect(),
+                };
+                for ps in groups {
+                    let _ = writeln!(
+                        s,
+                        "<path class=\"{}\"{label}{clip} {} d=\"{d}\"/>",
+                        xml_escape(&op.class),
+                        paint_attrs(&ps)
+                    );
+                }
+            }
+            s.push_str("</g>\n");
+        }
+        s.push_str("</svg>\n");
+        s
+    }
+}
+
+fn paint_attrs(ps: &[&Paint]) -> String {
+    let mut a = String::new();
+    let fill = ps.iter().find_map(|p| match p {
+        Paint::Fill(c) => Some(*c),
+        _ => None,
+    });
+    let stroke = ps.iter().find_map(|p| match p {
+        Paint::Stroke(l) => Some(l),
+        _ => None,
+    });
+    match fill {
+        Some(c) => {
+            let _ = write!(a, "fill=\"{}\"", c.hex());
+            if c.3 != 255 {
+                let _ = write!(a, " fill-opacity=\"{}\"", num(c.3 as f64 / 255.0));
+            }
+        }
+        None => a.push_str("fill=\"none\""),
+    }
+    match stroke {
+        Some(l) => {
+            let _ = write!(
+                a,
+                " stroke=\"{}\" stroke-width=\"{}\"",
+                l.color.hex(),
+                num(l.width)
+            );
+            if l.color.3 != 255 {
+                let _ = write!(a, " stroke-opacity=\"{}\"", num(l.color.3 as f64 / 255.0));
+            }
+            if l.round {
+                a.push_str(" stroke-linecap=\"round\" stroke-linejoin=\"round\"");
+            } else {
+                a.push_str(" stroke-linejoin=\"miter\" stroke-miterlimit=\"4\"");
+            }
+            if !l.dash.is_empty() {
+                let d: Vec<String> = l.dash.iter().map(|&v| num(v)).collect();
+                let _ = write!(a, " stroke-dasharray=\"{}\"", d.join(" "));
+            }
+        }
+        None => a.push_str(" stroke=\"none\""),
+    }
+    a
+}
+
+fn path_string(d: &PathData) -> String {
+    let mut s = String::new();
+    for seg in &d.0 {
+        let _ = match *seg {
+            Seg::M(x, y) => write!(s, "M{} {}", num(x), num(y)),
+            Seg::L(x, y) => write!(s, "L{} {}", num(x), num(y)),
+            Seg::Q(a, b, x, y) => write!(s, "Q{} {} {} {}", num(a), num(b), num(x), num(y)),
+            Seg::C(a, b, c, e, x, y) => write!(
+                s,
+                "C{} {} {} {} {} {}",
+                num(a),
+                num(b),
+                num(c),
+                num(e),
+                num(x),
+                num(y)
+            ),
+            Seg::Z => write!(s, "Z"),
+        };
+    }
+    s
+}
+
+/// Cuts the segment a-b to the rectangle (x0, y0, x1, y1); None when it misses it.
+fn clip_segment(
+    a: (f64, f64),
+    b: (f64, f64),
+    r: (f64, f64, f64, f64),
+) -> Option<((f64, f64), (f64, f64))> {
+    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+    let mut t0 = 0.0f64;
+    let mut t1 = 1.0f64;
+    for (p, q) in [
+        (-dx, a.0 - r.0),
+        (dx, r.2 - a.0),
+        (-dy, a.1 - r.1),
+        (dy, r.3 - a.1),
+    ] {
+        if p == 0.0 {
+            if q < 0.0 {
+                return None;
+            }
+        } else {
+            let t = q / p;
+            if p < 0.0 {
+                t0 = t0.max(t);
+            } else {
+                t1 = t1.min(t);
+            }
+        }
+    }
+    (t0 <= t1).then_some((
+        (a.0 + t0 * dx, a.1 + t0 * dy),
+        (a.0 + t1 * dx, a.1 + t1 * dy),
+    ))
+}
+
+/// Darker version of a colour (for error bars, which are thin).
+fn darker(c: Rgba, f: f64) -> Rgba {
+    let k = |v: u8| (v as f64 * (1.0 - f)).round() as u8;
+    Rgba(k(c.0), k(c.1), k(c.2), c.3)
+}
+
+/// Name of the marker shape of style `i`.
+pub fn marker_shape(i: usize) -> &'static str {
+    [
+        "circle",
+        "square",
+        "triangle",
+        "diamond",
+        "inverted-triangle",
+        "pentagon",
+        "cross",
+    ][i % 7]
+}
+
+/// Adds the marker of style `i` with radius `r` centred at (x, y) to `d`.
+fn marker(d: &mut PathData, i: usize, x: f64, y: f64, r: f64) {
+    let poly = |d: &mut PathData, pts: &[(f64, f64)]| {
+        for (j, &(u, v)) in pts.iter().enumerate() {
+            if j == 0 {
+                d.move_to(x + u * r, y + v * r);
+            } else {
+                d.line_to(x + u * r, y + v * r);
+            }
+        }
+        d.close();
+    };
+    match i % 7 {
+        0 => {
+            let k = 0.552_284_75 * r;
+            d.move_to(x + r, y);
+            d.0.push(Seg::C(x + r, y + k, x + k, y + r, x, y + r));
+            d.0.push(Seg::C(x - k, y + r, x - r, y + k, x - r, y));
+            d.0.push(Seg::C(x - r, y - k, x - k, y - r, x, y - r));
+            d.0.push(Seg::C(x + k, y - r, x + r, y - k, x + r, y));
+            d.close();
+        }
+        1 => poly(
+            d,
+            &[(-0.85, -0.85), (0.85, -0.85), (0.85, 0.85), (-0.85, 0.85)],
+        ),
+        2 => poly(d, &[(0.0, -1.25), (1.1, 0.65), (-1.1, 0.65)]),
+        3 => poly(d, &[(0.0, -1.2), (1.0, 0.0), (0.0, 1.2), (-1.0, 0.0)]),
+        4 => poly(d, &[(0.0, 1.25), (-1.1, -0.65), (1.1, -0.65)]),
+        5 => {
+            let pts: Vec<(f64, f64)> = (0..5)
+                .map(|j| {
+                    let a = std::f64::consts::TAU * j as f64 / 5.0;
+                    (1.08 * a.sin(), -1.08 * a.cos())
+                })
+                .collect();
+            poly(d, &pts)
+        }
+        _ => {
+            let (a, b) = (0.38, 1.15);
+            poly(
+                d,
+                &[
+                    (-a, -b),
+                    (a, -b),
+                    (a, -a),
+                    (b, -a),
+                    (b, a),
+                    (a, a),
+                    (a, b),
+                    (-a, b),
+                    (-a, a),
+                    (-b, a),
+                    (-b, -a),
+                    (-a, -a),
+                ],
+            )
+        }
+    }
+}
+
+/// Pixel polylines of data points: broken where a point cannot be shown, cut to `r`.
+fn polyline(
+    pts: &[(f64, f64)],
+    xm: &AxisMap,
+    ym: &AxisMap,
+    r: (f64, f64, f64, f64),
+) -> Vec<Vec<(f64, f64)>> {
+    let px: Vec<Option<(f64, f64)>> = pts
+        .iter()
+        .map(|&(x, y)| Some((xm.pos(x)?, ym.pos(y)?)))
+        .collect();
+    pixel_runs(&px, r)
+}
+
+fn pixel_runs(px: &[Option<(f64, f64)>], r: (f64, f64, f64, f64)) -> Vec<Vec<(f64, f64)>> {
+    let mut runs: Vec<Vec<(f64, f64)>> = Vec::new();
+    let mut cur: Vec<(f64, f64)> = Vec::new();
+    for w in px.windows(2) {
+        match (w[0], w[1]) {
+            (Some(a), Some(b)) => match clip_segment(a, b, r) {
+                Some((c, d)) => {
+                    if cur.last() != Some(&c) {
+                        if !cur.is_empty() {
+                            runs.push(std::mem::take(&mut cur));
+                        }
+                        cur.push(c);
+                    }
+                    cur.push(d);
+                }
+                None => {
+                    if !cur.is_empty() {
+                        runs.push(std::mem::take(&mut cur));
+                    }
+                }
+            },
+            _ => {
+                if !cur.is_empty() {
+                    runs.push(std::mem::take(&mut cur));
+                }
+            }
+        }
+    }
+    if !cur.is_empty() {
+        runs.push(cur);
+    }
+    runs
+}
+
+fn runs_path(runs: &[Vec<(f64, f64)>]) -> PathData {
+    let mut d = PathData::new();
+    for run in runs {
+        for (j, &(x, y)) in run.iter().enumerate() {
+            if j == 0 {
+                d.move_to(x, y);
+            } else {
+                d.line_to(x, y);
+            }
+        }
+    }
+    d
+}
+
+/// The step outline of a binned series in pixels: horizontal at each value across its bin,
+/// vertical between neighbouring bins; broken at values that cannot be shown.
+fn step_pixels(pts: &[(f64, f64)], xm: &AxisMap, ym: &AxisMap) -> Vec<Option<(f64, f64)>> {
+    let mut c: Vec<(f64, f64)> = pts
+        .iter()
+        .filter_map(|&(x, y)| Some((xm.t(x)?, y)))
+        .collect();
+    c.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let n = c.len();
+    let mut out = Vec::new();
+    if n == 0 {
+        return out;
+    }
+    let half = |i: usize| -> f64 {
+        if n == 1 {
+            0.5
+        } else if i + 1 < n {
+            0.5 * (c[i + 1].0 - c[i].0)
+        } else {
+            0.5 * (c[i].0 - c[i - 1].0)
+        }
+    };
+    let mut prev_ok = false;
+    for i in 0..n {
+        let left = if i == 0 {
+            c[0].0 - half(0)
+        } else {
+            0.5 * (c[i - 1].0 + c[i].0)
+        };
+        let right = if i + 1 == n {
+            c[i].0 + half(i)
+        } else {
+            0.5 * (c[i].0 + c[i + 1].0)
+        };
+        match ym.pos(c[i].1) {
+            Some(y) => {
+                out.push(Some((xm.at_t(left), y)));
+                out.push(Some((xm.at_t(right), y)));
+                prev_ok = true;
+            }
+            None => {
+                if prev_ok {
+                    out.push(None);
+                }
+                prev_ok = false;
+            }
+        }
+    }
+    out
+}
+
+/// Points spaced about `step` pixels along the runs (for judging how full a corner is).
+fn sample_runs(runs: &[Vec<(f64, f64)>], step: f64, out: &mut Vec<(f64, f64)>) {
+    for run in runs {
+        for w in run.windows(2) {
+            let (a, b) = (w[0], w[1]);
+            let len = (b.0 - a.0).hypot(b.1 - a.1);
+            let n = ((len / step).ceil() as usize).clamp(1, 10_000);
+            for k in 0..=n {
+                let t = k as f64 / n as f64;
+                out.push((a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1)));
+            }
+        }
+    }
+}
+
+/// A rectangle: left, top, width, height.
+type Rect = (f64, f64, f64, f64);
+
+/// A point on a guide and whether the guide rises to the right there.
+type Place = (f64, f64, bool);
+
+/// A box of legend or notes in one of the frame's inner corners: (x, y, w, h).
+fn corner_box(
+    frame: (f64, f64, f64, f64),
+    corner: usize,
+    w: f64,
+    h: f64,
+    inset: f64,
+) -> (f64, f64, f64, f64) {
+    let (fx, fy, fw, fh) = frame;
+    let x = if corner.is_multiple_of(2) {
+        fx + fw - inset - w
+    } else {
+        fx + inset
+    };
+    let y = if corner < 2 {
+        fy + inset
+    } else {
+        fy + fh - inset - h
+    };
+    (x, y, w, h)
+}
+
+fn overlaps(a: (f64, f64, f64, f64), b: (f64, f64, f64, f64)) -> bool {
+    a.0 < b.0 + b.2 && b.0 < a.0 + a.2 && a.1 < b.1 + b.3 && b.1 < a.1 + a.3
+}
+
+/// How much drawn data a box covers: weighted samples inside it (grown by `margin`).
+fn cover(b: (f64, f64, f64, f64), samples: &[((f64, f64), f64)], margin: f64) -> f64 {
+    samples
+        .iter()
+        .filter(|((x, y), _)| {
+            *x >= b.0 - margin
+                && *x <= b.0 + b.2 + margin
+                && *y >= b.1 - margin
+                && *y <= b.1 + b.3 + margin
+        })
+        .map(|(_, w)| w)
+        .sum()
+}
+
+fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
+    let lay = layout(p, width_px, dpi)?;
+    let (pt, fs, lfs, gap, pad) = (lay.pt, lay.fs, lay.lfs, lay.gap, lay.pad);
+    let ax = &lay.axes;
+    let (fx, fy, fw, fh) = ax.frame;
+    let (xm, ym) = (&lay.xm, &lay.ym);
+    let title = p.title.as_ref().map(|t| text::plain(t)).unwrap_or_else(|| {
+        format!(
+            "{} against {}",
+            text::plain(&p.y_label),
+            text::plain(&p.x_label)
+        )
+    });
+    let mut groups = Vec::new();
+    // Lines may run a little past the frame so caps and joins are cut by the clip, not short.
+    let grow = 4.0 * pt;
+    let cut = (fx - grow, fy - grow, fx + fw + grow, fy + fh + grow);
+    let inside =
+        |x: f64, y: f64, m: f64| x >= fx - m && x <= fx + fw + m && y >= fy - m && y <= fy + fh + m;
+    // Weighted samples of everything drawn in the frame, for placing the legend and notes.
+    let mut samples: Vec<((f64, f64), f64)> = Vec::new();
+
+    // Guides, under the data.
+    let mut gg = Group::new("guides", "guides", None);
+    let grey = Rgba(150, 150, 150, 255);
+    let mut guide_labels: Vec<(String, Vec<Place>)> = Vec::new();
+    let mut guide_samples: Vec<Vec<(f64, f64)>> = Vec::new();
+    for (i, g) in p.guides.iter().enumerate() {
+        let runs = polyline(&g.points, xm, ym, cut);
+        let mut sm = Vec::new();
+        sample_runs(&runs, 0.3 * fs, &mut sm);
+        samples.extend(sm.iter().map(|&q| (q, 0.3)));
+        let d = runs_path(&runs);
+        gg.ops.push(Op {
+            d,
+            paints: vec![Paint::Stroke(Line::solid(grey, 0.6 * pt))],
+            clip: true,
+            class: format!("guide guide-{i}"),
+            label: Some(text::plain(&g.label)),
+        });
+        // Places for the label: samples along the guide inside the frame, last first, with
+        // the local direction (rising to the right on the page or not).
+        let mut cands = Vec::new();
+        for j in (1..sm.len()).rev() {
+            let ((x0, y0), (x1, y1)) = (sm[j - 1], sm[j]);
+            if inside(x1, y1, -0.5 * pt) && (x1 - x0).abs() + (y1 - y0).abs() > 0.0 {
+                let rising = (y1 - y0) * (x1 - x0).signum() < 0.0;
+                cands.push((x1, y1, rising));
+            }
+        }
+        guide_samples.push(sm);
+        guide_labels.push((g.label.clone(), cands));
+    }
+
+    // Series.
+    let mut series_groups = Vec::new();
+    let mut legend: Vec<(usize, bool, bool)> = Vec::new();
+    let r = 2.1 * pt;
+    let lw = 1.0 * pt;
+    for (si, s) in p.series.iter().enumerate() {
+        let colour = state_colour(s.style);
+        let dash = state_dash(s.style, lw);
+        let mut g = Group::new(
+            &format!("series-{si}"),
+            &format!("series style-{}", s.style),
+            (!s.label.is_empty()).then(|| text::plain(&s.label)),
+        );
+        let mut drew_line = false;
+        let mut drew_markers = false;
+        // Fitted line.
+        if let Some(l) = &s.line {
+            let runs = polyline(l, xm, ym, cut);
+            let mut sm = Vec::new();
+            sample_runs(&runs, 0.3 * fs, &mut sm);
+            samples.extend(sm.iter().map(|&q| (q, 1.0)));
+            if !runs.is_empty() {
+                drew_line = true;
+            }
+            g.path(
+                runs_path(&runs),
+                vec![Paint::Stroke(Line {
+                    color: colour,
+                    width: lw,
+                    dash: dash.clone(),
+                    round: true,
+                })],
+                true,
+                "fit",
+            );
+        }
+        // Error bars.
+        let eb_colour = darker(colour, 0.3);
+        let cap = 0.8 * r;
+        let mut eb = PathData::new();
+        let (y_lo_px, y_hi_px) = (fy + fh + grow, fy - grow);
+        let (x_lo_px, x_hi_px) = (fx - grow, fx + fw + grow);
+        for (k, &(x, y)) in s.points.iter().enumerate() {
+            let (Some(px), Some(py)) = (xm.pos(x), ym.pos(y)) else {
+                continue;
+            };
+            if let Some(ye) = &s.y_errors {
+                let (lo, hi) = ye[k];
+                if lo.is_finite() && hi.is_finite() && inside(px, py, f64::INFINITY) {
+                    // An end that cannot be shown (below zero on a log axis) runs off the
+                    // frame, without a cap.
+                    let a = ym.pos(lo);
+                    let b = ym.pos(hi);
+                    let ya = a.unwrap_or(y_lo_px).clamp(y_hi_px, y_lo_px);
+                    let yb = b.unwrap_or(y_lo_px).clamp(y_hi_px, y_lo_px);
+                    if px >= x_lo_px && px <= x_hi_px && (ya - yb).abs() > 0.0 {
+                        eb.move_to(px, ya);
+                        eb.line_to(px, yb);
+                        for (end, shown) in [(ya, a.is_some()), (yb, b.is_some())] {
+                            if shown && end < y_lo_px && end > y_hi_px {
+                                eb.move_to(px - cap, end);
+                                eb.line_to(px + cap, end);
+                            }
+                        }
+                        samples.push(((px, ya), 0.5));
+                        samples.push(((px, yb), 0.5));
+                    }
+                }
+            }
+            if let Some(xe) = &s.x_errors {
+                let (lo, hi) = xe[k];
+                if lo.is_finite() && hi.is_finite() {
+                    let a = xm.pos(lo);
+                    let b = xm.pos(hi);
+                    let xa = a.unwrap_or(x_lo_px).clamp(x_lo_px, x_hi_px);
+                    let xb = b.unwrap_or(x_lo_px).clamp(x_lo_px, x_hi_px);
+                    if py >= y_hi_px && py <= y_lo_px && (xa - xb).abs() > 0.0 {
+                        eb.move_to(xa, py);
+                        eb.line_to(xb, py);
+                        for (end, shown) in [(xa, a.is_some()), (xb, b.is_some())] {
+                            if shown && end > x_lo_px && end < x_hi_px {
+                                eb.move_to(end, py - cap);
+                                eb.line_to(end, py + cap);
+                            }
+                        }
+                        samples.push(((xa, py), 0.5));
+                        samples.push(((xb, py), 0.5));
+                    }
+                }
+            }
+        }
+        g.path(
+            eb,
+            vec![Paint::Stroke(Line::solid(eb_colour, 0.6 * pt))],
+            true,
+            "error-bars",
+        );
+        if s.steps {
+            let px = step_pixels(&s.points, xm, ym);
+            let runs = pixel_runs(&px, cut);
+            let mut sm = Vec::new();
+            sample_runs(&runs, 0.3 * fs, &mut sm);
+            samples.extend(sm.iter().map(|&q| (q, 1.0)));
+            if !runs.is_empty() {
+                drew_line = true;
+            }
+            g.path(
+                runs_path(&runs),
+                vec![Paint::Stroke(Line {
+                    color: colour,
+                    width: lw,
+                    dash: dash.clone(),
+                    round: true,
+                })],
+                true,
+                "steps",
+            );
+        } else {
+            let mut d = PathData::new();
+            for &(x, y) in &s.points {
+                if let (Some(px), Some(py)) = (xm.pos(x), ym.pos(y))
+                    && inside(px, py, 1.5 * r)
+                {
+                    marker(&mut d, s.style, px, py, r);
+                    samples.push(((px, py), 2.0));
+                    drew_markers = true;
+                }
+            }
+            g.path(
+                d,
+                vec![
+                    Paint::Fill(colour),
+                    Paint::Stroke(Line::solid(Rgba(0, 0, 0, 220), 0.45 * pt)),
+                ],
+                true,
+                &format!("markers {}", marker_shape(s.style)),
+            );
+        }
+        if !s.label.is_empty() && (drew_line || drew_markers) {
+            legend.push((si, drew_line, drew_markers));
+        }
+        series_groups.push(g);
+    }
+
+    // Legend and notes boxes in the emptiest corners.
+    let sample_w = 2.4 * fs;
+    let row_h = 1.4 * lfs;
+    let inner = 0.5 * fs;
+    let inset = 0.5 * fs;
+    let legend_w = legend
+        .iter()
+        .map(|&(si, _, _)| text::width(&p.series[si].label, lfs))
+        .fold(0.0, f64::max)
+        + sample_w
+        + gap
+        + 2.0 * inner;
+    let legend_h = legend.len() as f64 * row_h + 2.0 * inner - 0.4 * lfs;
+    let notes_w = p
+        .notes
+        .iter()
+        .map(|n| text::width(n, lfs))
+        .fold(0.0, f64::max)
+        + 2.0 * inner;
+    let notes_h = p.notes.len() as f64 * row_h + 2.0 * inner - 0.4 * lfs;
+    // Corners in order of preference: top right, top left, bottom right, bottom left.
+    let best = |w: f64, h: f64, avoid: Option<(f64, f64, f64, f64)>| {
+        (0..4)
+            .map(|c| {
+                let b = corner_box(ax.frame, c, w, h, inset);
+                let mut score = cover(b, &samples, r);
+                for (_, cands) in &guide_labels {
+                    if let Some(&(x, y, _)) = cands.first()
+                        && cover(b, &[((x, y), 1.0)], 2.0 * fs) > 0.0
+                    {
+                        score += 0.5;
+                    }
+                }
+                if avoid.is_some_and(|a| overlaps(a, b)) {
+                    score += 1e9;
+                }
+                (c, b, score)
+            })
+            .fold(None, |acc: Option<(usize, Rect, f64)>, c| match acc {
+                Some(a) if a.2 <= c.2 => Some(a),
+                _ => Some(c),
+            })
+            .map(|(_, b, _)| b)
+            .expect("four corners")
+    };
+    let legend_box = (!legend.is_empty()).then(|| best(legend_w, legend_h, None));
+    let notes_box = (!p.notes.is_empty()).then(|| best(notes_w, notes_h, legend_box));
+
+    // Frame, ticks and labels.
+    let mut fg = Group::new("axes", "axes", None);
+    let black = Line::solid(Rgba::BLACK, 0.6 * pt);
+    let mut d = PathData::rect(fx, fy, fw, fh);
+    let (maj, min) = (0.45 * fs, 0.25 * fs);
+    for t in &ax.x_ticks {
+        let l = if t.major { maj } else { min };
+        d.move_to(t.position, fy + fh);
+        d.line_to(t.position, fy + fh - l);
+        d.move_to(t.position, fy);
+        d.line_to(t.position, fy + l);
+    }
+    for t in &ax.y_ticks {
+        let l = if t.major { maj } else { min };
+        d.move_to(fx, t.position);
+        d.line_to(fx + l, t.position);
+        d.move_to(fx + fw, t.position);
+        d.line_to(fx + fw - l, t.position);
+    }
+    fg.path(d, vec![Paint::Stroke(black)], false, "frame");
+    let x_base = fy + fh + gap + 0.95 * lfs;
+    for t in &ax.x_ticks {
+        if let Some(l) = &t.label {
+            fg.text(l, t.position, x_base, lfs, 0.5, 0.0, false, None);
+        }
+    }
+    for t in &ax.y_ticks {
+        if let Some(l) = &t.label {
+            fg.text(l, fx - gap, t.position, lfs, 1.0, 0.5, false, None);
+        }
+    }
+    let xl_base = x_base + 0.45 * lfs + gap + text::cap_height(fs) + 0.3 * fs;
+    fg.text(
+        &p.x_label,
+        fx + fw / 2.0,
+        xl_base,
+        fs,
+        0.5,
+        0.0,
+        false,
+        None,
+    );
+    fg.text(
+        &p.y_label,
+        pad + 1.05 * fs,
+        fy + fh / 2.0,
+        fs,
+        0.5,
+        0.0,
+        true,
+        None,
+    );
+    if let Some(t) = &p.title {
+        fg.text(
+            t,
+            fx + fw / 2.0,
+            pad + text::cap_height(fs) + 0.2 * fs,
+            fs,
+            0.5,
+            0.0,
+            false,
+            None,
+        );
+    }
+
+    // Guide labels: near the visible end of each guide, on the open side of the line, clear
+    // of the data, the other guides, the legend, the notes and labels already placed.
+    let mut taken: Vec<(f64, f64, f64, f64)> = legend_box.into_iter().chain(notes_box).collect();
+    let cap_l = text::cap_height(lfs);
+    for (gi, (label, cands)) in guide_labels.iter().enumerate() {
+        let w = text::width(label, lfs);
+        let mut others: Vec<((f64, f64), f64)> = samples
+            .iter()
+            .filter(|(_, wt)| *wt >= 0.5)
+            .copied()
+            .collect();
+        for (gj, sm) in guide_samples.iter().enumerate() {
+            if gj != gi {
+                others.extend(sm.iter().map(|&q| (q, 1.0)));
+            }
+        }
+        let mut best: Option<(f64, f64, f64, f64)> = None;
+        let mut best_score = f64::INFINITY;
+        // Each place offers both open sides of the line: above it first, then below.
+        let boxes = cands.iter().flat_map(|&(x, y, rising)| {
+            [false, true].map(|below| {
+                let base = if below {
+                    y + 0.3 * fs + cap_l
+                } else {
+                    y - 0.3 * fs
+                };
+                let bx = if rising != below {
+                    x - 0.2 * fs - w
+                } else {
+                    x + 0.2 * fs
+                };
+                (bx, base - cap_l, w, cap_l + 0.3 * lfs)
+            })
+        });
+        for b in boxes {
+            if b.0 < fx + 0.2 * fs
+                || b.0 + b.2 > fx + fw - 0.2 * fs
+                || b.1 < fy + 0.2 * fs
+                || b.1 + b.3 > fy + fh - 0.2 * fs
+            {
+                continue;
+            }
+            let mut score = cover(b, &others, 0.6 * r);
+            if taken.iter().any(|t| overlaps(*t, b)) {
+                score += 1e6;
+            }
+            if score < best_score {
+                best_score = score;
+                best = Some(b);
+                if score == 0.0 {
+                    break;
+                }
+            }
+        }
+        if let Some(b) = best {
+            gg.text(
+                label,
+                b.0,
+                b.1 + cap_l,
+                lfs,
+                0.0,
+                0.0,
+                false,
+                Some(0.25 * fs),
+            );
+            taken.push(b);
+        }
+    }
+
+    let mut lg = Group::new("legend", "legend", None);
+    if let Some((bx, by, bw, bh)) = legend_box {
+        lg.path(
+            PathData::rect(bx, by, bw, bh),
+            vec![
+                Paint::Fill(Rgba(255, 255, 255, 235)),
+                Paint::Stroke(Line::solid(Rgba(120, 120, 120, 255), 0.4 * pt)),
+            ],
+            false,
+            "legend-box",
+        );
+        for (k, &(si, line, markers)) in legend.iter().enumerate() {
+            let s = &p.series[si];
+            let yc = by + inner + 0.5 * lfs * 0.73 + k as f64 * row_h;
+            let (x0, x1) = (bx + inner, bx + inner + sample_w);
+            if line {
+                lg.path(
+                    PathData::line(x0, yc, x1, yc),
+                    vec![Paint::Stroke(Line {
+                        color: state_colour(s.style),
+                        width: lw,
+                        dash: state_dash(s.style, lw),
+                        round: true,
+                    })],
+                    false,
+                    "legend-sample",
+                );
+            }
+            if markers {
+                let mut d = PathData::new();
+                marker(&mut d, s.style, 0.5 * (x0 + x1), yc, r);
+                lg.path(
+                    d,
+                    vec![
+                        Paint::Fill(state_colour(s.style)),
+                        Paint::Stroke(Line::solid(Rgba(0, 0, 0, 220), 0.45 * pt)),
+                    ],
+                    false,
+                    "legend-sample",
+                );
+            }
+            lg.text(&s.label, x1 + gap, yc, lfs, 0.0, 0.5, false, None);
+        }
+    }
+    let mut ng = Group::new("notes", "notes", None);
+    if let Some((bx, by, _, _)) = notes_box {
+        for (k, n) in p.notes.iter().enumerate() {
+            let yc = by + inner + 0.5 * lfs * 0.73 + k as f64 * row_h;
+            ng.text(n, bx + inner, yc, lfs, 0.0, 0.5, false, Some(0.3 * fs));
+        }
+    }
+
+    groups.push(gg);
+    groups.extend(series_groups);
+    groups.push(fg);
+    groups.push(lg);
+    groups.push(ng);
+    Ok(Figure {
+        width: ax.width,
+        height: ax.height,
+        dpi,
+        frame: ax.frame,
+        title,
+        groups,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn labels(t: &[PlotTick]) -> Vec<String> {
+        t.iter().filter_map(|t| t.label.clone()).collect()
+    }
+
+    #[test]
+    fn linear_ticks_step_by_one_two_five() {
+        let t = scale_ticks(AxisScale::Linear, 0.0, 1.0, 0.0, 100.0, 6);
+        assert_eq!(labels(&t), ["0.0", "0.2", "0.4", "0.6", "0.8", "1.0"]);
+        let t = scale_ticks(AxisScale::Linear, -3.3, 47.0, 0.0, 100.0, 6);
+        assert_eq!(labels(&t), ["0", "10", "20", "30", "40"]);
+        assert!(t.iter().any(|t| !t.major));
+        let t = scale_ticks(AxisScale::Linear, -0.5, 0.5, 0.0, 100.0, 5);
+        assert_eq!(
+            labels(&t),
+            ["\u{2212}0.4", "\u{2212}0.2", "0.0", "0.2", "0.4"]
+        );
+    }
+
+    #[test]
+    fn log_ticks_label_decades() {
+        let t = scale_ticks(AxisScale::Log10, 0.05, 200.0, 0.0, 100.0, 8);
+        assert_eq!(labels(&t), ["0.1", "1", "10", "100"]);
+        assert_eq!(t.iter().filter(|t| !t.major).count(), 5 + 8 + 8 + 8 + 1);
+        let t = scale_ticks(AxisScale::Log10, 3e19, 2e23, 0.0, 100.0, 8);
+        assert_eq!(labels(&t), ["10^{20}", "10^{21}", "10^{22}", "10^{23}"]);
+        let t = scale_ticks(AxisScale::Log10, 1e-8, 1e8, 0.0, 100.0, 5);
+        assert!(labels(&t).len() <= 5 && labels(&t).len() >= 3);
+        // Less than two decades: 2 and 5 labelled too.
+        let t = scale_ticks(AxisScale::Log10, 1.5, 30.0, 0.0, 100.0, 6);
+        assert_eq!(labels(&t), ["2", "5", "10", "20"]);
+        // Narrower still: linear steps.
+        let t = scale_ticks(AxisScale::Log10, 3.0, 4.5, 0.0, 100.0, 6);
+        assert!(labels(&t).len() >= 2);
+    }
+
+    #[test]
+    fn step_outline_spans_bins() {
+        let xm = AxisMap::new(AxisScale::Linear, 0.0, 4.0, 0.0, 4.0);
+        let ym = AxisMap::new(AxisScale::Log10, 1.0, 100.0, 2.0, 0.0);
+        let px = step_pixels(&[(1.0, 10.0), (2.0, 0.0), (3.0, 100.0)], &xm, &ym);
+        assert_eq!(
+            px,
+            vec![
+                Some((0.5, 1.0)),
+                Some((1.5, 1.0)),
+                None,
+                Some((2.5, 0.0)),
+                Some((3.5, 0.0))
+            ]
+        );
+    }
+
+    #[test]
+    fn segments_are_cut_to_the_frame() {
+        let r = (0.0, 0.0, 10.0, 10.0);
+        let c = clip_segment((-5.0, 5.0), (15.0, 5.0), r).unwrap();
+        assert_eq!(c, ((0.0, 5.0), (10.0, 5.0)));
+        assert!(clip_segment((-5.0, -5.0), (-1.0, 20.0), r).is_none());
+    }
+}
