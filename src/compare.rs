@@ -899,3 +899,127 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     );
     s
 }
+
+/// The two plots of a comparison: mass functions (with fitted tails) and the mass-size
+/// diagram (with lines of constant column density and the critical Bonnor-Ebert mass at
+/// `temperatures_k`).
+pub fn plots(
+    c: &Comparison,
+    pops: &[Population],
+    temperatures_k: &[f64],
+) -> (crate::render::plot::Plot, crate::render::plot::Plot) {
+    use crate::physics::constants::{G, K_B, M_H, M_SUN, PC};
+    use crate::render::plot::{AxisScale, Guide, Plot, Series};
+    let mut mf = Plot {
+        x_label: "M [M_{sun}]".into(),
+        y_label: "dN/dlog_{10}M".into(),
+        x_scale: AxisScale::Log10,
+        y_scale: AxisScale::Log10,
+        ..Default::default()
+    };
+    for (i, s) in c.summaries.iter().enumerate() {
+        let Some(m) = &s.mass_function else { continue };
+        let bins: Vec<_> = m.bins.iter().filter(|b| b.count > 0).collect();
+        let mut series = Series {
+            label: s.label.clone(),
+            style: i,
+            points: bins.iter().map(|b| (b.center, b.dn_dlogm)).collect(),
+            y_errors: Some(
+                bins.iter()
+                    .map(|b| (b.lower_limit, b.upper_limit))
+                    .collect(),
+            ),
+            ..Default::default()
+        };
+        if let Some(t) = &s.tail {
+            // dN/dlog10 M = ln 10 M dN/dM with dN/dM = n_tail (alpha - 1) / M_min (M / M_min)^-alpha.
+            let mmax = pops[i].masses.iter().copied().fold(t.xmin, f64::max);
+            let line: Vec<(f64, f64)> = (0..=40)
+                .map(|k| {
+                    let mass = t.xmin * (mmax / t.xmin).powf(k as f64 / 40.0);
+                    (
+                        mass,
+                        std::f64::consts::LN_10
+                            * t.n_tail as f64
+                            * (t.alpha - 1.0)
+                            * (mass / t.xmin).powf(1.0 - t.alpha),
+                    )
+                })
+                .collect();
+            series.line = Some(line);
+            let err = s.tail_bootstrap.map(|b| b.0).unwrap_or(t.alpha_error);
+            mf.notes.push(format!(
+                "{}: alpha = {:.2} ± {:.2} above {:.3} M_{{sun}}",
+                s.label, t.alpha, err, t.xmin
+            ));
+        }
+        mf.series.push(series);
+    }
+    let mut ms = Plot {
+        x_label: "R_{eff} [pc]".into(),
+        y_label: "M [M_{sun}]".into(),
+        x_scale: AxisScale::Log10,
+        y_scale: AxisScale::Log10,
+        ..Default::default()
+    };
+    let (mut rmin, mut rmax) = (f64::INFINITY, 0.0f64);
+    for (i, (s, p)) in c.summaries.iter().zip(pops).enumerate() {
+        for &r in &p.radii {
+            rmin = rmin.min(r);
+            rmax = rmax.max(r);
+        }
+        let mut series = Series {
+            label: s.label.clone(),
+            style: i,
+            points: p
+                .radii
+                .iter()
+                .copied()
+                .zip(p.masses.iter().copied())
+                .collect(),
+            ..Default::default()
+        };
+        if let Some(l) = &s.mass_size {
+            let (r0, r1) = p
+                .radii
+                .iter()
+                .fold((f64::INFINITY, 0.0f64), |(a, b), &r| (a.min(r), b.max(r)));
+            series.line = Some(vec![
+                (r0, 10f64.powf(l.intercept + l.slope * r0.log10())),
+                (r1, 10f64.powf(l.intercept + l.slope * r1.log10())),
+            ]);
+        }
+        ms.series.push(series);
+    }
+    if rmax > 0.0 {
+        let (r0, r1) = (rmin / 1.5, rmax * 1.5);
+        let span = |f: &dyn Fn(f64) -> f64| -> Vec<(f64, f64)> {
+            (0..=20)
+                .map(|k| {
+                    let r = r0 * (r1 / r0).powf(k as f64 / 20.0);
+                    (r, f(r))
+                })
+                .collect()
+        };
+        for n_cm2 in [1e21, 1e22, 1e23] {
+            // M = mu_H2 m_H N pi R^2 (common practice), mu_H2 = 2.8.
+            let g = move |r: f64| {
+                crate::physics::MU_H2 * M_H * n_cm2 * 1e4 * std::f64::consts::PI * (r * PC).powi(2)
+                    / M_SUN
+            };
+            ms.guides.push(Guide {
+                label: format!("N = 10^{{{}}} cm^{{-2}}", n_cm2.log10().round()),
+                points: span(&g),
+            });
+        }
+        for &t in temperatures_k {
+            let cs2 = K_B * t / (crate::physics::MU_P * M_H);
+            let g = move |r: f64| crate::score::be_coefficient() * r * PC * cs2 / G / M_SUN;
+            ms.guides.push(Guide {
+                label: format!("M_{{BE}}, {t} K"),
+                points: span(&g),
+            });
+        }
+    }
+    (mf, ms)
+}

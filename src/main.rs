@@ -501,6 +501,12 @@ struct CompareArgs {
     /// Width of the mass-function bins in dex.
     #[arg(long, default_value_t = 0.2, value_name = "DEX")]
     bin_width: f64,
+    /// Temperatures of the critical Bonnor-Ebert lines on the mass-size diagram.
+    #[arg(long, default_value = "10K,20K", value_name = "T1,T2,...")]
+    be_temperatures: String,
+    /// Plot width in pixels.
+    #[arg(long, default_value_t = 1200, value_name = "PX")]
+    width: u32,
     /// Replace existing outputs.
     #[arg(long)]
     force: bool,
@@ -989,30 +995,52 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         bin_dex: a.bin_width,
     };
     let c = compare::compare(&pops, &o);
-    let names = [
-        "report.md",
-        "populations.csv",
-        "mass_functions.csv",
-        "tests.csv",
-    ]
-    .map(String::from);
+    let temps = a
+        .be_temperatures
+        .split(',')
+        .map(|t| {
+            units::parse_quantity(t, &[Dimension::Temperature], "--be-temperatures").map(|q| q.si)
+        })
+        .collect::<std::result::Result<Vec<f64>, String>>()
+        .map_err(Error::usage)?;
+    let (mf, ms) = compare::plots(&c, &pops, &temps);
+    let plot_err =
+        |e: cairn::render::RenderError| Error::usage(format!("cannot draw the plots: {e}."));
+    let mut files: Vec<(String, Vec<u8>)> = vec![
+        (
+            "report.md".into(),
+            compare::report(&c, &pops, &o).into_bytes(),
+        ),
+        (
+            "populations.csv".into(),
+            compare::summary_table(&c).to_csv().into_bytes(),
+        ),
+        (
+            "mass_functions.csv".into(),
+            compare::mass_function_table(&c).to_csv().into_bytes(),
+        ),
+        (
+            "tests.csv".into(),
+            compare::tests_table(&c).to_csv().into_bytes(),
+        ),
+    ];
+    for (name, plot) in [("mass_functions", &mf), ("mass_size", &ms)] {
+        files.push((
+            format!("{name}.png"),
+            cairn::render::plot::plot_png(plot, a.width, 300.0).map_err(plot_err)?,
+        ));
+        files.push((
+            format!("{name}.svg"),
+            cairn::render::plot::plot_svg(plot, a.width, 300.0)
+                .map_err(plot_err)?
+                .into_bytes(),
+        ));
+    }
+    let names: Vec<String> = files.iter().map(|(n, _)| n.clone()).collect();
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
-    output::write_bytes(
-        &outputs.temp("report.md"),
-        compare::report(&c, &pops, &o).as_bytes(),
-    )?;
-    output::write_bytes(
-        &outputs.temp("populations.csv"),
-        compare::summary_table(&c).to_csv().as_bytes(),
-    )?;
-    output::write_bytes(
-        &outputs.temp("mass_functions.csv"),
-        compare::mass_function_table(&c).to_csv().as_bytes(),
-    )?;
-    output::write_bytes(
-        &outputs.temp("tests.csv"),
-        compare::tests_table(&c).to_csv().as_bytes(),
-    )?;
+    for (n, bytes) in &files {
+        output::write_bytes(&outputs.temp(n), bytes)?;
+    }
     let files = outputs.commit()?;
     for s in &c.summaries {
         let tail = s

@@ -4,42 +4,96 @@
 use std::process::Command;
 
 fn run(dir: &std::path::Path, args: &[&str]) -> (i32, String, String) {
-    let o = Command::new(env!("CARGO_BIN_EXE_cairn")).args(args).current_dir(dir).output().unwrap();
-    (o.status.code().unwrap_or(-1), String::from_utf8_lossy(&o.stdout).into_owned(), String::from_utf8_lossy(&o.stderr).into_owned())
+    let o = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap();
+    (
+        o.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&o.stdout).into_owned(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
 }
 
 #[test]
 fn compare_reports_statistics_and_fairness() {
     let d = tempfile::tempdir().unwrap();
-    let map = std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let map =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
     let m = map.to_str().unwrap();
     for (name, dist) in [("near", "300pc"), ("far", "600pc")] {
-        let (code, _, err) = run(d.path(), &["segment", m, "-o", name, "--distance", dist, "--temperature", "12K", "--no-figure", "-q"]);
+        let (code, _, err) = run(
+            d.path(),
+            &[
+                "segment",
+                m,
+                "-o",
+                name,
+                "--distance",
+                dist,
+                "--temperature",
+                "12K",
+                "--no-figure",
+                "-q",
+            ],
+        );
         assert_eq!(code, 0, "{err}");
     }
-    let (code, out, err) = run(d.path(), &["compare", "near", "far", "-o", "cmp", "--resamples", "50"]);
+    let (code, out, err) = run(
+        d.path(),
+        &["compare", "near", "far", "-o", "cmp", "--resamples", "50"],
+    );
     assert_eq!(code, 0, "{err}");
     assert!(out.contains("near:") && out.contains("far:"), "{out}");
-    assert!(out.contains("linear resolution (beam x distance) differs by a factor 2.00"), "{out}");
+    assert!(
+        out.contains("linear resolution (beam x distance) differs by a factor 2.00"),
+        "{out}"
+    );
     let report = std::fs::read_to_string(d.path().join("cmp/report.md")).unwrap();
-    for section in ["## Mass functions", "## Mass-size relation", "## Between populations", "## Fairness"] {
+    for section in [
+        "## Mass functions",
+        "## Mass-size relation",
+        "## Between populations",
+        "## Fairness",
+    ] {
         assert!(report.contains(section), "{section}");
     }
     // The same leaves at twice the distance: masses four times larger, so the mass-size slope
     // (log M against log R with R twice larger) is unchanged.
     let pops = std::fs::read_to_string(d.path().join("cmp/populations.csv")).unwrap();
-    let rows: Vec<Vec<&str>> = pops.lines().filter(|l| !l.starts_with('#')).map(|l| l.split(',').collect()).collect();
-    let col = rows[0].iter().position(|c| *c == "mass_size_slope").unwrap();
+    let rows: Vec<Vec<&str>> = pops
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .map(|l| l.split(',').collect())
+        .collect();
+    let col = rows[0]
+        .iter()
+        .position(|c| *c == "mass_size_slope")
+        .unwrap();
     let (a, b): (f64, f64) = (rows[1][col].parse().unwrap(), rows[2][col].parse().unwrap());
     assert!((a - b).abs() < 1e-9, "{a} {b}");
     let med = rows[0].iter().position(|c| *c == "median_mass").unwrap();
     let (ma, mb): (f64, f64) = (rows[1][med].parse().unwrap(), rows[2][med].parse().unwrap());
-    assert!((mb / ma - 4.0).abs() < 1e-9, "masses scale as distance squared: {ma} {mb}");
-    for f in ["mass_functions.csv", "tests.csv"] {
+    assert!(
+        (mb / ma - 4.0).abs() < 1e-9,
+        "masses scale as distance squared: {ma} {mb}"
+    );
+    for f in [
+        "mass_functions.csv",
+        "tests.csv",
+        "mass_functions.png",
+        "mass_functions.svg",
+        "mass_size.png",
+        "mass_size.svg",
+    ] {
         assert!(d.path().join("cmp").join(f).is_file());
     }
     // A run without masses is refused with a sentence.
-    let (code, _, _) = run(d.path(), &["segment", m, "-o", "nodist", "--no-figure", "-q"]);
+    let (code, _, _) = run(
+        d.path(),
+        &["segment", m, "-o", "nodist", "--no-figure", "-q"],
+    );
     assert_eq!(code, 0);
     let (code, _, err) = run(d.path(), &["compare", "near", "nodist", "-o", "cmp2"]);
     assert_eq!(code, 2);
