@@ -21,7 +21,7 @@
 
 use super::RenderError;
 use super::axes::sci_label;
-use super::scene::{Item, Line, Paint, PathData, Rgba, Scene, Seg, num, xml_escape};
+use super::scene::{Item, Line, Paint, PathData, Rgba, Scene, Seg, num, path_string, xml_escape};
 use super::text;
 use super::{state_colour, state_dash};
 use std::fmt::Write as _;
@@ -781,29 +781,6 @@ fn paint_attrs(ps: &[&Paint]) -> String {
         None => a.push_str(" stroke=\"none\""),
     }
     a
-}
-
-fn path_string(d: &PathData) -> String {
-    let mut s = String::new();
-    for seg in &d.0 {
-        let _ = match *seg {
-            Seg::M(x, y) => write!(s, "M{} {}", num(x), num(y)),
-            Seg::L(x, y) => write!(s, "L{} {}", num(x), num(y)),
-            Seg::Q(a, b, x, y) => write!(s, "Q{} {} {} {}", num(a), num(b), num(x), num(y)),
-            Seg::C(a, b, c, e, x, y) => write!(
-                s,
-                "C{} {} {} {} {} {}",
-                num(a),
-                num(b),
-                num(c),
-                num(e),
-                num(x),
-                num(y)
-            ),
-            Seg::Z => write!(s, "Z"),
-        };
-    }
-    s
 }
 
 /// Cuts the segment a-b to the rectangle (x0, y0, x1, y1); None when it misses it.

@@ -526,7 +526,7 @@ pub(crate) fn num(v: f64) -> String {
     if s == "-0" { "0".to_string() } else { s }
 }
 
-fn path_string(d: &PathData) -> String {
+pub(crate) fn path_string(d: &PathData) -> String {
     let mut s = String::new();
     for seg in &d.0 {
         let _ = match *seg {
