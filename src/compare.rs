@@ -1023,3 +1023,23 @@ pub fn plots(
     }
     (mf, ms)
 }
+
+/// The cumulative mass functions N(>= M) (one row per population and distinct mass).
+pub fn cumulative_table(pops: &[Population]) -> Table {
+    let mut t = Table {
+        name: "CUMULATIVE".into(),
+        ..Default::default()
+    };
+    let (mut lab, mut mass, mut n) = (vec![], vec![], vec![]);
+    for p in pops {
+        for (m, k) in populations::cumulative_counts(&p.masses).unwrap_or_default() {
+            lab.push(p.label.clone());
+            mass.push(m);
+            n.push(k as i64);
+        }
+    }
+    t.push_text("population", "label", lab);
+    t.push_f64("mass", "solMass", "leaf mass", mass);
+    t.push_i64("n_above", "", "number of leaves with at least this mass", n);
+    t
+}
