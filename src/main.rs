@@ -1023,6 +1023,10 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
             "tests.csv".into(),
             compare::tests_table(&c).to_csv().into_bytes(),
         ),
+        (
+            "cumulative.csv".into(),
+            compare::cumulative_table(&pops).to_csv().into_bytes(),
+        ),
     ];
     for (name, plot) in [("mass_functions", &mf), ("mass_size", &ms)] {
         files.push((

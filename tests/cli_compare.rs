@@ -81,6 +81,7 @@ fn compare_reports_statistics_and_fairness() {
     );
     for f in [
         "mass_functions.csv",
+        "cumulative.csv",
         "tests.csv",
         "mass_functions.png",
         "mass_functions.svg",
