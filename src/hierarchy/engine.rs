@@ -1,6 +1,6 @@
 //! The sweep: sort, union-find with on-the-fly simplification, then numbering and labels.
 
-use super::{Hierarchy, HierarchyError, Params, Structure, moments};
+use super::{Hierarchy, HierarchyError, Params, Structure, moments, radix};
 use ndarray::{Array2, ArrayView2};
 use petgraph::graph::{DiGraph, NodeIndex};
 use rayon::prelude::*;
@@ -177,13 +177,7 @@ pub fn build_with_progress(
 
     // 1. Pixel order.
     let floor = params.floor;
-    let mut keys: Vec<u64> = data
-        .par_iter()
-        .enumerate()
-        .filter(|&(_, &v)| !v.is_nan() && v as f64 >= floor)
-        .map(|(i, &v)| sort_key(v, i))
-        .collect();
-    keys.par_sort_unstable();
+    let keys = radix::sorted_keys(data, floor);
     progress(0.3);
 
     // 2. Sweep.

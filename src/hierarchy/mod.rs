@@ -13,8 +13,8 @@
 //! The component tree (max-tree) of the upper level sets `{map >= t}` is built by union-find
 //! over flat arrays, visiting pixels from the highest down (Najman & Couprie 2006, IEEE TIP 15,
 //! 3531; Berger et al. 2007, ICIP; review by Carlinet & Geraud 2014, IEEE TIP 23, 3885). The
-//! pixel order comes from one parallel sort of 64-bit keys (order-preserving 32-bit image of the
-//! value, then the linear index). The tree is simplified *while* components merge, so the full
+//! pixel order comes from one parallel radix sort of 64-bit keys (order-preserving 32-bit image
+//! of the value, then the linear index). The tree is simplified *while* components merge, so the full
 //! max-tree is never stored.
 //!
 //! # Exact rules
@@ -66,7 +66,8 @@
 //!   first). So id 0 is the root holding the highest pixel.
 //!
 //! # Memory
-//! Besides the map: 8 bytes per considered pixel for the sorted keys and one 8-byte cell per
+//! Besides the map: 8 bytes per considered pixel for the sorted keys (16 while the radix sort
+//! runs, which needs a second buffer) and one 8-byte cell per
 //! pixel during the sweep (union-find link and visiting node packed together, so the
 //! spatially random sweep touches one cache line per neighbour row), plus 24 bytes per
 //! candidate peak (regional maximum) met. The keys are freed before the 4-byte label array
@@ -82,6 +83,7 @@
 mod engine;
 mod grow;
 mod moments;
+mod radix;
 
 use ndarray::Array2;
 use petgraph::graph::DiGraph;
