@@ -17,21 +17,21 @@ const DIGITS: usize = (32 / BITS) as usize;
 
 /// A pointer to an output buffer that several threads write at disjoint positions.
 #[derive(Clone, Copy)]
-struct Out(*mut u64);
+pub(super) struct Out<T>(pub(super) *mut T);
 // SAFETY: every use writes positions that no other thread writes (disjoint bucket ranges
 // given by the prefix sums), and the buffer outlives the parallel loop.
-unsafe impl Send for Out {}
-unsafe impl Sync for Out {}
+unsafe impl<T> Send for Out<T> {}
+unsafe impl<T> Sync for Out<T> {}
 
-impl Out {
+impl<T> Out<T> {
     /// Writes `v` at `i`.
     ///
     /// # Safety
     /// `i` is in bounds and no other thread writes or reads position `i` meanwhile.
     #[inline(always)]
-    unsafe fn write(self, i: usize, v: u64) {
+    pub(super) unsafe fn write(self, i: usize, v: T) {
         // SAFETY: as documented by the caller.
-        unsafe { *self.0.add(i) = v };
+        unsafe { self.0.add(i).write(v) };
     }
 }
 
@@ -106,7 +106,7 @@ pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
         .collect();
 
     // First pass straight from the map (or, with nothing to sort, the keys in index order).
-    let mut src = vec![0u64; n];
+    let mut src: Vec<u64> = Vec::with_capacity(n);
     {
         let first_hist: Vec<[usize; BUCKETS]> = match passes.first() {
             Some(&d) => hists.iter().map(|h| h[d]).collect(),
@@ -134,11 +134,13 @@ pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
                 }
             }
         });
+        // SAFETY: the pieces wrote every one of the `n` positions (the offsets cover 0..n).
+        unsafe { src.set_len(n) };
     }
     if passes.len() <= 1 {
         return src;
     }
-    let mut dst = vec![0u64; n];
+    let mut dst: Vec<u64> = Vec::with_capacity(n);
     let m = pieces(n);
     for &d in &passes[1..] {
         let hist: Vec<[usize; BUCKETS]> = (0..m)
@@ -152,6 +154,7 @@ pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
             })
             .collect();
         let off = offsets(&hist);
+        dst.clear();
         let out = Out(dst.as_mut_ptr());
         let src_ref = &src;
         off.into_par_iter().enumerate().for_each(|(c, mut o)| {
@@ -162,6 +165,8 @@ pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
                 o[bk] += 1;
             }
         });
+        // SAFETY: the pieces wrote every one of the `n` positions.
+        unsafe { dst.set_len(n) };
         std::mem::swap(&mut src, &mut dst);
     }
     src
