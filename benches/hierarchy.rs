@@ -73,11 +73,23 @@ fn best_of<T>(runs: usize, mut f: impl FnMut() -> T) -> (Duration, T) {
     (best, out.unwrap())
 }
 
+/// A digest of everything the engine returns (structures with their moments, and labels), to
+/// check that a change of the engine changes no result.
+fn digest(h: &cairn::hierarchy::Hierarchy) -> u64 {
+    use std::hash::{DefaultHasher, Hash, Hasher};
+    let mut s = DefaultHasher::new();
+    format!("{:?}", h.structures).hash(&mut s);
+    h.labels.as_slice().unwrap().hash(&mut s);
+    s.finish()
+}
+
 fn main() {
     let mut sizes = vec![1024usize, 2048];
     for a in std::env::args().skip(1) {
         if let Ok(n) = a.parse::<usize>() {
-            sizes.push(n);
+            if !sizes.contains(&n) {
+                sizes.push(n);
+            }
         }
     }
     println!("threads: {}", rayon::current_num_threads());
@@ -134,12 +146,13 @@ fn main() {
             let total = start.elapsed().as_secs_f64();
             let m = marks.into_inner();
             println!(
-                "{n}^2 {label}: engine {:.3} s, sort {:.3} s, ratio {:.2} ({} structures, {} leaves)",
+                "{n}^2 {label}: engine {:.3} s, sort {:.3} s, ratio {:.2} ({} structures, {} leaves, digest {:016x})",
                 t.as_secs_f64(),
                 t_sort.as_secs_f64(),
                 t.as_secs_f64() / t_sort.as_secs_f64(),
                 h.structures.len(),
-                h.leaves().len()
+                h.leaves().len(),
+                digest(&h)
             );
             println!(
                 "    phases of one more run: checks + sort {:.3} s, sweep {:.3} s, labels + moments {:.3} s",
