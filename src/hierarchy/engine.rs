@@ -150,12 +150,13 @@ pub fn build_with_progress(
         None => Cow::Owned(map.iter().copied().collect()),
     };
     let data: &[f32] = &data;
-    let max = data
+    let (max, any_valid) = data
         .par_iter()
         .copied()
         .filter(|v| !v.is_nan())
-        .reduce(|| f32::NEG_INFINITY, f32::max);
-    if npix == 0 || data.iter().all(|v| v.is_nan()) {
+        .map(|v| (v, true))
+        .reduce(|| (f32::NEG_INFINITY, false), |a, b| (a.0.max(b.0), a.1 | b.1));
+    if !any_valid {
         return Err(HierarchyError::NoValidPixels);
     }
     if params.floor > max as f64 {
