@@ -95,10 +95,10 @@ fn digest(h: &cairn::hierarchy::Hierarchy) -> u64 {
 fn main() {
     let mut sizes = vec![1024usize, 2048];
     for a in std::env::args().skip(1) {
-        if let Ok(n) = a.parse::<usize>() {
-            if !sizes.contains(&n) {
-                sizes.push(n);
-            }
+        if let Ok(n) = a.parse::<usize>()
+            && !sizes.contains(&n)
+        {
+            sizes.push(n);
         }
     }
     println!("threads: {}", rayon::current_num_threads());
