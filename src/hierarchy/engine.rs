@@ -155,7 +155,10 @@ pub fn build_with_progress(
         .copied()
         .filter(|v| !v.is_nan())
         .map(|v| (v, true))
-        .reduce(|| (f32::NEG_INFINITY, false), |a, b| (a.0.max(b.0), a.1 | b.1));
+        .reduce(
+            || (f32::NEG_INFINITY, false),
+            |a, b| (a.0.max(b.0), a.1 | b.1),
+        );
     if !any_valid {
         return Err(HierarchyError::NoValidPixels);
     }

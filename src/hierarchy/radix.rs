@@ -219,11 +219,25 @@ mod tests {
                     })
                     .collect();
                 for &floor in &[f64::NEG_INFINITY, 0.0, 1e21, f64::INFINITY] {
+                    let want = reference(&data, floor);
                     assert_eq!(
                         sorted_keys(&data, floor),
-                        reference(&data, floor),
+                        want,
                         "n {n} kind {kind} floor {floor}"
                     );
+                    if n > 1000 && floor == 0.0 {
+                        for threads in [1, 3] {
+                            let pool = rayon::ThreadPoolBuilder::new()
+                                .num_threads(threads)
+                                .build()
+                                .unwrap();
+                            assert_eq!(
+                                pool.install(|| sorted_keys(&data, floor)),
+                                want,
+                                "n {n} kind {kind} threads {threads}"
+                            );
+                        }
+                    }
                 }
             }
         }
