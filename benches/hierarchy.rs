@@ -61,6 +61,15 @@ fn field(n: usize, seed: u64) -> Array2<f32> {
     a
 }
 
+/// Time the calling thread has spent running (Linux `schedstat`), so that the sequential sweep
+/// can be timed apart from the load of other processes; NaN where unavailable.
+fn thread_cpu_seconds() -> f64 {
+    std::fs::read_to_string("/proc/thread-self/schedstat")
+        .ok()
+        .and_then(|t| t.split_whitespace().next()?.parse::<f64>().ok())
+        .map_or(f64::NAN, |ns| ns * 1e-9)
+}
+
 fn best_of<T>(runs: usize, mut f: impl FnMut() -> T) -> (Duration, T) {
     let mut best = Duration::MAX;
     let mut out = None;
@@ -73,10 +82,22 @@ fn best_of<T>(runs: usize, mut f: impl FnMut() -> T) -> (Duration, T) {
     (best, out.unwrap())
 }
 
+/// A digest of everything the engine returns (structures with their moments, and labels), to
+/// check that a change of the engine changes no result.
+fn digest(h: &cairn::hierarchy::Hierarchy) -> u64 {
+    use std::hash::{DefaultHasher, Hash, Hasher};
+    let mut s = DefaultHasher::new();
+    format!("{:?}", h.structures).hash(&mut s);
+    h.labels.as_slice().unwrap().hash(&mut s);
+    s.finish()
+}
+
 fn main() {
     let mut sizes = vec![1024usize, 2048];
     for a in std::env::args().skip(1) {
-        if let Ok(n) = a.parse::<usize>() {
+        if let Ok(n) = a.parse::<usize>()
+            && !sizes.contains(&n)
+        {
             sizes.push(n);
         }
     }
@@ -127,25 +148,29 @@ fn main() {
             let marks = std::cell::RefCell::new(Vec::new());
             build_with_progress(map.view(), &p, &|f| {
                 if f == 0.3 || f == 0.9 {
-                    marks.borrow_mut().push(start.elapsed().as_secs_f64());
+                    marks
+                        .borrow_mut()
+                        .push((start.elapsed().as_secs_f64(), thread_cpu_seconds()));
                 }
             })
             .unwrap();
             let total = start.elapsed().as_secs_f64();
             let m = marks.into_inner();
             println!(
-                "{n}^2 {label}: engine {:.3} s, sort {:.3} s, ratio {:.2} ({} structures, {} leaves)",
+                "{n}^2 {label}: engine {:.3} s, sort {:.3} s, ratio {:.2} ({} structures, {} leaves, digest {:016x})",
                 t.as_secs_f64(),
                 t_sort.as_secs_f64(),
                 t.as_secs_f64() / t_sort.as_secs_f64(),
                 h.structures.len(),
-                h.leaves().len()
+                h.leaves().len(),
+                digest(&h)
             );
             println!(
-                "    phases of one more run: checks + sort {:.3} s, sweep {:.3} s, labels + moments {:.3} s",
-                m[0],
-                m[1] - m[0],
-                total - m[1]
+                "    phases of one more run: checks + sort {:.3} s, sweep {:.3} s (on-CPU {:.3} s), labels + moments {:.3} s",
+                m[0].0,
+                m[1].0 - m[0].0,
+                m[1].1 - m[0].1,
+                total - m[1].0
             );
         }
     }

@@ -1,6 +1,6 @@
 //! The sweep: sort, union-find with on-the-fly simplification, then numbering and labels.
 
-use super::{Hierarchy, HierarchyError, Params, Structure, moments};
+use super::{Hierarchy, HierarchyError, Params, Structure, moments, radix};
 use ndarray::{Array2, ArrayView2};
 use petgraph::graph::{DiGraph, NodeIndex};
 use rayon::prelude::*;
@@ -65,38 +65,29 @@ fn before(va: f32, ia: u32, vb: f32, ib: u32) -> bool {
     va > vb || (va == vb && ia < ib)
 }
 
-/// Low half of a cell: union-find parent, or `ROOT | open node` at a component root.
-#[inline]
-fn link(c: u64) -> u32 {
-    c as u32
-}
+/// A cell of a pixel not visited yet.
+const UNVISITED: u32 = u32::MAX;
 
-/// Sets the low half of a cell.
+/// The union-find root of pixel `x` (visited), halving the path on the way.
 #[inline]
-fn set_link(cells: &mut [u64], x: u32, to: u32) {
-    let c = &mut cells[x as usize];
-    *c = (*c & !0xFFFF_FFFF) | to as u64;
-}
-
-#[inline]
-fn find(cells: &mut [u64], mut x: u32) -> u32 {
+fn find(cells: &mut [u32], mut x: u32) -> u32 {
     loop {
-        let px = link(cells[x as usize]);
+        let px = cells[x as usize];
         if px & ROOT != 0 {
             return x;
         }
-        let ppx = link(cells[px as usize]);
+        let ppx = cells[px as usize];
         if ppx & ROOT != 0 {
             return px;
         }
-        set_link(cells, x, ppx);
+        cells[x as usize] = ppx;
         x = ppx;
     }
 }
 
 /// Asks the processor to fetch the cache line holding `cells[i]`.
 #[inline(always)]
-fn prefetch(cells: &[u64], i: usize) {
+fn prefetch(cells: &[u32], i: usize) {
     #[cfg(target_arch = "x86_64")]
     {
         let ptr = cells[i..].as_ptr() as *const i8;
@@ -159,12 +150,16 @@ pub fn build_with_progress(
         None => Cow::Owned(map.iter().copied().collect()),
     };
     let data: &[f32] = &data;
-    let max = data
+    let (max, any_valid) = data
         .par_iter()
         .copied()
         .filter(|v| !v.is_nan())
-        .reduce(|| f32::NEG_INFINITY, f32::max);
-    if npix == 0 || data.iter().all(|v| v.is_nan()) {
+        .map(|v| (v, true))
+        .reduce(
+            || (f32::NEG_INFINITY, false),
+            |a, b| (a.0.max(b.0), a.1 | b.1),
+        );
+    if !any_valid {
         return Err(HierarchyError::NoValidPixels);
     }
     if params.floor > max as f64 {
@@ -177,18 +172,19 @@ pub fn build_with_progress(
 
     // 1. Pixel order.
     let floor = params.floor;
-    let mut keys: Vec<u64> = data
-        .par_iter()
-        .enumerate()
-        .filter(|&(_, &v)| !v.is_nan() && v as f64 >= floor)
-        .map(|(i, &v)| sort_key(v, i))
-        .collect();
-    keys.par_sort_unstable();
+    let keys = radix::sorted_keys(data, floor);
     progress(0.3);
 
     // 2. Sweep.
-    let (mut nodes, cells) = sweep(npix, ncols, &keys, params, progress);
-    drop(keys);
+    let mut keys = keys;
+    let mut cells: Vec<u32> = Vec::with_capacity(npix);
+    cells
+        .spare_capacity_mut()
+        .par_chunks_mut(1 << 16)
+        .for_each(|c| c.fill(std::mem::MaybeUninit::new(UNVISITED)));
+    // SAFETY: all `npix` cells were just written.
+    unsafe { cells.set_len(npix) };
+    let mut nodes = sweep(&mut cells, ncols, &mut keys, params, progress);
     progress(0.9);
 
     // 3. Accepted structures, ids, labels.
@@ -235,14 +231,18 @@ pub fn build_with_progress(
         node_id[n as usize] = id as i32;
     }
     let label_of: Vec<i32> = (0..nn).map(|n| node_id[nodes[n].alias as usize]).collect();
-    let labels: Vec<i32> = cells
-        .par_iter()
-        .map(|&c| match c >> 32 {
-            0 => -1,
-            n => label_of[n as usize - 1],
-        })
-        .collect();
-    drop(cells);
+    // The cells become the labels: -1 everywhere, then each visited pixel's label from the
+    // node the sweep left beside its key.
+    let mut labels: Vec<i32> = cells.into_iter().map(|_| -1i32).collect();
+    let out = radix::Out(labels.as_mut_ptr());
+    keys.par_chunks(1 << 16).for_each(|ks| {
+        for &k in ks {
+            // SAFETY: every pixel appears in at most one key, so the writes are disjoint and
+            // in bounds.
+            unsafe { out.write(k as u32 as usize, label_of[(k >> 32) as usize]) };
+        }
+    });
+    drop(keys);
 
     let mut structures: Vec<Structure> = order
         .iter()
@@ -312,37 +312,39 @@ pub fn build_with_progress(
 /// How many pixels ahead the sweep prefetches.
 const AHEAD: usize = 32;
 
-/// Visits the pixels in `keys` order, merging components and simplifying on the fly. Returns
-/// the nodes and, per pixel, `1 +` the open node of its component when it was visited (0 for
-/// pixels never visited).
+/// Visits the pixels in `keys` order, merging components and simplifying on the fly. `cells`
+/// holds [`UNVISITED`] for every pixel on entry. Returns the nodes; on return the high half of
+/// each key holds the open node of its pixel's component when the pixel was visited.
 ///
-/// Each pixel has one 64-bit cell: high half `1 + node` once visited (so "visited before p"
-/// is "high half non-zero", with no look at the map), low half its union-find link. Keeping
-/// both in one word halves the cache misses of the sweep, whose order is spatially random.
+/// Each pixel has one 32-bit cell: [`UNVISITED`], its union-find parent, or `ROOT | open
+/// node` at a component root. Small cells keep as much of the map as possible in cache, as
+/// the order of the sweep is spatially random; the visiting node goes beside the key, which
+/// is read in order anyway.
 fn sweep(
-    npix: usize,
+    cells: &mut [u32],
     ncols: usize,
-    keys: &[u64],
+    keys: &mut [u64],
     params: &Params,
     progress: &dyn Fn(f64),
-) -> (Vec<Node>, Vec<u64>) {
+) -> Vec<Node> {
+    let npix = cells.len();
     let nrows = npix / ncols;
-    let mut cells: Vec<u64> = vec![0; npix];
     let mut nodes: Vec<Node> = Vec::new();
     let eight = matches!(params.connectivity, super::Connectivity::Eight);
     let min_area = params.min_area;
     let prominence = params.prominence;
     let nkeys = keys.len();
-    for (step, &key) in keys.iter().enumerate() {
+    for step in 0..nkeys {
         if step % PROGRESS_STEP == 0 && step > 0 {
             progress(0.3 + 0.6 * step as f64 / nkeys as f64);
         }
         if let Some(&ahead) = keys.get(step + AHEAD) {
             let q = ahead as u32 as usize;
-            prefetch(&cells, q.saturating_sub(ncols));
-            prefetch(&cells, q);
-            prefetch(&cells, (q + ncols).min(npix - 1));
+            prefetch(cells, q.saturating_sub(ncols));
+            prefetch(cells, q);
+            prefetch(cells, (q + ncols).min(npix - 1));
         }
+        let key = keys[step];
         let p = key as u32 as usize;
         let v = from_order_key(!((key >> 32) as u32));
         let x = p % ncols;
@@ -350,8 +352,8 @@ fn sweep(
         // Distinct components among the neighbours visited before p.
         let mut roots = [0u32; 8];
         let mut k = 0usize;
-        let mut visit = |q: usize, cells: &mut Vec<u64>| {
-            if cells[q] >> 32 != 0 {
+        let mut visit = |q: usize, cells: &mut [u32]| {
+            if cells[q] != UNVISITED {
                 let r = find(cells, q as u32);
                 if !roots[..k].contains(&r) {
                     roots[k] = r;
@@ -362,26 +364,26 @@ fn sweep(
         let (left, right, up, down) = (x > 0, x + 1 < ncols, y > 0, y + 1 < nrows);
         if up {
             if eight && left {
-                visit(p - ncols - 1, &mut cells);
+                visit(p - ncols - 1, cells);
             }
-            visit(p - ncols, &mut cells);
+            visit(p - ncols, cells);
             if eight && right {
-                visit(p - ncols + 1, &mut cells);
+                visit(p - ncols + 1, cells);
             }
         }
         if left {
-            visit(p - 1, &mut cells);
+            visit(p - 1, cells);
         }
         if right {
-            visit(p + 1, &mut cells);
+            visit(p + 1, cells);
         }
         if down {
             if eight && left {
-                visit(p + ncols - 1, &mut cells);
+                visit(p + ncols - 1, cells);
             }
-            visit(p + ncols, &mut cells);
+            visit(p + ncols, cells);
             if eight && right {
-                visit(p + ncols + 1, &mut cells);
+                visit(p + ncols + 1, cells);
             }
         }
         let (link_p, node_p) = match k {
@@ -400,7 +402,7 @@ fn sweep(
             }
             1 => {
                 let r = roots[0];
-                let n = link(cells[r as usize]) & !ROOT;
+                let n = cells[r as usize] & !ROOT;
                 nodes[n as usize].area += 1;
                 (r, n)
             }
@@ -409,32 +411,33 @@ fn sweep(
                 let mut big = roots[0];
                 let mut big_area = 0u32;
                 for &r in &roots[..k] {
-                    let a = nodes[(link(cells[r as usize]) & !ROOT) as usize].area;
+                    let a = nodes[(cells[r as usize] & !ROOT) as usize].area;
                     if a > big_area {
                         big_area = a;
                         big = r;
                     }
                 }
-                let t = merge(&cells, &mut nodes, &roots[..k], v, min_area, prominence);
+                let t = merge(cells, &mut nodes, &roots[..k], v, min_area, prominence);
                 for &r in &roots[..k] {
                     if r != big {
-                        set_link(&mut cells, r, big);
+                        cells[r as usize] = big;
                     }
                 }
-                set_link(&mut cells, big, ROOT | t);
+                cells[big as usize] = ROOT | t;
                 (big, t)
             }
         };
-        cells[p] = ((node_p as u64 + 1) << 32) | link_p as u64;
+        cells[p] = link_p;
+        keys[step] = ((node_p as u64) << 32) | p as u64;
     }
-    (nodes, cells)
+    nodes
 }
 
 /// Joins the components rooted at `roots` at pixel value `v`; returns the open node of the
 /// joined component (with its area counting the new pixel). Areas of the old open nodes are
 /// left untouched for the caller's union by size.
 fn merge(
-    cells: &[u64],
+    cells: &[u32],
     nodes: &mut Vec<Node>,
     roots: &[u32],
     v: f32,
@@ -450,7 +453,7 @@ fn merge(
     let mut best_sig: Option<usize> = None; // best peak among significant
     let mut best_same: Option<usize> = None; // best peak among same-level branches
     for i in 0..k {
-        let n = link(cells[roots[i] as usize]) & !ROOT;
+        let n = cells[roots[i] as usize] & !ROOT;
         open[i] = n;
         let nd = &nodes[n as usize];
         total += nd.area;

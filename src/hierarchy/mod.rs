@@ -13,8 +13,8 @@
 //! The component tree (max-tree) of the upper level sets `{map >= t}` is built by union-find
 //! over flat arrays, visiting pixels from the highest down (Najman & Couprie 2006, IEEE TIP 15,
 //! 3531; Berger et al. 2007, ICIP; review by Carlinet & Geraud 2014, IEEE TIP 23, 3885). The
-//! pixel order comes from one parallel sort of 64-bit keys (order-preserving 32-bit image of the
-//! value, then the linear index). The tree is simplified *while* components merge, so the full
+//! pixel order comes from one parallel radix sort of 64-bit keys (order-preserving 32-bit image
+//! of the value, then the linear index). The tree is simplified *while* components merge, so the full
 //! max-tree is never stored.
 //!
 //! # Exact rules
@@ -66,14 +66,16 @@
 //!   first). So id 0 is the root holding the highest pixel.
 //!
 //! # Memory
-//! Besides the map: 8 bytes per considered pixel for the sorted keys and one 8-byte cell per
-//! pixel during the sweep (union-find link and visiting node packed together, so the
-//! spatially random sweep touches one cache line per neighbour row), plus 24 bytes per
-//! candidate peak (regional maximum) met. The keys are freed before the 4-byte label array
-//! is made from the cells, so the peak is about map + 16 bytes per pixel. Moment sums are
-//! gathered after the sweep from the label map, for the accepted structures only (absorbed
-//! candidates never carry sums), in row blocks fixed by the map size so that sums do not
-//! depend on the thread count.
+//! Besides the map: 8 bytes per considered pixel for the sorted keys (16 while the radix sort
+//! runs, which needs a second buffer) and one 4-byte cell per pixel during the sweep (the
+//! union-find link, or the open node at a component root; small so that as much of the map
+//! as possible stays in cache for the spatially random sweep), plus 28 bytes per candidate
+//! peak (regional maximum) met. The sweep writes each pixel's visiting node into the high half
+//! of its key, which it has just read; the cells then become the 4-byte label array in place
+//! and the labels are scattered from the keys. So the peak is about map + 16 bytes per pixel
+//! (during the sort), and map + 12 during the sweep. Moment sums are gathered after the sweep
+//! from the label map, for the accepted structures only (absorbed candidates never carry
+//! sums), in row blocks fixed by the map size so that sums do not depend on the thread count.
 //!
 //! # Speed
 //! The sort is parallel; the sweep is sequential and bound by memory latency (it prefetches
@@ -82,6 +84,7 @@
 mod engine;
 mod grow;
 mod moments;
+mod radix;
 
 use ndarray::Array2;
 use petgraph::graph::DiGraph;

@@ -1,0 +1,245 @@
+//! The pixel order: a parallel least-significant-digit radix sort of the sweep keys.
+//!
+//! Keys are built in increasing linear index and every pass is stable, so only the 32-bit
+//! value half of a key needs sorting; digits that are the same for every key are skipped. The
+//! sorted array of distinct keys is unique, so the result never depends on how the work is
+//! split among threads.
+
+use super::engine::sort_key;
+use rayon::prelude::*;
+
+/// Bits per digit.
+const BITS: u32 = 8;
+/// Buckets per digit.
+const BUCKETS: usize = 1 << BITS;
+/// Digits in the 32-bit value half of a key.
+const DIGITS: usize = (32 / BITS) as usize;
+
+/// A pointer to an output buffer that several threads write at disjoint positions.
+#[derive(Clone, Copy)]
+pub(super) struct Out<T>(pub(super) *mut T);
+// SAFETY: every use writes positions that no other thread writes (disjoint bucket ranges
+// given by the prefix sums), and the buffer outlives the parallel loop.
+unsafe impl<T> Send for Out<T> {}
+unsafe impl<T> Sync for Out<T> {}
+
+impl<T> Out<T> {
+    /// Writes `v` at `i`.
+    ///
+    /// # Safety
+    /// `i` is in bounds and no other thread writes or reads position `i` meanwhile.
+    #[inline(always)]
+    pub(super) unsafe fn write(self, i: usize, v: T) {
+        // SAFETY: as documented by the caller.
+        unsafe { self.0.add(i).write(v) };
+    }
+}
+
+/// Whether a pixel of value `v` takes part (not NaN and at least `floor`).
+#[inline(always)]
+fn considered(v: f32, floor: f64) -> bool {
+    !v.is_nan() && v as f64 >= floor
+}
+
+/// Digit `d` of the value half of key `k`.
+#[inline(always)]
+fn digit(k: u64, d: usize) -> usize {
+    ((k >> (32 + BITS as usize * d)) as usize) & (BUCKETS - 1)
+}
+
+/// Number of pieces the work is cut into: fixed by the size only.
+fn pieces(n: usize) -> usize {
+    (n / (1 << 16)).clamp(1, 64)
+}
+
+/// Start of piece `i` of `n` items cut into `m` pieces.
+fn piece_start(n: usize, m: usize, i: usize) -> usize {
+    (n as u128 * i as u128 / m as u128) as usize
+}
+
+/// Exclusive prefix sums in bucket-major, piece-minor order: where piece `c` writes its first
+/// key of bucket `b`.
+fn offsets(hist: &[[usize; BUCKETS]]) -> Vec<[usize; BUCKETS]> {
+    let mut off = vec![[0usize; BUCKETS]; hist.len()];
+    let mut at = 0;
+    for b in 0..BUCKETS {
+        for (c, h) in hist.iter().enumerate() {
+            off[c][b] = at;
+            at += h[b];
+        }
+    }
+    off
+}
+
+/// The keys ([`sort_key`]) of the considered pixels of `data`, in increasing order.
+pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
+    let npix = data.len();
+    let m = pieces(npix);
+    // Histograms of every digit, per piece of the map.
+    let hists: Vec<[[usize; BUCKETS]; DIGITS]> = (0..m)
+        .into_par_iter()
+        .map(|c| {
+            let mut h = [[0usize; BUCKETS]; DIGITS];
+            let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
+            for (i, &v) in data[a..b].iter().enumerate() {
+                if considered(v, floor) {
+                    let k = sort_key(v, a + i);
+                    for (d, hd) in h.iter_mut().enumerate() {
+                        hd[digit(k, d)] += 1;
+                    }
+                }
+            }
+            h
+        })
+        .collect();
+    let n: usize = hists.iter().map(|h| h[0].iter().sum::<usize>()).sum();
+    let passes: Vec<usize> = (0..DIGITS)
+        .filter(|&d| {
+            let mut tot = [0usize; BUCKETS];
+            for h in &hists {
+                for (t, &x) in tot.iter_mut().zip(&h[d]) {
+                    *t += x;
+                }
+            }
+            !tot.contains(&n)
+        })
+        .collect();
+
+    // First pass straight from the map (or, with nothing to sort, the keys in index order).
+    let mut src: Vec<u64> = Vec::with_capacity(n);
+    {
+        let first_hist: Vec<[usize; BUCKETS]> = match passes.first() {
+            Some(&d) => hists.iter().map(|h| h[d]).collect(),
+            None => hists
+                .iter()
+                .map(|h| {
+                    let mut one = [0usize; BUCKETS];
+                    one[0] = h[0].iter().sum();
+                    one
+                })
+                .collect(),
+        };
+        let d0 = passes.first().copied();
+        let off = offsets(&first_hist);
+        let out = Out(src.as_mut_ptr());
+        off.into_par_iter().enumerate().for_each(|(c, mut o)| {
+            let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
+            for (i, &v) in data[a..b].iter().enumerate() {
+                if considered(v, floor) {
+                    let k = sort_key(v, a + i);
+                    let bk = d0.map_or(0, |d| digit(k, d));
+                    // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
+                    unsafe { out.write(o[bk], k) };
+                    o[bk] += 1;
+                }
+            }
+        });
+        // SAFETY: the pieces wrote every one of the `n` positions (the offsets cover 0..n).
+        unsafe { src.set_len(n) };
+    }
+    if passes.len() <= 1 {
+        return src;
+    }
+    let mut dst: Vec<u64> = Vec::with_capacity(n);
+    let m = pieces(n);
+    for &d in &passes[1..] {
+        let hist: Vec<[usize; BUCKETS]> = (0..m)
+            .into_par_iter()
+            .map(|c| {
+                let mut h = [0usize; BUCKETS];
+                for &k in &src[piece_start(n, m, c)..piece_start(n, m, c + 1)] {
+                    h[digit(k, d)] += 1;
+                }
+                h
+            })
+            .collect();
+        let off = offsets(&hist);
+        dst.clear();
+        let out = Out(dst.as_mut_ptr());
+        let src_ref = &src;
+        off.into_par_iter().enumerate().for_each(|(c, mut o)| {
+            for &k in &src_ref[piece_start(n, m, c)..piece_start(n, m, c + 1)] {
+                let bk = digit(k, d);
+                // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
+                unsafe { out.write(o[bk], k) };
+                o[bk] += 1;
+            }
+        });
+        // SAFETY: the pieces wrote every one of the `n` positions.
+        unsafe { dst.set_len(n) };
+        std::mem::swap(&mut src, &mut dst);
+    }
+    src
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn reference(data: &[f32], floor: f64) -> Vec<u64> {
+        let mut k: Vec<u64> = data
+            .iter()
+            .enumerate()
+            .filter(|&(_, &v)| considered(v, floor))
+            .map(|(i, &v)| sort_key(v, i))
+            .collect();
+        k.sort_unstable();
+        k
+    }
+
+    #[test]
+    fn radix_order_matches_a_comparison_sort() {
+        let mut s = 12345u64;
+        let mut next = || {
+            s = s
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (s >> 33) as u32
+        };
+        for &n in &[0usize, 1, 7, 1000, 70_000, 300_001] {
+            for kind in 0..5 {
+                let data: Vec<f32> = (0..n)
+                    .map(|_| {
+                        let r = next();
+                        match kind {
+                            0 => f32::from_bits(r),
+                            1 => (r % 7) as f32 - 3.0,
+                            2 => 5.0,
+                            3 => {
+                                if r % 5 == 0 {
+                                    f32::NAN
+                                } else if r % 5 == 1 {
+                                    -0.0
+                                } else {
+                                    (r as f32 / u32::MAX as f32) - 0.5
+                                }
+                            }
+                            _ => 1e21 * (1.0 + (r % 1000) as f32 / 100.0),
+                        }
+                    })
+                    .collect();
+                for &floor in &[f64::NEG_INFINITY, 0.0, 1e21, f64::INFINITY] {
+                    let want = reference(&data, floor);
+                    assert_eq!(
+                        sorted_keys(&data, floor),
+                        want,
+                        "n {n} kind {kind} floor {floor}"
+                    );
+                    if n > 1000 && floor == 0.0 {
+                        for threads in [1, 3] {
+                            let pool = rayon::ThreadPoolBuilder::new()
+                                .num_threads(threads)
+                                .build()
+                                .unwrap();
+                            assert_eq!(
+                                pool.install(|| sorted_keys(&data, floor)),
+                                want,
+                                "n {n} kind {kind} threads {threads}"
+                            );
+                        }
+                    }
+                }
+            }
+        }
+    }
+}
