@@ -32,7 +32,9 @@ enum Command {
     /// Draw the figures of a finished run again, with other style options.
     Draw(Box<DrawArgs>),
     /// Compare the core populations of finished runs: mass functions, tests, mass-size relations.
-    #[command(after_help = "Caution: masses carry factor-of-two systematics from dust opacity, temperature and distance;\ndifferences between clouds smaller than that need the same assumptions on both sides (compare warns when they differ).")]
+    #[command(
+        after_help = "Caution: masses carry factor-of-two systematics from dust opacity, temperature and distance;\ndifferences between clouds smaller than that need the same assumptions on both sides (compare warns when they differ)."
+    )]
     Compare(Box<CompareArgs>),
     /// Make a synthetic map with known truth: turbulent background, cores, beam and noise.
     Synth(Box<SynthArgs>),
