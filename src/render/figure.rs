@@ -697,19 +697,35 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             continue;
         }
         let w = text::width(&leaf.label, label_fs);
+        // The leaf's extent on the figure: labels go just outside it, so a small leaf is
+        // never hidden under its own label.
+        let (mut ex0, mut ey0, mut ex1, mut ey1) = (px, py, px, py);
+        for ring in traced.get(&leaf.id).into_iter().flatten() {
+            for &(x, y) in ring {
+                let (qx, qy) = lay.map_to_figure(x, y);
+                ex0 = ex0.min(qx);
+                ex1 = ex1.max(qx);
+                ey0 = ey0.min(qy);
+                ey1 = ey1.max(qy);
+            }
+        }
+        // Very large leaves keep their labels near the peak rather than at their far edge.
+        let reach = 3.0 * label_fs;
+        let (ex0, ex1) = (ex0.max(px - reach), ex1.min(px + reach));
+        let (ey0, ey1) = (ey0.max(py - reach), ey1.min(py + reach));
         let mut best: Option<(f64, f64)> = None;
         'search: for ring in 1..=4 {
-            let r = 0.45 * label_fs * ring as f64;
-            // Baseline-left positions of the label for offsets around the peak.
+            let r = 0.25 * label_fs * ring as f64;
+            // Baseline-left positions of the label around the leaf's extent.
             let cands = [
-                (px + r, py - r),
-                (px - r - w, py - r),
-                (px + r, py + r + cap_h),
-                (px - r - w, py + r + cap_h),
-                (px - w / 2.0, py - r),
-                (px - w / 2.0, py + r + cap_h),
-                (px + r, py + cap_h / 2.0),
-                (px - r - w, py + cap_h / 2.0),
+                (ex1 + r, ey0 - r),
+                (ex0 - r - w, ey0 - r),
+                (ex1 + r, ey1 + r + cap_h),
+                (ex0 - r - w, ey1 + r + cap_h),
+                (px - w / 2.0, ey0 - r),
+                (px - w / 2.0, ey1 + r + cap_h),
+                (ex1 + r, py + cap_h / 2.0),
+                (ex0 - r - w, py + cap_h / 2.0),
             ];
             for (bx, by) in cands {
                 let bb = (bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad);
