@@ -710,7 +710,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             }
         }
         // Very large leaves keep their labels near the peak rather than at their far edge.
-        let reach = 3.0 * label_fs;
+        let reach = 0.8 * label_fs;
         let (ex0, ex1) = (ex0.max(px - reach), ex1.min(px + reach));
         let (ey0, ey1) = (ey0.max(py - reach), ey1.min(py + reach));
         let mut best: Option<(f64, f64)> = None;
