@@ -2,6 +2,7 @@
 //! drawing of every element into a [`Scene`].
 
 use super::axes::{self, AxisTicks, Edge, Region};
+use super::legend;
 use super::outline::trace_outlines;
 use super::raster::{self, Lut, Scale};
 use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
@@ -215,15 +216,6 @@ fn colorbar_ticks(lo: f64, hi: f64, stretch: Stretch) -> Vec<(f64, String)> {
     }
 }
 
-fn legend_label(o: &Overlay, i: usize) -> String {
-    let st = &o.states[i];
-    if st.description.is_empty() {
-        st.name.clone()
-    } else {
-        format!("{}: {}", st.name, st.description)
-    }
-}
-
 /// Computes the layout of a map figure (including the display limits of the colour scale).
 pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let region = validate(o, s)?;
@@ -305,19 +297,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let frame = (left, top.round(), fw, fh);
 
     // Legend rows below the axis title.
-    let sample = 2.6 * fs;
-    let mut rows: Vec<Vec<(usize, f64)>> = Vec::new();
-    let mut x = 0.0;
-    let avail = w_total - 2.0 * m.pad;
-    for i in 0..o.states.len() {
-        let ew = sample + m.gap + text::width(&legend_label(o, i), fs);
-        if rows.is_empty() || (x > 0.0 && x + ew > avail) {
-            rows.push(Vec::new());
-            x = 0.0;
-        }
-        rows.last_mut().expect("a row exists").push((i, x));
-        x += ew + 1.5 * fs;
-    }
+    let rows = legend::rows(&o.states, fs, m.gap, w_total - 2.0 * m.pad);
     let below = m.tick + m.gap + 1.25 * lfs + m.gap + 1.3 * fs;
     let legend_top = frame.1 + fh + below + m.pad;
     let legend_h = rows.len() as f64 * 1.5 * fs;
@@ -823,42 +803,18 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     );
 
     // Legend of states.
-    let sample = 2.6 * fs;
-    for (r, row) in lay.legend_rows.iter().enumerate() {
-        let yc = lay.legend_top + (r as f64 + 0.5) * 1.5 * fs;
-        for &(i, x) in row {
-            let x = m.pad + x;
-            let dash = state_dash(i, lw);
-            sc.path(
-                PathData::line(x + 0.2 * fs, yc, x + sample - 0.2 * fs, yc),
-                vec![
-                    Paint::Stroke(Line {
-                        color: Rgba(0, 0, 0, 200),
-                        width: lw + 1.1 * m.pt,
-                        dash: dash.clone(),
-                        round: true,
-                    }),
-                    Paint::Stroke(Line {
-                        color: state_colour(i),
-                        width: lw,
-                        dash,
-                        round: true,
-                    }),
-                ],
-                "legend-sample",
-            );
-            sc.text(
-                &legend_label(o, i),
-                x + sample + m.gap,
-                yc,
-                fs,
-                0.0,
-                0.5,
-                false,
-                Rgba::BLACK,
-                None,
-            );
-        }
-    }
+    legend::draw(
+        &mut sc,
+        &o.states,
+        &lay.legend_rows,
+        m.pad,
+        lay.legend_top,
+        fs,
+        m.gap,
+        &legend::SampleLines {
+            width: lw,
+            casing: lw + 1.1 * m.pt,
+        },
+    );
     Ok(sc)
 }

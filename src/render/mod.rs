@@ -23,6 +23,7 @@
 
 pub mod axes;
 mod figure;
+mod legend;
 pub mod outline;
 pub mod plot;
 pub mod raster;

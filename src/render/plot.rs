@@ -21,7 +21,9 @@
 
 use super::RenderError;
 use super::axes::sci_label;
-use super::scene::{Item, Line, Paint, PathData, Rgba, Scene, Seg, num, path_string, xml_escape};
+use super::scene::{
+    Item, Line, Paint, PathData, Rgba, Scene, Seg, num, path_string, stroke_attrs, xml_escape,
+};
 use super::text;
 use super::{state_colour, state_dash};
 use std::fmt::Write as _;
@@ -759,24 +761,8 @@ fn paint_attrs(ps: &[&Paint]) -> String {
     }
     match stroke {
         Some(l) => {
-            let _ = write!(
-                a,
-                " stroke=\"{}\" stroke-width=\"{}\"",
-                l.color.hex(),
-                num(l.width)
-            );
-            if l.color.3 != 255 {
-                let _ = write!(a, " stroke-opacity=\"{}\"", num(l.color.3 as f64 / 255.0));
-            }
-            if l.round {
-                a.push_str(" stroke-linecap=\"round\" stroke-linejoin=\"round\"");
-            } else {
-                a.push_str(" stroke-linejoin=\"miter\" stroke-miterlimit=\"4\"");
-            }
-            if !l.dash.is_empty() {
-                let d: Vec<String> = l.dash.iter().map(|&v| num(v)).collect();
-                let _ = write!(a, " stroke-dasharray=\"{}\"", d.join(" "));
-            }
+            a.push(' ');
+            a.push_str(&stroke_attrs(l));
         }
         None => a.push_str(" stroke=\"none\""),
     }

@@ -489,27 +489,30 @@ fn paint_attrs(p: &Paint) -> String {
             }
             a
         }
-        Paint::Stroke(l) => {
-            let mut a = format!(
-                "fill=\"none\" stroke=\"{}\" stroke-width=\"{}\"",
-                l.color.hex(),
-                num(l.width)
-            );
-            if l.color.3 != 255 {
-                let _ = write!(a, " stroke-opacity=\"{}\"", num(l.color.3 as f64 / 255.0));
-            }
-            if l.round {
-                a.push_str(" stroke-linecap=\"round\" stroke-linejoin=\"round\"");
-            } else {
-                a.push_str(" stroke-linejoin=\"miter\" stroke-miterlimit=\"4\"");
-            }
-            if !l.dash.is_empty() {
-                let d: Vec<String> = l.dash.iter().map(|&v| num(v)).collect();
-                let _ = write!(a, " stroke-dasharray=\"{}\"", d.join(" "));
-            }
-            a
-        }
+        Paint::Stroke(l) => format!("fill=\"none\" {}", stroke_attrs(l)),
     }
+}
+
+/// SVG attributes of a stroke: colour, width, opacity, caps and joins, dashes.
+pub(crate) fn stroke_attrs(l: &Line) -> String {
+    let mut a = format!(
+        "stroke=\"{}\" stroke-width=\"{}\"",
+        l.color.hex(),
+        num(l.width)
+    );
+    if l.color.3 != 255 {
+        let _ = write!(a, " stroke-opacity=\"{}\"", num(l.color.3 as f64 / 255.0));
+    }
+    if l.round {
+        a.push_str(" stroke-linecap=\"round\" stroke-linejoin=\"round\"");
+    } else {
+        a.push_str(" stroke-linejoin=\"miter\" stroke-miterlimit=\"4\"");
+    }
+    if !l.dash.is_empty() {
+        let d: Vec<String> = l.dash.iter().map(|&v| num(v)).collect();
+        let _ = write!(a, " stroke-dasharray=\"{}\"", d.join(" "));
+    }
+    a
 }
 
 /// A number with at most two decimals and no trailing zeros.

@@ -7,6 +7,7 @@
 //! drawing it on to the branch's own peak would leave a stub with nothing attached.
 
 use super::axes;
+use super::legend;
 use super::scene::{Line, Paint, PathData, Rgba, Scene};
 use super::text;
 use super::{RenderError, StateLegend, Stretch, Style, TreeNode, state_colour, state_dash};
@@ -189,26 +190,7 @@ pub(crate) fn scene(
     let ph = (0.55 * w_total).round();
 
     // Legend rows.
-    let sample = 2.6 * fs;
-    let label = |i: usize| {
-        let st = &states[i];
-        if st.description.is_empty() {
-            st.name.clone()
-        } else {
-            format!("{}: {}", st.name, st.description)
-        }
-    };
-    let mut rows: Vec<Vec<(usize, f64)>> = Vec::new();
-    let mut xr = 0.0;
-    for i in 0..states.len() {
-        let ew = sample + gap + text::width(&label(i), fs);
-        if rows.is_empty() || (xr > 0.0 && xr + ew > w_total - 2.0 * pad) {
-            rows.push(Vec::new());
-            xr = 0.0;
-        }
-        rows.last_mut().expect("a row exists").push((i, xr));
-        xr += ew + 1.5 * fs;
-    }
+    let rows = legend::rows(states, fs, gap, w_total - 2.0 * pad);
     let legend_top = top + ph + pad;
     let height = (legend_top + rows.len() as f64 * 1.5 * fs + pad).ceil() as u32;
 
@@ -342,42 +324,19 @@ pub(crate) fn scene(
     );
 
     // Legend.
-    for (r, row) in rows.iter().enumerate() {
-        let yc = legend_top + (r as f64 + 0.5) * 1.5 * fs;
-        for &(i, x) in row {
-            let x = pad + x;
-            let dash = state_dash(i, 0.9 * pt);
-            sc.path(
-                PathData::line(x + 0.2 * fs, yc, x + sample - 0.2 * fs, yc),
-                vec![
-                    Paint::Stroke(Line {
-                        color: Rgba(0, 0, 0, 200),
-                        width: 1.7 * pt,
-                        dash: dash.clone(),
-                        round: true,
-                    }),
-                    Paint::Stroke(Line {
-                        color: state_colour(i),
-                        width: 0.9 * pt,
-                        dash,
-                        round: true,
-                    }),
-                ],
-                "legend-sample",
-            );
-            sc.text(
-                &label(i),
-                x + sample + gap,
-                yc,
-                fs,
-                0.0,
-                0.5,
-                false,
-                Rgba::BLACK,
-                None,
-            );
-        }
-    }
+    legend::draw(
+        &mut sc,
+        states,
+        &rows,
+        pad,
+        legend_top,
+        fs,
+        gap,
+        &legend::SampleLines {
+            width: 0.9 * pt,
+            casing: 1.7 * pt,
+        },
+    );
     Ok(sc)
 }
 
