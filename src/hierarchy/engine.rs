@@ -1,6 +1,6 @@
 //! The sweep: sort, union-find with on-the-fly simplification, then numbering and labels.
 
-use super::{Hierarchy, HierarchyError, Params, Structure, moments, radix};
+use super::{Hierarchy, HierarchyError, Params, Structure, moments, pages, radix};
 use ndarray::{Array2, ArrayView2};
 use petgraph::graph::{DiGraph, NodeIndex};
 use rayon::prelude::*;
@@ -177,14 +177,10 @@ pub fn build_with_progress(
 
     // 2. Sweep.
     let mut keys = keys;
-    let mut cells: Vec<u32> = Vec::with_capacity(npix);
-    cells
-        .spare_capacity_mut()
-        .par_chunks_mut(1 << 16)
-        .for_each(|c| c.fill(std::mem::MaybeUninit::new(UNVISITED)));
-    // SAFETY: all `npix` cells were just written.
-    unsafe { cells.set_len(npix) };
-    let mut nodes = sweep(&mut cells, ncols, &mut keys, params, progress);
+    let mut cells: Vec<u32> = pages::filled(npix, UNVISITED);
+    let masks = earlier_neighbours(data, ncols, floor, params.connectivity);
+    let mut nodes = sweep(&mut cells, &masks, ncols, &mut keys, params, progress);
+    drop(masks);
     progress(0.9);
 
     // 3. Accepted structures, ids, labels.
@@ -309,6 +305,105 @@ pub fn build_with_progress(
     })
 }
 
+/// Steps in the linear index to the eight neighbours, in the order of the mask bits: the row
+/// above (left, middle, right), left, right, the row below (left, middle, right).
+fn neighbour_steps(ncols: usize) -> [isize; 8] {
+    let w = ncols as isize;
+    [-w - 1, -w, -w + 1, -1, 1, w - 1, w, w + 1]
+}
+
+/// Asks the processor to fetch the cache line holding `bytes[i]`.
+#[inline(always)]
+fn prefetch_byte(bytes: &[u8], i: usize) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        let ptr = bytes[i..].as_ptr() as *const i8;
+        // SAFETY: a prefetch is only a hint; it never faults and `ptr` points into `bytes`.
+        #[allow(unused_unsafe)]
+        unsafe {
+            std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(ptr)
+        };
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = (bytes, i);
+}
+
+/// Rows per parallel task of [`earlier_neighbours`] (fixed, so the work split never matters;
+/// the result does not depend on it anyway, each byte being a function of its pixel alone).
+const MASK_ROWS: usize = 16;
+
+/// For each considered pixel, one bit per neighbour (order of [`neighbour_steps`]) that the
+/// sweep visits before it: considered and earlier in the pixel order (higher value, or equal
+/// value and lower linear index). Zero for pixels not considered. Computed in parallel in
+/// raster order, so the sequential sweep reads one byte instead of testing up to eight
+/// scattered cells.
+fn earlier_neighbours(
+    data: &[f32],
+    ncols: usize,
+    floor: f64,
+    connectivity: super::Connectivity,
+) -> Vec<u8> {
+    let npix = data.len();
+    let nrows = npix / ncols;
+    let allowed: u8 = match connectivity {
+        super::Connectivity::Eight => 0xff,
+        super::Connectivity::Four => 0b0101_1010,
+    };
+    // Order keys with 0 for pixels not considered (no considered pixel has key 0), padded
+    // by one column of zeros on each side.
+    let key_row = |y: usize, buf: &mut [u32]| {
+        if y >= nrows {
+            buf.fill(0);
+            return;
+        }
+        buf[0] = 0;
+        buf[ncols + 1] = 0;
+        for (b, &v) in buf[1..=ncols]
+            .iter_mut()
+            .zip(&data[y * ncols..(y + 1) * ncols])
+        {
+            *b = if !v.is_nan() && v as f64 >= floor {
+                order_key(v)
+            } else {
+                0
+            };
+        }
+    };
+    let mut masks: Vec<u8> = pages::filled(npix, 0);
+    masks
+        .par_chunks_mut(MASK_ROWS * ncols)
+        .enumerate()
+        .for_each(|(c, out)| {
+            let y0 = c * MASK_ROWS;
+            let mut above = vec![0u32; ncols + 2];
+            let mut here = vec![0u32; ncols + 2];
+            let mut below = vec![0u32; ncols + 2];
+            if y0 > 0 {
+                key_row(y0 - 1, &mut above);
+            }
+            key_row(y0, &mut here);
+            for (r, row) in out.chunks_mut(ncols).enumerate() {
+                key_row(y0 + r + 1, &mut below);
+                for (x, m) in row.iter_mut().enumerate() {
+                    let kp = here[x + 1];
+                    let bits = (above[x] >= kp) as u8
+                        | ((above[x + 1] >= kp) as u8) << 1
+                        | ((above[x + 2] >= kp) as u8) << 2
+                        | ((here[x] >= kp) as u8) << 3
+                        | ((here[x + 2] > kp) as u8) << 4
+                        | ((below[x] > kp) as u8) << 5
+                        | ((below[x + 1] > kp) as u8) << 6
+                        | ((below[x + 2] > kp) as u8) << 7;
+                    // A pixel not considered (kp = 0) would see every neighbour as "earlier".
+                    *m = if kp == 0 { 0 } else { bits & allowed };
+                }
+                std::mem::swap(&mut above, &mut here);
+                std::mem::swap(&mut here, &mut below);
+            }
+        });
+    masks
+}
+
 /// How many pixels ahead the sweep prefetches.
 const AHEAD: usize = 32;
 
@@ -322,17 +417,17 @@ const AHEAD: usize = 32;
 /// is read in order anyway.
 fn sweep(
     cells: &mut [u32],
+    masks: &[u8],
     ncols: usize,
     keys: &mut [u64],
     params: &Params,
     progress: &dyn Fn(f64),
 ) -> Vec<Node> {
     let npix = cells.len();
-    let nrows = npix / ncols;
     let mut nodes: Vec<Node> = Vec::new();
-    let eight = matches!(params.connectivity, super::Connectivity::Eight);
     let min_area = params.min_area;
     let prominence = params.prominence;
+    let delta = neighbour_steps(ncols);
     let nkeys = keys.len();
     for step in 0..nkeys {
         if step % PROGRESS_STEP == 0 && step > 0 {
@@ -343,47 +438,23 @@ fn sweep(
             prefetch(cells, q.saturating_sub(ncols));
             prefetch(cells, q);
             prefetch(cells, (q + ncols).min(npix - 1));
+            prefetch_byte(masks, q);
         }
         let key = keys[step];
         let p = key as u32 as usize;
         let v = from_order_key(!((key >> 32) as u32));
-        let x = p % ncols;
-        let y = p / ncols;
-        // Distinct components among the neighbours visited before p.
+        // Distinct components among the neighbours visited before p (the bits of its mask).
         let mut roots = [0u32; 8];
         let mut k = 0usize;
-        let mut visit = |q: usize, cells: &mut [u32]| {
-            if cells[q] != UNVISITED {
-                let r = find(cells, q as u32);
-                if !roots[..k].contains(&r) {
-                    roots[k] = r;
-                    k += 1;
-                }
-            }
-        };
-        let (left, right, up, down) = (x > 0, x + 1 < ncols, y > 0, y + 1 < nrows);
-        if up {
-            if eight && left {
-                visit(p - ncols - 1, cells);
-            }
-            visit(p - ncols, cells);
-            if eight && right {
-                visit(p - ncols + 1, cells);
-            }
-        }
-        if left {
-            visit(p - 1, cells);
-        }
-        if right {
-            visit(p + 1, cells);
-        }
-        if down {
-            if eight && left {
-                visit(p + ncols - 1, cells);
-            }
-            visit(p + ncols, cells);
-            if eight && right {
-                visit(p + ncols + 1, cells);
+        let mut bits = masks[p] as u32;
+        while bits != 0 {
+            let j = bits.trailing_zeros() as usize;
+            bits &= bits - 1;
+            let q = p.wrapping_add(delta[j] as usize);
+            let r = find(cells, q as u32);
+            if !roots[..k].contains(&r) {
+                roots[k] = r;
+                k += 1;
             }
         }
         let (link_p, node_p) = match k {

@@ -67,13 +67,17 @@
 //!
 //! # Memory
 //! Besides the map: 8 bytes per considered pixel for the sorted keys (16 while the radix sort
-//! runs, which needs a second buffer) and one 4-byte cell per pixel during the sweep (the
+//! runs, which needs a second buffer), one 4-byte cell per pixel during the sweep (the
 //! union-find link, or the open node at a component root; small so that as much of the map
-//! as possible stays in cache for the spatially random sweep), plus 28 bytes per candidate
-//! peak (regional maximum) met. The sweep writes each pixel's visiting node into the high half
+//! as possible stays in cache for the spatially random sweep) and one byte per pixel saying
+//! which neighbours come earlier in the pixel order (computed in parallel in raster order, so
+//! the sweep reads one byte instead of testing up to eight scattered cells and never needs
+//! the pixel's row and column), plus 28 bytes per candidate peak (regional maximum) met. The
+//! cells and those bytes are backed by transparent huge pages where Linux grants them
+//! (`pages.rs`): fewer address-translation misses in the random sweep. The sweep writes each pixel's visiting node into the high half
 //! of its key, which it has just read; the cells then become the 4-byte label array in place
 //! and the labels are scattered from the keys. So the peak is about map + 16 bytes per pixel
-//! (during the sort), and map + 12 during the sweep. Moment sums are gathered after the sweep
+//! (during the sort), and map + 13 during the sweep. Moment sums are gathered after the sweep
 //! from the label map, for the accepted structures only (absorbed candidates never carry
 //! sums), in row blocks fixed by the map size so that sums do not depend on the thread count.
 //!
@@ -84,6 +88,7 @@
 mod engine;
 mod grow;
 mod moments;
+mod pages;
 mod radix;
 
 use ndarray::Array2;
