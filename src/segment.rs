@@ -599,35 +599,63 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
 }
 
 /// The hierarchy as JSON: structures with parent, children and levels.
-pub fn tree_json(h: &Hierarchy, ms: &[Measurement], map: &Map) -> serde_json::Value {
-    let structures: Vec<serde_json::Value> = h
-        .structures
-        .iter()
-        .zip(ms)
-        .map(|(s, m)| {
-            serde_json::json!({
-                "id": s.id,
-                "kind": m.kind.word(),
-                "parent": s.parent,
-                "children": s.children,
-                "peak": s.peak_value,
-                "peak_x": s.peak_x,
-                "peak_y": s.peak_y,
-                "merge_level": m.merge_level,
-                "area_px": s.npix,
-                "depth": s.depth,
+/// The hierarchy file's content. Keys are written in alphabetical order.
+#[derive(serde::Serialize)]
+pub struct TreeFile<'a> {
+    connectivity: u8,
+    floor: f64,
+    min_area_px: usize,
+    prominence: f64,
+    roots: Vec<u32>,
+    structures: Vec<TreeNode<'a>>,
+    unit: &'a str,
+}
+
+/// One structure of the hierarchy file.
+#[derive(serde::Serialize)]
+struct TreeNode<'a> {
+    area_px: u64,
+    children: &'a [u32],
+    depth: u32,
+    id: u32,
+    kind: &'static str,
+    /// NaN (written as null) for roots.
+    merge_level: f64,
+    parent: Option<u32>,
+    peak: f64,
+    peak_x: usize,
+    peak_y: usize,
+}
+
+pub fn tree_json<'a>(h: &'a Hierarchy, ms: &[Measurement], map: &'a Map) -> TreeFile<'a> {
+    TreeFile {
+        connectivity: match h.params.connectivity {
+            Connectivity::Four => 4,
+            Connectivity::Eight => 8,
+        },
+        floor: h.params.floor,
+        min_area_px: h.params.min_area,
+        prominence: h.params.prominence,
+        roots: h.roots(),
+        structures: h
+            .structures
+            .iter()
+            .zip(ms)
+            .map(|(s, m)| TreeNode {
+                area_px: s.npix,
+                children: &s.children,
+                depth: s.depth,
+                id: s.id,
+                kind: m.kind.word(),
+                merge_level: m.merge_level,
+                parent: s.parent,
+                peak: s.peak_value,
+                peak_x: s.peak_x,
+                peak_y: s.peak_y,
             })
-        })
-        .collect();
-    serde_json::json!({
-        "unit": map.unit_text,
-        "floor": h.params.floor,
-        "prominence": h.params.prominence,
-        "min_area_px": h.params.min_area,
-        "connectivity": match h.params.connectivity { Connectivity::Four => 4, Connectivity::Eight => 8 },
-        "roots": h.roots(),
-        "structures": structures,
-    })
+            .collect(),
+        unit: &map.unit_text,
+    }
 }
 
 /// The hierarchy as Graphviz DOT (petgraph's writer), nodes labelled by id.
@@ -828,25 +856,42 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let mut meta = meta;
     meta.extend(physics_meta(&o.physics, map));
     let table = catalogue(map, &rows, phys_rows.as_deref(), with_distance, &r, &meta);
-    output::write_bytes(&outputs.temp(names::CSV), table.to_csv().as_bytes())?;
-    table.write_fits(&outputs.temp(names::FITS_TABLE))?;
-    output::write_bytes(&outputs.temp(names::VOTABLE), table.to_votable().as_bytes())?;
-    crate::fits_write::write_image_i32(
-        &outputs.temp(names::LABELS),
-        h.labels.view(),
-        &label_header(map, "smallest structure id per pixel"),
-        true,
-    )
-    .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
-    if let Some(g) = &grown {
+    // The writers run concurrently: the FITS files on one thread (one CFITSIO user at a
+    // time), the text files on the other. Every file is complete before any is renamed.
+    let write_fits_files = || -> Result<()> {
+        table.write_fits(&outputs.temp(names::FITS_TABLE))?;
         crate::fits_write::write_image_i32(
-            &outputs.temp(names::GROWN),
-            g.view(),
-            &label_header(map, "leaf id per pixel, grown to the floor"),
+            &outputs.temp(names::LABELS),
+            h.labels.view(),
+            &label_header(map, "smallest structure id per pixel"),
             true,
         )
-        .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
-    }
+        .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
+        if let Some(g) = &grown {
+            crate::fits_write::write_image_i32(
+                &outputs.temp(names::GROWN),
+                g.view(),
+                &label_header(map, "leaf id per pixel, grown to the floor"),
+                true,
+            )
+            .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
+        }
+        Ok(())
+    };
+    let write_text_files = || -> Result<()> {
+        let (csv, votable) = table.to_csv_and_votable();
+        output::write_bytes(&outputs.temp(names::CSV), csv.as_bytes())?;
+        output::write_bytes(&outputs.temp(names::VOTABLE), votable.as_bytes())?;
+        let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
+            .map_err(|e| Error::internal(e.to_string()))?
+            + "\n";
+        output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
+        output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
+        Ok(())
+    };
+    let (fits_done, text_done) = rayon::join(write_fits_files, write_text_files);
+    fits_done?;
+    text_done?;
     if let Some(style) = &o.figure {
         let input = crate::draw::FigureInput {
             map,
@@ -889,11 +934,6 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         }
         progress("figures", 1.0);
     }
-    let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
-        .map_err(|e| Error::internal(e.to_string()))?
-        + "\n";
-    output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
-    output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
 
     let leaves = ms.iter().filter(|m| m.kind == Kind::Leaf).count();
     let branches = ms.iter().filter(|m| m.kind == Kind::Branch).count();
