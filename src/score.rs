@@ -44,6 +44,7 @@
 use std::sync::OnceLock;
 
 use ndarray::Array2;
+use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::hierarchy::Hierarchy;
@@ -309,33 +310,62 @@ pub fn score(
 ) -> Result<Vec<Physical>, String> {
     let conv = Converter::new(map, ctx)?;
     let ns = h.structures.len();
+    // Rows are cut into blocks whose number depends only on the map size and the number of
+    // structures (never on the thread count); blocks are summed in parallel and added in
+    // row order, so the sums are identical for any thread count.
+    let (nrows, ncols) = h.labels.dim();
+    let npix = nrows * ncols;
+    let nblocks = (npix / (ns.max(1) * 64)).clamp(1, 32).min(nrows.max(1));
+    let rows_per = nrows.div_ceil(nblocks).max(1);
+    let blocks: Vec<Vec<Sums>> = (0..nblocks)
+        .into_par_iter()
+        .map(|b| {
+            let mut own = vec![Sums::default(); ns];
+            for y in (b * rows_per)..((b + 1) * rows_per).min(nrows) {
+                for x in 0..ncols {
+                    let l = h.labels[(y, x)];
+                    if l < 0 {
+                        continue;
+                    }
+                    let v = map.data[(y, x)] as f64;
+                    let f = conv.factor(y, x);
+                    let n = f * v;
+                    let s = &mut own[l as usize];
+                    s.n_col += n;
+                    s.f += f;
+                    s.f2 += f * f;
+                    if let Some(t) = &ctx.temperature_k {
+                        let tv = t.at(y, x);
+                        if tv.is_finite() {
+                            s.n_t += n * tv;
+                            s.n_t_weight += n;
+                        }
+                    }
+                    if let Some(sig) = &ctx.sigma_nt {
+                        let sv = sig.at(y, x);
+                        if sv.is_finite() {
+                            s.n_s2 += n * sv * sv;
+                            s.n_s2_weight += n;
+                        }
+                    }
+                }
+            }
+            own
+        })
+        .collect();
     let mut own = vec![Sums::default(); ns];
-    for ((y, x), &l) in h.labels.indexed_iter() {
-        if l < 0 {
-            continue;
-        }
-        let v = map.data[(y, x)] as f64;
-        let f = conv.factor(y, x);
-        let n = f * v;
-        let s = &mut own[l as usize];
-        s.n_col += n;
-        s.f += f;
-        s.f2 += f * f;
-        if let Some(t) = &ctx.temperature_k {
-            let tv = t.at(y, x);
-            if tv.is_finite() {
-                s.n_t += n * tv;
-                s.n_t_weight += n;
-            }
-        }
-        if let Some(sig) = &ctx.sigma_nt {
-            let sv = sig.at(y, x);
-            if sv.is_finite() {
-                s.n_s2 += n * sv * sv;
-                s.n_s2_weight += n;
-            }
+    for block in &blocks {
+        for (o, b) in own.iter_mut().zip(block) {
+            o.n_col += b.n_col;
+            o.f += b.f;
+            o.f2 += b.f2;
+            o.n_t += b.n_t;
+            o.n_t_weight += b.n_t_weight;
+            o.n_s2 += b.n_s2;
+            o.n_s2_weight += b.n_s2_weight;
         }
     }
+    drop(blocks);
     // Children have larger ids than their parents: add from the last id down.
     let mut total = own.clone();
     for id in (0..ns).rev() {
