@@ -715,9 +715,17 @@ fn label_header(map: &Map, what: &str) -> Header {
 /// Runs the whole segmentation and writes the outputs. `progress` receives fractions 0..1.
 pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Result<RunSummary> {
     let t0 = Instant::now();
-    // The input's SHA-256 is computed beside the real work.
-    let path = map.path.clone();
-    let hashing = std::thread::spawn(move || sha256_file(&path));
+    // The input's SHA-256 is computed beside the real work: started when the engine begins
+    // its sequential sweep, which leaves the other cores idle.
+    let hashing: std::cell::RefCell<Option<std::thread::JoinHandle<Result<String>>>> =
+        std::cell::RefCell::new(None);
+    let start_hashing = || {
+        let mut h = hashing.borrow_mut();
+        if h.is_none() {
+            let path = map.path.clone();
+            *h = Some(std::thread::spawn(move || sha256_file(&path)));
+        }
+    };
     let r = resolve(map, o)?;
     let t_resolve = t0.elapsed().as_secs_f64();
     let mut names_list: Vec<String> = [
@@ -754,6 +762,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     };
     let t_tree = Instant::now();
     let h = match hierarchy::build_with_progress(map.data.view(), &params, &|f| {
+        if f >= 0.3 {
+            start_hashing();
+        }
         progress("hierarchy", f)
     }) {
         Ok(h) => h,
@@ -787,7 +798,10 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         .then(|| hierarchy::grow_leaves(map.data.view(), &h, r.floor));
     progress("measure", 1.0);
 
+    start_hashing();
     let input_sha = hashing
+        .take()
+        .ok_or_else(|| Error::internal("hashing the input was not started"))?
         .join()
         .map_err(|_| Error::internal("hashing the input failed"))??;
     let meta: Vec<(String, String, String)> = vec![
