@@ -128,6 +128,20 @@ pub fn build_with_progress(
     params: &Params,
     progress: &dyn Fn(f64),
 ) -> Result<Hierarchy, HierarchyError> {
+    build_impl(map, params, progress, PACK_LIMIT)
+}
+
+/// Maps of up to this many pixels carry each pixel's earlier-neighbour byte in its key.
+const PACK_LIMIT: usize = 1 << 24;
+
+/// [`build_with_progress`] with the packing limit as a parameter, so tests can run the path of
+/// large maps (separate bytes) on small ones.
+pub(super) fn build_impl(
+    map: ArrayView2<f32>,
+    params: &Params,
+    progress: &dyn Fn(f64),
+    pack_limit: usize,
+) -> Result<Hierarchy, HierarchyError> {
     let (nrows, ncols) = map.dim();
     let npix = nrows * ncols;
     if params.prominence.is_nan() || params.prominence < 0.0 {
@@ -172,14 +186,30 @@ pub fn build_with_progress(
 
     // 1. Pixel order.
     let floor = params.floor;
-    let keys = radix::sorted_keys(data, floor);
+    // Maps of up to 2^24 pixels carry each pixel's earlier-neighbour byte in its key (low
+    // half: index << 8 | byte), so the sweep reads it in order instead of from a scattered
+    // array; larger maps keep the bytes apart.
+    let packed = npix <= pack_limit.min(PACK_LIMIT);
+    let (keys, masks) = if packed {
+        let masks = earlier_neighbours(data, ncols, floor, params.connectivity);
+        (radix::sorted_keys_packed(data, floor, masks), Vec::new())
+    } else {
+        let keys = radix::sorted_keys(data, floor);
+        (
+            keys,
+            earlier_neighbours(data, ncols, floor, params.connectivity),
+        )
+    };
     progress(0.3);
 
     // 2. Sweep.
     let mut keys = keys;
     let mut cells: Vec<u32> = pages::filled(npix, UNVISITED);
-    let masks = earlier_neighbours(data, ncols, floor, params.connectivity);
-    let mut nodes = sweep(&mut cells, &masks, ncols, &mut keys, params, progress);
+    let mut nodes = if packed {
+        sweep::<true>(&mut cells, &masks, ncols, &mut keys, params, progress)
+    } else {
+        sweep::<false>(&mut cells, &masks, ncols, &mut keys, params, progress)
+    };
     drop(masks);
     progress(0.9);
 
@@ -415,7 +445,7 @@ const AHEAD: usize = 32;
 /// node` at a component root. Small cells keep as much of the map as possible in cache, as
 /// the order of the sweep is spatially random; the visiting node goes beside the key, which
 /// is read in order anyway.
-fn sweep(
+fn sweep<const PACKED: bool>(
     cells: &mut [u32],
     masks: &[u8],
     ncols: usize,
@@ -434,19 +464,29 @@ fn sweep(
             progress(0.3 + 0.6 * step as f64 / nkeys as f64);
         }
         if let Some(&ahead) = keys.get(step + AHEAD) {
-            let q = ahead as u32 as usize;
+            let q = if PACKED {
+                (ahead as u32 >> 8) as usize
+            } else {
+                ahead as u32 as usize
+            };
             prefetch(cells, q.saturating_sub(ncols));
             prefetch(cells, q);
             prefetch(cells, (q + ncols).min(npix - 1));
-            prefetch_byte(masks, q);
+            if !PACKED {
+                prefetch_byte(masks, q);
+            }
         }
         let key = keys[step];
-        let p = key as u32 as usize;
+        let (p, mask) = if PACKED {
+            ((key as u32 >> 8) as usize, key as u8)
+        } else {
+            (key as u32 as usize, masks[key as u32 as usize])
+        };
         let v = from_order_key(!((key >> 32) as u32));
         // Distinct components among the neighbours visited before p (the bits of its mask).
         let mut roots = [0u32; 8];
         let mut k = 0usize;
-        let mut bits = masks[p] as u32;
+        let mut bits = mask as u32;
         while bits != 0 {
             let j = bits.trailing_zeros() as usize;
             bits &= bits - 1;

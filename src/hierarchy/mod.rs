@@ -69,21 +69,31 @@
 //! Besides the map: 8 bytes per considered pixel for the sorted keys (16 while the radix sort
 //! runs, which needs a second buffer), one 4-byte cell per pixel during the sweep (the
 //! union-find link, or the open node at a component root; small so that as much of the map
-//! as possible stays in cache for the spatially random sweep) and one byte per pixel saying
-//! which neighbours come earlier in the pixel order (computed in parallel in raster order, so
-//! the sweep reads one byte instead of testing up to eight scattered cells and never needs
-//! the pixel's row and column), plus 28 bytes per candidate peak (regional maximum) met. The
-//! cells and those bytes are backed by transparent huge pages where Linux grants them
-//! (`pages.rs`): fewer address-translation misses in the random sweep. The sweep writes each pixel's visiting node into the high half
-//! of its key, which it has just read; the cells then become the 4-byte label array in place
-//! and the labels are scattered from the keys. So the peak is about map + 16 bytes per pixel
-//! (during the sort), and map + 13 during the sweep. Moment sums are gathered after the sweep
-//! from the label map, for the accepted structures only (absorbed candidates never carry
-//! sums), in row blocks fixed by the map size so that sums do not depend on the thread count.
+//! as possible stays in cache for the spatially random sweep), one byte per pixel saying
+//! which neighbours come earlier in the pixel order, plus 28 bytes per candidate peak
+//! (regional maximum) met. The sweep writes each pixel's visiting node into the high half of
+//! its key, which it has just read; the cells then become the 4-byte label array in place and
+//! the labels are scattered from the keys. So the peak is about map + 16 bytes per pixel
+//! (during the sort), and map + 12 (13 above 2^24 pixels) during the sweep. Moment sums are
+//! gathered after the sweep from the label map, for the accepted structures only (absorbed
+//! candidates never carry sums), in row blocks fixed by the map size so that sums do not
+//! depend on the thread count.
 //!
 //! # Speed
-//! The sort is parallel; the sweep is sequential and bound by memory latency (it prefetches
-//! the cells of the pixels a few steps ahead). `benches/hierarchy.rs` times both.
+//! The sort is parallel; the sweep is sequential and bound by memory latency, so it touches
+//! as little scattered memory per pixel as possible:
+//! * the earlier-neighbour bytes are computed in parallel in raster order before the sweep,
+//!   so it never tests unvisited cells nor needs the pixel's row and column; on maps of up
+//!   to 2^24 pixels each byte rides in the low half of its pixel's key (`index << 8 |
+//!   byte`), read in order, and is freed before the sort's second buffer exists; larger maps
+//!   keep the bytes in their own array, made after the sort;
+//! * the cells of the pixels a few steps ahead are prefetched;
+//! * the cells are filled in parallel before the sweep (`pages.rs`), so their pages are
+//!   faulted in by every thread rather than one by one by the sweep. (Transparent huge pages
+//!   for them were tried and made no measurable difference here.)
+//!
+//! `benches/hierarchy.rs` times the phases and prints a digest of every result, so a change
+//! of the engine can be shown to change no output.
 
 mod engine;
 mod grow;

@@ -73,6 +73,19 @@ fn offsets(hist: &[[usize; BUCKETS]]) -> Vec<[usize; BUCKETS]> {
 
 /// The keys ([`sort_key`]) of the considered pixels of `data`, in increasing order.
 pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
+    sorted_keys_with(data, floor, None)
+}
+
+/// [`sorted_keys`] for maps of at most 2^24 pixels, with each pixel's byte of `bytes` packed
+/// into the low half of its key: `index << 8 | byte`. Only the value half is sorted (stably,
+/// keys made in increasing index), so the order is that of [`sorted_keys`]. The bytes are
+/// freed once copied into the keys, before the sort's second buffer is made.
+pub(super) fn sorted_keys_packed(data: &[f32], floor: f64, bytes: Vec<u8>) -> Vec<u64> {
+    assert!(data.len() <= 1 << 24 && bytes.len() == data.len());
+    sorted_keys_with(data, floor, Some(bytes))
+}
+
+fn sorted_keys_with(data: &[f32], floor: f64, bytes: Option<Vec<u8>>) -> Vec<u64> {
     let npix = data.len();
     let m = pieces(npix);
     // Histograms of every digit, per piece of the map.
@@ -126,7 +139,12 @@ pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
             let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
             for (i, &v) in data[a..b].iter().enumerate() {
                 if considered(v, floor) {
-                    let k = sort_key(v, a + i);
+                    let k = match &bytes {
+                        Some(b) => {
+                            sort_key(v, 0) | u64::from(((a + i) as u32) << 8 | u32::from(b[a + i]))
+                        }
+                        None => sort_key(v, a + i),
+                    };
                     let bk = d0.map_or(0, |d| digit(k, d));
                     // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
                     unsafe { out.write(o[bk], k) };
@@ -137,6 +155,7 @@ pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
         // SAFETY: the pieces wrote every one of the `n` positions (the offsets cover 0..n).
         unsafe { src.set_len(n) };
     }
+    drop(bytes);
     if passes.len() <= 1 {
         return src;
     }
@@ -224,6 +243,19 @@ mod tests {
                         sorted_keys(&data, floor),
                         want,
                         "n {n} kind {kind} floor {floor}"
+                    );
+                    let bytes: Vec<u8> = (0..n).map(|i| (i * 37 % 256) as u8).collect();
+                    let packed: Vec<u64> = want
+                        .iter()
+                        .map(|&k| {
+                            let i = k as u32 as usize;
+                            (k & !0xffff_ffff) | ((i as u64) << 8) | bytes[i] as u64
+                        })
+                        .collect();
+                    assert_eq!(
+                        sorted_keys_packed(&data, floor, bytes),
+                        packed,
+                        "packed n {n} kind {kind} floor {floor}"
                     );
                     if n > 1000 && floor == 0.0 {
                         for threads in [1, 3] {
