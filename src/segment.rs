@@ -778,24 +778,48 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     };
     let tree_seconds = t_tree.elapsed().as_secs_f64();
     progress("measure", 0.0);
-    let t_measure = Instant::now();
-    let ms = measure::measure_all(&h, map.wcs.as_ref());
-    let measure_seconds = t_measure.elapsed().as_secs_f64();
-    let t_physics = Instant::now();
-    let mut physics_note = None;
-    let phys = match crate::score::score(map, &h, &ms, &o.physics, r.noise) {
-        Ok(p) => Some(p),
-        Err(why) => {
-            physics_note = Some(why);
-            None
+    // The label maps are written while the measurements and the physics are made; CFITSIO
+    // is used by this writer alone until it is joined.
+    let labels_path = outputs.temp(names::LABELS);
+    let grown_path = o.grow_leaves.then(|| outputs.temp(names::GROWN));
+    let write_label_maps = || -> Result<f64> {
+        let t = Instant::now();
+        crate::fits_write::write_image_i32(
+            &labels_path,
+            h.labels.view(),
+            &label_header(map, "smallest structure id per pixel"),
+            true,
+        )
+        .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
+        if let Some(path) = &grown_path {
+            let g = hierarchy::grow_leaves(map.data.view(), &h, r.floor);
+            crate::fits_write::write_image_i32(
+                path,
+                g.view(),
+                &label_header(map, "leaf id per pixel, grown to the floor"),
+                true,
+            )
+            .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
         }
+        Ok(t.elapsed().as_secs_f64())
     };
-    let physics_seconds = t_physics.elapsed().as_secs_f64();
+    let analyse = || {
+        let t_measure = Instant::now();
+        let ms = measure::measure_all(&h, map.wcs.as_ref());
+        let measure_seconds = t_measure.elapsed().as_secs_f64();
+        let t_physics = Instant::now();
+        let (phys, physics_note) = match crate::score::score(map, &h, &ms, &o.physics, r.noise) {
+            Ok(p) => (Some(p), None),
+            Err(why) => (None, Some(why)),
+        };
+        let physics_seconds = t_physics.elapsed().as_secs_f64();
+        (ms, measure_seconds, phys, physics_note, physics_seconds)
+    };
+    let ((ms, measure_seconds, phys, physics_note, physics_seconds), labels_written) =
+        rayon::join(analyse, write_label_maps);
+    let label_maps_seconds = labels_written?;
     let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
     let t_write = Instant::now();
-    let grown = o
-        .grow_leaves
-        .then(|| hierarchy::grow_leaves(map.data.view(), &h, r.floor));
     progress("measure", 1.0);
 
     start_hashing();
@@ -870,28 +894,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let mut meta = meta;
     meta.extend(physics_meta(&o.physics, map));
     let table = catalogue(map, &rows, phys_rows.as_deref(), with_distance, &r, &meta);
-    // The writers run concurrently: the FITS files on one thread (one CFITSIO user at a
-    // time), the text files on the other. Every file is complete before any is renamed.
-    let write_fits_files = || -> Result<()> {
-        table.write_fits(&outputs.temp(names::FITS_TABLE))?;
-        crate::fits_write::write_image_i32(
-            &outputs.temp(names::LABELS),
-            h.labels.view(),
-            &label_header(map, "smallest structure id per pixel"),
-            true,
-        )
-        .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
-        if let Some(g) = &grown {
-            crate::fits_write::write_image_i32(
-                &outputs.temp(names::GROWN),
-                g.view(),
-                &label_header(map, "leaf id per pixel, grown to the floor"),
-                true,
-            )
-            .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
-        }
-        Ok(())
-    };
+    // The writers run concurrently: the FITS table on one thread (the only CFITSIO user now),
+    // the text files on the other. Every file is complete before any is renamed.
+    let write_fits_table = || table.write_fits(&outputs.temp(names::FITS_TABLE));
     let write_text_files = || -> Result<()> {
         let (csv, votable) = table.to_csv_and_votable();
         output::write_bytes(&outputs.temp(names::CSV), csv.as_bytes())?;
@@ -903,7 +908,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
         Ok(())
     };
-    let (fits_done, text_done) = rayon::join(write_fits_files, write_text_files);
+    let (fits_done, text_done) = rayon::join(write_fits_table, write_text_files);
     fits_done?;
     text_done?;
     if let Some(style) = &o.figure {
@@ -974,7 +979,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             "hierarchy": tree_seconds,
             "measurements": measure_seconds,
             "physics": physics_seconds,
-            "outputs_except_this_record": t_write.elapsed().as_secs_f64(),
+            "label_maps_while_measuring": label_maps_seconds,
+            "other_outputs_except_this_record": t_write.elapsed().as_secs_f64(),
             "total": seconds,
         },
         "threads": rayon::current_num_threads(),
