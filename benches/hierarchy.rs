@@ -142,12 +142,12 @@ fn main() {
                 connectivity: Connectivity::Eight,
             };
             let (t, h) = best_of(runs, || build(map.view(), &p).unwrap());
-            // Phase times from the progress hook: it reports 0.3 after the sort and 0.9 after
+            // Phase times from the progress hook: it reports SWEEP_STARTS after the sort and 0.9 after
             // the sweep.
             let start = Instant::now();
             let marks = std::cell::RefCell::new(Vec::new());
             build_with_progress(map.view(), &p, &|f| {
-                if f == 0.3 || f == 0.9 {
+                if f == cairn::hierarchy::SWEEP_STARTS || f == 0.9 {
                     marks
                         .borrow_mut()
                         .push((start.elapsed().as_secs_f64(), thread_cpu_seconds()));

@@ -598,8 +598,7 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
     t.notes.push("caution: masses carry factor-of-two systematics from dust opacity, temperature and distance; mass_err is the map noise only".into());
 }
 
-/// The hierarchy as JSON: structures with parent, children and levels.
-/// The hierarchy file's content. Keys are written in alphabetical order.
+/// The hierarchy file's content (serialised as JSON with its keys in alphabetical order).
 #[derive(serde::Serialize)]
 pub struct TreeFile<'a> {
     connectivity: u8,
@@ -627,6 +626,7 @@ struct TreeNode<'a> {
     peak_y: usize,
 }
 
+/// The hierarchy as JSON: structures with parent, children and levels.
 pub fn tree_json<'a>(h: &'a Hierarchy, ms: &[Measurement], map: &'a Map) -> TreeFile<'a> {
     TreeFile {
         connectivity: match h.params.connectivity {
@@ -762,7 +762,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     };
     let t_tree = Instant::now();
     let h = match hierarchy::build_with_progress(map.data.view(), &params, &|f| {
-        if f >= 0.3 {
+        if f >= hierarchy::SWEEP_STARTS {
             start_hashing();
         }
         progress("hierarchy", f)

@@ -200,7 +200,7 @@ pub(super) fn build_impl(
             earlier_neighbours(data, ncols, floor, params.connectivity),
         )
     };
-    progress(0.3);
+    progress(super::SWEEP_STARTS);
 
     // 2. Sweep.
     let mut keys = keys;
@@ -461,7 +461,7 @@ fn sweep<const PACKED: bool>(
     let nkeys = keys.len();
     for step in 0..nkeys {
         if step % PROGRESS_STEP == 0 && step > 0 {
-            progress(0.3 + 0.6 * step as f64 / nkeys as f64);
+            progress(super::SWEEP_STARTS + 0.6 * step as f64 / nkeys as f64);
         }
         if let Some(&ahead) = keys.get(step + AHEAD) {
             let q = if PACKED {

@@ -106,6 +106,10 @@ use petgraph::graph::DiGraph;
 use std::fmt;
 
 pub use engine::{build, build_with_progress};
+
+/// The progress fraction [`build_with_progress`] reports when its sort is done and its
+/// sequential sweep begins (from then until 0.9 one core does the work, the others are free).
+pub const SWEEP_STARTS: f64 = 0.3;
 pub use grow::grow_leaves;
 pub use moments::Moments;
 
