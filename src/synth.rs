@@ -5,8 +5,8 @@
 //!
 //! 1. Background: a Gaussian random field g with power spectrum P(k) ~ k^-index (white noise
 //!    filtered in Fourier space by |k|^(-index/2), the k = 0 term removed), scaled to zero mean
-//!    and unit variance, then made log-normal, N = <N> exp(sigma g - sigma^2 / 2), so that
-//!    ln N has dispersion sigma and N has mean <N> in expectation (common practice for
+//!    and unit variance, then made log-normal, N = `<N>` exp(sigma g - sigma^2 / 2), so that
+//!    ln N has dispersion sigma and N has mean `<N>` in expectation (common practice for
 //!    log-normal column-density fields).
 //! 2. Cores are added in H2 column density. Each core's profile (Gaussian, or a projected
 //!    Bonnor-Ebert sphere from [`crate::physics::lane_emden`]) is sampled on the pixel grid
@@ -118,9 +118,9 @@ pub struct CoreSpec {
     pub x: f64,
     /// Zero-based pixel row of the centre.
     pub y: f64,
-    /// Mass [M_sun].
+    /// Mass \[M_sun\].
     pub mass_msun: f64,
-    /// Radius [pc] (meaning depends on the profile).
+    /// Radius \[pc\] (meaning depends on the profile).
     pub radius_pc: f64,
     /// Profile.
     pub profile: Profile,
@@ -131,19 +131,19 @@ pub struct CoreSpec {
 pub struct CorePopulation {
     /// Number of cores.
     pub count: usize,
-    /// Smallest mass [M_sun].
+    /// Smallest mass \[M_sun\].
     pub mass_min_msun: f64,
-    /// Largest mass [M_sun].
+    /// Largest mass \[M_sun\].
     pub mass_max_msun: f64,
     /// Index of the mass distribution dN/dM ~ M^-index (2.35 is the Salpeter 1955 slope).
     pub mass_index: f64,
-    /// Smallest radius [pc] (radii are drawn uniformly in log).
+    /// Smallest radius \[pc\] (radii are drawn uniformly in log).
     pub radius_min_pc: f64,
-    /// Largest radius [pc].
+    /// Largest radius \[pc\].
     pub radius_max_pc: f64,
     /// Profile of every core.
     pub profile: Profile,
-    /// Distance [pixels] kept free from the map edges.
+    /// Distance \[pixels\] kept free from the map edges.
     pub margin_px: f64,
 }
 
@@ -164,9 +164,9 @@ pub enum Output {
     ColumnDensity,
     /// Optically thin dust emission at one wavelength and temperature.
     DustEmission {
-        /// Wavelength [um].
+        /// Wavelength \[um\].
         wavelength_um: f64,
-        /// Dust temperature [K].
+        /// Dust temperature \[K\].
         temperature_k: f64,
         /// Unit.
         unit: EmissionUnit,
@@ -182,17 +182,17 @@ pub struct SynthSpec {
     pub nx: usize,
     /// Number of rows.
     pub ny: usize,
-    /// Pixel size [arcsec].
+    /// Pixel size \[arcsec\].
     pub pixel_arcsec: f64,
-    /// Longitude of the map centre [deg] (invented).
+    /// Longitude of the map centre \[deg\] (invented).
     pub centre_lon_deg: f64,
-    /// Latitude of the map centre [deg] (invented).
+    /// Latitude of the map centre \[deg\] (invented).
     pub centre_lat_deg: f64,
     /// Celestial frame.
     pub frame: Frame,
-    /// Distance [pc].
+    /// Distance \[pc\].
     pub distance_pc: f64,
-    /// Beam FWHM [arcsec]; 0 for no convolution.
+    /// Beam FWHM \[arcsec\]; 0 for no convolution.
     pub beam_fwhm_arcsec: f64,
     /// Background, or none.
     pub background: Option<Background>,
@@ -238,13 +238,13 @@ pub struct TruthCore {
     pub x: f64,
     /// Zero-based pixel row of the centre.
     pub y: f64,
-    /// Longitude [deg] of the centre (TAN projection).
+    /// Longitude \[deg\] of the centre (TAN projection).
     pub lon_deg: f64,
-    /// Latitude [deg] of the centre.
+    /// Latitude \[deg\] of the centre.
     pub lat_deg: f64,
-    /// Mass [M_sun] (exactly what the map holds).
+    /// Mass \[M_sun\] (exactly what the map holds).
     pub mass_msun: f64,
-    /// Radius [pc].
+    /// Radius \[pc\].
     pub radius_pc: f64,
     /// Profile name: "gaussian" or "bonnor_ebert".
     pub profile: String,
@@ -427,7 +427,7 @@ pub fn all_cores(spec: &SynthSpec) -> Vec<CoreSpec> {
     cores
 }
 
-/// World coordinates (lon, lat) [deg] of zero-based pixel (x, y) in the TAN projection synth
+/// World coordinates (lon, lat) \[deg\] of zero-based pixel (x, y) in the TAN projection synth
 /// writes for `spec` (Calabretta & Greisen 2002, eqs. 54 and 2, with LONPOLE = 180).
 pub fn pixel_to_world(spec: &SynthSpec, x: f64, y: f64) -> (f64, f64) {
     let (crpix1, crpix2) = crpix(spec);

@@ -13,23 +13,23 @@ pub const K_B: f64 = 1.380649e-23;
 pub const H: f64 = 6.62607015e-34;
 /// Speed of light in vacuum c [m s^-1] (exact, SI definition).
 pub const C: f64 = 299_792_458.0;
-/// Proton mass m_p [kg] (CODATA 2022).
+/// Proton mass m_p \[kg\] (CODATA 2022).
 pub const M_P: f64 = 1.672_621_925_95e-27;
-/// Atomic mass constant (unified atomic mass unit) u [kg] (CODATA 2022).
+/// Atomic mass constant (unified atomic mass unit) u \[kg\] (CODATA 2022).
 pub const U: f64 = 1.660_539_068_92e-27;
-/// Mass of a hydrogen atom m_H [kg], taken as the conventional standard atomic weight of
+/// Mass of a hydrogen atom m_H \[kg\], taken as the conventional standard atomic weight of
 /// hydrogen, 1.008, times the atomic mass constant (IUPAC Commission on Isotopic Abundances and
 /// Atomic Weights, conventional value 1.008; value quoted from memory). Used with the mean
 /// molecular weights of Kauffmann et al. (2008).
 pub const M_H: f64 = 1.008 * U;
 /// Nominal solar mass parameter GM_sun [m^3 s^-2] (IAU 2015 Resolution B3).
 pub const GM_SUN: f64 = 1.327_124_4e20;
-/// Solar mass M_sun [kg] = GM_sun / G, as astropy derives it (IAU 2015 Resolution B3 with
+/// Solar mass M_sun \[kg\] = GM_sun / G, as astropy derives it (IAU 2015 Resolution B3 with
 /// CODATA 2022 G).
 pub const M_SUN: f64 = GM_SUN / G;
-/// Astronomical unit [m] (IAU 2012 Resolution B2, exact).
+/// Astronomical unit \[m\] (IAU 2012 Resolution B2, exact).
 pub const AU: f64 = 149_597_870_700.0;
-/// Parsec [m] = au / (1 arcsec in radians) (IAU 2015 Resolution B2, note 4), computed in the
+/// Parsec \[m\] = au / (1 arcsec in radians) (IAU 2015 Resolution B2, note 4), computed in the
 /// same order as astropy (au divided by the radian value of one arcsecond).
 pub const PC: f64 = AU / ((1.0 / 3600.0) * (std::f64::consts::PI / 180.0));
 /// Jansky [W m^-2 Hz^-1] (definition, IAU).

@@ -18,7 +18,7 @@ pub const MU_P: f64 = 2.33;
 pub struct DustOpacity {
     /// Opacity at the reference frequency [cm^2 g^-1 of gas].
     pub kappa0_cm2_per_g: f64,
-    /// Reference frequency [Hz].
+    /// Reference frequency \[Hz\].
     pub nu0_hz: f64,
     /// Emissivity index beta.
     pub beta: f64,
@@ -47,7 +47,7 @@ impl DustOpacity {
         self.kappa_cm2_per_g(nu_hz) * 0.1
     }
 
-    /// kappa at a wavelength [um].
+    /// kappa at a wavelength \[um\].
     pub fn kappa_cm2_per_g_at_um(&self, wavelength_um: f64) -> f64 {
         self.kappa_cm2_per_g(C / (wavelength_um * 1e-6))
     }
@@ -71,8 +71,8 @@ pub fn column_density_from_intensity(
     intensity_si / (MU_H2 * M_H * opacity.kappa_si(nu_hz) * planck_nu(nu_hz, t_k))
 }
 
-/// Gas mass [kg] of optically thin dust emission: M = S_nu d^2 / (kappa_nu B_nu(T))
-/// (Hildebrand 1983), with flux density `flux_jy` [Jy], distance `distance_m` [m], frequency
+/// Gas mass \[kg\] of optically thin dust emission: M = S_nu d^2 / (kappa_nu B_nu(T))
+/// (Hildebrand 1983), with flux density `flux_jy` \[Jy\], distance `distance_m` \[m\], frequency
 /// `nu_hz`, dust temperature `t_k` and the opacity law (per gram of gas).
 pub fn dust_mass(
     flux_jy: f64,
@@ -91,7 +91,7 @@ pub fn sound_speed(t_k: f64) -> f64 {
     (K_B * t_k / (MU_P * M_H)).sqrt()
 }
 
-/// Jeans length lambda_J = (pi c_s^2 / (G rho))^(1/2) [m] at gas temperature `t_k` and H2
+/// Jeans length lambda_J = (pi c_s^2 / (G rho))^(1/2) \[m\] at gas temperature `t_k` and H2
 /// number density `n_h2_m3` [m^-3]; c_s uses mu_p = 2.33 and rho = mu_H2 m_H n(H2) uses
 /// mu_H2 = 2.8 (Kauffmann et al. 2008).
 pub fn jeans_length(t_k: f64, n_h2_m3: f64) -> f64 {
@@ -100,7 +100,7 @@ pub fn jeans_length(t_k: f64, n_h2_m3: f64) -> f64 {
     (std::f64::consts::PI * cs * cs / (G * rho)).sqrt()
 }
 
-/// Jeans mass M_J = (pi^(5/2) / 6) c_s^3 G^(-3/2) rho^(-1/2) [kg] (the mass of a sphere of
+/// Jeans mass M_J = (pi^(5/2) / 6) c_s^3 G^(-3/2) rho^(-1/2) \[kg\] (the mass of a sphere of
 /// diameter lambda_J; common practice, e.g. Stahler & Palla 2004, cited from memory), with the same
 /// conventions as [`jeans_length`].
 pub fn jeans_mass(t_k: f64, n_h2_m3: f64) -> f64 {

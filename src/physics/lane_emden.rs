@@ -174,7 +174,7 @@ impl LaneEmden {
     }
 }
 
-/// Critical Bonnor-Ebert mass [kg] of a sphere of outer radius `radius_m` and isothermal sound
+/// Critical Bonnor-Ebert mass \[kg\] of a sphere of outer radius `radius_m` and isothermal sound
 /// speed `cs` [m/s]: M = C R c_s^2 / G with C = xi_crit psi'(xi_crit).
 pub fn bonnor_ebert_critical_mass(radius_m: f64, cs: f64) -> f64 {
     LaneEmden::new(7.0, 1e-3).critical_mass_coefficient() * radius_m * cs * cs / super::constants::G
@@ -254,7 +254,7 @@ impl BonnorEbertProjection {
         self.sigma[j] * (1.0 - w) + self.sigma[j + 1] * w
     }
 
-    /// Mass surface density [kg m^-2] at projected radius `b_m` [m] of a sphere of mass
+    /// Mass surface density [kg m^-2] at projected radius `b_m` \[m\] of a sphere of mass
     /// `mass_kg` and outer radius `radius_m`: Sigma(b) = rho_c r_0 sigma(b / r_0), with
     /// r_0 = R / xi_max and rho_c = M / (4 pi r_0^3 xi_max^2 psi'(xi_max)).
     pub fn surface_density(&self, mass_kg: f64, radius_m: f64, b_m: f64) -> f64 {

@@ -2,8 +2,8 @@
 
 use super::constants::{C, H, JY, K_B};
 
-/// Planck function B_nu(T) [W m^-2 Hz^-1 sr^-1] at frequency `nu_hz` [Hz] and temperature
-/// `t_k` [K]:
+/// Planck function B_nu(T) [W m^-2 Hz^-1 sr^-1] at frequency `nu_hz` \[Hz\] and temperature
+/// `t_k` \[K\]:
 ///
 /// B_nu(T) = (2 h nu^3 / c^2) / (exp(h nu / k T) - 1),
 ///

@@ -6,7 +6,7 @@
 //! per resample, so results are identical whatever the rayon thread count.
 //!
 //! Methods and their sources:
-//! - [`mass_function`]: the differential mass function dN/dlog10 M in logarithmic bins with
+//! - [`mass_function`](mod@mass_function): the differential mass function dN/dlog10 M in logarithmic bins with
 //!   Poisson errors sqrt(N) and the approximate 84.13% (one-sided "1 sigma") confidence limits
 //!   for small counts of Gehrels 1986 (ApJ 303, 336, equations 7 and 12 with S = 1);
 //!   the cumulative number N(>= M).
