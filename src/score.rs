@@ -233,6 +233,19 @@ struct Sums {
     n_s2_weight: f64,
 }
 
+impl Sums {
+    /// Adds the sums of another set of pixels.
+    fn add(&mut self, o: &Sums) {
+        self.n_col += o.n_col;
+        self.f += o.f;
+        self.f2 += o.f2;
+        self.n_t += o.n_t;
+        self.n_t_weight += o.n_t_weight;
+        self.n_s2 += o.n_s2;
+        self.n_s2_weight += o.n_s2_weight;
+    }
+}
+
 /// Physical quantities of one structure (NaN where not computable).
 #[derive(Debug, Clone, Serialize)]
 pub struct Physical {
@@ -356,13 +369,7 @@ pub fn score(
     let mut own = vec![Sums::default(); ns];
     for block in &blocks {
         for (o, b) in own.iter_mut().zip(block) {
-            o.n_col += b.n_col;
-            o.f += b.f;
-            o.f2 += b.f2;
-            o.n_t += b.n_t;
-            o.n_t_weight += b.n_t_weight;
-            o.n_s2 += b.n_s2;
-            o.n_s2_weight += b.n_s2_weight;
+            o.add(b);
         }
     }
     drop(blocks);
@@ -371,14 +378,7 @@ pub fn score(
     for id in (0..ns).rev() {
         if let Some(p) = h.structures[id].parent {
             let c = total[id];
-            let t = &mut total[p as usize];
-            t.n_col += c.n_col;
-            t.f += c.f;
-            t.f2 += c.f2;
-            t.n_t += c.n_t;
-            t.n_t_weight += c.n_t_weight;
-            t.n_s2 += c.n_s2;
-            t.n_s2_weight += c.n_s2_weight;
+            total[p as usize].add(&c);
         }
     }
     let beam_px = match (map.beam, &map.wcs) {

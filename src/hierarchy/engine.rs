@@ -85,20 +85,20 @@ fn find(cells: &mut [u32], mut x: u32) -> u32 {
     }
 }
 
-/// Asks the processor to fetch the cache line holding `cells[i]`.
+/// Asks the processor to fetch the cache line holding `items[i]`.
 #[inline(always)]
-fn prefetch(cells: &[u32], i: usize) {
+fn prefetch<T>(items: &[T], i: usize) {
     #[cfg(target_arch = "x86_64")]
     {
-        let ptr = cells[i..].as_ptr() as *const i8;
-        // SAFETY: a prefetch is only a hint; it never faults and `ptr` points into `cells`.
+        let ptr = items[i..].as_ptr() as *const i8;
+        // SAFETY: a prefetch is only a hint; it never faults and `ptr` points into `items`.
         #[allow(unused_unsafe)]
         unsafe {
             std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(ptr)
         };
     }
     #[cfg(not(target_arch = "x86_64"))]
-    let _ = (cells, i);
+    let _ = (items, i);
 }
 
 fn find_alias(nodes: &mut [Node], x: u32) -> u32 {
@@ -342,22 +342,6 @@ fn neighbour_steps(ncols: usize) -> [isize; 8] {
     [-w - 1, -w, -w + 1, -1, 1, w - 1, w, w + 1]
 }
 
-/// Asks the processor to fetch the cache line holding `bytes[i]`.
-#[inline(always)]
-fn prefetch_byte(bytes: &[u8], i: usize) {
-    #[cfg(target_arch = "x86_64")]
-    {
-        let ptr = bytes[i..].as_ptr() as *const i8;
-        // SAFETY: a prefetch is only a hint; it never faults and `ptr` points into `bytes`.
-        #[allow(unused_unsafe)]
-        unsafe {
-            std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(ptr)
-        };
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    let _ = (bytes, i);
-}
-
 /// Rows per parallel task of [`earlier_neighbours`] (fixed, so the work split never matters;
 /// the result does not depend on it anyway, each byte being a function of its pixel alone).
 const MASK_ROWS: usize = 16;
@@ -399,7 +383,7 @@ fn earlier_neighbours(
             };
         }
     };
-    let mut masks: Vec<u8> = pages::filled(npix, 0);
+    let mut masks = vec![0u8; npix];
     masks
         .par_chunks_mut(MASK_ROWS * ncols)
         .enumerate()
@@ -473,7 +457,7 @@ fn sweep<const PACKED: bool>(
             prefetch(cells, q);
             prefetch(cells, (q + ncols).min(npix - 1));
             if !PACKED {
-                prefetch_byte(masks, q);
+                prefetch(masks, q);
             }
         }
         let key = keys[step];
