@@ -363,23 +363,26 @@ fn earlier_neighbours(
         super::Connectivity::Eight => 0xff,
         super::Connectivity::Four => 0b0101_1010,
     };
-    // Order keys with 0 for pixels not considered (no considered pixel has key 0), padded
-    // by one column of zeros on each side.
-    let key_row = |y: usize, buf: &mut [u32]| {
+    // Order keys as signed numbers (so that the comparisons below vectorise), i32::MIN for
+    // pixels not considered (no considered pixel has it), padded by one such column on each
+    // side.
+    const OFF: i32 = i32::MIN;
+    let floor32 = radix::floor_f32(floor);
+    let key_row = |y: usize, buf: &mut [i32]| {
         if y >= nrows {
-            buf.fill(0);
+            buf.fill(OFF);
             return;
         }
-        buf[0] = 0;
-        buf[ncols + 1] = 0;
+        buf[0] = OFF;
+        buf[ncols + 1] = OFF;
         for (b, &v) in buf[1..=ncols]
             .iter_mut()
             .zip(&data[y * ncols..(y + 1) * ncols])
         {
-            *b = if !v.is_nan() && v as f64 >= floor {
-                order_key(v)
+            *b = if radix::considered(v, floor32) {
+                (order_key(v) ^ 0x8000_0000) as i32
             } else {
-                0
+                OFF
             };
         }
     };
@@ -389,33 +392,119 @@ fn earlier_neighbours(
         .enumerate()
         .for_each(|(c, out)| {
             let y0 = c * MASK_ROWS;
-            let mut above = vec![0u32; ncols + 2];
-            let mut here = vec![0u32; ncols + 2];
-            let mut below = vec![0u32; ncols + 2];
+            let mut above = vec![OFF; ncols + 2];
+            let mut here = vec![OFF; ncols + 2];
+            let mut below = vec![OFF; ncols + 2];
             if y0 > 0 {
                 key_row(y0 - 1, &mut above);
             }
             key_row(y0, &mut here);
             for (r, row) in out.chunks_mut(ncols).enumerate() {
                 key_row(y0 + r + 1, &mut below);
-                for (x, m) in row.iter_mut().enumerate() {
-                    let kp = here[x + 1];
-                    let bits = (above[x] >= kp) as u8
-                        | ((above[x + 1] >= kp) as u8) << 1
-                        | ((above[x + 2] >= kp) as u8) << 2
-                        | ((here[x] >= kp) as u8) << 3
-                        | ((here[x + 2] > kp) as u8) << 4
-                        | ((below[x] > kp) as u8) << 5
-                        | ((below[x + 1] > kp) as u8) << 6
-                        | ((below[x + 2] > kp) as u8) << 7;
-                    // A pixel not considered (kp = 0) would see every neighbour as "earlier".
-                    *m = if kp == 0 { 0 } else { bits & allowed };
-                }
+                mask_row(row, &above, &here, &below, allowed);
                 std::mem::swap(&mut above, &mut here);
                 std::mem::swap(&mut here, &mut below);
             }
         });
     masks
+}
+
+/// Offsets (x, y) of the neighbours, in the order of the mask bits ([`neighbour_steps`]).
+const NEIGHBOUR_XY: [(i32, i32); 8] = [
+    (-1, -1),
+    (0, -1),
+    (1, -1),
+    (-1, 0),
+    (1, 0),
+    (-1, 1),
+    (0, 1),
+    (1, 1),
+];
+
+/// For each byte of earlier neighbours, one neighbour per group of them that are adjacent to
+/// each other (directly or through others of the byte), lowest bit first: `[count, bits..]`.
+///
+/// Two visited pixels that are adjacent always lie in the same component (the later one was
+/// joined to the earlier when it was visited), so the sweep needs the union-find root of only
+/// one neighbour per group. With 8-connectivity the eight neighbours form a ring, and a run of
+/// earlier neighbours along it is one group: most pixels need one lookup instead of about
+/// four. The groups are taken in the order of their lowest bit, so the roots are met in the
+/// same order as when every neighbour is looked up.
+const fn neighbour_groups(eight: bool) -> [[u8; 5]; 256] {
+    let mut table = [[0u8; 5]; 256];
+    let mut mask = 0;
+    while mask < 256 {
+        // Smallest-bit representative of each bit's group, by repeated relaxation.
+        let mut rep = [0u8; 8];
+        let mut i = 0;
+        while i < 8 {
+            rep[i] = i as u8;
+            i += 1;
+        }
+        let mut changed = true;
+        while changed {
+            changed = false;
+            let mut a = 0;
+            while a < 8 {
+                let mut b = 0;
+                while b < 8 {
+                    let (dx, dy) = (
+                        NEIGHBOUR_XY[a].0 - NEIGHBOUR_XY[b].0,
+                        NEIGHBOUR_XY[a].1 - NEIGHBOUR_XY[b].1,
+                    );
+                    let (dx, dy) = (if dx < 0 { -dx } else { dx }, if dy < 0 { -dy } else { dy });
+                    let adjacent = if eight {
+                        dx <= 1 && dy <= 1 && dx + dy > 0
+                    } else {
+                        dx + dy == 1
+                    };
+                    if mask & (1 << a) != 0 && mask & (1 << b) != 0 && adjacent && rep[b] < rep[a] {
+                        rep[a] = rep[b];
+                        changed = true;
+                    }
+                    b += 1;
+                }
+                a += 1;
+            }
+        }
+        let mut n = 0;
+        let mut a = 0;
+        while a < 8 {
+            if mask & (1 << a) != 0 && rep[a] == a as u8 {
+                table[mask][1 + n] = a as u8;
+                n += 1;
+            }
+            a += 1;
+        }
+        table[mask][0] = n as u8;
+        mask += 1;
+    }
+    table
+}
+
+/// [`neighbour_groups`] for 8-connectivity.
+static GROUPS_EIGHT: [[u8; 5]; 256] = neighbour_groups(true);
+/// [`neighbour_groups`] for 4-connectivity (no two of the four neighbours are adjacent).
+static GROUPS_FOUR: [[u8; 5]; 256] = neighbour_groups(false);
+
+/// One row of [`earlier_neighbours`] from the signed keys of the rows above, here and below
+/// (each padded by one column on both sides), written so that the compiler vectorises it.
+fn mask_row(row: &mut [u8], above: &[i32], here: &[i32], below: &[i32], allowed: u8) {
+    let n = row.len();
+    let (a, h, b) = (&above[..n + 2], &here[..n + 2], &below[..n + 2]);
+    for x in 0..n {
+        let kp = h[x + 1];
+        let bits = (a[x] >= kp) as u8
+            | ((a[x + 1] >= kp) as u8) << 1
+            | ((a[x + 2] >= kp) as u8) << 2
+            | ((h[x] >= kp) as u8) << 3
+            | ((h[x + 2] > kp) as u8) << 4
+            | ((b[x] > kp) as u8) << 5
+            | ((b[x + 1] > kp) as u8) << 6
+            | ((b[x + 2] > kp) as u8) << 7;
+        // A pixel not considered (kp = i32::MIN) would see every neighbour as "earlier".
+        row[x] = if kp == i32::MIN { 0 } else { bits & allowed };
+    }
 }
 
 /// How many pixels ahead the sweep prefetches.
@@ -442,6 +531,10 @@ fn sweep<const PACKED: bool>(
     let min_area = params.min_area;
     let prominence = params.prominence;
     let delta = neighbour_steps(ncols);
+    let groups = match params.connectivity {
+        super::Connectivity::Eight => &GROUPS_EIGHT,
+        super::Connectivity::Four => &GROUPS_FOUR,
+    };
     let nkeys = keys.len();
     for step in 0..nkeys {
         if step % PROGRESS_STEP == 0 && step > 0 {
@@ -467,14 +560,13 @@ fn sweep<const PACKED: bool>(
             (key as u32 as usize, masks[key as u32 as usize])
         };
         let v = from_order_key(!((key >> 32) as u32));
-        // Distinct components among the neighbours visited before p (the bits of its mask).
-        let mut roots = [0u32; 8];
+        // Distinct components among the neighbours visited before p (the bits of its mask),
+        // one lookup per group of adjacent ones.
+        let mut roots = [0u32; 4];
         let mut k = 0usize;
-        let mut bits = mask as u32;
-        while bits != 0 {
-            let j = bits.trailing_zeros() as usize;
-            bits &= bits - 1;
-            let q = p.wrapping_add(delta[j] as usize);
+        let group = &groups[mask as usize];
+        for &j in &group[1..=group[0] as usize] {
+            let q = p.wrapping_add(delta[j as usize] as usize);
             let r = find(cells, q as u32);
             if !roots[..k].contains(&r) {
                 roots[k] = r;
@@ -620,4 +712,43 @@ fn merge(
     nd.peak = top.peak;
     nd.peak_val = top.peak_val;
     t
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The groups of every neighbour byte, against a flood fill over the 3 x 3 neighbourhood.
+    #[test]
+    fn neighbour_groups_are_the_connected_runs_of_the_byte() {
+        for (eight, table) in [(true, &GROUPS_EIGHT), (false, &GROUPS_FOUR)] {
+            for (mask, g) in table.iter().enumerate() {
+                let mut seen = 0u32;
+                let mut firsts = Vec::new();
+                for start in 0..8 {
+                    if mask & (1 << start) == 0 || seen & (1 << start) != 0 {
+                        continue;
+                    }
+                    firsts.push(start as u8);
+                    let mut stack = vec![start];
+                    seen |= 1 << start;
+                    while let Some(a) = stack.pop() {
+                        let (ax, ay) = NEIGHBOUR_XY[a];
+                        for (b, &(bx, by)) in NEIGHBOUR_XY.iter().enumerate() {
+                            let (dx, dy) = ((ax - bx).abs(), (ay - by).abs());
+                            let touching = if eight { dx.max(dy) == 1 } else { dx + dy == 1 };
+                            if touching && mask & (1 << b) != 0 && seen & (1 << b) == 0 {
+                                seen |= 1 << b;
+                                stack.push(b);
+                            }
+                        }
+                    }
+                }
+                assert_eq!(&g[1..=g[0] as usize], &firsts[..], "mask {mask:08b}");
+            }
+        }
+        // A full ring is one group; the four corners alone are four.
+        assert_eq!(GROUPS_EIGHT[0xff][..2], [1, 0]);
+        assert_eq!(GROUPS_EIGHT[0b1010_0101][..5], [4, 0, 2, 5, 7]);
+    }
 }

@@ -145,33 +145,50 @@ pub(super) fn fill(
             let r0 = b * rows_per;
             let r1 = ((b + 1) * rows_per).min(nrows);
             for y in r0..r1 {
-                for x in 0..ncols {
-                    let p = y * ncols + x;
-                    let l = labels[p];
+                let row = &labels[y * ncols..(y + 1) * ncols];
+                let vals = &map[y * ncols..(y + 1) * ncols];
+                let yf = y as f64;
+                let edge_row = y == 0 || y + 1 == nrows;
+                let mut x = 0;
+                while x < ncols {
+                    let l = row[x];
                     if l < 0 {
+                        x += 1;
                         continue;
                     }
-                    let v = map[p];
+                    // A run of pixels of one structure is summed in registers, in the same
+                    // order as pixel by pixel, so the sums are bit for bit the same.
                     let a = &mut acc[l as usize];
-                    a.m.add(x as f64, y as f64, v as f64);
-                    if v < a.min {
-                        a.min = v;
+                    let mut m = a.m;
+                    let mut min = a.min;
+                    let start = x;
+                    while x < ncols && row[x] == l {
+                        let v = vals[x];
+                        m.add(x as f64, yf, v as f64);
+                        if v < min {
+                            min = v;
+                        }
+                        x += 1;
                     }
-                    if x == 0 || y == 0 || x + 1 == ncols || y + 1 == nrows {
+                    a.m = m;
+                    a.min = min;
+                    if edge_row || start == 0 || x == ncols {
                         a.edge = true;
                     }
                     if any_missing && !a.missing {
-                        for &(dy, dx) in offs {
-                            let yy = y as isize + dy;
-                            let xx = x as isize + dx;
-                            if yy >= 0
-                                && xx >= 0
-                                && (yy as usize) < nrows
-                                && (xx as usize) < ncols
-                                && map[yy as usize * ncols + xx as usize].is_nan()
-                            {
-                                a.missing = true;
-                                break;
+                        'run: for xr in start..x {
+                            for &(dy, dx) in offs {
+                                let yy = y as isize + dy;
+                                let xx = xr as isize + dx;
+                                if yy >= 0
+                                    && xx >= 0
+                                    && (yy as usize) < nrows
+                                    && (xx as usize) < ncols
+                                    && map[yy as usize * ncols + xx as usize].is_nan()
+                                {
+                                    a.missing = true;
+                                    break 'run;
+                                }
                             }
                         }
                     }

@@ -35,10 +35,19 @@ impl<T> Out<T> {
     }
 }
 
-/// Whether a pixel of value `v` takes part (not NaN and at least `floor`).
+/// The smallest `f32` at or above `floor` (infinite beyond the `f32` range), so that for every
+/// `f32` value `v`, `v as f64 >= floor` exactly when `v >= floor_f32(floor)`: the per-pixel
+/// test then stays in single precision, which vectorises. NaN compares false either way.
+pub(super) fn floor_f32(floor: f64) -> f32 {
+    let f = floor as f32;
+    if (f as f64) < floor { f.next_up() } else { f }
+}
+
+/// Whether a pixel of value `v` takes part (not NaN and at least the floor, given as
+/// [`floor_f32`]).
 #[inline(always)]
-fn considered(v: f32, floor: f64) -> bool {
-    !v.is_nan() && v as f64 >= floor
+pub(super) fn considered(v: f32, floor32: f32) -> bool {
+    v >= floor32
 }
 
 /// Digit `d` of the value half of key `k`.
@@ -87,6 +96,7 @@ pub(super) fn sorted_keys_packed(data: &[f32], floor: f64, bytes: Vec<u8>) -> Ve
 
 fn sorted_keys_with(data: &[f32], floor: f64, bytes: Option<Vec<u8>>) -> Vec<u64> {
     let npix = data.len();
+    let floor = floor_f32(floor);
     let m = pieces(npix);
     // Histograms of every digit, per piece of the map.
     let hists: Vec<[[usize; BUCKETS]; DIGITS]> = (0..m)
@@ -199,11 +209,65 @@ mod tests {
         let mut k: Vec<u64> = data
             .iter()
             .enumerate()
-            .filter(|&(_, &v)| considered(v, floor))
+            .filter(|&(_, &v)| !v.is_nan() && v as f64 >= floor)
             .map(|(i, &v)| sort_key(v, i))
             .collect();
         k.sort_unstable();
         k
+    }
+
+    #[test]
+    fn single_precision_floor_test_equals_the_double_one() {
+        let mut s = 99u64;
+        let mut next = || {
+            s = s
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            s
+        };
+        let mut floors = vec![
+            f64::NEG_INFINITY,
+            f64::INFINITY,
+            0.0,
+            -0.0,
+            1e300,
+            -1e300,
+            f32::MAX as f64,
+            f32::MIN_POSITIVE as f64 / 3.0,
+            3e21,
+        ];
+        for _ in 0..2000 {
+            let b = next();
+            floors.push(f64::from_bits(b));
+            // Doubles within a few units of an f32 value, and exactly on one.
+            let f = f32::from_bits((b >> 32) as u32) as f64;
+            floors.push(f);
+            floors.push(f64::from_bits(f.to_bits().wrapping_add(b % 3)));
+            floors.push(f64::from_bits(f.to_bits().wrapping_sub(b % 3)));
+        }
+        for floor in floors.into_iter().filter(|f| !f.is_nan()) {
+            let f32_floor = floor_f32(floor);
+            let near = [
+                f32_floor,
+                f32_floor.next_up(),
+                f32_floor.next_down(),
+                floor as f32,
+                (floor as f32).next_down(),
+                (floor as f32).next_up(),
+                f32::NAN,
+                f32::INFINITY,
+                f32::NEG_INFINITY,
+                0.0,
+                -0.0,
+            ];
+            for v in near {
+                assert_eq!(
+                    considered(v, f32_floor),
+                    !v.is_nan() && v as f64 >= floor,
+                    "v {v:e} floor {floor:e}"
+                );
+            }
+        }
     }
 
     #[test]
