@@ -11,8 +11,11 @@
 //! cores, noise; `cairn::synth`), writes it as FITS, and measures in child processes:
 //! * the reference: a parallel sort of the map's pixel keys (the least any exact method
 //!   must do);
-//! * cairn's segmentation with outputs, its time and peak resident memory (best of three runs,
-//!   each in a fresh process);
+//! * cairn's segmentation with outputs, its time (best of three runs, each in a fresh
+//!   process) and its memory: the process's peak resident memory, less its resident memory
+//!   before loading the map and less the map's bytes, per pixel (the largest of the three
+//!   runs). This counts everything loading and segmenting add, code pages and thread stacks
+//!   included, which weighs most on the smallest map;
 //! * with `CAIRN_BENCH_PYTHON` set (a Python with the packages of tests/oracle/requirements.txt),
 //!   scikit-image's `max_tree` on the same map (the raw tree only), timed inside Python
 //!   after loading, best of three runs. Not run above 2048^2: it grows faster than N log N.
@@ -26,11 +29,13 @@ use rayon::prelude::*;
 /// Runs of each timed measurement; the best is reported.
 const RUNS: usize = 3;
 
-fn peak_rss_bytes() -> u64 {
+/// A `/proc/self/status` figure in bytes (`VmHWM:` the peak resident memory, `VmRSS:` the
+/// current one).
+fn status_bytes(key: &str) -> u64 {
     std::fs::read_to_string("/proc/self/status")
         .unwrap_or_default()
         .lines()
-        .find(|l| l.starts_with("VmHWM:"))
+        .find(|l| l.starts_with(key))
         .and_then(|l| l.split_whitespace().nth(1))
         .and_then(|k| k.parse::<u64>().ok())
         .map(|k| k * 1024)
@@ -38,8 +43,11 @@ fn peak_rss_bytes() -> u64 {
 }
 
 fn child_segment(path: &Path, out: &Path) {
+    // The process before the map: its peak at the end, less this and the map's bytes, is
+    // what loading and segmenting need beyond the map (the memory measure).
+    let before = status_bytes("VmRSS:");
     let map = cairn::map::load(path, &cairn::map::LoadOptions::default()).unwrap();
-    let base = peak_rss_bytes();
+    let base = before + (map.data.len() * std::mem::size_of::<f32>()) as u64;
     let opts = cairn::segment::SegmentOptions {
         floor: Some(cairn::segment::Level::Value(3.0e21)),
         prominence: Some(cairn::segment::Level::Value(3.0e20)),
@@ -67,7 +75,7 @@ fn child_segment(path: &Path, out: &Path) {
     {
         eprintln!("phases: {}", v["timings_seconds"]);
     }
-    println!("{secs} {} {} {}", peak_rss_bytes(), base, s.leaves);
+    println!("{secs} {} {} {}", status_bytes("VmHWM:"), base, s.leaves);
 }
 
 fn child_sort(path: &Path) {

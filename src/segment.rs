@@ -898,9 +898,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     // the text files on the other. Every file is complete before any is renamed.
     let write_fits_table = || table.write_fits(&outputs.temp(names::FITS_TABLE));
     let write_text_files = || -> Result<()> {
-        let (csv, votable) = table.to_csv_and_votable();
-        output::write_bytes(&outputs.temp(names::CSV), csv.as_bytes())?;
-        output::write_bytes(&outputs.temp(names::VOTABLE), votable.as_bytes())?;
+        table.write_csv_and_votable(&outputs.temp(names::CSV), &outputs.temp(names::VOTABLE))?;
         let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
             .map_err(|e| Error::internal(e.to_string()))?
             + "\n";

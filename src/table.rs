@@ -250,6 +250,9 @@ fn exact_digits(x: f64) -> Option<(u128, usize)> {
     Some((e, e.ilog10() as usize + 1))
 }
 
+/// Rows of CSV or VOTable text gathered before they are written out.
+const PIECE_ROWS: usize = 256;
+
 /// The formatted cells of one column, packed: cell `r` is `text[ends[r - 1]..ends[r]]`.
 struct Cells {
     text: String,
@@ -326,20 +329,37 @@ impl Table {
 
     /// The table as CSV with a commented header.
     pub fn to_csv(&self) -> String {
-        self.csv_with(&self.numeric_cells())
+        let mut out = Vec::new();
+        self.csv_to(&self.numeric_cells(), &mut out)
+            .expect("writing to memory cannot fail");
+        String::from_utf8(out).expect("the CSV is built from strings")
     }
 
     /// The table as a VOTable 1.4 document.
     pub fn to_votable(&self) -> String {
-        self.votable_with(&self.numeric_cells())
+        let mut out = Vec::new();
+        self.votable_to(&self.numeric_cells(), &mut out)
+            .expect("writing to memory cannot fail");
+        String::from_utf8(out).expect("the VOTable is built from strings")
     }
 
-    /// The CSV and VOTable forms together: each number is formatted once, the columns in
-    /// parallel, and the two documents are assembled concurrently. Equal to
-    /// `(self.to_csv(), self.to_votable())`.
-    pub fn to_csv_and_votable(&self) -> (String, String) {
+    /// Writes the CSV and VOTable forms to `csv` and `votable` (which must be new files; see
+    /// [`crate::output`]): each number is formatted once, the columns in parallel, and the two
+    /// files are written concurrently, in pieces, so neither document is ever whole in
+    /// memory. The files hold exactly `self.to_csv()` and `self.to_votable()`.
+    pub fn write_csv_and_votable(&self, csv: &Path, votable: &Path) -> Result<()> {
         let cells = self.numeric_cells();
-        rayon::join(|| self.csv_with(&cells), || self.votable_with(&cells))
+        let write = |path: &Path, votable: bool| -> Result<()> {
+            let fail = |e: std::io::Error| Error::output(path, format!("cannot be written ({e})."));
+            let mut f = std::fs::File::create(path).map_err(fail)?;
+            if votable {
+                self.votable_to(&cells, &mut f).map_err(fail)
+            } else {
+                self.csv_to(&cells, &mut f).map_err(fail)
+            }
+        };
+        let (a, b) = rayon::join(|| write(csv, false), || write(votable, true));
+        a.and(b)
     }
 
     /// The text of every number of every numeric column (NaN as an empty string), one
@@ -370,7 +390,8 @@ impl Table {
             .collect()
     }
 
-    fn csv_with(&self, cells: &[Option<Cells>]) -> String {
+    /// Writes the CSV form to `w`, a piece at a time.
+    fn csv_to(&self, cells: &[Option<Cells>], w: &mut impl std::io::Write) -> std::io::Result<()> {
         let mut s = String::new();
         let _ = writeln!(
             s,
@@ -405,8 +426,12 @@ impl Table {
                     .map_or(8, |c| c.text.len() / c.ends.len().max(1) + 1)
             })
             .sum();
-        s.reserve(width * self.nrows());
+        s.reserve(width * self.nrows().min(PIECE_ROWS));
         for r in 0..self.nrows() {
+            if r % PIECE_ROWS == 0 && r > 0 {
+                w.write_all(s.as_bytes())?;
+                s.clear();
+            }
             for (i, (c, cell)) in self.columns.iter().zip(cells).enumerate() {
                 if i > 0 {
                     s.push(',');
@@ -420,10 +445,15 @@ impl Table {
             }
             s.push('\n');
         }
-        s
+        w.write_all(s.as_bytes())
     }
 
-    fn votable_with(&self, cells: &[Option<Cells>]) -> String {
+    /// Writes the VOTable form to `w`, a piece at a time.
+    fn votable_to(
+        &self,
+        cells: &[Option<Cells>],
+        w: &mut impl std::io::Write,
+    ) -> std::io::Result<()> {
         fn esc(s: &str) -> String {
             s.replace('&', "&amp;")
                 .replace('<', "&lt;")
@@ -464,6 +494,10 @@ impl Table {
         }
         s.push_str("<DATA><TABLEDATA>\n");
         for r in 0..self.nrows() {
+            if r % PIECE_ROWS == 0 && r > 0 {
+                w.write_all(s.as_bytes())?;
+                s.clear();
+            }
             s.push_str("<TR>");
             for (c, cell) in self.columns.iter().zip(cells) {
                 s.push_str("<TD>");
@@ -482,7 +516,7 @@ impl Table {
             s.push_str("</TR>\n");
         }
         s.push_str("</TABLEDATA></DATA>\n</TABLE>\n</RESOURCE>\n</VOTABLE>\n");
-        s
+        w.write_all(s.as_bytes())
     }
 
     /// Writes the table as a FITS file: an empty primary HDU and one binary-table extension.
@@ -623,6 +657,40 @@ mod tests {
         );
         t.push_bool("edge", "touches the map edge", vec![false, true]);
         t
+    }
+
+    /// The files written in pieces hold exactly the documents built whole, for tables of
+    /// fewer, exactly as many and more rows than one piece.
+    #[test]
+    fn files_written_in_pieces_equal_the_whole_documents() {
+        let dir = tempfile::tempdir().unwrap();
+        for n in [0, 1, PIECE_ROWS, PIECE_ROWS + 1, 3 * PIECE_ROWS + 17] {
+            let mut t = Table {
+                name: "STRUCTURES".into(),
+                ..Default::default()
+            };
+            t.push_i64("id", "", "structure id", (0..n as i64).collect());
+            t.push_f64(
+                "x",
+                "pix",
+                "position",
+                (0..n).map(|i| i as f64 / 7.0).collect(),
+            );
+            t.push_text("kind", "what", (0..n).map(|i| format!("k<{i}>")).collect());
+            let (csv, vot) = (dir.path().join("t.csv"), dir.path().join("t.vot"));
+            let _ = (std::fs::remove_file(&csv), std::fs::remove_file(&vot));
+            t.write_csv_and_votable(&csv, &vot).unwrap();
+            assert_eq!(
+                std::fs::read_to_string(&csv).unwrap(),
+                t.to_csv(),
+                "{n} rows"
+            );
+            assert_eq!(
+                std::fs::read_to_string(&vot).unwrap(),
+                t.to_votable(),
+                "{n} rows"
+            );
+        }
     }
 
     #[test]
