@@ -215,6 +215,20 @@ impl<'a> Converter<'a> {
         f
     }
 
+    /// The factor when it is the same at every pixel: a column-density or extinction map, or
+    /// an emission map with one temperature and no per-pixel solid angle.
+    pub fn uniform_factor(&self) -> Option<f64> {
+        let per_pixel_temperature = matches!(self.ctx.temperature_k, Some(Field::Map(_)));
+        let per_pixel_area = matches!(self.kind, PixelUnit::FluxPerPixel { .. });
+        if !self.kind.is_emission() {
+            Some(self.base)
+        } else if per_pixel_temperature || per_pixel_area {
+            None
+        } else {
+            Some(self.factor(0, 0))
+        }
+    }
+
     /// The factor at the map centre (shown by `inspect`).
     pub fn central_factor(&self) -> f64 {
         self.factor(self.map.ny() / 2, self.map.nx() / 2)
@@ -313,15 +327,9 @@ pub fn state_of(alpha_vir: f64, alpha_be: f64) -> &'static str {
     }
 }
 
-/// Scores every structure. `noise` is the map noise in map units (None if unknown).
-pub fn score(
-    map: &Map,
-    h: &Hierarchy,
-    ms: &[Measurement],
-    ctx: &Context,
-    noise: Option<f64>,
-) -> Result<Vec<Physical>, String> {
-    let conv = Converter::new(map, ctx)?;
+/// Every structure's [`Sums`] (descendants included), pixel by pixel: for maps whose
+/// conversion or fields vary from pixel to pixel.
+fn sums_by_pixel(map: &Map, h: &Hierarchy, ctx: &Context, conv: &Converter) -> Vec<Sums> {
     let ns = h.structures.len();
     // Rows are cut into blocks whose number depends only on the map size and the number of
     // structures (never on the thread count); blocks are summed in parallel and added in
@@ -374,13 +382,61 @@ pub fn score(
     }
     drop(blocks);
     // Children have larger ids than their parents: add from the last id down.
-    let mut total = own.clone();
+    let mut total = own;
     for id in (0..ns).rev() {
         if let Some(p) = h.structures[id].parent {
             let c = total[id];
             total[p as usize].add(&c);
         }
     }
+    total
+}
+
+/// Every structure's [`Sums`] when the conversion factor `f`, the temperature and the
+/// non-thermal dispersion are the same at every pixel: they follow from the sum of the map
+/// over the structure, which the engine already gathered (no pass over the pixels).
+fn sums_uniform(h: &Hierarchy, ctx: &Context, f: f64) -> Vec<Sums> {
+    let value = |field: &Option<Field>| match field {
+        Some(Field::Uniform(v)) if v.is_finite() => Some(*v),
+        _ => None,
+    };
+    let (t, sigma) = (value(&ctx.temperature_k), value(&ctx.sigma_nt));
+    h.structures
+        .iter()
+        .map(|s| {
+            let n = s.sums.n as f64;
+            let n_col = f * s.sums.sum;
+            let (n_t, n_t_weight) = t.map_or((0.0, 0.0), |t| (n_col * t, n_col));
+            let (n_s2, n_s2_weight) = sigma.map_or((0.0, 0.0), |v| (n_col * v * v, n_col));
+            Sums {
+                n_col,
+                f: f * n,
+                f2: f * f * n,
+                n_t,
+                n_t_weight,
+                n_s2,
+                n_s2_weight,
+            }
+        })
+        .collect()
+}
+
+/// Scores every structure. `noise` is the map noise in map units (None if unknown).
+pub fn score(
+    map: &Map,
+    h: &Hierarchy,
+    ms: &[Measurement],
+    ctx: &Context,
+    noise: Option<f64>,
+) -> Result<Vec<Physical>, String> {
+    let conv = Converter::new(map, ctx)?;
+    let uniform_field = |field: &Option<Field>| !matches!(field, Some(Field::Map(_)));
+    let total = match conv.uniform_factor() {
+        Some(f) if uniform_field(&ctx.temperature_k) && uniform_field(&ctx.sigma_nt) => {
+            sums_uniform(h, ctx, f)
+        }
+        _ => sums_by_pixel(map, h, ctx, &conv),
+    };
     let beam_px = match (map.beam, &map.wcs) {
         (Some(b), Some(w)) => {
             b.solid_angle_sr()
@@ -489,4 +545,84 @@ pub fn score(
         })
         .collect();
     Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::synth::{self, CorePopulation, EmissionUnit, Output, SynthSpec};
+
+    /// The sums taken from the engine's map sums equal those gathered pixel by pixel (to
+    /// rounding), on a column-density map and on a Jy/beam dust-emission map at one
+    /// temperature.
+    #[test]
+    fn uniform_sums_equal_the_pixel_by_pixel_sums() {
+        let dir = tempfile::tempdir().unwrap();
+        let outputs = [
+            Output::ColumnDensity,
+            Output::DustEmission {
+                wavelength_um: 850.0,
+                temperature_k: 15.0,
+                unit: EmissionUnit::JyPerBeam,
+                opacity: DustOpacity::default(),
+            },
+        ];
+        for (i, output) in outputs.into_iter().enumerate() {
+            let spec = SynthSpec {
+                nx: 160,
+                ny: 120,
+                population: Some(CorePopulation {
+                    count: 12,
+                    mass_min_msun: 0.5,
+                    mass_max_msun: 5.0,
+                    mass_index: 2.35,
+                    radius_min_pc: 0.02,
+                    radius_max_pc: 0.05,
+                    profile: synth::Profile::Gaussian,
+                    margin_px: 10.0,
+                }),
+                output,
+                noise_rms: 0.0,
+                seed: 7,
+                ..Default::default()
+            };
+            let s = synth::generate(&spec).unwrap();
+            let path = dir.path().join(format!("m{i}.fits"));
+            crate::fits_write::write_image_f32(&path, s.data.view(), &s.header, false).unwrap();
+            let map = crate::map::load(&path, &Default::default()).unwrap();
+            let floor = map.data.iter().copied().fold(f32::INFINITY, f32::min) as f64;
+            let top = map.data.iter().copied().fold(f32::NEG_INFINITY, f32::max) as f64;
+            let params = crate::hierarchy::Params {
+                floor: floor + 0.2 * (top - floor),
+                prominence: 0.02 * (top - floor),
+                min_area: 4,
+                connectivity: crate::hierarchy::Connectivity::Eight,
+            };
+            let h = crate::hierarchy::build(map.data.view(), &params).unwrap();
+            assert!(h.structures.len() > 3, "{} structures", h.structures.len());
+            let ctx = Context {
+                temperature_k: Some(Field::Uniform(15.0)),
+                sigma_nt: Some(Field::Uniform(250.0)),
+                ..Default::default()
+            };
+            let conv = Converter::new(&map, &ctx).unwrap();
+            let f = conv.uniform_factor().expect("a uniform factor");
+            let fast = sums_uniform(&h, &ctx, f);
+            let slow = sums_by_pixel(&map, &h, &ctx, &conv);
+            let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * a.abs().max(b.abs());
+            for (a, b) in fast.iter().zip(&slow) {
+                for (x, y) in [
+                    (a.n_col, b.n_col),
+                    (a.f, b.f),
+                    (a.f2, b.f2),
+                    (a.n_t, b.n_t),
+                    (a.n_t_weight, b.n_t_weight),
+                    (a.n_s2, b.n_s2),
+                    (a.n_s2_weight, b.n_s2_weight),
+                ] {
+                    assert!(close(x, y), "map {i}: {a:?} against {b:?}");
+                }
+            }
+        }
+    }
 }
