@@ -257,9 +257,20 @@ pub(super) fn build_impl(
         node_id[n as usize] = id as i32;
     }
     let label_of: Vec<i32> = (0..nn).map(|n| node_id[nodes[n].alias as usize]).collect();
-    // The cells become the labels: -1 everywhere, then each visited pixel's label from the
-    // node the sweep left beside its key.
-    let mut labels: Vec<i32> = cells.into_iter().map(|_| -1i32).collect();
+    // The cells become the labels. A pixel never visited still holds UNVISITED, which reads
+    // as -1 (no structure); every visited pixel gets its label from the node the sweep left
+    // beside its key.
+    const _: () = assert!(UNVISITED as i32 == -1);
+    let mut cells = std::mem::ManuallyDrop::new(cells);
+    // SAFETY: u32 and i32 have the same size and alignment and every bit pattern is valid for
+    // both, so the allocation is reused as is (and freed once, as the labels).
+    let mut labels: Vec<i32> = unsafe {
+        Vec::from_raw_parts(
+            cells.as_mut_ptr() as *mut i32,
+            cells.len(),
+            cells.capacity(),
+        )
+    };
     let out = radix::Out(labels.as_mut_ptr());
     keys.par_chunks(1 << 16).for_each(|ks| {
         for &k in ks {
