@@ -91,7 +91,9 @@
 //!   to the earlier when it was visited), so the sweep looks up the union-find root of only
 //!   one neighbour per group of earlier neighbours that touch each other, from a table of the
 //!   256 neighbour bytes; with 8-connectivity most pixels need one lookup instead of about
-//!   four (the connected-component labelling literature uses the same observation);
+//!   four (the same observation drives the decision trees of two-pass connected-component
+//!   labelling, Wu, Otoo & Suzuki 2009, Pattern Analysis and Applications 12, 117; cited
+//!   from memory);
 //! * the cells of the pixels a few steps ahead are prefetched;
 //! * the cells are filled in parallel before the sweep (`pages.rs`), so their pages are
 //!   faulted in by every thread rather than one by one by the sweep. (Transparent huge pages
