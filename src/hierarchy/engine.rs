@@ -49,8 +49,6 @@ struct Node {
     peak: u32,
     /// Value of the peak.
     peak_val: f32,
-    /// Pixels of the component while this node is the component's open node.
-    area: u32,
     /// Parent node once the structure is closed, else `NONE`.
     parent: u32,
     /// For a branch, the value where it starts; NaN for a peak candidate.
@@ -205,7 +203,7 @@ pub(super) fn build_impl(
     // 2. Sweep.
     let mut keys = keys;
     let mut cells: Vec<u32> = pages::filled(npix, UNVISITED);
-    let mut nodes = if packed {
+    let (mut nodes, areas) = if packed {
         sweep::<true>(&mut cells, &masks, ncols, &mut keys, params, progress)
     } else {
         sweep::<false>(&mut cells, &masks, ncols, &mut keys, params, progress)
@@ -234,7 +232,7 @@ pub(super) fn build_impl(
                 && (nd.parent != NONE
                     || has_child[n]
                     || (nd.peak_val as f64 - floor >= params.prominence
-                        && nd.area as usize >= params.min_area))
+                        && areas[n] as usize >= params.min_area))
         })
         .collect();
     // Parents are always created after their children, so a descending sweep sees parents
@@ -536,9 +534,12 @@ fn sweep<const PACKED: bool>(
     keys: &mut [u64],
     params: &Params,
     progress: &dyn Fn(f64),
-) -> Vec<Node> {
+) -> (Vec<Node>, Vec<u32>) {
     let npix = cells.len();
     let mut nodes: Vec<Node> = Vec::new();
+    // The areas apart from the nodes: the sweep touches a component's area at every pixel and
+    // the rest of its node only at merges, so the areas stay dense in cache.
+    let mut areas: Vec<u32> = Vec::new();
     let min_area = params.min_area;
     let prominence = params.prominence;
     let delta = neighbour_steps(ncols);
@@ -587,11 +588,11 @@ fn sweep<const PACKED: bool>(
         let (link_p, node_p) = match k {
             0 => {
                 let n = nodes.len() as u32;
+                areas.push(1);
                 nodes.push(Node {
                     alias: n,
                     peak: p as u32,
                     peak_val: v,
-                    area: 1,
                     parent: NONE,
                     level: f32::NAN,
                     merge: f32::NAN,
@@ -601,7 +602,7 @@ fn sweep<const PACKED: bool>(
             1 => {
                 let r = roots[0];
                 let n = cells[r as usize] & !ROOT;
-                nodes[n as usize].area += 1;
+                areas[n as usize] += 1;
                 (r, n)
             }
             _ => {
@@ -609,13 +610,21 @@ fn sweep<const PACKED: bool>(
                 let mut big = roots[0];
                 let mut big_area = 0u32;
                 for &r in &roots[..k] {
-                    let a = nodes[(cells[r as usize] & !ROOT) as usize].area;
+                    let a = areas[(cells[r as usize] & !ROOT) as usize];
                     if a > big_area {
                         big_area = a;
                         big = r;
                     }
                 }
-                let t = merge(cells, &mut nodes, &roots[..k], v, min_area, prominence);
+                let t = merge(
+                    cells,
+                    &mut nodes,
+                    &mut areas,
+                    &roots[..k],
+                    v,
+                    min_area,
+                    prominence,
+                );
                 for &r in &roots[..k] {
                     if r != big {
                         cells[r as usize] = big;
@@ -628,7 +637,7 @@ fn sweep<const PACKED: bool>(
         cells[p] = link_p;
         keys[step] = ((node_p as u64) << 32) | p as u64;
     }
-    nodes
+    (nodes, areas)
 }
 
 /// Joins the components rooted at `roots` at pixel value `v`; returns the open node of the
@@ -637,6 +646,7 @@ fn sweep<const PACKED: bool>(
 fn merge(
     cells: &[u32],
     nodes: &mut Vec<Node>,
+    areas: &mut Vec<u32>,
     roots: &[u32],
     v: f32,
     min_area: usize,
@@ -654,9 +664,10 @@ fn merge(
         let n = cells[roots[i] as usize] & !ROOT;
         open[i] = n;
         let nd = &nodes[n as usize];
-        total += nd.area;
+        let area = areas[n as usize];
+        total += area;
         let pv = nd.peak_val;
-        sig[i] = nd.area as usize >= min_area && pv > v && pv as f64 - v as f64 >= prominence;
+        sig[i] = area as usize >= min_area && pv > v && pv as f64 - v as f64 >= prominence;
         let better = |j: usize, nodes: &Vec<Node>| {
             let o = &nodes[open[j] as usize];
             before(pv, nd.peak, o.peak_val, o.peak)
@@ -680,11 +691,11 @@ fn merge(
             Some(i) => open[i],
             None => {
                 let t = nodes.len() as u32;
+                areas.push(0);
                 nodes.push(Node {
                     alias: t,
                     peak: top.peak,
                     peak_val: top.peak_val,
-                    area: 0,
                     parent: NONE,
                     level: v,
                     merge: f32::NAN,
@@ -719,7 +730,7 @@ fn merge(
         t
     };
     let nd = &mut nodes[t as usize];
-    nd.area = total;
+    areas[t as usize] = total;
     nd.peak = top.peak;
     nd.peak_val = top.peak_val;
     t
