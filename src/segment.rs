@@ -815,100 +815,147 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         let physics_seconds = t_physics.elapsed().as_secs_f64();
         (ms, measure_seconds, phys, physics_note, physics_seconds)
     };
-    let ((ms, measure_seconds, phys, physics_note, physics_seconds), labels_written) =
-        rayon::join(analyse, write_label_maps);
-    let label_maps_seconds = labels_written?;
-    let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
-    let t_write = Instant::now();
-    progress("measure", 1.0);
-
-    start_hashing();
-    let input_sha = hashing
-        .take()
-        .ok_or_else(|| Error::internal("hashing the input was not started"))?
-        .join()
-        .map_err(|_| Error::internal("hashing the input failed"))??;
-    let meta: Vec<(String, String, String)> = vec![
-        (
-            "input".into(),
-            map.path
-                .file_name()
-                .map(|n| n.to_string_lossy().into_owned())
-                .unwrap_or_default(),
-            "input map".into(),
-        ),
-        (
-            "input_sha256".into(),
-            input_sha.clone(),
-            "SHA-256 of the input file".into(),
-        ),
-        ("hdu".into(), map.hdu_index.to_string(), "HDU read".into()),
-        (
-            "unit".into(),
-            map.unit_text.clone(),
-            "unit of the map".into(),
-        ),
-        (
-            "floor".into(),
-            crate::table::fmt_f64(r.floor),
-            format!("map units (given as {})", r.given[0]),
-        ),
-        (
-            "prominence".into(),
-            crate::table::fmt_f64(r.prominence),
-            format!("map units (given as {})", r.given[1]),
-        ),
-        (
-            "min_area".into(),
-            r.min_area_px.to_string(),
-            format!("pixels (given as {})", r.given[2]),
-        ),
-        (
-            "connectivity".into(),
-            match o.connectivity {
-                Connectivity::Four => "4",
-                Connectivity::Eight => "8",
+    // One thread writes every FITS file, so CFITSIO is used by it alone: the label maps as soon
+    // as the hierarchy is built, then the catalogue's FITS table once the catalogue is made.
+    // This thread meanwhile measures, scores, makes the catalogue and writes the text files,
+    // so on large maps the text files no longer wait for the label maps.
+    let fits_table_path = outputs.temp(names::FITS_TABLE);
+    let (table_tx, table_rx) = std::sync::mpsc::channel::<std::sync::Arc<crate::table::Table>>();
+    let written = std::thread::scope(|scope| -> Result<_> {
+        let fits_writer = scope.spawn(move || -> Result<f64> {
+            let seconds = write_label_maps()?;
+            // No table arrives if the other side failed first.
+            if let Ok(table) = table_rx.recv() {
+                table.write_fits(&fits_table_path)?;
             }
-            .into(),
-            "pixel adjacency".into(),
-        ),
+            Ok(seconds)
+        });
+        let made = (|| -> Result<_> {
+            let (ms, measure_seconds, phys, physics_note, physics_seconds) = analyse();
+            let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
+            let t_write = Instant::now();
+            progress("measure", 1.0);
+
+            start_hashing();
+            let input_sha = hashing
+                .take()
+                .ok_or_else(|| Error::internal("hashing the input was not started"))?
+                .join()
+                .map_err(|_| Error::internal("hashing the input failed"))??;
+            let meta: Vec<(String, String, String)> = vec![
+                (
+                    "input".into(),
+                    map.path
+                        .file_name()
+                        .map(|n| n.to_string_lossy().into_owned())
+                        .unwrap_or_default(),
+                    "input map".into(),
+                ),
+                (
+                    "input_sha256".into(),
+                    input_sha.clone(),
+                    "SHA-256 of the input file".into(),
+                ),
+                ("hdu".into(), map.hdu_index.to_string(), "HDU read".into()),
+                (
+                    "unit".into(),
+                    map.unit_text.clone(),
+                    "unit of the map".into(),
+                ),
+                (
+                    "floor".into(),
+                    crate::table::fmt_f64(r.floor),
+                    format!("map units (given as {})", r.given[0]),
+                ),
+                (
+                    "prominence".into(),
+                    crate::table::fmt_f64(r.prominence),
+                    format!("map units (given as {})", r.given[1]),
+                ),
+                (
+                    "min_area".into(),
+                    r.min_area_px.to_string(),
+                    format!("pixels (given as {})", r.given[2]),
+                ),
+                (
+                    "connectivity".into(),
+                    match o.connectivity {
+                        Connectivity::Four => "4",
+                        Connectivity::Eight => "8",
+                    }
+                    .into(),
+                    "pixel adjacency".into(),
+                ),
+                (
+                    "noise".into(),
+                    r.noise
+                        .map(crate::table::fmt_f64)
+                        .unwrap_or_else(|| "none".into()),
+                    r.noise_source.clone(),
+                ),
+                (
+                    "version".into(),
+                    env!("CARGO_PKG_VERSION").into(),
+                    "cairn version".into(),
+                ),
+            ];
+            let keep: Vec<usize> = (0..ms.len())
+                .filter(|&i| !o.leaves_only || ms[i].kind == Kind::Leaf)
+                .collect();
+            let rows: Vec<&Measurement> = keep.iter().map(|&i| &ms[i]).collect();
+            let phys_rows: Option<Vec<&crate::score::Physical>> =
+                phys.as_ref().map(|p| keep.iter().map(|&i| &p[i]).collect());
+            let mut meta = meta;
+            meta.extend(physics_meta(&o.physics, map));
+            let table = std::sync::Arc::new(catalogue(
+                map,
+                &rows,
+                phys_rows.as_deref(),
+                with_distance,
+                &r,
+                &meta,
+            ));
+            // The FITS writer takes its share; a send fails only if that thread already stopped on
+            // an error, which its join below reports.
+            let _ = table_tx.send(table.clone());
+            drop(table_tx);
+            table
+                .write_csv_and_votable(&outputs.temp(names::CSV), &outputs.temp(names::VOTABLE))?;
+            let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
+                .map_err(|e| Error::internal(e.to_string()))?
+                + "\n";
+            output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
+            output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
+            Ok((
+                ms,
+                measure_seconds,
+                phys,
+                physics_note,
+                physics_seconds,
+                with_distance,
+                t_write,
+                input_sha,
+            ))
+        })();
+        // Every file is complete before any is renamed: the FITS writer is joined first.
+        let label_maps_seconds = fits_writer
+            .join()
+            .map_err(|_| Error::internal("the FITS writer stopped unexpectedly"))??;
+        Ok((made?, label_maps_seconds))
+    });
+    let (
         (
-            "noise".into(),
-            r.noise
-                .map(crate::table::fmt_f64)
-                .unwrap_or_else(|| "none".into()),
-            r.noise_source.clone(),
+            ms,
+            measure_seconds,
+            phys,
+            physics_note,
+            physics_seconds,
+            with_distance,
+            t_write,
+            input_sha,
         ),
-        (
-            "version".into(),
-            env!("CARGO_PKG_VERSION").into(),
-            "cairn version".into(),
-        ),
-    ];
-    let keep: Vec<usize> = (0..ms.len())
-        .filter(|&i| !o.leaves_only || ms[i].kind == Kind::Leaf)
-        .collect();
-    let rows: Vec<&Measurement> = keep.iter().map(|&i| &ms[i]).collect();
-    let phys_rows: Option<Vec<&crate::score::Physical>> =
-        phys.as_ref().map(|p| keep.iter().map(|&i| &p[i]).collect());
-    let mut meta = meta;
-    meta.extend(physics_meta(&o.physics, map));
-    let table = catalogue(map, &rows, phys_rows.as_deref(), with_distance, &r, &meta);
-    // The writers run concurrently: the FITS table on one thread (the only CFITSIO user now),
-    // the text files on the other. Every file is complete before any is renamed.
-    let write_fits_table = || table.write_fits(&outputs.temp(names::FITS_TABLE));
-    let write_text_files = || -> Result<()> {
-        table.write_csv_and_votable(&outputs.temp(names::CSV), &outputs.temp(names::VOTABLE))?;
-        let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
-            .map_err(|e| Error::internal(e.to_string()))?
-            + "\n";
-        output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
-        output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
-        Ok(())
-    };
-    let (fits_done, text_done) = rayon::join(write_fits_table, write_text_files);
-    fits_done?;
-    text_done?;
+        label_maps_seconds,
+    ) = written?;
     if let Some(style) = &o.figure {
         let input = crate::draw::FigureInput {
             map,
