@@ -778,8 +778,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     };
     let tree_seconds = t_tree.elapsed().as_secs_f64();
     progress("measure", 0.0);
-    // The label maps are written while the measurements and the physics are made; CFITSIO
-    // is used by this writer alone until it is joined.
+    // The label maps, written by the FITS thread below.
     let labels_path = outputs.temp(names::LABELS);
     let grown_path = o.grow_leaves.then(|| outputs.temp(names::GROWN));
     let write_label_maps = || -> Result<f64> {
