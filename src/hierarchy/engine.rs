@@ -162,14 +162,22 @@ pub(super) fn build_impl(
         None => Cow::Owned(map.iter().copied().collect()),
     };
     let data: &[f32] = &data;
-    let (max, any_valid) = data
-        .par_iter()
-        .copied()
-        .filter(|v| !v.is_nan())
-        .map(|v| (v, true))
+    // The highest value and whether any pixel is valid or missing, in one pass of simple
+    // loops that vectorise (a NaN never compares greater, so it never becomes the maximum).
+    let (max, any_valid, any_missing) = data
+        .par_chunks(1 << 16)
+        .map(|chunk| {
+            let (mut max, mut valid, mut missing) = (f32::NEG_INFINITY, false, false);
+            for &v in chunk {
+                max = if v > max { v } else { max };
+                valid |= !v.is_nan();
+                missing |= v.is_nan();
+            }
+            (max, valid, missing)
+        })
         .reduce(
-            || (f32::NEG_INFINITY, false),
-            |a, b| (a.0.max(b.0), a.1 | b.1),
+            || (f32::NEG_INFINITY, false, false),
+            |a, b| (a.0.max(b.0), a.1 | b.1, a.2 | b.2),
         );
     if !any_valid {
         return Err(HierarchyError::NoValidPixels);
@@ -317,6 +325,7 @@ pub(super) fn build_impl(
         ncols,
         &labels,
         params.connectivity,
+        any_missing,
         &mut structures,
         &bottom_up,
     );

@@ -115,7 +115,7 @@ const EMPTY: Own = Own {
 
 /// Fills `npix`, `npix_own`, `sums`, `min_value`, `touches_edge` and `touches_missing` of
 /// every structure from the final labels. `bottom_up` lists the ids so that every child comes
-/// before its parent.
+/// before its parent; `any_missing` says whether the map has missing (NaN) pixels at all.
 ///
 /// Rows are cut into blocks whose number depends only on the map size and the number of
 /// structures (never on the thread count), each block is summed on its own and the blocks are
@@ -125,6 +125,7 @@ pub(super) fn fill(
     ncols: usize,
     labels: &[i32],
     conn: Connectivity,
+    any_missing: bool,
     structures: &mut [Structure],
     bottom_up: &[u32],
 ) {
@@ -137,7 +138,6 @@ pub(super) fn fill(
     let nblocks = (npix / (ns * 64)).clamp(1, 32).min(nrows.max(1));
     let rows_per = nrows.div_ceil(nblocks);
     let offs = conn.offsets();
-    let any_missing = map.par_iter().any(|v| v.is_nan());
     let blocks: Vec<Vec<Own>> = (0..nblocks)
         .into_par_iter()
         .map(|b| {
