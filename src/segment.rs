@@ -712,6 +712,18 @@ fn label_header(map: &Map, what: &str) -> Header {
     h
 }
 
+/// What the measuring side of [`run`] hands on once its files are written.
+struct Analysed {
+    ms: Vec<Measurement>,
+    measure_seconds: f64,
+    phys: Option<Vec<crate::score::Physical>>,
+    physics_note: Option<String>,
+    physics_seconds: f64,
+    /// Started when the measurements and physics were done.
+    t_write: Instant,
+    input_sha: String,
+}
+
 /// Runs the whole segmentation and writes the outputs. `progress` receives fractions 0..1.
 pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Result<RunSummary> {
     let t0 = Instant::now();
@@ -818,6 +830,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     // as the hierarchy is built, then the catalogue's FITS table once the catalogue is made.
     // This thread meanwhile measures, scores, makes the catalogue and writes the text files,
     // so on large maps the text files no longer wait for the label maps.
+    let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
     let fits_table_path = outputs.temp(names::FITS_TABLE);
     let (table_tx, table_rx) = std::sync::mpsc::channel::<std::sync::Arc<crate::table::Table>>();
     let written = std::thread::scope(|scope| -> Result<_> {
@@ -831,7 +844,6 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         });
         let made = (|| -> Result<_> {
             let (ms, measure_seconds, phys, physics_note, physics_seconds) = analyse();
-            let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
             let t_write = Instant::now();
             progress("measure", 1.0);
 
@@ -925,16 +937,15 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 + "\n";
             output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
             output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
-            Ok((
+            Ok(Analysed {
                 ms,
                 measure_seconds,
                 phys,
                 physics_note,
                 physics_seconds,
-                with_distance,
                 t_write,
                 input_sha,
-            ))
+            })
         })();
         // Every file is complete before any is renamed: the FITS writer is joined first.
         let label_maps_seconds = fits_writer
@@ -943,16 +954,15 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         Ok((made?, label_maps_seconds))
     });
     let (
-        (
+        Analysed {
             ms,
             measure_seconds,
             phys,
             physics_note,
             physics_seconds,
-            with_distance,
             t_write,
             input_sha,
-        ),
+        },
         label_maps_seconds,
     ) = written?;
     if let Some(style) = &o.figure {
