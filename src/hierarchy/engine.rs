@@ -5,6 +5,7 @@ use ndarray::{Array2, ArrayView2};
 use petgraph::graph::{DiGraph, NodeIndex};
 use rayon::prelude::*;
 use std::borrow::Cow;
+use std::sync::atomic::{AtomicU8, Ordering};
 
 /// Marks a union-find root; the low 31 bits then hold the component's open node.
 const ROOT: u32 = 1 << 31;
@@ -162,22 +163,31 @@ pub(super) fn build_impl(
         None => Cow::Owned(map.iter().copied().collect()),
     };
     let data: &[f32] = &data;
-    // The highest value and whether any pixel is valid or missing, in one pass of simple
-    // loops that vectorise (a NaN never compares greater, so it never becomes the maximum).
-    let (max, any_valid, any_missing) = data
+    // The highest value, the lowest considered value and whether any pixel is valid or
+    // missing, in one pass of simple loops that vectorise (a NaN never compares greater or
+    // less, so it is never one of the two).
+    let floor32 = radix::floor_f32(params.floor);
+    let (max, low, any_valid, any_missing) = data
         .par_chunks(1 << 16)
         .map(|chunk| {
-            let (mut max, mut valid, mut missing) = (f32::NEG_INFINITY, false, false);
+            let (mut max, mut low) = (f32::NEG_INFINITY, f32::INFINITY);
+            let (mut valid, mut missing) = (false, false);
             for &v in chunk {
                 max = if v > max { v } else { max };
+                let c = if radix::considered(v, floor32) {
+                    v
+                } else {
+                    f32::INFINITY
+                };
+                low = if c < low { c } else { low };
                 valid |= !v.is_nan();
                 missing |= v.is_nan();
             }
-            (max, valid, missing)
+            (max, low, valid, missing)
         })
         .reduce(
-            || (f32::NEG_INFINITY, false, false),
-            |a, b| (a.0.max(b.0), a.1 | b.1, a.2 | b.2),
+            || (f32::NEG_INFINITY, f32::INFINITY, false, false),
+            |a, b| (a.0.max(b.0), a.1.min(b.1), a.2 | b.2, a.3 | b.3),
         );
     if !any_valid {
         return Err(HierarchyError::NoValidPixels);
@@ -190,31 +200,34 @@ pub(super) fn build_impl(
     }
     progress(0.0);
 
-    // 1. Pixel order.
+    // 1. The keys of the pixel order, in buckets that the sweep sorts as it goes.
     let floor = params.floor;
     // Maps of up to 2^24 pixels carry each pixel's earlier-neighbour byte in its key (low
     // half: index << 8 | byte), so the sweep reads it in order instead of from a scattered
     // array; larger maps keep the bytes apart.
     let packed = npix <= pack_limit.min(PACK_LIMIT);
-    let (keys, masks) = if packed {
+    // The highest value is considered (it is at least the floor, tested above).
+    let range = Some((low, max));
+    let (buckets, masks) = if packed {
         let masks = earlier_neighbours(data, ncols, floor, params.connectivity);
-        (radix::sorted_keys_packed(data, floor, masks), Vec::new())
-    } else {
-        let keys = radix::sorted_keys(data, floor);
         (
-            keys,
+            radix::bucketed_keys(data, floor, Some(masks), range),
+            Vec::new(),
+        )
+    } else {
+        (
+            radix::bucketed_keys(data, floor, None, range),
             earlier_neighbours(data, ncols, floor, params.connectivity),
         )
     };
     progress(super::SWEEP_STARTS);
 
-    // 2. Sweep.
-    let mut keys = keys;
+    // 2. Sweep, sorting the buckets of keys on the way.
     let mut cells: Vec<u32> = pages::filled(npix, UNVISITED);
-    let (mut nodes, areas) = if packed {
-        sweep::<true>(&mut cells, &masks, ncols, &mut keys, params, progress)
+    let (mut nodes, areas, keys) = if packed {
+        sweep::<true>(&mut cells, &masks, ncols, buckets, params, progress)
     } else {
-        sweep::<false>(&mut cells, &masks, ncols, &mut keys, params, progress)
+        sweep::<false>(&mut cells, &masks, ncols, buckets, params, progress)
     };
     drop(masks);
     progress(0.9);
@@ -528,9 +541,73 @@ fn mask_row(row: &mut [u8], above: &[i32], here: &[i32], below: &[i32], allowed:
 /// How many pixels ahead the sweep prefetches.
 const AHEAD: usize = 32;
 
-/// Visits the pixels in `keys` order, merging components and simplifying on the fly. `cells`
-/// holds [`UNVISITED`] for every pixel on entry. Returns the nodes; on return the high half of
-/// each key holds the open node of its pixel's component when the pixel was visited.
+/// A bucket of keys not sorted yet.
+const UNSORTED: u8 = 0;
+/// A bucket some thread is sorting.
+const SORTING: u8 = 1;
+/// A bucket sorted, which the sweep may read.
+const SORTED: u8 = 2;
+
+/// The buckets of keys shared by the sweep and the thread that sorts ahead of it. A bucket is
+/// sorted by whichever thread claims it first; the sweep reads a bucket only once it is
+/// sorted, and the sorting thread touches only the buckets it claimed, so no position is ever
+/// used by both at once.
+struct Pipeline<'a> {
+    keys: radix::Out<u64>,
+    starts: &'a [usize],
+    state: Vec<AtomicU8>,
+    low_bits: u32,
+}
+
+impl Pipeline<'_> {
+    /// Sorts bucket `b` if no thread has claimed it yet.
+    fn try_sort(&self, b: usize, scratch: &mut Vec<u64>) {
+        if self.state[b]
+            .compare_exchange(UNSORTED, SORTING, Ordering::Acquire, Ordering::Relaxed)
+            .is_ok()
+        {
+            let (a, e) = (self.starts[b], self.starts[b + 1]);
+            // SAFETY: the claim above makes this thread the only one using bucket `b` until
+            // it is marked sorted; the buckets are disjoint ranges inside the keys.
+            let bucket = unsafe { std::slice::from_raw_parts_mut(self.keys.0.add(a), e - a) };
+            radix::sort_bucket(bucket, self.low_bits, scratch);
+            self.state[b].store(SORTED, Ordering::Release);
+        }
+    }
+
+    /// Returns once bucket `b` is sorted, sorting it here if no thread has claimed it, and
+    /// meanwhile the next one if the other thread is still sorting `b`.
+    fn wait(&self, b: usize, scratch: &mut Vec<u64>) {
+        let mut spins = 0u32;
+        loop {
+            match self.state[b].load(Ordering::Acquire) {
+                SORTED => return,
+                UNSORTED => self.try_sort(b, scratch),
+                _ => {
+                    if spins == 0 && b + 1 < self.state.len() {
+                        self.try_sort(b + 1, scratch);
+                    }
+                    spins += 1;
+                    if spins.is_multiple_of(64) {
+                        std::thread::yield_now();
+                    } else {
+                        std::hint::spin_loop();
+                    }
+                }
+            }
+        }
+    }
+
+    fn is_sorted(&self, b: usize) -> bool {
+        self.state[b].load(Ordering::Acquire) == SORTED
+    }
+}
+
+/// Visits the pixels in key order, merging components and simplifying on the fly, while
+/// another thread (when the pool has more than one) sorts the buckets of keys ahead of it.
+/// `cells` holds [`UNVISITED`] for every pixel on entry. Returns the nodes, their areas and
+/// the keys, whose high half then holds the open node of each pixel's component when the
+/// pixel was visited.
 ///
 /// Each pixel has one 32-bit cell: [`UNVISITED`], its union-find parent, or `ROOT | open
 /// node` at a component root. Small cells keep as much of the map as possible in cache, as
@@ -540,7 +617,42 @@ fn sweep<const PACKED: bool>(
     cells: &mut [u32],
     masks: &[u8],
     ncols: usize,
-    keys: &mut [u64],
+    buckets: radix::Buckets,
+    params: &Params,
+    progress: &dyn Fn(f64),
+) -> (Vec<Node>, Vec<u32>, Vec<u64>) {
+    let radix::Buckets {
+        mut keys,
+        starts,
+        low_bits,
+    } = buckets;
+    let nb = starts.len() - 1;
+    let pipe = Pipeline {
+        keys: radix::Out(keys.as_mut_ptr()),
+        starts: &starts,
+        state: (0..nb).map(|_| AtomicU8::new(UNSORTED)).collect(),
+        low_bits,
+    };
+    let (nodes, areas) = rayon::in_place_scope(|scope| {
+        if nb > 1 && rayon::current_num_threads() > 1 {
+            scope.spawn(|_| {
+                let mut scratch = Vec::new();
+                for b in 0..nb {
+                    pipe.try_sort(b, &mut scratch);
+                }
+            });
+        }
+        sweep_sorted::<PACKED>(cells, masks, ncols, &pipe, params, progress)
+    });
+    (nodes, areas, keys)
+}
+
+/// The sweep proper: the buckets of `pipe` in order, each once it is sorted.
+fn sweep_sorted<const PACKED: bool>(
+    cells: &mut [u32],
+    masks: &[u8],
+    ncols: usize,
+    pipe: &Pipeline,
     params: &Params,
     progress: &dyn Fn(f64),
 ) -> (Vec<Node>, Vec<u32>) {
@@ -556,95 +668,112 @@ fn sweep<const PACKED: bool>(
         super::Connectivity::Eight => &GROUPS_EIGHT,
         super::Connectivity::Four => &GROUPS_FOUR,
     };
-    let nkeys = keys.len();
-    for step in 0..nkeys {
-        if step % PROGRESS_STEP == 0 && step > 0 {
-            progress(super::SWEEP_STARTS + 0.6 * step as f64 / nkeys as f64);
-        }
-        if let Some(&ahead) = keys.get(step + AHEAD) {
-            let q = if PACKED {
-                (ahead as u32 >> 8) as usize
-            } else {
-                ahead as u32 as usize
-            };
-            prefetch(cells, q.saturating_sub(ncols));
-            prefetch(cells, q);
-            prefetch(cells, (q + ncols).min(npix - 1));
-            if !PACKED {
-                prefetch(masks, q);
-            }
-        }
-        let key = keys[step];
-        let (p, mask) = if PACKED {
-            ((key as u32 >> 8) as usize, key as u8)
+    let starts = pipe.starts;
+    let nb = starts.len() - 1;
+    let nkeys = starts[nb];
+    let keys = pipe.keys.0;
+    let mut scratch = Vec::new();
+    for b in 0..nb {
+        pipe.wait(b, &mut scratch);
+        // Keys may be read ahead as far as the buckets known to be sorted reach.
+        let limit = if b + 1 < nb && pipe.is_sorted(b + 1) {
+            starts[b + 2]
         } else {
-            (key as u32 as usize, masks[key as u32 as usize])
+            starts[b + 1]
         };
-        let v = from_order_key(!((key >> 32) as u32));
-        // Distinct components among the neighbours visited before p (the bits of its mask),
-        // one lookup per group of adjacent ones.
-        let mut roots = [0u32; 4];
-        let mut k = 0usize;
-        let group = &groups[mask as usize];
-        for &j in &group[1..=group[0] as usize] {
-            let q = p.wrapping_add(delta[j as usize] as usize);
-            let r = find(cells, q as u32);
-            if !roots[..k].contains(&r) {
-                roots[k] = r;
-                k += 1;
+        for step in starts[b]..starts[b + 1] {
+            if step % PROGRESS_STEP == 0 && step > 0 {
+                progress(super::SWEEP_STARTS + 0.6 * step as f64 / nkeys as f64);
             }
+            if step + AHEAD < limit {
+                // SAFETY: in bounds and in a sorted bucket, which no other thread writes.
+                let ahead = unsafe { keys.add(step + AHEAD).read() };
+                let q = if PACKED {
+                    (ahead as u32 >> 8) as usize
+                } else {
+                    ahead as u32 as usize
+                };
+                prefetch(cells, q.saturating_sub(ncols));
+                prefetch(cells, q);
+                prefetch(cells, (q + ncols).min(npix - 1));
+                if !PACKED {
+                    prefetch(masks, q);
+                }
+            }
+            // SAFETY: as above; bucket `b` is sorted and only this thread uses it now.
+            let key = unsafe { keys.add(step).read() };
+            let (p, mask) = if PACKED {
+                ((key as u32 >> 8) as usize, key as u8)
+            } else {
+                (key as u32 as usize, masks[key as u32 as usize])
+            };
+            let v = from_order_key(!((key >> 32) as u32));
+            // Distinct components among the neighbours visited before p (the bits of its mask),
+            // one lookup per group of adjacent ones.
+            let mut roots = [0u32; 4];
+            let mut k = 0usize;
+            let group = &groups[mask as usize];
+            for &j in &group[1..=group[0] as usize] {
+                let q = p.wrapping_add(delta[j as usize] as usize);
+                let r = find(cells, q as u32);
+                if !roots[..k].contains(&r) {
+                    roots[k] = r;
+                    k += 1;
+                }
+            }
+            let (link_p, node_p) = match k {
+                0 => {
+                    let n = nodes.len() as u32;
+                    areas.push(1);
+                    nodes.push(Node {
+                        alias: n,
+                        peak: p as u32,
+                        peak_val: v,
+                        parent: NONE,
+                        level: f32::NAN,
+                        merge: f32::NAN,
+                    });
+                    (ROOT | n, n)
+                }
+                1 => {
+                    let r = roots[0];
+                    let n = cells[r as usize] & !ROOT;
+                    areas[n as usize] += 1;
+                    (r, n)
+                }
+                _ => {
+                    // Union by size: the largest component's root stays the root.
+                    let mut big = roots[0];
+                    let mut big_area = 0u32;
+                    for &r in &roots[..k] {
+                        let a = areas[(cells[r as usize] & !ROOT) as usize];
+                        if a > big_area {
+                            big_area = a;
+                            big = r;
+                        }
+                    }
+                    let t = merge(
+                        cells,
+                        &mut nodes,
+                        &mut areas,
+                        &roots[..k],
+                        v,
+                        min_area,
+                        prominence,
+                    );
+                    for &r in &roots[..k] {
+                        if r != big {
+                            cells[r as usize] = big;
+                        }
+                    }
+                    cells[big as usize] = ROOT | t;
+                    (big, t)
+                }
+            };
+            cells[p] = link_p;
+            // SAFETY: as above.
+            unsafe { keys.add(step).write(((node_p as u64) << 32) | p as u64) };
         }
-        let (link_p, node_p) = match k {
-            0 => {
-                let n = nodes.len() as u32;
-                areas.push(1);
-                nodes.push(Node {
-                    alias: n,
-                    peak: p as u32,
-                    peak_val: v,
-                    parent: NONE,
-                    level: f32::NAN,
-                    merge: f32::NAN,
-                });
-                (ROOT | n, n)
-            }
-            1 => {
-                let r = roots[0];
-                let n = cells[r as usize] & !ROOT;
-                areas[n as usize] += 1;
-                (r, n)
-            }
-            _ => {
-                // Union by size: the largest component's root stays the root.
-                let mut big = roots[0];
-                let mut big_area = 0u32;
-                for &r in &roots[..k] {
-                    let a = areas[(cells[r as usize] & !ROOT) as usize];
-                    if a > big_area {
-                        big_area = a;
-                        big = r;
-                    }
-                }
-                let t = merge(
-                    cells,
-                    &mut nodes,
-                    &mut areas,
-                    &roots[..k],
-                    v,
-                    min_area,
-                    prominence,
-                );
-                for &r in &roots[..k] {
-                    if r != big {
-                        cells[r as usize] = big;
-                    }
-                }
-                cells[big as usize] = ROOT | t;
-                (big, t)
-            }
-        };
-        cells[p] = link_p;
-        keys[step] = ((node_p as u64) << 32) | p as u64;
     }
     (nodes, areas)
 }

@@ -13,9 +13,10 @@
 //! The component tree (max-tree) of the upper level sets `{map >= t}` is built by union-find
 //! over flat arrays, visiting pixels from the highest down (Najman & Couprie 2006, IEEE TIP 15,
 //! 3531; Berger et al. 2007, ICIP; review by Carlinet & Geraud 2014, IEEE TIP 23, 3885). The
-//! pixel order comes from one parallel radix sort of 64-bit keys (order-preserving 32-bit image
-//! of the value, then the linear index). The tree is simplified *while* components merge, so the full
-//! max-tree is never stored.
+//! pixel order comes from a radix sort of 64-bit keys (order-preserving 32-bit image of the
+//! value, then the linear index): a parallel pass into buckets by the leading bits of the
+//! value, then each bucket sorted in cache, on a second thread ahead of the sweep. The tree is
+//! simplified *while* components merge, so the full max-tree is never stored.
 //!
 //! # Exact rules
 //! * **Pixels considered.** A pixel takes part iff its value is not NaN and `value >= floor`.
@@ -66,27 +67,33 @@
 //!   first). So id 0 is the root holding the highest pixel.
 //!
 //! # Memory
-//! Besides the map: 8 bytes per considered pixel for the sorted keys (16 while the radix sort
-//! runs, which needs a second buffer), one 4-byte cell per pixel during the sweep (the
+//! Besides the map: 8 bytes per considered pixel for the keys (each bucket is sorted in place
+//! through a scratch buffer of one bucket per thread), one 4-byte cell per pixel during the sweep (the
 //! union-find link, or the open node at a component root; small so that as much of the map
 //! as possible stays in cache for the spatially random sweep), one byte per pixel saying
 //! which neighbours come earlier in the pixel order, plus 28 bytes per candidate peak
 //! (regional maximum) met. The sweep writes each pixel's visiting node into the high half of
 //! its key, which it has just read; the cells then become the 4-byte label array in place and
-//! the labels are scattered from the keys. So the peak is about map + 16 bytes per pixel
-//! (during the sort), and map + 12 (13 above 2^24 pixels) during the sweep. Moment sums are
+//! the labels are scattered from the keys. So the peak is about map + 12 bytes per pixel (13
+//! above 2^24 pixels), during the sweep. Moment sums are
 //! gathered after the sweep from the label map, for the accepted structures only (absorbed
 //! candidates never carry sums), in row blocks fixed by the map size so that sums do not
 //! depend on the thread count.
 //!
 //! # Speed
-//! The sort is parallel; the sweep is sequential and bound by memory latency, so it touches
-//! as little scattered memory per pixel as possible:
+//! The sort is parallel and the sweep sequential, bound by memory latency; the two overlap,
+//! and the sweep touches as little scattered memory per pixel as possible:
+//! * the keys are first scattered in parallel into buckets by the leading bits in which the
+//!   considered values differ (a few thousand keys per bucket on average); the sweep then
+//!   takes the buckets in order while a second thread sorts the ones after it (a radix sort
+//!   of each bucket on its remaining bits, in cache). Whichever thread claims a bucket first
+//!   sorts it, and the sweep reads a bucket only once it is sorted, so the order, and every
+//!   result, is that of a full sort before the sweep;
 //! * the earlier-neighbour bytes are computed in parallel in raster order before the sweep,
 //!   so it never tests unvisited cells nor needs the pixel's row and column; on maps of up
 //!   to 2^24 pixels each byte rides in the low half of its pixel's key (`index << 8 |
-//!   byte`), read in order, and is freed before the sort's second buffer exists; larger maps
-//!   keep the bytes in their own array, made after the sort;
+//!   byte`), read in order, and is freed once the keys are made; larger maps keep the bytes
+//!   in their own array;
 //! * two visited pixels that touch are always in one component already (the later was joined
 //!   to the earlier when it was visited), so the sweep looks up the union-find root of only
 //!   one neighbour per group of earlier neighbours that touch each other, from a table of the
@@ -114,8 +121,9 @@ use std::fmt;
 
 pub use engine::{build, build_with_progress};
 
-/// The progress fraction [`build_with_progress`] reports when its sort is done and its
-/// sequential sweep begins (from then until 0.9 one core does the work, the others are free).
+/// The progress fraction [`build_with_progress`] reports when its parallel passes are done and
+/// its sequential sweep begins (from then until 0.9 one core sweeps and one sorts the buckets
+/// of keys ahead of it, which takes it a fraction of the time; the other cores are free).
 pub const SWEEP_STARTS: f64 = 0.3;
 pub use grow::grow_leaves;
 pub use moments::Moments;

@@ -1,9 +1,14 @@
-//! The pixel order: a parallel least-significant-digit radix sort of the sweep keys.
+//! The pixel order: a radix sort of the sweep keys in two stages, so that the sweep can start
+//! before the sort ends.
 //!
-//! Keys are built in increasing linear index and every pass is stable, so only the 32-bit
-//! value half of a key needs sorting; digits that are the same for every key are skipped. The
-//! sorted array of distinct keys is unique, so the result never depends on how the work is
-//! split among threads.
+//! A parallel pass scatters the keys into buckets by the most significant bits in which their
+//! values differ ([`bucketed_keys`]); each bucket is then sorted on the remaining bits by a
+//! least-significant-digit radix sort in the processor's cache ([`sort_bucket`]), bucket
+//! after bucket, while the sweep works through the buckets already sorted. Keys are built in
+//! increasing linear index and every pass is stable, so only the 32-bit value half of a key
+//! needs sorting; digits that are the same for a whole bucket are skipped. The sorted array of
+//! distinct keys is unique, so the result never depends on how the work is split among
+//! threads or on which thread sorts which bucket.
 
 use super::engine::sort_key;
 use rayon::prelude::*;
@@ -66,144 +71,221 @@ fn piece_start(n: usize, m: usize, i: usize) -> usize {
     (n as u128 * i as u128 / m as u128) as usize
 }
 
-/// Exclusive prefix sums in bucket-major, piece-minor order: where piece `c` writes its first
-/// key of bucket `b`.
-fn offsets(hist: &[[usize; BUCKETS]]) -> Vec<[usize; BUCKETS]> {
-    let mut off = vec![[0usize; BUCKETS]; hist.len()];
-    let mut at = 0;
-    for b in 0..BUCKETS {
-        for (c, h) in hist.iter().enumerate() {
-            off[c][b] = at;
-            at += h[b];
-        }
-    }
-    off
+/// The considered pixels' keys grouped by the leading bits of their value half, the bits in
+/// which the keys differ first: bucket after bucket in increasing key order, and within a
+/// bucket in increasing index (not yet sorted on the lower bits; see [`sort_bucket`]).
+pub(super) struct Buckets {
+    /// The keys, bucket after bucket.
+    pub(super) keys: Vec<u64>,
+    /// Bucket `b` is `keys[starts[b]..starts[b + 1]]`.
+    pub(super) starts: Vec<usize>,
+    /// The bits of the value half below the bucket digit, still to be sorted in each bucket.
+    pub(super) low_bits: u32,
 }
 
-/// The keys ([`sort_key`]) of the considered pixels of `data`, in increasing order.
-pub(super) fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
-    sorted_keys_with(data, floor, None)
+/// Bits of the bucket digit for a map of `npix` pixels: buckets of a few thousand keys on
+/// average, which [`sort_bucket`] sorts in the processor's cache, and at most 4096 of them, so
+/// that the scattering pass writes to a few thousand places at once. Fixed by the size only.
+fn bucket_bits(npix: usize) -> u32 {
+    (npix.max(1).ilog2().saturating_sub(11)).clamp(1, 12)
 }
 
-/// [`sorted_keys`] for maps of at most 2^24 pixels, with each pixel's byte of `bytes` packed
-/// into the low half of its key: `index << 8 | byte`. Only the value half is sorted (stably,
-/// keys made in increasing index), so the order is that of [`sorted_keys`]. The bytes are
-/// freed once copied into the keys, before the sort's second buffer is made.
-pub(super) fn sorted_keys_packed(data: &[f32], floor: f64, bytes: Vec<u8>) -> Vec<u64> {
-    assert!(data.len() <= 1 << 24 && bytes.len() == data.len());
-    sorted_keys_with(data, floor, Some(bytes))
-}
-
-fn sorted_keys_with(data: &[f32], floor: f64, bytes: Option<Vec<u8>>) -> Vec<u64> {
+/// The keys ([`sort_key`]) of the considered pixels of `data` in buckets: one parallel pass
+/// counts the pixels of each bucket, one scatters the keys, each piece of the map writing its
+/// keys of a bucket in index order after those of the pieces before it. With `bytes` (maps of
+/// at most 2^24 pixels), each pixel's byte is packed into the low half of its key instead of
+/// the bare index: `index << 8 | byte`, which orders the same. `range` is the lowest and
+/// highest considered value (`None` if no pixel is considered).
+///
+/// The buckets follow the most significant digit of the keys' value half among the bits that
+/// vary between the lowest and the highest considered value, so a map whose values span a
+/// narrow range still spreads over every bucket.
+pub(super) fn bucketed_keys(
+    data: &[f32],
+    floor: f64,
+    bytes: Option<Vec<u8>>,
+    range: Option<(f32, f32)>,
+) -> Buckets {
     let npix = data.len();
     let floor = floor_f32(floor);
+    // The value halves of the highest and the lowest value's keys: every key's value half lies
+    // between them, so the bits above their highest differing bit are the same for all.
+    let (first, last) = range.map_or((0, 0), |(lo, hi)| {
+        (
+            (sort_key(hi, 0) >> 32) as u32,
+            (sort_key(lo, 0) >> 32) as u32,
+        )
+    });
+    let span = 32 - (first ^ last).leading_zeros();
+    let bits = bucket_bits(npix).min(span);
+    let low_bits = span - bits;
+    let nb = 1usize << bits;
+    let bucket = move |k: u64| (((k >> 32) as u32 >> low_bits) as usize) & (nb - 1);
     let m = pieces(npix);
-    // Histograms of every digit, per piece of the map.
-    let hists: Vec<[[usize; BUCKETS]; DIGITS]> = (0..m)
+    let hist: Vec<Vec<usize>> = (0..m)
         .into_par_iter()
         .map(|c| {
-            let mut h = [[0usize; BUCKETS]; DIGITS];
+            let mut h = vec![0usize; nb];
             let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
-            for (i, &v) in data[a..b].iter().enumerate() {
+            for &v in &data[a..b] {
                 if considered(v, floor) {
-                    let k = sort_key(v, a + i);
-                    for (d, hd) in h.iter_mut().enumerate() {
-                        hd[digit(k, d)] += 1;
-                    }
+                    h[bucket(sort_key(v, 0))] += 1;
                 }
             }
             h
         })
         .collect();
-    let n: usize = hists.iter().map(|h| h[0].iter().sum::<usize>()).sum();
-    let passes: Vec<usize> = (0..DIGITS)
-        .filter(|&d| {
-            let mut tot = [0usize; BUCKETS];
-            for h in &hists {
-                for (t, &x) in tot.iter_mut().zip(&h[d]) {
-                    *t += x;
-                }
-            }
-            !tot.contains(&n)
-        })
-        .collect();
-
-    // First pass straight from the map (or, with nothing to sort, the keys in index order).
-    let mut src: Vec<u64> = Vec::with_capacity(n);
-    {
-        let first_hist: Vec<[usize; BUCKETS]> = match passes.first() {
-            Some(&d) => hists.iter().map(|h| h[d]).collect(),
-            None => hists
-                .iter()
-                .map(|h| {
-                    let mut one = [0usize; BUCKETS];
-                    one[0] = h[0].iter().sum();
-                    one
-                })
-                .collect(),
-        };
-        let d0 = passes.first().copied();
-        let off = offsets(&first_hist);
-        let out = Out(src.as_mut_ptr());
-        off.into_par_iter().enumerate().for_each(|(c, mut o)| {
-            let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
-            for (i, &v) in data[a..b].iter().enumerate() {
-                if considered(v, floor) {
-                    let k = match &bytes {
-                        Some(b) => {
-                            sort_key(v, 0) | u64::from(((a + i) as u32) << 8 | u32::from(b[a + i]))
-                        }
-                        None => sort_key(v, a + i),
-                    };
-                    let bk = d0.map_or(0, |d| digit(k, d));
-                    // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
-                    unsafe { out.write(o[bk], k) };
-                    o[bk] += 1;
-                }
-            }
-        });
-        // SAFETY: the pieces wrote every one of the `n` positions (the offsets cover 0..n).
-        unsafe { src.set_len(n) };
+    // Where piece `c` writes its first key of bucket `b`: bucket-major, piece-minor.
+    let mut starts = Vec::with_capacity(nb + 1);
+    let mut off = vec![vec![0usize; nb]; m];
+    let mut at = 0;
+    for b in 0..nb {
+        starts.push(at);
+        for (c, h) in hist.iter().enumerate() {
+            off[c][b] = at;
+            at += h[b];
+        }
     }
-    drop(bytes);
-    if passes.len() <= 1 {
-        return src;
-    }
-    let mut dst: Vec<u64> = Vec::with_capacity(n);
-    let m = pieces(n);
-    for &d in &passes[1..] {
-        let hist: Vec<[usize; BUCKETS]> = (0..m)
-            .into_par_iter()
-            .map(|c| {
-                let mut h = [0usize; BUCKETS];
-                for &k in &src[piece_start(n, m, c)..piece_start(n, m, c + 1)] {
-                    h[digit(k, d)] += 1;
-                }
-                h
-            })
-            .collect();
-        let off = offsets(&hist);
-        dst.clear();
-        let out = Out(dst.as_mut_ptr());
-        let src_ref = &src;
-        off.into_par_iter().enumerate().for_each(|(c, mut o)| {
-            for &k in &src_ref[piece_start(n, m, c)..piece_start(n, m, c + 1)] {
-                let bk = digit(k, d);
+    starts.push(at);
+    let n = at;
+    let mut keys: Vec<u64> = Vec::with_capacity(n);
+    let out = Out(keys.as_mut_ptr());
+    off.into_par_iter().enumerate().for_each(|(c, mut o)| {
+        let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
+        for (i, &v) in data[a..b].iter().enumerate() {
+            if considered(v, floor) {
+                let k = match &bytes {
+                    Some(b) => {
+                        sort_key(v, 0) | u64::from(((a + i) as u32) << 8 | u32::from(b[a + i]))
+                    }
+                    None => sort_key(v, a + i),
+                };
+                let bk = bucket(k);
                 // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
                 unsafe { out.write(o[bk], k) };
                 o[bk] += 1;
             }
-        });
-        // SAFETY: the pieces wrote every one of the `n` positions.
-        unsafe { dst.set_len(n) };
-        std::mem::swap(&mut src, &mut dst);
+        }
+    });
+    // SAFETY: the pieces wrote every one of the `n` positions (the offsets cover 0..n).
+    unsafe { keys.set_len(n) };
+    Buckets {
+        keys,
+        starts,
+        low_bits,
     }
-    src
+}
+
+/// Buckets of at most this many keys are sorted by insertion.
+const SMALL_BUCKET: usize = 32;
+
+/// Sorts one bucket of [`bucketed_keys`] on the `low_bits` lowest bits of the keys' value
+/// half: a least-significant-digit radix sort (8-bit digits, each pass stable, digits the
+/// same for the whole bucket skipped), so keys of equal value stay in index order. `scratch`
+/// is reused between buckets.
+pub(super) fn sort_bucket(keys: &mut [u64], low_bits: u32, scratch: &mut Vec<u64>) {
+    let n = keys.len();
+    if n <= 1 || low_bits == 0 {
+        return;
+    }
+    if n <= SMALL_BUCKET {
+        // Keys are distinct (the low half holds the index), so this is the same order.
+        for i in 1..n {
+            let k = keys[i];
+            let mut j = i;
+            while j > 0 && keys[j - 1] > k {
+                keys[j] = keys[j - 1];
+                j -= 1;
+            }
+            keys[j] = k;
+        }
+        return;
+    }
+    let passes = low_bits.div_ceil(BITS) as usize;
+    let mut hist = [[0u32; BUCKETS]; DIGITS];
+    for &k in keys.iter() {
+        for (d, h) in hist[..passes].iter_mut().enumerate() {
+            h[digit(k, d)] += 1;
+        }
+    }
+    if scratch.len() < n {
+        scratch.resize(n, 0);
+    }
+    let scratch = &mut scratch[..n];
+    let mut in_keys = true;
+    for (d, h) in hist[..passes].iter().enumerate() {
+        if h.contains(&(n as u32)) {
+            continue;
+        }
+        let mut off = [0u32; BUCKETS];
+        let mut at = 0;
+        for (o, &c) in off.iter_mut().zip(h) {
+            *o = at;
+            at += c;
+        }
+        let (src, dst): (&[u64], &mut [u64]) = if in_keys {
+            (keys, scratch)
+        } else {
+            (scratch, keys)
+        };
+        for &k in src {
+            let b = digit(k, d);
+            dst[off[b] as usize] = k;
+            off[b] += 1;
+        }
+        in_keys = !in_keys;
+    }
+    if !in_keys {
+        keys.copy_from_slice(scratch);
+    }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The keys ([`sort_key`]) of the considered pixels of `data`, in increasing order.
+    fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
+        sorted_with(data, floor, None)
+    }
+
+    /// [`sorted_keys`] for maps of at most 2^24 pixels, with each pixel's byte of `bytes` packed
+    /// into the low half of its key: `index << 8 | byte`. The order is that of [`sorted_keys`].
+    fn sorted_keys_packed(data: &[f32], floor: f64, bytes: Vec<u8>) -> Vec<u64> {
+        assert!(data.len() <= 1 << 24 && bytes.len() == data.len());
+        sorted_with(data, floor, Some(bytes))
+    }
+
+    /// Every bucket of [`bucketed_keys`] sorted in turn.
+    fn sorted_with(data: &[f32], floor: f64, bytes: Option<Vec<u8>>) -> Vec<u64> {
+        let range = value_range(data, floor_f32(floor));
+        let mut b = bucketed_keys(data, floor, bytes, range);
+        let mut scratch = Vec::new();
+        for i in 0..b.starts.len() - 1 {
+            let (a, e) = (b.starts[i], b.starts[i + 1]);
+            sort_bucket(&mut b.keys[a..e], b.low_bits, &mut scratch);
+        }
+        b.keys
+    }
+
+    /// The lowest and highest values of the considered pixels (`None` if there are none).
+    fn value_range(data: &[f32], floor32: f32) -> Option<(f32, f32)> {
+        let (lo, hi) = data
+            .par_chunks(1 << 16)
+            .map(|c| {
+                let (mut lo, mut hi) = (f32::INFINITY, f32::NEG_INFINITY);
+                for &v in c.iter().filter(|&&v| considered(v, floor32)) {
+                    lo = lo.min(v);
+                    hi = hi.max(v);
+                }
+                (lo, hi)
+            })
+            .reduce(
+                || (f32::INFINITY, f32::NEG_INFINITY),
+                |a, b| (a.0.min(b.0), a.1.max(b.1)),
+            );
+        (lo <= hi).then_some((lo, hi))
+    }
 
     fn reference(data: &[f32], floor: f64) -> Vec<u64> {
         let mut k: Vec<u64> = data
