@@ -447,9 +447,10 @@ pub fn score(
     let beam_rad = map
         .beam
         .map(|b| (b.major_deg * b.minor_deg).sqrt().to_radians());
+    // Each structure is scored on its own (in parallel; the order of the rows is kept).
     let out = h
         .structures
-        .iter()
+        .par_iter()
         .zip(ms)
         .zip(&total)
         .map(|((s, m), t)| {
