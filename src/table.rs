@@ -75,10 +75,9 @@ pub fn fmt_f64(x: f64) -> String {
 
 /// Appends [`fmt_f64`] of `x` to `s` without an intermediate string.
 ///
-/// The shortest round-trip digits come from `zmij` (about three times faster than the
-/// standard library's formatting, four without the layout step; most numbers need only
-/// their exponent's `+` dropped); they are laid out
-/// exactly as Rust's `{:?}` does: plain
+/// The shortest round-trip digits come from `zmij`, laid out exactly as Rust's `{:?}` does
+/// (most numbers need only their exponent's `+` dropped; the whole is about 1.8 times faster
+/// than the standard library's formatting on catalogue-like values): plain
 /// decimals with at least one fractional digit for `1e-4 <= |x| < 1e16`, otherwise
 /// `d.ddde[-]N` (a unit test checks the equality on a million random values).
 pub fn push_f64(s: &mut String, x: f64) {
