@@ -106,6 +106,10 @@ pub struct Measurement {
     pub area_px: u64,
     /// Solid angle, arcsec^2 (pixels times the pixel solid angle at the centroid).
     pub area_arcsec2: f64,
+    /// Solid angle of one pixel at the centroid (at the peak where the centroid is
+    /// undefined), sr; NaN without a WCS. Not a catalogue column: the physics uses it.
+    #[serde(skip)]
+    pub pixel_sr: f64,
     /// sqrt(area / pi) in pixels.
     pub radius_px: f64,
     /// sqrt(area / pi) in arcsec.
@@ -208,6 +212,7 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
         lat: nan,
         area_px: m.n,
         area_arcsec2: nan,
+        pixel_sr: nan,
         radius_px,
         radius_arcsec: nan,
         sigma_major_px: e.sigma_major,
@@ -242,6 +247,7 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
             out.lat = b;
         }
         let omega = w.pixel_solid_angle(ax, ay);
+        out.pixel_sr = omega;
         let arcsec2 = omega / (std::f64::consts::PI / 648_000.0).powi(2);
         out.area_arcsec2 = n * arcsec2;
         out.radius_arcsec = (out.area_arcsec2 / std::f64::consts::PI).sqrt();

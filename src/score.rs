@@ -485,12 +485,16 @@ pub fn score(
             let (Some(d), Some(w)) = (ctx.distance_m, map.wcs.as_ref()) else {
                 return p;
             };
-            let (cx, cy) = if m.x.is_finite() {
-                (m.x, m.y)
+            // The pixel's solid angle at the centroid (the peak where the centroid is
+            // undefined), as measured when the measurements had the map's WCS.
+            let sr = if m.pixel_sr.is_finite() {
+                m.pixel_sr
+            } else if m.x.is_finite() {
+                w.pixel_solid_angle(m.x, m.y)
             } else {
-                (s.peak_x as f64, s.peak_y as f64)
+                w.pixel_solid_angle(s.peak_x as f64, s.peak_y as f64)
             };
-            let area_m2 = w.pixel_solid_angle(cx, cy) * d * d;
+            let area_m2 = sr * d * d;
             let unit_mass = ctx.mu_h2 * M_H * area_m2;
             p.mass = unit_mass * t.n_col / M_SUN;
             p.mass_excess = unit_mass * (t.n_col - m.merge_level * t.f) / M_SUN;

@@ -930,13 +930,25 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             // an error, which its join below reports.
             let _ = table_tx.send(table.clone());
             drop(table_tx);
-            table
-                .write_csv_and_votable(&outputs.temp(names::CSV), &outputs.temp(names::VOTABLE))?;
-            let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
-                .map_err(|e| Error::internal(e.to_string()))?
-                + "\n";
-            output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
-            output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())?;
+            // The catalogue's text forms and the hierarchy's files at the same time.
+            let write_tree = || -> Result<()> {
+                let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
+                    .map_err(|e| Error::internal(e.to_string()))?
+                    + "\n";
+                output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
+                output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())
+            };
+            let (text, tree) = rayon::join(
+                || {
+                    table.write_csv_and_votable(
+                        &outputs.temp(names::CSV),
+                        &outputs.temp(names::VOTABLE),
+                    )
+                },
+                write_tree,
+            );
+            text?;
+            tree?;
             Ok(Analysed {
                 ms,
                 measure_seconds,
