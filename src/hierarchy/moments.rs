@@ -119,7 +119,10 @@ const EMPTY: Own = Own {
 ///
 /// Rows are cut into blocks whose number depends only on the map size and the number of
 /// structures (never on the thread count), each block is summed on its own and the blocks are
-/// added in row order, so the floating-point sums are identical for any thread count.
+/// added in row order, so the floating-point sums are identical for any thread count. A block
+/// keeps sums only for the structures it meets (most meet few), in the order it meets them;
+/// adding a block's sums for a structure it never met would add exact zeros, so leaving them
+/// out changes no bit (a sum that starts at +0.0 never becomes -0.0).
 pub(super) fn fill(
     map: &[f32],
     ncols: usize,
@@ -138,10 +141,13 @@ pub(super) fn fill(
     let nblocks = (npix / (ns * 64)).clamp(1, 32).min(nrows.max(1));
     let rows_per = nrows.div_ceil(nblocks);
     let offs = conn.offsets();
-    let blocks: Vec<Vec<Own>> = (0..nblocks)
+    let blocks: Vec<Vec<(u32, Own)>> = (0..nblocks)
         .into_par_iter()
         .map(|b| {
-            let mut acc = vec![EMPTY; ns];
+            // Where each structure met in this block keeps its sums in `acc` (NOT_MET if not).
+            const NOT_MET: u32 = u32::MAX;
+            let mut slot = vec![NOT_MET; ns];
+            let mut acc: Vec<(u32, Own)> = Vec::new();
             let r0 = b * rows_per;
             let r1 = ((b + 1) * rows_per).min(nrows);
             for y in r0..r1 {
@@ -158,7 +164,12 @@ pub(super) fn fill(
                     }
                     // A run of pixels of one structure is summed in registers, in the same
                     // order as pixel by pixel, so the sums are bit for bit the same.
-                    let a = &mut acc[l as usize];
+                    let k = &mut slot[l as usize];
+                    if *k == NOT_MET {
+                        *k = acc.len() as u32;
+                        acc.push((l as u32, EMPTY));
+                    }
+                    let a = &mut acc[*k as usize].1;
                     let mut m = a.m;
                     let mut min = a.min;
                     let start = x;
@@ -199,7 +210,8 @@ pub(super) fn fill(
         .collect();
     let mut total = vec![EMPTY; ns];
     for block in &blocks {
-        for (t, o) in total.iter_mut().zip(block) {
+        for (id, o) in block {
+            let t = &mut total[*id as usize];
             t.m.merge(&o.m);
             t.min = t.min.min(o.min);
             t.edge |= o.edge;
