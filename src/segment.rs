@@ -671,7 +671,7 @@ pub fn sha256_file(path: &Path) -> Result<String> {
     let mut f = std::fs::File::open(path)
         .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
     let mut hasher = Sha256::new();
-    let mut buf = vec![0u8; 1 << 20];
+    let mut buf = vec![0u8; 1 << 18];
     loop {
         let n = f
             .read(&mut buf)

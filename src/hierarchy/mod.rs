@@ -78,7 +78,7 @@
 //! above 2^24 pixels), during the sweep. Moment sums are
 //! gathered after the sweep from the label map, for the accepted structures only (absorbed
 //! candidates never carry sums), in row blocks fixed by the map size so that sums do not
-//! depend on the thread count.
+//! depend on the thread count; each block holds sums only for the structures it meets.
 //!
 //! # Speed
 //! The sort is parallel and the sweep sequential, bound by memory latency; the two overlap,
