@@ -166,7 +166,7 @@ fn main() {
                 digest(&h)
             );
             println!(
-                "    phases of one more run: checks + sort {:.3} s, sweep {:.3} s (on-CPU {:.3} s), labels + moments {:.3} s",
+                "    phases of one more run: checks, neighbour bytes and buckets {:.3} s, sweep with the buckets sorted beside it {:.3} s (sweeping thread on-CPU {:.3} s), labels + moments {:.3} s",
                 m[0].0,
                 m[1].0 - m[0].0,
                 m[1].1 - m[0].1,
