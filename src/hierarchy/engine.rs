@@ -204,19 +204,23 @@ pub(super) fn build_impl(
     let floor = params.floor;
     // Maps of up to 2^24 pixels carry each pixel's earlier-neighbour byte in its key (low
     // half: index << 8 | byte), so the sweep reads it in order instead of from a scattered
-    // array; larger maps keep the bytes apart.
+    // array; the bytes are made row by row as the keys are scattered. Larger maps keep the
+    // bytes apart.
     let packed = npix <= pack_limit.min(PACK_LIMIT);
     // The highest value is considered (it is at least the floor, tested above).
     let range = Some((low, max));
     let (buckets, masks) = if packed {
-        let masks = earlier_neighbours(data, ncols, floor, params.connectivity);
+        let rows = |y0: usize| {
+            let mut rows = NeighbourRows::new(data, ncols, floor, params.connectivity, y0);
+            move |out: &mut [u8]| rows.next_row(out)
+        };
         (
-            radix::bucketed_keys(data, floor, Some(masks), range),
+            radix::bucketed_keys_packed(data, ncols, floor, range, &rows),
             Vec::new(),
         )
     } else {
         (
-            radix::bucketed_keys(data, floor, None, range),
+            radix::bucketed_keys(data, ncols, floor, range),
             earlier_neighbours(data, ncols, floor, params.connectivity),
         )
     };
@@ -381,26 +385,86 @@ const MASK_ROWS: usize = 16;
 /// sweep visits before it: considered and earlier in the pixel order (higher value, or equal
 /// value and lower linear index). Zero for pixels not considered. Computed in parallel in
 /// raster order, so the sequential sweep reads one byte instead of testing up to eight
-/// scattered cells.
+/// scattered cells. (Maps of up to 2^24 pixels make these bytes row by row while their keys
+/// are scattered, through [`NeighbourRows`], and never hold them all.)
 fn earlier_neighbours(
     data: &[f32],
     ncols: usize,
     floor: f64,
     connectivity: super::Connectivity,
 ) -> Vec<u8> {
-    let npix = data.len();
-    let nrows = npix / ncols;
-    let allowed: u8 = match connectivity {
-        super::Connectivity::Eight => 0xff,
-        super::Connectivity::Four => 0b0101_1010,
-    };
-    // Order keys as signed numbers (so that the comparisons below vectorise), i32::MIN for
-    // pixels not considered (no considered pixel has it), padded by one such column on each
-    // side.
-    const OFF: i32 = i32::MIN;
-    let floor32 = radix::floor_f32(floor);
-    let key_row = |y: usize, buf: &mut [i32]| {
-        if y >= nrows {
+    let mut masks = vec![0u8; data.len()];
+    masks
+        .par_chunks_mut(MASK_ROWS * ncols)
+        .enumerate()
+        .for_each(|(c, out)| {
+            let mut rows = NeighbourRows::new(data, ncols, floor, connectivity, c * MASK_ROWS);
+            for row in out.chunks_mut(ncols) {
+                rows.next_row(row);
+            }
+        });
+    masks
+}
+
+/// Order keys as signed numbers (so that the comparisons of [`mask_row`] vectorise) for
+/// pixels not considered: no considered pixel has it.
+const OFF: i32 = i32::MIN;
+
+/// The earlier-neighbour bytes ([`earlier_neighbours`]) of successive rows from a given one,
+/// keeping the signed order keys of the rows above, here and below (each padded by one
+/// column of [`OFF`] on both sides).
+pub(super) struct NeighbourRows<'a> {
+    data: &'a [f32],
+    ncols: usize,
+    nrows: usize,
+    floor32: f32,
+    allowed: u8,
+    /// The row the next call makes.
+    y: usize,
+    above: Vec<i32>,
+    here: Vec<i32>,
+    below: Vec<i32>,
+}
+
+impl<'a> NeighbourRows<'a> {
+    /// Rows from `y0` on of the map `data` (`ncols` columns).
+    pub(super) fn new(
+        data: &'a [f32],
+        ncols: usize,
+        floor: f64,
+        connectivity: super::Connectivity,
+        y0: usize,
+    ) -> Self {
+        let mut rows = NeighbourRows {
+            data,
+            ncols,
+            nrows: data.len() / ncols.max(1),
+            floor32: radix::floor_f32(floor),
+            allowed: match connectivity {
+                super::Connectivity::Eight => 0xff,
+                super::Connectivity::Four => 0b0101_1010,
+            },
+            y: y0,
+            above: vec![OFF; ncols + 2],
+            here: vec![OFF; ncols + 2],
+            below: vec![OFF; ncols + 2],
+        };
+        if y0 > 0 {
+            rows.key_row(y0 - 1, 0);
+        }
+        rows.key_row(y0, 1);
+        rows
+    }
+
+    /// Fills buffer `which` (0 above, 1 here, 2 below) with the signed keys of row `y`.
+    fn key_row(&mut self, y: usize, which: usize) {
+        let (ncols, floor32) = (self.ncols, self.floor32);
+        let buf = match which {
+            0 => &mut self.above,
+            1 => &mut self.here,
+            _ => &mut self.below,
+        };
+        if y >= self.nrows {
             buf.fill(OFF);
             return;
         }
@@ -408,7 +472,7 @@ fn earlier_neighbours(
         buf[ncols + 1] = OFF;
         for (b, &v) in buf[1..=ncols]
             .iter_mut()
-            .zip(&data[y * ncols..(y + 1) * ncols])
+            .zip(&self.data[y * ncols..(y + 1) * ncols])
         {
             *b = if radix::considered(v, floor32) {
                 (order_key(v) ^ 0x8000_0000) as i32
@@ -416,28 +480,16 @@ fn earlier_neighbours(
                 OFF
             };
         }
-    };
-    let mut masks = vec![0u8; npix];
-    masks
-        .par_chunks_mut(MASK_ROWS * ncols)
-        .enumerate()
-        .for_each(|(c, out)| {
-            let y0 = c * MASK_ROWS;
-            let mut above = vec![OFF; ncols + 2];
-            let mut here = vec![OFF; ncols + 2];
-            let mut below = vec![OFF; ncols + 2];
-            if y0 > 0 {
-                key_row(y0 - 1, &mut above);
-            }
-            key_row(y0, &mut here);
-            for (r, row) in out.chunks_mut(ncols).enumerate() {
-                key_row(y0 + r + 1, &mut below);
-                mask_row(row, &above, &here, &below, allowed);
-                std::mem::swap(&mut above, &mut here);
-                std::mem::swap(&mut here, &mut below);
-            }
-        });
-    masks
+    }
+
+    /// Writes the bytes of the next row into `out` (`ncols` long).
+    pub(super) fn next_row(&mut self, out: &mut [u8]) {
+        self.key_row(self.y + 1, 2);
+        mask_row(out, &self.above, &self.here, &self.below, self.allowed);
+        std::mem::swap(&mut self.above, &mut self.here);
+        std::mem::swap(&mut self.here, &mut self.below);
+        self.y += 1;
+    }
 }
 
 /// Offsets (x, y) of the neighbours, in the order of the mask bits ([`neighbour_steps`]).

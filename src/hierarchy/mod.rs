@@ -68,11 +68,11 @@
 //!
 //! # Memory
 //! Besides the map: 8 bytes per considered pixel for the keys (each bucket is sorted in place
-//! through a scratch buffer of one bucket per thread), one 4-byte cell per pixel during the sweep (the
-//! union-find link, or the open node at a component root; small so that as much of the map
-//! as possible stays in cache for the spatially random sweep), one byte per pixel saying
-//! which neighbours come earlier in the pixel order, plus 28 bytes per candidate peak
-//! (regional maximum) met. The sweep writes each pixel's visiting node into the high half of
+//! through a scratch buffer of one bucket per thread), one 4-byte cell per pixel during the
+//! sweep (the union-find link, or the open node at a component root; small so that as much of
+//! the map as possible stays in cache for the spatially random sweep), on maps above 2^24
+//! pixels one byte per pixel saying which neighbours come earlier in the pixel order (smaller
+//! maps carry it in the keys), plus 28 bytes per candidate peak (regional maximum) met. The sweep writes each pixel's visiting node into the high half of
 //! its key, which it has just read; the cells then become the 4-byte label array in place and
 //! the labels are scattered from the keys. So the peak is about map + 12 bytes per pixel (13
 //! above 2^24 pixels), during the sweep. Moment sums are
@@ -92,8 +92,8 @@
 //! * the earlier-neighbour bytes are computed in parallel in raster order before the sweep,
 //!   so it never tests unvisited cells nor needs the pixel's row and column; on maps of up
 //!   to 2^24 pixels each byte rides in the low half of its pixel's key (`index << 8 |
-//!   byte`), read in order, and is freed once the keys are made; larger maps keep the bytes
-//!   in their own array;
+//!   byte`), read in order, and the bytes are made row by row while the keys are scattered
+//!   into their buckets; larger maps keep the bytes in their own array;
 //! * two visited pixels that touch are always in one component already (the later was joined
 //!   to the earlier when it was visited), so the sweep looks up the union-find root of only
 //!   one neighbour per group of earlier neighbours that touch each other, from a table of the

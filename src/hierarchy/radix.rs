@@ -90,23 +90,57 @@ fn bucket_bits(npix: usize) -> u32 {
     (npix.max(1).ilog2().saturating_sub(11)).clamp(1, 12)
 }
 
-/// The keys ([`sort_key`]) of the considered pixels of `data` in buckets: one parallel pass
-/// counts the pixels of each bucket, one scatters the keys, each piece of the map writing its
-/// keys of a bucket in index order after those of the pieces before it. With `bytes` (maps of
-/// at most 2^24 pixels), each pixel's byte is packed into the low half of its key instead of
-/// the bare index: `index << 8 | byte`, which orders the same. `range` is the lowest and
-/// highest considered value (`None` if no pixel is considered).
+/// The keys ([`sort_key`]) of the considered pixels of `data` (`ncols` columns) in buckets:
+/// one parallel pass counts the pixels of each bucket, one scatters the keys, each piece of
+/// rows writing its keys of a bucket in index order after those of the pieces before it.
+/// `range` is the lowest and highest considered value (`None` if no pixel is considered).
 ///
 /// The buckets follow the most significant digit of the keys' value half among the bits that
 /// vary between the lowest and the highest considered value, so a map whose values span a
 /// narrow range still spreads over every bucket.
 pub(super) fn bucketed_keys(
     data: &[f32],
+    ncols: usize,
     floor: f64,
-    bytes: Option<Vec<u8>>,
     range: Option<(f32, f32)>,
 ) -> Buckets {
+    bucketed::<fn(usize) -> fn(&mut [u8]), _>(data, ncols, floor, range, None)
+}
+
+/// [`bucketed_keys`] for maps of at most 2^24 pixels, with a byte per pixel packed into the low
+/// half of its key instead of the bare index: `index << 8 | byte`, which orders the same.
+/// `rows(y)` gives a generator of the bytes of rows `y`, `y + 1`, ... (one call per row, each
+/// filling `ncols` bytes), so the bytes are made piece by piece while the keys are scattered
+/// and never all held at once.
+pub(super) fn bucketed_keys_packed<F, R>(
+    data: &[f32],
+    ncols: usize,
+    floor: f64,
+    range: Option<(f32, f32)>,
+    rows: &F,
+) -> Buckets
+where
+    F: Fn(usize) -> R + Sync,
+    R: FnMut(&mut [u8]),
+{
+    assert!(data.len() <= 1 << 24);
+    bucketed(data, ncols, floor, range, Some(rows))
+}
+
+fn bucketed<F, R>(
+    data: &[f32],
+    ncols: usize,
+    floor: f64,
+    range: Option<(f32, f32)>,
+    rows: Option<&F>,
+) -> Buckets
+where
+    F: Fn(usize) -> R + Sync,
+    R: FnMut(&mut [u8]),
+{
     let npix = data.len();
+    let ncols = ncols.max(1);
+    let nrows = npix / ncols;
     let floor = floor_f32(floor);
     // The value halves of the highest and the lowest value's keys: every key's value half lies
     // between them, so the bits above their highest differing bit are the same for all.
@@ -121,13 +155,15 @@ pub(super) fn bucketed_keys(
     let low_bits = span - bits;
     let nb = 1usize << bits;
     let bucket = move |k: u64| (((k >> 32) as u32 >> low_bits) as usize) & (nb - 1);
+    // Pieces of whole rows (their number fixed by the size only).
     let m = pieces(npix);
+    let piece_rows = |c: usize| (piece_start(nrows, m, c), piece_start(nrows, m, c + 1));
     let hist: Vec<Vec<usize>> = (0..m)
         .into_par_iter()
         .map(|c| {
             let mut h = vec![0usize; nb];
-            let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
-            for &v in &data[a..b] {
+            let (y0, y1) = piece_rows(c);
+            for &v in &data[y0 * ncols..y1 * ncols] {
                 if considered(v, floor) {
                     h[bucket(sort_key(v, 0))] += 1;
                 }
@@ -151,19 +187,34 @@ pub(super) fn bucketed_keys(
     let mut keys: Vec<u64> = Vec::with_capacity(n);
     let out = Out(keys.as_mut_ptr());
     off.into_par_iter().enumerate().for_each(|(c, mut o)| {
-        let (a, b) = (piece_start(npix, m, c), piece_start(npix, m, c + 1));
-        for (i, &v) in data[a..b].iter().enumerate() {
-            if considered(v, floor) {
-                let k = match &bytes {
-                    Some(b) => {
-                        sort_key(v, 0) | u64::from(((a + i) as u32) << 8 | u32::from(b[a + i]))
+        let (y0, y1) = piece_rows(c);
+        let mut put = |k: u64| {
+            let bk = bucket(k);
+            // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
+            unsafe { out.write(o[bk], k) };
+            o[bk] += 1;
+        };
+        match rows {
+            Some(rows) => {
+                let mut next_row = rows(y0);
+                let mut bytes = vec![0u8; ncols];
+                for y in y0..y1 {
+                    next_row(&mut bytes);
+                    let row = &data[y * ncols..(y + 1) * ncols];
+                    for (x, (&v, &byte)) in row.iter().zip(&bytes).enumerate() {
+                        if considered(v, floor) {
+                            let i = (y * ncols + x) as u32;
+                            put(sort_key(v, 0) | u64::from(i << 8 | u32::from(byte)));
+                        }
                     }
-                    None => sort_key(v, a + i),
-                };
-                let bk = bucket(k);
-                // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
-                unsafe { out.write(o[bk], k) };
-                o[bk] += 1;
+                }
+            }
+            None => {
+                for (i, &v) in data[y0 * ncols..y1 * ncols].iter().enumerate() {
+                    if considered(v, floor) {
+                        put(sort_key(v, y0 * ncols + i));
+                    }
+                }
             }
         }
     });
@@ -245,21 +296,27 @@ mod tests {
     use super::*;
 
     /// The keys ([`sort_key`]) of the considered pixels of `data`, in increasing order.
-    fn sorted_keys(data: &[f32], floor: f64) -> Vec<u64> {
-        sorted_with(data, floor, None)
-    }
-
-    /// [`sorted_keys`] for maps of at most 2^24 pixels, with each pixel's byte of `bytes` packed
-    /// into the low half of its key: `index << 8 | byte`. The order is that of [`sorted_keys`].
-    fn sorted_keys_packed(data: &[f32], floor: f64, bytes: Vec<u8>) -> Vec<u64> {
-        assert!(data.len() <= 1 << 24 && bytes.len() == data.len());
-        sorted_with(data, floor, Some(bytes))
-    }
-
-    /// Every bucket of [`bucketed_keys`] sorted in turn.
-    fn sorted_with(data: &[f32], floor: f64, bytes: Option<Vec<u8>>) -> Vec<u64> {
+    fn sorted_keys(data: &[f32], ncols: usize, floor: f64) -> Vec<u64> {
         let range = value_range(data, floor_f32(floor));
-        let mut b = bucketed_keys(data, floor, bytes, range);
+        sort_all(bucketed_keys(data, ncols, floor, range))
+    }
+
+    /// [`sorted_keys`] with each pixel's byte of `bytes` packed into the low half of its key:
+    /// `index << 8 | byte`, the bytes handed over row by row.
+    fn sorted_keys_packed(data: &[f32], ncols: usize, floor: f64, bytes: &[u8]) -> Vec<u64> {
+        let range = value_range(data, floor_f32(floor));
+        let rows = |y0: usize| {
+            let mut y = y0;
+            move |out: &mut [u8]| {
+                out.copy_from_slice(&bytes[y * ncols..(y + 1) * ncols]);
+                y += 1;
+            }
+        };
+        sort_all(bucketed_keys_packed(data, ncols, floor, range, &rows))
+    }
+
+    /// Every bucket sorted in turn.
+    fn sort_all(mut b: Buckets) -> Vec<u64> {
         let mut scratch = Vec::new();
         for i in 0..b.starts.len() - 1 {
             let (a, e) = (b.starts[i], b.starts[i + 1]);
@@ -361,7 +418,16 @@ mod tests {
                 .wrapping_add(1442695040888963407);
             (s >> 33) as u32
         };
-        for &n in &[0usize, 1, 7, 1000, 70_000, 300_001] {
+        // (pixels, columns): one row, several rows, many pieces of rows.
+        for &(n, ncols) in &[
+            (0usize, 1usize),
+            (1, 1),
+            (7, 7),
+            (1000, 40),
+            (70_000, 700),
+            (300_001, 300_001),
+            (300_000, 600),
+        ] {
             for kind in 0..5 {
                 let data: Vec<f32> = (0..n)
                     .map(|_| {
@@ -386,9 +452,9 @@ mod tests {
                 for &floor in &[f64::NEG_INFINITY, 0.0, 1e21, f64::INFINITY] {
                     let want = reference(&data, floor);
                     assert_eq!(
-                        sorted_keys(&data, floor),
+                        sorted_keys(&data, ncols, floor),
                         want,
-                        "n {n} kind {kind} floor {floor}"
+                        "n {n} x {ncols} kind {kind} floor {floor}"
                     );
                     let bytes: Vec<u8> = (0..n).map(|i| (i * 37 % 256) as u8).collect();
                     let packed: Vec<u64> = want
@@ -399,7 +465,7 @@ mod tests {
                         })
                         .collect();
                     assert_eq!(
-                        sorted_keys_packed(&data, floor, bytes),
+                        sorted_keys_packed(&data, ncols, floor, &bytes),
                         packed,
                         "packed n {n} kind {kind} floor {floor}"
                     );
@@ -410,7 +476,7 @@ mod tests {
                                 .build()
                                 .unwrap();
                             assert_eq!(
-                                pool.install(|| sorted_keys(&data, floor)),
+                                pool.install(|| sorted_keys(&data, ncols, floor)),
                                 want,
                                 "n {n} kind {kind} threads {threads}"
                             );
