@@ -101,7 +101,7 @@ pub fn push_f64(s: &mut String, x: f64) {
     // the exponent's `+`.
     if exact_digits(abs).is_none() {
         let plain = (1e-4..1e16).contains(&abs);
-        match text.find('e') {
+        match text.bytes().position(|c| c == b'e') {
             None if plain => {
                 if x < 0.0 {
                     s.push('-');
