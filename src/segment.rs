@@ -714,7 +714,7 @@ fn label_header(map: &Map, what: &str) -> Header {
 
 /// What the measuring side of [`run`] hands on once its files are written.
 struct Analysed {
-    ms: Vec<Measurement>,
+    ms: std::sync::Arc<Vec<Measurement>>,
     measure_seconds: f64,
     phys: Option<Vec<crate::score::Physical>>,
     physics_note: Option<String>,
@@ -789,6 +789,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         Err(e) => return Err(Error::input(&map.path, format!("{e}."))),
     };
     let tree_seconds = t_tree.elapsed().as_secs_f64();
+    let h = &h;
     progress("measure", 0.0);
     // The label maps, written by the FITS thread below.
     let labels_path = outputs.temp(names::LABELS);
@@ -803,7 +804,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         )
         .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
         if let Some(path) = &grown_path {
-            let g = hierarchy::grow_leaves(map.data.view(), &h, r.floor);
+            let g = hierarchy::grow_leaves(map.data.view(), h, r.floor);
             crate::fits_write::write_image_i32(
                 path,
                 g.view(),
@@ -814,12 +815,19 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         }
         Ok(t.elapsed().as_secs_f64())
     };
-    let analyse = || {
+    // The measurements go to the other thread as soon as they are made (for the hierarchy's
+    // files), before the physics.
+    let (ms_tx, ms_rx) = std::sync::mpsc::channel::<std::sync::Arc<Vec<Measurement>>>();
+    let analyse = move || {
         let t_measure = Instant::now();
-        let ms = measure::measure_all(&h, map.wcs.as_ref());
+        let ms = std::sync::Arc::new(measure::measure_all(h, map.wcs.as_ref()));
         let measure_seconds = t_measure.elapsed().as_secs_f64();
+        // A send fails only if the other thread already stopped on an error, which its join
+        // reports.
+        let _ = ms_tx.send(ms.clone());
+        drop(ms_tx);
         let t_physics = Instant::now();
-        let (phys, physics_note) = match crate::score::score(map, &h, &ms, &o.physics, r.noise) {
+        let (phys, physics_note) = match crate::score::score(map, h, &ms, &o.physics, r.noise) {
             Ok(p) => (Some(p), None),
             Err(why) => (None, Some(why)),
         };
@@ -827,16 +835,28 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         (ms, measure_seconds, phys, physics_note, physics_seconds)
     };
     // One thread writes every FITS file, so CFITSIO is used by it alone: the label maps as soon
-    // as the hierarchy is built, then the catalogue's FITS table once the catalogue is made.
+    // as the hierarchy is built, the hierarchy's JSON and DOT files once the measurements are
+    // made, then the catalogue's FITS table once the catalogue is made.
     // This thread meanwhile measures, scores, makes the catalogue and writes the text files,
     // so on large maps the text files no longer wait for the label maps.
     let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
     let fits_table_path = outputs.temp(names::FITS_TABLE);
+    let (tree_json_path, tree_dot_path) = (
+        outputs.temp(names::TREE_JSON),
+        outputs.temp(names::TREE_DOT),
+    );
     let (table_tx, table_rx) = std::sync::mpsc::channel::<std::sync::Arc<crate::table::Table>>();
     let written = std::thread::scope(|scope| -> Result<_> {
         let fits_writer = scope.spawn(move || -> Result<f64> {
             let seconds = write_label_maps()?;
-            // No table arrives if the other side failed first.
+            // No measurements or table arrive if the other side failed first.
+            if let Ok(ms) = ms_rx.recv() {
+                let tj = serde_json::to_string_pretty(&tree_json(h, &ms, map))
+                    .map_err(|e| Error::internal(e.to_string()))?
+                    + "\n";
+                output::write_bytes(&tree_json_path, tj.as_bytes())?;
+                output::write_bytes(&tree_dot_path, tree_dot(h).as_bytes())?;
+            }
             if let Ok(table) = table_rx.recv() {
                 table.write_fits(&fits_table_path)?;
             }
@@ -930,25 +950,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             // an error, which its join below reports.
             let _ = table_tx.send(table.clone());
             drop(table_tx);
-            // The catalogue's text forms and the hierarchy's files at the same time.
-            let write_tree = || -> Result<()> {
-                let tj = serde_json::to_string_pretty(&tree_json(&h, &ms, map))
-                    .map_err(|e| Error::internal(e.to_string()))?
-                    + "\n";
-                output::write_bytes(&outputs.temp(names::TREE_JSON), tj.as_bytes())?;
-                output::write_bytes(&outputs.temp(names::TREE_DOT), tree_dot(&h).as_bytes())
-            };
-            let (text, tree) = rayon::join(
-                || {
-                    table.write_csv_and_votable(
-                        &outputs.temp(names::CSV),
-                        &outputs.temp(names::VOTABLE),
-                    )
-                },
-                write_tree,
-            );
-            text?;
-            tree?;
+            table
+                .write_csv_and_votable(&outputs.temp(names::CSV), &outputs.temp(names::VOTABLE))?;
             Ok(Analysed {
                 ms,
                 measure_seconds,
@@ -984,7 +987,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             structures: h
                 .structures
                 .iter()
-                .zip(&ms)
+                .zip(ms.iter())
                 .enumerate()
                 .map(|(i, (st, m))| crate::draw::FigStructure {
                     id: st.id,
