@@ -301,10 +301,42 @@ impl Cells {
 }
 
 fn csv_field(s: &str) -> String {
+    let mut out = String::new();
+    push_csv_field(&mut out, s);
+    out
+}
+
+/// Appends `s` as a CSV field: quoted (quotes doubled) when it holds a comma, a quote or a
+/// line break, else as it is.
+fn push_csv_field(out: &mut String, s: &str) {
     if s.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
+        out.push('"');
+        for ch in s.chars() {
+            if ch == '"' {
+                out.push('"');
+            }
+            out.push(ch);
+        }
+        out.push('"');
     } else {
-        s.to_string()
+        out.push_str(s);
+    }
+}
+
+/// Appends `s` with the XML special characters `& < > "` escaped.
+fn push_xml_escaped(out: &mut String, s: &str) {
+    if !s.contains(['&', '<', '>', '"']) {
+        out.push_str(s);
+        return;
+    }
+    for ch in s.chars() {
+        match ch {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            c => out.push(c),
+        }
     }
 }
 
@@ -465,7 +497,7 @@ impl Table {
                 }
                 match (&c.values, cell) {
                     (_, Some(cell)) => s.push_str(cell.get(r)),
-                    (Values::Text(v), None) => s.push_str(&csv_field(&v[r])),
+                    (Values::Text(v), None) => push_csv_field(&mut s, &v[r]),
                     (Values::Bool(v), None) => s.push_str(if v[r] { "true" } else { "false" }),
                     _ => unreachable!("numeric columns are formatted"),
                 }
@@ -482,10 +514,9 @@ impl Table {
         w: &mut impl std::io::Write,
     ) -> std::io::Result<()> {
         fn esc(s: &str) -> String {
-            s.replace('&', "&amp;")
-                .replace('<', "&lt;")
-                .replace('>', "&gt;")
-                .replace('"', "&quot;")
+            let mut out = String::new();
+            push_xml_escaped(&mut out, s);
+            out
         }
         let mut s = String::new();
         s.push_str("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n");
@@ -534,7 +565,7 @@ impl Table {
                         s.push_str(if t.is_empty() { "NaN" } else { t });
                     }
                     (_, Some(cell)) => s.push_str(cell.get(r)),
-                    (Values::Text(v), None) => s.push_str(&esc(&v[r])),
+                    (Values::Text(v), None) => push_xml_escaped(&mut s, &v[r]),
                     (Values::Bool(v), None) => s.push_str(if v[r] { "T" } else { "F" }),
                     _ => unreachable!("numeric columns are formatted"),
                 }
