@@ -619,7 +619,9 @@ impl Table {
             }
         }
         // The rows are laid out in memory (big-endian, as FITS stores them) and written in one
-        // call: column-by-column writes make CFITSIO seek back and forth through the table.
+        // call: column-by-column writes make CFITSIO seek back and forth through the table. The
+        // table's length (NAXIS2) is set once the header is complete, not by inserting rows,
+        // which would make CFITSIO first write the whole table as zeros, a block at a time.
         let widths: Vec<usize> = self
             .columns
             .iter()
@@ -649,9 +651,17 @@ impl Table {
         if nrows > 0 {
             let mut status = 0;
             // SAFETY: the file is open on this table, whose rows are `row_len` bytes wide (the
-            // column formats above); `bytes` holds `nrows` such rows.
+            // column formats above); `bytes` holds `nrows` such rows, and NAXIS2 says so
+            // (ffrdef makes CFITSIO read the changed header again) before they are written.
             unsafe {
-                fitsio::sys::ffirow(f.as_raw(), 0, nrows as i64, &mut status);
+                fitsio::sys::ffmkyj(
+                    f.as_raw(),
+                    c"NAXIS2".as_ptr(),
+                    nrows as i64,
+                    c"&".as_ptr(),
+                    &mut status,
+                );
+                fitsio::sys::ffrdef(f.as_raw(), &mut status);
                 fitsio::sys::ffptbb(
                     f.as_raw(),
                     1,
