@@ -288,3 +288,42 @@ fn packed_and_separate_neighbour_bytes_agree() {
         }
     }
 }
+
+/// On a map large enough for hundreds of buckets of keys, the hierarchy is the same whether the
+/// buckets are sorted by the sweeping thread alone (a pool of one thread) or partly by a second
+/// thread ahead of the sweep, and whether the neighbour bytes ride in the keys or not.
+#[test]
+fn buckets_sorted_beside_the_sweep_give_the_same_hierarchy() {
+    let mut state = 5u64;
+    let mut next = || {
+        state = state
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        (state >> 40) as f32 / (1u64 << 24) as f32
+    };
+    // A smooth field (sums of a few waves) plus noise: many peaks, long merges.
+    let (ny, nx) = (768, 704); // 256 buckets of keys
+    let noise: Vec<f32> = (0..ny * nx).map(|_| next()).collect();
+    let m = Array2::from_shape_fn((ny, nx), |(y, x)| {
+        let (xf, yf) = (x as f32, y as f32);
+        (xf * 0.05).sin() + (yf * 0.07).cos() + (0.03 * (xf + yf)).sin() + 0.3 * noise[y * nx + x]
+    });
+    let p = params(-0.5, 0.05, 3, Connectivity::Eight);
+    let in_pool = |threads: usize, pack_limit: usize| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap()
+            .install(|| engine::build_impl(m.view(), &p, &|_| {}, pack_limit).unwrap())
+    };
+    let one = in_pool(1, usize::MAX);
+    assert!(one.leaves().len() > 20, "{} leaves", one.leaves().len());
+    for (threads, pack_limit) in [(2, usize::MAX), (2, 0), (3, usize::MAX)] {
+        let other = in_pool(threads, pack_limit);
+        assert_eq!(
+            one.structures, other.structures,
+            "{threads} threads, limit {pack_limit}"
+        );
+        assert_eq!(one.labels, other.labels);
+    }
+}
