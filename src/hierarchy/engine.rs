@@ -1009,7 +1009,7 @@ mod tests {
     /// bit set) and orders like the values, on every sign and exponent and on random bits.
     #[test]
     fn order_key_is_the_flipped_or_signed_bit_pattern() {
-        let mut s = 11u64;
+        let mut next = crate::hierarchy::test_lcg(11);
         let mut vals = vec![0.0f32, -0.0, 1.0, -1.0, f32::MAX, f32::MIN, f32::INFINITY];
         vals.extend([
             f32::NEG_INFINITY,
@@ -1019,10 +1019,7 @@ mod tests {
             -1e-45,
         ]);
         for _ in 0..100_000 {
-            s = s
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            let v = f32::from_bits((s >> 32) as u32);
+            let v = f32::from_bits((next() >> 32) as u32);
             if !v.is_nan() {
                 vals.push(v);
             }
@@ -1053,13 +1050,8 @@ mod tests {
     /// extreme keys.
     #[test]
     fn vectorised_neighbour_bytes_equal_the_scalar_ones() {
-        let mut s = 7u64;
-        let mut next = || {
-            s = s
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            (s >> 33) as u32
-        };
+        let mut lcg = crate::hierarchy::test_lcg(7);
+        let mut next = || (lcg() >> 33) as u32;
         for n in 0..70 {
             for round in 0..20 {
                 let mut key = || match next() % 8 {

@@ -110,6 +110,20 @@
 //! `benches/hierarchy.rs` times the phases and prints a digest of every result, so a change
 //! of the engine can be shown to change no output.
 
+/// A small seeded generator for this module's unit tests (64-bit linear congruential steps
+/// with Knuth's MMIX constants), so every test map is the same on every run. Returns the
+/// whole state; callers take the high bits.
+#[cfg(test)]
+pub(crate) fn test_lcg(seed: u64) -> impl FnMut() -> u64 {
+    let mut s = seed;
+    move || {
+        s = s
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        s
+    }
+}
+
 mod engine;
 mod grow;
 mod moments;

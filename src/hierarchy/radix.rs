@@ -357,13 +357,7 @@ mod tests {
 
     #[test]
     fn single_precision_floor_test_equals_the_double_one() {
-        let mut s = 99u64;
-        let mut next = || {
-            s = s
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            s
-        };
+        let mut next = crate::hierarchy::test_lcg(99);
         let mut floors = vec![
             f64::NEG_INFINITY,
             f64::INFINITY,
@@ -411,13 +405,8 @@ mod tests {
 
     #[test]
     fn radix_order_matches_a_comparison_sort() {
-        let mut s = 12345u64;
-        let mut next = || {
-            s = s
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            (s >> 33) as u32
-        };
+        let mut lcg = crate::hierarchy::test_lcg(12345);
+        let mut next = || (lcg() >> 33) as u32;
         // (pixels, columns): one row, several rows, many pieces of rows.
         for &(n, ncols) in &[
             (0usize, 1usize),

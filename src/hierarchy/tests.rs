@@ -255,13 +255,8 @@ fn order_keys_sort_values_and_decode_back() {
 /// to 2^24 pixels, a separate array above) give identical hierarchies.
 #[test]
 fn packed_and_separate_neighbour_bytes_agree() {
-    let mut state = 99u64;
-    let mut next = || {
-        state = state
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (state >> 40) as f32 / (1u64 << 24) as f32
-    };
+    let mut lcg = crate::hierarchy::test_lcg(99);
+    let mut next = || (lcg() >> 40) as f32 / (1u64 << 24) as f32;
     for (ny, nx, levels) in [(40, 37, 0u32), (64, 64, 7), (1, 50, 0), (33, 1, 3)] {
         let m = Array2::from_shape_simple_fn((ny, nx), || {
             let v = next();
@@ -294,13 +289,8 @@ fn packed_and_separate_neighbour_bytes_agree() {
 /// thread ahead of the sweep, and whether the neighbour bytes ride in the keys or not.
 #[test]
 fn buckets_sorted_beside_the_sweep_give_the_same_hierarchy() {
-    let mut state = 5u64;
-    let mut next = || {
-        state = state
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (state >> 40) as f32 / (1u64 << 24) as f32
-    };
+    let mut lcg = crate::hierarchy::test_lcg(5);
+    let mut next = || (lcg() >> 40) as f32 / (1u64 << 24) as f32;
     // A smooth field (sums of a few waves) plus noise: many peaks, long merges.
     let (ny, nx) = (768, 704); // 256 buckets of keys
     let noise: Vec<f32> = (0..ny * nx).map(|_| next()).collect();
