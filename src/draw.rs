@@ -158,8 +158,17 @@ pub fn scale_bar(
     Some((len / pc_per_px, format!("{len} pc")))
 }
 
-/// Draws the overlay and the tree: (overlay PNG, overlay SVG, tree PNG, tree SVG).
-pub fn figures(input: &FigureInput, style: &Style) -> Result<(Vec<u8>, String, Vec<u8>, String)> {
+/// The figures of a run.
+pub struct Figures {
+    /// The map with the leaves' outlines and labels.
+    pub overlay: render::MapFigure,
+    /// The tree diagram as PNG and SVG; empty when there is no structure.
+    pub tree_png: Vec<u8>,
+    pub tree_svg: String,
+}
+
+/// Draws the overlay and the tree.
+pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
     let map = input.map;
     let leaf_ids: Vec<bool> = input.structures.iter().map(|s| s.is_leaf).collect();
     let leaf_labels = input.labels.mapv(|l| {
@@ -220,9 +229,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<(Vec<u8>, String, V
         scale_bar,
         title: input.title.clone(),
     };
-    let png = render::render_png(&overlay, style)
-        .map_err(|e| Error::usage(format!("cannot draw the figure: {e}.")))?;
-    let svg = render::render_svg(&overlay, style)
+    let overlay = render::render_map_figure(&overlay, style)
         .map_err(|e| Error::usage(format!("cannot draw the figure: {e}.")))?;
     let nodes: Vec<TreeNode> = input
         .structures
@@ -247,7 +254,11 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<(Vec<u8>, String, V
                 .map_err(|e| Error::usage(format!("cannot draw the tree: {e}.")))?,
         )
     };
-    Ok((png, svg, tpng, tsvg))
+    Ok(Figures {
+        overlay,
+        tree_png: tpng,
+        tree_svg: tsvg,
+    })
 }
 
 /// A finished run read back from its folder (for `cairn draw`).

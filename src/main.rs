@@ -932,6 +932,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     } else if a.physics.distance.is_none() {
         println!("no masses: give --distance (and --temperature for the gravitational state)");
     }
+    if let Some((in_frame, left_out)) = summary.figure_labels {
+        labels_note(in_frame, left_out);
+    }
     if summary.leaves == 0 {
         println!(
             "no structure passes these thresholds: the outputs are written but empty; lower --floor or --prominence"
@@ -1086,7 +1089,9 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         distance_pc: run.distance_pc,
         title: None,
     };
-    let (png, svg, tpng, tsvg) = cairn::draw::figures(&input, &style)?;
+    let figs = cairn::draw::figures(&input, &style)?;
+    let (png, svg) = (&figs.overlay.png, &figs.overlay.svg);
+    let (tpng, tsvg) = (&figs.tree_png, &figs.tree_svg);
     let dir = a.output.clone().unwrap_or_else(|| a.run.clone());
     let mut list = vec![
         names::OVERLAY_PNG.to_string(),
@@ -1097,18 +1102,30 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         list.push(names::TREE_SVG.into());
     }
     let outputs = output::Outputs::plan(&dir, &list, a.force)?;
-    output::write_bytes(&outputs.temp(names::OVERLAY_PNG), &png)?;
+    output::write_bytes(&outputs.temp(names::OVERLAY_PNG), png)?;
     output::write_bytes(&outputs.temp(names::OVERLAY_SVG), svg.as_bytes())?;
     if !tpng.is_empty() {
-        output::write_bytes(&outputs.temp(names::TREE_PNG), &tpng)?;
+        output::write_bytes(&outputs.temp(names::TREE_PNG), tpng)?;
         output::write_bytes(&outputs.temp(names::TREE_SVG), tsvg.as_bytes())?;
     }
-    for p in outputs.commit()? {
+    let written = outputs.commit()?;
+    labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
+    for p in written {
         if !quiet {
             eprintln!("wrote {}", p.display());
         }
     }
     Ok(())
+}
+
+/// Says how many leaves of a figure got no label, if any: where the map is crowded, a label
+/// is left out rather than printed over another.
+fn labels_note(in_frame: usize, left_out: usize) {
+    if left_out > 0 {
+        println!(
+            "figure: {left_out} of {in_frame} leaves left without a label where the map is too crowded for one; draw a smaller --region or a wider --width to label them"
+        );
+    }
 }
 
 /// A progress bar on stderr for maps over a million pixels, when stderr is a terminal.

@@ -283,6 +283,8 @@ pub struct RunSummary {
     pub physics_note: Option<String>,
     /// Count of leaves by state, when masses were computed.
     pub leaf_states: Option<std::collections::BTreeMap<String, usize>>,
+    /// With a figure: leaves inside its frame and how many of them got no label.
+    pub figure_labels: Option<(usize, usize)>,
 }
 
 fn sky_names(map: &Map) -> (&'static str, &'static str) {
@@ -980,6 +982,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         },
         label_maps_seconds,
     ) = written?;
+    let mut labels = None;
     if let Some(style) = &o.figure {
         let input = crate::draw::FigureInput {
             map,
@@ -1009,15 +1012,20 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             title: None,
         };
         progress("figures", 0.0);
-        let (png, svg, tpng, tsvg) = crate::draw::figures(&input, style)?;
-        output::write_bytes(&outputs.temp(names::OVERLAY_PNG), &png)?;
-        output::write_bytes(&outputs.temp(names::OVERLAY_SVG), svg.as_bytes())?;
+        let figs = crate::draw::figures(&input, style)?;
+        let (tpng, tsvg) = (&figs.tree_png, &figs.tree_svg);
+        output::write_bytes(&outputs.temp(names::OVERLAY_PNG), &figs.overlay.png)?;
+        output::write_bytes(
+            &outputs.temp(names::OVERLAY_SVG),
+            figs.overlay.svg.as_bytes(),
+        )?;
+        labels = Some((figs.overlay.leaves_in_frame, figs.overlay.labels_left_out));
         if tpng.is_empty() {
             // No structure: there is no tree to draw.
             outputs.skip(names::TREE_PNG);
             outputs.skip(names::TREE_SVG);
         } else {
-            output::write_bytes(&outputs.temp(names::TREE_PNG), &tpng)?;
+            output::write_bytes(&outputs.temp(names::TREE_PNG), tpng)?;
             output::write_bytes(&outputs.temp(names::TREE_SVG), tsvg.as_bytes())?;
         }
         progress("figures", 1.0);
@@ -1078,6 +1086,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         files,
         physics_note,
         leaf_states,
+        figure_labels: labels,
     })
 }
 

@@ -165,6 +165,32 @@ fn segment_figures_are_well_formed_and_redrawn_identically() {
             "{f} redrawn identically"
         );
     }
+    // A figure too small for every label says how many leaves went unlabelled, and that
+    // count and the labels drawn add up to the leaves.
+    let small = dir.path().join("small");
+    let o3 = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(["draw", out.to_str().unwrap(), "-o", small.to_str().unwrap()])
+        .args(["--width", "320", "--dpi", "100", "-q"])
+        .output()
+        .unwrap();
+    assert!(o3.status.success());
+    let text = String::from_utf8_lossy(&o3.stdout).to_string();
+    let line = text
+        .lines()
+        .find(|l| l.contains("left without a label"))
+        .unwrap_or_else(|| panic!("no note of unlabelled leaves in {text:?}"));
+    let words: Vec<&str> = line.split_whitespace().collect();
+    let left_out: usize = words[1].parse().unwrap();
+    let in_frame: usize = words[3].parse().unwrap();
+    assert_eq!(in_frame, n_leaves);
+    let svg = std::fs::read_to_string(small.join("overlay.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let shown = doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("leaf-label"))
+        .count();
+    assert!(left_out > 0 && shown > 0, "{line}");
+    assert_eq!(shown + left_out, n_leaves, "{line}");
     // A different map under the recorded name is refused.
     let other = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
     let out2 = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))

@@ -797,8 +797,21 @@ fn leaf_labels_do_not_overlap_each_other() {
         ..Style::default()
     };
     let svg = render_svg(&o, &style).unwrap();
-    let doc = roxmltree::Document::parse(&svg).unwrap();
-    let mut boxes: Vec<(f64, f64, f64, f64)> = Vec::new();
+    let boxes = label_boxes(&svg);
+    assert!(boxes.len() >= 10, "only {} labels placed", boxes.len());
+    for (i, a) in boxes.iter().enumerate() {
+        for b in &boxes[i + 1..] {
+            let ox = a.2.min(b.2) - a.0.max(b.0);
+            let oy = a.3.min(b.3) - a.1.max(b.1);
+            assert!(ox <= 0.0 || oy <= 0.0, "labels {a:?} and {b:?} overlap");
+        }
+    }
+}
+
+/// The bounding box of each leaf label's glyph outlines in an SVG figure.
+fn label_boxes(svg: &str) -> Vec<(f64, f64, f64, f64)> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let mut boxes = Vec::new();
     for n in doc
         .descendants()
         .filter(|n| n.attribute("class") == Some("leaf-label"))
@@ -816,12 +829,112 @@ fn leaf_labels_do_not_overlap_each_other() {
         }
         boxes.push(b);
     }
-    assert!(boxes.len() >= 10, "only {} labels placed", boxes.len());
-    for (i, a) in boxes.iter().enumerate() {
-        for b in &boxes[i + 1..] {
-            let ox = a.2.min(b.2) - a.0.max(b.0);
-            let oy = a.3.min(b.3) - a.1.max(b.1);
-            assert!(ox <= 0.0 || oy <= 0.0, "labels {a:?} and {b:?} overlap");
+    boxes
+}
+
+/// The leader lines of an SVG figure, as (start, end).
+fn leaders(svg: &str) -> Vec<((f64, f64), (f64, f64))> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.attribute("class") == Some("leaf-leader"))
+        .map(|n| {
+            let v: Vec<f64> = n
+                .attribute("d")
+                .unwrap()
+                .split(|c: char| c.is_ascii_alphabetic() || c == ' ')
+                .filter(|s| !s.is_empty())
+                .map(|s| s.parse().unwrap())
+                .collect();
+            assert_eq!(v.len(), 4, "a leader is one straight segment");
+            ((v[0], v[1]), (v[2], v[3]))
+        })
+        .collect()
+}
+
+#[test]
+fn crowded_leaves_get_leader_lines_or_are_counted_as_unlabelled() {
+    // A tight cluster of 2 x 2 pixel leaves, one every 3 pixels, in the middle of an empty
+    // map: too many labels for the room beside the leaves, plenty of room around the cluster.
+    let (h, w) = (96, 96);
+    let mut l = Array2::from_elem((h, w), -1);
+    for ((y, x), v) in l.indexed_iter_mut() {
+        let (cx, cy) = (x as i64 - 36, y as i64 - 36);
+        if (0..24).contains(&cx) && (0..24).contains(&cy) && cx % 3 < 2 && cy % 3 < 2 {
+            *v = ((cy / 3) * 8 + cx / 3) as i32;
         }
     }
+    let map = smooth_map(h, w);
+    let leaves = leaves_of(&l);
+    let n = leaves.len();
+    let (mut left_out, mut all_leaders) = (Vec::new(), 0);
+    for width in [500, 700, 900, 1200, 1600] {
+        let o = Overlay {
+            map: map.view(),
+            unit_label: "K".into(),
+            labels: l.view(),
+            branch_labels: None,
+            leaves: leaves.clone(),
+            states: states(),
+            sky: None,
+            beam: None,
+            scale_bar: None,
+            title: None,
+        };
+        let style = Style {
+            width_px: width,
+            dpi: 150.0,
+            ..Style::default()
+        };
+        let fig = render::render_map_figure(&o, &style).unwrap();
+        // The figure drawn once in both formats is the figure each function draws alone.
+        assert_eq!(fig.svg, render_svg(&o, &style).unwrap());
+        assert_eq!(fig.png, render_png(&o, &style).unwrap());
+        let boxes = label_boxes(&fig.svg);
+        assert_eq!(fig.leaves_in_frame, n);
+        assert_eq!(
+            boxes.len() + fig.labels_left_out,
+            n,
+            "every leaf is labelled or counted as left out ({width} px)"
+        );
+        left_out.push(fig.labels_left_out);
+        for (i, a) in boxes.iter().enumerate() {
+            for b in &boxes[i + 1..] {
+                let ox = a.2.min(b.2) - a.0.max(b.0);
+                let oy = a.3.min(b.3) - a.1.max(b.1);
+                assert!(ox <= 0.0 || oy <= 0.0, "labels {a:?} and {b:?} overlap");
+            }
+        }
+        let lines = leaders(&fig.svg);
+        assert!(lines.len() <= boxes.len());
+        all_leaders += lines.len();
+        for &(a, b) in &lines {
+            // The leader ends beside a label (within the label's padding of its glyphs) ...
+            let near = |p: (f64, f64), bx: &(f64, f64, f64, f64)| {
+                let dx = (bx.0 - p.0).max(p.0 - bx.2).max(0.0);
+                let dy = (bx.1 - p.1).max(p.1 - bx.3).max(0.0);
+                dx.hypot(dy) < 0.5 * (bx.3 - bx.1)
+            };
+            assert!(
+                boxes.iter().any(|bx| near(b, bx)),
+                "leader {a:?}-{b:?} ends at no label"
+            );
+            // ... and passes through no label's glyphs on the way.
+            for k in 0..=100 {
+                let t = k as f64 / 100.0;
+                let p = (a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1));
+                for bx in &boxes {
+                    assert!(
+                        !(p.0 > bx.0 && p.0 < bx.2 && p.1 > bx.1 && p.1 < bx.3),
+                        "leader {a:?}-{b:?} crosses label {bx:?}"
+                    );
+                }
+            }
+        }
+    }
+    // Narrow figures leave labels out (and say how many); some labels go out on leader lines;
+    // a figure wide enough labels every leaf.
+    assert!(left_out[0] > 0, "{left_out:?}");
+    assert!(all_leaders > 0);
+    assert_eq!(left_out.last(), Some(&0), "{left_out:?}");
+    assert!(left_out.windows(2).all(|w| w[1] <= w[0]), "{left_out:?}");
 }

@@ -8,7 +8,7 @@ use super::raster::{self, Lut, Scale};
 use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
 use super::text;
 use super::{
-    ColorMap, Overlay, RenderError, SkyAxes, Stretch, Style, state_colour, state_dash,
+    ColorMap, LeafStyle, Overlay, RenderError, SkyAxes, Stretch, Style, state_colour, state_dash,
     state_line_style,
 };
 use ndarray::s;
@@ -337,6 +337,9 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     Ok(lay)
 }
 
+/// A box on the figure: left, top, right, bottom.
+type Rect = (f64, f64, f64, f64);
+
 /// Boxes (left, top, right, bottom) already taken on the figure, bucketed on a grid so a
 /// query looks only at nearby boxes.
 struct BoxIndex {
@@ -366,6 +369,39 @@ impl BoxIndex {
         for c in cells {
             self.grid.entry(c).or_default().push(k);
         }
+    }
+    /// Whether the segment from `a` to `b` passes through any box (Liang-Barsky clipping).
+    fn crosses(&self, a: (f64, f64), b: (f64, f64)) -> bool {
+        let span = (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1));
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let hits = |p: (f64, f64, f64, f64)| {
+            let (mut t0, mut t1) = (0.0f64, 1.0f64);
+            for (q, d) in [
+                (a.0 - p.0, -dx),
+                (p.2 - a.0, dx),
+                (a.1 - p.1, -dy),
+                (p.3 - a.1, dy),
+            ] {
+                if d == 0.0 {
+                    if q < 0.0 {
+                        return false;
+                    }
+                } else {
+                    let t = q / d;
+                    if d < 0.0 {
+                        t0 = t0.max(t);
+                    } else {
+                        t1 = t1.min(t);
+                    }
+                }
+            }
+            t0 < t1
+        };
+        self.cells(span).any(|c| {
+            self.grid
+                .get(&c)
+                .is_some_and(|v| v.iter().any(|&k| hits(self.boxes[k])))
+        })
     }
     fn overlaps(&self, b: (f64, f64, f64, f64)) -> bool {
         self.cells(b).any(|c| {
@@ -658,9 +694,11 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         );
     }
 
-    // Leaf labels: greedy placement around each peak, avoiding the beam, the scale bar and
-    // earlier labels. A label that finds no free place near its leaf is left out rather
-    // than printed over another.
+    // Leaf labels, in two rounds. First, greedy placement just outside each leaf, avoiding
+    // the beam, the scale bar and earlier labels. Then the leaves still without a label, in
+    // crowded parts of the map, try places farther out, joined to the leaf by a thin leader
+    // line that crosses no label. A label that finds no free place is left out (and counted)
+    // rather than printed over another.
     let label_fs = 0.85 * fs;
     let mut placed = BoxIndex::new(2.0 * label_fs);
     for b in &keep_out {
@@ -668,6 +706,11 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     }
     let cap_h = text::cap_height(label_fs);
     let hpad = 0.15 * label_fs;
+    let inside =
+        |bb: (f64, f64, f64, f64)| bb.0 >= fx && bb.2 <= fx + fw && bb.1 >= fy && bb.3 <= fy + fh;
+    // Leaves waiting for the second round: (leaf, its extent, label width).
+    let mut waiting: Vec<(&LeafStyle, Rect, f64)> = Vec::new();
+    let mut shown = Vec::new();
     for leaf in &o.leaves {
         if !traced.contains_key(&leaf.id) {
             continue;
@@ -676,6 +719,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         if px < fx || px > fx + fw || py < fy || py > fy + fh {
             continue;
         }
+        sc.leaves_to_label += 1;
         let w = text::width(&leaf.label, label_fs);
         // The leaf's extent on the figure: labels go just outside it, so a small leaf is
         // never hidden under its own label.
@@ -709,19 +753,74 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             ];
             for (bx, by) in cands {
                 let bb = (bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad);
-                if bb.0 < fx || bb.2 > fx + fw || bb.1 < fy || bb.3 > fy + fh {
-                    continue;
-                }
-                if !placed.overlaps(bb) {
+                if inside(bb) && !placed.overlaps(bb) {
                     best = Some((bx, by));
                     break 'search;
                 }
             }
         }
-        let Some((bx, by)) = best else {
-            continue;
-        };
-        placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
+        match best {
+            Some((bx, by)) => {
+                placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
+                shown.push((leaf, bx, by, None));
+            }
+            None => waiting.push((leaf, (ex0, ey0, ex1, ey1), w)),
+        }
+    }
+    // Second round: label centres on circles around the extent's centre, sixteen directions
+    // per circle, up to about five label heights beyond the leaf.
+    let gap = 0.2 * label_fs;
+    for (leaf, (ex0, ey0, ex1, ey1), w) in waiting {
+        let (cx, cy) = (0.5 * (ex0 + ex1), 0.5 * (ey0 + ey1));
+        let half = (0.5 * (w + 2.0 * hpad), 0.5 * (cap_h + 2.0 * hpad));
+        let mut best = None;
+        'far: for ring in 1..=8 {
+            let r = 0.5 * (ex1 - ex0).hypot(ey1 - ey0)
+                + half.0.hypot(half.1)
+                + 0.6 * label_fs * ring as f64;
+            for dir in 0..16 {
+                let a = std::f64::consts::PI * dir as f64 / 8.0;
+                let (lx, ly) = (cx + r * a.cos(), cy - r * a.sin());
+                let bb = (lx - half.0, ly - half.1, lx + half.0, ly + half.1);
+                if !inside(bb) || placed.overlaps(bb) {
+                    continue;
+                }
+                // The leader runs from the label's box to the leaf's extent, each end the
+                // point of its box nearest the other box's centre, with a small gap.
+                let from = (lx.clamp(ex0, ex1), ly.clamp(ey0, ey1));
+                let to = (from.0.clamp(bb.0, bb.2), from.1.clamp(bb.1, bb.3));
+                let len = (to.0 - from.0).hypot(to.1 - from.1);
+                if len <= 2.0 * gap {
+                    continue;
+                }
+                let (ux, uy) = ((to.0 - from.0) / len, (to.1 - from.1) / len);
+                let a0 = (from.0 + gap * ux, from.1 + gap * uy);
+                if placed.crosses(a0, to) {
+                    continue;
+                }
+                best = Some((lx - half.0 + hpad, ly + half.1 - hpad, bb, (a0, to)));
+                break 'far;
+            }
+        }
+        match best {
+            Some((bx, by, bb, leader)) => {
+                placed.insert(bb);
+                shown.push((leaf, bx, by, Some(leader)));
+            }
+            None => sc.labels_left_out += 1,
+        }
+    }
+    for (leaf, bx, by, leader) in shown {
+        if let Some((a, b)) = leader {
+            sc.path(
+                PathData::line(a.0, a.1, b.0, b.1),
+                vec![
+                    Paint::Stroke(Line::solid(Rgba(255, 255, 255, 230), 1.6 * m.pt)),
+                    Paint::Stroke(Line::solid(Rgba::BLACK, 0.6 * m.pt)),
+                ],
+                "leaf-leader",
+            );
+        }
         sc.text(
             &leaf.label,
             bx,

@@ -2,7 +2,9 @@
 //!
 //! Owns everything drawn: the map image (stretch, limits, colour map, area-averaged to the
 //! figure's resolution), leaf outlines traced exactly along pixel boundaries
-//! ([`outline::trace_outlines`]), leaf labels placed so they do not overlap, sky or pixel
+//! ([`outline::trace_outlines`]), leaf labels placed so they do not overlap (beside each
+//! leaf, or farther out on a leader line where leaves crowd; the few that find no room are
+//! counted in [`MapFigure`] rather than drawn over others), sky or pixel
 //! axes with ticks where coordinate lines cross the frame ([`axes::axis_ticks`]), the beam,
 //! the scale bar, the colour bar, the legend of states, and the tree diagram.
 //!
@@ -253,6 +255,28 @@ pub fn render_png(o: &Overlay, s: &Style) -> Result<Vec<u8>, RenderError> {
 /// Draws the map figure as SVG text.
 pub fn render_svg(o: &Overlay, s: &Style) -> Result<String, RenderError> {
     figure::scene(o, s)?.to_svg()
+}
+
+/// The map figure in both formats, drawn once, with how its leaf labels fared.
+pub struct MapFigure {
+    pub png: Vec<u8>,
+    pub svg: String,
+    /// Leaves whose peak lies inside the figure's frame.
+    pub leaves_in_frame: usize,
+    /// Of those, the leaves left without a label because no free place was found near them
+    /// (crowded parts of the map; a figure of a smaller region has room for them).
+    pub labels_left_out: usize,
+}
+
+/// Draws the map figure as PNG and SVG ([`render_png`], [`render_svg`]) from one layout.
+pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderError> {
+    let sc = figure::scene(o, s)?;
+    Ok(MapFigure {
+        png: sc.to_png()?,
+        svg: sc.to_svg()?,
+        leaves_in_frame: sc.leaves_to_label,
+        labels_left_out: sc.labels_left_out,
+    })
 }
 
 /// Draws the tree diagram as PNG bytes. The level axis is logarithmic when `s.stretch` is

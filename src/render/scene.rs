@@ -179,6 +179,10 @@ pub(crate) struct Scene {
     pub clip: Option<(f64, f64, f64, f64)>,
     pub items: Vec<Item>,
     pub title: String,
+    /// Map figures: leaves whose peak is inside the frame, and how many of them got no label
+    /// (no free place near them).
+    pub leaves_to_label: usize,
+    pub labels_left_out: usize,
 }
 
 impl Scene {
@@ -190,6 +194,8 @@ impl Scene {
             clip: None,
             items: Vec::new(),
             title: title.to_string(),
+            leaves_to_label: 0,
+            labels_left_out: 0,
         }
     }
 
