@@ -938,3 +938,110 @@ fn crowded_leaves_get_leader_lines_or_are_counted_as_unlabelled() {
     assert_eq!(left_out.last(), Some(&0), "{left_out:?}");
     assert!(left_out.windows(2).all(|w| w[1] <= w[0]), "{left_out:?}");
 }
+
+#[test]
+fn outlines_of_a_map_larger_than_its_figure_keep_exact_corners_within_half_a_figure_pixel() {
+    // Ragged footprints on a map of 1500 x 1200 pixels drawn 500 pixels wide: about three map
+    // pixels per figure pixel, so the traced staircases are finer than the figure.
+    let (h, w) = (1200, 1500);
+    let mut l = Array2::from_elem((h, w), -1);
+    for ((y, x), v) in l.indexed_iter_mut() {
+        let (cx, cy) = (x % 300, y % 300);
+        let r = ((cx as f64 - 150.0).powi(2) + (cy as f64 - 150.0).powi(2)).sqrt();
+        // A wavy disc per cell, its edge broken by a fine checker pattern.
+        let edge = 90.0 + 25.0 * ((x / 7) as f64).sin() + if (x + y) % 2 == 0 { 3.0 } else { 0.0 };
+        if r < edge {
+            *v = ((y / 300) * 5 + x / 300) as i32;
+        }
+    }
+    let map = smooth_map(h, w);
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: l.view(),
+        branch_labels: None,
+        leaves: leaves_of(&l),
+        states: states(),
+        sky: None,
+        beam: None,
+        scale_bar: None,
+        title: None,
+    };
+    let style = Style {
+        width_px: 500,
+        dpi: 100.0,
+        ..Style::default()
+    };
+    let lay = overlay_layout(&o, &style).unwrap();
+    assert!(
+        lay.kx < 0.5,
+        "the test wants map pixels smaller than figure pixels"
+    );
+    let svg = render_svg(&o, &style).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let traced = trace_outlines(l.view(), (0.0, 0.0));
+    let (mut drawn_corners, mut traced_corners) = (0, 0);
+    let mut seen = BTreeMap::new();
+    for n in doc.descendants().filter(|n| n.has_tag_name("path")) {
+        let class = n.attribute("class").unwrap_or("");
+        if !class.split_whitespace().any(|c| c == "leaf") {
+            continue;
+        }
+        let id: i32 = n.attribute("id").unwrap()[5..].parse().unwrap();
+        *seen.entry(id).or_insert(0) += 1;
+        let drawn = parse_rings(n.attribute("d").unwrap());
+        // Every drawn corner is a traced corner (to the SVG's 0.01 px).
+        let corners: Vec<(f64, f64)> = traced[&id]
+            .iter()
+            .flatten()
+            .map(|&(x, y)| lay.map_to_figure(x, y))
+            .collect();
+        for &p in drawn.iter().flatten() {
+            assert!(
+                corners
+                    .iter()
+                    .any(|c| (c.0 - p.0).abs() <= 0.006 && (c.1 - p.1).abs() <= 0.006),
+                "drawn corner {p:?} of leaf {id} is no traced corner"
+            );
+        }
+        // Every corner of the footprint's outer ring lies within half a figure pixel of the
+        // drawn outline.
+        let outer = traced[&id]
+            .iter()
+            .max_by(|a, b| {
+                cairn::render::ring_area(a)
+                    .abs()
+                    .total_cmp(&cairn::render::ring_area(b).abs())
+            })
+            .unwrap();
+        for &(x, y) in outer {
+            let p = lay.map_to_figure(x, y);
+            let d = drawn
+                .iter()
+                .flat_map(|r| (0..r.len()).map(move |i| (r[i], r[(i + 1) % r.len()])))
+                .map(|(a, b)| {
+                    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+                    let len2 = dx * dx + dy * dy;
+                    let t = if len2 > 0.0 {
+                        (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+                    } else {
+                        0.0
+                    };
+                    (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+                })
+                .fold(f64::INFINITY, f64::min);
+            assert!(
+                d <= 0.5 + 0.01,
+                "corner {p:?} of leaf {id} is {d} px from its outline"
+            );
+        }
+        drawn_corners += drawn.iter().map(|r| r.len()).sum::<usize>();
+        traced_corners += corners.len();
+    }
+    let expected: BTreeMap<i32, i32> = traced.keys().map(|&k| (k, 1)).collect();
+    assert_eq!(seen, expected, "exactly one outline path per leaf");
+    assert!(
+        drawn_corners * 4 < traced_corners,
+        "{drawn_corners} corners drawn of {traced_corners}"
+    );
+}

@@ -3,7 +3,7 @@
 
 use super::axes::{self, AxisTicks, Edge, Region};
 use super::legend;
-use super::outline::trace_outlines;
+use super::outline::{ring_area, simplify_ring, trace_outlines};
 use super::raster::{self, Lut, Scale};
 use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
 use super::text;
@@ -467,11 +467,39 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     let wy0 = y0.saturating_sub(1);
     let wx1 = (x0 + rw + 1).min(mw);
     let wy1 = (y0 + rh + 1).min(mh);
+    // Where a map pixel is smaller than a pixel of the figure, outlines keep only the corners
+    // that move them by more than half a figure pixel, and leave out rings (small holes and
+    // fragments) less than half a figure pixel across, except a footprint's largest: the
+    // traced staircase is finer than the figure can show and would only make the files large
+    // and slow to draw. The corners kept are still exact pixel corners.
+    let coarse = lay.kx < 1.0 || lay.ky < 1.0;
     let to_path = |rings: &[Vec<(f64, f64)>]| {
         let mut d = PathData::new();
-        for r in rings {
-            for (i, &(x, y)) in r.iter().enumerate() {
-                let (a, b) = lay.map_to_figure(x, y);
+        let extent = |r: &[(f64, f64)]| {
+            let (mut x0, mut y0, mut x1, mut y1) = (f64::MAX, f64::MAX, f64::MIN, f64::MIN);
+            for &(x, y) in r {
+                (x0, y0, x1, y1) = (x0.min(x), y0.min(y), x1.max(x), y1.max(y));
+            }
+            (x1 - x0).max(y1 - y0)
+        };
+        let largest = (0..rings.len()).fold(0, |best, i| {
+            if ring_area(&rings[i]).abs() > ring_area(&rings[best]).abs() {
+                i
+            } else {
+                best
+            }
+        });
+        for (k, r) in rings.iter().enumerate() {
+            let pts: Vec<(f64, f64)> = r.iter().map(|&(x, y)| lay.map_to_figure(x, y)).collect();
+            let pts = if coarse {
+                if k != largest && extent(&pts) < 0.5 {
+                    continue;
+                }
+                simplify_ring(&pts, 0.5)
+            } else {
+                pts
+            };
+            for (i, &(a, b)) in pts.iter().enumerate() {
                 if i == 0 {
                     d.move_to(a, b)
                 } else {

@@ -35,7 +35,7 @@ mod tree;
 
 pub use axes::{AxisTicks, Coord, Edge, Region, Tick, axis_ticks};
 pub use figure::{BeamGeometry, Layout, beam_geometry, overlay_layout};
-pub use outline::{Ring, trace_outlines};
+pub use outline::{Ring, ring_area, simplify_ring, trace_outlines};
 pub use raster::colorize;
 pub use tree::{TreeLayout, tree_layout};
 

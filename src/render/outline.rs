@@ -127,10 +127,125 @@ pub fn ring_area(r: &Ring) -> f64 {
     a / 2.0
 }
 
+/// A ring with the corners that matter at a tolerance of `eps` (same units as the ring): the
+/// Douglas-Peucker reduction (Douglas & Peucker 1973, Cartographica 10, 112), applied to a
+/// closed ring by splitting it at its first corner and the corner farthest from it. The kept
+/// corners are corners of the ring, in its order, and every dropped corner lies within `eps`
+/// of the segment between the kept corners around it. Used where a map pixel is smaller than
+/// a pixel of the figure, so outlines carry no detail finer than the figure can show.
+pub fn simplify_ring(ring: &[(f64, f64)], eps: f64) -> Ring {
+    let n = ring.len();
+    if n <= 3 {
+        return ring.to_vec();
+    }
+    let d2 = |a: (f64, f64), b: (f64, f64)| (a.0 - b.0).powi(2) + (a.1 - b.1).powi(2);
+    let far = (1..n)
+        .fold((0, -1.0), |best, i| {
+            let d = d2(ring[i], ring[0]);
+            if d > best.1 { (i, d) } else { best }
+        })
+        .0;
+    let mut keep = vec![false; n];
+    keep[0] = true;
+    keep[far] = true;
+    // Spans (i, j) of ring indices, j up to n standing for corner 0 again.
+    let mut spans = vec![(0usize, far), (far, n)];
+    while let Some((i, j)) = spans.pop() {
+        if j - i < 2 {
+            continue;
+        }
+        let a = ring[i];
+        let b = ring[j % n];
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let len2 = dx * dx + dy * dy;
+        let (mut worst, mut at) = (-1.0, i);
+        for (k, &p) in ring.iter().enumerate().take(j).skip(i + 1) {
+            // Squared distance to the segment from a to b.
+            let t = if len2 > 0.0 {
+                (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+            } else {
+                0.0
+            };
+            let d = d2(p, (a.0 + t * dx, a.1 + t * dy));
+            if d > worst {
+                worst = d;
+                at = k;
+            }
+        }
+        if worst > eps * eps {
+            keep[at] = true;
+            spans.push((i, at));
+            spans.push((at, j));
+        }
+    }
+    ring.iter()
+        .zip(&keep)
+        .filter(|&(_, &k)| k)
+        .map(|(&p, _)| p)
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use ndarray::array;
+
+    /// Every corner the reduction drops lies within the tolerance of the segment between the
+    /// kept corners around it, the kept corners are corners of the ring in its order, and a
+    /// staircase finer than the tolerance keeps far fewer corners (the defining properties of
+    /// Douglas & Peucker 1973).
+    #[test]
+    fn simplified_rings_stay_within_the_tolerance() {
+        let mut state = 0x9e37_79b9_7f4a_7c15u64;
+        let mut next = || {
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (state >> 33) as f64 / (1u64 << 31) as f64
+        };
+        for case in 0..200 {
+            let n = 4 + case % 60;
+            let ring: Ring = (0..n)
+                .map(|i| {
+                    let a = std::f64::consts::TAU * i as f64 / n as f64;
+                    let r = 10.0 + 3.0 * next();
+                    (r * a.cos(), r * a.sin())
+                })
+                .collect();
+            let eps = 0.1 + 2.0 * next();
+            let s = simplify_ring(&ring, eps);
+            assert!(s.len() >= 2 && s.len() <= ring.len());
+            let idx: Vec<usize> = s
+                .iter()
+                .map(|p| ring.iter().position(|q| q == p).unwrap())
+                .collect();
+            assert!(idx.windows(2).all(|w| w[0] < w[1]), "order kept");
+            for (w, &i) in idx.iter().enumerate() {
+                let j = idx.get(w + 1).copied().unwrap_or(n);
+                let (a, b) = (ring[i], ring[j % n]);
+                for &p in &ring[i + 1..j] {
+                    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+                    let t = (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / (dx * dx + dy * dy))
+                        .clamp(0.0, 1.0);
+                    let d = (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy);
+                    assert!(
+                        d <= eps + 1e-12,
+                        "dropped corner {p:?} is {d} from the ring"
+                    );
+                }
+            }
+        }
+        // A diagonal staircase of unit steps, 0.2 of the tolerance each way.
+        let mut stairs: Ring = Vec::new();
+        for i in 0..50 {
+            stairs.push((i as f64, i as f64));
+            stairs.push((i as f64 + 1.0, i as f64));
+        }
+        stairs.push((50.0, 50.0));
+        stairs.push((0.0, 50.0));
+        let s = simplify_ring(&stairs, 5.0);
+        assert!(s.len() <= 4, "{s:?}");
+    }
 
     #[test]
     fn single_pixel_is_a_unit_square() {
