@@ -25,22 +25,8 @@ pub fn display_limits(map: ArrayView2<f32>, limits: Limits) -> Result<(f64, f64)
                     "percentile limits must satisfy 0 <= low < high <= 100, got ({plo}, {phi})"
                 )));
             }
-            let mut v: Vec<f32> = map.iter().copied().filter(|x| x.is_finite()).collect();
-            if v.is_empty() {
-                return Err(RenderError::NoData);
-            }
-            let n = v.len();
-            let idx = |p: f64| ((p / 100.0) * (n - 1) as f64).round() as usize;
-            let (i_lo, i_hi) = (idx(plo), idx(phi));
-            let (_, lo, upper) = v.select_nth_unstable_by(i_lo, f32::total_cmp);
-            let lo = *lo as f64;
-            let hi = if i_hi == i_lo {
-                lo
-            } else {
-                let (_, hi, _) = upper.select_nth_unstable_by(i_hi - i_lo - 1, f32::total_cmp);
-                *hi as f64
-            };
-            (lo, hi)
+            let [lo, hi] = percentiles(map, [plo, phi]).ok_or(RenderError::NoData)?;
+            (lo as f64, hi as f64)
         }
     };
     if !lo.is_finite() || !hi.is_finite() {
@@ -55,6 +41,86 @@ pub fn display_limits(map: ArrayView2<f32>, limits: Limits) -> Result<(f64, f64)
         let pad = if lo == 0.0 { 1.0 } else { lo.abs() * 1e-3 };
         Ok((lo - pad, lo + pad))
     }
+}
+
+/// A 32-bit key of a finite value that orders as [`f32::total_cmp`].
+#[inline]
+fn total_key(v: f32) -> u32 {
+    let b = v.to_bits();
+    if b >> 31 == 1 { !b } else { b | 0x8000_0000 }
+}
+
+/// The value of a [`total_key`].
+fn from_total_key(k: u32) -> f32 {
+    f32::from_bits(if k >> 31 == 1 { k & 0x7fff_ffff } else { !k })
+}
+
+/// Histogram of 16 bits of the keys of the finite values (`high`: the upper 16 bits of every
+/// key; otherwise the lower 16 bits of the keys whose upper bits are `bucket`).
+fn key_histogram(map: ArrayView2<f32>, high: bool, bucket: u32) -> Vec<u64> {
+    let count = |h: &mut Vec<u64>, v: f32| {
+        if v.is_finite() {
+            let k = total_key(v);
+            if high {
+                h[(k >> 16) as usize] += 1;
+            } else if k >> 16 == bucket {
+                h[(k & 0xffff) as usize] += 1;
+            }
+        }
+    };
+    let add = |mut a: Vec<u64>, b: Vec<u64>| {
+        for (x, y) in a.iter_mut().zip(b) {
+            *x += y;
+        }
+        a
+    };
+    match map.as_slice() {
+        Some(s) => s
+            .par_chunks(1 << 20)
+            .fold(
+                || vec![0u64; 1 << 16],
+                |mut h, c| {
+                    c.iter().for_each(|&v| count(&mut h, v));
+                    h
+                },
+            )
+            .reduce(|| vec![0u64; 1 << 16], add),
+        None => map.iter().fold(vec![0u64; 1 << 16], |mut h, &v| {
+            count(&mut h, v);
+            h
+        }),
+    }
+}
+
+/// The values at two percentiles (0-100) of the finite values of `map`, each the value of rank
+/// round(p / 100 * (n - 1)) in increasing order, or `None` if no value is finite. Exact, and in
+/// a few passes without copying the values: the rank's upper 16 key bits from one histogram,
+/// its lower 16 from another over the values sharing them.
+fn percentiles(map: ArrayView2<f32>, p: [f64; 2]) -> Option<[f32; 2]> {
+    let top = key_histogram(map, true, 0);
+    let n: u64 = top.iter().sum();
+    if n == 0 {
+        return None;
+    }
+    let pick = |hist: &[u64], rank: u64| -> (u32, u64) {
+        let mut below = 0;
+        for (b, &c) in hist.iter().enumerate() {
+            if rank < below + c {
+                return (b as u32, rank - below);
+            }
+            below += c;
+        }
+        unreachable!("the rank is below the count")
+    };
+    let mut out = [0.0f32; 2];
+    for (o, &pc) in out.iter_mut().zip(&p) {
+        let rank = ((pc / 100.0) * (n - 1) as f64).round() as u64;
+        let (b, within) = pick(&top, rank);
+        let low = key_histogram(map, false, b);
+        let (l, _) = pick(&low, within);
+        *o = from_total_key(b << 16 | l);
+    }
+    Some(out)
 }
 
 /// Maps a data value to [0, 1] on the colour scale.
@@ -230,6 +296,43 @@ mod tests {
         // Top-right display pixel: rows 2-3, columns 4-5.
         let expect = (24.0 + 25.0 + 34.0 + 35.0) / 4.0;
         assert!((r[2] - expect).abs() < 1e-5);
+    }
+
+    #[test]
+    fn percentiles_by_histogram_equal_a_full_selection() {
+        let mut state = 12345u64;
+        for case in 0..40 {
+            let (h, w) = (1 + case % 7, 3 + case * 13 % 50);
+            let m = Array2::from_shape_fn((h, w), |_| {
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                let u = (state >> 40) as u32;
+                match u % 9 {
+                    0 => f32::NAN,
+                    1 => 0.0,
+                    2 => -0.0,
+                    3 => f32::from_bits(u),
+                    4 => f32::INFINITY,
+                    _ => (u % 1000) as f32 * if u.is_multiple_of(2) { 1.0 } else { -1e-3 },
+                }
+            });
+            let mut v: Vec<f32> = m.iter().copied().filter(|x| x.is_finite()).collect();
+            v.sort_by(f32::total_cmp);
+            for p in [0.0, 0.5, 13.0, 50.0, 99.5, 100.0] {
+                let got = percentiles(m.view(), [p, p]);
+                if v.is_empty() {
+                    assert!(got.is_none());
+                    continue;
+                }
+                let rank = ((p / 100.0) * (v.len() - 1) as f64).round() as usize;
+                assert_eq!(
+                    got.unwrap()[0].to_bits(),
+                    v[rank].to_bits(),
+                    "case {case} p {p}"
+                );
+            }
+        }
     }
 
     #[test]
