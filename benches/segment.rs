@@ -5,7 +5,12 @@
 //! cargo bench --bench segment                       # 1024^2 and 2048^2
 //! cargo bench --bench segment -- 1024 2048 4096 8192
 //! CAIRN_BENCH_PYTHON=/path/to/venv/bin/python cargo bench --bench segment -- 1024 2048
+//! cargo bench --bench segment -- 8192x4             # 32768^2: the 8192^2 map tiled 4 x 4
 //! ```
+//!
+//! A size `NxK` tiles the N x N map K x K times, every other tile flipped so that structures
+//! continue across the seams, for maps too large for the synthesis to make in memory (its
+//! Fourier transforms); such maps are measured once rather than five times.
 //!
 //! For each size N x N it makes a synthetic column-density map (log-normal background, 400
 //! cores, noise; `cairn::synth`), writes it as FITS, and measures in child processes:
@@ -82,10 +87,10 @@ fn child_segment(path: &Path, out: &Path) {
     println!("{secs} {} {} {}", status_bytes("VmHWM:"), base, s.leaves);
 }
 
-fn child_sort(path: &Path) {
+fn child_sort(path: &Path, runs: usize) {
     let map = cairn::map::load(path, &cairn::map::LoadOptions::default()).unwrap();
     let mut best = f64::INFINITY;
-    for _ in 0..RUNS {
+    for _ in 0..runs {
         let t = Instant::now();
         let mut keys: Vec<u64> = map
             .data
@@ -111,12 +116,20 @@ fn main() {
     if args.len() > 3 && args[1] == "--child-segment" {
         return child_segment(Path::new(&args[2]), Path::new(&args[3]));
     }
-    if args.len() > 2 && args[1] == "--child-sort" {
-        return child_sort(Path::new(&args[2]));
+    if args.len() > 3 && args[1] == "--child-sort" {
+        return child_sort(Path::new(&args[2]), args[3].parse().unwrap());
     }
-    let mut sizes: Vec<usize> = args.iter().skip(1).filter_map(|a| a.parse().ok()).collect();
+    // Sizes `N` or `NxK` (N x N tiled K x K times).
+    let mut sizes: Vec<(usize, usize)> = args
+        .iter()
+        .skip(1)
+        .filter_map(|a| {
+            let (n, k) = a.split_once('x').unwrap_or((a, "1"));
+            Some((n.parse().ok()?, k.parse().ok()?))
+        })
+        .collect();
     if sizes.is_empty() {
-        sizes = vec![1024, 2048];
+        sizes = vec![(1024, 1), (2048, 1)];
     }
     let python = std::env::var("CAIRN_BENCH_PYTHON").ok();
     let exe = std::env::current_exe().unwrap();
@@ -125,10 +138,12 @@ fn main() {
         "| size | sort (reference) | segment | segment / sort | peak memory above map / pixel | leaves | max_tree | max_tree / segment |"
     );
     println!("| --- | --- | --- | --- | --- | --- | --- | --- |");
-    for n in sizes {
+    for (base, tiles) in sizes {
+        let n = base * tiles;
+        let runs = if tiles > 1 { 1 } else { RUNS };
         let spec = cairn::synth::SynthSpec {
-            nx: n,
-            ny: n,
+            nx: base,
+            ny: base,
             pixel_arcsec: 4.0,
             beam_fwhm_arcsec: 12.0,
             background: Some(cairn::synth::Background {
@@ -152,10 +167,26 @@ fn main() {
         };
         let map = cairn::synth::generate(&spec).unwrap();
         let path = dir.path().join(format!("map{n}.fits"));
-        cairn::fits_write::write_image_f32(&path, map.data.view(), &map.header, true).unwrap();
-        drop(map);
+        if tiles > 1 {
+            let tiled = ndarray::Array2::from_shape_fn((n, n), |(y, x)| {
+                let (ty, tx) = (y / base, x / base);
+                let (mut yy, mut xx) = (y % base, x % base);
+                if ty % 2 == 1 {
+                    yy = base - 1 - yy;
+                }
+                if tx % 2 == 1 {
+                    xx = base - 1 - xx;
+                }
+                map.data[[yy, xx]]
+            });
+            drop(map.data);
+            cairn::fits_write::write_image_f32(&path, tiled.view(), &map.header, true).unwrap();
+        } else {
+            cairn::fits_write::write_image_f32(&path, map.data.view(), &map.header, true)
+                .unwrap();
+        }
         let sort = Command::new(&exe)
-            .args(["--child-sort", path.to_str().unwrap()])
+            .args(["--child-sort", path.to_str().unwrap(), &runs.to_string()])
             .output()
             .unwrap();
         let sort_s: f64 = String::from_utf8_lossy(&sort.stdout)
@@ -174,7 +205,7 @@ fn main() {
             "import time, numpy as np\nfrom astropy.io import fits\nfrom skimage.morphology import max_tree\nd = fits.getdata(r'{}').astype(np.float32)\nbest = float('inf')\nfor _ in range(2):\n    t = time.perf_counter()\n    max_tree(d, connectivity=2)\n    best = min(best, time.perf_counter() - t)\nprint(best)\n",
             path.display()
         );
-        for run in 0..RUNS {
+        for run in 0..runs {
             let out = dir.path().join(format!("run{n}-{run}"));
             let seg = Command::new(&exe)
                 .args([
