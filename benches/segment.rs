@@ -182,8 +182,7 @@ fn main() {
             drop(map.data);
             cairn::fits_write::write_image_f32(&path, tiled.view(), &map.header, true).unwrap();
         } else {
-            cairn::fits_write::write_image_f32(&path, map.data.view(), &map.header, true)
-                .unwrap();
+            cairn::fits_write::write_image_f32(&path, map.data.view(), &map.header, true).unwrap();
         }
         let sort = Command::new(&exe)
             .args(["--child-sort", path.to_str().unwrap(), &runs.to_string()])

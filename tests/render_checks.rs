@@ -808,6 +808,26 @@ fn leaf_labels_do_not_overlap_each_other() {
     }
 }
 
+/// An overlay of `map` and its label map with no beam, scale bar, sky axes or title.
+fn plain_overlay<'a>(
+    map: &'a Array2<f32>,
+    labels: &'a Array2<i32>,
+    leaves: Vec<LeafStyle>,
+) -> Overlay<'a> {
+    Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: labels.view(),
+        branch_labels: None,
+        leaves,
+        states: states(),
+        sky: None,
+        beam: None,
+        scale_bar: None,
+        title: None,
+    }
+}
+
 /// The bounding box of each leaf label's glyph outlines in an SVG figure.
 fn label_boxes(svg: &str) -> Vec<(f64, f64, f64, f64)> {
     let doc = roxmltree::Document::parse(svg).unwrap();
@@ -868,18 +888,7 @@ fn crowded_leaves_get_leader_lines_or_are_counted_as_unlabelled() {
     let n = leaves.len();
     let (mut left_out, mut all_leaders) = (Vec::new(), 0);
     for width in [500, 700, 900, 1200, 1600] {
-        let o = Overlay {
-            map: map.view(),
-            unit_label: "K".into(),
-            labels: l.view(),
-            branch_labels: None,
-            leaves: leaves.clone(),
-            states: states(),
-            sky: None,
-            beam: None,
-            scale_bar: None,
-            title: None,
-        };
+        let o = plain_overlay(&map, &l, leaves.clone());
         let style = Style {
             width_px: width,
             dpi: 150.0,
@@ -955,18 +964,7 @@ fn outlines_of_a_map_larger_than_its_figure_keep_exact_corners_within_half_a_fig
         }
     }
     let map = smooth_map(h, w);
-    let o = Overlay {
-        map: map.view(),
-        unit_label: "K".into(),
-        labels: l.view(),
-        branch_labels: None,
-        leaves: leaves_of(&l),
-        states: states(),
-        sky: None,
-        beam: None,
-        scale_bar: None,
-        title: None,
-    };
+    let o = plain_overlay(&map, &l, leaves_of(&l));
     let style = Style {
         width_px: 500,
         dpi: 100.0,

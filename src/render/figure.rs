@@ -4,6 +4,7 @@
 use super::axes::{self, AxisTicks, Edge, Region};
 use super::legend;
 use super::outline::{ring_area, simplify_ring, trace_outlines};
+use super::plot::clip_segment;
 use super::raster::{self, Lut, Scale};
 use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
 use super::text;
@@ -370,33 +371,11 @@ impl BoxIndex {
             self.grid.entry(c).or_default().push(k);
         }
     }
-    /// Whether the segment from `a` to `b` passes through any box (Liang-Barsky clipping).
+    /// Whether the segment from `a` to `b` passes through any box (along a stretch of
+    /// positive length).
     fn crosses(&self, a: (f64, f64), b: (f64, f64)) -> bool {
         let span = (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1));
-        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
-        let hits = |p: (f64, f64, f64, f64)| {
-            let (mut t0, mut t1) = (0.0f64, 1.0f64);
-            for (q, d) in [
-                (a.0 - p.0, -dx),
-                (p.2 - a.0, dx),
-                (a.1 - p.1, -dy),
-                (p.3 - a.1, dy),
-            ] {
-                if d == 0.0 {
-                    if q < 0.0 {
-                        return false;
-                    }
-                } else {
-                    let t = q / d;
-                    if d < 0.0 {
-                        t0 = t0.max(t);
-                    } else {
-                        t1 = t1.min(t);
-                    }
-                }
-            }
-            t0 < t1
-        };
+        let hits = |r: Rect| clip_segment(a, b, r).is_some_and(|(s, e)| s != e);
         self.cells(span).any(|c| {
             self.grid
                 .get(&c)

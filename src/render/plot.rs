@@ -769,8 +769,9 @@ fn paint_attrs(ps: &[&Paint]) -> String {
     a
 }
 
-/// Cuts the segment a-b to the rectangle (x0, y0, x1, y1); None when it misses it.
-fn clip_segment(
+/// Cuts the segment a-b to the rectangle (x0, y0, x1, y1); None when it misses it
+/// (Liang-Barsky clipping).
+pub(crate) fn clip_segment(
     a: (f64, f64),
     b: (f64, f64),
     r: (f64, f64, f64, f64),
