@@ -828,6 +828,14 @@ fn plain_overlay<'a>(
     }
 }
 
+/// The numbers of an SVG path's data, in order (commands dropped).
+fn path_numbers(d: &str) -> Vec<f64> {
+    d.split(|c: char| c.is_ascii_alphabetic() || c == ' ')
+        .filter(|s| !s.is_empty())
+        .map(|s| s.parse().unwrap())
+        .collect()
+}
+
 /// The bounding box of each leaf label's glyph outlines in an SVG figure.
 fn label_boxes(svg: &str) -> Vec<(f64, f64, f64, f64)> {
     let doc = roxmltree::Document::parse(svg).unwrap();
@@ -836,13 +844,7 @@ fn label_boxes(svg: &str) -> Vec<(f64, f64, f64, f64)> {
         .descendants()
         .filter(|n| n.attribute("class") == Some("leaf-label"))
     {
-        let nums: Vec<f64> = n
-            .attribute("d")
-            .unwrap()
-            .split(|c: char| c.is_ascii_alphabetic() || c == ' ')
-            .filter(|s| !s.is_empty())
-            .map(|s| s.parse().unwrap())
-            .collect();
+        let nums = path_numbers(n.attribute("d").unwrap());
         let mut b = (f64::MAX, f64::MAX, f64::MIN, f64::MIN);
         for p in nums.chunks(2) {
             b = (b.0.min(p[0]), b.1.min(p[1]), b.2.max(p[0]), b.3.max(p[1]));
@@ -858,13 +860,7 @@ fn leaders(svg: &str) -> Vec<((f64, f64), (f64, f64))> {
     doc.descendants()
         .filter(|n| n.attribute("class") == Some("leaf-leader"))
         .map(|n| {
-            let v: Vec<f64> = n
-                .attribute("d")
-                .unwrap()
-                .split(|c: char| c.is_ascii_alphabetic() || c == ' ')
-                .filter(|s| !s.is_empty())
-                .map(|s| s.parse().unwrap())
-                .collect();
+            let v = path_numbers(n.attribute("d").unwrap());
             assert_eq!(v.len(), 4, "a leader is one straight segment");
             ((v[0], v[1]), (v[2], v[3]))
         })
