@@ -261,6 +261,15 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
     })
 }
 
+/// The number of pixels of the map of the run in `dir`, from its run record, if it can be
+/// read (for sizing progress displays before the run itself is read).
+pub fn run_pixels(dir: &Path) -> Option<usize> {
+    let text = std::fs::read_to_string(dir.join("run.json")).ok()?;
+    let run: serde_json::Value = serde_json::from_str(&text).ok()?;
+    let n = |k: &str| run["map"][k].as_u64().map(|v| v as usize);
+    Some(n("nx")? * n("ny")?)
+}
+
 /// A finished run read back from its folder (for `cairn draw`).
 pub struct SavedRun {
     /// The map.

@@ -1080,7 +1080,17 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
 
 fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     use cairn::segment::names;
+    // Large maps take a while to read and draw: a bar through the three stages.
+    let bar = progress_bar(quiet, cairn::draw::run_pixels(&a.run).unwrap_or(0));
+    let stage = |name: &str, done: u64| {
+        if let Some(b) = &bar {
+            b.set_message(name.to_string());
+            b.set_position(done);
+        }
+    };
+    stage("reading", 0);
     let run = cairn::draw::read_run(&a.run, a.map.as_deref())?;
+    stage("drawing", 400);
     let style = a.style.style(&run.map)?;
     let input = cairn::draw::FigureInput {
         map: &run.map,
@@ -1090,6 +1100,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         title: None,
     };
     let figs = cairn::draw::figures(&input, &style)?;
+    stage("writing", 900);
     let (png, svg) = (&figs.overlay.png, &figs.overlay.svg);
     let (tpng, tsvg) = (&figs.tree_png, &figs.tree_svg);
     let dir = a.output.clone().unwrap_or_else(|| a.run.clone());
@@ -1109,6 +1120,9 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         output::write_bytes(&outputs.temp(names::TREE_SVG), tsvg.as_bytes())?;
     }
     let written = outputs.commit()?;
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     for p in written {
         if !quiet {
@@ -1134,7 +1148,8 @@ fn progress_bar(quiet: bool, npix: usize) -> Option<indicatif::ProgressBar> {
     if quiet || npix < 1_000_000 || !std::io::stderr().is_terminal() {
         return None;
     }
-    let b = indicatif::ProgressBar::new(1000);
+    // Cleared when dropped too, so an error leaves no half-drawn bar above its message.
+    let b = indicatif::ProgressBar::new(1000).with_finish(indicatif::ProgressFinish::AndClear);
     b.set_style(
         indicatif::ProgressStyle::with_template("{msg:>10} [{bar:40}] {percent:>3}%")
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
