@@ -794,7 +794,10 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                 }
                 // The leader runs from the label's box to the leaf's extent, each end the
                 // point of its box nearest the other box's centre, with a small gap.
-                let from = (lx.clamp(ex0, ex1), ly.clamp(ey0, ey1));
+                let from = (
+                    lx.clamp(ex0, ex1).clamp(fx, fx + fw),
+                    ly.clamp(ey0, ey1).clamp(fy, fy + fh),
+                );
                 let to = (from.0.clamp(bb.0, bb.2), from.1.clamp(bb.1, bb.3));
                 let len = (to.0 - from.0).hypot(to.1 - from.1);
                 if len <= 2.0 * gap {
