@@ -170,14 +170,6 @@ pub struct Figures {
 /// Draws the overlay and the tree.
 pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
     let map = input.map;
-    let leaf_ids: Vec<bool> = input.structures.iter().map(|s| s.is_leaf).collect();
-    let leaf_labels = input.labels.mapv(|l| {
-        if l >= 0 && leaf_ids.get(l as usize).copied().unwrap_or(false) {
-            l
-        } else {
-            -1
-        }
-    });
     let branch_labels: Option<Array2<i32>> = style.show_branches.then(|| {
         // The top-level ancestor of each labelled pixel, for structures that have children.
         let mut top = vec![-1i32; input.structures.len()];
@@ -220,7 +212,8 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
     let overlay = render::Overlay {
         map: map.data.view(),
         unit_label: unit_label(map),
-        labels: leaf_labels.view(),
+        // The label map as it is: the figure outlines only the listed leaves.
+        labels: input.labels,
         branch_labels: branch_labels.as_ref().map(|b| b.view()),
         leaves,
         states: states.clone(),

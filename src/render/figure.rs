@@ -3,7 +3,7 @@
 
 use super::axes::{self, AxisTicks, Edge, Region};
 use super::legend;
-use super::outline::{ring_area, simplify_ring, trace_outlines};
+use super::outline::{ring_area, simplify_ring, trace_outlines, trace_outlines_mapped};
 use super::plot::clip_segment;
 use super::raster::{self, Lut, Scale};
 use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
@@ -507,9 +507,25 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             });
         }
     }
-    let traced = trace_outlines(
+    // Only the listed leaves are traced: the label map may hold other structures too.
+    let listed = {
+        let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
+        let mut v = vec![false; n];
+        for l in o.leaves.iter().filter(|l| l.id >= 0) {
+            v[l.id as usize] = true;
+        }
+        v
+    };
+    let traced = trace_outlines_mapped(
         o.labels.slice(s![wy0..wy1, wx0..wx1]),
         (wx0 as f64, wy0 as f64),
+        |l| {
+            if l >= 0 && listed.get(l as usize).copied().unwrap_or(false) {
+                l
+            } else {
+                -1
+            }
+        },
     );
     // All dark casings first, then all coloured lines, so where two leaves share an edge
     // the gaps of one's dashes show the other's colour.

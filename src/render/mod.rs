@@ -82,7 +82,8 @@ pub struct Overlay<'a> {
     pub map: ArrayView2<'a, f32>,
     /// Colour-bar label; `^-2`/`^{...}` write exponents, `_2`/`_{...}` indices.
     pub unit_label: String,
-    /// Leaf footprints: leaf id per pixel, -1 for none. Same shape as `map`.
+    /// Footprints: structure id per pixel, -1 for none (a run's label map as it is, or one of
+    /// leaves only). Same shape as `map`; only the ids of `leaves` are outlined.
     pub labels: ArrayView2<'a, i32>,
     /// Optional branch footprints, outlined thinly when [`Style::show_branches`] is set.
     pub branch_labels: Option<ArrayView2<'a, i32>>,

@@ -47,13 +47,24 @@ fn right_px(vx: i64, vy: i64, d: usize) -> (i64, i64) {
 /// corner, for tracing a window of a larger map. Returns the rings of each id, in the order
 /// their first pixel is met scanning rows from y = 0.
 pub fn trace_outlines(labels: ArrayView2<i32>, offset: (f64, f64)) -> BTreeMap<i32, Vec<Ring>> {
+    trace_outlines_mapped(labels, offset, |l| l)
+}
+
+/// [`trace_outlines`] of the label map `relabel(labels)` without making it: each pixel's id
+/// is `relabel` of its label (negative: no footprint), so a caller can trace some ids only,
+/// or groups of ids, with no copy of a large map.
+pub fn trace_outlines_mapped(
+    labels: ArrayView2<i32>,
+    offset: (f64, f64),
+    relabel: impl Fn(i32) -> i32,
+) -> BTreeMap<i32, Vec<Ring>> {
     let (h, w) = labels.dim();
     let (wi, hi) = (w as i64, h as i64);
     let lab = |x: i64, y: i64| -> i32 {
         if x < 0 || y < 0 || x >= wi || y >= hi {
             -1
         } else {
-            labels[[y as usize, x as usize]]
+            relabel(labels[[y as usize, x as usize]])
         }
     };
     let is_edge = |vx: i64, vy: i64, d: usize, id: i32| -> bool {
@@ -68,7 +79,7 @@ pub fn trace_outlines(labels: ArrayView2<i32>, offset: (f64, f64)) -> BTreeMap<i
 
     for y in 0..hi {
         for x in 0..wi {
-            let id = labels[[y as usize, x as usize]];
+            let id = lab(x, y);
             if id < 0 {
                 continue;
             }
