@@ -461,13 +461,13 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             }
             (x1 - x0).max(y1 - y0)
         };
-        let largest = (0..rings.len()).fold(0, |best, i| {
-            if ring_area(&rings[i]).abs() > ring_area(&rings[best]).abs() {
-                i
-            } else {
-                best
-            }
-        });
+        // The footprint's largest ring (the first of equal ones), which is always drawn.
+        let largest = if coarse {
+            let areas: Vec<f64> = rings.iter().map(|r| ring_area(r).abs()).collect();
+            (0..areas.len()).fold(0, |best, i| if areas[i] > areas[best] { i } else { best })
+        } else {
+            0
+        };
         for (k, r) in rings.iter().enumerate() {
             let pts: Vec<(f64, f64)> = r.iter().map(|&(x, y)| lay.map_to_figure(x, y)).collect();
             let pts = if coarse {

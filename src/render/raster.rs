@@ -55,17 +55,18 @@ fn from_total_key(k: u32) -> f32 {
     f32::from_bits(if k >> 31 == 1 { k & 0x7fff_ffff } else { !k })
 }
 
-/// Histogram of 16 bits of the keys of the finite values (`high`: the upper 16 bits of every
-/// key; otherwise the lower 16 bits of the keys whose upper bits are `bucket`).
-fn key_histogram(map: ArrayView2<f32>, high: bool, bucket: u32) -> Vec<u64> {
+/// Counts of the finite values of `map` by `slot` of their key ([`total_key`]), `len` slots;
+/// a key whose slot is `None` is not counted.
+fn key_histogram(
+    map: ArrayView2<f32>,
+    len: usize,
+    slot: impl Fn(u32) -> Option<usize> + Sync,
+) -> Vec<u64> {
     let count = |h: &mut Vec<u64>, v: f32| {
-        if v.is_finite() {
-            let k = total_key(v);
-            if high {
-                h[(k >> 16) as usize] += 1;
-            } else if k >> 16 == bucket {
-                h[(k & 0xffff) as usize] += 1;
-            }
+        if v.is_finite()
+            && let Some(i) = slot(total_key(v))
+        {
+            h[i] += 1;
         }
     };
     let add = |mut a: Vec<u64>, b: Vec<u64>| {
@@ -78,14 +79,14 @@ fn key_histogram(map: ArrayView2<f32>, high: bool, bucket: u32) -> Vec<u64> {
         Some(s) => s
             .par_chunks(1 << 20)
             .fold(
-                || vec![0u64; 1 << 16],
+                || vec![0u64; len],
                 |mut h, c| {
                     c.iter().for_each(|&v| count(&mut h, v));
                     h
                 },
             )
-            .reduce(|| vec![0u64; 1 << 16], add),
-        None => map.iter().fold(vec![0u64; 1 << 16], |mut h, &v| {
+            .reduce(|| vec![0u64; len], add),
+        None => map.iter().fold(vec![0u64; len], |mut h, &v| {
             count(&mut h, v);
             h
         }),
@@ -93,11 +94,12 @@ fn key_histogram(map: ArrayView2<f32>, high: bool, bucket: u32) -> Vec<u64> {
 }
 
 /// The values at two percentiles (0-100) of the finite values of `map`, each the value of rank
-/// round(p / 100 * (n - 1)) in increasing order, or `None` if no value is finite. Exact, and in
-/// a few passes without copying the values: the rank's upper 16 key bits from one histogram,
-/// its lower 16 from another over the values sharing them.
+/// round(p / 100 * (n - 1)) in increasing order, or `None` if no value is finite. Exact, in two
+/// passes without copying the values: the ranks' upper 16 key bits from one histogram, their
+/// lower 16 from a second over the values sharing those upper bits.
 fn percentiles(map: ArrayView2<f32>, p: [f64; 2]) -> Option<[f32; 2]> {
-    let top = key_histogram(map, true, 0);
+    const HALF: usize = 1 << 16;
+    let top = key_histogram(map, HALF, |k| Some((k >> 16) as usize));
     let n: u64 = top.iter().sum();
     if n == 0 {
         return None;
@@ -112,15 +114,24 @@ fn percentiles(map: ArrayView2<f32>, p: [f64; 2]) -> Option<[f32; 2]> {
         }
         unreachable!("the rank is below the count")
     };
-    let mut out = [0.0f32; 2];
-    for (o, &pc) in out.iter_mut().zip(&p) {
-        let rank = ((pc / 100.0) * (n - 1) as f64).round() as u64;
-        let (b, within) = pick(&top, rank);
-        let low = key_histogram(map, false, b);
-        let (l, _) = pick(&low, within);
-        *o = from_total_key(b << 16 | l);
-    }
-    Some(out)
+    let [(b0, r0), (b1, r1)] =
+        p.map(|pc| pick(&top, ((pc / 100.0) * (n - 1) as f64).round() as u64));
+    // The lower bits of the keys in the two ranks' buckets, side by side (the first bucket's
+    // half serves both when they are the same bucket).
+    let low = key_histogram(map, 2 * HALF, |k| {
+        let lo = (k & 0xffff) as usize;
+        if k >> 16 == b0 {
+            Some(lo)
+        } else if k >> 16 == b1 {
+            Some(HALF + lo)
+        } else {
+            None
+        }
+    });
+    let second = if b1 == b0 { &low[..HALF] } else { &low[HALF..] };
+    let (l0, _) = pick(&low[..HALF], r0);
+    let (l1, _) = pick(second, r1);
+    Some([from_total_key(b0 << 16 | l0), from_total_key(b1 << 16 | l1)])
 }
 
 /// Maps a data value to [0, 1] on the colour scale.
@@ -320,12 +331,18 @@ mod tests {
             let mut v: Vec<f32> = m.iter().copied().filter(|x| x.is_finite()).collect();
             v.sort_by(f32::total_cmp);
             for p in [0.0, 0.5, 13.0, 50.0, 99.5, 100.0] {
+                // The same percentile twice (one bucket) and beside another (two buckets).
                 let got = percentiles(m.view(), [p, p]);
+                let pair = percentiles(m.view(), [p, 100.0 - p]);
                 if v.is_empty() {
                     assert!(got.is_none());
                     continue;
                 }
                 let rank = ((p / 100.0) * (v.len() - 1) as f64).round() as usize;
+                let other = (((100.0 - p) / 100.0) * (v.len() - 1) as f64).round() as usize;
+                let pair = pair.unwrap();
+                assert_eq!(pair[0].to_bits(), v[rank].to_bits(), "case {case} p {p}");
+                assert_eq!(pair[1].to_bits(), v[other].to_bits(), "case {case} p {p}");
                 assert_eq!(
                     got.unwrap()[0].to_bits(),
                     v[rank].to_bits(),
