@@ -721,6 +721,141 @@ fn tree_figure_has_one_path_per_structure_and_decodes() {
     assert!(tree_png(&nodes, &states(), "level", &log).is_ok());
 }
 
+/// A binary tree of `n` leaves: the Cartesian tree (lowest merge at the root) over random merge
+/// levels between neighbouring leaves; leaves get random peaks and states (some none).
+fn random_tree(n: usize, seed: u64) -> Vec<TreeNode> {
+    let mut s = seed;
+    let mut rnd = || {
+        s ^= s << 13;
+        s ^= s >> 7;
+        s ^= s << 17;
+        (s >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let h: Vec<f64> = (0..n - 1).map(|_| 1.0 + 5.0 * rnd()).collect();
+    let mut parent = vec![usize::MAX; h.len()];
+    let mut stack: Vec<usize> = Vec::new();
+    for i in 0..h.len() {
+        let mut last = None;
+        while stack.last().is_some_and(|&t| h[t] > h[i]) {
+            last = stack.pop();
+        }
+        if let Some(l) = last {
+            parent[l] = i;
+        }
+        if let Some(&t) = stack.last() {
+            parent[i] = t;
+        }
+        stack.push(i);
+    }
+    let bid = |i: usize| (n + i) as u32;
+    let mut nodes: Vec<TreeNode> = (0..h.len())
+        .map(|i| TreeNode {
+            id: bid(i),
+            parent: (parent[i] != usize::MAX).then(|| bid(parent[i])),
+            top: h[i],
+            bottom: if parent[i] == usize::MAX {
+                0.5
+            } else {
+                h[parent[i]]
+            },
+            is_leaf: false,
+            state: None,
+        })
+        .collect();
+    for l in 0..n {
+        // A leaf's parent is the higher of the merges on either side of it.
+        let p = match (l.checked_sub(1), (l < h.len()).then_some(l)) {
+            (Some(a), Some(b)) => {
+                if h[a] > h[b] {
+                    a
+                } else {
+                    b
+                }
+            }
+            (Some(a), None) => a,
+            (None, Some(b)) => b,
+            (None, None) => unreachable!("at least two leaves"),
+        };
+        let u = rnd();
+        nodes.push(TreeNode {
+            id: l as u32,
+            parent: Some(bid(p)),
+            top: h[p] + 0.1 + 3.0 * rnd(),
+            bottom: h[p],
+            is_leaf: true,
+            state: (u >= 0.25).then_some((u * 12.0) as usize % 3),
+        });
+    }
+    nodes
+}
+
+/// A tree of far more leaves than the figure has pixel columns is drawn as one path per state
+/// (each pixel in the colour of the state most structures crossing it have), with a note that
+/// says so, instead of one path per structure; a small tree keeps one path per structure (the
+/// test above).
+#[test]
+fn trees_wider_than_the_figure_are_drawn_per_pixel_column() {
+    let nodes = random_tree(30_000, 3);
+    let style = Style {
+        width_px: 800,
+        dpi: 150.0,
+        ..Style::default()
+    };
+    let svg = tree_svg(&nodes, &states(), "level [K]", &style).unwrap();
+    let doc = roxmltree::Document::parse(&svg).expect("the tree SVG is well-formed XML");
+    let paths: Vec<_> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("path"))
+        .collect();
+    assert!(
+        paths
+            .iter()
+            .all(|p| !p.attribute("id").is_some_and(|i| i.starts_with("node-")))
+    );
+    let dense: Vec<_> = paths
+        .iter()
+        .filter(|p| p.attribute("class").is_some_and(|c| c.starts_with("dense")))
+        .collect();
+    // Three states and grey: every group is present somewhere on this tree.
+    let mut classes: Vec<&str> = dense.iter().filter_map(|p| p.attribute("class")).collect();
+    classes.sort();
+    assert_eq!(
+        classes,
+        ["dense", "dense state-0", "dense state-1", "dense state-2"]
+    );
+    // Every run is a vertical segment one pixel wide, at a pixel column's centre.
+    for p in &dense {
+        assert_eq!(p.attribute("stroke-width"), Some("1"));
+        let d = p.attribute("d").unwrap();
+        let nums: Vec<f64> = d
+            .split(['M', 'L', ' ', ','])
+            .filter(|t| !t.is_empty())
+            .map(|t| t.parse().unwrap())
+            .collect();
+        assert_eq!(nums.len() % 4, 0);
+        for seg in nums.chunks(4) {
+            assert_eq!(seg[0], seg[2]);
+            assert_eq!(seg[0].fract(), 0.5);
+            assert!(seg[3] > seg[1]);
+        }
+    }
+    // 60,000 structures in well under a megabyte (one path each took about 15 MB).
+    assert!(svg.len() < 1 << 20, "{} bytes", svg.len());
+    let note = doc
+        .descendants()
+        .filter_map(|n| n.attribute("aria-label"))
+        .collect::<Vec<_>>()
+        .join(" ");
+    assert!(note.contains("30000 leaves on"), "{note}");
+    assert!(note.contains("each pixel shows the state of most structures crossing it"));
+    let png = tree_png(&nodes, &states(), "level [K]", &style).unwrap();
+    assert_eq!(image::load_from_memory(&png).unwrap().width(), 800);
+    assert_eq!(
+        png,
+        tree_png(&nodes, &states(), "level [K]", &style).unwrap()
+    );
+}
+
 #[test]
 fn mismatched_inputs_are_refused_with_a_sentence() {
     let map = smooth_map(6, 10);

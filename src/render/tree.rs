@@ -5,6 +5,14 @@
 //! A leaf's line runs from its merge level (`bottom`) to its peak (`top`). A branch's line
 //! runs from its merge level up to the highest merge level of its children, where it splits;
 //! drawing it on to the branch's own peak would leave a stub with nothing attached.
+//!
+//! A tree with more leaves than the plot has pixel columns (large maps give hundreds of
+//! thousands) is drawn densely instead: single lines could not be told apart, and one path per
+//! structure made SVG files of hundreds of megabytes. Each pixel that structures' lines cross
+//! takes the colour of the state most of them have (ties: the state first in the legend;
+//! structures without a state count as grey, last), drawn as runs of rows per pixel column,
+//! one path per state; connectors that overlap on a quarter-pixel row are joined and those
+//! shorter than a pixel left out. A note under the legend says so.
 
 use super::axes;
 use super::legend;
@@ -192,7 +200,25 @@ pub(crate) fn scene(
     // Legend rows.
     let rows = legend::rows(states, fs, gap, w_total - 2.0 * pad);
     let legend_top = top + ph + pad;
-    let height = (legend_top + rows.len() as f64 * 1.5 * fs + pad).ceil() as u32;
+    // Fewer than one figure pixel per leaf: the dense drawing, with a note under the legend.
+    let dense = slot < 1.0;
+    let mut note: Vec<String> = Vec::new();
+    if dense {
+        let (a, b) = (
+            format!(
+                "{} leaves on {} pixel columns:",
+                tl.leaf_order.len(),
+                pw.round()
+            ),
+            "each pixel shows the state of most structures crossing it".to_string(),
+        );
+        if text::width(&a, lfs) + text::width(&b, lfs) + lfs < w_total - 2.0 * pad {
+            note.push(format!("{a} {b}"));
+        } else {
+            note.extend([a, b]);
+        }
+    }
+    let height = (legend_top + (rows.len() + note.len()) as f64 * 1.5 * fs + pad).ceil() as u32;
 
     let ymap = |v: f64| {
         let t = if log {
@@ -206,81 +232,156 @@ pub(crate) fn scene(
 
     let mut sc = Scene::new(s.width_px, height, s.dpi, "tree of structures");
     let lw = (0.9 * pt).min(0.45 * slot).max(0.25 * pt);
-
-    // Connectors first, then the vertical lines on top.
-    let mut conn = PathData::new();
-    for n in nodes {
-        if let Some(p) = n.parent {
-            let y = ymap(n.bottom);
-            conn.move_to(xmap(tl.x[&n.id]), y);
-            conn.line_to(xmap(tl.x[&p]), y);
-        }
-    }
-    if !conn.0.is_empty() {
-        sc.path(
-            conn,
-            vec![Paint::Stroke(Line::solid(Rgba(60, 60, 60, 255), lw))],
-            "connector",
-        );
-    }
-    let mut ordered: Vec<&TreeNode> = nodes.iter().collect();
-    ordered.sort_by_key(|n| n.id);
-    for n in ordered {
+    let grey = Rgba(60, 60, 60, 255);
+    // Each structure's vertical line: its x (figure pixels) and its span (top, bottom).
+    let upper_of = |n: &TreeNode| {
         let kids = tl.children.get(&n.id).map(Vec::as_slice).unwrap_or(&[]);
-        let upper = if kids.is_empty() {
+        if kids.is_empty() {
             n.top
         } else {
             kids.iter()
                 .map(|k| by_id[k].bottom)
                 .fold(f64::NEG_INFINITY, f64::max)
                 .max(n.bottom)
-        };
-        let x = xmap(tl.x[&n.id]);
-        let d = PathData::line(x, ymap(n.bottom), x, ymap(upper));
-        let (paints, class) = match n.state {
-            Some(st) => {
-                let dash = state_dash(st, lw);
-                (
-                    vec![
-                        Paint::Stroke(Line {
-                            color: Rgba(0, 0, 0, 200),
-                            width: lw + 0.8 * pt,
-                            dash: dash.clone(),
-                            round: true,
-                        }),
-                        Paint::Stroke(Line {
-                            color: state_colour(st),
-                            width: lw,
-                            dash,
-                            round: true,
-                        }),
-                    ],
-                    format!(
-                        "{} state-{st}",
-                        if kids.is_empty() { "leaf" } else { "branch" }
-                    ),
-                )
+        }
+    };
+
+    if dense {
+        // More leaves than figure pixels across: single lines cannot be told apart, so each
+        // pixel column shows, per state, the union of the lines that fall in it, and
+        // connectors are joined along each quarter-pixel row.
+        let mut conns: Vec<(i64, f64, f64)> = Vec::new();
+        for n in nodes {
+            if let Some(p) = n.parent {
+                let (a, b) = (xmap(tl.x[&n.id]), xmap(tl.x[&p]));
+                conns.push(((ymap(n.bottom) * 4.0).round() as i64, a.min(b), a.max(b)));
             }
-            None => (
-                vec![Paint::Stroke(Line::solid(Rgba(60, 60, 60, 255), lw))],
-                (if kids.is_empty() { "leaf" } else { "branch" }).to_string(),
-            ),
-        };
-        sc.items.push(super::scene::Item::Path {
-            d,
-            paints,
-            clip: false,
-            id: Some(format!("node-{}", n.id)),
-            class,
-            label: None,
-        });
-        if kids.is_empty() && id_mode != 0 {
-            let y = ymap(n.top) - 0.4 * id_fs;
-            let t = n.id.to_string();
-            if id_mode == 1 {
-                sc.text(&t, x, y, id_fs, 0.5, 0.0, false, Rgba::BLACK, None);
+        }
+        let mut conn = PathData::new();
+        for (row, a, b) in merge_spans(conns, 0.5) {
+            if b - a >= 1.0 {
+                conn.move_to(a, row as f64 / 4.0);
+                conn.line_to(b, row as f64 / 4.0);
+            }
+        }
+        if !conn.0.is_empty() {
+            sc.path(
+                conn,
+                vec![Paint::Stroke(Line::solid(grey, lw))],
+                "connector",
+            );
+        }
+        // Each pixel of the plot gets the colour of the state most of the structures whose
+        // lines cross it have (ties: the state first in the legend; no state: grey, which
+        // wins only where it is the majority). Groups: state i -> i, no state -> nstates.
+        let nstates = nodes
+            .iter()
+            .filter_map(|n| n.state)
+            .map(|st| st + 1)
+            .fold(states.len(), usize::max);
+        let ng = nstates + 1;
+        let col0 = left.floor() as i64;
+        let ncols_px = ((left + pw).ceil() as i64 - col0 + 1).max(1) as usize;
+        let row0 = top.floor() as i64;
+        let nrows_px = ((top + ph).ceil() as i64 - row0 + 1).max(1) as usize;
+        let by_col: Vec<(u32, u32, u32, u32)> = nodes
+            .iter()
+            .map(|n| {
+                let g = n.state.unwrap_or(nstates);
+                let col = (xmap(tl.x[&n.id]).floor() as i64 - col0).clamp(0, ncols_px as i64 - 1);
+                let (ya, yb) = (ymap(upper_of(n)), ymap(n.bottom));
+                let (ya, yb) = (ya.min(yb), ya.max(yb));
+                let r0 = (ya.floor() as i64 - row0).clamp(0, nrows_px as i64 - 1);
+                let r1 = (yb.ceil() as i64 - row0).clamp(r0 + 1, nrows_px as i64);
+                (col as u32, g as u32, r0 as u32, r1 as u32)
+            })
+            .collect();
+        let mut paths: Vec<PathData> = vec![PathData::new(); ng];
+        for (col, g, r0, r1) in majority_runs(by_col, nrows_px, ng) {
+            let x = (col0 + col as i64) as f64 + 0.5;
+            paths[g].move_to(x, (row0 + r0 as i64) as f64);
+            paths[g].line_to(x, (row0 + r1 as i64) as f64);
+        }
+        for (g, d) in paths.into_iter().enumerate() {
+            if d.0.is_empty() {
+                continue;
+            }
+            let (color, class) = if g == nstates {
+                (grey, "dense".to_string())
             } else {
-                sc.text(&t, x, y, id_fs, 0.0, 0.5, true, Rgba::BLACK, None);
+                (state_colour(g), format!("dense state-{g}"))
+            };
+            sc.path(d, vec![Paint::Stroke(Line::solid(color, 1.0))], &class);
+        }
+        for (i, line) in note.iter().enumerate() {
+            let y = legend_top + (rows.len() + i) as f64 * 1.5 * fs + text::cap_height(lfs);
+            sc.text(line, pad, y, lfs, 0.0, 1.0, false, Rgba::BLACK, None);
+        }
+    } else {
+        // Connectors first, then the vertical lines on top.
+        let mut conn = PathData::new();
+        for n in nodes {
+            if let Some(p) = n.parent {
+                let y = ymap(n.bottom);
+                conn.move_to(xmap(tl.x[&n.id]), y);
+                conn.line_to(xmap(tl.x[&p]), y);
+            }
+        }
+        if !conn.0.is_empty() {
+            sc.path(
+                conn,
+                vec![Paint::Stroke(Line::solid(grey, lw))],
+                "connector",
+            );
+        }
+        let mut ordered: Vec<&TreeNode> = nodes.iter().collect();
+        ordered.sort_by_key(|n| n.id);
+        for n in ordered {
+            let is_leaf = !tl.children.contains_key(&n.id);
+            let x = xmap(tl.x[&n.id]);
+            let d = PathData::line(x, ymap(n.bottom), x, ymap(upper_of(n)));
+            let (paints, class) = match n.state {
+                Some(st) => {
+                    let dash = state_dash(st, lw);
+                    (
+                        vec![
+                            Paint::Stroke(Line {
+                                color: Rgba(0, 0, 0, 200),
+                                width: lw + 0.8 * pt,
+                                dash: dash.clone(),
+                                round: true,
+                            }),
+                            Paint::Stroke(Line {
+                                color: state_colour(st),
+                                width: lw,
+                                dash,
+                                round: true,
+                            }),
+                        ],
+                        format!("{} state-{st}", if is_leaf { "leaf" } else { "branch" }),
+                    )
+                }
+                None => (
+                    vec![Paint::Stroke(Line::solid(grey, lw))],
+                    (if is_leaf { "leaf" } else { "branch" }).to_string(),
+                ),
+            };
+            sc.items.push(super::scene::Item::Path {
+                d,
+                paints,
+                clip: false,
+                id: Some(format!("node-{}", n.id)),
+                class,
+                label: None,
+            });
+            if is_leaf && id_mode != 0 {
+                let y = ymap(n.top) - 0.4 * id_fs;
+                let t = n.id.to_string();
+                if id_mode == 1 {
+                    sc.text(&t, x, y, id_fs, 0.5, 0.0, false, Rgba::BLACK, None);
+                } else {
+                    sc.text(&t, x, y, id_fs, 0.0, 0.5, true, Rgba::BLACK, None);
+                }
             }
         }
     }
@@ -340,6 +441,74 @@ pub(crate) fn scene(
     Ok(sc)
 }
 
+/// The majority drawing of a dense tree. Each input line `(column, group, r0, r1)` covers
+/// rows `r0..r1` (`r1 <= nrows`) of its pixel column; the result gives, for every pixel that
+/// at least one line covers, the group with the most lines there (ties: the lowest group), as
+/// runs `(column, group, start, end)` of rows `start..end`, by column and then row.
+fn majority_runs(
+    mut lines: Vec<(u32, u32, u32, u32)>,
+    nrows: usize,
+    ng: usize,
+) -> Vec<(u32, usize, u32, u32)> {
+    lines.sort_unstable();
+    let mut out = Vec::new();
+    let mut diff = vec![0i32; ng * (nrows + 1)];
+    let mut count = vec![0i32; ng];
+    let mut i = 0;
+    while i < lines.len() {
+        let col = lines[i].0;
+        diff.fill(0);
+        let (mut lo, mut hi) = (u32::MAX, 0u32);
+        while i < lines.len() && lines[i].0 == col {
+            let (_, g, r0, r1) = lines[i];
+            diff[g as usize * (nrows + 1) + r0 as usize] += 1;
+            diff[g as usize * (nrows + 1) + r1 as usize] -= 1;
+            lo = lo.min(r0);
+            hi = hi.max(r1);
+            i += 1;
+        }
+        count.fill(0);
+        let mut run: Option<(usize, u32)> = None;
+        for r in lo..=hi {
+            let winner =
+                if r < hi {
+                    for (g, c) in count.iter_mut().enumerate() {
+                        *c += diff[g * (nrows + 1) + r as usize];
+                    }
+                    let (g, c) = count.iter().enumerate().fold((0, 0), |best, (g, &c)| {
+                        if c > best.1 { (g, c) } else { best }
+                    });
+                    (c > 0).then_some(g)
+                } else {
+                    None
+                };
+            if run.map(|(g, _)| g) != winner {
+                if let Some((g, start)) = run {
+                    out.push((col, g, start, r));
+                }
+                run = winner.map(|g| (g, r));
+            }
+        }
+    }
+    out
+}
+
+/// Joins spans `(key, a, b)` (a <= b) of equal key that overlap or lie within `gap` of each
+/// other; the result is sorted by key, then by `a`, and its spans of one key are separated by
+/// more than `gap`. Every input span lies inside one output span, and every output end is an
+/// input end.
+fn merge_spans(mut spans: Vec<(i64, f64, f64)>, gap: f64) -> Vec<(i64, f64, f64)> {
+    spans.sort_unstable_by(|x, y| x.0.cmp(&y.0).then(x.1.total_cmp(&y.1)));
+    let mut out: Vec<(i64, f64, f64)> = Vec::new();
+    for (k, a, b) in spans {
+        match out.last_mut() {
+            Some(last) if last.0 == k && a <= last.2 + gap => last.2 = last.2.max(b),
+            _ => out.push((k, a, b)),
+        }
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -371,6 +540,96 @@ mod tests {
         assert_eq!(t.leaf_order, vec![4, 6, 5]);
         assert_eq!(t.x[&2], 0.5);
         assert_eq!(t.x[&1], 0.5 * (0.5 + 2.0));
+    }
+
+    /// Small random generator for the tests (xorshift).
+    fn rng(seed: u64) -> impl FnMut(u64) -> u64 {
+        let mut s = seed;
+        move |n| {
+            s ^= s << 13;
+            s ^= s >> 7;
+            s ^= s << 17;
+            s % n
+        }
+    }
+
+    /// The runs equal a count made pixel by pixel: every covered pixel lies in exactly one run,
+    /// of the group with the most lines there (lowest group on ties); no run covers an empty
+    /// pixel.
+    #[test]
+    fn majority_runs_equal_a_pixel_by_pixel_count() {
+        let mut r = rng(11);
+        for trial in 0..200 {
+            let (ncols, nrows, ng) = (1 + r(6) as u32, 1 + r(40) as usize, 1 + r(5) as usize);
+            let nlines = r(60) as usize + trial % 3;
+            let lines: Vec<(u32, u32, u32, u32)> = (0..nlines)
+                .map(|_| {
+                    let r0 = r(nrows as u64) as u32;
+                    let r1 = r0 + 1 + r((nrows as u64) - r0 as u64) as u32;
+                    (r(ncols as u64) as u32, r(ng as u64) as u32, r0, r1)
+                })
+                .collect();
+            let mut counts = vec![vec![vec![0u32; ng]; nrows]; ncols as usize];
+            for &(c, g, r0, r1) in &lines {
+                for row in r0..r1 {
+                    counts[c as usize][row as usize][g as usize] += 1;
+                }
+            }
+            let mut drawn = vec![vec![None; nrows]; ncols as usize];
+            let runs = majority_runs(lines, nrows, ng);
+            assert!(runs.windows(2).all(|w| (w[0].0, w[0].2) < (w[1].0, w[1].2)));
+            for (c, g, a, b) in runs {
+                assert!(a < b);
+                for row in a..b {
+                    assert!(
+                        drawn[c as usize][row as usize].is_none(),
+                        "pixel drawn twice"
+                    );
+                    drawn[c as usize][row as usize] = Some(g);
+                }
+            }
+            for c in 0..ncols as usize {
+                for row in 0..nrows {
+                    let cs = &counts[c][row];
+                    let best = *cs.iter().max().unwrap();
+                    let want = (best > 0).then(|| cs.iter().position(|&x| x == best).unwrap());
+                    assert_eq!(drawn[c][row], want, "column {c}, row {row}, counts {cs:?}");
+                }
+            }
+        }
+    }
+
+    /// Every span lies inside one joined span of its key; joined spans begin and end where
+    /// input spans do and lie more than the gap apart.
+    #[test]
+    fn joined_spans_cover_their_inputs_and_add_no_ends() {
+        let mut r = rng(5);
+        for _ in 0..200 {
+            let spans: Vec<(i64, f64, f64)> = (0..r(50))
+                .map(|_| {
+                    let a = r(1000) as f64 / 10.0;
+                    (r(4) as i64, a, a + r(100) as f64 / 10.0)
+                })
+                .collect();
+            let out = merge_spans(spans.clone(), 0.5);
+            for &(k, a, b) in &spans {
+                assert_eq!(
+                    out.iter()
+                        .filter(|o| o.0 == k && o.1 <= a && b <= o.2)
+                        .count(),
+                    1
+                );
+            }
+            for &(k, a, b) in &out {
+                assert!(spans.iter().any(|s| s.0 == k && s.1 == a));
+                assert!(spans.iter().any(|s| s.0 == k && s.2 == b));
+            }
+            for w in out.windows(2) {
+                if w[0].0 == w[1].0 {
+                    assert!(w[1].1 > w[0].2 + 0.5);
+                }
+            }
+        }
     }
 
     #[test]
