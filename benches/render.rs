@@ -105,6 +105,7 @@ fn main() {
         unit_label: "N(H_2) [cm^-2]".into(),
         labels: labels.view(),
         branch_labels: None,
+        branch_of: None,
         leaves,
         states,
         sky: Some(&sky),

@@ -141,6 +141,7 @@ fn main() {
         unit_label: "N(H_2) [cm^-2]".into(),
         labels: labels.view(),
         branch_labels: Some(branches.view()),
+        branch_of: None,
         leaves: leaves.clone(),
         states: states.clone(),
         sky: Some(&eq),

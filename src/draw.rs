@@ -170,23 +170,24 @@ pub struct Figures {
 /// Draws the overlay and the tree.
 pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
     let map = input.map;
-    let branch_labels: Option<Array2<i32>> = style.show_branches.then(|| {
-        // The top-level ancestor of each labelled pixel, for structures that have children.
-        let mut top = vec![-1i32; input.structures.len()];
-        for s in &input.structures {
-            let mut a = s.id;
-            while let Some(p) = input.structures[a as usize].parent {
-                a = p;
-            }
-            top[s.id as usize] = if input.structures[a as usize].is_leaf {
-                -1
-            } else {
-                a as i32
-            };
-        }
+    // The top-level ancestor of each structure that has children (-1 for the others): the
+    // branch outlines are traced from the run's label map through it, with no copy of the map.
+    let branch_of: Option<Vec<i32>> = style.show_branches.then(|| {
         input
-            .labels
-            .mapv(|l| if l >= 0 { top[l as usize] } else { -1 })
+            .structures
+            .iter()
+            .map(|s| {
+                let mut a = s.id;
+                while let Some(p) = input.structures[a as usize].parent {
+                    a = p;
+                }
+                if input.structures[a as usize].is_leaf {
+                    -1
+                } else {
+                    a as i32
+                }
+            })
+            .collect()
     });
     let leaves: Vec<LeafStyle> = input
         .structures
@@ -214,7 +215,8 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
         unit_label: unit_label(map),
         // The label map as it is: the figure outlines only the listed leaves.
         labels: input.labels,
-        branch_labels: branch_labels.as_ref().map(|b| b.view()),
+        branch_labels: branch_of.as_ref().map(|_| input.labels),
+        branch_of: branch_of.as_deref(),
         leaves,
         states: states.clone(),
         sky,

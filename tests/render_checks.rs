@@ -330,6 +330,7 @@ fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
         unit_label: "N(H_2) [cm^-2]".into(),
         labels: l.view(),
         branch_labels: None,
+        branch_of: None,
         leaves: leaves_of(&l),
         states: states(),
         sky: None,
@@ -376,6 +377,47 @@ fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
     assert_eq!(seen, expected, "exactly one outline path per leaf");
 }
 
+/// Branch outlines traced through a relabelling of the leaf label map (`branch_of`, what
+/// `draw --branches` uses) are the same figure as those traced from a relabelled copy.
+#[test]
+fn branch_outlines_through_a_relabelling_equal_those_of_a_relabelled_copy() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    // Labels 1 and 2 form branch 7, label 3 branch 8, label 4 none; 9 and up are unknown.
+    let of = [-1, 7, 7, 8, -1];
+    let copy = l.mapv(|v| if v >= 0 { of[v as usize] } else { -1 });
+    let overlay = |branch_labels, branch_of| Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: l.view(),
+        branch_labels,
+        branch_of,
+        leaves: leaves_of(&l),
+        states: states(),
+        sky: None,
+        beam: None,
+        scale_bar: None,
+        title: None,
+    };
+    for (width_px, region) in [(700, None), (640, Some((2, 1, 5, 4)))] {
+        let style = Style {
+            width_px,
+            dpi: 100.0,
+            show_branches: true,
+            region,
+            ..Style::default()
+        };
+        let a = render_svg(&overlay(Some(copy.view()), None), &style).unwrap();
+        let b = render_svg(&overlay(Some(l.view()), Some(&of)), &style).unwrap();
+        assert_eq!(a, b);
+        assert!(a.contains("id=\"branch-7\"") && a.contains("id=\"branch-8\""));
+        assert!(!a.contains("id=\"branch-4\""));
+        let a = render_png(&overlay(Some(copy.view()), None), &style).unwrap();
+        let b = render_png(&overlay(Some(l.view()), Some(&of)), &style).unwrap();
+        assert_eq!(a, b);
+    }
+}
+
 #[test]
 fn png_decodes_to_the_requested_width_and_output_is_deterministic() {
     let l = tricky_labels();
@@ -392,6 +434,7 @@ fn png_decodes_to_the_requested_width_and_output_is_deterministic() {
         unit_label: "MJy/sr".into(),
         labels: l.view(),
         branch_labels: Some(l.view()),
+        branch_of: None,
         leaves: leaves_of(&l),
         states: states(),
         sky: Some(&sky),
@@ -478,6 +521,7 @@ fn beam_in_the_figure_and_scale_bar_have_the_requested_sizes() {
         unit_label: "K".into(),
         labels: l.view(),
         branch_labels: None,
+        branch_of: None,
         leaves: Vec::new(),
         states: Vec::new(),
         sky: None,
@@ -865,6 +909,7 @@ fn mismatched_inputs_are_refused_with_a_sentence() {
         unit_label: "K".into(),
         labels: l.view(),
         branch_labels: None,
+        branch_of: None,
         leaves: Vec::new(),
         states: Vec::new(),
         sky: None,
@@ -919,6 +964,7 @@ fn leaf_labels_do_not_overlap_each_other() {
         unit_label: "K".into(),
         labels: l.view(),
         branch_labels: None,
+        branch_of: None,
         leaves,
         states: states(),
         sky: None,
@@ -954,6 +1000,7 @@ fn plain_overlay<'a>(
         unit_label: "K".into(),
         labels: labels.view(),
         branch_labels: None,
+        branch_of: None,
         leaves,
         states: states(),
         sky: None,

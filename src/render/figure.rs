@@ -492,7 +492,18 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     if s.show_branches
         && let Some(bl) = o.branch_labels
     {
-        let traced = trace_outlines(bl.slice(s![wy0..wy1, wx0..wx1]), (wx0 as f64, wy0 as f64));
+        let window = bl.slice(s![wy0..wy1, wx0..wx1]);
+        let offset = (wx0 as f64, wy0 as f64);
+        let traced = match o.branch_of {
+            Some(of) => trace_outlines_mapped(window, offset, |l| {
+                if l >= 0 {
+                    of.get(l as usize).copied().unwrap_or(-1)
+                } else {
+                    -1
+                }
+            }),
+            None => trace_outlines(window, offset),
+        };
         for (id, rings) in &traced {
             sc.items.push(Item::Path {
                 d: to_path(rings),

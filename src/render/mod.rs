@@ -87,6 +87,10 @@ pub struct Overlay<'a> {
     pub labels: ArrayView2<'a, i32>,
     /// Optional branch footprints, outlined thinly when [`Style::show_branches`] is set.
     pub branch_labels: Option<ArrayView2<'a, i32>>,
+    /// Optional relabelling of `branch_labels`: a pixel labelled `l >= 0` belongs to the
+    /// branch outline `branch_of[l]` (-1 for none; labels beyond the slice count as none).
+    /// It lets a run's own label map serve for the branches with no copy of it.
+    pub branch_of: Option<&'a [i32]>,
     /// The leaves to outline and label; ids in `labels` that are not listed are not drawn.
     /// Labels are placed greedily in this order; one that finds no free place near its
     /// peak is left out rather than printed over another.
