@@ -36,6 +36,8 @@ pub struct SkySummary {
     pub frame: String,
     /// Projection code, such as "TAN".
     pub projection: String,
+    /// Distortion convention applied before the projection ("SIP"), if any.
+    pub distortion: Option<String>,
     /// Longitude (RA or l) of the map centre in degrees.
     pub centre_lon_deg: f64,
     /// Latitude (Dec or b) of the map centre in degrees.
@@ -386,6 +388,7 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         Some(SkySummary {
             frame: frame_name(w.frame()),
             projection: w.projection().to_string(),
+            distortion: w.distortion().map(str::to_string),
             centre_lon_deg: lon,
             centre_lat_deg: lat,
             centre_text,
@@ -548,7 +551,13 @@ pub fn render_text(s: &Summary) -> String {
         Some(k) => {
             line(
                 "sky frame",
-                format!("{}, {} projection", k.frame, k.projection),
+                match &k.distortion {
+                    Some(d) => format!(
+                        "{}, {} projection with {d} distortion",
+                        k.frame, k.projection
+                    ),
+                    None => format!("{}, {} projection", k.frame, k.projection),
+                },
             );
             line(
                 "centre",

@@ -14,9 +14,11 @@
 //! CEA, CAR, MER, SFL (and GLS read as SFL with its fiducial point at delta0), PAR, MOL, AIT,
 //! COP, COE, COD, COO, BON, PCO; projection parameters PVi_m of the latitude axis; PVi_0..4
 //! of the longitude axis (fiducial-point offset flag, phi0, theta0, LONPOLE, LATPOLE);
-//! longitude and latitude axes in either order. Unsupported projection codes, singular
-//! matrices and inconsistent axis pairs are errors ([`WcsError`]) naming the keyword.
-//! The numerical results agree with WCSLIB (as wrapped by astropy.wcs) to ~1e-10 degree;
+//! longitude and latitude axes in either order; SIP distortion polynomials (`-SIP` CTYPEs,
+//! Shupe et al. 2005; private submodule `sip`). Unsupported projection codes and other
+//! distortions, singular matrices and inconsistent axis pairs are errors ([`WcsError`])
+//! naming the keyword. The numerical results agree with WCSLIB (as wrapped by astropy.wcs,
+//! with astropy's own SIP code for the distortion) to ~1e-10 degree;
 //! see tests/wcs_astropy.rs.
 //!
 //! Conventions used throughout:
@@ -30,6 +32,7 @@
 
 mod frames;
 mod proj;
+mod sip;
 mod trig;
 
 pub use frames::convert_frame;
@@ -86,6 +89,8 @@ pub struct Wcs {
     /// Inverse of `lin`.
     inv: [[f64; 2]; 2],
     proj: Projection,
+    /// SIP distortion polynomials (`-SIP` CTYPEs), applied to the pixel offsets before `lin`.
+    sip: Option<sip::Sip>,
     /// Projection parameters of the latitude axis as given (for `header_cards`).
     pv: Params,
     frame: SkyFrame,
@@ -211,6 +216,17 @@ impl Wcs {
         };
         let lat_axis = 1 - lon_axis;
         let (la, lo) = (lat_axis + 1, lon_axis + 1);
+        // A distortion suffix after the projection code: SIP is read, others are named.
+        let (code, sip) = match code.split_once('-') {
+            None => (code, None),
+            Some((base, "SIP")) => (base.to_string(), Some(sip::Sip::read(h)?)),
+            Some((base, other)) => {
+                return Err(WcsError(format!(
+                    "CTYPE{lo} = '{}' names the distortion '{other}' of projection {base}, which cairn does not read (it reads SIP); resample the map to an undistorted grid",
+                    ct[lon_axis]
+                )));
+            }
+        };
 
         // Units and reference point.
         let scale = [unit_scale(h, 1)?, unit_scale(h, 2)?];
@@ -306,6 +322,9 @@ impl Wcs {
         for (i, c) in ctype.iter_mut().enumerate() {
             let prefix = &ct[i][..4];
             *c = format!("{prefix}-{proj_code}");
+            if sip.is_some() {
+                c.push_str("-SIP");
+            }
         }
         Ok(Some(Wcs {
             lon_axis,
@@ -315,6 +334,7 @@ impl Wcs {
             lin,
             inv,
             proj,
+            sip,
             pv,
             frame,
             radesys,
@@ -564,7 +584,11 @@ impl Wcs {
 
     /// Projection-plane coordinates (x along longitude, y along latitude; degrees) of a pixel.
     fn plane(&self, x: f64, y: f64) -> (f64, f64) {
-        let d = [x + 1.0 - self.crpix[0], y + 1.0 - self.crpix[1]];
+        let mut d = [x + 1.0 - self.crpix[0], y + 1.0 - self.crpix[1]];
+        if let Some(s) = &self.sip {
+            let (u, v) = s.forward(d[0], d[1]);
+            d = [u, v];
+        }
         let w = [
             self.lin[0][0] * d[0] + self.lin[0][1] * d[1],
             self.lin[1][0] * d[0] + self.lin[1][1] * d[1],
@@ -600,8 +624,11 @@ impl Wcs {
         } else {
             [py, px]
         };
-        let d0 = self.inv[0][0] * w[0] + self.inv[0][1] * w[1];
-        let d1 = self.inv[1][0] * w[0] + self.inv[1][1] * w[1];
+        let mut d0 = self.inv[0][0] * w[0] + self.inv[0][1] * w[1];
+        let mut d1 = self.inv[1][0] * w[0] + self.inv[1][1] * w[1];
+        if let Some(s) = &self.sip {
+            (d0, d1) = s.inverse(d0, d1)?;
+        }
         Some((d0 + self.crpix[0] - 1.0, d1 + self.crpix[1] - 1.0))
     }
 
@@ -650,10 +677,27 @@ impl Wcs {
         let (px, py) = self.plane(x, y);
         self.proj.x2s(px, py)?;
         let (nx, ny) = self.plane_derivatives(px, py)?;
-        // d(plane x, plane y)/d(pixel x, pixel y).
+        // d(plane x, plane y)/d(pixel x, pixel y): the matrix, after the SIP Jacobian if any.
+        let m = match &self.sip {
+            Some(s) => {
+                let j = s.jacobian(x + 1.0 - self.crpix[0], y + 1.0 - self.crpix[1]);
+                let l = &self.lin;
+                [
+                    [
+                        l[0][0] * j[0][0] + l[0][1] * j[1][0],
+                        l[0][0] * j[0][1] + l[0][1] * j[1][1],
+                    ],
+                    [
+                        l[1][0] * j[0][0] + l[1][1] * j[1][0],
+                        l[1][0] * j[0][1] + l[1][1] * j[1][1],
+                    ],
+                ]
+            }
+            None => self.lin,
+        };
         let (l, b) = (self.lon_axis, 1 - self.lon_axis);
-        let (dxdp, dxdq) = (self.lin[l][0], self.lin[l][1]);
-        let (dydp, dydq) = (self.lin[b][0], self.lin[b][1]);
+        let (dxdp, dxdq) = (m[l][0], m[l][1]);
+        let (dydp, dydq) = (m[b][0], m[b][1]);
         let mut dp = [0.0; 3];
         let mut dq = [0.0; 3];
         for k in 0..3 {
@@ -700,6 +744,11 @@ impl Wcs {
     /// The projection code, e.g. "TAN" (NCP is reported as "SIN", GLS as "SFL").
     pub fn projection(&self) -> &str {
         &self.proj.code
+    }
+
+    /// The distortion convention applied in pixel space ("SIP"), if any.
+    pub fn distortion(&self) -> Option<&str> {
+        self.sip.as_ref().map(|_| "SIP")
     }
 
     /// Which image axis (0 = x, 1 = y) carries longitude.
@@ -797,6 +846,9 @@ impl Wcs {
             Value::Float(self.delta_p),
             "[deg] celestial latitude of native pole",
         ));
+        if let Some(s) = &self.sip {
+            out.extend(s.cards());
+        }
         match &self.frame {
             SkyFrame::Icrs => out.push(card("RADESYS".into(), Value::Str("ICRS".into()), "")),
             SkyFrame::Fk5 { equinox } => {
@@ -841,6 +893,49 @@ mod tests {
             e.starts_with("unknown projection code 'XYZ' in CTYPE1 = 'RA---XYZ' (cairn reads AZP,"),
             "{e}"
         );
+    }
+
+    /// Distortions other than SIP are named, and SIP without its polynomials is refused; a SIP
+    /// map's header cards keep the suffix and the polynomials.
+    #[test]
+    fn distortion_suffixes() {
+        let base = ["CDELT1  = -0.01", "CDELT2  = 0.01"];
+        let with = |c1: &str, c2: &str, more: &[&str]| {
+            let mut cards: Vec<String> =
+                vec![format!("CTYPE1  = '{c1}'"), format!("CTYPE2  = '{c2}'")];
+            cards.extend(base.iter().chain(more).map(|s| s.to_string()));
+            let refs: Vec<&str> = cards.iter().map(String::as_str).collect();
+            Wcs::from_header(&header(&refs))
+        };
+        let e = with("RA---TAN-TPV", "DEC--TAN-TPV", &[])
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("names the distortion 'TPV'") && e.contains("reads SIP"),
+            "{e}"
+        );
+        let e = with("RA---TAN-SIP", "DEC--TAN-SIP", &[])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("A_ORDER is missing"), "{e}");
+        let w = with(
+            "RA---TAN-SIP",
+            "DEC--TAN-SIP",
+            &["A_ORDER = 2", "A_2_0   = 1E-5", "B_ORDER = 2"],
+        )
+        .unwrap()
+        .unwrap();
+        assert_eq!(w.distortion(), Some("SIP"));
+        let cards = w.header_cards();
+        let get = |k: &str| {
+            cards
+                .iter()
+                .find(|c| c.key == k)
+                .and_then(|c| c.value.clone())
+        };
+        assert_eq!(get("CTYPE1"), Some(Value::Str("RA---TAN-SIP".into())));
+        assert_eq!(get("A_2_0"), Some(Value::Float(1e-5)));
+        assert_eq!(get("B_ORDER"), Some(Value::Int(2)));
     }
 
     #[test]

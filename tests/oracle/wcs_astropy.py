@@ -175,6 +175,27 @@ def invented_headers():
                       [("PV2_1", 30.0)], cdelt=(-0.5, 0.5))
     h["pco"] = simple((200, 200), t(eq, "PCO"), (100.0, 100.0), (30.0, 40.0),
                       cdelt=(-0.5, 0.5))
+    # SIP distortion (Shupe et al. 2005): second- and third-order terms of up to a pixel
+    # over the grid; with a stored approximate inverse (AP, BP: the first-order inverse,
+    # minus A and B), without one, and with the latitude axis first.
+    a = [("A_2_0", 5.0e-5), ("A_1_1", -3.0e-5), ("A_0_2", 1.5e-5), ("A_3_0", 1.0e-7),
+         ("A_1_2", -6.0e-8)]
+    b = [("B_2_0", -2.0e-5), ("B_1_1", 4.0e-5), ("B_0_2", 2.5e-5), ("B_2_1", 8.0e-8),
+         ("B_0_3", -5.0e-8)]
+    inv = ([("AP_ORDER", 3)] + [("AP" + k[1:], -v) for k, v in a]
+           + [("BP_ORDER", 3)] + [("BP" + k[1:], -v) for k, v in b])
+    h["tan_sip_cd"] = simple((200, 150), ("RA---TAN-SIP", "DEC--TAN-SIP"), (101.5, 75.25),
+                             (83.125, -5.4375), [
+        ("CD1_1", -2.1e-3), ("CD1_2", 4.0e-4), ("CD2_1", 3.5e-4), ("CD2_2", 2.2e-3),
+        ("RADESYS", "ICRS"), ("A_ORDER", 3)] + a + [("B_ORDER", 3)] + b + inv)
+    h["tan_sip_pc_galactic"] = simple((240, 180), ("GLON-TAN-SIP", "GLAT-TAN-SIP"),
+                                      (120.0, 90.5), (318.25, -1.75), [
+        ("PC1_1", 0.96), ("PC1_2", -0.28), ("PC2_1", 0.28), ("PC2_2", 0.96),
+        ("A_ORDER", 2)] + a[:3] + [("B_ORDER", 2)] + b[:3], cdelt=(-1.5e-3, 1.5e-3))
+    h["tan_sip_lat_first"] = simple((160, 200), ("DEC--TAN-SIP", "RA---TAN-SIP"),
+                                    (80.5, 100.5), (-27.5, 201.375), [
+        ("CD1_1", 1.8e-3), ("CD1_2", 2.0e-4), ("CD2_1", -2.5e-4), ("CD2_2", -1.9e-3),
+        ("A_ORDER", 3)] + a + [("B_ORDER", 3)] + b)
     return {k: cards_of(v) for k, v in h.items()}
 
 
@@ -202,10 +223,13 @@ def unit_vectors(lon, lat):
 
 
 def pix2world(w, x, y):
-    """astropy pixel -> sky (origin 0) of the two celestial axes."""
+    """astropy pixel -> sky (origin 0) of the two celestial axes; with SIP polynomials
+    all_pix2world, which applies them (wcs_pix2world would not)."""
     x = np.asarray(x, float)
     y = np.asarray(y, float)
-    if w.naxis == 2:
+    if w.sip is not None:
+        lon, lat = w.all_pix2world(x, y, 0)
+    elif w.naxis == 2:
         lon, lat = w.wcs_pix2world(x, y, 0)
     else:
         out = w.wcs_pix2world(x, y, *([np.zeros_like(x)] * (w.naxis - 2)), 0)
@@ -219,7 +243,10 @@ def world2pix(w, lon, lat):
     lon = np.asarray(lon, float)
     lat = np.asarray(lat, float)
     a, b = (lat, lon) if w.wcs.lng == 1 else (lon, lat)
-    if w.naxis == 2:
+    if w.sip is not None:
+        # astropy inverts the SIP polynomials iteratively; asked here for 1e-12 pixel.
+        x, y = w.all_world2pix(a, b, 0, tolerance=1e-12, maxiter=200)
+    elif w.naxis == 2:
         x, y = w.wcs_world2pix(a, b, 0)
     else:
         out = w.wcs_world2pix(a, b, *([np.full_like(a, w.wcs.crval[k])
