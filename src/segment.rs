@@ -298,6 +298,30 @@ fn sky_names(map: &Map) -> (&'static str, &'static str) {
     }
 }
 
+/// The second frame the catalogue gives centroids in: ICRS for galactic maps, galactic for
+/// ICRS and FK5 maps (none for others), with its column names and its name.
+type FrameColumns = (SkyFrame, [(&'static str, &'static str); 2]);
+
+fn other_frame(map: &Map) -> Option<FrameColumns> {
+    match map.wcs.as_ref()?.frame() {
+        SkyFrame::Galactic => Some((
+            SkyFrame::Icrs,
+            [
+                ("ra", "right ascension (ICRS)"),
+                ("dec", "declination (ICRS)"),
+            ],
+        )),
+        SkyFrame::Icrs | SkyFrame::Fk5 { .. } => Some((
+            SkyFrame::Galactic,
+            [
+                ("glon", "galactic longitude"),
+                ("glat", "galactic latitude"),
+            ],
+        )),
+        _ => None,
+    }
+}
+
 /// Builds the catalogue table from the measurements.
 pub fn catalogue(
     map: &Map,
@@ -389,6 +413,27 @@ pub fn catalogue(
     if map.wcs.is_some() {
         t.push_f64(lon, "deg", "longitude of the centroid", f(&|m| m.lon));
         t.push_f64(lat, "deg", "latitude of the centroid", f(&|m| m.lat));
+    }
+    if let Some((to, names)) = other_frame(map) {
+        let from = map.wcs.as_ref().map(|w| w.frame().clone());
+        let conv: Vec<(f64, f64)> = rows
+            .iter()
+            .map(|m| {
+                from.as_ref()
+                    .and_then(|fr| crate::wcs::convert_frame(m.lon, m.lat, fr, &to))
+                    .unwrap_or((f64::NAN, f64::NAN))
+            })
+            .collect();
+        for (k, (name, what)) in names.into_iter().enumerate() {
+            t.push_f64(
+                name,
+                "deg",
+                &format!("{what} of the centroid, converted from the map's frame"),
+                conv.iter()
+                    .map(|c| if k == 0 { c.0 } else { c.1 })
+                    .collect(),
+            );
+        }
     }
     t.push_i64(
         "area_px",

@@ -191,6 +191,9 @@ fn catalogue_sky_positions_match_astropy() {
             ("dec_peak", "peak_lat"),
             ("ra", "lon"),
             ("dec", "lat"),
+            // astropy.coordinates.SkyCoord(...).galactic of astropy's centroid position.
+            ("glon", "glon"),
+            ("glat", "glat"),
         ] {
             assert_close(
                 f(row, mine),

@@ -207,3 +207,61 @@ fn catalogues_are_byte_identical_with_one_and_two_threads() {
         assert!(a == b, "{name} differs between 1 and 2 threads");
     }
 }
+
+/// The catalogue gives centroids in a second frame: ICRS for a galactic map, galactic for an
+/// ICRS one, each the conversion of the map-frame columns (whose numbers are checked against
+/// astropy.coordinates in tests/wcs_astropy.rs and tests/segment_reference.rs).
+#[test]
+fn centroids_are_also_given_in_the_other_frame() {
+    use cairn::wcs::{SkyFrame, convert_frame};
+    for (frame, native, other, from, to) in [
+        (
+            synth::Frame::Galactic,
+            ("glon", "glat"),
+            ("ra", "dec"),
+            SkyFrame::Galactic,
+            SkyFrame::Icrs,
+        ),
+        (
+            synth::Frame::Icrs,
+            ("ra", "dec"),
+            ("glon", "glat"),
+            SkyFrame::Icrs,
+            SkyFrame::Galactic,
+        ),
+    ] {
+        let spec = SynthSpec {
+            nx: 200,
+            ny: 180,
+            frame,
+            noise_rms: 1.0e20,
+            seed: 4,
+            ..SynthSpec::default()
+        };
+        let dir = tempfile::tempdir().unwrap();
+        let (path, _) = write_map(dir.path(), &spec);
+        let map = cairn::map::load(&path, &Default::default()).unwrap();
+        let out = dir.path().join("run");
+        let o = options(&out, Level::Value(2.0e21), Level::Sigma(3.0), 1.0e20);
+        cairn::segment::run(&map, &o, &|_, _| {}).unwrap();
+        let csv = std::fs::read_to_string(out.join("structures.csv")).unwrap();
+        let mut lines = csv.lines().filter(|l| !l.starts_with('#'));
+        let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+        let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
+        let (a, b, c, d) = (col(native.0), col(native.1), col(other.0), col(other.1));
+        let mut n = 0;
+        for l in lines {
+            let f: Vec<f64> = l
+                .split(',')
+                .map(|v| v.parse().unwrap_or(f64::NAN))
+                .collect();
+            let (lon, lat) = convert_frame(f[a], f[b], &from, &to).unwrap();
+            assert_eq!((f[c], f[d]), (lon, lat));
+            let (blon, blat) = convert_frame(f[c], f[d], &to, &from).unwrap();
+            let dlon = ((blon - f[a] + 540.0) % 360.0 - 180.0) * f[b].to_radians().cos();
+            assert!(dlon.abs() < 1e-10 && (blat - f[b]).abs() < 1e-10);
+            n += 1;
+        }
+        assert!(n > 0, "the map gave no structure");
+    }
+}

@@ -11,7 +11,8 @@ descendants (from hierarchy.json). Sources:
   4 standard deviations). regionprops' orientation is the angle between the rows axis and
   the major axis; the direction of that axis in (column, row) is (sin o, cos o).
 * astropy 8.0.2 astropy.wcs.WCS.all_pix2world (origin 0) of cairn's catalogue pixel
-  positions (peak_x, peak_y and the weighted centroid x, y).
+  positions (peak_x, peak_y and the weighted centroid x, y), and the centroid in galactic
+  coordinates from astropy.coordinates.SkyCoord (the map is ICRS) .galactic.
 """
 import csv
 import json
@@ -20,6 +21,8 @@ import os
 import numpy as np
 from astropy.io import fits
 from astropy.wcs import WCS
+from astropy.coordinates import SkyCoord
+import astropy.units as u
 from skimage.measure import regionprops
 
 from common import fixtures_dir, out_dir, write_json
@@ -78,7 +81,9 @@ for r in rows:
     px, py = float(r["peak_x"]), float(r["peak_y"])
     cx, cy = float(r["x"]), float(r["y"])
     (plon, plat), (clon, clat) = wcs.all_pix2world([[px, py], [cx, cy]], 0)
-    sky[r["id"]] = {"peak_lon": plon, "peak_lat": plat, "lon": clon, "lat": clat}
+    g = SkyCoord(clon * u.deg, clat * u.deg, frame="icrs").galactic
+    sky[r["id"]] = {"peak_lon": plon, "peak_lat": plat, "lon": clon, "lat": clat,
+                    "glon": g.l.deg, "glat": g.b.deg}
 
 import astropy
 import skimage
