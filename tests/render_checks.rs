@@ -728,14 +728,18 @@ fn tree_nodes() -> Vec<TreeNode> {
     ]
 }
 
-#[test]
-fn tree_figure_has_one_path_per_structure_and_decodes() {
-    let nodes = tree_nodes();
-    let style = Style {
+fn tree_style() -> Style {
+    Style {
         width_px: 800,
         dpi: 150.0,
         ..Style::default()
-    };
+    }
+}
+
+#[test]
+fn tree_figure_has_one_path_per_structure_and_decodes() {
+    let nodes = tree_nodes();
+    let style = tree_style();
     let svg = tree_svg(&nodes, &states(), "level [K]", &style).unwrap();
     let doc = roxmltree::Document::parse(&svg).expect("the tree SVG is well-formed XML");
     let mut ids: Vec<String> = doc
@@ -840,11 +844,7 @@ fn random_tree(n: usize, seed: u64) -> Vec<TreeNode> {
 #[test]
 fn trees_wider_than_the_figure_are_drawn_per_pixel_column() {
     let nodes = random_tree(30_000, 3);
-    let style = Style {
-        width_px: 800,
-        dpi: 150.0,
-        ..Style::default()
-    };
+    let style = tree_style();
     let svg = tree_svg(&nodes, &states(), "level [K]", &style).unwrap();
     let doc = roxmltree::Document::parse(&svg).expect("the tree SVG is well-formed XML");
     let paths: Vec<_> = doc

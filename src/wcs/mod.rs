@@ -876,7 +876,8 @@ impl Wcs {
 mod tests {
     use super::*;
 
-    fn header(cards: &[&str]) -> Header {
+    /// A header from card texts (each padded to 80 characters).
+    pub(super) fn header(cards: &[&str]) -> Header {
         Header::parse(&cards.iter().map(|c| format!("{c:<80}")).collect::<String>())
     }
 

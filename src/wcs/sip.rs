@@ -186,10 +186,7 @@ impl Sip {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn header(cards: &[&str]) -> Header {
-        Header::parse(&cards.iter().map(|c| format!("{c:<80}")).collect::<String>())
-    }
+    use crate::wcs::tests::header;
 
     /// The polynomials as written in the convention: A_2_0 u^2 + A_1_1 u v + A_0_3 v^3 ...,
     /// the analytic Jacobian against central differences, and the inverse back to the start.
