@@ -828,10 +828,19 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     }) {
         Ok(h) => h,
         Err(hierarchy::HierarchyError::FloorAboveMaximum { floor, max }) => {
-            return Err(Error::usage(format!(
-                "--floor {floor} lies above the highest value of {} ({max}); lower it (cairn inspect suggests one).",
-                map.path.display()
-            )));
+            let file = map.path.display();
+            let noise = r.noise.map(|n| format!("{n:.4e}")).unwrap_or_default();
+            return Err(Error::usage(match o.floor {
+                Some(Level::Value(_)) => format!(
+                    "--floor {floor:.4e} lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one)."
+                ),
+                Some(Level::Sigma(k)) => format!(
+                    "--floor {k}sigma ({floor:.4e} with the noise {noise}) lies above the highest value of {file} ({max:.4e}); lower it or give the noise with --noise (cairn inspect suggests a floor)."
+                ),
+                None => format!(
+                    "the default floor, 3 sigma above the background ({floor:.4e} with the noise {noise}), lies above the highest value of {file} ({max:.4e}), so nothing in the map rises above its noise by that estimate; give --floor in map units, or the noise with --noise."
+                ),
+            }));
         }
         Err(e) => return Err(Error::input(&map.path, format!("{e}."))),
     };

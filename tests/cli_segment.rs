@@ -162,7 +162,21 @@ fn bad_thresholds_and_output_folders_are_refused() {
     refused(
         d.path(),
         &["segment", m, "-o", "a", "--floor", "1e30"],
-        "lies above the highest value",
+        "--floor 1.0000e30 lies above the highest value",
+    );
+    // A floor in noise units, and the default one (3 sigma above the background), say which
+    // noise they used.
+    refused(
+        d.path(),
+        &[
+            "segment", m, "-o", "a", "--floor", "5sigma", "--noise", "1e30",
+        ],
+        "--floor 5sigma (5.0000e30 with the noise 1.0000e30) lies above the highest value",
+    );
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--noise", "1e30"],
+        "the default floor, 3 sigma above the background",
     );
     refused(
         d.path(),
