@@ -801,8 +801,12 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
         format!("{}-spec.json", a.name),
     ];
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
-    let map = synth::generate(&spec)
-        .map_err(|e| Error::usage(format!("cannot make this synthetic map: {}", e.0)))?;
+    let map = synth::generate(&spec).map_err(|e| {
+        Error::usage(format!(
+            "cannot make this synthetic map: {}; change that option.",
+            e.0
+        ))
+    })?;
     fits_write::write_image_f32(&outputs.temp(&names[0]), map.data.view(), &map.header, true)
         .map_err(|e| Error::output(&a.output.join(&names[0]), e.0))?;
     synth::write_truth_csv(&outputs.temp(&names[1]), &map.truth).map_err(|e| {

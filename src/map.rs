@@ -94,7 +94,8 @@ impl Beam {
             minor_deg: major.min(minor),
             pa_deg: pa,
         };
-        beam.check().map_err(|e| format!("--beam '{text}': {e}"))?;
+        beam.check()
+            .map_err(|e| format!("--beam '{text}': {e}; give the FWHM, such as 18.2arcsec."))?;
         Ok(beam)
     }
 
