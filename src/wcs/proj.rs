@@ -1,6 +1,7 @@
-//! Spherical map projections of Calabretta & Greisen 2002 (A&A 395, 1077, "Paper II"):
-//! the mapping between native spherical coordinates (phi, theta) and projection-plane
-//! coordinates (x, y), all in degrees.
+//! Spherical map projections of Calabretta & Greisen 2002 (A&A 395, 1077, "Paper II"), and
+//! the HEALPix projection HPX of Calabretta & Roukema 2007 (MNRAS 381, 865): the mapping
+//! between native spherical coordinates (phi, theta) and projection-plane coordinates (x, y),
+//! all in degrees.
 //!
 //! Each projection is written from its defining equations in Paper II (section numbers are
 //! given next to each one). The domain rules follow the paper: a point with no image (the far
@@ -18,7 +19,7 @@ const TOL: f64 = 1.0e-13;
 
 /// The projection codes cairn reads, as listed in error messages.
 pub const SUPPORTED: &str = "AZP, SZP, TAN, STG, SIN, NCP, ARC, ZPN, ZEA, AIR, CYP, CEA, CAR, \
-                             MER, SFL, GLS, PAR, MOL, AIT, COP, COE, COD, COO, BON, PCO";
+                             MER, SFL, GLS, PAR, MOL, AIT, COP, COE, COD, COO, BON, PCO, HPX";
 
 /// One projection with its parameters resolved.
 #[derive(Debug, Clone)]
@@ -115,6 +116,12 @@ enum Kind {
         y0: f64,
     },
     Pco,
+    /// HEALPix, Calabretta & Roukema 2007 (MNRAS 381, 865): H facets around the equator
+    /// (PVi_1, default 4) and K facets in latitude (PVi_2, default 3).
+    Hpx {
+        h: f64,
+        k: f64,
+    },
 }
 
 /// Projection parameters PVi_m of the latitude axis, m = 0..29 (`None` when absent).
@@ -325,6 +332,16 @@ impl Projection {
                 (Kind::Bon { theta1, y0 }, 0.0, "BON")
             }
             "PCO" => (Kind::Pco, 0.0, "PCO"),
+            "HPX" => {
+                let h = p(1, 4.0);
+                let k = p(2, 3.0);
+                if !(h >= 1.0 && h.fract() == 0.0 && k >= 1.0 && k.fract() == 0.0) {
+                    return Err(format!(
+                        "HPX parameters H = PVi_1 and K = PVi_2 must be positive whole numbers, got {h} and {k}"
+                    ));
+                }
+                (Kind::Hpx { h, k }, 0.0, "HPX")
+            }
             _ => return Err(format!("unknown projection code '{code}'")),
         };
         Projection::finish(name, kind, default_theta0, phi0, theta0, use_offset)
@@ -575,6 +592,32 @@ impl Projection {
                 let phi = if ct == 0.0 { 0.0 } else { a * r / ct };
                 Some((phi, theta))
             }
+            Kind::Hpx { h, k } => {
+                // Equatorial zone: cylindrical equal-area; polar zones: K-dependent facets
+                // (Calabretta & Roukema 2007 sec. 3 and 6).
+                let y_x = 90.0 * (k - 1.0) / h;
+                if y.abs() <= y_x + TOL {
+                    let s = y * h / (90.0 * k);
+                    return Some((x, asind_checked(s)?));
+                }
+                let sigma = (k + 1.0) / 2.0 - y.abs() * h / 180.0;
+                if sigma < -TOL {
+                    return None;
+                }
+                let sigma = sigma.max(0.0);
+                let omega = if k % 2.0 == 1.0 || y > 0.0 { 1.0 } else { 0.0 };
+                let xc = -180.0
+                    + (2.0 * ((x + 180.0) * h / 360.0 + (1.0 - omega) / 2.0).floor() + omega)
+                        * 180.0
+                        / h;
+                let dx = x - xc;
+                if dx.abs() > 180.0 / h * sigma + TOL {
+                    return None;
+                }
+                let phi = if sigma < 1e-13 { xc } else { xc + dx / sigma };
+                let t = (1.0 - sigma * sigma / k).clamp(-1.0, 1.0);
+                Some((phi, asind(t).copysign(y)))
+            }
             Kind::Pco => {
                 if y.abs() < 1e-12 {
                     return Some((x, 0.0));
@@ -781,6 +824,24 @@ impl Projection {
                 let r = y0 - theta;
                 let a = if r == 0.0 { 0.0 } else { phi * ct / r };
                 Some((r * a.sin(), y0 - r * a.cos()))
+            }
+            Kind::Hpx { h, k } => {
+                let theta_x = asind((k - 1.0) / k);
+                if theta.abs() <= theta_x {
+                    return Some((phi, 90.0 * k / h * st));
+                }
+                let sigma = (k * (1.0 - st.abs())).sqrt();
+                let omega = if k % 2.0 == 1.0 || theta > 0.0 {
+                    1.0
+                } else {
+                    0.0
+                };
+                let phic = -180.0
+                    + (2.0 * ((phi + 180.0) * h / 360.0 + (1.0 - omega) / 2.0).floor() + omega)
+                        * 180.0
+                        / h;
+                let y = 180.0 / h * ((k + 1.0) / 2.0 - sigma);
+                Some((phic + (phi - phic) * sigma, y.copysign(theta)))
             }
             Kind::Pco => {
                 if theta == 0.0 {

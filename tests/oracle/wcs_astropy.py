@@ -40,7 +40,7 @@ WCS_KEYS = ("NAXIS", "CTYPE", "CRPIX", "CDELT", "CRVAL", "CUNIT", "CD", "PC", "C
             "LONPOLE", "LATPOLE", "RADESYS", "RADECSYS", "EQUINOX", "EPOCH", "WCSAXES")
 SUPPORTED = {"AZP", "SZP", "TAN", "STG", "SIN", "NCP", "ARC", "ZPN", "ZEA", "AIR", "CYP", "CEA",
              "CAR", "MER", "SFL", "GLS", "PAR", "MOL", "AIT", "COP", "COE", "COD", "COO", "BON",
-             "PCO"}
+             "PCO", "HPX"}
 
 
 def cards_of(pairs):
@@ -175,6 +175,12 @@ def invented_headers():
                       [("PV2_1", 30.0)], cdelt=(-0.5, 0.5))
     h["pco"] = simple((200, 200), t(eq, "PCO"), (100.0, 100.0), (30.0, 40.0),
                       cdelt=(-0.5, 0.5))
+    # HEALPix (Calabretta & Roukema 2007): the equatorial zone, and polar facets with an even
+    # K (so the facet centres shift) reaching past the pole into the plane's empty parts.
+    h["hpx_equatorial"] = simple((300, 200), t(gal, "HPX"), (150.5, 100.5), (30.0, 10.0),
+                                 cdelt=(-0.2, 0.2))
+    h["hpx_polar_h6_k4"] = simple((300, 300), t(eq, "HPX"), (150.5, 150.5), (45.0, 70.0),
+                                  [("PV2_1", 6.0), ("PV2_2", 4.0)], cdelt=(-0.4, 0.4))
     # SIP distortion (Shupe et al. 2005): second- and third-order terms of up to a pixel
     # over the grid; with a stored approximate inverse (AP, BP: the first-order inverse,
     # minus A and B), without one, and with the latitude axis first.
