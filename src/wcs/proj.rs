@@ -19,7 +19,7 @@ const TOL: f64 = 1.0e-13;
 
 /// The projection codes cairn reads, as listed in error messages.
 pub const SUPPORTED: &str = "AZP, SZP, TAN, STG, SIN, NCP, ARC, ZPN, ZEA, AIR, CYP, CEA, CAR, \
-                             MER, SFL, GLS, PAR, MOL, AIT, COP, COE, COD, COO, BON, PCO, HPX";
+                             MER, SFL, GLS, PAR, MOL, AIT, COP, COE, COD, COO, BON, PCO, HPX, TSC";
 
 /// One projection with its parameters resolved.
 #[derive(Debug, Clone)]
@@ -122,6 +122,8 @@ enum Kind {
         h: f64,
         k: f64,
     },
+    /// Tangential spherical cube, sec. 5.6.1.
+    Tsc,
 }
 
 /// Projection parameters PVi_m of the latitude axis, m = 0..29 (`None` when absent).
@@ -342,6 +344,7 @@ impl Projection {
                 }
                 (Kind::Hpx { h, k }, 0.0, "HPX")
             }
+            "TSC" => (Kind::Tsc, 0.0, "TSC"),
             _ => return Err(format!("unknown projection code '{code}'")),
         };
         Projection::finish(name, kind, default_theta0, phi0, theta0, use_offset)
@@ -618,6 +621,46 @@ impl Projection {
                 let t = (1.0 - sigma * sigma / k).clamp(-1.0, 1.0);
                 Some((phi, asind(t).copysign(y)))
             }
+            Kind::Tsc => {
+                // The face from the plane position (faces 1-4 side by side along x from -45
+                // degrees, 0 above and 5 below face 1; x below -45 continues from 315), then
+                // the face's gnomonic coordinates back to direction cosines (Paper II sec.
+                // 5.6, Table 10 and eqs. 163-164).
+                let (mut xf, yf) = (x / 45.0, y / 45.0);
+                if xf.abs() <= 1.0 + TOL {
+                    if yf.abs() > 3.0 + TOL {
+                        return None;
+                    }
+                } else if xf.abs() > 7.0 + TOL || yf.abs() > 1.0 + TOL {
+                    return None;
+                }
+                if xf < -1.0 {
+                    xf += 8.0;
+                }
+                let (face, xc) = if yf > 1.0 {
+                    (0, 0.0)
+                } else if yf < -1.0 {
+                    (5, 0.0)
+                } else if xf >= 5.0 {
+                    (4, 6.0)
+                } else if xf >= 3.0 {
+                    (3, 4.0)
+                } else if xf > 1.0 {
+                    (2, 2.0)
+                } else {
+                    (1, 0.0)
+                };
+                let yc = match face {
+                    0 => 2.0,
+                    5 => -2.0,
+                    _ => 0.0,
+                };
+                let (chi, psi) = (xf - xc, yf - yc);
+                let zeta = 1.0 / (1.0 + chi * chi + psi * psi).sqrt();
+                let (xi, eta) = (chi * zeta, psi * zeta);
+                let (l, m, n) = cube_face_inverse(face, xi, eta, zeta);
+                Some((atan2d(m, l), asind_checked(n)?))
+            }
             Kind::Pco => {
                 if y.abs() < 1e-12 {
                     return Some((x, 0.0));
@@ -843,6 +886,10 @@ impl Projection {
                 let y = 180.0 / h * ((k + 1.0) / 2.0 - sigma);
                 Some((phic + (phi - phic) * sigma, y.copysign(theta)))
             }
+            Kind::Tsc => {
+                let (_, xi, eta, zeta, xc, yc) = cube_face(cp * ct, sp * ct, st);
+                Some((45.0 * (xc + xi / zeta), 45.0 * (yc + eta / zeta)))
+            }
             Kind::Pco => {
                 if theta == 0.0 {
                     return Some((phi, 0.0));
@@ -879,6 +926,39 @@ fn bound(v: f64, limit: f64) -> Option<f64> {
         return Some(limit.copysign(v));
     }
     Some(v)
+}
+
+/// The quad-cube face of a direction (l, m, n) (Paper II sec. 5.6, Table 10): the largest of
+/// n, l, m, -l, -m, -n picks faces 0 to 5 (the first on ties); returns the face, its
+/// coordinates (xi, eta, zeta) and its centre in units of 45 degrees.
+fn cube_face(l: f64, m: f64, n: f64) -> (u8, f64, f64, f64, f64, f64) {
+    let c = [n, l, m, -l, -m, -n];
+    let mut face = 0;
+    for (i, &v) in c.iter().enumerate() {
+        if v > c[face] {
+            face = i;
+        }
+    }
+    match face {
+        0 => (0, m, -l, n, 0.0, 2.0),
+        1 => (1, m, n, l, 0.0, 0.0),
+        2 => (2, -l, n, m, 2.0, 0.0),
+        3 => (3, -m, n, -l, 4.0, 0.0),
+        4 => (4, l, n, -m, 6.0, 0.0),
+        _ => (5, m, l, -n, 0.0, -2.0),
+    }
+}
+
+/// Direction cosines (l, m, n) from a face's (xi, eta, zeta), the inverse of [`cube_face`].
+fn cube_face_inverse(face: u8, xi: f64, eta: f64, zeta: f64) -> (f64, f64, f64) {
+    match face {
+        0 => (-eta, xi, zeta),
+        1 => (zeta, xi, eta),
+        2 => (-xi, zeta, eta),
+        3 => (-zeta, -xi, eta),
+        4 => (xi, -zeta, eta),
+        _ => (eta, xi, -zeta),
+    }
 }
 
 /// Zenithal inverse: phi = atan2(x, -y), theta from R (Paper II eqs. 14-15).

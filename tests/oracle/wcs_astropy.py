@@ -40,7 +40,7 @@ WCS_KEYS = ("NAXIS", "CTYPE", "CRPIX", "CDELT", "CRVAL", "CUNIT", "CD", "PC", "C
             "LONPOLE", "LATPOLE", "RADESYS", "RADECSYS", "EQUINOX", "EPOCH", "WCSAXES")
 SUPPORTED = {"AZP", "SZP", "TAN", "STG", "SIN", "NCP", "ARC", "ZPN", "ZEA", "AIR", "CYP", "CEA",
              "CAR", "MER", "SFL", "GLS", "PAR", "MOL", "AIT", "COP", "COE", "COD", "COO", "BON",
-             "PCO", "HPX"}
+             "PCO", "HPX", "TSC"}
 
 
 def cards_of(pairs):
@@ -181,6 +181,10 @@ def invented_headers():
                                  cdelt=(-0.2, 0.2))
     h["hpx_polar_h6_k4"] = simple((300, 300), t(eq, "HPX"), (150.5, 150.5), (45.0, 70.0),
                                   [("PV2_1", 6.0), ("PV2_2", 4.0)], cdelt=(-0.4, 0.4))
+    # The tangential spherical cube over most of the sky: every face (plane x from -41 to 318
+    # degrees, the map not covering any part of the sky twice), and the plane's empty parts.
+    h["tsc_whole_sky"] = simple((300, 240), t(gal, "TSC"), (12.0, 120.5), (20.0, 5.0),
+                                cdelt=(1.0, 1.0))
     # SIP distortion (Shupe et al. 2005): second- and third-order terms of up to a pixel
     # over the grid; with a stored approximate inverse (AP, BP: the first-order inverse,
     # minus A and B), without one, and with the latitude axis first.
