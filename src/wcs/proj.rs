@@ -19,7 +19,7 @@ const TOL: f64 = 1.0e-13;
 
 /// The projection codes cairn reads, as listed in error messages.
 pub const SUPPORTED: &str = "AZP, SZP, TAN, STG, SIN, NCP, ARC, ZPN, ZEA, AIR, CYP, CEA, CAR, \
-                             MER, SFL, GLS, PAR, MOL, AIT, COP, COE, COD, COO, BON, PCO, HPX, TSC";
+                             MER, SFL, GLS, PAR, MOL, AIT, COP, COE, COD, COO, BON, PCO, HPX, TSC, QSC";
 
 /// One projection with its parameters resolved.
 #[derive(Debug, Clone)]
@@ -124,6 +124,8 @@ enum Kind {
     },
     /// Tangential spherical cube, sec. 5.6.1.
     Tsc,
+    /// Quadrilateralized spherical cube (exactly equal-area), sec. 5.6.3.
+    Qsc,
 }
 
 /// Projection parameters PVi_m of the latitude axis, m = 0..29 (`None` when absent).
@@ -345,6 +347,7 @@ impl Projection {
                 (Kind::Hpx { h, k }, 0.0, "HPX")
             }
             "TSC" => (Kind::Tsc, 0.0, "TSC"),
+            "QSC" => (Kind::Qsc, 0.0, "QSC"),
             _ => return Err(format!("unknown projection code '{code}'")),
         };
         Projection::finish(name, kind, default_theta0, phi0, theta0, use_offset)
@@ -622,42 +625,37 @@ impl Projection {
                 Some((phi, asind(t).copysign(y)))
             }
             Kind::Tsc => {
-                // The face from the plane position (faces 1-4 side by side along x from -45
-                // degrees, 0 above and 5 below face 1; x below -45 continues from 315), then
-                // the face's gnomonic coordinates back to direction cosines (Paper II sec.
-                // 5.6, Table 10 and eqs. 163-164).
-                let (mut xf, yf) = (x / 45.0, y / 45.0);
-                if xf.abs() <= 1.0 + TOL {
-                    if yf.abs() > 3.0 + TOL {
+                // The face's gnomonic coordinates back to direction cosines (Paper II sec.
+                // 5.6.1).
+                let (face, chi, psi) = cube_plane_face(x, y)?;
+                let zeta = 1.0 / (1.0 + chi * chi + psi * psi).sqrt();
+                let (l, m, n) = cube_face_inverse(face, chi * zeta, psi * zeta, zeta);
+                Some((atan2d(m, l), asind_checked(n)?))
+            }
+            Kind::Qsc => {
+                // Paper II sec. 5.6.3: omega from the ratio of the face coordinates, then zeta,
+                // then xi and eta with xi^2 + eta^2 = 1 - zeta^2.
+                let (face, u, v) = cube_plane_face(x, y)?;
+                let (xi, eta, zeta) = if u == 0.0 && v == 0.0 {
+                    (0.0, 0.0, 1.0)
+                } else {
+                    let (big, small) = if u.abs() > v.abs() { (u, v) } else { (v, u) };
+                    let t = 15.0 * small / big;
+                    let omega = sind(t) / (cosd(t) - std::f64::consts::FRAC_1_SQRT_2);
+                    let zeta = 1.0 - big * big * (1.0 - 1.0 / (2.0 + omega * omega).sqrt());
+                    if zeta < -1.0 - TOL {
                         return None;
                     }
-                } else if xf.abs() > 7.0 + TOL || yf.abs() > 1.0 + TOL {
-                    return None;
-                }
-                if xf < -1.0 {
-                    xf += 8.0;
-                }
-                let (face, xc) = if yf > 1.0 {
-                    (0, 0.0)
-                } else if yf < -1.0 {
-                    (5, 0.0)
-                } else if xf >= 5.0 {
-                    (4, 6.0)
-                } else if xf >= 3.0 {
-                    (3, 4.0)
-                } else if xf > 1.0 {
-                    (2, 2.0)
-                } else {
-                    (1, 0.0)
+                    let zeta = zeta.clamp(-1.0, 1.0);
+                    let a = ((1.0 - zeta * zeta) / (1.0 + omega * omega))
+                        .sqrt()
+                        .copysign(big);
+                    if u.abs() > v.abs() {
+                        (a, omega * a, zeta)
+                    } else {
+                        (omega * a, a, zeta)
+                    }
                 };
-                let yc = match face {
-                    0 => 2.0,
-                    5 => -2.0,
-                    _ => 0.0,
-                };
-                let (chi, psi) = (xf - xc, yf - yc);
-                let zeta = 1.0 / (1.0 + chi * chi + psi * psi).sqrt();
-                let (xi, eta) = (chi * zeta, psi * zeta);
                 let (l, m, n) = cube_face_inverse(face, xi, eta, zeta);
                 Some((atan2d(m, l), asind_checked(n)?))
             }
@@ -890,6 +888,28 @@ impl Projection {
                 let (_, xi, eta, zeta, xc, yc) = cube_face(cp * ct, sp * ct, st);
                 Some((45.0 * (xc + xi / zeta), 45.0 * (yc + eta / zeta)))
             }
+            Kind::Qsc => {
+                let (_, xi, eta, zeta, xc, yc) = cube_face(cp * ct, sp * ct, st);
+                if xi == 0.0 && eta == 0.0 {
+                    return Some((45.0 * xc, 45.0 * yc));
+                }
+                // Paper II sec. 5.6.3: the larger of |xi| and |eta| sets the radial coordinate,
+                // the ratio omega of the smaller to it the other.
+                let (big, small) = if xi.abs() > eta.abs() {
+                    (xi, eta)
+                } else {
+                    (eta, xi)
+                };
+                let omega = small / big;
+                let r = ((1.0 - zeta) / (1.0 - 1.0 / (2.0 + omega * omega).sqrt()))
+                    .max(0.0)
+                    .sqrt()
+                    .copysign(big);
+                let w =
+                    r / 15.0 * (atand(omega) - asind(omega / (2.0 * (1.0 + omega * omega)).sqrt()));
+                let (u, v) = if xi.abs() > eta.abs() { (r, w) } else { (w, r) };
+                Some((45.0 * (xc + u), 45.0 * (yc + v)))
+            }
             Kind::Pco => {
                 if theta == 0.0 {
                     return Some((phi, 0.0));
@@ -947,6 +967,37 @@ fn cube_face(l: f64, m: f64, n: f64) -> (u8, f64, f64, f64, f64, f64) {
         4 => (4, l, n, -m, 6.0, 0.0),
         _ => (5, m, l, -n, 0.0, -2.0),
     }
+}
+
+/// The quad-cube face of a plane position (faces 1 to 4 side by side along x from -45
+/// degrees, 0 above and 5 below face 1; x below -45 continues from 315) and the position
+/// on the face in units of 45 degrees from its centre; `None` in the plane's empty parts.
+fn cube_plane_face(x: f64, y: f64) -> Option<(u8, f64, f64)> {
+    let (mut xf, yf) = (x / 45.0, y / 45.0);
+    if xf.abs() <= 1.0 + TOL {
+        if yf.abs() > 3.0 + TOL {
+            return None;
+        }
+    } else if xf.abs() > 7.0 + TOL || yf.abs() > 1.0 + TOL {
+        return None;
+    }
+    if xf < -1.0 {
+        xf += 8.0;
+    }
+    let (face, xc, yc) = if yf > 1.0 {
+        (0, 0.0, 2.0)
+    } else if yf < -1.0 {
+        (5, 0.0, -2.0)
+    } else if xf >= 5.0 {
+        (4, 6.0, 0.0)
+    } else if xf >= 3.0 {
+        (3, 4.0, 0.0)
+    } else if xf > 1.0 {
+        (2, 2.0, 0.0)
+    } else {
+        (1, 0.0, 0.0)
+    };
+    Some((face, xf - xc, yf - yc))
 }
 
 /// Direction cosines (l, m, n) from a face's (xi, eta, zeta), the inverse of [`cube_face`].

@@ -40,7 +40,7 @@ WCS_KEYS = ("NAXIS", "CTYPE", "CRPIX", "CDELT", "CRVAL", "CUNIT", "CD", "PC", "C
             "LONPOLE", "LATPOLE", "RADESYS", "RADECSYS", "EQUINOX", "EPOCH", "WCSAXES")
 SUPPORTED = {"AZP", "SZP", "TAN", "STG", "SIN", "NCP", "ARC", "ZPN", "ZEA", "AIR", "CYP", "CEA",
              "CAR", "MER", "SFL", "GLS", "PAR", "MOL", "AIT", "COP", "COE", "COD", "COO", "BON",
-             "PCO", "HPX", "TSC"}
+             "PCO", "HPX", "TSC", "QSC"}
 
 
 def cards_of(pairs):
@@ -184,6 +184,9 @@ def invented_headers():
     # The tangential spherical cube over most of the sky: every face (plane x from -41 to 318
     # degrees, the map not covering any part of the sky twice), and the plane's empty parts.
     h["tsc_whole_sky"] = simple((300, 240), t(gal, "TSC"), (12.0, 120.5), (20.0, 5.0),
+                                cdelt=(1.0, 1.0))
+    # The quadrilateralized spherical cube, likewise.
+    h["qsc_whole_sky"] = simple((300, 240), t(eq, "QSC"), (12.0, 120.5), (250.0, -35.0),
                                 cdelt=(1.0, 1.0))
     # SIP distortion (Shupe et al. 2005): second- and third-order terms of up to a pixel
     # over the grid; with a stored approximate inverse (AP, BP: the first-order inverse,
