@@ -299,7 +299,7 @@ fn sky_names(map: &Map) -> (&'static str, &'static str) {
 }
 
 /// The second frame the catalogue gives centroids in: ICRS for galactic maps, galactic for
-/// ICRS and FK5 maps (none for others), with its column names and its name.
+/// ICRS, FK5 and FK4 maps (none for others), with its column names and descriptions.
 type FrameColumns = (SkyFrame, [(&'static str, &'static str); 2]);
 
 fn other_frame(map: &Map) -> Option<FrameColumns> {
@@ -311,7 +311,7 @@ fn other_frame(map: &Map) -> Option<FrameColumns> {
                 ("dec", "declination (ICRS)"),
             ],
         )),
-        SkyFrame::Icrs | SkyFrame::Fk5 { .. } => Some((
+        SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. } => Some((
             SkyFrame::Galactic,
             [
                 ("glon", "galactic longitude"),

@@ -364,8 +364,8 @@ fn header_cards_reproduce_the_same_sky() {
 #[test]
 fn frame_conversions_match_astropy_coordinates() {
     // Source: astropy 8.0.2 astropy.coordinates.SkyCoord.transform_to between ICRS, Galactic
-    // and FK5 (equinox J2000, J1975, J2030); 1e-9 degree on the sky (longitude scaled by
-    // cos(lat)).
+    // and FK5 (equinox J2000, J1975, J2030), and from FK4 (B1950, B1975) to those; 1e-9
+    // degree on the sky (longitude scaled by cos(lat)).
     let f = fixture_json("wcs/frames.json");
     let (lon, lat) = (nums(&f["lon"]), nums(&f["lat"]));
     let frames = [
@@ -398,13 +398,36 @@ fn frame_conversions_match_astropy_coordinates() {
             }
         }
     }
+    // From FK4 (B1950 and B1975, E-terms included) to the others; to FK4 is not converted.
+    for (a, fa) in [
+        ("fk4", SkyFrame::Fk4 { equinox: 1950.0 }),
+        ("fk4_1975", SkyFrame::Fk4 { equinox: 1975.0 }),
+    ] {
+        for (b, fb) in &frames {
+            let r = &f[format!("{a}_to_{b}").as_str()];
+            let (rl, rb) = (nums(&r["lon"]), nums(&r["lat"]));
+            for i in 0..lon.len() {
+                let (l2, b2) = convert_frame(lon[i], lat[i], &fa, fb).expect("from FK4");
+                let d = sky_difference(l2, b2, rl[i], rb[i]);
+                worst = worst.max(d);
+                assert!(
+                    d <= 1e-9,
+                    "{a} -> {b} of ({}, {}): cairn ({l2}, {b2}), astropy ({}, {})",
+                    lon[i],
+                    lat[i],
+                    rl[i],
+                    rb[i]
+                );
+            }
+        }
+    }
     eprintln!("frame conversions: worst difference {worst:.2e} deg");
     assert!(
         convert_frame(
             10.0,
             20.0,
-            &SkyFrame::Fk4 { equinox: 1950.0 },
-            &SkyFrame::Icrs
+            &SkyFrame::Icrs,
+            &SkyFrame::Fk4 { equinox: 1950.0 }
         )
         .is_none()
     );

@@ -6,7 +6,7 @@
 //! 1077, "Paper II") for the spherical projections (private submodule `proj`) and the
 //! rotation from native to celestial spherical coordinates (LONPOLE, LATPOLE, sec. 2.3-2.4).
 //! It also owns the celestial frame of the map ([`SkyFrame`]) and conversions between frames
-//! ([`convert_frame`]: ICRS, FK5 at any Julian equinox, galactic).
+//! ([`convert_frame`]: ICRS, FK5 at any Julian equinox, galactic, and from FK4).
 //!
 //! Supported: the linear part as CD matrix, PC + CDELT, or CDELT + CROTA (Paper II sec. 6.1);
 //! CUNIT deg, arcmin, arcsec, mas, rad; the projections AZP, SZP, TAN, STG, SIN (with the
