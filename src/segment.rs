@@ -300,6 +300,59 @@ fn sky_names(map: &Map) -> (&'static str, &'static str) {
 
 /// The second frame the catalogue gives centroids in: ICRS for galactic maps, galactic for
 /// ICRS, FK5 and FK4 maps (none for others), with its column names and descriptions.
+/// The VOTable system and equinox of a frame (VOTable 1.4 COOSYS), if it has one.
+fn coosys_of(frame: &SkyFrame) -> Option<(&'static str, Option<String>)> {
+    match frame {
+        SkyFrame::Icrs => Some(("ICRS", None)),
+        SkyFrame::Fk5 { equinox } => Some(("eq_FK5", Some(format!("J{equinox}")))),
+        SkyFrame::Fk4 { equinox } => Some(("eq_FK4", Some(format!("B{equinox}")))),
+        SkyFrame::Galactic => Some(("galactic", None)),
+        _ => None,
+    }
+}
+
+/// UCDs (IVOA UCD1+) and coordinate systems for the VOTable: the id, the peak and centroid
+/// positions in the map's frame (the centroid as the main position), and the centroid in the
+/// second frame (see [`other_frame`]).
+fn annotate_sky(t: &mut Table, map: &Map, lon: &str, lat: &str) {
+    t.ucds
+        .push(("id".into(), "meta.id;meta.main".into(), String::new()));
+    let Some(frame) = map.wcs.as_ref().map(|w| w.frame()) else {
+        return;
+    };
+    let Some((system, equinox)) = coosys_of(frame) else {
+        return;
+    };
+    let (a, b) = if matches!(frame, SkyFrame::Galactic) {
+        ("pos.galactic.lon", "pos.galactic.lat")
+    } else {
+        ("pos.eq.ra", "pos.eq.dec")
+    };
+    t.coosys.push(("map_frame".into(), system.into(), equinox));
+    let r = "map_frame".to_string();
+    t.ucds.extend([
+        (format!("{lon}_peak"), a.to_string(), r.clone()),
+        (format!("{lat}_peak"), b.to_string(), r.clone()),
+        (lon.to_string(), format!("{a};meta.main"), r.clone()),
+        (lat.to_string(), format!("{b};meta.main"), r),
+    ]);
+    if let Some((to, [(c, _), (d, _)])) = other_frame(map)
+        && let Some((system, equinox)) = coosys_of(&to)
+    {
+        let (a, b) = if matches!(to, SkyFrame::Galactic) {
+            ("pos.galactic.lon", "pos.galactic.lat")
+        } else {
+            ("pos.eq.ra", "pos.eq.dec")
+        };
+        t.coosys
+            .push(("second_frame".into(), system.into(), equinox));
+        t.ucds.extend([
+            (c.to_string(), a.to_string(), "second_frame".into()),
+            (d.to_string(), b.to_string(), "second_frame".into()),
+        ]);
+    }
+}
+
 type FrameColumns = (SkyFrame, [(&'static str, &'static str); 2]);
 
 fn other_frame(map: &Map) -> Option<FrameColumns> {
@@ -414,6 +467,7 @@ pub fn catalogue(
         t.push_f64(lon, "deg", "longitude of the centroid", f(&|m| m.lon));
         t.push_f64(lat, "deg", "latitude of the centroid", f(&|m| m.lat));
     }
+    annotate_sky(&mut t, map, lon, lat);
     if let Some((to, names)) = other_frame(map) {
         let from = map.wcs.as_ref().map(|w| w.frame().clone());
         let conv: Vec<(f64, f64)> = rows

@@ -63,6 +63,10 @@ pub struct Table {
     pub meta: Vec<(String, String, String)>,
     /// Free text lines for the CSV header (criteria, cautions).
     pub notes: Vec<String>,
+    /// VOTable coordinate systems: (ID, system, equinox), such as ("map", "eq_FK5", "J2000").
+    pub coosys: Vec<(String, String, Option<String>)>,
+    /// VOTable field annotations: (column name, UCD, ID of a coordinate system or "").
+    pub ucds: Vec<(String, String, String)>,
 }
 
 /// A float in its shortest round-trip form ("" for NaN in CSV).
@@ -521,6 +525,18 @@ impl Table {
         let mut s = String::new();
         s.push_str("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n");
         s.push_str("<VOTABLE version=\"1.4\" xmlns=\"http://www.ivoa.net/xml/VOTable/v1.3\">\n<RESOURCE>\n");
+        for (id, system, equinox) in &self.coosys {
+            let eq = equinox
+                .as_ref()
+                .map(|e| format!(" equinox=\"{}\"", esc(e)))
+                .unwrap_or_default();
+            let _ = writeln!(
+                s,
+                "<COOSYS ID=\"{}\" system=\"{}\"{eq}/>",
+                esc(id),
+                esc(system)
+            );
+        }
         let _ = writeln!(s, "<TABLE name=\"{}\">", esc(&self.name));
         for (k, v, c) in &self.meta {
             let _ = writeln!(
@@ -543,9 +559,16 @@ impl Table {
             } else {
                 format!(" unit=\"{}\"", esc(&c.unit))
             };
+            let mut ucd = String::new();
+            if let Some((_, u, r)) = self.ucds.iter().find(|(n, _, _)| *n == c.name) {
+                ucd = format!(" ucd=\"{}\"", esc(u));
+                if !r.is_empty() {
+                    ucd.push_str(&format!(" ref=\"{}\"", esc(r)));
+                }
+            }
             let _ = writeln!(
                 s,
-                "<FIELD name=\"{}\" datatype=\"{dt}\"{extra}{unit}><DESCRIPTION>{}</DESCRIPTION></FIELD>",
+                "<FIELD name=\"{}\" datatype=\"{dt}\"{extra}{unit}{ucd}><DESCRIPTION>{}</DESCRIPTION></FIELD>",
                 esc(&c.name),
                 esc(&c.description)
             );

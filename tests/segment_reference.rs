@@ -3,7 +3,8 @@
 //! fixtures/segment/ holds a synthetic map and cairn's stored run on it; the reference values
 //! in fixtures/segment/reference.json come from tests/oracle/segment_skimage.py:
 //! scikit-image 0.26.0 `regionprops` on cairn's own label map, and astropy 8.0.2
-//! `WCS.all_pix2world` of cairn's catalogue pixel positions.
+//! `WCS.all_pix2world` of cairn's catalogue pixel positions, `SkyCoord` for their galactic
+//! coordinates and `astropy.io.votable` on the stored VOTable.
 
 mod common;
 #[allow(dead_code)]
@@ -225,4 +226,41 @@ fn label_maps_carry_the_maps_sky_coordinates() {
             "({x}, {y}): {a:?} vs {b:?}"
         );
     }
+}
+
+/// The VOTable catalogue marks its positions for VO tools: astropy 8.0.2's
+/// `astropy.io.votable` reads the same UCDs from the stored run, finds each in the IVOA
+/// controlled vocabulary (`check_ucd`), and resolves each position to the frame cairn meant
+/// (the map is ICRS; the second-frame centroid is galactic).
+#[test]
+fn votable_positions_carry_ucds_and_coordinate_systems() {
+    let reference = fixture_json("segment/reference.json");
+    let refs = reference["votable_ucds"].as_object().unwrap();
+    let text = std::fs::read_to_string(fixture_path("segment/run/structures.vot")).unwrap();
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let systems: HashMap<&str, &str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("COOSYS"))
+        .map(|n| (n.attribute("ID").unwrap(), n.attribute("system").unwrap()))
+        .collect();
+    let mut annotated = Vec::new();
+    for field in doc.descendants().filter(|n| n.has_tag_name("FIELD")) {
+        let Some(ucd) = field.attribute("ucd") else {
+            continue;
+        };
+        let name = field.attribute("name").unwrap();
+        let r = &refs[name];
+        assert_eq!(ucd, r["ucd"].as_str().unwrap(), "{name}");
+        assert_eq!(r["valid"], true, "{name}: {ucd} is not a valid UCD");
+        let system = field.attribute("ref").map(|id| systems[id]);
+        assert_eq!(system, r["system"].as_str(), "{name}");
+        annotated.push(name.to_string());
+    }
+    annotated.sort();
+    assert_eq!(
+        annotated,
+        ["dec", "dec_peak", "glat", "glon", "id", "ra", "ra_peak"]
+    );
+    assert_eq!(systems.get("map_frame"), Some(&"ICRS"));
+    assert_eq!(systems.get("second_frame"), Some(&"galactic"));
 }

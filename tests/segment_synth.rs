@@ -263,5 +263,15 @@ fn centroids_are_also_given_in_the_other_frame() {
             n += 1;
         }
         assert!(n > 0, "the map gave no structure");
+        // The VOTable names both frames for VO tools.
+        let vot = std::fs::read_to_string(out.join("structures.vot")).unwrap();
+        let (first, second) = match frame {
+            synth::Frame::Galactic => ("galactic", "ICRS"),
+            _ => ("ICRS", "galactic"),
+        };
+        assert!(vot.contains(&format!("<COOSYS ID=\"map_frame\" system=\"{first}\"/>")));
+        assert!(vot.contains(&format!(
+            "<COOSYS ID=\"second_frame\" system=\"{second}\"/>"
+        )));
     }
 }

@@ -13,6 +13,9 @@ descendants (from hierarchy.json). Sources:
 * astropy 8.0.2 astropy.wcs.WCS.all_pix2world (origin 0) of cairn's catalogue pixel
   positions (peak_x, peak_y and the weighted centroid x, y), and the centroid in galactic
   coordinates from astropy.coordinates.SkyCoord (the map is ICRS) .galactic.
+* astropy 8.0.2 astropy.io.votable on cairn's run/structures.vot: each annotated field's UCD,
+  whether astropy.io.votable.ucd.check_ucd accepts it against the IVOA controlled vocabulary,
+  and the system and equinox of the COOSYS it refers to.
 """
 import csv
 import json
@@ -85,6 +88,19 @@ for r in rows:
     sky[r["id"]] = {"peak_lon": plon, "peak_lat": plat, "lon": clon, "lat": clat,
                     "glon": g.l.deg, "glat": g.b.deg}
 
+from astropy.io import votable
+from astropy.io.votable.ucd import check_ucd
+
+vot = votable.parse(os.path.join(SRC, "run", "structures.vot"))
+systems = {c.ID: (c.system, c.equinox) for c in vot.iter_coosys()}
+ucds = {}
+for fld in vot.get_first_table().fields:
+    if fld.ucd:
+        system, equinox = systems.get(fld.ref, (None, None))
+        ucds[fld.name] = {"ucd": fld.ucd,
+                          "valid": bool(check_ucd(fld.ucd, check_controlled_vocabulary=True)),
+                          "system": system, "equinox": equinox}
+
 import astropy
 import skimage
 
@@ -93,4 +109,5 @@ write_json(os.path.join(OUT, "reference.json"), {
     "astropy": astropy.__version__,
     "regionprops": result,
     "sky": sky,
+    "votable_ucds": ucds,
 })
