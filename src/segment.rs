@@ -298,8 +298,6 @@ fn sky_names(map: &Map) -> (&'static str, &'static str) {
     }
 }
 
-/// The second frame the catalogue gives centroids in: ICRS for galactic maps, galactic for
-/// ICRS, FK5 and FK4 maps (none for others), with its column names and descriptions.
 /// The VOTable system and equinox of a frame (VOTable 1.4 COOSYS), if it has one.
 fn coosys_of(frame: &SkyFrame) -> Option<(&'static str, Option<String>)> {
     match frame {
@@ -311,10 +309,19 @@ fn coosys_of(frame: &SkyFrame) -> Option<(&'static str, Option<String>)> {
     }
 }
 
+/// The UCDs of a frame's longitude and latitude.
+fn position_ucds(frame: &SkyFrame) -> (&'static str, &'static str) {
+    if matches!(frame, SkyFrame::Galactic) {
+        ("pos.galactic.lon", "pos.galactic.lat")
+    } else {
+        ("pos.eq.ra", "pos.eq.dec")
+    }
+}
+
 /// UCDs (IVOA UCD1+) and coordinate systems for the VOTable: the id, the peak and centroid
 /// positions in the map's frame (the centroid as the main position), and the centroid in the
-/// second frame (see [`other_frame`]).
-fn annotate_sky(t: &mut Table, map: &Map, lon: &str, lat: &str) {
+/// second frame (`second`, from [`other_frame`]).
+fn annotate_sky(t: &mut Table, map: &Map, lon: &str, lat: &str, second: Option<&FrameColumns>) {
     t.ucds
         .push(("id".into(), "meta.id;meta.main".into(), String::new()));
     let Some(frame) = map.wcs.as_ref().map(|w| w.frame()) else {
@@ -323,11 +330,7 @@ fn annotate_sky(t: &mut Table, map: &Map, lon: &str, lat: &str) {
     let Some((system, equinox)) = coosys_of(frame) else {
         return;
     };
-    let (a, b) = if matches!(frame, SkyFrame::Galactic) {
-        ("pos.galactic.lon", "pos.galactic.lat")
-    } else {
-        ("pos.eq.ra", "pos.eq.dec")
-    };
+    let (a, b) = position_ucds(frame);
     t.coosys.push(("map_frame".into(), system.into(), equinox));
     let r = "map_frame".to_string();
     t.ucds.extend([
@@ -336,14 +339,10 @@ fn annotate_sky(t: &mut Table, map: &Map, lon: &str, lat: &str) {
         (lon.to_string(), format!("{a};meta.main"), r.clone()),
         (lat.to_string(), format!("{b};meta.main"), r),
     ]);
-    if let Some((to, [(c, _), (d, _)])) = other_frame(map)
-        && let Some((system, equinox)) = coosys_of(&to)
+    if let Some((to, [(c, _), (d, _)])) = second
+        && let Some((system, equinox)) = coosys_of(to)
     {
-        let (a, b) = if matches!(to, SkyFrame::Galactic) {
-            ("pos.galactic.lon", "pos.galactic.lat")
-        } else {
-            ("pos.eq.ra", "pos.eq.dec")
-        };
+        let (a, b) = position_ucds(to);
         t.coosys
             .push(("second_frame".into(), system.into(), equinox));
         t.ucds.extend([
@@ -355,6 +354,8 @@ fn annotate_sky(t: &mut Table, map: &Map, lon: &str, lat: &str) {
 
 type FrameColumns = (SkyFrame, [(&'static str, &'static str); 2]);
 
+/// The second frame the catalogue gives centroids in: ICRS for galactic maps, galactic for
+/// ICRS, FK5 and FK4 maps (none for others), with its column names and descriptions.
 fn other_frame(map: &Map) -> Option<FrameColumns> {
     match map.wcs.as_ref()?.frame() {
         SkyFrame::Galactic => Some((
@@ -467,14 +468,13 @@ pub fn catalogue(
         t.push_f64(lon, "deg", "longitude of the centroid", f(&|m| m.lon));
         t.push_f64(lat, "deg", "latitude of the centroid", f(&|m| m.lat));
     }
-    annotate_sky(&mut t, map, lon, lat);
-    if let Some((to, names)) = other_frame(map) {
-        let from = map.wcs.as_ref().map(|w| w.frame().clone());
+    let second = other_frame(map);
+    annotate_sky(&mut t, map, lon, lat, second.as_ref());
+    if let (Some((to, names)), Some(w)) = (second, map.wcs.as_ref()) {
         let conv: Vec<(f64, f64)> = rows
             .iter()
             .map(|m| {
-                from.as_ref()
-                    .and_then(|fr| crate::wcs::convert_frame(m.lon, m.lat, fr, &to))
+                crate::wcs::convert_frame(m.lon, m.lat, w.frame(), &to)
                     .unwrap_or((f64::NAN, f64::NAN))
             })
             .collect();

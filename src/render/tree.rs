@@ -233,7 +233,7 @@ pub(crate) fn scene(
     let mut sc = Scene::new(s.width_px, height, s.dpi, "tree of structures");
     let lw = (0.9 * pt).min(0.45 * slot).max(0.25 * pt);
     let grey = Rgba(60, 60, 60, 255);
-    // Each structure's vertical line: its x (figure pixels) and its span (top, bottom).
+    // The upper end of each structure's vertical line (its peak, or a branch's highest split).
     let upper_of = |n: &TreeNode| {
         let kids = tl.children.get(&n.id).map(Vec::as_slice).unwrap_or(&[]);
         if kids.is_empty() {
@@ -247,9 +247,9 @@ pub(crate) fn scene(
     };
 
     if dense {
-        // More leaves than figure pixels across: single lines cannot be told apart, so each
-        // pixel column shows, per state, the union of the lines that fall in it, and
-        // connectors are joined along each quarter-pixel row.
+        // More leaves than figure pixels across: single lines cannot be told apart, so the
+        // connectors are joined along each quarter-pixel row and the vertical lines drawn per
+        // pixel (below).
         let mut conns: Vec<(i64, f64, f64)> = Vec::new();
         for n in nodes {
             if let Some(p) = n.parent {

@@ -12,9 +12,10 @@
 //! CUNIT deg, arcmin, arcsec, mas, rad; the projections AZP, SZP, TAN, STG, SIN (with the
 //! slant parameters, and NCP read as SIN with PV_2 = cot(delta0)), ARC, ZPN, ZEA, AIR, CYP,
 //! CEA, CAR, MER, SFL (and GLS read as SFL with its fiducial point at delta0), PAR, MOL, AIT,
-//! COP, COE, COD, COO, BON, PCO, the spherical cubes TSC and QSC (not the COBE CSC), and HEALPix HPX
-//! (Calabretta & Roukema 2007, MNRAS 381, 865); projection parameters PVi_m of the latitude axis; PVi_0..4
-//! of the longitude axis (fiducial-point offset flag, phi0, theta0, LONPOLE, LATPOLE);
+//! COP, COE, COD, COO, BON, PCO, the spherical cubes TSC and QSC (not the COBE CSC), and
+//! HEALPix HPX (Calabretta & Roukema 2007, MNRAS 381, 865); projection parameters PVi_m of
+//! the latitude axis; PVi_0..4 of the longitude axis (fiducial-point offset flag, phi0,
+//! theta0, LONPOLE, LATPOLE);
 //! longitude and latitude axes in either order; SIP distortion polynomials (`-SIP` CTYPEs,
 //! Shupe et al. 2005; private submodule `sip`). Unsupported projection codes and other
 //! distortions, singular matrices and inconsistent axis pairs are errors ([`WcsError`])

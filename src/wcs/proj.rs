@@ -611,11 +611,7 @@ impl Projection {
                     return None;
                 }
                 let sigma = sigma.max(0.0);
-                let omega = if k % 2.0 == 1.0 || y > 0.0 { 1.0 } else { 0.0 };
-                let xc = -180.0
-                    + (2.0 * ((x + 180.0) * h / 360.0 + (1.0 - omega) / 2.0).floor() + omega)
-                        * 180.0
-                        / h;
+                let xc = hpx_facet_centre(x, *h, *k, y > 0.0);
                 let dx = x - xc;
                 if dx.abs() > 180.0 / h * sigma + TOL {
                     return None;
@@ -872,24 +868,16 @@ impl Projection {
                     return Some((phi, 90.0 * k / h * st));
                 }
                 let sigma = (k * (1.0 - st.abs())).sqrt();
-                let omega = if k % 2.0 == 1.0 || theta > 0.0 {
-                    1.0
-                } else {
-                    0.0
-                };
-                let phic = -180.0
-                    + (2.0 * ((phi + 180.0) * h / 360.0 + (1.0 - omega) / 2.0).floor() + omega)
-                        * 180.0
-                        / h;
+                let phic = hpx_facet_centre(phi, *h, *k, theta > 0.0);
                 let y = 180.0 / h * ((k + 1.0) / 2.0 - sigma);
                 Some((phic + (phi - phic) * sigma, y.copysign(theta)))
             }
             Kind::Tsc => {
-                let (_, xi, eta, zeta, xc, yc) = cube_face(cp * ct, sp * ct, st);
+                let (xi, eta, zeta, xc, yc) = cube_face(cp * ct, sp * ct, st);
                 Some((45.0 * (xc + xi / zeta), 45.0 * (yc + eta / zeta)))
             }
             Kind::Qsc => {
-                let (_, xi, eta, zeta, xc, yc) = cube_face(cp * ct, sp * ct, st);
+                let (xi, eta, zeta, xc, yc) = cube_face(cp * ct, sp * ct, st);
                 if xi == 0.0 && eta == 0.0 {
                     return Some((45.0 * xc, 45.0 * yc));
                 }
@@ -948,10 +936,19 @@ fn bound(v: f64, limit: f64) -> Option<f64> {
     Some(v)
 }
 
+/// The longitude (or plane x) of the centre of the HPX polar facet holding `lon`, in the
+/// northern or southern polar zone (Calabretta & Roukema 2007): with odd K, or in the north,
+/// the facets are centred between the equatorial ones' edges, otherwise shifted by half a
+/// facet.
+fn hpx_facet_centre(lon: f64, h: f64, k: f64, north: bool) -> f64 {
+    let omega = if k % 2.0 == 1.0 || north { 1.0 } else { 0.0 };
+    -180.0 + (2.0 * ((lon + 180.0) * h / 360.0 + (1.0 - omega) / 2.0).floor() + omega) * 180.0 / h
+}
+
 /// The quad-cube face of a direction (l, m, n) (Paper II sec. 5.6, Table 10): the largest of
-/// n, l, m, -l, -m, -n picks faces 0 to 5 (the first on ties); returns the face, its
+/// n, l, m, -l, -m, -n picks faces 0 to 5 (the first on ties); returns the face's
 /// coordinates (xi, eta, zeta) and its centre in units of 45 degrees.
-fn cube_face(l: f64, m: f64, n: f64) -> (u8, f64, f64, f64, f64, f64) {
+fn cube_face(l: f64, m: f64, n: f64) -> (f64, f64, f64, f64, f64) {
     let c = [n, l, m, -l, -m, -n];
     let mut face = 0;
     for (i, &v) in c.iter().enumerate() {
@@ -960,12 +957,12 @@ fn cube_face(l: f64, m: f64, n: f64) -> (u8, f64, f64, f64, f64, f64) {
         }
     }
     match face {
-        0 => (0, m, -l, n, 0.0, 2.0),
-        1 => (1, m, n, l, 0.0, 0.0),
-        2 => (2, -l, n, m, 2.0, 0.0),
-        3 => (3, -m, n, -l, 4.0, 0.0),
-        4 => (4, l, n, -m, 6.0, 0.0),
-        _ => (5, m, l, -n, 0.0, -2.0),
+        0 => (m, -l, n, 0.0, 2.0),
+        1 => (m, n, l, 0.0, 0.0),
+        2 => (-l, n, m, 2.0, 0.0),
+        3 => (-m, n, -l, 4.0, 0.0),
+        4 => (l, n, -m, 6.0, 0.0),
+        _ => (m, l, -n, 0.0, -2.0),
     }
 }
 
