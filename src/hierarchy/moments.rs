@@ -86,7 +86,10 @@ impl Moments {
 /// What one structure gathers from its own pixels.
 #[derive(Clone, Copy)]
 struct Own {
+    /// The weighted sums and the count; the unweighted position sums are kept in `u`.
     m: Moments,
+    /// Sums of x, y, x^2, y^2 and x y, exact in integers (converted once, at the end).
+    u: [u128; 5],
     min: f32,
     edge: bool,
     missing: bool,
@@ -108,6 +111,7 @@ const EMPTY: Own = Own {
         uyy: 0.0,
         uxy: 0.0,
     },
+    u: [0; 5],
     min: f32::INFINITY,
     edge: false,
     missing: false,
@@ -162,26 +166,50 @@ pub(super) fn fill(
                         x += 1;
                         continue;
                     }
-                    // A run of pixels of one structure is summed in registers, in the same
-                    // order as pixel by pixel, so the sums are bit for bit the same.
+                    // A run of pixels of one structure is summed in registers.
                     let k = &mut slot[l as usize];
                     if *k == NOT_MET {
                         *k = acc.len() as u32;
                         acc.push((l as u32, EMPTY));
                     }
                     let a = &mut acc[*k as usize].1;
-                    let mut m = a.m;
                     let mut min = a.min;
                     let start = x;
+                    // Sums along the run: the value's, its square's and its first and second
+                    // moments in x; those involving the row's y follow from them, and the
+                    // unweighted ones from the run's ends (exact integers).
+                    let (mut s, mut s2, mut sx, mut sxx) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
                     while x < ncols && row[x] == l {
                         let v = vals[x];
-                        m.add(x as f64, yf, v as f64);
+                        let (vf, xf) = (v as f64, x as f64);
+                        let vx = vf * xf;
+                        s += vf;
+                        s2 += vf * vf;
+                        sx += vx;
+                        sxx += vx * xf;
                         if v < min {
                             min = v;
                         }
                         x += 1;
                     }
-                    a.m = m;
+                    let n = (x - start) as u64;
+                    let (ix, ixx) = run_sums(start, x);
+                    let yu = y as u128;
+                    let m = &mut a.m;
+                    m.n += n;
+                    m.sum += s;
+                    m.sum2 += s2;
+                    m.sx += sx;
+                    m.sy += yf * s;
+                    m.sxx += sxx;
+                    m.syy += yf * yf * s;
+                    m.sxy += yf * sx;
+                    let u = &mut a.u;
+                    u[0] += ix;
+                    u[1] += n as u128 * yu;
+                    u[2] += ixx;
+                    u[3] += n as u128 * yu * yu;
+                    u[4] += ix * yu;
                     a.min = min;
                     if edge_row || start == 0 || x == ncols {
                         a.edge = true;
@@ -213,6 +241,7 @@ pub(super) fn fill(
         for (id, o) in block {
             let t = &mut total[*id as usize];
             t.m.merge(&o.m);
+            add_exact(&mut t.u, &o.u);
             t.min = t.min.min(o.min);
             t.edge |= o.edge;
             t.missing |= o.missing;
@@ -226,6 +255,7 @@ pub(super) fn fill(
         let own = total[id as usize];
         let s = &mut structures[id as usize];
         s.sums = own.m;
+        [s.sums.ux, s.sums.uy, s.sums.uxx, s.sums.uyy, s.sums.uxy] = own.u.map(|v| v as f64);
         s.npix = own.m.n;
         s.min_value = own.min as f64;
         s.touches_edge = own.edge;
@@ -233,9 +263,61 @@ pub(super) fn fill(
         if let Some(p) = s.parent {
             let t = &mut total[p as usize];
             t.m.merge(&own.m);
+            add_exact(&mut t.u, &own.u);
             t.min = t.min.min(own.min);
             t.edge |= own.edge;
             t.missing |= own.missing;
+        }
+    }
+}
+
+/// Adds exact integer sums.
+fn add_exact(to: &mut [u128; 5], from: &[u128; 5]) {
+    for (t, f) in to.iter_mut().zip(from) {
+        *t += f;
+    }
+}
+
+/// The sums of x and of x^2 over the integers `a0..a1`, exactly (in 64-bit arithmetic,
+/// whose divisions by constants are cheap, on rows of fewer than 2^21 columns).
+fn run_sums(a0: usize, a1: usize) -> (u128, u128) {
+    if a1 < 1 << 21 {
+        // (k - 1) k (2k - 1) < 2^64 for k < 2^21.
+        let s1 = |k: u64| k * k.saturating_sub(1) / 2;
+        let s2 = |k: u64| k.saturating_sub(1) * k * (2 * k).saturating_sub(1) / 6;
+        let (a0, a1) = (a0 as u64, a1 as u64);
+        ((s1(a1) - s1(a0)) as u128, (s2(a1) - s2(a0)) as u128)
+    } else {
+        let s1 = |k: u128| k * k.saturating_sub(1) / 2;
+        let s2 = |k: u128| k.saturating_sub(1) * k * (2 * k).saturating_sub(1) / 6;
+        let (a0, a1) = (a0 as u128, a1 as u128);
+        (s1(a1) - s1(a0), s2(a1) - s2(a0))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn run_sums_equal_the_direct_sums() {
+        let direct = |a0: usize, a1: usize| {
+            (a0..a1).fold((0u128, 0u128), |(s, q), x| {
+                (s + x as u128, q + (x as u128) * (x as u128))
+            })
+        };
+        for a0 in 0..40 {
+            for a1 in a0..60 {
+                assert_eq!(run_sums(a0, a1), direct(a0, a1), "{a0}..{a1}");
+            }
+        }
+        // Both sides of the switch to 128-bit arithmetic.
+        for (a0, a1) in [
+            ((1 << 21) - 70, (1 << 21) - 1),
+            ((1 << 21) - 3, (1 << 21) + 5),
+            (5_000_000, 5_000_100),
+        ] {
+            assert_eq!(run_sums(a0, a1), direct(a0, a1), "{a0}..{a1}");
         }
     }
 }

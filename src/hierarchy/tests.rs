@@ -317,3 +317,63 @@ fn buckets_sorted_beside_the_sweep_give_the_same_hierarchy() {
         assert_eq!(one.labels, other.labels);
     }
 }
+
+/// Every structure's sums, gathered row run by row run, against sums over its pixels one by
+/// one (the definition): the count and the unweighted position sums exactly (they are
+/// integers), the weighted ones to rounding.
+#[test]
+fn moments_of_every_structure_match_direct_sums() {
+    let mut next = test_lcg(42);
+    let (ny, nx) = (37, 53);
+    let m = Array2::from_shape_fn((ny, nx), |(y, x)| {
+        let bump = (-(((x as f32 - 20.0).powi(2) + (y as f32 - 15.0).powi(2)) / 60.0)).exp();
+        5.0 * bump + (next() >> 40) as f32 / (1u64 << 24) as f32
+    });
+    for conn in [Connectivity::Four, Connectivity::Eight] {
+        let h = build(m.view(), &params(0.3, 0.2, 2, conn)).unwrap();
+        assert!(h.structures.len() > 5);
+        for s in &h.structures {
+            // The structure's pixels: those labelled with it or any descendant.
+            let mut inside = vec![false; h.structures.len()];
+            inside[s.id as usize] = true;
+            for t in &h.structures {
+                let mut a = Some(t.id);
+                while let Some(id) = a {
+                    if id == s.id {
+                        inside[t.id as usize] = true;
+                        break;
+                    }
+                    a = h.structures[id as usize].parent;
+                }
+            }
+            let mut want = Moments::default();
+            let mut exact = [0u64; 5];
+            for ((y, x), &l) in h.labels.indexed_iter() {
+                if l >= 0 && inside[l as usize] {
+                    want.add(x as f64, y as f64, m[[y, x]] as f64);
+                    let (x, y) = (x as u64, y as u64);
+                    for (e, v) in exact.iter_mut().zip([x, y, x * x, y * y, x * y]) {
+                        *e += v;
+                    }
+                }
+            }
+            let got = s.sums;
+            assert_eq!(got.n, want.n);
+            assert_eq!(
+                [got.ux, got.uy, got.uxx, got.uyy, got.uxy],
+                exact.map(|v| v as f64)
+            );
+            for (a, b) in [
+                (got.sum, want.sum),
+                (got.sum2, want.sum2),
+                (got.sx, want.sx),
+                (got.sy, want.sy),
+                (got.sxx, want.sxx),
+                (got.syy, want.syy),
+                (got.sxy, want.sxy),
+            ] {
+                assert!((a - b).abs() <= 1e-12 * b.abs(), "{a} vs {b}");
+            }
+        }
+    }
+}
