@@ -179,15 +179,11 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
         Kind::Leaf
     };
     let (x, y, cxx, cxy, cyy) = if m.sum > 0.0 {
-        let x = m.sx / m.sum;
-        let y = m.sy / m.sum;
-        (
-            x,
-            y,
-            m.sxx / m.sum - x * x,
-            m.sxy / m.sum - x * y,
-            m.syy / m.sum - y * y,
-        )
+        // Both from the sums about the structure's peak, so that small structures far from
+        // the map's origin keep the precision of their second moments.
+        let (x, y) = m.weighted_centroid();
+        let (cxx, cxy, cyy) = m.weighted_covariance();
+        (x, y, cxx, cxy, cyy)
     } else {
         (f64::NAN, f64::NAN, f64::NAN, f64::NAN, f64::NAN)
     };

@@ -131,7 +131,6 @@ fn catalogue_matches_regionprops_on_cairns_label_map() {
         // regionprops centroid, orientation and axis lengths (unweighted) against the same
         // structure's unweighted sums in cairn's hierarchy.
         let s = &h.structures[id.parse::<usize>().unwrap()];
-        let n = s.sums.n as f64;
         let (ux, uy) = s.sums.centroid();
         assert_close(
             ux,
@@ -147,9 +146,7 @@ fn catalogue_matches_regionprops_on_cairns_label_map() {
             1e-9,
             &what("centroid y"),
         );
-        let cxx = s.sums.uxx / n - ux * ux;
-        let cyy = s.sums.uyy / n - uy * uy;
-        let cxy = s.sums.uxy / n - ux * uy;
+        let (cxx, cxy, cyy) = s.sums.covariance();
         let e = cairn::measure::ellipse(cxx, cxy, cyy);
         // regionprops axis lengths are 4 standard deviations.
         assert_close(

@@ -79,6 +79,9 @@
 //! gathered after the sweep from the label map, for the accepted structures only (absorbed
 //! candidates never carry sums), in row blocks fixed by the map size so that sums do not
 //! depend on the thread count; each block holds sums only for the structures it meets.
+//! Each structure's sums are taken about its peak pixel (a child's are moved to its
+//! parent's peak by the parallel-axis relations), so that the second moments of a small
+//! structure far from the map's origin keep their precision on maps of any size.
 //!
 //! # Speed
 //! The sort is parallel and the sweep sequential, bound by memory latency; the two overlap,

@@ -3,42 +3,60 @@
 use super::{Connectivity, Structure};
 use rayon::prelude::*;
 
-/// Raw sums over a set of pixels with values `v` at column `x` and row `y` (pixel centres at
-/// integer coordinates, 0-based). Weighted sums use the value as weight.
+/// Sums over a set of pixels with values `v` at column `x` and row `y` (pixel centres at
+/// integer coordinates, 0-based), taken about a reference point `(x0, y0)`: with
+/// `dx = x - x0` and `dy = y - y0`. A structure's sums are taken about its peak pixel, so
+/// that the second moments of a small structure far from the map's origin keep their
+/// precision (about the origin they would be the difference of two numbers of order x^2).
+/// Weighted sums use the value as weight. [`Moments::default`] is taken about the origin.
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct Moments {
+    /// Column of the reference point.
+    pub x0: f64,
+    /// Row of the reference point.
+    pub y0: f64,
     /// Number of pixels.
     pub n: u64,
     /// Sum of v.
     pub sum: f64,
     /// Sum of v^2.
     pub sum2: f64,
-    /// Sum of v x.
+    /// Sum of v dx.
     pub sx: f64,
-    /// Sum of v y.
+    /// Sum of v dy.
     pub sy: f64,
-    /// Sum of v x^2.
+    /// Sum of v dx^2.
     pub sxx: f64,
-    /// Sum of v y^2.
+    /// Sum of v dy^2.
     pub syy: f64,
-    /// Sum of v x y.
+    /// Sum of v dx dy.
     pub sxy: f64,
-    /// Sum of x.
+    /// Sum of dx.
     pub ux: f64,
-    /// Sum of y.
+    /// Sum of dy.
     pub uy: f64,
-    /// Sum of x^2.
+    /// Sum of dx^2.
     pub uxx: f64,
-    /// Sum of y^2.
+    /// Sum of dy^2.
     pub uyy: f64,
-    /// Sum of x y.
+    /// Sum of dx dy.
     pub uxy: f64,
 }
 
 impl Moments {
+    /// Empty sums about `(x0, y0)`.
+    pub fn about(x0: f64, y0: f64) -> Moments {
+        Moments {
+            x0,
+            y0,
+            ..Default::default()
+        }
+    }
+
     /// Adds one pixel.
     #[inline]
     pub fn add(&mut self, x: f64, y: f64, v: f64) {
+        let (x, y) = (x - self.x0, y - self.y0);
         self.n += 1;
         self.sum += v;
         self.sum2 += v * v;
@@ -54,68 +72,141 @@ impl Moments {
         self.uxy += x * y;
     }
 
-    /// Adds the sums of another set of pixels.
+    /// Adds the sums of another set of pixels, moved to this reference point first (the
+    /// parallel-axis relations; nothing moves when both share it).
     pub fn merge(&mut self, o: &Moments) {
+        let (a, b) = (o.x0 - self.x0, o.y0 - self.y0);
+        if a == 0.0 && b == 0.0 {
+            self.n += o.n;
+            for (t, f) in self.sums_mut().into_iter().zip(o.sums()) {
+                *t += f;
+            }
+            return;
+        }
+        let n = o.n as f64;
         self.n += o.n;
         self.sum += o.sum;
         self.sum2 += o.sum2;
-        self.sx += o.sx;
-        self.sy += o.sy;
-        self.sxx += o.sxx;
-        self.syy += o.syy;
-        self.sxy += o.sxy;
-        self.ux += o.ux;
-        self.uy += o.uy;
-        self.uxx += o.uxx;
-        self.uyy += o.uyy;
-        self.uxy += o.uxy;
+        self.sx += o.sx + a * o.sum;
+        self.sy += o.sy + b * o.sum;
+        self.sxx += o.sxx + 2.0 * a * o.sx + a * a * o.sum;
+        self.syy += o.syy + 2.0 * b * o.sy + b * b * o.sum;
+        self.sxy += o.sxy + a * o.sy + b * o.sx + a * b * o.sum;
+        self.ux += o.ux + a * n;
+        self.uy += o.uy + b * n;
+        self.uxx += o.uxx + 2.0 * a * o.ux + a * a * n;
+        self.uyy += o.uyy + 2.0 * b * o.uy + b * b * n;
+        self.uxy += o.uxy + a * o.uy + b * o.ux + a * b * n;
+    }
+
+    /// The twelve sums, in field order.
+    fn sums(&self) -> [f64; 12] {
+        [
+            self.sum, self.sum2, self.sx, self.sy, self.sxx, self.syy, self.sxy, self.ux, self.uy,
+            self.uxx, self.uyy, self.uxy,
+        ]
+    }
+
+    /// The twelve sums, in field order, to change.
+    fn sums_mut(&mut self) -> [&mut f64; 12] {
+        [
+            &mut self.sum,
+            &mut self.sum2,
+            &mut self.sx,
+            &mut self.sy,
+            &mut self.sxx,
+            &mut self.syy,
+            &mut self.sxy,
+            &mut self.ux,
+            &mut self.uy,
+            &mut self.uxx,
+            &mut self.uyy,
+            &mut self.uxy,
+        ]
     }
 
     /// Unweighted centroid (x, y).
     pub fn centroid(&self) -> (f64, f64) {
         let n = self.n as f64;
-        (self.ux / n, self.uy / n)
+        (self.x0 + self.ux / n, self.y0 + self.uy / n)
     }
 
     /// Value-weighted centroid (x, y).
     pub fn weighted_centroid(&self) -> (f64, f64) {
-        (self.sx / self.sum, self.sy / self.sum)
+        (self.x0 + self.sx / self.sum, self.y0 + self.sy / self.sum)
+    }
+
+    /// Unweighted covariance of the pixel positions: (xx, xy, yy).
+    pub fn covariance(&self) -> (f64, f64, f64) {
+        let n = self.n as f64;
+        let (mx, my) = (self.ux / n, self.uy / n);
+        (
+            self.uxx / n - mx * mx,
+            self.uxy / n - mx * my,
+            self.uyy / n - my * my,
+        )
+    }
+
+    /// Value-weighted covariance of the pixel positions: (xx, xy, yy).
+    pub fn weighted_covariance(&self) -> (f64, f64, f64) {
+        let (mx, my) = (self.sx / self.sum, self.sy / self.sum);
+        (
+            self.sxx / self.sum - mx * mx,
+            self.sxy / self.sum - mx * my,
+            self.syy / self.sum - my * my,
+        )
     }
 }
 
-/// What one structure gathers from its own pixels.
+/// What one structure gathers from its own pixels, about its peak.
 #[derive(Clone, Copy)]
 struct Own {
-    /// The weighted sums and the count; the unweighted position sums are kept in `u`.
     m: Moments,
-    /// Sums of x, y, x^2, y^2 and x y, exact in integers (converted once, at the end).
-    u: [u128; 5],
     min: f32,
     edge: bool,
     missing: bool,
 }
 
-const EMPTY: Own = Own {
-    m: Moments {
-        n: 0,
-        sum: 0.0,
-        sum2: 0.0,
-        sx: 0.0,
-        sy: 0.0,
-        sxx: 0.0,
-        syy: 0.0,
-        sxy: 0.0,
-        ux: 0.0,
-        uy: 0.0,
-        uxx: 0.0,
-        uyy: 0.0,
-        uxy: 0.0,
-    },
-    u: [0; 5],
-    min: f32::INFINITY,
-    edge: false,
-    missing: false,
-};
+impl Own {
+    /// Nothing yet, about the peak `(px, py)`.
+    fn about(px: usize, py: usize) -> Own {
+        Own {
+            m: Moments::about(px as f64, py as f64),
+            min: f32::INFINITY,
+            edge: false,
+            missing: false,
+        }
+    }
+
+    /// Adds another set's sums: taken about the same point (a block's) or about a child's
+    /// peak.
+    fn add(&mut self, o: &Own) {
+        self.m.merge(&o.m);
+        self.min = self.min.min(o.min);
+        self.edge |= o.edge;
+        self.missing |= o.missing;
+    }
+}
+
+/// The sums of d and of d^2 over the `n` integers from `d0` on: `n d0 + T1` and
+/// `n d0^2 + 2 d0 T1 + T2`, with `T1` and `T2` the sums of j and j^2 for j below `n`, in
+/// integers (divisions by constants, cheap); exact while they stay below 2^53.
+#[inline]
+fn run_sums(d0: f64, n: usize) -> (f64, f64) {
+    let (t1, t2) = if n < 1 << 20 {
+        let k = n as u64;
+        let t1 = k * k.saturating_sub(1) / 2;
+        let t2 = k.saturating_sub(1) * k * (2 * k).saturating_sub(1) / 6;
+        (t1 as f64, t2 as f64)
+    } else {
+        let k = n as u128;
+        let t1 = k * k.saturating_sub(1) / 2;
+        let t2 = k.saturating_sub(1) * k * (2 * k).saturating_sub(1) / 6;
+        (t1 as f64, t2 as f64)
+    };
+    let nf = n as f64;
+    (nf * d0 + t1, nf * d0 * d0 + 2.0 * d0 * t1 + t2)
+}
 
 /// Fills `npix`, `npix_own`, `sums`, `min_value`, `touches_edge` and `touches_missing` of
 /// every structure from the final labels. `bottom_up` lists the ids so that every child comes
@@ -145,6 +236,7 @@ pub(super) fn fill(
     let nblocks = (npix / (ns * 64)).clamp(1, 32).min(nrows.max(1));
     let rows_per = nrows.div_ceil(nblocks);
     let offs = conn.offsets();
+    let peaks: Vec<(usize, usize)> = structures.iter().map(|s| (s.peak_x, s.peak_y)).collect();
     let blocks: Vec<Vec<(u32, Own)>> = (0..nblocks)
         .into_par_iter()
         .map(|b| {
@@ -157,7 +249,6 @@ pub(super) fn fill(
             for y in r0..r1 {
                 let row = &labels[y * ncols..(y + 1) * ncols];
                 let vals = &map[y * ncols..(y + 1) * ncols];
-                let yf = y as f64;
                 let edge_row = y == 0 || y + 1 == nrows;
                 let mut x = 0;
                 while x < ncols {
@@ -170,46 +261,47 @@ pub(super) fn fill(
                     let k = &mut slot[l as usize];
                     if *k == NOT_MET {
                         *k = acc.len() as u32;
-                        acc.push((l as u32, EMPTY));
+                        let (px, py) = peaks[l as usize];
+                        acc.push((l as u32, Own::about(px, py)));
                     }
                     let a = &mut acc[*k as usize].1;
                     let mut min = a.min;
                     let start = x;
-                    // Sums along the run: the value's, its square's and its first and second
-                    // moments in x; those involving the row's y follow from them, and the
-                    // unweighted ones from the run's ends (exact integers).
+                    let (pxf, dyf) = (a.m.x0, y as f64 - a.m.y0);
+                    // Sums along the run, about the peak: the value's, its square's and its
+                    // first and second moments in dx; those with the row's dy follow from
+                    // them, and the unweighted ones from the run's ends.
                     let (mut s, mut s2, mut sx, mut sxx) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
                     while x < ncols && row[x] == l {
                         let v = vals[x];
-                        let (vf, xf) = (v as f64, x as f64);
-                        let vx = vf * xf;
+                        let (vf, dxf) = (v as f64, x as f64 - pxf);
+                        let vx = vf * dxf;
                         s += vf;
                         s2 += vf * vf;
                         sx += vx;
-                        sxx += vx * xf;
+                        sxx += vx * dxf;
                         if v < min {
                             min = v;
                         }
                         x += 1;
                     }
                     let n = (x - start) as u64;
-                    let (ix, ixx) = run_sums(start, x);
-                    let yu = y as u128;
+                    let nf = n as f64;
+                    let (ux, uxx) = run_sums(start as f64 - pxf, x - start);
                     let m = &mut a.m;
                     m.n += n;
                     m.sum += s;
                     m.sum2 += s2;
                     m.sx += sx;
-                    m.sy += yf * s;
+                    m.sy += dyf * s;
                     m.sxx += sxx;
-                    m.syy += yf * yf * s;
-                    m.sxy += yf * sx;
-                    let u = &mut a.u;
-                    u[0] += ix;
-                    u[1] += n as u128 * yu;
-                    u[2] += ixx;
-                    u[3] += n as u128 * yu * yu;
-                    u[4] += ix * yu;
+                    m.syy += dyf * dyf * s;
+                    m.sxy += dyf * sx;
+                    m.ux += ux;
+                    m.uy += nf * dyf;
+                    m.uxx += uxx;
+                    m.uyy += nf * dyf * dyf;
+                    m.uxy += ux * dyf;
                     a.min = min;
                     if edge_row || start == 0 || x == ncols {
                         a.edge = true;
@@ -236,15 +328,10 @@ pub(super) fn fill(
             acc
         })
         .collect();
-    let mut total = vec![EMPTY; ns];
+    let mut total: Vec<Own> = peaks.iter().map(|&(px, py)| Own::about(px, py)).collect();
     for block in &blocks {
         for (id, o) in block {
-            let t = &mut total[*id as usize];
-            t.m.merge(&o.m);
-            add_exact(&mut t.u, &o.u);
-            t.min = t.min.min(o.min);
-            t.edge |= o.edge;
-            t.missing |= o.missing;
+            total[*id as usize].add(o);
         }
     }
     drop(blocks);
@@ -255,43 +342,13 @@ pub(super) fn fill(
         let own = total[id as usize];
         let s = &mut structures[id as usize];
         s.sums = own.m;
-        [s.sums.ux, s.sums.uy, s.sums.uxx, s.sums.uyy, s.sums.uxy] = own.u.map(|v| v as f64);
         s.npix = own.m.n;
         s.min_value = own.min as f64;
         s.touches_edge = own.edge;
         s.touches_missing = own.missing;
         if let Some(p) = s.parent {
-            let t = &mut total[p as usize];
-            t.m.merge(&own.m);
-            add_exact(&mut t.u, &own.u);
-            t.min = t.min.min(own.min);
-            t.edge |= own.edge;
-            t.missing |= own.missing;
+            total[p as usize].add(&own);
         }
-    }
-}
-
-/// Adds exact integer sums.
-fn add_exact(to: &mut [u128; 5], from: &[u128; 5]) {
-    for (t, f) in to.iter_mut().zip(from) {
-        *t += f;
-    }
-}
-
-/// The sums of x and of x^2 over the integers `a0..a1`, exactly (in 64-bit arithmetic,
-/// whose divisions by constants are cheap, on rows of fewer than 2^21 columns).
-fn run_sums(a0: usize, a1: usize) -> (u128, u128) {
-    if a1 < 1 << 21 {
-        // (k - 1) k (2k - 1) < 2^64 for k < 2^21.
-        let s1 = |k: u64| k * k.saturating_sub(1) / 2;
-        let s2 = |k: u64| k.saturating_sub(1) * k * (2 * k).saturating_sub(1) / 6;
-        let (a0, a1) = (a0 as u64, a1 as u64);
-        ((s1(a1) - s1(a0)) as u128, (s2(a1) - s2(a0)) as u128)
-    } else {
-        let s1 = |k: u128| k * k.saturating_sub(1) / 2;
-        let s2 = |k: u128| k.saturating_sub(1) * k * (2 * k).saturating_sub(1) / 6;
-        let (a0, a1) = (a0 as u128, a1 as u128);
-        (s1(a1) - s1(a0), s2(a1) - s2(a0))
     }
 }
 
@@ -299,25 +356,27 @@ fn run_sums(a0: usize, a1: usize) -> (u128, u128) {
 mod tests {
     use super::*;
 
+    /// The run sums against the sums term by term, in exact integers.
     #[test]
     fn run_sums_equal_the_direct_sums() {
-        let direct = |a0: usize, a1: usize| {
-            (a0..a1).fold((0u128, 0u128), |(s, q), x| {
-                (s + x as u128, q + (x as u128) * (x as u128))
+        let direct = |d0: i64, n: usize| {
+            (0..n as i64).fold((0i128, 0i128), |(s, q), j| {
+                let d = (d0 + j) as i128;
+                (s + d, q + d * d)
             })
         };
-        for a0 in 0..40 {
-            for a1 in a0..60 {
-                assert_eq!(run_sums(a0, a1), direct(a0, a1), "{a0}..{a1}");
+        for d0 in -40..40 {
+            for n in 0..50 {
+                let (s, q) = direct(d0, n);
+                assert_eq!(run_sums(d0 as f64, n), (s as f64, q as f64), "{d0} {n}");
             }
         }
-        // Both sides of the switch to 128-bit arithmetic.
-        for (a0, a1) in [
-            ((1 << 21) - 70, (1 << 21) - 1),
-            ((1 << 21) - 3, (1 << 21) + 5),
-            (5_000_000, 5_000_100),
-        ] {
-            assert_eq!(run_sums(a0, a1), direct(a0, a1), "{a0}..{a1}");
+        // Both sides of the switch to 128-bit arithmetic, far from the peak.
+        for (d0, n) in [(-300_000i64, (1 << 20) - 1), (-1_000_000, (1 << 20) + 3)] {
+            let (s, q) = direct(d0, n);
+            let (gs, gq) = run_sums(d0 as f64, n);
+            assert_eq!(gs, s as f64);
+            assert!((gq - q as f64).abs() <= 1e-15 * q as f64, "{gq} vs {q}");
         }
     }
 }

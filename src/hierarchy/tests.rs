@@ -122,15 +122,17 @@ fn connectivity_decides_whether_corners_join() {
 fn moments_match_a_direct_sum() {
     let m = array![[1.0f32, 2.0, 0.0], [3.0, 4.0, 0.5], [0.2, 6.0, 1.5]];
     let h = build(m.view(), &params(0.4, 0.0, 1, Connectivity::Four)).unwrap();
-    let mut want = Moments::default();
+    let roots = h.roots();
+    assert_eq!(roots.len(), 1);
+    let got = h.structures[roots[0] as usize].sums;
+    // About the root's peak (column 1, row 2: the value 6).
+    assert_eq!((got.x0, got.y0), (1.0, 2.0));
+    let mut want = Moments::about(1.0, 2.0);
     for ((y, x), &v) in m.indexed_iter() {
         if v as f64 >= 0.4 {
             want.add(x as f64, y as f64, v as f64);
         }
     }
-    let roots = h.roots();
-    assert_eq!(roots.len(), 1);
-    let got = h.structures[roots[0] as usize].sums;
     assert_eq!(got.n, want.n);
     for (a, b) in [
         (got.sum, want.sum),
@@ -318,9 +320,10 @@ fn buckets_sorted_beside_the_sweep_give_the_same_hierarchy() {
     }
 }
 
-/// Every structure's sums, gathered row run by row run, against sums over its pixels one by
-/// one (the definition): the count and the unweighted position sums exactly (they are
-/// integers), the weighted ones to rounding.
+/// Every structure's sums, gathered row run by row run about its peak, against sums over its
+/// pixels one by one about the same point (the definition): the count and the unweighted
+/// position sums exactly (they are integers), the weighted ones to rounding; and the
+/// centroid and covariance against those of sums about the origin.
 #[test]
 fn moments_of_every_structure_match_direct_sums() {
     let mut next = test_lcg(42);
@@ -332,10 +335,10 @@ fn moments_of_every_structure_match_direct_sums() {
     for conn in [Connectivity::Four, Connectivity::Eight] {
         let h = build(m.view(), &params(0.3, 0.2, 2, conn)).unwrap();
         assert!(h.structures.len() > 5);
+        assert!(h.structures.iter().any(|s| s.children.len() >= 2));
         for s in &h.structures {
             // The structure's pixels: those labelled with it or any descendant.
             let mut inside = vec![false; h.structures.len()];
-            inside[s.id as usize] = true;
             for t in &h.structures {
                 let mut a = Some(t.id);
                 while let Some(id) = a {
@@ -346,34 +349,100 @@ fn moments_of_every_structure_match_direct_sums() {
                     a = h.structures[id as usize].parent;
                 }
             }
-            let mut want = Moments::default();
-            let mut exact = [0u64; 5];
+            let got = s.sums;
+            assert_eq!((got.x0, got.y0), (s.peak_x as f64, s.peak_y as f64));
+            let mut want = Moments::about(got.x0, got.y0);
+            let mut origin = Moments::default();
+            let mut exact = [0i64; 5];
             for ((y, x), &l) in h.labels.indexed_iter() {
                 if l >= 0 && inside[l as usize] {
-                    want.add(x as f64, y as f64, m[[y, x]] as f64);
-                    let (x, y) = (x as u64, y as u64);
-                    for (e, v) in exact.iter_mut().zip([x, y, x * x, y * y, x * y]) {
+                    let v = m[[y, x]] as f64;
+                    want.add(x as f64, y as f64, v);
+                    origin.add(x as f64, y as f64, v);
+                    let dx = x as i64 - s.peak_x as i64;
+                    let dy = y as i64 - s.peak_y as i64;
+                    for (e, v) in exact.iter_mut().zip([dx, dy, dx * dx, dy * dy, dx * dy]) {
                         *e += v;
                     }
                 }
             }
-            let got = s.sums;
             assert_eq!(got.n, want.n);
             assert_eq!(
                 [got.ux, got.uy, got.uxx, got.uyy, got.uxy],
                 exact.map(|v| v as f64)
             );
-            for (a, b) in [
-                (got.sum, want.sum),
-                (got.sum2, want.sum2),
-                (got.sx, want.sx),
-                (got.sy, want.sy),
-                (got.sxx, want.sxx),
-                (got.syy, want.syy),
-                (got.sxy, want.sxy),
-            ] {
-                assert!((a - b).abs() <= 1e-12 * b.abs(), "{a} vs {b}");
-            }
+            let close = |a: f64, b: f64, scale: f64| {
+                assert!((a - b).abs() <= 1e-12 * scale, "{a} vs {b}");
+            };
+            // Sums about the peak: rounding against the largest term of each.
+            let (v1, vx, vxx) = (
+                want.sum.abs(),
+                want.sum.abs() * 60.0,
+                want.sum.abs() * 3600.0,
+            );
+            close(got.sum, want.sum, v1);
+            close(got.sum2, want.sum2, want.sum2);
+            close(got.sx, want.sx, vx);
+            close(got.sy, want.sy, vx);
+            close(got.sxx, want.sxx, vxx);
+            close(got.syy, want.syy, vxx);
+            close(got.sxy, want.sxy, vxx);
+            let (g, o) = (got.weighted_centroid(), origin.weighted_centroid());
+            close(g.0, o.0, 60.0);
+            close(g.1, o.1, 60.0);
+            let (g, o) = (got.weighted_covariance(), origin.weighted_covariance());
+            close(g.0, o.0, 3600.0);
+            close(g.1, o.1, 3600.0);
+            close(g.2, o.2, 3600.0);
+            let (g, o) = (got.centroid(), origin.centroid());
+            close(g.0, o.0, 60.0);
+            close(g.1, o.1, 60.0);
+            let (g, o) = (got.covariance(), origin.covariance());
+            close(g.0, o.0, 3600.0);
+            close(g.1, o.1, 3600.0);
+            close(g.2, o.2, 3600.0);
         }
     }
+}
+
+/// A small structure far from the map's origin keeps the precision of its second moments:
+/// its weighted covariance against the two-pass computation (the weighted mean first, then
+/// the sums of squared offsets from it; the numerically stable method of common practice).
+/// Sums about the origin would lose about ten of the sixteen digits here (x is about 3e5,
+/// the variance about 1).
+#[test]
+fn second_moments_keep_their_precision_far_from_the_origin() {
+    let (ny, nx) = (5, 300_000);
+    let (cx, cy) = (299_990.3, 2.2);
+    let m = Array2::from_shape_fn((ny, nx), |(y, x)| {
+        let (dx, dy) = (x as f64 - cx, y as f64 - cy);
+        (10.0 * (-(dx * dx / 3.0 + dy * dy / 1.5 + 0.4 * dx * dy) / 2.0).exp()) as f32
+    });
+    let h = build(m.view(), &params(0.5, 0.0, 1, Connectivity::Eight)).unwrap();
+    assert_eq!(h.structures.len(), 1);
+    let s = &h.structures[0];
+    let pixels: Vec<(f64, f64, f64)> = h
+        .labels
+        .indexed_iter()
+        .filter(|&(_, &l)| l == 0)
+        .map(|((y, x), _)| (x as f64, y as f64, m[[y, x]] as f64))
+        .collect();
+    assert!(pixels.len() > 10);
+    let w: f64 = pixels.iter().map(|p| p.2).sum();
+    let mx = pixels.iter().map(|p| p.2 * p.0).sum::<f64>() / w;
+    let my = pixels.iter().map(|p| p.2 * p.1).sum::<f64>() / w;
+    let cov = |f: &dyn Fn(f64, f64) -> f64| {
+        pixels
+            .iter()
+            .map(|p| p.2 * f(p.0 - mx, p.1 - my))
+            .sum::<f64>()
+            / w
+    };
+    let want = (cov(&|a, _| a * a), cov(&|a, b| a * b), cov(&|_, b| b * b));
+    let got = s.sums.weighted_covariance();
+    for (g, r) in [(got.0, want.0), (got.1, want.1), (got.2, want.2)] {
+        assert!((g - r).abs() <= 1e-12 * want.0.max(want.2), "{g} vs {r}");
+    }
+    let (gx, gy) = s.sums.weighted_centroid();
+    assert!((gx - mx).abs() <= 1e-9 && (gy - my).abs() <= 1e-12);
 }
