@@ -387,20 +387,15 @@ fn moments_of_every_structure_match_direct_sums() {
             close(got.sxx, want.sxx, vxx);
             close(got.syy, want.syy, vxx);
             close(got.sxy, want.sxy, vxx);
-            let (g, o) = (got.weighted_centroid(), origin.weighted_centroid());
-            close(g.0, o.0, 60.0);
-            close(g.1, o.1, 60.0);
-            let (g, o) = (got.weighted_covariance(), origin.weighted_covariance());
-            close(g.0, o.0, 3600.0);
-            close(g.1, o.1, 3600.0);
-            close(g.2, o.2, 3600.0);
-            let (g, o) = (got.centroid(), origin.centroid());
-            close(g.0, o.0, 60.0);
-            close(g.1, o.1, 60.0);
-            let (g, o) = (got.covariance(), origin.covariance());
-            close(g.0, o.0, 3600.0);
-            close(g.1, o.1, 3600.0);
-            close(g.2, o.2, 3600.0);
+            // Positions and covariances from both, weighted and not.
+            let both = |m: &Moments| {
+                let (c, w) = (m.centroid(), m.weighted_centroid());
+                let (v, u) = (m.covariance(), m.weighted_covariance());
+                [c.0, c.1, w.0, w.1, v.0, v.1, v.2, u.0, u.1, u.2]
+            };
+            for (k, (g, o)) in both(&got).into_iter().zip(both(&origin)).enumerate() {
+                close(g, o, if k < 4 { 60.0 } else { 3600.0 });
+            }
         }
     }
 }
