@@ -63,7 +63,7 @@ pub struct Table {
     pub meta: Vec<(String, String, String)>,
     /// Free text lines for the CSV header (criteria, cautions).
     pub notes: Vec<String>,
-    /// VOTable coordinate systems: (ID, system, equinox), such as ("map", "eq_FK5", "J2000").
+    /// VOTable coordinate systems: (ID, system, equinox), such as ("map_frame", "eq_FK5", "J2000").
     pub coosys: Vec<(String, String, Option<String>)>,
     /// VOTable field annotations: (column name, UCD, ID of a coordinate system or "").
     pub ucds: Vec<(String, String, String)>,

@@ -72,31 +72,40 @@ impl Moments {
         self.uxy += x * y;
     }
 
-    /// Adds the sums of another set of pixels, moved to this reference point first (the
-    /// parallel-axis relations; nothing moves when both share it).
+    /// Adds the sums of another set of pixels, moved to this reference point first.
     pub fn merge(&mut self, o: &Moments) {
-        let (a, b) = (o.x0 - self.x0, o.y0 - self.y0);
-        if a == 0.0 && b == 0.0 {
-            self.n += o.n;
-            for (t, f) in self.sums_mut().into_iter().zip(o.sums()) {
-                *t += f;
-            }
-            return;
-        }
-        let n = o.n as f64;
+        let o = o.moved_to(self.x0, self.y0);
         self.n += o.n;
-        self.sum += o.sum;
-        self.sum2 += o.sum2;
-        self.sx += o.sx + a * o.sum;
-        self.sy += o.sy + b * o.sum;
-        self.sxx += o.sxx + 2.0 * a * o.sx + a * a * o.sum;
-        self.syy += o.syy + 2.0 * b * o.sy + b * b * o.sum;
-        self.sxy += o.sxy + a * o.sy + b * o.sx + a * b * o.sum;
-        self.ux += o.ux + a * n;
-        self.uy += o.uy + b * n;
-        self.uxx += o.uxx + 2.0 * a * o.ux + a * a * n;
-        self.uyy += o.uyy + 2.0 * b * o.uy + b * b * n;
-        self.uxy += o.uxy + a * o.uy + b * o.ux + a * b * n;
+        for (t, f) in self.sums_mut().into_iter().zip(o.sums()) {
+            *t += f;
+        }
+    }
+
+    /// The same sums taken about `(x0, y0)` (the parallel-axis relations); unchanged when
+    /// that is already the reference point.
+    pub fn moved_to(&self, x0: f64, y0: f64) -> Moments {
+        let (a, b) = (self.x0 - x0, self.y0 - y0);
+        if a == 0.0 && b == 0.0 {
+            return *self;
+        }
+        let n = self.n as f64;
+        Moments {
+            x0,
+            y0,
+            n: self.n,
+            sum: self.sum,
+            sum2: self.sum2,
+            sx: self.sx + a * self.sum,
+            sy: self.sy + b * self.sum,
+            sxx: self.sxx + 2.0 * a * self.sx + a * a * self.sum,
+            syy: self.syy + 2.0 * b * self.sy + b * b * self.sum,
+            sxy: self.sxy + a * self.sy + b * self.sx + a * b * self.sum,
+            ux: self.ux + a * n,
+            uy: self.uy + b * n,
+            uxx: self.uxx + 2.0 * a * self.ux + a * a * n,
+            uyy: self.uyy + 2.0 * b * self.uy + b * b * n,
+            uxy: self.uxy + a * self.uy + b * self.ux + a * b * n,
+        }
     }
 
     /// The twelve sums, in field order.
