@@ -667,6 +667,9 @@ fn mask_row_scalar(row: &mut [u8], above: &[i32], here: &[i32], below: &[i32], a
 
 /// How many pixels ahead the sweep prefetches.
 const AHEAD: usize = 32;
+/// How many pixels ahead the sweep of a large map prefetches the parents of the neighbours'
+/// cells (a second stage after [`AHEAD`]; 8 and 12 measured alike, better than none).
+const AHEAD2: usize = 12;
 
 /// A bucket of keys not sorted yet.
 const UNSORTED: u8 = 0;
@@ -825,6 +828,27 @@ fn sweep_sorted<const PACKED: bool>(
                 prefetch(cells, (q + ncols).min(npix - 1));
                 if !PACKED {
                     prefetch(masks, q);
+                }
+            }
+            if !PACKED && step + AHEAD2 < limit {
+                // The cells of the earlier neighbours of a pixel a few steps ahead are in
+                // cache by now: fetch what its lookups will read next, the parent of each
+                // (or the area of its node at a root). Measured to help only on maps too large
+                // to carry the neighbour bytes in their keys (8192^2: the sweep's median of 12
+                // interleaved runs 1.56 s against 1.80 s); on smaller ones those reads mostly
+                // hit the cache and the extra work costs 10-20%.
+                // SAFETY: as above.
+                let ahead = unsafe { keys.add(step + AHEAD2).read() };
+                let q = ahead as u32 as usize;
+                let mask = masks[q];
+                let group = &groups[mask as usize];
+                for &j in &group[1..=group[0] as usize] {
+                    let c = cells[q.wrapping_add(delta[j as usize] as usize)];
+                    if c & ROOT == 0 {
+                        prefetch(cells, c as usize);
+                    } else if ((c & !ROOT) as usize) < areas.len() {
+                        prefetch(&areas, (c & !ROOT) as usize);
+                    }
                 }
             }
             // SAFETY: as above; bucket `b` is sorted and only this thread uses it now.
