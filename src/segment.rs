@@ -828,12 +828,13 @@ struct Analysed {
 /// Runs the whole segmentation and writes the outputs. `progress` receives fractions 0..1.
 pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Result<RunSummary> {
     let t0 = Instant::now();
-    // The input's SHA-256 is computed beside the real work: started when the engine begins
-    // its sequential sweep, which leaves the other cores idle.
-    let hashing: std::cell::RefCell<Option<std::thread::JoinHandle<Result<String>>>> =
-        std::cell::RefCell::new(None);
+    // The input's SHA-256 is computed beside the real work: started when a core falls idle
+    // during the engine's sequential sweep (once the keys are sorted), so that it takes no
+    // core from the sweep.
+    let hashing: std::sync::Mutex<Option<std::thread::JoinHandle<Result<String>>>> =
+        std::sync::Mutex::new(None);
     let start_hashing = || {
-        let mut h = hashing.borrow_mut();
+        let mut h = hashing.lock().unwrap_or_else(|e| e.into_inner());
         if h.is_none() {
             let path = map.path.clone();
             *h = Some(std::thread::spawn(move || sha256_file(&path)));
@@ -874,12 +875,12 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         connectivity: o.connectivity,
     };
     let t_tree = Instant::now();
-    let h = match hierarchy::build_with_progress(map.data.view(), &params, &|f| {
-        if f >= hierarchy::SWEEP_STARTS {
-            start_hashing();
-        }
-        progress("hierarchy", f)
-    }) {
+    let h = match hierarchy::build_with_hooks(
+        map.data.view(),
+        &params,
+        &|f| progress("hierarchy", f),
+        &start_hashing,
+    ) {
         Ok(h) => h,
         Err(hierarchy::HierarchyError::FloorAboveMaximum { floor, max }) => {
             let file = map.path.display();
@@ -979,6 +980,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
 
             start_hashing();
             let input_sha = hashing
+                .lock()
+                .unwrap_or_else(|e| e.into_inner())
                 .take()
                 .ok_or_else(|| Error::internal("hashing the input was not started"))?
                 .join()

@@ -125,7 +125,23 @@ pub fn build_with_progress(
     params: &Params,
     progress: &dyn Fn(f64),
 ) -> Result<Hierarchy, HierarchyError> {
-    build_impl(map, params, progress, PACK_LIMIT)
+    build_impl(map, params, progress, &|| {}, PACK_LIMIT)
+}
+
+/// [`build_with_progress`] that also says when a core falls idle: `core_free` is called once,
+/// during the sequential sweep, by the thread that sorts the buckets of keys ahead of the
+/// sweep as soon as it has sorted the last one (typically a tenth of the way through the sweep
+/// on large maps, a third on small ones), or from the calling thread as the sweep starts when
+/// there is no such thread (a pool of one thread, or a single bucket). It is not called if the
+/// build fails before the sweep. It should return promptly: work the caller starts from it on
+/// a thread of its own then runs beside the sweep without taking a core from it.
+pub fn build_with_hooks(
+    map: ArrayView2<f32>,
+    params: &Params,
+    progress: &dyn Fn(f64),
+    core_free: &(dyn Fn() + Sync),
+) -> Result<Hierarchy, HierarchyError> {
+    build_impl(map, params, progress, core_free, PACK_LIMIT)
 }
 
 /// Maps of up to this many pixels carry each pixel's earlier-neighbour byte in its key.
@@ -137,6 +153,7 @@ pub(super) fn build_impl(
     map: ArrayView2<f32>,
     params: &Params,
     progress: &dyn Fn(f64),
+    core_free: &(dyn Fn() + Sync),
     pack_limit: usize,
 ) -> Result<Hierarchy, HierarchyError> {
     let (nrows, ncols) = map.dim();
@@ -227,9 +244,13 @@ pub(super) fn build_impl(
     // 2. Sweep, sorting the buckets of keys on the way.
     let mut cells: Vec<u32> = pages::filled(npix, UNVISITED);
     let (mut nodes, areas, keys) = if packed {
-        sweep::<true>(&mut cells, &masks, ncols, buckets, params, progress)
+        sweep::<true>(
+            &mut cells, &masks, ncols, buckets, params, progress, core_free,
+        )
     } else {
-        sweep::<false>(&mut cells, &masks, ncols, buckets, params, progress)
+        sweep::<false>(
+            &mut cells, &masks, ncols, buckets, params, progress, core_free,
+        )
     };
     drop(masks);
     progress(0.9);
@@ -750,6 +771,7 @@ fn sweep<const PACKED: bool>(
     buckets: radix::Buckets,
     params: &Params,
     progress: &dyn Fn(f64),
+    core_free: &(dyn Fn() + Sync),
 ) -> (Vec<Node>, Vec<u32>, Vec<u64>) {
     let radix::Buckets {
         mut keys,
@@ -770,7 +792,10 @@ fn sweep<const PACKED: bool>(
                 for b in 0..nb {
                     pipe.try_sort(b, &mut scratch);
                 }
+                core_free();
             });
+        } else {
+            core_free();
         }
         sweep_sorted::<PACKED>(cells, masks, ncols, &pipe, params, progress)
     });

@@ -137,7 +137,7 @@ use ndarray::Array2;
 use petgraph::graph::DiGraph;
 use std::fmt;
 
-pub use engine::{build, build_with_progress};
+pub use engine::{build, build_with_hooks, build_with_progress};
 
 /// The progress fraction [`build_with_progress`] reports when its parallel passes are done and
 /// its sequential sweep begins (from then until 0.9 one core sweeps and one sorts the buckets

@@ -201,6 +201,21 @@ fn progress_runs_from_zero_to_one() {
 }
 
 #[test]
+fn no_core_is_said_free_when_the_build_fails_before_its_sweep() {
+    let m = row(&[1.0, 5.0, 2.0]);
+    let said = std::sync::atomic::AtomicBool::new(false);
+    let e = build_with_hooks(
+        m.view(),
+        &params(9.0, 0.0, 1, Connectivity::Four),
+        &|_| {},
+        &|| said.store(true, std::sync::atomic::Ordering::Relaxed),
+    )
+    .unwrap_err();
+    assert!(matches!(e, HierarchyError::FloorAboveMaximum { .. }));
+    assert!(!said.into_inner());
+}
+
+#[test]
 fn non_contiguous_views_give_the_same_result() {
     let m = array![[1.0f32, 5.0, 2.0], [4.0, 1.0, 3.0], [0.0, 2.0, 6.0]];
     let t = m.t().to_owned();
@@ -276,8 +291,8 @@ fn packed_and_separate_neighbour_bytes_agree() {
         for conn in [Connectivity::Four, Connectivity::Eight] {
             for (floor, prom, area) in [(f64::NEG_INFINITY, 0.0, 1), (0.2, 0.1, 3), (0.0, 1.0, 2)] {
                 let p = params(floor, prom, area, conn);
-                let a = engine::build_impl(m.view(), &p, &|_| {}, usize::MAX).unwrap();
-                let b = engine::build_impl(m.view(), &p, &|_| {}, 0).unwrap();
+                let a = engine::build_impl(m.view(), &p, &|_| {}, &|| {}, usize::MAX).unwrap();
+                let b = engine::build_impl(m.view(), &p, &|_| {}, &|| {}, 0).unwrap();
                 assert_eq!(a.structures, b.structures, "{ny}x{nx} {conn:?} {floor}");
                 assert_eq!(a.labels, b.labels);
                 assert!(prom > 0.5 || !a.structures.is_empty());
@@ -301,12 +316,20 @@ fn buckets_sorted_beside_the_sweep_give_the_same_hierarchy() {
         (xf * 0.05).sin() + (yf * 0.07).cos() + (0.03 * (xf + yf)).sin() + 0.3 * noise[y * nx + x]
     });
     let p = params(-0.5, 0.05, 3, Connectivity::Eight);
+    // Each build also says once that a core is free: from the sorting thread when there is
+    // one, else as the sweep starts.
     let in_pool = |threads: usize, pack_limit: usize| {
-        rayon::ThreadPoolBuilder::new()
+        let calls = std::sync::atomic::AtomicUsize::new(0);
+        let count = || {
+            calls.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+        };
+        let h = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
             .build()
             .unwrap()
-            .install(|| engine::build_impl(m.view(), &p, &|_| {}, pack_limit).unwrap())
+            .install(|| engine::build_impl(m.view(), &p, &|_| {}, &count, pack_limit).unwrap());
+        assert_eq!(calls.into_inner(), 1, "{threads} threads");
+        h
     };
     let one = in_pool(1, usize::MAX);
     assert!(one.leaves().len() > 20, "{} leaves", one.leaves().len());
