@@ -16,14 +16,14 @@
 //! cores, noise; `cairn::synth`), writes it as FITS, and measures in child processes:
 //! * the reference: a parallel sort of the map's pixel keys (the least any exact method
 //!   must do);
-//! * cairn's segmentation with outputs, its time (best of five runs, each in a fresh
-//!   process) and its memory: the process's peak resident memory, less its resident memory
-//!   before loading the map and less the map's bytes, per pixel (the largest of the five
-//!   runs). This counts everything loading and segmenting add, code pages and thread stacks
+//! * cairn's segmentation with outputs, its time (best of five runs, nine for maps of at most
+//!   1024^2 pixels, each in a fresh process) and its memory: the process's peak resident
+//!   memory, less its resident memory before loading the map and less the map's bytes, per
+//!   pixel (the largest of the runs). This counts everything loading and segmenting add, code pages and thread stacks
 //!   included, which weighs most on the smallest map;
 //! * with `CAIRN_BENCH_PYTHON` set (a Python with the packages of tests/oracle/requirements.txt),
 //!   scikit-image's `max_tree` on the same map (the raw tree only), timed inside Python
-//!   after loading, two calls in each of five processes, the fastest call counting. Not run
+//!   after loading, two calls in each of the rounds' processes, the fastest call counting. Not run
 //!   above 2048^2: it grows faster than N log N.
 //!
 //! The runs alternate, one of cairn and one of `max_tree`, so that on a shared machine both
@@ -35,8 +35,15 @@ use std::time::Instant;
 
 use rayon::prelude::*;
 
-/// Runs of each timed measurement; the best is reported.
+/// Rounds of each timed measurement; the best is reported.
 const RUNS: usize = 5;
+/// Rounds for maps of at most [`SMALL`] pixels a side: their runs take some tens of
+/// milliseconds, which one slow spell of a shared machine can double, so more rounds are
+/// needed for the best to reflect the program rather than the spell (`max_tree`, whose calls
+/// take over a second, gets the same rounds).
+const RUNS_SMALL: usize = 9;
+/// See [`RUNS_SMALL`].
+const SMALL: usize = 1024;
 
 /// A `/proc/self/status` figure in bytes (`VmHWM:` the peak resident memory, `VmRSS:` the
 /// current one).
@@ -138,9 +145,17 @@ fn main() {
         "| size | sort (reference) | segment | segment / sort | peak memory above map / pixel | leaves | max_tree | max_tree / segment |"
     );
     println!("| --- | --- | --- | --- | --- | --- | --- | --- |");
+    // (pixels, best segment time) of each size, for the growth line.
+    let mut segments: Vec<(f64, f64)> = Vec::new();
     for (base, tiles) in sizes {
         let n = base * tiles;
-        let runs = if tiles > 1 { 1 } else { RUNS };
+        let runs = if tiles > 1 {
+            1
+        } else if n <= SMALL {
+            RUNS_SMALL
+        } else {
+            RUNS
+        };
         let spec = cairn::synth::SynthSpec {
             nx: base,
             ny: base,
@@ -246,8 +261,33 @@ fn main() {
             None => ("not run".into(), "".into()),
         };
         println!(
-            "| {n}^2 | {sort_s:.3} s | {seg_s:.3} s | {:.1} | {per_pixel:.1} B | {leaves} | {mt} | {ratio} |",
+            "| {n}^2 | {sort_s:.3} s | {} | {:.1} | {per_pixel:.1} B | {leaves} | {mt} | {ratio} |",
+            seconds(seg_s),
             seg_s / sort_s
         );
+        segments.push((npix, seg_s));
+    }
+    // The growth of the whole run from the smallest size to the largest, against N log N.
+    if let (Some(&(n0, t0)), Some(&(n1, t1))) = (segments.first(), segments.last())
+        && n1 > n0
+    {
+        println!(
+            "\nGrowth from {:.0}^2 to {:.0}^2: {:.1}x ({:.4} s to {:.4} s); N log N grows {:.1}x.",
+            n0.sqrt(),
+            n1.sqrt(),
+            t1 / t0,
+            t0,
+            t1,
+            n1 * n1.ln() / (n0 * n0.ln())
+        );
+    }
+}
+
+/// Seconds with three decimals, or four significant digits below a tenth of a second.
+fn seconds(t: f64) -> String {
+    if t < 0.1 {
+        format!("{t:.4} s")
+    } else {
+        format!("{t:.3} s")
     }
 }
