@@ -717,6 +717,9 @@ const AHEAD: usize = 32;
 /// How many pixels ahead the sweep of a large map prefetches the parents of the neighbours'
 /// cells (a second stage after [`AHEAD`]; 8 and 12 measured alike, better than none).
 const AHEAD2: usize = 12;
+/// How many pixels ahead the sweep of a large map prefetches the nodes and areas that a merge
+/// at that pixel would read (a third stage; 8 measured better than 6 or 10).
+const AHEAD3: usize = 8;
 
 /// A bucket of keys not sorted yet.
 const UNSORTED: u8 = 0;
@@ -899,6 +902,30 @@ fn sweep_sorted<const PACKED: bool>(
                         prefetch(cells, c as usize);
                     } else if ((c & !ROOT) as usize) < areas.len() {
                         prefetch(&areas, (c & !ROOT) as usize);
+                    }
+                }
+            }
+            if !PACKED && step + AHEAD3 < limit {
+                // A pixel a little nearer whose earlier neighbours form two or more groups
+                // may join components: the roots' cells are in cache by now, so fetch the node
+                // and area of each root that the merge would read (the merge test's reads
+                // were the sweep's costliest at 8192^2). The sweep's median of 15 interleaved
+                // runs there: 1.84 s against 2.05 s without this stage.
+                // SAFETY: as above.
+                let ahead = unsafe { keys.add(step + AHEAD3).read() };
+                let q = ahead as u32 as usize;
+                let group = &groups[masks[q] as usize];
+                if group[0] >= 2 {
+                    for &j in &group[1..=group[0] as usize] {
+                        let mut c = cells[q.wrapping_add(delta[j as usize] as usize)];
+                        if c & ROOT == 0 {
+                            c = cells[c as usize];
+                        }
+                        let n = (c & !ROOT) as usize;
+                        if c & ROOT != 0 && n < nodes.len() {
+                            prefetch(&nodes, n);
+                            prefetch(&areas, n);
+                        }
                     }
                 }
             }
