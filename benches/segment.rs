@@ -19,12 +19,12 @@
 //! * cairn's segmentation with outputs, its time (best of five runs, nine for maps of at most
 //!   1024^2 pixels, each in a fresh process) and its memory: the process's peak resident
 //!   memory, less its resident memory before loading the map and less the map's bytes, per
-//!   pixel (the largest of the runs). This counts everything loading and segmenting add, code pages and thread stacks
-//!   included, which weighs most on the smallest map;
+//!   pixel (the largest of the runs). This counts everything loading and segmenting add, code
+//!   pages and thread stacks included, which weighs most on the smallest map;
 //! * with `CAIRN_BENCH_PYTHON` set (a Python with the packages of tests/oracle/requirements.txt),
 //!   scikit-image's `max_tree` on the same map (the raw tree only), timed inside Python
-//!   after loading, two calls in each of the rounds' processes, the fastest call counting. Not run
-//!   above 2048^2: it grows faster than N log N.
+//!   after loading, two calls in each of the rounds' processes, the fastest call counting.
+//!   Not run above 2048^2: it grows faster than N log N.
 //!
 //! The runs alternate, one of cairn and one of `max_tree`, so that on a shared machine both
 //! meet the same slow and quiet spells.

@@ -384,27 +384,26 @@ fn summary(chunk: &[f32], floor32: f32) -> (f32, f32, bool, bool) {
     let mut max = [f32::NEG_INFINITY; LANES];
     let mut low = [f32::INFINITY; LANES];
     let mut nans = [0u32; LANES];
+    // One value into a lane, without a branch.
+    #[inline(always)]
+    fn take(max: &mut f32, low: &mut f32, nans: &mut u32, v: f32, floor32: f32) {
+        *max = if v > *max { v } else { *max };
+        let c = if radix::considered(v, floor32) {
+            v
+        } else {
+            f32::INFINITY
+        };
+        *low = if c < *low { c } else { *low };
+        *nans += v.is_nan() as u32;
+    }
     let mut lanes = chunk.chunks_exact(LANES);
     for vs in &mut lanes {
         for i in 0..LANES {
-            let v = vs[i];
-            max[i] = if v > max[i] { v } else { max[i] };
-            let c = if radix::considered(v, floor32) {
-                v
-            } else {
-                f32::INFINITY
-            };
-            low[i] = if c < low[i] { c } else { low[i] };
-            nans[i] += v.is_nan() as u32;
+            take(&mut max[i], &mut low[i], &mut nans[i], vs[i], floor32);
         }
     }
-    let rest = lanes.remainder();
-    for (i, &v) in rest.iter().enumerate() {
-        max[i] = if v > max[i] { v } else { max[i] };
-        if radix::considered(v, floor32) && v < low[i] {
-            low[i] = v;
-        }
-        nans[i] += v.is_nan() as u32;
+    for (i, &v) in lanes.remainder().iter().enumerate() {
+        take(&mut max[i], &mut low[i], &mut nans[i], v, floor32);
     }
     let nan_count: usize = nans.iter().map(|&n| n as usize).sum();
     (
@@ -856,6 +855,14 @@ fn sweep_sorted<const PACKED: bool>(
     let nb = starts.len() - 1;
     let nkeys = starts[nb];
     let keys = pipe.keys.0;
+    // Of the pixel whose key is at `i` (below the readable limit; maps with separate neighbour
+    // bytes only): its index and the groups of its earlier neighbours.
+    let ahead_groups = |i: usize| {
+        // SAFETY: the callers read only keys below `limit`, in sorted buckets that no other
+        // thread writes.
+        let q = unsafe { keys.add(i).read() } as u32 as usize;
+        (q, &groups[masks[q] as usize])
+    };
     let mut scratch = Vec::new();
     for b in 0..nb {
         pipe.wait(b, &mut scratch);
@@ -891,11 +898,7 @@ fn sweep_sorted<const PACKED: bool>(
                 // to carry the neighbour bytes in their keys (8192^2: the sweep's median of 12
                 // interleaved runs 1.56 s against 1.80 s); on smaller ones those reads mostly
                 // hit the cache and the extra work costs 10-20%.
-                // SAFETY: as above.
-                let ahead = unsafe { keys.add(step + AHEAD2).read() };
-                let q = ahead as u32 as usize;
-                let mask = masks[q];
-                let group = &groups[mask as usize];
+                let (q, group) = ahead_groups(step + AHEAD2);
                 for &j in &group[1..=group[0] as usize] {
                     let c = cells[q.wrapping_add(delta[j as usize] as usize)];
                     if c & ROOT == 0 {
@@ -911,10 +914,7 @@ fn sweep_sorted<const PACKED: bool>(
                 // and area of each root that the merge would read (the merge test's reads
                 // were the sweep's costliest at 8192^2). The sweep's median of 15 interleaved
                 // runs there: 1.84 s against 2.05 s without this stage.
-                // SAFETY: as above.
-                let ahead = unsafe { keys.add(step + AHEAD3).read() };
-                let q = ahead as u32 as usize;
-                let group = &groups[masks[q] as usize];
+                let (q, group) = ahead_groups(step + AHEAD3);
                 if group[0] >= 2 {
                     for &j in &group[1..=group[0] as usize] {
                         let mut c = cells[q.wrapping_add(delta[j as usize] as usize)];

@@ -147,24 +147,26 @@ impl Moments {
 
     /// Unweighted covariance of the pixel positions: (xx, xy, yy).
     pub fn covariance(&self) -> (f64, f64, f64) {
-        let n = self.n as f64;
-        let (mx, my) = (self.ux / n, self.uy / n);
-        (
-            self.uxx / n - mx * mx,
-            self.uxy / n - mx * my,
-            self.uyy / n - my * my,
-        )
+        let s = self;
+        central(s.n as f64, [s.ux, s.uy], [s.uxx, s.uxy, s.uyy])
     }
 
     /// Value-weighted covariance of the pixel positions: (xx, xy, yy).
     pub fn weighted_covariance(&self) -> (f64, f64, f64) {
-        let (mx, my) = (self.sx / self.sum, self.sy / self.sum);
-        (
-            self.sxx / self.sum - mx * mx,
-            self.sxy / self.sum - mx * my,
-            self.syy / self.sum - my * my,
-        )
+        let s = self;
+        central(s.sum, [s.sx, s.sy], [s.sxx, s.sxy, s.syy])
     }
+}
+
+/// The covariance (xx, xy, yy) from the total weight `w`, the first sums (x, y) and the second
+/// sums (xx, xy, yy), all about the same point.
+fn central(w: f64, first: [f64; 2], second: [f64; 3]) -> (f64, f64, f64) {
+    let (mx, my) = (first[0] / w, first[1] / w);
+    (
+        second[0] / w - mx * mx,
+        second[1] / w - mx * my,
+        second[2] / w - my * my,
+    )
 }
 
 /// What one structure gathers from its own pixels, about its peak.
