@@ -144,11 +144,12 @@ pub fn build_with_hooks(
     build_impl(map, params, progress, core_free, PACK_LIMIT)
 }
 
-/// Maps of up to this many pixels carry each pixel's earlier-neighbour byte in its key.
+/// Maps of up to this many pixels keep the whole value half in their keys (the packed layout);
+/// larger ones use the wide layout (`radix::bucketed_keys_wide`).
 const PACK_LIMIT: usize = 1 << 24;
 
 /// [`build_with_progress`] with the packing limit as a parameter, so tests can run the path of
-/// large maps (separate bytes) on small ones.
+/// large maps (wide keys) on small ones.
 pub(super) fn build_impl(
     map: ArrayView2<f32>,
     params: &Params,
@@ -202,42 +203,32 @@ pub(super) fn build_impl(
 
     // 1. The keys of the pixel order, in buckets that the sweep sorts as it goes.
     let floor = params.floor;
-    // Maps of up to 2^24 pixels carry each pixel's earlier-neighbour byte in its key (low
-    // half: index << 8 | byte), so the sweep reads it in order instead of from a scattered
-    // array; the bytes are made row by row as the keys are scattered. Larger maps keep the
-    // bytes apart.
+    // Every key carries its pixel's earlier-neighbour byte (index << 8 | byte), so the sweep
+    // reads it in order instead of from a scattered array; the bytes are made row by row as
+    // the keys are scattered. Maps of up to 2^24 pixels keep the whole value half in the high
+    // half of the key; larger ones keep only its bits below the bucket digit, so that their
+    // longer indices fit (see `radix::bucketed_keys_wide`).
     let packed = npix <= pack_limit.min(PACK_LIMIT);
     // The highest value is considered (it is at least the floor, tested above).
     let range = Some((low, max));
-    let (buckets, masks) = if packed {
-        let rows = |y0: usize| {
-            let mut rows = NeighbourRows::new(data, ncols, floor, params.connectivity, y0);
-            move |out: &mut [u8]| rows.next_row(out)
-        };
-        (
-            radix::bucketed_keys_packed(data, ncols, floor, range, &rows),
-            Vec::new(),
-        )
+    let rows = |y0: usize| {
+        let mut rows = NeighbourRows::new(data, ncols, floor, params.connectivity, y0);
+        move |out: &mut [u8]| rows.next_row(out)
+    };
+    let buckets = if packed {
+        radix::bucketed_keys_packed(data, ncols, floor, range, &rows)
     } else {
-        (
-            radix::bucketed_keys(data, ncols, floor, range),
-            earlier_neighbours(data, ncols, floor, params.connectivity),
-        )
+        radix::bucketed_keys_wide(data, ncols, floor, range, &rows)
     };
     progress(super::SWEEP_STARTS);
 
     // 2. Sweep, sorting the buckets of keys on the way.
     let mut cells: Vec<u32> = pages::filled(npix, UNVISITED);
     let (mut nodes, areas, keys) = if packed {
-        sweep::<true>(
-            &mut cells, &masks, ncols, buckets, params, progress, core_free,
-        )
+        sweep::<true>(&mut cells, ncols, buckets, params, progress, core_free)
     } else {
-        sweep::<false>(
-            &mut cells, &masks, ncols, buckets, params, progress, core_free,
-        )
+        sweep::<false>(&mut cells, ncols, buckets, params, progress, core_free)
     };
-    drop(masks);
     progress(0.9);
 
     // 3. Accepted structures, ids, labels.
@@ -421,42 +412,17 @@ fn neighbour_steps(ncols: usize) -> [isize; 8] {
     [-w - 1, -w, -w + 1, -1, 1, w - 1, w, w + 1]
 }
 
-/// Rows per parallel task of [`earlier_neighbours`] (fixed, so the work split never matters;
-/// the result does not depend on it anyway, each byte being a function of its pixel alone).
-const MASK_ROWS: usize = 16;
-
-/// For each considered pixel, one bit per neighbour (order of [`neighbour_steps`]) that the
-/// sweep visits before it: considered and earlier in the pixel order (higher value, or equal
-/// value and lower linear index). Zero for pixels not considered. Computed in parallel in
-/// raster order, so the sequential sweep reads one byte instead of testing up to eight
-/// scattered cells. (Maps of up to 2^24 pixels make these bytes row by row while their keys
-/// are scattered, through [`NeighbourRows`], and never hold them all.)
-fn earlier_neighbours(
-    data: &[f32],
-    ncols: usize,
-    floor: f64,
-    connectivity: super::Connectivity,
-) -> Vec<u8> {
-    let mut masks = vec![0u8; data.len()];
-    masks
-        .par_chunks_mut(MASK_ROWS * ncols)
-        .enumerate()
-        .for_each(|(c, out)| {
-            let mut rows = NeighbourRows::new(data, ncols, floor, connectivity, c * MASK_ROWS);
-            for row in out.chunks_mut(ncols) {
-                rows.next_row(row);
-            }
-        });
-    masks
-}
-
 /// Order keys as signed numbers (so that the comparisons of [`mask_row`] vectorise) for
 /// pixels not considered: no considered pixel has it.
 const OFF: i32 = i32::MIN;
 
-/// The earlier-neighbour bytes ([`earlier_neighbours`]) of successive rows from a given one,
-/// keeping the signed order keys of the rows above, here and below (each padded by one
-/// column of [`OFF`] on both sides).
+/// The earlier-neighbour bytes of successive rows from a given one: for each considered pixel,
+/// one bit per neighbour (order of [`neighbour_steps`]) that the sweep visits before it,
+/// considered and earlier in the pixel order (higher value, or equal value and lower linear
+/// index); zero for pixels not considered. They are made row by row while the keys are
+/// scattered into their buckets and ride in the keys, so the sequential sweep reads one byte
+/// in order instead of testing up to eight scattered cells. Keeps the signed order keys of
+/// the rows above, here and below (each padded by one column of [`OFF`] on both sides).
 pub(super) struct NeighbourRows<'a> {
     data: &'a [f32],
     ncols: usize,
@@ -614,10 +580,10 @@ static GROUPS_EIGHT: [[u8; 5]; 256] = neighbour_groups(true);
 /// [`neighbour_groups`] for 4-connectivity (no two of the four neighbours are adjacent).
 static GROUPS_FOUR: [[u8; 5]; 256] = neighbour_groups(false);
 
-/// One row of [`earlier_neighbours`] from the signed keys of the rows above, here and below
-/// (each padded by one column on both sides): sixteen pixels at a time with SSE2 (part of
-/// every x86-64 processor), the rest by [`mask_row_scalar`], which gives the same bytes (unit
-/// test).
+/// One row of earlier-neighbour bytes ([`NeighbourRows`]) from the signed keys of the rows
+/// above, here and below (each padded by one column on both sides): sixteen pixels at a time
+/// with SSE2 (part of every x86-64 processor), the rest by [`mask_row_scalar`], which gives
+/// the same bytes (unit test).
 fn mask_row(row: &mut [u8], above: &[i32], here: &[i32], below: &[i32], allowed: u8) {
     let n = row.len();
     let (a, h, b) = (&above[..n + 2], &here[..n + 2], &below[..n + 2]);
@@ -735,7 +701,7 @@ struct Pipeline<'a> {
     keys: radix::Out<u64>,
     starts: &'a [usize],
     state: Vec<AtomicU8>,
-    low_bits: u32,
+    bits: radix::KeyBits,
 }
 
 impl Pipeline<'_> {
@@ -749,7 +715,7 @@ impl Pipeline<'_> {
             // SAFETY: the claim above makes this thread the only one using bucket `b` until
             // it is marked sorted; the buckets are disjoint ranges inside the keys.
             let bucket = unsafe { std::slice::from_raw_parts_mut(self.keys.0.add(a), e - a) };
-            radix::sort_bucket(bucket, self.low_bits, scratch);
+            radix::sort_bucket(bucket, self.bits, scratch);
             self.state[b].store(SORTED, Ordering::Release);
         }
     }
@@ -794,7 +760,6 @@ impl Pipeline<'_> {
 /// is read in order anyway.
 fn sweep<const PACKED: bool>(
     cells: &mut [u32],
-    masks: &[u8],
     ncols: usize,
     buckets: radix::Buckets,
     params: &Params,
@@ -804,14 +769,14 @@ fn sweep<const PACKED: bool>(
     let radix::Buckets {
         mut keys,
         starts,
-        low_bits,
+        bits,
     } = buckets;
     let nb = starts.len() - 1;
     let pipe = Pipeline {
         keys: radix::Out(keys.as_mut_ptr()),
         starts: &starts,
         state: (0..nb).map(|_| AtomicU8::new(UNSORTED)).collect(),
-        low_bits,
+        bits,
     };
     let (nodes, areas) = rayon::in_place_scope(|scope| {
         if nb > 1 && rayon::current_num_threads() > 1 {
@@ -825,7 +790,7 @@ fn sweep<const PACKED: bool>(
         } else {
             core_free();
         }
-        sweep_sorted::<PACKED>(cells, masks, ncols, &pipe, params, progress)
+        sweep_sorted::<PACKED>(cells, ncols, &pipe, params, progress)
     });
     (nodes, areas, keys)
 }
@@ -833,7 +798,6 @@ fn sweep<const PACKED: bool>(
 /// The sweep proper: the buckets of `pipe` in order, each once it is sorted.
 fn sweep_sorted<const PACKED: bool>(
     cells: &mut [u32],
-    masks: &[u8],
     ncols: usize,
     pipe: &Pipeline,
     params: &Params,
@@ -855,14 +819,22 @@ fn sweep_sorted<const PACKED: bool>(
     let nb = starts.len() - 1;
     let nkeys = starts[nb];
     let keys = pipe.keys.0;
-    // Of the pixel whose key is at `i` (below the readable limit; maps with separate neighbour
-    // bytes only): its index and the groups of its earlier neighbours.
+    // The pixel of a key, and its byte of earlier neighbours.
+    let index_mask = if PACKED {
+        (1u64 << 24) - 1
+    } else {
+        (1u64 << radix::index_bits(npix)) - 1
+    };
+    let pixel = |key: u64| ((key >> 8) & index_mask) as usize;
+    // Of the pixel whose key is at `i` (below the readable limit): its index and the groups
+    // of its earlier neighbours.
     let ahead_groups = |i: usize| {
         // SAFETY: the callers read only keys below `limit`, in sorted buckets that no other
         // thread writes.
-        let q = unsafe { keys.add(i).read() } as u32 as usize;
-        (q, &groups[masks[q] as usize])
+        let k = unsafe { keys.add(i).read() };
+        (pixel(k), &groups[k as u8 as usize])
     };
+    let bits = pipe.bits;
     let mut scratch = Vec::new();
     for b in 0..nb {
         pipe.wait(b, &mut scratch);
@@ -878,26 +850,18 @@ fn sweep_sorted<const PACKED: bool>(
             }
             if step + AHEAD < limit {
                 // SAFETY: in bounds and in a sorted bucket, which no other thread writes.
-                let ahead = unsafe { keys.add(step + AHEAD).read() };
-                let q = if PACKED {
-                    (ahead as u32 >> 8) as usize
-                } else {
-                    ahead as u32 as usize
-                };
+                let q = pixel(unsafe { keys.add(step + AHEAD).read() });
                 prefetch(cells, q.saturating_sub(ncols));
                 prefetch(cells, q);
                 prefetch(cells, (q + ncols).min(npix - 1));
-                if !PACKED {
-                    prefetch(masks, q);
-                }
             }
             if !PACKED && step + AHEAD2 < limit {
                 // The cells of the earlier neighbours of a pixel a few steps ahead are in
                 // cache by now: fetch what its lookups will read next, the parent of each
-                // (or the area of its node at a root). Measured to help only on maps too large
-                // to carry the neighbour bytes in their keys (8192^2: the sweep's median of 12
-                // interleaved runs 1.56 s against 1.80 s); on smaller ones those reads mostly
-                // hit the cache and the extra work costs 10-20%.
+                // (or the area of its node at a root). Measured to help only on maps above
+                // 2^24 pixels (wide keys; 8192^2: the sweep's median of 12 interleaved runs
+                // 1.56 s against 1.80 s); on smaller ones those reads mostly hit the cache and
+                // the extra work costs 10-20%.
                 let (q, group) = ahead_groups(step + AHEAD2);
                 for &j in &group[1..=group[0] as usize] {
                     let c = cells[q.wrapping_add(delta[j as usize] as usize)];
@@ -931,12 +895,8 @@ fn sweep_sorted<const PACKED: bool>(
             }
             // SAFETY: as above; bucket `b` is sorted and only this thread uses it now.
             let key = unsafe { keys.add(step).read() };
-            let (p, mask) = if PACKED {
-                ((key as u32 >> 8) as usize, key as u8)
-            } else {
-                (key as u32 as usize, masks[key as u32 as usize])
-            };
-            let v = from_order_key(!((key >> 32) as u32));
+            let (p, mask) = (pixel(key), key as u8);
+            let v = from_order_key(!bits.value_half(b, key));
             // Distinct components among the neighbours visited before p (the bits of its mask),
             // one lookup per group of adjacent ones.
             let mut roots = [0u32; 4];

@@ -70,13 +70,11 @@
 //! Besides the map: 8 bytes per considered pixel for the keys (each bucket is sorted in place
 //! through a scratch buffer of one bucket per thread), one 4-byte cell per pixel during the
 //! sweep (the union-find link, or the open node at a component root; small so that as much of
-//! the map as possible stays in cache for the spatially random sweep), on maps above 2^24
-//! pixels one byte per pixel saying which neighbours come earlier in the pixel order (smaller
-//! maps carry it in the keys), plus 28 bytes per candidate peak (regional maximum) met. The sweep writes each pixel's visiting node into the high half of
-//! its key, which it has just read; the cells then become the 4-byte label array in place and
-//! the labels are scattered from the keys. So the peak is about map + 12 bytes per pixel (13
-//! above 2^24 pixels), during the sweep. Moment sums are
-//! gathered after the sweep from the label map, for the accepted structures only (absorbed
+//! the map as possible stays in cache for the spatially random sweep), plus 28 bytes per
+//! candidate peak (regional maximum) met. The sweep writes each pixel's visiting node into the
+//! high half of its key, which it has just read; the cells then become the 4-byte label array
+//! in place and the labels are scattered from the keys. So the peak is about map + 12 bytes
+//! per pixel, during the sweep. Moment sums are gathered after the sweep from the label map, for the accepted structures only (absorbed
 //! candidates never carry sums), in row blocks fixed by the map size so that sums do not
 //! depend on the thread count; each block holds sums only for the structures it meets.
 //! Each structure's sums are taken about its peak pixel (a child's are moved to its
@@ -93,11 +91,12 @@
 //!   sorts it, and the sweep reads a bucket only once it is sorted, so the order, and every
 //!   result, is that of a full sort before the sweep;
 //! * the earlier-neighbour bytes are computed in parallel in raster order before the sweep,
-//!   so it never tests unvisited cells nor needs the pixel's row and column; on maps of up
-//!   to 2^24 pixels each byte rides in the low half of its pixel's key (`index << 8 |
-//!   byte`), read in order, and the bytes are made row by row while the keys are scattered
-//!   into their buckets (sixteen pixels at a time with SSE2 on x86-64); larger maps keep the
-//!   bytes in their own array;
+//!   so it never tests unvisited cells nor needs the pixel's row and column: each byte rides
+//!   in the low bits of its pixel's key (`index << 8 | byte`), read in order, and the bytes
+//!   are made row by row while the keys are scattered into their buckets (sixteen pixels at
+//!   a time with SSE2 on x86-64). Maps of up to 2^24 pixels keep the whole 32-bit value
+//!   above; larger ones, whose indices need more bits, only the value bits below the bucket
+//!   digit (at most 20 of them, the bucket giving the rest), so no map needs a byte array;
 //! * two visited pixels that touch are always in one component already (the later was joined
 //!   to the earlier when it was visited), so the sweep looks up the union-find root of only
 //!   one neighbour per group of earlier neighbours that touch each other, from a table of the

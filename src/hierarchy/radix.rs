@@ -2,11 +2,12 @@
 //! before the sort ends.
 //!
 //! A parallel pass scatters the keys into buckets by the most significant bits in which their
-//! values differ ([`bucketed_keys`]); each bucket is then sorted on the remaining bits by a
-//! least-significant-digit radix sort in the processor's cache ([`sort_bucket`]), bucket
-//! after bucket, while the sweep works through the buckets already sorted. Keys are built in
-//! increasing linear index and every pass is stable, so only the 32-bit value half of a key
-//! needs sorting; digits that are the same for a whole bucket are skipped. The sorted array of
+//! values differ ([`bucketed_keys_packed`], [`bucketed_keys_wide`]); each bucket is then
+//! sorted on the remaining bits by a least-significant-digit radix sort in the processor's
+//! cache ([`sort_bucket`]), bucket after bucket, while the sweep works through the buckets
+//! already sorted. Keys are built in increasing linear index and every pass is stable, so
+//! only the value bits of a key need sorting; digits that are the same for a whole bucket are
+//! skipped. The sorted array of
 //! distinct keys is unique, so the result never depends on how the work is split among
 //! threads or on which thread sorts which bucket.
 
@@ -55,10 +56,10 @@ pub(super) fn considered(v: f32, floor32: f32) -> bool {
     v >= floor32
 }
 
-/// Digit `d` of the value half of key `k`.
+/// Digit `d` of the value bits of key `k`, which start at bit `shift`.
 #[inline(always)]
-fn digit(k: u64, d: usize) -> usize {
-    ((k >> (32 + BITS as usize * d)) as usize) & (BUCKETS - 1)
+fn digit(k: u64, shift: u32, d: usize) -> usize {
+    ((k >> (shift as usize + BITS as usize * d)) as usize) & (BUCKETS - 1)
 }
 
 /// Number of pieces the work is cut into: fixed by the size only.
@@ -79,8 +80,38 @@ pub(super) struct Buckets {
     pub(super) keys: Vec<u64>,
     /// Bucket `b` is `keys[starts[b]..starts[b + 1]]`.
     pub(super) starts: Vec<usize>,
+    /// Where the keys keep their value.
+    pub(super) bits: KeyBits,
+}
+
+/// Where the keys of [`Buckets`] keep their value.
+#[derive(Clone, Copy)]
+pub(super) struct KeyBits {
     /// The bits of the value half below the bucket digit, still to be sorted in each bucket.
     pub(super) low_bits: u32,
+    /// The bit of a key where its value bits start: 32 when the key holds the whole value
+    /// half ([`bucketed_keys_packed`]), `8 + index bits` when it holds only
+    /// the `low_bits` below the bucket digit ([`bucketed_keys_wide`]).
+    pub(super) value_shift: u32,
+    /// The bits of the value half above the bucket digit, the same for every key.
+    pub(super) value_prefix: u32,
+}
+
+impl KeyBits {
+    /// The value half (the high half of [`sort_key`]) of a key of bucket `b`.
+    #[inline(always)]
+    pub(super) fn value_half(&self, b: usize, key: u64) -> u32 {
+        if self.value_shift == 32 {
+            (key >> 32) as u32
+        } else {
+            self.value_prefix | ((b as u32) << self.low_bits) | (key >> self.value_shift) as u32
+        }
+    }
+}
+
+/// Bits that hold any index below `npix` (at least one).
+pub(super) fn index_bits(npix: usize) -> u32 {
+    (usize::BITS - npix.saturating_sub(1).leading_zeros()).max(1)
 }
 
 /// Bits of the bucket digit for a map of `npix` pixels: buckets of a few thousand keys on
@@ -90,28 +121,18 @@ fn bucket_bits(npix: usize) -> u32 {
     (npix.max(1).ilog2().saturating_sub(11)).clamp(1, 12)
 }
 
-/// The keys ([`sort_key`]) of the considered pixels of `data` (`ncols` columns) in buckets:
-/// one parallel pass counts the pixels of each bucket, one scatters the keys, each piece of
+/// The keys of the considered pixels of `data` (`ncols` columns) in buckets, for maps of at
+/// most 2^24 pixels: the value half of [`sort_key`] above `index << 8 | byte` (which orders as
+/// the bare index does), a byte per pixel packed into the key. `rows(y)` gives a generator of
+/// the bytes of rows `y`, `y + 1`, ... (one call per row, each filling `ncols` bytes), so the
+/// bytes are made piece by piece while the keys are scattered and never all held at once.
+/// One parallel pass counts the pixels of each bucket, one scatters the keys, each piece of
 /// rows writing its keys of a bucket in index order after those of the pieces before it.
 /// `range` is the lowest and highest considered value (`None` if no pixel is considered).
 ///
 /// The buckets follow the most significant digit of the keys' value half among the bits that
 /// vary between the lowest and the highest considered value, so a map whose values span a
 /// narrow range still spreads over every bucket.
-pub(super) fn bucketed_keys(
-    data: &[f32],
-    ncols: usize,
-    floor: f64,
-    range: Option<(f32, f32)>,
-) -> Buckets {
-    bucketed::<fn(usize) -> fn(&mut [u8]), _>(data, ncols, floor, range, None)
-}
-
-/// [`bucketed_keys`] for maps of at most 2^24 pixels, with a byte per pixel packed into the low
-/// half of its key instead of the bare index: `index << 8 | byte`, which orders the same.
-/// `rows(y)` gives a generator of the bytes of rows `y`, `y + 1`, ... (one call per row, each
-/// filling `ncols` bytes), so the bytes are made piece by piece while the keys are scattered
-/// and never all held at once.
 pub(super) fn bucketed_keys_packed<F, R>(
     data: &[f32],
     ncols: usize,
@@ -124,7 +145,26 @@ where
     R: FnMut(&mut [u8]),
 {
     assert!(data.len() <= 1 << 24);
-    bucketed(data, ncols, floor, range, Some(rows))
+    bucketed(data, ncols, floor, range, rows, false)
+}
+
+/// [`bucketed_keys_packed`] for maps of any size: a key holds only the bits of its value half
+/// below the bucket digit (the bucket gives the rest; see [`KeyBits::value_half`]), above
+/// `index << 8 | byte`. The buckets take 12 bits on maps above 2^24 pixels, so at most 20
+/// value bits, 31 index bits and the byte share the 64 (smaller maps need at most 31, 24
+/// and 8); the keys of a bucket order as the full keys do.
+pub(super) fn bucketed_keys_wide<F, R>(
+    data: &[f32],
+    ncols: usize,
+    floor: f64,
+    range: Option<(f32, f32)>,
+    rows: &F,
+) -> Buckets
+where
+    F: Fn(usize) -> R + Sync,
+    R: FnMut(&mut [u8]),
+{
+    bucketed(data, ncols, floor, range, rows, true)
 }
 
 fn bucketed<F, R>(
@@ -132,7 +172,8 @@ fn bucketed<F, R>(
     ncols: usize,
     floor: f64,
     range: Option<(f32, f32)>,
-    rows: Option<&F>,
+    rows: &F,
+    wide: bool,
 ) -> Buckets
 where
     F: Fn(usize) -> R + Sync,
@@ -155,6 +196,10 @@ where
     let low_bits = span - bits;
     let nb = 1usize << bits;
     let bucket = move |k: u64| (((k >> 32) as u32 >> low_bits) as usize) & (nb - 1);
+    let value_prefix = if span == 32 { 0 } else { first >> span << span };
+    let value_shift = if wide { 8 + index_bits(npix) } else { 32 };
+    assert!(!wide || value_shift + low_bits <= 64);
+    let low_mask = (1u64 << low_bits) - 1;
     // Pieces of whole rows (their number fixed by the size only).
     let m = pieces(npix);
     let piece_rows = |c: usize| (piece_start(nrows, m, c), piece_start(nrows, m, c + 1));
@@ -188,31 +233,27 @@ where
     let out = Out(keys.as_mut_ptr());
     off.into_par_iter().enumerate().for_each(|(c, mut o)| {
         let (y0, y1) = piece_rows(c);
-        let mut put = |k: u64| {
-            let bk = bucket(k);
+        // Key `k` into bucket `bk`.
+        let mut put = |bk: usize, k: u64| {
             // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
             unsafe { out.write(o[bk], k) };
             o[bk] += 1;
         };
-        match rows {
-            Some(rows) => {
-                let mut next_row = rows(y0);
-                let mut bytes = vec![0u8; ncols];
-                for y in y0..y1 {
-                    next_row(&mut bytes);
-                    let row = &data[y * ncols..(y + 1) * ncols];
-                    for (x, (&v, &byte)) in row.iter().zip(&bytes).enumerate() {
-                        if considered(v, floor) {
-                            let i = (y * ncols + x) as u32;
-                            put(sort_key(v, 0) | u64::from(i << 8 | u32::from(byte)));
-                        }
-                    }
-                }
-            }
-            None => {
-                for (i, &v) in data[y0 * ncols..y1 * ncols].iter().enumerate() {
-                    if considered(v, floor) {
-                        put(sort_key(v, y0 * ncols + i));
+        let mut next_row = rows(y0);
+        let mut bytes = vec![0u8; ncols];
+        for y in y0..y1 {
+            next_row(&mut bytes);
+            let row = &data[y * ncols..(y + 1) * ncols];
+            for (x, (&v, &byte)) in row.iter().zip(&bytes).enumerate() {
+                if considered(v, floor) {
+                    let i = (y * ncols + x) as u64;
+                    let k = sort_key(v, 0);
+                    let low = i << 8 | u64::from(byte);
+                    if wide {
+                        // The bucket holds the value bits above `low_bits`.
+                        put(bucket(k), ((k >> 32) & low_mask) << value_shift | low);
+                    } else {
+                        put(bucket(k), k | low);
                     }
                 }
             }
@@ -223,18 +264,23 @@ where
     Buckets {
         keys,
         starts,
-        low_bits,
+        bits: KeyBits {
+            low_bits,
+            value_shift,
+            value_prefix,
+        },
     }
 }
 
 /// Buckets of at most this many keys are sorted by insertion.
 const SMALL_BUCKET: usize = 32;
 
-/// Sorts one bucket of [`bucketed_keys`] on the `low_bits` lowest bits of the keys' value
-/// half: a least-significant-digit radix sort (8-bit digits, each pass stable, digits the
-/// same for the whole bucket skipped), so keys of equal value stay in index order. `scratch`
-/// is reused between buckets.
-pub(super) fn sort_bucket(keys: &mut [u64], low_bits: u32, scratch: &mut Vec<u64>) {
+/// Sorts one bucket of [`bucketed_keys_packed`] or [`bucketed_keys_wide`] on its keys'
+/// `low_bits` lowest value bits: a least-significant-digit radix sort (8-bit digits, each
+/// pass stable, digits the same for the whole bucket skipped), so keys of equal value stay in
+/// index order. `scratch` is reused between buckets.
+pub(super) fn sort_bucket(keys: &mut [u64], bits: KeyBits, scratch: &mut Vec<u64>) {
+    let (low_bits, shift) = (bits.low_bits, bits.value_shift);
     let n = keys.len();
     if n <= 1 || low_bits == 0 {
         return;
@@ -256,7 +302,7 @@ pub(super) fn sort_bucket(keys: &mut [u64], low_bits: u32, scratch: &mut Vec<u64
     let mut hist = [[0u32; BUCKETS]; DIGITS];
     for &k in keys.iter() {
         for (d, h) in hist[..passes].iter_mut().enumerate() {
-            h[digit(k, d)] += 1;
+            h[digit(k, shift, d)] += 1;
         }
     }
     if scratch.len() < n {
@@ -280,7 +326,7 @@ pub(super) fn sort_bucket(keys: &mut [u64], low_bits: u32, scratch: &mut Vec<u64
             (scratch, keys)
         };
         for &k in src {
-            let b = digit(k, d);
+            let b = digit(k, shift, d);
             dst[off[b] as usize] = k;
             off[b] += 1;
         }
@@ -295,15 +341,16 @@ pub(super) fn sort_bucket(keys: &mut [u64], low_bits: u32, scratch: &mut Vec<u64
 mod tests {
     use super::*;
 
-    /// The keys ([`sort_key`]) of the considered pixels of `data`, in increasing order.
-    fn sorted_keys(data: &[f32], ncols: usize, floor: f64) -> Vec<u64> {
-        let range = value_range(data, floor_f32(floor));
-        sort_all(bucketed_keys(data, ncols, floor, range))
-    }
-
-    /// [`sorted_keys`] with each pixel's byte of `bytes` packed into the low half of its key:
-    /// `index << 8 | byte`, the bytes handed over row by row.
-    fn sorted_keys_packed(data: &[f32], ncols: usize, floor: f64, bytes: &[u8]) -> Vec<u64> {
+    /// The considered pixels of `data` in the sweep's order, as (value half of [`sort_key`],
+    /// index, byte) decoded from the sorted buckets, the bytes of `bytes` handed over row by
+    /// row: the packed layout (at most 2^24 pixels) or the wide one.
+    fn sorted(
+        data: &[f32],
+        ncols: usize,
+        floor: f64,
+        bytes: &[u8],
+        wide: bool,
+    ) -> Vec<(u32, u32, u8)> {
         let range = value_range(data, floor_f32(floor));
         let rows = |y0: usize| {
             let mut y = y0;
@@ -312,17 +359,30 @@ mod tests {
                 y += 1;
             }
         };
-        sort_all(bucketed_keys_packed(data, ncols, floor, range, &rows))
-    }
-
-    /// Every bucket sorted in turn.
-    fn sort_all(mut b: Buckets) -> Vec<u64> {
+        let mut b = if wide {
+            bucketed_keys_wide(data, ncols, floor, range, &rows)
+        } else {
+            bucketed_keys_packed(data, ncols, floor, range, &rows)
+        };
+        let index_mask = if wide {
+            (1u64 << index_bits(data.len())) - 1
+        } else {
+            (1 << 24) - 1
+        };
         let mut scratch = Vec::new();
+        let mut out = Vec::new();
         for i in 0..b.starts.len() - 1 {
             let (a, e) = (b.starts[i], b.starts[i + 1]);
-            sort_bucket(&mut b.keys[a..e], b.low_bits, &mut scratch);
+            sort_bucket(&mut b.keys[a..e], b.bits, &mut scratch);
+            for &k in &b.keys[a..e] {
+                out.push((
+                    b.bits.value_half(i, k),
+                    ((k >> 8) & index_mask) as u32,
+                    k as u8,
+                ));
+            }
         }
-        b.keys
+        out
     }
 
     /// The lowest and highest values of the considered pixels (`None` if there are none).
@@ -344,7 +404,8 @@ mod tests {
         (lo <= hi).then_some((lo, hi))
     }
 
-    fn reference(data: &[f32], floor: f64) -> Vec<u64> {
+    /// The order by a comparison sort of the full keys, as (value half, index, byte).
+    fn reference(data: &[f32], floor: f64, bytes: &[u8]) -> Vec<(u32, u32, u8)> {
         let mut k: Vec<u64> = data
             .iter()
             .enumerate()
@@ -352,7 +413,9 @@ mod tests {
             .map(|(i, &v)| sort_key(v, i))
             .collect();
         k.sort_unstable();
-        k
+        k.iter()
+            .map(|&k| ((k >> 32) as u32, k as u32, bytes[k as u32 as usize]))
+            .collect()
     }
 
     #[test]
@@ -438,26 +501,16 @@ mod tests {
                         }
                     })
                     .collect();
+                let bytes: Vec<u8> = (0..n).map(|i| (i * 37 % 256) as u8).collect();
                 for &floor in &[f64::NEG_INFINITY, 0.0, 1e21, f64::INFINITY] {
-                    let want = reference(&data, floor);
-                    assert_eq!(
-                        sorted_keys(&data, ncols, floor),
-                        want,
-                        "n {n} x {ncols} kind {kind} floor {floor}"
-                    );
-                    let bytes: Vec<u8> = (0..n).map(|i| (i * 37 % 256) as u8).collect();
-                    let packed: Vec<u64> = want
-                        .iter()
-                        .map(|&k| {
-                            let i = k as u32 as usize;
-                            (k & !0xffff_ffff) | ((i as u64) << 8) | bytes[i] as u64
-                        })
-                        .collect();
-                    assert_eq!(
-                        sorted_keys_packed(&data, ncols, floor, &bytes),
-                        packed,
-                        "packed n {n} kind {kind} floor {floor}"
-                    );
+                    let want = reference(&data, floor, &bytes);
+                    for wide in [false, true] {
+                        assert_eq!(
+                            sorted(&data, ncols, floor, &bytes, wide),
+                            want,
+                            "n {n} x {ncols} kind {kind} floor {floor} wide {wide}"
+                        );
+                    }
                     if n > 1000 && floor == 0.0 {
                         for threads in [1, 3] {
                             let pool = rayon::ThreadPoolBuilder::new()
@@ -465,7 +518,7 @@ mod tests {
                                 .build()
                                 .unwrap();
                             assert_eq!(
-                                pool.install(|| sorted_keys(&data, ncols, floor)),
+                                pool.install(|| sorted(&data, ncols, floor, &bytes, true)),
                                 want,
                                 "n {n} kind {kind} threads {threads}"
                             );

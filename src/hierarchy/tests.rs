@@ -268,10 +268,10 @@ fn order_keys_sort_values_and_decode_back() {
     }
 }
 
-/// The two ways the sweep reads the earlier-neighbour bytes (packed in the keys for maps of up
-/// to 2^24 pixels, a separate array above) give identical hierarchies.
+/// The two layouts of the keys (the whole value half on maps of up to 2^24 pixels, only its bits
+/// below the bucket digit above, where the index needs more bits) give identical hierarchies.
 #[test]
-fn packed_and_separate_neighbour_bytes_agree() {
+fn packed_and_wide_keys_agree() {
     let mut lcg = crate::hierarchy::test_lcg(99);
     let mut next = || (lcg() >> 40) as f32 / (1u64 << 24) as f32;
     for (ny, nx, levels) in [(40, 37, 0u32), (64, 64, 7), (1, 50, 0), (33, 1, 3)] {
@@ -303,7 +303,7 @@ fn packed_and_separate_neighbour_bytes_agree() {
 
 /// On a map large enough for hundreds of buckets of keys, the hierarchy is the same whether the
 /// buckets are sorted by the sweeping thread alone (a pool of one thread) or partly by a second
-/// thread ahead of the sweep, and whether the neighbour bytes ride in the keys or not.
+/// thread ahead of the sweep, and whichever layout the keys have.
 #[test]
 fn buckets_sorted_beside_the_sweep_give_the_same_hierarchy() {
     let mut lcg = crate::hierarchy::test_lcg(5);
