@@ -246,6 +246,7 @@ pub(super) fn build_impl(
         }
     }
     let accepted: Vec<bool> = (0..nn)
+        .into_par_iter()
         .map(|n| {
             let nd = &nodes[n];
             nd.alias == n as u32
@@ -270,11 +271,14 @@ pub(super) fn build_impl(
             .cmp(&sort_key(nb.peak_val, nb.peak as usize))
             .then(depth[a as usize].cmp(&depth[b as usize]))
     });
-    let mut node_id = vec![-1i32; nn];
+    let mut node_id = pages::filled(nn, -1i32);
     for (id, &n) in order.iter().enumerate() {
         node_id[n as usize] = id as i32;
     }
-    let label_of: Vec<i32> = (0..nn).map(|n| node_id[nodes[n].alias as usize]).collect();
+    let label_of: Vec<i32> = nodes
+        .par_iter()
+        .map(|nd| node_id[nd.alias as usize])
+        .collect();
     // The cells become the labels. A pixel never visited still holds UNVISITED, which reads
     // as -1 (no structure); every visited pixel gets its label from the node the sweep left
     // beside its key.
