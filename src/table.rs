@@ -281,27 +281,33 @@ fn exact_digits(x: f64) -> Option<(u128, usize)> {
     Some((e, e.ilog10() as usize + 1))
 }
 
-/// Rows of CSV or VOTable text gathered before they are written out.
+/// Rows of CSV and VOTable text made as one piece.
 const PIECE_ROWS: usize = 256;
+/// Pieces made at once (in parallel) before they are written out, so that neither document is
+/// ever whole in memory.
+const BATCH_PIECES: usize = 32;
 
-/// The formatted cells of one column, packed: cell `r` is `text[ends[r - 1]..ends[r]]`.
-struct Cells {
-    text: String,
-    ends: Vec<usize>,
-}
+/// The end of a VOTable document after its rows.
+const VOTABLE_END: &str = "</TABLEDATA></DATA>\n</TABLE>\n</RESOURCE>\n</VOTABLE>\n";
 
-impl Cells {
-    fn with_rows(n: usize) -> Self {
-        Cells {
-            text: String::with_capacity(n * 12),
-            ends: Vec::with_capacity(n),
+/// Appends the decimal text of `x`, as `{x}` would write it.
+fn push_i64(s: &mut String, x: i64) {
+    let mut buf = [0u8; 20];
+    let mut i = buf.len();
+    let mut u = x.unsigned_abs();
+    loop {
+        i -= 1;
+        buf[i] = b'0' + (u % 10) as u8;
+        u /= 10;
+        if u == 0 {
+            break;
         }
     }
-
-    fn get(&self, r: usize) -> &str {
-        let a = if r == 0 { 0 } else { self.ends[r - 1] };
-        &self.text[a..self.ends[r]]
+    if x < 0 {
+        s.push('-');
     }
+    // Only ASCII digits were written.
+    s.push_str(std::str::from_utf8(&buf[i..]).unwrap_or_default());
 }
 
 fn csv_field(s: &str) -> String {
@@ -390,71 +396,130 @@ impl Table {
         self.columns.iter().find(|c| c.name == name)
     }
 
-    /// The table as CSV with a commented header.
+    /// The table as CSV with a commented header, built whole, one cell at a time (the
+    /// reference for [`Table::write_csv_and_votable`], which makes the same text in pieces).
     pub fn to_csv(&self) -> String {
-        let mut out = Vec::new();
-        self.csv_to(&self.numeric_cells(), &mut out)
-            .expect("writing to memory cannot fail");
-        String::from_utf8(out).expect("the CSV is built from strings")
+        let mut s = self.csv_header();
+        for r in 0..self.nrows() {
+            let cells: Vec<String> = self
+                .columns
+                .iter()
+                .map(|c| match &c.values {
+                    Values::F64(v) => fmt_f64(v[r]),
+                    Values::I64(v) => v[r].to_string(),
+                    Values::Text(v) => csv_field(&v[r]),
+                    Values::Bool(v) => v[r].to_string(),
+                })
+                .collect();
+            s.push_str(&cells.join(","));
+            s.push('\n');
+        }
+        s
     }
 
-    /// The table as a VOTable 1.4 document.
+    /// The table as a VOTable 1.4 document, built whole, one cell at a time (the reference for
+    /// [`Table::write_csv_and_votable`], which makes the same text in pieces).
     pub fn to_votable(&self) -> String {
-        let mut out = Vec::new();
-        self.votable_to(&self.numeric_cells(), &mut out)
-            .expect("writing to memory cannot fail");
-        String::from_utf8(out).expect("the VOTable is built from strings")
+        let mut s = self.votable_header();
+        for r in 0..self.nrows() {
+            s.push_str("<TR>");
+            for c in &self.columns {
+                let cell = match &c.values {
+                    Values::F64(v) if v[r].is_nan() => "NaN".to_string(),
+                    Values::F64(v) => fmt_f64(v[r]),
+                    Values::I64(v) => v[r].to_string(),
+                    Values::Text(v) => {
+                        let mut t = String::new();
+                        push_xml_escaped(&mut t, &v[r]);
+                        t
+                    }
+                    Values::Bool(v) => (if v[r] { "T" } else { "F" }).to_string(),
+                };
+                s.push_str(&format!("<TD>{cell}</TD>"));
+            }
+            s.push_str("</TR>\n");
+        }
+        s.push_str(VOTABLE_END);
+        s
     }
 
     /// Writes the CSV and VOTable forms to `csv` and `votable` (which must be new files; see
-    /// [`crate::output`]): each number is formatted once, the columns in parallel, and the two
-    /// files are written concurrently, in pieces, so neither document is ever whole in
-    /// memory. The files hold exactly `self.to_csv()` and `self.to_votable()`.
+    /// [`crate::output`]): the rows in pieces, the pieces of a batch made in parallel, each
+    /// number formatted once into the CSV text and copied from there into the VOTable's, so
+    /// neither document is ever whole in memory. The files hold exactly `self.to_csv()` and
+    /// `self.to_votable()`.
     pub fn write_csv_and_votable(&self, csv: &Path, votable: &Path) -> Result<()> {
-        let cells = self.numeric_cells();
-        let write = |path: &Path, votable: bool| -> Result<()> {
-            let fail = |e: std::io::Error| Error::output(path, format!("cannot be written ({e})."));
-            let mut f = std::fs::File::create(path).map_err(fail)?;
-            if votable {
-                self.votable_to(&cells, &mut f).map_err(fail)
-            } else {
-                self.csv_to(&cells, &mut f).map_err(fail)
-            }
-        };
-        let (a, b) = rayon::join(|| write(csv, false), || write(votable, true));
-        a.and(b)
-    }
-
-    /// The text of every number of every numeric column (NaN as an empty string), one
-    /// packed string per column; `None` for text and flag columns.
-    fn numeric_cells(&self) -> Vec<Option<Cells>> {
         use rayon::prelude::*;
-        self.columns
-            .par_iter()
-            .map(|c| match &c.values {
-                Values::F64(v) => {
-                    let mut cells = Cells::with_rows(v.len());
-                    for &x in v {
-                        push_f64(&mut cells.text, x);
-                        cells.ends.push(cells.text.len());
-                    }
-                    Some(cells)
-                }
-                Values::I64(v) => {
-                    let mut cells = Cells::with_rows(v.len());
-                    for &x in v {
-                        let _ = write!(cells.text, "{x}");
-                        cells.ends.push(cells.text.len());
-                    }
-                    Some(cells)
-                }
-                Values::Text(_) | Values::Bool(_) => None,
-            })
-            .collect()
+        use std::io::Write as _;
+        fn failed(path: &Path) -> impl Fn(std::io::Error) -> Error + '_ {
+            move |e| Error::output(path, format!("cannot be written ({e})."))
+        }
+        let (fail_c, fail_v) = (failed(csv), failed(votable));
+        let mut fc = std::fs::File::create(csv).map_err(&fail_c)?;
+        let mut fv = std::fs::File::create(votable).map_err(&fail_v)?;
+        fc.write_all(self.csv_header().as_bytes())
+            .map_err(&fail_c)?;
+        fv.write_all(self.votable_header().as_bytes())
+            .map_err(&fail_v)?;
+        let n = self.nrows();
+        let batch = PIECE_ROWS * BATCH_PIECES;
+        for b0 in (0..n).step_by(batch) {
+            let b1 = (b0 + batch).min(n);
+            let pieces: Vec<(String, String)> = (b0..b1)
+                .step_by(PIECE_ROWS)
+                .collect::<Vec<_>>()
+                .into_par_iter()
+                .map(|r0| self.rows_text(r0..(r0 + PIECE_ROWS).min(b1)))
+                .collect();
+            for (c, v) in &pieces {
+                fc.write_all(c.as_bytes()).map_err(&fail_c)?;
+                fv.write_all(v.as_bytes()).map_err(&fail_v)?;
+            }
+        }
+        fv.write_all(VOTABLE_END.as_bytes()).map_err(fail_v)
     }
 
-    /// Writes the CSV form to `w`, a piece at a time.
-    fn csv_to(&self, cells: &[Option<Cells>], w: &mut impl std::io::Write) -> std::io::Result<()> {
+    /// The CSV and the VOTable text of rows `rows`: each number formatted once, into the CSV
+    /// text, and copied from there.
+    fn rows_text(&self, rows: std::ops::Range<usize>) -> (String, String) {
+        let mut csv = String::with_capacity(rows.len() * self.columns.len() * 16);
+        let mut vot = String::with_capacity(rows.len() * self.columns.len() * 26);
+        for r in rows {
+            vot.push_str("<TR>");
+            for (i, c) in self.columns.iter().enumerate() {
+                if i > 0 {
+                    csv.push(',');
+                }
+                vot.push_str("<TD>");
+                let at = csv.len();
+                match &c.values {
+                    Values::F64(v) => {
+                        push_f64(&mut csv, v[r]);
+                        vot.push_str(if csv.len() == at { "NaN" } else { &csv[at..] });
+                    }
+                    Values::I64(v) => {
+                        push_i64(&mut csv, v[r]);
+                        vot.push_str(&csv[at..]);
+                    }
+                    Values::Text(v) => {
+                        push_csv_field(&mut csv, &v[r]);
+                        push_xml_escaped(&mut vot, &v[r]);
+                    }
+                    Values::Bool(v) => {
+                        csv.push_str(if v[r] { "true" } else { "false" });
+                        vot.push(if v[r] { 'T' } else { 'F' });
+                    }
+                }
+                vot.push_str("</TD>");
+            }
+            csv.push('\n');
+            vot.push_str("</TR>\n");
+        }
+        (csv, vot)
+    }
+
+    /// The CSV's commented header and its line of column names.
+    fn csv_header(&self) -> String {
         let mut s = String::new();
         let _ = writeln!(
             s,
@@ -482,41 +547,11 @@ impl Table {
         }
         let header: Vec<String> = self.columns.iter().map(|c| csv_field(&c.name)).collect();
         let _ = writeln!(s, "{}", header.join(","));
-        let width: usize = cells
-            .iter()
-            .map(|c| {
-                c.as_ref()
-                    .map_or(8, |c| c.text.len() / c.ends.len().max(1) + 1)
-            })
-            .sum();
-        s.reserve(width * self.nrows().min(PIECE_ROWS));
-        for r in 0..self.nrows() {
-            if r % PIECE_ROWS == 0 && r > 0 {
-                w.write_all(s.as_bytes())?;
-                s.clear();
-            }
-            for (i, (c, cell)) in self.columns.iter().zip(cells).enumerate() {
-                if i > 0 {
-                    s.push(',');
-                }
-                match (&c.values, cell) {
-                    (_, Some(cell)) => s.push_str(cell.get(r)),
-                    (Values::Text(v), None) => push_csv_field(&mut s, &v[r]),
-                    (Values::Bool(v), None) => s.push_str(if v[r] { "true" } else { "false" }),
-                    _ => unreachable!("numeric columns are formatted"),
-                }
-            }
-            s.push('\n');
-        }
-        w.write_all(s.as_bytes())
+        s
     }
 
-    /// Writes the VOTable form to `w`, a piece at a time.
-    fn votable_to(
-        &self,
-        cells: &[Option<Cells>],
-        w: &mut impl std::io::Write,
-    ) -> std::io::Result<()> {
+    /// The VOTable document up to its first row.
+    fn votable_header(&self) -> String {
         fn esc(s: &str) -> String {
             let mut out = String::new();
             push_xml_escaped(&mut out, s);
@@ -574,30 +609,7 @@ impl Table {
             );
         }
         s.push_str("<DATA><TABLEDATA>\n");
-        for r in 0..self.nrows() {
-            if r % PIECE_ROWS == 0 && r > 0 {
-                w.write_all(s.as_bytes())?;
-                s.clear();
-            }
-            s.push_str("<TR>");
-            for (c, cell) in self.columns.iter().zip(cells) {
-                s.push_str("<TD>");
-                match (&c.values, cell) {
-                    (Values::F64(_), Some(cell)) => {
-                        let t = cell.get(r);
-                        s.push_str(if t.is_empty() { "NaN" } else { t });
-                    }
-                    (_, Some(cell)) => s.push_str(cell.get(r)),
-                    (Values::Text(v), None) => push_xml_escaped(&mut s, &v[r]),
-                    (Values::Bool(v), None) => s.push_str(if v[r] { "T" } else { "F" }),
-                    _ => unreachable!("numeric columns are formatted"),
-                }
-                s.push_str("</TD>");
-            }
-            s.push_str("</TR>\n");
-        }
-        s.push_str("</TABLEDATA></DATA>\n</TABLE>\n</RESOURCE>\n</VOTABLE>\n");
-        w.write_all(s.as_bytes())
+        s
     }
 
     /// Writes the table as a FITS file: an empty primary HDU and one binary-table extension.
@@ -751,23 +763,44 @@ mod tests {
     }
 
     /// The files written in pieces hold exactly the documents built whole, for tables of
-    /// fewer, exactly as many and more rows than one piece.
+    /// fewer, exactly as many and more rows than one piece and than one batch of pieces.
     #[test]
     fn files_written_in_pieces_equal_the_whole_documents() {
         let dir = tempfile::tempdir().unwrap();
-        for n in [0, 1, PIECE_ROWS, PIECE_ROWS + 1, 3 * PIECE_ROWS + 17] {
+        let batch = PIECE_ROWS * BATCH_PIECES;
+        for n in [
+            0,
+            1,
+            PIECE_ROWS,
+            PIECE_ROWS + 1,
+            3 * PIECE_ROWS + 17,
+            batch,
+            batch + 5,
+        ] {
             let mut t = Table {
                 name: "STRUCTURES".into(),
                 ..Default::default()
             };
-            t.push_i64("id", "", "structure id", (0..n as i64).collect());
+            t.push_i64(
+                "id",
+                "",
+                "structure id",
+                (0..n as i64).map(|i| i - 3).collect(),
+            );
             t.push_f64(
                 "x",
                 "pix",
                 "position",
-                (0..n).map(|i| i as f64 / 7.0).collect(),
+                (0..n)
+                    .map(|i| if i % 5 == 2 { f64::NAN } else { i as f64 / 7.0 })
+                    .collect(),
             );
-            t.push_text("kind", "what", (0..n).map(|i| format!("k<{i}>")).collect());
+            t.push_text(
+                "kind",
+                "what",
+                (0..n).map(|i| format!("k<{i}>, \"")).collect(),
+            );
+            t.push_bool("edge", "at the edge", (0..n).map(|i| i % 3 == 0).collect());
             let (csv, vot) = (dir.path().join("t.csv"), dir.path().join("t.vot"));
             let _ = (std::fs::remove_file(&csv), std::fs::remove_file(&vot));
             t.write_csv_and_votable(&csv, &vot).unwrap();
@@ -781,6 +814,31 @@ mod tests {
                 t.to_votable(),
                 "{n} rows"
             );
+        }
+    }
+
+    /// Integers as the standard library writes them, the extremes included.
+    #[test]
+    fn integer_text_equals_the_standard_formatting() {
+        let mut next = crate::hierarchy::test_lcg(7);
+        let mut values = vec![
+            0i64,
+            1,
+            -1,
+            9,
+            10,
+            -10,
+            99,
+            100,
+            i64::MAX,
+            i64::MIN,
+            i64::MIN + 1,
+        ];
+        values.extend((0..10_000).map(|_| next() as i64 >> (next() % 64)));
+        for x in values {
+            let mut s = String::from("x");
+            push_i64(&mut s, x);
+            assert_eq!(s, format!("x{x}"));
         }
     }
 
