@@ -236,7 +236,7 @@ pub(super) fn build_impl(
     for n in 0..nn as u32 {
         find_alias(&mut nodes, n);
     }
-    let mut has_child = vec![false; nn];
+    let mut has_child = pages::filled(nn, false);
     for n in 0..nn {
         let nd = nodes[n];
         if nd.alias == n as u32 && nd.parent != NONE {
@@ -258,7 +258,7 @@ pub(super) fn build_impl(
         .collect();
     // Parents are always created after their children, so a descending sweep sees parents
     // first.
-    let mut depth = vec![0u32; nn];
+    let mut depth = pages::filled(nn, 0u32);
     for n in (0..nn).rev() {
         if accepted[n] && nodes[n].parent != NONE {
             depth[n] = depth[nodes[n].parent as usize] + 1;
@@ -773,6 +773,7 @@ fn sweep<const PACKED: bool>(
     let radix::Buckets {
         mut keys,
         starts,
+        peaks,
         bits,
     } = buckets;
     let nb = starts.len() - 1;
@@ -782,6 +783,26 @@ fn sweep<const PACKED: bool>(
         state: (0..nb).map(|_| AtomicU8::new(UNSORTED)).collect(),
         bits,
     };
+    // Every node starts a component at a pixel with no earlier neighbour (`peaks` of them) or
+    // joins two or more components into one (fewer than `peaks`), so `2 peaks` is room
+    // enough; about 99.5% of the nodes of the synthetic maps are of the first kind, so a little
+    // more than `peaks` of them are faulted in before the sweep.
+    let (cap, touch) = (2 * peaks, peaks + peaks / 64 + 64);
+    let nodes: Vec<Node> = pages::reserved(
+        cap,
+        touch,
+        Node {
+            alias: 0,
+            peak: 0,
+            peak_val: 0.0,
+            parent: NONE,
+            level: 0.0,
+            merge: 0.0,
+        },
+    );
+    // The areas apart from the nodes: the sweep touches a component's area at every pixel and
+    // the rest of its node only at merges, so the areas stay dense in cache.
+    let areas: Vec<u32> = pages::reserved(cap, touch, 0);
     let (nodes, areas) = rayon::in_place_scope(|scope| {
         if nb > 1 && rayon::current_num_threads() > 1 {
             scope.spawn(|_| {
@@ -794,24 +815,23 @@ fn sweep<const PACKED: bool>(
         } else {
             core_free();
         }
-        sweep_sorted::<PACKED>(cells, ncols, &pipe, params, progress)
+        sweep_sorted::<PACKED>(cells, ncols, &pipe, params, progress, nodes, areas)
     });
     (nodes, areas, keys)
 }
 
-/// The sweep proper: the buckets of `pipe` in order, each once it is sorted.
+/// The sweep proper: the buckets of `pipe` in order, each once it is sorted. `nodes` and
+/// `areas` come empty, with room reserved.
 fn sweep_sorted<const PACKED: bool>(
     cells: &mut [u32],
     ncols: usize,
     pipe: &Pipeline,
     params: &Params,
     progress: &dyn Fn(f64),
+    mut nodes: Vec<Node>,
+    mut areas: Vec<u32>,
 ) -> (Vec<Node>, Vec<u32>) {
     let npix = cells.len();
-    let mut nodes: Vec<Node> = Vec::new();
-    // The areas apart from the nodes: the sweep touches a component's area at every pixel and
-    // the rest of its node only at merges, so the areas stay dense in cache.
-    let mut areas: Vec<u32> = Vec::new();
     let min_area = params.min_area;
     let prominence = params.prominence;
     let delta = neighbour_steps(ncols);

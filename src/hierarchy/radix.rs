@@ -80,6 +80,9 @@ pub(super) struct Buckets {
     pub(super) keys: Vec<u64>,
     /// Bucket `b` is `keys[starts[b]..starts[b + 1]]`.
     pub(super) starts: Vec<usize>,
+    /// How many keys have a zero byte: considered pixels with no earlier neighbour, each of
+    /// which starts a component (a candidate peak) in the sweep.
+    pub(super) peaks: usize,
     /// Where the keys keep their value.
     pub(super) bits: KeyBits,
 }
@@ -231,39 +234,47 @@ where
     let n = at;
     let mut keys: Vec<u64> = Vec::with_capacity(n);
     let out = Out(keys.as_mut_ptr());
-    off.into_par_iter().enumerate().for_each(|(c, mut o)| {
-        let (y0, y1) = piece_rows(c);
-        // Key `k` into bucket `bk`.
-        let mut put = |bk: usize, k: u64| {
-            // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
-            unsafe { out.write(o[bk], k) };
-            o[bk] += 1;
-        };
-        let mut next_row = rows(y0);
-        let mut bytes = vec![0u8; ncols];
-        for y in y0..y1 {
-            next_row(&mut bytes);
-            let row = &data[y * ncols..(y + 1) * ncols];
-            for (x, (&v, &byte)) in row.iter().zip(&bytes).enumerate() {
-                if considered(v, floor) {
-                    let i = (y * ncols + x) as u64;
-                    let k = sort_key(v, 0);
-                    let low = i << 8 | u64::from(byte);
-                    if wide {
-                        // The bucket holds the value bits above `low_bits`.
-                        put(bucket(k), ((k >> 32) & low_mask) << value_shift | low);
-                    } else {
-                        put(bucket(k), k | low);
+    let peaks = off
+        .into_par_iter()
+        .enumerate()
+        .map(|(c, mut o)| {
+            let (y0, y1) = piece_rows(c);
+            let mut peaks = 0;
+            // Key `k` into bucket `bk`.
+            let mut put = |bk: usize, k: u64| {
+                // SAFETY: piece `c` owns positions o[bk].. up to its count in bucket bk.
+                unsafe { out.write(o[bk], k) };
+                o[bk] += 1;
+            };
+            let mut next_row = rows(y0);
+            let mut bytes = vec![0u8; ncols];
+            for y in y0..y1 {
+                next_row(&mut bytes);
+                let row = &data[y * ncols..(y + 1) * ncols];
+                for (x, (&v, &byte)) in row.iter().zip(&bytes).enumerate() {
+                    if considered(v, floor) {
+                        peaks += usize::from(byte == 0);
+                        let i = (y * ncols + x) as u64;
+                        let k = sort_key(v, 0);
+                        let low = i << 8 | u64::from(byte);
+                        if wide {
+                            // The bucket holds the value bits above `low_bits`.
+                            put(bucket(k), ((k >> 32) & low_mask) << value_shift | low);
+                        } else {
+                            put(bucket(k), k | low);
+                        }
                     }
                 }
             }
-        }
-    });
+            peaks
+        })
+        .sum();
     // SAFETY: the pieces wrote every one of the `n` positions (the offsets cover 0..n).
     unsafe { keys.set_len(n) };
     Buckets {
         keys,
         starts,
+        peaks,
         bits: KeyBits {
             low_bits,
             value_shift,
