@@ -105,7 +105,13 @@ pub fn push_f64(s: &mut String, x: f64) {
     // the exponent's `+`.
     if exact_digits(abs).is_none() {
         let plain = (1e-4..1e16).contains(&abs);
-        match text.bytes().position(|c| c == b'e') {
+        // An exponent takes at most five bytes at the end ("e-308"), so only those are searched.
+        let tail = text.len().saturating_sub(5);
+        match text.as_bytes()[tail..]
+            .iter()
+            .position(|&c| c == b'e')
+            .map(|i| tail + i)
+        {
             None if plain => {
                 if x < 0.0 {
                     s.push('-');
