@@ -843,12 +843,9 @@ fn sweep_sorted<const PACKED: bool>(
     let nb = starts.len() - 1;
     let nkeys = starts[nb];
     let keys = pipe.keys.0;
-    // The pixel of a key, and its byte of earlier neighbours.
-    let index_mask = if PACKED {
-        (1u64 << 24) - 1
-    } else {
-        (1u64 << radix::index_bits(npix)) - 1
-    };
+    // The pixel of a key (its index sits above the byte of earlier neighbours, below any
+    // value bits, in both layouts).
+    let index_mask = (1u64 << radix::index_bits(npix)) - 1;
     let pixel = |key: u64| ((key >> 8) & index_mask) as usize;
     // Of the pixel whose key is at `i` (below the readable limit): its index and the groups
     // of its earlier neighbours.

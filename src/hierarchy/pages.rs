@@ -16,10 +16,7 @@ pub(super) fn reserved<T: Copy + Send + Sync>(cap: usize, touch: usize, value: T
 
 /// A vector of `n` copies of `value`, filled in parallel (fixed pieces).
 pub(super) fn filled<T: Copy + Send + Sync>(n: usize, value: T) -> Vec<T> {
-    let mut v = Vec::with_capacity(n);
-    v.spare_capacity_mut()
-        .par_chunks_mut(1 << 16)
-        .for_each(|c| c.fill(std::mem::MaybeUninit::new(value)));
+    let mut v = reserved(n, n, value);
     // SAFETY: all `n` items were just written.
     unsafe { v.set_len(n) };
     v

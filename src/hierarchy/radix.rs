@@ -7,9 +7,8 @@
 //! cache ([`sort_bucket`]), bucket after bucket, while the sweep works through the buckets
 //! already sorted. Keys are built in increasing linear index and every pass is stable, so
 //! only the value bits of a key need sorting; digits that are the same for a whole bucket are
-//! skipped. The sorted array of
-//! distinct keys is unique, so the result never depends on how the work is split among
-//! threads or on which thread sorts which bucket.
+//! skipped. The sorted array of distinct keys is unique, so the result never depends on how
+//! the work is split among threads or on which thread sorts which bucket.
 
 use super::engine::sort_key;
 use rayon::prelude::*;
@@ -101,14 +100,12 @@ pub(super) struct KeyBits {
 }
 
 impl KeyBits {
-    /// The value half (the high half of [`sort_key`]) of a key of bucket `b`.
+    /// The value half (the high half of [`sort_key`]) of a key of bucket `b`: the prefix and
+    /// the bucket digit above the key's value bits (a key that holds the whole value half
+    /// holds those two already, so setting them again changes nothing).
     #[inline(always)]
     pub(super) fn value_half(&self, b: usize, key: u64) -> u32 {
-        if self.value_shift == 32 {
-            (key >> 32) as u32
-        } else {
-            self.value_prefix | ((b as u32) << self.low_bits) | (key >> self.value_shift) as u32
-        }
+        self.value_prefix | ((b as u32) << self.low_bits) | (key >> self.value_shift) as u32
     }
 }
 
@@ -200,9 +197,13 @@ where
     let nb = 1usize << bits;
     let bucket = move |k: u64| (((k >> 32) as u32 >> low_bits) as usize) & (nb - 1);
     let value_prefix = if span == 32 { 0 } else { first >> span << span };
-    let value_shift = if wide { 8 + index_bits(npix) } else { 32 };
+    // The value bits a key keeps: those below the bucket digit, or the whole value half.
+    let (value_shift, value_mask) = if wide {
+        (8 + index_bits(npix), (1u64 << low_bits) - 1)
+    } else {
+        (32, u64::from(u32::MAX))
+    };
     assert!(!wide || value_shift + low_bits <= 64);
-    let low_mask = (1u64 << low_bits) - 1;
     // Pieces of whole rows (their number fixed by the size only).
     let m = pieces(npix);
     let piece_rows = |c: usize| (piece_start(nrows, m, c), piece_start(nrows, m, c + 1));
@@ -256,13 +257,8 @@ where
                         peaks += usize::from(byte == 0);
                         let i = (y * ncols + x) as u64;
                         let k = sort_key(v, 0);
-                        let low = i << 8 | u64::from(byte);
-                        if wide {
-                            // The bucket holds the value bits above `low_bits`.
-                            put(bucket(k), ((k >> 32) & low_mask) << value_shift | low);
-                        } else {
-                            put(bucket(k), k | low);
-                        }
+                        let value = ((k >> 32) & value_mask) << value_shift;
+                        put(bucket(k), value | i << 8 | u64::from(byte));
                     }
                 }
             }
@@ -375,11 +371,7 @@ mod tests {
         } else {
             bucketed_keys_packed(data, ncols, floor, range, &rows)
         };
-        let index_mask = if wide {
-            (1u64 << index_bits(data.len())) - 1
-        } else {
-            (1 << 24) - 1
-        };
+        let index_mask = (1u64 << index_bits(data.len())) - 1;
         let mut scratch = Vec::new();
         let mut out = Vec::new();
         for i in 0..b.starts.len() - 1 {
