@@ -145,7 +145,12 @@ pub struct Measurement {
 /// Local offsets on the sky per pixel step at (x, y): ((east, north) per +x, (east, north) per
 /// +y), in arcsec. Central differences of half a pixel.
 pub fn local_jacobian(w: &Wcs, x: f64, y: f64) -> Option<[[f64; 2]; 2]> {
-    let (lon0, lat0) = w.pixel_to_sky(x, y)?;
+    let (_, lat0) = w.pixel_to_sky(x, y)?;
+    jacobian_at_latitude(w, x, y, lat0)
+}
+
+/// [`local_jacobian`] given the latitude of (x, y) itself, in degrees (from `pixel_to_sky`).
+fn jacobian_at_latitude(w: &Wcs, x: f64, y: f64, lat0: f64) -> Option<[[f64; 2]; 2]> {
     let h = 0.5;
     let mut out = [[0.0; 2]; 2];
     for (k, (dx, dy)) in [(h, 0.0), (0.0, h)].into_iter().enumerate() {
@@ -160,7 +165,6 @@ pub fn local_jacobian(w: &Wcs, x: f64, y: f64) -> Option<[[f64; 2]; 2]> {
         let east = dl * lat0.to_radians().cos() * 3600.0 / (2.0 * h);
         let north = (b1 - b0) * 3600.0 / (2.0 * h);
         out[k] = [east, north];
-        let _ = lon0;
     }
     Some(out)
 }
@@ -236,9 +240,12 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
         } else {
             (s.peak_x as f64, s.peak_y as f64)
         };
-        if x.is_finite()
-            && let Some((l, b)) = w.pixel_to_sky(x, y)
-        {
+        let centre = if x.is_finite() {
+            w.pixel_to_sky(x, y)
+        } else {
+            None
+        };
+        if let Some((l, b)) = centre {
             out.lon = l;
             out.lat = b;
         }
@@ -247,7 +254,8 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
         let arcsec2 = omega / (std::f64::consts::PI / 648_000.0).powi(2);
         out.area_arcsec2 = n * arcsec2;
         out.radius_arcsec = (out.area_arcsec2 / std::f64::consts::PI).sqrt();
-        if let (Some(j), true) = (local_jacobian(w, ax, ay), x.is_finite()) {
+        // The sky sizes need the weighted centroid, which is (ax, ay) then.
+        if let Some(j) = centre.and_then(|(_, b)| jacobian_at_latitude(w, ax, ay, b)) {
             // Sky covariance S = J C J^T with J columns the (east, north) offsets per pixel.
             let jm = [[j[0][0], j[1][0]], [j[0][1], j[1][1]]]; // rows: east, north
             let c = [[cxx, cxy], [cxy, cyy]];
