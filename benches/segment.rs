@@ -10,16 +10,15 @@
 //!
 //! A size `NxK` tiles the N x N map K x K times, every other tile flipped so that structures
 //! continue across the seams, for maps too large for the synthesis to make in memory (its
-//! Fourier transforms); such maps are measured once rather than five times.
+//! Fourier transforms); such maps are measured once rather than nine times.
 //!
 //! For each size N x N it makes a synthetic column-density map (log-normal background, 400
 //! cores, noise; `cairn::synth`), writes it as FITS, and measures in child processes:
 //! * the reference: a parallel sort of the map's pixel keys (the least any exact method
 //!   must do);
-//! * cairn's segmentation with outputs, its time (best of five runs, nine for maps of at most
-//!   1024^2 pixels, each in a fresh process) and its memory: the process's peak resident
-//!   memory, less its resident memory before loading the map and less the map's bytes, per
-//!   pixel (the largest of the runs). This counts everything loading and segmenting add, code
+//! * cairn's segmentation with outputs, its time (best of nine runs, each in a fresh
+//!   process) and its memory: the process's peak resident memory, less its resident memory
+//!   before loading the map and less the map's bytes, per pixel (the largest of the runs). This counts everything loading and segmenting add, code
 //!   pages and thread stacks included, which weighs most on the smallest map;
 //! * with `CAIRN_BENCH_PYTHON` set (a Python with the packages of tests/oracle/requirements.txt),
 //!   scikit-image's `max_tree` on the same map (the raw tree only), timed inside Python
@@ -35,15 +34,13 @@ use std::time::Instant;
 
 use rayon::prelude::*;
 
-/// Rounds of each timed measurement; the best is reported.
-const RUNS: usize = 5;
-/// Rounds for maps of at most [`SMALL`] pixels a side: their runs take some tens of
-/// milliseconds, which one slow spell of a shared machine can double, so more rounds are
-/// needed for the best to reflect the program rather than the spell (`max_tree`, whose calls
-/// take over a second, gets the same rounds).
-const RUNS_SMALL: usize = 9;
-/// See [`RUNS_SMALL`].
-const SMALL: usize = 1024;
+/// Rounds of each timed measurement, the same at every size; the best is reported. Runs of
+/// tens of milliseconds, which one slow spell of a shared machine can double, need many rounds
+/// for the best to reflect the program rather than the spell (`max_tree`, whose calls take
+/// over a second, gets the same rounds); and since the growth over the table compares the
+/// best times of two sizes, both are the best of as many rounds (until the ninth session the
+/// sizes above 1024^2 had five rounds against nine, which favoured the small size).
+const RUNS: usize = 9;
 
 /// A `/proc/self/status` figure in bytes (`VmHWM:` the peak resident memory, `VmRSS:` the
 /// current one).
@@ -149,13 +146,7 @@ fn main() {
     let mut segments: Vec<(f64, f64)> = Vec::new();
     for (base, tiles) in sizes {
         let n = base * tiles;
-        let runs = if tiles > 1 {
-            1
-        } else if n <= SMALL {
-            RUNS_SMALL
-        } else {
-            RUNS
-        };
+        let runs = if tiles > 1 { 1 } else { RUNS };
         let spec = cairn::synth::SynthSpec {
             nx: base,
             ny: base,
