@@ -18,8 +18,9 @@
 //!   must do);
 //! * cairn's segmentation with outputs, its time (best of nine runs, each in a fresh
 //!   process) and its memory: the process's peak resident memory, less its resident memory
-//!   before loading the map and less the map's bytes, per pixel (the largest of the runs). This counts everything loading and segmenting add, code
-//!   pages and thread stacks included, which weighs most on the smallest map;
+//!   before loading the map and less the map's bytes, per pixel (the largest of the runs).
+//!   This counts everything loading and segmenting add, code pages and thread stacks
+//!   included, which weighs most on the smallest map;
 //! * with `CAIRN_BENCH_PYTHON` set (a Python with the packages of tests/oracle/requirements.txt),
 //!   scikit-image's `max_tree` on the same map (the raw tree only), timed inside Python
 //!   after loading, two calls in each of the rounds' processes, the fastest call counting.

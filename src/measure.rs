@@ -254,8 +254,7 @@ pub fn measure(s: &Structure, h: &Hierarchy, wcs: Option<&Wcs>) -> Measurement {
         let arcsec2 = omega / (std::f64::consts::PI / 648_000.0).powi(2);
         out.area_arcsec2 = n * arcsec2;
         out.radius_arcsec = (out.area_arcsec2 / std::f64::consts::PI).sqrt();
-        // The sky sizes need the weighted centroid, which is (ax, ay) then.
-        if let Some(j) = centre.and_then(|(_, b)| jacobian_at_latitude(w, ax, ay, b)) {
+        if let Some(j) = centre.and_then(|(_, b)| jacobian_at_latitude(w, x, y, b)) {
             // Sky covariance S = J C J^T with J columns the (east, north) offsets per pixel.
             let jm = [[j[0][0], j[1][0]], [j[0][1], j[1][1]]]; // rows: east, north
             let c = [[cxx, cxy], [cxy, cyy]];
