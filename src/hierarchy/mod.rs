@@ -18,6 +18,16 @@
 //! value, then each bucket sorted in cache, on a second thread ahead of the sweep. The tree is
 //! simplified *while* components merge, so the full max-tree is never stored.
 //!
+//! On maps above 2^24 pixels, whose sweep waits on main memory, a pool of two threads or more
+//! sweeps the map in two parts at once and then replays what they left, with the sequential
+//! sweep's results to the bit. The idea of cutting the map into parts swept on their own and
+//! joined along the cut is that of shared-memory parallel max-trees (Wilkinson et al. 2008,
+//! ISMM; Moschini, Meijster & Wilkinson 2018, IEEE TPDS 29, 802), who build each part's full
+//! tree and merge the trees; since this tree is simplified as it is built, here each part
+//! stops following a component once it reaches the cut (a component with no pixel on the cut
+//! is a component of the whole map, with the same history), and a sequential replay in the
+//! pixel order finishes the components that cross it (see `engine::sweep_in_two`).
+//!
 //! # Exact rules
 //! * **Pixels considered.** A pixel takes part iff its value is not NaN and `value >= floor`.
 //!   Other pixels belong to no structure (label -1). `-0.0` counts as `+0.0`.
@@ -72,7 +82,10 @@
 //! sweep (the union-find link, or the open node at a component root; small so that as much of
 //! the map as possible stays in cache for the spatially random sweep), plus 28 bytes per
 //! candidate peak (regional maximum) met (room for twice as many is reserved, as address
-//! space only; about as many as there are pixels without an earlier neighbour are touched). The sweep writes each pixel's visiting node into the
+//! space only; about as many as there are pixels without an earlier neighbour are touched;
+//! the two-part sweep adds 4 bytes per candidate for the pixel where it was made and two bits
+//! per considered pixel for what the parts leave to the replay). The sweep writes each
+//! pixel's visiting node into the
 //! high half of its key, which it has just read; the cells then become the 4-byte label array
 //! in place and the labels are scattered from the keys. So the peak is about map + 12 bytes
 //! per pixel, during the sweep. Moment sums are gathered after the sweep from the label map, for the accepted structures only (absorbed
