@@ -22,7 +22,8 @@
 //! sweeps the map in two parts at once and then replays what they left, with the sequential
 //! sweep's results to the bit. The idea of cutting the map into parts swept on their own and
 //! joined along the cut is that of shared-memory parallel max-trees (Wilkinson et al. 2008,
-//! ISMM; Moschini, Meijster & Wilkinson 2018, IEEE TPDS 29, 802), who build each part's full
+//! IEEE TPAMI 30, 1800, reference from memory; Moschini, Meijster & Wilkinson 2018, IEEE
+//! TPAMI 40, 513), who build each part's full
 //! tree and merge the trees; since this tree is simplified as it is built, here each part
 //! stops following a component once it reaches the cut (a component with no pixel on the cut
 //! is a component of the whole map, with the same history), and a sequential replay in the
