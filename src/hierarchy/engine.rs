@@ -922,7 +922,7 @@ impl Store {
     #[allow(clippy::mut_from_ref)]
     fn node_mut(&self, n: u32) -> &mut Node {
         debug_assert!(n < self.all);
-        // SAFETY: as in `node`; the sweeps write only nodes of their own range or, in the
+        // SAFETY: as in `node`; the sweeps write only nodes of their own blocks or, in the
         // replay, nodes the finished parts made, and hold no other reference to it meanwhile.
         unsafe { &mut *self.nodes.add(n as usize) }
     }
@@ -1015,9 +1015,6 @@ struct Cells {
     ptr: *mut u32,
     len: usize,
 }
-
-// SAFETY: see the type's documentation: the threads use disjoint cells.
-unsafe impl Send for Cells {}
 
 impl Cells {
     #[inline(always)]
