@@ -68,7 +68,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     // The run record holds timings and paths; it is not part of the fixture.
     std::fs::remove_file(root.join("run/run.json"))?;
     println!(
-        "{} leaves, {} branches, {} roots written under {}",
+        "{} leaves, {} branches, {} roots with children written under {}",
         s.leaves,
         s.branches,
         s.roots,

@@ -316,6 +316,10 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
         (&["physics", "opacity"][..], "dust opacity law"),
         (&["physics", "temperature"][..], "temperature"),
         (&["physics", "mu_h2"][..], "mean molecular weight"),
+        (&["physics", "mu_p"][..], "mean particle weight"),
+        (&["physics", "nh2_per_av_cm2"][..], "column density per A_V"),
+        (&["physics", "av_per_ak"][..], "A_V / A_K"),
+        (&["map", "unit_kind"][..], "kind of map"),
         (&["parameters", "floor", "given"][..], "floor (as given)"),
         (
             &["parameters", "prominence", "given"][..],

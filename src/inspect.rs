@@ -253,6 +253,27 @@ pub fn noise_box_px(map: &Map) -> usize {
 
 /// Loads a noise map and checks it lies on the same grid as `map`.
 pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
+    load_aux_map(map, path, "noise map", "noise values")
+}
+
+/// Angle in degrees between two (longitude, latitude) positions in degrees (haversine).
+fn separation_deg(a: (f64, f64), b: (f64, f64)) -> f64 {
+    let (l1, b1) = (a.0.to_radians(), a.1.to_radians());
+    let (l2, b2) = (b.0.to_radians(), b.1.to_radians());
+    let h = ((b2 - b1) / 2.0).sin().powi(2) + b1.cos() * b2.cos() * ((l2 - l1) / 2.0).sin().powi(2);
+    (2.0 * h.sqrt().min(1.0).asin()).to_degrees()
+}
+
+/// Loads a map of a positive quantity beside `map` (`what`: "noise map", "temperature map",
+/// ...; `values`: what its values are, for messages) and checks that it lies on the same grid:
+/// the same shape and, when both carry a celestial WCS, the same sky positions at the
+/// corners and the centre (within a tenth of a pixel).
+pub fn load_aux_map(
+    map: &Map,
+    path: &Path,
+    what: &str,
+    values: &str,
+) -> Result<ndarray::Array2<f32>> {
     let opts = LoadOptions {
         require_unit: false,
         ..LoadOptions::default()
@@ -262,7 +283,7 @@ pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
         return Err(Error::input(
             path,
             format!(
-                "is {}x{} pixels but the map {} is {}x{}; give a noise map on the same grid.",
+                "is {}x{} pixels but the map {} is {}x{}; give a {what} on the same grid.",
                 nm.nx(),
                 nm.ny(),
                 map.path.display(),
@@ -271,10 +292,37 @@ pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
             ),
         ));
     }
+    if let (Some(w), Some(wn)) = (&map.wcs, &nm.wcs) {
+        let (nx, ny) = (map.nx() as f64 - 1.0, map.ny() as f64 - 1.0);
+        let (sx, sy) = w.pixel_scale(nx / 2.0, ny / 2.0);
+        let tol = 0.1 * sx.min(sy);
+        for (x, y) in [
+            (0.0, 0.0),
+            (nx, 0.0),
+            (0.0, ny),
+            (nx, ny),
+            (nx / 2.0, ny / 2.0),
+        ] {
+            let off = match (w.pixel_to_sky(x, y), wn.pixel_to_sky(x, y)) {
+                (Some(a), Some(b)) => separation_deg(a, b),
+                _ => 0.0,
+            };
+            if !(off <= tol) {
+                return Err(Error::input(
+                    path,
+                    format!(
+                        "has the shape of the map {} but not its sky grid (pixel ({x}, {y}) lies {:.3} arcsec away); give a {what} regridded onto the map's pixels.",
+                        map.path.display(),
+                        off * 3600.0
+                    ),
+                ));
+            }
+        }
+    }
     if nm.data.iter().any(|v| v.is_finite() && *v <= 0.0) {
         return Err(Error::input(
             path,
-            "has zero or negative noise values; a noise map must be positive where defined.",
+            format!("has zero or negative {values}; a {what} must be positive where defined."),
         ));
     }
     Ok(nm.data)
@@ -285,17 +333,26 @@ pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
 pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
     use crate::physics::constants::{M_H, M_SUN, PC};
     let mut assumptions = Vec::new();
+    // A value is credited to its source only when it is the default; a value the user gave
+    // is marked as given.
+    let defaults = crate::score::Context::default();
+    let source = |is_default: bool, paper: &'static str| if is_default { paper } else { "given" };
     if let Some(u) = map.unit {
         match u {
             units::PixelUnit::Extinction { band } => {
                 assumptions.push(format!(
-                    "N(H2) = {:e} cm-2 per mag of A_V (Bohlin et al. 1978)",
-                    ctx.nh2_per_av_m2 * 1e-4
+                    "N(H2) = {:e} cm-2 per mag of A_V ({})",
+                    ctx.nh2_per_av_m2 * 1e-4,
+                    source(
+                        ctx.nh2_per_av_m2 == defaults.nh2_per_av_m2,
+                        "Bohlin et al. 1978"
+                    )
                 ));
                 if band == units::ExtinctionBand::K {
                     assumptions.push(format!(
-                        "A_V = {:.3} A_K (Rieke & Lebofsky 1985)",
-                        ctx.av_per_ak
+                        "A_V = {:.3} A_K ({})",
+                        ctx.av_per_ak,
+                        source(ctx.av_per_ak == defaults.av_per_ak, "Rieke & Lebofsky 1985")
                     ));
                 }
             }
@@ -304,8 +361,18 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
                 let k = map
                     .wavelength_m
                     .map(|w| o.kappa_cm2_per_g(units::C_LIGHT / w));
+                let d = &defaults.opacity;
+                let cite = match (
+                    o.kappa0_cm2_per_g == d.kappa0_cm2_per_g && o.nu0_hz == d.nu0_hz,
+                    o.beta == d.beta,
+                ) {
+                    (true, true) => "normalisation of Beckwith et al. 1990, default beta",
+                    (true, false) => "normalisation of Beckwith et al. 1990, beta given",
+                    (false, true) => "given, default beta",
+                    (false, false) => "given",
+                };
                 assumptions.push(format!(
-                    "kappa = {} cm2/g of gas (nu/{} GHz)^{} (Beckwith et al. 1990), {} at this wavelength; optically thin",
+                    "kappa = {} cm2/g of gas (nu/{} GHz)^{} ({cite}), {} at this wavelength; optically thin",
                     o.kappa0_cm2_per_g,
                     o.nu0_hz / 1e9,
                     o.beta,
@@ -319,8 +386,13 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
         }
     }
     assumptions.push(format!(
-        "mu_H2 = {}, mu_p = {} (Kauffmann et al. 2008)",
-        ctx.mu_h2, ctx.mu_p
+        "mu_H2 = {}, mu_p = {} ({})",
+        ctx.mu_h2,
+        ctx.mu_p,
+        source(
+            ctx.mu_h2 == defaults.mu_h2 && ctx.mu_p == defaults.mu_p,
+            "Kauffmann et al. 2008"
+        )
     ));
     if let Some(d) = ctx.distance_m {
         assumptions.push(format!("distance {} pc", d / PC));
@@ -338,6 +410,20 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
                 }
                 _ => None,
             };
+            assumptions.push(
+                match map.unit {
+                    Some(units::PixelUnit::Extinction { .. }) => {
+                        "caution: masses carry systematics from the extinction-to-column ratio (tens of per cent) and the distance (squared)"
+                    }
+                    Some(u) if u.is_emission() => {
+                        "caution: column densities and masses carry factor-of-two systematics from dust opacity, temperature and distance"
+                    }
+                    _ => {
+                        "caution: masses carry the column-density map's own systematics (factor of two where it came from dust emission) and the distance's (squared)"
+                    }
+                }
+                .into(),
+            );
             ConversionSummary {
                 column_per_unit_cm2: Some(f * 1e-4),
                 mass_per_unit_pixel_msun: mass,

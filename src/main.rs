@@ -25,6 +25,9 @@ struct Cli {
 #[derive(Subcommand)]
 enum Command {
     /// Say what a map is: shape, unit, sky frame, beam, wavelength, noise, suggested thresholds.
+    #[command(
+        after_help = "Caution: the conversions to column density and mass carry factor-of-two systematics from dust opacity,\ntemperature and distance (for extinction maps, from the extinction-to-column ratio and distance)."
+    )]
     Inspect(Box<InspectArgs>),
     /// Find the structures of a map: hierarchy, catalogue, label maps, tree file and run record.
     #[command(after_help = SEGMENT_HELP)]
@@ -42,8 +45,10 @@ enum Command {
 
 const SEGMENT_HELP: &str = "Thresholds take units: --floor 5sigma or 2e21cm-2, --prominence 3sigma, --min-area 1beam, 400arcsec2 or 12px.
 Without them: floor 3 sigma above the clipped median, prominence 3 sigma, min-area one beam (a starting point: check `cairn inspect`).
-Writes structures.csv/.fits/.vot, labels.fits (smallest structure per pixel, with the map's WCS), hierarchy.json/.dot and run.json.
-Caution: any mass later derived from these sums carries factor-of-two systematics from dust opacity, temperature and distance.";
+Writes structures.csv/.fits/.vot, labels.fits (smallest structure per pixel, with the map's WCS), hierarchy.json/.dot and run.json;
+overlay.png/.svg and tree.png/.svg unless --no-figure; leaves-grown.fits with --grow-leaves.
+Caution: the catalogue's masses carry factor-of-two systematics from dust opacity, temperature and distance
+(mass_err is the map noise only); density, Jeans, Bonnor-Ebert and virial columns use mass_excess.";
 
 #[derive(Args)]
 struct SegmentArgs {
@@ -188,7 +193,8 @@ struct MapArgs {
     /// Noise in map units (a number, or a quantity such as `0.02MJy/sr`), instead of the estimate.
     #[arg(long, value_name = "VALUE", conflicts_with = "noise_map")]
     noise: Option<String>,
-    /// A FITS map of the noise on the same grid, instead of the estimate.
+    /// A FITS map of the noise on the same grid, instead of the estimate. Its median is the
+    /// noise used everywhere (sigma thresholds and the error columns), not pixel by pixel.
     #[arg(long, value_name = "FILE")]
     noise_map: Option<PathBuf>,
 }
@@ -196,7 +202,8 @@ struct MapArgs {
 /// Physical assumptions: distance, temperature, dust opacity, molecular weights.
 #[derive(Args, Clone)]
 struct PhysicsArgs {
-    /// Distance to the cloud, such as 300pc (without it only angular quantities are reported).
+    /// Distance to the cloud, such as 300pc (without it: no masses, sizes in angle only;
+    /// column densities are still reported).
     #[arg(long, value_name = "LENGTH")]
     distance: Option<String>,
     /// Dust temperature, such as 12K (for emission maps and for the gravitational state).
@@ -261,11 +268,23 @@ impl PhysicsArgs {
             )?));
         }
         if let Some(p) = &self.temperature_map {
-            c.temperature_k = Some(Field::Map(inspect::load_noise_map(map, p)?));
+            c.temperature_k = Some(Field::Map(inspect::load_aux_map(
+                map,
+                p,
+                "temperature map",
+                "temperatures",
+            )?));
         }
         if let Some(k) = &self.opacity {
             c.opacity.kappa0_cm2_per_g = positive(
-                q(k, &[Dimension::Opacity], "--opacity")?.si * 10.0,
+                // Back to cm2/g, rounded to 12 significant digits so that the text given comes
+                // back unchanged (0.05cm2/g, not 0.05000000000000001).
+                format!(
+                    "{:.11e}",
+                    q(k, &[Dimension::Opacity], "--opacity")?.si * 10.0
+                )
+                .parse::<f64>()
+                .unwrap_or(f64::NAN),
                 "--opacity",
             )?;
         }
@@ -310,7 +329,8 @@ impl PhysicsArgs {
             c.sigma_nt = Some(Field::Uniform(v));
         }
         if let Some(p) = &self.sigma_nt_map {
-            let m = inspect::load_noise_map(map, p)?;
+            let m =
+                inspect::load_aux_map(map, p, "velocity-dispersion map", "velocity dispersions")?;
             c.sigma_nt = Some(Field::Map(m.mapv(|v| v * 1e3)));
         }
         Ok(c)
@@ -402,7 +422,7 @@ impl StyleArgs {
         };
         if self.width < 200 || self.width > 20000 {
             return Err(Error::usage(format!(
-                "--width {} is outside 200 to 20000 pixels.",
+                "--width {} is outside 200 to 20000 pixels; give a width in that range.",
                 self.width
             )));
         }
@@ -800,6 +820,9 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
         format!("{}-truth.csv", a.name),
         format!("{}-spec.json", a.name),
     ];
+    if let Some(spec_file) = &a.spec {
+        output::refuse_inputs_as_outputs(&a.output, &names, &[spec_file])?;
+    }
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
     let map = synth::generate(&spec).map_err(|e| {
         Error::usage(format!(
@@ -870,6 +893,17 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             )));
         }
     };
+    // The auxiliary maps must not be among the files the run replaces (the map itself is
+    // checked by the library).
+    let aux: Vec<&std::path::Path> = [
+        a.read.noise_map.as_deref(),
+        a.physics.temperature_map.as_deref(),
+        a.physics.sigma_nt_map.as_deref(),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
+    output::refuse_inputs_as_outputs(&a.output, &segment::names::ALL.map(String::from), &aux)?;
     let so = segment::SegmentOptions {
         floor: a
             .floor
@@ -913,8 +947,13 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         format!(" {}", m.unit_text)
     };
     println!(
-        "{} leaves, {} branches, {} roots in {:.2} s",
-        summary.leaves, summary.branches, summary.roots, summary.seconds
+        "{} structures in {} trees: {} leaves, {} branches, {} roots; {:.2} s",
+        summary.leaves + summary.branches + summary.roots,
+        summary.trees,
+        summary.leaves,
+        summary.branches,
+        summary.roots,
+        summary.seconds
     );
     println!(
         "floor {:.4e}{unit}, prominence {:.4e}{unit}, min area {} px; noise {}{} ({})",
@@ -972,8 +1011,14 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     }
     if !(a.bin_width > 0.0 && a.bin_width <= 2.0) {
         return Err(Error::usage(format!(
-            "--bin-width {} is outside (0, 2] dex.",
+            "--bin-width {} is outside (0, 2] dex; give a bin width in that range.",
             a.bin_width
+        )));
+    }
+    if a.width < 600 || a.width > 20000 {
+        return Err(Error::usage(format!(
+            "--width {} is outside 600 to 20000 pixels; give a plot width in that range.",
+            a.width
         )));
     }
     let mass_min = a

@@ -13,16 +13,53 @@ use crate::error::{Error, Result};
 #[derive(Debug)]
 pub struct Outputs {
     dir: PathBuf,
-    created_dir: bool,
+    /// The highest folder this plan created (with every folder below it down to `dir`).
+    created_dir: Option<PathBuf>,
     planned: Vec<(PathBuf, PathBuf)>,
+    /// Files of an earlier run that this one does not write (removed on commit).
+    stale: Vec<PathBuf>,
     committed: bool,
+}
+
+/// Refuses, before anything is written, a run whose output `name` in `dir` is one of its own
+/// `inputs` (a map kept in the output folder under an output's name would be replaced).
+pub fn refuse_inputs_as_outputs(dir: &Path, names: &[String], inputs: &[&Path]) -> Result<()> {
+    let inputs: Vec<(PathBuf, &Path)> = inputs
+        .iter()
+        .filter_map(|p| std::fs::canonicalize(p).ok().map(|c| (c, *p)))
+        .collect();
+    for name in names {
+        let Ok(target) = std::fs::canonicalize(dir.join(name)) else {
+            continue;
+        };
+        if let Some((_, input)) = inputs.iter().find(|(c, _)| *c == target) {
+            return Err(Error::usage(format!(
+                "{}: is an input of this run and would be replaced by its output {name}; choose another output folder with -o (or rename the input).",
+                input.display()
+            )));
+        }
+    }
+    Ok(())
 }
 
 impl Outputs {
     /// Plans outputs named `names` in `dir` (created if missing). Refuses, before anything is
     /// written, if any already exists and `force` is false.
     pub fn plan(dir: &Path, names: &[String], force: bool) -> Result<Outputs> {
-        let mut created_dir = false;
+        Self::plan_replacing(dir, names, &[], force)
+    }
+
+    /// [`Outputs::plan`], where `others` names the outputs an earlier run of the same command
+    /// may have written and this one does not (figures skipped this time, say): they count as
+    /// existing outputs, and with `force` they are removed once this run's files are in
+    /// place, so that the folder never mixes two runs.
+    pub fn plan_replacing(
+        dir: &Path,
+        names: &[String],
+        others: &[String],
+        force: bool,
+    ) -> Result<Outputs> {
+        let mut created_dir = None;
         if dir.exists() {
             if !dir.is_dir() {
                 return Err(Error::output(
@@ -31,23 +68,50 @@ impl Outputs {
                 ));
             }
         } else {
+            // The highest missing folder, so that a failure removes every level made here.
+            let mut top = dir.to_path_buf();
+            while let Some(up) = top.parent() {
+                if up.as_os_str().is_empty() || up.exists() {
+                    break;
+                }
+                top = up.to_path_buf();
+            }
             std::fs::create_dir_all(dir).map_err(|e| {
                 Error::output(
                     dir,
                     format!("cannot be created ({e}); choose a writable output folder with -o."),
                 )
             })?;
-            created_dir = true;
+            created_dir = Some(top);
         }
         let mut existing = Vec::new();
         let mut planned = Vec::new();
         for (k, name) in names.iter().enumerate() {
             let target = dir.join(name);
+            if target.is_dir() {
+                let e = Error::output(
+                    &target,
+                    "is a folder where an output file goes; move it away or choose another output folder with -o.",
+                );
+                remove_created(dir, created_dir.as_deref());
+                return Err(e);
+            }
             if target.exists() && !force {
                 existing.push(name.clone());
             }
             let tmp = dir.join(format!(".{name}.partial-{}-{k}", std::process::id()));
             planned.push((target, tmp));
+        }
+        let mut stale = Vec::new();
+        for name in others.iter().filter(|n| !names.contains(n)) {
+            let target = dir.join(name);
+            if target.exists() {
+                if force {
+                    stale.push(target);
+                } else {
+                    existing.push(name.clone());
+                }
+            }
         }
         if !existing.is_empty() {
             return Err(Error::output(
@@ -61,9 +125,7 @@ impl Outputs {
         // Probe that the folder is writable before any real work.
         let probe = dir.join(format!(".cairn-write-probe-{}", std::process::id()));
         std::fs::write(&probe, b"").map_err(|e| {
-            if created_dir {
-                let _ = std::fs::remove_dir(dir);
-            }
+            remove_created(dir, created_dir.as_deref());
             Error::output(
                 dir,
                 format!("is not writable ({e}); choose a writable output folder with -o."),
@@ -74,6 +136,7 @@ impl Outputs {
             dir: dir.to_path_buf(),
             created_dir,
             planned,
+            stale,
             committed: false,
         })
     }
@@ -93,9 +156,14 @@ impl Outputs {
     }
 
     /// Drops a planned output that turned out to have nothing to hold.
+    /// An earlier run's file of that name (allowed by `force`) is removed on commit.
     pub fn skip(&mut self, name: &str) {
         self.planned
             .retain(|(t, _)| t.file_name().map(|f| f != name).unwrap_or(true));
+        let target = self.dir.join(name);
+        if target.is_file() {
+            self.stale.push(target);
+        }
     }
 
     /// Renames every temporary file into place. Every planned output must have been written.
@@ -110,9 +178,21 @@ impl Outputs {
         }
         let mut done = Vec::new();
         for (target, tmp) in &self.planned {
-            std::fs::rename(tmp, target)
-                .map_err(|e| Error::output(target, format!("cannot be put in place ({e}).")))?;
+            std::fs::rename(tmp, target).map_err(|e| {
+                Error::output(
+                    target,
+                    format!("cannot be put in place ({e}); free that name and run again."),
+                )
+            })?;
             done.push(target.clone());
+        }
+        for old in &self.stale {
+            std::fs::remove_file(old).map_err(|e| {
+                Error::output(
+                    old,
+                    format!("is left from an earlier run and cannot be removed ({e}); remove it by hand."),
+                )
+            })?;
         }
         self.committed = true;
         Ok(done)
@@ -127,8 +207,21 @@ impl Drop for Outputs {
         for (_, tmp) in &self.planned {
             let _ = std::fs::remove_file(tmp);
         }
-        if self.created_dir {
-            let _ = std::fs::remove_dir(&self.dir);
+        remove_created(&self.dir, self.created_dir.as_deref());
+    }
+}
+
+/// Removes the empty folders from `dir` up to `top` (those a plan created), if any.
+fn remove_created(dir: &Path, top: Option<&Path>) {
+    let Some(top) = top else { return };
+    let mut d = dir;
+    loop {
+        if std::fs::remove_dir(d).is_err() || d == top {
+            return;
+        }
+        match d.parent() {
+            Some(up) => d = up,
+            None => return,
         }
     }
 }

@@ -262,17 +262,35 @@ pub mod names {
     pub const TREE_PNG: &str = "tree.png";
     /// The tree diagram (SVG).
     pub const TREE_SVG: &str = "tree.svg";
+    /// Every file a run may write.
+    pub const ALL: [&str; 12] = [
+        CSV,
+        FITS_TABLE,
+        VOTABLE,
+        LABELS,
+        GROWN,
+        TREE_JSON,
+        TREE_DOT,
+        RUN,
+        OVERLAY_PNG,
+        OVERLAY_SVG,
+        TREE_PNG,
+        TREE_SVG,
+    ];
 }
 
 /// What a finished run reports.
 #[derive(Debug, Clone, Serialize)]
 pub struct RunSummary {
-    /// Leaves found.
+    /// Leaves found (structures without children, top-level ones included).
     pub leaves: usize,
-    /// Branches (with a parent).
+    /// Branches (structures with children and a parent).
     pub branches: usize,
-    /// Roots (top-level structures, leaves or not).
+    /// Roots with children (the catalogue's kind `root`); a top-level structure without
+    /// children is counted as a leaf, so leaves, branches and roots add up to the structures.
     pub roots: usize,
+    /// Trees: the top-level structures, with children or not (the roots plus the lone leaves).
+    pub trees: usize,
     /// Thresholds used.
     pub thresholds: Resolved,
     /// Seconds taken.
@@ -390,11 +408,8 @@ pub fn catalogue(
     } else {
         map.unit_text.clone()
     };
-    let usum = if u.is_empty() {
-        "pixel".to_string()
-    } else {
-        format!("{u} pixel")
-    };
+    // A sum over pixels: map unit times pixel, with the pixel where unit parsers read it.
+    let usum = crate::units::times_pixel(&u);
     let (lon, lat) = sky_names(map);
     let mut t = Table {
         name: "STRUCTURES".into(),
@@ -867,7 +882,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             names_list.push(n.into());
         }
     }
-    let mut outputs = Outputs::plan(&o.output, &names_list, o.force)?;
+    crate::output::refuse_inputs_as_outputs(&o.output, &names_list, &[&map.path])?;
+    let every: Vec<String> = names::ALL.iter().map(|s| s.to_string()).collect();
+    let mut outputs = Outputs::plan_replacing(&o.output, &names_list, &every, o.force)?;
     let params = Params {
         floor: r.floor,
         prominence: r.prominence,
@@ -1144,7 +1161,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
 
     let leaves = ms.iter().filter(|m| m.kind == Kind::Leaf).count();
     let branches = ms.iter().filter(|m| m.kind == Kind::Branch).count();
-    let roots = h.roots().len();
+    let roots = ms.iter().filter(|m| m.kind == Kind::Root).count();
+    let trees = h.roots().len();
     let seconds = t0.elapsed().as_secs_f64();
     let record = serde_json::json!({
         "cairn_version": env!("CARGO_PKG_VERSION"),
@@ -1161,7 +1179,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         },
         "noise": { "value": r.noise, "unit": map.unit_text, "source": r.noise_source, "background": r.background },
         "beam": map.beam,
-        "result": { "leaves": leaves, "branches": branches, "roots": roots, "structures": ms.len() },
+        "result": { "leaves": leaves, "branches": branches, "roots": roots, "structures": ms.len(), "trees": trees },
         "timings_seconds": {
             "thresholds_and_noise": t_resolve,
             "hierarchy": tree_seconds,
@@ -1192,6 +1210,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         leaves,
         branches,
         roots,
+        trees,
         thresholds: r,
         seconds: t0.elapsed().as_secs_f64(),
         files,

@@ -579,6 +579,14 @@ impl Table {
             );
         }
         let _ = writeln!(s, "<TABLE name=\"{}\">", esc(&self.name));
+        if !self.notes.is_empty() {
+            // The notes (what the kinds mean, the conventions, the cautions), a line each.
+            let _ = writeln!(
+                s,
+                "<DESCRIPTION>{}</DESCRIPTION>",
+                esc(&self.notes.join("\n"))
+            );
+        }
         for (k, v, c) in &self.meta {
             let _ = writeln!(
                 s,
@@ -657,6 +665,32 @@ impl Table {
                 _ => hdu
                     .write_key(&mut f, &key, (v.as_str(), c.as_str()))
                     .map_err(fail)?,
+            }
+        }
+        // The notes (what the kinds mean, the conventions, the cautions) as COMMENT cards,
+        // each note wrapped at word boundaries, its continuation cards indented.
+        for n in &self.notes {
+            let ascii: String = n
+                .chars()
+                .map(|ch| {
+                    if ch.is_ascii() && !ch.is_ascii_control() {
+                        ch
+                    } else {
+                        '?'
+                    }
+                })
+                .collect();
+            for line in wrap_words(&ascii, 70) {
+                let text = std::ffi::CString::new(line).expect("no NUL in an ASCII note");
+                let mut status = 0;
+                // SAFETY: an open FitsFile and a NUL-terminated string.
+                unsafe { fitsio::sys::ffpcom(f.as_raw(), text.as_ptr(), &mut status) };
+                if status != 0 {
+                    return Err(Error::output(
+                        path,
+                        format!("cannot be written as FITS (CFITSIO status {status})."),
+                    ));
+                }
             }
         }
         // The rows are laid out in memory (big-endian, as FITS stores them) and written in one
@@ -744,8 +778,52 @@ fn fits_key(name: &str) -> String {
     }
 }
 
+/// `text` cut at spaces into lines of at most `width` characters (a longer word is cut), the
+/// lines after the first indented by two spaces.
+fn wrap_words(text: &str, width: usize) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    let mut cur = String::new();
+    for word in text.split(' ').filter(|w| !w.is_empty()) {
+        let indent = if lines.is_empty() { 0 } else { 2 };
+        if !cur.is_empty() && indent + cur.len() + 1 + word.len() > width {
+            lines.push(std::mem::take(&mut cur));
+        }
+        if !cur.is_empty() {
+            cur.push(' ');
+        }
+        cur.push_str(word);
+        loop {
+            let indent = if lines.is_empty() { 0 } else { 2 };
+            if indent + cur.len() <= width {
+                break;
+            }
+            let rest = cur.split_off(width - indent);
+            lines.push(std::mem::replace(&mut cur, rest));
+        }
+    }
+    if !cur.is_empty() || lines.is_empty() {
+        lines.push(cur);
+    }
+    lines
+        .into_iter()
+        .enumerate()
+        .map(|(i, l)| if i == 0 { l } else { format!("  {l}") })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn notes_wrap_at_spaces() {
+        let lines = super::wrap_words("aa bb cc dd", 5);
+        assert_eq!(lines, ["aa bb", "  cc", "  dd"]);
+        assert!(
+            super::wrap_words(&"x".repeat(150), 70)
+                .iter()
+                .all(|l| l.len() <= 70)
+        );
+        assert_eq!(super::wrap_words("", 70), [""]);
+    }
     use super::*;
 
     fn sample() -> Table {

@@ -461,10 +461,46 @@ fn split_jansky(s: &str, all_upper: bool) -> Option<(f64, String)> {
     Some((prefix, rest))
 }
 
+/// The unit of a sum of map values over pixels (map unit times pixel), written so that a
+/// FITS or VO unit parser reads it as that product: `pixel` goes into the numerator, before the
+/// first `/` (`Jy/beam` gives `Jy pixel/beam`, not `Jy/beam pixel`, which parsers read as
+/// Jy / (beam pixel)); a unit per pixel loses its `/pixel` (`Jy/pixel` gives `Jy`); a unit
+/// without a `/` is followed by ` pixel`; no unit gives `pixel`.
+pub fn times_pixel(unit: &str) -> String {
+    let u = unit.trim();
+    if u.is_empty() {
+        return "pixel".into();
+    }
+    match u.split_once('/') {
+        None => format!("{u} pixel"),
+        Some((num, den)) => {
+            let (num, den) = (num.trim(), den.trim());
+            if matches!(den, "pixel" | "pix") {
+                num.to_string()
+            } else if num.is_empty() || num == "1" {
+                format!("pixel/{den}")
+            } else {
+                format!("{num} pixel/{den}")
+            }
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use Dimension::*;
+
+    #[test]
+    fn sums_over_pixels_keep_the_pixel_in_the_numerator() {
+        assert_eq!(times_pixel("Jy/beam"), "Jy pixel/beam");
+        assert_eq!(times_pixel("MJy/sr"), "MJy pixel/sr");
+        assert_eq!(times_pixel("mJy/beam/km/s"), "mJy pixel/beam/km/s");
+        assert_eq!(times_pixel("Jy/pixel"), "Jy");
+        assert_eq!(times_pixel("cm-2"), "cm-2 pixel");
+        assert_eq!(times_pixel("1/cm2"), "pixel/cm2");
+        assert_eq!(times_pixel(""), "pixel");
+    }
 
     #[test]
     fn parses_the_quantities_of_the_command_line() {

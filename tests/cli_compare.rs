@@ -100,4 +100,50 @@ fn compare_reports_statistics_and_fairness() {
     assert_eq!(code, 2);
     assert!(err.contains("--distance"), "{err}");
     assert!(!d.path().join("cmp2").exists());
+    // A plot width out of range is refused before any work, in one sentence.
+    for width in ["10", "30000"] {
+        let (code, _, err) = run(
+            d.path(),
+            &["compare", "near", "far", "-o", "cmp3", "--width", width],
+        );
+        assert_eq!(code, 2, "{err}");
+        assert!(
+            err.contains("--width") && err.trim_end().lines().count() == 1,
+            "{err}"
+        );
+        assert!(!d.path().join("cmp3").exists());
+    }
+    // Runs made with another mean particle weight are flagged.
+    let (code, _, err) = run(
+        d.path(),
+        &[
+            "segment",
+            m,
+            "-o",
+            "heavy",
+            "--distance",
+            "300pc",
+            "--temperature",
+            "12K",
+            "--mu-particle",
+            "2.37",
+            "--no-figure",
+            "-q",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    let (code, out, err) = run(
+        d.path(),
+        &[
+            "compare",
+            "near",
+            "heavy",
+            "-o",
+            "cmp4",
+            "--resamples",
+            "20",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("mean particle weight"), "{out}");
 }

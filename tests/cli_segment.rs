@@ -220,3 +220,152 @@ fn bad_thresholds_and_output_folders_are_refused() {
         "cannot be created",
     );
 }
+
+/// A map kept in the output folder under an output's name, or a temperature map there, is an
+/// input: the run refuses to replace it even with `--force`, and the file is unchanged.
+#[test]
+fn inputs_are_never_replaced_by_outputs() {
+    let d = tempfile::tempdir().unwrap();
+    std::fs::create_dir(d.path().join("run")).unwrap();
+    let original = std::fs::read(fixture_map()).unwrap();
+    std::fs::write(d.path().join("run/labels.fits"), &original).unwrap();
+    refused(
+        d.path(),
+        &[
+            "segment",
+            "run/labels.fits",
+            "-o",
+            "run",
+            "--floor",
+            "4e21",
+            "--force",
+            "--no-figure",
+            "--quiet",
+        ],
+        "is an input of this run",
+    );
+    assert_eq!(
+        std::fs::read(d.path().join("run/labels.fits")).unwrap(),
+        original
+    );
+    let m = fixture_map();
+    refused(
+        d.path(),
+        &[
+            "segment",
+            m.to_str().unwrap(),
+            "-o",
+            "run",
+            "--floor",
+            "4e21",
+            "--temperature-map",
+            "run/labels.fits",
+            "--force",
+            "--quiet",
+        ],
+        "is an input of this run",
+    );
+    assert_eq!(
+        std::fs::read(d.path().join("run/labels.fits")).unwrap(),
+        original
+    );
+}
+
+/// With `--force`, a run replaces every file of an earlier run in the folder: figures and grown
+/// leaves that this run does not make are removed, so the folder never mixes two runs.
+#[test]
+fn force_leaves_no_file_of_the_earlier_run() {
+    let d = tempfile::tempdir().unwrap();
+    let m = fixture_map();
+    let m = m.to_str().unwrap();
+    let first = [
+        "segment",
+        m,
+        "-o",
+        "run",
+        "--floor",
+        "4e21",
+        "--grow-leaves",
+        "--quiet",
+    ];
+    let (code, _, stderr) = cairn(&first, d.path());
+    assert_eq!(code, 0, "{stderr}");
+    for name in ["overlay.png", "tree.svg", "leaves-grown.fits"] {
+        assert!(d.path().join("run").join(name).is_file(), "{name}");
+    }
+    let second = [
+        "segment",
+        m,
+        "-o",
+        "run",
+        "--floor",
+        "5e21",
+        "--no-figure",
+        "--force",
+        "--quiet",
+    ];
+    let (code, _, stderr) = cairn(&second, d.path());
+    assert_eq!(code, 0, "{stderr}");
+    let mut left: Vec<String> = std::fs::read_dir(d.path().join("run"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    left.sort();
+    assert_eq!(
+        left,
+        [
+            "hierarchy.dot",
+            "hierarchy.json",
+            "labels.fits",
+            "run.json",
+            "structures.csv",
+            "structures.fits",
+            "structures.vot"
+        ]
+    );
+}
+
+/// A failed run removes every folder level it created, not only the last.
+#[test]
+fn a_failed_run_removes_the_folders_it_made() {
+    let d = tempfile::tempdir().unwrap();
+    let m = fixture_map();
+    refused(
+        d.path(),
+        &[
+            "segment",
+            m.to_str().unwrap(),
+            "-o",
+            "deep/a/b/c",
+            "--floor",
+            "1e30",
+            "--quiet",
+        ],
+        "--floor",
+    );
+    assert!(!d.path().join("deep").exists());
+}
+
+/// A folder standing where an output file goes is refused before any work, even with
+/// `--force`, rather than failing half-way through putting the files in place.
+#[test]
+fn a_folder_in_place_of_an_output_is_refused_up_front() {
+    let d = tempfile::tempdir().unwrap();
+    std::fs::create_dir_all(d.path().join("run/tree.svg")).unwrap();
+    let m = fixture_map();
+    refused(
+        d.path(),
+        &[
+            "segment",
+            m.to_str().unwrap(),
+            "-o",
+            "run",
+            "--floor",
+            "4e21",
+            "--force",
+            "--quiet",
+        ],
+        "is a folder where an output file goes",
+    );
+    assert!(!d.path().join("run/structures.csv").exists());
+}

@@ -261,3 +261,42 @@ fn votable_positions_carry_ucds_and_coordinate_systems() {
     assert_eq!(systems.get("map_frame"), Some(&"ICRS"));
     assert_eq!(systems.get("second_frame"), Some(&"galactic"));
 }
+
+/// The catalogue's units read as a FITS reader reads them: astropy 8.0.2's `astropy.units`
+/// (FITS format) parses every TUNIT of the stored FITS table, the VOTable gives each column
+/// the same unit, and a sum over pixels divided by the map's unit leaves the pixel, also for
+/// map units with a denominator (`Jy/beam`, `MJy/sr`, `Jy/pixel`), where writing the pixel
+/// after the unit would put it in the denominator.
+#[test]
+fn catalogue_units_parse_as_meant() {
+    let reference = fixture_json("segment/reference.json");
+    let refs = reference["fits_units"].as_object().unwrap();
+    let text = std::fs::read_to_string(fixture_path("segment/run/structures.vot")).unwrap();
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let mut with_unit = 0;
+    for field in doc.descendants().filter(|n| n.has_tag_name("FIELD")) {
+        let name = field.attribute("name").unwrap();
+        match field.attribute("unit").filter(|u| !u.is_empty()) {
+            Some(unit) => {
+                let r = &refs[name];
+                assert_eq!(Some(unit), r["tunit"].as_str(), "{name}");
+                with_unit += 1;
+            }
+            None => assert!(refs.get(name).is_none(), "{name} has a TUNIT only"),
+        }
+    }
+    assert_eq!(with_unit, refs.len());
+    for name in ["sum", "excess_sum"] {
+        assert_eq!(refs[name]["over_map_unit"], "pix", "{name}");
+    }
+    let spelled = fixture_json("segment/pixel_sum_units.json");
+    let verdicts = &reference["pixel_sum_units_over_map_unit"];
+    for (map_unit, sum_unit) in spelled.as_object().unwrap() {
+        assert_eq!(
+            cairn::units::times_pixel(map_unit),
+            sum_unit.as_str().unwrap(),
+            "fixtures/segment/pixel_sum_units.json is no longer cairn's spelling"
+        );
+        assert_eq!(verdicts[map_unit], "pix", "{map_unit}: {sum_unit}");
+    }
+}

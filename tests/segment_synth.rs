@@ -151,8 +151,10 @@ fn pure_noise_gives_no_leaf_of_five_sigma_prominence() {
     let mut o = options(&out, Level::Value(-1.0), Level::Sigma(5.0), noise);
     o.min_area = Some(Area::Pixels(1.0));
     let s = cairn::segment::run(&map, &o, &|_, _| {}).unwrap();
-    // One root holds the whole map; it counts as a leaf when nothing rises 5 sigma within it.
-    assert_eq!(s.roots, 1);
+    // One tree holds the whole map; its top counts as a leaf (not a root with children) when
+    // nothing rises 5 sigma within it.
+    assert_eq!(s.trees, 1);
+    assert_eq!(s.roots, 0);
     assert_eq!(
         s.leaves, 1,
         "a single structure: the map itself, no significant peak inside"

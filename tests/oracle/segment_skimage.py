@@ -13,6 +13,9 @@ descendants (from hierarchy.json). Sources:
 * astropy 8.0.2 astropy.wcs.WCS.all_pix2world (origin 0) of cairn's catalogue pixel
   positions (peak_x, peak_y and the weighted centroid x, y), and the centroid in galactic
   coordinates from astropy.coordinates.SkyCoord (the map is ICRS) .galactic.
+* astropy 8.0.2 astropy.units (FITS format) on every TUNIT of cairn's run/structures.fits,
+  and each divided by the map's BUNIT; the same for cairn's spelling of a sum over pixels
+  for other map units (fixtures/segment/pixel_sum_units.json).
 * astropy 8.0.2 astropy.io.votable on cairn's run/structures.vot: each annotated field's UCD,
   whether astropy.io.votable.ucd.check_ucd accepts it against the IVOA controlled vocabulary,
   and the system and equinox of the COOSYS it refers to.
@@ -101,6 +104,27 @@ for fld in vot.get_first_table().fields:
                           "valid": bool(check_ucd(fld.ucd, check_controlled_vocabulary=True)),
                           "system": system, "equinox": equinox}
 
+# The catalogue's units as a FITS reader understands them: astropy.units (format "fits") on
+# every TUNIT of run/structures.fits, and each sum over pixels divided by the map's BUNIT
+# (it should leave the pixel alone).
+with fits.open(os.path.join(SRC, "map.fits")) as h:
+    map_unit = u.Unit(h[0].header["BUNIT"], format="fits")
+units = {}
+with fits.open(os.path.join(SRC, "run", "structures.fits")) as h:
+    for col in h[1].columns:
+        if col.unit:
+            parsed = u.Unit(col.unit, format="fits")
+            units[col.name] = {"tunit": col.unit, "parsed": parsed.to_string("fits"),
+                               "over_map_unit": (parsed / map_unit).to_string("fits")}
+
+# cairn's unit of a sum over pixels for other map units (fixtures/segment/pixel_sum_units.json,
+# which tests/segment_reference.rs keeps equal to cairn's current spelling), divided by the map
+# unit as astropy reads both.
+with open(os.path.join(SRC, "pixel_sum_units.json")) as f:
+    spelled = json.load(f)
+pixel_sums = {b: (u.Unit(s, format="fits") / u.Unit(b, format="fits")).to_string("fits")
+              for b, s in spelled.items()}
+
 import astropy
 import skimage
 
@@ -110,4 +134,6 @@ write_json(os.path.join(OUT, "reference.json"), {
     "regionprops": result,
     "sky": sky,
     "votable_ucds": ucds,
+    "fits_units": units,
+    "pixel_sum_units_over_map_unit": pixel_sums,
 })
