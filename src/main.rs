@@ -1209,6 +1209,7 @@ fn progress_bar(quiet: bool, npix: usize) -> Option<indicatif::ProgressBar> {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let _quiet = cli.quiet;
+    output::remove_partial_outputs_on_interrupt();
     let result = match &cli.command {
         Command::Inspect(a) => run_inspect(a),
         Command::Synth(a) => run_synth(a, cli.quiet),

@@ -19,6 +19,51 @@ pub struct Outputs {
     /// Files of an earlier run that this one does not write (removed on commit).
     stale: Vec<PathBuf>,
     committed: bool,
+    /// This plan's entry in [`LIVE`].
+    id: u64,
+}
+
+/// The temporary files and created folders of every plan not yet committed or dropped, for
+/// [`remove_partial_outputs_on_interrupt`].
+struct Live {
+    next: u64,
+    plans: Vec<LivePlan>,
+}
+
+struct LivePlan {
+    id: u64,
+    files: Vec<PathBuf>,
+    dir: PathBuf,
+    created_dir: Option<PathBuf>,
+}
+
+static LIVE: std::sync::Mutex<Live> = std::sync::Mutex::new(Live {
+    next: 0,
+    plans: Vec::new(),
+});
+
+fn forget(id: u64) {
+    let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
+    live.plans.retain(|p| p.id != id);
+}
+
+/// Makes an interrupt (Ctrl-C, SIGTERM, SIGHUP) remove the temporary files of every output
+/// plan not yet committed, and the folders those plans created, before the process ends with
+/// exit code 130, so that an interrupted run leaves no partial output either. Called once, by
+/// the binary.
+pub fn remove_partial_outputs_on_interrupt() {
+    let _ = ctrlc::set_handler(|| {
+        // The lock is held until the process ends, so no plan starts or commits meanwhile.
+        let live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
+        for p in &live.plans {
+            for f in &p.files {
+                let _ = std::fs::remove_file(f);
+            }
+            remove_created(&p.dir, p.created_dir.as_deref());
+        }
+        eprintln!("cairn: interrupted; no output was written.");
+        std::process::exit(130);
+    });
 }
 
 /// Refuses, before anything is written, a run whose output `name` in `dir` is one of its own
@@ -132,12 +177,25 @@ impl Outputs {
             )
         })?;
         let _ = std::fs::remove_file(&probe);
+        let id = {
+            let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
+            live.next += 1;
+            let id = live.next;
+            live.plans.push(LivePlan {
+                id,
+                files: planned.iter().map(|(_, tmp)| tmp.clone()).collect(),
+                dir: dir.to_path_buf(),
+                created_dir: created_dir.clone(),
+            });
+            id
+        };
         Ok(Outputs {
             dir: dir.to_path_buf(),
             created_dir,
             planned,
             stale,
             committed: false,
+            id,
         })
     }
 
@@ -176,6 +234,9 @@ impl Outputs {
                 )));
             }
         }
+        // An interrupt waits for the renames to finish (its handler takes the same lock), so
+        // the folder holds either the whole new run or none of it.
+        let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
         let mut done = Vec::new();
         for (target, tmp) in &self.planned {
             std::fs::rename(tmp, target).map_err(|e| {
@@ -195,6 +256,7 @@ impl Outputs {
             })?;
         }
         self.committed = true;
+        live.plans.retain(|p| p.id != self.id);
         Ok(done)
     }
 }
@@ -204,6 +266,7 @@ impl Drop for Outputs {
         if self.committed {
             return;
         }
+        forget(self.id);
         for (_, tmp) in &self.planned {
             let _ = std::fs::remove_file(tmp);
         }

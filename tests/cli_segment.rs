@@ -369,3 +369,37 @@ fn a_folder_in_place_of_an_output_is_refused_up_front() {
     );
     assert!(!d.path().join("run/structures.csv").exists());
 }
+
+/// An interrupted run (SIGTERM, as from `kill` or a batch system's time limit) leaves either
+/// nothing or the whole run, never temporary files or a half-filled folder. The signal is
+/// sent at several moments, so that some land mid-run; every outcome must be one of the two.
+#[cfg(unix)]
+#[test]
+fn an_interrupted_run_leaves_no_partial_output() {
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let mut interrupted = 0;
+    for delay_ms in [20u64, 60, 120, 200] {
+        let d = tempfile::tempdir().unwrap();
+        let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(["segment", map.to_str().unwrap(), "-o", "run", "--quiet"])
+            .current_dir(d.path())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        std::thread::sleep(std::time::Duration::from_millis(delay_ms));
+        let _ = Command::new("kill")
+            .args(["-TERM", &child.id().to_string()])
+            .status();
+        let status = child.wait().unwrap();
+        let run = d.path().join("run");
+        if status.code() == Some(130) {
+            interrupted += 1;
+            assert!(!run.exists(), "interrupted at {delay_ms} ms: the folder is left");
+        } else {
+            assert_eq!(status.code(), Some(0), "{status:?}");
+            let n = std::fs::read_dir(&run).unwrap().count();
+            assert_eq!(n, 11, "a finished run holds its eleven files");
+        }
+    }
+    assert!(interrupted > 0, "no signal landed mid-run");
+}
