@@ -294,12 +294,247 @@ fn rng(seed: u64, stream: u64) -> ChaCha8Rng {
     r
 }
 
+/// Most pixels a synthetic map may have: what the hierarchy engine of `cairn segment` accepts
+/// (fewer than 2^31), so that every map synth makes can be segmented.
+pub const MAX_PIXELS: usize = (1 << 31) - 1;
+/// Most cores (placed by hand plus the random population) a map may hold; also at most one
+/// per [`PIXELS_PER_CORE`] pixels.
+pub const MAX_CORES: usize = 10_000_000;
+/// Least number of pixels per core.
+pub const PIXELS_PER_CORE: usize = 4;
+/// Widest log-normal background (dispersion of ln N): beyond it the median pixel lies below
+/// exp(-12.5) ~ 4e-6 of the mean, nearly all of the background sits in a few pixels and the rest
+/// soon underflows.
+pub const MAX_SIGMA_LN: f64 = 5.0;
+/// Largest |power-spectrum index| of the background: with at most 2^31 pixels a side the
+/// filter |k|^(-index/2) and the field's variance then stay within double precision.
+pub const MAX_SPECTRAL_INDEX: f64 = 10.0;
+/// Peak working memory per pixel while a map is made with an FFT (a background or a beam):
+/// the real field (8 bytes) and the two complex buffers of the transform (16 + 16 bytes).
+const BYTES_PER_PIXEL_FFT: u128 = 40;
+/// Peak working memory per pixel without an FFT: the real field and the f32 map.
+const BYTES_PER_PIXEL_PLAIN: u128 = 12;
+/// Working memory per core (its specification, a copy, its truth row).
+const BYTES_PER_CORE: u128 = 256;
+
+/// Checks that `name` can be the base name of synth's output files: not empty, no path
+/// separator, not starting with '.' (hidden files, `..`), no control character.
+pub fn check_name(name: &str) -> Result<(), SynthError> {
+    let problem = if name.is_empty() {
+        Some("is empty")
+    } else if name.contains(['/', '\\']) {
+        Some("contains a path separator (choose the folder with -o)")
+    } else if name.starts_with('.') {
+        Some("starts with '.', which would make hidden files")
+    } else if name.chars().any(char::is_control) {
+        Some("contains a control character")
+    } else {
+        None
+    };
+    match problem {
+        Some(p) => Err(SynthError(format!(
+            "--name {name:?} {p}: give a plain file name such as velloran, and the folder with -o"
+        ))),
+        None => Ok(()),
+    }
+}
+
+/// Total pixels of the map, as a wide integer (never wraps).
+fn pixel_count(spec: &SynthSpec) -> u128 {
+    spec.nx as u128 * spec.ny as u128
+}
+
+/// Estimated peak working memory [bytes] of [`generate`] for `spec`.
+pub fn memory_needed(spec: &SynthSpec) -> u128 {
+    let per_pixel = if spec.background.is_some() || spec.beam_fwhm_arcsec > 0.0 {
+        BYTES_PER_PIXEL_FFT
+    } else {
+        BYTES_PER_PIXEL_PLAIN
+    };
+    let cores = spec.cores.len() as u128 + spec.population.map_or(0, |p| p.count as u128);
+    pixel_count(spec) * per_pixel + cores * BYTES_PER_CORE
+}
+
+fn gigabytes(bytes: u128) -> String {
+    let gb = bytes as f64 / 1e9;
+    if gb < 10.0 {
+        format!("{gb:.1} GB")
+    } else if gb >= 1e6 {
+        format!("{gb:.1e} GB")
+    } else {
+        format!("{gb:.0} GB")
+    }
+}
+
+/// Memory this machine can still give [bytes] (MemAvailable + SwapFree of /proc/meminfo), when
+/// known.
+fn memory_available() -> Option<u128> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let field = |key: &str| -> Option<u128> {
+        let line = text.lines().find(|l| l.starts_with(key))?;
+        let kb: u128 = line[key.len()..]
+            .trim()
+            .trim_end_matches("kB")
+            .trim()
+            .parse()
+            .ok()?;
+        Some(kb * 1024)
+    };
+    Some(field("MemAvailable:")? + field("SwapFree:").unwrap_or(0))
+}
+
+/// The refusal when the map's memory cannot be had.
+fn out_of_memory(spec: &SynthSpec) -> SynthError {
+    SynthError(format!(
+        "the map of {} x {} pixels needs about {} of memory while it is made, more than this machine can give: give a smaller --size (nx, ny in a spec file)",
+        spec.nx,
+        spec.ny,
+        gigabytes(memory_needed(spec))
+    ))
+}
+
+/// A buffer whose allocation may fail without aborting the process.
+struct NoMemory;
+
+fn try_filled<T: Clone + Send + Sync>(n: usize, v: T) -> Result<Vec<T>, NoMemory> {
+    let mut out = Vec::new();
+    out.try_reserve_exact(n).map_err(|_| NoMemory)?;
+    out.par_extend(rayon::iter::repeat_n(v, n));
+    Ok(out)
+}
+
+/// Checks a spec before anything is allocated: shape, memory, numbers, ranges, core count.
+/// [`generate`] runs it first; call it before creating outputs to refuse a spec early. Each
+/// message names the command-line option (and the field of a spec file) and the fix.
+pub fn check(spec: &SynthSpec) -> Result<(), SynthError> {
+    validate(spec)?;
+    let need = memory_needed(spec);
+    if let Some(free) = memory_available()
+        && need > free
+    {
+        return Err(SynthError(format!(
+            "the map of {} x {} pixels needs about {} of memory while it is made, more than the {} this machine has free: give a smaller --size (nx, ny in a spec file)",
+            spec.nx,
+            spec.ny,
+            gigabytes(need),
+            gigabytes(free)
+        )));
+    }
+    Ok(())
+}
+
 fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
     let bad = |m: String| Err(SynthError(m));
     if spec.nx < 2 || spec.ny < 2 {
         return bad(format!(
             "shape {} x {} is too small (at least 2 x 2)",
             spec.nx, spec.ny
+        ));
+    }
+    let npix = pixel_count(spec);
+    if npix > MAX_PIXELS as u128 {
+        return bad(format!(
+            "the map size {} x {} ({npix} pixels, about {} of memory) is more than the {MAX_PIXELS} pixels (2^31 - 1) cairn can segment: give a smaller --size (nx, ny in a spec file), such as 8192 or 16384x8192",
+            spec.nx,
+            spec.ny,
+            gigabytes(memory_needed(spec))
+        ));
+    }
+    let npix = npix as usize;
+    // Every number finite (a NaN or infinity gives a map of NaN and a spec that cannot be read
+    // back).
+    let mut numbers: Vec<(String, f64)> = vec![
+        ("--pixel (pixel_arcsec)".into(), spec.pixel_arcsec),
+        ("--centre (centre_lon_deg)".into(), spec.centre_lon_deg),
+        ("--centre (centre_lat_deg)".into(), spec.centre_lat_deg),
+        ("--distance (distance_pc)".into(), spec.distance_pc),
+        ("--beam (beam_fwhm_arcsec)".into(), spec.beam_fwhm_arcsec),
+        ("--noise (noise_rms)".into(), spec.noise_rms),
+    ];
+    if let Some(b) = &spec.background {
+        numbers.extend([
+            (
+                "--background (background.mean_column_cm2)".into(),
+                b.mean_column_cm2,
+            ),
+            (
+                "--background-width (background.sigma_ln)".into(),
+                b.sigma_ln,
+            ),
+            (
+                "--background-index (background.spectral_index)".into(),
+                b.spectral_index,
+            ),
+        ]);
+    }
+    let xi = |p: &Profile| match p {
+        Profile::BonnorEbert { xi_max } => Some(*xi_max),
+        Profile::Gaussian => None,
+    };
+    for (i, c) in spec.cores.iter().enumerate() {
+        let n = i + 1;
+        numbers.extend([
+            (format!("core {n} of the spec (x)"), c.x),
+            (format!("core {n} of the spec (y)"), c.y),
+            (format!("core {n} of the spec (mass_msun)"), c.mass_msun),
+            (format!("core {n} of the spec (radius_pc)"), c.radius_pc),
+        ]);
+        if let Some(x) = xi(&c.profile) {
+            numbers.push((format!("core {n} of the spec (xi_max)"), x));
+        }
+    }
+    if let Some(p) = &spec.population {
+        numbers.extend([
+            (
+                "--core-mass (population.mass_min_msun)".into(),
+                p.mass_min_msun,
+            ),
+            (
+                "--core-mass (population.mass_max_msun)".into(),
+                p.mass_max_msun,
+            ),
+            (
+                "--core-mass-index (population.mass_index)".into(),
+                p.mass_index,
+            ),
+            (
+                "--core-radius (population.radius_min_pc)".into(),
+                p.radius_min_pc,
+            ),
+            (
+                "--core-radius (population.radius_max_pc)".into(),
+                p.radius_max_pc,
+            ),
+            ("population.margin_px".into(), p.margin_px),
+        ]);
+        if let Some(x) = xi(&p.profile) {
+            numbers.push(("population.profile (xi_max)".into(), x));
+        }
+    }
+    if let Output::DustEmission {
+        wavelength_um,
+        temperature_k,
+        opacity,
+        ..
+    } = &spec.output
+    {
+        numbers.extend([
+            ("--emission (output.wavelength_um)".into(), *wavelength_um),
+            (
+                "--temperature (output.temperature_k)".into(),
+                *temperature_k,
+            ),
+            (
+                "output.opacity.kappa0_cm2_per_g".into(),
+                opacity.kappa0_cm2_per_g,
+            ),
+            ("output.opacity.nu0_hz".into(), opacity.nu0_hz),
+            ("output.opacity.beta".into(), opacity.beta),
+        ]);
+    }
+    if let Some((what, v)) = numbers.iter().find(|(_, v)| !v.is_finite()) {
+        return bad(format!(
+            "{what} is {v}, not a finite number: give a finite value"
         ));
     }
     let pos = |v: f64| v.is_finite() && v > 0.0;
@@ -318,16 +553,37 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
             spec.beam_fwhm_arcsec
         ));
     }
+    let side = spec.nx.min(spec.ny);
+    if spec.beam_fwhm_arcsec > side as f64 * spec.pixel_arcsec {
+        return bad(format!(
+            "--beam (beam_fwhm_arcsec) {} arcsec is wider than the map's shorter side ({side} pixels of {} arcsec): give a beam narrower than {} arcsec or a larger --size",
+            spec.beam_fwhm_arcsec,
+            spec.pixel_arcsec,
+            side as f64 * spec.pixel_arcsec
+        ));
+    }
     if !(spec.noise_rms.is_finite() && spec.noise_rms >= 0.0) {
         return bad(format!("noise rms {} must be >= 0", spec.noise_rms));
     }
     if !(spec.centre_lat_deg.abs() <= 90.0 && spec.centre_lon_deg.is_finite()) {
         return bad("map centre latitude must lie in [-90, 90] degrees".into());
     }
-    if let Some(b) = &spec.background
-        && !(pos(b.mean_column_cm2) && b.sigma_ln.is_finite() && b.sigma_ln >= 0.0)
-    {
-        return bad("background needs a positive mean column density and sigma_ln >= 0".into());
+    if let Some(b) = &spec.background {
+        if !(pos(b.mean_column_cm2) && b.sigma_ln.is_finite() && b.sigma_ln >= 0.0) {
+            return bad("background needs a positive mean column density and sigma_ln >= 0".into());
+        }
+        if b.sigma_ln > MAX_SIGMA_LN {
+            return bad(format!(
+                "--background-width (background.sigma_ln) {} is too wide (above {MAX_SIGMA_LN} nearly all of the background sits in a few pixels and the rest underflows to zero): give at most {MAX_SIGMA_LN}",
+                b.sigma_ln
+            ));
+        }
+        if b.spectral_index.abs() > MAX_SPECTRAL_INDEX {
+            return bad(format!(
+                "--background-index (background.spectral_index) {} is out of range: give a value between -{MAX_SPECTRAL_INDEX} and {MAX_SPECTRAL_INDEX}, such as 3",
+                b.spectral_index
+            ));
+        }
     }
     if let Output::DustEmission {
         wavelength_um,
@@ -349,6 +605,20 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
         }
         _ => Ok(()),
     };
+    let most_cores = MAX_CORES.min(npix / PIXELS_PER_CORE);
+    let placed = spec.cores.len();
+    let drawn = spec.population.map_or(0, |p| p.count);
+    if placed.saturating_add(drawn) > most_cores {
+        let asked = match (placed, drawn) {
+            (0, d) => format!("--cores (population.count) {d}"),
+            (p, 0) => format!("the spec's {p} placed cores"),
+            (p, d) => format!("--cores (population.count) {d} besides the spec's {p} placed cores"),
+        };
+        return bad(format!(
+            "{asked} is more than a map of {} x {} pixels can hold: give at most {most_cores} cores in all (one per {PIXELS_PER_CORE} pixels, at most {MAX_CORES}) or a larger --size",
+            spec.nx, spec.ny
+        ));
+    }
     for (i, c) in spec.cores.iter().enumerate() {
         if !pos(c.mass_msun) || !pos(c.radius_pc) {
             return bad(format!("core {} needs a positive mass and radius", i + 1));
@@ -473,7 +743,7 @@ fn render_core(
     core: &CoreSpec,
     spec: &SynthSpec,
     be_cache: &mut Vec<(f64, BonnorEbertProjection)>,
-) -> Stamp {
+) -> Result<Stamp, NoMemory> {
     let pix_m = spec.distance_pc * PC * spec.pixel_arcsec * ARCSEC;
     let r_px = core.radius_pc * PC / pix_m;
     let extent = match core.profile {
@@ -512,7 +782,7 @@ fn render_core(
     } else {
         1
     };
-    let mut values = vec![0.0; w * h];
+    let mut values = try_filled(w * h, 0.0)?;
     for j in 0..h {
         for i in 0..w {
             let mut s = 0.0;
@@ -540,13 +810,13 @@ fn render_core(
     for v in &mut values {
         *v *= scale;
     }
-    Stamp {
+    Ok(Stamp {
         x0,
         y0,
         w,
         h,
         values,
-    }
+    })
 }
 
 /// The sampled Gaussian beam in 1-D, normalised to unit sum: taps for offsets -k..=k [px].
@@ -620,10 +890,16 @@ impl Fourier {
 
     /// Multiplies the 2-D DFT of the real field `field` (row-major, ny x nx) by
     /// `filter(fx_index, fy_index)` and returns the real part of the result.
-    fn filter(&self, field: &mut [f64], filter: impl Fn(usize, usize) -> f64 + Sync) {
+    fn filter(
+        &self,
+        field: &mut [f64],
+        filter: impl Fn(usize, usize) -> f64 + Sync,
+    ) -> Result<(), NoMemory> {
         let (nx, ny) = (self.nx, self.ny);
-        let mut a: Vec<Complex<f64>> = field.par_iter().map(|&v| Complex::new(v, 0.0)).collect();
-        let mut b = vec![Complex::new(0.0, 0.0); nx * ny];
+        let mut a: Vec<Complex<f64>> = Vec::new();
+        a.try_reserve_exact(field.len()).map_err(|_| NoMemory)?;
+        a.par_extend(field.par_iter().map(|&v| Complex::new(v, 0.0)));
+        let mut b = try_filled(nx * ny, Complex::new(0.0, 0.0))?;
         Self::rows(&self.fwd_x, &mut a, nx);
         Self::transpose(&a, &mut b, ny, nx);
         Self::rows(&self.fwd_y, &mut b, ny);
@@ -640,6 +916,7 @@ impl Fourier {
             .par_iter_mut()
             .zip(a.par_iter())
             .for_each(|(f, c)| *f = c.re * norm);
+        Ok(())
     }
 }
 
@@ -662,9 +939,9 @@ fn ordered_sum(v: &[f64], nx: usize, f: impl Fn(f64) -> f64 + Sync) -> f64 {
 }
 
 /// The Gaussian random field with P(k) ~ k^-index, zero mean, unit variance.
-fn gaussian_field(spec: &SynthSpec, index: f64, fourier: &Fourier) -> Vec<f64> {
+fn gaussian_field(spec: &SynthSpec, index: f64, fourier: &Fourier) -> Result<Vec<f64>, NoMemory> {
     let (nx, ny) = (spec.nx, spec.ny);
-    let mut g = vec![0.0; nx * ny];
+    let mut g = try_filled(nx * ny, 0.0)?;
     g.par_chunks_mut(nx).enumerate().for_each(|(row, out)| {
         let mut r = rng(spec.seed, STREAM_BACKGROUND | row as u64);
         for v in out {
@@ -678,13 +955,13 @@ fn gaussian_field(spec: &SynthSpec, index: f64, fourier: &Fourier) -> Vec<f64> {
             let k2 = freq(fx, nx).powi(2) + freq(fy, ny).powi(2);
             k2.powf(-index / 4.0)
         }
-    });
+    })?;
     let n = (nx * ny) as f64;
     let mean = ordered_sum(&g, nx, |x| x) / n;
     let var = ordered_sum(&g, nx, |x| (x - mean) * (x - mean)) / n;
     let inv = if var > 0.0 { 1.0 / var.sqrt() } else { 0.0 };
     g.par_iter_mut().for_each(|v| *v = (*v - mean) * inv);
-    g
+    Ok(g)
 }
 
 /// Unit string and factor from H2 column density [m^-2] to output units.
@@ -712,14 +989,14 @@ fn output_units(spec: &SynthSpec) -> (&'static str, f64) {
 }
 
 /// Peak of a stamp convolved (directly, without wrap-around) with the separable beam.
-fn convolved_peak(stamp: &Stamp, taps: Option<&[f64]>) -> f64 {
+fn convolved_peak(stamp: &Stamp, taps: Option<&[f64]>) -> Result<f64, NoMemory> {
     let Some(t) = taps else {
-        return stamp.values.iter().cloned().fold(0.0, f64::max);
+        return Ok(stamp.values.iter().cloned().fold(0.0, f64::max));
     };
     let k = t.len() / 2;
     let (w, h) = (stamp.w + 2 * k, stamp.h + 2 * k);
     // Horizontal pass into a padded buffer, then vertical.
-    let mut tmp = vec![0.0; w * stamp.h];
+    let mut tmp = try_filled(w * stamp.h, 0.0)?;
     for j in 0..stamp.h {
         for i in 0..stamp.w {
             let v = stamp.values[j * stamp.w + i];
@@ -730,7 +1007,7 @@ fn convolved_peak(stamp: &Stamp, taps: Option<&[f64]>) -> f64 {
             }
         }
     }
-    let mut out = vec![0.0; w * h];
+    let mut out = try_filled(w * h, 0.0)?;
     for j in 0..stamp.h {
         for i in 0..w {
             let v = tmp[j * w + i];
@@ -741,36 +1018,64 @@ fn convolved_peak(stamp: &Stamp, taps: Option<&[f64]>) -> f64 {
             }
         }
     }
-    out.into_iter().fold(0.0, f64::max)
+    Ok(out.into_iter().fold(0.0, f64::max))
 }
 
 /// Generates the map a spec describes.
+///
+/// Refuses, with a sentence naming the option and the fix: a spec [`check`] refuses; a map
+/// whose memory cannot be had; a background that exceeds or underflows the map's 32-bit floats;
+/// a map holding values that are not finite (too massive cores, too much noise).
 pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
-    validate(spec)?;
+    check(spec)?;
+    let oom = |_: NoMemory| out_of_memory(spec);
     let (nx, ny) = (spec.nx, spec.ny);
     let fourier = Fourier::new(nx, ny);
+    let (unit, factor) = output_units(spec);
 
     // 1. Background [m^-2].
     let mut col = match &spec.background {
         Some(b) => {
-            let g = gaussian_field(spec, b.spectral_index, &fourier);
+            let g = gaussian_field(spec, b.spectral_index, &fourier).map_err(oom)?;
             let (mean, s) = (b.mean_column_cm2 * 1e4, b.sigma_ln);
-            g.into_par_iter()
-                .map(|v| mean * (s * v - 0.5 * s * s).exp())
-                .collect()
+            let mut col = Vec::new();
+            col.try_reserve_exact(g.len()).map_err(|_| oom(NoMemory))?;
+            col.par_extend(g.par_iter().map(|v| mean * (s * v - 0.5 * s * s).exp()));
+            drop(g);
+            // In output units and single precision, as the map will hold it.
+            let (too_big, too_small) = col
+                .par_iter()
+                .map(|&v| {
+                    let o = (v * factor) as f32;
+                    (!o.is_finite(), o.is_nan() || o <= 0.0)
+                })
+                .reduce(|| (false, false), |a, b| (a.0 || b.0, a.1 || b.1));
+            if too_big {
+                return Err(SynthError(format!(
+                    "the background of mean {:e} cm-2 exceeds the largest value the map's 32-bit floats hold ({:e} {unit}): lower --background (background.mean_column_cm2) or --background-width",
+                    b.mean_column_cm2,
+                    f32::MAX
+                )));
+            }
+            if too_small {
+                return Err(SynthError(format!(
+                    "the background of mean {:e} cm-2 underflows to zero in some pixels of the map's 32-bit floats: raise --background (background.mean_column_cm2) or lower --background-width",
+                    b.mean_column_cm2
+                )));
+            }
+            col
         }
-        None => vec![0.0; nx * ny],
+        None => try_filled(nx * ny, 0.0).map_err(oom)?,
     };
 
     // 2. Cores.
-    let (unit, factor) = output_units(spec);
     let sigma_px =
         spec.beam_fwhm_arcsec / spec.pixel_arcsec / (8.0 * std::f64::consts::LN_2).sqrt();
     let taps = (spec.beam_fwhm_arcsec > 0.0).then(|| beam_taps(sigma_px));
     let mut be_cache = Vec::new();
     let mut truth = Vec::new();
     for (i, core) in all_cores(spec).iter().enumerate() {
-        let stamp = render_core(core, spec, &mut be_cache);
+        let stamp = render_core(core, spec, &mut be_cache).map_err(oom)?;
         for j in 0..stamp.h {
             let row = (stamp.y0 + j) * nx + stamp.x0;
             for (c, v) in col[row..row + stamp.w]
@@ -790,7 +1095,7 @@ pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
             mass_msun: core.mass_msun,
             radius_pc: core.radius_pc,
             profile: core.profile.name().to_string(),
-            peak: convolved_peak(&stamp, taps.as_deref()) * factor,
+            peak: convolved_peak(&stamp, taps.as_deref()).map_err(oom)? * factor,
             peak_unit: unit.to_string(),
             peak_column_cm2: stamp.values.iter().cloned().fold(0.0, f64::max) * 1e-4,
         });
@@ -799,25 +1104,47 @@ pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
     // 3. Beam: periodic convolution with the sampled, unit-sum Gaussian.
     if let Some(t) = &taps {
         let (tx, ty) = (taps_transfer(t, nx), taps_transfer(t, ny));
-        fourier.filter(&mut col, |fx, fy| tx[fx] * ty[fy]);
+        fourier
+            .filter(&mut col, |fx, fy| tx[fx] * ty[fy])
+            .map_err(oom)?;
     }
 
-    // 4-5. Units and noise.
-    let mut data = vec![0.0f32; nx * ny];
-    data.par_chunks_mut(nx)
+    // 4-5. Units and noise; notes whether the signal or the noise left the f32 range.
+    let mut data = try_filled(nx * ny, 0.0f32).map_err(oom)?;
+    let (bad_signal, bad_total) = data
+        .par_chunks_mut(nx)
         .zip(col.par_chunks(nx))
         .enumerate()
-        .for_each(|(row, (out, inp))| {
+        .map(|(row, (out, inp))| {
             let mut r = rng(spec.seed, STREAM_NOISE | row as u64);
+            let (mut bad_signal, mut bad_total) = (false, false);
             for (o, &v) in out.iter_mut().zip(inp) {
                 let mut x = v * factor;
+                bad_signal |= !(x as f32).is_finite();
                 if spec.noise_rms > 0.0 {
                     let n: f64 = StandardNormal.sample(&mut r);
                     x += spec.noise_rms * n;
                 }
                 *o = x as f32;
+                bad_total |= !o.is_finite();
             }
-        });
+            (bad_signal, bad_total)
+        })
+        .reduce(|| (false, false), |a, b| (a.0 || b.0, a.1 || b.1));
+    drop(col);
+    if bad_signal {
+        return Err(SynthError(format!(
+            "the cores make pixel values beyond what the map's 32-bit floats hold ({:e} {unit}): lower --core-mass (the cores' mass_msun in a spec file) or raise --core-radius",
+            f32::MAX
+        )));
+    }
+    if bad_total {
+        return Err(SynthError(format!(
+            "--noise (noise_rms) {:e} makes pixel values beyond what the map's 32-bit floats hold ({:e} {unit}): give a smaller --noise",
+            spec.noise_rms,
+            f32::MAX
+        )));
+    }
     let data = Array2::from_shape_vec((ny, nx), data).expect("shape matches");
     Ok(SynthMap {
         data,
@@ -917,7 +1244,9 @@ pub fn write_truth_csv(path: &Path, cores: &[TruthCore]) -> std::io::Result<()> 
     writeln!(
         out,
         "# x, y: zero-based pixel (centre of first pixel = 0,0); lon_deg, lat_deg: deg; \
-         mass_msun: M_sun; radius_pc: pc; peak: {unit} (beam-convolved, no background); \
+         mass_msun: M_sun; radius_pc: pc (half width at half maximum of Gaussian cores, outer \
+         radius of Bonnor-Ebert cores; not a catalogue's effective radius); \
+         peak: {unit} (beam-convolved, no background); \
          peak_column_cm2: cm-2 (before convolution)"
     )?;
     writeln!(
@@ -954,7 +1283,9 @@ mod tests {
             ny: 48,
             ..SynthSpec::default()
         };
-        let g = gaussian_field(&spec, 3.0, &Fourier::new(64, 48));
+        let g = gaussian_field(&spec, 3.0, &Fourier::new(64, 48))
+            .ok()
+            .unwrap();
         let n = g.len() as f64;
         let mean = g.iter().sum::<f64>() / n;
         let var = g.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n;
@@ -973,7 +1304,7 @@ mod tests {
         // The identity filter returns the field.
         let mut f: Vec<f64> = (0..40 * 30).map(|i| ((i * 7919) % 113) as f64).collect();
         let orig = f.clone();
-        Fourier::new(40, 30).filter(&mut f, |_, _| 1.0);
+        assert!(Fourier::new(40, 30).filter(&mut f, |_, _| 1.0).is_ok());
         assert!(f.iter().zip(&orig).all(|(a, b)| (a - b).abs() < 1e-10));
     }
 
@@ -993,10 +1324,70 @@ mod tests {
                 radius_pc: radius,
                 profile,
             };
-            let stamp = render_core(&core, &spec, &mut Vec::new());
+            let stamp = render_core(&core, &spec, &mut Vec::new()).ok().unwrap();
             let mass = stamp.values.iter().sum::<f64>() * pix_m * pix_m * MU_H2 * M_H / M_SUN;
             assert!((mass - 2.0).abs() < 1e-13, "radius {radius}: {mass}");
         }
+    }
+
+    #[test]
+    fn output_names_must_be_plain_file_names() {
+        for good in ["synth", "velloran-850um", "a.b", "map_1"] {
+            assert!(check_name(good).is_ok(), "{good}");
+        }
+        for bad in [
+            "",
+            "a/b",
+            "/abs",
+            "../escape",
+            ".hidden",
+            "a\\b",
+            "tab\there",
+        ] {
+            let e = check_name(bad).unwrap_err();
+            assert!(
+                e.0.starts_with("--name") && e.0.contains("plain file name"),
+                "{e}"
+            );
+        }
+    }
+
+    #[test]
+    fn sizes_and_core_counts_are_checked_without_wrapping() {
+        for (nx, ny) in [
+            (100_000, 100_000),
+            (1 << 32, 1 << 32),
+            (usize::MAX, usize::MAX),
+        ] {
+            let e = check(&SynthSpec {
+                nx,
+                ny,
+                ..SynthSpec::default()
+            })
+            .unwrap_err();
+            assert!(e.0.contains("--size") && e.0.contains("2^31 - 1"), "{e}");
+        }
+        let spec = |count| SynthSpec {
+            population: Some(CorePopulation {
+                count,
+                mass_min_msun: 1.0,
+                mass_max_msun: 2.0,
+                mass_index: 2.35,
+                radius_min_pc: 0.02,
+                radius_max_pc: 0.05,
+                profile: Profile::Gaussian,
+                margin_px: 10.0,
+            }),
+            ..SynthSpec::default()
+        };
+        assert!(check(&spec(256 * 256 / 4)).is_ok());
+        assert!(
+            check(&spec(256 * 256 / 4 + 1))
+                .unwrap_err()
+                .0
+                .contains("--cores")
+        );
+        assert!(check(&spec(usize::MAX)).unwrap_err().0.contains("--cores"));
     }
 
     #[test]

@@ -1,0 +1,296 @@
+//! Bad input to `cairn synth`: one sentence naming the option and the fix, exit code 2, no
+//! panic, no abort for want of memory, and no output folder or file left behind.
+
+use std::path::Path;
+use std::process::Command;
+
+struct Outcome {
+    code: i32,
+    stderr: String,
+    stdout: String,
+}
+
+fn outcome(out: std::process::Output) -> Outcome {
+    Outcome {
+        code: out.status.code().unwrap_or(-1),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+    }
+}
+
+fn cairn(args: &[&str], dir: &Path) -> Outcome {
+    outcome(
+        Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(args)
+            .current_dir(dir)
+            .output()
+            .expect("run cairn"),
+    )
+}
+
+/// Runs cairn with its address space limited to `kb` kilobytes (`ulimit -v`), so that a map
+/// too large for the memory is refused whatever the memory of the machine running the tests.
+#[cfg(unix)]
+fn cairn_limited(args: &[&str], dir: &Path, kb: u64) -> Outcome {
+    outcome(
+        Command::new("sh")
+            .arg("-c")
+            .arg(format!("ulimit -v {kb} && exec \"$0\" \"$@\""))
+            .arg(env!("CARGO_BIN_EXE_cairn"))
+            .args(args)
+            .current_dir(dir)
+            .output()
+            .expect("run cairn under sh"),
+    )
+}
+
+fn listing(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    v.sort();
+    v
+}
+
+/// The rule for bad input: exit 2, one line on stderr naming `names` and saying `says`, no
+/// panic, nothing on stdout, and nothing new in the folder (no output folder left behind).
+fn check_refused(o: &Outcome, args: &[&str], names: &str, says: &str) {
+    assert_eq!(o.code, 2, "exit code for {args:?}: stderr {}", o.stderr);
+    assert!(
+        !o.stderr.contains("panicked") && !o.stderr.contains("memory allocation"),
+        "panic or abort for {args:?}: {}",
+        o.stderr
+    );
+    assert_eq!(
+        o.stderr.trim_end().lines().count(),
+        1,
+        "one sentence for {args:?}: {}",
+        o.stderr
+    );
+    assert!(
+        o.stderr.contains(names),
+        "{args:?}: stderr should name {names}: {}",
+        o.stderr
+    );
+    assert!(
+        o.stderr.contains(says),
+        "{args:?}: stderr should say '{says}': {}",
+        o.stderr
+    );
+    assert!(
+        o.stdout.is_empty(),
+        "{args:?}: nothing on stdout: {}",
+        o.stdout
+    );
+}
+
+fn assert_refused(extra: &[&str], names: &str, says: &str) {
+    let dir = tempfile::tempdir().unwrap();
+    let mut args = vec!["synth", "-o", "out"];
+    args.extend_from_slice(extra);
+    let o = cairn(&args, dir.path());
+    check_refused(&o, &args, names, says);
+    assert!(
+        listing(dir.path()).is_empty(),
+        "{args:?}: nothing written, no output folder: {:?}",
+        listing(dir.path())
+    );
+}
+
+#[test]
+fn sizes_beyond_the_pixel_limit_are_refused_before_any_allocation() {
+    for size in [
+        "100000",
+        "4294967296x4294967296",
+        "18446744073709551615",
+        "2x18446744073709551615",
+        "46341",
+    ] {
+        assert_refused(&["--size", size], "--size", "2^31 - 1");
+    }
+}
+
+#[test]
+fn a_spec_file_with_a_huge_map_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column-spec.json");
+    let mut spec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(demo).unwrap()).unwrap();
+    spec["nx"] = 1_000_000_000u64.into();
+    spec["ny"] = 1_000_000_000u64.into();
+    std::fs::write(dir.path().join("huge.json"), spec.to_string()).unwrap();
+    let args = ["synth", "-o", "out", "--spec", "huge.json"];
+    let o = cairn(&args, dir.path());
+    check_refused(&o, &args, "--size (nx, ny in a spec file)", "2^31 - 1");
+    assert_eq!(listing(dir.path()), ["huge.json"], "no output folder left");
+}
+
+#[cfg(unix)]
+#[test]
+fn a_map_needing_more_memory_than_the_machine_gives_is_refused() {
+    // 4e8 pixels need about 16 GB; with 3 GB of address space the allocation fails (or the
+    // machine's free memory is already too small), and cairn says so instead of aborting.
+    for extra in [
+        &["--size", "20000", "--no-background"][..],
+        &["--size", "20000"][..],
+        &["--size", "46000"][..],
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let mut args = vec!["synth", "-o", "out"];
+        args.extend_from_slice(extra);
+        let o = cairn_limited(&args, dir.path(), 3_000_000);
+        check_refused(&o, &args, "--size", "GB of memory");
+        assert!(listing(dir.path()).is_empty(), "{args:?}: no output folder");
+    }
+}
+
+#[test]
+fn too_many_cores_are_refused() {
+    assert_refused(
+        &["--cores", "100000000000"],
+        "--cores",
+        "at most 16384 cores",
+    );
+    assert_refused(&["--cores", "16385"], "--cores", "one per 4 pixels");
+    assert_refused(
+        &["--size", "8192", "--no-background", "--cores", "10000001"],
+        "--cores",
+        "at most 10000000",
+    );
+}
+
+#[test]
+fn non_finite_parameters_are_refused() {
+    for (option, value) in [
+        ("--background-index", "nan"),
+        ("--background-index", "inf"),
+        ("--background-index", "-inf"),
+        ("--background-width", "nan"),
+        ("--background-width", "inf"),
+        ("--core-mass-index", "nan"),
+    ] {
+        // `--option=value`, so that clap takes "-inf" as a value.
+        let pair = format!("{option}={value}");
+        let mut extra = vec![pair.as_str()];
+        if option == "--core-mass-index" {
+            extra.extend(["--cores", "3"]);
+        }
+        assert_refused(&extra, option, "not a finite number");
+    }
+}
+
+#[test]
+fn out_of_range_background_parameters_are_refused() {
+    assert_refused(
+        &["--background-index", "1e6"],
+        "--background-index",
+        "between -10 and 10",
+    );
+    assert_refused(
+        &["--background-width", "1000"],
+        "--background-width",
+        "at most 5",
+    );
+    assert_refused(
+        &["--background", "1e300cm-2"],
+        "--background",
+        "32-bit floats",
+    );
+    assert_refused(
+        &["--background", "1e-60cm-2"],
+        "--background",
+        "underflows to zero",
+    );
+}
+
+#[test]
+fn maps_with_values_beyond_single_precision_are_refused() {
+    assert_refused(
+        &["--core-mass", "1e30Msun,1e30Msun", "--cores", "2"],
+        "--core-mass",
+        "32-bit floats",
+    );
+    assert_refused(
+        &[
+            "--no-background",
+            "--core-mass",
+            "1e30Msun,1e30Msun",
+            "--cores",
+            "2",
+        ],
+        "--core-mass",
+        "32-bit floats",
+    );
+    assert_refused(&["--noise", "1e300"], "--noise", "32-bit floats");
+}
+
+#[test]
+fn a_beam_wider_than_the_map_is_refused() {
+    assert_refused(
+        &["--beam", "1e6arcsec", "--cores", "1"],
+        "--beam",
+        "wider than the map",
+    );
+    assert_refused(
+        &["--size", "64", "--pixel", "1e-6arcsec"],
+        "--beam",
+        "wider than the map",
+    );
+}
+
+/// `--name` must be a plain file name: no folders, not hidden, not empty.
+#[test]
+fn names_that_are_not_plain_file_names_are_refused() {
+    for name in [
+        "a/b",
+        "/abs",
+        "../escape",
+        "",
+        ".hidden",
+        "a\\b",
+        "tab\there",
+    ] {
+        assert_refused(
+            &["--size", "64", "--name", name],
+            "--name",
+            "plain file name",
+        );
+    }
+}
+
+#[test]
+fn the_refusals_leave_an_existing_output_folder_as_it_was() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::create_dir(dir.path().join("out")).unwrap();
+    std::fs::write(dir.path().join("out/notes.txt"), b"keep").unwrap();
+    let args = ["synth", "-o", "out", "--background-width", "1000"];
+    let o = cairn(&args, dir.path());
+    check_refused(&o, &args, "--background-width", "at most 5");
+    assert_eq!(listing(&dir.path().join("out")), ["notes.txt"]);
+}
+
+#[test]
+fn a_good_small_map_is_still_made() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = cairn(
+        &[
+            "synth", "-o", "out", "--size", "64", "--cores", "3", "--name", "ok",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert_eq!(
+        listing(&dir.path().join("out")),
+        ["ok-spec.json", "ok-truth.csv", "ok.fits"]
+    );
+    let truth = std::fs::read_to_string(dir.path().join("out/ok-truth.csv")).unwrap();
+    assert!(
+        truth
+            .lines()
+            .next()
+            .unwrap()
+            .contains("half width at half maximum"),
+        "{truth}"
+    );
+}
