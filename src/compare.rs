@@ -44,22 +44,15 @@ pub struct Population {
 }
 
 fn read_csv(path: &Path) -> Result<(Vec<String>, Vec<Vec<String>>)> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
-    let mut lines = text
-        .lines()
-        .filter(|l| !l.starts_with('#') && !l.trim().is_empty());
-    let header: Vec<String> = lines
-        .next()
-        .ok_or_else(|| Error::input(path, "is empty; give a catalogue written by cairn segment."))?
-        .split(',')
-        .map(str::to_string)
-        .collect();
-    // Catalogue values never contain commas except in quoted text, which compare does not read.
-    let rows = lines
-        .map(|l| l.split(',').map(str::to_string).collect())
-        .collect();
-    Ok((header, rows))
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::input(
+            path,
+            format!(
+                "cannot be read ({e}); give a run folder or a catalogue written by cairn segment."
+            ),
+        )
+    })?;
+    crate::table::read_catalogue_csv(path, &text)
 }
 
 /// Reads a population from a run folder or a catalogue file. `mass_column` chooses the mass
@@ -98,23 +91,38 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         dropped: 0,
         run: serde_json::Value::Null,
     };
-    for r in rows {
+    for (n, r) in rows.iter().enumerate() {
         if r.get(kind).map(String::as_str) != Some("leaf") {
             continue;
         }
-        let num = |i: usize| {
-            r.get(i)
-                .and_then(|v| v.parse::<f64>().ok())
-                .unwrap_or(f64::NAN)
+        // An empty cell is a missing value; any other text must be a number.
+        let num = |i: usize| -> Result<f64> {
+            let v = r.get(i).map(String::as_str).unwrap_or("");
+            if v.is_empty() {
+                return Ok(f64::NAN);
+            }
+            v.parse::<f64>().map_err(|_| {
+                Error::input(
+                    &csv,
+                    format!(
+                        "row {} holds '{v}' in the numeric column '{}': the catalogue is damaged; run cairn segment again.",
+                        n + 1,
+                        header[i]
+                    ),
+                )
+            })
         };
-        let (m, rad) = (num(mass), num(radius));
+        let (m, rad) = (num(mass)?, num(radius)?);
         if let Some(s) = state.and_then(|i| r.get(i)) {
             *p.states.entry(s.clone()).or_insert(0) += 1;
         }
         if m.is_finite() && m > 0.0 && rad.is_finite() && rad > 0.0 {
             p.masses.push(m);
             p.radii.push(rad);
-            p.densities.push(density.map(num).unwrap_or(f64::NAN));
+            p.densities.push(match density {
+                Some(i) => num(i)?,
+                None => f64::NAN,
+            });
         } else {
             p.dropped += 1;
         }

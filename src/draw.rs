@@ -355,7 +355,8 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
                 format!("is not a hierarchy file ({e})."),
             )
         })?;
-    let states = read_states(&read(crate::segment::names::CSV)?);
+    let csv_path = dir.join(crate::segment::names::CSV);
+    let states = read_states(&csv_path, &read(crate::segment::names::CSV)?)?;
     let mut structures = Vec::new();
     for s in tree["structures"].as_array().cloned().unwrap_or_default() {
         let id = s["id"].as_u64().unwrap_or(0) as u32;
@@ -383,23 +384,30 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
     })
 }
 
-/// The `state` column of a catalogue, by id (empty if the column is absent).
-fn read_states(csv: &str) -> std::collections::HashMap<u32, String> {
-    let mut lines = csv.lines().filter(|l| !l.starts_with('#'));
-    let Some(header) = lines.next() else {
-        return Default::default();
-    };
-    let cols: Vec<&str> = header.split(',').collect();
+/// The `state` column of a catalogue, by id (empty if the column is absent). A damaged
+/// catalogue (rows cut short, ids that are not numbers) is refused.
+fn read_states(path: &Path, csv: &str) -> Result<std::collections::HashMap<u32, String>> {
+    let (cols, rows) = crate::table::read_catalogue_csv(path, csv)?;
     let (Some(i), Some(s)) = (
-        cols.iter().position(|c| *c == "id"),
-        cols.iter().position(|c| *c == "state"),
+        cols.iter().position(|c| c == "id"),
+        cols.iter().position(|c| c == "state"),
     ) else {
-        return Default::default();
+        return Ok(Default::default());
     };
-    lines
-        .filter_map(|l| {
-            let f: Vec<&str> = l.split(',').collect();
-            Some((f.get(i)?.parse().ok()?, f.get(s)?.to_string()))
+    rows.iter()
+        .enumerate()
+        .map(|(n, r)| {
+            let id = r[i].parse::<u32>().map_err(|_| {
+                Error::input(
+                    path,
+                    format!(
+                        "row {} has the id '{}': the catalogue is damaged; run cairn segment again.",
+                        n + 1,
+                        r[i]
+                    ),
+                )
+            })?;
+            Ok((id, r[s].clone()))
         })
         .collect()
 }

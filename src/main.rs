@@ -129,7 +129,7 @@ struct SynthArgs {
     #[arg(long, value_name = "SIGMA")]
     background_width: Option<f64>,
     /// Power-spectrum index of the background, P(k) ~ k^-INDEX [default: 3].
-    #[arg(long, value_name = "INDEX")]
+    #[arg(long, value_name = "INDEX", allow_hyphen_values = true)]
     background_index: Option<f64>,
     /// No background: cores on an empty sky.
     #[arg(long, conflicts_with_all = ["background", "background_width", "background_index"])]
@@ -814,7 +814,11 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
 }
 
 fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
+    synth::check_name(&a.name).map_err(|e| Error::usage(format!("{}.", e.0)))?;
     let spec = synth_spec(a)?;
+    // Everything about the specification is checked before the output folder is made.
+    synth::check(&spec)
+        .map_err(|e| Error::usage(format!("cannot make this synthetic map: {}.", e.0)))?;
     let names = [
         format!("{}.fits", a.name),
         format!("{}-truth.csv", a.name),
@@ -824,12 +828,8 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
         output::refuse_inputs_as_outputs(&a.output, &names, &[spec_file])?;
     }
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
-    let map = synth::generate(&spec).map_err(|e| {
-        Error::usage(format!(
-            "cannot make this synthetic map: {}; change that option.",
-            e.0
-        ))
-    })?;
+    let map = synth::generate(&spec)
+        .map_err(|e| Error::usage(format!("cannot make this synthetic map: {}.", e.0)))?;
     fits_write::write_image_f32(&outputs.temp(&names[0]), map.data.view(), &map.header, true)
         .map_err(|e| Error::output(&a.output.join(&names[0]), e.0))?;
     synth::write_truth_csv(&outputs.temp(&names[1]), &map.truth).map_err(|e| {

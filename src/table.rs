@@ -778,6 +778,62 @@ fn fits_key(name: &str) -> String {
     }
 }
 
+/// Reads the rows of a catalogue CSV that cairn wrote (`text`, read from `path`): the
+/// header (the first line that is not a `#` comment) and every row, split at commas outside
+/// double quotes (a doubled quote inside quotes is a quote). A row whose number of fields
+/// differs from the header's is refused: the file was cut short or edited by hand.
+pub fn read_catalogue_csv(path: &Path, text: &str) -> Result<(Vec<String>, Vec<Vec<String>>)> {
+    let mut lines = text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.starts_with('#') && !l.trim().is_empty());
+    let Some((_, header)) = lines.next() else {
+        return Err(Error::input(
+            path,
+            "holds no catalogue header; give a catalogue written by cairn segment (or run it again).",
+        ));
+    };
+    let header = split_csv_line(header);
+    let mut rows = Vec::new();
+    for (i, l) in lines {
+        let r = split_csv_line(l);
+        if r.len() != header.len() {
+            return Err(Error::input(
+                path,
+                format!(
+                    "line {} has {} fields but the header has {}: the catalogue is damaged; run cairn segment again.",
+                    i + 1,
+                    r.len(),
+                    header.len()
+                ),
+            ));
+        }
+        rows.push(r);
+    }
+    Ok((header, rows))
+}
+
+/// One CSV line split at commas outside double quotes.
+fn split_csv_line(line: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut cur = String::new();
+    let mut quoted = false;
+    let mut chars = line.chars().peekable();
+    while let Some(c) = chars.next() {
+        match c {
+            '"' if quoted && chars.peek() == Some(&'"') => {
+                cur.push('"');
+                chars.next();
+            }
+            '"' => quoted = !quoted,
+            ',' if !quoted => out.push(std::mem::take(&mut cur)),
+            _ => cur.push(c),
+        }
+    }
+    out.push(cur);
+    out
+}
+
 /// `text` cut at spaces into lines of at most `width` characters (a longer word is cut), the
 /// lines after the first indented by two spaces.
 fn wrap_words(text: &str, width: usize) -> Vec<String> {
@@ -813,6 +869,20 @@ fn wrap_words(text: &str, width: usize) -> Vec<String> {
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn catalogue_lines_split_outside_quotes_and_damage_is_refused() {
+        assert_eq!(
+            super::split_csv_line(r#"1,"a, ""b""",,x"#),
+            ["1", r#"a, "b""#, "", "x"]
+        );
+        let p = std::path::Path::new("c.csv");
+        let (h, r) = super::read_catalogue_csv(p, "# note\nid,kind\n0,leaf\n1,\"x,y\"\n").unwrap();
+        assert_eq!((h.len(), r.len()), (2, 2));
+        let e = super::read_catalogue_csv(p, "id,kind\n0,leaf\n1,leaf,extra\n").unwrap_err();
+        assert!(e.message.contains("line 3 has 3 fields"), "{}", e.message);
+        assert!(super::read_catalogue_csv(p, "# only notes\n").is_err());
+    }
+
     #[test]
     fn notes_wrap_at_spaces() {
         let lines = super::wrap_words("aa bb cc dd", 5);

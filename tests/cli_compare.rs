@@ -146,4 +146,38 @@ fn compare_reports_statistics_and_fairness() {
     );
     assert_eq!(code, 0, "{err}");
     assert!(out.contains("mean particle weight"), "{out}");
+    // A catalogue cut short mid-row, or with text in a mass column, is refused as damaged
+    // rather than read with a row missing or shifted.
+    let csv = std::fs::read_to_string(d.path().join("near/structures.csv")).unwrap();
+    std::fs::create_dir(d.path().join("cut")).unwrap();
+    std::fs::write(d.path().join("cut/structures.csv"), &csv[..csv.len() - 40]).unwrap();
+    let (code, _, err) = run(d.path(), &["compare", "near", "cut", "-o", "cmp5"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("damaged") && err.contains("structures.csv"),
+        "{err}"
+    );
+    let mut lines: Vec<String> = csv.lines().map(str::to_string).collect();
+    let header = lines.iter().position(|l| !l.starts_with('#')).unwrap();
+    let col = lines[header]
+        .split(',')
+        .position(|c| c == "mass_excess")
+        .unwrap();
+    let leaf = lines
+        .iter()
+        .position(|l| l.split(',').nth(1) == Some("leaf"))
+        .unwrap();
+    let mut f: Vec<String> = lines[leaf].split(',').map(str::to_string).collect();
+    f[col] = "heavy".into();
+    lines[leaf] = f.join(",");
+    std::fs::create_dir(d.path().join("edited")).unwrap();
+    std::fs::write(
+        d.path().join("edited/structures.csv"),
+        lines.join("\n") + "\n",
+    )
+    .unwrap();
+    let (code, _, err) = run(d.path(), &["compare", "near", "edited", "-o", "cmp6"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("'heavy'"), "{err}");
+    assert!(!d.path().join("cmp5").exists() && !d.path().join("cmp6").exists());
 }
