@@ -436,13 +436,20 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         },
     };
 
-    // Wavelength.
+    // Wavelength: for a plane of a cube along a FREQ or WAVE axis, that plane's own value.
+    let plane_axis = plane.and_then(|_| (2..axes.len()).find(|&k| axes[k] > 1));
     let (wavelength_m, wavelength_source) = match opts.wavelength {
         Some(q) => (Some(wavelength_from_quantity(q)), Some(Source::Option)),
-        None => match wavelength_from_header(&header, &mut warnings) {
-            Some(w) => (Some(w), Some(Source::Header)),
-            None => (None, None),
-        },
+        None => {
+            let at_plane = match (plane, plane_axis) {
+                (Some(p), Some(k)) => plane_wavelength(&header, k + 1, p, &mut warnings),
+                _ => None,
+            };
+            match at_plane.unwrap_or_else(|| wavelength_from_header(&header, &mut warnings)) {
+                Some(w) => (Some(w), Some(Source::Header)),
+                None => (None, None),
+            }
+        }
     };
 
     Ok(Map {
@@ -763,6 +770,128 @@ pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String>
     }
 }
 
+/// Metres per unit of CUNITn on a WAVE axis, and Hz per unit on a FREQ axis (an empty or
+/// unknown unit counts as the FITS default, m or Hz).
+fn spectral_unit_factor(freq: bool, cunit: &str) -> f64 {
+    if freq {
+        match cunit {
+            "THz" => 1e12,
+            "GHz" => 1e9,
+            "MHz" => 1e6,
+            "kHz" => 1e3,
+            _ => 1.0,
+        }
+    } else {
+        match cunit {
+            "um" => 1e-6,
+            "mm" => 1e-3,
+            "cm" => 1e-2,
+            "nm" => 1e-9,
+            "Angstrom" => 1e-10,
+            _ => 1.0,
+        }
+    }
+}
+
+/// Whether a header key is a CDi_j (`cd = true`) or PCi_j keyword of the primary description.
+fn is_matrix_key(key: &str, cd: bool) -> bool {
+    let rest = if cd {
+        key.strip_prefix("CD")
+    } else {
+        key.strip_prefix("PC")
+    };
+    match rest.and_then(|r| r.split_once('_')) {
+        Some((i, j)) => {
+            !i.is_empty()
+                && !j.is_empty()
+                && i.bytes().all(|b| b.is_ascii_digit())
+                && j.bytes().all(|b| b.is_ascii_digit())
+        }
+        None => false,
+    }
+}
+
+/// The wavelength in metres of zero-based `plane` along image axis `axis` (1-based) when that
+/// axis is a FREQ or WAVE axis with a CRVAL: `None` when it is not (the caller then reads the
+/// header as for a map), `Some(None)` when it is but the plane's value cannot be worked out
+/// (a warning says so).
+///
+/// Following the FITS WCS papers (Greisen & Calabretta 2002, section 2; Greisen et al. 2006,
+/// sections 3.1 and 3.2) as wcslib and astropy.wcs read them: the intermediate coordinate is
+/// w = s (p - CRPIXn) with p the 1-based pixel (plane + 1) and s = CDn_n when the CD matrix
+/// is used, else PCn_n CDELTn (defaults 1); a linear axis has the value CRVALn + w, a -LOG
+/// axis CRVALn exp(w / CRVALn). Other algorithms (F2W, V2F, TAB, ...) are known only at the
+/// reference pixel.
+pub fn plane_wavelength(
+    h: &Header,
+    axis: usize,
+    plane: usize,
+    warnings: &mut Vec<String>,
+) -> Option<Option<f64>> {
+    let ctype = h
+        .get_str(&format!("CTYPE{axis}"))
+        .unwrap_or("")
+        .trim()
+        .to_ascii_uppercase();
+    let (kind, algorithm) = match ctype.split_once('-') {
+        Some((k, a)) => (k.to_string(), a.trim_start_matches('-').to_string()),
+        None => (ctype.clone(), String::new()),
+    };
+    let freq = match kind.as_str() {
+        "FREQ" => true,
+        "WAVE" => false,
+        _ => return None,
+    };
+    let crval = h.get_f64(&format!("CRVAL{axis}"))?;
+    let crpix = h.get_f64(&format!("CRPIX{axis}")).unwrap_or(0.0);
+    let uses_cd = h.cards().iter().any(|c| is_matrix_key(&c.key, true))
+        && !h.cards().iter().any(|c| is_matrix_key(&c.key, false));
+    let step = if uses_cd {
+        // A missing CDn_n of an otherwise uncoupled axis is 1, as wcslib's cdfix makes it.
+        h.get_f64(&format!("CD{axis}_{axis}")).unwrap_or(1.0)
+    } else {
+        h.get_f64(&format!("CDELT{axis}")).unwrap_or(1.0)
+            * h.get_f64(&format!("PC{axis}_{axis}")).unwrap_or(1.0)
+    };
+    let coupled = (1..=h.get_i64("NAXIS").unwrap_or(0).max(0) as usize)
+        .filter(|&j| j != axis)
+        .any(|j| {
+            let key = if uses_cd {
+                format!("CD{axis}_{j}")
+            } else {
+                format!("PC{axis}_{j}")
+            };
+            h.get_f64(&key).is_some_and(|v| v != 0.0)
+        });
+    let offset = plane as f64 + 1.0 - crpix;
+    let value = match algorithm.as_str() {
+        "" => Some(crval + step * offset),
+        "LOG" if crval > 0.0 => Some(crval * (step * offset / crval).exp()),
+        _ if offset == 0.0 => Some(crval),
+        _ => None,
+    };
+    let cunit = h
+        .get_str(&format!("CUNIT{axis}"))
+        .unwrap_or("")
+        .trim()
+        .to_string();
+    let value = value
+        .filter(|v| v.is_finite() && *v > 0.0)
+        .map(|v| v * spectral_unit_factor(freq, &cunit));
+    let Some(v) = value else {
+        warnings.push(format!(
+            "the wavelength of plane {plane} along axis {axis} (CTYPE{axis} = '{ctype}') is not known to cairn; give --wavelength"
+        ));
+        return Some(None);
+    };
+    if coupled {
+        warnings.push(format!(
+            "axis {axis} (CTYPE{axis} = '{ctype}') is coupled to other axes by the PC or CD matrix, so the wavelength varies across the map; cairn uses its value at the reference pixel of those axes"
+        ));
+    }
+    Some(Some(if freq { units::C_LIGHT / v } else { v }))
+}
+
 /// Reads the wavelength in metres from the header: RESTFRQ/RESTFREQ/FREQ (Hz), a length-1
 /// spectral axis with CTYPEn FREQ or WAVE, or WAVELEN/WAVELNTH with a unit in its comment.
 pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
@@ -786,23 +915,10 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
             .trim()
             .to_string();
         if ctype.starts_with("FREQ") {
-            let factor = match cunit.as_str() {
-                "GHz" => 1e9,
-                "MHz" => 1e6,
-                "kHz" => 1e3,
-                _ => 1.0,
-            };
-            return Some(units::C_LIGHT / (v * factor));
+            return Some(units::C_LIGHT / (v * spectral_unit_factor(true, &cunit)));
         }
         if ctype.starts_with("WAVE") {
-            let factor = match cunit.as_str() {
-                "um" => 1e-6,
-                "mm" => 1e-3,
-                "cm" => 1e-2,
-                "nm" => 1e-9,
-                _ => 1.0,
-            };
-            return Some(v * factor);
+            return Some(v * spectral_unit_factor(false, &cunit));
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {
@@ -878,5 +994,61 @@ mod tests {
         let h = Header::parse(&format!("{:<80}", "WAVELEN =                 0.5"));
         assert!(wavelength_from_header(&h, &mut w).is_none());
         assert_eq!(w.len(), 1);
+    }
+
+    fn cube_header(extra: &[&str]) -> Header {
+        let mut cards = vec!["NAXIS   =                    3".to_string()];
+        cards.extend(extra.iter().map(|s| s.to_string()));
+        Header::parse(&cards.iter().map(|c| format!("{c:<80}")).collect::<String>())
+    }
+
+    #[test]
+    fn plane_wavelength_on_linear_log_and_other_axes() {
+        let mut w = Vec::new();
+        let h = cube_header(&[
+            "CTYPE3  = 'FREQ    '",
+            "CRVAL3  =              3.5E+11",
+            "CDELT3  =              1.0E+11",
+            "CRPIX3  =                  2.0",
+            "RESTFRQ =              2.3E+11",
+        ]);
+        for (p, f) in [(0, 2.5e11), (1, 3.5e11), (2, 4.5e11)] {
+            let l = plane_wavelength(&h, 3, p, &mut w).unwrap().unwrap();
+            assert!((l / (units::C_LIGHT / f) - 1.0).abs() < 1e-15, "plane {p}");
+        }
+        // A velocity axis: not a FREQ or WAVE axis, so the header is read as for a map.
+        let h = cube_header(&["CTYPE3  = 'VRAD    '", "CRVAL3  =                  0.0"]);
+        assert_eq!(plane_wavelength(&h, 3, 4, &mut w), None);
+        // A FREQ axis without CRVAL3 likewise.
+        let h = cube_header(&["CTYPE3  = 'FREQ    '"]);
+        assert_eq!(plane_wavelength(&h, 3, 1, &mut w), None);
+        assert!(w.is_empty());
+        // A non-linear algorithm: known at the reference pixel only.
+        let h = cube_header(&[
+            "CTYPE3  = 'WAVE-F2W'",
+            "CRVAL3  =               0.0008",
+            "CDELT3  =               1.0E-5",
+            "CRPIX3  =                  1.0",
+        ]);
+        assert_eq!(plane_wavelength(&h, 3, 0, &mut w), Some(Some(0.0008)));
+        assert_eq!(plane_wavelength(&h, 3, 1, &mut w), Some(None));
+        assert_eq!(w.len(), 1);
+        assert!(
+            w[0].contains("plane 1") && w[0].contains("--wavelength"),
+            "{}",
+            w[0]
+        );
+        // A WAVE axis in mm with a CD matrix.
+        let h = cube_header(&[
+            "CTYPE3  = 'WAVE    '",
+            "CUNIT3  = 'mm      '",
+            "CRVAL3  =                  0.5",
+            "CD1_1   =               -0.001",
+            "CD2_2   =                0.001",
+            "CD3_3   =                 0.25",
+            "CRPIX3  =                  1.0",
+        ]);
+        let l = plane_wavelength(&h, 3, 2, &mut w).unwrap().unwrap();
+        assert!((l - 1.0e-3).abs() < 1e-18, "{l}");
     }
 }

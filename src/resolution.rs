@@ -7,8 +7,12 @@
 //!   (Gaussians convolve by adding covariances, common practice), carried to pixel axes through
 //!   the local Jacobian of the projection at the map centre; a beam larger than the target in
 //!   any direction is refused;
+//! * a target the map cannot hold MIN_BEAMS_ACROSS (3) times along each axis is refused
+//!   before anything is allocated, in one sentence suggesting the largest usable resolution;
 //! * the convolution is done by FFT on a zero-padded grid as a normalised convolution
-//!   (Knutsson & Westin 1993): missing pixels get no weight and stay missing;
+//!   (Knutsson & Westin 1993): missing pixels get no weight and stay missing; the padding is
+//!   four kernel standard deviations but at most the map's length per axis, so the FFT grid
+//!   never exceeds three times the map's length per axis;
 //! * units: intensive units (column density, extinction, MJy/sr, Jy/sr) keep their values'
 //!   meaning; Jy/beam values are multiplied by the ratio of the new to the old beam solid
 //!   angle; Jy/pixel values keep their per-pixel meaning;
@@ -43,12 +47,30 @@ fn beam_cov(major: f64, minor: f64, pa_deg: f64) -> Cov {
     )
 }
 
+/// Zero padding (pixels) on each side along x and along y for a kernel of pixel covariance
+/// `cov_px` on an `nx` x `ny` map: four standard deviations, but never more than the map's own
+/// length along that axis. Kernel values at offsets of a map length or more only ever meet the
+/// padding, so leaving them out changes no output pixel, and the FFT grid stays within three
+/// times the map's length per axis however wide the kernel is.
+fn fft_padding(nx: usize, ny: usize, cov_px: Cov) -> (usize, usize) {
+    let (a, b, c) = cov_px;
+    let sigma_max = (0.5 * (a + c) + (0.25 * (a - c) * (a - c) + b * b).sqrt()).sqrt();
+    let reach = (4.0 * sigma_max).ceil();
+    let pad = |n: usize| {
+        if reach.is_finite() && reach + 1.0 < n as f64 {
+            reach as usize + 1
+        } else {
+            n
+        }
+    };
+    (pad(nx), pad(ny))
+}
+
 fn convolve_fft(data: &Array2<f32>, cov_px: Cov) -> Array2<f32> {
     let (ny, nx) = data.dim();
     let (a, b, c) = cov_px;
-    let sigma_max = (0.5 * (a + c) + (0.25 * (a - c) * (a - c) + b * b).sqrt()).sqrt();
-    let pad = (4.0 * sigma_max).ceil() as usize + 1;
-    let (py, px) = (ny + 2 * pad, nx + 2 * pad);
+    let (pad_x, pad_y) = fft_padding(nx, ny, cov_px);
+    let (py, px) = (ny + 2 * pad_y, nx + 2 * pad_x);
     let mut planner = FftPlanner::<f64>::new();
     let (fx, fy) = (planner.plan_fft_forward(px), planner.plan_fft_forward(py));
     let (ix, iy) = (planner.plan_fft_inverse(px), planner.plan_fft_inverse(py));
@@ -73,9 +95,9 @@ fn convolve_fft(data: &Array2<f32>, cov_px: Cov) -> Array2<f32> {
     let (ia, ib, ic) = (c / det, -b / det, a / det);
     let mut kern = vec![Complex::new(0.0, 0.0); px * py];
     let mut total = 0.0;
-    let r = pad as i64;
-    for dy in -r..=r {
-        for dx in -r..=r {
+    let (rx, ry) = (pad_x as i64, pad_y as i64);
+    for dy in -ry..=ry {
+        for dx in -rx..=rx {
             let (x, y) = (dx as f64, dy as f64);
             let v = (-0.5 * (ia * x * x + 2.0 * ib * x * y + ic * y * y)).exp();
             let (xx, yy) = (
@@ -94,8 +116,8 @@ fn convolve_fft(data: &Array2<f32>, cov_px: Cov) -> Array2<f32> {
     let mut wts = vec![Complex::new(0.0, 0.0); px * py];
     for ((y, x), &v) in data.indexed_iter() {
         if v.is_finite() {
-            vals[(y + pad) * px + x + pad].re = v as f64;
-            wts[(y + pad) * px + x + pad].re = 1.0;
+            vals[(y + pad_y) * px + x + pad_x].re = v as f64;
+            wts[(y + pad_y) * px + x + pad_x].re = 1.0;
         }
     }
     fft2(&mut vals, fx.as_ref(), fy.as_ref());
@@ -110,9 +132,79 @@ fn convolve_fft(data: &Array2<f32>, cov_px: Cov) -> Array2<f32> {
         if !data[(y, x)].is_finite() {
             return f32::NAN;
         }
-        let i = (y + pad) * px + x + pad;
+        let i = (y + pad_y) * px + x + pad_x;
         (vals[i].re / wts[i].re) as f32
     })
+}
+
+/// The fewest target beams (FWHM) the smoothed map must span along each axis: fewer leave no
+/// room for a structure and the background around it (the default --min-area alone is one
+/// beam), and a beam wider than the map would need a kernel and FFT grid far larger than it.
+pub const MIN_BEAMS_ACROSS: f64 = 3.0;
+
+/// `x` rounded down to three significant digits, for an "at most" in a message.
+fn floor_3_digits(x: f64) -> String {
+    if !(x.is_finite() && x > 0.0) {
+        return format!("{x}");
+    }
+    let decimals = (2 - x.log10().floor() as i32).max(0);
+    let scale = 10f64.powi(decimals);
+    format!("{:.*}", decimals as usize, (x * scale).floor() / scale)
+}
+
+/// Refuses, before anything is allocated, a target beam that the map cannot hold
+/// MIN_BEAMS_ACROSS times along each axis (pixel sides `sx`, `sy` in degrees).
+fn check_map_holds_target(
+    map: &Map,
+    target_deg: f64,
+    sx: f64,
+    sy: f64,
+    resolution_m: f64,
+    distance_m: f64,
+) -> Result<()> {
+    let (wx, wy) = (map.nx() as f64 * sx * 3600.0, map.ny() as f64 * sy * 3600.0);
+    let t = target_deg * 3600.0;
+    let across = wx.min(wy) / t;
+    if across >= MIN_BEAMS_ACROSS {
+        return Ok(());
+    }
+    let pc = crate::physics::constants::PC;
+    // Six significant digits, so that 0.5 pc given prints as 0.5 and not 0.49999999999999994.
+    let short = |x: f64| format!("{}", format!("{x:.5e}").parse::<f64>().unwrap_or(x));
+    let asked = format!(
+        "--common-resolution {} pc at {} pc asks for a beam of {t:.1}\" FWHM",
+        short(resolution_m / pc),
+        short(distance_m / pc)
+    );
+    let file = map.path.display();
+    let extent = format!("{wx:.1}\" x {wy:.1}\"");
+    let problem = if !(across.is_finite() && across > 0.0) {
+        format!("but the pixel size of {file} at its centre cannot be measured")
+    } else if across < 1.0 {
+        format!("wider than the whole of {file} ({extent})")
+    } else {
+        format!(
+            "but {file} is only {extent} ({:.2} beams across) and at least {MIN_BEAMS_ACROSS} beams across are needed to find structures",
+            (across * 100.0).floor() / 100.0
+        )
+    };
+    let most = resolution_m * across / MIN_BEAMS_ACROSS / pc;
+    // The finest resolution allowed at all is the map's own beam.
+    let least = map
+        .beam
+        .map_or(0.0, |b| b.major_deg.to_radians() * distance_m / pc);
+    let fix = if most.is_finite() && most > 0.0 && most < least {
+        "the map is too small for any common resolution at this distance: give a larger map"
+            .to_string()
+    } else if most.is_finite() && most > 0.0 {
+        format!(
+            "give a smaller --common-resolution (at most {} pc at this distance) or a larger map",
+            floor_3_digits(most)
+        )
+    } else {
+        "give a smaller --common-resolution or a larger map".to_string()
+    };
+    Err(Error::usage(format!("{asked}, {problem}; {fix}.")))
 }
 
 /// The map smoothed (and regridded) to a circular beam of `resolution_m` at `distance_m`.
@@ -139,6 +231,8 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
         )));
     }
     let (cx, cy) = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
+    let (sx, sy) = w.pixel_scale(cx, cy);
+    check_map_holds_target(map, target_deg, sx, sy, resolution_m, distance_m)?;
     let j = crate::measure::local_jacobian(w, cx, cy).ok_or_else(|| {
         Error::input(
             path,
@@ -174,10 +268,12 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
     }
     // Regridding by blocks of k x k pixels (see below) is itself a convolution with a box of
     // variance (k^2 - 1)/12 pixel^2 per axis: the kernel leaves that much room.
-    let (sx, sy) = w.pixel_scale(cx, cy);
     let per_fwhm = target_deg / (sx * sy).sqrt();
     let k = if per_fwhm > 6.0 {
-        (per_fwhm / 3.0).floor() as usize
+        // Never fewer than MIN_BEAMS_ACROSS pixels per axis after regridding, even with very
+        // unequal pixel sides (the check above already keeps this so for square pixels).
+        let limit = (map.nx().min(map.ny()) / MIN_BEAMS_ACROSS as usize).max(1);
+        ((per_fwhm / 3.0).floor() as usize).min(limit).max(1)
     } else {
         1
     };
@@ -266,4 +362,58 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
         }
     ));
     Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A kernel much wider than the map: the FFT grid stays within three map lengths per
+    /// axis, and the result is the direct normalised convolution (Knutsson & Westin 1993).
+    #[test]
+    fn a_kernel_wider_than_the_map_keeps_the_fft_small_and_the_result_exact() {
+        let (nx, ny) = (9usize, 7usize);
+        let cov = (400.0, 30.0, 250.0);
+        let (pad_x, pad_y) = fft_padding(nx, ny, cov);
+        assert_eq!((pad_x, pad_y), (nx, ny));
+        assert_eq!(fft_padding(200, 150, (4.0, 0.0, 4.0)), (9, 9));
+        let data = Array2::from_shape_fn((ny, nx), |(y, x)| {
+            if (x, y) == (3, 2) {
+                f32::NAN
+            } else {
+                ((x * 5 + y * 11) % 13) as f32 - 4.0
+            }
+        });
+        let got = convolve_fft(&data, cov);
+        let (a, b, c) = cov;
+        let det = a * c - b * b;
+        let k =
+            |dx: f64, dy: f64| (-0.5 * (c * dx * dx - 2.0 * b * dx * dy + a * dy * dy) / det).exp();
+        for ((y, x), &g) in got.indexed_iter() {
+            if !data[(y, x)].is_finite() {
+                assert!(g.is_nan());
+                continue;
+            }
+            let (mut s, mut w) = (0.0, 0.0);
+            for ((j, i), &v) in data.indexed_iter() {
+                if v.is_finite() {
+                    let kv = k(x as f64 - i as f64, y as f64 - j as f64);
+                    s += kv * v as f64;
+                    w += kv;
+                }
+            }
+            let want = s / w;
+            assert!(
+                (g as f64 - want).abs() <= 1e-5 * (1.0 + want.abs()),
+                "({x}, {y}): {g} against {want}"
+            );
+        }
+    }
+
+    #[test]
+    fn at_most_rounds_down_to_three_digits() {
+        assert_eq!(floor_3_digits(0.18619), "0.186");
+        assert_eq!(floor_3_digits(12.99), "12.9");
+        assert_eq!(floor_3_digits(1234.5), "1234");
+    }
 }

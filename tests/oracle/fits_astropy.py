@@ -4,7 +4,7 @@ Source: astropy 8.0.2 astropy.io.fits (pinned in requirements.txt). For each BIT
 8, 16, 32, 64, -32, -64 the script writes a small image with BSCALE/BZERO (and BLANK for the
 integer types, NaN for the float types), then reads it back with astropy and stores the
 values astropy returns (scaled, missing pixels as NaN) in fixtures/fits/values.json.
-Also written: a file whose primary HDU is empty with the image in a named extension, a 3-D
+Also written (see the end of the script for the spectral cubes): a file whose primary HDU is empty with the image in a named extension, a 3-D
 image with a length-1 third axis, a real cube, and a one-dimensional array. Pixel values are
 invented.
 """
@@ -107,3 +107,62 @@ results["cube.fits"] = {"plane2": read_values(os.path.join(OUT, "cube.fits"))[2]
 write("line1d.fits", fits.HDUList([fits.PrimaryHDU(np.arange(10, dtype=np.float32), header=base_header())]))
 
 write_json(os.path.join(OUT, "values.json"), {"astropy": __import__("astropy").__version__, "files": results})
+
+# Cubes whose planes lie at different frequencies or wavelengths, and the value astropy.wcs
+# gives for each plane (WCS(header).spectral.pixel_to_world(plane), zero-based plane), in
+# fixtures/fits/spectral.json: a linear FREQ axis in Hz (the case of a wide-band cube), a
+# WAVE axis in um with PC3_3 and CDELT3 and a RESTFRQ that must not be used, and a FREQ-LOG
+# axis in GHz with a CD matrix.
+from astropy import units as u  # noqa: E402
+from astropy.wcs import WCS  # noqa: E402
+
+
+def sky_header(unit, cd=False):
+    h = base_header(unit)
+    h["CTYPE1"], h["CTYPE2"] = "RA---TAN", "DEC--TAN"
+    h["CRPIX1"], h["CRPIX2"] = 4.0, 3.0
+    h["CRVAL1"], h["CRVAL2"] = 150.0, 10.0
+    if cd:
+        h["CD1_1"], h["CD1_2"], h["CD2_1"], h["CD2_2"] = -6 / 3600, 0.0, 0.0, 6 / 3600
+    else:
+        h["CDELT1"], h["CDELT2"] = -6 / 3600, 6 / 3600
+    return h
+
+
+spectral_cubes = {
+    "cube_freq.fits": (
+        {"CTYPE3": "FREQ", "CUNIT3": "Hz", "CRVAL3": 3.5e11, "CDELT3": 1e11, "CRPIX3": 2.0},
+        3,
+        False,
+    ),
+    "cube_wave.fits": (
+        {"CTYPE3": "WAVE", "CUNIT3": "um", "CRVAL3": 250.0, "CDELT3": 100.0, "PC3_3": 1.5, "CRPIX3": 1.5,
+         "RESTFRQ": 2.3e11},
+        4,
+        False,
+    ),
+    "cube_freqlog.fits": (
+        {"CTYPE3": "FREQ-LOG", "CUNIT3": "GHz", "CRVAL3": 600.0, "CD3_3": 150.0, "CRPIX3": 1.0},
+        3,
+        True,
+    ),
+}
+spectral = {}
+for name, (keys, nplanes, cd) in spectral_cubes.items():
+    h = sky_header("MJy/sr", cd)
+    for k, v in keys.items():
+        h[k] = v
+    data = np.stack([pattern(20 + k) * 1.0 for k in range(nplanes)]).astype(np.float32)
+    path = write(name, fits.HDUList([fits.PrimaryHDU(data, header=h)]))
+    with fits.open(path) as hdul:
+        w = WCS(hdul[0].header).spectral
+    planes = np.arange(nplanes)
+    coord = w.pixel_to_world(planes)
+    spectral[name] = {
+        "ctype3": keys["CTYPE3"],
+        "planes": planes,
+        "frequency_hz": np.asarray(coord.to_value("Hz", equivalencies=u.spectral()), dtype=np.float64),
+        "wavelength_m": np.asarray(coord.to_value("m", equivalencies=u.spectral()), dtype=np.float64),
+    }
+
+write_json(os.path.join(OUT, "spectral.json"), {"astropy": __import__("astropy").__version__, "files": spectral})
