@@ -628,7 +628,9 @@ impl MapArgs {
 }
 
 fn run_inspect(args: &InspectArgs) -> Result<()> {
-    let opts = args.read.load_options(true)?;
+    // A map whose unit cairn does not understand is still described (its unit kind is then
+    // null, and the conversions say why there are none).
+    let opts = args.read.load_options(false)?;
     let m = map::load(&args.map, &opts)?;
     let choice = args.read.noise_choice(&m)?;
     let ctx = args.physics.context(&m)?;
@@ -956,15 +958,14 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         summary.seconds
     );
     println!(
-        "floor {:.4e}{unit}, prominence {:.4e}{unit}, min area {} px; noise {}{} ({})",
+        "floor {:.4e}{unit}, prominence {:.4e}{unit}, min area {} px; noise {}",
         t.floor,
         t.prominence,
         t.min_area_px,
-        t.noise
-            .map(|n| format!("{n:.4e}"))
-            .unwrap_or_else(|| "none".into()),
-        unit,
-        t.noise_source
+        match t.noise {
+            Some(n) => format!("{n:.4e}{unit} ({})", t.noise_source),
+            None => "none (not measurable in this map; thresholds in map units only)".into(),
+        }
     );
     if let Some(states) = &summary.leaf_states {
         let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
@@ -1207,7 +1208,32 @@ fn progress_bar(quiet: bool, npix: usize) -> Option<indicatif::ProgressBar> {
 }
 
 fn main() -> ExitCode {
-    let cli = Cli::parse();
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            use clap::error::ErrorKind;
+            if matches!(
+                e.kind(),
+                ErrorKind::DisplayHelp
+                    | ErrorKind::DisplayVersion
+                    | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand
+            ) {
+                e.exit();
+            }
+            // One sentence, as for every other refusal: the parser's first line and where
+            // the options are listed.
+            let text = e.render().to_string();
+            let first = text.lines().next().unwrap_or("").trim();
+            let first = first.strip_prefix("error: ").unwrap_or(first);
+            let command = std::env::args()
+                .skip(1)
+                .find(|w| ["inspect", "segment", "draw", "compare", "synth"].contains(&w.as_str()))
+                .map(|w| format!("cairn {w} --help"))
+                .unwrap_or_else(|| "cairn --help".into());
+            eprintln!("cairn: {first}; see {command} for the options.");
+            return ExitCode::from(2);
+        }
+    };
     let _quiet = cli.quiet;
     output::remove_partial_outputs_on_interrupt();
     let result = match &cli.command {

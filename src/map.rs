@@ -396,6 +396,12 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         ),
     };
     let unit = units::parse_pixel_unit(&unit_text, opts.band);
+    if unit.is_none() && matches!(unit_source, Source::Option) {
+        return Err(Error::usage(format!(
+            "--unit '{}' is not understood; give one of cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel.",
+            unit_text.trim()
+        )));
+    }
     if unit.is_none() && opts.require_unit {
         let why = if unit_text.trim().is_empty() {
             match unit_source {

@@ -233,12 +233,36 @@ fn unparseable_or_missing_bunit_suggests_unit() {
             &good_pixels(256),
         ),
     );
-    assert_refused(&s, &["inspect", "odd_unit.fits"], "odd_unit.fits", "--unit");
+    assert_refused(
+        &s,
+        &["segment", "odd_unit.fits", "-o", "run"],
+        "odd_unit.fits",
+        "--unit",
+    );
     s.write(
         "no_unit.fits",
         &fits_bytes(&image_cards(16, 16, &[]), &good_pixels(256)),
     );
-    assert_refused(&s, &["inspect", "no_unit.fits"], "no_unit.fits", "no BUNIT");
+    assert_refused(
+        &s,
+        &["segment", "no_unit.fits", "-o", "run"],
+        "no_unit.fits",
+        "no BUNIT",
+    );
+    // inspect still describes such a map, and says why it gives no conversion.
+    for f in ["odd_unit.fits", "no_unit.fits"] {
+        let o = cairn(&["inspect", f], s.dir.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        assert!(o.stdout.contains("not understood"), "{}", o.stdout);
+        assert!(o.stdout.contains("give --unit"), "{}", o.stdout);
+    }
+    // A unit given on the command line that cairn does not know is the option's fault.
+    assert_refused(
+        &s,
+        &["inspect", "no_unit.fits", "--unit", "furlongs"],
+        "--unit 'furlongs'",
+        "not understood",
+    );
     // With --unit the same file reads.
     let o = cairn(
         &["inspect", "no_unit.fits", "--unit", "MJy/sr"],
@@ -337,4 +361,24 @@ fn all_missing_and_constant_maps_are_reported_plainly() {
         "{}",
         o.stdout
     );
+}
+
+/// Mistakes on the command line itself (an unknown option, two options that exclude each
+/// other, an unknown command) are one sentence too, pointing at the command's help.
+#[test]
+fn command_line_mistakes_are_one_sentence() {
+    let s = Scratch::new();
+    for (args, says) in [
+        (
+            &["segment", "m.fits", "-o", "run", "--bogus"][..],
+            "cairn segment --help",
+        ),
+        (
+            &["inspect", "m.fits", "--noise", "1", "--noise-map", "n.fits"][..],
+            "cannot be used with",
+        ),
+        (&["frobnicate"][..], "cairn --help"),
+    ] {
+        assert_refused(&s, args, "cairn", says);
+    }
 }
