@@ -304,6 +304,11 @@ impl PhysicsArgs {
             )?;
         }
         if let Some(b) = self.beta {
+            if !b.is_finite() {
+                return Err(Error::usage(format!(
+                    "--beta {b} is not a number; give the emissivity index, such as 1.8."
+                )));
+            }
             c.opacity.beta = b;
         }
         if let Some(m) = self.mu_h2 {
@@ -462,6 +467,9 @@ fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usiz
     }
     let a: f64 = parts[0].trim().parse().map_err(|_| bad())?;
     let b: f64 = parts[1].trim().parse().map_err(|_| bad())?;
+    if !a.is_finite() || !b.is_finite() {
+        return Err(bad());
+    }
     let size = units::parse_quantity(
         parts[2],
         &[Dimension::Pixels, Dimension::Pure, Dimension::Angle],
@@ -485,9 +493,9 @@ fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usiz
     let y0 = (cy - half).round().max(0.0);
     let x1 = (cx + half).round().min(nx);
     let y1 = (cy + half).round().min(ny);
-    if x1 - x0 < 4.0 || y1 - y0 < 4.0 {
+    if !(x1 - x0 >= 4.0 && y1 - y0 >= 4.0) {
         return Err(Error::usage(format!(
-            "--region '{text}' leaves less than 4 pixels of the map to draw."
+            "--region '{text}' leaves less than 4 pixels of the map to draw; centre it on the map and give a larger size."
         )));
     }
     Ok((
@@ -1030,6 +1038,14 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         })
         .transpose()
         .map_err(Error::usage)?;
+    if let Some(m) = mass_min
+        && !(m > 0.0 && m.is_finite())
+    {
+        return Err(Error::usage(format!(
+            "--mass-min {} must be a positive mass, such as 0.5Msun.",
+            a.mass_min.as_deref().unwrap_or("")
+        )));
+    }
     let mut pops = Vec::new();
     for (i, r) in a.runs.iter().enumerate() {
         let label = a.label.get(i).cloned().unwrap_or_else(|| {
@@ -1042,6 +1058,11 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
                 .map(|n| n.to_string_lossy().into_owned())
                 .unwrap_or_else(|| format!("run{}", i + 1))
         });
+        if pops.iter().any(|p: &compare::Population| p.label == label) {
+            return Err(Error::usage(format!(
+                "two populations are labelled '{label}'; give each run a different --label (or compare different folders)."
+            )));
+        }
         pops.push(compare::read_population(r, &label, &a.mass_column)?);
     }
     let o = compare::Options {
@@ -1059,6 +1080,11 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         })
         .collect::<std::result::Result<Vec<f64>, String>>()
         .map_err(Error::usage)?;
+    if let Some(t) = temps.iter().find(|t| !(**t > 0.0 && t.is_finite())) {
+        return Err(Error::usage(format!(
+            "--be-temperatures holds {t} K; give positive temperatures, such as 10K,20K."
+        )));
+    }
     let (mf, ms) = compare::plots(&c, &pops, &temps);
     let plot_err =
         |e: cairn::render::RenderError| Error::usage(format!("cannot draw the plots: {e}."));

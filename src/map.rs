@@ -89,10 +89,19 @@ impl Beam {
         } else {
             0.0
         };
-        let beam = Beam {
-            major_deg: major.max(minor),
-            minor_deg: major.min(minor),
-            pa_deg: pa,
+        // Given the narrow axis first, the major axis lies 90 degrees from the angle given.
+        let beam = if minor > major {
+            Beam {
+                major_deg: minor,
+                minor_deg: major,
+                pa_deg: (pa + 90.0).rem_euclid(180.0),
+            }
+        } else {
+            Beam {
+                major_deg: major,
+                minor_deg: minor,
+                pa_deg: pa,
+            }
         };
         beam.check()
             .map_err(|e| format!("--beam '{text}': {e}; give the FWHM, such as 18.2arcsec."))?;
@@ -422,7 +431,20 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     }
 
     // Sky coordinates.
-    let wcs = Wcs::from_header(&header).map_err(|e| Error::input(path, format!("{e}")))?;
+    let wcs = Wcs::from_header(&header).map_err(|e| {
+        let e = e.to_string();
+        let e = e.trim_end_matches('.');
+        Error::input(
+            path,
+            if e.contains("resample") {
+                format!("{e}.")
+            } else {
+                format!(
+                    "{e}; correct the header's WCS keywords, or resample the map onto a standard projection such as TAN."
+                )
+            },
+        )
+    })?;
     if wcs.is_none() {
         warnings.push("the map has no celestial WCS: positions and sizes are in pixels, and anything that needs sky units will say so".to_string());
     }
@@ -743,6 +765,11 @@ fn plan_read(
 /// Reads the beam from BMAJ/BMIN/BPA (degrees), or from the last AIPS-style
 /// `HISTORY ... BMAJ= x BMIN= y BPA= z` card (common practice in interferometer images).
 pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String> {
+    for key in ["BMAJ", "BMIN", "BPA"] {
+        if h.get(key).is_some() && h.get_f64(key).is_none() {
+            return Err(format!("its header's {key} is not a number"));
+        }
+    }
     let from_keys = match (h.get_f64("BMAJ"), h.get_f64("BMIN")) {
         (Some(a), Some(b)) => Some((a, b, h.get_f64("BPA").unwrap_or(0.0))),
         (Some(a), None) => Some((a, a, h.get_f64("BPA").unwrap_or(0.0))),
@@ -764,10 +791,19 @@ pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String>
     match found {
         None => Ok(None),
         Some((a, b, pa)) => {
-            let beam = Beam {
-                major_deg: a.max(b),
-                minor_deg: a.min(b),
-                pa_deg: pa,
+            // BMIN larger than BMAJ: the major axis lies 90 degrees from BPA.
+            let beam = if b > a {
+                Beam {
+                    major_deg: b,
+                    minor_deg: a,
+                    pa_deg: (pa + 90.0).rem_euclid(180.0),
+                }
+            } else {
+                Beam {
+                    major_deg: a,
+                    minor_deg: b,
+                    pa_deg: pa,
+                }
             };
             beam.check()
                 .map(|_| Some(beam))
@@ -968,7 +1004,7 @@ mod tests {
     fn beam_option_parses_and_rejects() {
         let b = Beam::parse("18.2arcsec").unwrap();
         assert!((b.major_deg * 3600.0 - 18.2).abs() < 1e-12 && b.major_deg == b.minor_deg);
-        let b = Beam::parse("15arcsec,20arcsec,30deg").unwrap();
+        let b = Beam::parse("20arcsec,15arcsec,30deg").unwrap();
         assert!((b.major_deg * 3600.0 - 20.0).abs() < 1e-12 && (b.pa_deg - 30.0).abs() < 1e-12);
         assert!(Beam::parse("fast").unwrap_err().contains("--beam 'fast'"));
         assert!(Beam::parse("0arcsec").unwrap_err().contains("positive"));
@@ -987,6 +1023,18 @@ mod tests {
         .concat();
         let b = beam_from_header(&Header::parse(&text)).unwrap().unwrap();
         assert_eq!((b.major_deg, b.minor_deg, b.pa_deg), (5e-4, 4e-4, 30.0));
+    }
+
+    /// An ellipse given narrow axis first is the same ellipse: its major axis lies 90 degrees
+    /// from the angle given (a Gaussian's widths and position angle, common practice).
+    #[test]
+    fn a_beam_given_narrow_axis_first_keeps_its_shape() {
+        let b = Beam::parse("10arcsec,20arcsec,30deg").unwrap();
+        assert!((b.major_deg * 3600.0 - 20.0).abs() < 1e-9);
+        assert!((b.minor_deg * 3600.0 - 10.0).abs() < 1e-9);
+        assert!((b.pa_deg - 120.0).abs() < 1e-9);
+        let b = Beam::parse("10arcsec,20arcsec,120deg").unwrap();
+        assert!((b.pa_deg - 30.0).abs() < 1e-9);
     }
 
     #[test]

@@ -382,3 +382,59 @@ fn command_line_mistakes_are_one_sentence() {
         assert_refused(&s, args, "cairn", says);
     }
 }
+
+/// Header values that cannot be right are refused with the keyword named: a reference
+/// latitude beyond the pole (the FITS WCS Paper II convention: latitudes lie in [-90, 90]) and
+/// a beam width that is not a number. A projection cairn does not know says how to fix it.
+#[test]
+fn impossible_header_values_are_named() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    let pole = cards
+        .iter()
+        .map(|c| {
+            if c.starts_with("CRVAL2") {
+                "CRVAL2  =                 95.0".to_string()
+            } else {
+                c.clone()
+            }
+        })
+        .collect::<Vec<_>>();
+    s.write("beyond_pole.fits", &fits_bytes(&pole, &good_pixels(256)));
+    assert_refused(
+        &s,
+        &["inspect", "beyond_pole.fits"],
+        "CRVAL2",
+        "not a latitude",
+    );
+    let mut text_beam = cards.clone();
+    text_beam.push("BMAJ    = 'abc'".into());
+    s.write("text_beam.fits", &fits_bytes(&text_beam, &good_pixels(256)));
+    assert_refused(&s, &["inspect", "text_beam.fits"], "BMAJ", "--beam");
+    let mut odd = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    odd.extend(sky_cards("RA---QQQ", "DEC--QQQ"));
+    s.write("odd.fits", &fits_bytes(&odd, &good_pixels(256)));
+    assert_refused(&s, &["inspect", "odd.fits"], "odd.fits", "resample");
+}
+
+/// Numbers that are not numbers, and option values with no meaning, are refused by name.
+#[test]
+fn meaningless_option_values_are_refused() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("m.fits", &fits_bytes(&cards, &good_pixels(256)));
+    assert_refused(
+        &s,
+        &["inspect", "m.fits", "--beta", "NaN"],
+        "--beta",
+        "not a number",
+    );
+    assert_refused(
+        &s,
+        &["inspect", "m.fits", "--unit", "furlongs"],
+        "--unit",
+        "not understood",
+    );
+}

@@ -258,6 +258,11 @@ impl Wcs {
         }
         let lon0 = crval[lon_axis];
         let lat0 = crval[lat_axis];
+        if !(lat0.abs() <= 90.0) {
+            return Err(WcsError(format!(
+                "CRVAL{la} = {lat0} is not a latitude (it must lie between -90 and 90 degrees)"
+            )));
+        }
         let mut code = code;
         if code == "NCP" {
             // NCP is SIN with xi = 0, eta = cot(delta0) (Paper II sec. 5.1.5).
