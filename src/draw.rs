@@ -289,8 +289,12 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
             )
         })
     };
-    let run: serde_json::Value = serde_json::from_str(&read("run.json")?)
-        .map_err(|e| Error::input(&dir.join("run.json"), format!("is not a run record ({e}).")))?;
+    let run: serde_json::Value = serde_json::from_str(&read("run.json")?).map_err(|e| {
+        Error::input(
+            &dir.join("run.json"),
+            format!("is not a run record ({e}); run cairn segment again to remake the run."),
+        )
+    })?;
     let map_path: PathBuf = match map_override {
         Some(p) => p.to_path_buf(),
         None => PathBuf::from(run["input"]["path"].as_str().unwrap_or("")),
@@ -339,20 +343,31 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
             require_unit: false,
             ..LoadOptions::default()
         },
-    )?
+    )
+    .map_err(|e| {
+        Error::input(
+            &lab_path,
+            format!(
+                "the run's label map cannot be read ({}); run cairn segment again to remake the run.",
+                e.message.trim_end_matches('.')
+            ),
+        )
+    })?
     .data
     .mapv(|v| if v.is_finite() { v as i32 } else { -1 });
     if labels.dim() != map.data.dim() {
         return Err(Error::input(
             &lab_path,
-            "does not have the map's shape; the run folder is inconsistent.",
+            "does not have the map's shape, so the run folder mixes two runs; run cairn segment again.",
         ));
     }
     let tree: serde_json::Value = serde_json::from_str(&read(crate::segment::names::TREE_JSON)?)
         .map_err(|e| {
             Error::input(
                 &dir.join(crate::segment::names::TREE_JSON),
-                format!("is not a hierarchy file ({e})."),
+                format!(
+                    "is not a hierarchy file ({e}); run cairn segment again to remake the run."
+                ),
             )
         })?;
     let csv_path = dir.join(crate::segment::names::CSV);

@@ -533,7 +533,9 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
                 .as_ref()
                 .and_then(|b| b.area_px)
                 .map(|a| (a - 1e-9).ceil().max(1.0))
-                .unwrap_or(9.0),
+                .unwrap_or(9.0)
+                // Never more than the map holds (segment refuses that).
+                .min((map.nx() * map.ny()) as f64),
         }),
         _ => None,
     };

@@ -1058,6 +1058,20 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
                 .map(|n| n.to_string_lossy().into_owned())
                 .unwrap_or_else(|| format!("run{}", i + 1))
         });
+        // Labels go into the Markdown report and the CSV tables as they are.
+        if let Some(c) = label
+            .chars()
+            .find(|c| matches!(c, '|' | ',' | '"' | '<' | '>' | '&') || c.is_control())
+        {
+            return Err(Error::usage(format!(
+                "--label '{label}' holds {c:?}, which the report's tables cannot show; give a label without | , \" < > &."
+            )));
+        }
+        if label.trim().is_empty() {
+            return Err(Error::usage(
+                "--label is empty; give each population a name, such as --label north.",
+            ));
+        }
         if pops.iter().any(|p: &compare::Population| p.label == label) {
             return Err(Error::usage(format!(
                 "two populations are labelled '{label}'; give each run a different --label (or compare different folders)."

@@ -151,6 +151,12 @@ pub struct Resolved {
 
 /// Resolves thresholds against the map's noise, beam and pixel size.
 pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
+    if !map.data.iter().any(|v| v.is_finite()) {
+        return Err(Error::input(
+            &map.path,
+            "has no pixel with a value (every pixel is missing: NaN or BLANK); check that this is the right HDU (--hdu) or plane (--plane).",
+        ));
+    }
     let (sigma, source) = inspect::noise_for(map, &o.noise)?;
     // The background level (clipped median) is needed only for the default floor.
     let background = if o.floor.is_none() {
@@ -180,8 +186,12 @@ pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
         None => 3.0 * need_sigma("the default prominence (3 sigma)")?,
     };
     if prominence.is_nan() || prominence < 0.0 {
+        let given = match o.prominence {
+            Some(Level::Sigma(k)) => format!("{k}sigma"),
+            _ => format!("{prominence}"),
+        };
         return Err(Error::usage(format!(
-            "--prominence must not be negative (it is {prominence})."
+            "--prominence must not be negative (it is {given}); give 0 or more, such as 3sigma."
         )));
     }
     let centre = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
@@ -209,10 +219,17 @@ pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
     };
     let min_area_px = (area_px - 1e-9).ceil().max(1.0) as usize;
     if min_area_px > map.nx() * map.ny() {
-        return Err(Error::usage(format!(
-            "--min-area of {min_area_px} pixels is larger than the whole map ({} pixels).",
-            map.nx() * map.ny()
-        )));
+        return Err(Error::usage(if o.min_area.is_some() {
+            format!(
+                "--min-area of {min_area_px} pixels is larger than the whole map ({} pixels); give a smaller one.",
+                map.nx() * map.ny()
+            )
+        } else {
+            format!(
+                "the default --min-area, one beam ({min_area_px} pixels), is larger than the whole map ({} pixels); check the beam (--beam) or give --min-area in px.",
+                map.nx() * map.ny()
+            )
+        }));
     }
     let show = |l: Option<Level>| match l {
         Some(Level::Value(v)) => format!("{v}"),

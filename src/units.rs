@@ -248,9 +248,16 @@ fn normalise_unit(u: &str) -> String {
 /// A bare number is accepted only when `Dimension::Pure` is allowed.
 pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Quantity, String> {
     let t = text.trim();
+    // A length's examples depend on what it is the length of.
+    let describe = |d: &Dimension| match (d, what) {
+        (Dimension::Length, "--wavelength") => "a wavelength, such as 850um or 1.3mm",
+        (Dimension::Length, "--distance") => "a distance, such as 300pc or 1.4kpc",
+        (Dimension::Length, "--common-resolution") => "a length, such as 0.05pc",
+        _ => d.describe(),
+    };
     let expected = allowed
         .iter()
-        .map(|d| d.describe())
+        .map(describe)
         .collect::<Vec<_>>()
         .join(", or ");
     let bad = || format!("{what} '{text}' is not understood: give {expected}.");

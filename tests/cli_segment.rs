@@ -394,7 +394,10 @@ fn an_interrupted_run_leaves_no_partial_output() {
         let run = d.path().join("run");
         if status.code() == Some(130) {
             interrupted += 1;
-            assert!(!run.exists(), "interrupted at {delay_ms} ms: the folder is left");
+            assert!(
+                !run.exists(),
+                "interrupted at {delay_ms} ms: the folder is left"
+            );
         } else {
             assert_eq!(status.code(), Some(0), "{status:?}");
             let n = std::fs::read_dir(&run).unwrap().count();
@@ -402,4 +405,34 @@ fn an_interrupted_run_leaves_no_partial_output() {
         }
     }
     assert!(interrupted > 0, "no signal landed mid-run");
+}
+
+/// Messages that name what the user did: a negative prominence in sigma is quoted as given,
+/// the default one-beam area is called the default, and a map with no pixel value says so
+/// before asking for a noise it could never use.
+#[test]
+fn threshold_messages_quote_what_was_given() {
+    let d = tempfile::tempdir().unwrap();
+    let m = fixture_map();
+    let m = m.to_str().unwrap();
+    refused(
+        d.path(),
+        &[
+            "segment",
+            m,
+            "-o",
+            "run",
+            "--prominence=-1sigma",
+            "--noise",
+            "1e20",
+        ],
+        "(it is -1sigma)",
+    );
+    refused(
+        d.path(),
+        &[
+            "segment", m, "-o", "run", "--beam", "5deg", "--floor", "4e21",
+        ],
+        "the default --min-area, one beam",
+    );
 }
