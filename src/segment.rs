@@ -1069,7 +1069,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                     r.noise
                         .map(crate::table::fmt_f64)
                         .unwrap_or_else(|| "none".into()),
-                    r.noise_source.clone(),
+                    format!("{} ({})", map.unit_text, r.noise_source),
                 ),
                 (
                     "version".into(),
@@ -1248,10 +1248,34 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
         ));
     }
     if let Some(t) = &ctx.temperature_k {
+        v.push(match t {
+            crate::score::Field::Uniform(k) => (
+                "temperature".into(),
+                fmt_f64(*k),
+                "K, dust temperature".into(),
+            ),
+            crate::score::Field::Map(_) => (
+                "temperature".into(),
+                "map".into(),
+                "K, dust temperature per pixel (--temperature-map)".into(),
+            ),
+        });
+    }
+    if let Some(b) = &map.beam {
         v.push((
-            "temperature".into(),
-            t.describe("K"),
-            "dust temperature".into(),
+            "beam_major".into(),
+            fmt_f64(b.major_deg * 3600.0),
+            "arcsec, beam FWHM along the major axis".into(),
+        ));
+        v.push((
+            "beam_minor".into(),
+            fmt_f64(b.minor_deg * 3600.0),
+            "arcsec, beam FWHM along the minor axis".into(),
+        ));
+        v.push((
+            "beam_pa".into(),
+            fmt_f64(b.pa_deg),
+            "deg, beam position angle east of north".into(),
         ));
     }
     if map.unit.map(|u| u.is_emission()).unwrap_or(false) {
@@ -1289,11 +1313,18 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
         "mean molecular weight per particle".into(),
     ));
     if let Some(s) = &ctx.sigma_nt {
-        v.push((
-            "sigma_nt".into(),
-            s.describe("m/s"),
-            "non-thermal velocity dispersion".into(),
-        ));
+        v.push(match s {
+            crate::score::Field::Uniform(ms) => (
+                "sigma_nt".into(),
+                fmt_f64(ms / 1e3),
+                "km/s, non-thermal velocity dispersion".into(),
+            ),
+            crate::score::Field::Map(_) => (
+                "sigma_nt".into(),
+                "map".into(),
+                "km/s, non-thermal velocity dispersion per pixel (--sigma-nt-map)".into(),
+            ),
+        });
     }
     v
 }
