@@ -193,8 +193,8 @@ struct MapArgs {
     /// Noise in map units (a number, or a quantity such as `0.02MJy/sr`), instead of the estimate.
     #[arg(long, value_name = "VALUE", conflicts_with = "noise_map")]
     noise: Option<String>,
-    /// A FITS map of the noise on the same grid, instead of the estimate. Its median is the
-    /// noise used everywhere (sigma thresholds and the error columns), not pixel by pixel.
+    /// A FITS map of the noise on the same grid, instead of the estimate. Its median sets
+    /// sigma thresholds; the error columns use each structure's own pixels' noise.
     #[arg(long, value_name = "FILE")]
     noise_map: Option<PathBuf>,
 }

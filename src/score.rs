@@ -245,6 +245,8 @@ struct Sums {
     n_t_weight: f64,
     n_s2: f64,
     n_s2_weight: f64,
+    /// Sum of f^2 sigma^2 over the pixels, with sigma from the noise map (0 without one).
+    f2s2: f64,
 }
 
 impl Sums {
@@ -257,6 +259,7 @@ impl Sums {
         self.n_t_weight += o.n_t_weight;
         self.n_s2 += o.n_s2;
         self.n_s2_weight += o.n_s2_weight;
+        self.f2s2 += o.f2s2;
     }
 }
 
@@ -329,7 +332,13 @@ pub fn state_of(alpha_vir: f64, alpha_be: f64) -> &'static str {
 
 /// Every structure's [`Sums`] (descendants included), pixel by pixel: for maps whose
 /// conversion or fields vary from pixel to pixel.
-fn sums_by_pixel(map: &Map, h: &Hierarchy, ctx: &Context, conv: &Converter) -> Vec<Sums> {
+fn sums_by_pixel(
+    map: &Map,
+    h: &Hierarchy,
+    ctx: &Context,
+    conv: &Converter,
+    noise: Option<(ndarray::ArrayView2<f32>, f64)>,
+) -> Vec<Sums> {
     let ns = h.structures.len();
     // Rows are cut into blocks whose number depends only on the map size and the number of
     // structures (never on the thread count); blocks are summed in parallel and added in
@@ -355,6 +364,16 @@ fn sums_by_pixel(map: &Map, h: &Hierarchy, ctx: &Context, conv: &Converter) -> V
                     s.n_col += n;
                     s.f += f;
                     s.f2 += f * f;
+                    if let Some((nm, fallback)) = &noise {
+                        // A pixel the noise map leaves undefined takes its median.
+                        let sv = nm[(y, x)] as f64;
+                        let sv = if sv.is_finite() && sv > 0.0 {
+                            sv
+                        } else {
+                            *fallback
+                        };
+                        s.f2s2 += f * f * sv * sv;
+                    }
                     if let Some(t) = &ctx.temperature_k {
                         let tv = t.at(y, x);
                         if tv.is_finite() {
@@ -416,26 +435,42 @@ fn sums_uniform(h: &Hierarchy, ctx: &Context, f: f64) -> Vec<Sums> {
                 n_t_weight,
                 n_s2,
                 n_s2_weight,
+                f2s2: 0.0,
             }
         })
         .collect()
 }
 
-/// Scores every structure. `noise` is the map noise in map units (None if unknown).
+/// Scores every structure. `noise` is the map noise in map units (None if unknown); with
+/// `noise_map` (the noise of each pixel, on the map's grid; `noise` is then its median, used
+/// where the map is undefined), the error columns use each structure's own noise: the peak's
+/// at the peak, and the sum over its pixels for the mass.
 pub fn score(
     map: &Map,
     h: &Hierarchy,
     ms: &[Measurement],
     ctx: &Context,
     noise: Option<f64>,
+    noise_map: Option<ndarray::ArrayView2<f32>>,
 ) -> Result<Vec<Physical>, String> {
     let conv = Converter::new(map, ctx)?;
     let uniform_field = |field: &Option<Field>| !matches!(field, Some(Field::Map(_)));
+    let noise_map = noise_map.filter(|nm| nm.dim() == map.data.dim());
     let total = match conv.uniform_factor() {
-        Some(f) if uniform_field(&ctx.temperature_k) && uniform_field(&ctx.sigma_nt) => {
+        Some(f)
+            if uniform_field(&ctx.temperature_k)
+                && uniform_field(&ctx.sigma_nt)
+                && noise_map.is_none() =>
+        {
             sums_uniform(h, ctx, f)
         }
-        _ => sums_by_pixel(map, h, ctx, &conv),
+        _ => sums_by_pixel(
+            map,
+            h,
+            ctx,
+            &conv,
+            noise_map.map(|nm| (nm, noise.unwrap_or(f64::NAN))),
+        ),
     };
     let beam_px = match (map.beam, &map.wcs) {
         (Some(b), Some(w)) => {
@@ -459,7 +494,18 @@ pub fn score(
             let nan = f64::NAN;
             let mut p = Physical {
                 n_peak_cm2: s.peak_value * f_peak * 1e-4,
-                n_peak_err_cm2: noise.map(|n| n * f_peak * 1e-4).unwrap_or(nan),
+                n_peak_err_cm2: match noise_map {
+                    Some(nm) => {
+                        let sv = nm[(s.peak_y, s.peak_x)] as f64;
+                        let sv = if sv.is_finite() && sv > 0.0 {
+                            sv
+                        } else {
+                            noise.unwrap_or(nan)
+                        };
+                        sv * f_peak * 1e-4
+                    }
+                    None => noise.map(|n| n * f_peak * 1e-4).unwrap_or(nan),
+                },
                 n_mean_cm2: t.n_col / npix * 1e-4,
                 mass: nan,
                 mass_excess: nan,
@@ -498,9 +544,14 @@ pub fn score(
             let unit_mass = ctx.mu_h2 * M_H * area_m2;
             p.mass = unit_mass * t.n_col / M_SUN;
             p.mass_excess = unit_mass * (t.n_col - m.merge_level * t.f) / M_SUN;
-            p.mass_err = noise
-                .map(|n| unit_mass * n * (t.f2 * beam_px.min(npix)).sqrt() / M_SUN)
-                .unwrap_or(nan);
+            // The noise of the sum over the footprint, correlated over a beam: with a noise
+            // map, each pixel's own noise (the same formula when it is uniform).
+            p.mass_err = match noise_map {
+                Some(_) => unit_mass * (t.f2s2 * beam_px.min(npix)).sqrt() / M_SUN,
+                None => noise
+                    .map(|n| unit_mass * n * (t.f2 * beam_px.min(npix)).sqrt() / M_SUN)
+                    .unwrap_or(nan),
+            };
             let r_eff = (m.area_arcsec2 / std::f64::consts::PI).sqrt() * units::ARCSEC * d;
             p.radius_pc = r_eff / PC;
             if let Some(b) = beam_rad {

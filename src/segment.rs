@@ -873,6 +873,11 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         }
     };
     let r = resolve(map, o)?;
+    // A noise map also gives each structure its own noise in the error columns.
+    let noise_map = match &o.noise {
+        NoiseChoice::Map(p) => Some(inspect::load_noise_map(map, p)?),
+        _ => None,
+    };
     let t_resolve = t0.elapsed().as_secs_f64();
     let mut names_list: Vec<String> = [
         names::CSV,
@@ -972,7 +977,14 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         let _ = ms_tx.send(ms.clone());
         drop(ms_tx);
         let t_physics = Instant::now();
-        let (phys, physics_note) = match crate::score::score(map, h, &ms, &o.physics, r.noise) {
+        let (phys, physics_note) = match crate::score::score(
+            map,
+            h,
+            &ms,
+            &o.physics,
+            r.noise,
+            noise_map.as_ref().map(|m| m.view()),
+        ) {
             Ok(p) => (Some(p), None),
             Err(why) => (None, Some(why)),
         };
