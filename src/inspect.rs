@@ -307,7 +307,7 @@ pub fn load_aux_map(
                 (Some(a), Some(b)) => separation_deg(a, b),
                 _ => 0.0,
             };
-            if !(off <= tol) {
+            if off.is_nan() || off > tol {
                 return Err(Error::input(
                     path,
                     format!(

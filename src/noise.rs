@@ -59,6 +59,9 @@ pub enum NoNoise {
     AllMissing,
     /// Every finite pixel has the same value.
     Constant(f64),
+    /// At least half the pixels share one value (a quantised or mostly empty map), so the
+    /// median absolute deviation, and the clipped width with it, is zero.
+    Quantised(f64),
 }
 
 impl std::fmt::Display for NoNoise {
@@ -71,6 +74,10 @@ impl std::fmt::Display for NoNoise {
             NoNoise::Constant(v) => write!(
                 f,
                 "every pixel has the same value ({v}), so the map has no noise to measure"
+            ),
+            NoNoise::Quantised(v) => write!(
+                f,
+                "at least half its pixels have the same value ({v}) (a quantised or mostly empty map), so the clipped noise estimate cannot be made"
             ),
         }
     }
@@ -119,6 +126,7 @@ pub fn clipped_stats_of(
     if values.is_empty() {
         return Err(NoNoise::AllMissing);
     }
+    let all_same = values.iter().all(|&x| x == values[0]);
     let mut kept = values;
     let n_used = kept.len();
     let mut passes = 0;
@@ -147,7 +155,11 @@ pub fn clipped_stats_of(
     scratch.extend_from_slice(&kept);
     let median = median_in_place(&mut scratch);
     if std == 0.0 {
-        return Err(NoNoise::Constant(median));
+        return Err(if all_same {
+            NoNoise::Constant(median)
+        } else {
+            NoNoise::Quantised(median)
+        });
     }
     Ok(ClippedStats {
         mean,
@@ -350,6 +362,12 @@ mod tests {
         let m = Array2::from_elem((8, 8), f32::NAN);
         assert_eq!(clipped_stats(m.view()).unwrap_err(), NoNoise::AllMissing);
         assert!(NoNoise::AllMissing.to_string().contains("missing"));
+        // Mostly one value, a few others: not constant, but no clipped width either.
+        let m = Array2::from_shape_fn((8, 8), |(y, x)| if y == 0 { x as f32 } else { 0.0 });
+        assert_eq!(
+            clipped_stats(m.view()).unwrap_err(),
+            NoNoise::Quantised(0.0)
+        );
     }
 
     #[test]

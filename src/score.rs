@@ -664,7 +664,7 @@ mod tests {
             let conv = Converter::new(&map, &ctx).unwrap();
             let f = conv.uniform_factor().expect("a uniform factor");
             let fast = sums_uniform(&h, &ctx, f);
-            let slow = sums_by_pixel(&map, &h, &ctx, &conv);
+            let slow = sums_by_pixel(&map, &h, &ctx, &conv, None);
             let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * a.abs().max(b.abs());
             for (a, b) in fast.iter().zip(&slow) {
                 for (x, y) in [

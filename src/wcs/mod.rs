@@ -258,7 +258,7 @@ impl Wcs {
         }
         let lon0 = crval[lon_axis];
         let lat0 = crval[lat_axis];
-        if !(lat0.abs() <= 90.0) {
+        if lat0.is_nan() || lat0.abs() > 90.0 {
             return Err(WcsError(format!(
                 "CRVAL{la} = {lat0} is not a latitude (it must lie between -90 and 90 degrees)"
             )));
