@@ -319,10 +319,24 @@ pub fn load_aux_map(
             }
         }
     }
-    if nm.data.iter().any(|v| v.is_finite() && *v <= 0.0) {
+    // A velocity dispersion of zero is a purely thermal region; noise and temperature must
+    // be positive.
+    let zero_allowed = what.starts_with("velocity");
+    if nm
+        .data
+        .iter()
+        .any(|v| v.is_finite() && (*v < 0.0 || (*v == 0.0 && !zero_allowed)))
+    {
+        let (which, must) = if zero_allowed {
+            ("negative", "zero or more")
+        } else {
+            ("zero or negative", "positive")
+        };
         return Err(Error::input(
             path,
-            format!("has zero or negative {values}; a {what} must be positive where defined."),
+            format!(
+                "has {which} {values}; a {what} must be {must} where defined (mark unknown pixels as NaN)."
+            ),
         ));
     }
     Ok(nm.data)
@@ -711,7 +725,13 @@ pub fn render_text(s: &Summary) -> String {
             }
             line("noise", t);
         }
-        (None, Some(why)) => line("noise", why.clone()),
+        (None, Some(why)) => {
+            let mut t = format!("none: {why}; give --noise or --noise-map");
+            if let Some(d) = s.noise.difference_sigma {
+                t.push_str(&format!(" (the pixel-difference estimate is {})", g(d)));
+            }
+            line("noise", t)
+        }
         (None, None) => line("noise", "unknown".into()),
     }
     if let Some(sg) = &s.suggested {

@@ -932,7 +932,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         noise: a.read.noise_choice(&m)?,
         output: a.output.clone(),
         force: a.force,
-        command_line: std::env::args().collect(),
+        command_line: std::env::args_os()
+            .map(|a| a.to_string_lossy().into_owned())
+            .collect(),
         physics: a.physics.context(&m)?,
         figure: if a.no_figure {
             None
@@ -1137,6 +1139,9 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         ));
     }
     let names: Vec<String> = files.iter().map(|(n, _)| n.clone()).collect();
+    // A catalogue given as a file could sit in the output folder under an output's name.
+    let inputs: Vec<&std::path::Path> = a.runs.iter().map(|r| r.as_path()).collect();
+    output::refuse_inputs_as_outputs(&a.output, &names, &inputs)?;
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
     for (n, bytes) in &files {
         output::write_bytes(&outputs.temp(n), bytes)?;
@@ -1263,10 +1268,26 @@ fn main() -> ExitCode {
             // One sentence, as for every other refusal: the parser's first line and where
             // the options are listed.
             let text = e.render().to_string();
-            let first = text.lines().next().unwrap_or("").trim();
-            let first = first.strip_prefix("error: ").unwrap_or(first);
-            let command = std::env::args()
+            // The first line, with the indented lines that complete it (the missing
+            // arguments, the possible values), up to the usage.
+            let mut lines = text.lines();
+            let head = lines.next().unwrap_or("").trim();
+            let mut first = head.strip_prefix("error: ").unwrap_or(head).to_string();
+            let more: Vec<&str> = lines
+                .skip_while(|l| l.trim().is_empty())
+                .take_while(|l| l.starts_with("  "))
+                .map(|l| l.trim().trim_start_matches("tip: "))
+                .collect();
+            if !more.is_empty() {
+                first = if first.ends_with(':') {
+                    format!("{first} {}", more.join(", "))
+                } else {
+                    format!("{first} ({})", more.join("; "))
+                };
+            }
+            let command = std::env::args_os()
                 .skip(1)
+                .map(|a| a.to_string_lossy().into_owned())
                 .find(|w| ["inspect", "segment", "draw", "compare", "synth"].contains(&w.as_str()))
                 .map(|w| format!("cairn {w} --help"))
                 .unwrap_or_else(|| "cairn --help".into());

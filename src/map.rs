@@ -907,7 +907,11 @@ pub fn plane_wavelength(
         });
     let offset = plane as f64 + 1.0 - crpix;
     let value = match algorithm.as_str() {
-        "" => Some(crval + step * offset),
+        // The AIPS convention's frame suffixes (FREQ-LSR, FREQ-OBS, ...) name the rest frame
+        // of a linear axis (common practice in radio images).
+        "" | "LSR" | "LSRK" | "LSRD" | "OBS" | "HEL" | "BAR" | "GEO" | "TOP" => {
+            Some(crval + step * offset)
+        }
         "LOG" if crval > 0.0 => Some(crval * (step * offset / crval).exp()),
         _ if offset == 0.0 => Some(crval),
         _ => None,

@@ -42,11 +42,6 @@ static LIVE: std::sync::Mutex<Live> = std::sync::Mutex::new(Live {
     plans: Vec::new(),
 });
 
-fn forget(id: u64) {
-    let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
-    live.plans.retain(|p| p.id != id);
-}
-
 /// Makes an interrupt (Ctrl-C, SIGTERM, SIGHUP) remove the temporary files of every output
 /// plan not yet committed, and the folders those plans created, before the process ends with
 /// exit code 130, so that an interrupted run leaves no partial output either. Called once, by
@@ -55,13 +50,27 @@ pub fn remove_partial_outputs_on_interrupt() {
     let _ = ctrlc::set_handler(|| {
         // The lock is held until the process ends, so no plan starts or commits meanwhile.
         let live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
+        // This process's temporary files in each plan's folder: the listed ones, and any a
+        // writer thread created after the list was read (same name pattern, same process).
+        let mark = format!(".partial-{}-", std::process::id());
         for p in &live.plans {
             for f in &p.files {
                 let _ = std::fs::remove_file(f);
             }
+            if let Ok(entries) = std::fs::read_dir(&p.dir) {
+                for e in entries.flatten() {
+                    if e.file_name().to_string_lossy().contains(&mark) {
+                        let _ = std::fs::remove_file(e.path());
+                    }
+                }
+            }
             remove_created(&p.dir, p.created_dir.as_deref());
         }
-        eprintln!("cairn: interrupted; no output was written.");
+        if live.plans.is_empty() {
+            eprintln!("cairn: interrupted.");
+        } else {
+            eprintln!("cairn: interrupted; the unfinished outputs were removed.");
+        }
         std::process::exit(130);
     });
 }
@@ -104,55 +113,74 @@ impl Outputs {
         others: &[String],
         force: bool,
     ) -> Result<Outputs> {
-        let mut created_dir = None;
-        if dir.exists() {
-            if !dir.is_dir() {
-                return Err(Error::output(
-                    dir,
-                    "exists and is not a folder; choose another output folder with -o.",
-                ));
-            }
-        } else {
-            // The highest missing folder, so that a failure removes every level made here.
-            let mut top = dir.to_path_buf();
-            while let Some(up) = top.parent() {
-                if up.as_os_str().is_empty() || up.exists() {
-                    break;
-                }
-                top = up.to_path_buf();
-            }
-            std::fs::create_dir_all(dir).map_err(|e| {
-                Error::output(
-                    dir,
-                    format!("cannot be created ({e}); choose a writable output folder with -o."),
-                )
-            })?;
-            created_dir = Some(top);
+        if dir.exists() && !dir.is_dir() {
+            return Err(Error::output(
+                dir,
+                "exists and is not a folder; choose another output folder with -o.",
+            ));
         }
+        // The plan is registered for an interrupt in the same breath as its folders are made
+        // (under the lock the interrupt handler takes), so no moment leaves them unknown;
+        // from here on, any refusal drops `out`, which removes what it made.
+        let mut out = {
+            let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
+            let mut created_dir = None;
+            if !dir.exists() {
+                // The highest missing folder, so that a failure removes every level made here.
+                let mut top = dir.to_path_buf();
+                while let Some(up) = top.parent() {
+                    if up.as_os_str().is_empty() || up.exists() {
+                        break;
+                    }
+                    top = up.to_path_buf();
+                }
+                std::fs::create_dir_all(dir).map_err(|e| {
+                    Error::output(
+                        dir,
+                        format!(
+                            "cannot be created ({e}); choose a writable output folder with -o."
+                        ),
+                    )
+                })?;
+                created_dir = Some(top);
+            }
+            live.next += 1;
+            let id = live.next;
+            live.plans.push(LivePlan {
+                id,
+                files: Vec::new(),
+                dir: dir.to_path_buf(),
+                created_dir: created_dir.clone(),
+            });
+            Outputs {
+                dir: dir.to_path_buf(),
+                created_dir,
+                planned: Vec::new(),
+                stale: Vec::new(),
+                committed: false,
+                id,
+            }
+        };
         let mut existing = Vec::new();
-        let mut planned = Vec::new();
         for (k, name) in names.iter().enumerate() {
             let target = dir.join(name);
             if target.is_dir() {
-                let e = Error::output(
+                return Err(Error::output(
                     &target,
                     "is a folder where an output file goes; move it away or choose another output folder with -o.",
-                );
-                remove_created(dir, created_dir.as_deref());
-                return Err(e);
+                ));
             }
             if target.exists() && !force {
                 existing.push(name.clone());
             }
             let tmp = dir.join(format!(".{name}.partial-{}-{k}", std::process::id()));
-            planned.push((target, tmp));
+            out.planned.push((target, tmp));
         }
-        let mut stale = Vec::new();
         for name in others.iter().filter(|n| !names.contains(n)) {
             let target = dir.join(name);
             if target.exists() {
                 if force {
-                    stale.push(target);
+                    out.stale.push(target);
                 } else {
                     existing.push(name.clone());
                 }
@@ -167,36 +195,22 @@ impl Outputs {
                 ),
             ));
         }
+        {
+            let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
+            if let Some(p) = live.plans.iter_mut().find(|p| p.id == out.id) {
+                p.files = out.planned.iter().map(|(_, tmp)| tmp.clone()).collect();
+            }
+        }
         // Probe that the folder is writable before any real work.
         let probe = dir.join(format!(".cairn-write-probe-{}", std::process::id()));
         std::fs::write(&probe, b"").map_err(|e| {
-            remove_created(dir, created_dir.as_deref());
             Error::output(
                 dir,
                 format!("is not writable ({e}); choose a writable output folder with -o."),
             )
         })?;
         let _ = std::fs::remove_file(&probe);
-        let id = {
-            let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
-            live.next += 1;
-            let id = live.next;
-            live.plans.push(LivePlan {
-                id,
-                files: planned.iter().map(|(_, tmp)| tmp.clone()).collect(),
-                dir: dir.to_path_buf(),
-                created_dir: created_dir.clone(),
-            });
-            id
-        };
-        Ok(Outputs {
-            dir: dir.to_path_buf(),
-            created_dir,
-            planned,
-            stale,
-            committed: false,
-            id,
-        })
+        Ok(out)
     }
 
     /// The output folder.
@@ -266,11 +280,13 @@ impl Drop for Outputs {
         if self.committed {
             return;
         }
-        forget(self.id);
+        // Under the lock, so that an interrupt meanwhile finds the plan either whole or gone.
+        let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
         for (_, tmp) in &self.planned {
             let _ = std::fs::remove_file(tmp);
         }
         remove_created(&self.dir, self.created_dir.as_deref());
+        live.plans.retain(|p| p.id != self.id);
     }
 }
 

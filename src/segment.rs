@@ -904,8 +904,13 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             names_list.push(n.into());
         }
     }
-    crate::output::refuse_inputs_as_outputs(&o.output, &names_list, &[&map.path])?;
+    // Every name a run may write or (with --force) remove must spare the inputs.
     let every: Vec<String> = names::ALL.iter().map(|s| s.to_string()).collect();
+    let mut inputs: Vec<&std::path::Path> = vec![&map.path];
+    if let NoiseChoice::Map(p) = &o.noise {
+        inputs.push(p);
+    }
+    crate::output::refuse_inputs_as_outputs(&o.output, &every, &inputs)?;
     let mut outputs = Outputs::plan_replacing(&o.output, &names_list, &every, o.force)?;
     let params = Params {
         floor: r.floor,

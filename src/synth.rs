@@ -352,7 +352,9 @@ pub fn memory_needed(spec: &SynthSpec) -> u128 {
         BYTES_PER_PIXEL_PLAIN
     };
     let cores = spec.cores.len() as u128 + spec.population.map_or(0, |p| p.count as u128);
-    pixel_count(spec) * per_pixel + cores * BYTES_PER_CORE
+    pixel_count(spec)
+        .saturating_mul(per_pixel)
+        .saturating_add(cores.saturating_mul(BYTES_PER_CORE))
 }
 
 fn gigabytes(bytes: u128) -> String {

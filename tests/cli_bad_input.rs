@@ -371,8 +371,13 @@ fn command_line_mistakes_are_one_sentence() {
     for (args, says) in [
         (
             &["segment", "m.fits", "-o", "run", "--bogus"][..],
-            "cairn segment --help",
+            "'--bogus'",
         ),
+        (
+            &["segment", "m.fits", "-o", "run", "--forc"][..],
+            "'--force'",
+        ),
+        (&["segment", "-o", "run"][..], "<MAP>"),
         (
             &["inspect", "m.fits", "--noise", "1", "--noise-map", "n.fits"][..],
             "cannot be used with",

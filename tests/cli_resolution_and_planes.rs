@@ -129,7 +129,6 @@ fn a_target_beam_wider_than_the_map_is_refused_before_any_large_allocation() {
         "--distance",
         "300pc",
     ];
-    let start = std::time::Instant::now();
     let e = assert_refused(
         d.path(),
         &args,
@@ -144,7 +143,6 @@ fn a_target_beam_wider_than_the_map_is_refused_before_any_large_allocation() {
         ],
     );
     assert!(!e.contains("--min-area"), "{e}");
-    assert!(start.elapsed().as_secs() < 20, "refused up front");
 }
 
 #[test]

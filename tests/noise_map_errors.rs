@@ -107,8 +107,10 @@ fn errors_follow_each_structures_own_noise() {
                 a["id"]
             );
         }
-        // The masses themselves do not depend on the noise.
-        assert_eq!(a["mass"], c["mass"]);
+        // The masses themselves do not depend on the noise (summed pixel by pixel here and
+        // from the engine's sums there, so equal to rounding).
+        let (ma, mc) = (num(a, "mass"), num(c, "mass"));
+        assert!((mc / ma - 1.0).abs() < 1e-12, "mass {ma} vs {mc}");
     }
     assert!(
         left >= 2 && right >= 2,
