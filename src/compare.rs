@@ -1013,11 +1013,26 @@ pub fn plots(
                 })
                 .collect()
         };
+        // The runs' mean molecular weights when they agree (compare warns when they do not),
+        // else cairn's defaults.
+        let shared = |key: &str, default: f64| {
+            let v: Vec<f64> = pops
+                .iter()
+                .filter_map(|p| p.run["physics"][key].as_f64())
+                .collect();
+            match v.first() {
+                Some(&x) if v.len() == pops.len() && v.iter().all(|&y| y == x) => x,
+                _ => default,
+            }
+        };
+        let (mu_h2, mu_p) = (
+            shared("mu_h2", crate::physics::MU_H2),
+            shared("mu_p", crate::physics::MU_P),
+        );
         for n_cm2 in [1e21, 1e22, 1e23] {
-            // M = mu_H2 m_H N pi R^2 (common practice), mu_H2 = 2.8.
+            // M = mu_H2 m_H N pi R^2 (common practice).
             let g = move |r: f64| {
-                crate::physics::MU_H2 * M_H * n_cm2 * 1e4 * std::f64::consts::PI * (r * PC).powi(2)
-                    / M_SUN
+                mu_h2 * M_H * n_cm2 * 1e4 * std::f64::consts::PI * (r * PC).powi(2) / M_SUN
             };
             ms.guides.push(Guide {
                 label: format!("N = 10^{{{}}} cm^{{-2}}", n_cm2.log10().round()),
@@ -1025,7 +1040,7 @@ pub fn plots(
             });
         }
         for &t in temperatures_k {
-            let cs2 = K_B * t / (crate::physics::MU_P * M_H);
+            let cs2 = K_B * t / (mu_p * M_H);
             let g = move |r: f64| crate::score::be_coefficient() * r * PC * cs2 / G / M_SUN;
             ms.guides.push(Guide {
                 label: format!("M_{{BE}}, {t} K"),
