@@ -202,7 +202,11 @@ pub fn summarise(p: &Population, o: &Options) -> Summary {
     let tail = match populations::fit_power_law(&p.masses, o.mass_min, &search) {
         Ok(t) => Some(t),
         Err(e) => {
-            notes.push(format!("no power-law tail: {}", e.message));
+            // In compare's words: the lower limit is the --mass-min option.
+            notes.push(format!(
+                "no power-law tail: {}",
+                e.message.replace("x_min", "--mass-min")
+            ));
             None
         }
     };
@@ -822,6 +826,12 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             f(lp),
             f(ls)
         );
+    }
+    // Why a fit is missing, where one is.
+    for x in &c.summaries {
+        for n in &x.notes {
+            let _ = writeln!(s, "\n{}: {n}.", x.label);
+        }
     }
     let _ = writeln!(
         s,

@@ -1161,6 +1161,9 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
             })
             .unwrap_or_else(|| "no tail fit".into());
         println!("{}: {} leaves, {tail}", s.label, s.n);
+        for n in &s.notes {
+            println!("  {n}");
+        }
     }
     for w in &c.warnings {
         println!("warning: {w}");

@@ -100,6 +100,29 @@ fn compare_reports_statistics_and_fairness() {
     assert_eq!(code, 2);
     assert!(err.contains("--distance"), "{err}");
     assert!(!d.path().join("cmp2").exists());
+    // A lower mass limit above every leaf leaves no tail to fit: the summary and the report
+    // say why.
+    let (code, out, err) = run(
+        d.path(),
+        &[
+            "compare",
+            "near",
+            "far",
+            "-o",
+            "cmp7",
+            "--mass-min",
+            "1000Msun",
+            "--resamples",
+            "20",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        out.contains("no power-law tail") && out.contains("--mass-min"),
+        "{out}"
+    );
+    let report = std::fs::read_to_string(d.path().join("cmp7/report.md")).unwrap();
+    assert!(report.contains("near: no power-law tail"), "{report}");
     // A plot width out of range is refused before any work, in one sentence.
     for width in ["10", "30000"] {
         let (code, _, err) = run(
