@@ -92,8 +92,15 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         run: serde_json::Value::Null,
     };
     for (n, r) in rows.iter().enumerate() {
-        if r.get(kind).map(String::as_str) != Some("leaf") {
-            continue;
+        let k = r.get(kind).map(String::as_str).unwrap_or("");
+        if !matches!(k, "leaf" | "branch" | "root") {
+            return Err(Error::input(
+                &csv,
+                format!(
+                    "row {} has the kind '{k}' (not leaf, branch or root): the catalogue is damaged; run cairn segment again.",
+                    n + 1
+                ),
+            ));
         }
         // An empty cell is a missing value; any other text must be a number.
         let num = |i: usize| -> Result<f64> {
@@ -113,16 +120,20 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
             })
         };
         let (m, rad) = (num(mass)?, num(radius)?);
+        let dens = match density {
+            Some(i) => num(i)?,
+            None => f64::NAN,
+        };
+        if k != "leaf" {
+            continue;
+        }
         if let Some(s) = state.and_then(|i| r.get(i)) {
             *p.states.entry(s.clone()).or_insert(0) += 1;
         }
         if m.is_finite() && m > 0.0 && rad.is_finite() && rad > 0.0 {
             p.masses.push(m);
             p.radii.push(rad);
-            p.densities.push(match density {
-                Some(i) => num(i)?,
-                None => f64::NAN,
-            });
+            p.densities.push(dens);
         } else {
             p.dropped += 1;
         }
@@ -273,6 +284,14 @@ pub struct Pair {
 /// Fairness warnings between the populations, each naming the difference.
 pub fn fairness(pops: &[Population]) -> Vec<String> {
     let mut w = vec![];
+    for p in pops {
+        if p.dropped > 0 {
+            w.push(format!(
+                "{}: {} leaves without a positive finite mass and radius were left out",
+                p.label, p.dropped
+            ));
+        }
+    }
     let get = |p: &Population, path: &[&str]| -> Option<serde_json::Value> {
         let mut v = &p.run;
         for k in path {

@@ -323,9 +323,16 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         }
     }
     let map = map::load(&map_path, &opts).map_err(|e| {
+        let prefix = format!("{}: ", map_path.display());
+        let why = e.message.trim_end_matches('.');
+        let why = why.strip_prefix(prefix.as_str()).unwrap_or(why);
         Error::input(
             &map_path,
-            format!("the run's map cannot be read ({e}); give it with --map."),
+            if map_override.is_some() {
+                format!("cannot be read as the run's map ({why}); give the FITS map the run was made from with --map.")
+            } else {
+                format!("the run's map cannot be read ({why}); give it with --map.")
+            },
         )
     })?;
     let recorded = run["input"]["sha256"].as_str().unwrap_or("");

@@ -81,7 +81,7 @@ struct SegmentArgs {
     leaves_only: bool,
     /// Smooth (and regrid) the map to this linear resolution before extraction, such as
     /// 0.05pc (needs --distance and a beam), so clouds at different distances compare fairly.
-    #[arg(long, value_name = "LENGTH")]
+    #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     common_resolution: Option<String>,
     /// Draw no figures (overlay.png/svg, tree.png/svg).
     #[arg(long)]
@@ -105,10 +105,10 @@ struct SynthArgs {
     #[arg(long, value_name = "FILE")]
     spec: Option<PathBuf>,
     /// Map size in pixels: `N` or `NXxNY`, such as 512 or 600x400 [default: 256].
-    #[arg(long, value_name = "N|NXxNY")]
+    #[arg(long, value_name = "N|NXxNY", allow_hyphen_values = true)]
     size: Option<String>,
     /// Pixel size, such as 6arcsec [default: 6arcsec].
-    #[arg(long, value_name = "ANGLE")]
+    #[arg(long, value_name = "ANGLE", allow_hyphen_values = true)]
     pixel: Option<String>,
     /// Map centre as `lon,lat` in degrees (invented positions) [default: 201.375,-31.625].
     #[arg(long, value_name = "LON,LAT", allow_hyphen_values = true)]
@@ -117,16 +117,16 @@ struct SynthArgs {
     #[arg(long, value_name = "FRAME")]
     frame: Option<String>,
     /// Distance of the invented cloud, such as 250pc [default: 250pc].
-    #[arg(long, value_name = "LENGTH")]
+    #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     distance: Option<String>,
     /// Beam FWHM, such as 18arcsec; 0arcsec for no smoothing [default: 18arcsec].
-    #[arg(long, value_name = "ANGLE")]
+    #[arg(long, value_name = "ANGLE", allow_hyphen_values = true)]
     beam: Option<String>,
     /// Mean column density of the log-normal background, such as 3e21cm-2 [default: 3e21cm-2].
-    #[arg(long, value_name = "COLUMN")]
+    #[arg(long, value_name = "COLUMN", allow_hyphen_values = true)]
     background: Option<String>,
     /// Width (standard deviation of ln N) of the background's log-normal distribution [default: 0.4].
-    #[arg(long, value_name = "SIGMA")]
+    #[arg(long, value_name = "SIGMA", allow_hyphen_values = true)]
     background_width: Option<f64>,
     /// Power-spectrum index of the background, P(k) ~ k^-INDEX [default: 3].
     #[arg(long, value_name = "INDEX", allow_hyphen_values = true)]
@@ -135,16 +135,16 @@ struct SynthArgs {
     #[arg(long, conflicts_with_all = ["background", "background_width", "background_index"])]
     no_background: bool,
     /// Number of randomly placed cores to add.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_hyphen_values = true)]
     cores: Option<usize>,
     /// Core mass range, such as 0.5Msun,20Msun [default: 0.5Msun,20Msun].
-    #[arg(long, value_name = "MIN,MAX")]
+    #[arg(long, value_name = "MIN,MAX", allow_hyphen_values = true)]
     core_mass: Option<String>,
     /// Index of the core mass distribution dN/dM ~ M^-INDEX [default: 2.35].
-    #[arg(long, value_name = "INDEX")]
+    #[arg(long, value_name = "INDEX", allow_hyphen_values = true)]
     core_mass_index: Option<f64>,
     /// Core radius range, such as 0.02pc,0.08pc (drawn uniformly in log) [default: 0.02pc,0.08pc].
-    #[arg(long, value_name = "MIN,MAX")]
+    #[arg(long, value_name = "MIN,MAX", allow_hyphen_values = true)]
     core_radius: Option<String>,
     /// Core profile: gaussian or bonnor-ebert (critical sphere) [default: gaussian].
     #[arg(long, value_name = "PROFILE")]
@@ -153,16 +153,16 @@ struct SynthArgs {
     #[arg(long, value_name = "LENGTH")]
     emission: Option<String>,
     /// Dust temperature for --emission, such as 15K [default: 15K].
-    #[arg(long, value_name = "TEMPERATURE")]
+    #[arg(long, value_name = "TEMPERATURE", allow_hyphen_values = true)]
     temperature: Option<String>,
     /// Unit of emission maps: MJy/sr or Jy/beam [default: MJy/sr].
     #[arg(long, value_name = "UNIT")]
     emission_unit: Option<String>,
     /// White-noise rms in the output unit (a number, or a quantity such as 1e20cm-2).
-    #[arg(long, value_name = "VALUE")]
+    #[arg(long, value_name = "VALUE", allow_hyphen_values = true)]
     noise: Option<String>,
     /// Seed of every random stream.
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     seed: Option<u64>,
     /// Replace existing outputs.
     #[arg(long)]
@@ -185,13 +185,18 @@ struct MapArgs {
     #[arg(long, value_name = "V|K", default_value = "V")]
     extinction_band: String,
     /// Beam FWHM instead of BMAJ/BMIN/BPA: `18.2arcsec`, or `major,minor,angle` such as `20arcsec,15arcsec,30deg`.
-    #[arg(long, value_name = "FWHM")]
+    #[arg(long, value_name = "FWHM", allow_hyphen_values = true)]
     beam: Option<String>,
     /// Wavelength or frequency of the map instead of the header's, such as `850um` or `353GHz`.
-    #[arg(long, value_name = "LENGTH|FREQ")]
+    #[arg(long, value_name = "LENGTH|FREQ", allow_hyphen_values = true)]
     wavelength: Option<String>,
     /// Noise in map units (a number, or a quantity such as `0.02MJy/sr`), instead of the estimate.
-    #[arg(long, value_name = "VALUE", conflicts_with = "noise_map")]
+    #[arg(
+        long,
+        value_name = "VALUE",
+        conflicts_with = "noise_map",
+        allow_hyphen_values = true
+    )]
     noise: Option<String>,
     /// A FITS map of the noise on the same grid, instead of the estimate. Its median sets
     /// sigma thresholds; the error columns use each structure's own pixels' noise.
@@ -204,37 +209,47 @@ struct MapArgs {
 struct PhysicsArgs {
     /// Distance to the cloud, such as 300pc (without it: no masses, sizes in angle only;
     /// column densities are still reported).
-    #[arg(long, value_name = "LENGTH")]
+    #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     distance: Option<String>,
     /// Dust temperature, such as 12K (for emission maps and for the gravitational state).
-    #[arg(long, value_name = "TEMPERATURE", conflicts_with = "temperature_map")]
+    #[arg(
+        long,
+        value_name = "TEMPERATURE",
+        conflicts_with = "temperature_map",
+        allow_hyphen_values = true
+    )]
     temperature: Option<String>,
     /// A FITS map of the dust temperature in K on the same grid.
     #[arg(long, value_name = "FILE")]
     temperature_map: Option<PathBuf>,
     /// Dust opacity per gram of gas at --opacity-frequency [default: 0.1cm2/g].
-    #[arg(long, value_name = "OPACITY")]
+    #[arg(long, value_name = "OPACITY", allow_hyphen_values = true)]
     opacity: Option<String>,
     /// Reference frequency of --opacity [default: 1THz].
-    #[arg(long, value_name = "FREQ")]
+    #[arg(long, value_name = "FREQ", allow_hyphen_values = true)]
     opacity_frequency: Option<String>,
     /// Dust emissivity index beta [default: 2].
-    #[arg(long, value_name = "BETA")]
+    #[arg(long, value_name = "BETA", allow_hyphen_values = true)]
     beta: Option<f64>,
     /// Mean molecular weight per H2 molecule [default: 2.8].
-    #[arg(long, value_name = "MU")]
+    #[arg(long, value_name = "MU", allow_hyphen_values = true)]
     mu_h2: Option<f64>,
     /// Mean molecular weight per free particle [default: 2.33].
-    #[arg(long, value_name = "MU")]
+    #[arg(long, value_name = "MU", allow_hyphen_values = true)]
     mu_particle: Option<f64>,
     /// N(H2) per magnitude of A_V [default: 9.4e20cm-2].
-    #[arg(long, value_name = "COLUMN")]
+    #[arg(long, value_name = "COLUMN", allow_hyphen_values = true)]
     column_per_av: Option<String>,
     /// A_V per magnitude of A_K [default: 8.93].
-    #[arg(long, value_name = "RATIO")]
+    #[arg(long, value_name = "RATIO", allow_hyphen_values = true)]
     av_per_ak: Option<f64>,
     /// Non-thermal velocity dispersion, such as 0.3km/s (enables the virial parameter).
-    #[arg(long, value_name = "SPEED", conflicts_with = "sigma_nt_map")]
+    #[arg(
+        long,
+        value_name = "SPEED",
+        conflicts_with = "sigma_nt_map",
+        allow_hyphen_values = true
+    )]
     sigma_nt: Option<String>,
     /// A FITS map of the non-thermal velocity dispersion in km/s on the same grid.
     #[arg(long, value_name = "FILE")]
@@ -251,7 +266,9 @@ impl PhysicsArgs {
             if v > 0.0 && v.is_finite() {
                 Ok(v)
             } else {
-                Err(Error::usage(format!("{what} must be positive.")))
+                Err(Error::usage(format!(
+                    "{what} must be positive and finite (it is {v}); give a positive value."
+                )))
             }
         };
         let mut c = Context::default();
@@ -363,10 +380,20 @@ struct StyleArgs {
     #[arg(long, default_value = "viridis", value_name = "NAME")]
     colormap: String,
     /// Figure width in pixels (PNG).
-    #[arg(long, default_value_t = 1600, value_name = "PX")]
+    #[arg(
+        long,
+        default_value_t = 1600,
+        value_name = "PX",
+        allow_hyphen_values = true
+    )]
     width: u32,
     /// Print resolution recorded in the PNG; text is 9 pt at this resolution.
-    #[arg(long, default_value_t = 300.0, value_name = "DPI")]
+    #[arg(
+        long,
+        default_value_t = 300.0,
+        value_name = "DPI",
+        allow_hyphen_values = true
+    )]
     dpi: f64,
     /// Also outline the top-level structures that have children.
     #[arg(long)]
@@ -433,7 +460,7 @@ impl StyleArgs {
         }
         if !(self.dpi > 10.0 && self.dpi < 5000.0) {
             return Err(Error::usage(format!(
-                "--dpi {} is outside 10 to 5000.",
+                "--dpi {} is outside 10 to 5000; give a resolution in that range, such as 300.",
                 self.dpi
             )));
         }
@@ -521,22 +548,32 @@ struct CompareArgs {
     #[arg(long, default_value = "mass_excess", value_name = "COLUMN")]
     mass_column: String,
     /// Fix the lower mass of the power-law tail, such as 1Msun [default: minimise the KS distance].
-    #[arg(long, value_name = "MASS")]
+    #[arg(long, value_name = "MASS", allow_hyphen_values = true)]
     mass_min: Option<String>,
     /// Bootstrap resamples for the tail's uncertainty.
-    #[arg(long, default_value_t = 500)]
+    #[arg(long, default_value_t = 500, allow_hyphen_values = true)]
     resamples: usize,
     /// Seed of the bootstrap.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = 1, allow_hyphen_values = true)]
     seed: u64,
     /// Width of the mass-function bins in dex.
-    #[arg(long, default_value_t = 0.2, value_name = "DEX")]
+    #[arg(
+        long,
+        default_value_t = 0.2,
+        value_name = "DEX",
+        allow_hyphen_values = true
+    )]
     bin_width: f64,
     /// Temperatures of the critical Bonnor-Ebert lines on the mass-size diagram.
     #[arg(long, default_value = "10K,20K", value_name = "T1,T2,...")]
     be_temperatures: String,
     /// Plot width in pixels.
-    #[arg(long, default_value_t = 1200, value_name = "PX")]
+    #[arg(
+        long,
+        default_value_t = 1200,
+        value_name = "PX",
+        allow_hyphen_values = true
+    )]
     width: u32,
     /// Replace existing outputs.
     #[arg(long)]
@@ -869,13 +906,19 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         let res = units::parse_quantity(r, &[Dimension::Length], "--common-resolution")
             .map_err(Error::usage)?
             .si;
+        // A length a beam can have: above a micro-parsec and below a kiloparsec.
+        if !(res > 1e-6 * units::PARSEC && res < 1e3 * units::PARSEC) {
+            return Err(Error::usage(format!(
+                "--common-resolution '{r}' is not a resolution a map can be smoothed to; give a positive length such as 0.05pc."
+            )));
+        }
         let d = a
             .physics
             .distance
             .as_deref()
             .ok_or_else(|| {
                 Error::usage(
-                    "--common-resolution needs --distance to turn the resolution into an angle.",
+                    "--common-resolution needs --distance to turn the resolution into an angle; give --distance, such as 300pc.",
                 )
             })
             .and_then(|d| {
@@ -1005,7 +1048,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
 fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     use cairn::compare;
     if a.runs.len() < 2 {
-        return Err(Error::usage("compare needs at least two runs."));
+        return Err(Error::usage(
+            "compare needs at least two runs; give two or more run folders (or their structures.csv files).",
+        ));
     }
     if !a.label.is_empty() && a.label.len() != a.runs.len() {
         return Err(Error::usage(format!(
@@ -1210,6 +1255,16 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         list.push(names::TREE_PNG.into());
         list.push(names::TREE_SVG.into());
     }
+    // The map (given or recorded in the run) must not be one of the figures' names.
+    let every: Vec<String> = [
+        names::OVERLAY_PNG,
+        names::OVERLAY_SVG,
+        names::TREE_PNG,
+        names::TREE_SVG,
+    ]
+    .map(String::from)
+    .to_vec();
+    output::refuse_inputs_as_outputs(&dir, &every, &[run.map.path.as_path()])?;
     let outputs = output::Outputs::plan(&dir, &list, a.force)?;
     output::write_bytes(&outputs.temp(names::OVERLAY_PNG), png)?;
     output::write_bytes(&outputs.temp(names::OVERLAY_SVG), svg.as_bytes())?;

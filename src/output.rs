@@ -51,19 +51,35 @@ pub fn remove_partial_outputs_on_interrupt() {
         // The lock is held until the process ends, so no plan starts or commits meanwhile.
         let live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
         // This process's temporary files in each plan's folder: the listed ones, and any a
-        // writer thread created after the list was read (same name pattern, same process).
-        let mark = format!(".partial-{}-", std::process::id());
-        for p in &live.plans {
-            for f in &p.files {
-                let _ = std::fs::remove_file(f);
-            }
-            if let Ok(entries) = std::fs::read_dir(&p.dir) {
-                for e in entries.flatten() {
-                    if e.file_name().to_string_lossy().contains(&mark) {
-                        let _ = std::fs::remove_file(e.path());
+        // writer thread created after the list was read (same name patterns, same process).
+        // Writer threads keep running meanwhile, so the folders are swept twice, the second
+        // time after a pause long enough for a file being opened to appear.
+        let pid = std::process::id();
+        let marks = [
+            format!(".partial-{pid}-"),
+            format!(".cairn-write-probe-{pid}"),
+        ];
+        let sweep = || {
+            for p in &live.plans {
+                for f in &p.files {
+                    let _ = std::fs::remove_file(f);
+                }
+                if let Ok(entries) = std::fs::read_dir(&p.dir) {
+                    for e in entries.flatten() {
+                        let name = e.file_name().to_string_lossy().into_owned();
+                        if marks.iter().any(|m| name.contains(m.as_str())) {
+                            let _ = std::fs::remove_file(e.path());
+                        }
                     }
                 }
             }
+        };
+        sweep();
+        if !live.plans.is_empty() {
+            std::thread::sleep(std::time::Duration::from_millis(50));
+            sweep();
+        }
+        for p in &live.plans {
             remove_created(&p.dir, p.created_dir.as_deref());
         }
         if live.plans.is_empty() {

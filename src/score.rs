@@ -571,13 +571,12 @@ pub fn score(
             }
             let temp = p.temperature_k;
             if temp.is_finite() && temp > 0.0 {
-                let cs = (crate::physics::constants::K_B * temp / (ctx.mu_p * M_H)).sqrt();
+                // The library's functions (checked against astropy in
+                // tests/physics_reference.rs), with the run's mean molecular weight.
+                let cs = crate::physics::dust::sound_speed_with(temp, ctx.mu_p);
                 if n_h2 > 0.0 {
-                    let lj = (std::f64::consts::PI * cs * cs / (G * rho)).sqrt();
-                    p.jeans_length_pc = lj / PC;
-                    p.jeans_mass = std::f64::consts::PI.powf(2.5) / 6.0 * cs.powi(3)
-                        / (G.powf(1.5) * rho.sqrt())
-                        / M_SUN;
+                    p.jeans_length_pc = crate::physics::dust::jeans_length_of(cs, rho) / PC;
+                    p.jeans_mass = crate::physics::dust::jeans_mass_of(cs, rho) / M_SUN;
                 }
                 p.be_mass = be_coefficient() * r_eff * cs * cs / G / M_SUN;
                 if m_kg > 0.0 {

@@ -911,7 +911,14 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         inputs.push(p);
     }
     crate::output::refuse_inputs_as_outputs(&o.output, &every, &inputs)?;
-    let mut outputs = Outputs::plan_replacing(&o.output, &names_list, &every, o.force)?;
+    // Files of an earlier run that this one does not write are its to remove only when the
+    // folder holds an earlier run (its record): a user's own file of such a name is left.
+    let earlier: &[String] = if o.output.join(names::RUN).is_file() {
+        &every
+    } else {
+        &[]
+    };
+    let mut outputs = Outputs::plan_replacing(&o.output, &names_list, earlier, o.force)?;
     let params = Params {
         floor: r.floor,
         prominence: r.prominence,
@@ -937,7 +944,12 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                     "--floor {k}sigma ({floor:.4e} with the noise {noise}) lies above the highest value of {file} ({max:.4e}); lower it or give the noise with --noise (cairn inspect suggests a floor)."
                 ),
                 None => format!(
-                    "the default floor, 3 sigma above the background ({floor:.4e} with the noise {noise}), lies above the highest value of {file} ({max:.4e}), so nothing in the map rises above its noise by that estimate; give --floor in map units, or the noise with --noise."
+                    "the default floor, 3 sigma above the background ({floor:.4e} with the noise {noise}), lies above the highest value of {file} ({max:.4e}), so nothing in the map rises above its noise by that estimate; give --floor in map units{}.",
+                    if matches!(o.noise, NoiseChoice::Estimate) {
+                        ", or the noise with --noise"
+                    } else {
+                        ", or check the noise you gave"
+                    }
                 ),
             }));
         }

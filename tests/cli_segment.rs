@@ -456,3 +456,80 @@ fn threshold_messages_quote_what_was_given() {
         "the default --min-area, one beam",
     );
 }
+
+/// Files that merely share a name with an output this run does not write are the user's
+/// unless the folder holds an earlier run (its run.json): --force leaves them alone.
+#[test]
+fn force_spares_same_named_files_outside_an_earlier_run() {
+    let d = tempfile::tempdir().unwrap();
+    std::fs::create_dir(d.path().join("run")).unwrap();
+    for name in ["overlay.png", "leaves-grown.fits", "notes.txt"] {
+        std::fs::write(d.path().join("run").join(name), b"mine").unwrap();
+    }
+    let m = fixture_map();
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            m.to_str().unwrap(),
+            "-o",
+            "run",
+            "--floor",
+            "4e21",
+            "--no-figure",
+            "--force",
+            "--quiet",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    for name in ["overlay.png", "leaves-grown.fits", "notes.txt"] {
+        assert_eq!(
+            std::fs::read(d.path().join("run").join(name)).unwrap(),
+            b"mine",
+            "{name}"
+        );
+    }
+}
+
+/// draw never writes a figure over the map it draws (given with --map or recorded in the
+/// run), even with --force.
+#[test]
+fn draw_spares_its_map() {
+    let d = tempfile::tempdir().unwrap();
+    let m = fixture_map();
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            m.to_str().unwrap(),
+            "-o",
+            "run",
+            "--floor",
+            "4e21",
+            "--no-figure",
+            "--quiet",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    std::fs::create_dir(d.path().join("figs")).unwrap();
+    let original = std::fs::read(&m).unwrap();
+    std::fs::write(d.path().join("figs/overlay.png"), &original).unwrap();
+    refused(
+        d.path(),
+        &[
+            "draw",
+            "run",
+            "--map",
+            "figs/overlay.png",
+            "-o",
+            "figs",
+            "--force",
+            "--quiet",
+        ],
+        "is an input of this run",
+    );
+    assert_eq!(
+        std::fs::read(d.path().join("figs/overlay.png")).unwrap(),
+        original
+    );
+}

@@ -88,15 +88,24 @@ pub fn dust_mass(
 /// Isothermal sound speed c_s = (k_B T / (mu_p m_H))^(1/2) [m s^-1] (mu_p = 2.33, Kauffmann
 /// et al. 2008).
 pub fn sound_speed(t_k: f64) -> f64 {
-    (K_B * t_k / (MU_P * M_H)).sqrt()
+    sound_speed_with(t_k, MU_P)
+}
+
+/// [`sound_speed`] with the mean molecular weight per particle `mu_p` given.
+pub fn sound_speed_with(t_k: f64, mu_p: f64) -> f64 {
+    (K_B * t_k / (mu_p * M_H)).sqrt()
 }
 
 /// Jeans length lambda_J = (pi c_s^2 / (G rho))^(1/2) \[m\] at gas temperature `t_k` and H2
 /// number density `n_h2_m3` [m^-3]; c_s uses mu_p = 2.33 and rho = mu_H2 m_H n(H2) uses
 /// mu_H2 = 2.8 (Kauffmann et al. 2008).
 pub fn jeans_length(t_k: f64, n_h2_m3: f64) -> f64 {
-    let cs = sound_speed(t_k);
-    let rho = MU_H2 * M_H * n_h2_m3;
+    jeans_length_of(sound_speed(t_k), MU_H2 * M_H * n_h2_m3)
+}
+
+/// Jeans length (pi c_s^2 / (G rho))^(1/2) \[m\] from the sound speed `cs` \[m s^-1\] and the
+/// mass density `rho` \[kg m^-3\] (what the catalogue uses, with the run's mean molecular weights).
+pub fn jeans_length_of(cs: f64, rho: f64) -> f64 {
     (std::f64::consts::PI * cs * cs / (G * rho)).sqrt()
 }
 
@@ -104,8 +113,11 @@ pub fn jeans_length(t_k: f64, n_h2_m3: f64) -> f64 {
 /// diameter lambda_J; common practice, e.g. Stahler & Palla 2004, cited from memory), with the same
 /// conventions as [`jeans_length`].
 pub fn jeans_mass(t_k: f64, n_h2_m3: f64) -> f64 {
-    let cs = sound_speed(t_k);
-    let rho = MU_H2 * M_H * n_h2_m3;
+    jeans_mass_of(sound_speed(t_k), MU_H2 * M_H * n_h2_m3)
+}
+
+/// [`jeans_mass`] from the sound speed `cs` \[m s^-1\] and the mass density `rho` \[kg m^-3\].
+pub fn jeans_mass_of(cs: f64, rho: f64) -> f64 {
     std::f64::consts::PI.powf(2.5) / 6.0 * cs.powi(3) / (G.powf(1.5) * rho.sqrt())
 }
 
