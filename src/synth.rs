@@ -344,7 +344,7 @@ fn pixel_count(spec: &SynthSpec) -> u128 {
     spec.nx as u128 * spec.ny as u128
 }
 
-/// Estimated peak working memory [bytes] of [`generate`] for `spec`.
+/// Estimated peak working memory \[bytes\] of [`generate`] for `spec`.
 pub fn memory_needed(spec: &SynthSpec) -> u128 {
     let per_pixel = if spec.background.is_some() || spec.beam_fwhm_arcsec > 0.0 {
         BYTES_PER_PIXEL_FFT
