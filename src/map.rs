@@ -69,6 +69,24 @@ impl Beam {
             * (self.minor_deg * units::DEG)
     }
 
+    /// The beam with FWHM `first` along position angle `pa_deg` and `second` across it (all in
+    /// degrees). Given the narrow axis first, the major axis lies 90 degrees from `pa_deg`.
+    pub fn from_axes(first: f64, second: f64, pa_deg: f64) -> Beam {
+        if second > first {
+            Beam {
+                major_deg: second,
+                minor_deg: first,
+                pa_deg: (pa_deg + 90.0).rem_euclid(180.0),
+            }
+        } else {
+            Beam {
+                major_deg: first,
+                minor_deg: second,
+                pa_deg,
+            }
+        }
+    }
+
     /// Parses `--beam MAJ[,MIN[,PA]]` (for example `18.2arcsec` or `20arcsec,15arcsec,30deg`).
     pub fn parse(text: &str) -> std::result::Result<Beam, String> {
         let parts: Vec<&str> = text.split(',').collect();
@@ -89,20 +107,7 @@ impl Beam {
         } else {
             0.0
         };
-        // Given the narrow axis first, the major axis lies 90 degrees from the angle given.
-        let beam = if minor > major {
-            Beam {
-                major_deg: minor,
-                minor_deg: major,
-                pa_deg: (pa + 90.0).rem_euclid(180.0),
-            }
-        } else {
-            Beam {
-                major_deg: major,
-                minor_deg: minor,
-                pa_deg: pa,
-            }
-        };
+        let beam = Beam::from_axes(major, minor, pa);
         beam.check()
             .map_err(|e| format!("--beam '{text}': {e}; give the FWHM, such as 18.2arcsec."))?;
         Ok(beam)
@@ -791,20 +796,7 @@ pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String>
     match found {
         None => Ok(None),
         Some((a, b, pa)) => {
-            // BMIN larger than BMAJ: the major axis lies 90 degrees from BPA.
-            let beam = if b > a {
-                Beam {
-                    major_deg: b,
-                    minor_deg: a,
-                    pa_deg: (pa + 90.0).rem_euclid(180.0),
-                }
-            } else {
-                Beam {
-                    major_deg: a,
-                    minor_deg: b,
-                    pa_deg: pa,
-                }
-            };
+            let beam = Beam::from_axes(a, b, pa);
             beam.check()
                 .map(|_| Some(beam))
                 .map_err(|e| format!("its header gives an unusable beam: {e}"))

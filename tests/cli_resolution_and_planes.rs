@@ -6,38 +6,21 @@
 //! of each zero-based plane, stored in fixtures/fits/spectral.json with the cubes themselves by
 //! tests/oracle/fits_astropy.py.
 
+#[path = "common/cli.rs"]
+mod cli;
 mod common;
 
 use std::path::{Path, PathBuf};
-use std::process::Command;
 
 use cairn::header::{Header, Value};
 use cairn::map::{self, LoadOptions};
+use cli::{Outcome, listing};
 use common::{assert_close, fixture_json, fixture_path, nums};
-
-struct Outcome {
-    code: i32,
-    stdout: String,
-    stderr: String,
-}
 
 /// Runs cairn in `dir` with its address space limited to 3 GB, so that a runaway allocation
 /// fails the test instead of exhausting the machine.
 fn cairn(args: &[&str], dir: &Path) -> Outcome {
-    let exe = env!("CARGO_BIN_EXE_cairn");
-    let out = Command::new("sh")
-        .arg("-c")
-        .arg("ulimit -v 3000000 && exec \"$0\" \"$@\"")
-        .arg(exe)
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("run cairn");
-    Outcome {
-        code: out.status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    }
+    cli::cairn_limited(args, dir, 3_000_000)
 }
 
 /// The map of the review: 64 x 64 pixels of 6", an 18" beam, Jy/beam, a few Gaussian clumps.
@@ -78,15 +61,6 @@ fn write_map(dir: &Path, name: &str, n: usize) -> PathBuf {
     let p = dir.join(name);
     cairn::fits_write::write_image_f32(&p, data.view(), &h, false).unwrap();
     p
-}
-
-fn listing(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    v.sort();
-    v
 }
 
 /// Exit 2, one sentence on stderr containing each of `says`, no panic, nothing written.

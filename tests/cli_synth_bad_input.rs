@@ -1,57 +1,14 @@
 //! Bad input to `cairn synth`: one sentence naming the option and the fix, exit code 2, no
 //! panic, no abort for want of memory, and no output folder or file left behind.
 
+#[path = "common/cli.rs"]
+mod cli;
+
 use std::path::Path;
-use std::process::Command;
 
-struct Outcome {
-    code: i32,
-    stderr: String,
-    stdout: String,
-}
-
-fn outcome(out: std::process::Output) -> Outcome {
-    Outcome {
-        code: out.status.code().unwrap_or(-1),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-    }
-}
-
-fn cairn(args: &[&str], dir: &Path) -> Outcome {
-    outcome(
-        Command::new(env!("CARGO_BIN_EXE_cairn"))
-            .args(args)
-            .current_dir(dir)
-            .output()
-            .expect("run cairn"),
-    )
-}
-
-/// Runs cairn with its address space limited to `kb` kilobytes (`ulimit -v`), so that a map
-/// too large for the memory is refused whatever the memory of the machine running the tests.
 #[cfg(unix)]
-fn cairn_limited(args: &[&str], dir: &Path, kb: u64) -> Outcome {
-    outcome(
-        Command::new("sh")
-            .arg("-c")
-            .arg(format!("ulimit -v {kb} && exec \"$0\" \"$@\""))
-            .arg(env!("CARGO_BIN_EXE_cairn"))
-            .args(args)
-            .current_dir(dir)
-            .output()
-            .expect("run cairn under sh"),
-    )
-}
-
-fn listing(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    v.sort();
-    v
-}
+use cli::cairn_limited;
+use cli::{Outcome, cairn, listing};
 
 /// The rule for bad input: exit 2, one line on stderr naming `names` and saying `says`, no
 /// panic, nothing on stdout, and nothing new in the folder (no output folder left behind).

@@ -1,0 +1,57 @@
+//! Running the `cairn` binary from integration tests: its exit code and output, optionally
+//! with its address space limited, and the listing of a folder (to check nothing was left).
+#![allow(dead_code)]
+
+use std::path::Path;
+use std::process::Command;
+
+/// What a run of the binary gave.
+pub struct Outcome {
+    pub code: i32,
+    pub stdout: String,
+    pub stderr: String,
+}
+
+fn outcome(out: std::process::Output) -> Outcome {
+    Outcome {
+        code: out.status.code().unwrap_or(-1),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+    }
+}
+
+/// Runs cairn with `args` in `dir`.
+pub fn cairn(args: &[&str], dir: &Path) -> Outcome {
+    outcome(
+        Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(args)
+            .current_dir(dir)
+            .output()
+            .expect("run cairn"),
+    )
+}
+
+/// Runs cairn with its address space limited to `kb` kilobytes (`ulimit -v`, through `sh`),
+/// so that a runaway allocation fails the test instead of exhausting the machine.
+pub fn cairn_limited(args: &[&str], dir: &Path, kb: u64) -> Outcome {
+    outcome(
+        Command::new("sh")
+            .arg("-c")
+            .arg(format!("ulimit -v {kb} && exec \"$0\" \"$@\""))
+            .arg(env!("CARGO_BIN_EXE_cairn"))
+            .args(args)
+            .current_dir(dir)
+            .output()
+            .expect("run cairn under sh"),
+    )
+}
+
+/// The names in `dir`, sorted.
+pub fn listing(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    v.sort();
+    v
+}
