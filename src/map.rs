@@ -806,23 +806,25 @@ pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String>
 
 /// Metres per unit of CUNITn on a WAVE axis, and Hz per unit on a FREQ axis (an empty or
 /// unknown unit counts as the FITS default, m or Hz).
-fn spectral_unit_factor(freq: bool, cunit: &str) -> f64 {
+fn spectral_unit_factor(freq: bool, cunit: &str) -> Option<f64> {
     if freq {
         match cunit {
-            "THz" => 1e12,
-            "GHz" => 1e9,
-            "MHz" => 1e6,
-            "kHz" => 1e3,
-            _ => 1.0,
+            "" | "Hz" => Some(1.0),
+            "THz" => Some(1e12),
+            "GHz" => Some(1e9),
+            "MHz" => Some(1e6),
+            "kHz" => Some(1e3),
+            _ => None,
         }
     } else {
         match cunit {
-            "um" => 1e-6,
-            "mm" => 1e-3,
-            "cm" => 1e-2,
-            "nm" => 1e-9,
-            "Angstrom" => 1e-10,
-            _ => 1.0,
+            "" | "m" => Some(1.0),
+            "um" => Some(1e-6),
+            "mm" => Some(1e-3),
+            "cm" => Some(1e-2),
+            "nm" => Some(1e-9),
+            "Angstrom" => Some(1e-10),
+            _ => None,
         }
     }
 }
@@ -913,9 +915,15 @@ pub fn plane_wavelength(
         .unwrap_or("")
         .trim()
         .to_string();
+    let Some(factor) = spectral_unit_factor(freq, &cunit) else {
+        warnings.push(format!(
+            "CUNIT{axis} = '{cunit}' on the spectral axis is not a unit cairn reads, so the wavelength is unknown; give --wavelength"
+        ));
+        return Some(None);
+    };
     let value = value
         .filter(|v| v.is_finite() && *v > 0.0)
-        .map(|v| v * spectral_unit_factor(freq, &cunit));
+        .map(|v| v * factor);
     let Some(v) = value else {
         warnings.push(format!(
             "the wavelength of plane {plane} along axis {axis} (CTYPE{axis} = '{ctype}') is not known to cairn; give --wavelength"
@@ -952,11 +960,19 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
             .unwrap_or("")
             .trim()
             .to_string();
-        if ctype.starts_with("FREQ") {
-            return Some(units::C_LIGHT / (v * spectral_unit_factor(true, &cunit)));
-        }
-        if ctype.starts_with("WAVE") {
-            return Some(v * spectral_unit_factor(false, &cunit));
+        let (freq, wave) = (ctype.starts_with("FREQ"), ctype.starts_with("WAVE"));
+        if freq || wave {
+            let Some(factor) = spectral_unit_factor(freq, &cunit) else {
+                warnings.push(format!(
+                    "CUNIT{k} = '{cunit}' on the spectral axis is not a unit cairn reads, so the wavelength is unknown; give --wavelength"
+                ));
+                return None;
+            };
+            return Some(if freq {
+                units::C_LIGHT / (v * factor)
+            } else {
+                v * factor
+            });
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {
@@ -1044,6 +1060,18 @@ mod tests {
         let h = Header::parse(&format!("{:<80}", "WAVELEN =                 0.5"));
         assert!(wavelength_from_header(&h, &mut w).is_none());
         assert_eq!(w.len(), 1);
+        // A spectral axis in a unit cairn does not read gives no wavelength, and says so
+        // (rather than reading the number as Hz).
+        let h = Header::parse(
+            &[
+                format!("{:<80}", "CTYPE3  = 'FREQ    '"),
+                format!("{:<80}", "CRVAL3  =                353.0"),
+                format!("{:<80}", "CUNIT3  = 'furlong '"),
+            ]
+            .concat(),
+        );
+        assert!(wavelength_from_header(&h, &mut w).is_none());
+        assert!(w.last().unwrap().contains("CUNIT3 = 'furlong'"), "{w:?}");
     }
 
     fn cube_header(extra: &[&str]) -> Header {
