@@ -205,6 +205,16 @@ fn data_type(bitpix: i64) -> String {
 
 /// The noise used for `choice` on `map`: (sigma in map units, description).
 pub fn noise_for(map: &Map, choice: &NoiseChoice) -> Result<(Option<f64>, String)> {
+    noise_for_with(map, choice, None)
+}
+
+/// [`noise_for`], with the noise map of a [`NoiseChoice::Map`] already loaded (`loaded`), so
+/// that a caller who needs the map itself reads it once.
+pub fn noise_for_with(
+    map: &Map,
+    choice: &NoiseChoice,
+    loaded: Option<ndarray::ArrayView2<f32>>,
+) -> Result<(Option<f64>, String)> {
     match choice {
         NoiseChoice::Value(v) => {
             if !(*v > 0.0 && v.is_finite()) {
@@ -215,8 +225,15 @@ pub fn noise_for(map: &Map, choice: &NoiseChoice) -> Result<(Option<f64>, String
             Ok((Some(*v), "--noise".into()))
         }
         NoiseChoice::Map(path) => {
-            let nm = load_noise_map(map, path)?;
-            let mut vals = noise::finite_sample(nm.view());
+            let owned;
+            let nm = match loaded {
+                Some(v) => v,
+                None => {
+                    owned = load_noise_map(map, path)?;
+                    owned.view()
+                }
+            };
+            let mut vals = noise::finite_sample(nm);
             if vals.is_empty() {
                 return Err(Error::input(
                     path,
@@ -253,7 +270,7 @@ pub fn noise_box_px(map: &Map) -> usize {
 
 /// Loads a noise map and checks it lies on the same grid as `map`.
 pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
-    load_aux_map(map, path, "noise map", "noise values")
+    load_aux_map(map, path, "noise map", "noise values", false)
 }
 
 /// Angle in degrees between two (longitude, latitude) positions in degrees (haversine).
@@ -264,8 +281,9 @@ fn separation_deg(a: (f64, f64), b: (f64, f64)) -> f64 {
     (2.0 * h.sqrt().min(1.0).asin()).to_degrees()
 }
 
-/// Loads a map of a positive quantity beside `map` (`what`: "noise map", "temperature map",
-/// ...; `values`: what its values are, for messages) and checks that it lies on the same grid:
+/// Loads a map of a positive quantity (or, with `zero_allowed`, one that may be zero) beside
+/// `map` (`what`: "noise map", "temperature map", ...; `values`: what its values are, for
+/// messages) and checks that it lies on the same grid:
 /// the same shape and, when both carry a celestial WCS, the same sky positions at the
 /// corners and the centre (within a tenth of a pixel).
 pub fn load_aux_map(
@@ -273,6 +291,7 @@ pub fn load_aux_map(
     path: &Path,
     what: &str,
     values: &str,
+    zero_allowed: bool,
 ) -> Result<ndarray::Array2<f32>> {
     let opts = LoadOptions {
         require_unit: false,
@@ -319,9 +338,6 @@ pub fn load_aux_map(
             }
         }
     }
-    // A velocity dispersion of zero is a purely thermal region; noise and temperature must
-    // be positive.
-    let zero_allowed = what.starts_with("velocity");
     if nm
         .data
         .iter()

@@ -290,6 +290,7 @@ impl PhysicsArgs {
                 p,
                 "temperature map",
                 "temperatures",
+                false,
             )?));
         }
         if let Some(k) = &self.opacity {
@@ -351,8 +352,14 @@ impl PhysicsArgs {
             c.sigma_nt = Some(Field::Uniform(v));
         }
         if let Some(p) = &self.sigma_nt_map {
-            let m =
-                inspect::load_aux_map(map, p, "velocity-dispersion map", "velocity dispersions")?;
+            // A dispersion of zero is a purely thermal region.
+            let m = inspect::load_aux_map(
+                map,
+                p,
+                "velocity-dispersion map",
+                "velocity dispersions",
+                true,
+            )?;
             c.sigma_nt = Some(Field::Map(m.mapv(|v| v * 1e3)));
         }
         Ok(c)
@@ -946,10 +953,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             )));
         }
     };
-    // The auxiliary maps must not be among the files the run replaces (the map itself is
-    // checked by the library).
+    // The auxiliary maps must not be among the files the run replaces (the map and the noise
+    // map are checked by the library).
     let aux: Vec<&std::path::Path> = [
-        a.read.noise_map.as_deref(),
         a.physics.temperature_map.as_deref(),
         a.physics.sigma_nt_map.as_deref(),
     ]

@@ -151,13 +151,22 @@ pub struct Resolved {
 
 /// Resolves thresholds against the map's noise, beam and pixel size.
 pub fn resolve(map: &Map, o: &SegmentOptions) -> Result<Resolved> {
+    resolve_with(map, o, None)
+}
+
+/// [`resolve`], with the noise map of a `--noise-map` run already loaded.
+fn resolve_with(
+    map: &Map,
+    o: &SegmentOptions,
+    noise_map: Option<ndarray::ArrayView2<f32>>,
+) -> Result<Resolved> {
     if !map.data.iter().any(|v| v.is_finite()) {
         return Err(Error::input(
             &map.path,
             "has no pixel with a value (every pixel is missing: NaN or BLANK); check that this is the right HDU (--hdu) or plane (--plane).",
         ));
     }
-    let (sigma, source) = inspect::noise_for(map, &o.noise)?;
+    let (sigma, source) = inspect::noise_for_with(map, &o.noise, noise_map)?;
     // The background level (clipped median) is needed only for the default floor.
     let background = if o.floor.is_none() {
         noise::clipped_stats(map.data.view()).ok().map(|c| c.median)
@@ -872,12 +881,13 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             *h = Some(std::thread::spawn(move || sha256_file(&path)));
         }
     };
-    let r = resolve(map, o)?;
-    // A noise map also gives each structure its own noise in the error columns.
+    // A noise map gives the sigma thresholds its median and each structure its own noise in
+    // the error columns; it is read once for both.
     let noise_map = match &o.noise {
         NoiseChoice::Map(p) => Some(inspect::load_noise_map(map, p)?),
         _ => None,
     };
+    let r = resolve_with(map, o, noise_map.as_ref().map(|m| m.view()))?;
     let t_resolve = t0.elapsed().as_secs_f64();
     let mut names_list: Vec<String> = [
         names::CSV,
