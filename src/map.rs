@@ -938,41 +938,21 @@ pub fn plane_wavelength(
     Some(Some(if freq { units::C_LIGHT / v } else { v }))
 }
 
-/// Reads the wavelength in metres from the header: RESTFRQ/RESTFREQ/FREQ (Hz), a length-1
-/// spectral axis with CTYPEn FREQ or WAVE, or WAVELEN/WAVELNTH with a unit in its comment.
+/// Reads the wavelength in metres from the header: a length-1 spectral axis with CTYPEn FREQ
+/// or WAVE (its value at its one pixel, p = 1, as [`plane_wavelength`] works it out, so a
+/// CRPIXn other than 1 counts as it does in astropy.wcs), else RESTFRQ/RESTFREQ/FREQ/OBSFREQ
+/// (Hz), else WAVELEN/WAVELNTH with a unit in its comment. The axis comes first, as for the
+/// planes of a cube: it is where the map was observed, while a rest frequency belongs to a
+/// spectral line.
 pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
+    for k in 3..=4 {
+        if let Some(w) = plane_wavelength(h, k, 0, warnings) {
+            return w;
+        }
+    }
     for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
         if let Some(f) = h.get_f64(key).filter(|f| *f > 0.0) {
             return Some(units::C_LIGHT / f);
-        }
-    }
-    for k in 3..=4 {
-        let ctype = h
-            .get_str(&format!("CTYPE{k}"))
-            .unwrap_or("")
-            .trim()
-            .to_ascii_uppercase();
-        let Some(v) = h.get_f64(&format!("CRVAL{k}")).filter(|v| *v > 0.0) else {
-            continue;
-        };
-        let cunit = h
-            .get_str(&format!("CUNIT{k}"))
-            .unwrap_or("")
-            .trim()
-            .to_string();
-        let (freq, wave) = (ctype.starts_with("FREQ"), ctype.starts_with("WAVE"));
-        if freq || wave {
-            let Some(factor) = spectral_unit_factor(freq, &cunit) else {
-                warnings.push(format!(
-                    "CUNIT{k} = '{cunit}' on the spectral axis is not a unit cairn reads, so the wavelength is unknown; give --wavelength"
-                ));
-                return None;
-            };
-            return Some(if freq {
-                units::C_LIGHT / (v * factor)
-            } else {
-                v * factor
-            });
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {

@@ -222,6 +222,45 @@ fn each_plane_of_a_spectral_cube_has_the_wavelength_astropy_gives() {
 }
 
 #[test]
+fn a_squeezed_spectral_axis_gives_its_value_at_its_one_pixel_as_astropy_does() {
+    // Maps with a length-1 FREQ or WAVE axis whose pixel is not the reference pixel
+    // (CRPIX3 2 and 0): astropy 8.0.2 WCS.spectral.pixel_to_world(0) gives 333 GHz (not
+    // CRVAL3's 353 GHz, nor the RESTFRQ) and 851 um (the CD matrix's default CD3_3 of 1, not
+    // CDELT3, which a CD matrix overrides).
+    let v = fixture_json("fits/spectral.json");
+    assert_eq!(v["astropy"], "8.0.2");
+    let c = cairn::units::C_LIGHT;
+    for (name, by_frequency) in [("squeeze_freq.fits", true), ("squeeze_wave.fits", false)] {
+        let r = &v["files"][name];
+        let reference = if by_frequency {
+            c / nums(&r["frequency_hz"])[0]
+        } else {
+            nums(&r["wavelength_m"])[0]
+        };
+        let m = map::load(
+            &fixture_path(&format!("fits/{name}")),
+            &LoadOptions::default(),
+        )
+        .unwrap();
+        assert_eq!(m.plane, None, "{name}: one plane, squeezed");
+        let what = format!("{name} (astropy 8.0.2 WCS.spectral.pixel_to_world(0))");
+        assert_close(
+            m.wavelength_m.unwrap_or(f64::NAN),
+            reference,
+            1e-12,
+            0.0,
+            &what,
+        );
+        assert!(
+            m.warnings.iter().all(|w| !w.contains("wavelength")),
+            "{what}"
+        );
+    }
+    let f = nums(&v["files"]["squeeze_freq.fits"]["frequency_hz"]);
+    assert_eq!(f, vec![3.33e11]);
+}
+
+#[test]
 fn inspect_reports_each_planes_frequency() {
     let d = tempfile::tempdir().unwrap();
     let cube = fixture_path("fits/cube_freq.fits");

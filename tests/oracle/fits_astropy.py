@@ -111,8 +111,9 @@ write_json(os.path.join(OUT, "values.json"), {"astropy": __import__("astropy")._
 # Cubes whose planes lie at different frequencies or wavelengths, and the value astropy.wcs
 # gives for each plane (WCS(header).spectral.pixel_to_world(plane), zero-based plane), in
 # fixtures/fits/spectral.json: a linear FREQ axis in Hz (the case of a wide-band cube), a
-# WAVE axis in um with PC3_3 and CDELT3 and a RESTFRQ that must not be used, and a FREQ-LOG
-# axis in GHz with a CD matrix.
+# WAVE axis in um with PC3_3 and CDELT3 and a RESTFRQ that must not be used, a FREQ-LOG
+# axis in GHz with a CD matrix, and two maps whose spectral axis has one pixel (squeezed on
+# loading) away from the reference pixel.
 from astropy import units as u  # noqa: E402
 from astropy.wcs import WCS  # noqa: E402
 
@@ -144,6 +145,19 @@ spectral_cubes = {
     "cube_freqlog.fits": (
         {"CTYPE3": "FREQ-LOG", "CUNIT3": "GHz", "CRVAL3": 600.0, "CD3_3": 150.0, "CRPIX3": 1.0},
         3,
+        True,
+    ),
+    # Maps with a length-1 spectral axis whose one pixel is not the reference pixel: the value
+    # at p = 1, not CRVAL3 (and not the RESTFRQ).
+    "squeeze_freq.fits": (
+        {"CTYPE3": "FREQ", "CUNIT3": "GHz", "CRVAL3": 353.0, "CDELT3": 20.0, "CRPIX3": 2.0,
+         "RESTFRQ": 3.45e11},
+        1,
+        False,
+    ),
+    "squeeze_wave.fits": (
+        {"CTYPE3": "WAVE", "CUNIT3": "um", "CRVAL3": 850.0, "CDELT3": -50.0, "CRPIX3": 0.0},
+        1,
         True,
     ),
 }
