@@ -173,7 +173,7 @@ fn write_image<T: Pixel>(
     };
     let result = (|| {
         let head = header_bytes(header, T::BITPIX, nx, ny, &shown)?;
-        let mut f = std::fs::File::create(&tmp).map_err(|e| fail("creating the file", &e))?;
+        let mut f = crate::output::create_file(&tmp).map_err(|e| fail("creating the file", &e))?;
         f.write_all(&head)
             .map_err(|e| fail("writing the header", &e))?;
         // Straight from the array when it is contiguous, else through a copy.
@@ -198,7 +198,10 @@ fn write_image<T: Pixel>(
         f.write_all(&vec![0u8; total.div_ceil(BLOCK) * BLOCK - total])
             .map_err(|e| fail("writing the pixels", &e))?;
         drop(f);
-        std::fs::rename(&tmp, path).map_err(|e| fail("renaming the temporary file", &e))
+        // Under the interrupt handler's lock, as the file was created: an interrupt removes
+        // either this temporary or the file it becomes.
+        crate::output::creating(|| std::fs::rename(&tmp, path))
+            .map_err(|e| fail("renaming the temporary file", &e))
     })();
     if result.is_err() {
         let _ = std::fs::remove_file(&tmp);

@@ -48,36 +48,29 @@ static LIVE: std::sync::Mutex<Live> = std::sync::Mutex::new(Live {
 /// the binary.
 pub fn remove_partial_outputs_on_interrupt() {
     let _ = ctrlc::set_handler(|| {
-        // The lock is held until the process ends, so no plan starts or commits meanwhile.
+        // The lock is held until the process ends, so no plan starts or commits meanwhile,
+        // and no temporary file is created: every one is created under this lock
+        // ([`create_file`], [`creating`]), so those that exist now are all there will be.
         let live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
-        // This process's temporary files in each plan's folder: the listed ones, and any a
-        // writer thread created after the list was read (same name patterns, same process).
-        // Writer threads keep running meanwhile, so the folders are swept twice, the second
-        // time after a pause long enough for a file being opened to appear.
+        // This process's temporary files in each plan's folder: the listed ones, and those a
+        // writer made under other names of the same patterns (a FITS writer's own temporary).
         let pid = std::process::id();
         let marks = [
             format!(".partial-{pid}-"),
             format!(".cairn-write-probe-{pid}"),
         ];
-        let sweep = || {
-            for p in &live.plans {
-                for f in &p.files {
-                    let _ = std::fs::remove_file(f);
-                }
-                if let Ok(entries) = std::fs::read_dir(&p.dir) {
-                    for e in entries.flatten() {
-                        let name = e.file_name().to_string_lossy().into_owned();
-                        if marks.iter().any(|m| name.contains(m.as_str())) {
-                            let _ = std::fs::remove_file(e.path());
-                        }
+        for p in &live.plans {
+            for f in &p.files {
+                let _ = std::fs::remove_file(f);
+            }
+            if let Ok(entries) = std::fs::read_dir(&p.dir) {
+                for e in entries.flatten() {
+                    let name = e.file_name().to_string_lossy().into_owned();
+                    if marks.iter().any(|m| name.contains(m.as_str())) {
+                        let _ = std::fs::remove_file(e.path());
                     }
                 }
             }
-        };
-        sweep();
-        if !live.plans.is_empty() {
-            std::thread::sleep(std::time::Duration::from_millis(50));
-            sweep();
         }
         for p in &live.plans {
             remove_created(&p.dir, p.created_dir.as_deref());
@@ -89,6 +82,21 @@ pub fn remove_partial_outputs_on_interrupt() {
         }
         std::process::exit(130);
     });
+}
+
+/// Runs `create`, which makes a temporary output file, under the lock the interrupt handler
+/// takes ([`remove_partial_outputs_on_interrupt`]): a file is then either made before an
+/// interrupt, and removed by it, or never made. For writers that create their files
+/// themselves (CFITSIO); others use [`create_file`].
+pub(crate) fn creating<R>(create: impl FnOnce() -> R) -> R {
+    let _live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
+    create()
+}
+
+/// Creates (or truncates) the temporary output file `path` for writing, under the interrupt
+/// handler's lock (see [`creating`]).
+pub(crate) fn create_file(path: &Path) -> std::io::Result<std::fs::File> {
+    creating(|| std::fs::File::create(path))
 }
 
 /// Refuses, before anything is written, a run whose output `name` in `dir` is one of its own
@@ -219,7 +227,7 @@ impl Outputs {
         }
         // Probe that the folder is writable before any real work.
         let probe = dir.join(format!(".cairn-write-probe-{}", std::process::id()));
-        std::fs::write(&probe, b"").map_err(|e| {
+        create_file(&probe).map_err(|e| {
             Error::output(
                 dir,
                 format!("is not writable ({e}); choose a writable output folder with -o."),
@@ -323,7 +331,9 @@ fn remove_created(dir: &Path, top: Option<&Path>) {
 
 /// Writes `bytes` to `path` (used for the temporary files of an [`Outputs`]).
 pub fn write_bytes(path: &Path, bytes: &[u8]) -> Result<()> {
-    std::fs::write(path, bytes)
+    use std::io::Write;
+    create_file(path)
+        .and_then(|mut f| f.write_all(bytes))
         .map_err(|e| Error::output(path, format!("cannot be written ({e}).")))
 }
 

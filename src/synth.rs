@@ -1238,7 +1238,7 @@ fn make_header(spec: &SynthSpec, unit: &str) -> Header {
 
 /// Writes the truth table as CSV: a commented line naming the units, then a column header.
 pub fn write_truth_csv(path: &Path, cores: &[TruthCore]) -> std::io::Result<()> {
-    let mut out = std::io::BufWriter::new(std::fs::File::create(path)?);
+    let mut out = std::io::BufWriter::new(crate::output::create_file(path)?);
     let unit = cores
         .first()
         .map(|c| c.peak_unit.as_str())

@@ -461,8 +461,8 @@ impl Table {
             move |e| Error::output(path, format!("cannot be written ({e})."))
         }
         let (fail_c, fail_v) = (failed(csv), failed(votable));
-        let mut fc = std::fs::File::create(csv).map_err(&fail_c)?;
-        let mut fv = std::fs::File::create(votable).map_err(&fail_v)?;
+        let mut fc = crate::output::create_file(csv).map_err(&fail_c)?;
+        let mut fv = crate::output::create_file(votable).map_err(&fail_v)?;
         fc.write_all(self.csv_header().as_bytes())
             .map_err(&fail_c)?;
         fv.write_all(self.votable_header().as_bytes())
@@ -633,7 +633,8 @@ impl Table {
         let fail = |e: fitsio::errors::Error| {
             Error::output(path, format!("cannot be written as FITS ({e})."))
         };
-        let mut f = fitsio::FitsFile::create(path).open().map_err(fail)?;
+        let mut f =
+            crate::output::creating(|| fitsio::FitsFile::create(path).open()).map_err(fail)?;
         let mut descs = Vec::new();
         for c in &self.columns {
             let mut d = ColumnDescription::new(c.name.clone());

@@ -398,7 +398,7 @@ fn a_folder_in_place_of_an_output_is_refused_up_front() {
 fn an_interrupted_run_leaves_no_partial_output() {
     let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
     let mut interrupted = 0;
-    for delay_ms in [20u64, 60, 120, 200] {
+    for delay_ms in [10u64, 20, 40, 60, 90, 120, 160, 200, 260] {
         let d = tempfile::tempdir().unwrap();
         let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
             .args(["segment", map.to_str().unwrap(), "-o", "run", "--quiet"])
