@@ -548,9 +548,31 @@ pub fn summary_table(c: &Comparison) -> Table {
         g(&|x| x.lognormal.as_ref().map(|l| l.mu).unwrap_or(f64::NAN)),
     );
     t.push_f64(
+        "lognormal_peak_lo",
+        "solMass",
+        "lower end of the 68.27% confidence interval of the peak (Student's t on mu, exact for a log-normal sample)",
+        g(&|x| {
+            x.lognormal
+                .as_ref()
+                .map(|l| l.peak_mass_interval().0)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "lognormal_peak_hi",
+        "solMass",
+        "upper end of that interval",
+        g(&|x| {
+            x.lognormal
+                .as_ref()
+                .map(|l| l.peak_mass_interval().1)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
         "lognormal_mu_err",
         "",
-        "its uncertainty",
+        "its large-sample uncertainty sigma/sqrt(n) (too small for a few dozen masses or fewer: see the interval)",
         g(&|x| x.lognormal.as_ref().map(|l| l.mu_error).unwrap_or(f64::NAN)),
     );
     t.push_f64(
@@ -562,11 +584,33 @@ pub fn summary_table(c: &Comparison) -> Table {
     t.push_f64(
         "lognormal_sigma_err",
         "",
-        "its uncertainty",
+        "its large-sample uncertainty sigma/sqrt(2n) (too small for a few dozen masses or fewer: see the interval)",
         g(&|x| {
             x.lognormal
                 .as_ref()
                 .map(|l| l.sigma_error)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "lognormal_sigma_lo",
+        "",
+        "lower end of the 68.27% confidence interval of sigma (chi-square, exact for a log-normal sample)",
+        g(&|x| {
+            x.lognormal
+                .as_ref()
+                .map(|l| l.sigma_interval.0)
+                .unwrap_or(f64::NAN)
+        }),
+    );
+    t.push_f64(
+        "lognormal_sigma_hi",
+        "",
+        "upper end of that interval",
+        g(&|x| {
+            x.lognormal
+                .as_ref()
+                .map(|l| l.sigma_interval.1)
                 .unwrap_or(f64::NAN)
         }),
     );
@@ -808,7 +852,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     let _ = writeln!(s, "\n## Mass functions\n");
     let _ = writeln!(
         s,
-        "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood mean and width of ln M.\n",
+        "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood peak exp(mu) and width sigma of ln M, each with its 68.27% confidence interval (Student's t and chi-square, exact for a log-normal sample of any size).\n",
         match o.mass_min {
             Some(m) => format!("fixed at {m} Msun"),
             None => "chosen by minimising the KS distance".into(),
@@ -818,7 +862,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     );
     let _ = writeln!(
         s,
-        "| population | alpha | +/- (analytic) | +/- (bootstrap) | mass_min [Msun] | n_tail | log-normal peak [Msun] | sigma(ln M) |"
+        "| population | alpha | +/- (analytic) | +/- (bootstrap) | mass_min [Msun] | n_tail | log-normal peak [Msun] (68% interval) | sigma(ln M) (68% interval) |"
     );
     let _ = writeln!(s, "| --- | --- | --- | --- | --- | --- | --- | --- |");
     for x in &c.summaries {
@@ -831,8 +875,15 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
         let (lp, ls) = x
             .lognormal
             .as_ref()
-            .map(|l| (l.peak_mass(), l.sigma))
-            .unwrap_or((f64::NAN, f64::NAN));
+            .map(|l| {
+                let (a, b) = l.peak_mass_interval();
+                let (c, d) = l.sigma_interval;
+                (
+                    format!("{} ({}-{})", f(l.peak_mass()), f(a), f(b)),
+                    format!("{} ({}-{})", f(l.sigma), f(c), f(d)),
+                )
+            })
+            .unwrap_or(("-".into(), "-".into()));
         let _ = writeln!(
             s,
             "| {} | {} | {} | {} | {} | {} | {} | {} |",
@@ -842,8 +893,8 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             f(be),
             f(mm),
             nt,
-            f(lp),
-            f(ls)
+            lp,
+            ls
         );
     }
     // Why a fit is missing, where one is.

@@ -79,6 +79,37 @@ fn compare_reports_statistics_and_fairness() {
         (mb / ma - 4.0).abs() < 1e-9,
         "masses scale as distance squared: {ma} {mb}"
     );
+    // The log-normal fit's exact intervals (checked against scipy in populations_reference):
+    // they hold the fitted value, the width of ln M and its interval do not change with the
+    // scale of the masses, and the peak's interval scales with them.
+    let get = |row: &[&str], name: &str| -> f64 {
+        let c = rows[0].iter().position(|c| *c == name).unwrap();
+        row[c].parse().unwrap()
+    };
+    for row in &rows[1..3] {
+        for (lo, mid, hi) in [
+            ("lognormal_peak_lo", "lognormal_peak", "lognormal_peak_hi"),
+            (
+                "lognormal_sigma_lo",
+                "lognormal_sigma",
+                "lognormal_sigma_hi",
+            ),
+        ] {
+            assert!(
+                get(row, lo) < get(row, mid) && get(row, mid) < get(row, hi),
+                "{mid}"
+            );
+        }
+    }
+    for name in ["lognormal_sigma_lo", "lognormal_sigma_hi"] {
+        let (x, y) = (get(&rows[1], name), get(&rows[2], name));
+        assert!((x - y).abs() < 1e-12 * x, "{name}: {x} {y}");
+    }
+    for name in ["lognormal_peak_lo", "lognormal_peak_hi"] {
+        let (x, y) = (get(&rows[1], name), get(&rows[2], name));
+        assert!((y / x - 4.0).abs() < 1e-9, "{name}: {x} {y}");
+    }
+    assert!(report.contains("sigma(ln M) (68% interval)"), "{report}");
     for f in [
         "mass_functions.csv",
         "cumulative.csv",

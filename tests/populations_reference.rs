@@ -248,7 +248,42 @@ fn lognormal_fit_matches_scipy() {
             0.0,
             &format!("{name}: scale"),
         );
+        // The exact 68.27% intervals of mu and sigma (scipy 1.17.1 stats.t.interval and
+        // stats.chi2.ppf). Tolerance 1e-9 relative to the interval's width: the quantiles of
+        // statrs 0.19.1 agree with scipy's to about 2e-10 (chi-square with 1 degree of
+        // freedom, 2 masses) and better elsewhere.
+        assert_eq!(
+            num(&f["level"]),
+            cairn::populations::lognormal::INTERVAL_LEVEL,
+            "level"
+        );
+        for (key, ours) in [
+            ("mu_interval", fit.mu_interval),
+            ("sigma_interval", fit.sigma_interval),
+        ] {
+            let r = nums(&s[key]);
+            let width = r[1] - r[0];
+            assert!(width > 0.0, "{name}: {key}");
+            assert_close(
+                ours.0,
+                r[0],
+                0.0,
+                1e-9 * width,
+                &format!("{name}: {key} low"),
+            );
+            assert_close(
+                ours.1,
+                r[1],
+                0.0,
+                1e-9 * width,
+                &format!("{name}: {key} high"),
+            );
+        }
+        let (lo, hi) = fit.peak_mass_interval();
+        assert!(lo < fit.peak_mass() && fit.peak_mass() < hi, "{name}");
     }
+    // Small samples, where the exact intervals matter, are among the cases.
+    assert!(f["samples"]["n2"].is_object() && f["samples"]["n5"].is_object());
 }
 
 #[test]

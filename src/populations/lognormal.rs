@@ -4,7 +4,16 @@
 //! sigma = sqrt(mean((y - mu)^2)) (divisor n, not n - 1). This is what
 //! `scipy.stats.lognorm.fit(data, floc=0)` returns as shape = sigma, scale = exp(mu).
 //! Uncertainties are the large-sample (Fisher) errors sigma/sqrt(n) on mu and sigma/sqrt(2n)
-//! on sigma.
+//! on sigma, and, exact for samples of any size drawn from a log-normal, the central
+//! [`INTERVAL_LEVEL`] (68.27%, "one sigma") confidence intervals of a normal sample's mean and
+//! standard deviation applied to ln M: Student's t interval mu +- t(n-1) s / sqrt(n), and the
+//! chi-square interval s sqrt((n-1) / chi2(n-1)) between the chi-square quantiles of the two
+//! tails, with s the sample standard deviation (divisor n - 1). These are the textbook
+//! intervals (Student 1908, Biometrika 6, 1; the chi-square interval for a standard deviation
+//! as in the NIST/SEMATECH e-Handbook of Statistical Methods, section 1.3.5.8 from memory);
+//! the t and chi-square quantiles come from the `statrs` crate. On 5 masses the large-sample
+//! errors of sigma and mu are 37% and 22% smaller than the half-widths of the exact
+//! intervals, on 30 masses 6% and 3% (scipy 1.17.1's quantiles, computed once).
 //!
 //! Peak convention: dN/dln M (equivalently dN/dlog10 M) is a Gaussian in ln M with mean mu, so
 //! its peak, the "characteristic mass" of a log-normal mass function, is exp(mu), which is also
@@ -24,14 +33,29 @@ pub struct LogNormalFit {
     pub mu_error: f64,
     /// Standard error of sigma, sigma/sqrt(2n).
     pub sigma_error: f64,
+    /// Central [`INTERVAL_LEVEL`] confidence interval of mu (Student's t, exact for a
+    /// log-normal sample of any size).
+    pub mu_interval: (f64, f64),
+    /// Central [`INTERVAL_LEVEL`] confidence interval of sigma (chi-square, exact for a
+    /// log-normal sample of any size); not symmetric about sigma.
+    pub sigma_interval: (f64, f64),
     /// Number of masses.
     pub n: usize,
 }
+
+/// The level of the confidence intervals: the probability within one standard deviation of
+/// a normal distribution's mean, erf(1/sqrt 2) = 0.682689... (common practice: "1 sigma").
+pub const INTERVAL_LEVEL: f64 = 0.682_689_492_137_085_9;
 
 impl LogNormalFit {
     /// Peak mass of dN/dlog M, exp(mu) (also the median mass).
     pub fn peak_mass(&self) -> f64 {
         self.mu.exp()
+    }
+
+    /// The [`INTERVAL_LEVEL`] confidence interval of the peak mass exp(mu).
+    pub fn peak_mass_interval(&self) -> (f64, f64) {
+        (self.mu_interval.0.exp(), self.mu_interval.1.exp())
     }
 
     /// Peak of dN/dM, exp(mu - sigma^2).
@@ -55,13 +79,35 @@ pub fn fit_lognormal(masses: &[f64]) -> Result<LogNormalFit, Error> {
     let logs: Vec<f64> = masses.iter().map(|m| m.ln()).collect();
     let mu = logs.iter().sum::<f64>() / n;
     let sigma = (logs.iter().map(|y| (y - mu).powi(2)).sum::<f64>() / n).sqrt();
+    let (mu_interval, sigma_interval) = intervals(mu, sigma, masses.len());
     Ok(LogNormalFit {
         mu,
         sigma,
         mu_error: sigma / n.sqrt(),
         sigma_error: sigma / (2.0 * n).sqrt(),
+        mu_interval,
+        sigma_interval,
         n: masses.len(),
     })
+}
+
+/// The exact [`INTERVAL_LEVEL`] intervals of the mean and standard deviation of a normal
+/// sample of `n` (at least 2) with maximum-likelihood mean `mu` and standard deviation
+/// `sigma` (divisor n).
+fn intervals(mu: f64, sigma: f64, n: usize) -> ((f64, f64), (f64, f64)) {
+    use statrs::distribution::{ChiSquared, ContinuousCDF, StudentsT};
+    let dof = (n - 1) as f64;
+    let upper = 0.5 + INTERVAL_LEVEL / 2.0;
+    // (n - 1) s^2 = n sigma^2.
+    let ss = n as f64 * sigma * sigma;
+    let s = (ss / dof).sqrt();
+    let t = StudentsT::new(0.0, 1.0, dof)
+        .expect("n - 1 >= 1 degrees of freedom")
+        .inverse_cdf(upper);
+    let half = t * s / (n as f64).sqrt();
+    let chi2 = ChiSquared::new(dof).expect("n - 1 >= 1 degrees of freedom");
+    let (lo, hi) = (chi2.inverse_cdf(1.0 - upper), chi2.inverse_cdf(upper));
+    ((mu - half, mu + half), ((ss / hi).sqrt(), (ss / lo).sqrt()))
 }
 
 #[cfg(test)]

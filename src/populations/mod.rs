@@ -17,7 +17,8 @@
 //!   a seeded bootstrap. The slope of dN/dlog M is -(alpha - 1). The candidate set and distance
 //!   follow powerlaw 2.0.0 (Alstott, Bullmore & Plenz 2014, PLoS ONE 9, e85777), see there.
 //! - [`lognormal`]: the maximum-likelihood log-normal (closed form for mu and sigma of ln M),
-//!   as `scipy.stats.lognorm.fit(data, floc=0)`.
+//!   as `scipy.stats.lognorm.fit(data, floc=0)`, with the exact 68.27% confidence intervals of
+//!   mu (Student's t) and sigma (chi-square) for samples of any size.
 //! - [`ks`]: the two-sample Kolmogorov-Smirnov test with the exact null distribution of Hodges
 //!   1958 (Arkiv for Matematik 3, 469) in the form used by scipy 1.17 (Viehmann 2021,
 //!   arXiv:2102.08037), and the large-sample distribution of the one-sample statistic at

@@ -10,7 +10,7 @@ Sources (each value names the library that made it):
   error and D.
 - scipy 1.17.1: `stats.ks_2samp` (methods 'auto', 'exact', 'asymp'), `stats.anderson_ksamp`
   (variant 'midrank', Scholz & Stephens 1987, JASA 82, 918), `stats.lognorm.fit(floc=0)`,
-  `stats.linregress`.
+  `stats.t.interval` and `stats.chi2.ppf` (log-normal confidence intervals), `stats.linregress`.
 - numpy 2.4.6 `random.default_rng` with fixed seeds draws every sample. Samples are rounded to
   10 significant digits before use so the fixtures stay small; the rounded values are the ones
   stored and the ones every reference value is computed from.
@@ -151,13 +151,26 @@ def ad_sets():
 
 
 def lognormals():
-    out = {"source": "scipy 1.17.1 stats.lognorm.fit(data, floc=0)", "versions": VERSIONS,
-           "samples": {}}
-    for i, n in enumerate((30, 300)):
+    # The fit, and the exact central 68.27% confidence intervals of the mean and standard
+    # deviation of ln M: scipy's Student t interval (stats.t.interval with the standard error
+    # s / sqrt(n), s with ddof=1) and the chi-square interval s sqrt((n - 1) / chi2.ppf(q, n - 1))
+    # at the two tails' quantiles (the textbook interval for a normal standard deviation).
+    level = stats.norm.cdf(1.0) - stats.norm.cdf(-1.0)
+    out = {"source": "scipy 1.17.1 stats.lognorm.fit(data, floc=0); stats.t.interval; stats.chi2.ppf",
+           "versions": VERSIONS, "level": level, "samples": {}}
+    for i, n in enumerate((30, 300, 5, 12, 2)):
         rng = np.random.default_rng(500 + i)
         data = rounded(rng.lognormal(np.log(0.8), 0.5, n))
         shape, loc, scale = stats.lognorm.fit(data, floc=0)
-        out["samples"][f"n{n}"] = {"data": data, "shape": shape, "loc": loc, "scale": scale}
+        y = np.log(data)
+        s = np.std(y, ddof=1)
+        mu_lo, mu_hi = stats.t.interval(level, n - 1, loc=np.mean(y), scale=s / np.sqrt(n))
+        q = (1.0 + level) / 2.0
+        sigma_lo = s * np.sqrt((n - 1) / stats.chi2.ppf(q, n - 1))
+        sigma_hi = s * np.sqrt((n - 1) / stats.chi2.ppf(1.0 - q, n - 1))
+        out["samples"][f"n{n}"] = {"data": data, "shape": shape, "loc": loc, "scale": scale,
+                                   "mu_interval": [mu_lo, mu_hi],
+                                   "sigma_interval": [sigma_lo, sigma_hi]}
     write_json(os.path.join(OUT, "lognormal.json"), out)
 
 
