@@ -44,10 +44,30 @@ static LIVE: std::sync::Mutex<Live> = std::sync::Mutex::new(Live {
 
 /// Makes an interrupt (Ctrl-C, SIGTERM, SIGHUP) remove the temporary files of every output
 /// plan not yet committed, and the folders those plans created, before the process ends with
-/// exit code 130, so that an interrupted run leaves no partial output either. Called once, by
-/// the binary.
+/// the shell's code for that signal (128 + its number: 130, 143, 129), so that an interrupted
+/// run leaves no partial output either and a batch system still sees which signal ended it.
+/// Called once, by the binary; the signals are received on a thread of their own.
+/// (Elsewhere than on Unix, Ctrl-C only, with code 130.)
 pub fn remove_partial_outputs_on_interrupt() {
-    let _ = ctrlc::set_handler(|| {
+    #[cfg(unix)]
+    {
+        use signal_hook::consts::{SIGHUP, SIGINT, SIGTERM};
+        let Ok(mut signals) = signal_hook::iterator::Signals::new([SIGINT, SIGTERM, SIGHUP]) else {
+            return;
+        };
+        std::thread::spawn(move || {
+            if let Some(signal) = signals.forever().next() {
+                clean_up_and_exit(128 + signal);
+            }
+        });
+    }
+    #[cfg(not(unix))]
+    let _ = ctrlc::set_handler(|| clean_up_and_exit(130));
+}
+
+/// What an interrupt does: removes the unfinished outputs and ends the process with `code`.
+fn clean_up_and_exit(code: i32) -> ! {
+    {
         // The lock is held until the process ends, so no plan starts or commits meanwhile,
         // and no temporary file is created: every one is created under this lock
         // ([`create_file`], [`creating`]), so those that exist now are all there will be.
@@ -80,8 +100,8 @@ pub fn remove_partial_outputs_on_interrupt() {
         } else {
             eprintln!("cairn: interrupted; the unfinished outputs were removed.");
         }
-        std::process::exit(130);
-    });
+        std::process::exit(code);
+    }
 }
 
 /// Runs `create`, which makes a temporary output file, under the lock the interrupt handler
