@@ -530,90 +530,64 @@ pub fn summary_table(c: &Comparison) -> Table {
         "KS distance of the tail to the fitted law",
         g(&|x| x.tail.as_ref().map(|t| t.ks_distance).unwrap_or(f64::NAN)),
     );
-    t.push_f64(
-        "lognormal_peak",
-        "solMass",
-        "exp(mu): peak of dN/dlogM of the log-normal fit",
-        g(&|x| {
-            x.lognormal
-                .as_ref()
-                .map(|l| l.peak_mass())
-                .unwrap_or(f64::NAN)
+    // The log-normal fit's columns; NaN for a population without one.
+    type Of = fn(&populations::LogNormalFit) -> f64;
+    let lognormal_columns: [(&str, &str, &str, Of); 9] = [
+        (
+            "lognormal_peak",
+            "solMass",
+            "exp(mu): peak of dN/dlogM of the log-normal fit",
+            |l| l.peak_mass(),
+        ),
+        (
+            "lognormal_peak_lo",
+            "solMass",
+            "lower end of the 68.27% confidence interval of the peak (Student's t on mu, exact for a log-normal sample)",
+            |l| l.peak_mass_interval().0,
+        ),
+        (
+            "lognormal_peak_hi",
+            "solMass",
+            "upper end of that interval",
+            |l| l.peak_mass_interval().1,
+        ),
+        ("lognormal_mu", "", "mean of ln M", |l| l.mu),
+        (
+            "lognormal_mu_err",
+            "",
+            "its large-sample uncertainty sigma/sqrt(n) (too small for a few dozen masses or fewer: see the interval)",
+            |l| l.mu_error,
+        ),
+        ("lognormal_sigma", "", "standard deviation of ln M", |l| {
+            l.sigma
         }),
-    );
-    t.push_f64(
-        "lognormal_mu",
-        "",
-        "mean of ln M",
-        g(&|x| x.lognormal.as_ref().map(|l| l.mu).unwrap_or(f64::NAN)),
-    );
-    t.push_f64(
-        "lognormal_peak_lo",
-        "solMass",
-        "lower end of the 68.27% confidence interval of the peak (Student's t on mu, exact for a log-normal sample)",
-        g(&|x| {
-            x.lognormal
-                .as_ref()
-                .map(|l| l.peak_mass_interval().0)
-                .unwrap_or(f64::NAN)
-        }),
-    );
-    t.push_f64(
-        "lognormal_peak_hi",
-        "solMass",
-        "upper end of that interval",
-        g(&|x| {
-            x.lognormal
-                .as_ref()
-                .map(|l| l.peak_mass_interval().1)
-                .unwrap_or(f64::NAN)
-        }),
-    );
-    t.push_f64(
-        "lognormal_mu_err",
-        "",
-        "its large-sample uncertainty sigma/sqrt(n) (too small for a few dozen masses or fewer: see the interval)",
-        g(&|x| x.lognormal.as_ref().map(|l| l.mu_error).unwrap_or(f64::NAN)),
-    );
-    t.push_f64(
-        "lognormal_sigma",
-        "",
-        "standard deviation of ln M",
-        g(&|x| x.lognormal.as_ref().map(|l| l.sigma).unwrap_or(f64::NAN)),
-    );
-    t.push_f64(
-        "lognormal_sigma_err",
-        "",
-        "its large-sample uncertainty sigma/sqrt(2n) (too small for a few dozen masses or fewer: see the interval)",
-        g(&|x| {
-            x.lognormal
-                .as_ref()
-                .map(|l| l.sigma_error)
-                .unwrap_or(f64::NAN)
-        }),
-    );
-    t.push_f64(
-        "lognormal_sigma_lo",
-        "",
-        "lower end of the 68.27% confidence interval of sigma (chi-square, exact for a log-normal sample)",
-        g(&|x| {
-            x.lognormal
-                .as_ref()
-                .map(|l| l.sigma_interval.0)
-                .unwrap_or(f64::NAN)
-        }),
-    );
-    t.push_f64(
-        "lognormal_sigma_hi",
-        "",
-        "upper end of that interval",
-        g(&|x| {
-            x.lognormal
-                .as_ref()
-                .map(|l| l.sigma_interval.1)
-                .unwrap_or(f64::NAN)
-        }),
-    );
+        (
+            "lognormal_sigma_err",
+            "",
+            "its large-sample uncertainty sigma/sqrt(2n) (too small for a few dozen masses or fewer: see the interval)",
+            |l| l.sigma_error,
+        ),
+        (
+            "lognormal_sigma_lo",
+            "",
+            "lower end of the 68.27% confidence interval of sigma (chi-square, exact for a log-normal sample)",
+            |l| l.sigma_interval.0,
+        ),
+        (
+            "lognormal_sigma_hi",
+            "",
+            "upper end of that interval",
+            |l| l.sigma_interval.1,
+        ),
+    ];
+    for (name, unit, description, of) in lognormal_columns {
+        t.push_f64(
+            name,
+            unit,
+            description,
+            g(&|x| x.lognormal.as_ref().map(of).unwrap_or(f64::NAN)),
+        );
+    }
     t.push_f64(
         "mass_size_slope",
         "",
