@@ -43,30 +43,60 @@ static LIVE: std::sync::Mutex<Live> = std::sync::Mutex::new(Live {
 });
 
 /// Makes an interrupt (Ctrl-C, SIGTERM, SIGHUP) remove the temporary files of every output
-/// plan not yet committed, and the folders those plans created, before the process ends with
-/// the shell's code for that signal (128 + its number: 130, 143, 129), so that an interrupted
-/// run leaves no partial output either and a batch system still sees which signal ended it.
+/// plan not yet committed, and the folders those plans created, before the process ends by
+/// that signal (its default action, so a parent sees which signal ended it: a shell reports
+/// 128 + its number, 130 for Ctrl-C and 143 for SIGTERM, and stops a loop on Ctrl-C), so that
+/// an interrupted run leaves no partial output either. Signals the process was started with
+/// set to be ignored (`nohup`, background jobs of a non-interactive shell) stay ignored.
 /// Called once, by the binary; the signals are received on a thread of their own.
-/// (Elsewhere than on Unix, Ctrl-C only, with code 130.)
+/// (Elsewhere than on Unix: Ctrl-C only, ending with code 130.)
 pub fn remove_partial_outputs_on_interrupt() {
     #[cfg(unix)]
     {
         use signal_hook::consts::{SIGHUP, SIGINT, SIGTERM};
-        let Ok(mut signals) = signal_hook::iterator::Signals::new([SIGINT, SIGTERM, SIGHUP]) else {
+        let wanted: Vec<i32> = [SIGINT, SIGTERM, SIGHUP]
+            .into_iter()
+            .filter(|&s| !ignored(s))
+            .collect();
+        if wanted.is_empty() {
+            return;
+        }
+        let Ok(mut signals) = signal_hook::iterator::Signals::new(&wanted) else {
             return;
         };
         std::thread::spawn(move || {
             if let Some(signal) = signals.forever().next() {
-                clean_up_and_exit(128 + signal);
+                let _held = clean_up();
+                // The signal's default action ends the process; should it not, the shell's
+                // code for it.
+                let _ = signal_hook::low_level::emulate_default_handler(signal);
+                std::process::exit(128 + signal);
             }
         });
     }
     #[cfg(not(unix))]
-    let _ = ctrlc::set_handler(|| clean_up_and_exit(130));
+    let _ = ctrlc::set_handler(|| {
+        let _held = clean_up();
+        std::process::exit(130)
+    });
 }
 
-/// What an interrupt does: removes the unfinished outputs and ends the process with `code`.
-fn clean_up_and_exit(code: i32) -> ! {
+/// Whether `signal` is set to be ignored (as inherited from the parent).
+#[cfg(unix)]
+fn ignored(signal: i32) -> bool {
+    // SAFETY: with a null new action, sigaction only writes the current one into `old`, a
+    // plain C struct for which all zeros is a valid value.
+    unsafe {
+        let mut old: libc::sigaction = std::mem::zeroed();
+        libc::sigaction(signal, std::ptr::null(), &mut old) == 0
+            && old.sa_sigaction == libc::SIG_IGN
+    }
+}
+
+/// What an interrupt does before the process ends: removes the unfinished outputs and the
+/// folders their plans created, and says so. Returns the lock of the plans, which the caller
+/// holds until the process ends.
+fn clean_up() -> std::sync::MutexGuard<'static, Live> {
     {
         // The lock is held until the process ends, so no plan starts or commits meanwhile,
         // and no temporary file is created: every one is created under this lock
@@ -100,7 +130,7 @@ fn clean_up_and_exit(code: i32) -> ! {
         } else {
             eprintln!("cairn: interrupted; the unfinished outputs were removed.");
         }
-        std::process::exit(code);
+        live
     }
 }
 
