@@ -850,11 +850,17 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             .lognormal
             .as_ref()
             .map(|l| {
-                let (a, b) = l.peak_mass_interval();
-                let (c, d) = l.sigma_interval;
+                // A value and its interval (none below three masses).
+                let with = |v: f64, (a, b): (f64, f64)| {
+                    if a.is_finite() && b.is_finite() {
+                        format!("{} ({}-{})", f(v), f(a), f(b))
+                    } else {
+                        f(v)
+                    }
+                };
                 (
-                    format!("{} ({}-{})", f(l.peak_mass()), f(a), f(b)),
-                    format!("{} ({}-{})", f(l.sigma), f(c), f(d)),
+                    with(l.peak_mass(), l.peak_mass_interval()),
+                    with(l.sigma, l.sigma_interval),
                 )
             })
             .unwrap_or(("-".into(), "-".into()));

@@ -34,10 +34,11 @@ pub struct LogNormalFit {
     /// Standard error of sigma, sigma/sqrt(2n).
     pub sigma_error: f64,
     /// Central [`INTERVAL_LEVEL`] confidence interval of mu (Student's t, exact for a
-    /// log-normal sample of any size).
+    /// complete log-normal sample of any size); NaN for fewer than three masses.
     pub mu_interval: (f64, f64),
     /// Central [`INTERVAL_LEVEL`] confidence interval of sigma (chi-square, exact for a
-    /// log-normal sample of any size); not symmetric about sigma.
+    /// complete log-normal sample of any size); not symmetric about sigma; NaN for fewer than
+    /// three masses.
     pub sigma_interval: (f64, f64),
     /// Number of masses.
     pub n: usize,
@@ -79,7 +80,14 @@ pub fn fit_lognormal(masses: &[f64]) -> Result<LogNormalFit, Error> {
     let logs: Vec<f64> = masses.iter().map(|m| m.ln()).collect();
     let mu = logs.iter().sum::<f64>() / n;
     let sigma = (logs.iter().map(|y| (y - mu).powi(2)).sum::<f64>() / n).sqrt();
-    let (mu_interval, sigma_interval) = intervals(mu, sigma, masses.len());
+    // From three masses on the maximum-likelihood sigma lies inside the interval (with two,
+    // below it: the interval belongs to the population's sigma, whose estimate with divisor
+    // n - 1 is larger), so two masses get no intervals rather than a confusing pair.
+    let (mu_interval, sigma_interval) = if masses.len() >= 3 {
+        intervals(mu, sigma, masses.len())
+    } else {
+        ((f64::NAN, f64::NAN), (f64::NAN, f64::NAN))
+    };
     Ok(LogNormalFit {
         mu,
         sigma,
@@ -124,6 +132,11 @@ mod tests {
         assert!((f.peak_mass() - e).abs() < 1e-14);
         assert!(f.peak_mass_dn_dm() < f.peak_mass());
         assert!((f.mu_error - f.sigma / 3f64.sqrt()).abs() < 1e-16);
+        assert!(f.sigma_interval.0 < f.sigma && f.sigma < f.sigma_interval.1);
         assert!(fit_lognormal(&[1.0]).is_err());
+        // Two masses: a fit, but no intervals (the maximum-likelihood sigma would lie below
+        // its own).
+        let f = fit_lognormal(&[1.0, e]).unwrap();
+        assert!(f.sigma > 0.0 && f.mu_interval.0.is_nan() && f.sigma_interval.1.is_nan());
     }
 }

@@ -158,7 +158,7 @@ def lognormals():
     level = stats.norm.cdf(1.0) - stats.norm.cdf(-1.0)
     out = {"source": "scipy 1.17.1 stats.lognorm.fit(data, floc=0); stats.t.interval; stats.chi2.ppf",
            "versions": VERSIONS, "level": level, "samples": {}}
-    for i, n in enumerate((30, 300, 5, 12, 2)):
+    for i, n in enumerate((30, 300, 5, 12, 3)):
         rng = np.random.default_rng(500 + i)
         data = rounded(rng.lognormal(np.log(0.8), 0.5, n))
         shape, loc, scale = stats.lognorm.fit(data, floc=0)
