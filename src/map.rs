@@ -874,12 +874,20 @@ pub fn plane_wavelength(
         None => (ctype.clone(), String::new()),
     };
     let freq = match kind.as_str() {
-        "FREQ" => true,
-        "WAVE" => false,
+        // The long spellings are not the standard's but appear in older headers (a linear
+        // axis, as cairn read them before).
+        "FREQ" | "FREQUENCY" => true,
+        "WAVE" | "WAVELENGTH" => false,
         _ => return None,
     };
     let crval = h.get_f64(&format!("CRVAL{axis}"))?;
-    let crpix = h.get_f64(&format!("CRPIX{axis}")).unwrap_or(0.0);
+    // The standard's default reference pixel is 0 (FITS WCS Paper I, Greisen & Calabretta
+    // 2002; from memory, and astropy.wcs reads it so), which puts pixel 1 one step from
+    // CRVALn: said in a warning, as a header that leaves CRPIXn out may have meant CRVALn at
+    // pixel 1.
+    let crpix = h.get_f64(&format!("CRPIX{axis}"));
+    let crpix_missing = crpix.is_none();
+    let crpix = crpix.unwrap_or(0.0);
     let uses_cd = h.cards().iter().any(|c| is_matrix_key(&c.key, true))
         && !h.cards().iter().any(|c| is_matrix_key(&c.key, false));
     let step = if uses_cd {
@@ -930,6 +938,14 @@ pub fn plane_wavelength(
         ));
         return Some(None);
     };
+    if crpix_missing && step * offset != 0.0 {
+        warnings.push(format!(
+            "CRPIX{axis} is missing, so by the FITS standard's default of 0 the plane lies {} from CRVAL{axis}, at {} {}; give --wavelength if CRVAL{axis} was meant",
+            if offset == 1.0 { "one step".to_string() } else { format!("{offset} steps") },
+            crate::table::fmt_f64(v / factor),
+            if cunit.is_empty() { if freq { "Hz" } else { "m" } } else { cunit.as_str() },
+        ));
+    }
     if coupled {
         warnings.push(format!(
             "axis {axis} (CTYPE{axis} = '{ctype}') is coupled to other axes by the PC or CD matrix, so the wavelength varies across the map; cairn uses its value at the reference pixel of those axes"
@@ -945,11 +961,29 @@ pub fn plane_wavelength(
 /// planes of a cube: it is where the map was observed, while a rest frequency belongs to a
 /// spectral line.
 pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
+    // What the axis says about itself: kept with its value, or, when it gives none, kept
+    // only if no keyword below gives one either.
+    let mut axis_notes = Vec::new();
     for k in 3..=4 {
-        if let Some(w) = plane_wavelength(h, k, 0, warnings) {
-            return w;
+        match plane_wavelength(h, k, 0, &mut axis_notes) {
+            Some(Some(w)) => {
+                warnings.append(&mut axis_notes);
+                return Some(w);
+            }
+            Some(None) => break,
+            None => {}
         }
     }
+    let from_keywords = keyword_wavelength(h, warnings);
+    if from_keywords.is_none() {
+        warnings.append(&mut axis_notes);
+    }
+    from_keywords
+}
+
+/// The wavelength from RESTFRQ/RESTFREQ/FREQ/OBSFREQ (Hz) or WAVELEN/WAVELNTH (unit in the
+/// comment), for [`wavelength_from_header`].
+fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
     for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
         if let Some(f) = h.get_f64(key).filter(|f| *f > 0.0) {
             return Some(units::C_LIGHT / f);
@@ -1052,6 +1086,58 @@ mod tests {
         );
         assert!(wavelength_from_header(&h, &mut w).is_none());
         assert!(w.last().unwrap().contains("CUNIT3 = 'furlong'"), "{w:?}");
+        let cards =
+            |cs: &[&str]| Header::parse(&cs.iter().map(|c| format!("{c:<80}")).collect::<String>());
+        // An axis that gives no value at its pixel (a non-linear one away from its reference
+        // pixel) leaves the keywords to say it, with no warning when one does.
+        let mut w = Vec::new();
+        let h = cards(&[
+            "CTYPE3  = 'WAVE-F2W'",
+            "CRVAL3  =               0.0008",
+            "CDELT3  =               1.0E-5",
+            "CRPIX3  =                  2.0",
+            "RESTFRQ =         3.5297E+11",
+        ]);
+        let l = wavelength_from_header(&h, &mut w).unwrap();
+        assert!(
+            (l - units::C_LIGHT / 3.5297e11).abs() < 1e-15 && w.is_empty(),
+            "{w:?}"
+        );
+        // Without the keyword, the axis's warning.
+        let h = cards(&[
+            "CTYPE3  = 'WAVE-F2W'",
+            "CRVAL3  =               0.0008",
+            "CDELT3  =               1.0E-5",
+            "CRPIX3  =                  2.0",
+        ]);
+        assert!(wavelength_from_header(&h, &mut w).is_none());
+        assert!(w.len() == 1 && w[0].contains("--wavelength"), "{w:?}");
+        // The long spelling of a frequency axis, at its one pixel (the reference pixel).
+        let mut w = Vec::new();
+        let h = cards(&[
+            "CTYPE3  = 'FREQUENCY'",
+            "CRVAL3  =              3.53E11",
+            "CDELT3  =                1.0E9",
+            "CRPIX3  =                  1.0",
+        ]);
+        let l = wavelength_from_header(&h, &mut w).unwrap();
+        assert!(
+            (l - units::C_LIGHT / 3.53e11).abs() < 1e-15 && w.is_empty(),
+            "{w:?}"
+        );
+        // No CRPIX3: the standard's 0, one step from CRVAL3, and a warning that says so.
+        let h = cards(&[
+            "CTYPE3  = 'FREQ    '",
+            "CUNIT3  = 'GHz     '",
+            "CRVAL3  =                353.0",
+            "CDELT3  =                 20.0",
+        ]);
+        let l = wavelength_from_header(&h, &mut w).unwrap();
+        assert!((l - units::C_LIGHT / 3.73e11).abs() < 1e-15, "{l}");
+        assert!(
+            w.len() == 1 && w[0].contains("CRPIX3 is missing") && w[0].contains("373.0 GHz"),
+            "{w:?}"
+        );
     }
 
     fn cube_header(extra: &[&str]) -> Header {

@@ -258,6 +258,26 @@ fn a_squeezed_spectral_axis_gives_its_value_at_its_one_pixel_as_astropy_does() {
     }
     let f = nums(&v["files"]["squeeze_freq.fits"]["frequency_hz"]);
     assert_eq!(f, vec![3.33e11]);
+    // Without CRPIX3, the standard's default of 0 (astropy: 373 GHz, one step from CRVAL3's
+    // 353 GHz), with a warning that says so.
+    let r = &v["files"]["squeeze_nocrpix.fits"];
+    let m = map::load(
+        &fixture_path("fits/squeeze_nocrpix.fits"),
+        &LoadOptions::default(),
+    )
+    .unwrap();
+    assert_close(
+        m.wavelength_m.unwrap_or(f64::NAN),
+        c / nums(&r["frequency_hz"])[0],
+        1e-12,
+        0.0,
+        "squeeze_nocrpix.fits (astropy 8.0.2 WCS.spectral.pixel_to_world(0))",
+    );
+    assert!(
+        m.warnings.iter().any(|w| w.contains("CRPIX3 is missing")),
+        "{:?}",
+        m.warnings
+    );
 }
 
 #[test]

@@ -160,6 +160,12 @@ spectral_cubes = {
         1,
         True,
     ),
+    # No CRPIX3 at all: the standard's default of 0.
+    "squeeze_nocrpix.fits": (
+        {"CTYPE3": "FREQ", "CUNIT3": "GHz", "CRVAL3": 353.0, "CDELT3": 20.0},
+        1,
+        False,
+    ),
 }
 spectral = {}
 for name, (keys, nplanes, cd) in spectral_cubes.items():
