@@ -3,7 +3,8 @@
 //!
 //! Owns the choice of HDU (the primary, or the first image HDU that holds data, or the one
 //! named by `--hdu`), the checks made before any pixel is read (the file is FITS, its header
-//! is complete, the file holds all the data the header claims), the reading of every BITPIX
+//! is complete, the file holds all the data the header claims), gzip-compressed files and
+//! tile-compressed image HDUs (FITS Standard 4.0, section 10), the reading of every BITPIX
 //! with BSCALE/BZERO applied and BLANK or NaN turned into missing pixels (FITS Standard 4.0,
 //! Pence et al. 2010, sections 4.4 and 5), squeezing of length-1 axes and the choice of one
 //! plane of a cube, and the reading of the beam (BMAJ/BMIN/BPA, or the AIPS `HISTORY` card
@@ -262,8 +263,10 @@ fn bytes_per_pixel(bitpix: i64) -> Option<u64> {
     }
 }
 
-/// Checks the file's first bytes: a FITS file starts with `SIMPLE  =`.
-fn check_signature(path: &Path) -> Result<u64> {
+/// Checks the file's first bytes: a FITS file starts with `SIMPLE  =`, a gzip-compressed one
+/// (`.fits.gz`, which CFITSIO opens by decompressing it in memory) with the gzip magic
+/// bytes. Returns the file's length and whether it is gzip-compressed.
+fn check_signature(path: &Path) -> Result<(u64, bool)> {
     let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => Error::input(path, "no such file; check the path."),
         _ => Error::input(
@@ -286,13 +289,16 @@ fn check_signature(path: &Path) -> Result<u64> {
     })?;
     let n = read_up_to(&mut f, &mut first)
         .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
+    if n >= 2 && first.starts_with(&[0x1f, 0x8b]) {
+        return Ok((meta.len(), true));
+    }
     if n < 80 || !first.starts_with(b"SIMPLE  =") {
         return Err(Error::input(
             path,
-            "is not a FITS file (it does not begin with the card SIMPLE = T); give a FITS image.",
+            "is not a FITS file (it does not begin with the card SIMPLE = T, nor is it gzip-compressed FITS); give a FITS image.",
         ));
     }
-    Ok(meta.len())
+    Ok((meta.len(), false))
 }
 
 fn read_up_to(f: &mut std::fs::File, buf: &mut [u8]) -> std::io::Result<usize> {
@@ -309,7 +315,7 @@ fn read_up_to(f: &mut std::fs::File, buf: &mut [u8]) -> std::io::Result<usize> {
 
 /// Loads a map as described by `opts`.
 pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
-    let file_len = check_signature(path)?;
+    let (file_len, gzipped) = check_signature(path)?;
     let cpath = CString::new(path.as_os_str().as_encoded_bytes())
         .map_err(|_| Error::input(path, "has a NUL byte in its name; rename it."))?;
     let mut status = 0;
@@ -329,11 +335,14 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     let nhdu = count_hdus(&fits, path)?;
     let index = choose_hdu(&fits, path, &opts.hdu, nhdu)?;
     move_to(&fits, path, index)?;
+    let compressed = is_compressed_image(&fits);
     let header = read_header(&fits, path)?;
     let (bitpix, axes) = image_shape(&fits, path, index)?;
     let (nx, ny, firstpix, plane) = plan_read(path, &header, &axes, opts.plane)?;
 
-    // The header's promise, checked against the file before any pixel buffer exists.
+    // The header's promise, checked against the file before any pixel buffer exists (not for
+    // a gzip-compressed file, whose length is not the data's; CFITSIO has already
+    // decompressed it, and a damaged stream fails there).
     let bpp = bytes_per_pixel(bitpix).ok_or_else(|| {
         Error::input(
             path,
@@ -344,13 +353,27 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     let (mut head0, mut data0, mut end0) = (0i64, 0i64, 0i64);
     // SAFETY: valid handle, out-pointers to locals.
     unsafe { sys::ffghadll(fits.ptr, &mut head0, &mut data0, &mut end0, &mut status) };
-    let needed = (data0 as u64).saturating_add(total.saturating_mul(bpp));
-    if status != 0 || needed > file_len {
+    let (needed, promised) = if compressed {
+        // A tile-compressed image is stored as a binary table: its data (rows and heap) end
+        // where the HDU ends, less at most the padding of the last 2880-byte block.
+        let stored = (end0 - data0).max(0) as u64;
+        (
+            (end0 as u64).saturating_sub(2879),
+            stored.saturating_sub(2879),
+        )
+    } else {
+        (
+            (data0 as u64).saturating_add(total.saturating_mul(bpp)),
+            total.saturating_mul(bpp),
+        )
+    };
+    if status != 0 || (!gzipped && needed > file_len) {
         return Err(Error::input(
             path,
             format!(
-                "is truncated: its header promises {} bytes of data for HDU {index} but the file ends {} bytes short; re-export or re-download it.",
-                total.saturating_mul(bpp),
+                "is truncated: its header promises {}{} bytes of data for HDU {index} but the file ends {} bytes short; re-export or re-download it.",
+                if compressed { "at least " } else { "" },
+                promised,
                 needed.saturating_sub(file_len)
             ),
         ));
@@ -548,13 +571,29 @@ fn move_to(fits: &FitsHandle, path: &Path, index: usize) -> Result<i32> {
     Ok(hdutype)
 }
 
+/// Whether the current HDU holds a tile-compressed image (stored as a binary table; FITS
+/// Standard 4.0, section 10), which CFITSIO reads as an image.
+fn is_compressed_image(fits: &FitsHandle) -> bool {
+    let mut status = 0;
+    // SAFETY: valid handle.
+    unsafe { sys::fits_is_compressed_image(fits.ptr, &mut status) != 0 && status == 0 }
+}
+
+/// The header of the current HDU; for a tile-compressed image, the header of the image it
+/// holds (its ZBITPIX, ZNAXISn, ... as BITPIX, NAXISn, ..., without the table's keywords),
+/// so that the image's keywords, not the table's, describe the map and go to the label maps.
 fn read_header(fits: &FitsHandle, path: &Path) -> Result<Header> {
     let mut status = 0;
     let mut text: *mut std::os::raw::c_char = std::ptr::null_mut();
     let mut nkeys = 0;
+    let to_string = if is_compressed_image(fits) {
+        sys::ffcnvthdr2str
+    } else {
+        sys::ffhdr2str
+    };
     // SAFETY: valid handle; CFITSIO allocates `text`, freed below with fffree.
     unsafe {
-        sys::ffhdr2str(
+        to_string(
             fits.ptr,
             0,
             std::ptr::null_mut(),

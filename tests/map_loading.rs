@@ -144,3 +144,47 @@ fn length_one_axes_are_squeezed_and_cube_planes_chosen() {
     .unwrap_err();
     assert!(e.message.contains("planes 0 to 3"), "{e}");
 }
+
+/// Compressed inputs read as astropy reads them: tile-compressed images (FITS Standard 4.0,
+/// section 10; a lossless 16-bit one and a quantised float one with a missing pixel) after an
+/// empty primary HDU, and a gzip-compressed file. The header is the image's, not its table's.
+#[test]
+fn compressed_files_read_as_astropy_reads_them() {
+    let v = fixture_json("fits/values.json");
+    for name in [
+        "compressed_int.fits.fz",
+        "compressed_float.fits.fz",
+        "gzipped.fits.gz",
+    ] {
+        let reference = &v["files"][name];
+        let m = map::load(&fixture_path(&format!("fits/{name}")), &opts()).unwrap();
+        let shape = nums(&reference["shape"]);
+        assert_eq!((m.ny(), m.nx()), (shape[0] as usize, shape[1] as usize));
+        assert_same_pixels(&m.data, &nums(&reference["values"]), name);
+        if name.ends_with(".fz") {
+            assert_eq!(m.hdu_index, 1, "{name}: the first image with data");
+            assert_eq!(m.header.get_i64("NAXIS1"), Some(m.nx() as i64), "{name}");
+            assert_eq!(m.header.get_str("TFORM1"), None, "{name}: no table keyword");
+            assert_eq!(m.unit_text, "Jy/beam", "{name}");
+            assert!(m.wcs.is_some(), "{name}: its sky header");
+        }
+    }
+    // The quantised image differs from what was written (so the dequantisation is checked),
+    // and one pixel is missing.
+    let r = &v["files"]["compressed_float.fits.fz"];
+    let (read, written) = (nums(&r["values"]), nums(&r["written"]));
+    assert!(read.iter().zip(&written).any(|(a, b)| a != b));
+    assert_eq!(read.iter().filter(|x| x.is_nan()).count(), 1);
+}
+
+/// A tile-compressed file cut short is refused before any pixel is read, with the sentence
+/// for truncated files.
+#[test]
+fn a_truncated_compressed_file_is_refused() {
+    let bytes = std::fs::read(fixture_path("fits/compressed_float.fits.fz")).unwrap();
+    let d = tempfile::tempdir().unwrap();
+    let cut = d.path().join("cut.fits.fz");
+    std::fs::write(&cut, &bytes[..bytes.len() - 2 * 2880]).unwrap();
+    let e = map::load(&cut, &opts()).unwrap_err();
+    assert!(e.message.contains("is truncated"), "{e}");
+}

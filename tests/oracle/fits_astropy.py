@@ -5,8 +5,8 @@ Source: astropy 8.0.2 astropy.io.fits (pinned in requirements.txt). For each BIT
 integer types, NaN for the float types), then reads it back with astropy and stores the
 values astropy returns (scaled, missing pixels as NaN) in fixtures/fits/values.json.
 Also written (see the end of the script for the spectral cubes): a file whose primary HDU is empty with the image in a named extension, a 3-D
-image with a length-1 third axis, a real cube, and a one-dimensional array. Pixel values are
-invented.
+image with a length-1 third axis, a real cube, a one-dimensional array, tile-compressed images
+and a gzip-compressed file. Pixel values are invented.
 """
 import os
 
@@ -103,6 +103,35 @@ h = base_header("cm-2")
 h["CTYPE3"] = "VRAD"
 write("cube.fits", fits.HDUList([fits.PrimaryHDU(cube, header=h)]))
 results["cube.fits"] = {"plane2": read_values(os.path.join(OUT, "cube.fits"))[2].ravel(), "shape": [NY, NX], "planes": 4}
+
+# Compressed files, after an empty primary HDU and with a sky header: a tile-compressed 16-bit
+# integer image (RICE_1, lossless), and a 32-bit float image quantised with subtractive
+# dithering (RICE_1 with astropy's defaults but a fixed dithering seed, so that the file is the
+# same on every run; large enough that no tile falls back to gzip, whose streams carry the
+# time); and a gzip-compressed copy of bitpix_-32.fits. The reference is what astropy
+# decompresses.
+h = base_header("Jy/beam")
+h["CTYPE1"], h["CTYPE2"] = "RA---TAN", "DEC--TAN"
+h["CRPIX1"], h["CRPIX2"] = 4.0, 3.0
+h["CRVAL1"], h["CRVAL2"] = 150.0, 10.0
+h["CDELT1"], h["CDELT2"] = -6 / 3600, 6 / 3600
+ints16 = pattern(12).astype(np.int16) - 50
+noisy = (np.random.default_rng(13).normal(10.0, 3.0, size=(48, 64))).astype(np.float32)
+noisy[5, 7] = np.nan
+for name, image, extra in (("compressed_int.fits.fz", ints16, {}),
+                           ("compressed_float.fits.fz", noisy, {"dither_seed": 1})):
+    write(name, fits.HDUList([fits.PrimaryHDU(),
+                              fits.CompImageHDU(image, header=h, compression_type="RICE_1", **extra)]))
+    results[name] = {"values": read_values(os.path.join(OUT, name), 1).ravel(),
+                     "shape": list(image.shape), "written": image.astype(np.float64).ravel()}
+import gzip  # noqa: E402
+import shutil  # noqa: E402
+
+with open(os.path.join(OUT, "bitpix_-32.fits"), "rb") as src, \
+        gzip.GzipFile(os.path.join(OUT, "gzipped.fits.gz"), "wb", mtime=0) as dst:
+    shutil.copyfileobj(src, dst)
+results["gzipped.fits.gz"] = {"values": read_values(os.path.join(OUT, "gzipped.fits.gz")).ravel(),
+                              "shape": [NY, NX]}
 
 write("line1d.fits", fits.HDUList([fits.PrimaryHDU(np.arange(10, dtype=np.float32), header=base_header())]))
 
