@@ -71,11 +71,20 @@ impl Header {
     /// Parses a header from its concatenated 80-character card images (as stored in a FITS
     /// file, or as returned by CFITSIO's `fits_hdr2str`). Parsing stops at `END`.
     pub fn parse(text: &str) -> Self {
-        let bytes = text.as_bytes();
+        Self::parse_bytes(text.as_bytes())
+    }
+
+    /// [`Header::parse`] of raw bytes: each 80-byte card is cut first, and a byte outside
+    /// printable ASCII (which FITS does not allow in a header, but which Latin-1 comments
+    /// bring) reads as `?`, so such a byte never shifts the cards after it.
+    pub fn parse_bytes(bytes: &[u8]) -> Self {
         let mut cards = Vec::new();
         for chunk in bytes.chunks(80) {
-            let line = String::from_utf8_lossy(chunk);
-            let line = line.as_ref();
+            let line: String = chunk
+                .iter()
+                .map(|&b| if b.is_ascii() { b as char } else { '?' })
+                .collect();
+            let line = line.as_str();
             let key = line
                 .get(..8.min(line.len()))
                 .unwrap_or("")

@@ -613,12 +613,11 @@ fn read_header(fits: &FitsHandle, path: &Path) -> Result<Header> {
         ));
     }
     // SAFETY: NUL-terminated string from CFITSIO.
-    let s = unsafe { CStr::from_ptr(text) }
-        .to_string_lossy()
-        .into_owned();
+    let bytes = unsafe { CStr::from_ptr(text) }.to_bytes().to_vec();
     // SAFETY: allocated by CFITSIO.
     unsafe { sys::fffree(text as *mut _, &mut status) };
-    Ok(Header::parse(&s))
+    // Card by card, so that a stray non-ASCII byte cannot shift the cards after it.
+    Ok(Header::parse_bytes(&bytes))
 }
 
 /// BITPIX and axis lengths of the current HDU if it is an image.

@@ -443,3 +443,34 @@ fn meaningless_option_values_are_refused() {
         "not understood",
     );
 }
+
+/// Bytes outside ASCII in a header (FITS allows none, but Latin-1 comments bring them: a
+/// degree sign, accented names) are read as placeholders card by card: no panic, and the cards
+/// after them (unit, sky coordinates) still count.
+#[test]
+fn latin1_bytes_in_a_header_shift_nothing() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &[]);
+    cards.push("COMMENT # is the degree sign".into());
+    cards.push("HISTORY reduced by J. Ma#a at Besan#on".into());
+    cards.push("TELESC  = 'T#lescope'".into());
+    cards.push("BUNIT   = 'MJy/sr'".into());
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    let mut bytes = fits_bytes(&cards, &good_pixels(256));
+    // '#' marks where the Latin-1 bytes go (0xB0 degree sign, 0xEF, 0xE7, 0xE9), one byte
+    // each, so the cards keep their 80 bytes.
+    let latin1 = [0xb0u8, 0xef, 0xe7, 0xe9];
+    let mut k = 0;
+    for b in bytes[..2880].iter_mut() {
+        if *b == b'#' {
+            *b = latin1[k % latin1.len()];
+            k += 1;
+        }
+    }
+    assert_eq!(k, 4);
+    s.write("latin1.fits", &bytes);
+    let o = cairn(&["inspect", "latin1.fits"], s.dir.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stdout.contains("MJy/sr"), "{}", o.stdout);
+    assert!(o.stdout.contains("ICRS"), "{}", o.stdout);
+}
