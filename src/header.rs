@@ -127,6 +127,38 @@ impl Header {
         }
     }
 
+    /// The value cards whose keyword appears more than once, by keyword (in order of first
+    /// appearance), each with its values in order.
+    pub fn repeated(&self) -> Vec<(String, Vec<Value>)> {
+        let mut out: Vec<(String, Vec<Value>)> = Vec::new();
+        for c in &self.cards {
+            let Some(v) = &c.value else { continue };
+            match out.iter_mut().find(|(k, _)| *k == c.key) {
+                Some((_, vs)) => vs.push(v.clone()),
+                None => out.push((c.key.clone(), vec![v.clone()])),
+            }
+        }
+        out.retain(|(_, vs)| vs.len() > 1);
+        out
+    }
+
+    /// The same header with only the last value card of each of the keywords `keep_last`
+    /// selects (others unchanged).
+    pub fn last_of(&self, keep_last: impl Fn(&str) -> bool) -> Header {
+        let mut cards: Vec<Card> = Vec::with_capacity(self.cards.len());
+        for (i, c) in self.cards.iter().enumerate() {
+            let later = c.value.is_some()
+                && keep_last(&c.key)
+                && self.cards[i + 1..]
+                    .iter()
+                    .any(|d| d.key == c.key && d.value.is_some());
+            if !later {
+                cards.push(c.clone());
+            }
+        }
+        Header { cards }
+    }
+
     /// Removes every value card with this keyword.
     pub fn remove(&mut self, key: &str) {
         let key = key.to_ascii_uppercase();

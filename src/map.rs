@@ -459,6 +459,28 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     }
 
     // Sky coordinates.
+    // A WCS keyword given twice: WCSLIB (and so astropy.wcs and most viewers) reads the last
+    // card, so cairn does too, and says so when the values differ. A CROTAi beside PCi_j
+    // cards is not read (the PC matrix wins, as in WCSLIB): said too.
+    for (key, values) in header.repeated() {
+        if crate::wcs::is_wcs_key(&key) && values.windows(2).any(|w| w[0] != w[1]) {
+            let shown: Vec<String> = values.iter().map(|v| v.to_string()).collect();
+            let times = match values.len() {
+                2 => "twice".to_string(),
+                n => format!("{n} times"),
+            };
+            warnings.push(format!(
+                "the header gives {key} {times} ({}); cairn reads the last, as WCSLIB (astropy.wcs) does",
+                shown.join(", ")
+            ));
+        }
+    }
+    if crate::wcs::any_pc_card(&header) && (header.contains("CROTA1") || header.contains("CROTA2"))
+    {
+        warnings.push(
+            "the header has both PCi_j cards and CROTAi: the PC matrix is read and CROTAi ignored, as WCSLIB (astropy.wcs) does; remove one of them if that is not what the map means".to_string(),
+        );
+    }
     let wcs = Wcs::from_header(&header).map_err(|e| {
         let e = e.to_string();
         let e = e.trim_end_matches('.');

@@ -173,6 +173,9 @@ impl Wcs {
     /// celestial coordinates (the map then loads in pixel units); `Err` for a header that
     /// claims celestial axes but cannot be used, with a sentence naming the keyword.
     pub fn from_header(h: &Header) -> Result<Option<Wcs>, WcsError> {
+        // A WCS keyword given more than once counts by its last card, as in WCSLIB.
+        let last = h.last_of(is_wcs_key);
+        let h = &last;
         let ct = [
             h.get_str("CTYPE1").unwrap_or("").trim().to_string(),
             h.get_str("CTYPE2").unwrap_or("").trim().to_string(),
@@ -356,7 +359,7 @@ impl Wcs {
 
     fn matrix_source(h: &Header) -> &'static str {
         let any = |p: &str| (1..=2).any(|i| (1..=2).any(|j| h.contains(&format!("{p}{i}_{j}"))));
-        if any("PC") {
+        if any_pc_card(h) {
             "PCi_j and CDELTi"
         } else if any("CD") {
             "CDi_j"
@@ -378,7 +381,10 @@ impl Wcs {
         for (i, c) in cdelt.iter_mut().enumerate() {
             *c = get(format!("CDELT{}", i + 1))?.unwrap_or(1.0);
         }
-        if has("PC") {
+        // A PCi_j card of any axis (a length-1 spectral axis's PC3_3, say) makes the header's
+        // matrix a PC matrix, with the unit matrix's values for the cards not given, and
+        // CROTAi is then not read, as WCSLIB (and so astropy.wcs) reads it.
+        if has("PC") || any_pc_card(h) {
             for (i, row) in m.iter_mut().enumerate() {
                 for (j, v) in row.iter_mut().enumerate() {
                     let d = if i == j { 1.0 } else { 0.0 };
@@ -392,9 +398,17 @@ impl Wcs {
                 }
             }
         } else {
+            // With lng and lat the axes' places (whichever is stored first), as WCSLIB builds
+            // it: CD_lng,lng = CDELT_lng cos, CD_lng,lat = -CDELT_lat sin,
+            // CD_lat,lng = CDELT_lng sin, CD_lat,lat = CDELT_lat cos; so the rotation has
+            // the same sense on the sky for a map stored latitude first.
             let rho = get(format!("CROTA{la}"))?.unwrap_or(0.0);
             let (s, c) = sincosd(rho);
-            m = [[cdelt[0] * c, -cdelt[1] * s], [cdelt[0] * s, cdelt[1] * c]];
+            let (lat, lng) = (la - 1, 2 - la);
+            m[lng][lng] = cdelt[lng] * c;
+            m[lng][lat] = -cdelt[lat] * s;
+            m[lat][lng] = cdelt[lng] * s;
+            m[lat][lat] = cdelt[lat] * c;
         }
         for i in 0..2 {
             for v in m[i].iter_mut() {
@@ -877,6 +891,40 @@ impl Wcs {
         }
         out
     }
+}
+
+/// Whether `key` is one of the keywords of a celestial WCS (FITS WCS Papers I and II, and
+/// SIP's A_, B_, AP_, BP_ coefficients).
+pub(crate) fn is_wcs_key(key: &str) -> bool {
+    const EXACT: [&str; 7] = [
+        "LONPOLE", "LATPOLE", "RADESYS", "RADECSYS", "EQUINOX", "EPOCH", "WCSAXES",
+    ];
+    const PREFIX: [&str; 13] = [
+        "CTYPE", "CRPIX", "CRVAL", "CDELT", "CUNIT", "CROTA", "CD", "PC", "PV", "A_", "B_", "AP_",
+        "BP_",
+    ];
+    EXACT.contains(&key)
+        || PREFIX.iter().any(|p| {
+            key.strip_prefix(p).is_some_and(|r| {
+                r.bytes().next().is_some_and(|b| b.is_ascii_digit()) || p.ends_with('_')
+            })
+        })
+}
+
+/// Whether the header has a PCi_j card of any axes (as WCSLIB, which then reads a PC
+/// matrix and not CROTAi).
+pub(crate) fn any_pc_card(h: &Header) -> bool {
+    h.cards().iter().any(|c| {
+        c.value.is_some()
+            && c.key.strip_prefix("PC").is_some_and(|r| {
+                r.split_once('_').is_some_and(|(i, j)| {
+                    !i.is_empty()
+                        && !j.is_empty()
+                        && i.bytes().all(|b| b.is_ascii_digit())
+                        && j.bytes().all(|b| b.is_ascii_digit())
+                })
+            })
+    })
 }
 
 #[cfg(test)]

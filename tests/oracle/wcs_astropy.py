@@ -79,6 +79,17 @@ def invented_headers():
     h["arc_crota"] = simple((300, 300), t(eq, "ARC"), (150.0, 140.0), (12.5, -47.25),
                             [("CROTA2", 30.0), ("RADESYS", "FK5"), ("EQUINOX", 2000.0)],
                             cdelt=(-0.2, 0.2))
+    # CROTA on a map stored latitude first (the rotation keeps its sense on the sky), and
+    # CROTA2 beside a PC card of another axis (a PC matrix then, and CROTA2 unread).
+    h["tan_crota_lat_first"] = simple((160, 120), ("DEC--TAN", "RA---TAN"), (60.5, 80.25),
+                                      (-5.375, 83.8125), [("CROTA1", 25.0)],
+                                      cdelt=(0.0012, -0.002))
+    h["tan_crota2_pc33"] = simple((160, 120), t(eq, "TAN"), (80.25, 60.5), (83.8125, -5.375),
+                                  [("CROTA2", 25.0), ("PC3_3", 1.0)], cdelt=(-0.002, 0.0012))
+    # WCS keywords given twice, the later cards differing: WCSLIB reads the last.
+    h["tan_repeated_cards"] = simple((120, 100), t(eq, "TAN"), (60.5, 50.5), (83.8221, -5.3911),
+                                     [("CDELT1", -0.002), ("CRVAL1", 83.9)],
+                                     cdelt=(-0.00166666666666667, 0.00166666666666667))
     h["tan_arcmin"] = simple((120, 100), t(eq, "TAN"), (60.0, 50.0), (7200.0, 1230.0),
                              cdelt=(-0.5, 0.5), cunit=("arcmin", "arcmin"))
     h["tan_arcsec_fk4"] = simple((100, 100), t(eq, "TAN"), (50.0, 50.0), (100.25, 20.125),
