@@ -419,9 +419,23 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         ));
     }
     drop(fits);
+    // Values beyond the range of 32-bit floats (in 64-bit data: such as -1e300 written as a
+    // blank) arrive infinite; they are missing pixels, as infinities stored in the file are
+    // (CFITSIO reads those as null), and a warning counts them.
+    let beyond = buf.iter().filter(|v| v.is_infinite()).count();
+    if beyond > 0 {
+        for v in buf.iter_mut().filter(|v| v.is_infinite()) {
+            *v = f32::NAN;
+        }
+    }
     let data = Array2::from_shape_vec((ny, nx), buf).map_err(|e| Error::internal(e.to_string()))?;
 
     let mut warnings = Vec::new();
+    if beyond > 0 {
+        warnings.push(format!(
+            "{beyond} pixels hold values beyond the range of 32-bit floats (about 3.4e38 in size, such as -1e300 written as a blank); they are treated as missing"
+        ));
+    }
     let hdu_name = header.get_str("EXTNAME").map(str::to_string);
 
     // Units.
@@ -433,6 +447,9 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         ),
     };
     let unit = units::parse_pixel_unit(&unit_text, opts.band);
+    if unit.is_some() && matches!(unit_source, Source::Header) {
+        warnings.extend(units::prefix_case_note(&unit_text));
+    }
     if unit.is_none() && matches!(unit_source, Source::Option) {
         return Err(Error::usage(format!(
             "--unit '{}' is not understood; give one of cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel.",
@@ -867,9 +884,22 @@ pub fn beam_from_header(h: &Header) -> std::result::Result<Option<Beam>, String>
 /// Metres per unit of CUNITn on a WAVE axis, and Hz per unit on a FREQ axis (an empty or
 /// unknown unit counts as the FITS default, m or Hz).
 fn spectral_unit_factor(freq: bool, cunit: &str) -> Option<f64> {
+    // Older headers write units in capitals (`GHZ`, `MHZ` for megahertz, `UM`), which WCSLIB
+    // also reads; a unit in capitals is matched without case (among these units no two
+    // differ by case alone but mHz against MHz, and MHZ is megahertz in such headers).
+    let all_caps = cunit.chars().any(|c| c.is_ascii_alphabetic())
+        && !cunit.chars().any(|c| c.is_ascii_lowercase());
+    let canonical = |names: &[&'static str]| -> &'static str {
+        names
+            .iter()
+            .find(|n| **n == cunit || (all_caps && n.eq_ignore_ascii_case(cunit)))
+            .copied()
+            .unwrap_or("?")
+    };
     if freq {
-        match cunit {
-            "" | "Hz" => Some(1.0),
+        match canonical(&["Hz", "THz", "GHz", "MHz", "kHz"]) {
+            _ if cunit.is_empty() => Some(1.0),
+            "Hz" => Some(1.0),
             "THz" => Some(1e12),
             "GHz" => Some(1e9),
             "MHz" => Some(1e6),
@@ -877,8 +907,9 @@ fn spectral_unit_factor(freq: bool, cunit: &str) -> Option<f64> {
             _ => None,
         }
     } else {
-        match cunit {
-            "" | "m" => Some(1.0),
+        match canonical(&["m", "um", "mm", "cm", "nm", "Angstrom"]) {
+            _ if cunit.is_empty() => Some(1.0),
+            "m" => Some(1.0),
             "um" => Some(1e-6),
             "mm" => Some(1e-3),
             "cm" => Some(1e-2),
@@ -1184,6 +1215,19 @@ mod tests {
         assert!(
             (l - units::C_LIGHT / 3.53e11).abs() < 1e-15 && w.is_empty(),
             "{w:?}"
+        );
+        // A unit in capitals, as older headers write it (WCSLIB reads GHZ as GHz).
+        let mut w2 = Vec::new();
+        let h = cards(&[
+            "CTYPE3  = 'FREQ    '",
+            "CUNIT3  = 'GHZ     '",
+            "CRVAL3  =                353.0",
+            "CRPIX3  =                  1.0",
+        ]);
+        let l = wavelength_from_header(&h, &mut w2).unwrap();
+        assert!(
+            (l - units::C_LIGHT / 3.53e11).abs() < 1e-15 && w2.is_empty(),
+            "{w2:?}"
         );
         // No CRPIX3: the standard's 0, one step from CRVAL3, and a warning that says so.
         let h = cards(&[

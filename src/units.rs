@@ -236,6 +236,8 @@ fn normalise_unit(u: &str) -> String {
         }
     }
     s = s.replace("/pixelel", "/pixel");
+    // "." is the FITS multiplication sign: "MJy.sr-1" is MJy/sr once "sr-1" reads "/sr".
+    s = s.replace("./", "/");
     if s.starts_with("/cm2") || s == "1/cm2" {
         s = "cm-2".into();
     }
@@ -468,6 +470,41 @@ fn split_jansky(s: &str, all_upper: bool) -> Option<(f64, String)> {
     Some((prefix, rest))
 }
 
+/// A note for a jansky unit whose letters are all of one case and whose prefix is m or M
+/// where the reading goes against the usual unit (`MJY/BEAM` read as mega, `mjy/sr` as
+/// milli; not `MJY/SR` or `mjy/beam`): its case cannot tell milli from mega, so the note says
+/// which [`parse_pixel_unit`] read (mega when all upper case, milli when all lower) and how
+/// to give the other. `None` for any other unit.
+pub fn prefix_case_note(bunit: &str) -> Option<String> {
+    let raw = bunit.trim();
+    let lower = raw.to_ascii_lowercase();
+    let pos = lower.find("jy")?;
+    if pos != 1 {
+        return None;
+    }
+    let letters: Vec<char> = raw.chars().filter(|c| c.is_ascii_alphabetic()).collect();
+    let upper = letters.iter().all(|c| c.is_ascii_uppercase());
+    let all_lower = letters.iter().all(|c| c.is_ascii_lowercase());
+    if !(upper || all_lower) || !matches!(&raw[..1], "m" | "M") {
+        return None;
+    }
+    let rest = normalise_unit(&raw[3..]).to_ascii_lowercase();
+    // Said only where the reading goes against the usual unit: MJy/sr is the usual surface
+    // brightness (`MJY/SR` is common and means it), mJy the usual flux per beam or pixel.
+    let per_sr = rest == "/sr";
+    if upper == per_sr {
+        return None;
+    }
+    let (read, other) = if upper {
+        ("MJy", "mJy")
+    } else {
+        ("mJy", "MJy")
+    };
+    Some(format!(
+        "BUNIT '{raw}' is in one case, which cannot tell milli from mega: read as {read}{rest}; if {other}{rest} is meant, give --unit {other}{rest}"
+    ))
+}
+
 /// The unit of a sum of map values over pixels (map unit times pixel), written so that a
 /// FITS or VO unit parser reads it as that product: `pixel` goes into the numerator, before the
 /// first `/` (`Jy/beam` gives `Jy pixel/beam`, not `Jy/beam pixel`, which parsers read as
@@ -497,6 +534,37 @@ pub fn times_pixel(unit: &str) -> String {
 mod tests {
     use super::*;
     use Dimension::*;
+
+    #[test]
+    fn fits_multiplication_dots_and_one_case_prefixes() {
+        // "." multiplies in FITS units (FITS Standard 4.0 sec. 4.3; astropy reads MJy.sr-1 as
+        // MJy/sr): the same units as with "/".
+        let v = ExtinctionBand::V;
+        assert_eq!(
+            parse_pixel_unit("MJy.sr-1", v),
+            parse_pixel_unit("MJy/sr", v)
+        );
+        assert_eq!(
+            parse_pixel_unit("Jy.beam-1", v),
+            parse_pixel_unit("Jy/beam", v)
+        );
+        assert!(parse_pixel_unit("MJy.sr-1", v).is_some());
+        // One-case prefixes: noted only against the usual unit.
+        assert_eq!(prefix_case_note("MJY/SR"), None);
+        assert_eq!(prefix_case_note("mjy/beam"), None);
+        assert_eq!(prefix_case_note("MJy/beam"), None);
+        assert_eq!(prefix_case_note("JY/BEAM"), None);
+        let n = prefix_case_note("MJY/BEAM").unwrap();
+        assert!(
+            n.contains("read as MJy/beam") && n.contains("--unit mJy/beam"),
+            "{n}"
+        );
+        let n = prefix_case_note("mjy/sr").unwrap();
+        assert!(
+            n.contains("read as mJy/sr") && n.contains("--unit MJy/sr"),
+            "{n}"
+        );
+    }
 
     #[test]
     fn sums_over_pixels_keep_the_pixel_in_the_numerator() {

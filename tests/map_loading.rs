@@ -188,3 +188,53 @@ fn a_truncated_compressed_file_is_refused() {
     let e = map::load(&cut, &opts()).unwrap_err();
     assert!(e.message.contains("is truncated"), "{e}");
 }
+
+/// 64-bit values beyond the range of 32-bit floats (a -1e300 blank, 1e39) are missing pixels,
+/// counted in a warning, rather than infinities among the values. The file is assembled by
+/// hand after the FITS Standard 4.0 (80-byte cards in 2880-byte blocks, big-endian IEEE data).
+#[test]
+fn values_beyond_32_bit_floats_are_missing() {
+    let (nx, ny) = (6usize, 4usize);
+    let mut head = String::new();
+    for c in [
+        "SIMPLE  =                    T".to_string(),
+        "BITPIX  =                  -64".to_string(),
+        "NAXIS   =                    2".to_string(),
+        format!("NAXIS1  = {nx:>20}"),
+        format!("NAXIS2  = {ny:>20}"),
+        "BUNIT   = 'MJy/sr'".to_string(),
+        "END".to_string(),
+    ] {
+        head.push_str(&format!("{c:<80}"));
+    }
+    while !head.len().is_multiple_of(2880) {
+        head.push(' ');
+    }
+    let mut bytes = head.into_bytes();
+    for i in 0..nx * ny {
+        let v = match i {
+            3 => -1e300,
+            10 => 1e39,
+            _ => i as f64 * 0.5,
+        };
+        bytes.extend_from_slice(&v.to_be_bytes());
+    }
+    while !bytes.len().is_multiple_of(2880) {
+        bytes.push(0);
+    }
+    let d = tempfile::tempdir().unwrap();
+    let path = d.path().join("sentinel.fits");
+    std::fs::write(&path, &bytes).unwrap();
+    let m = map::load(&path, &opts()).unwrap();
+    assert_eq!(m.missing_count(), 2);
+    assert!(m.data[[0, 3]].is_nan() && m.data[[1, 4]].is_nan());
+    assert_eq!(m.data[[0, 2]], 1.0);
+    assert!(m.data.iter().all(|v| !v.is_infinite()));
+    assert!(
+        m.warnings
+            .iter()
+            .any(|w| w.starts_with("2 pixels hold values beyond")),
+        "{:?}",
+        m.warnings
+    );
+}
