@@ -336,7 +336,10 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     let index = choose_hdu(&fits, path, &opts.hdu, nhdu)?;
     move_to(&fits, path, index)?;
     let compressed = is_compressed_image(&fits);
-    let header = read_header(&fits, path)?;
+    let mut header = read_header(&fits, path)?;
+    if index > 0 && header.get_bool("INHERIT") == Some(true) {
+        inherit_primary(&fits, path, index, &mut header)?;
+    }
     let (bitpix, axes) = image_shape(&fits, path, index)?;
     let (nx, ny, firstpix, plane) = plan_read(path, &header, &axes, opts.plane)?;
 
@@ -608,6 +611,47 @@ fn move_to(fits: &FitsHandle, path: &Path, index: usize) -> Result<i32> {
         ));
     }
     Ok(hdutype)
+}
+
+/// The INHERIT convention (registered with the IAU FITS Working Group; its rules here from
+/// memory): an extension with `INHERIT = T` takes the primary header's keywords it does not
+/// have itself, except the structural ones (SIMPLE, BITPIX, NAXISn, EXTEND, PCOUNT, GCOUNT),
+/// the checksums and the scaling of the primary's own data (BSCALE, BZERO, BLANK); COMMENT and
+/// HISTORY cards are not taken. The current HDU stays `index`.
+fn inherit_primary(
+    fits: &FitsHandle,
+    path: &Path,
+    index: usize,
+    header: &mut Header,
+) -> Result<()> {
+    move_to(fits, path, 0)?;
+    let primary = read_header(fits, path)?;
+    move_to(fits, path, index)?;
+    let structural = |k: &str| {
+        matches!(
+            k,
+            "SIMPLE"
+                | "BITPIX"
+                | "EXTEND"
+                | "PCOUNT"
+                | "GCOUNT"
+                | "CHECKSUM"
+                | "DATASUM"
+                | "BSCALE"
+                | "BZERO"
+                | "BLANK"
+                | "INHERIT"
+                | "EXTNAME"
+                | "XTENSION"
+        ) || k.starts_with("NAXIS")
+    };
+    for c in primary.cards() {
+        let Some(v) = &c.value else { continue };
+        if !structural(&c.key) && !header.contains(&c.key) {
+            header.set(&c.key, v.clone(), &c.comment);
+        }
+    }
+    Ok(())
 }
 
 /// Whether the current HDU holds a tile-compressed image (stored as a binary table; FITS

@@ -8,7 +8,7 @@
 mod common;
 
 use cairn::map::{self, HduChoice, LoadOptions};
-use common::{fixture_json, fixture_path, nums};
+use common::{fixture_json, fixture_path, num, nums};
 
 fn opts() -> LoadOptions {
     LoadOptions::default()
@@ -236,5 +236,26 @@ fn values_beyond_32_bit_floats_are_missing() {
             .any(|w| w.starts_with("2 pixels hold values beyond")),
         "{:?}",
         m.warnings
+    );
+}
+
+/// An image extension with INHERIT = T reads the primary header's keywords it lacks (unit,
+/// WCS, beam), its own taking precedence (here CRVAL1): the sky position of a pixel equals
+/// astropy 8.0.2's wcs_pix2world on the header the convention makes (astropy itself applies
+/// no inheritance; tests/oracle/fits_astropy.py merges the cards).
+#[test]
+fn an_extension_with_inherit_reads_the_primary_header() {
+    let v = fixture_json("fits/values.json");
+    let r = &v["files"]["inherit.fits"];
+    let m = map::load(&fixture_path("fits/inherit.fits"), &opts()).unwrap();
+    assert_eq!(m.hdu_index, 1);
+    assert_eq!(m.unit_text, "MJy/sr");
+    assert!(m.beam.is_some(), "the primary's beam");
+    let p = nums(&r["pixel"]);
+    let (lon, lat) = m.wcs.as_ref().unwrap().pixel_to_sky(p[0], p[1]).unwrap();
+    let (rl, rb) = (num(&r["lon"]), num(&r["lat"]));
+    assert!(
+        (lon - rl).abs() < 1e-9 && (lat - rb).abs() < 1e-9,
+        "{lon} {lat} against {rl} {rb}"
     );
 }

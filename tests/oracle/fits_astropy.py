@@ -124,6 +124,34 @@ for name, image, extra in (("compressed_int.fits.fz", ints16, {}),
                               fits.CompImageHDU(image, header=h, compression_type="RICE_1", **extra)]))
     results[name] = {"values": read_values(os.path.join(OUT, name), 1).ravel(),
                      "shape": list(image.shape), "written": image.astype(np.float64).ravel()}
+# The INHERIT convention: the image extension has INHERIT = T and only its own CRVAL1; BUNIT,
+# the rest of the WCS and the beam are in the primary header. astropy applies no inheritance,
+# so the reference is astropy.wcs on the header the convention makes (the primary's cards the
+# extension lacks, but the structural ones, added to the extension's): the sky position of
+# pixel (2, 1), 0-based.
+prim = fits.Header()
+prim["BUNIT"] = "MJy/sr"
+prim["CTYPE1"], prim["CTYPE2"] = "RA---TAN", "DEC--TAN"
+prim["CRPIX1"], prim["CRPIX2"] = 4.0, 3.0
+prim["CRVAL1"], prim["CRVAL2"] = 150.0, 10.0
+prim["CDELT1"], prim["CDELT2"] = -6 / 3600, 6 / 3600
+prim["BMAJ"], prim["BMIN"], prim["BPA"] = 18 / 3600, 18 / 3600, 0.0
+ext = fits.Header()
+ext["INHERIT"] = True
+ext["CRVAL1"] = 150.5
+write("inherit.fits", fits.HDUList([fits.PrimaryHDU(header=prim),
+                                    fits.ImageHDU(sig, header=ext, name="SCI")]))
+with fits.open(os.path.join(OUT, "inherit.fits")) as hdul:
+    merged = hdul[1].header.copy()
+    for card in hdul[0].header.cards:
+        if card.keyword not in merged and card.keyword not in ("SIMPLE", "BITPIX", "EXTEND") \
+                and not card.keyword.startswith("NAXIS"):
+            merged[card.keyword] = card.value
+from astropy.wcs import WCS as _WCS  # noqa: E402
+
+lon, lat = _WCS(merged).wcs_pix2world([[2.0, 1.0]], 0)[0]
+results["inherit.fits"] = {"pixel": [2.0, 1.0], "lon": lon, "lat": lat, "unit": "MJy/sr"}
+
 import gzip  # noqa: E402
 import shutil  # noqa: E402
 
