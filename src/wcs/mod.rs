@@ -324,8 +324,19 @@ impl Wcs {
         let frame = Self::frame_of(&pair, radesys.as_deref(), equinox);
 
         let (alpha_p, delta_p, phi_p) =
-            Self::native_pole(lon0, lat0, proj.phi0, proj.theta0, lonpole, latpole)
-                .map_err(|e| WcsError(format!("{e} (CRVAL{lo} = {lon0}, CRVAL{la} = {lat0})")))?;
+            Self::native_pole(lon0, lat0, proj.phi0, proj.theta0, lonpole, latpole).map_err(
+                |e| {
+                    let given = |k: &str, v: Option<f64>| match v {
+                        Some(v) => format!(", {k} = {v}"),
+                        None => String::new(),
+                    };
+                    WcsError(format!(
+                        "{e} (CRVAL{lo} = {lon0}, CRVAL{la} = {lat0}{}{}); check those keywords",
+                        given("LONPOLE", lonpole),
+                        given("LATPOLE", latpole)
+                    ))
+                },
+            )?;
         let (sin_dp, cos_dp) = sincosd(delta_p);
         let proj_code = proj.code.clone();
         let mut ctype = ct.clone();
@@ -1105,7 +1116,7 @@ mod tests {
         let e = Wcs::from_header(&h).unwrap_err().to_string();
         assert_eq!(
             e,
-            "no valid celestial latitude of the native pole exists (CRVAL1 = 0, CRVAL2 = 35)"
+            "no valid celestial latitude of the native pole exists (CRVAL1 = 0, CRVAL2 = 35, LONPOLE = 170); check those keywords"
         );
         let h = header(&[
             "CTYPE1  = 'RA---NCP'",
