@@ -331,7 +331,7 @@ impl Wcs {
                         None => String::new(),
                     };
                     WcsError(format!(
-                        "{e} (CRVAL{lo} = {lon0}, CRVAL{la} = {lat0}{}{}); check those keywords",
+                        "{e} (CRVAL{lo} = {lon0}, CRVAL{la} = {lat0}{}{})",
                         given("LONPOLE", lonpole),
                         given("LATPOLE", latpole)
                     ))
@@ -1116,7 +1116,7 @@ mod tests {
         let e = Wcs::from_header(&h).unwrap_err().to_string();
         assert_eq!(
             e,
-            "no valid celestial latitude of the native pole exists (CRVAL1 = 0, CRVAL2 = 35, LONPOLE = 170); check those keywords"
+            "no valid celestial latitude of the native pole exists (CRVAL1 = 0, CRVAL2 = 35, LONPOLE = 170)"
         );
         let h = header(&[
             "CTYPE1  = 'RA---NCP'",
