@@ -2,27 +2,11 @@
 //! no panic, nothing written. The FITS files here are assembled byte by byte following the
 //! FITS Standard 4.0 (2880-byte blocks of 80-character cards, big-endian data).
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+#[path = "common/cli.rs"]
+mod cli;
 
-struct Outcome {
-    code: i32,
-    stderr: String,
-    stdout: String,
-}
-
-fn cairn(args: &[&str], dir: &Path) -> Outcome {
-    let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("run cairn");
-    Outcome {
-        code: out.status.code().unwrap_or(-1),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-    }
-}
+use cli::{cairn, check_refused};
+use std::path::PathBuf;
 
 /// A FITS file from header cards and big-endian f32 pixels.
 fn fits_bytes(cards: &[String], pixels: &[f32]) -> Vec<u8> {
@@ -98,37 +82,11 @@ impl Scratch {
     }
 }
 
-/// The rule for bad input: exit 2, one line on stderr naming `names`, no panic, nothing new.
+/// The rule for bad input ([`check_refused`]), and nothing new in the folder.
 fn assert_refused(s: &Scratch, args: &[&str], names: &str, says: &str) {
     let before = s.listing();
     let o = cairn(args, s.dir.path());
-    assert_eq!(o.code, 2, "exit code for {args:?}: stderr {}", o.stderr);
-    assert!(
-        !o.stderr.contains("panicked"),
-        "panic for {args:?}: {}",
-        o.stderr
-    );
-    assert_eq!(
-        o.stderr.trim_end().lines().count(),
-        1,
-        "one sentence for {args:?}: {}",
-        o.stderr
-    );
-    assert!(
-        o.stderr.contains(names),
-        "{args:?}: stderr should name {names}: {}",
-        o.stderr
-    );
-    assert!(
-        o.stderr.contains(says),
-        "{args:?}: stderr should say '{says}': {}",
-        o.stderr
-    );
-    assert!(
-        o.stdout.is_empty(),
-        "{args:?}: nothing on stdout: {}",
-        o.stdout
-    );
+    check_refused(&o, args, names, says);
     assert_eq!(s.listing(), before, "{args:?}: nothing written");
 }
 

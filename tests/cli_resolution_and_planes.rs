@@ -63,26 +63,14 @@ fn write_map(dir: &Path, name: &str, n: usize) -> PathBuf {
     p
 }
 
-/// Exit 2, one sentence on stderr containing each of `says`, no panic, nothing written.
+/// The rule for bad input ([`cli::check_refused`]), a sentence containing each of `says`, and
+/// nothing written.
 fn assert_refused(dir: &Path, args: &[&str], says: &[&str]) -> String {
     let before = listing(dir);
     let o = cairn(args, dir);
-    assert_eq!(o.code, 2, "exit code for {args:?}: stderr {}", o.stderr);
-    assert!(!o.stderr.contains("panicked"), "{args:?}: {}", o.stderr);
-    assert_eq!(
-        o.stderr.trim_end().lines().count(),
-        1,
-        "one sentence for {args:?}: {}",
-        o.stderr
-    );
     for s in says {
-        assert!(
-            o.stderr.contains(s),
-            "{args:?}: stderr should say '{s}': {}",
-            o.stderr
-        );
+        cli::check_refused(&o, args, s, s);
     }
-    assert!(o.stdout.is_empty(), "{args:?}: {}", o.stdout);
     assert_eq!(listing(dir), before, "{args:?}: nothing written");
     o.stderr
 }

@@ -8,39 +8,7 @@ use std::path::Path;
 
 #[cfg(unix)]
 use cli::cairn_limited;
-use cli::{Outcome, cairn, listing};
-
-/// The rule for bad input: exit 2, one line on stderr naming `names` and saying `says`, no
-/// panic, nothing on stdout, and nothing new in the folder (no output folder left behind).
-fn check_refused(o: &Outcome, args: &[&str], names: &str, says: &str) {
-    assert_eq!(o.code, 2, "exit code for {args:?}: stderr {}", o.stderr);
-    assert!(
-        !o.stderr.contains("panicked") && !o.stderr.contains("memory allocation"),
-        "panic or abort for {args:?}: {}",
-        o.stderr
-    );
-    assert_eq!(
-        o.stderr.trim_end().lines().count(),
-        1,
-        "one sentence for {args:?}: {}",
-        o.stderr
-    );
-    assert!(
-        o.stderr.contains(names),
-        "{args:?}: stderr should name {names}: {}",
-        o.stderr
-    );
-    assert!(
-        o.stderr.contains(says),
-        "{args:?}: stderr should say '{says}': {}",
-        o.stderr
-    );
-    assert!(
-        o.stdout.is_empty(),
-        "{args:?}: nothing on stdout: {}",
-        o.stdout
-    );
-}
+use cli::{cairn, check_refused, listing};
 
 fn assert_refused(extra: &[&str], names: &str, says: &str) {
     let dir = tempfile::tempdir().unwrap();

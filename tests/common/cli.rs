@@ -1,5 +1,6 @@
 //! Running the `cairn` binary from integration tests: its exit code and output, optionally
-//! with its address space limited, and the listing of a folder (to check nothing was left).
+//! with its address space limited, the listing of a folder (to check nothing was left), and
+//! the rule every refusal of bad input keeps.
 #![allow(dead_code)]
 
 use std::path::Path;
@@ -54,4 +55,36 @@ pub fn listing(dir: &Path) -> Vec<String> {
         .collect();
     v.sort();
     v
+}
+
+/// The rule for bad input, on a run given `args`: exit 2, one line on stderr naming `names`
+/// and saying `says`, no panic or abort for want of memory, and nothing on stdout.
+pub fn check_refused(o: &Outcome, args: &[&str], names: &str, says: &str) {
+    assert_eq!(o.code, 2, "exit code for {args:?}: stderr {}", o.stderr);
+    assert!(
+        !o.stderr.contains("panicked") && !o.stderr.contains("memory allocation"),
+        "panic or abort for {args:?}: {}",
+        o.stderr
+    );
+    assert_eq!(
+        o.stderr.trim_end().lines().count(),
+        1,
+        "one sentence for {args:?}: {}",
+        o.stderr
+    );
+    assert!(
+        o.stderr.contains(names),
+        "{args:?}: stderr should name {names}: {}",
+        o.stderr
+    );
+    assert!(
+        o.stderr.contains(says),
+        "{args:?}: stderr should say '{says}': {}",
+        o.stderr
+    );
+    assert!(
+        o.stdout.is_empty(),
+        "{args:?}: nothing on stdout: {}",
+        o.stdout
+    );
 }
