@@ -416,13 +416,14 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
         }
     }
     assumptions.push(format!(
-        "mu_H2 = {}, mu_p = {} ({})",
+        "mu_H2 = {}, mu_p = {} ({}), m_H = {} u",
         ctx.mu_h2,
         ctx.mu_p,
         source(
             ctx.mu_h2 == defaults.mu_h2 && ctx.mu_p == defaults.mu_p,
             "Kauffmann et al. 2008"
-        )
+        ),
+        crate::physics::constants::M_H_U
     ));
     if let Some(d) = ctx.distance_m {
         assumptions.push(format!("distance {} pc", d / PC));

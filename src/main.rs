@@ -240,10 +240,11 @@ struct PhysicsArgs {
     /// N(H2) per magnitude of A_V [default: 9.4e20cm-2].
     #[arg(long, value_name = "COLUMN", allow_hyphen_values = true)]
     column_per_av: Option<String>,
-    /// A_V per magnitude of A_K [default: 8.93].
+    /// A_V per magnitude of A_K [default: 1/0.112 = 8.929].
     #[arg(long, value_name = "RATIO", allow_hyphen_values = true)]
     av_per_ak: Option<f64>,
-    /// Non-thermal velocity dispersion, such as 0.3km/s (enables the virial parameter).
+    /// One-dimensional non-thermal velocity dispersion, such as 0.3km/s (enables the virial
+    /// parameter).
     #[arg(
         long,
         value_name = "SPEED",

@@ -583,11 +583,16 @@ pub fn catalogue(
         t.push_f64(
             "pa",
             "deg",
-            "position angle of the major axis, east of north, 0 to 180",
+            "position angle of the major axis, east of north in the map's frame, 0 to 180",
             f(&|m| m.pa_deg),
         );
     }
-    t.push_f64("aspect", "", "major / minor axis ratio", f(&|m| m.aspect));
+    t.push_f64(
+        "aspect",
+        "",
+        "sigma_major_px / sigma_minor_px (in pixels; fwhm_major / fwhm_minor on the sky)",
+        f(&|m| m.aspect),
+    );
     t.push_f64(
         "sum",
         &usum,
@@ -668,7 +673,7 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
     t.push_f64(
         "mass_err",
         "solMass",
-        "noise uncertainty of the masses (systematics not included)",
+        "noise uncertainty of the masses: noise x sqrt(area_px x min(beam area, area_px)) converted to mass, one independent value per beam (systematics not included)",
         p(&|x| x.mass_err),
     );
     t.push_f64(
@@ -697,7 +702,7 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
     t.push_f64(
         "jeans_mass",
         "solMass",
-        "Jeans mass at the mean density and temperature",
+        "Jeans mass (pi^(5/2) / 6) c_s^3 / (G^(3/2) rho^(1/2)) at the mean density and temperature: a sphere of diameter jeans_length",
         p(&|x| x.jeans_mass),
     );
     t.push_f64(
@@ -709,7 +714,7 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
     t.push_f64(
         "be_mass",
         "solMass",
-        "critical Bonnor-Ebert mass 2.43 R c_s^2 / G",
+        "critical Bonnor-Ebert mass 2.43 R c_s^2 / G, R = radius_pc, c_s at the temperature",
         p(&|x| x.be_mass),
     );
     t.push_f64("alpha_be", "", "be_mass / mass_excess", p(&|x| x.alpha_be));
@@ -722,7 +727,7 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
     t.push_f64(
         "alpha_vir",
         "",
-        "virial parameter 5 sigma_v^2 R / (G mass_excess)",
+        "virial parameter 5 sigma_v^2 R / (G mass_excess), R = radius_pc",
         p(&|x| x.alpha_vir),
     );
     t.push_f64(
@@ -1351,6 +1356,11 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
         fmt_f64(ctx.mu_p),
         "mean molecular weight per particle".into(),
     ));
+    v.push((
+        "m_h".into(),
+        fmt_f64(crate::physics::constants::M_H_U),
+        "u, mass of a hydrogen atom (multiplied by mu_h2 and mu_p)".into(),
+    ));
     if let Some(s) = &ctx.sigma_nt {
         v.push(match s {
             crate::score::Field::Uniform(ms) => (
@@ -1396,6 +1406,7 @@ pub fn physics_record(
         "opacity": { "kappa0_cm2_per_g": ctx.opacity.kappa0_cm2_per_g, "nu0_hz": ctx.opacity.nu0_hz, "beta": ctx.opacity.beta },
         "mu_h2": ctx.mu_h2,
         "mu_p": ctx.mu_p,
+        "m_h_u": crate::physics::constants::M_H_U,
         "nh2_per_av_cm2": ctx.nh2_per_av_m2 * 1e-4,
         "av_per_ak": ctx.av_per_ak,
         "sigma_nt": ctx.sigma_nt.as_ref().map(|s| s.describe("m/s")),

@@ -17,11 +17,13 @@ pub const C: f64 = 299_792_458.0;
 pub const M_P: f64 = 1.672_621_925_95e-27;
 /// Atomic mass constant (unified atomic mass unit) u \[kg\] (CODATA 2022).
 pub const U: f64 = 1.660_539_068_92e-27;
-/// Mass of a hydrogen atom m_H \[kg\], taken as the conventional standard atomic weight of
-/// hydrogen, 1.008, times the atomic mass constant (IUPAC Commission on Isotopic Abundances and
-/// Atomic Weights, conventional value 1.008; value quoted from memory). Used with the mean
-/// molecular weights of Kauffmann et al. (2008).
-pub const M_H: f64 = 1.008 * U;
+/// The conventional standard atomic weight of hydrogen, 1.008 (IUPAC Commission on Isotopic
+/// Abundances and Atomic Weights, conventional value; value quoted from memory): the mass of a
+/// hydrogen atom in units of [`U`].
+pub const M_H_U: f64 = 1.008;
+/// Mass of a hydrogen atom m_H \[kg\]: [`M_H_U`] times the atomic mass constant. Used with the
+/// mean molecular weights of Kauffmann et al. (2008).
+pub const M_H: f64 = M_H_U * U;
 /// Nominal solar mass parameter GM_sun [m^3 s^-2] (IAU 2015 Resolution B3).
 pub const GM_SUN: f64 = 1.327_124_4e20;
 /// Solar mass M_sun \[kg\] = GM_sun / G, as astropy derives it (IAU 2015 Resolution B3 with
