@@ -208,6 +208,11 @@ impl Default for Options {
 
 /// Summarises one population.
 pub fn summarise(p: &Population, o: &Options) -> Summary {
+    summarise_with(p, o, &|| {})
+}
+
+/// [`summarise`], calling `tick` once per bootstrap resample (from any thread).
+fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summary {
     let mut notes = vec![];
     let search = XminSearch::default();
     let tail = match populations::fit_power_law(&p.masses, o.mass_min, &search) {
@@ -222,7 +227,7 @@ pub fn summarise(p: &Population, o: &Options) -> Summary {
         }
     };
     let tail_bootstrap = tail.as_ref().and_then(|_| {
-        populations::bootstrap_power_law(
+        populations::bootstrap_power_law_with(
             &p.masses,
             o.mass_min,
             &search,
@@ -230,6 +235,7 @@ pub fn summarise(p: &Population, o: &Options) -> Summary {
                 resamples: o.resamples,
                 seed: o.seed,
             },
+            tick,
         )
         .ok()
         .map(|b| (b.alpha_std, b.xmin_std))
@@ -397,8 +403,31 @@ pub struct Comparison {
 
 /// Compares populations.
 pub fn compare(pops: &[Population], o: &Options) -> Comparison {
+    compare_with_progress(pops, o, &|_| {})
+}
+
+/// [`compare`], calling `progress` with the fraction of the bootstrap resamples done (0 to 1)
+/// a few hundred times at most, from any thread. The results do not depend on it.
+pub fn compare_with_progress(
+    pops: &[Population],
+    o: &Options,
+    progress: &(dyn Fn(f64) + Sync),
+) -> Comparison {
     use rayon::prelude::*;
-    let summaries: Vec<Summary> = pops.par_iter().map(|p| summarise(p, o)).collect();
+    use std::sync::atomic::{AtomicUsize, Ordering};
+    let total = (pops.len() * o.resamples).max(1);
+    let step = (total / 200).max(1);
+    let done = AtomicUsize::new(0);
+    let tick = || {
+        let d = done.fetch_add(1, Ordering::Relaxed) + 1;
+        if d.is_multiple_of(step) {
+            progress(d as f64 / total as f64);
+        }
+    };
+    let summaries: Vec<Summary> = pops
+        .par_iter()
+        .map(|p| summarise_with(p, o, &tick))
+        .collect();
     let mut pairs = vec![];
     for i in 0..pops.len() {
         for j in i + 1..pops.len() {

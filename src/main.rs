@@ -11,6 +11,28 @@ use cairn::map::{self, Beam, HduChoice, LoadOptions};
 use cairn::units::{self, Dimension, ExtinctionBand};
 use cairn::{fits_write, output, synth};
 
+/// Set when writing to standard output failed for a reason other than a closed pipe.
+static STDOUT_FAILED: std::sync::Mutex<Option<String>> = std::sync::Mutex::new(None);
+
+/// Writes to standard output. A reader that stopped early (`cairn ... | head -1`) is not an
+/// error: the rest is dropped quietly and the run finishes (its files are its product). Any
+/// other failure (a full disk behind a redirection) is reported when the run ends.
+fn print_out(args: std::fmt::Arguments) {
+    use std::io::Write as _;
+    let mut out = std::io::stdout().lock();
+    if let Err(e) = out.write_fmt(args)
+        && e.kind() != std::io::ErrorKind::BrokenPipe
+    {
+        let mut f = STDOUT_FAILED.lock().unwrap_or_else(|p| p.into_inner());
+        f.get_or_insert_with(|| e.to_string());
+    }
+}
+
+/// `println!` through [`print_out`].
+macro_rules! outln {
+    ($($t:tt)*) => { print_out(format_args!("{}\n", format_args!($($t)*))) };
+}
+
 /// Find dense cores and clumps in maps of molecular clouds, see how they nest, measure them.
 #[derive(Parser)]
 #[command(name = "cairn", version, about, long_about = None, propagate_version = true)]
@@ -44,6 +66,7 @@ enum Command {
 }
 
 const SEGMENT_HELP: &str = "Thresholds take units: --floor 5sigma or 2e21cm-2, --prominence 3sigma, --min-area 1beam, 400arcsec2 or 12px.
+A floor in sigma is that many noise widths above the background (the clipped median of the map); a value in map units is an absolute level.
 Without them: floor 3 sigma above the clipped median, prominence 3 sigma, min-area one beam (a starting point: check `cairn inspect`).
 Writes structures.csv/.fits/.vot, labels.fits (smallest structure per pixel, with the map's WCS), hierarchy.json/.dot and run.json;
 overlay.png/.svg and tree.png/.svg unless --no-figure; leaves-grown.fits with --grow-leaves.
@@ -61,7 +84,8 @@ struct SegmentArgs {
     read: MapArgs,
     #[command(flatten)]
     physics: PhysicsArgs,
-    /// Lowest level considered: a multiple of the noise (5sigma) or a value in the map's unit.
+    /// Lowest level considered: noise widths above the background (5sigma) or a value in the
+    /// map's unit.
     #[arg(long, value_name = "LEVEL", allow_hyphen_values = true)]
     floor: Option<String>,
     /// How far a peak must rise above the level where it meets a neighbour (3sigma, or map units).
@@ -134,7 +158,7 @@ struct SynthArgs {
     /// No background: cores on an empty sky.
     #[arg(long, conflicts_with_all = ["background", "background_width", "background_index"])]
     no_background: bool,
-    /// Number of randomly placed cores to add.
+    /// Number of randomly placed cores to add [default: 0].
     #[arg(long, value_name = "N", allow_hyphen_values = true)]
     cores: Option<usize>,
     /// Core mass range, such as 0.5Msun,20Msun [default: 0.5Msun,20Msun].
@@ -263,12 +287,14 @@ impl PhysicsArgs {
         let q = |text: &str, dims: &[Dimension], what: &str| {
             units::parse_quantity(text, dims, what).map_err(Error::usage)
         };
+        // `what` is the option with its value as given (`--distance -410pc`), as the value
+        // itself is in SI units by now.
         let positive = |v: f64, what: &str| -> Result<f64> {
             if v > 0.0 && v.is_finite() {
                 Ok(v)
             } else {
                 Err(Error::usage(format!(
-                    "{what} must be positive and finite (it is {v}); give a positive value."
+                    "{what} must be positive and finite; give a positive value."
                 )))
             }
         };
@@ -276,13 +302,13 @@ impl PhysicsArgs {
         if let Some(d) = &self.distance {
             c.distance_m = Some(positive(
                 q(d, &[Dimension::Length], "--distance")?.si,
-                "--distance",
+                &format!("--distance {d}"),
             )?);
         }
         if let Some(t) = &self.temperature {
             c.temperature_k = Some(Field::Uniform(positive(
                 q(t, &[Dimension::Temperature], "--temperature")?.si,
-                "--temperature",
+                &format!("--temperature {t}"),
             )?));
         }
         if let Some(p) = &self.temperature_map {
@@ -304,7 +330,7 @@ impl PhysicsArgs {
                 )
                 .parse::<f64>()
                 .unwrap_or(f64::NAN),
-                "--opacity",
+                &format!("--opacity {k}"),
             )?;
         }
         if let Some(f) = &self.opacity_frequency {
@@ -319,7 +345,7 @@ impl PhysicsArgs {
                 } else {
                     v.si
                 },
-                "--opacity-frequency",
+                &format!("--opacity-frequency {f}"),
             )?;
         }
         if let Some(b) = self.beta {
@@ -331,19 +357,19 @@ impl PhysicsArgs {
             c.opacity.beta = b;
         }
         if let Some(m) = self.mu_h2 {
-            c.mu_h2 = positive(m, "--mu-h2")?;
+            c.mu_h2 = positive(m, &format!("--mu-h2 {m}"))?;
         }
         if let Some(m) = self.mu_particle {
-            c.mu_p = positive(m, "--mu-particle")?;
+            c.mu_p = positive(m, &format!("--mu-particle {m}"))?;
         }
         if let Some(n) = &self.column_per_av {
             c.nh2_per_av_m2 = positive(
                 q(n, &[Dimension::ColumnDensity], "--column-per-av")?.si,
-                "--column-per-av",
+                &format!("--column-per-av {n}"),
             )?;
         }
         if let Some(r) = self.av_per_ak {
-            c.av_per_ak = positive(r, "--av-per-ak")?;
+            c.av_per_ak = positive(r, &format!("--av-per-ak {r}"))?;
         }
         if let Some(s) = &self.sigma_nt {
             let v = q(s, &[Dimension::Speed], "--sigma-nt")?.si;
@@ -378,7 +404,8 @@ struct StyleArgs {
         long,
         default_value = "0.5,99.5",
         value_name = "LOW,HIGH",
-        conflicts_with = "range"
+        conflicts_with = "range",
+        allow_hyphen_values = true
     )]
     limits: String,
     /// Colour limits as map values, `LOW,HIGH` (instead of --limits).
@@ -558,7 +585,7 @@ struct CompareArgs {
     /// Fix the lower mass of the power-law tail, such as 1Msun [default: minimise the KS distance].
     #[arg(long, value_name = "MASS", allow_hyphen_values = true)]
     mass_min: Option<String>,
-    /// Bootstrap resamples for the tail's uncertainty.
+    /// Bootstrap resamples for the tail's uncertainty (at most 100000).
     #[arg(long, default_value_t = 500, allow_hyphen_values = true)]
     resamples: usize,
     /// Seed of the bootstrap.
@@ -691,9 +718,9 @@ fn run_inspect(args: &InspectArgs) -> Result<()> {
     if args.json {
         let text =
             serde_json::to_string_pretty(&summary).map_err(|e| Error::internal(e.to_string()))?;
-        println!("{text}");
+        outln!("{text}");
     } else {
-        print!("{}", inspect::render_text(&summary));
+        print_out(format_args!("{}", inspect::render_text(&summary)));
     }
     Ok(())
 }
@@ -805,7 +832,7 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
             )));
         }
     };
-    if let Some(n) = a.cores {
+    if let Some(n) = a.cores.filter(|&n| n > 0) {
         let (m0, m1) = match &a.core_mass {
             Some(t) => pair(t, Dimension::Mass, "--core-mass")?,
             None => (0.5 * units::M_SUN, 20.0 * units::M_SUN),
@@ -883,8 +910,15 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
         output::refuse_inputs_as_outputs(&a.output, &names, &[spec_file])?;
     }
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
-    let map = synth::generate(&spec)
-        .map_err(|e| Error::usage(format!("cannot make this synthetic map: {}.", e.0)))?;
+    let bar = progress_bar(quiet, spec.nx * spec.ny);
+    let map = synth::generate_with_progress(&spec, &|stage, f| {
+        if let Some(b) = &bar {
+            b.set_message(stage.to_string());
+            b.set_position((f * 1000.0) as u64);
+        }
+    })
+    .map_err(|e| Error::usage(format!("cannot make this synthetic map: {}.", e.0)))?;
+    drop(bar);
     fits_write::write_image_f32(&outputs.temp(&names[0]), map.data.view(), &map.header, true)
         .map_err(|e| Error::output(&a.output.join(&names[0]), e.0))?;
     synth::write_truth_csv(&outputs.temp(&names[1]), &map.truth).map_err(|e| {
@@ -986,10 +1020,11 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             .map(|a| a.to_string_lossy().into_owned())
             .collect(),
         physics: a.physics.context(&m)?,
-        figure: if a.no_figure {
-            None
-        } else {
-            Some(a.style.style(&m)?)
+        // The figure options are checked even with --no-figure, so that a mistake in them is
+        // not silently ignored.
+        figure: {
+            let style = a.style.style(&m)?;
+            (!a.no_figure).then_some(style)
         },
     };
     let bar = progress_bar(quiet, m.nx() * m.ny());
@@ -1008,7 +1043,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     } else {
         format!(" {}", m.unit_text)
     };
-    println!(
+    outln!(
         "{} structures in {} trees: {} leaves, {} branches, {} roots; {:.2} s",
         summary.leaves + summary.branches + summary.roots,
         summary.trees,
@@ -1017,7 +1052,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         summary.roots,
         summary.seconds
     );
-    println!(
+    outln!(
         "floor {:.4e}{unit}, prominence {:.4e}{unit}, min area {} px; noise {}",
         t.floor,
         t.prominence,
@@ -1027,21 +1062,21 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             None => "none (not measurable in this map; thresholds in map units only)".into(),
         }
     );
-    if let Some(states) = &summary.leaf_states {
+    if let Some(states) = summary.leaf_states.as_ref().filter(|s| !s.is_empty()) {
         let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
-        println!("leaves by state: {}", words.join(", "));
+        outln!("leaves by state: {}", words.join(", "));
     }
     if let Some(note) = &summary.physics_note {
-        println!("no masses: {note}");
+        outln!("no masses: {note}");
     } else if a.physics.distance.is_none() {
-        println!("no masses: give --distance (and --temperature for the gravitational state)");
+        outln!("no masses: give --distance (and --temperature for the gravitational state)");
     }
     if let Some((in_frame, left_out)) = summary.figure_labels {
         labels_note(in_frame, left_out);
     }
     if summary.leaves == 0 {
-        println!(
-            "no structure passes these thresholds: the outputs are written but empty; lower --floor or --prominence"
+        outln!(
+            "no structure passes these thresholds: the outputs are written but empty; lower --floor, --prominence or --min-area"
         );
     }
     if !quiet {
@@ -1072,9 +1107,15 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
             a.mass_column
         )));
     }
-    if !(a.bin_width > 0.0 && a.bin_width <= 2.0) {
+    if a.resamples > 100_000 {
         return Err(Error::usage(format!(
-            "--bin-width {} is outside (0, 2] dex; give a bin width in that range.",
+            "--resamples {} is more than 100000, which would take many minutes without improving a 68% interval; give at most 100000.",
+            a.resamples
+        )));
+    }
+    if !(a.bin_width >= 0.01 && a.bin_width <= 2.0) {
+        return Err(Error::usage(format!(
+            "--bin-width {} is outside 0.01 to 2 dex; give a bin width in that range.",
             a.bin_width
         )));
     }
@@ -1139,7 +1180,16 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         seed: a.seed,
         bin_dex: a.bin_width,
     };
-    let c = compare::compare(&pops, &o);
+    // A bar when the bootstraps are long: resamples times masses, as pixels for a map.
+    let work: usize = pops.iter().map(|p| p.masses.len()).sum::<usize>() * a.resamples;
+    let bar = progress_bar(quiet, work);
+    let c = compare::compare_with_progress(&pops, &o, &|f| {
+        if let Some(b) = &bar {
+            b.set_message("bootstrap");
+            b.set_position((f * 1000.0) as u64);
+        }
+    });
+    drop(bar);
     let temps = a
         .be_temperatures
         .split(',')
@@ -1212,13 +1262,13 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
                 )
             })
             .unwrap_or_else(|| "no tail fit".into());
-        println!("{}: {} leaves, {tail}", s.label, s.n);
+        outln!("{}: {} leaves, {tail}", s.label, s.n);
         for n in &s.notes {
-            println!("  {n}");
+            outln!("  {n}");
         }
     }
     for w in &c.warnings {
-        println!("warning: {w}");
+        eprintln!("warning: {w}");
     }
     if !quiet {
         for f in files {
@@ -1296,7 +1346,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
 /// is left out rather than printed over another.
 fn labels_note(in_frame: usize, left_out: usize) {
     if left_out > 0 {
-        println!(
+        outln!(
             "figure: {left_out} of {in_frame} leaves left without a label where the map is too crowded for one; draw a smaller --region or a wider --width to label them"
         );
     }
@@ -1369,6 +1419,18 @@ fn main() -> ExitCode {
         Command::Draw(a) => run_draw(a, cli.quiet),
         Command::Compare(a) => run_compare(a, cli.quiet),
     };
+    let result = result.and_then(|()| {
+        match STDOUT_FAILED
+            .lock()
+            .unwrap_or_else(|p| p.into_inner())
+            .take()
+        {
+            Some(e) => Err(Error::usage(format!(
+                "the standard output could not be written ({e}); check where it goes (a full disk or a closed file)."
+            ))),
+            None => Ok(()),
+        }
+    });
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {

@@ -189,7 +189,8 @@ impl BoxBackground {
     /// Medians of `map` in boxes of `box_px` pixels (at least 4).
     pub fn new(map: ArrayView2<f32>, box_px: usize) -> Self {
         let (ny, nx) = map.dim();
-        let b = box_px.max(4);
+        // A box larger than the map is the whole map (a beam given far wider than the map).
+        let b = box_px.max(4).min(ny.max(nx).max(4));
         let (gy, gx) = (ny.div_ceil(b), nx.div_ceil(b));
         let mut all = finite_sample(map);
         let global = if all.is_empty() {
@@ -199,7 +200,7 @@ impl BoxBackground {
         };
         drop(all);
         let mut grid = vec![global; gx * gy];
-        let mut buf = Vec::with_capacity(b * b);
+        let mut buf = Vec::with_capacity(b.min(ny) * b.min(nx));
         for j in 0..gy {
             for i in 0..gx {
                 buf.clear();

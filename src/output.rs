@@ -193,6 +193,12 @@ impl Outputs {
                 "exists and is not a folder; choose another output folder with -o.",
             ));
         }
+        if dir.to_str().is_none() {
+            return Err(Error::output(
+                dir,
+                "is not a UTF-8 name, which the FITS library cannot open; choose an output folder named in UTF-8 with -o.",
+            ));
+        }
         // The plan is registered for an interrupt in the same breath as its folders are made
         // (under the lock the interrupt handler takes), so no moment leaves them unknown;
         // from here on, any refusal drops `out`, which removes what it made.

@@ -53,8 +53,13 @@ pub fn parse_level(text: &str, map: &Map, what: &str) -> Result<Level> {
     }
     match units::parse_map_value(text, map.unit, what) {
         Ok(v) => Ok(Level::Value(v)),
-        Err(_) => Err(Error::usage(format!(
-            "{what} '{text}' is not understood: give a multiple of the noise such as 5sigma, or a value in the map's unit ({}) such as {}.",
+        Err(e) => Err(Error::usage(format!(
+            "{what} '{text}' is {}: give a multiple of the noise such as 5sigma, or a value in the map's unit ({}) such as {}.",
+            // A well-formed quantity of another kind says which kind it is.
+            e.split_once("' is ")
+                .and_then(|(_, rest)| rest.split_once(", but "))
+                .map(|(kind, _)| format!("{kind}, not a level of this map"))
+                .unwrap_or_else(|| "not understood".into()),
             if map.unit_text.is_empty() {
                 "none"
             } else {
@@ -167,8 +172,9 @@ fn resolve_with(
         ));
     }
     let (sigma, source) = inspect::noise_for_with(map, &o.noise, noise_map)?;
-    // The background level (clipped median) is needed only for the default floor.
-    let background = if o.floor.is_none() {
+    // The background level (clipped median) is needed only for a floor in noise units (the
+    // default one included): such a floor is that many noise widths above the background.
+    let background = if !matches!(o.floor, Some(Level::Value(_))) {
         noise::clipped_stats(map.data.view()).ok().map(|c| c.median)
     } else {
         None
@@ -183,7 +189,7 @@ fn resolve_with(
     };
     let floor = match o.floor {
         Some(Level::Value(v)) => v,
-        Some(Level::Sigma(k)) => k * need_sigma("--floor")?,
+        Some(Level::Sigma(k)) => background.unwrap_or(0.0) + k * need_sigma("--floor")?,
         None => {
             background.unwrap_or(0.0)
                 + 3.0 * need_sigma("the default floor (3 sigma above the background)")?
@@ -956,7 +962,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                     "--floor {floor:.4e} lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one)."
                 ),
                 Some(Level::Sigma(k)) => format!(
-                    "--floor {k}sigma ({floor:.4e} with the noise {noise}) lies above the highest value of {file} ({max:.4e}); lower it or give the noise with --noise (cairn inspect suggests a floor)."
+                    "--floor {k}sigma ({floor:.4e}: {k} times the noise {noise} above the background {}) lies above the highest value of {file} ({max:.4e}); lower it or give the noise with --noise (cairn inspect suggests a floor).",
+                    r.background.map(|b| format!("{b:.4e}")).unwrap_or_default()
                 ),
                 None => format!(
                     "the default floor, 3 sigma above the background ({floor:.4e} with the noise {noise}), lies above the highest value of {file} ({max:.4e}), so nothing in the map rises above its noise by that estimate; give --floor in map units{}.",

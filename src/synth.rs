@@ -649,8 +649,11 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
             && 2.0 * p.margin_px < spec.ny as f64 - 1.0)
         {
             return bad(format!(
-                "population margin {} px leaves no room",
-                p.margin_px
+                "a map of {} x {} pixels leaves no room for random cores, which keep {} pixels from every edge: give a --size of at least {} pixels on each side, or no random cores",
+                spec.nx,
+                spec.ny,
+                p.margin_px,
+                (2.0 * p.margin_px).floor() as usize + 2
             ));
         }
         check_profile(&p.profile)?;
@@ -1029,6 +1032,16 @@ fn convolved_peak(stamp: &Stamp, taps: Option<&[f64]>) -> Result<f64, NoMemory> 
 /// whose memory cannot be had; a background that exceeds or underflows the map's 32-bit floats;
 /// a map holding values that are not finite (too massive cores, too much noise).
 pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
+    generate_with_progress(spec, &|_, _| {})
+}
+
+/// [`generate`], calling `progress` with the stage about to run ("background", "cores",
+/// "beam", "noise") and the fraction of the stages done (0 to 1), from the calling thread. The
+/// map does not depend on it.
+pub fn generate_with_progress(
+    spec: &SynthSpec,
+    progress: &dyn Fn(&str, f64),
+) -> Result<SynthMap, SynthError> {
     check(spec)?;
     let oom = |_: NoMemory| out_of_memory(spec);
     let (nx, ny) = (spec.nx, spec.ny);
@@ -1036,6 +1049,7 @@ pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
     let (unit, factor) = output_units(spec);
 
     // 1. Background [m^-2].
+    progress("background", 0.0);
     let mut col = match &spec.background {
         Some(b) => {
             let g = gaussian_field(spec, b.spectral_index, &fourier).map_err(oom)?;
@@ -1071,6 +1085,7 @@ pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
     };
 
     // 2. Cores.
+    progress("cores", 0.25);
     let sigma_px =
         spec.beam_fwhm_arcsec / spec.pixel_arcsec / (8.0 * std::f64::consts::LN_2).sqrt();
     let taps = (spec.beam_fwhm_arcsec > 0.0).then(|| beam_taps(sigma_px));
@@ -1104,6 +1119,7 @@ pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
     }
 
     // 3. Beam: periodic convolution with the sampled, unit-sum Gaussian.
+    progress("beam", 0.5);
     if let Some(t) = &taps {
         let (tx, ty) = (taps_transfer(t, nx), taps_transfer(t, ny));
         fourier
@@ -1112,6 +1128,7 @@ pub fn generate(spec: &SynthSpec) -> Result<SynthMap, SynthError> {
     }
 
     // 4-5. Units and noise; notes whether the signal or the noise left the f32 range.
+    progress("noise", 0.75);
     let mut data = try_filled(nx * ny, 0.0f32).map_err(oom)?;
     let (bad_signal, bad_total) = data
         .par_chunks_mut(nx)

@@ -46,9 +46,11 @@ fn compare_reports_statistics_and_fairness() {
     );
     assert_eq!(code, 0, "{err}");
     assert!(out.contains("near:") && out.contains("far:"), "{out}");
+    // Warnings go to stderr, as segment's do; the summary to stdout.
     assert!(
-        out.contains("linear resolution (beam x distance) differs by a factor 2.00"),
-        "{out}"
+        err.contains("warning: ")
+            && err.contains("linear resolution (beam x distance) differs by a factor 2.00"),
+        "{err}"
     );
     let report = std::fs::read_to_string(d.path().join("cmp/report.md")).unwrap();
     for section in [
@@ -199,7 +201,7 @@ fn compare_reports_statistics_and_fairness() {
         ],
     );
     assert_eq!(code, 0, "{err}");
-    assert!(out.contains("mean particle weight"), "{out}");
+    assert!(err.contains("mean particle weight"), "{err}");
     // A catalogue cut short mid-row, or with text in a mass column, is refused as damaged
     // rather than read with a row missing or shifted.
     let csv = std::fs::read_to_string(d.path().join("near/structures.csv")).unwrap();

@@ -171,7 +171,7 @@ fn bad_thresholds_and_output_folders_are_refused() {
         &[
             "segment", m, "-o", "a", "--floor", "5sigma", "--noise", "1e30",
         ],
-        "--floor 5sigma (5.0000e30 with the noise 1.0000e30) lies above the highest value",
+        "--floor 5sigma (5.0000e30: 5 times the noise 1.0000e30 above the background ",
     );
     refused(
         d.path(),

@@ -94,6 +94,9 @@ fn make_bin(lo: f64, hi: f64, count: u64) -> MassFunctionBin {
     }
 }
 
+/// The most bins a width may make (a million bins of a mass function is already no plot).
+const MAX_BINS: i64 = 1_000_000;
+
 /// Bins positive, finite masses into dN/dlog10 M.
 pub fn mass_function(masses: &[f64], binning: &Binning) -> Result<MassFunction, Error> {
     check_values(masses, "masses", true)?;
@@ -110,6 +113,14 @@ pub fn mass_function(masses: &[f64], binning: &Binning) -> Result<MassFunction, 
             let s = sorted(masses);
             let k0 = index(s[0]);
             let k1 = index(s[s.len() - 1]);
+            if k1 - k0 >= MAX_BINS {
+                return Err(Error::usage(format!(
+                    "a mass-function bin width of {w} dex makes more than {MAX_BINS} bins over \
+                     the masses' range ({:e} to {:e}); give a wider bin",
+                    s[0],
+                    s[s.len() - 1]
+                )));
+            }
             let mut counts = vec![0u64; (k1 - k0 + 1) as usize];
             for &m in &s {
                 counts[(index(m) - k0) as usize] += 1;

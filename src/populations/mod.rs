@@ -48,7 +48,7 @@ pub use mass_function::{
 };
 pub use powerlaw::{
     Bootstrap, PowerLawBootstrap, PowerLawFit, XminCandidate, XminSearch, bootstrap_power_law,
-    fit_power_law, power_law_alpha, scan_xmin,
+    bootstrap_power_law_with, fit_power_law, power_law_alpha, scan_xmin,
 };
 pub use regression::{LineFit, SlopeDifference, fit_line, fit_mass_size, slope_difference};
 pub use summary::{median, percentile, percentiles};

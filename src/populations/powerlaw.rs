@@ -275,6 +275,17 @@ pub fn bootstrap_power_law(
     search: &XminSearch,
     boot: &Bootstrap,
 ) -> Result<PowerLawBootstrap, Error> {
+    bootstrap_power_law_with(masses, xmin, search, boot, &|| {})
+}
+
+/// [`bootstrap_power_law`], calling `tick` once per resample (from any thread), for progress.
+pub fn bootstrap_power_law_with(
+    masses: &[f64],
+    xmin: Option<f64>,
+    search: &XminSearch,
+    boot: &Bootstrap,
+    tick: &(dyn Fn() + Sync),
+) -> Result<PowerLawBootstrap, Error> {
     check_values(masses, "masses", true)?;
     if boot.resamples < 2 {
         return Err(Error::usage("a bootstrap needs at least 2 resamples"));
@@ -287,9 +298,11 @@ pub fn bootstrap_power_law(
             rng.set_stream(r as u64);
             let mut sample: Vec<f64> = (0..n).map(|_| masses[rng.random_range(0..n)]).collect();
             sample.sort_by(f64::total_cmp);
-            fit_sorted(&sample, xmin, search)
+            let fit = fit_sorted(&sample, xmin, search)
                 .ok()
-                .map(|f| (f.alpha, f.xmin))
+                .map(|f| (f.alpha, f.xmin));
+            tick();
+            fit
         })
         .collect();
     let (alphas, xmins): (Vec<f64>, Vec<f64>) = results.iter().flatten().copied().unzip();

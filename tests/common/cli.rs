@@ -21,6 +21,11 @@ fn outcome(out: std::process::Output) -> Outcome {
     }
 }
 
+/// Runs a prepared command (for arguments that are not UTF-8, say).
+pub fn outcome_of(cmd: &mut Command) -> Outcome {
+    outcome(cmd.output().expect("run cairn"))
+}
+
 /// Runs cairn with `args` in `dir`.
 pub fn cairn(args: &[&str], dir: &Path) -> Outcome {
     outcome(

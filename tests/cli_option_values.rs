@@ -1,0 +1,277 @@
+//! Option values and run conditions met in use, on the demo column-density map: a beam far
+//! wider than the map, an output folder whose name is not UTF-8, a reader that stops reading
+//! early, a floor in sigma counted from the background as the default floor is, values of the
+//! wrong kind named as such, figure options checked even when no figure is drawn, and the
+//! limits that keep a mistyped number from taking the machine's memory or hours of its time.
+//! Refusals keep the rule of tests/common/cli.rs (exit 2, one sentence, no panic, nothing on
+//! stdout).
+
+#[path = "common/cli.rs"]
+mod cli;
+
+use cli::{cairn, check_refused, listing};
+use std::path::{Path, PathBuf};
+
+fn demo_map(dir: &Path) -> PathBuf {
+    let to = dir.join("col.fits");
+    std::fs::copy(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits"),
+        &to,
+    )
+    .unwrap();
+    to
+}
+
+/// Refused by the rule, with nothing left in the folder but what was there.
+fn refused(dir: &Path, args: &[&str], names: &str, says: &str) {
+    let before = listing(dir);
+    let o = cairn(args, dir);
+    check_refused(&o, args, names, says);
+    assert_eq!(listing(dir), before, "{args:?}: nothing written");
+}
+
+fn run_json(dir: &Path) -> serde_json::Value {
+    serde_json::from_str(&std::fs::read_to_string(dir.join("run.json")).unwrap()).unwrap()
+}
+
+#[test]
+fn a_beam_wider_than_the_map_is_no_crash() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    // The background's boxes (a few beams) are capped at the map: one box, the whole map.
+    let o = cairn(&["inspect", "col.fits", "--beam", "1e10arcsec"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stdout.contains("noise"), "{}", o.stdout);
+    // segment's default min-area (one beam) is then larger than the map: refused plainly.
+    refused(
+        d.path(),
+        &["segment", "col.fits", "-o", "out", "--beam", "20deg"],
+        "--min-area",
+        "larger than the whole map",
+    );
+}
+
+#[cfg(unix)]
+#[test]
+fn an_output_folder_not_named_in_utf8_is_refused() {
+    use std::os::unix::ffi::OsStrExt;
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    let name = std::ffi::OsStr::from_bytes(b"out\xff");
+    let before = listing(d.path());
+    let o = cli::outcome_of(
+        std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(["segment", "col.fits", "-o"])
+            .arg(name)
+            .current_dir(d.path()),
+    );
+    check_refused(
+        &o,
+        &["segment", "-o", "out\\xff"],
+        "out",
+        "is not a UTF-8 name",
+    );
+    assert_eq!(listing(d.path()), before);
+}
+
+#[test]
+fn a_reader_that_stops_early_is_not_an_error() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    // The pipe's reading end is closed before cairn writes: its writes then fail with a
+    // broken pipe, which must neither panic nor fail the run.
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(["segment", "col.fits", "-o", "out", "--no-figure"])
+        .current_dir(d.path())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    drop(child.stdout.take());
+    let out = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert!(d.path().join("out/structures.csv").is_file());
+}
+
+#[test]
+fn a_floor_in_sigma_counts_from_the_background_as_the_default_does() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    for (out, extra) in [("a", None), ("b", Some("3sigma")), ("c", Some("5sigma"))] {
+        let mut args = vec!["segment", "col.fits", "-o", out, "--no-figure", "-q"];
+        if let Some(f) = extra {
+            args.extend(["--floor", f]);
+        }
+        let o = cairn(&args, d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let (a, b, c) = (
+        run_json(&d.path().join("a")),
+        run_json(&d.path().join("b")),
+        run_json(&d.path().join("c")),
+    );
+    let floor = |r: &serde_json::Value| r["parameters"]["floor"]["value"].as_f64().unwrap();
+    let noise = a["noise"]["value"].as_f64().unwrap();
+    let background = b["noise"]["background"].as_f64().unwrap();
+    // The default floor is 3 sigma above the background (README, Thresholds); 3sigma is it.
+    assert_eq!(floor(&a), floor(&b));
+    assert!(
+        background > 10.0 * noise,
+        "a map with a background well above its noise"
+    );
+    let five = background + 5.0 * noise;
+    assert!((floor(&c) - five).abs() <= 1e-12 * five);
+}
+
+#[test]
+fn values_of_the_wrong_kind_are_named() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    refused(
+        d.path(),
+        &["segment", "col.fits", "-o", "out", "--floor", "3K"],
+        "--floor '3K'",
+        "is a temperature, not a level of this map",
+    );
+    refused(
+        d.path(),
+        &[
+            "segment",
+            "col.fits",
+            "-o",
+            "out",
+            "--prominence",
+            "0.05MJy/sr",
+        ],
+        "--prominence '0.05MJy/sr'",
+        "not a level of this map",
+    );
+    // Given as written, not converted to metres.
+    refused(
+        d.path(),
+        &["segment", "col.fits", "-o", "out", "--distance", "-410pc"],
+        "--distance -410pc",
+        "must be positive",
+    );
+}
+
+#[test]
+fn figure_options_are_checked_without_a_figure_too() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    refused(
+        d.path(),
+        &[
+            "segment",
+            "col.fits",
+            "-o",
+            "out",
+            "--no-figure",
+            "--colormap",
+            "jet",
+        ],
+        "--colormap 'jet'",
+        "not understood",
+    );
+    // A negative percentile reaches cairn's own check, not the parser's advice about '--'.
+    refused(
+        d.path(),
+        &["segment", "col.fits", "-o", "out", "--limits", "-5,200"],
+        "percentile limits",
+        "0 <= low < high <= 100",
+    );
+}
+
+#[test]
+fn an_empty_result_names_every_threshold_that_may_be_the_cause() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    let o = cairn(
+        &[
+            "segment",
+            "col.fits",
+            "-o",
+            "out",
+            "--floor",
+            "7e22",
+            "--min-area",
+            "100",
+            "--no-figure",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stdout
+            .contains("lower --floor, --prominence or --min-area"),
+        "{}",
+        o.stdout
+    );
+    assert!(!o.stdout.contains("leaves by state"), "{}", o.stdout);
+}
+
+#[test]
+fn synth_without_random_cores_needs_no_margin() {
+    let d = tempfile::tempdir().unwrap();
+    let o = cairn(
+        &[
+            "synth", "-o", "thin", "--size", "300x7", "--cores", "0", "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    refused(
+        d.path(),
+        &["synth", "-o", "small", "--size", "20", "--cores", "3"],
+        "20 x 20 pixels",
+        "give a --size of at least 22 pixels on each side",
+    );
+}
+
+#[test]
+fn compare_refuses_values_that_would_exhaust_the_machine() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    for run in ["run", "run2"] {
+        let o = cairn(
+            &[
+                "segment",
+                "col.fits",
+                "-o",
+                run,
+                "--distance",
+                "410pc",
+                "--temperature",
+                "14K",
+                "--no-figure",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    // Without the bounds, 1e-9 dex bins asked for 190 GB and a million resamples ran for
+    // minutes with nothing to show.
+    refused(
+        d.path(),
+        &["compare", "run", "run2", "-o", "c", "--bin-width", "1e-9"],
+        "--bin-width",
+        "outside 0.01 to 2 dex",
+    );
+    refused(
+        d.path(),
+        &[
+            "compare",
+            "run",
+            "run2",
+            "-o",
+            "c",
+            "--resamples",
+            "1000000",
+        ],
+        "--resamples 1000000",
+        "give at most 100000",
+    );
+}
