@@ -18,6 +18,9 @@ pub struct Outputs {
     planned: Vec<(PathBuf, PathBuf)>,
     /// Files of an earlier run that this one does not write (removed on commit).
     stale: Vec<PathBuf>,
+    /// Every output name this plan knows (its own and an earlier run's), for the temporary
+    /// files a killed process left ([`remove_leftovers`]).
+    known: Vec<String>,
     committed: bool,
     /// This plan's entry in [`LIVE`].
     id: u64,
@@ -237,6 +240,7 @@ impl Outputs {
                 created_dir,
                 planned: Vec::new(),
                 stale: Vec::new(),
+                known: names.iter().chain(others).cloned().collect(),
                 committed: false,
                 id,
             }
@@ -351,8 +355,56 @@ impl Outputs {
         }
         self.committed = true;
         live.plans.retain(|p| p.id != self.id);
+        remove_leftovers(&self.dir, &self.known);
         Ok(done)
     }
+}
+
+/// Removes the temporary files that a cairn process killed outright (out of memory,
+/// `kill -9`: no handler runs) left in `dir`: hidden files named after one of cairn's outputs
+/// `names`, `.NAME.partial-PID-K` or a FITS writer's `..NAME.partial-PID-K.part-PID`, whose
+/// process no longer runs. Files of a running process, or of any other name, are left.
+fn remove_leftovers(dir: &Path, names: &[String]) {
+    #[cfg(unix)]
+    {
+        let Ok(entries) = std::fs::read_dir(dir) else {
+            return;
+        };
+        let me = std::process::id();
+        for e in entries.flatten() {
+            let file = e.file_name();
+            let Some(rest) = file.to_str().and_then(|f| f.strip_prefix('.')) else {
+                continue;
+            };
+            let rest = rest.strip_prefix('.').unwrap_or(rest);
+            let Some(after) = names
+                .iter()
+                .find_map(|n| rest.strip_prefix(n.as_str())?.strip_prefix(".partial-"))
+            else {
+                continue;
+            };
+            let Some(pid) = after.split('-').next().and_then(|p| p.parse::<u32>().ok()) else {
+                continue;
+            };
+            if pid != me && !process_runs(pid) {
+                let _ = std::fs::remove_file(e.path());
+            }
+        }
+    }
+    #[cfg(not(unix))]
+    let _ = (dir, names);
+}
+
+/// Whether a process `pid` exists (signal 0 checks without sending anything; a process of
+/// another user answers "not permitted").
+#[cfg(unix)]
+fn process_runs(pid: u32) -> bool {
+    let Ok(p) = i32::try_from(pid) else {
+        return false;
+    };
+    // SAFETY: kill with signal 0 only checks that the process exists; no signal is sent.
+    let answered = unsafe { libc::kill(p, 0) };
+    answered == 0 || std::io::Error::last_os_error().raw_os_error() == Some(libc::EPERM)
 }
 
 impl Drop for Outputs {

@@ -275,3 +275,43 @@ fn compare_refuses_values_that_would_exhaust_the_machine() {
         "give at most 100000",
     );
 }
+
+/// A run killed outright (out of memory, `kill -9`) runs no handler and leaves its temporary
+/// files; the next run in that folder removes those of cairn's output names whose process is
+/// gone, and leaves a running process's and any other file.
+#[cfg(unix)]
+#[test]
+fn leftovers_of_a_killed_run_are_removed_by_the_next() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    let out = d.path().join("out");
+    std::fs::create_dir(&out).unwrap();
+    // A process that has ended: its id is free (reused within milliseconds only by chance).
+    let mut gone = std::process::Command::new("true").spawn().unwrap();
+    let dead = gone.id();
+    gone.wait().unwrap();
+    let alive = std::process::id();
+    let files = [
+        format!(".structures.csv.partial-{dead}-0"),
+        format!("..labels.fits.partial-{dead}-3.part-{dead}"),
+        format!(".structures.csv.partial-{alive}-0"),
+        format!(".notes.txt.partial-{dead}-0"),
+    ];
+    for f in &files {
+        std::fs::write(out.join(f), b"unfinished").unwrap();
+    }
+    let o = cairn(
+        &["segment", "col.fits", "-o", "out", "--no-figure", "-q"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!out.join(&files[0]).exists() && !out.join(&files[1]).exists());
+    assert!(
+        out.join(&files[2]).exists(),
+        "a running process's file stays"
+    );
+    assert!(
+        out.join(&files[3]).exists(),
+        "not one of cairn's output names"
+    );
+}
