@@ -188,7 +188,7 @@ fn compare_reports_statistics_and_fairness() {
         ],
     );
     assert_eq!(code, 0, "{err}");
-    let (code, out, err) = run(
+    let (code, _, err) = run(
         d.path(),
         &[
             "compare",
