@@ -1221,3 +1221,74 @@ fn outlines_of_a_map_larger_than_its_figure_keep_exact_corners_within_half_a_fig
         "{drawn_corners} corners drawn of {traced_corners}"
     );
 }
+
+#[test]
+fn figures_of_very_tall_or_wide_maps_keep_a_bounded_size() {
+    // The rule of the figure module (PANEL_MAX_HEIGHT, PANEL_MAX_ASPECT): the panel is never
+    // taller than PANEL_MAX_HEIGHT times the figure's width nor more elongated than
+    // PANEL_MAX_ASPECT to 1, and the map fills it; within those bounds the two axes have equal
+    // scales (common practice for sky maps).
+    let style = Style {
+        width_px: 1600,
+        ..Style::default()
+    };
+    let w = style.width_px as f64;
+    for (nx, ny) in [
+        (1, 2000),
+        (2000, 1),
+        (10, 300),
+        (300, 10),
+        (100, 250),
+        (512, 384),
+        (384, 700),
+    ] {
+        let map = smooth_map(ny, nx);
+        let l = Array2::from_elem((ny, nx), -1);
+        let o = plain_overlay(&map, &l, Vec::new());
+        let lay = overlay_layout(&o, &style).unwrap();
+        let (fx, fy, fw, fh) = lay.frame;
+        let what = format!("{nx} x {ny} map");
+        assert!(
+            fh <= render::PANEL_MAX_HEIGHT * w,
+            "{what}: panel {fw} x {fh}"
+        );
+        assert!(
+            fh.max(fw) <= render::PANEL_MAX_ASPECT * fh.min(fw),
+            "{what}: panel {fw} x {fh}"
+        );
+        assert!(fx + fw <= w, "{what}: panel inside the figure");
+        assert!(
+            (lay.height as f64) < fh + 0.5 * w,
+            "{what}: figure height {} for a panel {fh} tall",
+            lay.height
+        );
+        // The map's outer pixel edges are the frame's corners.
+        let (ax, ay) = lay.map_to_figure(-0.5, -0.5);
+        let (bx, by) = lay.map_to_figure(nx as f64 - 0.5, ny as f64 - 0.5);
+        for (a, b) in [(ax, fx), (ay, fy + fh), (bx, fx + fw), (by, fy)] {
+            assert!((a - b).abs() < 1e-9, "{what}: the map fills the frame");
+        }
+        let elongation = (nx as f64 / ny as f64).max(ny as f64 / nx as f64);
+        if elongation <= render::PANEL_MAX_ASPECT {
+            // Equal scales to the rounding of the panel's side to whole pixels.
+            assert!(lay.y_stretch.is_none(), "{what}: equal scales");
+            assert!(
+                (lay.ky - lay.kx).abs() * nx.min(ny) as f64 <= 0.5 + 1e-9,
+                "{what}: scales {} and {}",
+                lay.kx,
+                lay.ky
+            );
+        } else {
+            let r = lay.y_stretch.expect("unequal scales are reported");
+            assert!((r - lay.ky / lay.kx).abs() < 1e-12, "{what}");
+            assert_eq!(r < 1.0, ny > nx, "{what}: stretch {r}");
+        }
+    }
+    // The tallest case draws to the size its layout gives.
+    let map = smooth_map(2000, 1);
+    let l = Array2::from_elem((2000, 1), -1);
+    let o = plain_overlay(&map, &l, Vec::new());
+    let png = image::load_from_memory(&render_png(&o, &style).unwrap()).unwrap();
+    let lay = overlay_layout(&o, &style).unwrap();
+    assert_eq!((png.width(), png.height()), (lay.width, lay.height));
+}

@@ -97,6 +97,9 @@ pub struct Layout {
     /// Output pixels per map pixel along x and y.
     pub kx: f64,
     pub ky: f64,
+    /// For a map too tall or too wide to be drawn at equal scales in a figure of bounded size
+    /// (see [`PANEL_MAX_HEIGHT`] and [`PANEL_MAX_ASPECT`]): `ky / kx`; None at equal scales.
+    pub y_stretch: Option<f64>,
     /// Data values at the ends of the colour scale.
     pub limits: (f64, f64),
     pub ticks: AxisTicks,
@@ -217,6 +220,41 @@ fn colorbar_ticks(lo: f64, hi: f64, stretch: Stretch) -> Vec<(f64, String)> {
     }
 }
 
+/// The map panel is at most this many times as tall as the width available to it.
+pub const PANEL_MAX_HEIGHT: f64 = 2.0;
+/// At equal scales along x and y, the map panel's long side is at most this many times its
+/// short side; a map more elongated than that is drawn at unequal scales.
+pub const PANEL_MAX_ASPECT: f64 = 16.0;
+
+/// The map panel's width and height in whole output pixels, for `avail` pixels of width and a
+/// region of `rw` x `rh` map pixels.
+///
+/// Ordinary maps fill the width at equal scales along x and y. The figure's width is fixed, so
+/// only its height follows the map, and it is bounded either way:
+/// * a map taller than [`PANEL_MAX_HEIGHT`] times the width gets a panel of that height,
+///   narrowed to keep equal scales, but not to less than 1/[`PANEL_MAX_ASPECT`] of its
+///   height; a map taller still is drawn into that panel at a smaller scale along y;
+/// * a map wider than [`PANEL_MAX_ASPECT`] times its height gets a panel of the full width and
+///   1/[`PANEL_MAX_ASPECT`] of it in height, drawn at a larger scale along y.
+///
+/// The third value is false when the scales differ by more than the rounding to whole pixels.
+fn panel_size(avail: f64, rw: usize, rh: usize) -> (f64, f64, bool) {
+    let (rw, rh) = (rw as f64, rh as f64);
+    let natural = (avail * rh / rw).round().max(1.0);
+    let max_h = (PANEL_MAX_HEIGHT * avail).floor();
+    let min_h = (avail / PANEL_MAX_ASPECT).ceil().max(1.0);
+    if natural > max_h {
+        let narrowest = (max_h / PANEL_MAX_ASPECT).ceil().clamp(1.0, avail);
+        let equal = (max_h * rw / rh).round();
+        let w = equal.max(narrowest).min(avail);
+        (w, max_h, w == equal)
+    } else if natural < min_h {
+        (avail, min_h, false)
+    } else {
+        (avail, natural, true)
+    }
+}
+
 /// Computes the layout of a map figure (including the display limits of the colour scale).
 pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let region = validate(o, s)?;
@@ -246,7 +284,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     // Ticks: as many as fit without overlapping labels.
     let mut nb = 6usize;
     let mut nl = 7usize;
-    let (ticks, left, fw, fh, kx, ky) = loop {
+    let (ticks, left, fw, fh, kx, ky, equal) = loop {
         let ticks = axes::axis_ticks(o.sky, region, nb, nl);
         let left_lab_w = ticks
             .ticks
@@ -255,14 +293,14 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             .map(|t| text::width(&t.label, lfs))
             .fold(0.0, f64::max);
         let left = m.pad + 1.2 * fs + m.gap + left_lab_w + m.gap + m.tick;
-        let fw = (w_total - left - right).floor();
-        if fw < 16.0 {
+        let avail = (w_total - left - right).floor();
+        if avail < 16.0 {
             return Err(RenderError::BadStyle(format!(
                 "a figure {} pixels wide at {} dpi leaves no room for the map; make it wider or lower the dpi",
                 s.width_px, s.dpi
             )));
         }
-        let fh = (fw * rh as f64 / rw as f64).round().max(1.0);
+        let (fw, fh, equal) = panel_size(avail, rw, rh);
         let kx = fw / rw as f64;
         let ky = fh / rh as f64;
         // Check overlaps along each labelled edge.
@@ -285,7 +323,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         leftp.sort_by(f64::total_cmp);
         let l_ok = leftp.windows(2).all(|p| p[1] - p[0] > 1.6 * lfs);
         if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
-            break (ticks, left, fw, fh, kx, ky);
+            break (ticks, left, fw, fh, kx, ky, equal);
         }
         if !b_ok && nb > 2 {
             nb -= 1;
@@ -295,11 +333,17 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         }
     };
     let left = left.round();
+    // The left axis title and the unit label are written along the frame's height, centred on
+    // it: on a frame shorter than they are long, the margins above and below make room for
+    // what reaches beyond it.
+    let along = text::width(&ticks.left_title, fs).max(text::width(&o.unit_label, fs));
+    let spill = ((along - fh) / 2.0).max(0.0);
+    let top = top.max(m.pad + spill);
     let frame = (left, top.round(), fw, fh);
 
     // Legend rows below the axis title.
     let rows = legend::rows(&o.states, fs, m.gap, w_total - 2.0 * m.pad);
-    let below = m.tick + m.gap + 1.25 * lfs + m.gap + 1.3 * fs;
+    let below = (m.tick + m.gap + 1.25 * lfs + m.gap + 1.3 * fs).max(spill + m.gap);
     let legend_top = frame.1 + fh + below + m.pad;
     let legend_h = rows.len() as f64 * 1.5 * fs;
     let height = (legend_top + legend_h + m.pad).ceil() as u32;
@@ -311,6 +355,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         frame,
         kx,
         ky,
+        y_stretch: (!equal).then_some(ky / kx),
         limits,
         ticks,
         beam: None,
@@ -405,6 +450,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     let title = o.title.clone().unwrap_or_else(|| "map".to_string());
     let mut sc = Scene::new(lay.width, lay.height, s.dpi, &text::plain(&title));
     sc.clip = Some(lay.frame);
+    sc.y_stretch = lay.y_stretch;
     let scale = Scale {
         lo: lay.limits.0,
         hi: lay.limits.1,

@@ -34,7 +34,9 @@ mod text;
 mod tree;
 
 pub use axes::{AxisTicks, Coord, Edge, Region, Tick, axis_ticks};
-pub use figure::{BeamGeometry, Layout, beam_geometry, overlay_layout};
+pub use figure::{
+    BeamGeometry, Layout, PANEL_MAX_ASPECT, PANEL_MAX_HEIGHT, beam_geometry, overlay_layout,
+};
 pub use outline::{Ring, ring_area, simplify_ring, trace_outlines};
 pub use raster::colorize;
 pub use tree::{TreeLayout, tree_layout};
@@ -144,7 +146,8 @@ pub struct Style {
     pub stretch: Stretch,
     pub limits: Limits,
     pub colormap: ColorMap,
-    /// Width of the figure in pixels; the height follows the map's aspect and the margins.
+    /// Width of the figure in pixels; the height follows the map's aspect (bounded for very
+    /// tall or wide maps, see [`MapFigure::y_stretch`]) and the margins.
     pub width_px: u32,
     /// Print resolution: the figure is `width_px / dpi` inches wide and text is 9 pt.
     pub dpi: f64,
@@ -271,6 +274,10 @@ pub struct MapFigure {
     /// Of those, the leaves left without a label because no free place was found near them
     /// (crowded parts of the map; a figure of a smaller region has room for them).
     pub labels_left_out: usize,
+    /// For a map too tall or too wide to be drawn at equal scales in a figure of bounded
+    /// size: how many times larger the scale along y is than along x (below 1 for a tall
+    /// map). None when the map is drawn at equal scales.
+    pub y_stretch: Option<f64>,
 }
 
 /// Draws the map figure as PNG and SVG ([`render_png`], [`render_svg`]) from one layout.
@@ -281,6 +288,7 @@ pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderErro
         svg: sc.to_svg()?,
         leaves_in_frame: sc.leaves_to_label,
         labels_left_out: sc.labels_left_out,
+        y_stretch: sc.y_stretch,
     })
 }
 

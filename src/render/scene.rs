@@ -183,6 +183,8 @@ pub(crate) struct Scene {
     /// (no free place near them).
     pub leaves_to_label: usize,
     pub labels_left_out: usize,
+    /// Map figures: the ratio of the scales along y and x when they differ.
+    pub y_stretch: Option<f64>,
 }
 
 impl Scene {
@@ -196,6 +198,7 @@ impl Scene {
             title: title.to_string(),
             leaves_to_label: 0,
             labels_left_out: 0,
+            y_stretch: None,
         }
     }
 
