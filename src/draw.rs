@@ -377,27 +377,67 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
                 ),
             )
         })?;
+    let tree_path = dir.join(crate::segment::names::TREE_JSON);
     let csv_path = dir.join(crate::segment::names::CSV);
-    let states = read_states(&csv_path, &read(crate::segment::names::CSV)?)?;
     let mut structures = Vec::new();
-    for s in tree["structures"].as_array().cloned().unwrap_or_default() {
-        let id = s["id"].as_u64().unwrap_or(0) as u32;
+    for (k, s) in tree["structures"]
+        .as_array()
+        .map(Vec::as_slice)
+        .unwrap_or_default()
+        .iter()
+        .enumerate()
+    {
+        let id = s["id"].as_u64();
+        let parent = s["parent"].as_u64();
+        // The engine numbers structures 0, 1, 2, ... with every parent before its children
+        // (figures index structures by id and follow parents up to the roots).
+        if id != Some(k as u64) || parent.is_some_and(|p| p >= k as u64) {
+            return Err(Error::input(
+                &tree_path,
+                format!(
+                    "structure number {} has the id {} and the parent {}, but cairn numbers structures 0, 1, 2, ... with each parent before its children, so the file was changed; {REMAKE}.",
+                    k + 1,
+                    s["id"],
+                    s["parent"]
+                ),
+            ));
+        }
+        let peak = (
+            s["peak_x"].as_u64().unwrap_or(u64::MAX) as usize,
+            s["peak_y"].as_u64().unwrap_or(u64::MAX) as usize,
+        );
+        if peak.0 >= map.nx() || peak.1 >= map.ny() {
+            return Err(Error::input(
+                &tree_path,
+                format!(
+                    "structure {k} has its peak at pixel ({}, {}), outside the {} x {} map, so the file belongs to another run; {REMAKE}.",
+                    s["peak_x"],
+                    s["peak_y"],
+                    map.nx(),
+                    map.ny()
+                ),
+            ));
+        }
         structures.push(FigStructure {
-            id,
-            parent: s["parent"].as_u64().map(|p| p as u32),
+            id: k as u32,
+            parent: parent.map(|p| p as u32),
             is_leaf: s["children"]
                 .as_array()
                 .map(|c| c.is_empty())
                 .unwrap_or(true),
-            peak: (
-                s["peak_x"].as_u64().unwrap_or(0) as usize,
-                s["peak_y"].as_u64().unwrap_or(0) as usize,
-            ),
+            peak,
             peak_value: s["peak"].as_f64().unwrap_or(f64::NAN),
             merge_level: s["merge_level"].as_f64().unwrap_or(f64::NAN),
-            state: states.get(&id).cloned(),
+            state: None,
         });
     }
+    let leaves_only = run["parameters"]["leaves_only"].as_bool().unwrap_or(false);
+    let states = read_states(&csv_path, &read(crate::segment::names::CSV)?)?;
+    check_catalogue_ids(&csv_path, &states, &structures, leaves_only)?;
+    for (id, state) in states {
+        structures[id as usize].state = state;
+    }
+    check_labels(&lab_path, labels.view(), &structures)?;
     Ok(SavedRun {
         map,
         labels,
@@ -406,16 +446,24 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
     })
 }
 
-/// The `state` column of a catalogue, by id (empty if the column is absent). A damaged
-/// catalogue (rows cut short, ids that are not numbers) is refused.
-fn read_states(path: &Path, csv: &str) -> Result<std::collections::HashMap<u32, String>> {
+/// The fix named when the files of a run folder do not belong together.
+const REMAKE: &str = "re-run `cairn segment` on the map with --force to remake the run";
+
+/// The ids of a catalogue's rows, in order, each with its `state` (None when the catalogue has
+/// no `state` column, as without a distance). A damaged catalogue (rows cut short, ids that
+/// are not numbers, no `id` column) and states that are none of the words of [`STATES`] are
+/// refused.
+fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>)>> {
     let (cols, rows) = crate::table::read_catalogue_csv(path, csv)?;
-    let (Some(i), Some(s)) = (
-        cols.iter().position(|c| c == "id"),
-        cols.iter().position(|c| c == "state"),
-    ) else {
-        return Ok(Default::default());
+    let Some(i) = cols.iter().position(|c| c == "id") else {
+        return Err(Error::input(
+            path,
+            format!(
+                "has no id column, so it is not a catalogue written by cairn segment; {REMAKE}."
+            ),
+        ));
     };
+    let s = cols.iter().position(|c| c == "state");
     rows.iter()
         .enumerate()
         .map(|(n, r)| {
@@ -423,15 +471,114 @@ fn read_states(path: &Path, csv: &str) -> Result<std::collections::HashMap<u32, 
                 Error::input(
                     path,
                     format!(
-                        "row {} has the id '{}': the catalogue is damaged; run cairn segment again.",
+                        "row {} has the id '{}': the catalogue is damaged; {REMAKE}.",
                         n + 1,
                         r[i]
                     ),
                 )
             })?;
-            Ok((id, r[s].clone()))
+            let state = s.map(|s| r[s].clone());
+            if let Some(st) = &state
+                && !STATES.iter().any(|(name, _)| name == st)
+            {
+                return Err(Error::input(
+                    path,
+                    format!(
+                        "row {} (structure {id}) has the state '{st}', which is none of bound, marginal, unbound or unknown, so the catalogue was changed; {REMAKE}.",
+                        n + 1
+                    ),
+                ));
+            }
+            Ok((id, state))
         })
         .collect()
+}
+
+/// Refuses a catalogue whose ids are not those of the hierarchy file (its leaves', for a run
+/// made with `--leaves-only`), each once; the order of the rows does not matter.
+fn check_catalogue_ids(
+    path: &Path,
+    rows: &[(u32, Option<String>)],
+    structures: &[FigStructure],
+    leaves_only: bool,
+) -> Result<()> {
+    let tree = crate::segment::names::TREE_JSON;
+    let expected = |id: u32| {
+        structures
+            .get(id as usize)
+            .is_some_and(|s| s.is_leaf || !leaves_only)
+    };
+    let mut seen = vec![false; structures.len()];
+    for &(id, _) in rows {
+        if !expected(id) {
+            let what = if leaves_only && (id as usize) < structures.len() {
+                format!("{tree} has it as a branch but the run catalogued leaves only")
+            } else {
+                format!("{tree} has no structure {id}")
+            };
+            return Err(Error::input(
+                path,
+                format!(
+                    "has a row for structure {id} but {what}, so the two files come from different runs; {REMAKE}."
+                ),
+            ));
+        }
+        if std::mem::replace(&mut seen[id as usize], true) {
+            return Err(Error::input(
+                path,
+                format!("has two rows for structure {id}, so the catalogue was changed; {REMAKE}."),
+            ));
+        }
+    }
+    if let Some(id) = (0..structures.len() as u32).find(|&id| expected(id) && !seen[id as usize]) {
+        return Err(Error::input(
+            path,
+            format!(
+                "has no row for structure {id} of {tree} ({} rows for {} structures): rows were deleted or the two files come from different runs; {REMAKE}.",
+                rows.len(),
+                (0..structures.len() as u32)
+                    .filter(|&i| expected(i))
+                    .count()
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// Refuses a label map that holds a label which is no structure of the hierarchy file, or
+/// that does not give a leaf's peak pixel the leaf's id (the smallest structure there).
+fn check_labels(path: &Path, labels: ArrayView2<i32>, structures: &[FigStructure]) -> Result<()> {
+    let n = structures.len() as i64;
+    let tree = crate::segment::names::TREE_JSON;
+    if let Some(((y, x), &v)) = labels
+        .indexed_iter()
+        .find(|&(_, &v)| v < -1 || v as i64 >= n)
+    {
+        let ids = if n > 0 {
+            format!("ids 0 to {}", n - 1)
+        } else {
+            "no structure".to_string()
+        };
+        return Err(Error::input(
+            path,
+            format!(
+                "gives pixel ({x}, {y}) the label {v}, but {tree} has {ids}, so the label map belongs to another run; {REMAKE}."
+            ),
+        ));
+    }
+    for s in structures.iter().filter(|s| s.is_leaf) {
+        let v = labels[[s.peak.1, s.peak.0]];
+        if v != s.id as i32 {
+            return Err(Error::input(
+                path,
+                format!(
+                    "gives the peak pixel ({}, {}) of leaf {} of {tree} the label {v}, so the label map belongs to another run; {REMAKE}.",
+                    s.peak.0, s.peak.1, s.id
+                ),
+            ));
+        }
+    }
+    Ok(())
 }
 
 #[cfg(test)]

@@ -84,3 +84,162 @@ fn one_pixel_wide_or_tall_maps_give_figures_of_bounded_size() {
         );
     }
 }
+
+/// A finished run of the column-density demo map with states (distance and temperature given)
+/// and no figures, in `dir/name`, made with the extra `args`.
+fn demo_run(dir: &Path, name: &str, args: &[&str]) -> PathBuf {
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let mut all = vec![
+        "segment",
+        map.to_str().unwrap(),
+        "-o",
+        name,
+        "--distance",
+        "410pc",
+        "--temperature",
+        "14K",
+        "--no-figure",
+        "-q",
+    ];
+    all.extend_from_slice(args);
+    let o = cairn(&all, dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    dir.join(name)
+}
+
+/// A copy of the run folder `from` as `dir/name`.
+fn copy_run(from: &Path, dir: &Path, name: &str) -> PathBuf {
+    let to = dir.join(name);
+    std::fs::create_dir(&to).unwrap();
+    for e in std::fs::read_dir(from).unwrap() {
+        let e = e.unwrap();
+        std::fs::copy(e.path(), to.join(e.file_name())).unwrap();
+    }
+    to
+}
+
+/// `cairn draw` on the folder `run` is refused by the rule for bad input (exit 2, one sentence
+/// naming `file` and saying `says` and the fix) and writes nothing.
+fn assert_draw_refused(dir: &Path, run: &Path, file: &str, says: &str) {
+    let out = dir.join(format!(
+        "{}-figures",
+        run.file_name().unwrap().to_str().unwrap()
+    ));
+    let before = cli::listing(run);
+    let args = ["draw", run.to_str().unwrap(), "-o", out.to_str().unwrap()];
+    let o = cairn(&args, dir);
+    cli::check_refused(&o, &args, file, says);
+    assert!(
+        o.stderr.contains("re-run `cairn segment`") && o.stderr.contains("--force"),
+        "the fix is named: {}",
+        o.stderr
+    );
+    assert!(!out.exists(), "no figure folder");
+    assert_eq!(cli::listing(run), before, "nothing written in the run");
+}
+
+/// The data rows of a catalogue (after its `#` notes and its header).
+fn csv_parts(text: &str) -> (Vec<&str>, Vec<&str>) {
+    text.lines().partition(|l| l.starts_with('#'))
+}
+
+#[test]
+fn draw_refuses_run_folders_whose_files_do_not_belong_together() {
+    let d = tempfile::tempdir().unwrap();
+    let good = demo_run(d.path(), "good", &[]);
+    // The untouched run draws (the checks accept what segment writes) ...
+    let o = cairn(&["draw", "good", "-o", "good-figures", "-q"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // ... and so does a run made with --leaves-only, whose catalogue lists leaves only.
+    demo_run(d.path(), "leaves", &["--leaves-only"]);
+    let o = cairn(&["draw", "leaves", "-o", "leaves-figures", "-q"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // Sorting the catalogue's rows changes nothing the figures need.
+    let sorted = copy_run(&good, d.path(), "sorted");
+    let text = std::fs::read_to_string(sorted.join("structures.csv")).unwrap();
+    let (notes, mut rows) = csv_parts(&text);
+    let header = rows.remove(0);
+    rows.reverse();
+    let back = [notes, vec![header], rows].concat().join("\n") + "\n";
+    std::fs::write(sorted.join("structures.csv"), back).unwrap();
+    let o = cairn(&["draw", "sorted", "-o", "sorted-figures", "-q"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+
+    // Another run's label map of the same shape: other thresholds, other structures, with
+    // ids beyond those of this run's hierarchy ...
+    let other = demo_run(
+        d.path(),
+        "other",
+        &["--floor", "6sigma", "--prominence", "5sigma"],
+    );
+    let mixed = copy_run(&good, d.path(), "mixed");
+    std::fs::copy(other.join("labels.fits"), mixed.join("labels.fits")).unwrap();
+    assert_draw_refused(d.path(), &mixed, "labels.fits", "another run");
+    // ... or fewer structures, all of whose ids this run has too (the leaves' peaks tell).
+    let few = demo_run(d.path(), "few", &["--prominence", "10sigma"]);
+    let mixed = copy_run(&good, d.path(), "mixed-few");
+    std::fs::copy(few.join("labels.fits"), mixed.join("labels.fits")).unwrap();
+    assert_draw_refused(d.path(), &mixed, "labels.fits", "peak pixel");
+
+    // Label ids shifted by +500.
+    let shifted = copy_run(&good, d.path(), "shifted");
+    let lab = cairn::map::load(
+        &shifted.join("labels.fits"),
+        &cairn::map::LoadOptions {
+            require_unit: false,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let moved = lab
+        .data
+        .mapv(|v| if v >= 0.0 { v as i32 + 500 } else { -1 });
+    cairn::fits_write::write_image_i32(
+        &shifted.join("labels.fits"),
+        moved.view(),
+        &lab.header,
+        true,
+    )
+    .unwrap();
+    assert_draw_refused(d.path(), &shifted, "labels.fits", "another run");
+
+    // Catalogue rows deleted (the last two).
+    let cut = copy_run(&good, d.path(), "cut");
+    let text = std::fs::read_to_string(cut.join("structures.csv")).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    let kept = lines[..lines.len() - 2].join("\n") + "\n";
+    std::fs::write(cut.join("structures.csv"), kept).unwrap();
+    assert_draw_refused(d.path(), &cut, "structures.csv", "rows were deleted");
+
+    // A row given twice.
+    let twice = copy_run(&good, d.path(), "twice");
+    let text = std::fs::read_to_string(twice.join("structures.csv")).unwrap();
+    let last = text.lines().last().unwrap().to_string();
+    std::fs::write(twice.join("structures.csv"), text + &last + "\n").unwrap();
+    assert_draw_refused(d.path(), &twice, "structures.csv", "two rows");
+
+    // A state that is none of the documented words (README: bound, marginal, unbound or
+    // unknown).
+    let wobbly = copy_run(&good, d.path(), "wobbly");
+    let text = std::fs::read_to_string(wobbly.join("structures.csv")).unwrap();
+    let (notes, rows) = csv_parts(&text);
+    let col = rows[0].split(',').position(|c| c == "state").unwrap();
+    let mut changed: Vec<String> = rows.iter().map(|r| r.to_string()).collect();
+    let mut fields: Vec<&str> = rows[1].split(',').collect();
+    fields[col] = "wobbly";
+    changed[1] = fields.join(",");
+    let back = [
+        notes.iter().map(|s| s.to_string()).collect::<Vec<_>>(),
+        changed,
+    ]
+    .concat()
+    .join("\n")
+        + "\n";
+    std::fs::write(wobbly.join("structures.csv"), back).unwrap();
+    assert_draw_refused(d.path(), &wobbly, "structures.csv", "'wobbly'");
+
+    // Another run's hierarchy file (more structures than the catalogue lists).
+    let tree = copy_run(&good, d.path(), "tree");
+    std::fs::copy(other.join("hierarchy.json"), tree.join("hierarchy.json")).unwrap();
+    assert_draw_refused(d.path(), &tree, "structures.csv", "different runs");
+}
