@@ -1292,3 +1292,59 @@ fn figures_of_very_tall_or_wide_maps_keep_a_bounded_size() {
     let lay = overlay_layout(&o, &style).unwrap();
     assert_eq!((png.width(), png.height()), (lay.width, lay.height));
 }
+
+#[test]
+fn the_legend_stays_inside_the_figure_at_every_accepted_width() {
+    // Nothing drawn may reach the figure's left or right edge (common practice: a margin all
+    // round). The legend uses the words cairn's figures of runs use, the longest it draws.
+    let states: Vec<StateLegend> = cairn::draw::STATES
+        .iter()
+        .map(|(n, d)| StateLegend {
+            name: n.to_string(),
+            description: d.to_string(),
+        })
+        .collect();
+    let map = smooth_map(48, 64);
+    let l = Array2::from_elem((48, 64), -1);
+    let mut o = plain_overlay(&map, &l, Vec::new());
+    o.states = states.clone();
+    o.unit_label = "N(H_2) [cm^-2]".into();
+    let nodes = tree_nodes();
+    for dpi in [300.0, 150.0] {
+        let accepted = |w: u32| {
+            let s = Style {
+                width_px: w,
+                dpi,
+                ..Style::default()
+            };
+            overlay_layout(&o, &s).is_ok()
+        };
+        let smallest = (100..2000).find(|&w| accepted(w)).unwrap();
+        for w in [smallest, smallest + 37, 800, 900, 1600] {
+            let style = Style {
+                width_px: w,
+                dpi,
+                ..Style::default()
+            };
+            let figures = [
+                ("overlay", render_png(&o, &style).unwrap()),
+                (
+                    "tree",
+                    tree_png(&nodes, &states, "level [K]", &style).unwrap(),
+                ),
+            ];
+            for (what, png) in figures {
+                let img = image::load_from_memory(&png).unwrap().to_rgb8();
+                for x in [0, img.width() - 1] {
+                    let touched = (0..img.height())
+                        .filter(|&y| img.get_pixel(x, y).0 != [255, 255, 255])
+                        .count();
+                    assert_eq!(
+                        touched, 0,
+                        "{what} {w} px wide at {dpi} dpi: {touched} pixels drawn in column {x}"
+                    );
+                }
+            }
+        }
+    }
+}

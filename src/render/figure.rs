@@ -111,7 +111,7 @@ pub struct Layout {
     pub font_px: f64,
     colorbar: (f64, f64, f64, f64),
     legend_top: f64,
-    legend_rows: Vec<Vec<(usize, f64)>>,
+    legend_rows: Vec<Vec<legend::Entry>>,
 }
 
 impl Layout {
@@ -987,7 +987,6 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     // Legend of states.
     legend::draw(
         &mut sc,
-        &o.states,
         &lay.legend_rows,
         m.pad,
         lay.legend_top,

@@ -427,7 +427,6 @@ pub(crate) fn scene(
     // Legend.
     legend::draw(
         &mut sc,
-        states,
         &rows,
         pad,
         legend_top,
