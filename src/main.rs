@@ -493,9 +493,9 @@ impl StyleArgs {
                 self.width
             )));
         }
-        if !(self.dpi > 10.0 && self.dpi < 5000.0) {
+        if !(self.dpi >= 30.0 && self.dpi <= 2400.0) {
             return Err(Error::usage(format!(
-                "--dpi {} is outside 10 to 5000; give a resolution in that range, such as 300.",
+                "--dpi {} is outside 30 to 2400; give a resolution in that range, such as 300.",
                 self.dpi
             )));
         }
@@ -1073,6 +1073,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     }
     if let Some((in_frame, left_out)) = summary.figure_labels {
         labels_note(in_frame, left_out);
+        stretch_note(summary.figure_y_stretch);
     }
     if summary.leaves == 0 {
         outln!(
@@ -1334,6 +1335,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         b.finish_and_clear();
     }
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
+    stretch_note(figs.overlay.y_stretch);
     for p in written {
         if !quiet {
             eprintln!("wrote {}", p.display());
@@ -1348,6 +1350,15 @@ fn labels_note(in_frame: usize, left_out: usize) {
     if left_out > 0 {
         outln!(
             "figure: {left_out} of {in_frame} leaves left without a label where the map is too crowded for one; draw a smaller --region or a wider --width to label them"
+        );
+    }
+}
+
+/// Says when a very long and narrow map was drawn at unequal scales along x and y.
+fn stretch_note(y_stretch: Option<f64>) {
+    if let Some(r) = y_stretch {
+        outln!(
+            "figure: the map is drawn at {r:.3} times the scale along y as along x, to keep the figure a usable size; draw a --region for equal scales"
         );
     }
 }

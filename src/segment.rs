@@ -335,6 +335,9 @@ pub struct RunSummary {
     pub leaf_states: Option<std::collections::BTreeMap<String, usize>>,
     /// With a figure: leaves inside its frame and how many of them got no label.
     pub figure_labels: Option<(usize, usize)>,
+    /// With a figure of a very long and narrow map: the scale along y over that along x
+    /// (the map is then drawn at unequal scales to keep the figure a usable size).
+    pub figure_y_stretch: Option<f64>,
 }
 
 fn sky_names(map: &Map) -> (&'static str, &'static str) {
@@ -1179,6 +1182,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         label_maps_seconds,
     ) = written?;
     let mut labels = None;
+    let mut y_stretch = None;
     if let Some(style) = &o.figure {
         let input = crate::draw::FigureInput {
             map,
@@ -1216,6 +1220,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             figs.overlay.svg.as_bytes(),
         )?;
         labels = Some((figs.overlay.leaves_in_frame, figs.overlay.labels_left_out));
+        y_stretch = figs.overlay.y_stretch;
         if tpng.is_empty() {
             // No structure: there is no tree to draw.
             outputs.skip(names::TREE_PNG);
@@ -1285,6 +1290,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         physics_note,
         leaf_states,
         figure_labels: labels,
+        figure_y_stretch: y_stretch,
     })
 }
 
