@@ -9,7 +9,7 @@
 #[path = "common/cli.rs"]
 mod cli;
 
-use cli::{cairn, check_refused, listing};
+use cli::{cairn, check_refused, demo_run, listing};
 use std::path::{Path, PathBuf};
 
 fn demo_map(dir: &Path) -> PathBuf {
@@ -235,22 +235,7 @@ fn compare_refuses_values_that_would_exhaust_the_machine() {
     let d = tempfile::tempdir().unwrap();
     demo_map(d.path());
     for run in ["run", "run2"] {
-        let o = cairn(
-            &[
-                "segment",
-                "col.fits",
-                "-o",
-                run,
-                "--distance",
-                "410pc",
-                "--temperature",
-                "14K",
-                "--no-figure",
-                "-q",
-            ],
-            d.path(),
-        );
-        assert_eq!(o.code, 0, "{}", o.stderr);
+        demo_run(d.path(), run, &[]);
     }
     // Without the bounds, 1e-9 dex bins asked for 190 GB and a million resamples ran for
     // minutes with nothing to show.

@@ -6,7 +6,7 @@
 mod cli;
 
 use cairn::header::{Header, Value};
-use cli::{Outcome, cairn_limited};
+use cli::{Outcome, cairn_limited, demo_run};
 use std::path::{Path, PathBuf};
 
 /// Runs cairn in `dir` with its address space limited to 2 GB, so that a runaway allocation
@@ -83,28 +83,6 @@ fn one_pixel_wide_or_tall_maps_give_figures_of_bounded_size() {
             "{nx} x {ny}: redrawn overlay {w} x {h}"
         );
     }
-}
-
-/// A finished run of the column-density demo map with states (distance and temperature given)
-/// and no figures, in `dir/name`, made with the extra `args`.
-fn demo_run(dir: &Path, name: &str, args: &[&str]) -> PathBuf {
-    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
-    let mut all = vec![
-        "segment",
-        map.to_str().unwrap(),
-        "-o",
-        name,
-        "--distance",
-        "410pc",
-        "--temperature",
-        "14K",
-        "--no-figure",
-        "-q",
-    ];
-    all.extend_from_slice(args);
-    let o = cairn(&all, dir);
-    assert_eq!(o.code, 0, "{}", o.stderr);
-    dir.join(name)
 }
 
 /// A copy of the run folder `from` as `dir/name`.
