@@ -370,12 +370,23 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
         let vals: Vec<(String, String)> = pops
             .iter()
             .map(|p| {
-                (
-                    p.label.clone(),
-                    get(p, k)
-                        .map(|v| v.to_string())
-                        .unwrap_or_else(|| "unknown".into()),
-                )
+                let mut v = get(p, k)
+                    .map(|v| v.to_string())
+                    .unwrap_or_else(|| "unknown".into());
+                // The default floor and prominence are 3 sigma (the floor above the
+                // background), the same as given so.
+                if k[0] == "parameters" && k[1] != "min_area" && v == "\"default\"" {
+                    v = "\"3sigma\"".into();
+                }
+                // Before cairn counted a floor in sigma from the background, such a floor was
+                // absolute; those runs recorded no background with it.
+                if k[1] == "floor"
+                    && v.ends_with("sigma\"")
+                    && get(p, &["noise", "background"]).is_none()
+                {
+                    v.push_str(" (absolute, before cairn counted it from the background)");
+                }
+                (p.label.clone(), v)
             })
             .collect();
         if vals.iter().any(|v| v.1 != vals[0].1) {

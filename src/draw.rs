@@ -312,7 +312,18 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
     {
         opts.unit = Some(u.to_string());
     }
-    if let Some(b) = run["beam"].as_object() {
+    // A run on the map smoothed to a common resolution: the file's own beam, then the same
+    // smoothing again below.
+    let common = run["common_resolution"].as_object().and_then(|c| {
+        let g = |k: &str| c.get(k).and_then(|v| v.as_f64());
+        Some((g("resolution_m")?, g("distance_m")?))
+    });
+    let beam_record = if common.is_some() {
+        &run["common_resolution"]["input_beam"]
+    } else {
+        &run["beam"]
+    };
+    if let Some(b) = beam_record.as_object() {
         let g = |k: &str| b.get(k).and_then(|v| v.as_f64());
         if let (Some(a), Some(m), Some(p)) = (g("major_deg"), g("minor_deg"), g("pa_deg")) {
             opts.beam = Some(map::Beam {
@@ -343,6 +354,12 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
             "is not the map this run was made from (its SHA-256 differs); give the right one with --map.",
         ));
     }
+    let map = match common {
+        Some((resolution_m, distance_m)) => {
+            crate::resolution::to_common_resolution(&map, resolution_m, distance_m)?
+        }
+        None => map,
+    };
     let lab_path = dir.join(crate::segment::names::LABELS);
     let labels = map::load(
         &lab_path,

@@ -28,6 +28,15 @@ fn print_out(args: std::fmt::Arguments) {
     }
 }
 
+/// `eprintln!` that ignores a failed write: a closed stderr (`2>&1 | true`) must neither panic
+/// nor change the run's outcome, which its files and exit code carry.
+macro_rules! errln {
+    ($($t:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stderr(), $($t)*);
+    }};
+}
+
 /// `println!` through [`print_out`].
 macro_rules! outln {
     ($($t:tt)*) => { print_out(format_args!("{}\n", format_args!($($t)*))) };
@@ -477,13 +486,25 @@ impl StyleArgs {
                 )));
             }
         };
+        // Checked here, not only when drawing, so that --no-figure does not hide a mistake.
         let limits = match &self.range {
             Some(r) => {
                 let (a, b) = pair(r, "--range")?;
+                if !(a.is_finite() && b.is_finite() && a <= b) {
+                    return Err(Error::usage(format!(
+                        "--range {r} must be two finite values, the lower first; give them as LOW,HIGH."
+                    )));
+                }
                 Limits::Values(a, b)
             }
             None => {
                 let (a, b) = pair(&self.limits, "--limits")?;
+                if !((0.0..=100.0).contains(&a) && (0.0..=100.0).contains(&b) && a < b) {
+                    return Err(Error::usage(format!(
+                        "--limits {}: percentile limits must satisfy 0 <= low < high <= 100; give them as LOW,HIGH such as 0.5,99.5.",
+                        self.limits
+                    )));
+                }
                 Limits::Percentiles(a, b)
             }
         };
@@ -832,6 +853,10 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
             )));
         }
     };
+    if a.cores == Some(0) {
+        // No random cores: none need room, and a spec's population is dropped.
+        spec.population = None;
+    }
     if let Some(n) = a.cores.filter(|&n| n > 0) {
         let (m0, m1) = match &a.core_mass {
             Some(t) => pair(t, Dimension::Mass, "--core-mass")?,
@@ -933,9 +958,9 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
     let written = outputs.commit()?;
     if !quiet {
         for p in written {
-            eprintln!("wrote {}", p.display());
+            errln!("wrote {}", p.display());
         }
-        eprintln!("{} cores injected", map.truth.len());
+        errln!("{} cores injected", map.truth.len());
     }
     Ok(())
 }
@@ -976,7 +1001,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     }
     if !quiet {
         for w in &m.warnings {
-            eprintln!("warning: {w}");
+            errln!("warning: {w}");
         }
     }
     let connectivity = match a.connectivity.trim() {
@@ -1082,7 +1107,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     }
     if !quiet {
         for f in &summary.files {
-            eprintln!("wrote {}", f.display());
+            errln!("wrote {}", f.display());
         }
     }
     Ok(())
@@ -1106,6 +1131,12 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         return Err(Error::usage(format!(
             "--mass-column '{}' is not understood: give mass or mass_excess.",
             a.mass_column
+        )));
+    }
+    if a.resamples < 2 {
+        return Err(Error::usage(format!(
+            "--resamples {} is too few for a bootstrap; give at least 2 (500 by default).",
+            a.resamples
         )));
     }
     if a.resamples > 100_000 {
@@ -1269,11 +1300,11 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         }
     }
     for w in &c.warnings {
-        eprintln!("warning: {w}");
+        errln!("warning: {w}");
     }
     if !quiet {
         for f in files {
-            eprintln!("wrote {}", f.display());
+            errln!("wrote {}", f.display());
         }
     }
     Ok(())
@@ -1338,7 +1369,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     stretch_note(figs.overlay.y_stretch);
     for p in written {
         if !quiet {
-            eprintln!("wrote {}", p.display());
+            errln!("wrote {}", p.display());
         }
     }
     Ok(())
@@ -1417,7 +1448,7 @@ fn main() -> ExitCode {
                 .find(|w| ["inspect", "segment", "draw", "compare", "synth"].contains(&w.as_str()))
                 .map(|w| format!("cairn {w} --help"))
                 .unwrap_or_else(|| "cairn --help".into());
-            eprintln!("cairn: {first}; see {command} for the options.");
+            errln!("cairn: {first}; see {command} for the options.");
             return ExitCode::from(2);
         }
     };
@@ -1445,7 +1476,7 @@ fn main() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("cairn: {e}");
+            errln!("cairn: {e}");
             ExitCode::from(e.exit_code() as u8)
         }
     }

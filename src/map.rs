@@ -206,6 +206,22 @@ pub struct Map {
     pub wavelength_source: Option<Source>,
     /// Things the user should know (shown on stderr and in `inspect`).
     pub warnings: Vec<String>,
+    /// Set when this map is a file's map smoothed to a common linear resolution
+    /// ([`crate::resolution::to_common_resolution`]): what was asked, so that it can be redone.
+    pub common_resolution: Option<CommonResolution>,
+}
+
+/// How a map was smoothed to a common linear resolution, recorded so that the same map can be
+/// made again from its file (by `cairn draw`).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct CommonResolution {
+    /// The linear resolution asked for, metres (as given to the smoothing, so that it is
+    /// redone to the bit).
+    pub resolution_m: f64,
+    /// The distance it was turned into an angle with, metres.
+    pub distance_m: f64,
+    /// The file's beam before smoothing.
+    pub input_beam: Beam,
 }
 
 impl Map {
@@ -568,6 +584,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         wavelength_m,
         wavelength_source,
         warnings,
+        common_resolution: None,
     })
 }
 

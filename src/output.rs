@@ -129,9 +129,12 @@ fn clean_up() -> std::sync::MutexGuard<'static, Live> {
             remove_created(&p.dir, p.created_dir.as_deref());
         }
         if live.plans.is_empty() {
-            eprintln!("cairn: interrupted.");
+            let _ = std::io::Write::write_all(&mut std::io::stderr(), b"cairn: interrupted.\n");
         } else {
-            eprintln!("cairn: interrupted; the unfinished outputs were removed.");
+            let _ = std::io::Write::write_all(
+                &mut std::io::stderr(),
+                b"cairn: interrupted; the unfinished outputs were removed.\n",
+            );
         }
         live
     }

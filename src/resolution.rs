@@ -298,6 +298,11 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
         data.mapv_inplace(|v| v * f);
     }
     let mut out = map.clone();
+    out.common_resolution = Some(crate::map::CommonResolution {
+        resolution_m,
+        distance_m,
+        input_beam: beam,
+    });
     out.beam = Some(new_beam);
     out.beam_source = Some(crate::map::Source::Option);
     // Regrid by whole blocks keeping at least three pixels per FWHM.

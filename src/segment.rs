@@ -30,7 +30,8 @@ use crate::wcs::SkyFrame;
 pub enum Level {
     /// In map units.
     Value(f64),
-    /// A multiple of the noise.
+    /// A multiple of the noise. As a floor it is counted from the background (the map's
+    /// clipped median), as the default floor is; as a prominence it is a rise.
     Sigma(f64),
 }
 
@@ -109,7 +110,8 @@ pub fn parse_area(text: &str) -> Result<Area> {
 /// The options of a segmentation run.
 #[derive(Debug, Clone)]
 pub struct SegmentOptions {
-    /// Lowest level considered (default: 3 sigma above the clipped median).
+    /// Lowest level considered (default: 3 sigma above the clipped median; a
+    /// [`Level::Sigma`] floor is counted from that median too).
     pub floor: Option<Level>,
     /// Least rise of a peak above where it meets a neighbour (default: 3 sigma).
     pub prominence: Option<Level>,
@@ -175,7 +177,12 @@ fn resolve_with(
     // The background level (clipped median) is needed only for a floor in noise units (the
     // default one included): such a floor is that many noise widths above the background.
     let background = if !matches!(o.floor, Some(Level::Value(_))) {
-        noise::clipped_stats(map.data.view()).ok().map(|c| c.median)
+        // A map whose pixels mostly share one value still has that value as its median.
+        match noise::clipped_stats(map.data.view()) {
+            Ok(c) => Some(c.median),
+            Err(noise::NoNoise::Constant(v) | noise::NoNoise::Quantised(v)) => Some(v),
+            Err(noise::NoNoise::AllMissing) => None,
+        }
     } else {
         None
     };
@@ -966,7 +973,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 ),
                 Some(Level::Sigma(k)) => format!(
                     "--floor {k}sigma ({floor:.4e}: {k} times the noise {noise} above the background {}) lies above the highest value of {file} ({max:.4e}); lower it or give the noise with --noise (cairn inspect suggests a floor).",
-                    r.background.map(|b| format!("{b:.4e}")).unwrap_or_default()
+                    r.background
+                        .map(|b| format!("{b:.4e}"))
+                        .unwrap_or_else(|| "0".into())
                 ),
                 None => format!(
                     "the default floor, 3 sigma above the background ({floor:.4e} with the noise {noise}), lies above the highest value of {file} ({max:.4e}), so nothing in the map rises above its noise by that estimate; give --floor in map units{}.",
@@ -1252,6 +1261,13 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         },
         "noise": { "value": r.noise, "unit": map.unit_text, "source": r.noise_source, "background": r.background },
         "beam": map.beam,
+        "common_resolution": map.common_resolution.map(|c| serde_json::json!({
+            "resolution_m": c.resolution_m,
+            "distance_m": c.distance_m,
+            "resolution_pc": c.resolution_m / crate::physics::constants::PC,
+            "distance_pc": c.distance_m / crate::physics::constants::PC,
+            "input_beam": c.input_beam,
+        })),
         "result": { "leaves": leaves, "branches": branches, "roots": roots, "structures": ms.len(), "trees": trees },
         "timings_seconds": {
             "thresholds_and_noise": t_resolve,

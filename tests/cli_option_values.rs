@@ -179,9 +179,29 @@ fn figure_options_are_checked_without_a_figure_too() {
     refused(
         d.path(),
         &["segment", "col.fits", "-o", "out", "--limits", "-5,200"],
-        "percentile limits",
+        "--limits -5,200",
         "0 <= low < high <= 100",
     );
+    for (option, value) in [
+        ("--limits", "99,1"),
+        ("--range", "5,1"),
+        ("--range", "nan,1"),
+    ] {
+        refused(
+            d.path(),
+            &[
+                "segment",
+                "col.fits",
+                "-o",
+                "out",
+                "--no-figure",
+                option,
+                value,
+            ],
+            option,
+            "LOW,HIGH",
+        );
+    }
 }
 
 #[test]

@@ -221,3 +221,43 @@ fn draw_refuses_run_folders_whose_files_do_not_belong_together() {
     std::fs::copy(other.join("hierarchy.json"), tree.join("hierarchy.json")).unwrap();
     assert_draw_refused(d.path(), &tree, "structures.csv", "different runs");
 }
+
+/// A run on the map smoothed to a common linear resolution: `draw` smooths the file's map in
+/// the same way again (from the run record's resolution, distance and the file's own beam) and
+/// draws the same figure, byte for byte, as `segment` did.
+#[test]
+fn draw_redoes_the_smoothing_of_a_common_resolution_run() {
+    let d = tempfile::tempdir().unwrap();
+    let run = demo_run(d.path(), "smoothed", &["--common-resolution", "0.06pc"]);
+    // The demo run has no figure; make one with segment's own defaults, then with draw.
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let o = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "drawn",
+            "--distance",
+            "410pc",
+            "--temperature",
+            "14K",
+            "--common-resolution",
+            "0.06pc",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &["draw", run.to_str().unwrap(), "-o", "again", "-q"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for f in ["overlay.png", "overlay.svg"] {
+        assert!(
+            std::fs::read(d.path().join("drawn").join(f)).unwrap()
+                == std::fs::read(d.path().join("again").join(f)).unwrap(),
+            "{f} differs"
+        );
+    }
+}

@@ -113,7 +113,9 @@ pub fn mass_function(masses: &[f64], binning: &Binning) -> Result<MassFunction, 
             let s = sorted(masses);
             let k0 = index(s[0]);
             let k1 = index(s[s.len() - 1]);
-            if k1 - k0 >= MAX_BINS {
+            // Counted in f64 too: the indices saturate for absurdly narrow bins.
+            let span = (s[s.len() - 1].log10() - s[0].log10()) / w;
+            if span >= MAX_BINS as f64 || k1.checked_sub(k0).is_none_or(|d| d >= MAX_BINS) {
                 return Err(Error::usage(format!(
                     "a mass-function bin width of {w} dex makes more than {MAX_BINS} bins over \
                      the masses' range ({:e} to {:e}); give a wider bin",
@@ -281,5 +283,24 @@ mod tests {
     fn cumulative_counts_steps_down_with_ties() {
         let c = cumulative_counts(&[3.0, 1.0, 2.0, 2.0, 5.0]).unwrap();
         assert_eq!(c, vec![(1.0, 5), (2.0, 4), (3.0, 2), (5.0, 1)]);
+    }
+
+    #[test]
+    fn bins_too_narrow_for_the_range_are_refused_not_allocated() {
+        let m = [0.1, 1.0, 10.0];
+        // 2 dex over 1e-9 dex bins: 2e9 bins; 1e-320 dex: beyond any integer index.
+        for w in [1e-9, 1e-320] {
+            let e = mass_function(&m, &Binning::WidthDex(w)).unwrap_err();
+            assert!(e.message.contains("give a wider bin"), "{}", e.message);
+        }
+        // The bound itself: 2 dex in 2e-6 dex bins is a million bins and one.
+        assert!(mass_function(&m, &Binning::WidthDex(2e-6)).is_err());
+        assert_eq!(
+            mass_function(&m, &Binning::WidthDex(1.0))
+                .unwrap()
+                .bins
+                .len(),
+            3
+        );
     }
 }
