@@ -148,9 +148,90 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         ));
     }
     if let Ok(text) = std::fs::read_to_string(&run_path) {
-        p.run = serde_json::from_str(&text).unwrap_or(serde_json::Value::Null);
+        p.run = matching_run(&csv, &run_path, &text)?;
     }
     Ok(p)
+}
+
+/// What to do about a run record that does not belong to its catalogue.
+const REMAKE: &str = "keep each catalogue beside its own run.json, or re-run cairn segment with --force to remake the run";
+
+/// The run record `text` (read from `run_path`, beside the catalogue `csv`), once it is known
+/// to be a run record of the run that wrote the catalogue: its input's SHA-256 and its
+/// thresholds equal the ones in the catalogue's commented header. The comparison's fairness
+/// checks read the thresholds and the beam from the record, so a record of another run would
+/// judge the wrong thresholds.
+fn matching_run(csv: &Path, run_path: &Path, text: &str) -> Result<serde_json::Value> {
+    let run: serde_json::Value = serde_json::from_str(text).map_err(|e| {
+        Error::input(
+            run_path,
+            format!(
+                "is not a run record written by cairn segment (not valid JSON: {e}); {REMAKE}."
+            ),
+        )
+    })?;
+    if !run.is_object() || run.get("parameters").is_none() {
+        return Err(Error::input(
+            run_path,
+            format!(
+                "is not a run record written by cairn segment (it has no parameters); {REMAKE}."
+            ),
+        ));
+    }
+    let catalogue = std::fs::read_to_string(csv).unwrap_or_default();
+    let said = header_parameters(&catalogue);
+    let checks: [(&str, &[&str]); 4] = [
+        ("input_sha256", &["input", "sha256"]),
+        ("floor", &["parameters", "floor", "value"]),
+        ("prominence", &["parameters", "prominence", "value"]),
+        ("min_area", &["parameters", "min_area", "value"]),
+    ];
+    for (name, keys) in checks {
+        let (Some(in_csv), Some(in_run)) =
+            (said.get(name), keys.iter().try_fold(&run, |v, k| v.get(*k)))
+        else {
+            continue;
+        };
+        let same = match in_run {
+            serde_json::Value::String(t) => t == in_csv,
+            serde_json::Value::Number(n) => {
+                n.as_f64().is_some() && in_csv.parse::<f64>().ok() == n.as_f64()
+            }
+            // A non-finite number is null in JSON: nothing to compare.
+            _ => true,
+        };
+        if !same {
+            let recorded = match in_run {
+                serde_json::Value::Number(n) => {
+                    crate::table::fmt_f64(n.as_f64().unwrap_or(f64::NAN))
+                }
+                serde_json::Value::String(t) => t.clone(),
+                other => other.to_string(),
+            };
+            return Err(Error::input(
+                csv,
+                format!(
+                    "gives {name} {in_csv} but {} records {recorded}, so the two files come from different runs; {REMAKE}.",
+                    run_path.display()
+                ),
+            ));
+        }
+    }
+    Ok(run)
+}
+
+/// The run's parameters in a catalogue's commented header, from lines
+/// `# parameter NAME = VALUE  (meaning)`.
+fn header_parameters(text: &str) -> std::collections::BTreeMap<String, String> {
+    text.lines()
+        .take_while(|l| l.starts_with('#') || l.trim().is_empty())
+        .filter_map(|l| l.strip_prefix("# parameter "))
+        .filter_map(|l| {
+            let (name, rest) = l.split_once(" = ")?;
+            let value = rest.split_once("  (").map_or(rest, |(v, _)| v);
+            Some((name.trim().to_string(), value.trim().to_string()))
+        })
+        .collect()
 }
 
 /// What is measured of one population.

@@ -548,7 +548,7 @@ pub fn catalogue(
     }
     t.push_i64(
         "area_px",
-        "pixel",
+        "pixel2",
         "number of pixels, descendants included",
         i(&|m| m.area_px as i64),
     );
@@ -1254,7 +1254,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         "parameters": {
             "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0] },
             "prominence": { "value": r.prominence, "unit": map.unit_text, "given": r.given[1] },
-            "min_area": { "value": r.min_area_px, "unit": "pixel", "given": r.given[2] },
+            "min_area": { "value": r.min_area_px, "unit": "pixel2", "given": r.given[2] },
             "connectivity": match o.connectivity { Connectivity::Four => 4, Connectivity::Eight => 8 },
             "grow_leaves": o.grow_leaves,
             "leaves_only": o.leaves_only,

@@ -237,3 +237,34 @@ fn compare_reports_statistics_and_fairness() {
     assert!(err.contains("'heavy'"), "{err}");
     assert!(!d.path().join("cmp5").exists() && !d.path().join("cmp6").exists());
 }
+
+#[path = "common/cli.rs"]
+mod cli;
+
+/// A catalogue whose run record belongs to another run (other thresholds on the same map) or
+/// is damaged is refused with one sentence naming the file, and nothing is written: the
+/// fairness checks would otherwise judge the thresholds of the wrong run.
+#[test]
+fn compare_refuses_a_run_record_of_another_run() {
+    let d = tempfile::tempdir().unwrap();
+    let a = cli::demo_run(d.path(), "a", &[]);
+    let b = cli::demo_run(d.path(), "b", &["--prominence", "5sigma"]);
+    let c = cli::demo_run(d.path(), "c", &[]);
+    // The run record of `b` beside the catalogue of `c`.
+    std::fs::copy(b.join("run.json"), c.join("run.json")).unwrap();
+    let args = ["compare", "a", "c", "-o", "cmp", "--resamples", "20"];
+    let o = cli::cairn_limited(&args, d.path(), 2_000_000);
+    cli::check_refused(&o, &args, "structures.csv", "come from different runs");
+    assert!(o.stderr.contains("prominence"), "{}", o.stderr);
+    assert!(!d.path().join("cmp").exists());
+    // A run record that is not JSON.
+    std::fs::write(c.join("run.json"), "{ not json").unwrap();
+    let o = cli::cairn_limited(&args, d.path(), 2_000_000);
+    cli::check_refused(&o, &args, "run.json", "not a run record");
+    assert!(!d.path().join("cmp").exists());
+    // Its own record back: compared.
+    std::fs::copy(a.join("run.json"), c.join("run.json")).unwrap();
+    let o = cli::cairn_limited(&args, d.path(), 2_000_000);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(d.path().join("cmp/report.md").is_file());
+}

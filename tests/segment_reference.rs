@@ -289,6 +289,11 @@ fn catalogue_units_parse_as_meant() {
     for name in ["sum", "excess_sum"] {
         assert_eq!(refs[name]["over_map_unit"], "pix", "{name}");
     }
+    // An area in pixels is a square pixel, lengths in pixels a pixel.
+    assert_eq!(refs["area_px"]["parsed"], "pix2");
+    for name in ["radius_px", "sigma_major_px", "x", "peak_x"] {
+        assert_eq!(refs[name]["parsed"], "pix", "{name}");
+    }
     let spelled = fixture_json("segment/pixel_sum_units.json");
     let verdicts = &reference["pixel_sum_units_over_map_unit"];
     for (map_unit, sum_unit) in spelled.as_object().unwrap() {
