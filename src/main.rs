@@ -520,6 +520,13 @@ impl StyleArgs {
                 self.dpi
             )));
         }
+        let narrowest = cairn::render::narrowest_width_px(self.dpi);
+        if self.width < narrowest {
+            return Err(Error::usage(format!(
+                "--width {} at --dpi {} leaves no room for the map: text at that resolution needs a figure at least {narrowest} pixels wide; give a larger --width or a lower --dpi.",
+                self.width, self.dpi
+            )));
+        }
         let region = self
             .region
             .as_deref()

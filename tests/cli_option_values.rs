@@ -202,6 +202,14 @@ fn figure_options_are_checked_without_a_figure_too() {
             "LOW,HIGH",
         );
     }
+    // Too narrow for its text at that resolution, with or without a figure.
+    for extra in [&[][..], &["--no-figure"][..]] {
+        let mut args = vec![
+            "segment", "col.fits", "-o", "out", "--width", "250", "--dpi", "2400",
+        ];
+        args.extend_from_slice(extra);
+        refused(d.path(), &args, "--width 250 at --dpi 2400", "at least");
+    }
 }
 
 #[test]

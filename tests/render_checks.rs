@@ -471,6 +471,48 @@ fn png_decodes_to_the_requested_width_and_output_is_deterministic() {
     }
 }
 
+/// `narrowest_width_px` is a lower bound that the layout keeps: one pixel narrower is refused
+/// for a map without sky axes (tick labels narrower than the sky's), at several resolutions,
+/// and some width above it is drawn. Common practice (a layout check of this project).
+#[test]
+fn figures_narrower_than_the_narrowest_width_are_refused() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    let o = Overlay {
+        map: map.view(),
+        unit_label: "K".into(),
+        labels: l.view(),
+        branch_labels: None,
+        branch_of: None,
+        leaves: leaves_of(&l),
+        states: states(),
+        sky: None,
+        beam: None,
+        scale_bar: None,
+        title: None,
+    };
+    for dpi in [30.0, 72.0, 300.0, 2400.0] {
+        let narrowest = render::narrowest_width_px(dpi);
+        let style = |width_px: u32| Style {
+            width_px,
+            dpi,
+            ..Style::default()
+        };
+        assert!(
+            overlay_layout(&o, &style(narrowest - 1)).is_err(),
+            "{dpi} dpi: {narrowest} px"
+        );
+        let drawn = (narrowest..)
+            .step_by(50)
+            .take(100)
+            .find(|&w| overlay_layout(&o, &style(w)).is_ok());
+        assert!(
+            drawn.is_some(),
+            "{dpi} dpi: nothing drawn from {narrowest} px"
+        );
+    }
+}
+
 #[test]
 fn beam_axes_equal_the_given_fwhm_and_point_along_the_angle() {
     let len = |v: (f64, f64)| v.0.hypot(v.1);

@@ -158,6 +158,21 @@ impl Metrics {
     }
 }
 
+/// The narrowest figure, in pixels, that leaves room for a map panel at `dpi`: the margins of
+/// the axis titles, ticks and colour bar with tick labels of no width, and the panel's
+/// smallest width. Narrower figures are refused whatever the map; wider ones may still lack
+/// room for long tick labels, which the layout finds.
+pub fn narrowest_width_px(dpi: f64) -> u32 {
+    let m = Metrics::new(dpi);
+    let fs = m.fs;
+    let left = m.pad + 1.2 * fs + m.gap + m.gap + m.tick;
+    let right = m.gap * 2.0 + 0.8 * fs + m.tick + m.gap + m.gap + 1.2 * fs + m.pad;
+    (left + right + MIN_PANEL).ceil() as u32
+}
+
+/// The narrowest map panel drawn, in pixels.
+const MIN_PANEL: f64 = 16.0;
+
 fn validate(o: &Overlay, s: &Style) -> Result<Region, RenderError> {
     let (h, w) = o.map.dim();
     if h == 0 || w == 0 {
@@ -294,7 +309,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             .fold(0.0, f64::max);
         let left = m.pad + 1.2 * fs + m.gap + left_lab_w + m.gap + m.tick;
         let avail = (w_total - left - right).floor();
-        if avail < 16.0 {
+        if avail < MIN_PANEL {
             return Err(RenderError::BadStyle(format!(
                 "a figure {} pixels wide at {} dpi leaves no room for the map; make it wider or lower the dpi",
                 s.width_px, s.dpi
