@@ -297,7 +297,7 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
     })?;
     let map_path: PathBuf = match map_override {
         Some(p) => p.to_path_buf(),
-        None => PathBuf::from(run["input"]["path"].as_str().unwrap_or("")),
+        None => crate::segment::recorded_input(&run["input"]),
     };
     let mut opts = LoadOptions {
         require_unit: false,

@@ -275,6 +275,40 @@ fn resolve_with(
     })
 }
 
+/// The input's place in the run record: `path` as text and, when the path is not valid UTF-8
+/// (which JSON text cannot hold), also `path_bytes`, its bytes as numbers, from which
+/// [`recorded_input`] gives back the exact path.
+pub fn input_path_record(path: &Path) -> (serde_json::Value, Option<serde_json::Value>) {
+    let text = serde_json::Value::from(path.display().to_string());
+    #[cfg(unix)]
+    if path.to_str().is_none() {
+        use std::os::unix::ffi::OsStrExt;
+        return (
+            text,
+            Some(serde_json::Value::from(
+                path.as_os_str().as_bytes().to_vec(),
+            )),
+        );
+    }
+    (text, None)
+}
+
+/// The input map's path in a run record's `input` object (see [`input_path_record`]).
+pub fn recorded_input(input: &serde_json::Value) -> PathBuf {
+    #[cfg(unix)]
+    if let Some(bytes) = input["path_bytes"].as_array() {
+        use std::os::unix::ffi::OsStringExt;
+        let b: Option<Vec<u8>> = bytes
+            .iter()
+            .map(|v| v.as_u64().and_then(|n| u8::try_from(n).ok()))
+            .collect();
+        if let Some(b) = b {
+            return PathBuf::from(std::ffi::OsString::from_vec(b));
+        }
+    }
+    PathBuf::from(input["path"].as_str().unwrap_or(""))
+}
+
 /// Names of the output files of a run.
 pub mod names {
     /// The catalogue as CSV.
@@ -1246,10 +1280,18 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let roots = ms.iter().filter(|m| m.kind == Kind::Root).count();
     let trees = h.roots().len();
     let seconds = t0.elapsed().as_secs_f64();
+    let mut input_record =
+        serde_json::json!({ "sha256": input_sha, "hdu": map.hdu_index, "plane": map.plane });
+    let (path_text, path_bytes) =
+        input_path_record(&std::fs::canonicalize(&map.path).unwrap_or_else(|_| map.path.clone()));
+    input_record["path"] = path_text;
+    if let Some(b) = path_bytes {
+        input_record["path_bytes"] = b;
+    }
     let record = serde_json::json!({
         "cairn_version": env!("CARGO_PKG_VERSION"),
         "command_line": o.command_line,
-        "input": { "path": std::fs::canonicalize(&map.path).unwrap_or_else(|_| map.path.clone()).display().to_string(), "sha256": input_sha, "hdu": map.hdu_index, "plane": map.plane },
+        "input": input_record,
         "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()) },
         "parameters": {
             "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0] },

@@ -74,6 +74,47 @@ fn an_output_folder_not_named_in_utf8_is_refused() {
     assert_eq!(listing(d.path()), before);
 }
 
+/// A map whose file name is not UTF-8 is segmented, its run record keeps the exact path (as
+/// bytes beside the readable text), and `draw` finds the map from the record alone.
+#[test]
+fn a_map_not_named_in_utf8_is_found_again_by_draw() {
+    use std::os::unix::ffi::OsStrExt;
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    let name = std::ffi::OsStr::from_bytes(b"col\xff.fits");
+    std::fs::rename(d.path().join("col.fits"), d.path().join(name)).unwrap();
+    let o = cli::outcome_of(
+        std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .arg("segment")
+            .arg(name)
+            .args(["-o", "out", "--no-figure", "-q"])
+            .current_dir(d.path()),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let input = &run_json(&d.path().join("out"))["input"];
+    let bytes: Vec<u8> = input["path_bytes"]
+        .as_array()
+        .expect("path_bytes for a name that is not UTF-8")
+        .iter()
+        .map(|v| v.as_u64().unwrap() as u8)
+        .collect();
+    assert!(bytes.ends_with(b"/col\xff.fits"), "{bytes:?}");
+    assert!(input["path"].as_str().unwrap().ends_with(".fits"));
+    let o = cairn(&["draw", "out", "-o", "figs", "-q"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(d.path().join("figs").is_dir());
+    // A UTF-8 name keeps the text alone.
+    demo_map(d.path());
+    let o = cairn(
+        &["segment", "col.fits", "-o", "plain", "--no-figure", "-q"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let input = &run_json(&d.path().join("plain"))["input"];
+    assert!(input.get("path_bytes").is_none());
+    assert!(input["path"].as_str().unwrap().ends_with("/col.fits"));
+}
+
 #[test]
 fn a_reader_that_stops_early_is_not_an_error() {
     let d = tempfile::tempdir().unwrap();
