@@ -93,6 +93,8 @@ struct SegmentArgs {
     read: MapArgs,
     #[command(flatten)]
     physics: PhysicsArgs,
+    #[command(flatten)]
+    motion: MotionArgs,
     /// Lowest level considered: noise widths above the background (5sigma) or a value in the
     /// map's unit.
     #[arg(long, value_name = "LEVEL", allow_hyphen_values = true)]
@@ -276,6 +278,11 @@ struct PhysicsArgs {
     /// A_V per magnitude of A_K [default: 1/0.112 = 8.929].
     #[arg(long, value_name = "RATIO", allow_hyphen_values = true)]
     av_per_ak: Option<f64>,
+}
+
+/// The gas motions, which only `segment` uses (the virial parameter of each structure).
+#[derive(Args)]
+struct MotionArgs {
     /// One-dimensional non-thermal velocity dispersion, such as 0.3km/s (enables the virial
     /// parameter).
     #[arg(
@@ -288,6 +295,34 @@ struct PhysicsArgs {
     /// A FITS map of the non-thermal velocity dispersion in km/s on the same grid.
     #[arg(long, value_name = "FILE")]
     sigma_nt_map: Option<PathBuf>,
+}
+
+impl MotionArgs {
+    /// Adds the velocity dispersion to `c`.
+    fn apply(&self, map: &map::Map, c: &mut cairn::score::Context) -> Result<()> {
+        use cairn::score::Field;
+        if let Some(s) = &self.sigma_nt {
+            let v = units::parse_quantity(s, &[Dimension::Speed], "--sigma-nt")
+                .map_err(Error::usage)?
+                .si;
+            if v < 0.0 {
+                return Err(Error::usage("--sigma-nt must not be negative."));
+            }
+            c.sigma_nt = Some(Field::Uniform(v));
+        }
+        if let Some(p) = &self.sigma_nt_map {
+            // A dispersion of zero is a purely thermal region.
+            let m = inspect::load_aux_map(
+                map,
+                p,
+                "velocity-dispersion map",
+                "velocity dispersions",
+                true,
+            )?;
+            c.sigma_nt = Some(Field::Map(m.mapv(|v| v * 1e3)));
+        }
+        Ok(())
+    }
 }
 
 impl PhysicsArgs {
@@ -379,24 +414,6 @@ impl PhysicsArgs {
         }
         if let Some(r) = self.av_per_ak {
             c.av_per_ak = positive(r, &format!("--av-per-ak {r}"))?;
-        }
-        if let Some(s) = &self.sigma_nt {
-            let v = q(s, &[Dimension::Speed], "--sigma-nt")?.si;
-            if v < 0.0 {
-                return Err(Error::usage("--sigma-nt must not be negative."));
-            }
-            c.sigma_nt = Some(Field::Uniform(v));
-        }
-        if let Some(p) = &self.sigma_nt_map {
-            // A dispersion of zero is a purely thermal region.
-            let m = inspect::load_aux_map(
-                map,
-                p,
-                "velocity-dispersion map",
-                "velocity dispersions",
-                true,
-            )?;
-            c.sigma_nt = Some(Field::Map(m.mapv(|v| v * 1e3)));
         }
         Ok(c)
     }
@@ -1024,7 +1041,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     // map are checked by the library).
     let aux: Vec<&std::path::Path> = [
         a.physics.temperature_map.as_deref(),
-        a.physics.sigma_nt_map.as_deref(),
+        a.motion.sigma_nt_map.as_deref(),
     ]
     .into_iter()
     .flatten()
@@ -1051,7 +1068,11 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         command_line: std::env::args_os()
             .map(|a| a.to_string_lossy().into_owned())
             .collect(),
-        physics: a.physics.context(&m)?,
+        physics: {
+            let mut c = a.physics.context(&m)?;
+            a.motion.apply(&m, &mut c)?;
+            c
+        },
         // The figure options are checked even with --no-figure, so that a mistake in them is
         // not silently ignored.
         figure: {

@@ -36,7 +36,7 @@ use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 
-use super::summary::percentile_sorted;
+use super::summary::quantiles_of;
 use super::{check_values, sorted};
 use crate::error::Error;
 
@@ -259,12 +259,14 @@ fn std_dev(v: &[f64]) -> f64 {
     (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (v.len() - 1) as f64).sqrt()
 }
 
+/// The 16th, 50th and 84th percentiles of the finite values of `v` (NaN if none).
 fn p16_50_84(v: &[f64]) -> [f64; 3] {
-    if v.is_empty() {
+    let finite: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+    if finite.is_empty() {
         return [f64::NAN; 3];
     }
-    let s = sorted(v);
-    [16.0, 50.0, 84.0].map(|q| percentile_sorted(&s, q))
+    let q = quantiles_of(&finite, &[16.0, 50.0, 84.0]);
+    [q[0], q[1], q[2]]
 }
 
 /// Bootstrap uncertainty of the power-law fit: resample all masses with replacement and refit

@@ -1,25 +1,22 @@
 //! Median and percentiles by linear interpolation between order statistics (numpy's default
-//! "linear" method; Hyndman & Fan 1996, The American Statistician 50, 361, definition 7).
+//! "linear" method; Hyndman & Fan 1996, The American Statistician 50, 361, definition 7),
+//! computed by ndarray-stats' quantiles (`Quantile1dExt::quantiles_mut` with its `Linear`
+//! interpolation: the quantile q of n values sits at position q (n - 1) of their order).
 
-use super::{check_values, sorted};
+use super::check_values;
 use crate::error::Error;
+use ndarray::Array1;
+use ndarray_stats::{Quantile1dExt, interpolate::Linear};
+use noisy_float::types::{N64, n64};
 
-/// The q-th percentile (0 <= q <= 100) of already sorted values, by linear interpolation.
-pub(crate) fn percentile_sorted(sorted: &[f64], q: f64) -> f64 {
-    let n = sorted.len();
-    if n == 1 {
-        return sorted[0];
-    }
-    let pos = q / 100.0 * (n - 1) as f64;
-    let lo = pos.floor() as usize;
-    let hi = (lo + 1).min(n - 1);
-    let frac = pos - lo as f64;
-    let (a, b) = (sorted[lo], sorted[hi]);
-    // numpy's lerp form, exact at both ends.
-    if frac >= 0.5 {
-        b - (b - a) * (1.0 - frac)
-    } else {
-        a + (b - a) * frac
+/// The percentiles `qs` (0 to 100, checked by the caller) of `values` (finite, at least one).
+pub(crate) fn quantiles_of(values: &[f64], qs: &[f64]) -> Vec<f64> {
+    let mut a: Array1<N64> = values.iter().map(|&v| n64(v)).collect();
+    let q: Array1<N64> = qs.iter().map(|&q| n64(q / 100.0)).collect();
+    // Only an empty array or a q outside 0 to 1 can fail, and callers exclude both.
+    match a.quantiles_mut(&q, &Linear) {
+        Ok(r) => r.iter().map(|v| v.raw()).collect(),
+        Err(_) => vec![f64::NAN; qs.len()],
     }
 }
 
@@ -36,8 +33,7 @@ pub fn percentiles(values: &[f64], qs: &[f64]) -> Result<Vec<f64>, Error> {
             "percentile {q} is outside 0 to 100; give a value between 0 and 100"
         )));
     }
-    let s = sorted(values);
-    Ok(qs.iter().map(|&q| percentile_sorted(&s, q)).collect())
+    Ok(quantiles_of(values, qs))
 }
 
 /// The median (the 50th percentile; the mean of the two middle values for an even count).
