@@ -70,10 +70,10 @@ def invented_headers():
         return (pair[0].format(code), pair[1].format(code))
 
     # Matrix forms and frames.
-    h["tan_cd_icrs"] = simple((200, 150), t(eq, "TAN"), (101.5, 75.25), (83.125, -5.4375), [
+    h["tan_cd_icrs"] = simple((200, 150), t(eq, "TAN"), (101.5, 75.25), (133.125, -6.8125), [
         ("CD1_1", -2.1e-3), ("CD1_2", 4.0e-4), ("CD2_1", 3.5e-4), ("CD2_2", 2.2e-3),
         ("RADESYS", "ICRS")])
-    h["sin_pc_fk5"] = simple((256, 256), t(eq, "SIN"), (128.0, 130.5), (250.75, 36.5), [
+    h["sin_pc_fk5"] = simple((256, 256), t(eq, "SIN"), (128.0, 130.5), (238.75, 36.5), [
         ("PC1_1", 0.9), ("PC1_2", -0.3), ("PC2_1", 0.25), ("PC2_2", 0.95), ("EQUINOX", 2000.0)],
         cdelt=(-0.1, 0.1))
     h["arc_crota"] = simple((300, 300), t(eq, "ARC"), (150.0, 140.0), (12.5, -47.25),
@@ -82,13 +82,13 @@ def invented_headers():
     # CROTA on a map stored latitude first (the rotation keeps its sense on the sky), and
     # CROTA2 beside a PC card of another axis (a PC matrix then, and CROTA2 unread).
     h["tan_crota_lat_first"] = simple((160, 120), ("DEC--TAN", "RA---TAN"), (60.5, 80.25),
-                                      (-5.375, 83.8125), [("CROTA1", 25.0)],
+                                      (-6.625, 133.8125), [("CROTA1", 25.0)],
                                       cdelt=(0.0012, -0.002))
-    h["tan_crota2_pc33"] = simple((160, 120), t(eq, "TAN"), (80.25, 60.5), (83.8125, -5.375),
+    h["tan_crota2_pc33"] = simple((160, 120), t(eq, "TAN"), (80.25, 60.5), (133.8125, -6.625),
                                   [("CROTA2", 25.0), ("PC3_3", 1.0)], cdelt=(-0.002, 0.0012))
     # WCS keywords given twice, the later cards differing: WCSLIB reads the last.
-    h["tan_repeated_cards"] = simple((120, 100), t(eq, "TAN"), (60.5, 50.5), (83.8221, -5.3911),
-                                     [("CDELT1", -0.002), ("CRVAL1", 83.9)],
+    h["tan_repeated_cards"] = simple((120, 100), t(eq, "TAN"), (60.5, 50.5), (133.6879, -6.7258),
+                                     [("CDELT1", -0.002), ("CRVAL1", 133.77)],
                                      cdelt=(-0.00166666666666667, 0.00166666666666667))
     h["tan_arcmin"] = simple((120, 100), t(eq, "TAN"), (60.0, 50.0), (7200.0, 1230.0),
                              cdelt=(-0.5, 0.5), cunit=("arcmin", "arcmin"))
@@ -210,7 +210,7 @@ def invented_headers():
     inv = ([("AP_ORDER", 3)] + [("AP" + k[1:], -v) for k, v in a]
            + [("BP_ORDER", 3)] + [("BP" + k[1:], -v) for k, v in b])
     h["tan_sip_cd"] = simple((200, 150), ("RA---TAN-SIP", "DEC--TAN-SIP"), (101.5, 75.25),
-                             (83.125, -5.4375), [
+                             (133.125, -6.8125), [
         ("CD1_1", -2.1e-3), ("CD1_2", 4.0e-4), ("CD2_1", 3.5e-4), ("CD2_2", 2.2e-3),
         ("RADESYS", "ICRS"), ("A_ORDER", 3)] + a + [("B_ORDER", 3)] + b + inv)
     h["tan_sip_pc_galactic"] = simple((240, 180), ("GLON-TAN-SIP", "GLAT-TAN-SIP"),
