@@ -48,9 +48,10 @@ mod tests {
 
     #[test]
     fn sexagesimal_forms_round_through_their_fields() {
-        // 83.8221 deg = 5h35m17.304s (15 degrees per hour: common practice).
-        assert_eq!(format_hms(83.8221, 2), "05h35m17.30s");
-        assert_eq!(format_dms(-5.391111, 1), "-05d23m28.0s");
+        // 133.6879 deg = 8h54m45.096s (15 degrees per hour: common practice).
+        assert_eq!(format_hms(133.6879, 2), "08h54m45.10s");
+        // 6.725833 deg = 6d43m32.9988s.
+        assert_eq!(format_dms(-6.725833, 1), "-06d43m33.0s");
         assert_eq!(format_hms(359.99999999, 1), "00h00m00.0s");
         assert_eq!(format_dms(10.0 - 1e-9, 0), "+10d00m00s");
         assert_eq!(format_angle(18.2 / 3600.0), "18.200\"");

@@ -578,15 +578,16 @@ mod tests {
             exp: 0,
             wrap: true,
         };
-        // 5h35m20s = 83.8333 deg = 201200 deci-seconds = 2012 steps of 10 s.
-        assert_eq!(ra.label(2012), "5^{h}35^{m}20^{s}");
+        // 8h54m40s = 133.6667 deg = 320800 deci-seconds = 3208 steps of 10 s.
+        assert_eq!(ra.label(3208), "8^{h}54^{m}40^{s}");
         let dec = Step {
             kind: Kind::Dec,
             units: 600,
             exp: 0,
             wrap: false,
         };
-        assert_eq!(dec.label(-323), "\u{2212}5°23′");
+        // -6d43m = -403 arcmin = -403 steps of 600 deci-arcseconds.
+        assert_eq!(dec.label(-403), "\u{2212}6°43′");
         assert_eq!(dec.label(-1), "\u{2212}0°01′");
         let l = Step {
             kind: Kind::Deg,
