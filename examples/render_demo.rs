@@ -130,7 +130,7 @@ fn main() {
         })
         .collect();
     let eq = Tan {
-        crval: (83.82, -5.39),
+        crval: (133.69, -6.73),
         crpix: (160.0, 120.0),
         scale: 4.0 / 3600.0,
         rot_deg: 20.0,
@@ -157,7 +157,7 @@ fn main() {
     std::fs::write(format!("{out}/map.svg"), render_svg(&o, &style).unwrap()).unwrap();
 
     let gal = Tan {
-        crval: (30.25, -0.1),
+        crval: (56.25, -0.1),
         crpix: (160.0, 120.0),
         scale: 6.0 / 3600.0,
         rot_deg: 0.0,
