@@ -19,17 +19,19 @@ import contextlib
 import io
 import os
 import warnings
+from importlib.metadata import version
 
 import numpy as np
 import powerlaw
-import scipy
 from scipy import stats
 
 from common import out_dir, write_json
 
 OUT = out_dir("populations")
-VERSIONS = {"numpy": np.__version__, "scipy": scipy.__version__,
-            "powerlaw": powerlaw.__version__ if hasattr(powerlaw, "__version__") else "2.0.0"}
+# The installed versions, read from the packages' metadata (the pins are in requirements.txt).
+VERSIONS = {name: version(name) for name in ("numpy", "scipy", "powerlaw")}
+POWERLAW = f"powerlaw {VERSIONS['powerlaw']}"
+SCIPY = f"scipy {VERSIONS['scipy']}"
 
 
 def rounded(x):
@@ -61,7 +63,7 @@ def power_law_case(name, data, given_xmin, keep_scan):
     fixed = quiet(powerlaw.Fit, data, discrete=False, xmin=given_xmin, verbose=0)
     pl = quiet(lambda: fixed.power_law)
     out = {
-        "source": "powerlaw 2.0.0 Fit(data, discrete=False) (Clauset, Shalizi & Newman 2009)",
+        "source": f"{POWERLAW} Fit(data, discrete=False) (Clauset, Shalizi & Newman 2009)",
         "versions": VERSIONS,
         "data": data,
         "fit": {"alpha": fit.alpha, "xmin": fit.xmin, "sigma": quiet(lambda: fit.sigma),
@@ -118,7 +120,7 @@ def ks_pairs():
         "large_diff_300_400": (rng.lognormal(0, 0.5, 300), rng.lognormal(0.2, 0.55, 400)),
         "large_far_300_400": (rng.lognormal(0, 0.5, 300), rng.lognormal(0.5, 0.5, 400)),
     }
-    out = {"source": "scipy 1.17.1 stats.ks_2samp", "versions": VERSIONS, "pairs": {}}
+    out = {"source": f"{SCIPY} stats.ks_2samp", "versions": VERSIONS, "pairs": {}}
     for name, (x, y) in pairs.items():
         out["pairs"][name] = ks_case(rounded(x), rounded(y))
     write_json(os.path.join(OUT, "ks_2samp.json"), out)
@@ -136,7 +138,7 @@ def ad_sets():
                        np.round(rng.lognormal(0.1, 0.5, 45), 1),
                        np.round(rng.lognormal(0.2, 0.5, 50), 1)],
     }
-    out = {"source": "scipy 1.17.1 stats.anderson_ksamp(variant='midrank')",
+    out = {"source": f"{SCIPY} stats.anderson_ksamp(variant='midrank')",
            "versions": VERSIONS, "sets": {}}
     for name, samples in sets.items():
         samples = [rounded(s) for s in samples]
@@ -156,7 +158,7 @@ def lognormals():
     # s / sqrt(n), s with ddof=1) and the chi-square interval s sqrt((n - 1) / chi2.ppf(q, n - 1))
     # at the two tails' quantiles (the textbook interval for a normal standard deviation).
     level = stats.norm.cdf(1.0) - stats.norm.cdf(-1.0)
-    out = {"source": "scipy 1.17.1 stats.lognorm.fit(data, floc=0); stats.t.interval; stats.chi2.ppf",
+    out = {"source": f"{SCIPY} stats.lognorm.fit(data, floc=0); stats.t.interval; stats.chi2.ppf",
            "versions": VERSIONS, "level": level, "samples": {}}
     for i, n in enumerate((30, 300, 5, 12, 3)):
         rng = np.random.default_rng(500 + i)
@@ -175,7 +177,7 @@ def lognormals():
 
 
 def mass_size():
-    out = {"source": "scipy 1.17.1 stats.linregress(log10 R, log10 M)", "versions": VERSIONS,
+    out = {"source": f"{SCIPY} stats.linregress(log10 R, log10 M)", "versions": VERSIONS,
            "populations": {}}
     for i, (n, a, b, scatter) in enumerate(((80, 0.3, 2.0, 0.25), (60, 0.6, 1.7, 0.2))):
         rng = np.random.default_rng(700 + i)
