@@ -1,5 +1,5 @@
 //! Smoothing to a common linear resolution: the beam measured on a point source equals the
-//! target within 2% (astropy 8.0.2 Gaussian2D fit, fixtures/resolution/fit.json made by
+//! target within 0.2% (astropy 8.0.2 Gaussian2D fit, fixtures/resolution/fit.json made by
 //! tests/oracle/resolution_astropy.py on cairn's stored output), flux per beam is conserved,
 //! and a target finer than the beam is refused.
 
@@ -16,7 +16,7 @@ fn target_arcsec() -> f64 {
 }
 
 #[test]
-fn the_smoothed_beam_is_the_target_within_two_percent() {
+fn the_smoothed_beam_is_the_target_within_a_fifth_of_a_percent() {
     let dir = tempfile::tempdir().unwrap();
     let s = resolution_fixture::smoothed(&dir.path().join("point.fits")).unwrap();
     // The oracle fitted the stored map; it must still be what cairn makes.
@@ -27,12 +27,17 @@ fn the_smoothed_beam_is_the_target_within_two_percent() {
             == std::fs::read(fixture_path("resolution/smoothed.fits")).unwrap(),
         "re-run the example and the oracle"
     );
-    // astropy 8.0.2 Gaussian2D fit (LevMarLSQFitter) of the point source.
+    // astropy 8.0.2 Gaussian2D fit (LevMarLSQFitter) of the point source. The stored fit's FWHM
+    // is 3.8e-4 (0.04%) above the target on both axes; the tolerance, 2e-3, is about five times
+    // that measured difference, so a re-made fit passes while a smoothing kernel 0.3% too wide
+    // or too narrow does not (the target is the quadrature sum of the 18-arcsec beam and the
+    // kernel, and the kernel carries 89% of the target's square, so a kernel off by 0.3% moves
+    // the beam by 0.27%).
     let fit = fixture_json("resolution/fit.json");
     for k in ["fwhm_x_arcsec", "fwhm_y_arcsec"] {
         let got = num(&fit[k]);
         assert!(
-            (got / target_arcsec() - 1.0).abs() < 0.02,
+            (got / target_arcsec() - 1.0).abs() < 2e-3,
             "{k}: {got} arcsec against the target {}",
             target_arcsec()
         );
