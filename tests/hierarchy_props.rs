@@ -1,6 +1,6 @@
 //! Property tests of the hierarchy engine on small random maps with missing pixels.
 
-use cairn::hierarchy::{Connectivity, Hierarchy, Params, build};
+use cairn::hierarchy::{Connectivity, Hierarchy, HierarchyError, Params, build};
 use ndarray::Array2;
 use proptest::prelude::*;
 
@@ -239,6 +239,54 @@ fn symmetries() -> Vec<Symmetry> {
     ]
 }
 
+/// The error `build` must return for these inputs, or `None` when it must succeed: the rules
+/// of `HierarchyError` (src/hierarchy/mod.rs), in the order `build` checks them
+/// (src/hierarchy/engine.rs). A map too large for 31-bit indices cannot occur here.
+fn expected_error(map: &Array2<f32>, p: &Params) -> Option<HierarchyError> {
+    let npix = map.len();
+    if p.prominence.is_nan() || p.prominence < 0.0 {
+        return Some(HierarchyError::BadProminence(p.prominence));
+    }
+    if p.floor.is_nan() {
+        return Some(HierarchyError::BadFloor);
+    }
+    if p.min_area > npix {
+        return Some(HierarchyError::MinAreaTooLarge {
+            min_area: p.min_area,
+            npix,
+        });
+    }
+    let max = map.iter().filter(|v| !v.is_nan()).copied().reduce(f32::max);
+    match max {
+        None => Some(HierarchyError::NoValidPixels),
+        Some(max) if p.floor > max as f64 => Some(HierarchyError::FloorAboveMaximum {
+            floor: p.floor,
+            max: max as f64,
+        }),
+        Some(_) => None,
+    }
+}
+
+/// `build`, with its outcome checked against [`expected_error`]: an error must be exactly the
+/// one the inputs call for, and a success must be expected. `None` when it (rightly) failed.
+fn build_checked(map: &Array2<f32>, p: &Params) -> Result<Option<Hierarchy>, TestCaseError> {
+    let expected = expected_error(map, p);
+    match build(map.view(), p) {
+        Ok(h) => {
+            prop_assert!(
+                expected.is_none(),
+                "build succeeded where the inputs call for {:?}",
+                expected
+            );
+            Ok(Some(h))
+        }
+        Err(e) => {
+            prop_assert_eq!(Some(e), expected, "build's error");
+            Ok(None)
+        }
+    }
+}
+
 fn distinct(map: &Array2<f32>) -> bool {
     let mut v: Vec<u32> = map
         .iter()
@@ -264,14 +312,14 @@ proptest! {
 
     #[test]
     fn invariants_hold_with_ties(map in map_strategy(6), p in params_strategy(6.0)) {
-        if let Ok(h) = build(map.view(), &p) {
+        if let Some(h) = build_checked(&map, &p)? {
             check_invariants(&map, &p, &h)?;
         }
     }
 
     #[test]
     fn invariants_hold_with_distinct_values(map in map_strategy(0), p in params_strategy(1.0)) {
-        if let Ok(h) = build(map.view(), &p) {
+        if let Some(h) = build_checked(&map, &p)? {
             check_invariants(&map, &p, &h)?;
         }
     }
@@ -282,7 +330,7 @@ proptest! {
     fn leaves_are_regional_maxima(map in map_strategy(5), floor in 0.0..3.0f64, eight in any::<bool>()) {
         let conn = if eight { Connectivity::Eight } else { Connectivity::Four };
         let p = Params { floor, prominence: 0.0, min_area: 1, connectivity: conn };
-        let Ok(h) = build(map.view(), &p) else { return Ok(()) };
+        let Some(h) = build_checked(&map, &p)? else { return Ok(()) };
         let dim = map.dim();
         let (zone, nz) = components(dim, conn, |q| considered(&map, floor, q), |a, b| map[a] == map[b]);
         let mut is_max = vec![true; nz];
@@ -311,7 +359,7 @@ proptest! {
     #[test]
     fn symmetric_maps_give_the_same_tree(map in map_strategy(0), p in params_strategy(1.0)) {
         prop_assume!(distinct(&map));
-        let Ok(h) = build(map.view(), &p) else { return Ok(()) };
+        let Some(h) = build_checked(&map, &p)? else { return Ok(()) };
         let dim = map.dim();
         for (name, tmap, tpos) in symmetries() {
             let m2 = tmap(&map);
@@ -336,14 +384,15 @@ proptest! {
     /// One and two worker threads give bit-identical results.
     #[test]
     fn thread_count_changes_nothing(map in map_strategy(4), p in params_strategy(4.0)) {
-        let one = with_threads(1, || build(map.view(), &p));
-        let two = with_threads(2, || build(map.view(), &p));
+        let one = with_threads(1, || build_checked(&map, &p))?;
+        let two = with_threads(2, || build_checked(&map, &p))?;
         match (one, two) {
-            (Ok(a), Ok(b)) => {
+            (Some(a), Some(b)) => {
                 prop_assert_eq!(a.structures, b.structures);
                 prop_assert_eq!(a.labels, b.labels);
             }
-            (Err(a), Err(b)) => prop_assert_eq!(a, b),
+            // Both failed, each with the error the inputs call for.
+            (None, None) => {}
             _ => prop_assert!(false, "one run failed and the other did not"),
         }
     }
