@@ -42,11 +42,19 @@ mod tests {
             "ratio {}",
             b / rj
         );
-        // Wien limit (h nu >> k T): 2 h nu^3 / c^2 exp(-x).
-        let (nu, t) = (3.0e13, 10.0);
+        // Wien limit (h nu >> k T): 2 h nu^3 / c^2 exp(-x). At x = h nu / k T ~ 14.4 the
+        // Planck law exceeds it by the factor e^x / (e^x - 1) = 1 / (1 - e^-x) exactly
+        // (1 + 5.6e-7, well above f64 resolution), compared to 1e-12 (a few roundings).
+        let (nu, t) = (3.0e12, 10.0);
         let x = H * nu / (K_B * t);
+        assert!(x > 10.0 && x < 15.0, "x = {x}");
         let wien = 2.0 * H * nu.powi(3) / (C * C) * (-x).exp();
-        assert!((planck_nu(nu, t) / wien - 1.0).abs() < 2.0 * (-x).exp());
+        let ratio = planck_nu(nu, t) / wien;
+        let exact = 1.0 / (1.0 - (-x).exp());
+        assert!(
+            (ratio / exact - 1.0).abs() < 1e-12,
+            "ratio {ratio}, exact {exact}"
+        );
         assert_eq!(planck_nu(nu, 0.0), 0.0);
     }
 }
