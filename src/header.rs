@@ -1,8 +1,9 @@
 //! FITS header cards: parsing the 80-character card images of one HDU into typed values.
 //!
 //! Owns the representation of a header as an ordered list of cards, the parsing rules of the
-//! FITS Standard 4.0 (Pence et al. 2010, A&A 524, A42, section 4) for fixed- and free-format
-//! values, and typed look-ups (`get_f64`, `get_str`, ...). It knows nothing of WCS or units:
+//! FITS Standard, Definition of the Flexible Image Transport System (FITS), version 4.0 (IAU
+//! FITS Working Group, 2016; document of 2018 August 13), section 4, for fixed- and
+//! free-format values, and typed look-ups (`get_f64`, `get_str`, ...). It knows nothing of WCS or units:
 //! those modules read what they need through [`Header`].
 
 use std::fmt;

@@ -6,9 +6,12 @@
 //! is complete, the file holds all the data the header claims), gzip-compressed files and
 //! tile-compressed image HDUs (FITS Standard 4.0, section 10), the reading of every BITPIX
 //! with BSCALE/BZERO applied and BLANK or NaN turned into missing pixels (FITS Standard 4.0,
-//! Pence et al. 2010, sections 4.4 and 5), squeezing of length-1 axes and the choice of one
-//! plane of a cube, and the reading of the beam (BMAJ/BMIN/BPA, or the AIPS `HISTORY` card
-//! convention) and of the wavelength (RESTFRQ/RESTFREQ, a FREQ or WAVE axis, WAVELEN).
+//! sections 4.4 and 5), squeezing of length-1 axes and the choice of one plane of a cube, and
+//! the reading of the beam (BMAJ/BMIN/BPA, or the AIPS `HISTORY` card convention) and of the
+//! wavelength (RESTFRQ/RESTFREQ, a FREQ or WAVE axis, WAVELEN).
+//!
+//! FITS Standard 4.0 here is the Definition of the Flexible Image Transport System (FITS),
+//! version 4.0 (IAU FITS Working Group, 2016; document of 2018 August 13).
 //!
 //! Pixel values are held as 32-bit floats (about 7 significant digits), with NaN for missing
 //! pixels; pixel coordinates are zero-based with (0, 0) the centre of the first pixel, x

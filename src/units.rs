@@ -4,8 +4,9 @@
 //! `300pc`, `12K`, `3sigma`, `2e21cm-2`, `3beam`), conversion of each to SI, and the reading
 //! of a FITS `BUNIT` string into the kind of quantity a map holds (column density, extinction,
 //! surface brightness, flux density per beam or per pixel). Unit strings follow the FITS
-//! Standard 4.0 (Pence et al. 2010, section 4.3 and table 28 on prefixes and units) with the
-//! common spellings found in archive headers (`cm^-2`, `MJy sr-1`, `JY/BEAM`).
+//! Standard, Definition of the Flexible Image Transport System (FITS), version 4.0 (IAU FITS
+//! Working Group, 2016; document of 2018 August 13), section 4.3 and table 28 on prefixes and
+//! units, with the common spellings found in archive headers (`cm^-2`, `MJy sr-1`, `JY/BEAM`).
 //!
 //! Conventions: an all-upper-case `BUNIT` such as `MJY/SR` is read case-insensitively, with
 //! `M` as mega (common practice for headers written by older software); `mJy` is recognised
