@@ -58,8 +58,14 @@ for bitpix, dtype in ints.items():
     hdu.header["BLANK"] = blank
     hdu.header["BUNIT"] = "MJy/sr"
     name = f"bitpix_{bitpix}.fits"
-    # do_not_scale_image_data keeps the stored integers and the keywords as given.
+    # The keywords are set after the HDU is built from the integers, so astropy writes the
+    # integers unchanged and the keywords as given (checked just below by reading the file
+    # back unscaled).
     path = write(name, fits.HDUList([hdu]))
+    with fits.open(path, do_not_scale_image_data=True) as hdul:
+        assert np.array_equal(hdul[0].data, raw), name
+        assert (hdul[0].header["BSCALE"], hdul[0].header["BZERO"]) == (0.25, -3.5), name
+        assert hdul[0].header["BLANK"] == blank, name
     with fits.open(path) as hdul:
         data = hdul[0].data.astype(np.float64)  # astropy applies BSCALE/BZERO, BLANK -> NaN
     results[name] = {"bitpix": bitpix, "shape": [NY, NX], "values": data.ravel()}
