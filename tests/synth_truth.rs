@@ -1,7 +1,7 @@
 //! Synthetic maps: the injected truth is what the map holds (mass conservation, peaks, dust
-//! emission), the output is deterministic, and the background has the requested power
-//! spectrum (measured by `tests/oracle/synth_powerspec.py`, numpy 2.4.6) and WCS (astropy
-//! 8.0.2).
+//! emission, the last a self-consistency round trip through cairn's own physics), the output
+//! is deterministic, and the background has the requested power spectrum (measured by
+//! `tests/oracle/synth_powerspec.py`, numpy 2.4.6) and WCS (astropy 8.0.2).
 
 mod common;
 
@@ -195,10 +195,18 @@ fn truth_peak_matches_the_map_for_an_isolated_core() {
     assert_eq!(t.peak_unit, "cm-2");
 }
 
+/// Self-consistency, not an outside reference: a round trip through cairn's own code. The
+/// generator turns column density into intensity with cairn's I = N mu_H2 m_H kappa_nu B_nu(T)
+/// (src/synth.rs, the expression of `physics::intensity_from_column`), and this test turns the
+/// map back into a mass with cairn's `physics::dust_mass`, M = S d^2 / (kappa_nu B_nu(T)) (both
+/// after Hildebrand 1983), sharing the opacity law and the Planck function. It shows that the
+/// two agree with each other and with the beam area and flux sum used here, not that either is
+/// right: the outside checks of `dust_mass` and of the Planck function are in
+/// tests/physics_reference.rs (astropy 8.0.2).
 #[test]
 fn dust_emission_map_gives_back_the_mass_through_dust_mass() {
-    // Jy/beam map of one core: flux = sum / (beam area in pixels); physics::dust_mass
-    // (Hildebrand 1983) must return the injected mass.
+    // Jy/beam map of one core: flux = sum / (beam area in pixels); physics::dust_mass must
+    // return the injected mass.
     let (lambda_um, t_k) = (850.0, 15.0);
     let opacity = DustOpacity::default();
     let spec = SynthSpec {
