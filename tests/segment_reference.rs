@@ -4,7 +4,8 @@
 //! in fixtures/segment/reference.json come from tests/oracle/segment_skimage.py:
 //! scikit-image 0.26.0 `regionprops` on cairn's own label map, and astropy 8.0.2
 //! `WCS.all_pix2world` of cairn's catalogue pixel positions, `SkyCoord` for their galactic
-//! coordinates and `astropy.io.votable` on the stored VOTable.
+//! coordinates, sizes, position angles and masses by its own methods, and `astropy.io.votable`
+//! on the stored VOTable.
 
 mod common;
 #[allow(dead_code)]
@@ -175,6 +176,71 @@ fn catalogue_matches_regionprops_on_cairns_label_map() {
             );
         }
     }
+}
+
+/// The catalogue's sky sizes and masses against astropy 8.0.2 by other methods than cairn's
+/// (tests/oracle/segment_skimage.py): the pixel's solid angle as the spherical quadrilateral
+/// of its corners (Van Oosterom & Strackee 1983) against cairn's area element of the
+/// projection; the weighted covariance of the pixels' own offsets on the sky
+/// (`SkyCoord.spherical_offsets_to`) against cairn's pixel covariance carried through the
+/// local Jacobian; masses M = mu_H2 m_H d^2 Omega sum N(H2) in astropy's units and constants.
+/// The tolerances are those of the methods' differences: the quadrilateral and the area element
+/// differ by terms of order the pixel's size squared and cairn's derivative steps (1e-7), the
+/// exact offsets and the Jacobian by the curvature of the sky over a structure up to a tenth of
+/// a degree across (1e-6 of the major axis).
+#[test]
+fn catalogue_sky_sizes_and_masses_match_astropy() {
+    let reference = fixture_json("segment/reference.json");
+    let phys = reference["physical"].as_object().unwrap();
+    let rows = read_csv(&fixture_path("segment/run/structures.csv"));
+    assert_eq!(rows.len(), phys.len());
+    let mut elongated = 0;
+    for row in &rows {
+        let id = &row["id"];
+        let r = &phys[id.as_str()];
+        let what = |k: &str| format!("structure {id} {k}");
+        for (col, key) in [
+            ("area_sky", "area_arcsec2"),
+            ("radius", "radius_arcsec"),
+            ("mass", "mass_msun"),
+            ("mass_excess", "mass_excess_msun"),
+            ("radius_pc", "radius_pc"),
+            ("density", "density_cm3"),
+        ] {
+            assert_close(f(row, col), num(&r[key]), 1e-7, 0.0, &what(col));
+        }
+        let major = num(&r["fwhm_major_arcsec"]);
+        for (col, key) in [
+            ("fwhm_major", "fwhm_major_arcsec"),
+            ("fwhm_minor", "fwhm_minor_arcsec"),
+        ] {
+            assert_close(f(row, col), num(&r[key]), 0.0, 1e-6 * major, &what(col));
+        }
+        // The position angle east of north, through the covariance it implies (which stays
+        // defined for round structures): major axis along (east, north) = (sin pa, cos pa).
+        let k = 1.0 / (2.0 * (2.0 * 2f64.ln()).sqrt());
+        let (sa, sb) = (f(row, "fwhm_major") * k, f(row, "fwhm_minor") * k);
+        let pa = f(row, "pa").to_radians();
+        let (u, v) = ((pa.sin(), pa.cos()), (pa.cos(), -pa.sin()));
+        let cov = |i: usize, j: usize| {
+            let c = |w: (f64, f64), n: usize| if n == 0 { w.0 } else { w.1 };
+            sa * sa * c(u, i) * c(u, j) + sb * sb * c(v, i) * c(v, j)
+        };
+        let tol = 2e-6 * sa * sa;
+        for (i, j, key) in [
+            (0, 0, "cov_east_east"),
+            (0, 1, "cov_east_north"),
+            (1, 1, "cov_north_north"),
+        ] {
+            assert_close(cov(i, j), num(&r[key]), 0.0, tol, &what(key));
+        }
+        if sb < 0.8 * sa {
+            elongated += 1;
+            let d = (f(row, "pa") - num(&r["pa_deg"])).rem_euclid(180.0);
+            assert!(d.min(180.0 - d) < 1e-3, "{}: {d} deg", what("pa"));
+        }
+    }
+    assert!(elongated >= 3, "only {elongated} elongated structures");
 }
 
 #[test]

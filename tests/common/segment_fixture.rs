@@ -19,7 +19,12 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
         output: out.to_path_buf(),
         force: true,
         command_line: vec!["fixture".into()],
-        physics: Default::default(),
+        // The map's invented distance (its DISTANCE card), so the catalogue has masses and
+        // linear sizes for the oracle to check.
+        physics: cairn::score::Context {
+            distance_m: Some(310.0 * cairn::physics::constants::PC),
+            ..Default::default()
+        },
         figure: None,
     }
 }

@@ -13,6 +13,16 @@ descendants (from hierarchy.json). Sources:
 * astropy 8.0.2 astropy.wcs.WCS.all_pix2world (origin 0) of cairn's catalogue pixel
   positions (peak_x, peak_y and the weighted centroid x, y), and the centroid in galactic
   coordinates from astropy.coordinates.SkyCoord (the map is ICRS) .galactic.
+* astropy 8.0.2 (astropy.wcs, astropy.coordinates, astropy.units and astropy.constants) for
+  the catalogue's sky sizes and masses, by methods other than cairn's: the solid angle of one
+  pixel at cairn's centroid as the spherical quadrilateral of its four corners (a gnomonic
+  map's pixel edges are great circles; its two triangles by Van Oosterom & Strackee 1983,
+  IEEE Trans. Biomed. Eng. 30, 125), times the pixel count for the area; the map-weighted
+  covariance of every pixel's offset on the sky from the centroid (SkyCoord
+  .spherical_offsets_to: east, north), whose eigenvalues give the FWHMs and whose major axis
+  gives the position angle east of north; masses M = mu_H2 m_H d^2 Omega sum N(H2) with
+  astropy's units (mu_H2 = 2.8, m_H = 1.008 u, the run's assumptions; d = 310 pc, the
+  map's invented distance) and the mean density of a uniform sphere of the effective radius.
 * astropy 8.0.2 astropy.units (FITS format) on every TUNIT of cairn's run/structures.fits,
   and each divided by the map's BUNIT; the same for cairn's spelling of a sum over pixels
   for other map units (fixtures/segment/pixel_sum_units.json).
@@ -91,6 +101,80 @@ for r in rows:
     sky[r["id"]] = {"peak_lon": plon, "peak_lat": plat, "lon": clon, "lat": clat,
                     "glon": g.l.deg, "glat": g.b.deg}
 
+# Sky sizes and masses (see the docstring).
+from astropy import constants as const
+
+
+def unit_vector(lon, lat):
+    lon, lat = np.radians(lon), np.radians(lat)
+    return np.array([np.cos(lat) * np.cos(lon), np.cos(lat) * np.sin(lon), np.sin(lat)])
+
+
+def triangle_sr(a, b, c):
+    """Solid angle of a spherical triangle (Van Oosterom & Strackee 1983)."""
+    num = abs(np.dot(a, np.cross(b, c)))
+    den = 1.0 + np.dot(a, b) + np.dot(b, c) + np.dot(c, a)
+    return 2.0 * np.arctan2(num, den)
+
+
+def pixel_sr(x, y):
+    corners = wcs.all_pix2world([[x - 0.5, y - 0.5], [x + 0.5, y - 0.5],
+                                 [x + 0.5, y + 0.5], [x - 0.5, y + 0.5]], 0)
+    v = [unit_vector(lon, lat) for lon, lat in corners]
+    return triangle_sr(v[0], v[1], v[2]) + triangle_sr(v[0], v[2], v[3])
+
+
+DISTANCE = 310.0 * u.pc
+MU_H2, M_H = 2.8, 1.008 * u.u
+FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))
+by_id = {r["id"]: r for r in rows}
+rows_px, cols_px = np.indices(image.shape)
+physical = {}
+for s in tree["structures"]:
+    i = s["id"]
+    r = by_id[str(i)]
+    inside = np.isin(labels, subtree(i))
+    cx, cy = float(r["x"]), float(r["y"])
+    omega = pixel_sr(cx, cy)
+    n = int(inside.sum())
+    area_sr = n * omega
+    # Offsets on the sky of every pixel centre from the centroid, weighted by the map.
+    (clon, clat), = wcs.all_pix2world([[cx, cy]], 0)
+    lon, lat = wcs.all_pix2world(cols_px[inside], rows_px[inside], 0)
+    centre = SkyCoord(clon * u.deg, clat * u.deg, frame="icrs")
+    east, north = centre.spherical_offsets_to(SkyCoord(lon * u.deg, lat * u.deg, frame="icrs"))
+    e, nn_ = east.to_value(u.arcsec), north.to_value(u.arcsec)
+    w = image[inside]
+    n_ = nn_
+    me, mn = np.average(e, weights=w), np.average(n_, weights=w)
+    cov = np.array([[np.average((e - me) ** 2, weights=w), np.average((e - me) * (n_ - mn), weights=w)],
+                    [np.average((e - me) * (n_ - mn), weights=w), np.average((n_ - mn) ** 2, weights=w)]])
+    evals, evecs = np.linalg.eigh(cov)
+    major = evecs[:, 1]
+    pa = np.degrees(np.arctan2(major[0], major[1])) % 180.0
+    column = (w.sum() * u.cm ** -2)
+    excess = ((w - s["merge_level"]).sum() * u.cm ** -2)
+    # A steradian is dimensionless in astropy: Omega d^2 is the pixel's area at the cloud.
+    pixel_area = omega * DISTANCE ** 2
+    unit_mass = MU_H2 * M_H
+    mass = (column * pixel_area * unit_mass).to(u.Msun)
+    mass_excess = (excess * pixel_area * unit_mass).to(u.Msun)
+    radius = np.sqrt(n * pixel_area / np.pi)
+    density = (mass_excess / (4.0 / 3.0 * np.pi * radius ** 3) / unit_mass).to(u.cm ** -3)
+    physical[str(i)] = {
+        "pixel_sr": omega,
+        "area_arcsec2": (area_sr * u.sr).to_value(u.arcsec ** 2),
+        "radius_arcsec": np.sqrt((area_sr * u.sr).to_value(u.arcsec ** 2) / np.pi),
+        "cov_east_east": cov[0, 0], "cov_east_north": cov[0, 1], "cov_north_north": cov[1, 1],
+        "fwhm_major_arcsec": FWHM_PER_SIGMA * np.sqrt(evals[1]),
+        "fwhm_minor_arcsec": FWHM_PER_SIGMA * np.sqrt(evals[0]),
+        "pa_deg": pa,
+        "mass_msun": mass.value,
+        "mass_excess_msun": mass_excess.value,
+        "radius_pc": radius.to_value(u.pc),
+        "density_cm3": density.value,
+    }
+
 from astropy.io import votable
 from astropy.io.votable.ucd import check_ucd
 
@@ -133,6 +217,7 @@ write_json(os.path.join(OUT, "reference.json"), {
     "astropy": astropy.__version__,
     "regionprops": result,
     "sky": sky,
+    "physical": physical,
     "votable_ucds": ucds,
     "fits_units": units,
     "pixel_sum_units_over_map_unit": pixel_sums,
