@@ -418,3 +418,31 @@ fn power_law_error_covers_the_truth_at_the_nominal_rate() {
         "bootstrap error covers the truth in {boot_rate:.2} of trials, expected 0.683 +/- 0.14"
     );
 }
+
+/// Medians and percentiles (compare's medians, the bootstrap's 16/50/84 percentiles) against
+/// numpy 2.4.6's `percentile` with its default linear method (Hyndman & Fan 1996, definition
+/// 7), on samples of 1 to 1000 values and one with ties (fixtures/populations/percentiles.json).
+/// The two interpolate between the same order statistics in slightly different forms, so they
+/// may differ in the last bit.
+#[test]
+fn percentiles_match_numpy() {
+    let f = fixture_json("populations/percentiles.json");
+    let qs = nums(&f["q"]);
+    let samples = f["samples"].as_object().unwrap();
+    assert!(samples.len() >= 7);
+    for (name, s) in samples {
+        let data = nums(&s["data"]);
+        let got = cairn::populations::percentiles(&data, &qs).unwrap();
+        for ((q, g), want) in qs.iter().zip(&got).zip(nums(&s["percentiles"])) {
+            assert_close(*g, want, 1e-15, 0.0, &format!("{name}: percentile {q}"));
+        }
+        let median = cairn::populations::median(&data).unwrap();
+        assert_close(
+            median,
+            got[qs.iter().position(|&q| q == 50.0).unwrap()],
+            0.0,
+            0.0,
+            name,
+        );
+    }
+}

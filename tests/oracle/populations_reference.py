@@ -11,6 +11,7 @@ Sources (each value names the library that made it):
 - scipy 1.17.1: `stats.ks_2samp` (methods 'auto', 'exact', 'asymp'), `stats.anderson_ksamp`
   (variant 'midrank', Scholz & Stephens 1987, JASA 82, 918), `stats.lognorm.fit(floc=0)`,
   `stats.t.interval` and `stats.chi2.ppf` (log-normal confidence intervals), `stats.linregress`.
+- numpy 2.4.6 `percentile` (its default 'linear' method) for the medians and percentiles.
 - numpy 2.4.6 `random.default_rng` with fixed seeds draws every sample. Samples are rounded to
   10 significant digits before use so the fixtures stay small; the rounded values are the ones
   stored and the ones every reference value is computed from.
@@ -192,7 +193,22 @@ def mass_size():
     write_json(os.path.join(OUT, "mass_size.json"), out)
 
 
+def percentiles():
+    """numpy.percentile (default method 'linear') of samples of several sizes, ties included."""
+    qs = [0.0, 1.0, 16.0, 25.0, 50.0, 75.0, 84.0, 99.5, 100.0]
+    out = {"source": f"numpy {VERSIONS['numpy']} percentile(method='linear')", "versions": VERSIONS,
+           "q": qs, "samples": {}}
+    rng = np.random.default_rng(4242)
+    for n in (1, 2, 3, 10, 57, 1000):
+        data = rounded(rng.lognormal(0.0, 1.0, n))
+        out["samples"][f"n{n}"] = {"data": data, "percentiles": np.percentile(data, qs)}
+    ties = np.round(rng.lognormal(0.0, 0.5, 40), 1)
+    out["samples"]["ties40"] = {"data": ties, "percentiles": np.percentile(ties, qs)}
+    write_json(os.path.join(OUT, "percentiles.json"), out)
+
+
 if __name__ == "__main__":
+    percentiles()
     power_laws()
     ks_pairs()
     ad_sets()
