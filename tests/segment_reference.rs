@@ -178,23 +178,27 @@ fn catalogue_matches_regionprops_on_cairns_label_map() {
     }
 }
 
-/// The catalogue's sky sizes and masses against astropy 8.0.2 by other methods than cairn's
+/// The catalogue's sky sizes, masses and stability columns against astropy 8.0.2 by other
+/// methods than cairn's
 /// (tests/oracle/segment_skimage.py): the pixel's solid angle as the spherical quadrilateral
 /// of its corners (Van Oosterom & Strackee 1983) against cairn's area element of the
 /// projection; the weighted covariance of the pixels' own offsets on the sky
 /// (`SkyCoord.spherical_offsets_to`) against cairn's pixel covariance carried through the
-/// local Jacobian; masses M = mu_H2 m_H d^2 Omega sum N(H2) in astropy's units and constants.
+/// local Jacobian; masses M = mu_H2 m_H d^2 Omega sum N(H2), and the density, Jeans,
+/// Bonnor-Ebert, virial and free-fall columns from the oracle's own masses and radii, in
+/// astropy's units and constants (formulas and papers in the oracle's docstring).
 /// The tolerances are those of the methods' differences: the quadrilateral and the area element
 /// differ by terms of order the pixel's size squared and cairn's derivative steps (1e-7), the
 /// exact offsets and the Jacobian by the curvature of the sky over a structure up to a tenth of
 /// a degree across (1e-6 of the major axis).
 #[test]
-fn catalogue_sky_sizes_and_masses_match_astropy() {
+fn catalogue_sky_sizes_masses_and_stability_match_astropy() {
     let reference = fixture_json("segment/reference.json");
     let phys = reference["physical"].as_object().unwrap();
     let rows = read_csv(&fixture_path("segment/run/structures.csv"));
     assert_eq!(rows.len(), phys.len());
     let mut elongated = 0;
+    let mut states = std::collections::BTreeMap::new();
     for row in &rows {
         let id = &row["id"];
         let r = &phys[id.as_str()];
@@ -206,9 +210,29 @@ fn catalogue_sky_sizes_and_masses_match_astropy() {
             ("mass_excess", "mass_excess_msun"),
             ("radius_pc", "radius_pc"),
             ("density", "density_cm3"),
+            ("jeans_length", "jeans_length_pc"),
+            ("jeans_mass", "jeans_mass_msun"),
+            ("be_mass", "be_mass_msun"),
+            ("alpha_be", "alpha_be"),
+            ("sigma_v", "sigma_v_kms"),
+            ("alpha_vir", "alpha_vir"),
+            ("t_ff", "t_ff_yr"),
         ] {
             assert_close(f(row, col), num(&r[key]), 1e-7, 0.0, &what(col));
         }
+        // The state from astropy's virial parameter by the catalogue's rule (its note: bound
+        // at alpha_vir <= 2, the virial boundary of Bertoldi & McKee 1992, marginal up to 4;
+        // common practice).
+        let a = num(&r["alpha_vir"]);
+        let state = if a <= 2.0 {
+            "bound"
+        } else if a <= 4.0 {
+            "marginal"
+        } else {
+            "unbound"
+        };
+        assert_eq!(row["state"], state, "{}", what("state"));
+        *states.entry(state).or_insert(0) += 1;
         let major = num(&r["fwhm_major_arcsec"]);
         for (col, key) in [
             ("fwhm_major", "fwhm_major_arcsec"),
@@ -241,6 +265,7 @@ fn catalogue_sky_sizes_and_masses_match_astropy() {
         }
     }
     assert!(elongated >= 3, "only {elongated} elongated structures");
+    assert_eq!(states.len(), 3, "every state occurs: {states:?}");
 }
 
 #[test]

@@ -19,10 +19,13 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
         output: out.to_path_buf(),
         force: true,
         command_line: vec!["fixture".into()],
-        // The map's invented distance (its DISTANCE card), so the catalogue has masses and
-        // linear sizes for the oracle to check.
+        // The map's invented distance (its DISTANCE card), an invented gas temperature and
+        // non-thermal velocity dispersion, so the catalogue has masses, linear sizes and every
+        // stability column for the oracle to check.
         physics: cairn::score::Context {
             distance_m: Some(310.0 * cairn::physics::constants::PC),
+            temperature_k: Some(cairn::score::Field::Uniform(12.0)),
+            sigma_nt: Some(cairn::score::Field::Uniform(200.0)),
             ..Default::default()
         },
         figure: None,

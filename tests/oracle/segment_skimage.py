@@ -22,7 +22,14 @@ descendants (from hierarchy.json). Sources:
   .spherical_offsets_to: east, north), whose eigenvalues give the FWHMs and whose major axis
   gives the position angle east of north; masses M = mu_H2 m_H d^2 Omega sum N(H2) with
   astropy's units (mu_H2 = 2.8, m_H = 1.008 u, the run's assumptions; d = 310 pc, the
-  map's invented distance) and the mean density of a uniform sphere of the effective radius.
+  map's invented distance) and the mean density of a uniform sphere of the effective radius;
+  with the run's gas temperature (12 K), mean particle weight (2.33) and non-thermal
+  dispersion (0.2 km/s): the sound speed sqrt(k T / (mu_p m_H)), the Jeans length
+  sqrt(pi c_s^2 / (G rho)) and the mass of a sphere of that diameter (Jeans 1902), the
+  critical Bonnor-Ebert mass C R c_s^2 / G (Bonnor 1956; C from scipy's Lane-Emden solution in
+  fixtures/physics/lane_emden.json), the virial parameter 5 sigma^2 R / (G M) (Bertoldi &
+  McKee 1992) and the free-fall time sqrt(3 pi / (32 G rho)), all by astropy's constants and
+  units (the year a Julian year).
 * astropy 8.0.2 astropy.units (FITS format) on every TUNIT of cairn's run/structures.fits,
   and each divided by the map's BUNIT; the same for cairn's spelling of a sum over pixels
   for other map units (fixtures/segment/pixel_sum_units.json).
@@ -125,6 +132,9 @@ def pixel_sr(x, y):
 
 
 DISTANCE = 310.0 * u.pc
+TEMPERATURE, MU_P, SIGMA_NT = 12.0 * u.K, 2.33, 0.2 * u.km / u.s
+with open(os.path.join(fixtures_dir(), "physics", "lane_emden.json")) as f:
+    BE_COEFFICIENT = json.load(f)["coefficient_c"]
 MU_H2, M_H = 2.8, 1.008 * u.u
 FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))
 by_id = {r["id"]: r for r in rows}
@@ -161,7 +171,25 @@ for s in tree["structures"]:
     mass_excess = (excess * pixel_area * unit_mass).to(u.Msun)
     radius = np.sqrt(n * pixel_area / np.pi)
     density = (mass_excess / (4.0 / 3.0 * np.pi * radius ** 3) / unit_mass).to(u.cm ** -3)
+    # The stability columns: the run's gas temperature, mean particle weight and
+    # non-thermal dispersion; the Bonnor-Ebert coefficient from the Lane-Emden oracle
+    # (fixtures/physics/lane_emden.json, scipy solve_ivp).
+    cs2 = const.k_B * TEMPERATURE / (MU_P * M_H)
+    sigma2 = cs2 + SIGMA_NT ** 2
+    rho = mass_excess / (4.0 / 3.0 * np.pi * radius ** 3)
+    jeans_length = np.sqrt(np.pi * cs2 / (const.G * rho))
+    jeans_mass = np.pi / 6.0 * jeans_length ** 3 * rho  # a sphere of diameter jeans_length
+    be_mass = BE_COEFFICIENT * radius * cs2 / const.G
+    alpha_vir = (5.0 * sigma2 * radius / (const.G * mass_excess)).decompose()
+    t_ff = np.sqrt(3.0 * np.pi / (32.0 * const.G * rho))
     physical[str(i)] = {
+        "jeans_length_pc": jeans_length.to_value(u.pc),
+        "jeans_mass_msun": jeans_mass.to_value(u.Msun),
+        "be_mass_msun": be_mass.to_value(u.Msun),
+        "alpha_be": (be_mass / mass_excess).decompose().value,
+        "sigma_v_kms": np.sqrt(sigma2).to_value(u.km / u.s),
+        "alpha_vir": alpha_vir.value,
+        "t_ff_yr": t_ff.to_value(u.yr),
         "pixel_sr": omega,
         "area_arcsec2": (area_sr * u.sr).to_value(u.arcsec ** 2),
         "radius_arcsec": np.sqrt((area_sr * u.sr).to_value(u.arcsec ** 2) / np.pi),
