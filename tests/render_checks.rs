@@ -326,17 +326,11 @@ fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
     let l = tricky_labels();
     let map = smooth_map(6, 10);
     let o = Overlay {
-        map: map.view(),
         unit_label: "N(H_2) [cm^-2]".into(),
-        labels: l.view(),
-        branch_labels: None,
-        branch_of: None,
-        leaves: leaves_of(&l),
-        states: states(),
-        sky: None,
         beam: Some((2.0, 1.5, 40.0)),
         scale_bar: Some((3.0, "0.1 pc".into())),
         title: Some("Test".into()),
+        ..plain_overlay(&map, &l, leaves_of(&l))
     };
     let style = Style {
         width_px: 900,
@@ -478,19 +472,7 @@ fn png_decodes_to_the_requested_width_and_output_is_deterministic() {
 fn figures_narrower_than_the_narrowest_width_are_refused() {
     let l = tricky_labels();
     let map = smooth_map(6, 10);
-    let o = Overlay {
-        map: map.view(),
-        unit_label: "K".into(),
-        labels: l.view(),
-        branch_labels: None,
-        branch_of: None,
-        leaves: leaves_of(&l),
-        states: states(),
-        sky: None,
-        beam: None,
-        scale_bar: None,
-        title: None,
-    };
+    let o = plain_overlay(&map, &l, leaves_of(&l));
     for dpi in [30.0, 72.0, 300.0, 2400.0] {
         let narrowest = render::narrowest_width_px(dpi);
         let style = |width_px: u32| Style {
@@ -948,17 +930,8 @@ fn mismatched_inputs_are_refused_with_a_sentence() {
     let map = smooth_map(6, 10);
     let l = Array2::from_elem((5, 10), -1);
     let o = Overlay {
-        map: map.view(),
-        unit_label: "K".into(),
-        labels: l.view(),
-        branch_labels: None,
-        branch_of: None,
-        leaves: Vec::new(),
         states: Vec::new(),
-        sky: None,
-        beam: None,
-        scale_bar: None,
-        title: None,
+        ..plain_overlay(&map, &l, Vec::new())
     };
     let e = render_png(&o, &Style::default()).unwrap_err();
     assert!(e.to_string().contains("leaf label map is 10 x 5"), "{e}");
