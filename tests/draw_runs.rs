@@ -49,6 +49,38 @@ fn png_size(p: &Path) -> (u32, u32) {
     (img.width(), img.height())
 }
 
+/// A figure too large for the memory the process may take (here 2 GB: a tall map at the widest
+/// --width makes a figure of 20000 x about 39000 pixels, 3 GB of pixels) is refused with one
+/// sentence, and the run leaves nothing behind, instead of ending the process mid-write.
+#[test]
+fn a_figure_larger_than_the_memory_is_refused_and_leaves_nothing() {
+    let d = tempfile::tempdir().unwrap();
+    write_map(d.path(), "tall.fits", 2, 4000);
+    let args = [
+        "segment",
+        "tall.fits",
+        "-o",
+        "run",
+        "--min-area",
+        "2px",
+        "--width",
+        "20000",
+        "-q",
+    ];
+    let o = cairn(&args, d.path());
+    cli::check_refused(
+        &o,
+        &args,
+        "figure",
+        "needs more memory than is available; lower --width",
+    );
+    assert!(
+        !d.path().join("run").exists(),
+        "{:?}",
+        cli::listing(d.path())
+    );
+}
+
 #[test]
 fn one_pixel_wide_or_tall_maps_give_figures_of_bounded_size() {
     // The figure module's bound (cairn::render::PANEL_MAX_HEIGHT): the map panel is at most

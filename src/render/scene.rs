@@ -259,11 +259,35 @@ impl Scene {
     /// Rasterises the scene and encodes it as an RGB PNG with its resolution recorded.
     pub fn to_png(&self) -> Result<Vec<u8>, RenderError> {
         use tiny_skia as sk;
-        let mut pm = sk::Pixmap::new(self.width, self.height)
-            .ok_or_else(|| RenderError::Encode("figure size is zero or too large".into()))?;
+        let (fw, fh) = (self.width, self.height);
+        let size = sk::IntSize::from_wh(fw, fh)
+            .ok_or_else(|| RenderError::Encode("figure size is zero".into()))?;
+        // The pixels and the clip mask in buffers whose allocation may fail (with an error
+        // that says what to do) rather than end the process.
+        let zeroed = |bytes_per_pixel: usize| -> Result<Vec<u8>, RenderError> {
+            let n = (fw as usize)
+                .checked_mul(fh as usize)
+                .and_then(|n| n.checked_mul(bytes_per_pixel));
+            let mut v = Vec::new();
+            match n {
+                Some(n) if v.try_reserve_exact(n).is_ok() => {
+                    v.resize(n, 0);
+                    Ok(v)
+                }
+                _ => Err(RenderError::BadStyle(format!(
+                    "a figure of {fw} x {fh} pixels needs more memory than is available; lower --width"
+                ))),
+            }
+        };
+        let mut pm = sk::Pixmap::from_vec(zeroed(4)?, size)
+            .ok_or_else(|| RenderError::Encode("figure size is too large".into()))?;
         pm.fill(sk::Color::WHITE);
-        let mask = self.clip.and_then(|(x, y, w, h)| {
-            let mut m = sk::Mask::new(self.width, self.height)?;
+        let mask_bytes = match self.clip {
+            Some(_) => Some(zeroed(1)?),
+            None => None,
+        };
+        let mask = self.clip.zip(mask_bytes).and_then(|((x, y, w, h), bytes)| {
+            let mut m = sk::Mask::from_vec(bytes, size)?;
             let r = sk::Rect::from_xywh(x as f32, y as f32, w as f32, h as f32)?;
             let p = sk::PathBuilder::from_rect(r);
             m.fill_path(&p, sk::FillRule::Winding, false, sk::Transform::identity());
@@ -353,11 +377,13 @@ impl Scene {
                 }
             }
         }
-        let data = pm.take();
-        let mut rgb = Vec::with_capacity(data.len() / 4 * 3);
-        for px in data.chunks_exact(4) {
-            rgb.extend_from_slice(&px[..3]);
+        // RGBA to RGB in place (the figure is opaque), so no second buffer is needed.
+        let mut rgb = pm.take();
+        let n = rgb.len() / 4;
+        for i in 0..n {
+            rgb.copy_within(4 * i..4 * i + 3, 3 * i);
         }
+        rgb.truncate(3 * n);
         encode_png(&rgb, self.width, self.height, Some(self.dpi))
     }
 
