@@ -263,7 +263,8 @@ impl Scene {
         let size = sk::IntSize::from_wh(fw, fh)
             .ok_or_else(|| RenderError::Encode("figure size is zero".into()))?;
         // The pixels and the clip mask in buffers whose allocation may fail (with an error
-        // that says what to do) rather than end the process.
+        // that says what to do) rather than end the process; `vec![0; n]` cannot fail.
+        #[allow(clippy::slow_vector_initialization)]
         let zeroed = |bytes_per_pixel: usize| -> Result<Vec<u8>, RenderError> {
             let n = (fw as usize)
                 .checked_mul(fh as usize)
