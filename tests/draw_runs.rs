@@ -49,11 +49,12 @@ fn png_size(p: &Path) -> (u32, u32) {
     (img.width(), img.height())
 }
 
-/// A figure too large for the memory the process may take (here 2 GB: a tall map at the widest
-/// --width makes a figure of 20000 x about 39000 pixels, 3 GB of pixels) is refused with one
-/// sentence, and the run leaves nothing behind, instead of ending the process mid-write.
+/// A figure beyond the drawing's bound (`cairn::render::MAX_FIGURE_PIXELS`: a tall map at the
+/// widest --width makes a figure of 20000 x about 39000 pixels, which would take some 12 GB to
+/// draw) is refused with one sentence, and the run leaves nothing behind, within 2 GB of
+/// memory; so is a square map's figure at that width, from `draw` as from `segment`.
 #[test]
-fn a_figure_larger_than_the_memory_is_refused_and_leaves_nothing() {
+fn a_figure_beyond_the_bound_is_refused_and_leaves_nothing() {
     let d = tempfile::tempdir().unwrap();
     write_map(d.path(), "tall.fits", 2, 4000);
     let args = [
@@ -68,14 +69,25 @@ fn a_figure_larger_than_the_memory_is_refused_and_leaves_nothing() {
         "-q",
     ];
     let o = cairn(&args, d.path());
-    cli::check_refused(
-        &o,
-        &args,
-        "figure",
-        "needs more memory than is available; lower --width",
-    );
+    cli::check_refused(&o, &args, "figure of 20000 x", "larger than cairn draws");
     assert!(
         !d.path().join("run").exists(),
+        "{:?}",
+        cli::listing(d.path())
+    );
+    let run = demo_run(d.path(), "demo", &[]);
+    let args = [
+        "draw",
+        run.to_str().unwrap(),
+        "-o",
+        "figs",
+        "--width",
+        "20000",
+    ];
+    let o = cairn(&args, d.path());
+    cli::check_refused(&o, &args, "figure of 20000 x", "lower --width");
+    assert!(
+        !d.path().join("figs").exists(),
         "{:?}",
         cli::listing(d.path())
     );

@@ -170,6 +170,23 @@ pub fn narrowest_width_px(dpi: f64) -> u32 {
     (left + right + MIN_PANEL).ceil() as u32
 }
 
+/// The largest figure drawn, in pixels (150 megapixels: a square figure about 12000 pixels
+/// across, 41 inches at 300 dpi). Drawing takes about 16 bytes per figure pixel (the resampled
+/// map, its colours, the canvas and its clip), so this bounds a figure's memory near 2.4 GB.
+pub const MAX_FIGURE_PIXELS: u64 = 150_000_000;
+
+/// Refuses a figure of more than [`MAX_FIGURE_PIXELS`].
+pub(crate) fn check_figure_size(width: u32, height: u32) -> Result<(), RenderError> {
+    let n = width as u64 * height as u64;
+    if n > MAX_FIGURE_PIXELS {
+        return Err(RenderError::BadStyle(format!(
+            "a figure of {width} x {height} pixels is larger than cairn draws ({} megapixels); lower --width",
+            MAX_FIGURE_PIXELS / 1_000_000
+        )));
+    }
+    Ok(())
+}
+
 /// The narrowest map panel drawn, in pixels.
 const MIN_PANEL: f64 = 16.0;
 
@@ -362,6 +379,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let legend_top = frame.1 + fh + below + m.pad;
     let legend_h = rows.len() as f64 * 1.5 * fs;
     let height = (legend_top + legend_h + m.pad).ceil() as u32;
+    check_figure_size(s.width_px, height)?;
 
     let mut lay = Layout {
         width: s.width_px,

@@ -219,6 +219,7 @@ pub(crate) fn scene(
         }
     }
     let height = (legend_top + (rows.len() + note.len()) as f64 * 1.5 * fs + pad).ceil() as u32;
+    super::figure::check_figure_size(s.width_px, height)?;
 
     let ymap = |v: f64| {
         let t = if log {
