@@ -534,6 +534,7 @@ impl Table {
             env!("CARGO_PKG_VERSION")
         );
         for (k, v, c) in &self.meta {
+            let (k, v, c) = (one_line(k), one_line(v), one_line(c));
             if c.is_empty() {
                 let _ = writeln!(s, "# parameter {k} = {v}");
             } else {
@@ -541,7 +542,7 @@ impl Table {
             }
         }
         for n in &self.notes {
-            let _ = writeln!(s, "# note: {n}");
+            let _ = writeln!(s, "# note: {}", one_line(n));
         }
         for c in &self.columns {
             let unit = if c.unit.is_empty() {
@@ -659,28 +660,21 @@ impl Table {
         }
         for (k, v, c) in &self.meta {
             let key = fits_key(k);
+            // FITS header text is printable ASCII (FITS 4.0 section 4.2.1).
+            let c = printable_ascii(c);
             match v.parse::<f64>() {
                 Ok(x) if x.is_finite() => {
                     hdu.write_key(&mut f, &key, (x, c.as_str())).map_err(fail)?
                 }
                 _ => hdu
-                    .write_key(&mut f, &key, (v.as_str(), c.as_str()))
+                    .write_key(&mut f, &key, (printable_ascii(v).as_str(), c.as_str()))
                     .map_err(fail)?,
             }
         }
         // The notes (what the kinds mean, the conventions, the cautions) as COMMENT cards,
         // each note wrapped at word boundaries, its continuation cards indented.
         for n in &self.notes {
-            let ascii: String = n
-                .chars()
-                .map(|ch| {
-                    if ch.is_ascii() && !ch.is_ascii_control() {
-                        ch
-                    } else {
-                        '?'
-                    }
-                })
-                .collect();
+            let ascii = printable_ascii(n);
             for line in wrap_words(&ascii, 70) {
                 let text = std::ffi::CString::new(line).expect("no NUL in an ASCII note");
                 let mut status = 0;
@@ -812,6 +806,36 @@ pub fn read_catalogue_csv(path: &Path, text: &str) -> Result<(Vec<String>, Vec<V
         rows.push(r);
     }
     Ok((header, rows))
+}
+
+/// `text` with every character outside printable ASCII replaced by `?` (FITS header text).
+fn printable_ascii(text: &str) -> String {
+    text.chars()
+        .map(|ch| {
+            if ch.is_ascii() && !ch.is_ascii_control() {
+                ch
+            } else {
+                '?'
+            }
+        })
+        .collect()
+}
+
+/// `text` on one line: control characters (a newline in a file name, say) written as escapes
+/// (`\n`), so that a commented header line stays one line.
+fn one_line(text: &str) -> String {
+    if !text.chars().any(char::is_control) {
+        return text.to_string();
+    }
+    text.chars()
+        .map(|ch| {
+            if ch.is_control() {
+                ch.escape_debug().to_string()
+            } else {
+                ch.to_string()
+            }
+        })
+        .collect()
 }
 
 /// One CSV line split at commas outside double quotes.

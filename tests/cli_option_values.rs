@@ -115,6 +115,54 @@ fn a_map_not_named_in_utf8_is_found_again_by_draw() {
     assert!(input["path"].as_str().unwrap().ends_with("/col.fits"));
 }
 
+/// A map whose name holds a line break gives a catalogue whose commented header stays one
+/// line per parameter (the break written as `\n`), which `draw` and `compare` read back.
+#[test]
+fn a_line_break_in_the_map_name_keeps_the_catalogue_readable() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    std::fs::rename(d.path().join("col.fits"), d.path().join("a\nb.fits")).unwrap();
+    for name in ["one", "two"] {
+        let o = cairn(
+            &[
+                "segment",
+                "a\nb.fits",
+                "-o",
+                name,
+                "--distance",
+                "410pc",
+                "--temperature",
+                "14K",
+                "--no-figure",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let csv = std::fs::read_to_string(d.path().join("one/structures.csv")).unwrap();
+    assert!(
+        csv.contains("# parameter input = a\\nb.fits  (input map)\n"),
+        "{csv}"
+    );
+    let o = cairn(&["draw", "one", "-o", "figs", "-q"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "compare",
+            "one",
+            "two",
+            "-o",
+            "cmp",
+            "--resamples",
+            "20",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+}
+
 #[test]
 fn a_reader_that_stops_early_is_not_an_error() {
     let d = tempfile::tempdir().unwrap();
