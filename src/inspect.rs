@@ -270,7 +270,14 @@ pub fn noise_box_px(map: &Map) -> usize {
 
 /// Loads a noise map and checks it lies on the same grid as `map`.
 pub fn load_noise_map(map: &Map, path: &Path) -> Result<ndarray::Array2<f32>> {
-    load_aux_map(map, path, "noise map", "noise values", false)
+    load_aux_map(
+        map,
+        path,
+        "noise map",
+        "noise values",
+        false,
+        AuxUnit::OfMap,
+    )
 }
 
 /// Angle in degrees between two (longitude, latitude) positions in degrees (haversine).
@@ -281,23 +288,94 @@ fn separation_deg(a: (f64, f64), b: (f64, f64)) -> f64 {
     (2.0 * h.sqrt().min(1.0).asin()).to_degrees()
 }
 
+/// The unit an auxiliary map's values must be in.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum AuxUnit {
+    /// The map's own unit (a noise map); another unit of the same kind is converted (a noise
+    /// map in mJy/beam beside a map in Jy/beam).
+    OfMap,
+    /// Kelvin (a temperature map).
+    Kelvin,
+    /// A speed, returned in km/s (a velocity-dispersion map; converted from m/s and the like).
+    KmPerS,
+}
+
+/// The factor that turns values in the auxiliary map's BUNIT (`aux`, trimmed, not empty) into
+/// the unit `expect` calls for, or why they cannot be.
+fn aux_factor(
+    map: &Map,
+    aux: &Map,
+    bunit: &str,
+    expect: AuxUnit,
+) -> std::result::Result<f64, String> {
+    use units::PixelUnit as P;
+    match expect {
+        AuxUnit::Kelvin => {
+            if bunit == "K" {
+                Ok(1.0)
+            } else {
+                Err("K".into())
+            }
+        }
+        AuxUnit::KmPerS => {
+            units::parse_quantity(&format!("1{bunit}"), &[units::Dimension::Speed], "BUNIT")
+                .map(|q| q.si / 1e3)
+                .map_err(|_| "a speed such as km/s".into())
+        }
+        AuxUnit::OfMap => {
+            let si = |u: &P| match *u {
+                P::ColumnDensity { to_si }
+                | P::SurfaceBrightness { to_si }
+                | P::FluxPerBeam { to_si }
+                | P::FluxPerPixel { to_si } => to_si,
+                P::Extinction { .. } => 1.0,
+            };
+            let theirs = format!("the map's unit ({})", map.unit_text.trim());
+            match (&map.unit, &aux.unit) {
+                (Some(a), Some(b)) if std::mem::discriminant(a) == std::mem::discriminant(b) => {
+                    Ok(si(b) / si(a))
+                }
+                (None, _) | (_, None) if bunit.eq_ignore_ascii_case(map.unit_text.trim()) => {
+                    Ok(1.0)
+                }
+                _ => Err(theirs),
+            }
+        }
+    }
+}
+
 /// Loads a map of a positive quantity (or, with `zero_allowed`, one that may be zero) beside
 /// `map` (`what`: "noise map", "temperature map", ...; `values`: what its values are, for
 /// messages) and checks that it lies on the same grid:
 /// the same shape and, when both carry a celestial WCS, the same sky positions at the
-/// corners and the centre (within a tenth of a pixel).
+/// corners and the centre (within a tenth of a pixel). A BUNIT it carries must be of the unit
+/// `expect` calls for, and the values are converted to it; without one, they are taken in it.
 pub fn load_aux_map(
     map: &Map,
     path: &Path,
     what: &str,
     values: &str,
     zero_allowed: bool,
+    expect: AuxUnit,
 ) -> Result<ndarray::Array2<f32>> {
     let opts = LoadOptions {
         require_unit: false,
         ..LoadOptions::default()
     };
     let nm = map::load(path, &opts)?;
+    let bunit = nm.unit_text.trim();
+    let factor = if bunit.is_empty() {
+        1.0
+    } else {
+        aux_factor(map, &nm, bunit, expect).map_err(|want| {
+            Error::input(
+                path,
+                format!(
+                    "has BUNIT '{bunit}', but a {what} must be in {want}; give one in that unit (or without BUNIT, when its values are in it)."
+                ),
+            )
+        })?
+    };
     if nm.data.dim() != map.data.dim() {
         return Err(Error::input(
             path,
@@ -355,7 +433,11 @@ pub fn load_aux_map(
             ),
         ));
     }
-    Ok(nm.data)
+    if factor == 1.0 {
+        Ok(nm.data)
+    } else {
+        Ok(nm.data.mapv(|v| (v as f64 * factor) as f32))
+    }
 }
 
 /// Builds the summary of a loaded map.

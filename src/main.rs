@@ -318,6 +318,7 @@ impl MotionArgs {
                 "velocity-dispersion map",
                 "velocity dispersions",
                 true,
+                inspect::AuxUnit::KmPerS,
             )?;
             c.sigma_nt = Some(Field::Map(m.mapv(|v| v * 1e3)));
         }
@@ -362,6 +363,7 @@ impl PhysicsArgs {
                 "temperature map",
                 "temperatures",
                 false,
+                inspect::AuxUnit::Kelvin,
             )?));
         }
         if let Some(k) = &self.opacity {

@@ -417,3 +417,74 @@ fn leftovers_of_a_killed_run_are_removed_by_the_next() {
         "not one of cairn's output names"
     );
 }
+
+/// The auxiliary maps' BUNIT is read: a velocity-dispersion map in m/s and a noise map in m-2
+/// beside a map in cm-2 are converted (the catalogue's columns equal those of the same values
+/// given as numbers in km/s and cm-2), and a temperature map in cm-2 is refused naming it.
+#[test]
+fn auxiliary_maps_are_read_in_their_own_units() {
+    use cairn::header::Value;
+    let d = tempfile::tempdir().unwrap();
+    let map_path = demo_map(d.path());
+    let m = cairn::map::load(&map_path, &Default::default()).unwrap();
+    let write = |name: &str, value: f32, bunit: &str| {
+        let mut h = m.header.clone();
+        h.set("BUNIT", Value::Str(bunit.into()), "");
+        let a = ndarray::Array2::from_elem(m.data.dim(), value);
+        cairn::fits_write::write_image_f32(&d.path().join(name), a.view(), &h, true).unwrap();
+    };
+    write("sigma.fits", 200.0, "m/s");
+    write("noise.fits", 2.0e24, "m-2");
+    write("temp.fits", 14.0, "cm-2");
+    let base = [
+        "segment",
+        "col.fits",
+        "--distance",
+        "410pc",
+        "--temperature",
+        "14K",
+        "--no-figure",
+        "-q",
+    ];
+    let column = |run: &str, col: &str| -> Vec<f64> {
+        let text = std::fs::read_to_string(d.path().join(run).join("structures.csv")).unwrap();
+        let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+        let i = lines
+            .next()
+            .unwrap()
+            .split(',')
+            .position(|c| c == col)
+            .unwrap();
+        lines
+            .map(|l| l.split(',').nth(i).unwrap().parse().unwrap())
+            .collect()
+    };
+    let run = |name: &str, extra: &[&str]| {
+        let mut args = base.to_vec();
+        args.extend(["-o", name]);
+        args.extend_from_slice(extra);
+        let o = cairn(&args, d.path());
+        assert_eq!(o.code, 0, "{name}: {}", o.stderr);
+    };
+    run("given", &["--sigma-nt", "0.2km/s", "--noise", "2e20"]);
+    run(
+        "maps",
+        &["--sigma-nt-map", "sigma.fits", "--noise-map", "noise.fits"],
+    );
+    for col in ["alpha_vir", "sigma_v", "mass_err", "n_peak_err"] {
+        let (a, b) = (column("given", col), column("maps", col));
+        assert!(!a.is_empty());
+        for (x, y) in a.iter().zip(&b) {
+            assert!((x - y).abs() <= 1e-6 * x.abs(), "{col}: {x} {y}");
+        }
+    }
+    let mut args = base.to_vec();
+    args.extend(["-o", "bad", "--temperature-map", "temp.fits"]);
+    args.retain(|a| *a != "--temperature" && *a != "14K");
+    refused(
+        d.path(),
+        &args,
+        "temp.fits",
+        "has BUNIT 'cm-2', but a temperature map must be in K",
+    );
+}
