@@ -271,6 +271,42 @@ fn cfitsio_text(status: i32) -> String {
         .to_string()
 }
 
+/// Refuses scaling keywords that CFITSIO would pass over when malformed (FITS Standard 4.0,
+/// section 4.4.2.5): BSCALE and BZERO must be finite numbers, BSCALE not zero, and BLANK, for
+/// integer data, an integer; otherwise the pixel values would be read unscaled, or missing
+/// pixels as values, without a word.
+fn check_scaling(path: &Path, header: &Header, bitpix: i64) -> Result<()> {
+    use crate::header::Value;
+    for key in ["BSCALE", "BZERO"] {
+        let Some(v) = header.get(key) else { continue };
+        let x = match v {
+            Value::Int(i) => Some(*i as f64),
+            Value::Float(x) if x.is_finite() => Some(*x),
+            _ => None,
+        };
+        if x.is_none() || (key == "BSCALE" && x == Some(0.0)) {
+            return Err(Error::input(
+                path,
+                format!(
+                    "has {key} = {v}, which is not a usable scale, so its pixel values cannot be read; correct {key} in a copy of the file."
+                ),
+            ));
+        }
+    }
+    if bitpix > 0
+        && let Some(v) = header.get("BLANK")
+        && !matches!(v, Value::Int(_))
+    {
+        return Err(Error::input(
+            path,
+            format!(
+                "has BLANK = {v}, which is not an integer, so its missing pixels cannot be told from the others; correct BLANK in a copy of the file."
+            ),
+        ));
+    }
+    Ok(())
+}
+
 /// Bytes per pixel of a BITPIX.
 fn bytes_per_pixel(bitpix: i64) -> Option<u64> {
     match bitpix {
@@ -371,6 +407,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
             format!("has BITPIX = {bitpix}, which FITS does not define; the file is damaged."),
         )
     })?;
+    check_scaling(path, &header, bitpix)?;
     let total: u64 = axes.iter().map(|&a| a as u64).product::<u64>();
     let (mut head0, mut data0, mut end0) = (0i64, 0i64, 0i64);
     // SAFETY: valid handle, out-pointers to locals.

@@ -381,6 +381,49 @@ fn impossible_header_values_are_named() {
     assert_refused(&s, &["inspect", "odd.fits"], "odd.fits", "resample");
 }
 
+/// Scaling keywords that cannot scale (FITS Standard 4.0, section 4.4.2.5: BSCALE and BZERO
+/// are numbers, BLANK an integer for integer data) are refused by name rather than passed over.
+#[test]
+fn malformed_scaling_keywords_are_named() {
+    let s = Scratch::new();
+    for (name, card) in [
+        ("bscale_text.fits", "BSCALE  = 'x'"),
+        ("bscale_zero.fits", "BSCALE  =                  0.0"),
+        ("bzero_nan.fits", "BZERO   =                  NaN"),
+    ] {
+        let cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'", card]);
+        s.write(name, &fits_bytes(&cards, &good_pixels(256)));
+        let key = &card[..6];
+        assert_refused(&s, &["inspect", name], name, &format!("has {}", key.trim()));
+    }
+    // Integer data with a BLANK that is not an integer.
+    let mut h = String::new();
+    for c in [
+        "SIMPLE  =                    T",
+        "BITPIX  =                   16",
+        "NAXIS   =                    2",
+        "NAXIS1  =                   16",
+        "NAXIS2  =                   16",
+        "BUNIT   = 'MJy/sr'",
+        "BLANK   =                  1.5",
+        "END",
+    ] {
+        h.push_str(&format!("{c:<80}"));
+    }
+    let mut bytes = format!("{h:<2880}").into_bytes();
+    for i in 0..256i16 {
+        bytes.extend_from_slice(&(i % 50).to_be_bytes());
+    }
+    bytes.resize(2 * 2880, 0);
+    s.write("blank_float.fits", &bytes);
+    assert_refused(
+        &s,
+        &["inspect", "blank_float.fits"],
+        "blank_float.fits",
+        "has BLANK = ",
+    );
+}
+
 /// Numbers that are not numbers, and option values with no meaning, are refused by name.
 #[test]
 fn meaningless_option_values_are_refused() {
