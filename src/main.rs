@@ -647,7 +647,12 @@ struct CompareArgs {
     )]
     bin_width: f64,
     /// Temperatures of the critical Bonnor-Ebert lines on the mass-size diagram.
-    #[arg(long, default_value = "10K,20K", value_name = "T1,T2,...")]
+    #[arg(
+        long,
+        default_value = "10K,20K",
+        value_name = "T1,T2,...",
+        allow_hyphen_values = true
+    )]
     be_temperatures: String,
     /// Plot width in pixels.
     #[arg(
@@ -1002,7 +1007,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         // A length a beam can have: above a micro-parsec and below a kiloparsec.
         if !(res > 1e-6 * units::PARSEC && res < 1e3 * units::PARSEC) {
             return Err(Error::usage(format!(
-                "--common-resolution '{r}' is not a resolution a map can be smoothed to; give a positive length such as 0.05pc."
+                "--common-resolution '{r}' is not a resolution a map can be smoothed to: give a length between a micro-parsec and a kiloparsec, such as 0.05pc."
             )));
         }
         let d = a

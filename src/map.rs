@@ -335,6 +335,14 @@ fn check_signature(path: &Path) -> Result<(u64, bool)> {
             "is a folder, not a FITS file; give the map's file name.",
         ));
     }
+    if !meta.is_file() {
+        // A pipe or a device: reading it could wait for ever, and a map is read twice (its
+        // signature, then by CFITSIO).
+        return Err(Error::input(
+            path,
+            "is not a regular file (a pipe or a device); save the map to a file and give its name.",
+        ));
+    }
     let mut first = [0u8; 80];
     let mut f = std::fs::File::open(path).map_err(|e| {
         Error::input(

@@ -241,14 +241,20 @@ fn resolve_with(
     };
     let min_area_px = (area_px - 1e-9).ceil().max(1.0) as usize;
     if min_area_px > map.nx() * map.ny() {
+        // In the words of the value itself: a count beyond 2^64 would read as its cap.
+        let area = if area_px < 1e15 {
+            format!("{min_area_px}")
+        } else {
+            format!("{area_px:.3e}")
+        };
         return Err(Error::usage(if o.min_area.is_some() {
             format!(
-                "--min-area of {min_area_px} pixels is larger than the whole map ({} pixels); give a smaller one.",
+                "--min-area of {area} pixels is larger than the whole map ({} pixels); give a smaller one.",
                 map.nx() * map.ny()
             )
         } else {
             format!(
-                "the default --min-area, one beam ({min_area_px} pixels), is larger than the whole map ({} pixels); check the beam (--beam) or give --min-area in px.",
+                "the default --min-area, one beam ({area} pixels), is larger than the whole map ({} pixels); check the beam (--beam) or give --min-area in px.",
                 map.nx() * map.ny()
             )
         }));

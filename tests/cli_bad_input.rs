@@ -424,6 +424,34 @@ fn malformed_scaling_keywords_are_named() {
     );
 }
 
+/// A pipe given as the map is refused at once instead of read for ever; a minimum area beyond
+/// any count is shown as given, not as the largest count.
+#[test]
+fn a_pipe_and_an_area_beyond_counting_are_named() {
+    let s = Scratch::new();
+    let fifo = s.dir.path().join("pipe.fits");
+    let made = std::process::Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .unwrap();
+    assert!(made.success());
+    assert_refused(
+        &s,
+        &["inspect", "pipe.fits"],
+        "pipe.fits",
+        "not a regular file",
+    );
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("m.fits", &fits_bytes(&cards, &good_pixels(256)));
+    assert_refused(
+        &s,
+        &["segment", "m.fits", "-o", "out", "--min-area", "1e30px"],
+        "--min-area of 1.000e30 pixels",
+        "larger than the whole map",
+    );
+}
+
 /// Numbers that are not numbers, and option values with no meaning, are refused by name.
 #[test]
 fn meaningless_option_values_are_refused() {
