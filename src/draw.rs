@@ -244,9 +244,9 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
     } else {
         (
             render::tree_png(&nodes, &states, &level, style)
-                .map_err(|e| Error::usage(format!("cannot draw the tree: {e}.")))?,
+                .map_err(|e| Error::usage(format!("cannot draw the tree of structures: {e}.")))?,
             render::tree_svg(&nodes, &states, &level, style)
-                .map_err(|e| Error::usage(format!("cannot draw the tree: {e}.")))?,
+                .map_err(|e| Error::usage(format!("cannot draw the tree of structures: {e}.")))?,
         )
     };
     Ok(Figures {
@@ -299,6 +299,35 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         Some(p) => p.to_path_buf(),
         None => crate::segment::recorded_input(&run["input"]),
     };
+    if map_path.as_os_str().is_empty() {
+        return Err(Error::input(
+            &dir.join("run.json"),
+            format!(
+                "records no input map, so it is not a whole run record; give the map with --map, or {REMAKE}."
+            ),
+        ));
+    }
+    // A beam in the record must be one a map can have (the file was edited otherwise).
+    for key in ["beam", "common_resolution"] {
+        let b = if key == "beam" {
+            &run["beam"]
+        } else {
+            &run["common_resolution"]["input_beam"]
+        };
+        if let Some(b) = b.as_object() {
+            let g = |k: &str| b.get(k).and_then(|v| v.as_f64());
+            if let (Some(a), Some(m)) = (g("major_deg"), g("minor_deg"))
+                && !(a.is_finite() && m.is_finite() && 0.0 < m && m <= a)
+            {
+                return Err(Error::input(
+                    &dir.join("run.json"),
+                    format!(
+                        "records a beam of {a} x {m} degrees, which no map has, so the file was changed; {REMAKE}."
+                    ),
+                ));
+            }
+        }
+    }
     let mut opts = LoadOptions {
         require_unit: false,
         ..LoadOptions::default()
@@ -435,6 +464,19 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
                 ),
             ));
         }
+        let (peak_value, merge_level) = (
+            s["peak"].as_f64().unwrap_or(f64::NAN),
+            s["merge_level"].as_f64().unwrap_or(f64::NAN),
+        );
+        if !(peak_value.is_finite() && merge_level.is_finite() && merge_level <= peak_value) {
+            return Err(Error::input(
+                &tree_path,
+                format!(
+                    "structure {k} has the peak {} and the merge level {}, which no structure has (both numbers, the peak the higher), so the file was changed; {REMAKE}.",
+                    s["peak"], s["merge_level"]
+                ),
+            ));
+        }
         structures.push(FigStructure {
             id: k as u32,
             parent: parent.map(|p| p as u32),
@@ -443,8 +485,8 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
                 .map(|c| c.is_empty())
                 .unwrap_or(true),
             peak,
-            peak_value: s["peak"].as_f64().unwrap_or(f64::NAN),
-            merge_level: s["merge_level"].as_f64().unwrap_or(f64::NAN),
+            peak_value,
+            merge_level,
             state: None,
         });
     }

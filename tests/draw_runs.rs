@@ -225,6 +225,31 @@ fn draw_refuses_run_folders_whose_files_do_not_belong_together() {
     .unwrap();
     assert_draw_refused(d.path(), &shifted, "labels.fits", "another run");
 
+    // Edited records: no input map, a beam no map has, a merge level that is no number.
+    let edit = |name: &str, file: &str, from: &str, to: &str| {
+        let run = copy_run(&good, d.path(), name);
+        let text = std::fs::read_to_string(run.join(file)).unwrap();
+        assert!(text.contains(from), "{file} holds {from}");
+        std::fs::write(run.join(file), text.replacen(from, to, 1)).unwrap();
+        run
+    };
+    let no_input = edit("no-input", "run.json", "\"path\":", "\"former_path\":");
+    assert_draw_refused(d.path(), &no_input, "run.json", "records no input map");
+    let beam = edit(
+        "bad-beam",
+        "run.json",
+        "\"major_deg\": ",
+        "\"major_deg\": -",
+    );
+    assert_draw_refused(d.path(), &beam, "run.json", "which no map has");
+    let level = edit(
+        "bad-level",
+        "hierarchy.json",
+        "\"merge_level\": ",
+        "\"merge_level\": null, \"was\": ",
+    );
+    assert_draw_refused(d.path(), &level, "hierarchy.json", "the file was changed");
+
     // Catalogue rows deleted (the last two).
     let cut = copy_run(&good, d.path(), "cut");
     let text = std::fs::read_to_string(cut.join("structures.csv")).unwrap();

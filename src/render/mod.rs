@@ -234,7 +234,7 @@ impl fmt::Display for RenderError {
                 f,
                 "the shown region has no finite value, so the colour scale cannot be set; give fixed limits or another region"
             ),
-            RenderError::BadTree(m) => write!(f, "the tree cannot be drawn: {m}"),
+            RenderError::BadTree(m) => write!(f, "{m}"),
             RenderError::Encode(m) => write!(f, "the figure could not be encoded: {m}"),
         }
     }
