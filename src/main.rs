@@ -395,9 +395,11 @@ impl PhysicsArgs {
             )?;
         }
         if let Some(b) = self.beta {
-            if !b.is_finite() {
+            // Measured indices of interstellar dust lie near 1 to 2.5 (common practice); 0 to
+            // 5 leaves room for any model and keeps the opacity law finite.
+            if !(0.0..=5.0).contains(&b) {
                 return Err(Error::usage(format!(
-                    "--beta {b} is not a number; give the emissivity index, such as 1.8."
+                    "--beta {b} is outside 0 to 5; give the dust emissivity index, such as 1.8."
                 )));
             }
             c.opacity.beta = b;
@@ -726,10 +728,18 @@ impl MapArgs {
             })
             .transpose()
             .map_err(Error::usage)?;
-        if let Some(w) = wavelength
-            && w.si <= 0.0
-        {
-            return Err(Error::usage("--wavelength must be positive."));
+        if let Some(w) = wavelength {
+            // Dust continuum lies between the mid-infrared and radio waves: 1 um to 10 m.
+            let metres = match w.dim {
+                Dimension::Frequency => cairn::physics::constants::C / w.si,
+                _ => w.si,
+            };
+            if !(w.si > 0.0 && (1e-6..=10.0).contains(&metres)) {
+                return Err(Error::usage(format!(
+                    "--wavelength {} is outside 1um to 10m (300THz to 30MHz), where dust continuum maps lie; give the map's wavelength, such as 850um.",
+                    self.wavelength.as_deref().unwrap_or("")
+                )));
+            }
         }
         Ok(LoadOptions {
             hdu: self

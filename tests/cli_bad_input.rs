@@ -459,12 +459,23 @@ fn meaningless_option_values_are_refused() {
     let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
     cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
     s.write("m.fits", &fits_bytes(&cards, &good_pixels(256)));
-    assert_refused(
-        &s,
-        &["inspect", "m.fits", "--beta", "NaN"],
-        "--beta",
-        "not a number",
-    );
+    for beta in ["NaN", "1e30", "-1"] {
+        assert_refused(
+            &s,
+            &["inspect", "m.fits", "--beta", beta],
+            "--beta",
+            "outside 0 to 5",
+        );
+    }
+    // A wavelength where no dust continuum map lies (the emission would overflow).
+    for w in ["1e-30um", "0um", "1e12GHz"] {
+        assert_refused(
+            &s,
+            &["inspect", "m.fits", "--wavelength", w],
+            &format!("--wavelength {w}"),
+            "outside 1um to 10m",
+        );
+    }
     assert_refused(
         &s,
         &["inspect", "m.fits", "--unit", "furlongs"],
