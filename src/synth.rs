@@ -540,6 +540,55 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
         ));
     }
     let pos = |v: f64| v.is_finite() && v > 0.0;
+    if let Output::DustEmission {
+        wavelength_um,
+        temperature_k,
+        opacity,
+        ..
+    } = &spec.output
+    {
+        // Where dust continuum lies (1 um to 10 m, as segment's --wavelength), a dust
+        // temperature between the cosmic background's and dust's sublimation, and an opacity
+        // law that stays finite (beta as segment's --beta).
+        let ranges = [
+            (
+                "--emission (output.wavelength_um)",
+                *wavelength_um,
+                1.0,
+                1.0e7,
+                "um",
+            ),
+            (
+                "--temperature (output.temperature_k)",
+                *temperature_k,
+                2.7,
+                2000.0,
+                "K",
+            ),
+            ("output.opacity.beta", opacity.beta, 0.0, 5.0, ""),
+        ];
+        for (what, v, lo, hi, unit) in ranges {
+            if !(lo..=hi).contains(&v) {
+                let f = crate::table::fmt_f64;
+                return bad(format!(
+                    "{what} is {}{unit}, outside {}{unit} to {}{unit}: give a value in that range",
+                    f(v),
+                    f(lo),
+                    f(hi)
+                ));
+            }
+        }
+        for (what, v) in [
+            ("output.opacity.kappa0_cm2_per_g", opacity.kappa0_cm2_per_g),
+            ("output.opacity.nu0_hz", opacity.nu0_hz),
+        ] {
+            if !pos(v) {
+                return bad(format!(
+                    "{what} is {v}, not positive: give a positive value"
+                ));
+            }
+        }
+    }
     if !pos(spec.pixel_arcsec) {
         return bad(format!(
             "pixel size {} arcsec must be positive",

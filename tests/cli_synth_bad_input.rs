@@ -219,3 +219,15 @@ fn a_good_small_map_is_still_made() {
         "{truth}"
     );
 }
+
+/// Dust emission settings outside nature's range are refused by the option that is wrong,
+/// before the background is made (which would otherwise underflow and blame the background).
+#[test]
+fn emission_settings_out_of_range_are_named() {
+    assert_refused(&["--emission", "1e-30um"], "--emission", "outside 1.0um to");
+    assert_refused(
+        &["--emission", "850um", "--temperature", "1e-30K"],
+        "--temperature",
+        "outside 2.7K to 2000.0K",
+    );
+}
