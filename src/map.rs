@@ -524,12 +524,19 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         )));
     }
     if unit.is_none() && opts.require_unit {
+        let bunit = header.get("BUNIT");
         let why = if unit_text.trim().is_empty() {
-            match unit_source {
-                Source::Header => {
+            match (unit_source, bunit) {
+                (Source::Header, None) => {
                     "has no BUNIT keyword, so cairn cannot tell what its pixels measure".to_string()
                 }
-                Source::Option => "was given an empty --unit".to_string(),
+                (Source::Header, Some(crate::header::Value::Str(_))) => {
+                    "has an empty BUNIT, so cairn cannot tell what its pixels measure".to_string()
+                }
+                (Source::Header, Some(v)) => format!(
+                    "has BUNIT = {v}, which is not a unit's name (BUNIT is text, such as 'MJy/sr')"
+                ),
+                (Source::Option, _) => "was given an empty --unit".to_string(),
             }
         } else {
             format!("has BUNIT '{}', which cairn does not understand", unit_text)

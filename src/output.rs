@@ -211,6 +211,12 @@ impl Outputs {
         let mut out = {
             let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
             let mut created_dir = None;
+            if dir.symlink_metadata().is_ok() && !dir.exists() {
+                return Err(Error::output(
+                    dir,
+                    "is a symbolic link to a folder that does not exist; create its target or choose another output folder with -o.",
+                ));
+            }
             if !dir.exists() {
                 // The highest missing folder, so that a failure removes every level made here.
                 let mut top = dir.to_path_buf();

@@ -452,6 +452,32 @@ fn a_pipe_and_an_area_beyond_counting_are_named() {
     );
 }
 
+/// A BUNIT that is not text, and an output folder that is a link to nowhere, are named for what
+/// they are.
+#[test]
+fn a_bunit_that_is_a_number_and_a_dangling_output_link_are_named() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   =                   42"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("n.fits", &fits_bytes(&cards, &good_pixels(256)));
+    assert_refused(
+        &s,
+        &["segment", "n.fits", "-o", "out"],
+        "n.fits",
+        "has BUNIT = 42, which is not a unit's name",
+    );
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("m.fits", &fits_bytes(&cards, &good_pixels(256)));
+    std::os::unix::fs::symlink(s.dir.path().join("nowhere"), s.dir.path().join("link")).unwrap();
+    assert_refused(
+        &s,
+        &["segment", "m.fits", "-o", "link"],
+        "link",
+        "symbolic link to a folder that does not exist",
+    );
+}
+
 /// Numbers that are not numbers, and option values with no meaning, are refused by name.
 #[test]
 fn meaningless_option_values_are_refused() {

@@ -783,15 +783,25 @@ fn tree_figure_has_one_path_per_structure_and_decodes() {
         png,
         tree_png(&nodes, &states(), "level [K]", &style).unwrap()
     );
-    // A log axis needs positive levels.
-    let mut bad = tree_nodes();
-    bad[0].bottom = 0.0;
+    // A log axis needs positive levels: with a level at zero the axis is linear (the same
+    // figure as a linear stretch gives, but for the note that says so).
+    let mut zero = tree_nodes();
+    zero[0].bottom = 0.0;
     let log = Style {
         stretch: Stretch::Log,
         ..style
     };
-    assert!(tree_png(&bad, &states(), "level", &log).is_err());
-    assert!(tree_png(&nodes, &states(), "level", &log).is_ok());
+    let note = "levels at or below zero: the level axis is linear, not logarithmic";
+    let svg = tree_svg(&zero, &states(), "level", &log).unwrap();
+    assert!(svg.contains(note), "the note is in the figure");
+    let linear = tree_svg(&zero, &states(), "level", &style).unwrap();
+    assert!(!linear.contains(note));
+    assert!(tree_png(&zero, &states(), "level", &log).is_ok());
+    let svg = tree_svg(&nodes, &states(), "level", &log).unwrap();
+    assert!(
+        !svg.contains(note),
+        "positive levels keep the logarithmic axis"
+    );
 }
 
 /// A binary tree of `n` leaves: the Cartesian tree (lowest merge at the root) over random merge

@@ -120,7 +120,6 @@ pub(crate) fn scene(
     }
     let tl = tree_layout(nodes)?;
     let by_id: BTreeMap<u32, &TreeNode> = nodes.iter().map(|n| (n.id, n)).collect();
-    let log = s.stretch == Stretch::Log;
     let lmin = nodes
         .iter()
         .map(|n| n.bottom.min(n.top))
@@ -129,11 +128,10 @@ pub(crate) fn scene(
         .iter()
         .map(|n| n.top.max(n.bottom))
         .fold(f64::NEG_INFINITY, f64::max);
-    if log && lmin <= 0.0 {
-        return Err(RenderError::BadStyle(
-            "a logarithmic level axis needs every level above zero; use a linear stretch".into(),
-        ));
-    }
+    // A logarithmic level axis needs every level above zero; otherwise the axis is linear,
+    // and the figure says so.
+    let log = s.stretch == Stretch::Log && lmin > 0.0;
+    let linear_instead = s.stretch == Stretch::Log && !log;
     let (lo, hi) = if log {
         let r = (lmax / lmin).max(1.0001);
         (lmin / r.powf(0.03), lmax * r.powf(0.03))
@@ -203,6 +201,9 @@ pub(crate) fn scene(
     // Fewer than one figure pixel per leaf: the dense drawing, with a note under the legend.
     let dense = slot < 1.0;
     let mut note: Vec<String> = Vec::new();
+    if linear_instead {
+        note.push("levels at or below zero: the level axis is linear, not logarithmic".into());
+    }
     if dense {
         let (a, b) = (
             format!(
@@ -314,10 +315,6 @@ pub(crate) fn scene(
             };
             sc.path(d, vec![Paint::Stroke(Line::solid(color, 1.0))], &class);
         }
-        for (i, line) in note.iter().enumerate() {
-            let y = legend_top + (rows.len() + i) as f64 * 1.5 * fs + text::cap_height(lfs);
-            sc.text(line, pad, y, lfs, 0.0, 1.0, false, Rgba::BLACK, None);
-        }
     } else {
         // Connectors first, then the vertical lines on top.
         let mut conn = PathData::new();
@@ -385,6 +382,10 @@ pub(crate) fn scene(
                 }
             }
         }
+    }
+    for (i, line) in note.iter().enumerate() {
+        let y = legend_top + (rows.len() + i) as f64 * 1.5 * fs + text::cap_height(lfs);
+        sc.text(line, pad, y, lfs, 0.0, 1.0, false, Rgba::BLACK, None);
     }
 
     // Level axis.
