@@ -389,6 +389,20 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         }
         None => map,
     };
+    // The map as the run segmented it (after any smoothing and regridding) has the size the
+    // record gives.
+    if let (Some(nx), Some(ny)) = (run["map"]["nx"].as_u64(), run["map"]["ny"].as_u64())
+        && (nx as usize, ny as usize) != (map.nx(), map.ny())
+    {
+        return Err(Error::input(
+            &dir.join("run.json"),
+            format!(
+                "records a map of {nx} x {ny} pixels, but the run's map read as the run read it is {} x {}, so the file was changed; {REMAKE}.",
+                map.nx(),
+                map.ny()
+            ),
+        ));
+    }
     let lab_path = dir.join(crate::segment::names::LABELS);
     let labels = map::load(
         &lab_path,

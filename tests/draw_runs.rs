@@ -242,6 +242,8 @@ fn draw_refuses_run_folders_whose_files_do_not_belong_together() {
         "\"major_deg\": -",
     );
     assert_draw_refused(d.path(), &beam, "run.json", "which no map has");
+    let size = edit("bad-size", "run.json", "\"nx\": ", "\"nx\": 1");
+    assert_draw_refused(d.path(), &size, "run.json", "records a map of 1");
     let level = edit(
         "bad-level",
         "hierarchy.json",
