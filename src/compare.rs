@@ -142,8 +142,12 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         return Err(Error::input(
             &csv,
             format!(
-                "holds {} leaves with a positive mass; a population needs at least 3.",
-                p.masses.len()
+                "holds {} with a positive mass; a population needs at least 3.",
+                match p.masses.len() {
+                    0 => "no leaf".to_string(),
+                    1 => "1 leaf".to_string(),
+                    n => format!("{n} leaves"),
+                }
             ),
         ));
     }

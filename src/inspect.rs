@@ -508,7 +508,7 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
         crate::physics::constants::M_H_U
     ));
     if let Some(d) = ctx.distance_m {
-        assumptions.push(format!("distance {} pc", d / PC));
+        assumptions.push(format!("distance {} pc", units::tidy(d / PC)));
     }
     match crate::score::Converter::new(map, ctx) {
         Ok(c) => {

@@ -1001,7 +1001,13 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
         for p in written {
             errln!("wrote {}", p.display());
         }
-        errln!("{} cores injected", map.truth.len());
+        errln!(
+            "{} injected",
+            match map.truth.len() {
+                1 => "1 core".to_string(),
+                n => format!("{n} cores"),
+            }
+        );
     }
     Ok(())
 }

@@ -438,10 +438,13 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         return Err(Error::input(
             path,
             format!(
-                "is truncated: its header promises {}{} bytes of data for HDU {index} but the file ends {} bytes short; re-export or re-download it.",
+                "is truncated: its header promises {}{} bytes of data for HDU {index} but the file ends {} short; re-export or re-download it.",
                 if compressed { "at least " } else { "" },
                 promised,
-                needed.saturating_sub(file_len)
+                match needed.saturating_sub(file_len) {
+                    1 => "1 byte".to_string(),
+                    n => format!("{n} bytes"),
+                }
             ),
         ));
     }

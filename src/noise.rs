@@ -73,11 +73,13 @@ impl std::fmt::Display for NoNoise {
             ),
             NoNoise::Constant(v) => write!(
                 f,
-                "every pixel has the same value ({v}), so the map has no noise to measure"
+                "every pixel has the same value ({:?}), so the map has no noise to measure",
+                *v as f32
             ),
             NoNoise::Quantised(v) => write!(
                 f,
-                "at least half its pixels have the same value ({v}) (a quantised or mostly empty map), so the clipped noise estimate cannot be made"
+                "at least half its pixels have the same value ({:?}) (a quantised or mostly empty map), so the clipped noise estimate cannot be made",
+                *v as f32
             ),
         }
     }

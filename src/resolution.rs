@@ -358,8 +358,8 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
     out.warnings.push(format!(
         "smoothed to a {:.2}\" beam ({} pc at {} pc){}",
         target_deg * 3600.0,
-        resolution_m / crate::physics::constants::PC,
-        distance_m / crate::physics::constants::PC,
+        crate::units::tidy(resolution_m / crate::physics::constants::PC),
+        crate::units::tidy(distance_m / crate::physics::constants::PC),
         if k >= 2 {
             format!(" and regridded by {k} x {k} pixels")
         } else {

@@ -245,6 +245,21 @@ fn normalise_unit(u: &str) -> String {
     s
 }
 
+/// `v` for messages, without the noise of binary fractions: rounded to 10 significant digits,
+/// in plain decimals between 1e-4 and 1e15 and with an exponent beyond (400.00000000000006 as
+/// 400, a 32-bit 3e21 as 3e21).
+pub fn tidy(v: f64) -> String {
+    if !v.is_finite() {
+        return format!("{v}");
+    }
+    let rounded: f64 = format!("{v:.9e}").parse().unwrap_or(v);
+    if rounded == 0.0 || (1e-4..1e15).contains(&rounded.abs()) {
+        format!("{rounded}")
+    } else {
+        crate::table::fmt_f64(rounded)
+    }
+}
+
 /// Parses `text` as a number followed by a unit whose dimension is one of `allowed`.
 ///
 /// `what` names the option or keyword for the error sentence (for example `--beam`).
