@@ -593,6 +593,19 @@ mod tests {
         assert_eq!(times_pixel(""), "pixel");
     }
 
+    /// Numbers in messages: the noise of binary fractions rounded away (common practice: ten
+    /// significant digits are beyond any quantity a user gives).
+    #[test]
+    fn tidy_numbers_drop_binary_fraction_noise() {
+        assert_eq!(tidy(400.00000000000006), "400");
+        assert_eq!(tidy(0.1 + 0.2), "0.3");
+        assert_eq!(tidy(0.05), "0.05");
+        assert_eq!(tidy(3.0e21), "3e21");
+        assert_eq!(tidy(-2.5e-7), "-2.5e-7");
+        assert_eq!(tidy(0.0), "0");
+        assert_eq!(tidy(f64::INFINITY), "inf");
+    }
+
     #[test]
     fn parses_the_quantities_of_the_command_line() {
         let q = parse_quantity("18.2arcsec", &[Angle], "--beam").unwrap();
