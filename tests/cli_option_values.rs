@@ -123,21 +123,9 @@ fn a_line_break_in_the_map_name_keeps_the_catalogue_readable() {
     demo_map(d.path());
     std::fs::rename(d.path().join("col.fits"), d.path().join("a\nb.fits")).unwrap();
     for name in ["one", "two"] {
-        let o = cairn(
-            &[
-                "segment",
-                "a\nb.fits",
-                "-o",
-                name,
-                "--distance",
-                "410pc",
-                "--temperature",
-                "14K",
-                "--no-figure",
-                "-q",
-            ],
-            d.path(),
-        );
+        let mut args = vec!["segment", "a\nb.fits", "-o", name];
+        args.extend_from_slice(&cli::DEMO_RUN);
+        let o = cairn(&args, d.path());
         assert_eq!(o.code, 0, "{}", o.stderr);
     }
     let csv = std::fs::read_to_string(d.path().join("one/structures.csv")).unwrap();
@@ -436,16 +424,8 @@ fn auxiliary_maps_are_read_in_their_own_units() {
     write("sigma.fits", 200.0, "m/s");
     write("noise.fits", 2.0e24, "m-2");
     write("temp.fits", 14.0, "cm-2");
-    let base = [
-        "segment",
-        "col.fits",
-        "--distance",
-        "410pc",
-        "--temperature",
-        "14K",
-        "--no-figure",
-        "-q",
-    ];
+    let mut base = vec!["segment", "col.fits"];
+    base.extend_from_slice(&cli::DEMO_RUN);
     let column = |run: &str, col: &str| -> Vec<f64> {
         let text = std::fs::read_to_string(d.path().join(run).join("structures.csv")).unwrap();
         let mut lines = text.lines().filter(|l| !l.starts_with('#'));
@@ -460,7 +440,7 @@ fn auxiliary_maps_are_read_in_their_own_units() {
             .collect()
     };
     let run = |name: &str, extra: &[&str]| {
-        let mut args = base.to_vec();
+        let mut args = base.clone();
         args.extend(["-o", name]);
         args.extend_from_slice(extra);
         let o = cairn(&args, d.path());
@@ -478,7 +458,7 @@ fn auxiliary_maps_are_read_in_their_own_units() {
             assert!((x - y).abs() <= 1e-6 * x.abs(), "{col}: {x} {y}");
         }
     }
-    let mut args = base.to_vec();
+    let mut args = base.clone();
     args.extend(["-o", "bad", "--temperature-map", "temp.fits"]);
     args.retain(|a| *a != "--temperature" && *a != "14K");
     refused(

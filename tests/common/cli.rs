@@ -94,23 +94,24 @@ pub fn check_refused(o: &Outcome, args: &[&str], names: &str, says: &str) {
     );
 }
 
+/// The options of the demo runs: the demo cloud's invented distance and temperature, so the
+/// catalogue has masses and states, and no figures.
+pub const DEMO_RUN: [&str; 6] = [
+    "--distance",
+    "410pc",
+    "--temperature",
+    "14K",
+    "--no-figure",
+    "-q",
+];
+
 /// A finished run of the column-density demo map with states (distance and temperature given)
 /// and no figures, in `dir/name`, made with the extra `args`.
 pub fn demo_run(dir: &Path, name: &str, args: &[&str]) -> std::path::PathBuf {
     let map =
         std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
-    let mut all = vec![
-        "segment",
-        map.to_str().unwrap(),
-        "-o",
-        name,
-        "--distance",
-        "410pc",
-        "--temperature",
-        "14K",
-        "--no-figure",
-        "-q",
-    ];
+    let mut all = vec!["segment", map.to_str().unwrap(), "-o", name];
+    all.extend_from_slice(&DEMO_RUN);
     all.extend_from_slice(args);
     let o = cairn_limited(&all, dir, 2_000_000);
     assert_eq!(o.code, 0, "{}", o.stderr);
