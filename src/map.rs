@@ -1194,13 +1194,26 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
 /// The wavelength from RESTFRQ/RESTFREQ/FREQ/OBSFREQ (Hz) or WAVELEN/WAVELNTH (unit in the
 /// comment), for [`wavelength_from_header`].
 fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
+    // A keyword present with a value that is no frequency or wavelength is said, not dropped
+    // without a word.
+    let odd = |warnings: &mut Vec<String>, key: &str, v: Option<f64>| {
+        if let Some(v) = v
+            && !(v.is_finite() && v > 0.0)
+        {
+            warnings.push(format!(
+                "{key} = {v} is not a positive number, so it is not used as the wavelength"
+            ));
+        }
+    };
     for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
-        if let Some(f) = h.get_f64(key).filter(|f| *f > 0.0) {
+        odd(warnings, key, h.get_f64(key));
+        if let Some(f) = h.get_f64(key).filter(|f| f.is_finite() && *f > 0.0) {
             return Some(units::C_LIGHT / f);
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {
-        let Some(v) = h.get_f64(key).filter(|v| *v > 0.0) else {
+        odd(warnings, key, h.get_f64(key));
+        let Some(v) = h.get_f64(key).filter(|v| v.is_finite() && *v > 0.0) else {
             continue;
         };
         let comment = h
@@ -1284,6 +1297,19 @@ mod tests {
         let h = Header::parse(&format!("{:<80}", "WAVELEN =                 0.5"));
         assert!(wavelength_from_header(&h, &mut w).is_none());
         assert_eq!(w.len(), 1);
+        // A negative or zero value is said, not dropped without a word.
+        for card in [
+            "WAVELEN =               -850.0 / [um]",
+            "RESTFRQ =                  0.0",
+        ] {
+            let mut w = Vec::new();
+            let h = Header::parse(&format!("{card:<80}"));
+            assert!(wavelength_from_header(&h, &mut w).is_none());
+            assert!(
+                w.len() == 1 && w[0].contains("not a positive number"),
+                "{w:?}"
+            );
+        }
         // A spectral axis in a unit cairn does not read gives no wavelength, and says so
         // (rather than reading the number as Hz).
         let h = Header::parse(
