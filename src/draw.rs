@@ -419,9 +419,20 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
                 e.message.trim_end_matches('.')
             ),
         )
-    })?
-    .data
-    .mapv(|v| if v.is_finite() { v as i32 } else { -1 });
+    })?;
+    // cairn writes 32-bit integer labels; other data were written by something else.
+    if labels.bitpix != 32 {
+        return Err(Error::input(
+            &lab_path,
+            format!(
+                "holds BITPIX = {} data, not the 32-bit integer labels cairn writes, so the file was replaced; {REMAKE}.",
+                labels.bitpix
+            ),
+        ));
+    }
+    let labels = labels
+        .data
+        .mapv(|v| if v.is_finite() { v as i32 } else { -1 });
     if labels.dim() != map.data.dim() {
         return Err(Error::input(
             &lab_path,

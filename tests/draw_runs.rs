@@ -242,6 +242,25 @@ fn draw_refuses_run_folders_whose_files_do_not_belong_together() {
         "\"major_deg\": -",
     );
     assert_draw_refused(d.path(), &beam, "run.json", "which no map has");
+    // The label map saved again as 32-bit floats (fractional labels would be truncated).
+    let floats = copy_run(&good, d.path(), "float-labels");
+    let lab = cairn::map::load(
+        &floats.join("labels.fits"),
+        &cairn::map::LoadOptions {
+            require_unit: false,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    std::fs::remove_file(floats.join("labels.fits")).unwrap();
+    cairn::fits_write::write_image_f32(
+        &floats.join("labels.fits"),
+        lab.data.view(),
+        &lab.header,
+        true,
+    )
+    .unwrap();
+    assert_draw_refused(d.path(), &floats, "labels.fits", "BITPIX = -32");
     let size = edit("bad-size", "run.json", "\"nx\": ", "\"nx\": 1");
     assert_draw_refused(d.path(), &size, "run.json", "records a map of 1");
     let level = edit(
