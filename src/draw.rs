@@ -136,10 +136,11 @@ fn shown_centre(
     (c, deg)
 }
 
-/// The beam in pixels at the centre of the shown part: (major, minor, PA east of north).
+/// The beam in pixels at the centre of the shown part: (major, minor, PA east of north); none
+/// where the pixel scale cannot be measured there (a centre off the sky of its projection).
 pub fn beam_px(map: &Map, region: Option<(usize, usize, usize, usize)>) -> Option<(f64, f64, f64)> {
     let (_, p) = shown_centre(map, region);
-    let (b, p) = (map.beam?, p?);
+    let (b, p) = (map.beam?, p.filter(|p| p.is_finite() && *p > 0.0)?);
     Some((b.major_deg / p, b.minor_deg / p, b.pa_deg))
 }
 
@@ -151,7 +152,7 @@ pub fn scale_bar(
     region: Option<(usize, usize, usize, usize)>,
 ) -> Option<(f64, String)> {
     let (_, p) = shown_centre(map, region);
-    let (d, p) = (distance_pc?, p?);
+    let (d, p) = (distance_pc?, p.filter(|p| p.is_finite() && *p > 0.0)?);
     let pc_per_px = d * p.to_radians();
     let shown_width_px = region.map(|r| r.2).unwrap_or(map.nx()) as f64;
     let len = scale_bar_length(shown_width_px * pc_per_px);
