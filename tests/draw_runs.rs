@@ -43,6 +43,29 @@ fn write_map(dir: &Path, name: &str, nx: usize, ny: usize) -> PathBuf {
     p
 }
 
+/// A `n` x `n` map in the SIN projection whose corners lie beyond the sky's edge (4 degrees per
+/// pixel: the projection covers 57.3 degrees about its centre), with the bumps of `write_map`.
+fn write_sin_map(dir: &Path, name: &str, n: usize) -> PathBuf {
+    let p = write_map(dir, name, n, n);
+    let m = cairn::map::load(&p, &Default::default()).unwrap();
+    let mut h = m.header.clone();
+    for (k, v) in [
+        ("CTYPE1", Value::Str("RA---SIN".into())),
+        ("CTYPE2", Value::Str("DEC--SIN".into())),
+        ("CRVAL2", Value::Float(0.0)),
+        ("CDELT1", Value::Float(-4.0)),
+        ("CDELT2", Value::Float(4.0)),
+        ("BMAJ", Value::Float(8.0)),
+        ("BMIN", Value::Float(8.0)),
+        ("BPA", Value::Float(0.0)),
+    ] {
+        h.set(k, v, "");
+    }
+    std::fs::remove_file(&p).unwrap();
+    cairn::fits_write::write_image_f32(&p, m.data.view(), &h, false).unwrap();
+    p
+}
+
 /// Width and height of a PNG file.
 fn png_size(p: &Path) -> (u32, u32) {
     let img = image::load_from_memory(&std::fs::read(p).unwrap()).unwrap();
@@ -90,6 +113,36 @@ fn a_figure_beyond_the_bound_is_refused_and_leaves_nothing() {
         !d.path().join("figs").exists(),
         "{:?}",
         cli::listing(d.path())
+    );
+}
+
+/// A region of the figure centred off the sky of its projection is drawn without a beam or a
+/// scale bar, whose size in pixels cannot be measured there, rather than failing the run.
+#[test]
+fn a_region_off_the_sky_is_drawn_without_a_beam() {
+    let d = tempfile::tempdir().unwrap();
+    write_sin_map(d.path(), "sin.fits", 40);
+    let args = [
+        "segment",
+        "sin.fits",
+        "-o",
+        "run",
+        "--min-area",
+        "2px",
+        "--region",
+        "3,3,6px",
+        "-q",
+    ];
+    let o = cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let svg = std::fs::read_to_string(d.path().join("run/overlay.svg")).unwrap();
+    assert!(!svg.contains("class=\"beam\""), "no beam drawn");
+    let whole = cairn(&["draw", "run", "-o", "whole", "-q"], d.path());
+    assert_eq!(whole.code, 0, "{}", whole.stderr);
+    let svg = std::fs::read_to_string(d.path().join("whole/overlay.svg")).unwrap();
+    assert!(
+        svg.contains("class=\"beam\""),
+        "the beam at the map's centre"
     );
 }
 
