@@ -43,16 +43,15 @@ pub struct Population {
     pub run: serde_json::Value,
 }
 
-fn read_csv(path: &Path) -> Result<(Vec<String>, Vec<Vec<String>>)> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
+fn read_text(path: &Path) -> Result<String> {
+    std::fs::read_to_string(path).map_err(|e| {
         Error::input(
             path,
             format!(
                 "cannot be read ({e}); give a run folder or a catalogue written by cairn segment."
             ),
         )
-    })?;
-    crate::table::read_catalogue_csv(path, &text)
+    })
 }
 
 /// Reads a population from a run folder or a catalogue file. `mass_column` chooses the mass
@@ -69,7 +68,8 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
             path.with_file_name(crate::segment::names::RUN),
         )
     };
-    let (header, rows) = read_csv(&csv)?;
+    let catalogue = read_text(&csv)?;
+    let (header, rows) = crate::table::read_catalogue_csv(&csv, &catalogue)?;
     let col = |name: &str| header.iter().position(|h| h == name);
     let (Some(kind), Some(mass), Some(radius)) = (col("kind"), col(mass_column), col("radius_pc"))
     else {
@@ -152,7 +152,7 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         ));
     }
     if let Ok(text) = std::fs::read_to_string(&run_path) {
-        p.run = matching_run(&csv, &run_path, &text)?;
+        p.run = matching_run(&csv, &catalogue, &run_path, &text)?;
     }
     Ok(p)
 }
@@ -160,12 +160,18 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
 /// What to do about a run record that does not belong to its catalogue.
 const REMAKE: &str = "keep each catalogue beside its own run.json, or re-run cairn segment with --force to remake the run";
 
-/// The run record `text` (read from `run_path`, beside the catalogue `csv`), once it is known
+/// The run record `text` (read from `run_path`, beside the catalogue `csv` whose text is
+/// `catalogue`), once it is known
 /// to be a run record of the run that wrote the catalogue: its input's SHA-256 and its
 /// thresholds equal the ones in the catalogue's commented header. The comparison's fairness
 /// checks read the thresholds and the beam from the record, so a record of another run would
 /// judge the wrong thresholds.
-fn matching_run(csv: &Path, run_path: &Path, text: &str) -> Result<serde_json::Value> {
+fn matching_run(
+    csv: &Path,
+    catalogue: &str,
+    run_path: &Path,
+    text: &str,
+) -> Result<serde_json::Value> {
     let run: serde_json::Value = serde_json::from_str(text).map_err(|e| {
         Error::input(
             run_path,
@@ -182,8 +188,7 @@ fn matching_run(csv: &Path, run_path: &Path, text: &str) -> Result<serde_json::V
             ),
         ));
     }
-    let catalogue = std::fs::read_to_string(csv).unwrap_or_default();
-    let said = header_parameters(&catalogue);
+    let said = header_parameters(catalogue);
     let checks: [(&str, &[&str]); 4] = [
         ("input_sha256", &["input", "sha256"]),
         ("floor", &["parameters", "floor", "value"]),
@@ -1271,11 +1276,7 @@ mod tests {
     /// round trips reads one unit in the last place off (seen on a run of the demo map).
     #[test]
     fn a_run_record_matches_its_catalogue_to_the_last_bit() {
-        let dir = tempfile::tempdir().unwrap();
-        let (csv, run) = (
-            dir.path().join("structures.csv"),
-            dir.path().join("run.json"),
-        );
+        let (csv, run) = (Path::new("structures.csv"), Path::new("run.json"));
         for v in [
             4.580_954_062_536_883_6e20,
             0.1 + 0.2,
@@ -1283,22 +1284,18 @@ mod tests {
             3.2e21,
             -7.25,
         ] {
-            std::fs::write(
-                &csv,
-                format!(
-                    "# parameter input_sha256 = abc  (SHA-256 of the input file)\n# parameter prominence = {}  (map units (given as 3sigma))\nid,kind\n",
-                    crate::table::fmt_f64(v)
-                ),
-            )
-            .unwrap();
+            let catalogue = format!(
+                "# parameter input_sha256 = abc  (SHA-256 of the input file)\n# parameter prominence = {}  (map units (given as 3sigma))\nid,kind\n",
+                crate::table::fmt_f64(v)
+            );
             let text = serde_json::to_string(&serde_json::json!({
                 "input": { "sha256": "abc" },
                 "parameters": { "prominence": { "value": v } },
             }))
             .unwrap();
-            assert!(matching_run(&csv, &run, &text).is_ok(), "{v:e}");
+            assert!(matching_run(csv, &catalogue, run, &text).is_ok(), "{v:e}");
             let other = text.replace("abc", "abd");
-            let e = matching_run(&csv, &run, &other).unwrap_err();
+            let e = matching_run(csv, &catalogue, run, &other).unwrap_err();
             assert!(e.to_string().contains("different runs"), "{e}");
         }
     }

@@ -308,27 +308,6 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
             ),
         ));
     }
-    // A beam in the record must be one a map can have (the file was edited otherwise).
-    for key in ["beam", "common_resolution"] {
-        let b = if key == "beam" {
-            &run["beam"]
-        } else {
-            &run["common_resolution"]["input_beam"]
-        };
-        if let Some(b) = b.as_object() {
-            let g = |k: &str| b.get(k).and_then(|v| v.as_f64());
-            if let (Some(a), Some(m)) = (g("major_deg"), g("minor_deg"))
-                && !(a.is_finite() && m.is_finite() && 0.0 < m && m <= a)
-            {
-                return Err(Error::input(
-                    &dir.join("run.json"),
-                    format!(
-                        "records a beam of {a} x {m} degrees, which no map has, so the file was changed; {REMAKE}."
-                    ),
-                ));
-            }
-        }
-    }
     let mut opts = LoadOptions {
         require_unit: false,
         ..LoadOptions::default()
@@ -356,6 +335,15 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
     if let Some(b) = beam_record.as_object() {
         let g = |k: &str| b.get(k).and_then(|v| v.as_f64());
         if let (Some(a), Some(m), Some(p)) = (g("major_deg"), g("minor_deg"), g("pa_deg")) {
+            // A beam a map can have (the file was edited otherwise).
+            if !(a.is_finite() && m.is_finite() && 0.0 < m && m <= a) {
+                return Err(Error::input(
+                    &dir.join("run.json"),
+                    format!(
+                        "records a beam of {a} x {m} degrees, which no map has, so the file was changed; {REMAKE}."
+                    ),
+                ));
+            }
             opts.beam = Some(map::Beam {
                 major_deg: a,
                 minor_deg: m,

@@ -1206,14 +1206,16 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
         }
     };
     for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
-        odd(warnings, key, h.get_f64(key));
-        if let Some(f) = h.get_f64(key).filter(|f| f.is_finite() && *f > 0.0) {
+        let f = h.get_f64(key);
+        odd(warnings, key, f);
+        if let Some(f) = f.filter(|f| f.is_finite() && *f > 0.0) {
             return Some(units::C_LIGHT / f);
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {
-        odd(warnings, key, h.get_f64(key));
-        let Some(v) = h.get_f64(key).filter(|v| v.is_finite() && *v > 0.0) else {
+        let v = h.get_f64(key);
+        odd(warnings, key, v);
+        let Some(v) = v.filter(|v| v.is_finite() && *v > 0.0) else {
             continue;
         };
         let comment = h

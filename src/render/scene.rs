@@ -283,17 +283,15 @@ impl Scene {
         let mut pm = sk::Pixmap::from_vec(zeroed(4)?, size)
             .ok_or_else(|| RenderError::Encode("figure size is too large".into()))?;
         pm.fill(sk::Color::WHITE);
-        let mask_bytes = match self.clip {
-            Some(_) => Some(zeroed(1)?),
+        let mask = match self.clip {
             None => None,
+            Some((x, y, w, h)) => sk::Mask::from_vec(zeroed(1)?, size).and_then(|mut m| {
+                let r = sk::Rect::from_xywh(x as f32, y as f32, w as f32, h as f32)?;
+                let p = sk::PathBuilder::from_rect(r);
+                m.fill_path(&p, sk::FillRule::Winding, false, sk::Transform::identity());
+                Some(m)
+            }),
         };
-        let mask = self.clip.zip(mask_bytes).and_then(|((x, y, w, h), bytes)| {
-            let mut m = sk::Mask::from_vec(bytes, size)?;
-            let r = sk::Rect::from_xywh(x as f32, y as f32, w as f32, h as f32)?;
-            let p = sk::PathBuilder::from_rect(r);
-            m.fill_path(&p, sk::FillRule::Winding, false, sk::Transform::identity());
-            Some(m)
-        });
         let by_id: std::collections::BTreeMap<&str, &PathData> = self
             .items
             .iter()
