@@ -312,6 +312,19 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         require_unit: false,
         ..LoadOptions::default()
     };
+    // The HDU and plane the run read: a record that holds something else there than a
+    // whole number (or null for no plane) was edited, and a guess could draw another image.
+    for key in ["hdu", "plane"] {
+        let v = &run["input"][key];
+        if !(v.is_null() || v.is_u64()) {
+            return Err(Error::input(
+                &dir.join("run.json"),
+                format!(
+                    "records the input's {key} as {v}, which is not a zero-based index, so the file was changed; {REMAKE}."
+                ),
+            ));
+        }
+    }
     if let Some(h) = run["input"]["hdu"].as_u64() {
         opts.hdu = map::HduChoice::Index(h as usize);
     }

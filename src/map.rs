@@ -386,12 +386,22 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     // SAFETY: cpath is a valid C string; ptr receives a new handle on success.
     unsafe { sys::ffdkopn(&mut ptr, cpath.as_ptr(), 0, &mut status) };
     if status != 0 || ptr.is_null() {
+        // CFITSIO decompresses a gzip-compressed file in memory as it opens it, so a stream
+        // that expands beyond the memory the process may take fails here as a damaged one
+        // does, with the same status.
         return Err(Error::input(
             path,
-            format!(
-                "is truncated or its header is damaged (CFITSIO: {}); re-export or re-download the file.",
-                cfitsio_text(status)
-            ),
+            if gzipped {
+                format!(
+                    "is gzip-compressed and could not be opened (CFITSIO: {}): it is damaged, or it expands to more than the memory this process may take, as it is decompressed in memory; decompress it (gunzip) and give the .fits file, or re-download it.",
+                    cfitsio_text(status)
+                )
+            } else {
+                format!(
+                    "is truncated or its header is damaged (CFITSIO: {}); re-export or re-download the file.",
+                    cfitsio_text(status)
+                )
+            },
         ));
     }
     let fits = FitsHandle { ptr };
@@ -589,6 +599,16 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
             },
         )
     })?;
+    // An equatorial frame FITS does not define (Paper II sec. 3.1 lists ICRS, FK5, FK4,
+    // FK4-NO-E and GAPPT), such as the common slip RADESYS = 'J2000': kept as read, said.
+    if let Some(crate::wcs::SkyFrame::Other(f)) = wcs.as_ref().map(|w| w.frame())
+        && let Some(sys) = f.strip_prefix("RA/")
+        && !matches!(sys, "FK4-NO-E" | "GAPPT")
+    {
+        warnings.push(format!(
+            "RADESYS = '{sys}' is not a reference system FITS defines (ICRS, FK5, FK4, FK4-NO-E or GAPPT): positions are given as read, in the map's own frame, and not converted to any other; correct RADESYS if the map is in one of those"
+        ));
+    }
     if wcs.is_none() {
         warnings.push("the map has no celestial WCS: positions and sizes are in pixels, and anything that needs sky units will say so".to_string());
     }

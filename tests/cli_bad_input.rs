@@ -5,7 +5,7 @@
 #[path = "common/cli.rs"]
 mod cli;
 
-use cli::{cairn, check_refused};
+use cli::{cairn, cairn_limited, check_refused};
 use std::path::PathBuf;
 
 /// A FITS file from header cards and big-endian f32 pixels.
@@ -128,6 +128,54 @@ fn truncated_files() {
         "cut_header.fits",
         "truncated",
     );
+    // A gzip-compressed file cut in half: CFITSIO decompresses it in memory as it opens it,
+    // and fails there as it does for a stream too large for the memory allowed, so the
+    // sentence names both causes and the remedy.
+    let gz = std::fs::read(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/fits/gzipped.fits.gz"),
+    )
+    .unwrap();
+    s.write("cut.fits.gz", &gz[..gz.len() / 2]);
+    assert_refused(
+        &s,
+        &["inspect", "cut.fits.gz"],
+        "cut.fits.gz",
+        "is gzip-compressed and could not be opened",
+    );
+    let o = cairn(&["inspect", "cut.fits.gz"], s.dir.path());
+    assert!(
+        o.stderr.contains("decompress it (gunzip)"),
+        "the remedy is named"
+    );
+}
+
+/// A gzip-compressed map that expands beyond the memory the process may take (512 MB of
+/// zeros in a 0.5 MB file, under a 400 MB address-space limit) gets the same sentence, not a
+/// crash: CFITSIO cannot tell the two causes apart as it opens the file.
+#[test]
+fn gzip_expanding_beyond_the_memory_allowed() {
+    use std::io::Write as _;
+    let s = Scratch::new();
+    let (nx, ny) = (8192usize, 16384usize);
+    let header = fits_bytes(&image_cards(nx, ny, &[]), &[]);
+    let mut gz = flate2::write::GzEncoder::new(Vec::new(), flate2::Compression::fast());
+    gz.write_all(&header).unwrap();
+    let row = vec![0u8; nx * 4];
+    for _ in 0..ny {
+        gz.write_all(&row).unwrap();
+    }
+    s.write("huge.fits.gz", &gz.finish().unwrap());
+    let before = s.listing();
+    let args = ["inspect", "huge.fits.gz"];
+    let o = cairn_limited(&args, s.dir.path(), 400_000);
+    check_refused(
+        &o,
+        &args,
+        "huge.fits.gz",
+        "is gzip-compressed and could not be opened",
+    );
+    assert!(o.stderr.contains("more than the memory this process may take"));
+    assert_eq!(s.listing(), before, "nothing written");
 }
 
 #[test]
@@ -539,4 +587,31 @@ fn latin1_bytes_in_a_header_shift_nothing() {
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(o.stdout.contains("MJy/sr"), "{}", o.stdout);
     assert!(o.stdout.contains("ICRS"), "{}", o.stdout);
+}
+
+/// RADESYS = 'J2000' (a common slip for FK5 with EQUINOX = 2000) is no reference system of
+/// the FITS WCS (Calabretta & Greisen 2002, A&A 395, 1077, sec. 3.1): the map is read, its
+/// positions kept in its own frame, and a warning says so; a system FITS defines gets none.
+#[test]
+fn a_reference_system_fits_does_not_define_is_named() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'", "RADESYS = 'J2000'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("slip.fits", &fits_bytes(&cards, &good_pixels(256)));
+    let o = cairn(&["inspect", "slip.fits"], s.dir.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // inspect lists its warnings with its report.
+    assert!(
+        o.stdout
+            .contains("warning: RADESYS = 'J2000' is not a reference system FITS defines"),
+        "{}",
+        o.stdout
+    );
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'", "RADESYS = 'FK4-NO-E'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("fk4.fits", &fits_bytes(&cards, &good_pixels(256)));
+    let o = cairn(&["inspect", "fk4.fits"], s.dir.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stdout.contains("sky frame       RA/FK4-NO-E"), "{}", o.stdout);
+    assert!(!o.stdout.contains("RADESYS"), "{}", o.stdout);
 }

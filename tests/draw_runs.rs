@@ -295,6 +295,8 @@ fn draw_refuses_run_folders_whose_files_do_not_belong_together() {
         "\"major_deg\": -",
     );
     assert_draw_refused(d.path(), &beam, "run.json", "which no map has");
+    let hdu = edit("bad-hdu", "run.json", "\"hdu\": 0", "\"hdu\": \"first\"");
+    assert_draw_refused(d.path(), &hdu, "run.json", "is not a zero-based index");
     // The label map saved again as 32-bit floats (fractional labels would be truncated).
     let floats = copy_run(&good, d.path(), "float-labels");
     let lab = cairn::map::load(
