@@ -174,7 +174,10 @@ fn gzip_expanding_beyond_the_memory_allowed() {
         "huge.fits.gz",
         "is gzip-compressed and could not be opened",
     );
-    assert!(o.stderr.contains("more than the memory this process may take"));
+    assert!(
+        o.stderr
+            .contains("more than the memory this process may take")
+    );
     assert_eq!(s.listing(), before, "nothing written");
 }
 
@@ -612,6 +615,10 @@ fn a_reference_system_fits_does_not_define_is_named() {
     s.write("fk4.fits", &fits_bytes(&cards, &good_pixels(256)));
     let o = cairn(&["inspect", "fk4.fits"], s.dir.path());
     assert_eq!(o.code, 0, "{}", o.stderr);
-    assert!(o.stdout.contains("sky frame       RA/FK4-NO-E"), "{}", o.stdout);
+    assert!(
+        o.stdout.contains("sky frame       RA/FK4-NO-E"),
+        "{}",
+        o.stdout
+    );
     assert!(!o.stdout.contains("RADESYS"), "{}", o.stdout);
 }
