@@ -5,8 +5,10 @@
 //! of a FITS `BUNIT` string into the kind of quantity a map holds (column density, extinction,
 //! surface brightness, flux density per beam or per pixel). Unit strings follow the FITS
 //! Standard, Definition of the Flexible Image Transport System (FITS), version 4.0 (IAU FITS
-//! Working Group, 2016; document of 2018 August 13), section 4.3 and table 28 on prefixes and
-//! units, with the common spellings found in archive headers (`cm^-2`, `MJy sr-1`, `JY/BEAM`).
+//! Working Group, 2016; document of 2018 August 13), section 4.3 on units and their prefixes
+//! (the prefix table is Table 4.3 of version 3.0, Pence et al. 2010, A&A 524, A42, whose
+//! section 4.3 version 4.0 keeps), with the common spellings found in archive headers
+//! (`cm^-2`, `MJy sr-1`, `JY/BEAM`).
 //!
 //! Conventions: an all-upper-case `BUNIT` such as `MJY/SR` is read case-insensitively, with
 //! `M` as mega (common practice for headers written by older software); `mJy` is recognised
