@@ -321,27 +321,12 @@ fn parse_rings(d: &str) -> Vec<Vec<(f64, f64)>> {
     rings
 }
 
-#[test]
-fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
-    let l = tricky_labels();
-    let map = smooth_map(6, 10);
-    let o = Overlay {
-        unit_label: "N(H_2) [cm^-2]".into(),
-        beam: Some((2.0, 1.5, 40.0)),
-        scale_bar: Some((3.0, "0.1 pc".into())),
-        title: Some("Test".into()),
-        ..plain_overlay(&map, &l, leaves_of(&l))
-    };
-    let style = Style {
-        width_px: 900,
-        dpi: 150.0,
-        ..Style::default()
-    };
-    let svg = render_svg(&o, &style).unwrap();
+/// The leaf paths of an overlay's SVG, in map pixels: (leaf id, its rings).
+fn drawn_leaf_rings(o: &Overlay, style: &Style) -> Vec<(i32, Vec<cairn::render::Ring>)> {
+    let svg = render_svg(o, style).unwrap();
     let doc = roxmltree::Document::parse(&svg).expect("the SVG is well-formed XML");
-    let lay = overlay_layout(&o, &style).unwrap();
-    let traced = trace_outlines(l.view(), (0.0, 0.0));
-    let mut seen = BTreeMap::new();
+    let lay = overlay_layout(o, style).unwrap();
+    let mut out = Vec::new();
     for n in doc.descendants().filter(|n| n.has_tag_name("path")) {
         let class = n.attribute("class").unwrap_or("");
         if !class.split_whitespace().any(|c| c == "leaf") {
@@ -353,9 +338,7 @@ fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
             .expect("leaf paths are named leaf-ID")
             .parse()
             .unwrap();
-        *seen.entry(id).or_insert(0) += 1;
-        // The drawn path, taken back to map pixels, lies on the traced boundary corners.
-        let rings: Vec<Vec<(f64, f64)>> = parse_rings(n.attribute("d").unwrap())
+        let rings: Vec<cairn::render::Ring> = parse_rings(n.attribute("d").unwrap())
             .into_iter()
             .map(|r| {
                 r.into_iter()
@@ -363,12 +346,92 @@ fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
                     .collect()
             })
             .collect();
+        out.push((id, rings));
+    }
+    out
+}
+
+#[test]
+fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    let o = Overlay {
+        unit_label: "N(H_2) [cm^-2]".into(),
+        beam: None,
+        scale_bar: Some((3.0, "0.1 pc".into())),
+        title: Some("Test".into()),
+        ..plain_overlay(&map, &l, leaves_of(&l))
+    };
+    let style = Style {
+        width_px: 900,
+        dpi: 150.0,
+        ..Style::default()
+    };
+    let lay = overlay_layout(&o, &style).unwrap();
+    let traced = trace_outlines(l.view(), (0.0, 0.0));
+    let mut seen = BTreeMap::new();
+    for (id, rings) in drawn_leaf_rings(&o, &style) {
+        *seen.entry(id).or_insert(0) += 1;
+        // The drawn path, taken back to map pixels, lies on the traced boundary corners.
         let tol = 2.0 * 0.006 / lay.kx.min(lay.ky);
         check_rings(&l, id, &rings, tol);
         assert_eq!(rings.len(), traced[&id].len());
     }
     let expected: BTreeMap<i32, i32> = traced.keys().map(|&k| (k, 1)).collect();
     assert_eq!(seen, expected, "exactly one outline path per leaf");
+}
+
+/// With a beam, a footprint's holes and separate pieces enclosing less than one beam area
+/// (pi / (4 ln 2) FWHM_major FWHM_minor, common practice for a Gaussian beam) are not
+/// outlined, except its largest ring: the 3-pixel hole of leaf 1, the second 3-pixel part
+/// of leaf 3 and the second pixel of leaf 4 go under a 2 x 1.5 pixel beam (3.40 pixels);
+/// under a 1.5 x 1 pixel beam (1.70 pixels) only leaf 4's single pixel does.
+#[test]
+fn rings_smaller_than_the_beam_are_not_outlined_but_each_footprints_largest_is() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    let style = Style {
+        width_px: 900,
+        dpi: 150.0,
+        ..Style::default()
+    };
+    let traced = trace_outlines(l.view(), (0.0, 0.0));
+    for (beam, counts) in [
+        ((2.0, 1.5, 40.0), [(1, 1), (2, 1), (3, 1), (4, 1)]),
+        ((1.5, 1.0, 40.0), [(1, 2), (2, 1), (3, 2), (4, 1)]),
+    ] {
+        let o = Overlay {
+            beam: Some(beam),
+            ..plain_overlay(&map, &l, leaves_of(&l))
+        };
+        let lay = overlay_layout(&o, &style).unwrap();
+        let tol = 2.0 * 0.006 / lay.kx.min(lay.ky);
+        let beam_px = std::f64::consts::PI / (4.0 * std::f64::consts::LN_2) * beam.0 * beam.1;
+        let drawn = drawn_leaf_rings(&o, &style);
+        let got: Vec<(i32, usize)> = drawn.iter().map(|(id, r)| (*id, r.len())).collect();
+        let mut got = got;
+        got.sort();
+        assert_eq!(got, counts.to_vec(), "beam {beam:?}");
+        for (id, rings) in &drawn {
+            for ring in rings {
+                // Each drawn ring is one of the traced rings, at least a beam in area unless
+                // it is the footprint's only one drawn.
+                let twin = traced[id].iter().find(|t| {
+                    t.len() == ring.len()
+                        && t.iter().all(|&(x, y)| {
+                            ring.iter()
+                                .any(|&(a, b)| (a - x).abs() <= tol && (b - y).abs() <= tol)
+                        })
+                });
+                let twin =
+                    twin.unwrap_or_else(|| panic!("leaf {id}: a drawn ring is no traced ring"));
+                assert!(
+                    rings.len() == 1 || cairn::render::ring_area(twin).abs() >= beam_px,
+                    "leaf {id}: a ring under a beam's area is drawn beside another"
+                );
+            }
+        }
+    }
 }
 
 /// Branch outlines traced through a relabelling of the leaf label map (`branch_of`, what

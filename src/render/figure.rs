@@ -531,6 +531,14 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     // traced staircase is finer than the figure can show and would only make the files large
     // and slow to draw. The corners kept are still exact pixel corners.
     let coarse = lay.kx < 1.0 || lay.ky < 1.0;
+    // Holes and separate pieces of a footprint (rings other than its largest) that enclose
+    // less than one beam area are not outlined either: detail finer than the beam is noise
+    // at the footprint's edge (pixels just below or above its merge level), and drawn it
+    // hides the footprint's shape under many small rings. The label map keeps every pixel.
+    let beam_px = o
+        .beam
+        .map(|(maj, min, _)| std::f64::consts::PI / (4.0 * std::f64::consts::LN_2) * maj * min)
+        .filter(|a| a.is_finite() && *a > 0.0);
     let to_path = |rings: &[Vec<(f64, f64)>]| {
         let mut d = PathData::new();
         let extent = |r: &[(f64, f64)]| {
@@ -541,13 +549,13 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             (x1 - x0).max(y1 - y0)
         };
         // The footprint's largest ring (the first of equal ones), which is always drawn.
-        let largest = if coarse {
-            let areas: Vec<f64> = rings.iter().map(|r| ring_area(r).abs()).collect();
-            (0..areas.len()).fold(0, |best, i| if areas[i] > areas[best] { i } else { best })
-        } else {
-            0
-        };
+        let areas: Vec<f64> = rings.iter().map(|r| ring_area(r).abs()).collect();
+        let largest =
+            (0..areas.len()).fold(0, |best, i| if areas[i] > areas[best] { i } else { best });
         for (k, r) in rings.iter().enumerate() {
+            if k != largest && beam_px.is_some_and(|b| areas[k] < b) {
+                continue;
+            }
             let pts: Vec<(f64, f64)> = r.iter().map(|&(x, y)| lay.map_to_figure(x, y)).collect();
             let pts = if coarse {
                 if k != largest && extent(&pts) < 0.5 {
