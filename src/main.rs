@@ -327,7 +327,8 @@ impl MotionArgs {
 }
 
 impl PhysicsArgs {
-    fn context(&self, map: &map::Map) -> Result<cairn::score::Context> {
+    /// The physical assumptions; `notes` receives warnings about them.
+    fn context(&self, map: &map::Map, notes: &mut Vec<String>) -> Result<cairn::score::Context> {
         use cairn::score::{Context, Field};
         let q = |text: &str, dims: &[Dimension], what: &str| {
             units::parse_quantity(text, dims, what).map_err(Error::usage)
@@ -357,14 +358,29 @@ impl PhysicsArgs {
             )?));
         }
         if let Some(p) = &self.temperature_map {
-            c.temperature_k = Some(Field::Map(inspect::load_aux_map(
+            let mut t = inspect::load_aux_map(
                 map,
                 p,
                 "temperature map",
                 "temperatures",
                 false,
                 inspect::AuxUnit::Kelvin,
-            )?));
+            )?;
+            match cairn::score::fill_undefined_temperatures(&mut t, map.data.view()) {
+                Err(why) => return Err(Error::input(p, format!("{why}."))),
+                Ok(Some((n, median))) => notes.push(format!(
+                    "the temperature map {} is undefined (NaN) at {} where the map has data; {} its median, {} K, so that the structures there keep their column densities and masses",
+                    p.display(),
+                    match n {
+                        1 => "1 pixel".to_string(),
+                        n => format!("{n} pixels"),
+                    },
+                    if n == 1 { "it takes" } else { "they take" },
+                    cairn::units::tidy(median)
+                )),
+                Ok(None) => {}
+            }
+            c.temperature_k = Some(Field::Map(t));
         }
         if let Some(k) = &self.opacity {
             c.opacity.kappa0_cm2_per_g = positive(
@@ -775,7 +791,11 @@ fn run_inspect(args: &InspectArgs) -> Result<()> {
     let opts = args.read.load_options(false)?;
     let m = map::load(&args.map, &opts)?;
     let choice = args.read.noise_choice(&m)?;
-    let ctx = args.physics.context(&m)?;
+    let mut notes = Vec::new();
+    let ctx = args.physics.context(&m, &mut notes)?;
+    for n in &notes {
+        errln!("warning: {n}");
+    }
     let summary = inspect::summarise_with(&m, &choice, &ctx)?;
     if args.json {
         let text =
@@ -1092,8 +1112,14 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             .map(|a| a.to_string_lossy().into_owned())
             .collect(),
         physics: {
-            let mut c = a.physics.context(&m)?;
+            let mut notes = Vec::new();
+            let mut c = a.physics.context(&m, &mut notes)?;
             a.motion.apply(&m, &mut c)?;
+            if !quiet {
+                for n in &notes {
+                    errln!("warning: {n}");
+                }
+            }
             c
         },
         // The figure options are checked even with --no-figure, so that a mistake in them is

@@ -43,7 +43,7 @@
 
 use std::sync::OnceLock;
 
-use ndarray::Array2;
+use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
 use serde::Serialize;
 
@@ -85,6 +85,37 @@ impl Field {
             Field::Map(_) => "per pixel (map)".into(),
         }
     }
+}
+
+/// Gives the pixels of a temperature map that are undefined (NaN) where `map` has data the
+/// median of its defined pixels (of a regular sample on very large maps, as for noise maps,
+/// [`crate::noise::finite_sample`]), so that one undefined pixel does not leave the structure
+/// around it without a column density or mass: the conversion of emission needs a
+/// temperature at every pixel. Returns how many pixels were given the median, and the
+/// median; `None` when none needed it, and an error sentence when no pixel is defined.
+pub fn fill_undefined_temperatures(
+    t: &mut Array2<f32>,
+    map: ArrayView2<f32>,
+) -> Result<Option<(usize, f64)>, String> {
+    let needing = t
+        .iter()
+        .zip(map.iter())
+        .filter(|(tv, mv)| !tv.is_finite() && mv.is_finite())
+        .count();
+    if needing == 0 {
+        return Ok(None);
+    }
+    let mut sample = crate::noise::finite_sample(t.view());
+    if sample.is_empty() {
+        return Err("has no defined pixel (all are NaN); give a temperature map with values, or --temperature".into());
+    }
+    let median = crate::noise::median_in_place(&mut sample);
+    for (tv, mv) in t.iter_mut().zip(map.iter()) {
+        if !tv.is_finite() && mv.is_finite() {
+            *tv = median as f32;
+        }
+    }
+    Ok(Some((needing, median)))
 }
 
 /// The physical assumptions of a run.

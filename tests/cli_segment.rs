@@ -561,3 +561,84 @@ fn draw_spares_its_map() {
         original
     );
 }
+
+/// The columns of a catalogue CSV (its `#` lines skipped), by name.
+fn catalogue_columns(path: &Path) -> std::collections::BTreeMap<String, Vec<String>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let names: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(|s| s.to_string())
+        .collect();
+    let mut cols: std::collections::BTreeMap<String, Vec<String>> =
+        names.iter().map(|n| (n.clone(), Vec::new())).collect();
+    for l in lines {
+        for (n, v) in names.iter().zip(l.split(',')) {
+            cols.get_mut(n).unwrap().push(v.to_string());
+        }
+    }
+    cols
+}
+
+/// A temperature map undefined (NaN) at one pixel, the brightest leaf's peak, of a dust
+/// emission map: that pixel takes the map's median temperature, with a warning, instead of
+/// leaving the leaf and its ancestors without column densities and masses. Self-consistency
+/// check (masses themselves are checked against astropy in tests/segment_reference.rs): a
+/// 14 K map with that one pixel undefined gives the masses of `--temperature 14K` to 1e-12.
+#[test]
+fn an_undefined_temperature_pixel_takes_the_maps_median() {
+    let d = tempfile::tempdir().unwrap();
+    let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let map = cairn::map::load(&demo, &cairn::map::LoadOptions::default()).unwrap();
+    let (mut py, mut px) = (0, 0);
+    for ((y, x), &v) in map.data.indexed_iter() {
+        if v > map.data[(py, px)] {
+            (py, px) = (y, x);
+        }
+    }
+    let mut t = map.data.mapv(|_| 14.0f32);
+    t[(py, px)] = f32::NAN;
+    let mut h = map.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("K".into()), "");
+    cairn::fits_write::write_image_f32(&d.path().join("temp.fits"), t.view(), &h, true).unwrap();
+    let demo = demo.to_str().unwrap();
+    let common = ["--distance", "410pc", "--no-figure"];
+    let mut with_map = vec!["segment", demo, "-o", "map"];
+    with_map.extend(common);
+    with_map.extend(["--temperature-map", "temp.fits"]);
+    let (code, _, stderr) = cairn(&with_map, d.path());
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains(
+            "is undefined (NaN) at 1 pixel where the map has data; it takes its median, 14 K"
+        ),
+        "{stderr}"
+    );
+    let mut uniform = vec!["segment", demo, "-o", "uniform"];
+    uniform.extend(common);
+    uniform.extend(["--temperature", "14K"]);
+    let (code, _, stderr) = cairn(&uniform, d.path());
+    assert_eq!(code, 0, "{stderr}");
+    assert!(!stderr.contains("undefined"), "{stderr}");
+    let a = catalogue_columns(&d.path().join("map/structures.csv"));
+    let b = catalogue_columns(&d.path().join("uniform/structures.csv"));
+    assert_eq!(a["id"], b["id"]);
+    let peak_leaf = a["peak_x"]
+        .iter()
+        .zip(&a["peak_y"])
+        .position(|(x, y)| x.parse::<usize>() == Ok(px) && y.parse::<usize>() == Ok(py))
+        .expect("a structure peaks at the brightest pixel");
+    for col in ["mass", "mass_excess", "n_peak"] {
+        for (i, (x, y)) in a[col].iter().zip(&b[col]).enumerate() {
+            let (x, y): (f64, f64) = (x.parse().unwrap(), y.parse().unwrap());
+            assert!(x.is_finite(), "{col} of row {i} is {x}");
+            assert!(
+                (x - y).abs() <= 1e-12 * y.abs(),
+                "{col} of row {i}: {x} against {y}"
+            );
+        }
+        assert!(a[col][peak_leaf].parse::<f64>().unwrap() > 0.0);
+    }
+}
