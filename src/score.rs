@@ -20,8 +20,13 @@
 //!   *excess mass* subtracts, pixel by pixel, the column density of the structure's merge
 //!   level (the floor for roots): the structure above its surroundings.
 //! * Sizes: R_eff = d sqrt(A/pi); deconvolved R = sqrt(R_eff^2 - (theta_beam/2)^2 d^2) with
-//!   theta_beam the geometric mean FWHM (common practice); a structure with R_eff <= theta_beam
-//!   d / 2 is flagged unresolved.
+//!   theta_beam the geometric mean FWHM (common practice). A structure is flagged unresolved
+//!   when its deconvolved radius is less than the beam's half width, theta_beam d / 2 (its
+//!   deconvolved diameter smaller than the beam; R_eff < theta_beam d / sqrt(2), a footprint
+//!   under 1.39 beam areas), and its deconvolved radius is then left empty: below that the
+//!   difference of nearly equal squares says little (cairn's convention; the bound varies
+//!   between studies). With the default least leaf area of one beam, a bound of R_eff <=
+//!   theta_beam d / 2 (0.69 beam areas) could never be met.
 //! * Mean density n(H2) = M / (4/3 pi R_eff^3 mu_H2 m_H): a uniform sphere of the effective
 //!   radius (an assumption; real cores are centrally condensed).
 //! * Sound speed c_s = (k T / (mu_p m_H))^(1/2) with mu_p = 2.33 (Kauffmann et al. 2008).
@@ -311,7 +316,7 @@ pub struct Physical {
     pub mass_err: f64,
     /// Effective radius, pc.
     pub radius_pc: f64,
-    /// Beam-deconvolved effective radius, pc (NaN if unresolved).
+    /// Beam-deconvolved effective radius, pc (NaN if unresolved: less than half the beam).
     pub radius_deconv_pc: f64,
     /// Whether R_eff <= half the beam.
     pub unresolved: bool,
@@ -587,9 +592,10 @@ pub fn score(
             p.radius_pc = r_eff / PC;
             if let Some(b) = beam_rad {
                 let half = 0.5 * b * d;
-                p.unresolved = r_eff <= half;
+                let deconvolved = (r_eff * r_eff - half * half).max(0.0).sqrt();
+                p.unresolved = deconvolved < half;
                 if !p.unresolved {
-                    p.radius_deconv_pc = (r_eff * r_eff - half * half).sqrt() / PC;
+                    p.radius_deconv_pc = deconvolved / PC;
                 }
             }
             let m_kg = p.mass_excess * M_SUN;

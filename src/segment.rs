@@ -746,7 +746,7 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
     );
     t.push_bool(
         "unresolved",
-        "effective radius at most half the beam",
+        "deconvolved radius less than half the beam",
         ph.iter().map(|x| x.unresolved).collect(),
     );
     t.push_f64(

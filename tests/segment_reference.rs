@@ -186,7 +186,8 @@ fn catalogue_matches_regionprops_on_cairns_label_map() {
 /// (`SkyCoord.spherical_offsets_to`) against cairn's pixel covariance carried through the
 /// local Jacobian; masses M = mu_H2 m_H d^2 Omega sum N(H2), and the density, Jeans,
 /// Bonnor-Ebert, virial and free-fall columns from the oracle's own masses and radii, in
-/// astropy's units and constants (formulas and papers in the oracle's docstring).
+/// astropy's units and constants (formulas and papers in the oracle's docstring), and the
+/// deconvolved radius and unresolved flag from the header's beam.
 /// The tolerances are those of the methods' differences: the quadrilateral and the area element
 /// differ by terms of order the pixel's size squared and cairn's derivative steps (1e-7), the
 /// exact offsets and the Jacobian by the curvature of the sky over a structure up to a tenth of
@@ -199,6 +200,7 @@ fn catalogue_sky_sizes_masses_and_stability_match_astropy() {
     assert_eq!(rows.len(), phys.len());
     let mut elongated = 0;
     let mut states = std::collections::BTreeMap::new();
+    let mut resolution = std::collections::BTreeMap::new();
     for row in &rows {
         let id = &row["id"];
         let r = &phys[id.as_str()];
@@ -220,6 +222,27 @@ fn catalogue_sky_sizes_masses_and_stability_match_astropy() {
         ] {
             assert_close(f(row, col), num(&r[key]), 1e-7, 0.0, &what(col));
         }
+        // The deconvolved radius (empty when unresolved) and the flag, from astropy's radius
+        // and the header's beam by the README's rule.
+        let unresolved = r["unresolved"].as_bool().unwrap();
+        assert_eq!(
+            row["unresolved"],
+            unresolved.to_string(),
+            "{}",
+            what("unresolved")
+        );
+        if unresolved {
+            assert_eq!(row["radius_deconv_pc"], "", "{}", what("radius_deconv_pc"));
+        } else {
+            assert_close(
+                f(row, "radius_deconv_pc"),
+                num(&r["radius_deconv_pc"]),
+                1e-7,
+                0.0,
+                &what("radius_deconv_pc"),
+            );
+        }
+        *resolution.entry(unresolved).or_insert(0) += 1;
         // The state from astropy's virial parameter by the catalogue's rule (its note: bound
         // at alpha_vir <= 2, the virial boundary of Bertoldi & McKee 1992, marginal up to 4;
         // common practice).
@@ -266,6 +289,11 @@ fn catalogue_sky_sizes_masses_and_stability_match_astropy() {
     }
     assert!(elongated >= 3, "only {elongated} elongated structures");
     assert_eq!(states.len(), 3, "every state occurs: {states:?}");
+    assert_eq!(
+        resolution.len(),
+        2,
+        "resolved and unresolved structures occur: {resolution:?}"
+    );
 }
 
 #[test]

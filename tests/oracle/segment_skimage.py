@@ -29,7 +29,9 @@ descendants (from hierarchy.json). Sources:
   critical Bonnor-Ebert mass C R c_s^2 / G (Bonnor 1956; C from scipy's Lane-Emden solution in
   fixtures/physics/lane_emden.json), the virial parameter 5 sigma^2 R / (G M) (Bertoldi &
   McKee 1992) and the free-fall time sqrt(3 pi / (32 G rho)), all by astropy's constants and
-  units (the year a Julian year).
+  units (the year a Julian year); the deconvolved radius sqrt(R^2 - (theta/2)^2 d^2) with the
+  beam's geometric-mean FWHM theta, and the unresolved flag where it is less than theta d / 2
+  (common practice for the first; the bound is cairn's convention, as its README says).
 * astropy 8.0.2 astropy.units (FITS format) on every TUNIT of cairn's run/structures.fits,
   and each divided by the map's BUNIT; the same for cairn's spelling of a sum over pixels
   for other map units (fixtures/segment/pixel_sum_units.json).
@@ -56,6 +58,8 @@ OUT = out_dir("segment")
 with fits.open(os.path.join(SRC, "map.fits")) as h:
     image = h[0].data.astype(np.float64)
     wcs = WCS(h[0].header)
+    # The beam's geometric-mean FWHM (BMAJ, BMIN in degrees, FITS common practice).
+    BEAM = np.sqrt(h[0].header["BMAJ"] * h[0].header["BMIN"]) * u.deg
 with fits.open(os.path.join(SRC, "run", "labels.fits")) as h:
     labels = h[0].data.astype(np.int64)
 with open(os.path.join(SRC, "run", "hierarchy.json")) as f:
@@ -182,7 +186,14 @@ for s in tree["structures"]:
     be_mass = BE_COEFFICIENT * radius * cs2 / const.G
     alpha_vir = (5.0 * sigma2 * radius / (const.G * mass_excess)).decompose()
     t_ff = np.sqrt(3.0 * np.pi / (32.0 * const.G * rho))
+    # The deconvolved radius, half the beam (at the cloud) removed in quadrature; unresolved
+    # when it is less than half the beam (the README's convention).
+    half_beam = (0.5 * BEAM).to_value(u.rad) * DISTANCE
+    deconvolved = np.sqrt(max((radius ** 2 - half_beam ** 2).to_value(u.pc ** 2), 0.0)) * u.pc
+    unresolved = bool(deconvolved < half_beam)
     physical[str(i)] = {
+        "radius_deconv_pc": None if unresolved else deconvolved.to_value(u.pc),
+        "unresolved": unresolved,
         "jeans_length_pc": jeans_length.to_value(u.pc),
         "jeans_mass_msun": jeans_mass.to_value(u.Msun),
         "be_mass_msun": be_mass.to_value(u.Msun),
