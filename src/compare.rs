@@ -277,6 +277,9 @@ pub struct Summary {
 pub struct Options {
     /// A fixed lower mass of the power-law tail (else by minimising the KS distance).
     pub mass_min: Option<f64>,
+    /// Upper end of the admissible alpha when the tail's lower mass is searched (the
+    /// search's window is (1, alpha_max); [`XminSearch::alpha_range`]).
+    pub alpha_max: f64,
     /// Bootstrap resamples.
     pub resamples: usize,
     /// Seed of the bootstrap.
@@ -289,6 +292,7 @@ impl Default for Options {
     fn default() -> Self {
         Options {
             mass_min: None,
+            alpha_max: 3.0,
             resamples: 500,
             seed: 1,
             bin_dex: 0.2,
@@ -304,14 +308,19 @@ pub fn summarise(p: &Population, o: &Options) -> Summary {
 /// [`summarise`], calling `tick` once per bootstrap resample (from any thread).
 fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summary {
     let mut notes = vec![];
-    let search = XminSearch::default();
+    let search = XminSearch {
+        alpha_range: (1.0, o.alpha_max),
+        ..XminSearch::default()
+    };
     let tail = match populations::fit_power_law(&p.masses, o.mass_min, &search) {
         Ok(t) => Some(t),
         Err(e) => {
             // In compare's words: the lower limit is the --mass-min option.
             notes.push(format!(
                 "no power-law tail: {}",
-                e.message.replace("x_min", "--mass-min")
+                e.message
+                    .replace("x_min", "--mass-min")
+                    .replace("widen the admissible range", "a larger --alpha-max")
             ));
             None
         }
@@ -328,8 +337,30 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             tick,
         )
         .ok()
-        .map(|b| (b.alpha_std, b.xmin_std))
+        .map(|b| {
+            if b.n_failed > 0 {
+                notes.push(format!(
+                    "{} of {} bootstrap resamples found no tail with alpha below {} and are left out of the bootstrap spread, which then understates the uncertainty; --alpha-max widens the search",
+                    b.n_failed,
+                    o.resamples,
+                    crate::units::tidy(o.alpha_max)
+                ));
+            }
+            (b.alpha_std, b.xmin_std)
+        })
     });
+    // A searched tail whose alpha lies near the window's upper end may be steeper than the
+    // search could say (the window cuts the likelihood's range, not the data).
+    if let Some(t) = &tail
+        && t.xmin_fitted
+        && t.alpha > o.alpha_max - 0.1
+    {
+        notes.push(format!(
+            "the tail's alpha ({:.2}) lies near the upper end of the search window ({}): a steeper tail could not be chosen; give a larger --alpha-max to see",
+            t.alpha,
+            crate::units::tidy(o.alpha_max)
+        ));
+    }
     let lognormal = populations::fit_lognormal(&p.masses).ok();
     let mass_size = match populations::fit_mass_size(&p.radii, &p.masses) {
         Ok(f) => Some(f),
@@ -964,7 +995,10 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
         "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood peak exp(mu) and width sigma of ln M, each with its 68.27% confidence interval (Student's t and chi-square, exact for a log-normal sample of any size).\n",
         match o.mass_min {
             Some(m) => format!("fixed at {m} Msun"),
-            None => "chosen by minimising the KS distance".into(),
+            None => format!(
+                "chosen by minimising the KS distance among the lower masses whose tail has alpha between 1 and {} (--alpha-max)",
+                crate::units::tidy(o.alpha_max)
+            ),
         },
         o.resamples,
         o.seed
@@ -1270,6 +1304,58 @@ pub fn cumulative_table(pops: &[Population]) -> Table {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A steep tail (masses of a pure power law with alpha = 4, drawn by inverting its
+    /// cumulative distribution; CSN eq. D.4) lies outside the default search window (1, 3):
+    /// the summary says so instead of reporting a tail from the window's edge; with
+    /// `alpha_max` 10 the fit finds the steep tail (within its own error, (alpha - 1)/sqrt(n),
+    /// CSN eq. 3.2, three times over).
+    #[test]
+    fn a_tail_steeper_than_the_search_window_is_said_and_found_with_a_wider_one() {
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let masses: Vec<f64> = (0..400)
+            .map(|_| {
+                let u: f64 = rng.random();
+                0.5 * (1.0 - u).powf(-1.0 / 3.0)
+            })
+            .collect();
+        let p = Population {
+            label: "steep".into(),
+            source: PathBuf::from("steep.csv"),
+            radii: vec![0.05; masses.len()],
+            densities: vec![1e5; masses.len()],
+            masses,
+            states: Default::default(),
+            dropped: 0,
+            run: serde_json::Value::Null,
+        };
+        let o = Options {
+            resamples: 20,
+            ..Options::default()
+        };
+        let narrow = summarise(&p, &o);
+        let said = narrow.notes.iter().any(|n| {
+            n.contains("near the upper end of the search window")
+                || n.contains("no power-law tail") && n.contains("a larger --alpha-max")
+                || n.contains("found no tail with alpha below 3")
+        });
+        assert!(said, "{:?}", narrow.notes);
+        let wide = summarise(
+            &p,
+            &Options {
+                alpha_max: 10.0,
+                ..o
+            },
+        );
+        let t = wide.tail.expect("a tail inside (1, 10)");
+        assert!(
+            (t.alpha - 4.0).abs() < 3.0 * t.alpha_error,
+            "alpha {} +/- {}",
+            t.alpha,
+            t.alpha_error
+        );
+    }
 
     /// A run record and its catalogue agree on every threshold as written, whatever the
     /// digits: 4.5809540625368836e20 is a value whose shortest form a JSON parser without exact

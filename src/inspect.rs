@@ -503,7 +503,7 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
         ctx.mu_p,
         source(
             ctx.mu_h2 == defaults.mu_h2 && ctx.mu_p == defaults.mu_p,
-            "Kauffmann et al. 2008"
+            "Kauffmann et al. 2008; metal-free H2 and He"
         ),
         crate::physics::constants::M_H_U
     ));

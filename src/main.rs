@@ -650,6 +650,15 @@ struct CompareArgs {
     /// Fix the lower mass of the power-law tail, such as 1Msun [default: minimise the KS distance].
     #[arg(long, value_name = "MASS", allow_hyphen_values = true)]
     mass_min: Option<String>,
+    /// Largest power-law exponent alpha of dN/dM ~ M^-alpha that the search for the tail's
+    /// lower mass accepts (above 1, at most 10); raise it for steep tails.
+    #[arg(
+        long,
+        default_value_t = 3.0,
+        value_name = "ALPHA",
+        allow_hyphen_values = true
+    )]
+    alpha_max: f64,
     /// Bootstrap resamples for the tail's uncertainty (at most 100000).
     #[arg(long, default_value_t = 500, allow_hyphen_values = true)]
     resamples: usize,
@@ -1250,6 +1259,12 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
             a.mass_min.as_deref().unwrap_or("")
         )));
     }
+    if !(a.alpha_max > 1.0 && a.alpha_max <= 10.0) {
+        return Err(Error::usage(format!(
+            "--alpha-max {} is outside the exponents a mass function can have here (above 1, at most 10); give one such as 4.",
+            a.alpha_max
+        )));
+    }
     let mut pops = Vec::new();
     for (i, r) in a.runs.iter().enumerate() {
         let label = a.label.get(i).cloned().unwrap_or_else(|| {
@@ -1285,6 +1300,7 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     }
     let o = compare::Options {
         mass_min,
+        alpha_max: a.alpha_max,
         resamples: a.resamples,
         seed: a.seed,
         bin_dex: a.bin_width,

@@ -29,7 +29,8 @@
 //!   theta_beam d / 2 (0.69 beam areas) could never be met.
 //! * Mean density n(H2) = M / (4/3 pi R_eff^3 mu_H2 m_H): a uniform sphere of the effective
 //!   radius (an assumption; real cores are centrally condensed).
-//! * Sound speed c_s = (k T / (mu_p m_H))^(1/2) with mu_p = 2.33 (Kauffmann et al. 2008).
+//! * Sound speed c_s = (k T / (mu_p m_H))^(1/2) with mu_p = 2.33 (metal-free H2 and He,
+//!   common practice; [`crate::physics::MU_P`]).
 //! * Jeans mass and length at the mean density (Jeans 1902); critical Bonnor-Ebert mass
 //!   M_BE = C R_eff c_s^2 / G with C = xi_crit psi'(xi_crit) = 2.43 (Ebert 1955; Bonnor 1956),
 //!   alpha_BE = M_BE / M; virial parameter alpha_vir = 5 sigma^2 R_eff / (G M) (Bertoldi &

@@ -364,6 +364,16 @@ fn compare_refuses_values_that_would_exhaust_the_machine() {
         "--resamples 1000000",
         "give at most 100000",
     );
+    // A search window for the tail's exponent must leave room above 1 (a law with alpha <= 1
+    // cannot be normalised, Clauset, Shalizi & Newman 2009 eq. 2.2) and stay finite.
+    for bad in ["1", "0.5", "11", "inf"] {
+        refused(
+            d.path(),
+            &["compare", "run", "run2", "-o", "c", "--alpha-max", bad],
+            &format!("--alpha-max {bad}"),
+            "above 1, at most 10",
+        );
+    }
 }
 
 /// A run killed outright (out of memory, `kill -9`) runs no handler and leaves its temporary

@@ -119,7 +119,8 @@ fn lane_emden_matches_scipy_solve_ivp() {
 
 #[test]
 fn jeans_mass_and_length_match_astropy_units() {
-    // Source: astropy 8.0.2 units/constants; mu_p = 2.33, mu_H2 = 2.8 (Kauffmann et al. 2008).
+    // Source: astropy 8.0.2 units/constants; mu_H2 = 2.8 (Kauffmann et al. 2008), mu_p = 2.33
+    // (metal-free H2 and He, common practice).
     let f = fixture_json("physics/jeans.json");
     for r in f["rows"].as_array().unwrap() {
         let t = num(&r["t_k"]);

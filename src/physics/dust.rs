@@ -8,8 +8,9 @@ use serde::{Deserialize, Serialize};
 /// Mean molecular weight per hydrogen molecule, mu_H2 = 2.8 (Kauffmann et al. 2008, A&A 487,
 /// 993, appendix A): converts an H2 column or number density to a mass column or density.
 pub const MU_H2: f64 = 2.8;
-/// Mean molecular weight per free particle, mu_p = 2.33 (Kauffmann et al. 2008, appendix A):
-/// sets the isothermal sound speed.
+/// Mean molecular weight per free particle, mu_p = 2.33: H2 and He with He/H = 0.1 by number
+/// and no metals, 2.8 / 1.2 (common practice; Kauffmann et al. 2008, appendix A, give 2.37
+/// with metals, from memory): sets the isothermal sound speed.
 pub const MU_P: f64 = 2.33;
 
 /// A power-law dust opacity kappa_nu = kappa_0 (nu / nu_0)^beta, per unit mass of gas (dust
@@ -85,8 +86,7 @@ pub fn dust_mass(
     s_si * distance_m * distance_m / (opacity.kappa_si(nu_hz) * planck_nu(nu_hz, t_k))
 }
 
-/// Isothermal sound speed c_s = (k_B T / (mu_p m_H))^(1/2) [m s^-1] (mu_p = 2.33, Kauffmann
-/// et al. 2008).
+/// Isothermal sound speed c_s = (k_B T / (mu_p m_H))^(1/2) [m s^-1] (mu_p = 2.33, [`MU_P`]).
 pub fn sound_speed(t_k: f64) -> f64 {
     sound_speed_with(t_k, MU_P)
 }
@@ -97,8 +97,8 @@ pub fn sound_speed_with(t_k: f64, mu_p: f64) -> f64 {
 }
 
 /// Jeans length lambda_J = (pi c_s^2 / (G rho))^(1/2) \[m\] at gas temperature `t_k` and H2
-/// number density `n_h2_m3` [m^-3]; c_s uses mu_p = 2.33 and rho = mu_H2 m_H n(H2) uses
-/// mu_H2 = 2.8 (Kauffmann et al. 2008).
+/// number density `n_h2_m3` [m^-3]; c_s uses mu_p = 2.33 ([`MU_P`]) and rho = mu_H2 m_H n(H2)
+/// uses mu_H2 = 2.8 (Kauffmann et al. 2008).
 pub fn jeans_length(t_k: f64, n_h2_m3: f64) -> f64 {
     jeans_length_of(sound_speed(t_k), MU_H2 * M_H * n_h2_m3)
 }

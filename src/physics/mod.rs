@@ -11,8 +11,10 @@
 //! - Dust opacity law kappa_nu = kappa_0 (nu / 1 THz)^beta with kappa_0 = 0.1 cm^2 g^-1 of gas
 //!   (gas-to-dust ratio 100): Beckwith et al. (1990, AJ 99, 924); Hildebrand (1983, QJRAS 24,
 //!   267).
-//! - Mean molecular weights mu_H2 = 2.8 (per hydrogen molecule, for mass) and mu_p = 2.33 (per
-//!   free particle, for the sound speed): Kauffmann et al. (2008, A&A 487, 993), appendix A.
+//! - Mean molecular weights mu_H2 = 2.8 (per hydrogen molecule, for mass): Kauffmann et al.
+//!   (2008, A&A 487, 993), appendix A; mu_p = 2.33 (per free particle, for the sound speed):
+//!   H2 and He with He/H = 0.1 by number and no metals, 2.8 / 1.2 (common practice; Kauffmann
+//!   et al. give 2.37 with metals, from memory).
 //! - Isothermal sphere: Chandrasekhar (1939), *An Introduction to the Study of Stellar
 //!   Structure*, chapter IV; critical (Bonnor-Ebert) sphere: Ebert (1955, Z. Astrophys. 37,
 //!   217), Bonnor (1956, MNRAS 116, 351).
