@@ -178,6 +178,28 @@ pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
     if matches!(unit, PixelUnit::FluxPerPixel { .. }) && map.wcs.is_none() {
         return Some("a Jy/pixel map needs a celestial WCS to know the pixel's solid angle".into());
     }
+    // Far on the Wien side the Planck function underflows (exp(h nu / k T) beyond the range
+    // of doubles past h nu / k T = 709.8) and the column density would be infinite: no dust
+    // at that temperature emits measurably at that wavelength.
+    let lowest = match &ctx.temperature_k {
+        Some(Field::Uniform(t)) => *t,
+        Some(Field::Map(m)) => m
+            .iter()
+            .filter(|v| v.is_finite())
+            .fold(f64::INFINITY, |a, &v| a.min(v as f64)),
+        None => f64::NAN,
+    };
+    if let Some(w) = map.wavelength_m {
+        let x = physics::constants::H * units::C_LIGHT / (w * physics::constants::K_B * lowest);
+        if x > 700.0 {
+            return Some(format!(
+                "at {} um and {} K, h nu / k T = {}: dust that cold emits nothing measurable at that wavelength (the Planck function underflows); check the wavelength and the temperature",
+                units::tidy(w * 1e6),
+                units::tidy(lowest),
+                units::tidy(x.round())
+            ));
+        }
+    }
     None
 }
 
@@ -644,6 +666,52 @@ pub fn score(
 mod tests {
     use super::*;
     use crate::synth::{self, CorePopulation, EmissionUnit, Output, SynthSpec};
+
+    /// Far on the Wien side the Planck function underflows to zero (exp(h nu / k T) overflows
+    /// past h nu / k T = 709.78, the logarithm of the largest double): the conversion is
+    /// refused with the reason instead of giving infinite columns. h c / k = 14388 um K
+    /// (CODATA 2018 exact constants), so 1 um at 10 K gives 1439 and 850 um at 10 K 1.69.
+    #[test]
+    fn a_wavelength_far_on_the_wien_side_of_the_dust_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let spec = SynthSpec {
+            nx: 32,
+            ny: 32,
+            output: Output::DustEmission {
+                wavelength_um: 850.0,
+                temperature_k: 15.0,
+                unit: EmissionUnit::MJyPerSr,
+                opacity: DustOpacity::default(),
+            },
+            noise_rms: 0.0,
+            seed: 3,
+            ..Default::default()
+        };
+        let s = synth::generate(&spec).unwrap();
+        let path = dir.path().join("m.fits");
+        crate::fits_write::write_image_f32(&path, s.data.view(), &s.header, false).unwrap();
+        let mut map = crate::map::load(&path, &Default::default()).unwrap();
+        let ctx = Context {
+            temperature_k: Some(Field::Uniform(10.0)),
+            ..Default::default()
+        };
+        assert_eq!(conversion_blocker(&map, &ctx), None);
+        assert!(Converter::new(&map, &ctx).unwrap().factor(0, 0).is_finite());
+        map.wavelength_m = Some(1.0e-6);
+        let why = conversion_blocker(&map, &ctx).expect("refused at 1 um and 10 K");
+        assert!(why.contains("h nu / k T = 1439"), "{why}");
+        // The same through a temperature map: its coldest defined pixel decides.
+        let mut t = Array2::from_elem((32, 32), 1000.0f32);
+        t[(3, 4)] = f32::NAN;
+        t[(5, 6)] = 10.0;
+        let ctx = Context {
+            temperature_k: Some(Field::Map(t)),
+            ..Default::default()
+        };
+        assert!(conversion_blocker(&map, &ctx).is_some());
+        map.wavelength_m = Some(850e-6);
+        assert_eq!(conversion_blocker(&map, &ctx), None);
+    }
 
     /// The sums taken from the engine's map sums equal those gathered pixel by pixel (to
     /// rounding), on a column-density map and on a Jy/beam dust-emission map at one
