@@ -1075,10 +1075,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         }
         m = cairn::resolution::to_common_resolution(&m, res, d)?;
     }
-    if !quiet {
-        for w in &m.warnings {
-            errln!("warning: {w}");
-        }
+    // Warnings are printed with --quiet too, as its help says.
+    for w in &m.warnings {
+        errln!("warning: {w}");
     }
     let connectivity = match a.connectivity.trim() {
         "4" => cairn::hierarchy::Connectivity::Four,
@@ -1124,10 +1123,8 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             let mut notes = Vec::new();
             let mut c = a.physics.context(&m, &mut notes)?;
             a.motion.apply(&m, &mut c)?;
-            if !quiet {
-                for n in &notes {
-                    errln!("warning: {n}");
-                }
+            for n in &notes {
+                errln!("warning: {n}");
             }
             c
         },

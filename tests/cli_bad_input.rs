@@ -610,6 +610,27 @@ fn a_reference_system_fits_does_not_define_is_named() {
         "{}",
         o.stdout
     );
+    // segment says it on stderr, with --quiet too (which keeps errors and warnings).
+    let o = cairn(
+        &[
+            "segment",
+            "slip.fits",
+            "-o",
+            "run",
+            "--floor",
+            "5",
+            "--no-figure",
+            "--quiet",
+        ],
+        s.dir.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .contains("warning: RADESYS = 'J2000' is not a reference system FITS defines"),
+        "{}",
+        o.stderr
+    );
     let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'", "RADESYS = 'FK4-NO-E'"]);
     cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
     s.write("fk4.fits", &fits_bytes(&cards, &good_pixels(256)));
