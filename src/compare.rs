@@ -166,7 +166,7 @@ const REMAKE: &str = "keep each catalogue beside its own run.json, or re-run cai
 /// thresholds equal the ones in the catalogue's commented header. The comparison's fairness
 /// checks read the thresholds and the beam from the record, so a record of another run would
 /// judge the wrong thresholds.
-fn matching_run(
+pub(crate) fn matching_run(
     csv: &Path,
     catalogue: &str,
     run_path: &Path,
@@ -231,7 +231,7 @@ fn matching_run(
 
 /// The run's parameters in a catalogue's commented header, from lines
 /// `# parameter NAME = VALUE  (meaning)`.
-fn header_parameters(text: &str) -> std::collections::BTreeMap<String, String> {
+pub(crate) fn header_parameters(text: &str) -> std::collections::BTreeMap<String, String> {
     text.lines()
         .take_while(|l| l.starts_with('#') || l.trim().is_empty())
         .filter_map(|l| l.strip_prefix("# parameter "))

@@ -7,11 +7,13 @@
 
 pub mod angles;
 pub mod compare;
+pub mod completeness;
 pub mod draw;
 pub mod error;
 pub mod fits_write;
 pub mod header;
 pub mod hierarchy;
+pub mod inject;
 pub mod inspect;
 pub mod map;
 pub mod measure;

@@ -70,7 +70,9 @@ enum Command {
         after_help = "Caution: masses carry factor-of-two systematics from dust opacity, temperature and distance;\ndifferences between clouds smaller than that need the same assumptions on both sides (compare warns when they differ)."
     )]
     Compare(Box<CompareArgs>),
-    /// Make a synthetic map with known truth: turbulent background, cores, beam and noise.
+    /// Make a synthetic map with known truth: turbulent background, cores, beam and noise; or,
+    /// with --into, inject cores of known mass into a real map to measure completeness.
+    #[command(after_help = SYNTH_HELP)]
     Synth(Box<SynthArgs>),
 }
 
@@ -81,6 +83,14 @@ Writes structures.csv/.fits/.vot, labels.fits (smallest structure per pixel, wit
 overlay.png/.svg and tree.png/.svg unless --no-figure; leaves-grown.fits with --grow-leaves.
 Caution: the catalogue's masses carry factor-of-two systematics from dust opacity, temperature and distance
 (mass_err is the map noise only); density, Jeans, Bonnor-Ebert and virial columns use mass_excess.";
+
+const SYNTH_HELP: &str = "With --into MAP: the map's grid, WCS, beam and unit are used (read as segment reads them, with --hdu,
+--plane, --unit, --extinction-band, --beam, --wavelength); --cores cores of --core-mass and --core-radius are placed at
+random on valid pixels away from the edges, at least --min-separation apart (default: so each is isolated), convolved with the map's beam, converted
+to its unit (emission maps need --temperature and take --opacity, --opacity-frequency and --beta; extinction maps take
+--column-per-av and --av-per-ak) and added to it. Writes NAME.fits (the input's header with HISTORY cards),
+NAME-truth.csv (recording NAME.fits's SHA-256) and NAME-spec.json; the input is never modified.
+Score a segment run of NAME.fits with: cairn compare RUN --truth NAME-truth.csv -o DIR.";
 
 #[derive(Args)]
 struct SegmentArgs {
@@ -137,37 +147,68 @@ struct SynthArgs {
     #[arg(long, default_value = "synth")]
     name: String,
     /// A full specification as JSON (as written to NAME-spec.json); other options then refine it.
-    #[arg(long, value_name = "FILE")]
+    #[arg(conflicts_with = "into", long, value_name = "FILE")]
     spec: Option<PathBuf>,
     /// Map size in pixels: `N` or `NXxNY`, such as 512 or 600x400 [default: 256].
-    #[arg(long, value_name = "N|NXxNY", allow_hyphen_values = true)]
+    #[arg(
+        conflicts_with = "into",
+        long,
+        value_name = "N|NXxNY",
+        allow_hyphen_values = true
+    )]
     size: Option<String>,
     /// Pixel size, such as 6arcsec [default: 6arcsec].
-    #[arg(long, value_name = "ANGLE", allow_hyphen_values = true)]
+    #[arg(
+        conflicts_with = "into",
+        long,
+        value_name = "ANGLE",
+        allow_hyphen_values = true
+    )]
     pixel: Option<String>,
     /// Map centre as `lon,lat` in degrees (invented positions) [default: 201.375,-31.625].
-    #[arg(long, value_name = "LON,LAT", allow_hyphen_values = true)]
+    #[arg(
+        conflicts_with = "into",
+        long,
+        value_name = "LON,LAT",
+        allow_hyphen_values = true
+    )]
     centre: Option<String>,
     /// Sky frame: icrs, fk5 or galactic [default: icrs].
-    #[arg(long, value_name = "FRAME")]
+    #[arg(conflicts_with = "into", long, value_name = "FRAME")]
     frame: Option<String>,
     /// Distance of the invented cloud, such as 250pc [default: 250pc].
     #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     distance: Option<String>,
-    /// Beam FWHM, such as 18arcsec; 0arcsec for no smoothing [default: 18arcsec].
+    /// Beam FWHM, such as 18arcsec; 0arcsec for no smoothing [default: 18arcsec]. With --into:
+    /// the map's beam instead of BMAJ/BMIN/BPA, `18.2arcsec` or `major,minor,angle`.
     #[arg(long, value_name = "ANGLE", allow_hyphen_values = true)]
     beam: Option<String>,
     /// Mean column density of the log-normal background, such as 3e21cm-2 [default: 3e21cm-2].
-    #[arg(long, value_name = "COLUMN", allow_hyphen_values = true)]
+    #[arg(
+        conflicts_with = "into",
+        long,
+        value_name = "COLUMN",
+        allow_hyphen_values = true
+    )]
     background: Option<String>,
     /// Width (standard deviation of ln N) of the background's log-normal distribution [default: 0.4].
-    #[arg(long, value_name = "SIGMA", allow_hyphen_values = true)]
+    #[arg(
+        conflicts_with = "into",
+        long,
+        value_name = "SIGMA",
+        allow_hyphen_values = true
+    )]
     background_width: Option<f64>,
     /// Power-spectrum index of the background, P(k) ~ k^-INDEX [default: 3].
-    #[arg(long, value_name = "INDEX", allow_hyphen_values = true)]
+    #[arg(
+        conflicts_with = "into",
+        long,
+        value_name = "INDEX",
+        allow_hyphen_values = true
+    )]
     background_index: Option<f64>,
     /// No background: cores on an empty sky.
-    #[arg(long, conflicts_with_all = ["background", "background_width", "background_index"])]
+    #[arg(long, conflicts_with_all = ["background", "background_width", "background_index", "into"])]
     no_background: bool,
     /// Number of randomly placed cores to add [default: 0].
     #[arg(long, value_name = "N", allow_hyphen_values = true)]
@@ -185,20 +226,99 @@ struct SynthArgs {
     #[arg(long, value_name = "PROFILE")]
     profile: Option<String>,
     /// Make dust emission at this wavelength (such as 850um) instead of column density.
-    #[arg(long, value_name = "LENGTH")]
+    #[arg(conflicts_with = "into", long, value_name = "LENGTH")]
     emission: Option<String>,
-    /// Dust temperature for --emission, such as 15K [default: 15K].
+    /// Dust temperature for --emission, such as 15K [default: 15K]; with --into, the dust
+    /// temperature that converts cores to an emission map's unit (needed for emission maps).
     #[arg(long, value_name = "TEMPERATURE", allow_hyphen_values = true)]
     temperature: Option<String>,
     /// Unit of emission maps: MJy/sr or Jy/beam [default: MJy/sr].
-    #[arg(long, value_name = "UNIT")]
+    #[arg(conflicts_with = "into", long, value_name = "UNIT")]
     emission_unit: Option<String>,
     /// White-noise rms in the output unit (a number, or a quantity such as 1e20cm-2).
-    #[arg(long, value_name = "VALUE", allow_hyphen_values = true)]
+    #[arg(
+        conflicts_with = "into",
+        long,
+        value_name = "VALUE",
+        allow_hyphen_values = true
+    )]
     noise: Option<String>,
     /// Seed of every random stream.
     #[arg(long, allow_hyphen_values = true)]
     seed: Option<u64>,
+    /// Inject the cores into this FITS map (its grid, WCS, beam and unit) instead of making a
+    /// synthetic map; needs --distance and --cores.
+    #[arg(long, value_name = "MAP", requires_all = ["distance", "cores"])]
+    into: Option<PathBuf>,
+    /// With --into: least distance between two injected cores, such as 40arcsec [default: twice
+    /// the widest core as observed, twice its radius and the beam in quadrature].
+    #[arg(
+        long,
+        value_name = "ANGLE",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    min_separation: Option<String>,
+    /// With --into: HDU to read, a zero-based index or an EXTNAME.
+    #[arg(long, value_name = "N|NAME", requires = "into")]
+    hdu: Option<String>,
+    /// With --into: for a cube, the zero-based plane to take.
+    #[arg(long, value_name = "K", requires = "into")]
+    plane: Option<usize>,
+    /// With --into: unit of the map's pixels instead of BUNIT.
+    #[arg(long, value_name = "UNIT", requires = "into")]
+    unit: Option<String>,
+    /// With --into: band of an extinction map in magnitudes, V or K [default: V].
+    #[arg(long, value_name = "V|K", requires = "into")]
+    extinction_band: Option<String>,
+    /// With --into: wavelength or frequency of the map instead of the header's, such as 850um.
+    #[arg(
+        long,
+        value_name = "LENGTH|FREQ",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    wavelength: Option<String>,
+    /// With --into: dust opacity per gram of gas at --opacity-frequency [default: 0.1cm2/g].
+    #[arg(
+        long,
+        value_name = "OPACITY",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    opacity: Option<String>,
+    /// With --into: reference frequency of --opacity [default: 1THz].
+    #[arg(
+        long,
+        value_name = "FREQ",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    opacity_frequency: Option<String>,
+    /// With --into: dust emissivity index beta [default: 2].
+    #[arg(
+        long,
+        value_name = "BETA",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    beta: Option<f64>,
+    /// With --into: N(H2) per magnitude of A_V [default: 9.4e20cm-2].
+    #[arg(
+        long,
+        value_name = "COLUMN",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    column_per_av: Option<String>,
+    /// With --into: A_V per magnitude of A_K [default: 1/0.112 = 8.929].
+    #[arg(
+        long,
+        value_name = "RATIO",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    av_per_ak: Option<f64>,
     /// Replace existing outputs.
     #[arg(long)]
     force: bool,
@@ -635,9 +755,13 @@ fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usiz
 
 #[derive(Args)]
 struct CompareArgs {
-    /// Run folders (or their structures.csv files), two or more.
+    /// Run folders (or their structures.csv files), two or more; one with --truth.
     #[arg(required = true, num_args = 1..)]
     runs: Vec<PathBuf>,
+    /// Score one run against the truth table of the cores injected into its map
+    /// (NAME-truth.csv of `cairn synth --into`): matches.csv, completeness.csv, report.md.
+    #[arg(long, value_name = "FILE")]
+    truth: Option<PathBuf>,
     /// A name for each run, in order [default: the folder names].
     #[arg(long, value_name = "NAME")]
     label: Vec<String>,
@@ -992,6 +1116,9 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
 
 fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
     synth::check_name(&a.name).map_err(|e| Error::usage(format!("{}.", e.0)))?;
+    if let Some(m) = &a.into {
+        return run_inject(a, m, quiet);
+    }
     let spec = synth_spec(a)?;
     // Everything about the specification is checked before the output folder is made.
     synth::check(&spec)
@@ -1037,6 +1164,225 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
                 n => format!("{n} cores"),
             }
         );
+    }
+    Ok(())
+}
+
+/// `cairn synth --into MAP`: cores of known mass injected into a real map.
+fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> {
+    let read = MapArgs {
+        hdu: a.hdu.clone(),
+        plane: a.plane,
+        unit: a.unit.clone(),
+        extinction_band: a.extinction_band.clone().unwrap_or_else(|| "V".into()),
+        beam: a.beam.clone(),
+        wavelength: a.wavelength.clone(),
+        noise: None,
+        noise_map: None,
+    };
+    let physics = PhysicsArgs {
+        distance: a.distance.clone(),
+        temperature: a.temperature.clone(),
+        temperature_map: None,
+        opacity: a.opacity.clone(),
+        opacity_frequency: a.opacity_frequency.clone(),
+        beta: a.beta,
+        mu_h2: None,
+        mu_particle: None,
+        column_per_av: a.column_per_av.clone(),
+        av_per_ak: a.av_per_ak,
+    };
+    let opts = read.load_options(true)?;
+    // The options are checked before the map is read: the synth options that describe the
+    // cores, as `synth` checks them, and the physics.
+    let n = a.cores.unwrap_or(0);
+    if n == 0 {
+        return Err(Error::usage(
+            "--into needs --cores, at least 1; give the number of cores to inject, such as --cores 200.",
+        ));
+    }
+    let (m0, m1) = match &a.core_mass {
+        Some(t) => pair(t, Dimension::Mass, "--core-mass")?,
+        None => (0.5 * units::M_SUN, 20.0 * units::M_SUN),
+    };
+    let (r0, r1) = match &a.core_radius {
+        Some(t) => pair(t, Dimension::Length, "--core-radius")?,
+        None => (0.02 * units::PARSEC, 0.08 * units::PARSEC),
+    };
+    let profile = match a.profile.as_deref().map(str::to_ascii_lowercase).as_deref() {
+        None | Some("gaussian") => synth::Profile::Gaussian,
+        Some("bonnor-ebert") | Some("be") => synth::Profile::critical_bonnor_ebert(),
+        Some(other) => {
+            return Err(Error::usage(format!(
+                "--profile '{other}' is not understood: give gaussian or bonnor-ebert."
+            )));
+        }
+    };
+    let min_separation_arcsec = a
+        .min_separation
+        .as_deref()
+        .map(|t| {
+            units::parse_quantity(t, &[Dimension::Angle], "--min-separation")
+                .map(|q| q.si / units::ARCSEC)
+        })
+        .transpose()
+        .map_err(Error::usage)?;
+    if let Some(s) = min_separation_arcsec
+        && !(s >= 0.0 && s.is_finite())
+    {
+        return Err(Error::usage(format!(
+            "--min-separation {} must be an angle of zero or more, such as 40arcsec.",
+            a.min_separation.as_deref().unwrap_or("")
+        )));
+    }
+    let m = map::load(path, &opts)?;
+    let ctx = physics.context(&m)?;
+    let distance_pc = ctx.distance_m.unwrap_or(f64::NAN) / units::PARSEC;
+    let inject_opts = cairn::inject::InjectOptions {
+        population: synth::CorePopulation {
+            count: n,
+            mass_min_msun: m0 / units::M_SUN,
+            mass_max_msun: m1 / units::M_SUN,
+            mass_index: a.core_mass_index.unwrap_or(2.35),
+            radius_min_pc: r0 / units::PARSEC,
+            radius_max_pc: r1 / units::PARSEC,
+            profile,
+            margin_px: 0.0,
+        },
+        distance_pc,
+        seed: a.seed.unwrap_or(1),
+        min_separation_arcsec,
+    };
+    if !quiet {
+        for w in &m.warnings {
+            errln!("warning: {w}");
+        }
+    }
+    let injected = cairn::inject::inject(&m, &ctx, &inject_opts)?;
+    let names = [
+        format!("{}.fits", a.name),
+        format!("{}-truth.csv", a.name),
+        format!("{}-spec.json", a.name),
+    ];
+    output::refuse_inputs_as_outputs(&a.output, &names, &[path])?;
+    let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
+    let fits_temp = outputs.temp(&names[0]);
+    fits_write::write_image_f32(&fits_temp, injected.data.view(), &injected.header, true)
+        .map_err(|e| Error::output(&a.output.join(&names[0]), e.0))?;
+    let sha = cairn::segment::sha256_file(&fits_temp)?;
+    let input_sha = cairn::segment::sha256_file(path)?;
+    synth::write_truth_csv_with_notes(
+        &outputs.temp(&names[1]),
+        &injected.truth,
+        &[cairn::completeness::map_note(&names[0], &sha)],
+    )
+    .map_err(|e| {
+        Error::output(
+            &a.output.join(&names[1]),
+            format!("cannot be written ({e})."),
+        )
+    })?;
+    let record = serde_json::json!({
+        "cairn_version": env!("CARGO_PKG_VERSION"),
+        "injected_map": { "file": names[0], "sha256": sha },
+        "input": {
+            "path": path.to_string_lossy(),
+            "sha256": input_sha,
+            "hdu": m.hdu_index,
+            "plane": m.plane,
+            "unit": m.unit_text,
+            "beam": m.beam,
+            "wavelength_m": m.wavelength_m,
+        },
+        "distance_pc": inject_opts.distance_pc,
+        "seed": inject_opts.seed,
+        "population": synth::CorePopulation { margin_px: injected.margin_px, ..inject_opts.population },
+        "min_separation_arcsec": injected.min_separation_arcsec,
+        "temperature_k": match &ctx.temperature_k { Some(cairn::score::Field::Uniform(t)) => Some(*t), _ => None },
+        "opacity": ctx.opacity,
+        "nh2_per_av_cm2": ctx.nh2_per_av_m2 * 1e-4,
+        "av_per_ak": ctx.av_per_ak,
+    });
+    let text =
+        serde_json::to_string_pretty(&record).map_err(|e| Error::internal(e.to_string()))? + "\n";
+    output::write_bytes(&outputs.temp(&names[2]), text.as_bytes())?;
+    let written = outputs.commit()?;
+    if !quiet {
+        for p in written {
+            errln!("wrote {}", p.display());
+        }
+        errln!(
+            "{} injected into {}",
+            match injected.truth.len() {
+                1 => "1 core".to_string(),
+                n => format!("{n} cores"),
+            },
+            path.display()
+        );
+    }
+    Ok(())
+}
+
+/// `cairn compare RUN --truth NAME-truth.csv`: a run scored against injected cores.
+fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) -> Result<()> {
+    use cairn::completeness;
+    if a.runs.len() != 1 {
+        return Err(Error::usage(format!(
+            "--truth scores one run against the cores injected into its map, but {} runs were given; give one run folder (or its structures.csv).",
+            a.runs.len()
+        )));
+    }
+    if !(a.bin_width >= 0.01 && a.bin_width <= 2.0) {
+        return Err(Error::usage(format!(
+            "--bin-width {} is outside 0.01 to 2 dex; give a bin width in that range.",
+            a.bin_width
+        )));
+    }
+    let truth = completeness::read_truth(truth_path)?;
+    let run = completeness::read_run(&a.runs[0])?;
+    completeness::check_same_map(&truth, &run)?;
+    let s = completeness::score(&truth, &run, a.bin_width);
+    let files: Vec<(String, Vec<u8>)> = vec![
+        (
+            "matches.csv".into(),
+            completeness::matches_table(&truth, &run, &s)
+                .to_csv()
+                .into_bytes(),
+        ),
+        (
+            "completeness.csv".into(),
+            completeness::completeness_table(&s).to_csv().into_bytes(),
+        ),
+        (
+            "report.md".into(),
+            completeness::report(&truth, &run, &s).into_bytes(),
+        ),
+    ];
+    let names: Vec<String> = files.iter().map(|(n, _)| n.clone()).collect();
+    let inputs: Vec<&std::path::Path> = vec![a.runs[0].as_path(), truth_path];
+    output::refuse_inputs_as_outputs(&a.output, &names, &inputs)?;
+    let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
+    for (n, bytes) in &files {
+        output::write_bytes(&outputs.temp(n), bytes)?;
+    }
+    let written = outputs.commit()?;
+    let k = s.matches.iter().filter(|m| m.is_some()).count();
+    outln!(
+        "{k} of {} injected cores recovered; 90% complete above {}; median mass_excess / true mass {}",
+        truth.cores.len(),
+        s.limit_90
+            .map(|m| format!("{} Msun", cairn::table::fmt_f64(m)))
+            .unwrap_or_else(|| "no mass".into()),
+        if s.median_excess_ratio.is_finite() {
+            format!("{:.3}", s.median_excess_ratio)
+        } else {
+            "n/a".into()
+        }
+    );
+    if !quiet {
+        for p in written {
+            errln!("wrote {}", p.display());
+        }
     }
     Ok(())
 }
@@ -1198,6 +1544,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
 
 fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     use cairn::compare;
+    if let Some(t) = &a.truth {
+        return run_completeness(a, t, quiet);
+    }
     if a.runs.len() < 2 {
         return Err(Error::usage(
             "compare needs at least two runs; give two or more run folders (or their structures.csv files).",

@@ -31,11 +31,11 @@ use crate::map::{Beam, Map};
 use crate::units::PixelUnit;
 
 /// A 2x2 symmetric matrix [[a, b], [b, c]].
-type Cov = (f64, f64, f64);
+pub(crate) type Cov = (f64, f64, f64);
 
 /// Covariance (in degrees^2, axes east and north) of a Gaussian beam of FWHM major/minor at
 /// position angle `pa` east of north.
-fn beam_cov(major: f64, minor: f64, pa_deg: f64) -> Cov {
+pub(crate) fn beam_cov(major: f64, minor: f64, pa_deg: f64) -> Cov {
     let k = 1.0 / (8.0 * std::f64::consts::LN_2);
     let (sa, sb) = (major * major * k, minor * minor * k);
     // Major axis direction: east component sin(pa), north component cos(pa).
@@ -45,6 +45,31 @@ fn beam_cov(major: f64, minor: f64, pa_deg: f64) -> Cov {
         (sa - sb) * s * c,
         sa * c * c + sb * s * s,
     )
+}
+
+/// A covariance on the sky (arcsec^2, axes east and north) carried to pixel axes,
+/// K = J^-1 S J^-T, with `j` the local Jacobian of [`crate::measure::local_jacobian`] (pixel
+/// offsets to (east, north) arcsec).
+pub(crate) fn sky_cov_to_pixels(s: Cov, j: [[f64; 2]; 2]) -> [[f64; 2]; 2] {
+    // J maps pixel offsets to (east, north) arcsec: columns are the +x and +y steps.
+    let (j00, j01, j10, j11) = (j[0][0], j[1][0], j[0][1], j[1][1]);
+    let det = j00 * j11 - j01 * j10;
+    let (i00, i01, i10, i11) = (j11 / det, -j01 / det, -j10 / det, j00 / det);
+    let m = [[s.0, s.1], [s.1, s.2]];
+    let inv = [[i00, i01], [i10, i11]];
+    let mut tmp = [[0.0; 2]; 2];
+    for r in 0..2 {
+        for k in 0..2 {
+            tmp[r][k] = inv[r][0] * m[0][k] + inv[r][1] * m[1][k];
+        }
+    }
+    let mut kc = [[0.0; 2]; 2];
+    for r in 0..2 {
+        for k in 0..2 {
+            kc[r][k] = tmp[r][0] * inv[k][0] + tmp[r][1] * inv[k][1];
+        }
+    }
+    kc
 }
 
 /// Zero padding (pixels) on each side along x and along y for a kernel of pixel covariance
@@ -248,24 +273,7 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
     let t = target_deg * 3600.0;
     let tc = beam_cov(t, t, 0.0);
     let s = (tc.0 - bc.0, tc.1 - bc.1, tc.2 - bc.2);
-    // J maps pixel offsets to (east, north) arcsec: columns are the +x and +y steps.
-    let (j00, j01, j10, j11) = (j[0][0], j[1][0], j[0][1], j[1][1]);
-    let det = j00 * j11 - j01 * j10;
-    let (i00, i01, i10, i11) = (j11 / det, -j01 / det, -j10 / det, j00 / det);
-    let m = [[s.0, s.1], [s.1, s.2]];
-    let inv = [[i00, i01], [i10, i11]];
-    let mut tmp = [[0.0; 2]; 2];
-    for r in 0..2 {
-        for k in 0..2 {
-            tmp[r][k] = inv[r][0] * m[0][k] + inv[r][1] * m[1][k];
-        }
-    }
-    let mut kc = [[0.0; 2]; 2];
-    for r in 0..2 {
-        for k in 0..2 {
-            kc[r][k] = tmp[r][0] * inv[k][0] + tmp[r][1] * inv[k][1];
-        }
-    }
+    let kc = sky_cov_to_pixels(s, j);
     // Regridding by blocks of k x k pixels (see below) is itself a convolution with a box of
     // variance (k^2 - 1)/12 pixel^2 per axis: the kernel leaves that much room.
     let per_fwhm = target_deg / (sx * sy).sqrt();

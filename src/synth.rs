@@ -288,7 +288,7 @@ const GAUSS_TRUNCATION: f64 = 6.0;
 /// Beam kernel half width in beam sigmas.
 const BEAM_HALF_WIDTH_SIGMA: f64 = 7.0;
 
-fn rng(seed: u64, stream: u64) -> ChaCha8Rng {
+pub(crate) fn rng(seed: u64, stream: u64) -> ChaCha8Rng {
     let mut r = ChaCha8Rng::seed_from_u64(seed);
     r.set_stream(stream);
     r
@@ -396,9 +396,9 @@ fn out_of_memory(spec: &SynthSpec) -> SynthError {
 }
 
 /// A buffer whose allocation may fail without aborting the process.
-struct NoMemory;
+pub(crate) struct NoMemory;
 
-fn try_filled<T: Clone + Send + Sync>(n: usize, v: T) -> Result<Vec<T>, NoMemory> {
+pub(crate) fn try_filled<T: Clone + Send + Sync>(n: usize, v: T) -> Result<Vec<T>, NoMemory> {
     let mut out = Vec::new();
     out.try_reserve_exact(n).map_err(|_| NoMemory)?;
     out.par_extend(rayon::iter::repeat_n(v, n));
@@ -711,7 +711,7 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
 }
 
 /// Draws the random population (its own random stream, independent of the map size).
-fn draw_population(p: &CorePopulation, spec: &SynthSpec) -> Vec<CoreSpec> {
+pub(crate) fn draw_population(p: &CorePopulation, spec: &SynthSpec) -> Vec<CoreSpec> {
     let mut r = rng(spec.seed, STREAM_POPULATION);
     (0..p.count)
         .map(|_| {
@@ -784,16 +784,22 @@ fn crpix(spec: &SynthSpec) -> (f64, f64) {
 }
 
 /// A core rendered on the grid: bounding box and column densities [m^-2].
-struct Stamp {
-    x0: usize,
-    y0: usize,
-    w: usize,
-    h: usize,
-    values: Vec<f64>,
+pub(crate) struct Stamp {
+    /// First column of the box.
+    pub(crate) x0: usize,
+    /// First row of the box.
+    pub(crate) y0: usize,
+    /// Columns of the box.
+    pub(crate) w: usize,
+    /// Rows of the box.
+    pub(crate) h: usize,
+    /// H2 column densities [m^-2], row-major.
+    pub(crate) values: Vec<f64>,
 }
 
-/// Samples a core's profile on the grid and normalises it to the core mass.
-fn render_core(
+/// Samples a core's profile on the grid and normalises it to the core mass (the grid of
+/// `spec`: its size, square pixels of `pixel_arcsec` and `distance_pc`).
+pub(crate) fn render_core(
     core: &CoreSpec,
     spec: &SynthSpec,
     be_cache: &mut Vec<(f64, BonnorEbertProjection)>,
@@ -1304,6 +1310,15 @@ fn make_header(spec: &SynthSpec, unit: &str) -> Header {
 
 /// Writes the truth table as CSV: a commented line naming the units, then a column header.
 pub fn write_truth_csv(path: &Path, cores: &[TruthCore]) -> std::io::Result<()> {
+    write_truth_csv_with_notes(path, cores, &[])
+}
+
+/// [`write_truth_csv`] with more commented lines (`# NOTE`) after the line naming the units.
+pub fn write_truth_csv_with_notes(
+    path: &Path,
+    cores: &[TruthCore],
+    notes: &[String],
+) -> std::io::Result<()> {
     let mut out = std::io::BufWriter::new(crate::output::create_file(path)?);
     let unit = cores
         .first()
@@ -1317,6 +1332,9 @@ pub fn write_truth_csv(path: &Path, cores: &[TruthCore]) -> std::io::Result<()> 
          peak: {unit} (beam-convolved, no background); \
          peak_column_cm2: cm-2 (before convolution)"
     )?;
+    for n in notes {
+        writeln!(out, "# {n}")?;
+    }
     writeln!(
         out,
         "id,x,y,lon_deg,lat_deg,mass_msun,radius_pc,profile,peak,peak_column_cm2"

@@ -1,0 +1,781 @@
+//! Scoring a finished run against the truth table of injected cores (`cairn compare RUN
+//! --truth NAME-truth.csv`): which injected cores were recovered, how their measured masses
+//! compare with the truth, and the completeness per bin of true mass.
+//!
+//! * Matching: each injected core is matched to a leaf of the run's catalogue whose *peak*
+//!   lies within one beam FWHM (the geometric mean of the major and minor axes) of the core's
+//!   true centre, on the sky. The peak is used rather than the centroid because an injected
+//!   core's peak is its true centre up to the noise, whereas a leaf's centroid is pulled by the
+//!   background under it and by where its footprint is cut at the merge level. Matching is one
+//!   to one: all pairs within the radius are taken in order of increasing separation (ties by
+//!   core id, then leaf id) and a pair is kept when neither its core nor its leaf is taken yet.
+//!   With injected cores at least two FWHMs apart (the default of `synth --into`) no leaf can
+//!   lie within one FWHM of two cores, so this is the unique nearest match.
+//! * Separations on the sky by Vincenty's formula for the sphere ([`crate::inject`]).
+//! * Completeness per bin of log10 true mass, bins of `bin_dex` anchored at 1 Msun
+//!   (edges at k * `bin_dex` dex), with the Wilson (1927, JASA 22, 209) score interval for the
+//!   fraction at z = 1 (68.27%, one standard deviation of the normal):
+//!   (k + z^2/2)/(n + z^2) +- z sqrt(n) / (n + z^2) sqrt(p (1 - p) + z^2 / (4 n)), p = k/n.
+//! * The completeness limit: the lower edge of the lowest bin from which every bin above it
+//!   (that holds injected cores) has a recovered fraction of at least 90%; found by walking the
+//!   bins down from the most massive and stopping at the first one below 90%.
+//! * Recovered masses: both `mass` (the whole footprint) and `mass_excess` (above the merge
+//!   level) over the true mass. An injected core sits on the real map's background, which
+//!   `mass` counts too; `mass_excess` removes the level where the leaf meets its surroundings,
+//!   so it is the fairer comparison (it also cuts the core's own wings below that level).
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, Result};
+use crate::inject::separation_arcsec;
+use crate::table::Table;
+
+/// One injected core as read from a truth table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TrueCore {
+    /// Identifier in the truth table.
+    pub id: i64,
+    /// Zero-based pixel column.
+    pub x: f64,
+    /// Zero-based pixel row.
+    pub y: f64,
+    /// Longitude \[deg\] in the map's frame.
+    pub lon: f64,
+    /// Latitude \[deg\].
+    pub lat: f64,
+    /// True mass \[M_sun\].
+    pub mass: f64,
+}
+
+/// A truth table and the map it belongs to.
+#[derive(Debug, Clone)]
+pub struct Truth {
+    /// The file.
+    pub path: PathBuf,
+    /// The cores.
+    pub cores: Vec<TrueCore>,
+    /// SHA-256 of the map the cores were injected into (the written map), if recorded.
+    pub map_sha256: Option<String>,
+    /// Name of that map.
+    pub map_name: Option<String>,
+}
+
+/// The line of a truth table that names its map: `# map NAME sha256 HEX`.
+pub fn map_note(name: &str, sha256: &str) -> String {
+    format!("map {name} sha256 {sha256}")
+}
+
+/// Reads a truth table written by `cairn synth`.
+pub fn read_truth(path: &Path) -> Result<Truth> {
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Error::input(
+            path,
+            format!("cannot be read ({e}); give the NAME-truth.csv that cairn synth --into wrote."),
+        )
+    })?;
+    let mut map_sha256 = None;
+    let mut map_name = None;
+    for l in text.lines().take_while(|l| l.starts_with('#')) {
+        if let Some(rest) = l.strip_prefix("# map ")
+            && let Some((name, sha)) = rest.rsplit_once(" sha256 ")
+        {
+            map_name = Some(name.to_string());
+            map_sha256 = Some(sha.trim().to_string());
+        }
+    }
+    let mut lines = text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.starts_with('#') && !l.trim().is_empty());
+    let bad = |m: String| Error::input(path, m);
+    let Some((_, head)) = lines.next() else {
+        return Err(bad(
+            "holds no table; give the NAME-truth.csv that cairn synth --into wrote.".into(),
+        ));
+    };
+    let cols: Vec<&str> = head.split(',').collect();
+    let col = |n: &str| cols.iter().position(|c| *c == n);
+    let (Some(ci), Some(cx), Some(cy), Some(clon), Some(clat), Some(cm)) = (
+        col("id"),
+        col("x"),
+        col("y"),
+        col("lon_deg"),
+        col("lat_deg"),
+        col("mass_msun"),
+    ) else {
+        return Err(bad("lacks one of the columns id, x, y, lon_deg, lat_deg, mass_msun; give the NAME-truth.csv that cairn synth --into wrote.".into()));
+    };
+    let mut cores = Vec::new();
+    for (n, l) in lines {
+        let cells: Vec<&str> = l.split(',').collect();
+        let num = |i: usize| -> Result<f64> {
+            cells
+                .get(i)
+                .and_then(|v| v.trim().parse::<f64>().ok())
+                .filter(|v| v.is_finite())
+                .ok_or_else(|| {
+                    bad(format!(
+                        "line {} has no number in column '{}'; give the NAME-truth.csv that cairn synth --into wrote, unedited.",
+                        n + 1,
+                        cols[i]
+                    ))
+                })
+        };
+        let id = num(ci)?;
+        cores.push(TrueCore {
+            id: id as i64,
+            x: num(cx)?,
+            y: num(cy)?,
+            lon: num(clon)?,
+            lat: num(clat)?,
+            mass: num(cm)?,
+        });
+        if !(cores.last().is_some_and(|c| c.mass > 0.0)) {
+            return Err(bad(format!(
+                "line {} has a mass that is not positive; give the NAME-truth.csv that cairn synth --into wrote, unedited.",
+                n + 1
+            )));
+        }
+    }
+    if cores.is_empty() {
+        return Err(bad(
+            "holds no injected core; give the NAME-truth.csv that cairn synth --into wrote.".into(),
+        ));
+    }
+    Ok(Truth {
+        path: path.to_path_buf(),
+        cores,
+        map_sha256,
+        map_name,
+    })
+}
+
+/// A leaf of the run's catalogue.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Leaf {
+    /// Structure id.
+    pub id: i64,
+    /// Longitude of the peak \[deg\] in the map's frame.
+    pub lon: f64,
+    /// Latitude of the peak \[deg\].
+    pub lat: f64,
+    /// Mass of the whole footprint \[M_sun\] (NaN if unknown).
+    pub mass: f64,
+    /// Mass above the merge level \[M_sun\] (NaN if unknown).
+    pub mass_excess: f64,
+}
+
+/// The run being scored.
+#[derive(Debug, Clone)]
+pub struct Run {
+    /// The catalogue file.
+    pub catalogue: PathBuf,
+    /// Its leaves.
+    pub leaves: Vec<Leaf>,
+    /// SHA-256 of the run's input map.
+    pub input_sha256: String,
+    /// Beam FWHM \[arcsec\], geometric mean of the axes.
+    pub beam_fwhm_arcsec: f64,
+}
+
+/// Reads a run folder (or its structures.csv with run.json beside it).
+pub fn read_run(path: &Path) -> Result<Run> {
+    let (csv, run_path) = if path.is_dir() {
+        (
+            path.join(crate::segment::names::CSV),
+            path.join(crate::segment::names::RUN),
+        )
+    } else {
+        (
+            path.to_path_buf(),
+            path.with_file_name(crate::segment::names::RUN),
+        )
+    };
+    let catalogue = std::fs::read_to_string(&csv).map_err(|e| {
+        Error::input(
+            &csv,
+            format!(
+                "cannot be read ({e}); give a run folder or a catalogue written by cairn segment."
+            ),
+        )
+    })?;
+    let run_text = std::fs::read_to_string(&run_path).map_err(|e| {
+        Error::input(
+            &run_path,
+            format!("cannot be read ({e}); scoring against a truth table needs the run record beside the catalogue, so give the whole run folder."),
+        )
+    })?;
+    let run = crate::compare::matching_run(&csv, &catalogue, &run_path, &run_text)?;
+    let input_sha256 = run
+        .pointer("/input/sha256")
+        .and_then(|v| v.as_str())
+        .map(str::to_string)
+        .ok_or_else(|| {
+            Error::input(
+                &run_path,
+                "records no SHA-256 of its input map; run cairn segment again.",
+            )
+        })?;
+    let beam = |k: &str| run.pointer(&format!("/beam/{k}")).and_then(|v| v.as_f64());
+    let (Some(maj), Some(min)) = (beam("major_deg"), beam("minor_deg")) else {
+        return Err(Error::input(
+            &run_path,
+            "records no beam, so a match radius of one beam cannot be set; run cairn segment again with --beam.",
+        ));
+    };
+    let beam_fwhm_arcsec = (maj * min).sqrt() * 3600.0;
+    let (header, rows) = crate::table::read_catalogue_csv(&csv, &catalogue)?;
+    let col = |name: &str| header.iter().position(|h| h == name);
+    let peak_cols = [("ra_peak", "dec_peak"), ("glon_peak", "glat_peak")]
+        .iter()
+        .find_map(|(a, b)| Some((col(a)?, col(b)?)));
+    let (Some(kind), Some(id), Some((clon, clat)), Some(cm), Some(cme)) = (
+        col("kind"),
+        col("id"),
+        peak_cols,
+        col("mass"),
+        col("mass_excess"),
+    ) else {
+        return Err(Error::input(
+            &csv,
+            "lacks the id, kind, peak sky position or mass columns: run cairn segment with --distance (and --temperature for emission maps) on a map with sky coordinates.",
+        ));
+    };
+    let mut leaves = Vec::new();
+    for (n, r) in rows.iter().enumerate() {
+        if r.get(kind).map(String::as_str) != Some("leaf") {
+            continue;
+        }
+        let num = |i: usize| -> Result<f64> {
+            let v = r.get(i).map(String::as_str).unwrap_or("");
+            if v.is_empty() {
+                return Ok(f64::NAN);
+            }
+            v.parse::<f64>().map_err(|_| {
+                Error::input(
+                    &csv,
+                    format!(
+                        "row {} holds '{v}' in the numeric column '{}': the catalogue is damaged; run cairn segment again.",
+                        n + 1,
+                        header[i]
+                    ),
+                )
+            })
+        };
+        leaves.push(Leaf {
+            id: num(id)? as i64,
+            lon: num(clon)?,
+            lat: num(clat)?,
+            mass: num(cm)?,
+            mass_excess: num(cme)?,
+        });
+    }
+    Ok(Run {
+        catalogue: csv,
+        leaves,
+        input_sha256,
+        beam_fwhm_arcsec,
+    })
+}
+
+/// Refuses a run that was not made on the map of the truth table.
+pub fn check_same_map(truth: &Truth, run: &Run) -> Result<()> {
+    let Some(sha) = &truth.map_sha256 else {
+        return Err(Error::input(
+            &truth.path,
+            "does not record the SHA-256 of its map (no '# map NAME sha256 HEX' line), so the run cannot be checked to be of that map; give the NAME-truth.csv that cairn synth --into wrote.",
+        ));
+    };
+    if *sha != run.input_sha256 {
+        return Err(Error::input(
+            &truth.path,
+            format!(
+                "belongs to the map {} (SHA-256 {}...), but the run {} was made on another map (SHA-256 {}...); segment that injected map and score its run, or give the truth table of the map the run was made on.",
+                truth.map_name.as_deref().unwrap_or("?"),
+                &sha[..sha.len().min(12)],
+                run.catalogue.display(),
+                &run.input_sha256[..run.input_sha256.len().min(12)]
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// One-to-one matching of `cores` to `leaves` (positions in degrees) within `radius_arcsec`:
+/// for each core, the index of its leaf and their separation \[arcsec\], or `None`. Pairs are
+/// taken in order of increasing separation, ties by core index then leaf index.
+pub fn match_cores(
+    cores: &[(f64, f64)],
+    leaves: &[(f64, f64)],
+    radius_arcsec: f64,
+) -> Vec<Option<(usize, f64)>> {
+    let mut pairs: Vec<(f64, usize, usize)> = Vec::new();
+    for (i, c) in cores.iter().enumerate() {
+        for (j, l) in leaves.iter().enumerate() {
+            let d = separation_arcsec(c.0, c.1, l.0, l.1);
+            if d <= radius_arcsec {
+                pairs.push((d, i, j));
+            }
+        }
+    }
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
+    let mut out = vec![None; cores.len()];
+    let mut taken = vec![false; leaves.len()];
+    for (d, i, j) in pairs {
+        if out[i].is_none() && !taken[j] {
+            out[i] = Some((j, d));
+            taken[j] = true;
+        }
+    }
+    out
+}
+
+/// The Wilson (1927) score interval of a binomial fraction `k` of `n` at `z` standard
+/// deviations: (low, high). (0, 1) when `n` is 0.
+pub fn wilson_interval(k: usize, n: usize, z: f64) -> (f64, f64) {
+    if n == 0 {
+        return (0.0, 1.0);
+    }
+    let (k, n) = (k as f64, n as f64);
+    let p = k / n;
+    let z2 = z * z;
+    let centre = (k + z2 / 2.0) / (n + z2);
+    let half = z * n.sqrt() / (n + z2) * (p * (1.0 - p) + z2 / (4.0 * n)).sqrt();
+    ((centre - half).max(0.0), (centre + half).min(1.0))
+}
+
+/// One bin of true mass.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Bin {
+    /// Lower edge \[M_sun\].
+    pub lo: f64,
+    /// Upper edge \[M_sun\].
+    pub hi: f64,
+    /// Injected cores in the bin.
+    pub injected: usize,
+    /// Recovered among them.
+    pub recovered: usize,
+    /// Recovered fraction.
+    pub fraction: f64,
+    /// Wilson 68.27% interval, low end.
+    pub ci_lo: f64,
+    /// Wilson 68.27% interval, high end.
+    pub ci_hi: f64,
+}
+
+/// Completeness per bin of log10 true mass of width `bin_dex`, edges at multiples of it, from
+/// the lowest occupied bin to the highest (empty bins between are kept, with NaN fractions).
+pub fn bins(masses: &[f64], recovered: &[bool], bin_dex: f64) -> Vec<Bin> {
+    let index = |m: f64| (m.log10() / bin_dex).floor() as i64;
+    let (Some(lo), Some(hi)) = (
+        masses.iter().map(|&m| index(m)).min(),
+        masses.iter().map(|&m| index(m)).max(),
+    ) else {
+        return Vec::new();
+    };
+    (lo..=hi)
+        .map(|k| {
+            let (mut n, mut r) = (0, 0);
+            for (m, &ok) in masses.iter().zip(recovered) {
+                if index(*m) == k {
+                    n += 1;
+                    r += usize::from(ok);
+                }
+            }
+            let (ci_lo, ci_hi) = if n > 0 {
+                wilson_interval(r, n, 1.0)
+            } else {
+                (f64::NAN, f64::NAN)
+            };
+            Bin {
+                lo: 10f64.powf(k as f64 * bin_dex),
+                hi: 10f64.powf((k + 1) as f64 * bin_dex),
+                injected: n,
+                recovered: r,
+                fraction: if n > 0 { r as f64 / n as f64 } else { f64::NAN },
+                ci_lo,
+                ci_hi,
+            }
+        })
+        .collect()
+}
+
+/// The lower edge of the lowest bin from which every occupied bin above has a fraction of at
+/// least `level`, walking down from the most massive; `None` if the most massive occupied bin
+/// is already below it.
+pub fn completeness_limit(bins: &[Bin], level: f64) -> Option<f64> {
+    let mut limit = None;
+    for b in bins.iter().rev() {
+        if b.injected == 0 {
+            continue;
+        }
+        if b.fraction >= level {
+            limit = Some(b.lo);
+        } else {
+            break;
+        }
+    }
+    limit
+}
+
+/// The median of finite values (mean of the middle two for an even count); NaN if none.
+pub fn median(values: &[f64]) -> f64 {
+    let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    }
+}
+
+/// The result of scoring a run.
+#[derive(Debug, Clone)]
+pub struct Scoring {
+    /// For each injected core, its matched leaf and the separation \[arcsec\].
+    pub matches: Vec<Option<(usize, f64)>>,
+    /// Completeness per bin.
+    pub bins: Vec<Bin>,
+    /// The 90% completeness limit \[M_sun\].
+    pub limit_90: Option<f64>,
+    /// Median recovered `mass` / true mass of matched cores.
+    pub median_mass_ratio: f64,
+    /// Median recovered `mass_excess` / true mass of matched cores.
+    pub median_excess_ratio: f64,
+    /// Match radius \[arcsec\].
+    pub radius_arcsec: f64,
+    /// Width of the bins \[dex\].
+    pub bin_dex: f64,
+}
+
+/// Scores `run` against `truth` with bins of `bin_dex`.
+pub fn score(truth: &Truth, run: &Run, bin_dex: f64) -> Scoring {
+    let cores: Vec<(f64, f64)> = truth.cores.iter().map(|c| (c.lon, c.lat)).collect();
+    let leaves: Vec<(f64, f64)> = run.leaves.iter().map(|l| (l.lon, l.lat)).collect();
+    let radius = run.beam_fwhm_arcsec;
+    let matches = match_cores(&cores, &leaves, radius);
+    let masses: Vec<f64> = truth.cores.iter().map(|c| c.mass).collect();
+    let found: Vec<bool> = matches.iter().map(Option::is_some).collect();
+    let bins = bins(&masses, &found, bin_dex);
+    let ratio = |f: &dyn Fn(&Leaf) -> f64| -> Vec<f64> {
+        matches
+            .iter()
+            .zip(&truth.cores)
+            .filter_map(|(m, c)| m.map(|(j, _)| f(&run.leaves[j]) / c.mass))
+            .collect()
+    };
+    Scoring {
+        limit_90: completeness_limit(&bins, 0.9),
+        median_mass_ratio: median(&ratio(&|l| l.mass)),
+        median_excess_ratio: median(&ratio(&|l| l.mass_excess)),
+        matches,
+        bins,
+        radius_arcsec: radius,
+        bin_dex,
+    }
+}
+
+/// matches.csv: one row per injected core.
+pub fn matches_table(truth: &Truth, run: &Run, s: &Scoring) -> Table {
+    let mut t = Table {
+        name: "matches".into(),
+        ..Table::default()
+    };
+    t.notes.push(format!(
+        "each injected core matched one to one to the leaf whose peak lies nearest within one beam FWHM ({} arcsec), pairs taken by increasing separation",
+        crate::units::tidy(s.radius_arcsec)
+    ));
+    t.notes.push(
+        "mass_excess_ratio (above the merge level) is the fairer comparison: mass_ratio also counts the real map's background under the core".into(),
+    );
+    let c = &truth.cores;
+    let leaf = |i: usize| s.matches[i].map(|(j, _)| &run.leaves[j]);
+    t.push_i64(
+        "id",
+        "",
+        "injected core id",
+        c.iter().map(|c| c.id).collect(),
+    );
+    t.push_f64(
+        "true_mass",
+        "solMass",
+        "injected mass",
+        c.iter().map(|c| c.mass).collect(),
+    );
+    t.push_f64(
+        "x",
+        "pixel",
+        "true centre, zero-based pixel column",
+        c.iter().map(|c| c.x).collect(),
+    );
+    t.push_f64(
+        "y",
+        "pixel",
+        "true centre, zero-based pixel row",
+        c.iter().map(|c| c.y).collect(),
+    );
+    t.push_f64(
+        "lon",
+        "deg",
+        "true centre, longitude in the map's frame",
+        c.iter().map(|c| c.lon).collect(),
+    );
+    t.push_f64(
+        "lat",
+        "deg",
+        "true centre, latitude in the map's frame",
+        c.iter().map(|c| c.lat).collect(),
+    );
+    t.push_text(
+        "leaf",
+        "id of the matched leaf, empty if none",
+        (0..c.len())
+            .map(|i| leaf(i).map(|l| l.id.to_string()).unwrap_or_default())
+            .collect(),
+    );
+    t.push_f64(
+        "offset",
+        "arcsec",
+        "separation between the true centre and the leaf's peak",
+        s.matches
+            .iter()
+            .map(|m| m.map_or(f64::NAN, |(_, d)| d))
+            .collect(),
+    );
+    t.push_f64(
+        "offset_beams",
+        "",
+        "offset in beam FWHMs",
+        s.matches
+            .iter()
+            .map(|m| m.map_or(f64::NAN, |(_, d)| d / s.radius_arcsec))
+            .collect(),
+    );
+    t.push_f64(
+        "mass_ratio",
+        "",
+        "the leaf's mass over the true mass",
+        (0..c.len())
+            .map(|i| leaf(i).map_or(f64::NAN, |l| l.mass / c[i].mass))
+            .collect(),
+    );
+    t.push_f64(
+        "mass_excess_ratio",
+        "",
+        "the leaf's mass_excess over the true mass",
+        (0..c.len())
+            .map(|i| leaf(i).map_or(f64::NAN, |l| l.mass_excess / c[i].mass))
+            .collect(),
+    );
+    t
+}
+
+/// completeness.csv: one row per bin of true mass.
+pub fn completeness_table(s: &Scoring) -> Table {
+    let mut t = Table {
+        name: "completeness".into(),
+        ..Table::default()
+    };
+    t.notes.push(format!(
+        "bins of {} dex in true mass; interval: Wilson (1927) score interval at 68.27% (z = 1)",
+        crate::units::tidy(s.bin_dex)
+    ));
+    let b = &s.bins;
+    t.push_f64(
+        "mass_lo",
+        "solMass",
+        "lower edge of the bin",
+        b.iter().map(|b| b.lo).collect(),
+    );
+    t.push_f64(
+        "mass_hi",
+        "solMass",
+        "upper edge of the bin",
+        b.iter().map(|b| b.hi).collect(),
+    );
+    t.push_i64(
+        "injected",
+        "",
+        "injected cores",
+        b.iter().map(|b| b.injected as i64).collect(),
+    );
+    t.push_i64(
+        "recovered",
+        "",
+        "matched to a leaf",
+        b.iter().map(|b| b.recovered as i64).collect(),
+    );
+    t.push_f64(
+        "fraction",
+        "",
+        "recovered / injected",
+        b.iter().map(|b| b.fraction).collect(),
+    );
+    t.push_f64(
+        "fraction_lo",
+        "",
+        "Wilson 68.27% interval, low",
+        b.iter().map(|b| b.ci_lo).collect(),
+    );
+    t.push_f64(
+        "fraction_hi",
+        "",
+        "Wilson 68.27% interval, high",
+        b.iter().map(|b| b.ci_hi).collect(),
+    );
+    t
+}
+
+/// The report's completeness section (Markdown).
+pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
+    let f = crate::table::fmt_f64;
+    let mut r = String::new();
+    let n = truth.cores.len();
+    let k = s.matches.iter().filter(|m| m.is_some()).count();
+    let _ = writeln!(r, "# Completeness\n");
+    let _ = writeln!(
+        r,
+        "Run `{}` scored against `{}` ({n} injected cores into {}).\n",
+        run.catalogue.display(),
+        truth.path.display(),
+        truth.map_name.as_deref().unwrap_or("the map")
+    );
+    let _ = writeln!(
+        r,
+        "Each injected core is matched, one to one, to the leaf whose peak lies nearest its true centre within one beam FWHM ({} arcsec, the geometric mean of the beam's axes); peaks rather than centroids, since a leaf's centroid is pulled by the background and by where its footprint is cut. {k} of {n} cores were recovered ({:.1}%).\n",
+        crate::units::tidy(s.radius_arcsec),
+        100.0 * k as f64 / n as f64
+    );
+    let _ = writeln!(
+        r,
+        "| true mass (Msun) | injected | recovered | fraction | 68.3% interval |\n| --- | --- | --- | --- | --- |"
+    );
+    for b in &s.bins {
+        let _ = writeln!(
+            r,
+            "| {:.3} - {:.3} | {} | {} | {} | {} |",
+            b.lo,
+            b.hi,
+            b.injected,
+            b.recovered,
+            if b.injected > 0 {
+                format!("{:.3}", b.fraction)
+            } else {
+                "-".into()
+            },
+            if b.injected > 0 {
+                format!("{:.3} - {:.3}", b.ci_lo, b.ci_hi)
+            } else {
+                "-".into()
+            }
+        );
+    }
+    let _ = writeln!(
+        r,
+        "\nBins are {} dex wide in true mass; intervals are Wilson (1927) score intervals at 68.3% (z = 1).\n",
+        crate::units::tidy(s.bin_dex)
+    );
+    match s.limit_90 {
+        Some(m) => {
+            let _ = writeln!(
+                r,
+                "**90% completeness limit: {} Msun.** Found by walking the bins down from the most massive: this is the lower edge of the lowest bin from which every bin above it that holds injected cores recovers at least 90% of them.\n",
+                f(m)
+            );
+        }
+        None => {
+            let _ = writeln!(
+                r,
+                "**No 90% completeness limit**: the most massive bin with injected cores already recovers less than 90% of them.\n"
+            );
+        }
+    }
+    let _ = writeln!(
+        r,
+        "Median recovered / true mass of the matched cores: {} with `mass_excess`, {} with `mass`. Injected cores sit on the real map's background, which `mass` counts as well; `mass_excess` (above the level where the leaf meets its surroundings) is the fairer comparison, though it also cuts the core's own wings below that level.\n",
+        fmt_ratio(s.median_excess_ratio),
+        fmt_ratio(s.median_mass_ratio)
+    );
+    let _ = writeln!(
+        r,
+        "Caveats: the result depends on where the cores were placed; cores injected on a bright background are harder to find; Gaussian and Bonnor-Ebert cores are idealisations; masses carry factor-of-two systematics from dust opacity, temperature and distance (the same ones in the truth and the run, so they cancel in the ratios but not in the limit's meaning)."
+    );
+    r
+}
+
+fn fmt_ratio(x: f64) -> String {
+    if x.is_finite() {
+        format!("{x:.3}")
+    } else {
+        "n/a (no core recovered)".into()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn bin(lo: f64, injected: usize, recovered: usize) -> Bin {
+        Bin {
+            lo,
+            hi: lo * 10f64.powf(0.2),
+            injected,
+            recovered,
+            fraction: if injected > 0 {
+                recovered as f64 / injected as f64
+            } else {
+                f64::NAN
+            },
+            ci_lo: 0.0,
+            ci_hi: 1.0,
+        }
+    }
+
+    #[test]
+    fn the_limit_is_the_lowest_bin_from_which_all_above_stay_at_90_percent() {
+        // 50%, 95%, 80%, 100%, empty, 90%: from the top, 90% and 100% pass, 80% stops.
+        let b = vec![
+            bin(0.1, 10, 5),
+            bin(0.2, 20, 19),
+            bin(0.4, 10, 8),
+            bin(0.8, 10, 10),
+            bin(1.6, 0, 0),
+            bin(3.2, 10, 9),
+        ];
+        assert_eq!(completeness_limit(&b, 0.9), Some(0.8));
+        assert_eq!(completeness_limit(&b[..1], 0.9), None);
+    }
+
+    #[test]
+    fn bins_are_anchored_at_one_solar_mass() {
+        let b = bins(&[1.0, 1.5, 0.99, 10.0], &[true, false, true, true], 0.5);
+        // log10: 0, 0.176, -0.0044, 1 -> bins -1, 0, 0, 2 (and an empty bin 1).
+        assert_eq!(b.len(), 4);
+        assert_eq!(
+            (b[0].injected, b[1].injected, b[2].injected, b[3].injected),
+            (1, 2, 0, 1)
+        );
+        assert_eq!(b[1].recovered, 1);
+        assert!((b[1].lo - 1.0).abs() < 1e-15 && (b[3].lo - 10.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_leaf_is_matched_at_most_once_and_ties_go_to_the_lower_core() {
+        // Two cores equally far (36 arcsec) on either side of one leaf, and a second leaf
+        // near the second core only.
+        let d = 0.01;
+        let cores = [(10.0 - d, 0.0), (10.0 + d, 0.0)];
+        let leaves = [(10.0, 0.0), (10.0 + d + 0.001, 0.0)];
+        let m = match_cores(&cores, &leaves, 40.0);
+        assert_eq!(m[1].map(|x| x.0), Some(1));
+        assert_eq!(m[0].map(|x| x.0), Some(0));
+        let m = match_cores(&cores, &leaves[..1], 40.0);
+        assert_eq!(m[0].map(|x| x.0), Some(0));
+        assert!(m[1].is_none());
+    }
+}
