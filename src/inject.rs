@@ -106,28 +106,7 @@ fn cannot(map: &Map, problem: &str) -> Error {
 /// pixel scale) or without a beam; a unit that cannot be converted from column density; cores
 /// that cannot all be placed.
 pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected> {
-    let wcs = map.wcs.as_ref().ok_or_else(|| {
-        cannot(
-            map,
-            "has no celestial WCS, so its pixel size is unknown and cores of known mass cannot be injected; give a map with sky coordinates (CTYPE, CRVAL, CRPIX and CDELT or CD keywords).",
-        )
-    })?;
-    let beam = map.beam.ok_or_else(|| {
-        cannot(
-            map,
-            "has no beam (no BMAJ, BMIN and BPA), so injected cores cannot be given the map's resolution; give --beam, such as 18.2arcsec.",
-        )
-    })?;
-    let conv = Converter::new(map, ctx).map_err(|why| {
-        cannot(
-            map,
-            &format!(
-                "cannot receive cores of known mass in its unit '{}' because {}",
-                map.unit_text,
-                why.trim_end_matches('.')
-            ),
-        )
-    })?;
+    let (wcs, beam, conv) = prerequisites(map, ctx)?;
     if !(opts.distance_pc > 0.0 && opts.distance_pc.is_finite()) {
         return Err(Error::usage(
             "injecting cores of known mass needs the distance: give --distance, such as 300pc.",
@@ -240,6 +219,89 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         placed.push((c.x, c.y));
     }
 
+    let (data, truth, core_sums) = add_cores(map, &conv, &base, &cores)?;
+    let header = injected_header(map, opts, &population, separation_arcsec, truth.len());
+    Ok(Injected {
+        data,
+        header,
+        truth,
+        core_sums,
+        min_separation_arcsec: separation_arcsec,
+        margin_px: margin,
+    })
+}
+
+/// The map's WCS, beam and conversion, or the refusal naming what is missing.
+fn prerequisites<'a>(
+    map: &'a Map,
+    ctx: &'a Context,
+) -> Result<(&'a crate::wcs::Wcs, crate::map::Beam, Converter<'a>)> {
+    let wcs = map.wcs.as_ref().ok_or_else(|| {
+        cannot(
+            map,
+            "has no celestial WCS, so its pixel size is unknown and cores of known mass cannot be injected; give a map with sky coordinates (CTYPE, CRVAL, CRPIX and CDELT or CD keywords).",
+        )
+    })?;
+    let beam = map.beam.ok_or_else(|| {
+        cannot(
+            map,
+            "has no beam (no BMAJ, BMIN and BPA), so injected cores cannot be given the map's resolution; give --beam, such as 18.2arcsec.",
+        )
+    })?;
+    let conv = Converter::new(map, ctx).map_err(|why| {
+        cannot(
+            map,
+            &format!(
+                "cannot receive cores of known mass in its unit '{}' because {}",
+                map.unit_text,
+                why.trim_end_matches('.')
+            ),
+        )
+    })?;
+    Ok((wcs, beam, conv))
+}
+
+/// Injects `cores` at the positions they give (zero-based pixels) into `map` at `distance_pc`,
+/// converted to its unit with `ctx`: the injected pixels, the truth and each core's sum over
+/// the map in map units (see [`Injected`]). [`inject`] places a random population and calls it.
+pub fn inject_at(
+    map: &Map,
+    ctx: &Context,
+    cores: &[synth::CoreSpec],
+    distance_pc: f64,
+) -> Result<(Array2<f32>, Vec<TruthCore>, Vec<f64>)> {
+    let (_, _, conv) = prerequisites(map, ctx)?;
+    if !(distance_pc > 0.0 && distance_pc.is_finite()) {
+        return Err(Error::usage(
+            "injecting cores of known mass needs the distance: give --distance, such as 300pc.",
+        ));
+    }
+    let base = SynthSpec {
+        nx: map.nx(),
+        ny: map.ny(),
+        distance_pc,
+        beam_fwhm_arcsec: 0.0,
+        background: None,
+        cores: Vec::new(),
+        population: None,
+        noise_rms: 0.0,
+        ..SynthSpec::default()
+    };
+    add_cores(map, &conv, &base, cores)
+}
+
+/// Renders, convolves and converts `cores` and adds them to the map, in their order.
+fn add_cores(
+    map: &Map,
+    conv: &Converter,
+    base: &SynthSpec,
+    cores: &[synth::CoreSpec],
+) -> Result<(Array2<f32>, Vec<TruthCore>, Vec<f64>)> {
+    let (wcs, beam) = match (&map.wcs, map.beam) {
+        (Some(w), Some(b)) => (w, b),
+        _ => return Err(Error::internal("add_cores without a WCS or beam")),
+    };
+    let (nx, ny) = (map.nx(), map.ny());
     // Rendering and convolution, in parallel by chunks; added in order.
     let oom = || {
         cannot(
@@ -274,7 +336,7 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
                     .map_err(|_| "no memory".to_string())?;
                 let peak_col = stamp.values.iter().cloned().fold(0.0, f64::max);
                 let kc = crate::resolution::sky_cov_to_pixels(beam_sky, j);
-                let patch = convolve(&stamp, kc, nx, ny, &conv)?;
+                let patch = convolve(&stamp, kc, nx, ny, conv)?;
                 let peak = patch.values.iter().cloned().fold(f64::MIN, f64::max);
                 Ok((patch, peak, peak_col))
             })
@@ -332,15 +394,7 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
             map.path.display()
         )));
     }
-    let header = injected_header(map, opts, &population, separation_arcsec, truth.len());
-    Ok(Injected {
-        data,
-        header,
-        truth,
-        core_sums,
-        min_separation_arcsec: separation_arcsec,
-        margin_px: margin,
-    })
+    Ok((data, truth, core_sums))
 }
 
 /// Convolves a stamp of N(H2) \[m^-2\] with the Gaussian of pixel covariance `kc`, linearly
