@@ -633,7 +633,6 @@ pub fn completeness_table(s: &Scoring) -> Table {
 
 /// The report's completeness section (Markdown).
 pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
-    let f = crate::table::fmt_f64;
     let mut r = String::new();
     let n = truth.cores.len();
     let k = s.matches.iter().filter(|m| m.is_some()).count();
@@ -684,8 +683,7 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
         Some(m) => {
             let _ = writeln!(
                 r,
-                "**90% completeness limit: {} Msun.** Found by walking the bins down from the most massive: this is the lower edge of the lowest bin from which every bin above it that holds injected cores recovers at least 90% of them.\n",
-                f(m)
+                "**90% completeness limit: {m:.3} Msun.** Found by walking the bins down from the most massive: this is the lower edge of the lowest bin from which every bin above it that holds injected cores recovers at least 90% of them. Bins holding few cores make it uncertain (see their intervals); inject more cores for a firmer limit.\n"
             );
         }
         None => {

@@ -209,10 +209,8 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
             return Err(cannot(
                 map,
                 &format!(
-                    "has room for only {i} of the {} cores at least {} arcsec ({:.1} pixels) apart on valid pixels {margin} pixels from the edges; give fewer --cores or a smaller --min-separation.",
-                    p.count,
-                    crate::units::tidy(separation_arcsec),
-                    sep_px
+                    "has room for only {i} of the {} cores at least {:.1} arcsec ({:.1} pixels) apart on valid pixels {margin} pixels from the edges; give fewer --cores, a smaller --core-radius or a smaller --min-separation.",
+                    p.count, separation_arcsec, sep_px
                 ),
             ));
         }
@@ -254,7 +252,9 @@ fn prerequisites<'a>(
             &format!(
                 "cannot receive cores of known mass in its unit '{}' because {}",
                 map.unit_text,
-                why.trim_end_matches('.')
+                // Injection takes one temperature, not a map of them.
+                why.replace(", or --temperature-map", "")
+                    .trim_end_matches('.')
             ),
         )
     })?;

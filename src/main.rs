@@ -1371,7 +1371,7 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
         "{k} of {} injected cores recovered; 90% complete above {}; median mass_excess / true mass {}",
         truth.cores.len(),
         s.limit_90
-            .map(|m| format!("{} Msun", cairn::table::fmt_f64(m)))
+            .map(|m| format!("{m:.3} Msun"))
             .unwrap_or_else(|| "no mass".into()),
         if s.median_excess_ratio.is_finite() {
             format!("{:.3}", s.median_excess_ratio)

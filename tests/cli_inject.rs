@@ -1,0 +1,374 @@
+//! `cairn synth --into` and `cairn compare --truth` end to end, on invented maps made by
+//! `cairn synth`: bright isolated injected cores are recovered, the input map is left as it
+//! was, the injection does not depend on the number of threads, and bad input is refused
+//! with one sentence and nothing written.
+//!
+//! These are consistency checks on synthetic data (recovery of injected cores, determinism);
+//! the outside references of the injection and the scoring are in `tests/inject_reference.rs`.
+
+#[path = "common/cli.rs"]
+mod cli;
+
+use cli::{cairn, check_refused};
+use std::path::Path;
+
+/// A column-density map of an invented cloud (log-normal background, white noise of 1e20
+/// cm-2, 18" beam on 6" pixels), made by `cairn synth` in `dir/base`.
+fn base_map(dir: &Path) {
+    let o = cairn(
+        &[
+            "synth", "-o", "base", "--size", "256", "--noise", "1e20cm-2", "--seed", "3", "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+}
+
+const INJECT: [&str; 9] = [
+    "--distance",
+    "250pc",
+    "--cores",
+    "30",
+    "--core-mass",
+    "3Msun,10Msun",
+    "--core-radius",
+    "0.02pc,0.04pc",
+    "-q",
+];
+
+fn inject(dir: &Path, map: &str, out: &str, extra: &[&str]) -> cli::Outcome {
+    let mut args = vec!["synth", "--into", map, "-o", out];
+    args.extend_from_slice(&INJECT);
+    args.extend_from_slice(extra);
+    cairn(&args, dir)
+}
+
+/// Rows of a CSV written by cairn (the `#` lines skipped): the header and the cells.
+fn csv(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let head: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    let rows = lines
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    (head, rows)
+}
+
+fn column(head: &[String], name: &str) -> usize {
+    head.iter()
+        .position(|h| h == name)
+        .unwrap_or_else(|| panic!("no column {name}"))
+}
+
+#[test]
+fn bright_isolated_injected_cores_are_recovered_and_the_input_is_untouched() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let before = std::fs::read(dir.join("base/synth.fits")).unwrap();
+    let o = inject(dir, "base/synth.fits", "inj", &["--seed", "5"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert_eq!(
+        std::fs::read(dir.join("base/synth.fits")).unwrap(),
+        before,
+        "the input map is byte-identical after injection"
+    );
+    for f in ["synth.fits", "synth-truth.csv", "synth-spec.json"] {
+        assert!(dir.join("inj").join(f).is_file(), "{f}");
+    }
+    // The injected map keeps the input's header (its WCS and beam) and says what was added.
+    let input = cairn::map::load(
+        &dir.join("base/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let injected = cairn::map::load(
+        &dir.join("inj/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(injected.beam, input.beam);
+    assert_eq!(injected.unit_text, input.unit_text);
+    for key in [
+        "CTYPE1", "CTYPE2", "CRVAL1", "CRVAL2", "CRPIX1", "CRPIX2", "CDELT1", "CDELT2",
+    ] {
+        assert_eq!(injected.header.get(key), input.header.get(key), "{key}");
+    }
+    let history: Vec<&str> = injected
+        .header
+        .cards()
+        .iter()
+        .filter(|c| c.key == "HISTORY")
+        .map(|c| c.comment.as_str())
+        .collect();
+    assert!(
+        history
+            .iter()
+            .any(|h| h.contains("injected 30 synthetic cores")),
+        "{history:?}"
+    );
+    // Injection only adds: every pixel is at least the input's (to 32-bit rounding).
+    assert!(
+        injected
+            .data
+            .iter()
+            .zip(input.data.iter())
+            .all(|(a, b)| *a >= *b * (1.0 - 1e-6)),
+        "injection only adds"
+    );
+    let o = cairn(
+        &[
+            "segment",
+            "inj/synth.fits",
+            "-o",
+            "run",
+            "--distance",
+            "250pc",
+            "--temperature",
+            "12K",
+            "--no-figure",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "compare",
+            "run",
+            "--truth",
+            "inj/synth-truth.csv",
+            "-o",
+            "score",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+
+    // Peak signal-to-noise of each injected core alone: its beam-convolved peak (truth table)
+    // over the noise the run used (run.json).
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("run/run.json")).unwrap()).unwrap();
+    let noise = run["noise"]["value"].as_f64().unwrap();
+    let (th, truth) = csv(&dir.join("inj/synth-truth.csv"));
+    let (mh, matches) = csv(&dir.join("score/matches.csv"));
+    assert_eq!(truth.len(), 30);
+    assert_eq!(matches.len(), 30);
+    let (peak, tid) = (column(&th, "peak"), column(&th, "id"));
+    let (mid, leaf, offset_beams) = (
+        column(&mh, "id"),
+        column(&mh, "leaf"),
+        column(&mh, "offset_beams"),
+    );
+    let mut bright = 0;
+    let mut found = 0;
+    for t in &truth {
+        let snr = t[peak].parse::<f64>().unwrap() / noise;
+        if snr < 10.0 {
+            continue;
+        }
+        bright += 1;
+        let m = matches.iter().find(|m| m[mid] == t[tid]).unwrap();
+        if !m[leaf].is_empty() {
+            found += 1;
+            let off: f64 = m[offset_beams].parse().unwrap();
+            assert!((0.0..=1.0).contains(&off), "offset {off} beams");
+        }
+    }
+    assert!(bright >= 20, "{bright} cores at peak S/N >= 10");
+    assert!(
+        found as f64 >= 0.95 * bright as f64,
+        "{found} of {bright} bright isolated cores recovered"
+    );
+    // Each leaf matches at most one core.
+    let mut leaves: Vec<&str> = matches
+        .iter()
+        .map(|m| m[leaf].as_str())
+        .filter(|l| !l.is_empty())
+        .collect();
+    let n = leaves.len();
+    leaves.sort();
+    leaves.dedup();
+    assert_eq!(leaves.len(), n, "one leaf per core");
+
+    // completeness.csv counts what matches.csv says, and each fraction lies in its interval.
+    let (ch, bins) = csv(&dir.join("score/completeness.csv"));
+    let get = |r: &Vec<String>, c: &str| r[column(&ch, c)].parse::<f64>().unwrap_or(f64::NAN);
+    let injected: f64 = bins.iter().map(|r| get(r, "injected")).sum();
+    let recovered: f64 = bins.iter().map(|r| get(r, "recovered")).sum();
+    assert_eq!(injected, 30.0);
+    assert_eq!(recovered, n as f64);
+    for r in &bins {
+        if get(r, "injected") > 0.0 {
+            let (f, lo, hi) = (
+                get(r, "fraction"),
+                get(r, "fraction_lo"),
+                get(r, "fraction_hi"),
+            );
+            assert!(lo <= f && f <= hi, "{lo} {f} {hi}");
+        }
+    }
+    let report = std::fs::read_to_string(dir.join("score/report.md")).unwrap();
+    assert!(report.contains("# Completeness"), "{report}");
+    assert!(report.contains("mass_excess"), "{report}");
+    assert!(report.contains("completeness limit"), "{report}");
+}
+
+#[test]
+fn injection_is_byte_identical_with_one_and_two_threads() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let mut outs = Vec::new();
+    for threads in ["1", "2"] {
+        let out = format!("inj{threads}");
+        let mut args = vec!["synth", "--into", "base/synth.fits", "-o", &out];
+        args.extend_from_slice(&INJECT);
+        let o = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(&args)
+            .env("RAYON_NUM_THREADS", threads)
+            .current_dir(dir)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        outs.push(out);
+    }
+    for f in ["synth.fits", "synth-truth.csv", "synth-spec.json"] {
+        let a = std::fs::read(dir.join(&outs[0]).join(f)).unwrap();
+        let b = std::fs::read(dir.join(&outs[1]).join(f)).unwrap();
+        assert!(!a.is_empty());
+        assert!(a == b, "{f} differs between 1 and 2 threads");
+    }
+}
+
+#[test]
+fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    // An emission map, a map without a beam, and a map without sky coordinates.
+    for (name, extra) in [
+        ("emission", &["--emission", "850um"][..]),
+        ("nobeam", &["--beam", "0arcsec"][..]),
+    ] {
+        let mut args = vec!["synth", "-o", name, "--size", "128", "--seed", "4", "-q"];
+        args.extend_from_slice(extra);
+        let o = cairn(&args, dir);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let mut h = cairn::header::Header::new();
+    h.set("BUNIT", cairn::header::Value::Str("cm-2".into()), "");
+    h.set("BMAJ", cairn::header::Value::Float(0.005), "");
+    h.set("BMIN", cairn::header::Value::Float(0.005), "");
+    let data = ndarray::Array2::<f32>::from_elem((128, 128), 1e21);
+    cairn::fits_write::write_image_f32(&dir.join("nowcs.fits"), data.view(), &h, false).unwrap();
+
+    let cases: [(&str, &str, &str, &str); 4] = [
+        (
+            "emission/synth.fits",
+            "unconvertible unit (no temperature)",
+            "emission/synth.fits",
+            "--temperature",
+        ),
+        (
+            "nobeam/synth.fits",
+            "no beam",
+            "nobeam/synth.fits",
+            "--beam",
+        ),
+        (
+            "nowcs.fits",
+            "no pixel scale",
+            "nowcs.fits",
+            "no celestial WCS",
+        ),
+        (
+            "base/synth.fits",
+            "cores that cannot be placed",
+            "base/synth.fits",
+            "fewer --cores",
+        ),
+    ];
+    for (map, what, names, says) in cases {
+        // Thirty cores at least 10 arcmin apart on a map 25.6 arcmin wide.
+        let extra: &[&str] = if what.starts_with("cores") {
+            &["--min-separation", "600arcsec"]
+        } else {
+            &[]
+        };
+        let mut args = vec!["synth", "--into", map, "-o", "out"];
+        args.extend_from_slice(&INJECT);
+        args.extend_from_slice(extra);
+        let o = cairn(&args, dir);
+        check_refused(&o, &args, names, says);
+        assert!(!dir.join("out").exists(), "{what}: nothing written");
+    }
+
+    // Two injections into the same map; a run of the first; the truth of the second.
+    assert_eq!(
+        inject(dir, "base/synth.fits", "a", &["--seed", "5"]).code,
+        0
+    );
+    assert_eq!(
+        inject(dir, "base/synth.fits", "b", &["--seed", "6"]).code,
+        0
+    );
+    let o = cairn(
+        &[
+            "segment",
+            "a/synth.fits",
+            "-o",
+            "run",
+            "--distance",
+            "250pc",
+            "--no-figure",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let args = [
+        "compare",
+        "run",
+        "--truth",
+        "b/synth-truth.csv",
+        "-o",
+        "out",
+    ];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "b/synth-truth.csv", "another map");
+    assert!(!dir.join("out").exists());
+    let args = [
+        "compare",
+        "run",
+        "run",
+        "--truth",
+        "a/synth-truth.csv",
+        "-o",
+        "out",
+    ];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "--truth", "give one run folder");
+    assert!(!dir.join("out").exists());
+    // The right truth is accepted.
+    let o = cairn(
+        &[
+            "compare",
+            "run",
+            "--truth",
+            "a/synth-truth.csv",
+            "-o",
+            "out",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(dir.join("out/matches.csv").is_file());
+}
