@@ -84,13 +84,13 @@ overlay.png/.svg and tree.png/.svg unless --no-figure; leaves-grown.fits with --
 Caution: the catalogue's masses carry factor-of-two systematics from dust opacity, temperature and distance
 (mass_err is the map noise only); density, Jeans, Bonnor-Ebert and virial columns use mass_excess.";
 
-const SYNTH_HELP: &str = "With --into MAP: the map's grid, WCS, beam and unit are used (read as segment reads them, with --hdu,
---plane, --unit, --extinction-band, --beam, --wavelength); --cores cores of --core-mass and --core-radius are placed at
-random on valid pixels away from the edges, at least --min-separation apart (default: so each is isolated), convolved with the map's beam, converted
-to its unit (emission maps need --temperature and take --opacity, --opacity-frequency and --beta; extinction maps take
---column-per-av and --av-per-ak) and added to it. Writes NAME.fits (the input's header with HISTORY cards),
-NAME-truth.csv (recording NAME.fits's SHA-256) and NAME-spec.json; the input is never modified.
-Score a segment run of NAME.fits with: cairn compare RUN --truth NAME-truth.csv -o DIR.";
+const SYNTH_HELP: &str = "With --into MAP: the map's grid, WCS, beam and unit are used, read as segment reads them (--hdu, --plane,
+--unit, --extinction-band, --beam, --wavelength); --cores cores of --core-mass and --core-radius are placed at random on
+valid pixels away from the edges, at least --min-separation apart (by default far enough to be isolated), convolved
+with the map's beam, converted to its unit (emission maps need --temperature and take --opacity, --opacity-frequency
+and --beta; extinction maps take --column-per-av and --av-per-ak) and added to it. Writes NAME.fits (the input's
+header with HISTORY cards), NAME-truth.csv (recording NAME.fits's SHA-256) and NAME-spec.json; the input is never
+modified. Score a segment run of NAME.fits with: cairn compare RUN --truth NAME-truth.csv -o DIR.";
 
 #[derive(Args)]
 struct SegmentArgs {
@@ -176,7 +176,8 @@ struct SynthArgs {
     /// Sky frame: icrs, fk5 or galactic [default: icrs].
     #[arg(conflicts_with = "into", long, value_name = "FRAME")]
     frame: Option<String>,
-    /// Distance of the invented cloud, such as 250pc [default: 250pc].
+    /// Distance of the invented cloud, such as 250pc [default: 250pc]; with --into, the
+    /// distance of the map's cloud (needed).
     #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     distance: Option<String>,
     /// Beam FWHM, such as 18arcsec; 0arcsec for no smoothing [default: 18arcsec]. With --into:

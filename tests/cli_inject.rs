@@ -310,6 +310,24 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
         assert!(!dir.join("out").exists(), "{what}: nothing written");
     }
 
+    // Options that describe a synthetic map have no meaning with --into.
+    let args = [
+        "synth",
+        "--into",
+        "base/synth.fits",
+        "-o",
+        "out",
+        "--distance",
+        "250pc",
+        "--cores",
+        "3",
+        "--size",
+        "100",
+    ];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "--size", "cannot be used with");
+    assert!(!dir.join("out").exists());
+
     // Two injections into the same map; a run of the first; the truth of the second.
     assert_eq!(
         inject(dir, "base/synth.fits", "a", &["--seed", "5"]).code,
@@ -371,4 +389,73 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(dir.join("out/matches.csv").is_file());
+}
+
+#[test]
+fn cores_are_placed_on_valid_pixels_at_the_minimum_separation() {
+    // A map of an invented cloud whose left half is missing.
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let full = cairn::map::load(
+        &dir.join("base/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let mut data = full.data.clone();
+    for ((_, x), v) in data.indexed_iter_mut() {
+        if x < 128 {
+            *v = f32::NAN;
+        }
+    }
+    let path = dir.join("half.fits");
+    cairn::fits_write::write_image_f32(&path, data.view(), &full.header, false).unwrap();
+    let m = cairn::map::load(&path, &cairn::map::LoadOptions::default()).unwrap();
+    let ctx = cairn::score::Context {
+        distance_m: Some(250.0 * cairn::physics::constants::PC),
+        ..cairn::score::Context::default()
+    };
+    let opts = cairn::inject::InjectOptions {
+        population: cairn::synth::CorePopulation {
+            count: 12,
+            mass_min_msun: 1.0,
+            mass_max_msun: 2.0,
+            mass_index: 2.35,
+            radius_min_pc: 0.01,
+            radius_max_pc: 0.02,
+            profile: cairn::synth::Profile::Gaussian,
+            margin_px: 0.0,
+        },
+        distance_pc: 250.0,
+        seed: 11,
+        min_separation_arcsec: Some(120.0),
+    };
+    let inj = cairn::inject::inject(&m, &ctx, &opts).unwrap();
+    assert_eq!(inj.truth.len(), 12);
+    // 6" pixels: 120" is 20 pixels.
+    for (i, a) in inj.truth.iter().enumerate() {
+        assert!(a.x >= 128.0 && a.x <= 255.0 - inj.margin_px, "x {}", a.x);
+        assert!(
+            a.y >= inj.margin_px && a.y <= 255.0 - inj.margin_px,
+            "y {}",
+            a.y
+        );
+        assert!(m.data[(a.y.round() as usize, a.x.round() as usize)].is_finite());
+        for b in &inj.truth[..i] {
+            let sep = (a.x - b.x).hypot(a.y - b.y);
+            assert!(
+                sep >= 20.0 - 1e-9,
+                "cores {} and {} {sep} px apart",
+                a.id,
+                b.id
+            );
+        }
+    }
+    // Missing pixels stay missing.
+    assert!(
+        inj.data
+            .iter()
+            .zip(m.data.iter())
+            .all(|(a, b)| a.is_nan() == b.is_nan())
+    );
 }
