@@ -269,7 +269,24 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
     let data = ndarray::Array2::<f32>::from_elem((128, 128), 1e21);
     cairn::fits_write::write_image_f32(&dir.join("nowcs.fits"), data.view(), &h, false).unwrap();
 
-    let cases: [(&str, &str, &str, &str); 4] = [
+    // A map in a unit that holds no column density (a brightness temperature).
+    let base = cairn::map::load(
+        &dir.join("base/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let mut h = base.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("K".into()), "");
+    cairn::fits_write::write_image_f32(&dir.join("kelvin.fits"), base.data.view(), &h, false)
+        .unwrap();
+
+    let cases: [(&str, &str, &str, &str); 5] = [
+        (
+            "kelvin.fits",
+            "unit that is no column density",
+            "kelvin.fits",
+            "give --unit",
+        ),
         (
             "emission/synth.fits",
             "unconvertible unit (no temperature)",
