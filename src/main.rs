@@ -1550,7 +1550,7 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     }
     if a.runs.len() < 2 {
         return Err(Error::usage(
-            "compare needs at least two runs; give two or more run folders (or their structures.csv files).",
+            "compare needs at least two runs; give two or more run folders (or their structures.csv files), or one run with --truth to score it against injected cores.",
         ));
     }
     if !a.label.is_empty() && a.label.len() != a.runs.len() {
