@@ -495,33 +495,7 @@ fn injected_header(
     separation_arcsec: f64,
     n: usize,
 ) -> Header {
-    let drop = |k: &str| {
-        matches!(
-            k,
-            "XTENSION"
-                | "PCOUNT"
-                | "GCOUNT"
-                | "BSCALE"
-                | "BZERO"
-                | "BLANK"
-                | "CHECKSUM"
-                | "DATASUM"
-        ) || compressed_key(k)
-    };
-    let mut cards: Vec<Card> = map
-        .header
-        .cards()
-        .iter()
-        .filter(|c| !(c.value.is_some() && drop(&c.key)))
-        .cloned()
-        .collect();
-    if let Some(Card {
-        value: Some(v @ Value::Int(_)),
-        ..
-    }) = cards.iter_mut().find(|c| c.key == "WCSAXES")
-    {
-        *v = Value::Int(2);
-    }
+    let mut cards = image_header(map).cards().to_vec();
     let t = crate::units::tidy;
     let profile = match p.profile {
         synth::Profile::Gaussian => "Gaussian".to_string(),
@@ -561,6 +535,56 @@ fn injected_header(
         });
     }
     Header::from_cards(cards)
+}
+
+/// The header of `map` for a 32-bit float copy of its image: the input's cards without the
+/// structural, scaling, checksum and tile-compression keywords (the writer adds its own);
+/// WCSAXES at 2; and for a plane of a cube, the reference pixel of the plane's axis moved so
+/// that the copy's one pixel along that axis (p = 1) is the plane taken, so the copy keeps the
+/// plane's frequency or wavelength.
+pub fn image_header(map: &Map) -> Header {
+    let drop = |k: &str| {
+        matches!(
+            k,
+            "XTENSION"
+                | "PCOUNT"
+                | "GCOUNT"
+                | "BSCALE"
+                | "BZERO"
+                | "BLANK"
+                | "CHECKSUM"
+                | "DATASUM"
+        ) || compressed_key(k)
+    };
+    let mut cards: Vec<Card> = map
+        .header
+        .cards()
+        .iter()
+        .filter(|c| !(c.value.is_some() && drop(&c.key)))
+        .cloned()
+        .collect();
+    if let Some(Card {
+        value: Some(v @ Value::Int(_)),
+        ..
+    }) = cards.iter_mut().find(|c| c.key == "WCSAXES")
+    {
+        *v = Value::Int(2);
+    }
+    let mut h = Header::from_cards(cards);
+    if let Some(k) = map.plane {
+        // The plane's axis: the one extra axis longer than 1 (1-based number).
+        if let Some(axis) = (2..map.stored_axes.len()).find(|&i| map.stored_axes[i] > 1) {
+            let key = format!("CRPIX{}", axis + 1);
+            // A missing CRPIXn is 0 (FITS WCS Paper I, Greisen & Calabretta 2002).
+            let crpix = h.get_f64(&key).unwrap_or(0.0);
+            h.set(
+                &key,
+                Value::Float(crpix - k as f64),
+                "moved to the plane taken",
+            );
+        }
+    }
+    h
 }
 
 /// Keywords of a tile-compressed image's table (FITS Standard 4.0, section 10), which an

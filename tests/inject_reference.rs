@@ -166,3 +166,47 @@ fn an_injected_core_holds_its_mass_in_the_map_unit_by_astropy() {
         assert_close(peak, truth[0].peak, 1e-6, 0.0, "truth peak in the map");
     }
 }
+
+#[test]
+fn a_plane_of_a_cube_keeps_its_wavelength_in_the_injected_map_as_astropy_gives_it() {
+    // Source: astropy 8.0.2 WCS.spectral.pixel_to_world of each plane
+    // (fixtures/fits/spectral.json, written by tests/oracle/fits_astropy.py): the header of
+    // the 2-D copy that synth --into writes of one plane must give that plane's wavelength.
+    let v = fixture_json("fits/spectral.json");
+    assert_eq!(v["astropy"], "8.0.2");
+    let dir = tempfile::tempdir().unwrap();
+    for name in ["cube_freq.fits", "cube_wave.fits", "cube_freqlog.fits"] {
+        let r = &v["files"][name];
+        let planes = common::nums(&r["planes"]);
+        assert!(planes.len() >= 3, "{name}");
+        for (i, &p) in planes.iter().enumerate() {
+            let opts = LoadOptions {
+                plane: Some(p as usize),
+                ..LoadOptions::default()
+            };
+            let m = map::load(&common::fixture_path(&format!("fits/{name}")), &opts).unwrap();
+            let out = dir.path().join(format!("{name}-{p}.fits"));
+            cairn::fits_write::write_image_f32(
+                &out,
+                m.data.view(),
+                &cairn::inject::image_header(&m),
+                false,
+            )
+            .unwrap();
+            let copy = map::load(&out, &LoadOptions::default()).unwrap();
+            let reference = if name == "cube_wave.fits" {
+                num(&r["wavelength_m"][i])
+            } else {
+                cairn::units::C_LIGHT / num(&r["frequency_hz"][i])
+            };
+            assert_close(
+                copy.wavelength_m.unwrap_or(f64::NAN),
+                reference,
+                1e-12,
+                0.0,
+                &format!("{name} plane {p} copied (astropy 8.0.2)"),
+            );
+            assert_eq!(copy.data, m.data, "{name} plane {p}: the pixels");
+        }
+    }
+}
