@@ -354,6 +354,14 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
         inject(dir, "base/synth.fits", "b", &["--seed", "6"]).code,
         0
     );
+    // An earlier injection is not replaced without --force.
+    let truth_a = std::fs::read(dir.join("a/synth-truth.csv")).unwrap();
+    let o = inject(dir, "base/synth.fits", "a", &["--seed", "7"]);
+    check_refused(&o, &["synth", "--into", "-o", "a"], "a", "--force");
+    assert_eq!(
+        std::fs::read(dir.join("a/synth-truth.csv")).unwrap(),
+        truth_a
+    );
     let o = cairn(
         &[
             "segment",
