@@ -1144,7 +1144,14 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
     drop(bar);
     fits_write::write_image_f32(&outputs.temp(&names[0]), map.data.view(), &map.header, true)
         .map_err(|e| Error::output(&a.output.join(&names[0]), e.0))?;
-    synth::write_truth_csv(&outputs.temp(&names[1]), &map.truth).map_err(|e| {
+    // The truth names its map by SHA-256, so that `compare --truth` can check a run is of it.
+    let sha = cairn::segment::sha256_file(&outputs.temp(&names[0]))?;
+    synth::write_truth_csv_with_notes(
+        &outputs.temp(&names[1]),
+        &map.truth,
+        &[cairn::completeness::map_note(&names[0], &sha)],
+    )
+    .map_err(|e| {
         Error::output(
             &a.output.join(&names[1]),
             format!("cannot be written ({e})."),

@@ -215,6 +215,23 @@ fn bright_isolated_injected_cores_are_recovered_and_the_input_is_untouched() {
         }
     }
     let report = std::fs::read_to_string(dir.join("score/report.md")).unwrap();
+    // The truth of the synthetic base map holds no core: refused by name.
+    let base_args = [
+        "compare",
+        "run",
+        "--truth",
+        "base/synth-truth.csv",
+        "-o",
+        "nobase",
+    ];
+    let o = cairn(&base_args, dir);
+    check_refused(
+        &o,
+        &base_args,
+        "base/synth-truth.csv",
+        "holds no injected core",
+    );
+    assert!(!dir.join("nobase").exists());
     assert!(report.contains("# Completeness"), "{report}");
     assert!(report.contains("mass_excess"), "{report}");
     assert!(report.contains("completeness limit"), "{report}");
@@ -399,6 +416,57 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
     let o = cairn(&args, dir);
     check_refused(&o, &args, "--truth", "give one run folder");
     assert!(!dir.join("out").exists());
+    // The truth written by plain synth scores a run of its own map.
+    let o = cairn(
+        &[
+            "synth",
+            "-o",
+            "plain",
+            "--size",
+            "128",
+            "--cores",
+            "4",
+            "--core-mass",
+            "5Msun,8Msun",
+            "--seed",
+            "8",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "segment",
+            "plain/synth.fits",
+            "-o",
+            "plainrun",
+            "--distance",
+            "250pc",
+            "--no-figure",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "compare",
+            "plainrun",
+            "--truth",
+            "plain/synth-truth.csv",
+            "-o",
+            "plainscore",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stdout.contains("of 4 injected cores recovered"),
+        "{}",
+        o.stdout
+    );
     // The right truth is accepted.
     let o = cairn(
         &[
