@@ -1244,7 +1244,11 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         )));
     }
     let m = map::load(path, &opts)?;
-    let ctx = physics.context(&m)?;
+    let mut notes = Vec::new();
+    let ctx = physics.context(&m, &mut notes)?;
+    for n in &notes {
+        errln!("warning: {n}");
+    }
     let distance_pc = ctx.distance_m.unwrap_or(f64::NAN) / units::PARSEC;
     let inject_opts = cairn::inject::InjectOptions {
         population: synth::CorePopulation {
