@@ -552,3 +552,55 @@ fn cores_are_placed_on_valid_pixels_at_the_minimum_separation() {
             .all(|(a, b)| a.is_nan() == b.is_nan())
     );
 }
+
+/// The demo maps' truth tables name their maps by SHA-256 (as `cairn synth` writes them), so a
+/// run of a demo map is scored against its own truth: every core has its row in matches.csv,
+/// and the truth of the other demo map (another file) is refused.
+#[test]
+fn a_demo_maps_truth_scores_a_run_of_it() {
+    let d = tempfile::tempdir().unwrap();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps");
+    let map = demo.join("velloran-column.fits");
+    let o = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "run",
+            "--distance",
+            "410pc",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let truth = demo.join("velloran-column-truth.csv");
+    let o = cairn(
+        &[
+            "compare",
+            "run",
+            "--truth",
+            truth.to_str().unwrap(),
+            "-o",
+            "scored",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let (_, cores) = csv(&truth);
+    let (_, matches) = csv(&d.path().join("scored/matches.csv"));
+    assert_eq!(matches.len(), cores.len());
+    let other = demo.join("velloran-850um-truth.csv");
+    let args = [
+        "compare",
+        "run",
+        "--truth",
+        other.to_str().unwrap(),
+        "-o",
+        "scored2",
+    ];
+    let o = cairn(&args, d.path());
+    check_refused(&o, &args, "velloran-850um-truth.csv", "another map");
+}

@@ -25,8 +25,16 @@ fn demo_maps_are_reproducible_from_their_specifications() {
             std::fs::read(&out).unwrap() == stored,
             "{name}.fits differs from what its spec makes now"
         );
+        // The truth names its map by SHA-256, as `cairn synth` writes it, so that `compare
+        // --truth` scores runs of the demo maps.
         let truth = tmp.path().join(format!("{name}-truth.csv"));
-        cairn::synth::write_truth_csv(&truth, &map.truth).unwrap();
+        let sha = cairn::segment::sha256_file(&out).unwrap();
+        cairn::synth::write_truth_csv_with_notes(
+            &truth,
+            &map.truth,
+            &[cairn::completeness::map_note(&format!("{name}.fits"), &sha)],
+        )
+        .unwrap();
         assert_eq!(
             std::fs::read(&truth).unwrap(),
             std::fs::read(dir.join(format!("{name}-truth.csv"))).unwrap()
