@@ -43,6 +43,31 @@ pub struct Population {
     pub run: serde_json::Value,
 }
 
+/// The number in column `i` of row `n` (zero-based) of the catalogue `csv` whose column names
+/// are `header`: an empty cell is a missing value (NaN); any other text must be a number.
+pub(crate) fn catalogue_number(
+    csv: &Path,
+    header: &[String],
+    row: &[String],
+    n: usize,
+    i: usize,
+) -> Result<f64> {
+    let v = row.get(i).map(String::as_str).unwrap_or("");
+    if v.is_empty() {
+        return Ok(f64::NAN);
+    }
+    v.parse::<f64>().map_err(|_| {
+        Error::input(
+            csv,
+            format!(
+                "row {} holds '{v}' in the numeric column '{}': the catalogue is damaged; run cairn segment again.",
+                n + 1,
+                header[i]
+            ),
+        )
+    })
+}
+
 fn read_text(path: &Path) -> Result<String> {
     std::fs::read_to_string(path).map_err(|e| {
         Error::input(
@@ -102,23 +127,7 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
                 ),
             ));
         }
-        // An empty cell is a missing value; any other text must be a number.
-        let num = |i: usize| -> Result<f64> {
-            let v = r.get(i).map(String::as_str).unwrap_or("");
-            if v.is_empty() {
-                return Ok(f64::NAN);
-            }
-            v.parse::<f64>().map_err(|_| {
-                Error::input(
-                    &csv,
-                    format!(
-                        "row {} holds '{v}' in the numeric column '{}': the catalogue is damaged; run cairn segment again.",
-                        n + 1,
-                        header[i]
-                    ),
-                )
-            })
-        };
+        let num = |i: usize| catalogue_number(&csv, &header, r, n, i);
         let (m, rad) = (num(mass)?, num(radius)?);
         let dens = match density {
             Some(i) => num(i)?,

@@ -247,22 +247,7 @@ pub fn read_run(path: &Path) -> Result<Run> {
         if r.get(kind).map(String::as_str) != Some("leaf") {
             continue;
         }
-        let num = |i: usize| -> Result<f64> {
-            let v = r.get(i).map(String::as_str).unwrap_or("");
-            if v.is_empty() {
-                return Ok(f64::NAN);
-            }
-            v.parse::<f64>().map_err(|_| {
-                Error::input(
-                    &csv,
-                    format!(
-                        "row {} holds '{v}' in the numeric column '{}': the catalogue is damaged; run cairn segment again.",
-                        n + 1,
-                        header[i]
-                    ),
-                )
-            })
-        };
+        let num = |i: usize| crate::compare::catalogue_number(&csv, &header, r, n, i);
         leaves.push(Leaf {
             id: num(id)? as i64,
             lon: num(clon)?,
