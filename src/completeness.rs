@@ -465,6 +465,49 @@ pub fn score(truth: &Truth, run: &Run, bin_dex: f64) -> Scoring {
     }
 }
 
+/// The completeness plot: the recovered fraction in each occupied bin of true mass (at the
+/// bin's geometric centre, spanning the bin, with its Wilson interval), a guide at 90%, and the
+/// limit and counts as notes.
+pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
+    use crate::render::plot::{AxisScale, Guide, Plot, Series};
+    let occupied: Vec<&Bin> = s.bins.iter().filter(|b| b.injected > 0).collect();
+    let (lo, hi) = (
+        occupied.first().map(|b| b.lo).unwrap_or(0.1),
+        occupied.last().map(|b| b.hi).unwrap_or(10.0),
+    );
+    let found = s.matches.iter().filter(|m| m.is_some()).count();
+    Plot {
+        x_label: "true mass [M_{sun}]".into(),
+        y_label: "recovered fraction".into(),
+        x_scale: AxisScale::Log10,
+        y_scale: AxisScale::Linear,
+        y_range: Some((0.0, 1.05)),
+        series: vec![Series {
+            label: String::new(),
+            style: 0,
+            points: occupied
+                .iter()
+                .map(|b| ((b.lo * b.hi).sqrt(), b.fraction))
+                .collect(),
+            y_errors: Some(occupied.iter().map(|b| (b.ci_lo, b.ci_hi)).collect()),
+            x_errors: Some(occupied.iter().map(|b| (b.lo, b.hi)).collect()),
+            ..Default::default()
+        }],
+        guides: vec![Guide {
+            label: "90%".into(),
+            points: vec![(lo, 0.9), (hi, 0.9)],
+        }],
+        notes: vec![
+            format!("{found} of {} injected cores recovered", s.matches.len()),
+            match s.limit_90 {
+                Some(m) => format!("90% complete above {m:.3} M_{{sun}}"),
+                None => "never 90% complete".into(),
+            },
+        ],
+        ..Default::default()
+    }
+}
+
 /// matches.csv: one row per injected core.
 pub fn matches_table(truth: &Truth, run: &Run, s: &Scoring) -> Table {
     let mut t = Table {
@@ -702,6 +745,37 @@ fn fmt_ratio(x: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The plot shows each occupied bin's fraction at its geometric centre, spanning the bin,
+    /// with its Wilson interval (the completeness table's numbers), and the 90% guide.
+    #[test]
+    fn the_plot_carries_the_bins_of_the_table() {
+        let masses = [0.12, 0.13, 0.5, 0.55, 0.6, 2.0, 2.2, 9.0];
+        let found = [false, true, true, false, true, true, true, true];
+        let b = bins(&masses, &found, 0.5);
+        let s = Scoring {
+            matches: found.iter().map(|&f| f.then_some((0usize, 1.0))).collect(),
+            limit_90: completeness_limit(&b, 0.9),
+            bins: b.clone(),
+            median_mass_ratio: f64::NAN,
+            median_excess_ratio: f64::NAN,
+            radius_arcsec: 10.0,
+            bin_dex: 0.5,
+        };
+        let p = plot(&s);
+        let occupied: Vec<&Bin> = b.iter().filter(|x| x.injected > 0).collect();
+        let series = &p.series[0];
+        assert_eq!(series.points.len(), occupied.len());
+        for (k, bin) in occupied.iter().enumerate() {
+            let (x, y) = series.points[k];
+            assert!((x - (bin.lo * bin.hi).sqrt()).abs() < 1e-12 * x);
+            assert_eq!(y, bin.fraction);
+            assert_eq!(series.y_errors.as_ref().unwrap()[k], (bin.ci_lo, bin.ci_hi));
+            assert_eq!(series.x_errors.as_ref().unwrap()[k], (bin.lo, bin.hi));
+        }
+        assert!(p.guides[0].points.iter().all(|&(_, y)| y == 0.9));
+        assert!(p.notes[0].starts_with("6 of 8 injected cores recovered"));
+    }
 
     fn bin(lo: f64, injected: usize, recovered: usize) -> Bin {
         Bin {

@@ -760,7 +760,8 @@ struct CompareArgs {
     #[arg(required = true, num_args = 1..)]
     runs: Vec<PathBuf>,
     /// Score one run against the truth table of the cores injected into its map
-    /// (NAME-truth.csv of `cairn synth --into`): matches.csv, completeness.csv, report.md.
+    /// (NAME-truth.csv of `cairn synth --into`): matches.csv, completeness.csv, report.md and
+    /// the completeness plot.
     #[arg(long, value_name = "FILE")]
     truth: Option<PathBuf>,
     /// A name for each run, in order [default: the folder names].
@@ -1354,7 +1355,26 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
     let run = completeness::read_run(&a.runs[0])?;
     completeness::check_same_map(&truth, &run)?;
     let s = completeness::score(&truth, &run, a.bin_width);
+    if a.width < 600 || a.width > 20000 {
+        return Err(Error::usage(format!(
+            "--width {} is outside 600 to 20000 pixels; give a plot width in that range.",
+            a.width
+        )));
+    }
+    let plot = completeness::plot(&s);
+    let plot_err =
+        |e: cairn::render::RenderError| Error::usage(format!("cannot draw the plot: {e}."));
     let files: Vec<(String, Vec<u8>)> = vec![
+        (
+            "completeness.png".into(),
+            cairn::render::plot::plot_png(&plot, a.width, 300.0).map_err(plot_err)?,
+        ),
+        (
+            "completeness.svg".into(),
+            cairn::render::plot::plot_svg(&plot, a.width, 300.0)
+                .map_err(plot_err)?
+                .into_bytes(),
+        ),
         (
             "matches.csv".into(),
             completeness::matches_table(&truth, &run, &s)
