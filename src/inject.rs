@@ -7,14 +7,18 @@
 //!
 //! * Masses and radii are drawn as `synth` draws its random population (same seed, same
 //!   stream). Each core's first position is the one `synth` would draw; a position is kept
-//!   when the pixels within one beam FWHM of it are all valid (not missing) and it lies at
+//!   when the pixels within the core's reach are all valid (not missing) and it lies at
 //!   least the minimum separation from
 //!   every core placed before it; otherwise further positions come from a stream of their own,
 //!   up to [`TRIES_PER_CORE`] per core. The default separation is twice the width of the
 //!   widest core as observed (twice its radius, the FWHM of a Gaussian core or the diameter of
 //!   a Bonnor-Ebert one, and the beam's major axis in quadrature), so that each core is
-//!   isolated: at least two beam FWHMs, more for cores larger than the beam. Positions keep [`MIN_MARGIN_PX`] pixels or two beam
-//!   FWHMs, whichever is more, from every edge.
+//!   isolated: at least two beam FWHMs, more for cores larger than the beam. A core's reach
+//!   is four standard deviations of the core convolved with the beam (a Bonnor-Ebert core: its
+//!   outer radius and four of the beam's), which holds all but 3e-4 of a Gaussian core's
+//!   mass, so the mass added to the map is the mass the truth records, next to missing
+//!   pixels too. Positions keep [`MIN_MARGIN_PX`] pixels, two beam FWHMs or the widest
+//!   core's reach, whichever is most, from every edge.
 //! * Each core's H2 column density is rendered exactly as `synth` renders it, with square
 //!   pixels of the map's solid angle at the core (the mass is exact on the grid:
 //!   sum N(H2) Omega_pix d^2 mu_H2 m_H = M, which is how `segment` measures masses).
@@ -129,7 +133,28 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         .hypot(beam.major_deg * 3600.0);
     let separation_arcsec = opts.min_separation_arcsec.unwrap_or(2.0 * widest_arcsec);
     let sep_px = separation_arcsec / pix_arcsec;
-    let margin = MIN_MARGIN_PX.max(2.0 * fwhm_major_px).ceil();
+    // How far a core's mass reaches on the map, in pixels: four standard deviations of a
+    // Gaussian core convolved with the beam (all but 3e-4 of its mass), or a Bonnor-Ebert
+    // core's outer radius plus four of the beam's. Cores are placed so that this disc lies on
+    // the map and on valid pixels, so the mass added is the mass recorded.
+    let sigma_beam_px = fwhm_major_px / (8.0 * std::f64::consts::LN_2).sqrt();
+    let reach_px = |radius_pc: f64, profile: synth::Profile| -> f64 {
+        let r_px = radius_pc / opts.distance_pc / ARCSEC / pix_arcsec;
+        let reach = match profile {
+            synth::Profile::Gaussian => {
+                4.0 * (r_px / (2.0 * std::f64::consts::LN_2).sqrt()).hypot(sigma_beam_px)
+            }
+            synth::Profile::BonnorEbert { .. } => r_px + 4.0 * sigma_beam_px,
+        };
+        reach.max(1.0)
+    };
+    let margin = MIN_MARGIN_PX
+        .max(2.0 * fwhm_major_px)
+        .max(reach_px(
+            opts.population.radius_max_pc,
+            opts.population.profile,
+        ))
+        .ceil();
     let p = &opts.population;
     if p.count == 0 || p.count > MAX_CORES {
         return Err(Error::usage(format!(
@@ -141,7 +166,7 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         return Err(cannot(
             map,
             &format!(
-                "is {nx} x {ny} pixels, too small to hold cores {margin} pixels (two beam FWHMs, at least {MIN_MARGIN_PX}) from every edge; give a larger map."
+                "is {nx} x {ny} pixels, too small to hold cores {margin} pixels (at least two beam FWHMs, {MIN_MARGIN_PX} pixels and the widest core's reach) from every edge; give a larger map or a smaller --core-radius."
             ),
         ));
     }
@@ -165,8 +190,7 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
     let mut cores = synth::all_cores(&base);
 
     // Placement.
-    let valid_radius = (0.5 * fwhm_major_px).max(1.0);
-    let valid = |x: f64, y: f64| -> bool {
+    let valid = |x: f64, y: f64, valid_radius: f64| -> bool {
         let r = valid_radius.ceil() as i64;
         let (xi, yi) = (x.round() as i64, y.round() as i64);
         for dy in -r..=r {
@@ -195,14 +219,15 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         ny as f64 - 1.0 - 2.0 * margin,
     );
     for (i, c) in cores.iter_mut().enumerate() {
-        let mut ok = valid(c.x, c.y) && far(c.x, c.y, &placed);
+        let reach = reach_px(c.radius_pc, c.profile);
+        let mut ok = valid(c.x, c.y, reach) && far(c.x, c.y, &placed);
         let mut tries = 0;
         while !ok && tries < TRIES_PER_CORE {
             use rand::RngExt;
             let (fx, fy): (f64, f64) = (r.random(), r.random());
             c.x = margin + fx * w_in;
             c.y = margin + fy * h_in;
-            ok = valid(c.x, c.y) && far(c.x, c.y, &placed);
+            ok = valid(c.x, c.y, reach) && far(c.x, c.y, &placed);
             tries += 1;
         }
         if !ok {
