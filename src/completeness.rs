@@ -227,9 +227,14 @@ pub fn read_run(path: &Path) -> Result<Run> {
     let beam_fwhm_arcsec = (maj * min).sqrt() * 3600.0;
     let (header, rows) = crate::table::read_catalogue_csv(&csv, &catalogue)?;
     let col = |name: &str| header.iter().position(|h| h == name);
-    let peak_cols = [("ra_peak", "dec_peak"), ("glon_peak", "glat_peak")]
-        .iter()
-        .find_map(|(a, b)| Some((col(a)?, col(b)?)));
+    // The peak in the map's own frame, as segment names it (`segment::sky_names`).
+    let peak_cols = [
+        ("ra_peak", "dec_peak"),
+        ("glon_peak", "glat_peak"),
+        ("lon_peak", "lat_peak"),
+    ]
+    .iter()
+    .find_map(|(a, b)| Some((col(a)?, col(b)?)));
     let (Some(kind), Some(id), Some((clon, clat)), Some(cm), Some(cme)) = (
         col("kind"),
         col("id"),
@@ -278,9 +283,9 @@ pub fn check_same_map(truth: &Truth, run: &Run) -> Result<()> {
             format!(
                 "belongs to the map {} (SHA-256 {}...), but the run {} was made on another map (SHA-256 {}...); segment that injected map and score its run, or give the truth table of the map the run was made on.",
                 truth.map_name.as_deref().unwrap_or("?"),
-                &sha[..sha.len().min(12)],
+                sha.chars().take(12).collect::<String>(),
                 run.catalogue.display(),
-                &run.input_sha256[..run.input_sha256.len().min(12)]
+                run.input_sha256.chars().take(12).collect::<String>()
             ),
         ));
     }
@@ -404,6 +409,25 @@ pub fn completeness_limit(bins: &[Bin], level: f64) -> Option<f64> {
     limit
 }
 
+/// The completeness limit at `level` ([`completeness_limit`]) raised to the least mass
+/// injected in its bin when that is higher (nothing lighter was tried there), and whether its
+/// bin is the lowest occupied one (then the true limit lies at or below that mass).
+pub fn limit_of(bins: &[Bin], masses: &[f64], level: f64) -> (Option<f64>, bool) {
+    let Some(lo) = completeness_limit(bins, level) else {
+        return (None, false);
+    };
+    let Some(bin) = bins.iter().find(|b| b.lo == lo) else {
+        return (Some(lo), false);
+    };
+    let least = masses
+        .iter()
+        .copied()
+        .filter(|&m| m >= bin.lo * (1.0 - 1e-12) && m < bin.hi)
+        .fold(f64::INFINITY, f64::min);
+    let lowest = bins.iter().find(|b| b.injected > 0).map(|b| b.lo) == Some(lo);
+    (Some(least.clamp(bin.lo, bin.hi)), lowest)
+}
+
 /// The median of finite values (mean of the middle two for an even count); NaN if none.
 pub fn median(values: &[f64]) -> f64 {
     let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
@@ -426,8 +450,12 @@ pub struct Scoring {
     pub matches: Vec<Option<(usize, f64)>>,
     /// Completeness per bin.
     pub bins: Vec<Bin>,
-    /// The 90% completeness limit \[M_sun\].
+    /// The 90% completeness limit \[M_sun\]: the lower edge of the limit's bin, or the least
+    /// injected mass in it when that is higher (nothing lighter was tried there).
     pub limit_90: Option<f64>,
+    /// Whether the limit's bin is the lowest occupied one, so the true limit lies at or below
+    /// the least injected mass.
+    pub limit_at_lowest: bool,
     /// Median recovered `mass` / true mass of matched cores.
     pub median_mass_ratio: f64,
     /// Median recovered `mass_excess` / true mass of matched cores.
@@ -454,8 +482,10 @@ pub fn score(truth: &Truth, run: &Run, bin_dex: f64) -> Scoring {
             .filter_map(|(m, c)| m.map(|(j, _)| f(&run.leaves[j]) / c.mass))
             .collect()
     };
+    let (limit_90, limit_at_lowest) = limit_of(&bins, &masses, 0.9);
     Scoring {
-        limit_90: completeness_limit(&bins, 0.9),
+        limit_at_lowest,
+        limit_90,
         median_mass_ratio: median(&ratio(&|l| l.mass)),
         median_excess_ratio: median(&ratio(&|l| l.mass_excess)),
         matches,
@@ -500,6 +530,9 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
         notes: vec![
             format!("{found} of {} injected cores recovered", s.matches.len()),
             match s.limit_90 {
+                Some(m) if s.limit_at_lowest => {
+                    format!("90% complete down to the least injected mass, {m:.3} M_{{sun}}")
+                }
                 Some(m) => format!("90% complete above {m:.3} M_{{sun}}"),
                 None => "never 90% complete".into(),
             },
@@ -708,10 +741,16 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
         crate::units::tidy(s.bin_dex)
     );
     match s.limit_90 {
+        Some(m) if s.limit_at_lowest => {
+            let _ = writeln!(
+                r,
+                "**90% complete down to the least injected mass, {m:.3} Msun**: every bin with injected cores recovers at least 90% of them, so the limit lies at or below that mass; inject lighter cores to find it.\n"
+            );
+        }
         Some(m) => {
             let _ = writeln!(
                 r,
-                "**90% completeness limit: {m:.3} Msun.** Found by walking the bins down from the most massive: this is the lower edge of the lowest bin from which every bin above it that holds injected cores recovers at least 90% of them. Bins holding few cores make it uncertain (see their intervals); inject more cores for a firmer limit.\n"
+                "**90% completeness limit: {m:.3} Msun.** Found by walking the bins down from the most massive: this is the lower edge of the lowest bin from which every bin above it that holds injected cores recovers at least 90% of them (or the least mass injected in that bin, if higher). Bins holding few cores make it uncertain (see their intervals); inject more cores for a firmer limit.\n"
             );
         }
         None => {
@@ -746,6 +785,23 @@ fn fmt_ratio(x: f64) -> String {
 mod tests {
     use super::*;
 
+    /// A limit is never below the masses tried: with every bin above 90%, the limit is the
+    /// least injected mass (2 Msun), not the lower edge of its bin (10^0.2 = 1.585), and it is
+    /// said to lie at or below it; when a lower bin fails, the limit is the next bin's least
+    /// mass if that lies above its edge.
+    #[test]
+    fn the_limit_is_never_below_the_masses_tried() {
+        let masses = [2.0, 2.2, 3.0, 4.0, 5.0];
+        let b = bins(&masses, &[true; 5], 0.2);
+        assert!((b[0].lo - 10f64.powf(0.2)).abs() < 1e-12);
+        assert_eq!(limit_of(&b, &masses, 0.9), (Some(2.0), true));
+        let masses = [1.0, 1.1, 2.0, 2.2, 3.0];
+        let found = [false, false, true, true, true];
+        let b = bins(&masses, &found, 0.2);
+        assert_eq!(limit_of(&b, &masses, 0.9), (Some(2.0), false));
+        assert!(limit_of(&b, &masses, 0.9).0.unwrap() > b[1].lo);
+    }
+
     /// The plot shows each occupied bin's fraction at its geometric centre, spanning the bin,
     /// with its Wilson interval (the completeness table's numbers), and the 90% guide.
     #[test]
@@ -756,6 +812,7 @@ mod tests {
         let s = Scoring {
             matches: found.iter().map(|&f| f.then_some((0usize, 1.0))).collect(),
             limit_90: completeness_limit(&b, 0.9),
+            limit_at_lowest: false,
             bins: b.clone(),
             median_mass_ratio: f64::NAN,
             median_excess_ratio: f64::NAN,

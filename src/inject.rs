@@ -563,7 +563,8 @@ fn injected_header(
 }
 
 /// The header of `map` for a 32-bit float copy of its image: the input's cards without the
-/// structural, scaling, checksum and tile-compression keywords (the writer adds its own);
+/// structural, scaling, checksum, data-range (DATAMIN/DATAMAX, stale once cores are added)
+/// and tile-compression keywords (the writer adds its own);
 /// WCSAXES at 2; and for a plane of a cube, the reference pixel of the plane's axis moved so
 /// that the copy's one pixel along that axis (p = 1) is the plane taken, so the copy keeps the
 /// plane's frequency or wavelength.
@@ -579,6 +580,8 @@ pub fn image_header(map: &Map) -> Header {
                 | "BLANK"
                 | "CHECKSUM"
                 | "DATASUM"
+                | "DATAMIN"
+                | "DATAMAX"
         ) || compressed_key(k)
     };
     let mut cards: Vec<Card> = map

@@ -1400,11 +1400,15 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
     let written = outputs.commit()?;
     let k = s.matches.iter().filter(|m| m.is_some()).count();
     outln!(
-        "{k} of {} injected cores recovered; 90% complete above {}; median mass_excess / true mass {}",
+        "{k} of {} injected cores recovered; {}; median mass_excess / true mass {}",
         truth.cores.len(),
-        s.limit_90
-            .map(|m| format!("{m:.3} Msun"))
-            .unwrap_or_else(|| "no mass".into()),
+        match s.limit_90 {
+            Some(m) if s.limit_at_lowest => {
+                format!("90% complete down to the least injected mass, {m:.3} Msun")
+            }
+            Some(m) => format!("90% complete above {m:.3} Msun"),
+            None => "never 90% complete".into(),
+        },
         if s.median_excess_ratio.is_finite() {
             format!("{:.3}", s.median_excess_ratio)
         } else {
