@@ -409,6 +409,24 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
     let o = cairn(&args, dir);
     check_refused(&o, &args, "b/synth-truth.csv", "another map");
     assert!(!dir.join("out").exists());
+    // A truth table whose map SHA-256 was edited into text that is not hexadecimal (here
+    // with multi-byte characters) is refused the same way, not a crash.
+    let text = std::fs::read_to_string(dir.join("a/synth-truth.csv")).unwrap();
+    let edited: String = text
+        .lines()
+        .map(|l| match l.split_once(" sha256 ") {
+            Some((head, _)) if l.starts_with("# map ") => {
+                format!("{head} sha256 a\u{e9}\u{e9}\u{e9}\u{e9}\u{e9}\u{e9}\u{e9}\n")
+            }
+            _ => format!("{l}\n"),
+        })
+        .collect();
+    assert_ne!(edited, text);
+    std::fs::write(dir.join("edited-truth.csv"), edited).unwrap();
+    let args = ["compare", "run", "--truth", "edited-truth.csv", "-o", "out"];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "edited-truth.csv", "another map");
+    assert!(!dir.join("out").exists());
     let args = [
         "compare",
         "run",
