@@ -1581,6 +1581,22 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
 fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     use cairn::compare;
     if let Some(t) = &a.truth {
+        // Options of the population comparison have no effect on a scoring: said rather than
+        // ignored (those with defaults, when set to another value).
+        let unused = [
+            (!a.label.is_empty(), "--label"),
+            (a.mass_column != "mass_excess", "--mass-column"),
+            (a.mass_min.is_some(), "--mass-min"),
+            (a.alpha_max != 3.0, "--alpha-max"),
+            (a.resamples != 500, "--resamples"),
+            (a.seed != 1, "--seed"),
+            (a.be_temperatures != "10K,20K", "--be-temperatures"),
+        ];
+        if let Some((_, name)) = unused.iter().find(|(given, _)| *given) {
+            return Err(Error::usage(format!(
+                "{name} belongs to comparing populations and has no effect with --truth, which scores one run against injected cores; leave it out."
+            )));
+        }
         return run_completeness(a, t, quiet);
     }
     if a.runs.len() < 2 {

@@ -439,6 +439,30 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
     let o = cairn(&args, dir);
     check_refused(&o, &args, "--truth", "give one run folder");
     assert!(!dir.join("out").exists());
+    // Options of the population comparison are refused with --truth rather than ignored.
+    for (option, value) in [
+        ("--label", "north"),
+        ("--mass-column", "mass"),
+        ("--mass-min", "1Msun"),
+        ("--alpha-max", "4"),
+        ("--resamples", "50"),
+        ("--seed", "7"),
+        ("--be-temperatures", "15K"),
+    ] {
+        let args = [
+            "compare",
+            "run",
+            "--truth",
+            "a/synth-truth.csv",
+            "-o",
+            "out",
+            option,
+            value,
+        ];
+        let o = cairn(&args, dir);
+        check_refused(&o, &args, option, "has no effect with --truth");
+        assert!(!dir.join("out").exists());
+    }
     // The truth written by plain synth scores a run of its own map.
     let o = cairn(
         &[
