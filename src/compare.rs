@@ -68,6 +68,22 @@ pub(crate) fn catalogue_number(
     })
 }
 
+/// The catalogue and run record of a run folder, or of a catalogue file with the record
+/// beside it.
+pub(crate) fn run_files(path: &Path) -> (PathBuf, PathBuf) {
+    if path.is_dir() {
+        (
+            path.join(crate::segment::names::CSV),
+            path.join(crate::segment::names::RUN),
+        )
+    } else {
+        (
+            path.to_path_buf(),
+            path.with_file_name(crate::segment::names::RUN),
+        )
+    }
+}
+
 fn read_text(path: &Path) -> Result<String> {
     std::fs::read_to_string(path).map_err(|e| {
         Error::input(
@@ -82,17 +98,7 @@ fn read_text(path: &Path) -> Result<String> {
 /// Reads a population from a run folder or a catalogue file. `mass_column` chooses the mass
 /// (`mass_excess` by default).
 pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Population> {
-    let (csv, run_path) = if path.is_dir() {
-        (
-            path.join(crate::segment::names::CSV),
-            path.join(crate::segment::names::RUN),
-        )
-    } else {
-        (
-            path.to_path_buf(),
-            path.with_file_name(crate::segment::names::RUN),
-        )
-    };
+    let (csv, run_path) = run_files(path);
     let catalogue = read_text(&csv)?;
     let (header, rows) = crate::table::read_catalogue_csv(&csv, &catalogue)?;
     let col = |name: &str| header.iter().position(|h| h == name);

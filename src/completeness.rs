@@ -181,17 +181,7 @@ pub struct Run {
 
 /// Reads a run folder (or its structures.csv with run.json beside it).
 pub fn read_run(path: &Path) -> Result<Run> {
-    let (csv, run_path) = if path.is_dir() {
-        (
-            path.join(crate::segment::names::CSV),
-            path.join(crate::segment::names::RUN),
-        )
-    } else {
-        (
-            path.to_path_buf(),
-            path.with_file_name(crate::segment::names::RUN),
-        )
-    };
+    let (csv, run_path) = crate::compare::run_files(path);
     let catalogue = std::fs::read_to_string(&csv).map_err(|e| {
         Error::input(
             &csv,

@@ -531,12 +531,9 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
     assert!(dir.join("out/matches.csv").is_file());
 }
 
-#[test]
-fn cores_are_placed_on_valid_pixels_at_the_minimum_separation() {
-    // A map of an invented cloud whose left half is missing.
-    let d = tempfile::tempdir().unwrap();
-    let dir = d.path();
-    base_map(dir);
+/// The base map of `dir` with the pixels of columns where `keep` is false missing, written as
+/// `name` and read back.
+fn masked_base_map(dir: &Path, name: &str, keep: impl Fn(usize) -> bool) -> cairn::map::Map {
     let full = cairn::map::load(
         &dir.join("base/synth.fits"),
         &cairn::map::LoadOptions::default(),
@@ -544,13 +541,38 @@ fn cores_are_placed_on_valid_pixels_at_the_minimum_separation() {
     .unwrap();
     let mut data = full.data.clone();
     for ((_, x), v) in data.indexed_iter_mut() {
-        if x < 128 {
+        if !keep(x) {
             *v = f32::NAN;
         }
     }
-    let path = dir.join("half.fits");
+    let path = dir.join(name);
     cairn::fits_write::write_image_f32(&path, data.view(), &full.header, false).unwrap();
-    let m = cairn::map::load(&path, &cairn::map::LoadOptions::default()).unwrap();
+    cairn::map::load(&path, &cairn::map::LoadOptions::default()).unwrap()
+}
+
+/// The mass [Msun] an injection added to the valid pixels of a column-density map at 250 pc:
+/// M = mu_H2 m_H Omega d^2 sum dN(H2), with the constants of astropy 8.0.2 as cairn's physics
+/// module holds them (checked in tests/physics_reference.rs).
+fn added_mass(m: &cairn::map::Map, injected: &ndarray::Array2<f32>) -> f64 {
+    let omega = m.wcs.as_ref().unwrap().pixel_solid_angle(128.0, 128.0);
+    let d = 250.0 * cairn::physics::constants::PC;
+    let added: f64 = injected
+        .iter()
+        .zip(m.data.iter())
+        .filter(|(a, _)| a.is_finite())
+        .map(|(&a, &b)| a as f64 - b as f64)
+        .sum();
+    2.8 * cairn::physics::constants::M_H * omega * d * d * added * 1e4
+        / cairn::physics::constants::M_SUN
+}
+
+#[test]
+fn cores_are_placed_on_valid_pixels_at_the_minimum_separation() {
+    // A map of an invented cloud whose left half is missing.
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let m = masked_base_map(dir, "half.fits", |x| x >= 128);
     let ctx = cairn::score::Context {
         distance_m: Some(250.0 * cairn::physics::constants::PC),
         ..cairn::score::Context::default()
@@ -600,20 +622,8 @@ fn cores_are_placed_on_valid_pixels_at_the_minimum_separation() {
     );
     // The mass added to the valid pixels is the mass the truth records (cores keep their
     // reach, four standard deviations of core and beam, on valid pixels: all but 3e-4 of a
-    // Gaussian's mass; the rest is f32 rounding): M = mu_H2 m_H Omega d^2 sum dN(H2), with
-    // the constants of astropy 8.0.2 as cairn's physics module holds them (checked in
-    // tests/physics_reference.rs).
-    let omega = m.wcs.as_ref().unwrap().pixel_solid_angle(128.0, 128.0);
-    let d = 250.0 * cairn::physics::constants::PC;
-    let added: f64 = inj
-        .data
-        .iter()
-        .zip(m.data.iter())
-        .filter(|(a, _)| a.is_finite())
-        .map(|(&a, &b)| a as f64 - b as f64)
-        .sum();
-    let mass = 2.8 * cairn::physics::constants::M_H * omega * d * d * added * 1e4
-        / cairn::physics::constants::M_SUN;
+    // Gaussian's mass; the rest is f32 rounding).
+    let mass = added_mass(&m, &inj.data);
     let truth: f64 = inj.truth.iter().map(|c| c.mass_msun).sum();
     assert!(
         (mass - truth).abs() <= 1e-3 * truth,
@@ -630,20 +640,7 @@ fn cores_beside_missing_pixels_keep_their_mass() {
     let d = tempfile::tempdir().unwrap();
     let dir = d.path();
     base_map(dir);
-    let full = cairn::map::load(
-        &dir.join("base/synth.fits"),
-        &cairn::map::LoadOptions::default(),
-    )
-    .unwrap();
-    let mut data = full.data.clone();
-    for ((_, x), v) in data.indexed_iter_mut() {
-        if !(100..160).contains(&x) {
-            *v = f32::NAN;
-        }
-    }
-    let path = dir.join("strip.fits");
-    cairn::fits_write::write_image_f32(&path, data.view(), &full.header, false).unwrap();
-    let m = cairn::map::load(&path, &cairn::map::LoadOptions::default()).unwrap();
+    let m = masked_base_map(dir, "strip.fits", |x| (100..160).contains(&x));
     let ctx = cairn::score::Context {
         distance_m: Some(250.0 * cairn::physics::constants::PC),
         ..cairn::score::Context::default()
@@ -665,19 +662,9 @@ fn cores_beside_missing_pixels_keep_their_mass() {
             min_separation_arcsec: None,
         };
         let inj = cairn::inject::inject(&m, &ctx, &opts).unwrap();
-        // M = mu_H2 m_H Omega d^2 sum dN(H2) over the valid pixels (all but 3e-4 of each
-        // Gaussian's mass lies within its reach; the rest is f32 rounding).
-        let omega = m.wcs.as_ref().unwrap().pixel_solid_angle(128.0, 128.0);
-        let dist = 250.0 * cairn::physics::constants::PC;
-        let added: f64 = inj
-            .data
-            .iter()
-            .zip(m.data.iter())
-            .filter(|(a, _)| a.is_finite())
-            .map(|(&a, &b)| a as f64 - b as f64)
-            .sum();
-        let mass = 2.8 * cairn::physics::constants::M_H * omega * dist * dist * added * 1e4
-            / cairn::physics::constants::M_SUN;
+        // All but 3e-4 of each Gaussian's mass lies within its reach; the rest is f32
+        // rounding.
+        let mass = added_mass(&m, &inj.data);
         let truth: f64 = inj.truth.iter().map(|c| c.mass_msun).sum();
         assert!(
             (mass - truth).abs() <= 1e-3 * truth,
