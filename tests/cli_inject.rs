@@ -724,3 +724,71 @@ fn a_demo_maps_truth_scores_a_run_of_it() {
     let o = cairn(&args, d.path());
     check_refused(&o, &args, "velloran-850um-truth.csv", "another map");
 }
+
+/// Cores far too faint to see, injected into a map crowded with its own cores: a leaf of the
+/// map's own that peaks within a beam of one is matched to it, and the report names such
+/// matches (a leaf's `mass_excess` more than ten times the injected mass) instead of letting
+/// them pass as recoveries unremarked.
+#[test]
+fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    let run = |args: &[&str]| {
+        let o = cairn(args, dir);
+        assert_eq!(o.code, 0, "{args:?}: {}", o.stderr);
+    };
+    run(&[
+        "synth", "-o", "real", "--size", "256", "--cores", "600", "--noise", "1e20cm-2", "--seed",
+        "5", "-q",
+    ]);
+    run(&[
+        "synth",
+        "--into",
+        "real/synth.fits",
+        "-o",
+        "inj",
+        "--distance",
+        "250pc",
+        "--cores",
+        "80",
+        "--core-mass",
+        "1e-4Msun,2e-4Msun",
+        "--min-separation",
+        "40arcsec",
+        "--seed",
+        "2",
+        "-q",
+    ]);
+    run(&[
+        "segment",
+        "inj/synth.fits",
+        "-o",
+        "run",
+        "--distance",
+        "250pc",
+        "--no-figure",
+        "-q",
+    ]);
+    run(&[
+        "compare",
+        "run",
+        "--truth",
+        "inj/synth-truth.csv",
+        "-o",
+        "scored",
+        "-q",
+    ]);
+    let (head, rows) = csv(&dir.join("scored/matches.csv"));
+    let col = |n: &str| head.iter().position(|h| h == n).unwrap();
+    let ratio = col("mass_excess_ratio");
+    let big = rows
+        .iter()
+        .filter(|r| r[ratio].parse::<f64>().unwrap_or(0.0) > 10.0)
+        .count();
+    assert!(big > 0, "the crowded map gives such a match");
+    let report = std::fs::read_to_string(dir.join("scored/report.md")).unwrap();
+    assert!(
+        report.contains(&format!("**{big} of the matches**")),
+        "{report}"
+    );
+}
