@@ -565,9 +565,11 @@ fn injected_header(
 /// The header of `map` for a 32-bit float copy of its image: the input's cards without the
 /// structural, scaling, checksum, data-range (DATAMIN/DATAMAX, stale once cores are added)
 /// and tile-compression keywords (the writer adds its own);
-/// WCSAXES at 2; and for a plane of a cube, the reference pixel of the plane's axis moved so
-/// that the copy's one pixel along that axis (p = 1) is the plane taken, so the copy keeps the
-/// plane's frequency or wavelength.
+/// WCSAXES as it was (it may exceed NAXIS, and must cover the plane axis's cards the copy
+/// keeps: FITS WCS Paper I, Greisen & Calabretta 2002, from memory); and for a plane of a
+/// cube, the reference pixel of the plane's axis moved so that the copy's one pixel along
+/// that axis (p = 1) is the plane taken, so the copy keeps the plane's frequency or
+/// wavelength.
 pub fn image_header(map: &Map) -> Header {
     let drop = |k: &str| {
         matches!(
@@ -584,20 +586,13 @@ pub fn image_header(map: &Map) -> Header {
                 | "DATAMAX"
         ) || compressed_key(k)
     };
-    let mut cards: Vec<Card> = map
+    let cards: Vec<Card> = map
         .header
         .cards()
         .iter()
         .filter(|c| !(c.value.is_some() && drop(&c.key)))
         .cloned()
         .collect();
-    if let Some(Card {
-        value: Some(v @ Value::Int(_)),
-        ..
-    }) = cards.iter_mut().find(|c| c.key == "WCSAXES")
-    {
-        *v = Value::Int(2);
-    }
     let mut h = Header::from_cards(cards);
     if let Some(k) = map.plane {
         // The plane's axis: the one extra axis longer than 1 (1-based number).
