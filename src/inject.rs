@@ -210,24 +210,21 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         true
     };
     let mut r = synth::rng(opts.seed, STREAM_PLACEMENT);
-    let mut placed: Vec<(f64, f64)> = Vec::with_capacity(cores.len());
-    let far = |x: f64, y: f64, placed: &[(f64, f64)]| {
-        placed.iter().all(|&(a, b)| (x - a).hypot(y - b) >= sep_px)
-    };
+    let mut placed = Placed::new(nx, ny, sep_px, cores.len());
     let (w_in, h_in) = (
         nx as f64 - 1.0 - 2.0 * margin,
         ny as f64 - 1.0 - 2.0 * margin,
     );
     for (i, c) in cores.iter_mut().enumerate() {
         let reach = reach_px(c.radius_pc, c.profile);
-        let mut ok = valid(c.x, c.y, reach) && far(c.x, c.y, &placed);
+        let mut ok = valid(c.x, c.y, reach) && placed.far(c.x, c.y);
         let mut tries = 0;
         while !ok && tries < TRIES_PER_CORE {
             use rand::RngExt;
             let (fx, fy): (f64, f64) = (r.random(), r.random());
             c.x = margin + fx * w_in;
             c.y = margin + fy * h_in;
-            ok = valid(c.x, c.y, reach) && far(c.x, c.y, &placed);
+            ok = valid(c.x, c.y, reach) && placed.far(c.x, c.y);
             tries += 1;
         }
         if !ok {
@@ -239,7 +236,7 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
                 ),
             ));
         }
-        placed.push((c.x, c.y));
+        placed.push(c.x, c.y);
     }
 
     let (data, truth, core_sums) = add_cores(map, &conv, &base, &cores)?;
@@ -252,6 +249,63 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         min_separation_arcsec: separation_arcsec,
         margin_px: margin,
     })
+}
+
+/// The positions placed so far, in square cells at least the separation wide, so that the
+/// test of a new position reads the placed positions of its own and the eight neighbouring
+/// cells only (the same answer as testing every placed position, in time independent of
+/// their number).
+struct Placed {
+    sep: f64,
+    cell: f64,
+    ncx: usize,
+    ncy: usize,
+    cells: Vec<Vec<(f64, f64)>>,
+}
+
+impl Placed {
+    fn new(nx: usize, ny: usize, sep: f64, expected: usize) -> Placed {
+        // Cells no narrower than the separation, and no more of them than four per core.
+        let area = (nx as f64) * (ny as f64);
+        let cell = sep
+            .max((area / (4.0 * expected.max(1) as f64)).sqrt())
+            .max(1.0);
+        let ncx = ((nx as f64 / cell).ceil() as usize).max(1);
+        let ncy = ((ny as f64 / cell).ceil() as usize).max(1);
+        Placed {
+            sep,
+            cell,
+            ncx,
+            ncy,
+            cells: vec![Vec::new(); ncx * ncy],
+        }
+    }
+
+    fn index(&self, x: f64, y: f64) -> (usize, usize) {
+        let c = |v: f64, n: usize| ((v / self.cell).floor().max(0.0) as usize).min(n - 1);
+        (c(x, self.ncx), c(y, self.ncy))
+    }
+
+    /// Whether (x, y) lies at least the separation from every placed position.
+    fn far(&self, x: f64, y: f64) -> bool {
+        let (i, j) = self.index(x, y);
+        for cj in j.saturating_sub(1)..=(j + 1).min(self.ncy - 1) {
+            for ci in i.saturating_sub(1)..=(i + 1).min(self.ncx - 1) {
+                if self.cells[cj * self.ncx + ci]
+                    .iter()
+                    .any(|&(a, b)| (x - a).hypot(y - b) < self.sep)
+                {
+                    return false;
+                }
+            }
+        }
+        true
+    }
+
+    fn push(&mut self, x: f64, y: f64) {
+        let (i, j) = self.index(x, y);
+        self.cells[j * self.ncx + i].push((x, y));
+    }
 }
 
 /// The map's WCS, beam and conversion, or the refusal naming what is missing.
@@ -422,6 +476,13 @@ fn add_cores(
     Ok((data, truth, core_sums))
 }
 
+thread_local! {
+    /// One FFT planner per thread: it keeps the plans of the lengths met so far, so cores of
+    /// the same stamp size (most of a population) reuse them.
+    static PLANNER: std::cell::RefCell<FftPlanner<f64>> =
+        std::cell::RefCell::new(FftPlanner::new());
+}
+
 /// Convolves a stamp of N(H2) \[m^-2\] with the Gaussian of pixel covariance `kc`, linearly
 /// (zero padding), and converts it to map units; the result is clipped to the map.
 fn convolve(
@@ -466,9 +527,15 @@ fn convolve(
             g[(j + ry) * lw + i + rx].re = stamp.values[j * stamp.w + i];
         }
     }
-    let mut planner = FftPlanner::<f64>::new();
-    let (fx, fy) = (planner.plan_fft_forward(lw), planner.plan_fft_forward(lh));
-    let (ix, iy) = (planner.plan_fft_inverse(lw), planner.plan_fft_inverse(lh));
+    let (fx, fy, ix, iy) = PLANNER.with(|p| {
+        let mut p = p.borrow_mut();
+        (
+            p.plan_fft_forward(lw),
+            p.plan_fft_forward(lh),
+            p.plan_fft_inverse(lw),
+            p.plan_fft_inverse(lh),
+        )
+    });
     let fft2 =
         |g: &mut Vec<Complex<f64>>, row: &dyn rustfft::Fft<f64>, col: &dyn rustfft::Fft<f64>| {
             for r in g.chunks_mut(lw) {
@@ -644,4 +711,43 @@ pub fn separation_arcsec(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
     let num = (c2 * sd).hypot(c1 * s2 - s1 * c2 * cd);
     let den = s1 * s2 + c1 * c2 * cd;
     num.atan2(den).to_degrees() * 3600.0
+}
+
+#[cfg(test)]
+mod tests {
+    use super::Placed;
+    use rand::{RngExt, SeedableRng};
+
+    /// The cells give the same answer as testing every placed position, for separations
+    /// narrower and wider than the cells, and positions on and beyond the map's edges.
+    #[test]
+    fn cells_answer_as_every_position_does() {
+        let mut r = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        for &(nx, ny, sep, n) in &[
+            (200, 120, 9.5, 150),
+            (64, 64, 0.7, 400),
+            (300, 40, 55.0, 30),
+            (50, 500, 3.0, 2),
+        ] {
+            let mut placed = Placed::new(nx, ny, sep, n);
+            let mut all: Vec<(f64, f64)> = Vec::new();
+            let mut kept = 0;
+            for _ in 0..20 * n {
+                let x = -5.0 + r.random::<f64>() * (nx as f64 + 10.0);
+                let y = -5.0 + r.random::<f64>() * (ny as f64 + 10.0);
+                let every = all.iter().all(|&(a, b)| (x - a).hypot(y - b) >= sep);
+                assert_eq!(
+                    placed.far(x, y),
+                    every,
+                    "({x}, {y}) on {nx} x {ny}, sep {sep}"
+                );
+                if every && all.len() < n {
+                    placed.push(x, y);
+                    all.push((x, y));
+                    kept += 1;
+                }
+            }
+            assert!(kept >= 2, "the case placed {kept} positions");
+        }
+    }
 }
