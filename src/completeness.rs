@@ -59,6 +59,9 @@ pub struct Truth {
     pub map_sha256: Option<String>,
     /// Name of that map.
     pub map_name: Option<String>,
+    /// The injection's record (`NAME-spec.json` beside `NAME-truth.csv`), if it was found, or
+    /// why it could not be read.
+    pub spec: std::result::Result<serde_json::Value, String>,
 }
 
 /// The line of a truth table that names its map: `# map NAME sha256 HEX`.
@@ -148,7 +151,21 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
         cores,
         map_sha256,
         map_name,
+        spec: read_spec(path),
     })
+}
+
+/// The injection record beside a truth table: `NAME-spec.json` for `NAME-truth.csv`.
+fn read_spec(truth: &Path) -> std::result::Result<serde_json::Value, String> {
+    let name = truth
+        .file_name()
+        .and_then(|n| n.to_str())
+        .and_then(|n| n.strip_suffix("-truth.csv"))
+        .ok_or("the truth table is not named NAME-truth.csv, so its NAME-spec.json is unknown")?;
+    let spec = truth.with_file_name(format!("{name}-spec.json"));
+    let text = std::fs::read_to_string(&spec)
+        .map_err(|e| format!("{} cannot be read ({e})", spec.display()))?;
+    serde_json::from_str(&text).map_err(|e| format!("{} is not JSON ({e})", spec.display()))
 }
 
 /// A leaf of the run's catalogue.
@@ -177,6 +194,11 @@ pub struct Run {
     pub input_sha256: String,
     /// Beam FWHM \[arcsec\], geometric mean of the axes.
     pub beam_fwhm_arcsec: f64,
+    /// The run record's `physics` and `map` objects (the assumptions that turned the map into
+    /// masses, and the kind of map).
+    pub physics: serde_json::Value,
+    /// The kind of the map's unit as the run record names it (`map.unit_kind`).
+    pub unit_kind: String,
 }
 
 /// Reads a run folder (or its structures.csv with run.json beside it).
@@ -256,7 +278,148 @@ pub fn read_run(path: &Path) -> Result<Run> {
         leaves,
         input_sha256,
         beam_fwhm_arcsec,
+        physics: run
+            .get("physics")
+            .cloned()
+            .unwrap_or(serde_json::Value::Null),
+        unit_kind: run
+            .pointer("/map/unit_kind")
+            .and_then(|v| v.as_str())
+            .unwrap_or("")
+            .to_string(),
     })
+}
+
+/// The physical assumptions in which the run differs from the injection, one sentence each:
+/// those that turn the map into masses, for the map's kind (the distance always; the dust
+/// temperature, opacity law and wavelength for emission; N(H2)/A_V and A_V/A_K for extinction;
+/// mu_H2 for column density and extinction, as it cancels for emission, where the column
+/// density is inferred per unit of gas mass). Differences make the recovered masses, and so
+/// their ratios to the true masses, scale by the factors said; the recovery of the cores is
+/// unaffected. When the injection record is missing, one sentence says the check was not made.
+pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
+    let spec = match &truth.spec {
+        Ok(s) => s,
+        Err(why) => {
+            return vec![format!(
+                "the run's physical assumptions could not be checked against the injection's: {why}; keep NAME-spec.json beside NAME-truth.csv"
+            )];
+        }
+    };
+    let num = |v: &serde_json::Value, p: &str| v.pointer(p).and_then(|x| x.as_f64());
+    // The record of `synth --into` holds the assumptions at its top level; that of a
+    // synthetic emission map made by `synth` holds them in `output.dust_emission`.
+    let emission =
+        |p: &str| num(spec, p).or_else(|| num(spec, &format!("/output/dust_emission{p}")));
+    let differ = |a: f64, b: f64| (a - b).abs() > 1e-9 * a.abs().max(b.abs());
+    let mut out = Vec::new();
+    let tidy = crate::units::tidy;
+    if let (Some(d_run), Some(d_inj)) =
+        (num(&run.physics, "/distance_pc"), num(spec, "/distance_pc"))
+        && differ(d_run, d_inj)
+    {
+        out.push(format!(
+            "the run's distance is {} pc and the injection's {} pc: the run's masses are {} times what they would be at the injection's distance",
+            tidy(d_run),
+            tidy(d_inj),
+            tidy((d_run / d_inj).powi(2))
+        ));
+    }
+    let kind = run.unit_kind.as_str();
+    let extinction = kind.contains("extinction");
+    let column = kind == "H2 column density";
+    if extinction || column {
+        // synth --into renders the cores' columns with cairn's mu_H2 (2.8, recorded since the
+        // record has the field).
+        let mu_inj = num(spec, "/mu_h2").unwrap_or(crate::physics::MU_H2);
+        if let Some(mu_run) = num(&run.physics, "/mu_h2")
+            && differ(mu_run, mu_inj)
+        {
+            out.push(format!(
+                "the run's mu_H2 is {} and the injection's {}: the run's masses are {} times the injection's scale",
+                tidy(mu_run),
+                tidy(mu_inj),
+                tidy(mu_run / mu_inj)
+            ));
+        }
+    }
+    if extinction {
+        for (p_run, p_inj, what) in [
+            ("/nh2_per_av_cm2", "/nh2_per_av_cm2", "N(H2)/A_V"),
+            ("/av_per_ak", "/av_per_ak", "A_V/A_K"),
+        ] {
+            if what == "A_V/A_K" && !kind.contains("A_K") {
+                continue;
+            }
+            if let (Some(a), Some(b)) = (num(&run.physics, p_run), num(spec, p_inj))
+                && differ(a, b)
+            {
+                out.push(format!(
+                    "the run's {what} is {} and the injection's {}: the run's masses are {} times the injection's scale",
+                    tidy(a),
+                    tidy(b),
+                    tidy(a / b)
+                ));
+            }
+        }
+    }
+    if !(extinction || column) {
+        // Emission: temperature, opacity law and wavelength set the conversion.
+        let t_run = run.physics.get("temperature").and_then(|v| v.as_str());
+        match (t_run, emission("/temperature_k")) {
+            (Some(t), Some(t_inj)) => {
+                let parsed = t
+                    .strip_suffix(" K")
+                    .and_then(|v| v.trim().parse::<f64>().ok());
+                match parsed {
+                    Some(t_run) if differ(t_run, t_inj) => out.push(format!(
+                        "the run's dust temperature is {} K and the injection's {} K: the run's masses differ from the injection's scale by the ratio of the Planck functions",
+                        tidy(t_run),
+                        tidy(t_inj)
+                    )),
+                    Some(_) => {}
+                    None => out.push(format!(
+                        "the run's dust temperature is {t} and the injection's a single {} K: the run's masses differ from the injection's scale wherever the temperatures differ",
+                        tidy(t_inj)
+                    )),
+                }
+            }
+            (None, Some(t_inj)) => out.push(format!(
+                "the run records no dust temperature and the injection used {} K",
+                tidy(t_inj)
+            )),
+            _ => {}
+        }
+        for (p, what, unit) in [
+            ("/opacity/kappa0_cm2_per_g", "dust opacity", " cm2/g"),
+            ("/opacity/nu0_hz", "opacity reference frequency", " Hz"),
+            ("/opacity/beta", "emissivity index beta", ""),
+        ] {
+            if let (Some(a), Some(b)) = (num(&run.physics, p), emission(p))
+                && differ(a, b)
+            {
+                out.push(format!(
+                    "the run's {what} is {}{unit} and the injection's {}{unit}: the run's masses differ from the injection's scale",
+                    tidy(a),
+                    tidy(b)
+                ));
+            }
+        }
+        if let (Some(w_run), Some(w_inj)) = (
+            num(&run.physics, "/wavelength_um"),
+            num(spec, "/input/wavelength_m")
+                .map(|w| w * 1e6)
+                .or_else(|| num(spec, "/output/dust_emission/wavelength_um")),
+        ) && differ(w_run, w_inj)
+        {
+            out.push(format!(
+                "the run's wavelength is {} um and the injection's {} um: the run's masses differ from the injection's scale",
+                tidy(w_run),
+                tidy(w_inj)
+            ));
+        }
+    }
+    out
 }
 
 /// Refuses a run that was not made on the map of the truth table.
@@ -770,6 +933,17 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
             "**{suspect} of the matches** {} a leaf whose `mass_excess` is more than {SUSPECT_RATIO} times the injected mass: probably leaves of the map's own that peak within a beam of the injected core, counted as recoveries (see `matches.csv`); they raise the completeness of the faintest cores. Inject cores farther from the map's own structures, or fewer, to avoid them.\n",
             if suspect == 1 { "has" } else { "have" }
         );
+    }
+    let differences = assumption_differences(truth, run);
+    if !differences.is_empty() {
+        let _ = writeln!(
+            r,
+            "**The run's physical assumptions differ from the injection's.** The recovery of the cores does not depend on them, but the recovered masses and their ratios to the true masses do; segment the injected map with the assumptions of the injection (its NAME-spec.json) for a fair mass comparison:\n"
+        );
+        for d in &differences {
+            let _ = writeln!(r, "* {d}.");
+        }
+        let _ = writeln!(r);
     }
     let _ = writeln!(
         r,

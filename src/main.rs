@@ -1315,6 +1315,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         "opacity": ctx.opacity,
         "nh2_per_av_cm2": ctx.nh2_per_av_m2 * 1e-4,
         "av_per_ak": ctx.av_per_ak,
+        "mu_h2": ctx.mu_h2,
     });
     let text =
         serde_json::to_string_pretty(&record).map_err(|e| Error::internal(e.to_string()))? + "\n";
@@ -1354,6 +1355,10 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
     let truth = completeness::read_truth(truth_path)?;
     let run = completeness::read_run(&a.runs[0])?;
     completeness::check_same_map(&truth, &run)?;
+    // Printed with --quiet too: the mass ratios are not what they seem without them.
+    for d in completeness::assumption_differences(&truth, &run) {
+        errln!("warning: {d}");
+    }
     let s = completeness::score(&truth, &run, a.bin_width);
     if a.width < 600 || a.width > 20000 {
         return Err(Error::usage(format!(

@@ -215,6 +215,10 @@ fn bright_isolated_injected_cores_are_recovered_and_the_input_is_untouched() {
         }
     }
     let report = std::fs::read_to_string(dir.join("score/report.md")).unwrap();
+    // The run used the injection's distance, and the other assumptions do not enter the
+    // masses of a column-density map but mu_H2, left at its default on both sides.
+    assert!(!report.contains("assumptions differ"), "{report}");
+    assert!(!o.stderr.contains("warning"), "{}", o.stderr);
     // The truth of the synthetic base map holds no core: refused by name.
     let base_args = [
         "compare",
@@ -709,9 +713,54 @@ fn a_demo_maps_truth_scores_a_run_of_it() {
         d.path(),
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
+    // The run used the assumptions the demo map was made with: no warning.
+    assert!(!o.stderr.contains("warning"), "{}", o.stderr);
     let (_, cores) = csv(&truth);
     let (_, matches) = csv(&d.path().join("scored/matches.csv"));
     assert_eq!(matches.len(), cores.len());
+    // The emission demo segmented at another dust temperature than it was made with (its
+    // record holds the emission's assumptions under output.dust_emission): named.
+    let o = cairn(
+        &[
+            "segment",
+            demo.join("velloran-850um.fits").to_str().unwrap(),
+            "-o",
+            "run850",
+            "--distance",
+            "410pc",
+            "--temperature",
+            "16K",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "compare",
+            "run850",
+            "--truth",
+            demo.join("velloran-850um-truth.csv").to_str().unwrap(),
+            "-o",
+            "scored850",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert_eq!(
+        o.stderr.matches("warning").count(),
+        1,
+        "only the temperature differs: {}",
+        o.stderr
+    );
+    assert!(
+        o.stderr
+            .contains("warning: the run's dust temperature is 16 K and the injection's 14 K"),
+        "{}",
+        o.stderr
+    );
     let other = demo.join("velloran-850um-truth.csv");
     let args = [
         "compare",
@@ -790,5 +839,93 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
     assert!(
         report.contains(&format!("**{big} of the matches**")),
         "{report}"
+    );
+}
+
+/// A run made with other assumptions than the injection's is scored with a warning naming each
+/// difference and its factor on the masses (distance squared; mu_H2 for a column-density map),
+/// on stderr (with --quiet too) and in the report; a truth table without its injection record
+/// beside it is scored with a sentence saying the check could not be made. The factors are
+/// those of the mass formula M = N(H2) mu_H2 m_H d^2 Omega (Hildebrand 1983; common practice).
+#[test]
+fn a_run_with_other_assumptions_than_the_injection_is_named() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let o = inject(dir, "base/synth.fits", "inj", &["--seed", "5"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let spec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("inj/synth-spec.json")).unwrap())
+            .unwrap();
+    assert_eq!(spec["mu_h2"].as_f64(), Some(2.8), "the record names mu_H2");
+    let o = cairn(
+        &[
+            "segment",
+            "inj/synth.fits",
+            "-o",
+            "run",
+            "--distance",
+            "300pc",
+            "--mu-h2",
+            "2.94",
+            "--no-figure",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "compare",
+            "run",
+            "--truth",
+            "inj/synth-truth.csv",
+            "-o",
+            "score",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // (300/250)^2 = 1.44 and 2.94/2.8 = 1.05.
+    for want in [
+        "the run's distance is 300 pc and the injection's 250 pc: the run's masses are 1.44 times",
+        "the run's mu_H2 is 2.94 and the injection's 2.8: the run's masses are 1.05 times",
+    ] {
+        assert!(
+            o.stderr.contains(&format!("warning: {want}")),
+            "{}",
+            o.stderr
+        );
+        let report = std::fs::read_to_string(dir.join("score/report.md")).unwrap();
+        assert!(report.contains("assumptions differ"), "{report}");
+        assert!(report.contains(want), "{report}");
+    }
+    // Without the record beside the truth table.
+    std::fs::create_dir(dir.join("alone")).unwrap();
+    std::fs::copy(
+        dir.join("inj/synth-truth.csv"),
+        dir.join("alone/synth-truth.csv"),
+    )
+    .unwrap();
+    let o = cairn(
+        &[
+            "compare",
+            "run",
+            "--truth",
+            "alone/synth-truth.csv",
+            "-o",
+            "score2",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .contains("could not be checked against the injection's")
+            && o.stderr.contains("synth-spec.json cannot be read"),
+        "{}",
+        o.stderr
     );
 }
