@@ -78,6 +78,7 @@ fn child_segment(path: &Path, out: &Path) {
             temperature_k: Some(cairn::score::Field::Uniform(12.0)),
             ..Default::default()
         },
+        other_inputs: Vec::new(),
         figure: None,
     };
     let t = Instant::now();

@@ -194,11 +194,12 @@ pub struct Run {
     pub input_sha256: String,
     /// Beam FWHM \[arcsec\], geometric mean of the axes.
     pub beam_fwhm_arcsec: f64,
-    /// The run record's `physics` and `map` objects (the assumptions that turned the map into
-    /// masses, and the kind of map).
+    /// The run record's `physics` object (the assumptions that turned the map into masses).
     pub physics: serde_json::Value,
     /// The kind of the map's unit as the run record names it (`map.unit_kind`).
     pub unit_kind: String,
+    /// The run record's `other_inputs` (temperature map and others, with their SHA-256).
+    pub other_inputs: serde_json::Value,
 }
 
 /// Reads a run folder (or its structures.csv with run.json beside it).
@@ -280,6 +281,10 @@ pub fn read_run(path: &Path) -> Result<Run> {
         beam_fwhm_arcsec,
         physics: run
             .get("physics")
+            .cloned()
+            .unwrap_or(serde_json::Value::Null),
+        other_inputs: run
+            .get("other_inputs")
             .cloned()
             .unwrap_or(serde_json::Value::Null),
         unit_kind: run
@@ -389,6 +394,31 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
                 tidy(t_inj)
             )),
             _ => {}
+        }
+        // A temperature map: the same file, by its SHA-256.
+        let sha = |v: &serde_json::Value, p: &str| {
+            v.pointer(p).and_then(|x| x.as_str()).map(str::to_string)
+        };
+        if let Some(s_inj) = sha(spec, "/temperature_map/sha256") {
+            let short = |h: &str| h.chars().take(12).collect::<String>();
+            let name = spec
+                .pointer("/temperature_map/path")
+                .and_then(|x| x.as_str())
+                .unwrap_or("?");
+            match (sha(&run.other_inputs, "/temperature_map/sha256"), t_run) {
+                (Some(s_run), _) if s_run == s_inj => {}
+                (Some(s_run), _) => out.push(format!(
+                    "the run's temperature map (SHA-256 {}...) is not the injection's, {name} (SHA-256 {}...): the run's masses differ from the injection's scale wherever the temperatures differ",
+                    short(&s_run),
+                    short(&s_inj)
+                )),
+                (None, Some(t)) if t.ends_with(" K") => out.push(format!(
+                    "the run's dust temperature is {t} and the injection used the temperature map {name}: the run's masses differ from the injection's scale wherever the temperatures differ"
+                )),
+                (None, _) => out.push(format!(
+                    "the run does not record its temperature map's SHA-256, so it cannot be checked to be the injection's, {name}; segment the injected map again"
+                )),
+            }
         }
         for (p, what, unit) in [
             ("/opacity/kappa0_cm2_per_g", "dust opacity", " cm2/g"),

@@ -331,9 +331,7 @@ fn prerequisites<'a>(
             &format!(
                 "cannot receive cores of known mass in its unit '{}' because {}",
                 map.unit_text,
-                // Injection takes one temperature, not a map of them.
-                why.replace(", or --temperature-map", "")
-                    .trim_end_matches('.')
+                why.trim_end_matches('.')
             ),
         )
     })?;

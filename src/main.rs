@@ -87,7 +87,7 @@ Caution: the catalogue's masses carry factor-of-two systematics from dust opacit
 const SYNTH_HELP: &str = "With --into MAP: the map's grid, WCS, beam and unit are used, read as segment reads them (--hdu, --plane,
 --unit, --extinction-band, --beam, --wavelength); --cores cores of --core-mass and --core-radius are placed at random on
 valid pixels away from the edges, at least --min-separation apart (by default far enough to be isolated), convolved
-with the map's beam, converted to its unit (emission maps need --temperature and take --opacity, --opacity-frequency
+with the map's beam, converted to its unit (emission maps need --temperature or --temperature-map and take --opacity, --opacity-frequency
 and --beta; extinction maps take --column-per-av and --av-per-ak) and added to it. Writes NAME.fits (the input's
 header with HISTORY cards), NAME-truth.csv (recording NAME.fits's SHA-256) and NAME-spec.json; the input is never
 modified. Score a segment run of NAME.fits with: cairn compare RUN --truth NAME-truth.csv -o DIR.";
@@ -231,8 +231,17 @@ struct SynthArgs {
     emission: Option<String>,
     /// Dust temperature for --emission, such as 15K [default: 15K]; with --into, the dust
     /// temperature that converts cores to an emission map's unit (needed for emission maps).
-    #[arg(long, value_name = "TEMPERATURE", allow_hyphen_values = true)]
+    #[arg(
+        long,
+        value_name = "TEMPERATURE",
+        allow_hyphen_values = true,
+        conflicts_with = "temperature_map"
+    )]
     temperature: Option<String>,
+    /// With --into: a FITS map of the dust temperature in K on the map's grid, instead of
+    /// --temperature (as segment takes it; give segment the same map).
+    #[arg(long, value_name = "FILE", requires = "into")]
+    temperature_map: Option<PathBuf>,
     /// Unit of emission maps: MJy/sr or Jy/beam [default: MJy/sr].
     #[arg(conflicts_with = "into", long, value_name = "UNIT")]
     emission_unit: Option<String>,
@@ -1192,7 +1201,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
     let physics = PhysicsArgs {
         distance: a.distance.clone(),
         temperature: a.temperature.clone(),
-        temperature_map: None,
+        temperature_map: a.temperature_map.clone(),
         opacity: a.opacity.clone(),
         opacity_frequency: a.opacity_frequency.clone(),
         beta: a.beta,
@@ -1277,7 +1286,10 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         format!("{}-truth.csv", a.name),
         format!("{}-spec.json", a.name),
     ];
-    output::refuse_inputs_as_outputs(&a.output, &names, &[path])?;
+    let inputs: Vec<&std::path::Path> = std::iter::once(path)
+        .chain(a.temperature_map.as_deref())
+        .collect();
+    output::refuse_inputs_as_outputs(&a.output, &names, &inputs)?;
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
     let fits_temp = outputs.temp(&names[0]);
     fits_write::write_image_f32(&fits_temp, injected.data.view(), &injected.header, true)
@@ -1312,6 +1324,10 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         "population": synth::CorePopulation { margin_px: injected.margin_px, ..inject_opts.population },
         "min_separation_arcsec": injected.min_separation_arcsec,
         "temperature_k": match &ctx.temperature_k { Some(cairn::score::Field::Uniform(t)) => Some(*t), _ => None },
+        "temperature_map": match &a.temperature_map {
+            Some(p) => serde_json::json!({ "path": p.to_string_lossy(), "sha256": cairn::segment::sha256_file(p)? }),
+            None => serde_json::Value::Null,
+        },
         "opacity": ctx.opacity,
         "nh2_per_av_cm2": ctx.nh2_per_av_m2 * 1e-4,
         "av_per_ak": ctx.av_per_ak,
@@ -1515,6 +1531,13 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             }
             c
         },
+        other_inputs: [
+            ("temperature_map", a.physics.temperature_map.as_ref()),
+            ("sigma_nt_map", a.motion.sigma_nt_map.as_ref()),
+        ]
+        .into_iter()
+        .filter_map(|(n, p)| Some((n.to_string(), p?.clone())))
+        .collect(),
         // The figure options are checked even with --no-figure, so that a mistake in them is
         // not silently ignored.
         figure: {

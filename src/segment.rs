@@ -133,6 +133,10 @@ pub struct SegmentOptions {
     pub command_line: Vec<String>,
     /// Physical assumptions (distance, temperature, opacity, ...).
     pub physics: crate::score::Context,
+    /// The other files the assumptions came from, by name (`temperature_map`,
+    /// `sigma_nt_map`), recorded in the run record with their SHA-256 (the noise map of
+    /// [`NoiseChoice::Map`] is recorded as `noise_map` without being listed here).
+    pub other_inputs: Vec<(String, PathBuf)>,
     /// Figure style; `None` draws no figures (`--no-figure`).
     pub figure: Option<crate::render::Style>,
 }
@@ -1294,10 +1298,24 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     if let Some(b) = path_bytes {
         input_record["path_bytes"] = b;
     }
+    let mut other_inputs = serde_json::Map::new();
+    let noise_map = match &o.noise {
+        NoiseChoice::Map(p) => Some(("noise_map".to_string(), p.clone())),
+        _ => None,
+    };
+    for (name, p) in o.other_inputs.iter().cloned().chain(noise_map) {
+        let (path_text, _) =
+            input_path_record(&std::fs::canonicalize(&p).unwrap_or_else(|_| p.clone()));
+        other_inputs.insert(
+            name,
+            serde_json::json!({ "path": path_text, "sha256": sha256_file(&p)? }),
+        );
+    }
     let record = serde_json::json!({
         "cairn_version": env!("CARGO_PKG_VERSION"),
         "command_line": o.command_line,
         "input": input_record,
+        "other_inputs": other_inputs,
         "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()) },
         "parameters": {
             "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0] },

@@ -929,3 +929,107 @@ fn a_run_with_other_assumptions_than_the_injection_is_named() {
         o.stderr
     );
 }
+
+/// `synth --into --temperature-map`: on an emission map, a temperature map of 14 K everywhere
+/// gives the very pixels of `--temperature 14K` (the same conversion at each pixel); the
+/// injection record and the run record name the temperature map by SHA-256, and scoring says
+/// when the run used another temperature map or a single temperature instead of it.
+#[test]
+fn a_temperature_map_injects_as_its_temperature_and_is_checked_by_sha256() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let map = cairn::map::load(&demo, &cairn::map::LoadOptions::default()).unwrap();
+    let mut h = map.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("K".into()), "");
+    for (name, t) in [("t14.fits", 14.0f32), ("t15.fits", 15.0)] {
+        let field = map.data.mapv(|_| t);
+        cairn::fits_write::write_image_f32(&dir.join(name), field.view(), &h, true).unwrap();
+    }
+    let demo = demo.to_str().unwrap();
+    let with = |out: &str, extra: &[&str]| {
+        let mut args = vec![
+            "synth",
+            "--into",
+            demo,
+            "-o",
+            out,
+            "--distance",
+            "410pc",
+            "--cores",
+            "12",
+            "-q",
+        ];
+        args.extend_from_slice(extra);
+        let o = cairn(&args, dir);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    };
+    with("by_map", &["--temperature-map", "t14.fits"]);
+    with("by_value", &["--temperature", "14K"]);
+    let load = |p: &str| cairn::map::load(&dir.join(p), &cairn::map::LoadOptions::default());
+    assert_eq!(
+        load("by_map/synth.fits").unwrap().data,
+        load("by_value/synth.fits").unwrap().data
+    );
+    let spec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("by_map/synth-spec.json")).unwrap())
+            .unwrap();
+    let sha14 = spec["temperature_map"]["sha256"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    assert_eq!(sha14.len(), 64);
+    assert!(spec["temperature_k"].is_null());
+
+    let segment_and_score = |name: &str, temperature: &[&str]| -> String {
+        let mut args = vec![
+            "segment",
+            "by_map/synth.fits",
+            "-o",
+            name,
+            "--distance",
+            "410pc",
+            "--no-figure",
+            "-q",
+        ];
+        args.extend_from_slice(temperature);
+        let o = cairn(&args, dir);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let score = format!("{name}-score");
+        let o = cairn(
+            &[
+                "compare",
+                name,
+                "--truth",
+                "by_map/synth-truth.csv",
+                "-o",
+                &score,
+                "-q",
+            ],
+            dir,
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        o.stderr
+    };
+    let same = segment_and_score("same", &["--temperature-map", "t14.fits"]);
+    assert!(!same.contains("warning"), "{same}");
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("same/run.json")).unwrap()).unwrap();
+    assert_eq!(
+        run["other_inputs"]["temperature_map"]["sha256"].as_str(),
+        Some(sha14.as_str())
+    );
+    let other = segment_and_score("other", &["--temperature-map", "t15.fits"]);
+    assert!(
+        other.contains("warning: the run's temperature map (SHA-256 ")
+            && other.contains("is not the injection's, t14.fits"),
+        "{other}"
+    );
+    let single = segment_and_score("single", &["--temperature", "14K"]);
+    assert!(
+        single.contains(
+            "warning: the run's dust temperature is 14 K and the injection used the temperature map t14.fits"
+        ),
+        "{single}"
+    );
+}

@@ -65,6 +65,7 @@ fn run(
             temperature_k: Some(Field::Uniform(15.0)),
             ..Context::default()
         },
+        other_inputs: Vec::new(),
         figure: None,
     };
     cairn::segment::run(&map, &o, &|_, _| {}).unwrap();

@@ -21,6 +21,7 @@ fn options(out: &std::path::Path, floor: Level, prominence: Level, noise: f64) -
         force: true,
         command_line: vec![],
         physics: Default::default(),
+        other_inputs: Vec::new(),
         figure: None,
     }
 }

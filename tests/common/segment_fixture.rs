@@ -28,6 +28,7 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
             sigma_nt: Some(cairn::score::Field::Uniform(200.0)),
             ..Default::default()
         },
+        other_inputs: Vec::new(),
         figure: None,
     }
 }
