@@ -200,10 +200,22 @@ pub struct Run {
     pub unit_kind: String,
     /// The run record's `other_inputs` (temperature map and others, with their SHA-256).
     pub other_inputs: serde_json::Value,
+    /// The run record's `parameters` (thresholds and connectivity).
+    pub parameters: serde_json::Value,
 }
 
 /// Reads a run folder (or its structures.csv with run.json beside it).
 pub fn read_run(path: &Path) -> Result<Run> {
+    read_run_with(path, true)
+}
+
+/// Reads a baseline run: a run of the map before injection, whose leaves' peaks are all that
+/// is used (it needs no distance, so its masses may be missing: they are then NaN).
+pub fn read_baseline(path: &Path) -> Result<Run> {
+    read_run_with(path, false)
+}
+
+fn read_run_with(path: &Path, need_mass: bool) -> Result<Run> {
     let (csv, run_path) = crate::compare::run_files(path);
     let catalogue = std::fs::read_to_string(&csv).map_err(|e| {
         Error::input(
@@ -248,12 +260,12 @@ pub fn read_run(path: &Path) -> Result<Run> {
     ]
     .iter()
     .find_map(|(a, b)| Some((col(a)?, col(b)?)));
-    let (Some(kind), Some(id), Some((clon, clat)), Some(cm), Some(cme)) = (
+    let (cm, cme) = (col("mass"), col("mass_excess"));
+    let (Some(kind), Some(id), Some((clon, clat)), true) = (
         col("kind"),
         col("id"),
         peak_cols,
-        col("mass"),
-        col("mass_excess"),
+        !need_mass || (cm.is_some() && cme.is_some()),
     ) else {
         return Err(Error::input(
             &csv,
@@ -270,8 +282,8 @@ pub fn read_run(path: &Path) -> Result<Run> {
             id: num(id)? as i64,
             lon: num(clon)?,
             lat: num(clat)?,
-            mass: num(cm)?,
-            mass_excess: num(cme)?,
+            mass: cm.map(num).transpose()?.unwrap_or(f64::NAN),
+            mass_excess: cme.map(num).transpose()?.unwrap_or(f64::NAN),
         });
     }
     Ok(Run {
@@ -281,6 +293,10 @@ pub fn read_run(path: &Path) -> Result<Run> {
         beam_fwhm_arcsec,
         physics: run
             .get("physics")
+            .cloned()
+            .unwrap_or(serde_json::Value::Null),
+        parameters: run
+            .get("parameters")
             .cloned()
             .unwrap_or(serde_json::Value::Null),
         other_inputs: run
@@ -475,6 +491,57 @@ pub fn check_same_map(truth: &Truth, run: &Run) -> Result<()> {
     Ok(())
 }
 
+/// Refuses a baseline run that was not made on the map the cores were injected into (the
+/// input recorded in the injection's `NAME-spec.json`), and returns one sentence per threshold
+/// in which it differs from the scored run (its leaves are then not those the scored run would
+/// have found without the cores).
+pub fn check_baseline(truth: &Truth, run: &Run, baseline: &Run) -> Result<Vec<String>> {
+    let spec = truth.spec.as_ref().map_err(|why| {
+        Error::input(
+            &truth.path,
+            format!("has no injection record beside it ({why}), so the baseline run cannot be checked to be of the map before injection; keep NAME-spec.json beside NAME-truth.csv."),
+        )
+    })?;
+    let Some(before) = spec.pointer("/input/sha256").and_then(|v| v.as_str()) else {
+        return Err(Error::input(
+            &truth.path,
+            "belongs to a map that was not made by injection into another (its NAME-spec.json names no input map), so there is no map before injection for --baseline; leave out --baseline.",
+        ));
+    };
+    if baseline.input_sha256 != before {
+        return Err(Error::input(
+            &baseline.catalogue,
+            format!(
+                "is a run of another map (SHA-256 {}...) than the one the cores were injected into (SHA-256 {}...); give --baseline a run of the map before injection.",
+                baseline.input_sha256.chars().take(12).collect::<String>(),
+                before.chars().take(12).collect::<String>()
+            ),
+        ));
+    }
+    let mut differences = Vec::new();
+    for key in ["floor", "prominence", "min_area"] {
+        let v = |r: &Run| {
+            r.parameters
+                .pointer(&format!("/{key}/value"))
+                .and_then(|x| x.as_f64())
+        };
+        if let (Some(a), Some(b)) = (v(run), v(baseline))
+            && (a - b).abs() > 1e-9 * a.abs().max(b.abs())
+        {
+            differences.push(format!(
+                "the baseline run's {key} ({}) is not the scored run's ({}): give both runs the same thresholds, such as --floor, --prominence and --min-area in map units",
+                crate::units::tidy(b),
+                crate::units::tidy(a)
+            ));
+        }
+    }
+    let conn = |r: &Run| r.parameters.get("connectivity").cloned();
+    if conn(run) != conn(baseline) {
+        differences.push("the baseline run's connectivity is not the scored run's".into());
+    }
+    Ok(differences)
+}
+
 /// One-to-one matching of `cores` to `leaves` (positions in degrees) within `radius_arcsec`:
 /// for each core, the index of its leaf and their separation \[arcsec\], or `None`. Pairs are
 /// taken in order of increasing separation, ties by core index then leaf index.
@@ -647,22 +714,63 @@ pub struct Scoring {
     pub radius_arcsec: f64,
     /// Width of the bins \[dex\].
     pub bin_dex: f64,
+    /// For each injected core, the id of the baseline run's leaf whose peak lies nearest
+    /// within the match radius of its true centre (a leaf of the map before injection), if a
+    /// baseline was given and one does. Such cores are left out of the bins, the limit and
+    /// the medians.
+    pub on_own_leaf: Vec<Option<i64>>,
+    /// Whether a baseline run was given.
+    pub with_baseline: bool,
+}
+
+impl Scoring {
+    /// The cores the completeness counts: all, or with a baseline those away from its leaves.
+    pub fn counted(&self) -> impl Iterator<Item = usize> + '_ {
+        (0..self.matches.len()).filter(|&i| self.on_own_leaf[i].is_none())
+    }
 }
 
 /// Scores `run` against `truth` with bins of `bin_dex`.
 pub fn score(truth: &Truth, run: &Run, bin_dex: f64) -> Scoring {
+    score_with_baseline(truth, run, None, bin_dex)
+}
+
+/// Scores `run` against `truth` with bins of `bin_dex`, leaving out the cores that lie within
+/// the match radius of a leaf of `baseline` (a run of the map before injection): a leaf found
+/// there may be the map's own, so whether the core was recovered cannot be told.
+pub fn score_with_baseline(
+    truth: &Truth,
+    run: &Run,
+    baseline: Option<&Run>,
+    bin_dex: f64,
+) -> Scoring {
     let cores: Vec<(f64, f64)> = truth.cores.iter().map(|c| (c.lon, c.lat)).collect();
     let leaves: Vec<(f64, f64)> = run.leaves.iter().map(|l| (l.lon, l.lat)).collect();
     let radius = run.beam_fwhm_arcsec;
     let matches = match_cores(&cores, &leaves, radius);
-    let masses: Vec<f64> = truth.cores.iter().map(|c| c.mass).collect();
-    let found: Vec<bool> = matches.iter().map(Option::is_some).collect();
+    let on_own_leaf: Vec<Option<i64>> = match baseline {
+        None => vec![None; cores.len()],
+        Some(b) => cores
+            .iter()
+            .map(|&(lon, lat)| {
+                b.leaves
+                    .iter()
+                    .map(|l| (separation_arcsec(lon, lat, l.lon, l.lat), l.id))
+                    .filter(|(d, _)| *d <= radius)
+                    .min_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)))
+                    .map(|(_, id)| id)
+            })
+            .collect(),
+    };
+    let kept: Vec<usize> = (0..cores.len())
+        .filter(|&i| on_own_leaf[i].is_none())
+        .collect();
+    let masses: Vec<f64> = kept.iter().map(|&i| truth.cores[i].mass).collect();
+    let found: Vec<bool> = kept.iter().map(|&i| matches[i].is_some()).collect();
     let bins = bins(&masses, &found, bin_dex);
     let ratio = |f: &dyn Fn(&Leaf) -> f64| -> Vec<f64> {
-        matches
-            .iter()
-            .zip(&truth.cores)
-            .filter_map(|(m, c)| m.map(|(j, _)| f(&run.leaves[j]) / c.mass))
+        kept.iter()
+            .filter_map(|&i| matches[i].map(|(j, _)| f(&run.leaves[j]) / truth.cores[i].mass))
             .collect()
     };
     let (limit_90, limit_at_lowest) = limit_of(&bins, &masses, 0.9);
@@ -675,6 +783,8 @@ pub fn score(truth: &Truth, run: &Run, bin_dex: f64) -> Scoring {
         bins,
         radius_arcsec: radius,
         bin_dex,
+        on_own_leaf,
+        with_baseline: baseline.is_some(),
     }
 }
 
@@ -688,7 +798,8 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
         occupied.first().map(|b| b.lo).unwrap_or(0.1),
         occupied.last().map(|b| b.hi).unwrap_or(10.0),
     );
-    let found = s.matches.iter().filter(|m| m.is_some()).count();
+    let counted: Vec<usize> = s.counted().collect();
+    let found = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
     Plot {
         x_label: "true mass [M_{sun}]".into(),
         y_label: "recovered fraction".into(),
@@ -711,7 +822,14 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
             points: vec![(lo, 0.9), (hi, 0.9)],
         }],
         notes: vec![
-            format!("{found} of {} injected cores recovered", s.matches.len()),
+            if s.with_baseline {
+                format!(
+                    "{found} of {} injected cores away from the map's own leaves recovered",
+                    counted.len()
+                )
+            } else {
+                format!("{found} of {} injected cores recovered", s.matches.len())
+            },
             match s.limit_90 {
                 Some(m) if s.limit_at_lowest => {
                     format!("90% complete down to the least injected mass, {m:.3} M_{{sun}}")
@@ -816,6 +934,19 @@ pub fn matches_table(truth: &Truth, run: &Run, s: &Scoring) -> Table {
             .map(|i| leaf(i).map_or(f64::NAN, |l| l.mass_excess / c[i].mass))
             .collect(),
     );
+    if s.with_baseline {
+        t.notes.push(
+            "own_leaf: a leaf of the baseline run (the map before injection) peaks within one beam FWHM of the true centre; such cores are left out of completeness.csv and the report's limit".into(),
+        );
+        t.push_text(
+            "own_leaf",
+            "id of the baseline run's leaf within one beam FWHM, empty if none",
+            s.on_own_leaf
+                .iter()
+                .map(|o| o.map(|id| id.to_string()).unwrap_or_default())
+                .collect(),
+        );
+    }
     t
 }
 
@@ -880,6 +1011,7 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
     let mut r = String::new();
     let n = truth.cores.len();
     let k = s.matches.iter().filter(|m| m.is_some()).count();
+    let counted: Vec<usize> = s.counted().collect();
     let _ = writeln!(r, "# Completeness\n");
     let _ = writeln!(
         r,
@@ -894,6 +1026,20 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
         crate::units::tidy(s.radius_arcsec),
         100.0 * k as f64 / n as f64
     );
+    if s.with_baseline {
+        let kc = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
+        let _ = writeln!(
+            r,
+            "With the baseline run (the map before injection): {} of the {n} cores lie within one beam FWHM of one of its leaves, where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {kc} of the other {} were recovered ({:.1}%).\n",
+            n - counted.len(),
+            counted.len(),
+            if counted.is_empty() {
+                f64::NAN
+            } else {
+                100.0 * kc as f64 / counted.len() as f64
+            }
+        );
+    }
     let _ = writeln!(
         r,
         "| true mass (Msun) | injected | recovered | fraction | 68.3% interval |\n| --- | --- | --- | --- | --- |"
@@ -951,17 +1097,24 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
     );
     // A match whose leaf holds far more mass above its surroundings than the core injected is
     // more likely a leaf of the map's own that happens to peak within a beam of the core.
-    let suspect = s
-        .matches
+    let suspect = counted
         .iter()
-        .zip(&truth.cores)
-        .filter(|(m, c)| m.is_some_and(|(j, _)| run.leaves[j].mass_excess > SUSPECT_RATIO * c.mass))
+        .filter(|&&i| {
+            s.matches[i].is_some_and(|(j, _)| {
+                run.leaves[j].mass_excess > SUSPECT_RATIO * truth.cores[i].mass
+            })
+        })
         .count();
     if suspect > 0 {
         let _ = writeln!(
             r,
-            "**{suspect} of the matches** {} a leaf whose `mass_excess` is more than {SUSPECT_RATIO} times the injected mass: probably leaves of the map's own that peak within a beam of the injected core, counted as recoveries (see `matches.csv`); they raise the completeness of the faintest cores. Inject cores farther from the map's own structures, or fewer, to avoid them.\n",
-            if suspect == 1 { "has" } else { "have" }
+            "**{suspect} of the matches** {} a leaf whose `mass_excess` is more than {SUSPECT_RATIO} times the injected mass: probably leaves of the map's own that peak within a beam of the injected core, counted as recoveries (see `matches.csv`); they raise the completeness of the faintest cores. {}\n",
+            if suspect == 1 { "has" } else { "have" },
+            if s.with_baseline {
+                "The baseline run found no leaf there, so they may be leaves that only the injected core's mass lifted above the thresholds."
+            } else {
+                "Give --baseline with a run of the map before injection to leave out the cores that fall on the map's own leaves."
+            }
         );
     }
     let differences = assumption_differences(truth, run);
@@ -1031,6 +1184,8 @@ mod tests {
             median_excess_ratio: f64::NAN,
             radius_arcsec: 10.0,
             bin_dex: 0.5,
+            on_own_leaf: vec![None; masses.len()],
+            with_baseline: false,
         };
         let p = plot(&s);
         let occupied: Vec<&Bin> = b.iter().filter(|x| x.injected > 0).collect();

@@ -773,6 +773,11 @@ struct CompareArgs {
     /// the completeness plot.
     #[arg(long, value_name = "FILE")]
     truth: Option<PathBuf>,
+    /// With --truth: a run of the map before injection, with the same thresholds; injected
+    /// cores within one beam of its leaves (where a leaf found may be the map's own) are left
+    /// out of the completeness.
+    #[arg(long, value_name = "RUN", requires = "truth")]
+    baseline: Option<PathBuf>,
     /// A name for each run, in order [default: the folder names].
     #[arg(long, value_name = "NAME")]
     label: Vec<String>,
@@ -1375,7 +1380,17 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
     for d in completeness::assumption_differences(&truth, &run) {
         errln!("warning: {d}");
     }
-    let s = completeness::score(&truth, &run, a.bin_width);
+    let baseline = match &a.baseline {
+        Some(p) => {
+            let b = completeness::read_baseline(p)?;
+            for d in completeness::check_baseline(&truth, &run, &b)? {
+                errln!("warning: {d}");
+            }
+            Some(b)
+        }
+        None => None,
+    };
+    let s = completeness::score_with_baseline(&truth, &run, baseline.as_ref(), a.bin_width);
     if a.width < 600 || a.width > 20000 {
         return Err(Error::usage(format!(
             "--width {} is outside 600 to 20000 pixels; give a plot width in that range.",
@@ -1412,17 +1427,29 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
         ),
     ];
     let names: Vec<String> = files.iter().map(|(n, _)| n.clone()).collect();
-    let inputs: Vec<&std::path::Path> = vec![a.runs[0].as_path(), truth_path];
+    let inputs: Vec<&std::path::Path> = [a.runs[0].as_path(), truth_path]
+        .into_iter()
+        .chain(a.baseline.as_deref())
+        .collect();
     output::refuse_inputs_as_outputs(&a.output, &names, &inputs)?;
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
     for (n, bytes) in &files {
         output::write_bytes(&outputs.temp(n), bytes)?;
     }
     let written = outputs.commit()?;
-    let k = s.matches.iter().filter(|m| m.is_some()).count();
+    let counted: Vec<usize> = s.counted().collect();
+    let k = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
     outln!(
-        "{k} of {} injected cores recovered; {}; median mass_excess / true mass {}",
-        truth.cores.len(),
+        "{k} of {} injected cores{} recovered; {}; median mass_excess / true mass {}",
+        counted.len(),
+        if s.with_baseline {
+            format!(
+                " away from the map's own leaves ({} on them left out)",
+                truth.cores.len() - counted.len()
+            )
+        } else {
+            String::new()
+        },
         match s.limit_90 {
             Some(m) if s.limit_at_lowest => {
                 format!("90% complete down to the least injected mass, {m:.3} Msun")

@@ -840,6 +840,135 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
         report.contains(&format!("**{big} of the matches**")),
         "{report}"
     );
+    assert!(report.contains("Give --baseline"), "{report}");
+
+    // With a baseline run of the map before injection, at the scored run's thresholds (given
+    // in map units; without a distance, so it has no masses): the cores on its leaves are left
+    // out, the big matches among them.
+    let record: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("run/run.json")).unwrap()).unwrap();
+    let value = |k: &str| {
+        record["parameters"][k]["value"]
+            .as_f64()
+            .unwrap()
+            .to_string()
+    };
+    let (floor, prominence, area) = (value("floor"), value("prominence"), value("min_area"));
+    run(&[
+        "segment",
+        "real/synth.fits",
+        "-o",
+        "before",
+        "--floor",
+        &floor,
+        "--prominence",
+        &prominence,
+        "--min-area",
+        &area,
+        "--no-figure",
+        "-q",
+    ]);
+    let args = [
+        "compare",
+        "run",
+        "--truth",
+        "inj/synth-truth.csv",
+        "--baseline",
+        "before",
+        "-o",
+        "scored-b",
+        "-q",
+    ];
+    let o = cairn(&args, dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("warning"), "{}", o.stderr);
+    let (head, rows) = csv(&dir.join("scored-b/matches.csv"));
+    let col = |n: &str| head.iter().position(|h| h == n).unwrap();
+    let (ratio, own) = (col("mass_excess_ratio"), col("own_leaf"));
+    let on_own = rows.iter().filter(|r| !r[own].is_empty()).count();
+    assert!(on_own > 0, "some cores fall on the map's own leaves");
+    for r in &rows {
+        if r[ratio].parse::<f64>().unwrap_or(0.0) > 10.0 {
+            assert!(!r[own].is_empty(), "a big match on no own leaf: {r:?}");
+        }
+    }
+    let (ch, bins) = csv(&dir.join("scored-b/completeness.csv"));
+    let injected: usize = bins
+        .iter()
+        .map(|b| {
+            b[ch.iter().position(|h| h == "injected").unwrap()]
+                .parse::<usize>()
+                .unwrap()
+        })
+        .sum();
+    assert_eq!(injected, rows.len() - on_own);
+    let report = std::fs::read_to_string(dir.join("scored-b/report.md")).unwrap();
+    assert!(
+        report.contains(&format!(
+            "{on_own} of the {} cores lie within one beam FWHM of one of its leaves",
+            rows.len()
+        )),
+        "{report}"
+    );
+    assert!(!report.contains("of the matches**"), "{report}");
+    assert!(
+        o.stdout.contains(&format!(
+            "away from the map's own leaves ({on_own} on them left out)"
+        )),
+        "{}",
+        o.stdout
+    );
+
+    // A baseline at other thresholds is named; one of another map is refused.
+    run(&[
+        "segment",
+        "real/synth.fits",
+        "-o",
+        "loose",
+        "--floor",
+        "1e21",
+        "--no-figure",
+        "-q",
+    ]);
+    let o = cairn(
+        &[
+            "compare",
+            "run",
+            "--truth",
+            "inj/synth-truth.csv",
+            "--baseline",
+            "loose",
+            "-o",
+            "scored-l",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .contains("warning: the baseline run's floor (1e21) is not the scored run's"),
+        "{}",
+        o.stderr
+    );
+    let args = [
+        "compare",
+        "run",
+        "--truth",
+        "inj/synth-truth.csv",
+        "--baseline",
+        "run",
+        "-o",
+        "scored-x",
+    ];
+    let o = cairn(&args, dir);
+    check_refused(
+        &o,
+        &args,
+        "structures.csv",
+        "than the one the cores were injected into",
+    );
+    assert!(!dir.join("scored-x").exists());
 }
 
 /// A run made with other assumptions than the injection's is scored with a warning naming each
