@@ -386,7 +386,7 @@ fn add_cores(
             "is too large for the memory this machine can give while cores are injected; give a smaller map or smaller --core-radius.",
         )
     };
-    let beam_sky = crate::resolution::beam_cov(
+    let beam_sky = crate::measure::gaussian_sky_covariance(
         beam.major_deg * 3600.0,
         beam.minor_deg * 3600.0,
         beam.pa_deg,

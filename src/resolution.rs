@@ -28,24 +28,11 @@ use rustfft::{FftPlanner, num_complex::Complex};
 use crate::error::{Error, Result};
 use crate::header::Value;
 use crate::map::{Beam, Map};
+use crate::measure::gaussian_sky_covariance;
 use crate::units::PixelUnit;
 
 /// A 2x2 symmetric matrix [[a, b], [b, c]].
 pub(crate) type Cov = (f64, f64, f64);
-
-/// Covariance (in degrees^2, axes east and north) of a Gaussian beam of FWHM major/minor at
-/// position angle `pa` east of north.
-pub(crate) fn beam_cov(major: f64, minor: f64, pa_deg: f64) -> Cov {
-    let k = 1.0 / (8.0 * std::f64::consts::LN_2);
-    let (sa, sb) = (major * major * k, minor * minor * k);
-    // Major axis direction: east component sin(pa), north component cos(pa).
-    let (s, c) = pa_deg.to_radians().sin_cos();
-    (
-        sa * s * s + sb * c * c,
-        (sa - sb) * s * c,
-        sa * c * c + sb * s * s,
-    )
-}
 
 /// A covariance on the sky (arcsec^2, axes east and north) carried to pixel axes,
 /// K = J^-1 S J^-T, with `j` the local Jacobian of [`crate::measure::local_jacobian`] (pixel
@@ -265,13 +252,13 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
         )
     })?;
     // Sky covariance of the kernel (arcsec^2), then pixel covariance K = J^-1 S J^-T.
-    let bc = beam_cov(
+    let bc = gaussian_sky_covariance(
         beam.major_deg * 3600.0,
         beam.minor_deg * 3600.0,
         beam.pa_deg,
     );
     let t = target_deg * 3600.0;
-    let tc = beam_cov(t, t, 0.0);
+    let tc = gaussian_sky_covariance(t, t, 0.0);
     let s = (tc.0 - bc.0, tc.1 - bc.1, tc.2 - bc.2);
     let kc = sky_cov_to_pixels(s, j);
     // Regridding by blocks of k x k pixels (see below) is itself a convolution with a box of

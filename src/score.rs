@@ -27,6 +27,14 @@
 //!   difference of nearly equal squares says little (cairn's convention; the bound varies
 //!   between studies). With the default least leaf area of one beam, a bound of R_eff <=
 //!   theta_beam d / 2 (0.69 beam areas) could never be met.
+//! * Moment radius R_mom = 1.91 d (sigma_maj sigma_min)^(1/2) of the beam-deconvolved axes
+//!   ([`crate::measure::deconvolve`]): the factor 1.91 of Solomon et al. 1987 (ApJ 319, 730)
+//!   between a cloud's rms size and its radius, as Rosolowsky & Leroy 2006 (PASP 118, 590)
+//!   apply it to the deconvolved moments; small angles (d theta for d tan theta). Empty where
+//!   the deconvolved axes are. A structure clipped at its merge level or the floor has
+//!   smaller moments than its whole profile, so R_mom underestimates its full extent (the
+//!   clipping bias those papers discuss); it is given beside R_eff and the physics below
+//!   keeps using R_eff.
 //! * Mean density n(H2) = M / (4/3 pi R_eff^3 mu_H2 m_H): a uniform sphere of the effective
 //!   radius (an assumption; real cores are centrally condensed).
 //! * Sound speed c_s = (k T / (mu_p m_H))^(1/2) with mu_p = 2.33 (metal-free H2 and He,
@@ -64,6 +72,10 @@ use crate::units::{self, ExtinctionBand, PixelUnit};
 pub const NH2_PER_AV_CM2: f64 = 9.4e20;
 /// A_V / A_K = 1 / 0.112 (Rieke & Lebofsky 1985).
 pub const AV_PER_AK: f64 = 1.0 / 0.112;
+/// The factor between a moment radius and the geometric mean of the major and minor standard
+/// deviations: 1.91 (Solomon et al. 1987, ApJ 319, 730; as used by Rosolowsky & Leroy 2006,
+/// PASP 118, 590).
+pub const MOMENT_RADIUS_FACTOR: f64 = 1.91;
 /// Seconds per Julian year.
 pub const YEAR: f64 = 365.25 * 86400.0;
 
@@ -343,6 +355,9 @@ pub struct Physical {
     pub radius_deconv_pc: f64,
     /// Whether R_eff <= half the beam.
     pub unresolved: bool,
+    /// Moment radius 1.91 d (sigma_maj sigma_min)^(1/2) of the beam-deconvolved axes, pc
+    /// (NaN where they are).
+    pub radius_moment_pc: f64,
     /// Mean n(H2), cm^-3 (uniform sphere of R_eff, excess mass).
     pub density_cm3: f64,
     /// Mass-weighted dust temperature, K.
@@ -572,6 +587,7 @@ pub fn score(
                 radius_pc: nan,
                 radius_deconv_pc: nan,
                 unresolved: false,
+                radius_moment_pc: nan,
                 density_cm3: nan,
                 temperature_k: if t.n_t_weight > 0.0 {
                     t.n_t / t.n_t_weight
@@ -621,6 +637,13 @@ pub fn score(
                     p.radius_deconv_pc = deconvolved / PC;
                 }
             }
+            // The deconvolved standard deviations in radians, at the distance.
+            let sigma_rad = |fwhm: f64| fwhm / crate::measure::FWHM_PER_SIGMA * units::ARCSEC;
+            p.radius_moment_pc = MOMENT_RADIUS_FACTOR
+                * (sigma_rad(m.fwhm_major_deconv_arcsec) * sigma_rad(m.fwhm_minor_deconv_arcsec))
+                    .sqrt()
+                * d
+                / PC;
             let m_kg = p.mass_excess * M_SUN;
             let volume = 4.0 / 3.0 * std::f64::consts::PI * r_eff.powi(3);
             let rho = m_kg / volume;

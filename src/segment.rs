@@ -646,6 +646,24 @@ pub fn catalogue(
             "position angle of the major axis, east of north in the map's frame, 0 to 180",
             f(&|m| m.pa_deg),
         );
+        t.push_f64(
+            "fwhm_major_deconv",
+            "arcsec",
+            "major-axis FWHM of the weighted second-moment ellipse as a Gaussian with the beam's Gaussian removed (covariance minus the beam's); empty without a beam or where that difference is not positive definite (not resolved along some direction)",
+            f(&|m| m.fwhm_major_deconv_arcsec),
+        );
+        t.push_f64(
+            "fwhm_minor_deconv",
+            "arcsec",
+            "minor-axis FWHM with the beam removed (empty as fwhm_major_deconv)",
+            f(&|m| m.fwhm_minor_deconv_arcsec),
+        );
+        t.push_f64(
+            "pa_deconv",
+            "deg",
+            "position angle of the deconvolved major axis, east of north in the map's frame, 0 to 180 (empty as fwhm_major_deconv)",
+            f(&|m| m.pa_deconv_deg),
+        );
     }
     t.push_f64(
         "aspect",
@@ -752,6 +770,12 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
         "unresolved",
         "deconvolved radius less than half the beam",
         ph.iter().map(|x| x.unresolved).collect(),
+    );
+    t.push_f64(
+        "radius_moment_pc",
+        "pc",
+        "moment radius 1.91 d (sigma_major sigma_minor)^(1/2) of the deconvolved axes, sigma = FWHM / 2.3548 (Solomon et al. 1987; Rosolowsky & Leroy 2006); empty where fwhm_major_deconv is; not used by the physics columns",
+        p(&|x| x.radius_moment_pc),
     );
     t.push_f64(
         "density",
@@ -1065,7 +1089,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let (ms_tx, ms_rx) = std::sync::mpsc::channel::<std::sync::Arc<Vec<Measurement>>>();
     let analyse = move || {
         let t_measure = Instant::now();
-        let ms = std::sync::Arc::new(measure::measure_all(h, map.wcs.as_ref()));
+        let ms = std::sync::Arc::new(measure::measure_all(h, map.wcs.as_ref(), map.beam.as_ref()));
         let measure_seconds = t_measure.elapsed().as_secs_f64();
         // A send fails only if the other thread already stopped on an error, which its join
         // reports.
