@@ -32,6 +32,20 @@ descendants (from hierarchy.json). Sources:
   units (the year a Julian year); the deconvolved radius sqrt(R^2 - (theta/2)^2 d^2) with the
   beam's geometric-mean FWHM theta, and the unresolved flag where it is less than theta d / 2
   (common practice for the first; the bound is cairn's convention, as its README says).
+* beam-deconvolved moment sizes, from the label map and the map alone: numpy's weighted
+  moments of each structure's pixel positions (its own centroid and covariance in pixels)
+  carried to the sky by the local pixel scale matrix at that centroid,
+  astropy.wcs.utils.local_partial_pixel_derivatives taken across one pixel centred on the
+  centroid along each axis (its RA row times cos(dec): east and north, in arcsec per pixel;
+  at the reference pixel it is WCS.pixel_scale_matrix, checked below). The beam's covariance
+  in the same frame, from its FWHMs and position angle east of north (the header's BMAJ,
+  BMIN, BPA, and an invented elliptical beam that tests/segment_reference.rs gives cairn as
+  its beam option), is subtracted (covariances of Gaussians add under convolution); where
+  the difference has a non-positive eigenvalue (numpy.linalg.eigh) the structure counts as
+  not resolved, else its eigenvalues give the deconvolved FWHMs, its major eigenvector the
+  position angle east of north, and R = 1.91 d (sigma_maj sigma_min)^(1/2) the moment
+  radius (Solomon et al. 1987, ApJ 319, 730; Rosolowsky & Leroy 2006, PASP 118, 590), with
+  astropy's units.
 * astropy 8.0.2 astropy.units (FITS format) on every TUNIT of cairn's run/structures.fits,
   and each divided by the map's BUNIT; the same for cairn's spelling of a sum over pixels
   for other map units (fixtures/segment/pixel_sum_units.json).
@@ -214,6 +228,84 @@ for s in tree["structures"]:
         "density_cm3": density.value,
     }
 
+# Beam-deconvolved moment sizes (see the docstring).
+from astropy.wcs.utils import local_partial_pixel_derivatives
+
+with fits.open(os.path.join(SRC, "map.fits")) as h:
+    HEADER_BEAM = {"major_arcsec": h[0].header["BMAJ"] * 3600.0,
+                   "minor_arcsec": h[0].header["BMIN"] * 3600.0,
+                   "pa_deg": h[0].header["BPA"]}
+# An invented elliptical beam, larger than the map's own along one direction, so that some
+# structures are resolved along both axes and others not; the Rust test reads it from here.
+ELLIPTICAL_BEAM = {"major_arcsec": 60.0, "minor_arcsec": 30.0, "pa_deg": 35.0}
+MOMENT_RADIUS_FACTOR = 1.91  # Solomon et al. 1987; Rosolowsky & Leroy 2006
+
+
+def pixel_scale_matrix_at(x, y):
+    """(east, north) arcsec per pixel step: column 0 along x, column 1 along y."""
+    m = np.empty((2, 2))
+    m[:, 0] = local_partial_pixel_derivatives(wcs, x - 0.5, y)[:, 0]
+    m[:, 1] = local_partial_pixel_derivatives(wcs, x, y - 0.5)[:, 1]
+    (_, lat), = wcs.all_pix2world([[x, y]], 0)
+    m[0] *= np.cos(np.radians(lat))
+    return m * 3600.0
+
+
+# At the reference pixel the local matrix is astropy's pixel_scale_matrix (to the curvature of
+# the projection over one pixel).
+ref_x, ref_y = wcs.wcs.crpix - 1.0
+assert np.allclose(pixel_scale_matrix_at(ref_x, ref_y), wcs.pixel_scale_matrix * 3600.0,
+                   rtol=0.0, atol=1e-8)
+
+
+def beam_covariance(beam):
+    """Covariance (arcsec^2, axes east and north) of a Gaussian beam."""
+    sa = beam["major_arcsec"] / FWHM_PER_SIGMA
+    sb = beam["minor_arcsec"] / FWHM_PER_SIGMA
+    pa = np.radians(beam["pa_deg"])
+    major = np.array([np.sin(pa), np.cos(pa)])  # (east, north)
+    minor = np.array([np.cos(pa), -np.sin(pa)])
+    return sa ** 2 * np.outer(major, major) + sb ** 2 * np.outer(minor, minor)
+
+
+def deconvolved_sizes(beam):
+    out = {}
+    b = beam_covariance(beam)
+    for s in tree["structures"]:
+        i = s["id"]
+        inside = np.isin(labels, subtree(i))
+        w = image[inside]
+        xs, ys = cols_px[inside].astype(np.float64), rows_px[inside].astype(np.float64)
+        mx, my = np.average(xs, weights=w), np.average(ys, weights=w)
+        c = np.array([[np.average((xs - mx) ** 2, weights=w), np.average((xs - mx) * (ys - my), weights=w)],
+                      [np.average((xs - mx) * (ys - my), weights=w), np.average((ys - my) ** 2, weights=w)]])
+        j = pixel_scale_matrix_at(mx, my)
+        measured = j @ c @ j.T
+        d = measured - b
+        evals, evecs = np.linalg.eigh(d)
+        entry = {"measured_trace_arcsec2": np.trace(measured),
+                 "deconv_cov_east_east": d[0, 0], "deconv_cov_east_north": d[0, 1],
+                 "deconv_cov_north_north": d[1, 1], "deconv_min_eigenvalue": evals[0]}
+        if evals[0] > 0.0:
+            s_maj, s_min = np.sqrt(evals[1]), np.sqrt(evals[0])
+            major = evecs[:, 1]
+            radius = (MOMENT_RADIUS_FACTOR * np.sqrt(s_maj * s_min) * u.arcsec).to_value(u.rad) * DISTANCE
+            entry.update({"resolved": True,
+                          "fwhm_major_deconv_arcsec": FWHM_PER_SIGMA * s_maj,
+                          "fwhm_minor_deconv_arcsec": FWHM_PER_SIGMA * s_min,
+                          "pa_deconv_deg": np.degrees(np.arctan2(major[0], major[1])) % 180.0,
+                          "radius_moment_pc": radius.to_value(u.pc)})
+        else:
+            entry["resolved"] = False
+        out[str(i)] = entry
+    return out
+
+
+deconvolved = {
+    "header_beam": {"beam": HEADER_BEAM, "structures": deconvolved_sizes(HEADER_BEAM)},
+    "elliptical_beam": {"beam": ELLIPTICAL_BEAM, "structures": deconvolved_sizes(ELLIPTICAL_BEAM)},
+}
+
 from astropy.io import votable
 from astropy.io.votable.ucd import check_ucd
 
@@ -257,6 +349,7 @@ write_json(os.path.join(OUT, "reference.json"), {
     "regionprops": result,
     "sky": sky,
     "physical": physical,
+    "deconvolved": deconvolved,
     "votable_ucds": ucds,
     "fits_units": units,
     "pixel_sum_units_over_map_unit": pixel_sums,
