@@ -163,9 +163,18 @@ fn read_spec(truth: &Path) -> std::result::Result<serde_json::Value, String> {
         .and_then(|n| n.strip_suffix("-truth.csv"))
         .ok_or("the truth table is not named NAME-truth.csv, so its NAME-spec.json is unknown")?;
     let spec = truth.with_file_name(format!("{name}-spec.json"));
-    let text = std::fs::read_to_string(&spec)
-        .map_err(|e| format!("{} cannot be read ({e})", spec.display()))?;
-    serde_json::from_str(&text).map_err(|e| format!("{} is not JSON ({e})", spec.display()))
+    let text = std::fs::read_to_string(&spec).map_err(|e| {
+        format!(
+            "{} cannot be read ({e}); keep NAME-spec.json beside NAME-truth.csv",
+            spec.display()
+        )
+    })?;
+    serde_json::from_str(&text).map_err(|e| {
+        format!(
+            "{} is not JSON ({e}); give the NAME-spec.json that cairn synth wrote with NAME-truth.csv",
+            spec.display()
+        )
+    })
 }
 
 /// A leaf of the run's catalogue.
@@ -202,6 +211,12 @@ pub struct Run {
     pub other_inputs: serde_json::Value,
     /// The run record's `parameters` (thresholds and connectivity).
     pub parameters: serde_json::Value,
+    /// The map's unit as the run read it (`map.unit`).
+    pub unit: Option<String>,
+    /// The run record's `beam`.
+    pub beam: serde_json::Value,
+    /// The run record's `input` (the map's SHA-256, HDU and plane).
+    pub input: serde_json::Value,
 }
 
 /// Reads a run folder (or its structures.csv with run.json beside it).
@@ -295,6 +310,12 @@ fn read_run_with(path: &Path, need_mass: bool) -> Result<Run> {
             .get("physics")
             .cloned()
             .unwrap_or(serde_json::Value::Null),
+        unit: run
+            .pointer("/map/unit")
+            .and_then(|v| v.as_str())
+            .map(str::to_string),
+        beam: run.get("beam").cloned().unwrap_or(serde_json::Value::Null),
+        input: run.get("input").cloned().unwrap_or(serde_json::Value::Null),
         parameters: run
             .get("parameters")
             .cloned()
@@ -323,7 +344,7 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
         Ok(s) => s,
         Err(why) => {
             return vec![format!(
-                "the run's physical assumptions could not be checked against the injection's: {why}; keep NAME-spec.json beside NAME-truth.csv"
+                "the run's physical assumptions could not be checked against the injection's: {why}"
             )];
         }
     };
@@ -335,6 +356,42 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
     let differ = |a: f64, b: f64| (a - b).abs() > 1e-9 * a.abs().max(b.abs());
     let mut out = Vec::new();
     let tidy = crate::units::tidy;
+    if num(spec, "/distance_pc").is_none() {
+        return vec![format!(
+            "the run's physical assumptions could not be checked against the injection's: {} records no distance, so it is not a record that cairn synth wrote; give the NAME-spec.json written with NAME-truth.csv",
+            spec_name(&truth.path)
+        )];
+    }
+    // How the map was read: its unit and the kind of quantity (the extinction band too).
+    fn text<'a>(v: &'a serde_json::Value, p: &str) -> Option<&'a str> {
+        v.pointer(p).and_then(|x| x.as_str())
+    }
+    // `synth --into` records the kind it read; plain `synth` says what it made.
+    let kind_inj = text(spec, "/input/unit_kind").or(
+        match (
+            text(spec, "/output"),
+            text(spec, "/output/dust_emission/unit"),
+        ) {
+            (Some("column_density"), _) => Some("H2 column density"),
+            (_, Some("JyPerBeam")) => Some("flux density per beam"),
+            (_, Some("MJyPerSr")) => Some("surface brightness"),
+            _ => None,
+        },
+    );
+    if let Some(kind_inj) = kind_inj
+        && kind_inj != run.unit_kind
+    {
+        out.push(format!(
+            "the run read the map as {} and the injection as {kind_inj}: the run's masses are not on the injection's scale; segment the map in the unit and extinction band the injection read it in (--unit, --extinction-band)",
+            if run.unit_kind.is_empty() { "a map of no known quantity" } else { run.unit_kind.as_str() }
+        ));
+    } else if let (Some(u_inj), Some(u_run)) = (text(spec, "/input/unit"), run.unit.as_deref())
+        && u_inj != u_run
+    {
+        out.push(format!(
+            "the run read the map in '{u_run}' and the injection in '{u_inj}': the run's masses are not on the injection's scale; give segment the --unit the injection was given"
+        ));
+    }
     if let (Some(d_run), Some(d_inj)) =
         (num(&run.physics, "/distance_pc"), num(spec, "/distance_pc"))
         && differ(d_run, d_inj)
@@ -385,85 +442,7 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
         }
     }
     if !(extinction || column) {
-        // Emission: temperature, opacity law and wavelength set the conversion.
-        let t_run = run.physics.get("temperature").and_then(|v| v.as_str());
-        match (t_run, emission("/temperature_k")) {
-            (Some(t), Some(t_inj)) => {
-                let parsed = t
-                    .strip_suffix(" K")
-                    .and_then(|v| v.trim().parse::<f64>().ok());
-                match parsed {
-                    Some(t_run) if differ(t_run, t_inj) => out.push(format!(
-                        "the run's dust temperature is {} K and the injection's {} K: the run's masses differ from the injection's scale by the ratio of the Planck functions",
-                        tidy(t_run),
-                        tidy(t_inj)
-                    )),
-                    Some(_) => {}
-                    None => out.push(format!(
-                        "the run's dust temperature is {t} and the injection's a single {} K: the run's masses differ from the injection's scale wherever the temperatures differ",
-                        tidy(t_inj)
-                    )),
-                }
-            }
-            (None, Some(t_inj)) => out.push(format!(
-                "the run records no dust temperature and the injection used {} K",
-                tidy(t_inj)
-            )),
-            _ => {}
-        }
-        // A temperature map: the same file, by its SHA-256.
-        let sha = |v: &serde_json::Value, p: &str| {
-            v.pointer(p).and_then(|x| x.as_str()).map(str::to_string)
-        };
-        if let Some(s_inj) = sha(spec, "/temperature_map/sha256") {
-            let short = |h: &str| h.chars().take(12).collect::<String>();
-            let name = spec
-                .pointer("/temperature_map/path")
-                .and_then(|x| x.as_str())
-                .unwrap_or("?");
-            match (sha(&run.other_inputs, "/temperature_map/sha256"), t_run) {
-                (Some(s_run), _) if s_run == s_inj => {}
-                (Some(s_run), _) => out.push(format!(
-                    "the run's temperature map (SHA-256 {}...) is not the injection's, {name} (SHA-256 {}...): the run's masses differ from the injection's scale wherever the temperatures differ",
-                    short(&s_run),
-                    short(&s_inj)
-                )),
-                (None, Some(t)) if t.ends_with(" K") => out.push(format!(
-                    "the run's dust temperature is {t} and the injection used the temperature map {name}: the run's masses differ from the injection's scale wherever the temperatures differ"
-                )),
-                (None, _) => out.push(format!(
-                    "the run does not record its temperature map's SHA-256, so it cannot be checked to be the injection's, {name}; segment the injected map again"
-                )),
-            }
-        }
-        for (p, what, unit) in [
-            ("/opacity/kappa0_cm2_per_g", "dust opacity", " cm2/g"),
-            ("/opacity/nu0_hz", "opacity reference frequency", " Hz"),
-            ("/opacity/beta", "emissivity index beta", ""),
-        ] {
-            if let (Some(a), Some(b)) = (num(&run.physics, p), emission(p))
-                && differ(a, b)
-            {
-                out.push(format!(
-                    "the run's {what} is {}{unit} and the injection's {}{unit}: the run's masses differ from the injection's scale",
-                    tidy(a),
-                    tidy(b)
-                ));
-            }
-        }
-        if let (Some(w_run), Some(w_inj)) = (
-            num(&run.physics, "/wavelength_um"),
-            num(spec, "/input/wavelength_m")
-                .map(|w| w * 1e6)
-                .or_else(|| num(spec, "/output/dust_emission/wavelength_um")),
-        ) && differ(w_run, w_inj)
-        {
-            out.push(format!(
-                "the run's wavelength is {} um and the injection's {} um: the run's masses differ from the injection's scale",
-                tidy(w_run),
-                tidy(w_inj)
-            ));
-        }
+        out.extend(emission_differences(spec, run, &emission));
     }
     out
 }
@@ -491,6 +470,177 @@ pub fn check_same_map(truth: &Truth, run: &Run) -> Result<()> {
     Ok(())
 }
 
+/// The emission maps' differences: the run's masses over the injection's scale are
+/// kappa_inj(nu_inj) B(nu_inj, T_inj) / (kappa_run(nu_run) B(nu_run, T_run)) (the optically
+/// thin conversion, Hildebrand 1983), times Omega_inj / Omega_run for a map per beam (its
+/// values are divided by the beam's solid angle). One sentence naming what differs and that
+/// factor; with a temperature map on either side, what differs without a factor (it varies
+/// from pixel to pixel).
+fn emission_differences(
+    spec: &serde_json::Value,
+    run: &Run,
+    emission: &dyn Fn(&str) -> Option<f64>,
+) -> Vec<String> {
+    use crate::physics::{DustOpacity, planck_nu};
+    let tidy = crate::units::tidy;
+    let num = |v: &serde_json::Value, p: &str| v.pointer(p).and_then(|x| x.as_f64());
+    let differ = |a: f64, b: f64| (a - b).abs() > 1e-9 * a.abs().max(b.abs());
+    let mut out = Vec::new();
+    let mut what: Vec<String> = Vec::new();
+    // Temperatures: one value, or a map (by its SHA-256).
+    let t_run_text = run.physics.get("temperature").and_then(|v| v.as_str());
+    let t_run = t_run_text
+        .and_then(|t| t.strip_suffix(" K"))
+        .and_then(|v| v.trim().parse::<f64>().ok());
+    let t_inj = emission("/temperature_k");
+    let sha =
+        |v: &serde_json::Value, p: &str| v.pointer(p).and_then(|x| x.as_str()).map(str::to_string);
+    let map_inj = sha(spec, "/temperature_map/sha256");
+    let map_run = sha(&run.other_inputs, "/temperature_map/sha256");
+    let name = spec
+        .pointer("/temperature_map/path")
+        .and_then(|x| x.as_str())
+        .unwrap_or("?");
+    let short = |h: &str| h.chars().take(12).collect::<String>();
+    let mut per_pixel = false;
+    match (t_run, t_inj, &map_inj) {
+        (Some(a), Some(b), _) => {
+            if differ(a, b) {
+                what.push(format!(
+                    "dust temperature {} K against {} K",
+                    tidy(a),
+                    tidy(b)
+                ));
+            }
+        }
+        (None, Some(b), _) => {
+            per_pixel = true;
+            out.push(match t_run_text {
+                Some(t) => format!(
+                    "the run's dust temperature is {t} and the injection's a single {} K: the run's masses differ from the injection's scale wherever the temperatures differ",
+                    tidy(b)
+                ),
+                None => format!(
+                    "the run records no dust temperature and the injection used {} K",
+                    tidy(b)
+                ),
+            });
+        }
+        (Some(_), None, Some(_)) => {
+            per_pixel = true;
+            out.push(format!(
+                "the run's dust temperature is {} and the injection used the temperature map {name}: the run's masses differ from the injection's scale wherever the temperatures differ",
+                t_run_text.unwrap_or("?")
+            ));
+        }
+        (None, None, Some(s_inj)) => {
+            per_pixel = true;
+            match &map_run {
+                Some(s_run) if s_run == s_inj => {}
+                Some(s_run) => out.push(format!(
+                    "the run's temperature map (SHA-256 {}...) is not the injection's, {name} (SHA-256 {}...): the run's masses differ from the injection's scale wherever the temperatures differ",
+                    short(s_run),
+                    short(s_inj)
+                )),
+                None => out.push(format!(
+                    "the run does not record its temperature map's SHA-256, so it cannot be checked to be the injection's, {name}; segment the injected map again"
+                )),
+            }
+        }
+        _ => per_pixel = true,
+    }
+    // Opacity laws, compared where they act: at each side's frequency.
+    let law = |v: &serde_json::Value, f: &dyn Fn(&str) -> Option<f64>| {
+        Some(DustOpacity {
+            kappa0_cm2_per_g: f("/opacity/kappa0_cm2_per_g")?,
+            nu0_hz: f("/opacity/nu0_hz")?,
+            beta: f("/opacity/beta")?,
+        })
+        .filter(|_| !v.is_null())
+    };
+    let k_run = law(&run.physics, &|p| num(&run.physics, p));
+    let k_inj = law(spec, emission);
+    let nu_run = num(&run.physics, "/wavelength_um").map(|w| crate::units::C_LIGHT / (w * 1e-6));
+    let nu_inj = num(spec, "/input/wavelength_m")
+        .or_else(|| num(spec, "/output/dust_emission/wavelength_um").map(|w| w * 1e-6))
+        .map(|w| crate::units::C_LIGHT / w);
+    let (Some(k_run), Some(k_inj), Some(nu_run), Some(nu_inj)) = (k_run, k_inj, nu_run, nu_inj)
+    else {
+        return out;
+    };
+    if differ(nu_run, nu_inj) {
+        what.push(format!(
+            "wavelength {} um against {} um",
+            tidy(crate::units::C_LIGHT / nu_run * 1e6),
+            tidy(crate::units::C_LIGHT / nu_inj * 1e6)
+        ));
+    }
+    let (kr, ki) = (k_run.kappa_si(nu_run), k_inj.kappa_si(nu_inj));
+    if differ(kr, ki) {
+        what.push(format!(
+            "dust opacity {} cm2/g against {} cm2/g at the map's frequency",
+            tidy(kr * 10.0),
+            tidy(ki * 10.0)
+        ));
+    }
+    // A map per beam is divided by the beam's solid angle, proportional to major x minor.
+    let mut omega = 1.0;
+    if run.unit_kind == "flux density per beam" {
+        let b_run = (num(&run.beam, "/major_deg"), num(&run.beam, "/minor_deg"));
+        let b_inj = match (
+            num(spec, "/input/beam/major_deg"),
+            num(spec, "/input/beam/minor_deg"),
+        ) {
+            (Some(a), Some(b)) => (Some(a * 3600.0), Some(b * 3600.0)),
+            _ => (
+                num(spec, "/beam_fwhm_arcsec"),
+                num(spec, "/beam_fwhm_arcsec"),
+            ),
+        };
+        if let ((Some(a), Some(b)), (Some(c), Some(d))) = (b_run, b_inj) {
+            let (a, b) = (a * 3600.0, b * 3600.0);
+            if differ(a * b, c * d) {
+                what.push(format!(
+                    "beam {}\" x {}\" against {}\" x {}\"",
+                    tidy(a),
+                    tidy(b),
+                    tidy(c),
+                    tidy(d)
+                ));
+            }
+            omega = (c * d) / (a * b);
+        }
+    }
+    if what.is_empty() {
+        return out;
+    }
+    let factor = match (t_run, t_inj) {
+        (Some(tr), Some(ti)) if !per_pixel => {
+            Some(ki * planck_nu(nu_inj, ti) / (kr * planck_nu(nu_run, tr)) * omega)
+        }
+        _ => None,
+    };
+    out.push(format!(
+        "the run converts the map to masses otherwise than the injection ({}): the run's masses are {} the injection's scale",
+        what.join("; "),
+        match factor {
+            Some(f) if f.is_finite() => format!("{} times", tidy(f)),
+            _ => "not on".to_string(),
+        }
+    ));
+    out
+}
+
+/// The injection record's name for a truth table, for messages.
+fn spec_name(truth: &Path) -> String {
+    truth
+        .file_name()
+        .and_then(|n| n.to_str())
+        .and_then(|n| n.strip_suffix("-truth.csv"))
+        .map(|n| format!("{n}-spec.json"))
+        .unwrap_or_else(|| "the injection record".into())
+}
+
 /// Refuses a baseline run that was not made on the map the cores were injected into (the
 /// input recorded in the injection's `NAME-spec.json`), and returns one sentence per threshold
 /// in which it differs from the scored run (its leaves are then not those the scored run would
@@ -508,6 +658,32 @@ pub fn check_baseline(truth: &Truth, run: &Run, baseline: &Run) -> Result<Vec<St
             "belongs to a map that was not made by injection into another (its NAME-spec.json names no input map), so there is no map before injection for --baseline; leave out --baseline.",
         ));
     };
+    let same_hdu_plane = ["hdu", "plane"].iter().all(|k| {
+        match (spec.pointer(&format!("/input/{k}")), baseline.input.get(*k)) {
+            (Some(a), Some(b)) => a == b,
+            _ => true,
+        }
+    });
+    if baseline.input_sha256 == before && !same_hdu_plane {
+        return Err(Error::input(
+            &baseline.catalogue,
+            format!(
+                "is a run of another HDU or plane (HDU {}, plane {}) of the file the cores were injected into (HDU {}, plane {}); give --baseline a run of the map before injection with the injection's --hdu and --plane.",
+                baseline
+                    .input
+                    .get("hdu")
+                    .unwrap_or(&serde_json::Value::Null),
+                baseline
+                    .input
+                    .get("plane")
+                    .unwrap_or(&serde_json::Value::Null),
+                spec.pointer("/input/hdu")
+                    .unwrap_or(&serde_json::Value::Null),
+                spec.pointer("/input/plane")
+                    .unwrap_or(&serde_json::Value::Null),
+            ),
+        ));
+    }
     if baseline.input_sha256 != before {
         return Err(Error::input(
             &baseline.catalogue,
@@ -721,6 +897,9 @@ pub struct Scoring {
     pub on_own_leaf: Vec<Option<i64>>,
     /// Whether a baseline run was given.
     pub with_baseline: bool,
+    /// How the baseline run's thresholds differ from the scored run's ([`check_baseline`]),
+    /// for the report.
+    pub baseline_differences: Vec<String>,
 }
 
 impl Scoring {
@@ -785,6 +964,7 @@ pub fn score_with_baseline(
         bin_dex,
         on_own_leaf,
         with_baseline: baseline.is_some(),
+        baseline_differences: Vec::new(),
     }
 }
 
@@ -960,6 +1140,13 @@ pub fn completeness_table(s: &Scoring) -> Table {
         "bins of {} dex in true mass; interval: Wilson (1927) score interval at 68.27% (z = 1)",
         crate::units::tidy(s.bin_dex)
     ));
+    if s.with_baseline {
+        let left = s.on_own_leaf.iter().filter(|o| o.is_some()).count();
+        t.notes.push(format!(
+            "{left} of the {} injected cores, within one beam FWHM of a leaf of the baseline run (the map before injection), are left out of these counts",
+            s.on_own_leaf.len()
+        ));
+    }
     let b = &s.bins;
     t.push_f64(
         "mass_lo",
@@ -1039,6 +1226,9 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
                 100.0 * kc as f64 / counted.len() as f64
             }
         );
+        for d in &s.baseline_differences {
+            let _ = writeln!(r, "**Warning**: {d}.\n");
+        }
     }
     let _ = writeln!(
         r,
@@ -1130,7 +1320,7 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
     }
     let _ = writeln!(
         r,
-        "Caveats: the result depends on where the cores were placed; cores injected on a bright background are harder to find; Gaussian and Bonnor-Ebert cores are idealisations; masses carry factor-of-two systematics from dust opacity, temperature and distance (the same ones in the truth and the run, so they cancel in the ratios but not in the limit's meaning)."
+        "Caveats: the result depends on where the cores were placed; cores injected on a bright background are harder to find; Gaussian and Bonnor-Ebert cores are idealisations; masses carry factor-of-two systematics from dust opacity, temperature and distance (when the run uses the injection's assumptions, the same ones in the truth and the run, so they cancel in the ratios but not in the limit's meaning)."
     );
     r
 }
@@ -1186,6 +1376,7 @@ mod tests {
             bin_dex: 0.5,
             on_own_leaf: vec![None; masses.len()],
             with_baseline: false,
+            baseline_differences: Vec::new(),
         };
         let p = plot(&s);
         let occupied: Vec<&Bin> = b.iter().filter(|x| x.injected > 0).collect();

@@ -1321,6 +1321,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
             "hdu": m.hdu_index,
             "plane": m.plane,
             "unit": m.unit_text,
+            "unit_kind": m.unit.map(|u| u.kind_name()),
             "beam": m.beam,
             "wavelength_m": m.wavelength_m,
         },
@@ -1330,7 +1331,10 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         "min_separation_arcsec": injected.min_separation_arcsec,
         "temperature_k": match &ctx.temperature_k { Some(cairn::score::Field::Uniform(t)) => Some(*t), _ => None },
         "temperature_map": match &a.temperature_map {
-            Some(p) => serde_json::json!({ "path": p.to_string_lossy(), "sha256": cairn::segment::sha256_file(p)? }),
+            Some(p) => serde_json::json!({
+                "path": std::fs::canonicalize(p).unwrap_or_else(|_| p.clone()).to_string_lossy(),
+                "sha256": cairn::segment::sha256_file(p)?,
+            }),
             None => serde_json::Value::Null,
         },
         "opacity": ctx.opacity,
@@ -1380,17 +1384,29 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
     for d in completeness::assumption_differences(&truth, &run) {
         errln!("warning: {d}");
     }
-    let baseline = match &a.baseline {
+    let (baseline, baseline_differences) = match &a.baseline {
         Some(p) => {
             let b = completeness::read_baseline(p)?;
-            for d in completeness::check_baseline(&truth, &run, &b)? {
+            let differences = completeness::check_baseline(&truth, &run, &b)?;
+            for d in &differences {
                 errln!("warning: {d}");
             }
-            Some(b)
+            (Some(b), differences)
         }
-        None => None,
+        None => (None, Vec::new()),
     };
-    let s = completeness::score_with_baseline(&truth, &run, baseline.as_ref(), a.bin_width);
+    let mut s = completeness::score_with_baseline(&truth, &run, baseline.as_ref(), a.bin_width);
+    s.baseline_differences = baseline_differences;
+    if s.with_baseline && s.counted().next().is_none() {
+        return Err(Error::input(
+            a.baseline.as_deref().unwrap_or(truth_path),
+            format!(
+                "has leaves within one beam FWHM ({} arcsec) of every one of the {} injected cores, so none is left to score; inject cores away from the map's structures or leave out --baseline.",
+                units::tidy(s.radius_arcsec),
+                truth.cores.len()
+            ),
+        ));
+    }
     if a.width < 600 || a.width > 20000 {
         return Err(Error::usage(format!(
             "--width {} is outside 600 to 20000 pixels; give a plot width in that range.",

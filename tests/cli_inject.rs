@@ -755,11 +755,91 @@ fn a_demo_maps_truth_scores_a_run_of_it() {
         "only the temperature differs: {}",
         o.stderr
     );
+    // The factor on the masses is B(nu, 14 K) / B(nu, 16 K) at 850 um (Planck's law with the
+    // 2019 SI values of h, k and c; the optically thin conversion of Hildebrand 1983).
+    let (h, k, c) = (6.626_070_15e-34, 1.380_649e-23, 299_792_458.0);
+    let x = |t: f64| h * (c / 850e-6) / (k * t);
+    let planck_ratio = (x(16.0).exp() - 1.0) / (x(14.0).exp() - 1.0);
+    let factor = |stderr: &str, what: &str| -> f64 {
+        let want = format!(
+            "warning: the run converts the map to masses otherwise than the injection ({what}): the run's masses are "
+        );
+        let at = stderr
+            .find(&want)
+            .unwrap_or_else(|| panic!("{want} in {stderr}"));
+        stderr[at + want.len()..]
+            .split_whitespace()
+            .next()
+            .unwrap()
+            .parse()
+            .unwrap()
+    };
+    let f = factor(&o.stderr, "dust temperature 16 K against 14 K");
     assert!(
+        (f - planck_ratio).abs() < 1e-8 * planck_ratio,
+        "{f} against {planck_ratio}"
+    );
+
+    // Other runs of the emission demo: (a) an opacity law written otherwise but equal at every
+    // frequency (0.025 cm2/g at 500 GHz with beta 2 is 0.1 cm2/g at 1 THz): no warning; (b)
+    // another beam on a map per beam: the masses scale as the beam's solid angle, by
+    // (18.2/25)^2; (c) another unit: named.
+    let score = |name: &str, extra: &[&str]| -> String {
+        let mut args: Vec<String> = vec![
+            "segment".into(),
+            demo.join("velloran-850um.fits")
+                .to_str()
+                .unwrap()
+                .to_string(),
+            "-o".into(),
+            name.to_string(),
+            "--distance".into(),
+            "410pc".into(),
+            "--no-figure".into(),
+            "-q".into(),
+        ];
+        args.extend(extra.iter().map(|s| s.to_string()));
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        let o = cairn(&args, d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let out = format!("{name}-scored");
+        let o = cairn(
+            &[
+                "compare",
+                name,
+                "--truth",
+                demo.join("velloran-850um-truth.csv").to_str().unwrap(),
+                "-o",
+                &out,
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
         o.stderr
-            .contains("warning: the run's dust temperature is 16 K and the injection's 14 K"),
-        "{}",
-        o.stderr
+    };
+    let same_law = score(
+        "law",
+        &[
+            "--temperature",
+            "14K",
+            "--opacity",
+            "0.025cm2/g",
+            "--opacity-frequency",
+            "500GHz",
+        ],
+    );
+    assert!(!same_law.contains("warning"), "{same_law}");
+    let beam = score("beam", &["--temperature", "14K", "--beam", "25arcsec"]);
+    let f = factor(&beam, "beam 25\" x 25\" against 18.2\" x 18.2\"");
+    let want = (18.2f64 / 25.0).powi(2);
+    assert!((f - want).abs() < 1e-6 * want, "{f} against {want}");
+    let unit = score("unit", &["--temperature", "14K", "--unit", "MJy/sr"]);
+    assert!(
+        unit.contains(
+            "warning: the run read the map as surface brightness and the injection as flux density per beam"
+        ),
+        "{unit}"
     );
     let other = demo.join("velloran-850um-truth.csv");
     let args = [
@@ -918,6 +998,40 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
         "{}",
         o.stdout
     );
+
+    // A scored run whose match radius (its beam) reaches a leaf of the baseline from every
+    // core leaves nothing to score: refused.
+    run(&[
+        "segment",
+        "inj/synth.fits",
+        "-o",
+        "wide",
+        "--distance",
+        "250pc",
+        "--beam",
+        "600arcsec",
+        "--floor",
+        &floor,
+        "--prominence",
+        &prominence,
+        "--min-area",
+        &area,
+        "--no-figure",
+        "-q",
+    ]);
+    let args = [
+        "compare",
+        "wide",
+        "--truth",
+        "inj/synth-truth.csv",
+        "--baseline",
+        "before",
+        "-o",
+        "scored-w",
+    ];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "before", "none is left to score");
+    assert!(!dir.join("scored-w").exists());
 
     // A baseline at other thresholds is named; one of another map is refused.
     run(&[
@@ -1151,14 +1265,76 @@ fn a_temperature_map_injects_as_its_temperature_and_is_checked_by_sha256() {
     let other = segment_and_score("other", &["--temperature-map", "t15.fits"]);
     assert!(
         other.contains("warning: the run's temperature map (SHA-256 ")
-            && other.contains("is not the injection's, t14.fits"),
+            && other.contains("is not the injection's, ")
+            && other.contains("t14.fits (SHA-256 "),
         "{other}"
     );
     let single = segment_and_score("single", &["--temperature", "14K"]);
     assert!(
         single.contains(
-            "warning: the run's dust temperature is 14 K and the injection used the temperature map t14.fits"
-        ),
+            "warning: the run's dust temperature is 14 K and the injection used the temperature map "
+        ) && single.contains("t14.fits: the run's masses differ"),
         "{single}"
     );
+}
+
+/// An A_K map injected as such (`--extinction-band K`) and segmented as A_V (the default): the
+/// scoring names the different reading, as the masses differ by A_V/A_K.
+#[test]
+fn a_map_read_in_another_band_than_the_injection_is_named() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let m = cairn::map::load(
+        &dir.join("base/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let mut h = m.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("mag".into()), "");
+    let ak = m.data.mapv(|v| v * 1e-22);
+    cairn::fits_write::write_image_f32(&dir.join("ak.fits"), ak.view(), &h, true).unwrap();
+    let o = inject(dir, "ak.fits", "inj", &["--extinction-band", "K"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for (name, band, warned) in [("as_k", "K", false), ("as_v", "V", true)] {
+        let o = cairn(
+            &[
+                "segment",
+                "inj/synth.fits",
+                "-o",
+                name,
+                "--distance",
+                "250pc",
+                "--extinction-band",
+                band,
+                "--no-figure",
+                "-q",
+            ],
+            dir,
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let out = format!("{name}-scored");
+        let o = cairn(
+            &[
+                "compare",
+                name,
+                "--truth",
+                "inj/synth-truth.csv",
+                "-o",
+                &out,
+                "-q",
+            ],
+            dir,
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        assert_eq!(
+            o.stderr.contains(
+                "warning: the run read the map as visual extinction A_V and the injection as K-band extinction A_K"
+            ),
+            warned,
+            "{name}: {}",
+            o.stderr
+        );
+        assert_eq!(o.stderr.contains("warning"), warned, "{name}: {}", o.stderr);
+    }
 }
