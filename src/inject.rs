@@ -209,6 +209,14 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         }
         true
     };
+    // One decimal for everyday values, four significant digits for extreme ones.
+    let short = |v: f64| {
+        if (0.1..1e6).contains(&v) {
+            format!("{v:.1}")
+        } else {
+            format!("{v:.3e}")
+        }
+    };
     let mut r = synth::rng(opts.seed, STREAM_PLACEMENT);
     let mut placed = Placed::new(nx, ny, sep_px, cores.len());
     let (w_in, h_in) = (
@@ -231,8 +239,10 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
             return Err(cannot(
                 map,
                 &format!(
-                    "has room for only {i} of the {} cores at least {:.1} arcsec ({:.1} pixels) apart on valid pixels {margin} pixels from the edges; give fewer --cores, a smaller --core-radius or a smaller --min-separation.",
-                    p.count, separation_arcsec, sep_px
+                    "has room for only {i} of the {} cores at least {} arcsec ({} pixels) apart on valid pixels {margin} pixels from the edges; give fewer --cores, a smaller --core-radius or a smaller --min-separation.",
+                    p.count,
+                    short(separation_arcsec),
+                    short(sep_px)
                 ),
             ));
         }
