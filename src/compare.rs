@@ -3,8 +3,8 @@
 //!
 //! Owns reading finished runs (a run folder, or a catalogue CSV with its `run.json` beside
 //! it), the choice of the population (the leaves: core candidates), the per-population
-//! summary (counts by state, mass function, power-law tail with bootstrap, log-normal fit,
-//! mass-size relation, median density), the pairwise tests (Kolmogorov-Smirnov on masses and
+//! summary (counts by state, mass function, power-law tail with bootstrap and its comparison
+//! with a truncated log-normal, log-normal fit, mass-size relation, median density), the pairwise tests (Kolmogorov-Smirnov on masses and
 //! sizes, slope differences) and the k-sample Anderson-Darling tests, the fairness checks, and
 //! the report (Markdown and CSV tables).
 //!
@@ -273,6 +273,8 @@ pub struct Summary {
     pub tail: Option<populations::PowerLawFit>,
     /// Its bootstrap.
     pub tail_bootstrap: Option<(f64, f64)>,
+    /// The tail's power law against a log-normal truncated at the same lower mass.
+    pub tail_vs_lognormal: Option<populations::TailVsLogNormal>,
     /// Log-normal fit.
     pub lognormal: Option<populations::LogNormalFit>,
     /// Mass-size relation.
@@ -376,6 +378,9 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             crate::units::tidy(o.alpha_max)
         ));
     }
+    let tail_vs_lognormal = tail
+        .as_ref()
+        .and_then(|t| populations::power_law_vs_lognormal(&p.masses, t.xmin).ok());
     let lognormal = populations::fit_lognormal(&p.masses).ok();
     let mass_size = match populations::fit_mass_size(&p.radii, &p.masses) {
         Ok(f) => Some(f),
@@ -397,6 +402,7 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         states: p.states.clone(),
         tail,
         tail_bootstrap,
+        tail_vs_lognormal,
         lognormal,
         mass_size,
         median_mass: populations::median(&p.masses).unwrap_or(f64::NAN),
@@ -710,6 +716,33 @@ pub fn summary_table(c: &Comparison) -> Table {
         "KS distance of the tail to the fitted law",
         g(&|x| x.tail.as_ref().map(|t| t.ks_distance).unwrap_or(f64::NAN)),
     );
+    // The tail's power law against a log-normal (Clauset et al. 2009 section 5; Vuong 1989).
+    type Versus = fn(&populations::TailVsLogNormal) -> f64;
+    let versus_columns: [(&str, &str, Versus); 3] = [
+        (
+            "tail_llr_lognormal",
+            "log-likelihood ratio R = ln L(power law) - ln L(log-normal truncated at mass_min, fitted to the same tail); negative favours the log-normal; never positive, as the power law is a limit of those log-normals (0 when the best one is that limit)",
+            |v| v.ratio,
+        ),
+        (
+            "tail_llr_lognormal_norm",
+            "R / (sqrt(n_tail) s), s the standard deviation of the per-leaf log-likelihood differences (Vuong 1989); empty when R = 0 at the limit",
+            |v| v.normalized_ratio,
+        ),
+        (
+            "tail_llr_lognormal_p",
+            "two-sided p-value of Vuong's test: a low p means the sign of R is meaningful, a high p that the tail cannot tell the two apart; empty at the limit",
+            |v| v.p_value,
+        ),
+    ];
+    for (name, description, of) in versus_columns {
+        t.push_f64(
+            name,
+            "",
+            description,
+            g(&|x| x.tail_vs_lognormal.as_ref().map(of).unwrap_or(f64::NAN)),
+        );
+    }
     // The log-normal fit's columns; NaN for a population without one.
     type Of = fn(&populations::LogNormalFit) -> f64;
     let lognormal_columns: [(&str, &str, &str, Of); 9] = [
@@ -975,6 +1008,35 @@ pub fn tests_table(c: &Comparison) -> Table {
     t
 }
 
+/// The significance level at which the tail's comparison with a log-normal is read (Clauset et
+/// al. 2009 read p < 0.1 as significant, from memory of their section 5).
+const VERSUS_LEVEL: f64 = 0.1;
+
+/// The report's sentence on a tail's power law against a log-normal.
+fn versus_sentence(v: &populations::TailVsLogNormal) -> String {
+    use populations::Verdict;
+    if v.lognormal.at_power_law_limit {
+        return format!(
+            "the tail's power law is not distinguished from a log-normal: the best log-normal truncated at {} Msun is the power law itself (its sigma grows without bound), R = 0 over {} leaves.",
+            f(v.xmin),
+            v.n
+        );
+    }
+    let verdict = match v.verdict(VERSUS_LEVEL) {
+        Verdict::PowerLawFavoured => "favoured over",
+        Verdict::LogNormalFavoured => "disfavoured against",
+        Verdict::NotDistinguished => "not distinguished from",
+    };
+    format!(
+        "the tail's power law is {verdict} a log-normal, p = {} (R = {}, normalised {}, {} leaves above {} Msun).",
+        f(v.p_value),
+        f(v.ratio),
+        f(v.normalized_ratio),
+        v.n,
+        f(v.xmin)
+    )
+}
+
 /// The Markdown report.
 pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     let mut s = String::new();
@@ -1065,6 +1127,18 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     for x in &c.summaries {
         for n in &x.notes {
             let _ = writeln!(s, "\n{}: {n}.", x.label);
+        }
+    }
+    if c.summaries.iter().any(|x| x.tail_vs_lognormal.is_some()) {
+        let _ = writeln!(
+            s,
+            "\nPower law or log-normal for the tail (Clauset, Shalizi & Newman 2009, section 5): the log-likelihood ratio R of the tail's power law and a log-normal truncated at mass_min and fitted to the same leaves, normalised and with the two-sided p-value of Vuong (1989). A p below {} means the sign of R is meaningful; a higher p means the tail cannot tell the two apart, which says nothing against either. The power law is a limit of those log-normals (sigma without bound), so R is never positive: this test can find a tail curved like a log-normal, never prefer the power law.\n",
+            crate::units::tidy(VERSUS_LEVEL)
+        );
+        for x in &c.summaries {
+            if let Some(v) = &x.tail_vs_lognormal {
+                let _ = writeln!(s, "- {}: {}", x.label, versus_sentence(v));
+            }
         }
     }
     let _ = writeln!(

@@ -112,6 +112,30 @@ fn compare_reports_statistics_and_fairness() {
         assert!((y / x - 4.0).abs() < 1e-9, "{name}: {x} {y}");
     }
     assert!(report.contains("sigma(ln M) (68% interval)"), "{report}");
+    // The tail against a truncated log-normal (checked against powerlaw 2.0.0 in
+    // populations_reference): one sentence per population, and R, its normalised form and p do
+    // not change with the scale of the masses (the tail's lower mass scales with them).
+    for label in ["near", "far"] {
+        assert!(
+            report.contains(&format!("- {label}: the tail's power law is")),
+            "{report}"
+        );
+    }
+    for name in [
+        "tail_llr_lognormal",
+        "tail_llr_lognormal_norm",
+        "tail_llr_lognormal_p",
+    ] {
+        let c = rows[0].iter().position(|c| *c == name).unwrap();
+        let (x, y) = (rows[1][c], rows[2][c]);
+        if x.is_empty() {
+            assert!(y.is_empty(), "{name}: {x} {y}");
+            continue;
+        }
+        let (x, y): (f64, f64) = (x.parse().unwrap(), y.parse().unwrap());
+        assert!((x - y).abs() <= 1e-9 * x.abs().max(1.0), "{name}: {x} {y}");
+    }
+    assert!(get(&rows[1], "tail_llr_lognormal") <= 0.0);
     for f in [
         "mass_functions.csv",
         "cumulative.csv",

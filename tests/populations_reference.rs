@@ -446,3 +446,124 @@ fn percentiles_match_numpy() {
         );
     }
 }
+
+/// The tail's power law against a log-normal truncated at the same lower mass and fitted to the
+/// same masses (Clauset, Shalizi & Newman 2009 section 5; Vuong 1989), against
+/// fixtures/populations/tail_vs_lognormal.json: powerlaw 2.0.0
+/// `Fit(data, xmin=given).distribution_compare('power_law', 'lognormal')` with and without
+/// `normalized_ratio=True`, its `fit.lognormal` (mu, sigma, loglikelihood, noise_flag), and
+/// scipy 1.17.1 `special.log_ndtr` re-evaluating that log-normal's log-likelihood in logarithms.
+///
+/// Tolerances. The power law is the same closed form on the same masses: alpha and its
+/// log-likelihood to 1e-12 relative (measured 1e-15). powerlaw fits the log-normal by
+/// Nelder-Mead with tol=1e-4 (scipy's xatol and fatol: the simplex spans at most 1e-4 in mu and
+/// sigma and in -ln L when it stops), so its maximum can lie up to about 1e-4 below the true
+/// one, and cairn's (Newton's method to a decrement of 1e-14 per mass on the concave
+/// likelihood) must be at least as high, less a rounding allowance of 1e-9 on sums of up to
+/// 2000 terms, and higher by at most that 1e-4 (measured: up to 2.1e-7 higher). R then agrees
+/// to 1e-4 absolute too. The parameters agree to 1e-3 of sigma, the scale of both (measured:
+/// up to 1e-4; near the power-law limit mu and sigma trade along a flat ridge of the
+/// likelihood, where a small rise of ln L moves them far). The normalised ratio agrees to 1e-3
+/// relative (measured 5e-5), and the p-value, erfc(|R_norm|/sqrt 2), to 5e-3 relative: its
+/// relative change is about |R_norm| + 1/|R_norm| times the change of R_norm (measured 1e-3 at
+/// p = 1e-5).
+///
+/// Where powerlaw's fit carries `noise_flag` (its optimiser failed or left the range), cairn
+/// must find the likelihood's supremum at the power-law limit (the best log-normal is the power
+/// law itself, R = 0, no normalised ratio or p-value): the package flags exactly the cases that
+/// cairn finds at the limit, and there the log-likelihood at powerlaw's mu and sigma, evaluated
+/// in logarithms by scipy, lies below the power law's, as the limit requires. (powerlaw's own
+/// value there is computed from two subnormal numbers and is not used.)
+#[test]
+fn tail_against_lognormal_matches_powerlaw_package() {
+    let f = fixture_json("populations/tail_vs_lognormal.json");
+    let cases = f["cases"].as_object().unwrap();
+    let (mut at_limit, mut favoured, mut undecided) = (0, 0, 0);
+    for (name, c) in cases {
+        let data = nums(&c["data"]);
+        let xmin = num(&c["xmin"]);
+        let r = populations::power_law_vs_lognormal(&data, xmin).unwrap();
+        let ln = &c["lognormal"];
+        let what = |key: &str| format!("{name}: {key} (powerlaw 2.0.0)");
+        assert_eq!(r.n as u64, c["n_tail"].as_u64().unwrap(), "{name}: n");
+        assert_close(r.alpha, num(&c["alpha"]), 1e-12, 0.0, &what("alpha"));
+        assert_close(
+            r.log_likelihood_power_law,
+            num(&c["loglikelihood_power_law"]),
+            1e-12,
+            0.0,
+            &what("power law ln L"),
+        );
+        let flagged = ln["noise_flag"].as_bool().unwrap();
+        assert_eq!(
+            r.lognormal.at_power_law_limit, flagged,
+            "{name}: at the power-law limit exactly where powerlaw's fit is flagged"
+        );
+        if flagged {
+            at_limit += 1;
+            assert_eq!(r.ratio, 0.0, "{name}: R at the limit");
+            assert!(r.normalized_ratio.is_nan() && r.p_value.is_nan(), "{name}");
+            assert_close(
+                r.lognormal.log_likelihood,
+                r.log_likelihood_power_law,
+                1e-12,
+                0.0,
+                &format!("{name}: the limit's ln L is the power law's"),
+            );
+            let at_package = num(&ln["loglikelihood_log_ndtr"]);
+            assert!(
+                at_package <= r.lognormal.log_likelihood + 1e-9,
+                "{name}: powerlaw's log-normal ({at_package}, scipy log_ndtr) beats the power-law limit ({})",
+                r.lognormal.log_likelihood
+            );
+            continue;
+        }
+        // The package's value and scipy's re-evaluation in logarithms agree here.
+        let package = num(&ln["loglikelihood"]);
+        assert_close(
+            num(&ln["loglikelihood_log_ndtr"]),
+            package,
+            1e-12,
+            0.0,
+            &format!("{name}: powerlaw's ln L against scipy's log_ndtr at its mu and sigma"),
+        );
+        let rise = r.lognormal.log_likelihood - package;
+        eprintln!("{name}: cairn's log-normal ln L is {rise:.3e} above powerlaw's");
+        assert!(
+            (-1e-9..=1e-4).contains(&rise),
+            "{name}: cairn's maximum ln L {} against powerlaw's {package}",
+            r.lognormal.log_likelihood
+        );
+        assert_close(r.ratio, num(&c["R"]), 0.0, 1e-4, &what("R"));
+        let sigma = num(&ln["sigma"]);
+        assert_close(
+            r.lognormal.mu,
+            num(&ln["mu"]),
+            0.0,
+            1e-3 * sigma,
+            &what("mu"),
+        );
+        assert_close(r.lognormal.sigma, sigma, 1e-3, 0.0, &what("sigma"));
+        assert_close(
+            r.normalized_ratio,
+            num(&c["R_normalized"]),
+            1e-3,
+            0.0,
+            &what("normalised R"),
+        );
+        assert_close(r.p_value, num(&c["p"]), 5e-3, 0.0, &what("p"));
+        // A small p favours the sign of R: here always the log-normal, since the power law is
+        // a limit of the truncated log-normals and R cannot be positive.
+        assert!(r.ratio <= 0.0, "{name}: R = {}", r.ratio);
+        match r.verdict(0.1) {
+            populations::Verdict::LogNormalFavoured => favoured += 1,
+            populations::Verdict::NotDistinguished => undecided += 1,
+            populations::Verdict::PowerLawFavoured => panic!("{name}: power law favoured"),
+        }
+    }
+    // Every kind of outcome is among the cases.
+    assert!(
+        at_limit >= 1 && favoured >= 2 && undecided >= 4,
+        "{at_limit} {favoured} {undecided}"
+    );
+}

@@ -26,6 +26,10 @@
 //!   Tsang & Wang 2003; Pelz & Good 1976; Birnbaum & Tingey 1951).
 //! - [`anderson`]: the k-sample Anderson-Darling test (Scholz & Stephens 1987, JASA 82, 918),
 //!   midrank version, with the p-value interpolated from their table of critical values.
+//! - [`tail_lognormal`]: the tail's power law against a log-normal truncated at the same
+//!   x_min and fitted to the same masses, by the log-likelihood ratio R, its normalised form and
+//!   the two-sided p-value of Vuong 1989 (Econometrica 57, 307), as Clauset, Shalizi & Newman
+//!   2009 (section 5) and powerlaw 2.0.0's `distribution_compare` do it.
 //! - [`regression`]: least squares log10 M = a + b log10 R with standard errors and rms
 //!   scatter; the difference of two slopes and its significance.
 //! - [`summary`]: median and percentiles (linear interpolation between order statistics,
@@ -38,6 +42,7 @@ pub mod mass_function;
 pub mod powerlaw;
 pub mod regression;
 pub mod summary;
+pub mod tail_lognormal;
 
 pub use anderson::{AndersonKSample, anderson_ksamp};
 pub use ks::{KsMethod, KsTwoSample, ks_2samp};
@@ -52,6 +57,9 @@ pub use powerlaw::{
 };
 pub use regression::{LineFit, SlopeDifference, fit_line, fit_mass_size, slope_difference};
 pub use summary::{median, percentile, percentiles};
+pub use tail_lognormal::{
+    TailVsLogNormal, TruncatedLogNormal, Verdict, fit_truncated_lognormal, power_law_vs_lognormal,
+};
 
 use crate::error::Error;
 

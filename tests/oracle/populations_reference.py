@@ -7,10 +7,13 @@ Sources (each value names the library that made it):
   continuous power-law fit of Clauset, Shalizi & Newman 2009 (SIAM Review 51, 661):
   `powerlaw.Fit(data, discrete=False, verbose=0)` -> alpha, xmin, sigma, D, and the per-candidate
   scan (`xmin_fitting_results`); `powerlaw.Fit(data, xmin=given)` -> power_law.alpha, standard
-  error and D.
+  error and D; `Fit(data, xmin=given).distribution_compare('power_law', 'lognormal')` (the
+  log-likelihood ratio test of Clauset et al. section 5 with Vuong's normalisation) and the
+  truncated log-normal it fits (`fit.lognormal.mu`, `.sigma`, `.loglikelihood`).
 - scipy 1.17.1: `stats.ks_2samp` (methods 'auto', 'exact', 'asymp'), `stats.anderson_ksamp`
   (variant 'midrank', Scholz & Stephens 1987, JASA 82, 918), `stats.lognorm.fit(floc=0)`,
-  `stats.t.interval` and `stats.chi2.ppf` (log-normal confidence intervals), `stats.linregress`.
+  `stats.t.interval` and `stats.chi2.ppf` (log-normal confidence intervals), `stats.linregress`,
+  `special.log_ndtr` (a truncated log-normal's log-likelihood evaluated in logarithms).
 - numpy 2.4.6 `percentile` (its default 'linear' method) for the medians and percentiles.
 - numpy 2.4.6 `random.default_rng` with fixed seeds draws every sample. Samples are rounded to
   10 significant digits before use so the fixtures stay small; the rounded values are the ones
@@ -79,20 +82,75 @@ def power_law_case(name, data, given_xmin, keep_scan):
     write_json(os.path.join(OUT, f"powerlaw_{name}.json"), out)
 
 
-def power_laws():
+def power_law_samples():
+    """The power-law samples as (name, data, the true x_min given to the fits, whether the
+    candidate scan is stored)."""
+    out = []
     cases = [(2.35, 1.0), (1.8, 0.3)]
     for ci, (alpha, xmin) in enumerate(cases):
         for n in (50, 200, 2000):
             rng = np.random.default_rng(1000 + 10 * ci + n)
             data = rounded(draw_power_law(rng, alpha, xmin, n))
-            power_law_case(f"a{alpha}_n{n}", data, xmin, keep_scan=n <= 200)
+            out.append((f"a{alpha}_n{n}", data, xmin, n <= 200))
     # A log-normal body below a break at 2.0 and a power-law tail (alpha 2.35) above it.
     rng = np.random.default_rng(2024)
     body = rng.lognormal(np.log(0.7), 0.6, 5000)
     body = body[body < 2.0][:600]
     tail = draw_power_law(rng, 2.35, 2.0, 400)
     data = rounded(np.concatenate([body, tail]))
-    power_law_case("broken", data, 2.0, keep_scan=False)
+    out.append(("broken", data, 2.0, False))
+    return out
+
+
+def power_laws():
+    for name, data, xmin, keep_scan in power_law_samples():
+        power_law_case(name, data, xmin, keep_scan=keep_scan)
+
+
+def tail_vs_lognormal():
+    """powerlaw's comparison of a tail's power law with a log-normal truncated at the same given
+    x_min: Fit(data, xmin=given).distribution_compare('power_law', 'lognormal'), with and
+    without normalized_ratio=True, the fitted truncated log-normal's mu, sigma, log-likelihood
+    and noise_flag, and the power law's log-likelihood. The log-normal is fitted by powerlaw's
+    Nelder-Mead (tol 1e-4); powerlaw evaluates its density in linear space, which underflows far
+    from the peak, so the log-likelihood at powerlaw's mu and sigma is also re-evaluated here in
+    logarithms with scipy.special.log_ndtr (ln L = sum(-ln x - ln sigma - ln sqrt(2 pi) -
+    (ln x - mu)^2 / (2 sigma^2)) - n ln Q((ln x_min - mu)/sigma), Q the normal upper tail)."""
+    from scipy.special import log_ndtr
+    samples = [(name, data, xmin) for name, data, xmin, _ in power_law_samples()]
+    broken = samples[-1][1]
+    # A log-normal sample above a lower mass below its peak, and the broken sample from inside
+    # its log-normal body: tails curved like a log-normal.
+    samples.append(("lognormal_n300", lognormal_samples()[300], 0.5))
+    samples.append(("broken_body", broken, 1.0))
+    out = {"source": f"{POWERLAW} Fit(data, xmin=given, discrete=False)"
+                     ".distribution_compare('power_law', 'lognormal'); "
+                     f"{SCIPY} special.log_ndtr",
+           "versions": VERSIONS, "cases": {}}
+    for name, data, xmin in samples:
+        fit = quiet(powerlaw.Fit, data, xmin=xmin, discrete=False, verbose=0)
+        tail = data[data >= xmin]
+        # The power law must be powerlaw's closed form (1.5 < alpha <= 3), cairn's estimator.
+        closed = 1.0 + len(tail) / np.sum(np.log(tail / xmin))
+        pl = quiet(lambda: fit.power_law)
+        assert 1.5 < pl.alpha <= 3.0 and abs(pl.alpha - closed) <= 1e-12 * closed, (name, pl.alpha)
+        ln = quiet(lambda: fit.lognormal)
+        r, p = quiet(fit.distribution_compare, "power_law", "lognormal")
+        rn, pn = quiet(fit.distribution_compare, "power_law", "lognormal", normalized_ratio=True)
+        assert p == pn, name
+        y = np.log(tail)
+        stable = np.sum(-y - np.log(ln.sigma) - 0.5 * np.log(2.0 * np.pi)
+                        - (y - ln.mu) ** 2 / (2.0 * ln.sigma ** 2)) \
+            - len(tail) * log_ndtr(-(np.log(xmin) - ln.mu) / ln.sigma)
+        out["cases"][name] = {
+            "data": data, "xmin": xmin, "n_tail": len(tail), "alpha": pl.alpha,
+            "loglikelihood_power_law": np.sum(pl.loglikelihoods(tail)),
+            "R": r, "R_normalized": rn, "p": p,
+            "lognormal": {"mu": ln.mu, "sigma": ln.sigma, "loglikelihood": ln.loglikelihood,
+                          "noise_flag": bool(ln.noise_flag),
+                          "loglikelihood_log_ndtr": stable},
+        }
+    write_json(os.path.join(OUT, "tail_vs_lognormal.json"), out)
 
 
 def ks_case(x, y):
@@ -153,6 +211,15 @@ def ad_sets():
     write_json(os.path.join(OUT, "anderson_ksamp.json"), out)
 
 
+def lognormal_samples():
+    """The log-normal samples (median 0.8, sigma 0.5 in ln M) by size."""
+    out = {}
+    for i, n in enumerate((30, 300, 5, 12, 3)):
+        rng = np.random.default_rng(500 + i)
+        out[n] = rounded(rng.lognormal(np.log(0.8), 0.5, n))
+    return out
+
+
 def lognormals():
     # The fit, and the exact central 68.27% confidence intervals of the mean and standard
     # deviation of ln M: scipy's Student t interval (stats.t.interval with the standard error
@@ -161,9 +228,7 @@ def lognormals():
     level = stats.norm.cdf(1.0) - stats.norm.cdf(-1.0)
     out = {"source": f"{SCIPY} stats.lognorm.fit(data, floc=0); stats.t.interval; stats.chi2.ppf",
            "versions": VERSIONS, "level": level, "samples": {}}
-    for i, n in enumerate((30, 300, 5, 12, 3)):
-        rng = np.random.default_rng(500 + i)
-        data = rounded(rng.lognormal(np.log(0.8), 0.5, n))
+    for n, data in lognormal_samples().items():
         shape, loc, scale = stats.lognorm.fit(data, floc=0)
         y = np.log(data)
         s = np.std(y, ddof=1)
@@ -214,3 +279,4 @@ if __name__ == "__main__":
     ad_sets()
     lognormals()
     mass_size()
+    tail_vs_lognormal()
