@@ -5,8 +5,9 @@
 //! it), the choice of the population (the leaves: core candidates), the per-population
 //! summary (counts by state, mass function, power-law tail with bootstrap and its comparison
 //! with a truncated log-normal, log-normal fit, mass-size relation, median density), the pairwise tests (Kolmogorov-Smirnov on masses and
-//! sizes, slope differences) and the k-sample Anderson-Darling tests, the fairness checks, and
-//! the report (Markdown and CSV tables).
+//! sizes, slope differences) and the k-sample Anderson-Darling tests, on every leaf or on the
+//! leaves at or above a common lower mass ([`Options::tests_above`], which the mass-size fits
+//! share), the fairness checks, and the report (Markdown and CSV tables).
 //!
 //! Fairness (common practice): populations extracted at linear resolutions (beam FWHM times
 //! distance) that differ by more than a factor 1.5, or with mass sensitivities (the mass of one
@@ -277,8 +278,11 @@ pub struct Summary {
     pub tail_vs_lognormal: Option<populations::TailVsLogNormal>,
     /// Log-normal fit.
     pub lognormal: Option<populations::LogNormalFit>,
-    /// Mass-size relation.
+    /// Mass-size relation (of the leaves at or above [`Options::tests_above`]).
     pub mass_size: Option<populations::LineFit>,
+    /// Leaves used by the two-sample and k-sample tests and the mass-size fit: those at or
+    /// above [`Options::tests_above`], else every leaf.
+    pub n_tested: usize,
     /// Median mass.
     pub median_mass: f64,
     /// Median density (cm^-3).
@@ -303,6 +307,10 @@ pub struct Options {
     pub seed: u64,
     /// Width of the mass-function bins in dex.
     pub bin_dex: f64,
+    /// A common lower mass (M_sun) for the two-sample and k-sample tests and the mass-size
+    /// fits: only leaves at or above it, in every population, so that catalogues of
+    /// different completeness are compared above one limit (else every leaf).
+    pub tests_above: Option<f64>,
 }
 
 impl Default for Options {
@@ -313,8 +321,24 @@ impl Default for Options {
             resamples: 500,
             seed: 1,
             bin_dex: 0.2,
+            tests_above: None,
         }
     }
+}
+
+/// Below this many leaves at or above `--tests-above`, the report says the tests and the
+/// mass-size fit of that population say little (a handful; common practice).
+const FEW_TESTED: usize = 5;
+
+/// The masses and radii of the leaves that the tests and the mass-size fit use: those at or
+/// above `cut`, or every leaf.
+fn tested(p: &Population, cut: Option<f64>) -> (Vec<f64>, Vec<f64>) {
+    p.masses
+        .iter()
+        .zip(&p.radii)
+        .filter(|(m, _)| cut.is_none_or(|c| **m >= c))
+        .map(|(&m, &r)| (m, r))
+        .unzip()
 }
 
 /// Summarises one population.
@@ -382,11 +406,37 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         .as_ref()
         .and_then(|t| populations::power_law_vs_lognormal(&p.masses, t.xmin).ok());
     let lognormal = populations::fit_lognormal(&p.masses).ok();
-    let mass_size = match populations::fit_mass_size(&p.radii, &p.masses) {
-        Ok(f) => Some(f),
-        Err(e) => {
-            notes.push(format!("no mass-size fit: {}", e.message));
-            None
+    let (tested_masses, tested_radii) = tested(p, o.tests_above);
+    if let Some(cut) = o.tests_above
+        && tested_masses.len() < FEW_TESTED
+    {
+        let k = tested_masses.len();
+        notes.push(if k == 0 {
+            format!(
+                "no leaf lies at or above --tests-above {} Msun, so this population has no two-sample tests and no mass-size fit, and no k-sample Anderson-Darling test is made",
+                crate::units::tidy(cut)
+            )
+        } else {
+            format!(
+                "only {} at or above --tests-above {} Msun, so its two-sample tests and its mass-size fit say little",
+                if k == 1 {
+                    "1 leaf lies".to_string()
+                } else {
+                    format!("{k} leaves lie")
+                },
+                crate::units::tidy(cut)
+            )
+        });
+    }
+    let mass_size = if tested_masses.is_empty() {
+        None
+    } else {
+        match populations::fit_mass_size(&tested_radii, &tested_masses) {
+            Ok(f) => Some(f),
+            Err(e) => {
+                notes.push(format!("no mass-size fit: {}", e.message));
+                None
+            }
         }
     };
     let dens: Vec<f64> = p
@@ -405,6 +455,7 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         tail_vs_lognormal,
         lognormal,
         mass_size,
+        n_tested: tested_masses.len(),
         median_mass: populations::median(&p.masses).unwrap_or(f64::NAN),
         median_density: populations::median(&dens).unwrap_or(f64::NAN),
         mass_function: populations::mass_function(&p.masses, &Binning::WidthDex(o.bin_dex)).ok(),
@@ -552,6 +603,8 @@ pub struct Comparison {
     pub ad_radius: Option<populations::AndersonKSample>,
     /// Fairness warnings.
     pub warnings: Vec<String>,
+    /// The common lower mass of the tests and mass-size fits ([`Options::tests_above`]).
+    pub tests_above: Option<f64>,
 }
 
 /// Compares populations.
@@ -581,6 +634,8 @@ pub fn compare_with_progress(
         .par_iter()
         .map(|p| summarise_with(p, o, &tick))
         .collect();
+    // The leaves the tests use (at or above --tests-above).
+    let cut: Vec<(Vec<f64>, Vec<f64>)> = pops.iter().map(|p| tested(p, o.tests_above)).collect();
     let mut pairs = vec![];
     for i in 0..pops.len() {
         for j in i + 1..pops.len() {
@@ -605,15 +660,15 @@ pub fn compare_with_progress(
             pairs.push(Pair {
                 a: a.label.clone(),
                 b: b.label.clone(),
-                ks_mass: populations::ks_2samp(&a.masses, &b.masses, KsMethod::Auto).ok(),
-                ks_radius: populations::ks_2samp(&a.radii, &b.radii, KsMethod::Auto).ok(),
+                ks_mass: populations::ks_2samp(&cut[i].0, &cut[j].0, KsMethod::Auto).ok(),
+                ks_radius: populations::ks_2samp(&cut[i].1, &cut[j].1, KsMethod::Auto).ok(),
                 alpha_difference,
                 mass_size_difference,
             });
         }
     }
-    let ms: Vec<&[f64]> = pops.iter().map(|p| p.masses.as_slice()).collect();
-    let rs: Vec<&[f64]> = pops.iter().map(|p| p.radii.as_slice()).collect();
+    let ms: Vec<&[f64]> = cut.iter().map(|c| c.0.as_slice()).collect();
+    let rs: Vec<&[f64]> = cut.iter().map(|c| c.1.as_slice()).collect();
     Comparison {
         summaries,
         pairs,
@@ -624,7 +679,16 @@ pub fn compare_with_progress(
             .then(|| populations::anderson_ksamp(&rs).ok())
             .flatten(),
         warnings: fairness(pops),
+        tests_above: o.tests_above,
     }
+}
+
+/// The note of the tables and the report when the tests use a common lower mass.
+fn tests_above_note(cut: f64) -> String {
+    format!(
+        "the two-sample Kolmogorov-Smirnov tests, the k-sample Anderson-Darling tests and the mass-size fits use only the leaves of at least {} Msun in every population (--tests-above), so that catalogues of different completeness are compared above one limit; the mass functions, power-law tails, log-normal fits and medians use every leaf",
+        crate::units::tidy(cut)
+    )
 }
 
 fn f(x: f64) -> String {
@@ -649,6 +713,9 @@ pub fn summary_table(c: &Comparison) -> Table {
         notes: vec![MASS_CAUTION.into()],
         ..Default::default()
     };
+    if let Some(cut) = c.tests_above {
+        t.notes.push(tests_above_note(cut));
+    }
     let s = &c.summaries;
     let g = |h: &dyn Fn(&Summary) -> f64| s.iter().map(h).collect::<Vec<f64>>();
     t.push_text(
@@ -661,6 +728,12 @@ pub fn summary_table(c: &Comparison) -> Table {
         "",
         "leaves with a positive mass",
         s.iter().map(|x| x.n as i64).collect(),
+    );
+    t.push_i64(
+        "n_tested",
+        "",
+        "leaves used by the two-sample and k-sample tests and the mass-size fit (those at or above --tests-above, else every leaf)",
+        s.iter().map(|x| x.n_tested as i64).collect(),
     );
     for st in ["bound", "marginal", "unbound", "unknown"] {
         t.push_i64(
@@ -909,6 +982,9 @@ pub fn tests_table(c: &Comparison) -> Table {
         name: "TESTS".into(),
         ..Default::default()
     };
+    if let Some(cut) = c.tests_above {
+        t.notes.push(tests_above_note(cut));
+    }
     let p = &c.pairs;
     let g = |h: &dyn Fn(&Pair) -> f64| p.iter().map(h).collect::<Vec<f64>>();
     t.push_text(
@@ -1066,6 +1142,9 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             f(x.median_density)
         );
     }
+    if let Some(cut) = c.tests_above {
+        let _ = writeln!(s, "\nCommon lower mass: {}.", tests_above_note(cut));
+    }
     let _ = writeln!(s, "\n## Mass functions\n");
     let _ = writeln!(
         s,
@@ -1141,18 +1220,34 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             }
         }
     }
+    // Which leaves the tests and the mass-size fits use.
+    let which = match c.tests_above {
+        Some(cut) => format!(
+            " Only the leaves of at least {} Msun (--tests-above).",
+            crate::units::tidy(cut)
+        ),
+        None => String::new(),
+    };
+    let which_tests = match c.tests_above {
+        Some(cut) => format!(
+            " The Kolmogorov-Smirnov and Anderson-Darling tests and the mass-size slopes use only the leaves of at least {} Msun (--tests-above); the tail exponents, each tail.",
+            crate::units::tidy(cut)
+        ),
+        None => String::new(),
+    };
     let _ = writeln!(
         s,
-        "\n## Mass-size relation\n\nLeast squares log10 M = a + b log10 R (M in Msun, R the effective radius in pc), with the rms scatter of log10 M about the fit.\n"
+        "\n## Mass-size relation\n\nLeast squares log10 M = a + b log10 R (M in Msun, R the effective radius in pc), with the rms scatter of log10 M about the fit.{which}\n"
     );
-    let _ = writeln!(s, "| population | b | +/- | a | scatter [dex] |");
-    let _ = writeln!(s, "| --- | --- | --- | --- | --- |");
+    let _ = writeln!(s, "| population | leaves | b | +/- | a | scatter [dex] |");
+    let _ = writeln!(s, "| --- | --- | --- | --- | --- | --- |");
     for x in &c.summaries {
         if let Some(l) = &x.mass_size {
             let _ = writeln!(
                 s,
-                "| {} | {} | {} | {} | {} |",
+                "| {} | {} | {} | {} | {} | {} |",
                 x.label,
+                l.n,
                 f(l.slope),
                 f(l.slope_error),
                 f(l.intercept),
@@ -1163,7 +1258,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     if !c.pairs.is_empty() {
         let _ = writeln!(
             s,
-            "\n## Between populations\n\nTwo-sample Kolmogorov-Smirnov tests (p-values as scipy.stats.ks_2samp computes them); differences of the tail exponents and mass-size slopes with their combined uncertainties.\n"
+            "\n## Between populations\n\nTwo-sample Kolmogorov-Smirnov tests (p-values as scipy.stats.ks_2samp computes them); differences of the tail exponents and mass-size slopes with their combined uncertainties.{which_tests}\n"
         );
         let _ = writeln!(
             s,
@@ -1310,8 +1405,9 @@ pub fn plots(
             ..Default::default()
         };
         if let Some(l) = &s.mass_size {
-            let (r0, r1) = p
-                .radii
+            // Over the radii of the leaves fitted.
+            let (r0, r1) = tested(p, c.tests_above)
+                .1
                 .iter()
                 .fold((f64::INFINITY, 0.0f64), |(a, b), &r| (a.min(r), b.max(r)));
             series.line = Some(vec![

@@ -790,6 +790,11 @@ struct CompareArgs {
     /// Fix the lower mass of the power-law tail, such as 1Msun [default: minimise the KS distance].
     #[arg(long, value_name = "MASS", allow_hyphen_values = true)]
     mass_min: Option<String>,
+    /// Use only the leaves of at least this mass, such as 1Msun, in every population for the
+    /// Kolmogorov-Smirnov and Anderson-Darling tests and the mass-size fits, so catalogues of
+    /// different completeness are compared above one limit [default: every leaf].
+    #[arg(long, value_name = "MASS", allow_hyphen_values = true)]
+    tests_above: Option<String>,
     /// Largest power-law exponent alpha of dN/dM ~ M^-alpha that the search for the tail's
     /// lower mass accepts (above 1, at most 10); raise it for steep tails.
     #[arg(
@@ -1658,6 +1663,7 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
             (!a.label.is_empty(), "--label"),
             (a.mass_column != "mass_excess", "--mass-column"),
             (a.mass_min.is_some(), "--mass-min"),
+            (a.tests_above.is_some(), "--tests-above"),
             (a.alpha_max != 3.0, "--alpha-max"),
             (a.resamples != 500, "--resamples"),
             (a.seed != 1, "--seed"),
@@ -1728,6 +1734,23 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
             a.mass_min.as_deref().unwrap_or("")
         )));
     }
+    let tests_above = a
+        .tests_above
+        .as_deref()
+        .map(|t| {
+            units::parse_quantity(t, &[Dimension::Mass], "--tests-above")
+                .map(|q| q.si / units::M_SUN)
+        })
+        .transpose()
+        .map_err(Error::usage)?;
+    if let Some(m) = tests_above
+        && !(m > 0.0 && m.is_finite())
+    {
+        return Err(Error::usage(format!(
+            "--tests-above {} must be a positive mass, such as 0.5Msun.",
+            a.tests_above.as_deref().unwrap_or("")
+        )));
+    }
     if !(a.alpha_max > 1.0 && a.alpha_max <= 10.0) {
         return Err(Error::usage(format!(
             "--alpha-max {} is outside the exponents a mass function can have here (above 1, at most 10); give one such as 4.",
@@ -1773,6 +1796,7 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         resamples: a.resamples,
         seed: a.seed,
         bin_dex: a.bin_width,
+        tests_above,
     };
     // A bar when the bootstraps are long: resamples times masses, as pixels for a map.
     let work: usize = pops.iter().map(|p| p.masses.len()).sum::<usize>() * a.resamples;

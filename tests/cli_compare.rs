@@ -292,3 +292,175 @@ fn compare_refuses_a_run_record_of_another_run() {
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(d.path().join("cmp/report.md").is_file());
 }
+
+mod common;
+
+/// `--tests-above`: the Kolmogorov-Smirnov tests, the k-sample Anderson-Darling tests and the
+/// mass-size fits use only the leaves at or above a common mass in every population. Three
+/// invented catalogues of fixtures/populations/tests_above.json are compared with the cut, and
+/// the statistics equal scipy 1.17.1's on the cut samples (ks_2samp with method 'auto',
+/// anderson_ksamp with variant 'midrank', linregress of log10 M on log10 R), to 1e-10 relative
+/// as in populations_reference.rs; the Anderson-Darling tests appear only in the report, with
+/// three decimals, so they are checked to half a unit of the third decimal, and differ there
+/// from scipy's on every leaf, which the comparison without the cut gives.
+#[test]
+fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
+    use common::{assert_close, fixture_json, num, nums};
+    let f = fixture_json("populations/tests_above.json");
+    let d = tempfile::tempdir().unwrap();
+    let pops = f["populations"].as_object().unwrap();
+    let mut names = vec![];
+    for (name, p) in pops {
+        let mut text = String::from("kind,mass_excess,radius_pc\n");
+        for (r, m) in nums(&p["radius"]).iter().zip(nums(&p["mass"])) {
+            text += &format!("leaf,{m:?},{r:?}\n");
+        }
+        std::fs::create_dir(d.path().join(name)).unwrap();
+        std::fs::write(d.path().join(name).join("structures.csv"), text).unwrap();
+        names.push(name.as_str());
+    }
+    let cut = format!("{}Msun", num(&f["cut"]));
+    let compare = |out: &str, extra: &[&str]| {
+        let mut args = vec!["compare"];
+        args.extend_from_slice(&names);
+        args.extend_from_slice(&["-o", out, "--resamples", "20"]);
+        args.extend_from_slice(extra);
+        let (code, _, err) = run(d.path(), &args);
+        assert_eq!(code, 0, "{err}");
+        std::fs::read_to_string(d.path().join(out).join("report.md")).unwrap()
+    };
+    let table = |path: &str| -> Vec<Vec<String>> {
+        std::fs::read_to_string(d.path().join(path))
+            .unwrap()
+            .lines()
+            .filter(|l| !l.starts_with('#'))
+            .map(|l| l.split(',').map(str::to_string).collect())
+            .collect()
+    };
+    let value = |rows: &[Vec<String>], row: usize, name: &str| -> f64 {
+        let c = rows[0].iter().position(|c| c == name).unwrap();
+        rows[row][c].parse().unwrap()
+    };
+    // The Anderson-Darling statistic and p-value the report gives on masses or radii.
+    let anderson = |report: &str, what: &str| -> (f64, f64) {
+        let key = format!(
+            "k-sample Anderson-Darling test on {what} (Scholz & Stephens 1987, midrank): statistic "
+        );
+        let rest = &report[report.find(&key).unwrap() + key.len()..];
+        let (stat, rest) = rest.split_once(", p-value ").unwrap();
+        // The p-value, up to the sentence's end or the note on capping.
+        let p: String = rest
+            .chars()
+            .take_while(|c| c.is_ascii_digit() || *c == '.')
+            .collect();
+        (
+            stat.parse().unwrap(),
+            p.trim_end_matches('.').parse().unwrap(),
+        )
+    };
+
+    let report = compare("cut", &["--tests-above", &cut]);
+    let tests = table("cut/tests.csv");
+    let pairs = f["pairs"].as_array().unwrap();
+    assert_eq!(tests.len() - 1, pairs.len());
+    for (i, pair) in pairs.iter().enumerate() {
+        let row = i + 1;
+        assert_eq!(tests[row][0], pair["a"].as_str().unwrap());
+        assert_eq!(tests[row][1], pair["b"].as_str().unwrap());
+        for (key, what) in [("mass", "ks_mass"), ("radius", "ks_radius")] {
+            let reference = &pair[key]["auto"];
+            for (suffix, field) in [("d", "statistic"), ("p", "pvalue")] {
+                assert_close(
+                    value(&tests, row, &format!("{what}_{suffix}")),
+                    num(&reference[field]),
+                    1e-10,
+                    0.0,
+                    &format!(
+                        "{}-{} {what}_{suffix} (scipy 1.17.1 ks_2samp)",
+                        tests[row][0], tests[row][1]
+                    ),
+                );
+            }
+        }
+    }
+    let summary = table("cut/populations.csv");
+    for (row, name) in names.iter().enumerate().map(|(i, n)| (i + 1, n)) {
+        assert_eq!(summary[row][0], *name);
+        assert_eq!(
+            value(&summary, row, "n_tested") as u64,
+            f["n_kept"][name].as_u64().unwrap(),
+            "{name}: leaves at or above the cut"
+        );
+        let reference = &f["linregress"][name];
+        for (column, key) in [
+            ("mass_size_slope", "slope"),
+            ("mass_size_slope_err", "stderr"),
+            ("mass_size_intercept", "intercept"),
+        ] {
+            assert_close(
+                value(&summary, row, column),
+                num(&reference[key]),
+                1e-10,
+                0.0,
+                &format!("{name}: {column} (scipy 1.17.1 linregress)"),
+            );
+        }
+    }
+    for what in ["mass", "radius"] {
+        let plural = if what == "mass" { "masses" } else { "radii" };
+        let (stat, p) = anderson(&report, plural);
+        let reference = &f["anderson"][what];
+        let every = &f["anderson_every_leaf"][what];
+        assert!(
+            (stat - num(&reference["statistic"])).abs() <= 5e-4,
+            "{what}: Anderson-Darling statistic {stat} (scipy 1.17.1: {})",
+            reference["statistic"]
+        );
+        assert!(
+            (p - num(&reference["pvalue"])).abs() <= 5e-4,
+            "{what}: p {p}"
+        );
+        // The cut changes the statistic beyond the report's precision.
+        assert!((num(&every["statistic"]) - num(&reference["statistic"])).abs() > 1e-2);
+    }
+    // The cut is said: in the report, the tables' notes and the population with few leaves.
+    assert!(
+        report.contains("Common lower mass:") && report.contains("at least 1 Msun"),
+        "{report}"
+    );
+    assert!(
+        report.contains("C: only 4 leaves lie at or above --tests-above 1 Msun"),
+        "{report}"
+    );
+    for file in ["cut/populations.csv", "cut/tests.csv"] {
+        let text = std::fs::read_to_string(d.path().join(file)).unwrap();
+        assert!(
+            text.lines()
+                .any(|l| l.starts_with("# note:") && l.contains("--tests-above")),
+            "{file}"
+        );
+    }
+
+    // Without the cut every leaf is tested: scipy's Anderson-Darling statistics on every leaf.
+    let report = compare("every", &[]);
+    for what in ["mass", "radius"] {
+        let plural = if what == "mass" { "masses" } else { "radii" };
+        let (stat, _) = anderson(&report, plural);
+        let every = num(&f["anderson_every_leaf"][what]["statistic"]);
+        assert!(
+            (stat - every).abs() <= 5e-4,
+            "{what}: {stat} against {every}"
+        );
+    }
+    assert!(!report.contains("--tests-above"));
+
+    // A cut that is not a positive mass is refused in one sentence, with nothing written.
+    for bad in ["0Msun", "-1Msun", "0.5pc", "heavy"] {
+        let mut args = vec!["compare"];
+        args.extend_from_slice(&names);
+        args.extend_from_slice(&["-o", "bad", "--tests-above", bad]);
+        let o = cli::cairn(&args, d.path());
+        cli::check_refused(&o, &args, "--tests-above", bad);
+        assert!(!d.path().join("bad").exists());
+    }
+}

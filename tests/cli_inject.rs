@@ -448,6 +448,7 @@ fn bad_input_is_refused_in_one_sentence_with_nothing_written() {
         ("--label", "north"),
         ("--mass-column", "mass"),
         ("--mass-min", "1Msun"),
+        ("--tests-above", "1Msun"),
         ("--alpha-max", "4"),
         ("--resamples", "50"),
         ("--seed", "7"),

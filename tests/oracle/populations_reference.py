@@ -153,14 +153,19 @@ def tail_vs_lognormal():
     write_json(os.path.join(OUT, "tail_vs_lognormal.json"), out)
 
 
-def ks_case(x, y):
-    out = {"x": x, "y": y}
+def ks_results(x, y):
+    """scipy's two-sample KS test by each method."""
+    out = {}
     for method in ("auto", "exact", "asymp"):
         with warnings.catch_warnings():
             warnings.simplefilter("error")
             r = stats.ks_2samp(x, y, method=method)
         out[method] = {"statistic": r.statistic, "pvalue": r.pvalue}
     return out
+
+
+def ks_case(x, y):
+    return {"x": x, "y": y, **ks_results(x, y)}
 
 
 def ks_pairs():
@@ -185,6 +190,16 @@ def ks_pairs():
     write_json(os.path.join(OUT, "ks_2samp.json"), out)
 
 
+def ad_case(samples):
+    """scipy's k-sample Anderson-Darling test (midrank) and whether its p-value was capped."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        r = stats.anderson_ksamp(samples, variant="midrank")
+    capped = any("p-value capped" in str(w.message) or "p-value floored" in str(w.message)
+                 for w in caught)
+    return {"statistic": r.statistic, "pvalue": r.pvalue, "capped": capped}
+
+
 def ad_sets():
     rng = np.random.default_rng(91)
     sets = {
@@ -201,13 +216,7 @@ def ad_sets():
            "versions": VERSIONS, "sets": {}}
     for name, samples in sets.items():
         samples = [rounded(s) for s in samples]
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            r = stats.anderson_ksamp(samples, variant="midrank")
-        capped = any("p-value capped" in str(w.message) or "p-value floored" in str(w.message)
-                     for w in caught)
-        out["sets"][name] = {"samples": samples, "statistic": r.statistic,
-                             "pvalue": r.pvalue, "capped": capped}
+        out["sets"][name] = {"samples": samples, **ad_case(samples)}
     write_json(os.path.join(OUT, "anderson_ksamp.json"), out)
 
 
@@ -258,6 +267,48 @@ def mass_size():
     write_json(os.path.join(OUT, "mass_size.json"), out)
 
 
+def tests_above():
+    """Three invented populations of (radius, mass) pairs and a common lower mass: scipy's
+    two-sample KS tests (each pair, masses and radii), k-sample Anderson-Darling tests and
+    linregress(log10 R, log10 M) on the leaves at or above that mass, as `cairn compare
+    --tests-above` must compute them (and the Anderson-Darling tests on every leaf, to show the
+    cut changes them). One mass of A is set to the cut exactly, which the cut keeps; C keeps
+    only four leaves."""
+    cut = 1.0
+    rng = np.random.default_rng(903)
+    pops = {}
+    for name, (n, a, b, scatter, lo, hi) in {"A": (120, 2.5, 2.0, 0.3, -1.6, -0.6),
+                                              "B": (90, 2.6, 1.8, 0.25, -1.5, -0.7),
+                                              "C": (30, 2.4, 2.1, 0.3, -1.6, -1.2)}.items():
+        logr = rng.uniform(lo, hi, n)
+        logm = a + b * logr + rng.normal(0.0, scatter, n)
+        pops[name] = {"radius": rounded(10.0 ** logr), "mass": rounded(10.0 ** logm)}
+    pops["A"]["mass"][0] = cut
+    kept = {k: p["mass"] >= cut for k, p in pops.items()}
+    assert int(np.sum(kept["C"])) == 4, int(np.sum(kept["C"]))
+    out = {"source": f"{SCIPY} stats.ks_2samp, stats.anderson_ksamp(variant='midrank'), "
+                     "stats.linregress(log10 R, log10 M) on the leaves at or above the cut",
+           "versions": VERSIONS, "cut": cut, "populations": pops,
+           "n_kept": {k: int(np.sum(v)) for k, v in kept.items()},
+           "pairs": [], "anderson": {}, "anderson_every_leaf": {}, "linregress": {}}
+    names = list(pops)
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            out["pairs"].append({
+                "a": a, "b": b,
+                "mass": ks_results(pops[a]["mass"][kept[a]], pops[b]["mass"][kept[b]]),
+                "radius": ks_results(pops[a]["radius"][kept[a]], pops[b]["radius"][kept[b]])})
+    for key in ("mass", "radius"):
+        out["anderson"][key] = ad_case([pops[k][key][kept[k]] for k in names])
+        out["anderson_every_leaf"][key] = ad_case([pops[k][key] for k in names])
+    for k in names:
+        r = stats.linregress(np.log10(pops[k]["radius"][kept[k]]),
+                             np.log10(pops[k]["mass"][kept[k]]))
+        out["linregress"][k] = {"slope": r.slope, "intercept": r.intercept,
+                                "stderr": r.stderr, "intercept_stderr": r.intercept_stderr}
+    write_json(os.path.join(OUT, "tests_above.json"), out)
+
+
 def percentiles():
     """numpy.percentile (default method 'linear') of samples of several sizes, ties included."""
     qs = [0.0, 1.0, 16.0, 25.0, 50.0, 75.0, 84.0, 99.5, 100.0]
@@ -280,3 +331,4 @@ if __name__ == "__main__":
     lognormals()
     mass_size()
     tail_vs_lognormal()
+    tests_above()
