@@ -280,6 +280,8 @@ pub struct Summary {
     pub lognormal: Option<populations::LogNormalFit>,
     /// Mass-size relation (of the leaves at or above [`Options::tests_above`]).
     pub mass_size: Option<populations::LineFit>,
+    /// Paired bootstrap of its slope.
+    pub mass_size_bootstrap: Option<populations::SlopeBootstrap>,
     /// Leaves used by the two-sample and k-sample tests and the mass-size fit: those at or
     /// above [`Options::tests_above`], else every leaf.
     pub n_tested: usize,
@@ -439,6 +441,24 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             }
         }
     };
+    let mass_size_bootstrap = mass_size.as_ref().and_then(|_| {
+        let b = populations::bootstrap_mass_size(
+            &tested_radii,
+            &tested_masses,
+            &Bootstrap {
+                resamples: o.resamples,
+                seed: o.seed,
+            },
+        )
+        .ok()?;
+        if b.n_failed > 0 {
+            notes.push(format!(
+                "{} of {} bootstrap resamples of the mass-size relation drew one radius only and are left out of its bootstrap spread",
+                b.n_failed, o.resamples
+            ));
+        }
+        Some(b)
+    });
     let dens: Vec<f64> = p
         .densities
         .iter()
@@ -455,6 +475,7 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         tail_vs_lognormal,
         lognormal,
         mass_size,
+        mass_size_bootstrap,
         n_tested: tested_masses.len(),
         median_mass: populations::median(&p.masses).unwrap_or(f64::NAN),
         median_density: populations::median(&dens).unwrap_or(f64::NAN),
@@ -883,7 +904,7 @@ pub fn summary_table(c: &Comparison) -> Table {
     t.push_f64(
         "mass_size_slope_err",
         "",
-        "its standard error",
+        "its least-squares standard error (Gaussian scatter of one width)",
         g(&|x| {
             x.mass_size
                 .as_ref()
@@ -891,6 +912,32 @@ pub fn summary_table(c: &Comparison) -> Table {
                 .unwrap_or(f64::NAN)
         }),
     );
+    type Boot = fn(&populations::SlopeBootstrap) -> f64;
+    let boot_columns: [(&str, &str, Boot); 3] = [
+        (
+            "mass_size_slope_err_boot",
+            "standard deviation of the slope over bootstrap resamples of the (R, M) pairs",
+            |b| b.slope_std,
+        ),
+        (
+            "mass_size_slope_boot_lo",
+            "lower end of the central 68.27% percentile interval of the bootstrap slopes",
+            |b| b.slope_interval.0,
+        ),
+        (
+            "mass_size_slope_boot_hi",
+            "upper end of that interval",
+            |b| b.slope_interval.1,
+        ),
+    ];
+    for (name, description, of) in boot_columns {
+        t.push_f64(
+            name,
+            "",
+            description,
+            g(&|x| x.mass_size_bootstrap.as_ref().map(of).unwrap_or(f64::NAN)),
+        );
+    }
     t.push_f64(
         "mass_size_intercept",
         "",
@@ -1237,19 +1284,35 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     };
     let _ = writeln!(
         s,
-        "\n## Mass-size relation\n\nLeast squares log10 M = a + b log10 R (M in Msun, R the effective radius in pc), with the rms scatter of log10 M about the fit.{which}\n"
+        "\n## Mass-size relation\n\nLeast squares log10 M = a + b log10 R (M in Msun, R the effective radius in pc), with the rms scatter of log10 M about the fit. The slope's uncertainty is the least-squares standard error (which takes the scatter as Gaussian and the same at every radius) and, from {} bootstrap resamples of the (R, M) pairs (seed {}), the standard deviation and the central 68.27% interval of the resampled slopes, which assume neither.{which}\n",
+        o.resamples, o.seed
     );
-    let _ = writeln!(s, "| population | leaves | b | +/- | a | scatter [dex] |");
-    let _ = writeln!(s, "| --- | --- | --- | --- | --- | --- |");
+    let _ = writeln!(
+        s,
+        "| population | leaves | b | +/- (least squares) | +/- (bootstrap) | 68% interval (bootstrap) | a | scatter [dex] |"
+    );
+    let _ = writeln!(s, "| --- | --- | --- | --- | --- | --- | --- | --- |");
     for x in &c.summaries {
         if let Some(l) = &x.mass_size {
+            let (bs, bi) = x
+                .mass_size_bootstrap
+                .as_ref()
+                .map(|b| {
+                    (
+                        f(b.slope_std),
+                        format!("{} to {}", f(b.slope_interval.0), f(b.slope_interval.1)),
+                    )
+                })
+                .unwrap_or(("-".into(), "-".into()));
             let _ = writeln!(
                 s,
-                "| {} | {} | {} | {} | {} | {} |",
+                "| {} | {} | {} | {} | {} | {} | {} | {} |",
                 x.label,
                 l.n,
                 f(l.slope),
                 f(l.slope_error),
+                bs,
+                bi,
                 f(l.intercept),
                 f(l.rms_scatter)
             );

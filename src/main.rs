@@ -804,7 +804,8 @@ struct CompareArgs {
         allow_hyphen_values = true
     )]
     alpha_max: f64,
-    /// Bootstrap resamples for the tail's uncertainty (at most 100000).
+    /// Bootstrap resamples for the uncertainties of the tail and of the mass-size slope (at most
+    /// 100000).
     #[arg(long, default_value_t = 500, allow_hyphen_values = true)]
     resamples: usize,
     /// Seed of the bootstrap.

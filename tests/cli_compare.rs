@@ -75,6 +75,23 @@ fn compare_reports_statistics_and_fairness() {
         .unwrap();
     let (a, b): (f64, f64) = (rows[1][col].parse().unwrap(), rows[2][col].parse().unwrap());
     assert!((a - b).abs() < 1e-9, "{a} {b}");
+    // So is its bootstrap (the same resamples of the same leaves, checked against scipy in
+    // populations_reference), whose 68% interval holds the slope.
+    for name in [
+        "mass_size_slope_err_boot",
+        "mass_size_slope_boot_lo",
+        "mass_size_slope_boot_hi",
+    ] {
+        let c = rows[0].iter().position(|c| *c == name).unwrap();
+        let (x, y): (f64, f64) = (rows[1][c].parse().unwrap(), rows[2][c].parse().unwrap());
+        assert!((x - y).abs() < 1e-9 * x.abs().max(1.0), "{name}: {x} {y}");
+    }
+    let boot = |name: &str| -> f64 {
+        let c = rows[0].iter().position(|c| *c == name).unwrap();
+        rows[1][c].parse().unwrap()
+    };
+    assert!(boot("mass_size_slope_boot_lo") < a && a < boot("mass_size_slope_boot_hi"));
+    assert!(boot("mass_size_slope_err_boot") > 0.0);
     let med = rows[0].iter().position(|c| *c == "median_mass").unwrap();
     let (ma, mb): (f64, f64) = (rows[1][med].parse().unwrap(), rows[2][med].parse().unwrap());
     assert!(

@@ -31,7 +31,8 @@
 //!   the two-sided p-value of Vuong 1989 (Econometrica 57, 307), as Clauset, Shalizi & Newman
 //!   2009 (section 5) and powerlaw 2.0.0's `distribution_compare` do it.
 //! - [`regression`]: least squares log10 M = a + b log10 R with standard errors and rms
-//!   scatter; the difference of two slopes and its significance.
+//!   scatter; a seeded paired bootstrap of the slope; the difference of two slopes and its
+//!   significance.
 //! - [`summary`]: median and percentiles (linear interpolation between order statistics,
 //!   numpy's default "linear" method, Hyndman & Fan 1996 definition 7).
 
@@ -55,7 +56,10 @@ pub use powerlaw::{
     Bootstrap, PowerLawBootstrap, PowerLawFit, XminCandidate, XminSearch, bootstrap_power_law,
     bootstrap_power_law_with, fit_power_law, power_law_alpha, scan_xmin,
 };
-pub use regression::{LineFit, SlopeDifference, fit_line, fit_mass_size, slope_difference};
+pub use regression::{
+    LineFit, SlopeBootstrap, SlopeDifference, bootstrap_mass_size, bootstrap_slope, fit_line,
+    fit_mass_size, slope_difference,
+};
 pub use summary::{median, percentile, percentiles};
 pub use tail_lognormal::{
     TailVsLogNormal, TruncatedLogNormal, Verdict, fit_truncated_lognormal, power_law_vs_lognormal,

@@ -309,6 +309,22 @@ def tests_above():
     write_json(os.path.join(OUT, "tests_above.json"), out)
 
 
+def mass_size_bootstrap():
+    """A large invented population with Gaussian scatter of constant width in log10 M about a
+    line in log10 R, and scipy's linregress on it: its stderr is what the paired bootstrap's
+    standard deviation of the slope must approach on such a sample."""
+    rng = np.random.default_rng(7100)
+    n = 3000
+    logr = rng.uniform(-2.0, -0.5, n)
+    logm = 0.5 + 2.0 * logr + rng.normal(0.0, 0.3, n)
+    radius = rounded(10.0 ** logr)
+    mass = rounded(10.0 ** logm)
+    r = stats.linregress(np.log10(radius), np.log10(mass))
+    write_json(os.path.join(OUT, "mass_size_bootstrap.json"),
+               {"source": f"{SCIPY} stats.linregress(log10 R, log10 M)", "versions": VERSIONS,
+                "radius": radius, "mass": mass, "slope": r.slope, "stderr": r.stderr})
+
+
 def percentiles():
     """numpy.percentile (default method 'linear') of samples of several sizes, ties included."""
     qs = [0.0, 1.0, 16.0, 25.0, 50.0, 75.0, 84.0, 99.5, 100.0]
@@ -332,3 +348,4 @@ if __name__ == "__main__":
     mass_size()
     tail_vs_lognormal()
     tests_above()
+    mass_size_bootstrap()
