@@ -404,9 +404,19 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             crate::units::tidy(o.alpha_max)
         ));
     }
-    let tail_vs_lognormal = tail
-        .as_ref()
-        .and_then(|t| populations::power_law_vs_lognormal(&p.masses, t.xmin).ok());
+    let tail_vs_lognormal = match tail.as_ref() {
+        Some(t) => match populations::power_law_vs_lognormal(&p.masses, t.xmin) {
+            Ok(v) => Some(v),
+            Err(e) => {
+                notes.push(format!(
+                    "no comparison of the tail with a log-normal: {}",
+                    e.message
+                ));
+                None
+            }
+        },
+        None => None,
+    };
     let lognormal = populations::fit_lognormal(&p.masses).ok();
     let (tested_masses, tested_radii) = tested(p, o.tests_above);
     if let Some(cut) = o.tests_above
@@ -418,9 +428,9 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
                 "no leaf lies at or above --tests-above {} Msun, so this population has no two-sample tests and no mass-size fit, and no k-sample Anderson-Darling test is made",
                 crate::units::tidy(cut)
             )
-        } else {
+        } else if k < 3 {
             format!(
-                "only {} at or above --tests-above {} Msun, so its two-sample tests and its mass-size fit say little",
+                "only {} at or above --tests-above {} Msun: too few for a mass-size fit (three at least), and its two-sample tests say little",
                 if k == 1 {
                     "1 leaf lies".to_string()
                 } else {
@@ -428,9 +438,17 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
                 },
                 crate::units::tidy(cut)
             )
+        } else {
+            format!(
+                "only {k} leaves lie at or above --tests-above {} Msun, so its two-sample tests and its mass-size fit say little",
+                crate::units::tidy(cut)
+            )
         });
     }
-    let mass_size = if tested_masses.is_empty() {
+    let mass_size = if tested_masses.len() < 3 && o.tests_above.is_some() {
+        // Said in the note above.
+        None
+    } else if tested_masses.is_empty() {
         None
     } else {
         match populations::fit_mass_size(&tested_radii, &tested_masses) {
@@ -1140,9 +1158,13 @@ fn versus_sentence(v: &populations::TailVsLogNormal) -> String {
     use populations::Verdict;
     if v.lognormal.at_power_law_limit {
         return format!(
-            "the tail's power law is not distinguished from a log-normal: the best log-normal truncated at {} Msun is the power law itself (its sigma grows without bound), R = 0 over {} leaves.",
+            "the tail's power law is not distinguished from a log-normal: the best log-normal truncated at {} Msun is the power law itself (its sigma grows without bound), R = 0 over {}.",
             f(v.xmin),
-            v.n
+            if v.n == 1 {
+                "1 leaf".to_string()
+            } else {
+                format!("{} leaves", v.n)
+            }
         );
     }
     let verdict = match v.verdict(VERSUS_LEVEL) {
@@ -1151,11 +1173,15 @@ fn versus_sentence(v: &populations::TailVsLogNormal) -> String {
         Verdict::NotDistinguished => "not distinguished from",
     };
     format!(
-        "the tail's power law is {verdict} a log-normal, p = {} (R = {}, normalised {}, {} leaves above {} Msun).",
+        "the tail's power law is {verdict} a log-normal, p = {} (R = {}, normalised {}, {} at or above {} Msun).",
         f(v.p_value),
         f(v.ratio),
         f(v.normalized_ratio),
-        v.n,
+        if v.n == 1 {
+            "1 leaf".to_string()
+        } else {
+            format!("{} leaves", v.n)
+        },
         f(v.xmin)
     )
 }
@@ -1355,6 +1381,13 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             );
         }
         for (what, ad) in [("masses", &c.ad_mass), ("radii", &c.ad_radius)] {
+            if ad.as_ref().is_some_and(|a| !a.statistic.is_finite()) {
+                let _ = writeln!(
+                    s,
+                    "\nk-sample Anderson-Darling test on {what}: not made, as it is undefined for these samples (too few {what} in all, or no spread among them; scipy gives no value either)."
+                );
+                continue;
+            }
             if let Some(a) = ad {
                 let _ = writeln!(
                     s,

@@ -1791,6 +1791,27 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         }
         pops.push(compare::read_population(r, &label, &a.mass_column)?);
     }
+    if let Some(cut) = tests_above {
+        let heaviest = pops
+            .iter()
+            .flat_map(|p| p.masses.iter().copied())
+            .fold(f64::NEG_INFINITY, f64::max);
+        let reach = pops
+            .iter()
+            .filter(|p| p.masses.iter().any(|&m| m >= cut))
+            .count();
+        if reach < 2 {
+            return Err(Error::usage(format!(
+                "--tests-above {} leaves {} with leaves at or above it, so no population can be tested against another; give a lower mass (the heaviest leaf has {:.4} Msun).",
+                a.tests_above.as_deref().unwrap_or(""),
+                match reach {
+                    0 => "no population".to_string(),
+                    _ => "only one population".to_string(),
+                },
+                heaviest
+            )));
+        }
+    }
     let o = compare::Options {
         mass_min,
         alpha_max: a.alpha_max,

@@ -480,4 +480,11 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
         cli::check_refused(&o, &args, "--tests-above", bad);
         assert!(!d.path().join("bad").exists());
     }
+    // So is a cut above the leaves of all populations but one: nothing can be tested.
+    let mut args = vec!["compare"];
+    args.extend_from_slice(&names);
+    args.extend_from_slice(&["-o", "bad", "--tests-above", "1e6Msun"]);
+    let o = cli::cairn(&args, d.path());
+    cli::check_refused(&o, &args, "--tests-above", "leaves no population");
+    assert!(!d.path().join("bad").exists());
 }

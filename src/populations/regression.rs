@@ -70,6 +70,13 @@ pub fn fit_line(x: &[f64], y: &[f64]) -> Result<LineFit, Error> {
             "a line fit with standard errors needs at least three points",
         ));
     }
+    // Tested on the values themselves: the sum of n equal values over n need not give the
+    // value back, so a zero spread about the mean cannot be relied on to show it.
+    if x.iter().all(|&v| v == x[0]) {
+        return Err(Error::usage(
+            "all x values are equal, so no slope can be fitted",
+        ));
+    }
     let nf = n as f64;
     let xm = x.iter().sum::<f64>() / nf;
     let ym = y.iter().sum::<f64>() / nf;
@@ -240,6 +247,36 @@ mod tests {
         assert!(f.slope_error < 1e-7 && f.rms_scatter < 1e-14);
         assert!(fit_line(&[1.0, 1.0, 1.0], &[1.0, 2.0, 3.0]).is_err());
         assert!(fit_line(&[1.0, 2.0], &[1.0, 2.0]).is_err());
+    }
+
+    /// Equal x values whose mean, summed in floating point, is not the value itself (three
+    /// times 0.1 summed and divided by three gives 0.10000000000000002): refused, as
+    /// scipy's linregress refuses identical x values, rather than fitted to rounding noise.
+    /// In a bootstrap of x = (0.1, 0.1, 0.8) the resamples of one value only (all three
+    /// draws among the two equal ones, (2/3)^3, or all on the third, (1/3)^3: 9/27 = 1/3 of
+    /// them; combinatorics) are the failed ones, within five binomial standard deviations.
+    #[test]
+    fn equal_x_values_are_refused_however_they_round() {
+        let x = [0.1; 3];
+        let mean = x.iter().sum::<f64>() / 3.0;
+        assert_ne!(mean, 0.1, "the case rounds");
+        assert!(fit_line(&x, &[1.0, 2.0, 3.0]).is_err());
+        let b = bootstrap_slope(
+            &[0.1, 0.1, 0.8],
+            &[1.0, 2.0, 3.0],
+            &Bootstrap {
+                resamples: 3000,
+                seed: 4,
+            },
+        )
+        .unwrap();
+        let (expected, sd) = (1000.0, (3000.0f64 * (1.0 / 3.0) * (2.0 / 3.0)).sqrt());
+        assert!(
+            (b.n_failed as f64 - expected).abs() < 5.0 * sd,
+            "{} failed resamples",
+            b.n_failed
+        );
+        assert!(b.slopes.iter().all(|s| s.is_finite() && *s > 0.0));
     }
 
     #[test]

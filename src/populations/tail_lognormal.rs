@@ -261,6 +261,13 @@ fn tail_of(masses: &[f64], xmin: f64) -> Result<Vec<f64>, Error> {
             "no mass lies above the tail's lower mass {xmin}, so no tail can be fitted; choose a smaller one"
         )));
     }
+    // All equal (one value above xmin and none at it): the log-normal's likelihood grows
+    // without bound as sigma goes to 0, so it has no maximum either.
+    if tail.iter().all(|&t| t == tail[0]) {
+        return Err(Error::usage(format!(
+            "the masses at or above the tail's lower mass {xmin} are all equal, so no log-normal can be fitted to them; choose a smaller one"
+        )));
+    }
     Ok(tail)
 }
 
@@ -357,6 +364,18 @@ pub fn power_law_vs_lognormal(masses: &[f64], xmin: f64) -> Result<TailVsLogNorm
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A tail of equal masses above the lower mass has no maximum-likelihood log-normal (its
+    /// likelihood grows without bound as sigma goes to 0): refused with the reason, not NaN.
+    #[test]
+    fn a_tail_of_equal_masses_is_refused() {
+        let masses = [1.0, 2.0, 5.0, 5.0, 5.0];
+        let e = power_law_vs_lognormal(&masses, 4.0).unwrap_err();
+        assert!(e.message.contains("are all equal"), "{}", e.message);
+        assert!(power_law_vs_lognormal(&masses, 6.0).is_err());
+        let ok = power_law_vs_lognormal(&[1.0, 2.0, 5.0, 5.0, 6.0], 4.0).unwrap();
+        assert!(ok.ratio.is_finite());
+    }
 
     /// Self-consistency, not an outside reference (that is tests/populations_reference.rs):
     /// the two branches meet at z0 = 1, and the limits are the normal's and the
