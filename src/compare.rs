@@ -688,10 +688,19 @@ pub fn compare_with_progress(
                 }
                 _ => None,
             };
+            // The bootstrap's spread where there is one, as for the tails: it assumes neither
+            // Gaussian scatter nor one width at every radius.
+            let slope_error = |fit: &populations::LineFit, s: &Summary| {
+                s.mass_size_bootstrap
+                    .as_ref()
+                    .map(|b| b.slope_std)
+                    .filter(|e| e.is_finite() && *e > 0.0)
+                    .unwrap_or(fit.slope_error)
+            };
             let mass_size_difference = match (&sa.mass_size, &sb.mass_size) {
                 (Some(x), Some(y)) => populations::slope_difference(
-                    (x.slope, x.slope_error),
-                    (y.slope, y.slope_error),
+                    (x.slope, slope_error(x, sa)),
+                    (y.slope, slope_error(y, sb)),
                 )
                 .ok(),
                 _ => None,

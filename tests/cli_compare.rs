@@ -423,6 +423,24 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
             );
         }
     }
+    // Each pair's slope difference (its size) is in units of the bootstraps' spreads combined in
+    // quadrature (the slopes themselves checked against scipy above).
+    for row in 1..tests.len() {
+        let of = |name: &str, column: &str| {
+            let r = (1..summary.len()).find(|&r| summary[r][0] == name).unwrap();
+            value(&summary, r, column)
+        };
+        let (a, b) = (tests[row][0].as_str(), tests[row][1].as_str());
+        let difference = of(a, "mass_size_slope") - of(b, "mass_size_slope");
+        let spread = of(a, "mass_size_slope_err_boot").hypot(of(b, "mass_size_slope_err_boot"));
+        assert_close(
+            value(&tests, row, "mass_size_diff_sigma"),
+            difference.abs() / spread,
+            1e-9,
+            0.0,
+            &format!("{a}-{b} mass_size_diff_sigma"),
+        );
+    }
     for what in ["mass", "radius"] {
         let plural = if what == "mass" { "masses" } else { "radii" };
         let (stat, p) = anderson(&report, plural);
