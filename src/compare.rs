@@ -274,6 +274,8 @@ pub struct Summary {
     pub tail: Option<populations::PowerLawFit>,
     /// Its bootstrap.
     pub tail_bootstrap: Option<(f64, f64)>,
+    /// Its goodness of fit (Clauset et al. 2009 section 4.1).
+    pub tail_gof: Option<populations::PowerLawGof>,
     /// The tail's power law against a log-normal truncated at the same lower mass.
     pub tail_vs_lognormal: Option<populations::TailVsLogNormal>,
     /// Log-normal fit.
@@ -392,6 +394,21 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             (b.alpha_std, b.xmin_std)
         })
     });
+    let tail_gof = tail.as_ref().and_then(|t| {
+        populations::goodness_of_fit(
+            &p.masses,
+            t,
+            o.mass_min,
+            &search,
+            &Bootstrap {
+                resamples: o.resamples,
+                seed: o.seed,
+            },
+            tick,
+        )
+        .ok()
+        .filter(|g| g.fitted > 0)
+    });
     // A searched tail whose alpha lies near the window's upper end may be steeper than the
     // search could say (the window cuts the likelihood's range, not the data).
     if let Some(t) = &tail
@@ -490,6 +507,7 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         states: p.states.clone(),
         tail,
         tail_bootstrap,
+        tail_gof,
         tail_vs_lognormal,
         lognormal,
         mass_size,
@@ -660,7 +678,8 @@ pub fn compare_with_progress(
 ) -> Comparison {
     use rayon::prelude::*;
     use std::sync::atomic::{AtomicUsize, Ordering};
-    let total = (pops.len() * o.resamples).max(1);
+    // Two passes of resamples per population: the tail's bootstrap and its goodness of fit.
+    let total = (2 * pops.len() * o.resamples).max(1);
     let step = (total / 200).max(1);
     let done = AtomicUsize::new(0);
     let tick = || {
@@ -810,6 +829,12 @@ pub fn summary_table(c: &Comparison) -> Table {
         "",
         "bootstrap standard deviation of alpha",
         g(&|x| x.tail_bootstrap.map(|b| b.0).unwrap_or(f64::NAN)),
+    );
+    t.push_f64(
+        "tail_gof_p",
+        "",
+        "goodness of fit of the power-law tail: the fraction of synthetic sets (semi-parametric bootstrap, Clauset et al. 2009 section 4.1) whose KS distance is at least the data's; at most 0.1 rules the power law out",
+        g(&|x| x.tail_gof.as_ref().map(|g| g.p_value).unwrap_or(f64::NAN)),
     );
     t.push_f64(
         "mass_min",
@@ -1288,6 +1313,39 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     for x in &c.summaries {
         for n in &x.notes {
             let _ = writeln!(s, "\n{}: {n}.", x.label);
+        }
+    }
+    if c.summaries.iter().any(|x| x.tail_gof.is_some()) {
+        let _ = writeln!(
+            s,
+            "\nIs a power law plausible for the tail at all (Clauset, Shalizi & Newman 2009, section 4.1)? Synthetic sets as large as the data, drawn from the fitted power law above mass_min (with the probability of the tail) and otherwise from the leaves below it, are fitted as the data were; p is the fraction whose KS distance is at least the data's. At p <= 0.1 the power law is ruled out; above, it is plausible, which does not make it the right law. Each p carries a Monte Carlo uncertainty of about sqrt(p (1 - p) / {}) (more --resamples narrow it).\n",
+            c.summaries
+                .iter()
+                .filter_map(|x| x.tail_gof.as_ref())
+                .map(|g| g.fitted)
+                .min()
+                .unwrap_or(0)
+        );
+        for x in &c.summaries {
+            if let Some(g) = &x.tail_gof {
+                let _ = writeln!(
+                    s,
+                    "- {}: the power law is {} for the tail, p = {} ({} synthetic sets{}).",
+                    x.label,
+                    if g.p_value <= 0.1 {
+                        "ruled out"
+                    } else {
+                        "plausible"
+                    },
+                    f(g.p_value),
+                    g.fitted,
+                    if g.n_failed > 0 {
+                        format!(", {} more without an admissible tail left out", g.n_failed)
+                    } else {
+                        String::new()
+                    }
+                );
+            }
         }
     }
     if c.summaries.iter().any(|x| x.tail_vs_lognormal.is_some()) {

@@ -401,8 +401,27 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
         }
     }
     let summary = table("cut/populations.csv");
+    let mut gof_checked = 0;
     for (row, name) in names.iter().enumerate().map(|(i, n)| (i + 1, n)) {
         assert_eq!(summary[row][0], *name);
+        // The tail's goodness of fit is the library's (checked against the powerlaw package's
+        // bootstrap in populations_reference.rs) on every leaf, with compare's settings.
+        let masses = nums(&pops[*name]["mass"]);
+        let search = cairn::populations::XminSearch {
+            alpha_range: (1.0, 3.0),
+            ..Default::default()
+        };
+        if let Ok(fit) = cairn::populations::fit_power_law(&masses, None, &search) {
+            let boot = cairn::populations::Bootstrap {
+                resamples: 20,
+                seed: 1,
+            };
+            let gof =
+                cairn::populations::goodness_of_fit(&masses, &fit, None, &search, &boot, &|| {})
+                    .unwrap();
+            assert_eq!(value(&summary, row, "tail_gof_p"), gof.p_value, "{name}");
+            gof_checked += 1;
+        }
         assert_eq!(
             value(&summary, row, "n_tested") as u64,
             f["n_kept"][name].as_u64().unwrap(),
@@ -423,6 +442,7 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
             );
         }
     }
+    assert!(gof_checked > 0, "no population had a tail");
     // Each pair's slope difference (its size) is in units of the bootstraps' spreads combined in
     // quadrature (the slopes themselves checked against scipy above).
     for row in 1..tests.len() {

@@ -630,3 +630,62 @@ fn mass_size_bootstrap_agrees_with_scipy_stderr_on_a_large_sample() {
     let slope = num(&f["slope"]);
     assert!(lo < slope && slope < hi, "{lo} {slope} {hi}");
 }
+
+/// The goodness of fit of the power-law tail (Clauset, Shalizi & Newman 2009, section 4.1)
+/// against the same semi-parametric bootstrap run with powerlaw 2.0.0's own fits
+/// (`populations/powerlaw_gof.json`, 400 synthetic sets each). Both p-values are Monte Carlo
+/// estimates from different random numbers, so they must agree within the binomial spread of
+/// the two: four standard deviations of their difference, sqrt(p (1 - p) (1/400 + 1/B)). The
+/// data's own fit must be powerlaw's to the last bit first (else the p-values would measure
+/// different distances). The power-law samples give large p, the log-normal sample a small
+/// one (below CSN's 0.1).
+#[test]
+fn power_law_goodness_of_fit_matches_powerlaw_package_bootstrap() {
+    let f = fixture_json("populations/powerlaw_gof.json");
+    let b_ref = f["resamples"].as_u64().unwrap() as f64;
+    let boot = Bootstrap {
+        resamples: 1000,
+        seed: 3,
+    };
+    for (name, case) in f["cases"].as_object().unwrap() {
+        let data = nums(&case["data"]);
+        let search = XminSearch::default();
+        let fit = fit_power_law(&data, None, &search).unwrap();
+        assert_eq!(
+            fit.xmin,
+            num(&case["xmin"]),
+            "{name}: x_min (powerlaw 2.0.0)"
+        );
+        assert_close(
+            fit.ks_distance,
+            num(&case["D"]),
+            1e-12,
+            0.0,
+            &format!("{name}: D"),
+        );
+        let gof = populations::goodness_of_fit(&data, &fit, None, &search, &boot, &|| {}).unwrap();
+        let p_ref = num(&case["p"]);
+        let p_mean = 0.5 * (gof.p_value + p_ref);
+        let spread = (p_mean * (1.0 - p_mean) * (1.0 / b_ref + 1.0 / gof.fitted as f64)).sqrt();
+        assert!(
+            (gof.p_value - p_ref).abs() <= 4.0 * spread.max(0.005),
+            "{name}: p {} against powerlaw's bootstrap {p_ref} (4 sigma = {})",
+            gof.p_value,
+            4.0 * spread
+        );
+        // The same with one thread (each synthetic set has its own random stream).
+        let one = rayon::ThreadPoolBuilder::new()
+            .num_threads(1)
+            .build()
+            .unwrap()
+            .install(|| {
+                populations::goodness_of_fit(&data, &fit, None, &search, &boot, &|| {}).unwrap()
+            });
+        assert_eq!(one, gof, "{name}: 1 thread");
+        if name.starts_with("lognormal") {
+            assert!(gof.p_value < 0.1 && p_ref < 0.1, "{name}: {}", gof.p_value);
+        } else {
+            assert!(gof.p_value > 0.3 && p_ref > 0.3, "{name}: {}", gof.p_value);
+        }
+    }
+}

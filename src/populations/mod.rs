@@ -14,7 +14,7 @@
 //!   likelihood, alpha = 1 + n / sum ln(x_i / x_min), with x_min chosen by minimising the
 //!   Kolmogorov-Smirnov distance between the tail and the fitted law (Clauset, Shalizi & Newman
 //!   2009, SIAM Review 51, 661, sections 3.1 and 3.3); the standard error (alpha - 1)/sqrt(n);
-//!   a seeded bootstrap. The slope of dN/dlog M is -(alpha - 1). The candidate set and distance
+//!   a seeded bootstrap; the goodness of fit by the semi-parametric bootstrap (section 4.1). The slope of dN/dlog M is -(alpha - 1). The candidate set and distance
 //!   follow powerlaw 2.0.0 (Alstott, Bullmore & Plenz 2014, PLoS ONE 9, e85777), see there.
 //! - [`lognormal`]: the maximum-likelihood log-normal (closed form for mu and sigma of ln M),
 //!   as `scipy.stats.lognorm.fit(data, floc=0)`, with the exact 68.27% confidence intervals of
@@ -53,8 +53,9 @@ pub use mass_function::{
     mass_function,
 };
 pub use powerlaw::{
-    Bootstrap, PowerLawBootstrap, PowerLawFit, XminCandidate, XminSearch, bootstrap_power_law,
-    bootstrap_power_law_with, fit_power_law, power_law_alpha, scan_xmin,
+    Bootstrap, PowerLawBootstrap, PowerLawFit, PowerLawGof, XminCandidate, XminSearch,
+    bootstrap_power_law, bootstrap_power_law_with, fit_power_law, goodness_of_fit, power_law_alpha,
+    scan_xmin,
 };
 pub use regression::{
     LineFit, SlopeBootstrap, SlopeDifference, bootstrap_mass_size, bootstrap_slope, fit_line,
