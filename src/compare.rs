@@ -370,17 +370,12 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             None
         }
     };
+    let boot = Bootstrap {
+        resamples: o.resamples,
+        seed: o.seed,
+    };
     let tail_bootstrap = tail.as_ref().and_then(|_| {
-        populations::bootstrap_power_law_with(
-            &p.masses,
-            o.mass_min,
-            &search,
-            &Bootstrap {
-                resamples: o.resamples,
-                seed: o.seed,
-            },
-            tick,
-        )
+        populations::bootstrap_power_law_with(&p.masses, o.mass_min, &search, &boot, tick)
         .ok()
         .map(|b| {
             if b.n_failed > 0 {
@@ -395,19 +390,9 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         })
     });
     let tail_gof = tail.as_ref().and_then(|t| {
-        populations::goodness_of_fit(
-            &p.masses,
-            t,
-            o.mass_min,
-            &search,
-            &Bootstrap {
-                resamples: o.resamples,
-                seed: o.seed,
-            },
-            tick,
-        )
-        .ok()
-        .filter(|g| g.fitted > 0)
+        populations::goodness_of_fit(&p.masses, t, o.mass_min, &search, &boot, tick)
+            .ok()
+            .filter(|g| g.fitted > 0)
     });
     // A searched tail whose alpha lies near the window's upper end may be steeper than the
     // search could say (the window cuts the likelihood's range, not the data).
@@ -477,15 +462,7 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         }
     };
     let mass_size_bootstrap = mass_size.as_ref().and_then(|_| {
-        let b = populations::bootstrap_mass_size(
-            &tested_radii,
-            &tested_masses,
-            &Bootstrap {
-                resamples: o.resamples,
-                seed: o.seed,
-            },
-        )
-        .ok()?;
+        let b = populations::bootstrap_mass_size(&tested_radii, &tested_masses, &boot).ok()?;
         if b.n_failed > 0 {
             notes.push(format!(
                 "{} of {} bootstrap resamples of the mass-size relation drew one radius only and are left out of its bootstrap spread",

@@ -43,6 +43,25 @@ fn inject(dir: &Path, map: &str, out: &str, extra: &[&str]) -> cli::Outcome {
     cairn(&args, dir)
 }
 
+/// Segments `map` into `run` (with `--no-figure -q` and `segment_args`) and scores that run
+/// against `truth` into `out` (`-q`); both must succeed. Returns the scoring's outcome.
+fn segment_and_score(
+    dir: &Path,
+    map: &str,
+    run: &str,
+    segment_args: &[&str],
+    truth: &str,
+    out: &str,
+) -> cli::Outcome {
+    let mut args = vec!["segment", map, "-o", run, "--no-figure", "-q"];
+    args.extend_from_slice(segment_args);
+    let o = cairn(&args, dir);
+    assert_eq!(o.code, 0, "{args:?}: {}", o.stderr);
+    let o = cairn(&["compare", run, "--truth", truth, "-o", out, "-q"], dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    o
+}
+
 /// Rows of a CSV written by cairn (the `#` lines skipped): the header and the cells.
 fn csv(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
     let text = std::fs::read_to_string(path).unwrap();
@@ -121,35 +140,14 @@ fn bright_isolated_injected_cores_are_recovered_and_the_input_is_untouched() {
             .all(|(a, b)| *a >= *b * (1.0 - 1e-6)),
         "injection only adds"
     );
-    let o = cairn(
-        &[
-            "segment",
-            "inj/synth.fits",
-            "-o",
-            "run",
-            "--distance",
-            "250pc",
-            "--temperature",
-            "12K",
-            "--no-figure",
-            "-q",
-        ],
+    let o = segment_and_score(
         dir,
+        "inj/synth.fits",
+        "run",
+        &["--distance", "250pc", "--temperature", "12K"],
+        "inj/synth-truth.csv",
+        "score",
     );
-    assert_eq!(o.code, 0, "{}", o.stderr);
-    let o = cairn(
-        &[
-            "compare",
-            "run",
-            "--truth",
-            "inj/synth-truth.csv",
-            "-o",
-            "score",
-            "-q",
-        ],
-        dir,
-    );
-    assert_eq!(o.code, 0, "{}", o.stderr);
 
     // Peak signal-to-noise of each injected core alone: its beam-convolved peak (truth table)
     // over the noise the run used (run.json).
@@ -785,39 +783,20 @@ fn a_demo_maps_truth_scores_a_run_of_it() {
     // frequency (0.025 cm2/g at 500 GHz with beta 2 is 0.1 cm2/g at 1 THz): no warning; (b)
     // another beam on a map per beam: the masses scale as the beam's solid angle, by
     // (18.2/25)^2; (c) another unit: named.
+    let map850 = demo.join("velloran-850um.fits");
+    let truth850 = demo.join("velloran-850um-truth.csv");
     let score = |name: &str, extra: &[&str]| -> String {
-        let mut args: Vec<String> = vec![
-            "segment".into(),
-            demo.join("velloran-850um.fits")
-                .to_str()
-                .unwrap()
-                .to_string(),
-            "-o".into(),
-            name.to_string(),
-            "--distance".into(),
-            "410pc".into(),
-            "--no-figure".into(),
-            "-q".into(),
-        ];
-        args.extend(extra.iter().map(|s| s.to_string()));
-        let args: Vec<&str> = args.iter().map(String::as_str).collect();
-        let o = cairn(&args, d.path());
-        assert_eq!(o.code, 0, "{}", o.stderr);
-        let out = format!("{name}-scored");
-        let o = cairn(
-            &[
-                "compare",
-                name,
-                "--truth",
-                demo.join("velloran-850um-truth.csv").to_str().unwrap(),
-                "-o",
-                &out,
-                "-q",
-            ],
+        let mut args = vec!["--distance", "410pc"];
+        args.extend_from_slice(extra);
+        segment_and_score(
             d.path(),
-        );
-        assert_eq!(o.code, 0, "{}", o.stderr);
-        o.stderr
+            map850.to_str().unwrap(),
+            name,
+            &args,
+            truth850.to_str().unwrap(),
+            &format!("{name}-scored"),
+        )
+        .stderr
     };
     let same_law = score(
         "law",
@@ -935,11 +914,7 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
             .to_string()
     };
     let (floor, prominence, area) = (value("floor"), value("prominence"), value("min_area"));
-    run(&[
-        "segment",
-        "real/synth.fits",
-        "-o",
-        "before",
+    let same_thresholds = [
         "--floor",
         &floor,
         "--prominence",
@@ -948,7 +923,12 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
         &area,
         "--no-figure",
         "-q",
-    ]);
+    ];
+    run(&[
+        &["segment", "real/synth.fits", "-o", "before"][..],
+        &same_thresholds,
+    ]
+    .concat());
     let args = [
         "compare",
         "run",
@@ -1003,23 +983,19 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
     // A scored run whose match radius (its beam) reaches a leaf of the baseline from every
     // core leaves nothing to score: refused.
     run(&[
-        "segment",
-        "inj/synth.fits",
-        "-o",
-        "wide",
-        "--distance",
-        "250pc",
-        "--beam",
-        "600arcsec",
-        "--floor",
-        &floor,
-        "--prominence",
-        &prominence,
-        "--min-area",
-        &area,
-        "--no-figure",
-        "-q",
-    ]);
+        &[
+            "segment",
+            "inj/synth.fits",
+            "-o",
+            "wide",
+            "--distance",
+            "250pc",
+            "--beam",
+            "600arcsec",
+        ][..],
+        &same_thresholds,
+    ]
+    .concat());
     let args = [
         "compare",
         "wide",
@@ -1102,35 +1078,14 @@ fn a_run_with_other_assumptions_than_the_injection_is_named() {
         serde_json::from_str(&std::fs::read_to_string(dir.join("inj/synth-spec.json")).unwrap())
             .unwrap();
     assert_eq!(spec["mu_h2"].as_f64(), Some(2.8), "the record names mu_H2");
-    let o = cairn(
-        &[
-            "segment",
-            "inj/synth.fits",
-            "-o",
-            "run",
-            "--distance",
-            "300pc",
-            "--mu-h2",
-            "2.94",
-            "--no-figure",
-            "-q",
-        ],
+    let o = segment_and_score(
         dir,
+        "inj/synth.fits",
+        "run",
+        &["--distance", "300pc", "--mu-h2", "2.94"],
+        "inj/synth-truth.csv",
+        "score",
     );
-    assert_eq!(o.code, 0, "{}", o.stderr);
-    let o = cairn(
-        &[
-            "compare",
-            "run",
-            "--truth",
-            "inj/synth-truth.csv",
-            "-o",
-            "score",
-            "-q",
-        ],
-        dir,
-    );
-    assert_eq!(o.code, 0, "{}", o.stderr);
     // (300/250)^2 = 1.44 and 2.94/2.8 = 1.05.
     for want in [
         "the run's distance is 300 pc and the injection's 250 pc: the run's masses are 1.44 times",
@@ -1226,34 +1181,17 @@ fn a_temperature_map_injects_as_its_temperature_and_is_checked_by_sha256() {
     assert!(spec["temperature_k"].is_null());
 
     let segment_and_score = |name: &str, temperature: &[&str]| -> String {
-        let mut args = vec![
-            "segment",
-            "by_map/synth.fits",
-            "-o",
-            name,
-            "--distance",
-            "410pc",
-            "--no-figure",
-            "-q",
-        ];
+        let mut args = vec!["--distance", "410pc"];
         args.extend_from_slice(temperature);
-        let o = cairn(&args, dir);
-        assert_eq!(o.code, 0, "{}", o.stderr);
-        let score = format!("{name}-score");
-        let o = cairn(
-            &[
-                "compare",
-                name,
-                "--truth",
-                "by_map/synth-truth.csv",
-                "-o",
-                &score,
-                "-q",
-            ],
+        segment_and_score(
             dir,
-        );
-        assert_eq!(o.code, 0, "{}", o.stderr);
-        o.stderr
+            "by_map/synth.fits",
+            name,
+            &args,
+            "by_map/synth-truth.csv",
+            &format!("{name}-score"),
+        )
+        .stderr
     };
     let same = segment_and_score("same", &["--temperature-map", "t14.fits"]);
     assert!(!same.contains("warning"), "{same}");
