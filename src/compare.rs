@@ -3,9 +3,10 @@
 //!
 //! Owns reading finished runs (a run folder, or a catalogue CSV with its `run.json` beside
 //! it), the choice of the population (the leaves: core candidates), the per-population
-//! summary (counts by state, mass function, power-law tail with bootstrap and its comparison
-//! with a truncated log-normal, log-normal fit, mass-size relation, median density), the pairwise tests (Kolmogorov-Smirnov on masses and
-//! sizes, slope differences) and the k-sample Anderson-Darling tests, on every leaf or on the
+//! summary (counts by state, mass function, power-law tail with bootstrap, its goodness of
+//! fit and its comparison with a truncated log-normal, log-normal fit, mass-size relation with
+//! bootstrap, median density), the pairwise tests (Kolmogorov-Smirnov on masses and sizes,
+//! slope differences) and the k-sample Anderson-Darling tests, on every leaf or on the
 //! leaves at or above a common lower mass ([`Options::tests_above`], which the mass-size fits
 //! share), the fairness checks, and the report (Markdown and CSV tables).
 //!
