@@ -155,14 +155,31 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
     })
 }
 
-/// The injection record beside a truth table: `NAME-spec.json` for `NAME-truth.csv`.
+/// The injection record's path beside a truth table: `NAME-spec.json` for `NAME-truth.csv`.
+fn spec_path(truth: &Path) -> Option<PathBuf> {
+    let name = truth.file_name()?.to_str()?.strip_suffix("-truth.csv")?;
+    Some(truth.with_file_name(format!("{name}-spec.json")))
+}
+
+/// A number at a JSON pointer.
+fn num(v: &serde_json::Value, pointer: &str) -> Option<f64> {
+    v.pointer(pointer).and_then(|x| x.as_f64())
+}
+
+/// Whether two recorded values differ beyond the rounding of their records.
+fn differ(a: f64, b: f64) -> bool {
+    (a - b).abs() > 1e-9 * a.abs().max(b.abs())
+}
+
+/// The first twelve hexadecimal digits of a SHA-256, for messages.
+fn short(sha: &str) -> String {
+    sha.chars().take(12).collect()
+}
+
+/// The injection record beside a truth table.
 fn read_spec(truth: &Path) -> std::result::Result<serde_json::Value, String> {
-    let name = truth
-        .file_name()
-        .and_then(|n| n.to_str())
-        .and_then(|n| n.strip_suffix("-truth.csv"))
+    let spec = spec_path(truth)
         .ok_or("the truth table is not named NAME-truth.csv, so its NAME-spec.json is unknown")?;
-    let spec = truth.with_file_name(format!("{name}-spec.json"));
     let text = std::fs::read_to_string(&spec).map_err(|e| {
         format!(
             "{} cannot be read ({e}); keep NAME-spec.json beside NAME-truth.csv",
@@ -348,12 +365,10 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
             )];
         }
     };
-    let num = |v: &serde_json::Value, p: &str| v.pointer(p).and_then(|x| x.as_f64());
     // The record of `synth --into` holds the assumptions at its top level; that of a
     // synthetic emission map made by `synth` holds them in `output.dust_emission`.
     let emission =
         |p: &str| num(spec, p).or_else(|| num(spec, &format!("/output/dust_emission{p}")));
-    let differ = |a: f64, b: f64| (a - b).abs() > 1e-9 * a.abs().max(b.abs());
     let mut out = Vec::new();
     let tidy = crate::units::tidy;
     if num(spec, "/distance_pc").is_none() {
@@ -461,9 +476,9 @@ pub fn check_same_map(truth: &Truth, run: &Run) -> Result<()> {
             format!(
                 "belongs to the map {} (SHA-256 {}...), but the run {} was made on another map (SHA-256 {}...); segment that injected map and score its run, or give the truth table of the map the run was made on.",
                 truth.map_name.as_deref().unwrap_or("?"),
-                sha.chars().take(12).collect::<String>(),
+                short(sha),
                 run.catalogue.display(),
-                run.input_sha256.chars().take(12).collect::<String>()
+                short(&run.input_sha256)
             ),
         ));
     }
@@ -483,8 +498,6 @@ fn emission_differences(
 ) -> Vec<String> {
     use crate::physics::{DustOpacity, planck_nu};
     let tidy = crate::units::tidy;
-    let num = |v: &serde_json::Value, p: &str| v.pointer(p).and_then(|x| x.as_f64());
-    let differ = |a: f64, b: f64| (a - b).abs() > 1e-9 * a.abs().max(b.abs());
     let mut out = Vec::new();
     let mut what: Vec<String> = Vec::new();
     // Temperatures: one value, or a map (by its SHA-256).
@@ -501,7 +514,6 @@ fn emission_differences(
         .pointer("/temperature_map/path")
         .and_then(|x| x.as_str())
         .unwrap_or("?");
-    let short = |h: &str| h.chars().take(12).collect::<String>();
     let mut per_pixel = false;
     match (t_run, t_inj, &map_inj) {
         (Some(a), Some(b), _) => {
@@ -550,16 +562,15 @@ fn emission_differences(
         _ => per_pixel = true,
     }
     // Opacity laws, compared where they act: at each side's frequency.
-    let law = |v: &serde_json::Value, f: &dyn Fn(&str) -> Option<f64>| {
+    let law = |f: &dyn Fn(&str) -> Option<f64>| {
         Some(DustOpacity {
             kappa0_cm2_per_g: f("/opacity/kappa0_cm2_per_g")?,
             nu0_hz: f("/opacity/nu0_hz")?,
             beta: f("/opacity/beta")?,
         })
-        .filter(|_| !v.is_null())
     };
-    let k_run = law(&run.physics, &|p| num(&run.physics, p));
-    let k_inj = law(spec, emission);
+    let k_run = law(&|p| num(&run.physics, p));
+    let k_inj = law(emission);
     let nu_run = num(&run.physics, "/wavelength_um").map(|w| crate::units::C_LIGHT / (w * 1e-6));
     let nu_inj = num(spec, "/input/wavelength_m")
         .or_else(|| num(spec, "/output/dust_emission/wavelength_um").map(|w| w * 1e-6))
@@ -633,11 +644,8 @@ fn emission_differences(
 
 /// The injection record's name for a truth table, for messages.
 fn spec_name(truth: &Path) -> String {
-    truth
-        .file_name()
-        .and_then(|n| n.to_str())
-        .and_then(|n| n.strip_suffix("-truth.csv"))
-        .map(|n| format!("{n}-spec.json"))
+    spec_path(truth)
+        .and_then(|p| p.file_name().map(|n| n.to_string_lossy().into_owned()))
         .unwrap_or_else(|| "the injection record".into())
 }
 
@@ -689,8 +697,8 @@ pub fn check_baseline(truth: &Truth, run: &Run, baseline: &Run) -> Result<Vec<St
             &baseline.catalogue,
             format!(
                 "is a run of another map (SHA-256 {}...) than the one the cores were injected into (SHA-256 {}...); give --baseline a run of the map before injection.",
-                baseline.input_sha256.chars().take(12).collect::<String>(),
-                before.chars().take(12).collect::<String>()
+                short(&baseline.input_sha256),
+                short(before)
             ),
         ));
     }
@@ -702,7 +710,7 @@ pub fn check_baseline(truth: &Truth, run: &Run, baseline: &Run) -> Result<Vec<St
                 .and_then(|x| x.as_f64())
         };
         if let (Some(a), Some(b)) = (v(run), v(baseline))
-            && (a - b).abs() > 1e-9 * a.abs().max(b.abs())
+            && differ(a, b)
         {
             differences.push(format!(
                 "the baseline run's {key} ({}) is not the scored run's ({}): give both runs the same thresholds, such as --floor, --prominence and --min-area in map units",
