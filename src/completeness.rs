@@ -422,8 +422,8 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
     let extinction = kind.contains("extinction");
     let column = kind == "H2 column density";
     if extinction || column {
-        // synth --into renders the cores' columns with cairn's mu_H2 (2.8, recorded since the
-        // record has the field).
+        // synth renders the cores' columns with its --mu-h2 (recorded; records written before
+        // the option existed used 2.8).
         let mu_inj = num(spec, "/mu_h2").unwrap_or(crate::physics::MU_H2);
         if let Some(mu_run) = num(&run.physics, "/mu_h2")
             && differ(mu_run, mu_inj)

@@ -183,6 +183,7 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         population: Some(population),
         noise_rms: 0.0,
         seed: opts.seed,
+        mu_h2: ctx.mu_h2,
         ..SynthSpec::default()
     };
     synth::check(&base)
@@ -372,6 +373,7 @@ pub fn inject_at(
         cores: Vec::new(),
         population: None,
         noise_rms: 0.0,
+        mu_h2: ctx.mu_h2,
         ..SynthSpec::default()
     };
     add_cores(map, &conv, &base, cores)

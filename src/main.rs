@@ -256,6 +256,10 @@ struct SynthArgs {
     /// Seed of every random stream.
     #[arg(long, allow_hyphen_values = true)]
     seed: Option<u64>,
+    /// Mean molecular weight per H2 molecule: a core of mass M holds M / (MU m_H) molecules
+    /// [default: 2.8]; give segment the same value (compare --truth warns when they differ).
+    #[arg(long, value_name = "MU", allow_hyphen_values = true)]
+    mu_h2: Option<f64>,
     /// Inject the cores into this FITS map (its grid, WCS, beam and unit) instead of making a
     /// synthetic map; needs --distance and --cores.
     #[arg(long, value_name = "MAP", requires_all = ["distance", "cores"])]
@@ -1133,6 +1137,9 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
     if let Some(s) = a.seed {
         spec.seed = s;
     }
+    if let Some(m) = a.mu_h2 {
+        spec.mu_h2 = m;
+    }
     Ok(spec)
 }
 
@@ -1216,7 +1223,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         opacity: a.opacity.clone(),
         opacity_frequency: a.opacity_frequency.clone(),
         beta: a.beta,
-        mu_h2: None,
+        mu_h2: a.mu_h2,
         mu_particle: None,
         column_per_av: a.column_per_av.clone(),
         av_per_ak: a.av_per_ak,

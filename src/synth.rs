@@ -206,6 +206,20 @@ pub struct SynthSpec {
     pub noise_rms: f64,
     /// Seed of every random stream.
     pub seed: u64,
+    /// Mean molecular weight per H2 molecule: a core of mass M holds M / (mu_H2 m_H)
+    /// molecules (2.8 by default, as `segment` takes it). Written into the specification only
+    /// when it is not the default, so that specifications and maps made before the field
+    /// existed (with 2.8) read back and reproduce byte for byte.
+    #[serde(default = "default_mu_h2", skip_serializing_if = "is_default_mu_h2")]
+    pub mu_h2: f64,
+}
+
+fn default_mu_h2() -> f64 {
+    MU_H2
+}
+
+fn is_default_mu_h2(mu: &f64) -> bool {
+    *mu == MU_H2
 }
 
 impl Default for SynthSpec {
@@ -225,6 +239,7 @@ impl Default for SynthSpec {
             output: Output::ColumnDensity,
             noise_rms: 0.0,
             seed: 1,
+            mu_h2: MU_H2,
         }
     }
 }
@@ -450,6 +465,7 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
         ("--centre (centre_lon_deg)".into(), spec.centre_lon_deg),
         ("--centre (centre_lat_deg)".into(), spec.centre_lat_deg),
         ("--distance (distance_pc)".into(), spec.distance_pc),
+        ("--mu-h2 (mu_h2)".into(), spec.mu_h2),
         ("--beam (beam_fwhm_arcsec)".into(), spec.beam_fwhm_arcsec),
         ("--noise (noise_rms)".into(), spec.noise_rms),
     ];
@@ -594,6 +610,9 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
             "pixel size {} arcsec must be positive",
             spec.pixel_arcsec
         ));
+    }
+    if !pos(spec.mu_h2) {
+        return bad(format!("mu_H2 {} must be positive", spec.mu_h2));
     }
     if !pos(spec.distance_pc) {
         return bad(format!("distance {} pc must be positive", spec.distance_pc));
@@ -858,14 +877,23 @@ pub(crate) fn render_core(
     }
     let total: f64 = values.iter().sum();
     if total <= 0.0 {
-        // A core smaller than the sampling: all of it in the nearest pixel.
-        let i = clamp(core.x.round(), spec.nx) - x0;
-        let j = clamp(core.y.round(), spec.ny) - y0;
-        values[j * w + i] = 1.0;
+        // A core smaller than the sampling: a point, shared among the four pixels around it
+        // with bilinear weights, which keep its position to a fraction of a pixel (the
+        // weighted centroid of the four is the core's position away from the map's edges; at
+        // an edge the outer weights go to the edge pixel, keeping the mass).
+        let (fx, fy) = (core.x.floor(), core.y.floor());
+        let (tx, ty) = (core.x - fx, core.y - fy);
+        for (dj, wy) in [(0.0, 1.0 - ty), (1.0, ty)] {
+            for (di, wx) in [(0.0, 1.0 - tx), (1.0, tx)] {
+                let i = clamp(fx + di, spec.nx).clamp(x0, x1) - x0;
+                let j = clamp(fy + dj, spec.ny).clamp(y0, y1) - y0;
+                values[j * w + i] += wx * wy;
+            }
+        }
     }
     let total: f64 = values.iter().sum();
     // Number of H2 molecules the core holds, spread over the grid.
-    let molecules = core.mass_msun * M_SUN / (MU_H2 * M_H);
+    let molecules = core.mass_msun * M_SUN / (spec.mu_h2 * M_H);
     let scale = molecules / (pix_m * pix_m) / total;
     for v in &mut values {
         *v *= scale;
@@ -1035,7 +1063,7 @@ fn output_units(spec: &SynthSpec) -> (&'static str, f64) {
             opacity,
         } => {
             let nu = C / (wavelength_um * 1e-6);
-            let si = MU_H2 * M_H * opacity.kappa_si(nu) * planck_nu(nu, temperature_k);
+            let si = spec.mu_h2 * M_H * opacity.kappa_si(nu) * planck_nu(nu, temperature_k);
             match unit {
                 EmissionUnit::MJyPerSr => ("MJy/sr", si / JY / 1e6),
                 EmissionUnit::JyPerBeam => {
@@ -1404,15 +1432,32 @@ mod tests {
             (0.04, Profile::critical_bonnor_ebert()),
         ] {
             let core = CoreSpec {
-                x: 10.2,
-                y: 3.0,
+                x: 100.2,
+                y: 80.7,
                 mass_msun: 2.0,
                 radius_pc: radius,
                 profile,
             };
             let stamp = render_core(&core, &spec, &mut Vec::new()).ok().unwrap();
-            let mass = stamp.values.iter().sum::<f64>() * pix_m * pix_m * MU_H2 * M_H / M_SUN;
+            let total = stamp.values.iter().sum::<f64>();
+            let mass = total * pix_m * pix_m * MU_H2 * M_H / M_SUN;
             assert!((mass - 2.0).abs() < 1e-13, "radius {radius}: {mass}");
+            // The weighted centroid is the core's position (by symmetry of the profile about
+            // it; a hand calculation: the stamp's pixels sit at integer coordinates).
+            let (mut cx, mut cy) = (0.0, 0.0);
+            for j in 0..stamp.h {
+                for i in 0..stamp.w {
+                    let v = stamp.values[j * stamp.w + i];
+                    cx += v * (stamp.x0 + i) as f64;
+                    cy += v * (stamp.y0 + j) as f64;
+                }
+            }
+            let (cx, cy) = (cx / total, cy / total);
+            let tol = if radius < 1e-3 { 1e-12 } else { 2e-3 };
+            assert!(
+                (cx - core.x).abs() < tol && (cy - core.y).abs() < tol,
+                "radius {radius}: centroid ({cx}, {cy})"
+            );
         }
     }
 

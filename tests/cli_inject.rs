@@ -557,6 +557,11 @@ fn masked_base_map(dir: &Path, name: &str, keep: impl Fn(usize) -> bool) -> cair
 /// M = mu_H2 m_H Omega d^2 sum dN(H2), with the constants of astropy 8.0.2 as cairn's physics
 /// module holds them (checked in tests/physics_reference.rs).
 fn added_mass(m: &cairn::map::Map, injected: &ndarray::Array2<f32>) -> f64 {
+    added_mass_mu(m, injected, 2.8)
+}
+
+/// [`added_mass`] with the mean molecular weight `mu`.
+fn added_mass_mu(m: &cairn::map::Map, injected: &ndarray::Array2<f32>, mu: f64) -> f64 {
     let omega = m.wcs.as_ref().unwrap().pixel_solid_angle(128.0, 128.0);
     let d = 250.0 * cairn::physics::constants::PC;
     let added: f64 = injected
@@ -565,7 +570,7 @@ fn added_mass(m: &cairn::map::Map, injected: &ndarray::Array2<f32>) -> f64 {
         .filter(|(a, _)| a.is_finite())
         .map(|(&a, &b)| a as f64 - b as f64)
         .sum();
-    2.8 * cairn::physics::constants::M_H * omega * d * d * added * 1e4
+    mu * cairn::physics::constants::M_H * omega * d * d * added * 1e4
         / cairn::physics::constants::M_SUN
 }
 
@@ -674,6 +679,98 @@ fn cores_beside_missing_pixels_keep_their_mass() {
             "seed {seed}: {mass} Msun added on valid pixels, {truth} Msun recorded"
         );
     }
+}
+
+/// `synth --into --mu-h2`: the cores hold M / (mu_H2 m_H) molecules with the given mu_H2, so
+/// the mass added to a column-density map is the recorded mass by M = mu_H2 m_H Omega d^2
+/// sum dN(H2) (Hildebrand 1983; common practice) with that mu_H2 and not with 2.8; the
+/// injection record names it, and a run with the same mu_H2 is scored without a warning about
+/// it while one left at 2.8 is warned about, with the factor 2.8/2.33.
+#[test]
+fn injection_takes_the_mean_molecular_weight_given() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let o = inject(dir, "base/synth.fits", "inj", &["--mu-h2", "2.33"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let spec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("inj/synth-spec.json")).unwrap())
+            .unwrap();
+    assert_eq!(spec["mu_h2"].as_f64(), Some(2.33));
+    let m = cairn::map::load(
+        &dir.join("base/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let inj = cairn::map::load(
+        &dir.join("inj/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let truth_text = std::fs::read_to_string(dir.join("inj/synth-truth.csv")).unwrap();
+    let mut lines = truth_text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = header.iter().position(|h| *h == "mass_msun").unwrap();
+    let truth: f64 = lines
+        .map(|l| l.split(',').nth(col).unwrap().parse::<f64>().unwrap())
+        .sum();
+    let mass = added_mass_mu(&m, &inj.data, 2.33);
+    assert!(
+        (mass - truth).abs() <= 1e-3 * truth,
+        "{mass} Msun added with mu_H2 2.33, {truth} Msun recorded"
+    );
+    let o = segment_and_score(
+        dir,
+        "inj/synth.fits",
+        "same",
+        &["--distance", "250pc", "--mu-h2", "2.33"],
+        "inj/synth-truth.csv",
+        "score-same",
+    );
+    assert!(!o.stderr.contains("mu_H2"), "{}", o.stderr);
+    let o = segment_and_score(
+        dir,
+        "inj/synth.fits",
+        "default",
+        &["--distance", "250pc"],
+        "inj/synth-truth.csv",
+        "score-default",
+    );
+    assert!(
+        o.stderr.contains(
+            "the run's mu_H2 is 2.8 and the injection's 2.33: the run's masses are 1.2017"
+        ),
+        "{}",
+        o.stderr
+    );
+    // Plain synth records a mu_H2 other than the default in its specification, which
+    // reproduces the map byte for byte.
+    let o = cairn(
+        &[
+            "synth", "-o", "plain", "--size", "64", "--mu-h2", "2.33", "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let text = std::fs::read_to_string(dir.join("plain/synth-spec.json")).unwrap();
+    let spec: serde_json::Value = serde_json::from_str(&text).unwrap();
+    assert_eq!(spec["mu_h2"].as_f64(), Some(2.33));
+    let o = cairn(
+        &[
+            "synth",
+            "-o",
+            "again",
+            "--spec",
+            "plain/synth-spec.json",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        std::fs::read(dir.join("plain/synth.fits")).unwrap()
+            == std::fs::read(dir.join("again/synth.fits")).unwrap()
+    );
 }
 
 /// The demo maps' truth tables name their maps by SHA-256 (as `cairn synth` writes them), so a

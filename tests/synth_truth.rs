@@ -100,7 +100,16 @@ fn box_sum(a: &Array2<f32>, b: &Array2<f32>, x: f64, y: f64, half: usize) -> (f6
 
 #[test]
 fn injected_mass_is_exact_up_to_float_rounding() {
-    let spec = base_spec();
+    // With the default mean molecular weight and with another one given (`--mu-h2`).
+    for mu in [MU_H2, 2.33] {
+        injected_mass_is_exact_with(SynthSpec {
+            mu_h2: mu,
+            ..base_spec()
+        });
+    }
+}
+
+fn injected_mass_is_exact_with(spec: SynthSpec) {
     let with = generate(&spec).unwrap();
     let without = generate(&SynthSpec {
         cores: vec![],
@@ -108,7 +117,7 @@ fn injected_mass_is_exact_up_to_float_rounding() {
     })
     .unwrap();
     assert_eq!(with.truth.len(), 4);
-    let to_msun = 1e4 * pixel_area_m2(&spec) * MU_H2 * M_H / M_SUN; // cm^-2 -> m^-2, x area
+    let to_msun = 1e4 * pixel_area_m2(&spec) * spec.mu_h2 * M_H / M_SUN; // cm^-2 -> m^-2, x area
     for (core, truth) in spec.cores.iter().zip(&with.truth) {
         let (s, bound) = box_sum(
             &with.data,
