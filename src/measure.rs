@@ -365,6 +365,25 @@ pub fn measure_all(h: &Hierarchy, wcs: Option<&Wcs>, beam: Option<&Beam>) -> Vec
         .collect()
 }
 
+/// Measures the leaves of `h` over their grown footprints (`g`, made from `h`), in the order
+/// of `g.ids`: [`measure`] of each grown structure, which takes the floor as its reference
+/// level, with the leaf's own id, parent and depth in `h`.
+pub fn measure_grown(
+    g: &crate::hierarchy::GrownLeaves,
+    h: &Hierarchy,
+    wcs: Option<&Wcs>,
+    beam: Option<&Beam>,
+) -> Vec<Measurement> {
+    let mut ms = measure_all(&g.hierarchy, wcs, beam);
+    for (m, &id) in ms.iter_mut().zip(&g.ids) {
+        let s = &h.structures[id as usize];
+        m.id = id;
+        m.parent = s.parent.map(|p| p as i64).unwrap_or(-1);
+        m.depth = s.depth;
+    }
+    ms
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

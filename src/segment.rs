@@ -331,6 +331,12 @@ pub mod names {
     pub const LABELS: &str = "labels.fits";
     /// Leaf footprints grown down to the floor.
     pub const GROWN: &str = "leaves-grown.fits";
+    /// The leaves measured over their grown footprints, as CSV.
+    pub const GROWN_CSV: &str = "structures-grown.csv";
+    /// The leaves measured over their grown footprints, as a FITS binary table.
+    pub const GROWN_FITS_TABLE: &str = "structures-grown.fits";
+    /// The leaves measured over their grown footprints, as VOTable.
+    pub const GROWN_VOTABLE: &str = "structures-grown.vot";
     /// The tree as JSON.
     pub const TREE_JSON: &str = "hierarchy.json";
     /// The tree as Graphviz DOT.
@@ -346,12 +352,15 @@ pub mod names {
     /// The tree diagram (SVG).
     pub const TREE_SVG: &str = "tree.svg";
     /// Every file a run may write.
-    pub const ALL: [&str; 12] = [
+    pub const ALL: [&str; 15] = [
         CSV,
         FITS_TABLE,
         VOTABLE,
         LABELS,
         GROWN,
+        GROWN_CSV,
+        GROWN_FITS_TABLE,
+        GROWN_VOTABLE,
         TREE_JSON,
         TREE_DOT,
         RUN,
@@ -480,7 +489,18 @@ fn other_frame(map: &Map) -> Option<FrameColumns> {
     }
 }
 
-/// Builds the catalogue table from the measurements.
+/// Which pixels a catalogue measures each structure over.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Footprint {
+    /// Its own pixels: a leaf down to its merge level, a branch with its descendants and the
+    /// pixels that joined below them (`structures.*`).
+    Own,
+    /// A leaf's footprint grown down to the floor (`leaves-grown.fits`), whose reference
+    /// level is the floor (`structures-grown.*`).
+    Grown,
+}
+
+/// Builds the catalogue table from the measurements, made over `footprint`.
 pub fn catalogue(
     map: &Map,
     rows: &[&Measurement],
@@ -488,7 +508,9 @@ pub fn catalogue(
     with_distance: bool,
     r: &Resolved,
     run_meta: &[(String, String, String)],
+    footprint: Footprint,
 ) -> Table {
+    let grown = footprint == Footprint::Grown;
     let u = if map.unit_text.is_empty() {
         String::new()
     } else {
@@ -498,10 +520,14 @@ pub fn catalogue(
     let usum = crate::units::times_pixel(&u);
     let (lon, lat) = sky_names(map);
     let mut t = Table {
-        name: "STRUCTURES".into(),
+        name: if grown { "GROWN_LEAVES" } else { "STRUCTURES" }.into(),
         meta: run_meta.to_vec(),
         ..Default::default()
     };
+    if grown {
+        t.notes.push(format!("footprints: one row per leaf, measured over its footprint grown down to the floor ({}: the pixels above the floor reached from the leaf's own by a priority flood along descending values), not down to its merge level as in {}; id, kind, parent and depth are the leaf's in the hierarchy", names::GROWN, names::CSV));
+        t.notes.push("the reference level of a grown footprint is the floor: merge_level holds the floor, and excess_sum, mass_excess and the columns that use it (density, Jeans, Bonnor-Ebert, virial, free-fall, state) are taken above the floor".into());
+    }
     t.notes.push("kind: leaf = no children (core candidate), branch = children and a parent, root = children and no parent; a top-level structure without children is a leaf with parent -1".into());
     t.notes.push("pixel coordinates are zero-based, (0,0) the centre of the first pixel; centroids and sizes are weighted by the map value".into());
     t.notes.push(format!(
@@ -593,7 +619,11 @@ pub fn catalogue(
     t.push_i64(
         "area_px",
         "pixel2",
-        "number of pixels, descendants included",
+        if grown {
+            "number of pixels of the grown footprint"
+        } else {
+            "number of pixels, descendants included"
+        },
         i(&|m| m.area_px as i64),
     );
     t.push_f64(
@@ -681,13 +711,21 @@ pub fn catalogue(
     t.push_f64(
         "merge_level",
         &u,
-        "level where it joins its parent (the floor for roots)",
+        if grown {
+            "the floor, the reference level of a grown footprint"
+        } else {
+            "level where it joins its parent (the floor for roots)"
+        },
         f(&|m| m.merge_level),
     );
     t.push_f64(
         "excess_sum",
         &usum,
-        "sum of (value - merge_level): the structure above its surroundings",
+        if grown {
+            "sum of (value - merge_level) over the grown footprint: the leaf above the floor"
+        } else {
+            "sum of (value - merge_level): the structure above its surroundings"
+        },
         f(&|m| m.sum_above_merge),
     );
     t.push_bool(
@@ -701,12 +739,17 @@ pub fn catalogue(
         rows.iter().map(|m| m.touches_missing).collect(),
     );
     if let Some(ph) = phys {
-        physics_columns(&mut t, ph, with_distance);
+        physics_columns(&mut t, ph, with_distance, grown);
     }
     t
 }
 
-fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance: bool) {
+fn physics_columns(
+    t: &mut Table,
+    ph: &[&crate::score::Physical],
+    with_distance: bool,
+    grown: bool,
+) {
     use crate::score::Physical;
     let p = |g: &dyn Fn(&Physical) -> f64| ph.iter().map(|x| g(x)).collect::<Vec<f64>>();
     t.push_f64(
@@ -745,7 +788,11 @@ fn physics_columns(t: &mut Table, ph: &[&crate::score::Physical], with_distance:
     t.push_f64(
         "mass_excess",
         "solMass",
-        "gas mass above the merge level (used for density and state)",
+        if grown {
+            "gas mass above the floor (used for density and state)"
+        } else {
+            "gas mass above the merge level (used for density and state)"
+        },
         p(&|x| x.mass_excess),
     );
     t.push_f64(
@@ -991,7 +1038,14 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     .map(|s| s.to_string())
     .collect();
     if o.grow_leaves {
-        names_list.push(names::GROWN.into());
+        for n in [
+            names::GROWN,
+            names::GROWN_CSV,
+            names::GROWN_FITS_TABLE,
+            names::GROWN_VOTABLE,
+        ] {
+            names_list.push(n.into());
+        }
     }
     if o.figure.is_some() {
         for n in [
@@ -1063,7 +1117,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     // The label maps, written by the FITS thread below.
     let labels_path = outputs.temp(names::LABELS);
     let grown_path = o.grow_leaves.then(|| outputs.temp(names::GROWN));
-    let write_label_maps = || -> Result<f64> {
+    // With --grow-leaves, also the grown leaves as structures of their own, for their catalogue.
+    let write_label_maps = || -> Result<(f64, Option<hierarchy::GrownLeaves>)> {
         let t = Instant::now();
         crate::fits_write::write_image_i32(
             &labels_path,
@@ -1081,12 +1136,18 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 true,
             )
             .map_err(|e| Error::output(&o.output.join(names::GROWN), e.0))?;
+            let seconds = t.elapsed().as_secs_f64();
+            return Ok((
+                seconds,
+                Some(hierarchy::grown_leaves_hierarchy(map.data.view(), h, g)),
+            ));
         }
-        Ok(t.elapsed().as_secs_f64())
+        Ok((t.elapsed().as_secs_f64(), None))
     };
     // The measurements go to the other thread as soon as they are made (for the hierarchy's
     // files), before the physics.
     let (ms_tx, ms_rx) = std::sync::mpsc::channel::<std::sync::Arc<Vec<Measurement>>>();
+    let noise_view = noise_map.as_ref().map(|m| m.view());
     let analyse = move || {
         let t_measure = Instant::now();
         let ms = std::sync::Arc::new(measure::measure_all(h, map.wcs.as_ref(), map.beam.as_ref()));
@@ -1096,17 +1157,11 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         let _ = ms_tx.send(ms.clone());
         drop(ms_tx);
         let t_physics = Instant::now();
-        let (phys, physics_note) = match crate::score::score(
-            map,
-            h,
-            &ms,
-            &o.physics,
-            r.noise,
-            noise_map.as_ref().map(|m| m.view()),
-        ) {
-            Ok(p) => (Some(p), None),
-            Err(why) => (None, Some(why)),
-        };
+        let (phys, physics_note) =
+            match crate::score::score(map, h, &ms, &o.physics, r.noise, noise_view) {
+                Ok(p) => (Some(p), None),
+                Err(why) => (None, Some(why)),
+            };
         let physics_seconds = t_physics.elapsed().as_secs_f64();
         (ms, measure_seconds, phys, physics_note, physics_seconds)
     };
@@ -1122,9 +1177,19 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         outputs.temp(names::TREE_DOT),
     );
     let (table_tx, table_rx) = std::sync::mpsc::channel::<std::sync::Arc<crate::table::Table>>();
+    // With --grow-leaves: the grown leaves from the FITS thread, and their catalogue back to it.
+    let grown_fits_table_path = outputs.temp(names::GROWN_FITS_TABLE);
+    let (grown_tx, grown_rx) = std::sync::mpsc::channel::<hierarchy::GrownLeaves>();
+    let (grown_table_tx, grown_table_rx) =
+        std::sync::mpsc::channel::<std::sync::Arc<crate::table::Table>>();
     let written = std::thread::scope(|scope| -> Result<_> {
         let fits_writer = scope.spawn(move || -> Result<f64> {
-            let seconds = write_label_maps()?;
+            let (seconds, grown) = write_label_maps()?;
+            if let Some(g) = grown {
+                // A send fails only if the other side already stopped on an error.
+                let _ = grown_tx.send(g);
+            }
+            drop(grown_tx);
             // No measurements or table arrive if the other side failed first.
             if let Ok(ms) = ms_rx.recv() {
                 let tj = serde_json::to_string_pretty(&tree_json(h, &ms, map))
@@ -1135,6 +1200,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             }
             if let Ok(table) = table_rx.recv() {
                 table.write_fits(&fits_table_path)?;
+            }
+            if let Ok(table) = grown_table_rx.recv() {
+                table.write_fits(&grown_fits_table_path)?;
             }
             Ok(seconds)
         });
@@ -1223,6 +1291,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 with_distance,
                 &r,
                 &meta,
+                Footprint::Own,
             ));
             // The FITS writer takes its share; a send fails only if that thread already stopped on
             // an error, which its join below reports.
@@ -1230,6 +1299,28 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             drop(table_tx);
             table
                 .write_csv_and_votable(&outputs.temp(names::CSV), &outputs.temp(names::VOTABLE))?;
+            if o.grow_leaves {
+                // The FITS thread hands the grown leaves on once their label plane is written;
+                // it stops without them only on an error, which its join reports.
+                let g = grown_rx
+                    .recv()
+                    .map_err(|_| Error::internal("the grown leaves were not made"))?;
+                let grown = grown_catalogue(
+                    map,
+                    h,
+                    &g,
+                    &o.physics,
+                    r.noise,
+                    noise_view,
+                    (with_distance, &r, &meta),
+                );
+                let _ = grown_table_tx.send(grown.clone());
+                grown.write_csv_and_votable(
+                    &outputs.temp(names::GROWN_CSV),
+                    &outputs.temp(names::GROWN_VOTABLE),
+                )?;
+            }
+            drop(grown_table_tx);
             Ok(Analysed {
                 ms,
                 measure_seconds,
@@ -1398,6 +1489,35 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         figure_labels: labels,
         figure_y_stretch: y_stretch,
     })
+}
+
+/// The catalogue of the leaves of `h` over their grown footprints `g`: the same measurements
+/// ([`measure::measure_grown`]) and physics ([`crate::score::score`]) as the main catalogue,
+/// one row per leaf in id order; without physics where the main catalogue has none. `table`
+/// holds the main catalogue's `with_distance`, thresholds and run parameters.
+fn grown_catalogue(
+    map: &Map,
+    h: &Hierarchy,
+    g: &hierarchy::GrownLeaves,
+    physics: &crate::score::Context,
+    noise: Option<f64>,
+    noise_map: Option<ndarray::ArrayView2<f32>>,
+    table: (bool, &Resolved, &[(String, String, String)]),
+) -> std::sync::Arc<Table> {
+    let (with_distance, r, meta) = table;
+    let ms = measure::measure_grown(g, h, map.wcs.as_ref(), map.beam.as_ref());
+    let phys = crate::score::score(map, &g.hierarchy, &ms, physics, noise, noise_map).ok();
+    let rows: Vec<&Measurement> = ms.iter().collect();
+    let phys_rows: Option<Vec<&crate::score::Physical>> = phys.as_ref().map(|p| p.iter().collect());
+    std::sync::Arc::new(catalogue(
+        map,
+        &rows,
+        phys_rows.as_deref(),
+        with_distance,
+        r,
+        meta,
+        Footprint::Grown,
+    ))
 }
 
 fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, String)> {

@@ -2,7 +2,8 @@
 //! component tree of its upper level sets.
 //!
 //! Owns [`build`] (map -> [`Hierarchy`]), the per-structure moment sums ([`Moments`]) and the
-//! optional watershed growth of leaf footprints ([`grow_leaves`]). It knows nothing of files,
+//! optional watershed growth of leaf footprints ([`grow_leaves`]) with the grown leaves' own
+//! sums ([`grown_leaves_hierarchy`]). It knows nothing of files,
 //! units or world coordinates.
 //!
 //! # Vocabulary
@@ -161,7 +162,7 @@ pub use engine::{build, build_with_hooks, build_with_progress};
 /// its sequential sweep begins (from then until 0.9 one core sweeps and one sorts the buckets
 /// of keys ahead of it, which takes it a fraction of the time; the other cores are free).
 pub const SWEEP_STARTS: f64 = 0.3;
-pub use grow::grow_leaves;
+pub use grow::{GrownLeaves, grow_leaves, grown_leaves_hierarchy};
 pub use moments::Moments;
 
 /// Which pixels touch: 4 (edges) or 8 (edges and corners).
