@@ -80,7 +80,8 @@ const SEGMENT_HELP: &str = "Thresholds take units: --floor 5sigma or 2e21cm-2, -
 A floor in sigma is that many noise widths above the background (the clipped median of the map); a value in map units is an absolute level.
 Without them: floor 3 sigma above the clipped median, prominence 3 sigma, min-area one beam (a starting point: check `cairn inspect`).
 Writes structures.csv/.fits/.vot, labels.fits (smallest structure per pixel, with the map's WCS), hierarchy.json/.dot and run.json;
-overlay.png/.svg and tree.png/.svg unless --no-figure; leaves-grown.fits with --grow-leaves.
+overlay.png/.svg and tree.png/.svg unless --no-figure; with --grow-leaves, leaves-grown.fits and
+structures-grown.csv/.fits/.vot (the leaves measured over those footprints, above the floor).
 Caution: the catalogue's masses carry factor-of-two systematics from dust opacity, temperature and distance
 (mass_err is the map noise only); density, Jeans, Bonnor-Ebert and virial columns use mass_excess.";
 
@@ -118,7 +119,8 @@ struct SegmentArgs {
     /// Pixel adjacency: 4 (edges) or 8 (edges and corners).
     #[arg(long, default_value = "8", value_name = "4|8")]
     connectivity: String,
-    /// Also write leaf footprints grown down to the floor (leaves-grown.fits).
+    /// Also write leaf footprints grown down to the floor (leaves-grown.fits) and the leaves
+    /// measured over them (structures-grown.csv/.fits/.vot).
     #[arg(long)]
     grow_leaves: bool,
     /// Catalogue leaves only (a plain core list).
