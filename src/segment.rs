@@ -1178,7 +1178,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     );
     let (table_tx, table_rx) = std::sync::mpsc::channel::<std::sync::Arc<crate::table::Table>>();
     // With --grow-leaves: the grown leaves from the FITS thread, and their catalogue back to it.
-    let grown_fits_table_path = outputs.temp(names::GROWN_FITS_TABLE);
+    let grown_fits_table_path = o.grow_leaves.then(|| outputs.temp(names::GROWN_FITS_TABLE));
     let (grown_tx, grown_rx) = std::sync::mpsc::channel::<hierarchy::GrownLeaves>();
     let (grown_table_tx, grown_table_rx) =
         std::sync::mpsc::channel::<std::sync::Arc<crate::table::Table>>();
@@ -1201,8 +1201,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             if let Ok(table) = table_rx.recv() {
                 table.write_fits(&fits_table_path)?;
             }
-            if let Ok(table) = grown_table_rx.recv() {
-                table.write_fits(&grown_fits_table_path)?;
+            if let (Some(path), Ok(table)) = (&grown_fits_table_path, grown_table_rx.recv()) {
+                table.write_fits(path)?;
             }
             Ok(seconds)
         });

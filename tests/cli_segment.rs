@@ -78,6 +78,9 @@ fn writes_every_output_and_refuses_to_overwrite_without_force() {
         "structures.vot",
         "labels.fits",
         "leaves-grown.fits",
+        "structures-grown.csv",
+        "structures-grown.fits",
+        "structures-grown.vot",
         "hierarchy.json",
         "hierarchy.dot",
         "run.json",
@@ -310,7 +313,14 @@ fn force_leaves_no_file_of_the_earlier_run() {
     ];
     let (code, _, stderr) = cairn(&first, d.path());
     assert_eq!(code, 0, "{stderr}");
-    for name in ["overlay.png", "tree.svg", "leaves-grown.fits"] {
+    for name in [
+        "overlay.png",
+        "tree.svg",
+        "leaves-grown.fits",
+        "structures-grown.csv",
+        "structures-grown.fits",
+        "structures-grown.vot",
+    ] {
         assert!(d.path().join("run").join(name).is_file(), "{name}");
     }
     let second = [
