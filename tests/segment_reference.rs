@@ -6,7 +6,8 @@
 //! `WCS.all_pix2world` of cairn's catalogue pixel positions, `SkyCoord` for their galactic
 //! coordinates, sizes, position angles and masses by its own methods, beam-deconvolved moment
 //! sizes from numpy's moments and astropy's local pixel scale matrix, and `astropy.io.votable`
-//! on the stored VOTable.
+//! on the stored VOTable. The catalogue of grown leaves (`structures-grown.csv`) is checked the
+//! same way against `regionprops` on cairn's grown label plane (`leaves-grown.fits`).
 
 mod common;
 #[allow(dead_code)]
@@ -56,6 +57,9 @@ fn stored_run_is_what_cairn_makes_now() {
         "structures.vot",
         "labels.fits",
         "leaves-grown.fits",
+        "structures-grown.csv",
+        "structures-grown.fits",
+        "structures-grown.vot",
         "hierarchy.json",
         "hierarchy.dot",
     ] {
@@ -193,6 +197,59 @@ fn catalogue_matches_regionprops_on_cairns_label_map() {
 /// differ by terms of order the pixel's size squared and cairn's derivative steps (1e-7), the
 /// exact offsets and the Jacobian by the curvature of the sky over a structure up to a tenth of
 /// a degree across (1e-6 of the major axis).
+#[test]
+fn grown_catalogue_matches_regionprops_on_cairns_grown_plane() {
+    let reference = fixture_json("segment/reference.json");
+    let rp = reference["grown_regionprops"].as_object().unwrap();
+    let rows = read_csv(&fixture_path("segment/run/structures-grown.csv"));
+    let leaves = read_csv(&fixture_path("segment/run/structures.csv"))
+        .into_iter()
+        .filter(|r| r["kind"] == "leaf")
+        .count();
+    assert_eq!(rows.len(), leaves, "one row per leaf");
+    assert_eq!(rp.len(), leaves);
+    for row in &rows {
+        let id = &row["id"];
+        let r = &rp[id.as_str()];
+        let what = |k: &str| format!("grown leaf {id} {k}");
+        // scikit-image 0.26.0 regionprops on the pixels of leaves-grown.fits carrying the id:
+        // area, value-weighted centroid, and the weighted covariance (moments_weighted_central
+        // / mu00) whose eigenvalues are sigma_major_px^2 and sigma_minor_px^2.
+        assert_eq!(f(row, "area_px"), num(&r["area"]), "{}", what("area"));
+        assert_close(
+            f(row, "x"),
+            num(&r["weighted_col"]),
+            1e-12,
+            1e-9,
+            &what("weighted centroid x"),
+        );
+        assert_close(
+            f(row, "y"),
+            num(&r["weighted_row"]),
+            1e-12,
+            1e-9,
+            &what("weighted centroid y"),
+        );
+        let (a, b, c) = (num(&r["cov_cc"]), num(&r["cov_rc"]), num(&r["cov_rr"]));
+        let mean = 0.5 * (a + c);
+        let half = (0.25 * (a - c) * (a - c) + b * b).sqrt();
+        assert_close(
+            f(row, "sigma_major_px"),
+            (mean + half).sqrt(),
+            1e-9,
+            1e-9,
+            &what("sigma_major_px"),
+        );
+        assert_close(
+            f(row, "sigma_minor_px"),
+            (mean - half).max(0.0).sqrt(),
+            1e-9,
+            1e-9,
+            &what("sigma_minor_px"),
+        );
+    }
+}
+
 #[test]
 fn catalogue_sky_sizes_masses_and_stability_match_astropy() {
     let reference = fixture_json("segment/reference.json");

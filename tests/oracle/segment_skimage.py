@@ -1,7 +1,8 @@
 """Reference measurements of cairn's structures, made on cairn's own label map.
 
 Inputs (made by cairn, see examples/make_segment_fixture.rs): fixtures/segment/map.fits, and
-run/labels.fits, run/hierarchy.json, run/structures.csv under fixtures/segment/.
+run/labels.fits, run/leaves-grown.fits, run/hierarchy.json, run/structures.csv under
+fixtures/segment/.
 
 For every structure, its pixels are those whose smallest structure is it or one of its
 descendants (from hierarchy.json). Sources:
@@ -10,6 +11,9 @@ descendants (from hierarchy.json). Sources:
   covariance = mu / mu00), orientation, axis_major_length and axis_minor_length (unweighted,
   4 standard deviations). regionprops' orientation is the angle between the rows axis and
   the major axis; the direction of that axis in (column, row) is (sin o, cos o).
+* the same regionprops on each leaf's grown footprint, the pixels of cairn's grown label plane
+  (run/leaves-grown.fits) that carry its id: area, centroid_weighted and the weighted
+  covariance, for the catalogue of grown leaves (run/structures-grown.csv).
 * astropy 8.0.2 astropy.wcs.WCS.all_pix2world (origin 0) of cairn's catalogue pixel
   positions (peak_x, peak_y and the weighted centroid x, y), and the centroid in galactic
   coordinates from astropy.coordinates.SkyCoord (the map is ICRS) .galactic.
@@ -115,6 +119,27 @@ for s in tree["structures"]:
         "major_dir_row": np.cos(o),
         "axis_major_length": p.axis_major_length,
         "axis_minor_length": p.axis_minor_length,
+    }
+
+# The leaves over their grown footprints: the pixels of the grown plane carrying their id.
+with fits.open(os.path.join(SRC, "run", "leaves-grown.fits")) as h:
+    grown_labels = h[0].data.astype(np.int64)
+grown = {}
+for s in tree["structures"]:
+    if s["children"]:
+        continue
+    i = s["id"]
+    mask = (grown_labels == i).astype(np.int64)
+    intensity = np.where(np.isfinite(image), image, 0.0)
+    p = regionprops(mask, intensity_image=intensity)[0]
+    mu = p.moments_weighted_central
+    grown[str(i)] = {
+        "area": p.area,
+        "weighted_row": p.centroid_weighted[0],
+        "weighted_col": p.centroid_weighted[1],
+        "cov_rr": mu[2, 0] / mu[0, 0],
+        "cov_cc": mu[0, 2] / mu[0, 0],
+        "cov_rc": mu[1, 1] / mu[0, 0],
     }
 
 sky = {}
@@ -347,6 +372,7 @@ write_json(os.path.join(OUT, "reference.json"), {
     "skimage": skimage.__version__,
     "astropy": astropy.__version__,
     "regionprops": result,
+    "grown_regionprops": grown,
     "sky": sky,
     "physical": physical,
     "deconvolved": deconvolved,
