@@ -270,3 +270,57 @@ fn grown_catalogue_in_three_forms() {
     let extname: String = hdu.read_key(&mut fits, "EXTNAME").unwrap();
     assert_eq!(extname, "GROWN_LEAVES");
 }
+
+/// `draw` reads a run made with `--grow-leaves` as any other, and drawing into its folder again
+/// leaves the grown plane and the grown catalogue as they were.
+#[test]
+fn draw_takes_a_run_with_grown_leaves() {
+    let d = tempfile::tempdir().unwrap();
+    let cairn = |args: &[&str]| {
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(args)
+            .current_dir(d.path())
+            .output()
+            .unwrap();
+        (
+            out.status.code().unwrap_or(-1),
+            String::from_utf8_lossy(&out.stderr).into_owned(),
+        )
+    };
+    let m = fixture_path("segment/map.fits");
+    let (code, stderr) = cairn(&[
+        "segment",
+        m.to_str().unwrap(),
+        "-o",
+        "run",
+        "--floor",
+        "3.2e21",
+        "--noise",
+        "1e20",
+        "--grow-leaves",
+        "--quiet",
+    ]);
+    assert_eq!(code, 0, "{stderr}");
+    let grown = [
+        names::GROWN,
+        names::GROWN_CSV,
+        names::GROWN_FITS_TABLE,
+        names::GROWN_VOTABLE,
+    ];
+    let before: Vec<Vec<u8>> = grown
+        .iter()
+        .map(|n| std::fs::read(d.path().join("run").join(n)).unwrap())
+        .collect();
+    let (code, stderr) = cairn(&["draw", "run", "--stretch", "sqrt", "--force", "--quiet"]);
+    assert_eq!(code, 0, "{stderr}");
+    let (code, stderr) = cairn(&["draw", "run", "-o", "figures", "--quiet"]);
+    assert_eq!(code, 0, "{stderr}");
+    assert!(d.path().join("figures/overlay.png").is_file());
+    for (n, b) in grown.iter().zip(&before) {
+        assert_eq!(
+            &std::fs::read(d.path().join("run").join(n)).unwrap(),
+            b,
+            "{n} left as it was"
+        );
+    }
+}
