@@ -1305,15 +1305,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 let g = grown_rx
                     .recv()
                     .map_err(|_| Error::internal("the grown leaves were not made"))?;
-                let grown = grown_catalogue(
-                    map,
-                    h,
-                    &g,
-                    &o.physics,
-                    r.noise,
-                    noise_view,
-                    (with_distance, &r, &meta),
-                );
+                let grown = grown_catalogue(map, h, &g, o, &r, noise_view, &meta);
                 let _ = grown_table_tx.send(grown.clone());
                 grown.write_csv_and_votable(
                     &outputs.temp(names::GROWN_CSV),
@@ -1493,20 +1485,20 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
 
 /// The catalogue of the leaves of `h` over their grown footprints `g`: the same measurements
 /// ([`measure::measure_grown`]) and physics ([`crate::score::score`]) as the main catalogue,
-/// one row per leaf in id order; without physics where the main catalogue has none. `table`
-/// holds the main catalogue's `with_distance`, thresholds and run parameters.
+/// with its thresholds `r` and run parameters `meta`, one row per leaf in id order; without
+/// physics where the main catalogue has none.
 fn grown_catalogue(
     map: &Map,
     h: &Hierarchy,
     g: &hierarchy::GrownLeaves,
-    physics: &crate::score::Context,
-    noise: Option<f64>,
+    o: &SegmentOptions,
+    r: &Resolved,
     noise_map: Option<ndarray::ArrayView2<f32>>,
-    table: (bool, &Resolved, &[(String, String, String)]),
+    meta: &[(String, String, String)],
 ) -> std::sync::Arc<Table> {
-    let (with_distance, r, meta) = table;
+    let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
     let ms = measure::measure_grown(g, h, map.wcs.as_ref(), map.beam.as_ref());
-    let phys = crate::score::score(map, &g.hierarchy, &ms, physics, noise, noise_map).ok();
+    let phys = crate::score::score(map, &g.hierarchy, &ms, &o.physics, r.noise, noise_map).ok();
     let rows: Vec<&Measurement> = ms.iter().collect();
     let phys_rows: Option<Vec<&crate::score::Physical>> = phys.as_ref().map(|p| p.iter().collect());
     std::sync::Arc::new(catalogue(

@@ -245,6 +245,55 @@ fn grown_leaves_cover_everything_above_the_floor() {
     );
 }
 
+/// The grown leaves' sums against the same sums added pixel by pixel over the grown plane
+/// (`Moments::add` about each leaf's peak), on a map with a missing pixel beside one leaf.
+#[test]
+fn grown_leaves_carry_the_sums_of_their_grown_pixels() {
+    let m = array![
+        [0.0f32, 1.0, 2.0, 1.0, 0.0, 1.0, 1.0],
+        [1.0, 3.0, 6.0, 2.0, 1.0, 4.0, 2.0],
+        [1.0, 2.0, 3.0, 1.5, 2.0, 7.0, f32::NAN],
+        [0.0, 1.0, 1.0, 1.0, 1.0, 2.0, 1.0],
+    ];
+    let h = build(m.view(), &params(0.5, 1.0, 1, Connectivity::Eight)).unwrap();
+    let plane = grow_leaves(m.view(), &h, 0.5);
+    let g = grown_leaves_hierarchy(m.view(), &h, plane.clone());
+    assert_eq!(g.ids, h.leaves());
+    assert!(g.ids.len() >= 2, "two peaks, two leaves");
+    assert_eq!(g.hierarchy.structures.len(), g.ids.len());
+    for (k, &id) in g.ids.iter().enumerate() {
+        let leaf = &h.structures[id as usize];
+        let s = &g.hierarchy.structures[k];
+        assert_eq!((s.id, s.parent, s.merge_level), (k as u32, None, None));
+        assert_eq!((s.peak_x, s.peak_y), (leaf.peak_x, leaf.peak_y));
+        let mut direct = Moments::about(leaf.peak_x as f64, leaf.peak_y as f64);
+        let mut min = f64::INFINITY;
+        for ((y, x), &l) in plane.indexed_iter() {
+            if l == id as i32 {
+                assert_eq!(g.hierarchy.labels[(y, x)], k as i32);
+                direct.add(x as f64, y as f64, m[(y, x)] as f64);
+                min = min.min(m[(y, x)] as f64);
+            }
+        }
+        assert_eq!(s.npix, direct.n);
+        assert!(
+            s.npix >= leaf.npix,
+            "the grown footprint holds the leaf's own"
+        );
+        assert_eq!(s.min_value, min);
+        let (a, b) = (s.sums.weighted_centroid(), direct.weighted_centroid());
+        assert!((a.0 - b.0).abs() < 1e-12 && (a.1 - b.1).abs() < 1e-12);
+        assert!((s.sums.sum - direct.sum).abs() < 1e-12);
+        let (a, b) = (s.sums.weighted_covariance(), direct.weighted_covariance());
+        assert!((a.0 - b.0).abs() < 1e-12 && (a.1 - b.1).abs() < 1e-12);
+        assert!((a.2 - b.2).abs() < 1e-12);
+    }
+    // The pixel at column 5, row 2 (value 7) sits beside the missing one; its leaf says so.
+    let k = g.hierarchy.labels[(2, 5)] as usize;
+    assert!(g.hierarchy.structures[k].touches_missing);
+    assert!(g.hierarchy.structures.iter().all(|s| s.touches_edge));
+}
+
 #[test]
 fn order_keys_sort_values_and_decode_back() {
     let vals = [
