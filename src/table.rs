@@ -658,6 +658,7 @@ impl Table {
                     .map_err(fail)?;
             }
         }
+        let mut continued = false;
         for (k, v, c) in &self.meta {
             let key = fits_key(k);
             // FITS header text is printable ASCII (FITS 4.0 section 4.2.1).
@@ -666,9 +667,45 @@ impl Table {
                 Ok(x) if x.is_finite() => {
                     hdu.write_key(&mut f, &key, (x, c.as_str())).map_err(fail)?
                 }
-                _ => hdu
-                    .write_key(&mut f, &key, (printable_ascii(v).as_str(), c.as_str()))
-                    .map_err(fail)?,
+                _ => {
+                    // Strings of any length, a SHA-256 after a HIERARCH keyword or a long
+                    // file name, are written whole: continued on CONTINUE cards when they do
+                    // not fit on one (FITS 4.0 section 4.2.1.2, continued string keywords).
+                    let text = printable_ascii(v);
+                    continued |= key.len() + text.len() > 60;
+                    let cstr =
+                        |t: &str| std::ffi::CString::new(t).expect("no NUL in printable ASCII");
+                    let (kc, vc, cc) = (cstr(&key), cstr(&text), cstr(&c));
+                    let mut status = 0;
+                    // SAFETY: an open FitsFile on this table and NUL-terminated strings.
+                    unsafe {
+                        fitsio::sys::ffpkls(
+                            f.as_raw(),
+                            kc.as_ptr(),
+                            vc.as_ptr(),
+                            cc.as_ptr(),
+                            &mut status,
+                        )
+                    };
+                    if status != 0 {
+                        return Err(Error::output(
+                            path,
+                            format!("cannot be written as FITS (CFITSIO status {status})."),
+                        ));
+                    }
+                }
+            }
+        }
+        if continued {
+            // The LONGSTRN keyword that announces the convention to older readers.
+            let mut status = 0;
+            // SAFETY: an open FitsFile.
+            unsafe { fitsio::sys::ffplsw(f.as_raw(), &mut status) };
+            if status != 0 {
+                return Err(Error::output(
+                    path,
+                    format!("cannot be written as FITS (CFITSIO status {status})."),
+                ));
             }
         }
         // The notes (what the kinds mean, the conventions, the cautions) as COMMENT cards,

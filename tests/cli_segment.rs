@@ -652,3 +652,62 @@ fn an_undefined_temperature_pixel_takes_the_maps_median() {
         assert!(a[col][peak_leaf].parse::<f64>().unwrap() > 0.0);
     }
 }
+
+/// Reads a string keyword of HDU `hdu` (0-based) whole, continued cards included, with
+/// CFITSIO's long-string reader (ffgkls, the FITS 4.0 section 4.2.1.2 convention; the CFITSIO
+/// that the fitsio crate builds).
+fn long_string_key(path: &Path, hdu: usize, key: &str) -> String {
+    let mut f = fitsio::FitsFile::open(path).unwrap();
+    f.hdu(hdu).unwrap();
+    let k = std::ffi::CString::new(key).unwrap();
+    let mut value: *mut std::os::raw::c_char = std::ptr::null_mut();
+    let mut status = 0;
+    // SAFETY: an open file at the wanted HDU; CFITSIO allocates `value`, freed below.
+    let text = unsafe {
+        fitsio::sys::ffgkls(
+            f.as_raw(),
+            k.as_ptr(),
+            &mut value,
+            std::ptr::null_mut(),
+            &mut status,
+        );
+        assert_eq!(status, 0, "{key} read from {}", path.display());
+        let s = std::ffi::CStr::from_ptr(value)
+            .to_string_lossy()
+            .into_owned();
+        fitsio::sys::fffree(value as *mut std::os::raw::c_void, &mut status);
+        s
+    };
+    text
+}
+
+/// The FITS catalogue keeps the input's full SHA-256 (after a long HIERARCH keyword) and a
+/// long input file name whole, on continued cards where one card is too short, as the CSV and
+/// the run record do.
+#[test]
+fn the_fits_catalogue_keeps_long_strings_whole() {
+    let d = tempfile::tempdir().unwrap();
+    let name = "an_invented_cloud_observed_in_far_infrared_dust_continuum_final_version_2.fits";
+    std::fs::copy(fixture_map(), d.path().join(name)).unwrap();
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            name,
+            "-o",
+            "run",
+            "--noise",
+            "1e20",
+            "--no-figure",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("run/run.json")).unwrap())
+            .unwrap();
+    let sha = run["input"]["sha256"].as_str().unwrap();
+    assert_eq!(sha.len(), 64);
+    let table = d.path().join("run/structures.fits");
+    assert_eq!(long_string_key(&table, 1, "INPUT_SHA256"), sha);
+    assert_eq!(long_string_key(&table, 1, "INPUT"), name);
+}
