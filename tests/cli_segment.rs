@@ -663,7 +663,7 @@ fn long_string_key(path: &Path, hdu: usize, key: &str) -> String {
     let mut value: *mut std::os::raw::c_char = std::ptr::null_mut();
     let mut status = 0;
     // SAFETY: an open file at the wanted HDU; CFITSIO allocates `value`, freed below.
-    let text = unsafe {
+    unsafe {
         fitsio::sys::ffgkls(
             f.as_raw(),
             k.as_ptr(),
@@ -677,8 +677,7 @@ fn long_string_key(path: &Path, hdu: usize, key: &str) -> String {
             .into_owned();
         fitsio::sys::fffree(value as *mut std::os::raw::c_void, &mut status);
         s
-    };
-    text
+    }
 }
 
 /// The FITS catalogue keeps the input's full SHA-256 (after a long HIERARCH keyword) and a
