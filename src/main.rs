@@ -1644,6 +1644,12 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     }
     if let Some(note) = &summary.physics_note {
         outln!("no masses: {note}");
+    } else if m.wcs.is_none() && a.physics.distance.is_some() {
+        // Asked for and not given: a warning, on stderr with --quiet too.
+        errln!(
+            "warning: no masses or physics columns: {} has no celestial WCS, so its pixels have no size on the sky; give the map a header with CTYPE1/CTYPE2 and CDELT1/CDELT2 (or CD) keywords",
+            a.map.display()
+        );
     } else if a.physics.distance.is_none() {
         outln!("no masses: give --distance (and --temperature for the gravitational state)");
     }

@@ -710,3 +710,43 @@ fn the_fits_catalogue_keeps_long_strings_whole() {
     assert_eq!(long_string_key(&table, 1, "INPUT_SHA256"), sha);
     assert_eq!(long_string_key(&table, 1, "INPUT"), name);
 }
+
+/// A map without a celestial WCS has no pixel size on the sky, so --distance cannot give
+/// masses: the run says so as a warning on stderr (with --quiet too) and the catalogue has no
+/// mass columns, rather than leaving them out silently.
+#[test]
+fn masses_asked_of_a_map_without_sky_coordinates_are_refused_aloud() {
+    let d = tempfile::tempdir().unwrap();
+    let full = cairn::map::load(&fixture_map(), &cairn::map::LoadOptions::default()).unwrap();
+    let mut h = cairn::header::Header::new();
+    h.set("BUNIT", cairn::header::Value::Str("cm-2".into()), "");
+    cairn::fits_write::write_image_f32(&d.path().join("nowcs.fits"), full.data.view(), &h, false)
+        .unwrap();
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            "nowcs.fits",
+            "-o",
+            "run",
+            "--noise",
+            "1e20",
+            "--distance",
+            "300pc",
+            "--temperature",
+            "12K",
+            "--beam",
+            "18arcsec",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("warning: no masses or physics columns: nowcs.fits has no celestial WCS"),
+        "{stderr}"
+    );
+    let csv = std::fs::read_to_string(d.path().join("run/structures.csv")).unwrap();
+    let header = csv.lines().find(|l| !l.starts_with('#')).unwrap();
+    assert!(header.split(',').all(|c| c != "mass"), "{header}");
+}
