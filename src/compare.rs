@@ -87,11 +87,36 @@ pub(crate) fn run_files(path: &Path) -> (PathBuf, PathBuf) {
 }
 
 fn read_text(path: &Path) -> Result<String> {
-    std::fs::read_to_string(path).map_err(|e| {
+    let bytes = std::fs::read(path).map_err(|e| {
         Error::input(
             path,
             format!(
                 "cannot be read ({e}); give a run folder or a catalogue written by cairn segment."
+            ),
+        )
+    })?;
+    // The run's FITS table and VOTable hold the same catalogue as its CSV, which is the one
+    // read here.
+    let other = if bytes.starts_with(b"SIMPLE  =") {
+        Some("a FITS file")
+    } else if bytes.starts_with(b"<?xml") {
+        Some("an XML file (a VOTable?)")
+    } else {
+        None
+    };
+    if let Some(what) = other {
+        return Err(Error::input(
+            path,
+            format!(
+                "is {what}, but compare reads the CSV catalogue: give the run folder or its structures.csv."
+            ),
+        ));
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        Error::input(
+            path,
+            format!(
+                "cannot be read as text ({e}); give a run folder or a CSV catalogue written by cairn segment."
             ),
         )
     })
@@ -533,6 +558,26 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
         }
         (!v.is_null()).then(|| v.clone())
     };
+    // A catalogue without its run record: its assumptions and thresholds are unknown, said
+    // once; the checks below weigh the populations that have one.
+    let unrecorded: Vec<&str> = pops
+        .iter()
+        .filter(|p| p.run.is_null())
+        .map(|p| p.label.as_str())
+        .collect();
+    if !unrecorded.is_empty() {
+        w.push(format!(
+            "{} {} no run.json beside {}, so {} resolution, sensitivity, physical assumptions and thresholds are unknown and are not compared",
+            unrecorded.join(", "),
+            if unrecorded.len() == 1 { "has" } else { "have" },
+            if unrecorded.len() == 1 { "its catalogue" } else { "their catalogues" },
+            if unrecorded.len() == 1 { "its" } else { "their" },
+        ));
+    }
+    let pops: Vec<&Population> = pops.iter().filter(|p| !p.run.is_null()).collect();
+    if pops.len() < 2 {
+        return w;
+    }
     for (k, what, ratio_limit) in [
         (
             &["physics", "linear_resolution_pc"][..],

@@ -1775,14 +1775,20 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     }
     let mut pops = Vec::new();
     for (i, r) in a.runs.iter().enumerate() {
+        // By default a run is named by its folder, a catalogue file by its name without
+        // extension, unless it is a run's own structures.csv.
         let label = a.label.get(i).cloned().unwrap_or_else(|| {
-            let p = if r.is_dir() {
-                r.as_path()
+            let own = r
+                .file_name()
+                .is_some_and(|n| n == cairn::segment::names::CSV);
+            let name = if r.is_dir() {
+                r.file_name()
+            } else if own {
+                r.parent().and_then(|p| p.file_name())
             } else {
-                r.parent().unwrap_or(r)
+                r.file_stem()
             };
-            p.file_name()
-                .map(|n| n.to_string_lossy().into_owned())
+            name.map(|n| n.to_string_lossy().into_owned())
                 .unwrap_or_else(|| format!("run{}", i + 1))
         });
         // Labels go into the Markdown report and the CSV tables as they are.

@@ -526,3 +526,65 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
     cli::check_refused(&o, &args, "--tests-above", "leaves no population");
     assert!(!d.path().join("bad").exists());
 }
+
+/// Catalogue files are named by their file name (a run's own structures.csv by its folder),
+/// so two catalogues of one folder compare without --label; one without a run record beside it
+/// is said so once, instead of one "differs" per assumption; and the run's FITS table, given
+/// instead of its CSV, is refused with a sentence naming the CSV.
+#[test]
+fn compare_names_catalogue_files_and_says_once_when_a_run_record_is_missing() {
+    let d = tempfile::tempdir().unwrap();
+    let a = cli::demo_run(d.path(), "a", &[]);
+    std::fs::create_dir(d.path().join("cut")).unwrap();
+    std::fs::copy(a.join("structures.csv"), d.path().join("cut/north.csv")).unwrap();
+    std::fs::copy(a.join("structures.csv"), d.path().join("cut/south.csv")).unwrap();
+    let args = [
+        "compare",
+        "a/structures.csv",
+        "cut/north.csv",
+        "cut/south.csv",
+        "-o",
+        "cmp",
+        "--resamples",
+        "20",
+    ];
+    let o = cli::cairn_limited(&args, d.path(), 2_000_000);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let populations = std::fs::read_to_string(d.path().join("cmp/populations.csv")).unwrap();
+    for label in ["\na,", "\nnorth,", "\nsouth,"] {
+        assert!(populations.contains(label), "{label}: {populations}");
+    }
+    let warnings: Vec<&str> = o
+        .stderr
+        .lines()
+        .filter(|l| l.starts_with("warning: "))
+        .collect();
+    assert!(
+        warnings.iter().any(|w| w.contains(
+            "north, south have no run.json beside their catalogues, so their resolution"
+        )),
+        "{}",
+        o.stderr
+    );
+    assert!(
+        !o.stderr.contains("differs") && !o.stderr.contains("unknown for some"),
+        "{}",
+        o.stderr
+    );
+    // The FITS table instead of the CSV.
+    let args = [
+        "compare",
+        "a/structures.fits",
+        "cut/north.csv",
+        "-o",
+        "cmp2",
+    ];
+    let o = cli::cairn_limited(&args, d.path(), 2_000_000);
+    cli::check_refused(
+        &o,
+        &args,
+        "structures.fits",
+        "give the run folder or its structures.csv",
+    );
+    assert!(!d.path().join("cmp2").exists());
+}
