@@ -728,6 +728,28 @@ pub fn catalogue(
         },
         f(&|m| m.sum_above_merge),
     );
+    // Emission maps: the same sums as integrated flux densities.
+    if map.unit.is_some_and(|u| u.is_emission()) {
+        let to_jy = |m: &Measurement| flux_per_unit_pixel(map, m.pixel_sr).unwrap_or(f64::NAN);
+        let (fs, fe) = if grown {
+            (
+                "flux density over the grown footprint",
+                "flux density above the floor over the grown footprint",
+            )
+        } else {
+            (
+                "integrated flux density of the structure (sum times the pixel's solid angle, divided by the beam's for a map per beam)",
+                "integrated flux density above the merge level (excess_sum converted as flux)",
+            )
+        };
+        t.push_f64("flux", "Jy", fs, f(&|m| m.sum * to_jy(m)));
+        t.push_f64(
+            "flux_excess",
+            "Jy",
+            fe,
+            f(&|m| m.sum_above_merge * to_jy(m)),
+        );
+    }
     t.push_bool(
         "at_edge",
         "touches the map border",
@@ -742,6 +764,24 @@ pub fn catalogue(
         physics_columns(&mut t, ph, with_distance, grown);
     }
     t
+}
+
+/// Jy per (map unit x pixel) of an emission map: a pixel of `pixel_sr` steradians (at the
+/// structure; NaN without a WCS) holds value x pixel_sr of a surface brightness, value x
+/// pixel_sr / beam solid angle of a flux density per beam (the Gaussian beam's
+/// pi/(4 ln 2) BMAJ BMIN), and value of a flux density per pixel. `None` for other maps or
+/// where the pixel's or the beam's solid angle is unknown.
+fn flux_per_unit_pixel(map: &Map, pixel_sr: f64) -> Option<f64> {
+    let jy = crate::units::JANSKY;
+    let sr = (pixel_sr.is_finite() && pixel_sr > 0.0).then_some(pixel_sr);
+    match map.unit? {
+        units::PixelUnit::SurfaceBrightness { to_si } => Some(to_si / jy * sr?),
+        units::PixelUnit::FluxPerBeam { to_si } => {
+            Some(to_si / jy * sr? / map.beam?.solid_angle_sr())
+        }
+        units::PixelUnit::FluxPerPixel { to_si } => Some(to_si / jy),
+        _ => None,
+    }
 }
 
 fn physics_columns(

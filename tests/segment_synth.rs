@@ -283,3 +283,80 @@ fn centroids_are_also_given_in_the_other_frame() {
         )));
     }
 }
+
+/// The catalogue's integrated flux density of an isolated core on an empty sky is the
+/// optically thin flux of its mass, S = M kappa_nu B_nu(T) / d^2 (Hildebrand 1983, the
+/// relation `synth` makes its emission with), on maps in Jy/beam (the sum times the pixel's
+/// solid angle over the beam's) and MJy/sr (times the pixel's solid angle); kappa_nu and
+/// B_nu are cairn's, checked against astropy 8.0.2 in tests/physics_reference.rs. The floor at
+/// 1e-9 of the peak leaves out a negligible part of the core.
+#[test]
+fn integrated_flux_density_is_the_flux_of_the_mass() {
+    use cairn::physics::constants::{C, JY, M_SUN, PC};
+    let (mass_msun, d_pc, t_k, wl_um) = (2.0, 250.0, 15.0, 850.0);
+    let opacity = cairn::physics::DustOpacity::default();
+    let nu = C / (wl_um * 1e-6);
+    let expected = mass_msun * M_SUN * opacity.kappa_si(nu) * cairn::physics::planck_nu(nu, t_k)
+        / (d_pc * PC).powi(2)
+        / JY;
+    for unit in [
+        synth::EmissionUnit::JyPerBeam,
+        synth::EmissionUnit::MJyPerSr,
+    ] {
+        let spec = SynthSpec {
+            nx: 128,
+            ny: 128,
+            background: None,
+            distance_pc: d_pc,
+            cores: vec![synth::CoreSpec {
+                x: 63.6,
+                y: 64.2,
+                mass_msun,
+                radius_pc: 0.03,
+                profile: Profile::Gaussian,
+            }],
+            output: Output::DustEmission {
+                wavelength_um: wl_um,
+                temperature_k: t_k,
+                unit,
+                opacity,
+            },
+            noise_rms: 0.0,
+            ..SynthSpec::default()
+        };
+        let dir = tempfile::tempdir().unwrap();
+        let (path, m) = write_map(dir.path(), &spec);
+        let peak = m.data.iter().cloned().fold(0.0f32, f32::max) as f64;
+        let map = cairn::map::load(&path, &Default::default()).unwrap();
+        let out = dir.path().join("run");
+        let mut o = options(
+            &out,
+            Level::Value(1e-9 * peak),
+            Level::Value(0.5 * peak),
+            1e-3 * peak,
+        );
+        o.min_area = Some(Area::Pixels(1.0));
+        let s = cairn::segment::run(&map, &o, &|_, _| {}).unwrap();
+        assert_eq!(
+            s.leaves + s.branches + s.roots,
+            1,
+            "{unit:?}: one structure"
+        );
+        let csv = std::fs::read_to_string(out.join("structures.csv")).unwrap();
+        let mut lines = csv.lines().filter(|l| !l.starts_with('#'));
+        let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+        let row: Vec<&str> = lines.next().unwrap().split(',').collect();
+        let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
+        let flux: f64 = row[col("flux")].parse().unwrap();
+        assert!(
+            (flux / expected - 1.0).abs() < 1e-5,
+            "{unit:?}: catalogue {flux} Jy, M kappa B / d^2 = {expected} Jy"
+        );
+        // The excess above the floor differs from the whole by the floor times the area.
+        let excess: f64 = row[col("flux_excess")].parse().unwrap();
+        assert!(
+            excess < flux && excess > (1.0 - 1e-5) * flux,
+            "{excess} {flux}"
+        );
+    }
+}
