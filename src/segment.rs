@@ -885,7 +885,7 @@ fn physics_columns(
     t.push_f64(
         "be_mass",
         "solMass",
-        "critical Bonnor-Ebert mass 2.43 R c_s^2 / G, R = radius_pc, c_s at the temperature",
+        "critical Bonnor-Ebert mass 2.4345 R c_s^2 / G (the critical isothermal sphere), R = radius_pc, c_s at the temperature",
         p(&|x| x.be_mass),
     );
     t.push_f64("alpha_be", "", "be_mass / mass_excess", p(&|x| x.alpha_be));
