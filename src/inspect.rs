@@ -657,7 +657,7 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         let ratio = sg / d;
         if !(0.5..=2.0).contains(&ratio) {
             warnings.push(format!(
-                "the noise estimate ({sg:.4e}) and the pixel-difference estimate ({d:.4e}) differ by a factor {ratio:.1}: either the noise is correlated over several pixels (then the first is right) or emission smaller than the background boxes remains; check, or give --noise"
+                "the noise estimate ({sg:.4e}) and the pixel-difference estimate ({d:.4e}) differ by a factor {ratio:.1}: either the noise is correlated over several pixels, as noise smoothed by a beam is (then the first is right and the second low), or it is independent from pixel to pixel, as cairn synth's is, and emission smaller than the background boxes remains (then the first is high and the second nearer); check, or give --noise"
             ));
         }
     }
