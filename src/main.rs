@@ -1638,6 +1638,18 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             None => "none (not measurable in this map; thresholds in map units only)".into(),
         }
     );
+    // An extinction map's band changes its masses 8.9 times over, and BUNIT 'mag' does not
+    // give it: the band read is said.
+    if let Some(units::PixelUnit::Extinction { band }) = m.unit {
+        outln!(
+            "map read as {} in magnitudes{}",
+            m.unit.map(|u| u.kind_name()).unwrap_or_default(),
+            match band {
+                units::ExtinctionBand::V => "; give --extinction-band K if it is of A_K",
+                units::ExtinctionBand::K => "",
+            }
+        );
+    }
     if let Some(states) = summary.leaf_states.as_ref().filter(|s| !s.is_empty()) {
         let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
         outln!("leaves by state: {}", words.join(", "));

@@ -750,3 +750,44 @@ fn masses_asked_of_a_map_without_sky_coordinates_are_refused_aloud() {
     let header = csv.lines().find(|l| !l.starts_with('#')).unwrap();
     assert!(header.split(',').all(|c| c != "mass"), "{header}");
 }
+
+/// BUNIT 'mag' does not say the band, which changes the masses 8.9 times over (A_V/A_K of
+/// Rieke & Lebofsky 1985): segment's summary says which band it read and how to change it.
+#[test]
+fn the_extinction_band_read_is_said() {
+    let d = tempfile::tempdir().unwrap();
+    let full = cairn::map::load(&fixture_map(), &cairn::map::LoadOptions::default()).unwrap();
+    let mut h = full.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("mag".into()), "");
+    let data = full.data.mapv(|v| v / 9.4e20);
+    cairn::fits_write::write_image_f32(&d.path().join("av.fits"), data.view(), &h, false).unwrap();
+    for (band, out, says) in [
+        (
+            "V",
+            "v",
+            "map read as visual extinction A_V in magnitudes; give --extinction-band K",
+        ),
+        (
+            "K",
+            "k",
+            "map read as K-band extinction A_K in magnitudes\n",
+        ),
+    ] {
+        let (code, stdout, stderr) = cairn(
+            &[
+                "segment",
+                "av.fits",
+                "-o",
+                out,
+                "--noise",
+                "0.1",
+                "--extinction-band",
+                band,
+                "--no-figure",
+            ],
+            d.path(),
+        );
+        assert_eq!(code, 0, "{stderr}");
+        assert!(stdout.contains(says), "{stdout}");
+    }
+}
