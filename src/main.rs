@@ -741,11 +741,23 @@ fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usiz
     .map_err(Error::usage)?;
     let (cx, cy, half) = if size.dim == Dimension::Angle {
         let w = map.wcs.as_ref().ok_or_else(|| Error::usage("--region with a sky centre needs a map with a celestial WCS; give the centre and size in pixels."))?;
+        let frame = match w.frame() {
+            cairn::wcs::SkyFrame::Galactic => "galactic l,b",
+            cairn::wcs::SkyFrame::Icrs
+            | cairn::wcs::SkyFrame::Fk5 { .. }
+            | cairn::wcs::SkyFrame::Fk4 { .. } => "equatorial RA,Dec",
+            _ => "its own longitude,latitude",
+        };
         let (x, y) = w.sky_to_pixel(a, b).ok_or_else(|| {
             Error::usage(format!(
-                "--region centre {a},{b} is outside the map's projection."
+                "--region centre {a},{b} is outside the map's projection; a sky centre is read in degrees in the map's own frame ({frame})."
             ))
         })?;
+        if !(x > -0.5 && y > -0.5 && x < map.nx() as f64 - 0.5 && y < map.ny() as f64 - 0.5) {
+            return Err(Error::usage(format!(
+                "--region centre {a},{b} falls off the map (at pixel {x:.0},{y:.0}); a sky centre is read in degrees in the map's own frame ({frame})."
+            )));
+        }
         let (sx, sy) = w.pixel_scale(x, y);
         (x, y, size.si.to_degrees() / (sx * sy).sqrt() / 2.0)
     } else {
@@ -1068,7 +1080,9 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
     }
     let profile = match a.profile.as_deref().map(str::to_ascii_lowercase).as_deref() {
         None | Some("gaussian") => synth::Profile::Gaussian,
-        Some("bonnor-ebert") | Some("be") => synth::Profile::critical_bonnor_ebert(),
+        Some("bonnor-ebert") | Some("bonnor_ebert") | Some("be") => {
+            synth::Profile::critical_bonnor_ebert()
+        }
         Some(other) => {
             return Err(Error::usage(format!(
                 "--profile '{other}' is not understood: give gaussian or bonnor-ebert."
@@ -1249,7 +1263,9 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
     };
     let profile = match a.profile.as_deref().map(str::to_ascii_lowercase).as_deref() {
         None | Some("gaussian") => synth::Profile::Gaussian,
-        Some("bonnor-ebert") | Some("be") => synth::Profile::critical_bonnor_ebert(),
+        Some("bonnor-ebert") | Some("bonnor_ebert") | Some("be") => {
+            synth::Profile::critical_bonnor_ebert()
+        }
         Some(other) => {
             return Err(Error::usage(format!(
                 "--profile '{other}' is not understood: give gaussian or bonnor-ebert."
@@ -1655,7 +1671,12 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         outln!("leaves by state: {}", words.join(", "));
     }
     if let Some(note) = &summary.physics_note {
-        outln!("no masses: {note}");
+        if a.physics.distance.is_some() {
+            // Asked for with --distance and not made: a warning, on stderr with --quiet too.
+            errln!("warning: no masses: {note}");
+        } else {
+            outln!("no masses: {note}");
+        }
     } else if m.wcs.is_none() && a.physics.distance.is_some() {
         // Asked for and not given: a warning, on stderr with --quiet too.
         errln!(

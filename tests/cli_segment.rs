@@ -791,3 +791,36 @@ fn the_extinction_band_read_is_said() {
         assert!(stdout.contains(says), "{stdout}");
     }
 }
+
+/// Masses asked for with --distance but not made (an emission map without a temperature) are
+/// a warning on stderr, seen with --quiet too; without --distance the same line is part of
+/// the summary on stdout.
+#[test]
+fn masses_asked_for_and_not_made_are_a_warning() {
+    let d = tempfile::tempdir().unwrap();
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let m = map.to_str().unwrap();
+    let (code, stdout, stderr) = cairn(
+        &[
+            "segment",
+            m,
+            "-o",
+            "a",
+            "--distance",
+            "300pc",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("warning: no masses: a dust-emission map needs a dust temperature"),
+        "{stderr}"
+    );
+    assert!(!stdout.contains("no masses"), "{stdout}");
+    let (code, stdout, stderr) = cairn(&["segment", m, "-o", "b", "--no-figure", "-q"], d.path());
+    assert_eq!(code, 0, "{stderr}");
+    assert!(stdout.contains("no masses: "), "{stdout}");
+    assert!(!stderr.contains("no masses"), "{stderr}");
+}

@@ -406,3 +406,31 @@ fn draw_redoes_the_smoothing_of_a_common_resolution_run() {
         );
     }
 }
+
+/// A sky centre for --region is read in the map's own frame: one that falls off the map (here
+/// galactic-looking numbers given to an equatorial map) is refused with a sentence naming the
+/// frame, and nothing is written.
+#[test]
+fn a_region_centre_off_the_map_names_the_frame() {
+    let d = tempfile::tempdir().unwrap();
+    write_map(d.path(), "eq.fits", 200, 100);
+    let args = [
+        "segment",
+        "eq.fits",
+        "-o",
+        "run",
+        "--min-area",
+        "2px",
+        "--region",
+        "45.0,-1.5,2arcmin",
+        "-q",
+    ];
+    let o = cairn(&args, d.path());
+    cli::check_refused(
+        &o,
+        &args,
+        "--region",
+        "the map's own frame (equatorial RA,Dec)",
+    );
+    assert!(!d.path().join("run").exists());
+}
