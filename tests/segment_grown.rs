@@ -15,32 +15,7 @@ use cairn::hierarchy::Connectivity;
 use cairn::inspect::NoiseChoice;
 use cairn::map::{self, LoadOptions};
 use cairn::segment::{self, Area, Level, SegmentOptions, names};
-use common::{assert_close, fixture_path};
-
-/// The rows of a catalogue CSV, by column name.
-fn read_csv(path: &Path) -> Vec<HashMap<String, String>> {
-    let text = std::fs::read_to_string(path).unwrap();
-    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
-    let header: Vec<String> = lines
-        .next()
-        .unwrap()
-        .split(',')
-        .map(str::to_string)
-        .collect();
-    lines
-        .map(|l| {
-            header
-                .iter()
-                .cloned()
-                .zip(l.split(',').map(str::to_string))
-                .collect()
-        })
-        .collect()
-}
-
-fn f(row: &HashMap<String, String>, k: &str) -> f64 {
-    row[k].parse().unwrap_or(f64::NAN)
-}
+use common::{assert_close, field as f, fixture_path, read_csv};
 
 /// A label plane written by a run (-1 for none), through CFITSIO.
 fn read_labels(path: &Path) -> ndarray::Array2<i64> {

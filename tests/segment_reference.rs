@@ -18,31 +18,7 @@ use std::collections::HashMap;
 
 use cairn::hierarchy::{self, Params};
 use cairn::map::{self, LoadOptions};
-use common::{assert_close, fixture_json, fixture_path, num};
-
-fn read_csv(path: &std::path::Path) -> Vec<HashMap<String, String>> {
-    let text = std::fs::read_to_string(path).unwrap();
-    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
-    let header: Vec<String> = lines
-        .next()
-        .unwrap()
-        .split(',')
-        .map(str::to_string)
-        .collect();
-    lines
-        .map(|l| {
-            header
-                .iter()
-                .cloned()
-                .zip(l.split(',').map(str::to_string))
-                .collect()
-        })
-        .collect()
-}
-
-fn f(row: &HashMap<String, String>, k: &str) -> f64 {
-    row[k].parse().unwrap_or(f64::NAN)
-}
+use common::{assert_close, field as f, fixture_json, fixture_path, num, read_csv};
 
 #[test]
 fn stored_run_is_what_cairn_makes_now() {
@@ -72,6 +48,49 @@ fn stored_run_is_what_cairn_makes_now() {
     }
 }
 
+/// A catalogue row's area, value-weighted centroid and weighted moment axes against
+/// scikit-image 0.26.0 regionprops of the same pixels (`r`, from tests/oracle/segment_skimage.py):
+/// area, weighted centroid, and the weighted covariance (moments_weighted_central / mu00)
+/// whose eigenvalues are sigma_major_px^2 and sigma_minor_px^2.
+fn check_weighted_props(
+    row: &HashMap<String, String>,
+    r: &serde_json::Value,
+    what: &dyn Fn(&str) -> String,
+) {
+    assert_eq!(f(row, "area_px"), num(&r["area"]), "{}", what("area"));
+    assert_close(
+        f(row, "x"),
+        num(&r["weighted_col"]),
+        1e-12,
+        1e-9,
+        &what("weighted centroid x"),
+    );
+    assert_close(
+        f(row, "y"),
+        num(&r["weighted_row"]),
+        1e-12,
+        1e-9,
+        &what("weighted centroid y"),
+    );
+    let (a, b, c) = (num(&r["cov_cc"]), num(&r["cov_rc"]), num(&r["cov_rr"]));
+    let mean = 0.5 * (a + c);
+    let half = (0.25 * (a - c) * (a - c) + b * b).sqrt();
+    assert_close(
+        f(row, "sigma_major_px"),
+        (mean + half).sqrt(),
+        1e-9,
+        1e-9,
+        &what("sigma_major_px"),
+    );
+    assert_close(
+        f(row, "sigma_minor_px"),
+        (mean - half).max(0.0).sqrt(),
+        1e-9,
+        1e-9,
+        &what("sigma_minor_px"),
+    );
+}
+
 #[test]
 fn catalogue_matches_regionprops_on_cairns_label_map() {
     let reference = fixture_json("segment/reference.json");
@@ -92,41 +111,8 @@ fn catalogue_matches_regionprops_on_cairns_label_map() {
         let id = &row["id"];
         let r = &rp[id.as_str()];
         let what = |k: &str| format!("structure {id} {k}");
-        // scikit-image 0.26.0 regionprops: area and value-weighted centroid.
-        assert_eq!(f(row, "area_px"), num(&r["area"]), "{}", what("area"));
-        assert_close(
-            f(row, "x"),
-            num(&r["weighted_col"]),
-            1e-12,
-            1e-9,
-            &what("weighted centroid x"),
-        );
-        assert_close(
-            f(row, "y"),
-            num(&r["weighted_row"]),
-            1e-12,
-            1e-9,
-            &what("weighted centroid y"),
-        );
-        // regionprops moments_weighted_central / mu00: the weighted covariance, whose
-        // eigenvalues are cairn's sigma_major_px^2 and sigma_minor_px^2.
+        check_weighted_props(row, r, &what);
         let (a, b, c) = (num(&r["cov_cc"]), num(&r["cov_rc"]), num(&r["cov_rr"]));
-        let mean = 0.5 * (a + c);
-        let half = (0.25 * (a - c) * (a - c) + b * b).sqrt();
-        assert_close(
-            f(row, "sigma_major_px"),
-            (mean + half).sqrt(),
-            1e-9,
-            1e-9,
-            &what("sigma_major_px"),
-        );
-        assert_close(
-            f(row, "sigma_minor_px"),
-            (mean - half).max(0.0).sqrt(),
-            1e-9,
-            1e-9,
-            &what("sigma_minor_px"),
-        );
         let phi = f(row, "angle_px").to_radians();
         let expected = 0.5 * (2.0 * b).atan2(a - c);
         assert!(
@@ -212,41 +198,8 @@ fn grown_catalogue_matches_regionprops_on_cairns_grown_plane() {
         let id = &row["id"];
         let r = &rp[id.as_str()];
         let what = |k: &str| format!("grown leaf {id} {k}");
-        // scikit-image 0.26.0 regionprops on the pixels of leaves-grown.fits carrying the id:
-        // area, value-weighted centroid, and the weighted covariance (moments_weighted_central
-        // / mu00) whose eigenvalues are sigma_major_px^2 and sigma_minor_px^2.
-        assert_eq!(f(row, "area_px"), num(&r["area"]), "{}", what("area"));
-        assert_close(
-            f(row, "x"),
-            num(&r["weighted_col"]),
-            1e-12,
-            1e-9,
-            &what("weighted centroid x"),
-        );
-        assert_close(
-            f(row, "y"),
-            num(&r["weighted_row"]),
-            1e-12,
-            1e-9,
-            &what("weighted centroid y"),
-        );
-        let (a, b, c) = (num(&r["cov_cc"]), num(&r["cov_rc"]), num(&r["cov_rr"]));
-        let mean = 0.5 * (a + c);
-        let half = (0.25 * (a - c) * (a - c) + b * b).sqrt();
-        assert_close(
-            f(row, "sigma_major_px"),
-            (mean + half).sqrt(),
-            1e-9,
-            1e-9,
-            &what("sigma_major_px"),
-        );
-        assert_close(
-            f(row, "sigma_minor_px"),
-            (mean - half).max(0.0).sqrt(),
-            1e-9,
-            1e-9,
-            &what("sigma_minor_px"),
-        );
+        // scikit-image 0.26.0 regionprops on the pixels of leaves-grown.fits carrying the id.
+        check_weighted_props(row, r, &what);
     }
 }
 

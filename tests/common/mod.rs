@@ -43,3 +43,29 @@ pub fn assert_close(a: f64, b: f64, rel_tol: f64, abs_tol: f64, what: &str) {
         a - b
     );
 }
+
+/// The rows of a catalogue CSV written by cairn (`#` lines skipped), by column name.
+pub fn read_csv(path: &std::path::Path) -> Vec<std::collections::HashMap<String, String>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    lines
+        .map(|l| {
+            header
+                .iter()
+                .cloned()
+                .zip(l.split(',').map(str::to_string))
+                .collect()
+        })
+        .collect()
+}
+
+/// A catalogue row's number in column `k` (NaN when empty).
+pub fn field(row: &std::collections::HashMap<String, String>, k: &str) -> f64 {
+    row[k].parse().unwrap_or(f64::NAN)
+}
