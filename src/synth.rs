@@ -13,9 +13,15 @@
 //!    (supersampled for small cores), truncated, and normalised on the grid so that
 //!    sum(N) * pixel area * mu_H2 * m_H equals the core mass exactly. The pixel area is
 //!    (d * pixel angle)^2 (small-angle approximation, common practice).
-//! 3. Beam: periodic (circular) convolution by FFT with the sampled Gaussian beam, normalised
-//!    to unit sum, so the map total is conserved; the map is treated as periodic, which suits
-//!    the periodic background. Cores near an edge therefore wrap around.
+//! 3. Beam: convolution with the sampled Gaussian beam (separable, out to seven standard
+//!    deviations, normalised to unit sum). The background is convolved periodically (by FFT
+//!    on the map's own grid), as it is periodic by construction, so its total is conserved.
+//!    The cores are convolved linearly, as if the sky beyond the map's edges were empty for
+//!    them: along each row and then each column, by FFT on a line padded with zeros to at
+//!    least its length plus the kernel's half width, so that nothing wraps round (values
+//!    beyond the kernel's reach of a line's nonzero pixels are set to exactly zero, as a
+//!    linear convolution leaves them). A core near an edge is not seen at the opposite edge;
+//!    the part of its light the beam carries beyond the edge is lost from the map.
 //! 4. Output units: column density in cm^-2, or optically thin dust emission
 //!    I = N mu_H2 m_H kappa_nu B_nu(T) in MJy/sr or Jy/beam (beam solid angle
 //!    pi FWHM^2 / (4 ln 2), common practice for a Gaussian beam).
@@ -257,14 +263,17 @@ pub struct TruthCore {
     pub lon_deg: f64,
     /// Latitude \[deg\] of the centre.
     pub lat_deg: f64,
-    /// Mass \[M_sun\] (exactly what the map holds).
+    /// Mass \[M_sun\]: exactly what the map holds before the beam (a core cut by the map's
+    /// edge is normalised on the pixels inside it). The beam may carry a little of a core
+    /// within its reach of an edge beyond the map (see [`reach_px`]); that part is not on the
+    /// map, but the mass recorded stays the core's.
     pub mass_msun: f64,
     /// Radius \[pc\].
     pub radius_pc: f64,
     /// Profile name: "gaussian" or "bonnor_ebert".
     pub profile: String,
-    /// Peak of this core alone, in output units, after beam convolution, without background
-    /// or noise (computed without the periodic wrap-around).
+    /// Peak of this core alone on the map, in output units, after beam convolution, without
+    /// background or noise (the linear convolution the map's cores get, over the map's pixels).
     pub peak: f64,
     /// Unit of `peak` (the map's BUNIT).
     pub peak_unit: String,
@@ -324,9 +333,13 @@ pub const MAX_SIGMA_LN: f64 = 5.0;
 /// Largest |power-spectrum index| of the background: with at most 2^31 pixels a side the
 /// filter |k|^(-index/2) and the field's variance then stay within double precision.
 pub const MAX_SPECTRAL_INDEX: f64 = 10.0;
-/// Peak working memory per pixel while a map is made with an FFT (a background or a beam):
-/// the real field (8 bytes) and the two complex buffers of the transform (16 + 16 bytes).
+/// Peak working memory per pixel while a map is made with a background: the real field
+/// (8 bytes) and the two complex buffers of the 2-D transform (16 + 16 bytes). The cores'
+/// layer, its transposed copy and the background (8 + 8 + 8 bytes) need less.
 const BYTES_PER_PIXEL_FFT: u128 = 40;
+/// Peak working memory per pixel for cores convolved with a beam on an empty sky: the cores'
+/// layer and its transposed copy (the line transforms need only a line per thread).
+const BYTES_PER_PIXEL_BEAM: u128 = 16;
 /// Peak working memory per pixel without an FFT: the real field and the f32 map.
 const BYTES_PER_PIXEL_PLAIN: u128 = 12;
 /// Working memory per core (its specification, a copy, its truth row).
@@ -361,8 +374,10 @@ fn pixel_count(spec: &SynthSpec) -> u128 {
 
 /// Estimated peak working memory \[bytes\] of [`generate`] for `spec`.
 pub fn memory_needed(spec: &SynthSpec) -> u128 {
-    let per_pixel = if spec.background.is_some() || spec.beam_fwhm_arcsec > 0.0 {
+    let per_pixel = if spec.background.is_some() {
         BYTES_PER_PIXEL_FFT
+    } else if spec.beam_fwhm_arcsec > 0.0 {
+        BYTES_PER_PIXEL_BEAM
     } else {
         BYTES_PER_PIXEL_PLAIN
     };
@@ -761,6 +776,46 @@ pub(crate) fn draw_population(p: &CorePopulation, spec: &SynthSpec) -> Vec<CoreS
         .collect()
 }
 
+/// Least distance \[pixels\] a random population keeps from the edges by default.
+pub const MIN_MARGIN_PX: f64 = 10.0;
+
+/// How far a core's mass reaches on a map \[pixels\], from its centre: four standard
+/// deviations of a Gaussian core (radius `radius_px`, its half width at half maximum)
+/// convolved with a Gaussian beam of standard deviation `sigma_beam_px`, or a Bonnor-Ebert
+/// core's outer radius plus four of the beam's; at least one pixel. Beyond a straight line at
+/// that distance lies a fraction Phi(-4) = 3.2e-5 of a Gaussian's mass (common practice: the
+/// normal distribution's tail), so a core that far from every edge keeps all but about 1e-4
+/// of its mass on the map.
+pub fn reach_px(radius_px: f64, profile: Profile, sigma_beam_px: f64) -> f64 {
+    let reach = match profile {
+        Profile::Gaussian => {
+            4.0 * (radius_px / (2.0 * std::f64::consts::LN_2).sqrt()).hypot(sigma_beam_px)
+        }
+        Profile::BonnorEbert { .. } => radius_px + 4.0 * sigma_beam_px,
+    };
+    reach.max(1.0)
+}
+
+/// The margin \[pixels\] a random population of cores up to `radius_max_pc` keeps from the
+/// edges of `spec`'s map by default: the widest core's [`reach_px`] (rounded up), at least
+/// [`MIN_MARGIN_PX`], so that random cores keep their light on the map. On a map too small
+/// for that, the most it leaves room for, still at least [`MIN_MARGIN_PX`]. Returns the margin
+/// and the reach, which the margin is less than only on such small maps.
+pub fn default_margin_px(spec: &SynthSpec, radius_max_pc: f64, profile: Profile) -> (f64, f64) {
+    let pix_m = spec.distance_pc * PC * spec.pixel_arcsec * ARCSEC;
+    let sigma_beam_px =
+        spec.beam_fwhm_arcsec / spec.pixel_arcsec / (8.0 * std::f64::consts::LN_2).sqrt();
+    let reach = reach_px(radius_max_pc * PC / pix_m, profile, sigma_beam_px).ceil();
+    // `validate` needs 2 margin < n - 1 on both sides.
+    let room = ((spec.nx.min(spec.ny) as f64 - 2.0) / 2.0).floor();
+    let margin = if reach.is_finite() {
+        reach.min(room).max(MIN_MARGIN_PX)
+    } else {
+        MIN_MARGIN_PX
+    };
+    (margin, reach)
+}
+
 /// All cores of a spec (hand-placed, then the random population), in injection order.
 pub fn all_cores(spec: &SynthSpec) -> Vec<CoreSpec> {
     let mut cores = spec.cores.clone();
@@ -936,6 +991,104 @@ fn taps_transfer(taps: &[f64], n: usize) -> Vec<f64> {
         .collect()
 }
 
+/// Smallest length at least `n` whose only prime factors are 2, 3, 5 and 7 (fast FFT sizes).
+fn smooth_length(n: usize) -> usize {
+    let mut m = n.max(1);
+    loop {
+        let mut r = m;
+        for p in [2, 3, 5, 7] {
+            while r % p == 0 {
+                r /= p;
+            }
+        }
+        if r == 1 {
+            return m;
+        }
+        m += 1;
+    }
+}
+
+/// Linear (zero-padded, non-periodic) convolution of every line of `field` (lines of length
+/// `n`, contiguous) with the symmetric kernel `taps` (offsets -k..=k), in place: the value
+/// beyond a line's ends is taken as zero, and what the kernel carries beyond them is dropped.
+/// By FFT on a line of length at least n + min(k, n - 1), so that nothing wraps round onto the
+/// line (offsets beyond n - 1 cannot join two pixels of a line and are left out); values
+/// farther than k from every nonzero pixel of a line (beyond a core's reach, between cores)
+/// are set to exactly zero, as the convolution leaves them, and lines of zeros are left alone. Each line is transformed alone,
+/// so the result does not depend on the number of threads.
+fn convolve_lines_linear(field: &mut [f64], n: usize, taps: &[f64]) -> Result<(), NoMemory> {
+    let half = taps.len() / 2;
+    let k = half.min(n.saturating_sub(1));
+    let len = smooth_length(n + k);
+    let mut planner = FftPlanner::new();
+    let (fwd, inv) = (planner.plan_fft_forward(len), planner.plan_fft_inverse(len));
+    // The kernel wrapped onto the padded line, and its transform (real for a symmetric kernel,
+    // up to rounding; the real part is kept, as `taps_transfer` does), with 1/len folded in.
+    let mut kern = try_filled(len, Complex::new(0.0, 0.0))?;
+    for d in -(k as i64)..=k as i64 {
+        kern[d.rem_euclid(len as i64) as usize].re = taps[(d + half as i64) as usize];
+    }
+    fwd.process(&mut kern);
+    let norm = 1.0 / len as f64;
+    let transfer: Vec<f64> = kern.iter().map(|c| c.re * norm).collect();
+    drop(kern);
+    let scratch_len = fwd
+        .get_inplace_scratch_len()
+        .max(inv.get_inplace_scratch_len());
+    field.par_chunks_mut(n).for_each_init(
+        || {
+            (
+                vec![Complex::new(0.0, 0.0); len],
+                vec![Complex::new(0.0, 0.0); scratch_len],
+                vec![0usize; n + 1],
+            )
+        },
+        |(buf, scratch, count), line| {
+            // count[x] = nonzero pixels before x.
+            for (x, &v) in line.iter().enumerate() {
+                count[x + 1] = count[x] + usize::from(v != 0.0);
+            }
+            if count[n] == 0 {
+                return;
+            }
+            for (b, &v) in buf.iter_mut().zip(line.iter()) {
+                *b = Complex::new(v, 0.0);
+            }
+            buf[n..].fill(Complex::new(0.0, 0.0));
+            fwd.process_with_scratch(buf, scratch);
+            for (b, t) in buf.iter_mut().zip(&transfer) {
+                *b *= *t;
+            }
+            inv.process_with_scratch(buf, scratch);
+            for (x, v) in line.iter_mut().enumerate() {
+                let reached = count[(x + k + 1).min(n)] > count[x.saturating_sub(k)];
+                *v = if reached { buf[x].re } else { 0.0 };
+            }
+        },
+    );
+    Ok(())
+}
+
+/// out\[c * rows + r\] = inp\[r * cols + c\], for real fields.
+fn transpose_real(inp: &[f64], out: &mut [f64], rows: usize, cols: usize) {
+    out.par_chunks_mut(rows).enumerate().for_each(|(c, col)| {
+        for (r, o) in col.iter_mut().enumerate() {
+            *o = inp[r * cols + c];
+        }
+    });
+}
+
+/// Linear (zero-padded) convolution of the ny x nx field (row-major) with the separable
+/// kernel `taps` along x and then along y, in place (see [`convolve_lines_linear`]).
+fn convolve_linear(field: &mut [f64], nx: usize, ny: usize, taps: &[f64]) -> Result<(), NoMemory> {
+    convolve_lines_linear(field, nx, taps)?;
+    let mut t = try_filled(nx * ny, 0.0)?;
+    transpose_real(field, &mut t, ny, nx);
+    convolve_lines_linear(&mut t, ny, taps)?;
+    transpose_real(&t, field, nx, ny);
+    Ok(())
+}
+
 /// FFT plans and buffers for periodic filtering of an ny x nx real field.
 struct Fourier {
     nx: usize,
@@ -1076,8 +1229,14 @@ fn output_units(spec: &SynthSpec) -> (&'static str, f64) {
     }
 }
 
-/// Peak of a stamp convolved (directly, without wrap-around) with the separable beam.
-fn convolved_peak(stamp: &Stamp, taps: Option<&[f64]>) -> Result<f64, NoMemory> {
+/// Peak over the map's pixels of a stamp convolved (directly, linearly, as the map's cores
+/// are) with the separable beam.
+fn convolved_peak(
+    stamp: &Stamp,
+    taps: Option<&[f64]>,
+    nx: usize,
+    ny: usize,
+) -> Result<f64, NoMemory> {
     let Some(t) = taps else {
         return Ok(stamp.values.iter().cloned().fold(0.0, f64::max));
     };
@@ -1106,7 +1265,15 @@ fn convolved_peak(stamp: &Stamp, taps: Option<&[f64]>) -> Result<f64, NoMemory> 
             }
         }
     }
-    Ok(out.into_iter().fold(0.0, f64::max))
+    // Output pixel (i, j) is map pixel (x0 + i - k, y0 + j - k); only those on the map count.
+    let on_map = |i: usize, n: usize, o: usize| i + o >= k && i + o - k < n;
+    let mut peak = 0.0f64;
+    for j in (0..h).filter(|&j| on_map(j, ny, stamp.y0)) {
+        for i in (0..w).filter(|&i| on_map(i, nx, stamp.x0)) {
+            peak = peak.max(out[j * w + i]);
+        }
+    }
+    Ok(peak)
 }
 
 /// Generates the map a spec describes.
@@ -1131,9 +1298,13 @@ pub fn generate_with_progress(
     let fourier = Fourier::new(nx, ny);
     let (unit, factor) = output_units(spec);
 
-    // 1. Background [m^-2].
+    let sigma_px =
+        spec.beam_fwhm_arcsec / spec.pixel_arcsec / (8.0 * std::f64::consts::LN_2).sqrt();
+    let taps = (spec.beam_fwhm_arcsec > 0.0).then(|| beam_taps(sigma_px));
+
+    // 1. Background [m^-2], convolved with the beam periodically (it is periodic).
     progress("background", 0.0);
-    let mut col = match &spec.background {
+    let background = match &spec.background {
         Some(b) => {
             let g = gaussian_field(spec, b.spectral_index, &fourier).map_err(oom)?;
             let (mean, s) = (b.mean_column_cm2 * 1e4, b.sigma_ln);
@@ -1162,27 +1333,39 @@ pub fn generate_with_progress(
                     b.mean_column_cm2
                 )));
             }
-            col
+            if let Some(t) = &taps {
+                let (tx, ty) = (taps_transfer(t, nx), taps_transfer(t, ny));
+                fourier
+                    .filter(&mut col, |fx, fy| tx[fx] * ty[fy])
+                    .map_err(oom)?;
+            }
+            Some(col)
         }
-        None => try_filled(nx * ny, 0.0).map_err(oom)?,
+        None => None,
     };
+    drop(fourier);
 
-    // 2. Cores.
+    // 2. Cores [m^-2], on a layer of their own.
     progress("cores", 0.25);
-    let sigma_px =
-        spec.beam_fwhm_arcsec / spec.pixel_arcsec / (8.0 * std::f64::consts::LN_2).sqrt();
-    let taps = (spec.beam_fwhm_arcsec > 0.0).then(|| beam_taps(sigma_px));
+    let cores = all_cores(spec);
+    let mut layer = if cores.is_empty() {
+        None
+    } else {
+        Some(try_filled(nx * ny, 0.0).map_err(oom)?)
+    };
     let mut be_cache = Vec::new();
     let mut truth = Vec::new();
-    for (i, core) in all_cores(spec).iter().enumerate() {
+    for (i, core) in cores.iter().enumerate() {
         let stamp = render_core(core, spec, &mut be_cache).map_err(oom)?;
-        for j in 0..stamp.h {
-            let row = (stamp.y0 + j) * nx + stamp.x0;
-            for (c, v) in col[row..row + stamp.w]
-                .iter_mut()
-                .zip(&stamp.values[j * stamp.w..])
-            {
-                *c += v;
+        if let Some(layer) = layer.as_mut() {
+            for j in 0..stamp.h {
+                let row = (stamp.y0 + j) * nx + stamp.x0;
+                for (c, v) in layer[row..row + stamp.w]
+                    .iter_mut()
+                    .zip(&stamp.values[j * stamp.w..])
+                {
+                    *c += v;
+                }
             }
         }
         let (lon, lat) = pixel_to_world(spec, core.x, core.y);
@@ -1195,20 +1378,29 @@ pub fn generate_with_progress(
             mass_msun: core.mass_msun,
             radius_pc: core.radius_pc,
             profile: core.profile.name().to_string(),
-            peak: convolved_peak(&stamp, taps.as_deref()).map_err(oom)? * factor,
+            peak: convolved_peak(&stamp, taps.as_deref(), nx, ny).map_err(oom)? * factor,
             peak_unit: unit.to_string(),
             peak_column_cm2: stamp.values.iter().cloned().fold(0.0, f64::max) * 1e-4,
         });
     }
+    drop(cores);
 
-    // 3. Beam: periodic convolution with the sampled, unit-sum Gaussian.
+    // 3. Beam on the cores: linear, the sky beyond the edges empty; then the background added.
     progress("beam", 0.5);
-    if let Some(t) = &taps {
-        let (tx, ty) = (taps_transfer(t, nx), taps_transfer(t, ny));
-        fourier
-            .filter(&mut col, |fx, fy| tx[fx] * ty[fy])
-            .map_err(oom)?;
+    if let (Some(t), Some(layer)) = (&taps, layer.as_mut()) {
+        convolve_linear(layer, nx, ny, t).map_err(oom)?;
     }
+    let col = match (background, layer) {
+        (Some(mut b), Some(l)) => {
+            b.par_iter_mut()
+                .zip(l.par_iter())
+                .for_each(|(b, l)| *b += l);
+            b
+        }
+        (Some(b), None) => b,
+        (None, Some(l)) => l,
+        (None, None) => try_filled(nx * ny, 0.0).map_err(oom)?,
+    };
 
     // 4-5. Units and noise; notes whether the signal or the noise left the f32 range.
     progress("noise", 0.75);
@@ -1420,6 +1612,173 @@ mod tests {
         let orig = f.clone();
         assert!(Fourier::new(40, 30).filter(&mut f, |_, _| 1.0).is_ok());
         assert!(f.iter().zip(&orig).all(|(a, b)| (a - b).abs() < 1e-10));
+    }
+
+    /// Direct linear convolution of one line with zeros beyond its ends: out[x] = sum over d
+    /// of taps[d + k] line[x - d] (the definition, summed term by term).
+    fn direct_line(line: &[f64], taps: &[f64]) -> Vec<f64> {
+        let k = (taps.len() / 2) as i64;
+        let n = line.len() as i64;
+        (0..n)
+            .map(|x| {
+                (-k..=k)
+                    .filter(|d| (0..n).contains(&(x - d)))
+                    .map(|d| taps[(d + k) as usize] * line[(x - d) as usize])
+                    .sum()
+            })
+            .collect()
+    }
+
+    #[test]
+    fn line_convolution_is_the_direct_sum_with_zeros_outside() {
+        // Lines with a source at either end, in the middle, two apart and none; kernels
+        // narrower than the line and wider than it (whose far taps cannot join two pixels).
+        for (n, sigma) in [(40, 1.7), (40, 9.0), (13, 4.0), (7, 3.0)] {
+            let taps = beam_taps(sigma);
+            let mut lines = vec![vec![0.0; n]; 5];
+            lines[0][0] = 2.0;
+            lines[0][1] = 1.0;
+            lines[1][n - 1] = 3.0;
+            lines[2][n / 2] = 1.5;
+            lines[3][1] = 1.0;
+            lines[3][n - 2] = 0.25;
+            let mut field: Vec<f64> = lines.concat();
+            assert!(convolve_lines_linear(&mut field, n, &taps).is_ok());
+            for (l, got) in lines.iter().zip(field.chunks(n)) {
+                let want = direct_line(l, &taps);
+                let scale = l.iter().cloned().fold(0.0, f64::max);
+                for (x, (g, w)) in got.iter().zip(&want).enumerate() {
+                    assert!(
+                        (g - w).abs() <= 1e-14 * scale.max(1e-300),
+                        "n {n}, sigma {sigma}, x {x}: {g} vs direct {w}"
+                    );
+                    // Beyond the kernel's reach the direct sum is exactly zero, and so is
+                    // the result.
+                    if *w == 0.0 {
+                        assert_eq!(*g, 0.0, "n {n}, sigma {sigma}, x {x}");
+                    }
+                }
+            }
+            // The line of zeros stays zeros.
+            assert!(field[4 * n..].iter().all(|&v| v == 0.0));
+        }
+    }
+
+    #[test]
+    fn smooth_lengths_have_only_small_prime_factors() {
+        // Hand calculation: 11 -> 12 = 2^2 3, 97 -> 98 = 2 7^2, 1021 -> 1024 = 2^10,
+        // 8202 -> 8232 = 2^3 3 7^3 (8203 to 8231 each have a prime factor above 7).
+        for (n, want) in [(1, 1), (11, 12), (97, 98), (1021, 1024), (8202, 8232)] {
+            assert_eq!(smooth_length(n), want, "{n}");
+        }
+    }
+
+    /// A spec of one core on an empty sky, with a beam of 3 pixels FWHM.
+    fn one_core(x: f64, y: f64) -> SynthSpec {
+        SynthSpec {
+            nx: 96,
+            ny: 80,
+            beam_fwhm_arcsec: 18.0,
+            background: None,
+            cores: vec![CoreSpec {
+                x,
+                y,
+                mass_msun: 2.0,
+                radius_pc: 0.02,
+                profile: Profile::Gaussian,
+            }],
+            ..SynthSpec::default()
+        }
+    }
+
+    /// The core of `spec` convolved periodically, as synth convolved its cores before they
+    /// were convolved linearly: the stamp on the map, filtered by FFT with the wrapped beam.
+    fn periodic_core(spec: &SynthSpec) -> Vec<f64> {
+        let (nx, ny) = (spec.nx, spec.ny);
+        let stamp = render_core(&spec.cores[0], spec, &mut Vec::new())
+            .ok()
+            .unwrap();
+        let mut col = vec![0.0; nx * ny];
+        for j in 0..stamp.h {
+            for i in 0..stamp.w {
+                col[(stamp.y0 + j) * nx + stamp.x0 + i] = stamp.values[j * stamp.w + i];
+            }
+        }
+        let sigma = spec.beam_fwhm_arcsec / spec.pixel_arcsec / (8.0 * 2f64.ln()).sqrt();
+        let taps = beam_taps(sigma);
+        let (tx, ty) = (taps_transfer(&taps, nx), taps_transfer(&taps, ny));
+        assert!(
+            Fourier::new(nx, ny)
+                .filter(&mut col, |fx, fy| tx[fx] * ty[fy])
+                .is_ok()
+        );
+        col
+    }
+
+    #[test]
+    fn a_core_far_from_the_edges_is_convolved_as_the_periodic_convolution_did() {
+        // Periodic and linear convolutions agree when nothing wraps (the core's stamp, 6 HWHM
+        // = 17 px, and the kernel, 7 sigma = 9 px, lie well inside the map).
+        let spec = one_core(47.3, 40.6);
+        let map = generate(&spec).unwrap();
+        let old = periodic_core(&spec);
+        let peak = old.iter().cloned().fold(0.0, f64::max) * 1e-4;
+        for (i, (&m, &o)) in map.data.iter().zip(&old).enumerate() {
+            // The map holds cm-2 in f32: half an ulp (2^-24 relative) of the value, plus the
+            // periodic FFT's round-off (1e-12 of the peak, generous).
+            let o = o * 1e-4;
+            assert!(
+                (m as f64 - o).abs() <= o.abs() * 2f64.powi(-24) + 1e-12 * peak,
+                "pixel {i}: {m} vs periodic {o}"
+            );
+        }
+        // Near an edge the two differ: the periodic one wraps the core round to the far edge.
+        let near = one_core(2.0, 40.0);
+        let map = generate(&near).unwrap();
+        let old = periodic_core(&near);
+        let far_edge = |row: usize| row * near.nx + near.nx - 1;
+        assert!(
+            old[far_edge(40)] > 1e-3 * peak * 1e4,
+            "the periodic one wraps"
+        );
+        assert_eq!(map.data[[40, near.nx - 1]], 0.0, "the linear one does not");
+    }
+
+    #[test]
+    fn default_margin_is_the_widest_core_reach() {
+        // Hand calculation for the demo maps' population: 0.07 pc at 410 pc is
+        // 0.07 / 410 * 206264.8 / 6 = 5.870 px (HWHM), sigma 5.870 / 1.1774 = 4.985 px; the
+        // beam 18.2" / 6" / 2.3548 = 1.288 px; reach 4 (4.985^2 + 1.288^2)^(1/2) = 20.59,
+        // rounded up to 21.
+        let spec = SynthSpec {
+            nx: 512,
+            ny: 384,
+            distance_pc: 410.0,
+            beam_fwhm_arcsec: 18.2,
+            ..SynthSpec::default()
+        };
+        assert_eq!(
+            default_margin_px(&spec, 0.07, Profile::Gaussian),
+            (21.0, 21.0)
+        );
+        // A Bonnor-Ebert core: its outer radius plus four beam sigmas, 5.870 + 5.153 = 11.02,
+        // rounded up to 12.
+        assert_eq!(
+            default_margin_px(&spec, 0.07, Profile::critical_bonnor_ebert()).1,
+            12.0
+        );
+        // Small cores keep the 10 pixels synth always kept.
+        assert_eq!(default_margin_px(&spec, 0.001, Profile::Gaussian).0, 10.0);
+        // A map of 40 pixels leaves room for at most 19 (2 x 19 < 39).
+        let small = SynthSpec {
+            nx: 40,
+            ny: 60,
+            ..spec
+        };
+        assert_eq!(
+            default_margin_px(&small, 0.07, Profile::Gaussian),
+            (19.0, 21.0)
+        );
     }
 
     #[test]

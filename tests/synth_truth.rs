@@ -183,6 +183,75 @@ fn injected_mass_is_recovered_within_the_noise() {
     assert!(pulls.iter().any(|p| p.abs() > 1e-3), "pulls {pulls:?}");
 }
 
+/// One small Gaussian core on an empty sky (no background, no noise), 30" beam (2.1 px sigma).
+fn edge_core(nx: usize, x: f64) -> SynthSpec {
+    SynthSpec {
+        nx,
+        ny: 80,
+        beam_fwhm_arcsec: 30.0,
+        background: None,
+        cores: vec![CoreSpec {
+            x,
+            y: 40.3,
+            mass_msun: 2.0,
+            // 0.27 px (HWHM): its stamp, 6 HWHM plus a pixel, lies inside the map at x = 2.7,
+            // so only the beam carries light beyond the edge.
+            radius_pc: 0.002,
+            profile: Profile::Gaussian,
+        }],
+        ..base_spec()
+    }
+}
+
+#[test]
+fn a_core_near_an_edge_does_not_wrap_round_and_loses_what_the_beam_carries_off() {
+    let (nx, shift) = (96, 40);
+    let near = generate(&edge_core(nx, 2.7)).unwrap();
+    // Hand calculation: the core's stamp spans columns 0 to ceil(2.7 + 6 x 0.275 + 1) = 6; a
+    // linear convolution by a kernel of ceil(7 x 2.12) = 15 pixels each side carries it no
+    // farther than x = 21: the far edge, and everything beyond x = 21, is exactly zero (a
+    // periodic convolution put the core's wrapped light there).
+    for ((_, x), v) in near.data.indexed_iter() {
+        if x > 21 {
+            assert_eq!(*v, 0.0, "x {x}");
+        }
+    }
+    // The same core on a map wider by `shift` pixels on the left, at the same place relative to
+    // the right edge: nothing falls off there, and the part of it that lies on the first map's
+    // window is what the first map must hold.
+    let wide = generate(&edge_core(nx + shift, 2.7 + shift as f64)).unwrap();
+    let total = |a: &Array2<f32>, x0: usize| -> (f64, f64) {
+        let mut s = 0.0;
+        let mut bound = 0.0;
+        for ((_, x), &v) in a.indexed_iter() {
+            if x >= x0 {
+                s += v as f64;
+                bound += (v as f64).abs() * 2f64.powi(-24);
+            }
+        }
+        (s, bound)
+    };
+    let (held, b1) = total(&near.data, 0);
+    let (inside, b2) = total(&wide.data, shift);
+    let (all, b3) = total(&wide.data, 0);
+    let to_msun = 1e4 * pixel_area_m2(&base_spec()) * MU_H2 * M_H / M_SUN;
+    // The wide map holds the whole core (its mass, exact on the grid before a unit-sum beam).
+    assert_close(all * to_msun, 2.0, 1e-6, 0.0, "the wide map holds the core");
+    assert!(
+        (held - inside).abs() <= b1 + b2 + 1e-12 * all,
+        "map total {held} vs the wide map's part inside the window {inside}"
+    );
+    // Something did fall off (about Phi(-3.2 / 2.15) = 7%), so the check above means something.
+    let lost = 1.0 - held / all;
+    eprintln!("fraction beyond the edge {lost:.4}");
+    assert!(lost > 0.02 && lost < 0.15, "lost fraction {lost}");
+    assert!(b3 < 1e-6 * all);
+    // The truth records the core's whole mass, and its peak as the map shows it.
+    assert_eq!(near.truth[0].mass_msun, 2.0);
+    let max = near.data.iter().cloned().fold(f32::MIN, f32::max) as f64;
+    assert_close(max, near.truth[0].peak, 1e-6, 0.0, "peak near the edge");
+}
+
 #[test]
 fn truth_peak_matches_the_map_for_an_isolated_core() {
     let spec = SynthSpec {
