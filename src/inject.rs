@@ -140,13 +140,7 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
     let sigma_beam_px = fwhm_major_px / (8.0 * std::f64::consts::LN_2).sqrt();
     let reach_px = |radius_pc: f64, profile: synth::Profile| -> f64 {
         let r_px = radius_pc / opts.distance_pc / ARCSEC / pix_arcsec;
-        let reach = match profile {
-            synth::Profile::Gaussian => {
-                4.0 * (r_px / (2.0 * std::f64::consts::LN_2).sqrt()).hypot(sigma_beam_px)
-            }
-            synth::Profile::BonnorEbert { .. } => r_px + 4.0 * sigma_beam_px,
-        };
-        reach.max(1.0)
+        synth::reach_px(r_px, profile, sigma_beam_px)
     };
     let margin = MIN_MARGIN_PX
         .max(2.0 * fwhm_major_px)
