@@ -295,29 +295,15 @@ struct SynthArgs {
         allow_hyphen_values = true
     )]
     wavelength: Option<String>,
-    /// With --into: dust opacity per gram of gas at --opacity-frequency [default: 0.1cm2/g].
-    #[arg(
-        long,
-        value_name = "OPACITY",
-        requires = "into",
-        allow_hyphen_values = true
-    )]
+    /// Dust opacity per gram of gas at --opacity-frequency, for --emission or an emission map
+    /// given --into [default: 0.1cm2/g].
+    #[arg(long, value_name = "OPACITY", allow_hyphen_values = true)]
     opacity: Option<String>,
-    /// With --into: reference frequency of --opacity [default: 1THz].
-    #[arg(
-        long,
-        value_name = "FREQ",
-        requires = "into",
-        allow_hyphen_values = true
-    )]
+    /// Reference frequency of --opacity, for --emission or --into [default: 1THz].
+    #[arg(long, value_name = "FREQ", allow_hyphen_values = true)]
     opacity_frequency: Option<String>,
-    /// With --into: dust emissivity index beta [default: 2].
-    #[arg(
-        long,
-        value_name = "BETA",
-        requires = "into",
-        allow_hyphen_values = true
-    )]
+    /// Dust emissivity index beta, for --emission or --into [default: 2].
+    #[arg(long, value_name = "BETA", allow_hyphen_values = true)]
     beta: Option<f64>,
     /// With --into: N(H2) per magnitude of A_V [default: 9.4e20cm-2].
     #[arg(
@@ -518,44 +504,12 @@ impl PhysicsArgs {
             }
             c.temperature_k = Some(Field::Map(t));
         }
-        if let Some(k) = &self.opacity {
-            c.opacity.kappa0_cm2_per_g = positive(
-                // Back to cm2/g, rounded to 12 significant digits so that the text given comes
-                // back unchanged (0.05cm2/g, not 0.05000000000000001).
-                format!(
-                    "{:.11e}",
-                    q(k, &[Dimension::Opacity], "--opacity")?.si * 10.0
-                )
-                .parse::<f64>()
-                .unwrap_or(f64::NAN),
-                &format!("--opacity {k}"),
-            )?;
-        }
-        if let Some(f) = &self.opacity_frequency {
-            let v = q(
-                f,
-                &[Dimension::Frequency, Dimension::Length],
-                "--opacity-frequency",
-            )?;
-            c.opacity.nu0_hz = positive(
-                if v.dim == Dimension::Length {
-                    units::C_LIGHT / v.si
-                } else {
-                    v.si
-                },
-                &format!("--opacity-frequency {f}"),
-            )?;
-        }
-        if let Some(b) = self.beta {
-            // Measured indices of interstellar dust lie near 1 to 2.5 (common practice); 0 to
-            // 5 leaves room for any model and keeps the opacity law finite.
-            if !(0.0..=5.0).contains(&b) {
-                return Err(Error::usage(format!(
-                    "--beta {b} is outside 0 to 5; give the dust emissivity index, such as 1.8."
-                )));
-            }
-            c.opacity.beta = b;
-        }
+        c.opacity = dust_opacity(
+            self.opacity.as_deref(),
+            self.opacity_frequency.as_deref(),
+            self.beta,
+            c.opacity,
+        )?;
         if let Some(m) = self.mu_h2 {
             c.mu_h2 = positive(m, &format!("--mu-h2 {m}"))?;
         }
@@ -980,6 +934,69 @@ fn run_inspect(args: &InspectArgs) -> Result<()> {
     Ok(())
 }
 
+/// The dust opacity law of `--opacity`, `--opacity-frequency` and `--beta`, each given one
+/// replacing that part of `base`; shared by segment, inspect and synth (with `--emission` or
+/// `--into`).
+fn dust_opacity(
+    opacity: Option<&str>,
+    opacity_frequency: Option<&str>,
+    beta: Option<f64>,
+    base: cairn::physics::DustOpacity,
+) -> Result<cairn::physics::DustOpacity> {
+    let q = |text: &str, dims: &[Dimension], what: &str| {
+        units::parse_quantity(text, dims, what).map_err(Error::usage)
+    };
+    let positive = |v: f64, what: &str| -> Result<f64> {
+        if v > 0.0 && v.is_finite() {
+            Ok(v)
+        } else {
+            Err(Error::usage(format!(
+                "{what} must be positive and finite; give a positive value."
+            )))
+        }
+    };
+    let mut o = base;
+    if let Some(k) = opacity {
+        o.kappa0_cm2_per_g = positive(
+            // Back to cm2/g, rounded to 12 significant digits so that the text given comes
+            // back unchanged (0.05cm2/g, not 0.05000000000000001).
+            format!(
+                "{:.11e}",
+                q(k, &[Dimension::Opacity], "--opacity")?.si * 10.0
+            )
+            .parse::<f64>()
+            .unwrap_or(f64::NAN),
+            &format!("--opacity {k}"),
+        )?;
+    }
+    if let Some(f) = opacity_frequency {
+        let v = q(
+            f,
+            &[Dimension::Frequency, Dimension::Length],
+            "--opacity-frequency",
+        )?;
+        o.nu0_hz = positive(
+            if v.dim == Dimension::Length {
+                units::C_LIGHT / v.si
+            } else {
+                v.si
+            },
+            &format!("--opacity-frequency {f}"),
+        )?;
+    }
+    if let Some(b) = beta {
+        // Measured indices of interstellar dust lie near 1 to 2.5 (common practice); 0 to
+        // 5 leaves room for any model and keeps the opacity law finite.
+        if !(0.0..=5.0).contains(&b) {
+            return Err(Error::usage(format!(
+                "--beta {b} is outside 0 to 5; give the dust emissivity index, such as 1.8."
+            )));
+        }
+        o.beta = b;
+    }
+    Ok(o)
+}
+
 fn pair(text: &str, dim: Dimension, what: &str) -> Result<(f64, f64)> {
     let parts: Vec<&str> = text.split(',').collect();
     if parts.len() != 2 {
@@ -1000,7 +1017,7 @@ fn pair(text: &str, dim: Dimension, what: &str) -> Result<(f64, f64)> {
     Ok((a, b))
 }
 
-fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
+fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec> {
     let q = |text: &str, dims: &[Dimension], what: &str| {
         units::parse_quantity(text, dims, what).map_err(Error::usage)
     };
@@ -1110,8 +1127,20 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
             radius_min_pc: r0 / units::PARSEC,
             radius_max_pc: r1 / units::PARSEC,
             profile,
-            margin_px: 10.0,
+            margin_px: synth::MIN_MARGIN_PX,
         });
+        // Random cores keep the widest one's reach from the edges, so that the beam carries
+        // none of their light off the map (as far as the map leaves room).
+        let (margin, reach) = synth::default_margin_px(&spec, r1 / units::PARSEC, profile);
+        if margin < reach {
+            notes.push(format!(
+                "a map of {} x {} pixels is too small to keep the random cores {reach} pixels (the widest core's reach with the beam) from its edges; they keep {margin}, so the beam may carry a little of the light of those near an edge off the map (give a larger --size or a smaller --core-radius to avoid it)",
+                spec.nx, spec.ny
+            ));
+        }
+        if let Some(p) = spec.population.as_mut() {
+            p.margin_px = margin;
+        }
     }
     if let Some(w) = &a.emission {
         let wl = q(w, &[Dimension::Length], "--emission")?.si;
@@ -1134,6 +1163,29 @@ fn synth_spec(a: &SynthArgs) -> Result<synth::SynthSpec> {
             unit,
             opacity: cairn::physics::DustOpacity::default(),
         };
+    }
+    let opacity_given = [
+        (a.opacity.is_some(), "--opacity"),
+        (a.opacity_frequency.is_some(), "--opacity-frequency"),
+        (a.beta.is_some(), "--beta"),
+    ]
+    .into_iter()
+    .find(|(given, _)| *given);
+    match (&mut spec.output, opacity_given) {
+        (synth::Output::DustEmission { opacity, .. }, Some(_)) => {
+            *opacity = dust_opacity(
+                a.opacity.as_deref(),
+                a.opacity_frequency.as_deref(),
+                a.beta,
+                *opacity,
+            )?;
+        }
+        (synth::Output::ColumnDensity, Some((_, option))) => {
+            return Err(Error::usage(format!(
+                "{option} sets the dust opacity of an emission map, but this map is of column density: give --emission (such as --emission 850um) with it, or leave it out."
+            )));
+        }
+        (_, None) => {}
     }
     if let Some(n) = &a.noise {
         let unit = match &spec.output {
@@ -1164,10 +1216,14 @@ fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {
     if let Some(m) = &a.into {
         return run_inject(a, m, quiet);
     }
-    let spec = synth_spec(a)?;
+    let mut notes = Vec::new();
+    let spec = synth_spec(a, &mut notes)?;
     // Everything about the specification is checked before the output folder is made.
     synth::check(&spec)
         .map_err(|e| Error::usage(format!("cannot make this synthetic map: {}.", e.0)))?;
+    for n in &notes {
+        errln!("warning: {n}.");
+    }
     let names = [
         format!("{}.fits", a.name),
         format!("{}-truth.csv", a.name),

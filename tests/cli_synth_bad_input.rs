@@ -231,3 +231,20 @@ fn emission_settings_out_of_range_are_named() {
         "outside 2.7K to 2000.0K",
     );
 }
+
+#[test]
+fn dust_opacity_options_without_an_emission_map_are_refused() {
+    for extra in [
+        &["--beta", "1.8"][..],
+        &["--opacity", "0.2cm2/g"][..],
+        &["--opacity-frequency", "500um", "--cores", "2"][..],
+    ] {
+        assert_refused(extra, extra[0], "give --emission");
+    }
+    // A value out of range is refused as segment refuses it.
+    assert_refused(
+        &["--emission", "850um", "--beta", "7"],
+        "--beta 7",
+        "outside 0 to 5",
+    );
+}

@@ -3,6 +3,8 @@
 //! is deterministic, and the background has the requested power spectrum (measured by
 //! `tests/oracle/synth_powerspec.py`, numpy 2.4.6) and WCS (astropy 8.0.2).
 
+#[path = "common/cli.rs"]
+mod cli;
 mod common;
 
 use cairn::physics::constants::{ARCSEC, C, M_H, M_SUN, PC};
@@ -340,6 +342,89 @@ fn dust_emission_map_gives_back_the_mass_through_dust_mass() {
         0.0,
         "mass from dust emission",
     );
+}
+
+/// `cairn synth --emission` with the dust opacity options: each pixel is the column density
+/// the same command makes without `--emission` times mu_H2 m_H kappa(nu) B_nu(T), with
+/// kappa(nu) = kappa0 (nu / nu0)^beta (Beckwith et al. 1990's power law) and the Planck law
+/// B_nu = 2 h nu^3 / c^2 / (exp(h nu / k T) - 1), written out here from the textbook formulas
+/// (the constants are cairn's, checked against astropy 8.0.2 in tests/physics_reference.rs).
+#[test]
+fn synth_emission_takes_the_dust_opacity_options() {
+    use cairn::physics::constants::{H, JY, K_B};
+    let dir = tempfile::tempdir().unwrap();
+    let common = [
+        "--size",
+        "96x80",
+        "--cores",
+        "3",
+        "--core-radius",
+        "0.02pc,0.04pc",
+        "--seed",
+        "11",
+        "--distance",
+        "300pc",
+        "-q",
+    ];
+    let run = |extra: &[&str]| {
+        let mut args = vec!["synth"];
+        args.extend_from_slice(extra);
+        args.extend_from_slice(&common);
+        let o = cli::cairn(&args, dir.path());
+        assert_eq!(o.code, 0, "{args:?}: {}", o.stderr);
+    };
+    run(&["-o", "col"]);
+    run(&[
+        "-o",
+        "em",
+        "--emission",
+        "850um",
+        "--temperature",
+        "14K",
+        "--opacity",
+        "0.2cm2/g",
+        "--opacity-frequency",
+        "500um",
+        "--beta",
+        "1.8",
+    ]);
+    // The specification records the law as given.
+    let spec: SynthSpec = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("em/synth-spec.json")).unwrap(),
+    )
+    .unwrap();
+    let Output::DustEmission { opacity, .. } = spec.output else {
+        panic!("not an emission map: {:?}", spec.output);
+    };
+    assert_eq!(opacity.kappa0_cm2_per_g, 0.2);
+    assert_eq!(opacity.beta, 1.8);
+    assert_close(opacity.nu0_hz, C / 500e-6, 1e-15, 0.0, "nu0 [Hz]");
+    let load = |p: &str| {
+        cairn::map::load(&dir.path().join(p), &cairn::map::LoadOptions::default())
+            .unwrap()
+            .data
+    };
+    let (col, em) = (load("col/synth.fits"), load("em/synth.fits"));
+    let nu = C / 850e-6;
+    // 0.2 cm2/g = 0.02 m2/kg at 500 um.
+    let kappa = 0.02 * (nu / (C / 500e-6)).powf(1.8);
+    let b_nu = 2.0 * H * nu.powi(3) / (C * C) / ((H * nu / (K_B * 14.0)).exp_m1());
+    // cm-2 -> m-2, then W m-2 Hz-1 sr-1 -> MJy/sr.
+    let per_column = 1e4 * MU_H2 * M_H * kappa * b_nu / (1e6 * JY);
+    let mut checked = 0;
+    for (c, e) in col.iter().zip(em.iter()) {
+        let want = *c as f64 * per_column;
+        // Both maps are f32: half an ulp each (2^-24 relative).
+        assert_close(
+            *e as f64,
+            want,
+            2.0 * 2f64.powi(-23),
+            0.0,
+            "MJy/sr per pixel",
+        );
+        checked += 1;
+    }
+    assert_eq!(checked, 96 * 80);
 }
 
 #[test]
