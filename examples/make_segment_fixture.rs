@@ -14,7 +14,7 @@
 
 use std::path::Path;
 
-use cairn::synth::{Background, CorePopulation, Output, Profile, SynthSpec};
+use cairn::synth::{Background, CorePopulation, CoreSpec, Output, Profile, SynthSpec};
 
 #[path = "../tests/common/segment_fixture.rs"]
 mod segment_fixture;
@@ -34,6 +34,15 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             sigma_ln: 0.3,
             spectral_index: 3.2,
         }),
+        // A faint core smaller than the beam, on a quiet part of the background, so that the
+        // catalogue holds a leaf whose footprint is under 1.39 beam areas (`unresolved`).
+        cores: vec![CoreSpec {
+            x: 108.0,
+            y: 60.0,
+            mass_msun: 0.025,
+            radius_pc: 0.003,
+            profile: Profile::Gaussian,
+        }],
         population: Some(CorePopulation {
             count: 14,
             mass_min_msun: 1.0,

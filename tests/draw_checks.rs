@@ -170,7 +170,7 @@ fn segment_figures_are_well_formed_and_redrawn_identically() {
     let small = dir.path().join("small");
     let o3 = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
         .args(["draw", out.to_str().unwrap(), "-o", small.to_str().unwrap()])
-        .args(["--width", "320", "--dpi", "100", "-q"])
+        .args(["--width", "320", "--dpi", "120", "-q"])
         .output()
         .unwrap();
     assert!(o3.status.success());
