@@ -131,6 +131,25 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
     let col = |name: &str| header.iter().position(|h| h == name);
     let (Some(kind), Some(mass), Some(radius)) = (col("kind"), col(mass_column), col("radius_pc"))
     else {
+        // A run of a map in a unit without conversion has no masses, whatever its options.
+        let run: Option<serde_json::Value> = std::fs::read_to_string(&run_path)
+            .ok()
+            .and_then(|t| serde_json::from_str(&t).ok());
+        let map_record = run.as_ref().map(|r| &r["map"]);
+        if let Some(m) = map_record
+            .filter(|m| m["unit_kind"].as_str() == Some(crate::units::PixelUnit::Other.kind_name()))
+        {
+            let unit = match m["unit"].as_str().unwrap_or("") {
+                "" => "no unit".to_string(),
+                u => format!("the unit {u}"),
+            };
+            return Err(Error::input(
+                &csv,
+                format!(
+                    "has no masses: its map is in {unit}, which cairn does not convert to column density; compare runs of maps of dust emission, column density or extinction made with --distance."
+                ),
+            ));
+        }
         return Err(Error::input(
             &csv,
             format!(

@@ -115,7 +115,11 @@ fn unit_label(map: &Map) -> String {
         Some(PixelUnit::Extinction {
             band: units::ExtinctionBand::K,
         }) => "A_K [mag]".into(),
-        _ => map.unit_text.clone(),
+        Some(PixelUnit::SurfaceBrightness { .. })
+        | Some(PixelUnit::FluxPerBeam { .. })
+        | Some(PixelUnit::FluxPerPixel { .. })
+        | Some(PixelUnit::Other)
+        | None => map.unit_text.clone(),
     }
 }
 
@@ -329,10 +333,14 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         opts.hdu = map::HduChoice::Index(h as usize);
     }
     opts.plane = run["input"]["plane"].as_u64().map(|p| p as usize);
-    if let Some(u) = run["map"]["unit"].as_str()
-        && !u.is_empty()
-    {
-        opts.unit = Some(u.to_string());
+    // The unit as the run read it; a unit without conversion is named as such, as `--unit`
+    // takes it (the header's own unit is then no question).
+    if let Some(u) = run["map"]["unit"].as_str() {
+        if run["map"]["unit_kind"].as_str() == Some(PixelUnit::Other.kind_name()) {
+            opts.unit = Some(format!("other:{u}"));
+        } else if !u.is_empty() {
+            opts.unit = Some(u.to_string());
+        }
     }
     // A run on the map smoothed to a common resolution: the file's own beam, then the same
     // smoothing again below.

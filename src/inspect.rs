@@ -328,10 +328,18 @@ fn aux_factor(
                 | P::SurfaceBrightness { to_si }
                 | P::FluxPerBeam { to_si }
                 | P::FluxPerPixel { to_si } => to_si,
-                P::Extinction { .. } => 1.0,
+                P::Extinction { .. } | P::Other => 1.0,
             };
             let theirs = format!("the map's unit ({})", map.unit_text.trim());
             match (&map.unit, &aux.unit) {
+                // cairn cannot convert between units it does not know: only the same one.
+                (Some(P::Other), _) | (_, Some(P::Other)) => {
+                    if bunit.eq_ignore_ascii_case(map.unit_text.trim()) {
+                        Ok(1.0)
+                    } else {
+                        Err(theirs)
+                    }
+                }
                 (Some(a), Some(b)) if std::mem::discriminant(a) == std::mem::discriminant(b) => {
                     Ok(si(b) / si(a))
                 }
@@ -444,6 +452,15 @@ pub fn load_aux_map(
 /// The conversion factors of `ctx` for `map`.
 pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
     use crate::physics::constants::{M_H, M_SUN, PC};
+    // A map in a unit without conversion takes none of the assumptions: only the reason.
+    if let Some(units::PixelUnit::Other) = map.unit {
+        return ConversionSummary {
+            column_per_unit_cm2: None,
+            mass_per_unit_pixel_msun: None,
+            assumptions: Vec::new(),
+            why_none: crate::score::conversion_blocker(map, ctx),
+        };
+    }
     let mut assumptions = Vec::new();
     // A value is credited to its source only when it is the default; a value the user gave
     // is marked as given.

@@ -144,7 +144,9 @@ pub struct LoadOptions {
     pub beam: Option<Beam>,
     /// A wavelength or frequency to use instead of the header's.
     pub wavelength: Option<Quantity>,
-    /// Whether a missing or unknown unit is an error (`true` for every command that measures).
+    /// Whether a BUNIT that is not text (a broken header) is an error (`true` for every
+    /// command that measures); a missing BUNIT, or one cairn does not convert, reads as
+    /// [`PixelUnit::Other`] with a warning either way.
     pub require_unit: bool,
 }
 
@@ -191,7 +193,8 @@ pub struct Map {
     pub data: Array2<f32>,
     /// The HDU's header.
     pub header: Header,
-    /// What the pixels measure (`None` only when loaded with `require_unit = false`).
+    /// What the pixels measure (`None` only for a BUNIT that is not text, when loaded with
+    /// `require_unit = false`).
     pub unit: Option<PixelUnit>,
     /// The unit text as read or given.
     pub unit_text: String,
@@ -519,48 +522,54 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     let hdu_name = header.get_str("EXTNAME").map(str::to_string);
 
     // Units.
-    let (unit_text, unit_source) = match &opts.unit {
-        Some(u) => (u.clone(), Source::Option),
-        None => (
-            header.get_str("BUNIT").unwrap_or("").to_string(),
-            Source::Header,
-        ),
-    };
-    let unit = units::parse_pixel_unit(&unit_text, opts.band);
-    if unit.is_some() && matches!(unit_source, Source::Header) {
-        warnings.extend(units::prefix_case_note(&unit_text));
-    }
-    if unit.is_none() && matches!(unit_source, Source::Option) {
-        return Err(Error::usage(format!(
-            "--unit '{}' is not understood; give one of cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel.",
-            unit_text.trim()
-        )));
-    }
-    if unit.is_none() && opts.require_unit {
-        let bunit = header.get("BUNIT");
-        let why = if unit_text.trim().is_empty() {
-            match (unit_source, bunit) {
-                (Source::Header, None) => {
-                    "has no BUNIT keyword, so cairn cannot tell what its pixels measure".to_string()
-                }
-                (Source::Header, Some(crate::header::Value::Str(_))) => {
-                    "has an empty BUNIT, so cairn cannot tell what its pixels measure".to_string()
-                }
-                (Source::Header, Some(v)) => format!(
-                    "has BUNIT = {v}, which is not a unit's name (BUNIT is text, such as 'MJy/sr')"
-                ),
-                (Source::Option, _) => "was given an empty --unit".to_string(),
+    let (unit, unit_text, unit_source) = match &opts.unit {
+        Some(u) => {
+            let (unit, text) = units::parse_unit_option(u, opts.band).ok_or_else(|| {
+                Error::usage(format!(
+                    "--unit '{}' is not understood: give one of {}, or other:UNIT (such as other:K km/s) for a unit cairn does not convert, to measure the map's structure without masses, or none for values without a unit.",
+                    u.trim(),
+                    units::CONVERTED_UNITS
+                ))
+            })?;
+            (Some(unit), text, Source::Option)
+        }
+        None => {
+            let text = header.get_str("BUNIT").unwrap_or("").trim().to_string();
+            let unit = units::parse_pixel_unit(&text, opts.band);
+            if unit.is_some() {
+                warnings.extend(units::prefix_case_note(&text));
             }
-        } else {
-            format!("has BUNIT '{}', which cairn does not understand", unit_text)
-        };
-        return Err(Error::input(
-            path,
-            format!(
-                "{why}; give --unit with one of cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel."
-            ),
-        ));
-    }
+            match (unit, header.get("BUNIT")) {
+                (Some(u), _) => (Some(u), text, Source::Header),
+                // A BUNIT that is not text is a broken header, not a unit.
+                (None, Some(v)) if !matches!(v, crate::header::Value::Str(_)) => {
+                    if opts.require_unit {
+                        return Err(Error::input(
+                            path,
+                            format!(
+                                "has BUNIT = {v}, which is not a unit's name (BUNIT is text, such as 'MJy/sr'); give --unit with one of {}, or other:UNIT or none to measure the map's structure without masses.",
+                                units::CONVERTED_UNITS
+                            ),
+                        ));
+                    }
+                    (None, String::new(), Source::Header)
+                }
+                // Any other unit, or none: the structure is measured in the map's own unit.
+                (None, _) => {
+                    let read = if text.is_empty() {
+                        "the map has no BUNIT, so its values are taken without a unit".to_string()
+                    } else {
+                        format!("BUNIT '{text}' is a unit cairn does not convert to column density")
+                    };
+                    warnings.push(format!(
+                        "{read}: only the structure is measured (hierarchy, positions, sizes, and sums and means in the map's unit), as masses and the physics need a map of dust emission, column density or extinction; if the header's unit is wrong, give --unit with one of {}.",
+                        units::CONVERTED_UNITS
+                    ));
+                    (Some(PixelUnit::Other), text, Source::Header)
+                }
+            }
+        }
+    };
 
     // Sky coordinates.
     // A WCS keyword given twice: WCSLIB (and so astropy.wcs and most viewers) reads the last

@@ -222,6 +222,21 @@ fn check_map_holds_target(
 /// The map smoothed (and regridded) to a circular beam of `resolution_m` at `distance_m`.
 pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Result<Map> {
     let path = &map.path;
+    // A unit cairn does not convert is smoothed and averaged as a brightness (K, K km/s),
+    // which is wrong for one per beam or per pixel: their values change with the beam or the
+    // pixel in a way cairn cannot know from the unit's text.
+    if let Some(PixelUnit::Other) = map.unit {
+        let lower = map.unit_text.to_ascii_lowercase();
+        if lower.contains("beam") || lower.contains("pix") {
+            return Err(Error::input(
+                path,
+                format!(
+                    "is in {}, a unit per beam or per pixel that cairn does not convert, so it cannot be rescaled to a new beam; bring it to the common resolution elsewhere, or leave out --common-resolution.",
+                    map.unit_text
+                ),
+            ));
+        }
+    }
     let w = map.wcs.as_ref().ok_or_else(|| {
         Error::input(
             path,

@@ -175,6 +175,16 @@ impl Default for Context {
 /// Why a map cannot be converted to column density.
 pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
     let unit = map.unit?;
+    if let PixelUnit::Other = unit {
+        return Some(format!(
+            "{} has no conversion to column density: masses and the physics need a map of dust emission, column density or extinction (give --unit if the map's unit is wrong)",
+            if map.unit_text.is_empty() {
+                "a map without a unit".to_string()
+            } else {
+                format!("the unit '{}'", map.unit_text)
+            }
+        ));
+    }
     if !unit.is_emission() {
         return None;
     }
@@ -251,6 +261,10 @@ impl<'a> Converter<'a> {
                 to_si / map.beam.map(|b| b.solid_angle_sr()).unwrap_or(f64::NAN)
             }
             PixelUnit::FluxPerPixel { to_si } => to_si,
+            // Already refused by `conversion_blocker`, with the reason.
+            PixelUnit::Other => {
+                return Err("the map's unit has no conversion to column density".into());
+            }
         };
         Ok(Converter {
             map,

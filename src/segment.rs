@@ -78,7 +78,7 @@ fn example_value(map: &Map) -> &'static str {
         Some(units::PixelUnit::SurfaceBrightness { .. }) => "20MJy/sr",
         Some(units::PixelUnit::FluxPerBeam { .. }) => "0.05Jy/beam",
         Some(units::PixelUnit::FluxPerPixel { .. }) => "0.01Jy/pixel",
-        None => "2.5",
+        Some(units::PixelUnit::Other) | None => "2.5",
     }
 }
 

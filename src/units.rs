@@ -375,6 +375,11 @@ pub enum PixelUnit {
     FluxPerBeam { to_si: f64 },
     /// Flux density per pixel; `to_si` converts to W m^-2 Hz^-1 (per pixel).
     FluxPerPixel { to_si: f64 },
+    /// A unit cairn does not convert to column density (a line-integrated intensity such as
+    /// `K km/s`, a brightness temperature `K`, a signal-to-noise ratio, or no unit at all):
+    /// the map is segmented for its structure only, with levels, sums and means in its own
+    /// unit (the map's `unit_text`) and no column densities, masses or physics.
+    Other,
 }
 
 impl PixelUnit {
@@ -391,6 +396,7 @@ impl PixelUnit {
             PixelUnit::SurfaceBrightness { .. } => "surface brightness",
             PixelUnit::FluxPerBeam { .. } => "flux density per beam",
             PixelUnit::FluxPerPixel { .. } => "flux density per pixel",
+            PixelUnit::Other => "no conversion to column density",
         }
     }
 
@@ -457,6 +463,30 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
         "/pixel" | "/pix" | "/px" => Some(PixelUnit::FluxPerPixel { to_si: si }),
         _ => None,
     }
+}
+
+/// The units `--unit` names cairn converts to column density, for messages.
+pub const CONVERTED_UNITS: &str = "cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel";
+
+/// Reads a `--unit` value: a unit cairn converts (spelt as in BUNIT); `other:TEXT` for a map in
+/// a unit cairn does not convert, such as `other:K km/s`, whose structure alone is measured,
+/// with TEXT as its unit; or `none` (the same as `other:`) for values without a unit. Returns
+/// what the pixels measure and the unit's text for the outputs, or `None` for a value that
+/// is none of these (a typing error in a unit cairn converts must not pass silently as a
+/// unit without masses).
+pub fn parse_unit_option(text: &str, band: ExtinctionBand) -> Option<(PixelUnit, String)> {
+    let t = text.trim();
+    if t.eq_ignore_ascii_case("none") {
+        return Some((PixelUnit::Other, String::new()));
+    }
+    if let Some(rest) = t
+        .get(..6)
+        .filter(|p| p.eq_ignore_ascii_case("other:"))
+        .map(|_| &t[6..])
+    {
+        return Some((PixelUnit::Other, rest.trim().to_string()));
+    }
+    parse_pixel_unit(t, band).map(|u| (u, t.to_string()))
 }
 
 /// Splits "MJy/sr" into (1e6, "/sr"); `None` if the string has no jansky in it.
@@ -723,6 +753,42 @@ mod tests {
             assert_eq!(parse_pixel_unit(s, v), None, "{s}");
         }
     }
+
+    #[test]
+    fn unit_option_names_units_without_conversion_explicitly() {
+        let v = ExtinctionBand::V;
+        // A unit cairn converts keeps its text; `other:` and `none` give a map measured for
+        // its structure only, in the text after the prefix (or no unit).
+        assert_eq!(
+            parse_unit_option(" MJy/sr ", v),
+            Some((
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e6 * JANSKY
+                },
+                "MJy/sr".into()
+            ))
+        );
+        assert_eq!(
+            parse_unit_option("other:K km/s", v),
+            Some((PixelUnit::Other, "K km/s".into()))
+        );
+        assert_eq!(
+            parse_unit_option("OTHER: K.km.s-1", v),
+            Some((PixelUnit::Other, "K.km.s-1".into()))
+        );
+        assert_eq!(
+            parse_unit_option("none", v),
+            Some((PixelUnit::Other, String::new()))
+        );
+        assert_eq!(
+            parse_unit_option("other:", v),
+            Some((PixelUnit::Other, String::new()))
+        );
+        // A bare unit cairn does not convert, or a misspelt one, is no choice of either kind.
+        for s in ["K", "K km/s", "MJy/str", ""] {
+            assert_eq!(parse_unit_option(s, v), None, "{s}");
+        }
+    }
 }
 
 /// Parses a value in the units of a map's pixels: a plain number is taken in the map's own
@@ -736,7 +802,8 @@ pub fn parse_map_value(text: &str, unit: Option<PixelUnit>, what: &str) -> Resul
         }
         Some(PixelUnit::FluxPerBeam { .. }) => &[Dimension::Pure, Dimension::FluxPerBeam],
         Some(PixelUnit::FluxPerPixel { .. }) => &[Dimension::Pure, Dimension::FluxPerPixel],
-        None => &[Dimension::Pure],
+        // cairn knows no other unit of such a map, so only plain numbers are in its unit.
+        Some(PixelUnit::Other) | None => &[Dimension::Pure],
     };
     let q = parse_quantity(text, dims, what)?;
     let to_si = match unit {
@@ -744,7 +811,7 @@ pub fn parse_map_value(text: &str, unit: Option<PixelUnit>, what: &str) -> Resul
         | Some(PixelUnit::SurfaceBrightness { to_si })
         | Some(PixelUnit::FluxPerBeam { to_si })
         | Some(PixelUnit::FluxPerPixel { to_si }) => to_si,
-        _ => 1.0,
+        Some(PixelUnit::Extinction { .. }) | Some(PixelUnit::Other) | None => 1.0,
     };
     Ok(if q.dim == Dimension::Pure {
         q.si

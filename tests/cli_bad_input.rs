@@ -232,8 +232,13 @@ fn unknown_projection_code() {
     );
 }
 
+/// A map whose BUNIT cairn does not convert to column density, or without BUNIT, was refused
+/// with a request for --unit until cairn learnt to segment such maps for their structure alone
+/// (line-integrated intensities in K km/s, signal-to-noise maps): now it is segmented, with
+/// one warning that names the unit read and says how to give --unit when the header is wrong,
+/// and no masses. A --unit cairn does not know is still the option's fault.
 #[test]
-fn unparseable_or_missing_bunit_suggests_unit() {
+fn unknown_or_missing_bunit_is_segmented_for_structure_only() {
     let s = Scratch::new();
     s.write(
         "odd_unit.fits",
@@ -242,27 +247,50 @@ fn unparseable_or_missing_bunit_suggests_unit() {
             &good_pixels(256),
         ),
     );
-    assert_refused(
-        &s,
-        &["segment", "odd_unit.fits", "-o", "run"],
-        "odd_unit.fits",
-        "--unit",
-    );
     s.write(
         "no_unit.fits",
         &fits_bytes(&image_cards(16, 16, &[]), &good_pixels(256)),
     );
-    assert_refused(
-        &s,
-        &["segment", "no_unit.fits", "-o", "run"],
-        "no_unit.fits",
-        "no BUNIT",
-    );
-    // inspect still describes such a map, and says why it gives no conversion.
+    // good_pixels holds 0 to 10 in steps of 0.1: a floor in map units.
+    for (f, read) in [
+        (
+            "odd_unit.fits",
+            "BUNIT 'furlongs' is a unit cairn does not convert",
+        ),
+        ("no_unit.fits", "the map has no BUNIT"),
+    ] {
+        let o = cairn(
+            &[
+                "segment",
+                f,
+                "-o",
+                &format!("run-{f}"),
+                "--floor",
+                "5",
+                "-q",
+            ],
+            s.dir.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        assert!(o.stderr.contains(read), "{}", o.stderr);
+        assert!(o.stderr.contains("give --unit"), "{}", o.stderr);
+        assert!(o.stdout.contains("no masses:"), "{}", o.stdout);
+        assert!(
+            s.dir
+                .path()
+                .join(format!("run-{f}/structures.csv"))
+                .is_file()
+        );
+    }
+    // inspect describes such a map, and says why it gives no conversion.
     for f in ["odd_unit.fits", "no_unit.fits"] {
         let o = cairn(&["inspect", f], s.dir.path());
         assert_eq!(o.code, 0, "{}", o.stderr);
-        assert!(o.stdout.contains("not understood"), "{}", o.stdout);
+        assert!(
+            o.stdout.contains("no conversion to column density"),
+            "{}",
+            o.stdout
+        );
         assert!(o.stdout.contains("give --unit"), "{}", o.stdout);
     }
     // A unit given on the command line that cairn does not know is the option's fault.

@@ -1,0 +1,372 @@
+//! Maps in a unit cairn does not convert to column density (a line-integrated intensity in
+//! K km/s, a map without a unit): segmented for their structure only.
+//!
+//! Self-consistency checks: the hierarchy and the measurements in map units do not depend on
+//! the unit's name, so a map written with BUNIT 'K km/s' must give, with the same thresholds
+//! in map units, the very catalogue rows (ids, parents, positions, areas, sums) of the same
+//! pixels written with BUNIT 'cm-2'; only the column-density, mass and physics columns, which
+//! need a conversion cairn does not know for K km/s, are left out. The test maps are invented
+//! by `cairn synth`.
+
+#[path = "common/cli.rs"]
+mod cli;
+
+use cli::{Outcome, cairn, check_refused};
+use std::collections::BTreeMap;
+use std::path::Path;
+
+/// The columns of a catalogue CSV by name, as text.
+fn catalogue_columns(path: &Path) -> BTreeMap<String, Vec<String>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let names: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    let mut cols: BTreeMap<String, Vec<String>> =
+        names.iter().map(|n| (n.clone(), Vec::new())).collect();
+    for l in lines {
+        for (n, v) in names.iter().zip(l.split(',')) {
+            cols.get_mut(n).unwrap().push(v.to_string());
+        }
+    }
+    cols
+}
+
+/// An invented column-density map (`cairn synth`, cores on a turbulent background) in
+/// `dir/s/synth.fits`, and the same pixels and header with BUNIT 'K km/s' in
+/// `dir/kkms.fits`, written with cairn's own FITS writer.
+fn maps(dir: &Path) {
+    let o = cairn(
+        &[
+            "synth", "-o", "s", "--size", "96", "--cores", "6", "--seed", "11", "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let base = cairn::map::load(
+        &dir.join("s/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(base.unit_text, "cm-2");
+    let mut h = base.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("K km/s".into()), "");
+    cairn::fits_write::write_image_f32(&dir.join("kkms.fits"), base.data.view(), &h, false)
+        .unwrap();
+}
+
+/// The same thresholds in map units for both maps: the noise-free part of the test does not
+/// depend on a noise estimate. The distance and temperature would give the cm-2 map masses
+/// and states.
+const THRESHOLDS: [&str; 10] = [
+    "--floor",
+    "4e21",
+    "--prominence",
+    "5e20",
+    "--min-area",
+    "9px",
+    "--distance",
+    "250pc",
+    "--temperature",
+    "15K",
+];
+
+fn segment(dir: &Path, map: &str, out: &str, extra: &[&str]) -> Outcome {
+    let mut args = vec!["segment", map, "-o", out, "--no-figure"];
+    args.extend_from_slice(&THRESHOLDS);
+    args.extend_from_slice(extra);
+    cairn(&args, dir)
+}
+
+#[test]
+fn a_k_km_s_map_gives_the_structure_of_the_same_pixels_in_cm2() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let col = segment(dir, "s/synth.fits", "col", &[]);
+    assert_eq!(col.code, 0, "{}", col.stderr);
+    let kel = segment(dir, "kkms.fits", "kel", &[]);
+    assert_eq!(kel.code, 0, "{}", kel.stderr);
+
+    // One warning: the unit read, what masses need, how to correct a wrong header.
+    let warnings: Vec<&str> = kel
+        .stderr
+        .lines()
+        .filter(|l| l.starts_with("warning:"))
+        .collect();
+    assert_eq!(warnings.len(), 1, "{}", kel.stderr);
+    for says in [
+        "BUNIT 'K km/s' is a unit cairn does not convert to column density",
+        "masses and the physics need a map of dust emission, column density or extinction",
+        "give --unit with one of cm-2",
+    ] {
+        assert!(warnings[0].contains(says), "{}", warnings[0]);
+    }
+    assert!(!col.stderr.contains("warning:"), "{}", col.stderr);
+    assert!(kel.stdout.contains("no masses:"), "{}", kel.stdout);
+
+    let a = catalogue_columns(&dir.join("col/structures.csv"));
+    let b = catalogue_columns(&dir.join("kel/structures.csv"));
+    let leaves = b["kind"].iter().filter(|k| *k == "leaf").count();
+    assert!(
+        leaves >= 2,
+        "the test map should hold several leaves: {leaves}"
+    );
+    // The structure: identical to the last digit.
+    for name in [
+        "id",
+        "kind",
+        "parent",
+        "n_children",
+        "depth",
+        "peak_x",
+        "peak_y",
+        "peak",
+        "x",
+        "y",
+        "ra",
+        "dec",
+        "area_px",
+        "radius_px",
+        "area_sky",
+        "fwhm_major",
+        "fwhm_minor",
+        "pa",
+        "sum",
+        "mean",
+        "merge_level",
+        "excess_sum",
+        "at_edge",
+    ] {
+        assert_eq!(a[name], b[name], "column {name}");
+    }
+    // The masses and the physics: present for the cm-2 map, left out for K km/s (there is
+    // nothing to put in them), and no state is claimed.
+    for name in [
+        "n_peak",
+        "n_mean",
+        "mass",
+        "mass_excess",
+        "density",
+        "state",
+    ] {
+        assert!(a.contains_key(name), "cm-2 run lacks {name}");
+        assert!(!b.contains_key(name), "K km/s run has {name}");
+    }
+    assert!(!kel.stdout.contains("leaves by state"), "{}", kel.stdout);
+
+    // The map's own unit on the levels and sums, in the CSV header, the FITS table and the
+    // run record; a sum is K km/s times pixel, written with the pixel in the numerator.
+    let csv = std::fs::read_to_string(dir.join("kel/structures.csv")).unwrap();
+    assert!(csv.contains("# column peak [K km/s]:"), "{csv}");
+    assert!(csv.contains("# column sum [K km pixel/s]:"), "{csv}");
+    let mut f = fitsio::FitsFile::open(dir.join("kel/structures.fits")).unwrap();
+    let hdu = f.hdu(1).unwrap();
+    let tfields: i64 = hdu.read_key(&mut f, "TFIELDS").unwrap();
+    let mut units = BTreeMap::new();
+    for i in 1..=tfields {
+        let name: String = hdu.read_key(&mut f, &format!("TTYPE{i}")).unwrap();
+        let unit: Option<String> = hdu.read_key(&mut f, &format!("TUNIT{i}")).ok();
+        units.insert(name, unit);
+    }
+    assert_eq!(units["peak"].as_deref(), Some("K km/s"));
+    assert_eq!(units["mean"].as_deref(), Some("K km/s"));
+    assert_eq!(units["sum"].as_deref(), Some("K km pixel/s"));
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("kel/run.json")).unwrap()).unwrap();
+    assert_eq!(run["map"]["unit"], "K km/s");
+    assert_eq!(run["map"]["unit_kind"], "no conversion to column density");
+    assert_eq!(run["parameters"]["floor"]["value"], 4e21);
+    assert!(run["physics"]["mass_sensitivity_msun"].is_null());
+
+    // The label maps are the same pixel for pixel.
+    let labels = |run: &str| {
+        cairn::map::load(
+            &dir.join(run).join("labels.fits"),
+            &cairn::map::LoadOptions {
+                require_unit: false,
+                ..Default::default()
+            },
+        )
+        .unwrap()
+        .data
+    };
+    assert_eq!(labels("col"), labels("kel"));
+
+    // A threshold in noise widths works too: the same structure again, as the noise
+    // estimate and the background do not depend on the unit's name either.
+    let col5 = cairn(
+        &[
+            "segment",
+            "s/synth.fits",
+            "-o",
+            "col5",
+            "--no-figure",
+            "-q",
+            "--floor",
+            "5sigma",
+        ],
+        dir,
+    );
+    let kel5 = cairn(
+        &[
+            "segment",
+            "kkms.fits",
+            "-o",
+            "kel5",
+            "--no-figure",
+            "-q",
+            "--floor",
+            "5sigma",
+        ],
+        dir,
+    );
+    assert_eq!(
+        (col5.code, kel5.code),
+        (0, 0),
+        "{}{}",
+        col5.stderr,
+        kel5.stderr
+    );
+    let (a5, b5) = (
+        catalogue_columns(&dir.join("col5/structures.csv")),
+        catalogue_columns(&dir.join("kel5/structures.csv")),
+    );
+    for name in ["id", "parent", "area_px", "x", "y", "sum"] {
+        assert_eq!(a5[name], b5[name], "column {name} with --floor 5sigma");
+    }
+
+    // draw draws such a run again, reading the map in its unit; compare has no masses to
+    // compare and says why.
+    let o = cairn(&["draw", "kel", "-o", "fig", "-q"], dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(dir.join("fig/overlay.png").is_file());
+    assert!(dir.join("fig/tree.png").is_file());
+    let args = ["compare", "kel", "col", "-o", "cmp"];
+    let o = cairn(&args, dir);
+    check_refused(
+        &o,
+        &args,
+        "kel/structures.csv",
+        "its map is in the unit K km/s, which cairn does not convert to column density",
+    );
+    assert!(!dir.join("cmp").exists());
+}
+
+#[test]
+fn a_threshold_with_a_physical_unit_is_refused_on_such_a_map() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    for (option, value) in [
+        ("--floor", "2e21cm-2"),
+        ("--prominence", "0.05Jy/beam"),
+        ("--floor", "3mag"),
+    ] {
+        let args = ["segment", "kkms.fits", "-o", "run", option, value];
+        let o = cairn(&args, dir);
+        // One sentence on stderr besides the map's unit warning, which comes first.
+        let refusal = Outcome {
+            code: o.code,
+            stdout: o.stdout.clone(),
+            stderr: o
+                .stderr
+                .lines()
+                .filter(|l| !l.starts_with("warning:"))
+                .collect::<Vec<_>>()
+                .join("\n"),
+        };
+        check_refused(&refusal, &args, option, "not a level of this map");
+        assert!(
+            refusal.stderr.contains("in the map's unit (K km/s)"),
+            "{}",
+            refusal.stderr
+        );
+        assert!(!dir.join("run").exists(), "{option} {value} wrote outputs");
+    }
+}
+
+#[test]
+fn inspect_shows_the_unit_as_read_without_a_conversion() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let o = cairn(&["inspect", "kkms.fits"], dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let unit_line = o
+        .stdout
+        .lines()
+        .find(|l| l.starts_with("unit "))
+        .expect("a unit line");
+    assert!(unit_line.contains("K km/s"), "{unit_line}");
+    assert!(
+        unit_line.contains("no conversion to column density"),
+        "{unit_line}"
+    );
+    assert!(
+        o.stdout
+            .contains("conversion      none: the unit 'K km/s' has no conversion"),
+        "{}",
+        o.stdout
+    );
+    let o = cairn(&["inspect", "kkms.fits", "--json"], dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let j: serde_json::Value = serde_json::from_str(&o.stdout).unwrap();
+    assert_eq!(j["unit"], "K km/s");
+    assert_eq!(j["unit_kind"], "no conversion to column density");
+    assert_eq!(j["unit_source"], "header");
+    assert!(j["conversion"]["column_per_unit_cm2"].is_null());
+    assert!(
+        j["conversion"]["assumptions"]
+            .as_array()
+            .unwrap()
+            .is_empty()
+    );
+    assert!(
+        j["warnings"][0]
+            .as_str()
+            .unwrap()
+            .contains("BUNIT 'K km/s' is a unit cairn does not convert")
+    );
+}
+
+/// `--unit other:UNIT` makes a map in a unit cairn converts be read as one it does not (the
+/// structure alone, in the unit given), `--unit none` as values without a unit; a bare unit
+/// cairn does not convert is refused, so a misspelt unit does not silently lose the masses.
+#[test]
+fn unit_option_names_a_unit_without_conversion() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let o = segment(dir, "s/synth.fits", "forced", &["--unit", "other:K.km.s-1"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // Chosen on the command line: no warning about the header.
+    assert!(!o.stderr.contains("warning:"), "{}", o.stderr);
+    let col = segment(dir, "s/synth.fits", "col", &[]);
+    assert_eq!(col.code, 0, "{}", col.stderr);
+    let a = catalogue_columns(&dir.join("col/structures.csv"));
+    let b = catalogue_columns(&dir.join("forced/structures.csv"));
+    assert_eq!(a["sum"], b["sum"]);
+    assert!(!b.contains_key("mass"));
+    let csv = std::fs::read_to_string(dir.join("forced/structures.csv")).unwrap();
+    assert!(csv.contains("# column peak [K.km.s-1]:"), "{csv}");
+
+    let o = segment(dir, "kkms.fits", "plain", &["--unit", "none"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let csv = std::fs::read_to_string(dir.join("plain/structures.csv")).unwrap();
+    // No unit on levels; a sum is then in pixels (map unit times pixel).
+    assert!(csv.contains("# column peak:"), "{csv}");
+    assert!(csv.contains("# column sum [pixel]:"), "{csv}");
+    assert_eq!(
+        catalogue_columns(&dir.join("plain/structures.csv"))["sum"],
+        a["sum"]
+    );
+
+    let args = ["segment", "kkms.fits", "-o", "bare", "--unit", "K km/s"];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "--unit 'K km/s'", "other:UNIT");
+    assert!(!dir.join("bare").exists());
+}
