@@ -370,3 +370,105 @@ fn unit_option_names_a_unit_without_conversion() {
     check_refused(&o, &args, "--unit 'K km/s'", "other:UNIT");
     assert!(!dir.join("bare").exists());
 }
+
+/// Maps beside such a map, and smoothing it: a noise map must be in the map's very unit
+/// (cairn cannot convert mK km/s to K km/s without knowing either); `--common-resolution`
+/// smooths a K km/s map as a brightness, but refuses a unit per beam, whose values would
+/// have to be rescaled by the ratio of the beams' areas in a way the unit's text does not
+/// tell cairn.
+#[test]
+fn noise_maps_and_common_resolution_of_such_maps() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let base = cairn::map::load(&dir.join("kkms.fits"), &Default::default()).unwrap();
+    let noise = ndarray::Array2::<f32>::from_elem(base.data.dim(), 3e20);
+    for (name, unit) in [("noise-k.fits", "K km/s"), ("noise-mk.fits", "mK km/s")] {
+        let mut h = base.header.clone();
+        h.set("BUNIT", cairn::header::Value::Str(unit.into()), "");
+        cairn::fits_write::write_image_f32(&dir.join(name), noise.view(), &h, false).unwrap();
+    }
+    let o = cairn(
+        &[
+            "segment",
+            "kkms.fits",
+            "-o",
+            "nk",
+            "--no-figure",
+            "-q",
+            "--noise-map",
+            "noise-k.fits",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("nk/run.json")).unwrap()).unwrap();
+    // The median of a constant noise map, in the map's unit (f32 3e20 read back as f64).
+    assert_eq!(run["noise"]["value"].as_f64().unwrap(), 3e20f32 as f64);
+    let args = [
+        "segment",
+        "kkms.fits",
+        "-o",
+        "nmk",
+        "-q",
+        "--noise-map",
+        "noise-mk.fits",
+    ];
+    let o = cairn(&args, dir);
+    let refusal = Outcome {
+        code: o.code,
+        stdout: o.stdout.clone(),
+        stderr: o
+            .stderr
+            .lines()
+            .filter(|l| !l.starts_with("warning:"))
+            .collect::<Vec<_>>()
+            .join("\n"),
+    };
+    check_refused(
+        &refusal,
+        &args,
+        "noise-mk.fits",
+        "must be in the map's unit (K km/s)",
+    );
+    assert!(!dir.join("nmk").exists());
+
+    let smooth = |map: &str, out: &str| {
+        cairn(
+            &[
+                "segment",
+                map,
+                "-o",
+                out,
+                "--no-figure",
+                "-q",
+                "--distance",
+                "250pc",
+                "--common-resolution",
+                "0.05pc",
+            ],
+            dir,
+        )
+    };
+    let o = smooth("kkms.fits", "smooth");
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let mut h = base.header.clone();
+    h.set(
+        "BUNIT",
+        cairn::header::Value::Str("Jy/beam km/s".into()),
+        "",
+    );
+    cairn::fits_write::write_image_f32(&dir.join("perbeam.fits"), base.data.view(), &h, false)
+        .unwrap();
+    let o = smooth("perbeam.fits", "smooth-beam");
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    let line = o.stderr.lines().last().unwrap_or("");
+    assert!(line.contains("perbeam.fits"), "{}", o.stderr);
+    assert!(
+        line.contains("a unit per beam or per pixel"),
+        "{}",
+        o.stderr
+    );
+    assert!(!dir.join("smooth-beam").exists());
+}
