@@ -780,7 +780,9 @@ fn flux_per_unit_pixel(map: &Map, pixel_sr: f64) -> Option<f64> {
             Some(to_si / jy * sr? / map.beam?.solid_angle_sr())
         }
         units::PixelUnit::FluxPerPixel { to_si } => Some(to_si / jy),
-        _ => None,
+        units::PixelUnit::ColumnDensity { .. }
+        | units::PixelUnit::Extinction { .. }
+        | units::PixelUnit::Other => None,
     }
 }
 
