@@ -239,6 +239,13 @@ fn a_k_km_s_map_gives_the_structure_of_the_same_pixels_in_cm2() {
         assert_eq!(a5[name], b5[name], "column {name} with --floor 5sigma");
     }
 
+    // The catalogue of grown leaves is in the map's unit too, without masses.
+    let o = segment(dir, "kkms.fits", "grown", &["--grow-leaves", "-q"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let grown = std::fs::read_to_string(dir.join("grown/structures-grown.csv")).unwrap();
+    assert!(grown.contains("# column sum [K km pixel/s]:"), "{grown}");
+    assert!(!catalogue_columns(&dir.join("grown/structures-grown.csv")).contains_key("mass"));
+
     // draw draws such a run again, reading the map in its unit; compare has no masses to
     // compare and says why.
     let o = cairn(&["draw", "kel", "-o", "fig", "-q"], dir);
