@@ -555,9 +555,16 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                     (None, String::new(), Source::Header)
                 }
                 // Any other unit, or none: the structure is measured in the map's own unit.
-                (None, _) => {
+                (None, bunit) => {
                     let read = if text.is_empty() {
-                        "the map has no BUNIT, so its values are taken without a unit".to_string()
+                        format!(
+                            "the map has {}, so its values are taken without a unit",
+                            if bunit.is_some() {
+                                "an empty BUNIT"
+                            } else {
+                                "no BUNIT"
+                            }
+                        )
                     } else {
                         format!("BUNIT '{text}' is a unit cairn does not convert to column density")
                     };
