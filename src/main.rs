@@ -1726,8 +1726,12 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
         outln!("leaves by state: {}", words.join(", "));
     }
+    // A map whose header names a unit without conversion (or none) was already warned about
+    // when it was read, in words that cover the masses: not twice.
+    let unit_warned =
+        m.unit == Some(units::PixelUnit::Other) && m.unit_source == map::Source::Header;
     if let Some(note) = &summary.physics_note {
-        if a.physics.distance.is_some() {
+        if a.physics.distance.is_some() && !unit_warned {
             // Asked for with --distance and not made: a warning, on stderr with --quiet too.
             errln!("warning: no masses: {note}");
         } else {
