@@ -23,6 +23,12 @@
 //!   level) over the true mass. An injected core sits on the real map's background, which
 //!   `mass` counts too; `mass_excess` removes the level where the leaf meets its surroundings,
 //!   so it is the fairer comparison (it also cuts the core's own wings below that level).
+//! * Pooling ([`pool`]): several injections (`compare RUN1 RUN2 --truth T1 --truth T2`) are
+//!   each checked and matched within their own pair of run and truth table, since the injected
+//!   maps differ; the bins, the limit and the medians are then those of all the pairs' counted
+//!   cores together, so a bin's counts are the sums of the pairs' counts. One baseline serves
+//!   every pair (each checked against it). Runs made with other thresholds, distance or
+//!   temperature are named ([`run_differences`]), as pooling them mixes two extractions.
 
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -976,6 +982,138 @@ pub fn score_with_baseline(
     }
 }
 
+/// Pools the scorings of several pairs of run and truth table (each matched within its own
+/// pair, as [`score_with_baseline`] does): the bins, the 90% limit and the medians are those
+/// of all the pairs' counted cores together, so the counts of a bin are the sums of the
+/// pairs' counts. The pooled `matches` and `on_own_leaf` are the pairs' in turn (a match's
+/// leaf index refers to its own pair's run); `radius_arcsec` is the first pair's.
+pub fn pool(parts: &[Part], bin_dex: f64) -> Scoring {
+    let mut masses = Vec::new();
+    let mut found = Vec::new();
+    let mut mass_ratios = Vec::new();
+    let mut excess_ratios = Vec::new();
+    for (truth, run, s) in parts {
+        for i in s.counted() {
+            let m = truth.cores[i].mass;
+            masses.push(m);
+            found.push(s.matches[i].is_some());
+            if let Some((j, _)) = s.matches[i] {
+                mass_ratios.push(run.leaves[j].mass / m);
+                excess_ratios.push(run.leaves[j].mass_excess / m);
+            }
+        }
+    }
+    let bins = bins(&masses, &found, bin_dex);
+    let (limit_90, limit_at_lowest) = limit_of(&bins, &masses, 0.9);
+    Scoring {
+        matches: parts
+            .iter()
+            .flat_map(|p| p.2.matches.iter().copied())
+            .collect(),
+        bins,
+        limit_90,
+        limit_at_lowest,
+        median_mass_ratio: median(&mass_ratios),
+        median_excess_ratio: median(&excess_ratios),
+        radius_arcsec: parts.first().map_or(f64::NAN, |p| p.2.radius_arcsec),
+        bin_dex,
+        on_own_leaf: parts
+            .iter()
+            .flat_map(|p| p.2.on_own_leaf.iter().copied())
+            .collect(),
+        with_baseline: parts.iter().any(|p| p.2.with_baseline),
+        baseline_differences: Vec::new(),
+    }
+}
+
+/// Refuses to pool two truth tables of the same injected map (their cores would be counted
+/// twice).
+pub fn check_distinct(truths: &[&Truth]) -> Result<()> {
+    for (k, a) in truths.iter().enumerate() {
+        for b in &truths[..k] {
+            if let (Some(x), Some(y)) = (&a.map_sha256, &b.map_sha256)
+                && x == y
+            {
+                return Err(Error::input(
+                    &a.path,
+                    format!(
+                        "belongs to the same injected map (SHA-256 {}...) as {}, so pooling both would count its cores twice; give each injection once.",
+                        short(x),
+                        b.path.display()
+                    ),
+                ));
+            }
+        }
+    }
+    Ok(())
+}
+
+/// How the runs of pooled pairs differ from the first one in what decides which structures
+/// are found and their masses: the thresholds and connectivity as given (`floor`,
+/// `prominence`, `min_area`: the same words, such as a multiple of the noise, may give other
+/// values on maps of other noise), the distance and the dust temperature. One sentence each;
+/// pooling such runs mixes two extractions.
+pub fn run_differences(runs: &[&Run]) -> Vec<String> {
+    let Some(first) = runs.first() else {
+        return Vec::new();
+    };
+    fn given(r: &Run, key: &str) -> String {
+        let p = &r.parameters[key];
+        match (p.get("given").and_then(|v| v.as_str()), p.get("value")) {
+            (Some(g), _) => g.to_string(),
+            (None, Some(v)) => v.to_string(),
+            (None, None) if !p.is_null() => p.to_string(),
+            _ => "not recorded".into(),
+        }
+    }
+    fn distance(r: &Run) -> String {
+        num(&r.physics, "/distance_pc")
+            .map(|d| format!("{} pc", crate::units::tidy(d)))
+            .unwrap_or_else(|| "none".into())
+    }
+    fn temperature(r: &Run) -> String {
+        match (
+            r.physics.get("temperature").and_then(|v| v.as_str()),
+            r.other_inputs
+                .pointer("/temperature_map/sha256")
+                .and_then(|v| v.as_str()),
+        ) {
+            (_, Some(sha)) => format!("the temperature map of SHA-256 {}...", short(sha)),
+            (Some(t), None) => t.to_string(),
+            (None, None) => "none".into(),
+        }
+    }
+    let mut out = Vec::new();
+    for (k, r) in runs.iter().enumerate().skip(1) {
+        let mut what = Vec::new();
+        for key in ["floor", "prominence", "min_area", "connectivity"] {
+            let (a, b) = (given(first, key), given(r, key));
+            if a != b {
+                what.push(format!("{key} {b} against {a}"));
+            }
+        }
+        for (name, f) in [
+            ("distance", distance as fn(&Run) -> String),
+            ("temperature", temperature),
+        ] {
+            let (a, b) = (f(first), f(r));
+            if a != b {
+                what.push(format!("{name} {b} against {a}"));
+            }
+        }
+        if !what.is_empty() {
+            out.push(format!(
+                "the run of set {} ({}) was not made as that of set 1 ({}): {}; pooling them mixes two extractions, so segment every injected map with the same options",
+                k + 1,
+                r.catalogue.display(),
+                first.catalogue.display(),
+                what.join("; ")
+            ));
+        }
+    }
+    out
+}
+
 /// The completeness plot: the recovered fraction in each occupied bin of true mass (at the
 /// bin's geometric centre, spanning the bin, with its Wilson interval), a guide at 90%, and the
 /// limit and counts as notes.
@@ -1030,108 +1168,165 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
     }
 }
 
+/// One scored pair: a truth table, the run of its injected map, and the run's scoring.
+pub type Part<'a> = (&'a Truth, &'a Run, &'a Scoring);
+
 /// matches.csv: one row per injected core.
 pub fn matches_table(truth: &Truth, run: &Run, s: &Scoring) -> Table {
+    matches_table_of(&[(truth, run, s)], false)
+}
+
+/// matches.csv of several pooled pairs: the rows of each pair in turn, led by a `set` column
+/// (the pair's 1-based place on the command line).
+pub fn pooled_matches_table(parts: &[Part]) -> Table {
+    matches_table_of(parts, true)
+}
+
+/// A row of matches.csv: its set (from 1), its core, the matched leaf and separation
+/// \[arcsec\] if any, the set's scoring and the core's index in its truth table.
+type Row<'a> = (
+    usize,
+    &'a TrueCore,
+    Option<(&'a Leaf, f64)>,
+    &'a Scoring,
+    usize,
+);
+
+fn matches_table_of(parts: &[Part], with_set: bool) -> Table {
     let mut t = Table {
         name: "matches".into(),
         ..Table::default()
     };
-    t.notes.push(format!(
-        "each injected core matched one to one to the leaf whose peak lies nearest within one beam FWHM ({} arcsec), pairs taken by increasing separation",
-        crate::units::tidy(s.radius_arcsec)
-    ));
+    let radius = parts[0].2.radius_arcsec;
+    if parts.iter().all(|p| p.2.radius_arcsec == radius) {
+        t.notes.push(format!(
+            "each injected core matched one to one to the leaf whose peak lies nearest within one beam FWHM ({} arcsec), pairs taken by increasing separation",
+            crate::units::tidy(radius)
+        ));
+    } else {
+        t.notes.push(
+            "each injected core matched one to one to the leaf of its own set's run whose peak lies nearest within one beam FWHM of that run, pairs taken by increasing separation".into(),
+        );
+    }
     t.notes.push(
         "mass_excess_ratio (above the merge level) is the fairer comparison: mass_ratio also counts the real map's background under the core".into(),
     );
-    let c = &truth.cores;
-    let leaf = |i: usize| s.matches[i].map(|(j, _)| &run.leaves[j]);
+    if with_set {
+        t.notes.push(
+            "set: the pair of run and truth table the core belongs to, numbered from 1 in the order given; cores are matched within their own set only".into(),
+        );
+    }
+    let rows: Vec<Row> = parts
+        .iter()
+        .enumerate()
+        .flat_map(|(k, (truth, run, s))| {
+            truth.cores.iter().enumerate().map(move |(i, c)| {
+                (
+                    k + 1,
+                    c,
+                    s.matches[i].map(|(j, d)| (&run.leaves[j], d)),
+                    *s,
+                    i,
+                )
+            })
+        })
+        .collect();
+    if with_set {
+        t.push_i64(
+            "set",
+            "",
+            "pair of run and truth table, 1-based in the order given",
+            rows.iter().map(|r| r.0 as i64).collect(),
+        );
+    }
     t.push_i64(
         "id",
         "",
         "injected core id",
-        c.iter().map(|c| c.id).collect(),
+        rows.iter().map(|r| r.1.id).collect(),
     );
     t.push_f64(
         "true_mass",
         "solMass",
         "injected mass",
-        c.iter().map(|c| c.mass).collect(),
+        rows.iter().map(|r| r.1.mass).collect(),
     );
     t.push_f64(
         "x",
         "pixel",
         "true centre, zero-based pixel column",
-        c.iter().map(|c| c.x).collect(),
+        rows.iter().map(|r| r.1.x).collect(),
     );
     t.push_f64(
         "y",
         "pixel",
         "true centre, zero-based pixel row",
-        c.iter().map(|c| c.y).collect(),
+        rows.iter().map(|r| r.1.y).collect(),
     );
     t.push_f64(
         "lon",
         "deg",
         "true centre, longitude in the map's frame",
-        c.iter().map(|c| c.lon).collect(),
+        rows.iter().map(|r| r.1.lon).collect(),
     );
     t.push_f64(
         "lat",
         "deg",
         "true centre, latitude in the map's frame",
-        c.iter().map(|c| c.lat).collect(),
+        rows.iter().map(|r| r.1.lat).collect(),
     );
     t.push_text(
         "leaf",
         "id of the matched leaf, empty if none",
-        (0..c.len())
-            .map(|i| leaf(i).map(|l| l.id.to_string()).unwrap_or_default())
+        rows.iter()
+            .map(|r| r.2.map(|(l, _)| l.id.to_string()).unwrap_or_default())
             .collect(),
     );
     t.push_f64(
         "offset",
         "arcsec",
         "separation between the true centre and the leaf's peak",
-        s.matches
-            .iter()
-            .map(|m| m.map_or(f64::NAN, |(_, d)| d))
+        rows.iter()
+            .map(|r| r.2.map_or(f64::NAN, |(_, d)| d))
             .collect(),
     );
     t.push_f64(
         "offset_beams",
         "",
         "offset in beam FWHMs",
-        s.matches
-            .iter()
-            .map(|m| m.map_or(f64::NAN, |(_, d)| d / s.radius_arcsec))
+        rows.iter()
+            .map(|r| r.2.map_or(f64::NAN, |(_, d)| d / r.3.radius_arcsec))
             .collect(),
     );
     t.push_f64(
         "mass_ratio",
         "",
         "the leaf's mass over the true mass",
-        (0..c.len())
-            .map(|i| leaf(i).map_or(f64::NAN, |l| l.mass / c[i].mass))
+        rows.iter()
+            .map(|r| r.2.map_or(f64::NAN, |(l, _)| l.mass / r.1.mass))
             .collect(),
     );
     t.push_f64(
         "mass_excess_ratio",
         "",
         "the leaf's mass_excess over the true mass",
-        (0..c.len())
-            .map(|i| leaf(i).map_or(f64::NAN, |l| l.mass_excess / c[i].mass))
+        rows.iter()
+            .map(|r| r.2.map_or(f64::NAN, |(l, _)| l.mass_excess / r.1.mass))
             .collect(),
     );
-    if s.with_baseline {
+    if parts.iter().any(|p| p.2.with_baseline) {
         t.notes.push(
             "own_leaf: a leaf of the baseline run (the map before injection) peaks within one beam FWHM of the true centre; such cores are left out of completeness.csv and the report's limit".into(),
         );
         t.push_text(
             "own_leaf",
             "id of the baseline run's leaf within one beam FWHM, empty if none",
-            s.on_own_leaf
-                .iter()
-                .map(|o| o.map(|id| id.to_string()).unwrap_or_default())
+            rows.iter()
+                .map(|r| {
+                    r.3.on_own_leaf[r.4]
+                        .map(|id| id.to_string())
+                        .unwrap_or_default()
+                })
                 .collect(),
         );
     }
@@ -1238,6 +1433,146 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
             let _ = writeln!(r, "**Warning**: {d}.\n");
         }
     }
+    bins_section(&mut r, s);
+    let suspect = suspect_matches(truth, run, s);
+    suspect_section(&mut r, suspect, s.with_baseline);
+    assumptions_section(
+        &mut r,
+        "The run's physical assumptions differ",
+        &assumption_differences(truth, run),
+    );
+    let _ = writeln!(r, "{CAVEATS}");
+    r
+}
+
+/// The report of several pooled pairs (Markdown): each pair (its run, truth table, cores
+/// counted and recovered), the ways their runs differ (`run_differences`), then the pooled
+/// bins, limit and medians of `pooled` ([`pool`]) and each pair's warnings.
+pub fn pooled_report(parts: &[Part], pooled: &Scoring, run_differences: &[String]) -> String {
+    let mut r = String::new();
+    let n: usize = parts.iter().map(|p| p.0.cores.len()).sum();
+    let counted: Vec<usize> = pooled.counted().collect();
+    let k = counted
+        .iter()
+        .filter(|&&i| pooled.matches[i].is_some())
+        .count();
+    let _ = writeln!(r, "# Completeness\n");
+    let _ = writeln!(
+        r,
+        "Pooled over {} injections: each run is scored against the truth table of its own injected map, each injected core matched, one to one, to the leaf of that run whose peak lies nearest its true centre within one beam FWHM (the geometric mean of the beam's axes; peaks rather than centroids, since a leaf's centroid is pulled by the background and by where its footprint is cut). The bins, the 90% limit and the medians below are those of all the sets' cores together.\n",
+        parts.len()
+    );
+    let _ = writeln!(
+        r,
+        "| set | run | truth table | injected | counted | recovered |\n| --- | --- | --- | --- | --- | --- |"
+    );
+    for (i, (truth, run, s)) in parts.iter().enumerate() {
+        let c: Vec<usize> = s.counted().collect();
+        let _ = writeln!(
+            r,
+            "| {} | `{}` | `{}` | {} | {} | {} |",
+            i + 1,
+            run.catalogue.display(),
+            truth.path.display(),
+            truth.cores.len(),
+            c.len(),
+            c.iter().filter(|&&i| s.matches[i].is_some()).count()
+        );
+    }
+    let _ = writeln!(r);
+    if pooled.with_baseline {
+        let _ = writeln!(
+            r,
+            "Pooled: {} of the {n} cores lie within one beam FWHM of a leaf of the baseline run (the map before injection), where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {k} of the other {} were recovered ({:.1}%).\n",
+            n - counted.len(),
+            counted.len(),
+            if counted.is_empty() {
+                f64::NAN
+            } else {
+                100.0 * k as f64 / counted.len() as f64
+            }
+        );
+    } else {
+        let _ = writeln!(
+            r,
+            "Pooled: {k} of {n} cores were recovered ({:.1}%).\n",
+            100.0 * k as f64 / n as f64
+        );
+    }
+    for d in run_differences {
+        let _ = writeln!(r, "**Warning**: {d}.\n");
+    }
+    for (i, (_, _, s)) in parts.iter().enumerate() {
+        for d in &s.baseline_differences {
+            let _ = writeln!(r, "**Warning** (set {}): {d}.\n", i + 1);
+        }
+    }
+    bins_section(&mut r, pooled);
+    let suspect: usize = parts
+        .iter()
+        .map(|(truth, run, s)| suspect_matches(truth, run, s))
+        .sum();
+    suspect_section(&mut r, suspect, pooled.with_baseline);
+    for (i, (truth, run, _)) in parts.iter().enumerate() {
+        assumptions_section(
+            &mut r,
+            &format!("Set {}: the run's physical assumptions differ", i + 1),
+            &assumption_differences(truth, run),
+        );
+    }
+    let _ = writeln!(r, "{CAVEATS}");
+    r
+}
+
+/// The report's closing caveats.
+const CAVEATS: &str = "Caveats: the result depends on where the cores were placed; cores injected on a bright background are harder to find; Gaussian and Bonnor-Ebert cores are idealisations; masses carry factor-of-two systematics from dust opacity, temperature and distance (when the run uses the injection's assumptions, the same ones in the truth and the run, so they cancel in the ratios but not in the limit's meaning).";
+
+/// The report's list of the ways a run's physical assumptions differ from its injection's,
+/// under a bold `lead`.
+fn assumptions_section(r: &mut String, lead: &str, differences: &[String]) {
+    if !differences.is_empty() {
+        let _ = writeln!(
+            r,
+            "**{lead} from the injection's.** The recovery of the cores does not depend on them, but the recovered masses and their ratios to the true masses do; segment the injected map with the assumptions of the injection (its NAME-spec.json) for a fair mass comparison:\n"
+        );
+        for d in differences {
+            let _ = writeln!(r, "* {d}.");
+        }
+        let _ = writeln!(r);
+    }
+}
+
+/// The counted matches whose leaf holds far more mass above its surroundings than the core
+/// injected: more likely leaves of the map's own that happen to peak within a beam of the
+/// core.
+fn suspect_matches(truth: &Truth, run: &Run, s: &Scoring) -> usize {
+    s.counted()
+        .filter(|&i| {
+            s.matches[i].is_some_and(|(j, _)| {
+                run.leaves[j].mass_excess > SUSPECT_RATIO * truth.cores[i].mass
+            })
+        })
+        .count()
+}
+
+/// The report's paragraph on the suspect matches ([`suspect_matches`]), if any.
+fn suspect_section(r: &mut String, suspect: usize, with_baseline: bool) {
+    if suspect > 0 {
+        let _ = writeln!(
+            r,
+            "**{suspect} of the matches** {} a leaf whose `mass_excess` is more than {SUSPECT_RATIO} times the injected mass: probably leaves of the map's own that peak within a beam of the injected core, counted as recoveries (see `matches.csv`); they raise the completeness of the faintest cores. {}\n",
+            if suspect == 1 { "has" } else { "have" },
+            if with_baseline {
+                "The baseline run found no leaf there, so they may be leaves that only the injected core's mass lifted above the thresholds."
+            } else {
+                "Give --baseline with a run of the map before injection to leave out the cores that fall on the map's own leaves."
+            }
+        );
+    }
+}
+
+/// The report's table of bins, its 90% limit and the median mass ratios.
+fn bins_section(r: &mut String, s: &Scoring) {
     let _ = writeln!(
         r,
         "| true mass (Msun) | injected | recovered | fraction | 68.3% interval |\n| --- | --- | --- | --- | --- |"
@@ -1293,44 +1628,6 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
         fmt_ratio(s.median_excess_ratio),
         fmt_ratio(s.median_mass_ratio)
     );
-    // A match whose leaf holds far more mass above its surroundings than the core injected is
-    // more likely a leaf of the map's own that happens to peak within a beam of the core.
-    let suspect = counted
-        .iter()
-        .filter(|&&i| {
-            s.matches[i].is_some_and(|(j, _)| {
-                run.leaves[j].mass_excess > SUSPECT_RATIO * truth.cores[i].mass
-            })
-        })
-        .count();
-    if suspect > 0 {
-        let _ = writeln!(
-            r,
-            "**{suspect} of the matches** {} a leaf whose `mass_excess` is more than {SUSPECT_RATIO} times the injected mass: probably leaves of the map's own that peak within a beam of the injected core, counted as recoveries (see `matches.csv`); they raise the completeness of the faintest cores. {}\n",
-            if suspect == 1 { "has" } else { "have" },
-            if s.with_baseline {
-                "The baseline run found no leaf there, so they may be leaves that only the injected core's mass lifted above the thresholds."
-            } else {
-                "Give --baseline with a run of the map before injection to leave out the cores that fall on the map's own leaves."
-            }
-        );
-    }
-    let differences = assumption_differences(truth, run);
-    if !differences.is_empty() {
-        let _ = writeln!(
-            r,
-            "**The run's physical assumptions differ from the injection's.** The recovery of the cores does not depend on them, but the recovered masses and their ratios to the true masses do; segment the injected map with the assumptions of the injection (its NAME-spec.json) for a fair mass comparison:\n"
-        );
-        for d in &differences {
-            let _ = writeln!(r, "* {d}.");
-        }
-        let _ = writeln!(r);
-    }
-    let _ = writeln!(
-        r,
-        "Caveats: the result depends on where the cores were placed; cores injected on a bright background are harder to find; Gaussian and Bonnor-Ebert cores are idealisations; masses carry factor-of-two systematics from dust opacity, temperature and distance (when the run uses the injection's assumptions, the same ones in the truth and the run, so they cancel in the ratios but not in the limit's meaning)."
-    );
-    r
 }
 
 /// A match whose leaf's `mass_excess` exceeds this many times the injected mass is named in
