@@ -737,17 +737,21 @@ fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usiz
 
 #[derive(Args)]
 struct CompareArgs {
-    /// Run folders (or their structures.csv files), two or more; one with --truth.
+    /// Run folders (or their structures.csv files), two or more; with --truth, one per truth
+    /// table.
     #[arg(required = true, num_args = 1..)]
     runs: Vec<PathBuf>,
-    /// Score one run against the truth table of the cores injected into its map
+    /// Score a run against the truth table of the cores injected into its map
     /// (NAME-truth.csv of `cairn synth --into`): matches.csv, completeness.csv, report.md and
-    /// the completeness plot.
+    /// the completeness plot. Repeat it to pool several injections: one --truth per run,
+    /// paired in order (`compare RUN1 RUN2 --truth T1 --truth T2`), each run matched against
+    /// its own truth and the completeness computed over all their cores together.
     #[arg(long, value_name = "FILE")]
-    truth: Option<PathBuf>,
+    truth: Vec<PathBuf>,
     /// With --truth: a run of the map before injection, with the same thresholds; injected
     /// cores within one beam of its leaves (where a leaf found may be the map's own) are left
-    /// out of the completeness.
+    /// out of the completeness. One baseline serves every pooled pair, so each injection must
+    /// have gone into that map.
     #[arg(long, value_name = "RUN", requires = "truth")]
     baseline: Option<PathBuf>,
     /// A name for each run, in order [default: the folder names].
@@ -1449,13 +1453,21 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
     Ok(())
 }
 
-/// `cairn compare RUN --truth NAME-truth.csv`: a run scored against injected cores.
-fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) -> Result<()> {
+/// `cairn compare RUN... --truth NAME-truth.csv...`: runs scored against injected cores, each
+/// run against the truth table given in the same place, pooled when there are several.
+fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
     use cairn::completeness;
-    if a.runs.len() != 1 {
+    if a.runs.len() != a.truth.len() {
         return Err(Error::usage(format!(
-            "--truth scores one run against the cores injected into its map, but {} runs were given; give one run folder (or its structures.csv).",
-            a.runs.len()
+            "--truth pairs each run, in order, with the truth table of the cores injected into its map, but {} {} and {} truth {} were given; give one run folder (or its structures.csv) per --truth.",
+            a.runs.len(),
+            if a.runs.len() == 1 { "run" } else { "runs" },
+            a.truth.len(),
+            if a.truth.len() == 1 {
+                "table"
+            } else {
+                "tables"
+            }
         )));
     }
     if !(a.bin_width >= 0.01 && a.bin_width <= 2.0) {
@@ -1464,33 +1476,57 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
             a.bin_width
         )));
     }
-    let truth = completeness::read_truth(truth_path)?;
-    let run = completeness::read_run(&a.runs[0])?;
-    completeness::check_same_map(&truth, &run)?;
-    // Printed with --quiet too: the mass ratios are not what they seem without them.
-    for d in completeness::assumption_differences(&truth, &run) {
-        errln!("warning: {d}");
+    let pooled_sets = a.runs.len() > 1;
+    // Every pair is read and checked before anything is said or written.
+    let mut pairs = Vec::new();
+    for (run_path, truth_path) in a.runs.iter().zip(&a.truth) {
+        let truth = completeness::read_truth(truth_path)?;
+        let run = completeness::read_run(run_path)?;
+        completeness::check_same_map(&truth, &run)?;
+        pairs.push((truth, run));
     }
-    let (baseline, baseline_differences) = match &a.baseline {
-        Some(p) => {
-            let b = completeness::read_baseline(p)?;
-            let differences = completeness::check_baseline(&truth, &run, &b)?;
-            for d in &differences {
-                errln!("warning: {d}");
-            }
-            (Some(b), differences)
-        }
-        None => (None, Vec::new()),
+    let truths: Vec<&completeness::Truth> = pairs.iter().map(|p| &p.0).collect();
+    completeness::check_distinct(&truths)?;
+    // One baseline serves every pair (each injection into the same map), checked per pair.
+    let baseline = a
+        .baseline
+        .as_deref()
+        .map(completeness::read_baseline)
+        .transpose()?;
+    let mut baseline_differences = Vec::new();
+    for (truth, run) in &pairs {
+        baseline_differences.push(match &baseline {
+            Some(b) => completeness::check_baseline(truth, run, b)?,
+            None => Vec::new(),
+        });
+    }
+    let scorings: Vec<completeness::Scoring> = pairs
+        .iter()
+        .zip(baseline_differences)
+        .map(|((truth, run), differences)| {
+            let mut s =
+                completeness::score_with_baseline(truth, run, baseline.as_ref(), a.bin_width);
+            s.baseline_differences = differences;
+            s
+        })
+        .collect();
+    let parts: Vec<completeness::Part> = pairs
+        .iter()
+        .zip(&scorings)
+        .map(|((truth, run), s)| (truth, run, s))
+        .collect();
+    let s = if pooled_sets {
+        completeness::pool(&parts, a.bin_width)
+    } else {
+        scorings[0].clone()
     };
-    let mut s = completeness::score_with_baseline(&truth, &run, baseline.as_ref(), a.bin_width);
-    s.baseline_differences = baseline_differences;
+    let injected = s.matches.len();
     if s.with_baseline && s.counted().next().is_none() {
         return Err(Error::input(
-            a.baseline.as_deref().unwrap_or(truth_path),
+            a.baseline.as_deref().unwrap_or(&a.truth[0]),
             format!(
-                "has leaves within one beam FWHM ({} arcsec) of every one of the {} injected cores, so none is left to score; inject cores away from the map's structures or leave out --baseline.",
-                units::tidy(s.radius_arcsec),
-                truth.cores.len()
+                "has leaves within one beam FWHM ({} arcsec) of every one of the {injected} injected cores, so none is left to score; inject cores away from the map's structures or leave out --baseline.",
+                units::tidy(s.radius_arcsec)
             ),
         ));
     }
@@ -1500,9 +1536,23 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
             a.width
         )));
     }
+    let runs: Vec<&completeness::Run> = pairs.iter().map(|p| &p.1).collect();
+    let run_differences = completeness::run_differences(&runs);
     let plot = completeness::plot(&s);
     let plot_err =
         |e: cairn::render::RenderError| Error::usage(format!("cannot draw the plot: {e}."));
+    let (matches, report) = if pooled_sets {
+        (
+            completeness::pooled_matches_table(&parts),
+            completeness::pooled_report(&parts, &s, &run_differences),
+        )
+    } else {
+        let (truth, run, s) = parts[0];
+        (
+            completeness::matches_table(truth, run, s),
+            completeness::report(truth, run, s),
+        )
+    };
     let files: Vec<(String, Vec<u8>)> = vec![
         (
             "completeness.png".into(),
@@ -1514,28 +1564,40 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
                 .map_err(plot_err)?
                 .into_bytes(),
         ),
-        (
-            "matches.csv".into(),
-            completeness::matches_table(&truth, &run, &s)
-                .to_csv()
-                .into_bytes(),
-        ),
+        ("matches.csv".into(), matches.to_csv().into_bytes()),
         (
             "completeness.csv".into(),
             completeness::completeness_table(&s).to_csv().into_bytes(),
         ),
-        (
-            "report.md".into(),
-            completeness::report(&truth, &run, &s).into_bytes(),
-        ),
+        ("report.md".into(), report.into_bytes()),
     ];
     let names: Vec<String> = files.iter().map(|(n, _)| n.clone()).collect();
-    let inputs: Vec<&std::path::Path> = [a.runs[0].as_path(), truth_path]
-        .into_iter()
+    let inputs: Vec<&std::path::Path> = a
+        .runs
+        .iter()
+        .chain(&a.truth)
+        .map(PathBuf::as_path)
         .chain(a.baseline.as_deref())
         .collect();
     output::refuse_inputs_as_outputs(&a.output, &names, &inputs)?;
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;
+    // Printed with --quiet too: the mass ratios are not what they seem without them.
+    for (k, (truth, run, s)) in parts.iter().enumerate() {
+        let set = if pooled_sets {
+            format!("set {}: ", k + 1)
+        } else {
+            String::new()
+        };
+        for d in completeness::assumption_differences(truth, run)
+            .iter()
+            .chain(&s.baseline_differences)
+        {
+            errln!("warning: {set}{d}");
+        }
+    }
+    for d in &run_differences {
+        errln!("warning: {d}");
+    }
     for (n, bytes) in &files {
         output::write_bytes(&outputs.temp(n), bytes)?;
     }
@@ -1543,12 +1605,17 @@ fn run_completeness(a: &CompareArgs, truth_path: &std::path::Path, quiet: bool) 
     let counted: Vec<usize> = s.counted().collect();
     let k = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
     outln!(
-        "{k} of {} injected cores{} recovered; {}; median mass_excess / true mass {}",
+        "{}{k} of {} injected cores{} recovered; {}; median mass_excess / true mass {}",
+        if pooled_sets {
+            format!("pooled over {} injections: ", parts.len())
+        } else {
+            String::new()
+        },
         counted.len(),
         if s.with_baseline {
             format!(
                 " away from the map's own leaves ({} on them left out)",
-                truth.cores.len() - counted.len()
+                injected - counted.len()
             )
         } else {
             String::new()
@@ -1765,7 +1832,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
 
 fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     use cairn::compare;
-    if let Some(t) = &a.truth {
+    if !a.truth.is_empty() {
         // Options of the population comparison have no effect on a scoring: said rather than
         // ignored (those with defaults, when set to another value).
         let unused = [
@@ -1780,10 +1847,10 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         ];
         if let Some((_, name)) = unused.iter().find(|(given, _)| *given) {
             return Err(Error::usage(format!(
-                "{name} belongs to comparing populations and has no effect with --truth, which scores one run against injected cores; leave it out."
+                "{name} belongs to comparing populations and has no effect with --truth, which scores runs against the cores injected into their maps; leave it out."
             )));
         }
-        return run_completeness(a, t, quiet);
+        return run_completeness(a, quiet);
     }
     if a.runs.len() < 2 {
         return Err(Error::usage(

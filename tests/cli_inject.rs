@@ -1374,3 +1374,296 @@ fn a_map_read_in_another_band_than_the_injection_is_named() {
         assert_eq!(o.stderr.contains("warning"), warned, "{name}: {}", o.stderr);
     }
 }
+
+/// completeness.csv's bins keyed by their lower edge (as written): (injected, recovered).
+fn bin_counts(path: &Path) -> std::collections::BTreeMap<String, (u64, u64)> {
+    let (head, rows) = csv(path);
+    let (lo, inj, rec) = (
+        column(&head, "mass_lo"),
+        column(&head, "injected"),
+        column(&head, "recovered"),
+    );
+    rows.iter()
+        .map(|r| {
+            (
+                r[lo].clone(),
+                (r[inj].parse().unwrap(), r[rec].parse().unwrap()),
+            )
+        })
+        .collect()
+}
+
+/// The per-bin sums of several scorings' counts (bins of one width share their edges, so
+/// they are keyed alike).
+fn summed(
+    tables: &[std::collections::BTreeMap<String, (u64, u64)>],
+) -> std::collections::BTreeMap<String, (u64, u64)> {
+    let mut out = std::collections::BTreeMap::new();
+    for t in tables {
+        for (k, (n, r)) in t {
+            let e = out.entry(k.clone()).or_insert((0, 0));
+            e.0 += n;
+            e.1 += r;
+        }
+    }
+    out
+}
+
+/// Pooling two injections into one map (`compare RUN1 RUN2 --truth T1 --truth T2`) is the
+/// hand sum of the two single scorings: each core is matched within its own pair, so the
+/// pooled matches.csv holds both single tables' rows with a leading `set` column, and every
+/// bin's injected and recovered counts are the sums of the two tables' (with or without a
+/// baseline serving both pairs). The fraction of a pooled bin is its recovered over injected.
+#[test]
+fn pooled_injections_add_their_counts_bin_by_bin() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let seg = ["--distance", "250pc", "--temperature", "12K"];
+    for (name, seed) in [("a", "5"), ("b", "6")] {
+        let o = inject(dir, "base/synth.fits", name, &["--seed", seed]);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        segment_and_score(
+            dir,
+            &format!("{name}/synth.fits"),
+            &format!("run{name}"),
+            &seg,
+            &format!("{name}/synth-truth.csv"),
+            &format!("score{name}"),
+        );
+    }
+    let pairs = [
+        "compare",
+        "runa",
+        "runb",
+        "--truth",
+        "a/synth-truth.csv",
+        "--truth",
+        "b/synth-truth.csv",
+        "-q",
+    ];
+    let mut pooled = pairs.to_vec();
+    pooled.extend_from_slice(&["-o", "pooled"]);
+    let o = cairn(&pooled, dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // Both runs were made with the same options and the injections' assumptions.
+    assert!(!o.stderr.contains("warning"), "{}", o.stderr);
+    assert!(o.stdout.contains("of 60 injected cores"), "{}", o.stdout);
+    let single = [
+        bin_counts(&dir.join("scorea/completeness.csv")),
+        bin_counts(&dir.join("scoreb/completeness.csv")),
+    ];
+    let pooled_bins = bin_counts(&dir.join("pooled/completeness.csv"));
+    assert_eq!(pooled_bins, summed(&single));
+    assert_eq!(pooled_bins.values().map(|c| c.0).sum::<u64>(), 60);
+    let (ch, rows) = csv(&dir.join("pooled/completeness.csv"));
+    for r in &rows {
+        let (n, k): (f64, f64) = (
+            r[column(&ch, "injected")].parse().unwrap(),
+            r[column(&ch, "recovered")].parse().unwrap(),
+        );
+        if n > 0.0 {
+            let f: f64 = r[column(&ch, "fraction")].parse().unwrap();
+            assert!((f - k / n).abs() < 1e-12, "{f} {k}/{n}");
+        }
+    }
+    // The single tables have no set column; the pooled one leads with it, then holds the
+    // rows of a (set 1) and of b (set 2) as the single scorings wrote them.
+    let (ha, ra) = csv(&dir.join("scorea/matches.csv"));
+    let (hb, rb) = csv(&dir.join("scoreb/matches.csv"));
+    let (hp, rp) = csv(&dir.join("pooled/matches.csv"));
+    assert_eq!(ha[0], "id");
+    assert_eq!(hp[0], "set");
+    assert_eq!(hp[1..], ha[..]);
+    assert_eq!(hb, ha);
+    assert_eq!(rp.len(), ra.len() + rb.len());
+    for (k, r) in rp.iter().enumerate() {
+        let (set, want) = if k < ra.len() {
+            ("1", &ra[k])
+        } else {
+            ("2", &rb[k - ra.len()])
+        };
+        assert_eq!(r[0], set);
+        assert_eq!(&r[1..], &want[..], "row {k}");
+    }
+    // The report lists each pair and the pooled numbers.
+    let report = std::fs::read_to_string(dir.join("pooled/report.md")).unwrap();
+    assert!(report.contains("Pooled over 2 injections"), "{report}");
+    for t in ["a/synth-truth.csv", "b/synth-truth.csv"] {
+        assert!(report.contains(t), "{report}");
+    }
+    let recovered: u64 = pooled_bins.values().map(|c| c.1).sum();
+    assert!(
+        report.contains(&format!("Pooled: {recovered} of 60 cores were recovered")),
+        "{report}"
+    );
+
+    // One baseline (a run of the map before injection) serves both pairs; counts still add.
+    let o = cairn(
+        &[
+            "segment",
+            "base/synth.fits",
+            "-o",
+            "before",
+            "--no-figure",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for name in ["a", "b"] {
+        let o = cairn(
+            &[
+                "compare",
+                &format!("run{name}"),
+                "--truth",
+                &format!("{name}/synth-truth.csv"),
+                "--baseline",
+                "before",
+                "-o",
+                &format!("base{name}"),
+                "-q",
+            ],
+            dir,
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let mut with_baseline = pairs.to_vec();
+    with_baseline.extend_from_slice(&["--baseline", "before", "-o", "pooledbase"]);
+    let o = cairn(&with_baseline, dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let single = [
+        bin_counts(&dir.join("basea/completeness.csv")),
+        bin_counts(&dir.join("baseb/completeness.csv")),
+    ];
+    assert_eq!(
+        bin_counts(&dir.join("pooledbase/completeness.csv")),
+        summed(&single)
+    );
+    let (hp, _) = csv(&dir.join("pooledbase/matches.csv"));
+    assert_eq!(
+        (hp[0].as_str(), hp.last().unwrap().as_str()),
+        ("set", "own_leaf")
+    );
+
+    // A run of b made with another minimum area is pooled, but said to mix two extractions.
+    let o = cairn(
+        &[
+            "segment",
+            "b/synth.fits",
+            "-o",
+            "runb2",
+            "--min-area",
+            "20px",
+            "--no-figure",
+            "-q",
+            "--distance",
+            "250pc",
+            "--temperature",
+            "12K",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "compare",
+            "runa",
+            "runb2",
+            "--truth",
+            "a/synth-truth.csv",
+            "--truth",
+            "b/synth-truth.csv",
+            "-o",
+            "mixed",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr.contains("warning") && o.stderr.contains("min_area 20px"),
+        "{}",
+        o.stderr
+    );
+    let report = std::fs::read_to_string(dir.join("mixed/report.md")).unwrap();
+    assert!(report.contains("mixes two extractions"), "{report}");
+}
+
+/// Pooling refuses, in one sentence and with nothing written: counts of runs and truth tables
+/// that differ, a pair whose run is of the other injection's map (naming both), and one
+/// injection given twice.
+#[test]
+fn pooling_refuses_unpaired_or_mismatched_sets() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    for (name, seed) in [("a", "5"), ("b", "6")] {
+        let o = inject(dir, "base/synth.fits", name, &["--seed", seed]);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let o = cairn(
+            &[
+                "segment",
+                &format!("{name}/synth.fits"),
+                "-o",
+                &format!("run{name}"),
+                "--distance",
+                "250pc",
+                "--no-figure",
+                "-q",
+            ],
+            dir,
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let cases: [(&[&str], &str, &str); 4] = [
+        (
+            &["runa", "runb", "--truth", "a/synth-truth.csv"],
+            "--truth",
+            "2 runs and 1 truth table were given",
+        ),
+        (
+            &[
+                "runa",
+                "--truth",
+                "a/synth-truth.csv",
+                "--truth",
+                "b/synth-truth.csv",
+            ],
+            "--truth",
+            "1 run and 2 truth tables were given",
+        ),
+        (
+            &[
+                "runa",
+                "runb",
+                "--truth",
+                "b/synth-truth.csv",
+                "--truth",
+                "a/synth-truth.csv",
+            ],
+            "b/synth-truth.csv",
+            "the run runa/structures.csv was made on another map",
+        ),
+        (
+            &[
+                "runa",
+                "runa",
+                "--truth",
+                "a/synth-truth.csv",
+                "--truth",
+                "a/synth-truth.csv",
+            ],
+            "a/synth-truth.csv",
+            "count its cores twice",
+        ),
+    ];
+    for (given, names, says) in cases {
+        let mut args = vec!["compare"];
+        args.extend_from_slice(given);
+        args.extend_from_slice(&["-o", "out"]);
+        let o = cairn(&args, dir);
+        check_refused(&o, &args, names, says);
+        assert!(!dir.join("out").exists(), "{args:?}: nothing written");
+    }
+}
