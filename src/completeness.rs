@@ -1714,6 +1714,144 @@ mod tests {
         }
     }
 
+    /// A truth of cores of `masses`, a run with one leaf per core (mass_excess twice the
+    /// core's, mass three times) and a scoring in which the cores `found` are matched.
+    fn scored_pair(masses: &[f64], found: &[bool]) -> (Truth, Run, Scoring) {
+        let core = |i: usize, m: f64| TrueCore {
+            id: i as i64 + 1,
+            x: 0.0,
+            y: 0.0,
+            lon: 0.0,
+            lat: 0.0,
+            mass: m,
+        };
+        let truth = Truth {
+            path: PathBuf::from("t-truth.csv"),
+            cores: masses
+                .iter()
+                .enumerate()
+                .map(|(i, &m)| core(i, m))
+                .collect(),
+            map_sha256: None,
+            map_name: None,
+            spec: Err("none".into()),
+        };
+        let run = Run {
+            catalogue: PathBuf::from("run/structures.csv"),
+            leaves: masses
+                .iter()
+                .enumerate()
+                .map(|(i, &m)| Leaf {
+                    id: i as i64 + 1,
+                    lon: 0.0,
+                    lat: 0.0,
+                    mass: 3.0 * m,
+                    mass_excess: 2.0 * m,
+                })
+                .collect(),
+            input_sha256: String::new(),
+            beam_fwhm_arcsec: 18.0,
+            physics: serde_json::Value::Null,
+            unit_kind: String::new(),
+            other_inputs: serde_json::Value::Null,
+            parameters: serde_json::Value::Null,
+            unit: None,
+            beam: serde_json::Value::Null,
+            input: serde_json::Value::Null,
+        };
+        let matches: Vec<_> = found
+            .iter()
+            .enumerate()
+            .map(|(i, &f)| f.then_some((i, 1.0)))
+            .collect();
+        let b = bins(masses, found, 0.5);
+        let (limit_90, limit_at_lowest) = limit_of(&b, masses, 0.9);
+        let s = Scoring {
+            matches,
+            limit_90,
+            limit_at_lowest,
+            bins: b,
+            median_mass_ratio: 3.0,
+            median_excess_ratio: 2.0,
+            radius_arcsec: 18.0,
+            bin_dex: 0.5,
+            on_own_leaf: vec![None; masses.len()],
+            with_baseline: false,
+            baseline_differences: Vec::new(),
+        };
+        (truth, run, s)
+    }
+
+    /// Pooling by hand: set 1 holds 10 cores of 2 Msun (all found) and 10 of 0.5 Msun (8
+    /// found), so alone it is 90% complete only down to 2 Msun (the least mass of its bin
+    /// [1, 3.16)); set 2 holds 10 cores of 0.5 Msun, all found. Pooled, the bin [0.316, 1)
+    /// has 18 of 20 = 0.9, so the limit drops to 0.5 Msun, the least mass tried. Its Wilson
+    /// (1927) interval at z = 1 (the module doc's formula) is
+    /// (18.5 -+ sqrt(20) sqrt(0.09 + 1/80)) / 21 = (0.81277, 0.94913). The median ratios stay
+    /// 2 and 3 (every leaf holds twice and three times its core's mass).
+    #[test]
+    fn pooled_bins_add_the_sets_counts_and_set_the_limit_over_them() {
+        let mut m1 = vec![2.0; 10];
+        m1.extend([0.5; 10]);
+        let mut f1 = vec![true; 10];
+        f1.extend([true, true, true, true, true, true, true, true, false, false]);
+        let (t1, r1, s1) = scored_pair(&m1, &f1);
+        assert_eq!(s1.limit_90, Some(2.0));
+        let (t2, r2, s2) = scored_pair(&[0.5; 10], &[true; 10]);
+        let p = pool(&[(&t1, &r1, &s1), (&t2, &r2, &s2)], 0.5);
+        let counts: Vec<(usize, usize)> =
+            p.bins.iter().map(|b| (b.injected, b.recovered)).collect();
+        assert_eq!(counts, vec![(20, 18), (10, 10)]);
+        assert!((p.bins[0].lo - 10f64.powf(-0.5)).abs() < 1e-12);
+        assert!(
+            (p.bins[0].ci_lo - 0.81277).abs() < 1e-5,
+            "{}",
+            p.bins[0].ci_lo
+        );
+        assert!(
+            (p.bins[0].ci_hi - 0.94913).abs() < 1e-5,
+            "{}",
+            p.bins[0].ci_hi
+        );
+        assert_eq!((p.limit_90, p.limit_at_lowest), (Some(0.5), true));
+        assert_eq!((p.median_excess_ratio, p.median_mass_ratio), (2.0, 3.0));
+        assert_eq!(p.matches.len(), 30);
+        let table = pooled_matches_table(&[(&t1, &r1, &s1), (&t2, &r2, &s2)]).to_csv();
+        let rows: Vec<&str> = table.lines().filter(|l| !l.starts_with('#')).collect();
+        assert!(rows[0].starts_with("set,id,true_mass,"), "{}", rows[0]);
+        assert_eq!(rows.len(), 31);
+        assert!(rows[20].starts_with("1,20,0.5,") && rows[21].starts_with("2,1,0.5,"));
+    }
+
+    /// Runs are compared as their thresholds were given and by distance and temperature.
+    #[test]
+    fn runs_made_otherwise_are_named() {
+        let (_, mut a, _) = scored_pair(&[1.0], &[true]);
+        a.parameters = serde_json::json!({
+            "floor": {"given": "default", "value": 1.0},
+            "min_area": {"given": "default", "value": 11},
+            "connectivity": 8
+        });
+        a.physics = serde_json::json!({"distance_pc": 250.0, "temperature": "12 K"});
+        let mut b = a.clone();
+        b.parameters["floor"]["value"] = serde_json::json!(1.1);
+        assert!(
+            run_differences(&[&a, &b]).is_empty(),
+            "the same words given"
+        );
+        b.parameters["min_area"]["given"] = serde_json::json!("20px");
+        b.physics["distance_pc"] = serde_json::json!(300.0);
+        let d = run_differences(&[&a, &b]);
+        assert_eq!(d.len(), 1);
+        assert!(
+            d[0].contains("min_area 20px against default")
+                && d[0].contains("distance 300 pc against 250 pc")
+                && !d[0].contains("temperature"),
+            "{}",
+            d[0]
+        );
+    }
+
     #[test]
     fn the_limit_is_the_lowest_bin_from_which_all_above_stay_at_90_percent() {
         // 50%, 95%, 80%, 100%, empty, 90%: from the top, 90% and 100% pass, 80% stops.
