@@ -554,6 +554,18 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                     }
                     (None, String::new(), Source::Header)
                 }
+                // A column density or brightness cairn cannot read (a scale factor, as in
+                // '1e21 cm-2', or an unfamiliar spelling): refused rather than measured
+                // without masses, which would hide the masses the map holds.
+                (None, Some(_)) if opts.require_unit && looks_convertible(&text) => {
+                    return Err(Error::input(
+                        path,
+                        format!(
+                            "has BUNIT '{text}', which looks like a column density, extinction or brightness that cairn cannot read (a scale factor or an unfamiliar spelling); give --unit with one of {} (dividing out a scale factor first), or --unit other:UNIT to measure only the map's structure.",
+                            units::CONVERTED_UNITS
+                        ),
+                    ));
+                }
                 // Any other unit, or none: the structure is measured in the map's own unit.
                 (None, bunit) => {
                     let read = if text.is_empty() {
@@ -569,7 +581,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                         format!("BUNIT '{text}' is a unit cairn does not convert to column density")
                     };
                     warnings.push(format!(
-                        "{read}: only the structure is measured (hierarchy, positions, sizes, and sums and means in the map's unit), as masses and the physics need a map of dust emission, column density or extinction; if the header's unit is wrong, give --unit with one of {}.",
+                        "{read}: only the structure is measured (hierarchy, positions, sizes, and sums and means in the map's unit), as masses and the physics need a map of dust emission, column density or extinction; if the header's unit is wrong, give --unit with one of {}, or --unit other:UNIT to say the unit is meant.",
                         units::CONVERTED_UNITS
                     ));
                     (Some(PixelUnit::Other), text, Source::Header)
@@ -1281,6 +1293,26 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
         }
     }
     None
+}
+
+/// Whether a BUNIT that cairn does not parse still names a quantity cairn converts: a column
+/// density, an extinction or a dust brightness written with a scale factor (`1e21 cm-2`) or an
+/// unfamiliar spelling (`H2/cm2`, `mJy/arcsec2`, `W m-2 sr-1`). Velocity-integrated units
+/// (`K km/s`, `Jy/beam km/s`) are not: they are line maps, measured for their structure.
+fn looks_convertible(text: &str) -> bool {
+    let t = text.trim().to_ascii_lowercase();
+    if ["km/s", "km.s", "km s", "kms", "km*s"]
+        .iter()
+        .any(|v| t.contains(v))
+    {
+        return false;
+    }
+    t.starts_with(|c: char| c.is_ascii_digit() || c == '.')
+        || [
+            "cm", "jy", "sr", "mag", "m-2", "m**-2", "m^-2", "m2", "erg", "w m", "w/m", "w.m", "h2",
+        ]
+        .iter()
+        .any(|k| t.contains(k))
 }
 
 #[cfg(test)]

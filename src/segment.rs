@@ -738,7 +738,7 @@ pub fn catalogue(
             )
         } else {
             (
-                "integrated flux density of the structure (sum times the pixel's solid angle, divided by the beam's for a map per beam)",
+                "integrated flux density of the structure (sum times the pixel's solid angle, divided by the beam's for a map per beam; the sum itself for a map per pixel)",
                 "integrated flux density above the merge level (excess_sum converted as flux)",
             )
         };

@@ -492,3 +492,56 @@ fn noise_maps_and_common_resolution_of_such_maps() {
     );
     assert!(!dir.join("smooth-beam").exists());
 }
+
+/// A BUNIT that names a converted quantity cairn cannot read (a scale factor, an unfamiliar
+/// spelling) is refused with one sentence naming --unit and other:UNIT, rather than measured
+/// without the masses the map holds; velocity-integrated units and plain words still run.
+#[test]
+fn a_column_density_or_brightness_cairn_cannot_read_is_refused() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let base = cairn::map::load(
+        &dir.join("s/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    for (i, bunit) in [
+        "1e21 cm-2",
+        "H2/cm2",
+        "mJy/arcsec2",
+        "W m-2 sr-1",
+        "MJy/str",
+    ]
+    .iter()
+    .enumerate()
+    {
+        let mut h = base.header.clone();
+        h.set("BUNIT", cairn::header::Value::Str((*bunit).into()), "");
+        let name = format!("odd{i}.fits");
+        cairn::fits_write::write_image_f32(&dir.join(&name), base.data.view(), &h, false).unwrap();
+        let args = ["segment", name.as_str(), "-o", "run"];
+        let o = cairn(&args, dir);
+        check_refused(&o, &args, &name, "--unit other:UNIT");
+        assert!(o.stderr.contains(bunit), "{bunit}: {}", o.stderr);
+        assert!(!dir.join("run").exists());
+    }
+    for bunit in ["Jy/beam km/s", "counts"] {
+        let mut h = base.header.clone();
+        h.set("BUNIT", cairn::header::Value::Str(bunit.into()), "");
+        cairn::fits_write::write_image_f32(&dir.join("line.fits"), base.data.view(), &h, true)
+            .unwrap();
+        let o = cairn(
+            &[
+                "segment",
+                "line.fits",
+                "-o",
+                "line",
+                "--no-figure",
+                "--force",
+            ],
+            dir,
+        );
+        assert_eq!(o.code, 0, "{bunit}: {}", o.stderr);
+    }
+}
