@@ -43,6 +43,9 @@ pub struct Population {
     pub dropped: usize,
     /// The run record (null if none was found).
     pub run: serde_json::Value,
+    /// Whether the catalogue is of leaves measured over their grown footprints (`segment
+    /// --grow-leaves`), whose masses are taken down to the floor.
+    pub grown: bool,
 }
 
 /// The number in column `i` of row `n` (zero-based) of the catalogue `csv` whose column names
@@ -105,10 +108,14 @@ fn read_text(path: &Path) -> Result<String> {
         None
     };
     if let Some(what) = other {
+        let csv = path.with_extension("csv");
         return Err(Error::input(
             path,
             format!(
-                "is {what}, but compare reads the CSV catalogue: give the run folder or its structures.csv."
+                "is {what}, but compare reads the CSV catalogue: give the run folder or {}.",
+                csv.file_name()
+                    .map(|n| n.to_string_lossy())
+                    .unwrap_or_default()
             ),
         ));
     }
@@ -167,6 +174,10 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         states: Default::default(),
         dropped: 0,
         run: serde_json::Value::Null,
+        grown: catalogue
+            .lines()
+            .take_while(|l| l.starts_with('#'))
+            .any(|l| l.contains(crate::segment::GROWN_MARK)),
     };
     for (n, r) in rows.iter().enumerate() {
         let k = r.get(kind).map(String::as_str).unwrap_or("");
@@ -577,6 +588,20 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
         }
         (!v.is_null()).then(|| v.clone())
     };
+    // Leaves measured over grown footprints (down to the floor) beside leaves measured over
+    // their own: the masses are of different things.
+    let grown: Vec<&str> = pops
+        .iter()
+        .filter(|p| p.grown)
+        .map(|p| p.label.as_str())
+        .collect();
+    if !grown.is_empty() && grown.len() < pops.len() {
+        w.push(format!(
+            "{} {} leaves measured over their grown footprints (segment --grow-leaves: masses down to the floor) and the others over their own footprints (down to their merge levels), so their masses are not comparable; compare catalogues of one kind",
+            grown.join(", "),
+            if grown.len() == 1 { "holds" } else { "hold" },
+        ));
+    }
     // A catalogue without its run record: its assumptions and thresholds are unknown, said
     // once; the checks below weigh the populations that have one.
     let unrecorded: Vec<&str> = pops
@@ -1719,6 +1744,7 @@ mod tests {
             states: Default::default(),
             dropped: 0,
             run: serde_json::Value::Null,
+            grown: false,
         };
         let o = Options {
             resamples: 20,

@@ -1807,7 +1807,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     } else if m.wcs.is_none() && a.physics.distance.is_some() {
         // Asked for and not given: a warning, on stderr with --quiet too.
         errln!(
-            "warning: no masses or physics columns: {} has no celestial WCS, so its pixels have no size on the sky; give the map a header with CTYPE1/CTYPE2 and CDELT1/CDELT2 (or CD) keywords",
+            "warning: no masses or physics columns: {} has no celestial WCS, so its pixels have no size on the sky; give the map a header with CTYPE1/CTYPE2 and CDELT1/CDELT2 (or CD) keywords.",
             a.map.display()
         );
     } else if a.physics.distance.is_none() {
@@ -1936,19 +1936,19 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
     let mut pops = Vec::new();
     for (i, r) in a.runs.iter().enumerate() {
         // By default a run is named by its folder, a catalogue file by its name without
-        // extension, unless it is a run's own structures.csv.
+        // extension, unless it is a run's own structures.csv (its folder) or catalogue of
+        // grown leaves (its folder and "-grown").
         let label = a.label.get(i).cloned().unwrap_or_else(|| {
-            let own = r
-                .file_name()
-                .is_some_and(|n| n == cairn::segment::names::CSV);
+            let is = |name: &str| r.file_name().is_some_and(|n| n == name);
+            let grown = is(cairn::segment::names::GROWN_CSV);
             let name = if r.is_dir() {
                 r.file_name()
-            } else if own {
+            } else if grown || is(cairn::segment::names::CSV) {
                 r.parent().and_then(|p| p.file_name())
             } else {
                 r.file_stem()
             };
-            name.map(|n| n.to_string_lossy().into_owned())
+            name.map(|n| n.to_string_lossy().into_owned() + if grown { "-grown" } else { "" })
                 .unwrap_or_else(|| format!("run{}", i + 1))
         });
         // Labels go into the Markdown report and the CSV tables as they are.

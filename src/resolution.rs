@@ -225,14 +225,26 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
     // A unit cairn does not convert is smoothed and averaged as a brightness (K, K km/s),
     // which is wrong for one per beam or per pixel: their values change with the beam or the
     // pixel in a way cairn cannot know from the unit's text.
+    // Only units read as a brightness are smoothed: a temperature (K, mK, K km/s) or a
+    // quantity per steradian; a per-pixel count (Jy, counts, ADU) or a map without a unit is
+    // refused, as averaging would not keep its sums.
     if let Some(PixelUnit::Other) = map.unit {
         let lower = map.unit_text.to_ascii_lowercase();
-        if lower.contains("beam") || lower.contains("pix") {
+        let first = lower.split([' ', '.', '*', '/']).next().unwrap_or("");
+        let brightness = matches!(first, "k" | "mk" | "uk")
+            || lower.contains("/sr")
+            || lower.contains("sr-1")
+            || lower.contains("sr^-1");
+        if lower.contains("beam") || lower.contains("pix") || !brightness {
             return Err(Error::input(
                 path,
                 format!(
-                    "is in {}, a unit per beam or per pixel that cairn does not convert, so it cannot be rescaled to a new beam; bring it to the common resolution elsewhere, or leave out --common-resolution.",
-                    map.unit_text
+                    "is in {}, a unit that cairn does not convert and cannot tell to be a brightness (a temperature such as K or K km/s, or a quantity per steradian), so it cannot be rescaled to a new beam; bring it to the common resolution elsewhere, or leave out --common-resolution.",
+                    if map.unit_text.is_empty() {
+                        "no unit"
+                    } else {
+                        &map.unit_text
+                    }
                 ),
             ));
         }

@@ -500,6 +500,10 @@ pub enum Footprint {
     Grown,
 }
 
+/// The words of the grown catalogue's note that tell it from the main catalogue (read by
+/// `compare`).
+pub const GROWN_MARK: &str = "measured over its footprint grown down to the floor";
+
 /// Builds the catalogue table from the measurements, made over `footprint`.
 pub fn catalogue(
     map: &Map,
@@ -525,7 +529,7 @@ pub fn catalogue(
         ..Default::default()
     };
     if grown {
-        t.notes.push(format!("footprints: one row per leaf, measured over its footprint grown down to the floor ({}: the pixels above the floor reached from the leaf's own by a priority flood along descending values), not down to its merge level as in {}; id, kind, parent and depth are the leaf's in the hierarchy", names::GROWN, names::CSV));
+        t.notes.push(format!("footprints: one row per leaf, {GROWN_MARK} ({}: the pixels above the floor reached from the leaf's own by a priority flood along descending values), not down to its merge level as in {}; id, kind, parent and depth are the leaf's in the hierarchy", names::GROWN, names::CSV));
         t.notes.push("the reference level of a grown footprint is the floor: merge_level holds the floor, and excess_sum, mass_excess and the columns that use it (density, Jeans, Bonnor-Ebert, virial, free-fall, state) are taken above the floor".into());
     }
     t.notes.push("kind: leaf = no children (core candidate), branch = children and a parent, root = children and no parent; a top-level structure without children is a leaf with parent -1".into());

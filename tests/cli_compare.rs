@@ -584,7 +584,52 @@ fn compare_names_catalogue_files_and_says_once_when_a_run_record_is_missing() {
         &o,
         &args,
         "structures.fits",
-        "give the run folder or its structures.csv",
+        "give the run folder or structures.csv",
     );
     assert!(!d.path().join("cmp2").exists());
+}
+
+/// A catalogue of leaves measured over their grown footprints (`segment --grow-leaves`) is
+/// named by its run's folder and "-grown", and compared beside a catalogue over the leaves'
+/// own footprints only with a warning: the grown masses are taken down to the floor.
+#[test]
+fn compare_warns_when_grown_and_own_footprints_are_mixed() {
+    let d = tempfile::tempdir().unwrap();
+    cli::demo_run(d.path(), "a", &["--grow-leaves"]);
+    let args = [
+        "compare",
+        "a/structures-grown.csv",
+        "a",
+        "-o",
+        "cmp",
+        "--resamples",
+        "20",
+    ];
+    let o = cli::cairn_limited(&args, d.path(), 2_000_000);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let populations = std::fs::read_to_string(d.path().join("cmp/populations.csv")).unwrap();
+    assert!(populations.contains("\na-grown,"), "{populations}");
+    assert!(
+        o.stderr
+            .contains("warning: a-grown holds leaves measured over their grown footprints"),
+        "{}",
+        o.stderr
+    );
+    // Two catalogues of one kind: no such warning.
+    let args = [
+        "compare",
+        "a/structures-grown.csv",
+        "a/structures-grown.csv",
+        "--label",
+        "x",
+        "--label",
+        "y",
+        "-o",
+        "cmp2",
+        "--resamples",
+        "20",
+    ];
+    let o = cli::cairn_limited(&args, d.path(), 2_000_000);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("grown footprints"), "{}", o.stderr);
 }

@@ -486,11 +486,27 @@ fn noise_maps_and_common_resolution_of_such_maps() {
     let line = o.stderr.lines().last().unwrap_or("");
     assert!(line.contains("perbeam.fits"), "{}", o.stderr);
     assert!(
-        line.contains("a unit per beam or per pixel"),
+        line.contains("cannot tell to be a brightness"),
         "{}",
         o.stderr
     );
     assert!(!dir.join("smooth-beam").exists());
+    // A per-pixel count (not a brightness: averaging would not keep its sums) is refused too.
+    h.set("BUNIT", cairn::header::Value::Str("counts".into()), "");
+    cairn::fits_write::write_image_f32(&dir.join("counts.fits"), base.data.view(), &h, false)
+        .unwrap();
+    let o = smooth("counts.fits", "smooth-counts");
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .lines()
+            .last()
+            .unwrap_or("")
+            .contains("counts.fits"),
+        "{}",
+        o.stderr
+    );
+    assert!(!dir.join("smooth-counts").exists());
 }
 
 /// A BUNIT that names a converted quantity cairn cannot read (a scale factor, an unfamiliar

@@ -824,3 +824,54 @@ fn masses_asked_for_and_not_made_are_a_warning() {
     assert!(stdout.contains("no masses: "), "{stdout}");
     assert!(!stderr.contains("no masses"), "{stderr}");
 }
+
+/// The whole run from the command line with one and with two threads (RAYON_NUM_THREADS, which
+/// every pool of the run follows, the output writer's included): byte-identical catalogues,
+/// grown catalogues, label planes and hierarchy.
+#[test]
+fn command_line_runs_are_byte_identical_with_one_and_two_threads() {
+    let d = tempfile::tempdir().unwrap();
+    let map = fixture_map();
+    let mut outs = Vec::new();
+    for threads in ["1", "2"] {
+        let out = format!("run{threads}");
+        let o = Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args([
+                "segment",
+                map.to_str().unwrap(),
+                "-o",
+                &out,
+                "--noise",
+                "1e20",
+                "--distance",
+                "250pc",
+                "--temperature",
+                "12K",
+                "--grow-leaves",
+                "--no-figure",
+                "-q",
+            ])
+            .env("RAYON_NUM_THREADS", threads)
+            .current_dir(d.path())
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        outs.push(d.path().join(out));
+    }
+    for name in [
+        "structures.csv",
+        "structures.fits",
+        "structures-grown.csv",
+        "structures-grown.fits",
+        "structures-grown.vot",
+        "labels.fits",
+        "leaves-grown.fits",
+        "hierarchy.json",
+    ] {
+        assert!(
+            std::fs::read(outs[0].join(name)).unwrap()
+                == std::fs::read(outs[1].join(name)).unwrap(),
+            "{name} differs between one and two threads"
+        );
+    }
+}
