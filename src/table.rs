@@ -672,7 +672,8 @@ impl Table {
                     // file name, are written whole: continued on CONTINUE cards when they do
                     // not fit on one (FITS 4.0 section 4.2.1.2, continued string keywords).
                     let text = printable_ascii(v);
-                    continued |= key.len() + text.len() > 60;
+                    // Quotes are doubled on the card.
+                    continued |= key.len() + text.len() + text.matches('\'').count() > 60;
                     let cstr =
                         |t: &str| std::ffi::CString::new(t).expect("no NUL in printable ASCII");
                     let (kc, vc, cc) = (cstr(&key), cstr(&text), cstr(&c));
