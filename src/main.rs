@@ -1350,6 +1350,21 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         )));
     }
     let m = map::load(path, &opts)?;
+    // Cores of known mass need a unit that converts to column density; the load's warning
+    // about a unit without conversion (structure only) does not apply to an injection.
+    if m.unit == Some(units::PixelUnit::Other) {
+        return Err(Error::input(
+            path,
+            format!(
+                "is in {}, which has no conversion to column density, so cores of known mass cannot be injected into it; inject into a map of dust emission, column density or extinction (give --unit if the header's unit is wrong).",
+                if m.unit_text.is_empty() {
+                    "no unit".to_string()
+                } else {
+                    format!("'{}'", m.unit_text)
+                }
+            ),
+        ));
+    }
     let mut notes = Vec::new();
     let ctx = physics.context(&m, &mut notes)?;
     for n in &notes {
