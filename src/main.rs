@@ -448,24 +448,27 @@ impl MotionArgs {
     }
 }
 
+/// A quantity typed on the command line, of one of `dims`; a usage error names `what`.
+fn q(text: &str, dims: &[Dimension], what: &str) -> Result<units::Quantity> {
+    units::parse_quantity(text, dims, what).map_err(Error::usage)
+}
+
+/// `v` if it is positive and finite; `what` is the option with its value as given
+/// (`--distance -410pc`), as the value itself is in SI units by then.
+fn positive(v: f64, what: &str) -> Result<f64> {
+    if v > 0.0 && v.is_finite() {
+        Ok(v)
+    } else {
+        Err(Error::usage(format!(
+            "{what} must be positive and finite; give a positive value."
+        )))
+    }
+}
+
 impl PhysicsArgs {
     /// The physical assumptions; `notes` receives warnings about them.
     fn context(&self, map: &map::Map, notes: &mut Vec<String>) -> Result<cairn::score::Context> {
         use cairn::score::{Context, Field};
-        let q = |text: &str, dims: &[Dimension], what: &str| {
-            units::parse_quantity(text, dims, what).map_err(Error::usage)
-        };
-        // `what` is the option with its value as given (`--distance -410pc`), as the value
-        // itself is in SI units by now.
-        let positive = |v: f64, what: &str| -> Result<f64> {
-            if v > 0.0 && v.is_finite() {
-                Ok(v)
-            } else {
-                Err(Error::usage(format!(
-                    "{what} must be positive and finite; give a positive value."
-                )))
-            }
-        };
         let mut c = Context::default();
         if let Some(d) = &self.distance {
             c.distance_m = Some(positive(
@@ -947,18 +950,6 @@ fn dust_opacity(
     beta: Option<f64>,
     base: cairn::physics::DustOpacity,
 ) -> Result<cairn::physics::DustOpacity> {
-    let q = |text: &str, dims: &[Dimension], what: &str| {
-        units::parse_quantity(text, dims, what).map_err(Error::usage)
-    };
-    let positive = |v: f64, what: &str| -> Result<f64> {
-        if v > 0.0 && v.is_finite() {
-            Ok(v)
-        } else {
-            Err(Error::usage(format!(
-                "{what} must be positive and finite; give a positive value."
-            )))
-        }
-    };
     let mut o = base;
     if let Some(k) = opacity {
         o.kappa0_cm2_per_g = positive(
@@ -1022,9 +1013,6 @@ fn pair(text: &str, dim: Dimension, what: &str) -> Result<(f64, f64)> {
 }
 
 fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec> {
-    let q = |text: &str, dims: &[Dimension], what: &str| {
-        units::parse_quantity(text, dims, what).map_err(Error::usage)
-    };
     let mut spec = match &a.spec {
         Some(p) => {
             let text = std::fs::read_to_string(p)
