@@ -1126,7 +1126,7 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
         let (margin, reach) = synth::default_margin_px(&spec, r1 / units::PARSEC, profile);
         if margin < reach {
             notes.push(format!(
-                "a map of {} x {} pixels is too small to keep the random cores {reach} pixels (the widest core's reach with the beam) from its edges; they keep {margin}, so the beam may carry a little of the light of those near an edge off the map (give a larger --size or a smaller --core-radius to avoid it)",
+                "a map of {} x {} pixels is too small to keep the random cores {reach} pixels (the widest core's reach with the beam) from its edges; they keep {margin}, so a core near an edge may be cut by it (its mass put on the pixels inside, which changes its profile and peak, and part of its light carried off the map by the beam); give a larger --size or a smaller --core-radius to avoid it",
                 spec.nx, spec.ny
             ));
         }
