@@ -17,11 +17,9 @@
 //!    deviations, normalised to unit sum). The background is convolved periodically (by FFT
 //!    on the map's own grid), as it is periodic by construction, so its total is conserved.
 //!    The cores are convolved linearly, as if the sky beyond the map's edges were empty for
-//!    them: along each row and then each column, by FFT on a line padded with zeros to at
-//!    least its length plus the kernel's half width, so that nothing wraps round (values
-//!    beyond the kernel's reach of a line's nonzero pixels are set to exactly zero, as a
-//!    linear convolution leaves them). A core near an edge is not seen at the opposite edge;
-//!    the part of its light the beam carries beyond the edge is lost from the map.
+//!    them: each core's stamp directly, term by term, the same convolution that gives its
+//!    peak in the truth table. A core near an edge is not seen at the opposite edge; the part
+//!    of its light the beam carries beyond the edge is lost from the map.
 //! 4. Output units: column density in cm^-2, or optically thin dust emission
 //!    I = N mu_H2 m_H kappa_nu B_nu(T) in MJy/sr or Jy/beam (beam solid angle
 //!    pi FWHM^2 / (4 ln 2), common practice for a Gaussian beam).
@@ -335,12 +333,10 @@ pub const MAX_SIGMA_LN: f64 = 5.0;
 pub const MAX_SPECTRAL_INDEX: f64 = 10.0;
 /// Peak working memory per pixel while a map is made with a background: the real field
 /// (8 bytes) and the two complex buffers of the 2-D transform (16 + 16 bytes). The cores'
-/// layer, its transposed copy and the background (8 + 8 + 8 bytes) need less.
+/// layer, the background and the f32 map (8 + 8 + 4 bytes) need less.
 const BYTES_PER_PIXEL_FFT: u128 = 40;
-/// Peak working memory per pixel for cores convolved with a beam on an empty sky: the cores'
-/// layer and its transposed copy (the line transforms need only a line per thread).
-const BYTES_PER_PIXEL_BEAM: u128 = 16;
-/// Peak working memory per pixel without an FFT: the real field and the f32 map.
+/// Peak working memory per pixel without a background: the cores' layer (convolved core by
+/// core) and the f32 map.
 const BYTES_PER_PIXEL_PLAIN: u128 = 12;
 /// Working memory per core (its specification, a copy, its truth row).
 const BYTES_PER_CORE: u128 = 256;
@@ -376,8 +372,6 @@ fn pixel_count(spec: &SynthSpec) -> u128 {
 pub fn memory_needed(spec: &SynthSpec) -> u128 {
     let per_pixel = if spec.background.is_some() {
         BYTES_PER_PIXEL_FFT
-    } else if spec.beam_fwhm_arcsec > 0.0 {
-        BYTES_PER_PIXEL_BEAM
     } else {
         BYTES_PER_PIXEL_PLAIN
     };
@@ -991,104 +985,6 @@ fn taps_transfer(taps: &[f64], n: usize) -> Vec<f64> {
         .collect()
 }
 
-/// Smallest length at least `n` whose only prime factors are 2, 3, 5 and 7 (fast FFT sizes).
-fn smooth_length(n: usize) -> usize {
-    let mut m = n.max(1);
-    loop {
-        let mut r = m;
-        for p in [2, 3, 5, 7] {
-            while r.is_multiple_of(p) {
-                r /= p;
-            }
-        }
-        if r == 1 {
-            return m;
-        }
-        m += 1;
-    }
-}
-
-/// Linear (zero-padded, non-periodic) convolution of every line of `field` (lines of length
-/// `n`, contiguous) with the symmetric kernel `taps` (offsets -k..=k), in place: the value
-/// beyond a line's ends is taken as zero, and what the kernel carries beyond them is dropped.
-/// By FFT on a line of length at least n + min(k, n - 1), so that nothing wraps round onto the
-/// line (offsets beyond n - 1 cannot join two pixels of a line and are left out); values
-/// farther than k from every nonzero pixel of a line (beyond a core's reach, between cores)
-/// are set to exactly zero, as the convolution leaves them, and lines of zeros are left alone. Each line is transformed alone,
-/// so the result does not depend on the number of threads.
-fn convolve_lines_linear(field: &mut [f64], n: usize, taps: &[f64]) -> Result<(), NoMemory> {
-    let half = taps.len() / 2;
-    let k = half.min(n.saturating_sub(1));
-    let len = smooth_length(n + k);
-    let mut planner = FftPlanner::new();
-    let (fwd, inv) = (planner.plan_fft_forward(len), planner.plan_fft_inverse(len));
-    // The kernel wrapped onto the padded line, and its transform (real for a symmetric kernel,
-    // up to rounding; the real part is kept, as `taps_transfer` does), with 1/len folded in.
-    let mut kern = try_filled(len, Complex::new(0.0, 0.0))?;
-    for d in -(k as i64)..=k as i64 {
-        kern[d.rem_euclid(len as i64) as usize].re = taps[(d + half as i64) as usize];
-    }
-    fwd.process(&mut kern);
-    let norm = 1.0 / len as f64;
-    let transfer: Vec<f64> = kern.iter().map(|c| c.re * norm).collect();
-    drop(kern);
-    let scratch_len = fwd
-        .get_inplace_scratch_len()
-        .max(inv.get_inplace_scratch_len());
-    field.par_chunks_mut(n).for_each_init(
-        || {
-            (
-                vec![Complex::new(0.0, 0.0); len],
-                vec![Complex::new(0.0, 0.0); scratch_len],
-                vec![0usize; n + 1],
-            )
-        },
-        |(buf, scratch, count), line| {
-            // count[x] = nonzero pixels before x.
-            for (x, &v) in line.iter().enumerate() {
-                count[x + 1] = count[x] + usize::from(v != 0.0);
-            }
-            if count[n] == 0 {
-                return;
-            }
-            for (b, &v) in buf.iter_mut().zip(line.iter()) {
-                *b = Complex::new(v, 0.0);
-            }
-            buf[n..].fill(Complex::new(0.0, 0.0));
-            fwd.process_with_scratch(buf, scratch);
-            for (b, t) in buf.iter_mut().zip(&transfer) {
-                *b *= *t;
-            }
-            inv.process_with_scratch(buf, scratch);
-            for (x, v) in line.iter_mut().enumerate() {
-                let reached = count[(x + k + 1).min(n)] > count[x.saturating_sub(k)];
-                *v = if reached { buf[x].re } else { 0.0 };
-            }
-        },
-    );
-    Ok(())
-}
-
-/// out\[c * rows + r\] = inp\[r * cols + c\], for real fields.
-fn transpose_real(inp: &[f64], out: &mut [f64], rows: usize, cols: usize) {
-    out.par_chunks_mut(rows).enumerate().for_each(|(c, col)| {
-        for (r, o) in col.iter_mut().enumerate() {
-            *o = inp[r * cols + c];
-        }
-    });
-}
-
-/// Linear (zero-padded) convolution of the ny x nx field (row-major) with the separable
-/// kernel `taps` along x and then along y, in place (see [`convolve_lines_linear`]).
-fn convolve_linear(field: &mut [f64], nx: usize, ny: usize, taps: &[f64]) -> Result<(), NoMemory> {
-    convolve_lines_linear(field, nx, taps)?;
-    let mut t = try_filled(nx * ny, 0.0)?;
-    transpose_real(field, &mut t, ny, nx);
-    convolve_lines_linear(&mut t, ny, taps)?;
-    transpose_real(&t, field, nx, ny);
-    Ok(())
-}
-
 /// FFT plans and buffers for periodic filtering of an ny x nx real field.
 struct Fourier {
     nx: usize,
@@ -1229,48 +1125,59 @@ fn output_units(spec: &SynthSpec) -> (&'static str, f64) {
     }
 }
 
-/// Peak over the map's pixels of a stamp convolved (directly, linearly, as the map's cores
-/// are) with the separable beam.
-fn convolved_peak(
+/// Adds a core's stamp, convolved linearly (directly, term by term, the sky beyond the map's
+/// edges empty for it) with the separable beam `taps` (none: as it is), to the `nx`-wide
+/// `layer` over the map's pixels, and returns its peak there. What the beam carries beyond the
+/// edges is dropped, so a core near an edge is not seen at the opposite edge.
+fn add_convolved(
     stamp: &Stamp,
     taps: Option<&[f64]>,
+    layer: &mut [f64],
     nx: usize,
-    ny: usize,
 ) -> Result<f64, NoMemory> {
-    let Some(t) = taps else {
-        return Ok(stamp.values.iter().cloned().fold(0.0, f64::max));
+    let ny = layer.len() / nx;
+    let (out, k) = match taps {
+        None => (None, 0),
+        Some(t) => {
+            let k = t.len() / 2;
+            let w = stamp.w + 2 * k;
+            // Horizontal pass into a padded buffer, then vertical.
+            let mut tmp = try_filled(w * stamp.h, 0.0)?;
+            for j in 0..stamp.h {
+                for i in 0..stamp.w {
+                    let v = stamp.values[j * stamp.w + i];
+                    if v != 0.0 {
+                        for (d, tv) in t.iter().enumerate() {
+                            tmp[j * w + i + d] += v * tv;
+                        }
+                    }
+                }
+            }
+            let mut out = try_filled(w * (stamp.h + 2 * k), 0.0)?;
+            for j in 0..stamp.h {
+                for i in 0..w {
+                    let v = tmp[j * w + i];
+                    if v != 0.0 {
+                        for (d, tv) in t.iter().enumerate() {
+                            out[(j + d) * w + i] += v * tv;
+                        }
+                    }
+                }
+            }
+            (Some(out), k)
+        }
     };
-    let k = t.len() / 2;
+    let values = out.as_deref().unwrap_or(&stamp.values);
     let (w, h) = (stamp.w + 2 * k, stamp.h + 2 * k);
-    // Horizontal pass into a padded buffer, then vertical.
-    let mut tmp = try_filled(w * stamp.h, 0.0)?;
-    for j in 0..stamp.h {
-        for i in 0..stamp.w {
-            let v = stamp.values[j * stamp.w + i];
-            if v != 0.0 {
-                for (d, tv) in t.iter().enumerate() {
-                    tmp[j * w + i + d] += v * tv;
-                }
-            }
-        }
-    }
-    let mut out = try_filled(w * h, 0.0)?;
-    for j in 0..stamp.h {
-        for i in 0..w {
-            let v = tmp[j * w + i];
-            if v != 0.0 {
-                for (d, tv) in t.iter().enumerate() {
-                    out[(j + d) * w + i] += v * tv;
-                }
-            }
-        }
-    }
     // Output pixel (i, j) is map pixel (x0 + i - k, y0 + j - k); only those on the map count.
     let on_map = |i: usize, n: usize, o: usize| i + o >= k && i + o - k < n;
     let mut peak = 0.0f64;
     for j in (0..h).filter(|&j| on_map(j, ny, stamp.y0)) {
+        let row = (stamp.y0 + j - k) * nx;
         for i in (0..w).filter(|&i| on_map(i, nx, stamp.x0)) {
-            peak = peak.max(out[j * w + i]);
+            let v = values[j * w + i];
+            layer[row + stamp.x0 + i - k] += v;
+            peak = peak.max(v);
         }
     }
     Ok(peak)
@@ -1357,17 +1264,10 @@ pub fn generate_with_progress(
     let mut truth = Vec::new();
     for (i, core) in cores.iter().enumerate() {
         let stamp = render_core(core, spec, &mut be_cache).map_err(oom)?;
-        if let Some(layer) = layer.as_mut() {
-            for j in 0..stamp.h {
-                let row = (stamp.y0 + j) * nx + stamp.x0;
-                for (c, v) in layer[row..row + stamp.w]
-                    .iter_mut()
-                    .zip(&stamp.values[j * stamp.w..])
-                {
-                    *c += v;
-                }
-            }
-        }
+        let peak = match layer.as_mut() {
+            Some(layer) => add_convolved(&stamp, taps.as_deref(), layer, nx).map_err(oom)?,
+            None => 0.0,
+        };
         let (lon, lat) = pixel_to_world(spec, core.x, core.y);
         truth.push(TruthCore {
             id: i + 1,
@@ -1378,18 +1278,15 @@ pub fn generate_with_progress(
             mass_msun: core.mass_msun,
             radius_pc: core.radius_pc,
             profile: core.profile.name().to_string(),
-            peak: convolved_peak(&stamp, taps.as_deref(), nx, ny).map_err(oom)? * factor,
+            peak: peak * factor,
             peak_unit: unit.to_string(),
             peak_column_cm2: stamp.values.iter().cloned().fold(0.0, f64::max) * 1e-4,
         });
     }
     drop(cores);
 
-    // 3. Beam on the cores: linear, the sky beyond the edges empty; then the background added.
+    // 3. The cores, convolved as they were added, on the background.
     progress("beam", 0.5);
-    if let (Some(t), Some(layer)) = (&taps, layer.as_mut()) {
-        convolve_linear(layer, nx, ny, t).map_err(oom)?;
-    }
     let col = match (background, layer) {
         (Some(mut b), Some(l)) => {
             b.par_iter_mut()
@@ -1612,65 +1509,6 @@ mod tests {
         let orig = f.clone();
         assert!(Fourier::new(40, 30).filter(&mut f, |_, _| 1.0).is_ok());
         assert!(f.iter().zip(&orig).all(|(a, b)| (a - b).abs() < 1e-10));
-    }
-
-    /// Direct linear convolution of one line with zeros beyond its ends: out[x] = sum over d
-    /// of taps[d + k] line[x - d] (the definition, summed term by term).
-    fn direct_line(line: &[f64], taps: &[f64]) -> Vec<f64> {
-        let k = (taps.len() / 2) as i64;
-        let n = line.len() as i64;
-        (0..n)
-            .map(|x| {
-                (-k..=k)
-                    .filter(|d| (0..n).contains(&(x - d)))
-                    .map(|d| taps[(d + k) as usize] * line[(x - d) as usize])
-                    .sum()
-            })
-            .collect()
-    }
-
-    #[test]
-    fn line_convolution_is_the_direct_sum_with_zeros_outside() {
-        // Lines with a source at either end, in the middle, two apart and none; kernels
-        // narrower than the line and wider than it (whose far taps cannot join two pixels).
-        for (n, sigma) in [(40, 1.7), (40, 9.0), (13, 4.0), (7, 3.0)] {
-            let taps = beam_taps(sigma);
-            let mut lines = vec![vec![0.0; n]; 5];
-            lines[0][0] = 2.0;
-            lines[0][1] = 1.0;
-            lines[1][n - 1] = 3.0;
-            lines[2][n / 2] = 1.5;
-            lines[3][1] = 1.0;
-            lines[3][n - 2] = 0.25;
-            let mut field: Vec<f64> = lines.concat();
-            assert!(convolve_lines_linear(&mut field, n, &taps).is_ok());
-            for (l, got) in lines.iter().zip(field.chunks(n)) {
-                let want = direct_line(l, &taps);
-                let scale = l.iter().cloned().fold(0.0, f64::max);
-                for (x, (g, w)) in got.iter().zip(&want).enumerate() {
-                    assert!(
-                        (g - w).abs() <= 1e-14 * scale.max(1e-300),
-                        "n {n}, sigma {sigma}, x {x}: {g} vs direct {w}"
-                    );
-                    // Beyond the kernel's reach the direct sum is exactly zero, and so is
-                    // the result.
-                    if *w == 0.0 {
-                        assert_eq!(*g, 0.0, "n {n}, sigma {sigma}, x {x}");
-                    }
-                }
-            }
-            // The line of zeros stays zeros.
-            assert!(field[4 * n..].iter().all(|&v| v == 0.0));
-        }
-    }
-
-    #[test]
-    fn smooth_lengths_have_only_small_prime_factors() {
-        // Hand calculation: 11 -> 12 = 2^2 3, 97 -> 98 = 2 7^2, 1021 -> 1024 = 2^10,
-        // 8202 -> 8232 = 2^3 3 7^3 (8203 to 8231 each have a prime factor above 7).
-        for (n, want) in [(1, 1), (11, 12), (97, 98), (1021, 1024), (8202, 8232)] {
-            assert_eq!(smooth_length(n), want, "{n}");
-        }
     }
 
     /// A spec of one core on an empty sky, with a beam of 3 pixels FWHM.
