@@ -955,31 +955,21 @@ pub fn score_with_baseline(
             })
             .collect(),
     };
-    let kept: Vec<usize> = (0..cores.len())
-        .filter(|&i| on_own_leaf[i].is_none())
-        .collect();
-    let masses: Vec<f64> = kept.iter().map(|&i| truth.cores[i].mass).collect();
-    let found: Vec<bool> = kept.iter().map(|&i| matches[i].is_some()).collect();
-    let bins = bins(&masses, &found, bin_dex);
-    let ratio = |f: &dyn Fn(&Leaf) -> f64| -> Vec<f64> {
-        kept.iter()
-            .filter_map(|&i| matches[i].map(|(j, _)| f(&run.leaves[j]) / truth.cores[i].mass))
-            .collect()
-    };
-    let (limit_90, limit_at_lowest) = limit_of(&bins, &masses, 0.9);
-    Scoring {
-        limit_at_lowest,
-        limit_90,
-        median_mass_ratio: median(&ratio(&|l| l.mass)),
-        median_excess_ratio: median(&ratio(&|l| l.mass_excess)),
+    // The bins, limit and medians are those of this one pair pooled alone.
+    let matched = Scoring {
         matches,
-        bins,
+        bins: Vec::new(),
+        limit_90: None,
+        limit_at_lowest: false,
+        median_mass_ratio: f64::NAN,
+        median_excess_ratio: f64::NAN,
         radius_arcsec: radius,
         bin_dex,
         on_own_leaf,
         with_baseline: baseline.is_some(),
         baseline_differences: Vec::new(),
-    }
+    };
+    pool(&[(truth, run, &matched)], bin_dex)
 }
 
 /// Pools the scorings of several pairs of run and truth table (each matched within its own

@@ -1012,6 +1012,20 @@ fn pair(text: &str, dim: Dimension, what: &str) -> Result<(f64, f64)> {
     Ok((a, b))
 }
 
+/// `--profile` of synth: gaussian (the default) or bonnor-ebert (also as synth's records
+/// spell it, bonnor_ebert, or be).
+fn core_profile(text: Option<&str>) -> Result<synth::Profile> {
+    match text.map(str::to_ascii_lowercase).as_deref() {
+        None | Some("gaussian") => Ok(synth::Profile::Gaussian),
+        Some("bonnor-ebert") | Some("bonnor_ebert") | Some("be") => {
+            Ok(synth::Profile::critical_bonnor_ebert())
+        }
+        Some(other) => Err(Error::usage(format!(
+            "--profile '{other}' is not understood: give gaussian or bonnor-ebert."
+        ))),
+    }
+}
+
 fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec> {
     let mut spec = match &a.spec {
         Some(p) => {
@@ -1087,17 +1101,7 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
         }
         spec.background = Some(bg);
     }
-    let profile = match a.profile.as_deref().map(str::to_ascii_lowercase).as_deref() {
-        None | Some("gaussian") => synth::Profile::Gaussian,
-        Some("bonnor-ebert") | Some("bonnor_ebert") | Some("be") => {
-            synth::Profile::critical_bonnor_ebert()
-        }
-        Some(other) => {
-            return Err(Error::usage(format!(
-                "--profile '{other}' is not understood: give gaussian or bonnor-ebert."
-            )));
-        }
-    };
+    let profile = core_profile(a.profile.as_deref())?;
     if a.cores == Some(0) {
         // No random cores: none need room, and a spec's population is dropped.
         spec.population = None;
@@ -1309,17 +1313,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         Some(t) => pair(t, Dimension::Length, "--core-radius")?,
         None => (0.02 * units::PARSEC, 0.08 * units::PARSEC),
     };
-    let profile = match a.profile.as_deref().map(str::to_ascii_lowercase).as_deref() {
-        None | Some("gaussian") => synth::Profile::Gaussian,
-        Some("bonnor-ebert") | Some("bonnor_ebert") | Some("be") => {
-            synth::Profile::critical_bonnor_ebert()
-        }
-        Some(other) => {
-            return Err(Error::usage(format!(
-                "--profile '{other}' is not understood: give gaussian or bonnor-ebert."
-            )));
-        }
-    };
+    let profile = core_profile(a.profile.as_deref())?;
     let min_separation_arcsec = a
         .min_separation
         .as_deref()
