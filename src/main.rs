@@ -106,11 +106,15 @@ struct SegmentArgs {
     physics: PhysicsArgs,
     #[command(flatten)]
     motion: MotionArgs,
-    /// Lowest level considered: noise widths above the background (5sigma) or a value in the
-    /// map's unit.
+    /// Lowest level considered: noise widths above the background (5sigma), a value in the
+    /// map's unit, or on a map of another kind a column density (2e21cm-2) or an extinction
+    /// (7mag, of A_V unless --extinction-band K), converted as the masses are (this needs
+    /// --temperature on an emission map, and is refused with --temperature-map or on a
+    /// Jy/pixel map, whose conversion differs from pixel to pixel).
     #[arg(long, value_name = "LEVEL", allow_hyphen_values = true)]
     floor: Option<String>,
-    /// How far a peak must rise above the level where it meets a neighbour (3sigma, or map units).
+    /// How far a peak must rise above the level where it meets a neighbour (3sigma, map
+    /// units, or a column density or extinction as for --floor).
     #[arg(long, value_name = "LEVEL", allow_hyphen_values = true)]
     prominence: Option<String>,
     /// Least area of a leaf: pixels (12px or 12), beams (1beam) or sky area (400arcsec2).
@@ -1695,17 +1699,23 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     .flatten()
     .collect();
     output::refuse_inputs_as_outputs(&a.output, &segment::names::ALL.map(String::from), &aux)?;
+    let physics = {
+        let mut notes = Vec::new();
+        let mut c = a.physics.context(&m, &mut notes)?;
+        a.motion.apply(&m, &mut c)?;
+        for n in &notes {
+            errln!("warning: {n}");
+        }
+        c
+    };
+    let level = |text: &Option<String>, what: &str| {
+        text.as_deref()
+            .map(|t| segment::parse_level(t, &m, &physics, opts.band, what))
+            .transpose()
+    };
     let so = segment::SegmentOptions {
-        floor: a
-            .floor
-            .as_deref()
-            .map(|t| segment::parse_level(t, &m, "--floor"))
-            .transpose()?,
-        prominence: a
-            .prominence
-            .as_deref()
-            .map(|t| segment::parse_level(t, &m, "--prominence"))
-            .transpose()?,
+        floor: level(&a.floor, "--floor")?,
+        prominence: level(&a.prominence, "--prominence")?,
         min_area: a.min_area.as_deref().map(segment::parse_area).transpose()?,
         connectivity,
         grow_leaves: a.grow_leaves,
@@ -1716,15 +1726,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         command_line: std::env::args_os()
             .map(|a| a.to_string_lossy().into_owned())
             .collect(),
-        physics: {
-            let mut notes = Vec::new();
-            let mut c = a.physics.context(&m, &mut notes)?;
-            a.motion.apply(&m, &mut c)?;
-            for n in &notes {
-                errln!("warning: {n}");
-            }
-            c
-        },
+        physics,
         other_inputs: [
             ("temperature_map", a.physics.temperature_map.as_ref()),
             ("sigma_nt_map", a.motion.sigma_nt_map.as_ref()),
@@ -1774,6 +1776,13 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             None => "none (not measurable in this map; thresholds in map units only)".into(),
         }
     );
+    // A level given as a column density or an extinction on a map of another kind: what it
+    // stood for, as the summary's levels are in map units.
+    for (what, l) in [("--floor", so.floor), ("--prominence", so.prominence)] {
+        if let Some(note) = l.and_then(|l| l.conversion_note()) {
+            outln!("{what} read as {note}, converted to the map's unit as the masses are");
+        }
+    }
     // An extinction map's band changes its masses 8.9 times over, and BUNIT 'mag' does not
     // give it: the band read is said.
     if let Some(units::PixelUnit::Extinction { band }) = m.unit {

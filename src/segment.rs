@@ -33,6 +33,54 @@ pub enum Level {
     /// A multiple of the noise. As a floor it is counted from the background (the map's
     /// clipped median), as the default floor is; as a prominence it is a rise.
     Sigma(f64),
+    /// A column density or an extinction given for a map in another unit, turned into map
+    /// units by the run's own conversion (the one its masses use), which must be the same at
+    /// every pixel (see [`parse_level`]).
+    Converted {
+        /// The level in map units.
+        value: f64,
+        /// The H2 column density it stands for, m^-2.
+        n_h2_m2: f64,
+        /// As given: a column density (SI) or magnitudes of extinction.
+        given: units::Quantity,
+        /// The band of a level given in magnitudes.
+        band: units::ExtinctionBand,
+    },
+}
+
+impl Level {
+    /// The level in map units, unless it is in noise units.
+    pub fn map_value(&self) -> Option<f64> {
+        match *self {
+            Level::Value(v) | Level::Converted { value: v, .. } => Some(v),
+            Level::Sigma(_) => None,
+        }
+    }
+
+    /// How a converted level was read, such as "7mag of A_V = 6.58e21 cm-2 of H2" (None for
+    /// the others).
+    pub fn conversion_note(&self) -> Option<String> {
+        match *self {
+            Level::Converted {
+                n_h2_m2,
+                given,
+                band,
+                ..
+            } => Some(match given.dim {
+                Dimension::Magnitude => format!(
+                    "{}mag of {} = {} cm-2 of H2",
+                    units::tidy(given.si),
+                    match band {
+                        units::ExtinctionBand::V => "A_V",
+                        units::ExtinctionBand::K => "A_K",
+                    },
+                    units::tidy(n_h2_m2 * 1e-4)
+                ),
+                _ => format!("{} cm-2 of H2", units::tidy(n_h2_m2 * 1e-4)),
+            }),
+            _ => None,
+        }
+    }
 }
 
 /// An area threshold.
@@ -46,29 +94,119 @@ pub enum Area {
     SolidAngle(f64),
 }
 
-/// Parses `--floor`/`--prominence`: `5sigma`, a plain number in map units, or a quantity of
-/// the map's kind.
-pub fn parse_level(text: &str, map: &Map, what: &str) -> Result<Level> {
+/// Parses `--floor`/`--prominence`: `5sigma`, a plain number in map units, a quantity of the
+/// map's kind, or, on a map of another kind, a column density (`2e21cm-2`) or an extinction
+/// (`7mag`, in `band`: A_V unless `--extinction-band K`).
+///
+/// A column density or extinction on a map of another kind is turned into map units with the
+/// conversion the run's column densities and masses use ([`crate::score::Converter`]): N(H2)
+/// per magnitude of A_V (`--column-per-av`) and A_V per A_K for extinction, and for dust
+/// emission the temperature, opacity law and wavelength. The conversion is linear, so a
+/// prominence (a rise) converts as a floor does. It must be the same at every pixel: a map
+/// with a temperature map, or in Jy/pixel (whose pixels' solid angles differ), is refused
+/// such levels.
+pub fn parse_level(
+    text: &str,
+    map: &Map,
+    physics: &crate::score::Context,
+    band: units::ExtinctionBand,
+    what: &str,
+) -> Result<Level> {
     if let Ok(q) = units::parse_quantity(text, &[Dimension::Sigma], what) {
         return Ok(Level::Sigma(q.si));
     }
-    match units::parse_map_value(text, map.unit, what) {
-        Ok(v) => Ok(Level::Value(v)),
-        Err(e) => Err(Error::usage(format!(
-            "{what} '{text}' is {}: give a multiple of the noise such as 5sigma, or a value in the map's unit ({}) such as {}.",
-            // A well-formed quantity of another kind says which kind it is.
-            e.split_once("' is ")
-                .and_then(|(_, rest)| rest.split_once(", but "))
-                .map(|(kind, _)| format!("{kind}, not a level of this map"))
-                .unwrap_or_else(|| "not understood".into()),
-            if map.unit_text.is_empty() {
-                "none"
-            } else {
-                &map.unit_text
-            },
-            example_value(map)
-        ))),
+    let e = match units::parse_map_value(text, map.unit, what) {
+        Ok(v) => return Ok(Level::Value(v)),
+        Err(e) => e,
+    };
+    let convertible = !matches!(map.unit, Some(units::PixelUnit::Other) | None);
+    if convertible
+        && let Ok(q) = units::parse_quantity(
+            text,
+            &[Dimension::ColumnDensity, Dimension::Magnitude],
+            what,
+        )
+    {
+        return converted_level(text, q, map, physics, band, what);
     }
+    Err(Error::usage(format!(
+        "{what} '{text}' is {}: give a multiple of the noise such as 5sigma, or a value in the map's unit ({}) such as {}{}.",
+        // A well-formed quantity of another kind says which kind it is.
+        e.split_once("' is ")
+            .and_then(|(_, rest)| rest.split_once(", but "))
+            .map(|(kind, _)| format!("{kind}, not a level of this map"))
+            .unwrap_or_else(|| "not understood".into()),
+        if map.unit_text.is_empty() {
+            "none"
+        } else {
+            &map.unit_text
+        },
+        example_value(map),
+        match map.unit {
+            Some(units::PixelUnit::Other) | None => "",
+            Some(units::PixelUnit::ColumnDensity { .. }) => ", or an extinction such as 7mag",
+            Some(units::PixelUnit::Extinction { .. }) => ", or a column density such as 2e21cm-2",
+            Some(_) => ", or a column density such as 2e21cm-2 or an extinction such as 7mag",
+        }
+    )))
+}
+
+/// A column density or extinction level in the units of a map of another kind.
+fn converted_level(
+    text: &str,
+    q: units::Quantity,
+    map: &Map,
+    physics: &crate::score::Context,
+    band: units::ExtinctionBand,
+    what: &str,
+) -> Result<Level> {
+    let n_h2_m2 = match q.dim {
+        Dimension::Magnitude => {
+            q.si * physics.nh2_per_av_m2
+                * match band {
+                    units::ExtinctionBand::V => 1.0,
+                    units::ExtinctionBand::K => physics.av_per_ak,
+                }
+        }
+        _ => q.si,
+    };
+    let unit = if map.unit_text.is_empty() {
+        "no unit".to_string()
+    } else {
+        format!("'{}'", map.unit_text)
+    };
+    let refuse = |why: String| {
+        Error::usage(format!(
+            "{what} '{text}' is {}, which on the map {} (in {unit}) is converted to the map's unit as the masses are, but {why}; or give the level in the map's unit (such as {}) or in noise units (such as 5sigma).",
+            match q.dim {
+                Dimension::Magnitude => "an extinction",
+                _ => "a column density",
+            },
+            map.path.display(),
+            example_value(map)
+        ))
+    };
+    let conv = crate::score::Converter::new(map, physics).map_err(refuse)?;
+    let factor = conv.uniform_factor().ok_or_else(|| {
+        refuse(
+            if matches!(map.unit, Some(units::PixelUnit::FluxPerPixel { .. })) {
+                "the conversion of a Jy/pixel map differs from pixel to pixel (each pixel's solid angle)".to_string()
+            } else {
+                "the conversion differs from pixel to pixel (the temperature map)".to_string()
+            },
+        )
+    })?;
+    if !(factor.is_finite() && factor > 0.0) {
+        return Err(refuse(format!(
+            "the conversion factor is not a positive number ({factor:e} m^-2 per map unit)"
+        )));
+    }
+    Ok(Level::Converted {
+        value: n_h2_m2 / factor,
+        n_h2_m2,
+        given: q,
+        band,
+    })
 }
 
 fn example_value(map: &Map) -> &'static str {
@@ -180,7 +318,7 @@ fn resolve_with(
     let (sigma, source) = inspect::noise_for_with(map, &o.noise, noise_map)?;
     // The background level (clipped median) is needed only for a floor in noise units (the
     // default one included): such a floor is that many noise widths above the background.
-    let background = if !matches!(o.floor, Some(Level::Value(_))) {
+    let background = if o.floor.and_then(|l| l.map_value()).is_none() {
         // A map whose pixels mostly share one value still has that value as its median.
         match noise::clipped_stats(map.data.view()) {
             Ok(c) => Some(c.median),
@@ -199,7 +337,7 @@ fn resolve_with(
         })
     };
     let floor = match o.floor {
-        Some(Level::Value(v)) => v,
+        Some(Level::Value(v) | Level::Converted { value: v, .. }) => v,
         Some(Level::Sigma(k)) => background.unwrap_or(0.0) + k * need_sigma("--floor")?,
         None => {
             background.unwrap_or(0.0)
@@ -207,13 +345,14 @@ fn resolve_with(
         }
     };
     let prominence = match o.prominence {
-        Some(Level::Value(v)) => v,
+        Some(Level::Value(v) | Level::Converted { value: v, .. }) => v,
         Some(Level::Sigma(k)) => k * need_sigma("--prominence")?,
         None => 3.0 * need_sigma("the default prominence (3 sigma)")?,
     };
     if prominence.is_nan() || prominence < 0.0 {
         let given = match o.prominence {
             Some(Level::Sigma(k)) => format!("{k}sigma"),
+            Some(l @ Level::Converted { .. }) => l.conversion_note().unwrap_or_default(),
             _ => format!("{prominence}"),
         };
         return Err(Error::usage(format!(
@@ -265,6 +404,7 @@ fn resolve_with(
     }
     let show = |l: Option<Level>| match l {
         Some(Level::Value(v)) => format!("{v}"),
+        Some(l @ Level::Converted { .. }) => l.conversion_note().unwrap_or_default(),
         Some(Level::Sigma(k)) => format!("{k}sigma"),
         None => "default".to_string(),
     };
@@ -1136,6 +1276,10 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             let file = map.path.display();
             let noise = r.noise.map(|n| format!("{n:.4e}")).unwrap_or_default();
             return Err(Error::usage(match o.floor {
+                Some(l @ Level::Converted { .. }) => format!(
+                    "--floor {} ({floor:.4e} in map units) lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one).",
+                    l.conversion_note().unwrap_or_default()
+                ),
                 Some(Level::Value(_)) => format!(
                     "--floor {floor:.4e} lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one)."
                 ),
