@@ -1705,6 +1705,10 @@ fn grown_catalogue(
 fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, String)> {
     use crate::table::fmt_f64;
     let mut v = vec![];
+    // A map in a unit without conversion to column density is measured for its structure
+    // alone: the assumptions that only the column densities, masses and physics use are left
+    // out (the run record keeps all that was given).
+    let converted = !matches!(map.unit, Some(units::PixelUnit::Other) | None);
     if let Some(d) = ctx.distance_m {
         v.push((
             "distance".into(),
@@ -1712,7 +1716,7 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
             "pc".into(),
         ));
     }
-    if let Some(t) = &ctx.temperature_k {
+    if let Some(t) = ctx.temperature_k.as_ref().filter(|_| converted) {
         v.push(match t {
             crate::score::Field::Uniform(k) => (
                 "temperature".into(),
@@ -1766,6 +1770,9 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
             "cm-2 mag-1".into(),
         ));
         v.push(("av_per_ak".into(), fmt_f64(ctx.av_per_ak), String::new()));
+    }
+    if !converted {
+        return v;
     }
     v.push((
         "mu_h2".into(),

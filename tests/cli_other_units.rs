@@ -163,6 +163,18 @@ fn a_k_km_s_map_gives_the_structure_of_the_same_pixels_in_cm2() {
     let csv = std::fs::read_to_string(dir.join("kel/structures.csv")).unwrap();
     assert!(csv.contains("# column peak [K km/s]:"), "{csv}");
     assert!(csv.contains("# column sum [K km pixel/s]:"), "{csv}");
+    // The header lists only the assumptions the run used: the distance (sizes in pc) and the
+    // beam, not the temperature and molecular weights that only the masses would use.
+    let col_csv = std::fs::read_to_string(dir.join("col/structures.csv")).unwrap();
+    for name in ["distance", "temperature", "mu_h2", "mu_p", "m_h"] {
+        let line = format!("# parameter {name} = ");
+        assert!(col_csv.contains(&line), "cm-2 run lacks {name}");
+        assert_eq!(
+            csv.contains(&line),
+            name == "distance",
+            "K km/s run and {name}"
+        );
+    }
     let mut f = fitsio::FitsFile::open(dir.join("kel/structures.fits")).unwrap();
     let hdu = f.hdu(1).unwrap();
     let tfields: i64 = hdu.read_key(&mut f, "TFIELDS").unwrap();
