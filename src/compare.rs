@@ -518,7 +518,8 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         }
     };
     let mass_size_bootstrap = mass_size.as_ref().and_then(|_| {
-        let b = populations::bootstrap_mass_size(&tested_radii, &tested_masses, &boot).ok()?;
+        let b = populations::bootstrap_mass_size_with(&tested_radii, &tested_masses, &boot, tick)
+                .ok()?;
         if b.n_failed > 0 {
             notes.push(format!(
                 "{} of {} bootstrap resamples of the mass-size relation drew one radius only and are left out of its bootstrap spread",
@@ -745,8 +746,9 @@ pub fn compare_with_progress(
 ) -> Comparison {
     use rayon::prelude::*;
     use std::sync::atomic::{AtomicUsize, Ordering};
-    // Two passes of resamples per population: the tail's bootstrap and its goodness of fit.
-    let total = (2 * pops.len() * o.resamples).max(1);
+    // Three passes of resamples per population: the tail's bootstrap, its goodness of fit
+    // and the mass-size relation's bootstrap.
+    let total = (3 * pops.len() * o.resamples).max(1);
     let step = (total / 200).max(1);
     let done = AtomicUsize::new(0);
     let tick = || {
@@ -1800,5 +1802,64 @@ mod tests {
             let e = matching_run(csv, &catalogue, run, &other).unwrap_err();
             assert!(e.to_string().contains("different runs"), "{e}");
         }
+    }
+}
+
+#[cfg(test)]
+mod progress_tests {
+    use super::*;
+
+    /// Every resample is counted: the tail's bootstrap, its goodness of fit and the mass-size
+    /// bootstrap of each population, so the last fraction reported is 1 when all three run
+    /// (masses of a power law with alpha = 2.5 by inversion of its cumulative distribution,
+    /// CSN eq. D.4, and radii growing with mass, so every fit exists), and the results are
+    /// those of `compare` without progress.
+    #[test]
+    fn progress_counts_every_resample() {
+        use rand::{RngExt, SeedableRng};
+        use std::sync::Mutex;
+        let pops: Vec<Population> = (0..2)
+            .map(|k| {
+                let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11 + k);
+                let masses: Vec<f64> = (0..300)
+                    .map(|_| {
+                        let u: f64 = rng.random();
+                        0.3 * (1.0 - u).powf(-1.0 / 1.5)
+                    })
+                    .collect();
+                let radii = masses
+                    .iter()
+                    .map(|m| 0.05 * m.powf(0.5) * (1.0 + 0.3 * rng.random::<f64>()))
+                    .collect();
+                Population {
+                    label: format!("p{k}"),
+                    source: PathBuf::from(format!("p{k}.csv")),
+                    radii,
+                    densities: vec![1e5; masses.len()],
+                    masses,
+                    states: Default::default(),
+                    dropped: 0,
+                    run: serde_json::Value::Null,
+                    grown: false,
+                }
+            })
+            .collect();
+        let o = Options {
+            resamples: 50,
+            ..Options::default()
+        };
+        let seen = Mutex::new(Vec::new());
+        let c = compare_with_progress(&pops, &o, &|f| seen.lock().unwrap().push(f));
+        let seen = seen.into_inner().unwrap();
+        let most = seen.iter().copied().fold(0.0, f64::max);
+        assert_eq!(most, 1.0, "{} reports", seen.len());
+        // Fewer resamples than 200 per report step: one report per resample.
+        assert_eq!(seen.len(), 3 * pops.len() * o.resamples);
+        for s in &c.summaries {
+            assert!(s.tail_bootstrap.is_some() && s.tail_gof.is_some());
+            assert!(s.mass_size_bootstrap.is_some());
+        }
+        let plain = compare(&pops, &o);
+        assert_eq!(format!("{:?}", c.summaries), format!("{:?}", plain.summaries));
     }
 }

@@ -58,8 +58,8 @@ pub use powerlaw::{
     scan_xmin,
 };
 pub use regression::{
-    LineFit, SlopeBootstrap, SlopeDifference, bootstrap_mass_size, bootstrap_slope, fit_line,
-    fit_mass_size, slope_difference,
+    LineFit, SlopeBootstrap, SlopeDifference, bootstrap_mass_size, bootstrap_mass_size_with,
+    bootstrap_slope, bootstrap_slope_with, fit_line, fit_mass_size, slope_difference,
 };
 pub use summary::{median, percentile, percentiles};
 pub use tail_lognormal::{

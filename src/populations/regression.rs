@@ -144,6 +144,17 @@ pub struct SlopeBootstrap {
 
 /// Paired bootstrap of the least-squares slope of y on x (see the module documentation).
 pub fn bootstrap_slope(x: &[f64], y: &[f64], boot: &Bootstrap) -> Result<SlopeBootstrap, Error> {
+    bootstrap_slope_with(x, y, boot, &|| {})
+}
+
+/// [`bootstrap_slope`], calling `tick` once per resample (from any thread); the result does
+/// not depend on it.
+pub fn bootstrap_slope_with(
+    x: &[f64],
+    y: &[f64],
+    boot: &Bootstrap,
+    tick: &(dyn Fn() + Sync),
+) -> Result<SlopeBootstrap, Error> {
     // The same checks as the fit itself.
     fit_line(x, y)?;
     if boot.resamples < 2 {
@@ -164,7 +175,9 @@ pub fn bootstrap_slope(x: &[f64], y: &[f64], boot: &Bootstrap) -> Result<SlopeBo
                     xs.push(x[i]);
                     ys.push(y[i]);
                 }
-                fit_line(xs, ys).ok().map(|f| f.slope)
+                let slope = fit_line(xs, ys).ok().map(|f| f.slope);
+                tick();
+                slope
             },
         )
         .collect();
@@ -197,11 +210,21 @@ pub fn bootstrap_mass_size(
     masses: &[f64],
     boot: &Bootstrap,
 ) -> Result<SlopeBootstrap, Error> {
+    bootstrap_mass_size_with(radii, masses, boot, &|| {})
+}
+
+/// [`bootstrap_mass_size`], calling `tick` once per resample (from any thread).
+pub fn bootstrap_mass_size_with(
+    radii: &[f64],
+    masses: &[f64],
+    boot: &Bootstrap,
+    tick: &(dyn Fn() + Sync),
+) -> Result<SlopeBootstrap, Error> {
     check_values(radii, "radii", true)?;
     check_values(masses, "masses", true)?;
     let lr: Vec<f64> = radii.iter().map(|r| r.log10()).collect();
     let lm: Vec<f64> = masses.iter().map(|m| m.log10()).collect();
-    bootstrap_slope(&lr, &lm, boot)
+    bootstrap_slope_with(&lr, &lm, boot, tick)
 }
 
 /// The difference of two independently measured slopes.
