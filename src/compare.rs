@@ -1860,6 +1860,9 @@ mod progress_tests {
             assert!(s.mass_size_bootstrap.is_some());
         }
         let plain = compare(&pops, &o);
-        assert_eq!(format!("{:?}", c.summaries), format!("{:?}", plain.summaries));
+        assert_eq!(
+            format!("{:?}", c.summaries),
+            format!("{:?}", plain.summaries)
+        );
     }
 }

@@ -1426,6 +1426,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
             Some(p) => serde_json::json!({
                 "path": std::fs::canonicalize(p).unwrap_or_else(|_| p.clone()).to_string_lossy(),
                 "sha256": cairn::segment::sha256_file(p)?,
+                "values_sha256": ctx.temperature_k.as_ref().and_then(|t| t.values_sha256()),
             }),
             None => serde_json::Value::Null,
         },

@@ -89,6 +89,24 @@ pub enum Field {
 }
 
 impl Field {
+    /// For a field given pixel by pixel, the SHA-256 of its values as used (row by row, each
+    /// value's IEEE 754 single-precision bits, little-endian), in hexadecimal: two files that
+    /// hold the same values have the same digest whatever their headers or data types.
+    pub fn values_sha256(&self) -> Option<String> {
+        use sha2::{Digest, Sha256};
+        let Field::Map(m) = self else { return None };
+        let mut h = Sha256::new();
+        let mut buf = Vec::with_capacity(4 * m.ncols());
+        for row in m.rows() {
+            buf.clear();
+            for v in row {
+                buf.extend_from_slice(&v.to_bits().to_le_bytes());
+            }
+            h.update(&buf);
+        }
+        Some(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
+    }
+
     fn at(&self, y: usize, x: usize) -> f64 {
         match self {
             Field::Uniform(v) => *v,

@@ -1603,10 +1603,17 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     for (name, p) in o.other_inputs.iter().cloned().chain(noise_map) {
         let (path_text, _) =
             input_path_record(&std::fs::canonicalize(&p).unwrap_or_else(|_| p.clone()));
-        other_inputs.insert(
-            name,
-            serde_json::json!({ "path": path_text, "sha256": sha256_file(&p)? }),
-        );
+        let mut entry = serde_json::json!({ "path": path_text, "sha256": sha256_file(&p)? });
+        // The values as used, which a re-saved copy of the same map keeps.
+        let field = match name.as_str() {
+            "temperature_map" => o.physics.temperature_k.as_ref(),
+            "sigma_nt_map" => o.physics.sigma_nt.as_ref(),
+            _ => None,
+        };
+        if let Some(v) = field.and_then(|f| f.values_sha256()) {
+            entry["values_sha256"] = v.into();
+        }
+        other_inputs.insert(name, entry);
     }
     let record = serde_json::json!({
         "cairn_version": env!("CARGO_PKG_VERSION"),

@@ -1242,6 +1242,10 @@ fn a_temperature_map_injects_as_its_temperature_and_is_checked_by_sha256() {
         let field = map.data.mapv(|_| t);
         cairn::fits_write::write_image_f32(&dir.join(name), field.view(), &h, true).unwrap();
     }
+    // The 14 K map saved again with one more keyword: another file, the same temperatures.
+    h.set("OBSERVER", cairn::header::Value::Str("nobody".into()), "");
+    let field = map.data.mapv(|_| 14.0f32);
+    cairn::fits_write::write_image_f32(&dir.join("t14copy.fits"), field.view(), &h, true).unwrap();
     let demo = demo.to_str().unwrap();
     let with = |out: &str, extra: &[&str]| {
         let mut args = vec![
@@ -1300,11 +1304,25 @@ fn a_temperature_map_injects_as_its_temperature_and_is_checked_by_sha256() {
     );
     let other = segment_and_score("other", &["--temperature-map", "t15.fits"]);
     assert!(
-        other.contains("warning: the run's temperature map (SHA-256 ")
+        other.contains("warning: the run's temperature map (file SHA-256 ")
             && other.contains("is not the injection's, ")
-            && other.contains("t14.fits (SHA-256 "),
+            && other.contains("t14.fits (file SHA-256 ")
+            && other.contains("nor holds the same values"),
         "{other}"
     );
+    // A copy holding the same values is the same assumption: no warning, though its file's
+    // SHA-256 differs; the records name both by the values' SHA-256 too.
+    let copy = segment_and_score("copy", &["--temperature-map", "t14copy.fits"]);
+    assert!(!copy.contains("warning"), "{copy}");
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("copy/run.json")).unwrap()).unwrap();
+    let entry = &run["other_inputs"]["temperature_map"];
+    assert_ne!(entry["sha256"].as_str(), Some(sha14.as_str()));
+    assert_eq!(
+        entry["values_sha256"],
+        spec["temperature_map"]["values_sha256"]
+    );
+    assert_eq!(entry["values_sha256"].as_str().map(str::len), Some(64));
     let single = segment_and_score("single", &["--temperature", "14K"]);
     assert!(
         single.contains(
