@@ -79,6 +79,7 @@ fn child_segment(path: &Path, out: &Path) {
             ..Default::default()
         },
         other_inputs: Vec::new(),
+        threshold_texts: Default::default(),
         figure: None,
     };
     let t = Instant::now();

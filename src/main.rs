@@ -342,9 +342,10 @@ struct MapArgs {
     /// Unit of the pixels, instead of BUNIT: cm-2, m-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam, Jy/pixel; or other:UNIT (such as other:K km/s) for a unit cairn does not convert to column density, or none for values without a unit: the structure alone is measured, without masses.
     #[arg(long, value_name = "UNIT")]
     unit: Option<String>,
-    /// Band of an extinction map in magnitudes: V (A_V) or K (A_K).
-    #[arg(long, value_name = "V|K", default_value = "V")]
-    extinction_band: String,
+    /// Band of an extinction map in magnitudes: V (A_V) or K (A_K) [default: V, unless BUNIT
+    /// names the band, such as mag(AK)].
+    #[arg(long, value_name = "V|K")]
+    extinction_band: Option<String>,
     /// Beam FWHM instead of BMAJ/BMIN/BPA: `18.2arcsec`, or `major,minor,angle` such as `20arcsec,15arcsec,30deg`.
     #[arg(long, value_name = "FWHM", allow_hyphen_values = true)]
     beam: Option<String>,
@@ -855,7 +856,14 @@ struct InspectArgs {
 
 impl MapArgs {
     fn load_options(&self, require_unit: bool) -> Result<LoadOptions> {
-        let band = match self.extinction_band.trim().to_ascii_uppercase().as_str() {
+        let band = match self
+            .extinction_band
+            .as_deref()
+            .unwrap_or("V")
+            .trim()
+            .to_ascii_uppercase()
+            .as_str()
+        {
             "V" | "AV" | "A_V" => ExtinctionBand::V,
             "K" | "AK" | "A_K" => ExtinctionBand::K,
             other => {
@@ -904,6 +912,7 @@ impl MapArgs {
             plane: self.plane,
             unit: self.unit.clone(),
             band,
+            band_given: self.extinction_band.is_some(),
             beam,
             wavelength,
             require_unit,
@@ -934,7 +943,20 @@ fn run_inspect(args: &InspectArgs) -> Result<()> {
     for n in &notes {
         errln!("warning: {n}");
     }
-    let summary = inspect::summarise_with(&m, &choice, &ctx)?;
+    let mut summary = inspect::summarise_with(&m, &choice, &ctx)?;
+    // A map in magnitudes whose band nothing named: the assumption is said, as A_V and A_K
+    // give masses 8.9 times apart.
+    if let Some(units::PixelUnit::Extinction {
+        band: units::ExtinctionBand::V,
+    }) = m.unit
+        && args.read.extinction_band.is_none()
+        && units::named_band(&m.unit_text).is_none()
+    {
+        summary.warnings.push(format!(
+            "the unit '{}' does not name the extinction band, so the map is read as A_V; give --extinction-band K if it is of A_K",
+            m.unit_text
+        ));
+    }
     if args.json {
         let text =
             serde_json::to_string_pretty(&summary).map_err(|e| Error::internal(e.to_string()))?;
@@ -1084,7 +1106,8 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
         };
     }
     if let Some(d) = &a.distance {
-        spec.distance_pc = q(d, &[Dimension::Length], "--distance")?.si / units::PARSEC;
+        spec.distance_pc =
+            units::as_given(q(d, &[Dimension::Length], "--distance")?.si / units::PARSEC);
     }
     if let Some(b) = &a.beam {
         spec.beam_fwhm_arcsec = q(b, &[Dimension::Angle], "--beam")?.si / units::ARCSEC;
@@ -1282,7 +1305,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         hdu: a.hdu.clone(),
         plane: a.plane,
         unit: a.unit.clone(),
-        extinction_band: a.extinction_band.clone().unwrap_or_else(|| "V".into()),
+        extinction_band: a.extinction_band.clone(),
         beam: a.beam.clone(),
         wavelength: a.wavelength.clone(),
         noise: None,
@@ -1356,7 +1379,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
     for n in &notes {
         errln!("warning: {n}");
     }
-    let distance_pc = ctx.distance_m.unwrap_or(f64::NAN) / units::PARSEC;
+    let distance_pc = units::as_given(ctx.distance_m.unwrap_or(f64::NAN) / units::PARSEC);
     let inject_opts = cairn::inject::InjectOptions {
         population: synth::CorePopulation {
             count: n,
@@ -1737,6 +1760,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         .collect(),
         // The figure options are checked even with --no-figure, so that a mistake in them is
         // not silently ignored.
+        threshold_texts: [a.floor.clone(), a.prominence.clone(), a.min_area.clone()],
         figure: {
             let style = a.style.style(&m)?;
             (!a.no_figure).then_some(style)
@@ -1787,12 +1811,14 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     // An extinction map's band changes its masses 8.9 times over, and BUNIT 'mag' does not
     // give it: the band read is said.
     if let Some(units::PixelUnit::Extinction { band }) = m.unit {
+        // The band was assumed only when neither the option nor the unit named it.
+        let assumed = a.read.extinction_band.is_none() && units::named_band(&m.unit_text).is_none();
         outln!(
             "map read as {} in magnitudes{}",
             m.unit.map(|u| u.kind_name()).unwrap_or_default(),
             match band {
-                units::ExtinctionBand::V => "; give --extinction-band K if it is of A_K",
-                units::ExtinctionBand::K => "",
+                units::ExtinctionBand::V if assumed => "; give --extinction-band K if it is of A_K",
+                _ => "",
             }
         );
     }

@@ -140,6 +140,9 @@ pub struct LoadOptions {
     pub unit: Option<String>,
     /// The band of an extinction map in magnitudes.
     pub band: ExtinctionBand,
+    /// Whether the band was asked for (`--extinction-band`) rather than assumed: a unit that
+    /// names the other band (`mag(AV)`) is then refused as a contradiction.
+    pub band_given: bool,
     /// A beam to use instead of the header's.
     pub beam: Option<Beam>,
     /// A wavelength or frequency to use instead of the header's.
@@ -157,6 +160,7 @@ impl Default for LoadOptions {
             plane: None,
             unit: None,
             band: ExtinctionBand::V,
+            band_given: false,
             beam: None,
             wavelength: None,
             require_unit: true,
@@ -228,6 +232,9 @@ pub struct CommonResolution {
     pub distance_m: f64,
     /// The file's beam before smoothing.
     pub input_beam: Beam,
+    /// The side of the blocks of the file's pixels averaged into one pixel of the smoothed
+    /// map (1: not regridded); pixel positions and areas refer to the smoothed map's grid.
+    pub block: usize,
 }
 
 impl Map {
@@ -557,14 +564,18 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                 // A column density or brightness cairn cannot read (a scale factor, as in
                 // '1e21 cm-2', or an unfamiliar spelling): refused rather than measured
                 // without masses, which would hide the masses the map holds.
-                (None, Some(_)) if opts.require_unit && looks_convertible(&text) => {
-                    return Err(Error::input(
-                        path,
-                        format!(
-                            "has BUNIT '{text}', which looks like a column density, extinction or brightness that cairn cannot read (a scale factor or an unfamiliar spelling); give --unit with one of {} (dividing out a scale factor first), or --unit other:UNIT to measure only the map's structure.",
-                            units::CONVERTED_UNITS
-                        ),
-                    ));
+                (None, Some(_)) if looks_convertible(&text) => {
+                    let why = format!(
+                        "BUNIT '{text}', which looks like a column density, extinction or brightness that cairn cannot read (a scale factor or an unfamiliar spelling); give --unit with one of {} (dividing out a scale factor first), or --unit other:UNIT to measure only the map's structure",
+                        units::CONVERTED_UNITS
+                    );
+                    if opts.require_unit {
+                        return Err(Error::input(path, format!("has {why}.")));
+                    }
+                    // A command that only describes the map (inspect) says what a measuring
+                    // one would refuse.
+                    warnings.push(format!("the map has {why}; segment refuses it as it is"));
+                    (Some(PixelUnit::Other), text, Source::Header)
                 }
                 // Any other unit, or none: the structure is measured in the map's own unit.
                 (None, bunit) => {
@@ -589,6 +600,36 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
             }
         }
     };
+
+    // An extinction band asked for that the unit itself contradicts (`mag(AV)` with
+    // --extinction-band K): the masses differ by A_V/A_K, so neither is taken silently.
+    if opts.band_given
+        && let Some(PixelUnit::Extinction { band }) = unit
+        && band != opts.band
+    {
+        let name = |b: ExtinctionBand| match b {
+            ExtinctionBand::V => "A_V",
+            ExtinctionBand::K => "A_K",
+        };
+        let letter = match opts.band {
+            ExtinctionBand::V => "V",
+            ExtinctionBand::K => "K",
+        };
+        return Err(match unit_source {
+            Source::Header => Error::input(
+                path,
+                format!(
+                    "has BUNIT '{unit_text}', which names {}, but --extinction-band {letter} was given; if the map is of {}, give --unit mag with --extinction-band {letter} to read it so against the header, or else leave out --extinction-band.",
+                    name(band),
+                    name(opts.band)
+                ),
+            ),
+            _ => Error::usage(format!(
+                "--unit '{unit_text}' names {}, but --extinction-band {letter} was given: give the band once, as --unit mag with --extinction-band, or in the unit alone.",
+                name(band)
+            )),
+        });
+    }
 
     // Sky coordinates.
     // A WCS keyword given twice: WCSLIB (and so astropy.wcs and most viewers) reads the last

@@ -324,6 +324,7 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
         resolution_m,
         distance_m,
         input_beam: beam,
+        block: k.max(1),
     });
     out.beam = Some(new_beam);
     out.beam_source = Some(crate::map::Source::Option);

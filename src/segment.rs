@@ -275,6 +275,9 @@ pub struct SegmentOptions {
     /// `sigma_nt_map`), recorded in the run record with their SHA-256 (the noise map of
     /// [`NoiseChoice::Map`] is recorded as `noise_map` without being listed here).
     pub other_inputs: Vec<(String, PathBuf)>,
+    /// `--floor`, `--prominence` and `--min-area` as the user typed them, for the records
+    /// (`None`: described from the levels themselves).
+    pub threshold_texts: [Option<String>; 3],
     /// Figure style; `None` draws no figures (`--no-figure`).
     pub figure: Option<crate::render::Style>,
 }
@@ -392,21 +395,32 @@ fn resolve_with(
         };
         return Err(Error::usage(if o.min_area.is_some() {
             format!(
-                "--min-area of {area} pixels is larger than the whole map ({} pixels); give a smaller one.",
+                "--min-area of {area} pixels is larger than the whole map {} ({} pixels); give a smaller one.",
+                map.path.display(),
                 map.nx() * map.ny()
             )
         } else {
             format!(
-                "the default --min-area, one beam ({area} pixels), is larger than the whole map ({} pixels); check the beam (--beam) or give --min-area in px.",
+                "the default --min-area, one beam ({area} pixels), is larger than the whole map {} ({} pixels); check the beam (--beam) or give --min-area in px.",
+                map.path.display(),
                 map.nx() * map.ny()
             )
         }));
     }
-    let show = |l: Option<Level>| match l {
-        Some(Level::Value(v)) => format!("{v}"),
-        Some(l @ Level::Converted { .. }) => l.conversion_note().unwrap_or_default(),
-        Some(Level::Sigma(k)) => format!("{k}sigma"),
-        None => "default".to_string(),
+    let show = |l: Option<Level>, typed: &Option<String>| match (l, typed) {
+        (Some(l @ Level::Converted { given, .. }), Some(t)) => {
+            let note = l.conversion_note().unwrap_or_default();
+            if given.dim == Dimension::Magnitude {
+                note
+            } else {
+                format!("{} = {note}", t.trim())
+            }
+        }
+        (Some(_), Some(t)) => t.trim().to_string(),
+        (Some(Level::Value(v)), None) => crate::table::fmt_f64(v),
+        (Some(l @ Level::Converted { .. }), None) => l.conversion_note().unwrap_or_default(),
+        (Some(Level::Sigma(k)), None) => format!("{k}sigma"),
+        (None, _) => "default".to_string(),
     };
     let area_text = match o.min_area {
         Some(Area::Pixels(n)) => format!("{n}px"),
@@ -421,7 +435,14 @@ fn resolve_with(
         noise: sigma,
         noise_source: source,
         background,
-        given: [show(o.floor), show(o.prominence), area_text],
+        given: [
+            show(o.floor, &o.threshold_texts[0]),
+            show(o.prominence, &o.threshold_texts[1]),
+            match (o.min_area, &o.threshold_texts[2]) {
+                (Some(_), Some(t)) => t.trim().to_string(),
+                _ => area_text,
+            },
+        ],
     })
 }
 
@@ -674,6 +695,18 @@ pub fn catalogue(
     }
     t.notes.push("kind: leaf = no children (core candidate), branch = children and a parent, root = children and no parent; a top-level structure without children is a leaf with parent -1".into());
     t.notes.push("pixel coordinates are zero-based, (0,0) the centre of the first pixel; centroids and sizes are weighted by the map value".into());
+    if let Some(c) = &map.common_resolution {
+        t.notes.push(format!(
+            "the map was smoothed to a common resolution of {} pc at {} pc{}: pixel positions, areas and sizes in pixels refer to the grid of labels.fits, not to the input file's (the sky columns are the same on either)",
+            units::tidy(c.resolution_m / crate::physics::constants::PC),
+            units::tidy(c.distance_m / crate::physics::constants::PC),
+            if c.block > 1 {
+                format!(" and regridded by blocks of {0} x {0} of its pixels", c.block)
+            } else {
+                String::new()
+            }
+        ));
+    }
     t.notes.push(format!(
         "thresholds: floor {}, prominence {}, min area {} px",
         crate::table::fmt_f64(r.floor),
@@ -1430,6 +1463,11 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                     "unit of the map".into(),
                 ),
                 (
+                    "quantity".into(),
+                    map.unit.map(|u| u.kind_name()).unwrap_or("unknown").into(),
+                    "what the map's values measure".into(),
+                ),
+                (
                     "floor".into(),
                     crate::table::fmt_f64(r.floor),
                     format!("map units (given as {})", r.given[0]),
@@ -1466,13 +1504,26 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                     "cairn version".into(),
                 ),
             ];
+            let mut meta = meta;
+            if let Some(c) = &map.common_resolution {
+                meta.push((
+                    "common_resolution".into(),
+                    units::tidy(c.resolution_m / crate::physics::constants::PC),
+                    "pc, linear resolution the map was smoothed to (the beam below is the smoothed one)".into(),
+                ));
+                meta.push((
+                    "regrid_block".into(),
+                    c.block.to_string(),
+                    "input pixels per side of one pixel of the smoothed map (1: not regridded)"
+                        .into(),
+                ));
+            }
             let keep: Vec<usize> = (0..ms.len())
                 .filter(|&i| !o.leaves_only || ms[i].kind == Kind::Leaf)
                 .collect();
             let rows: Vec<&Measurement> = keep.iter().map(|&i| &ms[i]).collect();
             let phys_rows: Option<Vec<&crate::score::Physical>> =
                 phys.as_ref().map(|p| keep.iter().map(|&i| &p[i]).collect());
-            let mut meta = meta;
             meta.extend(physics_meta(&o.physics, map));
             let table = std::sync::Arc::new(catalogue(
                 map,
@@ -1634,8 +1685,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         "common_resolution": map.common_resolution.map(|c| serde_json::json!({
             "resolution_m": c.resolution_m,
             "distance_m": c.distance_m,
-            "resolution_pc": c.resolution_m / crate::physics::constants::PC,
-            "distance_pc": c.distance_m / crate::physics::constants::PC,
+            "resolution_pc": units::as_given(c.resolution_m / crate::physics::constants::PC),
+            "distance_pc": units::as_given(c.distance_m / crate::physics::constants::PC),
             "input_beam": c.input_beam,
         })),
         "result": { "leaves": leaves, "branches": branches, "roots": roots, "structures": ms.len(), "trees": trees },
@@ -1719,7 +1770,7 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
     if let Some(d) = ctx.distance_m {
         v.push((
             "distance".into(),
-            fmt_f64(d / crate::physics::constants::PC),
+            fmt_f64(units::as_given(d / crate::physics::constants::PC)),
             "pc".into(),
         ));
     }
@@ -1836,7 +1887,7 @@ pub fn physics_record(
         Some(ctx.mu_h2 * M_H * column * b.solid_angle_sr() * d * d / M_SUN)
     });
     serde_json::json!({
-        "distance_pc": ctx.distance_m.map(|d| d / PC),
+        "distance_pc": ctx.distance_m.map(|d| units::as_given(d / PC)),
         "temperature": ctx.temperature_k.as_ref().map(|t| t.describe("K")),
         "opacity": { "kappa0_cm2_per_g": ctx.opacity.kappa0_cm2_per_g, "nu0_hz": ctx.opacity.nu0_hz, "beta": ctx.opacity.beta },
         "mu_h2": ctx.mu_h2,

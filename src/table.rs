@@ -663,9 +663,56 @@ impl Table {
             let key = fits_key(k);
             // FITS header text is printable ASCII (FITS 4.0 section 4.2.1).
             let c = printable_ascii(c);
-            match v.parse::<f64>() {
-                Ok(x) if x.is_finite() => {
-                    hdu.write_key(&mut f, &key, (x, c.as_str())).map_err(fail)?
+            match (v.parse::<i64>(), v.parse::<f64>()) {
+                // Whole numbers as integers (an HDU index, a pixel count).
+                (Ok(n), _) => hdu.write_key(&mut f, &key, (n, c.as_str())).map_err(fail)?,
+                (_, Ok(x)) if x.is_finite() => {
+                    // The digits of the CSV's text, which give back the same double: in fixed
+                    // notation with its decimals (CFITSIO's F format) when that text has no
+                    // exponent, else in the E format with as many significant digits.
+                    let text = fmt_f64(x);
+                    let decim = match text.split_once('.') {
+                        Some((_, frac)) if !text.contains('e') => frac.len() as i32,
+                        _ => {
+                            -((1..=17)
+                                .find(|&n| format!("{:.*e}", n - 1, x).parse::<f64>() == Ok(x))
+                                .unwrap_or(17) as i32)
+                        }
+                    };
+                    let (kc, cc) = (
+                        std::ffi::CString::new(key.as_str()).expect("no NUL in a FITS key"),
+                        std::ffi::CString::new(c.as_str()).expect("no NUL in printable ASCII"),
+                    );
+                    let mut status = 0;
+                    // SAFETY: an open FitsFile on this table and NUL-terminated strings; a
+                    // negative `decim` asks ffpkyd for that many significant digits.
+                    unsafe {
+                        if decim >= 0 {
+                            fitsio::sys::ffpkyg(
+                                f.as_raw(),
+                                kc.as_ptr(),
+                                x,
+                                decim,
+                                cc.as_ptr(),
+                                &mut status,
+                            )
+                        } else {
+                            fitsio::sys::ffpkyd(
+                                f.as_raw(),
+                                kc.as_ptr(),
+                                x,
+                                decim,
+                                cc.as_ptr(),
+                                &mut status,
+                            )
+                        }
+                    };
+                    if status != 0 {
+                        return Err(Error::output(
+                            path,
+                            format!("cannot be written as FITS (CFITSIO status {status})."),
+                        ));
+                    }
                 }
                 _ => {
                     // Strings of any length, a SHA-256 after a HIERARCH keyword or a long

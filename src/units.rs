@@ -465,6 +465,32 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
     }
 }
 
+/// `x` rounded to 12 significant digits: a value given in one unit and held in SI (`400pc` in
+/// metres) comes back as given (400, not 400.00000000000006) for the records, where the
+/// rounding of the SI round trip, some 1e-16 of the value, would read as a digit given.
+pub fn as_given(x: f64) -> f64 {
+    if !x.is_finite() {
+        return x;
+    }
+    format!("{x:.11e}").parse().unwrap_or(x)
+}
+
+/// The extinction band a unit's text names itself (`mag(AK)`, `A_V`), or `None` for a unit
+/// whose band is assumed (`mag`) or that is no extinction.
+pub fn named_band(text: &str) -> Option<ExtinctionBand> {
+    match (
+        parse_pixel_unit(text, ExtinctionBand::V),
+        parse_pixel_unit(text, ExtinctionBand::K),
+    ) {
+        (Some(PixelUnit::Extinction { band: a }), Some(PixelUnit::Extinction { band: b }))
+            if a == b =>
+        {
+            Some(a)
+        }
+        _ => None,
+    }
+}
+
 /// The units `--unit` names cairn converts to column density, for messages.
 pub const CONVERTED_UNITS: &str = "cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel";
 

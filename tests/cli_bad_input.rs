@@ -527,7 +527,7 @@ fn a_pipe_and_an_area_beyond_counting_are_named() {
         &s,
         &["segment", "m.fits", "-o", "out", "--min-area", "1e30px"],
         "--min-area of 1.000e30 pixels",
-        "larger than the whole map",
+        "larger than the whole map m.fits (256 pixels)",
     );
 }
 

@@ -94,7 +94,13 @@ fn a_column_density_level_on_an_emission_map_is_the_masses_conversion() {
     }
     assert_eq!(
         record["parameters"]["floor"]["given"].as_str().unwrap(),
-        "3.4e21 cm-2 of H2"
+        "3.4e21cm-2 = 3.4e21 cm-2 of H2"
+    );
+    assert_eq!(
+        record["parameters"]["prominence"]["given"]
+            .as_str()
+            .unwrap(),
+        "1mag of A_V = 9.4e20 cm-2 of H2"
     );
 
     // The same levels in map units (the recorded values, which round-trip as text) give the

@@ -553,6 +553,30 @@ fn a_column_density_or_brightness_cairn_cannot_read_is_refused() {
         check_refused(&o, &args, &name, "--unit other:UNIT");
         assert!(o.stderr.contains(bunit), "{bunit}: {}", o.stderr);
         assert!(!dir.join("run").exists());
+        // inspect describes the map and says, in the same words, that segment refuses it
+        // (not that its structure would be measured).
+        let o = cairn(&["inspect", name.as_str(), "--json"], dir);
+        assert_eq!(o.code, 0, "{bunit}: {}", o.stderr);
+        let v: serde_json::Value = serde_json::from_str(&o.stdout).unwrap();
+        let warnings: Vec<&str> = v["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter_map(|w| w.as_str())
+            .collect();
+        assert!(
+            warnings.iter().any(
+                |w| w.contains(&format!("BUNIT '{bunit}', which looks like"))
+                    && w.ends_with("segment refuses it as it is")
+            ),
+            "{bunit}: {warnings:?}"
+        );
+        assert!(
+            !warnings
+                .iter()
+                .any(|w| w.contains("only the structure is measured")),
+            "{bunit}: {warnings:?}"
+        );
     }
     for bunit in ["Jy/beam km/s", "counts"] {
         let mut h = base.header.clone();

@@ -169,6 +169,29 @@ fn the_largest_suggested_resolution_is_accepted() {
         "{}",
         o.stderr
     );
+    // The catalogue says its pixel columns are on the smoothed map's grid (that of
+    // labels.fits), by how many of the file's pixels, and to what resolution.
+    let csv = std::fs::read_to_string(d.path().join("out/structures.csv")).unwrap();
+    let labels = map::load(
+        &d.path().join("out/labels.fits"),
+        &LoadOptions {
+            require_unit: false,
+            ..LoadOptions::default()
+        },
+    )
+    .unwrap();
+    let block = m.nx() / labels.nx();
+    assert!(block >= 2, "{} -> {}", m.nx(), labels.nx());
+    for says in [
+        "# parameter common_resolution = 0.1  (pc,".to_string(),
+        format!("# parameter regrid_block = {block}  ("),
+        format!(
+            "# note: the map was smoothed to a common resolution of 0.1 pc at 300 pc and regridded by blocks of {block} x {block} of its pixels: pixel positions, areas and sizes in pixels refer to the grid of labels.fits"
+        ),
+        "# parameter distance = 300.0  (pc)".to_string(),
+    ] {
+        assert!(csv.contains(&says), "{says}");
+    }
 }
 
 #[test]

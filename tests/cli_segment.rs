@@ -761,35 +761,92 @@ fn the_extinction_band_read_is_said() {
     h.set("BUNIT", cairn::header::Value::Str("mag".into()), "");
     let data = full.data.mapv(|v| v / 9.4e20);
     cairn::fits_write::write_image_f32(&d.path().join("av.fits"), data.view(), &h, false).unwrap();
+    // The band assumed (plain 'mag', no option): said, with the way to change it; asked for
+    // (or named by the unit): said without the hint.
     for (band, out, says) in [
         (
-            "V",
-            "v",
+            None,
+            "assumed",
             "map read as visual extinction A_V in magnitudes; give --extinction-band K",
         ),
         (
-            "K",
+            Some("V"),
+            "v",
+            "map read as visual extinction A_V in magnitudes\n",
+        ),
+        (
+            Some("K"),
             "k",
             "map read as K-band extinction A_K in magnitudes\n",
         ),
     ] {
-        let (code, stdout, stderr) = cairn(
-            &[
-                "segment",
-                "av.fits",
-                "-o",
-                out,
-                "--noise",
-                "0.1",
-                "--extinction-band",
-                band,
-                "--no-figure",
-            ],
-            d.path(),
-        );
+        let mut args = vec![
+            "segment",
+            "av.fits",
+            "-o",
+            out,
+            "--noise",
+            "0.1",
+            "--no-figure",
+        ];
+        if let Some(b) = band {
+            args.extend(["--extinction-band", b]);
+        }
+        let (code, stdout, stderr) = cairn(&args, d.path());
         assert_eq!(code, 0, "{stderr}");
-        assert!(stdout.contains(says), "{stdout}");
+        assert!(stdout.contains(says), "{band:?}: {stdout}");
+        let csv = std::fs::read_to_string(d.path().join(out).join("structures.csv")).unwrap();
+        let quantity = match band {
+            Some("K") => "K-band extinction A_K",
+            _ => "visual extinction A_V",
+        };
+        assert!(
+            csv.contains(&format!("# parameter quantity = {quantity}  ")),
+            "{band:?}: the catalogue names the band"
+        );
     }
+    // A unit that names its band: read so, and the option's contrary band refused in one
+    // sentence naming the file, as A_V and A_K give masses 8.9 times apart.
+    h.set("BUNIT", cairn::header::Value::Str("mag(AK)".into()), "");
+    cairn::fits_write::write_image_f32(&d.path().join("ak.fits"), data.view(), &h, false).unwrap();
+    let (code, stdout, stderr) = cairn(
+        &[
+            "segment",
+            "ak.fits",
+            "-o",
+            "named",
+            "--noise",
+            "0.1",
+            "--no-figure",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stdout.contains("map read as K-band extinction A_K in magnitudes\n"),
+        "{stdout}"
+    );
+    let args = [
+        "segment",
+        "ak.fits",
+        "-o",
+        "contrary",
+        "--extinction-band",
+        "V",
+        "--no-figure",
+    ];
+    let (code, stdout, stderr) = cairn(&args, d.path());
+    assert_eq!(code, 2, "{stderr}");
+    assert!(stdout.is_empty(), "{stdout}");
+    assert_eq!(stderr.trim_end().lines().count(), 1, "{stderr}");
+    for says in [
+        "ak.fits",
+        "has BUNIT 'mag(AK)', which names A_K, but --extinction-band V was given",
+        "give --unit mag with --extinction-band V",
+    ] {
+        assert!(stderr.contains(says), "{stderr}");
+    }
+    assert!(!d.path().join("contrary").exists());
 }
 
 /// Masses asked for with --distance but not made (an emission map without a temperature) are
@@ -874,4 +931,87 @@ fn command_line_runs_are_byte_identical_with_one_and_two_threads() {
             "{name} differs between one and two threads"
         );
     }
+}
+
+/// The records keep what was given: a distance of 400pc is recorded as 400 (not the
+/// 400.00000000000006 of its round trip through metres), levels as typed, and whole numbers
+/// as FITS integers (FITS 4.0 section 4.2.3), other numbers with the digits that give back the
+/// CSV's value (section 4.2.4).
+#[test]
+fn records_keep_what_was_given() {
+    let d = tempfile::tempdir().unwrap();
+    let map = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "r",
+            "--distance",
+            "400pc",
+            "--temperature",
+            "14K",
+            "--floor",
+            "50mJy/beam",
+            "--prominence",
+            "3sigma",
+            "--min-area",
+            "1.5beam",
+            "--no-figure",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let csv = std::fs::read_to_string(d.path().join("r/structures.csv")).unwrap();
+    for says in [
+        "# parameter distance = 400.0  (pc)",
+        "# parameter floor = 0.05  (map units (given as 50mJy/beam))",
+        "(map units (given as 3sigma))",
+        "(pixels (given as 1.5beam))",
+    ] {
+        assert!(csv.contains(says), "{says}");
+    }
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("r/run.json")).unwrap())
+            .unwrap();
+    assert_eq!(run["physics"]["distance_pc"], 400.0);
+    // The FITS table's header cards, 80 characters each.
+    let bytes = std::fs::read(d.path().join("r/structures.fits")).unwrap();
+    let cards: Vec<String> = bytes
+        .chunks(80)
+        .map(|c| String::from_utf8_lossy(c).into_owned())
+        .collect();
+    let card = |key: &str| -> String {
+        cards
+            .iter()
+            .find(|c| c.starts_with(key))
+            .unwrap_or_else(|| panic!("no {key} card"))
+            .clone()
+    };
+    let value = |key: &str| -> String {
+        let c = card(key);
+        let v = c.split_once('=').unwrap().1;
+        v.split_once('/').map_or(v, |(v, _)| v).trim().to_string()
+    };
+    assert_eq!(value("HDU     "), "0");
+    assert_eq!(value("HIERARCH CONNECTIVITY"), "8");
+    assert_eq!(value("DISTANCE"), "400.0");
+    let floor_csv: f64 = csv
+        .lines()
+        .find_map(|l| l.strip_prefix("# parameter floor = "))
+        .and_then(|l| l.split_whitespace().next())
+        .unwrap()
+        .parse()
+        .unwrap();
+    let floor_fits: f64 = value("FLOOR   ").replace('E', "e").parse().unwrap();
+    assert_eq!(floor_fits, floor_csv);
+    let noise_csv: f64 = csv
+        .lines()
+        .find_map(|l| l.strip_prefix("# parameter noise = "))
+        .and_then(|l| l.split_whitespace().next())
+        .unwrap()
+        .parse()
+        .unwrap();
+    let noise_fits: f64 = value("NOISE   ").replace('E', "e").parse().unwrap();
+    assert_eq!(noise_fits, noise_csv);
 }

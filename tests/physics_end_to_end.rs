@@ -66,6 +66,7 @@ fn run(
             ..Context::default()
         },
         other_inputs: Vec::new(),
+        threshold_texts: Default::default(),
         figure: None,
     };
     cairn::segment::run(&map, &o, &|_, _| {}).unwrap();

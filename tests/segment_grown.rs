@@ -60,6 +60,7 @@ fn hand_options(out: &Path, grow: bool) -> SegmentOptions {
         command_line: vec![],
         physics: Default::default(),
         other_inputs: Vec::new(),
+        threshold_texts: Default::default(),
         figure: None,
     }
 }

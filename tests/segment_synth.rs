@@ -22,6 +22,7 @@ fn options(out: &std::path::Path, floor: Level, prominence: Level, noise: f64) -
         command_line: vec![],
         physics: Default::default(),
         other_inputs: Vec::new(),
+        threshold_texts: Default::default(),
         figure: None,
     }
 }

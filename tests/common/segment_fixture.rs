@@ -29,6 +29,7 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
             ..Default::default()
         },
         other_inputs: Vec::new(),
+        threshold_texts: Default::default(),
         figure: None,
     }
 }
