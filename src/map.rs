@@ -538,6 +538,21 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                     units::CONVERTED_UNITS
                 ))
             })?;
+            // A header unit of another kind that the option replaces: said, as the option
+            // then changes what every value means, not only its spelling.
+            // (`other:UNIT` and `none` are asked for as the way out of the header's unit.)
+            let bunit = header.get_str("BUNIT").unwrap_or("").trim();
+            if unit != PixelUnit::Other
+                && let Some(theirs) = units::parse_pixel_unit(bunit, opts.band)
+                && std::mem::discriminant(&theirs) != std::mem::discriminant(&unit)
+            {
+                warnings.push(format!(
+                    "--unit '{}' replaces the header's BUNIT '{bunit}' ({}): the values are read as {}",
+                    u.trim(),
+                    theirs.kind_name(),
+                    unit.kind_name()
+                ));
+            }
             (Some(unit), text, Source::Option)
         }
         None => {

@@ -1671,7 +1671,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         "command_line": o.command_line,
         "input": input_record,
         "other_inputs": other_inputs,
-        "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()) },
+        "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()), "header_unit": map.header.get_str("BUNIT") },
         "parameters": {
             "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0] },
             "prominence": { "value": r.prominence, "unit": map.unit_text, "given": r.given[1] },

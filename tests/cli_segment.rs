@@ -1015,3 +1015,51 @@ fn records_keep_what_was_given() {
     let noise_fits: f64 = value("NOISE   ").replace('E', "e").parse().unwrap();
     assert_eq!(noise_fits, noise_csv);
 }
+
+/// `--unit` of another kind than the header's readable BUNIT changes what every value means:
+/// a warning names both, and the run record keeps the header's unit; a respelling of the same
+/// kind (mJy/beam for Jy/beam, a scale) is not warned about.
+#[test]
+fn a_unit_option_of_another_kind_than_the_header_is_said() {
+    let d = tempfile::tempdir().unwrap();
+    let map = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let map = map.to_str().unwrap();
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            map,
+            "-o",
+            "col",
+            "--unit",
+            "cm-2",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("warning: --unit 'cm-2' replaces the header's BUNIT 'Jy/beam' (flux density per beam): the values are read as H2 column density"),
+        "{stderr}"
+    );
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("col/run.json")).unwrap())
+            .unwrap();
+    assert_eq!(run["map"]["header_unit"], "Jy/beam");
+    assert_eq!(run["map"]["unit"], "cm-2");
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            map,
+            "-o",
+            "mjy",
+            "--unit",
+            "mJy/beam",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(!stderr.contains("replaces"), "{stderr}");
+}
