@@ -121,6 +121,12 @@ pub struct Suggested {
     pub prominence: f64,
     /// Minimum area in pixels.
     pub min_area_px: f64,
+    /// The floor as an H2 column density, cm^-2, by the conversion `segment` would use (at
+    /// the map centre; null without one).
+    pub floor_column_cm2: Option<f64>,
+    /// The floor as a visual extinction, mag, by the same conversion and the N(H2) per A_V
+    /// assumed (null without a conversion).
+    pub floor_av_mag: Option<f64>,
 }
 
 /// The conversion `segment` would use from map units to H2 column density and mass.
@@ -578,6 +584,11 @@ pub fn summarise_with(
 ) -> Result<Summary> {
     let mut s = summarise(map, noise_choice)?;
     s.conversion = conversion(map, ctx);
+    if let (Some(sg), Some(f)) = (s.suggested.as_mut(), s.conversion.column_per_unit_cm2) {
+        let column = sg.floor * f;
+        sg.floor_column_cm2 = Some(column);
+        sg.floor_av_mag = Some(column / (ctx.nh2_per_av_m2 * 1e-4));
+    }
     Ok(s)
 }
 
@@ -666,6 +677,8 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
                 .unwrap_or(9.0)
                 // Never more than the map holds (segment refuses that).
                 .min((map.nx() * map.ny()) as f64),
+            floor_column_cm2: None,
+            floor_av_mag: None,
         }),
         _ => None,
     };
@@ -860,6 +873,16 @@ pub fn render_text(s: &Summary) -> String {
                 sg.min_area_px
             ),
         );
+        if let (Some(n), Some(av)) = (sg.floor_column_cm2, sg.floor_av_mag) {
+            line(
+                "",
+                format!(
+                    "that floor is N(H2) = {} cm-2, A_V = {} mag, by the conversion below",
+                    g(n),
+                    g(av)
+                ),
+            );
+        }
     }
     let c = &s.conversion;
     match (c.column_per_unit_cm2, &c.why_none) {
