@@ -54,6 +54,17 @@ fn a_column_density_level_on_an_emission_map_is_the_masses_conversion() {
     let per_unit = inspect["conversion"]["column_per_unit_cm2"]
         .as_f64()
         .unwrap();
+    // inspect gives its suggested floor as a column density and an extinction by the same
+    // conversion (A_V by Bohlin, Savage & Drake 1978).
+    let suggested = &inspect["suggested"];
+    let floor = suggested["floor"].as_f64().unwrap();
+    let column = suggested["floor_column_cm2"].as_f64().unwrap();
+    assert!(
+        (column / (floor * per_unit) - 1.0).abs() < 1e-12,
+        "{column}"
+    );
+    let av = suggested["floor_av_mag"].as_f64().unwrap();
+    assert!((av / (column / 9.4e20) - 1.0).abs() < 1e-12, "{av}");
 
     let mut args = vec![
         "segment",
