@@ -69,6 +69,16 @@ pub struct Table {
     pub ucds: Vec<(String, String, String)>,
 }
 
+/// CFITSIO's writers of a double-valued keyword (`ffpkyg`, `ffpkyd`).
+type PutDouble = unsafe extern "C" fn(
+    *mut fitsio::sys::fitsfile,
+    *const std::ffi::c_char,
+    f64,
+    std::ffi::c_int,
+    *const std::ffi::c_char,
+    *mut std::ffi::c_int,
+) -> std::ffi::c_int;
+
 /// A float in its shortest round-trip form ("" for NaN in CSV).
 pub fn fmt_f64(x: f64) -> String {
     // Rust's `{:?}` layout: 1e21 as "1e21" and 0.1 as "0.1"; both parse everywhere.
@@ -663,56 +673,31 @@ impl Table {
             let key = fits_key(k);
             // FITS header text is printable ASCII (FITS 4.0 section 4.2.1).
             let c = printable_ascii(c);
+            let cstr = |t: &str| std::ffi::CString::new(t).expect("no NUL in printable ASCII");
+            let (kc, cc) = (cstr(&key), cstr(&c));
+            let mut status = 0;
             match (v.parse::<i64>(), v.parse::<f64>()) {
                 // Whole numbers as integers (an HDU index, a pixel count).
                 (Ok(n), _) => hdu.write_key(&mut f, &key, (n, c.as_str())).map_err(fail)?,
                 (_, Ok(x)) if x.is_finite() => {
                     // The digits of the CSV's text, which give back the same double: in fixed
-                    // notation with its decimals (CFITSIO's F format) when that text has no
-                    // exponent, else in the E format with as many significant digits.
+                    // notation with its decimals (CFITSIO's F format, ffpkyg) when that text
+                    // has no exponent, else in the E format with as many significant digits
+                    // (ffpkyd with a negative count).
                     let text = fmt_f64(x);
-                    let decim = match text.split_once('.') {
-                        Some((_, frac)) if !text.contains('e') => frac.len() as i32,
-                        _ => {
+                    let (put, decim) = match text.split_once('.') {
+                        Some((_, frac)) if !text.contains('e') => {
+                            (fitsio::sys::ffpkyg as PutDouble, frac.len() as i32)
+                        }
+                        _ => (
+                            fitsio::sys::ffpkyd as PutDouble,
                             -((1..=17)
                                 .find(|&n| format!("{:.*e}", n - 1, x).parse::<f64>() == Ok(x))
-                                .unwrap_or(17) as i32)
-                        }
+                                .unwrap_or(17) as i32),
+                        ),
                     };
-                    let (kc, cc) = (
-                        std::ffi::CString::new(key.as_str()).expect("no NUL in a FITS key"),
-                        std::ffi::CString::new(c.as_str()).expect("no NUL in printable ASCII"),
-                    );
-                    let mut status = 0;
-                    // SAFETY: an open FitsFile on this table and NUL-terminated strings; a
-                    // negative `decim` asks ffpkyd for that many significant digits.
-                    unsafe {
-                        if decim >= 0 {
-                            fitsio::sys::ffpkyg(
-                                f.as_raw(),
-                                kc.as_ptr(),
-                                x,
-                                decim,
-                                cc.as_ptr(),
-                                &mut status,
-                            )
-                        } else {
-                            fitsio::sys::ffpkyd(
-                                f.as_raw(),
-                                kc.as_ptr(),
-                                x,
-                                decim,
-                                cc.as_ptr(),
-                                &mut status,
-                            )
-                        }
-                    };
-                    if status != 0 {
-                        return Err(Error::output(
-                            path,
-                            format!("cannot be written as FITS (CFITSIO status {status})."),
-                        ));
-                    }
+                    // SAFETY: an open FitsFile on this table and NUL-terminated strings.
+                    unsafe { put(f.as_raw(), kc.as_ptr(), x, decim, cc.as_ptr(), &mut status) };
                 }
                 _ => {
                     // Strings of any length, a SHA-256 after a HIERARCH keyword or a long
@@ -721,10 +706,7 @@ impl Table {
                     let text = printable_ascii(v);
                     // Quotes are doubled on the card.
                     continued |= key.len() + text.len() + text.matches('\'').count() > 60;
-                    let cstr =
-                        |t: &str| std::ffi::CString::new(t).expect("no NUL in printable ASCII");
-                    let (kc, vc, cc) = (cstr(&key), cstr(&text), cstr(&c));
-                    let mut status = 0;
+                    let vc = cstr(&text);
                     // SAFETY: an open FitsFile on this table and NUL-terminated strings.
                     unsafe {
                         fitsio::sys::ffpkls(
@@ -735,13 +717,13 @@ impl Table {
                             &mut status,
                         )
                     };
-                    if status != 0 {
-                        return Err(Error::output(
-                            path,
-                            format!("cannot be written as FITS (CFITSIO status {status})."),
-                        ));
-                    }
                 }
+            }
+            if status != 0 {
+                return Err(Error::output(
+                    path,
+                    format!("cannot be written as FITS (CFITSIO status {status})."),
+                ));
             }
         }
         if continued {
