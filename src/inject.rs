@@ -93,6 +93,25 @@ pub struct Injected {
 }
 
 /// A core convolved with the beam, in map units, on a box of the map.
+/// The side of the tiles in which the injected light is summed (see [`add_cores`]).
+const TILE: usize = 256;
+
+/// A row's values starting at column `x0`, cut where they cross from one tile into the next.
+fn split_at_tiles(vals: &[f64], x0: usize) -> impl Iterator<Item = &[f64]> {
+    let mut rest = vals;
+    let mut x = x0;
+    std::iter::from_fn(move || {
+        if rest.is_empty() {
+            return None;
+        }
+        let n = (TILE - x % TILE).min(rest.len());
+        let (run, tail) = rest.split_at(n);
+        rest = tail;
+        x += n;
+        Some(run)
+    })
+}
+
 struct Patch {
     x0: usize,
     y0: usize,
@@ -397,7 +416,17 @@ fn add_cores(
         beam.minor_deg * 3600.0,
         beam.pa_deg,
     );
-    let mut layer = synth::try_filled(nx * ny, 0.0f64).map_err(|_| oom())?;
+    // The cores' light, summed in double precision in the order of the cores, kept only in
+    // the tiles of the map that some core reaches (a few hundred cores cover a small part of
+    // a large map): the map then needs its own copy and little more, not a whole layer of
+    // doubles as well. Each pixel's sum is the same additions in the same order either way.
+    let tiles_x = nx.div_ceil(TILE);
+    let tiles_y = ny.div_ceil(TILE);
+    let mut layer: Vec<Option<Box<[f64]>>> = Vec::new();
+    layer
+        .try_reserve_exact(tiles_x * tiles_y)
+        .map_err(|_| oom())?;
+    layer.resize_with(tiles_x * tiles_y, || None);
     let mut truth = Vec::with_capacity(cores.len());
     let mut core_sums = Vec::with_capacity(cores.len());
     for (chunk_index, chunk) in cores.chunks(32).enumerate() {
@@ -435,10 +464,26 @@ fn add_cores(
             let c = &chunk[k];
             let mut sum = 0.0;
             for (row, vals) in patch.values.chunks(patch.w).enumerate() {
-                let start = (patch.y0 + row) * nx + patch.x0;
-                for (l, v) in layer[start..start + patch.w].iter_mut().zip(vals) {
-                    *l += v;
-                    sum += v;
+                let y = patch.y0 + row;
+                // The row's run through each tile it crosses.
+                let mut x = patch.x0;
+                for v_run in split_at_tiles(vals, patch.x0) {
+                    let t = (y / TILE) * tiles_x + x / TILE;
+                    let tile = match &mut layer[t] {
+                        Some(tile) => tile,
+                        empty => {
+                            let mut v = Vec::new();
+                            v.try_reserve_exact(TILE * TILE).map_err(|_| oom())?;
+                            v.resize(TILE * TILE, 0.0f64);
+                            empty.insert(v.into_boxed_slice())
+                        }
+                    };
+                    let start = (y % TILE) * TILE + x % TILE;
+                    for (l, v) in tile[start..start + v_run.len()].iter_mut().zip(v_run) {
+                        *l += v;
+                        sum += v;
+                    }
+                    x += v_run.len();
                 }
             }
             let (lon, lat) = wcs.pixel_to_sky(c.x, c.y).unwrap_or((f64::NAN, f64::NAN));
@@ -464,11 +509,18 @@ fn add_cores(
 
     let mut data = map.data.clone();
     let mut overflow = false;
-    for (d, l) in data.iter_mut().zip(&layer) {
-        if d.is_finite() {
-            let v = (*d as f64 + l) as f32;
-            overflow |= !v.is_finite();
-            *d = v;
+    for (t, tile) in layer.iter().enumerate() {
+        let Some(tile) = tile else { continue };
+        let (ty, tx) = (t / tiles_x, t % tiles_x);
+        for y in ty * TILE..((ty + 1) * TILE).min(ny) {
+            for x in tx * TILE..((tx + 1) * TILE).min(nx) {
+                let d = &mut data[(y, x)];
+                if d.is_finite() {
+                    let v = (*d as f64 + tile[(y % TILE) * TILE + x % TILE]) as f32;
+                    overflow |= !v.is_finite();
+                    *d = v;
+                }
+            }
         }
     }
     if overflow {
