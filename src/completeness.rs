@@ -152,12 +152,28 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
             "holds no injected core; give the NAME-truth.csv that cairn synth --into wrote.".into(),
         ));
     }
+    // The record beside the table must be of the same injection: an injection's record names
+    // the map it wrote, which the table names too.
+    let spec = read_spec(path).and_then(|spec| {
+        match (
+            spec.pointer("/injected_map/sha256").and_then(|v| v.as_str()),
+            &map_sha256,
+        ) {
+            (Some(theirs), Some(ours)) if theirs != ours => Err(format!(
+                "{} is the record of another injection (its injected map has SHA-256 {}..., the truth table's {}...); keep the NAME-spec.json written with this NAME-truth.csv beside it",
+                spec_path(path).unwrap_or_default().display(),
+                short(theirs),
+                short(ours)
+            )),
+            _ => Ok(spec),
+        }
+    });
     Ok(Truth {
         path: path.to_path_buf(),
         cores,
         map_sha256,
         map_name,
-        spec: read_spec(path),
+        spec,
     })
 }
 
@@ -236,7 +252,10 @@ pub struct Run {
     pub parameters: serde_json::Value,
     /// The map's unit as the run read it (`map.unit`).
     pub unit: Option<String>,
-    /// The run record's `beam`.
+    /// The beam the map's values refer to in the conversion to masses: the file's own beam
+    /// (the run record's `common_resolution.input_beam` for a run on a map smoothed to a
+    /// common resolution, whose Jy/beam values were rescaled to the new beam and so convert
+    /// to the same masses; else its `beam`).
     pub beam: serde_json::Value,
     /// The run record's `input` (the map's SHA-256, HDU and plane).
     pub input: serde_json::Value,
@@ -337,7 +356,11 @@ fn read_run_with(path: &Path, need_mass: bool) -> Result<Run> {
             .pointer("/map/unit")
             .and_then(|v| v.as_str())
             .map(str::to_string),
-        beam: run.get("beam").cloned().unwrap_or(serde_json::Value::Null),
+        beam: run
+            .pointer("/common_resolution/input_beam")
+            .or_else(|| run.get("beam"))
+            .cloned()
+            .unwrap_or(serde_json::Value::Null),
         input: run.get("input").cloned().unwrap_or(serde_json::Value::Null),
         parameters: run
             .get("parameters")
@@ -355,6 +378,10 @@ fn read_run_with(path: &Path, need_mass: bool) -> Result<Run> {
     })
 }
 
+/// How [`assumption_differences`] begins its one sentence when the check could not be made.
+const UNCHECKED: &str =
+    "the run's physical assumptions could not be checked against the injection's: ";
+
 /// The physical assumptions in which the run differs from the injection, one sentence each:
 /// those that turn the map into masses, for the map's kind (the distance always; the dust
 /// temperature, opacity law and wavelength for emission; N(H2)/A_V and A_V/A_K for extinction;
@@ -366,9 +393,7 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
     let spec = match &truth.spec {
         Ok(s) => s,
         Err(why) => {
-            return vec![format!(
-                "the run's physical assumptions could not be checked against the injection's: {why}"
-            )];
+            return vec![format!("{UNCHECKED}{why}")];
         }
     };
     // The record of `synth --into` holds the assumptions at its top level; that of a
@@ -379,7 +404,7 @@ pub fn assumption_differences(truth: &Truth, run: &Run) -> Vec<String> {
     let tidy = crate::units::tidy;
     if num(spec, "/distance_pc").is_none() {
         return vec![format!(
-            "the run's physical assumptions could not be checked against the injection's: {} records no distance, so it is not a record that cairn synth wrote; give the NAME-spec.json written with NAME-truth.csv",
+            "{UNCHECKED}{} records no distance, so it is not a record that cairn synth wrote; give the NAME-spec.json written with NAME-truth.csv",
             spec_name(&truth.path)
         )];
     }
@@ -900,6 +925,9 @@ pub struct Scoring {
     /// Whether the limit's bin is the lowest occupied one, so the true limit lies at or below
     /// the least injected mass.
     pub limit_at_lowest: bool,
+    /// How many of the counted cores have a true mass at or above the limit (0 without one):
+    /// a limit resting on a few cores in sparse top bins is uncertain.
+    pub n_above_limit: usize,
     /// Median recovered `mass` / true mass of matched cores.
     pub median_mass_ratio: f64,
     /// Median recovered `mass_excess` / true mass of matched cores.
@@ -965,6 +993,7 @@ pub fn score_with_baseline(
         bins: Vec::new(),
         limit_90: None,
         limit_at_lowest: false,
+        n_above_limit: 0,
         median_mass_ratio: f64::NAN,
         median_excess_ratio: f64::NAN,
         radius_arcsec: radius,
@@ -999,7 +1028,9 @@ pub fn pool(parts: &[Part], bin_dex: f64) -> Scoring {
     }
     let bins = bins(&masses, &found, bin_dex);
     let (limit_90, limit_at_lowest) = limit_of(&bins, &masses, 0.9);
+    let n_above_limit = limit_90.map_or(0, |l| masses.iter().filter(|&&m| m >= l).count());
     Scoring {
+        n_above_limit,
         matches: parts
             .iter()
             .flat_map(|p| p.2.matches.iter().copied())
@@ -1434,8 +1465,13 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
         let kc = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
         let _ = writeln!(
             r,
-            "With the baseline run (the map before injection): {} of the {n} cores lie within one beam FWHM of one of its leaves, where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {kc} of the other {} were recovered ({:.1}%).\n",
+            "With the baseline run (the map before injection): {} of the {n} {} within one beam FWHM of one of its leaves, where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {kc} of the other {} were recovered ({:.1}%).\n",
             n - counted.len(),
+            if n - counted.len() == 1 {
+                "core lies"
+            } else {
+                "cores lie"
+            },
             counted.len(),
             if counted.is_empty() {
                 f64::NAN
@@ -1450,11 +1486,7 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
     bins_section(&mut r, s);
     let suspect = suspect_matches(truth, run, s);
     suspect_section(&mut r, suspect, s.with_baseline);
-    assumptions_section(
-        &mut r,
-        "The run's physical assumptions differ",
-        &assumption_differences(truth, run),
-    );
+    assumptions_section(&mut r, None, &assumption_differences(truth, run));
     let _ = writeln!(r, "{CAVEATS}");
     r
 }
@@ -1497,8 +1529,13 @@ pub fn pooled_report(parts: &[Part], pooled: &Scoring, run_differences: &[String
     if pooled.with_baseline {
         let _ = writeln!(
             r,
-            "Pooled: {} of the {n} cores lie within one beam FWHM of a leaf of the baseline run (the map before injection), where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {k} of the other {} were recovered ({:.1}%).\n",
+            "Pooled: {} of the {n} {} within one beam FWHM of a leaf of the baseline run (the map before injection), where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {k} of the other {} were recovered ({:.1}%).\n",
             n - counted.len(),
+            if n - counted.len() == 1 {
+                "core lies"
+            } else {
+                "cores lie"
+            },
             counted.len(),
             if counted.is_empty() {
                 f64::NAN
@@ -1528,26 +1565,33 @@ pub fn pooled_report(parts: &[Part], pooled: &Scoring, run_differences: &[String
         .sum();
     suspect_section(&mut r, suspect, pooled.with_baseline);
     for (i, (truth, run, _)) in parts.iter().enumerate() {
-        assumptions_section(
-            &mut r,
-            &format!("Set {}: the run's physical assumptions differ", i + 1),
-            &assumption_differences(truth, run),
-        );
+        assumptions_section(&mut r, Some(i + 1), &assumption_differences(truth, run));
     }
     let _ = writeln!(r, "{CAVEATS}");
     r
 }
 
 /// The report's closing caveats.
-const CAVEATS: &str = "Caveats: the result depends on where the cores were placed; cores injected on a bright background are harder to find; Gaussian and Bonnor-Ebert cores are idealisations; masses carry factor-of-two systematics from dust opacity, temperature and distance (when the run uses the injection's assumptions, the same ones in the truth and the run, so they cancel in the ratios but not in the limit's meaning).";
+const CAVEATS: &str = "Caveats: the result depends on where the cores were placed; cores injected on a bright background are harder to find; Gaussian and Bonnor-Ebert cores are idealisations; masses carry factor-of-two systematics from dust opacity, temperature and distance: when the run uses the injection's assumptions they cancel in the ratios of recovered to true masses, but the mass limit is only as right as those assumptions are for the real cloud.";
 
 /// The report's list of the ways a run's physical assumptions differ from its injection's,
 /// under a bold `lead`.
-fn assumptions_section(r: &mut String, lead: &str, differences: &[String]) {
+fn assumptions_section(r: &mut String, set: Option<usize>, differences: &[String]) {
     if !differences.is_empty() {
+        let unchecked = differences.len() == 1 && differences[0].starts_with(UNCHECKED);
+        let lead = format!(
+            "{}he run's physical assumptions {} the injection's.",
+            set.map(|i| format!("Set {i}: t"))
+                .unwrap_or_else(|| "T".into()),
+            if unchecked {
+                "could not be checked against"
+            } else {
+                "differ from"
+            }
+        );
         let _ = writeln!(
             r,
-            "**{lead} from the injection's.** The recovery of the cores does not depend on them, but the recovered masses and their ratios to the true masses do; segment the injected map with the assumptions of the injection (its NAME-spec.json) for a fair mass comparison:\n"
+            "**{lead}** The recovery of the cores does not depend on them, but the recovered masses and their ratios to the true masses do; segment the injected map with the assumptions of the injection (its NAME-spec.json) for a fair mass comparison:\n"
         );
         for d in differences {
             let _ = writeln!(r, "* {d}.");
@@ -1626,7 +1670,8 @@ fn bins_section(r: &mut String, s: &Scoring) {
         Some(m) => {
             let _ = writeln!(
                 r,
-                "**90% completeness limit: {m:.3} Msun.** Found by walking the bins down from the most massive: this is the lower edge of the lowest bin from which every bin above it that holds injected cores recovers at least 90% of them (or the least mass injected in that bin, if higher). Bins holding few cores make it uncertain (see their intervals); inject more cores for a firmer limit.\n"
+                "**90% completeness limit: {m:.3} Msun** ({} of the cores counted at or above it). Found by walking the bins down from the most massive: this is the lower edge of the lowest bin from which every bin above it that holds injected cores recovers at least 90% of them (or the least mass injected in that bin, if higher). Bins holding few cores make it uncertain (see their intervals) and move it with the bin width; inject more cores for a firmer limit, such as more massive ones or a flatter mass function (`--core-mass-index 1`, flat in log mass).\n",
+                s.n_above_limit
             );
         }
         None => {
@@ -1688,6 +1733,7 @@ mod tests {
             matches: found.iter().map(|&f| f.then_some((0usize, 1.0))).collect(),
             limit_90: completeness_limit(&b, 0.9),
             limit_at_lowest: false,
+            n_above_limit: 0,
             bins: b.clone(),
             median_mass_ratio: f64::NAN,
             median_excess_ratio: f64::NAN,
@@ -1784,6 +1830,7 @@ mod tests {
             matches,
             limit_90,
             limit_at_lowest,
+            n_above_limit: limit_90.map_or(0, |l| masses.iter().filter(|&&m| m >= l).count()),
             bins: b,
             median_mass_ratio: 3.0,
             median_excess_ratio: 2.0,
@@ -1810,7 +1857,7 @@ mod tests {
         let mut f1 = vec![true; 10];
         f1.extend([true, true, true, true, true, true, true, true, false, false]);
         let (t1, r1, s1) = scored_pair(&m1, &f1);
-        assert_eq!(s1.limit_90, Some(2.0));
+        assert_eq!((s1.limit_90, s1.n_above_limit), (Some(2.0), 10));
         let (t2, r2, s2) = scored_pair(&[0.5; 10], &[true; 10]);
         let p = pool(&[(&t1, &r1, &s1), (&t2, &r2, &s2)], 0.5);
         let counts: Vec<(usize, usize)> =
@@ -1828,6 +1875,7 @@ mod tests {
             p.bins[0].ci_hi
         );
         assert_eq!((p.limit_90, p.limit_at_lowest), (Some(0.5), true));
+        assert_eq!(p.n_above_limit, 30, "every core is at or above the limit");
         assert_eq!((p.median_excess_ratio, p.median_mass_ratio), (2.0, 3.0));
         assert_eq!(p.matches.len(), 30);
         let table = pooled_matches_table(&[(&t1, &r1, &s1), (&t2, &r2, &s2)]).to_csv();

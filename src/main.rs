@@ -1649,7 +1649,10 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
             Some(m) if s.limit_at_lowest => {
                 format!("90% complete down to the least injected mass, {m:.3} Msun")
             }
-            Some(m) => format!("90% complete above {m:.3} Msun"),
+            Some(m) => format!(
+                "90% complete above {m:.3} Msun ({} of them at or above it)",
+                s.n_above_limit
+            ),
             None => "never 90% complete".into(),
         },
         if s.median_excess_ratio.is_finite() {

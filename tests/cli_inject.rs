@@ -1224,6 +1224,134 @@ fn a_run_with_other_assumptions_than_the_injection_is_named() {
         "{}",
         o.stderr
     );
+    let report = std::fs::read_to_string(dir.join("score2/report.md")).unwrap();
+    assert!(
+        report.contains(
+            "**The run's physical assumptions could not be checked against the injection's.**"
+        ) && !report.contains("assumptions differ"),
+        "{report}"
+    );
+    // The record of another injection beside the table is not taken for its own: another
+    // seed's injection into the same map, at another distance.
+    let o = cairn(
+        &[
+            "synth",
+            "--into",
+            "base/synth.fits",
+            "-o",
+            "other",
+            "--distance",
+            "300pc",
+            "--cores",
+            "10",
+            "--seed",
+            "6",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    std::fs::copy(
+        dir.join("other/synth-spec.json"),
+        dir.join("alone/synth-spec.json"),
+    )
+    .unwrap();
+    let o = cairn(
+        &[
+            "compare",
+            "run",
+            "--truth",
+            "alone/synth-truth.csv",
+            "-o",
+            "score3",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .contains("synth-spec.json is the record of another injection")
+            && !o.stderr.contains("the injection's 300 pc"),
+        "{}",
+        o.stderr
+    );
+}
+
+/// A run on the injected map smoothed to a common resolution converts its Jy/beam values
+/// (rescaled to the new beam) to the same masses as the injection, which used the file's own
+/// beam: no mass-scale warning for the beam.
+#[test]
+fn a_run_at_a_common_resolution_is_on_the_injections_mass_scale() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let o = cairn(
+        &[
+            "synth",
+            "--into",
+            demo.to_str().unwrap(),
+            "-o",
+            "inj",
+            "--distance",
+            "410pc",
+            "--temperature",
+            "14K",
+            "--cores",
+            "20",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let distance = "410pc";
+    let o = segment_and_score(
+        dir,
+        "inj/synth.fits",
+        "smooth",
+        &[
+            "--distance",
+            distance,
+            "--temperature",
+            "14K",
+            "--common-resolution",
+            "0.1pc",
+        ],
+        "inj/synth-truth.csv",
+        "score",
+    );
+    assert!(
+        !o.stderr.contains("otherwise than the injection"),
+        "{}",
+        o.stderr
+    );
+    // The same run given another beam for the file is named, with the factor of the beams'
+    // solid angles.
+    let o = segment_and_score(
+        dir,
+        "inj/synth.fits",
+        "wide",
+        &[
+            "--distance",
+            distance,
+            "--temperature",
+            "14K",
+            "--beam",
+            "36.4arcsec",
+            "--common-resolution",
+            "0.2pc",
+        ],
+        "inj/synth-truth.csv",
+        "score-wide",
+    );
+    assert!(
+        o.stderr
+            .contains("beam 36.4\" x 36.4\" against 18.2\" x 18.2\"")
+            && o.stderr
+                .contains("masses are 0.25 times the injection's scale"),
+        "{}",
+        o.stderr
+    );
 }
 
 /// `synth --into --temperature-map`: on an emission map, a temperature map of 14 K everywhere
