@@ -623,15 +623,17 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
     if pops.len() < 2 {
         return w;
     }
-    for (k, what, ratio_limit) in [
+    for (k, what, unit, ratio_limit) in [
         (
             &["physics", "linear_resolution_pc"][..],
             "linear resolution (beam x distance)",
+            "pc",
             1.5,
         ),
         (
             &["physics", "mass_sensitivity_msun"][..],
             "mass sensitivity (one beam at the noise)",
+            "Msun",
             1.5,
         ),
     ] {
@@ -653,12 +655,12 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
         });
         if hi.1 > ratio_limit * lo.1 {
             w.push(format!(
-                "the {what} differs by a factor {:.2}: {} has {:.4}, {} has {:.4}{}",
+                "the {what} differs by a factor {:.2}: {} has {} {unit}, {} has {} {unit}{}",
                 hi.1 / lo.1,
                 hi.0,
-                hi.1,
+                sig4(hi.1),
                 lo.0,
-                lo.1,
+                sig4(lo.1),
                 if what.starts_with("linear") {
                     "; re-run segment with --common-resolution"
                 } else {
@@ -685,34 +687,99 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
             "minimum area (as given)",
         ),
     ] {
-        let vals: Vec<(String, String)> = pops
+        // Each population's value as compared (its JSON text) and as said (in words).
+        let vals: Vec<(String, String, String)> = pops
             .iter()
             .map(|p| {
-                let mut v = get(p, k)
-                    .map(|v| v.to_string())
-                    .unwrap_or_else(|| "unknown".into());
+                let mut v = get(p, k);
                 // The default floor and prominence are 3 sigma (the floor above the
                 // background), the same as given so.
-                if k[0] == "parameters" && k[1] != "min_area" && v == "\"default\"" {
-                    v = "\"3sigma\"".into();
+                if k[0] == "parameters"
+                    && k[1] != "min_area"
+                    && v.as_ref().and_then(|v| v.as_str()) == Some("default")
+                {
+                    v = Some("3sigma".into());
                 }
+                let (mut compared, mut said) = match &v {
+                    Some(v) => (v.to_string(), in_words(k, v)),
+                    None => ("unknown".to_string(), "unknown".to_string()),
+                };
                 // Before cairn counted a floor in sigma from the background, such a floor was
                 // absolute; those runs recorded no background with it.
                 if k[1] == "floor"
-                    && v.ends_with("sigma\"")
+                    && compared.ends_with("sigma\"")
                     && get(p, &["noise", "background"]).is_none()
                 {
-                    v.push_str(" (absolute, before cairn counted it from the background)");
+                    let note = " (absolute, before cairn counted it from the background)";
+                    compared.push_str(note);
+                    said.push_str(note);
                 }
-                (p.label.clone(), v)
+                (p.label.clone(), compared, said)
             })
             .collect();
         if vals.iter().any(|v| v.1 != vals[0].1) {
-            let list: Vec<String> = vals.iter().map(|(l, v)| format!("{l}: {v}")).collect();
+            let list: Vec<String> = vals.iter().map(|(l, _, v)| format!("{l}: {v}")).collect();
             w.push(format!("the {what} differs ({})", list.join("; ")));
         }
     }
     w
+}
+
+/// `x` to four significant digits, in scientific notation outside 1e-3 to 1e4, for the
+/// fairness warnings.
+fn sig4(x: f64) -> String {
+    let a = x.abs();
+    if !x.is_finite() {
+        "unknown".into()
+    } else if a == 0.0 {
+        "0".into()
+    } else if !(1e-3..1e4).contains(&a) {
+        format!("{x:.3e}")
+    } else {
+        let decimals = (3 - a.log10().floor() as i32).max(0) as usize;
+        format!("{x:.decimals$}")
+    }
+}
+
+/// [`sig4`] without the trailing zeros, for values a user gave (0.1 rather than 0.1000).
+fn sig4_given(x: f64) -> String {
+    let s = sig4(x);
+    let (mantissa, exponent) = s.split_at(s.find('e').unwrap_or(s.len()));
+    if !mantissa.contains('.') {
+        return s;
+    }
+    format!(
+        "{}{exponent}",
+        mantissa.trim_end_matches('0').trim_end_matches('.')
+    )
+}
+
+/// A value of the run record at `key` in words with its unit, for the fairness warnings: the
+/// opacity law as kappa0 at nu0 and beta, numbers to four significant digits, text without
+/// JSON quotes.
+fn in_words(key: &[&str], v: &serde_json::Value) -> String {
+    use serde_json::Value;
+    let num = |x: &Value| x.as_f64().map(sig4_given).unwrap_or_else(|| x.to_string());
+    match (key.last().copied(), v) {
+        (Some("opacity"), Value::Object(o)) => {
+            let part = |name: &str, scale: f64| {
+                o.get(name)
+                    .and_then(Value::as_f64)
+                    .map(|x| sig4_given(x * scale))
+                    .unwrap_or_else(|| "unknown".into())
+            };
+            format!(
+                "kappa0 = {} cm2/g at nu0 = {} GHz, beta = {}",
+                part("kappa0_cm2_per_g", 1.0),
+                part("nu0_hz", 1e-9),
+                part("beta", 1.0)
+            )
+        }
+        (Some("nh2_per_av_cm2"), Value::Number(_)) => format!("{} cm-2 per mag", num(v)),
+        (_, Value::Number(_)) => num(v),
+        (_, Value::String(t)) => t.clone(),
+        _ => v.to_string(),
+    }
 }
 
 /// The whole comparison.
@@ -1219,7 +1286,7 @@ pub fn tests_table(c: &Comparison) -> Table {
     t.push_f64(
         "alpha_diff_sigma",
         "",
-        "difference in units of its uncertainty",
+        "significance of the difference, |alpha_diff| / alpha_diff_err, in sigma (unsigned)",
         g(&|x| {
             x.alpha_difference
                 .as_ref()
@@ -1241,7 +1308,7 @@ pub fn tests_table(c: &Comparison) -> Table {
     t.push_f64(
         "mass_size_diff_sigma",
         "",
-        "in units of its uncertainty",
+        "significance of the difference, |mass_size_diff| / its combined uncertainty (bootstrap where available), in sigma (unsigned)",
         g(&|x| {
             x.mass_size_difference
                 .as_ref()
@@ -1487,7 +1554,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
         );
         let _ = writeln!(
             s,
-            "| a | b | KS masses D | p | KS radii D | p | alpha(a) - alpha(b) | sigma | slope difference | sigma |"
+            "| a | b | KS masses D | p | KS radii D | p | alpha(a) - alpha(b) | significance, \\|diff\\| / uncertainty [sigma] | slope difference | significance, \\|diff\\| / uncertainty [sigma] |"
         );
         let _ = writeln!(
             s,
@@ -1802,6 +1869,44 @@ mod tests {
             let e = matching_run(csv, &catalogue, run, &other).unwrap_err();
             assert!(e.to_string().contains("different runs"), "{e}");
         }
+    }
+
+    /// The numbers of the fairness warnings read back to within half a unit in the fourth
+    /// significant digit and carry exactly four significant digits (the trimmed form, for
+    /// values a user gave, at most four and the same value), over fifteen decades.
+    #[test]
+    fn fairness_numbers_have_four_significant_digits() {
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let digits = |s: &str| {
+            let mantissa = s.split('e').next().unwrap();
+            let d: String = mantissa.chars().filter(|c| c.is_ascii_digit()).collect();
+            d.trim_start_matches('0').len()
+        };
+        for _ in 0..20_000 {
+            let x = 10f64.powf(rng.random_range(-8.0..7.0))
+                * if rng.random_bool(0.5) { 1.0 } else { -1.0 };
+            let (s, g) = (sig4(x), sig4_given(x));
+            let back: f64 = s.parse().unwrap();
+            assert!((back - x).abs() <= 5.0001e-4 * x.abs(), "{x} as {s}");
+            // Four digits, unless rounding carried into a fifth place (9.9996 to 10.000).
+            let n = digits(&s);
+            assert!(n == 4 || (n == 5 && s.contains("10")), "{x} as {s}");
+            assert_eq!(g.parse::<f64>().unwrap(), back, "{x} as {g}");
+            assert!(digits(&g) <= n && !g.ends_with('.'), "{x} as {g}");
+        }
+        assert_eq!(sig4_given(2.0), "2");
+        assert_eq!(sig4_given(1e12 * 1e-9), "1000");
+    }
+
+    /// The opacity law of a run record is said in words with its units, never as JSON.
+    #[test]
+    fn an_opacity_law_is_said_in_words() {
+        let v = serde_json::json!({ "kappa0_cm2_per_g": 0.012, "nu0_hz": 2.3e11, "beta": 1.75 });
+        let s = in_words(&["physics", "opacity"], &v);
+        assert_eq!(s, "kappa0 = 0.012 cm2/g at nu0 = 230 GHz, beta = 1.75");
+        let t = in_words(&["physics", "temperature"], &serde_json::json!("14 K"));
+        assert_eq!(t, "14 K");
     }
 }
 

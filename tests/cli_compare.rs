@@ -52,6 +52,40 @@ fn compare_reports_statistics_and_fairness() {
             && err.contains("linear resolution (beam x distance) differs by a factor 2.00"),
         "{err}"
     );
+    // The warnings give the values of the run records with their units, to four significant
+    // digits: the resolution is the beam times the distance (small angles, 1 arcsec =
+    // pi / 648000 rad), the sensitivity scales as the distance squared.
+    let record = |name: &str, key: &str| -> f64 {
+        let text = std::fs::read_to_string(d.path().join(name).join("run.json")).unwrap();
+        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        v["physics"][key].as_f64().unwrap()
+    };
+    for (what, key, unit, ratio) in [
+        ("linear resolution", "linear_resolution_pc", "pc", 2.0),
+        ("mass sensitivity", "mass_sensitivity_msun", "Msun", 4.0),
+    ] {
+        let line = err.lines().find(|l| l.contains(what)).expect(what);
+        let said = |name: &str| -> f64 {
+            let after = line.split(&format!("{name} has ")).nth(1).expect(line);
+            let mut words = after.split([' ', ',', ';']);
+            let number = words.next().unwrap();
+            assert_eq!(words.next(), Some(unit), "{line}");
+            let digits: String = number.chars().filter(|c| c.is_ascii_digit()).collect();
+            assert_eq!(digits.trim_start_matches('0').len(), 4, "{line}");
+            number.parse().unwrap()
+        };
+        for name in ["near", "far"] {
+            let (s, r) = (said(name), record(name, key));
+            assert!((s - r).abs() <= 5e-4 * r, "{line}: {name} {r}");
+        }
+        assert!((said("far") / said("near") - ratio).abs() < 2e-3, "{line}");
+    }
+    let beam = record("near", "beam_fwhm_arcsec");
+    let expected = beam * std::f64::consts::PI / 648_000.0 * 300.0;
+    assert!(
+        (record("near", "linear_resolution_pc") / expected - 1.0).abs() < 1e-9,
+        "{expected}"
+    );
     let report = std::fs::read_to_string(d.path().join("cmp/report.md")).unwrap();
     for section in [
         "## Mass functions",
@@ -243,6 +277,11 @@ fn compare_reports_statistics_and_fairness() {
     );
     assert_eq!(code, 0, "{err}");
     assert!(err.contains("mean particle weight"), "{err}");
+    // Said as numbers, not as JSON.
+    assert!(
+        err.contains("mean particle weight differs (near: 2.33; heavy: 2.37)"),
+        "{err}"
+    );
     // A catalogue cut short mid-row, or with text in a mass column, is refused as damaged
     // rather than read with a row missing or shifted.
     let csv = std::fs::read_to_string(d.path().join("near/structures.csv")).unwrap();
@@ -460,7 +499,45 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
             0.0,
             &format!("{a}-{b} mass_size_diff_sigma"),
         );
+        // The significance is the size of the signed difference over its uncertainty (in
+        // sigma, never negative), for the tail exponents as for the slopes.
+        let alpha = value(&tests, row, "alpha_diff");
+        if alpha.is_finite() {
+            assert_close(
+                value(&tests, row, "alpha_diff_sigma"),
+                alpha.abs() / value(&tests, row, "alpha_diff_err"),
+                1e-9,
+                0.0,
+                &format!("{a}-{b} alpha_diff_sigma"),
+            );
+        }
+        assert!(value(&tests, row, "mass_size_diff_sigma") >= 0.0);
     }
+    // The column descriptions and the report's header say so, rather than read as an
+    // uncertainty.
+    let text = std::fs::read_to_string(d.path().join("cut/tests.csv")).unwrap();
+    for (column, ratio) in [
+        (
+            "alpha_diff_sigma",
+            "|alpha_diff| / alpha_diff_err, in sigma",
+        ),
+        (
+            "mass_size_diff_sigma",
+            "|mass_size_diff| / its combined uncertainty",
+        ),
+    ] {
+        assert!(
+            text.lines().any(
+                |l| l.starts_with(&format!("# column {column}: significance")) && l.contains(ratio)
+            ),
+            "{column}: {text}"
+        );
+    }
+    assert!(
+        report.contains("| alpha(a) - alpha(b) | significance, \\|diff\\| / uncertainty [sigma] |")
+            && !report.contains("| sigma |"),
+        "{report}"
+    );
     for what in ["mass", "radius"] {
         let plural = if what == "mass" { "masses" } else { "radii" };
         let (stat, p) = anderson(&report, plural);
