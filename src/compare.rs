@@ -1899,6 +1899,55 @@ mod tests {
         assert_eq!(sig4_given(1e12 * 1e-9), "1000");
     }
 
+    /// The mass-size plot's lines of constant column density lie at M = mu_H2 m_H N pi R^2
+    /// (common practice), with the constants of astropy 8.0.2 (CODATA 2022, IAU 2015) stored
+    /// in fixtures/physics/constants.json, and carry the labels of their own N.
+    #[test]
+    fn column_density_lines_hold_their_own_column() {
+        let text = std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/physics/constants.json"),
+        )
+        .unwrap();
+        let k: serde_json::Value = serde_json::from_str(&text).unwrap();
+        let si = |name: &str| k["values_si"][name].as_f64().unwrap();
+        let pops: Vec<Population> = (0..2)
+            .map(|i| Population {
+                label: format!("p{i}"),
+                source: PathBuf::from(format!("p{i}.csv")),
+                masses: (1..30).map(|j| j as f64 * 0.1).collect(),
+                radii: (1..30).map(|j| 0.02 + j as f64 * 0.003).collect(),
+                densities: vec![1e5; 29],
+                states: Default::default(),
+                dropped: 0,
+                run: serde_json::json!({ "physics": { "mu_h2": 2.8, "mu_p": 2.33 } }),
+                grown: false,
+            })
+            .collect();
+        let o = Options {
+            resamples: 10,
+            ..Options::default()
+        };
+        let c = compare(&pops, &o);
+        let (_, ms) = plots(&c, &pops, &[10.0]);
+        let mut seen = 0;
+        for exponent in [21, 22, 23] {
+            let label = format!("N = 10^{{{exponent}}} cm^{{-2}}");
+            let g = ms.guides.iter().find(|g| g.label == label).expect(&label);
+            let n_m2 = 10f64.powi(exponent) * 1e4;
+            for &(r_pc, m_msun) in &g.points {
+                let r = r_pc * si("pc");
+                let column =
+                    m_msun * si("M_sun") / (2.8 * si("m_H") * std::f64::consts::PI * r * r);
+                assert!(
+                    (column / n_m2 - 1.0).abs() < 1e-9,
+                    "{label}: {column} m-2 at {r_pc} pc"
+                );
+                seen += 1;
+            }
+        }
+        assert!(seen > 30);
+    }
+
     /// The opacity law of a run record is said in words with its units, never as JSON.
     #[test]
     fn an_opacity_law_is_said_in_words() {

@@ -710,3 +710,53 @@ fn compare_warns_when_grown_and_own_footprints_are_mixed() {
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(!o.stderr.contains("grown footprints"), "{}", o.stderr);
 }
+
+#[path = "common/svg_layout.rs"]
+mod svg_layout;
+
+/// The mass-size plot of the two demo maps (column density and 850 um emission, as a user
+/// would compare them): each line of constant column density and each Bonnor-Ebert line has
+/// its label inside the frame, beside its own line (nearer it than any other line by at least
+/// a letter's size), crossed by no line and clear of the other labels. Read from the SVG.
+#[test]
+fn mass_size_guide_labels_sit_by_their_own_lines() {
+    let d = tempfile::tempdir().unwrap();
+    let maps = std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps");
+    for (name, map) in [
+        ("colrun", "velloran-column.fits"),
+        ("emrun", "velloran-850um.fits"),
+    ] {
+        let (code, _, err) = run(
+            d.path(),
+            &[
+                "segment",
+                maps.join(map).to_str().unwrap(),
+                "-o",
+                name,
+                "--distance",
+                "410pc",
+                "--temperature",
+                "14K",
+                "--no-figure",
+                "-q",
+            ],
+        );
+        assert_eq!(code, 0, "{err}");
+    }
+    // The default width and a wider one (at 800 pixels, 9-point text in 300 dpi leaves no
+    // clear place beside these five crossing lines and the labels take the least crowded).
+    for width in ["1200", "2000"] {
+        let out = format!("cmp{width}");
+        let (code, _, err) = run(
+            d.path(),
+            &[
+                "compare", "colrun", "emrun", "-o", &out, "--width", width, "-q",
+            ],
+        );
+        assert_eq!(code, 0, "{err}");
+        let svg = std::fs::read_to_string(d.path().join(&out).join("mass_size.svg")).unwrap();
+        // Font sizes are fixed in points at 300 dpi: 9 pt text, labels 0.9 of it.
+        let lfs = 0.9 * 9.0 * 300.0 / 72.0;
+        svg_layout::check_guide_labels(&svg, 0.0, 0.5 * lfs, 0.8 * lfs);
+    }
+}

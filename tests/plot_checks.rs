@@ -249,6 +249,20 @@ fn svg_parses_with_a_group_per_series_and_the_guides() {
     }
 }
 
+#[path = "common/svg_layout.rs"]
+mod svg_layout;
+
+/// The guides' labels on the invented mass-size plot: inside the frame, clear of each other,
+/// crossed by no guide and nearest their own (read back from the SVG).
+#[test]
+fn guide_labels_sit_by_their_own_lines() {
+    for width in [1100, 1600] {
+        let svg = plot_svg(&mass_size_plot(), width, 300.0).unwrap();
+        let lfs = 0.9 * 9.0 * 300.0 / 72.0;
+        svg_layout::check_guide_labels(&svg, 0.0, 0.5 * lfs, 0.8 * lfs);
+    }
+}
+
 #[test]
 fn png_decodes_at_the_requested_width() {
     for (name, p) in all_plots() {

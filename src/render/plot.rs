@@ -17,7 +17,10 @@
 //!
 //! The SVG holds one `<g>` per series (`id="series-N"`, `class="series style-S"`, the legend
 //! text as `aria-label`) and one `<g id="guides">` with a path per guide, so the figure can be
-//! edited by hand. Both outputs are byte-identical from run to run.
+//! edited by hand. Each guide's label (in `<g id="guide-labels">`, over the data) sits beside
+//! its own line or on it, the line cut under the label, placed so that its own line is clearly
+//! the nearest, no other line crosses it, it overlaps no other label, and it covers as few
+//! data as the plot allows. Both outputs are byte-identical from run to run.
 
 use super::RenderError;
 use super::axes::sci_label;
@@ -57,7 +60,8 @@ pub struct Series {
     pub steps: bool,
 }
 
-/// A thin grey reference line (e.g. constant column density), labelled at its visible end.
+/// A thin grey reference line (e.g. constant column density), labelled beside or on itself,
+/// near its visible end where the data leave room.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Guide {
     pub label: String,
@@ -1044,6 +1048,84 @@ fn overlaps(a: (f64, f64, f64, f64), b: (f64, f64, f64, f64)) -> bool {
     a.0 < b.0 + b.2 && b.0 < a.0 + a.2 && a.1 < b.1 + b.3 && b.1 < a.1 + a.3
 }
 
+/// The distance from the segment a-b to the box (zero where they meet).
+fn segment_box_distance(a: (f64, f64), b: (f64, f64), r: Rect) -> f64 {
+    let (x0, y0, x1, y1) = (r.0, r.1, r.0 + r.2, r.1 + r.3);
+    if clip_segment(a, b, (x0, y0, x1, y1)).is_some() {
+        return 0.0;
+    }
+    // Apart: the nearest pair has an end of the segment or a corner of the box.
+    let point_box = |(x, y): (f64, f64)| {
+        (x0 - x)
+            .max(x - x1)
+            .max(0.0)
+            .hypot((y0 - y).max(y - y1).max(0.0))
+    };
+    let point_segment = |(x, y): (f64, f64)| {
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let len2 = dx * dx + dy * dy;
+        let t = if len2 > 0.0 {
+            (((x - a.0) * dx + (y - a.1) * dy) / len2).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
+        (a.0 + t * dx - x).hypot(a.1 + t * dy - y)
+    };
+    [point_box(a), point_box(b)]
+        .into_iter()
+        .chain([(x0, y0), (x1, y0), (x0, y1), (x1, y1)].map(point_segment))
+        .fold(f64::INFINITY, f64::min)
+}
+
+/// The parts of drawn runs of a line outside a box.
+fn runs_outside(runs: &[Vec<(f64, f64)>], b: Rect) -> Vec<Vec<(f64, f64)>> {
+    let r = (b.0, b.1, b.0 + b.2, b.1 + b.3);
+    let mut out: Vec<Vec<(f64, f64)>> = Vec::new();
+    for run in runs {
+        let mut cur: Vec<(f64, f64)> = Vec::new();
+        for w in run.windows(2) {
+            let (a, c) = (w[0], w[1]);
+            match clip_segment(a, c, r) {
+                None => {
+                    if cur.is_empty() {
+                        cur.push(a);
+                    }
+                    cur.push(c);
+                }
+                Some((p, q)) => {
+                    // Before the box, then after it.
+                    if p != a {
+                        if cur.is_empty() {
+                            cur.push(a);
+                        }
+                        cur.push(p);
+                    }
+                    if cur.len() > 1 {
+                        out.push(std::mem::take(&mut cur));
+                    }
+                    cur.clear();
+                    if q != c {
+                        cur.push(q);
+                        cur.push(c);
+                    }
+                }
+            }
+        }
+        if cur.len() > 1 {
+            out.push(cur);
+        }
+    }
+    out
+}
+
+/// The distance from drawn runs of a line to a box.
+fn runs_distance(runs: &[Vec<(f64, f64)>], b: Rect) -> f64 {
+    runs.iter()
+        .flat_map(|run| run.windows(2))
+        .map(|w| segment_box_distance(w[0], w[1], b))
+        .fold(f64::INFINITY, f64::min)
+}
+
 /// How much drawn data a box covers: weighted samples inside it (grown by `margin`).
 fn cover(b: (f64, f64, f64, f64), samples: &[((f64, f64), f64)], margin: f64) -> f64 {
     samples
@@ -1084,20 +1166,14 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
     let mut gg = Group::new("guides", "guides", None);
     let grey = Rgba(150, 150, 150, 255);
     let mut guide_labels: Vec<(String, Vec<Place>)> = Vec::new();
-    let mut guide_samples: Vec<Vec<(f64, f64)>> = Vec::new();
-    for (i, g) in p.guides.iter().enumerate() {
+    let mut guide_runs: Vec<Vec<Vec<(f64, f64)>>> = Vec::new();
+    for g in &p.guides {
         let runs = polyline(&g.points, xm, ym, cut);
         let mut sm = Vec::new();
         sample_runs(&runs, 0.3 * fs, &mut sm);
         samples.extend(sm.iter().map(|&q| (q, 0.3)));
-        let d = runs_path(&runs);
-        gg.ops.push(Op {
-            d,
-            paints: vec![Paint::Stroke(Line::solid(grey, 0.6 * pt))],
-            clip: true,
-            class: format!("guide guide-{i}"),
-            label: Some(text::plain(&g.label)),
-        });
+        // Drawn once the labels are placed: a label written on its line cuts it.
+        guide_runs.push(runs);
         // Places for the label: samples along the guide inside the frame, last first, with
         // the local direction (rising to the right on the page or not).
         let mut cands = Vec::new();
@@ -1108,7 +1184,6 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                 cands.push((x1, y1, rising));
             }
         }
-        guide_samples.push(sm);
         guide_labels.push((g.label.clone(), cands));
     }
 
@@ -1369,65 +1444,139 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
         );
     }
 
-    // Guide labels: near the visible end of each guide, on the open side of the line, clear
-    // of the data, the other guides, the legend, the notes and labels already placed.
-    let mut taken: Vec<(f64, f64, f64, f64)> = legend_box.into_iter().chain(notes_box).collect();
-    let cap_l = text::cap_height(lfs);
-    for (gi, (label, cands)) in guide_labels.iter().enumerate() {
+    // Guide labels: each beside its own guide (a corner of the label a little off the line),
+    // or where no such place is clear, on it (the line cut under the label), as near its
+    // visible end as the data allow; always with its own guide clearly the nearest line,
+    // crossed by no other guide, and overlapping no other label, the legend or the notes.
+    // Drawn over the data, which the place avoids where it can.
+    let mut lab = Group::new("guide-labels", "guide-labels", None);
+    let mut taken: Vec<Rect> = legend_box.into_iter().chain(notes_box).collect();
+    let guide_boxes_from = taken.len();
+    // What a label covers: a marker (weight 2) hides a datum, which counts far more than a
+    // stretch of a fitted line or an error bar, which stays readable on either side.
+    let data: Vec<((f64, f64), f64)> = samples
+        .iter()
+        .filter(|(_, wt)| *wt >= 0.5)
+        .map(|&(q, wt)| (q, if wt >= 2.0 { 3.0 } else { 0.25 * wt }))
+        .collect();
+    let offset = 0.3 * fs;
+    let edge = 0.25 * fs;
+    // The gap around a label written on its line.
+    let cut_pad = 0.2 * fs;
+    let mut cut_out: Vec<Option<Rect>> = vec![None; guide_labels.len()];
+    // The guides with the fewest places (the shortest in the frame) choose first.
+    let mut order: Vec<usize> = (0..guide_labels.len()).collect();
+    order.sort_by_key(|&i| guide_labels[i].1.len());
+    for gi in order {
+        let (label, cands) = &guide_labels[gi];
         let w = text::width(label, lfs);
-        let mut others: Vec<((f64, f64), f64)> = samples
-            .iter()
-            .filter(|(_, wt)| *wt >= 0.5)
-            .copied()
-            .collect();
-        for (gj, sm) in guide_samples.iter().enumerate() {
-            if gj != gi {
-                others.extend(sm.iter().map(|&q| (q, 1.0)));
-            }
-        }
-        let mut best: Option<(f64, f64, f64, f64)> = None;
-        let mut best_score = f64::INFINITY;
-        // Each place offers both open sides of the line: above it first, then below.
-        let boxes = cands.iter().flat_map(|&(x, y, rising)| {
-            [false, true].map(|below| {
-                let base = if below {
-                    y + 0.3 * fs + cap_l
+        let (above, below) = text::ink_above_below(label, lfs);
+        let h = above + below;
+        // (score, box, written on the line)
+        let mut best: Option<(f64, Rect, bool)> = None;
+        for (k, &(x, y, rising)) in cands.iter().enumerate() {
+            // Beside the line: for a line rising to the right, down-right of it (the label's
+            // upper left corner near the line, so the text starts at its line) or up-left of
+            // it; for a falling line, up-right or down-left. Or centred on it.
+            let sides = if rising {
+                [(1.0, 1.0), (-1.0, -1.0), (0.0, 0.0)]
+            } else {
+                [(1.0, -1.0), (-1.0, 1.0), (0.0, 0.0)]
+            };
+            for (side, (sx, sy)) in sides.into_iter().enumerate() {
+                let on_line = side == 2;
+                let cx = x + sx * offset;
+                let cy = y + sy * offset;
+                let b = (
+                    if on_line {
+                        cx - 0.5 * w
+                    } else if sx < 0.0 {
+                        cx - w
+                    } else {
+                        cx
+                    },
+                    if on_line {
+                        cy - 0.5 * h
+                    } else if sy < 0.0 {
+                        cy - h
+                    } else {
+                        cy
+                    },
+                    w,
+                    h,
+                );
+                if b.0 < fx + edge
+                    || b.0 + b.2 > fx + fw - edge
+                    || b.1 < fy + edge
+                    || b.1 + b.3 > fy + fh - edge
+                {
+                    continue;
+                }
+                // Distances to the lines as drawn: a label on its line is as far from it as
+                // the gap cut around it.
+                let own = if on_line {
+                    cut_pad
                 } else {
-                    y - 0.3 * fs
+                    runs_distance(&guide_runs[gi], b)
                 };
-                let bx = if rising != below {
-                    x - 0.2 * fs - w
-                } else {
-                    x + 0.2 * fs
-                };
-                (bx, base - cap_l, w, cap_l + 0.3 * lfs)
-            })
-        });
-        for b in boxes {
-            if b.0 < fx + 0.2 * fs
-                || b.0 + b.2 > fx + fw - 0.2 * fs
-                || b.1 < fy + 0.2 * fs
-                || b.1 + b.3 > fy + fh - 0.2 * fs
-            {
-                continue;
-            }
-            let mut score = cover(b, &others, 0.6 * r);
-            if taken.iter().any(|t| overlaps(*t, b)) {
-                score += 1e6;
-            }
-            if score < best_score {
-                best_score = score;
-                best = Some(b);
-                if score == 0.0 {
-                    break;
+                let padded = (
+                    b.0 - cut_pad,
+                    b.1 - cut_pad,
+                    b.2 + 2.0 * cut_pad,
+                    b.3 + 2.0 * cut_pad,
+                );
+                let other = guide_runs
+                    .iter()
+                    .enumerate()
+                    .filter(|(gj, _)| *gj != gi)
+                    .map(|(gj, r)| {
+                        // A line already cut under its own label is not drawn there.
+                        match cut_out[gj] {
+                            Some(c) => runs_distance(&runs_outside(r, c), b),
+                            None => runs_distance(r, b),
+                        }
+                    })
+                    .fold(f64::INFINITY, f64::min);
+                let mut score = cover(b, &data, r) + 1e-3 * k as f64;
+                // One side for every label where the data allow, then the other, then on the
+                // line.
+                score += [0.3, 1.0, 0.0][side];
+                let spaced = (b.0 - edge, b.1 - edge, b.2 + 2.0 * edge, b.3 + 2.0 * edge);
+                if taken.iter().any(|t| overlaps(*t, spaced)) {
+                    score += 1e6;
+                }
+                // Nor stacked on another guide's label, which would read as a list.
+                let apart = (b.0 - lfs, b.1 - lfs, b.2 + 2.0 * lfs, b.3 + 2.0 * lfs);
+                if taken[guide_boxes_from..]
+                    .iter()
+                    .any(|t| overlaps(*t, apart))
+                {
+                    score += 1.0;
+                }
+                // Crossed by a line (its own, beside it; another, anywhere).
+                if own < 0.1 * fs || other < 0.3 * fs {
+                    score += 1e5;
+                }
+                // Nearer another line than clearly its own: ranked by how much nearer.
+                if other < (2.0 * own).max(own + 0.5 * fs) {
+                    score += 1e4 + own / other.max(1e-9);
+                }
+                if on_line && cut_out.iter().flatten().any(|c| overlaps(*c, padded)) {
+                    score += 1e6;
+                }
+                if best.is_none_or(|(s0, _, _)| score < s0) {
+                    best = Some((score, b, on_line));
                 }
             }
+            if best.is_some_and(|(s0, _, _)| s0 == 0.0) {
+                break;
+            }
         }
-        if let Some(b) = best {
-            gg.text(
+        if let Some((_, b, on_line)) = best {
+            lab.text(
                 label,
                 b.0,
-                b.1 + cap_l,
+                b.1 + above,
                 lfs,
                 0.0,
                 0.0,
@@ -1435,7 +1584,28 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                 Some(0.25 * fs),
             );
             taken.push(b);
+            if on_line {
+                cut_out[gi] = Some((
+                    b.0 - cut_pad,
+                    b.1 - cut_pad,
+                    b.2 + 2.0 * cut_pad,
+                    b.3 + 2.0 * cut_pad,
+                ));
+            }
         }
+    }
+    for (i, (g, runs)) in p.guides.iter().zip(&guide_runs).enumerate() {
+        let d = match cut_out[i] {
+            Some(c) => runs_path(&runs_outside(runs, c)),
+            None => runs_path(runs),
+        };
+        gg.ops.push(Op {
+            d,
+            paints: vec![Paint::Stroke(Line::solid(grey, 0.6 * pt))],
+            clip: true,
+            class: format!("guide guide-{i}"),
+            label: Some(text::plain(&g.label)),
+        });
     }
 
     let mut lg = Group::new("legend", "legend", None);
@@ -1492,6 +1662,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
 
     groups.push(gg);
     groups.extend(series_groups);
+    groups.push(lab);
     groups.push(fg);
     groups.push(lg);
     groups.push(ng);

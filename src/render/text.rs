@@ -179,6 +179,28 @@ pub(crate) fn width(text: &str, size: f64) -> f64 {
     pen
 }
 
+/// How far the ink of marked-up text at `size` pixels per em reaches above and below the
+/// baseline (both positive when above and below; from the outlines' points, which hold the
+/// curves), so that exponents and descenders are counted.
+pub(crate) fn ink_above_below(text: &str, size: f64) -> (f64, f64) {
+    use super::scene::Seg;
+    let sh = shape(text, size);
+    let (mut top, mut bottom) = (0.0f64, 0.0f64);
+    for s in &sh.path.0 {
+        let ys = match *s {
+            Seg::M(_, y) | Seg::L(_, y) => [y, y, y],
+            Seg::Q(_, a, _, b) => [a, b, b],
+            Seg::C(_, a, _, b, _, c) => [a, b, c],
+            Seg::Z => [0.0; 3],
+        };
+        for y in ys {
+            top = top.max(-y);
+            bottom = bottom.max(y);
+        }
+    }
+    (top, bottom)
+}
+
 /// Height of capital letters at `size` pixels per em.
 pub(crate) fn cap_height(size: f64) -> f64 {
     let f = face();
