@@ -434,3 +434,97 @@ fn a_region_centre_off_the_map_names_the_frame() {
     );
     assert!(!d.path().join("run").exists());
 }
+
+#[path = "common/svg_layout.rs"]
+mod svg_layout;
+
+/// Zooms into the demo map (a 3' region, drawn 800 pixels wide, where the scale bar's text is
+/// wider than its bar): the scale bar and its text lie inside the map's frame, and every leaf
+/// id is clear of every drawn outline when the frame leaves room (read from the SVG).
+#[test]
+fn a_zoomed_region_keeps_its_scale_bar_and_ids_clear() {
+    let d = tempfile::tempdir().unwrap();
+    let run = demo_run(d.path(), "demo", &[]);
+    for (k, region) in [
+        "152.8125,11.40625,3arcmin",
+        "152.87,11.525,3arcmin",
+        "152.8125,11.40625,6arcmin",
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let out = format!("zoom{k}");
+        let o = cairn(
+            &[
+                "draw",
+                run.to_str().unwrap(),
+                "-o",
+                &out,
+                "--region",
+                region,
+                "--width",
+                "800",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let svg = std::fs::read_to_string(d.path().join(&out).join("overlay.svg")).unwrap();
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let class_is = |n: &roxmltree::Node, c: &str| {
+            n.attribute("class")
+                .is_some_and(|x| x.split(' ').next() == Some(c))
+        };
+        let paths: Vec<roxmltree::Node> = doc
+            .descendants()
+            .filter(|n| n.has_tag_name("path"))
+            .collect();
+        let frame = svg_layout::bounds(
+            paths
+                .iter()
+                .find(|n| class_is(n, "frame"))
+                .unwrap()
+                .attribute("d")
+                .unwrap(),
+        );
+        let within = |b: svg_layout::Bounds| {
+            b.0 >= frame.0 && b.1 >= frame.1 && b.2 <= frame.2 && b.3 <= frame.3
+        };
+        let bar = paths.iter().find(|n| class_is(n, "scale-bar")).unwrap();
+        let bar = svg_layout::bounds(bar.attribute("d").unwrap());
+        let text = paths
+            .iter()
+            .find(|n| {
+                n.attribute("aria-label")
+                    .is_some_and(|l| l.ends_with(" pc"))
+                    && n.attribute("fill") != Some("none")
+            })
+            .unwrap();
+        let text = svg_layout::bounds(text.attribute("d").unwrap());
+        assert!(
+            within(bar) && within(text),
+            "{region}: {bar:?} {text:?} in {frame:?}"
+        );
+        // Leaf ids against the outlines (their rings as drawn, clipped to the frame).
+        let outlines: Vec<Vec<(f64, f64)>> = paths
+            .iter()
+            .filter(|n| class_is(n, "leaf"))
+            .flat_map(|n| {
+                svg_layout::clipped(&svg_layout::subpaths(n.attribute("d").unwrap()), frame)
+            })
+            .collect();
+        let ids: Vec<svg_layout::Bounds> = paths
+            .iter()
+            .filter(|n| class_is(n, "leaf-label") && n.attribute("fill") != Some("none"))
+            .map(|n| svg_layout::bounds(n.attribute("d").unwrap()))
+            .collect();
+        assert!(!ids.is_empty() && !outlines.is_empty(), "{region}");
+        for b in &ids {
+            assert!(within(*b), "{region}: id at {b:?}");
+            assert!(
+                svg_layout::distance(&outlines, *b) > 0.0,
+                "{region}: an id at {b:?} crosses an outline"
+            );
+        }
+    }
+}

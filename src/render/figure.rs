@@ -408,8 +408,14 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         let c = lay.figure_to_map(left + inset + ex, frame.1 + fh - inset - ey);
         lay.beam = Some(beam_geometry(maj, min, pa, o.sky, c));
     }
-    if let Some((len, _)) = &o.scale_bar {
-        let (ex, ey) = (left + fw - inset, frame.1 + fh - inset - 0.3 * fs);
+    if let Some((len, label)) = &o.scale_bar {
+        // The text is centred over the bar; text wider than the bar moves both to the left
+        // so that the text too ends an inset inside the frame.
+        let overhang = ((text::width(label, lfs) - len * kx) / 2.0).max(0.0);
+        let (ex, ey) = (
+            left + fw - inset - overhang,
+            frame.1 + fh - inset - 0.3 * fs,
+        );
         let end = lay.figure_to_map(ex, ey);
         lay.scale_bar = Some(((end.0 - len, end.1), end));
     }
@@ -825,6 +831,29 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     for b in &keep_out {
         placed.insert(*b);
     }
+    // The leaves' outlines as drawn (each stretch's box, as wide as the line with its dark
+    // casing), which labels keep clear of where they can.
+    let mut outlines = BoxIndex::new(2.0 * label_fs);
+    let half_line = 0.5 * (0.85 + 1.1) * m.pt;
+    for rings in traced.values() {
+        for ring in rings {
+            for w in ring.windows(2) {
+                let (a, b) = (
+                    lay.map_to_figure(w[0].0, w[0].1),
+                    lay.map_to_figure(w[1].0, w[1].1),
+                );
+                let bb = (
+                    a.0.min(b.0) - half_line,
+                    a.1.min(b.1) - half_line,
+                    a.0.max(b.0) + half_line,
+                    a.1.max(b.1) + half_line,
+                );
+                if bb.2 >= fx && bb.0 <= fx + fw && bb.3 >= fy && bb.1 <= fy + fh {
+                    outlines.insert(bb);
+                }
+            }
+        }
+    }
     let cap_h = text::cap_height(label_fs);
     let hpad = 0.15 * label_fs;
     let inside =
@@ -858,7 +887,9 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         let reach = 0.8 * label_fs;
         let (ex0, ex1) = (ex0.max(px - reach), ex1.min(px + reach));
         let (ey0, ey1) = (ey0.max(py - reach), ey1.min(py + reach));
+        // The first place clear of labels and outlines; else the first clear of labels.
         let mut best: Option<(f64, f64)> = None;
+        let mut fallback: Option<(f64, f64)> = None;
         'search: for ring in 1..=4 {
             let r = 0.25 * label_fs * ring as f64;
             // Baseline-left positions of the label around the leaf's extent.
@@ -875,12 +906,15 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             for (bx, by) in cands {
                 let bb = (bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad);
                 if inside(bb) && !placed.overlaps(bb) {
-                    best = Some((bx, by));
-                    break 'search;
+                    if !outlines.overlaps(bb) {
+                        best = Some((bx, by));
+                        break 'search;
+                    }
+                    fallback = fallback.or(Some((bx, by)));
                 }
             }
         }
-        match best {
+        match best.or(fallback) {
             Some((bx, by)) => {
                 placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
                 shown.push((leaf, bx, by, None));
