@@ -1391,7 +1391,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     let _ = writeln!(s, "\n## Mass functions\n");
     let _ = writeln!(
         s,
-        "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood peak exp(mu) and width sigma of ln M, each with its 68.27% confidence interval (Student's t and chi-square, exact for a log-normal sample of any size).\n",
+        "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood peak exp(mu) and width sigma of ln M, each with its 68.27% confidence interval (Student's t and chi-square, exact for a complete log-normal sample of three or more leaves; a mass or completeness cut truncates the sample and the intervals then say less).\n",
         match o.mass_min {
             Some(m) => format!("fixed at {m} Msun"),
             None => format!(
