@@ -1702,6 +1702,10 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             ));
         }
         m = cairn::resolution::to_common_resolution(&m, res, d)?;
+        // What was done, said as the run's progress is (not a warning).
+        if let Some(said) = cairn::resolution::describe(&m).filter(|_| !quiet) {
+            errln!("{said}");
+        }
     }
     // Warnings are printed with --quiet too, as its help says.
     for w in &m.warnings {

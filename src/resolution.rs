@@ -219,6 +219,25 @@ fn check_map_holds_target(
     Err(Error::usage(format!("{asked}, {problem}; {fix}.")))
 }
 
+/// What [`to_common_resolution`] did to a map, in words for the summary ("smoothed to a
+/// 68.75" beam (0.1 pc at 300 pc) and regridded by 2 x 2 pixels"); `None` for a map not
+/// smoothed.
+pub fn describe(map: &Map) -> Option<String> {
+    let c = map.common_resolution?;
+    let beam = map.beam?;
+    Some(format!(
+        "smoothed to a {:.2}\" beam ({} pc at {} pc){}",
+        beam.major_deg * 3600.0,
+        crate::units::tidy(c.resolution_m / crate::physics::constants::PC),
+        crate::units::tidy(c.distance_m / crate::physics::constants::PC),
+        if c.block >= 2 {
+            format!(" and regridded by {0} x {0} pixels", c.block)
+        } else {
+            String::new()
+        }
+    ))
+}
+
 /// The map smoothed (and regridded) to a circular beam of `resolution_m` at `distance_m`.
 pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Result<Map> {
     let path = &map.path;
@@ -378,17 +397,6 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
     h.set("BPA", Value::Float(0.0), "deg");
     out.header = h;
     out.data = data;
-    out.warnings.push(format!(
-        "smoothed to a {:.2}\" beam ({} pc at {} pc){}",
-        target_deg * 3600.0,
-        crate::units::tidy(resolution_m / crate::physics::constants::PC),
-        crate::units::tidy(distance_m / crate::physics::constants::PC),
-        if k >= 2 {
-            format!(" and regridded by {k} x {k} pixels")
-        } else {
-            String::new()
-        }
-    ));
     Ok(out)
 }
 

@@ -165,7 +165,7 @@ fn the_largest_suggested_resolution_is_accepted() {
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(
-        o.stderr.contains("smoothed to a 68.75\" beam"),
+        o.stderr.contains("smoothed to a 68.75\" beam") && !o.stderr.contains("warning: smoothed"),
         "{}",
         o.stderr
     );
