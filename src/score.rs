@@ -621,10 +621,12 @@ pub fn score(
                 unresolved: false,
                 radius_moment_pc: nan,
                 density_cm3: nan,
-                temperature_k: if t.n_t_weight > 0.0 {
-                    t.n_t / t.n_t_weight
-                } else {
-                    nan
+                // One temperature for the map is every structure's, exactly (its weighted
+                // mean would differ from it in the last digits).
+                temperature_k: match &ctx.temperature_k {
+                    Some(Field::Uniform(k)) => *k,
+                    _ if t.n_t_weight > 0.0 => t.n_t / t.n_t_weight,
+                    _ => nan,
                 },
                 jeans_mass: nan,
                 jeans_length_pc: nan,
