@@ -971,6 +971,12 @@ fn records_keep_what_was_given() {
     ] {
         assert!(csv.contains(says), "{says}");
     }
+    // One temperature for the map: every structure's temperature is it, to the last digit.
+    let mut rows = csv.lines().filter(|l| !l.starts_with('#'));
+    let head: Vec<&str> = rows.next().unwrap().split(',').collect();
+    let t = head.iter().position(|c| *c == "temperature").unwrap();
+    let temperatures: Vec<&str> = rows.map(|l| l.split(',').nth(t).unwrap()).collect();
+    assert!(!temperatures.is_empty() && temperatures.iter().all(|v| *v == "14.0"));
     let run: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(d.path().join("r/run.json")).unwrap())
             .unwrap();
