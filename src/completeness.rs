@@ -1059,13 +1059,19 @@ pub fn check_distinct(truths: &[&Truth]) -> Result<()> {
             if let (Some(x), Some(y)) = (&a.map_sha256, &b.map_sha256)
                 && x == y
             {
+                let same_file =
+                    std::fs::canonicalize(&a.path).ok() == std::fs::canonicalize(&b.path).ok();
                 return Err(Error::input(
                     &a.path,
-                    format!(
-                        "belongs to the same injected map (SHA-256 {}...) as {}, so pooling both would count its cores twice; give each injection once.",
-                        short(x),
-                        b.path.display()
-                    ),
+                    if same_file {
+                        "is given twice to --truth, so its cores would be counted twice; give each injection once.".to_string()
+                    } else {
+                        format!(
+                            "belongs to the same injected map (SHA-256 {}...) as {}, so pooling both would count its cores twice; give each injection once.",
+                            short(x),
+                            b.path.display()
+                        )
+                    },
                 ));
             }
         }

@@ -1762,7 +1762,7 @@ fn pooling_refuses_unpaired_or_mismatched_sets() {
         );
         assert_eq!(o.code, 0, "{}", o.stderr);
     }
-    let cases: [(&[&str], &str, &str); 4] = [
+    let cases: [(&[&str], &str, &str); 5] = [
         (
             &["runa", "runb", "--truth", "a/synth-truth.csv"],
             "--truth",
@@ -1801,9 +1801,25 @@ fn pooling_refuses_unpaired_or_mismatched_sets() {
                 "a/synth-truth.csv",
             ],
             "a/synth-truth.csv",
-            "count its cores twice",
+            "is given twice to --truth, so its cores would be counted twice",
+        ),
+        (
+            &[
+                "runa",
+                "runa",
+                "--truth",
+                "a/synth-truth.csv",
+                "--truth",
+                "acopy/synth-truth.csv",
+            ],
+            "acopy/synth-truth.csv",
+            "belongs to the same injected map",
         ),
     ];
+    std::fs::create_dir(dir.join("acopy")).unwrap();
+    for f in ["synth-truth.csv", "synth-spec.json"] {
+        std::fs::copy(dir.join("a").join(f), dir.join("acopy").join(f)).unwrap();
+    }
     for (given, names, says) in cases {
         let mut args = vec!["compare"];
         args.extend_from_slice(given);
