@@ -1057,7 +1057,7 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
         Some(p) => {
             let text = std::fs::read_to_string(p)
                 .map_err(|e| Error::input(p, format!("cannot be read ({e}).")))?;
-            serde_json::from_str(&text).map_err(|e| Error::input(p, format!("is not a synth specification ({e}); start from a NAME-spec.json that cairn wrote.")))?
+            synth::read_spec(&text).map_err(|e| Error::input(p, format!("{}.", e.0)))?
         }
         None => synth::SynthSpec::default(),
     };

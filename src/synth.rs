@@ -65,6 +65,7 @@ pub enum Frame {
 
 /// The log-normal background.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Background {
     /// Mean H2 column density [cm^-2].
     pub mean_column_cm2: f64,
@@ -86,7 +87,7 @@ impl Default for Background {
 
 /// Radial profile of an injected core.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
+#[serde(rename_all = "snake_case", deny_unknown_fields)]
 pub enum Profile {
     /// Gaussian column-density profile; the core radius is its half width at half maximum,
     /// truncated at 6 radii.
@@ -117,6 +118,7 @@ impl Profile {
 
 /// One core placed by hand.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct CoreSpec {
     /// Zero-based pixel column of the centre (centre of the first pixel = 0).
     pub x: f64,
@@ -132,6 +134,7 @@ pub struct CoreSpec {
 
 /// A random population of cores, drawn with the spec's seed (its own random stream).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct CorePopulation {
     /// Number of cores.
     pub count: usize,
@@ -151,18 +154,33 @@ pub struct CorePopulation {
     pub margin_px: f64,
 }
 
-/// Unit of dust-emission maps.
+/// Unit of dust-emission maps. Written as `"MJyPerSr"` and `"JyPerBeam"` (as every
+/// specification has been, so that they read back and reproduce byte for byte); read also in
+/// snake case like the other names of a specification (`"mjy_per_sr"`, `"jy_per_beam"`) and as
+/// the command line spells them (`"MJy/sr"`, `"Jy/beam"`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub enum EmissionUnit {
     /// MJy sr^-1.
+    #[serde(alias = "mjy_per_sr", alias = "MJy/sr")]
     MJyPerSr,
     /// Jy per beam (needs a beam).
+    #[serde(alias = "jy_per_beam", alias = "Jy/beam")]
     JyPerBeam,
+}
+
+impl EmissionUnit {
+    /// The unit as the command line and BUNIT spell it.
+    pub fn text(&self) -> &'static str {
+        match self {
+            EmissionUnit::MJyPerSr => "MJy/sr",
+            EmissionUnit::JyPerBeam => "Jy/beam",
+        }
+    }
 }
 
 /// What the map holds.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
+#[serde(rename_all = "snake_case", deny_unknown_fields)]
 pub enum Output {
     /// H2 column density [cm^-2].
     ColumnDensity,
@@ -175,12 +193,34 @@ pub enum Output {
         /// Unit.
         unit: EmissionUnit,
         /// Opacity law.
+        #[serde(deserialize_with = "strict_opacity")]
         opacity: DustOpacity,
     },
 }
 
-/// Everything that defines a synthetic map; serialisable so it can be recorded.
+/// [`DustOpacity`]'s fields as a specification holds them, and no others (a misspelt one is
+/// refused rather than read as missing).
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct OpacityFields {
+    kappa0_cm2_per_g: f64,
+    nu0_hz: f64,
+    beta: f64,
+}
+
+fn strict_opacity<'de, D: serde::Deserializer<'de>>(d: D) -> Result<DustOpacity, D::Error> {
+    let o = OpacityFields::deserialize(d)?;
+    Ok(DustOpacity {
+        kappa0_cm2_per_g: o.kappa0_cm2_per_g,
+        nu0_hz: o.nu0_hz,
+        beta: o.beta,
+    })
+}
+
+/// Everything that defines a synthetic map; serialisable so it can be recorded. A field that
+/// is not one of these is refused when a specification is read (see [`read_spec`]).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct SynthSpec {
     /// Number of columns.
     pub nx: usize,
@@ -246,6 +286,69 @@ impl Default for SynthSpec {
             mu_h2: MU_H2,
         }
     }
+}
+
+/// Reads a specification as `synth` writes it (NAME-spec.json), or as written by hand. Each
+/// refusal is one sentence to follow the file's name: text that is not JSON; the injection
+/// record that `synth --into` writes under the same name (an injection into a real map has no
+/// specification to replay); a field a specification does not have (a misspelt field would
+/// otherwise be left out and its default taken without a word); and any other field missing
+/// or of the wrong kind.
+pub fn read_spec(text: &str) -> Result<SynthSpec, SynthError> {
+    let value: serde_json::Value = serde_json::from_str(text).map_err(|e| {
+        SynthError(format!(
+            "is not JSON ({e}); give a NAME-spec.json that cairn synth wrote, or one written by hand as the README's section on specifications describes"
+        ))
+    })?;
+    if value.get("injected_map").is_some() && value.get("input").is_some() {
+        let map = value
+            .pointer("/input/path")
+            .and_then(|p| p.as_str())
+            .unwrap_or("MAP");
+        return Err(SynthError(format!(
+            "is the record of an injection into {map} made by synth --into, and an injection cannot be replayed with --spec; run the same cairn synth --into command again, with the options this record holds (distance_pc, population, seed, temperature_k, opacity, mu_h2)"
+        )));
+    }
+    serde_json::from_str(text).map_err(|e| SynthError(spec_error_sentence(&e)))
+}
+
+/// The sentence for a specification that serde refuses: an unknown field is named with its
+/// line, and with the field it was most likely meant to be when only the case or a hyphen
+/// differs (`mu_H2` for `mu_h2`).
+fn spec_error_sentence(e: &serde_json::Error) -> String {
+    let text = e.to_string();
+    let ticked = |s: &str| -> Vec<String> {
+        s.split('`')
+            .skip(1)
+            .step_by(2)
+            .map(str::to_string)
+            .collect()
+    };
+    if let Some(rest) = text.strip_prefix("unknown field `") {
+        let names = ticked(&text);
+        let field = rest.split('`').next().unwrap_or("");
+        let known: Vec<String> = names.into_iter().skip(1).collect();
+        let fold = |s: &str| s.to_ascii_lowercase().replace('-', "_");
+        let fix = match known.iter().find(|k| fold(k) == fold(field)) {
+            Some(k) => format!("write it `{k}`"),
+            None if known.is_empty() => "remove it".to_string(),
+            None => format!(
+                "the fields there are {}: correct its name or remove it",
+                known
+                    .iter()
+                    .map(|k| format!("`{k}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        };
+        return format!(
+            "has the field `{field}` at line {}, which a synth specification does not have there; {fix}",
+            e.line()
+        );
+    }
+    format!(
+        "is not a synth specification ({e}); start from a NAME-spec.json that cairn synth wrote (the README's section on specifications lists its fields)"
+    )
 }
 
 /// A core as injected, with its measured truth.
