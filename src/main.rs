@@ -152,7 +152,9 @@ struct SynthArgs {
     /// Base name of the output files.
     #[arg(long, default_value = "synth")]
     name: String,
-    /// A full specification as JSON (as written to NAME-spec.json); other options then refine it.
+    /// A full specification as JSON (as written to NAME-spec.json by synth without --into);
+    /// each other option given replaces its own field only, and the rest keep the spec's values
+    /// (not the defaults shown here).
     #[arg(conflicts_with = "into", long, value_name = "FILE")]
     spec: Option<PathBuf>,
     /// Map size in pixels: `N` or `NXxNY`, such as 512 or 600x400 [default: 256].
@@ -217,10 +219,11 @@ struct SynthArgs {
     /// No background: cores on an empty sky.
     #[arg(long, conflicts_with_all = ["background", "background_width", "background_index", "into"])]
     no_background: bool,
-    /// Number of randomly placed cores to add [default: 0].
+    /// Number of randomly placed cores to add [default: 0]; 0 drops a spec's random cores.
     #[arg(long, value_name = "N", allow_hyphen_values = true)]
     cores: Option<usize>,
-    /// Core mass range, such as 0.5Msun,20Msun [default: 0.5Msun,20Msun].
+    /// Core mass range of the random cores (--cores, or a spec's), such as 0.5Msun,20Msun
+    /// [default: 0.5Msun,20Msun].
     #[arg(long, value_name = "MIN,MAX", allow_hyphen_values = true)]
     core_mass: Option<String>,
     /// Index of the core mass distribution dN/dM ~ M^-INDEX [default: 2.35].
@@ -229,7 +232,8 @@ struct SynthArgs {
     /// Core radius range, such as 0.02pc,0.08pc (drawn uniformly in log) [default: 0.02pc,0.08pc].
     #[arg(long, value_name = "MIN,MAX", allow_hyphen_values = true)]
     core_radius: Option<String>,
-    /// Core profile: gaussian or bonnor-ebert (critical sphere) [default: gaussian].
+    /// Profile of the random cores: gaussian or bonnor-ebert (critical sphere) [default:
+    /// gaussian].
     #[arg(long, value_name = "PROFILE")]
     profile: Option<String>,
     /// Make dust emission at this wavelength (such as 850um) instead of column density.
@@ -1052,6 +1056,12 @@ fn core_profile(text: Option<&str>) -> Result<synth::Profile> {
     }
 }
 
+/// The specification of a plain `synth` run: the `--spec` file (or the defaults), each option
+/// given replacing its own field and nothing else. An option that describes something the map
+/// does not have (a temperature without `--emission`, core options without random cores) is
+/// refused rather than dropped. The random cores' margin from the edges is recomputed for the
+/// new map when the spec's was the default one for its own parameters; a margin set by hand
+/// in the file is kept.
 fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec> {
     let mut spec = match &a.spec {
         Some(p) => {
@@ -1060,6 +1070,12 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
             synth::read_spec(&text).map_err(|e| Error::input(p, format!("{}.", e.0)))?
         }
         None => synth::SynthSpec::default(),
+    };
+    let base = spec.clone();
+    // What the values being refined belong to, for messages.
+    let source = match &a.spec {
+        Some(p) => format!("the spec {}", p.display()),
+        None => "this map".to_string(),
     };
     if let Some(size) = &a.size {
         let bad = || {
@@ -1116,7 +1132,21 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
         spec.background = None;
     } else if a.background.is_some() || a.background_width.is_some() || a.background_index.is_some()
     {
-        let mut bg = spec.background.unwrap_or_default();
+        let mut bg = match spec.background {
+            Some(bg) => bg,
+            // A background added to a spec without one takes the defaults for what is not given.
+            None if a.background.is_some() => synth::Background::default(),
+            None => {
+                let option = if a.background_width.is_some() {
+                    "--background-width"
+                } else {
+                    "--background-index"
+                };
+                return Err(Error::usage(format!(
+                    "{option} changes the background, but {source} has none (\"background\": null): give --background (its mean column density, such as 3e21cm-2) with it to add one, or leave it out."
+                )));
+            }
+        };
         if let Some(t) = &a.background {
             bg.mean_column_cm2 = q(t, &[Dimension::ColumnDensity], "--background")?.si * 1e-4;
         }
@@ -1128,88 +1158,8 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
         }
         spec.background = Some(bg);
     }
-    let profile = core_profile(a.profile.as_deref())?;
-    if a.cores == Some(0) {
-        // No random cores: none need room, and a spec's population is dropped.
-        spec.population = None;
-    }
-    if let Some(n) = a.cores.filter(|&n| n > 0) {
-        let (m0, m1) = match &a.core_mass {
-            Some(t) => pair(t, Dimension::Mass, "--core-mass")?,
-            None => (0.5 * units::M_SUN, 20.0 * units::M_SUN),
-        };
-        let (r0, r1) = match &a.core_radius {
-            Some(t) => pair(t, Dimension::Length, "--core-radius")?,
-            None => (0.02 * units::PARSEC, 0.08 * units::PARSEC),
-        };
-        spec.population = Some(synth::CorePopulation {
-            count: n,
-            mass_min_msun: m0 / units::M_SUN,
-            mass_max_msun: m1 / units::M_SUN,
-            mass_index: a.core_mass_index.unwrap_or(2.35),
-            radius_min_pc: r0 / units::PARSEC,
-            radius_max_pc: r1 / units::PARSEC,
-            profile,
-            margin_px: synth::MIN_MARGIN_PX,
-        });
-        // Random cores keep the widest one's reach from the edges, so that the beam carries
-        // none of their light off the map (as far as the map leaves room).
-        let (margin, reach) = synth::default_margin_px(&spec, r1 / units::PARSEC, profile);
-        if margin < reach {
-            notes.push(format!(
-                "a map of {} x {} pixels is too small to keep the random cores {reach} pixels (the widest core's reach with the beam) from its edges; they keep {margin}, so a core near an edge may be cut by it (its mass put on the pixels inside, which changes its profile and peak, and part of its light carried off the map by the beam); give a larger --size or a smaller --core-radius to avoid it",
-                spec.nx, spec.ny
-            ));
-        }
-        if let Some(p) = spec.population.as_mut() {
-            p.margin_px = margin;
-        }
-    }
-    if let Some(w) = &a.emission {
-        let wl = q(w, &[Dimension::Length], "--emission")?.si;
-        let t = match &a.temperature {
-            Some(t) => q(t, &[Dimension::Temperature], "--temperature")?.si,
-            None => 15.0,
-        };
-        let unit = match a.emission_unit.as_deref() {
-            None | Some("MJy/sr") => synth::EmissionUnit::MJyPerSr,
-            Some("Jy/beam") => synth::EmissionUnit::JyPerBeam,
-            Some(u) => {
-                return Err(Error::usage(format!(
-                    "--emission-unit '{u}' is not understood: give MJy/sr or Jy/beam."
-                )));
-            }
-        };
-        spec.output = synth::Output::DustEmission {
-            wavelength_um: wl * 1e6,
-            temperature_k: t,
-            unit,
-            opacity: cairn::physics::DustOpacity::default(),
-        };
-    }
-    let opacity_given = [
-        (a.opacity.is_some(), "--opacity"),
-        (a.opacity_frequency.is_some(), "--opacity-frequency"),
-        (a.beta.is_some(), "--beta"),
-    ]
-    .into_iter()
-    .find(|(given, _)| *given);
-    match (&mut spec.output, opacity_given) {
-        (synth::Output::DustEmission { opacity, .. }, Some(_)) => {
-            *opacity = dust_opacity(
-                a.opacity.as_deref(),
-                a.opacity_frequency.as_deref(),
-                a.beta,
-                *opacity,
-            )?;
-        }
-        (synth::Output::ColumnDensity, Some((_, option))) => {
-            return Err(Error::usage(format!(
-                "{option} sets the dust opacity of an emission map, but this map is of column density: give --emission (such as --emission 850um) with it, or leave it out."
-            )));
-        }
-        (_, None) => {}
-    }
+    synth_population(a, &base, &mut spec, &source, notes)?;
+    synth_output(a, &mut spec, &source)?;
     if let Some(n) = &a.noise {
         let unit = match &spec.output {
             synth::Output::ColumnDensity => units::PixelUnit::ColumnDensity { to_si: 1e4 },
@@ -1232,6 +1182,219 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
         spec.mu_h2 = m;
     }
     Ok(spec)
+}
+
+/// The random cores of a plain `synth` run: `--cores` sets their number (0 drops them), and
+/// `--core-mass`, `--core-radius`, `--core-mass-index` and `--profile` each replace their own
+/// part of the population, the spec's or, when there is none, the defaults'. Then the margin
+/// they keep from the edges (see [`synth_spec`]).
+fn synth_population(
+    a: &SynthArgs,
+    base: &synth::SynthSpec,
+    spec: &mut synth::SynthSpec,
+    source: &str,
+    notes: &mut Vec<String>,
+) -> Result<()> {
+    let core_option = [
+        (a.core_mass.is_some(), "--core-mass"),
+        (a.core_radius.is_some(), "--core-radius"),
+        (a.core_mass_index.is_some(), "--core-mass-index"),
+        (a.profile.is_some(), "--profile"),
+    ]
+    .into_iter()
+    .find(|(given, _)| *given)
+    .map(|(_, option)| option);
+    let mut population = match (a.cores, spec.population) {
+        (Some(0), _) => {
+            if let Some(option) = core_option {
+                return Err(Error::usage(format!(
+                    "{option} describes the random cores, but --cores 0 asks for none: give --cores N (at least 1) with it, or leave it out."
+                )));
+            }
+            // No random cores: none need room, and a spec's population is dropped.
+            spec.population = None;
+            return Ok(());
+        }
+        (Some(n), Some(p)) => synth::CorePopulation { count: n, ..p },
+        (Some(n), None) => synth::CorePopulation {
+            count: n,
+            mass_min_msun: 0.5,
+            mass_max_msun: 20.0,
+            mass_index: 2.35,
+            radius_min_pc: 0.02,
+            radius_max_pc: 0.08,
+            profile: synth::Profile::Gaussian,
+            margin_px: synth::MIN_MARGIN_PX,
+        },
+        (None, Some(p)) => p,
+        (None, None) => {
+            if let Some(option) = core_option {
+                let which = if a.spec.is_some() {
+                    format!(
+                        "{source} has no random population (\"population\": null; the profiles of cores placed by hand are set in its \"cores\")"
+                    )
+                } else {
+                    "none are asked for".to_string()
+                };
+                return Err(Error::usage(format!(
+                    "{option} describes the random cores, but {which}: give --cores N (such as --cores 30) with it, or leave it out."
+                )));
+            }
+            return Ok(());
+        }
+    };
+    if let Some(t) = &a.core_mass {
+        let (m0, m1) = pair(t, Dimension::Mass, "--core-mass")?;
+        population.mass_min_msun = m0 / units::M_SUN;
+        population.mass_max_msun = m1 / units::M_SUN;
+    }
+    if let Some(t) = &a.core_radius {
+        let (r0, r1) = pair(t, Dimension::Length, "--core-radius")?;
+        population.radius_min_pc = r0 / units::PARSEC;
+        population.radius_max_pc = r1 / units::PARSEC;
+    }
+    if let Some(i) = a.core_mass_index {
+        population.mass_index = i;
+    }
+    if a.profile.is_some() {
+        population.profile = core_profile(a.profile.as_deref())?;
+    }
+    // Random cores keep the widest one's reach from the edges, so that the beam carries none
+    // of their light off the map (as far as the map leaves room). A spec's margin is taken as
+    // that default when it equals the default for the spec's own map and cores, and is then
+    // recomputed for the map being made; any other margin was set by hand, and is kept.
+    let (margin, reach) =
+        synth::default_margin_px(spec, population.radius_max_pc, population.profile);
+    let hand_set = base.population.and_then(|p| {
+        let (own, _) = synth::default_margin_px(base, p.radius_max_pc, p.profile);
+        (p.margin_px != own).then_some((p.margin_px, own))
+    });
+    match hand_set {
+        Some((kept, own)) => {
+            if margin != own {
+                notes.push(format!(
+                    "{source} keeps its random cores {kept} pixels from the edges (population.margin_px, not the default of {own} for its own map and cores, so set by hand), though the default for the map being made is {margin}; edit margin_px in the file to change it"
+                ));
+            }
+        }
+        None => {
+            if margin < reach {
+                notes.push(format!(
+                    "a map of {} x {} pixels is too small to keep the random cores {reach} pixels (the widest core's reach with the beam) from its edges; they keep {margin}, so a core near an edge may be cut by it (its mass put on the pixels inside, which changes its profile and peak, and part of its light carried off the map by the beam); give a larger --size or a smaller --core-radius to avoid it",
+                    spec.nx, spec.ny
+                ));
+            }
+            population.margin_px = margin;
+        }
+    }
+    spec.population = Some(population);
+    Ok(())
+}
+
+/// What a plain `synth` run makes: `--emission` sets the wavelength of an emission map (keeping
+/// an emission spec's temperature, unit and opacity, or making a column-density spec's map one
+/// of emission with the defaults), and `--temperature`, `--emission-unit`, `--opacity`,
+/// `--opacity-frequency` and `--beta` each replace their own part of it. A change of unit that
+/// would leave a spec's noise level in the old unit is refused unless `--noise` is given.
+fn synth_output(a: &SynthArgs, spec: &mut synth::SynthSpec, source: &str) -> Result<()> {
+    let new_unit = match a.emission_unit.as_deref() {
+        None => None,
+        Some("MJy/sr") => Some(synth::EmissionUnit::MJyPerSr),
+        Some("Jy/beam") => Some(synth::EmissionUnit::JyPerBeam),
+        Some(u) => {
+            return Err(Error::usage(format!(
+                "--emission-unit '{u}' is not understood: give MJy/sr or Jy/beam."
+            )));
+        }
+    };
+    let noise_kept = spec.noise_rms != 0.0 && a.noise.is_none();
+    // The spec's noise level as a reader would write it (1.5e20, 0.004).
+    let noise = if (1e-3..1e5).contains(&spec.noise_rms.abs()) {
+        spec.noise_rms.to_string()
+    } else {
+        format!("{:e}", spec.noise_rms)
+    };
+    let map_of = match &a.spec {
+        Some(p) => format!("the map of the spec {}", p.display()),
+        None => "this map".to_string(),
+    };
+    if let Some(w) = &a.emission {
+        let wl = q(w, &[Dimension::Length], "--emission")?.si;
+        match &mut spec.output {
+            synth::Output::DustEmission { wavelength_um, .. } => *wavelength_um = wl * 1e6,
+            synth::Output::ColumnDensity => {
+                let unit = new_unit.unwrap_or(synth::EmissionUnit::MJyPerSr);
+                if noise_kept {
+                    return Err(Error::usage(format!(
+                        "--emission {w} makes an emission map in {}, but the noise_rms {noise} of {source} is a column density in cm-2: give --noise in {} with it (--noise 0 for none).",
+                        unit.text(),
+                        unit.text()
+                    )));
+                }
+                spec.output = synth::Output::DustEmission {
+                    wavelength_um: wl * 1e6,
+                    temperature_k: 15.0,
+                    unit,
+                    opacity: cairn::physics::DustOpacity::default(),
+                };
+            }
+        }
+    }
+    let emission_option = [
+        (a.temperature.is_some(), "--temperature"),
+        (a.emission_unit.is_some(), "--emission-unit"),
+        (a.opacity.is_some(), "--opacity"),
+        (a.opacity_frequency.is_some(), "--opacity-frequency"),
+        (a.beta.is_some(), "--beta"),
+    ]
+    .into_iter()
+    .find(|(given, _)| *given)
+    .map(|(_, option)| option);
+    match &mut spec.output {
+        synth::Output::DustEmission {
+            temperature_k,
+            unit,
+            opacity,
+            ..
+        } => {
+            if let Some(t) = &a.temperature {
+                *temperature_k = q(t, &[Dimension::Temperature], "--temperature")?.si;
+            }
+            if let Some(u) = new_unit
+                && u != *unit
+            {
+                if noise_kept {
+                    return Err(Error::usage(format!(
+                        "--emission-unit {} changes the unit of {source} from {}, but its noise_rms {noise} is in {}: give --noise in {} with it (--noise 0 for none).",
+                        u.text(),
+                        unit.text(),
+                        unit.text(),
+                        u.text()
+                    )));
+                }
+                *unit = u;
+            }
+            *opacity = dust_opacity(
+                a.opacity.as_deref(),
+                a.opacity_frequency.as_deref(),
+                a.beta,
+                *opacity,
+            )?;
+        }
+        synth::Output::ColumnDensity => {
+            if let Some(option) = emission_option {
+                let what = match option {
+                    "--temperature" => "the dust temperature",
+                    "--emission-unit" => "the unit",
+                    _ => "the dust opacity",
+                };
+                return Err(Error::usage(format!(
+                    "{option} sets {what} of an emission map, but {map_of} is of column density: give --emission (such as --emission 850um) with it, or leave it out."
+                )));
+            }
+        }
+    }
+    Ok(())
 }
 
 fn run_synth(a: &SynthArgs, quiet: bool) -> Result<()> {

@@ -829,7 +829,7 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
             && 2.0 * p.margin_px < spec.ny as f64 - 1.0)
         {
             return bad(format!(
-                "a map of {} x {} pixels leaves no room for random cores, which keep {} pixels from every edge: give a --size of at least {} pixels on each side, or no random cores",
+                "a map of {} x {} pixels leaves no room for random cores, which keep {} pixels from every edge (population.margin_px): give a --size of at least {} pixels on each side, or no random cores (or, in a spec file, a smaller margin_px)",
                 spec.nx,
                 spec.ny,
                 p.margin_px,
