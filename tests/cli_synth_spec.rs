@@ -673,3 +673,86 @@ fn the_emission_unit_is_read_in_every_spelling_and_written_as_before() {
     };
     assert_eq!(after["output"]["dust_emission"]["unit"], json!("MJyPerSr"));
 }
+
+/// The README's section on specifications, from its heading to the next section.
+fn readme_section() -> String {
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("README.md")).unwrap();
+    let start = readme
+        .find("### Synth specifications")
+        .expect("README has a section on synth specifications");
+    let rest = &readme[start..];
+    let end = rest[4..].find("\n## ").map_or(rest.len(), |i| i + 4);
+    rest[..end].to_string()
+}
+
+#[test]
+fn the_readme_example_spec_makes_its_two_cores() {
+    let section = readme_section();
+    let start = section.find("```json\n").expect("an example spec") + 8;
+    let example = &section[start..start + section[start..].find("```").unwrap()];
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("two.json"), example).unwrap();
+    let (after, _) = refine(&dir.path().join("two.json"), &[]);
+    // Written back with the same values (the unit in its written spelling).
+    let mut given: Value = serde_json::from_str(example).unwrap();
+    given["output"]["dust_emission"]["unit"] = json!("JyPerBeam");
+    let diff = differences(&given, &after);
+    assert!(diff.is_empty(), "{diff:?}");
+    // The truth table lists the two cores as placed.
+    let o = cairn(
+        &["synth", "-q", "-o", "two", "--spec", "two.json"],
+        dir.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let truth = std::fs::read_to_string(dir.path().join("two/synth-truth.csv")).unwrap();
+    let rows: Vec<Vec<&str>> = truth
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .skip(1)
+        .map(|l| l.split(',').collect())
+        .collect();
+    assert_eq!(rows.len(), 2, "{truth}");
+    let header: Vec<&str> = truth
+        .lines()
+        .find(|l| !l.starts_with('#'))
+        .unwrap()
+        .split(',')
+        .collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    for (row, (x, mass, profile)) in rows
+        .iter()
+        .zip([("40.0", "2.0", "gaussian"), ("88.0", "5.0", "bonnor_ebert")])
+    {
+        assert_eq!(row[col("x")], x);
+        assert_eq!(row[col("mass_msun")], mass);
+        assert_eq!(row[col("profile")], profile);
+    }
+}
+
+#[test]
+fn the_readme_names_every_field_of_a_spec() {
+    let section = readme_section();
+    let mut names = std::collections::BTreeSet::new();
+    let mut with_mu = read_json(&column_spec());
+    with_mu["mu_h2"] = json!(2.33);
+    with_mu["cores"] = json!([{"x": 1.0, "y": 1.0, "mass_msun": 1.0, "radius_pc": 0.02,
+        "profile": {"bonnor_ebert": {"xi_max": 6.45}}}]);
+    for spec in [read_json(&emission_spec()), with_mu] {
+        for k in leaves(&spec).keys() {
+            for part in k
+                .split('/')
+                .filter(|p| !p.is_empty() && p.parse::<usize>().is_err())
+            {
+                names.insert(part.to_string());
+            }
+        }
+    }
+    assert!(names.contains("xi_max") && names.contains("kappa0_cm2_per_g"));
+    for name in &names {
+        assert!(
+            section.contains(&format!("`{name}`")) || section.contains(&format!("\"{name}\"")),
+            "the README's section on specifications does not name `{name}`"
+        );
+    }
+}
