@@ -335,6 +335,18 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
     opts.plane = run["input"]["plane"].as_u64().map(|p| p as usize);
     // The unit as the run read it; a unit without conversion is named as such, as `--unit`
     // takes it (the header's own unit is then no question).
+    // The extinction band the run read (from the option or the unit), which the unit's text
+    // alone may not say.
+    if run["map"]["unit_kind"].as_str()
+        == Some(
+            PixelUnit::Extinction {
+                band: units::ExtinctionBand::K,
+            }
+            .kind_name(),
+        )
+    {
+        opts.band = units::ExtinctionBand::K;
+    }
     if let Some(u) = run["map"]["unit"].as_str() {
         if run["map"]["unit_kind"].as_str() == Some(PixelUnit::Other.kind_name()) {
             opts.unit = Some(format!("other:{u}"));

@@ -92,7 +92,6 @@ pub struct Injected {
     pub margin_px: f64,
 }
 
-/// A core convolved with the beam, in map units, on a box of the map.
 /// The side of the tiles in which the injected light is summed (see [`add_cores`]).
 const TILE: usize = 256;
 
@@ -112,6 +111,7 @@ fn split_at_tiles(vals: &[f64], x0: usize) -> impl Iterator<Item = &[f64]> {
     })
 }
 
+/// A core convolved with the beam, in map units, on a box of the map.
 struct Patch {
     x0: usize,
     y0: usize,

@@ -292,7 +292,8 @@ struct SynthArgs {
     /// With --into: unit of the map's pixels instead of BUNIT.
     #[arg(long, value_name = "UNIT", requires = "into")]
     unit: Option<String>,
-    /// With --into: band of an extinction map in magnitudes, V or K [default: V].
+    /// With --into: band of an extinction map in magnitudes, V or K [default: V, unless BUNIT
+    /// names the band, such as mag(AK)].
     #[arg(long, value_name = "V|K", requires = "into")]
     extinction_band: Option<String>,
     /// With --into: wavelength or frequency of the map instead of the header's, such as 850um.

@@ -544,7 +544,11 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
             let bunit = header.get_str("BUNIT").unwrap_or("").trim();
             if unit != PixelUnit::Other
                 && let Some(theirs) = units::parse_pixel_unit(bunit, opts.band)
-                && std::mem::discriminant(&theirs) != std::mem::discriminant(&unit)
+                && (std::mem::discriminant(&theirs) != std::mem::discriminant(&unit)
+                    || matches!(
+                        (theirs, unit),
+                        (PixelUnit::Extinction { band: a }, PixelUnit::Extinction { band: b }) if a != b
+                    ))
             {
                 warnings.push(format!(
                     "--unit '{}' replaces the header's BUNIT '{bunit}' ({}): the values are read as {}",

@@ -190,9 +190,9 @@ fn converted_level(
     let factor = conv.uniform_factor().ok_or_else(|| {
         refuse(
             if matches!(map.unit, Some(units::PixelUnit::FluxPerPixel { .. })) {
-                "the conversion of a Jy/pixel map differs from pixel to pixel (each pixel's solid angle)".to_string()
+                "the conversion of a Jy/pixel map differs from pixel to pixel (each pixel's solid angle), so no one level in the map's unit stands for it".to_string()
             } else {
-                "the conversion differs from pixel to pixel (the temperature map)".to_string()
+                "the conversion differs from pixel to pixel with the temperature map, so no one level in the map's unit stands for it; give --temperature instead of --temperature-map to convert it at one temperature".to_string()
             },
         )
     })?;
@@ -297,8 +297,12 @@ pub struct Resolved {
     pub noise_source: String,
     /// Background level (clipped median), map units.
     pub background: Option<f64>,
-    /// How each threshold was given, as text.
+    /// How each threshold was given, in one spelling (`5sigma`, a value in map units,
+    /// `11px`, `default`), for comparing runs.
     pub given: [String; 3],
+    /// Each threshold as the user typed it (with what a converted level stood for), for the
+    /// catalogue's header and the run record.
+    pub typed: [String; 3],
 }
 
 /// Resolves thresholds against the map's noise, beam and pixel size.
@@ -428,6 +432,14 @@ fn resolve_with(
         Some(Area::SolidAngle(sr)) => format!("{}arcsec2", sr / (units::ARCSEC * units::ARCSEC)),
         None => "default".to_string(),
     };
+    // The thresholds in one spelling each, so that runs given the same thresholds in other
+    // words (`5 sigma`, `11` pixels) compare as the same (compare, pooled completeness).
+    let canonical = |l: Option<Level>| match l {
+        Some(Level::Value(v)) => format!("{v}"),
+        Some(l @ Level::Converted { .. }) => l.conversion_note().unwrap_or_default(),
+        Some(Level::Sigma(k)) => format!("{k}sigma"),
+        None => "default".to_string(),
+    };
     Ok(Resolved {
         floor,
         prominence,
@@ -436,6 +448,11 @@ fn resolve_with(
         noise_source: source,
         background,
         given: [
+            canonical(o.floor),
+            canonical(o.prominence),
+            area_text.clone(),
+        ],
+        typed: [
             show(o.floor, &o.threshold_texts[0]),
             show(o.prominence, &o.threshold_texts[1]),
             match (o.min_area, &o.threshold_texts[2]) {
@@ -1470,17 +1487,17 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 (
                     "floor".into(),
                     crate::table::fmt_f64(r.floor),
-                    format!("map units (given as {})", r.given[0]),
+                    format!("map units (given as {})", r.typed[0]),
                 ),
                 (
                     "prominence".into(),
                     crate::table::fmt_f64(r.prominence),
-                    format!("map units (given as {})", r.given[1]),
+                    format!("map units (given as {})", r.typed[1]),
                 ),
                 (
                     "min_area".into(),
                     r.min_area_px.to_string(),
-                    format!("pixels (given as {})", r.given[2]),
+                    format!("pixels (given as {})", r.typed[2]),
                 ),
                 (
                     "connectivity".into(),
@@ -1673,9 +1690,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         "other_inputs": other_inputs,
         "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()), "header_unit": map.header.get_str("BUNIT") },
         "parameters": {
-            "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0] },
-            "prominence": { "value": r.prominence, "unit": map.unit_text, "given": r.given[1] },
-            "min_area": { "value": r.min_area_px, "unit": "pixel2", "given": r.given[2] },
+            "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0], "typed": r.typed[0] },
+            "prominence": { "value": r.prominence, "unit": map.unit_text, "given": r.given[1], "typed": r.typed[1] },
+            "min_area": { "value": r.min_area_px, "unit": "pixel2", "given": r.given[2], "typed": r.typed[2] },
             "connectivity": match o.connectivity { Connectivity::Four => 4, Connectivity::Eight => 8 },
             "grow_leaves": o.grow_leaves,
             "leaves_only": o.leaves_only,

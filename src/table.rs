@@ -69,6 +69,10 @@ pub struct Table {
     pub ucds: Vec<(String, String, String)>,
 }
 
+/// Catalogue parameters that are text even when they read as a number (a file name, a
+/// version, a unit), written to FITS as strings.
+const TEXT_PARAMETERS: [&str; 5] = ["input", "input_sha256", "unit", "quantity", "version"];
+
 /// CFITSIO's writers of a double-valued keyword (`ffpkyg`, `ffpkyd`).
 type PutDouble = unsafe extern "C" fn(
     *mut fitsio::sys::fitsfile,
@@ -676,7 +680,17 @@ impl Table {
             let cstr = |t: &str| std::ffi::CString::new(t).expect("no NUL in printable ASCII");
             let (kc, cc) = (cstr(&key), cstr(&c));
             let mut status = 0;
-            match (v.parse::<i64>(), v.parse::<f64>()) {
+            // Parameters that are text whatever they hold (a file named 2024) stay strings.
+            let text_key = TEXT_PARAMETERS.contains(&k.as_str());
+            let (int, float) = if text_key {
+                (Err(()), Err(()))
+            } else {
+                (
+                    v.parse::<i64>().map_err(|_| ()),
+                    v.parse::<f64>().map_err(|_| ()),
+                )
+            };
+            match (int, float) {
                 // Whole numbers as integers (an HDU index, a pixel count).
                 (Ok(n), _) => hdu.write_key(&mut f, &key, (n, c.as_str())).map_err(fail)?,
                 (_, Ok(x)) if x.is_finite() => {

@@ -104,7 +104,7 @@ fn a_column_density_level_on_an_emission_map_is_the_masses_conversion() {
         );
     }
     assert_eq!(
-        record["parameters"]["floor"]["given"].as_str().unwrap(),
+        record["parameters"]["floor"]["typed"].as_str().unwrap(),
         "3.4e21cm-2 = 3.4e21 cm-2 of H2"
     );
     assert_eq!(
@@ -219,7 +219,7 @@ fn a_conversion_that_is_not_one_number_is_refused() {
         (
             &[demo, "--floor", "3e21cm-2", "--temperature-map", "t14.fits"],
             "velloran-850um.fits",
-            "differs from pixel to pixel (the temperature map)",
+            "differs from pixel to pixel with the temperature map",
         ),
         (
             &[

@@ -847,6 +847,50 @@ fn the_extinction_band_read_is_said() {
         assert!(stderr.contains(says), "{stderr}");
     }
     assert!(!d.path().join("contrary").exists());
+    // The other band given as the unit itself replaces the header's: said.
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            "ak.fits",
+            "-o",
+            "as_v",
+            "--unit",
+            "mag(AV)",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("--unit 'mag(AV)' replaces the header's BUNIT 'mag(AK)' (K-band extinction A_K): the values are read as visual extinction A_V"),
+        "{stderr}"
+    );
+    // draw labels the map as the run read it, A_K from --extinction-band K on a plain 'mag':
+    // its figure is the run's own, byte for byte (drawn as A_V, the colour bar's label
+    // would differ).
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            "av.fits",
+            "-o",
+            "k-fig",
+            "--noise",
+            "0.1",
+            "--extinction-band",
+            "K",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let (code, _, stderr) = cairn(&["draw", "k-fig", "-o", "k-drawn", "-q"], d.path());
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        std::fs::read(d.path().join("k-fig/overlay.png")).unwrap()
+            == std::fs::read(d.path().join("k-drawn/overlay.png")).unwrap(),
+        "an A_K run drawn otherwise than segment drew it"
+    );
 }
 
 /// Masses asked for with --distance but not made (an emission map without a temperature) are
@@ -981,6 +1025,43 @@ fn records_keep_what_was_given() {
         serde_json::from_str(&std::fs::read_to_string(d.path().join("r/run.json")).unwrap())
             .unwrap();
     assert_eq!(run["physics"]["distance_pc"], 400.0);
+    // The same thresholds in other words are the same thresholds for comparing runs: the
+    // record's `given` has one spelling, `typed` the user's.
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "r2",
+            "--distance",
+            "400pc",
+            "--temperature",
+            "14K",
+            "--floor",
+            "0.05",
+            "--prominence",
+            "3 sigma",
+            "--min-area",
+            "1.5beam",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let run2: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("r2/run.json")).unwrap())
+            .unwrap();
+    assert_eq!(run2["parameters"]["prominence"]["typed"], "3 sigma");
+    for key in ["floor", "prominence", "min_area"] {
+        assert_eq!(
+            run["parameters"][key]["given"], run2["parameters"][key]["given"],
+            "{key}"
+        );
+    }
+    let (code, _, stderr) = cairn(&["compare", "r", "r2", "-o", "cmp", "-q"], d.path());
+    assert_eq!(code, 0, "{stderr}");
+    assert!(!stderr.contains("(as given) differs"), "{stderr}");
     // The FITS table's header cards, 80 characters each.
     let bytes = std::fs::read(d.path().join("r/structures.fits")).unwrap();
     let cards: Vec<String> = bytes
@@ -1068,4 +1149,24 @@ fn a_unit_option_of_another_kind_than_the_header_is_said() {
     );
     assert_eq!(code, 0, "{stderr}");
     assert!(!stderr.contains("replaces"), "{stderr}");
+}
+
+/// Text parameters stay text in the FITS table however they read: an input file named 2024
+/// is the string '2024' (FITS 4.0 section 4.2.1), not the integer 2024.
+#[test]
+fn a_file_name_that_reads_as_a_number_stays_text() {
+    let d = tempfile::tempdir().unwrap();
+    std::fs::copy(fixture_map(), d.path().join("2024")).unwrap();
+    let (code, _, stderr) = cairn(
+        &["segment", "2024", "-o", "r", "--no-figure", "-q"],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let bytes = std::fs::read(d.path().join("r/structures.fits")).unwrap();
+    let cards: Vec<String> = bytes
+        .chunks(80)
+        .map(|c| String::from_utf8_lossy(c).into_owned())
+        .collect();
+    let input = cards.iter().find(|c| c.starts_with("INPUT   =")).unwrap();
+    assert!(input.starts_with("INPUT   = '2024    '"), "{input}");
 }
