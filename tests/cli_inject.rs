@@ -1204,18 +1204,22 @@ fn a_run_with_other_assumptions_than_the_injection_is_named() {
         dir.join("alone/synth-truth.csv"),
     )
     .unwrap();
-    let o = cairn(
-        &[
-            "compare",
-            "run",
-            "--truth",
-            "alone/synth-truth.csv",
-            "-o",
-            "score2",
-            "-q",
-        ],
-        dir,
-    );
+    // Scores the run against the truth table alone in its folder.
+    let score_alone = |out: &str| {
+        cairn(
+            &[
+                "compare",
+                "run",
+                "--truth",
+                "alone/synth-truth.csv",
+                "-o",
+                out,
+                "-q",
+            ],
+            dir,
+        )
+    };
+    let o = score_alone("score2");
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(
         o.stderr
@@ -1256,18 +1260,7 @@ fn a_run_with_other_assumptions_than_the_injection_is_named() {
         dir.join("alone/synth-spec.json"),
     )
     .unwrap();
-    let o = cairn(
-        &[
-            "compare",
-            "run",
-            "--truth",
-            "alone/synth-truth.csv",
-            "-o",
-            "score3",
-            "-q",
-        ],
-        dir,
-    );
+    let o = score_alone("score3");
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(
         o.stderr
