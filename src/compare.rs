@@ -406,6 +406,26 @@ pub fn summarise(p: &Population, o: &Options) -> Summary {
     summarise_with(p, o, &|| {})
 }
 
+/// Runs one pass of `resamples` resamples that calls `tick` once per resample, and ticks the
+/// ones it did not make (a fit that does not exist, a pass stopped early), so that progress
+/// reaches its end whatever each population allows.
+fn counted<T>(
+    resamples: usize,
+    tick: &(dyn Fn() + Sync),
+    run: impl FnOnce(&(dyn Fn() + Sync)) -> T,
+) -> T {
+    use std::sync::atomic::{AtomicUsize, Ordering};
+    let made = AtomicUsize::new(0);
+    let out = run(&|| {
+        made.fetch_add(1, Ordering::Relaxed);
+        tick();
+    });
+    for _ in made.into_inner()..resamples {
+        tick();
+    }
+    out
+}
+
 /// [`summarise`], calling `tick` once per bootstrap resample (from any thread).
 fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summary {
     let mut notes = vec![];
@@ -430,7 +450,8 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         resamples: o.resamples,
         seed: o.seed,
     };
-    let tail_bootstrap = tail.as_ref().and_then(|_| {
+    let tail_bootstrap = counted(o.resamples, tick, |tick| {
+        tail.as_ref().and_then(|_| {
         populations::bootstrap_power_law_with(&p.masses, o.mass_min, &search, &boot, tick)
         .ok()
         .map(|b| {
@@ -444,11 +465,14 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             }
             (b.alpha_std, b.xmin_std)
         })
+    })
     });
-    let tail_gof = tail.as_ref().and_then(|t| {
-        populations::goodness_of_fit(&p.masses, t, o.mass_min, &search, &boot, tick)
-            .ok()
-            .filter(|g| g.fitted > 0)
+    let tail_gof = counted(o.resamples, tick, |tick| {
+        tail.as_ref().and_then(|t| {
+            populations::goodness_of_fit(&p.masses, t, o.mass_min, &search, &boot, tick)
+                .ok()
+                .filter(|g| g.fitted > 0)
+        })
     });
     // A searched tail whose alpha lies near the window's upper end may be steeper than the
     // search could say (the window cuts the likelihood's range, not the data).
@@ -517,7 +541,8 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             }
         }
     };
-    let mass_size_bootstrap = mass_size.as_ref().and_then(|_| {
+    let mass_size_bootstrap = counted(o.resamples, tick, |tick| {
+        mass_size.as_ref().and_then(|_| {
         let b = populations::bootstrap_mass_size_with(&tested_radii, &tested_masses, &boot, tick)
                 .ok()?;
         if b.n_failed > 0 {
@@ -527,6 +552,7 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
             ));
         }
         Some(b)
+    })
     });
     let dens: Vec<f64> = p
         .densities
@@ -2018,5 +2044,17 @@ mod progress_tests {
             format!("{:?}", c.summaries),
             format!("{:?}", plain.summaries)
         );
+        // Populations whose mass-size fit cannot be made (every leaf below --tests-above):
+        // the resamples not made are counted all the same, so the bar still ends.
+        let o = Options {
+            tests_above: Some(1e9),
+            ..o
+        };
+        let seen = Mutex::new(Vec::new());
+        let c = compare_with_progress(&pops, &o, &|f| seen.lock().unwrap().push(f));
+        let seen = seen.into_inner().unwrap();
+        assert!(c.summaries.iter().all(|s| s.mass_size_bootstrap.is_none()));
+        assert_eq!(seen.len(), 3 * pops.len() * o.resamples);
+        assert_eq!(seen.iter().copied().fold(0.0, f64::max), 1.0);
     }
 }
