@@ -73,6 +73,27 @@ pub struct Table {
 /// version, a unit), written to FITS as strings.
 const TEXT_PARAMETERS: [&str; 5] = ["input", "input_sha256", "unit", "quantity", "version"];
 
+/// What a catalogue parameter's value is, for the FITS keyword's and the VOTable PARAM's type.
+enum ParamKind {
+    /// A whole number.
+    Int(i64),
+    /// Another finite number.
+    Float(f64),
+    /// Text (and parameters that are text whatever they hold, such as a file named 2024).
+    Text,
+}
+
+fn param_kind(key: &str, value: &str) -> ParamKind {
+    if TEXT_PARAMETERS.contains(&key) {
+        return ParamKind::Text;
+    }
+    match (value.parse::<i64>(), value.parse::<f64>()) {
+        (Ok(n), _) => ParamKind::Int(n),
+        (_, Ok(x)) if x.is_finite() => ParamKind::Float(x),
+        _ => ParamKind::Text,
+    }
+}
+
 /// CFITSIO's writers of a double-valued keyword (`ffpkyg`, `ffpkyd`).
 type PutDouble = unsafe extern "C" fn(
     *mut fitsio::sys::fitsfile,
@@ -603,9 +624,15 @@ impl Table {
             );
         }
         for (k, v, c) in &self.meta {
+            // Typed as in the FITS table: numbers as numbers (their text as in the CSV).
+            let datatype = match param_kind(k, v) {
+                ParamKind::Int(_) => "datatype=\"long\"",
+                ParamKind::Float(_) => "datatype=\"double\"",
+                ParamKind::Text => "datatype=\"char\" arraysize=\"*\"",
+            };
             let _ = writeln!(
                 s,
-                "<PARAM name=\"{}\" datatype=\"char\" arraysize=\"*\" value=\"{}\"><DESCRIPTION>{}</DESCRIPTION></PARAM>",
+                "<PARAM name=\"{}\" {datatype} value=\"{}\"><DESCRIPTION>{}</DESCRIPTION></PARAM>",
                 esc(k),
                 esc(v),
                 esc(c)
@@ -680,20 +707,10 @@ impl Table {
             let cstr = |t: &str| std::ffi::CString::new(t).expect("no NUL in printable ASCII");
             let (kc, cc) = (cstr(&key), cstr(&c));
             let mut status = 0;
-            // Parameters that are text whatever they hold (a file named 2024) stay strings.
-            let text_key = TEXT_PARAMETERS.contains(&k.as_str());
-            let (int, float) = if text_key {
-                (Err(()), Err(()))
-            } else {
-                (
-                    v.parse::<i64>().map_err(|_| ()),
-                    v.parse::<f64>().map_err(|_| ()),
-                )
-            };
-            match (int, float) {
+            match param_kind(k, v) {
                 // Whole numbers as integers (an HDU index, a pixel count).
-                (Ok(n), _) => hdu.write_key(&mut f, &key, (n, c.as_str())).map_err(fail)?,
-                (_, Ok(x)) if x.is_finite() => {
+                ParamKind::Int(n) => hdu.write_key(&mut f, &key, (n, c.as_str())).map_err(fail)?,
+                ParamKind::Float(x) => {
                     // The digits of the CSV's text, which give back the same double: in fixed
                     // notation with its decimals (CFITSIO's F format, ffpkyg) when that text
                     // has no exponent, else in the E format with as many significant digits
@@ -713,7 +730,7 @@ impl Table {
                     // SAFETY: an open FitsFile on this table and NUL-terminated strings.
                     unsafe { put(f.as_raw(), kc.as_ptr(), x, decim, cc.as_ptr(), &mut status) };
                 }
-                _ => {
+                ParamKind::Text => {
                     // Strings of any length, a SHA-256 after a HIERARCH keyword or a long
                     // file name, are written whole: continued on CONTINUE cards when they do
                     // not fit on one (FITS 4.0 section 4.2.1.2, continued string keywords).

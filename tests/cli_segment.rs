@@ -1169,4 +1169,19 @@ fn a_file_name_that_reads_as_a_number_stays_text() {
         .collect();
     let input = cards.iter().find(|c| c.starts_with("INPUT   =")).unwrap();
     assert!(input.starts_with("INPUT   = '2024    '"), "{input}");
+    // The VOTable's parameters carry the same types (VOTable 1.4 section 4.1: PARAM has a
+    // datatype as FIELD does).
+    let vot = std::fs::read_to_string(d.path().join("r/structures.vot")).unwrap();
+    for says in [
+        "<PARAM name=\"input\" datatype=\"char\" arraysize=\"*\" value=\"2024\">",
+        "<PARAM name=\"hdu\" datatype=\"long\" value=\"0\">",
+        "<PARAM name=\"min_area\" datatype=\"long\" value=",
+    ] {
+        assert!(vot.contains(says), "{says}");
+    }
+    assert!(
+        vot.lines()
+            .any(|l| l.starts_with("<PARAM name=\"floor\" datatype=\"double\" value=")),
+        "floor as a double"
+    );
 }
