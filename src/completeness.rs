@@ -1471,19 +1471,14 @@ pub fn report(truth: &Truth, run: &Run, s: &Scoring) -> String {
         let kc = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
         let _ = writeln!(
             r,
-            "With the baseline run (the map before injection): {} of the {n} {} within one beam FWHM of one of its leaves, where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {kc} of the other {} were recovered ({:.1}%).\n",
-            n - counted.len(),
-            if n - counted.len() == 1 {
-                "core lies"
-            } else {
-                "cores lie"
-            },
-            counted.len(),
-            if counted.is_empty() {
-                f64::NAN
-            } else {
-                100.0 * kc as f64 / counted.len() as f64
-            }
+            "{}",
+            left_out_sentence(
+                "With the baseline run (the map before injection): ",
+                "of one of its leaves",
+                n,
+                counted.len(),
+                kc
+            )
         );
         for d in &s.baseline_differences {
             let _ = writeln!(r, "**Warning**: {d}.\n");
@@ -1535,19 +1530,14 @@ pub fn pooled_report(parts: &[Part], pooled: &Scoring, run_differences: &[String
     if pooled.with_baseline {
         let _ = writeln!(
             r,
-            "Pooled: {} of the {n} {} within one beam FWHM of a leaf of the baseline run (the map before injection), where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {k} of the other {} were recovered ({:.1}%).\n",
-            n - counted.len(),
-            if n - counted.len() == 1 {
-                "core lies"
-            } else {
-                "cores lie"
-            },
-            counted.len(),
-            if counted.is_empty() {
-                f64::NAN
-            } else {
-                100.0 * k as f64 / counted.len() as f64
-            }
+            "{}",
+            left_out_sentence(
+                "Pooled: ",
+                "of a leaf of the baseline run (the map before injection)",
+                n,
+                counted.len(),
+                k
+            )
         );
     } else {
         let _ = writeln!(
@@ -1575,6 +1565,26 @@ pub fn pooled_report(parts: &[Part], pooled: &Scoring, run_differences: &[String
     }
     let _ = writeln!(r, "{CAVEATS}");
     r
+}
+
+/// The report's sentence on the cores a baseline run leaves out: `lead`, how many of the `n`
+/// injected cores lie within one beam FWHM `near` a baseline leaf, and how many of the
+/// `counted` others were `recovered`.
+fn left_out_sentence(lead: &str, near: &str, n: usize, counted: usize, recovered: usize) -> String {
+    format!(
+        "{lead}{} of the {n} {} within one beam FWHM {near}, where a leaf found may be the map's own, and are left out of what follows (`own_leaf` in `matches.csv`); {recovered} of the other {counted} were recovered ({:.1}%).\n",
+        n - counted,
+        if n - counted == 1 {
+            "core lies"
+        } else {
+            "cores lie"
+        },
+        if counted == 0 {
+            f64::NAN
+        } else {
+            100.0 * recovered as f64 / counted as f64
+        }
+    )
 }
 
 /// The report's closing caveats.

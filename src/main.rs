@@ -984,14 +984,8 @@ fn dust_opacity(
     let mut o = base;
     if let Some(k) = opacity {
         o.kappa0_cm2_per_g = positive(
-            // Back to cm2/g, rounded to 12 significant digits so that the text given comes
-            // back unchanged (0.05cm2/g, not 0.05000000000000001).
-            format!(
-                "{:.11e}",
-                q(k, &[Dimension::Opacity], "--opacity")?.si * 10.0
-            )
-            .parse::<f64>()
-            .unwrap_or(f64::NAN),
+            // Back to cm2/g as given (0.05cm2/g, not 0.05000000000000001).
+            units::as_given(q(k, &[Dimension::Opacity], "--opacity")?.si * 10.0),
             &format!("--opacity {k}"),
         )?;
     }
