@@ -93,7 +93,7 @@ pub struct Injected {
 }
 
 /// The side of the tiles in which the injected light is summed (see [`add_cores`]).
-const TILE: usize = 256;
+const TILE: usize = 64;
 
 /// A row's values starting at column `x0`, cut where they cross from one tile into the next.
 fn split_at_tiles(vals: &[f64], x0: usize) -> impl Iterator<Item = &[f64]> {
@@ -125,10 +125,14 @@ fn cannot(map: &Map, problem: &str) -> Error {
 
 /// Injects the cores of `opts` into `map`, converted to its unit with `ctx`.
 ///
+/// On success the map's pixels have been moved into [`Injected::data`] (`map.data` is left
+/// empty, 0 x 0), so that the injection needs the map's bytes once rather than twice; on an
+/// error `map` is as it was.
+///
 /// Refuses, in one sentence naming the file and the fix: a map without a celestial WCS (no
 /// pixel scale) or without a beam; a unit that cannot be converted from column density; cores
 /// that cannot all be placed.
-pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected> {
+pub fn inject(map: &mut Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected> {
     let (wcs, beam, conv) = prerequisites(map, ctx)?;
     if !(opts.distance_pc > 0.0 && opts.distance_pc.is_finite()) {
         return Err(Error::usage(
@@ -263,7 +267,8 @@ pub fn inject(map: &Map, ctx: &Context, opts: &InjectOptions) -> Result<Injected
         placed.push(c.x, c.y);
     }
 
-    let (data, truth, core_sums) = add_cores(map, &conv, &base, &cores)?;
+    let (layer, truth, core_sums) = add_cores(map, &conv, &base, &cores)?;
+    let data = add_layer(map, layer)?;
     let header = injected_header(map, opts, &population, separation_arcsec, truth.len());
     Ok(Injected {
         data,
@@ -365,8 +370,9 @@ fn prerequisites<'a>(
 /// Injects `cores` at the positions they give (zero-based pixels) into `map` at `distance_pc`,
 /// converted to its unit with `ctx`: the injected pixels, the truth and each core's sum over
 /// the map in map units (see [`Injected`]). [`inject`] places a random population and calls it.
+/// Like [`inject`], it moves the map's pixels into the result on success.
 pub fn inject_at(
-    map: &Map,
+    map: &mut Map,
     ctx: &Context,
     cores: &[synth::CoreSpec],
     distance_pc: f64,
@@ -389,7 +395,16 @@ pub fn inject_at(
         mu_h2: ctx.mu_h2,
         ..SynthSpec::default()
     };
-    add_cores(map, &conv, &base, cores)
+    let (layer, truth, core_sums) = add_cores(map, &conv, &base, cores)?;
+    Ok((add_layer(map, layer)?, truth, core_sums))
+}
+
+/// The injected light: its sums in double precision, in the tiles of the map that some core
+/// reaches (see [`add_cores`]).
+struct Layer {
+    /// Tiles in rows of `tiles_x`; `None` where no core reaches.
+    tiles: Vec<Option<Box<[f64]>>>,
+    tiles_x: usize,
 }
 
 /// Renders, convolves and converts `cores` and adds them to the map, in their order.
@@ -398,7 +413,7 @@ fn add_cores(
     conv: &Converter,
     base: &SynthSpec,
     cores: &[synth::CoreSpec],
-) -> Result<(Array2<f32>, Vec<TruthCore>, Vec<f64>)> {
+) -> Result<(Layer, Vec<TruthCore>, Vec<f64>)> {
     let (wcs, beam) = match (&map.wcs, map.beam) {
         (Some(w), Some(b)) => (w, b),
         _ => return Err(Error::internal("add_cores without a WCS or beam")),
@@ -507,29 +522,59 @@ fn add_cores(
         }
     }
 
-    let mut data = map.data.clone();
-    let mut overflow = false;
-    for (t, tile) in layer.iter().enumerate() {
-        let Some(tile) = tile else { continue };
+    Ok((
+        Layer {
+            tiles: layer,
+            tiles_x,
+        },
+        truth,
+        core_sums,
+    ))
+}
+
+/// Adds the injected light to the map's own pixels, which are moved out of `map` rather than
+/// copied (the injection then holds the map's bytes once): the map's pixels with the cores'.
+/// A first pass checks that every sum fits in a 32-bit float, so that a refusal leaves `map`
+/// as it was.
+fn add_layer(map: &mut Map, layer: Layer) -> Result<Array2<f32>> {
+    let (nx, ny) = (map.nx(), map.ny());
+    let Layer {
+        tiles: layer,
+        tiles_x,
+    } = layer;
+    let tile_pixels = |t: usize| {
         let (ty, tx) = (t / tiles_x, t % tiles_x);
-        for y in ty * TILE..((ty + 1) * TILE).min(ny) {
-            for x in tx * TILE..((tx + 1) * TILE).min(nx) {
-                let d = &mut data[(y, x)];
-                if d.is_finite() {
-                    let v = (*d as f64 + tile[(y % TILE) * TILE + x % TILE]) as f32;
-                    overflow |= !v.is_finite();
-                    *d = v;
-                }
-            }
-        }
-    }
+        (ty * TILE..((ty + 1) * TILE).min(ny))
+            .flat_map(move |y| (tx * TILE..((tx + 1) * TILE).min(nx)).map(move |x| (y, x)))
+    };
+    let sum_at = |d: f32, tile: &[f64], (y, x): (usize, usize)| {
+        (d as f64 + tile[(y % TILE) * TILE + x % TILE]) as f32
+    };
+    let overflow = layer.iter().enumerate().any(|(t, tile)| {
+        tile.as_ref().is_some_and(|tile| {
+            tile_pixels(t).any(|p| {
+                let d = map.data[p];
+                d.is_finite() && !sum_at(d, tile, p).is_finite()
+            })
+        })
+    });
     if overflow {
         return Err(Error::usage(format!(
             "the injected cores make values beyond what {}'s 32-bit floats hold: lower --core-mass or raise --core-radius.",
             map.path.display()
         )));
     }
-    Ok((data, truth, core_sums))
+    let mut data = std::mem::take(&mut map.data);
+    for (t, tile) in layer.iter().enumerate() {
+        let Some(tile) = tile else { continue };
+        for p in tile_pixels(t) {
+            let d = &mut data[p];
+            if d.is_finite() {
+                *d = sum_at(*d, tile, p);
+            }
+        }
+    }
+    Ok(data)
 }
 
 thread_local! {

@@ -1516,7 +1516,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
             a.min_separation.as_deref().unwrap_or("")
         )));
     }
-    let m = map::load(path, &opts)?;
+    let mut m = map::load(path, &opts)?;
     // Cores of known mass need a unit that converts to column density; the load's warning
     // about a unit without conversion (structure only) does not apply to an injection.
     if m.unit == Some(units::PixelUnit::Other) {
@@ -1558,7 +1558,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
             errln!("warning: {w}");
         }
     }
-    let injected = cairn::inject::inject(&m, &ctx, &inject_opts)?;
+    let injected = cairn::inject::inject(&mut m, &ctx, &inject_opts)?;
     let names = [
         format!("{}.fits", a.name),
         format!("{}-truth.csv", a.name),

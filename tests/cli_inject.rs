@@ -600,7 +600,7 @@ fn cores_are_placed_on_valid_pixels_at_the_minimum_separation() {
         seed: 11,
         min_separation_arcsec: Some(120.0),
     };
-    let inj = cairn::inject::inject(&m, &ctx, &opts).unwrap();
+    let inj = cairn::inject::inject(&mut m.clone(), &ctx, &opts).unwrap();
     assert_eq!(inj.truth.len(), 12);
     // 6" pixels: 120" is 20 pixels.
     for (i, a) in inj.truth.iter().enumerate() {
@@ -669,7 +669,10 @@ fn cores_beside_missing_pixels_keep_their_mass() {
             seed,
             min_separation_arcsec: None,
         };
-        let inj = cairn::inject::inject(&m, &ctx, &opts).unwrap();
+        // The injection moves the map's pixels into its result: a copy keeps `m` whole.
+        let mut work = m.clone();
+        let inj = cairn::inject::inject(&mut work, &ctx, &opts).unwrap();
+        assert_eq!(work.data.dim(), (0, 0));
         // All but 3e-4 of each Gaussian's mass lies within its reach; the rest is f32
         // rounding.
         let mass = added_mass(&m, &inj.data);
@@ -1821,4 +1824,54 @@ fn pooling_refuses_unpaired_or_mismatched_sets() {
         check_refused(&o, &args, names, says);
         assert!(!dir.join("out").exists(), "{args:?}: nothing written");
     }
+}
+
+/// Cores whose light would take pixels beyond the largest 32-bit float are refused in one
+/// sentence naming the map, nothing is written and the map is left as it was (the injection
+/// moves the map's pixels into its result only once every sum is known to fit).
+#[test]
+fn cores_beyond_the_float_range_are_refused_and_nothing_is_written() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    // A background of 2e38 cm-2, near the largest 32-bit float (3.4e38).
+    let o = cairn(
+        &[
+            "synth",
+            "-o",
+            "base",
+            "--size",
+            "256",
+            "--background",
+            "2e38cm-2",
+            "--background-width",
+            "0.1",
+            "--seed",
+            "3",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let before = std::fs::read(dir.join("base/synth.fits")).unwrap();
+    // Cores of a few 1e17 solar masses within 0.02-0.04 pc at 250 pc peak near 5e39 cm-2.
+    let args = [
+        "synth",
+        "--into",
+        "base/synth.fits",
+        "-o",
+        "inj",
+        "--distance",
+        "250pc",
+        "--cores",
+        "3",
+        "--core-mass",
+        "3e17Msun,4e17Msun",
+        "--core-radius",
+        "0.02pc,0.04pc",
+        "-q",
+    ];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "base/synth.fits", "32-bit floats hold");
+    assert!(!dir.join("inj").exists());
+    assert_eq!(std::fs::read(dir.join("base/synth.fits")).unwrap(), before);
 }

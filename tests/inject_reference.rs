@@ -130,7 +130,7 @@ fn an_injected_core_holds_its_mass_in_the_map_unit_by_astropy() {
         } else {
             ExtinctionBand::V
         };
-        let m = map::load(
+        let mut m = map::load(
             &path,
             &LoadOptions {
                 band,
@@ -151,7 +151,7 @@ fn an_injected_core_holds_its_mass_in_the_map_unit_by_astropy() {
             profile: Profile::Gaussian,
         };
         let (data, truth, sums) =
-            cairn::inject::inject_at(&m, &ctx, &[core], num(&c["distance_pc"])).unwrap();
+            cairn::inject::inject_at(&mut m, &ctx, &[core], num(&c["distance_pc"])).unwrap();
         let what = format!("case {i} ({}): injected sum (astropy 8.0.2)", c["bunit"]);
         let expected = num(&c["sum"]);
         assert_close(sums[0], expected, 1e-9, 0.0, &what);
