@@ -546,20 +546,7 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
                 }
                 _ => None,
             };
-            assumptions.push(
-                match map.unit {
-                    Some(units::PixelUnit::Extinction { .. }) => {
-                        "caution: masses carry systematics from the extinction-to-column ratio (tens of per cent) and the distance (squared)"
-                    }
-                    Some(u) if u.is_emission() => {
-                        "caution: column densities and masses carry factor-of-two systematics from dust opacity, temperature and distance"
-                    }
-                    _ => {
-                        "caution: masses carry the column-density map's own systematics (factor of two where it came from dust emission) and the distance's (squared)"
-                    }
-                }
-                .into(),
-            );
+            assumptions.push(crate::score::mass_caution(map.unit).into());
             ConversionSummary {
                 column_per_unit_cm2: Some(f * 1e-4),
                 mass_per_unit_pixel_msun: mass,

@@ -486,11 +486,18 @@ impl PhysicsArgs {
                 &format!("--distance {d}"),
             )?);
         }
+        let t_cmb = cairn::physics::constants::T_CMB;
         if let Some(t) = &self.temperature {
-            c.temperature_k = Some(Field::Uniform(positive(
+            let k = positive(
                 q(t, &[Dimension::Temperature], "--temperature")?.si,
                 &format!("--temperature {t}"),
-            )?));
+            )?;
+            if k < t_cmb {
+                return Err(Error::usage(format!(
+                    "--temperature {t} is colder than the cosmic microwave background ({t_cmb} K), which no dust or gas in a molecular cloud is; give the temperature in kelvin, such as 15K."
+                )));
+            }
+            c.temperature_k = Some(Field::Uniform(k));
         }
         if let Some(p) = &self.temperature_map {
             let mut t = inspect::load_aux_map(
@@ -501,6 +508,19 @@ impl PhysicsArgs {
                 false,
                 inspect::AuxUnit::Kelvin,
             )?;
+            let coldest = t
+                .indexed_iter()
+                .filter(|(_, v)| v.is_finite())
+                .min_by(|a, b| a.1.total_cmp(b.1));
+            if let Some(((y, x), &v)) = coldest.filter(|(_, v)| (**v as f64) < t_cmb) {
+                return Err(Error::input(
+                    p,
+                    format!(
+                        "holds {} K at pixel ({x}, {y}), colder than the cosmic microwave background ({t_cmb} K), which no dust or gas in a molecular cloud is; mark such pixels as NaN (they then take the map's median) or correct the map.",
+                        cairn::units::tidy(v as f64)
+                    ),
+                ));
+            }
             match cairn::score::fill_undefined_temperatures(&mut t, map.data.view()) {
                 Err(why) => return Err(Error::input(p, format!("{why}."))),
                 Ok(Some((n, median))) => notes.push(format!(
@@ -1003,6 +1023,12 @@ fn dust_opacity(
             },
             &format!("--opacity-frequency {f}"),
         )?;
+        // Opacity laws are given where dust continuum is measured, as --wavelength is.
+        if !(30e6..=300e12).contains(&o.nu0_hz) {
+            return Err(Error::usage(format!(
+                "--opacity-frequency {f} is outside 300THz to 30MHz (1um to 10m), where dust opacity laws are given; give the frequency or wavelength of the opacity, such as 1THz or 250um."
+            )));
+        }
     }
     if let Some(b) = beta {
         // Measured indices of interstellar dust lie near 1 to 2.5 (common practice); 0 to
@@ -1612,7 +1638,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
             None => serde_json::Value::Null,
         },
         "opacity": ctx.opacity,
-        "nh2_per_av_cm2": ctx.nh2_per_av_m2 * 1e-4,
+        "nh2_per_av_cm2": units::as_given(ctx.nh2_per_av_m2 * 1e-4),
         "av_per_ak": ctx.av_per_ak,
         "mu_h2": ctx.mu_h2,
     });

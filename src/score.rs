@@ -190,6 +190,27 @@ impl Default for Context {
     }
 }
 
+/// The caution that goes with the masses of a map of this unit: which assumptions carry
+/// their systematics (common practice: the factor of two of dust-emission masses comes from
+/// the opacity's and the temperature's uncertainty, the distance enters squared).
+pub fn mass_caution(unit: Option<PixelUnit>) -> &'static str {
+    match unit {
+        Some(PixelUnit::Extinction { .. }) => {
+            "caution: masses carry systematics from the extinction-to-column ratio (tens of per cent) and the distance (squared)"
+        }
+        Some(u) if u.is_emission() => {
+            "caution: column densities and masses carry factor-of-two systematics from dust opacity, temperature and distance"
+        }
+        _ => {
+            "caution: masses carry the column-density map's own systematics (factor of two where it came from dust emission) and the distance's (squared)"
+        }
+    }
+}
+
+/// The largest h nu / k T at which dust emission is converted to column density (see
+/// [`conversion_blocker`]).
+pub const WIEN_LIMIT: f64 = 100.0;
+
 /// Why a map cannot be converted to column density.
 pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
     let unit = map.unit?;
@@ -218,9 +239,11 @@ pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
     if matches!(unit, PixelUnit::FluxPerPixel { .. }) && map.wcs.is_none() {
         return Some("a Jy/pixel map needs a celestial WCS to know the pixel's solid angle".into());
     }
-    // Far on the Wien side the Planck function underflows (exp(h nu / k T) beyond the range
-    // of doubles past h nu / k T = 709.8) and the column density would be infinite: no dust
-    // at that temperature emits measurably at that wavelength.
+    // Far on the Wien side the Planck function falls as exp(-h nu / k T): past h nu / k T of
+    // about 672 (at 850 um) it is no longer a normal double and past 709.8 it is zero, and
+    // long before that the column densities and their squared uncertainties leave the range
+    // of doubles. At h nu / k T = 100 the emission is e^-100 (4e-44) of the Rayleigh-Jeans
+    // value: no dust at that temperature emits measurably at that wavelength.
     let lowest = match &ctx.temperature_k {
         Some(Field::Uniform(t)) => *t,
         Some(Field::Map(m)) => m
@@ -231,7 +254,7 @@ pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
     };
     if let Some(w) = map.wavelength_m {
         let x = physics::constants::H * units::C_LIGHT / (w * physics::constants::K_B * lowest);
-        if x > 700.0 {
+        if x > WIEN_LIMIT {
             return Some(format!(
                 "at {} um and {} K, h nu / k T = {}: dust that cold emits nothing measurable at that wavelength (the Planck function underflows); check the wavelength and the temperature",
                 units::tidy(w * 1e6),

@@ -955,7 +955,7 @@ pub fn catalogue(
         rows.iter().map(|m| m.touches_missing).collect(),
     );
     if let Some(ph) = phys {
-        physics_columns(&mut t, ph, with_distance, grown);
+        physics_columns(&mut t, ph, with_distance, grown, map.unit);
     }
     t
 }
@@ -985,6 +985,7 @@ fn physics_columns(
     ph: &[&crate::score::Physical],
     with_distance: bool,
     grown: bool,
+    unit: Option<units::PixelUnit>,
 ) {
     use crate::score::Physical;
     let p = |g: &dyn Fn(&Physical) -> f64| ph.iter().map(|x| g(x)).collect::<Vec<f64>>();
@@ -1009,7 +1010,11 @@ fn physics_columns(
     t.push_f64(
         "temperature",
         "K",
-        "mass-weighted dust temperature used",
+        if unit.is_some_and(|u| u.is_emission()) {
+            "mass-weighted dust temperature used (also for the sound speed)"
+        } else {
+            "mass-weighted gas temperature used for the sound speed"
+        },
         p(&|x| x.temperature_k),
     );
     if !with_distance {
@@ -1109,7 +1114,10 @@ fn physics_columns(
         ph.iter().map(|x| x.state.to_string()).collect(),
     );
     t.notes.push("state: with a velocity dispersion, bound if alpha_vir <= 2, marginal if <= 4, else unbound; without one, bound if alpha_be <= 1, marginal if <= 2, else unbound; indicative only".into());
-    t.notes.push("caution: masses carry factor-of-two systematics from dust opacity, temperature and distance; mass_err is the map noise only".into());
+    t.notes.push(format!(
+        "{}; mass_err is the map noise only",
+        crate::score::mass_caution(unit)
+    ));
 }
 
 /// The hierarchy file's content (serialised as JSON with its keys in alphabetical order).
@@ -1542,7 +1550,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             let phys_rows: Option<Vec<&crate::score::Physical>> =
                 phys.as_ref().map(|p| keep.iter().map(|&i| &p[i]).collect());
             meta.extend(physics_meta(&o.physics, map));
-            let table = std::sync::Arc::new(catalogue(
+            let mut table = catalogue(
                 map,
                 &rows,
                 phys_rows.as_deref(),
@@ -1550,7 +1558,11 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 &r,
                 &meta,
                 Footprint::Own,
-            ));
+            );
+            if let Some(w) = physics_warning(&o.physics, map, physics_note.as_deref()) {
+                table.notes.push(w);
+            }
+            let table = std::sync::Arc::new(table);
             // The FITS writer takes its share; a send fails only if that thread already stopped on
             // an error, which its join below reports.
             let _ = table_tx.send(table.clone());
@@ -1717,7 +1729,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             "total": seconds,
         },
         "threads": rayon::current_num_threads(),
-        "warnings": map.warnings,
+        "warnings": map.warnings.iter().cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).collect::<Vec<String>>(),
         "physics": physics_record(&o.physics, map, r.noise, physics_note.as_deref()),
     });
     let rec =
@@ -1763,10 +1775,11 @@ fn grown_catalogue(
 ) -> std::sync::Arc<Table> {
     let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
     let ms = measure::measure_grown(g, h, map.wcs.as_ref(), map.beam.as_ref());
-    let phys = crate::score::score(map, &g.hierarchy, &ms, &o.physics, r.noise, noise_map).ok();
+    let phys = crate::score::score(map, &g.hierarchy, &ms, &o.physics, r.noise, noise_map);
     let rows: Vec<&Measurement> = ms.iter().collect();
-    let phys_rows: Option<Vec<&crate::score::Physical>> = phys.as_ref().map(|p| p.iter().collect());
-    std::sync::Arc::new(catalogue(
+    let phys_rows: Option<Vec<&crate::score::Physical>> =
+        phys.as_ref().ok().map(|p| p.iter().collect());
+    let mut table = catalogue(
         map,
         &rows,
         phys_rows.as_deref(),
@@ -1774,7 +1787,21 @@ fn grown_catalogue(
         r,
         meta,
         Footprint::Grown,
-    ))
+    );
+    if let Some(w) = physics_warning(&o.physics, map, phys.as_ref().err().map(String::as_str)) {
+        table.notes.push(w);
+    }
+    std::sync::Arc::new(table)
+}
+
+/// With a distance given (masses asked for), why the physics columns are left out, as the
+/// summary's warning says it: for the catalogue's notes and the run record's warnings. A map
+/// whose header names a unit without conversion was already warned about when it was read.
+fn physics_warning(ctx: &crate::score::Context, map: &Map, note: Option<&str>) -> Option<String> {
+    let note = note?;
+    let unit_warned =
+        map.unit == Some(units::PixelUnit::Other) && map.unit_source == crate::map::Source::Header;
+    (ctx.distance_m.is_some() && !unit_warned).then(|| format!("no masses: {note}"))
 }
 
 fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, String)> {
@@ -1792,17 +1819,24 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
         ));
     }
     if let Some(t) = ctx.temperature_k.as_ref().filter(|_| converted) {
+        // On a dust-emission map the temperature sets the masses and the sound speed; on a
+        // map of column density or extinction, the sound speed alone.
+        // (Short enough for a FITS card's comment after a HIERARCH keyword.)
+        let emission = map.unit.is_some_and(|u| u.is_emission());
+        let (what, per_pixel) = if emission {
+            (
+                "K, dust temperature (also the gas's)",
+                "K, dust temperature per pixel",
+            )
+        } else {
+            (
+                "K, gas temperature (sound speed only)",
+                "K, gas temperature per pixel",
+            )
+        };
         v.push(match t {
-            crate::score::Field::Uniform(k) => (
-                "temperature".into(),
-                fmt_f64(*k),
-                "K, dust temperature".into(),
-            ),
-            crate::score::Field::Map(_) => (
-                "temperature".into(),
-                "map".into(),
-                "K, dust temperature per pixel (--temperature-map)".into(),
-            ),
+            crate::score::Field::Uniform(k) => ("temperature".into(), fmt_f64(*k), what.into()),
+            crate::score::Field::Map(_) => ("temperature".into(), "map".into(), per_pixel.into()),
         });
     }
     if let Some(b) = &map.beam {
@@ -1841,7 +1875,7 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
     if matches!(map.unit, Some(units::PixelUnit::Extinction { .. })) {
         v.push((
             "nh2_per_av".into(),
-            fmt_f64(ctx.nh2_per_av_m2 * 1e-4),
+            fmt_f64(units::as_given(ctx.nh2_per_av_m2 * 1e-4)),
             "cm-2 mag-1".into(),
         ));
         v.push(("av_per_ak".into(), fmt_f64(ctx.av_per_ak), String::new()));
@@ -1862,7 +1896,7 @@ fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, 
     v.push((
         "m_h".into(),
         fmt_f64(crate::physics::constants::M_H_U),
-        "u, mass of a hydrogen atom (multiplied by mu_h2 and mu_p)".into(),
+        "u, H atom mass, times mu_h2 and mu_p".into(),
     ));
     if let Some(s) = &ctx.sigma_nt {
         v.push(match s {
@@ -1910,7 +1944,7 @@ pub fn physics_record(
         "mu_h2": ctx.mu_h2,
         "mu_p": ctx.mu_p,
         "m_h_u": crate::physics::constants::M_H_U,
-        "nh2_per_av_cm2": ctx.nh2_per_av_m2 * 1e-4,
+        "nh2_per_av_cm2": units::as_given(ctx.nh2_per_av_m2 * 1e-4),
         "av_per_ak": ctx.av_per_ak,
         "sigma_nt": ctx.sigma_nt.as_ref().map(|s| s.describe("m/s")),
         "wavelength_um": map.wavelength_m.map(|w| w * 1e6),

@@ -230,6 +230,7 @@ fn normalise_unit(u: &str) -> String {
         ("pixel-1", "/pixel"),
         ("pix-1", "/pixel"),
         ("s-1", "/s"),
+        ("kg-1", "/kg"),
         ("g-1", "/g"),
         ("/pix", "/pixel"),
     ] {
@@ -271,6 +272,7 @@ pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Q
     // A length's examples depend on what it is the length of.
     let describe = |d: &Dimension| match (d, what) {
         (Dimension::Length, "--wavelength") => "a wavelength, such as 850um or 1.3mm",
+        (Dimension::Length, "--opacity-frequency") => "a wavelength, such as 250um or 1.3mm",
         (Dimension::Length, "--distance") => "a distance, such as 300pc or 1.4kpc",
         (Dimension::Length, "--common-resolution") => "a length, such as 0.05pc",
         _ => d.describe(),
@@ -638,6 +640,24 @@ mod tests {
             n.contains("read as mJy/sr") && n.contains("--unit MJy/sr"),
             "{n}"
         );
+    }
+
+    /// An opacity is read in either of its usual spellings, with a slash or with a negative
+    /// power (FITS Standard 4.0 sec. 4.3), in cm2/g or in m2/kg (1 m2/kg = 10 cm2/g).
+    #[test]
+    fn opacities_read_with_slashes_and_negative_powers_alike() {
+        let q = |t: &str| parse_quantity(t, &[Opacity], "--opacity").map(|q| q.si);
+        for (text, si) in [
+            ("0.1cm2/g", 0.01),
+            ("0.1cm2g-1", 0.01),
+            ("0.1cm2 g-1", 0.01),
+            ("0.01m2/kg", 0.01),
+            ("0.01m2kg-1", 0.01),
+            ("0.01m2 kg-1", 0.01),
+        ] {
+            let v = q(text).unwrap_or_else(|e| panic!("{text}: {e}"));
+            assert!((v - si).abs() <= 1e-15 * si, "{text}: {v}");
+        }
     }
 
     #[test]

@@ -478,3 +478,66 @@ fn auxiliary_maps_are_read_in_their_own_units() {
         "has BUNIT 'cm-2', but a temperature map must be in K",
     );
 }
+
+/// Temperatures colder than the cosmic microwave background (2.7255 K: astropy 8.0.2's
+/// `Planck18.Tcmb0`, Fixsen 2009) are mistakes: given as `--temperature` or as a pixel of a
+/// temperature map (named by its position), they are refused. Before, 0.025 K on an
+/// emission map gave infinite masses without a word (the Planck function underflows).
+#[test]
+fn temperatures_colder_than_the_microwave_background_are_refused() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    refused(
+        d.path(),
+        &[
+            "segment",
+            "col.fits",
+            "-o",
+            "out",
+            "--distance",
+            "300pc",
+            "--temperature",
+            "0.025K",
+        ],
+        "--temperature 0.025K",
+        "colder than the cosmic microwave background (2.7255 K)",
+    );
+    let m = cairn::map::load(&d.path().join("col.fits"), &Default::default()).unwrap();
+    let mut h = m.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("K".into()), "");
+    let mut t = m.data.mapv(|_| 14.0f32);
+    t[(7, 11)] = 0.5;
+    cairn::fits_write::write_image_f32(&d.path().join("t.fits"), t.view(), &h, true).unwrap();
+    refused(
+        d.path(),
+        &[
+            "segment",
+            "col.fits",
+            "-o",
+            "out",
+            "--distance",
+            "300pc",
+            "--temperature-map",
+            "t.fits",
+        ],
+        "t.fits",
+        "holds 0.5 K at pixel (11, 7), colder than the cosmic microwave background",
+    );
+    // The background itself is accepted.
+    let o = cairn(
+        &[
+            "segment",
+            "col.fits",
+            "-o",
+            "ok",
+            "--distance",
+            "300pc",
+            "--temperature",
+            "2.7255K",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+}

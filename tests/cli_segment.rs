@@ -894,8 +894,9 @@ fn the_extinction_band_read_is_said() {
 }
 
 /// Masses asked for with --distance but not made (an emission map without a temperature) are
-/// a warning on stderr, seen with --quiet too; without --distance the same line is part of
-/// the summary on stdout.
+/// a warning on stderr, seen with --quiet too, and the run record's warnings and the
+/// catalogue's notes keep it; without --distance the same line is part of the summary on
+/// stdout, and neither record calls it a warning.
 #[test]
 fn masses_asked_for_and_not_made_are_a_warning() {
     let d = tempfile::tempdir().unwrap();
@@ -920,10 +921,32 @@ fn masses_asked_for_and_not_made_are_a_warning() {
         "{stderr}"
     );
     assert!(!stdout.contains("no masses"), "{stdout}");
+    let said = "no masses: a dust-emission map needs a dust temperature";
+    let warnings = |run: &str| -> Vec<String> {
+        let text = std::fs::read_to_string(d.path().join(run).join("run.json")).unwrap();
+        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        v["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|w| w.as_str().unwrap().to_string())
+            .collect()
+    };
+    assert!(
+        warnings("a").iter().any(|w| w.starts_with(said)),
+        "{:?}",
+        warnings("a")
+    );
+    let csv = std::fs::read_to_string(d.path().join("a/structures.csv")).unwrap();
+    assert!(
+        csv.contains(&format!("# note: {said}")),
+        "no note in the catalogue"
+    );
     let (code, stdout, stderr) = cairn(&["segment", m, "-o", "b", "--no-figure", "-q"], d.path());
     assert_eq!(code, 0, "{stderr}");
     assert!(stdout.contains("no masses: "), "{stdout}");
     assert!(!stderr.contains("no masses"), "{stderr}");
+    assert!(warnings("b").is_empty(), "{:?}", warnings("b"));
 }
 
 /// The whole run from the command line with one and with two threads (RAYON_NUM_THREADS, which
@@ -1101,6 +1124,24 @@ fn records_keep_what_was_given() {
         .unwrap();
     let noise_fits: f64 = value("NOISE   ").replace('E', "e").parse().unwrap();
     assert_eq!(noise_fits, noise_csv);
+    // Every parameter's comment is whole in its FITS card (a card holds 80 characters, FITS
+    // 4.0 section 4.1), as the CSV gives it; long strings (CONTINUE cards) aside.
+    for line in csv.lines().filter_map(|l| l.strip_prefix("# parameter ")) {
+        let (name, rest) = line.split_once(" = ").unwrap();
+        let comment = rest.split_once("  (").unwrap().1.strip_suffix(')').unwrap();
+        let key = name.to_uppercase();
+        let c = cards
+            .iter()
+            .find(|c| {
+                c.starts_with(&format!("{key:<8}=")) || c.starts_with(&format!("HIERARCH {key} "))
+            })
+            .unwrap_or_else(|| panic!("no card for {name}"));
+        if c.contains("&'") {
+            continue;
+        }
+        let in_card = c.split_once(" / ").map(|(_, m)| m.trim_end()).unwrap_or("");
+        assert_eq!(in_card, comment, "{name}: the card {c:?}");
+    }
 }
 
 /// `--unit` of another kind than the header's readable BUNIT changes what every value means:

@@ -31,6 +31,8 @@ fn constants_equal_astropy_exactly() {
         ("pc", k::PC),
         ("au", k::AU),
         ("m_H", k::M_H),
+        // astropy 8.0.2 astropy.cosmology.Planck18.Tcmb0 (Fixsen 2009).
+        ("T_cmb", k::T_CMB),
     ];
     for (name, ours) in pairs {
         assert_eq!(ours, num(&v[name]), "constant {name} (astropy 8.0.2)");

@@ -34,6 +34,10 @@ pub const AU: f64 = 149_597_870_700.0;
 /// Parsec \[m\] = au / (1 arcsec in radians) (IAU 2015 Resolution B2, note 4), computed in the
 /// same order as astropy (au divided by the radian value of one arcsecond).
 pub const PC: f64 = AU / ((1.0 / 3600.0) * (std::f64::consts::PI / 180.0));
+/// The cosmic microwave background's temperature today \[K\] (Fixsen 2009, ApJ 707, 916), as
+/// astropy 8.0.2's Planck 2018 cosmology carries it (`Planck18.Tcmb0`): no dust or gas in a
+/// molecular cloud is colder, so cairn refuses lower temperatures as a mistake.
+pub const T_CMB: f64 = 2.7255;
 /// Jansky [W m^-2 Hz^-1] (definition, IAU).
 pub const JY: f64 = 1.0e-26;
 /// One arcsecond in radians.

@@ -3,7 +3,7 @@
 Run as `python tests/oracle/physics_astropy.py OUTDIR`; writes OUTDIR/physics/*.json.
 
 Sources: astropy 8.0.2 (astropy.constants with its default CODATA 2022 / IAU 2015 releases,
-astropy.units, astropy.modeling.models.BlackBody); scipy 1.17.1 (scipy.integrate.solve_ivp,
+astropy.units, astropy.modeling.models.BlackBody, astropy.cosmology.Planck18's Tcmb0); scipy 1.17.1 (scipy.integrate.solve_ivp,
 DOP853, rtol 1e-12) for the isothermal Lane-Emden equation (Chandrasekhar 1939); numpy 2.4.6.
 
 Conventions shared with cairn (stated here because the checks depend on them):
@@ -27,6 +27,7 @@ import astropy.units as u
 import numpy as np
 import scipy
 from astropy import astronomical_constants, physical_constants
+from astropy.cosmology import Planck18
 from astropy.modeling.models import BlackBody
 from scipy.integrate import solve_ivp
 
@@ -44,6 +45,9 @@ def constants():
     refs = {n: getattr(const, n).reference for n in names}
     values["Jy"] = float(u.Jy.to(u.W / u.m**2 / u.Hz))
     values["m_H"] = float(M_H.si.value)
+    # The cosmic microwave background's temperature today, as astropy's Planck 2018
+    # cosmology carries it (Fixsen 2009, ApJ 707, 916): the least temperature cairn accepts.
+    values["T_cmb"] = float(Planck18.Tcmb0.to(u.K).value)
     write_json(os.path.join(OUT, "constants.json"), {
         "astropy_version": astropy.__version__,
         "physical_constants": physical_constants.get(),
