@@ -2021,6 +2021,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     // when it was read, in words that cover the masses: not twice.
     let unit_warned =
         m.unit == Some(units::PixelUnit::Other) && m.unit_source == map::Source::Header;
+    if let Some(w) = &summary.negative_masses {
+        errln!("warning: {w}");
+    }
     if let Some(note) = &summary.physics_note {
         if a.physics.distance.is_some() && !unit_warned {
             // Asked for with --distance and not made: a warning, on stderr with --quiet too.

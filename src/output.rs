@@ -22,6 +22,9 @@ pub struct Outputs {
     /// files a killed process left ([`remove_leftovers`]).
     known: Vec<String>,
     committed: bool,
+    /// Whether earlier outputs may be replaced (`--force`); without it, files that another
+    /// process put in place meanwhile are not replaced either ([`Outputs::commit`]).
+    force: bool,
     /// This plan's entry in [`LIVE`].
     id: u64,
 }
@@ -251,6 +254,7 @@ impl Outputs {
                 stale: Vec::new(),
                 known: names.iter().chain(others).cloned().collect(),
                 committed: false,
+                force,
                 id,
             }
         };
@@ -344,14 +348,33 @@ impl Outputs {
         // An interrupt waits for the renames to finish (its handler takes the same lock), so
         // the folder holds either the whole new run or none of it.
         let mut live = LIVE.lock().unwrap_or_else(|e| e.into_inner());
-        let mut done = Vec::new();
+        let mut done: Vec<PathBuf> = Vec::new();
         for (target, tmp) in &self.planned {
-            std::fs::rename(tmp, target).map_err(|e| {
-                Error::output(
-                    target,
-                    format!("cannot be put in place ({e}); free that name and run again."),
-                )
-            })?;
+            let put = if self.force {
+                std::fs::rename(tmp, target)
+            } else {
+                place_new(tmp, target)
+            };
+            if let Err(e) = put {
+                // Without --force, what this commit put in place is new: taken back, so that
+                // the folder keeps no part of this run.
+                if !self.force {
+                    for t in &done {
+                        let _ = std::fs::remove_file(t);
+                    }
+                }
+                return Err(if e.kind() == std::io::ErrorKind::AlreadyExists {
+                    Error::output(
+                        target,
+                        "appeared while this run was working (another run writing to the same folder?) and is not replaced; nothing of this run was kept: run again with another -o, or add --force to replace it.",
+                    )
+                } else {
+                    Error::output(
+                        target,
+                        format!("cannot be put in place ({e}); free that name and run again."),
+                    )
+                });
+            }
             done.push(target.clone());
         }
         for old in &self.stale {
@@ -366,6 +389,26 @@ impl Outputs {
         live.plans.retain(|p| p.id != self.id);
         remove_leftovers(&self.dir, &self.known);
         Ok(done)
+    }
+}
+
+/// Puts the finished file `tmp` in place as `target` unless `target` exists, also when another
+/// process creates it at the same moment: a hard link, which the file system refuses to make
+/// over an existing name, then the temporary name removed. Where hard links cannot be made
+/// (some network or foreign file systems), the name is checked and the file renamed.
+fn place_new(tmp: &Path, target: &Path) -> std::io::Result<()> {
+    match std::fs::hard_link(tmp, target) {
+        Ok(()) => {
+            // A temporary name left by a failure here is removed by a later run
+            // ([`remove_leftovers`]).
+            let _ = std::fs::remove_file(tmp);
+            Ok(())
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Err(e),
+        Err(_) if target.symlink_metadata().is_ok() => {
+            Err(std::io::Error::from(std::io::ErrorKind::AlreadyExists))
+        }
+        Err(_) => std::fs::rename(tmp, target),
     }
 }
 
@@ -484,5 +527,41 @@ mod tests {
         assert_eq!(std::fs::read(out.join("a.csv")).unwrap(), b"3");
         let listing: Vec<_> = std::fs::read_dir(&out).unwrap().collect();
         assert_eq!(listing.len(), 2, "no temporary files left");
+    }
+
+    /// Two runs into one folder at once: the run that commits second finds an output the
+    /// first put in place after it planned, and without --force neither replaces it nor keeps
+    /// any file of its own; with --force it replaces it.
+    #[test]
+    fn a_file_put_in_place_meanwhile_is_not_replaced_without_force() {
+        let d = tempfile::tempdir().unwrap();
+        let out = d.path().join("run");
+        let names = vec!["a.csv".to_string(), "b.json".to_string()];
+        let o = Outputs::plan(&out, &names, false).unwrap();
+        write_bytes(&o.temp("a.csv"), b"mine").unwrap();
+        write_bytes(&o.temp("b.json"), b"mine").unwrap();
+        // The other run's file, put in place after this plan was made.
+        std::fs::write(out.join("b.json"), b"theirs").unwrap();
+        let e = o.commit().unwrap_err();
+        assert!(
+            e.message.contains("appeared while this run was working"),
+            "{e}"
+        );
+        assert_eq!(std::fs::read(out.join("b.json")).unwrap(), b"theirs");
+        let mut listing: Vec<String> = std::fs::read_dir(&out)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        listing.sort();
+        assert_eq!(
+            listing,
+            ["b.json"],
+            "nothing of this run kept, no temporary file"
+        );
+        let o = Outputs::plan(&out, &names, true).unwrap();
+        write_bytes(&o.temp("a.csv"), b"mine").unwrap();
+        write_bytes(&o.temp("b.json"), b"mine").unwrap();
+        o.commit().unwrap();
+        assert_eq!(std::fs::read(out.join("b.json")).unwrap(), b"mine");
     }
 }

@@ -571,6 +571,8 @@ pub struct RunSummary {
     pub physics_note: Option<String>,
     /// Count of leaves by state, when masses were computed.
     pub leaf_states: Option<std::collections::BTreeMap<String, usize>>,
+    /// A warning when some structures' masses are negative (the map below zero there).
+    pub negative_masses: Option<String>,
     /// With a figure: leaves inside its frame and how many of them got no label.
     pub figure_labels: Option<(usize, usize)>,
     /// With a figure of a very long and narrow map: the scale along y over that along x
@@ -1562,6 +1564,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             if let Some(w) = physics_warning(&o.physics, map, physics_note.as_deref()) {
                 table.notes.push(w);
             }
+            if let Some(w) = negative_mass_warning(phys.as_deref()) {
+                table.notes.push(w);
+            }
             let table = std::sync::Arc::new(table);
             // The FITS writer takes its share; a send fails only if that thread already stopped on
             // an error, which its join below reports.
@@ -1729,7 +1734,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             "total": seconds,
         },
         "threads": rayon::current_num_threads(),
-        "warnings": map.warnings.iter().cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).collect::<Vec<String>>(),
+        "warnings": map.warnings.iter().cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).chain(negative_mass_warning(phys.as_deref())).collect::<Vec<String>>(),
         "physics": physics_record(&o.physics, map, r.noise, physics_note.as_deref()),
     });
     let rec =
@@ -1753,6 +1758,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         thresholds: r,
         seconds: t0.elapsed().as_secs_f64(),
         files,
+        negative_masses: negative_mass_warning(phys.as_deref()),
         physics_note,
         leaf_states,
         figure_labels: labels,
@@ -1792,6 +1798,19 @@ fn grown_catalogue(
         table.notes.push(w);
     }
     std::sync::Arc::new(table)
+}
+
+/// When some structures' masses are negative (the map's values below zero there: a negative
+/// zero level, or the negative bowls of a map that lost its extended emission), a warning
+/// saying how many and what to make of them.
+fn negative_mass_warning(phys: Option<&[crate::score::Physical]>) -> Option<String> {
+    let n = phys?.iter().filter(|p| p.mass < 0.0).count();
+    (n > 0).then(|| {
+        format!(
+            "{n} structure{} a negative mass (the map's values are below zero there: a zero level below no emission?); their mass and n_peak mean nothing, while mass_excess, above their merge level, does: give a map whose zero is no emission for whole masses",
+            if n == 1 { " has" } else { "s have" }
+        )
+    })
 }
 
 /// With a distance given (masses asked for), why the physics columns are left out, as the

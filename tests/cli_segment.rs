@@ -1226,3 +1226,62 @@ fn a_file_name_that_reads_as_a_number_stays_text() {
         "floor as a double"
     );
 }
+
+/// A map whose values lie below zero (here the demo column-density map less 1e23 cm-2, as a
+/// map with a wrong zero level would be) gives negative masses: a warning says how many, on
+/// stderr, in the run record and in the catalogue's notes; mass_excess stays positive.
+#[test]
+fn negative_masses_are_a_warning() {
+    let d = tempfile::tempdir().unwrap();
+    let src = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let m = cairn::map::load(&src, &Default::default()).unwrap();
+    let low = m.data.mapv(|v| v - 1e23);
+    cairn::fits_write::write_image_f32(&d.path().join("low.fits"), low.view(), &m.header, true)
+        .unwrap();
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            "low.fits",
+            "-o",
+            "r",
+            "--distance",
+            "300pc",
+            "--temperature",
+            "12K",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let csv = std::fs::read_to_string(d.path().join("r/structures.csv")).unwrap();
+    let mut rows = csv.lines().filter(|l| !l.starts_with('#'));
+    let head: Vec<&str> = rows.next().unwrap().split(',').collect();
+    let col = |name: &str| head.iter().position(|c| *c == name).unwrap();
+    let (mass, excess) = (col("mass"), col("mass_excess"));
+    let rows: Vec<Vec<&str>> = rows.map(|l| l.split(',').collect()).collect();
+    let negative = rows
+        .iter()
+        .filter(|r| r[mass].parse::<f64>().unwrap() < 0.0)
+        .count();
+    assert!(negative > 0, "the map lies below zero");
+    assert!(rows.iter().all(|r| r[excess].parse::<f64>().unwrap() > 0.0));
+    let said = format!("{negative} structures have a negative mass");
+    assert!(stderr.contains(&format!("warning: {said}")), "{stderr}");
+    assert!(
+        csv.contains(&format!("# note: {said}")),
+        "no note in the catalogue"
+    );
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("r/run.json")).unwrap())
+            .unwrap();
+    assert!(
+        run["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w.as_str().unwrap().starts_with(&said)),
+        "{}",
+        run["warnings"]
+    );
+}
