@@ -6,6 +6,9 @@ use cairn::render::{
     TreeNode, axis_ticks, beam_geometry, overlay_layout, render_png, render_svg, trace_outlines,
     tree_png, tree_svg,
 };
+#[path = "common/svg_layout.rs"]
+mod svg_layout;
+
 use ndarray::{Array2, array};
 use proptest::prelude::*;
 use std::collections::BTreeMap;
@@ -1031,12 +1034,13 @@ fn mismatched_inputs_are_refused_with_a_sentence() {
 
 #[test]
 fn leaf_labels_do_not_overlap_each_other() {
-    // Many small leaves packed closely, so labels compete for room.
+    // Many small leaves packed closely, so labels compete for room (rows far enough apart
+    // for a label between them to be nearer its own leaf than the next row's).
     let (h, w) = (60, 90);
     let mut l = Array2::from_elem((h, w), -1);
     for ((y, x), v) in l.indexed_iter_mut() {
-        if x % 6 < 3 && y % 5 < 3 {
-            *v = ((y / 5) * 15 + x / 6) as i32;
+        if x % 6 < 3 && y % 8 < 3 {
+            *v = ((y / 8) * 15 + x / 6) as i32;
         }
     }
     let map = smooth_map(h, w);
@@ -1173,6 +1177,12 @@ fn crowded_leaves_get_leader_lines_or_are_counted_as_unlabelled() {
             "every leaf is labelled or counted as left out ({width} px)"
         );
         left_out.push(fig.labels_left_out);
+        // Each id is nearest its own leaf, or on a leader line starting on its own leaf.
+        let (n_labels, n_leaders) = svg_layout::check_leaf_labels(&fig.svg, 0.02);
+        assert_eq!(
+            (n_labels, n_leaders),
+            (boxes.len(), leaders(&fig.svg).len())
+        );
         for (i, a) in boxes.iter().enumerate() {
             for b in &boxes[i + 1..] {
                 let ox = a.2.min(b.2) - a.0.max(b.0);

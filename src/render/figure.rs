@@ -478,6 +478,162 @@ impl BoxIndex {
     }
 }
 
+/// The distance from point `p` to the segment a-b.
+fn point_segment(p: (f64, f64), a: (f64, f64), b: (f64, f64)) -> f64 {
+    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+    let len2 = dx * dx + dy * dy;
+    let t = if len2 > 0.0 {
+        (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    (a.0 + t * dx - p.0).hypot(a.1 + t * dy - p.1)
+}
+
+/// The distance from the segment a-b to the box `r`, zero where they meet.
+fn box_segment(r: Rect, a: (f64, f64), b: (f64, f64)) -> f64 {
+    if clip_segment(a, b, r).is_some() {
+        return 0.0;
+    }
+    let point_box = |p: (f64, f64)| {
+        let dx = (r.0 - p.0).max(p.0 - r.2).max(0.0);
+        let dy = (r.1 - p.1).max(p.1 - r.3).max(0.0);
+        dx.hypot(dy)
+    };
+    [(r.0, r.1), (r.2, r.1), (r.0, r.3), (r.2, r.3)]
+        .into_iter()
+        .map(|c| point_segment(c, a, b))
+        .fold(point_box(a).min(point_box(b)), f64::min)
+}
+
+/// Whether the segments p-q and a-b meet.
+fn segments_meet(p: (f64, f64), q: (f64, f64), a: (f64, f64), b: (f64, f64)) -> bool {
+    let cross = |o: (f64, f64), u: (f64, f64), v: (f64, f64)| {
+        (u.0 - o.0) * (v.1 - o.1) - (u.1 - o.1) * (v.0 - o.0)
+    };
+    let (d1, d2) = (cross(p, q, a), cross(p, q, b));
+    let (d3, d4) = (cross(a, b, p), cross(a, b, q));
+    if d1 * d2 < 0.0 && d3 * d4 < 0.0 {
+        return true;
+    }
+    point_segment(a, p, q) == 0.0
+        || point_segment(b, p, q) == 0.0
+        || point_segment(p, a, b) == 0.0
+        || point_segment(q, a, b) == 0.0
+}
+
+/// The distance between the segments p-q and a-b.
+fn segment_segment(p: (f64, f64), q: (f64, f64), a: (f64, f64), b: (f64, f64)) -> f64 {
+    if segments_meet(p, q, a, b) {
+        return 0.0;
+    }
+    point_segment(a, p, q)
+        .min(point_segment(b, p, q))
+        .min(point_segment(p, a, b))
+        .min(point_segment(q, a, b))
+}
+
+/// Whether `p` lies inside closed rings (even-odd rule: holes are outside).
+fn inside_rings(rings: &[Vec<(f64, f64)>], p: (f64, f64)) -> bool {
+    let mut inside = false;
+    for r in rings {
+        for k in 0..r.len() {
+            let (a, b) = (r[k], r[(k + 1) % r.len()]);
+            if (a.1 > p.1) != (b.1 > p.1) && p.0 < a.0 + (p.1 - a.1) / (b.1 - a.1) * (b.0 - a.0) {
+                inside = !inside;
+            }
+        }
+    }
+    inside
+}
+
+/// The point of closed rings nearest `p`.
+fn nearest_on_rings(rings: &[Vec<(f64, f64)>], p: (f64, f64)) -> Option<(f64, f64)> {
+    let mut best: Option<(f64, (f64, f64))> = None;
+    for r in rings {
+        for k in 0..r.len() {
+            let (a, b) = (r[k], r[(k + 1) % r.len()]);
+            let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+            let len2 = dx * dx + dy * dy;
+            let t = if len2 > 0.0 {
+                (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+            } else {
+                0.0
+            };
+            let q = (a.0 + t * dx, a.1 + t * dy);
+            let d = (q.0 - p.0).hypot(q.1 - p.1);
+            if best.is_none_or(|(bd, _)| d < bd) {
+                best = Some((d, q));
+            }
+        }
+    }
+    best.map(|(_, q)| q)
+}
+
+/// A stretch of a leaf's drawn outline: its ends and the leaf's id.
+type LeafSeg = ((f64, f64), (f64, f64), i32);
+
+/// The leaves' drawn outlines as segments, each with its leaf, bucketed on a grid so a query
+/// looks only at nearby segments.
+struct SegIndex {
+    cell: f64,
+    segs: Vec<LeafSeg>,
+    grid: std::collections::HashMap<(i64, i64), Vec<usize>>,
+}
+
+impl SegIndex {
+    fn new(cell: f64) -> Self {
+        SegIndex {
+            cell: cell.max(1.0),
+            segs: Vec::new(),
+            grid: std::collections::HashMap::new(),
+        }
+    }
+    fn cells(&self, b: Rect) -> impl Iterator<Item = (i64, i64)> + use<> {
+        let c = self.cell;
+        let (i0, i1) = ((b.0 / c).floor() as i64, (b.2 / c).floor() as i64);
+        let (j0, j1) = ((b.1 / c).floor() as i64, (b.3 / c).floor() as i64);
+        (j0..=j1).flat_map(move |j| (i0..=i1).map(move |i| (i, j)))
+    }
+    fn insert(&mut self, a: (f64, f64), b: (f64, f64), id: i32) {
+        let k = self.segs.len();
+        self.segs.push((a, b, id));
+        let span = (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1));
+        for c in self.cells(span) {
+            self.grid.entry(c).or_default().push(k);
+        }
+    }
+    /// The segments whose cells meet the box `b` grown by `radius`.
+    fn near(&self, b: Rect, radius: f64) -> impl Iterator<Item = &LeafSeg> {
+        let grown = (b.0 - radius, b.1 - radius, b.2 + radius, b.3 + radius);
+        self.cells(grown)
+            .filter_map(|c| self.grid.get(&c))
+            .flatten()
+            .map(|&k| &self.segs[k])
+    }
+    /// The distances from box `b` to the outline of leaf `own` and to the nearest outline of
+    /// any other leaf; infinite when none lies within `radius` of the box.
+    fn distances(&self, b: Rect, own: i32, radius: f64) -> (f64, f64) {
+        let (mut d_own, mut d_other) = (f64::INFINITY, f64::INFINITY);
+        for &(p, q, id) in self.near(b, radius) {
+            let d = box_segment(b, p, q);
+            if id == own {
+                d_own = d_own.min(d);
+            } else {
+                d_other = d_other.min(d);
+            }
+        }
+        (d_own, d_other)
+    }
+    /// Whether the segment from `a` to `b` comes within `clear` of the outline of a leaf other
+    /// than `own`.
+    fn near_other(&self, a: (f64, f64), b: (f64, f64), own: i32, clear: f64) -> bool {
+        let span = (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1));
+        self.near(span, clear)
+            .any(|&(p, q, id)| id != own && segment_segment(a, b, p, q) < clear)
+    }
+}
+
 /// Builds the whole map figure.
 pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     let lay = overlay_layout(o, s)?;
@@ -545,8 +701,8 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         .beam
         .map(|(maj, min, _)| std::f64::consts::PI / (4.0 * std::f64::consts::LN_2) * maj * min)
         .filter(|a| a.is_finite() && *a > 0.0);
-    let to_path = |rings: &[Vec<(f64, f64)>]| {
-        let mut d = PathData::new();
+    // The rings of a footprint as drawn, in figure pixels.
+    let drawn_rings = |rings: &[Vec<(f64, f64)>]| -> Vec<Vec<(f64, f64)>> {
         let extent = |r: &[(f64, f64)]| {
             let (mut x0, mut y0, mut x1, mut y1) = (f64::MAX, f64::MAX, f64::MIN, f64::MIN);
             for &(x, y) in r {
@@ -558,6 +714,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         let areas: Vec<f64> = rings.iter().map(|r| ring_area(r).abs()).collect();
         let largest =
             (0..areas.len()).fold(0, |best, i| if areas[i] > areas[best] { i } else { best });
+        let mut out = Vec::new();
         for (k, r) in rings.iter().enumerate() {
             if k != largest && beam_px.is_some_and(|b| areas[k] < b) {
                 continue;
@@ -571,6 +728,13 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             } else {
                 pts
             };
+            out.push(pts);
+        }
+        out
+    };
+    let ring_path = |drawn: &[Vec<(f64, f64)>]| {
+        let mut d = PathData::new();
+        for pts in drawn {
             for (i, &(a, b)) in pts.iter().enumerate() {
                 if i == 0 {
                     d.move_to(a, b)
@@ -582,6 +746,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         }
         d
     };
+    let to_path = |rings: &[Vec<(f64, f64)>]| ring_path(&drawn_rings(rings));
     if s.show_branches
         && let Some(bl) = o.branch_labels
     {
@@ -631,12 +796,17 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             }
         },
     );
+    // The leaves' rings as drawn, in figure pixels (labels keep their distances to these).
+    let drawn: std::collections::HashMap<i32, Vec<Vec<(f64, f64)>>> = traced
+        .iter()
+        .map(|(&id, rings)| (id, drawn_rings(rings)))
+        .collect();
     // All dark casings first, then all coloured lines, so where two leaves share an edge
     // the gaps of one's dashes show the other's colour.
     let lw = 0.85 * m.pt;
     let mut colour_passes = Vec::new();
     for leaf in &o.leaves {
-        let Some(rings) = traced.get(&leaf.id) else {
+        let Some(rings) = drawn.get(&leaf.id) else {
             continue;
         };
         let dash = state_dash(leaf.state, lw);
@@ -651,7 +821,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             clip: true,
         });
         sc.items.push(Item::Path {
-            d: to_path(rings),
+            d: ring_path(rings),
             paints: vec![Paint::Stroke(Line {
                 color: Rgba(0, 0, 0, 200),
                 width: lw + 1.1 * m.pt,
@@ -821,73 +991,105 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         );
     }
 
-    // Leaf labels, in two rounds. First, greedy placement just outside each leaf, avoiding
-    // the beam, the scale bar and earlier labels. Then the leaves still without a label, in
-    // crowded parts of the map, try places farther out, joined to the leaf by a thin leader
-    // line that crosses no label. A label that finds no free place is left out (and counted)
-    // rather than printed over another.
+    // Leaf labels, in two rounds. The rule: a label lies nearer its own leaf (its outline as
+    // drawn, or inside it) than any other leaf, and touches no other leaf's outline; else it
+    // goes farther out on a thin leader line that ends on its own leaf's outline; else it is
+    // left out (and counted) rather than printed where it could be read as another leaf's.
+    // First, greedy placement just outside each leaf, avoiding the beam, the scale bar and
+    // earlier labels. Then the leaves still without a label try places farther out, joined
+    // to the leaf by a leader line that crosses no label, no other leader and no other leaf.
     let label_fs = 0.85 * fs;
     let mut placed = BoxIndex::new(2.0 * label_fs);
     for b in &keep_out {
         placed.insert(*b);
     }
-    // The leaves' outlines as drawn (each stretch's box, as wide as the line with its dark
-    // casing), which labels keep clear of where they can.
-    let mut outlines = BoxIndex::new(2.0 * label_fs);
+    // Half the width of a drawn outline with its dark casing.
     let half_line = 0.5 * (0.85 + 1.1) * m.pt;
-    for rings in traced.values() {
+    let mut outlines = SegIndex::new(2.0 * label_fs);
+    for (&id, rings) in &drawn {
         for ring in rings {
-            for w in ring.windows(2) {
-                let (a, b) = (
-                    lay.map_to_figure(w[0].0, w[0].1),
-                    lay.map_to_figure(w[1].0, w[1].1),
-                );
-                let bb = (
-                    a.0.min(b.0) - half_line,
-                    a.1.min(b.1) - half_line,
-                    a.0.max(b.0) + half_line,
-                    a.1.max(b.1) + half_line,
-                );
-                if bb.2 >= fx && bb.0 <= fx + fw && bb.3 >= fy && bb.1 <= fy + fh {
-                    outlines.insert(bb);
+            for k in 0..ring.len() {
+                let (a, b) = (ring[k], ring[(k + 1) % ring.len()]);
+                if a.0.max(b.0) >= fx - label_fs
+                    && a.0.min(b.0) <= fx + fw + label_fs
+                    && a.1.max(b.1) >= fy - label_fs
+                    && a.1.min(b.1) <= fy + fh + label_fs
+                {
+                    outlines.insert(a, b, id);
                 }
             }
         }
     }
+    // The listed leaf under a point of the figure, if any (from the label map, so a label over
+    // another leaf's inside is seen even far from that leaf's outline).
+    let leaf_under = |p: (f64, f64)| -> Option<i32> {
+        let (x, y) = lay.figure_to_map(p.0, p.1);
+        let (xi, yi) = (x.round(), y.round());
+        if xi < 0.0 || yi < 0.0 || xi >= mw as f64 || yi >= mh as f64 {
+            return None;
+        }
+        let l = o.labels[[yi as usize, xi as usize]];
+        (l >= 0 && listed.get(l as usize).copied().unwrap_or(false)).then_some(l)
+    };
+    // Distances from a label's ink box to its own leaf (zero when the box's centre is inside
+    // it) and to the nearest other leaf (zero when the box meets another leaf), looking
+    // `radius` around the box.
+    let distances = |bb: Rect, own: i32, radius: f64| -> (f64, f64) {
+        let (mut d_own, mut d_other) = outlines.distances(bb, own, radius);
+        let c = (0.5 * (bb.0 + bb.2), 0.5 * (bb.1 + bb.3));
+        if drawn.get(&own).is_some_and(|r| inside_rings(r, c)) {
+            d_own = 0.0;
+        }
+        for i in 0..3 {
+            for j in 0..3 {
+                let p = (
+                    bb.0 + 0.5 * i as f64 * (bb.2 - bb.0),
+                    bb.1 + 0.5 * j as f64 * (bb.3 - bb.1),
+                );
+                if leaf_under(p).is_some_and(|l| l != own) {
+                    d_other = 0.0;
+                }
+            }
+        }
+        (d_own, d_other)
+    };
+    // How much nearer its own leaf than any other a label must be, and how far from other
+    // leaves' outlines (beyond their drawn width) every label and leader keeps.
+    let margin = 0.1 * label_fs;
+    let clear = half_line + 0.5;
     let cap_h = text::cap_height(label_fs);
     let hpad = 0.15 * label_fs;
     let inside =
         |bb: (f64, f64, f64, f64)| bb.0 >= fx && bb.2 <= fx + fw && bb.1 >= fy && bb.3 <= fy + fh;
-    // Leaves waiting for the second round: (leaf, its extent, label width).
-    let mut waiting: Vec<(&LeafStyle, Rect, f64)> = Vec::new();
+    // Leaves waiting for the second round: (leaf, its extent, label width, ink box).
+    let mut waiting: Vec<(&LeafStyle, Rect, f64, Rect)> = Vec::new();
     let mut shown = Vec::new();
     for leaf in &o.leaves {
-        if !traced.contains_key(&leaf.id) {
+        let Some(rings) = drawn.get(&leaf.id) else {
             continue;
-        }
+        };
         let (px, py) = lay.map_to_figure(leaf.peak.0, leaf.peak.1);
         if px < fx || px > fx + fw || py < fy || py > fy + fh {
             continue;
         }
         sc.leaves_to_label += 1;
         let w = text::width(&leaf.label, label_fs);
+        let ink = text::ink_bounds(&leaf.label, label_fs);
         // The leaf's extent on the figure: labels go just outside it, so a small leaf is
         // never hidden under its own label.
         let (mut ex0, mut ey0, mut ex1, mut ey1) = (px, py, px, py);
-        for ring in traced.get(&leaf.id).into_iter().flatten() {
-            for &(x, y) in ring {
-                let (qx, qy) = lay.map_to_figure(x, y);
-                ex0 = ex0.min(qx);
-                ex1 = ex1.max(qx);
-                ey0 = ey0.min(qy);
-                ey1 = ey1.max(qy);
-            }
+        for &(qx, qy) in rings.iter().flatten() {
+            ex0 = ex0.min(qx);
+            ex1 = ex1.max(qx);
+            ey0 = ey0.min(qy);
+            ey1 = ey1.max(qy);
         }
         // Very large leaves keep their labels near the peak rather than at their far edge.
         let reach = 0.8 * label_fs;
         let (ex0, ex1) = (ex0.max(px - reach), ex1.min(px + reach));
         let (ey0, ey1) = (ey0.max(py - reach), ey1.min(py + reach));
-        // The first place clear of labels and outlines; else the first clear of labels.
+        // The first place clear of labels and outlines; else the first clear of labels and of
+        // other leaves' outlines; either nearer its own leaf than any other.
         let mut best: Option<(f64, f64)> = None;
         let mut fallback: Option<(f64, f64)> = None;
         'search: for ring in 1..=4 {
@@ -905,13 +1107,19 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             ];
             for (bx, by) in cands {
                 let bb = (bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad);
-                if inside(bb) && !placed.overlaps(bb) {
-                    if !outlines.overlaps(bb) {
-                        best = Some((bx, by));
-                        break 'search;
-                    }
-                    fallback = fallback.or(Some((bx, by)));
+                if !inside(bb) || placed.overlaps(bb) {
+                    continue;
                 }
+                let ib = (bx + ink.0, by + ink.1, bx + ink.2, by + ink.3);
+                let (d_own, d_other) = distances(ib, leaf.id, 4.0 * label_fs);
+                if d_other < clear || d_other < d_own + margin {
+                    continue;
+                }
+                if d_own >= clear {
+                    best = Some((bx, by));
+                    break 'search;
+                }
+                fallback = fallback.or(Some((bx, by)));
             }
         }
         match best.or(fallback) {
@@ -919,13 +1127,16 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                 placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
                 shown.push((leaf, bx, by, None));
             }
-            None => waiting.push((leaf, (ex0, ey0, ex1, ey1), w)),
+            None => waiting.push((leaf, (ex0, ey0, ex1, ey1), w, ink)),
         }
     }
     // Second round: label centres on circles around the extent's centre, sixteen directions
-    // per circle, up to about five label heights beyond the leaf.
+    // per circle, up to about five label heights beyond the leaf. The leader runs from the
+    // point of the leaf's outline nearest the label to the label's box.
+    let mut leaders: Vec<((f64, f64), (f64, f64))> = Vec::new();
     let gap = 0.2 * label_fs;
-    for (leaf, (ex0, ey0, ex1, ey1), w) in waiting {
+    for (leaf, (ex0, ey0, ex1, ey1), w, ink) in waiting {
+        let rings = &drawn[&leaf.id];
         let (cx, cy) = (0.5 * (ex0 + ex1), 0.5 * (ey0 + ey1));
         let half = (0.5 * (w + 2.0 * hpad), 0.5 * (cap_h + 2.0 * hpad));
         let mut best = None;
@@ -940,29 +1151,45 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                 if !inside(bb) || placed.overlaps(bb) {
                     continue;
                 }
-                // The leader runs from the label's box to the leaf's extent, each end the
-                // point of its box nearest the other box's centre, with a small gap.
-                let from = (
-                    lx.clamp(ex0, ex1).clamp(fx, fx + fw),
-                    ly.clamp(ey0, ey1).clamp(fy, fy + fh),
-                );
+                if leaders
+                    .iter()
+                    .any(|&(p, q)| clip_segment(p, q, bb).is_some())
+                {
+                    continue;
+                }
+                let (bx, by) = (lx - half.0 + hpad, ly + half.1 - hpad);
+                let ib = (bx + ink.0, by + ink.1, bx + ink.2, by + ink.3);
+                let (_, d_other) = distances(ib, leaf.id, clear);
+                if d_other < clear {
+                    continue;
+                }
+                // The leader: from the point of the leaf's drawn outline nearest the label's
+                // centre to the point of the label's box nearest that.
+                let Some(from) = nearest_on_rings(rings, (lx, ly)) else {
+                    continue;
+                };
+                if inside_rings(rings, (lx, ly)) || leaf_under(from).is_some_and(|l| l != leaf.id) {
+                    continue;
+                }
                 let to = (from.0.clamp(bb.0, bb.2), from.1.clamp(bb.1, bb.3));
                 let len = (to.0 - from.0).hypot(to.1 - from.1);
                 if len <= 2.0 * gap {
                     continue;
                 }
-                let (ux, uy) = ((to.0 - from.0) / len, (to.1 - from.1) / len);
-                let a0 = (from.0 + gap * ux, from.1 + gap * uy);
-                if placed.crosses(a0, to) {
+                if placed.crosses(from, to)
+                    || outlines.near_other(from, to, leaf.id, clear)
+                    || leaders.iter().any(|&(p, q)| segments_meet(p, q, from, to))
+                {
                     continue;
                 }
-                best = Some((lx - half.0 + hpad, ly + half.1 - hpad, bb, (a0, to)));
+                best = Some((bx, by, bb, (from, to)));
                 break 'far;
             }
         }
         match best {
             Some((bx, by, bb, leader)) => {
                 placed.insert(bb);
+                leaders.push(leader);
                 shown.push((leaf, bx, by, Some(leader)));
             }
             None => sc.labels_left_out += 1,
@@ -970,14 +1197,17 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     }
     for (leaf, bx, by, leader) in shown {
         if let Some((a, b)) = leader {
-            sc.path(
-                PathData::line(a.0, a.1, b.0, b.1),
-                vec![
+            sc.items.push(Item::Path {
+                d: PathData::line(a.0, a.1, b.0, b.1),
+                paints: vec![
                     Paint::Stroke(Line::solid(Rgba(255, 255, 255, 230), 1.6 * m.pt)),
                     Paint::Stroke(Line::solid(Rgba::BLACK, 0.6 * m.pt)),
                 ],
-                "leaf-leader",
-            );
+                clip: false,
+                id: Some(format!("leader-{}", leaf.id)),
+                class: "leaf-leader".into(),
+                label: None,
+            });
         }
         sc.text(
             &leaf.label,
@@ -990,8 +1220,9 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             Rgba::BLACK,
             white_halo,
         );
-        if let Some(Item::Path { class, .. }) = sc.items.last_mut() {
+        if let Some(Item::Path { class, id, .. }) = sc.items.last_mut() {
             *class = "leaf-label".into();
+            *id = Some(format!("label-{}", leaf.id));
         }
     }
 

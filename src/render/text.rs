@@ -201,6 +201,36 @@ pub(crate) fn ink_above_below(text: &str, size: f64) -> (f64, f64) {
     (top, bottom)
 }
 
+/// The box holding every point of the outlines of marked-up text at `size` pixels per em:
+/// left, top, right, bottom, from the origin on the baseline at the left end (y down).
+pub(crate) fn ink_bounds(text: &str, size: f64) -> (f64, f64, f64, f64) {
+    use super::scene::Seg;
+    let sh = shape(text, size);
+    let mut b = (
+        f64::INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::NEG_INFINITY,
+    );
+    let mut add = |x: f64, y: f64| b = (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y));
+    for s in &sh.path.0 {
+        match *s {
+            Seg::M(x, y) | Seg::L(x, y) => add(x, y),
+            Seg::Q(a, b1, c, d) => {
+                add(a, b1);
+                add(c, d);
+            }
+            Seg::C(a, b1, c, d, e, f) => {
+                add(a, b1);
+                add(c, d);
+                add(e, f);
+            }
+            Seg::Z => {}
+        }
+    }
+    if b.0 > b.2 { (0.0, 0.0, 0.0, 0.0) } else { b }
+}
+
 /// Height of capital letters at `size` pixels per em.
 pub(crate) fn cap_height(size: f64) -> f64 {
     let f = face();

@@ -239,3 +239,177 @@ pub fn check_guide_labels(svg: &str, margin: f64, clear: f64, near: f64) {
         }
     }
 }
+
+/// Whether `p` lies inside closed rings (even-odd rule: a hole is outside).
+pub fn inside(rings: &[Vec<(f64, f64)>], p: (f64, f64)) -> bool {
+    let mut inside = false;
+    for r in rings {
+        for k in 0..r.len() {
+            let (a, b) = (r[k], r[(k + 1) % r.len()]);
+            if (a.1 > p.1) != (b.1 > p.1) && p.0 < a.0 + (p.1 - a.1) / (b.1 - a.1) * (b.0 - a.0) {
+                inside = !inside;
+            }
+        }
+    }
+    inside
+}
+
+/// The rings of a path as closed polylines (the first point repeated at the end).
+fn closed(d: &str) -> Vec<Vec<(f64, f64)>> {
+    subpaths(d)
+        .into_iter()
+        .filter(|r| !r.is_empty())
+        .map(|mut r| {
+            r.push(r[0]);
+            r
+        })
+        .collect()
+}
+
+/// A straight line: its two ends.
+pub type Segment = ((f64, f64), (f64, f64));
+
+/// A map figure's leaves as drawn, read from the SVG of `cairn::render`: the frame, each
+/// leaf's rings (by id, `leaf-ID`), each leaf label's glyph box (`label-ID`) and each leader
+/// line (`leader-ID`: its two ends).
+pub struct LeafLayout {
+    pub frame: Bounds,
+    pub outlines: std::collections::BTreeMap<i32, Vec<Vec<(f64, f64)>>>,
+    pub labels: std::collections::BTreeMap<i32, Bounds>,
+    pub leaders: std::collections::BTreeMap<i32, Segment>,
+}
+
+pub fn leaf_layout(svg: &str) -> LeafLayout {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let first_class = |n: &roxmltree::Node| {
+        n.attribute("class")
+            .and_then(|c| c.split(' ').next())
+            .unwrap_or("")
+            .to_string()
+    };
+    let id_of = |n: &roxmltree::Node, prefix: &str| -> i32 {
+        n.attribute("id")
+            .and_then(|i| i.strip_prefix(prefix))
+            .unwrap_or_else(|| panic!("no id {prefix}N on {:?}", n.attribute("id")))
+            .parse()
+            .unwrap()
+    };
+    let paths: Vec<roxmltree::Node> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("path"))
+        .collect();
+    let frame = bounds(
+        paths
+            .iter()
+            .find(|n| first_class(n) == "frame")
+            .expect("a frame")
+            .attribute("d")
+            .unwrap(),
+    );
+    let mut l = LeafLayout {
+        frame,
+        outlines: Default::default(),
+        labels: Default::default(),
+        leaders: Default::default(),
+    };
+    for n in &paths {
+        let d = n.attribute("d").unwrap();
+        match first_class(n).as_str() {
+            "leaf" => {
+                l.outlines.insert(id_of(n, "leaf-"), closed(d));
+            }
+            "leaf-label" => {
+                l.labels.insert(id_of(n, "label-"), bounds(d));
+            }
+            "leaf-leader" => {
+                let s = subpaths(d);
+                assert!(
+                    s.len() == 1 && s[0].len() == 2,
+                    "a leader is one straight segment: {d}"
+                );
+                l.leaders.insert(id_of(n, "leader-"), (s[0][0], s[0][1]));
+            }
+            _ => {}
+        }
+    }
+    l
+}
+
+/// Checks the rule of leaf labels on a map figure's SVG: a label without a leader line is
+/// nearer its own leaf (its outline as drawn, or inside it) than any other leaf's outline, and
+/// crosses no other; a leader line starts on its own leaf's outline (within `on` pixels), its
+/// start farther from every other leaf's outline than that, and ends beside its own label; no
+/// two labels overlap. Returns the numbers of labels and of leader lines.
+pub fn check_leaf_labels(svg: &str, on: f64) -> (usize, usize) {
+    let l = leaf_layout(svg);
+    let frame_of = |id: i32| clipped(&l.outlines[&id], l.frame);
+    let outlines: std::collections::BTreeMap<i32, Pieces> =
+        l.outlines.keys().map(|&id| (id, frame_of(id))).collect();
+    let labels: Vec<(i32, Bounds)> = l.labels.iter().map(|(&k, &b)| (k, b)).collect();
+    for (i, &(id, b)) in labels.iter().enumerate() {
+        for &(other, c) in &labels[i + 1..] {
+            assert!(!overlap(b, c), "labels {id} and {other} overlap");
+        }
+        let own_rings = l
+            .outlines
+            .get(&id)
+            .unwrap_or_else(|| panic!("label {id} has no leaf outline"));
+        let centre = (0.5 * (b.0 + b.2), 0.5 * (b.1 + b.3));
+        let own = if inside(own_rings, centre) {
+            0.0
+        } else {
+            distance(&outlines[&id], b)
+        };
+        let nearest_other = outlines
+            .iter()
+            .filter(|(k, _)| **k != id)
+            .map(|(k, lines)| {
+                let d = if inside(&l.outlines[k], centre) {
+                    0.0
+                } else {
+                    distance(lines, b)
+                };
+                (d, *k)
+            })
+            .fold((f64::INFINITY, -1), |a, x| if x.0 < a.0 { x } else { a });
+        assert!(
+            nearest_other.0 > 0.0,
+            "label {id} at {b:?} touches leaf {}",
+            nearest_other.1
+        );
+        match l.leaders.get(&id) {
+            None => assert!(
+                own < nearest_other.0,
+                "label {id} at {b:?} lies {own:.1} px from its leaf and {:.1} px from leaf {}",
+                nearest_other.0,
+                nearest_other.1
+            ),
+            Some(&(start, end)) => {
+                let at = (start.0, start.1, start.0, start.1);
+                let d_own = distance(&l.outlines[&id], at);
+                assert!(
+                    d_own <= on,
+                    "leader of {id} starts {d_own:.2} px from its leaf"
+                );
+                for (k, rings) in &l.outlines {
+                    if *k != id {
+                        let d = distance(rings, at);
+                        assert!(
+                            d > on && !inside(rings, start),
+                            "leader of {id} starts {d:.2} px from leaf {k}"
+                        );
+                    }
+                }
+                let to_label = distance(&[vec![end, end]], b);
+                assert!(
+                    to_label <= 0.5 * (b.3 - b.1),
+                    "leader of {id} ends {to_label:.1} px from its label"
+                );
+            }
+        }
+    }
+    for id in l.leaders.keys() {
+        assert!(l.labels.contains_key(id), "leader {id} without a label");
+    }
+    (l.labels.len(), l.leaders.len())
+}
