@@ -170,6 +170,10 @@ pub struct Figures {
     /// The tree diagram as PNG and SVG; empty when there is no structure.
     pub tree_png: Vec<u8>,
     pub tree_svg: String,
+    /// The tree's leaves, and how many of them are drawn without their id (all of them when
+    /// the diagram is too crowded for ids, which it says under its legend).
+    pub tree_leaves: usize,
+    pub tree_ids_left_out: usize,
 }
 
 /// Draws the overlay and the tree.
@@ -244,20 +248,29 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
         })
         .collect();
     let level = format!("level [{}]", map.unit_text);
-    let (tpng, tsvg) = if nodes.is_empty() {
-        (Vec::new(), String::new())
+    let tree = if nodes.is_empty() {
+        None
     } else {
-        (
-            render::tree_png(&nodes, &states, &level, style)
-                .map_err(|e| Error::usage(format!("cannot draw the tree of structures: {e}.")))?,
-            render::tree_svg(&nodes, &states, &level, style)
+        Some(
+            render::render_tree_figure(&nodes, &states, &level, style)
                 .map_err(|e| Error::usage(format!("cannot draw the tree of structures: {e}.")))?,
         )
     };
-    Ok(Figures {
-        overlay,
-        tree_png: tpng,
-        tree_svg: tsvg,
+    Ok(match tree {
+        Some(t) => Figures {
+            overlay,
+            tree_png: t.png,
+            tree_svg: t.svg,
+            tree_leaves: t.leaves,
+            tree_ids_left_out: t.ids_left_out,
+        },
+        None => Figures {
+            overlay,
+            tree_png: Vec::new(),
+            tree_svg: String::new(),
+            tree_leaves: 0,
+            tree_ids_left_out: 0,
+        },
     })
 }
 

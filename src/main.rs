@@ -2383,6 +2383,13 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     }
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
+    if figs.tree_ids_left_out > 0 {
+        outln!(
+            "tree: the ids of its {} leaves left out, too crowded for ids of {} pt; a wider --width shows them",
+            figs.tree_leaves,
+            cairn::render::MIN_ID_PT
+        );
+    }
     for p in written {
         if !quiet {
             errln!("wrote {}", p.display());

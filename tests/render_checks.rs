@@ -1447,3 +1447,76 @@ fn the_legend_stays_inside_the_figure_at_every_accepted_width() {
         }
     }
 }
+
+/// A flat tree of `n` leaves (ids 0..n) under one root.
+fn flat_tree(n: u32) -> Vec<TreeNode> {
+    let mut v = vec![TreeNode {
+        id: n,
+        parent: None,
+        top: 10.0,
+        bottom: 1.0,
+        is_leaf: false,
+        state: None,
+    }];
+    v.extend((0..n).map(|id| TreeNode {
+        id,
+        parent: Some(n),
+        top: 3.0 + (id % 7) as f64,
+        bottom: 2.0,
+        is_leaf: true,
+        state: Some(id as usize % 3),
+    }));
+    v
+}
+
+/// The texts of an SVG figure (their readable words).
+fn svg_texts(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.attribute("class") == Some("text") && n.attribute("fill") != Some("none"))
+        .filter_map(|n| n.attribute("aria-label").map(String::from))
+        .collect()
+}
+
+#[test]
+fn crowded_trees_keep_their_leaf_ids_down_to_a_legible_size_and_say_when_they_cannot() {
+    let style = Style {
+        width_px: 1600,
+        dpi: 300.0,
+        ..Style::default()
+    };
+    // 47 leaves on 1600 pixels at 300 dpi: too crowded for upright ids of 0.75 times the
+    // 9 pt text, room for turned ones of at least 5 pt (the smallest drawn).
+    let nodes = flat_tree(47);
+    let fig = render::render_tree_figure(&nodes, &states(), "level [K]", &style).unwrap();
+    assert_eq!((fig.leaves, fig.ids_left_out), (47, 0));
+    let texts = svg_texts(&fig.svg);
+    for id in 0..47 {
+        assert!(texts.contains(&id.to_string()), "id {id} is drawn");
+    }
+    assert!(!texts.iter().any(|t| t.contains("left out")));
+    // The ids' glyphs are at least MIN_ID_PT tall in capitals (digits are about as tall as
+    // capitals in DejaVu Sans: 0.73 em).
+    let doc = roxmltree::Document::parse(&fig.svg).unwrap();
+    let min_px = render::MIN_ID_PT * 300.0 / 72.0;
+    for n in doc.descendants().filter(|n| {
+        n.attribute("class") == Some("text")
+            && n.attribute("aria-label").is_some_and(|l| l == "8")
+            && n.attribute("fill") != Some("none")
+    }) {
+        let b = svg_layout::bounds(n.attribute("d").unwrap());
+        // Turned: the digit's height runs along x.
+        let along = (b.2 - b.0).max(b.3 - b.1);
+        assert!(
+            along >= 0.7 * min_px,
+            "an id {along:.1} px long at {min_px:.1} px per em"
+        );
+    }
+    // 400 leaves leave no room even for 5 pt ids: the figure says so.
+    let nodes = flat_tree(400);
+    let fig = render::render_tree_figure(&nodes, &states(), "level [K]", &style).unwrap();
+    assert_eq!((fig.leaves, fig.ids_left_out), (400, 400));
+    let texts = svg_texts(&fig.svg).join(" ");
+    assert!(texts.contains("leaf ids left out: 400 leaves"), "{texts}");
+    assert!(!svg_texts(&fig.svg).contains(&"399".to_string()));
+}

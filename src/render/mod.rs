@@ -40,7 +40,7 @@ pub use figure::{
 };
 pub use outline::{Ring, ring_area, simplify_ring, trace_outlines};
 pub use raster::colorize;
-pub use tree::{TreeLayout, tree_layout};
+pub use tree::{MIN_ID_PT, TreeLayout, tree_layout};
 
 use ndarray::ArrayView2;
 use std::fmt;
@@ -302,6 +302,33 @@ pub fn tree_png(
     s: &Style,
 ) -> Result<Vec<u8>, RenderError> {
     tree::scene(nodes, states, level_label, s)?.to_png()
+}
+
+/// The tree diagram in both formats, drawn once, with how its leaf ids fared.
+pub struct TreeFigure {
+    pub png: Vec<u8>,
+    pub svg: String,
+    /// The leaves of the tree.
+    pub leaves: usize,
+    /// Leaves drawn without their id: all of them when the diagram has no room for ids of
+    /// [`MIN_ID_PT`] (the figure says so under its legend), else none.
+    pub ids_left_out: usize,
+}
+
+/// Draws the tree diagram as PNG and SVG ([`tree_png`], [`tree_svg`]) from one layout.
+pub fn render_tree_figure(
+    nodes: &[TreeNode],
+    states: &[StateLegend],
+    level_label: &str,
+    s: &Style,
+) -> Result<TreeFigure, RenderError> {
+    let sc = tree::scene(nodes, states, level_label, s)?;
+    Ok(TreeFigure {
+        png: sc.to_png()?,
+        svg: sc.to_svg()?,
+        leaves: sc.leaves_to_label,
+        ids_left_out: sc.labels_left_out,
+    })
 }
 
 /// Draws the tree diagram as SVG text (see [`tree_png`]).

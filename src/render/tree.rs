@@ -21,6 +21,10 @@ use super::text;
 use super::{RenderError, StateLegend, Stretch, Style, TreeNode, state_colour, state_dash};
 use std::collections::BTreeMap;
 
+/// The smallest leaf ids the tree diagram draws, in points (common practice: print figures
+/// keep text at 5 pt or more).
+pub const MIN_ID_PT: f64 = 5.0;
+
 /// Horizontal order of a tree: the leaf order of a depth-first walk and each node's position
 /// in leaf slots (leaves at 0, 1, 2, ...; a branch midway between its first and last child).
 #[derive(Debug, Clone, PartialEq)]
@@ -172,24 +176,27 @@ pub(crate) fn scene(
     }
     let nslots = tl.leaf_order.len().max(1) as f64;
     let slot = pw / nslots;
-    let id_fs = 0.75 * fs;
-    let max_id_w = tl
-        .leaf_order
-        .iter()
-        .map(|id| text::width(&id.to_string(), id_fs))
-        .fold(0.0, f64::max);
-    // Leaf ids: upright when they fit between neighbours, turned when only their height
-    // fits, left out when not even that.
-    let id_mode = if slot >= max_id_w + 0.3 * id_fs {
-        1
-    } else if slot >= 1.1 * id_fs {
-        2
+    // Leaf ids: upright at 0.75 of the text size when they fit between neighbours; else
+    // turned, at that size or smaller down to MIN_ID_PT; else left out, and the figure says
+    // so under the legend.
+    let full_fs = 0.75 * fs;
+    let min_fs = MIN_ID_PT * pt;
+    let max_id_w = |size: f64| {
+        tl.leaf_order
+            .iter()
+            .map(|id| text::width(&id.to_string(), size))
+            .fold(0.0, f64::max)
+    };
+    let (id_mode, id_fs) = if slot >= max_id_w(full_fs) + 0.3 * full_fs {
+        (1, full_fs)
+    } else if slot / 1.1 >= min_fs {
+        (2, full_fs.min(slot / 1.1))
     } else {
-        0
+        (0, full_fs)
     };
     let id_room = match id_mode {
         1 => 1.3 * id_fs,
-        2 => max_id_w + 0.5 * id_fs,
+        2 => max_id_w(id_fs) + 0.5 * id_fs,
         _ => 0.0,
     };
     let top = (pad + id_room).round();
@@ -203,6 +210,28 @@ pub(crate) fn scene(
     let mut note: Vec<String> = Vec::new();
     if linear_instead {
         note.push("levels at or below zero: the level axis is linear, not logarithmic".into());
+    }
+    if id_mode == 0 {
+        // Wrapped at words to the figure's width.
+        let words = format!(
+            "leaf ids left out: {} leaves on {} pixel columns leave no room for ids of {MIN_ID_PT} pt; a wider --width shows them",
+            tl.leaf_order.len(),
+            pw.round()
+        );
+        let mut line = String::new();
+        for w in words.split(' ') {
+            let longer = if line.is_empty() {
+                w.to_string()
+            } else {
+                format!("{line} {w}")
+            };
+            if !line.is_empty() && text::width(&longer, lfs) > w_total - 2.0 * pad {
+                note.push(std::mem::replace(&mut line, w.to_string()));
+            } else {
+                line = longer;
+            }
+        }
+        note.push(line);
     }
     if dense {
         let (a, b) = (
@@ -233,6 +262,8 @@ pub(crate) fn scene(
     let xmap = |slotx: f64| left + (slotx + 0.5) * slot;
 
     let mut sc = Scene::new(s.width_px, height, s.dpi, "tree of structures");
+    sc.leaves_to_label = tl.leaf_order.len();
+    sc.labels_left_out = if id_mode == 0 { tl.leaf_order.len() } else { 0 };
     let lw = (0.9 * pt).min(0.45 * slot).max(0.25 * pt);
     let grey = Rgba(60, 60, 60, 255);
     // The upper end of each structure's vertical line (its peak, or a branch's highest split).
