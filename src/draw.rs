@@ -163,6 +163,38 @@ pub fn scale_bar(
     Some((len / pc_per_px, format!("{len} pc")))
 }
 
+/// Checks that the map figure of `map` fits the width of `style` (room for
+/// the map beside its axis and colour-bar labels), as drawing it would decide, without a run:
+/// so that a width too narrow is refused with the narrowest that works before any work is
+/// done.
+pub fn check_figure_style(map: &Map, style: &Style) -> Result<()> {
+    let none = [-1i32];
+    let one = ndarray::aview1(&none);
+    let labels = one
+        .broadcast(map.data.dim())
+        .ok_or_else(|| Error::internal("a label map of the map's shape could not be made"))?;
+    let overlay = render::Overlay {
+        map: map.data.view(),
+        unit_label: unit_label(map),
+        labels,
+        branch_labels: None,
+        branch_of: None,
+        leaves: Vec::new(),
+        states: Vec::new(),
+        sky: map.wcs.as_ref().map(|w| w as &dyn SkyAxes),
+        beam: None,
+        scale_bar: None,
+        title: None,
+    };
+    // Only the width is judged here; anything else the layout refuses is said when drawing.
+    match render::overlay_layout(&overlay, style) {
+        Err(render::RenderError::TooNarrow { width, dpi, needed }) => Err(Error::usage(format!(
+            "--width {width} at --dpi {dpi} leaves no room for the map beside its axis and colour-bar labels: this map needs a figure at least {needed} pixels wide at that resolution; give a larger --width or a lower --dpi."
+        ))),
+        _ => Ok(()),
+    }
+}
+
 /// The figures of a run.
 pub struct Figures {
     /// The map with the leaves' outlines and labels.

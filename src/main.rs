@@ -583,7 +583,8 @@ struct StyleArgs {
     /// Colour map: viridis, inferno, magma, cividis or grey (for print).
     #[arg(long, default_value = "viridis", value_name = "NAME")]
     colormap: String,
-    /// Figure width in pixels (PNG).
+    /// Figure width in pixels (PNG), 200 to 20000; a width too narrow for the map beside its
+    /// axis and colour-bar labels at --dpi is refused with the narrowest that works.
     #[arg(
         long,
         default_value_t = 1600,
@@ -650,9 +651,9 @@ impl StyleArgs {
         let limits = match &self.range {
             Some(r) => {
                 let (a, b) = pair(r, "--range")?;
-                if !(a.is_finite() && b.is_finite() && a <= b) {
+                if !(a.is_finite() && b.is_finite() && a < b) {
                     return Err(Error::usage(format!(
-                        "--range {r} must be two finite values, the lower first; give them as LOW,HIGH."
+                        "--range {r} must be two finite values, the lower first and not equal, so that the colour scale spans a range; give them as LOW,HIGH."
                     )));
                 }
                 Limits::Values(a, b)
@@ -680,19 +681,12 @@ impl StyleArgs {
                 self.dpi
             )));
         }
-        let narrowest = cairn::render::narrowest_width_px(self.dpi);
-        if self.width < narrowest {
-            return Err(Error::usage(format!(
-                "--width {} at --dpi {} leaves no room for the map: text at that resolution needs a figure at least {narrowest} pixels wide; give a larger --width or a lower --dpi.",
-                self.width, self.dpi
-            )));
-        }
         let region = self
             .region
             .as_deref()
             .map(|r| parse_region(r, map))
             .transpose()?;
-        Ok(Style {
+        let style = Style {
             stretch,
             limits,
             colormap,
@@ -700,7 +694,13 @@ impl StyleArgs {
             dpi: self.dpi,
             show_branches: self.branches,
             region,
-        })
+        };
+        // A width that may be too narrow for the map beside its labels is checked by the
+        // layout itself, which gives the narrowest width that works.
+        if self.width < 4 * cairn::render::narrowest_width_px(self.dpi) {
+            cairn::draw::check_figure_style(map, &style)?;
+        }
+        Ok(style)
     }
 }
 

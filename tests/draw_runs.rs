@@ -568,3 +568,52 @@ fn demo_leaf_ids_are_nearest_their_own_leaves_or_on_leader_lines() {
         );
     }
 }
+
+/// `draw --width` below what the demo map needs beside its labels names the narrowest width
+/// that works, and that width draws; an empty `--range` is refused in one sentence.
+#[test]
+fn draw_states_the_true_narrowest_width_and_refuses_an_empty_range() {
+    let d = tempfile::tempdir().unwrap();
+    let run = demo_run(d.path(), "demo", &[]);
+    let run = run.to_str().unwrap();
+    let o = cairn(&["draw", run, "-o", "a", "--width", "250"], d.path());
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    let needed: u32 = o
+        .stderr
+        .split("at least ")
+        .nth(1)
+        .and_then(|t| t.split_whitespace().next())
+        .and_then(|n| n.parse().ok())
+        .unwrap_or_else(|| panic!("no width in {}", o.stderr));
+    assert_eq!(o.stderr.trim().lines().count(), 1, "{}", o.stderr);
+    let o = cairn(
+        &["draw", run, "-o", "b", "--width", &(needed - 1).to_string()],
+        d.path(),
+    );
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(
+        o.stderr.contains(&format!("at least {needed} pixels")),
+        "{}",
+        o.stderr
+    );
+    let o = cairn(
+        &["draw", run, "-o", "c", "-q", "--width", &needed.to_string()],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(d.path().join("c/overlay.png").exists());
+    for range in ["0.1,0.1", "-3,-3"] {
+        let o = cairn(&["draw", run, "-o", "e", "--range", range], d.path());
+        assert_eq!(o.code, 2, "{range}: {}", o.stderr);
+        assert!(
+            o.stderr.contains("--range") && o.stderr.contains("LOW,HIGH"),
+            "{}",
+            o.stderr
+        );
+        assert_eq!(o.stderr.trim().lines().count(), 1, "{}", o.stderr);
+        assert!(
+            !d.path().join("e").exists(),
+            "nothing written for --range {range}"
+        );
+    }
+}

@@ -1520,3 +1520,36 @@ fn crowded_trees_keep_their_leaf_ids_down_to_a_legible_size_and_say_when_they_ca
     assert!(texts.contains("leaf ids left out: 400 leaves"), "{texts}");
     assert!(!svg_texts(&fig.svg).contains(&"399".to_string()));
 }
+
+/// A figure too narrow for the map beside its labels is refused with the narrowest width
+/// that works: that width is laid out, and one pixel less is refused with the same number.
+#[test]
+fn a_figure_too_narrow_is_refused_with_the_narrowest_width_that_works() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    let o = plain_overlay(&map, &l, leaves_of(&l));
+    for dpi in [72.0, 300.0] {
+        let style = |width_px: u32| Style {
+            width_px,
+            dpi,
+            ..Style::default()
+        };
+        let needed = match overlay_layout(&o, &style(render::narrowest_width_px(dpi) - 1)) {
+            Err(render::RenderError::TooNarrow { needed, .. }) => needed,
+            other => panic!("{dpi} dpi: {:?}", other.map(|l| l.width)),
+        };
+        assert!(
+            overlay_layout(&o, &style(needed)).is_ok(),
+            "{dpi} dpi: {needed}"
+        );
+        match overlay_layout(&o, &style(needed - 1)) {
+            Err(e @ render::RenderError::TooNarrow { .. }) => {
+                assert!(
+                    e.to_string().contains(&format!("at least {needed} pixels")),
+                    "{e}"
+                )
+            }
+            other => panic!("{dpi} dpi: {:?}", other.map(|l| l.width)),
+        }
+    }
+}

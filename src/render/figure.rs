@@ -313,55 +313,71 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             0.0
         };
 
-    // Ticks: as many as fit without overlapping labels.
-    let mut nb = 6usize;
-    let mut nl = 7usize;
-    let (ticks, left, fw, fh, kx, ky, equal) = loop {
-        let ticks = axes::axis_ticks(o.sky, region, nb, nl);
-        let left_lab_w = ticks
-            .ticks
-            .iter()
-            .filter(|t| t.edge == Edge::Left)
-            .map(|t| text::width(&t.label, lfs))
-            .fold(0.0, f64::max);
-        let left = m.pad + 1.2 * fs + m.gap + left_lab_w + m.gap + m.tick;
-        let avail = (w_total - left - right).floor();
-        if avail < MIN_PANEL {
-            return Err(RenderError::BadStyle(format!(
-                "a figure {} pixels wide at {} dpi leaves no room for the map; make it wider or lower the dpi",
-                s.width_px, s.dpi
-            )));
+    // Ticks: as many as fit without overlapping labels. A figure too narrow for the map
+    // beside its labels gives the width it would need (left and right margins and the
+    // narrowest panel).
+    let fit = |w_total: f64| {
+        let mut nb = 6usize;
+        let mut nl = 7usize;
+        loop {
+            let ticks = axes::axis_ticks(o.sky, region, nb, nl);
+            let left_lab_w = ticks
+                .ticks
+                .iter()
+                .filter(|t| t.edge == Edge::Left)
+                .map(|t| text::width(&t.label, lfs))
+                .fold(0.0, f64::max);
+            let left = m.pad + 1.2 * fs + m.gap + left_lab_w + m.gap + m.tick;
+            let avail = (w_total - left - right).floor();
+            if avail < MIN_PANEL {
+                return Err((left + right + MIN_PANEL).ceil());
+            }
+            let (fw, fh, equal) = panel_size(avail, rw, rh);
+            let kx = fw / rw as f64;
+            let ky = fh / rh as f64;
+            // Check overlaps along each labelled edge.
+            let mut bottom: Vec<(f64, f64)> = ticks
+                .ticks
+                .iter()
+                .filter(|t| t.edge == Edge::Bottom)
+                .map(|t| ((t.x - (x0 as f64 - 0.5)) * kx, text::width(&t.label, lfs)))
+                .collect();
+            bottom.sort_by(|a, b| a.0.total_cmp(&b.0));
+            let b_ok = bottom
+                .windows(2)
+                .all(|p| p[0].0 + p[0].1 / 2.0 + 1.5 * m.gap < p[1].0 - p[1].1 / 2.0);
+            let mut leftp: Vec<f64> = ticks
+                .ticks
+                .iter()
+                .filter(|t| t.edge == Edge::Left)
+                .map(|t| (t.y - (y0 as f64 - 0.5)) * ky)
+                .collect();
+            leftp.sort_by(f64::total_cmp);
+            let l_ok = leftp.windows(2).all(|p| p[1] - p[0] > 1.6 * lfs);
+            if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
+                return Ok((ticks, left, fw, fh, kx, ky, equal));
+            }
+            if !b_ok && nb > 2 {
+                nb -= 1;
+            }
+            if !l_ok && nl > 2 {
+                nl -= 1;
+            }
         }
-        let (fw, fh, equal) = panel_size(avail, rw, rh);
-        let kx = fw / rw as f64;
-        let ky = fh / rh as f64;
-        // Check overlaps along each labelled edge.
-        let mut bottom: Vec<(f64, f64)> = ticks
-            .ticks
-            .iter()
-            .filter(|t| t.edge == Edge::Bottom)
-            .map(|t| ((t.x - (x0 as f64 - 0.5)) * kx, text::width(&t.label, lfs)))
-            .collect();
-        bottom.sort_by(|a, b| a.0.total_cmp(&b.0));
-        let b_ok = bottom
-            .windows(2)
-            .all(|p| p[0].0 + p[0].1 / 2.0 + 1.5 * m.gap < p[1].0 - p[1].1 / 2.0);
-        let mut leftp: Vec<f64> = ticks
-            .ticks
-            .iter()
-            .filter(|t| t.edge == Edge::Left)
-            .map(|t| (t.y - (y0 as f64 - 0.5)) * ky)
-            .collect();
-        leftp.sort_by(f64::total_cmp);
-        let l_ok = leftp.windows(2).all(|p| p[1] - p[0] > 1.6 * lfs);
-        if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
-            break (ticks, left, fw, fh, kx, ky, equal);
-        }
-        if !b_ok && nb > 2 {
-            nb -= 1;
-        }
-        if !l_ok && nl > 2 {
-            nl -= 1;
+    };
+    let (ticks, left, fw, fh, kx, ky, equal) = match fit(w_total) {
+        Ok(v) => v,
+        Err(need) => {
+            // The narrowest width that works, found the way the layout decides.
+            let mut w = need.max(w_total + 1.0);
+            while let Err(n) = fit(w) {
+                w = n.max(w + 1.0);
+            }
+            return Err(RenderError::TooNarrow {
+                width: s.width_px,
+                dpi: s.dpi,
+                needed: w as u32,
+            });
         }
     };
     let left = left.round();

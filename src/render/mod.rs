@@ -202,6 +202,9 @@ pub enum RenderError {
     BadRegion((usize, usize, usize, usize)),
     /// A style value cannot be used.
     BadStyle(String),
+    /// The figure is narrower than the map beside its axis and colour-bar labels needs at its
+    /// resolution; `needed` is the narrowest width that works (found as the layout decides).
+    TooNarrow { width: u32, dpi: f64, needed: u32 },
     /// The shown region has no finite value to set the colour scale.
     NoData,
     /// The tree input is inconsistent.
@@ -230,6 +233,10 @@ impl fmt::Display for RenderError {
                 "the zoom region x={x} y={y} width={w} height={h} is empty or leaves the map; choose one inside it"
             ),
             RenderError::BadStyle(m) => write!(f, "{m}"),
+            RenderError::TooNarrow { width, dpi, needed } => write!(
+                f,
+                "a figure {width} pixels wide at {dpi} dpi leaves no room for the map beside its axis and colour-bar labels; this map needs a figure at least {needed} pixels wide at that resolution, so give a larger width or a lower resolution"
+            ),
             RenderError::NoData => write!(
                 f,
                 "the shown region has no finite value, so the colour scale cannot be set; give fixed limits or another region"
