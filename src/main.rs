@@ -2044,6 +2044,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         labels_note(in_frame, left_out);
         stretch_note(summary.figure_y_stretch);
     }
+    if let Some((leaves, left_out)) = summary.figure_tree_ids {
+        tree_note(leaves, left_out);
+    }
     if summary.leaves == 0 {
         outln!(
             "no structure passes these thresholds: the outputs are written but empty; lower --floor, --prominence or --min-area"
@@ -2055,6 +2058,16 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         }
     }
     Ok(())
+}
+
+/// Says when the tree diagram is too crowded for its leaves' ids.
+fn tree_note(leaves: usize, left_out: usize) {
+    if left_out > 0 {
+        outln!(
+            "tree: the ids of its {leaves} leaves left out, too crowded for ids of {} pt; a wider --width shows them",
+            cairn::render::MIN_ID_PT
+        );
+    }
 }
 
 fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
@@ -2383,13 +2396,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     }
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
-    if figs.tree_ids_left_out > 0 {
-        outln!(
-            "tree: the ids of its {} leaves left out, too crowded for ids of {} pt; a wider --width shows them",
-            figs.tree_leaves,
-            cairn::render::MIN_ID_PT
-        );
-    }
+    tree_note(figs.tree_leaves, figs.tree_ids_left_out);
     for p in written {
         if !quiet {
             errln!("wrote {}", p.display());

@@ -575,6 +575,8 @@ pub struct RunSummary {
     pub negative_masses: Option<String>,
     /// With a figure: leaves inside its frame and how many of them got no label.
     pub figure_labels: Option<(usize, usize)>,
+    /// With a figure: the tree's leaves and how many of their ids it left out (too crowded).
+    pub figure_tree_ids: Option<(usize, usize)>,
     /// With a figure of a very long and narrow map: the scale along y over that along x
     /// (the map is then drawn at unequal scales to keep the figure a usable size).
     pub figure_y_stretch: Option<f64>,
@@ -1617,6 +1619,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         label_maps_seconds,
     ) = written?;
     let mut labels = None;
+    let mut tree_ids = None;
     let mut y_stretch = None;
     if let Some(style) = &o.figure {
         let input = crate::draw::FigureInput {
@@ -1655,6 +1658,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             figs.overlay.svg.as_bytes(),
         )?;
         labels = Some((figs.overlay.leaves_in_frame, figs.overlay.labels_left_out));
+        tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
         if tpng.is_empty() {
             // No structure: there is no tree to draw.
@@ -1762,6 +1766,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         physics_note,
         leaf_states,
         figure_labels: labels,
+        figure_tree_ids: tree_ids,
         figure_y_stretch: y_stretch,
     })
 }
