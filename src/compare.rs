@@ -108,15 +108,22 @@ fn read_text(path: &Path) -> Result<String> {
         None
     };
     if let Some(what) = other {
+        // The catalogue beside it when there is one (a run's structures.fits or .vot);
+        // otherwise (a map, say) the run folder.
         let csv = path.with_extension("csv");
-        return Err(Error::input(
-            path,
+        let give = if csv.is_file() {
             format!(
-                "is {what}, but compare reads the CSV catalogue: give the run folder or {}.",
+                "give the run folder or {}",
                 csv.file_name()
                     .map(|n| n.to_string_lossy())
                     .unwrap_or_default()
-            ),
+            )
+        } else {
+            "give the folder cairn segment wrote (or its structures.csv)".to_string()
+        };
+        return Err(Error::input(
+            path,
+            format!("is {what}, but compare reads a run's CSV catalogue: {give}."),
         ));
     }
     String::from_utf8(bytes).map_err(|e| {

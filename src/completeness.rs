@@ -116,6 +116,8 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
         return Err(bad("lacks one of the columns id, x, y, lon_deg, lat_deg, mass_msun; give the NAME-truth.csv that cairn synth --into wrote.".into()));
     };
     let mut cores = Vec::new();
+    // Each id's line, for a repeated row or id.
+    let mut seen: std::collections::HashMap<i64, usize> = std::collections::HashMap::new();
     for (n, l) in lines {
         let cells: Vec<&str> = l.split(',').collect();
         let num = |i: usize| -> Result<f64> {
@@ -146,6 +148,13 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
                 n + 1
             )));
         }
+        if let Some(first) = seen.insert(id as i64, n + 1) {
+            return Err(bad(format!(
+                "line {} repeats the id {} of line {first}, so some cores would count twice; give the NAME-truth.csv that cairn synth --into wrote, unedited.",
+                n + 1,
+                id as i64
+            )));
+        }
     }
     if cores.is_empty() {
         return Err(bad(
@@ -168,6 +177,20 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
             _ => Ok(spec),
         }
     });
+    // A table with rows taken out (or added) holds another number of cores than its record.
+    if let Some(count) = spec
+        .as_ref()
+        .ok()
+        .and_then(|s| s.pointer("/population/count"))
+        .and_then(|v| v.as_u64())
+        .filter(|&c| c != cores.len() as u64)
+    {
+        return Err(bad(format!(
+            "holds {} cores, but its record {} says {count} were injected; give the NAME-truth.csv that cairn synth wrote with that record, unedited.",
+            cores.len(),
+            spec_path(path).unwrap_or_default().display()
+        )));
+    }
     Ok(Truth {
         path: path.to_path_buf(),
         cores,

@@ -1983,10 +1983,15 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         summary.seconds
     );
     outln!(
-        "floor {:.4e}{unit}, prominence {:.4e}{unit}, min area {} px; noise {}",
+        "floor {:.4e}{unit}, prominence {:.4e}{unit}, min area {} px{}; noise {}",
         t.floor,
         t.prominence,
         t.min_area_px,
+        if t.typed[2].contains("no beam") {
+            " (the map has no beam, so not the default of one beam; give --beam or --min-area)"
+        } else {
+            ""
+        },
         match t.noise {
             Some(n) => format!("{n:.4e}{unit} ({})", t.noise_source),
             None => "none (not measurable in this map; thresholds in map units only)".into(),

@@ -457,6 +457,8 @@ fn resolve_with(
             show(o.prominence, &o.threshold_texts[1]),
             match (o.min_area, &o.threshold_texts[2]) {
                 (Some(_), Some(t)) => t.trim().to_string(),
+                // The default is one beam; without one, 9 pixels (a 3 x 3 patch).
+                (None, _) if beam_px.is_none() => "default (9 px: the map has no beam)".into(),
                 _ => area_text,
             },
         ],

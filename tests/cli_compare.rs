@@ -760,3 +760,40 @@ fn mass_size_guide_labels_sit_by_their_own_lines() {
         svg_layout::check_guide_labels(&svg, 0.0, 0.5 * lfs, 0.8 * lfs);
     }
 }
+
+/// A FITS file given for a run: a run's FITS catalogue points to its CSV beside it, a map
+/// (no catalogue beside it) to the run folder; exit 2, nothing written.
+#[test]
+fn a_fits_file_given_for_a_run_gets_the_right_advice() {
+    let d = tempfile::tempdir().unwrap();
+    let map =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let m = map.to_str().unwrap();
+    let (code, _, err) = run(
+        d.path(),
+        &[
+            "segment",
+            m,
+            "-o",
+            "a",
+            "--distance",
+            "300pc",
+            "--no-figure",
+            "-q",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = run(d.path(), &["compare", "a/structures.fits", "a", "-o", "c1"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("give the run folder or structures.csv."),
+        "{err}"
+    );
+    let (code, _, err) = run(d.path(), &["compare", m, "a", "-o", "c2"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("give the folder cairn segment wrote (or its structures.csv)."),
+        "{err}"
+    );
+    assert!(!d.path().join("c1").exists() && !d.path().join("c2").exists());
+}

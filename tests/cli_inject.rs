@@ -1875,3 +1875,63 @@ fn cores_beyond_the_float_range_are_refused_and_nothing_is_written() {
     assert!(!dir.join("inj").exists());
     assert_eq!(std::fs::read(dir.join("base/synth.fits")).unwrap(), before);
 }
+
+/// A truth table edited by hand is refused in one sentence naming it: a repeated row (its id
+/// twice: those cores would count twice in the completeness), and a row taken out (fewer
+/// cores than the injection's record says were injected).
+#[test]
+fn a_truth_table_with_repeated_or_missing_rows_is_refused() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let o = inject(dir, "base/synth.fits", "inj", &["--seed", "5"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "segment",
+            "inj/synth.fits",
+            "-o",
+            "run",
+            "--no-figure",
+            "-q",
+            "--distance",
+            "250pc",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let text = std::fs::read_to_string(dir.join("inj/synth-truth.csv")).unwrap();
+    let rows: Vec<&str> = text
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.starts_with("id,"))
+        .collect();
+    assert!(rows.len() > 2);
+    // The first data row again at the end.
+    std::fs::write(
+        dir.join("inj/synth-truth.csv"),
+        format!("{text}{}\n", rows[0]),
+    )
+    .unwrap();
+    let args = [
+        "compare",
+        "run",
+        "--truth",
+        "inj/synth-truth.csv",
+        "-o",
+        "s",
+        "-q",
+    ];
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "inj/synth-truth.csv", "repeats the id 1 of line");
+    // The last data row taken out.
+    let cut = text.trim_end().rsplit_once('\n').unwrap().0.to_string() + "\n";
+    std::fs::write(dir.join("inj/synth-truth.csv"), cut).unwrap();
+    let o = cairn(&args, dir);
+    check_refused(
+        &o,
+        &args,
+        "inj/synth-truth.csv",
+        &format!("holds {} cores, but its record", rows.len() - 1),
+    );
+    assert!(!dir.join("s").exists());
+}

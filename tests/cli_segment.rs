@@ -1285,3 +1285,38 @@ fn negative_masses_are_a_warning() {
         run["warnings"]
     );
 }
+
+/// The default least area is one beam; on a map without a beam it is 9 pixels, which the
+/// summary says with the way to change it, and the records keep as typed.
+#[test]
+fn the_least_area_without_a_beam_is_said() {
+    let d = tempfile::tempdir().unwrap();
+    let src = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let m = cairn::map::load(&src, &Default::default()).unwrap();
+    let mut h = m.header.clone();
+    for k in ["BMAJ", "BMIN", "BPA"] {
+        h.remove(k);
+    }
+    cairn::fits_write::write_image_f32(&d.path().join("nobeam.fits"), m.data.view(), &h, true)
+        .unwrap();
+    let (code, stdout, stderr) = cairn(
+        &["segment", "nobeam.fits", "-o", "r", "--no-figure"],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stdout.contains("min area 9 px (the map has no beam, so not the default of one beam; give --beam or --min-area)"),
+        "{stdout}"
+    );
+    let csv = std::fs::read_to_string(d.path().join("r/structures.csv")).unwrap();
+    assert!(csv.contains(
+        "# parameter min_area = 9  (pixels (given as default (9 px: the map has no beam)))"
+    ));
+    // With a beam, the default is one beam and nothing is said.
+    let (code, stdout, stderr) = cairn(
+        &["segment", src.to_str().unwrap(), "-o", "b", "--no-figure"],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(!stdout.contains("no beam"), "{stdout}");
+}
