@@ -416,7 +416,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     }
     let fits = FitsHandle { ptr };
     let nhdu = count_hdus(&fits, path)?;
-    let index = choose_hdu(&fits, path, &opts.hdu, nhdu)?;
+    let (index, hdu_note) = choose_hdu(&fits, path, &opts.hdu, nhdu)?;
     move_to(&fits, path, index)?;
     let compressed = is_compressed_image(&fits);
     let mut header = read_header(&fits, path)?;
@@ -520,7 +520,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     }
     let data = Array2::from_shape_vec((ny, nx), buf).map_err(|e| Error::internal(e.to_string()))?;
 
-    let mut warnings = Vec::new();
+    let mut warnings: Vec<String> = hdu_note.into_iter().collect();
     if beyond > 0 {
         warnings.push(format!(
             "{beyond} pixels hold values beyond the range of 32-bit floats (about 3.4e38 in size, such as -1e300 written as a blank); they are treated as missing"
@@ -925,7 +925,14 @@ fn image_shape(fits: &FitsHandle, path: &Path, index: usize) -> Result<(i64, Vec
     ))
 }
 
-fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -> Result<usize> {
+/// The HDU to read, and a warning when the choice was not the only one: other images in the
+/// file (read without --hdu), or several HDUs of the name given.
+fn choose_hdu(
+    fits: &FitsHandle,
+    path: &Path,
+    choice: &HduChoice,
+    nhdu: usize,
+) -> Result<(usize, Option<String>)> {
     match choice {
         HduChoice::Index(i) => {
             if *i >= nhdu {
@@ -937,19 +944,31 @@ fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -
                     ),
                 ));
             }
-            Ok(*i)
+            Ok((*i, None))
         }
         HduChoice::Name(name) => {
             let mut names = Vec::new();
+            let mut found = Vec::new();
             for i in 0..nhdu {
                 move_to(fits, path, i)?;
                 let h = read_header(fits, path)?;
                 if let Some(n) = h.get_str("EXTNAME") {
                     if n.eq_ignore_ascii_case(name) {
-                        return Ok(i);
+                        found.push(i);
                     }
                     names.push(n.to_string());
                 }
+            }
+            if let Some(&first) = found.first() {
+                let note = (found.len() > 1).then(|| {
+                    format!(
+                        "{} has {} HDUs named '{name}' ({}); the first, HDU {first}, was read: choose another with --hdu N",
+                        path.display(),
+                        found.len(),
+                        found.iter().map(|i| format!("HDU {i}")).collect::<Vec<_>>().join(", ")
+                    )
+                });
+                return Ok((first, note));
             }
             let known = if names.is_empty() {
                 "none".to_string()
@@ -964,6 +983,11 @@ fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -
             ))
         }
         HduChoice::Auto => {
+            // HDUs with data, and among them the images: two axes or more longer than one
+            // pixel. The first image is read (a 1-D array before it is passed over); with no
+            // image, the first HDU with data, whose reading then says what it holds.
+            let mut with_data = Vec::new();
+            let mut images = Vec::new();
             for i in 0..nhdu {
                 let hdutype = move_to(fits, path, i)?;
                 if hdutype != sys::IMAGE_HDU as i32 {
@@ -971,8 +995,36 @@ fn choose_hdu(fits: &FitsHandle, path: &Path, choice: &HduChoice, nhdu: usize) -
                 }
                 let (_, axes) = image_shape(fits, path, i)?;
                 if !axes.is_empty() && axes.iter().all(|&a| a > 0) {
-                    return Ok(i);
+                    with_data.push(i);
+                    if axes.iter().filter(|&&a| a > 1).count() >= 2 {
+                        images.push((i, axes));
+                    }
                 }
+            }
+            if let Some((first, axes)) = images.first() {
+                let shape = |a: &[usize]| {
+                    a.iter()
+                        .map(|n| n.to_string())
+                        .collect::<Vec<_>>()
+                        .join(" x ")
+                };
+                let note = (images.len() > 1).then(|| {
+                    format!(
+                        "{} holds {} images ({}); the first, HDU {first} ({}), was read: choose another with --hdu N or --hdu EXTNAME",
+                        path.display(),
+                        images.len(),
+                        images
+                            .iter()
+                            .map(|(i, a)| format!("HDU {i}: {}", shape(a)))
+                            .collect::<Vec<_>>()
+                            .join(", "),
+                        shape(axes)
+                    )
+                });
+                return Ok((*first, note));
+            }
+            if let Some(&first) = with_data.first() {
+                return Ok((first, None));
             }
             Err(Error::input(
                 path,

@@ -101,6 +101,71 @@ fn extensions_are_found_by_default_index_and_name() {
     )
     .unwrap_err();
     assert!(e.message.contains("has 3 HDUs"), "{e}");
+    // Two images and no --hdu: the first is read, and a warning names both and the option.
+    let m = map::load(&path, &opts()).unwrap();
+    assert!(
+        m.warnings.iter().any(|w| w.contains(
+            "holds 2 images (HDU 1: 7 x 5, HDU 2: 7 x 5); the first, HDU 1 (7 x 5), was read: choose another with --hdu"
+        )),
+        "{:?}",
+        m.warnings
+    );
+    let m = map::load(
+        &path,
+        &LoadOptions {
+            hdu: HduChoice::Index(1),
+            ..opts()
+        },
+    )
+    .unwrap();
+    assert!(
+        !m.warnings.iter().any(|w| w.contains("images")),
+        "{:?}",
+        m.warnings
+    );
+}
+
+/// Without --hdu, a one-dimensional array (a spectrum, a list of values) before the image is
+/// passed over: the first HDU of two axes or more longer than one pixel is the map.
+#[test]
+fn a_one_dimensional_extension_before_the_image_is_passed_over() {
+    use fitsio::images::{ImageDescription, ImageType};
+    let d = tempfile::tempdir().unwrap();
+    let path = d.path().join("spectrum-then-map.fits");
+    {
+        let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+        let line = f
+            .create_image(
+                "LINE",
+                &ImageDescription {
+                    data_type: ImageType::Float,
+                    dimensions: &[16],
+                },
+            )
+            .unwrap();
+        line.write_image(&mut f, &[1.0f32; 16]).unwrap();
+        let img = f
+            .create_image(
+                "MAP",
+                &ImageDescription {
+                    data_type: ImageType::Float,
+                    dimensions: &[5, 6],
+                },
+            )
+            .unwrap();
+        let values: Vec<f32> = (0..30).map(|i| i as f32).collect();
+        img.write_image(&mut f, &values).unwrap();
+    }
+    let m = map::load(&path, &opts()).unwrap();
+    assert_eq!(m.hdu_index, 2);
+    assert_eq!(m.hdu_name.as_deref(), Some("MAP"));
+    assert_eq!((m.nx(), m.ny()), (6, 5));
+    assert_eq!(m.data[(4, 5)], 29.0);
+    assert!(
+        !m.warnings.iter().any(|w| w.contains("images")),
+        "{:?}",
+        m.warnings
+    );
 }
 
 #[test]
