@@ -284,10 +284,15 @@ struct SynthArgs {
     )]
     min_separation: Option<String>,
     /// With --into: HDU to read, a zero-based index or an EXTNAME.
-    #[arg(long, value_name = "N|NAME", requires = "into")]
+    #[arg(
+        long,
+        value_name = "N|NAME",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
     hdu: Option<String>,
     /// With --into: for a cube, the zero-based plane to take.
-    #[arg(long, value_name = "K", requires = "into")]
+    #[arg(long, value_name = "K", requires = "into", allow_hyphen_values = true)]
     plane: Option<usize>,
     /// With --into: unit of the map's pixels instead of BUNIT.
     #[arg(long, value_name = "UNIT", requires = "into")]
@@ -339,10 +344,10 @@ struct SynthArgs {
 #[derive(Args, Clone)]
 struct MapArgs {
     /// HDU to read: a zero-based index (0 = primary) or an EXTNAME [default: the first image with data].
-    #[arg(long, value_name = "N|NAME")]
+    #[arg(long, value_name = "N|NAME", allow_hyphen_values = true)]
     hdu: Option<String>,
     /// For a cube: the zero-based plane to take along its one long extra axis.
-    #[arg(long, value_name = "K")]
+    #[arg(long, value_name = "K", allow_hyphen_values = true)]
     plane: Option<usize>,
     /// Unit of the pixels, instead of BUNIT: cm-2, m-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam, Jy/pixel; or other:UNIT (such as other:K km/s) for a unit cairn does not convert to column density, or none for values without a unit: the structure alone is measured, without masses.
     #[arg(long, value_name = "UNIT")]
@@ -495,6 +500,13 @@ impl PhysicsArgs {
             if k < t_cmb {
                 return Err(Error::usage(format!(
                     "--temperature {t} is colder than the cosmic microwave background ({t_cmb} K), which no dust or gas in a molecular cloud is; give the temperature in kelvin, such as 15K."
+                )));
+            }
+            // Dust sublimates near 1500-2000 K and molecular gas is dissociated long before
+            // (common practice; synth keeps to the same range).
+            if k > 2000.0 {
+                return Err(Error::usage(format!(
+                    "--temperature {t} is hotter than dust survives or molecules hold together (about 2000 K); give the temperature in kelvin, such as 15K."
                 )));
             }
             c.temperature_k = Some(Field::Uniform(k));
@@ -927,6 +939,15 @@ impl MapArgs {
                     self.wavelength.as_deref().unwrap_or("")
                 )));
             }
+        }
+        if let Some(h) = self
+            .hdu
+            .as_deref()
+            .filter(|h| h.trim().parse::<i64>().is_ok_and(|i| i < 0))
+        {
+            return Err(Error::usage(format!(
+                "--hdu {h} is not an HDU: they are counted from 0 (the primary); give --hdu 0, 1, ... or an EXTNAME."
+            )));
         }
         Ok(LoadOptions {
             hdu: self
@@ -2143,7 +2164,9 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         .mass_min
         .as_deref()
         .map(|t| {
-            units::parse_quantity(t, &[Dimension::Mass], "--mass-min").map(|q| q.si / units::M_SUN)
+            // As given: 1e6Msun, not 999999.9999999999 of the round trip through kilograms.
+            units::parse_quantity(t, &[Dimension::Mass], "--mass-min")
+                .map(|q| units::as_given(q.si / units::M_SUN))
         })
         .transpose()
         .map_err(Error::usage)?;
@@ -2160,7 +2183,7 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
         .as_deref()
         .map(|t| {
             units::parse_quantity(t, &[Dimension::Mass], "--tests-above")
-                .map(|q| q.si / units::M_SUN)
+                .map(|q| units::as_given(q.si / units::M_SUN))
         })
         .transpose()
         .map_err(Error::usage)?;
@@ -2502,9 +2525,16 @@ fn main() -> ExitCode {
             .unwrap_or_else(|p| p.into_inner())
             .take()
         {
-            Some(e) => Err(Error::usage(format!(
-                "the standard output could not be written ({e}); check where it goes (a full disk or a closed file)."
-            ))),
+            // What the command printed is lost; the files it wrote are whole (their outputs
+            // are put in place before the summary is printed).
+            Some(e) => Err(Error::usage(match &cli.command {
+                Command::Inspect(_) => format!(
+                    "the standard output could not be written ({e}); check where it goes (a full disk or a closed file)."
+                ),
+                _ => format!(
+                    "the standard output could not be written ({e}), so the summary is lost, though the output files were written in full; check where the standard output goes (a full disk or a closed file)."
+                ),
+            })),
             None => Ok(()),
         }
     });

@@ -69,7 +69,7 @@ impl std::fmt::Display for NoNoise {
         match self {
             NoNoise::AllMissing => write!(
                 f,
-                "every pixel is missing (NaN or BLANK), so there is nothing to measure"
+                "every pixel is missing (NaN, BLANK or infinite), so there is nothing to measure"
             ),
             NoNoise::Constant(v) => write!(
                 f,

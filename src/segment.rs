@@ -319,7 +319,7 @@ fn resolve_with(
     if !map.data.iter().any(|v| v.is_finite()) {
         return Err(Error::input(
             &map.path,
-            "has no pixel with a value (every pixel is missing: NaN or BLANK); check that this is the right HDU (--hdu) or plane (--plane).",
+            "has no pixel with a value (every pixel is missing: NaN, BLANK or infinite); check that this is the right HDU (--hdu) or plane (--plane).",
         ));
     }
     let (sigma, source) = inspect::noise_for_with(map, &o.noise, noise_map)?;

@@ -671,3 +671,60 @@ fn a_reference_system_fits_does_not_define_is_named() {
     );
     assert!(!o.stdout.contains("RADESYS"), "{}", o.stdout);
 }
+
+/// A negative --hdu or --plane reaches cairn's own check (not the parser's advice to write
+/// `-- -1`, which would make -1 the map): one sentence saying how they are counted.
+#[test]
+fn negative_hdu_and_plane_numbers() {
+    let s = Scratch::new();
+    s.write(
+        "m.fits",
+        &fits_bytes(&image_cards(8, 8, &[]), &good_pixels(64)),
+    );
+    assert_refused(
+        &s,
+        &["inspect", "m.fits", "--hdu", "-1"],
+        "--hdu -1",
+        "they are counted from 0",
+    );
+    assert_refused(
+        &s,
+        &["segment", "m.fits", "-o", "out", "--plane", "-1"],
+        "--plane",
+        "invalid value '-1'",
+    );
+}
+
+/// A summary that cannot be printed (standard output on a full disk) is an error, exit 2,
+/// that says the output files were written in full, as they are.
+#[cfg(target_os = "linux")]
+#[test]
+fn a_full_standard_output_says_the_files_are_whole() {
+    let s = Scratch::new();
+    s.write(
+        "m.fits",
+        &fits_bytes(&image_cards(16, 16, &[]), &good_pixels(256)),
+    );
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args([
+            "segment",
+            "m.fits",
+            "-o",
+            "out",
+            "--no-figure",
+            "--floor",
+            "5",
+        ])
+        .current_dir(s.dir.path())
+        .stdout(std::fs::File::create("/dev/full").unwrap())
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("so the summary is lost, though the output files were written in full"),
+        "{stderr}"
+    );
+    assert!(s.dir.path().join("out/structures.csv").is_file());
+    assert!(s.dir.path().join("out/run.json").is_file());
+}

@@ -523,6 +523,12 @@ fn temperatures_colder_than_the_microwave_background_are_refused() {
         "t.fits",
         "holds 0.5 K at pixel (11, 7), colder than the cosmic microwave background",
     );
+    refused(
+        d.path(),
+        &["segment", "col.fits", "-o", "out", "--temperature", "1e9K"],
+        "--temperature 1e9K",
+        "hotter than dust survives",
+    );
     // The background itself is accepted.
     let o = cairn(
         &[
