@@ -508,6 +508,13 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
             ),
         ));
     }
+    // 64-bit pixels are held as 32-bit floats: a sample read again in double precision says
+    // whether that lost what the map measures.
+    let narrowing = if bitpix == 64 || bitpix == -64 {
+        narrowing_loss(&fits, &firstpix, npix)
+    } else {
+        None
+    };
     drop(fits);
     // Values beyond the range of 32-bit floats (in 64-bit data: such as -1e300 written as a
     // blank) arrive infinite; they are missing pixels, as infinities stored in the file are
@@ -520,7 +527,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     }
     let data = Array2::from_shape_vec((ny, nx), buf).map_err(|e| Error::internal(e.to_string()))?;
 
-    let mut warnings: Vec<String> = hdu_note.into_iter().collect();
+    let mut warnings: Vec<String> = hdu_note.into_iter().chain(narrowing).collect();
     if beyond > 0 {
         warnings.push(format!(
             "{beyond} pixels hold values beyond the range of 32-bit floats (about 3.4e38 in size, such as -1e300 written as a blank); they are treated as missing"
@@ -927,6 +934,72 @@ fn image_shape(fits: &FitsHandle, path: &Path, index: usize) -> Result<(i64, Vec
 
 /// The HDU to read, and a warning when the choice was not the only one: other images in the
 /// file (read without --hdu), or several HDUs of the name given.
+/// Pixels of a 64-bit image read again in double precision, at most this many.
+const NARROWING_SAMPLE: usize = 1 << 20;
+
+/// What holding a 64-bit image as 32-bit floats loses, judged on its first pixels (up to
+/// [`NARROWING_SAMPLE`]) read again in double precision: neighbouring pixels that differ but
+/// read as equal (a large constant offset, such as 1e9 added to values of order 1, leaves
+/// 32-bit floats too few digits for the differences), and values below the least normal
+/// 32-bit float (about 1.2e-38), which read as zero or lose digits. `None` when nothing
+/// that matters is lost (or the sample cannot be read).
+fn narrowing_loss(fits: &FitsHandle, firstpix: &[i64], npix: usize) -> Option<String> {
+    let n = npix.min(NARROWING_SAMPLE);
+    let mut sample = vec![0f64; n];
+    let mut first = firstpix.to_vec();
+    let mut nulval = f64::NAN;
+    let (mut anynul, mut status) = (0, 0);
+    // SAFETY: sample holds n doubles; first has one entry per axis; TDOUBLE matches f64.
+    unsafe {
+        sys::ffgpxvll(
+            fits.ptr,
+            sys::TDOUBLE as i32,
+            first.as_mut_ptr(),
+            n as i64,
+            &mut nulval as *mut f64 as *mut _,
+            sample.as_mut_ptr() as *mut _,
+            &mut anynul,
+            &mut status,
+        )
+    };
+    if status != 0 {
+        return None;
+    }
+    let tiny = sample
+        .iter()
+        .filter(|v| v.is_finite() && **v != 0.0 && v.abs() < f32::MIN_POSITIVE as f64)
+        .count();
+    if tiny > 0 {
+        return Some(format!(
+            "{tiny} of the first {n} pixels hold values below the least normal 32-bit float (1.2e-38 in size), in which cairn holds the map: they read as zero or with few digits; give the map in a unit that makes its values larger"
+        ));
+    }
+    let (mut differing, mut merged) = (0usize, 0usize);
+    let mut example = None;
+    for w in sample.windows(2) {
+        let (a, b) = (w[0], w[1]);
+        // (Values beyond the range of 32-bit floats are warned about as missing pixels.)
+        let held = (a as f32).is_finite() && (b as f32).is_finite();
+        if a.is_finite() && b.is_finite() && a != b && held {
+            differing += 1;
+            if a as f32 == b as f32 {
+                merged += 1;
+                example.get_or_insert((a, (a - b).abs()));
+            }
+        }
+    }
+    // Common practice: a map whose neighbouring pixels read as equal for one in ten of those
+    // that differ has lost more than rounding.
+    match example {
+        Some((v, d)) if merged * 10 > differing => Some(format!(
+            "{merged} of {differing} neighbouring pixels that differ among the first {n} read as equal once held as 32-bit floats, as cairn holds maps (values near {} that differ by {}, beyond 32-bit precision there): subtract the map's constant offset, or scale it, before giving it to cairn",
+            crate::units::tidy(v),
+            crate::units::tidy(d)
+        )),
+        _ => None,
+    }
+}
+
 fn choose_hdu(
     fits: &FitsHandle,
     path: &Path,

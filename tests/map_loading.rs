@@ -324,3 +324,44 @@ fn an_extension_with_inherit_reads_the_primary_header() {
         "{lon} {lat} against {rl} {rb}"
     );
 }
+
+/// cairn holds pixels as 32-bit floats; a 64-bit map whose values that holding loses is
+/// warned about: a large constant offset (1e9 added to values of order 0.1, whose
+/// differences 32-bit floats near 1e9, spaced 64 apart, cannot keep; IEEE 754 binary32) and
+/// values below the least normal 32-bit float (1.18e-38). The same values without the
+/// offset, or of ordinary size, are read without a word.
+#[test]
+fn precision_lost_by_64_bit_maps_is_warned_about() {
+    use fitsio::images::{ImageDescription, ImageType};
+    let d = tempfile::tempdir().unwrap();
+    let write = |name: &str, values: &[f64]| {
+        let path = d.path().join(name);
+        let mut f = fitsio::FitsFile::create(&path)
+            .with_custom_primary(&ImageDescription {
+                data_type: ImageType::Double,
+                dimensions: &[20, 20],
+            })
+            .open()
+            .unwrap();
+        let hdu = f.primary_hdu().unwrap();
+        hdu.write_image(&mut f, values).unwrap();
+        path
+    };
+    let wiggle: Vec<f64> = (0..400).map(|i| ((i * 37) % 101) as f64 * 1e-3).collect();
+    let warned = |path: &std::path::Path, says: &str| {
+        let m = map::load(path, &opts()).unwrap();
+        m.warnings.iter().any(|w| w.contains(says))
+    };
+    let offset: Vec<f64> = wiggle.iter().map(|v| v + 1e9).collect();
+    let p = write("offset.fits", &offset);
+    assert!(warned(&p, "read as equal once held as 32-bit floats"));
+    assert!(warned(&p, "subtract the map's constant offset"));
+    let p = write("plain.fits", &wiggle);
+    assert!(!warned(&p, "32-bit"));
+    let tiny: Vec<f64> = wiggle.iter().map(|v| (v + 1e-3) * 1e-300).collect();
+    let p = write("tiny.fits", &tiny);
+    assert!(warned(
+        &p,
+        "400 of the first 400 pixels hold values below the least normal 32-bit float"
+    ));
+}
