@@ -657,6 +657,16 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         });
     }
 
+    // A band given for a map that is no extinction map changes nothing: said, as the user
+    // may have meant the map to be one (an unread BUNIT is warned about already).
+    if opts.band_given
+        && unit.is_some_and(|u| !matches!(u, PixelUnit::Extinction { .. } | PixelUnit::Other))
+    {
+        warnings.push(format!(
+            "--extinction-band applies to extinction maps, and this map's unit '{unit_text}' is not one, so it changes nothing; if the map is an extinction map, give --unit mag"
+        ));
+    }
+
     // Sky coordinates.
     // A WCS keyword given twice: WCSLIB (and so astropy.wcs and most viewers) reads the last
     // card, so cairn does too, and says so when the values differ. A CROTAi beside PCi_j
@@ -1436,6 +1446,10 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
             warnings.push(format!(
                 "{key} = {v} is not a positive number, so it is not used as the wavelength"
             ));
+        } else if v.is_none() && h.get(key).is_some() {
+            warnings.push(format!(
+                "the header's {key} is not a number (a damaged card?), so it is not used as the wavelength; give --wavelength"
+            ));
         }
     };
     for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
@@ -1565,6 +1579,14 @@ mod tests {
                 "{w:?}"
             );
         }
+        // A value that is no number (a damaged card) is said too.
+        let mut w = Vec::new();
+        let h = Header::parse(&format!("{:<80}", "WAVELEN = 'eight fifty'"));
+        assert!(wavelength_from_header(&h, &mut w).is_none());
+        assert!(
+            w.len() == 1 && w[0].contains("WAVELEN is not a number"),
+            "{w:?}"
+        );
         // A spectral axis in a unit cairn does not read gives no wavelength, and says so
         // (rather than reading the number as Hz).
         let h = Header::parse(

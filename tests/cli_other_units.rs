@@ -597,3 +597,41 @@ fn a_column_density_or_brightness_cairn_cannot_read_is_refused() {
         assert_eq!(o.code, 0, "{bunit}: {}", o.stderr);
     }
 }
+
+/// --extinction-band on a map of dust emission changes nothing, and a warning says so
+/// (the user may have meant the map to be an extinction map); on an extinction map, none.
+#[test]
+fn an_extinction_band_for_a_map_of_another_kind_is_said() {
+    let d = tempfile::tempdir().unwrap();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let o = cairn(
+        &["inspect", demo.to_str().unwrap(), "--extinction-band", "K"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    // inspect's report (stdout) carries its warnings.
+    assert!(
+        o.stdout.contains(
+            "--extinction-band applies to extinction maps, and this map's unit 'Jy/beam' is not one"
+        ),
+        "{}",
+        o.stdout
+    );
+    let o = cairn(
+        &[
+            "inspect",
+            demo.to_str().unwrap(),
+            "--unit",
+            "mag",
+            "--extinction-band",
+            "K",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        !o.stdout.contains("--extinction-band applies"),
+        "{}",
+        o.stdout
+    );
+}
