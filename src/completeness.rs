@@ -995,7 +995,6 @@ pub fn score_with_baseline(
     let cores: Vec<(f64, f64)> = truth.cores.iter().map(|c| (c.lon, c.lat)).collect();
     let leaves: Vec<(f64, f64)> = run.leaves.iter().map(|l| (l.lon, l.lat)).collect();
     let radius = run.beam_fwhm_arcsec;
-    let matches = match_cores(&cores, &leaves, radius);
     let on_own_leaf: Vec<Option<i64>> = match baseline {
         None => vec![None; cores.len()],
         Some(b) => cores
@@ -1010,6 +1009,19 @@ pub fn score_with_baseline(
             })
             .collect(),
     };
+    // The cores left out (on a leaf of the map's own) take no part in the matching either,
+    // so that none of them takes a leaf from a counted core nearby.
+    let counted: Vec<usize> = (0..cores.len())
+        .filter(|&i| on_own_leaf[i].is_none())
+        .collect();
+    let counted_cores: Vec<(f64, f64)> = counted.iter().map(|&i| cores[i]).collect();
+    let mut matches = vec![None; cores.len()];
+    for (&i, m) in counted
+        .iter()
+        .zip(match_cores(&counted_cores, &leaves, radius))
+    {
+        matches[i] = m;
+    }
     // The bins, limit and medians are those of this one pair pooled alone.
     let matched = Scoring {
         matches,

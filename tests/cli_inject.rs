@@ -1048,6 +1048,12 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
     let (ratio, own) = (col("mass_excess_ratio"), col("own_leaf"));
     let on_own = rows.iter().filter(|r| !r[own].is_empty()).count();
     assert!(on_own > 0, "some cores fall on the map's own leaves");
+    // Cores left out take no part in the matching: no leaf is theirs.
+    let leaf = col("leaf");
+    assert!(
+        rows.iter().all(|r| r[own].is_empty() || r[leaf].is_empty()),
+        "a core left out holds a leaf"
+    );
     for r in &rows {
         if r[ratio].parse::<f64>().unwrap_or(0.0) > 10.0 {
             assert!(!r[own].is_empty(), "a big match on no own leaf: {r:?}");
