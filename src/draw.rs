@@ -37,6 +37,37 @@ impl SkyAxes for Wcs {
         let (sx, sy) = self.pixel_scale(0.0, 0.0);
         (sx * sy).sqrt()
     }
+    fn pixel_scales_deg(&self, x: f64, y: f64) -> Option<(f64, f64)> {
+        let (sx, sy) = self.pixel_scale(x, y);
+        (sx.is_finite() && sy.is_finite() && sx > 0.0 && sy > 0.0).then_some((sx, sy))
+    }
+}
+
+/// A map's WCS as the figure sees it, with the nominal pixel (the unit of the beam's size
+/// given to the figure) measured at the centre of the shown part rather than at the first
+/// pixel, which may lie off the sky of its projection.
+struct FigureSky<'a> {
+    wcs: &'a Wcs,
+    /// The geometric mean of the pixel's sides at the centre of the shown part, in degrees.
+    unit_deg: f64,
+}
+
+impl SkyAxes for FigureSky<'_> {
+    fn pixel_to_sky(&self, x: f64, y: f64) -> Option<(f64, f64)> {
+        self.wcs.pixel_to_sky(x, y)
+    }
+    fn sky_to_pixel(&self, lon: f64, lat: f64) -> Option<(f64, f64)> {
+        self.wcs.sky_to_pixel(lon, lat)
+    }
+    fn equatorial(&self) -> bool {
+        SkyAxes::equatorial(self.wcs)
+    }
+    fn pixel_scale_deg(&self) -> f64 {
+        self.unit_deg
+    }
+    fn pixel_scales_deg(&self, x: f64, y: f64) -> Option<(f64, f64)> {
+        SkyAxes::pixel_scales_deg(self.wcs, x, y)
+    }
 }
 
 /// The states in legend order.
@@ -123,44 +154,162 @@ fn unit_label(map: &Map) -> String {
     }
 }
 
-/// Centre and local pixel size (degrees) of the shown part of the map.
+/// Centre and local pixel sides along x and y (degrees) of the shown part of the map.
 fn shown_centre(
     map: &Map,
     region: Option<(usize, usize, usize, usize)>,
-) -> ((f64, f64), Option<f64>) {
+) -> ((f64, f64), Option<(f64, f64)>) {
     let (ny, nx) = map.data.dim();
     let c = match region {
         Some((x0, y0, w, h)) => (x0 as f64 + w as f64 / 2.0, y0 as f64 + h as f64 / 2.0),
         None => ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0),
     };
-    let deg = map.wcs.as_ref().map(|w| {
-        let (sx, sy) = w.pixel_scale(c.0, c.1);
-        (sx * sy).sqrt()
-    });
+    let deg = map
+        .wcs
+        .as_ref()
+        .and_then(|w| SkyAxes::pixel_scales_deg(w, c.0, c.1));
     (c, deg)
 }
 
-/// The beam in pixels at the centre of the shown part: (major, minor, PA east of north); none
-/// where the pixel scale cannot be measured there (a centre off the sky of its projection).
-pub fn beam_px(map: &Map, region: Option<(usize, usize, usize, usize)>) -> Option<(f64, f64, f64)> {
+/// The map's WCS for the figure of the shown part, with its nominal pixel measured there;
+/// None without a WCS or where the pixel's size cannot be measured at the shown centre.
+fn figure_sky(map: &Map, region: Option<(usize, usize, usize, usize)>) -> Option<FigureSky<'_>> {
     let (_, p) = shown_centre(map, region);
-    let (b, p) = (map.beam?, p.filter(|p| p.is_finite() && *p > 0.0)?);
-    Some((b.major_deg / p, b.minor_deg / p, b.pa_deg))
+    let (sx, sy) = p?;
+    Some(FigureSky {
+        wcs: map.wcs.as_ref()?,
+        unit_deg: (sx * sy).sqrt(),
+    })
 }
 
-/// The scale bar: its length in pixels and its text, a round number of parsecs near a fifth
-/// of the shown width (needs a distance and a WCS).
+/// The beam as the figure takes it ([`render::Overlay::beam`]): major and minor FWHM in units
+/// of the geometric mean of the pixel's sides at the centre of the shown part, and the PA
+/// east of north; none where that cannot be measured (a centre off the sky of its projection).
+fn figure_beam(map: &Map, sky: Option<&FigureSky>) -> Option<(f64, f64, f64)> {
+    let (b, u) = (map.beam?, sky?.unit_deg);
+    Some((b.major_deg / u, b.minor_deg / u, b.pa_deg))
+}
+
+/// The beam's ellipse on the pixel grid at the centre of the shown part, as the figure draws
+/// it: on pixels of unequal sides on the sky it keeps its shape on the sky (an 18" beam on
+/// 4" x 8" pixels is 4.5 pixels wide and 2.25 tall). None without a beam, or where the pixel
+/// scale cannot be measured there (a centre off the sky of its projection).
+pub fn beam_px(
+    map: &Map,
+    region: Option<(usize, usize, usize, usize)>,
+) -> Option<render::BeamGeometry> {
+    let sky = figure_sky(map, region)?;
+    let (maj, min, pa) = figure_beam(map, Some(&sky))?;
+    let (c, _) = shown_centre(map, region);
+    Some(render::beam_geometry(maj, min, pa, Some(&sky), c))
+}
+
+/// The scale bar: its length in pixels along x and its text, a round number of parsecs near a
+/// fifth of the shown width (needs a distance and a WCS). The length is measured with the
+/// pixel's side along x at the centre of the shown part, so it is right on maps of pixels
+/// that are not square.
 pub fn scale_bar(
     map: &Map,
     distance_pc: Option<f64>,
     region: Option<(usize, usize, usize, usize)>,
 ) -> Option<(f64, String)> {
     let (_, p) = shown_centre(map, region);
-    let (d, p) = (distance_pc?, p.filter(|p| p.is_finite() && *p > 0.0)?);
-    let pc_per_px = d * p.to_radians();
+    let (d, (sx, _)) = (distance_pc?, p?);
+    let pc_per_px = d * sx.to_radians();
     let shown_width_px = region.map(|r| r.2).unwrap_or(map.nx()) as f64;
     let len = scale_bar_length(shown_width_px * pc_per_px);
     Some((len / pc_per_px, format!("{len} pc")))
+}
+
+/// A `--region` given as `X,Y,SIZE`: a pixel centre and a size in pixels (256,192,100px), or a
+/// sky centre in degrees in the map's own frame and an angular size (152.81,11.40,5arcmin),
+/// square on the sky (each side in pixels of that axis's own length at the centre, so on
+/// pixels of unequal sides the box has unequal sides in pixels). Gives (x0, y0, width,
+/// height) in pixels, clipped to the map, and, for a region reaching past the map's edge, a
+/// sentence saying what part of it is drawn.
+pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<String>)> {
+    let bad = || {
+        Error::usage(format!(
+            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px or 152.81,11.40,5arcmin."
+        ))
+    };
+    let parts: Vec<&str> = text.split(',').collect();
+    if parts.len() != 3 {
+        return Err(bad());
+    }
+    let a: f64 = parts[0].trim().parse().map_err(|_| bad())?;
+    let b: f64 = parts[1].trim().parse().map_err(|_| bad())?;
+    if !a.is_finite() || !b.is_finite() {
+        return Err(bad());
+    }
+    let size = units::parse_quantity(
+        parts[2],
+        &[
+            units::Dimension::Pixels,
+            units::Dimension::Pure,
+            units::Dimension::Angle,
+        ],
+        "--region",
+    )
+    .map_err(Error::usage)?;
+    let (cx, cy, half) = if size.dim == units::Dimension::Angle {
+        let w = map.wcs.as_ref().ok_or_else(|| Error::usage("--region with a sky centre needs a map with a celestial WCS; give the centre and size in pixels."))?;
+        let frame = match w.frame() {
+            SkyFrame::Galactic => "galactic l,b",
+            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. } => "equatorial RA,Dec",
+            _ => "its own longitude,latitude",
+        };
+        let (x, y) = w.sky_to_pixel(a, b).ok_or_else(|| {
+            Error::usage(format!(
+                "--region centre {a},{b} is outside the map's projection; a sky centre is read in degrees in the map's own frame ({frame})."
+            ))
+        })?;
+        if !(x > -0.5 && y > -0.5 && x < map.nx() as f64 - 0.5 && y < map.ny() as f64 - 0.5) {
+            return Err(Error::usage(format!(
+                "--region centre {a},{b} falls off the map (at pixel {x:.0},{y:.0}); a sky centre is read in degrees in the map's own frame ({frame})."
+            )));
+        }
+        // Square on the sky: each side in pixels of that axis's own length there.
+        let (sx, sy) = w.pixel_scale(x, y);
+        let deg = size.si.to_degrees();
+        (x, y, (deg / sx / 2.0, deg / sy / 2.0))
+    } else {
+        (a, b, (size.si / 2.0, size.si / 2.0))
+    };
+    let (nx, ny) = (map.nx() as f64, map.ny() as f64);
+    // The size in whole pixels first, then its place: a size of a whole number of pixels
+    // stays that size whatever the rounding of its edges.
+    let (w, h) = ((2.0 * half.0).round(), (2.0 * half.1).round());
+    let (ax0, ay0) = ((cx - w / 2.0).round(), (cy - h / 2.0).round());
+    let (ax1, ay1) = (ax0 + w, ay0 + h);
+    let (x0, y0, x1, y1) = (ax0.max(0.0), ay0.max(0.0), ax1.min(nx), ay1.min(ny));
+    if !(x1 - x0 >= 4.0 && y1 - y0 >= 4.0) {
+        return Err(Error::usage(format!(
+            "--region '{text}' leaves less than 4 pixels of the map to draw; centre it on the map and give a larger size."
+        )));
+    }
+    let note = (x0 > ax0 || y0 > ay0 || x1 < ax1 || y1 < ay1).then(|| {
+        format!(
+            "--region '{text}' reaches past the map's edge, so only its part on the map is drawn: {} x {} of the {} x {} pixels asked for (x {} to {}, y {} to {}, zero-based)",
+            x1 - x0,
+            y1 - y0,
+            ax1 - ax0,
+            ay1 - ay0,
+            x0,
+            x1 - 1.0,
+            y0,
+            y1 - 1.0
+        )
+    });
+    Ok((
+        (
+            x0 as usize,
+            y0 as usize,
+            (x1 - x0) as usize,
+            (y1 - y0) as usize,
+        ),
+        note,
+    ))
 }
 
 /// Checks that the map figure of `map` fits the width of `style` (room for
@@ -248,8 +397,14 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             description: d.to_string(),
         })
         .collect();
-    let sky: Option<&dyn SkyAxes> = map.wcs.as_ref().map(|w| w as &dyn SkyAxes);
-    let beam = beam_px(map, style.region);
+    let fsky = figure_sky(map, style.region);
+    // Without a measurable pixel at the shown centre, the sky axes are still drawn (the
+    // ticks find their own places), only the beam is not.
+    let sky: Option<&dyn SkyAxes> = match &fsky {
+        Some(f) => Some(f as &dyn SkyAxes),
+        None => map.wcs.as_ref().map(|w| w as &dyn SkyAxes),
+    };
+    let beam = figure_beam(map, fsky.as_ref());
     let scale_bar = scale_bar(map, input.distance_pc, style.region);
     let overlay = render::Overlay {
         map: map.data.view(),

@@ -616,7 +616,8 @@ struct StyleArgs {
     #[arg(long)]
     branches: bool,
     /// Draw only a square part: `X,Y,SIZE` with a pixel centre and a size in px (256,192,100px)
-    /// or a sky centre in degrees and an angular size (152.81,11.40,5arcmin).
+    /// or a sky centre in degrees and an angular size (152.81,11.40,5arcmin), square on the
+    /// sky.
     #[arg(long, value_name = "X,Y,SIZE", allow_hyphen_values = true)]
     region: Option<String>,
 }
@@ -693,11 +694,17 @@ impl StyleArgs {
                 self.dpi
             )));
         }
-        let region = self
-            .region
-            .as_deref()
-            .map(|r| parse_region(r, map))
-            .transpose()?;
+        let region = match self.region.as_deref() {
+            Some(r) => {
+                let (region, clipped) = cairn::draw::parse_region(r, map)?;
+                // A region reaching past the map's edge is drawn as far as the map goes.
+                if let Some(note) = clipped {
+                    errln!("warning: {note}");
+                }
+                Some(region)
+            }
+            None => None,
+        };
         let style = Style {
             stretch,
             limits,
@@ -714,70 +721,6 @@ impl StyleArgs {
         }
         Ok(style)
     }
-}
-
-/// `X,Y,SIZE` to (x0, y0, width, height) in pixels, clipped to the map.
-fn parse_region(text: &str, map: &map::Map) -> Result<(usize, usize, usize, usize)> {
-    let bad = || {
-        Error::usage(format!(
-            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px or 152.81,11.40,5arcmin."
-        ))
-    };
-    let parts: Vec<&str> = text.split(',').collect();
-    if parts.len() != 3 {
-        return Err(bad());
-    }
-    let a: f64 = parts[0].trim().parse().map_err(|_| bad())?;
-    let b: f64 = parts[1].trim().parse().map_err(|_| bad())?;
-    if !a.is_finite() || !b.is_finite() {
-        return Err(bad());
-    }
-    let size = units::parse_quantity(
-        parts[2],
-        &[Dimension::Pixels, Dimension::Pure, Dimension::Angle],
-        "--region",
-    )
-    .map_err(Error::usage)?;
-    let (cx, cy, half) = if size.dim == Dimension::Angle {
-        let w = map.wcs.as_ref().ok_or_else(|| Error::usage("--region with a sky centre needs a map with a celestial WCS; give the centre and size in pixels."))?;
-        let frame = match w.frame() {
-            cairn::wcs::SkyFrame::Galactic => "galactic l,b",
-            cairn::wcs::SkyFrame::Icrs
-            | cairn::wcs::SkyFrame::Fk5 { .. }
-            | cairn::wcs::SkyFrame::Fk4 { .. } => "equatorial RA,Dec",
-            _ => "its own longitude,latitude",
-        };
-        let (x, y) = w.sky_to_pixel(a, b).ok_or_else(|| {
-            Error::usage(format!(
-                "--region centre {a},{b} is outside the map's projection; a sky centre is read in degrees in the map's own frame ({frame})."
-            ))
-        })?;
-        if !(x > -0.5 && y > -0.5 && x < map.nx() as f64 - 0.5 && y < map.ny() as f64 - 0.5) {
-            return Err(Error::usage(format!(
-                "--region centre {a},{b} falls off the map (at pixel {x:.0},{y:.0}); a sky centre is read in degrees in the map's own frame ({frame})."
-            )));
-        }
-        let (sx, sy) = w.pixel_scale(x, y);
-        (x, y, size.si.to_degrees() / (sx * sy).sqrt() / 2.0)
-    } else {
-        (a, b, size.si / 2.0)
-    };
-    let (nx, ny) = (map.nx() as f64, map.ny() as f64);
-    let x0 = (cx - half).round().max(0.0);
-    let y0 = (cy - half).round().max(0.0);
-    let x1 = (cx + half).round().min(nx);
-    let y1 = (cy + half).round().min(ny);
-    if !(x1 - x0 >= 4.0 && y1 - y0 >= 4.0) {
-        return Err(Error::usage(format!(
-            "--region '{text}' leaves less than 4 pixels of the map to draw; centre it on the map and give a larger size."
-        )));
-    }
-    Ok((
-        x0 as usize,
-        y0 as usize,
-        (x1 - x0) as usize,
-        (y1 - y0) as usize,
-    ))
 }
 
 #[derive(Args)]

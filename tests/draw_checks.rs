@@ -92,7 +92,9 @@ fn beam_and_scale_bar_follow_the_header() {
         h.get_f64("BMIN").unwrap(),
         h.get_f64("CDELT2").unwrap().abs(),
     );
-    let (a, b, _) = cairn::draw::beam_px(&m, None).unwrap();
+    let (a, b) = cairn::draw::beam_px(&m, None).unwrap().half_extent();
+    // BPA 0: the major axis along y, the minor along x.
+    let (b, a) = (2.0 * a, 2.0 * b);
     assert!(
         (a - bmaj / cdelt).abs() < 1e-6 && (b - bmin / cdelt).abs() < 1e-6,
         "beam {a} x {b} px"
@@ -206,4 +208,133 @@ fn segment_figures_are_well_formed_and_redrawn_identically() {
         .unwrap();
     assert_eq!(out2.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out2.stderr).contains("SHA-256 differs"));
+}
+
+/// An invented map of 4" x 8" pixels (the reviewer's `nonsq` map: 240 x 120 pixels, TAN at
+/// RA 201.2, Dec 33.4, an 18" beam), written to `dir`.
+fn non_square_map(dir: &std::path::Path) -> cairn::map::Map {
+    use cairn::header::Value;
+    let mut h = Header::new();
+    let mut set = |k: &str, v: Value| h.set(k, v, "");
+    set("CTYPE1", Value::Str("RA---TAN".into()));
+    set("CTYPE2", Value::Str("DEC--TAN".into()));
+    set("CRPIX1", Value::Float(120.5));
+    set("CRPIX2", Value::Float(60.5));
+    set("CRVAL1", Value::Float(201.2));
+    set("CRVAL2", Value::Float(33.4));
+    set("CDELT1", Value::Float(-4.0 / 3600.0));
+    set("CDELT2", Value::Float(8.0 / 3600.0));
+    set("RADESYS", Value::Str("ICRS".into()));
+    set("BUNIT", Value::Str("cm-2".into()));
+    set("BMAJ", Value::Float(18.0 / 3600.0));
+    set("BMIN", Value::Float(18.0 / 3600.0));
+    set("BPA", Value::Float(0.0));
+    let data = ndarray::Array2::from_shape_fn((120, 240), |(y, x)| {
+        (1e21 * (1.0 + ((x as f64 - 100.0).powi(2) + (y as f64 - 50.0).powi(2)) / -400.0).exp())
+            as f32
+    });
+    let p = dir.join("nonsq.fits");
+    cairn::fits_write::write_image_f32(&p, data.view(), &h, false).unwrap();
+    cairn::map::load(&p, &Default::default()).unwrap()
+}
+
+/// The points of the first sub-path of an SVG path's data.
+fn svg_points(d: &str) -> Vec<(f64, f64)> {
+    let n: Vec<f64> = d
+        .split(|c: char| c.is_ascii_alphabetic() || c == ' ' || c == ',')
+        .filter(|s| !s.is_empty())
+        .map(|s| s.parse().unwrap())
+        .collect();
+    n.chunks_exact(2).map(|p| (p[0], p[1])).collect()
+}
+
+/// On pixels of 4" x 8" the beam is the 18" beam's ellipse on the pixel grid, the scale bar
+/// is measured along x, and the panel is drawn at equal scales on the sky. Reference numbers:
+/// astropy 8.0.2 `wcs.utils.proj_plane_pixel_scales` on this header gives 4" and 8" (so the
+/// beam is 18/4 = 4.5 pixels wide and 18/8 = 2.25 tall), and astropy units give
+/// (0.2 pc / 300 pc) rad = 137.50987" (34.377 pixels of 4").
+#[test]
+fn non_square_pixels_give_the_beam_scale_bar_and_panel_their_sky_sizes() {
+    let dir = tempfile::tempdir().unwrap();
+    let m = non_square_map(dir.path());
+    let (hx, hy) = cairn::draw::beam_px(&m, None).unwrap().half_extent();
+    assert!(
+        (2.0 * hx - 4.5).abs() < 1e-3 && (2.0 * hy - 2.25).abs() < 1e-3,
+        "beam {} x {} px",
+        2.0 * hx,
+        2.0 * hy
+    );
+    // An 8' region is 480"/4" = 120 pixels wide and 480"/8" = 60 tall, and lies inside.
+    let ((_, _, w, h), note) = cairn::draw::parse_region("201.2,33.4,8arcmin", &m).unwrap();
+    assert_eq!((w, h, note), (120, 60, None));
+    let (len_px, text) = cairn::draw::scale_bar(&m, Some(300.0), None).unwrap();
+    assert_eq!(text, "0.2 pc");
+    assert!(
+        (len_px - 137.50987 / 4.0).abs() < 1e-3,
+        "scale bar {len_px} px"
+    );
+    // The figure: the map is 960" x 960" on the sky, so its panel is square, and drawn at
+    // equal scales on the sky the round beam is round again: 4.5 / 240 of the panel's width
+    // and 2.25 / 120 of its height. The bar is 34.377 / 240 of the panel's width.
+    let labels = ndarray::Array2::from_elem(m.data.dim(), -1i32);
+    let input = cairn::draw::FigureInput {
+        map: &m,
+        labels: labels.view(),
+        structures: Vec::new(),
+        distance_pc: Some(300.0),
+        title: None,
+    };
+    let style = cairn::render::Style {
+        width_px: 1200,
+        ..Default::default()
+    };
+    let figs = cairn::draw::figures(&input, &style).unwrap();
+    assert_eq!(figs.overlay.y_stretch, None);
+    let doc = roxmltree::Document::parse(&figs.overlay.svg).unwrap();
+    let path = |class: &str| {
+        let n = doc
+            .descendants()
+            .find(|n| n.attribute("class") == Some(class))
+            .unwrap_or_else(|| panic!("no {class} drawn"));
+        svg_points(n.attribute("d").unwrap())
+    };
+    let extent = |p: &[(f64, f64)]| {
+        let (xs, ys): (Vec<f64>, Vec<f64>) = p.iter().copied().unzip();
+        let span = |v: &[f64]| {
+            v.iter().copied().fold(f64::MIN, f64::max) - v.iter().copied().fold(f64::MAX, f64::min)
+        };
+        (span(&xs), span(&ys))
+    };
+    let (fw, fh) = extent(&path("frame"));
+    assert!((fw - fh).abs() <= 1.0, "panel {fw} x {fh}");
+    let (bw, bh) = extent(&path("beam"));
+    assert!(
+        (bw / fw - 4.5 / 240.0).abs() < 0.5 / fw && (bh / fh - 2.25 / 120.0).abs() < 0.5 / fh,
+        "beam drawn {bw} x {bh} in a panel {fw} x {fh}"
+    );
+    let bar = path("scale-bar");
+    let drawn = (bar[1].0 - bar[0].0).abs();
+    assert!(
+        (drawn / fw - 137.50987 / 4.0 / 240.0).abs() < 0.5 / fw,
+        "scale bar drawn {drawn} of a panel {fw} wide"
+    );
+}
+
+/// A region reaching past the map's edge is clipped to the map and says what is drawn; one
+/// inside it says nothing. Common practice (the arithmetic of the box, by hand).
+#[test]
+fn a_region_past_the_edge_says_what_is_drawn() {
+    let dir = tempfile::tempdir().unwrap();
+    let m = non_square_map(dir.path());
+    // Centre (0, 0), 20 pixels: x and y from -10 to 9 asked for, 0 to 9 on the map.
+    let (r, note) = cairn::draw::parse_region("0,0,20px", &m).unwrap();
+    assert_eq!(r, (0, 0, 10, 10));
+    let note = note.expect("a note for a clipped region");
+    assert!(
+        note.contains("10 x 10 of the 20 x 20 pixels asked for")
+            && note.contains("x 0 to 9, y 0 to 9"),
+        "{note}"
+    );
+    let (r, note) = cairn::draw::parse_region("120,60,20px", &m).unwrap();
+    assert_eq!((r, note), ((110, 50, 20, 20), None));
 }

@@ -617,3 +617,34 @@ fn draw_states_the_true_narrowest_width_and_refuses_an_empty_range() {
         );
     }
 }
+
+/// `draw --region` reaching past the map's edge warns once on stderr what part is drawn.
+#[test]
+fn a_region_past_the_edge_is_said_once_on_stderr() {
+    let d = tempfile::tempdir().unwrap();
+    let run = demo_run(d.path(), "demo", &[]);
+    let args = [
+        "draw",
+        run.to_str().unwrap(),
+        "-o",
+        "figs",
+        "--region",
+        "0,0,100px",
+        "-q",
+    ];
+    let o = cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let lines: Vec<&str> = o
+        .stderr
+        .lines()
+        .filter(|l| l.contains("reaches past the map's edge"))
+        .collect();
+    assert_eq!(lines.len(), 1, "{}", o.stderr);
+    assert!(
+        lines[0].starts_with("warning: --region '0,0,100px'")
+            && lines[0].contains("50 x 50 of the 100 x 100 pixels asked for"),
+        "{}",
+        lines[0]
+    );
+    assert!(d.path().join("figs/overlay.png").is_file());
+}

@@ -14,7 +14,9 @@ use super::{
 };
 use ndarray::s;
 
-/// The beam ellipse: centre and semi-axis vectors, all in map pixels.
+/// The beam ellipse: centre and two conjugate semi-axis vectors, all in map pixels. They are
+/// the images on the pixel grid of the beam's semi-major and semi-minor axes on the sky: at
+/// right angles on square pixels, not necessarily on pixels of unequal sides.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct BeamGeometry {
     pub centre: (f64, f64),
@@ -38,11 +40,20 @@ impl BeamGeometry {
             })
             .collect()
     }
+    /// Half the ellipse's extent along x and along y, in map pixels.
+    pub fn half_extent(&self) -> (f64, f64) {
+        (
+            self.semi_major.0.hypot(self.semi_minor.0),
+            self.semi_major.1.hypot(self.semi_minor.1),
+        )
+    }
 }
 
-/// The beam of FWHM `major` x `minor` pixels at position angle `pa_deg` (east of north),
-/// centred at `at` (map pixels). North and east are taken from `sky` at that point when
-/// given; otherwise north is +y and east is -x.
+/// The beam of FWHM `major` x `minor` at position angle `pa_deg` (east of north), centred at
+/// `at` (map pixels). With `sky`, the FWHM are in units of [`SkyAxes::pixel_scale_deg`] and
+/// the ellipse is the beam's on the sky mapped onto the pixel grid at `at` (north and east and
+/// the pixel's size along each taken there), so it keeps its shape on the sky whatever the
+/// pixels' shape; without, the FWHM are in pixels, north is +y and east is -x.
 pub fn beam_geometry(
     major: f64,
     minor: f64,
@@ -50,6 +61,7 @@ pub fn beam_geometry(
     sky: Option<&dyn SkyAxes>,
     at: (f64, f64),
 ) -> BeamGeometry {
+    // The pixel offsets of one unit (a pixel, or the sky's nominal pixel) north and east.
     let mut north = (0.0, 1.0);
     let mut east = (-1.0, 0.0);
     if let Some(sky) = sky
@@ -57,16 +69,21 @@ pub fn beam_geometry(
     {
         let d = sky.pixel_scale_deg().abs().max(1e-9);
         let cosd = lat.to_radians().cos().max(1e-6);
-        let dir = |p: Option<(f64, f64)>| {
-            p.and_then(|(x, y)| {
-                let (dx, dy) = (x - at.0, y - at.1);
-                let n = dx.hypot(dy);
-                (n > 0.0).then(|| (dx / n, dy / n))
-            })
+        // Central differences of a step of one unit either way.
+        let dir = |p: Option<(f64, f64)>, q: Option<(f64, f64)>| {
+            let ((x1, y1), (x0, y0)) = (p?, q?);
+            let (dx, dy) = ((x1 - x0) / 2.0, (y1 - y0) / 2.0);
+            (dx.is_finite() && dy.is_finite() && dx.hypot(dy) > 0.0).then_some((dx, dy))
         };
         if let (Some(n), Some(e)) = (
-            dir(sky.sky_to_pixel(lon, lat + d)),
-            dir(sky.sky_to_pixel(lon + d / cosd, lat)),
+            dir(
+                sky.sky_to_pixel(lon, lat + d),
+                sky.sky_to_pixel(lon, lat - d),
+            ),
+            dir(
+                sky.sky_to_pixel(lon + d / cosd, lat),
+                sky.sky_to_pixel(lon - d / cosd, lat),
+            ),
         ) {
             north = n;
             east = e;
@@ -74,10 +91,9 @@ pub fn beam_geometry(
     }
     let pa = pa_deg.to_radians();
     let (c, s) = (pa.cos(), pa.sin());
-    let mut u = (c * north.0 + s * east.0, c * north.1 + s * east.1);
-    let n = u.0.hypot(u.1);
-    u = (u.0 / n, u.1 / n);
-    let v = (-u.1, u.0);
+    // The major axis points along PA, the minor along PA + 90 degrees, both on the sky.
+    let u = (c * north.0 + s * east.0, c * north.1 + s * east.1);
+    let v = (-s * north.0 + c * east.0, -s * north.1 + c * east.1);
     BeamGeometry {
         centre: at,
         semi_major: (u.0 * major / 2.0, u.1 * major / 2.0),
@@ -98,7 +114,10 @@ pub struct Layout {
     pub kx: f64,
     pub ky: f64,
     /// For a map too tall or too wide to be drawn at equal scales in a figure of bounded size
-    /// (see [`PANEL_MAX_HEIGHT`] and [`PANEL_MAX_ASPECT`]): `ky / kx`; None at equal scales.
+    /// (see [`PANEL_MAX_HEIGHT`] and [`PANEL_MAX_ASPECT`]): how many times larger the scale
+    /// along y is than along x on the sky (`ky / kx` for square pixels); None at equal scales.
+    /// Pixels of unequal sides on the sky are drawn at equal scales on the sky, so `ky / kx`
+    /// is then the ratio of their sides.
     pub y_stretch: Option<f64>,
     /// Data values at the ends of the colour scale.
     pub limits: (f64, f64),
@@ -259,7 +278,8 @@ pub const PANEL_MAX_HEIGHT: f64 = 2.0;
 pub const PANEL_MAX_ASPECT: f64 = 16.0;
 
 /// The map panel's width and height in whole output pixels, for `avail` pixels of width and a
-/// region of `rw` x `rh` map pixels.
+/// region of `rw` x `rh` map pixels, where `rh` counts pixels of the length on the sky of a
+/// pixel's step along x (so pixels twice as tall on the sky as wide count twice).
 ///
 /// Ordinary maps fill the width at equal scales along x and y. The figure's width is fixed, so
 /// only its height follows the map, and it is bounded either way:
@@ -270,8 +290,8 @@ pub const PANEL_MAX_ASPECT: f64 = 16.0;
 ///   1/[`PANEL_MAX_ASPECT`] of it in height, drawn at a larger scale along y.
 ///
 /// The third value is false when the scales differ by more than the rounding to whole pixels.
-fn panel_size(avail: f64, rw: usize, rh: usize) -> (f64, f64, bool) {
-    let (rw, rh) = (rw as f64, rh as f64);
+fn panel_size(avail: f64, rw: usize, rh: f64) -> (f64, f64, bool) {
+    let rw = rw as f64;
     let natural = (avail * rh / rw).round().max(1.0);
     let max_h = (PANEL_MAX_HEIGHT * avail).floor();
     let min_h = (avail / PANEL_MAX_ASPECT).ceil().max(1.0);
@@ -287,6 +307,22 @@ fn panel_size(avail: f64, rw: usize, rh: usize) -> (f64, f64, bool) {
     }
 }
 
+/// The length on the sky of a pixel's step along y over that along x, at the centre of
+/// `region`; 1 without sky axes, where they cannot say, or where the two differ by less than
+/// one part in a thousand (a projection's own small distortion, not worth a figure of another
+/// shape).
+fn pixel_aspect(sky: Option<&dyn SkyAxes>, region: Region) -> f64 {
+    let (x0, y0, rw, rh) = region;
+    let c = (
+        x0 as f64 + (rw as f64 - 1.0) / 2.0,
+        y0 as f64 + (rh as f64 - 1.0) / 2.0,
+    );
+    match sky.and_then(|s| s.pixel_scales_deg(c.0, c.1)) {
+        Some((sx, sy)) if ((sy / sx) - 1.0).abs() > 1e-3 => sy / sx,
+        _ => 1.0,
+    }
+}
+
 /// Computes the layout of a map figure (including the display limits of the colour scale).
 pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let region = validate(o, s)?;
@@ -298,6 +334,9 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
 
     let view = o.map.slice(s![y0..y0 + rh, x0..x0 + rw]);
     let limits = raster::display_limits(view, s.limits)?;
+    // Pixels whose sides differ on the sky: the panel is drawn at equal scales on the sky,
+    // from the pixel's lengths along x and y at the region's centre.
+    let aspect = pixel_aspect(o.sky, region);
     // Right margin: colour bar, its labels and the unit label.
     let cb_ticks = colorbar_ticks(limits.0, limits.1, s.stretch);
     let cb_lab_w = cb_ticks
@@ -332,7 +371,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             if avail < MIN_PANEL {
                 return Err((left + right + MIN_PANEL).ceil());
             }
-            let (fw, fh, equal) = panel_size(avail, rw, rh);
+            let (fw, fh, equal) = panel_size(avail, rw, rh as f64 * aspect);
             let kx = fw / rw as f64;
             let ky = fh / rh as f64;
             // Check overlaps along each labelled edge.
@@ -404,7 +443,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         frame,
         kx,
         ky,
-        y_stretch: (!equal).then_some(ky / kx),
+        y_stretch: (!equal).then_some(ky / kx / aspect),
         limits,
         ticks,
         beam: None,
@@ -419,8 +458,8 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let inset = 0.6 * fs;
     if let Some((maj, min, pa)) = o.beam {
         let probe = beam_geometry(maj, min, pa, o.sky, lay.figure_to_map(left, frame.1 + fh));
-        let ex = (probe.semi_major.0 * kx).hypot(probe.semi_minor.0 * kx);
-        let ey = (probe.semi_major.1 * ky).hypot(probe.semi_minor.1 * ky);
+        let (ex, ey) = probe.half_extent();
+        let (ex, ey) = (ex * kx, ey * ky);
         let c = lay.figure_to_map(left + inset + ex, frame.1 + fh - inset - ey);
         lay.beam = Some(beam_geometry(maj, min, pa, o.sky, c));
     }
@@ -715,7 +754,14 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     // hides the footprint's shape under many small rings. The label map keeps every pixel.
     let beam_px = o
         .beam
-        .map(|(maj, min, _)| std::f64::consts::PI / (4.0 * std::f64::consts::LN_2) * maj * min)
+        .map(|(maj, min, pa)| {
+            // The area of the ellipse drawn on the pixel grid (the FWHM may be in units of
+            // the sky's nominal pixel): pi / (4 ln 2) FWHM_major FWHM_minor, common practice.
+            let c = (x0 as f64 + rw as f64 / 2.0, y0 as f64 + rh as f64 / 2.0);
+            let b = beam_geometry(maj, min, pa, o.sky, c);
+            let det = (b.semi_major.0 * b.semi_minor.1 - b.semi_major.1 * b.semi_minor.0).abs();
+            std::f64::consts::PI / std::f64::consts::LN_2 * det
+        })
         .filter(|a| a.is_finite() && *a > 0.0);
     // The rings of a footprint as drawn, in figure pixels.
     let drawn_rings = |rings: &[Vec<(f64, f64)>]| -> Vec<Vec<(f64, f64)>> {

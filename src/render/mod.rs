@@ -57,6 +57,22 @@ pub trait SkyAxes {
     fn equatorial(&self) -> bool;
     /// Local pixel size in degrees.
     fn pixel_scale_deg(&self) -> f64;
+    /// The angular length in degrees of one pixel step along x and along y at (x, y): the two
+    /// differ on maps of pixels that are not square on the sky. By default the great-circle
+    /// lengths of steps of half a pixel either side of (x, y); None where those leave the
+    /// projection.
+    fn pixel_scales_deg(&self, x: f64, y: f64) -> Option<(f64, f64)> {
+        let step = |dx: f64, dy: f64| -> Option<f64> {
+            let (l0, b0) = self.pixel_to_sky(x - dx, y - dy)?;
+            let (l1, b1) = self.pixel_to_sky(x + dx, y + dy)?;
+            let (b0, b1) = (b0.to_radians(), b1.to_radians());
+            let h = ((b1 - b0) / 2.0).sin().powi(2)
+                + b0.cos() * b1.cos() * ((l1 - l0).to_radians() / 2.0).sin().powi(2);
+            Some(2.0 * h.sqrt().min(1.0).asin().to_degrees())
+        };
+        let (sx, sy) = (step(0.5, 0.0)?, step(0.0, 0.5)?);
+        (sx.is_finite() && sy.is_finite() && sx > 0.0 && sy > 0.0).then_some((sx, sy))
+    }
 }
 
 /// How one leaf is drawn.
@@ -102,9 +118,12 @@ pub struct Overlay<'a> {
     pub states: Vec<StateLegend>,
     /// Sky coordinates; None gives pixel axes.
     pub sky: Option<&'a dyn SkyAxes>,
-    /// Beam: major and minor FWHM in pixels, position angle in degrees east of north.
+    /// Beam: major and minor FWHM and position angle in degrees east of north. Without sky
+    /// axes the FWHM are in pixels; with them, in units of [`SkyAxes::pixel_scale_deg`] (the
+    /// pixel, for square pixels), and the ellipse drawn is the one the beam makes on the
+    /// pixel grid where it is drawn, so pixels of unequal sides give it its true shape.
     pub beam: Option<(f64, f64, f64)>,
-    /// Scale bar: length in pixels and its text, e.g. "0.1 pc".
+    /// Scale bar: length in pixels along x and its text, e.g. "0.1 pc".
     pub scale_bar: Option<(f64, String)>,
     pub title: Option<String>,
 }
