@@ -70,13 +70,73 @@ impl SkyAxes for FigureSky<'_> {
     }
 }
 
-/// The states in legend order.
+/// The states in legend order, with their words in the legend (in the figures' markup:
+/// `_{...}` lowers the text). The unknown state's words are the run's own reason
+/// ([`unknown_reason`]).
 pub const STATES: [(&str, &str); 4] = [
-    ("bound", "alpha_BE <= 1 (or alpha_vir <= 2)"),
+    (
+        "bound",
+        "\u{3b1}_{BE} \u{2264} 1 (or \u{3b1}_{vir} \u{2264} 2)",
+    ),
     ("marginal", "within a factor 2 of bound"),
     ("unbound", "further from bound"),
     ("unknown", "no distance or temperature"),
 ];
+
+/// Why the leaves of a run on `map` at `distance_pc` have no state, as far as the map and the
+/// distance tell: the first of the map's unit having no conversion to mass, no sky
+/// coordinates, no distance, no wavelength for a dust-emission map; else the stability ratio
+/// needs what neither gives (a temperature, and a positive mass).
+pub fn unknown_reason(map: &Map, distance_pc: Option<f64>) -> String {
+    match map.unit {
+        None | Some(PixelUnit::Other) => {
+            return if map.unit_text.is_empty() {
+                "the map is read with no unit, so no masses".into()
+            } else {
+                format!(
+                    "the map's unit ({}) has no conversion to mass",
+                    map.unit_text
+                )
+            };
+        }
+        Some(u) if u.is_emission() && map.wavelength_m.is_none() => {
+            return "the map's wavelength is unknown, so no masses".into();
+        }
+        _ => {}
+    }
+    if map.wcs.is_none() {
+        "the map has no sky coordinates, so no masses".into()
+    } else if distance_pc.is_none() {
+        "no distance, so no masses".into()
+    } else {
+        "no stability ratio (needs a temperature and a positive mass)".into()
+    }
+}
+
+/// A unit's text with its negative powers raised (`cm-2` becomes `cm^-2`), as the figures'
+/// markup writes exponents.
+pub fn unit_markup(text: &str) -> String {
+    let chars: Vec<char> = text.chars().collect();
+    let mut out = String::with_capacity(text.len() + 4);
+    for (i, &c) in chars.iter().enumerate() {
+        // A unit's letters (not a number's exponent, as in 1e-3) followed by -digits.
+        let letters = chars[..i]
+            .iter()
+            .rev()
+            .take_while(|l| l.is_ascii_alphabetic())
+            .count();
+        let after_number = i > letters && chars[i - letters - 1].is_ascii_digit();
+        if c == '-'
+            && letters > 0
+            && !after_number
+            && chars.get(i + 1).is_some_and(|d| d.is_ascii_digit())
+        {
+            out.push('^');
+        }
+        out.push(c);
+    }
+    out
+}
 
 fn state_index(s: Option<&str>) -> usize {
     match s {
@@ -138,7 +198,7 @@ pub fn scale_bar_length(width_pc: f64) -> f64 {
 fn unit_label(map: &Map) -> String {
     match map.unit {
         Some(PixelUnit::ColumnDensity { .. }) => {
-            format!("N(H_2) [{}]", map.unit_text.replace("cm-2", "cm^-2"))
+            format!("N(H_2) [{}]", unit_markup(&map.unit_text))
         }
         Some(PixelUnit::Extinction {
             band: units::ExtinctionBand::V,
@@ -392,9 +452,13 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
         .collect();
     let states: Vec<StateLegend> = STATES
         .iter()
-        .map(|(n, d)| StateLegend {
+        .map(|&(n, d)| StateLegend {
             name: n.to_string(),
-            description: d.to_string(),
+            description: if n == "unknown" {
+                unknown_reason(map, input.distance_pc)
+            } else {
+                d.to_string()
+            },
         })
         .collect();
     let fsky = figure_sky(map, style.region);
@@ -434,7 +498,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             state: s.is_leaf.then(|| state_index(s.state.as_deref())),
         })
         .collect();
-    let level = format!("level [{}]", map.unit_text);
+    let level = format!("level [{}]", unit_markup(&map.unit_text));
     let tree = if nodes.is_empty() {
         None
     } else {
@@ -896,5 +960,15 @@ mod tests {
         assert_eq!(scale_bar_length(2.6), 0.5);
         assert_eq!(scale_bar_length(0.6), 0.1);
         assert_eq!(scale_bar_length(12.0), 2.0);
+    }
+
+    /// FITS units write negative powers as `-2` after the unit (FITS 4.0 section 4.3.2);
+    /// only those are raised, so `H2` in a name keeps its digit on the line.
+    #[test]
+    fn unit_powers_are_raised() {
+        assert_eq!(unit_markup("cm-2"), "cm^-2");
+        assert_eq!(unit_markup("K km s-1"), "K km s^-1");
+        assert_eq!(unit_markup("MJy/sr"), "MJy/sr");
+        assert_eq!(unit_markup("N(H2) 1e-3"), "N(H2) 1e-3");
     }
 }

@@ -648,3 +648,101 @@ fn a_region_past_the_edge_is_said_once_on_stderr() {
     );
     assert!(d.path().join("figs/overlay.png").is_file());
 }
+
+/// The legend entries of a figure's SVG: the readable text of each legend line that starts
+/// with a state's name or the branches' entry.
+fn legend_entries(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter_map(|n| n.attribute("aria-label"))
+        .filter(|l| {
+            ["bound:", "marginal:", "unbound:", "unknown:", "branch:"]
+                .iter()
+                .any(|k| l.starts_with(k))
+        })
+        .map(str::to_string)
+        .collect()
+}
+
+/// The states of the leaves in a run's catalogue ("unknown" for all of them in a catalogue
+/// without a state column, as `draw` reads it).
+fn leaf_states(run: &Path) -> std::collections::BTreeSet<String> {
+    let text = std::fs::read_to_string(run.join("structures.csv")).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |k: &str| head.iter().position(|h| *h == k);
+    let (kind, state) = (col("kind").unwrap(), col("state"));
+    lines
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|f| f[kind] == "leaf")
+        .map(|f| state.map_or("unknown", |s| f[s]).to_string())
+        .collect()
+}
+
+/// The legend lists the states the run's leaves have and no other, with the bound state's
+/// symbols; with `--branches` it has an entry for the branch outlines; a run whose map is read
+/// without a unit says that is why its leaves have no state (not a missing distance or
+/// temperature); and the tree's level axis writes the unit's power as a superscript (a true
+/// minus sign, U+2212, in the readable text).
+#[test]
+fn the_legend_lists_the_states_present_and_why_a_state_is_unknown() {
+    let d = tempfile::tempdir().unwrap();
+    let run = demo_run(d.path(), "demo", &[]);
+    let states = leaf_states(&run);
+    let o = cairn(
+        &[
+            "draw",
+            run.to_str().unwrap(),
+            "-o",
+            "figs",
+            "--branches",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let svg = std::fs::read_to_string(d.path().join("figs/overlay.svg")).unwrap();
+    let entries = legend_entries(&svg);
+    let named: std::collections::BTreeSet<String> = entries
+        .iter()
+        .filter(|e| !e.starts_with("branch:"))
+        .map(|e| e.split(':').next().unwrap().to_string())
+        .collect();
+    assert_eq!(named, states, "{entries:?}");
+    assert!(
+        svg.contains("class=\"branch\"")
+            && entries.iter().any(|e| e.starts_with("branch: outline")),
+        "{entries:?}"
+    );
+    if states.contains("bound") {
+        assert!(
+            entries
+                .iter()
+                .any(|e| e.starts_with("bound: \u{3b1}BE \u{2264} 1")),
+            "{entries:?}"
+        );
+    }
+    let tree = std::fs::read_to_string(d.path().join("figs/tree.svg")).unwrap();
+    let tree_entries = legend_entries(&tree);
+    assert_eq!(tree_entries.len(), states.len(), "{tree_entries:?}");
+    assert!(
+        tree.contains("aria-label=\"level [cm\u{2212}2]\""),
+        "no level [cm^-2] axis title"
+    );
+
+    let none = demo_run(d.path(), "none", &["--unit", "none"]);
+    assert_eq!(
+        leaf_states(&none),
+        ["unknown".to_string()].into_iter().collect()
+    );
+    let o = cairn(
+        &["draw", none.to_str().unwrap(), "-o", "figs-none", "-q"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let svg = std::fs::read_to_string(d.path().join("figs-none/overlay.svg")).unwrap();
+    assert_eq!(
+        legend_entries(&svg),
+        vec!["unknown: the map is read with no unit, so no masses".to_string()]
+    );
+}

@@ -429,7 +429,18 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let frame = (left, top.round(), fw, fh);
 
     // Legend rows below the axis title.
-    let rows = legend::rows(&o.states, fs, m.gap, w_total - 2.0 * m.pad);
+    // Only the states of the leaves drawn, and the branches' outlines when they are drawn.
+    let mut shown = vec![false; o.states.len()];
+    for l in &o.leaves {
+        if let Some(f) = shown.get_mut(l.state) {
+            *f = true;
+        }
+    }
+    let branches = s.show_branches
+        && o.branch_labels.is_some()
+        && o.branch_of.is_none_or(|of| of.iter().any(|&b| b >= 0));
+    let keys = legend::keys(&o.states, &shown, branches);
+    let rows = legend::rows(&keys, fs, m.gap, w_total - 2.0 * m.pad);
     let below = (m.tick + m.gap + 1.25 * lfs + m.gap + 1.3 * fs).max(spill + m.gap);
     let legend_top = frame.1 + fh + below + m.pad;
     let legend_h = rows.len() as f64 * 1.5 * fs;
@@ -827,10 +838,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         for (id, rings) in &traced {
             sc.items.push(Item::Path {
                 d: to_path(rings),
-                paints: vec![
-                    Paint::Stroke(Line::solid(Rgba(0, 0, 0, 110), 1.0 * m.pt)),
-                    Paint::Stroke(Line::solid(Rgba(255, 255, 255, 230), 0.45 * m.pt)),
-                ],
+                paints: legend::branch_paints(m.pt),
                 clip: true,
                 id: Some(format!("branch-{id}")),
                 class: "branch".into(),
@@ -1363,6 +1371,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         &legend::SampleLines {
             width: lw,
             casing: lw + 1.1 * m.pt,
+            pt: m.pt,
         },
     );
     Ok(sc)

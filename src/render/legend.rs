@@ -1,6 +1,7 @@
 //! The legend of states shared by the map figure and the tree diagram: each entry a short line
 //! sample in the state's colour and line style (over a dark casing) and its words, laid out in
-//! rows that wrap at the available width.
+//! rows that wrap at the available width. Only the states some structure of the figure has are
+//! listed; the map figure adds the branch outlines' entry when it draws them.
 
 use super::scene::{Line, Paint, PathData, Rgba, Scene};
 use super::text;
@@ -18,12 +19,38 @@ pub(crate) fn label(st: &StateLegend) -> String {
     }
 }
 
-/// One piece of a legend row: the state's index, its x offset from the row's start, its words,
+/// What a legend entry stands for: a state (its index, which gives its colour and line
+/// style), or the thin outlines of branches.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Key {
+    State(usize),
+    Branch,
+}
+
+/// The words of the branch outlines' entry.
+pub(crate) const BRANCH_WORDS: &str = "branch: outline of a top-level structure with children";
+
+/// The legend's entries: the states whose `shown` flag is set (a state beyond `shown` is not
+/// listed), in their order, then the branch outlines' entry when `branches` is set.
+pub(crate) fn keys(states: &[StateLegend], shown: &[bool], branches: bool) -> Vec<(Key, String)> {
+    let mut out: Vec<(Key, String)> = states
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| shown.get(*i).copied().unwrap_or(false))
+        .map(|(i, st)| (Key::State(i), label(st)))
+        .collect();
+    if branches {
+        out.push((Key::Branch, BRANCH_WORDS.to_string()));
+    }
+    out
+}
+
+/// One piece of a legend row: what it stands for, its x offset from the row's start, its words,
 /// and whether the line sample is drawn before them (false on the continued lines of an entry
 /// too long for one line).
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Entry {
-    pub state: usize,
+    pub state: Key,
     pub x: f64,
     pub text: String,
     pub sample: bool,
@@ -31,12 +58,11 @@ pub(crate) struct Entry {
 
 /// Entries in rows that wrap at the available width `avail`. An entry too long for a row of
 /// its own has its words wrapped onto further rows, indented under its first word.
-pub(crate) fn rows(states: &[StateLegend], fs: f64, gap: f64, avail: f64) -> Vec<Vec<Entry>> {
+pub(crate) fn rows(keys: &[(Key, String)], fs: f64, gap: f64, avail: f64) -> Vec<Vec<Entry>> {
     let sample = SAMPLE_FS * fs;
     let mut rows: Vec<Vec<Entry>> = Vec::new();
     let mut x = 0.0;
-    for (i, st) in states.iter().enumerate() {
-        let words = label(st);
+    for (i, words) in keys.iter().cloned() {
         let ew = sample + gap + text::width(&words, fs);
         if rows.is_empty() || (x > 0.0 && x + ew > avail) {
             rows.push(Vec::new());
@@ -87,6 +113,17 @@ pub(crate) struct SampleLines {
     pub width: f64,
     /// The dark casing under it.
     pub casing: f64,
+    /// A point in output pixels (the branch outline's widths are in points).
+    pub pt: f64,
+}
+
+/// How a branch outline is drawn, `pt` output pixels to the point: a thin white line over a
+/// faint dark casing.
+pub(crate) fn branch_paints(pt: f64) -> Vec<Paint> {
+    vec![
+        Paint::Stroke(Line::solid(Rgba(0, 0, 0, 110), 1.0 * pt)),
+        Paint::Stroke(Line::solid(Rgba(255, 255, 255, 230), 0.45 * pt)),
+    ]
 }
 
 /// Draws the legend rows with their first row's centre 0.75 font sizes below `top`.
@@ -104,27 +141,34 @@ pub(crate) fn draw(
     for (r, row) in rows.iter().enumerate() {
         let yc = top + (r as f64 + 0.5) * 1.5 * fs;
         for e in row {
-            let (i, x) = (e.state, left + e.x);
-            if e.sample {
-                let dash = state_dash(i, lines.width);
-                sc.path(
-                    PathData::line(x + 0.2 * fs, yc, x + sample - 0.2 * fs, yc),
-                    vec![
-                        Paint::Stroke(Line {
-                            color: Rgba(0, 0, 0, 200),
-                            width: lines.casing,
-                            dash: dash.clone(),
-                            round: true,
-                        }),
-                        Paint::Stroke(Line {
-                            color: state_colour(i),
-                            width: lines.width,
-                            dash,
-                            round: true,
-                        }),
-                    ],
-                    "legend-sample",
-                );
+            let x = left + e.x;
+            let line = PathData::line(x + 0.2 * fs, yc, x + sample - 0.2 * fs, yc);
+            match e.state {
+                Key::State(i) if e.sample => {
+                    let dash = state_dash(i, lines.width);
+                    sc.path(
+                        line,
+                        vec![
+                            Paint::Stroke(Line {
+                                color: Rgba(0, 0, 0, 200),
+                                width: lines.casing,
+                                dash: dash.clone(),
+                                round: true,
+                            }),
+                            Paint::Stroke(Line {
+                                color: state_colour(i),
+                                width: lines.width,
+                                dash,
+                                round: true,
+                            }),
+                        ],
+                        "legend-sample",
+                    );
+                }
+                Key::Branch if e.sample => {
+                    sc.path(line, branch_paints(lines.pt), "legend-sample branch");
+                }
+                _ => {}
             }
             sc.text(
                 &e.text,

@@ -203,7 +203,15 @@ pub(crate) fn scene(
     let ph = (0.55 * w_total).round();
 
     // Legend rows.
-    let rows = legend::rows(states, fs, gap, w_total - 2.0 * pad);
+    // Only the states some structure of the tree has.
+    let mut shown = vec![false; states.len()];
+    for n in nodes {
+        if let Some(f) = n.state.and_then(|i| shown.get_mut(i)) {
+            *f = true;
+        }
+    }
+    let keys = legend::keys(states, &shown, false);
+    let rows = legend::rows(&keys, fs, gap, w_total - 2.0 * pad);
     let legend_top = top + ph + pad;
     // Fewer than one figure pixel per leaf: the dense drawing, with a note under the legend.
     let dense = slot < 1.0;
@@ -468,6 +476,7 @@ pub(crate) fn scene(
         &legend::SampleLines {
             width: 0.9 * pt,
             casing: 1.7 * pt,
+            pt,
         },
     );
     Ok(sc)
