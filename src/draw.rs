@@ -372,6 +372,26 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
     ))
 }
 
+/// With `--stretch log`, a sentence saying so when the lower colour limit of the shown part
+/// is not positive, where a logarithm of the values cannot be taken and the figure uses
+/// log(1 + 1000 t) of the linear position t between the limits instead
+/// ([`render::Stretch::Log`]). None for other stretches, positive limits, or a region with no
+/// finite value (refused when drawing).
+pub fn log_stretch_note(map: &Map, style: &Style) -> Option<String> {
+    if style.stretch != render::Stretch::Log {
+        return None;
+    }
+    let (ny, nx) = map.data.dim();
+    let (x0, y0, w, h) = style.region.unwrap_or((0, 0, nx, ny));
+    let view = map.data.slice(ndarray::s![y0..y0 + h, x0..x0 + w]);
+    let (lo, hi) = render::raster::display_limits(view, style.limits).ok()?;
+    (lo <= 0.0).then(|| {
+        format!(
+            "--stretch log: the lower colour limit ({lo:.4e}) is not positive, so the colours follow log(1 + 1000 t) of the linear position t from {lo:.4e} to {hi:.4e} instead of the logarithm of the values; give --range with a positive lower limit (or higher --limits) for a logarithmic scale"
+        )
+    })
+}
+
 /// Checks that the map figure of `map` fits the width of `style` (room for
 /// the map beside its axis and colour-bar labels), as drawing it would decide, without a run:
 /// so that a width too narrow is refused with the narrowest that works before any work is

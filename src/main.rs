@@ -714,6 +714,9 @@ impl StyleArgs {
             show_branches: self.branches,
             region,
         };
+        if let Some(note) = cairn::draw::log_stretch_note(map, &style) {
+            errln!("warning: {note}");
+        }
         // A width that may be too narrow for the map beside its labels is checked by the
         // layout itself, which gives the narrowest width that works.
         if self.width < 4 * cairn::render::narrowest_width_px(self.dpi) {

@@ -746,3 +746,36 @@ fn the_legend_lists_the_states_present_and_why_a_state_is_unknown() {
         vec!["unknown: the map is read with no unit, so no masses".to_string()]
     );
 }
+
+/// `--stretch log` on a map whose lower colour limit is not positive (the faint ripple of
+/// `write_map` goes below zero) says once on stderr that the colours follow log(1 + 1000 t)
+/// instead, from `segment` and from `draw`; a positive --range draws a true logarithmic scale
+/// without a word, and so does another stretch.
+#[test]
+fn a_log_stretch_that_cannot_take_logarithms_warns_once() {
+    let d = tempfile::tempdir().unwrap();
+    write_map(d.path(), "m.fits", 200, 100);
+    let says = |o: &Outcome| {
+        o.stderr
+            .lines()
+            .filter(|l| l.starts_with("warning: --stretch log") && l.contains("log(1 + 1000 t)"))
+            .count()
+    };
+    let o = cairn(
+        &["segment", "m.fits", "-o", "run", "--stretch", "log", "-q"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert_eq!(says(&o), 1, "{}", o.stderr);
+    for (args, n) in [
+        (&["--stretch", "log"][..], 1),
+        (&["--stretch", "log", "--range", "0.05,1"][..], 0),
+        (&["--stretch", "sqrt"][..], 0),
+    ] {
+        let mut all = vec!["draw", "run", "-o", "figs", "--force", "-q"];
+        all.extend_from_slice(args);
+        let o = cairn(&all, d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        assert_eq!(says(&o), n, "{args:?}: {}", o.stderr);
+    }
+}
