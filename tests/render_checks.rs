@@ -1555,3 +1555,45 @@ fn a_figure_too_narrow_is_refused_with_the_narrowest_width_that_works() {
         }
     }
 }
+
+/// On a wide map's flat panel (2000 x 100 pixels: 16 times wider than tall at 1600 pixels and
+/// 300 dpi, about 90 pixels tall) the scale bar's text has no room over the bar and stands
+/// beside it: bar and text both inside the frame, apart; so too at 1200 pixels (a panel about
+/// 70 pixels tall). Common practice (a layout check of this project). A panel shorter than the
+/// text itself (900 pixels wide: 29 pixels tall, the text 32) still has it reach past the
+/// frame.
+#[test]
+fn a_flat_panel_keeps_the_scale_bar_text_inside_the_frame() {
+    let l = Array2::from_elem((100, 2000), -1);
+    let map = smooth_map(100, 2000);
+    let mut o = plain_overlay(&map, &l, Vec::new());
+    o.scale_bar = Some((300.0, "2 pc".into()));
+    for width in [1600, 1200] {
+        let style = Style {
+            width_px: width,
+            ..Style::default()
+        };
+        let svg = render_svg(&o, &style).unwrap();
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let d_of = |pred: &dyn Fn(roxmltree::Node) -> bool| {
+            doc.descendants()
+                .find(|n| n.tag_name().name() == "path" && pred(*n))
+                .and_then(|n| n.attribute("d"))
+                .unwrap()
+                .to_string()
+        };
+        let frame = svg_layout::bounds(&d_of(&|n| n.attribute("class") == Some("frame")));
+        let bar = svg_layout::bounds(&d_of(&|n| n.attribute("class") == Some("scale-bar")));
+        let text = svg_layout::bounds(&d_of(&|n| n.attribute("aria-label") == Some("2 pc")));
+        let within = |b: svg_layout::Bounds| {
+            b.0 >= frame.0 && b.1 >= frame.1 && b.2 <= frame.2 && b.3 <= frame.3
+        };
+        assert!(frame.3 - frame.1 < 100.0, "{width}: a flat panel {frame:?}");
+        assert!(within(bar), "{width}: bar {bar:?} outside {frame:?}");
+        assert!(within(text), "{width}: text {text:?} outside {frame:?}");
+        assert!(
+            !svg_layout::overlap(bar, text),
+            "{width}: text {text:?} over the bar {bar:?}"
+        );
+    }
+}

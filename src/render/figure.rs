@@ -131,6 +131,8 @@ pub struct Layout {
     colorbar: (f64, f64, f64, f64),
     legend_top: f64,
     legend_rows: Vec<Vec<legend::Entry>>,
+    /// The scale bar's text stands to its left rather than over it.
+    scale_text_beside: bool,
 }
 
 impl Layout {
@@ -463,6 +465,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         colorbar: (left + fw + 2.0 * m.gap, frame.1, cb_w, fh),
         legend_top,
         legend_rows: rows,
+        scale_text_beside: false,
     };
 
     // Beam in the lower left corner, scale bar in the lower right, inside the frame.
@@ -476,12 +479,20 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     }
     if let Some((len, label)) = &o.scale_bar {
         // The text is centred over the bar; text wider than the bar moves both to the left
-        // so that the text too ends an inset inside the frame.
-        let overhang = ((text::width(label, lfs) - len * kx) / 2.0).max(0.0);
-        let (ex, ey) = (
-            left + fw - inset - overhang,
-            frame.1 + fh - inset - 0.3 * fs,
-        );
+        // so that the text too ends an inset inside the frame. A frame too short for the text
+        // over the bar (a wide map's flat panel) has the text beside the bar, to its left,
+        // both centred on the frame's height.
+        let over = inset + 0.3 * fs + 0.25 * fs + m.gap + text::cap_height(lfs) + inset;
+        let (ex, ey) = if fh >= over {
+            let overhang = ((text::width(label, lfs) - len * kx) / 2.0).max(0.0);
+            (
+                left + fw - inset - overhang,
+                frame.1 + fh - inset - 0.3 * fs,
+            )
+        } else {
+            lay.scale_text_beside = true;
+            (left + fw - inset, frame.1 + fh / 2.0)
+        };
         let end = lay.figure_to_map(ex, ey);
         lay.scale_bar = Some(((end.0 - len, end.1), end));
     }
@@ -1042,23 +1053,44 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             "scale-bar",
         );
         let tw = text::width(label, lfs);
-        keep_out.push((
-            ax.min(0.5 * (ax + bx) - tw / 2.0),
-            ay - cap - m.gap - text::cap_height(lfs),
-            bx.max(0.5 * (ax + bx) + tw / 2.0),
-            ay + cap,
-        ));
-        sc.text(
-            label,
-            0.5 * (ax + bx),
-            ay - cap - m.gap,
-            lfs,
-            0.5,
-            0.0,
-            false,
-            Rgba::BLACK,
-            white_halo,
-        );
+        if lay.scale_text_beside {
+            let ch = text::cap_height(lfs);
+            keep_out.push((
+                ax - m.gap - tw,
+                ay - cap.max(ch / 2.0),
+                bx,
+                ay + cap.max(ch / 2.0),
+            ));
+            sc.text(
+                label,
+                ax - m.gap,
+                ay,
+                lfs,
+                1.0,
+                0.5,
+                false,
+                Rgba::BLACK,
+                white_halo,
+            );
+        } else {
+            keep_out.push((
+                ax.min(0.5 * (ax + bx) - tw / 2.0),
+                ay - cap - m.gap - text::cap_height(lfs),
+                bx.max(0.5 * (ax + bx) + tw / 2.0),
+                ay + cap,
+            ));
+            sc.text(
+                label,
+                0.5 * (ax + bx),
+                ay - cap - m.gap,
+                lfs,
+                0.5,
+                0.0,
+                false,
+                Rgba::BLACK,
+                white_halo,
+            );
+        }
     }
 
     // Leaf labels, in two rounds. The rule: a label lies nearer its own leaf (its outline as
