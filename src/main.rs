@@ -623,7 +623,9 @@ struct StyleArgs {
 }
 
 impl StyleArgs {
-    fn style(&self, map: &map::Map) -> Result<cairn::render::Style> {
+    /// The figure style, its options checked; `drawn`: whether a figure will be drawn (else
+    /// the notes about what a figure would show are not printed).
+    fn style(&self, map: &map::Map, drawn: bool) -> Result<cairn::render::Style> {
         use cairn::render::{ColorMap, Limits, Stretch, Style};
         let pair = |t: &str, what: &str| -> Result<(f64, f64)> {
             let bad = || {
@@ -698,7 +700,7 @@ impl StyleArgs {
             Some(r) => {
                 let (region, clipped) = cairn::draw::parse_region(r, map)?;
                 // A region reaching past the map's edge is drawn as far as the map goes.
-                if let Some(note) = clipped {
+                if let Some(note) = clipped.filter(|_| drawn) {
                     errln!("warning: {note}");
                 }
                 Some(region)
@@ -714,7 +716,7 @@ impl StyleArgs {
             show_branches: self.branches,
             region,
         };
-        if let Some(note) = cairn::draw::log_stretch_note(map, &style) {
+        if let Some(note) = cairn::draw::log_stretch_note(map, &style).filter(|_| drawn) {
             errln!("warning: {note}");
         }
         // A width that may be too narrow for the map beside its labels is checked by the
@@ -1920,7 +1922,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         // not silently ignored.
         threshold_texts: [a.floor.clone(), a.prominence.clone(), a.min_area.clone()],
         figure: {
-            let style = a.style.style(&m)?;
+            let style = a.style.style(&m, !a.no_figure)?;
             (!a.no_figure).then_some(style)
         },
     };
@@ -2326,7 +2328,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     stage("reading", 0);
     let run = cairn::draw::read_run(&a.run, a.map.as_deref())?;
     stage("drawing", 400);
-    let style = a.style.style(&run.map)?;
+    let style = a.style.style(&run.map, true)?;
     let input = cairn::draw::FigureInput {
         map: &run.map,
         labels: run.labels.view(),

@@ -749,7 +749,7 @@ fn the_legend_lists_the_states_present_and_why_a_state_is_unknown() {
 
 /// `--stretch log` on a map whose lower colour limit is not positive (the faint ripple of
 /// `write_map` goes below zero) says once on stderr that the colours follow log(1 + 1000 t)
-/// instead, from `segment` and from `draw`; a positive --range draws a true logarithmic scale
+/// instead, from `segment` (not with `--no-figure`) and from `draw`; a positive --range draws a true logarithmic scale
 /// without a word, and so does another stretch.
 #[test]
 fn a_log_stretch_that_cannot_take_logarithms_warns_once() {
@@ -767,6 +767,22 @@ fn a_log_stretch_that_cannot_take_logarithms_warns_once() {
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert_eq!(says(&o), 1, "{}", o.stderr);
+    // Without a figure there is nothing to warn about.
+    let o = cairn(
+        &[
+            "segment",
+            "m.fits",
+            "-o",
+            "nofig",
+            "--stretch",
+            "log",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert_eq!(says(&o), 0, "{}", o.stderr);
     for (args, n) in [
         (&["--stretch", "log"][..], 1),
         (&["--stretch", "log", "--range", "0.05,1"][..], 0),
