@@ -2017,6 +2017,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     if let Some((in_frame, left_out)) = summary.figure_labels {
         labels_note(in_frame, left_out);
         stretch_note(summary.figure_y_stretch);
+        beam_note(summary.figure_beam_px);
     }
     if let Some((leaves, left_out)) = summary.figure_tree_ids {
         tree_note(leaves, left_out);
@@ -2372,6 +2373,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     }
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
+    beam_note(figs.overlay.beam_px);
     tree_note(figs.tree_leaves, figs.tree_ids_left_out);
     for p in written {
         if !quiet {
@@ -2392,6 +2394,15 @@ fn labels_note(in_frame: usize, left_out: usize) {
 }
 
 /// Says when a very long and narrow map was drawn at unequal scales along x and y.
+/// Says when the beam is drawn too small to be seen (a wide map in a figure of bounded size).
+fn beam_note(beam_px: Option<f64>) {
+    if let Some(px) = beam_px.filter(|&px| px < cairn::render::LEAST_VISIBLE_BEAM_PX) {
+        outln!(
+            "figure: the beam is drawn {px:.1} pixels across, too small to be seen at this width; draw a smaller --region or a wider --width to show it"
+        );
+    }
+}
+
 fn stretch_note(y_stretch: Option<f64>) {
     if let Some(r) = y_stretch {
         outln!(

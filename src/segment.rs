@@ -582,6 +582,8 @@ pub struct RunSummary {
     /// With a figure of a very long and narrow map: the scale along y over that along x
     /// (the map is then drawn at unequal scales to keep the figure a usable size).
     pub figure_y_stretch: Option<f64>,
+    /// With a figure: the beam's drawn size in figure pixels (the smaller side of its box).
+    pub figure_beam_px: Option<f64>,
 }
 
 fn sky_names(map: &Map) -> (&'static str, &'static str) {
@@ -1623,6 +1625,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let mut labels = None;
     let mut tree_ids = None;
     let mut y_stretch = None;
+    let mut beam_px = None;
     if let Some(style) = &o.figure {
         let input = crate::draw::FigureInput {
             map,
@@ -1662,6 +1665,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         labels = Some((figs.overlay.leaves_in_frame, figs.overlay.labels_left_out));
         tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
+        beam_px = figs.overlay.beam_px;
         if tpng.is_empty() {
             // No structure: there is no tree to draw.
             outputs.skip(names::TREE_PNG);
@@ -1770,6 +1774,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         figure_labels: labels,
         figure_tree_ids: tree_ids,
         figure_y_stretch: y_stretch,
+        figure_beam_px: beam_px,
     })
 }
 

@@ -795,3 +795,38 @@ fn a_log_stretch_that_cannot_take_logarithms_warns_once() {
         assert_eq!(says(&o), n, "{args:?}: {}", o.stderr);
     }
 }
+
+/// A beam drawn smaller than a few figure pixels (an 18" beam on a 2000 x 100 map of 6"
+/// pixels at 1600 px is about 2 px) is said to be too small to be seen, from segment and
+/// from draw; a figure wide enough shows it without a word.
+#[test]
+fn a_beam_too_small_to_see_is_said() {
+    let d = tempfile::tempdir().unwrap();
+    write_map(d.path(), "wide.fits", 2000, 100);
+    let says = |o: &Outcome| {
+        o.stdout.contains("figure: the beam is drawn") && o.stdout.contains("too small to be seen")
+    };
+    let o = cairn(
+        &[
+            "segment",
+            "wide.fits",
+            "-o",
+            "run",
+            "--beam",
+            "18arcsec",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(says(&o), "{}", o.stdout);
+    let o = cairn(
+        &["draw", "run", "-o", "w", "--width", "6000", "-q"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!says(&o), "{}", o.stdout);
+    let o = cairn(&["draw", "run", "-o", "n", "-q"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(says(&o), "{}", o.stdout);
+}

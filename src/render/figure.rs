@@ -1026,6 +1026,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             |b, &(x, y)| (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y)),
         );
         keep_out.push(bbox);
+        sc.beam_px = Some((bbox.2 - bbox.0).min(bbox.3 - bbox.1));
         sc.path(
             PathData::polygon(&pts),
             vec![

@@ -305,7 +305,13 @@ pub struct MapFigure {
     /// size: how many times larger the scale along y is than along x (below 1 for a tall
     /// map). None when the map is drawn at equal scales.
     pub y_stretch: Option<f64>,
+    /// The beam's drawn size (the smaller side of its box) in figure pixels, if drawn.
+    pub beam_px: Option<f64>,
 }
+
+/// A beam drawn smaller than this many figure pixels across (its box's smaller side) is
+/// said to be too small to be seen (common practice: a few pixels of a printed figure).
+pub const LEAST_VISIBLE_BEAM_PX: f64 = 4.0;
 
 /// Draws the map figure as PNG and SVG ([`render_png`], [`render_svg`]) from one layout.
 pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderError> {
@@ -316,6 +322,7 @@ pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderErro
         leaves_in_frame: sc.leaves_to_label,
         labels_left_out: sc.labels_left_out,
         y_stretch: sc.y_stretch,
+        beam_px: sc.beam_px,
     })
 }
 

@@ -185,6 +185,8 @@ pub(crate) struct Scene {
     pub labels_left_out: usize,
     /// Map figures: the ratio of the scales along y and x when they differ.
     pub y_stretch: Option<f64>,
+    /// Map figures: the beam's drawn size, the smaller side of its box in figure pixels.
+    pub beam_px: Option<f64>,
 }
 
 impl Scene {
@@ -199,6 +201,7 @@ impl Scene {
             leaves_to_label: 0,
             labels_left_out: 0,
             y_stretch: None,
+            beam_px: None,
         }
     }
 
