@@ -263,7 +263,7 @@ struct SynthArgs {
         allow_hyphen_values = true
     )]
     noise: Option<String>,
-    /// Seed of every random stream.
+    /// Seed of every random stream [default: 1].
     #[arg(long, allow_hyphen_values = true)]
     seed: Option<u64>,
     /// Mean molecular weight per H2 molecule: a core of mass M holds M / (MU m_H) molecules
@@ -383,7 +383,8 @@ struct PhysicsArgs {
     /// column densities are still reported).
     #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     distance: Option<String>,
-    /// Dust temperature, such as 12K (for emission maps and for the gravitational state).
+    /// Dust temperature, such as 12K (for the masses of emission maps; segment also uses it,
+    /// as the gas temperature, for the gravitational state). 2.7255 K to 2000 K.
     #[arg(
         long,
         value_name = "TEMPERATURE",
@@ -429,7 +430,8 @@ struct MotionArgs {
         allow_hyphen_values = true
     )]
     sigma_nt: Option<String>,
-    /// A FITS map of the non-thermal velocity dispersion in km/s on the same grid.
+    /// A FITS map of the non-thermal velocity dispersion on the same grid (in the speed unit
+    /// of its BUNIT, else km/s).
     #[arg(long, value_name = "FILE")]
     sigma_nt_map: Option<PathBuf>,
 }
@@ -596,7 +598,8 @@ struct StyleArgs {
     #[arg(long, default_value = "viridis", value_name = "NAME")]
     colormap: String,
     /// Figure width in pixels (PNG), 200 to 20000; a width too narrow for the map beside its
-    /// axis and colour-bar labels at --dpi is refused with the narrowest that works.
+    /// axis and colour-bar labels at --dpi is refused with the narrowest that works, and so
+    /// is a figure of more than 150 megapixels.
     #[arg(
         long,
         default_value_t = 1600,
@@ -604,7 +607,7 @@ struct StyleArgs {
         allow_hyphen_values = true
     )]
     width: u32,
-    /// Print resolution recorded in the PNG; text is 9 pt at this resolution.
+    /// Print resolution recorded in the PNG, 30 to 2400; text is 9 pt at this resolution.
     #[arg(
         long,
         default_value_t = 300.0,
@@ -735,14 +738,14 @@ struct CompareArgs {
     #[arg(required = true, num_args = 1..)]
     runs: Vec<PathBuf>,
     /// Score a run against the truth table of the cores injected into its map
-    /// (NAME-truth.csv of `cairn synth --into`): matches.csv, completeness.csv, report.md and
+    /// (NAME-truth.csv of `cairn synth --into`, or of a plain `cairn synth`): matches.csv, completeness.csv, report.md and
     /// the completeness plot. Repeat it to pool several injections: one --truth per run,
     /// paired in order (`compare RUN1 RUN2 --truth T1 --truth T2`), each run matched against
     /// its own truth and the completeness computed over all their cores together.
     #[arg(long, value_name = "FILE")]
     truth: Vec<PathBuf>,
     /// With --truth: a run of the map before injection, with the same thresholds; injected
-    /// cores within one beam of its leaves (where a leaf found may be the map's own) are left
+    /// cores within one beam FWHM of its leaves' peaks (where a leaf found may be the map's own) are left
     /// out of the completeness. One baseline serves every pooled pair, so each injection must
     /// have gone into that map.
     #[arg(long, value_name = "RUN", requires = "truth")]
@@ -1942,13 +1945,19 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     } else {
         format!(" {}", m.unit_text)
     };
+    let count =
+        |n: usize, one: &str, many: &str| format!("{n} {}", if n == 1 { one } else { many });
     outln!(
-        "{} structures in {} trees: {} leaves, {} branches, {} roots; {:.2} s",
-        summary.leaves + summary.branches + summary.roots,
-        summary.trees,
-        summary.leaves,
-        summary.branches,
-        summary.roots,
+        "{} in {}: {}, {}, {}; {:.2} s",
+        count(
+            summary.leaves + summary.branches + summary.roots,
+            "structure",
+            "structures"
+        ),
+        count(summary.trees, "tree", "trees"),
+        count(summary.leaves, "leaf", "leaves"),
+        count(summary.branches, "branch", "branches"),
+        count(summary.roots, "root", "roots"),
         summary.seconds
     );
     outln!(

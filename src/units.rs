@@ -494,7 +494,7 @@ pub fn named_band(text: &str) -> Option<ExtinctionBand> {
 }
 
 /// The units `--unit` names cairn converts to column density, for messages.
-pub const CONVERTED_UNITS: &str = "cm-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel";
+pub const CONVERTED_UNITS: &str = "cm-2, m-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel";
 
 /// Reads a `--unit` value: a unit cairn converts (spelt as in BUNIT); `other:TEXT` for a map in
 /// a unit cairn does not convert, such as `other:K km/s`, whose structure alone is measured,
