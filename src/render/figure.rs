@@ -502,55 +502,74 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
 /// A box on the figure: left, top, right, bottom.
 type Rect = (f64, f64, f64, f64);
 
-/// Boxes (left, top, right, bottom) already taken on the figure, bucketed on a grid so a
-/// query looks only at nearby boxes.
-struct BoxIndex {
+/// Items (numbered in the order added) bucketed on a square grid by the box (left, top,
+/// right, bottom) each spans, so that a query looks only at the items near its own box.
+struct Grid {
     cell: f64,
-    boxes: Vec<(f64, f64, f64, f64)>,
-    grid: std::collections::HashMap<(i64, i64), Vec<usize>>,
+    cells: std::collections::HashMap<(i64, i64), Vec<usize>>,
 }
 
-impl BoxIndex {
+impl Grid {
     fn new(cell: f64) -> Self {
-        BoxIndex {
+        Grid {
             cell: cell.max(1.0),
-            boxes: Vec::new(),
-            grid: std::collections::HashMap::new(),
+            cells: std::collections::HashMap::new(),
         }
     }
-    fn cells(&self, b: (f64, f64, f64, f64)) -> impl Iterator<Item = (i64, i64)> {
+    fn cells_of(&self, b: Rect) -> impl Iterator<Item = (i64, i64)> + use<> {
         let c = self.cell;
         let (i0, i1) = ((b.0 / c).floor() as i64, (b.2 / c).floor() as i64);
         let (j0, j1) = ((b.1 / c).floor() as i64, (b.3 / c).floor() as i64);
         (j0..=j1).flat_map(move |j| (i0..=i1).map(move |i| (i, j)))
     }
-    fn insert(&mut self, b: (f64, f64, f64, f64)) {
-        let k = self.boxes.len();
-        self.boxes.push(b);
-        let cells: Vec<(i64, i64)> = self.cells(b).collect();
-        for c in cells {
-            self.grid.entry(c).or_default().push(k);
+    /// Files item `k`, which spans the box `b`.
+    fn insert(&mut self, k: usize, b: Rect) {
+        for c in self.cells_of(b) {
+            self.cells.entry(c).or_default().push(k);
         }
+    }
+    /// The items filed in the cells that the box `b` meets (an item may come more than once).
+    fn near(&self, b: Rect) -> impl Iterator<Item = usize> + '_ {
+        self.cells_of(b)
+            .filter_map(|c| self.cells.get(&c))
+            .flatten()
+            .copied()
+    }
+}
+
+/// The box spanned by the segment from `a` to `b`.
+fn span(a: (f64, f64), b: (f64, f64)) -> Rect {
+    (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1))
+}
+
+/// Boxes (left, top, right, bottom) already taken on the figure, bucketed on a grid so a
+/// query looks only at nearby boxes.
+struct BoxIndex {
+    boxes: Vec<Rect>,
+    grid: Grid,
+}
+
+impl BoxIndex {
+    fn new(cell: f64) -> Self {
+        BoxIndex {
+            boxes: Vec::new(),
+            grid: Grid::new(cell),
+        }
+    }
+    fn insert(&mut self, b: Rect) {
+        self.grid.insert(self.boxes.len(), b);
+        self.boxes.push(b);
     }
     /// Whether the segment from `a` to `b` passes through any box (along a stretch of
     /// positive length).
     fn crosses(&self, a: (f64, f64), b: (f64, f64)) -> bool {
-        let span = (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1));
         let hits = |r: Rect| clip_segment(a, b, r).is_some_and(|(s, e)| s != e);
-        self.cells(span).any(|c| {
-            self.grid
-                .get(&c)
-                .is_some_and(|v| v.iter().any(|&k| hits(self.boxes[k])))
-        })
+        self.grid.near(span(a, b)).any(|k| hits(self.boxes[k]))
     }
-    fn overlaps(&self, b: (f64, f64, f64, f64)) -> bool {
-        self.cells(b).any(|c| {
-            self.grid.get(&c).is_some_and(|v| {
-                v.iter().any(|&k| {
-                    let p = self.boxes[k];
-                    b.2.min(p.2) > b.0.max(p.0) && b.3.min(p.3) > b.1.max(p.1)
-                })
-            })
+    fn overlaps(&self, b: Rect) -> bool {
+        self.grid.near(b).any(|k| {
+            let p = self.boxes[k];
+            b.2.min(p.2) > b.0.max(p.0) && b.3.min(p.3) > b.1.max(p.1)
         })
     }
 }
@@ -653,40 +672,25 @@ type LeafSeg = ((f64, f64), (f64, f64), i32);
 /// The leaves' drawn outlines as segments, each with its leaf, bucketed on a grid so a query
 /// looks only at nearby segments.
 struct SegIndex {
-    cell: f64,
     segs: Vec<LeafSeg>,
-    grid: std::collections::HashMap<(i64, i64), Vec<usize>>,
+    grid: Grid,
 }
 
 impl SegIndex {
     fn new(cell: f64) -> Self {
         SegIndex {
-            cell: cell.max(1.0),
             segs: Vec::new(),
-            grid: std::collections::HashMap::new(),
+            grid: Grid::new(cell),
         }
-    }
-    fn cells(&self, b: Rect) -> impl Iterator<Item = (i64, i64)> + use<> {
-        let c = self.cell;
-        let (i0, i1) = ((b.0 / c).floor() as i64, (b.2 / c).floor() as i64);
-        let (j0, j1) = ((b.1 / c).floor() as i64, (b.3 / c).floor() as i64);
-        (j0..=j1).flat_map(move |j| (i0..=i1).map(move |i| (i, j)))
     }
     fn insert(&mut self, a: (f64, f64), b: (f64, f64), id: i32) {
-        let k = self.segs.len();
+        self.grid.insert(self.segs.len(), span(a, b));
         self.segs.push((a, b, id));
-        let span = (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1));
-        for c in self.cells(span) {
-            self.grid.entry(c).or_default().push(k);
-        }
     }
     /// The segments whose cells meet the box `b` grown by `radius`.
     fn near(&self, b: Rect, radius: f64) -> impl Iterator<Item = &LeafSeg> {
         let grown = (b.0 - radius, b.1 - radius, b.2 + radius, b.3 + radius);
-        self.cells(grown)
-            .filter_map(|c| self.grid.get(&c))
-            .flatten()
-            .map(|&k| &self.segs[k])
+        self.grid.near(grown).map(|k| &self.segs[k])
     }
     /// The distances from box `b` to the outline of leaf `own` and to the nearest outline of
     /// any other leaf; infinite when none lies within `radius` of the box.
@@ -705,8 +709,7 @@ impl SegIndex {
     /// Whether the segment from `a` to `b` comes within `clear` of the outline of a leaf other
     /// than `own`.
     fn near_other(&self, a: (f64, f64), b: (f64, f64), own: i32, clear: f64) -> bool {
-        let span = (a.0.min(b.0), a.1.min(b.1), a.0.max(b.0), a.1.max(b.1));
-        self.near(span, clear)
+        self.near(span(a, b), clear)
             .any(|&(p, q, id)| id != own && segment_segment(a, b, p, q) < clear)
     }
 }
