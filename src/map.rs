@@ -1157,6 +1157,30 @@ fn plan_read(
             .map(|s| s.trim().to_string())
             .filter(|s| !s.is_empty())
     };
+    // A cube whose sky axes are not the first two (a spectral axis first): no plane of it is
+    // a map, so the plane hint would mislead.
+    let celestial = |k: usize| {
+        axis_name(k).is_some_and(|t| {
+            let t = t.to_ascii_uppercase();
+            ["RA", "DEC", "GLON", "GLAT", "ELON", "ELAT"]
+                .iter()
+                .any(|p| t == *p || t.starts_with(&format!("{p}-")))
+        })
+    };
+    if let Some(k) = (2..axes.len()).find(|&k| celestial(k) && axes[k] > 1)
+        && let Some(j) = (0..2).find(|&j| !celestial(j) && axis_name(j).is_some())
+    {
+        return Err(Error::input(
+            path,
+            format!(
+                "has a sky axis beyond the first two (CTYPE{} = '{}') and CTYPE{} = '{}' among them; cairn reads maps whose first two axes are the sky: reorder the cube's axes so that they come first.",
+                k + 1,
+                axis_name(k).unwrap_or_default(),
+                j + 1,
+                axis_name(j).unwrap_or_default()
+            ),
+        ));
+    }
     match (long.len(), plane) {
         (0, None) => Ok((nx, ny, first, None)),
         (0, Some(p)) => {

@@ -728,3 +728,31 @@ fn a_full_standard_output_says_the_files_are_whole() {
     assert!(s.dir.path().join("out/structures.csv").is_file());
     assert!(s.dir.path().join("out/run.json").is_file());
 }
+
+/// A cube whose spectral axis comes first (FREQ, RA, DEC) has no plane that is a map: it is
+/// refused with the axes named and the fix, not sent to --plane.
+#[test]
+fn a_cube_with_its_sky_axes_last_is_refused_by_name() {
+    let s = Scratch::new();
+    let cards: Vec<String> = [
+        "SIMPLE  =                    T",
+        "BITPIX  =                  -32",
+        "NAXIS   =                    3",
+        "NAXIS1  =                    3",
+        "NAXIS2  =                    8",
+        "NAXIS3  =                    8",
+        "CTYPE1  = 'FREQ    '",
+        "CTYPE2  = 'RA---TAN'",
+        "CTYPE3  = 'DEC--TAN'",
+    ]
+    .iter()
+    .map(|c| c.to_string())
+    .collect();
+    s.write("freqfirst.fits", &fits_bytes(&cards, &good_pixels(3 * 64)));
+    assert_refused(
+        &s,
+        &["inspect", "freqfirst.fits"],
+        "freqfirst.fits",
+        "has a sky axis beyond the first two (CTYPE3 = 'DEC--TAN') and CTYPE1 = 'FREQ' among them",
+    );
+}
