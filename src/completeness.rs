@@ -177,12 +177,19 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
             _ => Ok(spec),
         }
     });
-    // A table with rows taken out (or added) holds another number of cores than its record.
+    // A table with rows taken out (or added) holds another number of cores than its record:
+    // the random population's and the cores placed by hand (a synth specification's).
     if let Some(count) = spec
         .as_ref()
         .ok()
-        .and_then(|s| s.pointer("/population/count"))
-        .and_then(|v| v.as_u64())
+        .and_then(|s| {
+            let random = s.pointer("/population/count").and_then(|v| v.as_u64())?;
+            let placed = s
+                .pointer("/cores")
+                .and_then(|v| v.as_array())
+                .map_or(0, Vec::len);
+            Some(random + placed as u64)
+        })
         .filter(|&c| c != cores.len() as u64)
     {
         return Err(bad(format!(

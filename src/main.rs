@@ -293,7 +293,7 @@ struct SynthArgs {
     hdu: Option<String>,
     /// With --into: for a cube, the zero-based plane to take.
     #[arg(long, value_name = "K", requires = "into", allow_hyphen_values = true)]
-    plane: Option<usize>,
+    plane: Option<i64>,
     /// With --into: unit of the map's pixels instead of BUNIT.
     #[arg(long, value_name = "UNIT", requires = "into")]
     unit: Option<String>,
@@ -348,7 +348,7 @@ struct MapArgs {
     hdu: Option<String>,
     /// For a cube: the zero-based plane to take along its one long extra axis.
     #[arg(long, value_name = "K", allow_hyphen_values = true)]
-    plane: Option<usize>,
+    plane: Option<i64>,
     /// Unit of the pixels, instead of BUNIT: cm-2, m-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam, Jy/pixel; or other:UNIT (such as other:K km/s) for a unit cairn does not convert to column density, or none for values without a unit: the structure alone is measured, without masses.
     #[arg(long, value_name = "UNIT")]
     unit: Option<String>,
@@ -906,7 +906,14 @@ impl MapArgs {
                 .as_deref()
                 .map(HduChoice::parse)
                 .unwrap_or(HduChoice::Auto),
-            plane: self.plane,
+            plane: match self.plane {
+                Some(k) if k < 0 => {
+                    return Err(Error::usage(format!(
+                        "--plane {k} is not a plane: they are counted from 0; give --plane 0, 1, ..."
+                    )));
+                }
+                k => k.map(|k| k as usize),
+            },
             unit: self.unit.clone(),
             band,
             band_given: self.extinction_band.is_some(),
@@ -996,7 +1003,8 @@ fn dust_opacity(
             &format!("--opacity-frequency {f}"),
         )?;
         // Opacity laws are given where dust continuum is measured, as --wavelength is.
-        if !(30e6..=300e12).contains(&o.nu0_hz) {
+        let c = cairn::physics::constants::C;
+        if !(c / 10.0..=c / 1e-6).contains(&o.nu0_hz) {
             return Err(Error::usage(format!(
                 "--opacity-frequency {f} is outside 300THz to 30MHz (1um to 10m), where dust opacity laws are given; give the frequency or wavelength of the opacity, such as 1THz or 250um."
             )));
@@ -2402,7 +2410,6 @@ fn labels_note(in_frame: usize, left_out: usize) {
     }
 }
 
-/// Says when a very long and narrow map was drawn at unequal scales along x and y.
 /// Says when the beam is drawn too small to be seen (a wide map in a figure of bounded size).
 fn beam_note(beam_px: Option<f64>) {
     if let Some(px) = beam_px.filter(|&px| px < cairn::render::LEAST_VISIBLE_BEAM_PX) {
@@ -2412,6 +2419,7 @@ fn beam_note(beam_px: Option<f64>) {
     }
 }
 
+/// Says when a very long and narrow map was drawn at unequal scales along x and y.
 fn stretch_note(y_stretch: Option<f64>) {
     if let Some(r) = y_stretch {
         outln!(

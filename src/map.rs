@@ -942,8 +942,6 @@ fn image_shape(fits: &FitsHandle, path: &Path, index: usize) -> Result<(i64, Vec
     ))
 }
 
-/// The HDU to read, and a warning when the choice was not the only one: other images in the
-/// file (read without --hdu), or several HDUs of the name given.
 /// Pixels of a 64-bit image read again in double precision, at most this many.
 const NARROWING_SAMPLE: usize = 1 << 20;
 
@@ -979,7 +977,13 @@ fn narrowing_loss(fits: &FitsHandle, firstpix: &[i64], npix: usize) -> Option<St
         .iter()
         .filter(|v| v.is_finite() && **v != 0.0 && v.abs() < f32::MIN_POSITIVE as f64)
         .count();
-    if tiny > 0 {
+    // A stray residual (one 1e-300 among ordinary values) is no reason to rescale a map; one
+    // value in a hundred of those not zero is.
+    let nonzero = sample
+        .iter()
+        .filter(|v| v.is_finite() && **v != 0.0)
+        .count();
+    if tiny > 0 && tiny * 100 >= nonzero {
         return Some(format!(
             "{tiny} of the first {n} pixels hold values below the least normal 32-bit float (1.2e-38 in size), in which cairn holds the map: they read as zero or with few digits; give the map in a unit that makes its values larger"
         ));
@@ -1010,6 +1014,8 @@ fn narrowing_loss(fits: &FitsHandle, firstpix: &[i64], npix: usize) -> Option<St
     }
 }
 
+/// The HDU to read, and a warning when the choice was not the only one: other images in the
+/// file (read without --hdu), or several HDUs of the name given.
 fn choose_hdu(
     fits: &FitsHandle,
     path: &Path,
@@ -1461,6 +1467,8 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
 /// The wavelength from RESTFRQ/RESTFREQ/FREQ/OBSFREQ (Hz) or WAVELEN/WAVELNTH (unit in the
 /// comment), for [`wavelength_from_header`].
 fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
+    // What is wrong with the keywords is said only when none of them gives the wavelength.
+    let mut notes: Vec<String> = Vec::new();
     // A keyword present with a value that is no frequency or wavelength is said, not dropped
     // without a word.
     let odd = |warnings: &mut Vec<String>, key: &str, v: Option<f64>| {
@@ -1478,14 +1486,14 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
     };
     for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
         let f = h.get_f64(key);
-        odd(warnings, key, f);
+        odd(&mut notes, key, f);
         if let Some(f) = f.filter(|f| f.is_finite() && *f > 0.0) {
             return Some(units::C_LIGHT / f);
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {
         let v = h.get_f64(key);
-        odd(warnings, key, v);
+        odd(&mut notes, key, v);
         let Some(v) = v.filter(|v| v.is_finite() && *v > 0.0) else {
             continue;
         };
@@ -1512,9 +1520,10 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
         };
         match factor {
             Some(f) => return Some(v * f),
-            None => warnings.push(format!("{key} = {v} has no unit in its comment and could be metres or micrometres; give --wavelength")),
+            None => notes.push(format!("{key} = {v} has no unit in its comment and could be metres or micrometres; give --wavelength")),
         }
     }
+    warnings.extend(notes);
     None
 }
 
@@ -1611,6 +1620,14 @@ mod tests {
             w.len() == 1 && w[0].contains("WAVELEN is not a number"),
             "{w:?}"
         );
+        // A later keyword that gives the wavelength leaves nothing to say.
+        let mut w = Vec::new();
+        let h = Header::parse(&format!(
+            "{:<80}{:<80}",
+            "RESTFRQ = 'unknown'", "WAVELEN =                850.0 / [um]"
+        ));
+        assert!(wavelength_from_header(&h, &mut w).is_some());
+        assert!(w.is_empty(), "{w:?}");
         // A spectral axis in a unit cairn does not read gives no wavelength, and says so
         // (rather than reading the number as Hz).
         let h = Header::parse(

@@ -267,7 +267,8 @@ impl Outputs {
                     "is a folder where an output file goes; move it away or choose another output folder with -o.",
                 ));
             }
-            if target.exists() && !force {
+            // (A symbolic link counts, even one to nothing: the commit would not replace it.)
+            if target.symlink_metadata().is_ok() && !force {
                 existing.push(name.clone());
             }
             let tmp = dir.join(format!(".{name}.partial-{}-{k}", std::process::id()));
@@ -275,7 +276,7 @@ impl Outputs {
         }
         for name in others.iter().filter(|n| !names.contains(n)) {
             let target = dir.join(name);
-            if target.exists() {
+            if target.symlink_metadata().is_ok() {
                 if force {
                     out.stale.push(target);
                 } else {
@@ -329,8 +330,10 @@ impl Outputs {
     pub fn skip(&mut self, name: &str) {
         self.planned
             .retain(|(t, _)| t.file_name().map(|f| f != name).unwrap_or(true));
+        // Without --force the name was free when planned: a file there now is another
+        // run's, and is left alone.
         let target = self.dir.join(name);
-        if target.is_file() {
+        if self.force && target.is_file() {
             self.stale.push(target);
         }
     }
@@ -563,5 +566,28 @@ mod tests {
         write_bytes(&o.temp("b.json"), b"mine").unwrap();
         o.commit().unwrap();
         assert_eq!(std::fs::read(out.join("b.json")).unwrap(), b"mine");
+    }
+
+    /// A symbolic link at an output's name, even one to nothing, is an existing output,
+    /// refused before any work without --force; an output skipped without --force leaves a
+    /// file another run put at its name.
+    #[cfg(unix)]
+    #[test]
+    fn links_and_skipped_names_are_not_replaced_without_force() {
+        let d = tempfile::tempdir().unwrap();
+        let out = d.path().join("run");
+        std::fs::create_dir(&out).unwrap();
+        std::os::unix::fs::symlink("nowhere", out.join("a.csv")).unwrap();
+        let names = vec!["a.csv".to_string(), "b.json".to_string()];
+        let e = Outputs::plan(&out, &names, false).unwrap_err();
+        assert!(e.message.contains("already holds a.csv"), "{e}");
+        std::fs::remove_file(out.join("a.csv")).unwrap();
+        let mut o = Outputs::plan(&out, &names, false).unwrap();
+        write_bytes(&o.temp("a.csv"), b"mine").unwrap();
+        std::fs::write(out.join("b.json"), b"theirs").unwrap();
+        o.skip("b.json");
+        o.commit().unwrap();
+        assert_eq!(std::fs::read(out.join("b.json")).unwrap(), b"theirs");
+        assert_eq!(std::fs::read(out.join("a.csv")).unwrap(), b"mine");
     }
 }

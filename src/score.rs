@@ -256,7 +256,7 @@ pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
         let x = physics::constants::H * units::C_LIGHT / (w * physics::constants::K_B * lowest);
         if x > WIEN_LIMIT {
             return Some(format!(
-                "at {} um and {} K, h nu / k T = {}: dust that cold emits nothing measurable at that wavelength (the Planck function underflows); check the wavelength and the temperature",
+                "at {} um and {} K, h nu / k T = {}: dust that cold emits nothing measurable at that wavelength (less than e^-100 of its Rayleigh-Jeans value); check the wavelength and the temperature",
                 units::tidy(w * 1e6),
                 units::tidy(lowest),
                 units::tidy(x.round())

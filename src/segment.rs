@@ -1570,7 +1570,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             if let Some(w) = physics_warning(&o.physics, map, physics_note.as_deref()) {
                 table.notes.push(w);
             }
-            if let Some(w) = negative_mass_warning(phys.as_deref()) {
+            // Counted over the rows of this table (the leaves alone with --leaves-only).
+            if let Some(w) = negative_mass_warning(phys_rows.iter().flatten().copied()) {
                 table.notes.push(w);
             }
             let table = std::sync::Arc::new(table);
@@ -1744,7 +1745,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             "total": seconds,
         },
         "threads": rayon::current_num_threads(),
-        "warnings": map.warnings.iter().cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).chain(negative_mass_warning(phys.as_deref())).collect::<Vec<String>>(),
+        "warnings": map.warnings.iter().cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).chain(negative_mass_warning(phys.iter().flatten())).collect::<Vec<String>>(),
         "physics": physics_record(&o.physics, map, r.noise, physics_note.as_deref()),
     });
     let rec =
@@ -1768,7 +1769,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         thresholds: r,
         seconds: t0.elapsed().as_secs_f64(),
         files,
-        negative_masses: negative_mass_warning(phys.as_deref()),
+        negative_masses: negative_mass_warning(phys.iter().flatten()),
         physics_note,
         leaf_states,
         figure_labels: labels,
@@ -1809,14 +1810,19 @@ fn grown_catalogue(
     if let Some(w) = physics_warning(&o.physics, map, phys.as_ref().err().map(String::as_str)) {
         table.notes.push(w);
     }
+    if let Some(w) = negative_mass_warning(phys.iter().flatten()) {
+        table.notes.push(w);
+    }
     std::sync::Arc::new(table)
 }
 
 /// When some structures' masses are negative (the map's values below zero there: a negative
 /// zero level, or the negative bowls of a map that lost its extended emission), a warning
 /// saying how many and what to make of them.
-fn negative_mass_warning(phys: Option<&[crate::score::Physical]>) -> Option<String> {
-    let n = phys?.iter().filter(|p| p.mass < 0.0).count();
+fn negative_mass_warning<'a>(
+    phys: impl IntoIterator<Item = &'a crate::score::Physical>,
+) -> Option<String> {
+    let n = phys.into_iter().filter(|p| p.mass < 0.0).count();
     (n > 0).then(|| {
         format!(
             "{n} structure{} a negative mass (the map's values are below zero there: a zero level below no emission?); their mass and n_peak mean nothing, while mass_excess, above their merge level, does: give a map whose zero is no emission for whole masses",

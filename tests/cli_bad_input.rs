@@ -690,8 +690,8 @@ fn negative_hdu_and_plane_numbers() {
     assert_refused(
         &s,
         &["segment", "m.fits", "-o", "out", "--plane", "-1"],
-        "--plane",
-        "invalid value '-1'",
+        "--plane -1",
+        "they are counted from 0",
     );
 }
 

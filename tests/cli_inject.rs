@@ -1941,3 +1941,59 @@ fn a_truth_table_with_repeated_or_missing_rows_is_refused() {
     );
     assert!(!dir.join("s").exists());
 }
+
+/// A plain synth truth table whose specification places cores by hand beside its random
+/// population holds both; it is scored, not refused as a table with rows added.
+#[test]
+fn a_truth_table_with_cores_placed_by_hand_is_scored() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    let o = cairn(
+        &[
+            "synth", "-o", "a", "--size", "256", "--cores", "10", "--seed", "2", "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let mut spec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("a/synth-spec.json")).unwrap())
+            .unwrap();
+    spec["cores"] = serde_json::json!([
+        {"x": 128.0, "y": 128.0, "mass_msun": 5.0, "radius_pc": 0.03, "profile": "gaussian"}
+    ]);
+    std::fs::write(dir.join("spec.json"), spec.to_string()).unwrap();
+    let o = cairn(&["synth", "--spec", "spec.json", "-o", "b", "-q"], dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "segment",
+            "b/synth.fits",
+            "-o",
+            "rb",
+            "--no-figure",
+            "-q",
+            "--distance",
+            "250pc",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &[
+            "compare",
+            "rb",
+            "--truth",
+            "b/synth-truth.csv",
+            "-o",
+            "s",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stdout.contains("of 11 injected cores recovered"),
+        "{}",
+        o.stdout
+    );
+}

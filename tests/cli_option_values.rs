@@ -529,6 +529,36 @@ fn temperatures_colder_than_the_microwave_background_are_refused() {
         "--temperature 1e9K",
         "hotter than dust survives",
     );
+    // The opacity's frequency lies where dust continuum is measured, 1 um to 10 m inclusive.
+    refused(
+        d.path(),
+        &[
+            "segment",
+            "col.fits",
+            "-o",
+            "out",
+            "--opacity-frequency",
+            "11m",
+        ],
+        "--opacity-frequency 11m",
+        "is outside 300THz to 30MHz (1um to 10m)",
+    );
+    for f in ["10m", "1um"] {
+        let o = cairn(
+            &[
+                "segment",
+                "col.fits",
+                "-o",
+                f,
+                "--opacity-frequency",
+                f,
+                "--no-figure",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{f}: {}", o.stderr);
+    }
     // The background itself is accepted.
     let o = cairn(
         &[
