@@ -2008,19 +2008,15 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
         outln!("leaves by state: {}", words.join(", "));
     }
-    // A map whose header names a unit without conversion (or none) was already warned about
-    // when it was read, in words that cover the masses: not twice.
-    let unit_warned =
-        m.unit == Some(units::PixelUnit::Other) && m.unit_source == map::Source::Header;
     if let Some(w) = &summary.negative_masses {
         errln!("warning: {w}");
     }
     if let Some(note) = &summary.physics_note {
-        if a.physics.distance.is_some() && !unit_warned {
-            // Asked for with --distance and not made: a warning, on stderr with --quiet too.
-            errln!("warning: no masses: {note}");
-        } else {
-            outln!("no masses: {note}");
+        // Asked for with --distance and not made: a warning, on stderr with --quiet too (the
+        // one the run record keeps); otherwise part of the summary.
+        match &summary.physics_warning {
+            Some(w) => errln!("warning: {w}"),
+            None => outln!("no masses: {note}"),
         }
     } else if m.wcs.is_none() && a.physics.distance.is_some() {
         // Asked for and not given: a warning, on stderr with --quiet too.

@@ -483,22 +483,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         )
     })?;
     buf.resize(npix, 0.0);
-    let mut first = firstpix.clone();
-    let mut nulval = f32::NAN;
-    let mut anynul = 0;
-    // SAFETY: buf holds npix floats; firstpix has one entry per axis; TFLOAT matches f32.
-    unsafe {
-        sys::ffgpxvll(
-            fits.ptr,
-            sys::TFLOAT as i32,
-            first.as_mut_ptr(),
-            npix as i64,
-            &mut nulval as *mut f32 as *mut _,
-            buf.as_mut_ptr() as *mut _,
-            &mut anynul,
-            &mut status,
-        )
-    };
+    status = read_pixels(&fits, &firstpix, &mut buf);
     if status != 0 {
         return Err(Error::input(
             path,
@@ -942,6 +927,47 @@ fn image_shape(fits: &FitsHandle, path: &Path, index: usize) -> Result<(i64, Vec
     ))
 }
 
+/// A pixel type CFITSIO converts to on reading.
+trait ReadPixel: Copy {
+    /// CFITSIO's code for the type.
+    const DATATYPE: i32;
+    /// The value of a null (undefined) pixel.
+    const NULL: Self;
+}
+
+impl ReadPixel for f32 {
+    const DATATYPE: i32 = sys::TFLOAT as i32;
+    const NULL: Self = f32::NAN;
+}
+
+impl ReadPixel for f64 {
+    const DATATYPE: i32 = sys::TDOUBLE as i32;
+    const NULL: Self = f64::NAN;
+}
+
+/// Reads `out.len()` pixels of the current HDU from `firstpix` (1-based, one entry per axis)
+/// on, converted to `T`, null pixels as NaN; the CFITSIO status (0: read).
+fn read_pixels<T: ReadPixel>(fits: &FitsHandle, firstpix: &[i64], out: &mut [T]) -> i32 {
+    let mut first = firstpix.to_vec();
+    let mut nulval = T::NULL;
+    let (mut anynul, mut status) = (0, 0);
+    // SAFETY: `out` holds out.len() values of the type DATATYPE names; `first` has one entry
+    // per axis.
+    unsafe {
+        sys::ffgpxvll(
+            fits.ptr,
+            T::DATATYPE,
+            first.as_mut_ptr(),
+            out.len() as i64,
+            &mut nulval as *mut T as *mut _,
+            out.as_mut_ptr() as *mut _,
+            &mut anynul,
+            &mut status,
+        )
+    };
+    status
+}
+
 /// Pixels of a 64-bit image read again in double precision, at most this many.
 const NARROWING_SAMPLE: usize = 1 << 20;
 
@@ -954,23 +980,7 @@ const NARROWING_SAMPLE: usize = 1 << 20;
 fn narrowing_loss(fits: &FitsHandle, firstpix: &[i64], npix: usize) -> Option<String> {
     let n = npix.min(NARROWING_SAMPLE);
     let mut sample = vec![0f64; n];
-    let mut first = firstpix.to_vec();
-    let mut nulval = f64::NAN;
-    let (mut anynul, mut status) = (0, 0);
-    // SAFETY: sample holds n doubles; first has one entry per axis; TDOUBLE matches f64.
-    unsafe {
-        sys::ffgpxvll(
-            fits.ptr,
-            sys::TDOUBLE as i32,
-            first.as_mut_ptr(),
-            n as i64,
-            &mut nulval as *mut f64 as *mut _,
-            sample.as_mut_ptr() as *mut _,
-            &mut anynul,
-            &mut status,
-        )
-    };
-    if status != 0 {
+    if read_pixels(fits, firstpix, &mut sample) != 0 {
         return None;
     }
     let tiny = sample

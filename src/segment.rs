@@ -575,6 +575,8 @@ pub struct RunSummary {
     pub leaf_states: Option<std::collections::BTreeMap<String, usize>>,
     /// A warning when some structures' masses are negative (the map below zero there).
     pub negative_masses: Option<String>,
+    /// With masses asked for (a distance given) and not made: the warning saying why.
+    pub physics_warning: Option<String>,
     /// With a figure: leaves inside its frame and how many of them got no label.
     pub figure_labels: Option<(usize, usize)>,
     /// With a figure: the tree's leaves and how many of their ids it left out (too crowded).
@@ -1770,6 +1772,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         seconds: t0.elapsed().as_secs_f64(),
         files,
         negative_masses: negative_mass_warning(phys.iter().flatten()),
+        physics_warning: physics_warning(&o.physics, map, physics_note.as_deref()),
         physics_note,
         leaf_states,
         figure_labels: labels,

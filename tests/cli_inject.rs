@@ -1964,33 +1964,14 @@ fn a_truth_table_with_cores_placed_by_hand_is_scored() {
     std::fs::write(dir.join("spec.json"), spec.to_string()).unwrap();
     let o = cairn(&["synth", "--spec", "spec.json", "-o", "b", "-q"], dir);
     assert_eq!(o.code, 0, "{}", o.stderr);
-    let o = cairn(
-        &[
-            "segment",
-            "b/synth.fits",
-            "-o",
-            "rb",
-            "--no-figure",
-            "-q",
-            "--distance",
-            "250pc",
-        ],
+    let o = segment_and_score(
         dir,
+        "b/synth.fits",
+        "rb",
+        &["--distance", "250pc"],
+        "b/synth-truth.csv",
+        "s",
     );
-    assert_eq!(o.code, 0, "{}", o.stderr);
-    let o = cairn(
-        &[
-            "compare",
-            "rb",
-            "--truth",
-            "b/synth-truth.csv",
-            "-o",
-            "s",
-            "-q",
-        ],
-        dir,
-    );
-    assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(
         o.stdout.contains("of 11 injected cores recovered"),
         "{}",
