@@ -1149,7 +1149,7 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
             }
         };
         if let Some(t) = &a.background {
-            bg.mean_column_cm2 = q(t, &[Dimension::ColumnDensity], "--background")?.si * 1e-4;
+            bg.mean_column_cm2 = q(t, &[Dimension::ColumnDensity], "--background")?.in_unit(1e4);
         }
         if let Some(w) = a.background_width {
             bg.sigma_ln = w;

@@ -107,6 +107,36 @@ pub struct Quantity {
     pub si: f64,
     /// What it measures.
     pub dim: Dimension,
+    /// The number as given, in the unit it was given in.
+    pub given: f64,
+    /// That unit in the SI unit of its dimension (1 for a bare number).
+    pub factor: f64,
+}
+
+impl Quantity {
+    /// The value in a unit worth `si_per_unit` SI units, as exactly as the text given allows:
+    /// the number given itself when that is its unit (`2e21cm-2` read as 2e21 cm-2, not
+    /// 2.0000000000000003e21 through m-2), and the given decimal's exponent shifted when the
+    /// units differ by a power of ten (`3e6Jy/sr` as 3 MJy/sr); otherwise through SI.
+    pub fn in_unit(&self, si_per_unit: f64) -> f64 {
+        if self.factor == si_per_unit {
+            return self.given;
+        }
+        let ratio = self.factor / si_per_unit;
+        let k = ratio.log10().round();
+        if ratio.is_finite() && ratio > 0.0 && (ratio / 10f64.powf(k) - 1.0).abs() < 1e-12 {
+            // Rust's shortest text of the given number is its decimal as typed (up to 15
+            // significant digits), so shifting its exponent is exact before the one rounding.
+            let text = format!("{:e}", self.given);
+            if let Some((mantissa, exp)) = text.split_once('e')
+                && let Ok(e) = exp.parse::<i32>()
+                && let Ok(v) = format!("{mantissa}e{}", e + k as i32).parse::<f64>()
+            {
+                return v;
+            }
+        }
+        self.si / si_per_unit
+    }
 }
 
 impl fmt::Display for Quantity {
@@ -297,6 +327,8 @@ pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Q
             return Ok(Quantity {
                 si: number,
                 dim: Dimension::Pure,
+                given: number,
+                factor: 1.0,
             });
         }
         return Err(format!("{what} '{text}' has no unit: give {expected}."));
@@ -312,6 +344,8 @@ pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Q
             return Ok(Quantity {
                 si: number * factor,
                 dim: *dim,
+                given: number,
+                factor: *factor,
             });
         }
     }
@@ -862,7 +896,7 @@ pub fn parse_map_value(text: &str, unit: Option<PixelUnit>, what: &str) -> Resul
     Ok(if q.dim == Dimension::Pure {
         q.si
     } else {
-        q.si / to_si
+        q.in_unit(to_si)
     })
 }
 
@@ -878,7 +912,11 @@ mod map_value_tests {
         assert_eq!(parse_map_value("2.5", mjy, "--noise").unwrap(), 2.5);
         assert!((parse_map_value("3e6Jy/sr", mjy, "--noise").unwrap() - 3.0).abs() < 1e-12);
         let col = Some(PixelUnit::ColumnDensity { to_si: 1e4 });
-        assert!((parse_map_value("2e21cm-2", col, "--floor").unwrap() - 2e21).abs() < 1e6);
+        // A value in the map's own unit, or a power of ten from it, is the decimal given.
+        assert_eq!(parse_map_value("2e21cm-2", col, "--floor").unwrap(), 2e21);
+        assert_eq!(parse_map_value("3e6Jy/sr", mjy, "--noise").unwrap(), 3.0);
+        assert_eq!(parse_map_value("0.3e25m-2", col, "--floor").unwrap(), 3e20);
+        assert_eq!(parse_map_value("7e-3MJy/sr", mjy, "--noise").unwrap(), 0.007);
         assert!(parse_map_value("2e21cm-2", mjy, "--floor").is_err());
     }
 }
