@@ -2031,6 +2031,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         labels_note(in_frame, left_out);
         stretch_note(summary.figure_y_stretch);
         beam_note(summary.figure_beam_px);
+        scale_bar_note(summary.figure_scale_bar_left_out);
     }
     if let Some((leaves, left_out)) = summary.figure_tree_ids {
         tree_note(leaves, left_out);
@@ -2387,6 +2388,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
     beam_note(figs.overlay.beam_px);
+    scale_bar_note(figs.overlay.scale_bar_left_out);
     tree_note(figs.tree_leaves, figs.tree_ids_left_out);
     for p in written {
         if !quiet {
@@ -2411,6 +2413,15 @@ fn beam_note(beam_px: Option<f64>) {
     if let Some(px) = beam_px.filter(|&px| px < cairn::render::LEAST_VISIBLE_BEAM_PX) {
         outln!(
             "figure: the beam is drawn {px:.1} pixels across, too small to be seen at this width; draw a smaller --region or a wider --width to show it"
+        );
+    }
+}
+
+/// Says when the scale bar was left out, the map's frame too narrow for it and its text.
+fn scale_bar_note(left_out: bool) {
+    if left_out {
+        outln!(
+            "figure: the scale bar is left out, the map's frame too narrow for it and its length; draw a wider --width to show it"
         );
     }
 }

@@ -586,6 +586,8 @@ pub struct RunSummary {
     pub figure_y_stretch: Option<f64>,
     /// With a figure: the beam's drawn size in figure pixels (the smaller side of its box).
     pub figure_beam_px: Option<f64>,
+    /// With a figure: its scale bar was left out, the map's frame too narrow for it.
+    pub figure_scale_bar_left_out: bool,
 }
 
 fn sky_names(map: &Map) -> (&'static str, &'static str) {
@@ -1629,6 +1631,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let mut tree_ids = None;
     let mut y_stretch = None;
     let mut beam_px = None;
+    let mut scale_bar_left_out = false;
     if let Some(style) = &o.figure {
         let input = crate::draw::FigureInput {
             map,
@@ -1669,6 +1672,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
         beam_px = figs.overlay.beam_px;
+        scale_bar_left_out = figs.overlay.scale_bar_left_out;
         if tpng.is_empty() {
             // No structure: there is no tree to draw.
             outputs.skip(names::TREE_PNG);
@@ -1779,6 +1783,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         figure_tree_ids: tree_ids,
         figure_y_stretch: y_stretch,
         figure_beam_px: beam_px,
+        figure_scale_bar_left_out: scale_bar_left_out,
     })
 }
 

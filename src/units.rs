@@ -916,7 +916,10 @@ mod map_value_tests {
         assert_eq!(parse_map_value("2e21cm-2", col, "--floor").unwrap(), 2e21);
         assert_eq!(parse_map_value("3e6Jy/sr", mjy, "--noise").unwrap(), 3.0);
         assert_eq!(parse_map_value("0.3e25m-2", col, "--floor").unwrap(), 3e20);
-        assert_eq!(parse_map_value("7e-3MJy/sr", mjy, "--noise").unwrap(), 0.007);
+        assert_eq!(
+            parse_map_value("7e-3MJy/sr", mjy, "--noise").unwrap(),
+            0.007
+        );
         assert!(parse_map_value("2e21cm-2", mjy, "--floor").is_err());
     }
 }

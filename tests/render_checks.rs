@@ -1559,16 +1559,28 @@ fn a_figure_too_narrow_is_refused_with_the_narrowest_width_that_works() {
 /// On a wide map's flat panel (2000 x 100 pixels: 16 times wider than tall at 1600 pixels and
 /// 300 dpi, about 90 pixels tall) the scale bar's text has no room over the bar and stands
 /// beside it: bar and text both inside the frame, apart; so too at 1200 pixels (a panel about
-/// 70 pixels tall). Common practice (a layout check of this project). A panel shorter than the
-/// text itself (900 pixels wide: 29 pixels tall, the text 32) still has it reach past the
-/// frame.
+/// 70 pixels tall), and at 900 pixels, where the panel would be shorter than the text (29
+/// pixels against 32) and is made tall enough for it. At the narrowest width this map's
+/// layout accepts the frame is too narrow for bar and text: both are left out, and said to
+/// be. Common practice (a layout check of this project).
 #[test]
 fn a_flat_panel_keeps_the_scale_bar_text_inside_the_frame() {
     let l = Array2::from_elem((100, 2000), -1);
     let map = smooth_map(100, 2000);
     let mut o = plain_overlay(&map, &l, Vec::new());
     o.scale_bar = Some((300.0, "2 pc".into()));
-    for width in [1600, 1200] {
+    // The narrowest width this map's layout accepts.
+    let narrowest = match overlay_layout(
+        &o,
+        &Style {
+            width_px: render::narrowest_width_px(Style::default().dpi),
+            ..Style::default()
+        },
+    ) {
+        Err(render::RenderError::TooNarrow { needed, .. }) => needed,
+        other => panic!("{:?}", other.map(|l| l.width)),
+    };
+    for width in [1600, 1200, 900] {
         let style = Style {
             width_px: width,
             ..Style::default()
@@ -1596,4 +1608,22 @@ fn a_flat_panel_keeps_the_scale_bar_text_inside_the_frame() {
             "{width}: text {text:?} over the bar {bar:?}"
         );
     }
+    let fig = render::render_map_figure(
+        &o,
+        &Style {
+            width_px: narrowest,
+            ..Style::default()
+        },
+    )
+    .unwrap();
+    assert!(
+        fig.scale_bar_left_out,
+        "{narrowest}: the bar said to be left out"
+    );
+    assert!(
+        !fig.svg.contains("scale-bar") && !fig.svg.contains("aria-label=\"2 pc\""),
+        "{narrowest}: no bar drawn"
+    );
+    let fig = render::render_map_figure(&o, &Style::default()).unwrap();
+    assert!(!fig.scale_bar_left_out && fig.svg.contains("scale-bar"));
 }

@@ -133,6 +133,8 @@ pub struct Layout {
     legend_rows: Vec<Vec<legend::Entry>>,
     /// The scale bar's text stands to its left rather than over it.
     scale_text_beside: bool,
+    /// The scale bar and its text are left out, as the frame is too narrow for them.
+    pub scale_bar_left_out: bool,
 }
 
 impl Layout {
@@ -289,14 +291,19 @@ pub const PANEL_MAX_ASPECT: f64 = 16.0;
 ///   narrowed to keep equal scales, but not to less than 1/[`PANEL_MAX_ASPECT`] of its
 ///   height; a map taller still is drawn into that panel at a smaller scale along y;
 /// * a map wider than [`PANEL_MAX_ASPECT`] times its height gets a panel of the full width and
-///   1/[`PANEL_MAX_ASPECT`] of it in height, drawn at a larger scale along y.
+///   1/[`PANEL_MAX_ASPECT`] of it in height, drawn at a larger scale along y;
+/// * no panel is less than `least_h` tall (room for what is written inside it, the scale
+///   bar's text), the map then drawn at a larger scale along y.
 ///
 /// The third value is false when the scales differ by more than the rounding to whole pixels.
-fn panel_size(avail: f64, rw: usize, rh: f64) -> (f64, f64, bool) {
+fn panel_size(avail: f64, rw: usize, rh: f64, least_h: f64) -> (f64, f64, bool) {
     let rw = rw as f64;
     let natural = (avail * rh / rw).round().max(1.0);
     let max_h = (PANEL_MAX_HEIGHT * avail).floor();
-    let min_h = (avail / PANEL_MAX_ASPECT).ceil().max(1.0);
+    let min_h = (avail / PANEL_MAX_ASPECT)
+        .ceil()
+        .max(least_h.ceil())
+        .max(1.0);
     if natural > max_h {
         let narrowest = (max_h / PANEL_MAX_ASPECT).ceil().clamp(1.0, avail);
         let equal = (max_h * rw / rh).round();
@@ -373,7 +380,19 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             if avail < MIN_PANEL {
                 return Err((left + right + MIN_PANEL).ceil());
             }
-            let (fw, fh, equal) = panel_size(avail, rw, rh as f64 * aspect);
+            // The scale bar's text, beside the bar on the flattest panels (whose width is all
+            // that is available), stays inside the frame with its halo and a gap above and
+            // below, when the frame is wide enough to show the bar at all.
+            let least_h = match &o.scale_bar {
+                Some((len, label))
+                    if len * avail / rw as f64 + m.gap + text::width(label, lfs)
+                        <= avail - 1.2 * fs =>
+                {
+                    text::cap_height(lfs) + 2.0 * (0.16 * fs + m.gap)
+                }
+                _ => 1.0,
+            };
+            let (fw, fh, equal) = panel_size(avail, rw, rh as f64 * aspect, least_h);
             let kx = fw / rw as f64;
             let ky = fh / rh as f64;
             // Check overlaps along each labelled edge.
@@ -466,6 +485,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         legend_top,
         legend_rows: rows,
         scale_text_beside: false,
+        scale_bar_left_out: false,
     };
 
     // Beam in the lower left corner, scale bar in the lower right, inside the frame.
@@ -482,7 +502,15 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         // so that the text too ends an inset inside the frame. A frame too short for the text
         // over the bar (a wide map's flat panel) has the text beside the bar, to its left,
         // both centred on the frame's height.
+        // A frame too narrow for them both (a tall map's slim panel in a narrow figure) has
+        // neither, and the figure says so.
         let over = inset + 0.3 * fs + 0.25 * fs + m.gap + text::cap_height(lfs) + inset;
+        let (bar_w, tw) = (len * kx, text::width(label, lfs));
+        let room = fw - 2.0 * inset;
+        if (fh >= over && bar_w.max(tw) > room) || (fh < over && bar_w + m.gap + tw > room) {
+            lay.scale_bar_left_out = true;
+            return Ok(lay);
+        }
         let (ex, ey) = if fh >= over {
             let overhang = ((text::width(label, lfs) - len * kx) / 2.0).max(0.0);
             (
@@ -726,6 +754,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     let mut sc = Scene::new(lay.width, lay.height, s.dpi, &text::plain(&title));
     sc.clip = Some(lay.frame);
     sc.y_stretch = lay.y_stretch;
+    sc.scale_bar_left_out = lay.scale_bar_left_out;
     let scale = Scale {
         lo: lay.limits.0,
         hi: lay.limits.1,

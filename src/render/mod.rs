@@ -307,6 +307,8 @@ pub struct MapFigure {
     pub y_stretch: Option<f64>,
     /// The beam's drawn size (the smaller side of its box) in figure pixels, if drawn.
     pub beam_px: Option<f64>,
+    /// The scale bar was asked for and left out, the map's frame too narrow for it.
+    pub scale_bar_left_out: bool,
 }
 
 /// A beam drawn smaller than this many figure pixels across (its box's smaller side) is
@@ -323,6 +325,7 @@ pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderErro
         labels_left_out: sc.labels_left_out,
         y_stretch: sc.y_stretch,
         beam_px: sc.beam_px,
+        scale_bar_left_out: sc.scale_bar_left_out,
     })
 }
 

@@ -187,6 +187,8 @@ pub(crate) struct Scene {
     pub y_stretch: Option<f64>,
     /// Map figures: the beam's drawn size, the smaller side of its box in figure pixels.
     pub beam_px: Option<f64>,
+    /// Map figures: the scale bar was left out, the frame too narrow for it.
+    pub scale_bar_left_out: bool,
 }
 
 impl Scene {
@@ -202,6 +204,7 @@ impl Scene {
             labels_left_out: 0,
             y_stretch: None,
             beam_px: None,
+            scale_bar_left_out: false,
         }
     }
 

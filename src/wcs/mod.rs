@@ -233,6 +233,23 @@ impl Wcs {
             }
         };
 
+        // A TAN header with PV cards of index 5 and more carries the distortion polynomial of
+        // the TPV convention under its pre-2012 name (TAN itself takes PVi_0 to PVi_4 only:
+        // Calabretta & Greisen 2002, Table 13; read as TPV by astropy 8.0.2's WCS, following
+        // Shupe et al. 2012, sec. 7). Read as TAN it would put every position far off.
+        if code == "TAN" && sip.is_none() {
+            for ax in [lo, la] {
+                for j in 5..40 {
+                    if num(h, &format!("PV{ax}_{j}"))?.is_some() {
+                        return Err(WcsError(format!(
+                            "CTYPE{lo} = '{}' comes with PV{ax}_{j}, a distortion polynomial of the TPV convention written under the name TAN (TAN takes no PV card past PV{ax}_4), which cairn does not read (it reads SIP); resample the map to an undistorted grid",
+                            ct[lon_axis]
+                        )));
+                    }
+                }
+            }
+        }
+
         // Units and reference point.
         let scale = [unit_scale(h, 1)?, unit_scale(h, 2)?];
         let mut crpix = [0.0; 2];
@@ -981,6 +998,20 @@ mod tests {
             e.contains("names the distortion 'TPV'") && e.contains("reads SIP"),
             "{e}"
         );
+        // TAN with the polynomial cards of TPV (PV1_5 and on), as astropy 8.0.2's WCS reads
+        // such a header (as TPV): refused, not read as TAN.
+        for cards in [
+            &["PV1_5   = 0.002"][..],
+            &["PV2_1   = 1.0", "PV2_10  = 1e-4"][..],
+        ] {
+            let e = with("RA---TAN", "DEC--TAN", cards).unwrap_err().to_string();
+            assert!(
+                e.contains("TPV convention") && e.contains("reads SIP"),
+                "{e}"
+            );
+        }
+        // PVi_0 to PVi_4 are TAN's own (a fiducial point and pole), read as such.
+        assert!(with("RA---TAN", "DEC--TAN", &["PV1_1   = 0.0", "PV1_4   = 90.0"]).is_ok());
         let e = with("RA---TAN-SIP", "DEC--TAN-SIP", &[])
             .unwrap_err()
             .to_string();
