@@ -716,10 +716,12 @@ mod svg_layout;
 
 /// The mass-size plot of the two demo maps (column density and 850 um emission, as a user
 /// would compare them): each line of constant column density and each Bonnor-Ebert line has
-/// its label inside the frame, beside its own line (nearer it than any other line by at least
-/// a letter's size), crossed by no line and clear of the other labels. Read from the SVG.
+/// its label inside the frame, clear of the other labels, and written along its own line
+/// (centred on it, the baseline parallel to it, the line cut under it, clear of every other
+/// line), or, only where no place along the line is clear of the frame and the other lines,
+/// level beside it with its own line clearly the nearest. Read from the SVG.
 #[test]
-fn mass_size_guide_labels_sit_by_their_own_lines() {
+fn mass_size_guide_labels_are_written_along_their_own_lines() {
     let d = tempfile::tempdir().unwrap();
     let maps = std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps");
     for (name, map) in [
@@ -744,7 +746,8 @@ fn mass_size_guide_labels_sit_by_their_own_lines() {
         assert_eq!(code, 0, "{err}");
     }
     // The default width and a wider one (at 800 pixels, 9-point text in 300 dpi leaves no
-    // clear place beside these five crossing lines and the labels take the least crowded).
+    // clear place along or beside these five crossing lines, and the labels take the least
+    // crowded).
     for width in ["1200", "2000"] {
         let out = format!("cmp{width}");
         let (code, _, err) = run(
@@ -756,8 +759,24 @@ fn mass_size_guide_labels_sit_by_their_own_lines() {
         assert_eq!(code, 0, "{err}");
         let svg = std::fs::read_to_string(d.path().join(&out).join("mass_size.svg")).unwrap();
         // Font sizes are fixed in points at 300 dpi: 9 pt text, labels 0.9 of it.
-        let lfs = 0.9 * 9.0 * 300.0 / 72.0;
-        svg_layout::check_guide_labels(&svg, 0.0, 0.5 * lfs, 0.8 * lfs);
+        let fs = 9.0 * 300.0 / 72.0;
+        let lfs = 0.9 * fs;
+        let rules = svg_layout::LabelRules {
+            lfs,
+            margin: 0.24 * fs,
+            clear: 0.29 * fs,
+            on: 0.05 * lfs,
+            degrees: 1.5,
+            near: 0.8 * lfs,
+            beside: 0.5 * lfs,
+        };
+        let placed = svg_layout::check_guide_labels(&svg, rules);
+        // The lines with room along them (most of them) are labelled along themselves.
+        let along = placed
+            .iter()
+            .filter(|(_, p)| matches!(p, svg_layout::Placed::Along(_)))
+            .count();
+        assert!(along >= 3, "{placed:?}");
     }
 }
 

@@ -252,15 +252,267 @@ fn svg_parses_with_a_group_per_series_and_the_guides() {
 #[path = "common/svg_layout.rs"]
 mod svg_layout;
 
-/// The guides' labels on the invented mass-size plot: inside the frame, clear of each other,
-/// crossed by no guide and nearest their own (read back from the SVG).
+/// The label text size of the plots at `dpi`: 9-point text, labels 0.9 of it.
+fn label_size(dpi: f64) -> f64 {
+    0.9 * 9.0 * dpi / 72.0
+}
+
+/// Checks the guide labels of a plot's SVG as a reader sees them (see
+/// `svg_layout::check_guide_labels`) and that every one is written along its own line: inside
+/// the frame by a quarter of 9-point text (as cairn keeps them), apart, its centre within a
+/// twentieth of a letter of its line and its baseline within 1.5 degrees of it, the line cut
+/// under it, and every other guide at least 0.3 of 9-point text from it. Returns the labels'
+/// angles on the page.
+fn check_labels(svg: &str, dpi: f64) -> Vec<f64> {
+    let lfs = label_size(dpi);
+    let fs = lfs / 0.9;
+    let rules = svg_layout::LabelRules {
+        lfs,
+        margin: 0.24 * fs,
+        clear: 0.29 * fs,
+        on: 0.05 * lfs,
+        degrees: 1.5,
+        near: 0.8 * lfs,
+        beside: 0.5 * lfs,
+    };
+    svg_layout::check_guide_labels(svg, rules)
+        .into_iter()
+        .map(|(name, placed)| match placed {
+            svg_layout::Placed::Along(a) => a,
+            svg_layout::Placed::Level => panic!("label {name} is not written along its line"),
+        })
+        .collect()
+}
+
+/// The guides' labels on the invented mass-size plot: written along their own lines, which
+/// rise on the page, so every label is turned (read back from the SVG).
 #[test]
-fn guide_labels_sit_by_their_own_lines() {
+fn guide_labels_are_written_along_their_own_lines() {
     for width in [1100, 1600] {
         let svg = plot_svg(&mass_size_plot(), width, 300.0).unwrap();
-        let lfs = 0.9 * 9.0 * 300.0 / 72.0;
-        svg_layout::check_guide_labels(&svg, 0.0, 0.5 * lfs, 0.8 * lfs);
+        let angles = check_labels(&svg, 300.0);
+        assert_eq!(angles.len(), 3);
+        for a in angles {
+            assert!(
+                a > 5.0 && a < 85.0,
+                "a label at {a} degrees on rising lines"
+            );
+        }
     }
+}
+
+/// Two guides that cross inside the frame, on invented data. `shallow`: two power laws of
+/// slopes 2 and 1.5 on logarithmic axes, crossing in the middle at a small angle on the page,
+/// so that they run close together over a long stretch; otherwise a rising and a falling
+/// straight line on linear axes. Markers crowd the outer quarters of both lines, where labels
+/// would otherwise go, so the labels are drawn towards the crossing.
+fn crossing_plot(shallow: bool) -> Plot {
+    let mut u = Uniform(if shallow { 31 } else { 37 });
+    type Lines = Vec<(&'static str, fn(f64) -> f64)>;
+    let (lines, scale, xr, yr): (Lines, AxisScale, (f64, f64), (f64, f64)) = if shallow {
+        (
+            vec![
+                ("N = 10^{22} cm^{-2}", |x| x * x),
+                ("M_{BE}, 10 K", |x| 10f64.sqrt() * x.powf(1.5)),
+            ],
+            AxisScale::Log10,
+            (1.0, 100.0),
+            (1.0, 1e4),
+        )
+    } else {
+        (
+            vec![("rising line", |x| x), ("falling line", |x| 10.0 - x)],
+            AxisScale::Linear,
+            (0.0, 10.0),
+            (0.0, 10.0),
+        )
+    };
+    // x at a fraction t of the axis.
+    let at = |t: f64| {
+        if shallow {
+            xr.0 * (xr.1 / xr.0).powf(t)
+        } else {
+            xr.0 + t * (xr.1 - xr.0)
+        }
+    };
+    let mut pts = Vec::new();
+    for (_, f) in &lines {
+        for _ in 0..16 {
+            // Along the outer quarters of each line, a little off it.
+            let t = 0.02 + 0.23 * u.next();
+            for t in [t, 1.0 - t] {
+                let x = at(t);
+                let jitter = if shallow {
+                    10f64.powf(0.15 * (u.next() - 0.5))
+                } else {
+                    1.0 + 0.1 * (u.next() - 0.5)
+                };
+                pts.push((x, f(x) * jitter));
+            }
+        }
+    }
+    Plot {
+        x_label: "x".into(),
+        y_label: "y".into(),
+        x_scale: scale,
+        y_scale: scale,
+        x_range: Some(xr),
+        y_range: Some(yr),
+        series: vec![Series {
+            label: "data".into(),
+            points: pts,
+            ..Default::default()
+        }],
+        guides: lines
+            .iter()
+            .map(|(label, f)| Guide {
+                label: (*label).into(),
+                points: (0..=40)
+                    .map(|k| at(k as f64 / 40.0))
+                    .map(|x| (x, f(x)))
+                    .collect(),
+            })
+            .collect(),
+        ..Default::default()
+    }
+}
+
+/// The centres and radii of the markers drawn in an SVG plot (each marker is one subpath of
+/// a `markers` path; its points' box is the marker's).
+fn markers(svg: &str) -> Vec<((f64, f64), f64)> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| {
+            n.has_tag_name("path")
+                && n.attribute("class")
+                    .is_some_and(|c| c.split(' ').any(|c| c == "markers"))
+        })
+        .flat_map(|n| svg_layout::subpaths(n.attribute("d").unwrap()))
+        .map(|ring| {
+            let b = ring.iter().fold(
+                (
+                    f64::INFINITY,
+                    f64::INFINITY,
+                    f64::NEG_INFINITY,
+                    f64::NEG_INFINITY,
+                ),
+                |b, &(x, y)| (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y)),
+            );
+            (
+                (0.5 * (b.0 + b.2), 0.5 * (b.1 + b.3)),
+                0.5 * (b.2 - b.0).max(b.3 - b.1),
+            )
+        })
+        .collect()
+}
+
+/// Guides that cross inside the frame (at a right angle, and at a small one): each label is
+/// on its own line and clear of the other, read from the SVG.
+#[test]
+fn labels_of_crossing_guides_are_each_on_their_own_line() {
+    for shallow in [false, true] {
+        for width in [1100, 1600] {
+            let p = crossing_plot(shallow);
+            let svg = plot_svg(&p, width, 300.0).unwrap();
+            let name = format!(
+                "crossing_{}_{width}",
+                if shallow { "shallow" } else { "square" }
+            );
+            save(&format!("{name}.svg"), svg.as_bytes());
+            save(&format!("{name}.png"), &plot_png(&p, width, 300.0).unwrap());
+            let angles = check_labels(&svg, 300.0);
+            assert_eq!(angles.len(), 2);
+            if !shallow {
+                // The middle of both lines is free of data, so no label touches a marker (nor
+                // its white halo, 0.125 of 9-point text wide).
+                let halo = 0.125 * 9.0 * 300.0 / 72.0;
+                for lab in svg_layout::guide_layout(&svg).labels {
+                    let b = lab.centred_box();
+                    for (c, r) in markers(&svg) {
+                        let (u, v) = lab.own(c);
+                        assert!(
+                            u.abs() > b.2 + r + halo || v.abs() > b.3 + r + halo,
+                            "label {} covers the marker at {c:?}",
+                            lab.name
+                        );
+                    }
+                }
+            }
+            // One line rises, the other falls (square) or both rise (shallow), as drawn.
+            if shallow {
+                assert!(angles.iter().all(|&a| a > 10.0), "{angles:?}");
+            } else {
+                assert!(angles[0] * angles[1] < 0.0, "{angles:?}");
+            }
+        }
+    }
+}
+
+/// The PNG shows a turned label where the SVG puts it: on a plot with one guide and nothing
+/// else in the frame, the dark pixels inside the frame (the label's glyphs) lie within the
+/// label's turned box from the SVG, and their principal axis runs along its baseline.
+#[test]
+fn png_shows_the_label_turned_as_the_svg_does() {
+    let p = Plot {
+        x_label: "x".into(),
+        y_label: "y".into(),
+        x_range: Some((0.0, 10.0)),
+        y_range: Some((0.0, 10.0)),
+        guides: vec![Guide {
+            label: "along a line of slope two".into(),
+            points: vec![(0.0, 0.0), (5.0, 10.0)],
+        }],
+        ..Default::default()
+    };
+    let (w, dpi) = (1100, 300.0);
+    let svg = plot_svg(&p, w, dpi).unwrap();
+    check_labels(&svg, dpi);
+    let l = svg_layout::guide_layout(&svg);
+    let lab = &l.labels[0];
+    let png = image::load_from_memory(&plot_png(&p, w, dpi).unwrap())
+        .unwrap()
+        .to_rgb8();
+    // Inside the frame, clear of its ticks (at most 0.45 of 9-point text long).
+    let inset = 0.5 * 9.0 * dpi / 72.0;
+    let mut dark = Vec::new();
+    for (x, y, px) in png.enumerate_pixels() {
+        let (cx, cy) = (x as f64 + 0.5, y as f64 + 0.5);
+        let inside = cx > l.frame.0 + inset
+            && cx < l.frame.2 - inset
+            && cy > l.frame.1 + inset
+            && cy < l.frame.3 - inset;
+        if inside && px.0.iter().all(|&c| c < 100) {
+            dark.push((cx, cy));
+        }
+    }
+    assert!(dark.len() > 1000, "{} dark pixels", dark.len());
+    let b = lab.centred_box();
+    for &q in &dark {
+        let (u, v) = lab.own(q);
+        assert!(
+            u.abs() <= b.2 + 1.5 && v.abs() <= b.3 + 1.5,
+            "a dark pixel at {q:?} outside the label's turned box"
+        );
+    }
+    let n = dark.len() as f64;
+    let (mx, my) = dark
+        .iter()
+        .fold((0.0, 0.0), |a, q| (a.0 + q.0 / n, a.1 + q.1 / n));
+    let (sxx, syy, sxy) = dark.iter().fold((0.0, 0.0, 0.0), |a, q| {
+        let (dx, dy) = (q.0 - mx, q.1 - my);
+        (a.0 + dx * dx, a.1 + dy * dy, a.2 + dx * dy)
+    });
+    let axis = 0.5 * (2.0 * sxy).atan2(sxx - syy);
+    let (ux, uy) = lab.direction();
+    let along = uy.atan2(ux);
+    let diff = (axis - along).to_degrees();
+    assert!(
+        diff.abs() < 2.0,
+        "ink axis {:.2} degrees off the baseline",
+        diff
+    );
+    // The line rises at about 63 degrees in value, less on the 4:3 frame.
+    assert!((-uy).atan2(ux).to_degrees() > 45.0);
 }
 
 #[test]

@@ -17,15 +17,20 @@
 //!
 //! The SVG holds one `<g>` per series (`id="series-N"`, `class="series style-S"`, the legend
 //! text as `aria-label`) and one `<g id="guides">` with a path per guide, so the figure can be
-//! edited by hand. Each guide's label (in `<g id="guide-labels">`, over the data) sits beside
-//! its own line or on it, the line cut under the label, placed so that its own line is clearly
-//! the nearest, no other line crosses it, it overlaps no other label, and it covers as few
-//! data as the plot allows. Both outputs are byte-identical from run to run.
+//! edited by hand. Each guide's label (in `<g id="guide-labels">`, over the data) is written
+//! along its own line, as in published figures: turned to the line's slope on the page
+//! (reading left to right; in the SVG the glyphs are drawn level in the label's own frame and
+//! turned by the path's `transform`), centred on the line with the line cut under the text,
+//! as near the line's visible end as the data allow, crossed by no other guide, overlapping no
+//! other label, the legend or the notes, and covering as few data as the plot allows. Only
+//! where no place along its line is clear does a label stand level beside its line (or on
+//! it), placed so that its own line is clearly the nearest. Both outputs are byte-identical
+//! from run to run.
 
 use super::RenderError;
 use super::axes::sci_label;
 use super::scene::{
-    Item, Line, Paint, PathData, Rgba, Scene, Seg, num, path_string, stroke_attrs, xml_escape,
+    Item, Line, Paint, PathData, Rgba, Scene, Seg, Turn, num, path_string, stroke_attrs, xml_escape,
 };
 use super::text;
 use super::{state_colour, state_dash};
@@ -60,8 +65,8 @@ pub struct Series {
     pub steps: bool,
 }
 
-/// A thin grey reference line (e.g. constant column density), labelled beside or on itself,
-/// near its visible end where the data leave room.
+/// A thin grey reference line (e.g. constant column density), labelled along itself near its
+/// visible end where the data leave room (level beside it where no place along it is clear).
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Guide {
     pub label: String,
@@ -566,6 +571,9 @@ struct Op {
     clip: bool,
     class: String,
     label: Option<String>,
+    /// Text written along a line: `d` is in the text's own frame, turned onto the page by
+    /// this (the SVG's `transform`).
+    turn: Option<Turn>,
 }
 
 /// A named group of paths (one `<g>` in the SVG).
@@ -604,6 +612,7 @@ impl Group {
             clip,
             class: class.to_string(),
             label: None,
+            turn: None,
         });
     }
     /// Text as outlines; alignment as in the scene's text (`ha` 0 left .. 1 right, `va` 0
@@ -628,6 +637,23 @@ impl Group {
             .path
             .placed(-ha * sh.width, va * sh.ascent, false)
             .placed(x, y, rotate);
+        self.push_text(s, d, halo, None);
+    }
+
+    /// Text at any angle: the box of its ink centred on the turn's place, its baseline turned
+    /// by the turn's angle (counter-clockwise on the page).
+    fn text_along(&mut self, s: &str, size: f64, turn: Turn, halo: Option<f64>) {
+        if s.is_empty() {
+            return;
+        }
+        let (l, t, r, b) = text::ink_bounds(s, size);
+        let d = text::shape(s, size)
+            .path
+            .placed(-0.5 * (l + r), -0.5 * (t + b), false);
+        self.push_text(s, d, halo, Some(turn));
+    }
+
+    fn push_text(&mut self, s: &str, d: PathData, halo: Option<f64>, turn: Option<Turn>) {
         let mut paints = Vec::new();
         if let Some(w) = halo {
             paints.push(Paint::Stroke(Line {
@@ -644,6 +670,7 @@ impl Group {
             clip: false,
             class: "text".into(),
             label: Some(text::plain(s)),
+            turn,
         });
     }
 }
@@ -655,7 +682,10 @@ impl Figure {
         for g in &self.groups {
             for op in &g.ops {
                 sc.items.push(Item::Path {
-                    d: op.d.clone(),
+                    d: match op.turn {
+                        Some(t) => op.d.turned(t),
+                        None => op.d.clone(),
+                    },
                     paints: op.paints.clone(),
                     clip: op.clip,
                     id: None,
@@ -722,6 +752,10 @@ impl Figure {
                     .as_ref()
                     .map(|l| format!(" aria-label=\"{}\"", xml_escape(l)))
                     .unwrap_or_default();
+                let turn = op
+                    .turn
+                    .map(|t| format!(" transform=\"{}\"", t.svg()))
+                    .unwrap_or_default();
                 // A fill with an edge is one element; any other painting (a halo under
                 // text) is one element per paint, in order.
                 let groups: Vec<Vec<&Paint>> = match op.paints.as_slice() {
@@ -731,7 +765,7 @@ impl Figure {
                 for ps in groups {
                     let _ = writeln!(
                         s,
-                        "<path class=\"{}\"{label}{clip} {} d=\"{d}\"/>",
+                        "<path class=\"{}\"{label}{clip}{turn} {} d=\"{d}\"/>",
                         xml_escape(&op.class),
                         paint_attrs(&ps)
                     );
@@ -781,6 +815,18 @@ pub(crate) fn clip_segment(
     r: (f64, f64, f64, f64),
 ) -> Option<((f64, f64), (f64, f64))> {
     let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+    clip_params(a, b, r).map(|(t0, t1)| {
+        (
+            (a.0 + t0 * dx, a.1 + t0 * dy),
+            (a.0 + t1 * dx, a.1 + t1 * dy),
+        )
+    })
+}
+
+/// The part of the segment a-b inside the rectangle (x0, y0, x1, y1) as the fractions of
+/// the way from a to b where it enters and leaves; None when it misses it.
+fn clip_params(a: (f64, f64), b: (f64, f64), r: (f64, f64, f64, f64)) -> Option<(f64, f64)> {
+    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
     let mut t0 = 0.0f64;
     let mut t1 = 1.0f64;
     for (p, q) in [
@@ -802,10 +848,7 @@ pub(crate) fn clip_segment(
             }
         }
     }
-    (t0 <= t1).then_some((
-        (a.0 + t0 * dx, a.1 + t0 * dy),
-        (a.0 + t1 * dx, a.1 + t1 * dy),
-    ))
+    (t0 <= t1).then_some((t0, t1))
 }
 
 /// Darker version of a colour (for error bars, which are thin).
@@ -1044,8 +1087,79 @@ fn corner_box(
     (x, y, w, h)
 }
 
-fn overlaps(a: (f64, f64, f64, f64), b: (f64, f64, f64, f64)) -> bool {
+fn rects_overlap(a: Rect, b: Rect) -> bool {
     a.0 < b.0 + b.2 && b.0 < a.0 + a.2 && a.1 < b.1 + b.3 && b.1 < a.1 + a.3
+}
+
+/// A box turned on the page (a label written along a line, or a level one): its centre,
+/// the unit vector along its length (the reading direction) and its half length and half
+/// height. In its own frame, u runs along the length and v across it (downwards on the page
+/// for a level box), both from the centre.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct TurnedBox {
+    c: (f64, f64),
+    u: (f64, f64),
+    hw: f64,
+    hh: f64,
+}
+
+impl TurnedBox {
+    fn level(r: Rect) -> Self {
+        TurnedBox {
+            c: (r.0 + 0.5 * r.2, r.1 + 0.5 * r.3),
+            u: (1.0, 0.0),
+            hw: 0.5 * r.2,
+            hh: 0.5 * r.3,
+        }
+    }
+    fn grown(self, m: f64) -> Self {
+        TurnedBox {
+            hw: self.hw + m,
+            hh: self.hh + m,
+            ..self
+        }
+    }
+    /// A point of the page in the box's own frame (u, v).
+    fn own(&self, p: (f64, f64)) -> (f64, f64) {
+        let (dx, dy) = (p.0 - self.c.0, p.1 - self.c.1);
+        (dx * self.u.0 + dy * self.u.1, dy * self.u.0 - dx * self.u.1)
+    }
+    /// A point of the box's own frame on the page.
+    fn page(&self, (a, b): (f64, f64)) -> (f64, f64) {
+        (
+            self.c.0 + a * self.u.0 - b * self.u.1,
+            self.c.1 + a * self.u.1 + b * self.u.0,
+        )
+    }
+    /// The box in its own frame: left, top, width, height.
+    fn own_rect(&self) -> Rect {
+        (-self.hw, -self.hh, 2.0 * self.hw, 2.0 * self.hh)
+    }
+    fn corners(&self) -> [(f64, f64); 4] {
+        [(-1.0, -1.0), (1.0, -1.0), (1.0, 1.0), (-1.0, 1.0)]
+            .map(|(a, b)| self.page((a * self.hw, b * self.hh)))
+    }
+    /// Whether a point lies in the box grown by `margin`.
+    fn holds(&self, p: (f64, f64), margin: f64) -> bool {
+        let (a, b) = self.own(p);
+        a.abs() <= self.hw + margin && b.abs() <= self.hh + margin
+    }
+    /// The angle of the reading direction, counter-clockwise on the page, in degrees.
+    fn degrees(&self) -> f64 {
+        libm::atan2(-self.u.1, self.u.0).to_degrees()
+    }
+}
+
+/// Whether two turned boxes overlap: no side of either separates them (the separating axis
+/// theorem for convex shapes).
+fn overlaps(a: TurnedBox, b: TurnedBox) -> bool {
+    let d = (b.c.0 - a.c.0, b.c.1 - a.c.1);
+    let reach = |x: &TurnedBox, n: (f64, f64)| {
+        x.hw * (x.u.0 * n.0 + x.u.1 * n.1).abs() + x.hh * (x.u.0 * n.1 - x.u.1 * n.0).abs()
+    };
+    [a.u, (-a.u.1, a.u.0), b.u, (-b.u.1, b.u.0)]
+        .into_iter()
+        .all(|n| (d.0 * n.0 + d.1 * n.1).abs() < reach(&a, n) + reach(&b, n))
 }
 
 /// The distance from the segment a-b to the box (zero where they meet).
@@ -1077,35 +1191,38 @@ fn segment_box_distance(a: (f64, f64), b: (f64, f64), r: Rect) -> f64 {
         .fold(f64::INFINITY, f64::min)
 }
 
-/// The parts of drawn runs of a line outside a box.
-fn runs_outside(runs: &[Vec<(f64, f64)>], b: Rect) -> Vec<Vec<(f64, f64)>> {
-    let r = (b.0, b.1, b.0 + b.2, b.1 + b.3);
+/// The parts of drawn runs of a line outside a box (tested in the box's own frame, so a
+/// turned box cuts the line along its own sides).
+fn runs_outside(runs: &[Vec<(f64, f64)>], b: &TurnedBox) -> Vec<Vec<(f64, f64)>> {
+    let r = b.own_rect();
+    let r = (r.0, r.1, r.0 + r.2, r.1 + r.3);
     let mut out: Vec<Vec<(f64, f64)>> = Vec::new();
     for run in runs {
         let mut cur: Vec<(f64, f64)> = Vec::new();
         for w in run.windows(2) {
             let (a, c) = (w[0], w[1]);
-            match clip_segment(a, c, r) {
+            match clip_params(b.own(a), b.own(c), r) {
                 None => {
                     if cur.is_empty() {
                         cur.push(a);
                     }
                     cur.push(c);
                 }
-                Some((p, q)) => {
+                Some((t0, t1)) => {
+                    let at = |t: f64| (a.0 + t * (c.0 - a.0), a.1 + t * (c.1 - a.1));
                     // Before the box, then after it.
-                    if p != a {
+                    if t0 > 0.0 {
                         if cur.is_empty() {
                             cur.push(a);
                         }
-                        cur.push(p);
+                        cur.push(at(t0));
                     }
                     if cur.len() > 1 {
                         out.push(std::mem::take(&mut cur));
                     }
                     cur.clear();
-                    if q != c {
-                        cur.push(q);
+                    if t1 < 1.0 {
+                        cur.push(at(t1));
                         cur.push(c);
                     }
                 }
@@ -1118,26 +1235,76 @@ fn runs_outside(runs: &[Vec<(f64, f64)>], b: Rect) -> Vec<Vec<(f64, f64)>> {
     out
 }
 
-/// The distance from drawn runs of a line to a box.
-fn runs_distance(runs: &[Vec<(f64, f64)>], b: Rect) -> f64 {
+/// The distance from drawn runs of a line to a box (in the box's own frame, which keeps
+/// distances).
+fn runs_distance(runs: &[Vec<(f64, f64)>], b: &TurnedBox) -> f64 {
+    let r = b.own_rect();
     runs.iter()
         .flat_map(|run| run.windows(2))
-        .map(|w| segment_box_distance(w[0], w[1], b))
+        .map(|w| segment_box_distance(b.own(w[0]), b.own(w[1]), r))
         .fold(f64::INFINITY, f64::min)
 }
 
 /// How much drawn data a box covers: weighted samples inside it (grown by `margin`).
-fn cover(b: (f64, f64, f64, f64), samples: &[((f64, f64), f64)], margin: f64) -> f64 {
+fn cover(b: &TurnedBox, samples: &[((f64, f64), f64)], margin: f64) -> f64 {
     samples
         .iter()
-        .filter(|((x, y), _)| {
-            *x >= b.0 - margin
-                && *x <= b.0 + b.2 + margin
-                && *y >= b.1 - margin
-                && *y <= b.1 + b.3 + margin
-        })
+        .filter(|(q, _)| b.holds(*q, margin))
         .map(|(_, w)| w)
         .sum()
+}
+
+/// A place for a label written along a line: its centre on the line, the unit vector along
+/// the line there (reading left to right, or upwards on a vertical line), and how far the
+/// line bows away from that direction at the label's ends.
+type AlongPlace = ((f64, f64), (f64, f64), f64);
+
+/// Places along drawn runs of a line for a label `2 hw` long written on it, every `step`
+/// pixels of the line from its end backwards, the last run first, each leaving at least
+/// `lead` pixels of the run beyond both ends of the label (so the line shows on both sides).
+/// The direction is that of the chord between the line's points `hw` before and after the
+/// centre, so it follows the line as drawn on the page; runs too short hold none.
+fn along_places(runs: &[Vec<(f64, f64)>], hw: f64, lead: f64, step: f64) -> Vec<AlongPlace> {
+    let mut out = Vec::new();
+    for run in runs.iter().rev() {
+        let mut cum = vec![0.0];
+        for w in run.windows(2) {
+            let last = cum[cum.len() - 1];
+            cum.push(last + (w[1].0 - w[0].0).hypot(w[1].1 - w[0].1));
+        }
+        let total = cum[cum.len() - 1];
+        if run.len() < 2 || total < 2.0 * (hw + lead) || step <= 0.0 {
+            continue;
+        }
+        // The point `s` pixels along the run.
+        let at = |s: f64| {
+            let j = cum.partition_point(|&c| c <= s).clamp(1, run.len() - 1);
+            let (a, b) = (run[j - 1], run[j]);
+            let len = cum[j] - cum[j - 1];
+            let t = if len > 0.0 {
+                ((s - cum[j - 1]) / len).clamp(0.0, 1.0)
+            } else {
+                0.0
+            };
+            (a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1))
+        };
+        let mut s = total - hw - lead;
+        while s >= hw + lead {
+            let (p, a, b) = (at(s), at(s - hw), at(s + hw));
+            let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+            let len = dx.hypot(dy);
+            if len > 0.0 {
+                let flip = dx < -1e-9 * len || (dx.abs() <= 1e-9 * len && dy > 0.0);
+                let k = if flip { -1.0 } else { 1.0 };
+                let u = (k * (dx / len), k * (dy / len));
+                // The centre's distance from the chord, the bow at the label's ends.
+                let bow = ((p.0 - a.0) * u.1 - (p.1 - a.1) * u.0).abs();
+                out.push((p, u, bow));
+            }
+            s -= step;
+        }
+    }
+    out
 }
 
 fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
@@ -1161,6 +1328,8 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
         |x: f64, y: f64, m: f64| x >= fx - m && x <= fx + fw + m && y >= fy - m && y <= fy + fh + m;
     // Weighted samples of everything drawn in the frame, for placing the legend and notes.
     let mut samples: Vec<((f64, f64), f64)> = Vec::new();
+    // The error bars as drawn, for the guide labels to stay off them where they can.
+    let mut bars: Vec<Vec<(f64, f64)>> = Vec::new();
 
     // Guides, under the data.
     let mut gg = Group::new("guides", "guides", None);
@@ -1252,6 +1421,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                             }
                         }
                         samples.push(((px, ya), 0.5));
+                        bars.push(vec![(px, ya), (px, yb)]);
                         samples.push(((px, yb), 0.5));
                     }
                 }
@@ -1273,6 +1443,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                             }
                         }
                         samples.push(((xa, py), 0.5));
+                        bars.push(vec![(xa, py), (xb, py)]);
                         samples.push(((xb, py), 0.5));
                     }
                 }
@@ -1356,15 +1527,16 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
         (0..4)
             .map(|c| {
                 let b = corner_box(ax.frame, c, w, h, inset);
-                let mut score = cover(b, &samples, r);
+                let tb = TurnedBox::level(b);
+                let mut score = cover(&tb, &samples, r);
                 for (_, cands) in &guide_labels {
                     if let Some(&(x, y, _)) = cands.first()
-                        && cover(b, &[((x, y), 1.0)], 2.0 * fs) > 0.0
+                        && cover(&tb, &[((x, y), 1.0)], 2.0 * fs) > 0.0
                     {
                         score += 0.5;
                     }
                 }
-                if avoid.is_some_and(|a| overlaps(a, b)) {
+                if avoid.is_some_and(|a| rects_overlap(a, b)) {
                     score += 1e9;
                 }
                 (c, b, score)
@@ -1444,40 +1616,150 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
         );
     }
 
-    // Guide labels: each beside its own guide (a corner of the label a little off the line),
-    // or where no such place is clear, on it (the line cut under the label), as near its
-    // visible end as the data allow; always with its own guide clearly the nearest line,
-    // crossed by no other guide, and overlapping no other label, the legend or the notes.
-    // Drawn over the data, which the place avoids where it can.
+    // Guide labels: each written along its own guide, as published figures do: turned to the
+    // guide's slope on the page (reading left to right), centred on it with the line cut
+    // under the text, as near the guide's visible end as the data allow, crossed by no other
+    // guide and overlapping no other label, the legend or the notes. Only where no such place
+    // is clear does a label stand level beside its line (a corner of it a little off the
+    // line) or on it, with its own guide clearly the nearest line. Drawn over the data,
+    // which the place avoids where it can.
     let mut lab = Group::new("guide-labels", "guide-labels", None);
-    let mut taken: Vec<Rect> = legend_box.into_iter().chain(notes_box).collect();
+    let mut taken: Vec<TurnedBox> = legend_box
+        .into_iter()
+        .chain(notes_box)
+        .map(TurnedBox::level)
+        .collect();
     let guide_boxes_from = taken.len();
     // What a label covers: a marker (weight 2) hides a datum, which counts far more than a
-    // stretch of a fitted line or an error bar, which stays readable on either side.
-    let data: Vec<((f64, f64), f64)> = samples
+    // stretch of a fitted line or an error bar (sampled along its length), which stays
+    // readable on either side.
+    let mut data: Vec<((f64, f64), f64)> = samples
         .iter()
-        .filter(|(_, wt)| *wt >= 0.5)
+        .filter(|(_, wt)| *wt >= 1.0)
         .map(|&(q, wt)| (q, if wt >= 2.0 { 3.0 } else { 0.25 * wt }))
         .collect();
+    let mut bar_points = Vec::new();
+    sample_runs(&bars, 0.3 * fs, &mut bar_points);
+    data.extend(bar_points.into_iter().map(|q| (q, 0.125)));
+    // A datum this near a label's ink (its centre within a marker's radius and the halo's
+    // width and a little more) counts as covered: it would touch the text.
+    let near = r + 0.2 * fs;
     let offset = 0.3 * fs;
     let edge = 0.25 * fs;
     // The gap around a label written on its line.
     let cut_pad = 0.2 * fs;
-    let mut cut_out: Vec<Option<Rect>> = vec![None; guide_labels.len()];
+    // How near another guide may pass a label (and farther is better up to a letter's size).
+    let clear = 0.3 * fs;
+    // Places along a guide are tried this far apart, each with this much of the guide shown
+    // beyond the gap on both sides.
+    let step = 0.2 * fs;
+    let lead = cut_pad + 0.5 * fs;
+    let within_frame = |b: &TurnedBox| {
+        b.corners().iter().all(|&(x, y)| {
+            x >= fx + edge && x <= fx + fw - edge && y >= fy + edge && y <= fy + fh - edge
+        })
+    };
+    let mut cut_out: Vec<Option<TurnedBox>> = vec![None; guide_labels.len()];
     // The guides with the fewest places (the shortest in the frame) choose first.
     let mut order: Vec<usize> = (0..guide_labels.len()).collect();
     order.sort_by_key(|&i| guide_labels[i].1.len());
     for gi in order {
         let (label, cands) = &guide_labels[gi];
+        // The nearest any other guide comes to a box, as drawn: a line already cut under its
+        // own label is not drawn there.
+        let other_distance = |b: &TurnedBox| {
+            guide_runs
+                .iter()
+                .enumerate()
+                .filter(|(gj, _)| *gj != gi)
+                .map(|(gj, r)| match &cut_out[gj] {
+                    Some(c) => runs_distance(&runs_outside(r, c), b),
+                    None => runs_distance(r, b),
+                })
+                .fold(f64::INFINITY, f64::min)
+        };
+        // What every place must respect: the frame, the legend, the notes and the other
+        // labels (with their gaps).
+        let crowding = |b: &TurnedBox, gap: Option<&TurnedBox>| {
+            let mut score = 0.0;
+            if taken.iter().any(|t| overlaps(*t, b.grown(edge))) {
+                score += 1e6;
+            }
+            if let Some(g) = gap
+                && cut_out.iter().flatten().any(|c| overlaps(*c, *g))
+            {
+                score += 1e6;
+            }
+            // Nor stacked on another guide's label, which would read as a list.
+            if taken[guide_boxes_from..]
+                .iter()
+                .any(|t| overlaps(*t, b.grown(lfs)))
+            {
+                score += 0.5;
+            }
+            score
+        };
+
+        // Written along the line, centred on it. The ink's box is the label's box.
+        let (il, it, ir, ib) = text::ink_bounds(label, lfs);
+        let (hw, hh) = (0.5 * (ir - il), 0.5 * (ib - it));
+        let mut along: Option<(f64, TurnedBox)> = None;
+        for (k, (c, u, bow)) in along_places(&guide_runs[gi], hw, lead, step)
+            .into_iter()
+            .enumerate()
+        {
+            let b = TurnedBox { c, u, hw, hh };
+            if !within_frame(&b) {
+                continue;
+            }
+            let gap = b.grown(cut_pad);
+            // Covering as little data as possible, then as near the end as possible.
+            let mut score = cover(&b, &data, near) + 0.01 * k as f64 * step / fs;
+            score += crowding(&b, Some(&gap));
+            // Crossed by another guide, or passed so near that the label might read as its.
+            let other = other_distance(&b);
+            if other < clear {
+                score += 1e5;
+            } else if other < lfs {
+                score += (lfs - other) / lfs;
+            }
+            // Its own line, away from the gap, stays off the text too (a guide that turns
+            // back), and runs along the text rather than bowing away from it.
+            if runs_distance(&runs_outside(&guide_runs[gi], &gap), &b) < 0.5 * cut_pad {
+                score += 1e5;
+            }
+            if bow > 0.5 * hh {
+                score += 1e4;
+            }
+            if along.is_none_or(|(s0, _)| score < s0) {
+                along = Some((score, b));
+            }
+        }
+        let write_along = |b: TurnedBox,
+                           lab: &mut Group,
+                           taken: &mut Vec<TurnedBox>,
+                           cut_out: &mut Vec<Option<TurnedBox>>| {
+            let turn = Turn::new(b.c.0, b.c.1, b.degrees());
+            lab.text_along(label, lfs, turn, Some(0.25 * fs));
+            taken.push(b);
+            cut_out[gi] = Some(b.grown(cut_pad));
+        };
+        if let Some((s0, b)) = along
+            && s0 < 1e4
+        {
+            write_along(b, &mut lab, &mut taken, &mut cut_out);
+            continue;
+        }
+
+        // Level, beside the line or on it: for a line rising to the right, down-right of it
+        // (the label's upper left corner near the line, so the text starts at its line) or
+        // up-left of it; for a falling line, up-right or down-left. Or centred on it.
         let w = text::width(label, lfs);
         let (above, below) = text::ink_above_below(label, lfs);
         let h = above + below;
         // (score, box, written on the line)
         let mut best: Option<(f64, Rect, bool)> = None;
         for (k, &(x, y, rising)) in cands.iter().enumerate() {
-            // Beside the line: for a line rising to the right, down-right of it (the label's
-            // upper left corner near the line, so the text starts at its line) or up-left of
-            // it; for a falling line, up-right or down-left. Or centred on it.
             let sides = if rising {
                 [(1.0, 1.0), (-1.0, -1.0), (0.0, 0.0)]
             } else {
@@ -1487,7 +1769,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                 let on_line = side == 2;
                 let cx = x + sx * offset;
                 let cy = y + sy * offset;
-                let b = (
+                let rect = (
                     if on_line {
                         cx - 0.5 * w
                     } else if sx < 0.0 {
@@ -1505,98 +1787,66 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                     w,
                     h,
                 );
-                if b.0 < fx + edge
-                    || b.0 + b.2 > fx + fw - edge
-                    || b.1 < fy + edge
-                    || b.1 + b.3 > fy + fh - edge
-                {
+                let b = TurnedBox::level(rect);
+                if !within_frame(&b) {
                     continue;
                 }
+                let gap = b.grown(cut_pad);
                 // Distances to the lines as drawn: a label on its line is as far from it as
                 // the gap cut around it.
                 let own = if on_line {
                     cut_pad
                 } else {
-                    runs_distance(&guide_runs[gi], b)
+                    runs_distance(&guide_runs[gi], &b)
                 };
-                let padded = (
-                    b.0 - cut_pad,
-                    b.1 - cut_pad,
-                    b.2 + 2.0 * cut_pad,
-                    b.3 + 2.0 * cut_pad,
-                );
-                let other = guide_runs
-                    .iter()
-                    .enumerate()
-                    .filter(|(gj, _)| *gj != gi)
-                    .map(|(gj, r)| {
-                        // A line already cut under its own label is not drawn there.
-                        match cut_out[gj] {
-                            Some(c) => runs_distance(&runs_outside(r, c), b),
-                            None => runs_distance(r, b),
-                        }
-                    })
-                    .fold(f64::INFINITY, f64::min);
-                let mut score = cover(b, &data, r) + 1e-3 * k as f64;
+                let other = other_distance(&b);
+                let mut score = cover(&b, &data, near) + 1e-3 * k as f64;
                 // One side for every label where the data allow, then the other, then on the
                 // line.
                 score += [0.3, 1.0, 0.0][side];
-                let spaced = (b.0 - edge, b.1 - edge, b.2 + 2.0 * edge, b.3 + 2.0 * edge);
-                if taken.iter().any(|t| overlaps(*t, spaced)) {
-                    score += 1e6;
-                }
-                // Nor stacked on another guide's label, which would read as a list.
-                let apart = (b.0 - lfs, b.1 - lfs, b.2 + 2.0 * lfs, b.3 + 2.0 * lfs);
-                if taken[guide_boxes_from..]
-                    .iter()
-                    .any(|t| overlaps(*t, apart))
-                {
-                    score += 1.0;
-                }
+                score += crowding(&b, on_line.then_some(&gap));
                 // Crossed by a line (its own, beside it; another, anywhere).
-                if own < 0.1 * fs || other < 0.3 * fs {
+                if own < 0.1 * fs || other < clear {
                     score += 1e5;
                 }
                 // Nearer another line than clearly its own: ranked by how much nearer.
                 if other < (2.0 * own).max(own + 0.5 * fs) {
                     score += 1e4 + own / other.max(1e-9);
                 }
-                if on_line && cut_out.iter().flatten().any(|c| overlaps(*c, padded)) {
-                    score += 1e6;
-                }
                 if best.is_none_or(|(s0, _, _)| score < s0) {
-                    best = Some((score, b, on_line));
+                    best = Some((score, rect, on_line));
                 }
-            }
-            if best.is_some_and(|(s0, _, _)| s0 == 0.0) {
-                break;
             }
         }
-        if let Some((_, b, on_line)) = best {
-            lab.text(
-                label,
-                b.0,
-                b.1 + above,
-                lfs,
-                0.0,
-                0.0,
-                false,
-                Some(0.25 * fs),
-            );
-            taken.push(b);
-            if on_line {
-                cut_out[gi] = Some((
-                    b.0 - cut_pad,
-                    b.1 - cut_pad,
-                    b.2 + 2.0 * cut_pad,
-                    b.3 + 2.0 * cut_pad,
-                ));
+        // The least bad of both when neither is clear.
+        match (along, best) {
+            (Some((sa, b)), Some((sl, _, _))) if sa <= sl => {
+                write_along(b, &mut lab, &mut taken, &mut cut_out);
             }
+            (Some((_, b)), None) => write_along(b, &mut lab, &mut taken, &mut cut_out),
+            (_, Some((_, b, on_line))) => {
+                lab.text(
+                    label,
+                    b.0,
+                    b.1 + above,
+                    lfs,
+                    0.0,
+                    0.0,
+                    false,
+                    Some(0.25 * fs),
+                );
+                let tb = TurnedBox::level(b);
+                taken.push(tb);
+                if on_line {
+                    cut_out[gi] = Some(tb.grown(cut_pad));
+                }
+            }
+            _ => {}
         }
     }
     for (i, (g, runs)) in p.guides.iter().zip(&guide_runs).enumerate() {
         let d = match cut_out[i] {
-            Some(c) => runs_path(&runs_outside(runs, c)),
+            Some(c) => runs_path(&runs_outside(runs, &c)),
             None => runs_path(runs),
         };
         gg.ops.push(Op {
@@ -1605,6 +1855,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             clip: true,
             class: format!("guide guide-{i}"),
             label: Some(text::plain(&g.label)),
+            turn: None,
         });
     }
 
@@ -1730,6 +1981,104 @@ mod tests {
                 Some((3.5, 0.0))
             ]
         );
+    }
+
+    /// A box of half sizes 50 by 5 turned by `deg` degrees counter-clockwise on the page.
+    fn turned(c: (f64, f64), deg: f64) -> TurnedBox {
+        let a = deg.to_radians();
+        TurnedBox {
+            c,
+            u: (a.cos(), -a.sin()),
+            hw: 50.0,
+            hh: 5.0,
+        }
+    }
+
+    #[test]
+    fn turned_boxes_overlap_only_where_they_meet() {
+        // Two long thin boxes along the same diagonal, side by side 20 pixels apart (their
+        // level bounding boxes overlap, the boxes do not), then 8 apart (less than the sum of
+        // their half heights, 10: they overlap).
+        let a = turned((100.0, 100.0), 45.0);
+        let n = (0.5f64.sqrt(), 0.5f64.sqrt());
+        let b = turned((100.0 + 20.0 * n.0, 100.0 + 20.0 * n.1), 45.0);
+        assert!(!overlaps(a, b) && !overlaps(b, a));
+        let b = turned((100.0 + 8.0 * n.0, 100.0 + 8.0 * n.1), 45.0);
+        assert!(overlaps(a, b) && overlaps(b, a));
+        // Crossing at right angles; and a level box beyond the end of a turned one.
+        assert!(overlaps(a, turned((100.0, 100.0), -45.0)));
+        // The turned box's rightmost corner, and a level box half a pixel to its right.
+        let corner = a.page((50.0, 5.0));
+        let level = TurnedBox::level((corner.0 + 0.5, corner.1 - 2.5, 30.0, 5.0));
+        assert!(!overlaps(a, level));
+        assert!(overlaps(a, level.grown(1.0)));
+        // The level box is the rectangle it was made from.
+        assert_eq!(level.degrees(), 0.0);
+        let c = level.corners();
+        assert!((c[0].0 - (corner.0 + 0.5)).abs() < 1e-12);
+        assert!((c[2].1 - (corner.1 + 2.5)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_turned_box_cuts_a_line_along_its_own_sides() {
+        let b = turned((200.0, 150.0), 30.0);
+        // A line along the box's length through its centre loses exactly the box's length;
+        // one across it, exactly its height.
+        let along = [b.page((-120.0, 0.0)), b.page((120.0, 0.0))];
+        let out = runs_outside(&[along.to_vec()], &b);
+        assert_eq!(out.len(), 2);
+        let cut = |p: (f64, f64)| b.own(p);
+        assert!((cut(out[0][1]).0 + 50.0).abs() < 1e-9 && (cut(out[1][0]).0 - 50.0).abs() < 1e-9);
+        let across = [b.page((10.0, -30.0)), b.page((10.0, 30.0))];
+        let out = runs_outside(&[across.to_vec()], &b);
+        assert!((cut(out[0][1]).1 + 5.0).abs() < 1e-9 && (cut(out[1][0]).1 - 5.0).abs() < 1e-9);
+        // A line passing by is kept whole, and its distance is measured in the box's frame.
+        let by = vec![b.page((-120.0, 12.0)), b.page((120.0, 12.0))];
+        assert_eq!(
+            runs_outside(std::slice::from_ref(&by), &b),
+            vec![by.clone()]
+        );
+        assert!((runs_distance(&[by], &b) - 7.0).abs() < 1e-9);
+        assert!(
+            cover(
+                &b,
+                &[(b.page((49.0, 4.0)), 1.0), (b.page((52.0, 0.0)), 1.0)],
+                0.0
+            ) == 1.0
+        );
+    }
+
+    #[test]
+    fn places_along_a_line_lie_on_it_and_read_left_to_right() {
+        // A straight line drawn from right to left, falling on the page to the left.
+        let run = vec![(400.0, 100.0), (250.0, 175.0), (100.0, 250.0)];
+        let len = 300.0f64.hypot(150.0);
+        let places = along_places(std::slice::from_ref(&run), 60.0, 5.0, 10.0);
+        assert_eq!(places.len(), ((len - 130.0) / 10.0).floor() as usize + 1);
+        for &(c, u, bow) in &places {
+            // On the line (its distance from the line through the run's ends), along it,
+            // reading left to right, straight.
+            let cross = (c.0 - 400.0) * 150.0 / len + (c.1 - 100.0) * 300.0 / len;
+            assert!(cross.abs() < 1e-9, "{c:?}");
+            assert!((u.0 - 300.0 / len).abs() < 1e-12 && (u.1 + 150.0 / len).abs() < 1e-12);
+            assert!(bow < 1e-9);
+        }
+        // The first place is the one nearest the line's end, a half label and the lead from
+        // it.
+        let c = places[0].0;
+        assert!(((c.0 - 100.0).hypot(c.1 - 250.0) - 65.0).abs() < 1e-9);
+        // A vertical line reads upwards; a run shorter than the label holds no place.
+        let up = along_places(&[vec![(50.0, 0.0), (50.0, 300.0)]], 60.0, 0.0, 10.0);
+        assert!(!up.is_empty(), "{up:?}");
+        assert!(up.iter().all(|p| p.1 == (0.0, -1.0)), "{up:?}");
+        assert!(along_places(&[vec![(0.0, 0.0), (125.0, 0.0)]], 60.0, 5.0, 10.0).is_empty());
+        // A bent line bows away from the chord under a label across its corner.
+        let bent = vec![(0.0, 100.0), (100.0, 100.0), (200.0, 0.0)];
+        let at_corner = along_places(&[bent], 50.0, 0.0, 1.0)
+            .into_iter()
+            .map(|p| p.2)
+            .fold(0.0, f64::max);
+        assert!(at_corner > 10.0);
     }
 
     #[test]

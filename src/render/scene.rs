@@ -61,16 +61,27 @@ impl PathData {
         p.close();
         p
     }
-    /// Moves every point by (dx, dy) after turning it by `quarter_turns_ccw` quarter turns
-    /// counter-clockwise as seen on the page, about the origin.
+    /// Moves every point by (dx, dy), after turning it a quarter turn counter-clockwise as
+    /// seen on the page about the origin when `rotate_ccw` (exactly, with no rounding).
     pub fn placed(&self, dx: f64, dy: f64, rotate_ccw: bool) -> Self {
-        let t = |x: f64, y: f64| {
+        self.mapped(|x, y| {
             if rotate_ccw {
                 (dx + y, dy - x)
             } else {
                 (dx + x, dy + y)
             }
-        };
+        })
+    }
+
+    /// Turns every point about the origin by the turn's angle and moves it to the turn's
+    /// place (see [`Turn`]).
+    pub fn turned(&self, t: Turn) -> Self {
+        let (c, s) = t.cos_sin();
+        // Counter-clockwise on the page, whose y axis points down.
+        self.mapped(|x, y| (t.x + c * x + s * y, t.y - s * x + c * y))
+    }
+
+    fn mapped(&self, t: impl Fn(f64, f64) -> (f64, f64)) -> Self {
         PathData(
             self.0
                 .iter()
@@ -97,6 +108,46 @@ impl PathData {
                     Seg::Z => Seg::Z,
                 })
                 .collect(),
+        )
+    }
+}
+
+/// A turn and a move of a path drawn in its own frame (text written along a line): each point
+/// (x, y) of the path is turned by `degrees` counter-clockwise as seen on the page about the
+/// frame's origin, which then goes to (`x`, `y`) on the page. The numbers are held rounded to
+/// the SVG's two decimals, so that the PNG (which draws the turned points) and the SVG (which
+/// writes the path in its frame with this turn as its `transform`) show the same geometry.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Turn {
+    pub x: f64,
+    pub y: f64,
+    pub degrees: f64,
+}
+
+impl Turn {
+    pub fn new(x: f64, y: f64, degrees: f64) -> Self {
+        let r = |v: f64| (v * 100.0).round() / 100.0;
+        Turn {
+            x: r(x),
+            y: r(y),
+            degrees: r(degrees),
+        }
+    }
+
+    /// The cosine and sine of the angle, from the bundled libm so that they are the same
+    /// on every platform.
+    pub fn cos_sin(self) -> (f64, f64) {
+        let a = self.degrees.to_radians();
+        (libm::cos(a), libm::sin(a))
+    }
+
+    /// The SVG `transform` attribute's value: SVG turns clockwise on the page, hence the sign.
+    pub fn svg(self) -> String {
+        format!(
+            "translate({} {}) rotate({})",
+            num(self.x),
+            num(self.y),
+            num(-self.degrees)
         )
     }
 }
@@ -642,4 +693,58 @@ pub(crate) fn encode_png(
             .map_err(|e| RenderError::Encode(e.to_string()))?;
     }
     Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_turn_keeps_shapes_and_a_quarter_turn_is_the_exact_one() {
+        let p = PathData(vec![
+            Seg::M(3.0, -4.0),
+            Seg::L(10.0, 2.0),
+            Seg::Q(1.0, 1.0, -2.0, 5.0),
+            Seg::C(0.5, 0.5, 7.0, -1.0, 2.0, 2.0),
+            Seg::Z,
+        ]);
+        let pts = |d: &PathData| -> Vec<(f64, f64)> {
+            d.0.iter()
+                .flat_map(|s| match *s {
+                    Seg::M(x, y) | Seg::L(x, y) => vec![(x, y)],
+                    Seg::Q(a, b, x, y) => vec![(a, b), (x, y)],
+                    Seg::C(a, b, c, e, x, y) => vec![(a, b), (c, e), (x, y)],
+                    Seg::Z => vec![],
+                })
+                .collect()
+        };
+        // A quarter turn counter-clockwise on the page is the exact one of `placed`.
+        let q = pts(&p.turned(Turn::new(20.0, 30.0, 90.0)));
+        let exact = pts(&p.placed(20.0, 30.0, true));
+        for (a, b) in q.iter().zip(&exact) {
+            assert!((a.0 - b.0).abs() < 1e-12 && (a.1 - b.1).abs() < 1e-12);
+        }
+        // Any turn keeps distances, and 30 degrees counter-clockwise takes the x axis up and
+        // to the right on the page (y down).
+        let t = pts(&p.turned(Turn::new(-5.0, 8.0, 30.0)));
+        let o = pts(&p);
+        for i in 0..o.len() {
+            for j in 0..o.len() {
+                let d0 = (o[i].0 - o[j].0).hypot(o[i].1 - o[j].1);
+                let d1 = (t[i].0 - t[j].0).hypot(t[i].1 - t[j].1);
+                assert!((d0 - d1).abs() < 1e-9);
+            }
+        }
+        let x =
+            PathData(vec![Seg::M(0.0, 0.0), Seg::L(2.0, 0.0)]).turned(Turn::new(0.0, 0.0, 30.0));
+        match x.0[1] {
+            Seg::L(a, b) => assert!((a - 3f64.sqrt()).abs() < 1e-12 && (b + 1.0).abs() < 1e-12),
+            _ => unreachable!("a line stays a line"),
+        }
+        // The SVG's transform says the same (SVG turns clockwise on the page).
+        assert_eq!(
+            Turn::new(12.345, 6.0, 30.004).svg(),
+            "translate(12.35 6) rotate(-30)"
+        );
+    }
 }
