@@ -128,18 +128,21 @@ fn header_bytes(
             "COMMENT   and Astrophysics', volume 376, page 359; bibcode: 2001A&A...376..359H"
         ),
     ];
-    for (card, image) in header.cards().iter().zip(header.to_card_images()) {
+    for card in header.cards() {
         if is_structural(&card.key) {
             continue;
         }
-        // Only printable ASCII may appear in a header (section 4.1.1).
-        if image.len() != 80 || !image.bytes().all(|b| (32..=126).contains(&b)) {
-            return Err(FitsWriteError(format!(
-                "cannot write {shown}: card {} holds characters FITS does not allow in a header",
-                card.key
-            )));
+        // A long string takes CONTINUE cards after its own (section 4.2.1.2).
+        for image in crate::header::card_images(card) {
+            // Only printable ASCII may appear in a header (section 4.1.1).
+            if image.len() != 80 || !image.bytes().all(|b| (32..=126).contains(&b)) {
+                return Err(FitsWriteError(format!(
+                    "cannot write {shown}: card {} holds characters FITS does not allow in a header",
+                    card.key
+                )));
+            }
+            cards.push(image);
         }
-        cards.push(image);
     }
     cards.push(format!("{:<80}", "END"));
     let mut bytes = cards.concat().into_bytes();
@@ -237,15 +240,17 @@ mod tests {
         let mut status = 0;
         // SAFETY: an open FitsFile and a NUL-terminated keyword.
         unsafe { fitsio::sys::ffdkey(f.as_raw(), c"EXTNAME".as_ptr(), &mut status) };
-        for (card, image) in header.cards().iter().zip(header.to_card_images()) {
+        for card in header.cards() {
             if is_structural(&card.key) {
                 continue;
             }
-            let c = std::ffi::CString::new(image).unwrap();
-            let mut status = 0;
-            // SAFETY: an open FitsFile and a NUL-terminated card of 80 characters.
-            unsafe { fitsio::sys::ffprec(f.as_raw(), c.as_ptr(), &mut status) };
-            assert_eq!(status, 0, "card {}", card.key);
+            for image in crate::header::card_images(card) {
+                let c = std::ffi::CString::new(image).unwrap();
+                let mut status = 0;
+                // SAFETY: an open FitsFile and a NUL-terminated card of 80 characters.
+                unsafe { fitsio::sys::ffprec(f.as_raw(), c.as_ptr(), &mut status) };
+                assert_eq!(status, 0, "card {}", card.key);
+            }
         }
         let flat: Vec<T> = data.iter().copied().collect();
         hdu.write_image(&mut f, &flat).unwrap();

@@ -3,7 +3,9 @@
 //! Owns the representation of a header as an ordered list of cards, the parsing rules of the
 //! FITS Standard, Definition of the Flexible Image Transport System (FITS), version 4.0 (IAU
 //! FITS Working Group, 2016; document of 2018 August 13), section 4, for fixed- and
-//! free-format values, and typed look-ups (`get_f64`, `get_str`, ...). It knows nothing of WCS or units:
+//! free-format values, string values continued on `CONTINUE` cards (the long-string convention,
+//! section 4.2.1.2), read as one value and written so, and typed look-ups (`get_f64`,
+//! `get_str`, ...). It knows nothing of WCS or units:
 //! those modules read what they need through [`Header`].
 
 use std::fmt;
@@ -78,8 +80,18 @@ impl Header {
     /// [`Header::parse`] of raw bytes: each 80-byte card is cut first, and a byte outside
     /// printable ASCII (which FITS does not allow in a header, but which Latin-1 comments
     /// bring) reads as `?`, so such a byte never shifts the cards after it.
+    ///
+    /// A string value continued on `CONTINUE` cards (the long-string convention of the FITS
+    /// Standard 4.0, section 4.2.1.2: every part but the last ends in `&`, and each next
+    /// part is the quoted string of a `CONTINUE` card, which has no `=` in column 9) is read
+    /// as one value, the parts' comments joined by a space, and those `CONTINUE` cards are
+    /// taken into it. A `CONTINUE` card that follows no string ending in `&` is commentary, as
+    /// the convention asks of readers; a final `&` with no `CONTINUE` card after it stays in
+    /// the value (as astropy 8.0.2's reader keeps it).
     pub fn parse_bytes(bytes: &[u8]) -> Self {
-        let mut cards = Vec::new();
+        let mut cards: Vec<Card> = Vec::new();
+        // Whether the last card's string value ends in `&` and may be continued.
+        let mut open = false;
         for chunk in bytes.chunks(80) {
             let line: String = chunk
                 .iter()
@@ -94,7 +106,29 @@ impl Header {
             if key == "END" {
                 break;
             }
-            cards.push(parse_card(line));
+            if open
+                && key == "CONTINUE"
+                && let (Some(Value::Str(more)), comment) = parse_value(line.get(8..).unwrap_or(""))
+                && let Some(Card {
+                    value: Some(Value::Str(s)),
+                    comment: c,
+                    ..
+                }) = cards.last_mut()
+            {
+                s.pop();
+                s.push_str(&more);
+                if !comment.is_empty() {
+                    if !c.is_empty() {
+                        c.push(' ');
+                    }
+                    c.push_str(&comment);
+                }
+                open = s.ends_with('&');
+                continue;
+            }
+            let card = parse_card(line);
+            open = matches!(&card.value, Some(Value::Str(s)) if s.ends_with('&'));
+            cards.push(card);
         }
         Header { cards }
     }
@@ -210,10 +244,61 @@ impl Header {
         }
     }
 
-    /// Renders the header as card images (without `END`), each exactly 80 characters.
+    /// Renders the header as card images (without `END`), each exactly 80 characters; a
+    /// string too long for one card takes several ([`card_images`]).
     pub fn to_card_images(&self) -> Vec<String> {
-        self.cards.iter().map(format_card).collect()
+        self.cards.iter().flat_map(card_images).collect()
     }
+}
+
+/// The card images of one card, each exactly 80 characters: one, or for a string value too
+/// long for one card (more than 68 characters once its quotes are doubled), the first part
+/// on the card itself and the rest on `CONTINUE` cards, every part but the last ending in
+/// `&` (the long-string convention, FITS Standard 4.0, section 4.2.1.2; parts of at most 67
+/// characters, a doubled quote never split). The comment goes on the last card, cut to what
+/// fits there.
+pub fn card_images(card: &Card) -> Vec<String> {
+    let long = match &card.value {
+        Some(Value::Str(t)) if card.key.len() <= 8 && t.replace('\'', "''").len() > 68 => {
+            t.replace('\'', "''")
+        }
+        _ => return vec![format_card(card)],
+    };
+    let mut parts: Vec<&str> = Vec::new();
+    let mut rest = long.as_str();
+    while rest.len() > 68 {
+        let mut cut = 67;
+        // A doubled quote stays whole: count the quotes that end the part.
+        let quotes = rest[..cut]
+            .bytes()
+            .rev()
+            .take_while(|&b| b == b'\'')
+            .count();
+        if quotes % 2 == 1 {
+            cut -= 1;
+        }
+        parts.push(&rest[..cut]);
+        rest = &rest[cut..];
+    }
+    parts.push(rest);
+    let last = parts.len() - 1;
+    parts
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            let amp = if i < last { "&" } else { "" };
+            let mut s = if i == 0 {
+                format!("{:<8}= '{p}{amp}'", card.key)
+            } else {
+                format!("CONTINUE  '{p}{amp}'")
+            };
+            if i == last && !card.comment.is_empty() {
+                s.push_str(&format!(" / {}", card.comment));
+            }
+            s.truncate(80);
+            format!("{s:<80}")
+        })
+        .collect()
 }
 
 fn parse_card(line: &str) -> Card {
@@ -387,6 +472,85 @@ mod tests {
         assert_eq!(h.get_str("OBJECT"), Some("it's a test"));
         assert!(h.get("COMMENT").is_none());
         assert!(h.get("AFTER").is_none(), "parsing stops at END");
+    }
+
+    /// The long-string convention (FITS Standard 4.0, section 4.2.1.2): parts ending in `&`
+    /// joined with the strings of the `CONTINUE` cards that follow, comments joined; a
+    /// `CONTINUE` card after a string without `&` stays commentary, and an `&` with no
+    /// `CONTINUE` after it stays in the value. (Against astropy 8.0.2's reader in
+    /// tests/header_reference.rs.)
+    #[test]
+    fn continued_strings_are_read_whole() {
+        let text = [
+            card("BUNIT   = 'MJy/&'"),
+            card("CONTINUE  'sr'"),
+            card("OBJECT  = 'it''s &' / one"),
+            card("CONTINUE  'long  &'  / two"),
+            card("CONTINUE  'indeed'"),
+            card("NOTCONT = 'plain'"),
+            card("CONTINUE  'not part of it'"),
+            card("DANGLING= 'ends in &'"),
+            card("HISTORY x"),
+            card("AFTER   = 3"),
+        ]
+        .concat();
+        let h = Header::parse(&text);
+        assert_eq!(h.get_str("BUNIT"), Some("MJy/sr"));
+        assert_eq!(h.get_str("OBJECT"), Some("it's long  indeed"));
+        let object = h.cards().iter().find(|c| c.key == "OBJECT").unwrap();
+        assert_eq!(object.comment, "one two");
+        assert_eq!(h.get_str("NOTCONT"), Some("plain"));
+        assert_eq!(h.get_str("DANGLING"), Some("ends in &"));
+        assert_eq!(h.get_i64("AFTER"), Some(3));
+        let keys: Vec<&str> = h.cards().iter().map(|c| c.key.as_str()).collect();
+        assert_eq!(
+            keys,
+            [
+                "BUNIT", "OBJECT", "NOTCONT", "CONTINUE", "DANGLING", "HISTORY", "AFTER"
+            ]
+        );
+    }
+
+    /// A string too long for one card is written on CONTINUE cards (every part of at most 67
+    /// characters and an `&`, a doubled quote never split, the comment on the last card), and
+    /// reads back whole; each card image is 80 characters.
+    #[test]
+    fn long_strings_are_written_on_continue_cards() {
+        for value in [
+            "x".repeat(68),
+            "x".repeat(69),
+            format!("{}'z", "y".repeat(66)),
+            format!("{}'''", "q".repeat(65)),
+            "a 'quoted' word ".repeat(12).trim_end().to_string(),
+        ] {
+            let c = Card {
+                key: "LONGKEY".into(),
+                value: Some(Value::Str(value.clone())),
+                comment: "the comment".into(),
+            };
+            let images = card_images(&c);
+            assert!(images.iter().all(|i| i.len() == 80), "{images:?}");
+            let escaped = value.replace('\'', "''");
+            assert_eq!(images.len() > 1, escaped.len() > 68, "{images:?}");
+            for (i, image) in images.iter().enumerate() {
+                let body = image[10..].trim_end();
+                let part = body.split(" / ").next().unwrap().trim();
+                let inner = &part[1..part.len() - 1];
+                assert!(inner.len() <= 68, "{image}");
+                // Quotes inside a part come in pairs.
+                let quotes = inner.bytes().filter(|&b| b == b'\'').count();
+                assert!(quotes % 2 == 0, "{image}");
+                assert_eq!(inner.ends_with('&'), i + 1 < images.len(), "{image}");
+                assert_eq!(image.starts_with("CONTINUE  '"), i > 0, "{image}");
+            }
+            let back = Header::parse(&images.concat());
+            assert_eq!(back.get_str("LONGKEY"), Some(value.as_str()));
+            assert_eq!(back.cards().len(), 1);
+            // The comment goes on the last card, except where a value of 68 characters fills
+            // its one card.
+            let comment = if images.len() == 1 { "" } else { "the comment" };
+            assert_eq!(back.cards()[0].comment, comment, "{images:?}");
+        }
     }
 
     #[test]
