@@ -9,7 +9,10 @@
 //! ([`convert_frame`]: ICRS, FK5 at any Julian equinox, galactic, and from FK4).
 //!
 //! Supported: the linear part as CD matrix, PC + CDELT, or CDELT + CROTA (Paper II sec. 6.1);
-//! CUNIT deg, arcmin, arcsec, mas, rad; the projections AZP, SZP, TAN, STG, SIN (with the
+//! CUNIT deg (also spelt degree, degrees), arcmin, arcsec, mas, rad, without case; CTYPEs
+//! without case (written back in upper case); CTYPEs without a projection code (`RA`, `DEC`,
+//! `GLON`, ...) as longitude and latitude linear in the pixels, as WCSLIB reads them; the
+//! projections AZP, SZP, TAN, STG, SIN (with the
 //! slant parameters, and NCP read as SIN with PV_2 = cot(delta0)), ARC, ZPN, ZEA, AIR, CYP,
 //! CEA, CAR, MER, SFL (and GLS read as SFL with its fiducial point at delta0), PAR, MOL, AIT,
 //! COP, COE, COD, COO, BON, PCO, the spherical cubes TSC and QSC (not the COBE CSC), and
@@ -93,6 +96,9 @@ pub struct Wcs {
     proj: Projection,
     /// SIP distortion polynomials (`-SIP` CTYPEs), applied to the pixel offsets before `lin`.
     sip: Option<sip::Sip>,
+    /// Longitude and latitude linear in the pixels (CTYPEs without a projection code, such
+    /// as `RA` and `DEC`), held as CAR with its fiducial point at the reference point.
+    linear: bool,
     /// Projection parameters of the latitude axis as given (for `header_cards`).
     pv: Params,
     frame: SkyFrame,
@@ -116,16 +122,23 @@ enum AxisKind {
     NotCelestial,
 }
 
+/// What a CTYPE says about one axis, read without case (a lower-case `ra---tan` is read as
+/// `RA---TAN`). A bare coordinate name (`RA`, `DEC`, `GLON`, `GLAT`, ...) is a celestial axis
+/// without a projection, with an empty code: WCSLIB (astropy 8.0.2's WCS) reads such a pair
+/// as longitude and latitude linear in the pixels.
 fn axis_kind(ctype: &str) -> AxisKind {
     let t = ctype.trim().to_ascii_uppercase();
-    if t.len() < 6 || t.as_bytes()[4] != b'-' {
+    let (coord, code) = if !t.is_empty() && t.len() <= 4 && !t.contains('-') {
+        (t.clone(), String::new())
+    } else if t.len() < 6 || t.as_bytes()[4] != b'-' {
         return AxisKind::NotCelestial;
-    }
-    let coord = t[..4].trim_end_matches('-').to_string();
-    let code = t[5..].trim_start_matches('-').trim().to_string();
-    if code.is_empty() {
-        return AxisKind::NotCelestial;
-    }
+    } else {
+        let code = t[5..].trim_start_matches('-').trim().to_string();
+        if code.is_empty() {
+            return AxisKind::NotCelestial;
+        }
+        (t[..4].trim_end_matches('-').to_string(), code)
+    };
     let (is_lon, pair) = match coord.as_str() {
         "RA" => (true, "RA/DEC".to_string()),
         "DEC" => (false, "RA/DEC".to_string()),
@@ -147,13 +160,15 @@ fn unit_scale(h: &Header, axis: usize) -> Result<f64, WcsError> {
     let key = format!("CUNIT{axis}");
     let u = h.get_str(&key).unwrap_or("").trim().to_string();
     match u.to_ascii_lowercase().as_str() {
-        "" | "deg" => Ok(1.0),
+        // `degree` and `degrees` are not the standard's spelling (FITS Standard 4.0, Table 3:
+        // `deg`), but WCSLIB's unit fixes read them as deg, as astropy 8.0.2's WCS does.
+        "" | "deg" | "degree" | "degrees" => Ok(1.0),
         "arcmin" => Ok(1.0 / 60.0),
         "arcsec" => Ok(1.0 / 3600.0),
         "mas" => Ok(1.0 / 3.6e6),
         "rad" => Ok(R2D),
         _ => Err(WcsError(format!(
-            "unknown angular unit in {key} = '{u}' (cairn reads deg, arcmin, arcsec, mas, rad)"
+            "unknown angular unit in {key} = '{u}' (cairn reads deg (or degree, degrees), arcmin, arcsec, mas, rad)"
         ))),
     }
 }
@@ -192,10 +207,22 @@ impl Wcs {
                     )));
                 }
                 if c1 != c2 {
-                    return Err(WcsError(format!(
-                        "CTYPE1 = '{}' and CTYPE2 = '{}' name different projections",
-                        ct[0], ct[1]
-                    )));
+                    let bare = [&kinds[0], &kinds[1]].iter().position(|k| {
+                        matches!(k, AxisKind::Lon { code, .. } | AxisKind::Lat { code, .. } if code.is_empty())
+                    });
+                    return Err(WcsError(match bare {
+                        Some(i) => format!(
+                            "CTYPE{} = '{}' has no projection code but CTYPE{} = '{}' has one; give both axes the same code",
+                            i + 1,
+                            ct[i],
+                            2 - i,
+                            ct[1 - i]
+                        ),
+                        None => format!(
+                            "CTYPE1 = '{}' and CTYPE2 = '{}' name different projections",
+                            ct[0], ct[1]
+                        ),
+                    }));
                 }
                 let lon_axis = if matches!(kinds[0], AxisKind::Lon { .. }) {
                     0
@@ -307,6 +334,17 @@ impl Wcs {
             theta0 = Some(lat0);
             use_offset = true;
         }
+        // Without a projection code, longitude and latitude are linear in the pixels, as
+        // WCSLIB reads such axes: CAR with its fiducial point at the reference point and the
+        // plane offset to it (as GLS is read), its native pole at the celestial pole; the
+        // header's PV cards, LONPOLE and LATPOLE do not apply.
+        let linear = code.is_empty();
+        let (code, phi0, theta0, use_offset) = if linear {
+            pv = [None; 30];
+            ("CAR".to_string(), Some(0.0), Some(lat0), true)
+        } else {
+            (code, phi0, theta0, use_offset)
+        };
         let proj = Projection::new(&code, &pv, phi0, theta0, use_offset).map_err(|e| {
             if e.starts_with("unknown projection code") {
                 WcsError(format!(
@@ -340,26 +378,36 @@ impl Wcs {
             .filter(|e| e.is_finite());
         let frame = Self::frame_of(&pair, radesys.as_deref(), equinox);
 
-        let (alpha_p, delta_p, phi_p) =
-            Self::native_pole(lon0, lat0, proj.phi0, proj.theta0, lonpole, latpole).map_err(
-                |e| {
-                    let given = |k: &str, v: Option<f64>| match v {
-                        Some(v) => format!(", {k} = {v}"),
-                        None => String::new(),
-                    };
-                    WcsError(format!(
-                        "{e} (CRVAL{lo} = {lon0}, CRVAL{la} = {lat0}{}{})",
-                        given("LONPOLE", lonpole),
-                        given("LATPOLE", latpole)
-                    ))
-                },
-            )?;
+        let (alpha_p, delta_p, phi_p) = if linear {
+            // Native pole at the celestial pole, native longitude phi at celestial
+            // longitude lon0 + phi (Paper II eq. 2 with delta_p = 90, phi_p = 0).
+            Ok((lon0 - 180.0, 90.0, 0.0))
+        } else {
+            Self::native_pole(lon0, lat0, proj.phi0, proj.theta0, lonpole, latpole)
+        }
+        .map_err(|e| {
+            let given = |k: &str, v: Option<f64>| match v {
+                Some(v) => format!(", {k} = {v}"),
+                None => String::new(),
+            };
+            WcsError(format!(
+                "{e} (CRVAL{lo} = {lon0}, CRVAL{la} = {lat0}{}{})",
+                given("LONPOLE", lonpole),
+                given("LATPOLE", latpole)
+            ))
+        })?;
         let (sin_dp, cos_dp) = sincosd(delta_p);
+        // The CTYPEs in the standard's upper case (a lower-case `ra---tan` is read, but
+        // written as `RA---TAN`, the spelling WCSLIB reads).
         let proj_code = proj.code.clone();
         let mut ctype = ct.clone();
         for (i, c) in ctype.iter_mut().enumerate() {
-            let prefix = &ct[i][..4];
-            *c = format!("{prefix}-{proj_code}");
+            let upper = ct[i].to_ascii_uppercase();
+            if linear {
+                *c = upper;
+                continue;
+            }
+            *c = format!("{}-{proj_code}", &upper[..4]);
             if sip.is_some() {
                 c.push_str("-SIP");
             }
@@ -373,6 +421,7 @@ impl Wcs {
             inv,
             proj,
             sip,
+            linear,
             pv,
             frame,
             radesys,
@@ -785,14 +834,96 @@ impl Wcs {
         }
     }
 
+    /// Whether pixel (x, y) lies on the sky with a pixel scale there: it has a sky position,
+    /// and a finite, non-zero size along x and y.
+    fn on_sky(&self, x: f64, y: f64) -> bool {
+        if self.pixel_to_sky(x, y).is_none() {
+            return false;
+        }
+        let (sx, sy) = self.pixel_scale(x, y);
+        sx.is_finite() && sy.is_finite() && sx > 0.0 && sy > 0.0
+    }
+
+    /// The pixel at which the scales of a map of `nx` x `ny` pixels are taken (its pixel
+    /// size and solid angle, and so the beam in pixels): the map centre ((nx - 1) / 2,
+    /// (ny - 1) / 2) when it lies on the sky; else the reference pixel (CRPIX) when it lies
+    /// on the map and on the sky (where most projections have their true scale); else the pixel
+    /// centre of the map on the sky nearest the reference pixel (ties to the lower y, then
+    /// the lower x). Maps whose centre lies outside the projection's domain (an all-sky AIT or
+    /// HPX map with its reference point near an edge) take one of the last two. On maps up to
+    /// 1024 pixels on a side every pixel is tried; on larger ones a grid of about 1024 x 1024
+    /// pixels, then every pixel within one grid step of the grid's nearest. `None` when no
+    /// pixel tried lies on the sky.
+    pub fn scale_pixel(&self, nx: usize, ny: usize) -> Option<(f64, f64)> {
+        let (cx, cy) = ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0);
+        if self.on_sky(cx, cy) {
+            return Some((cx, cy));
+        }
+        let (rx, ry) = (self.crpix[0] - 1.0, self.crpix[1] - 1.0);
+        let inside = |v: f64, n: usize| v >= -0.5 && v <= n as f64 - 0.5;
+        if inside(rx, nx) && inside(ry, ny) && self.on_sky(rx, ry) {
+            return Some((rx, ry));
+        }
+        let step = nx.max(ny).div_ceil(1024).max(1);
+        // The pixel on the sky nearest the reference pixel among those of `xs` x `ys`.
+        let nearest = |xs: &[usize], ys: &[usize]| {
+            let mut best: Option<(f64, usize, usize)> = None;
+            for &y in ys {
+                for &x in xs {
+                    let d = (x as f64 - rx).powi(2) + (y as f64 - ry).powi(2);
+                    let better = match best {
+                        None => true,
+                        Some((bd, by, bx)) => d < bd || (d == bd && (y, x) < (by, bx)),
+                    };
+                    if better && self.on_sky(x as f64, y as f64) {
+                        best = Some((d, y, x));
+                    }
+                }
+            }
+            best
+        };
+        let grid = |n: usize| -> Vec<usize> {
+            let mut v: Vec<usize> = (0..n).step_by(step).collect();
+            if v.last() != Some(&(n - 1)) {
+                v.push(n - 1);
+            }
+            v
+        };
+        let (_, mut y, mut x) = nearest(&grid(nx), &grid(ny))?;
+        if step > 1 {
+            let near = |c: usize, n: usize| -> Vec<usize> {
+                (c.saturating_sub(step)..=(c + step).min(n - 1)).collect()
+            };
+            (_, y, x) = nearest(&near(x, nx), &near(y, ny))?;
+        }
+        Some((x as f64, y as f64))
+    }
+
+    /// The reference pixel, zero-based (CRPIX1 - 1, CRPIX2 - 1).
+    pub fn reference_pixel(&self) -> (f64, f64) {
+        (self.crpix[0] - 1.0, self.crpix[1] - 1.0)
+    }
+
     /// The celestial frame.
     pub fn frame(&self) -> &SkyFrame {
         &self.frame
     }
 
-    /// The projection code, e.g. "TAN" (NCP is reported as "SIN", GLS as "SFL").
+    /// The projection code, e.g. "TAN" (NCP is reported as "SIN", GLS as "SFL"); "linear"
+    /// for axes without a projection code (CTYPE `RA` and `DEC`, ...), whose longitude and
+    /// latitude are linear in the pixels.
     pub fn projection(&self) -> &str {
-        &self.proj.code
+        if self.linear {
+            "linear"
+        } else {
+            &self.proj.code
+        }
+    }
+
+    /// Whether longitude and latitude are linear in the pixels (CTYPEs without a projection
+    /// code, read as WCSLIB reads them).
+    pub fn is_linear(&self) -> bool {
+        self.linear
     }
 
     /// The distortion convention applied in pixel space ("SIP"), if any.
@@ -859,7 +990,9 @@ impl Wcs {
         }
         let la = 2 - self.lon_axis;
         let lo = self.lon_axis + 1;
-        for (m, v) in self.pv.iter().enumerate() {
+        // Linear axes take no projection parameters nor poles.
+        let pv: &[Option<f64>] = if self.linear { &[] } else { &self.pv };
+        for (m, v) in pv.iter().enumerate() {
             if let Some(v) = v {
                 out.push(card(
                     format!("PV{la}_{m}"),
@@ -868,33 +1001,35 @@ impl Wcs {
                 ));
             }
         }
-        if self.proj.offset_applied {
+        if !self.linear {
+            if self.proj.offset_applied {
+                out.push(card(
+                    format!("PV{lo}_0"),
+                    Value::Float(1.0),
+                    "fiducial point offset to (0, 0)",
+                ));
+            }
             out.push(card(
-                format!("PV{lo}_0"),
-                Value::Float(1.0),
-                "fiducial point offset to (0, 0)",
+                format!("PV{lo}_1"),
+                Value::Float(self.proj.phi0),
+                "[deg] native longitude of fiducial point",
+            ));
+            out.push(card(
+                format!("PV{lo}_2"),
+                Value::Float(self.proj.theta0),
+                "[deg] native latitude of fiducial point",
+            ));
+            out.push(card(
+                "LONPOLE".into(),
+                Value::Float(self.phi_p),
+                "[deg] native longitude of celestial pole",
+            ));
+            out.push(card(
+                "LATPOLE".into(),
+                Value::Float(self.delta_p),
+                "[deg] celestial latitude of native pole",
             ));
         }
-        out.push(card(
-            format!("PV{lo}_1"),
-            Value::Float(self.proj.phi0),
-            "[deg] native longitude of fiducial point",
-        ));
-        out.push(card(
-            format!("PV{lo}_2"),
-            Value::Float(self.proj.theta0),
-            "[deg] native latitude of fiducial point",
-        ));
-        out.push(card(
-            "LONPOLE".into(),
-            Value::Float(self.phi_p),
-            "[deg] native longitude of celestial pole",
-        ));
-        out.push(card(
-            "LATPOLE".into(),
-            Value::Float(self.delta_p),
-            "[deg] celestial latitude of native pole",
-        ));
         if let Some(s) = &self.sip {
             out.extend(s.cards());
         }
@@ -919,6 +1054,48 @@ impl Wcs {
         }
         out
     }
+}
+
+/// Whether `coord` (upper case, without hyphens) names a celestial coordinate: `RA`, `DEC`,
+/// or a pair's `xLON`/`xLAT` or `xyLN`/`xyLT` (Paper II sec. 3.1).
+fn is_sky_coordinate(coord: &str) -> bool {
+    matches!(coord, "RA" | "DEC")
+        || (coord.len() == 4
+            && (coord.ends_with("LON")
+                || coord.ends_with("LAT")
+                || coord.ends_with("LN")
+                || coord.ends_with("LT")))
+}
+
+/// Why the first two axes of a header that [`Wcs::from_header`] reads as not celestial may
+/// still have been meant as the sky: a CTYPE that names a sky coordinate but no projection
+/// code after its hyphens (`RA---`), or one not in the standard form of four characters for
+/// the coordinate, padded with hyphens, then the projection code (`RA--TAN`). A sentence with
+/// the fix, or `None` when the CTYPEs name no sky coordinate.
+pub fn why_not_celestial(h: &Header) -> Option<String> {
+    for i in 1..=2 {
+        let key = format!("CTYPE{i}");
+        let Some(orig) = h.get_str(&key) else {
+            continue;
+        };
+        let t = orig.trim().to_ascii_uppercase();
+        let Some((coord, rest)) = t.split_once('-') else {
+            continue;
+        };
+        if !is_sky_coordinate(coord) {
+            continue;
+        }
+        let what = if rest.trim_start_matches('-').trim().is_empty() {
+            "names a sky coordinate but no projection code after its hyphens"
+        } else {
+            "names a sky coordinate but is not in the standard form (the coordinate padded with hyphens to four characters, then the projection code)"
+        };
+        return Some(format!(
+            "{key} = '{}' {what}, so the map has no celestial WCS and is read in pixels; set CTYPE1 and CTYPE2 to the map's projection, such as 'RA---TAN' and 'DEC--TAN' or 'GLON-CAR' and 'GLAT-CAR' (or 'RA' and 'DEC' for longitude and latitude linear in the pixels)",
+            orig.trim()
+        ));
+    }
+    None
 }
 
 /// Whether `key` is one of the keywords of a celestial WCS (FITS WCS Papers I and II, and
@@ -1098,6 +1275,156 @@ mod tests {
         );
     }
 
+    /// CTYPEs that name sky coordinates without a usable projection code: bare names are read
+    /// as linear axes (as WCSLIB reads them; their positions are checked against astropy in
+    /// tests/wcs_astropy.rs) and written back as such, without projection parameters or poles;
+    /// hyphens without a code, or a code out of place, give no WCS and a sentence saying why
+    /// and what to set; a bare name beside a projected axis is refused, naming both.
+    #[test]
+    fn ctypes_without_a_projection_code() {
+        let base = ["CDELT1  = -0.01", "CDELT2  = 0.01", "CRVAL2  = 30.0"];
+        let with = |c1: &str, c2: &str| {
+            let mut cards = vec![format!("CTYPE1  = '{c1}'"), format!("CTYPE2  = '{c2}'")];
+            cards.extend(base.iter().map(|s| s.to_string()));
+            let refs: Vec<&str> = cards.iter().map(String::as_str).collect();
+            header(&refs)
+        };
+        let w = Wcs::from_header(&with("GLON", "GLAT")).unwrap().unwrap();
+        assert!(w.is_linear() && w.projection() == "linear");
+        let cards = w.header_cards();
+        let keys: Vec<&str> = cards.iter().map(|c| c.key.as_str()).collect();
+        assert!(
+            !keys
+                .iter()
+                .any(|k| k.starts_with("PV") || k.ends_with("POLE")),
+            "{keys:?}"
+        );
+        let ctype1 = cards.iter().find(|c| c.key == "CTYPE1").unwrap();
+        assert_eq!(ctype1.value, Some(Value::Str("GLON".into())));
+        for (c1, c2, says) in [
+            (
+                "RA---",
+                "DEC--",
+                "CTYPE1 = 'RA---' names a sky coordinate but no projection code",
+            ),
+            (
+                "RA--TAN",
+                "DEC-TAN",
+                "CTYPE1 = 'RA--TAN' names a sky coordinate but is not in the standard form",
+            ),
+        ] {
+            let h = with(c1, c2);
+            assert!(Wcs::from_header(&h).unwrap().is_none(), "{c1}");
+            let why = why_not_celestial(&h).unwrap();
+            assert!(
+                why.starts_with(says) && why.contains("such as 'RA---TAN' and 'DEC--TAN'"),
+                "{why}"
+            );
+        }
+        assert!(why_not_celestial(&with("FREQ", "STOKES")).is_none());
+        let e = Wcs::from_header(&with("RA", "DEC--TAN"))
+            .unwrap_err()
+            .to_string();
+        assert_eq!(
+            e,
+            "CTYPE1 = 'RA' has no projection code but CTYPE2 = 'DEC--TAN' has one; give both axes the same code"
+        );
+    }
+
+    /// A lower-case CTYPE is read as its upper-case spelling (the same sky) and written in
+    /// upper case, the spelling WCSLIB reads (astropy 8.0.2 refuses the lower case:
+    /// tests/header_reference.rs checks both against it).
+    #[test]
+    fn lower_case_ctypes_are_written_in_upper_case() {
+        let cards = |c1: &str, c2: &str| {
+            header(&[
+                &format!("CTYPE1  = '{c1}'"),
+                &format!("CTYPE2  = '{c2}'"),
+                "CDELT1  = -0.01",
+                "CDELT2  = 0.01",
+                "CRVAL1  = 83.0",
+                "CRVAL2  = -5.0",
+                "A_ORDER = 2",
+                "B_ORDER = 2",
+            ])
+        };
+        for (lower, upper) in [
+            (["ra---tan", "dec--tan"], ["RA---TAN", "DEC--TAN"]),
+            (["glon-car", "Glat-Car"], ["GLON-CAR", "GLAT-CAR"]),
+            (
+                ["ra---tan-sip", "dec--tan-sip"],
+                ["RA---TAN-SIP", "DEC--TAN-SIP"],
+            ),
+        ] {
+            let w = Wcs::from_header(&cards(lower[0], lower[1]))
+                .unwrap()
+                .unwrap();
+            let u = Wcs::from_header(&cards(upper[0], upper[1]))
+                .unwrap()
+                .unwrap();
+            assert_eq!(w.pixel_to_sky(3.0, -7.0), u.pixel_to_sky(3.0, -7.0));
+            let hc = w.header_cards();
+            for (i, want) in upper.iter().enumerate() {
+                let c = hc
+                    .iter()
+                    .find(|c| c.key == format!("CTYPE{}", i + 1))
+                    .unwrap();
+                assert_eq!(c.value, Some(Value::Str(want.to_string())), "{lower:?}");
+            }
+        }
+    }
+
+    /// The pixel where a map's scales are taken: the centre when on the sky; else the
+    /// reference pixel when on the map; else the pixel on the sky nearest it, on a map larger
+    /// than 1024 pixels too (there found on a grid, then refined). A property of the rule
+    /// (its values against astropy are in tests/wcs_astropy.rs).
+    #[test]
+    fn scale_pixel_rule() {
+        let ait = |crpix1: f64, n: usize, cdelt: f64| {
+            header(&[
+                "CTYPE1  = 'GLON-AIT'",
+                "CTYPE2  = 'GLAT-AIT'",
+                &format!("CRPIX1  = {crpix1}"),
+                &format!("CRPIX2  = {}", n as f64 / 2.0 + 0.5),
+                &format!("CDELT1  = {}", -cdelt),
+                &format!("CDELT2  = {cdelt}"),
+            ])
+        };
+        // Centre on the sky.
+        let w = Wcs::from_header(&ait(100.5, 200, 1.2)).unwrap().unwrap();
+        assert_eq!(w.scale_pixel(200, 200), Some((99.5, 99.5)));
+        // Centre off the sky, reference pixel on the map.
+        let w = Wcs::from_header(&ait(10.5, 200, 2.0)).unwrap().unwrap();
+        assert!(w.pixel_to_sky(99.5, 99.5).is_none());
+        assert_eq!(w.scale_pixel(200, 200), Some((9.5, 99.5)));
+        // Reference pixel off the map: the nearest pixel on the sky, checked against every
+        // pixel by brute force; and on a map of 3000 pixels a side the same pixel (there
+        // found on a grid of 3-pixel steps, then refined).
+        for (n, cdelt) in [(200usize, 1.2), (3000, 0.08)] {
+            let w = Wcs::from_header(&ait(-(n as f64) * 0.3, n, cdelt))
+                .unwrap()
+                .unwrap();
+            let (rx, ry) = w.reference_pixel();
+            let got = w.scale_pixel(n, n).unwrap();
+            assert!(w.pixel_to_sky(got.0, got.1).is_some());
+            let d = |x: f64, y: f64| (x - rx).powi(2) + (y - ry).powi(2);
+            // Every pixel of the rows and columns near the reference pixel's nearest.
+            let best = (0..n)
+                .flat_map(|y| (0..n.min(60)).map(move |x| (x as f64, y as f64)))
+                .filter(|&(x, y)| w.pixel_to_sky(x, y).is_some())
+                .min_by(|a, b| d(a.0, a.1).total_cmp(&d(b.0, b.1)))
+                .unwrap();
+            assert_eq!(
+                d(got.0, got.1),
+                d(best.0, best.1),
+                "n = {n}: {got:?} {best:?}"
+            );
+        }
+        // No pixel on the sky.
+        let w = Wcs::from_header(&ait(-1000.0, 50, 1.2)).unwrap().unwrap();
+        assert_eq!(w.scale_pixel(50, 50), None);
+    }
+
     #[test]
     fn frame_defaults_follow_paper_ii() {
         let frame = |extra: &[&str]| {
@@ -1168,7 +1495,7 @@ mod tests {
         let e = Wcs::from_header(&h).unwrap_err().to_string();
         assert_eq!(
             e,
-            "unknown angular unit in CUNIT1 = 'furlong' (cairn reads deg, arcmin, arcsec, mas, rad)"
+            "unknown angular unit in CUNIT1 = 'furlong' (cairn reads deg (or degree, degrees), arcmin, arcsec, mas, rad)"
         );
         let h = header(&["CTYPE1  = 'RA---COP'", "CTYPE2  = 'DEC--COP'"]);
         let e = Wcs::from_header(&h).unwrap_err().to_string();

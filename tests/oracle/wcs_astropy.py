@@ -20,6 +20,11 @@ For each header, with astropy.wcs.WCS (origin 0 = cairn's zero-based pixels):
   (about 1e-12 where the projection's distortion varies on a scale of a radian); round-off
   is about 1e-15 rad / s = 1e-12 relative.
 
+scale_pixel.json: two maps whose centre lies off the sky (outside the projection's domain),
+with the pixel where cairn's rule takes their scales (the reference pixel, or the pixel on
+the sky nearest it by astropy's pixel -> sky of every pixel), and the stencil's scales and
+solid angle there.
+
 Frame conversions ICRS <-> galactic <-> FK5 (equinoxes J2000, J1975, J2030), and from FK4
 (equinoxes B1950, B1975) to those, come from astropy.coordinates.SkyCoord on a set of invented
 positions.
@@ -221,7 +226,70 @@ def invented_headers():
                                     (80.5, 100.5), (-27.5, 201.375), [
         ("CD1_1", 1.8e-3), ("CD1_2", 2.0e-4), ("CD2_1", -2.5e-4), ("CD2_2", -1.9e-3),
         ("A_ORDER", 3)] + a + [("B_ORDER", 3)] + b)
+    # CUNIT spelt 'degree' and 'DEGREES': WCSLIB's unit fixes (as astropy applies them) read
+    # both as deg.
+    h["tan_cunit_degree"] = simple((120, 100), t(eq, "TAN"), (60.5, 50.5), (83.8125, -5.375),
+                                   cdelt=(-0.002, 0.002), cunit=("degree", "DEGREES"))
+    # CTYPEs without a projection code: WCSLIB reads longitude and latitude linear in the
+    # pixels (a CD matrix, and a reference latitude away from the equator, where a pixel's
+    # size on the sky along longitude shrinks by cos(latitude)).
+    h["linear_radec"] = simple((200, 150), ("RA", "DEC"), (100.5, 75.5), (83.8125, -5.375),
+                               [("RADESYS", "ICRS")], cdelt=(-0.01, 0.01))
+    h["linear_glon_glat_cd"] = simple((200, 150), ("GLON", "GLAT"), (100.5, 75.5), (30.0, 60.0),
+                                      [("CD1_1", -0.02), ("CD1_2", 0.005), ("CD2_1", 0.004),
+                                       ("CD2_2", 0.02)])
     return {k: cards_of(v) for k, v in h.items()}
+
+
+def off_sky_centre_maps():
+    """Maps whose centre pixel lies outside the projection's domain: an AIT galactic map
+    with its reference pixel off the map's left edge, and an HPX map with its reference pixel
+    on the map. For each, astropy's pixel -> sky of the map centre (NaN: off the sky) and of
+    every pixel centre; the pixel where cairn takes the map's scales by its rule (the centre
+    when on the sky, else the reference pixel when on the map and the sky, else the pixel
+    centre with a finite position nearest the reference pixel, ties to the lower y, then the
+    lower x); its position, and the pixel scales and solid angle there by the five-point
+    stencil of local_jacobian."""
+    maps = {
+        "ait_centre_off_sky": simple((200, 200), ("GLON-AIT", "GLAT-AIT"), (-60.0, 100.5),
+                                     (0.0, 0.0), cdelt=(-1.2, 1.2)),
+        "hpx_centre_off_sky": simple((200, 200), ("GLON-HPX", "GLAT-HPX"), (20.5, 20.5),
+                                     (0.0, 0.0), cdelt=(-1.0, 1.0)),
+    }
+    out = {}
+    for name, pairs in maps.items():
+        cards = cards_of(pairs)
+        w = WCS(fits.Header.fromstring("".join(cards)))
+        nx, ny = pairs[1][1], pairs[2][1]
+        cx, cy = (nx - 1) / 2, (ny - 1) / 2
+        rx, ry = w.wcs.crpix[0] - 1, w.wcs.crpix[1] - 1
+        yy, xx = np.mgrid[0:ny, 0:nx]
+        lon, lat = pix2world(w, xx.ravel(), yy.ravel())
+        on = np.isfinite(lon) & np.isfinite(lat)
+        clon, clat = pix2world(w, [cx], [cy])
+        assert not np.isfinite(clon[0]), name
+        rlon, rlat = pix2world(w, [rx], [ry])
+        if -0.5 <= rx <= nx - 0.5 and -0.5 <= ry <= ny - 0.5 and np.isfinite(rlon[0]):
+            x, y, plon, plat = rx, ry, rlon[0], rlat[0]
+        else:
+            d2 = (xx.ravel() - rx) ** 2 + (yy.ravel() - ry) ** 2
+            order = np.lexsort((xx.ravel(), yy.ravel(), d2))
+            best = next(i for i in order if on[i])
+            x, y = float(xx.ravel()[best]), float(yy.ravel()[best])
+            plon, plat = lon[best], lat[best]
+        jx, jy = local_jacobian(w, x, y)
+        out[name] = {
+            "cards": cards,
+            "nx": nx, "ny": ny,
+            "centre_lon_lat": [clon[0], clat[0]],
+            "fraction_on_sky": float(on.mean()),
+            "scale_pixel": [x, y],
+            "lon": float(plon), "lat": float(plat),
+            "solid_angle_sr": float(np.linalg.norm(np.cross(jx, jy))),
+            "scale_x_deg": float(np.degrees(np.linalg.norm(jx))),
+            "scale_y_deg": float(np.degrees(np.linalg.norm(jy))),
+        }
+    return out
 
 
 def astropy_map_headers():
@@ -394,6 +462,10 @@ def main():
     write_json(os.path.join(base, "projections.json"), {
         "source": f"astropy {astropy.__version__} astropy.wcs (WCSLIB), origin=0",
         "headers": results,
+    })
+    write_json(os.path.join(base, "scale_pixel.json"), {
+        "source": f"astropy {astropy.__version__} astropy.wcs (WCSLIB), origin=0",
+        "maps": off_sky_centre_maps(),
     })
     write_json(os.path.join(base, "frames.json"), {
         "source": f"astropy {astropy.__version__} astropy.coordinates.SkyCoord",
