@@ -8,7 +8,8 @@
 //! with BSCALE/BZERO applied and BLANK or NaN turned into missing pixels (FITS Standard 4.0,
 //! sections 4.4 and 5), squeezing of length-1 axes and the choice of one plane of a cube, and
 //! the reading of the beam (BMAJ/BMIN/BPA, or the AIPS `HISTORY` card convention) and of the
-//! wavelength (RESTFRQ/RESTFREQ, a FREQ or WAVE axis, WAVELEN).
+//! wavelength (a FREQ or WAVE axis, RESTFRQ/RESTFREQ/FREQ/OBSFREQ, WAVELEN/WAVELNTH with the
+//! unit its comment gives, section 4.3.2), a header wavelength outside 1 um to 10 m not used.
 //!
 //! FITS Standard 4.0 here is the Definition of the Flexible Image Transport System (FITS),
 //! version 4.0 (IAU FITS Working Group, 2016; document of 2018 August 13).
@@ -699,8 +700,32 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
             "RADESYS = '{sys}' is not a reference system FITS defines (ICRS, FK5, FK4, FK4-NO-E or GAPPT): positions are given as read, in the map's own frame, and not converted to any other; correct RADESYS if the map is in one of those"
         ));
     }
-    if wcs.is_none() {
-        warnings.push("the map has no celestial WCS: positions and sizes are in pixels, and anything that needs sky units will say so".to_string());
+    let ctypes = [1, 2].map(|i| {
+        header
+            .get_str(&format!("CTYPE{i}"))
+            .unwrap_or("")
+            .trim()
+            .to_string()
+    });
+    match &wcs {
+        None => warnings.push(match crate::wcs::why_not_celestial(&header) {
+            Some(why) => format!("{why}; positions and sizes are in pixels until then"),
+            None => "the map has no celestial WCS: positions and sizes are in pixels, and anything that needs sky units will say so".to_string(),
+        }),
+        Some(w) if w.is_linear() => warnings.push(format!(
+            "CTYPE1 = '{}' and CTYPE2 = '{}' carry no projection code: cairn reads them as WCSLIB (astropy.wcs) does, as longitude and latitude linear in the pixels; if the map was made with a projection, set its code (such as 'RA---TAN' and 'DEC--TAN')",
+            ctypes[0], ctypes[1]
+        )),
+        Some(_) if ctypes.iter().any(|c| c.chars().any(|ch| ch.is_ascii_lowercase())) => {
+            warnings.push(format!(
+                "CTYPE1 = '{}' and CTYPE2 = '{}' are in lower case, which WCSLIB (astropy.wcs) does not read: cairn reads them as '{}' and '{}' and writes its outputs so",
+                ctypes[0],
+                ctypes[1],
+                ctypes[0].to_ascii_uppercase(),
+                ctypes[1].to_ascii_uppercase()
+            ))
+        }
+        Some(_) => {}
     }
 
     // Beam.
@@ -1444,15 +1469,25 @@ pub fn plane_wavelength(
             "axis {axis} (CTYPE{axis} = '{ctype}') is coupled to other axes by the PC or CD matrix, so the wavelength varies across the map; cairn uses its value at the reference pixel of those axes"
         ));
     }
-    Some(Some(if freq { units::C_LIGHT / v } else { v }))
+    let m = if freq { units::C_LIGHT / v } else { v };
+    if !plausible_wavelength(m) {
+        warnings.push(format!(
+            "axis {axis} (CTYPE{axis} = '{ctype}') gives plane {plane} a wavelength of {}, outside 1 um to 10 m (300 THz to 30 MHz) where dust continuum maps lie, so it is not used (check CUNIT{axis}: without it the axis is in {}); give --wavelength, such as 850um",
+            describe_length(m),
+            if freq { "Hz" } else { "m" }
+        ));
+        return Some(None);
+    }
+    Some(Some(m))
 }
 
 /// Reads the wavelength in metres from the header: a length-1 spectral axis with CTYPEn FREQ
 /// or WAVE (its value at its one pixel, p = 1, as [`plane_wavelength`] works it out, so a
 /// CRPIXn other than 1 counts as it does in astropy.wcs), else RESTFRQ/RESTFREQ/FREQ/OBSFREQ
-/// (Hz), else WAVELEN/WAVELNTH with a unit in its comment. The axis comes first, as for the
-/// planes of a cube: it is where the map was observed, while a rest frequency belongs to a
-/// spectral line.
+/// (Hz), else WAVELEN/WAVELNTH with the unit its comment gives (`keyword_wavelength`). The
+/// axis comes first, as for the planes of a cube: it is where the map was observed, while a
+/// rest frequency belongs to a spectral line. A wavelength outside [`WAVELENGTH_RANGE_M`] is
+/// not used (the next keyword is tried), with a warning when no keyword gives one.
 pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
     // What the axis says about itself: kept with its value, or, when it gives none, kept
     // only if no keyword below gives one either.
@@ -1474,8 +1509,122 @@ pub fn wavelength_from_header(h: &Header, warnings: &mut Vec<String>) -> Option<
     from_keywords
 }
 
+/// The wavelengths a header may give, in metres: 1 um to 10 m (300 THz to 30 MHz), where
+/// dust continuum maps lie, the range `--wavelength` and `--opacity-frequency` take. A
+/// header value outside it (a frequency in GHz where FITS asks for Hz, a wavelength in nm
+/// read as um) is not used, with a warning naming the keyword.
+pub const WAVELENGTH_RANGE_M: (f64, f64) = (1e-6, 10.0);
+
+/// Whether a wavelength in metres lies in [`WAVELENGTH_RANGE_M`].
+fn plausible_wavelength(m: f64) -> bool {
+    (WAVELENGTH_RANGE_M.0..=WAVELENGTH_RANGE_M.1).contains(&m)
+}
+
+/// A length as people read it: `850 um`, `1.3 mm`, `3 m`, `1303 km`.
+fn describe_length(m: f64) -> String {
+    let (v, u) = if m >= 1e3 {
+        (m / 1e3, "km")
+    } else if m >= 1.0 {
+        (m, "m")
+    } else if m >= 1e-3 {
+        (m * 1e3, "mm")
+    } else if m >= 1e-6 {
+        (m * 1e6, "um")
+    } else {
+        (m * 1e9, "nm")
+    };
+    // Four significant digits.
+    let decimals = (3 - v.log10().floor() as i32).max(0) as usize;
+    let t = format!("{v:.decimals$}");
+    let t = if t.contains('.') {
+        t.trim_end_matches('0').trim_end_matches('.')
+    } else {
+        &t
+    };
+    format!("{t} {u}")
+}
+
+/// Metres per unit of a length unit named in a header comment: the spellings of astropy
+/// 8.0.2's units that cairn reads (`m`, `cm`, `mm`, `um`, `nm`, `Angstrom`, `micron`, and
+/// `meter`, `centimeter`, `millimeter`, `micrometer`, `nanometer`), and `microns`, common in
+/// headers. A name in capitals (`UM`, `MICRON`), as older headers write units, is matched
+/// without case, as for the spectral axis's CUNIT.
+fn length_unit_m(name: &str) -> Option<f64> {
+    const UNITS: [(&str, f64); 14] = [
+        ("m", 1.0),
+        ("cm", 1e-2),
+        ("mm", 1e-3),
+        ("um", 1e-6),
+        ("nm", 1e-9),
+        ("Angstrom", 1e-10),
+        ("angstrom", 1e-10),
+        ("micron", 1e-6),
+        ("microns", 1e-6),
+        ("meter", 1.0),
+        ("centimeter", 1e-2),
+        ("millimeter", 1e-3),
+        ("micrometer", 1e-6),
+        ("nanometer", 1e-9),
+    ];
+    let all_caps = name.chars().any(|c| c.is_ascii_alphabetic())
+        && !name.chars().any(|c| c.is_ascii_lowercase());
+    UNITS
+        .iter()
+        .find(|(n, _)| *n == name || (all_caps && n.eq_ignore_ascii_case(name)))
+        .map(|&(_, f)| f)
+}
+
+/// What a keyword's comment says of its unit.
+#[derive(Debug, Clone, PartialEq)]
+enum CommentUnit {
+    /// A length unit cairn reads: metres per unit, and the unit as written.
+    Known(f64, String),
+    /// A unit in brackets that cairn does not read as a length, as written.
+    Unknown(String),
+    /// Several different length units named in the words of the comment.
+    Ambiguous(Vec<String>),
+    /// No unit.
+    None,
+}
+
+/// The unit of a keyword from its comment. The FITS Standard 4.0, section 4.3.2, recommends
+/// the unit in square brackets at the start of the comment (`/ [um] wavelength`); a unit in
+/// brackets elsewhere in the comment is read too (`/ wavelength of the map [m]`). Without
+/// brackets, a whole word of the comment that names a length unit (`/ wavelength in
+/// microns`) is taken when it is the only one named; a unit is never matched inside a word
+/// (`spectrum` does not name um).
+fn comment_unit(comment: &str) -> CommentUnit {
+    let t = comment.trim();
+    let bracketed = t
+        .find('[')
+        .and_then(|i| t[i + 1..].find(']').map(|j| t[i + 1..i + 1 + j].trim()));
+    if let Some(u) = bracketed {
+        return match length_unit_m(u) {
+            Some(f) => CommentUnit::Known(f, u.to_string()),
+            None => CommentUnit::Unknown(u.to_string()),
+        };
+    }
+    let mut found: Vec<(f64, String)> = Vec::new();
+    for w in t.split(|c: char| !c.is_ascii_alphanumeric()) {
+        if let Some(f) = length_unit_m(w)
+            && !found.iter().any(|(g, _)| *g == f)
+        {
+            found.push((f, w.to_string()));
+        }
+    }
+    match found.len() {
+        0 => CommentUnit::None,
+        1 => {
+            let (f, w) = found.remove(0);
+            CommentUnit::Known(f, w)
+        }
+        _ => CommentUnit::Ambiguous(found.into_iter().map(|(_, w)| w).collect()),
+    }
+}
+
 /// The wavelength from RESTFRQ/RESTFREQ/FREQ/OBSFREQ (Hz) or WAVELEN/WAVELNTH (unit in the
-/// comment), for [`wavelength_from_header`].
+/// comment, [`comment_unit`]), for [`wavelength_from_header`]; a value whose wavelength lies
+/// outside [`WAVELENGTH_RANGE_M`] is not used.
 fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
     // What is wrong with the keywords is said only when none of them gives the wavelength.
     let mut notes: Vec<String> = Vec::new();
@@ -1494,11 +1643,27 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
             ));
         }
     };
+    let implausible = |key: &str, shown: &str, m: f64, hint: &str| {
+        format!(
+            "{key} = {shown} gives a wavelength of {}, outside 1 um to 10 m (300 THz to 30 MHz) where dust continuum maps lie, so it is not used{hint}; give --wavelength, such as 850um",
+            describe_length(m)
+        )
+    };
     for key in ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"] {
         let f = h.get_f64(key);
         odd(&mut notes, key, f);
         if let Some(f) = f.filter(|f| f.is_finite() && *f > 0.0) {
-            return Some(units::C_LIGHT / f);
+            let m = units::C_LIGHT / f;
+            if plausible_wavelength(m) {
+                return Some(m);
+            }
+            let shown = units::tidy(f);
+            notes.push(implausible(
+                key,
+                &format!("{shown} Hz"),
+                m,
+                &format!(" ({key} is in Hz, as FITS defines it: if {shown} GHz was meant, give --wavelength {shown}GHz)"),
+            ));
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {
@@ -1511,26 +1676,49 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
             .cards()
             .iter()
             .find(|c| c.key == key)
-            .map(|c| c.comment.to_ascii_lowercase())
+            .map(|c| c.comment.clone())
             .unwrap_or_default();
-        let factor = if comment.contains("micron") || comment.contains("um") {
-            Some(1e-6)
-        } else if comment.contains("mm") {
-            Some(1e-3)
-        } else if comment.contains("[m]")
-            || comment.contains("metre")
-            || comment.contains("meter")
-            || v < 0.01
-        {
-            Some(1.0)
-        } else if v >= 1.0 {
-            Some(1e-6)
-        } else {
-            None
-        };
-        match factor {
-            Some(f) => return Some(v * f),
-            None => notes.push(format!("{key} = {v} has no unit in its comment and could be metres or micrometres; give --wavelength")),
+        let shown = units::tidy(v);
+        match comment_unit(&comment) {
+            CommentUnit::Known(f, unit) => {
+                let m = v * f;
+                if plausible_wavelength(m) {
+                    return Some(m);
+                }
+                notes.push(implausible(key, &format!("{shown} {unit}"), m, ""));
+            }
+            CommentUnit::Unknown(unit) => notes.push(format!(
+                "{key} = {shown} is in [{unit}] by its comment, which is not a length unit cairn reads (m, cm, mm, um, micron, nm, Angstrom), so it is not used; give --wavelength"
+            )),
+            CommentUnit::Ambiguous(names) => notes.push(format!(
+                "{key} = {shown} has a comment that names several units ({}), so its unit is unknown and it is not used; give --wavelength",
+                names.join(", ")
+            )),
+            CommentUnit::None => {
+                // No unit: micrometres for values of 1 and more, metres below 0.01 (the
+                // ways these keywords are written, common practice), and said.
+                let (f, unit) = if v >= 1.0 {
+                    (1e-6, "um")
+                } else if v < 0.01 {
+                    (1.0, "m")
+                } else {
+                    notes.push(format!("{key} = {shown} has no unit in its comment and could be metres or micrometres; give --wavelength"));
+                    continue;
+                };
+                let m = v * f;
+                if plausible_wavelength(m) {
+                    warnings.push(format!(
+                        "{key} = {shown} has no unit in its comment (such as / [um]); it is read as {shown} {unit}: give --wavelength if that is wrong"
+                    ));
+                    return Some(m);
+                }
+                notes.push(implausible(
+                    key,
+                    &shown,
+                    m,
+                    &format!(" (read as {unit}, as its comment gives no unit)"),
+                ));
+            }
         }
     }
     warnings.extend(notes);
