@@ -4,7 +4,10 @@
 //! sky frame and projection, centre, pixel scale, beam, wavelength, value range, missing
 //! fraction, noise estimates) and the suggested thresholds for `segment`, which follow common
 //! practice: a floor 3 noise widths above the clipped median (the background level), a
-//! prominence of 3 noise widths, and a minimum area of one beam.
+//! prominence of 3 noise widths, and a minimum area of one beam ([`default_min_area_px`],
+//! the rule `segment` refuses a beam larger than the map by). Scales are taken at the map
+//! centre, or, when that lies off the sky, at [`crate::wcs::Wcs::scale_pixel`], which is
+//! named.
 //! The JSON keys are documented in the README.
 
 use std::path::Path;
@@ -38,16 +41,29 @@ pub struct SkySummary {
     pub projection: String,
     /// Distortion convention applied before the projection ("SIP"), if any.
     pub distortion: Option<String>,
-    /// Longitude (RA or l) of the map centre in degrees.
-    pub centre_lon_deg: f64,
-    /// Latitude (Dec or b) of the map centre in degrees.
-    pub centre_lat_deg: f64,
-    /// The centre as text (sexagesimal for equatorial frames).
-    pub centre_text: String,
-    /// Angular size of a pixel step along x and y at the centre, in arcsec.
-    pub pixel_scale_arcsec: [f64; 2],
-    /// Solid angle of the centre pixel in steradians.
-    pub pixel_solid_angle_sr: f64,
+    /// Longitude (RA or l) of the map centre in degrees (null when the centre lies off the
+    /// sky, outside the projection's domain).
+    pub centre_lon_deg: Option<f64>,
+    /// Latitude (Dec or b) of the map centre in degrees (null likewise).
+    pub centre_lat_deg: Option<f64>,
+    /// The centre as text (sexagesimal for equatorial frames; null likewise).
+    pub centre_text: Option<String>,
+    /// Why the centre or the pixel scale is missing, when one is.
+    pub why_none: Option<String>,
+    /// The zero-based pixel [x, y] where the pixel scale, the solid angle and the beam in
+    /// pixels are taken ([`crate::wcs::Wcs::scale_pixel`]): the map centre, or, when that
+    /// lies off the sky, the reference pixel or the pixel on the sky nearest it (null when
+    /// no pixel is on the sky).
+    pub scale_pixel: Option<[f64; 2]>,
+    /// Which pixel `scale_pixel` is: "centre", "reference pixel" or "nearest the reference
+    /// pixel" (null without one).
+    pub scale_pixel_is: Option<String>,
+    /// Longitude and latitude of `scale_pixel` in degrees (null without one).
+    pub scale_pixel_lon_lat_deg: Option<[f64; 2]>,
+    /// Angular size of a pixel step along x and y at `scale_pixel`, in arcsec.
+    pub pixel_scale_arcsec: Option<[f64; 2]>,
+    /// Solid angle of the pixel at `scale_pixel` in steradians.
+    pub pixel_solid_angle_sr: Option<f64>,
 }
 
 /// The beam, in arcsec and in pixels.
@@ -59,7 +75,8 @@ pub struct BeamSummary {
     pub minor_arcsec: f64,
     /// Position angle in degrees east of north.
     pub pa_deg: f64,
-    /// Major-axis FWHM in pixels (at the map centre), when the map has a WCS.
+    /// Major-axis FWHM in pixels (at the scale pixel, [`SkySummary::scale_pixel`]), when the
+    /// map has a WCS with a pixel on the sky.
     pub major_px: Option<f64>,
     /// Minor-axis FWHM in pixels.
     pub minor_px: Option<f64>,
@@ -119,8 +136,9 @@ pub struct Suggested {
     pub floor: f64,
     /// Prominence in map units.
     pub prominence: f64,
-    /// Minimum area in pixels.
-    pub min_area_px: f64,
+    /// Minimum area in pixels: one beam, or 9 pixels without a beam (null when one beam is
+    /// more than the whole map, which `segment` refuses: a warning says so).
+    pub min_area_px: Option<f64>,
     /// The floor as an H2 column density, cm^-2, by the conversion `segment` would use (at
     /// the map centre; null without one).
     pub floor_column_cm2: Option<f64>,
@@ -132,9 +150,11 @@ pub struct Suggested {
 /// The conversion `segment` would use from map units to H2 column density and mass.
 #[derive(Debug, Clone, Serialize)]
 pub struct ConversionSummary {
-    /// N(H2) in cm^-2 per map unit at the map centre (null when no conversion is possible).
+    /// N(H2) in cm^-2 per map unit at the map centre, or at the scale pixel when the centre
+    /// lies off the sky (null when no conversion is possible).
     pub column_per_unit_cm2: Option<f64>,
-    /// Gas mass in M_sun of one pixel at the map centre holding one map unit (null without a distance).
+    /// Gas mass in M_sun of one pixel at the scale pixel holding one map unit (null without a
+    /// distance or a pixel on the sky).
     pub mass_per_unit_pixel_msun: Option<f64>,
     /// The assumptions used, in words.
     pub assumptions: Vec<String>,
@@ -258,12 +278,57 @@ pub fn noise_for_with(
     }
 }
 
+/// The pixel where a map's scales are taken ([`crate::wcs::Wcs::scale_pixel`]): its centre,
+/// or the pixel on the sky nearest it; `None` without a celestial WCS or a pixel on the sky.
+pub fn scale_pixel(map: &Map) -> Option<(f64, f64)> {
+    map.wcs.as_ref()?.scale_pixel(map.nx(), map.ny())
+}
+
+/// The beam's solid angle in pixels, at the map's [`scale_pixel`]; `None` without a beam, a
+/// celestial WCS or a pixel on the sky.
+pub fn beam_area_px(map: &Map) -> Option<f64> {
+    let (b, w) = (map.beam?, map.wcs.as_ref()?);
+    let (x, y) = scale_pixel(map)?;
+    Some(b.solid_angle_sr() / w.pixel_solid_angle(x, y))
+}
+
+/// The default least area of a leaf, in pixels, as `segment` takes it: one beam
+/// ([`beam_area_px`], rounded up), or 9 pixels (a 3 x 3 patch, common practice) without a
+/// beam; never less than 1. One beam larger than the whole map is refused, with the sentence
+/// that says so and the fix (for a beam from the header, that BMAJ and BMIN are in degrees:
+/// a beam written in arcsec is 3600 times too wide).
+pub fn default_min_area_px(map: &Map) -> std::result::Result<usize, String> {
+    let area = beam_area_px(map).unwrap_or(9.0);
+    let px = (area - 1e-9).ceil().max(1.0) as usize;
+    let n = map.nx() * map.ny();
+    if px <= n {
+        return Ok(px);
+    }
+    // In the words of the value itself: a count beyond 2^64 would read as its cap.
+    let shown = if area < 1e15 {
+        format!("{px}")
+    } else {
+        format!("{area:.3e}")
+    };
+    let check = match (map.beam_source, map.beam) {
+        (Some(Source::Header), Some(b)) => format!(
+            "check the header's beam (BMAJ and BMIN are in degrees, as FITS defines them: {} deg is {}\"; a beam written in arcsec reads 3600 times too wide) or give --beam",
+            units::tidy(b.major_deg),
+            units::tidy(b.major_deg * 3600.0)
+        ),
+        _ => "check the beam (--beam)".to_string(),
+    };
+    Err(format!(
+        "the default --min-area, one beam ({shown} pixels), is larger than the whole map {} ({n} pixels); {check}, or give --min-area in px.",
+        map.path.display()
+    ))
+}
+
 /// The box size of the residual noise estimate: five beams, or 32 pixels without a beam.
 pub fn noise_box_px(map: &Map) -> usize {
-    let beam_px = match (map.beam, &map.wcs) {
-        (Some(b), Some(w)) => {
-            let (sx, sy) =
-                w.pixel_scale((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
+    let beam_px = match (map.beam, &map.wcs, scale_pixel(map)) {
+        (Some(b), Some(w), Some((x, y))) => {
+            let (sx, sy) = w.pixel_scale(x, y);
             Some(b.major_deg / (sx * sy).sqrt())
         }
         _ => None,
@@ -405,15 +470,19 @@ pub fn load_aux_map(
     }
     if let (Some(w), Some(wn)) = (&map.wcs, &nm.wcs) {
         let (nx, ny) = (map.nx() as f64 - 1.0, map.ny() as f64 - 1.0);
-        let (sx, sy) = w.pixel_scale(nx / 2.0, ny / 2.0);
+        let (sx, sy) = scale_pixel(map)
+            .map(|(x, y)| w.pixel_scale(x, y))
+            .unwrap_or((f64::NAN, f64::NAN));
         let tol = 0.1 * sx.min(sy);
-        for (x, y) in [
+        let mut points = vec![
             (0.0, 0.0),
             (nx, 0.0),
             (0.0, ny),
             (nx, ny),
             (nx / 2.0, ny / 2.0),
-        ] {
+        ];
+        points.extend(scale_pixel(map));
+        for (x, y) in points {
             let off = match (w.pixel_to_sky(x, y), wn.pixel_to_sky(x, y)) {
                 (Some(a), Some(b)) => separation_deg(a, b),
                 _ => 0.0,
@@ -535,13 +604,16 @@ pub fn conversion(map: &Map, ctx: &crate::score::Context) -> ConversionSummary {
     }
     match crate::score::Converter::new(map, ctx) {
         Ok(c) => {
-            let f = c.central_factor();
-            let mass = match (ctx.distance_m, &map.wcs) {
-                (Some(d), Some(w)) => {
-                    let omega = w.pixel_solid_angle(
-                        (map.nx() as f64 - 1.0) / 2.0,
-                        (map.ny() as f64 - 1.0) / 2.0,
-                    );
+            // At the map centre, or, when that lies off the sky, at the scale pixel.
+            let at = scale_pixel(map);
+            let centre = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
+            let f = match at {
+                Some((x, y)) if (x, y) != centre => c.factor(y as usize, x as usize),
+                _ => c.central_factor(),
+            };
+            let mass = match (ctx.distance_m, &map.wcs, at) {
+                (Some(d), Some(w), Some((x, y))) => {
+                    let omega = w.pixel_solid_angle(x, y);
                     Some(ctx.mu_h2 * M_H * f * omega * d * d / M_SUN)
                 }
                 _ => None,
@@ -583,46 +655,80 @@ pub fn summarise_with(
 pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
     let (nx, ny) = (map.nx(), map.ny());
     let (cx, cy) = ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0);
-    let sky = map.wcs.as_ref().and_then(|w| {
-        let (lon, lat) = w.pixel_to_sky(cx, cy)?;
-        let (sx, sy) = w.pixel_scale(cx, cy);
+    let at = scale_pixel(map);
+    let sky = map.wcs.as_ref().map(|w| {
         let equatorial = matches!(
             w.frame(),
             SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
         );
-        let centre_text = if equatorial {
-            format!(
-                "{} {}",
-                angles::format_hms(lon, 2),
-                angles::format_dms(lat, 1)
-            )
-        } else {
-            format!("{lon:.5} {lat:+.5}")
+        let text = |lon: f64, lat: f64| {
+            if equatorial {
+                format!(
+                    "{} {}",
+                    angles::format_hms(lon, 2),
+                    angles::format_dms(lat, 1)
+                )
+            } else {
+                format!("{lon:.5} {lat:+.5}")
+            }
         };
-        Some(SkySummary {
+        let centre = (at == Some((cx, cy)))
+            .then(|| w.pixel_to_sky(cx, cy))
+            .flatten();
+        let projection = match w.projection() {
+            "linear" => "linear axes (no projection code)".to_string(),
+            p => format!("the {p} projection's domain"),
+        };
+        let why_none = match (centre, at) {
+            (Some(_), _) => None,
+            (None, Some(_)) => Some(format!(
+                "the map centre, pixel ({cx}, {cy}), lies off the sky (outside {projection})"
+            )),
+            (None, None) => Some(format!(
+                "no pixel of the map lies on the sky (outside {projection}); check CRPIX, CDELT (or CD) and CRVAL"
+            )),
+        };
+        SkySummary {
             frame: frame_name(w.frame()),
             projection: w.projection().to_string(),
             distortion: w.distortion().map(str::to_string),
-            centre_lon_deg: lon,
-            centre_lat_deg: lat,
-            centre_text,
-            pixel_scale_arcsec: [sx * 3600.0, sy * 3600.0],
-            pixel_solid_angle_sr: w.pixel_solid_angle(cx, cy),
-        })
+            centre_lon_deg: centre.map(|c| c.0),
+            centre_lat_deg: centre.map(|c| c.1),
+            centre_text: centre.map(|(lon, lat)| text(lon, lat)),
+            why_none,
+            scale_pixel: at.map(|(x, y)| [x, y]),
+            scale_pixel_is: at.map(|p| {
+                if p == (cx, cy) {
+                    "centre"
+                } else if p == w.reference_pixel() {
+                    "reference pixel"
+                } else {
+                    "nearest the reference pixel"
+                }
+                .to_string()
+            }),
+            scale_pixel_lon_lat_deg: at
+                .and_then(|(x, y)| w.pixel_to_sky(x, y))
+                .map(|(a, b)| [a, b]),
+            pixel_scale_arcsec: at.map(|(x, y)| {
+                let (sx, sy) = w.pixel_scale(x, y);
+                [sx * 3600.0, sy * 3600.0]
+            }),
+            pixel_solid_angle_sr: at.map(|(x, y)| w.pixel_solid_angle(x, y)),
+        }
     });
     let beam = map.beam.map(|b| {
         let px = sky
             .as_ref()
-            .map(|s| (s.pixel_scale_arcsec[0] * s.pixel_scale_arcsec[1]).sqrt());
+            .and_then(|s| s.pixel_scale_arcsec)
+            .map(|p| (p[0] * p[1]).sqrt());
         BeamSummary {
             major_arcsec: b.major_deg * 3600.0,
             minor_arcsec: b.minor_deg * 3600.0,
             pa_deg: b.pa_deg,
             major_px: px.map(|p| b.major_deg * 3600.0 / p),
             minor_px: px.map(|p| b.minor_deg * 3600.0 / p),
-            area_px: sky
-                .as_ref()
-                .map(|s| b.solid_angle_sr() / s.pixel_solid_angle_sr),
+            area_px: beam_area_px(map),
             source: map.beam_source.unwrap_or(Source::Header),
         }
     });
@@ -653,23 +759,42 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         _ => None,
     };
     let background = clipped.as_ref().map(|c| c.median).ok();
+    // segment's own default, or its refusal, which is said.
+    let min_area = default_min_area_px(map);
     let suggested = match (sigma, background) {
         (Some(s), Some(bg)) => Some(Suggested {
             floor: bg + 3.0 * s,
             prominence: 3.0 * s,
-            min_area_px: beam
-                .as_ref()
-                .and_then(|b| b.area_px)
-                .map(|a| (a - 1e-9).ceil().max(1.0))
-                .unwrap_or(9.0)
-                // Never more than the map holds (segment refuses that).
-                .min((map.nx() * map.ny()) as f64),
+            min_area_px: min_area.as_ref().ok().map(|&n| n as f64),
             floor_column_cm2: None,
             floor_av_mag: None,
         }),
         _ => None,
     };
     let mut warnings = map.warnings.clone();
+    if let Some(k) = &sky {
+        match (&k.why_none, k.scale_pixel) {
+            (Some(why), Some([x, y])) => warnings.push(format!(
+                "{why}: the pixel scale{} are taken at pixel ({x}, {y}), {}, and vary across such a map",
+                if map.beam.is_some() {
+                    ", the beam in pixels and segment's default --min-area"
+                } else {
+                    " and solid angle"
+                },
+                scale_pixel_words(k.scale_pixel_is.as_deref().unwrap_or(""))
+            )),
+            (Some(why), None) => warnings.push(format!(
+                "{why}: nothing can be measured on the sky"
+            )),
+            _ => {}
+        }
+    }
+    if let Err(e) = &min_area {
+        warnings.push(format!(
+            "segment refuses its default minimum area: {}",
+            e.trim_end_matches('.')
+        ));
+    }
     if let (NoiseChoice::Estimate, Some(sg), Ok(d)) = (noise_choice, sigma, &difference) {
         let ratio = sg / d;
         if !(0.5..=2.0).contains(&ratio) {
@@ -711,6 +836,15 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         conversion: conversion(map, &crate::score::Context::default()),
         warnings,
     })
+}
+
+/// [`SkySummary::scale_pixel_is`] in words.
+fn scale_pixel_words(is: &str) -> &'static str {
+    match is {
+        "centre" => "the map centre",
+        "reference pixel" => "the reference pixel (CRPIX)",
+        _ => "the pixel on the sky nearest the reference pixel (CRPIX)",
+    }
 }
 
 fn g(v: f64) -> String {
@@ -767,29 +901,50 @@ pub fn render_text(s: &Summary) -> String {
     );
     match &s.sky {
         Some(k) => {
+            let projection = if k.projection == "linear" {
+                "longitude and latitude linear in the pixels (no projection code)".to_string()
+            } else {
+                format!("{} projection", k.projection)
+            };
             line(
                 "sky frame",
                 match &k.distortion {
-                    Some(d) => format!(
-                        "{}, {} projection with {d} distortion",
-                        k.frame, k.projection
-                    ),
-                    None => format!("{}, {} projection", k.frame, k.projection),
+                    Some(d) => format!("{}, {projection} with {d} distortion", k.frame),
+                    None => format!("{}, {projection}", k.frame),
                 },
             );
             line(
                 "centre",
-                format!(
-                    "{} ({:.6}, {:+.6} deg)",
-                    k.centre_text, k.centre_lon_deg, k.centre_lat_deg
-                ),
+                match (
+                    &k.centre_text,
+                    k.centre_lon_deg,
+                    k.centre_lat_deg,
+                    &k.why_none,
+                ) {
+                    (Some(t), Some(lon), Some(lat), _) => {
+                        format!("{t} ({lon:.6}, {lat:+.6} deg)")
+                    }
+                    (_, _, _, Some(why)) => format!("none: {why}"),
+                    _ => "none".into(),
+                },
             );
             line(
                 "pixel scale",
-                format!(
-                    "{:.4}\" x {:.4}\" ({:.4e} sr per pixel)",
-                    k.pixel_scale_arcsec[0], k.pixel_scale_arcsec[1], k.pixel_solid_angle_sr
-                ),
+                match (k.pixel_scale_arcsec, k.pixel_solid_angle_sr, k.scale_pixel) {
+                    (Some(p), Some(sr), Some([x, y])) => {
+                        let mut t =
+                            format!("{:.4}\" x {:.4}\" ({sr:.4e} sr per pixel)", p[0], p[1]);
+                        let is = k.scale_pixel_is.as_deref().unwrap_or("centre");
+                        if is != "centre" {
+                            t.push_str(&format!(" at pixel ({x}, {y}), {}", scale_pixel_words(is)));
+                            if let Some([lon, lat]) = k.scale_pixel_lon_lat_deg {
+                                t.push_str(&format!(" ({lon:.6}, {lat:+.6} deg)"));
+                            }
+                        }
+                        t
+                    }
+                    _ => "none: no pixel of the map lies on the sky".into(),
+                },
             );
         }
         None => line("sky frame", "none (pixel units only)".into()),
@@ -853,12 +1008,18 @@ pub fn render_text(s: &Summary) -> String {
     if let Some(sg) = &s.suggested {
         line(
             "suggested",
-            format!(
-                "--floor {} --prominence {} --min-area {}px (a starting point)",
-                g(sg.floor),
-                g(sg.prominence),
-                sg.min_area_px
-            ),
+            match sg.min_area_px {
+                Some(a) => format!(
+                    "--floor {} --prominence {} --min-area {a}px (a starting point)",
+                    g(sg.floor),
+                    g(sg.prominence),
+                ),
+                None => format!(
+                    "--floor {} --prominence {} (a starting point; no --min-area: one beam is more than the map, see the warning below)",
+                    g(sg.floor),
+                    g(sg.prominence),
+                ),
+            },
         );
         if let (Some(n), Some(av)) = (sg.floor_column_cm2, sg.floor_av_mag) {
             line(
