@@ -21,7 +21,7 @@ use crate::map::Map;
 use crate::measure::{self, Kind, Measurement};
 use crate::noise;
 use crate::output::{self, Outputs};
-use crate::table::Table;
+use crate::table::{Param, ParamValue, Table};
 use crate::units::{self, Dimension};
 use crate::wcs::SkyFrame;
 
@@ -701,7 +701,7 @@ pub fn catalogue(
     phys: Option<&[&crate::score::Physical]>,
     with_distance: bool,
     r: &Resolved,
-    run_meta: &[(String, String, String)],
+    run_meta: &[Param],
     footprint: Footprint,
 ) -> Table {
     let grown = footprint == Footprint::Grown;
@@ -1479,89 +1479,13 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 .ok_or_else(|| Error::internal("hashing the input was not started"))?
                 .join()
                 .map_err(|_| Error::internal("hashing the input failed"))??;
-            let meta: Vec<(String, String, String)> = vec![
-                (
-                    "input".into(),
-                    map.path
-                        .file_name()
-                        .map(|n| n.to_string_lossy().into_owned())
-                        .unwrap_or_default(),
-                    "input map".into(),
-                ),
-                (
-                    "input_sha256".into(),
-                    input_sha.clone(),
-                    "SHA-256 of the input file".into(),
-                ),
-                ("hdu".into(), map.hdu_index.to_string(), "HDU read".into()),
-                (
-                    "unit".into(),
-                    map.unit_text.clone(),
-                    "unit of the map".into(),
-                ),
-                (
-                    "quantity".into(),
-                    map.unit.map(|u| u.kind_name()).unwrap_or("unknown").into(),
-                    "what the map's values measure".into(),
-                ),
-                (
-                    "floor".into(),
-                    crate::table::fmt_f64(r.floor),
-                    format!("map units (given as {})", r.typed[0]),
-                ),
-                (
-                    "prominence".into(),
-                    crate::table::fmt_f64(r.prominence),
-                    format!("map units (given as {})", r.typed[1]),
-                ),
-                (
-                    "min_area".into(),
-                    r.min_area_px.to_string(),
-                    format!("pixels (given as {})", r.typed[2]),
-                ),
-                (
-                    "connectivity".into(),
-                    match o.connectivity {
-                        Connectivity::Four => "4",
-                        Connectivity::Eight => "8",
-                    }
-                    .into(),
-                    "pixel adjacency".into(),
-                ),
-                (
-                    "noise".into(),
-                    r.noise
-                        .map(crate::table::fmt_f64)
-                        .unwrap_or_else(|| "none".into()),
-                    format!("{} ({})", map.unit_text, r.noise_source),
-                ),
-                (
-                    "version".into(),
-                    env!("CARGO_PKG_VERSION").into(),
-                    "cairn version".into(),
-                ),
-            ];
-            let mut meta = meta;
-            if let Some(c) = &map.common_resolution {
-                meta.push((
-                    "common_resolution".into(),
-                    units::tidy(c.resolution_m / crate::physics::constants::PC),
-                    "pc, linear resolution the map was smoothed to (the beam below is the smoothed one)".into(),
-                ));
-                meta.push((
-                    "regrid_block".into(),
-                    c.block.to_string(),
-                    "input pixels per side of one pixel of the smoothed map (1: not regridded)"
-                        .into(),
-                ));
-            }
+            let meta = run_meta(map, o, &r, &input_sha);
             let keep: Vec<usize> = (0..ms.len())
                 .filter(|&i| !o.leaves_only || ms[i].kind == Kind::Leaf)
                 .collect();
             let rows: Vec<&Measurement> = keep.iter().map(|&i| &ms[i]).collect();
             let phys_rows: Option<Vec<&crate::score::Physical>> =
                 phys.as_ref().map(|p| keep.iter().map(|&i| &p[i]).collect());
-            meta.extend(physics_meta(&o.physics, map));
             let mut table = catalogue(
                 map,
                 &rows,
@@ -1798,7 +1722,7 @@ fn grown_catalogue(
     o: &SegmentOptions,
     r: &Resolved,
     noise_map: Option<ndarray::ArrayView2<f32>>,
-    meta: &[(String, String, String)],
+    meta: &[Param],
 ) -> std::sync::Arc<Table> {
     let with_distance = o.physics.distance_m.is_some() && map.wcs.is_some();
     let ms = measure::measure_grown(g, h, map.wcs.as_ref(), map.beam.as_ref());
@@ -1849,112 +1773,297 @@ fn physics_warning(ctx: &crate::score::Context, map: &Map, note: Option<&str>) -
     (ctx.distance_m.is_some() && !unit_warned).then(|| format!("no masses: {note}"))
 }
 
-fn physics_meta(ctx: &crate::score::Context, map: &Map) -> Vec<(String, String, String)> {
-    use crate::table::fmt_f64;
+/// The catalogue's parameters: the input (file, SHA-256, HDU, plane of a cube), the map's unit,
+/// the thresholds with how they were given, the noise, the
+/// version, the common resolution and the physical assumptions ([`physics_meta`]). Each has a
+/// type that does not change from run to run, a unit where it is a quantity (valid as a FITS
+/// unit and as a VOUnit) and a description.
+fn run_meta(map: &Map, o: &SegmentOptions, r: &Resolved, input_sha: &str) -> Vec<Param> {
+    use ParamValue::{Float, Int, Text};
+    let file_name = |p: &Path| {
+        p.file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default()
+    };
+    let unit = map.unit_text.clone();
+    let mut v = vec![
+        Param::new("input", Text(file_name(&map.path)), "", "input map"),
+        Param::new(
+            "input_sha256",
+            Text(input_sha.to_string()),
+            "",
+            "SHA-256 of the input file",
+        )
+        .with_key("SHA256"),
+        Param::new(
+            "hdu",
+            Int(map.hdu_index as i64),
+            "",
+            "HDU read, 0 for the primary",
+        ),
+    ];
+    if let Some(k) = map.plane {
+        v.push(Param::new(
+            "plane",
+            Int(k as i64),
+            "",
+            "zero-based plane of the cube read (--plane)",
+        ));
+    }
+    v.push(Param::new(
+        "unit",
+        Text(unit.clone()),
+        "",
+        "unit of the map's values as read",
+    ));
+    v.push(Param::new(
+        "quantity",
+        Text(
+            map.unit
+                .map(|u| u.kind_name())
+                .unwrap_or("unknown")
+                .to_string(),
+        ),
+        "",
+        "what the map's values measure",
+    ));
+    v.push(Param::new(
+        "floor",
+        Float(r.floor),
+        &unit,
+        &format!("lowest level, given as {}", r.typed[0]),
+    ));
+    v.push(
+        Param::new(
+            "prominence",
+            Float(r.prominence),
+            &unit,
+            &format!("least rise of a peak, given as {}", r.typed[1]),
+        )
+        .with_key("PROMINEN"),
+    );
+    v.push(Param::new(
+        "min_area",
+        Int(r.min_area_px as i64),
+        "pixel2",
+        &format!("least area of a leaf, given as {}", r.typed[2]),
+    ));
+    v.push(
+        Param::new(
+            "connectivity",
+            Int(match o.connectivity {
+                Connectivity::Four => 4,
+                Connectivity::Eight => 8,
+            }),
+            "",
+            "neighbours per pixel, 4 or 8",
+        )
+        .with_key("CONNECT"),
+    );
+    // A map without a measurable noise has none (the run record says why).
+    if let Some(n) = r.noise {
+        v.push(Param::new(
+            "noise",
+            Float(n),
+            &unit,
+            &format!("noise (1 sigma; {})", r.noise_source),
+        ));
+    }
+    v.push(Param::new(
+        "version",
+        Text(env!("CARGO_PKG_VERSION").into()),
+        "",
+        "cairn version",
+    ));
+    if let Some(c) = &map.common_resolution {
+        v.push(
+            Param::new(
+                "common_resolution",
+                Float(units::as_given(
+                    c.resolution_m / crate::physics::constants::PC,
+                )),
+                "pc",
+                "linear resolution the map was smoothed to (the beam below is the smoothed one)",
+            )
+            .with_key("COMRES"),
+        );
+        v.push(
+            Param::new(
+                "regrid_block",
+                Int(c.block as i64),
+                "",
+                "input pixels per side of one pixel of the smoothed map (1: not regridded)",
+            )
+            .with_key("REGRIDBL"),
+        );
+    }
+    v.extend(physics_meta(&o.physics, map, &o.other_inputs));
+    v
+}
+
+/// The physical assumptions among the catalogue's parameters. A temperature or non-thermal
+/// dispersion given per pixel (`--temperature-map`, `--sigma-nt-map`) has no one value: the
+/// numeric parameter (`temperature`, `sigma_nt`) is then left out, and `temperature_map` or
+/// `sigma_nt_map` names the file (`other_inputs`), so that each parameter keeps its type.
+fn physics_meta(
+    ctx: &crate::score::Context,
+    map: &Map,
+    other_inputs: &[(String, PathBuf)],
+) -> Vec<Param> {
+    use ParamValue::{Float, Text};
     let mut v = vec![];
     // A map in a unit without conversion to column density is measured for its structure
     // alone: the assumptions that only the column densities, masses and physics use are left
     // out (the run record keeps all that was given).
     let converted = !matches!(map.unit, Some(units::PixelUnit::Other) | None);
+    let file_of = |name: &str| {
+        other_inputs
+            .iter()
+            .find(|(n, _)| n == name)
+            .and_then(|(_, p)| p.file_name())
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default()
+    };
     if let Some(d) = ctx.distance_m {
-        v.push((
-            "distance".into(),
-            fmt_f64(units::as_given(d / crate::physics::constants::PC)),
-            "pc".into(),
+        v.push(Param::new(
+            "distance",
+            Float(units::as_given(d / crate::physics::constants::PC)),
+            "pc",
+            "distance",
         ));
     }
     if let Some(t) = ctx.temperature_k.as_ref().filter(|_| converted) {
         // On a dust-emission map the temperature sets the masses and the sound speed; on a
         // map of column density or extinction, the sound speed alone.
-        // (Short enough for a FITS card's comment after a HIERARCH keyword.)
         let emission = map.unit.is_some_and(|u| u.is_emission());
-        let (what, per_pixel) = if emission {
-            (
-                "K, dust temperature (also the gas's)",
-                "K, dust temperature per pixel",
-            )
-        } else {
-            (
-                "K, gas temperature (sound speed only)",
-                "K, gas temperature per pixel",
-            )
-        };
         v.push(match t {
-            crate::score::Field::Uniform(k) => ("temperature".into(), fmt_f64(*k), what.into()),
-            crate::score::Field::Map(_) => ("temperature".into(), "map".into(), per_pixel.into()),
+            crate::score::Field::Uniform(k) => Param::new(
+                "temperature",
+                Float(*k),
+                "K",
+                if emission {
+                    "dust (and gas) temperature"
+                } else {
+                    "gas temperature (sound speed)"
+                },
+            )
+            .with_key("TEMPERAT"),
+            crate::score::Field::Map(_) => Param::new(
+                "temperature_map",
+                Text(file_of("temperature_map")),
+                "",
+                if emission {
+                    "file of the dust (and gas) temperature per pixel"
+                } else {
+                    "file of the gas temperature per pixel (sound speed)"
+                },
+            )
+            .with_key("TEMPMAP"),
         });
     }
     if let Some(b) = &map.beam {
-        v.push((
-            "beam_major".into(),
-            fmt_f64(b.major_deg * 3600.0),
-            "arcsec, beam FWHM along the major axis".into(),
-        ));
-        v.push((
-            "beam_minor".into(),
-            fmt_f64(b.minor_deg * 3600.0),
-            "arcsec, beam FWHM along the minor axis".into(),
-        ));
-        v.push((
-            "beam_pa".into(),
-            fmt_f64(b.pa_deg),
-            "deg, beam position angle east of north".into(),
+        v.push(
+            Param::new(
+                "beam_major",
+                Float(b.major_deg * 3600.0),
+                "arcsec",
+                "beam FWHM, major axis",
+            )
+            .with_key("BEAM_MAJ"),
+        );
+        v.push(
+            Param::new(
+                "beam_minor",
+                Float(b.minor_deg * 3600.0),
+                "arcsec",
+                "beam FWHM, minor axis",
+            )
+            .with_key("BEAM_MIN"),
+        );
+        v.push(Param::new(
+            "beam_pa",
+            Float(b.pa_deg),
+            "deg",
+            "beam position angle east of north",
         ));
     }
     if map.unit.map(|u| u.is_emission()).unwrap_or(false) {
-        v.push((
-            "kappa0".into(),
-            fmt_f64(ctx.opacity.kappa0_cm2_per_g),
-            "cm2/g of gas at nu0".into(),
+        v.push(Param::new(
+            "kappa0",
+            Float(ctx.opacity.kappa0_cm2_per_g),
+            "cm2/g",
+            "dust opacity per gram of gas at nu0",
         ));
-        v.push(("nu0".into(), fmt_f64(ctx.opacity.nu0_hz), "Hz".into()));
-        v.push((
-            "beta".into(),
-            fmt_f64(ctx.opacity.beta),
-            "dust emissivity index".into(),
+        v.push(Param::new(
+            "nu0",
+            Float(ctx.opacity.nu0_hz),
+            "Hz",
+            "frequency of kappa0",
+        ));
+        v.push(Param::new(
+            "beta",
+            Float(ctx.opacity.beta),
+            "",
+            "dust emissivity index",
         ));
         if let Some(w) = map.wavelength_m {
-            v.push(("wavelength".into(), fmt_f64(w * 1e6), "um".into()));
+            v.push(
+                Param::new("wavelength", Float(w * 1e6), "um", "wavelength of the map")
+                    .with_key("WAVELEN"),
+            );
         }
     }
     if matches!(map.unit, Some(units::PixelUnit::Extinction { .. })) {
-        v.push((
-            "nh2_per_av".into(),
-            fmt_f64(units::as_given(ctx.nh2_per_av_m2 * 1e-4)),
-            "cm-2 mag-1".into(),
-        ));
-        v.push(("av_per_ak".into(), fmt_f64(ctx.av_per_ak), String::new()));
+        v.push(
+            Param::new(
+                "nh2_per_av",
+                Float(units::as_given(ctx.nh2_per_av_m2 * 1e-4)),
+                "cm-2 mag-1",
+                "N(H2) per mag of A_V",
+            )
+            .with_key("NH2PERAV"),
+        );
+        v.push(
+            Param::new("av_per_ak", Float(ctx.av_per_ak), "", "A_V per mag of A_K")
+                .with_key("AVPERAK"),
+        );
     }
     if !converted {
         return v;
     }
-    v.push((
-        "mu_h2".into(),
-        fmt_f64(ctx.mu_h2),
-        "mean molecular weight per H2".into(),
+    v.push(Param::new(
+        "mu_h2",
+        Float(ctx.mu_h2),
+        "",
+        "mean molecular weight per H2",
     ));
-    v.push((
-        "mu_p".into(),
-        fmt_f64(ctx.mu_p),
-        "mean molecular weight per particle".into(),
+    v.push(Param::new(
+        "mu_p",
+        Float(ctx.mu_p),
+        "",
+        "mean molecular weight per particle",
     ));
-    v.push((
-        "m_h".into(),
-        fmt_f64(crate::physics::constants::M_H_U),
-        "u, H atom mass, times mu_h2 and mu_p".into(),
+    v.push(Param::new(
+        "m_h",
+        Float(crate::physics::constants::M_H_U),
+        "u",
+        "H atom mass, times mu_h2 and mu_p",
     ));
     if let Some(s) = &ctx.sigma_nt {
         v.push(match s {
-            crate::score::Field::Uniform(ms) => (
-                "sigma_nt".into(),
-                fmt_f64(ms / 1e3),
-                "km/s, non-thermal velocity dispersion".into(),
+            crate::score::Field::Uniform(ms) => Param::new(
+                "sigma_nt",
+                Float(ms / 1e3),
+                "km/s",
+                "non-thermal velocity dispersion",
             ),
-            crate::score::Field::Map(_) => (
-                "sigma_nt".into(),
-                "map".into(),
-                "km/s, non-thermal velocity dispersion per pixel (--sigma-nt-map)".into(),
-            ),
+            crate::score::Field::Map(_) => Param::new(
+                "sigma_nt_map",
+                Text(file_of("sigma_nt_map")),
+                "",
+                "file of sigma_nt per pixel",
+            )
+            .with_key("SIGNTMAP"),
         });
     }
     v

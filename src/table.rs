@@ -52,6 +52,128 @@ pub struct Column {
     pub values: Values,
 }
 
+/// The value of a table parameter, typed: the FITS keyword's and the VOTable PARAM's type
+/// follow it, so that a parameter keeps its type from run to run whatever its value.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ParamValue {
+    /// A whole number (a FITS integer keyword, a VOTable `long`).
+    Int(i64),
+    /// A real number (a FITS real keyword with the CSV's digits, a VOTable `double`); NaN is
+    /// written as an undefined FITS value (FITS Standard 4.0 sec. 4.1.2.3), an empty CSV
+    /// value and `NaN` in the VOTable.
+    Float(f64),
+    /// Text (a FITS string keyword, a VOTable `char` array), even when it reads as a number
+    /// (a file named 2024, a version).
+    Text(String),
+}
+
+impl ParamValue {
+    /// The value as the CSV and the VOTable give it (numbers in their shortest round-trip
+    /// form, [`fmt_f64`]).
+    pub fn text(&self) -> String {
+        match self {
+            ParamValue::Int(n) => n.to_string(),
+            ParamValue::Float(x) => fmt_f64(*x),
+            ParamValue::Text(t) => t.clone(),
+        }
+    }
+}
+
+/// One parameter of a table (a setting or an assumption of the run that made it): a header
+/// line of the CSV, a keyword of the FITS table, a `PARAM` of the VOTable.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Param {
+    /// The name in the CSV and the VOTable, such as `input_sha256`.
+    pub name: String,
+    /// The FITS keyword: at most 8 characters of `A-Z`, `0-9`, `-` and `_` (FITS Standard
+    /// 4.0 sec. 4.1.2.1), such as `SHA256`; the name stands in its comment when they differ.
+    pub key: String,
+    /// The value.
+    pub value: ParamValue,
+    /// The unit of a number, as a FITS unit string that is also a valid VOUnit (`pc`, `K`,
+    /// `cm-2`); empty for none.
+    pub unit: String,
+    /// What it is, one short phrase.
+    pub description: String,
+}
+
+impl Param {
+    /// A parameter whose FITS keyword is its name in upper case (cut to 8 characters, and
+    /// any character a keyword cannot hold as `_`; give a keyword of its own with
+    /// [`Param::with_key`] where that reads badly).
+    pub fn new(name: &str, value: ParamValue, unit: &str, description: &str) -> Param {
+        let key: String = name
+            .chars()
+            .map(|c| {
+                if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                    c.to_ascii_uppercase()
+                } else {
+                    '_'
+                }
+            })
+            .take(8)
+            .collect();
+        Param {
+            name: name.into(),
+            key,
+            value,
+            unit: unit.into(),
+            description: description.into(),
+        }
+    }
+
+    /// The same parameter under FITS keyword `key`.
+    pub fn with_key(mut self, key: &str) -> Param {
+        self.key = key.into();
+        self
+    }
+
+    /// The comment of its CSV line: `[unit] description` (the FITS convention for a unit in a
+    /// keyword's comment, FITS Standard 4.0 sec. 4.3.2), or the description alone.
+    pub fn comment(&self) -> String {
+        if self.unit.is_empty() {
+            self.description.clone()
+        } else if self.description.is_empty() {
+            format!("[{}]", self.unit)
+        } else {
+            format!("[{}] {}", self.unit, self.description)
+        }
+    }
+
+    /// The start of [`Param::fits_comment`]: the unit and, when the keyword is not the name
+    /// in upper case, the name (`[K] temperature`), for a card too short for the rest.
+    pub fn comment_head(&self) -> String {
+        let name = if self.key == self.name.to_ascii_uppercase() {
+            String::new()
+        } else {
+            self.name.clone()
+        };
+        match (self.unit.is_empty(), name.is_empty()) {
+            (true, _) => name,
+            (false, true) => format!("[{}]", self.unit),
+            (false, false) => format!("[{}] {name}", self.unit),
+        }
+    }
+
+    /// The comment of its FITS keyword: [`Param::comment`], with the name first when the
+    /// keyword is not the name in upper case (`[K] temperature: dust temperature`).
+    pub fn fits_comment(&self) -> String {
+        if self.key == self.name.to_ascii_uppercase() {
+            return self.comment();
+        }
+        let unit = if self.unit.is_empty() {
+            String::new()
+        } else {
+            format!("[{}] ", self.unit)
+        };
+        if self.description.is_empty() {
+            format!("{unit}{}", self.name)
+        } else {
+            format!("{unit}{}: {}", self.name, self.description)
+        }
+    }
+}
+
 /// A table with metadata (the run's parameters).
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Table {
@@ -59,39 +181,14 @@ pub struct Table {
     pub name: String,
     /// Columns, all of the same length.
     pub columns: Vec<Column>,
-    /// (keyword, value, comment) of the run's parameters.
-    pub meta: Vec<(String, String, String)>,
+    /// The run's parameters.
+    pub meta: Vec<Param>,
     /// Free text lines for the CSV header (criteria, cautions).
     pub notes: Vec<String>,
     /// VOTable coordinate systems: (ID, system, equinox), such as ("map_frame", "eq_FK5", "J2000").
     pub coosys: Vec<(String, String, Option<String>)>,
     /// VOTable field annotations: (column name, UCD, ID of a coordinate system or "").
     pub ucds: Vec<(String, String, String)>,
-}
-
-/// Catalogue parameters that are text even when they read as a number (a file name, a
-/// version, a unit), written to FITS as strings.
-const TEXT_PARAMETERS: [&str; 5] = ["input", "input_sha256", "unit", "quantity", "version"];
-
-/// What a catalogue parameter's value is, for the FITS keyword's and the VOTable PARAM's type.
-enum ParamKind {
-    /// A whole number.
-    Int(i64),
-    /// Another finite number.
-    Float(f64),
-    /// Text (and parameters that are text whatever they hold, such as a file named 2024).
-    Text,
-}
-
-fn param_kind(key: &str, value: &str) -> ParamKind {
-    if TEXT_PARAMETERS.contains(&key) {
-        return ParamKind::Text;
-    }
-    match (value.parse::<i64>(), value.parse::<f64>()) {
-        (Ok(n), _) => ParamKind::Int(n),
-        (_, Ok(x)) if x.is_finite() => ParamKind::Float(x),
-        _ => ParamKind::Text,
-    }
 }
 
 /// CFITSIO's writers of a double-valued keyword (`ffpkyg`, `ffpkyd`).
@@ -568,8 +665,12 @@ impl Table {
             self.name,
             env!("CARGO_PKG_VERSION")
         );
-        for (k, v, c) in &self.meta {
-            let (k, v, c) = (one_line(k), one_line(v), one_line(c));
+        for p in &self.meta {
+            let (k, v, c) = (
+                one_line(&p.name),
+                one_line(&p.value.text()),
+                one_line(&p.comment()),
+            );
             if c.is_empty() {
                 let _ = writeln!(s, "# parameter {k} = {v}");
             } else {
@@ -623,19 +724,28 @@ impl Table {
                 esc(&self.notes.join("\n"))
             );
         }
-        for (k, v, c) in &self.meta {
+        for p in &self.meta {
             // Typed as in the FITS table: numbers as numbers (their text as in the CSV).
-            let datatype = match param_kind(k, v) {
-                ParamKind::Int(_) => "datatype=\"long\"",
-                ParamKind::Float(_) => "datatype=\"double\"",
-                ParamKind::Text => "datatype=\"char\" arraysize=\"*\"",
+            let datatype = match p.value {
+                ParamValue::Int(_) => "datatype=\"long\"",
+                ParamValue::Float(_) => "datatype=\"double\"",
+                ParamValue::Text(_) => "datatype=\"char\" arraysize=\"*\"",
+            };
+            let value = match p.value {
+                ParamValue::Float(x) if x.is_nan() => "NaN".to_string(),
+                _ => p.value.text(),
+            };
+            let unit = if p.unit.is_empty() {
+                String::new()
+            } else {
+                format!(" unit=\"{}\"", esc(&p.unit))
             };
             let _ = writeln!(
                 s,
-                "<PARAM name=\"{}\" {datatype} value=\"{}\"><DESCRIPTION>{}</DESCRIPTION></PARAM>",
-                esc(k),
-                esc(v),
-                esc(c)
+                "<PARAM name=\"{}\" {datatype}{unit} value=\"{}\"><DESCRIPTION>{}</DESCRIPTION></PARAM>",
+                esc(&p.name),
+                esc(&value),
+                esc(&p.description)
             );
         }
         for c in &self.columns {
@@ -700,17 +810,38 @@ impl Table {
             }
         }
         let mut continued = false;
-        for (k, v, c) in &self.meta {
-            let key = fits_key(k);
+        let mut keys = std::collections::HashSet::new();
+        for p in &self.meta {
+            let key = p.key.as_str();
+            // A keyword of the standard form (FITS Standard 4.0 sec. 4.1.2.1), once.
+            if key.is_empty()
+                || key.len() > 8
+                || !key
+                    .bytes()
+                    .all(|b| b.is_ascii_uppercase() || b.is_ascii_digit() || b == b'-' || b == b'_')
+                || !keys.insert(key)
+            {
+                return Err(Error::internal(format!(
+                    "the table parameter {} has the FITS keyword '{key}', which is not a standard keyword of its own (1 to 8 characters of A-Z, 0-9, - and _)",
+                    p.name
+                )));
+            }
             // FITS header text is printable ASCII (FITS 4.0 section 4.2.1).
-            let c = printable_ascii(c);
+            let c = printable_ascii(&p.fits_comment());
             let cstr = |t: &str| std::ffi::CString::new(t).expect("no NUL in printable ASCII");
-            let (kc, cc) = (cstr(&key), cstr(&c));
+            let (kc, cc) = (cstr(key), cstr(&c));
             let mut status = 0;
-            match param_kind(k, v) {
+            let mut long = false;
+            match &p.value {
                 // Whole numbers as integers (an HDU index, a pixel count).
-                ParamKind::Int(n) => hdu.write_key(&mut f, &key, (n, c.as_str())).map_err(fail)?,
-                ParamKind::Float(x) => {
+                ParamValue::Int(n) => hdu.write_key(&mut f, key, (*n, c.as_str())).map_err(fail)?,
+                // An undefined value (FITS 4.0 section 4.1.2.3).
+                // SAFETY: an open FitsFile on this table and NUL-terminated strings.
+                ParamValue::Float(x) if x.is_nan() => unsafe {
+                    fitsio::sys::ffpkyu(f.as_raw(), kc.as_ptr(), cc.as_ptr(), &mut status);
+                },
+                ParamValue::Float(x) => {
+                    let x = *x;
                     // The digits of the CSV's text, which give back the same double: in fixed
                     // notation with its decimals (CFITSIO's F format, ffpkyg) when that text
                     // has no exponent, else in the E format with as many significant digits
@@ -730,13 +861,15 @@ impl Table {
                     // SAFETY: an open FitsFile on this table and NUL-terminated strings.
                     unsafe { put(f.as_raw(), kc.as_ptr(), x, decim, cc.as_ptr(), &mut status) };
                 }
-                ParamKind::Text => {
-                    // Strings of any length, a SHA-256 after a HIERARCH keyword or a long
-                    // file name, are written whole: continued on CONTINUE cards when they do
-                    // not fit on one (FITS 4.0 section 4.2.1.2, continued string keywords).
+                ParamValue::Text(v) => {
+                    // Strings of any length, such as a long file name, are written whole:
+                    // continued on CONTINUE cards when they do not fit on one (FITS 4.0
+                    // section 4.2.1.2, continued string keywords).
                     let text = printable_ascii(v);
-                    // Quotes are doubled on the card.
-                    continued |= key.len() + text.len() + text.matches('\'').count() > 60;
+                    // A string value holds at most 68 characters on a card of its own, its
+                    // quotes doubled (FITS 4.0 section 4.2.1.1).
+                    long = text.len() + text.matches('\'').count() > 68;
+                    continued |= long;
                     let vc = cstr(&text);
                     // SAFETY: an open FitsFile on this table and NUL-terminated strings.
                     unsafe {
@@ -749,6 +882,19 @@ impl Table {
                         )
                     };
                 }
+            }
+            if status == 0 && !long && !c.is_empty() {
+                // A comment too long for the card after its value (a value of 64 characters
+                // leaves room for none) is not cut: the card keeps what fits of the unit and
+                // the name, and the whole comment follows on COMMENT cards.
+                let description = printable_ascii(&p.description);
+                status = whole_comment(
+                    &mut f,
+                    key,
+                    &c,
+                    &printable_ascii(&p.comment_head()),
+                    &description,
+                );
             }
             if status != 0 {
                 return Err(Error::output(
@@ -851,24 +997,66 @@ impl Table {
     }
 }
 
-/// A header keyword for a parameter name: upper case, at most 8 characters of A-Z, 0-9, `-`,
-/// `_`, or a HIERARCH keyword when longer.
-fn fits_key(name: &str) -> String {
-    let k: String = name
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
-                c.to_ascii_uppercase()
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    if k.len() <= 8 {
-        k
-    } else {
-        format!("HIERARCH {k}")
+/// The comment of a keyword card, from CFITSIO's copy of the card (FITS 4.0 section 4.1.2.3:
+/// after the value, a slash and the comment).
+fn card_comment(f: &mut fitsio::FitsFile, key: &std::ffi::CStr, status: &mut i32) -> String {
+    let mut card = [0 as std::ffi::c_char; 81];
+    // SAFETY: an open FitsFile, a NUL-terminated keyword and a buffer of FLEN_CARD (81) bytes.
+    unsafe { fitsio::sys::ffgcrd(f.as_raw(), key.as_ptr(), card.as_mut_ptr(), status) };
+    if *status != 0 {
+        return String::new();
     }
+    // SAFETY: CFITSIO wrote a NUL-terminated card.
+    let card = unsafe { std::ffi::CStr::from_ptr(card.as_ptr()) }.to_string_lossy();
+    // The value's own text ends before the first slash outside quotes.
+    let mut quoted = false;
+    for (i, ch) in card.char_indices().skip(10) {
+        match ch {
+            '\'' => quoted = !quoted,
+            '/' if !quoted => return card[i + 1..].trim().to_string(),
+            _ => {}
+        }
+    }
+    String::new()
+}
+
+/// Makes sure the comment `comment` of keyword `key` is in the header whole: when the card
+/// cut it, the card's comment becomes `head` (the unit and the name) and `KEY: description`
+/// follows on COMMENT cards, or, when even `head` is cut, the card has no comment and
+/// `KEY: comment` follows. Returns CFITSIO's status.
+fn whole_comment(
+    f: &mut fitsio::FitsFile,
+    key: &str,
+    comment: &str,
+    head: &str,
+    description: &str,
+) -> i32 {
+    let mut status = 0;
+    let kc = std::ffi::CString::new(key).expect("no NUL in a keyword");
+    if card_comment(f, &kc, &mut status) == comment.trim() || status != 0 {
+        return status;
+    }
+    let mut rest = comment;
+    for short in [head, ""] {
+        let cc = std::ffi::CString::new(short).expect("no NUL in ASCII");
+        // SAFETY: an open FitsFile and NUL-terminated strings.
+        unsafe { fitsio::sys::ffmcom(f.as_raw(), kc.as_ptr(), cc.as_ptr(), &mut status) };
+        if status != 0 {
+            return status;
+        }
+        if card_comment(f, &kc, &mut status) == short.trim() {
+            if !short.is_empty() && !description.is_empty() {
+                rest = description;
+            }
+            break;
+        }
+    }
+    for line in wrap_words(&format!("{key}: {rest}"), 70) {
+        let text = std::ffi::CString::new(line).expect("no NUL in ASCII");
+        // SAFETY: an open FitsFile and a NUL-terminated string.
+        unsafe { fitsio::sys::ffpcom(f.as_raw(), text.as_ptr(), &mut status) };
+    }
+    status
 }
 
 /// Reads the rows of a catalogue CSV that cairn wrote (`text`, read from `path`): the
@@ -1024,10 +1212,18 @@ mod tests {
             name: "STRUCTURES".into(),
             ..Default::default()
         };
-        t.meta
-            .push(("floor".into(), "2.5".into(), "map units".into()));
-        t.meta
-            .push(("input".into(), "cloud.fits".into(), String::new()));
+        t.meta.push(Param::new(
+            "floor",
+            ParamValue::Float(2.5),
+            "MJy/sr",
+            "lowest level",
+        ));
+        t.meta.push(Param::new(
+            "input",
+            ParamValue::Text("cloud.fits".into()),
+            "",
+            "",
+        ));
         t.push_i64("id", "", "structure id", vec![0, 1]);
         t.push_f64("ra", "deg", "right ascension", vec![12.5, f64::NAN]);
         t.push_text(
@@ -1122,7 +1318,8 @@ mod tests {
     #[test]
     fn csv_has_units_parameters_and_quoting() {
         let s = sample().to_csv();
-        assert!(s.contains("# parameter floor = 2.5  (map units)"));
+        assert!(s.contains("# parameter floor = 2.5  ([MJy/sr] lowest level)"));
+        assert!(s.contains("# parameter input = cloud.fits\n"));
         assert!(s.contains("# column ra [deg]: right ascension"));
         assert!(
             s.contains("id,ra,kind,edge\n0,12.5,leaf,false\n1,,\"branch, big\",true\n"),

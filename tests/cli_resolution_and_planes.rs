@@ -6,6 +6,8 @@
 //! of each zero-based plane, stored in fixtures/fits/spectral.json with the cubes themselves by
 //! tests/oracle/fits_astropy.py.
 
+#[path = "common/catalogue_files.rs"]
+mod catalogue_files;
 #[path = "common/cli.rs"]
 mod cli;
 mod common;
@@ -183,12 +185,12 @@ fn the_largest_suggested_resolution_is_accepted() {
     let block = m.nx() / labels.nx();
     assert!(block >= 2, "{} -> {}", m.nx(), labels.nx());
     for says in [
-        "# parameter common_resolution = 0.1  (pc,".to_string(),
+        "# parameter common_resolution = 0.1  ([pc] linear resolution".to_string(),
         format!("# parameter regrid_block = {block}  ("),
         format!(
             "# note: the map was smoothed to a common resolution of 0.1 pc at 300 pc and regridded by blocks of {block} x {block} of its pixels: pixel positions, areas and sizes in pixels refer to the grid of labels.fits"
         ),
-        "# parameter distance = 300.0  (pc)".to_string(),
+        "# parameter distance = 300.0  ([pc] distance)".to_string(),
     ] {
         assert!(csv.contains(&says), "{says}");
     }
@@ -358,4 +360,86 @@ fn a_map_too_small_for_three_of_its_own_beams_says_so() {
         ],
     );
     assert!(!e.contains("at most"), "{e}");
+}
+
+/// The catalogue of a cube's plane says which plane it measured, as the run record does: the
+/// parameter `plane` (zero-based, as `--plane`) in the CSV, the FITS table (an integer
+/// keyword, FITS 4.0 section 4.2.3) and the VOTable (a `long` PARAM), and the plane's own
+/// wavelength, the speed of light over the frequency astropy 8.0.2 gives that plane
+/// (fixtures/fits/spectral.json, `WCS.spectral.pixel_to_world`).
+#[test]
+fn the_catalogue_of_a_cube_names_its_plane() {
+    let d = tempfile::tempdir().unwrap();
+    let cube = fixture_path("fits/cube_freq.fits");
+    let reference = fixture_json("fits/spectral.json");
+    let freq = nums(&reference["files"]["cube_freq.fits"]["frequency_hz"]);
+    for plane in [1usize, 2] {
+        let out = format!("p{plane}");
+        let o = cairn(
+            &[
+                "segment",
+                cube.to_str().unwrap(),
+                "--plane",
+                &plane.to_string(),
+                "-o",
+                &out,
+                "--floor",
+                "1",
+                "--prominence",
+                "1",
+                "--min-area",
+                "1px",
+                "--noise",
+                "1",
+                "--temperature",
+                "15K",
+                "--no-figure",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let dir = d.path().join(&out);
+        let params = catalogue_files::checked_params(&dir, "structures");
+        let find = |name: &str| {
+            params
+                .iter()
+                .find(|(c, _, _)| c.name == name)
+                .unwrap_or_else(|| panic!("no {name}"))
+                .clone()
+        };
+        let (c, k, p) = find("plane");
+        assert_eq!(c.value, plane.to_string());
+        assert_eq!((k.key.as_str(), k.is_string), ("PLANE", false));
+        assert_eq!(k.value, plane.to_string());
+        assert_eq!(p.datatype, "long");
+        let run: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(dir.join("run.json")).unwrap()).unwrap();
+        assert_eq!(run["input"]["plane"], plane);
+        let (c, _, _) = find("wavelength");
+        assert_close(
+            c.value.parse().unwrap(),
+            cairn::units::C_LIGHT / freq[plane] * 1e6,
+            1e-12,
+            0.0,
+            &format!("plane {plane}'s wavelength in um (astropy 8.0.2)"),
+        );
+    }
+    // A map that is no cube has no plane to name.
+    let o = cairn(
+        &[
+            "segment",
+            fixture_path("segment/map.fits").to_str().unwrap(),
+            "-o",
+            "flat",
+            "--noise",
+            "1e20",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let params = catalogue_files::checked_params(&d.path().join("flat"), "structures");
+    assert!(!params.iter().any(|(c, _, _)| c.name == "plane"));
 }

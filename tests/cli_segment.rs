@@ -4,6 +4,9 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+#[path = "common/catalogue_files.rs"]
+mod catalogue_files;
+
 fn cairn(args: &[&str], dir: &Path) -> (i32, String, String) {
     let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
         .args(args)
@@ -626,12 +629,38 @@ fn an_undefined_temperature_pixel_takes_the_maps_median() {
         ),
         "{stderr}"
     );
+    // With a temperature per pixel the catalogue has no one temperature: `temperature` is
+    // left out and `temperature_map` names the file, as text; with one temperature,
+    // `temperature` is a number (a parameter's type does not change from run to run).
+    let params = catalogue_files::checked_params(&d.path().join("map"), "structures");
+    assert!(!params.iter().any(|(c, _, _)| c.name == "temperature"));
+    let (c, k, p) = params
+        .iter()
+        .find(|(c, _, _)| c.name == "temperature_map")
+        .expect("temperature_map");
+    assert_eq!(
+        (c.value.as_str(), p.datatype.as_str()),
+        ("temp.fits", "char")
+    );
+    assert_eq!((k.key.as_str(), k.value.as_str()), ("TEMPMAP", "temp.fits"));
     let mut uniform = vec!["segment", demo, "-o", "uniform"];
     uniform.extend(common);
     uniform.extend(["--temperature", "14K"]);
     let (code, _, stderr) = cairn(&uniform, d.path());
     assert_eq!(code, 0, "{stderr}");
     assert!(!stderr.contains("undefined"), "{stderr}");
+    let params = catalogue_files::checked_params(&d.path().join("uniform"), "structures");
+    assert!(!params.iter().any(|(c, _, _)| c.name == "temperature_map"));
+    let (c, k, p) = params
+        .iter()
+        .find(|(c, _, _)| c.name == "temperature")
+        .expect("temperature");
+    assert_eq!((c.value.as_str(), c.unit.as_str()), ("14.0", "K"));
+    assert_eq!(
+        (p.datatype.as_str(), p.unit.as_deref()),
+        ("double", Some("K"))
+    );
+    assert_eq!((k.key.as_str(), k.value.as_str()), ("TEMPERAT", "14.0"));
     let a = catalogue_columns(&d.path().join("map/structures.csv"));
     let b = catalogue_columns(&d.path().join("uniform/structures.csv"));
     assert_eq!(a["id"], b["id"]);
@@ -680,9 +709,10 @@ fn long_string_key(path: &Path, hdu: usize, key: &str) -> String {
     }
 }
 
-/// The FITS catalogue keeps the input's full SHA-256 (after a long HIERARCH keyword) and a
-/// long input file name whole, on continued cards where one card is too short, as the CSV and
-/// the run record do.
+/// The FITS catalogue keeps the input's full SHA-256, on one card after a keyword of 8
+/// characters (FITS 4.0 section 4.1.2.1; its description on a COMMENT card), and a long input
+/// file name whole, on continued cards where one card is too short, as the CSV and the run
+/// record do.
 #[test]
 fn the_fits_catalogue_keeps_long_strings_whole() {
     let d = tempfile::tempdir().unwrap();
@@ -707,8 +737,20 @@ fn the_fits_catalogue_keeps_long_strings_whole() {
     let sha = run["input"]["sha256"].as_str().unwrap();
     assert_eq!(sha.len(), 64);
     let table = d.path().join("run/structures.fits");
-    assert_eq!(long_string_key(&table, 1, "INPUT_SHA256"), sha);
+    assert_eq!(long_string_key(&table, 1, "SHA256"), sha);
     assert_eq!(long_string_key(&table, 1, "INPUT"), name);
+    let cards = catalogue_files::extension_cards(&std::fs::read(&table).unwrap());
+    let at = cards
+        .iter()
+        .position(|c| c.starts_with("SHA256  ="))
+        .unwrap();
+    assert_eq!(cards[at].trim_end(), format!("SHA256  = '{sha}'"));
+    assert!(!cards[at + 1].starts_with("CONTINUE"), "{}", cards[at + 1]);
+    assert_eq!(
+        cards[at + 1].trim_end(),
+        "COMMENT SHA256: input_sha256: SHA-256 of the input file"
+    );
+    catalogue_files::checked_params(&d.path().join("run"), "structures");
 }
 
 /// A map without a celestial WCS has no pixel size on the sky, so --distance cannot give
@@ -1031,10 +1073,10 @@ fn records_keep_what_was_given() {
     assert_eq!(code, 0, "{stderr}");
     let csv = std::fs::read_to_string(d.path().join("r/structures.csv")).unwrap();
     for says in [
-        "# parameter distance = 400.0  (pc)",
-        "# parameter floor = 0.05  (map units (given as 50mJy/beam))",
-        "(map units (given as 3sigma))",
-        "(pixels (given as 1.5beam))",
+        "# parameter distance = 400.0  ([pc] distance)",
+        "# parameter floor = 0.05  ([Jy/beam] lowest level, given as 50mJy/beam)",
+        "([Jy/beam] least rise of a peak, given as 3sigma)",
+        "([pixel2] least area of a leaf, given as 1.5beam)",
     ] {
         assert!(csv.contains(says), "{says}");
     }
@@ -1085,63 +1127,28 @@ fn records_keep_what_was_given() {
     let (code, _, stderr) = cairn(&["compare", "r", "r2", "-o", "cmp", "-q"], d.path());
     assert_eq!(code, 0, "{stderr}");
     assert!(!stderr.contains("(as given) differs"), "{stderr}");
-    // The FITS table's header cards, 80 characters each.
-    let bytes = std::fs::read(d.path().join("r/structures.fits")).unwrap();
-    let cards: Vec<String> = bytes
-        .chunks(80)
-        .map(|c| String::from_utf8_lossy(c).into_owned())
-        .collect();
-    let card = |key: &str| -> String {
-        cards
+    // The FITS table's keywords and the VOTable's PARAMs agree with the CSV, of standard
+    // form with their units (FITS 4.0 sections 4.1.2.1 and 4.3.2; VOTable 1.4 section 4.1).
+    let params = catalogue_files::checked_params(&d.path().join("r"), "structures");
+    let card = |name: &str| {
+        params
             .iter()
-            .find(|c| c.starts_with(key))
-            .unwrap_or_else(|| panic!("no {key} card"))
-            .clone()
+            .find(|(c, _, _)| c.name == name)
+            .map(|(_, k, _)| k.clone())
+            .unwrap_or_else(|| panic!("no {name}"))
     };
-    let value = |key: &str| -> String {
-        let c = card(key);
-        let v = c.split_once('=').unwrap().1;
-        v.split_once('/').map_or(v, |(v, _)| v).trim().to_string()
-    };
-    assert_eq!(value("HDU     "), "0");
-    assert_eq!(value("HIERARCH CONNECTIVITY"), "8");
-    assert_eq!(value("DISTANCE"), "400.0");
-    let floor_csv: f64 = csv
-        .lines()
-        .find_map(|l| l.strip_prefix("# parameter floor = "))
-        .and_then(|l| l.split_whitespace().next())
-        .unwrap()
-        .parse()
-        .unwrap();
-    let floor_fits: f64 = value("FLOOR   ").replace('E', "e").parse().unwrap();
-    assert_eq!(floor_fits, floor_csv);
-    let noise_csv: f64 = csv
-        .lines()
-        .find_map(|l| l.strip_prefix("# parameter noise = "))
-        .and_then(|l| l.split_whitespace().next())
-        .unwrap()
-        .parse()
-        .unwrap();
-    let noise_fits: f64 = value("NOISE   ").replace('E', "e").parse().unwrap();
-    assert_eq!(noise_fits, noise_csv);
-    // Every parameter's comment is whole in its FITS card (a card holds 80 characters, FITS
-    // 4.0 section 4.1), as the CSV gives it; long strings (CONTINUE cards) aside.
-    for line in csv.lines().filter_map(|l| l.strip_prefix("# parameter ")) {
-        let (name, rest) = line.split_once(" = ").unwrap();
-        let comment = rest.split_once("  (").unwrap().1.strip_suffix(')').unwrap();
-        let key = name.to_uppercase();
-        let c = cards
-            .iter()
-            .find(|c| {
-                c.starts_with(&format!("{key:<8}=")) || c.starts_with(&format!("HIERARCH {key} "))
-            })
-            .unwrap_or_else(|| panic!("no card for {name}"));
-        if c.contains("&'") {
-            continue;
-        }
-        let in_card = c.split_once(" / ").map(|(_, m)| m.trim_end()).unwrap_or("");
-        assert_eq!(in_card, comment, "{name}: the card {c:?}");
-    }
+    assert_eq!(
+        (card("hdu").key, card("hdu").value),
+        ("HDU".into(), "0".into())
+    );
+    let connectivity = card("connectivity");
+    assert_eq!(
+        (connectivity.key.as_str(), connectivity.value.as_str()),
+        ("CONNECT", "8")
+    );
+    assert_eq!(card("distance").value, "400.0");
+    assert_eq!(card("floor").key, "FLOOR");
+    assert_eq!(card("noise").key, "NOISE");
 }
 
 /// `--unit` of another kind than the header's readable BUNIT changes what every value means:
@@ -1216,13 +1223,14 @@ fn a_file_name_that_reads_as_a_number_stays_text() {
     for says in [
         "<PARAM name=\"input\" datatype=\"char\" arraysize=\"*\" value=\"2024\">",
         "<PARAM name=\"hdu\" datatype=\"long\" value=\"0\">",
-        "<PARAM name=\"min_area\" datatype=\"long\" value=",
+        "<PARAM name=\"min_area\" datatype=\"long\" unit=\"pixel2\" value=",
     ] {
         assert!(vot.contains(says), "{says}");
     }
     assert!(
-        vot.lines()
-            .any(|l| l.starts_with("<PARAM name=\"floor\" datatype=\"double\" value=")),
+        vot.lines().any(
+            |l| l.starts_with("<PARAM name=\"floor\" datatype=\"double\" unit=\"cm-2\" value=")
+        ),
         "floor as a double"
     );
 }
@@ -1310,7 +1318,7 @@ fn the_least_area_without_a_beam_is_said() {
     );
     let csv = std::fs::read_to_string(d.path().join("r/structures.csv")).unwrap();
     assert!(csv.contains(
-        "# parameter min_area = 9  (pixels (given as default (9 px: the map has no beam)))"
+        "# parameter min_area = 9  ([pixel2] least area of a leaf, given as default (9 px: the map has no beam))"
     ));
     // With a beam, the default is one beam and nothing is said.
     let (code, stdout, stderr) = cairn(

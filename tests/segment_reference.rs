@@ -9,6 +9,8 @@
 //! on the stored VOTable. The catalogue of grown leaves (`structures-grown.csv`) is checked the
 //! same way against `regionprops` on cairn's grown label plane (`leaves-grown.fits`).
 
+#[path = "common/catalogue_files.rs"]
+mod catalogue_files;
 mod common;
 #[allow(dead_code)]
 #[path = "common/segment_fixture.rs"]
@@ -563,5 +565,32 @@ fn catalogue_units_parse_as_meant() {
             "fixtures/segment/pixel_sum_units.json is no longer cairn's spelling"
         );
         assert_eq!(verdicts[map_unit], "pix", "{map_unit}: {sum_unit}");
+    }
+}
+
+/// The stored catalogue's parameters as strict readers take them (astropy 8.0.2, from
+/// tests/oracle/segment_skimage.py): the VOTable parses with every warning an error, each
+/// PARAM with a unit has one astropy reads as a VOUnit, each FITS keyword is a standard one of
+/// at most 8 characters (FITS Standard 4.0 sec. 4.1.2.1) of the type the VOTable gives.
+#[test]
+fn the_stored_catalogues_parameters_read_as_their_standards_say() {
+    let reference = fixture_json("segment/reference.json");
+    let run = fixture_path("segment/run");
+    let params = catalogue_files::checked_params(&run, "structures");
+    let pars = reference["votable_params"].as_object().unwrap();
+    let keys = reference["fits_params"].as_object().unwrap();
+    assert_eq!((pars.len(), keys.len()), (params.len(), params.len()));
+    for (c, card, p) in &params {
+        let r = &pars[&c.name];
+        assert_eq!(r["datatype"], p.datatype.as_str(), "{}", c.name);
+        assert_eq!(p.unit.is_some(), r["unit"].is_string(), "{}", c.name);
+        let k = &keys[&card.key];
+        assert_eq!(k["standard_keyword"], true, "{}", card.key);
+        let fits_type = match p.datatype.as_str() {
+            "long" => "int",
+            "double" => "float",
+            _ => "str",
+        };
+        assert_eq!(k["type"], fits_type, "{}", card.key);
     }
 }

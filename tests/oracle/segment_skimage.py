@@ -55,7 +55,9 @@ descendants (from hierarchy.json). Sources:
   for other map units (fixtures/segment/pixel_sum_units.json).
 * astropy 8.0.2 astropy.io.votable on cairn's run/structures.vot: each annotated field's UCD,
   whether astropy.io.votable.ucd.check_ucd accepts it against the IVOA controlled vocabulary,
-  and the system and equinox of the COOSYS it refers to.
+  and the system and equinox of the COOSYS it refers to; the document parsed with every
+  warning an error, and each PARAM's datatype and unit (VOUnit format); astropy.io.fits on
+  run/structures.fits, verified, with each parameter keyword's type.
 """
 import csv
 import json
@@ -365,6 +367,28 @@ with open(os.path.join(SRC, "pixel_sum_units.json")) as f:
 pixel_sums = {b: (u.Unit(s, format="fits") / u.Unit(b, format="fits")).to_string("fits")
               for b, s in spelled.items()}
 
+# The stored catalogue as a strict reader takes it: astropy.io.votable with every warning an
+# error (units and PARAMs included), and each FITS table keyword of the standard form
+# (astropy.io.fits's verify) with the type astropy reads.
+votable.parse(os.path.join(SRC, "run", "structures.vot"), verify="exception")
+vot_params = {p.name: {"datatype": p.datatype,
+                       "unit": None if p.unit is None else p.unit.to_string("vounit")}
+              for p in vot.get_first_table().params}
+with fits.open(os.path.join(SRC, "run", "structures.fits")) as h:
+    h.verify("exception")
+    fits_params = {}
+    for card in h[1].header.cards:
+        k = card.keyword
+        if k in ("XTENSION", "BITPIX", "NAXIS", "NAXIS1", "NAXIS2", "PCOUNT", "GCOUNT",
+                 "TFIELDS", "EXTNAME", "COMMENT", "LONGSTRN", "CONTINUE", "") \
+                or k[:5] in ("TTYPE", "TFORM", "TUNIT"):
+            continue
+        v = card.value
+        fits_params[k] = {"type": "int" if isinstance(v, int) and not isinstance(v, bool)
+                          else "float" if isinstance(v, float) else "str",
+                          "standard_keyword": len(k) <= 8 and not card.field_specifier
+                          and not k.startswith("HIERARCH")}
+
 import astropy
 import skimage
 
@@ -379,4 +403,6 @@ write_json(os.path.join(OUT, "reference.json"), {
     "votable_ucds": ucds,
     "fits_units": units,
     "pixel_sum_units_over_map_unit": pixel_sums,
+    "votable_params": vot_params,
+    "fits_params": fits_params,
 })
