@@ -1,6 +1,8 @@
 //! Regenerates `fixtures/segment/`: a small synthetic map with missing pixels
 //! (`map.fits`) and cairn's segmentation of it (`run/`), which
-//! `tests/oracle/segment_skimage.py` measures with scikit-image and astropy.
+//! `tests/oracle/segment_skimage.py` measures with scikit-image and astropy, and the units
+//! cairn's catalogues write for each spelling of a map's unit (`unit_spellings.json`), which
+//! it parses with astropy.
 //!
 //! Run from the repository root, then re-run the oracle:
 //!
@@ -76,6 +78,24 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let s = cairn::segment::run(&m, &fixture_options(&root.join("run")), &|_, _| {})?;
     // The run record holds timings and paths; it is not part of the fixture.
     std::fs::remove_file(root.join("run/run.json"))?;
+    // The units the catalogues write for each spelling of the map's unit, for the oracle.
+    let scratch = tempfile::tempdir()?;
+    let mut spellings = serde_json::Map::new();
+    for bunit in segment_fixture::UNIT_SPELLINGS {
+        let (read, units) = segment_fixture::catalogue_units(scratch.path(), bunit);
+        spellings.insert(
+            bunit.to_string(),
+            serde_json::json!({
+                "unit": read,
+                "sum_unit": cairn::units::times_pixel(&read),
+                "units": units,
+            }),
+        );
+    }
+    std::fs::write(
+        root.join("unit_spellings.json"),
+        serde_json::to_string_pretty(&spellings)? + "\n",
+    )?;
     println!(
         "{} leaves, {} branches, {} roots with children written under {}",
         s.leaves,

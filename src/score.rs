@@ -217,10 +217,9 @@ pub fn conversion_blocker(map: &Map, ctx: &Context) -> Option<String> {
     if let PixelUnit::Other = unit {
         return Some(format!(
             "{} has no conversion to column density: masses and the physics need a map of dust emission, column density or extinction (give --unit if the map's unit is wrong)",
-            if map.unit_text.is_empty() {
-                "a map without a unit".to_string()
-            } else {
-                format!("the unit '{}'", map.unit_text)
+            match crate::units::canonical_unit(map.unit, &map.unit_text) {
+                u if u.is_empty() => "a map without a unit".to_string(),
+                u => format!("the unit '{u}'"),
             }
         ));
     }

@@ -465,6 +465,13 @@ fn resolve_with(
     })
 }
 
+/// The unit of the map's values in the outputs: the canonical spelling of the unit cairn
+/// read ([`units::canonical_unit`]: `cm-2` for a BUNIT of `1/cm2`, `mag` for `mag(AK)`,
+/// `Jy/beam` for `JY/BEAM`), or a unit it does not convert as written.
+pub fn map_unit(map: &Map) -> String {
+    units::canonical_unit(map.unit, &map.unit_text)
+}
+
 /// The input's place in the run record: `path` as text and, when the path is not valid UTF-8
 /// (which JSON text cannot hold), also `path_bytes`, its bytes as numbers, from which
 /// [`recorded_input`] gives back the exact path.
@@ -705,11 +712,9 @@ pub fn catalogue(
     footprint: Footprint,
 ) -> Table {
     let grown = footprint == Footprint::Grown;
-    let u = if map.unit_text.is_empty() {
-        String::new()
-    } else {
-        map.unit_text.clone()
-    };
+    // The unit cairn read, in its canonical spelling (the map's BUNIT as written is the
+    // parameter `bunit`).
+    let u = map_unit(map);
     // A sum over pixels: map unit times pixel, with the pixel where unit parsers read it.
     let usum = crate::units::times_pixel(&u);
     let (lon, lat) = sky_names(map);
@@ -1141,7 +1146,7 @@ pub struct TreeFile<'a> {
     prominence: f64,
     roots: Vec<u32>,
     structures: Vec<TreeNode<'a>>,
-    unit: &'a str,
+    unit: String,
 }
 
 /// One structure of the hierarchy file.
@@ -1161,7 +1166,7 @@ struct TreeNode<'a> {
 }
 
 /// The hierarchy as JSON: structures with parent, children and levels.
-pub fn tree_json<'a>(h: &'a Hierarchy, ms: &[Measurement], map: &'a Map) -> TreeFile<'a> {
+pub fn tree_json<'a>(h: &'a Hierarchy, ms: &[Measurement], map: &Map) -> TreeFile<'a> {
     TreeFile {
         connectivity: match h.params.connectivity {
             Connectivity::Four => 4,
@@ -1188,7 +1193,7 @@ pub fn tree_json<'a>(h: &'a Hierarchy, ms: &[Measurement], map: &'a Map) -> Tree
                 peak_y: s.peak_y,
             })
             .collect(),
-        unit: &map.unit_text,
+        unit: map_unit(map),
     }
 }
 
@@ -1641,21 +1646,22 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         }
         other_inputs.insert(name, entry);
     }
+    let unit = map_unit(map);
     let record = serde_json::json!({
         "cairn_version": env!("CARGO_PKG_VERSION"),
         "command_line": o.command_line,
         "input": input_record,
         "other_inputs": other_inputs,
-        "map": { "nx": map.nx(), "ny": map.ny(), "unit": map.unit_text, "unit_kind": map.unit.map(|u| u.kind_name()), "header_unit": map.header.get_str("BUNIT") },
+        "map": { "nx": map.nx(), "ny": map.ny(), "unit": unit, "unit_kind": map.unit.map(|u| u.kind_name()), "header_unit": map.header.get_str("BUNIT") },
         "parameters": {
-            "floor": { "value": r.floor, "unit": map.unit_text, "given": r.given[0], "typed": r.typed[0] },
-            "prominence": { "value": r.prominence, "unit": map.unit_text, "given": r.given[1], "typed": r.typed[1] },
+            "floor": { "value": r.floor, "unit": unit, "given": r.given[0], "typed": r.typed[0] },
+            "prominence": { "value": r.prominence, "unit": unit, "given": r.given[1], "typed": r.typed[1] },
             "min_area": { "value": r.min_area_px, "unit": "pixel2", "given": r.given[2], "typed": r.typed[2] },
             "connectivity": match o.connectivity { Connectivity::Four => 4, Connectivity::Eight => 8 },
             "grow_leaves": o.grow_leaves,
             "leaves_only": o.leaves_only,
         },
-        "noise": { "value": r.noise, "unit": map.unit_text, "source": r.noise_source, "background": r.background },
+        "noise": { "value": r.noise, "unit": unit, "source": r.noise_source, "background": r.background },
         "beam": map.beam,
         "common_resolution": map.common_resolution.map(|c| serde_json::json!({
             "resolution_m": c.resolution_m,
@@ -1765,16 +1771,18 @@ fn negative_mass_warning<'a>(
 
 /// With a distance given (masses asked for), why the physics columns are left out, as the
 /// summary's warning says it: for the catalogue's notes and the run record's warnings. A map
-/// whose header names a unit without conversion was already warned about when it was read.
+/// whose header names a unit cairn does not read was already warned about when it was read
+/// (not one whose BUNIT is the dimensionless `1`, which says plainly that it has no unit).
 fn physics_warning(ctx: &crate::score::Context, map: &Map, note: Option<&str>) -> Option<String> {
     let note = note?;
-    let unit_warned =
-        map.unit == Some(units::PixelUnit::Other) && map.unit_source == crate::map::Source::Header;
+    let unit_warned = map.unit == Some(units::PixelUnit::Other)
+        && map.unit_source == crate::map::Source::Header
+        && units::parse_pixel_unit(&map.unit_text, units::ExtinctionBand::V).is_none();
     (ctx.distance_m.is_some() && !unit_warned).then(|| format!("no masses: {note}"))
 }
 
-/// The catalogue's parameters: the input (file, SHA-256, HDU, plane of a cube), the map's unit,
-/// the thresholds with how they were given, the noise, the
+/// The catalogue's parameters: the input (file, SHA-256, HDU, plane of a cube), the map's unit
+/// (as read and as its BUNIT has it), the thresholds with how they were given, the noise, the
 /// version, the common resolution and the physical assumptions ([`physics_meta`]). Each has a
 /// type that does not change from run to run, a unit where it is a quantity (valid as a FITS
 /// unit and as a VOUnit) and a description.
@@ -1785,7 +1793,7 @@ fn run_meta(map: &Map, o: &SegmentOptions, r: &Resolved, input_sha: &str) -> Vec
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_default()
     };
-    let unit = map.unit_text.clone();
+    let unit = map_unit(map);
     let mut v = vec![
         Param::new("input", Text(file_name(&map.path)), "", "input map"),
         Param::new(
@@ -1816,6 +1824,18 @@ fn run_meta(map: &Map, o: &SegmentOptions, r: &Resolved, input_sha: &str) -> Vec
         "",
         "unit of the map's values as read",
     ));
+    // The header's unit as written, which `unit` may spell otherwise (`mag(AK)`, `JY/BEAM`).
+    if let Some(b) = map.header.get_str("BUNIT") {
+        v.push(
+            Param::new(
+                "bunit",
+                Text(b.trim().to_string()),
+                "",
+                "the map's BUNIT as written",
+            )
+            .with_key("MAPBUNIT"),
+        );
+    }
     v.push(Param::new(
         "quantity",
         Text(

@@ -449,12 +449,17 @@ impl PixelUnit {
 
 /// Reads a FITS `BUNIT` (or a `--unit` value) into what the pixels measure.
 ///
-/// `band` chooses the extinction band for `mag` maps. Returns `None` for strings that name no
-/// quantity cairn can use (`K` brightness temperature, counts, empty).
+/// `band` chooses the extinction band for `mag` maps. `1`, the FITS unit of a dimensionless
+/// value (FITS Standard 4.0 sec. 4.3.1), reads as [`PixelUnit::Other`]: values without a
+/// unit, measured for their structure alone. Returns `None` for strings that name no quantity
+/// cairn can use (`K` brightness temperature, counts, empty).
 pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> {
     let raw = bunit.trim();
     if raw.is_empty() {
         return None;
+    }
+    if is_dimensionless(raw) {
+        return Some(PixelUnit::Other);
     }
     let all_upper = raw.chars().any(|c| c.is_ascii_alphabetic())
         && !raw.chars().any(|c| c.is_ascii_lowercase());
@@ -498,6 +503,53 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
         "/beam" => Some(PixelUnit::FluxPerBeam { to_si: si }),
         "/pixel" | "/pix" | "/px" => Some(PixelUnit::FluxPerPixel { to_si: si }),
         _ => None,
+    }
+}
+
+/// Whether a unit's text is `1`, the FITS unit of a dimensionless value (FITS Standard 4.0
+/// sec. 4.3.1: "1" where a unit is required but the value has none).
+pub fn is_dimensionless(text: &str) -> bool {
+    text.trim() == "1"
+}
+
+/// The unit of a map's values as cairn writes it in its outputs: the canonical spelling of the
+/// unit it recognised and converts (`cm-2`, `m-2`, `mag`, `MJy/sr`, `Jy/beam`, `mJy/beam`,
+/// `Jy/pixel`, ...), whatever spelling the map's BUNIT or `--unit` used (`1/cm2`, `mag(AK)`,
+/// `JY/BEAM`, `MJy/steradian`, `Jansky/beam`), so that a FITS or VO unit parser reads it (FITS
+/// Standard 4.0 sec. 4.3; IVOA VOUnits 1.0). A unit cairn does not convert
+/// ([`PixelUnit::Other`]) is kept as `text` gives it, trimmed, except the dimensionless `1`,
+/// written as no unit. An extinction's band is no part of its unit (the catalogue's
+/// `quantity` names it).
+pub fn canonical_unit(unit: Option<PixelUnit>, text: &str) -> String {
+    // The SI prefix of a jansky unit, from its factor to SI.
+    let jansky = |to_si: f64, per: &str| {
+        let ratio = to_si / JANSKY;
+        let prefix = [
+            ("G", 1e9),
+            ("M", 1e6),
+            ("k", 1e3),
+            ("", 1.0),
+            ("m", 1e-3),
+            ("u", 1e-6),
+        ]
+        .into_iter()
+        .find(|(_, p)| (ratio / p - 1.0).abs() < 1e-9)
+        .map(|(t, _)| t);
+        match prefix {
+            Some(t) => format!("{t}Jy/{per}"),
+            // No prefix of the table (cannot come from the parser): the factor itself.
+            None => format!("{} Jy/{per}", tidy(ratio)),
+        }
+    };
+    match unit {
+        Some(PixelUnit::ColumnDensity { to_si: 1.0 }) => "m-2".into(),
+        Some(PixelUnit::ColumnDensity { .. }) => "cm-2".into(),
+        Some(PixelUnit::Extinction { .. }) => "mag".into(),
+        Some(PixelUnit::SurfaceBrightness { to_si }) => jansky(to_si, "sr"),
+        Some(PixelUnit::FluxPerBeam { to_si }) => jansky(to_si, "beam"),
+        Some(PixelUnit::FluxPerPixel { to_si }) => jansky(to_si, "pixel"),
+        Some(PixelUnit::Other) | None if is_dimensionless(text) => String::new(),
+        Some(PixelUnit::Other) | None => text.trim().to_string(),
     }
 }
 
@@ -551,12 +603,22 @@ pub fn parse_unit_option(text: &str, band: ExtinctionBand) -> Option<(PixelUnit,
     parse_pixel_unit(t, band).map(|u| (u, t.to_string()))
 }
 
-/// Splits "MJy/sr" into (1e6, "/sr"); `None` if the string has no jansky in it.
-fn split_jansky(s: &str, all_upper: bool) -> Option<(f64, String)> {
+/// Where the jansky is in a unit's text, as its symbol `Jy` or its name `Jansky` (any case):
+/// the byte position and length of that word.
+fn find_jansky(s: &str) -> Option<(usize, usize)> {
     let lower = s.to_ascii_lowercase();
-    let pos = lower.find("jy")?;
+    lower
+        .find("jansky")
+        .map(|p| (p, 6))
+        .or_else(|| lower.find("jy").map(|p| (p, 2)))
+}
+
+/// Splits "MJy/sr" (or "MJansky/sr") into (1e6, "/sr"); `None` if the string has no jansky
+/// in it.
+fn split_jansky(s: &str, all_upper: bool) -> Option<(f64, String)> {
+    let (pos, len) = find_jansky(s)?;
     let prefix_txt = &s[..pos];
-    let rest = s[pos + 2..].to_string();
+    let rest = s[pos + len..].to_string();
     let prefix = if all_upper {
         match prefix_txt {
             "" => 1.0,
@@ -587,8 +649,7 @@ fn split_jansky(s: &str, all_upper: bool) -> Option<(f64, String)> {
 /// to give the other. `None` for any other unit.
 pub fn prefix_case_note(bunit: &str) -> Option<String> {
     let raw = bunit.trim();
-    let lower = raw.to_ascii_lowercase();
-    let pos = lower.find("jy")?;
+    let (pos, len) = find_jansky(raw)?;
     if pos != 1 {
         return None;
     }
@@ -598,10 +659,10 @@ pub fn prefix_case_note(bunit: &str) -> Option<String> {
     if !(upper || all_lower) || !matches!(&raw[..1], "m" | "M") {
         return None;
     }
-    let rest = normalise_unit(&raw[3..]).to_ascii_lowercase();
+    let rest = normalise_unit(&raw[1 + len..]).to_ascii_lowercase();
     // Said only where the reading goes against the usual unit: MJy/sr is the usual surface
     // brightness (`MJY/SR` is common and means it), mJy the usual flux per beam or pixel.
-    let per_sr = rest == "/sr";
+    let per_sr = matches!(rest.as_str(), "/sr" | "/steradian");
     if upper == per_sr {
         return None;
     }
@@ -832,6 +893,84 @@ mod tests {
         for s in ["", "K", "counts", "furlongs", "xJy/beam"] {
             assert_eq!(parse_pixel_unit(s, v), None, "{s}");
         }
+        // The jansky by its name (astropy 8.0.2 reads `Jansky/beam` as Jy/beam too).
+        for s in ["Jansky/beam", "JANSKY/BEAM", "jansky/beam", "Jansky beam-1"] {
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                Some(PixelUnit::FluxPerBeam { to_si: 1e-26 }),
+                "{s}"
+            );
+        }
+        assert_eq!(
+            parse_pixel_unit("MJansky/sr", v),
+            parse_pixel_unit("MJy/sr", v)
+        );
+        // FITS's dimensionless unit (FITS Standard 4.0 sec. 4.3.1): no unit, structure only.
+        assert_eq!(parse_pixel_unit("1", v), Some(PixelUnit::Other));
+        assert_eq!(parse_pixel_unit(" 1 ", v), Some(PixelUnit::Other));
+    }
+
+    /// Every spelling cairn reads is written in the outputs as the canonical unit of its kind,
+    /// which cairn reads back as the same unit (the outputs of a run describe the run), and
+    /// which FITS and VO unit parsers read (checked against astropy 8.0.2 in
+    /// tests/segment_reference.rs).
+    #[test]
+    fn outputs_use_one_canonical_spelling_per_unit() {
+        let cases = [
+            ("cm-2", "cm-2"),
+            ("CM-2", "cm-2"),
+            ("1/cm2", "cm-2"),
+            ("cm^-2", "cm-2"),
+            ("N(H2) cm-2", "cm-2"),
+            ("m-2", "m-2"),
+            ("mag", "mag"),
+            ("Mag", "mag"),
+            ("magnitudes", "mag"),
+            ("mag(AK)", "mag"),
+            ("mag(AV)", "mag"),
+            ("A_V", "mag"),
+            ("MJy/sr", "MJy/sr"),
+            ("MJY/SR", "MJy/sr"),
+            ("MJy/steradian", "MJy/sr"),
+            ("MJy.sr-1", "MJy/sr"),
+            ("Jy/sr", "Jy/sr"),
+            ("kJy/sr", "kJy/sr"),
+            ("Jy/beam", "Jy/beam"),
+            ("JY/BEAM", "Jy/beam"),
+            ("Jy/Beam", "Jy/beam"),
+            ("jy/beam", "Jy/beam"),
+            ("Jansky/beam", "Jy/beam"),
+            ("JANSKY/BEAM", "Jy/beam"),
+            ("mJy/beam", "mJy/beam"),
+            ("MJY/BEAM", "MJy/beam"),
+            ("uJy/beam", "uJy/beam"),
+            ("Jy/pixel", "Jy/pixel"),
+            ("Jy/pix", "Jy/pixel"),
+            ("1", ""),
+        ];
+        for band in [ExtinctionBand::V, ExtinctionBand::K] {
+            for (spelling, canonical) in cases {
+                let unit = parse_pixel_unit(spelling, band);
+                assert!(unit.is_some(), "{spelling}");
+                assert_eq!(canonical_unit(unit, spelling), canonical, "{spelling}");
+                // Read back: the same unit (an extinction's band is the map's, not the unit's).
+                let back = if canonical.is_empty() {
+                    Some(PixelUnit::Other)
+                } else {
+                    parse_pixel_unit(canonical, band)
+                };
+                match unit {
+                    Some(PixelUnit::Extinction { .. }) => {
+                        assert!(matches!(back, Some(PixelUnit::Extinction { .. })))
+                    }
+                    _ => assert_eq!(back, unit, "{spelling} -> {canonical}"),
+                }
+            }
+        }
+        // A unit cairn does not convert stays as written.
+        assert_eq!(canonical_unit(Some(PixelUnit::Other), " K km/s "), "K km/s");
+        assert_eq!(canonical_unit(Some(PixelUnit::Other), ""), "");
+        assert_eq!(canonical_unit(None, ""), "");
     }
 
     #[test]

@@ -635,3 +635,113 @@ fn an_extinction_band_for_a_map_of_another_kind_is_said() {
         o.stdout
     );
 }
+
+/// BUNIT '1', the FITS unit of a dimensionless value (FITS Standard 4.0 sec. 4.3.1), is a map
+/// without a unit: measured for its structure only, as the README says of unitless maps, not
+/// refused as an unreadable column density. Self-consistency: the same pixels give the very
+/// structure of the cm-2 map; the catalogue writes no unit for the levels (a sum is in
+/// pixels) and keeps the header's '1' as `bunit`; the masses asked for with --distance are
+/// not made, and a warning says so.
+#[test]
+fn a_dimensionless_map_is_measured_for_its_structure() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let base = cairn::map::load(&dir.join("s/synth.fits"), &Default::default()).unwrap();
+    let mut h = base.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("1".into()), "");
+    cairn::fits_write::write_image_f32(&dir.join("one.fits"), base.data.view(), &h, false).unwrap();
+    let col = segment(dir, "s/synth.fits", "col", &[]);
+    assert_eq!(col.code, 0, "{}", col.stderr);
+    let one = segment(dir, "one.fits", "one", &[]);
+    assert_eq!(one.code, 0, "{}", one.stderr);
+    let warnings: Vec<&str> = one
+        .stderr
+        .lines()
+        .filter(|l| l.starts_with("warning:"))
+        .collect();
+    assert_eq!(
+        warnings,
+        [
+            "warning: no masses: a map without a unit has no conversion to column density: masses and the physics need a map of dust emission, column density or extinction (give --unit if the map's unit is wrong)"
+        ],
+        "{}",
+        one.stderr
+    );
+    let a = catalogue_columns(&dir.join("col/structures.csv"));
+    let b = catalogue_columns(&dir.join("one/structures.csv"));
+    for name in [
+        "id", "parent", "peak_x", "peak_y", "area_px", "x", "y", "sum",
+    ] {
+        assert_eq!(a[name], b[name], "column {name}");
+    }
+    assert!(!b.contains_key("mass"));
+    let csv = std::fs::read_to_string(dir.join("one/structures.csv")).unwrap();
+    for says in [
+        "# column peak:",
+        "# column sum [pixel]:",
+        "# parameter unit =   (",
+        "# parameter bunit = 1  (",
+    ] {
+        assert!(csv.contains(says), "{says}");
+    }
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("one/run.json")).unwrap()).unwrap();
+    assert_eq!(run["map"]["unit"], "");
+    assert_eq!(run["map"]["header_unit"], "1");
+    assert_eq!(run["map"]["unit_kind"], "no conversion to column density");
+    assert!(
+        run["warnings"].as_array().unwrap().iter().any(|w| w
+            .as_str()
+            .unwrap()
+            .starts_with("no masses: a map without a unit")),
+        "{}",
+        run["warnings"]
+    );
+    // inspect has nothing to say against its unit.
+    let o = cairn(&["inspect", "one.fits", "--json"], dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let j: serde_json::Value = serde_json::from_str(&o.stdout).unwrap();
+    assert_eq!(j["unit_kind"], "no conversion to column density");
+    assert!(
+        j["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .all(|w| !w.as_str().unwrap().contains("BUNIT")),
+        "{}",
+        j["warnings"]
+    );
+}
+
+/// The jansky by its name, `Jansky/beam` or `JANSKY/BEAM` (astropy 8.0.2 reads both as
+/// Jy/beam), is the flux density per beam of `Jy/beam`: the same catalogue to the last digit,
+/// masses included, in the unit written `Jy/beam`, with the header's spelling as `bunit`.
+#[test]
+fn the_jansky_by_name_is_read_as_jy() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let base = cairn::map::load(&dir.join("s/synth.fits"), &Default::default()).unwrap();
+    let mut outs = Vec::new();
+    for (i, unit) in ["Jy/beam", "Jansky/beam", "JANSKY/BEAM"].iter().enumerate() {
+        let mut h = base.header.clone();
+        h.set("BUNIT", cairn::header::Value::Str((*unit).into()), "");
+        let name = format!("m{i}.fits");
+        cairn::fits_write::write_image_f32(&dir.join(&name), base.data.view(), &h, false).unwrap();
+        let out = format!("r{i}");
+        let o = segment(dir, &name, &out, &["--wavelength", "850um", "-q"]);
+        assert_eq!(o.code, 0, "{unit}: {}", o.stderr);
+        assert!(!o.stderr.contains("warning"), "{unit}: {}", o.stderr);
+        let csv = std::fs::read_to_string(dir.join(&out).join("structures.csv")).unwrap();
+        assert!(csv.contains("# column peak [Jy/beam]:"), "{unit}");
+        assert!(
+            csv.contains(&format!("# parameter bunit = {unit}  (")),
+            "{unit}"
+        );
+        outs.push(catalogue_columns(&dir.join(&out).join("structures.csv")));
+    }
+    assert!(outs[0].contains_key("mass"));
+    assert_eq!(outs[0], outs[1]);
+    assert_eq!(outs[0], outs[2]);
+}

@@ -9,8 +9,6 @@
 //! on the stored VOTable. The catalogue of grown leaves (`structures-grown.csv`) is checked the
 //! same way against `regionprops` on cairn's grown label plane (`leaves-grown.fits`).
 
-#[path = "common/catalogue_files.rs"]
-mod catalogue_files;
 mod common;
 #[allow(dead_code)]
 #[path = "common/segment_fixture.rs"]
@@ -21,6 +19,7 @@ use std::collections::HashMap;
 use cairn::hierarchy::{self, Params};
 use cairn::map::{self, LoadOptions};
 use common::{assert_close, field as f, fixture_json, fixture_path, num, read_csv};
+use segment_fixture::catalogue_files;
 
 #[test]
 fn stored_run_is_what_cairn_makes_now() {
@@ -565,6 +564,101 @@ fn catalogue_units_parse_as_meant() {
             "fixtures/segment/pixel_sum_units.json is no longer cairn's spelling"
         );
         assert_eq!(verdicts[map_unit], "pix", "{map_unit}: {sum_unit}");
+    }
+}
+
+/// The units a catalogue writes for a map whose BUNIT is spelt in any of the ways cairn reads
+/// (`mag(AK)`, `JY/BEAM`, `MJy/steradian`, `1/cm2`, `Jansky/beam`, `1`, ...) are what unit
+/// parsers read: astropy 8.0.2's `astropy.units` parses every unit of the columns and
+/// parameters, of both catalogues and in all three files, in the FITS format and in the VOUnit
+/// one (tests/oracle/segment_skimage.py on fixtures/segment/unit_spellings.json, which this
+/// test keeps equal to what cairn writes now). The unit written for the map's values is the
+/// unit cairn converts with (astropy's SI scale of it equals cairn's factor) and, where
+/// astropy reads the BUNIT as written, the same unit (a ratio of 1); a sum over pixels is
+/// that unit times the pixel.
+#[test]
+fn catalogue_units_of_every_spelling_of_the_map_unit_parse_as_fits_and_vo_units() {
+    use cairn::units::{ExtinctionBand, PixelUnit};
+    let stored = fixture_json("segment/unit_spellings.json");
+    let reference = fixture_json("segment/reference.json");
+    let verdicts = &reference["unit_spellings"];
+    let spellings: Vec<&String> = stored.as_object().unwrap().keys().collect();
+    let mut expected: Vec<&str> = segment_fixture::UNIT_SPELLINGS.to_vec();
+    expected.sort();
+    assert_eq!(spellings, expected, "re-run the example and the oracle");
+    let dir = tempfile::tempdir().unwrap();
+    for bunit in segment_fixture::UNIT_SPELLINGS {
+        let (read, units) = segment_fixture::catalogue_units(dir.path(), bunit);
+        assert_eq!(
+            serde_json::json!({
+                "unit": read,
+                "sum_unit": cairn::units::times_pixel(&read),
+                "units": units,
+            }),
+            stored[bunit],
+            "{bunit}: fixtures/segment/unit_spellings.json is no longer what cairn writes; re-run the example and the oracle"
+        );
+        let v = &verdicts[bunit];
+        for u in &units {
+            for format in ["fits", "vounit"] {
+                assert!(
+                    v["units"][u][format].is_string(),
+                    "{bunit}: astropy 8.0.2 does not read '{u}' as a {format} unit"
+                );
+            }
+        }
+        // The unit written is the one cairn converts with (a unit it does not read, such as
+        // K km/s, is written as given).
+        let to_si = match cairn::units::parse_pixel_unit(bunit, ExtinctionBand::V) {
+            Some(
+                PixelUnit::ColumnDensity { to_si }
+                | PixelUnit::SurfaceBrightness { to_si }
+                | PixelUnit::FluxPerBeam { to_si }
+                | PixelUnit::FluxPerPixel { to_si },
+            ) => Some(Some(to_si)),
+            // A magnitude has no SI scale in astropy (a logarithmic unit).
+            Some(PixelUnit::Extinction { .. }) => Some(None),
+            // The dimensionless 1, written as no unit.
+            Some(PixelUnit::Other) => Some(Some(1.0)),
+            None => {
+                assert_eq!(read, bunit);
+                None
+            }
+        };
+        match to_si {
+            None => {}
+            Some(Some(f)) => assert_close(
+                num(&v["unit_si_scale"]),
+                f,
+                1e-12,
+                0.0,
+                &format!("{bunit} read as '{read}' (astropy 8.0.2 in SI)"),
+            ),
+            Some(None) => assert!(v["unit_si_scale"].is_null(), "{bunit}"),
+        }
+        if !v["bunit_in_unit"].is_null() {
+            assert_close(
+                num(&v["bunit_in_unit"]),
+                1.0,
+                1e-12,
+                0.0,
+                &format!("BUNIT '{bunit}' as astropy 8.0.2 reads it, in '{read}'"),
+            );
+        }
+        assert_eq!(v["sum_over_unit"], "pix", "{bunit}");
+    }
+    // The spellings the review found: written in the canonical unit, not as given.
+    for (bunit, unit) in [
+        ("mag(AK)", "mag"),
+        ("JY/BEAM", "Jy/beam"),
+        ("MJY/SR", "MJy/sr"),
+        ("CM-2", "cm-2"),
+        ("MJy/steradian", "MJy/sr"),
+        ("1/cm2", "cm-2"),
+        ("Jansky/beam", "Jy/beam"),
+        ("1", ""),
+    ] {
+        assert_eq!(stored[bunit]["unit"], unit, "{bunit}");
     }
 }
 

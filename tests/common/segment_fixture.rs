@@ -1,5 +1,6 @@
-//! The options of the stored segmentation in `fixtures/segment/run/`, shared by the example
-//! that makes it and the test that checks it.
+//! The options of the stored segmentation in `fixtures/segment/run/`, and the runs behind
+//! `fixtures/segment/unit_spellings.json`, shared by the example that makes them and the test
+//! that checks them.
 
 use std::path::Path;
 
@@ -32,4 +33,107 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
         threshold_texts: Default::default(),
         figure: None,
     }
+}
+
+#[path = "catalogue_files.rs"]
+pub mod catalogue_files;
+
+/// Spellings of map units (BUNIT) that cairn reads, for the check of the units its catalogues
+/// write (`fixtures/segment/unit_spellings.json`, which tests/oracle/segment_skimage.py reads
+/// with astropy): the canonical ones, others in use for the same units, FITS's dimensionless
+/// `1`, and a unit cairn does not convert (`K km/s`).
+#[allow(dead_code)]
+pub const UNIT_SPELLINGS: [&str; 31] = [
+    "cm-2",
+    "CM-2",
+    "1/cm2",
+    "cm^-2",
+    "N(H2) cm-2",
+    "m-2",
+    "mag",
+    "Mag",
+    "magnitudes",
+    "mag(AK)",
+    "mag(AV)",
+    "A_V",
+    "MJy/sr",
+    "MJY/SR",
+    "MJy/steradian",
+    "MJy.sr-1",
+    "MJy sr-1",
+    "Jy/sr",
+    "Jy/beam",
+    "JY/BEAM",
+    "Jy/Beam",
+    "jy/beam",
+    "Jansky/beam",
+    "JANSKY/BEAM",
+    "mJy/beam",
+    "MJY/BEAM",
+    "uJy/beam",
+    "Jy/pixel",
+    "Jy/pix",
+    "1",
+    "K km/s",
+];
+
+/// The stored run's segmentation of `fixtures/segment/map.fits` written again with BUNIT
+/// `bunit` (and, for dust emission, a wavelength of 850 um, so that every physics column is
+/// there), in `dir`: the unit the run read (its catalogue's `unit` parameter) and every unit
+/// its catalogues write, of columns (CSV `[unit]`, FITS `TUNITn`, VOTable FIELD `unit`) and of
+/// parameters (CSV, FITS comment `[unit]`, VOTable PARAM `unit`), in both catalogues.
+#[allow(dead_code)]
+pub fn catalogue_units(dir: &Path, bunit: &str) -> (String, std::collections::BTreeSet<String>) {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/segment");
+    let base = cairn::map::load(&root.join("map.fits"), &Default::default()).unwrap();
+    let mut header = base.header.clone();
+    header.set("BUNIT", cairn::header::Value::Str(bunit.into()), "");
+    let path = dir.join("map.fits");
+    let _ = std::fs::remove_file(&path);
+    cairn::fits_write::write_image_f32(&path, base.data.view(), &header, true).unwrap();
+    let opts = cairn::map::LoadOptions {
+        wavelength: Some(
+            cairn::units::parse_quantity("850um", &[cairn::units::Dimension::Length], "").unwrap(),
+        ),
+        ..Default::default()
+    };
+    let map = cairn::map::load(&path, &opts).unwrap();
+    let out = dir.join("run");
+    cairn::segment::run(&map, &fixture_options(&out), &|_, _| {}).unwrap();
+    let mut units = std::collections::BTreeSet::new();
+    let mut read = String::new();
+    for stem in ["structures", "structures-grown"] {
+        let csv = std::fs::read_to_string(out.join(format!("{stem}.csv"))).unwrap();
+        units.extend(csv.lines().filter_map(|l| {
+            let (head, _) = l.strip_prefix("# column ")?.split_once(": ")?;
+            Some(head.split_once(" [")?.1.strip_suffix(']')?.to_string())
+        }));
+        for p in catalogue_files::csv_params(&csv) {
+            if p.name == "unit" {
+                read = p.value.clone();
+            }
+            units.insert(p.unit);
+        }
+        let fits = std::fs::read(out.join(format!("{stem}.fits"))).unwrap();
+        for c in catalogue_files::extension_cards(&fits) {
+            if c.starts_with("TUNIT") {
+                let v = c[10..].trim().trim_start_matches('\'');
+                units.insert(v.split('\'').next().unwrap().trim_end().to_string());
+            }
+        }
+        for c in catalogue_files::fits_params(&fits) {
+            if let Some(u) = c.comment.strip_prefix('[').and_then(|r| r.split_once(']')) {
+                units.insert(u.0.to_string());
+            }
+        }
+        let vot = std::fs::read_to_string(out.join(format!("{stem}.vot"))).unwrap();
+        let doc = roxmltree::Document::parse(&vot).unwrap();
+        units.extend(
+            doc.descendants()
+                .filter(|n| n.has_tag_name("FIELD") || n.has_tag_name("PARAM"))
+                .filter_map(|n| n.attribute("unit").map(str::to_string)),
+        );
+    }
+    units.remove("");
+    (read, units)
 }

@@ -58,6 +58,9 @@ descendants (from hierarchy.json). Sources:
   and the system and equinox of the COOSYS it refers to; the document parsed with every
   warning an error, and each PARAM's datatype and unit (VOUnit format); astropy.io.fits on
   run/structures.fits, verified, with each parameter keyword's type.
+* astropy 8.0.2 astropy.units on every unit cairn's catalogues write for each spelling of a
+  map's unit (fixtures/segment/unit_spellings.json): parsed in the FITS and VOUnit formats,
+  the unit read in SI, the BUNIT as astropy reads it in that unit, the sum over pixels.
 """
 import csv
 import json
@@ -367,6 +370,58 @@ with open(os.path.join(SRC, "pixel_sum_units.json")) as f:
 pixel_sums = {b: (u.Unit(s, format="fits") / u.Unit(b, format="fits")).to_string("fits")
               for b, s in spelled.items()}
 
+# The units cairn's catalogues write for each spelling of a map's unit
+# (fixtures/segment/unit_spellings.json, made by examples/make_segment_fixture.rs and kept
+# equal to cairn's current output by tests/segment_reference.rs): every one parsed by
+# astropy.units in the FITS format and in the VOUnit one; the unit cairn read (its `unit`
+# parameter) in SI (none for a magnitude); the map's BUNIT as astropy reads it (FITS format, else its generic one;
+# null where it reads neither) in that unit; and the sum unit over the unit read.
+def unit_text(s, fmt):
+    try:
+        return u.Unit(s, format=fmt, parse_strict="raise").to_string(fmt)
+    except Exception:
+        return None
+
+
+def astropy_reading(s):
+    for fmt in ("fits", None):
+        try:
+            return u.Unit(s, format=fmt, parse_strict="raise")
+        except Exception:
+            pass
+    return None
+
+
+def si_scale(unit):
+    """The unit in SI (its scale over the SI base units, with the beam and the pixel as
+    units of their own), or None for a magnitude, which astropy holds as a logarithmic unit
+    without one."""
+    try:
+        return float(unit.decompose(bases=set(u.si.bases) | {u.beam, u.pix}).scale)
+    except u.UnitConversionError:
+        return None
+
+
+with open(os.path.join(SRC, "unit_spellings.json")) as f:
+    spellings = json.load(f)
+unit_spellings = {}
+for bunit, run in spellings.items():
+    read = u.Unit(run["unit"], format="fits")
+    theirs = astropy_reading(bunit)
+    if theirs is None:
+        in_read = None
+    elif theirs.is_equivalent(read):
+        in_read = float(theirs.to(read))
+    else:
+        in_read = "not equivalent"
+    unit_spellings[bunit] = {
+        "units": {s: {"fits": unit_text(s, "fits"), "vounit": unit_text(s, "vounit")}
+                  for s in run["units"]},
+        "unit_si_scale": si_scale(read),
+        "bunit_in_unit": in_read,
+        "sum_over_unit": (u.Unit(run["sum_unit"], format="fits") / read).to_string("fits"),
+    }
+
 # The stored catalogue as a strict reader takes it: astropy.io.votable with every warning an
 # error (units and PARAMs included), and each FITS table keyword of the standard form
 # (astropy.io.fits's verify) with the type astropy reads.
@@ -403,6 +458,7 @@ write_json(os.path.join(OUT, "reference.json"), {
     "votable_ucds": ucds,
     "fits_units": units,
     "pixel_sum_units_over_map_unit": pixel_sums,
+    "unit_spellings": unit_spellings,
     "votable_params": vot_params,
     "fits_params": fits_params,
 })
