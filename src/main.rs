@@ -1901,6 +1901,8 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         for n in &notes {
             errln!("warning: {n}");
         }
+        // They change the masses: the run records them (run record, catalogue notes).
+        c.warnings = notes;
         c
     };
     let level = |text: &Option<String>, what: &str| {

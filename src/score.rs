@@ -173,6 +173,10 @@ pub struct Context {
     pub av_per_ak: f64,
     /// Non-thermal velocity dispersion in m/s (None: virial parameter not computed).
     pub sigma_nt: Option<Field>,
+    /// Warnings about how these assumptions were made that change what the run measures
+    /// (such as the undefined pixels of a temperature map given its median), which a run
+    /// records with its other warnings: in the run record and the catalogue's notes.
+    pub warnings: Vec<String>,
 }
 
 impl Default for Context {
@@ -186,6 +190,7 @@ impl Default for Context {
             nh2_per_av_m2: NH2_PER_AV_CM2 * 1e4,
             av_per_ak: AV_PER_AK,
             sigma_nt: None,
+            warnings: Vec::new(),
         }
     }
 }

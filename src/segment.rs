@@ -1500,6 +1500,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 &meta,
                 Footprint::Own,
             );
+            table.notes.extend(o.physics.warnings.iter().cloned());
             if let Some(w) = physics_warning(&o.physics, map, physics_note.as_deref()) {
                 table.notes.push(w);
             }
@@ -1681,7 +1682,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             "total": seconds,
         },
         "threads": rayon::current_num_threads(),
-        "warnings": map.warnings.iter().cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).chain(negative_mass_warning(phys.iter().flatten())).collect::<Vec<String>>(),
+        "warnings": map.warnings.iter().chain(&o.physics.warnings).cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).chain(negative_mass_warning(phys.iter().flatten())).collect::<Vec<String>>(),
         "physics": physics_record(&o.physics, map, r.noise, physics_note.as_deref()),
     });
     let rec =
@@ -1745,6 +1746,7 @@ fn grown_catalogue(
         meta,
         Footprint::Grown,
     );
+    table.notes.extend(o.physics.warnings.iter().cloned());
     if let Some(w) = physics_warning(&o.physics, map, phys.as_ref().err().map(String::as_str)) {
         table.notes.push(w);
     }

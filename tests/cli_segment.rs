@@ -596,8 +596,9 @@ fn catalogue_columns(path: &Path) -> std::collections::BTreeMap<String, Vec<Stri
 }
 
 /// A temperature map undefined (NaN) at one pixel, the brightest leaf's peak, of a dust
-/// emission map: that pixel takes the map's median temperature, with a warning, instead of
-/// leaving the leaf and its ancestors without column densities and masses. Self-consistency
+/// emission map: that pixel takes the map's median temperature, with a warning that the run
+/// records (run record, catalogue notes), instead of leaving the leaf and its ancestors
+/// without column densities and masses. Self-consistency
 /// check (masses themselves are checked against astropy in tests/segment_reference.rs): a
 /// 14 K map with that one pixel undefined gives the masses of `--temperature 14K` to 1e-12.
 #[test]
@@ -628,6 +629,51 @@ fn an_undefined_temperature_pixel_takes_the_maps_median() {
             "is undefined (NaN) at 1 pixel where the map has data; it takes its median, 14 K"
         ),
         "{stderr}"
+    );
+    // The warning changes the masses, so the run keeps it as it keeps its other warnings: in
+    // the run record and in each catalogue's notes (CSV, FITS COMMENT, VOTable DESCRIPTION).
+    let warning = stderr
+        .lines()
+        .find_map(|l| l.strip_prefix("warning: the temperature map "))
+        .map(|l| format!("the temperature map {l}"))
+        .unwrap();
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("map/run.json")).unwrap())
+            .unwrap();
+    assert!(
+        run["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w.as_str() == Some(warning.as_str())),
+        "{}",
+        run["warnings"]
+    );
+    let csv = std::fs::read_to_string(d.path().join("map/structures.csv")).unwrap();
+    assert!(csv.contains(&format!("# note: {warning}\n")), "{csv}");
+    let vot = std::fs::read_to_string(d.path().join("map/structures.vot")).unwrap();
+    let doc = roxmltree::Document::parse(&vot).unwrap();
+    let description = doc
+        .descendants()
+        .find(|n| n.has_tag_name("DESCRIPTION") && n.parent().unwrap().has_tag_name("TABLE"))
+        .and_then(|n| n.text())
+        .unwrap();
+    assert!(description.lines().any(|l| l == warning), "{description}");
+    let cards = catalogue_files::extension_cards(
+        &std::fs::read(d.path().join("map/structures.fits")).unwrap(),
+    );
+    // The COMMENT cards hold the notes wrapped at word boundaries, the following lines
+    // indented (FITS 4.0 section 4.4.2.4); the note is whole once joined again.
+    let comments: Vec<&str> = cards
+        .iter()
+        .filter_map(|c| c.strip_prefix("COMMENT "))
+        .map(str::trim)
+        .collect();
+    let warning_ascii = warning.replace(|c: char| !c.is_ascii(), "?");
+    assert!(
+        comments.join(" ").contains(&warning_ascii),
+        "{}",
+        comments.join("\n")
     );
     // With a temperature per pixel the catalogue has no one temperature: `temperature` is
     // left out and `temperature_map` names the file, as text; with one temperature,
@@ -661,6 +707,14 @@ fn an_undefined_temperature_pixel_takes_the_maps_median() {
         ("double", Some("K"))
     );
     assert_eq!((k.key.as_str(), k.value.as_str()), ("TEMPERAT", "14.0"));
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("uniform/run.json")).unwrap())
+            .unwrap();
+    assert!(
+        run["warnings"].as_array().unwrap().is_empty(),
+        "{}",
+        run["warnings"]
+    );
     let a = catalogue_columns(&d.path().join("map/structures.csv"));
     let b = catalogue_columns(&d.path().join("uniform/structures.csv"));
     assert_eq!(a["id"], b["id"]);
