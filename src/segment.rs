@@ -433,9 +433,11 @@ fn resolve_with(
         None => "default".to_string(),
     };
     // The thresholds in one spelling each, so that runs given the same thresholds in other
-    // words (`5 sigma`, `11` pixels) compare as the same (compare, pooled completeness).
+    // words (`5 sigma`, `11` pixels, `5e21cm-2` or `5e21` on a map in cm-2) compare as the
+    // same (compare, pooled completeness); a value in map units with the map's unit.
+    let unit = map_unit(map);
     let canonical = |l: Option<Level>| match l {
-        Some(Level::Value(v)) => format!("{v}"),
+        Some(Level::Value(v)) => value_with_unit(v, &unit),
         Some(l @ Level::Converted { .. }) => l.conversion_note().unwrap_or_default(),
         Some(Level::Sigma(k)) => format!("{k}sigma"),
         None => "default".to_string(),
@@ -470,6 +472,22 @@ fn resolve_with(
 /// `Jy/beam` for `JY/BEAM`), or a unit it does not convert as written.
 pub fn map_unit(map: &Map) -> String {
     units::canonical_unit(map.unit, &map.unit_text)
+}
+
+/// A value in map units as text for the records: its shortest round-trip digits (plain
+/// between 1e-4 and 1e15, else with an exponent: `5e21`, not `5000000000000000000000`),
+/// followed by the unit when there is one (`5e21 cm-2`).
+fn value_with_unit(v: f64, unit: &str) -> String {
+    let number = if v == 0.0 || !v.is_finite() || (1e-4..1e15).contains(&v.abs()) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    };
+    if unit.is_empty() {
+        number
+    } else {
+        format!("{number} {unit}")
+    }
 }
 
 /// The input's place in the run record: `path` as text and, when the path is not valid UTF-8
@@ -2093,7 +2111,10 @@ fn physics_meta(
 
 /// The physical context as recorded in run.json (also read by `compare`): assumptions, the
 /// linear resolution (geometric-mean beam FWHM times distance) and the mass sensitivity (the
-/// mass of one beam at the noise level, 1 sigma).
+/// mass of one beam at the noise level, 1 sigma). Numbers are numbers with their unit in the
+/// key's name (`temperature_k`, `sigma_nt_km_per_s`: null when given per pixel, whose file
+/// `other_inputs` names); `temperature` is the temperature in words for reading (`14 K`,
+/// `per pixel (map)`).
 pub fn physics_record(
     ctx: &crate::score::Context,
     map: &Map,
@@ -2116,13 +2137,14 @@ pub fn physics_record(
     serde_json::json!({
         "distance_pc": ctx.distance_m.map(|d| units::as_given(d / PC)),
         "temperature": ctx.temperature_k.as_ref().map(|t| t.describe("K")),
+        "temperature_k": match ctx.temperature_k { Some(crate::score::Field::Uniform(k)) => Some(k), _ => None },
         "opacity": { "kappa0_cm2_per_g": ctx.opacity.kappa0_cm2_per_g, "nu0_hz": ctx.opacity.nu0_hz, "beta": ctx.opacity.beta },
         "mu_h2": ctx.mu_h2,
         "mu_p": ctx.mu_p,
         "m_h_u": crate::physics::constants::M_H_U,
         "nh2_per_av_cm2": units::as_given(ctx.nh2_per_av_m2 * 1e-4),
         "av_per_ak": ctx.av_per_ak,
-        "sigma_nt": ctx.sigma_nt.as_ref().map(|s| s.describe("m/s")),
+        "sigma_nt_km_per_s": match ctx.sigma_nt { Some(crate::score::Field::Uniform(ms)) => Some(units::as_given(ms / 1e3)), _ => None },
         "wavelength_um": map.wavelength_m.map(|w| w * 1e6),
         "beam_fwhm_arcsec": beam_arcsec,
         "linear_resolution_pc": resolution_pc,

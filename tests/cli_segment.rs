@@ -689,6 +689,7 @@ fn an_undefined_temperature_pixel_takes_the_maps_median() {
         ("temp.fits", "char")
     );
     assert_eq!((k.key.as_str(), k.value.as_str()), ("TEMPMAP", "temp.fits"));
+    assert_eq!(run["physics"]["temperature_k"], serde_json::Value::Null);
     let mut uniform = vec!["segment", demo, "-o", "uniform"];
     uniform.extend(common);
     uniform.extend(["--temperature", "14K"]);
@@ -710,6 +711,7 @@ fn an_undefined_temperature_pixel_takes_the_maps_median() {
     let run: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(d.path().join("uniform/run.json")).unwrap())
             .unwrap();
+    assert_eq!(run["physics"]["temperature_k"], 14.0);
     assert!(
         run["warnings"].as_array().unwrap().is_empty(),
         "{}",
@@ -1172,6 +1174,8 @@ fn records_keep_what_was_given() {
         serde_json::from_str(&std::fs::read_to_string(d.path().join("r2/run.json")).unwrap())
             .unwrap();
     assert_eq!(run2["parameters"]["prominence"]["typed"], "3 sigma");
+    assert_eq!(run["parameters"]["floor"]["given"], "0.05 Jy/beam");
+    assert_eq!(run2["parameters"]["floor"]["typed"], "0.05");
     for key in ["floor", "prominence", "min_area"] {
         assert_eq!(
             run["parameters"][key]["given"], run2["parameters"][key]["given"],
@@ -1381,4 +1385,70 @@ fn the_least_area_without_a_beam_is_said() {
     );
     assert_eq!(code, 0, "{stderr}");
     assert!(!stdout.contains("no beam"), "{stdout}");
+}
+
+/// The run record's numbers are JSON numbers, with their unit in the key's name or beside them
+/// (`"unit"`), and a level given in the map's unit keeps that unit in `given`: `--floor
+/// 5e21cm-2` on a map in cm-2 is "5e21 cm-2", as `--floor 5e21` is (one spelling for
+/// comparing runs), and `typed` is the text as given. Text stays only where it is meant as
+/// words (`temperature`, `typed`, `given`, the noise's `source`, `note`).
+#[test]
+fn the_run_record_keeps_numbers_as_numbers_and_levels_with_their_unit() {
+    let d = tempfile::tempdir().unwrap();
+    let map = fixture_map();
+    let m = map.to_str().unwrap();
+    let common = [
+        "--prominence",
+        "3sigma",
+        "--distance",
+        "300pc",
+        "--temperature",
+        "14K",
+        "--sigma-nt",
+        "0.3km/s",
+        "--no-figure",
+        "-q",
+    ];
+    let mut records = Vec::new();
+    for (out, floor) in [("a", "5e21cm-2"), ("b", "5e21"), ("c", "0.5e22 cm^-2")] {
+        let mut args = vec!["segment", m, "-o", out, "--floor", floor];
+        args.extend(common);
+        let (code, _, stderr) = cairn(&args, d.path());
+        assert_eq!(code, 0, "{stderr}");
+        let run: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(d.path().join(out).join("run.json")).unwrap(),
+        )
+        .unwrap();
+        let f = &run["parameters"]["floor"];
+        assert_eq!(f["given"], "5e21 cm-2", "--floor {floor}");
+        assert_eq!(f["typed"], floor);
+        assert_eq!(
+            (f["value"].as_f64(), f["unit"].as_str()),
+            (Some(5e21), Some("cm-2"))
+        );
+        records.push(run);
+    }
+    let run = &records[0];
+    let physics = run["physics"].as_object().unwrap();
+    assert_eq!(physics["temperature_k"], 14.0);
+    assert_eq!(physics["sigma_nt_km_per_s"], 0.3);
+    assert_eq!(physics["distance_pc"], 300.0);
+    // Every value of the physics record is a number (or null, or an object of numbers), but
+    // for the temperature in words.
+    for (k, v) in physics {
+        match (k.as_str(), v) {
+            ("temperature", serde_json::Value::String(t)) => assert_eq!(t, "14 K"),
+            ("note", serde_json::Value::Null) => {}
+            (_, serde_json::Value::Number(_) | serde_json::Value::Null) => {}
+            (_, serde_json::Value::Object(o)) => {
+                assert!(o.values().all(|x| x.is_number()), "{k}: {v}")
+            }
+            _ => panic!("{k} is {v}, not a number"),
+        }
+    }
+    for key in ["floor", "prominence", "min_area"] {
+        assert!(run["parameters"][key]["value"].is_number(), "{key}");
+    }
+    assert!(run["noise"]["value"].is_number());
+    assert_eq!(run["noise"]["unit"], "cm-2");
 }
