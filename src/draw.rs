@@ -198,7 +198,7 @@ pub fn scale_bar_length(width_pc: f64) -> f64 {
 fn unit_label(map: &Map) -> String {
     match map.unit {
         Some(PixelUnit::ColumnDensity { .. }) => {
-            format!("N(H_2) [{}]", unit_markup(&map.unit_text))
+            format!("N(H_2) [{}]", unit_markup(&crate::segment::map_unit(map)))
         }
         Some(PixelUnit::Extinction {
             band: units::ExtinctionBand::V,
@@ -210,7 +210,7 @@ fn unit_label(map: &Map) -> String {
         | Some(PixelUnit::FluxPerBeam { .. })
         | Some(PixelUnit::FluxPerPixel { .. })
         | Some(PixelUnit::Other)
-        | None => map.unit_text.clone(),
+        | None => crate::segment::map_unit(map),
     }
 }
 
@@ -518,7 +518,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             state: s.is_leaf.then(|| state_index(s.state.as_deref())),
         })
         .collect();
-    let level = format!("level [{}]", unit_markup(&map.unit_text));
+    let level = format!("level [{}]", unit_markup(&crate::segment::map_unit(map)));
     let tree = if nodes.is_empty() {
         None
     } else {

@@ -1950,10 +1950,10 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         b.finish_and_clear();
     }
     let t = &summary.thresholds;
-    let unit = if m.unit_text.is_empty() {
-        String::new()
-    } else {
-        format!(" {}", m.unit_text)
+    // The unit as cairn read it (MJy/sr for a BUNIT of 'MJY/SR'), as the catalogues give it.
+    let unit = match cairn::segment::map_unit(&m) {
+        u if u.is_empty() => String::new(),
+        u => format!(" {u}"),
     };
     let count =
         |n: usize, one: &str, many: &str| format!("{n} {}", if n == 1 { one } else { many });

@@ -288,7 +288,9 @@ pub fn to_common_resolution(map: &Map, resolution_m: f64, distance_m: f64) -> Re
             beam.major_deg * 3600.0
         )));
     }
-    let (cx, cy) = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
+    // At the map's centre, or the pixel on the sky inspect names where that lies off the sky.
+    let (cx, cy) = crate::inspect::scale_pixel(map)
+        .unwrap_or(((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0));
     let (sx, sy) = w.pixel_scale(cx, cy);
     check_map_holds_target(map, target_deg, sx, sy, resolution_m, distance_m)?;
     let j = crate::measure::local_jacobian(w, cx, cy).ok_or_else(|| {

@@ -605,11 +605,8 @@ pub fn score(
             noise_map.map(|nm| (nm, noise.unwrap_or(f64::NAN))),
         ),
     };
-    let beam_px = match (map.beam, &map.wcs) {
-        (Some(b), Some(w)) => {
-            b.solid_angle_sr()
-                / w.pixel_solid_angle((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0)
-        }
+    let beam_px = match (map.beam, &map.wcs, crate::inspect::scale_pixel(map)) {
+        (Some(b), Some(w), Some((x, y))) => b.solid_angle_sr() / w.pixel_solid_angle(x, y),
         _ => 1.0,
     };
     let beam_rad = map

@@ -366,11 +366,12 @@ fn resolve_with(
             "--prominence must not be negative (it is {given}); give 0 or more, such as 3sigma."
         )));
     }
-    let centre = ((map.nx() as f64 - 1.0) / 2.0, (map.ny() as f64 - 1.0) / 2.0);
-    let pixel_sr = map
-        .wcs
-        .as_ref()
-        .map(|w| w.pixel_solid_angle(centre.0, centre.1));
+    // At the map's centre, or where that lies off the sky of its projection, at the pixel on
+    // the sky that inspect names (so inspect's suggestion and segment's default agree).
+    let pixel_sr = match (map.wcs.as_ref(), crate::inspect::scale_pixel(map)) {
+        (Some(w), Some((x, y))) => Some(w.pixel_solid_angle(x, y)),
+        _ => None,
+    };
     let beam_px = match (map.beam, pixel_sr) {
         (Some(b), Some(p)) => Some(b.solid_angle_sr() / p),
         _ => None,

@@ -132,6 +132,32 @@ fn a_map_whose_centre_is_off_the_sky_keeps_its_frame_scale_and_beam() {
             (area - 1e-9).ceil(),
             "{name}"
         );
+        // segment takes the same default --min-area there (not 1 px from a solid angle
+        // measured off the sky).
+        let out = dir.path().join(format!("run-{name}"));
+        let o = cairn(
+            &[
+                "segment",
+                path.to_str().unwrap(),
+                "-o",
+                out.to_str().unwrap(),
+                "-q",
+                "--no-figure",
+                "--floor",
+                "0",
+                "--prominence",
+                "1",
+            ],
+            dir.path(),
+        );
+        assert_eq!(o.code, 0, "{name}: {}", o.stderr);
+        let run: Value =
+            serde_json::from_str(&std::fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+        assert_eq!(
+            num(&run["parameters"]["min_area"]["value"]),
+            num(&s["suggested"]["min_area_px"]),
+            "{name}"
+        );
         let w = warnings(&s);
         assert!(
             w.iter().any(|w| w.contains("lies off the sky")
