@@ -421,28 +421,44 @@ fn power_law_error_covers_the_truth_at_the_nominal_rate() {
 
 /// Medians and percentiles (compare's medians, the bootstrap's 16/50/84 percentiles) against
 /// numpy 2.4.6's `percentile` with its default linear method (Hyndman & Fan 1996, definition
-/// 7), on samples of 1 to 1000 values and one with ties (fixtures/populations/percentiles.json).
-/// The two interpolate between the same order statistics in slightly different forms, so they
-/// may differ in the last bit.
+/// 7), on samples of 1 to 1000 values, one with ties, and two of 30,000 values nearly or
+/// exactly all equal (fixtures/populations/percentiles.json). cairn computes the virtual index
+/// and the interpolation as numpy writes them, so the values agree to the bit.
 #[test]
 fn percentiles_match_numpy() {
     let f = fixture_json("populations/percentiles.json");
     let qs = nums(&f["q"]);
     let samples = f["samples"].as_object().unwrap();
     assert!(samples.len() >= 7);
-    for (name, s) in samples {
-        let data = nums(&s["data"]);
+    let repeated = f["repeated"].as_object().unwrap();
+    assert_eq!(repeated.len(), 2);
+    let expanded = repeated.iter().map(|(name, r)| {
+        let counts = r["counts"].as_array().unwrap();
+        let data: Vec<f64> = nums(&r["values"])
+            .into_iter()
+            .zip(counts)
+            .flat_map(|(v, c)| std::iter::repeat_n(v, c.as_u64().unwrap() as usize))
+            .collect();
+        assert_eq!(data.len(), 30_000, "{name}");
+        (name, data, &r["percentiles"])
+    });
+    let listed = samples
+        .iter()
+        .map(|(name, s)| (name, nums(&s["data"]), &s["percentiles"]));
+    for (name, data, want) in listed.chain(expanded) {
         let got = cairn::populations::percentiles(&data, &qs).unwrap();
-        for ((q, g), want) in qs.iter().zip(&got).zip(nums(&s["percentiles"])) {
-            assert_close(*g, want, 1e-15, 0.0, &format!("{name}: percentile {q}"));
+        for ((q, g), want) in qs.iter().zip(&got).zip(nums(want)) {
+            assert_eq!(
+                g.to_bits(),
+                want.to_bits(),
+                "{name}: percentile {q}: cairn {g:e}, numpy {want:e}"
+            );
         }
         let median = cairn::populations::median(&data).unwrap();
-        assert_close(
+        assert_eq!(
             median,
             got[qs.iter().position(|&q| q == 50.0).unwrap()],
-            0.0,
-            0.0,
-            name,
+            "{name}"
         );
     }
 }

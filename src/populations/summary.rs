@@ -1,23 +1,40 @@
-//! Median and percentiles by linear interpolation between order statistics (numpy's default
-//! "linear" method; Hyndman & Fan 1996, The American Statistician 50, 361, definition 7),
-//! computed by ndarray-stats' quantiles (`Quantile1dExt::quantiles_mut` with its `Linear`
-//! interpolation: the quantile q of n values sits at position q (n - 1) of their order).
+//! Median and percentiles by linear interpolation between order statistics: numpy's default
+//! "linear" method (Hyndman & Fan 1996, The American Statistician 50, 361, definition 7),
+//! written as numpy 2.4 computes it (`numpy.lib._function_base_impl._quantile` and `_lerp`):
+//! the percentile p of n sorted values sits at the virtual index v = (n - 1) (p / 100); with
+//! i = floor(v) (the last index when v >= n - 1) and t = v - i, the value is
+//! a + (b - a) t for t < 0.5 and b - (b - a) (1 - t) for t >= 0.5, a and b the values at i and
+//! i + 1. The values are sorted once (a stable sort, so any number of equal values costs the
+//! same as distinct ones).
 
 use super::check_values;
 use crate::error::Error;
-use ndarray::Array1;
-use ndarray_stats::{Quantile1dExt, interpolate::Linear};
-use noisy_float::types::{N64, n64};
 
-/// The percentiles `qs` (0 to 100, checked by the caller) of `values` (finite, at least one).
+/// The percentiles `qs` (0 to 100, checked by the caller) of `values` (finite, at least one;
+/// NaN for each percentile when there are none).
 pub(crate) fn quantiles_of(values: &[f64], qs: &[f64]) -> Vec<f64> {
-    let mut a: Array1<N64> = values.iter().map(|&v| n64(v)).collect();
-    let q: Array1<N64> = qs.iter().map(|&q| n64(q / 100.0)).collect();
-    // Only an empty array or a q outside 0 to 1 can fail, and callers exclude both.
-    match a.quantiles_mut(&q, &Linear) {
-        Ok(r) => r.iter().map(|v| v.raw()).collect(),
-        Err(_) => vec![f64::NAN; qs.len()],
+    if values.is_empty() {
+        return vec![f64::NAN; qs.len()];
     }
+    let s = super::sorted(values);
+    let n = s.len();
+    qs.iter()
+        .map(|&p| {
+            let v = (n - 1) as f64 * (p / 100.0);
+            if v >= (n - 1) as f64 {
+                return s[n - 1];
+            }
+            let i = v.floor().max(0.0) as usize;
+            let t = v - i as f64;
+            let (a, b) = (s[i], s[i + 1]);
+            let diff = b - a;
+            if t >= 0.5 {
+                b - diff * (1.0 - t)
+            } else {
+                a + diff * t
+            }
+        })
+        .collect()
 }
 
 /// The q-th percentile (0 <= q <= 100) of finite values, linear interpolation (numpy default).

@@ -336,6 +336,15 @@ def percentiles():
         out["samples"][f"n{n}"] = {"data": data, "percentiles": np.percentile(data, qs)}
     ties = np.round(rng.lognormal(0.0, 0.5, 40), 1)
     out["samples"]["ties40"] = {"data": ties, "percentiles": np.percentile(ties, qs)}
+    # Many equal values (a constant column; the bootstrap's lower masses when it is fixed):
+    # 30,000 of one value, and 30,000 with a few others below and above. Stored as distinct
+    # values and their counts; the sample is each value repeated its count.
+    out["repeated"] = {}
+    for name, values, counts in (("equal30000", [2.5], [30000]),
+                                 ("mostly_equal30000", [0.5, 1.25, 3.0], [300, 29400, 300])):
+        data = np.repeat(np.array(values), counts)
+        out["repeated"][name] = {"values": values, "counts": counts,
+                                 "percentiles": np.percentile(data, qs)}
     write_json(os.path.join(OUT, "percentiles.json"), out)
 
 
