@@ -10,6 +10,11 @@
 //! leaves at or above a common lower mass ([`Options::tests_above`], which the mass-size fits
 //! share), the fairness checks, and the report (Markdown and CSV tables).
 //!
+//! Sizes: a population needs [`MIN_LEAVES`] leaves with a positive mass and radius; a tail of
+//! fewer than [`MIN_TAIL`] leaves gets no slope; a bootstrap spread is the uncertainty
+//! reported only from [`MIN_BOOT_FITTED`] resamples with a fit and a spread beyond rounding,
+//! else the analytic one is, and said so ([`Summary::alpha_uncertainty`]).
+//!
 //! Fairness (common practice): populations extracted at linear resolutions (beam FWHM times
 //! distance) that differ by more than a factor 1.5, or with mass sensitivities (the mass of one
 //! beam at the map noise) that differ by more than 1.5, or under different assumptions
@@ -37,10 +42,14 @@ pub struct Population {
     pub radii: Vec<f64>,
     /// Mean densities (cm^-3) of the same leaves.
     pub densities: Vec<f64>,
-    /// Leaves by state.
+    /// The leaves of `masses` by state (bound, marginal, unbound or unknown; a catalogue
+    /// without states counts its leaves as unknown), so that the counts add up to the leaves
+    /// compared.
     pub states: std::collections::BTreeMap<String, usize>,
-    /// Leaves dropped for a missing or non-positive mass.
+    /// Leaves dropped for a missing or non-positive mass or radius.
     pub dropped: usize,
+    /// The catalogue column the masses were read from (`mass_excess` or `mass`).
+    pub mass_column: String,
     /// The run record (null if none was found).
     pub run: serde_json::Value,
     /// Whether the catalogue is of leaves measured over their grown footprints (`segment
@@ -136,6 +145,60 @@ fn read_text(path: &Path) -> Result<String> {
     })
 }
 
+/// The fewest leaves a population can have: the mass-size fit with its standard errors and
+/// the log-normal fit's intervals need three.
+pub const MIN_LEAVES: usize = 3;
+
+/// Why a catalogue of `leaves` leaves has only `kept` (fewer than [`MIN_LEAVES`]) with a
+/// positive mass and radius, `negative` of the others with a mass of zero or below and
+/// `missing` without a mass or radius, and what to do: the rest of one sentence.
+fn too_few_leaves(
+    leaves: usize,
+    kept: usize,
+    negative: usize,
+    missing: usize,
+    mass_column: &str,
+) -> String {
+    let count = |n: usize| match n {
+        0 => "no leaf".to_string(),
+        1 => "1 leaf".to_string(),
+        n => format!("{n} leaves"),
+    };
+    let need = format!("a population needs at least {MIN_LEAVES} leaves with a positive mass");
+    if leaves < MIN_LEAVES {
+        return format!(
+            "holds {}, and {need}; compare catalogues of more leaves (a lower --prominence or --min-area in cairn segment finds more).",
+            count(leaves)
+        );
+    }
+    let fix = if negative >= missing {
+        if mass_column == "mass" {
+            "their masses are below zero where the map's values are (a zero level below no emission?); compare mass_excess (the default), which is measured above each leaf's merge level, or give cairn segment a map whose zero is no emission"
+        } else {
+            "their masses are below zero where the map's values are (a zero level below no emission?); give cairn segment a map whose zero is no emission"
+        }
+    } else {
+        "their masses or radii are missing; run cairn segment with --distance (and --temperature for emission maps)"
+    };
+    let which = if negative > 0 && missing > 0 {
+        format!(
+            "{negative} with a {mass_column} of zero or below and {missing} without one or without a radius"
+        )
+    } else if negative > 0 {
+        format!("{negative} with a {mass_column} of zero or below")
+    } else {
+        format!("{missing} without a {mass_column} or a radius")
+    };
+    let kept = match kept {
+        0 => "none".to_string(),
+        k => format!("only {k}"),
+    };
+    format!(
+        "holds {} but {kept} with a positive {mass_column} and radius ({which}), and {need}: {fix}.",
+        count(leaves)
+    )
+}
+
 /// Reads a population from a run folder or a catalogue file. `mass_column` chooses the mass
 /// (`mass_excess` by default).
 pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Population> {
@@ -172,6 +235,8 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         ));
     };
     let (state, density) = (col("state"), col("density"));
+    // Why leaves were left out, for the message when too few are left.
+    let (mut leaves, mut negative, mut missing) = (0usize, 0usize, 0usize);
     let mut p = Population {
         label: label.to_string(),
         source: path.to_path_buf(),
@@ -180,6 +245,7 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         densities: vec![],
         states: Default::default(),
         dropped: 0,
+        mass_column: mass_column.to_string(),
         run: serde_json::Value::Null,
         grown: catalogue
             .lines()
@@ -206,28 +272,39 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
         if k != "leaf" {
             continue;
         }
-        if let Some(s) = state.and_then(|i| r.get(i)) {
-            *p.states.entry(s.clone()).or_insert(0) += 1;
-        }
+        let st = match state.and_then(|i| r.get(i)).map(String::as_str) {
+            None | Some("") => "unknown",
+            Some(s @ ("bound" | "marginal" | "unbound" | "unknown")) => s,
+            Some(other) => {
+                return Err(Error::input(
+                    &csv,
+                    format!(
+                        "row {} has the state '{other}' (not bound, marginal, unbound or unknown): the catalogue is damaged; run cairn segment again.",
+                        n + 1
+                    ),
+                ));
+            }
+        };
+        leaves += 1;
         if m.is_finite() && m > 0.0 && rad.is_finite() && rad > 0.0 {
             p.masses.push(m);
             p.radii.push(rad);
             p.densities.push(dens);
+            // Only the leaves compared are counted by state.
+            *p.states.entry(st.to_string()).or_insert(0) += 1;
         } else {
             p.dropped += 1;
+            if m <= 0.0 {
+                negative += 1;
+            } else if !(m.is_finite() && rad.is_finite() && rad > 0.0) {
+                missing += 1;
+            }
         }
     }
-    if p.masses.len() < 3 {
+    if p.masses.len() < MIN_LEAVES {
         return Err(Error::input(
             &csv,
-            format!(
-                "holds {} with a positive mass; a population needs at least 3.",
-                match p.masses.len() {
-                    0 => "no leaf".to_string(),
-                    1 => "1 leaf".to_string(),
-                    n => format!("{n} leaves"),
-                }
-            ),
+            too_few_leaves(leaves, p.masses.len(), negative, missing, mass_column),
         ));
     }
     if let Ok(text) = std::fs::read_to_string(&run_path) {
@@ -336,7 +413,7 @@ pub struct Summary {
     /// Power-law tail fit.
     pub tail: Option<populations::PowerLawFit>,
     /// Its bootstrap.
-    pub tail_bootstrap: Option<(f64, f64)>,
+    pub tail_bootstrap: Option<TailBootstrap>,
     /// Its goodness of fit (Clauset et al. 2009 section 4.1).
     pub tail_gof: Option<populations::PowerLawGof>,
     /// The tail's power law against a log-normal truncated at the same lower mass.
@@ -366,7 +443,10 @@ pub struct Options {
     /// A fixed lower mass of the power-law tail (else by minimising the KS distance).
     pub mass_min: Option<f64>,
     /// Upper end of the admissible alpha when the tail's lower mass is searched (the
-    /// search's window is (1, alpha_max); [`XminSearch::alpha_range`]).
+    /// search's window is (1, alpha_max); [`XminSearch::alpha_range`]). Lower masses whose
+    /// closed-form alpha is at or above it are left out of the search; when all are, there is
+    /// no tail, where powerlaw 2.0.0 warns and returns the nearest with alpha held at the
+    /// window's edge (see [`crate::populations::powerlaw`]).
     pub alpha_max: f64,
     /// Bootstrap resamples.
     pub resamples: usize,
@@ -408,6 +488,216 @@ fn tested(p: &Population, cut: Option<f64>) -> (Vec<f64>, Vec<f64>) {
         .unzip()
 }
 
+/// The fewest leaves in a tail for its slope to be reported. The maximum-likelihood estimate
+/// of alpha - 1 from n masses of a pure power law is n / S with S, the sum of ln(M / mass_min),
+/// gamma-distributed; its exact standard deviation is (alpha - 1) n / ((n - 1) sqrt(n - 2)),
+/// which is below 40% of alpha - 1 from n = 10 on (39%) and above it for fewer (42% at 9),
+/// and its bias, a factor n / (n - 1), is then at most 11%. A tail of a few leaves gives a
+/// slope that says nothing, and a bootstrap of it cannot measure its spread (of a population
+/// of three leaves, every resample that can be searched holds the same three masses).
+pub const MIN_TAIL: usize = 10;
+
+/// The fewest bootstrap resamples with a fit whose spread is reported as an uncertainty: the
+/// standard deviation of k values has a relative uncertainty of about 1 / sqrt(2 (k - 1))
+/// (for Gaussian values; common practice), 16% at k = 20.
+pub const MIN_BOOT_FITTED: usize = 20;
+
+/// A bootstrap spread below this fraction of the value's scale (alpha - 1 for a tail, the
+/// slope or 1 for the mass-size relation) is rounding: every resample gave the same fit.
+const SPREAD_FLOOR: f64 = 1e-9;
+
+/// The largest `--alpha-max`.
+pub const ALPHA_MAX_LIMIT: f64 = 10.0;
+
+/// The bootstrap of a power-law tail, and whether its spread is the uncertainty reported.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TailBootstrap {
+    /// Standard deviation of alpha over the resamples with a tail.
+    pub alpha_std: f64,
+    /// Standard deviation of the tail's lower mass over them.
+    pub xmin_std: f64,
+    /// Resamples with a tail.
+    pub fitted: usize,
+    /// Whether the spread was measured: at least [`MIN_BOOT_FITTED`] resamples with a tail,
+    /// and a spread beyond rounding. Otherwise the analytic (alpha - 1)/sqrt(n_tail) is the
+    /// uncertainty reported and used.
+    pub usable: bool,
+}
+
+/// Where the uncertainty of a tail's alpha comes from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum AlphaErrorSource {
+    /// The bootstrap's standard deviation.
+    Bootstrap,
+    /// The analytic (alpha - 1)/sqrt(n_tail) (Clauset et al. 2009 eq. 3.2).
+    Analytic,
+}
+
+impl AlphaErrorSource {
+    /// Its name in the tables and the summary.
+    pub fn name(self) -> &'static str {
+        match self {
+            AlphaErrorSource::Bootstrap => "bootstrap",
+            AlphaErrorSource::Analytic => "analytic",
+        }
+    }
+}
+
+impl Summary {
+    /// The uncertainty of the tail's alpha that compare reports and uses for the differences
+    /// between populations: the bootstrap's standard deviation where it measured a spread
+    /// ([`TailBootstrap::usable`]), else the analytic one; `None` without a tail.
+    pub fn alpha_uncertainty(&self) -> Option<(f64, AlphaErrorSource)> {
+        let t = self.tail.as_ref()?;
+        Some(match self.tail_bootstrap {
+            Some(b) if b.usable => (b.alpha_std, AlphaErrorSource::Bootstrap),
+            _ => (t.alpha_error, AlphaErrorSource::Analytic),
+        })
+    }
+
+    /// The uncertainty of the mass-size slope used for the differences, and where it comes
+    /// from: the bootstrap's standard deviation where it measured a spread (at least
+    /// [`MIN_BOOT_FITTED`] resamples with a slope and a spread beyond rounding), else the
+    /// least-squares standard error.
+    pub fn mass_size_uncertainty(&self) -> Option<(f64, &'static str)> {
+        let fit = self.mass_size.as_ref()?;
+        Some(
+            self.mass_size_bootstrap
+                .as_ref()
+                .filter(|b| slope_bootstrap_usable(b, fit))
+                .map_or((fit.slope_error, "least squares"), |b| {
+                    (b.slope_std, "bootstrap")
+                }),
+        )
+    }
+}
+
+/// Whether a mass-size bootstrap measured the slope's spread (see
+/// [`Summary::mass_size_uncertainty`]).
+fn slope_bootstrap_usable(b: &populations::SlopeBootstrap, fit: &populations::LineFit) -> bool {
+    b.slopes.len() >= MIN_BOOT_FITTED && b.slope_std > SPREAD_FLOOR * fit.slope.abs().max(1.0)
+}
+
+/// `value pm error` (`pm` such as " ± " or " +/- ") for the summary and the plot: two
+/// decimals, or two significant digits of an error below 0.005 (and the value to as many
+/// decimals), so that an uncertainty never reads 0.
+pub fn plus_minus(value: f64, pm: &str, error: f64) -> String {
+    let decimals = if error.is_finite() && error > 0.0 && error < 0.005 {
+        (1 - error.log10().floor() as i32).max(2) as usize
+    } else {
+        2
+    };
+    format!("{value:.decimals$}{pm}{error:.decimals$}")
+}
+
+/// The note when a tail was fitted but holds fewer than [`MIN_TAIL`] leaves.
+fn small_tail_note(p: &Population, o: &Options, t: &populations::PowerLawFit) -> String {
+    let why = format!(
+        "fewer than the {MIN_TAIL} a slope needs (below {MIN_TAIL} the spread of the estimate of alpha - 1 exceeds 40% of it)"
+    );
+    let leaves = |n: usize| {
+        if n == 1 {
+            "1 leaf".to_string()
+        } else {
+            format!("{n} leaves")
+        }
+    };
+    if p.masses.len() < MIN_TAIL {
+        return format!(
+            "no power-law slope: the population has {}, {why}",
+            leaves(p.masses.len())
+        );
+    }
+    match o.mass_min {
+        Some(m) => format!(
+            "no power-law slope: only {} at or above --mass-min {} Msun, {why}; give a smaller --mass-min",
+            leaves(t.n_tail)
+                .replace("leaf", "leaf lies")
+                .replace("leaves", "leaves lie"),
+            crate::units::tidy(m)
+        ),
+        None => format!(
+            "no power-law slope: the lower mass found, {} Msun, leaves {} in the tail, {why}; a --mass-min below it fits a larger tail (one the search judged to depart more from a power law)",
+            f(t.xmin),
+            leaves(t.n_tail)
+        ),
+    }
+}
+
+/// The note when no tail could be fitted, with the advice that fits the case.
+fn no_tail_note(p: &Population, o: &Options, why: populations::NoTail) -> String {
+    use populations::NoTail;
+    let (lo, hi) = p
+        .masses
+        .iter()
+        .fold((f64::INFINITY, 0.0f64), |(a, b), &m| (a.min(m), b.max(m)));
+    let all_equal = lo == hi;
+    let column = &p.mass_column;
+    match why {
+        NoTail::NothingAboveXmin if all_equal => format!(
+            "no power-law tail: all {} masses are equal ({} Msun), none above --mass-min {} Msun, and a power law needs masses that differ; check that the catalogue's {column} column holds the leaves' masses",
+            p.masses.len(),
+            f(hi),
+            crate::units::tidy(o.mass_min.unwrap_or(f64::NAN))
+        ),
+        NoTail::NothingAboveXmin => format!(
+            "no power-law tail: no leaf lies above --mass-min {} Msun (the heaviest has {} Msun); give a smaller --mass-min",
+            crate::units::tidy(o.mass_min.unwrap_or(f64::NAN)),
+            f(hi)
+        ),
+        NoTail::TooFewDistinct { distinct: 1, .. } => format!(
+            "no power-law tail: all {} masses are equal ({} Msun), so there is no tail to fit; check that the catalogue's {column} column holds the leaves' masses",
+            p.masses.len(),
+            f(hi)
+        ),
+        NoTail::TooFewDistinct { distinct, needed } => format!(
+            "no power-law tail: the masses take only {distinct} distinct values, fewer than the {needed} a search for the tail's lower mass needs; give --mass-min to fit above a chosen mass"
+        ),
+        NoTail::NoAdmissibleAlpha if o.alpha_max < ALPHA_MAX_LIMIT => format!(
+            "no power-law tail: no lower mass gives a tail with alpha between 1 and {}; a steeper tail needs a larger --alpha-max (up to {}), or give --mass-min to fit above a chosen mass",
+            crate::units::tidy(o.alpha_max),
+            crate::units::tidy(ALPHA_MAX_LIMIT)
+        ),
+        NoTail::NoAdmissibleAlpha => format!(
+            "no power-law tail: no lower mass gives a tail with alpha below {}, the largest --alpha-max; give --mass-min to fit above a chosen mass",
+            crate::units::tidy(o.alpha_max)
+        ),
+    }
+}
+
+/// The notes on bootstrap resamples without a tail, by reason.
+fn bootstrap_failure_notes(failures: &populations::TailFailures, o: &Options) -> Vec<String> {
+    let mut notes = vec![];
+    let of = |k: usize| format!("{k} of {} bootstrap resamples", o.resamples);
+    let left_out = "are left out of the bootstrap spread, which then understates the uncertainty";
+    if failures.nothing_above_xmin > 0 {
+        notes.push(format!(
+            "{} drew no leaf above --mass-min {} Msun and {left_out}",
+            of(failures.nothing_above_xmin),
+            crate::units::tidy(o.mass_min.unwrap_or(f64::NAN))
+        ));
+    }
+    if failures.too_few_distinct > 0 {
+        notes.push(format!(
+            "{} drew fewer than 3 distinct masses, too few to search for the tail's lower mass, and {left_out}",
+            of(failures.too_few_distinct)
+        ));
+    }
+    if failures.no_admissible_alpha > 0 {
+        notes.push(format!(
+            "{} found no tail with alpha below {} and {left_out}; {}",
+            of(failures.no_admissible_alpha),
+            crate::units::tidy(o.alpha_max),
+            if o.alpha_max < ALPHA_MAX_LIMIT {
+                "--alpha-max widens the search"
+            } else {
+                "--mass-min fixes the lower mass"
+            }
+        ));
+    }
+    notes
+}
+
 /// Summarises one population.
 pub fn summarise(p: &Population, o: &Options) -> Summary {
     summarise_with(p, o, &|| {})
@@ -440,16 +730,18 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         alpha_range: (1.0, o.alpha_max),
         ..XminSearch::default()
     };
-    let tail = match populations::fit_power_law(&p.masses, o.mass_min, &search) {
-        Ok(t) => Some(t),
+    let tail = match populations::try_fit_power_law(&p.masses, o.mass_min, &search) {
+        Ok(Ok(t)) if t.n_tail >= MIN_TAIL => Some(t),
+        Ok(Ok(t)) => {
+            notes.push(small_tail_note(p, o, &t));
+            None
+        }
+        Ok(Err(why)) => {
+            notes.push(no_tail_note(p, o, why));
+            None
+        }
         Err(e) => {
-            // In compare's words: the lower limit is the --mass-min option.
-            notes.push(format!(
-                "no power-law tail: {}",
-                e.message
-                    .replace("x_min", "--mass-min")
-                    .replace("widen the admissible range", "a larger --alpha-max")
-            ));
+            notes.push(format!("no power-law tail: {}", e.message));
             None
         }
     };
@@ -458,21 +750,37 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         seed: o.seed,
     };
     let tail_bootstrap = counted(o.resamples, tick, |tick| {
-        tail.as_ref().and_then(|_| {
-        populations::bootstrap_power_law_with(&p.masses, o.mass_min, &search, &boot, tick)
-        .ok()
-        .map(|b| {
-            if b.n_failed > 0 {
-                notes.push(format!(
-                    "{} of {} bootstrap resamples found no tail with alpha below {} and are left out of the bootstrap spread, which then understates the uncertainty; --alpha-max widens the search",
-                    b.n_failed,
-                    o.resamples,
-                    crate::units::tidy(o.alpha_max)
-                ));
-            }
-            (b.alpha_std, b.xmin_std)
+        let t = tail.as_ref()?;
+        let b = populations::bootstrap_power_law_with(&p.masses, o.mass_min, &search, &boot, tick)
+            .ok()?;
+        notes.extend(bootstrap_failure_notes(&b.failures, o));
+        let usable = if b.alphas.len() < MIN_BOOT_FITTED {
+            notes.push(format!(
+                "{} of {} bootstrap resamples gave a tail, fewer than the {MIN_BOOT_FITTED} a spread needs{}, so the uncertainty of alpha is the analytic (alpha - 1)/sqrt(n_tail)",
+                b.alphas.len(),
+                o.resamples,
+                if o.resamples < MIN_BOOT_FITTED {
+                    " (give more --resamples)"
+                } else {
+                    ""
+                }
+            ));
+            false
+        } else if b.alpha_std.is_nan() || b.alpha_std <= SPREAD_FLOOR * (t.alpha - 1.0) {
+            notes.push(
+                "every bootstrap resample gave the same alpha (the resamples differ only in order), so the bootstrap cannot measure its spread and the uncertainty of alpha is the analytic (alpha - 1)/sqrt(n_tail)"
+                    .to_string(),
+            );
+            false
+        } else {
+            true
+        };
+        Some(TailBootstrap {
+            alpha_std: b.alpha_std,
+            xmin_std: b.xmin_std,
+            fitted: b.alphas.len(),
+            usable,
         })
-    })
     });
     let tail_gof = counted(o.resamples, tick, |tick| {
         tail.as_ref().and_then(|t| {
@@ -488,9 +796,14 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         && t.alpha > o.alpha_max - 0.1
     {
         notes.push(format!(
-            "the tail's alpha ({:.2}) lies near the upper end of the search window ({}): a steeper tail could not be chosen; give a larger --alpha-max to see",
+            "the tail's alpha ({:.2}) lies near the upper end of the search window ({}): a steeper tail could not be chosen; {}",
             t.alpha,
-            crate::units::tidy(o.alpha_max)
+            crate::units::tidy(o.alpha_max),
+            if o.alpha_max < ALPHA_MAX_LIMIT {
+                "give a larger --alpha-max to see"
+            } else {
+                "this is the largest --alpha-max, so give --mass-min to fit above a chosen mass"
+            }
         ));
     }
     let tail_vs_lognormal = match tail.as_ref() {
@@ -543,23 +856,36 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         match populations::fit_mass_size(&tested_radii, &tested_masses) {
             Ok(f) => Some(f),
             Err(e) => {
-                notes.push(format!("no mass-size fit: {}", e.message));
+                notes.push(format!(
+                    "no mass-size fit: {}",
+                    e.message.replace("x values", "radii")
+                ));
                 None
             }
         }
     };
     let mass_size_bootstrap = counted(o.resamples, tick, |tick| {
-        mass_size.as_ref().and_then(|_| {
+        let fit = mass_size.as_ref()?;
         let b = populations::bootstrap_mass_size_with(&tested_radii, &tested_masses, &boot, tick)
-                .ok()?;
+            .ok()?;
         if b.n_failed > 0 {
             notes.push(format!(
                 "{} of {} bootstrap resamples of the mass-size relation drew one radius only and are left out of its bootstrap spread",
                 b.n_failed, o.resamples
             ));
         }
+        if !slope_bootstrap_usable(&b, fit) {
+            notes.push(if b.slopes.len() < MIN_BOOT_FITTED {
+                format!(
+                    "{} of {} bootstrap resamples of the mass-size relation gave a slope, fewer than the {MIN_BOOT_FITTED} a spread needs, so the differences of slopes use its least-squares error",
+                    b.slopes.len(),
+                    o.resamples
+                )
+            } else {
+                "every bootstrap resample of the mass-size relation gave the same slope, so the differences of slopes use its least-squares error".to_string()
+            });
+        }
         Some(b)
-    })
     });
     let dens: Vec<f64> = p
         .densities
@@ -604,9 +930,48 @@ pub struct Pair {
     pub mass_size_difference: Option<populations::SlopeDifference>,
 }
 
+/// Warnings for populations that are not independent samples: the same catalogue file given
+/// twice, catalogues that hold the same leaves (masses and radii, in order), or runs of the
+/// same map (the same input SHA-256 in their run records). Tests between such populations do
+/// not compare two clouds (one catalogue twice gives D = 0 and p = 1).
+fn same_leaves(pops: &[Population]) -> Vec<String> {
+    let mut w = vec![];
+    let file = |p: &Population| std::fs::canonicalize(run_files(&p.source).0).ok();
+    let sha = |p: &Population| {
+        p.run["input"]["sha256"]
+            .as_str()
+            .filter(|s| !s.is_empty())
+            .map(str::to_string)
+    };
+    for (i, a) in pops.iter().enumerate() {
+        for b in &pops[i + 1..] {
+            let why = if file(a).is_some() && file(a) == file(b) {
+                format!(
+                    "are the same catalogue ({})",
+                    run_files(&a.source).0.display()
+                )
+            } else if a.masses == b.masses && a.radii == b.radii {
+                "hold the same leaves (the same masses and radii)".to_string()
+            } else if let Some(h) = sha(a).filter(|h| Some(h) == sha(b).as_ref()) {
+                format!(
+                    "are runs of the same map (input SHA-256 {}... in both run records)",
+                    &h[..h.len().min(12)]
+                )
+            } else {
+                continue;
+            };
+            w.push(format!(
+                "{} and {} {why}, so they are not independent samples and the tests and differences between them do not compare two clouds (one catalogue twice gives D = 0 and p = 1); give runs of different maps to compare clouds",
+                a.label, b.label
+            ));
+        }
+    }
+    w
+}
+
 /// Fairness warnings between the populations, each naming the difference.
 pub fn fairness(pops: &[Population]) -> Vec<String> {
-    let mut w = vec![];
+    let mut w = same_leaves(pops);
     for p in pops {
         if p.dropped > 0 {
             w.push(format!(
@@ -822,15 +1187,58 @@ pub struct Comparison {
     pub summaries: Vec<Summary>,
     /// Per pair.
     pub pairs: Vec<Pair>,
-    /// k-sample Anderson-Darling on masses (all populations).
-    pub ad_mass: Option<populations::AndersonKSample>,
-    /// k-sample Anderson-Darling on radii.
-    pub ad_radius: Option<populations::AndersonKSample>,
+    /// k-sample Anderson-Darling on masses (all populations), or why it was not made.
+    pub ad_mass: std::result::Result<populations::AndersonKSample, String>,
+    /// k-sample Anderson-Darling on radii, or why it was not made.
+    pub ad_radius: std::result::Result<populations::AndersonKSample, String>,
+    /// The catalogue column the masses were read from.
+    pub mass_column: String,
     /// Fairness warnings.
     pub warnings: Vec<String>,
     /// The common lower mass of the tests and mass-size fits ([`Options::tests_above`]).
     pub tests_above: Option<f64>,
 }
+
+/// A warning, before the work starts, when the bootstraps' searches for the tails' lower masses
+/// may take more than [`LONG_RUN_SECONDS`]: each resample of the tail's bootstrap and of its
+/// goodness of fit searches again (unless `--mass-min` fixes the lower mass), and a search's
+/// cost grows with the square of the leaves where the masses depart from a power law
+/// everywhere. The time of one search of each population of at least 2,000 leaves is measured
+/// (the others take milliseconds) and multiplied out over the threads. The results do not
+/// depend on it.
+pub fn long_run_warning(pops: &[Population], o: &Options) -> Option<String> {
+    if o.mass_min.is_some() {
+        return None;
+    }
+    let search = XminSearch {
+        alpha_range: (1.0, o.alpha_max),
+        ..XminSearch::default()
+    };
+    let searches = 2 * o.resamples;
+    let threads = rayon::current_num_threads().max(1) as f64;
+    let mut total = 0.0;
+    let mut largest = (0.0, "");
+    for p in pops.iter().filter(|p| p.masses.len() >= 2000) {
+        let start = std::time::Instant::now();
+        let _ = populations::try_fit_power_law(&p.masses, None, &search);
+        let seconds = start.elapsed().as_secs_f64() * searches as f64 / threads;
+        total += seconds;
+        if seconds > largest.0 {
+            largest = (seconds, p.label.as_str());
+        }
+    }
+    (total > LONG_RUN_SECONDS).then(|| {
+        format!(
+            "the bootstraps search again for each tail's lower mass {searches} times per population (--resamples {} for the tail and as many for its goodness of fit), which may take about {} minutes here ({} the longest); fewer --resamples, or --mass-min to fix the lower mass, shorten it",
+            o.resamples,
+            (total / 60.0).ceil(),
+            largest.1
+        )
+    })
+}
+
+/// Above this many seconds of estimated searching, [`long_run_warning`] warns.
+pub const LONG_RUN_SECONDS: f64 = 120.0;
 
 /// Compares populations.
 pub fn compare(pops: &[Population], o: &Options) -> Comparison {
@@ -868,31 +1276,21 @@ pub fn compare_with_progress(
         for j in i + 1..pops.len() {
             let (a, b) = (&pops[i], &pops[j]);
             let (sa, sb) = (&summaries[i], &summaries[j]);
-            let alpha_difference = match (&sa.tail, &sb.tail) {
-                (Some(x), Some(y)) => {
-                    let ex = sa.tail_bootstrap.map(|t| t.0).unwrap_or(x.alpha_error);
-                    let ey = sb.tail_bootstrap.map(|t| t.0).unwrap_or(y.alpha_error);
-                    populations::slope_difference((x.alpha, ex), (y.alpha, ey)).ok()
-                }
-                _ => None,
+            // Each value's uncertainty as reported: the bootstrap's spread where it measured
+            // one (it assumes neither Gaussian errors nor, for the slopes, one width of scatter
+            // at every radius), else the analytic or least-squares error. A significance is
+            // never computed from an uncertainty that is not positive.
+            let difference = |x: Option<(f64, f64)>, y: Option<(f64, f64)>| {
+                let ((vx, ex), (vy, ey)) = (x?, y?);
+                (ex > 0.0 && ey > 0.0)
+                    .then(|| populations::slope_difference((vx, ex), (vy, ey)).ok())
+                    .flatten()
             };
-            // The bootstrap's spread where there is one, as for the tails: it assumes neither
-            // Gaussian scatter nor one width at every radius.
-            let slope_error = |fit: &populations::LineFit, s: &Summary| {
-                s.mass_size_bootstrap
-                    .as_ref()
-                    .map(|b| b.slope_std)
-                    .filter(|e| e.is_finite() && *e > 0.0)
-                    .unwrap_or(fit.slope_error)
-            };
-            let mass_size_difference = match (&sa.mass_size, &sb.mass_size) {
-                (Some(x), Some(y)) => populations::slope_difference(
-                    (x.slope, slope_error(x, sa)),
-                    (y.slope, slope_error(y, sb)),
-                )
-                .ok(),
-                _ => None,
-            };
+            let alpha = |s: &Summary| Some((s.tail.as_ref()?.alpha, s.alpha_uncertainty()?.0));
+            let slope =
+                |s: &Summary| Some((s.mass_size.as_ref()?.slope, s.mass_size_uncertainty()?.0));
+            let alpha_difference = difference(alpha(sa), alpha(sb));
+            let mass_size_difference = difference(slope(sa), slope(sb));
             pairs.push(Pair {
                 a: a.label.clone(),
                 b: b.label.clone(),
@@ -908,14 +1306,54 @@ pub fn compare_with_progress(
     Comparison {
         summaries,
         pairs,
-        ad_mass: (pops.len() >= 2)
-            .then(|| populations::anderson_ksamp(&ms).ok())
-            .flatten(),
-        ad_radius: (pops.len() >= 2)
-            .then(|| populations::anderson_ksamp(&rs).ok())
-            .flatten(),
+        ad_mass: k_sample_test(pops, &ms, "masses", o.tests_above),
+        ad_radius: k_sample_test(pops, &rs, "radii", o.tests_above),
         warnings: fairness(pops),
         tests_above: o.tests_above,
+        mass_column: pops
+            .first()
+            .map_or_else(|| "mass_excess".to_string(), |p| p.mass_column.clone()),
+    }
+}
+
+/// The k-sample Anderson-Darling test of `samples` (the `what` of each population, those
+/// at or above `cut`), or why it was not made, in words for the report.
+fn k_sample_test(
+    pops: &[Population],
+    samples: &[&[f64]],
+    what: &str,
+    cut: Option<f64>,
+) -> std::result::Result<populations::AndersonKSample, String> {
+    if samples.len() < 2 {
+        return Err("it needs two populations or more".into());
+    }
+    let empty: Vec<&str> = pops
+        .iter()
+        .zip(samples)
+        .filter(|(_, s)| s.is_empty())
+        .map(|(p, _)| p.label.as_str())
+        .collect();
+    if !empty.is_empty() {
+        return Err(format!(
+            "{} {} no leaf at or above --tests-above {} Msun",
+            empty.join(", "),
+            if empty.len() == 1 { "has" } else { "have" },
+            crate::units::tidy(cut.unwrap_or(f64::NAN))
+        ));
+    }
+    let first = samples[0][0];
+    if samples.iter().all(|s| s.iter().all(|&v| v == first)) {
+        return Err(format!(
+            "every one of the {what} is the same ({}), so the test is undefined (scipy's anderson_ksamp refuses such samples too)",
+            f(first)
+        ));
+    }
+    match populations::anderson_ksamp(samples) {
+        Ok(a) if a.statistic.is_finite() => Ok(a),
+        Ok(_) => Err(format!(
+            "it is undefined for these samples (too few {what} in all, or no spread among them; scipy gives no value either)"
+        )),
+        Err(e) => Err(e.message),
     }
 }
 
@@ -942,10 +1380,30 @@ fn f(x: f64) -> String {
 /// The caution each table of masses carries.
 const MASS_CAUTION: &str = "caution: the masses carry factor-of-two systematics from dust opacity, temperature and distance, shared by runs made with the same assumptions (see the report's Fairness section)";
 
+/// The catalogue column compared, as a parameter of the tables' headers.
+fn mass_column_meta(column: &str) -> (String, String, String) {
+    (
+        "mass_column".into(),
+        column.into(),
+        mass_column_meaning(column).into(),
+    )
+}
+
+/// What the masses of a catalogue column are.
+fn mass_column_meaning(column: &str) -> &'static str {
+    match column {
+        "mass" => "each leaf's whole mass over its footprint (--mass-column mass)",
+        _ => {
+            "each leaf's mass above its merge level (the default; --mass-column mass for the whole footprint)"
+        }
+    }
+}
+
 /// The summary table (one row per population).
 pub fn summary_table(c: &Comparison) -> Table {
     let mut t = Table {
         name: "POPULATIONS".into(),
+        meta: vec![mass_column_meta(&c.mass_column)],
         notes: vec![MASS_CAUTION.into()],
         ..Default::default()
     };
@@ -962,8 +1420,14 @@ pub fn summary_table(c: &Comparison) -> Table {
     t.push_i64(
         "n",
         "",
-        "leaves with a positive mass",
+        "leaves compared: those with a positive mass and radius",
         s.iter().map(|x| x.n as i64).collect(),
+    );
+    t.push_i64(
+        "n_dropped",
+        "",
+        "leaves left out for a missing, zero or negative mass or radius (not in n or the state counts)",
+        s.iter().map(|x| x.dropped as i64).collect(),
     );
     t.push_i64(
         "n_tested",
@@ -975,7 +1439,9 @@ pub fn summary_table(c: &Comparison) -> Table {
         t.push_i64(
             &format!("n_{st}"),
             "",
-            &format!("leaves in the state {st}"),
+            &format!(
+                "leaves compared in the state {st} (the four state columns add up to n; a catalogue without states counts its leaves as unknown)"
+            ),
             s.iter()
                 .map(|x| *x.states.get(st).unwrap_or(&0) as i64)
                 .collect(),
@@ -993,11 +1459,32 @@ pub fn summary_table(c: &Comparison) -> Table {
         "(alpha - 1)/sqrt(n_tail)",
         g(&|x| x.tail.as_ref().map(|t| t.alpha_error).unwrap_or(f64::NAN)),
     );
+    let usable = |x: &Summary| x.tail_bootstrap.filter(|b| b.usable);
     t.push_f64(
         "alpha_err_boot",
         "",
-        "bootstrap standard deviation of alpha",
-        g(&|x| x.tail_bootstrap.map(|b| b.0).unwrap_or(f64::NAN)),
+        &format!(
+            "bootstrap standard deviation of alpha; empty where the bootstrap could not measure it (fewer than {MIN_BOOT_FITTED} resamples with a tail, or every resample the same fit)"
+        ),
+        g(&|x| usable(x).map_or(f64::NAN, |b| b.alpha_std)),
+    );
+    t.push_text(
+        "alpha_err_from",
+        "the uncertainty of alpha reported and used in tests.csv: bootstrap (alpha_err_boot) where it measured the spread, else analytic (alpha_err)",
+        s.iter()
+            .map(|x| {
+                x.alpha_uncertainty()
+                    .map_or(String::new(), |(_, from)| from.name().to_string())
+            })
+            .collect(),
+    );
+    t.push_i64(
+        "tail_boot_fitted",
+        "",
+        "bootstrap resamples that gave a tail",
+        s.iter()
+            .map(|x| x.tail_bootstrap.map_or(0, |b| b.fitted as i64))
+            .collect(),
     );
     t.push_f64(
         "tail_gof_p",
@@ -1014,8 +1501,8 @@ pub fn summary_table(c: &Comparison) -> Table {
     t.push_f64(
         "mass_min_err_boot",
         "solMass",
-        "bootstrap standard deviation of mass_min",
-        g(&|x| x.tail_bootstrap.map(|b| b.1).unwrap_or(f64::NAN)),
+        "bootstrap standard deviation of mass_min; empty where alpha_err_boot is",
+        g(&|x| usable(x).map_or(f64::NAN, |b| b.xmin_std)),
     );
     t.push_i64(
         "n_tail",
@@ -1159,6 +1646,18 @@ pub fn summary_table(c: &Comparison) -> Table {
             g(&|x| x.mass_size_bootstrap.as_ref().map(of).unwrap_or(f64::NAN)),
         );
     }
+    t.push_text(
+        "mass_size_slope_err_from",
+        &format!(
+            "the slope's uncertainty used in tests.csv: bootstrap (mass_size_slope_err_boot) where it measured the spread (at least {MIN_BOOT_FITTED} resamples with a slope, and a spread beyond rounding), else least squares (mass_size_slope_err)"
+        ),
+        s.iter()
+            .map(|x| {
+                x.mass_size_uncertainty()
+                    .map_or(String::new(), |(_, from)| from.to_string())
+            })
+            .collect(),
+    );
     t.push_f64(
         "mass_size_intercept",
         "",
@@ -1200,6 +1699,7 @@ pub fn summary_table(c: &Comparison) -> Table {
 pub fn mass_function_table(c: &Comparison) -> Table {
     let mut t = Table {
         name: "MASS_FUNCTIONS".into(),
+        meta: vec![mass_column_meta(&c.mass_column)],
         notes: vec![MASS_CAUTION.into()],
         ..Default::default()
     };
@@ -1244,12 +1744,24 @@ pub fn mass_function_table(c: &Comparison) -> Table {
     t
 }
 
-/// The pairwise tests.
+/// The pairwise tests, with the k-sample Anderson-Darling tests of all populations on every
+/// row.
 pub fn tests_table(c: &Comparison) -> Table {
     let mut t = Table {
         name: "TESTS".into(),
+        meta: vec![mass_column_meta(&c.mass_column)],
         ..Default::default()
     };
+    t.notes.push(
+        "the ad_ columns are the k-sample Anderson-Darling tests of all populations together (Scholz & Stephens 1987, midrank), the same on every row".into(),
+    );
+    for (what, ad) in [("masses", &c.ad_mass), ("radii", &c.ad_radius)] {
+        if let Err(why) = ad {
+            t.notes.push(format!(
+                "the k-sample Anderson-Darling test on {what} was not made: {why}"
+            ));
+        }
+    }
     if let Some(cut) = c.tests_above {
         t.notes.push(tests_above_note(cut));
     }
@@ -1349,6 +1861,32 @@ pub fn tests_table(c: &Comparison) -> Table {
                 .unwrap_or(f64::NAN)
         }),
     );
+    let pairs = c.pairs.len();
+    for (key, what, ad) in [
+        ("mass", "masses", &c.ad_mass),
+        ("radius", "radii", &c.ad_radius),
+    ] {
+        let a = ad.as_ref().ok();
+        t.push_f64(
+            &format!("ad_{key}_statistic"),
+            "",
+            &format!(
+                "standardised k-sample Anderson-Darling statistic on the {what} of all populations (scipy's statistic); empty when the test was not made (see the notes)"
+            ),
+            vec![a.map_or(f64::NAN, |a| a.statistic); pairs],
+        );
+        t.push_f64(
+            &format!("ad_{key}_p"),
+            "",
+            "its p-value, interpolated in Scholz & Stephens' table and capped to 0.001-0.25",
+            vec![a.map_or(f64::NAN, |a| a.pvalue); pairs],
+        );
+        t.push_text(
+            &format!("ad_{key}_p_capped"),
+            "true where the p-value was capped (the true value lies beyond the table)",
+            vec![a.map_or(String::new(), |a| a.pvalue_capped.to_string()); pairs],
+        );
+    }
     t
 }
 
@@ -1395,25 +1933,32 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     let _ = writeln!(s, "# Core populations compared\n");
     let _ = writeln!(
         s,
-        "Written by cairn {}. Leaves (structures without children) are the cores; masses are `mass_excess` unless chosen otherwise.\n",
-        env!("CARGO_PKG_VERSION")
+        "Written by cairn {}. Leaves (structures without children) are the cores; their masses are the catalogues' `{}` column: {}. The leaves compared are those with a positive mass and radius; the others are counted as left out, and the states count only the leaves compared.\n",
+        env!("CARGO_PKG_VERSION"),
+        c.mass_column,
+        mass_column_meaning(&c.mass_column)
     );
     let _ = writeln!(
         s,
-        "| population | source | leaves | bound | marginal | unbound | median mass [Msun] | median n(H2) [cm-3] |"
+        "| population | source | leaves | bound | marginal | unbound | unknown | left out | median mass [Msun] | median n(H2) [cm-3] |"
     );
-    let _ = writeln!(s, "| --- | --- | --- | --- | --- | --- | --- | --- |");
+    let _ = writeln!(
+        s,
+        "| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |"
+    );
     for (x, p) in c.summaries.iter().zip(pops) {
         let st = |k: &str| x.states.get(k).copied().unwrap_or(0);
         let _ = writeln!(
             s,
-            "| {} | `{}` | {} | {} | {} | {} | {} | {} |",
+            "| {} | `{}` | {} | {} | {} | {} | {} | {} | {} | {} |",
             x.label,
             p.source.display(),
             x.n,
             st("bound"),
             st("marginal"),
             st("unbound"),
+            st("unknown"),
+            x.dropped,
             f(x.median_mass),
             f(x.median_density)
         );
@@ -1424,7 +1969,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     let _ = writeln!(s, "\n## Mass functions\n");
     let _ = writeln!(
         s,
-        "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood peak exp(mu) and width sigma of ln M, each with its 68.27% confidence interval (Student's t and chi-square, exact for a complete log-normal sample of three or more leaves; a mass or completeness cut truncates the sample and the intervals then say less).\n",
+        "Power-law tail dN/dM ~ M^-alpha above mass_min by maximum likelihood (Clauset, Shalizi & Newman 2009), mass_min {}; uncertainty (alpha-1)/sqrt(n) and from {} bootstrap resamples (seed {}). A tail of fewer than {MIN_TAIL} leaves is given no slope (the estimate's spread then exceeds 40% of alpha - 1). The bootstrap's spread is the uncertainty reported and used between populations where it was measured (at least {MIN_BOOT_FITTED} resamples with a tail, and resamples that differ); elsewhere it is the analytic one, as the notes say. The slope of dN/dlogM is 1 - alpha. Log-normal: maximum-likelihood peak exp(mu) and width sigma of ln M, each with its 68.27% confidence interval (Student's t and chi-square, exact for a complete log-normal sample of three or more leaves; a mass or completeness cut truncates the sample and the intervals then say less).\n",
         match o.mass_min {
             Some(m) => format!("fixed at {m} Msun"),
             None => format!(
@@ -1446,7 +1991,10 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             .as_ref()
             .map(|t| (t.alpha, t.alpha_error, t.xmin, t.n_tail))
             .unwrap_or((f64::NAN, f64::NAN, f64::NAN, 0));
-        let be = x.tail_bootstrap.map(|b| b.0).unwrap_or(f64::NAN);
+        let be = x
+            .tail_bootstrap
+            .filter(|b| b.usable)
+            .map_or(f64::NAN, |b| b.alpha_std);
         let (lp, ls) = x
             .lognormal
             .as_ref()
@@ -1509,7 +2057,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
                     f(g.p_value),
                     g.fitted,
                     if g.n_failed > 0 {
-                        format!(", {} more without an admissible tail left out", g.n_failed)
+                        format!(", {} more without a tail left out", g.n_failed)
                     } else {
                         String::new()
                     }
@@ -1546,7 +2094,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     };
     let _ = writeln!(
         s,
-        "\n## Mass-size relation\n\nLeast squares log10 M = a + b log10 R (M in Msun, R the effective radius in pc), with the rms scatter of log10 M about the fit. The slope's uncertainty is the least-squares standard error (which takes the scatter as Gaussian and the same at every radius) and, from {} bootstrap resamples of the (R, M) pairs (seed {}), the standard deviation and the central 68.27% interval of the resampled slopes, which assume neither.{which}\n",
+        "\n## Mass-size relation\n\nLeast squares log10 M = a + b log10 R (M in Msun, R the catalogue's radius_pc: the footprint's effective radius in pc, with the beam in it), with the rms scatter of log10 M about the fit. The radius is not deconvolved: leaves not much larger than the beam have radii set largely by the beam, which flattens the slope at small radii and makes the slopes of runs at different linear resolutions differ for that reason alone. The slope's uncertainty is the least-squares standard error (which takes the scatter as Gaussian and the same at every radius) and, from {} bootstrap resamples of the (R, M) pairs (seed {}), the standard deviation and the central 68.27% interval of the resampled slopes, which assume neither; the differences between populations use the bootstrap's where at least {MIN_BOOT_FITTED} resamples gave a slope.{which}\n",
         o.resamples, o.seed
     );
     let _ = writeln!(
@@ -1583,7 +2131,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
     if !c.pairs.is_empty() {
         let _ = writeln!(
             s,
-            "\n## Between populations\n\nTwo-sample Kolmogorov-Smirnov tests (p-values as scipy.stats.ks_2samp computes them); differences of the tail exponents and mass-size slopes with their combined uncertainties.{which_tests}\n"
+            "\n## Between populations\n\nTwo-sample Kolmogorov-Smirnov tests (p-values as scipy.stats.ks_2samp computes them); differences of the tail exponents and mass-size slopes with their combined uncertainties (each value's bootstrap spread where it was measured, else its analytic or least-squares error; no significance is given from an uncertainty that is not positive).{which_tests}\n"
         );
         let _ = writeln!(
             s,
@@ -1617,26 +2165,27 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             );
         }
         for (what, ad) in [("masses", &c.ad_mass), ("radii", &c.ad_radius)] {
-            if ad.as_ref().is_some_and(|a| !a.statistic.is_finite()) {
-                let _ = writeln!(
-                    s,
-                    "\nk-sample Anderson-Darling test on {what}: not made, as it is undefined for these samples (too few {what} in all, or no spread among them; scipy gives no value either)."
-                );
-                continue;
-            }
-            if let Some(a) = ad {
-                let _ = writeln!(
-                    s,
-                    "\nk-sample Anderson-Darling test on {what} (Scholz & Stephens 1987, midrank): statistic {}, p-value {}{}.",
-                    f(a.statistic),
-                    f(a.pvalue),
-                    if a.pvalue_capped {
-                        " (capped to the tabulated range 0.001-0.25)"
-                    } else {
-                        ""
-                    }
-                );
-            }
+            let a = match ad {
+                Ok(a) => a,
+                Err(why) => {
+                    let _ = writeln!(
+                        s,
+                        "\nk-sample Anderson-Darling test on {what}: not made, as {why}."
+                    );
+                    continue;
+                }
+            };
+            let _ = writeln!(
+                s,
+                "\nk-sample Anderson-Darling test on {what} (Scholz & Stephens 1987, midrank; full precision in tests.csv): statistic {}, p-value {}{}.",
+                f(a.statistic),
+                f(a.pvalue),
+                if a.pvalue_capped {
+                    " (capped to the tabulated range 0.001-0.25)"
+                } else {
+                    ""
+                }
+            );
         }
     }
     let _ = writeln!(s, "\n## Fairness\n");
@@ -1704,10 +2253,14 @@ pub fn plots(
                 })
                 .collect();
             series.line = Some(line);
-            let err = s.tail_bootstrap.map(|b| b.0).unwrap_or(t.alpha_error);
+            let (err, _) = s
+                .alpha_uncertainty()
+                .unwrap_or((t.alpha_error, AlphaErrorSource::Analytic));
             mf.notes.push(format!(
-                "{}: alpha = {:.2} ± {:.2} above {:.3} M_{{sun}}",
-                s.label, t.alpha, err, t.xmin
+                "{}: alpha = {} above {:.3} M_{{sun}}",
+                s.label,
+                plus_minus(t.alpha, " ± ", err),
+                t.xmin
             ));
         }
         mf.series.push(series);
@@ -1801,6 +2354,11 @@ pub fn plots(
 pub fn cumulative_table(pops: &[Population]) -> Table {
     let mut t = Table {
         name: "CUMULATIVE".into(),
+        meta: pops
+            .first()
+            .map(|p| mass_column_meta(&p.mass_column))
+            .into_iter()
+            .collect(),
         notes: vec![MASS_CAUTION.into()],
         ..Default::default()
     };
@@ -1845,6 +2403,7 @@ mod tests {
             masses,
             states: Default::default(),
             dropped: 0,
+            mass_column: "mass_excess".into(),
             run: serde_json::Value::Null,
             grown: false,
         };
@@ -1872,6 +2431,47 @@ mod tests {
             "alpha {} +/- {}",
             t.alpha,
             t.alpha_error
+        );
+    }
+
+    /// The smallest tail given a slope is the smallest n at which the exact standard
+    /// deviation of the maximum-likelihood estimate of alpha - 1, (alpha - 1) n / ((n - 1)
+    /// sqrt(n - 2)) (n / S with S gamma-distributed of shape n), is below 40% of alpha - 1, as
+    /// its documentation and the notes say.
+    #[test]
+    fn the_smallest_tail_is_where_the_spread_falls_below_forty_percent() {
+        let spread = |n: usize| n as f64 / ((n - 1) as f64 * ((n - 2) as f64).sqrt());
+        assert!(spread(MIN_TAIL) < 0.4 && spread(MIN_TAIL - 1) > 0.4);
+        assert!((spread(10) - 0.3928).abs() < 1e-4 && (spread(9) - 0.4252).abs() < 1e-4);
+    }
+
+    /// When no lower mass gives an admissible alpha, a larger --alpha-max is advised only while
+    /// there is a larger one to give; at the largest, --mass-min is.
+    #[test]
+    fn no_admissible_alpha_advice_depends_on_the_window() {
+        let p = Population {
+            label: "p".into(),
+            source: PathBuf::from("p.csv"),
+            masses: vec![1.0, 2.0, 3.0],
+            radii: vec![0.05; 3],
+            densities: vec![1e5; 3],
+            states: Default::default(),
+            dropped: 0,
+            mass_column: "mass_excess".into(),
+            run: serde_json::Value::Null,
+            grown: false,
+        };
+        let why = populations::NoTail::NoAdmissibleAlpha;
+        let narrow = no_tail_note(&p, &Options::default(), why);
+        assert!(narrow.contains("a larger --alpha-max"), "{narrow}");
+        let widest = Options {
+            alpha_max: ALPHA_MAX_LIMIT,
+            ..Options::default()
+        };
+        let wide = no_tail_note(&p, &widest, why);
+        assert!(
+            !wide.contains("a larger --alpha-max") && wide.contains("give --mass-min"),
+            "{wide}"
         );
     }
 
@@ -1952,6 +2552,7 @@ mod tests {
                 densities: vec![1e5; 29],
                 states: Default::default(),
                 dropped: 0,
+                mass_column: "mass_excess".into(),
                 run: serde_json::json!({ "physics": { "mu_h2": 2.8, "mu_p": 2.33 } }),
                 grown: false,
             })
@@ -2026,6 +2627,7 @@ mod progress_tests {
                     masses,
                     states: Default::default(),
                     dropped: 0,
+                    mass_column: "mass_excess".into(),
                     run: serde_json::Value::Null,
                     grown: false,
                 }

@@ -52,6 +52,11 @@ fn compare_reports_statistics_and_fairness() {
             && err.contains("linear resolution (beam x distance) differs by a factor 2.00"),
         "{err}"
     );
+    // Two runs of one map: not independent samples, and said so.
+    assert!(
+        err.contains("near and far are runs of the same map (input SHA-256 "),
+        "{err}"
+    );
     // The warnings give the values of the run records with their units, to four significant
     // digits: the resolution is the beam times the distance (small angles, 1 arcsec =
     // pi / 648000 rad), the sensitivity scales as the distance squared.
@@ -356,9 +361,9 @@ mod common;
 /// invented catalogues of fixtures/populations/tests_above.json are compared with the cut, and
 /// the statistics equal scipy 1.17.1's on the cut samples (ks_2samp with method 'auto',
 /// anderson_ksamp with variant 'midrank', linregress of log10 M on log10 R), to 1e-10 relative
-/// as in populations_reference.rs; the Anderson-Darling tests appear only in the report, with
-/// three decimals, so they are checked to half a unit of the third decimal, and differ there
-/// from scipy's on every leaf, which the comparison without the cut gives.
+/// as in populations_reference.rs; the Anderson-Darling tests are checked so in tests.csv and
+/// to half a unit of the third decimal in the report, and differ there from scipy's on every
+/// leaf, which the comparison without the cut gives.
 #[test]
 fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
     use common::{assert_close, fixture_json, num, nums};
@@ -397,10 +402,11 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
         let c = rows[0].iter().position(|c| c == name).unwrap();
         rows[row][c].parse().unwrap()
     };
-    // The Anderson-Darling statistic and p-value the report gives on masses or radii.
+    // The Anderson-Darling statistic and p-value the report gives on masses or radii (to
+    // three decimals; tests.csv holds them in full).
     let anderson = |report: &str, what: &str| -> (f64, f64) {
         let key = format!(
-            "k-sample Anderson-Darling test on {what} (Scholz & Stephens 1987, midrank): statistic "
+            "k-sample Anderson-Darling test on {what} (Scholz & Stephens 1987, midrank; full precision in tests.csv): statistic "
         );
         let rest = &report[report.find(&key).unwrap() + key.len()..];
         let (stat, rest) = rest.split_once(", p-value ").unwrap();
@@ -450,7 +456,10 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
             alpha_range: (1.0, 3.0),
             ..Default::default()
         };
-        if let Ok(fit) = cairn::populations::fit_power_law(&masses, None, &search) {
+        // compare gives no slope (nor its goodness of fit) to a tail of fewer than 10 leaves.
+        if let Ok(fit) = cairn::populations::fit_power_law(&masses, None, &search)
+            && fit.n_tail >= cairn::compare::MIN_TAIL
+        {
             let boot = cairn::populations::Bootstrap {
                 resamples: 20,
                 seed: 1,
@@ -482,16 +491,31 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
         }
     }
     assert!(gof_checked > 0, "no population had a tail");
-    // Each pair's slope difference (its size) is in units of the bootstraps' spreads combined in
-    // quadrature (the slopes themselves checked against scipy above).
+    // Each pair's slope difference (its size) is in units of the slopes' uncertainties combined
+    // in quadrature, each the bootstrap's spread or the least-squares error as
+    // mass_size_slope_err_from says (the slopes themselves checked against scipy above).
+    let mut from_bootstrap = 0;
     for row in 1..tests.len() {
-        let of = |name: &str, column: &str| {
-            let r = (1..summary.len()).find(|&r| summary[r][0] == name).unwrap();
-            value(&summary, r, column)
+        let r_of = |name: &str| (1..summary.len()).find(|&r| summary[r][0] == name).unwrap();
+        let of = |name: &str, column: &str| value(&summary, r_of(name), column);
+        let error = |name: &str| {
+            let c = summary[0]
+                .iter()
+                .position(|c| c == "mass_size_slope_err_from")
+                .unwrap();
+            match summary[r_of(name)][c].as_str() {
+                "bootstrap" => of(name, "mass_size_slope_err_boot"),
+                "least squares" => of(name, "mass_size_slope_err"),
+                other => panic!("{name}: mass_size_slope_err_from {other}"),
+            }
         };
         let (a, b) = (tests[row][0].as_str(), tests[row][1].as_str());
         let difference = of(a, "mass_size_slope") - of(b, "mass_size_slope");
-        let spread = of(a, "mass_size_slope_err_boot").hypot(of(b, "mass_size_slope_err_boot"));
+        let spread = error(a).hypot(error(b));
+        from_bootstrap += [a, b]
+            .iter()
+            .filter(|n| error(n) == of(n, "mass_size_slope_err_boot"))
+            .count();
         assert_close(
             value(&tests, row, "mass_size_diff_sigma"),
             difference.abs() / spread,
@@ -513,6 +537,7 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
         }
         assert!(value(&tests, row, "mass_size_diff_sigma") >= 0.0);
     }
+    assert!(from_bootstrap > 0, "no slope's bootstrap spread was used");
     // The column descriptions and the report's header say so, rather than read as an
     // uncertainty.
     let text = std::fs::read_to_string(d.path().join("cut/tests.csv")).unwrap();
@@ -552,6 +577,29 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
             (p - num(&reference["pvalue"])).abs() <= 5e-4,
             "{what}: p {p}"
         );
+        // tests.csv holds them in full, the same on every row, against scipy 1.17.1's
+        // anderson_ksamp(variant='midrank') to 1e-10 (as in populations_reference.rs), with
+        // scipy's capping of the p-value.
+        for row in 1..tests.len() {
+            for (column, key) in [("statistic", "statistic"), ("p", "pvalue")] {
+                assert_close(
+                    value(&tests, row, &format!("ad_{what}_{column}")),
+                    num(&reference[key]),
+                    1e-10,
+                    0.0,
+                    &format!("tests.csv ad_{what}_{column} (scipy 1.17.1 anderson_ksamp)"),
+                );
+            }
+            let c = tests[0]
+                .iter()
+                .position(|c| *c == format!("ad_{what}_p_capped"))
+                .unwrap();
+            assert_eq!(
+                tests[row][c],
+                reference["capped"].as_bool().unwrap().to_string(),
+                "{what}: capped"
+            );
+        }
         // The cut changes the statistic beyond the report's precision.
         assert!((num(&every["statistic"]) - num(&reference["statistic"])).abs() > 1e-2);
     }
@@ -815,4 +863,553 @@ fn a_fits_file_given_for_a_run_gets_the_right_advice() {
         "{err}"
     );
     assert!(!d.path().join("c1").exists() && !d.path().join("c2").exists());
+}
+
+/// A hand-made catalogue: one leaf per row of (mass, radius in pc, state), with the columns
+/// compare reads (`mass` twice `mass_excess`, so the two columns can be told apart).
+fn catalogue(path: &std::path::Path, leaves: &[(f64, f64, &str)]) {
+    let mut text = String::from("kind,mass_excess,mass,radius_pc,state,density\n");
+    for (m, r, s) in leaves {
+        let m = if m.is_nan() {
+            String::new()
+        } else {
+            format!("{m:?}")
+        };
+        let whole = m
+            .parse::<f64>()
+            .map_or(String::new(), |m| format!("{:?}", 2.0 * m));
+        text += &format!("leaf,{m},{whole},{r:?},{s},100000.0\n");
+    }
+    std::fs::write(path, text).unwrap();
+}
+
+/// n masses of a power law with exponent `alpha` above `xmin` at the quantiles (k + 1/2) / n,
+/// by inversion of its cumulative distribution (Clauset, Shalizi & Newman 2009, eq. D.4),
+/// with radii growing with mass (M ~ R^2), so every fit exists.
+fn power_law_leaves(n: usize, xmin: f64, alpha: f64) -> Vec<(f64, f64, &'static str)> {
+    (0..n)
+        .map(|k| {
+            let u = (k as f64 + 0.5) / n as f64;
+            let m = xmin * (1.0 - u).powf(-1.0 / (alpha - 1.0));
+            let wobble = 1.0 + 0.2 * ((k * 7919) % 13) as f64 / 13.0;
+            (m, 0.05 * m.sqrt() * wobble, "unknown")
+        })
+        .collect()
+}
+
+/// The rows of a CSV table written by compare (`#` lines skipped), by column name.
+fn rows(path: &std::path::Path) -> Vec<std::collections::HashMap<String, String>> {
+    common::read_csv(path)
+}
+
+/// The number in column `k` of `row`, NaN when the cell is empty.
+fn cell(row: &std::collections::HashMap<String, String>, k: &str) -> f64 {
+    let v = row.get(k).unwrap_or_else(|| panic!("no column {k}"));
+    if v.is_empty() {
+        f64::NAN
+    } else {
+        v.parse().unwrap()
+    }
+}
+
+/// Many equal values do not crash compare (the percentiles were a recursive quickselect that
+/// overflowed the stack): two catalogues of 30,000 leaves of one mass and one density (a
+/// constant column) give the median of equal values, that value (numpy 2.4.6's percentile of
+/// 30,000 equal values, fixtures/populations/percentiles.json), say that equal masses have no
+/// tail and that the k-sample test on them was not made (scipy 1.17.1's anderson_ksamp refuses
+/// samples of one value); and 15,000 bootstrap resamples with a fixed --mass-min, whose lower
+/// masses are then all that mass (so their spread is 0), run to the end.
+#[test]
+fn many_equal_values_and_a_long_bootstrap_of_a_fixed_lower_mass_run_to_the_end() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(
+        &d.path().join("flat.csv"),
+        &vec![(2.0, 0.05, "unknown"); 30_000],
+    );
+    catalogue(
+        &d.path().join("level.csv"),
+        &vec![(2.0, 0.06, "bound"); 30_000],
+    );
+    let args = [
+        "compare",
+        "flat.csv",
+        "level.csv",
+        "-o",
+        "equal",
+        "--resamples",
+        "20",
+    ];
+    let o = cli::cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for row in rows(&d.path().join("equal/populations.csv")) {
+        assert_eq!(cell(&row, "median_density"), 100000.0);
+        assert_eq!(cell(&row, "median_mass"), 2.0);
+        assert!(cell(&row, "alpha").is_nan());
+    }
+    for label in ["flat", "level"] {
+        assert!(
+            o.stdout.contains(&format!("{label}: 30000 leaves, no tail fit"))
+                && o.stdout.contains(
+                    "all 30000 masses are equal (2.000 Msun), so there is no tail to fit; check that the catalogue's mass_excess column holds the leaves' masses"
+                ),
+            "{}",
+            o.stdout
+        );
+    }
+    assert!(!o.stdout.contains("--alpha-max"), "{}", o.stdout);
+    let report = std::fs::read_to_string(d.path().join("equal/report.md")).unwrap();
+    assert!(
+        report.contains("k-sample Anderson-Darling test on masses: not made, as every one of the masses is the same (2.000)"),
+        "{report}"
+    );
+    let tests = std::fs::read_to_string(d.path().join("equal/tests.csv")).unwrap();
+    assert!(
+        tests.contains("# note: the k-sample Anderson-Darling test on masses was not made"),
+        "{tests}"
+    );
+    let t = rows(&d.path().join("equal/tests.csv"));
+    assert!(
+        cell(&t[0], "ad_mass_statistic").is_nan() && cell(&t[0], "ad_radius_statistic").is_finite()
+    );
+
+    catalogue(&d.path().join("a.csv"), &power_law_leaves(200, 0.5, 2.35));
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(150, 0.5, 2.0));
+    let args = [
+        "compare",
+        "a.csv",
+        "b.csv",
+        "-o",
+        "long",
+        "--mass-min",
+        "0.5Msun",
+        "--resamples",
+        "15000",
+    ];
+    let o = cli::cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for row in rows(&d.path().join("long/populations.csv")) {
+        assert_eq!(cell(&row, "mass_min"), 0.5);
+        assert_eq!(cell(&row, "mass_min_err_boot"), 0.0);
+        assert_eq!(row["alpha_err_from"], "bootstrap");
+        assert_eq!(cell(&row, "tail_boot_fitted"), 15000.0);
+    }
+}
+
+/// A tail too small for a slope is given none, and a bootstrap that cannot measure the spread
+/// of alpha gives way to the analytic (alpha - 1)/sqrt(n_tail) (Clauset, Shalizi & Newman 2009,
+/// eq. 3.2), said in the summary, the report and alpha_err_from; no uncertainty is NaN or
+/// zero, and no significance is computed from one.
+#[test]
+fn small_tails_and_bootstraps_without_a_spread_are_said_and_never_reported_as_an_error() {
+    let d = tempfile::tempdir().unwrap();
+    // Three leaves each: every resample that can be searched holds the same three masses.
+    catalogue(
+        &d.path().join("tiny_a.csv"),
+        &[
+            (1.0, 0.05, "unknown"),
+            (2.0, 0.06, "unknown"),
+            (5.0, 0.07, "unknown"),
+        ],
+    );
+    catalogue(
+        &d.path().join("tiny_b.csv"),
+        &[
+            (1.5, 0.05, "unknown"),
+            (2.5, 0.06, "unknown"),
+            (6.0, 0.07, "unknown"),
+        ],
+    );
+    let o = cli::cairn(
+        &[
+            "compare",
+            "tiny_a.csv",
+            "tiny_b.csv",
+            "-o",
+            "tiny",
+            "--resamples",
+            "50",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stdout.contains("tiny_a: 3 leaves, no tail fit")
+            && o.stdout.contains(
+                "no power-law slope: the population has 3 leaves, fewer than the 10 a slope needs"
+            ),
+        "{}",
+        o.stdout
+    );
+    let t = rows(&d.path().join("tiny/tests.csv"));
+    assert!(cell(&t[0], "alpha_diff_sigma").is_nan() && cell(&t[0], "alpha_diff_err").is_nan());
+
+    catalogue(&d.path().join("a.csv"), &power_law_leaves(200, 0.5, 2.35));
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(150, 0.5, 2.0));
+    // A fixed lower mass with two leaves above it.
+    let o = cli::cairn(
+        &[
+            "compare",
+            "a.csv",
+            "b.csv",
+            "-o",
+            "high",
+            "--mass-min",
+            "15Msun",
+            "--resamples",
+            "50",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let above = power_law_leaves(200, 0.5, 2.35)
+        .iter()
+        .filter(|l| l.0 >= 15.0)
+        .count();
+    assert!((1..10).contains(&above), "{above}");
+    assert!(
+        o.stdout.contains(&format!(
+            "a: 200 leaves, no tail fit\n  no power-law slope: only {above} leaves lie at or above --mass-min 15 Msun, fewer than the 10 a slope needs"
+        )) && o.stdout.contains("give a smaller --mass-min"),
+        "{}",
+        o.stdout
+    );
+
+    // Two resamples: fewer than a spread needs.
+    let o = cli::cairn(
+        &["compare", "a.csv", "b.csv", "-o", "two", "--resamples", "2"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let svg = std::fs::read_to_string(d.path().join("two/mass_functions.svg")).unwrap();
+    assert!(
+        !svg.contains("NaN") && !o.stdout.contains("NaN"),
+        "{}",
+        o.stdout
+    );
+    let p = rows(&d.path().join("two/populations.csv"));
+    let mut errors = vec![];
+    for row in &p {
+        let (alpha, n_tail) = (cell(row, "alpha"), cell(row, "n_tail"));
+        let analytic = (alpha - 1.0) / n_tail.sqrt();
+        assert!((cell(row, "alpha_err") - analytic).abs() <= 1e-12 * analytic);
+        assert_eq!(row["alpha_err_from"], "analytic");
+        assert!(cell(row, "alpha_err_boot").is_nan());
+        let said = format!("alpha {alpha:.2} +/- {analytic:.2} (analytic)");
+        assert!(o.stdout.contains(&said), "{said}: {}", o.stdout);
+        assert!(
+            svg.contains(&format!("alpha = {alpha:.2} ± {analytic:.2} above")),
+            "{said}"
+        );
+        errors.push((alpha, analytic));
+    }
+    assert!(
+        o.stdout.contains("2 of 2 bootstrap resamples gave a tail, fewer than the 20 a spread needs (give more --resamples), so the uncertainty of alpha is the analytic"),
+        "{}",
+        o.stdout
+    );
+    let t = rows(&d.path().join("two/tests.csv"));
+    let combined = errors[0].1.hypot(errors[1].1);
+    assert!((cell(&t[0], "alpha_diff_err") - combined).abs() <= 1e-12 * combined);
+
+    // Resamples that differ but give one alpha: 15 leaves of 3 Msun above a fixed 1 Msun give
+    // alpha = 1 + n / (n ln 3) = 1 + 1/ln 3 whatever n (CSN eq. 3.1), so the bootstrap has no
+    // spread beyond rounding.
+    let mut steps = vec![(0.5, 0.04, "unknown"); 5];
+    steps.extend(vec![(3.0, 0.08, "unknown"); 15]);
+    catalogue(&d.path().join("steps.csv"), &steps);
+    let o = cli::cairn(
+        &[
+            "compare",
+            "steps.csv",
+            "a.csv",
+            "-o",
+            "steps",
+            "--mass-min",
+            "1Msun",
+            "--resamples",
+            "50",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stdout.contains("every bootstrap resample gave the same alpha (the resamples differ only in order), so the bootstrap cannot measure its spread and the uncertainty of alpha is the analytic"),
+        "{}",
+        o.stdout
+    );
+    let p = rows(&d.path().join("steps/populations.csv"));
+    let alpha = 1.0 + 1.0 / 3f64.ln();
+    assert!((cell(&p[0], "alpha") - alpha).abs() <= 1e-12 * alpha);
+    assert_eq!(p[0]["alpha_err_from"], "analytic");
+    let analytic = (alpha - 1.0) / 15f64.sqrt();
+    assert!((cell(&p[0], "alpha_err") - analytic).abs() <= 1e-12 * analytic);
+    assert!(!o.stdout.contains("+/- 0.00"), "{}", o.stdout);
+    let t = rows(&d.path().join("steps/tests.csv"));
+    let (diff, err) = (cell(&t[0], "alpha_diff"), cell(&t[0], "alpha_diff_err"));
+    assert!(err >= analytic, "{err}");
+    assert!((cell(&t[0], "alpha_diff_sigma") - diff.abs() / err).abs() <= 1e-12 * diff.abs() / err);
+}
+
+/// The advice when no tail is found fits the case: a fixed lower mass above every leaf asks
+/// for a smaller --mass-min (not a larger --alpha-max, which a fixed lower mass does not use),
+/// and equal masses ask for the mass column to be checked (above: the equal-masses test).
+#[test]
+fn the_advice_for_a_missing_tail_fits_the_case() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("a.csv"), &power_law_leaves(200, 0.5, 2.35));
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(150, 0.5, 2.0));
+    let heaviest = power_law_leaves(200, 0.5, 2.35)
+        .iter()
+        .fold(0.0f64, |m, l| m.max(l.0));
+    let o = cli::cairn(
+        &[
+            "compare",
+            "a.csv",
+            "b.csv",
+            "-o",
+            "c",
+            "--mass-min",
+            "1000Msun",
+            "--resamples",
+            "20",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stdout.contains(&format!(
+            "no power-law tail: no leaf lies above --mass-min 1000 Msun (the heaviest has {heaviest:.3} Msun); give a smaller --mass-min"
+        )),
+        "{}",
+        o.stdout
+    );
+    assert!(!o.stdout.contains("--alpha-max"), "{}", o.stdout);
+}
+
+/// The column compared is said in the report and in every table's header, and is the one
+/// whose medians the table gives (the hand-made `mass` is twice `mass_excess`).
+#[test]
+fn the_mass_column_compared_is_said_and_used() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("a.csv"), &power_law_leaves(60, 0.5, 2.35));
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(50, 0.5, 2.0));
+    for (out, column) in [("excess", "mass_excess"), ("whole", "mass")] {
+        let mut args = vec!["compare", "a.csv", "b.csv", "-o", out, "--resamples", "20"];
+        if column == "mass" {
+            args.extend_from_slice(&["--mass-column", "mass"]);
+        }
+        let o = cli::cairn(&args, d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let report = std::fs::read_to_string(d.path().join(out).join("report.md")).unwrap();
+        assert!(
+            report.contains(&format!(
+                "their masses are the catalogues' `{column}` column"
+            )),
+            "{report}"
+        );
+        for table in [
+            "populations.csv",
+            "mass_functions.csv",
+            "tests.csv",
+            "cumulative.csv",
+        ] {
+            let text = std::fs::read_to_string(d.path().join(out).join(table)).unwrap();
+            assert!(
+                text.lines()
+                    .any(|l| l.starts_with(&format!("# parameter mass_column = {column}  ("))),
+                "{table}: {text}"
+            );
+        }
+        // The median of 60 masses at the quantiles (k + 1/2)/60: the mean of the 30th and 31st
+        // (numpy's linear percentile at 50), of the column compared.
+        let masses = power_law_leaves(60, 0.5, 2.35);
+        let factor = if column == "mass" { 2.0 } else { 1.0 };
+        let median = factor * 0.5 * (masses[29].0 + masses[30].0);
+        let p = rows(&d.path().join(out).join("populations.csv"));
+        assert!((cell(&p[0], "median_mass") - median).abs() <= 1e-12 * median);
+    }
+}
+
+/// The state counts add up to the leaves compared: of 20 leaves, 8 without a mass are left out
+/// (n_dropped), and the states of the other 12 alone are counted, a leaf without a state as
+/// unknown.
+#[test]
+fn state_counts_add_up_to_the_leaves_compared() {
+    let d = tempfile::tempdir().unwrap();
+    let mut leaves = vec![];
+    let states = ["bound", "marginal", "unbound", "unknown", ""];
+    for k in 0..20 {
+        let m = if k % 5 == 1 || k % 5 == 3 {
+            f64::NAN
+        } else {
+            1.0 + k as f64
+        };
+        leaves.push((m, 0.05 + 0.001 * k as f64, states[k % 5]));
+    }
+    catalogue(&d.path().join("a.csv"), &leaves);
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(50, 0.5, 2.0));
+    let o = cli::cairn(
+        &["compare", "a.csv", "b.csv", "-o", "c", "--resamples", "20"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let p = rows(&d.path().join("c/populations.csv"));
+    let kept: Vec<&str> = leaves
+        .iter()
+        .filter(|l| !l.0.is_nan())
+        .map(|l| if l.2.is_empty() { "unknown" } else { l.2 })
+        .collect();
+    assert_eq!((cell(&p[0], "n"), cell(&p[0], "n_dropped")), (12.0, 8.0));
+    let mut total = 0.0;
+    for st in ["bound", "marginal", "unbound", "unknown"] {
+        let want = kept.iter().filter(|s| **s == st).count() as f64;
+        assert_eq!(cell(&p[0], &format!("n_{st}")), want, "{st}");
+        total += want;
+    }
+    assert_eq!(total, 12.0);
+    let report = std::fs::read_to_string(d.path().join("c/report.md")).unwrap();
+    assert!(
+        report.contains("| a | `a.csv` | 12 | 4 | 0 | 4 | 4 | 8 |"),
+        "{report}"
+    );
+}
+
+/// Every CSV table compare writes is read by a CSV reader told that `#` starts a comment (as
+/// astropy 8.0.2's `Table.read(f, format='ascii.csv', comment='#')`, which the README gives,
+/// read these tables when checked by hand): the `#` lines come first, then one header row
+/// whose names the `# column` lines give in order, then rows of as many fields, each number
+/// readable or empty.
+#[test]
+fn the_tables_are_comment_lines_then_a_plain_csv() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("a.csv"), &power_law_leaves(80, 0.5, 2.35));
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(60, 0.5, 2.0));
+    let o = cli::cairn(
+        &["compare", "a.csv", "b.csv", "-o", "c", "--resamples", "20"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for table in [
+        "populations.csv",
+        "mass_functions.csv",
+        "tests.csv",
+        "cumulative.csv",
+    ] {
+        let text = std::fs::read_to_string(d.path().join("c").join(table)).unwrap();
+        let comments = text.lines().take_while(|l| l.starts_with('#')).count();
+        let rest: Vec<&str> = text.lines().skip(comments).collect();
+        assert!(rest.iter().all(|l| !l.starts_with('#')), "{table}");
+        let header: Vec<&str> = rest[0].split(',').collect();
+        let described: Vec<&str> = text
+            .lines()
+            .filter_map(|l| l.strip_prefix("# column "))
+            .map(|l| l.split([' ', ':']).next().unwrap())
+            .collect();
+        assert_eq!(header, described, "{table}");
+        assert!(rest.len() > 1, "{table}");
+        for row in &rest[1..] {
+            let fields: Vec<&str> = row.split(',').collect();
+            assert_eq!(fields.len(), header.len(), "{table}: {row}");
+        }
+    }
+}
+
+/// Masses below zero (a map whose zero lies below no emission) are refused in one sentence
+/// that names the file, says the masses are below zero and gives the remedy (mass_excess, for
+/// the whole footprint's mass); exit 2, nothing written.
+#[test]
+fn negative_masses_are_refused_with_the_reason_and_the_remedy() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(
+        &d.path().join("neg.csv"),
+        &[
+            (-1.0, 0.05, "unknown"),
+            (-2.0, 0.06, "unknown"),
+            (-3.0, 0.07, "unknown"),
+        ],
+    );
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(50, 0.5, 2.0));
+    let args = ["compare", "neg.csv", "b.csv", "-o", "c"];
+    let o = cli::cairn(&args, d.path());
+    cli::check_refused(
+        &o,
+        &args,
+        "neg.csv",
+        "none with a positive mass_excess and radius (3 with a mass_excess of zero or below)",
+    );
+    assert!(
+        o.stderr.contains("below zero") && o.stderr.contains("a map whose zero is no emission"),
+        "{}",
+        o.stderr
+    );
+    let args = [
+        "compare",
+        "neg.csv",
+        "b.csv",
+        "-o",
+        "c",
+        "--mass-column",
+        "mass",
+    ];
+    let o = cli::cairn(&args, d.path());
+    cli::check_refused(&o, &args, "neg.csv", "compare mass_excess (the default)");
+    assert!(!d.path().join("c").exists());
+}
+
+/// Populations that are not independent samples are warned about: the same catalogue under
+/// two labels (D = 0 and p = 1 between them, scipy's ks_2samp of a sample with itself), and a
+/// copy of it (the same leaves).
+#[test]
+fn the_same_leaves_twice_are_warned_about() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("a.csv"), &power_law_leaves(60, 0.5, 2.35));
+    std::fs::copy(d.path().join("a.csv"), d.path().join("copy.csv")).unwrap();
+    let args = [
+        "compare",
+        "a.csv",
+        "a.csv",
+        "--label",
+        "A",
+        "--label",
+        "B",
+        "-o",
+        "c",
+        "--resamples",
+        "20",
+    ];
+    let o = cli::cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr.contains(
+            "warning: A and B are the same catalogue (a.csv), so they are not independent samples"
+        ),
+        "{}",
+        o.stderr
+    );
+    let t = rows(&d.path().join("c/tests.csv"));
+    assert_eq!(
+        (cell(&t[0], "ks_mass_d"), cell(&t[0], "ks_mass_p")),
+        (0.0, 1.0)
+    );
+    let o = cli::cairn(
+        &[
+            "compare",
+            "a.csv",
+            "copy.csv",
+            "-o",
+            "d",
+            "--resamples",
+            "20",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .contains("warning: a and copy hold the same leaves (the same masses and radii)"),
+        "{}",
+        o.stderr
+    );
+    let report = std::fs::read_to_string(d.path().join("d/report.md")).unwrap();
+    assert!(report.contains("are not independent samples"), "{report}");
 }
