@@ -26,7 +26,12 @@
 //!   closed-form alpha is at most 1.5, powerlaw replaces it by a numerical likelihood
 //!   maximisation inside [0, 3]; cairn always uses the closed form (the exact maximum for a
 //!   continuous law without an upper cut-off). The two agree whenever the chosen candidate has
-//!   alpha above 1.5, which the reference fixtures check.
+//!   alpha above 1.5, which the reference fixtures check. Candidates whose closed-form alpha
+//!   is at or above the window's upper end are inadmissible in both (powerlaw's numerical fit
+//!   stops at its bound and flags them); when no candidate is admissible, powerlaw 2.0.0 warns
+//!   ("No valid values for xmin found") and still returns the candidate of smallest distance
+//!   with its alpha held at the bound, whereas cairn returns no fit
+//!   ([`NoTail::NoAdmissibleAlpha`]).
 //! - Goodness of fit (CSN section 4.1): [`goodness_of_fit`], the semi-parametric bootstrap
 //!   p-value of the KS distance.
 //! - Bootstrap (CSN section 3.4): the whole sample is resampled with replacement and refitted
