@@ -1381,11 +1381,12 @@ fn f(x: f64) -> String {
 const MASS_CAUTION: &str = "caution: the masses carry factor-of-two systematics from dust opacity, temperature and distance, shared by runs made with the same assumptions (see the report's Fairness section)";
 
 /// The catalogue column compared, as a parameter of the tables' headers.
-fn mass_column_meta(column: &str) -> (String, String, String) {
-    (
-        "mass_column".into(),
-        column.into(),
-        mass_column_meaning(column).into(),
+fn mass_column_meta(column: &str) -> crate::table::Param {
+    crate::table::Param::new(
+        "mass_column",
+        crate::table::ParamValue::Text(column.into()),
+        "",
+        mass_column_meaning(column),
     )
 }
 
