@@ -1969,7 +1969,22 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             "structures"
         ),
         count(summary.trees, "tree", "trees"),
-        count(summary.leaves, "leaf", "leaves"),
+        {
+            // A top-level leaf is a tree of its own, counted among the leaves, not the roots
+            // (as in the catalogue's kind column); say how many, so that the trees add up.
+            let alone = summary.trees.saturating_sub(summary.roots);
+            match alone {
+                0 => count(summary.leaves, "leaf", "leaves"),
+                a if a == summary.leaves => {
+                    let all = if a == 1 { "top-level" } else { "all top-level" };
+                    format!("{} ({all})", count(summary.leaves, "leaf", "leaves"))
+                }
+                a => format!(
+                    "{} ({a} of them top-level)",
+                    count(summary.leaves, "leaf", "leaves")
+                ),
+            }
+        },
         count(summary.branches, "branch", "branches"),
         count(summary.roots, "root", "roots"),
         summary.seconds

@@ -20,6 +20,31 @@ fn cairn(args: &[&str], dir: &Path) -> (i32, String, String) {
     )
 }
 
+/// The summary's first line, "N structures in T trees: L leaves (A of them top-level), B
+/// branches, R roots; S s": the counts add up (a top-level leaf is a tree of its own, counted
+/// among the leaves, as in the catalogue's kind column) and equal the run record's.
+fn summary_adds_up(line: &str, result: &serde_json::Value) {
+    let numbers: Vec<u64> = line
+        .split(|c: char| !c.is_ascii_digit() && c != '.')
+        .filter_map(|w| w.parse().ok())
+        .collect();
+    let (n, t, l) = (numbers[0], numbers[1], numbers[2]);
+    let (a, b, r) = if line.contains("of them top-level") {
+        (numbers[3], numbers[4], numbers[5])
+    } else if line.contains("top-level)") {
+        (l, numbers[3], numbers[4])
+    } else {
+        (0, numbers[3], numbers[4])
+    };
+    assert_eq!(n, l + b + r, "{line}");
+    assert_eq!(t, a + r, "{line}");
+    assert_eq!(n, result["structures"].as_u64().unwrap(), "{line}");
+    assert_eq!(t, result["trees"].as_u64().unwrap(), "{line}");
+    assert_eq!(l, result["leaves"].as_u64().unwrap(), "{line}");
+    assert_eq!(b, result["branches"].as_u64().unwrap(), "{line}");
+    assert_eq!(r, result["roots"].as_u64().unwrap(), "{line}");
+}
+
 fn fixture_map() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures/segment/map.fits")
 }
@@ -96,6 +121,7 @@ fn writes_every_output_and_refuses_to_overwrite_without_force() {
     assert_eq!(run["input"]["sha256"].as_str().unwrap().len(), 64);
     assert_eq!(run["parameters"]["floor"]["unit"], "cm-2");
     assert!(run["threads"].as_u64().unwrap() >= 1);
+    summary_adds_up(stdout.lines().next().unwrap(), &run["result"]);
     let before = std::fs::read(d.path().join("run/structures.csv")).unwrap();
     let (code, _, stderr) = cairn(&["segment", m, "-o", "run", "--floor", "4e21"], d.path());
     assert_eq!(code, 2);
@@ -126,6 +152,24 @@ fn writes_every_output_and_refuses_to_overwrite_without_force() {
         !csv.contains(",branch,") && !csv.contains(",root,"),
         "leaves only"
     );
+    // Floors where some leaves, and then every leaf, stand alone as trees of their own.
+    for (floor, every_leaf_alone) in [("4e21", false), ("1.2e22", true)] {
+        let args = [
+            "segment", m, "-o", "run", "--floor", floor, "--noise", "1e20",
+        ];
+        let (code, stdout, stderr) = cairn(&[&args[..], &["--force"]].concat(), d.path());
+        assert_eq!(code, 0, "{stderr}");
+        let first = stdout.lines().next().unwrap();
+        assert_eq!(
+            first.contains("(all top-level)"),
+            every_leaf_alone,
+            "{first}"
+        );
+        let run: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(d.path().join("run/run.json")).unwrap())
+                .unwrap();
+        summary_adds_up(first, &run["result"]);
+    }
 }
 
 #[test]
