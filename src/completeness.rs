@@ -563,9 +563,16 @@ fn emission_differences(
     let mut what: Vec<String> = Vec::new();
     // Temperatures: one value, or a map (by its SHA-256).
     let t_run_text = run.physics.get("temperature").and_then(|v| v.as_str());
-    let t_run = t_run_text
-        .and_then(|t| t.strip_suffix(" K"))
-        .and_then(|v| v.trim().parse::<f64>().ok());
+    // The number (temperature_k), or the text ("14 K") in run records of earlier versions.
+    let t_run = run
+        .physics
+        .get("temperature_k")
+        .and_then(|v| v.as_f64())
+        .or_else(|| {
+            t_run_text
+                .and_then(|t| t.strip_suffix(" K"))
+                .and_then(|v| v.trim().parse::<f64>().ok())
+        });
     let t_inj = emission("/temperature_k");
     let sha =
         |v: &serde_json::Value, p: &str| v.pointer(p).and_then(|x| x.as_str()).map(str::to_string);
