@@ -945,25 +945,31 @@ fn same_leaves(pops: &[Population]) -> Vec<String> {
     };
     for (i, a) in pops.iter().enumerate() {
         for b in &pops[i + 1..] {
-            let why = if file(a).is_some() && file(a) == file(b) {
+            let same = |why: String| {
                 format!(
+                    "{} and {} {why}, so they are not independent samples and the tests and differences between them do not compare two clouds (one catalogue twice gives D = 0 and p = 1); give runs of different maps to compare clouds",
+                    a.label, b.label
+                )
+            };
+            if file(a).is_some() && file(a) == file(b) {
+                w.push(same(format!(
                     "are the same catalogue ({})",
                     run_files(&a.source).0.display()
-                )
+                )));
             } else if a.masses == b.masses && a.radii == b.radii {
-                "hold the same leaves (the same masses and radii)".to_string()
+                w.push(same(
+                    "hold the same leaves (the same masses and radii)".to_string(),
+                ));
             } else if let Some(h) = sha(a).filter(|h| Some(h) == sha(b).as_ref()) {
-                format!(
-                    "are runs of the same map (input SHA-256 {}... in both run records)",
+                // Two extractions of one map (other thresholds, distance or temperature): a
+                // fair question about the options, not about two clouds.
+                w.push(format!(
+                    "{} and {} are runs of the same map (input SHA-256 {}... in both run records): their differences show what the options of the two runs change, not a difference between clouds, and the tests' p-values do not apply, as the two share their pixels",
+                    a.label,
+                    b.label,
                     &h[..h.len().min(12)]
-                )
-            } else {
-                continue;
-            };
-            w.push(format!(
-                "{} and {} {why}, so they are not independent samples and the tests and differences between them do not compare two clouds (one catalogue twice gives D = 0 and p = 1); give runs of different maps to compare clouds",
-                a.label, b.label
-            ));
+                ));
+            }
         }
     }
     w

@@ -52,9 +52,12 @@ fn compare_reports_statistics_and_fairness() {
             && err.contains("linear resolution (beam x distance) differs by a factor 2.00"),
         "{err}"
     );
-    // Two runs of one map: not independent samples, and said so.
+    // Two runs of one map (here at two distances): what the options change, not two clouds,
+    // and no p-values between samples that share their pixels; said so.
     assert!(
-        err.contains("near and far are runs of the same map (input SHA-256 "),
+        err.contains("near and far are runs of the same map (input SHA-256 ")
+            && err.contains("show what the options of the two runs change")
+            && err.contains("p-values do not apply"),
         "{err}"
     );
     // The warnings give the values of the run records with their units, to four significant
