@@ -217,3 +217,34 @@ fn lower_case_ctypes_give_astropy_positions_and_upper_case_cards() {
         assert_eq!(c.value, Some(Value::Str(want.as_str().unwrap().into())));
     }
 }
+
+#[test]
+fn ctype_pairs_are_celestial_where_astropy_finds_a_pair() {
+    // Source: astropy 8.0.2 astropy.wcs (fixtures/header/ctype_pairs.json): bare coordinate
+    // names beside their partner are a celestial pair (read as linear axes), beside an axis
+    // that is not their partner (a position-velocity map) no pair, so the map loads in pixel
+    // units; a header astropy refuses (a bare name beside a projected axis) is refused.
+    let f = fixture_json("header/ctype_pairs.json");
+    let cases = f["cases"].as_array().unwrap();
+    assert!(cases.len() >= 9);
+    for c in cases {
+        let text: String = c["cards"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| c.as_str().unwrap().to_string())
+            .collect();
+        let got = Wcs::from_header(&Header::parse(&text));
+        let ctype = &c["ctype"];
+        if c["astropy_reads"].as_bool().unwrap() {
+            let celestial = c["has_celestial"].as_bool().unwrap();
+            assert_eq!(
+                got.as_ref().map(|w| w.is_some()).ok(),
+                Some(celestial),
+                "{ctype}"
+            );
+        } else {
+            assert!(got.is_err(), "{ctype}");
+        }
+    }
+}

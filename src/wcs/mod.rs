@@ -231,6 +231,15 @@ impl Wcs {
                 };
                 (lon_axis, p1.clone(), c1.clone())
             }
+            // A bare coordinate name beside an axis that is not its partner (`RA` beside
+            // `VRAD` on a position-velocity map, or `RA` twice): no celestial pair, as
+            // WCSLIB (astropy 8.0.2's WCS) reads it, so the map loads in pixel units.
+            _ if kinds.iter().any(
+                |k| matches!(k, AxisKind::Lon { code, .. } | AxisKind::Lat { code, .. } if code.is_empty()),
+            ) =>
+            {
+                return Ok(None);
+            }
             _ => {
                 let (i, j) = if kinds[0] == AxisKind::NotCelestial {
                     (1, 0)
@@ -1322,6 +1331,17 @@ mod tests {
             );
         }
         assert!(why_not_celestial(&with("FREQ", "STOKES")).is_none());
+        // A bare name beside an axis that is not its partner: no celestial pair, as astropy
+        // 8.0.2's WCS reads these (has_celestial False; tests/header_reference.rs checks
+        // them against it), so the map loads in pixel units.
+        for (c1, c2) in [("RA", "VRAD"), ("LINEAR", "GLAT"), ("RA", "RA")] {
+            assert!(
+                Wcs::from_header(&with(c1, c2)).unwrap().is_none(),
+                "{c1} {c2}"
+            );
+        }
+        // A projected axis beside one that is not celestial is still refused.
+        assert!(Wcs::from_header(&with("RA---TAN", "VRAD")).is_err());
         let e = Wcs::from_header(&with("RA", "DEC--TAN"))
             .unwrap_err()
             .to_string();

@@ -21,6 +21,8 @@ Run as `python tests/oracle/header_astropy.py OUTDIR`; writes OUTDIR/header/.
   here from the comment's brackets, or named in the case), or null where astropy cannot
   convert the unit to a length or the wavelength lies outside 1 um to 10 m (cairn's stated
   range for wavelengths from a header).
+* ctype_pairs.json: pairs of CTYPEs with and without projection codes, and whether astropy
+  finds a celestial pair in them (or refuses the header).
 * ctype_case.json: a TAN header in upper case and the same in lower case; whether
   astropy.wcs.WCS reads each (the lower case is refused), and astropy's pixel -> sky of the
   upper-case one on a few pixels.
@@ -201,7 +203,33 @@ def ctype_case():
     })
 
 
+def ctype_pairs():
+    """Whether astropy.wcs finds a celestial pair in two CTYPEs: bare coordinate names beside
+    their partner (linear axes), beside an axis that is not their partner (no celestial pair:
+    a position-velocity map), and a bare name beside a projected axis (refused)."""
+    cases = []
+    for c1, c2 in [("RA", "DEC"), ("GLON", "GLAT"), ("RA", "VRAD"), ("LINEAR", "GLAT"),
+                   ("RA", "RA"), ("VELO-LSR", "DEC"), ("FREQ", "STOKES"),
+                   ("RA---TAN", "DEC--TAN"), ("RA", "DEC--TAN")]:
+        h = fits.Header()
+        for k, v in [("NAXIS", 2), ("NAXIS1", 60), ("NAXIS2", 40), ("CTYPE1", c1),
+                     ("CTYPE2", c2), ("CRPIX1", 30.5), ("CRPIX2", 20.5), ("CRVAL1", 83.8125),
+                     ("CRVAL2", -5.375), ("CDELT1", -0.002), ("CDELT2", 0.002)]:
+            h[k] = v
+        entry = {"cards": [c.image for c in h.cards], "ctype": [c1, c2]}
+        try:
+            entry.update({"astropy_reads": True, "has_celestial": bool(WCS(h).has_celestial)})
+        except Exception as e:  # astropy refuses it
+            entry.update({"astropy_reads": False, "error": type(e).__name__})
+        cases.append(entry)
+    write_json(os.path.join(OUT, "ctype_pairs.json"), {
+        "source": f"astropy {astropy.__version__} astropy.wcs (WCSLIB): WCS(header).has_celestial",
+        "cases": cases,
+    })
+
+
 if __name__ == "__main__":
     long_strings()
     wavelength_units()
     ctype_case()
+    ctype_pairs()
