@@ -356,15 +356,32 @@ fn resolve_with(
         Some(Level::Sigma(k)) => k * need_sigma("--prominence")?,
         None => 3.0 * need_sigma("the default prominence (3 sigma)")?,
     };
+    let given = |l: Option<Level>, v: f64| match l {
+        Some(Level::Sigma(k)) => format!("{}sigma", crate::units::tidy(k)),
+        Some(l @ Level::Converted { .. }) => l.conversion_note().unwrap_or_default(),
+        _ => crate::units::tidy(v),
+    };
     if prominence.is_nan() || prominence < 0.0 {
-        let given = match o.prominence {
-            Some(Level::Sigma(k)) => format!("{k}sigma"),
-            Some(l @ Level::Converted { .. }) => l.conversion_note().unwrap_or_default(),
-            _ => format!("{prominence}"),
-        };
         return Err(Error::usage(format!(
-            "--prominence must not be negative (it is {given}); give 0 or more, such as 3sigma."
+            "--prominence must not be negative (it is {}); give 0 or more, such as 3sigma.",
+            given(o.prominence, prominence)
         )));
+    }
+    // A level beyond the range of numbers (1e306 cm-2 on a map in m-2) is no level the map
+    // can reach or the catalogues can record.
+    for (i, name, v, l) in [
+        (0, "--floor", floor, o.floor),
+        (1, "--prominence", prominence, o.prominence),
+    ] {
+        if !v.is_finite() {
+            let as_typed = match &o.threshold_texts[i] {
+                Some(t) => t.trim().to_string(),
+                None => given(l, v),
+            };
+            return Err(Error::usage(format!(
+                "{name} {as_typed} is beyond the range of numbers in the map's unit ({v}); give a level the map's values can reach, such as 3sigma."
+            )));
+        }
     }
     // At the map's centre, or where that lies off the sky of its projection, at the pixel on
     // the sky that inspect names (so inspect's suggestion and segment's default agree).
@@ -372,10 +389,7 @@ fn resolve_with(
         (Some(w), Some((x, y))) => Some(w.pixel_solid_angle(x, y)),
         _ => None,
     };
-    let beam_px = match (map.beam, pixel_sr) {
-        (Some(b), Some(p)) => Some(b.solid_angle_sr() / p),
-        _ => None,
-    };
+    let beam_px = crate::inspect::beam_area_px(map);
     let area_px = match o.min_area {
         Some(Area::Pixels(n)) => n,
         Some(Area::Beams(k)) => {
@@ -388,7 +402,8 @@ fn resolve_with(
                 Error::input(&map.path, "has no celestial WCS, so --min-area cannot be given as a sky area; give it in px.")
             })?
         }
-        None => beam_px.unwrap_or(9.0),
+        // One beam, as inspect suggests it, refused in inspect's words when larger than the map.
+        None => crate::inspect::default_min_area_px(map).map_err(Error::usage)? as f64,
     };
     let min_area_px = (area_px - 1e-9).ceil().max(1.0) as usize;
     if min_area_px > map.nx() * map.ny() {
@@ -398,19 +413,11 @@ fn resolve_with(
         } else {
             format!("{area_px:.3e}")
         };
-        return Err(Error::usage(if o.min_area.is_some() {
-            format!(
-                "--min-area of {area} pixels is larger than the whole map {} ({} pixels); give a smaller one.",
-                map.path.display(),
-                map.nx() * map.ny()
-            )
-        } else {
-            format!(
-                "the default --min-area, one beam ({area} pixels), is larger than the whole map {} ({} pixels); check the beam (--beam) or give --min-area in px.",
-                map.path.display(),
-                map.nx() * map.ny()
-            )
-        }));
+        return Err(Error::usage(format!(
+            "--min-area of {area} pixels is larger than the whole map {} ({} pixels); give a smaller one.",
+            map.path.display(),
+            map.nx() * map.ny()
+        )));
     }
     let show = |l: Option<Level>, typed: &Option<String>| match (l, typed) {
         (Some(l @ Level::Converted { given, .. }), Some(t)) => {

@@ -835,9 +835,10 @@ impl Table {
             match &p.value {
                 // Whole numbers as integers (an HDU index, a pixel count).
                 ParamValue::Int(n) => hdu.write_key(&mut f, key, (*n, c.as_str())).map_err(fail)?,
-                // An undefined value (FITS 4.0 section 4.1.2.3).
+                // An undefined value (FITS 4.0 section 4.1.2.3): FITS has no infinite or
+                // NaN numbers in keywords (the CSV and VOTable give the value as text).
                 // SAFETY: an open FitsFile on this table and NUL-terminated strings.
-                ParamValue::Float(x) if x.is_nan() => unsafe {
+                ParamValue::Float(x) if !x.is_finite() => unsafe {
                     fitsio::sys::ffpkyu(f.as_raw(), kc.as_ptr(), cc.as_ptr(), &mut status);
                 },
                 ParamValue::Float(x) => {
@@ -881,6 +882,27 @@ impl Table {
                             &mut status,
                         )
                     };
+                }
+            }
+            if status == 0 && long && !c.is_empty() {
+                // A continued string's comment is on its last CONTINUE card, the header's
+                // last card here: when that card cut it, the whole comment follows on
+                // COMMENT cards.
+                let mut n = 0;
+                let mut card = [0 as std::ffi::c_char; 81];
+                // SAFETY: an open FitsFile and a buffer of FLEN_CARD (81) bytes.
+                unsafe {
+                    fitsio::sys::ffghsp(f.as_raw(), &mut n, std::ptr::null_mut(), &mut status);
+                    fitsio::sys::ffgrec(f.as_raw(), n, card.as_mut_ptr(), &mut status);
+                }
+                // SAFETY: CFITSIO wrote a NUL-terminated card.
+                let card = unsafe { std::ffi::CStr::from_ptr(card.as_ptr()) }.to_string_lossy();
+                if status == 0 && comment_of(&card) != c.trim() {
+                    for line in wrap_words(&format!("{key}: {}", c.trim()), 70) {
+                        let text = cstr(&line);
+                        // SAFETY: an open FitsFile and a NUL-terminated string.
+                        unsafe { fitsio::sys::ffpcom(f.as_raw(), text.as_ptr(), &mut status) };
+                    }
                 }
             }
             if status == 0 && !long && !c.is_empty() {
@@ -1008,6 +1030,12 @@ fn card_comment(f: &mut fitsio::FitsFile, key: &std::ffi::CStr, status: &mut i32
     }
     // SAFETY: CFITSIO wrote a NUL-terminated card.
     let card = unsafe { std::ffi::CStr::from_ptr(card.as_ptr()) }.to_string_lossy();
+    comment_of(&card)
+}
+
+/// The comment of a card (`KEY = value / comment` or `CONTINUE  'text' / comment`): the
+/// text after the first slash outside quotes from column 11 on.
+fn comment_of(card: &str) -> String {
     // The value's own text ends before the first slash outside quotes.
     let mut quoted = false;
     for (i, ch) in card.char_indices().skip(10) {
@@ -1343,6 +1371,68 @@ mod tests {
         assert_eq!(floor, 2.5);
         let kind: Vec<String> = hdu.read_col(&mut f, "kind").unwrap();
         assert_eq!(kind[1], "branch, big");
+    }
+
+    /// A long string's comment cut on its last CONTINUE card follows whole on COMMENT cards;
+    /// an infinite number, which FITS keywords cannot hold, is written as an undefined value
+    /// (FITS 4.0 section 4.1.2.3) while the CSV gives it as text.
+    #[test]
+    fn long_string_comments_stay_whole_and_infinities_are_undefined() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("t.fits");
+        let mut t = sample();
+        let long_name = format!("tmap_{}.fits", "x".repeat(60));
+        let description = "file of the dust (and gas) temperature per pixel, on the map's grid";
+        t.meta.push(
+            Param::new(
+                "temperature_map",
+                ParamValue::Text(long_name.clone()),
+                "",
+                description,
+            )
+            .with_key("TEMPMAP"),
+        );
+        t.meta.push(Param::new(
+            "ceiling",
+            ParamValue::Float(f64::INFINITY),
+            "MJy/sr",
+            "highest level",
+        ));
+        t.write_fits(&p).unwrap();
+        let mut f = fitsio::FitsFile::open(&p).unwrap();
+        f.hdu("STRUCTURES").unwrap();
+        let mut n = 0;
+        let mut status = 0;
+        // SAFETY: an open file; a null pointer for the count of free cards.
+        unsafe { fitsio::sys::ffghsp(f.as_raw(), &mut n, std::ptr::null_mut(), &mut status) };
+        let cards: Vec<String> = (1..=n)
+            .map(|i| {
+                let mut card = [0 as std::ffi::c_char; 81];
+                // SAFETY: an open file and a buffer of FLEN_CARD (81) bytes.
+                unsafe { fitsio::sys::ffgrec(f.as_raw(), i, card.as_mut_ptr(), &mut status) };
+                // SAFETY: CFITSIO wrote a NUL-terminated card.
+                unsafe { std::ffi::CStr::from_ptr(card.as_ptr()) }
+                    .to_string_lossy()
+                    .into_owned()
+            })
+            .collect();
+        assert_eq!(status, 0);
+        let comments: String = cards
+            .iter()
+            .filter_map(|c| c.strip_prefix("COMMENT "))
+            .map(|c| c.trim())
+            .collect::<Vec<_>>()
+            .join(" ");
+        assert!(
+            comments.contains(&format!("TEMPMAP: temperature_map: {description}")),
+            "{comments}"
+        );
+        let ceiling = cards.iter().find(|c| c.starts_with("CEILING")).unwrap();
+        assert!(
+            ceiling.starts_with("CEILING =") && ceiling[10..].trim_start().starts_with('/'),
+            "no value: {ceiling}"
+        );
+        assert!(t.to_csv().contains("# parameter ceiling = inf"));
     }
 
     #[test]

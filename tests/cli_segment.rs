@@ -214,6 +214,18 @@ fn bad_thresholds_and_output_folders_are_refused() {
         &["segment", m, "-o", "a", "--floor", "1e30"],
         "--floor 1.0000e30 lies above the highest value",
     );
+    // Levels beyond the range of double-precision numbers (a stated property: the largest
+    // is about 1.8e308) in the map's unit, which no catalogue could record.
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--floor", "1e300sigma"],
+        "--floor 1e300sigma is beyond the range of numbers in the map's unit (inf)",
+    );
+    refused(
+        d.path(),
+        &["segment", m, "-o", "a", "--prominence", "1e307sigma"],
+        "--prominence 1e307sigma is beyond the range of numbers",
+    );
     // A floor in noise units, and the default one (3 sigma above the background), say which
     // noise they used.
     refused(
