@@ -19,6 +19,9 @@
 //! * The completeness limit: the lower edge of the lowest bin from which every bin above it
 //!   (that holds injected cores) has a recovered fraction of at least 90%; found by walking the
 //!   bins down from the most massive and stopping at the first one below 90%.
+//! * Beside it, an unbinned limit ([`logistic_fit`]): a maximum-likelihood logistic fit of
+//!   recovery (0 or 1 per counted core) against log10 true mass, whose 90% and 50% points do not
+//!   depend on the bin width or on sparse top bins.
 //! * Recovered masses: both `mass` (the whole footprint) and `mass_excess` (above the merge
 //!   level) over the true mass. An injected core sits on the real map's background, which
 //!   `mass` counts too; `mass_excess` removes the level where the leaf meets its surroundings,
@@ -934,6 +937,349 @@ pub fn limit_of(bins: &[Bin], masses: &[f64], level: f64) -> (Option<f64>, bool)
     (Some(least.clamp(bin.lo, bin.hi)), lowest)
 }
 
+/// The fewest counted cores [`logistic_fit`] fits: fewer leave two parameters barely
+/// constrained.
+pub const LOGISTIC_MIN_CORES: usize = 5;
+
+/// Newton steps [`logistic_fit`] takes at most.
+pub const LOGISTIC_MAX_STEPS: usize = 100;
+
+/// An unbinned maximum-likelihood logistic fit of recovery against true mass
+/// ([`logistic_fit`]): P(recovered) = 1 / (1 + exp(-(a + b x))), x = log10(M / Msun).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LogisticFit {
+    /// Intercept a.
+    pub a: f64,
+    /// Slope b \[per dex of mass\]; positive (recovery rising with mass).
+    pub b: f64,
+    /// Standard error of a (inverse Fisher information).
+    pub a_err: f64,
+    /// Standard error of b (inverse Fisher information).
+    pub b_err: f64,
+    /// Covariance of a and b (inverse Fisher information).
+    pub cov_ab: f64,
+    /// log10 of the mass at 50% recovery \[Msun\]: -a / b.
+    pub log10_m50: f64,
+    /// Its standard error \[dex\] (delta method).
+    pub log10_m50_err: f64,
+    /// log10 of the mass at 90% recovery \[Msun\]: (ln 9 - a) / b.
+    pub log10_m90: f64,
+    /// Its standard error \[dex\] (delta method).
+    pub log10_m90_err: f64,
+    /// The least and the greatest true mass fitted \[Msun\].
+    pub mass_range: (f64, f64),
+    /// Cores fitted, and how many of them were recovered.
+    pub n: usize,
+    /// Recovered among the cores fitted.
+    pub recovered: usize,
+    /// Newton steps taken.
+    pub steps: usize,
+}
+
+impl LogisticFit {
+    /// The mass at 50% recovery \[Msun\].
+    pub fn m50(&self) -> f64 {
+        10f64.powf(self.log10_m50)
+    }
+
+    /// The mass at 90% recovery \[Msun\].
+    pub fn m90(&self) -> f64 {
+        10f64.powf(self.log10_m90)
+    }
+
+    /// Whether the 50% mass lies outside the masses fitted (an extrapolation of the curve).
+    pub fn m50_extrapolated(&self) -> bool {
+        outside(self.log10_m50, self.mass_range)
+    }
+
+    /// Whether the 90% mass lies outside the masses fitted (an extrapolation of the curve).
+    pub fn m90_extrapolated(&self) -> bool {
+        outside(self.log10_m90, self.mass_range)
+    }
+
+    /// The fitted probability of recovery of a core of `mass` \[Msun\].
+    pub fn probability(&self, mass: f64) -> f64 {
+        sigmoid(self.a + self.b * mass.log10())
+    }
+}
+
+fn outside(log10_m: f64, (lo, hi): (f64, f64)) -> bool {
+    log10_m < lo.log10() || log10_m > hi.log10()
+}
+
+/// Why [`logistic_fit`] gives no fit.
+#[derive(Debug, Clone, PartialEq)]
+pub enum NoLogisticFit {
+    /// Fewer than [`LOGISTIC_MIN_CORES`] counted cores.
+    TooFew {
+        /// Counted cores.
+        n: usize,
+    },
+    /// Every counted core was recovered.
+    AllRecovered {
+        /// Counted cores.
+        n: usize,
+    },
+    /// No counted core was recovered.
+    NoneRecovered {
+        /// Counted cores.
+        n: usize,
+    },
+    /// Every counted core has the same true mass.
+    OneMass {
+        /// That mass \[Msun\].
+        mass: f64,
+    },
+    /// No missed core is heavier than a recovered one: the likelihood grows without bound
+    /// as the slope does, so no maximum exists; the limit lies between the two masses.
+    Separated {
+        /// The heaviest missed core's true mass \[Msun\].
+        heaviest_missed: f64,
+        /// The lightest recovered core's true mass \[Msun\].
+        lightest_recovered: f64,
+    },
+    /// No recovered core is heavier than a missed one: recovery falls with mass.
+    Falling {
+        /// The heaviest recovered core's true mass \[Msun\].
+        heaviest_recovered: f64,
+        /// The lightest missed core's true mass \[Msun\].
+        lightest_missed: f64,
+    },
+    /// The fitted slope is not positive: recovery does not rise with mass.
+    NotRising {
+        /// The fitted slope.
+        b: f64,
+        /// Its standard error.
+        b_err: f64,
+    },
+    /// Newton's method did not converge in [`LOGISTIC_MAX_STEPS`] steps.
+    NoConvergence,
+}
+
+impl std::fmt::Display for NoLogisticFit {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            NoLogisticFit::TooFew { n } => write!(
+                f,
+                "only {n} counted {}, too few for a fit (it needs {LOGISTIC_MIN_CORES}); inject more cores",
+                if *n == 1 { "core" } else { "cores" }
+            ),
+            NoLogisticFit::AllRecovered { n } => write!(
+                f,
+                "all {n} counted cores were recovered, so recovery does not fall off within the injected masses; inject lighter cores"
+            ),
+            NoLogisticFit::NoneRecovered { n } => write!(
+                f,
+                "none of the {n} counted cores was recovered; inject heavier cores"
+            ),
+            NoLogisticFit::OneMass { mass } => write!(
+                f,
+                "every counted core has the same true mass ({mass:.3} Msun), so recovery cannot be fitted against mass"
+            ),
+            NoLogisticFit::Separated {
+                heaviest_missed,
+                lightest_recovered,
+            } if heaviest_missed == lightest_recovered => write!(
+                f,
+                "the recovered and missed cores are separated in mass: the limit lies at {heaviest_missed:.3} Msun, the mass of both the heaviest missed and the lightest recovered core, and the likelihood has no maximum (its slope grows without bound); inject more cores around this mass"
+            ),
+            NoLogisticFit::Separated {
+                heaviest_missed,
+                lightest_recovered,
+            } => write!(
+                f,
+                "the recovered and missed cores are separated in mass: the limit lies between {heaviest_missed:.3} and {lightest_recovered:.3} Msun (the heaviest missed and the lightest recovered core), and the likelihood has no maximum (its slope grows without bound); inject more cores between these masses"
+            ),
+            NoLogisticFit::Falling {
+                heaviest_recovered,
+                lightest_missed,
+            } => write!(
+                f,
+                "recovery does not rise with mass: every recovered core ({heaviest_recovered:.3} Msun at most) is lighter than every missed one ({lightest_missed:.3} Msun at least)"
+            ),
+            NoLogisticFit::NotRising { b, b_err } => write!(
+                f,
+                "recovery does not rise with mass: the fitted slope b = {b:.3} +- {b_err:.3} is not positive"
+            ),
+            NoLogisticFit::NoConvergence => write!(
+                f,
+                "the fit did not converge in {LOGISTIC_MAX_STEPS} Newton steps"
+            ),
+        }
+    }
+}
+
+/// 1 / (1 + exp(-z)), without overflow.
+fn sigmoid(z: f64) -> f64 {
+    if z >= 0.0 {
+        1.0 / (1.0 + (-z).exp())
+    } else {
+        let e = z.exp();
+        e / (1.0 + e)
+    }
+}
+
+/// ln(1 + exp(t)), without overflow.
+fn softplus(t: f64) -> f64 {
+    t.max(0.0) + (-t.abs()).exp().ln_1p()
+}
+
+/// The log-likelihood of (a, b), the score (its gradient) and the Fisher information
+/// (minus its Hessian, which for the logistic model does not depend on the outcomes).
+fn logistic_terms(x: &[f64], y: &[bool], a: f64, b: f64) -> (f64, [f64; 2], [f64; 3]) {
+    let mut ll = 0.0;
+    let (mut ga, mut gb) = (0.0, 0.0);
+    let (mut iaa, mut iab, mut ibb) = (0.0, 0.0, 0.0);
+    for (&xi, &yi) in x.iter().zip(y) {
+        let z = a + b * xi;
+        let p = sigmoid(z);
+        let r = f64::from(u8::from(yi)) - p;
+        ll -= if yi { softplus(-z) } else { softplus(z) };
+        ga += r;
+        gb += r * xi;
+        let w = p * (1.0 - p);
+        iaa += w;
+        iab += w * xi;
+        ibb += w * xi * xi;
+    }
+    (ll, [ga, gb], [iaa, iab, ibb])
+}
+
+/// The unbinned completeness: a maximum-likelihood fit of the logistic model
+/// P(recovered) = 1 / (1 + exp(-(a + b x))), x = log10(M / Msun), to each core's outcome
+/// (`recovered`, 0 or 1) against its true mass `masses` \[Msun\], without bins.
+///
+/// Fitted by Newton's method (iteratively reweighted least squares) in f64 from a = the
+/// log-odds of the recovered fraction, b = 0, until both steps are below 1e-12 relative (of
+/// 1 + |a| and 1 + |b|) or [`LOGISTIC_MAX_STEPS`] steps, halving a step that lowers the
+/// likelihood. The variances of a and b and their covariance are the inverse of the
+/// Fisher information at the maximum (the standard errors are their variances' square
+/// roots). The masses at recovery p, log10 M_p = (ln(p / (1 - p)) - a) / b, have 1-sigma
+/// errors by the delta method from that covariance:
+/// var(log10 M_p) = (var(a) + 2 log10 M_p cov(a, b) + (log10 M_p)^2 var(b)) / b^2.
+///
+/// The model assumes that recovery rises monotonically with mass along a logistic curve in
+/// log mass (a common choice, not a law). No fit, with the reason, when there are fewer than
+/// [`LOGISTIC_MIN_CORES`] cores, all or none were recovered, all have one mass, the recovered
+/// and missed cores are separated in mass (no missed core heavier than a recovered one, or the
+/// reverse, with ties: the maximum does not exist), the slope is not positive, or the steps
+/// do not converge.
+pub fn logistic_fit(
+    masses: &[f64],
+    recovered: &[bool],
+) -> std::result::Result<LogisticFit, NoLogisticFit> {
+    let n = masses.len();
+    let k = recovered.iter().filter(|&&r| r).count();
+    if n < LOGISTIC_MIN_CORES {
+        return Err(NoLogisticFit::TooFew { n });
+    }
+    if k == n {
+        return Err(NoLogisticFit::AllRecovered { n });
+    }
+    if k == 0 {
+        return Err(NoLogisticFit::NoneRecovered { n });
+    }
+    let extreme = |want: bool, max: bool| {
+        masses
+            .iter()
+            .zip(recovered)
+            .filter(|(_, r)| **r == want)
+            .map(|(&m, _)| m)
+            .fold(
+                if max {
+                    f64::NEG_INFINITY
+                } else {
+                    f64::INFINITY
+                },
+                |a, m| {
+                    if max { a.max(m) } else { a.min(m) }
+                },
+            )
+    };
+    let lo = masses.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = masses.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if lo == hi {
+        return Err(NoLogisticFit::OneMass { mass: lo });
+    }
+    let (heaviest_missed, lightest_recovered) = (extreme(false, true), extreme(true, false));
+    if heaviest_missed <= lightest_recovered {
+        return Err(NoLogisticFit::Separated {
+            heaviest_missed,
+            lightest_recovered,
+        });
+    }
+    let (heaviest_recovered, lightest_missed) = (extreme(true, true), extreme(false, false));
+    if heaviest_recovered <= lightest_missed {
+        return Err(NoLogisticFit::Falling {
+            heaviest_recovered,
+            lightest_missed,
+        });
+    }
+    let x: Vec<f64> = masses.iter().map(|m| m.log10()).collect();
+    let mut a = (k as f64 / (n - k) as f64).ln();
+    let mut b = 0.0;
+    let (mut ll, mut g, mut info) = logistic_terms(&x, recovered, a, b);
+    let mut steps = 0;
+    let mut converged = false;
+    while steps < LOGISTIC_MAX_STEPS {
+        steps += 1;
+        let det = info[0] * info[2] - info[1] * info[1];
+        if det.is_nan() || det <= 0.0 {
+            break;
+        }
+        let mut da = (info[2] * g[0] - info[1] * g[1]) / det;
+        let mut db = (info[0] * g[1] - info[1] * g[0]) / det;
+        let mut next = logistic_terms(&x, recovered, a + da, b + db);
+        let mut halvings = 0;
+        while (next.0.is_nan() || next.0 < ll - 1e-9 * (1.0 + ll.abs())) && halvings < 50 {
+            da *= 0.5;
+            db *= 0.5;
+            halvings += 1;
+            next = logistic_terms(&x, recovered, a + da, b + db);
+        }
+        a += da;
+        b += db;
+        (ll, g, info) = next;
+        if da.abs() <= 1e-12 * (1.0 + a.abs()) && db.abs() <= 1e-12 * (1.0 + b.abs()) {
+            converged = true;
+            break;
+        }
+    }
+    let det = info[0] * info[2] - info[1] * info[1];
+    if !converged || det.is_nan() || det <= 0.0 || !a.is_finite() || !b.is_finite() {
+        return Err(NoLogisticFit::NoConvergence);
+    }
+    let (var_a, var_b, cov_ab) = (info[2] / det, info[0] / det, -info[1] / det);
+    if b <= 0.0 {
+        return Err(NoLogisticFit::NotRising {
+            b,
+            b_err: var_b.sqrt(),
+        });
+    }
+    let at = |p: f64| {
+        let xp = ((p / (1.0 - p)).ln() - a) / b;
+        let var = (var_a + 2.0 * xp * cov_ab + xp * xp * var_b) / (b * b);
+        (xp, var.sqrt())
+    };
+    let (log10_m50, log10_m50_err) = at(0.5);
+    let (log10_m90, log10_m90_err) = at(0.9);
+    Ok(LogisticFit {
+        a,
+        b,
+        a_err: var_a.sqrt(),
+        b_err: var_b.sqrt(),
+        cov_ab,
+        log10_m50,
+        log10_m50_err,
+        log10_m90,
+        log10_m90_err,
+        mass_range: (lo, hi),
+        n,
+        recovered: k,
+        steps,
+    })
+}
+
 /// The median of finite values (mean of the middle two for an even count); NaN if none.
 pub fn median(values: &[f64]) -> f64 {
     let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
@@ -965,6 +1311,9 @@ pub struct Scoring {
     /// How many of the counted cores have a true mass at or above the limit (0 without one):
     /// a limit resting on a few cores in sparse top bins is uncertain.
     pub n_above_limit: usize,
+    /// The unbinned logistic fit of recovery against true mass over the same counted cores
+    /// as the bins ([`logistic_fit`]), or why there is none.
+    pub logistic: std::result::Result<LogisticFit, NoLogisticFit>,
     /// Median recovered `mass` / true mass of matched cores.
     pub median_mass_ratio: f64,
     /// Median recovered `mass_excess` / true mass of matched cores.
@@ -1043,6 +1392,7 @@ pub fn score_with_baseline(
         limit_90: None,
         limit_at_lowest: false,
         n_above_limit: 0,
+        logistic: Err(NoLogisticFit::TooFew { n: 0 }),
         median_mass_ratio: f64::NAN,
         median_excess_ratio: f64::NAN,
         radius_arcsec: radius,
@@ -1080,6 +1430,7 @@ pub fn pool(parts: &[Part], bin_dex: f64) -> Scoring {
     let n_above_limit = limit_90.map_or(0, |l| masses.iter().filter(|&&m| m >= l).count());
     Scoring {
         n_above_limit,
+        logistic: logistic_fit(&masses, &found),
         matches: parts
             .iter()
             .flat_map(|p| p.2.matches.iter().copied())
@@ -1215,8 +1566,8 @@ pub fn run_differences(runs: &[&Run]) -> Vec<String> {
 }
 
 /// The completeness plot: the recovered fraction in each occupied bin of true mass (at the
-/// bin's geometric centre, spanning the bin, with its Wilson interval), a guide at 90%, and the
-/// limit and counts as notes.
+/// bin's geometric centre, spanning the bin, with its Wilson interval), the unbinned logistic
+/// fit's curve when there is one, a guide at 90%, and the limits and counts as notes.
 pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
     use crate::render::plot::{AxisScale, Guide, Plot, Series};
     let occupied: Vec<&Bin> = s.bins.iter().filter(|b| b.injected > 0).collect();
@@ -1226,23 +1577,52 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
     );
     let counted: Vec<usize> = s.counted().collect();
     let found = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
+    let mut series = vec![Series {
+        label: String::new(),
+        style: 0,
+        points: occupied
+            .iter()
+            .map(|b| ((b.lo * b.hi).sqrt(), b.fraction))
+            .collect(),
+        y_errors: Some(occupied.iter().map(|b| (b.ci_lo, b.ci_hi)).collect()),
+        x_errors: Some(occupied.iter().map(|b| (b.lo, b.hi)).collect()),
+        ..Default::default()
+    }];
+    if let Ok(f) = &s.logistic {
+        // The fitted curve across the bins shown, 200 points even in log mass.
+        let (l0, l1) = (lo.log10(), hi.log10());
+        let line = (0..=200)
+            .map(|i| {
+                let m = 10f64.powf(l0 + (l1 - l0) * i as f64 / 200.0);
+                (m, f.probability(m))
+            })
+            .collect();
+        series.push(Series {
+            label: "logistic fit".into(),
+            style: 1,
+            line: Some(line),
+            ..Default::default()
+        });
+    }
+    let logistic_note = match &s.logistic {
+        Ok(f) => format!(
+            "logistic fit: 90% at {:.3} M_{{sun}}{}",
+            f.m90(),
+            if f.m90_extrapolated() {
+                " (extrapolated)"
+            } else {
+                ""
+            }
+        ),
+        Err(_) => "no logistic fit (see report.md)".into(),
+    };
     Plot {
         x_label: "true mass [M_{sun}]".into(),
         y_label: "recovered fraction".into(),
         x_scale: AxisScale::Log10,
         y_scale: AxisScale::Linear,
         y_range: Some((0.0, 1.05)),
-        series: vec![Series {
-            label: String::new(),
-            style: 0,
-            points: occupied
-                .iter()
-                .map(|b| ((b.lo * b.hi).sqrt(), b.fraction))
-                .collect(),
-            y_errors: Some(occupied.iter().map(|b| (b.ci_lo, b.ci_hi)).collect()),
-            x_errors: Some(occupied.iter().map(|b| (b.lo, b.hi)).collect()),
-            ..Default::default()
-        }],
+        series,
         guides: vec![Guide {
             label: "90%".into(),
             points: vec![(lo, 0.9), (hi, 0.9)],
@@ -1263,6 +1643,7 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
                 Some(m) => format!("90% complete above {m:.3} M_{{sun}}"),
                 None => "never 90% complete".into(),
             },
+            logistic_note,
         ],
         ..Default::default()
     }
@@ -1450,6 +1831,7 @@ pub fn completeness_table(s: &Scoring) -> Table {
             s.on_own_leaf.len()
         ));
     }
+    logistic_params(&mut t, s);
     let b = &s.bins;
     t.push_f64(
         "mass_lo",
@@ -1494,6 +1876,85 @@ pub fn completeness_table(s: &Scoring) -> Table {
         b.iter().map(|b| b.ci_hi).collect(),
     );
     t
+}
+
+/// completeness.csv's parameters of the unbinned logistic fit ([`logistic_fit`]): the same
+/// names whether there is a fit or not (numbers empty and `logistic_no_fit` the reason when
+/// there is none).
+fn logistic_params(t: &mut Table, s: &Scoring) {
+    use crate::table::{Param, ParamValue::*};
+    let f = s.logistic.as_ref().ok();
+    let num = |g: fn(&LogisticFit) -> f64| Float(f.map_or(f64::NAN, g));
+    t.notes.push("logistic_*: unbinned maximum-likelihood fit of recovery (0 or 1 per counted core) against x = log10(true mass / Msun), P = 1 / (1 + exp(-(a + b x))); errors 1 sigma from the inverse Fisher information, by the delta method for the masses; it does not depend on the bins".into());
+    t.meta.extend([
+        Param::new("logistic_a", num(|f| f.a), "", "intercept a"),
+        Param::new(
+            "logistic_a_err",
+            num(|f| f.a_err),
+            "",
+            "standard error of a",
+        ),
+        Param::new("logistic_b", num(|f| f.b), "", "slope b per dex of mass"),
+        Param::new(
+            "logistic_b_err",
+            num(|f| f.b_err),
+            "",
+            "standard error of b",
+        ),
+        Param::new(
+            "logistic_cov_ab",
+            num(|f| f.cov_ab),
+            "",
+            "covariance of a and b",
+        ),
+        Param::new(
+            "logistic_m90",
+            num(LogisticFit::m90),
+            "solMass",
+            "mass at 90% recovery",
+        ),
+        Param::new(
+            "logistic_log10_m90_err",
+            num(|f| f.log10_m90_err),
+            "",
+            "standard error of log10 of the 90% mass, in dex",
+        ),
+        Param::new(
+            "logistic_m90_extrapolated",
+            Text(f.map_or(String::new(), |f| f.m90_extrapolated().to_string())),
+            "",
+            "whether the 90% mass lies outside the injected masses",
+        ),
+        Param::new(
+            "logistic_m50",
+            num(LogisticFit::m50),
+            "solMass",
+            "mass at 50% recovery",
+        ),
+        Param::new(
+            "logistic_log10_m50_err",
+            num(|f| f.log10_m50_err),
+            "",
+            "standard error of log10 of the 50% mass, in dex",
+        ),
+        Param::new(
+            "logistic_m50_extrapolated",
+            Text(f.map_or(String::new(), |f| f.m50_extrapolated().to_string())),
+            "",
+            "whether the 50% mass lies outside the injected masses",
+        ),
+        Param::new(
+            "logistic_no_fit",
+            Text(
+                s.logistic
+                    .as_ref()
+                    .err()
+                    .map_or(String::new(), |e| e.to_string()),
+            ),
+            "",
+            "why there is no fit (empty when there is one)",
+        ),
+    ]);
 }
 
 /// The report's completeness section (Markdown).
@@ -1746,12 +2207,60 @@ fn bins_section(r: &mut String, s: &Scoring) {
             );
         }
     }
+    logistic_paragraph(r, s);
     let _ = writeln!(
         r,
         "Median recovered / true mass of the matched cores: {} with `mass_excess`, {} with `mass`. Injected cores sit on the real map's background, which `mass` counts as well; `mass_excess` (above the level where the leaf meets its surroundings) is the fairer comparison, though it also cuts the core's own wings below that level.\n",
         fmt_ratio(s.median_excess_ratio),
         fmt_ratio(s.median_mass_ratio)
     );
+}
+
+/// The report's paragraph on the unbinned logistic fit ([`logistic_fit`]), beside the
+/// binned limit.
+fn logistic_paragraph(r: &mut String, s: &Scoring) {
+    let lead = "**Unbinned 90% completeness (logistic fit)**";
+    match &s.logistic {
+        Ok(f) => {
+            let range = |x: f64, e: f64| {
+                format!(
+                    "log10 M = {x:.3} +- {e:.3}; 1 sigma: {:.3} - {:.3} Msun",
+                    10f64.powf(x - e),
+                    10f64.powf(x + e)
+                )
+            };
+            let _ = writeln!(
+                r,
+                "{lead}: **{:.3} Msun** ({}); 50% at {:.3} Msun ({}). Fitted by maximum likelihood to the {} counted cores one by one ({} recovered), P(recovered) = 1 / (1 + exp(-(a + b log10 M))), a = {:.3} +- {:.3}, b = {:.3} +- {:.3}: it does not depend on the bins. Errors are 1 sigma, from the inverse Fisher information (by the delta method for the masses); the logistic shape is assumed, recovery rising with mass.\n",
+                f.m90(),
+                range(f.log10_m90, f.log10_m90_err),
+                f.m50(),
+                range(f.log10_m50, f.log10_m50_err),
+                f.n,
+                f.recovered,
+                f.a,
+                f.a_err,
+                f.b,
+                f.b_err
+            );
+            let which = match (f.m90_extrapolated(), f.m50_extrapolated()) {
+                (true, true) => Some("The 90% and the 50% masses are extrapolations: they lie"),
+                (true, false) => Some("The 90% mass is an extrapolation: it lies"),
+                (false, true) => Some("The 50% mass is an extrapolation: it lies"),
+                (false, false) => None,
+            };
+            if let Some(which) = which {
+                let _ = writeln!(
+                    r,
+                    "**{which} outside the injected masses** ({:.3} - {:.3} Msun), where the fitted curve is not tested; inject cores reaching past them for a firmer value.\n",
+                    f.mass_range.0, f.mass_range.1
+                );
+            }
+        }
+        Err(why) => {
+            let _ = writeln!(r, "{lead}: no fit, as {why}.\n");
+        }
+    }
 }
 
 /// A match whose leaf's `mass_excess` exceeds this many times the injected mass is named in
@@ -1800,6 +2309,7 @@ mod tests {
             limit_at_lowest: false,
             n_above_limit: 0,
             bins: b.clone(),
+            logistic: logistic_fit(&masses, &found),
             median_mass_ratio: f64::NAN,
             median_excess_ratio: f64::NAN,
             radius_arcsec: 10.0,
@@ -1821,6 +2331,139 @@ mod tests {
         }
         assert!(p.guides[0].points.iter().all(|&(_, y)| y == 0.9));
         assert!(p.notes[0].starts_with("6 of 8 injected cores recovered"));
+        // The logistic fit's curve spans the bins shown and is the fit's own probability.
+        let f = s.logistic.as_ref().unwrap();
+        let curve = p.series[1].line.as_ref().unwrap();
+        assert_eq!(p.series[1].label, "logistic fit");
+        assert!((curve[0].0 - occupied[0].lo).abs() < 1e-12);
+        assert!((curve[curve.len() - 1].0 - occupied[occupied.len() - 1].hi).abs() < 1e-9);
+        assert!(curve.iter().all(|&(m, y)| y == f.probability(m)));
+        assert!((f.probability(f.m90()) - 0.9).abs() < 1e-12);
+        assert!((f.probability(f.m50()) - 0.5).abs() < 1e-12);
+        assert_eq!(
+            p.notes[2],
+            format!("logistic fit: 90% at {:.3} M_{{sun}}", f.m90())
+        );
+    }
+
+    /// The logistic fit is the maximum of the likelihood: its score (the gradient) vanishes
+    /// there, sum(y - p) = 0 and sum((y - p) x) = 0; and it does not depend on the unit of
+    /// mass but through a: masses ten times heavier move both limits up by exactly 1 dex.
+    #[test]
+    fn the_logistic_fit_solves_the_likelihood_equations() {
+        let masses = [0.1, 0.15, 0.2, 0.3, 0.4, 0.5, 0.7, 1.0, 1.5, 2.0, 3.0, 5.0];
+        let found = [
+            false, false, true, false, false, true, false, true, true, true, false, true,
+        ];
+        let f = logistic_fit(&masses, &found).unwrap();
+        let (mut g0, mut g1) = (0.0, 0.0);
+        for (&m, &y) in masses.iter().zip(&found) {
+            let r = f64::from(u8::from(y)) - f.probability(m);
+            g0 += r;
+            g1 += r * m.log10();
+        }
+        assert!(g0.abs() < 1e-12 && g1.abs() < 1e-12, "{g0} {g1}");
+        assert!(f.b > 0.0 && f.steps < 20, "{f:?}");
+        assert_eq!((f.n, f.recovered), (12, 6));
+        let heavier: Vec<f64> = masses.iter().map(|m| 10.0 * m).collect();
+        let g = logistic_fit(&heavier, &found).unwrap();
+        assert!((g.log10_m90 - f.log10_m90 - 1.0).abs() < 1e-9);
+        assert!((g.log10_m50 - f.log10_m50 - 1.0).abs() < 1e-9);
+        assert!((g.b - f.b).abs() < 1e-9 * f.b && (g.b_err - f.b_err).abs() < 1e-9 * f.b_err);
+        assert!((g.log10_m90_err - f.log10_m90_err).abs() < 1e-9);
+    }
+
+    /// Without a maximum-likelihood fit to give, the reason is said instead of numbers.
+    #[test]
+    fn no_logistic_fit_says_why() {
+        let m6 = [0.1, 0.2, 0.3, 1.0, 2.0, 3.0];
+        assert_eq!(
+            logistic_fit(&m6[..4], &[false, true, false, true]),
+            Err(NoLogisticFit::TooFew { n: 4 })
+        );
+        assert_eq!(
+            logistic_fit(&m6, &[true; 6]),
+            Err(NoLogisticFit::AllRecovered { n: 6 })
+        );
+        assert_eq!(
+            logistic_fit(&m6, &[false; 6]),
+            Err(NoLogisticFit::NoneRecovered { n: 6 })
+        );
+        assert_eq!(
+            logistic_fit(&[1.0; 6], &[false, true, false, true, true, true]),
+            Err(NoLogisticFit::OneMass { mass: 1.0 })
+        );
+        let separated = logistic_fit(&m6, &[false, false, false, true, true, true]);
+        assert_eq!(
+            separated,
+            Err(NoLogisticFit::Separated {
+                heaviest_missed: 0.3,
+                lightest_recovered: 1.0
+            })
+        );
+        assert!(
+            separated.unwrap_err().to_string().contains(
+                "separated in mass: the limit lies between 0.300 and 1.000 Msun (the heaviest missed and the lightest recovered core)"
+            )
+        );
+        // Quasi-separation: one mass holds both a missed and a recovered core.
+        let quasi = logistic_fit(
+            &[0.1, 0.2, 1.0, 1.0, 2.0, 3.0],
+            &[false, false, false, true, true, true],
+        );
+        assert_eq!(
+            quasi,
+            Err(NoLogisticFit::Separated {
+                heaviest_missed: 1.0,
+                lightest_recovered: 1.0
+            })
+        );
+        assert!(
+            quasi
+                .unwrap_err()
+                .to_string()
+                .contains("the limit lies at 1.000 Msun")
+        );
+        assert_eq!(
+            logistic_fit(&m6, &[true, true, true, false, false, false]),
+            Err(NoLogisticFit::Falling {
+                heaviest_recovered: 0.3,
+                lightest_missed: 1.0
+            })
+        );
+        // Overlapping, but recovered more often among the lighter cores.
+        match logistic_fit(&m6, &[true, true, false, true, false, false]) {
+            Err(NoLogisticFit::NotRising { b, b_err }) => {
+                assert!(b < 0.0 && b_err > 0.0, "{b} {b_err}");
+                let why = NoLogisticFit::NotRising { b, b_err }.to_string();
+                assert!(why.starts_with("recovery does not rise with mass"), "{why}");
+            }
+            other => panic!("{other:?}"),
+        }
+    }
+
+    /// Pooled pairs are fitted together: the pooled fit is that of all their counted cores.
+    #[test]
+    fn the_pooled_logistic_fit_is_that_of_all_the_sets_cores() {
+        let (m1, f1) = ([0.1, 0.3, 0.5, 1.0, 2.0], [false, true, false, true, true]);
+        let (m2, f2) = ([0.2, 0.4, 0.8, 1.5, 3.0], [false, false, true, false, true]);
+        let (t1, r1, s1) = scored_pair(&m1, &f1);
+        let (t2, r2, s2) = scored_pair(&m2, &f2);
+        let p = pool(&[(&t1, &r1, &s1), (&t2, &r2, &s2)], 0.5);
+        let all: Vec<f64> = m1.iter().chain(&m2).copied().collect();
+        let found: Vec<bool> = f1.iter().chain(&f2).copied().collect();
+        assert_eq!(p.logistic, logistic_fit(&all, &found));
+        assert_eq!(p.logistic.as_ref().unwrap().n, 10);
+        let csv = completeness_table(&p).to_csv();
+        let f = p.logistic.as_ref().unwrap();
+        assert!(
+            csv.contains(&format!(
+                "# parameter logistic_m90 = {}",
+                crate::table::fmt_f64(f.m90())
+            )),
+            "{csv}"
+        );
+        assert!(csv.contains("# parameter logistic_no_fit =  "), "{csv}");
     }
 
     fn bin(lo: f64, injected: usize, recovered: usize) -> Bin {
@@ -1897,6 +2540,7 @@ mod tests {
             limit_at_lowest,
             n_above_limit: limit_90.map_or(0, |l| masses.iter().filter(|&&m| m >= l).count()),
             bins: b,
+            logistic: logistic_fit(masses, found),
             median_mass_ratio: 3.0,
             median_excess_ratio: 2.0,
             radius_arcsec: 18.0,

@@ -1798,7 +1798,7 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
     let counted: Vec<usize> = s.counted().collect();
     let k = counted.iter().filter(|&&i| s.matches[i].is_some()).count();
     outln!(
-        "{}{k} of {} injected cores{} recovered; {}; median mass_excess / true mass {}",
+        "{}{k} of {} injected cores{} recovered; {}; {}; median mass_excess / true mass {}",
         if pooled_sets {
             format!("pooled over {} injections: ", parts.len())
         } else {
@@ -1822,6 +1822,19 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
                 s.n_above_limit
             ),
             None => "never 90% complete".into(),
+        },
+        match &s.logistic {
+            Ok(f) => format!(
+                "unbinned logistic fit: 90% at {:.3} Msun (+-{:.3} dex){}",
+                f.m90(),
+                f.log10_m90_err,
+                if f.m90_extrapolated() {
+                    ", extrapolated beyond the injected masses"
+                } else {
+                    ""
+                }
+            ),
+            Err(_) => "no unbinned logistic fit (see report.md)".into(),
         },
         if s.median_excess_ratio.is_finite() {
             format!("{:.3}", s.median_excess_ratio)

@@ -84,6 +84,51 @@ fn column(head: &[String], name: &str) -> usize {
         .unwrap_or_else(|| panic!("no column {name}"))
 }
 
+/// The unbinned logistic fit, made again from `scored`/matches.csv's outcomes (a run without
+/// a baseline, so every core counts), is the one that its completeness.csv's parameters, its
+/// report and the command's `stdout` give (or their reason for none).
+fn logistic_fit_is_reported(dir: &Path, scored: &str, stdout: &str, report: &str) {
+    let (mh, matches) = csv(&dir.join(scored).join("matches.csv"));
+    let (true_mass, leaf) = (column(&mh, "true_mass"), column(&mh, "leaf"));
+    let masses: Vec<f64> = matches
+        .iter()
+        .map(|m| m[true_mass].parse().unwrap())
+        .collect();
+    let outcomes: Vec<bool> = matches.iter().map(|m| !m[leaf].is_empty()).collect();
+    let fit = cairn::completeness::logistic_fit(&masses, &outcomes);
+    let table = std::fs::read_to_string(dir.join(scored).join("completeness.csv")).unwrap();
+    let param = |k: &str| -> String {
+        let lead = format!("# parameter {k} = ");
+        let line = table.lines().find_map(|l| l.strip_prefix(lead.as_str()));
+        let line = line.unwrap_or_else(|| panic!("no parameter {k}"));
+        line.split("  (").next().unwrap().to_string()
+    };
+    match &fit {
+        Ok(f) => {
+            assert_eq!(param("logistic_m90").parse::<f64>().unwrap(), f.m90());
+            assert_eq!(param("logistic_b").parse::<f64>().unwrap(), f.b);
+            assert_eq!(param("logistic_no_fit"), "");
+            let line = format!(
+                "**Unbinned 90% completeness (logistic fit)**: **{:.3} Msun**",
+                f.m90()
+            );
+            assert!(report.contains(&line), "{line}\n{report}");
+            assert!(
+                report.contains("it does not depend on the bins"),
+                "{report}"
+            );
+            let said = format!("unbinned logistic fit: 90% at {:.3} Msun", f.m90());
+            assert!(stdout.contains(&said), "{said}\n{stdout}");
+        }
+        Err(why) => {
+            assert_eq!(param("logistic_no_fit"), why.to_string());
+            assert_eq!(param("logistic_m90"), "");
+            assert!(report.contains(&why.to_string()), "{report}");
+            assert!(stdout.contains("no unbinned logistic fit"), "{stdout}");
+        }
+    }
+}
+
 #[test]
 fn bright_isolated_injected_cores_are_recovered_and_the_input_is_untouched() {
     let d = tempfile::tempdir().unwrap();
@@ -213,6 +258,7 @@ fn bright_isolated_injected_cores_are_recovered_and_the_input_is_untouched() {
         }
     }
     let report = std::fs::read_to_string(dir.join("score/report.md")).unwrap();
+    logistic_fit_is_reported(dir, "score", &o.stdout, &report);
     // The run used the injection's distance, and the other assumptions do not enter the
     // masses of a column-density map but mu_H2, left at its default on both sides.
     assert!(!report.contains("assumptions differ"), "{report}");
@@ -815,8 +861,19 @@ fn a_demo_maps_truth_scores_a_run_of_it() {
     // The run used the assumptions the demo map was made with: no warning.
     assert!(!o.stderr.contains("warning"), "{}", o.stderr);
     let (_, cores) = csv(&truth);
-    let (_, matches) = csv(&d.path().join("scored/matches.csv"));
+    let (mh, matches) = csv(&d.path().join("scored/matches.csv"));
     assert_eq!(matches.len(), cores.len());
+    // This run misses a core among recovered ones of both lighter and heavier mass, so the
+    // unbinned logistic fit exists; its numbers are the same in every output.
+    let leaf = column(&mh, "leaf");
+    let missed = matches.iter().filter(|m| m[leaf].is_empty()).count();
+    assert!(missed > 0 && missed < matches.len(), "{missed} missed");
+    let report = std::fs::read_to_string(d.path().join("scored/report.md")).unwrap();
+    assert!(
+        report.contains("**Unbinned 90% completeness (logistic fit)**: **"),
+        "{report}"
+    );
+    logistic_fit_is_reported(d.path(), "scored", &o.stdout, &report);
     // The emission demo segmented at another dust temperature than it was made with (its
     // record holds the emission's assumptions under output.dust_emission): named.
     let o = cairn(
@@ -1597,6 +1654,8 @@ fn pooled_injections_add_their_counts_bin_by_bin() {
     // Both runs were made with the same options and the injections' assumptions.
     assert!(!o.stderr.contains("warning"), "{}", o.stderr);
     assert!(o.stdout.contains("of 60 injected cores"), "{}", o.stdout);
+    let report = std::fs::read_to_string(dir.join("pooled/report.md")).unwrap();
+    logistic_fit_is_reported(dir, "pooled", &o.stdout, &report);
     let single = [
         bin_counts(&dir.join("scorea/completeness.csv")),
         bin_counts(&dir.join("scoreb/completeness.csv")),

@@ -1,11 +1,12 @@
 //! Checks the injection of cores (`cairn synth --into`) and the scoring of a run against a
 //! truth table (`cairn compare --truth`) against outside references stored in
 //! `fixtures/inject/`, written by `tests/oracle/inject_astropy.py` (astropy 8.0.2, scipy
-//! 1.17.1, numpy 2.4.6).
+//! 1.17.1, numpy 2.4.6) and `tests/oracle/completeness_logit.py` (statsmodels 0.15.0, numpy
+//! 2.4.6).
 
 mod common;
 
-use cairn::completeness::{match_cores, wilson_interval};
+use cairn::completeness::{NoLogisticFit, logistic_fit, match_cores, wilson_interval};
 use cairn::header::{Header, Value};
 use cairn::map::{self, LoadOptions};
 use cairn::score::{Context, Field};
@@ -35,6 +36,90 @@ fn wilson_intervals_equal_astropy() {
         assert_close(lo, num(&c["lo"]), 1e-12, 1e-15, &what);
         assert_close(hi, num(&c["hi"]), 1e-12, 1e-15, &what);
     }
+}
+
+#[test]
+fn logistic_completeness_fits_equal_statsmodels() {
+    // Source: statsmodels 0.15.0 Logit(y, [1, log10 M]).fit(method='newton', tol=1e-14)
+    // (params, bse, cov_params) with the delta method in numpy 2.4.6 for the 50% and 90%
+    // masses; outcomes drawn with numpy 2.4.6 default_rng; fixtures/inject/completeness_logit.json.
+    let f = fixture_json("inject/completeness_logit.json");
+    let cases = f["cases"].as_array().unwrap();
+    let (mut fitted, mut refused) = (0, 0);
+    for c in cases {
+        let name = c["name"].as_str().unwrap();
+        let masses: Vec<f64> = c["masses"].as_array().unwrap().iter().map(num).collect();
+        let found: Vec<bool> = c["recovered"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|y| y.as_i64().unwrap() == 1)
+            .collect();
+        let ours = logistic_fit(&masses, &found);
+        if c["fit"].is_null() {
+            refused += 1;
+            let why = ours.expect_err(name);
+            match c["reason"].as_str().unwrap() {
+                "separated" => {
+                    assert_eq!(
+                        why,
+                        NoLogisticFit::Separated {
+                            heaviest_missed: num(&c["heaviest_missed"]),
+                            lightest_recovered: num(&c["lightest_recovered"]),
+                        },
+                        "{name}"
+                    );
+                    assert!(why.to_string().contains(&format!(
+                        "separated in mass: the limit lies between {:.3} and {:.3} Msun",
+                        num(&c["heaviest_missed"]),
+                        num(&c["lightest_recovered"])
+                    )));
+                }
+                "all_recovered" => {
+                    assert_eq!(
+                        why,
+                        NoLogisticFit::AllRecovered { n: masses.len() },
+                        "{name}"
+                    )
+                }
+                other => panic!("{name}: unknown reason {other}"),
+            }
+            continue;
+        }
+        fitted += 1;
+        let ours = ours.unwrap_or_else(|e| panic!("{name}: {e}"));
+        let r = &c["fit"];
+        let what = |k: &str| format!("{name}: {k} (statsmodels 0.15.0)");
+        for (k, v) in [
+            ("a", ours.a),
+            ("b", ours.b),
+            ("a_err", ours.a_err),
+            ("b_err", ours.b_err),
+            ("cov_ab", ours.cov_ab),
+            ("log10_m50", ours.log10_m50),
+            ("log10_m50_err", ours.log10_m50_err),
+            ("log10_m90", ours.log10_m90),
+            ("log10_m90_err", ours.log10_m90_err),
+            ("m50", ours.m50()),
+            ("m90", ours.m90()),
+        ] {
+            assert_close(v, num(&r[k]), 1e-9, 0.0, &what(k));
+        }
+        assert_eq!(
+            ours.m50_extrapolated(),
+            r["m50_extrapolated"].as_bool().unwrap(),
+            "{}",
+            what("m50_extrapolated")
+        );
+        assert_eq!(
+            ours.m90_extrapolated(),
+            r["m90_extrapolated"].as_bool().unwrap(),
+            "{}",
+            what("m90_extrapolated")
+        );
+        assert_eq!(ours.n, masses.len());
+    }
+    assert_eq!((fitted, refused), (4, 2));
 }
 
 #[test]
