@@ -723,3 +723,81 @@ fn identical_bytes_on_a_second_render() {
         );
     }
 }
+
+/// A recovered-fraction plot (points along the top of the frame) with a legend and wide notes:
+/// the two are placed together, so that neither covers a marker nor the other (the legend
+/// stacked on the notes in the lower corner rather than on the points above). Read from the
+/// SVG.
+#[test]
+fn legend_and_notes_leave_the_points_clear_together() {
+    let xs: Vec<f64> = (0..8).map(|i| 0.5 * 1.6f64.powi(i)).collect();
+    let pts: Vec<(f64, f64)> = xs
+        .iter()
+        .enumerate()
+        .map(|(i, &x)| (x, if i == 1 { 0.89 } else { 1.0 }))
+        .collect();
+    let curve: Vec<(f64, f64)> = (0..50)
+        .map(|i| {
+            let x = 0.4 * 40f64.powf(i as f64 / 49.0);
+            (x, 1.0 / (1.0 + (-(3.4 + 3.5 * x.log10())).exp()))
+        })
+        .collect();
+    let p = Plot {
+        x_label: "true mass [M_{sun}]".into(),
+        y_label: "recovered fraction".into(),
+        x_scale: AxisScale::Log10,
+        y_range: Some((0.0, 1.05)),
+        series: vec![
+            Series {
+                label: "recovered".into(),
+                style: 0,
+                points: pts,
+                ..Default::default()
+            },
+            Series {
+                label: "logistic fit".into(),
+                style: 1,
+                line: Some(curve),
+                ..Default::default()
+            },
+        ],
+        notes: vec![
+            "29 of 30 injected cores recovered".into(),
+            "90% complete above 1.001 M_{sun}".into(),
+            "logistic fit: 90% at 0.451 M_{sun} (extrapolated)".into(),
+        ],
+        ..Default::default()
+    };
+    let svg = plot_svg(&p, 1200, 300.0).unwrap();
+    save("legend_and_notes.svg", svg.as_bytes());
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let group_bounds = |id: &str| -> svg_layout::Bounds {
+        let g = doc
+            .descendants()
+            .find(|n| n.attribute("id") == Some(id))
+            .unwrap_or_else(|| panic!("group {id}"));
+        g.descendants()
+            .filter_map(|n| n.attribute("d"))
+            .map(svg_layout::bounds)
+            .fold(
+                (
+                    f64::INFINITY,
+                    f64::INFINITY,
+                    f64::NEG_INFINITY,
+                    f64::NEG_INFINITY,
+                ),
+                |b, c| (b.0.min(c.0), b.1.min(c.1), b.2.max(c.2), b.3.max(c.3)),
+            )
+    };
+    let (legend, notes) = (group_bounds("legend"), group_bounds("notes"));
+    assert!(!svg_layout::overlap(legend, notes), "{legend:?} {notes:?}");
+    let m = markers(&svg);
+    assert_eq!(m.len(), 8);
+    for ((x, y), r) in m {
+        let b = (x - r, y - r, x + r, y + r);
+        assert!(
+            !svg_layout::overlap(b, legend) && !svg_layout::overlap(b, notes),
+            "marker at ({x}, {y}) under {legend:?} or {notes:?}"
+        );
+    }
+}

@@ -10,8 +10,9 @@
 //!
 //! Axes carry ticks on all four sides, pointing inwards; labelled ticks sit at round values
 //! (1-2-5 steps on linear axes, decades on logarithmic ones with minor ticks at 2..9). The
-//! legend goes into the inner corner of the frame that covers the fewest drawn data, the notes
-//! into the emptiest corner left. Points, lines and error bars are clipped to the frame.
+//! legend and the notes go into inner corners of the frame (the legend also stacked on the
+//! notes in theirs), chosen together so that between them they cover the fewest drawn data
+//! and never each other. Points, lines and error bars are clipped to the frame.
 //! Values that cannot be shown (not finite, or not positive on a logarithmic axis) are left
 //! out; a line breaks where it meets one.
 //!
@@ -1087,6 +1088,17 @@ fn corner_box(
     (x, y, w, h)
 }
 
+/// The box of least score, the first of equal ones.
+fn least(boxes: Vec<(Rect, f64)>) -> Option<Rect> {
+    boxes
+        .into_iter()
+        .fold(None, |acc: Option<(Rect, f64)>, c| match acc {
+            Some(a) if a.1 <= c.1 => Some(a),
+            _ => Some(c),
+        })
+        .map(|(b, _)| b)
+}
+
 fn rects_overlap(a: Rect, b: Rect) -> bool {
     a.0 < b.0 + b.2 && b.0 < a.0 + a.2 && a.1 < b.1 + b.3 && b.1 < a.1 + a.3
 }
@@ -1523,33 +1535,66 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
         + 2.0 * inner;
     let notes_h = p.notes.len() as f64 * row_h + 2.0 * inner - 0.4 * lfs;
     // Corners in order of preference: top right, top left, bottom right, bottom left.
-    let best = |w: f64, h: f64, avoid: Option<(f64, f64, f64, f64)>| {
+    let score = |b: Rect| {
+        let tb = TurnedBox::level(b);
+        let mut score = cover(&tb, &samples, r);
+        for (_, cands) in &guide_labels {
+            if let Some(&(x, y, _)) = cands.first()
+                && cover(&tb, &[((x, y), 1.0)], 2.0 * fs) > 0.0
+            {
+                score += 0.5;
+            }
+        }
+        score
+    };
+    let boxes = |w: f64, h: f64| -> Vec<(Rect, f64)> {
         (0..4)
             .map(|c| {
                 let b = corner_box(ax.frame, c, w, h, inset);
-                let tb = TurnedBox::level(b);
-                let mut score = cover(&tb, &samples, r);
-                for (_, cands) in &guide_labels {
-                    if let Some(&(x, y, _)) = cands.first()
-                        && cover(&tb, &[((x, y), 1.0)], 2.0 * fs) > 0.0
-                    {
-                        score += 0.5;
+                (b, score(b))
+            })
+            .collect()
+    };
+    // The legend and the notes placed together, so that together they cover the fewest data
+    // (a legend in the emptiest corner could push wide notes onto the data), never on each
+    // other; of equal choices the first in the order of preference, the legend's first.
+    let (legend_box, notes_box) = match (legend.is_empty(), p.notes.is_empty()) {
+        (true, true) => (None, None),
+        (false, true) => (least(boxes(legend_w, legend_h)), None),
+        (true, false) => (None, least(boxes(notes_w, notes_h))),
+        (false, false) => {
+            let (lb, nb) = (boxes(legend_w, legend_h), boxes(notes_w, notes_h));
+            let mut best: Option<(Rect, Rect, f64)> = None;
+            let (fx, fy, fw, fh) = ax.frame;
+            for (c, &(n, ns)) in nb.iter().enumerate() {
+                // The legend in any corner, or stacked on the notes' inner side in theirs.
+                let stacked = {
+                    let x = if c % 2 == 0 {
+                        n.0 + n.2 - legend_w
+                    } else {
+                        n.0
+                    };
+                    let y = if c < 2 {
+                        n.1 + n.3 + inset
+                    } else {
+                        n.1 - inset - legend_h
+                    };
+                    let b = (x, y, legend_w, legend_h);
+                    let inside =
+                        x >= fx && y >= fy && x + legend_w <= fx + fw && y + legend_h <= fy + fh;
+                    inside.then(|| (b, score(b)))
+                };
+                for &(l, ls) in lb.iter().chain(stacked.iter()) {
+                    let s = ls + ns + if rects_overlap(l, n) { 1e9 } else { 0.0 };
+                    if best.is_none_or(|b| s < b.2) {
+                        best = Some((l, n, s));
                     }
                 }
-                if avoid.is_some_and(|a| rects_overlap(a, b)) {
-                    score += 1e9;
-                }
-                (c, b, score)
-            })
-            .fold(None, |acc: Option<(usize, Rect, f64)>, c| match acc {
-                Some(a) if a.2 <= c.2 => Some(a),
-                _ => Some(c),
-            })
-            .map(|(_, b, _)| b)
-            .expect("four corners")
+            }
+            let (l, n, _) = best.expect("four corners");
+            (Some(l), Some(n))
+        }
     };
-    let legend_box = (!legend.is_empty()).then(|| best(legend_w, legend_h, None));
-    let notes_box = (!p.notes.is_empty()).then(|| best(notes_w, notes_h, legend_box));
 
     // Frame, ticks and labels.
     let mut fg = Group::new("axes", "axes", None);
