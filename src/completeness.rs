@@ -997,6 +997,13 @@ impl LogisticFit {
         outside(self.log10_m90, self.mass_range)
     }
 
+    /// Whether the slope is less than twice its standard error: recovery hardly rises with
+    /// mass among the cores fitted, so the curve and its masses are poorly constrained
+    /// (two standard errors: common practice).
+    pub fn weak(&self) -> bool {
+        self.b < 2.0 * self.b_err
+    }
+
     /// The fitted probability of recovery of a core of `mass` \[Msun\].
     pub fn probability(&self, mass: f64) -> f64 {
         sigmoid(self.a + self.b * mass.log10())
@@ -1608,10 +1615,11 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
         Ok(f) => format!(
             "logistic fit: 90% at {:.3} M_{{sun}}{}",
             f.m90(),
-            if f.m90_extrapolated() {
-                " (extrapolated)"
-            } else {
-                ""
+            match (f.m90_extrapolated(), f.weak()) {
+                (true, true) => " (extrapolated; weak fit)",
+                (true, false) => " (extrapolated)",
+                (false, true) => " (weak fit)",
+                (false, false) => "",
             }
         ),
         Err(_) => "no logistic fit (see report.md)".into(),
@@ -2243,6 +2251,12 @@ fn logistic_paragraph(r: &mut String, s: &Scoring) {
                 f.b,
                 f.b_err
             );
+            if f.weak() {
+                let _ = writeln!(
+                    r,
+                    "**The fit is weak: its slope b is less than twice its error**, as recovery hardly changes with mass among these cores (few missed, or missed at every mass); its curve and masses are poorly constrained. Inject more cores, and fainter ones, around the limit for a firmer value.\n"
+                );
+            }
             let which = match (f.m90_extrapolated(), f.m50_extrapolated()) {
                 (true, true) => Some("The 90% and the 50% masses are extrapolations: they lie"),
                 (true, false) => Some("The 90% mass is an extrapolation: it lies"),

@@ -1825,11 +1825,16 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
         },
         match &s.logistic {
             Ok(f) => format!(
-                "unbinned logistic fit: 90% at {:.3} Msun (+-{:.3} dex){}",
+                "unbinned logistic fit: 90% at {:.3} Msun (+-{:.3} dex){}{}",
                 f.m90(),
                 f.log10_m90_err,
                 if f.m90_extrapolated() {
                     ", extrapolated beyond the injected masses"
+                } else {
+                    ""
+                },
+                if f.weak() {
+                    ", a weak fit (slope less than twice its error)"
                 } else {
                     ""
                 }

@@ -119,6 +119,10 @@ fn logistic_fit_is_reported(dir: &Path, scored: &str, stdout: &str, report: &str
             );
             let said = format!("unbinned logistic fit: 90% at {:.3} Msun", f.m90());
             assert!(stdout.contains(&said), "{said}\n{stdout}");
+            // A slope within two standard errors of zero is named as a weak fit.
+            assert_eq!(f.weak(), f.b < 2.0 * f.b_err);
+            assert_eq!(report.contains("**The fit is weak"), f.weak(), "{report}");
+            assert_eq!(stdout.contains("a weak fit"), f.weak(), "{stdout}");
         }
         Err(why) => {
             assert_eq!(param("logistic_no_fit"), why.to_string());
