@@ -967,7 +967,7 @@ fn same_leaves(pops: &[Population]) -> Vec<String> {
                     "{} and {} are runs of the same map (input SHA-256 {}... in both run records): their differences show what the options of the two runs change, not a difference between clouds, and the tests' p-values do not apply, as the two share their pixels",
                     a.label,
                     b.label,
-                    &h[..h.len().min(12)]
+                    h.chars().take(12).collect::<String>()
                 ));
             }
         }

@@ -1604,9 +1604,19 @@ fn comment_unit(comment: &str) -> CommentUnit {
             None => CommentUnit::Unknown(u.to_string()),
         };
     }
+    // Words in capitals are read without case only in a comment written all in capitals
+    // (`WAVELENGTH IN MICRONS`), and never a single letter: an initial (`M. Smith`) is no
+    // metre.
+    let all_caps = !t.chars().any(|c| c.is_ascii_lowercase());
     let mut found: Vec<(f64, String)> = Vec::new();
     for w in t.split(|c: char| !c.is_ascii_alphanumeric()) {
-        if let Some(f) = length_unit_m(w)
+        let exact_case = !all_caps || w.len() < 2;
+        let f = if exact_case {
+            length_unit_m(w).filter(|_| w.chars().any(|c| c.is_ascii_lowercase()))
+        } else {
+            length_unit_m(w)
+        };
+        if let Some(f) = f
             && !found.iter().any(|(g, _)| *g == f)
         {
             found.push((f, w.to_string()));
@@ -1658,12 +1668,15 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
                 return Some(m);
             }
             let shown = units::tidy(f);
-            notes.push(implausible(
-                key,
-                &format!("{shown} Hz"),
-                m,
-                &format!(" ({key} is in Hz, as FITS defines it: if {shown} GHz was meant, give --wavelength {shown}GHz)"),
-            ));
+            // The hint of GHz only where that reading is a wavelength cairn would take.
+            let hint = if plausible_wavelength(units::C_LIGHT / (f * 1e9)) {
+                format!(
+                    " ({key} is in Hz, as FITS defines it: if {shown} GHz was meant, give --wavelength {shown}GHz)"
+                )
+            } else {
+                format!(" ({key} is in Hz, as FITS defines it)")
+            };
+            notes.push(implausible(key, &format!("{shown} Hz"), m, &hint));
         }
     }
     for key in ["WAVELEN", "WAVELNTH"] {

@@ -293,6 +293,23 @@ fn wavelengths_in_the_wrong_unit_are_not_used() {
         ),
         "{w:?}"
     );
+    // 1e16 Hz (30 nm) read as GHz would be no better (3e-8 um): no such hint.
+    let path = write_map(
+        dir.path(),
+        "uv.fits",
+        20,
+        20,
+        &[
+            "BUNIT   = 'MJy/sr'".into(),
+            "RESTFRQ =              1.0E+16".into(),
+        ],
+    );
+    let w = warnings(&inspect_json(dir.path(), &path, &[]));
+    let said = w
+        .iter()
+        .find(|w| w.starts_with("RESTFRQ = 1e16 Hz gives a wavelength of"))
+        .unwrap_or_else(|| panic!("{w:?}"));
+    assert!(!said.contains("GHz was meant"), "{said}");
 }
 
 #[test]

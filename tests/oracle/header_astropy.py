@@ -153,6 +153,12 @@ def wavelength_units():
          "micron as a word")
     case("WAVELEN =                850.0 / [micrometer]", 850.0, "micrometer",
          "micrometer in brackets")
+    # Capitals: a comment all in capitals names its unit in capitals; in a comment of mixed
+    # case a single capital letter (an initial) is no metre.
+    case("WAVELEN =                850.0 / WAVELENGTH IN MICRON", 850.0, "micron",
+         "MICRON in a comment all in capitals")
+    case("WAVELNTH=                  1.1 / Wavelength, M. Smith, in mm", 1.1, "mm",
+         "mm as a word; the initial M is no unit")
     # Units that are no length, or no unit astropy knows: no wavelength.
     case("WAVELEN =                850.0 / [K]", 850.0, "K", "K is no length")
     case("WAVELEN =                850.0 / [furlongs]", 850.0, "furlongs", "not a unit")
