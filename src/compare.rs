@@ -653,12 +653,23 @@ fn no_tail_note(p: &Population, o: &Options, why: populations::NoTail) -> String
         NoTail::TooFewDistinct { distinct, needed } => format!(
             "no power-law tail: the masses take only {distinct} distinct values, fewer than the {needed} a search for the tail's lower mass needs; give --mass-min to fit above a chosen mass"
         ),
-        NoTail::NoAdmissibleAlpha if o.alpha_max < ALPHA_MAX_LIMIT => format!(
-            "no power-law tail: no lower mass gives a tail with alpha between 1 and {}; a steeper tail needs a larger --alpha-max (up to {}), or give --mass-min to fit above a chosen mass",
-            crate::units::tidy(o.alpha_max),
+        // A larger --alpha-max only where one would admit a candidate's alpha.
+        NoTail::NoAdmissibleAlpha { least_alpha }
+            if o.alpha_max < ALPHA_MAX_LIMIT && least_alpha < ALPHA_MAX_LIMIT =>
+        {
+            format!(
+                "no power-law tail: no lower mass gives a tail with alpha between 1 and {}; a steeper tail needs a larger --alpha-max (the least alpha found is {}; up to {}), or give --mass-min to fit above a chosen mass",
+                crate::units::tidy(o.alpha_max),
+                crate::units::tidy(least_alpha),
+                crate::units::tidy(ALPHA_MAX_LIMIT)
+            )
+        }
+        NoTail::NoAdmissibleAlpha { least_alpha } if least_alpha >= ALPHA_MAX_LIMIT => format!(
+            "no power-law tail: every lower mass gives a tail steeper than any power law cairn fits (the least alpha found is {}, above the largest --alpha-max, {}), as when the masses barely differ; give --mass-min to fit above a chosen mass",
+            crate::units::tidy(least_alpha),
             crate::units::tidy(ALPHA_MAX_LIMIT)
         ),
-        NoTail::NoAdmissibleAlpha => format!(
+        NoTail::NoAdmissibleAlpha { .. } => format!(
             "no power-law tail: no lower mass gives a tail with alpha below {}, the largest --alpha-max; give --mass-min to fit above a chosen mass",
             crate::units::tidy(o.alpha_max)
         ),
@@ -2468,9 +2479,29 @@ mod tests {
             run: serde_json::Value::Null,
             grown: false,
         };
-        let why = populations::NoTail::NoAdmissibleAlpha;
+        let why = populations::NoTail::NoAdmissibleAlpha { least_alpha: 4.5 };
         let narrow = no_tail_note(&p, &Options::default(), why);
-        assert!(narrow.contains("a larger --alpha-max"), "{narrow}");
+        assert!(
+            narrow.contains("a larger --alpha-max (the least alpha found is 4.5; up to 10)"),
+            "{narrow}"
+        );
+        // Masses within a factor 1.0023 of each other: every candidate's alpha is in the
+        // hundreds, which no --alpha-max admits, so none is advised.
+        let close: Vec<f64> = (0..30).map(|i| 1.0 + 0.0023 * i as f64 / 29.0).collect();
+        let search = populations::XminSearch {
+            alpha_range: (1.0, ALPHA_MAX_LIMIT),
+            ..populations::XminSearch::default()
+        };
+        let got = populations::try_fit_power_law(&close, None, &search).unwrap();
+        let Err(why @ populations::NoTail::NoAdmissibleAlpha { least_alpha }) = got else {
+            panic!("{got:?}");
+        };
+        assert!(least_alpha > 100.0, "{least_alpha}");
+        let steep = no_tail_note(&p, &Options::default(), why);
+        assert!(
+            !steep.contains("a larger --alpha-max") && steep.contains("give --mass-min"),
+            "{steep}"
+        );
         let widest = Options {
             alpha_max: ALPHA_MAX_LIMIT,
             ..Options::default()

@@ -139,7 +139,7 @@ fn fit_tail(tail: &[f64], xmin: f64, logs: &mut Vec<f64>) -> (f64, f64) {
 }
 
 /// Why no power-law tail was fitted.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub enum NoTail {
     /// No mass lies above the given x_min.
     NothingAboveXmin,
@@ -152,7 +152,11 @@ pub enum NoTail {
         needed: usize,
     },
     /// Every candidate x_min gives an alpha outside [`XminSearch::alpha_range`].
-    NoAdmissibleAlpha,
+    NoAdmissibleAlpha {
+        /// The least alpha of the candidates (NaN when none is finite): above the range's
+        /// upper end, a wider range could admit it; otherwise none can.
+        least_alpha: f64,
+    },
 }
 
 impl NoTail {
@@ -173,7 +177,7 @@ impl NoTail {
             NoTail::TooFewDistinct { distinct, needed } => format!(
                 "the masses take only {distinct} distinct values, fewer than the {needed} a search for x_min needs; give x_min"
             ),
-            NoTail::NoAdmissibleAlpha => format!(
+            NoTail::NoAdmissibleAlpha { .. } => format!(
                 "no candidate x_min gives a power-law exponent between {} and {} (with at least {} distinct masses in the tail); give x_min or widen the admissible range",
                 search.alpha_range.0,
                 search.alpha_range.1,
@@ -436,7 +440,12 @@ impl<'a> Prepared<'a> {
                 ks_distance: d,
                 admissible: true,
             })
-            .ok_or(NoTail::NoAdmissibleAlpha)
+            .ok_or_else(|| NoTail::NoAdmissibleAlpha {
+                least_alpha: (0..keep)
+                    .map(|k| self.alpha(k).0)
+                    .filter(|a| a.is_finite())
+                    .fold(f64::NAN, f64::min),
+            })
     }
 }
 
@@ -532,7 +541,7 @@ impl TailFailures {
             match r {
                 NoTail::NothingAboveXmin => f.nothing_above_xmin += 1,
                 NoTail::TooFewDistinct { .. } => f.too_few_distinct += 1,
-                NoTail::NoAdmissibleAlpha => f.no_admissible_alpha += 1,
+                NoTail::NoAdmissibleAlpha { .. } => f.no_admissible_alpha += 1,
             }
         }
         f
@@ -840,7 +849,7 @@ mod tests {
                         };
                         let said = match why {
                             NoTail::TooFewDistinct { .. } => "too few distinct",
-                            NoTail::NoAdmissibleAlpha => "no admissible",
+                            NoTail::NoAdmissibleAlpha { .. } => "no admissible",
                             NoTail::NothingAboveXmin => "nothing above",
                         };
                         assert_eq!(said, expected, "seed {seed}");
