@@ -485,15 +485,21 @@ pub fn load_aux_map(
         for (x, y) in points {
             let off = match (w.pixel_to_sky(x, y), wn.pixel_to_sky(x, y)) {
                 (Some(a), Some(b)) => separation_deg(a, b),
-                _ => 0.0,
+                (None, None) => 0.0,
+                // On the sky in one grid and not in the other: not the same grid.
+                _ => f64::INFINITY,
             };
             if off.is_nan() || off > tol {
+                let how = if off.is_infinite() {
+                    "lies on the sky in one grid and off it in the other".to_string()
+                } else {
+                    format!("lies {:.3} arcsec away", off * 3600.0)
+                };
                 return Err(Error::input(
                     path,
                     format!(
-                        "has the shape of the map {} but not its sky grid (pixel ({x}, {y}) lies {:.3} arcsec away); give a {what} regridded onto the map's pixels.",
+                        "has the shape of the map {} but not its sky grid (pixel ({x}, {y}) {how}); give a {what} regridded onto the map's pixels.",
                         map.path.display(),
-                        off * 3600.0
                     ),
                 ));
             }

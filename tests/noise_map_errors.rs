@@ -117,3 +117,57 @@ fn errors_follow_each_structures_own_noise() {
         "leaves on each side: {left} {right}"
     );
 }
+
+/// A noise map of the map's shape on another sky grid is refused with the pixel where the two
+/// part: shifted by 2 pixels, or on the sky where the map's corners lie off it (an all-sky AIT
+/// map beside a TAN grid of the same shape). A stated property: the same grid means the same
+/// sky position at each pixel (within a tenth of a pixel).
+#[test]
+fn noise_maps_on_another_sky_grid_are_refused() {
+    use cairn::header::{Header, Value};
+    let d = tempfile::tempdir().unwrap();
+    let (nx, ny) = (60usize, 30usize);
+    let write = |name: &str, ctype: (&str, &str), cdelt: f64, crval1: f64| {
+        let mut h = Header::new();
+        for (k, v) in [
+            ("CTYPE1", Value::Str(ctype.0.into())),
+            ("CTYPE2", Value::Str(ctype.1.into())),
+            ("CRPIX1", Value::Float(30.5)),
+            ("CRPIX2", Value::Float(15.5)),
+            ("CRVAL1", Value::Float(crval1)),
+            ("CRVAL2", Value::Float(0.0)),
+            ("CDELT1", Value::Float(-cdelt)),
+            ("CDELT2", Value::Float(cdelt)),
+            ("BUNIT", Value::Str("MJy/sr".into())),
+        ] {
+            h.set(k, v, "");
+        }
+        let data = ndarray::Array2::<f32>::from_elem((ny, nx), 1.0);
+        let path = d.path().join(name);
+        cairn::fits_write::write_image_f32(&path, data.view(), &h, false).unwrap();
+        path
+    };
+    let load = |p: &Path| cairn::map::load(p, &cairn::map::LoadOptions::default()).unwrap();
+    let refused = |map: &Path, noise: &Path, says: &str| {
+        let e = cairn::inspect::load_noise_map(&load(map), noise)
+            .err()
+            .unwrap_or_else(|| panic!("{} accepted", noise.display()));
+        assert!(
+            e.message.contains("but not its sky grid") && e.message.contains(says),
+            "{}",
+            e.message
+        );
+    };
+    let map = write("map.fits", ("RA---TAN", "DEC--TAN"), 0.01, 150.0);
+    let same = write("same.fits", ("RA---TAN", "DEC--TAN"), 0.01, 150.0);
+    assert!(cairn::inspect::load_noise_map(&load(&map), &same).is_ok());
+    let shifted = write("shifted.fits", ("RA---TAN", "DEC--TAN"), 0.01, 150.02);
+    refused(&map, &shifted, "arcsec away");
+    let sky = write("sky.fits", ("RA---AIT", "DEC--AIT"), 6.5, 0.0);
+    let tan = write("tan.fits", ("RA---TAN", "DEC--TAN"), 0.01, 0.0);
+    refused(
+        &sky,
+        &tan,
+        "lies on the sky in one grid and off it in the other",
+    );
+}
