@@ -739,7 +739,7 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         }
     });
     let wavelength = map.wavelength_m.map(|w| WavelengthSummary {
-        wavelength_um: w * 1e6,
+        wavelength_um: units::as_given(w * 1e6),
         frequency_ghz: units::C_LIGHT / w / 1e9,
         source: map.wavelength_source.unwrap_or(Source::Header),
     });

@@ -1326,7 +1326,9 @@ fn synth_output(a: &SynthArgs, spec: &mut synth::SynthSpec, source: &str) -> Res
     if let Some(w) = &a.emission {
         let wl = q(w, &[Dimension::Length], "--emission")?.si;
         match &mut spec.output {
-            synth::Output::DustEmission { wavelength_um, .. } => *wavelength_um = wl * 1e6,
+            synth::Output::DustEmission { wavelength_um, .. } => {
+                *wavelength_um = units::as_given(wl * 1e6)
+            }
             synth::Output::ColumnDensity => {
                 let unit = new_unit.unwrap_or(synth::EmissionUnit::MJyPerSr);
                 if noise_kept {
@@ -1337,7 +1339,7 @@ fn synth_output(a: &SynthArgs, spec: &mut synth::SynthSpec, source: &str) -> Res
                     )));
                 }
                 spec.output = synth::Output::DustEmission {
-                    wavelength_um: wl * 1e6,
+                    wavelength_um: units::as_given(wl * 1e6),
                     temperature_k: 15.0,
                     unit,
                     opacity: cairn::physics::DustOpacity::default(),

@@ -2056,8 +2056,13 @@ fn physics_meta(
         ));
         if let Some(w) = map.wavelength_m {
             v.push(
-                Param::new("wavelength", Float(w * 1e6), "um", "wavelength of the map")
-                    .with_key("WAVELEN"),
+                Param::new(
+                    "wavelength",
+                    Float(units::as_given(w * 1e6)),
+                    "um",
+                    "wavelength of the map",
+                )
+                .with_key("WAVELEN"),
             );
         }
     }
@@ -2153,7 +2158,7 @@ pub fn physics_record(
         "nh2_per_av_cm2": units::as_given(ctx.nh2_per_av_m2 * 1e-4),
         "av_per_ak": ctx.av_per_ak,
         "sigma_nt_km_per_s": match ctx.sigma_nt { Some(crate::score::Field::Uniform(ms)) => Some(units::as_given(ms / 1e3)), _ => None },
-        "wavelength_um": map.wavelength_m.map(|w| w * 1e6),
+        "wavelength_um": map.wavelength_m.map(|w| units::as_given(w * 1e6)),
         "beam_fwhm_arcsec": beam_arcsec,
         "linear_resolution_pc": resolution_pc,
         "mass_sensitivity_msun": sensitivity,

@@ -1508,3 +1508,42 @@ fn the_run_record_keeps_numbers_as_numbers_and_levels_with_their_unit() {
     assert!(run["noise"]["value"].is_number());
     assert_eq!(run["noise"]["unit"], "cm-2");
 }
+
+/// A wavelength given in um is recorded as given (1100, not 1099.9999999999998, the double
+/// that 1100 x 1e-6 m times 1e6 gives) in the catalogue's parameters and the run record.
+#[test]
+fn a_wavelength_is_recorded_as_given() {
+    let d = tempfile::tempdir().unwrap();
+    let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let args = [
+        "segment",
+        demo.to_str().unwrap(),
+        "-o",
+        "run",
+        "--wavelength",
+        "1100um",
+        "--no-figure",
+        "-q",
+    ];
+    let (code, _, stderr) = cairn(&args, d.path());
+    assert_eq!(code, 0, "{stderr}");
+    assert_ne!(
+        std::hint::black_box(1100.0) * 1e-6 * 1e6,
+        1100.0,
+        "the double the record must not show"
+    );
+    let csv = std::fs::read_to_string(d.path().join("run/structures.csv")).unwrap();
+    assert!(
+        csv.contains("# parameter wavelength = 1100.0  ([um]"),
+        "{}",
+        csv.lines().find(|l| l.contains("wavelength")).unwrap_or("")
+    );
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("run/run.json")).unwrap())
+            .unwrap();
+    let recorded = run
+        .pointer("/map/wavelength_um")
+        .or_else(|| run.pointer("/physics/wavelength_um"))
+        .and_then(|v| v.as_f64());
+    assert_eq!(recorded, Some(1100.0), "{run}");
+}
