@@ -2354,9 +2354,11 @@ mod tests {
         assert!(curve.iter().all(|&(m, y)| y == f.probability(m)));
         assert!((f.probability(f.m90()) - 0.9).abs() < 1e-12);
         assert!((f.probability(f.m50()) - 0.5).abs() < 1e-12);
+        // Eight cores, two missed: a weak fit (slope under twice its error), said so.
+        assert!(f.weak(), "{f:?}");
         assert_eq!(
             p.notes[2],
-            format!("logistic fit: 90% at {:.3} M_{{sun}}", f.m90())
+            format!("logistic fit: 90% at {:.3} M_{{sun}} (weak fit)", f.m90())
         );
     }
 
