@@ -1604,13 +1604,11 @@ fn comment_unit(comment: &str) -> CommentUnit {
             None => CommentUnit::Unknown(u.to_string()),
         };
     }
-    // Words in capitals are read without case only in a comment written all in capitals
-    // (`WAVELENGTH IN MICRONS`), and never a single letter: an initial (`M. Smith`) is no
-    // metre.
-    let all_caps = !t.chars().any(|c| c.is_ascii_lowercase());
+    // A word in capitals is read without case (`in MM`, `WAVELENGTH IN MICRONS`), but never
+    // a single letter: an initial (`M. Smith`) is no metre.
     let mut found: Vec<(f64, String)> = Vec::new();
     for w in t.split(|c: char| !c.is_ascii_alphanumeric()) {
-        let exact_case = !all_caps || w.len() < 2;
+        let exact_case = w.len() < 2;
         let f = if exact_case {
             length_unit_m(w).filter(|_| w.chars().any(|c| c.is_ascii_lowercase()))
         } else {

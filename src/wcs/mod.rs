@@ -234,9 +234,11 @@ impl Wcs {
             // A bare coordinate name beside an axis that is not its partner (`RA` beside
             // `VRAD` on a position-velocity map, or `RA` twice): no celestial pair, as
             // WCSLIB (astropy 8.0.2's WCS) reads it, so the map loads in pixel units.
-            _ if kinds.iter().any(
-                |k| matches!(k, AxisKind::Lon { code, .. } | AxisKind::Lat { code, .. } if code.is_empty()),
-            ) =>
+            // (Only where no axis has a projection code: `RA` beside `RA---TAN` is refused.)
+            _ if kinds.iter().all(|k| match k {
+                AxisKind::Lon { code, .. } | AxisKind::Lat { code, .. } => code.is_empty(),
+                AxisKind::NotCelestial => true,
+            }) =>
             {
                 return Ok(None);
             }

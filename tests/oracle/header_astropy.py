@@ -153,10 +153,12 @@ def wavelength_units():
          "micron as a word")
     case("WAVELEN =                850.0 / [micrometer]", 850.0, "micrometer",
          "micrometer in brackets")
-    # Capitals: a comment all in capitals names its unit in capitals; in a comment of mixed
-    # case a single capital letter (an initial) is no metre.
+    # Capitals: a unit in capitals is read, in a comment all in capitals or not; a single
+    # capital letter (an initial) is no metre.
     case("WAVELEN =                850.0 / WAVELENGTH IN MICRON", 850.0, "micron",
          "MICRON in a comment all in capitals")
+    case("WAVELEN =                  1.1 / Wavelength in MM", 1.1, "mm",
+         "MM in capitals in a comment of mixed case")
     case("WAVELNTH=                  1.1 / Wavelength, M. Smith, in mm", 1.1, "mm",
          "mm as a word; the initial M is no unit")
     # Units that are no length, or no unit astropy knows: no wavelength.
@@ -216,7 +218,8 @@ def ctype_pairs():
     cases = []
     for c1, c2 in [("RA", "DEC"), ("GLON", "GLAT"), ("RA", "VRAD"), ("LINEAR", "GLAT"),
                    ("RA", "RA"), ("VELO-LSR", "DEC"), ("FREQ", "STOKES"),
-                   ("RA---TAN", "DEC--TAN"), ("RA", "DEC--TAN")]:
+                   ("RA---TAN", "DEC--TAN"), ("RA", "DEC--TAN"), ("RA", "RA---TAN"),
+                   ("DEC", "GLAT-TAN")]:
         h = fits.Header()
         for k, v in [("NAXIS", 2), ("NAXIS1", 60), ("NAXIS2", 40), ("CTYPE1", c1),
                      ("CTYPE2", c2), ("CRPIX1", 30.5), ("CRPIX2", 20.5), ("CRVAL1", 83.8125),
