@@ -1061,6 +1061,30 @@ pub enum NoLogisticFit {
     },
     /// Newton's method did not converge in [`LOGISTIC_MAX_STEPS`] steps.
     NoConvergence,
+    /// The 90% or the 50% mass lies more than [`LOGISTIC_MAX_DEX_OUTSIDE`] outside the
+    /// injected masses (or is no finite number): the curve is too weakly held by the cores
+    /// to give a limit.
+    FarOutside {
+        /// The fitted slope and its standard error.
+        b: f64,
+        b_err: f64,
+        /// The least and the greatest true mass fitted \[Msun\].
+        mass_range: (f64, f64),
+    },
+}
+
+/// How far (dex) outside the injected masses a fitted 50% or 90% mass may lie and still be
+/// given (flagged as an extrapolation); beyond it, no fit is given (cairn's convention).
+pub const LOGISTIC_MAX_DEX_OUTSIDE: f64 = 2.0;
+
+/// A mass for the completeness texts: three decimals in the usual range, else three
+/// significant digits with an exponent (a fit far off the injected masses stays readable).
+pub fn fmt_msun(x: f64) -> String {
+    if x.is_finite() && (1e-3..1e5).contains(&x.abs()) {
+        format!("{x:.3}")
+    } else {
+        format!("{x:.3e}")
+    }
 }
 
 impl std::fmt::Display for NoLogisticFit {
@@ -1102,7 +1126,25 @@ impl std::fmt::Display for NoLogisticFit {
                 lightest_missed,
             } => write!(
                 f,
-                "recovery does not rise with mass: every recovered core ({heaviest_recovered:.3} Msun at most) is lighter than every missed one ({lightest_missed:.3} Msun at least)"
+                "recovery does not rise with mass: every recovered core ({} Msun at most) is {} every missed one ({} Msun at least)",
+                fmt_msun(*heaviest_recovered),
+                if heaviest_recovered == lightest_missed {
+                    "no heavier than"
+                } else {
+                    "lighter than"
+                },
+                fmt_msun(*lightest_missed)
+            ),
+            NoLogisticFit::FarOutside {
+                b,
+                b_err,
+                mass_range,
+            } => write!(
+                f,
+                "the fitted curve (slope b = {b:.3} +- {b_err:.3}) puts its 90% or 50% mass more than {} dex outside the injected masses ({} - {} Msun), too weakly held by the cores to give a limit; inject more cores, and fainter ones, around the limit",
+                LOGISTIC_MAX_DEX_OUTSIDE,
+                fmt_msun(mass_range.0),
+                fmt_msun(mass_range.1)
             ),
             NoLogisticFit::NotRising { b, b_err } => write!(
                 f,
@@ -1270,6 +1312,19 @@ pub fn logistic_fit(
     };
     let (log10_m50, log10_m50_err) = at(0.5);
     let (log10_m90, log10_m90_err) = at(0.9);
+    let far = |x: f64| {
+        !x.is_finite()
+            || x < lo.log10() - LOGISTIC_MAX_DEX_OUTSIDE
+            || x > hi.log10() + LOGISTIC_MAX_DEX_OUTSIDE
+    };
+    if far(log10_m50) || far(log10_m90) || !log10_m50_err.is_finite() || !log10_m90_err.is_finite()
+    {
+        return Err(NoLogisticFit::FarOutside {
+            b,
+            b_err: var_b.sqrt(),
+            mass_range: (lo, hi),
+        });
+    }
     Ok(LogisticFit {
         a,
         b,
@@ -1613,8 +1668,8 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
     }
     let logistic_note = match &s.logistic {
         Ok(f) => format!(
-            "logistic fit: 90% at {:.3} M_{{sun}}{}",
-            f.m90(),
+            "logistic fit: 90% at {} M_{{sun}}{}",
+            fmt_msun(f.m90()),
             match (f.m90_extrapolated(), f.weak()) {
                 (true, true) => " (extrapolated; weak fit)",
                 (true, false) => " (extrapolated)",
@@ -2232,17 +2287,17 @@ fn logistic_paragraph(r: &mut String, s: &Scoring) {
         Ok(f) => {
             let range = |x: f64, e: f64| {
                 format!(
-                    "log10 M = {x:.3} +- {e:.3}; 1 sigma: {:.3} - {:.3} Msun",
-                    10f64.powf(x - e),
-                    10f64.powf(x + e)
+                    "log10 M = {x:.3} +- {e:.3}; 1 sigma: {} - {} Msun",
+                    fmt_msun(10f64.powf(x - e)),
+                    fmt_msun(10f64.powf(x + e))
                 )
             };
             let _ = writeln!(
                 r,
-                "{lead}: **{:.3} Msun** ({}); 50% at {:.3} Msun ({}). Fitted by maximum likelihood to the {} counted cores one by one ({} recovered), P(recovered) = 1 / (1 + exp(-(a + b log10 M))), a = {:.3} +- {:.3}, b = {:.3} +- {:.3}: it does not depend on the bins. Errors are 1 sigma, from the inverse Fisher information (by the delta method for the masses); the logistic shape is assumed, recovery rising with mass.\n",
-                f.m90(),
+                "{lead}: **{} Msun** ({}); 50% at {} Msun ({}). Fitted by maximum likelihood to the {} counted cores one by one ({} recovered), P(recovered) = 1 / (1 + exp(-(a + b log10 M))), a = {:.3} +- {:.3}, b = {:.3} +- {:.3}: it does not depend on the bins. Errors are 1 sigma, from the inverse Fisher information (by the delta method for the masses); the logistic shape is assumed, recovery rising with mass.\n",
+                fmt_msun(f.m90()),
                 range(f.log10_m90, f.log10_m90_err),
-                f.m50(),
+                fmt_msun(f.m50()),
                 range(f.log10_m50, f.log10_m50_err),
                 f.n,
                 f.recovered,
@@ -2266,8 +2321,9 @@ fn logistic_paragraph(r: &mut String, s: &Scoring) {
             if let Some(which) = which {
                 let _ = writeln!(
                     r,
-                    "**{which} outside the injected masses** ({:.3} - {:.3} Msun), where the fitted curve is not tested; inject cores reaching past them for a firmer value.\n",
-                    f.mass_range.0, f.mass_range.1
+                    "**{which} outside the injected masses** ({} - {} Msun), where the fitted curve is not tested; inject cores reaching past them for a firmer value.\n",
+                    fmt_msun(f.mass_range.0),
+                    fmt_msun(f.mass_range.1)
                 );
             }
         }
@@ -2447,6 +2503,41 @@ mod tests {
                 lightest_missed: 1.0
             })
         );
+        // Ties: the heaviest recovered and the lightest missed core weigh the same.
+        let tied = logistic_fit(
+            &[0.1, 0.2, 1.0, 1.0, 2.0, 3.0],
+            &[true, true, true, false, false, false],
+        );
+        let why = tied.unwrap_err().to_string();
+        assert!(
+            why.contains("(1.000 Msun at most) is no heavier than every missed one"),
+            "{why}"
+        );
+        // One core of thirty missed, in the middle of the masses: the slope is near zero and
+        // the 90% mass hundreds of dex away, so no limit is given, but the reason.
+        let masses: Vec<f64> = (0..30)
+            .map(|i| {
+                if i == 15 {
+                    10f64.powf(-0.005)
+                } else {
+                    0.1 * 100f64.powf(i as f64 / 29.0)
+                }
+            })
+            .collect();
+        let found: Vec<bool> = (0..30).map(|i| i != 15).collect();
+        match logistic_fit(&masses, &found) {
+            Err(e @ NoLogisticFit::FarOutside { .. }) => {
+                let why = e.to_string();
+                assert!(
+                    why.contains("more than 2 dex outside the injected masses"),
+                    "{why}"
+                );
+            }
+            other => panic!("{other:?}"),
+        }
+        assert_eq!(fmt_msun(0.451), "0.451");
+        assert_eq!(fmt_msun(2.5e-7), "2.500e-7");
+        assert_eq!(fmt_msun(f64::INFINITY), "inf");
         // Overlapping, but recovered more often among the lighter cores.
         match logistic_fit(&m6, &[true, true, false, true, false, false]) {
             Err(NoLogisticFit::NotRising { b, b_err }) => {

@@ -1827,8 +1827,8 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
         },
         match &s.logistic {
             Ok(f) => format!(
-                "unbinned logistic fit: 90% at {:.3} Msun (+-{:.3} dex){}{}",
-                f.m90(),
+                "unbinned logistic fit: 90% at {} Msun (+-{:.3} dex){}{}",
+                cairn::completeness::fmt_msun(f.m90()),
                 f.log10_m90_err,
                 if f.m90_extrapolated() {
                     ", extrapolated beyond the injected masses"

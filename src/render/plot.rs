@@ -1566,28 +1566,32 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             let (lb, nb) = (boxes(legend_w, legend_h), boxes(notes_w, notes_h));
             let mut best: Option<(Rect, Rect, f64)> = None;
             let (fx, fy, fw, fh) = ax.frame;
-            for (c, &(n, ns)) in nb.iter().enumerate() {
-                // The legend in any corner, or stacked on the notes' inner side in theirs.
-                let stacked = {
-                    let x = if c % 2 == 0 {
-                        n.0 + n.2 - legend_w
-                    } else {
-                        n.0
-                    };
-                    let y = if c < 2 {
-                        n.1 + n.3 + inset
-                    } else {
-                        n.1 - inset - legend_h
-                    };
-                    let b = (x, y, legend_w, legend_h);
-                    let inside =
-                        x >= fx && y >= fy && x + legend_w <= fx + fw && y + legend_h <= fy + fh;
-                    inside.then(|| (b, score(b)))
+            // The legend stacked on the notes' inner side in their corner, where it fits.
+            let stacked = |c: usize, n: Rect| {
+                let x = if c % 2 == 0 {
+                    n.0 + n.2 - legend_w
+                } else {
+                    n.0
                 };
-                for &(l, ls) in lb.iter().chain(stacked.iter()) {
-                    let s = ls + ns + if rects_overlap(l, n) { 1e9 } else { 0.0 };
+                let y = if c < 2 {
+                    n.1 + n.3 + inset
+                } else {
+                    n.1 - inset - legend_h
+                };
+                let b = (x, y, legend_w, legend_h);
+                let inside =
+                    x >= fx && y >= fy && x + legend_w <= fx + fw && y + legend_h <= fy + fh;
+                inside.then(|| (b, score(b)))
+            };
+            // The legend's corners first (its preference ruling ties), then stacked.
+            for l in 0..5 {
+                for (c, &(n, ns)) in nb.iter().enumerate() {
+                    let Some((lbox, ls)) = (if l < 4 { Some(lb[l]) } else { stacked(c, n) }) else {
+                        continue;
+                    };
+                    let s = ls + ns + if rects_overlap(lbox, n) { 1e9 } else { 0.0 };
                     if best.is_none_or(|b| s < b.2) {
-                        best = Some((l, n, s));
+                        best = Some((lbox, n, s));
                     }
                 }
             }
