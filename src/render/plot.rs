@@ -1568,7 +1568,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             let (fx, fy, fw, fh) = ax.frame;
             // The legend stacked on the notes' inner side in their corner, where it fits.
             let stacked = |c: usize, n: Rect| {
-                let x = if c % 2 == 0 {
+                let x = if c.is_multiple_of(2) {
                     n.0 + n.2 - legend_w
                 } else {
                     n.0
@@ -1584,9 +1584,9 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                 inside.then(|| (b, score(b)))
             };
             // The legend's corners first (its preference ruling ties), then stacked.
-            for l in 0..5 {
+            for l in lb.iter().map(Some).chain([None]) {
                 for (c, &(n, ns)) in nb.iter().enumerate() {
-                    let Some((lbox, ls)) = (if l < 4 { Some(lb[l]) } else { stacked(c, n) }) else {
+                    let Some((lbox, ls)) = l.copied().or_else(|| stacked(c, n)) else {
                         continue;
                     };
                     let s = ls + ns + if rects_overlap(lbox, n) { 1e9 } else { 0.0 };
