@@ -298,11 +298,18 @@ pub fn beam_area_px(map: &Map) -> Option<f64> {
 /// that says so and the fix (for a beam from the header, that BMAJ and BMIN are in degrees:
 /// a beam written in arcsec is 3600 times too wide).
 pub fn default_min_area_px(map: &Map) -> std::result::Result<usize, String> {
-    let area = beam_area_px(map).unwrap_or(9.0);
+    let beam = beam_area_px(map);
+    let area = beam.unwrap_or(9.0);
     let px = (area - 1e-9).ceil().max(1.0) as usize;
     let n = map.nx() * map.ny();
     if px <= n {
         return Ok(px);
+    }
+    if beam.is_none() {
+        return Err(format!(
+            "the default --min-area without a beam, 9 pixels (a 3 x 3 patch), is larger than the whole map {} ({n} pixels); give --min-area in px.",
+            map.path.display()
+        ));
     }
     // In the words of the value itself: a count beyond 2^64 would read as its cap.
     let shown = if area < 1e15 {

@@ -1547,3 +1547,34 @@ fn a_wavelength_is_recorded_as_given() {
         .and_then(|v| v.as_f64());
     assert_eq!(recorded, Some(1100.0), "{run}");
 }
+
+/// A map without a beam smaller than the default least area without one (9 pixels, a 3 x 3
+/// patch, common practice) is refused in those words, not as "one beam".
+#[test]
+fn a_map_smaller_than_the_default_area_without_a_beam_is_refused_so() {
+    let d = tempfile::tempdir().unwrap();
+    let mut h = cairn::header::Header::new();
+    h.set("BUNIT", cairn::header::Value::Str("cm-2".into()), "");
+    let data = ndarray::Array2::from_shape_vec((2, 2), vec![1e21f32, 2e21, 3e21, 4e21]).unwrap();
+    cairn::fits_write::write_image_f32(&d.path().join("tiny.fits"), data.view(), &h, false)
+        .unwrap();
+    let args = [
+        "segment",
+        "tiny.fits",
+        "-o",
+        "run",
+        "--floor",
+        "1e21",
+        "--prominence",
+        "1e20",
+    ];
+    let (code, stdout, stderr) = cairn(&args, d.path());
+    assert_eq!(code, 2, "{stderr}");
+    assert!(stdout.is_empty() && !d.path().join("run").exists());
+    assert!(
+        stderr.contains("the default --min-area without a beam, 9 pixels (a 3 x 3 patch), is larger than the whole map")
+            && stderr.contains("give --min-area in px.")
+            && !stderr.contains("one beam"),
+        "{stderr}"
+    );
+}
