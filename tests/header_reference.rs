@@ -183,16 +183,7 @@ fn lower_case_ctypes_give_astropy_positions_and_upper_case_cards() {
     let (upper, lower) = (&f["upper"], &f["lower"]);
     assert!(upper["astropy_reads"].as_bool().unwrap());
     assert!(!lower["astropy_reads"].as_bool().unwrap());
-    let cards = |e: &serde_json::Value| {
-        let text: String = e["cards"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|c| c.as_str().unwrap().to_string())
-            .collect();
-        Header::parse(&text)
-    };
-    let w = Wcs::from_header(&cards(lower)).unwrap().unwrap();
+    let w = Wcs::from_header(&cards_of(lower)).unwrap().unwrap();
     let (xs, ys, lons, lats) = (
         nums(&upper["x"]),
         nums(&upper["y"]),
@@ -228,13 +219,7 @@ fn ctype_pairs_are_celestial_where_astropy_finds_a_pair() {
     let cases = f["cases"].as_array().unwrap();
     assert!(cases.len() >= 9);
     for c in cases {
-        let text: String = c["cards"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|c| c.as_str().unwrap().to_string())
-            .collect();
-        let got = Wcs::from_header(&Header::parse(&text));
+        let got = Wcs::from_header(&cards_of(c));
         let ctype = &c["ctype"];
         if c["astropy_reads"].as_bool().unwrap() {
             let celestial = c["has_celestial"].as_bool().unwrap();
@@ -247,4 +232,15 @@ fn ctype_pairs_are_celestial_where_astropy_finds_a_pair() {
             assert!(got.is_err(), "{ctype}");
         }
     }
+}
+
+/// The header of a fixture entry's `cards` (80-character card images, as astropy wrote them).
+fn cards_of(entry: &serde_json::Value) -> Header {
+    let text: String = entry["cards"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c.as_str().unwrap().to_string())
+        .collect();
+    Header::parse(&text)
 }
