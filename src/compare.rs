@@ -669,8 +669,12 @@ fn no_tail_note(p: &Population, o: &Options, why: populations::NoTail) -> String
             crate::units::tidy(least_alpha),
             crate::units::tidy(ALPHA_MAX_LIMIT)
         ),
-        NoTail::NoAdmissibleAlpha { .. } => format!(
+        NoTail::NoAdmissibleAlpha { .. } if o.alpha_max >= ALPHA_MAX_LIMIT => format!(
             "no power-law tail: no lower mass gives a tail with alpha below {}, the largest --alpha-max; give --mass-min to fit above a chosen mass",
+            crate::units::tidy(o.alpha_max)
+        ),
+        NoTail::NoAdmissibleAlpha { .. } => format!(
+            "no power-law tail: no lower mass gives a tail with alpha between 1 and {}; give --mass-min to fit above a chosen mass",
             crate::units::tidy(o.alpha_max)
         ),
     }
@@ -2497,6 +2501,15 @@ mod tests {
             panic!("{got:?}");
         };
         assert!(least_alpha > 100.0, "{least_alpha}");
+        // No finite alpha at all: no advice of a wider window, and no claim of the largest.
+        let none = populations::NoTail::NoAdmissibleAlpha {
+            least_alpha: f64::NAN,
+        };
+        let said = no_tail_note(&p, &Options::default(), none);
+        assert!(
+            !said.contains("--alpha-max") && said.contains("between 1 and 3"),
+            "{said}"
+        );
         let steep = no_tail_note(&p, &Options::default(), why);
         assert!(
             !steep.contains("a larger --alpha-max") && steep.contains("give --mass-min"),
