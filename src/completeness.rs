@@ -2007,6 +2007,12 @@ fn logistic_params(t: &mut Table, s: &Scoring) {
             "whether the 50% mass lies outside the injected masses",
         ),
         Param::new(
+            "logistic_weak",
+            Text(f.map_or(String::new(), |f| f.weak().to_string())),
+            "",
+            "whether the slope b is less than twice its error (a weak fit)",
+        ),
+        Param::new(
             "logistic_no_fit",
             Text(
                 s.logistic

@@ -125,6 +125,7 @@ fn logistic_fit_is_reported(dir: &Path, scored: &str, stdout: &str, report: &str
             // A slope within two standard errors of zero is named as a weak fit, in the
             // report and on stdout alike.
             assert_eq!(report.contains("**The fit is weak"), f.weak(), "{report}");
+            assert_eq!(param("logistic_weak"), f.weak().to_string());
             assert_eq!(stdout.contains("a weak fit"), f.weak(), "{stdout}");
         }
         Err(why) => {
