@@ -1607,7 +1607,21 @@ fn comment_unit(comment: &str) -> CommentUnit {
     // A word in capitals is read without case (`in MM`, `WAVELENGTH IN MICRONS`), but never
     // a single letter: an initial (`M. Smith`) is no metre.
     let mut found: Vec<(f64, String)> = Vec::new();
-    for w in t.split(|c: char| !c.is_ascii_alphanumeric()) {
+    let mut rest = t;
+    let mut words: Vec<&str> = Vec::new();
+    // Words, less those after an apostrophe (the `m` of `I'm` is no metre).
+    while let Some(start) = rest.find(|c: char| c.is_ascii_alphanumeric()) {
+        let after_apostrophe = rest[..start].ends_with('\'');
+        let tail = &rest[start..];
+        let end = tail
+            .find(|c: char| !c.is_ascii_alphanumeric())
+            .unwrap_or(tail.len());
+        if !after_apostrophe {
+            words.push(&tail[..end]);
+        }
+        rest = &tail[end..];
+    }
+    for w in words {
         let exact_case = w.len() < 2;
         let f = if exact_case {
             length_unit_m(w).filter(|_| w.chars().any(|c| c.is_ascii_lowercase()))

@@ -161,6 +161,8 @@ def wavelength_units():
          "MM in capitals in a comment of mixed case")
     case("WAVELNTH=                  1.1 / Wavelength, M. Smith, in mm", 1.1, "mm",
          "mm as a word; the initial M is no unit")
+    case("WAVELEN =                850.0 / I'm told it is in um", 850.0, "um",
+         "um as a word; the m of I'm is no unit")
     # Units that are no length, or no unit astropy knows: no wavelength.
     case("WAVELEN =                850.0 / [K]", 850.0, "K", "K is no length")
     case("WAVELEN =                850.0 / [furlongs]", 850.0, "furlongs", "not a unit")
