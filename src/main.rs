@@ -746,10 +746,10 @@ struct CompareArgs {
     truth: Vec<PathBuf>,
     /// With --truth: a run of the map before injection, with the same thresholds; injected
     /// cores within one beam FWHM of its leaves' peaks (where a leaf found may be the map's own) are left
-    /// out of the completeness. One baseline serves every pooled pair, so each injection must
-    /// have gone into that map.
+    /// out of the completeness. Give one to serve every pooled pair (each injection into that
+    /// map), or one per pair, in the order of the runs (injections into different maps).
     #[arg(long, value_name = "RUN", requires = "truth")]
-    baseline: Option<PathBuf>,
+    baseline: Vec<PathBuf>,
     /// A name for each run, in order [default: the folder names].
     #[arg(long, value_name = "NAME")]
     label: Vec<String>,
@@ -1682,25 +1682,43 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
     }
     let truths: Vec<&completeness::Truth> = pairs.iter().map(|p| &p.0).collect();
     completeness::check_distinct(&truths)?;
-    // One baseline serves every pair (each injection into the same map), checked per pair.
-    let baseline = a
+    // One baseline serves every pair (each injection into the same map), or one per pair in
+    // order (injections into different maps); each is checked against its pair.
+    if a.baseline.len() > 1 && a.baseline.len() != a.runs.len() {
+        return Err(Error::usage(format!(
+            "{} --baseline runs were given for {} runs; give one baseline for every pair (injections into one map) or one per run, in the runs' order.",
+            a.baseline.len(),
+            a.runs.len()
+        )));
+    }
+    let baselines = a
         .baseline
-        .as_deref()
-        .map(completeness::read_baseline)
-        .transpose()?;
+        .iter()
+        .map(|b| completeness::read_baseline(b))
+        .collect::<cairn::error::Result<Vec<_>>>()?;
+    let baseline_of = |k: usize| baselines.get(k).or(baselines.first());
     let mut baseline_differences = Vec::new();
-    for (truth, run) in &pairs {
-        baseline_differences.push(match &baseline {
-            Some(b) => completeness::check_baseline(truth, run, b)?,
+    for (k, (truth, run)) in pairs.iter().enumerate() {
+        baseline_differences.push(match baseline_of(k) {
+            Some(b) => completeness::check_baseline(truth, run, b).map_err(|mut e| {
+                // One baseline for pooled injections into different maps: say the way out.
+                if pooled_sets && baselines.len() == 1 {
+                    e.message = e.message.replace(
+                        "give --baseline a run of the map before injection.",
+                        "give --baseline a run of the map before injection, or one --baseline per run, in the runs' order, for injections into different maps.",
+                    );
+                }
+                e
+            })?,
             None => Vec::new(),
         });
     }
     let scorings: Vec<completeness::Scoring> = pairs
         .iter()
         .zip(baseline_differences)
-        .map(|((truth, run), differences)| {
-            let mut s =
-                completeness::score_with_baseline(truth, run, baseline.as_ref(), a.bin_width);
+        .enumerate()
+        .map(|(k, ((truth, run), differences))| {
+            let mut s = completeness::score_with_baseline(truth, run, baseline_of(k), a.bin_width);
             s.baseline_differences = differences;
             s
         })
@@ -1718,7 +1736,7 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
     let injected = s.matches.len();
     if s.with_baseline && s.counted().next().is_none() {
         return Err(Error::input(
-            a.baseline.as_deref().unwrap_or(&a.truth[0]),
+            a.baseline.first().unwrap_or(&a.truth[0]),
             format!(
                 "has leaves within one beam FWHM ({} arcsec) of every one of the {injected} injected cores, so none is left to score; inject cores away from the map's structures or leave out --baseline.",
                 units::tidy(s.radius_arcsec)
@@ -1772,7 +1790,7 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
         .iter()
         .chain(&a.truth)
         .map(PathBuf::as_path)
-        .chain(a.baseline.as_deref())
+        .chain(a.baseline.iter().map(PathBuf::as_path))
         .collect();
     output::refuse_inputs_as_outputs(&a.output, &names, &inputs)?;
     let outputs = output::Outputs::plan(&a.output, &names, a.force)?;

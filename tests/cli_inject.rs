@@ -2045,3 +2045,130 @@ fn a_truth_table_with_cores_placed_by_hand_is_scored() {
         o.stdout
     );
 }
+
+/// Injections into two different maps pool with one baseline each, in the runs' order: the
+/// pooled counts are the sums of each pair scored with its own baseline; one baseline for
+/// both is refused (it is not a run of the second injection's map), and so is a count of
+/// baselines that is neither one nor one per run.
+#[test]
+fn injections_into_different_maps_pool_with_a_baseline_each() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let o = cairn(
+        &[
+            "synth", "-o", "base2", "--size", "256", "--noise", "1e20cm-2", "--seed", "4", "-q",
+        ],
+        dir,
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let seg = ["--distance", "250pc", "--temperature", "12K"];
+    for (name, map, seed) in [("a", "base", "5"), ("c", "base2", "6")] {
+        let o = inject(dir, &format!("{map}/synth.fits"), name, &["--seed", seed]);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let mut before = vec![
+            "segment".to_string(),
+            format!("{map}/synth.fits"),
+            "-o".into(),
+            format!("before-{map}"),
+            "--no-figure".into(),
+            "-q".into(),
+        ];
+        before.extend(seg.iter().map(|s| s.to_string()));
+        let before: Vec<&str> = before.iter().map(String::as_str).collect();
+        let o = cairn(&before, dir);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        segment_and_score(
+            dir,
+            &format!("{name}/synth.fits"),
+            &format!("run{name}"),
+            &seg,
+            &format!("{name}/synth-truth.csv"),
+            &format!("score{name}"),
+        );
+        let o = cairn(
+            &[
+                "compare",
+                &format!("run{name}"),
+                "--truth",
+                &format!("{name}/synth-truth.csv"),
+                "--baseline",
+                &format!("before-{map}"),
+                "-o",
+                &format!("base{name}"),
+                "-q",
+            ],
+            dir,
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let pairs = [
+        "compare",
+        "runa",
+        "runc",
+        "--truth",
+        "a/synth-truth.csv",
+        "--truth",
+        "c/synth-truth.csv",
+        "-q",
+    ];
+    let mut each = pairs.to_vec();
+    each.extend_from_slice(&[
+        "--baseline",
+        "before-base",
+        "--baseline",
+        "before-base2",
+        "-o",
+        "pooled",
+    ]);
+    let o = cairn(&each, dir);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let single = [
+        bin_counts(&dir.join("basea/completeness.csv")),
+        bin_counts(&dir.join("basec/completeness.csv")),
+    ];
+    assert_eq!(
+        bin_counts(&dir.join("pooled/completeness.csv")),
+        summed(&single)
+    );
+    let (hp, _) = csv(&dir.join("pooled/matches.csv"));
+    assert_eq!(
+        (hp[0].as_str(), hp.last().unwrap().as_str()),
+        ("set", "own_leaf")
+    );
+    // One baseline for injections into two maps: refused, nothing written.
+    let mut one = pairs.to_vec();
+    one.extend_from_slice(&["--baseline", "before-base", "-o", "one"]);
+    let o = cairn(&one, dir);
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(!dir.join("one").exists());
+    assert_eq!(o.stderr.trim_end().lines().count(), 1, "{}", o.stderr);
+    assert!(
+        o.stderr.contains("is a run of another map")
+            && o.stderr
+                .contains("or one --baseline per run, in the runs' order"),
+        "{}",
+        o.stderr
+    );
+    // Three baselines for two runs: refused with the rule.
+    let mut three = pairs.to_vec();
+    three.extend_from_slice(&[
+        "--baseline",
+        "before-base",
+        "--baseline",
+        "before-base2",
+        "--baseline",
+        "before-base",
+        "-o",
+        "three",
+    ]);
+    let o = cairn(&three, dir);
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(!dir.join("three").exists());
+    assert!(
+        o.stderr
+            .contains("3 --baseline runs were given for 2 runs; give one baseline for every pair"),
+        "{}",
+        o.stderr
+    );
+}
