@@ -898,11 +898,7 @@ impl Table {
                 // SAFETY: CFITSIO wrote a NUL-terminated card.
                 let card = unsafe { std::ffi::CStr::from_ptr(card.as_ptr()) }.to_string_lossy();
                 if status == 0 && comment_of(&card) != c.trim() {
-                    for line in wrap_words(&format!("{key}: {}", c.trim()), 70) {
-                        let text = cstr(&line);
-                        // SAFETY: an open FitsFile and a NUL-terminated string.
-                        unsafe { fitsio::sys::ffpcom(f.as_raw(), text.as_ptr(), &mut status) };
-                    }
+                    status = comment_cards(&mut f, &format!("{key}: {}", c.trim()));
                 }
             }
             if status == 0 && !long && !c.is_empty() {
@@ -940,18 +936,12 @@ impl Table {
         // The notes (what the kinds mean, the conventions, the cautions) as COMMENT cards,
         // each note wrapped at word boundaries, its continuation cards indented.
         for n in &self.notes {
-            let ascii = printable_ascii(n);
-            for line in wrap_words(&ascii, 70) {
-                let text = std::ffi::CString::new(line).expect("no NUL in an ASCII note");
-                let mut status = 0;
-                // SAFETY: an open FitsFile and a NUL-terminated string.
-                unsafe { fitsio::sys::ffpcom(f.as_raw(), text.as_ptr(), &mut status) };
-                if status != 0 {
-                    return Err(Error::output(
-                        path,
-                        format!("cannot be written as FITS (CFITSIO status {status})."),
-                    ));
-                }
+            let status = comment_cards(&mut f, &printable_ascii(n));
+            if status != 0 {
+                return Err(Error::output(
+                    path,
+                    format!("cannot be written as FITS (CFITSIO status {status})."),
+                ));
             }
         }
         // The rows are laid out in memory (big-endian, as FITS stores them) and written in one
@@ -1079,10 +1069,17 @@ fn whole_comment(
             break;
         }
     }
-    for line in wrap_words(&format!("{key}: {rest}"), 70) {
-        let text = std::ffi::CString::new(line).expect("no NUL in ASCII");
+    comment_cards(f, &format!("{key}: {rest}"))
+}
+
+/// Writes printable ASCII `text` as COMMENT cards, wrapped at word boundaries (continuation
+/// cards indented). Returns CFITSIO's status.
+fn comment_cards(f: &mut fitsio::FitsFile, text: &str) -> i32 {
+    let mut status = 0;
+    for line in wrap_words(text, 70) {
+        let line = std::ffi::CString::new(line).expect("no NUL in printable ASCII");
         // SAFETY: an open FitsFile and a NUL-terminated string.
-        unsafe { fitsio::sys::ffpcom(f.as_raw(), text.as_ptr(), &mut status) };
+        unsafe { fitsio::sys::ffpcom(f.as_raw(), line.as_ptr(), &mut status) };
     }
     status
 }
