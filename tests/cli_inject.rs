@@ -1627,6 +1627,25 @@ fn summed(
 /// pooled matches.csv holds both single tables' rows with a leading `set` column, and every
 /// bin's injected and recovered counts are the sums of the two tables' (with or without a
 /// baseline serving both pairs). The fraction of a pooled bin is its recovered over injected.
+/// A pooled scoring with baselines (`pooled`) counts, bin by bin, the sums of the pairs scored
+/// alone with theirs (`singles`), and its matches.csv leads with the set and ends with
+/// `own_leaf`.
+fn pooled_with_baselines_sums_the_pairs(dir: &Path, pooled: &str, singles: &[&str]) {
+    let single: Vec<_> = singles
+        .iter()
+        .map(|s| bin_counts(&dir.join(s).join("completeness.csv")))
+        .collect();
+    assert_eq!(
+        bin_counts(&dir.join(pooled).join("completeness.csv")),
+        summed(&single)
+    );
+    let (hp, _) = csv(&dir.join(pooled).join("matches.csv"));
+    assert_eq!(
+        (hp[0].as_str(), hp.last().unwrap().as_str()),
+        ("set", "own_leaf")
+    );
+}
+
 #[test]
 fn pooled_injections_add_their_counts_bin_by_bin() {
     let d = tempfile::tempdir().unwrap();
@@ -1747,19 +1766,7 @@ fn pooled_injections_add_their_counts_bin_by_bin() {
     with_baseline.extend_from_slice(&["--baseline", "before", "-o", "pooledbase"]);
     let o = cairn(&with_baseline, dir);
     assert_eq!(o.code, 0, "{}", o.stderr);
-    let single = [
-        bin_counts(&dir.join("basea/completeness.csv")),
-        bin_counts(&dir.join("baseb/completeness.csv")),
-    ];
-    assert_eq!(
-        bin_counts(&dir.join("pooledbase/completeness.csv")),
-        summed(&single)
-    );
-    let (hp, _) = csv(&dir.join("pooledbase/matches.csv"));
-    assert_eq!(
-        (hp[0].as_str(), hp.last().unwrap().as_str()),
-        ("set", "own_leaf")
-    );
+    pooled_with_baselines_sums_the_pairs(dir, "pooledbase", &["basea", "baseb"]);
 
     // A run of b made with another minimum area is pooled, but said to mix two extractions.
     let o = cairn(
@@ -2123,19 +2130,7 @@ fn injections_into_different_maps_pool_with_a_baseline_each() {
     ]);
     let o = cairn(&each, dir);
     assert_eq!(o.code, 0, "{}", o.stderr);
-    let single = [
-        bin_counts(&dir.join("basea/completeness.csv")),
-        bin_counts(&dir.join("basec/completeness.csv")),
-    ];
-    assert_eq!(
-        bin_counts(&dir.join("pooled/completeness.csv")),
-        summed(&single)
-    );
-    let (hp, _) = csv(&dir.join("pooled/matches.csv"));
-    assert_eq!(
-        (hp[0].as_str(), hp.last().unwrap().as_str()),
-        ("set", "own_leaf")
-    );
+    pooled_with_baselines_sums_the_pairs(dir, "pooled", &["basea", "basec"]);
     // One baseline for injections into two maps: refused, nothing written.
     let mut one = pairs.to_vec();
     one.extend_from_slice(&["--baseline", "before-base", "-o", "one"]);
