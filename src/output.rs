@@ -152,10 +152,17 @@ pub(crate) fn creating<R>(create: impl FnOnce() -> R) -> R {
     create()
 }
 
-/// Creates (or truncates) the temporary output file `path` for writing, under the interrupt
-/// handler's lock (see [`creating`]).
+/// Creates (or truncates) the temporary output file `path` for writing (and reading, so that
+/// it can be mapped), under the interrupt handler's lock (see [`creating`]).
 pub(crate) fn create_file(path: &Path) -> std::io::Result<std::fs::File> {
-    creating(|| std::fs::File::create(path))
+    creating(|| {
+        std::fs::OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create(true)
+            .truncate(true)
+            .open(path)
+    })
 }
 
 /// Refuses, before anything is written, a run whose output `name` in `dir` is one of its own
