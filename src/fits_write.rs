@@ -173,21 +173,118 @@ fn write_image_mapped_from<T: Pixel>(
     force: bool,
     mapped_from: usize,
 ) -> Result<(), FitsWriteError> {
+    let (ny, nx) = data.dim();
+    begin::<T>(path, ny, nx, header, force, mapped_from, false)?.finish(data)
+}
+
+/// An image file begun before its pixels are known: its temporary file made and, for a large
+/// image on Linux, the file's blocks reserved and its pages made ready through a mapping, so
+/// that finishing it later only converts the pixels. Begun by [`begin_image_i32`] (for
+/// example on a core left idle while the pixels are computed: making the pages ready is most
+/// of the time a large image takes to write on some machines), finished by
+/// [`ImageFile::finish_i32`]. Dropped unfinished, it removes its temporary file.
+pub struct ImageFile {
+    path: PathBuf,
+    tmp: PathBuf,
+    bitpix: i64,
+    dims: (usize, usize),
+    head: Vec<u8>,
+    file: Option<std::fs::File>,
+    #[cfg(target_os = "linux")]
+    map: Option<memmap2::MmapMut>,
+    finished: bool,
+}
+
+/// Begins a 32-bit integer image (a label map) of `ny` rows and `nx` columns at `path` with
+/// the cards of `header`, its pages made ready now (see [`ImageFile`]); refuses an existing
+/// `path` unless `force`.
+pub fn begin_image_i32(
+    path: &Path,
+    ny: usize,
+    nx: usize,
+    header: &Header,
+    force: bool,
+) -> Result<ImageFile, FitsWriteError> {
+    begin::<i32>(path, ny, nx, header, force, MAPPED_BYTES, true)
+}
+
+/// Begins an image of `T`: the target refused if present without `force`, the header made,
+/// the temporary file created and, from `mapped_from` bytes of pixels (Linux), mapped
+/// ([`mapping`]), its pages written once if `touch`.
+fn begin<T: Pixel>(
+    path: &Path,
+    ny: usize,
+    nx: usize,
+    header: &Header,
+    force: bool,
+    mapped_from: usize,
+    touch: bool,
+) -> Result<ImageFile, FitsWriteError> {
     let shown = path.display();
     if path.exists() && !force {
         return Err(FitsWriteError(format!(
             "{shown} already exists; not overwriting it (use --force to replace it)"
         )));
     }
-    let (ny, nx) = data.dim();
+    let head = header_bytes(header, T::BITPIX, nx, ny, &shown)?;
     let tmp = temp_path(path);
     let _ = std::fs::remove_file(&tmp);
-    let fail = |what: &str, e: &dyn fmt::Display| {
-        FitsWriteError(format!("cannot write {shown}: {what}: {e}"))
+    let file = crate::output::create_file(&tmp)
+        .map_err(|e| FitsWriteError(format!("cannot write {shown}: creating the file: {e}")))?;
+    #[allow(unused_mut)]
+    let mut image = ImageFile {
+        path: path.to_path_buf(),
+        tmp,
+        bitpix: T::BITPIX,
+        dims: (ny, nx),
+        head,
+        file: Some(file),
+        #[cfg(target_os = "linux")]
+        map: None,
+        finished: false,
     };
-    let result = (|| {
-        let head = header_bytes(header, T::BITPIX, nx, ny, &shown)?;
-        let f = crate::output::create_file(&tmp).map_err(|e| fail("creating the file", &e))?;
+    #[cfg(target_os = "linux")]
+    {
+        let pixel_bytes = nx * ny * 4;
+        if pixel_bytes >= mapped_from.max(1) {
+            let total = image.head.len() + pixel_bytes.div_ceil(BLOCK) * BLOCK;
+            let from = image.head.len();
+            let f = image.file.as_ref().expect("the file is open");
+            image.map =
+                mapping(f, total, from, touch).map_err(|e| image.fail("writing the pixels", &e))?;
+        }
+    }
+    #[cfg(not(target_os = "linux"))]
+    let _ = (mapped_from, touch);
+    Ok(image)
+}
+
+impl ImageFile {
+    fn fail(&self, what: &str, e: &dyn fmt::Display) -> FitsWriteError {
+        FitsWriteError(format!("cannot write {}: {what}: {e}", self.path.display()))
+    }
+
+    /// Writes the label map `data` (the size the file was begun with) and gives the file its
+    /// name.
+    pub fn finish_i32(self, data: ArrayView2<i32>) -> Result<(), FitsWriteError> {
+        self.finish(data)
+    }
+
+    /// Writes the header, the pixels and the padding (through the mapping if there is one,
+    /// else in pieces), then renames the temporary file to the target.
+    fn finish<T: Pixel>(mut self, data: ArrayView2<T>) -> Result<(), FitsWriteError> {
+        if T::BITPIX != self.bitpix || data.dim() != self.dims {
+            return Err(self.fail(
+                "the pixels",
+                &format!(
+                    "{:?} of BITPIX {} given for an image begun as {:?} of BITPIX {}",
+                    data.dim(),
+                    T::BITPIX,
+                    self.dims,
+                    self.bitpix
+                ),
+            ));
+        }
         // Straight from the array when it is contiguous, else through a copy.
         let owned: Vec<T>;
         let flat: &[T] = match data.as_slice() {
@@ -197,24 +294,43 @@ fn write_image_mapped_from<T: Pixel>(
                 &owned
             }
         };
-        if !write_mapped(&f, &head, flat, mapped_from)
-            .map_err(|e| fail("writing the pixels", &e))?
-        {
-            write_in_pieces(f, &head, flat).map_err(|(what, e)| fail(what, &e))?;
+        #[cfg(target_os = "linux")]
+        let mapped = self.map.take();
+        #[cfg(not(target_os = "linux"))]
+        let mapped: Option<()> = None;
+        match mapped {
+            #[cfg(target_os = "linux")]
+            Some(mut map) => fill(&mut map, &self.head, flat),
+            #[cfg(not(target_os = "linux"))]
+            Some(()) => {}
+            None => {
+                let f = self.file.take().expect("the file is open");
+                write_in_pieces(f, &self.head, flat).map_err(|(what, e)| self.fail(what, &e))?;
+            }
         }
+        self.file = None;
         // Under the interrupt handler's lock, as the file was created: an interrupt removes
         // either this temporary or the file it becomes.
-        crate::output::creating(|| std::fs::rename(&tmp, path))
-            .map_err(|e| fail("renaming the temporary file", &e))
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
+        crate::output::creating(|| std::fs::rename(&self.tmp, &self.path))
+            .map_err(|e| self.fail("renaming the temporary file", &e))?;
+        self.finished = true;
+        Ok(())
     }
-    result
+}
+
+impl Drop for ImageFile {
+    fn drop(&mut self) {
+        #[cfg(target_os = "linux")]
+        drop(self.map.take());
+        self.file = None;
+        if !self.finished {
+            let _ = std::fs::remove_file(&self.tmp);
+        }
+    }
 }
 
 /// Pixel bytes from which an image is written through a mapping of the file (Linux): 8 MiB.
-const MAPPED_BYTES: usize = 1 << 23;
+pub const MAPPED_BYTES: usize = 1 << 23;
 
 /// Writes the header, the pixels a large piece at a time and the block's padding to `f`, in
 /// order; on failure, what was being written and why.
@@ -244,72 +360,64 @@ fn convert<T: Pixel>(bytes: &mut [u8], pixels: &[T]) {
     }
 }
 
-/// On Linux, for images of at least `least_bytes` of pixels, writes the whole HDU (header,
-/// pixels, padding) into the empty file `f` through a shared mapping of it, the pixels
-/// converted by all threads: the page cache's pages are then taken by all threads at once
-/// rather than one at a time by `write` calls, which on the machine of BENCHMARKS.md made a
-/// 268 MB label map take 0.05-0.13 s instead of 0.16-0.64 s. The file's blocks are reserved
-/// first (`fallocate`), so that a full disk is an error here rather than a signal when a
-/// page of the mapping is written. `Ok(false)`, with nothing written, where this does not
-/// apply (a smaller image, another system, a file system without `fallocate`, no mapping);
-/// the caller then writes in pieces.
+/// A shared mapping of the empty file `f` made `total` bytes long, for writing a whole HDU
+/// through it: the page cache's pages are then taken by all threads at once (in [`fill`]) or
+/// ahead of time (with `touch`, each page from byte `from` on written once now) rather than
+/// one at a time by `write` calls, which on the machine of BENCHMARKS.md made a 268 MB label
+/// map take 0.05-0.13 s instead of 0.16-0.64 s. The file's blocks are reserved first
+/// (`fallocate`), so that a full disk is an error here rather than a signal when a page of
+/// the mapping is written. `Ok(None)`, the file left empty, where this does not apply (a file
+/// system without `fallocate`, no mapping); the image is then written in pieces.
 #[cfg(target_os = "linux")]
-fn write_mapped<T: Pixel + Sync>(
+fn mapping(
     f: &std::fs::File,
-    head: &[u8],
-    flat: &[T],
-    least_bytes: usize,
-) -> std::io::Result<bool> {
-    use rayon::prelude::*;
+    total: usize,
+    from: usize,
+    touch: bool,
+) -> std::io::Result<Option<memmap2::MmapMut>> {
     use std::os::fd::AsRawFd;
-    let pixel_bytes = flat.len() * 4;
-    if pixel_bytes < least_bytes || pixel_bytes == 0 {
-        return Ok(false);
-    }
-    let total = head.len() + pixel_bytes.div_ceil(BLOCK) * BLOCK;
     let Ok(len) = libc::off_t::try_from(total) else {
-        return Ok(false);
+        return Ok(None);
     };
     // SAFETY: a valid open file descriptor; mode 0 allocates the range and extends the file.
     if unsafe { libc::fallocate(f.as_raw_fd(), 0, 0, len) } != 0 {
         let e = std::io::Error::last_os_error();
         return match e.raw_os_error() {
-            Some(libc::EOPNOTSUPP | libc::ENOSYS | libc::EINVAL) => Ok(false),
+            Some(libc::EOPNOTSUPP | libc::ENOSYS | libc::EINVAL) => Ok(None),
             _ => Err(e),
         };
     }
     // SAFETY: the file is this run's own temporary file, just created and not yet renamed,
     // so no other program changes its length while it is mapped.
-    let Ok(mut map) = (unsafe { memmap2::MmapMut::map_mut(f) }) else {
-        // Back to an empty file for the writer in pieces.
-        f.set_len(0)?;
-        return Ok(false);
+    let map = match unsafe { memmap2::MmapMut::map_mut(f) } {
+        Ok(m) if m.len() == total => m,
+        _ => {
+            f.set_len(0)?;
+            return Ok(None);
+        }
     };
-    if map.len() != total {
-        drop(map);
-        f.set_len(0)?;
-        return Ok(false);
+    let mut map = map;
+    if touch {
+        for i in (from..total).step_by(4096) {
+            map[i] = 0;
+        }
     }
+    Ok(Some(map))
+}
+
+/// The header, the pixels (converted by all threads) and the padding into `map`, the whole
+/// HDU.
+#[cfg(target_os = "linux")]
+fn fill<T: Pixel>(map: &mut [u8], head: &[u8], flat: &[T]) {
+    use rayon::prelude::*;
     let (h, rest) = map.split_at_mut(head.len());
     h.copy_from_slice(head);
-    let (pixels, padding) = rest.split_at_mut(pixel_bytes);
+    let (pixels, padding) = rest.split_at_mut(flat.len() * 4);
     pixels
         .par_chunks_mut(PIECE_PIXELS * 4)
         .zip(flat.par_chunks(PIECE_PIXELS))
         .for_each(|(b, p)| convert(b, p));
     padding.fill(0);
-    Ok(true)
-}
-
-/// Elsewhere the image is always written in pieces.
-#[cfg(not(target_os = "linux"))]
-fn write_mapped<T: Pixel + Sync>(
-    _f: &std::fs::File,
-    _head: &[u8],
-    _flat: &[T],
-    _least_bytes: usize,
-) -> std::io::Result<bool> {
-    Ok(false)
 }
 
 #[cfg(test)]
@@ -425,28 +533,53 @@ mod tests {
         assert!(!path.exists());
     }
 
-    /// On Linux the mapped writer is the one used from its size on (not a silent fall-back to
-    /// the writer in pieces), and it leaves the file at the HDU's length.
-    #[cfg(target_os = "linux")]
+    /// On Linux the mapping is used from its size on (not a silent fall-back to the writer in
+    /// pieces) and leaves the file at the HDU's length; a file begun ahead, its pages made
+    /// ready, gets the same bytes as one written at once (and CFITSIO's, above); an unfinished
+    /// one leaves nothing, and pixels of another size are refused.
     #[test]
-    fn mapped_writer_applies_from_its_size() {
+    fn begun_images_finish_as_written_at_once() {
         let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("m.fits");
-        let head = vec![b' '; BLOCK];
-        let pixels: Vec<i32> = (0..1000).collect();
-        let f = crate::output::create_file(&path).unwrap();
-        assert!(!write_mapped(&f, &head, &pixels, 4001).unwrap());
-        assert_eq!(
-            f.metadata().unwrap().len(),
-            0,
-            "nothing written below the size"
-        );
-        assert!(write_mapped(&f, &head, &pixels, 4000).unwrap());
-        drop(f);
-        let bytes = std::fs::read(&path).unwrap();
-        assert_eq!(bytes.len(), 3 * BLOCK);
-        assert_eq!(&bytes[BLOCK + 4 * 999..BLOCK + 4000], &999i32.to_be_bytes());
-        assert!(bytes[BLOCK + 4000..].iter().all(|&b| b == 0));
+        let mut h = Header::new();
+        h.set("BLANKID", Value::Int(-1), "");
+        let l = Array2::<i32>::from_shape_fn((40, 25), |(y, x)| (y * 25 + x) as i32 - 3);
+        #[cfg(target_os = "linux")]
+        {
+            let path = dir.path().join("m.fits");
+            let below = begin::<i32>(&path, 40, 25, &h, false, 4001, false).unwrap();
+            assert!(below.map.is_none());
+            drop(below);
+            let at = begin::<i32>(&path, 40, 25, &h, false, 4000, false).unwrap();
+            assert!(at.map.as_ref().is_some_and(|m| m.len() == 3 * BLOCK));
+            at.finish(l.view()).unwrap();
+            let bytes = std::fs::read(&path).unwrap();
+            assert_eq!(bytes.len(), 3 * BLOCK);
+            assert_eq!(&bytes[BLOCK + 4 * 999..BLOCK + 4000], &996i32.to_be_bytes());
+            assert!(bytes[BLOCK + 4000..].iter().all(|&b| b == 0));
+        }
+        let once = dir.path().join("once.fits");
+        write_image_i32(&once, l.view(), &h, false).unwrap();
+        for (k, from) in [MAPPED_BYTES, 0].into_iter().enumerate() {
+            let path = dir.path().join(format!("begun-{k}.fits"));
+            let begun = begin::<i32>(&path, 40, 25, &h, false, from, true).unwrap();
+            begun.finish(l.view()).unwrap();
+            assert!(std::fs::read(&path).unwrap() == std::fs::read(&once).unwrap());
+        }
+        let names = || {
+            let mut v: Vec<String> = std::fs::read_dir(dir.path())
+                .unwrap()
+                .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+                .collect();
+            v.sort();
+            v
+        };
+        let before = names();
+        let path = dir.path().join("left.fits");
+        drop(begin_image_i32(&path, 40, 25, &h, false).unwrap());
+        let wrong = begin::<i32>(&path, 40, 25, &h, false, 0, true).unwrap();
+        let err = wrong.finish(l.t()).unwrap_err();
+        assert!(err.0.contains("left.fits"), "{err}");
+        assert_eq!(names(), before, "no file left by an unfinished image");
     }
 
     #[test]

@@ -1277,6 +1277,42 @@ fn label_header(map: &Map, what: &str) -> Header {
     h
 }
 
+/// A result made on a thread of its own, started at most once; awaited when taken and when
+/// dropped, so that nothing the thread makes (a temporary file) outlives its owner.
+struct Joined<T>(std::sync::Mutex<Option<std::thread::JoinHandle<T>>>);
+
+impl<T> Default for Joined<T> {
+    fn default() -> Self {
+        Joined(std::sync::Mutex::new(None))
+    }
+}
+
+impl<T: Send + 'static> Joined<T> {
+    /// Starts `make` on a new thread unless one was started already.
+    fn start(&self, make: impl FnOnce() -> T + Send + 'static) {
+        let mut h = self.0.lock().unwrap_or_else(|e| e.into_inner());
+        if h.is_none() {
+            *h = Some(std::thread::spawn(make));
+        }
+    }
+
+    /// The result, once the thread has made it (`None` if it was never started or stopped
+    /// without one).
+    fn take(&self) -> Option<T> {
+        let h = self.0.lock().unwrap_or_else(|e| e.into_inner()).take();
+        h.and_then(|h| h.join().ok())
+    }
+}
+
+impl<T> Drop for Joined<T> {
+    fn drop(&mut self) {
+        let h = self.0.get_mut().unwrap_or_else(|e| e.into_inner()).take();
+        if let Some(h) = h {
+            let _ = h.join();
+        }
+    }
+}
+
 /// What the measuring side of [`run`] hands on once its files are written.
 struct Analysed {
     ms: std::sync::Arc<Vec<Measurement>>,
@@ -1365,12 +1401,33 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         min_area: r.min_area_px,
         connectivity: o.connectivity,
     };
+    // The label map's file is begun on the idle core too, on large maps (those written
+    // through a mapping, `fits_write::MAPPED_BYTES`): its pages made ready there, writing it
+    // once the hierarchy is built only converts the labels. Awaited on every way out of the
+    // run, so that no temporary file outlives it.
+    let labels_path = outputs.temp(names::LABELS);
+    let begun_labels: Joined<std::result::Result<crate::fits_write::ImageFile, String>> =
+        Joined::default();
+    let ahead = map.data.len() * 4 >= crate::fits_write::MAPPED_BYTES;
+    let on_core_free = || {
+        start_hashing();
+        if ahead {
+            let (path, header) = (
+                labels_path.clone(),
+                label_header(map, "smallest structure id per pixel"),
+            );
+            let (ny, nx) = map.data.dim();
+            begun_labels.start(move || {
+                crate::fits_write::begin_image_i32(&path, ny, nx, &header, true).map_err(|e| e.0)
+            });
+        }
+    };
     let t_tree = Instant::now();
     let h = match hierarchy::build_with_hooks(
         map.data.view(),
         &params,
         &|f| progress("hierarchy", f),
-        &start_hashing,
+        &on_core_free,
     ) {
         Ok(h) => h,
         Err(hierarchy::HierarchyError::FloorAboveMaximum { floor, max }) => {
@@ -1406,18 +1463,24 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let h = &h;
     progress("measure", 0.0);
     // The label maps, written by the FITS thread below.
-    let labels_path = outputs.temp(names::LABELS);
     let grown_path = o.grow_leaves.then(|| outputs.temp(names::GROWN));
     // With --grow-leaves, also the grown leaves as structures of their own, for their catalogue.
     let write_label_maps = || -> Result<(f64, Option<hierarchy::GrownLeaves>)> {
         let t = Instant::now();
-        crate::fits_write::write_image_i32(
-            &labels_path,
-            h.labels.view(),
-            &label_header(map, "smallest structure id per pixel"),
-            true,
-        )
-        .map_err(|e| Error::output(&o.output.join(names::LABELS), e.0))?;
+        let labels_failed = |e: String| Error::output(&o.output.join(names::LABELS), e);
+        match begun_labels.take() {
+            Some(begun) => begun
+                .map_err(labels_failed)?
+                .finish_i32(h.labels.view())
+                .map_err(|e| labels_failed(e.0))?,
+            None => crate::fits_write::write_image_i32(
+                &labels_path,
+                h.labels.view(),
+                &label_header(map, "smallest structure id per pixel"),
+                true,
+            )
+            .map_err(|e| labels_failed(e.0))?,
+        }
         if let Some(path) = &grown_path {
             let g = hierarchy::grow_leaves(map.data.view(), h, r.floor);
             crate::fits_write::write_image_i32(

@@ -217,6 +217,82 @@ fn catalogues_are_byte_identical_with_one_and_two_threads() {
     }
 }
 
+/// On a map whose label map is large enough to be begun while the hierarchy is built (its file
+/// made ready on an idle core, `fits_write::MAPPED_BYTES`), `labels.fits` holds the
+/// hierarchy's labels as CFITSIO (through the `fitsio` crate) reads them back, the same with 1
+/// and 2 threads (with one, the file is begun as the sweep starts), and no temporary file is
+/// left in the output folder.
+#[test]
+fn large_label_maps_begun_ahead_hold_the_hierarchy() {
+    let (nx, ny) = (1500, 1450);
+    assert!(nx * ny * 4 >= cairn::fits_write::MAPPED_BYTES);
+    let spec = SynthSpec {
+        nx,
+        ny,
+        noise_rms: 1.0e20,
+        seed: 21,
+        ..SynthSpec::default()
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let (path, _) = write_map(dir.path(), &spec);
+    let map = cairn::map::load(&path, &Default::default()).unwrap();
+    let (floor, prominence) = (2.5e21, 3.0e20);
+    let expected = cairn::hierarchy::build(
+        map.data.view(),
+        &cairn::hierarchy::Params {
+            floor,
+            prominence,
+            min_area: 10,
+            connectivity: Connectivity::Eight,
+        },
+    )
+    .unwrap()
+    .labels;
+    assert!(expected.iter().any(|&l| l >= 0) && expected.iter().any(|&l| l < 0));
+    let mut files = Vec::new();
+    for threads in [1, 2] {
+        let out = dir.path().join(format!("run{threads}"));
+        let mut o = options(&out, Level::Value(floor), Level::Value(prominence), 1.0e20);
+        o.min_area = Some(Area::Pixels(10.0));
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| cairn::segment::run(&map, &o, &|_, _| {}))
+            .unwrap();
+        let mut f = fitsio::FitsFile::open(out.join("labels.fits")).unwrap();
+        let hdu = f.primary_hdu().unwrap();
+        let back: Vec<i32> = hdu.read_image(&mut f).unwrap();
+        assert!(
+            back.as_slice() == expected.as_slice().unwrap(),
+            "{threads} thread(s): labels.fits differs from the hierarchy's labels"
+        );
+        let mut names: Vec<String> = std::fs::read_dir(&out)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        assert_eq!(
+            names,
+            [
+                "hierarchy.dot",
+                "hierarchy.json",
+                "labels.fits",
+                "run.json",
+                "structures.csv",
+                "structures.fits",
+                "structures.vot"
+            ],
+            "{threads} thread(s)"
+        );
+        files.push(std::fs::read(out.join("labels.fits")).unwrap());
+    }
+    assert!(
+        files[0] == files[1],
+        "labels.fits differs between 1 and 2 threads"
+    );
+}
+
 /// The catalogue gives centroids in a second frame: ICRS for a galactic map, galactic for an
 /// ICRS one, each the conversion of the map-frame columns (whose numbers are checked against
 /// astropy.coordinates in tests/wcs_astropy.rs and tests/segment_reference.rs).
