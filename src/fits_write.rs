@@ -295,18 +295,16 @@ impl ImageFile {
             }
         };
         #[cfg(target_os = "linux")]
-        let mapped = self.map.take();
+        let mapped = self
+            .map
+            .take()
+            .map(|mut map| fill(&mut map, &self.head, flat))
+            .is_some();
         #[cfg(not(target_os = "linux"))]
-        let mapped: Option<()> = None;
-        match mapped {
-            #[cfg(target_os = "linux")]
-            Some(mut map) => fill(&mut map, &self.head, flat),
-            #[cfg(not(target_os = "linux"))]
-            Some(()) => {}
-            None => {
-                let f = self.file.take().expect("the file is open");
-                write_in_pieces(f, &self.head, flat).map_err(|(what, e)| self.fail(what, &e))?;
-            }
+        let mapped = false;
+        if !mapped {
+            let f = self.file.take().expect("the file is open");
+            write_in_pieces(f, &self.head, flat).map_err(|(what, e)| self.fail(what, &e))?;
         }
         self.file = None;
         // Under the interrupt handler's lock, as the file was created: an interrupt removes
