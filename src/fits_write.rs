@@ -8,9 +8,10 @@
 //!
 //! The files are exactly those CFITSIO writes for the same image and cards (a unit test
 //! compares them byte for byte with files written through the `fitsio` crate), but in a few
-//! large writes: CFITSIO passes the pixels through its 2880-byte buffers, several hundred
-//! system calls for a 1024 x 1024 label map, which took about twice as long. Tables and all
-//! reading stay with CFITSIO.
+//! large writes or, for large images on Linux, through a mapping of the file filled by all
+//! threads: CFITSIO passes the pixels through its 2880-byte buffers, several hundred system
+//! calls for a 1024 x 1024 label map, which took about twice as long. Tables and all reading
+//! stay with CFITSIO.
 
 use crate::header::Header;
 use ndarray::ArrayView2;
@@ -57,12 +58,16 @@ fn is_structural(key: &str) -> bool {
             .is_some_and(|r| !r.is_empty() && r.bytes().all(|b| b.is_ascii_digit()))
 }
 
+/// A temporary name beside `path` of its own: `.NAME.part-PID-K`, K counting the images this
+/// process has begun, so that two images begun for one target never share a file.
 fn temp_path(path: &Path) -> PathBuf {
+    static BEGUN: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+    let k = BEGUN.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_default();
-    path.with_file_name(format!(".{name}.part-{}", std::process::id()))
+    path.with_file_name(format!(".{name}.part-{}-{k}", std::process::id()))
 }
 
 /// A pixel type of an image HDU: its BITPIX and its big-endian bytes.
@@ -152,7 +157,7 @@ fn header_bytes(
 
 /// Writes the primary image HDU itself: the header ([`header_bytes`]), then the pixels in
 /// big-endian order, then zeros to the end of the block; large images through a mapping of the
-/// file filled by all threads ([`write_mapped`]), others a large piece at a time
+/// file filled by all threads ([`mapping`], [`fill`]), others a large piece at a time
 /// ([`write_in_pieces`]). The bytes are those CFITSIO writes for the same image and cards (a
 /// test compares them, both ways), in a few dozen system calls where CFITSIO makes one per few
 /// of its 2880-byte buffers (hundreds for a 1024 x 1024 label map).
@@ -197,7 +202,9 @@ pub struct ImageFile {
 
 /// Begins a 32-bit integer image (a label map) of `ny` rows and `nx` columns at `path` with
 /// the cards of `header`, its pages made ready now (see [`ImageFile`]); refuses an existing
-/// `path` unless `force`.
+/// `path` unless `force`. That check is made now: finishing renames the file over whatever
+/// lies at `path` then, so a caller that must not replace a file made meanwhile writes to a
+/// name of its own (as `segment` does, to its outputs' temporary names).
 pub fn begin_image_i32(
     path: &Path,
     ny: usize,
@@ -227,9 +234,13 @@ fn begin<T: Pixel>(
         )));
     }
     let head = header_bytes(header, T::BITPIX, nx, ny, &shown)?;
+    let Some(pixel_bytes) = nx.checked_mul(ny).and_then(|n| n.checked_mul(4)) else {
+        return Err(FitsWriteError(format!(
+            "cannot write {shown}: an image of {nx} x {ny} pixels is too large"
+        )));
+    };
     let tmp = temp_path(path);
-    let _ = std::fs::remove_file(&tmp);
-    let file = crate::output::create_file(&tmp)
+    let file = crate::output::create_new_file(&tmp)
         .map_err(|e| FitsWriteError(format!("cannot write {shown}: creating the file: {e}")))?;
     #[allow(unused_mut)]
     let mut image = ImageFile {
@@ -245,7 +256,6 @@ fn begin<T: Pixel>(
     };
     #[cfg(target_os = "linux")]
     {
-        let pixel_bytes = nx * ny * 4;
         if pixel_bytes >= mapped_from.max(1) {
             let total = image.head.len() + pixel_bytes.div_ceil(BLOCK) * BLOCK;
             let from = image.head.len();
@@ -255,7 +265,7 @@ fn begin<T: Pixel>(
         }
     }
     #[cfg(not(target_os = "linux"))]
-    let _ = (mapped_from, touch);
+    let _ = (mapped_from, touch, pixel_bytes);
     Ok(image)
 }
 
@@ -360,7 +370,7 @@ fn convert<T: Pixel>(bytes: &mut [u8], pixels: &[T]) {
 
 /// A shared mapping of the empty file `f` made `total` bytes long, for writing a whole HDU
 /// through it: the page cache's pages are then taken by all threads at once (in [`fill`]) or
-/// ahead of time (with `touch`, each page from byte `from` on written once now) rather than
+/// ahead of time (with `touch`, each page from byte `from` on read once now) rather than
 /// one at a time by `write` calls, which on the machine of BENCHMARKS.md made a 268 MB label
 /// map take 0.05-0.13 s instead of 0.16-0.64 s. The file's blocks are reserved first
 /// (`fallocate`), so that a full disk is an error here rather than a signal when a page of
@@ -381,9 +391,18 @@ fn mapping(
     if unsafe { libc::fallocate(f.as_raw_fd(), 0, 0, len) } != 0 {
         let e = std::io::Error::last_os_error();
         return match e.raw_os_error() {
-            Some(libc::EOPNOTSUPP | libc::ENOSYS | libc::EINVAL) => Ok(None),
+            Some(libc::EOPNOTSUPP | libc::ENOSYS | libc::EINVAL | libc::EPERM) => Ok(None),
             _ => Err(e),
         };
+    }
+    // Some file systems accept `fallocate` without reserving the blocks (ZFS checks the free
+    // room and leaves the file sparse): there a page written later could still find no room.
+    {
+        use std::os::unix::fs::MetadataExt;
+        if f.metadata()?.blocks().saturating_mul(512) < total as u64 {
+            f.set_len(0)?;
+            return Ok(None);
+        }
     }
     // SAFETY: the file is this run's own temporary file, just created and not yet renamed,
     // so no other program changes its length while it is mapped.
@@ -394,11 +413,15 @@ fn mapping(
             return Ok(None);
         }
     };
-    let mut map = map;
     if touch {
-        for i in (from..total).step_by(4096) {
-            map[i] = 0;
+        // Each page (of 4 KiB or more) of the pixels read once: the page cache's pages are
+        // taken now, without being made dirty (written now, a sweep longer than the kernel's
+        // writeback delay would have them written to disk twice).
+        let mut seen = 0u8;
+        for i in (from & !4095..total).step_by(4096).chain([total - 1]) {
+            seen ^= map[i];
         }
+        std::hint::black_box(seen);
     }
     Ok(Some(map))
 }
@@ -543,12 +566,26 @@ mod tests {
         let l = Array2::<i32>::from_shape_fn((40, 25), |(y, x)| (y * 25 + x) as i32 - 3);
         #[cfg(target_os = "linux")]
         {
+            // Whether this folder's file system reserves blocks with fallocate (where it does
+            // not, images are written in pieces by design, and the mapping is not tested here).
+            let probe = crate::output::create_file(&dir.path().join("probe")).unwrap();
+            let supported = mapping(&probe, 3 * BLOCK, BLOCK, false).unwrap().is_some();
+            drop(probe);
+            std::fs::remove_file(dir.path().join("probe")).unwrap();
+            if !supported {
+                eprintln!(
+                    "the temporary folder's file system does not reserve blocks: mapping not tested"
+                );
+            }
             let path = dir.path().join("m.fits");
             let below = begin::<i32>(&path, 40, 25, &h, false, 4001, false).unwrap();
             assert!(below.map.is_none());
             drop(below);
             let at = begin::<i32>(&path, 40, 25, &h, false, 4000, false).unwrap();
-            assert!(at.map.as_ref().is_some_and(|m| m.len() == 3 * BLOCK));
+            assert_eq!(
+                at.map.as_ref().map(|m| m.len()),
+                supported.then_some(3 * BLOCK)
+            );
             at.finish(l.view()).unwrap();
             let bytes = std::fs::read(&path).unwrap();
             assert_eq!(bytes.len(), 3 * BLOCK);
@@ -571,6 +608,18 @@ mod tests {
             v.sort();
             v
         };
+        // Two images begun for one target keep their own temporary files: each finishes with
+        // its own pixels, the last one finished stays.
+        let twice = dir.path().join("twice.fits");
+        let a = begin::<i32>(&twice, 40, 25, &h, false, 0, true).unwrap();
+        let b = begin::<i32>(&twice, 40, 25, &h, false, 0, true).unwrap();
+        let l9 = l.mapv(|v| v + 9);
+        a.finish(l.view()).unwrap();
+        assert!(std::fs::read(&twice).unwrap() == std::fs::read(&once).unwrap());
+        b.finish(l9.view()).unwrap();
+        let once9 = dir.path().join("once9.fits");
+        write_image_i32(&once9, l9.view(), &h, false).unwrap();
+        assert!(std::fs::read(&twice).unwrap() == std::fs::read(&once9).unwrap());
         let before = names();
         let path = dir.path().join("left.fits");
         drop(begin_image_i32(&path, 40, 25, &h, false).unwrap());

@@ -165,6 +165,18 @@ pub(crate) fn create_file(path: &Path) -> std::io::Result<std::fs::File> {
     })
 }
 
+/// Creates the temporary output file `path`, which must not exist yet, for writing and reading,
+/// under the interrupt handler's lock (see [`creating`]).
+pub(crate) fn create_new_file(path: &Path) -> std::io::Result<std::fs::File> {
+    creating(|| {
+        std::fs::OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create_new(true)
+            .open(path)
+    })
+}
+
 /// Refuses, before anything is written, a run whose output `name` in `dir` is one of its own
 /// `inputs` (a map kept in the output folder under an output's name would be replaced).
 pub fn refuse_inputs_as_outputs(dir: &Path, names: &[String], inputs: &[&Path]) -> Result<()> {

@@ -1288,11 +1288,12 @@ impl<T> Default for Joined<T> {
 }
 
 impl<T: Send + 'static> Joined<T> {
-    /// Starts `make` on a new thread unless one was started already.
+    /// Starts `make` on a new thread unless one was started already (or the system refuses
+    /// a thread: then there is nothing to take).
     fn start(&self, make: impl FnOnce() -> T + Send + 'static) {
         let mut h = self.0.lock().unwrap_or_else(|e| e.into_inner());
         if h.is_none() {
-            *h = Some(std::thread::spawn(make));
+            *h = std::thread::Builder::new().spawn(make).ok();
         }
     }
 
@@ -1402,13 +1403,15 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         connectivity: o.connectivity,
     };
     // The label map's file is begun on the idle core too, on large maps (those written
-    // through a mapping, `fits_write::MAPPED_BYTES`): its pages made ready there, writing it
-    // once the hierarchy is built only converts the labels. Awaited on every way out of the
-    // run, so that no temporary file outlives it.
+    // through a mapping, `fits_write::MAPPED_BYTES`, on Linux) when there is a second thread:
+    // its pages made ready there, writing it once the hierarchy is built only converts the
+    // labels. Awaited on every way out of the run, so that no temporary file outlives it.
     let labels_path = outputs.temp(names::LABELS);
     let begun_labels: Joined<std::result::Result<crate::fits_write::ImageFile, String>> =
         Joined::default();
-    let ahead = map.data.len() * 4 >= crate::fits_write::MAPPED_BYTES;
+    let ahead = cfg!(target_os = "linux")
+        && rayon::current_num_threads() > 1
+        && map.data.len() * 4 >= crate::fits_write::MAPPED_BYTES;
     let on_core_free = || {
         start_hashing();
         if ahead {

@@ -218,10 +218,11 @@ fn catalogues_are_byte_identical_with_one_and_two_threads() {
 }
 
 /// On a map whose label map is large enough to be begun while the hierarchy is built (its file
-/// made ready on an idle core, `fits_write::MAPPED_BYTES`), `labels.fits` holds the
-/// hierarchy's labels as CFITSIO (through the `fitsio` crate) reads them back, the same with 1
-/// and 2 threads (with one, the file is begun as the sweep starts), and no temporary file is
-/// left in the output folder.
+/// made ready on an idle core, `fits_write::MAPPED_BYTES`; on Linux, with two threads),
+/// `labels.fits` holds the hierarchy's labels as CFITSIO (through the `fitsio` crate) reads
+/// them back, the same with 1 thread (where it is written at once) and 2, and no temporary
+/// file is left in the output folder. (Which way the file was written is not visible from
+/// here; both ways give these bytes.)
 #[test]
 fn large_label_maps_begun_ahead_hold_the_hierarchy() {
     let (nx, ny) = (1500, 1450);
