@@ -34,6 +34,15 @@ fn write_map(dir: &std::path::Path, spec: &SynthSpec) -> (std::path::PathBuf, sy
     (p, m)
 }
 
+/// The map of `spec` written as FITS into a new temporary folder and loaded back: the folder,
+/// the synthesis and the map as `segment` reads it.
+fn written_and_loaded(spec: &SynthSpec) -> (tempfile::TempDir, synth::SynthMap, cairn::map::Map) {
+    let dir = tempfile::tempdir().unwrap();
+    let (path, m) = write_map(dir.path(), spec);
+    let map = cairn::map::load(&path, &Default::default()).unwrap();
+    (dir, m, map)
+}
+
 fn leaves_of(csv: &str) -> Vec<(f64, f64)> {
     let mut lines = csv.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
@@ -75,9 +84,7 @@ fn isolated_bright_cores_are_recovered_as_one_leaf_each() {
         seed: 77,
         ..SynthSpec::default()
     };
-    let dir = tempfile::tempdir().unwrap();
-    let (path, m) = write_map(dir.path(), &spec);
-    let map = cairn::map::load(&path, &Default::default()).unwrap();
+    let (dir, m, map) = written_and_loaded(&spec);
     let out = dir.path().join("run");
     cairn::segment::run(
         &map,
@@ -145,9 +152,7 @@ fn pure_noise_gives_no_leaf_of_five_sigma_prominence() {
         seed: 5,
         ..SynthSpec::default()
     };
-    let dir = tempfile::tempdir().unwrap();
-    let (path, _) = write_map(dir.path(), &spec);
-    let map = cairn::map::load(&path, &Default::default()).unwrap();
+    let (dir, _, map) = written_and_loaded(&spec);
     let out = dir.path().join("run");
     // Floor far below the noise: every pixel takes part; only the prominence decides.
     let mut o = options(&out, Level::Value(-1.0), Level::Sigma(5.0), noise);
@@ -183,9 +188,7 @@ fn catalogues_are_byte_identical_with_one_and_two_threads() {
         seed: 9,
         ..SynthSpec::default()
     };
-    let dir = tempfile::tempdir().unwrap();
-    let (path, _) = write_map(dir.path(), &spec);
-    let map = cairn::map::load(&path, &Default::default()).unwrap();
+    let (dir, _, map) = written_and_loaded(&spec);
     let mut outputs = Vec::new();
     for threads in [1, 2] {
         let out = dir.path().join(format!("run{threads}"));
@@ -234,9 +237,7 @@ fn large_label_maps_begun_ahead_hold_the_hierarchy() {
         seed: 21,
         ..SynthSpec::default()
     };
-    let dir = tempfile::tempdir().unwrap();
-    let (path, _) = write_map(dir.path(), &spec);
-    let map = cairn::map::load(&path, &Default::default()).unwrap();
+    let (dir, _, map) = written_and_loaded(&spec);
     let (floor, prominence) = (2.5e21, 3.0e20);
     let expected = cairn::hierarchy::build(
         map.data.view(),
@@ -324,9 +325,7 @@ fn centroids_are_also_given_in_the_other_frame() {
             seed: 4,
             ..SynthSpec::default()
         };
-        let dir = tempfile::tempdir().unwrap();
-        let (path, _) = write_map(dir.path(), &spec);
-        let map = cairn::map::load(&path, &Default::default()).unwrap();
+        let (dir, _, map) = written_and_loaded(&spec);
         let out = dir.path().join("run");
         let o = options(&out, Level::Value(2.0e21), Level::Sigma(3.0), 1.0e20);
         cairn::segment::run(&map, &o, &|_, _| {}).unwrap();
