@@ -43,6 +43,16 @@ fn written_and_loaded(spec: &SynthSpec) -> (tempfile::TempDir, synth::SynthMap, 
     (dir, m, map)
 }
 
+/// `segment` on `map` in a pool of `threads` threads.
+fn run_with_threads(map: &cairn::map::Map, o: &SegmentOptions, threads: usize) {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .unwrap();
+    pool.install(|| cairn::segment::run(map, o, &|_, _| {}))
+        .unwrap();
+}
+
 fn leaves_of(csv: &str) -> Vec<(f64, f64)> {
     let mut lines = csv.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
@@ -194,12 +204,7 @@ fn catalogues_are_byte_identical_with_one_and_two_threads() {
         let out = dir.path().join(format!("run{threads}"));
         let mut o = options(&out, Level::Value(3.5e21), Level::Sigma(3.0), 1.0e20);
         o.grow_leaves = true;
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| cairn::segment::run(&map, &o, &|_, _| {}))
-            .unwrap();
+        run_with_threads(&map, &o, threads);
         outputs.push(out);
     }
     for name in [
@@ -256,12 +261,7 @@ fn large_label_maps_begun_ahead_hold_the_hierarchy() {
         let out = dir.path().join(format!("run{threads}"));
         let mut o = options(&out, Level::Value(floor), Level::Value(prominence), 1.0e20);
         o.min_area = Some(Area::Pixels(10.0));
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| cairn::segment::run(&map, &o, &|_, _| {}))
-            .unwrap();
+        run_with_threads(&map, &o, threads);
         let mut f = fitsio::FitsFile::open(out.join("labels.fits")).unwrap();
         let hdu = f.primary_hdu().unwrap();
         let back: Vec<i32> = hdu.read_image(&mut f).unwrap();
