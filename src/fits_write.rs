@@ -38,7 +38,7 @@ pub fn write_image_f32(
     header: &Header,
     force: bool,
 ) -> Result<(), FitsWriteError> {
-    write_image(path, data, header, force)
+    write_image(path, data, header, force, MAPPED_BYTES)
 }
 
 /// Writes a 32-bit integer image (BITPIX = 32), e.g. a label map.
@@ -48,7 +48,7 @@ pub fn write_image_i32(
     header: &Header,
     force: bool,
 ) -> Result<(), FitsWriteError> {
-    write_image(path, data, header, force)
+    write_image(path, data, header, force, MAPPED_BYTES)
 }
 
 fn is_structural(key: &str) -> bool {
@@ -160,18 +160,9 @@ fn header_bytes(
 /// file filled by all threads ([`mapping`], [`fill`]), others a large piece at a time
 /// ([`write_in_pieces`]). The bytes are those CFITSIO writes for the same image and cards (a
 /// test compares them, both ways), in a few dozen system calls where CFITSIO makes one per few
-/// of its 2880-byte buffers (hundreds for a 1024 x 1024 label map).
+/// of its 2880-byte buffers (hundreds for a 1024 x 1024 label map). The file is mapped for
+/// images of at least `mapped_from` bytes of pixels ([`MAPPED_BYTES`] but in tests).
 fn write_image<T: Pixel>(
-    path: &Path,
-    data: ArrayView2<T>,
-    header: &Header,
-    force: bool,
-) -> Result<(), FitsWriteError> {
-    write_image_mapped_from(path, data, header, force, MAPPED_BYTES)
-}
-
-/// [`write_image`], mapping the file for images of at least `mapped_from` bytes of pixels.
-fn write_image_mapped_from<T: Pixel>(
     path: &Path,
     data: ArrayView2<T>,
     header: &Header,
@@ -520,13 +511,13 @@ mod tests {
                 f[[0, 0]] = -0.0;
                 let l = Array2::<i32>::from_shape_fn((ny, nx), |(y, x)| (y * nx + x) as i32 - 7);
                 let name = |what: &str| dir.path().join(format!("{what}-{k}-{j}.fits"));
-                write_image_mapped_from(&name("f"), f.view(), h, false, from).unwrap();
+                write_image(&name("f"), f.view(), h, false, from).unwrap();
                 cfitsio_reference(&name("rf"), f.view(), fitsio::images::ImageType::Float, h);
-                write_image_mapped_from(&name("i"), l.view(), h, false, from).unwrap();
+                write_image(&name("i"), l.view(), h, false, from).unwrap();
                 cfitsio_reference(&name("ri"), l.view(), fitsio::images::ImageType::Long, h);
                 // A transposed view is not contiguous.
                 let t = f.t();
-                write_image_mapped_from(&name("t"), t, h, false, from).unwrap();
+                write_image(&name("t"), t, h, false, from).unwrap();
                 cfitsio_reference(&name("rt"), t, fitsio::images::ImageType::Float, h);
                 for (a, b) in [("f", "rf"), ("i", "ri"), ("t", "rt")] {
                     let (x, y) = (
@@ -568,7 +559,7 @@ mod tests {
         {
             // Whether this folder's file system reserves blocks with fallocate (where it does
             // not, images are written in pieces by design, and the mapping is not tested here).
-            let probe = crate::output::create_file(&dir.path().join("probe")).unwrap();
+            let probe = crate::output::create_new_file(&dir.path().join("probe")).unwrap();
             let supported = mapping(&probe, 3 * BLOCK, BLOCK, false).unwrap().is_some();
             drop(probe);
             std::fs::remove_file(dir.path().join("probe")).unwrap();

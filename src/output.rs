@@ -152,21 +152,14 @@ pub(crate) fn creating<R>(create: impl FnOnce() -> R) -> R {
     create()
 }
 
-/// Creates (or truncates) the temporary output file `path` for writing (and reading, so that
-/// it can be mapped), under the interrupt handler's lock (see [`creating`]).
+/// Creates (or truncates) the temporary output file `path` for writing, under the interrupt
+/// handler's lock (see [`creating`]).
 pub(crate) fn create_file(path: &Path) -> std::io::Result<std::fs::File> {
-    creating(|| {
-        std::fs::OpenOptions::new()
-            .read(true)
-            .write(true)
-            .create(true)
-            .truncate(true)
-            .open(path)
-    })
+    creating(|| std::fs::File::create(path))
 }
 
-/// Creates the temporary output file `path`, which must not exist yet, for writing and reading,
-/// under the interrupt handler's lock (see [`creating`]).
+/// Creates the temporary output file `path`, which must not exist yet, for writing and reading
+/// (so that it can be mapped), under the interrupt handler's lock (see [`creating`]).
 pub(crate) fn create_new_file(path: &Path) -> std::io::Result<std::fs::File> {
     creating(|| {
         std::fs::OpenOptions::new()

@@ -1332,14 +1332,10 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     // The input's SHA-256 is computed beside the real work: started when a core falls idle
     // during the engine's sequential sweep (once the keys are sorted), so that it takes no
     // core from the sweep.
-    let hashing: std::sync::Mutex<Option<std::thread::JoinHandle<Result<String>>>> =
-        std::sync::Mutex::new(None);
+    let hashing: Joined<Result<String>> = Joined::default();
     let start_hashing = || {
-        let mut h = hashing.lock().unwrap_or_else(|e| e.into_inner());
-        if h.is_none() {
-            let path = map.path.clone();
-            *h = Some(std::thread::spawn(move || sha256_file(&path)));
-        }
+        let path = map.path.clone();
+        hashing.start(move || sha256_file(&path));
     };
     // A noise map gives the sigma thresholds its median and each structure its own noise in
     // the error columns; it is read once for both.
@@ -1407,6 +1403,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     // its pages made ready there, writing it once the hierarchy is built only converts the
     // labels. Awaited on every way out of the run, so that no temporary file outlives it.
     let labels_path = outputs.temp(names::LABELS);
+    let labels_header = label_header(map, "smallest structure id per pixel");
     let begun_labels: Joined<std::result::Result<crate::fits_write::ImageFile, String>> =
         Joined::default();
     let ahead = cfg!(target_os = "linux")
@@ -1415,10 +1412,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let on_core_free = || {
         start_hashing();
         if ahead {
-            let (path, header) = (
-                labels_path.clone(),
-                label_header(map, "smallest structure id per pixel"),
-            );
+            let (path, header) = (labels_path.clone(), labels_header.clone());
             let (ny, nx) = map.data.dim();
             begun_labels.start(move || {
                 crate::fits_write::begin_image_i32(&path, ny, nx, &header, true).map_err(|e| e.0)
@@ -1479,7 +1473,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             None => crate::fits_write::write_image_i32(
                 &labels_path,
                 h.labels.view(),
-                &label_header(map, "smallest structure id per pixel"),
+                &labels_header,
                 true,
             )
             .map_err(|e| labels_failed(e.0))?,
@@ -1570,12 +1564,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
 
             start_hashing();
             let input_sha = hashing
-                .lock()
-                .unwrap_or_else(|e| e.into_inner())
                 .take()
-                .ok_or_else(|| Error::internal("hashing the input was not started"))?
-                .join()
-                .map_err(|_| Error::internal("hashing the input failed"))??;
+                .ok_or_else(|| Error::internal("hashing the input failed"))??;
             let meta = run_meta(map, o, &r, &input_sha);
             let keep: Vec<usize> = (0..ms.len())
                 .filter(|&i| !o.leaves_only || ms[i].kind == Kind::Leaf)
