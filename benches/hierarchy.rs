@@ -9,11 +9,6 @@ use ndarray::Array2;
 use rayon::prelude::*;
 use std::time::{Duration, Instant};
 
-/// The allocator the `cairn` binary uses (huge-page advice for large blocks), so that the
-/// timed code allocates as the program does.
-#[global_allocator]
-static ALLOC: cairn::alloc::Advised = cairn::alloc::Advised;
-
 /// splitmix64: a small seeded generator, so the field is the same on every run.
 struct Rng(u64);
 

@@ -10,11 +10,6 @@
 use std::io::Write;
 use std::time::Instant;
 
-/// The allocator the `cairn` binary uses (huge-page advice for large blocks), so that the
-/// timed code allocates as the program does.
-#[global_allocator]
-static ALLOC: cairn::alloc::Advised = cairn::alloc::Advised;
-
 fn peak_rss_bytes() -> u64 {
     let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
     status

@@ -12,11 +12,6 @@ use cairn::render::{self, LeafStyle, Overlay, SkyAxes, StateLegend, Style};
 use ndarray::Array2;
 use std::time::Instant;
 
-/// The allocator the `cairn` binary uses (huge-page advice for large blocks), so that the
-/// timed code allocates as the program does.
-#[global_allocator]
-static ALLOC: cairn::alloc::Advised = cairn::alloc::Advised;
-
 struct Flat;
 
 impl SkyAxes for Flat {

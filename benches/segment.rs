@@ -35,11 +35,6 @@ use std::time::Instant;
 
 use rayon::prelude::*;
 
-/// The allocator the `cairn` binary uses (huge-page advice for large blocks), so that the
-/// timed runs allocate as the program does.
-#[global_allocator]
-static ALLOC: cairn::alloc::Advised = cairn::alloc::Advised;
-
 /// Rounds of each timed measurement, the same at every size; the best is reported. Runs of
 /// tens of milliseconds, which one slow spell of a shared machine can double, need many rounds
 /// for the best to reflect the program rather than the spell (`max_tree`, whose calls take

@@ -5,7 +5,6 @@
 //! measurements -> physics -> writers and figures. Each module's doc comment says what it owns
 //! and which papers it implements.
 
-pub mod alloc;
 pub mod angles;
 pub mod compare;
 pub mod completeness;

@@ -11,11 +11,6 @@ use cairn::map::{self, Beam, HduChoice, LoadOptions};
 use cairn::units::{self, Dimension, ExtinctionBand};
 use cairn::{fits_write, output, synth};
 
-/// The system allocator, with large blocks in 2 MiB-aligned mappings advised to use huge pages
-/// (fewer page faults on fresh memory; see the module's documentation).
-#[global_allocator]
-static ALLOC: cairn::alloc::Advised = cairn::alloc::Advised;
-
 /// Set when writing to standard output failed for a reason other than a closed pipe.
 static STDOUT_FAILED: std::sync::Mutex<Option<String>> = std::sync::Mutex::new(None);
 
