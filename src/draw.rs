@@ -504,8 +504,6 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
         scale_bar,
         title: input.title.clone(),
     };
-    let overlay = render::render_map_figure(&overlay, style)
-        .map_err(|e| Error::usage(format!("cannot draw the figure: {e}.")))?;
     let nodes: Vec<TreeNode> = input
         .structures
         .iter()
@@ -519,14 +517,15 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
         })
         .collect();
     let level = format!("level [{}]", unit_markup(&crate::segment::map_unit(map)));
-    let tree = if nodes.is_empty() {
-        None
-    } else {
-        Some(
-            render::render_tree_figure(&nodes, &states, &level, style)
-                .map_err(|e| Error::usage(format!("cannot draw the tree of structures: {e}.")))?,
-        )
-    };
+    // The map figure and the tree diagram are drawn at once.
+    let (overlay, tree) = rayon::join(
+        || render::render_map_figure(&overlay, style),
+        || (!nodes.is_empty()).then(|| render::render_tree_figure(&nodes, &states, &level, style)),
+    );
+    let overlay = overlay.map_err(|e| Error::usage(format!("cannot draw the figure: {e}.")))?;
+    let tree = tree
+        .transpose()
+        .map_err(|e| Error::usage(format!("cannot draw the tree of structures: {e}.")))?;
     Ok(match tree {
         Some(t) => Figures {
             overlay,

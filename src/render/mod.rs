@@ -46,7 +46,7 @@ use ndarray::ArrayView2;
 use std::fmt;
 
 /// Sky coordinates as the figure needs them.
-pub trait SkyAxes {
+pub trait SkyAxes: Sync {
     /// Zero-based pixel (x = column, y = row; (0, 0) = centre of the first pixel) to
     /// (longitude, latitude) in degrees; None outside the projection.
     fn pixel_to_sky(&self, x: f64, y: f64) -> Option<(f64, f64)>;
@@ -318,9 +318,11 @@ pub const LEAST_VISIBLE_BEAM_PX: f64 = 4.0;
 /// Draws the map figure as PNG and SVG ([`render_png`], [`render_svg`]) from one layout.
 pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderError> {
     let sc = figure::scene(o, s)?;
+    // The two encodings share nothing but the scene; each compresses an image of the map.
+    let (png, svg) = rayon::join(|| sc.to_png(), || sc.to_svg());
     Ok(MapFigure {
-        png: sc.to_png()?,
-        svg: sc.to_svg()?,
+        png: png?,
+        svg: svg?,
         leaves_in_frame: sc.leaves_to_label,
         labels_left_out: sc.labels_left_out,
         y_stretch: sc.y_stretch,
@@ -359,9 +361,10 @@ pub fn render_tree_figure(
     s: &Style,
 ) -> Result<TreeFigure, RenderError> {
     let sc = tree::scene(nodes, states, level_label, s)?;
+    let (png, svg) = rayon::join(|| sc.to_png(), || sc.to_svg());
     Ok(TreeFigure {
-        png: sc.to_png()?,
-        svg: sc.to_svg()?,
+        png: png?,
+        svg: svg?,
         leaves: sc.leaves_to_label,
         ids_left_out: sc.labels_left_out,
     })
