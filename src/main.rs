@@ -823,7 +823,8 @@ struct DrawArgs {
     /// The map, if it is no longer where the run found it.
     #[arg(long, value_name = "FILE")]
     map: Option<PathBuf>,
-    /// Where to write the figures [default: the run folder].
+    /// Where to write the figures [default: the run folder, which already holds the figures
+    /// `segment` drew unless it ran with --no-figure: add --force to replace them].
     #[arg(short, long, value_name = "DIR")]
     output: Option<PathBuf>,
     /// Replace existing figures.
@@ -2411,16 +2412,16 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         distance_pc: run.distance_pc,
         title: None,
     };
-    let figs = cairn::draw::figures(&input, &style)?;
-    stage("writing", 900);
-    let (png, svg) = (&figs.overlay.png, &figs.overlay.svg);
-    let (tpng, tsvg) = (&figs.tree_png, &figs.tree_svg);
+    // The outputs are planned before drawing, so that figures already there (those `segment`
+    // drew, without --force) are refused at once rather than after the work. The tree is drawn
+    // whenever the run has structures.
+    let with_tree = !run.structures.is_empty();
     let dir = a.output.clone().unwrap_or_else(|| a.run.clone());
     let mut list = vec![
         names::OVERLAY_PNG.to_string(),
         names::OVERLAY_SVG.to_string(),
     ];
-    if !tpng.is_empty() {
+    if with_tree {
         list.push(names::TREE_PNG.into());
         list.push(names::TREE_SVG.into());
     }
@@ -2435,6 +2436,13 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     .to_vec();
     output::refuse_inputs_as_outputs(&dir, &every, &[run.map.path.as_path()])?;
     let outputs = output::Outputs::plan(&dir, &list, a.force)?;
+    let figs = cairn::draw::figures(&input, &style)?;
+    stage("writing", 900);
+    let (png, svg) = (&figs.overlay.png, &figs.overlay.svg);
+    let (tpng, tsvg) = (&figs.tree_png, &figs.tree_svg);
+    if tpng.is_empty() == with_tree {
+        return Err(Error::internal("the tree diagram was not drawn as planned"));
+    }
     output::write_bytes(&outputs.temp(names::OVERLAY_PNG), png)?;
     output::write_bytes(&outputs.temp(names::OVERLAY_SVG), svg.as_bytes())?;
     if !tpng.is_empty() {

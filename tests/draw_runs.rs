@@ -830,3 +830,37 @@ fn a_beam_too_small_to_see_is_said() {
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(says(&o), "{}", o.stdout);
 }
+
+/// `draw RUN` writes into the run folder by default, where `segment` drew its figures: it is
+/// refused there without --force (the project's rule for existing outputs), naming the files
+/// and both ways out, and leaves them as they were; with --force it replaces them.
+#[test]
+fn drawing_again_into_the_run_folder_needs_force() {
+    let d = tempfile::tempdir().unwrap();
+    write_map(d.path(), "map.fits", 60, 40);
+    let o = cairn(&["segment", "map.fits", "-o", "run", "-q"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let png = d.path().join("run/overlay.png");
+    let before = std::fs::read(&png).unwrap();
+    let again = cairn(&["draw", "run", "--stretch", "sqrt", "-q"], d.path());
+    assert_eq!(again.code, 2, "{}", again.stderr);
+    for says in ["run", "already holds", "overlay.png", "--force", "-o"] {
+        assert!(again.stderr.contains(says), "{says}: {}", again.stderr);
+    }
+    assert_eq!(again.stderr.trim().lines().count(), 1, "{}", again.stderr);
+    assert_eq!(
+        std::fs::read(&png).unwrap(),
+        before,
+        "the figure is untouched"
+    );
+    let forced = cairn(
+        &["draw", "run", "--stretch", "sqrt", "--force", "-q"],
+        d.path(),
+    );
+    assert_eq!(forced.code, 0, "{}", forced.stderr);
+    assert_ne!(
+        std::fs::read(&png).unwrap(),
+        before,
+        "redrawn with the new stretch"
+    );
+}
