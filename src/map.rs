@@ -549,6 +549,24 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                     theirs.kind_name(),
                     unit.kind_name()
                 ));
+            } else if let Some(theirs) = units::parse_pixel_unit(bunit, opts.band)
+                && std::mem::discriminant(&theirs) == std::mem::discriminant(&unit)
+                && let (Some(a), Some(b)) = (theirs.to_si(), unit.to_si())
+                && (b / a - 1.0).abs() > 1e-9
+            {
+                // The same kind at another scale (mJy/beam for Jy/beam): every level, sum and
+                // mass changes by the ratio, which a typing slip would make silently.
+                let r = b / a;
+                let (factor, way) = if r > 1.0 {
+                    (r, "larger")
+                } else {
+                    (1.0 / r, "smaller")
+                };
+                warnings.push(format!(
+                    "--unit '{}' replaces the header's BUNIT '{bunit}': every value is read as {} times {way} than the header says (and so is every sum and mass); leave out --unit to use the header's unit",
+                    u.trim(),
+                    units::as_given(factor)
+                ));
             }
             (Some(unit), text, Source::Option)
         }

@@ -436,6 +436,18 @@ impl PixelUnit {
         }
     }
 
+    /// The factor to SI of units that carry one (column densities and emission), `None` for
+    /// extinction (magnitudes) and units cairn does not convert.
+    pub fn to_si(&self) -> Option<f64> {
+        match *self {
+            PixelUnit::ColumnDensity { to_si }
+            | PixelUnit::SurfaceBrightness { to_si }
+            | PixelUnit::FluxPerBeam { to_si }
+            | PixelUnit::FluxPerPixel { to_si } => Some(to_si),
+            PixelUnit::Extinction { .. } | PixelUnit::Other => None,
+        }
+    }
+
     /// Whether this is dust emission (needs a wavelength and temperature to become a column).
     pub fn is_emission(&self) -> bool {
         matches!(

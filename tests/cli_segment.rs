@@ -1266,8 +1266,9 @@ fn records_keep_what_was_given() {
 }
 
 /// `--unit` of another kind than the header's readable BUNIT changes what every value means:
-/// a warning names both, and the run record keeps the header's unit; a respelling of the same
-/// kind (mJy/beam for Jy/beam, a scale) is not warned about.
+/// a warning names both, and the run record keeps the header's unit; the same kind at another
+/// scale (mJy/beam for Jy/beam: right when the header's unit is wrong, 1000 times off when it
+/// is a slip) is said with its factor; the header's own unit respelled is not.
 #[test]
 fn a_unit_option_of_another_kind_than_the_header_is_said() {
     let d = tempfile::tempdir().unwrap();
@@ -1304,6 +1305,24 @@ fn a_unit_option_of_another_kind_than_the_header_is_said() {
             "mjy",
             "--unit",
             "mJy/beam",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("warning: --unit 'mJy/beam' replaces the header's BUNIT 'Jy/beam': every value is read as 1000 times smaller than the header says (and so is every sum and mass)"),
+        "{stderr}"
+    );
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            map,
+            "-o",
+            "same",
+            "--unit",
+            "Jy beam-1",
             "--no-figure",
             "-q",
         ],
