@@ -2068,6 +2068,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
         outln!("leaves by state: {}", words.join(", "));
     }
+    for w in &t.warnings {
+        errln!("warning: {w}");
+    }
     if let Some(w) = &summary.negative_masses {
         errln!("warning: {w}");
     }

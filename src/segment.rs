@@ -303,6 +303,88 @@ pub struct Resolved {
     /// Each threshold as the user typed it (with what a converted level stood for), for the
     /// catalogue's header and the run record.
     pub typed: [String; 3],
+    /// Thresholds that look like slips ([`threshold_warnings`]), for stderr and the run record.
+    pub warnings: Vec<String>,
+}
+
+/// Whether a threshold was typed as a bare number (read in the map's unit).
+fn bare_number(text: Option<&String>) -> Option<f64> {
+    text.and_then(|t| t.trim().parse::<f64>().ok())
+        .filter(|v| v.is_finite())
+}
+
+/// Ways to write `text` in other units than the map's, for a bare number far from the map's
+/// values: noise units for numbers a noise multiple could be; a column density for numbers of that size on maps of
+/// another kind; magnitudes for small numbers on maps not in magnitudes.
+fn other_spellings(text: &str, v: f64, map: &Map) -> Option<String> {
+    let t = text.trim();
+    let mut ways = Vec::new();
+    if v.abs() <= 100.0 {
+        ways.push(format!("{t}sigma"));
+    }
+    let column = matches!(map.unit, Some(units::PixelUnit::ColumnDensity { .. }));
+    let magnitudes = matches!(map.unit, Some(units::PixelUnit::Extinction { .. }));
+    if !column && v.abs() >= 1e15 {
+        ways.push(format!("{t}cm-2"));
+    }
+    if !magnitudes && v.abs() > 0.0 && v.abs() < 100.0 {
+        ways.push(format!("{t}mag"));
+    }
+    (!ways.is_empty()).then(|| ways.join(" or "))
+}
+
+/// Warnings for thresholds typed as bare numbers (which are read in the map's unit) that lie
+/// so far from the map's values that another unit was probably meant: a floor more than a
+/// thousand times below every pixel (every valid pixel is then considered, as with no floor)
+/// and a prominence above the map's whole rise above the floor (no peak can pass it). Levels
+/// given with a unit or in sigma are taken as meant.
+pub fn threshold_warnings(map: &Map, o: &SegmentOptions, floor: f64) -> Vec<String> {
+    let mut out = Vec::new();
+    let floor_bare = bare_number(o.threshold_texts[0].as_ref());
+    let prominence_bare = bare_number(o.threshold_texts[1].as_ref());
+    if floor_bare.is_none() && prominence_bare.is_none() {
+        return out;
+    }
+    let (lo, hi) = map
+        .data
+        .iter()
+        .filter(|v| v.is_finite())
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+            (lo.min(v as f64), hi.max(v as f64))
+        });
+    if !lo.is_finite() {
+        return out;
+    }
+    let unit = match map_unit(map) {
+        u if u.is_empty() => "the map's unit".to_string(),
+        u => u,
+    };
+    if let (Some(v), Some(t)) = (floor_bare, o.threshold_texts[0].as_ref())
+        && v > 0.0
+        && lo > 1e3 * v
+    {
+        out.push(format!(
+            "--floor {} is a bare number, read in {unit}: far below every pixel (the lowest is {lo:.4e}), so every valid pixel is considered{}",
+            t.trim(),
+            other_spellings(t, v, map)
+                .map(|w| format!("; if it was meant in another unit, give it, such as {w}"))
+                .unwrap_or_default()
+        ));
+    }
+    if let (Some(v), Some(t)) = (prominence_bare, o.threshold_texts[1].as_ref())
+        && hi > floor
+        && v > hi - floor
+    {
+        out.push(format!(
+            "--prominence {} is a bare number, read in {unit}: more than the map's whole rise above the floor ({:.4e}), so no peak can pass it{}",
+            t.trim(),
+            hi - floor,
+            other_spellings(t, v, map)
+                .map(|w| format!("; if it was meant in another unit, give it, such as {w}"))
+                .unwrap_or_default()
+        ));
+    }
+    out
 }
 
 /// Resolves thresholds against the map's noise, beam and pixel size.
@@ -450,7 +532,9 @@ fn resolve_with(
         Some(Level::Sigma(k)) => format!("{k}sigma"),
         None => "default".to_string(),
     };
+    let warnings = threshold_warnings(map, o, floor);
     Ok(Resolved {
+        warnings,
         floor,
         prominence,
         min_area_px,
@@ -1435,9 +1519,23 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                     "--floor {} ({floor:.4e} in map units) lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one).",
                     l.conversion_note().unwrap_or_default()
                 ),
-                Some(Level::Value(_)) => format!(
-                    "--floor {floor:.4e} lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one)."
-                ),
+                Some(Level::Value(_)) => match o.threshold_texts[0]
+                    .as_ref()
+                    .filter(|t| bare_number(Some(t)).is_some_and(|v| max > 0.0 && v > 1e3 * max))
+                {
+                    // A bare number far above the map: another unit was probably meant.
+                    Some(t) => format!(
+                        "--floor {} (a bare number, read in the map's unit {}) lies far above the highest value of {file} ({max:.4e}); {}lower it (cairn inspect suggests one).",
+                        t.trim(),
+                        map_unit(map),
+                        other_spellings(t, floor, map)
+                            .map(|w| format!("give it with its unit, such as {w}, or "))
+                            .unwrap_or_default()
+                    ),
+                    None => format!(
+                        "--floor {floor:.4e} lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one)."
+                    ),
+                },
                 Some(Level::Sigma(k)) => format!(
                     "--floor {k}sigma ({floor:.4e}: {k} times the noise {noise} above the background {}) lies above the highest value of {file} ({max:.4e}); lower it or give the noise with --noise (cairn inspect suggests a floor).",
                     r.background
@@ -1764,7 +1862,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             "total": seconds,
         },
         "threads": rayon::current_num_threads(),
-        "warnings": map.warnings.iter().chain(&o.physics.warnings).cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).chain(negative_mass_warning(phys.iter().flatten())).collect::<Vec<String>>(),
+        "warnings": map.warnings.iter().chain(&r.warnings).chain(&o.physics.warnings).cloned().chain(physics_warning(&o.physics, map, physics_note.as_deref())).chain(negative_mass_warning(phys.iter().flatten())).collect::<Vec<String>>(),
         "physics": physics_record(&o.physics, map, r.noise, physics_note.as_deref()),
     });
     let rec =

@@ -1597,3 +1597,73 @@ fn a_map_smaller_than_the_default_area_without_a_beam_is_refused_so() {
         "{stderr}"
     );
 }
+
+/// A threshold typed as a bare number is read in the map's unit; one so far from the map's
+/// values that another unit was probably meant is said, with ways to write it (the run goes
+/// on, and the run record keeps the warning), and a floor far above the map is refused with
+/// them. The same levels with their units, or in the map's own range, get no such words.
+#[test]
+fn bare_number_thresholds_far_from_the_map_are_questioned() {
+    let d = tempfile::tempdir().unwrap();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps");
+    let column = demo.join("velloran-column.fits");
+    let emission = demo.join("velloran-850um.fits");
+    let run = |map: &Path, out: &str, extra: &[&str]| {
+        let mut args = vec![
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            out,
+            "--no-figure",
+            "-q",
+        ];
+        args.extend_from_slice(extra);
+        cairn(&args, d.path())
+    };
+    // 7 meant as magnitudes on a map in cm-2: below every pixel.
+    let (code, _, stderr) = run(&column, "f7", &["--floor", "7"]);
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("warning: --floor 7 is a bare number, read in cm-2: far below every pixel")
+            && stderr.contains("such as 7sigma or 7mag"),
+        "{stderr}"
+    );
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("f7/run.json")).unwrap())
+            .unwrap();
+    assert!(
+        rec["warnings"].as_array().unwrap().iter().any(|w| w
+            .as_str()
+            .unwrap()
+            .starts_with("--floor 7 is a bare number")),
+        "{rec}"
+    );
+    // A column density as a bare number on a map in Jy/beam: no peak rises that far.
+    let (code, _, stderr) = run(&emission, "p", &["--prominence", "3e20"]);
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("--prominence 3e20 is a bare number, read in Jy/beam: more than the map's whole rise above the floor")
+            && stderr.contains("such as 3e20cm-2"),
+        "{stderr}"
+    );
+    // ... and as a floor: refused, with the spelling that works.
+    let (code, _, stderr) = run(&emission, "f", &["--floor", "3e21"]);
+    assert_eq!(code, 2, "{stderr}");
+    assert!(
+        stderr.contains("--floor 3e21 (a bare number, read in the map's unit Jy/beam) lies far above the highest value")
+            && stderr.contains("give it with its unit, such as 3e21cm-2, or lower it"),
+        "{stderr}"
+    );
+    assert!(!d.path().join("f").exists(), "nothing written");
+    // Levels with their units, and bare numbers within the map's range: nothing said.
+    for (map, extra) in [
+        (&column, vec!["--floor", "7mag"]),
+        (&column, vec!["--floor", "5e21"]),
+        (&emission, vec!["--floor", "0.05", "--prominence", "0.02"]),
+    ] {
+        let (code, _, stderr) = run(map, "ok", &extra);
+        assert_eq!(code, 0, "{stderr}");
+        assert!(!stderr.contains("bare number"), "{extra:?}: {stderr}");
+        std::fs::remove_dir_all(d.path().join("ok")).unwrap();
+    }
+}
