@@ -532,7 +532,23 @@ fn resolve_with(
         Some(Level::Sigma(k)) => format!("{k}sigma"),
         None => "default".to_string(),
     };
-    let warnings = threshold_warnings(map, o, floor);
+    let mut warnings = threshold_warnings(map, o, floor);
+    // An area given on the sky or in beams that comes to less than a pixel: every peak then
+    // passes the area test, which a unit slip (arcsec2 for arcmin2) would make silently.
+    if matches!(o.min_area, Some(Area::Beams(_) | Area::SolidAngle(_))) && area_px < 1.0 {
+        let typed = o.threshold_texts[2]
+            .as_deref()
+            .map(str::trim)
+            .map(str::to_string)
+            .unwrap_or_else(|| area_text.clone());
+        warnings.push(format!(
+            "--min-area {typed} is {} of a pixel, so one pixel is the least area and every peak passes the area test{}",
+            units::as_given((area_px * 1000.0).round() / 1000.0),
+            beam_px
+                .map(|b| format!(" (a beam covers {:.1} pixels)", b))
+                .unwrap_or_default()
+        ));
+    }
     Ok(Resolved {
         warnings,
         floor,

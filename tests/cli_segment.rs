@@ -1667,3 +1667,48 @@ fn bare_number_thresholds_far_from_the_map_are_questioned() {
         std::fs::remove_dir_all(d.path().join("ok")).unwrap();
     }
 }
+
+/// A least area given on the sky or in beams that comes to less than one pixel (20 arcsec2 on
+/// the demo map's 6" pixels: 0.556 of one) is said, with the beam's size in pixels; an area of
+/// a pixel or more, or given in pixels, is not.
+#[test]
+fn a_least_area_below_one_pixel_is_said() {
+    let d = tempfile::tempdir().unwrap();
+    let map = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let map = map.to_str().unwrap();
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            map,
+            "-o",
+            "a",
+            "--min-area",
+            "20arcsec2",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("warning: --min-area 20arcsec2 is 0.556 of a pixel, so one pixel is the least area and every peak passes the area test (a beam covers"),
+        "{stderr}"
+    );
+    for (out, area) in [("b", "2beam"), ("c", "40arcsec2"), ("e", "1px")] {
+        let (code, _, stderr) = cairn(
+            &[
+                "segment",
+                map,
+                "-o",
+                out,
+                "--min-area",
+                area,
+                "--no-figure",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(code, 0, "{stderr}");
+        assert!(!stderr.contains("--min-area"), "{area}: {stderr}");
+    }
+}
