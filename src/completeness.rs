@@ -83,9 +83,24 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
     let text = std::fs::read_to_string(path).map_err(|e| {
         Error::input(
             path,
-            format!("cannot be read ({e}); give the NAME-truth.csv that cairn synth --into wrote."),
+            format!("cannot be read ({e}); give the NAME-truth.csv that cairn synth wrote."),
         )
     })?;
+    if text.trim_start().starts_with('{') {
+        // A JSON file, most likely the specification written beside the truth table.
+        let beside = path
+            .file_name()
+            .and_then(|n| n.to_str())
+            .and_then(|n| n.strip_suffix("-spec.json"))
+            .map(|stem| format!(" ({stem}-truth.csv beside it)"))
+            .unwrap_or_default();
+        return Err(Error::input(
+            path,
+            format!(
+                "is a JSON file (a NAME-spec.json, say), not a truth table; give the NAME-truth.csv that cairn synth wrote{beside}."
+            ),
+        ));
+    }
     let mut map_sha256 = None;
     let mut map_name = None;
     for l in text.lines().take_while(|l| l.starts_with('#')) {
@@ -103,7 +118,7 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
     let bad = |m: String| Error::input(path, m);
     let Some((_, head)) = lines.next() else {
         return Err(bad(
-            "holds no table; give the NAME-truth.csv that cairn synth --into wrote.".into(),
+            "holds no table; give the NAME-truth.csv that cairn synth wrote.".into(),
         ));
     };
     let cols: Vec<&str> = head.split(',').collect();
@@ -116,7 +131,7 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
         col("lat_deg"),
         col("mass_msun"),
     ) else {
-        return Err(bad("lacks one of the columns id, x, y, lon_deg, lat_deg, mass_msun; give the NAME-truth.csv that cairn synth --into wrote.".into()));
+        return Err(bad("lacks one of the columns id, x, y, lon_deg, lat_deg, mass_msun; give the NAME-truth.csv that cairn synth wrote.".into()));
     };
     let mut cores = Vec::new();
     // Each id's line, for a repeated row or id.
@@ -130,7 +145,7 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
                 .filter(|v| v.is_finite())
                 .ok_or_else(|| {
                     bad(format!(
-                        "line {} has no number in column '{}'; give the NAME-truth.csv that cairn synth --into wrote, unedited.",
+                        "line {} has no number in column '{}'; give the NAME-truth.csv that cairn synth wrote, unedited.",
                         n + 1,
                         cols[i]
                     ))
@@ -147,13 +162,13 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
         });
         if !(cores.last().is_some_and(|c| c.mass > 0.0)) {
             return Err(bad(format!(
-                "line {} has a mass that is not positive; give the NAME-truth.csv that cairn synth --into wrote, unedited.",
+                "line {} has a mass that is not positive; give the NAME-truth.csv that cairn synth wrote, unedited.",
                 n + 1
             )));
         }
         if let Some(first) = seen.insert(id as i64, n + 1) {
             return Err(bad(format!(
-                "line {} repeats the id {} of line {first}, so some cores would count twice; give the NAME-truth.csv that cairn synth --into wrote, unedited.",
+                "line {} repeats the id {} of line {first}, so some cores would count twice; give the NAME-truth.csv that cairn synth wrote, unedited.",
                 n + 1,
                 id as i64
             )));
@@ -161,7 +176,7 @@ pub fn read_truth(path: &Path) -> Result<Truth> {
     }
     if cores.is_empty() {
         return Err(bad(
-            "holds no injected core; give the NAME-truth.csv that cairn synth --into wrote.".into(),
+            "holds no injected core; give the NAME-truth.csv that cairn synth wrote.".into(),
         ));
     }
     // The record beside the table must be of the same injection: an injection's record names
@@ -531,7 +546,7 @@ pub fn check_same_map(truth: &Truth, run: &Run) -> Result<()> {
     let Some(sha) = &truth.map_sha256 else {
         return Err(Error::input(
             &truth.path,
-            "does not record the SHA-256 of its map (no '# map NAME sha256 HEX' line), so the run cannot be checked to be of that map; give the NAME-truth.csv that cairn synth --into wrote.",
+            "does not record the SHA-256 of its map (no '# map NAME sha256 HEX' line), so the run cannot be checked to be of that map; give the NAME-truth.csv that cairn synth wrote.",
         ));
     };
     if *sha != run.input_sha256 {
@@ -2354,6 +2369,24 @@ fn fmt_ratio(x: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A specification given where the truth table is asked for is named as such, with the
+    /// truth table written beside it; a CSV without the columns is told which are needed.
+    #[test]
+    fn a_spec_given_as_the_truth_table_points_to_the_table() {
+        let d = tempfile::tempdir().unwrap();
+        let spec = d.path().join("cloud-spec.json");
+        std::fs::write(&spec, "{\n  \"nx\": 64\n}\n").unwrap();
+        let e = read_truth(&spec).unwrap_err().to_string();
+        assert!(
+            e.contains("is a JSON file (a NAME-spec.json, say), not a truth table; give the NAME-truth.csv that cairn synth wrote (cloud-truth.csv beside it)."),
+            "{e}"
+        );
+        let csv = d.path().join("other.csv");
+        std::fs::write(&csv, "a,b\n1,2\n").unwrap();
+        let e = read_truth(&csv).unwrap_err().to_string();
+        assert!(e.contains("lacks one of the columns id, x, y"), "{e}");
+    }
 
     /// A limit is never below the masses tried: with every bin above 90%, the limit is the
     /// least injected mass (2 Msun), not the lower edge of its bin (10^0.2 = 1.585), and it is
