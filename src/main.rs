@@ -1179,7 +1179,46 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
                 to_si: units::JANSKY,
             },
         };
-        spec.noise_rms = units::parse_map_value(n, Some(unit), "--noise").map_err(Error::usage)?;
+        spec.noise_rms = units::parse_map_value(n, Some(unit), "--noise").map_err(|e| {
+            // A noise in the other emission unit: the map can be made in that unit instead.
+            let other = match &spec.output {
+                synth::Output::DustEmission {
+                    unit: synth::EmissionUnit::MJyPerSr,
+                    ..
+                } => Some((
+                    units::PixelUnit::FluxPerBeam {
+                        to_si: units::JANSKY,
+                    },
+                    "Jy/beam",
+                )),
+                synth::Output::DustEmission { .. } => Some((
+                    units::PixelUnit::SurfaceBrightness {
+                        to_si: 1e6 * units::JANSKY,
+                    },
+                    "MJy/sr",
+                )),
+                synth::Output::ColumnDensity => None,
+            };
+            match other.filter(|(u, _)| units::parse_map_value(n, Some(*u), "--noise").is_ok()) {
+                Some((_, name)) => Error::usage(format!(
+                    "{}; or make the map in {name} with --emission-unit {name}.",
+                    e.trim_end_matches('.')
+                )),
+                None => Error::usage(e),
+            }
+        })?;
+        // A bare number far below the background (0.004 meant in another unit, on a map of
+        // column densities near 3e21): noise that changes nothing is said.
+        if let (Some(bg), synth::Output::ColumnDensity) = (&spec.background, &spec.output)
+            && spec.noise_rms > 0.0
+            && spec.noise_rms < 1e-6 * bg.mean_column_cm2
+        {
+            notes.push(format!(
+                "--noise {} is read in cm-2, a millionth of the background ({:e} cm-2) or less, so it adds no visible noise; give it as a column density, such as 1e20cm-2",
+                n.trim(),
+                bg.mean_column_cm2
+            ));
+        }
     }
     if let Some(s) = a.seed {
         spec.seed = s;

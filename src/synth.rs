@@ -817,12 +817,32 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
         check_profile(&c.profile)?;
     }
     if let Some(p) = &spec.population {
-        let ranges_ok = pos(p.mass_min_msun)
-            && p.mass_max_msun >= p.mass_min_msun
-            && pos(p.radius_min_pc)
-            && p.radius_max_pc >= p.radius_min_pc;
-        if !ranges_ok {
-            return bad("core population needs 0 < min <= max for mass and radius".into());
+        for (name, option, lo, hi, unit) in [
+            (
+                "mass",
+                "--core-mass",
+                p.mass_min_msun,
+                p.mass_max_msun,
+                "Msun",
+            ),
+            (
+                "radius",
+                "--core-radius",
+                p.radius_min_pc,
+                p.radius_max_pc,
+                "pc",
+            ),
+        ] {
+            if !(pos(lo) && hi >= lo) {
+                return bad(format!(
+                    "the cores' {name} range ({option}) must have 0 < MIN <= MAX, and it is {lo}{unit},{hi}{unit}{}",
+                    if pos(hi) && hi < lo {
+                        format!("; give it the other way round, {hi}{unit},{lo}{unit}")
+                    } else {
+                        String::new()
+                    }
+                ));
+            }
         }
         if !(p.margin_px >= 0.0
             && 2.0 * p.margin_px < spec.nx as f64 - 1.0

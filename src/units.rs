@@ -305,6 +305,7 @@ pub fn parse_quantity(text: &str, allowed: &[Dimension], what: &str) -> Result<Q
         (Dimension::Length, "--opacity-frequency") => "a wavelength, such as 250um or 1.3mm",
         (Dimension::Length, "--distance") => "a distance, such as 300pc or 1.4kpc",
         (Dimension::Length, "--common-resolution") => "a length, such as 0.05pc",
+        (Dimension::Length, "--core-radius") => "a radius, such as 0.02pc or 0.08pc",
         _ => d.describe(),
     };
     let expected = allowed

@@ -248,3 +248,52 @@ fn dust_opacity_options_without_an_emission_map_are_refused() {
         "outside 0 to 5",
     );
 }
+
+/// Slips in the cores' options name the option and the way out: a range given the wrong way
+/// round (with the right order), a radius without a unit (with radii as examples), a noise in
+/// the other emission unit (with the option that makes the map in it).
+#[test]
+fn core_and_noise_slips_name_the_option_and_the_fix() {
+    assert_refused(
+        &["--cores", "10", "--core-mass", "15Msun,0.5Msun"],
+        "--core-mass",
+        "give it the other way round, 0.5Msun,15Msun",
+    );
+    assert_refused(
+        &["--cores", "10", "--core-radius", "0.02,0.05pc"],
+        "--core-radius",
+        "give a radius, such as 0.02pc or 0.08pc",
+    );
+    assert_refused(
+        &["--emission", "850um", "--noise", "0.004Jy/beam"],
+        "--noise",
+        "or make the map in Jy/beam with --emission-unit Jy/beam",
+    );
+}
+
+/// A bare noise on a column-density map is in cm-2: one far below the background (0.004 meant
+/// in another unit) is made as asked, with a warning that it adds no visible noise.
+#[test]
+fn a_negligible_bare_noise_is_said() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = cairn(
+        &[
+            "synth", "-o", "out", "--size", "64", "--noise", "0.004", "-q",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr.contains("warning: --noise 0.004 is read in cm-2, a millionth of the background (3e21 cm-2) or less, so it adds no visible noise; give it as a column density, such as 1e20cm-2."),
+        "{}",
+        o.stderr
+    );
+    let o = cairn(
+        &[
+            "synth", "-o", "ok", "--size", "64", "--noise", "1e20cm-2", "-q",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("--noise"), "{}", o.stderr);
+}
