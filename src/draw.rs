@@ -160,7 +160,7 @@ pub struct FigStructure {
     pub peak: (usize, usize),
     /// Peak value.
     pub peak_value: f64,
-    /// Merge level (the floor for roots).
+    /// Merge level (the floor for top-level structures).
     pub merge_level: f64,
     /// State word, when known.
     pub state: Option<String>,

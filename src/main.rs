@@ -380,7 +380,7 @@ struct MapArgs {
 #[derive(Args, Clone)]
 struct PhysicsArgs {
     /// Distance to the cloud, such as 300pc (without it: no masses, sizes in angle only;
-    /// column densities are still reported).
+    /// column densities are still reported, on emission maps when --temperature is given).
     #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     distance: Option<String>,
     /// Dust temperature, such as 12K (for the masses of emission maps; segment also uses it,

@@ -15,7 +15,7 @@
 //!   degrees (the IAU convention, common practice); the pixel-frame angle of the major axis is
 //!   measured from the +x axis toward +y, in (-90, 90] degrees;
 //! * the "sum above merge level" subtracts the level at which the structure joins its parent
-//!   (the floor for roots) from every pixel: the structure's excess over its surroundings;
+//!   (the floor for top-level structures) from every pixel: the structure's excess over its surroundings;
 //! * beam-deconvolved sizes: the second-moment ellipse on the sky is read as a 2-D Gaussian,
 //!   and since the covariances of Gaussians add under convolution, the intrinsic covariance
 //!   is the measured one minus the beam's (both in arcsec^2 on the local east and north axes
@@ -191,7 +191,7 @@ pub struct Measurement {
     pub sum: f64,
     /// Mean value.
     pub mean: f64,
-    /// Level where it joins its parent (the floor for roots).
+    /// Level where it joins its parent (the floor for top-level structures).
     pub merge_level: f64,
     /// Sum of (value - merge level) over the structure.
     pub sum_above_merge: f64,

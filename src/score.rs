@@ -18,7 +18,7 @@
 //! * Mass M = mu_H2 m_H d^2 Omega_pix sum N(H2) over the footprint, with mu_H2 = 2.8
 //!   (Kauffmann et al. 2008, A&A 487, 993) and Omega_pix at the structure's centroid. The
 //!   *excess mass* subtracts, pixel by pixel, the column density of the structure's merge
-//!   level (the floor for roots): the structure above its surroundings.
+//!   level (the floor for top-level structures): the structure above its surroundings.
 //! * Sizes: R_eff = d sqrt(A/pi); deconvolved R = sqrt(R_eff^2 - (theta_beam/2)^2 d^2) with
 //!   theta_beam the geometric mean FWHM (common practice). A structure is flagged unresolved
 //!   when its deconvolved radius is less than the beam's half width, theta_beam d / 2 (its

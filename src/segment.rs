@@ -867,8 +867,12 @@ pub fn catalogue(
             }
         ));
     }
+    let unit = match map_unit(map) {
+        u if u.is_empty() => String::new(),
+        u => format!(" {u}"),
+    };
     t.notes.push(format!(
-        "thresholds: floor {}, prominence {}, min area {} px",
+        "thresholds: floor {}{unit}, prominence {}{unit}, min area {} px",
         crate::table::fmt_f64(r.floor),
         crate::table::fmt_f64(r.prominence),
         r.min_area_px
@@ -1051,7 +1055,7 @@ pub fn catalogue(
         if grown {
             "the floor, the reference level of a grown footprint"
         } else {
-            "level where it joins its parent (the floor for roots)"
+            "level where it joins its parent (the floor for top-level structures: roots and leaves without a parent)"
         },
         f(&|m| m.merge_level),
     );

@@ -198,7 +198,7 @@ pub struct TreeNode {
     pub parent: Option<u32>,
     /// Peak level.
     pub top: f64,
-    /// Merge level (where it joins its parent), or the floor for roots.
+    /// Merge level (where it joins its parent), or the floor for top-level structures.
     pub bottom: f64,
     /// Must agree with the tree: a structure marked as a leaf may not have children.
     pub is_leaf: bool,
