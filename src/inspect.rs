@@ -816,6 +816,29 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
             ));
         }
     }
+    // A noise given ten times or more away from the map's own pixel differences: most likely
+    // another unit (4 meant as mJy/beam on a map in Jy/beam), which every level in sigma and
+    // the suggested thresholds would carry.
+    if let (NoiseChoice::Value(v), Ok(d)) = (noise_choice, &difference)
+        && *d > 0.0
+        && *v > 0.0
+        && !(0.1..=10.0).contains(&(v / d))
+    {
+        let ratio = v / d;
+        warnings.push(format!(
+            "the noise given ({}) is {} the pixel-difference estimate ({d:.4e}); check its unit (a bare --noise is in the map's unit{}), since levels in sigma and the suggested thresholds scale with it",
+            units::as_given(*v),
+            if ratio > 1.0 {
+                format!("{} times", units::as_given((ratio * 10.0).round() / 10.0))
+            } else {
+                format!("1/{} of", units::as_given((10.0 / ratio).round() / 10.0))
+            },
+            match map.unit_text.trim() {
+                "" => String::new(),
+                u => format!(", {u}"),
+            }
+        ));
+    }
     if map.beam.is_none() {
         warnings.push(
             "no beam in the header (BMAJ/BMIN): give --beam for areas in beams and physical sizes"

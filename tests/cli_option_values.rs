@@ -577,3 +577,25 @@ fn temperatures_colder_than_the_microwave_background_are_refused() {
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
 }
+
+/// `inspect --noise` ten times or more away from the map's pixel-difference estimate (4
+/// meant as mJy/beam on the demo map in Jy/beam, whose estimate is about 0.004) is questioned
+/// with the ratio and the unit a bare value is read in; a noise near the estimate is not.
+#[test]
+fn inspect_questions_a_noise_far_from_the_maps_own() {
+    let d = tempfile::tempdir().unwrap();
+    let map = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let map = map.to_str().unwrap();
+    let o = cairn(&["inspect", map, "--noise", "4"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let all = format!("{}{}", o.stdout, o.stderr);
+    assert!(
+        all.contains("warning: the noise given (4) is ")
+            && all.contains(" times the pixel-difference estimate")
+            && all.contains("a bare --noise is in the map's unit, Jy/beam"),
+        "{all}"
+    );
+    let o = cairn(&["inspect", map, "--noise", "0.004"], d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!format!("{}{}", o.stdout, o.stderr).contains("noise given"));
+}
