@@ -1542,15 +1542,13 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 Some(Level::Value(_)) => match o.threshold_texts[0]
                     .as_ref()
                     .filter(|t| bare_number(Some(t)).is_some_and(|v| max > 0.0 && v > 1e3 * max))
+                    .and_then(|t| Some((t, other_spellings(t, floor, map)?)))
                 {
                     // A bare number far above the map: another unit was probably meant.
-                    Some(t) => format!(
-                        "--floor {} (a bare number, read in the map's unit {}) lies far above the highest value of {file} ({max:.4e}); {}lower it (cairn inspect suggests one).",
+                    Some((t, ways)) => format!(
+                        "--floor {} (a bare number, read in the map's unit {}) lies far above the highest value of {file} ({max:.4e}); give it with its unit, such as {ways}, or lower it (cairn inspect suggests one).",
                         t.trim(),
                         map_unit(map),
-                        other_spellings(t, floor, map)
-                            .map(|w| format!("give it with its unit, such as {w}, or "))
-                            .unwrap_or_default()
                     ),
                     None => format!(
                         "--floor {floor:.4e} lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one)."
