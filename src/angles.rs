@@ -1,8 +1,9 @@
-//! Formatting of sky angles for people: sexagesimal hours and degrees, and angular sizes.
+//! Sky angles for people: sexagesimal hours and degrees and angular sizes, written and read.
 //!
-//! Owns the text forms of coordinates shown in summaries and on figure axes. Rounding is
-//! carried through the fields (59.9995 s becomes 00 s of the next minute), as is common
-//! practice.
+//! Owns the text forms of coordinates shown in summaries and on figure axes, and reading
+//! coordinates typed in either form (`152.8125` or `10h11m15s`; `+11.406` or `+11d24m22.5s`).
+//! Rounding is carried through the fields (59.9995 s becomes 00 s of the next minute), as is
+//! common practice; an hour of right ascension is 15 degrees.
 
 /// Right ascension in degrees as `HHhMMmSS.SSs` with `decimals` decimals of seconds.
 pub fn format_hms(ra_deg: f64, decimals: usize) -> String {
@@ -42,6 +43,88 @@ pub fn format_angle(deg: f64) -> String {
     }
 }
 
+/// Reads a longitude typed in degrees (`152.8125`) or sexagesimally, in hours (`10h11m15s`,
+/// `10h11m15.25s`, `10h11.25m`) or degrees (`152d48m45s`), as degrees; `None` if not
+/// understood. The letters name the fields; minutes and seconds lie below 60, and only the
+/// last field given may have decimals.
+pub fn parse_longitude(text: &str) -> Option<f64> {
+    parse_angle(text, true)
+}
+
+/// Reads a latitude typed in degrees (`-31.625`) or sexagesimal degrees (`-31d37m30s`,
+/// `+11d24m22.5s`), as degrees; `None` if not understood.
+pub fn parse_latitude(text: &str) -> Option<f64> {
+    parse_angle(text, false)
+}
+
+/// Whether `text` is a plain number (degrees, or pixels where the context says so) rather
+/// than a sexagesimal angle.
+pub fn is_plain_number(text: &str) -> bool {
+    text.trim().parse::<f64>().is_ok()
+}
+
+fn parse_angle(text: &str, hours_allowed: bool) -> Option<f64> {
+    let t = text.trim();
+    if let Ok(v) = t.parse::<f64>() {
+        return v.is_finite().then_some(v);
+    }
+    let (sign, body) = match t.as_bytes().first()? {
+        b'-' => (-1.0, &t[1..]),
+        b'+' => (1.0, &t[1..]),
+        _ => (1.0, t),
+    };
+    // Fields: a number and its letter each, in the order (h|d), m, s.
+    let mut fields: Vec<(f64, char, bool)> = Vec::new();
+    let mut rest = body.trim_start();
+    while !rest.is_empty() {
+        let end = rest
+            .find(|c: char| !(c.is_ascii_digit() || c == '.'))
+            .unwrap_or(rest.len());
+        let (num, after) = rest.split_at(end);
+        if num.is_empty() || num.matches('.').count() > 1 || num.starts_with('.') {
+            return None;
+        }
+        let letter = after.chars().next()?;
+        fields.push((
+            num.parse().ok()?,
+            letter.to_ascii_lowercase(),
+            num.contains('.'),
+        ));
+        rest = after[letter.len_utf8()..].trim_start();
+    }
+    let (first, unit_letter) = match *fields.first()? {
+        (v, 'h', _) if hours_allowed && sign > 0.0 && !t.starts_with('+') => (v, 'h'),
+        (v, 'd', _) => (v, 'd'),
+        _ => return None,
+    };
+    let mut value = first;
+    let mut expect = ['m', 's'].iter().peekable();
+    for (k, &(v, letter, decimals)) in fields.iter().enumerate().skip(1) {
+        // Each later field in order, below 60; decimals only on the last field given, and
+        // none on the first when others follow.
+        while expect.peek().is_some_and(|&&e| e != letter) {
+            expect.next();
+        }
+        let scale = match expect.next()? {
+            'm' => 60.0,
+            _ => 3600.0,
+        };
+        if v >= 60.0 || (decimals && k + 1 < fields.len()) || (k == 1 && fields[0].2) {
+            return None;
+        }
+        value += v / scale;
+    }
+    let deg = if unit_letter == 'h' {
+        if value >= 24.0 {
+            return None;
+        }
+        value * 15.0
+    } else {
+        value
+    };
+    Some(sign * deg)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -55,5 +138,53 @@ mod tests {
         assert_eq!(format_hms(359.99999999, 1), "00h00m00.0s");
         assert_eq!(format_dms(10.0 - 1e-9, 0), "+10d00m00s");
         assert_eq!(format_angle(18.2 / 3600.0), "18.200\"");
+    }
+
+    /// Sexagesimal coordinates as typed, against their values by definition (15 degrees per
+    /// hour, 60 minutes per unit, 60 seconds per minute: common practice), and what the
+    /// summaries print read back to the value printed.
+    #[test]
+    fn sexagesimal_coordinates_are_read() {
+        let close = |a: Option<f64>, b: f64| a.is_some_and(|a| (a - b).abs() < 1e-12);
+        assert!(close(parse_longitude("10h11m15s"), 152.8125));
+        assert!(close(
+            parse_longitude("10h11m15.25s"),
+            15.0 * (10.0 + 11.0 / 60.0 + 15.25 / 3600.0)
+        ));
+        assert!(close(parse_longitude("10h11.25m"), 152.8125));
+        assert!(close(parse_longitude(" 10h 11m 15s "), 152.8125));
+        assert!(close(parse_longitude("152d48m45s"), 152.8125));
+        assert!(close(parse_longitude("152.8125"), 152.8125));
+        assert!(close(
+            parse_latitude("+11d24m22.5s"),
+            11.0 + 24.0 / 60.0 + 22.5 / 3600.0
+        ));
+        assert!(close(parse_latitude("-31d37m30s"), -31.625));
+        assert!(close(parse_latitude("-0d30m"), -0.5));
+        assert!(close(parse_latitude("-31.625"), -31.625));
+        // What inspect prints reads back to its value to the printed precision.
+        assert!(close(parse_longitude(&format_hms(152.8125, 2)), 152.8125));
+        assert!(close(parse_latitude(&format_dms(-31.625, 1)), -31.625));
+        // Refused: hours for a latitude, fields out of order or range, decimals before the
+        // last field, signed hours, stray text.
+        for bad in [
+            "10h75m",
+            "10h11m60s",
+            "24h",
+            "10.5h11m",
+            "10h11.5m15s",
+            "10s11m",
+            "-10h11m",
+            "+10h",
+            "10h11x",
+            "abc",
+            "",
+            "1.2.3d",
+        ] {
+            let lon = parse_longitude(bad);
+            assert!(lon.is_none(), "{bad:?} should be refused, got {lon:?}");
+        }
+        assert!(parse_latitude("10h11m15s").is_none());
+        assert!(is_plain_number("152.8") && !is_plain_number("10h11m"));
     }
 }

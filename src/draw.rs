@@ -290,18 +290,18 @@ pub fn scale_bar(
 pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<String>)> {
     let bad = || {
         Error::usage(format!(
-            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px or 152.81,11.40,5arcmin."
+            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px, 152.81,11.40,5arcmin or 10h11m15s,+11d24m,5arcmin."
         ))
     };
     let parts: Vec<&str> = text.split(',').collect();
     if parts.len() != 3 {
         return Err(bad());
     }
-    let a: f64 = parts[0].trim().parse().map_err(|_| bad())?;
-    let b: f64 = parts[1].trim().parse().map_err(|_| bad())?;
-    if !a.is_finite() || !b.is_finite() {
-        return Err(bad());
-    }
+    // A centre in pixels is two plain numbers; on the sky, degrees or sexagesimal.
+    let sexagesimal =
+        !crate::angles::is_plain_number(parts[0]) || !crate::angles::is_plain_number(parts[1]);
+    let a = crate::angles::parse_longitude(parts[0]).ok_or_else(bad)?;
+    let b = crate::angles::parse_latitude(parts[1]).ok_or_else(bad)?;
     let size = units::parse_quantity(
         parts[2],
         &[
@@ -312,6 +312,11 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
         "--region",
     )
     .map_err(Error::usage)?;
+    if sexagesimal && size.dim != units::Dimension::Angle {
+        return Err(Error::usage(format!(
+            "--region '{text}' has a sky centre, so its size is an angle; give one, such as 5arcmin."
+        )));
+    }
     let (cx, cy, half) = if size.dim == units::Dimension::Angle {
         let w = map.wcs.as_ref().ok_or_else(|| Error::usage("--region with a sky centre needs a map with a celestial WCS; give the centre and size in pixels."))?;
         let frame = match w.frame() {

@@ -173,7 +173,8 @@ struct SynthArgs {
         allow_hyphen_values = true
     )]
     pixel: Option<String>,
-    /// Map centre as `lon,lat` in degrees (invented positions) [default: 201.375,-31.625].
+    /// Map centre as `lon,lat` in degrees or sexagesimal, such as 13h25m30s,-31d37m30s
+    /// (invented positions) [default: 201.375,-31.625].
     #[arg(
         conflicts_with = "into",
         long,
@@ -619,8 +620,8 @@ struct StyleArgs {
     #[arg(long)]
     branches: bool,
     /// Draw only a square part: `X,Y,SIZE` with a pixel centre and a size in px (256,192,100px)
-    /// or a sky centre in degrees and an angular size (152.81,11.40,5arcmin), square on the
-    /// sky.
+    /// or a sky centre in degrees or sexagesimal and an angular size (152.81,11.40,5arcmin or
+    /// 10h11m15s,+11d24m,5arcmin), square on the sky.
     #[arg(long, value_name = "X,Y,SIZE", allow_hyphen_values = true)]
     region: Option<String>,
 }
@@ -1108,12 +1109,12 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
     if let Some(c) = &a.centre {
         let bad = || {
             Error::usage(format!(
-                "--centre '{c}' is not understood: give lon,lat in degrees, such as 201.375,-31.625."
+                "--centre '{c}' is not understood: give lon,lat in degrees, such as 201.375,-31.625, or sexagesimally, such as 13h25m30s,-31d37m30s."
             ))
         };
         let (lon, lat) = c.split_once(',').ok_or_else(bad)?;
-        spec.centre_lon_deg = lon.trim().parse().map_err(|_| bad())?;
-        spec.centre_lat_deg = lat.trim().parse().map_err(|_| bad())?;
+        spec.centre_lon_deg = cairn::angles::parse_longitude(lon).ok_or_else(bad)?;
+        spec.centre_lat_deg = cairn::angles::parse_latitude(lat).ok_or_else(bad)?;
     }
     if let Some(f) = &a.frame {
         spec.frame = match f.to_ascii_lowercase().as_str() {

@@ -864,3 +864,67 @@ fn drawing_again_into_the_run_folder_needs_force() {
         "redrawn with the new stretch"
     );
 }
+
+/// Sky coordinates typed sexagesimally, as `inspect` prints them, mean the same as in degrees
+/// (an hour of right ascension is 15 degrees): a synthetic map centred at 10h11m15s,-31d37m30s
+/// is the one centred at 152.8125,-31.625, byte for byte, and a region drawn around a
+/// sexagesimal centre is the region drawn around the same centre in degrees. A sexagesimal
+/// centre with a size in pixels is refused.
+#[test]
+fn sexagesimal_centres_equal_their_degrees() {
+    let d = tempfile::tempdir().unwrap();
+    for (out, centre) in [("deg", "152.8125,-31.625"), ("sex", "10h11m15s,-31d37m30s")] {
+        let o = cairn(
+            &[
+                "synth", "-o", out, "--size", "96", "--cores", "6", "--centre", centre, "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let map = |out: &str| std::fs::read(d.path().join(out).join("synth.fits")).unwrap();
+    assert_eq!(map("deg"), map("sex"));
+    let o = cairn(
+        &[
+            "segment",
+            "deg/synth.fits",
+            "-o",
+            "run",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for (out, region) in [
+        ("r1", "152.8125,-31.625,4arcmin"),
+        ("r2", "10h11m15s,-31d37m30s,4arcmin"),
+    ] {
+        let o = cairn(
+            &["draw", "run", "-o", out, "--region", region, "-q"],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let png = |out: &str| std::fs::read(d.path().join(out).join("overlay.png")).unwrap();
+    assert_eq!(png("r1"), png("r2"));
+    let o = cairn(
+        &[
+            "draw",
+            "run",
+            "-o",
+            "r3",
+            "--region",
+            "10h11m15s,-31d37m30s,40px",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .contains("has a sky centre, so its size is an angle"),
+        "{}",
+        o.stderr
+    );
+    assert!(!d.path().join("r3").exists());
+}
