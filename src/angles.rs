@@ -44,11 +44,13 @@ pub fn format_angle(deg: f64) -> String {
 }
 
 /// Reads a longitude typed in degrees (`152.8125`) or sexagesimally, in hours (`10h11m15s`,
-/// `10h11m15.25s`, `10h11.25m`) or degrees (`152d48m45s`), as degrees; `None` if not
-/// understood. The letters name the fields; minutes and seconds lie below 60, and only the
-/// last field given may have decimals.
-pub fn parse_longitude(text: &str) -> Option<f64> {
-    parse_angle(text, true)
+/// `10h11m15.25s`, `10h11.25m`; only where `hours` allows, the longitude of an equatorial
+/// frame) or degrees (`152d48m45s`), as degrees; `None` if not understood. The letters name
+/// the fields, in the order hours or degrees, minutes, seconds, none left out before the last
+/// (`10h11s` is not read); minutes and seconds lie below 60, and only the last field may have
+/// decimals.
+pub fn parse_longitude(text: &str, hours: bool) -> Option<f64> {
+    parse_angle(text, hours)
 }
 
 /// Reads a latitude typed in degrees (`-31.625`) or sexagesimal degrees (`-31d37m30s`,
@@ -97,19 +99,14 @@ fn parse_angle(text: &str, hours_allowed: bool) -> Option<f64> {
         (v, 'd', _) => (v, 'd'),
         _ => return None,
     };
+    if fields.len() > 3 || fields.iter().rev().skip(1).any(|f| f.2) {
+        // Decimals only on the last field.
+        return None;
+    }
     let mut value = first;
-    let mut expect = ['m', 's'].iter().peekable();
-    for (k, &(v, letter, decimals)) in fields.iter().enumerate().skip(1) {
-        // Each later field in order, below 60; decimals only on the last field given, and
-        // none on the first when others follow.
-        while expect.peek().is_some_and(|&&e| e != letter) {
-            expect.next();
-        }
-        let scale = match expect.next()? {
-            'm' => 60.0,
-            _ => 3600.0,
-        };
-        if v >= 60.0 || (decimals && k + 1 < fields.len()) || (k == 1 && fields[0].2) {
+    for (&(v, letter, _), (want, scale)) in fields.iter().skip(1).zip([('m', 60.0), ('s', 3600.0)])
+    {
+        if letter != want || v >= 60.0 {
             return None;
         }
         value += v / scale;
@@ -122,7 +119,8 @@ fn parse_angle(text: &str, hours_allowed: bool) -> Option<f64> {
     } else {
         value
     };
-    Some(sign * deg)
+    let deg = sign * deg;
+    deg.is_finite().then_some(deg)
 }
 
 #[cfg(test)]
@@ -140,21 +138,25 @@ mod tests {
         assert_eq!(format_angle(18.2 / 3600.0), "18.200\"");
     }
 
+    fn parse_longitude_h(text: &str) -> Option<f64> {
+        parse_longitude(text, true)
+    }
+
     /// Sexagesimal coordinates as typed, against their values by definition (15 degrees per
     /// hour, 60 minutes per unit, 60 seconds per minute: common practice), and what the
     /// summaries print read back to the value printed.
     #[test]
     fn sexagesimal_coordinates_are_read() {
         let close = |a: Option<f64>, b: f64| a.is_some_and(|a| (a - b).abs() < 1e-12);
-        assert!(close(parse_longitude("10h11m15s"), 152.8125));
+        assert!(close(parse_longitude_h("10h11m15s"), 152.8125));
         assert!(close(
-            parse_longitude("10h11m15.25s"),
+            parse_longitude_h("10h11m15.25s"),
             15.0 * (10.0 + 11.0 / 60.0 + 15.25 / 3600.0)
         ));
-        assert!(close(parse_longitude("10h11.25m"), 152.8125));
-        assert!(close(parse_longitude(" 10h 11m 15s "), 152.8125));
-        assert!(close(parse_longitude("152d48m45s"), 152.8125));
-        assert!(close(parse_longitude("152.8125"), 152.8125));
+        assert!(close(parse_longitude_h("10h11.25m"), 152.8125));
+        assert!(close(parse_longitude_h(" 10h 11m 15s "), 152.8125));
+        assert!(close(parse_longitude_h("152d48m45s"), 152.8125));
+        assert!(close(parse_longitude_h("152.8125"), 152.8125));
         assert!(close(
             parse_latitude("+11d24m22.5s"),
             11.0 + 24.0 / 60.0 + 22.5 / 3600.0
@@ -163,7 +165,7 @@ mod tests {
         assert!(close(parse_latitude("-0d30m"), -0.5));
         assert!(close(parse_latitude("-31.625"), -31.625));
         // What inspect prints reads back to its value to the printed precision.
-        assert!(close(parse_longitude(&format_hms(152.8125, 2)), 152.8125));
+        assert!(close(parse_longitude_h(&format_hms(152.8125, 2)), 152.8125));
         assert!(close(parse_latitude(&format_dms(-31.625, 1)), -31.625));
         // Refused: hours for a latitude, fields out of order or range, decimals before the
         // last field, signed hours, stray text.
@@ -181,10 +183,15 @@ mod tests {
             "",
             "1.2.3d",
         ] {
-            let lon = parse_longitude(bad);
+            let lon = parse_longitude_h(bad);
             assert!(lon.is_none(), "{bad:?} should be refused, got {lon:?}");
         }
         assert!(parse_latitude("10h11m15s").is_none());
+        // Hours only where allowed; skipped fields and numbers beyond range are refused.
+        assert!(parse_longitude("10h11m15s", false).is_none());
+        assert!(close(parse_longitude("152d48m45s", false), 152.8125));
+        assert!(parse_longitude_h("10h11s").is_none());
+        assert!(parse_latitude(&format!("1{}d", "0".repeat(400))).is_none());
         assert!(is_plain_number("152.8") && !is_plain_number("10h11m"));
     }
 }

@@ -290,7 +290,7 @@ pub fn scale_bar(
 pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<String>)> {
     let bad = || {
         Error::usage(format!(
-            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px, 152.81,11.40,5arcmin or 10h11m15s,+11d24m,5arcmin."
+            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px, 152.81,11.40,5arcmin or 10h11m15s,+11d24m,5arcmin (a longitude in hours on an equatorial frame only)."
         ))
     };
     let parts: Vec<&str> = text.split(',').collect();
@@ -300,7 +300,14 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
     // A centre in pixels is two plain numbers; on the sky, degrees or sexagesimal.
     let sexagesimal =
         !crate::angles::is_plain_number(parts[0]) || !crate::angles::is_plain_number(parts[1]);
-    let a = crate::angles::parse_longitude(parts[0]).ok_or_else(bad)?;
+    // Hours only for the longitude of an equatorial frame.
+    let hours = map.wcs.as_ref().is_some_and(|w| {
+        matches!(
+            w.frame(),
+            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
+        )
+    });
+    let a = crate::angles::parse_longitude(parts[0], hours).ok_or_else(bad)?;
     let b = crate::angles::parse_latitude(parts[1]).ok_or_else(bad)?;
     let size = units::parse_quantity(
         parts[2],

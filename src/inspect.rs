@@ -816,13 +816,15 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
             ));
         }
     }
-    // A noise given ten times or more away from the map's own pixel differences: most likely
-    // another unit (4 meant as mJy/beam on a map in Jy/beam), which every level in sigma and
-    // the suggested thresholds would carry.
+    // A noise given a hundred times or more away from the map's own pixel differences: most
+    // likely another unit (4 meant as mJy/beam on a map in Jy/beam), which every level in
+    // sigma and the suggested thresholds would carry. (The differences underestimate noise
+    // correlated by a beam of several pixels, by up to some tens for the widest beams, hence
+    // the wide margin.)
     if let (NoiseChoice::Value(v), Ok(d)) = (noise_choice, &difference)
         && *d > 0.0
         && *v > 0.0
-        && !(0.1..=10.0).contains(&(v / d))
+        && !(0.01..=100.0).contains(&(v / d))
     {
         let ratio = v / d;
         warnings.push(format!(

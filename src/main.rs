@@ -1106,16 +1106,6 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
     if let Some(p) = &a.pixel {
         spec.pixel_arcsec = q(p, &[Dimension::Angle], "--pixel")?.si / units::ARCSEC;
     }
-    if let Some(c) = &a.centre {
-        let bad = || {
-            Error::usage(format!(
-                "--centre '{c}' is not understood: give lon,lat in degrees, such as 201.375,-31.625, or sexagesimally, such as 13h25m30s,-31d37m30s."
-            ))
-        };
-        let (lon, lat) = c.split_once(',').ok_or_else(bad)?;
-        spec.centre_lon_deg = cairn::angles::parse_longitude(lon).ok_or_else(bad)?;
-        spec.centre_lat_deg = cairn::angles::parse_latitude(lat).ok_or_else(bad)?;
-    }
     if let Some(f) = &a.frame {
         spec.frame = match f.to_ascii_lowercase().as_str() {
             "icrs" => synth::Frame::Icrs,
@@ -1127,6 +1117,18 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
                 )));
             }
         };
+    }
+    if let Some(c) = &a.centre {
+        let bad = || {
+            Error::usage(format!(
+                "--centre '{c}' is not understood: give lon,lat in degrees, such as 201.375,-31.625, or sexagesimally, such as 13h25m30s,-31d37m30s (a longitude in hours on an equatorial frame only)."
+            ))
+        };
+        let (lon, lat) = c.split_once(',').ok_or_else(bad)?;
+        // Hours for the longitude of an equatorial frame only (the frame as set above).
+        let hours = !matches!(spec.frame, synth::Frame::Galactic);
+        spec.centre_lon_deg = cairn::angles::parse_longitude(lon, hours).ok_or_else(bad)?;
+        spec.centre_lat_deg = cairn::angles::parse_latitude(lat).ok_or_else(bad)?;
     }
     if let Some(d) = &a.distance {
         spec.distance_pc =

@@ -316,18 +316,27 @@ fn bare_number(text: Option<&String>) -> Option<f64> {
 /// Ways to write `text` in other units than the map's, for a bare number far from the map's
 /// values: noise units for numbers a noise multiple could be; a column density for numbers of that size on maps of
 /// another kind; magnitudes for small numbers on maps not in magnitudes.
-fn other_spellings(text: &str, v: f64, map: &Map) -> Option<String> {
+/// Only spellings this run would take are offered: sigma where the noise is known, column
+/// densities and magnitudes where the map converts to them (`score::conversion_blocker`).
+fn other_spellings(
+    text: &str,
+    v: f64,
+    map: &Map,
+    physics: &crate::score::Context,
+    noise_known: bool,
+) -> Option<String> {
     let t = text.trim();
     let mut ways = Vec::new();
-    if v.abs() <= 100.0 {
+    if noise_known && v.abs() <= 100.0 {
         ways.push(format!("{t}sigma"));
     }
+    let converts = crate::score::conversion_blocker(map, physics).is_none();
     let column = matches!(map.unit, Some(units::PixelUnit::ColumnDensity { .. }));
     let magnitudes = matches!(map.unit, Some(units::PixelUnit::Extinction { .. }));
-    if !column && v.abs() >= 1e15 {
+    if converts && !column && v.abs() >= 1e15 {
         ways.push(format!("{t}cm-2"));
     }
-    if !magnitudes && v.abs() > 0.0 && v.abs() < 100.0 {
+    if converts && !magnitudes && v.abs() > 0.0 && v.abs() < 100.0 {
         ways.push(format!("{t}mag"));
     }
     (!ways.is_empty()).then(|| ways.join(" or "))
@@ -338,7 +347,12 @@ fn other_spellings(text: &str, v: f64, map: &Map) -> Option<String> {
 /// thousand times below every pixel (every valid pixel is then considered, as with no floor)
 /// and a prominence above the map's whole rise above the floor (no peak can pass it). Levels
 /// given with a unit or in sigma are taken as meant.
-pub fn threshold_warnings(map: &Map, o: &SegmentOptions, floor: f64) -> Vec<String> {
+pub fn threshold_warnings(
+    map: &Map,
+    o: &SegmentOptions,
+    floor: f64,
+    noise_known: bool,
+) -> Vec<String> {
     let mut out = Vec::new();
     let floor_bare = bare_number(o.threshold_texts[0].as_ref());
     let prominence_bare = bare_number(o.threshold_texts[1].as_ref());
@@ -366,7 +380,7 @@ pub fn threshold_warnings(map: &Map, o: &SegmentOptions, floor: f64) -> Vec<Stri
         out.push(format!(
             "--floor {} is a bare number, read in {unit}: far below every pixel (the lowest is {lo:.4e}), so every valid pixel is considered{}",
             t.trim(),
-            other_spellings(t, v, map)
+            other_spellings(t, v, map, &o.physics, noise_known)
                 .map(|w| format!("; if it was meant in another unit, give it, such as {w}"))
                 .unwrap_or_default()
         ));
@@ -379,7 +393,7 @@ pub fn threshold_warnings(map: &Map, o: &SegmentOptions, floor: f64) -> Vec<Stri
             "--prominence {} is a bare number, read in {unit}: more than the map's whole rise above the floor ({:.4e}), so no peak can pass it{}",
             t.trim(),
             hi - floor,
-            other_spellings(t, v, map)
+            other_spellings(t, v, map, &o.physics, noise_known)
                 .map(|w| format!("; if it was meant in another unit, give it, such as {w}"))
                 .unwrap_or_default()
         ));
@@ -532,7 +546,7 @@ fn resolve_with(
         Some(Level::Sigma(k)) => format!("{k}sigma"),
         None => "default".to_string(),
     };
-    let mut warnings = threshold_warnings(map, o, floor);
+    let mut warnings = threshold_warnings(map, o, floor, sigma.is_some());
     // An area given on the sky or in beams that comes to less than a pixel: every peak then
     // passes the area test, which a unit slip (arcsec2 for arcmin2) would make silently.
     if matches!(o.min_area, Some(Area::Beams(_) | Area::SolidAngle(_))) && area_px < 1.0 {
@@ -543,7 +557,11 @@ fn resolve_with(
             .unwrap_or_else(|| area_text.clone());
         warnings.push(format!(
             "--min-area {typed} is {} of a pixel, so one pixel is the least area and every peak passes the area test{}",
-            units::as_given((area_px * 1000.0).round() / 1000.0),
+            if area_px >= 0.001 {
+                format!("{area_px:.3}")
+            } else {
+                format!("{area_px:.2e}")
+            },
             beam_px
                 .map(|b| format!(" (a beam covers {:.1} pixels)", b))
                 .unwrap_or_default()
@@ -1542,13 +1560,18 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 Some(Level::Value(_)) => match o.threshold_texts[0]
                     .as_ref()
                     .filter(|t| bare_number(Some(t)).is_some_and(|v| max > 0.0 && v > 1e3 * max))
-                    .and_then(|t| Some((t, other_spellings(t, floor, map)?)))
-                {
+                    .and_then(|t| {
+                        let ways = other_spellings(t, floor, map, &o.physics, r.noise.is_some())?;
+                        Some((t, ways))
+                    }) {
                     // A bare number far above the map: another unit was probably meant.
                     Some((t, ways)) => format!(
-                        "--floor {} (a bare number, read in the map's unit {}) lies far above the highest value of {file} ({max:.4e}); give it with its unit, such as {ways}, or lower it (cairn inspect suggests one).",
+                        "--floor {} (a bare number, read in {}) lies far above the highest value of {file} ({max:.4e}); give it with its unit, such as {ways}, or lower it (cairn inspect suggests one).",
                         t.trim(),
-                        map_unit(map),
+                        match map_unit(map) {
+                            u if u.is_empty() => "the map's unit".to_string(),
+                            u => format!("the map's unit {u}"),
+                        },
                     ),
                     None => format!(
                         "--floor {floor:.4e} lies above the highest value of {file} ({max:.4e}); lower it (cairn inspect suggests one)."

@@ -835,9 +835,15 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
         ] {
             if !(pos(lo) && hi >= lo) {
                 return bad(format!(
-                    "the cores' {name} range ({option}) must have 0 < MIN <= MAX, and it is {lo}{unit},{hi}{unit}{}",
+                    "the cores' {name} range ({option}) must have 0 < MIN <= MAX, and it is {}{unit},{}{unit}{}",
+                    crate::units::tidy(lo),
+                    crate::units::tidy(hi),
                     if pos(hi) && hi < lo {
-                        format!("; give it the other way round, {hi}{unit},{lo}{unit}")
+                        format!(
+                            "; give it the other way round, {}{unit},{}{unit}",
+                            crate::units::tidy(hi),
+                            crate::units::tidy(lo)
+                        )
                     } else {
                         String::new()
                     }

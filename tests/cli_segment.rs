@@ -1638,16 +1638,21 @@ fn bare_number_thresholds_far_from_the_map_are_questioned() {
             .starts_with("--floor 7 is a bare number")),
         "{rec}"
     );
-    // A column density as a bare number on a map in Jy/beam: no peak rises that far.
-    let (code, _, stderr) = run(&emission, "p", &["--prominence", "3e20"]);
+    // A column density as a bare number on a map in Jy/beam (with the temperature that
+    // converts it): no peak rises that far.
+    let (code, _, stderr) = run(
+        &emission,
+        "p",
+        &["--prominence", "3e20", "--temperature", "14K"],
+    );
     assert_eq!(code, 0, "{stderr}");
     assert!(
         stderr.contains("--prominence 3e20 is a bare number, read in Jy/beam: more than the map's whole rise above the floor")
             && stderr.contains("such as 3e20cm-2"),
         "{stderr}"
     );
-    // ... and as a floor: refused, with the spelling that works.
-    let (code, _, stderr) = run(&emission, "f", &["--floor", "3e21"]);
+    // ... and as a floor: refused, with the spelling that works, which then runs.
+    let (code, _, stderr) = run(&emission, "f", &["--floor", "3e21", "--temperature", "14K"]);
     assert_eq!(code, 2, "{stderr}");
     assert!(
         stderr.contains("--floor 3e21 (a bare number, read in the map's unit Jy/beam) lies far above the highest value")
@@ -1655,6 +1660,17 @@ fn bare_number_thresholds_far_from_the_map_are_questioned() {
         "{stderr}"
     );
     assert!(!d.path().join("f").exists(), "nothing written");
+    let (code, _, stderr) = run(
+        &emission,
+        "f",
+        &["--floor", "3e21cm-2", "--temperature", "14K"],
+    );
+    assert_eq!(code, 0, "{stderr}");
+    // Without the temperature, a column density cannot be read on this map, so it is not
+    // offered.
+    let (code, _, stderr) = run(&emission, "g", &["--floor", "3e21"]);
+    assert_eq!(code, 2, "{stderr}");
+    assert!(!stderr.contains("cm-2"), "{stderr}");
     // Levels with their units, and bare numbers within the map's range: nothing said.
     for (map, extra) in [
         (&column, vec!["--floor", "7mag"]),
