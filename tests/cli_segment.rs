@@ -49,6 +49,23 @@ fn fixture_map() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures/segment/map.fits")
 }
 
+/// `cairn segment demo-maps/MAP -o OUT --no-figure -q EXTRA...` in `dir`.
+fn segment_demo(dir: &Path, map: &str, out: &str, extra: &[&str]) -> (i32, String, String) {
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("demo-maps")
+        .join(map);
+    let mut args = vec![
+        "segment",
+        map.to_str().unwrap(),
+        "-o",
+        out,
+        "--no-figure",
+        "-q",
+    ];
+    args.extend_from_slice(extra);
+    cairn(&args, dir)
+}
+
 fn refused(dir: &Path, args: &[&str], says: &str) {
     let before: Vec<_> = std::fs::read_dir(dir)
         .unwrap()
@@ -1272,21 +1289,8 @@ fn records_keep_what_was_given() {
 #[test]
 fn a_unit_option_of_another_kind_than_the_header_is_said() {
     let d = tempfile::tempdir().unwrap();
-    let map = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
-    let map = map.to_str().unwrap();
-    let (code, _, stderr) = cairn(
-        &[
-            "segment",
-            map,
-            "-o",
-            "col",
-            "--unit",
-            "cm-2",
-            "--no-figure",
-            "-q",
-        ],
-        d.path(),
-    );
+    let map = "velloran-850um.fits";
+    let (code, _, stderr) = segment_demo(d.path(), map, "col", &["--unit", "cm-2"]);
     assert_eq!(code, 0, "{stderr}");
     assert!(
         stderr.contains("warning: --unit 'cm-2' replaces the header's BUNIT 'Jy/beam' (flux density per beam): the values are read as H2 column density"),
@@ -1297,37 +1301,13 @@ fn a_unit_option_of_another_kind_than_the_header_is_said() {
             .unwrap();
     assert_eq!(run["map"]["header_unit"], "Jy/beam");
     assert_eq!(run["map"]["unit"], "cm-2");
-    let (code, _, stderr) = cairn(
-        &[
-            "segment",
-            map,
-            "-o",
-            "mjy",
-            "--unit",
-            "mJy/beam",
-            "--no-figure",
-            "-q",
-        ],
-        d.path(),
-    );
+    let (code, _, stderr) = segment_demo(d.path(), map, "mjy", &["--unit", "mJy/beam"]);
     assert_eq!(code, 0, "{stderr}");
     assert!(
         stderr.contains("warning: --unit 'mJy/beam' replaces the header's BUNIT 'Jy/beam': every value is read as 1000 times smaller than the header says (and so is every sum and mass)"),
         "{stderr}"
     );
-    let (code, _, stderr) = cairn(
-        &[
-            "segment",
-            map,
-            "-o",
-            "same",
-            "--unit",
-            "Jy beam-1",
-            "--no-figure",
-            "-q",
-        ],
-        d.path(),
-    );
+    let (code, _, stderr) = segment_demo(d.path(), map, "same", &["--unit", "Jy beam-1"]);
     assert_eq!(code, 0, "{stderr}");
     assert!(!stderr.contains("replaces"), "{stderr}");
 }
@@ -1605,23 +1585,10 @@ fn a_map_smaller_than_the_default_area_without_a_beam_is_refused_so() {
 #[test]
 fn bare_number_thresholds_far_from_the_map_are_questioned() {
     let d = tempfile::tempdir().unwrap();
-    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps");
-    let column = demo.join("velloran-column.fits");
-    let emission = demo.join("velloran-850um.fits");
-    let run = |map: &Path, out: &str, extra: &[&str]| {
-        let mut args = vec![
-            "segment",
-            map.to_str().unwrap(),
-            "-o",
-            out,
-            "--no-figure",
-            "-q",
-        ];
-        args.extend_from_slice(extra);
-        cairn(&args, d.path())
-    };
+    let (column, emission) = ("velloran-column.fits", "velloran-850um.fits");
+    let run = |map: &str, out: &str, extra: &[&str]| segment_demo(d.path(), map, out, extra);
     // 7 meant as magnitudes on a map in cm-2: below every pixel.
-    let (code, _, stderr) = run(&column, "f7", &["--floor", "7"]);
+    let (code, _, stderr) = run(column, "f7", &["--floor", "7"]);
     assert_eq!(code, 0, "{stderr}");
     assert!(
         stderr.contains("warning: --floor 7 is a bare number, read in cm-2: far below every pixel")
@@ -1641,7 +1608,7 @@ fn bare_number_thresholds_far_from_the_map_are_questioned() {
     // A column density as a bare number on a map in Jy/beam (with the temperature that
     // converts it): no peak rises that far.
     let (code, _, stderr) = run(
-        &emission,
+        emission,
         "p",
         &["--prominence", "3e20", "--temperature", "14K"],
     );
@@ -1652,7 +1619,7 @@ fn bare_number_thresholds_far_from_the_map_are_questioned() {
         "{stderr}"
     );
     // ... and as a floor: refused, with the spelling that works, which then runs.
-    let (code, _, stderr) = run(&emission, "f", &["--floor", "3e21", "--temperature", "14K"]);
+    let (code, _, stderr) = run(emission, "f", &["--floor", "3e21", "--temperature", "14K"]);
     assert_eq!(code, 2, "{stderr}");
     assert!(
         stderr.contains("--floor 3e21 (a bare number, read in the map's unit Jy/beam) lies far above the highest value")
@@ -1661,21 +1628,21 @@ fn bare_number_thresholds_far_from_the_map_are_questioned() {
     );
     assert!(!d.path().join("f").exists(), "nothing written");
     let (code, _, stderr) = run(
-        &emission,
+        emission,
         "f",
         &["--floor", "3e21cm-2", "--temperature", "14K"],
     );
     assert_eq!(code, 0, "{stderr}");
     // Without the temperature, a column density cannot be read on this map, so it is not
     // offered.
-    let (code, _, stderr) = run(&emission, "g", &["--floor", "3e21"]);
+    let (code, _, stderr) = run(emission, "g", &["--floor", "3e21"]);
     assert_eq!(code, 2, "{stderr}");
     assert!(!stderr.contains("cm-2"), "{stderr}");
     // Levels with their units, and bare numbers within the map's range: nothing said.
     for (map, extra) in [
-        (&column, vec!["--floor", "7mag"]),
-        (&column, vec!["--floor", "5e21"]),
-        (&emission, vec!["--floor", "0.05", "--prominence", "0.02"]),
+        (column, vec!["--floor", "7mag"]),
+        (column, vec!["--floor", "5e21"]),
+        (emission, vec!["--floor", "0.05", "--prominence", "0.02"]),
     ] {
         let (code, _, stderr) = run(map, "ok", &extra);
         assert_eq!(code, 0, "{stderr}");
@@ -1690,40 +1657,15 @@ fn bare_number_thresholds_far_from_the_map_are_questioned() {
 #[test]
 fn a_least_area_below_one_pixel_is_said() {
     let d = tempfile::tempdir().unwrap();
-    let map = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
-    let map = map.to_str().unwrap();
-    let (code, _, stderr) = cairn(
-        &[
-            "segment",
-            map,
-            "-o",
-            "a",
-            "--min-area",
-            "20arcsec2",
-            "--no-figure",
-            "-q",
-        ],
-        d.path(),
-    );
+    let map = "velloran-850um.fits";
+    let (code, _, stderr) = segment_demo(d.path(), map, "a", &["--min-area", "20arcsec2"]);
     assert_eq!(code, 0, "{stderr}");
     assert!(
         stderr.contains("warning: --min-area 20arcsec2 is 0.556 of a pixel, so one pixel is the least area and every peak passes the area test (a beam covers"),
         "{stderr}"
     );
     for (out, area) in [("b", "2beam"), ("c", "40arcsec2"), ("e", "1px")] {
-        let (code, _, stderr) = cairn(
-            &[
-                "segment",
-                map,
-                "-o",
-                out,
-                "--min-area",
-                area,
-                "--no-figure",
-                "-q",
-            ],
-            d.path(),
-        );
+        let (code, _, stderr) = segment_demo(d.path(), map, out, &["--min-area", area]);
         assert_eq!(code, 0, "{stderr}");
         assert!(!stderr.contains("--min-area"), "{area}: {stderr}");
     }
