@@ -301,12 +301,7 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
     let sexagesimal =
         !crate::angles::is_plain_number(parts[0]) || !crate::angles::is_plain_number(parts[1]);
     // Hours only for the longitude of an equatorial frame.
-    let hours = map.wcs.as_ref().is_some_and(|w| {
-        matches!(
-            w.frame(),
-            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
-        )
-    });
+    let hours = map.wcs.as_ref().is_some_and(SkyAxes::equatorial);
     let a = crate::angles::parse_longitude(parts[0], hours).ok_or_else(bad)?;
     let b = crate::angles::parse_latitude(parts[1]).ok_or_else(bad)?;
     let size = units::parse_quantity(

@@ -1170,17 +1170,18 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
     synth_population(a, &base, &mut spec, &source, notes)?;
     synth_output(a, &mut spec, &source)?;
     if let Some(n) = &a.noise {
-        let unit = match &spec.output {
-            synth::Output::ColumnDensity => units::PixelUnit::ColumnDensity { to_si: 1e4 },
-            synth::Output::DustEmission {
-                unit: synth::EmissionUnit::MJyPerSr,
-                ..
-            } => units::PixelUnit::SurfaceBrightness {
+        // The pixel unit of each emission unit synth makes.
+        let emission = |u: synth::EmissionUnit| match u {
+            synth::EmissionUnit::MJyPerSr => units::PixelUnit::SurfaceBrightness {
                 to_si: 1e6 * units::JANSKY,
             },
-            synth::Output::DustEmission { .. } => units::PixelUnit::FluxPerBeam {
+            synth::EmissionUnit::JyPerBeam => units::PixelUnit::FluxPerBeam {
                 to_si: units::JANSKY,
             },
+        };
+        let unit = match &spec.output {
+            synth::Output::ColumnDensity => units::PixelUnit::ColumnDensity { to_si: 1e4 },
+            synth::Output::DustEmission { unit, .. } => emission(*unit),
         };
         spec.noise_rms = units::parse_map_value(n, Some(unit), "--noise").map_err(|e| {
             // A noise in the other emission unit: the map can be made in that unit instead.
@@ -1188,22 +1189,15 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
                 synth::Output::DustEmission {
                     unit: synth::EmissionUnit::MJyPerSr,
                     ..
-                } => Some((
-                    units::PixelUnit::FluxPerBeam {
-                        to_si: units::JANSKY,
-                    },
-                    "Jy/beam",
-                )),
-                synth::Output::DustEmission { .. } => Some((
-                    units::PixelUnit::SurfaceBrightness {
-                        to_si: 1e6 * units::JANSKY,
-                    },
-                    "MJy/sr",
-                )),
+                } => Some(synth::EmissionUnit::JyPerBeam),
+                synth::Output::DustEmission { .. } => Some(synth::EmissionUnit::MJyPerSr),
                 synth::Output::ColumnDensity => None,
             };
-            match other.filter(|(u, _)| units::parse_map_value(n, Some(*u), "--noise").is_ok()) {
-                Some((_, name)) => Error::usage(format!(
+            let fits = |u: &synth::EmissionUnit| {
+                units::parse_map_value(n, Some(emission(*u)), "--noise").is_ok()
+            };
+            match other.filter(fits).map(|u| u.text()) {
+                Some(name) => Error::usage(format!(
                     "{}; or make the map in {name} with --emission-unit {name}.",
                     e.trim_end_matches('.')
                 )),

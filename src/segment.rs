@@ -314,10 +314,10 @@ fn bare_number(text: Option<&String>) -> Option<f64> {
 }
 
 /// Ways to write `text` in other units than the map's, for a bare number far from the map's
-/// values: noise units for numbers a noise multiple could be; a column density for numbers of that size on maps of
-/// another kind; magnitudes for small numbers on maps not in magnitudes.
-/// Only spellings this run would take are offered: sigma where the noise is known, column
-/// densities and magnitudes where the map converts to them (`score::conversion_blocker`).
+/// values: noise units for numbers a noise multiple could be (where the noise is known), a
+/// column density for numbers of that size on maps of another kind, magnitudes for small
+/// numbers on maps not in magnitudes; the last two only where the map converts to them
+/// (`score::conversion_blocker`), so that every spelling offered is one this run takes.
 fn other_spellings(
     text: &str,
     v: f64,
@@ -359,13 +359,31 @@ pub fn threshold_warnings(
     if floor_bare.is_none() && prominence_bare.is_none() {
         return out;
     }
-    let (lo, hi) = map
-        .data
-        .iter()
-        .filter(|v| v.is_finite())
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
-            (lo.min(v as f64), hi.max(v as f64))
-        });
+    // The lowest and highest valid values, in parallel pieces (a bare floor is the common
+    // way to give one, and maps may hold billions of pixels).
+    let range = |piece: &[f32]| {
+        piece
+            .iter()
+            .filter(|v| v.is_finite())
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+                (lo.min(v as f64), hi.max(v as f64))
+            })
+    };
+    let both = |a: (f64, f64), b: (f64, f64)| (a.0.min(b.0), a.1.max(b.1));
+    let (lo, hi) = match map.data.as_slice() {
+        Some(all) => {
+            use rayon::prelude::*;
+            all.par_chunks(1 << 20)
+                .map(range)
+                .reduce(|| (f64::INFINITY, f64::NEG_INFINITY), both)
+        }
+        None => map
+            .data
+            .rows()
+            .into_iter()
+            .map(|r| range(&r.to_vec()))
+            .fold((f64::INFINITY, f64::NEG_INFINITY), both),
+    };
     if !lo.is_finite() {
         return out;
     }
