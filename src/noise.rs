@@ -27,6 +27,7 @@
 //! pixels (every k-th finite pixel in storage order), so the result stays deterministic.
 
 use ndarray::ArrayView2;
+use rayon::prelude::*;
 
 /// Scale from the median absolute deviation to the standard deviation of a Gaussian,
 /// 1 / Phi^-1(3/4), as used by astropy's `mad_std`.
@@ -120,6 +121,13 @@ pub fn mad_std(v: &[f64]) -> f64 {
 }
 
 /// Iterative 3-sigma clipping about the median with the MAD width (see the module doc).
+///
+/// The values are sorted once; every pass's kept set is then a run of the sorted values (each
+/// pass keeps an interval of values), whose median is read directly and whose median absolute
+/// deviation is found by bisection (the deviations of the values below the median and of those
+/// above it are two sorted sequences). The mean and standard deviation are summed over the kept
+/// values in their given order, so the result is that of clipping the values themselves pass by
+/// pass, to the last bit (a unit test compares the two).
 pub fn clipped_stats_of(
     values: Vec<f64>,
     sigma: f64,
@@ -129,33 +137,38 @@ pub fn clipped_stats_of(
         return Err(NoNoise::AllMissing);
     }
     let all_same = values.iter().all(|&x| x == values[0]);
-    let mut kept = values;
-    let n_used = kept.len();
+    let n_used = values.len();
+    let mut sorted = values.clone();
+    sorted.par_sort_unstable_by(f64::total_cmp);
+    // The kept values are sorted[a..b].
+    let (mut a, mut b) = (0, sorted.len());
     let mut passes = 0;
-    let mut scratch = Vec::with_capacity(kept.len());
-    while passes < max_passes {
+    while passes < max_passes && a < b {
         passes += 1;
-        scratch.clear();
-        scratch.extend_from_slice(&kept);
-        let cen = median_in_place(&mut scratch);
-        for x in scratch.iter_mut() {
-            *x = (*x - cen).abs();
-        }
-        let width = MAD_TO_SIGMA * median_in_place(&mut scratch);
+        let run = &sorted[a..b];
+        let cen = median_of_sorted(run);
+        let width = MAD_TO_SIGMA * median_deviation_of_sorted(run, cen);
         let (lo, hi) = (cen - width * sigma, cen + width * sigma);
-        let before = kept.len();
-        kept.retain(|&x| x >= lo && x <= hi);
-        if kept.len() == before {
+        let a2 = a + run.partition_point(|&x| x < lo);
+        let b2 = a + run.partition_point(|&x| x <= hi);
+        if a2 == a && b2 == b {
             break;
         }
+        (a, b) = (a2, b2.max(a2));
     }
-    let n = kept.len() as f64;
-    let mean = kept.iter().sum::<f64>() / n;
-    let var = kept.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / n;
+    let (median, lo, hi) = if a < b {
+        (median_of_sorted(&sorted[a..b]), sorted[a], sorted[b - 1])
+    } else {
+        (f64::NAN, f64::INFINITY, f64::NEG_INFINITY)
+    };
+    drop(sorted);
+    // The kept values in their given order, without a copy.
+    let kept = || values.iter().filter(move |&&x| x >= lo && x <= hi);
+    let n_kept = b - a;
+    let n = n_kept as f64;
+    let mean = kept().sum::<f64>() / n;
+    let var = kept().map(|x| (x - mean) * (x - mean)).sum::<f64>() / n;
     let std = var.sqrt();
-    scratch.clear();
-    scratch.extend_from_slice(&kept);
-    let median = median_in_place(&mut scratch);
     if std == 0.0 {
         return Err(if all_same {
             NoNoise::Constant(median)
@@ -168,9 +181,65 @@ pub fn clipped_stats_of(
         median,
         std,
         n_used,
-        n_kept: kept.len(),
+        n_kept,
         passes,
     })
+}
+
+/// The median of values sorted in ascending order (as [`median_in_place`] gives it).
+fn median_of_sorted(s: &[f64]) -> f64 {
+    let n = s.len();
+    if n % 2 == 1 {
+        s[n / 2]
+    } else {
+        0.5 * (s[n / 2 - 1] + s[n / 2])
+    }
+}
+
+/// The median of `|x - cen|` over values sorted in ascending order (as [`median_in_place`] of
+/// the deviations gives it). The deviations of the values below `cen` grow towards the start
+/// and those of the others towards the end (rounding keeps each side monotone), so the
+/// deviations are two sorted sequences, and their middle order statistics are found by
+/// bisection.
+fn median_deviation_of_sorted(s: &[f64], cen: f64) -> f64 {
+    let n = s.len();
+    let split = s.partition_point(|&x| x < cen);
+    // The i-th smallest deviation below the centre, and above it.
+    let below = |i: usize| (s[split - 1 - i] - cen).abs();
+    let above = |i: usize| (s[split + i] - cen).abs();
+    let (nb, na) = (split, n - split);
+    // The k-th smallest (from 0) of the two sequences together: the smallest count i taken
+    // from below such that below(i) is not less than the last one taken from above.
+    let kth = |k: usize| -> f64 {
+        let take = k + 1;
+        let (mut lo, mut hi) = (take.saturating_sub(na), take.min(nb));
+        while lo < hi {
+            let i = (lo + hi) / 2;
+            if below(i) < above(take - i - 1) {
+                lo = i + 1;
+            } else {
+                hi = i;
+            }
+        }
+        let (i, j) = (lo, take - lo);
+        let b = if i > 0 {
+            below(i - 1)
+        } else {
+            f64::NEG_INFINITY
+        };
+        let a = if j > 0 {
+            above(j - 1)
+        } else {
+            f64::NEG_INFINITY
+        };
+        b.max(a)
+    };
+    let mid = kth(n / 2);
+    if n % 2 == 1 {
+        mid
+    } else {
+        0.5 * (kth(n / 2 - 1) + mid)
+    }
 }
 
 /// The default noise estimate of a map (3-sigma clipping, at most 10 passes).
@@ -188,39 +257,50 @@ pub struct BoxBackground {
 }
 
 impl BoxBackground {
-    /// Medians of `map` in boxes of `box_px` pixels (at least 4).
+    /// Medians of `map` in boxes of `box_px` pixels (at least 4), the rows of boxes in
+    /// parallel (each box's median is its own, so the result does not depend on threads).
     pub fn new(map: ArrayView2<f32>, box_px: usize) -> Self {
         let (ny, nx) = map.dim();
         // A box larger than the map is the whole map (a beam given far wider than the map).
         let b = box_px.max(4).min(ny.max(nx).max(4));
         let (gy, gx) = (ny.div_ceil(b), nx.div_ceil(b));
-        let mut all = finite_sample(map);
-        let global = if all.is_empty() {
-            0.0
-        } else {
-            median_in_place(&mut all)
-        };
-        drop(all);
-        let mut grid = vec![global; gx * gy];
-        let mut buf = Vec::with_capacity(b.min(ny) * b.min(nx));
-        for j in 0..gy {
-            for i in 0..gx {
-                buf.clear();
-                let (y1, x1) = (((j + 1) * b).min(ny), ((i + 1) * b).min(nx));
-                for y in j * b..y1 {
-                    for x in i * b..x1 {
-                        let v = map[(y, x)];
-                        if v.is_finite() {
-                            buf.push(v as f64);
-                        }
-                    }
-                }
-                let size = (y1 - j * b) * (x1 - i * b);
-                if !buf.is_empty() && buf.len() * 4 >= size {
-                    grid[j * gx + i] = median_in_place(&mut buf);
-                }
+        let global = {
+            let mut all = finite_sample(map);
+            if all.is_empty() {
+                0.0
+            } else {
+                median_in_place(&mut all)
             }
-        }
+        };
+        let rows: Vec<Vec<Option<f64>>> = (0..gy)
+            .into_par_iter()
+            .map(|j| {
+                let mut buf = Vec::with_capacity(b.min(ny) * b.min(nx));
+                (0..gx)
+                    .map(|i| {
+                        buf.clear();
+                        let (y1, x1) = (((j + 1) * b).min(ny), ((i + 1) * b).min(nx));
+                        for y in j * b..y1 {
+                            let row = map.row(y);
+                            for x in i * b..x1 {
+                                let v = row[x];
+                                if v.is_finite() {
+                                    buf.push(v as f64);
+                                }
+                            }
+                        }
+                        let size = (y1 - j * b) * (x1 - i * b);
+                        (!buf.is_empty() && buf.len() * 4 >= size)
+                            .then(|| median_in_place(&mut buf))
+                    })
+                    .collect()
+            })
+            .collect();
+        let grid = rows
+            .into_iter()
+            .flatten()
+            .map(|m| m.unwrap_or(global))
+            .collect();
         let centre =
             |k: usize, n: usize| (k * b) as f64 + (((k + 1) * b).min(n) - k * b) as f64 / 2.0 - 0.5;
         BoxBackground {
@@ -245,8 +325,18 @@ impl BoxBackground {
 
     /// The background at pixel (y, x): bilinear between box centres, constant beyond them.
     pub fn at(&self, y: usize, x: usize) -> f64 {
-        let (j0, j1, ty) = Self::locate(&self.cy, y as f64);
-        let (i0, i1, tx) = Self::locate(&self.cx, x as f64);
+        self.at_located(
+            Self::locate(&self.cy, y as f64),
+            Self::locate(&self.cx, x as f64),
+        )
+    }
+
+    /// [`Self::at`] with the row's and the column's places among the box centres found.
+    fn at_located(
+        &self,
+        (j0, j1, ty): (usize, usize, f64),
+        (i0, i1, tx): (usize, usize, f64),
+    ) -> f64 {
         let g = |j: usize, i: usize| self.grid[j * self.gx + i];
         let top = g(j0, i0) * (1.0 - tx) + g(j0, i1) * tx;
         let bot = g(j1, i0) * (1.0 - tx) + g(j1, i1) * tx;
@@ -258,13 +348,21 @@ impl BoxBackground {
 /// background, over the same regular subsample as [`finite_sample`].
 pub fn residual_stats(map: ArrayView2<f32>, box_px: usize) -> Result<ClippedStats, NoNoise> {
     let bg = BoxBackground::new(map, box_px);
+    let (ny, nx) = map.dim();
+    // Every row's and column's place among the box centres, found once.
+    let rows: Vec<_> = (0..ny)
+        .map(|y| BoxBackground::locate(&bg.cy, y as f64))
+        .collect();
+    let cols: Vec<_> = (0..nx)
+        .map(|x| BoxBackground::locate(&bg.cx, x as f64))
+        .collect();
     let n_finite = map.iter().filter(|v| v.is_finite()).count();
     let stride = n_finite.div_ceil(MAX_SAMPLE).max(1);
     let sample: Vec<f64> = map
         .indexed_iter()
         .filter(|(_, v)| v.is_finite())
         .step_by(stride)
-        .map(|((y, x), &v)| v as f64 - bg.at(y, x))
+        .map(|((y, x), &v)| v as f64 - bg.at_located(rows[y], cols[x]))
         .collect();
     match clipped_stats_of(sample, 3.0, 10) {
         Err(NoNoise::Constant(_)) => Err(clipped_stats(map)
@@ -318,6 +416,200 @@ mod tests {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
         let d = Normal::new(0.0, sigma).unwrap();
         Array2::from_shape_fn((n, n), |_| d.sample(&mut rng) as f32)
+    }
+
+    /// Clipping as the module doc words it: the kept values themselves, pass by pass.
+    fn clipped_stats_plain(
+        values: Vec<f64>,
+        sigma: f64,
+        max_passes: usize,
+    ) -> Result<ClippedStats, NoNoise> {
+        if values.is_empty() {
+            return Err(NoNoise::AllMissing);
+        }
+        let all_same = values.iter().all(|&x| x == values[0]);
+        let mut kept = values;
+        let n_used = kept.len();
+        let mut passes = 0;
+        let mut scratch = Vec::with_capacity(kept.len());
+        while passes < max_passes {
+            passes += 1;
+            scratch.clear();
+            scratch.extend_from_slice(&kept);
+            let cen = median_in_place(&mut scratch);
+            for x in scratch.iter_mut() {
+                *x = (*x - cen).abs();
+            }
+            let width = MAD_TO_SIGMA * median_in_place(&mut scratch);
+            let (lo, hi) = (cen - width * sigma, cen + width * sigma);
+            let before = kept.len();
+            kept.retain(|&x| x >= lo && x <= hi);
+            if kept.len() == before {
+                break;
+            }
+        }
+        let n = kept.len() as f64;
+        let mean = kept.iter().sum::<f64>() / n;
+        let var = kept.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / n;
+        let std = var.sqrt();
+        scratch.clear();
+        scratch.extend_from_slice(&kept);
+        let median = median_in_place(&mut scratch);
+        if std == 0.0 {
+            return Err(if all_same {
+                NoNoise::Constant(median)
+            } else {
+                NoNoise::Quantised(median)
+            });
+        }
+        Ok(ClippedStats {
+            mean,
+            median,
+            std,
+            n_used,
+            n_kept: kept.len(),
+            passes,
+        })
+    }
+
+    /// The background as the module doc words it: each box's median in turn, each pixel's
+    /// place among the box centres looked up.
+    fn residual_sample_plain(map: ArrayView2<f32>, box_px: usize) -> Vec<f64> {
+        let (ny, nx) = map.dim();
+        let b = box_px.max(4).min(ny.max(nx).max(4));
+        let (gy, gx) = (ny.div_ceil(b), nx.div_ceil(b));
+        let mut all = finite_sample(map);
+        let global = if all.is_empty() {
+            0.0
+        } else {
+            median_in_place(&mut all)
+        };
+        let mut grid = vec![global; gx * gy];
+        for j in 0..gy {
+            for i in 0..gx {
+                let mut buf = Vec::new();
+                let (y1, x1) = (((j + 1) * b).min(ny), ((i + 1) * b).min(nx));
+                for y in j * b..y1 {
+                    for x in i * b..x1 {
+                        if map[(y, x)].is_finite() {
+                            buf.push(map[(y, x)] as f64);
+                        }
+                    }
+                }
+                if !buf.is_empty() && buf.len() * 4 >= (y1 - j * b) * (x1 - i * b) {
+                    grid[j * gx + i] = median_in_place(&mut buf);
+                }
+            }
+        }
+        let centre =
+            |k: usize, n: usize| (k * b) as f64 + (((k + 1) * b).min(n) - k * b) as f64 / 2.0 - 0.5;
+        let bg = BoxBackground {
+            grid,
+            gx,
+            cx: (0..gx).map(|i| centre(i, nx)).collect(),
+            cy: (0..gy).map(|j| centre(j, ny)).collect(),
+        };
+        let n_finite = map.iter().filter(|v| v.is_finite()).count();
+        let stride = n_finite.div_ceil(MAX_SAMPLE).max(1);
+        map.indexed_iter()
+            .filter(|(_, v)| v.is_finite())
+            .step_by(stride)
+            .map(|((y, x), &v)| v as f64 - bg.at(y, x))
+            .collect()
+    }
+
+    #[test]
+    fn sorted_clipping_is_plain_clipping_to_the_bit() {
+        // Noise with outliers, quantised values (ties, zeros of both signs), a skewed tail and
+        // a few values only: the sorted form against clipping the values pass by pass (at
+        // widths of at least one sigma, which always keep the middle half).
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
+        let normal = Normal::new(0.0, 1.0).unwrap();
+        let mut sets: Vec<Vec<f64>> = Vec::new();
+        for n in [1usize, 2, 3, 4, 5, 10, 101, 1000, 20000] {
+            sets.push((0..n).map(|_| normal.sample(&mut rng)).collect());
+            sets.push(
+                (0..n)
+                    .map(|i| {
+                        let v: f64 = normal.sample(&mut rng);
+                        if i % 17 == 0 { v * 50.0 + 20.0 } else { v }
+                    })
+                    .collect(),
+            );
+            sets.push(
+                (0..n)
+                    .map(|_| (normal.sample(&mut rng) * 3.0).round())
+                    .collect(),
+            );
+            sets.push(
+                (0..n)
+                    .map(|i| {
+                        if i % 2 == 0 {
+                            0.0
+                        } else if i % 3 == 0 {
+                            -0.0
+                        } else {
+                            1.0
+                        }
+                    })
+                    .collect(),
+            );
+            sets.push(
+                (0..n)
+                    .map(|_| normal.sample(&mut rng).exp().powi(3))
+                    .collect(),
+            );
+        }
+        sets.push(vec![4.0; 9]);
+        for (k, v) in sets.into_iter().enumerate() {
+            for (sigma, passes) in [(3.0, 10), (1.0, 10), (2.0, 1), (1.5, 50)] {
+                let fast = clipped_stats_of(v.clone(), sigma, passes);
+                let plain = clipped_stats_plain(v.clone(), sigma, passes);
+                let same = match (&fast, &plain) {
+                    (Ok(f), Ok(p)) => {
+                        f.mean.to_bits() == p.mean.to_bits()
+                            && f.median.to_bits() == p.median.to_bits()
+                            && f.std.to_bits() == p.std.to_bits()
+                            && (f.n_used, f.n_kept, f.passes) == (p.n_used, p.n_kept, p.passes)
+                    }
+                    (Err(f), Err(p)) => format!("{f:?}") == format!("{p:?}"),
+                    _ => false,
+                };
+                assert!(same, "set {k}, sigma {sigma}: {fast:?} against {plain:?}");
+            }
+        }
+    }
+
+    #[test]
+    fn parallel_box_background_is_the_plain_one_to_the_bit() {
+        // Noise on a slope with missing pixels and a missing corner, boxes not dividing the map.
+        let mut m = gaussian_map(203, 1.0, 9);
+        for ((y, x), v) in m.indexed_iter_mut() {
+            *v += 0.05 * x as f32 - 0.02 * y as f32;
+            if (x * 7 + y * 3) % 11 == 0 || (x < 60 && y < 60) {
+                *v = f32::NAN;
+            }
+        }
+        for box_px in [4, 17, 50, 500] {
+            let bg = BoxBackground::new(m.view(), box_px);
+            let (ny, nx) = m.dim();
+            let rows: Vec<_> = (0..ny)
+                .map(|y| BoxBackground::locate(&bg.cy, y as f64))
+                .collect();
+            let cols: Vec<_> = (0..nx)
+                .map(|x| BoxBackground::locate(&bg.cx, x as f64))
+                .collect();
+            let fast: Vec<u64> = m
+                .indexed_iter()
+                .filter(|(_, v)| v.is_finite())
+                .map(|((y, x), &v)| (v as f64 - bg.at_located(rows[y], cols[x])).to_bits())
+                .collect();
+            let plain: Vec<u64> = residual_sample_plain(m.view(), box_px)
+                .into_iter()
+                .map(f64::to_bits)
+                .collect();
+            assert_eq!(fast, plain, "boxes of {box_px} px");
+        }
     }
 
     #[test]
