@@ -2300,15 +2300,30 @@ pub fn plots(
             rmin = rmin.min(r);
             rmax = rmax.max(r);
         }
-        let mut series = Series {
-            label: s.label.clone(),
-            style: i,
-            points: p
-                .radii
+        // With a common lower mass, the leaves below it are drawn pale: the fit and the tests
+        // leave them out.
+        let fitted = |m: f64| c.tests_above.is_none_or(|cut| m >= cut);
+        let points = |keep: bool| -> Vec<(f64, f64)> {
+            p.radii
                 .iter()
                 .copied()
                 .zip(p.masses.iter().copied())
-                .collect(),
+                .filter(|&(_, m)| fitted(m) == keep)
+                .collect()
+        };
+        let below = points(false);
+        if !below.is_empty() {
+            ms.series.push(Series {
+                style: i,
+                points: below,
+                faded: true,
+                ..Default::default()
+            });
+        }
+        let mut series = Series {
+            label: s.label.clone(),
+            style: i,
+            points: points(true),
             ..Default::default()
         };
         if let Some(l) = &s.mass_size {
@@ -2359,6 +2374,16 @@ pub fn plots(
                 label: format!("N = 10^{{{}}} cm^{{-2}}", n_cm2.log10().round()),
                 points: span(&g),
             });
+        }
+        if let Some(cut) = c.tests_above {
+            ms.guides.push(Guide {
+                label: format!("fits above {} M_{{sun}}", crate::units::tidy(cut)),
+                points: vec![(r0, cut), (r1, cut)],
+            });
+            ms.notes.push(format!(
+                "pale points: leaves below {} M_{{sun}}, left out of the fits and tests",
+                crate::units::tidy(cut)
+            ));
         }
         for &t in temperatures_k {
             let cs2 = K_B * t / (mu_p * M_H);

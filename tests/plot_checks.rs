@@ -801,3 +801,112 @@ fn legend_and_notes_leave_the_points_clear_together() {
         );
     }
 }
+
+/// The bounds of the paths of the SVG group `id` (text is drawn as paths), and the figure's
+/// size from its view box.
+fn svg_group_and_size(svg: &str, id: &str) -> (svg_layout::Bounds, (f64, f64)) {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let vb: Vec<f64> = doc
+        .root_element()
+        .attribute("viewBox")
+        .unwrap()
+        .split_whitespace()
+        .map(|v| v.parse().unwrap())
+        .collect();
+    let g = doc
+        .descendants()
+        .find(|n| n.attribute("id") == Some(id))
+        .unwrap_or_else(|| panic!("group {id}"));
+    let b = g
+        .descendants()
+        .filter_map(|n| n.attribute("d"))
+        .map(svg_layout::bounds)
+        .fold(
+            (
+                f64::INFINITY,
+                f64::INFINITY,
+                f64::NEG_INFINITY,
+                f64::NEG_INFINITY,
+            ),
+            |b, c| (b.0.min(c.0), b.1.min(c.1), b.2.max(c.2), b.3.max(c.3)),
+        );
+    (b, (vb[2], vb[3]))
+}
+
+/// Notes wider than the frame at a narrow width (a width compare accepts) go under the plot,
+/// wrapped to the figure's width, a value never parted from its unit, and the figure grows to
+/// hold them; at a wide width the same notes fit in a clear corner of the frame. A series
+/// drawn pale is marked so in the SVG and has no legend entry. Read from the SVG.
+#[test]
+fn notes_too_wide_for_the_frame_go_under_the_plot() {
+    let m = power_law_masses(400, 2.35, 0.5, 3);
+    let mut mf = mass_function(&m);
+    mf.label = "a population".into();
+    let note =
+        "a population: alpha = 2.35 ± 0.10 above 0.500 M_{sun} (bootstrap over 1000 resamples)";
+    let p = |notes: Vec<String>| Plot {
+        x_label: "M [M_{sun}]".into(),
+        y_label: "dN/dlog_{10}M".into(),
+        x_scale: AxisScale::Log10,
+        y_scale: AxisScale::Log10,
+        series: vec![
+            mf.clone(),
+            Series {
+                style: 1,
+                points: vec![(0.2, 30.0), (0.3, 40.0)],
+                faded: true,
+                ..Default::default()
+            },
+        ],
+        notes,
+        ..Default::default()
+    };
+    for (width, under) in [(700, true), (4000, false)] {
+        let svg = plot_svg(&p(vec![note.into()]), width, 300.0).unwrap();
+        let bare = plot_svg(&p(vec![]), width, 300.0).unwrap();
+        save(&format!("notes_{width}.svg"), svg.as_bytes());
+        let (notes, (w, h)) = svg_group_and_size(&svg, "notes");
+        let (_, (_, h_bare)) = svg_group_and_size(&bare, "notes");
+        let frame_bottom = svg
+            .split("<clipPath id=\"frame-clip\"><rect ")
+            .nth(1)
+            .map(|r| {
+                let num = |k: &str| -> f64 {
+                    r.split(&format!("{k}=\""))
+                        .nth(1)
+                        .unwrap()
+                        .split('"')
+                        .next()
+                        .unwrap()
+                        .parse()
+                        .unwrap()
+                };
+                num("y") + num("height")
+            })
+            .unwrap();
+        // Inside the figure, whatever the placement.
+        assert!(
+            notes.0 >= 0.0 && notes.2 <= w && notes.3 <= h,
+            "{width}: {notes:?} in {w} x {h}"
+        );
+        if under {
+            assert!(
+                notes.1 > frame_bottom,
+                "{width}: notes {notes:?}, frame to {frame_bottom}"
+            );
+            assert!(h > h_bare, "{width}: {h} against {h_bare} without notes");
+            // Wrapped: the note's text makes several lines.
+            let lines =
+                svg.matches("class=\"text\"").count() - bare.matches("class=\"text\"").count();
+            assert!(lines >= 2, "{width}: {lines} lines of notes");
+        } else {
+            assert!(
+                notes.3 < frame_bottom,
+                "{width}: notes {notes:?}, frame to {frame_bottom}"
+            );
+            assert_eq!(h, h_bare);
+        }
+        assert!(svg.contains(" faded\""), "the pale series is marked");
+        assert_eq!(svg.matches("legend-sample").count(), 1, "one legend entry");
+    }
+}

@@ -12,7 +12,12 @@
 //! (1-2-5 steps on linear axes, decades on logarithmic ones with minor ticks at 2..9). The
 //! legend and the notes go into inner corners of the frame (the legend also stacked on the
 //! notes in theirs), chosen together so that between them they cover the fewest drawn data
-//! and never each other. Points, lines and error bars are clipped to the frame.
+//! and never each other; a legend or notes that the frame has no room for, or that would
+//! cover data (a marker, a fitted line or two error-bar ends) in every corner, go under the
+//! plot instead (the legend's entries in rows, the notes wrapped to the figure's width, never
+//! between a value and its unit), and the figure grows to hold them. A series may be drawn
+//! pale (points left out of a fit, shown for context). Points, lines and error bars are
+//! clipped to the frame.
 //! Values that cannot be shown (not finite, or not positive on a logarithmic axis) are left
 //! out; a line breaks where it meets one.
 //!
@@ -64,6 +69,8 @@ pub struct Series {
     /// Draw `points` as a histogram-like step line: each point is a bin centre, the bin edges
     /// lie midway between neighbouring centres (midway in log10 on a logarithmic x axis).
     pub steps: bool,
+    /// Draw the markers pale (points shown for context, left out of a fit or test).
+    pub faded: bool,
 }
 
 /// A thin grey reference line (e.g. constant column density), labelled along itself near its
@@ -1088,6 +1095,42 @@ fn corner_box(
     (x, y, w, h)
 }
 
+/// `text` broken at spaces into lines no wider than `room` at size `fs` (a piece wider than
+/// that stands alone on its line), never after a number, so that a value keeps its unit;
+/// continuation lines are indented by two spaces.
+fn wrap_words(text_: &str, room: f64, fs: f64) -> Vec<String> {
+    // Pieces that may not be broken: a word ending in a digit takes the next word with it.
+    let mut pieces: Vec<String> = Vec::new();
+    for word in text_.split(' ').filter(|w| !w.is_empty()) {
+        match pieces.last_mut() {
+            Some(last) if last.ends_with(|c: char| c.is_ascii_digit()) => {
+                last.push(' ');
+                last.push_str(word);
+            }
+            _ => pieces.push(word.to_string()),
+        }
+    }
+    let mut lines: Vec<String> = Vec::new();
+    let mut line = String::new();
+    for piece in pieces {
+        let tried = if line.is_empty() {
+            piece.clone()
+        } else {
+            format!("{line} {piece}")
+        };
+        if line.is_empty() || text::width(&tried, fs) <= room {
+            line = tried;
+        } else {
+            lines.push(std::mem::take(&mut line));
+            line = format!("  {piece}");
+        }
+    }
+    if !line.is_empty() || lines.is_empty() {
+        lines.push(line);
+    }
+    lines
+}
+
 /// The box of least score, the first of equal ones.
 fn least(boxes: Vec<(Rect, f64)>) -> Option<Rect> {
     boxes
@@ -1498,14 +1541,23 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
                     drew_markers = true;
                 }
             }
+            let (fill, edge) = if s.faded {
+                (Rgba(colour.0, colour.1, colour.2, 70), Rgba(0, 0, 0, 70))
+            } else {
+                (colour, Rgba(0, 0, 0, 220))
+            };
             g.path(
                 d,
                 vec![
-                    Paint::Fill(colour),
-                    Paint::Stroke(Line::solid(Rgba(0, 0, 0, 220), 0.45 * pt)),
+                    Paint::Fill(fill),
+                    Paint::Stroke(Line::solid(edge, 0.45 * pt)),
                 ],
                 true,
-                &format!("markers {}", marker_shape(s.style)),
+                &format!(
+                    "markers {}{}",
+                    marker_shape(s.style),
+                    if s.faded { " faded" } else { "" }
+                ),
             );
         }
         if !s.label.is_empty() && (drew_line || drew_markers) {
@@ -1598,6 +1650,54 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             let (l, n, _) = best.expect("four corners");
             (Some(l), Some(n))
         }
+    };
+    // A legend or notes that the frame has no room for, that cover data in the best of the
+    // corners (a marker, a fitted line or two error-bar ends; a few samples of a guide are
+    // allowed), or that meet each other, go under the plot instead: the legend's entries in
+    // rows, then the notes, each wrapped to the figure's width; the figure grows to hold them.
+    let (fx, fy, fw, fh) = ax.frame;
+    let fits_clear = |b: Rect| {
+        b.0 >= fx && b.1 >= fy && b.0 + b.2 <= fx + fw && b.1 + b.3 <= fy + fh && score(b) < 1.0
+    };
+    let apart = match (legend_box, notes_box) {
+        (Some(l), Some(n)) => !rects_overlap(l, n),
+        _ => true,
+    };
+    let legend_inside = legend_box.is_some_and(|b| fits_clear(b) && apart);
+    let notes_inside = notes_box.is_some_and(|b| fits_clear(b) && apart);
+    let legend_box = legend_box.filter(|_| legend_inside);
+    let notes_box = notes_box.filter(|_| notes_inside);
+    let under_x = pad;
+    let room = f64::from(ax.width) - 2.0 * pad;
+    // The legend's entries under the plot: (entry, x of its sample, row), flowing left to right.
+    let mut legend_under: Vec<(usize, f64, usize)> = Vec::new();
+    if !legend.is_empty() && !legend_inside {
+        let (mut x, mut row) = (under_x, 0);
+        for k in 0..legend.len() {
+            let w = sample_w + gap + text::width(&p.series[legend[k].0].label, lfs);
+            if x > under_x && x + w > under_x + room {
+                (x, row) = (under_x, row + 1);
+            }
+            legend_under.push((k, x, row));
+            x += w + 1.5 * fs;
+        }
+    }
+    let legend_rows = legend_under.last().map_or(0, |&(_, _, r)| r + 1);
+    let notes_under: Vec<String> = if !p.notes.is_empty() && !notes_inside {
+        p.notes
+            .iter()
+            .flat_map(|n| wrap_words(n, room, lfs))
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let under_rows = legend_rows + notes_under.len();
+    // The first row's centre under the plot, below the x axis's label.
+    let under_y0 = f64::from(ax.height) - pad + gap + 0.5 * lfs * 0.73;
+    let height = if under_rows == 0 {
+        ax.height
+    } else {
+        (f64::from(ax.height) + under_rows as f64 * row_h + gap).ceil() as u32
     };
 
     // Frame, ticks and labels.
@@ -1909,6 +2009,38 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
     }
 
     let mut lg = Group::new("legend", "legend", None);
+    // One legend entry: its sample from x0 and its label after it, centred on yc.
+    let entry = |lg: &mut Group, (si, line, markers): (usize, bool, bool), x0: f64, yc: f64| {
+        let s = &p.series[si];
+        let x1 = x0 + sample_w;
+        if line {
+            lg.path(
+                PathData::line(x0, yc, x1, yc),
+                vec![Paint::Stroke(Line {
+                    color: state_colour(s.style),
+                    width: lw,
+                    dash: state_dash(s.style, lw),
+                    round: true,
+                })],
+                false,
+                "legend-sample",
+            );
+        }
+        if markers {
+            let mut d = PathData::new();
+            marker(&mut d, s.style, 0.5 * (x0 + x1), yc, r);
+            lg.path(
+                d,
+                vec![
+                    Paint::Fill(state_colour(s.style)),
+                    Paint::Stroke(Line::solid(Rgba(0, 0, 0, 220), 0.45 * pt)),
+                ],
+                false,
+                "legend-sample",
+            );
+        }
+        lg.text(&s.label, x1 + gap, yc, lfs, 0.0, 0.5, false, None);
+    };
     if let Some((bx, by, bw, bh)) = legend_box {
         lg.path(
             PathData::rect(bx, by, bw, bh),
@@ -1919,38 +2051,13 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             false,
             "legend-box",
         );
-        for (k, &(si, line, markers)) in legend.iter().enumerate() {
-            let s = &p.series[si];
+        for (k, &e) in legend.iter().enumerate() {
             let yc = by + inner + 0.5 * lfs * 0.73 + k as f64 * row_h;
-            let (x0, x1) = (bx + inner, bx + inner + sample_w);
-            if line {
-                lg.path(
-                    PathData::line(x0, yc, x1, yc),
-                    vec![Paint::Stroke(Line {
-                        color: state_colour(s.style),
-                        width: lw,
-                        dash: state_dash(s.style, lw),
-                        round: true,
-                    })],
-                    false,
-                    "legend-sample",
-                );
-            }
-            if markers {
-                let mut d = PathData::new();
-                marker(&mut d, s.style, 0.5 * (x0 + x1), yc, r);
-                lg.path(
-                    d,
-                    vec![
-                        Paint::Fill(state_colour(s.style)),
-                        Paint::Stroke(Line::solid(Rgba(0, 0, 0, 220), 0.45 * pt)),
-                    ],
-                    false,
-                    "legend-sample",
-                );
-            }
-            lg.text(&s.label, x1 + gap, yc, lfs, 0.0, 0.5, false, None);
+            entry(&mut lg, e, bx + inner, yc);
         }
+    }
+    for &(k, x, row) in &legend_under {
+        entry(&mut lg, legend[k], x, under_y0 + row as f64 * row_h);
     }
     let mut ng = Group::new("notes", "notes", None);
     if let Some((bx, by, _, _)) = notes_box {
@@ -1958,6 +2065,10 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
             let yc = by + inner + 0.5 * lfs * 0.73 + k as f64 * row_h;
             ng.text(n, bx + inner, yc, lfs, 0.0, 0.5, false, Some(0.3 * fs));
         }
+    }
+    for (k, n) in notes_under.iter().enumerate() {
+        let yc = under_y0 + (legend_rows + k) as f64 * row_h;
+        ng.text(n, under_x, yc, lfs, 0.0, 0.5, false, None);
     }
 
     groups.push(gg);
@@ -1968,7 +2079,7 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
     groups.push(ng);
     Ok(Figure {
         width: ax.width,
-        height: ax.height,
+        height,
         dpi,
         frame: ax.frame,
         title,
@@ -1982,6 +2093,27 @@ mod tests {
 
     fn labels(t: &[PlotTick]) -> Vec<String> {
         t.iter().filter_map(|t| t.label.clone()).collect()
+    }
+
+    #[test]
+    fn wrapped_notes_keep_values_with_their_units_and_fit_their_room() {
+        let note = "runA: alpha = 2.64 ± 0.48 above 0.883 M_{sun} over 272 leaves";
+        let fs = 30.0;
+        for room in [200.0, 400.0, 700.0, 1e6] {
+            let lines = wrap_words(note, room, fs);
+            // Nothing lost or added but the continuation lines' indent.
+            let joined: Vec<&str> = lines.iter().flat_map(|l| l.split_whitespace()).collect();
+            assert_eq!(joined, note.split_whitespace().collect::<Vec<_>>(), "{room}");
+            for (k, l) in lines.iter().enumerate() {
+                assert!(!l.ends_with(|c: char| c.is_ascii_digit()), "{room}: {l:?}");
+                assert_eq!(k > 0, l.starts_with("  "), "{room}: {l:?}");
+                // Wider than the room only when it is one unbreakable piece.
+                if text::width(l, fs) > room {
+                    assert!(l.trim().split(' ').count() <= 2, "{room}: {l:?}");
+                }
+            }
+            assert_eq!(lines.len() == 1, room == 1e6, "{room}: {lines:?}");
+        }
     }
 
     #[test]
