@@ -120,9 +120,16 @@ struct SegmentArgs {
     /// Least area of a leaf: pixels (12px or 12), beams (1beam) or sky area (400arcsec2).
     #[arg(long, value_name = "AREA", allow_hyphen_values = true)]
     min_area: Option<String>,
-    /// Pixel adjacency: 4 (edges) or 8 (edges and corners).
-    #[arg(long, default_value = "8", value_name = "4|8")]
-    connectivity: String,
+    /// Pixel adjacency: 4 (edges) or 8 (edges and corners) [default: 8, or the run's with
+    /// --thresholds-from].
+    #[arg(long, value_name = "4|8")]
+    connectivity: Option<String>,
+    /// Take the floor, prominence, least area and connectivity from an earlier run (its folder
+    /// or run.json), in the map units and pixels that run used, as for a map with injected
+    /// cores that must be segmented as the science run was; --floor, --prominence, --min-area
+    /// or --connectivity given beside it replace the run's own.
+    #[arg(long, value_name = "RUN")]
+    thresholds_from: Option<PathBuf>,
     /// Also write leaf footprints grown down to the floor (leaves-grown.fits) and the leaves
     /// measured over them (structures-grown.csv/.fits/.vot).
     #[arg(long)]
@@ -1954,14 +1961,25 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     for w in &m.warnings {
         errln!("warning: {w}");
     }
-    let connectivity = match a.connectivity.trim() {
-        "4" => cairn::hierarchy::Connectivity::Four,
-        "8" => cairn::hierarchy::Connectivity::Eight,
-        other => {
+    let from = a
+        .thresholds_from
+        .as_deref()
+        .map(|r| segment::thresholds_from_run(r, &m))
+        .transpose()?;
+    for w in from.iter().flat_map(|f| &f.warnings) {
+        errln!("warning: {w}");
+    }
+    let connectivity = match a.connectivity.as_deref().map(str::trim) {
+        Some("4") => cairn::hierarchy::Connectivity::Four,
+        Some("8") => cairn::hierarchy::Connectivity::Eight,
+        Some(other) => {
             return Err(Error::usage(format!(
                 "--connectivity '{other}' is not understood: give 4 or 8."
             )));
         }
+        None => from
+            .as_ref()
+            .map_or(cairn::hierarchy::Connectivity::Eight, |f| f.connectivity),
     };
     // The auxiliary maps must not be among the files the run replaces (the map and the noise
     // map are checked by the library).
@@ -1980,9 +1998,26 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         for n in &notes {
             errln!("warning: {n}");
         }
-        // They change the masses: the run records them (run record, catalogue notes).
+        // They change the masses: the run records them (run record, catalogue notes), as it
+        // does those on thresholds taken from another run.
         c.warnings = notes;
+        c.warnings
+            .extend(from.iter().flat_map(|f| f.warnings.iter().cloned()));
         c
+    };
+    // A threshold not given takes the earlier run's, said as coming from it in the records.
+    let map_unit = match segment::map_unit(&m) {
+        u if u.is_empty() => u,
+        u => format!(" {u}"),
+    };
+    let from_text = |v: f64, unit: &str| {
+        from.as_ref().map(|f| {
+            format!(
+                "{}{unit} (from {})",
+                cairn::table::fmt_f64(v),
+                f.record.display()
+            )
+        })
     };
     let level = |text: &Option<String>, what: &str| {
         text.as_deref()
@@ -1990,9 +2025,16 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             .transpose()
     };
     let so = segment::SegmentOptions {
-        floor: level(&a.floor, "--floor")?,
-        prominence: level(&a.prominence, "--prominence")?,
-        min_area: a.min_area.as_deref().map(segment::parse_area).transpose()?,
+        floor: level(&a.floor, "--floor")?
+            .or(from.as_ref().map(|f| segment::Level::Value(f.floor))),
+        prominence: level(&a.prominence, "--prominence")?
+            .or(from.as_ref().map(|f| segment::Level::Value(f.prominence))),
+        min_area: a
+            .min_area
+            .as_deref()
+            .map(segment::parse_area)
+            .transpose()?
+            .or(from.as_ref().map(|f| segment::Area::Pixels(f.min_area_px))),
         connectivity,
         grow_leaves: a.grow_leaves,
         leaves_only: a.leaves_only,
@@ -2012,7 +2054,18 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         .collect(),
         // The figure options are checked even with --no-figure, so that a mistake in them is
         // not silently ignored.
-        threshold_texts: [a.floor.clone(), a.prominence.clone(), a.min_area.clone()],
+        threshold_texts: [
+            a.floor
+                .clone()
+                .or_else(|| from.as_ref().and_then(|f| from_text(f.floor, &map_unit))),
+            a.prominence.clone().or_else(|| {
+                from.as_ref()
+                    .and_then(|f| from_text(f.prominence, &map_unit))
+            }),
+            a.min_area
+                .clone()
+                .or_else(|| from.as_ref().and_then(|f| from_text(f.min_area_px, "px"))),
+        ],
         figure: {
             let style = a.style.style(&m, !a.no_figure)?;
             (!a.no_figure).then_some(style)

@@ -611,6 +611,136 @@ fn resolve_with(
     })
 }
 
+/// Thresholds taken from an earlier run's record (`segment --thresholds-from RUN`): its floor
+/// and prominence in map units, its least area in pixels and its connectivity, as it used
+/// them, so that a map with injected cores (or a re-run) is segmented exactly as the science
+/// run was, whatever the noise estimate of the new map.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RunThresholds {
+    /// The run record read.
+    pub record: PathBuf,
+    /// Floor, map units.
+    pub floor: f64,
+    /// Prominence, map units.
+    pub prominence: f64,
+    /// Least area, pixels.
+    pub min_area_px: f64,
+    /// Pixel adjacency.
+    pub connectivity: Connectivity,
+    /// Said on stderr and recorded: a resolution that differs from this run's.
+    pub warnings: Vec<String>,
+}
+
+/// Reads the thresholds of the run in `run` (its folder or its `run.json`) for `map`: refused
+/// when the record cannot be read, lacks them, or gives them in another unit than the map's
+/// (`map_unit`); warned about when the record's run was made at another resolution
+/// (`--common-resolution`) than `map` has, or on a map of another size.
+pub fn thresholds_from_run(run: &Path, map: &Map) -> Result<RunThresholds> {
+    let record = if run.is_dir() {
+        run.join(names::RUN)
+    } else {
+        run.to_path_buf()
+    };
+    let text = std::fs::read_to_string(&record).map_err(|e| {
+        Error::input(
+            &record,
+            format!("cannot be read ({e}); give --thresholds-from a run folder of segment or its run.json."),
+        )
+    })?;
+    let v: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
+        Error::input(
+            &record,
+            format!("is not a run record ({e}); give --thresholds-from a run folder of segment or its run.json."),
+        )
+    })?;
+    let missing = |what: &str| {
+        Error::input(
+            &record,
+            format!(
+                "has no {what}, so it is not a run record of segment; give --thresholds-from a run folder of segment."
+            ),
+        )
+    };
+    let number = |key: &str| -> Result<f64> {
+        v.pointer(&format!("/parameters/{key}/value"))
+            .and_then(|x| x.as_f64())
+            .filter(|x| x.is_finite())
+            .ok_or_else(|| missing(&format!("parameters.{key}.value")))
+    };
+    let (floor, prominence, min_area_px) =
+        (number("floor")?, number("prominence")?, number("min_area")?);
+    let connectivity = match v
+        .pointer("/parameters/connectivity")
+        .and_then(|x| x.as_u64())
+    {
+        Some(4) => Connectivity::Four,
+        Some(8) => Connectivity::Eight,
+        _ => return Err(missing("parameters.connectivity of 4 or 8")),
+    };
+    let theirs = v
+        .pointer("/parameters/floor/unit")
+        .and_then(|x| x.as_str())
+        .ok_or_else(|| missing("parameters.floor.unit"))?;
+    let ours = map_unit(map);
+    if theirs != ours {
+        return Err(Error::input(
+            &record,
+            format!(
+                "gives its thresholds in {} but {} is in {}; take thresholds from a run of a map in the same unit, or give --floor and --prominence.",
+                if theirs.is_empty() { "no unit" } else { theirs },
+                map.path.display(),
+                if ours.is_empty() {
+                    "no unit".to_string()
+                } else {
+                    ours
+                },
+            ),
+        ));
+    }
+    let mut warnings = Vec::new();
+    let res = |x: Option<f64>| {
+        x.map(|r| format!("{}", units::as_given(r / crate::physics::constants::PC)))
+    };
+    let (theirs_res, ours_res) = (
+        res(v
+            .pointer("/common_resolution/resolution_m")
+            .and_then(|x| x.as_f64())),
+        res(map.common_resolution.map(|c| c.resolution_m)),
+    );
+    if theirs_res != ours_res {
+        let say = |r: &Option<String>| {
+            r.as_ref().map_or("its own resolution".to_string(), |r| {
+                format!("a common resolution of {r} pc")
+            })
+        };
+        warnings.push(format!(
+            "the thresholds come from a run at {} ({}), and this map is at {}; its levels and least area may not mean the same here",
+            say(&theirs_res),
+            record.display(),
+            say(&ours_res)
+        ));
+    }
+    let size = (
+        v.pointer("/map/nx").and_then(|x| x.as_u64()),
+        v.pointer("/map/ny").and_then(|x| x.as_u64()),
+    );
+    if size != (Some(map.nx() as u64), Some(map.ny() as u64)) {
+        warnings.push(format!(
+            "the thresholds come from a run of a map of another size ({}), so its least area of {} pixels may not be the same area on the sky here",
+            record.display(),
+            crate::table::fmt_f64(min_area_px)
+        ));
+    }
+    Ok(RunThresholds {
+        record,
+        floor,
+        prominence,
+        min_area_px,
+        connectivity,
+        warnings,
+    })
+}
+
 /// The unit of the map's values in the outputs: the canonical spelling of the unit cairn
 /// read ([`units::canonical_unit`]: `cm-2` for a BUNIT of `1/cm2`, `mag` for `mag(AK)`,
 /// `Jy/beam` for `JY/BEAM`), or a unit it does not convert as written.

@@ -1670,3 +1670,108 @@ fn a_least_area_below_one_pixel_is_said() {
         assert!(!stderr.contains("--min-area"), "{area}: {stderr}");
     }
 }
+
+/// `--thresholds-from RUN` segments with the run's own floor, prominence, least area and
+/// connectivity in map units and pixels, whatever this run's noise (here a noise ten times
+/// the estimate, which would move sigma thresholds): the record's values are the run's to the
+/// bit, said as taken from it, and on the same map the catalogue's rows are the run's. An
+/// option given beside it replaces that threshold alone; a run of a map in another unit, or a
+/// folder without a run record, is refused in one sentence with the fix.
+#[test]
+fn thresholds_from_an_earlier_run_are_that_runs_to_the_bit() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    let map = "velloran-850um.fits";
+    let (code, _, err) = segment_demo(dir, map, "science", &["--connectivity", "4"]);
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = segment_demo(
+        dir,
+        map,
+        "again",
+        &["--thresholds-from", "science", "--noise", "1"],
+    );
+    assert_eq!(code, 0, "{err}");
+    let record = |run: &str| -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(dir.join(run).join("run.json")).unwrap())
+            .unwrap()
+    };
+    let (science, again) = (record("science"), record("again"));
+    for key in ["floor", "prominence", "min_area"] {
+        let v = |r: &serde_json::Value| r["parameters"][key]["value"].as_f64().unwrap();
+        assert_eq!(v(&again).to_bits(), v(&science).to_bits(), "{key}");
+        let typed = again["parameters"][key]["typed"].as_str().unwrap();
+        assert!(typed.ends_with("(from science/run.json)"), "{key}: {typed}");
+    }
+    assert_eq!(again["parameters"]["connectivity"], 4);
+    assert_ne!(again["noise"]["value"], science["noise"]["value"]);
+    let rows = |run: &str| -> Vec<String> {
+        std::fs::read_to_string(dir.join(run).join("structures.csv"))
+            .unwrap()
+            .lines()
+            .filter(|l| !l.starts_with('#'))
+            .map(str::to_string)
+            .collect()
+    };
+    // The error columns follow the noise; every other column is the run's.
+    let header: Vec<String> = rows("science")[0].split(',').map(str::to_string).collect();
+    let keep: Vec<usize> = (0..header.len())
+        .filter(|&i| !header[i].ends_with("_err"))
+        .collect();
+    let pick = |rows: Vec<String>| -> Vec<Vec<String>> {
+        rows.iter()
+            .map(|r| {
+                let cells: Vec<&str> = r.split(',').collect();
+                keep.iter().map(|&i| cells[i].to_string()).collect()
+            })
+            .collect()
+    };
+    assert!(rows("science").len() > 10);
+    assert_eq!(pick(rows("again")), pick(rows("science")));
+
+    // One threshold given beside it replaces that one only.
+    let (code, _, err) = segment_demo(
+        dir,
+        map,
+        "lower",
+        &["--thresholds-from", "science/run.json", "--floor", "0.01"],
+    );
+    assert_eq!(code, 0, "{err}");
+    let lower = record("lower");
+    assert_eq!(lower["parameters"]["floor"]["value"], 0.01);
+    assert_eq!(
+        lower["parameters"]["prominence"]["value"],
+        science["parameters"]["prominence"]["value"]
+    );
+    assert_eq!(lower["parameters"]["connectivity"], 4);
+
+    // A run of a map in another unit, and a folder that holds no run record.
+    let column = PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("demo-maps")
+        .join("velloran-column.fits");
+    let column = column.to_str().unwrap();
+    refused(
+        dir,
+        &[
+            "segment",
+            column,
+            "-o",
+            "other",
+            "--thresholds-from",
+            "science",
+        ],
+        "gives its thresholds in Jy/beam but",
+    );
+    std::fs::create_dir(dir.join("empty")).unwrap();
+    refused(
+        dir,
+        &[
+            "segment",
+            column,
+            "-o",
+            "other",
+            "--thresholds-from",
+            "empty",
+        ],
+        "give --thresholds-from a run folder of segment or its run.json",
+    );
+}

@@ -1673,8 +1673,8 @@ fn build(p: &Plot, width_px: u32, dpi: f64) -> Result<Figure, RenderError> {
     let mut legend_under: Vec<(usize, f64, usize)> = Vec::new();
     if !legend.is_empty() && !legend_inside {
         let (mut x, mut row) = (under_x, 0);
-        for k in 0..legend.len() {
-            let w = sample_w + gap + text::width(&p.series[legend[k].0].label, lfs);
+        for (k, &(si, _, _)) in legend.iter().enumerate() {
+            let w = sample_w + gap + text::width(&p.series[si].label, lfs);
             if x > under_x && x + w > under_x + room {
                 (x, row) = (under_x, row + 1);
             }
@@ -2103,7 +2103,11 @@ mod tests {
             let lines = wrap_words(note, room, fs);
             // Nothing lost or added but the continuation lines' indent.
             let joined: Vec<&str> = lines.iter().flat_map(|l| l.split_whitespace()).collect();
-            assert_eq!(joined, note.split_whitespace().collect::<Vec<_>>(), "{room}");
+            assert_eq!(
+                joined,
+                note.split_whitespace().collect::<Vec<_>>(),
+                "{room}"
+            );
             for (k, l) in lines.iter().enumerate() {
                 assert!(!l.ends_with(|c: char| c.is_ascii_digit()), "{room}: {l:?}");
                 assert_eq!(k > 0, l.starts_with("  "), "{room}: {l:?}");
