@@ -71,7 +71,9 @@ impl SkyAxes for FigureSky<'_> {
 }
 
 /// The states in legend order, with their words in the legend (in the figures' markup:
-/// `_{...}` lowers the text). The unknown state's words are the run's own reason
+/// `_{...}` lowers the text) when the leaves' states come from both criteria (alpha_vir where
+/// a velocity dispersion is known, alpha_BE elsewhere); [`state_words`] gives the words of a
+/// run whose states all come from one. The unknown state's words are the run's own reason
 /// ([`unknown_reason`]).
 pub const STATES: [(&str, &str); 4] = [
     (
@@ -82,6 +84,28 @@ pub const STATES: [(&str, &str); 4] = [
     ("unbound", "further from bound"),
     ("unknown", "no distance or temperature"),
 ];
+
+/// The legend's words for the state `name` (one of [`STATES`] but unknown) when the leaves'
+/// states come from the virial parameter alone (`Some(true)`), from alpha_BE alone
+/// (`Some(false)`), or from both (`None`; [`STATES`]' words).
+pub fn state_words(name: &str, virial: Option<bool>) -> String {
+    let (a, bound) = match virial {
+        Some(true) => ("\u{3b1}_{vir}", 2),
+        Some(false) => ("\u{3b1}_{BE}", 1),
+        None => {
+            return STATES
+                .iter()
+                .find(|(n, _)| *n == name)
+                .map(|(_, d)| d.to_string())
+                .unwrap_or_default();
+        }
+    };
+    match name {
+        "bound" => format!("{a} \u{2264} {bound}"),
+        "marginal" => format!("{bound} < {a} \u{2264} {}", 2 * bound),
+        _ => format!("{a} > {}", 2 * bound),
+    }
+}
 
 /// Why the leaves of a run on `map` at `distance_pc` have no state, as far as the map and the
 /// distance tell: the first of the map's unit having no conversion to mass, no sky
@@ -164,6 +188,9 @@ pub struct FigStructure {
     pub merge_level: f64,
     /// State word, when known.
     pub state: Option<String>,
+    /// Whether the state comes from the virial parameter (a velocity dispersion was known),
+    /// rather than from alpha_BE.
+    pub by_virial: bool,
 }
 
 /// Everything the figures of a run draw from.
@@ -477,14 +504,28 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             peak: (s.peak.0 as f64, s.peak.1 as f64),
         })
         .collect();
+    // The criterion the known states come from: the virial parameter, alpha_BE, or both.
+    let judged: Vec<bool> = input
+        .structures
+        .iter()
+        .filter(|s| s.is_leaf && s.state.as_deref().is_some_and(|w| w != "unknown"))
+        .map(|s| s.by_virial)
+        .collect();
+    let virial = if judged.iter().all(|&v| v) {
+        Some(true)
+    } else if judged.iter().all(|&v| !v) {
+        Some(false)
+    } else {
+        None
+    };
     let states: Vec<StateLegend> = STATES
         .iter()
-        .map(|&(n, d)| StateLegend {
+        .map(|&(n, _)| StateLegend {
             name: n.to_string(),
             description: if n == "unknown" {
                 unknown_reason(map, input.distance_pc)
             } else {
-                d.to_string()
+                state_words(n, virial)
             },
         })
         .collect();
@@ -825,13 +866,15 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
             peak_value,
             merge_level,
             state: None,
+            by_virial: false,
         });
     }
     let leaves_only = run["parameters"]["leaves_only"].as_bool().unwrap_or(false);
     let states = read_states(&csv_path, &read(crate::segment::names::CSV)?)?;
     check_catalogue_ids(&csv_path, &states, &structures, leaves_only)?;
-    for (id, state) in states {
+    for (id, state, by_virial) in states {
         structures[id as usize].state = state;
+        structures[id as usize].by_virial = by_virial;
     }
     check_labels(&lab_path, labels.view(), &structures)?;
     Ok(SavedRun {
@@ -849,7 +892,7 @@ const REMAKE: &str = "re-run `cairn segment` on the map with --force to remake t
 /// no `state` column, as without a distance). A damaged catalogue (rows cut short, ids that
 /// are not numbers, no `id` column) and states that are none of the words of [`STATES`] are
 /// refused.
-fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>)>> {
+fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>, bool)>> {
     let (cols, rows) = crate::table::read_catalogue_csv(path, csv)?;
     let Some(i) = cols.iter().position(|c| c == "id") else {
         return Err(Error::input(
@@ -860,6 +903,8 @@ fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>)>> {
         ));
     };
     let s = cols.iter().position(|c| c == "state");
+    // A virial parameter in the row: the state comes from it.
+    let v = cols.iter().position(|c| c == "alpha_vir");
     rows.iter()
         .enumerate()
         .map(|(n, r)| {
@@ -885,7 +930,8 @@ fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>)>> {
                     ),
                 ));
             }
-            Ok((id, state))
+            let by_virial = v.is_some_and(|v| r[v].parse::<f64>().is_ok_and(f64::is_finite));
+            Ok((id, state, by_virial))
         })
         .collect()
 }
@@ -894,7 +940,7 @@ fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>)>> {
 /// made with `--leaves-only`), each once; the order of the rows does not matter.
 fn check_catalogue_ids(
     path: &Path,
-    rows: &[(u32, Option<String>)],
+    rows: &[(u32, Option<String>, bool)],
     structures: &[FigStructure],
     leaves_only: bool,
 ) -> Result<()> {
@@ -905,7 +951,7 @@ fn check_catalogue_ids(
             .is_some_and(|s| s.is_leaf || !leaves_only)
     };
     let mut seen = vec![false; structures.len()];
-    for &(id, _) in rows {
+    for &(id, _, _) in rows {
         if !expected(id) {
             let what = if leaves_only && (id as usize) < structures.len() {
                 format!("{tree} has it as a branch but the run catalogued leaves only")

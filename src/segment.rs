@@ -1951,6 +1951,11 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                         .as_ref()
                         .filter(|_| with_distance)
                         .map(|p| p[i].state.to_string()),
+                    // As draw reads it from the catalogue's alpha_vir column.
+                    by_virial: phys
+                        .as_ref()
+                        .filter(|_| with_distance)
+                        .is_some_and(|p| p[i].alpha_vir.is_finite()),
                 })
                 .collect(),
             distance_pc: o

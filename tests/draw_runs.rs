@@ -928,3 +928,59 @@ fn sexagesimal_centres_equal_their_degrees() {
     );
     assert!(!d.path().join("r3").exists());
 }
+
+/// The legend says the criterion the states come from: with `--sigma-nt` every leaf's state
+/// follows its virial parameter (Bertoldi & McKee 1992's alpha_vir, bound at 2, cairn's
+/// marginal band to 4), without it alpha_BE (bound at 1, marginal to 2); `draw` reads which
+/// from the catalogue's alpha_vir column and draws the same legend.
+#[test]
+fn the_legend_names_the_criterion_the_states_follow() {
+    let d = tempfile::tempdir().unwrap();
+    for (name, extra, words) in [
+        (
+            "virial",
+            &["--sigma-nt", "0.3km/s"][..],
+            [
+                "\u{3b1}vir \u{2264} 2",
+                "2 < \u{3b1}vir \u{2264} 4",
+                "\u{3b1}vir > 4",
+            ],
+        ),
+        (
+            "be",
+            &[][..],
+            [
+                "\u{3b1}BE \u{2264} 1",
+                "1 < \u{3b1}BE \u{2264} 2",
+                "\u{3b1}BE > 2",
+            ],
+        ),
+    ] {
+        let run = demo_run(d.path(), name, extra);
+        let states = leaf_states(&run);
+        let figs = format!("figs-{name}");
+        let o = cairn(
+            &["draw", run.to_str().unwrap(), "-o", &figs, "-q"],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let svg = std::fs::read_to_string(d.path().join(&figs).join("overlay.svg")).unwrap();
+        let entries = legend_entries(&svg);
+        let mut checked = 0;
+        for (state, w) in ["bound", "marginal", "unbound"].iter().zip(words) {
+            if states.contains(*state) {
+                assert!(
+                    entries.contains(&format!("{state}: {w}")),
+                    "{name}: {state}: {w} not in {entries:?}"
+                );
+                checked += 1;
+            }
+        }
+        assert!(checked >= 1, "{name}: no state to check in {entries:?}");
+        let other = if name == "virial" { "BE" } else { "vir" };
+        assert!(
+            !entries.iter().any(|e| e.contains(other)),
+            "{name}: {entries:?}"
+        );
+    }
+}
