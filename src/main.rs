@@ -496,10 +496,12 @@ impl PhysicsArgs {
         use cairn::score::{Context, Field};
         let mut c = Context::default();
         if let Some(d) = &self.distance {
-            c.distance_m = Some(positive(
+            let m = positive(
                 q(d, &[Dimension::Length], "--distance")?.si,
                 &format!("--distance {d}"),
-            )?);
+            )?;
+            notes.extend(cairn::score::distance_warning(m, d.trim()));
+            c.distance_m = Some(m);
         }
         let t_cmb = cairn::physics::constants::T_CMB;
         if let Some(t) = &self.temperature {
@@ -2156,6 +2158,15 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     if let Some(states) = summary.leaf_states.as_ref().filter(|s| !s.is_empty()) {
         let words: Vec<String> = states.iter().map(|(k, v)| format!("{v} {k}")).collect();
         outln!("leaves by state: {}", words.join(", "));
+        // Masses without a gas temperature: why every state is unknown, and the fix.
+        if states.iter().all(|(k, _)| k == "unknown")
+            && a.physics.temperature.is_none()
+            && a.physics.temperature_map.is_none()
+        {
+            outln!(
+                "no gravitational state: give a gas temperature (--temperature or --temperature-map)"
+            );
+        }
     }
     for w in &t.warnings {
         errln!("warning: {w}");

@@ -195,6 +195,27 @@ impl Default for Context {
     }
 }
 
+/// A warning for a distance no molecular cloud cairn measures is likely at, given as
+/// `given`: nearer than 10 pc (the nearest clouds lie about 100 pc away) or farther than
+/// 100 kpc (beyond the Milky Way and the Magellanic Clouds, where a parsec typed as a
+/// kiloparsec lands); such distances are not refused, as clouds of other galaxies are
+/// measured too. The limits are common practice, not from a source.
+pub fn distance_warning(distance_m: f64, given: &str) -> Option<String> {
+    let pc = distance_m / crate::physics::constants::PC;
+    if pc < 10.0 {
+        Some(format!(
+            "--distance {given} is nearer than any molecular cloud (the nearest lie about 100 pc away); check its unit, such as 140pc or 1.4kpc"
+        ))
+    } else if pc > 1e5 {
+        Some(format!(
+            "--distance {given} places the cloud beyond the Milky Way and the Magellanic Clouds (more than 100 kpc away); if parsecs were meant, give {}pc",
+            crate::units::tidy(pc / 1e3)
+        ))
+    } else {
+        None
+    }
+}
+
 /// The caution that goes with the masses of a map of this unit: which assumptions carry
 /// their systematics (common practice: the factor of two of dust-emission masses comes from
 /// the opacity's and the temperature's uncertainty, the distance enters squared).

@@ -1775,3 +1775,57 @@ fn thresholds_from_an_earlier_run_are_that_runs_to_the_bit() {
         "give --thresholds-from a run folder of segment or its run.json",
     );
 }
+
+/// A distance no molecular cloud is likely at (a parsec typed as a kiloparsec, or a bare few
+/// parsecs) is run as given with a warning naming the likely fix, kept in the run record; a
+/// plausible one is not; and masses without a gas temperature say why no leaf has a state.
+/// The limits (10 pc, 100 kpc) are cairn's, common practice.
+#[test]
+fn implausible_distances_are_warned_and_unknown_states_explained() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    let map = "velloran-column.fits";
+    let (code, out, err) = segment_demo(dir, map, "far", &["--distance", "300kpc"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        err.contains("warning: --distance 300kpc places the cloud beyond the Milky Way")
+            && err.contains("give 300pc"),
+        "{err}"
+    );
+    assert!(
+        out.contains(
+            "no gravitational state: give a gas temperature (--temperature or --temperature-map)"
+        ),
+        "{out}"
+    );
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("far/run.json")).unwrap()).unwrap();
+    assert!(
+        run["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w.as_str().unwrap().contains("300kpc")),
+        "{run}"
+    );
+    let (code, _, err) = segment_demo(
+        dir,
+        map,
+        "near",
+        &["--distance", "3pc", "--temperature", "12K"],
+    );
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        err.contains("--distance 3pc is nearer than any molecular cloud"),
+        "{err}"
+    );
+    let (code, out, err) = segment_demo(
+        dir,
+        map,
+        "fine",
+        &["--distance", "1.4kpc", "--temperature", "12K"],
+    );
+    assert_eq!(code, 0, "{err}");
+    assert!(!err.contains("warning"), "{err}");
+    assert!(!out.contains("no gravitational state"), "{out}");
+}
