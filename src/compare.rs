@@ -990,6 +990,30 @@ fn same_leaves(pops: &[Population]) -> Vec<String> {
     w
 }
 
+/// A `--mass-min` well below a population's lightest leaf (by more than a factor 1.5, cairn's
+/// margin, so that a round number just under it passes): the tail is then the whole
+/// population and its slope is that of a power law from a mass where no leaf lies, which a
+/// population turning over at low masses makes shallower than its tail's (the lower mass of
+/// the tail is the one the data choose, Clauset, Shalizi & Newman 2009); said per population.
+fn mass_min_warnings(pops: &[Population], o: &Options) -> Vec<String> {
+    let Some(m) = o.mass_min else {
+        return Vec::new();
+    };
+    pops.iter()
+        .filter_map(|p| {
+            let lo = p.masses.iter().copied().fold(f64::INFINITY, f64::min);
+            (lo.is_finite() && m * 1.5 < lo).then(|| {
+                format!(
+                    "{}: --mass-min {} Msun lies well below its lightest leaf ({} Msun), so its power law is fitted to every leaf from a mass where none lies; leave --mass-min out to let the data choose the tail, or give one within the masses",
+                    p.label,
+                    crate::units::tidy(m),
+                    f(lo)
+                )
+            })
+        })
+        .collect()
+}
+
 /// Fairness warnings between the populations, each naming the difference.
 pub fn fairness(pops: &[Population]) -> Vec<String> {
     let mut w = same_leaves(pops);
@@ -1329,7 +1353,10 @@ pub fn compare_with_progress(
         pairs,
         ad_mass: k_sample_test(pops, &ms, "masses", o.tests_above),
         ad_radius: k_sample_test(pops, &rs, "radii", o.tests_above),
-        warnings: fairness(pops),
+        warnings: fairness(pops)
+            .into_iter()
+            .chain(mass_min_warnings(pops, o))
+            .collect(),
         tests_above: o.tests_above,
         mass_column: pops
             .first()

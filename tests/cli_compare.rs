@@ -1416,3 +1416,52 @@ fn the_same_leaves_twice_are_warned_about() {
     let report = std::fs::read_to_string(d.path().join("d/report.md")).unwrap();
     assert!(report.contains("are not independent samples"), "{report}");
 }
+
+/// A `--mass-min` well below a population's lightest leaf (more than cairn's factor 1.5) is
+/// warned about for that population alone, naming its lightest leaf and the fix; one just
+/// under the lightest leaf, and a population reaching below it, are not.
+#[test]
+fn a_mass_min_below_every_leaf_is_warned_about() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(
+        &d.path().join("light.csv"),
+        &power_law_leaves(60, 0.2, 2.35),
+    );
+    catalogue(
+        &d.path().join("heavy.csv"),
+        &power_law_leaves(60, 1.0, 2.35),
+    );
+    let go = |mass_min: &str, out: &str| {
+        let (code, _, err) = run(
+            d.path(),
+            &[
+                "compare",
+                "light.csv",
+                "heavy.csv",
+                "-o",
+                out,
+                "--mass-min",
+                mass_min,
+                "--resamples",
+                "20",
+                "-q",
+            ],
+        );
+        assert_eq!(code, 0, "{err}");
+        err
+    };
+    let err = go("0.3Msun", "a");
+    assert!(
+        err.contains("warning: heavy: --mass-min 0.3 Msun lies well below its lightest leaf")
+            && err.contains("leave --mass-min out"),
+        "{err}"
+    );
+    assert!(!err.contains("light: --mass-min"), "{err}");
+    let report = std::fs::read_to_string(d.path().join("a/report.md")).unwrap();
+    assert!(
+        report.contains("heavy: --mass-min 0.3 Msun lies well below"),
+        "{report}"
+    );
+    let err = go("0.9Msun", "b");
+    assert!(!err.contains("lies well below"), "{err}");
+}
