@@ -1873,7 +1873,7 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
         counted.len(),
         if s.with_baseline {
             format!(
-                " away from the map's own leaves ({} on them left out)",
+                " away from the map's own leaves ({} more, placed on them, not counted)",
                 injected - counted.len()
             )
         } else {

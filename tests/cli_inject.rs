@@ -1145,7 +1145,7 @@ fn leaves_of_the_maps_own_matched_to_faint_cores_are_named() {
     assert!(!report.contains("of the matches**"), "{report}");
     assert!(
         o.stdout.contains(&format!(
-            "away from the map's own leaves ({on_own} on them left out)"
+            "away from the map's own leaves ({on_own} more, placed on them, not counted)"
         )),
         "{}",
         o.stdout

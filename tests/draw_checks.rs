@@ -167,15 +167,32 @@ fn segment_figures_are_well_formed_and_redrawn_identically() {
             "{f} redrawn identically"
         );
     }
-    // A figure too small for every label says how many leaves went unlabelled, and that
-    // count and the labels drawn add up to the leaves.
+    // A figure at the narrowest width draw accepts (which a narrower one's refusal names),
+    // too small for every label, says how many leaves went unlabelled, and that count and the
+    // labels drawn add up to the leaves.
     let small = dir.path().join("small");
-    let o3 = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
-        .args(["draw", out.to_str().unwrap(), "-o", small.to_str().unwrap()])
-        .args(["--width", "320", "--dpi", "120", "-q"])
-        .output()
-        .unwrap();
-    assert!(o3.status.success());
+    let draw_at = |width: &str| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(["draw", out.to_str().unwrap(), "-o", small.to_str().unwrap()])
+            .args(["--width", width, "--dpi", "120", "-q"])
+            .output()
+            .unwrap()
+    };
+    let refused = draw_at("200");
+    assert!(!refused.status.success());
+    let said = String::from_utf8_lossy(&refused.stderr).to_string();
+    let narrowest = said
+        .split("at least ")
+        .nth(1)
+        .and_then(|r| r.split(' ').next())
+        .unwrap_or_else(|| panic!("no narrowest width in {said:?}"))
+        .to_string();
+    let o3 = draw_at(&narrowest);
+    assert!(
+        o3.status.success(),
+        "{}",
+        String::from_utf8_lossy(&o3.stderr)
+    );
     let text = String::from_utf8_lossy(&o3.stdout).to_string();
     let line = text
         .lines()

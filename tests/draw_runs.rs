@@ -570,7 +570,8 @@ fn demo_leaf_ids_are_nearest_their_own_leaves_or_on_leader_lines() {
 }
 
 /// `draw --width` below what the demo map needs beside its labels names the narrowest width
-/// that works, and that width draws; an empty `--range` is refused in one sentence.
+/// that works, and that width draws a map panel at least an inch wide; an empty `--range` is
+/// refused in one sentence.
 #[test]
 fn draw_states_the_true_narrowest_width_and_refuses_an_empty_range() {
     let d = tempfile::tempdir().unwrap();
@@ -602,6 +603,17 @@ fn draw_states_the_true_narrowest_width_and_refuses_an_empty_range() {
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(d.path().join("c/overlay.png").exists());
+    // At that width the map panel (the frame's clip) is at least an inch across at the
+    // default 300 dpi (cairn's least panel), and the bottom axis's labels stand apart.
+    let svg = std::fs::read_to_string(d.path().join("c/overlay.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let clip = doc
+        .descendants()
+        .find(|n| n.has_tag_name("clipPath"))
+        .and_then(|c| c.children().find(|n| n.has_tag_name("rect")))
+        .expect("the frame's clip");
+    let panel: f64 = clip.attribute("width").unwrap().parse().unwrap();
+    assert!(panel >= 300.0, "a panel {panel} px wide");
     for range in ["0.1,0.1", "-3,-3"] {
         let o = cairn(&["draw", run, "-o", "e", "--range", range], d.path());
         assert_eq!(o.code, 2, "{range}: {}", o.stderr);

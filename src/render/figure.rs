@@ -190,7 +190,7 @@ pub fn narrowest_width_px(dpi: f64) -> u32 {
     let fs = m.fs;
     let left = m.pad + 1.2 * fs + m.gap + m.gap + m.tick;
     let right = m.gap * 2.0 + 0.8 * fs + m.tick + m.gap + m.gap + 1.2 * fs + m.pad;
-    (left + right + MIN_PANEL).ceil() as u32
+    (left + right + min_panel(dpi)).ceil() as u32
 }
 
 /// The largest figure drawn, in pixels (150 megapixels: a square figure about 12000 pixels
@@ -210,8 +210,11 @@ pub(crate) fn check_figure_size(width: u32, height: u32) -> Result<(), RenderErr
     Ok(())
 }
 
-/// The narrowest map panel drawn, in pixels.
-const MIN_PANEL: f64 = 16.0;
+/// The narrowest map panel drawn, in pixels: one inch at `dpi` (at least 16 pixels), so that
+/// the narrowest figure accepted still shows the map (cairn's choice).
+fn min_panel(dpi: f64) -> f64 {
+    dpi.max(16.0)
+}
 
 fn validate(o: &Overlay, s: &Style) -> Result<Region, RenderError> {
     let (h, w) = o.map.dim();
@@ -377,8 +380,9 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
                 .fold(0.0, f64::max);
             let left = m.pad + 1.2 * fs + m.gap + left_lab_w + m.gap + m.tick;
             let avail = (w_total - left - right).floor();
-            if avail < MIN_PANEL {
-                return Err((left + right + MIN_PANEL).ceil());
+            let least_w = min_panel(s.dpi);
+            if avail < least_w {
+                return Err((left + right + least_w).ceil());
             }
             // The scale bar's text, beside the bar on the flattest panels (whose width is all
             // that is available), stays inside the frame with its halo and a gap above and
@@ -414,6 +418,18 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
                 .collect();
             leftp.sort_by(f64::total_cmp);
             let l_ok = leftp.windows(2).all(|p| p[1] - p[0] > 1.6 * lfs);
+            // Two labels along the bottom that still overlap need a wider panel: the width
+            // that would part them (the layout then tries again from it).
+            // (Labels at one place, which no width parts, are left as they are.)
+            let parted = bottom.windows(2).all(|p| p[1].0 - p[0].0 > 1.0);
+            if !b_ok && nb <= 2 && parted {
+                let overlap = bottom
+                    .windows(2)
+                    .map(|p| p[0].0 + p[0].1 / 2.0 + 1.5 * m.gap - (p[1].0 - p[1].1 / 2.0))
+                    .fold(0.0, f64::max);
+                let grow = if fw > 0.0 { avail / fw } else { 1.0 };
+                return Err((w_total + overlap * grow + 1.0).ceil());
+            }
             if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
                 return Ok((ticks, left, fw, fh, kx, ky, equal));
             }
