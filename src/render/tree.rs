@@ -177,8 +177,8 @@ pub(crate) fn scene(
     let nslots = tl.leaf_order.len().max(1) as f64;
     let slot = pw / nslots;
     // Leaf ids: upright at 0.75 of the text size when they fit between neighbours; else
-    // turned, at that size or smaller down to MIN_ID_PT; else left out, and the figure says
-    // so under the legend.
+    // turned, at that size or smaller down to MIN_ID_PT; else left out, which the figure's
+    // count (`ids_left_out`) lets the caller say.
     let full_fs = 0.75 * fs;
     let min_fs = MIN_ID_PT * pt;
     let max_id_w = |size: f64| {
@@ -219,28 +219,8 @@ pub(crate) fn scene(
     if linear_instead {
         note.push("levels at or below zero: the level axis is linear, not logarithmic".into());
     }
-    if id_mode == 0 {
-        // Wrapped at words to the figure's width.
-        let words = format!(
-            "leaf ids left out: {} leaves on {} pixel columns leave no room for ids of {MIN_ID_PT} pt; a wider --width shows them",
-            tl.leaf_order.len(),
-            pw.round()
-        );
-        let mut line = String::new();
-        for w in words.split(' ') {
-            let longer = if line.is_empty() {
-                w.to_string()
-            } else {
-                format!("{line} {w}")
-            };
-            if !line.is_empty() && text::width(&longer, lfs) > w_total - 2.0 * pad {
-                note.push(std::mem::replace(&mut line, w.to_string()));
-            } else {
-                line = longer;
-            }
-        }
-        note.push(line);
-    }
+    // Ids left out (id_mode 0) are said by the caller on stderr, not in the figure, which
+    // would otherwise carry a message to its user into a paper.
     if dense {
         let (a, b) = (
             format!(
