@@ -418,11 +418,11 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
                 .collect();
             leftp.sort_by(f64::total_cmp);
             let l_ok = leftp.windows(2).all(|p| p[1] - p[0] > 1.6 * lfs);
-            // Two labels along the bottom that still overlap need a wider panel: the width
-            // that would part them (the layout then tries again from it).
-            // (Labels at one place, which no width parts, are left as they are.)
+            // Labels along the bottom that still overlap at the fewest ticks asked for need a
+            // wider panel: the width that would part them (the layout then tries again from
+            // it). (Labels at one place, which no width parts, are left as they are.)
             let parted = bottom.windows(2).all(|p| p[1].0 - p[0].0 > 1.0);
-            if !b_ok && nb <= 2 && parted {
+            if !b_ok && nb <= 1 && parted {
                 let overlap = bottom
                     .windows(2)
                     .map(|p| p[0].0 + p[0].1 / 2.0 + 1.5 * m.gap - (p[1].0 - p[1].1 / 2.0))
@@ -430,10 +430,10 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
                 let grow = if fw > 0.0 { avail / fw } else { 1.0 };
                 return Err((w_total + overlap * grow + 1.0).ceil());
             }
-            if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
+            if (b_ok || nb <= 1) && (l_ok || nl <= 2) {
                 return Ok((ticks, left, fw, fh, kx, ky, equal));
             }
-            if !b_ok && nb > 2 {
+            if !b_ok && nb > 1 {
                 nb -= 1;
             }
             if !l_ok && nl > 2 {
@@ -1118,13 +1118,15 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             "scale-bar",
         );
         let tw = text::width(label, lfs);
+        // Leaf labels keep a gap from the bar and its text, beyond both halos.
+        let clear = 0.3 * fs;
         if lay.scale_text_beside {
             let ch = text::cap_height(lfs);
             keep_out.push((
-                ax - m.gap - tw,
-                ay - cap.max(ch / 2.0),
-                bx,
-                ay + cap.max(ch / 2.0),
+                ax - m.gap - tw - clear,
+                ay - cap.max(ch / 2.0) - clear,
+                bx + clear,
+                ay + cap.max(ch / 2.0) + clear,
             ));
             sc.text(
                 label,
@@ -1139,10 +1141,10 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             );
         } else {
             keep_out.push((
-                ax.min(0.5 * (ax + bx) - tw / 2.0),
-                ay - cap - m.gap - text::cap_height(lfs),
-                bx.max(0.5 * (ax + bx) + tw / 2.0),
-                ay + cap,
+                ax.min(0.5 * (ax + bx) - tw / 2.0) - clear,
+                ay - cap - m.gap - text::cap_height(lfs) - clear,
+                bx.max(0.5 * (ax + bx) + tw / 2.0) + clear,
+                ay + cap + clear,
             ));
             sc.text(
                 label,
