@@ -1160,7 +1160,20 @@ pub fn fairness(pops: &[Population]) -> Vec<String> {
                 (p.label.clone(), compared, said)
             })
             .collect();
-        if vals.iter().any(|v| v.1 != vals[0].1) {
+        // Thresholds given in other words but used at the same values to the bit (a run
+        // and one made with its --thresholds-from) are the same thresholds.
+        let same_values = k[0] == "parameters" && {
+            let used: Vec<Option<u64>> = pops
+                .iter()
+                .map(|p| {
+                    get(p, &["parameters", k[1], "value"])
+                        .and_then(|v| v.as_f64())
+                        .map(f64::to_bits)
+                })
+                .collect();
+            used.iter().all(|u| u.is_some() && *u == used[0])
+        };
+        if !same_values && vals.iter().any(|v| v.1 != vals[0].1) {
             let list: Vec<String> = vals.iter().map(|(l, _, v)| format!("{l}: {v}")).collect();
             w.push(format!("the {what} differs ({})", list.join("; ")));
         }
@@ -2338,9 +2351,15 @@ pub fn plots(
                 .filter(|&(_, m)| fitted(m) == keep)
                 .collect()
         };
-        let below = points(false);
+        let (above, below) = (points(true), points(false));
         if !below.is_empty() {
             ms.series.push(Series {
+                // A population wholly below the cut keeps its legend entry here.
+                label: if above.is_empty() {
+                    s.label.clone()
+                } else {
+                    String::new()
+                },
                 style: i,
                 points: below,
                 faded: true,
@@ -2350,7 +2369,7 @@ pub fn plots(
         let mut series = Series {
             label: s.label.clone(),
             style: i,
-            points: points(true),
+            points: above,
             ..Default::default()
         };
         if let Some(l) = &s.mass_size {

@@ -803,7 +803,7 @@ pub fn check_baseline(truth: &Truth, run: &Run, baseline: &Run) -> Result<Vec<St
             && differ(a, b)
         {
             differences.push(format!(
-                "the baseline run's {key} ({}) is not the scored run's ({}): give both runs the same thresholds, such as --floor, --prominence and --min-area in map units",
+                "the baseline run's {key} ({}) is not the scored run's ({}): give both runs the same thresholds, such as segment --thresholds-from BASELINE_RUN for the injected map",
                 crate::units::tidy(b),
                 crate::units::tidy(a)
             ));

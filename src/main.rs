@@ -1966,7 +1966,14 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     let from = a
         .thresholds_from
         .as_deref()
-        .map(|r| segment::thresholds_from_run(r, &m))
+        .map(|r| {
+            let taken = [
+                a.floor.is_none(),
+                a.prominence.is_none(),
+                a.min_area.is_none(),
+            ];
+            segment::thresholds_from_run(r, &m, taken)
+        })
         .transpose()?;
     for w in from.iter().flat_map(|f| &f.warnings) {
         errln!("warning: {w}");

@@ -127,12 +127,14 @@ pub fn mad_std(v: &[f64]) -> f64 {
 /// deviation is found by bisection (the deviations of the values below the median and of those
 /// above it are two sorted sequences). The mean and standard deviation are summed over the kept
 /// values in their given order, so the result is that of clipping the values themselves pass by
-/// pass, to the last bit (a unit test compares the two).
+/// pass, to the last bit (a unit test compares the two). The values must be finite (as every
+/// sample of this module is).
 pub fn clipped_stats_of(
     values: Vec<f64>,
     sigma: f64,
     max_passes: usize,
 ) -> Result<ClippedStats, NoNoise> {
+    debug_assert!(values.iter().all(|v| v.is_finite()), "finite values only");
     if values.is_empty() {
         return Err(NoNoise::AllMissing);
     }

@@ -631,11 +631,14 @@ pub struct RunThresholds {
     pub warnings: Vec<String>,
 }
 
-/// Reads the thresholds of the run in `run` (its folder or its `run.json`) for `map`: refused
-/// when the record cannot be read, lacks them, or gives them in another unit than the map's
-/// (`map_unit`); warned about when the record's run was made at another resolution
-/// (`--common-resolution`) than `map` has, or on a map of another size.
-pub fn thresholds_from_run(run: &Path, map: &Map) -> Result<RunThresholds> {
+/// Reads the thresholds of the run in `run` (its folder or its `run.json`) for `map`, of which
+/// `taken` (floor, prominence, least area) are used (the others given beside it): refused when
+/// the record cannot be read, lacks them, holds values no run has (a negative prominence, a
+/// least area that is not a whole number of pixels), or gives levels taken in another unit
+/// than the map's (`map_unit`); warned about when thresholds are taken from a run made at
+/// another resolution (`--common-resolution`) than `map` has, or its least area from a run of
+/// a map of another size.
+pub fn thresholds_from_run(run: &Path, map: &Map, taken: [bool; 3]) -> Result<RunThresholds> {
     let record = if run.is_dir() {
         run.join(names::RUN)
     } else {
@@ -669,6 +672,14 @@ pub fn thresholds_from_run(run: &Path, map: &Map) -> Result<RunThresholds> {
     };
     let (floor, prominence, min_area_px) =
         (number("floor")?, number("prominence")?, number("min_area")?);
+    if prominence < 0.0 || min_area_px < 1.0 || min_area_px.fract() != 0.0 {
+        return Err(Error::input(
+            &record,
+            format!(
+                "holds a prominence of {prominence} and a least area of {min_area_px} pixels, which no run of segment records (a prominence of 0 or more, a whole number of pixels), so it was changed; give --thresholds-from the record as segment wrote it."
+            ),
+        ));
+    }
     let connectivity = match v
         .pointer("/parameters/connectivity")
         .and_then(|x| x.as_u64())
@@ -682,11 +693,11 @@ pub fn thresholds_from_run(run: &Path, map: &Map) -> Result<RunThresholds> {
         .and_then(|x| x.as_str())
         .ok_or_else(|| missing("parameters.floor.unit"))?;
     let ours = map_unit(map);
-    if theirs != ours {
+    if (taken[0] || taken[1]) && theirs != ours {
         return Err(Error::input(
             &record,
             format!(
-                "gives its thresholds in {} but {} is in {}; take thresholds from a run of a map in the same unit, or give --floor and --prominence.",
+                "gives its thresholds in {} but {} is in {}; take thresholds from a run of a map in the same unit, or give both --floor and --prominence beside it.",
                 if theirs.is_empty() { "no unit" } else { theirs },
                 map.path.display(),
                 if ours.is_empty() {
@@ -707,7 +718,7 @@ pub fn thresholds_from_run(run: &Path, map: &Map) -> Result<RunThresholds> {
             .and_then(|x| x.as_f64())),
         res(map.common_resolution.map(|c| c.resolution_m)),
     );
-    if theirs_res != ours_res {
+    if taken.iter().any(|&t| t) && theirs_res != ours_res {
         let say = |r: &Option<String>| {
             r.as_ref().map_or("its own resolution".to_string(), |r| {
                 format!("a common resolution of {r} pc")
@@ -724,7 +735,7 @@ pub fn thresholds_from_run(run: &Path, map: &Map) -> Result<RunThresholds> {
         v.pointer("/map/nx").and_then(|x| x.as_u64()),
         v.pointer("/map/ny").and_then(|x| x.as_u64()),
     );
-    if size != (Some(map.nx() as u64), Some(map.ny() as u64)) {
+    if taken[2] && size != (Some(map.nx() as u64), Some(map.ny() as u64)) {
         warnings.push(format!(
             "the thresholds come from a run of a map of another size ({}), so its least area of {} pixels may not be the same area on the sky here",
             record.display(),

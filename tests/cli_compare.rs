@@ -425,6 +425,20 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
     };
 
     let report = compare("cut", &["--tests-above", &cut]);
+    // The mass-size plot shows the leaves below the cut pale, marks the cut with a line and
+    // says so in a note; without a cut it has none of these.
+    let svg =
+        |out: &str| std::fs::read_to_string(d.path().join(out).join("mass_size.svg")).unwrap();
+    let cut_svg = svg("cut");
+    assert!(cut_svg.contains(" faded\""), "no pale markers");
+    assert!(
+        cut_svg.contains(&format!(
+            "aria-label=\"fits above {} Msun\"",
+            num(&f["cut"])
+        )),
+        "no line at the cut"
+    );
+    assert!(cut_svg.contains("pale points: leaves below"), "no note");
     let tests = table("cut/tests.csv");
     let pairs = f["pairs"].as_array().unwrap();
     assert_eq!(tests.len() - 1, pairs.len());
@@ -626,6 +640,11 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
 
     // Without the cut every leaf is tested: scipy's Anderson-Darling statistics on every leaf.
     let report = compare("every", &[]);
+    let every_svg = svg("every");
+    assert!(
+        !every_svg.contains(" faded\"") && !every_svg.contains("fits above"),
+        "pale markers or a cut line without a cut"
+    );
     for what in ["mass", "radius"] {
         let plural = if what == "mass" { "masses" } else { "radii" };
         let (stat, _) = anderson(&report, plural);

@@ -1774,6 +1774,54 @@ fn thresholds_from_an_earlier_run_are_that_runs_to_the_bit() {
         ],
         "give --thresholds-from a run folder of segment or its run.json",
     );
+    // Both levels given beside it: only the least area and connectivity are taken, whatever
+    // the unit of the run's map.
+    let (code, _, err) = cairn(
+        &[
+            "segment",
+            column,
+            "-o",
+            "levels-given",
+            "--thresholds-from",
+            "science",
+            "--floor",
+            "3e21cm-2",
+            "--prominence",
+            "5e20cm-2",
+            "--no-figure",
+            "-q",
+        ],
+        dir,
+    );
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(
+        record("levels-given")["parameters"]["min_area"]["value"],
+        science["parameters"]["min_area"]["value"]
+    );
+    // A record changed by hand to a least area no run has is refused, naming it.
+    let area = science["parameters"]["min_area"]["value"].as_u64().unwrap();
+    let text = std::fs::read_to_string(dir.join("science/run.json"))
+        .unwrap()
+        .replace(&format!("\"value\": {area}\n"), "\"value\": 2.5\n");
+    assert!(text.contains("\"value\": 2.5"), "the record was changed");
+    std::fs::create_dir(dir.join("changed")).unwrap();
+    std::fs::write(dir.join("changed/run.json"), text).unwrap();
+    refused(
+        dir,
+        &[
+            "segment",
+            column,
+            "-o",
+            "other",
+            "--thresholds-from",
+            "changed",
+            "--floor",
+            "3e21cm-2",
+            "--prominence",
+            "5e20cm-2",
+        ],
+        "changed/run.json: holds a prominence of",
+    );
 }
 
 /// A distance no molecular cloud is likely at (a parsec typed as a kiloparsec, or a bare few

@@ -998,6 +998,26 @@ fn the_legend_names_the_criterion_the_states_follow() {
             }
         }
         assert!(checked >= 1, "{name}: no state to check in {entries:?}");
+        // segment's own figure, drawn from what it measured, has the same legend as draw's,
+        // read from the catalogue.
+        let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+        let seg = format!("seg-{name}");
+        let mut args = vec![
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            &seg,
+            "--distance",
+            "410pc",
+            "--temperature",
+            "14K",
+            "-q",
+        ];
+        args.extend_from_slice(extra);
+        let o = cairn(&args, d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let own = std::fs::read_to_string(d.path().join(&seg).join("overlay.svg")).unwrap();
+        assert_eq!(legend_entries(&own), entries, "{name}: segment's legend");
         let other = if name == "virial" { "BE" } else { "vir" };
         assert!(
             !entries.iter().any(|e| e.contains(other)),

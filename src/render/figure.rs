@@ -418,22 +418,27 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
                 .collect();
             leftp.sort_by(f64::total_cmp);
             let l_ok = leftp.windows(2).all(|p| p[1] - p[0] > 1.6 * lfs);
-            // Labels along the bottom that still overlap at the fewest ticks asked for need a
-            // wider panel: the width that would part them (the layout then tries again from
-            // it). (Labels at one place, which no width parts, are left as they are.)
+            // Two labels along the bottom that still overlap need a wider panel: their
+            // distance grows with the panel's width, so the width that would part them is
+            // found from their overlap and distance (the layout then tries again from it).
+            // Labels at one place, which no width parts, and figures at the widest width cairn
+            // draws (20000 pixels) keep them as they are.
             let parted = bottom.windows(2).all(|p| p[1].0 - p[0].0 > 1.0);
-            if !b_ok && nb <= 1 && parted {
-                let overlap = bottom
+            if !b_ok && nb <= 2 && parted && w_total < 20000.0 {
+                let need = bottom
                     .windows(2)
-                    .map(|p| p[0].0 + p[0].1 / 2.0 + 1.5 * m.gap - (p[1].0 - p[1].1 / 2.0))
+                    .map(|p| {
+                        let sep = p[1].0 - p[0].0;
+                        let overlap = p[0].1 / 2.0 + p[1].1 / 2.0 + 1.5 * m.gap - sep;
+                        overlap.max(0.0) * avail / sep
+                    })
                     .fold(0.0, f64::max);
-                let grow = if fw > 0.0 { avail / fw } else { 1.0 };
-                return Err((w_total + overlap * grow + 1.0).ceil());
+                return Err((w_total + need + 1.0).ceil());
             }
-            if (b_ok || nb <= 1) && (l_ok || nl <= 2) {
+            if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
                 return Ok((ticks, left, fw, fh, kx, ky, equal));
             }
-            if !b_ok && nb > 1 {
+            if !b_ok && nb > 2 {
                 nb -= 1;
             }
             if !l_ok && nl > 2 {

@@ -219,8 +219,8 @@ pub(crate) fn scene(
     if linear_instead {
         note.push("levels at or below zero: the level axis is linear, not logarithmic".into());
     }
-    // Ids left out (id_mode 0) are said by the caller on stderr, not in the figure, which
-    // would otherwise carry a message to its user into a paper.
+    // Ids left out (id_mode 0) are said by the caller in its summary, not in the figure,
+    // which would otherwise carry a message to its user into a paper.
     if dense {
         let (a, b) = (
             format!(
