@@ -1484,3 +1484,58 @@ fn a_mass_min_below_every_leaf_is_warned_about() {
     let err = go("0.9Msun", "b");
     assert!(!err.contains("lies well below"), "{err}");
 }
+
+/// A run and one made with its `--thresholds-from` record their thresholds in other words
+/// (`default` against a value in map units) but used them at the same values to the bit:
+/// compare does not call them different; a run at another floor still is.
+#[test]
+fn thresholds_taken_from_a_run_compare_as_the_same() {
+    let d = tempfile::tempdir().unwrap();
+    let map =
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let m = map.to_str().unwrap();
+    let physics = [
+        "--distance",
+        "410pc",
+        "--temperature",
+        "14K",
+        "--no-figure",
+        "-q",
+    ];
+    for (out, extra) in [
+        ("science", &[][..]),
+        ("again", &["--thresholds-from", "science"][..]),
+        (
+            "higher",
+            &["--thresholds-from", "science", "--floor", "5e21cm-2"][..],
+        ),
+    ] {
+        let mut args = vec!["segment", m, "-o", out];
+        args.extend_from_slice(&physics);
+        args.extend_from_slice(extra);
+        let (code, _, err) = run(d.path(), &args);
+        assert_eq!(code, 0, "{out}: {err}");
+    }
+    let compare = |b: &str, out: &str| {
+        let (code, _, err) = run(
+            d.path(),
+            &[
+                "compare",
+                "science",
+                b,
+                "-o",
+                out,
+                "--resamples",
+                "20",
+                "-q",
+            ],
+        );
+        assert_eq!(code, 0, "{err}");
+        err
+    };
+    let err = compare("again", "c1");
+    assert!(!err.contains("(as given) differs"), "{err}");
+    let err = compare("higher", "c2");
+    assert!(err.contains("the floor (as given) differs"), "{err}");
+    assert!(!err.contains("the prominence (as given) differs"), "{err}");
+}
