@@ -770,25 +770,7 @@ fn legend_and_notes_leave_the_points_clear_together() {
     };
     let svg = plot_svg(&p, 1200, 300.0).unwrap();
     save("legend_and_notes.svg", svg.as_bytes());
-    let doc = roxmltree::Document::parse(&svg).unwrap();
-    let group_bounds = |id: &str| -> svg_layout::Bounds {
-        let g = doc
-            .descendants()
-            .find(|n| n.attribute("id") == Some(id))
-            .unwrap_or_else(|| panic!("group {id}"));
-        g.descendants()
-            .filter_map(|n| n.attribute("d"))
-            .map(svg_layout::bounds)
-            .fold(
-                (
-                    f64::INFINITY,
-                    f64::INFINITY,
-                    f64::NEG_INFINITY,
-                    f64::NEG_INFINITY,
-                ),
-                |b, c| (b.0.min(c.0), b.1.min(c.1), b.2.max(c.2), b.3.max(c.3)),
-            )
-    };
+    let group_bounds = |id: &str| svg_group_and_size(&svg, id).0;
     let (legend, notes) = (group_bounds("legend"), group_bounds("notes"));
     assert!(!svg_layout::overlap(legend, notes), "{legend:?} {notes:?}");
     let m = markers(&svg);
