@@ -697,9 +697,10 @@ impl StyleArgs {
                 Limits::Percentiles(a, b)
             }
         };
-        if self.width < 200 || self.width > 20000 {
+        let widest = cairn::render::MAX_WIDTH_PX;
+        if self.width < 200 || self.width > widest {
             return Err(Error::usage(format!(
-                "--width {} is outside 200 to 20000 pixels; give a width in that range.",
+                "--width {} is outside 200 to {widest} pixels; give a width in that range.",
                 self.width
             )));
         }
@@ -2019,14 +2020,12 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         u if u.is_empty() => u,
         u => format!(" {u}"),
     };
-    let from_text = |v: f64, unit: &str| {
-        from.as_ref().map(|f| {
-            format!(
-                "{}{unit} (from {})",
-                cairn::table::fmt_f64(v),
-                f.record.display()
-            )
-        })
+    let from_text = |f: &segment::RunThresholds, v: f64, unit: &str| {
+        format!(
+            "{}{unit} (from {})",
+            cairn::table::fmt_f64(v),
+            f.record.display()
+        )
     };
     let level = |text: &Option<String>, what: &str| {
         text.as_deref()
@@ -2066,14 +2065,13 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         threshold_texts: [
             a.floor
                 .clone()
-                .or_else(|| from.as_ref().and_then(|f| from_text(f.floor, &map_unit))),
-            a.prominence.clone().or_else(|| {
-                from.as_ref()
-                    .and_then(|f| from_text(f.prominence, &map_unit))
-            }),
+                .or_else(|| from.as_ref().map(|f| from_text(f, f.floor, &map_unit))),
+            a.prominence
+                .clone()
+                .or_else(|| from.as_ref().map(|f| from_text(f, f.prominence, &map_unit))),
             a.min_area
                 .clone()
-                .or_else(|| from.as_ref().and_then(|f| from_text(f.min_area_px, "px"))),
+                .or_else(|| from.as_ref().map(|f| from_text(f, f.min_area_px, "px"))),
         ],
         figure: {
             let style = a.style.style(&m, !a.no_figure)?;

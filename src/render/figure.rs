@@ -193,6 +193,9 @@ pub fn narrowest_width_px(dpi: f64) -> u32 {
     (left + right + min_panel(dpi)).ceil() as u32
 }
 
+/// The widest map figure drawn, in pixels (`--width` is refused above it).
+pub const MAX_WIDTH_PX: u32 = 20_000;
+
 /// The largest figure drawn, in pixels (150 megapixels: a square figure about 12000 pixels
 /// across, 41 inches at 300 dpi). Drawing takes about 16 bytes per figure pixel (the resampled
 /// map, its colours, the canvas and its clip), so this bounds a figure's memory near 2.4 GB.
@@ -422,9 +425,9 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             // distance grows with the panel's width, so the width that would part them is
             // found from their overlap and distance (the layout then tries again from it).
             // Labels at one place, which no width parts, and figures at the widest width cairn
-            // draws (20000 pixels) keep them as they are.
+            // draws ([`MAX_WIDTH_PX`]) keep them as they are.
             let parted = bottom.windows(2).all(|p| p[1].0 - p[0].0 > 1.0);
-            if !b_ok && nb <= 2 && parted && w_total < 20000.0 {
+            if !b_ok && nb <= 2 && parted && w_total < f64::from(MAX_WIDTH_PX) {
                 let need = bottom
                     .windows(2)
                     .map(|p| {

@@ -35,8 +35,8 @@ mod tree;
 
 pub use axes::{AxisTicks, Coord, Edge, Region, Tick, axis_ticks};
 pub use figure::{
-    BeamGeometry, Layout, MAX_FIGURE_PIXELS, PANEL_MAX_ASPECT, PANEL_MAX_HEIGHT, beam_geometry,
-    narrowest_width_px, overlay_layout,
+    BeamGeometry, Layout, MAX_FIGURE_PIXELS, MAX_WIDTH_PX, PANEL_MAX_ASPECT, PANEL_MAX_HEIGHT,
+    beam_geometry, narrowest_width_px, overlay_layout,
 };
 pub use outline::{Ring, ring_area, simplify_ring, trace_outlines};
 pub use raster::colorize;
