@@ -197,7 +197,7 @@ impl Default for Context {
 
 /// A warning for a distance no molecular cloud cairn measures is likely at, given as
 /// `given`: nearer than 10 pc (the nearest clouds lie about 100 pc away) or farther than
-/// 100 kpc (beyond the Milky Way and the Magellanic Clouds, where a parsec typed as a
+/// 100 kpc (beyond our Galaxy and its nearest satellite galaxies, where a parsec typed as a
 /// kiloparsec lands); such distances are not refused, as clouds of other galaxies are
 /// measured too. The limits are common practice, not from a source.
 pub fn distance_warning(distance_m: f64, given: &str) -> Option<String> {
@@ -208,7 +208,7 @@ pub fn distance_warning(distance_m: f64, given: &str) -> Option<String> {
         ))
     } else if pc > 1e5 {
         Some(format!(
-            "--distance {given} places the cloud beyond the Milky Way and the Magellanic Clouds (more than 100 kpc away); if parsecs were meant, give {}pc",
+            "--distance {given} places the cloud more than 100 kpc away, beyond our Galaxy and its nearest satellite galaxies; if parsecs were meant, give {}pc",
             crate::units::tidy(pc / 1e3)
         ))
     } else {

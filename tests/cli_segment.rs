@@ -1836,7 +1836,7 @@ fn implausible_distances_are_warned_and_unknown_states_explained() {
     let (code, out, err) = segment_demo(dir, map, "far", &["--distance", "300kpc"]);
     assert_eq!(code, 0, "{err}");
     assert!(
-        err.contains("warning: --distance 300kpc places the cloud beyond the Milky Way")
+        err.contains("warning: --distance 300kpc places the cloud more than 100 kpc away")
             && err.contains("give 300pc"),
         "{err}"
     );
