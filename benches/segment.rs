@@ -81,6 +81,7 @@ fn child_segment(path: &Path, out: &Path) {
         other_inputs: Vec::new(),
         threshold_texts: Default::default(),
         figure: None,
+        label_choice: Default::default(),
     };
     let t = Instant::now();
     let s = cairn::segment::run(&map, &opts, &|_, _| {}).unwrap();

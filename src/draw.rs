@@ -137,6 +137,17 @@ pub fn unknown_reason(map: &Map, distance_pc: Option<f64>) -> String {
     }
 }
 
+/// Why a run on `map` at `distance_pc` has no masses, as [`unknown_reason`] says it, where
+/// that reason is not about the masses: then an emission map lacked its temperature.
+fn no_mass_reason(map: &Map, distance_pc: Option<f64>) -> String {
+    let r = unknown_reason(map, distance_pc);
+    if r.contains("mass") && !r.starts_with("no stability") {
+        r
+    } else {
+        "a dust-emission map's masses need --temperature or --temperature-map".into()
+    }
+}
+
 /// A unit's text with its negative powers raised (`cm-2` becomes `cm^-2`), as the figures'
 /// markup writes exponents.
 pub fn unit_markup(text: &str) -> String {
@@ -171,6 +182,114 @@ fn state_index(s: Option<&str>) -> usize {
     }
 }
 
+/// Which leaves of a map figure get a label (every leaf is outlined whatever the choice).
+/// Labels are placed brightest peak first, so on a crowded map the ones left without room
+/// are the faintest.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub enum LabelChoice {
+    /// Every leaf.
+    #[default]
+    All,
+    /// None: outlines only.
+    None,
+    /// The leaves in these states (indices into [`STATES`]).
+    States(Vec<usize>),
+    /// The leaves of the N highest peaks (equal peaks by id).
+    Brightest(usize),
+    /// The leaves of at least this mass, in solar masses.
+    MassAtLeast(f64),
+}
+
+impl LabelChoice {
+    /// Reads `--labels`: `all`, `none`, states separated by commas (`bound` or
+    /// `bound,marginal`), a count of the highest peaks (`30`), or a least mass (`2Msun`).
+    pub fn parse(text: &str) -> Result<LabelChoice> {
+        let t = text.trim();
+        let bad = |why: &str| {
+            Error::usage(format!(
+                "--labels '{text}' {why}: give all, none, states such as bound or bound,marginal, a number of leaves (the highest peaks) such as 30, or a least mass such as 2Msun."
+            ))
+        };
+        match t.to_ascii_lowercase().as_str() {
+            "all" => return Ok(LabelChoice::All),
+            "none" => return Ok(LabelChoice::None),
+            _ => {}
+        }
+        if t.starts_with(|c: char| c.is_ascii_alphabetic()) {
+            let mut states = Vec::new();
+            for w in t.split(',') {
+                let w = w.trim().to_ascii_lowercase();
+                let Some(k) = STATES.iter().position(|(n, _)| *n == w) else {
+                    return Err(bad(&format!(
+                        "names '{w}', which is no state (bound, marginal, unbound or unknown)"
+                    )));
+                };
+                if !states.contains(&k) {
+                    states.push(k);
+                }
+            }
+            states.sort_unstable();
+            return Ok(LabelChoice::States(states));
+        }
+        if let Ok(n) = t.parse::<usize>() {
+            return Ok(LabelChoice::Brightest(n));
+        }
+        // In solar masses as typed, so that a mass copied from a catalogue keeps every digit.
+        if let Some(m) = ["Msun", "Msol"]
+            .iter()
+            .find_map(|u| t.strip_suffix(u))
+            .and_then(|n| n.trim().parse::<f64>().ok())
+            .filter(|m| m.is_finite())
+        {
+            return if m >= 0.0 {
+                Ok(LabelChoice::MassAtLeast(m))
+            } else {
+                Err(bad("is not a mass of zero or more"))
+            };
+        }
+        match units::parse_quantity(t, &[units::Dimension::Mass], "--labels") {
+            Ok(q) if q.si.is_finite() && q.si >= 0.0 => Ok(LabelChoice::MassAtLeast(
+                units::as_given(q.si / units::M_SUN),
+            )),
+            Ok(_) => Err(bad("is not a mass of zero or more")),
+            Err(_) => Err(bad("is not understood")),
+        }
+    }
+
+    /// Whether the choice needs the leaves' masses.
+    pub fn needs_masses(&self) -> bool {
+        matches!(self, LabelChoice::MassAtLeast(_))
+    }
+}
+
+/// The leaves of `structures` in the order their labels are placed (highest peak first,
+/// equal peaks by id), each with its label: its id, or empty when `choice` leaves it out.
+pub fn leaf_labels(structures: &[FigStructure], choice: &LabelChoice) -> Vec<(u32, String)> {
+    let mut leaves: Vec<&FigStructure> = structures.iter().filter(|s| s.is_leaf).collect();
+    leaves.sort_by(|a, b| b.peak_value.total_cmp(&a.peak_value).then(a.id.cmp(&b.id)));
+    leaves
+        .iter()
+        .enumerate()
+        .map(|(rank, s)| {
+            let chosen = match choice {
+                LabelChoice::All => true,
+                LabelChoice::None => false,
+                LabelChoice::States(k) => k.contains(&state_index(s.state.as_deref())),
+                LabelChoice::Brightest(n) => rank < *n,
+                LabelChoice::MassAtLeast(m) => s.mass_msun.is_some_and(|x| x >= *m),
+            };
+            (
+                s.id,
+                if chosen {
+                    s.id.to_string()
+                } else {
+                    String::new()
+                },
+            )
+        })
+        .collect()
+}
+
 /// What a figure needs to know of one structure.
 #[derive(Debug, Clone)]
 pub struct FigStructure {
@@ -191,6 +310,8 @@ pub struct FigStructure {
     /// Whether the state comes from the virial parameter (a velocity dispersion was known),
     /// rather than from alpha_BE.
     pub by_virial: bool,
+    /// Mass in solar masses, when known (finite).
+    pub mass_msun: Option<f64>,
 }
 
 /// Everything the figures of a run draw from.
@@ -205,6 +326,8 @@ pub struct FigureInput<'a> {
     pub distance_pc: Option<f64>,
     /// A title.
     pub title: Option<String>,
+    /// Which leaves get a label.
+    pub label_choice: LabelChoice,
 }
 
 /// A round scale-bar length in pc near a fifth of `width_pc`.
@@ -469,6 +592,9 @@ pub struct Figures {
     /// the diagram is too crowded for ids, which it says under its legend).
     pub tree_leaves: usize,
     pub tree_ids_left_out: usize,
+    /// The leaves [`FigureInput::label_choice`] chose for a label, of all the run's leaves
+    /// (inside the frame or not).
+    pub labels_chosen: (usize, usize),
 }
 
 /// Draws the overlay and the tree.
@@ -493,15 +619,29 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             })
             .collect()
     });
-    let leaves: Vec<LeafStyle> = input
-        .structures
-        .iter()
-        .filter(|s| s.is_leaf)
-        .map(|s| LeafStyle {
-            id: s.id as i32,
-            label: s.id.to_string(),
-            state: state_index(s.state.as_deref()),
-            peak: (s.peak.0 as f64, s.peak.1 as f64),
+    let n_leaves = input.structures.iter().filter(|s| s.is_leaf).count();
+    if let LabelChoice::MassAtLeast(m) = input.label_choice
+        && n_leaves > 0
+        && !input
+            .structures
+            .iter()
+            .any(|s| s.is_leaf && s.mass_msun.is_some())
+    {
+        return Err(Error::usage(format!(
+            "--labels {m}Msun labels the leaves by mass, but this run has no masses ({}); give the run what masses need, or label the leaves another way, such as --labels bound or --labels 30.",
+            no_mass_reason(map, input.distance_pc)
+        )));
+    }
+    let leaves: Vec<LeafStyle> = leaf_labels(&input.structures, &input.label_choice)
+        .into_iter()
+        .map(|(id, label)| {
+            let s = &input.structures[id as usize];
+            LeafStyle {
+                id: id as i32,
+                label,
+                state: state_index(s.state.as_deref()),
+                peak: (s.peak.0 as f64, s.peak.1 as f64),
+            }
         })
         .collect();
     // The criterion the known states come from: the virial parameter, alpha_BE, or both.
@@ -529,6 +669,10 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             },
         })
         .collect();
+    let labels_chosen = (
+        leaves.iter().filter(|l| !l.label.is_empty()).count(),
+        n_leaves,
+    );
     let fsky = figure_sky(map, style.region);
     // Without a measurable pixel at the shown centre, the sky axes are still drawn (the
     // ticks find their own places), only the beam is not.
@@ -581,6 +725,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             tree_svg: t.svg,
             tree_leaves: t.leaves,
             tree_ids_left_out: t.ids_left_out,
+            labels_chosen,
         },
         None => Figures {
             overlay,
@@ -588,6 +733,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             tree_svg: String::new(),
             tree_leaves: 0,
             tree_ids_left_out: 0,
+            labels_chosen,
         },
     })
 }
@@ -867,14 +1013,17 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
             merge_level,
             state: None,
             by_virial: false,
+            mass_msun: None,
         });
     }
     let leaves_only = run["parameters"]["leaves_only"].as_bool().unwrap_or(false);
     let states = read_states(&csv_path, &read(crate::segment::names::CSV)?)?;
     check_catalogue_ids(&csv_path, &states, &structures, leaves_only)?;
-    for (id, state, by_virial) in states {
-        structures[id as usize].state = state;
-        structures[id as usize].by_virial = by_virial;
+    for row in states {
+        let s = &mut structures[row.id as usize];
+        s.state = row.state;
+        s.by_virial = row.by_virial;
+        s.mass_msun = row.mass_msun;
     }
     check_labels(&lab_path, labels.view(), &structures)?;
     Ok(SavedRun {
@@ -888,11 +1037,22 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
 /// The fix named when the files of a run folder do not belong together.
 const REMAKE: &str = "re-run `cairn segment` on the map with --force to remake the run";
 
+/// What the figures read of one catalogue row.
+struct CatalogueRow {
+    id: u32,
+    /// The `state` column's word (None without the column).
+    state: Option<String>,
+    /// Whether the row has a finite `alpha_vir`.
+    by_virial: bool,
+    /// The `mass` column (M_sun), when finite.
+    mass_msun: Option<f64>,
+}
+
 /// The ids of a catalogue's rows, in order, each with its `state` (None when the catalogue has
 /// no `state` column, as without a distance). A damaged catalogue (rows cut short, ids that
 /// are not numbers, no `id` column) and states that are none of the words of [`STATES`] are
 /// refused.
-fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>, bool)>> {
+fn read_states(path: &Path, csv: &str) -> Result<Vec<CatalogueRow>> {
     let (cols, rows) = crate::table::read_catalogue_csv(path, csv)?;
     let Some(i) = cols.iter().position(|c| c == "id") else {
         return Err(Error::input(
@@ -905,6 +1065,7 @@ fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>, bool)
     let s = cols.iter().position(|c| c == "state");
     // A virial parameter in the row: the state comes from it.
     let v = cols.iter().position(|c| c == "alpha_vir");
+    let m = cols.iter().position(|c| c == "mass");
     rows.iter()
         .enumerate()
         .map(|(n, r)| {
@@ -931,7 +1092,15 @@ fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>, bool)
                 ));
             }
             let by_virial = v.is_some_and(|v| r[v].parse::<f64>().is_ok_and(f64::is_finite));
-            Ok((id, state, by_virial))
+            let mass_msun = m
+                .and_then(|m| r[m].parse::<f64>().ok())
+                .filter(|x| x.is_finite());
+            Ok(CatalogueRow {
+                id,
+                state,
+                by_virial,
+                mass_msun,
+            })
         })
         .collect()
 }
@@ -940,7 +1109,7 @@ fn read_states(path: &Path, csv: &str) -> Result<Vec<(u32, Option<String>, bool)
 /// made with `--leaves-only`), each once; the order of the rows does not matter.
 fn check_catalogue_ids(
     path: &Path,
-    rows: &[(u32, Option<String>, bool)],
+    rows: &[CatalogueRow],
     structures: &[FigStructure],
     leaves_only: bool,
 ) -> Result<()> {
@@ -951,7 +1120,7 @@ fn check_catalogue_ids(
             .is_some_and(|s| s.is_leaf || !leaves_only)
     };
     let mut seen = vec![false; structures.len()];
-    for &(id, _, _) in rows {
+    for &CatalogueRow { id, .. } in rows {
         if !expected(id) {
             let what = if leaves_only && (id as usize) < structures.len() {
                 format!("{tree} has it as a branch but the run catalogued leaves only")
@@ -1026,6 +1195,75 @@ fn check_labels(path: &Path, labels: ArrayView2<i32>, structures: &[FigStructure
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// `--labels` reads its five forms, states in any case and order once each, and refuses
+    /// other words, fractions of a leaf and negative masses.
+    #[test]
+    fn label_choices_are_read() {
+        let p = |t: &str| LabelChoice::parse(t);
+        assert_eq!(p("all").unwrap(), LabelChoice::All);
+        assert_eq!(p("NONE").unwrap(), LabelChoice::None);
+        assert_eq!(
+            p("unbound, Bound,bound").unwrap(),
+            LabelChoice::States(vec![0, 2])
+        );
+        assert_eq!(p("12").unwrap(), LabelChoice::Brightest(12));
+        assert_eq!(p("2.5Msun").unwrap(), LabelChoice::MassAtLeast(2.5));
+        // Every digit of a mass copied from a catalogue.
+        assert_eq!(
+            p("1.2345678901234567Msun").unwrap(),
+            LabelChoice::MassAtLeast(1.2345678901234567)
+        );
+        // Other mass units through the solar mass cairn uses (astropy's, 1.988409870698051e30 kg).
+        assert_eq!(
+            p("1.988409870698051e30kg").unwrap(),
+            LabelChoice::MassAtLeast(1.0)
+        );
+        for bad in ["bright", "bound,hot", "0.5", "1pc", "-1Msun", ""] {
+            assert!(p(bad).is_err(), "{bad}");
+        }
+    }
+
+    /// Labels go to the chosen leaves, highest peak first (equal peaks by id); branches get
+    /// none.
+    #[test]
+    fn leaf_labels_follow_the_choice_highest_peak_first() {
+        let s = |id: u32, is_leaf: bool, peak: f64, state: &str, mass: Option<f64>| FigStructure {
+            id,
+            parent: None,
+            is_leaf,
+            peak: (0, 0),
+            peak_value: peak,
+            merge_level: 0.0,
+            state: Some(state.into()),
+            by_virial: false,
+            mass_msun: mass,
+        };
+        let v = vec![
+            s(0, false, 9.0, "bound", Some(50.0)),
+            s(1, true, 2.0, "bound", Some(3.0)),
+            s(2, true, 5.0, "unbound", None),
+            s(3, true, 2.0, "marginal", Some(0.5)),
+            s(4, true, 7.0, "bound", Some(1.0)),
+        ];
+        let got = |c: LabelChoice| -> Vec<(u32, String)> { leaf_labels(&v, &c) };
+        let order: Vec<u32> = got(LabelChoice::All).iter().map(|l| l.0).collect();
+        assert_eq!(order, vec![4, 2, 1, 3]);
+        let named = |c: LabelChoice| -> Vec<u32> {
+            got(c)
+                .into_iter()
+                .filter(|l| !l.1.is_empty())
+                .map(|l| l.0)
+                .collect()
+        };
+        assert_eq!(named(LabelChoice::All), vec![4, 2, 1, 3]);
+        assert!(named(LabelChoice::None).is_empty());
+        assert_eq!(named(LabelChoice::States(vec![0])), vec![4, 1]);
+        assert_eq!(named(LabelChoice::Brightest(2)), vec![4, 2]);
+        assert_eq!(named(LabelChoice::Brightest(3)), vec![4, 2, 1]);
+        assert_eq!(named(LabelChoice::MassAtLeast(1.0)), vec![4, 1]);
+        assert_eq!(got(LabelChoice::All)[0].1, "4");
+    }
 
     #[test]
     fn scale_bars_are_round_and_about_a_fifth() {

@@ -628,6 +628,11 @@ struct StyleArgs {
     /// Also outline the top-level structures that have children.
     #[arg(long)]
     branches: bool,
+    /// Which leaves get their id written beside them (all are outlined): all, none, states
+    /// (bound, or bound,marginal), a number N for the N highest peaks, or a least mass such as
+    /// 2Msun (needs the run's masses). Labels are placed highest peak first.
+    #[arg(long, default_value = "all", value_name = "WHICH")]
+    labels: String,
     /// Draw only a square part: `X,Y,SIZE` with a pixel centre and a size in px (256,192,100px)
     /// or a sky centre in degrees or sexagesimal and an angular size (152.81,11.40,5arcmin or
     /// 10h11m15s,+11d24m,5arcmin), square on the sky.
@@ -2077,7 +2082,15 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             let style = a.style.style(&m, !a.no_figure)?;
             (!a.no_figure).then_some(style)
         },
+        label_choice: cairn::draw::LabelChoice::parse(&a.style.labels)?,
     };
+    // Known before the work: leaves labelled by mass need masses, which need a distance.
+    if so.figure.is_some() && so.label_choice.needs_masses() && so.physics.distance_m.is_none() {
+        return Err(Error::usage(format!(
+            "--labels {} labels the leaves by mass, but without --distance the run has no masses; give --distance, or label the leaves another way, such as --labels bound or --labels 30.",
+            a.style.labels
+        )));
+    }
     let bar = progress_bar(quiet, m.nx() * m.ny());
     let summary = segment::run(&m, &so, &|stage, f| {
         if let Some(b) = &bar {
@@ -2196,6 +2209,9 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         outln!("no masses: give --distance (and --temperature for the gravitational state)");
     }
     if let Some((in_frame, left_out)) = summary.figure_labels {
+        if let Some(chosen) = summary.figure_labels_chosen {
+            chosen_note(&a.style.labels, chosen);
+        }
         labels_note(in_frame, left_out);
         stretch_note(summary.figure_y_stretch);
         beam_note(summary.figure_beam_px);
@@ -2519,6 +2535,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         structures: run.structures.clone(),
         distance_pc: run.distance_pc,
         title: None,
+        label_choice: cairn::draw::LabelChoice::parse(&a.style.labels)?,
     };
     // The outputs are planned before drawing, so that figures already there (those `segment`
     // drew, without --force) are refused at once rather than after the work. The tree is drawn
@@ -2561,6 +2578,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     if let Some(b) = bar {
         b.finish_and_clear();
     }
+    chosen_note(&a.style.labels, figs.labels_chosen);
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
     beam_note(figs.overlay.beam_px);
@@ -2574,12 +2592,19 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     Ok(())
 }
 
+/// Says how many leaves `--labels` chose for a label, unless it chose all of them.
+fn chosen_note(which: &str, (chosen, leaves): (usize, usize)) {
+    if chosen < leaves {
+        outln!("figure: {chosen} of {leaves} leaves chosen for a label by --labels {which}");
+    }
+}
+
 /// Says how many leaves of a figure got no label, if any: where the map is crowded, a label
 /// is left out rather than printed over another.
 fn labels_note(in_frame: usize, left_out: usize) {
     if left_out > 0 {
         outln!(
-            "figure: {left_out} of {in_frame} leaves left without a label where the map is too crowded for one; draw a smaller --region or a wider --width to label them"
+            "figure: {left_out} of {in_frame} leaves left without a label where the map is too crowded for one; draw a smaller --region or a wider --width to label them, or choose fewer with --labels"
         );
     }
 }

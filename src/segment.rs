@@ -280,6 +280,8 @@ pub struct SegmentOptions {
     pub threshold_texts: [Option<String>; 3],
     /// Figure style; `None` draws no figures (`--no-figure`).
     pub figure: Option<crate::render::Style>,
+    /// Which leaves the map figure labels.
+    pub label_choice: crate::draw::LabelChoice,
 }
 
 /// Thresholds resolved to map units and pixels.
@@ -889,6 +891,8 @@ pub struct RunSummary {
     pub physics_warning: Option<String>,
     /// With a figure: leaves inside its frame and how many of them got no label.
     pub figure_labels: Option<(usize, usize)>,
+    /// With a figure: the leaves chosen for a label (`label_choice`) and all the leaves.
+    pub figure_labels_chosen: Option<(usize, usize)>,
     /// With a figure: the tree's leaves and how many of their ids it left out (too crowded).
     pub figure_tree_ids: Option<(usize, usize)>,
     /// With a figure of a very long and narrow map: the scale along y over that along x
@@ -1938,6 +1942,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         label_maps_seconds,
     ) = written?;
     let mut labels = None;
+    let mut labels_chosen = None;
     let mut tree_ids = None;
     let mut y_stretch = None;
     let mut beam_px = None;
@@ -1967,6 +1972,12 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                         .as_ref()
                         .filter(|_| with_distance)
                         .is_some_and(|p| p[i].alpha_vir.is_finite()),
+                    // As draw reads it from the catalogue's mass column.
+                    mass_msun: phys
+                        .as_ref()
+                        .filter(|_| with_distance)
+                        .map(|p| p[i].mass)
+                        .filter(|m| m.is_finite()),
                 })
                 .collect(),
             distance_pc: o
@@ -1974,6 +1985,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
                 .distance_m
                 .map(|d| d / crate::physics::constants::PC),
             title: None,
+            label_choice: o.label_choice.clone(),
         };
         progress("figures", 0.0);
         let figs = crate::draw::figures(&input, style)?;
@@ -1984,6 +1996,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
             figs.overlay.svg.as_bytes(),
         )?;
         labels = Some((figs.overlay.leaves_in_frame, figs.overlay.labels_left_out));
+        labels_chosen = Some(figs.labels_chosen);
         tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
         beam_px = figs.overlay.beam_px;
@@ -2096,6 +2109,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         physics_note,
         leaf_states,
         figure_labels: labels,
+        figure_labels_chosen: labels_chosen,
         figure_tree_ids: tree_ids,
         figure_y_stretch: y_stretch,
         figure_beam_px: beam_px,

@@ -300,6 +300,7 @@ fn non_square_pixels_give_the_beam_scale_bar_and_panel_their_sky_sizes() {
         structures: Vec::new(),
         distance_pc: Some(300.0),
         title: None,
+        label_choice: Default::default(),
     };
     let style = cairn::render::Style {
         width_px: 1200,

@@ -1079,3 +1079,165 @@ fn leaf_ids_keep_clear_of_the_scale_bar() {
         );
     }
 }
+
+/// The ids of the labels drawn on a map figure (each label's `id="label-N"`), sorted.
+fn labelled_ids(svg: &str) -> Vec<u32> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let mut ids: Vec<u32> = doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("leaf-label"))
+        .filter_map(|n| n.attribute("id")?.strip_prefix("label-")?.parse().ok())
+        .collect();
+    ids.sort_unstable();
+    ids.dedup();
+    ids
+}
+
+/// A leaf of a run's catalogue: (id, peak, state, mass).
+type CatalogueLeaf = (u32, f64, String, f64);
+
+/// The leaves of a run's catalogue.
+fn catalogue_leaves(run: &Path) -> Vec<CatalogueLeaf> {
+    let text = std::fs::read_to_string(run.join("structures.csv")).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |k: &str| head.iter().position(|h| *h == k).unwrap();
+    let (id, kind, peak, state, mass) = (
+        col("id"),
+        col("kind"),
+        col("peak"),
+        col("state"),
+        col("mass"),
+    );
+    lines
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|f| f[kind] == "leaf")
+        .map(|f| {
+            (
+                f[id].parse().unwrap(),
+                f[peak].parse().unwrap(),
+                f[state].to_string(),
+                f[mass].parse().unwrap(),
+            )
+        })
+        .collect()
+}
+
+/// `--labels` chooses which leaves get their id on the map figure, every leaf still outlined:
+/// states, the N highest peaks, a least mass, none; the summary says how many were chosen. A
+/// mass without masses in the run, and a word that is no state, are refused with nothing
+/// written. The expected ids are read from the run's own catalogue.
+#[test]
+fn labels_choose_which_leaves_get_an_id() {
+    let d = tempfile::tempdir().unwrap();
+    let run = demo_run(d.path(), "run", &[]);
+    let leaves = catalogue_leaves(&run);
+    assert!(leaves.len() > 20, "{} leaves", leaves.len());
+    let draw = |out: &str, which: &str| -> (Vec<u32>, usize, String) {
+        let o = cairn(
+            &[
+                "draw", "run", "-o", out, "--labels", which, "--width", "2400",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{which}: {}", o.stderr);
+        let svg = std::fs::read_to_string(d.path().join(out).join("overlay.svg")).unwrap();
+        let outlined = svg.matches("class=\"leaf state-").count();
+        (labelled_ids(&svg), outlined, o.stdout)
+    };
+    let ids_where = |keep: &dyn Fn(&CatalogueLeaf) -> bool| -> Vec<u32> {
+        let mut v: Vec<u32> = leaves.iter().filter(|l| keep(l)).map(|l| l.0).collect();
+        v.sort_unstable();
+        v
+    };
+    // Every leaf, at a width with room for all of them.
+    let (all, outlined, _) = draw("all", "all");
+    assert_eq!(all, ids_where(&|_| true));
+    assert_eq!(outlined, leaves.len());
+    // States.
+    let bound = ids_where(&|l| l.2 == "bound");
+    let bound_marginal = ids_where(&|l| l.2 == "bound" || l.2 == "marginal");
+    assert!(!bound.is_empty() && bound_marginal.len() > bound.len());
+    let (ids, outlined, out) = draw("b", "bound");
+    assert_eq!(ids, bound);
+    assert_eq!(outlined, leaves.len());
+    assert!(
+        out.contains(&format!(
+            "figure: {} of {} leaves chosen for a label by --labels bound",
+            bound.len(),
+            leaves.len()
+        )),
+        "{out}"
+    );
+    assert_eq!(draw("bm", "marginal,Bound").0, bound_marginal);
+    // The five highest peaks.
+    let mut by_peak = leaves.clone();
+    by_peak.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    let mut top: Vec<u32> = by_peak[..5].iter().map(|l| l.0).collect();
+    top.sort_unstable();
+    assert_eq!(draw("top", "5").0, top);
+    // A least mass, between two of the leaves' masses.
+    let mut masses: Vec<f64> = leaves.iter().map(|l| l.3).collect();
+    masses.sort_by(f64::total_cmp);
+    let cut = masses[masses.len() / 2];
+    let (ids, _, _) = draw("m", &format!("{cut}Msun"));
+    assert_eq!(ids, ids_where(&|l| l.3 >= cut));
+    // None: outlines only.
+    let (ids, outlined, _) = draw("none", "none");
+    assert!(ids.is_empty());
+    assert_eq!(outlined, leaves.len());
+    // Refused: a word that is no state; a mass on a run without masses.
+    let o = cairn(
+        &["draw", "run", "-o", "bad", "--labels", "bright"],
+        d.path(),
+    );
+    assert_eq!(o.code, 2);
+    assert!(
+        o.stderr.contains("'bright', which is no state"),
+        "{}",
+        o.stderr
+    );
+    assert!(!d.path().join("bad").exists());
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-column.fits");
+    let o = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "nodist",
+            "-q",
+            "--labels",
+            "1Msun",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 2);
+    assert!(
+        o.stderr
+            .contains("without --distance the run has no masses"),
+        "{}",
+        o.stderr
+    );
+    assert!(!d.path().join("nodist").exists());
+    let o = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "nodist",
+            "-q",
+            "--no-figure",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(&["draw", "nodist", "--labels", "1Msun"], d.path());
+    assert_eq!(o.code, 2);
+    assert!(
+        o.stderr
+            .contains("this run has no masses (no distance, so no masses)"),
+        "{}",
+        o.stderr
+    );
+    assert!(!d.path().join("nodist/overlay.png").exists());
+}

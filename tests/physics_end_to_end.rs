@@ -68,6 +68,7 @@ fn run(
         other_inputs: Vec::new(),
         threshold_texts: Default::default(),
         figure: None,
+        label_choice: Default::default(),
     };
     cairn::segment::run(&map, &o, &|_, _| {}).unwrap();
     let text = std::fs::read_to_string(out.join("structures.csv")).unwrap();

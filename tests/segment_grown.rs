@@ -62,6 +62,7 @@ fn hand_options(out: &Path, grow: bool) -> SegmentOptions {
         other_inputs: Vec::new(),
         threshold_texts: Default::default(),
         figure: None,
+        label_choice: Default::default(),
     }
 }
 

@@ -24,6 +24,7 @@ fn options(out: &std::path::Path, floor: Level, prominence: Level, noise: f64) -
         other_inputs: Vec::new(),
         threshold_texts: Default::default(),
         figure: None,
+        label_choice: Default::default(),
     }
 }
 

@@ -984,7 +984,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             clip: true,
             id: Some(format!("leaf-{}", leaf.id)),
             class: format!("leaf state-{} {}", leaf.state, state_line_style(leaf.state)),
-            label: Some(format!("leaf {}", leaf.label)),
+            label: Some(format!("leaf {}", leaf.id)),
         });
     }
     sc.items.extend(colour_passes);
@@ -1252,6 +1252,10 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         let Some(rings) = drawn.get(&leaf.id) else {
             continue;
         };
+        // A leaf with an empty label is outlined only.
+        if leaf.label.is_empty() {
+            continue;
+        }
         let (px, py) = lay.map_to_figure(leaf.peak.0, leaf.peak.1);
         if px < fx || px > fx + fw || py < fy || py > fy + fh {
             continue;

@@ -80,7 +80,8 @@ pub trait SkyAxes: Sync {
 pub struct LeafStyle {
     /// The id used in the label map.
     pub id: i32,
-    /// Text written next to the leaf (usually its id).
+    /// Text written next to the leaf (usually its id); empty for a leaf outlined without a
+    /// label.
     pub label: String,
     /// Index into [`Overlay::states`] (or [`tree_png`]'s states): colour and line style.
     pub state: usize,
@@ -296,7 +297,8 @@ pub fn render_svg(o: &Overlay, s: &Style) -> Result<String, RenderError> {
 pub struct MapFigure {
     pub png: Vec<u8>,
     pub svg: String,
-    /// Leaves whose peak lies inside the figure's frame.
+    /// Leaves to be labelled (a non-empty [`LeafStyle::label`]) whose peak lies inside the
+    /// figure's frame.
     pub leaves_in_frame: usize,
     /// Of those, the leaves left without a label because no free place was found near them
     /// (crowded parts of the map; a figure of a smaller region has room for them).

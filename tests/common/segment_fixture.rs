@@ -32,6 +32,7 @@ pub fn fixture_options(out: &Path) -> SegmentOptions {
         other_inputs: Vec::new(),
         threshold_texts: Default::default(),
         figure: None,
+        label_choice: Default::default(),
     }
 }
 
