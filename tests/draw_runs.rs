@@ -1241,3 +1241,109 @@ fn labels_choose_which_leaves_get_an_id() {
     );
     assert!(!d.path().join("nodist/overlay.png").exists());
 }
+
+/// The scale bar and its text, the frame and the leaf outlines (clipped to the frame) of a map
+/// figure's SVG.
+fn bar_frame_outlines(
+    svg: &str,
+) -> (
+    svg_layout::Bounds,
+    svg_layout::Bounds,
+    svg_layout::Bounds,
+    Vec<Vec<(f64, f64)>>,
+) {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let first_class = |n: &roxmltree::Node, c: &str| {
+        n.attribute("class")
+            .is_some_and(|x| x.split(' ').next() == Some(c))
+    };
+    let paths: Vec<roxmltree::Node> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("path") && n.attribute("d").is_some())
+        .collect();
+    let one = |pred: &dyn Fn(&roxmltree::Node) -> bool| {
+        let n = paths.iter().find(|n| pred(n)).unwrap();
+        svg_layout::bounds(n.attribute("d").unwrap())
+    };
+    let frame = one(&|n| first_class(n, "frame"));
+    let bar = one(&|n| first_class(n, "scale-bar"));
+    let text = one(&|n| {
+        n.attribute("aria-label")
+            .is_some_and(|l| l.ends_with(" pc"))
+            && n.attribute("fill") != Some("none")
+    });
+    let outlines = paths
+        .iter()
+        .filter(|n| first_class(n, "leaf"))
+        .flat_map(|n| svg_layout::clipped(&svg_layout::subpaths(n.attribute("d").unwrap()), frame))
+        .collect();
+    (bar, text, frame, outlines)
+}
+
+/// The scale bar takes the corner of the frame where no leaf's outline runs: on the 850 um
+/// demo map the lower right corner holds leaves (the bar and its text stood on their outlines
+/// there), and the bar moves beside the beam in the lower left, clear of every outline; in a
+/// zoom into one large leaf, whose outline runs through the lower left only, it stays in the
+/// lower right over the leaf's inside. Read from the SVG.
+#[test]
+fn the_scale_bar_takes_a_corner_clear_of_the_leaves() {
+    let d = tempfile::tempdir().unwrap();
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let mut args = vec!["segment", map.to_str().unwrap(), "-o", "run"];
+    args.extend_from_slice(&cli::DEMO_RUN);
+    let o = cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for width in ["1000", "1600"] {
+        let out = format!("w{width}");
+        let o = cairn(&["draw", "run", "-o", &out, "--width", width], d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let svg = std::fs::read_to_string(d.path().join(&out).join("overlay.svg")).unwrap();
+        let (bar, text, frame, outlines) = bar_frame_outlines(&svg);
+        assert!(!outlines.is_empty());
+        for b in [bar, text] {
+            assert!(
+                svg_layout::distance(&outlines, b) > 2.0,
+                "width {width}: the scale bar or its text at {b:?} on or next to an outline"
+            );
+        }
+        // In the lower left, right of the beam.
+        let beam = svg_layout::bounds(
+            roxmltree::Document::parse(&svg)
+                .unwrap()
+                .descendants()
+                .find(|n| n.attribute("class") == Some("beam"))
+                .unwrap()
+                .attribute("d")
+                .unwrap(),
+        );
+        let mid = |b: svg_layout::Bounds| (0.5 * (b.0 + b.2), 0.5 * (b.1 + b.3));
+        assert!(
+            mid(bar).0 < mid(frame).0 && mid(bar).1 > mid(frame).1 && bar.0 > beam.2,
+            "width {width}: bar {bar:?} beam {beam:?} frame {frame:?}"
+        );
+    }
+    // A zoom into leaf 41, its outline crossing the lower left: the bar stays in the lower
+    // right.
+    let o = cairn(
+        &[
+            "draw",
+            "run",
+            "-o",
+            "zoom",
+            "--region",
+            "152.8125,11.40625,3arcmin",
+            "--width",
+            "900",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let svg = std::fs::read_to_string(d.path().join("zoom/overlay.svg")).unwrap();
+    let (bar, _, frame, outlines) = bar_frame_outlines(&svg);
+    assert!(svg_layout::distance(&outlines, bar) > 2.0);
+    assert!(
+        bar.2 > frame.0 + 0.75 * (frame.2 - frame.0)
+            && bar.3 > frame.1 + 0.75 * (frame.3 - frame.1),
+        "bar {bar:?} frame {frame:?}"
+    );
+}

@@ -512,18 +512,23 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         scale_bar_left_out: false,
     };
 
-    // Beam in the lower left corner, scale bar in the lower right, inside the frame.
+    // Beam in the lower left corner, scale bar in the lower right unless leaves lie there,
+    // inside the frame.
     let inset = 0.6 * fs;
+    // The width the beam takes from the left of the frame's lower edge.
+    let mut beam_room = 0.0;
     if let Some((maj, min, pa)) = o.beam {
         let probe = beam_geometry(maj, min, pa, o.sky, lay.figure_to_map(left, frame.1 + fh));
         let (ex, ey) = probe.half_extent();
         let (ex, ey) = (ex * kx, ey * ky);
+        beam_room = 2.0 * ex + m.gap;
         let c = lay.figure_to_map(left + inset + ex, frame.1 + fh - inset - ey);
         lay.beam = Some(beam_geometry(maj, min, pa, o.sky, c));
     }
     if let Some((len, label)) = &o.scale_bar {
-        // The text is centred over the bar; text wider than the bar moves both to the left
-        // so that the text too ends an inset inside the frame. A frame too short for the text
+        // The text is centred over the bar, in a corner of the frame (below); text wider
+        // than the bar moves both inwards so that the text too ends an inset inside the
+        // frame. A frame too short for the text
         // over the bar (a wide map's flat panel) has the text beside the bar, to its left,
         // both centred on the frame's height.
         // A frame too narrow for them both (a tall map's slim panel in a narrow figure) has
@@ -536,11 +541,47 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             return Ok(lay);
         }
         let (ex, ey) = if fh >= over {
-            let overhang = ((text::width(label, lfs) - len * kx) / 2.0).max(0.0);
-            (
-                left + fw - inset - overhang,
-                frame.1 + fh - inset - 0.3 * fs,
-            )
+            // The corner whose box holds the fewest pixels of the leaves' outlines: the lower
+            // right unless outlines run under it, then the upper right, the upper left, and the
+            // lower left beside the beam (the first of the least covered).
+            let overhang = ((tw - bar_w) / 2.0).max(0.0);
+            let (block_w, block_h) = (bar_w.max(tw), over - 2.0 * inset);
+            let mut corners = vec![(true, true), (true, false), (false, false)];
+            if beam_room + block_w <= room {
+                corners.push((false, true));
+            }
+            let block = |(right, bottom): (bool, bool)| -> Rect {
+                let x0 = if right {
+                    left + fw - inset - block_w
+                } else if bottom {
+                    left + inset + beam_room
+                } else {
+                    left + inset
+                };
+                let y0 = if bottom {
+                    frame.1 + fh - inset - block_h
+                } else {
+                    frame.1 + inset
+                };
+                (x0, y0, x0 + block_w, y0 + block_h)
+            };
+            let covered = leaf_pixels_counter(o, &lay);
+            // Leaves just beside the box count too: an outline along the bar's end is as
+            // much in the way as one under it.
+            let near = 0.3 * fs;
+            let mut best = (corners[0], usize::MAX);
+            for &c in &corners {
+                let b = block(c);
+                let n = covered((b.0 - near, b.1 - near, b.2 + near, b.3 + near));
+                if n < best.1 {
+                    best = (c, n);
+                }
+                if n == 0 {
+                    break;
+                }
+            }
+            let b = block(best.0);
+            (b.0 + overhang + bar_w, b.3 - 0.3 * fs)
         } else {
             lay.scale_text_beside = true;
             (left + fw - inset, frame.1 + fh / 2.0)
@@ -553,6 +594,55 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
 
 /// A box on the figure: left, top, right, bottom.
 type Rect = (f64, f64, f64, f64);
+
+/// A counter of the map pixels under a box of the figure laid out by `lay` where an outline
+/// of `o`'s leaves runs: pixels whose label differs from their right or upper neighbour's,
+/// one of the two a listed leaf (every pixel of a box up to about 40,000 map pixels, else a
+/// regular sample of that many, scaled up). The inside of a leaf larger than the box (a zoom
+/// into one) does not count: only its outline would be hidden.
+fn leaf_pixels_counter<'a>(o: &'a Overlay, lay: &'a Layout) -> impl Fn(Rect) -> usize + 'a {
+    let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
+    let mut listed = vec![false; n];
+    for l in o.leaves.iter().filter(|l| l.id >= 0) {
+        listed[l.id as usize] = true;
+    }
+    move |bb: Rect| {
+        if listed.is_empty() {
+            return 0;
+        }
+        let (x0, y0, w, h) = lay.region;
+        let (ax, ay) = lay.figure_to_map(bb.0, bb.3);
+        let (bx, by) = lay.figure_to_map(bb.2, bb.1);
+        let span = |a: f64, b: f64, lo: usize, len: usize| {
+            let (a, b) = (a.min(b).round(), a.max(b).round());
+            let (lo_f, hi_f) = (lo as f64, (lo + len) as f64 - 1.0);
+            (a.clamp(lo_f, hi_f) as usize, b.clamp(lo_f, hi_f) as usize)
+        };
+        let (xa, xb) = span(ax, bx, x0, w);
+        let (ya, yb) = span(ay, by, y0, h);
+        let cells = (xb - xa + 1) * (yb - ya + 1);
+        let step = ((cells as f64 / 40_000.0).sqrt().ceil() as usize).max(1);
+        let is_listed = |l: i32| l >= 0 && listed.get(l as usize).copied().unwrap_or(false);
+        let (nx, ny) = (o.labels.ncols(), o.labels.nrows());
+        let mut count = 0;
+        for y in (ya..=yb).step_by(step) {
+            for x in (xa..=xb).step_by(step) {
+                let l = o.labels[[y, x]];
+                let edge = [(x + 1, y), (x, y + 1)]
+                    .into_iter()
+                    .filter(|&(i, j)| i < nx && j < ny)
+                    .any(|(i, j)| {
+                        let k = o.labels[[j, i]];
+                        k != l && (is_listed(k) || is_listed(l))
+                    });
+                if edge {
+                    count += step * step;
+                }
+            }
+        }
+        count
+    }
+}
 
 /// Items (numbered in the order added) bucketed on a square grid by the box (left, top,
 /// right, bottom) each spans, so that a query looks only at the items near its own box.
