@@ -1242,16 +1242,17 @@ fn labels_choose_which_leaves_get_an_id() {
     assert!(!d.path().join("nodist/overlay.png").exists());
 }
 
-/// The scale bar and its text, the frame and the leaf outlines (clipped to the frame) of a map
-/// figure's SVG.
-fn bar_frame_outlines(
-    svg: &str,
-) -> (
+/// The scale bar, its text and the frame (boxes), and the leaf outlines clipped to the frame.
+type BarFrameOutlines = (
     svg_layout::Bounds,
     svg_layout::Bounds,
     svg_layout::Bounds,
     Vec<Vec<(f64, f64)>>,
-) {
+);
+
+/// The scale bar and its text, the frame and the leaf outlines (clipped to the frame) of a map
+/// figure's SVG.
+fn bar_frame_outlines(svg: &str) -> BarFrameOutlines {
     let doc = roxmltree::Document::parse(svg).unwrap();
     let first_class = |n: &roxmltree::Node, c: &str| {
         n.attribute("class")
