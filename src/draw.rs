@@ -330,7 +330,7 @@ pub struct FigureInput<'a> {
     pub label_choice: LabelChoice,
 }
 
-/// A round scale-bar length in pc near a fifth of `width_pc`.
+/// A round scale-bar length in pc near a fifth of `width_pc` (at most that fifth).
 pub fn scale_bar_length(width_pc: f64) -> f64 {
     let target = width_pc / 5.0;
     let mut best = 0.001;
@@ -415,7 +415,8 @@ pub fn beam_px(
 }
 
 /// The scale bar: its length in pixels along x and its text, a round number of parsecs near a
-/// fifth of the shown width (needs a distance and a WCS). The length is measured with the
+/// fifth of the shown width, or of eight times the shown height where that is less (a flat
+/// strip; needs a distance and a WCS). The length is measured with the
 /// pixel's side along x at the centre of the shown part, so it is right on maps of pixels
 /// that are not square.
 pub fn scale_bar(
@@ -424,10 +425,14 @@ pub fn scale_bar(
     region: Option<(usize, usize, usize, usize)>,
 ) -> Option<(f64, String)> {
     let (_, p) = shown_centre(map, region);
-    let (d, (sx, _)) = (distance_pc?, p?);
+    let (d, (sx, sy)) = (distance_pc?, p?);
     let pc_per_px = d * sx.to_radians();
     let shown_width_px = region.map(|r| r.2).unwrap_or(map.nx()) as f64;
-    let len = scale_bar_length(shown_width_px * pc_per_px);
+    let shown_height_px = region.map(|r| r.3).unwrap_or(map.ny()) as f64;
+    // A fifth of the width; of a very wide map's, as if it were eight times as wide as tall,
+    // so that the bar finds room between the structures of a flat strip.
+    let width_pc = (shown_width_px * pc_per_px).min(8.0 * shown_height_px * d * sy.to_radians());
+    let len = scale_bar_length(width_pc);
     Some((len / pc_per_px, format!("{len} pc")))
 }
 
@@ -810,6 +815,21 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         opts.hdu = map::HduChoice::Index(h as usize);
     }
     opts.plane = run["input"]["plane"].as_u64().map(|p| p as usize);
+    // The value the run read as missing (`--missing-value`).
+    let mv = &run["input"]["missing_value"];
+    if !mv.is_null() {
+        match mv.as_f64().filter(|v| (*v as f32).is_finite()) {
+            Some(v) => opts.missing_value = Some(v as f32),
+            None => {
+                return Err(Error::input(
+                    &dir.join("run.json"),
+                    format!(
+                        "records the input's missing value as {mv}, which is not a number, so the file was changed; {REMAKE}."
+                    ),
+                ));
+            }
+        }
+    }
     // The unit as the run read it; a unit without conversion is named as such, as `--unit`
     // takes it (the header's own unit is then no question).
     // The extinction band the run read (from the option or the unit), which the unit's text

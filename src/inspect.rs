@@ -76,7 +76,8 @@ pub struct BeamSummary {
     /// Position angle in degrees east of north.
     pub pa_deg: f64,
     /// Major-axis FWHM in pixels (at the scale pixel, [`SkySummary::scale_pixel`]), when the
-    /// map has a WCS with a pixel on the sky.
+    /// map has a WCS with a pixel on the sky: in sides of a square pixel of the pixel's solid
+    /// angle, so that pi/(4 ln 2) major minor is [`BeamSummary::area_px`] on any pixels.
     pub major_px: Option<f64>,
     /// Minor-axis FWHM in pixels.
     pub minor_px: Option<f64>,
@@ -292,12 +293,45 @@ pub fn beam_area_px(map: &Map) -> Option<f64> {
     Some(b.solid_angle_sr() / w.pixel_solid_angle(x, y))
 }
 
+/// Why the map's beam leaves nothing to find, if it does: one beam ([`beam_area_px`]) larger
+/// than the whole map. For a beam of a degree or more from the header, the likely cause is
+/// said: BMAJ and BMIN are in degrees, and a beam written in arcsec reads 3600 times too wide.
+pub fn beam_too_large(map: &Map) -> Option<String> {
+    let area = beam_area_px(map)?;
+    let n = map.nx() * map.ny();
+    if area <= n as f64 {
+        return None;
+    }
+    // In the words of the value itself: a count beyond 2^64 would read as its cap.
+    let shown = if area < 1e15 {
+        format!("{}", (area - 1e-9).ceil().max(1.0) as usize)
+    } else {
+        format!("{area:.3e}")
+    };
+    let path = map.path.display();
+    Some(match (map.beam_source, map.beam) {
+        (Some(Source::Header), Some(b)) if b.major_deg >= 1.0 => format!(
+            "one beam ({shown} pixels) is larger than the whole map {path} ({n} pixels): check the header's beam (BMAJ and BMIN are in degrees, as FITS defines them: {} deg is {}\"; a beam written in arcsec reads 3600 times too wide) or give --beam",
+            units::tidy(b.major_deg),
+            units::tidy(b.major_deg * 3600.0)
+        ),
+        (Some(Source::Option), _) => format!(
+            "one beam ({shown} pixels) is larger than the whole map {path} ({n} pixels): check --beam"
+        ),
+        _ => format!(
+            "the map {path} ({n} pixels) is smaller than one beam ({shown} pixels), too small to hold a structure the beam resolves: give a larger map, or check the beam (BMAJ and BMIN, in degrees) or give --beam"
+        ),
+    })
+}
+
 /// The default least area of a leaf, in pixels, as `segment` takes it: one beam
 /// ([`beam_area_px`], rounded up), or 9 pixels (a 3 x 3 patch, common practice) without a
-/// beam; never less than 1. One beam larger than the whole map is refused, with the sentence
-/// that says so and the fix (for a beam from the header, that BMAJ and BMIN are in degrees:
-/// a beam written in arcsec is 3600 times too wide).
+/// beam; never less than 1. One beam larger than the whole map is refused in the words of
+/// [`beam_too_large`] (and `segment` refuses such a map whatever `--min-area`).
 pub fn default_min_area_px(map: &Map) -> std::result::Result<usize, String> {
+    if let Some(why) = beam_too_large(map) {
+        return Err(format!("{why}."));
+    }
     let beam = beam_area_px(map);
     let area = beam.unwrap_or(9.0);
     let px = (area - 1e-9).ceil().max(1.0) as usize;
@@ -305,35 +339,18 @@ pub fn default_min_area_px(map: &Map) -> std::result::Result<usize, String> {
     if px <= n {
         return Ok(px);
     }
-    if beam.is_none() {
-        return Err(format!(
-            "the default --min-area without a beam, 9 pixels (a 3 x 3 patch), is larger than the whole map {} ({n} pixels); give --min-area in px.",
-            map.path.display()
-        ));
-    }
-    // In the words of the value itself: a count beyond 2^64 would read as its cap.
-    let shown = if area < 1e15 {
-        format!("{px}")
-    } else {
-        format!("{area:.3e}")
-    };
-    let check = match (map.beam_source, map.beam) {
-        (Some(Source::Header), Some(b)) => format!(
-            "check the header's beam (BMAJ and BMIN are in degrees, as FITS defines them: {} deg is {}\"; a beam written in arcsec reads 3600 times too wide) or give --beam",
-            units::tidy(b.major_deg),
-            units::tidy(b.major_deg * 3600.0)
-        ),
-        _ => "check the beam (--beam)".to_string(),
-    };
     Err(format!(
-        "the default --min-area, one beam ({shown} pixels), is larger than the whole map {} ({n} pixels); {check}, or give --min-area in px.",
+        "the default --min-area without a beam, 9 pixels (a 3 x 3 patch), is larger than the whole map {} ({n} pixels); give --min-area in px.",
         map.path.display()
     ))
 }
 
-/// The box size of the residual noise estimate: five beams, or 32 pixels without a beam.
+/// The box size of the residual noise estimate: five beams, or 32 pixels without a beam (or
+/// with one larger than the map).
 pub fn noise_box_px(map: &Map) -> usize {
-    let beam_px = match (map.beam, &map.wcs, scale_pixel(map)) {
+    // A beam larger than the map (see [`beam_too_large`]) says nothing of the noise's scale.
+    let beam = map.beam.filter(|_| beam_too_large(map).is_none());
+    let beam_px = match (beam, &map.wcs, scale_pixel(map)) {
         (Some(b), Some(w), Some((x, y))) => {
             let (sx, sy) = w.pixel_scale(x, y);
             Some(b.major_deg / (sx * sy).sqrt())
@@ -682,7 +699,13 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
                     angles::format_dms(lat, 1)
                 )
             } else {
-                format!("{lon:.5} {lat:+.5}")
+                // Named, as the degrees alone do not say which is which.
+                let (a, b) = match w.frame() {
+                    SkyFrame::Galactic => ("l", "b"),
+                    SkyFrame::Ecliptic => ("lambda", "beta"),
+                    _ => ("lon", "lat"),
+                };
+                format!("{a} = {lon:.6}, {b} = {lat:+.6} deg")
             }
         };
         let centre = (at == Some((cx, cy)))
@@ -731,10 +754,12 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
         }
     });
     let beam = map.beam.map(|b| {
+        // In units of the side of a square pixel of the pixel's solid angle, so that the two
+        // sizes and the pixels per beam agree on pixels of unequal sides or sheared ones.
         let px = sky
             .as_ref()
-            .and_then(|s| s.pixel_scale_arcsec)
-            .map(|p| (p[0] * p[1]).sqrt());
+            .and_then(|s| s.pixel_solid_angle_sr)
+            .map(|sr| sr.sqrt().to_degrees() * 3600.0);
         BeamSummary {
             major_arcsec: b.major_deg * 3600.0,
             minor_arcsec: b.minor_deg * 3600.0,
@@ -802,7 +827,9 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
             _ => {}
         }
     }
-    if let Err(e) = &min_area {
+    if let Some(why) = beam_too_large(map) {
+        warnings.push(format!("segment refuses this map as it is: {why}"));
+    } else if let Err(e) = &min_area {
         warnings.push(format!(
             "segment refuses its default minimum area: {}",
             e.trim_end_matches('.')
@@ -959,9 +986,11 @@ pub fn render_text(s: &Summary) -> String {
                     k.centre_lat_deg,
                     &k.why_none,
                 ) {
-                    (Some(t), Some(lon), Some(lat), _) => {
+                    // Sexagesimal with its degrees beside it; other frames' text is in degrees.
+                    (Some(t), Some(lon), Some(lat), _) if !t.ends_with(" deg") => {
                         format!("{t} ({lon:.6}, {lat:+.6} deg)")
                     }
+                    (Some(t), _, _, _) => t.clone(),
                     (_, _, _, Some(why)) => format!("none: {why}"),
                     _ => "none".into(),
                 },
@@ -997,6 +1026,19 @@ pub fn render_text(s: &Summary) -> String {
                 t.push_str(&format!(
                     " = {a:.2} x {bm:.2} pixels, {area:.1} pixels per beam"
                 ));
+                // Pixels of unequal sides (or sheared): the sizes are in square pixels of the
+                // same area, which the line says.
+                if let Some(k) = &s.sky
+                    && let (Some(p), Some(sr)) = (k.pixel_scale_arcsec, k.pixel_solid_angle_sr)
+                {
+                    let side = sr.sqrt().to_degrees() * 3600.0;
+                    if (p[0] / side - 1.0).abs() > 0.01 || (p[1] / side - 1.0).abs() > 0.01 {
+                        t.push_str(&format!(
+                            " (in pixels of the same area, {side:.4}\" square; the pixels are {:.4}\" x {:.4}\")",
+                            p[0], p[1]
+                        ));
+                    }
+                }
             }
             if matches!(b.source, Source::Option) {
                 t.push_str(" (from --beam)");

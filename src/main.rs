@@ -370,6 +370,11 @@ struct MapArgs {
     /// Wavelength or frequency of the map instead of the header's, such as `850um` or `353GHz`.
     #[arg(long, value_name = "LENGTH|FREQ", allow_hyphen_values = true)]
     wavelength: Option<String>,
+    /// A pixel value that marks missing pixels besides NaN and BLANK, such as 0 for a map whose
+    /// unobserved border is filled with zeros (they would otherwise count as data, lowering
+    /// the noise estimate and the thresholds).
+    #[arg(long, value_name = "VALUE", allow_hyphen_values = true)]
+    missing_value: Option<String>,
     /// Noise in map units (a number, or a quantity such as `0.02MJy/sr`), instead of the estimate.
     #[arg(
         long,
@@ -941,6 +946,17 @@ impl MapArgs {
             beam,
             wavelength,
             require_unit,
+            missing_value: match self.missing_value.as_deref() {
+                None => None,
+                Some(t) => match t.trim().parse::<f32>() {
+                    Ok(v) if v.is_finite() => Some(v),
+                    _ => {
+                        return Err(Error::usage(format!(
+                            "--missing-value '{t}' is not a finite number: give the value that marks missing pixels, such as 0 or -999 (NaN pixels are missing already)."
+                        )));
+                    }
+                },
+            },
         })
     }
 
@@ -1530,6 +1546,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         extinction_band: a.extinction_band.clone(),
         beam: a.beam.clone(),
         wavelength: a.wavelength.clone(),
+        missing_value: None,
         noise: None,
         noise_map: None,
     };

@@ -152,6 +152,9 @@ pub struct LoadOptions {
     /// command that measures); a missing BUNIT, or one cairn does not convert, reads as
     /// [`PixelUnit::Other`] with a warning either way.
     pub require_unit: bool,
+    /// A pixel value that marks a missing pixel (`--missing-value`, such as 0 for a
+    /// zero-filled border), beside NaN and BLANK.
+    pub missing_value: Option<f32>,
 }
 
 impl Default for LoadOptions {
@@ -165,6 +168,7 @@ impl Default for LoadOptions {
             beam: None,
             wavelength: None,
             require_unit: true,
+            missing_value: None,
         }
     }
 }
@@ -220,6 +224,8 @@ pub struct Map {
     /// Set when this map is a file's map smoothed to a common linear resolution
     /// ([`crate::resolution::to_common_resolution`]): what was asked, so that it can be redone.
     pub common_resolution: Option<CommonResolution>,
+    /// The value read as missing besides NaN and BLANK ([`LoadOptions::missing_value`]).
+    pub missing_value: Option<f32>,
 }
 
 /// How a map was smoothed to a common linear resolution, recorded so that the same map can be
@@ -421,8 +427,11 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     move_to(&fits, path, index)?;
     let compressed = is_compressed_image(&fits);
     let mut header = read_header(&fits, path)?;
+    let mut inherit_note = None;
     if index > 0 && header.get_bool("INHERIT") == Some(true) {
         inherit_primary(&fits, path, index, &mut header)?;
+    } else if index > 0 {
+        inherit_note = primary_keys_note(&fits, path, index, &header)?;
     }
     let (bitpix, axes) = image_shape(&fits, path, index)?;
     let (nx, ny, firstpix, plane) = plan_read(path, &header, &axes, opts.plane)?;
@@ -505,18 +514,44 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     // Values beyond the range of 32-bit floats (in 64-bit data: such as -1e300 written as a
     // blank) arrive infinite; they are missing pixels, as infinities stored in the file are
     // (CFITSIO reads those as null), and a warning counts them.
-    let beyond = buf.iter().filter(|v| v.is_infinite()).count();
-    if beyond > 0 {
-        for v in buf.iter_mut().filter(|v| v.is_infinite()) {
+    // Pixels of the value `--missing-value` names are missing too. Exact zeros are counted:
+    // many of them (a zero-filled border or unobserved area) are said.
+    let (mut beyond, mut marked, mut zeros, mut finite) = (0usize, 0usize, 0usize, 0usize);
+    for v in buf.iter_mut() {
+        if v.is_infinite() {
+            beyond += 1;
             *v = f32::NAN;
+        } else if opts.missing_value.is_some_and(|m| *v == m) {
+            marked += 1;
+            *v = f32::NAN;
+        } else if v.is_finite() {
+            finite += 1;
+            zeros += (*v == 0.0) as usize;
         }
     }
     let data = Array2::from_shape_vec((ny, nx), buf).map_err(|e| Error::internal(e.to_string()))?;
 
-    let mut warnings: Vec<String> = hdu_note.into_iter().chain(narrowing).collect();
+    let mut warnings: Vec<String> = hdu_note
+        .into_iter()
+        .chain(inherit_note)
+        .chain(narrowing)
+        .collect();
     if beyond > 0 {
         warnings.push(format!(
             "{beyond} pixels hold values beyond the range of 32-bit floats (about 3.4e38 in size, such as -1e300 written as a blank); they are treated as missing"
+        ));
+    }
+    if let Some(m) = opts.missing_value
+        && marked == 0
+    {
+        warnings.push(format!(
+            "no pixel of the map has the value --missing-value {m} names, so it changes nothing"
+        ));
+    }
+    if zeros > 0 && zeros * 20 > finite && zeros < finite {
+        warnings.push(format!(
+            "{zeros} of the map's {finite} measured pixels ({:.1}%) are exactly 0, as a zero-filled border or unobserved area often is: cairn takes them as data, which lowers the noise estimate, the background and so the thresholds, and can split structures at their edge; if they are not data, give --missing-value 0 (or set them to NaN in the file)",
+            100.0 * zeros as f64 / finite as f64
         ));
     }
     let hdu_name = header.get_str("EXTNAME").map(str::to_string);
@@ -746,9 +781,34 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         Some(_) => {}
     }
 
-    // Beam.
+    // A header without the pixel's size: FITS takes 1 degree (WCSLIB and astropy.wcs too),
+    // which is almost never what a map means.
+    let has_cd = (1..=2).any(|i| (1..=2).any(|j| header.contains(&format!("CD{i}_{j}"))));
+    let has_pc = crate::wcs::any_pc_card(&header);
+    let no_cdelt: Vec<&str> = ["CDELT1", "CDELT2"]
+        .into_iter()
+        .filter(|k| !header.contains(k))
+        .collect();
+    if wcs.is_some() && (has_pc || !has_cd) && !no_cdelt.is_empty() {
+        warnings.push(format!(
+            "the header gives no {} (nor a CD matrix), so each pixel is taken to be 1 degree along that axis, the FITS default, as WCSLIB (astropy.wcs) reads it; real maps' pixels are almost never that large: add the pixel size in degrees as {}, or the map's sizes, areas and masses are wrong",
+            no_cdelt.join(" or "),
+            no_cdelt.join(" and ")
+        ));
+    }
+
+    // Beam. BMAJ = 0, which some pipelines write for a beam they do not know, is no beam.
+    let zero_beam = opts.beam.is_none()
+        && header.get_f64("BMAJ") == Some(0.0)
+        && header.get_f64("BMIN").is_none_or(|b| b == 0.0);
+    if zero_beam {
+        warnings.push(
+            "the header's BMAJ is 0, which says the beam is not known: the map is read without a beam; give it with --beam, such as --beam 18.2arcsec".to_string(),
+        );
+    }
     let (beam, beam_source) = match opts.beam {
         Some(b) => (Some(b), Some(Source::Option)),
+        None if zero_beam => (None, None),
         None => match beam_from_header(&header) {
             Ok(Some(b)) => (Some(b), Some(Source::Header)),
             Ok(None) => (None, None),
@@ -777,6 +837,27 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         }
     };
 
+    // A beam narrower than a pixel: the map cannot sample it, so the beam or the pixel size
+    // in the header is most likely wrong.
+    if let (Some(b), Some(w)) = (beam, &wcs) {
+        let (cx, cy) = ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0);
+        let sr = w.pixel_solid_angle(cx, cy);
+        let side = sr.sqrt().to_degrees();
+        if side.is_finite() && side > 0.0 && b.solid_angle_sr() < sr {
+            warnings.push(format!(
+                "the beam, {}\" x {}\"{}, covers less than a pixel ({}\" square or its equal in area), which no map can sample: check BMAJ and BMIN and the pixel size (CDELT or CD), all in degrees, or give --beam",
+                units::tidy(b.major_deg * 3600.0),
+                units::tidy(b.minor_deg * 3600.0),
+                if beam_source == Some(Source::Option) {
+                    " (from --beam)"
+                } else {
+                    ""
+                },
+                units::tidy(side * 3600.0)
+            ));
+        }
+    }
+
     Ok(Map {
         path: path.to_path_buf(),
         hdu_index: index,
@@ -796,6 +877,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         wavelength_source,
         warnings,
         common_resolution: None,
+        missing_value: opts.missing_value,
     })
 }
 
@@ -880,6 +962,34 @@ fn inherit_primary(
         }
     }
     Ok(())
+}
+
+/// For an extension without `INHERIT = T`: a note naming the keywords a map needs (sky
+/// coordinates, unit, beam, wavelength) that the primary header has and the extension lacks,
+/// which are then not read, and the fix. The current HDU stays `index`.
+fn primary_keys_note(
+    fits: &FitsHandle,
+    path: &Path,
+    index: usize,
+    header: &Header,
+) -> Result<Option<String>> {
+    move_to(fits, path, 0)?;
+    let primary = read_header(fits, path)?;
+    move_to(fits, path, index)?;
+    let wanted = [
+        "CTYPE1", "CTYPE2", "CRVAL1", "CRVAL2", "CDELT1", "CDELT2", "CD1_1", "BUNIT", "BMAJ",
+        "BMIN", "RESTFRQ", "RESTFREQ",
+    ];
+    let lacking: Vec<&str> = wanted
+        .into_iter()
+        .filter(|k| primary.contains(k) && !header.contains(k))
+        .collect();
+    Ok((!lacking.is_empty()).then(|| {
+        format!(
+            "the primary header (HDU 0) has {} that this extension (HDU {index}) lacks, and the extension does not say INHERIT = T, so they are not read (each HDU's header is its own in FITS); if they belong to this image, add INHERIT = T to its header, and cairn takes them",
+            lacking.join(", ")
+        )
+    }))
 }
 
 /// Whether the current HDU holds a tile-compressed image (stored as a binary table; FITS

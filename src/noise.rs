@@ -79,8 +79,8 @@ impl std::fmt::Display for NoNoise {
             ),
             NoNoise::Quantised(v) => write!(
                 f,
-                "at least half its pixels have the same value ({:?}) (a quantised or mostly empty map), so the clipped noise estimate cannot be made",
-                *v as f32
+                "at least half of the pixels the clipping keeps have the same value ({:?}) (a quantised map, or a large area of one value such as a zero-filled border), so the clipped noise estimate cannot be made; if that value marks unobserved pixels, give --missing-value {}",
+                *v as f32, *v as f32
             ),
         }
     }

@@ -505,6 +505,11 @@ fn resolve_with(
         (Some(w), Some((x, y))) => Some(w.pixel_solid_angle(x, y)),
         _ => None,
     };
+    // A beam larger than the map (most often one written in arcsec where FITS asks for
+    // degrees) would make every size, error and state wrong, whatever --min-area says.
+    if let Some(why) = crate::inspect::beam_too_large(map) {
+        return Err(Error::usage(format!("{why}.")));
+    }
     let beam_px = crate::inspect::beam_area_px(map);
     let area_px = match o.min_area {
         Some(Area::Pixels(n)) => n,
@@ -2019,6 +2024,9 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let seconds = t0.elapsed().as_secs_f64();
     let mut input_record =
         serde_json::json!({ "sha256": input_sha, "hdu": map.hdu_index, "plane": map.plane });
+    if let Some(v) = map.missing_value {
+        input_record["missing_value"] = serde_json::json!(v);
+    }
     let (path_text, path_bytes) =
         input_path_record(&std::fs::canonicalize(&map.path).unwrap_or_else(|_| map.path.clone()));
     input_record["path"] = path_text;

@@ -16,6 +16,20 @@ use std::path::{Path, PathBuf};
 /// A FITS file of `nx` x `ny` float pixels (a smooth invented pattern with noise-like
 /// wiggles) and the header cards given.
 fn write_map(dir: &Path, name: &str, nx: usize, ny: usize, cards: &[String]) -> PathBuf {
+    write_map_with(dir, name, nx, ny, cards, |i| {
+        ((i * 37) % 101) as f32 * 0.01 + ((i * 13) % 7) as f32
+    })
+}
+
+/// As [`write_map`], with pixel `i` (row-major from the first) of value `value(i)`.
+fn write_map_with(
+    dir: &Path,
+    name: &str,
+    nx: usize,
+    ny: usize,
+    cards: &[String],
+    value: impl Fn(usize) -> f32,
+) -> PathBuf {
     let mut h = String::new();
     for c in [
         "SIMPLE  =                    T".to_string(),
@@ -35,8 +49,7 @@ fn write_map(dir: &Path, name: &str, nx: usize, ny: usize, cards: &[String]) -> 
     }
     let mut bytes = h.into_bytes();
     for i in 0..nx * ny {
-        let v = ((i * 37) % 101) as f32 * 0.01 + ((i * 13) % 7) as f32;
-        bytes.extend_from_slice(&v.to_be_bytes());
+        bytes.extend_from_slice(&value(i).to_be_bytes());
     }
     while !bytes.len().is_multiple_of(2880) {
         bytes.push(0);
@@ -181,9 +194,10 @@ fn a_map_whose_centre_is_off_the_sky_keeps_its_frame_scale_and_beam() {
 #[test]
 fn inspect_says_what_segment_says_of_a_beam_larger_than_the_map() {
     // A stated property: BMAJ is in degrees (FITS practice for BMAJ/BMIN); a beam of 14
-    // (arcsec meant) covers more than a 40 x 30 map of 6" pixels. segment refuses its
-    // default --min-area of one beam; inspect suggests none and says the same sentence
-    // (from the one rule both use), with the reading in degrees named.
+    // (arcsec meant) covers more than a 40 x 30 map of 6" pixels. segment refuses the map,
+    // with or without a --min-area of its own (every size, error and state would be wrong);
+    // inspect suggests no --min-area and says the same sentence (from the one rule both
+    // use), with the reading in degrees named.
     let dir = tempfile::tempdir().unwrap();
     let cards: Vec<String> = [
         "CTYPE1  = 'RA---TAN'",
@@ -211,34 +225,37 @@ fn inspect_says_what_segment_says_of_a_beam_larger_than_the_map() {
     let w = warnings(&s);
     let said = w
         .iter()
-        .find(|w| w.starts_with("segment refuses its default minimum area"))
+        .find(|w| w.starts_with("segment refuses this map as it is"))
         .unwrap_or_else(|| panic!("{w:?}"));
     assert!(
         said.contains("BMAJ and BMIN are in degrees") && said.contains("14 deg is 50400\""),
         "{said}"
     );
     let out = dir.path().join("run");
-    let o = cairn(
-        &[
+    for extra in [None, Some("11px")] {
+        let mut args = vec![
             "segment",
             path.to_str().unwrap(),
             "-o",
             out.to_str().unwrap(),
             "-q",
-        ],
-        dir.path(),
-    );
-    assert_eq!(o.code, 2, "{}", o.stderr);
-    assert!(!out.exists(), "nothing written");
-    // The refusal's words are inspect's, the reading of BMAJ in degrees included.
-    let core = "the default --min-area, one beam (";
-    let start = o.stderr.find(core).expect("segment's sentence");
-    let end = o.stderr.trim_end().trim_end_matches('.').len();
-    assert!(
-        said.contains(&o.stderr[start..end]),
-        "{said} / {}",
-        o.stderr
-    );
+        ];
+        if let Some(a) = extra {
+            args.extend_from_slice(&["--min-area", a]);
+        }
+        let o = cairn(&args, dir.path());
+        assert_eq!(o.code, 2, "{}", o.stderr);
+        assert!(!out.exists(), "nothing written");
+        // The refusal's words are inspect's, the reading of BMAJ in degrees included.
+        let core = "one beam (";
+        let start = o.stderr.find(core).expect("segment's sentence");
+        let end = o.stderr.trim_end().trim_end_matches('.').len();
+        assert!(
+            said.contains(&o.stderr[start..end]),
+            "{said} / {}",
+            o.stderr
+        );
+    }
     let text = cairn(&["inspect", path.to_str().unwrap()], dir.path()).stdout;
     assert!(text.contains("no --min-area"), "{text}");
 }
@@ -420,4 +437,269 @@ fn long_strings_and_long_extension_names_through_the_command_line() {
     let s = inspect_json(dir.path(), &path, &["--hdu", long]);
     assert_eq!(s["hdu"], 1);
     assert_eq!(s["hdu_name"], long);
+}
+
+/// Celestial header cards of a TAN map centred on its middle pixel, pixels `cdelt` degrees
+/// (None: no CDELT cards), with the extra cards given.
+fn sky_cards(nx: usize, ny: usize, cdelt: Option<(f64, f64)>, extra: &[&str]) -> Vec<String> {
+    let mut c = vec![
+        "CTYPE1  = 'RA---TAN'".to_string(),
+        "CTYPE2  = 'DEC--TAN'".to_string(),
+        format!("CRPIX1  = {:>20}", (nx as f64 + 1.0) / 2.0),
+        format!("CRPIX2  = {:>20}", (ny as f64 + 1.0) / 2.0),
+        "CRVAL1  =                 71.5".to_string(),
+        "CRVAL2  =                 22.0".to_string(),
+        "BUNIT   = 'Jy/beam '".to_string(),
+    ];
+    if let Some((a, b)) = cdelt {
+        c.push(format!("CDELT1  = {:>20}", -a));
+        c.push(format!("CDELT2  = {b:>20}"));
+    }
+    c.extend(extra.iter().map(|s| s.to_string()));
+    c
+}
+
+/// A pseudo-random value in [-0.5, 0.5) of pixel `i` (a fixed integer hash).
+fn wiggle(i: usize) -> f32 {
+    let h = (i as u64 + 1).wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 40;
+    (h % 1000) as f32 / 1000.0 - 0.5
+}
+
+/// A header case: file name, pixel sides in degrees (None: no CDELT), extra cards, and the
+/// warnings it must get.
+type Case<'a> = (&'a str, Option<(f64, f64)>, &'a [&'a str], &'a [&'a str]);
+
+/// Headers that are wrong in ways every pixel would inherit are warned about, by inspect and
+/// by segment alike: no CDELT (FITS then takes 1 degree per pixel, as WCSLIB does: common
+/// practice to read, almost never meant), a beam covering less than a pixel, and BMAJ = 0
+/// (read as no beam rather than refused). A sound header gets none of these warnings.
+#[test]
+fn missing_pixel_sizes_undersampled_beams_and_zero_beams_are_said() {
+    let dir = tempfile::tempdir().unwrap();
+    let (nx, ny) = (40, 30);
+    // Each case with the warnings it gets: a map without CDELT has 1-degree pixels, under
+    // which the 18" beam is undersampled too.
+    let cases: [Case; 4] = [
+        (
+            "sound.fits",
+            Some((6.0 / 3600.0, 6.0 / 3600.0)),
+            &[
+                "BMAJ    =                0.005",
+                "BMIN    =                0.005",
+            ],
+            &[],
+        ),
+        (
+            "nocdelt.fits",
+            None,
+            &[
+                "BMAJ    =                0.005",
+                "BMIN    =                0.005",
+            ],
+            &[
+                "gives no CDELT1 or CDELT2 (nor a CD matrix)",
+                "covers less than a pixel",
+            ],
+        ),
+        (
+            "undersampled.fits",
+            Some((6.0 / 3600.0, 6.0 / 3600.0)),
+            &[
+                "BMAJ    =    0.001388888888889",
+                "BMIN    =   0.0011111111111111",
+            ],
+            &["covers less than a pixel"],
+        ),
+        (
+            "zerobeam.fits",
+            Some((6.0 / 3600.0, 6.0 / 3600.0)),
+            &[
+                "BMAJ    =                  0.0",
+                "BMIN    =                  0.0",
+            ],
+            &["the header's BMAJ is 0, which says the beam is not known"],
+        ),
+    ];
+    let all = [
+        "gives no CDELT",
+        "covers less than a pixel",
+        "the header's BMAJ is 0",
+    ];
+    for (name, cdelt, extra, expect) in cases {
+        let path = write_map(dir.path(), name, nx, ny, &sky_cards(nx, ny, cdelt, extra));
+        let s = inspect_json(dir.path(), &path, &[]);
+        let w = warnings(&s);
+        for phrase in all {
+            let said = w.iter().any(|x| x.contains(phrase));
+            assert_eq!(
+                said,
+                expect.iter().any(|e| e.contains(phrase)),
+                "{name}: {w:?}"
+            );
+        }
+        if name == "zerobeam.fits" {
+            assert!(s["beam"].is_null(), "{}", s["beam"]);
+        }
+        // segment says the same on stderr.
+        let out = dir.path().join(format!("run-{name}"));
+        let o = cairn(
+            &[
+                "segment",
+                path.to_str().unwrap(),
+                "-o",
+                out.to_str().unwrap(),
+                "-q",
+                "--no-figure",
+                "--floor",
+                "3",
+                "--prominence",
+                "0.5",
+            ],
+            dir.path(),
+        );
+        assert_eq!(o.code, 0, "{name}: {}", o.stderr);
+        for e in expect {
+            assert!(o.stderr.contains(e), "{name}: {}", o.stderr);
+        }
+    }
+}
+
+/// A zero-filled border is said, with the fix; `--missing-value 0` reads those pixels as
+/// missing, after which the noise estimate is the one of the same map with NaN there (the
+/// same pixels measured), segment records the value in its run record and `draw` reads the
+/// map again the same way; a value no pixel has is said, and one that is no number refused.
+#[test]
+fn a_zero_filled_border_is_said_and_missing_value_reads_it_as_missing() {
+    let dir = tempfile::tempdir().unwrap();
+    let (nx, ny) = (60, 50);
+    let cards = sky_cards(
+        nx,
+        ny,
+        Some((6.0 / 3600.0, 6.0 / 3600.0)),
+        &[
+            "BMAJ    =                0.005",
+            "BMIN    =                0.005",
+        ],
+    );
+    // The left 15 columns (25% of the pixels) are zero, or NaN.
+    let border = |i: usize| i % nx < 15;
+    let zeros = write_map_with(dir.path(), "zeros.fits", nx, ny, &cards, |i| {
+        if border(i) { 0.0 } else { 1.0 + wiggle(i) }
+    });
+    let nans = write_map_with(dir.path(), "nans.fits", nx, ny, &cards, |i| {
+        if border(i) { f32::NAN } else { 1.0 + wiggle(i) }
+    });
+    let s = inspect_json(dir.path(), &zeros, &[]);
+    let w = warnings(&s);
+    assert!(
+        w.iter().any(
+            |x| x.contains("750 of the map's 3000 measured pixels (25.0%) are exactly 0")
+                && x.contains("give --missing-value 0")
+        ),
+        "{w:?}"
+    );
+    let m = inspect_json(dir.path(), &zeros, &["--missing-value", "0"]);
+    assert!(
+        warnings(&m).iter().all(|x| !x.contains("are exactly 0")),
+        "{:?}",
+        warnings(&m)
+    );
+    assert_eq!(m["values"]["n_missing"], 750);
+    let n = inspect_json(dir.path(), &nans, &[]);
+    assert_eq!(m["noise"], n["noise"]);
+    assert_ne!(s["noise"]["sigma"], n["noise"]["sigma"]);
+    // segment records it; draw reads the map again the same way.
+    let o = cairn(
+        &[
+            "segment",
+            zeros.to_str().unwrap(),
+            "-o",
+            "run",
+            "-q",
+            "--missing-value",
+            "0",
+            "--floor",
+            "1.2",
+            "--prominence",
+            "0.2",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("are exactly 0"), "{}", o.stderr);
+    let run: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("run/run.json")).unwrap())
+            .unwrap();
+    assert_eq!(run["input"]["missing_value"], 0.0);
+    let o = cairn(&["draw", "run", "-o", "again"], dir.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("are exactly 0"), "{}", o.stderr);
+    // A value no pixel has; a value that is no number.
+    let v = inspect_json(dir.path(), &nans, &["--missing-value", "-999"]);
+    assert!(
+        warnings(&v)
+            .iter()
+            .any(|x| x.contains("no pixel of the map has the value --missing-value -999")),
+        "{:?}",
+        warnings(&v)
+    );
+    let o = cairn(
+        &[
+            "inspect",
+            zeros.to_str().unwrap(),
+            "--missing-value",
+            "zero",
+        ],
+        dir.path(),
+    );
+    assert_eq!(o.code, 2);
+    assert!(
+        o.stderr
+            .contains("--missing-value 'zero' is not a finite number"),
+        "{}",
+        o.stderr
+    );
+}
+
+/// On pixels of unequal sides the beam's sizes in pixels are in sides of a square pixel of the
+/// same area, so that pi/(4 ln 2) major minor is the pixels per beam, and the text says so;
+/// a galactic map's centre is named l and b.
+#[test]
+fn beams_on_unequal_pixels_and_galactic_centres_read_right() {
+    let dir = tempfile::tempdir().unwrap();
+    let (nx, ny) = (40, 30);
+    let cards = sky_cards(
+        nx,
+        ny,
+        Some((4.0 / 3600.0, 8.0 / 3600.0)),
+        &[
+            "BMAJ    =                0.005",
+            "BMIN    =                0.005",
+        ],
+    );
+    let path = write_map(dir.path(), "oblong.fits", nx, ny, &cards);
+    let s = inspect_json(dir.path(), &path, &[]);
+    let b = &s["beam"];
+    let (a, m, area) = (num(&b["major_px"]), num(&b["minor_px"]), num(&b["area_px"]));
+    // The beam's area (FWHM^2 pi / (4 ln 2), the Gaussian's solid angle) over the pixel's.
+    let expect = std::f64::consts::PI / (4.0 * 2f64.ln()) * a * m;
+    assert!((expect / area - 1.0).abs() < 1e-9, "{a} {m} {area}");
+    let text = cairn(&["inspect", path.to_str().unwrap()], dir.path()).stdout;
+    assert!(text.contains("(in pixels of the same area"), "{text}");
+    // Galactic axes: l and b named, not the same degrees twice.
+    let gal: Vec<String> = cards
+        .iter()
+        .map(|c| {
+            c.replace("'RA---TAN'", "'GLON-TAN'")
+                .replace("'DEC--TAN'", "'GLAT-TAN'")
+        })
+        .collect();
+    let path = write_map(dir.path(), "gal.fits", nx, ny, &gal);
+    let text = cairn(&["inspect", path.to_str().unwrap()], dir.path()).stdout;
+    let centre = text.lines().find(|l| l.starts_with("centre")).unwrap();
+    assert!(
+        centre.contains("l = 71.5") && centre.contains(", b = +22.0"),
+        "{centre}"
+    );
+    assert_eq!(centre.matches("71.5").count(), 1, "{centre}");
 }

@@ -38,17 +38,17 @@ fn run_json(dir: &Path) -> serde_json::Value {
 fn a_beam_wider_than_the_map_is_no_crash() {
     let d = tempfile::tempdir().unwrap();
     demo_map(d.path());
-    // The background's boxes (a few beams) are capped at the map: one box, the whole map.
+    // A beam larger than the map says nothing of the noise's scale: the background's boxes
+    // take their size without it, and inspect still describes the map.
     let o = cairn(&["inspect", "col.fits", "--beam", "1e10arcsec"], d.path());
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(o.stdout.contains("noise"), "{}", o.stdout);
-    // segment's default min-area (one beam) is then larger than the map: refused plainly.
-    refused(
-        d.path(),
-        &["segment", "col.fits", "-o", "out", "--beam", "20deg"],
-        "--min-area",
-        "larger than the whole map",
-    );
+    // segment refuses such a map plainly, with or without a --min-area of its own.
+    for extra in [&[][..], &["--min-area", "12px"][..]] {
+        let mut args = vec!["segment", "col.fits", "-o", "out", "--beam", "20deg"];
+        args.extend_from_slice(extra);
+        refused(d.path(), &args, "--beam", "larger than the whole map");
+    }
 }
 
 #[cfg(unix)]

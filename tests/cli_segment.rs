@@ -567,7 +567,7 @@ fn threshold_messages_quote_what_was_given() {
         &[
             "segment", m, "-o", "run", "--beam", "5deg", "--floor", "4e21",
         ],
-        "the default --min-area, one beam",
+        "one beam (10197811 pixels) is larger than the whole map",
     );
 }
 

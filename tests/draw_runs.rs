@@ -1348,3 +1348,41 @@ fn the_scale_bar_takes_a_corner_clear_of_the_leaves() {
         "bar {bar:?} frame {frame:?}"
     );
 }
+
+/// On a flat strip (3000 x 60 pixels of 6", 21.8 pc x 0.44 pc at 250 pc) the scale bar is a
+/// fifth of eight times the height, rounded down to 1, 2 or 5 of a power of ten (0.70 pc: 0.5
+/// pc; a fifth of the width would give 2 pc, wider than the gaps between structures), and
+/// it and its text, beside it, stand clear of every outline. Read from the SVG.
+#[test]
+fn a_flat_strip_gets_a_scale_bar_that_fits_between_its_structures() {
+    let d = tempfile::tempdir().unwrap();
+    let map = write_map(d.path(), "strip.fits", 3000, 60);
+    let o = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "run",
+            "--distance",
+            "250pc",
+            "--floor",
+            "0.1",
+            "--prominence",
+            "0.05",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let svg = std::fs::read_to_string(d.path().join("run/overlay.svg")).unwrap();
+    assert!(svg.contains("aria-label=\"0.5 pc\""), "no 0.5 pc bar");
+    let (bar, text, frame, outlines) = bar_frame_outlines(&svg);
+    assert!(!outlines.is_empty());
+    for b in [bar, text] {
+        assert!(b.0 >= frame.0 && b.2 <= frame.2, "{b:?} outside {frame:?}");
+        assert!(
+            svg_layout::distance(&outlines, b) > 0.0,
+            "the scale bar or its text at {b:?} on an outline"
+        );
+    }
+}

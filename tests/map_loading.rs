@@ -365,3 +365,88 @@ fn precision_lost_by_64_bit_maps_is_warned_about() {
         "400 of the first 400 pixels hold values below the least normal 32-bit float"
     ));
 }
+
+/// An image extension without INHERIT = T whose primary header holds the unit, sky axes and
+/// beam it lacks reads none of them (each HDU's header is its own, FITS Standard 4.0 section
+/// 4.4.1) and is warned about once, naming the keywords and the fix; with INHERIT = T they are
+/// read and the warning is gone.
+#[test]
+fn an_extension_without_inherit_names_the_primary_keywords_it_lacks() {
+    // Assembled card by card (FITS Standard 4.0: 2880-byte blocks of 80-character cards,
+    // big-endian data).
+    let d = tempfile::tempdir().unwrap();
+    let block = |cards: &[&str]| -> Vec<u8> {
+        let mut h = String::new();
+        for c in cards.iter().chain(&["END"]) {
+            h.push_str(&format!("{c:<80}"));
+        }
+        while !h.len().is_multiple_of(2880) {
+            h.push(' ');
+        }
+        h.into_bytes()
+    };
+    let write = |name: &str, inherit: bool| {
+        let mut bytes = block(&[
+            "SIMPLE  =                    T",
+            "BITPIX  =                    8",
+            "NAXIS   =                    0",
+            "EXTEND  =                    T",
+            "BUNIT   = 'MJy/sr  '",
+            "CTYPE1  = 'RA---TAN'",
+            "CTYPE2  = 'DEC--TAN'",
+            "BMAJ    =                0.005",
+        ]);
+        let mut ext = vec![
+            "XTENSION= 'IMAGE   '",
+            "BITPIX  =                  -32",
+            "NAXIS   =                    2",
+            "NAXIS1  =                   20",
+            "NAXIS2  =                   20",
+            "PCOUNT  =                    0",
+            "GCOUNT  =                    1",
+            "EXTNAME = 'SCI     '",
+        ];
+        if inherit {
+            ext.push("INHERIT =                    T");
+        }
+        bytes.extend(block(&ext));
+        for i in 0..400 {
+            bytes.extend_from_slice(&(((i * 37) % 101) as f32).to_be_bytes());
+        }
+        while !bytes.len().is_multiple_of(2880) {
+            bytes.push(0);
+        }
+        let path = d.path().join(name);
+        std::fs::write(&path, bytes).unwrap();
+        path
+    };
+    let o = LoadOptions {
+        require_unit: false,
+        ..opts()
+    };
+    let m = map::load(&write("plain.fits", false), &o).unwrap();
+    assert_eq!(m.hdu_index, 1);
+    assert!(m.beam.is_none() && m.unit_text.is_empty());
+    let said: Vec<&String> = m
+        .warnings
+        .iter()
+        .filter(|w| w.contains("the primary header (HDU 0) has"))
+        .collect();
+    assert_eq!(said.len(), 1, "{:?}", m.warnings);
+    assert!(
+        said[0].contains("has CTYPE1, CTYPE2, BUNIT, BMAJ that this extension (HDU 1) lacks")
+            && said[0].contains("add INHERIT = T"),
+        "{}",
+        said[0]
+    );
+    let m = map::load(&write("inherit.fits", true), &o).unwrap();
+    assert_eq!(m.unit_text, "MJy/sr");
+    assert!(m.beam.is_some());
+    assert!(
+        m.warnings
+            .iter()
+            .all(|w| !w.contains("the primary header (HDU 0)")),
+        "{:?}",
+        m.warnings
+    );
+}

@@ -583,8 +583,33 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             let b = block(best.0);
             (b.0 + overhang + bar_w, b.3 - 0.3 * fs)
         } else {
+            // A flat panel: the text beside the bar, both centred on the frame's height, at
+            // the right end unless outlines run there; then the left end beside the beam, or
+            // a place between (the first free, else the least crossed).
             lay.scale_text_beside = true;
-            (left + fw - inset, frame.1 + fh / 2.0)
+            let block_w = tw + m.gap + bar_w;
+            let h = (0.5 * fs).max(text::cap_height(lfs));
+            let (lo, hi) = (left + inset + beam_room, left + fw - inset - block_w);
+            let mut starts = vec![left + fw - inset - block_w];
+            if lo <= hi {
+                starts.push(lo);
+                let n = (((hi - lo) / block_w).floor() as usize).min(16);
+                starts.extend((1..n).map(|k| hi - (hi - lo) * k as f64 / n as f64));
+            }
+            let covered = leaf_pixels_counter(o, &lay);
+            let near = 0.3 * fs;
+            let yc = frame.1 + fh / 2.0;
+            let mut best = (starts[0], usize::MAX);
+            for &x0 in &starts {
+                let n = covered((x0 - near, yc - h - near, x0 + block_w + near, yc + h + near));
+                if n < best.1 {
+                    best = (x0, n);
+                }
+                if n == 0 {
+                    break;
+                }
+            }
+            (best.0 + block_w, yc)
         };
         let end = lay.figure_to_map(ex, ey);
         lay.scale_bar = Some(((end.0 - len, end.1), end));
@@ -598,7 +623,7 @@ type Rect = (f64, f64, f64, f64);
 /// A counter of the map pixels under a box of the figure laid out by `lay` where an outline
 /// of `o`'s leaves runs: pixels whose label differs from their right or upper neighbour's,
 /// one of the two a listed leaf (every pixel of a box up to about 40,000 map pixels, else a
-/// regular sample of that many, scaled up). The inside of a leaf larger than the box (a zoom
+/// regular sample of that many, each against the next sample, scaled up). The inside of a leaf larger than the box (a zoom
 /// into one) does not count: only its outline would be hidden.
 fn leaf_pixels_counter<'a>(o: &'a Overlay, lay: &'a Layout) -> impl Fn(Rect) -> usize + 'a {
     let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
@@ -627,8 +652,10 @@ fn leaf_pixels_counter<'a>(o: &'a Overlay, lay: &'a Layout) -> impl Fn(Rect) -> 
         let mut count = 0;
         for y in (ya..=yb).step_by(step) {
             for x in (xa..=xb).step_by(step) {
+                // Against the next sample along x and along y, so that no outline passes
+                // between samples unseen.
                 let l = o.labels[[y, x]];
-                let edge = [(x + 1, y), (x, y + 1)]
+                let edge = [(x + step, y), (x, y + step)]
                     .into_iter()
                     .filter(|&(i, j)| i < nx && j < ny)
                     .any(|(i, j)| {
