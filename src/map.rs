@@ -1805,6 +1805,25 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
         if let Some(f) = f.filter(|f| f.is_finite() && *f > 0.0) {
             let m = units::C_LIGHT / f;
             if plausible_wavelength(m) {
+                // Other frequency keywords that disagree (a line's rest frequency beside the
+                // continuum's, say): which one is taken is said.
+                let others: Vec<String> = ["RESTFRQ", "RESTFREQ", "FREQ", "OBSFREQ"]
+                    .into_iter()
+                    .filter(|k| *k != key)
+                    .filter_map(|k| {
+                        let g = h.get_f64(k).filter(|g| g.is_finite() && *g > 0.0)?;
+                        let differs = plausible_wavelength(units::C_LIGHT / g)
+                            && ((g / f) - 1.0).abs() > 1e-3;
+                        differs.then(|| format!("{k} = {} GHz", units::tidy(g / 1e9)))
+                    })
+                    .collect();
+                if !others.is_empty() {
+                    warnings.push(format!(
+                        "the header gives {key} = {} GHz and {}: cairn takes {key}, the first of RESTFRQ, RESTFREQ, FREQ and OBSFREQ; if the map is at another frequency, give --wavelength",
+                        units::tidy(f / 1e9),
+                        others.join(" and ")
+                    ));
+                }
                 return Some(m);
             }
             let shown = units::tidy(f);
