@@ -3,12 +3,12 @@
 //! Owns one small parser for quantities written with their unit (`18.2arcsec`, `850um`,
 //! `300pc`, `12K`, `3sigma`, `2e21cm-2`, `3beam`), conversion of each to SI, and the reading
 //! of a FITS `BUNIT` string into the kind of quantity a map holds (column density, extinction,
-//! surface brightness, flux density per beam or per pixel). Unit strings follow the FITS
-//! Standard, Definition of the Flexible Image Transport System (FITS), version 4.0 (IAU FITS
-//! Working Group, 2016; document of 2018 August 13), section 4.3 on units and their prefixes
-//! (the prefix table is Table 4.3 of version 3.0, Pence et al. 2010, A&A 524, A42, whose
-//! section 4.3 version 4.0 keeps), with the common spellings found in archive headers
-//! (`cm^-2`, `MJy sr-1`, `JY/BEAM`).
+//! surface brightness per steradian or per square arcsecond, flux density per beam or per
+//! pixel). Unit strings follow the FITS Standard, Definition of the Flexible Image Transport
+//! System (FITS), version 4.0 (IAU FITS Working Group, 2016; document of 2018 August 13),
+//! section 4.3 on units and their prefixes (the prefix table is Table 4.3 of version 3.0,
+//! Pence et al. 2010, A&A 524, A42, whose section 4.3 version 4.0 keeps), with the common
+//! spellings found in archive headers (`cm^-2`, `MJy sr-1`, `JY/BEAM`, `beam-1 Jy`).
 //!
 //! Conventions: an all-upper-case `BUNIT` such as `MJY/SR` is read case-insensitively, with
 //! `M` as mega (common practice for headers written by older software); `mJy` is recognised
@@ -22,6 +22,10 @@ pub const DEG: f64 = std::f64::consts::PI / 180.0;
 pub const ARCMIN: f64 = DEG / 60.0;
 /// One arcsecond in radians.
 pub const ARCSEC: f64 = DEG / 3600.0;
+/// One square arcsecond in steradians: (pi/648000)^2, about 2.350443e-11 (the second of arc is
+/// (1/60)' = pi/648000 rad by definition: BIPM, The International System of Units (SI
+/// Brochure), 8th edition 2006, Table 6).
+pub const ARCSEC2: f64 = ARCSEC * ARCSEC;
 /// The parsec in metres (from [`crate::physics::constants`]).
 pub const PARSEC: f64 = crate::physics::constants::PC;
 /// The astronomical unit in metres.
@@ -239,6 +243,11 @@ fn unit_table() -> &'static [(&'static str, Dimension, f64)] {
         ("sr", SolidAngle, 1.0),
         ("MJy/sr", SurfaceBrightness, 1e6 * JY),
         ("Jy/sr", SurfaceBrightness, JY),
+        // Per square arcsecond: the same expression as `parse_pixel_unit`'s factor, so that a
+        // level given in a map's own unit is the decimal typed (`Quantity::in_unit`).
+        ("Jy/arcsec2", SurfaceBrightness, JY / ARCSEC2),
+        ("mJy/arcsec2", SurfaceBrightness, 1e-3 * JY / ARCSEC2),
+        ("uJy/arcsec2", SurfaceBrightness, 1e-6 * JY / ARCSEC2),
         ("Jy/beam", FluxPerBeam, JY),
         ("mJy/beam", FluxPerBeam, 1e-3 * JY),
         ("uJy/beam", FluxPerBeam, 1e-6 * JY),
@@ -250,12 +259,14 @@ fn unit_table() -> &'static [(&'static str, Dimension, f64)] {
     ]
 }
 
-/// Normalises the spelling of a unit: `^`, `**`, blanks and ` sr-1`-style powers.
+/// Normalises the spelling of a unit: `^`, `**`, blanks and ` sr-1`-style powers (`arcsec-2`
+/// as `/arcsec2`).
 fn normalise_unit(u: &str) -> String {
     let mut s = u.trim().replace("**", "").replace(['^', ' '], "");
     for (from, to) in [
         ("cm2", "cm2"),
         ("sr-1", "/sr"),
+        ("arcsec-2", "/arcsec2"),
         ("beam-1", "/beam"),
         ("pixel-1", "/pixel"),
         ("pix-1", "/pixel"),
@@ -462,6 +473,9 @@ impl PixelUnit {
 
 /// Reads a FITS `BUNIT` (or a `--unit` value) into what the pixels measure.
 ///
+/// A jansky unit is per steradian, per square arcsecond, per beam or per pixel, with a `/` or
+/// as a product with a negative power in either order (`MJy/sr`, `MJy sr-1`, `MJy.sr-1`,
+/// `sr-1 MJy`; `mJy/arcsec**2`, `mJy arcsec-2`, `arcsec-2 mJy`; `Jy/beam`, `beam-1 Jy`).
 /// `band` chooses the extinction band for `mag` maps. `1`, the FITS unit of a dimensionless
 /// value (FITS Standard 4.0 sec. 4.3.1), reads as [`PixelUnit::Other`]: values without a
 /// unit, measured for their structure alone. Returns `None` for strings that name no quantity
@@ -471,6 +485,9 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
     if raw.is_empty() {
         return None;
     }
+    // `beam-1 Jy` is `Jy beam-1`: the factors of a product in either order.
+    let swapped = inverse_factor_last(raw);
+    let raw = swapped.as_deref().unwrap_or(raw);
     if is_dimensionless(raw) {
         return Some(PixelUnit::Other);
     }
@@ -513,10 +530,37 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
     let si = prefix * JANSKY;
     match rest_l.as_str() {
         "/sr" | "/steradian" => Some(PixelUnit::SurfaceBrightness { to_si: si }),
+        // Per square arcsecond (`mJy/arcsec**2`, `mJy arcsec-2`): per steradian times the
+        // square arcseconds in one, so 1 mJy/arcsec2 is 42.545170296... MJy/sr.
+        "/arcsec2" => Some(PixelUnit::SurfaceBrightness {
+            to_si: si / ARCSEC2,
+        }),
         "/beam" => Some(PixelUnit::FluxPerBeam { to_si: si }),
         "/pixel" | "/pix" | "/px" => Some(PixelUnit::FluxPerPixel { to_si: si }),
         _ => None,
     }
+}
+
+/// A unit written as a product with its inverse factor first (`beam-1 Jy`, `sr-1 MJy`,
+/// `pixel-1.Jy`, `arcsec-2 mJy`, as some writers put it) with its two factors the other way
+/// round (`Jy beam-1`): the FITS Standard 4.0 section 4.3 writes a product of factors with
+/// blanks or `.` between them, and a product is the same whatever the order of its factors.
+/// `None` for text that is not two factors of which only the first has a negative power; what
+/// the swapped text means is for the caller's parser to decide, so nothing that is not a unit
+/// the other way round is read as one.
+fn inverse_factor_last(raw: &str) -> Option<String> {
+    let factors: Vec<&str> = raw
+        .split(|c: char| c.is_whitespace() || c == '.')
+        .filter(|f| !f.is_empty())
+        .collect();
+    let [first, second] = factors[..] else {
+        return None;
+    };
+    // `beam-1`, `sr^-1`, `arcsec**-2` read as `/beam`, `/sr`, `/arcsec2`.
+    let per = normalise_unit(first);
+    let inverse = !first.contains('/') && per.starts_with('/') && !per[1..].contains('/');
+    let plain = !second.contains(['/', '-']);
+    (inverse && plain).then(|| format!("{second} {first}"))
 }
 
 /// Whether a unit's text is `1`, the FITS unit of a dimensionless value (FITS Standard 4.0
@@ -526,18 +570,17 @@ pub fn is_dimensionless(text: &str) -> bool {
 }
 
 /// The unit of a map's values as cairn writes it in its outputs: the canonical spelling of the
-/// unit it recognised and converts (`cm-2`, `m-2`, `mag`, `MJy/sr`, `Jy/beam`, `mJy/beam`,
-/// `Jy/pixel`, ...), whatever spelling the map's BUNIT or `--unit` used (`1/cm2`, `mag(AK)`,
-/// `JY/BEAM`, `MJy/steradian`, `Jansky/beam`), so that a FITS or VO unit parser reads it (FITS
-/// Standard 4.0 sec. 4.3; IVOA VOUnits 1.0). A unit cairn does not convert
-/// ([`PixelUnit::Other`]) is kept as `text` gives it, trimmed, except the dimensionless `1`,
-/// written as no unit. An extinction's band is no part of its unit (the catalogue's
-/// `quantity` names it).
+/// unit it recognised and converts (`cm-2`, `m-2`, `mag`, `MJy/sr`, `mJy/arcsec2`, `Jy/beam`,
+/// `mJy/beam`, `Jy/pixel`, ...), whatever spelling the map's BUNIT or `--unit` used (`1/cm2`,
+/// `mag(AK)`, `JY/BEAM`, `MJy/steradian`, `Jansky/beam`, `beam-1 Jy`, `mJy/arcsec**2`), so
+/// that a FITS or VO unit parser reads it (FITS Standard 4.0 sec. 4.3; IVOA VOUnits 1.0). A
+/// unit cairn does not convert ([`PixelUnit::Other`]) is kept as `text` gives it, trimmed,
+/// except the dimensionless `1`, written as no unit. An extinction's band is no part of its
+/// unit (the catalogue's `quantity` names it).
 pub fn canonical_unit(unit: Option<PixelUnit>, text: &str) -> String {
     // The SI prefix of a jansky unit, from its factor to SI.
-    let jansky = |to_si: f64, per: &str| {
-        let ratio = to_si / JANSKY;
-        let prefix = [
+    let prefix = |ratio: f64| {
+        [
             ("G", 1e9),
             ("M", 1e6),
             ("k", 1e3),
@@ -547,18 +590,27 @@ pub fn canonical_unit(unit: Option<PixelUnit>, text: &str) -> String {
         ]
         .into_iter()
         .find(|(_, p)| (ratio / p - 1.0).abs() < 1e-9)
-        .map(|(t, _)| t);
-        match prefix {
+        .map(|(t, _)| t)
+    };
+    let jansky = |to_si: f64, per: &str| {
+        let ratio = to_si / JANSKY;
+        match prefix(ratio) {
             Some(t) => format!("{t}Jy/{per}"),
             // No prefix of the table (cannot come from the parser): the factor itself.
             None => format!("{} Jy/{per}", tidy(ratio)),
         }
     };
+    // A surface brightness per steradian, or else per square arcsecond (the two scales are
+    // some 4e10 apart, so no factor has a prefix in both).
+    let surface = |to_si: f64| match prefix(to_si / JANSKY * ARCSEC2) {
+        Some(t) if prefix(to_si / JANSKY).is_none() => format!("{t}Jy/arcsec2"),
+        _ => jansky(to_si, "sr"),
+    };
     match unit {
         Some(PixelUnit::ColumnDensity { to_si: 1.0 }) => "m-2".into(),
         Some(PixelUnit::ColumnDensity { .. }) => "cm-2".into(),
         Some(PixelUnit::Extinction { .. }) => "mag".into(),
-        Some(PixelUnit::SurfaceBrightness { to_si }) => jansky(to_si, "sr"),
+        Some(PixelUnit::SurfaceBrightness { to_si }) => surface(to_si),
         Some(PixelUnit::FluxPerBeam { to_si }) => jansky(to_si, "beam"),
         Some(PixelUnit::FluxPerPixel { to_si }) => jansky(to_si, "pixel"),
         Some(PixelUnit::Other) | None if is_dimensionless(text) => String::new(),
@@ -593,7 +645,8 @@ pub fn named_band(text: &str) -> Option<ExtinctionBand> {
 }
 
 /// The units `--unit` names cairn converts to column density, for messages.
-pub const CONVERTED_UNITS: &str = "cm-2, m-2, mag, MJy/sr, Jy/sr, Jy/beam, mJy/beam or Jy/pixel";
+pub const CONVERTED_UNITS: &str =
+    "cm-2, m-2, mag, MJy/sr, Jy/sr, mJy/arcsec2, Jy/beam, mJy/beam or Jy/pixel";
 
 /// Reads a `--unit` value: a unit cairn converts (spelt as in BUNIT); `other:TEXT` for a map in
 /// a unit cairn does not convert, such as `other:K km/s`, whose structure alone is measured,
@@ -661,7 +714,9 @@ fn split_jansky(s: &str, all_upper: bool) -> Option<(f64, String)> {
 /// which [`parse_pixel_unit`] read (mega when all upper case, milli when all lower) and how
 /// to give the other. `None` for any other unit.
 pub fn prefix_case_note(bunit: &str) -> Option<String> {
-    let raw = bunit.trim();
+    let written = bunit.trim();
+    let swapped = inverse_factor_last(written);
+    let raw = swapped.as_deref().unwrap_or(written);
     let (pos, len) = find_jansky(raw)?;
     if pos != 1 {
         return None;
@@ -685,7 +740,7 @@ pub fn prefix_case_note(bunit: &str) -> Option<String> {
         ("mJy", "MJy")
     };
     Some(format!(
-        "BUNIT '{raw}' is in one case, which cannot tell milli from mega: read as {read}{rest}; if {other}{rest} is meant, give --unit {other}{rest}"
+        "BUNIT '{written}' is in one case, which cannot tell milli from mega: read as {read}{rest}; if {other}{rest} is meant, give --unit {other}{rest}"
     ))
 }
 
@@ -873,7 +928,7 @@ mod tests {
                 band: ExtinctionBand::K
             })
         );
-        for s in ["MJy/sr", "MJy sr-1", "MJY/SR", "MJy/sr"] {
+        for s in ["MJy/sr", "MJy sr-1", "MJY/SR", "MJy/sr", "sr-1 MJy"] {
             assert_eq!(
                 parse_pixel_unit(s, v),
                 Some(PixelUnit::SurfaceBrightness {
@@ -882,19 +937,36 @@ mod tests {
                 "{s}"
             );
         }
-        for s in ["Jy/beam", "JY/BEAM", "Jy beam-1", "Jy/beam "] {
+        for s in ["Jy/beam", "JY/BEAM", "Jy beam-1", "Jy/beam ", "beam-1 Jy"] {
             assert_eq!(
                 parse_pixel_unit(s, v),
                 Some(PixelUnit::FluxPerBeam { to_si: 1e-26 }),
                 "{s}"
             );
         }
-        assert_eq!(
-            parse_pixel_unit("mJy/beam", v),
-            Some(PixelUnit::FluxPerBeam {
-                to_si: 1e-3 * JANSKY
-            })
-        );
+        for s in ["mJy/beam", "beam-1 mJy"] {
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                Some(PixelUnit::FluxPerBeam {
+                    to_si: 1e-3 * JANSKY
+                }),
+                "{s}"
+            );
+        }
+        for s in [
+            "mJy/arcsec**2",
+            "mJy/arcsec^2",
+            "mJy/arcsec2",
+            "mJy arcsec-2",
+        ] {
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                Some(PixelUnit::SurfaceBrightness {
+                    to_si: 1e-3 * JANSKY / ARCSEC2
+                }),
+                "{s}"
+            );
+        }
         assert_eq!(
             parse_pixel_unit("Jy/pixel", v),
             Some(PixelUnit::FluxPerPixel { to_si: 1e-26 })
@@ -903,7 +975,15 @@ mod tests {
             parse_pixel_unit("Jy/pix", v),
             Some(PixelUnit::FluxPerPixel { to_si: 1e-26 })
         );
-        for s in ["", "K", "counts", "furlongs", "xJy/beam"] {
+        for s in [
+            "",
+            "K",
+            "counts",
+            "furlongs",
+            "xJy/beam",
+            "beam-1 K",
+            "mJy arcsec2",
+        ] {
             assert_eq!(parse_pixel_unit(s, v), None, "{s}");
         }
         // The jansky by its name (astropy 8.0.2 reads `Jansky/beam` as Jy/beam too).
@@ -921,6 +1001,234 @@ mod tests {
         // FITS's dimensionless unit (FITS Standard 4.0 sec. 4.3.1): no unit, structure only.
         assert_eq!(parse_pixel_unit("1", v), Some(PixelUnit::Other));
         assert_eq!(parse_pixel_unit(" 1 ", v), Some(PixelUnit::Other));
+    }
+
+    /// A jansky unit written as a product with its inverse factor first, as some writers put
+    /// it (`beam-1 Jy`; FITS Standard 4.0 sec. 4.3 writes a product of factors separated by
+    /// blanks or `.`, and astropy 8.0.2 reads `beam-1 Jy` as Jy/beam), is the same unit as
+    /// with the factors the other way round, for every spelling read that way; a spelling
+    /// refused one way round is refused the other way too.
+    #[test]
+    fn reads_a_product_with_its_inverse_factor_first() {
+        let v = ExtinctionBand::V;
+        for (first, last) in [
+            ("beam-1 Jy", "Jy beam-1"),
+            ("beam-1 mJy", "mJy beam-1"),
+            ("beam-1 uJy", "uJy beam-1"),
+            ("beam-1 Jansky", "Jansky beam-1"),
+            ("beam^-1 Jy", "Jy beam^-1"),
+            ("beam**-1 Jy", "Jy beam**-1"),
+            ("beam-1.Jy", "Jy.beam-1"),
+            ("  beam-1   Jy ", "Jy/beam"),
+            ("sr-1 MJy", "MJy sr-1"),
+            ("sr-1 Jy", "Jy sr-1"),
+            ("sr-1 kJy", "kJy sr-1"),
+            ("sr-1.MJy", "MJy.sr-1"),
+            ("pixel-1 Jy", "Jy pixel-1"),
+            ("pix-1 Jy", "Jy pix-1"),
+            ("pixel-1 mJy", "mJy pixel-1"),
+            ("arcsec-2 mJy", "mJy arcsec-2"),
+        ] {
+            let unit = parse_pixel_unit(first, v);
+            assert!(unit.is_some(), "{first}");
+            assert_eq!(unit, parse_pixel_unit(last, v), "{first} / {last}");
+        }
+        // Refused the one way round, refused the other (negative powers in capitals, the
+        // steradian by name with a power, `px` with a power).
+        for (first, last) in [
+            ("BEAM-1 JY", "JY BEAM-1"),
+            ("steradian-1 MJy", "MJy steradian-1"),
+            ("px-1 Jy", "Jy px-1"),
+        ] {
+            assert_eq!(parse_pixel_unit(first, v), None, "{first}");
+            assert_eq!(parse_pixel_unit(last, v), None, "{last}");
+        }
+        let per_beam = |to_si: f64| Some(PixelUnit::FluxPerBeam { to_si });
+        assert_eq!(parse_pixel_unit("beam-1 Jy", v), per_beam(JANSKY));
+        assert_eq!(parse_pixel_unit("beam-1 mJy", v), per_beam(1e-3 * JANSKY));
+        assert_eq!(
+            parse_pixel_unit("sr-1 MJy", v),
+            Some(PixelUnit::SurfaceBrightness {
+                to_si: 1e6 * JANSKY
+            })
+        );
+        assert_eq!(
+            parse_pixel_unit("pixel-1 Jy", v),
+            Some(PixelUnit::FluxPerPixel { to_si: JANSKY })
+        );
+        assert_eq!(
+            parse_unit_option("beam-1 Jy", v),
+            Some((PixelUnit::FluxPerBeam { to_si: JANSKY }, "beam-1 Jy".into()))
+        );
+        // Only a unit the other way round: not three factors, an inverse alone, an inverse of
+        // the jansky, a denominator written with '/', a power other than -1 (or -2 for the
+        // square arcsecond), or a unit cairn does not convert.
+        for s in [
+            "beam-1",
+            "beam-1 beam-1",
+            "beam-1 Jy beam-1",
+            "sr-1 Jy beam-1",
+            "beam-1 sr-1 Jy",
+            "beam-1 K",
+            "beam-1 Jy-1",
+            "Jy-1 beam",
+            "/beam Jy",
+            "1/beam Jy",
+            "sr-1 Jy/beam",
+            "beam-2 Jy",
+            "sr-2 MJy",
+            "beam-1 xJy",
+            "kg-1 Jy",
+            "s-1 K",
+            "cm-2 Jy",
+            "Jy beam",
+            "beam Jy",
+        ] {
+            assert_eq!(parse_pixel_unit(s, v), None, "{s}");
+            assert_eq!(parse_unit_option(s, v), None, "{s}");
+        }
+        // A one-case unit is noted whichever factor comes first, naming it as written.
+        let n = prefix_case_note("sr-1 mjy").unwrap();
+        assert!(
+            n.contains("BUNIT 'sr-1 mjy'") && n.contains("read as mJy/sr"),
+            "{n}"
+        );
+        assert_eq!(prefix_case_note("beam-1 mjy"), None);
+        assert_eq!(prefix_case_note("sr-1 MJy"), None);
+    }
+
+    /// A surface brightness per square arcsecond (`mJy/arcsec**2`) in each FITS spelling of
+    /// the power (FITS Standard 4.0 sec. 4.3: `**`, `^`, a bare digit, a negative power as a
+    /// factor) is a surface brightness whose factor to SI is its prefix times the jansky over
+    /// the square arcsecond in steradians.
+    #[test]
+    fn reads_a_surface_brightness_per_square_arcsecond() {
+        let v = ExtinctionBand::V;
+        let per_arcsec2 = |to_si: f64| Some(PixelUnit::SurfaceBrightness { to_si });
+        for s in [
+            "mJy/arcsec**2",
+            "mJy/arcsec^2",
+            "mJy/arcsec2",
+            "mJy arcsec-2",
+            "mJy arcsec^-2",
+            "mJy arcsec**-2",
+            "mJy.arcsec-2",
+            "arcsec-2 mJy",
+            "arcsec-2.mJy",
+            "mJy/arcsec**2 ",
+        ] {
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                per_arcsec2(1e-3 * JANSKY / ARCSEC2),
+                "{s}"
+            );
+            assert_eq!(
+                parse_unit_option(s, v).map(|(u, _)| u),
+                per_arcsec2(1e-3 * JANSKY / ARCSEC2),
+                "{s}"
+            );
+        }
+        for (s, prefix) in [
+            ("Jy/arcsec2", 1.0),
+            ("Jy arcsec-2", 1.0),
+            ("uJy/arcsec**2", 1e-6),
+            ("uJy arcsec-2", 1e-6),
+            ("µJy/arcsec2", 1e-6),
+            ("kJy/arcsec2", 1e3),
+        ] {
+            assert_eq!(
+                parse_pixel_unit(s, v),
+                per_arcsec2(prefix * JANSKY / ARCSEC2),
+                "{s}"
+            );
+        }
+        // The arcsecond is pi/648000 rad (BIPM SI Brochure, 8th edition 2006, Table 6).
+        assert!((ARCSEC / (std::f64::consts::PI / 648000.0) - 1.0).abs() <= f64::EPSILON);
+        // 1 mJy/arcsec2 in SI and in MJy/sr: astropy 8.0.2 `(u.mJy / u.arcsec**2).si.scale`
+        // gives 4.2545170296152204e-19 and `.to(u.MJy / u.sr)` 42.5451702961522; by hand,
+        // 1e-3 (648000/pi)^2 / 1e6 = 42.54517029615221.
+        let mjy_arcsec2 = parse_pixel_unit("mJy/arcsec**2", v)
+            .unwrap()
+            .to_si()
+            .unwrap();
+        let mjy_sr = parse_pixel_unit("MJy/sr", v).unwrap().to_si().unwrap();
+        assert!((mjy_arcsec2 / 4.2545170296152204e-19 - 1.0).abs() < 1e-15);
+        assert!((mjy_arcsec2 / mjy_sr / 42.54517029615221 - 1.0).abs() < 1e-15);
+        // Not a surface brightness per square arcsecond: a product with the square arcsecond,
+        // a power other than 2, another angle, the power on the jansky, or no jansky.
+        for s in [
+            "mJy arcsec2",
+            "mJy arcsec**2",
+            "arcsec2 mJy",
+            "mJy/arcsec-2",
+            "mJy/arcsec",
+            "mJy arcsec-1",
+            "arcsec-1 mJy",
+            "mJy/arcsec3",
+            "mJy/arcsec**3",
+            "mJy/arcmin2",
+            "mJy/deg2",
+            "mJy2/arcsec2",
+            "arcsec-2",
+            "K arcsec-2",
+            "mJy/arcsec2/beam",
+            "xJy/arcsec2",
+        ] {
+            assert_eq!(parse_pixel_unit(s, v), None, "{s}");
+            assert_eq!(parse_unit_option(s, v), None, "{s}");
+        }
+        // In one case: mega when all upper case, which goes against the usual milli, so noted.
+        assert_eq!(
+            parse_pixel_unit("MJY/ARCSEC2", v),
+            per_arcsec2(1e6 * JANSKY / ARCSEC2)
+        );
+        let n = prefix_case_note("MJY/ARCSEC**2").unwrap();
+        assert!(
+            n.contains("read as MJy/arcsec2") && n.contains("--unit mJy/arcsec2"),
+            "{n}"
+        );
+        assert_eq!(prefix_case_note("mjy/arcsec2"), None);
+        assert_eq!(prefix_case_note("mJy/arcsec2"), None);
+    }
+
+    /// Levels typed per square arcsecond: in the map's own unit, the decimal typed; on a map in
+    /// MJy/sr, converted by the same factor as the map's unit (and the reverse).
+    #[test]
+    fn levels_per_square_arcsecond_convert_to_and_from_mjy_per_sr() {
+        let v = ExtinctionBand::V;
+        let per_arcsec2 = parse_pixel_unit("mJy/arcsec2", v);
+        let per_sr = parse_pixel_unit("MJy/sr", v);
+        for text in ["0.5mJy/arcsec2", "0.5mJy/arcsec**2", "0.5mJy arcsec-2"] {
+            assert_eq!(parse_map_value(text, per_arcsec2, "--floor"), Ok(0.5));
+            let got = parse_map_value(text, per_sr, "--floor").unwrap();
+            assert!(
+                (got / (0.5 * 42.54517029615221) - 1.0).abs() < 1e-15,
+                "{got}"
+            );
+        }
+        assert_eq!(
+            parse_map_value("2e3uJy/arcsec2", per_arcsec2, "--noise"),
+            Ok(2.0)
+        );
+        assert_eq!(
+            parse_map_value("2e-3Jy/arcsec2", per_arcsec2, "--noise"),
+            Ok(2.0)
+        );
+        let got = parse_map_value("42.54517029615221MJy/sr", per_arcsec2, "--floor").unwrap();
+        assert!((got - 1.0).abs() < 1e-15, "{got}");
+        assert!(
+            parse_map_value(
+                "0.5mJy/arcsec2",
+                Some(PixelUnit::ColumnDensity { to_si: 1e4 }),
+                "--floor"
+            )
+            .is_err()
+        );
+        assert!(
+            parse_quantity("0.5mJy/arcsec3", &[SurfaceBrightness], "--floor")
+                .unwrap_err()
+                .contains("not understood")
+        );
     }
 
     /// Every spelling cairn reads is written in the outputs as the canonical unit of its kind,
@@ -959,6 +1267,17 @@ mod tests {
             ("uJy/beam", "uJy/beam"),
             ("Jy/pixel", "Jy/pixel"),
             ("Jy/pix", "Jy/pixel"),
+            ("beam-1 Jy", "Jy/beam"),
+            ("beam-1 mJy", "mJy/beam"),
+            ("sr-1 MJy", "MJy/sr"),
+            ("pixel-1 Jy", "Jy/pixel"),
+            ("mJy/arcsec**2", "mJy/arcsec2"),
+            ("mJy/arcsec^2", "mJy/arcsec2"),
+            ("mJy arcsec-2", "mJy/arcsec2"),
+            ("arcsec-2 mJy", "mJy/arcsec2"),
+            ("Jy/arcsec2", "Jy/arcsec2"),
+            ("uJy/arcsec2", "uJy/arcsec2"),
+            ("MJY/ARCSEC2", "MJy/arcsec2"),
             ("1", ""),
         ];
         for band in [ExtinctionBand::V, ExtinctionBand::K] {

@@ -537,7 +537,7 @@ fn a_column_density_or_brightness_cairn_cannot_read_is_refused() {
     for (i, bunit) in [
         "1e21 cm-2",
         "H2/cm2",
-        "mJy/arcsec2",
+        "mJy/arcmin2",
         "W m-2 sr-1",
         "MJy/str",
     ]
@@ -744,4 +744,110 @@ fn the_jansky_by_name_is_read_as_jy() {
     assert!(outs[0].contains_key("mass"));
     assert_eq!(outs[0], outs[1]);
     assert_eq!(outs[0], outs[2]);
+}
+
+/// A unit written as a product with its inverse factor first, `beam-1 Jy` (as some writers put
+/// it; FITS Standard 4.0 sec. 4.3 writes a product of factors separated by blanks or `.`, and
+/// astropy 8.0.2 reads `beam-1 Jy` as Jy/beam), is the flux density per beam of `Jy/beam`,
+/// in the header and in `--unit`: the same catalogue to the last digit, masses included, in
+/// the unit written `Jy/beam`, with the header's spelling as `bunit`; so `beam-1 mJy` is
+/// `mJy/beam` and `sr-1 MJy` is `MJy/sr`.
+#[test]
+fn a_unit_with_its_inverse_factor_first_is_read_as_the_other_way_round() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let base = cairn::map::load(&dir.join("s/synth.fits"), &Default::default()).unwrap();
+    let mut outs = BTreeMap::new();
+    for (i, (unit, read)) in [
+        ("Jy/beam", "Jy/beam"),
+        ("beam-1 Jy", "Jy/beam"),
+        ("beam-1.Jy", "Jy/beam"),
+        ("mJy/beam", "mJy/beam"),
+        ("beam-1 mJy", "mJy/beam"),
+        ("MJy/sr", "MJy/sr"),
+        ("sr-1 MJy", "MJy/sr"),
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let mut h = base.header.clone();
+        h.set("BUNIT", cairn::header::Value::Str(unit.into()), "");
+        let name = format!("m{i}.fits");
+        cairn::fits_write::write_image_f32(&dir.join(&name), base.data.view(), &h, false).unwrap();
+        let out = format!("r{i}");
+        let o = segment(dir, &name, &out, &["--wavelength", "850um", "-q"]);
+        assert_eq!(o.code, 0, "{unit}: {}", o.stderr);
+        assert!(!o.stderr.contains("warning"), "{unit}: {}", o.stderr);
+        let csv = std::fs::read_to_string(dir.join(&out).join("structures.csv")).unwrap();
+        assert!(csv.contains(&format!("# column peak [{read}]:")), "{unit}");
+        assert!(
+            csv.contains(&format!("# parameter bunit = {unit}  (")),
+            "{unit}"
+        );
+        let cols = catalogue_columns(&dir.join(&out).join("structures.csv"));
+        assert!(cols.contains_key("mass"), "{unit}");
+        match outs.get(read) {
+            None => {
+                outs.insert(read, cols);
+            }
+            Some(first) => assert_eq!(&cols, first, "{unit} against {read}"),
+        }
+    }
+    // `--unit` reads it too, as the header's own unit respelled (no warning of a change).
+    let o = segment(
+        dir,
+        "m0.fits",
+        "opt",
+        &["--wavelength", "850um", "-q", "--unit", "beam-1 Jy"],
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("warning"), "{}", o.stderr);
+    assert_eq!(
+        catalogue_columns(&dir.join("opt/structures.csv")),
+        outs["Jy/beam"]
+    );
+}
+
+/// `--unit mJy/arcsec2` (and `mJy/arcsec**2`, `mJy arcsec-2`) is a surface brightness per
+/// square arcsecond: `inspect` reads it and says by how much it changes the header's MJy/sr,
+/// 42.54517029615221 times larger (1e-3 (648000/pi)^2 / 1e6, computed by hand from the
+/// arcsecond's definition, pi/648000 rad, BIPM SI Brochure, 8th edition 2006, Table 6;
+/// astropy 8.0.2's `(u.mJy / u.arcsec**2).to(u.MJy / u.sr)` gives 42.5451702961522), and a
+/// misspelt square arcsecond is refused.
+#[test]
+fn the_unit_option_reads_a_surface_brightness_per_square_arcsecond() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let base = cairn::map::load(&dir.join("s/synth.fits"), &Default::default()).unwrap();
+    let mut h = base.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("MJy/sr".into()), "");
+    cairn::fits_write::write_image_f32(&dir.join("sr.fits"), base.data.view(), &h, false).unwrap();
+    for unit in [
+        "mJy/arcsec2",
+        "mJy/arcsec**2",
+        "mJy arcsec-2",
+        "arcsec-2 mJy",
+    ] {
+        let o = cairn(&["inspect", "sr.fits", "--json", "--unit", unit], dir);
+        assert_eq!(o.code, 0, "{unit}: {}", o.stderr);
+        let j: serde_json::Value = serde_json::from_str(&o.stdout).unwrap();
+        assert_eq!(j["unit"], unit);
+        assert_eq!(j["unit_kind"], "surface brightness");
+        assert_eq!(j["unit_source"], "option");
+        let w = j["warnings"].to_string();
+        assert!(
+            w.contains(&format!(
+                "--unit '{unit}' replaces the header's BUNIT 'MJy/sr': every value is read as 42.5451702962 times larger"
+            )),
+            "{unit}: {w}"
+        );
+    }
+    for unit in ["mJy/arcsec", "mJy arcsec2", "mJy/arcsec3"] {
+        let args = ["inspect", "sr.fits", "--unit", unit];
+        let o = cairn(&args, dir);
+        check_refused(&o, &args, "--unit", "is not understood");
+        assert!(o.stderr.contains("mJy/arcsec2"), "{}", o.stderr);
+    }
 }

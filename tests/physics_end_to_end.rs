@@ -182,3 +182,75 @@ fn masses_from_column_density_emission_and_extinction_maps() {
         );
     }
 }
+
+/// A map in mJy per square arcsecond (BUNIT 'mJy/arcsec**2') holds the same sky as one in
+/// MJy/sr with its values divided by 42.54517029615221, the MJy/sr in 1 mJy/arcsec2:
+/// 1e-3 Jy / (pi/648000 rad)^2 = 1e-3 (648000/pi)^2 Jy/sr, computed by hand from the
+/// arcsecond's definition (BIPM SI Brochure, 8th edition 2006, Table 6); astropy 8.0.2's
+/// `(u.mJy / u.arcsec**2).to(u.MJy / u.sr)` gives 42.5451702961522. The two maps give the
+/// same leaves, and the same masses to the rounding of a pixel to 32 bits (each pixel of the
+/// second map is the nearest 32-bit float to the first's divided by the factor, so each
+/// pixel's mass, and so each sum of positive pixels, is within half a unit in the last place
+/// of a 32-bit float of the first's).
+#[test]
+fn masses_from_a_map_per_square_arcsecond_equal_those_per_steradian() {
+    const MJY_SR_PER_MJY_ARCSEC2: f64 = 42.54517029615221;
+    let dir = tempfile::tempdir().unwrap();
+    let opacity = cairn::physics::DustOpacity::default();
+    let nu = cairn::physics::constants::C / 850e-6;
+    let per_column = cairn::physics::intensity_from_column(1.0e4, nu, 15.0, &opacity) / 1e-20; // MJy/sr per cm^-2
+    let noise = 1.0e20 * per_column;
+    let em_out = Output::DustEmission {
+        wavelength_um: 850.0,
+        temperature_k: 15.0,
+        unit: EmissionUnit::MJyPerSr,
+        opacity,
+    };
+    let em = synth::generate(&spec(em_out, noise)).unwrap();
+    assert_eq!(em.header.get_str("BUNIT"), Some("MJy/sr"));
+    let per_sr = run(dir.path(), "per_sr", &em.data, &em.header, noise);
+
+    let data = em.data.mapv(|v| (v as f64 / MJY_SR_PER_MJY_ARCSEC2) as f32);
+    let mut h = em.header.clone();
+    h.set(
+        "BUNIT",
+        cairn::header::Value::Str("mJy/arcsec**2".into()),
+        "",
+    );
+    let per_arcsec2 = run(
+        dir.path(),
+        "per_arcsec2",
+        &data,
+        &h,
+        noise / MJY_SR_PER_MJY_ARCSEC2,
+    );
+    let text = std::fs::read_to_string(dir.path().join("per_arcsec2/structures.csv")).unwrap();
+    assert!(
+        text.contains("# parameter unit = mJy/arcsec2  ("),
+        "unit read"
+    );
+    assert!(
+        text.contains("# parameter bunit = mJy/arcsec**2  ("),
+        "BUNIT as written"
+    );
+
+    assert!(per_sr.len() >= 10, "{}", per_sr.len());
+    assert_eq!(per_arcsec2.len(), per_sr.len());
+    let mut worst: f64 = 0.0;
+    for (a, s) in per_arcsec2.iter().zip(&per_sr) {
+        assert_eq!((a.0, a.1), (s.0, s.1), "same leaves");
+        assert!(s.2 > 0.0, "a mass: {}", s.2);
+        let rel = (a.2 / s.2 - 1.0).abs();
+        worst = worst.max(rel);
+        assert!(
+            rel <= f32::EPSILON as f64 / 2.0 + 1e-14,
+            "mJy/arcsec2 mass {} vs MJy/sr mass {}",
+            a.2,
+            s.2
+        );
+    }
+    eprintln!(
+        "{} leaves, worst relative difference in mass {worst:.2e}",
+        per_sr.len()
+    );
+}

@@ -657,6 +657,11 @@ fn catalogue_units_of_every_spelling_of_the_map_unit_parse_as_fits_and_vo_units(
         ("1/cm2", "cm-2"),
         ("Jansky/beam", "Jy/beam"),
         ("1", ""),
+        ("beam-1 Jy", "Jy/beam"),
+        ("beam-1 mJy", "mJy/beam"),
+        ("sr-1 MJy", "MJy/sr"),
+        ("mJy/arcsec**2", "mJy/arcsec2"),
+        ("mJy arcsec-2", "mJy/arcsec2"),
     ] {
         assert_eq!(stored[bunit]["unit"], unit, "{bunit}");
     }

@@ -41,10 +41,11 @@ pub mod catalogue_files;
 
 /// Spellings of map units (BUNIT) that cairn reads, for the check of the units its catalogues
 /// write (`fixtures/segment/unit_spellings.json`, which tests/oracle/segment_skimage.py reads
-/// with astropy): the canonical ones, others in use for the same units, FITS's dimensionless
-/// `1`, and a unit cairn does not convert (`K km/s`).
+/// with astropy): the canonical ones, others in use for the same units (products with their
+/// inverse factor first among them), FITS's dimensionless `1`, and a unit cairn does not
+/// convert (`K km/s`).
 #[allow(dead_code)]
-pub const UNIT_SPELLINGS: [&str; 31] = [
+pub const UNIT_SPELLINGS: [&str; 38] = [
     "cm-2",
     "CM-2",
     "1/cm2",
@@ -62,18 +63,25 @@ pub const UNIT_SPELLINGS: [&str; 31] = [
     "MJy/steradian",
     "MJy.sr-1",
     "MJy sr-1",
+    "sr-1 MJy",
     "Jy/sr",
+    "mJy/arcsec**2",
+    "mJy arcsec-2",
+    "arcsec-2 mJy",
     "Jy/beam",
     "JY/BEAM",
     "Jy/Beam",
     "jy/beam",
     "Jansky/beam",
     "JANSKY/BEAM",
+    "beam-1 Jy",
     "mJy/beam",
+    "beam-1 mJy",
     "MJY/BEAM",
     "uJy/beam",
     "Jy/pixel",
     "Jy/pix",
+    "pixel-1 Jy",
     "1",
     "K km/s",
 ];
