@@ -703,3 +703,51 @@ fn beams_on_unequal_pixels_and_galactic_centres_read_right() {
     );
     assert_eq!(centre.matches("71.5").count(), 1, "{centre}");
 }
+
+/// Frequency keywords that disagree (a line's rest frequency beside the continuum's) are said,
+/// naming the one taken (RESTFRQ, the first of RESTFRQ, RESTFREQ, FREQ and OBSFREQ, as
+/// cairn reads them); one keyword alone, or two that agree, are read without a word.
+#[test]
+fn disagreeing_frequency_keywords_are_said() {
+    let dir = tempfile::tempdir().unwrap();
+    let (nx, ny) = (40, 30);
+    let cases: [(&str, &[&str], bool); 3] = [
+        ("one.fits", &["RESTFRQ =          2.305380E11"], false),
+        (
+            "agree.fits",
+            &[
+                "RESTFRQ =          2.305380E11",
+                "OBSFREQ =          2.305380E11",
+            ],
+            false,
+        ),
+        (
+            "differ.fits",
+            &[
+                "RESTFRQ =          2.305380E11",
+                "OBSFREQ =             3.45E11",
+            ],
+            true,
+        ),
+    ];
+    for (name, extra, warned) in cases {
+        let cards = sky_cards(nx, ny, Some((6.0 / 3600.0, 6.0 / 3600.0)), extra);
+        let path = write_map(dir.path(), name, nx, ny, &cards);
+        let s = inspect_json(dir.path(), &path, &[]);
+        // c / 230.538 GHz = 1300.4 um (c = 299792458 m/s, SI definition).
+        let um = num(&s["wavelength"]["wavelength_um"]);
+        assert!((um - 1300.4046).abs() < 1e-3, "{name}: {um}");
+        let said: Vec<String> = warnings(&s)
+            .into_iter()
+            .filter(|w| w.contains("cairn takes RESTFRQ"))
+            .collect();
+        assert_eq!(said.len(), warned as usize, "{name}: {said:?}");
+        if warned {
+            assert!(
+                said[0].contains("RESTFRQ = 230.538 GHz and OBSFREQ = 345 GHz"),
+                "{}",
+                said[0]
+            );
+        }
+    }
+}
