@@ -1,7 +1,8 @@
 //! Sky angles for people: sexagesimal hours and degrees and angular sizes, written and read.
 //!
 //! Owns the text forms of coordinates shown in summaries and on figure axes, and reading
-//! coordinates typed in either form (`152.8125` or `10h11m15s`; `+11.406` or `+11d24m22.5s`).
+//! coordinates typed in either form (`152.8125`, `10h11m15s` or `10:11:15`; `+11.406`,
+//! `+11d24m22.5s` or `+11:24:22.5`).
 //! Rounding is carried through the fields (59.9995 s becomes 00 s of the next minute), as is
 //! common practice; an hour of right ascension is 15 degrees.
 
@@ -44,19 +45,28 @@ pub fn format_angle(deg: f64) -> String {
 }
 
 /// Reads a longitude typed in degrees (`152.8125`) or sexagesimally, in hours (`10h11m15s`,
-/// `10h11m15.25s`, `10h11.25m`; only where `hours` allows, the longitude of an equatorial
-/// frame) or degrees (`152d48m45s`), as degrees; `None` if not understood. The letters name
-/// the fields, in the order hours or degrees, minutes, seconds, none left out before the last
-/// (`10h11s` is not read); minutes and seconds lie below 60, and only the last field may have
-/// decimals.
+/// `10h11m15.25s`, `10h11.25m`, or with colons `10:11:15`, `10:11.25`; only where `hours`
+/// allows, the longitude of an equatorial frame) or degrees (`152d48m45s`), as degrees; `None`
+/// if not understood. The letters name the fields, in the order hours or degrees, minutes,
+/// seconds, none left out before the last (`10h11s` is not read); minutes and seconds lie
+/// below 60, and only the last field may have decimals. Colons separate hours, minutes and
+/// seconds, as right ascensions are written in catalogues (common practice); a longitude in
+/// degrees is never written with colons here, so where `hours` is false they are refused.
 pub fn parse_longitude(text: &str, hours: bool) -> Option<f64> {
-    parse_angle(text, hours)
+    parse_angle(text, hours, hours.then_some('h'))
 }
 
 /// Reads a latitude typed in degrees (`-31.625`) or sexagesimal degrees (`-31d37m30s`,
-/// `+11d24m22.5s`), as degrees; `None` if not understood.
+/// `+11d24m22.5s`, or with colons `-31:37:30`, `+11:24:22.5`), as degrees; `None` if not
+/// understood.
 pub fn parse_latitude(text: &str) -> Option<f64> {
-    parse_angle(text, false)
+    parse_angle(text, false, Some('d'))
+}
+
+/// Whether `text` is written with colons between its fields (`10:11:15`), which
+/// [`parse_longitude`] reads as hours.
+pub fn has_colons(text: &str) -> bool {
+    text.contains(':')
 }
 
 /// Whether `text` is a plain number (degrees, or pixels where the context says so) rather
@@ -65,7 +75,10 @@ pub fn is_plain_number(text: &str) -> bool {
     text.trim().parse::<f64>().is_ok()
 }
 
-fn parse_angle(text: &str, hours_allowed: bool) -> Option<f64> {
+/// Reads an angle in degrees, or sexagesimal with letters (hours only where `hours_allowed`)
+/// or with colons, whose first field is in `colon_unit` ('h' or 'd'; colons refused if
+/// `None`).
+fn parse_angle(text: &str, hours_allowed: bool, colon_unit: Option<char>) -> Option<f64> {
     let t = text.trim();
     if let Ok(v) = t.parse::<f64>() {
         return v.is_finite().then_some(v);
@@ -75,9 +88,32 @@ fn parse_angle(text: &str, hours_allowed: bool) -> Option<f64> {
         b'+' => (1.0, &t[1..]),
         _ => (1.0, t),
     };
-    // Fields: a number and its letter each, in the order (h|d), m, s.
+    // Fields: a number and its letter each, in the order (h|d), m, s; with colons, the
+    // letters are implied by the position (two or three fields).
     let mut fields: Vec<(f64, char, bool)> = Vec::new();
-    let mut rest = body.trim_start();
+    if body.contains(':') {
+        let unit = colon_unit?;
+        let parts: Vec<&str> = body.split(':').collect();
+        if !(2..=3).contains(&parts.len()) {
+            return None;
+        }
+        for (part, letter) in parts.iter().zip([unit, 'm', 's']) {
+            let num = part.trim();
+            if num.is_empty()
+                || !num.chars().all(|c| c.is_ascii_digit() || c == '.')
+                || num.matches('.').count() > 1
+                || num.starts_with('.')
+            {
+                return None;
+            }
+            fields.push((num.parse().ok()?, letter, num.contains('.')));
+        }
+    }
+    let mut rest = if fields.is_empty() {
+        body.trim_start()
+    } else {
+        ""
+    };
     while !rest.is_empty() {
         let end = rest
             .find(|c: char| !(c.is_ascii_digit() || c == '.'))
@@ -193,5 +229,63 @@ mod tests {
         assert!(parse_longitude_h("10h11s").is_none());
         assert!(parse_latitude(&format!("1{}d", "0".repeat(400))).is_none());
         assert!(is_plain_number("152.8") && !is_plain_number("10h11m"));
+    }
+
+    /// Colons separate the same fields as the letters: hours, minutes, seconds for a
+    /// longitude where hours are allowed (a right ascension), degrees, minutes, seconds for a
+    /// latitude; each colon form reads to the value of its letter form.
+    #[test]
+    fn colon_sexagesimal_reads_as_its_letter_form() {
+        for (colons, letters) in [
+            ("10:11:15", "10h11m15s"),
+            ("10:11:15.25", "10h11m15.25s"),
+            ("10:11.25", "10h11.25m"),
+            (" 10:11:15 ", "10h11m15s"),
+            ("00:00:00", "0h"),
+        ] {
+            assert_eq!(
+                parse_longitude_h(colons),
+                parse_longitude_h(letters),
+                "{colons}"
+            );
+            assert!(parse_longitude_h(colons).is_some(), "{colons}");
+        }
+        for (colons, letters) in [
+            ("+11:24:22.5", "+11d24m22.5s"),
+            ("-31:37:30", "-31d37m30s"),
+            ("-00:30", "-0d30m"),
+            ("11:24", "11d24m"),
+        ] {
+            assert_eq!(parse_latitude(colons), parse_latitude(letters), "{colons}");
+            assert!(parse_latitude(colons).is_some(), "{colons}");
+        }
+        // Refused: colons on a longitude in degrees (hours not allowed), signed hours, one
+        // field or more than three, ranges, decimals before the last field, letters mixed in,
+        // empty fields.
+        assert!(parse_longitude("152:48:45", false).is_none());
+        for bad in [
+            "-10:11:15",
+            "+10:11:15",
+            "10:",
+            ":11",
+            "10:11:15:1",
+            "24:00:00",
+            "10:60:00",
+            "10:11:60",
+            "10.5:11",
+            "10:11.5:15",
+            "10h:11m",
+            "10::15",
+            "1e1:11",
+        ] {
+            assert!(
+                parse_longitude_h(bad).is_none(),
+                "{bad:?} should be refused"
+            );
+        }
+        for bad in ["11:60", "-11:24:60", "11:24:22.5:1", "11:-24"] {
+            assert!(parse_latitude(bad).is_none(), "{bad:?} should be refused");
+        }
+        assert!(has_colons("10:11") && !has_colons("10h11m"));
     }
 }

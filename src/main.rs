@@ -180,8 +180,9 @@ struct SynthArgs {
         allow_hyphen_values = true
     )]
     pixel: Option<String>,
-    /// Map centre as `lon,lat` in degrees or sexagesimal, such as 13h25m30s,-31d37m30s
-    /// (invented positions) [default: 201.375,-31.625].
+    /// Map centre as `lon,lat` in degrees or sexagesimal, such as 13h25m30s,-31d37m30s or
+    /// 13:25:30,-31:37:30 (colons are hours for a right ascension; invented positions)
+    /// [default: 201.375,-31.625].
     #[arg(
         conflicts_with = "into",
         long,
@@ -1152,7 +1153,7 @@ fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec
     if let Some(c) = &a.centre {
         let bad = || {
             Error::usage(format!(
-                "--centre '{c}' is not understood: give lon,lat in degrees, such as 201.375,-31.625, or sexagesimally, such as 13h25m30s,-31d37m30s (a longitude in hours on an equatorial frame only)."
+                "--centre '{c}' is not understood: give lon,lat in degrees, such as 201.375,-31.625, or sexagesimally, such as 13h25m30s,-31d37m30s or 13:25:30,-31:37:30 (a longitude in hours, with letters or colons, on an equatorial frame only)."
             ))
         };
         let (lon, lat) = c.split_once(',').ok_or_else(bad)?;
