@@ -25,10 +25,7 @@ impl SkyAxes for Wcs {
         Wcs::sky_to_pixel(self, lon, lat)
     }
     fn equatorial(&self) -> bool {
-        matches!(
-            self.frame(),
-            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
-        )
+        is_equatorial(self.frame())
     }
     fn pixel_scale_deg(&self) -> f64 {
         // At the reference of the figure: the geometric mean of the two axes at the centre of
@@ -436,27 +433,151 @@ pub fn scale_bar(
     Some((len / pc_per_px, format!("{len} pc")))
 }
 
-/// A `--region` given as `X,Y,SIZE`: a pixel centre and a size in pixels (256,192,100px), or a
-/// sky centre in degrees in the map's own frame and an angular size (152.81,11.40,5arcmin),
-/// square on the sky (each side in pixels of that axis's own length at the centre, so on
-/// pixels of unequal sides the box has unequal sides in pixels). Gives (x0, y0, width,
-/// height) in pixels, clipped to the map, and, for a region reaching past the map's edge, a
-/// sentence saying what part of it is drawn.
-pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<String>)> {
+/// The frames a `--region` centre may name before it (`icrs:`, `fk5:` for FK5 at equinox
+/// J2000, `galactic:` or `gal:`), the frame names of `synth --frame`; the centre is converted
+/// from there to the map's frame ([`crate::wcs::convert_frame`]).
+fn region_frame(name: &str) -> Option<SkyFrame> {
+    match name.trim().to_ascii_lowercase().as_str() {
+        "icrs" => Some(SkyFrame::Icrs),
+        "fk5" => Some(SkyFrame::Fk5 { equinox: 2000.0 }),
+        "galactic" | "gal" => Some(SkyFrame::Galactic),
+        _ => None,
+    }
+}
+
+/// A frame's name in sentences: ICRS, FK5 J2000, FK4 B1950, galactic, ecliptic, or the
+/// CTYPE pair of any other.
+fn frame_name(frame: &SkyFrame) -> String {
+    match frame {
+        SkyFrame::Icrs => "ICRS".into(),
+        SkyFrame::Fk5 { equinox } => format!("FK5 J{equinox}"),
+        SkyFrame::Fk4 { equinox } => format!("FK4 B{equinox}"),
+        SkyFrame::Galactic => "galactic".into(),
+        SkyFrame::Ecliptic => "ecliptic".into(),
+        SkyFrame::Other(s) => s.clone(),
+    }
+}
+
+/// The map frame's coordinates in sentences (equatorial RA,Dec; galactic l,b).
+fn frame_coordinates(frame: &SkyFrame) -> &'static str {
+    match frame {
+        SkyFrame::Galactic => "galactic l,b",
+        SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. } => "equatorial RA,Dec",
+        _ => "its own longitude,latitude",
+    }
+}
+
+/// Whether a frame's longitude is a right ascension (ICRS, FK5, FK4).
+fn is_equatorial(frame: &SkyFrame) -> bool {
+    matches!(
+        frame,
+        SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
+    )
+}
+
+/// Whether pixel (x, y) lies on the map (inside its outer pixel edges).
+fn on_map(map: &Map, x: f64, y: f64) -> bool {
+    x > -0.5 && y > -0.5 && x < map.nx() as f64 - 0.5 && y < map.ny() as f64 - 0.5
+}
+
+/// A `--region` size for an angle in degrees, to three significant digits: in arcsec below
+/// 2', in arcmin below 2 deg (`180"` is `3arcmin`, `119.99"` is `2arcmin`).
+fn angle_size_text(deg: f64) -> String {
+    // Below 119.95 (which three digits would write as 120) in the smaller unit.
+    let (v, unit) = if deg * 3600.0 < 119.95 {
+        (deg * 3600.0, "arcsec")
+    } else if deg * 60.0 < 119.95 {
+        (deg * 60.0, "arcmin")
+    } else {
+        (deg, "deg")
+    };
+    let decimals = (2 - v.log10().floor() as i32).max(0) as usize;
+    let mut s = format!("{v:.decimals$}");
+    if s.contains('.') {
+        s = s.trim_end_matches('0').trim_end_matches('.').to_string();
+    }
+    format!("{s}{unit}")
+}
+
+/// What a `--region` asks for, before it is fitted to the map ([`region_asked`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct RegionAsked {
+    /// The centre in pixels (zero-based), as given or placed from the sky.
+    pub centre: (f64, f64),
+    /// The sides in pixels along x and y, before rounding.
+    pub size: (f64, f64),
+    /// A warning for the user: a pixel centre whose two numbers are also, in degrees, a sky
+    /// position on the map.
+    pub note: Option<String>,
+}
+
+/// Reads a `--region` given as `[FRAME:]X,Y,SIZE`. The size's unit and the centre go
+/// together:
+///
+/// * a pixel centre (two plain numbers, zero-based) with a size in pixels (256,192,100px; a
+///   size without a unit is in pixels too); the centre must lie on the map, and one off the
+///   map whose numbers in degrees are a sky position on it is refused with a sentence saying
+///   that the centre is read as pixels because of the size's unit, and the angular size to
+///   give instead;
+/// * a sky centre with an angular size (152.81,11.40,5arcmin), square on the sky (each side
+///   in pixels of that axis's own length at the centre, so on pixels of unequal sides the box
+///   has unequal sides in pixels). The centre is in degrees or sexagesimal: with letters
+///   (10h11m15s,+11d24m22.5s, or 152d48m45s) or with colons (10:11:15,+11:24:22.5), whose
+///   longitude is in hours (only for a right ascension) and latitude in degrees. It is in the
+///   map's own frame unless a frame is named first, `icrs:`, `fk5:` (equinox J2000) or
+///   `galactic:` (`gal:`), from which it is converted to the map's frame; it must fall on the
+///   map. A sky centre with a size in pixels is refused.
+pub fn region_asked(text: &str, map: &Map) -> Result<RegionAsked> {
     let bad = || {
         Error::usage(format!(
-            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px, 152.81,11.40,5arcmin or 10h11m15s,+11d24m,5arcmin (a longitude in hours on an equatorial frame only)."
+            "--region '{text}' is not understood: give X,Y,SIZE such as 256,192,100px (pixels), 152.81,11.40,5arcmin, 10h11m15s,+11d24m,5arcmin or 10:11:15,+11:24:00,5arcmin (the sky in the map's frame, the longitude in hours for a right ascension only), or a frame first, such as galactic:231.5,-4.25,5arcmin."
         ))
     };
-    let parts: Vec<&str> = text.split(',').collect();
+    // A frame named first: a word before the first colon (a sexagesimal field never starts
+    // with a letter).
+    let (given, body) = match text.split_once(':') {
+        Some((name, rest))
+            if name.trim().starts_with(|c: char| c.is_ascii_alphabetic())
+                && name.trim().chars().all(|c| c.is_ascii_alphanumeric()) =>
+        {
+            let frame = region_frame(name).ok_or_else(|| {
+                Error::usage(format!(
+                    "--region '{text}' names a frame '{}' that is not understood: give icrs, fk5 (J2000) or galactic before the centre, such as icrs:152.81,11.40,5arcmin, or no frame for the map's own.",
+                    name.trim()
+                ))
+            })?;
+            (Some(frame), rest)
+        }
+        _ => (None, text),
+    };
+    let parts: Vec<&str> = body.split(',').collect();
     if parts.len() != 3 {
         return Err(bad());
     }
-    // A centre in pixels is two plain numbers; on the sky, degrees or sexagesimal.
-    let sexagesimal =
-        !crate::angles::is_plain_number(parts[0]) || !crate::angles::is_plain_number(parts[1]);
-    // Hours only for the longitude of an equatorial frame.
-    let hours = map.wcs.as_ref().is_some_and(SkyAxes::equatorial);
+    // A centre in pixels is two plain numbers; on the sky, degrees or sexagesimal, or any
+    // centre with its frame named.
+    let sky = given.is_some()
+        || !crate::angles::is_plain_number(parts[0])
+        || !crate::angles::is_plain_number(parts[1]);
+    let no_wcs = || {
+        Error::usage(
+            "--region with a sky centre needs a map with a celestial WCS; give the centre and size in pixels.",
+        )
+    };
+    let map_frame = map.wcs.as_ref().map(|w| w.frame());
+    if sky && map_frame.is_none() {
+        return Err(no_wcs());
+    }
+    // Hours (letters or colons) only for the longitude of an equatorial frame: the one named,
+    // else the map's.
+    let centre_frame = given.as_ref().or(map_frame);
+    let hours = centre_frame.is_some_and(is_equatorial);
+    if let Some(f) = centre_frame.filter(|_| !hours && crate::angles::has_colons(parts[0])) {
+        return Err(Error::usage(format!(
+            "--region '{text}' gives its longitude with colons, which are read as hours of right ascension, but the centre is in the {} frame; give the longitude in degrees, such as 152.8125 or 152d48m45s, or an RA,Dec centre with icrs: first.",
+            frame_name(f)
+        )));
+    }
     let a = crate::angles::parse_longitude(parts[0], hours).ok_or_else(bad)?;
     let b = crate::angles::parse_latitude(parts[1]).ok_or_else(bad)?;
     let size = units::parse_quantity(
@@ -469,39 +590,196 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
         "--region",
     )
     .map_err(Error::usage)?;
-    if sexagesimal && size.dim != units::Dimension::Angle {
+    if sky && size.dim != units::Dimension::Angle {
         return Err(Error::usage(format!(
             "--region '{text}' has a sky centre, so its size is an angle; give one, such as 5arcmin."
         )));
     }
-    let (cx, cy, half) = if size.dim == units::Dimension::Angle {
-        let w = map.wcs.as_ref().ok_or_else(|| Error::usage("--region with a sky centre needs a map with a celestial WCS; give the centre and size in pixels."))?;
-        let frame = match w.frame() {
-            SkyFrame::Galactic => "galactic l,b",
-            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. } => "equatorial RA,Dec",
-            _ => "its own longitude,latitude",
-        };
-        let (x, y) = w.sky_to_pixel(a, b).ok_or_else(|| {
+    if size.dim != units::Dimension::Angle {
+        return pixel_region(text, map, (a, b), size.si, size.dim, &parts);
+    }
+    let w = map.wcs.as_ref().ok_or_else(no_wcs)?;
+    let frame = w.frame();
+    let deg = size.si.to_degrees();
+    // In the map's frame: converted from the one named, when it is another.
+    let (l, b2) = match given.as_ref().filter(|f| *f != frame) {
+        Some(f) => crate::wcs::convert_frame(a, b, f, frame).ok_or_else(|| {
             Error::usage(format!(
-                "--region centre {a},{b} is outside the map's projection; a sky centre is read in degrees in the map's own frame ({frame})."
+                "--region '{text}' gives its centre in {}, which cairn does not convert to the map's frame ({}); give the centre in the map's own frame, without a frame first.",
+                frame_name(f),
+                frame_name(frame)
             ))
-        })?;
-        if !(x > -0.5 && y > -0.5 && x < map.nx() as f64 - 0.5 && y < map.ny() as f64 - 0.5) {
-            return Err(Error::usage(format!(
-                "--region centre {a},{b} falls off the map (at pixel {x:.0},{y:.0}); a sky centre is read in degrees in the map's own frame ({frame})."
-            )));
-        }
-        // Square on the sky: each side in pixels of that axis's own length there.
-        let (sx, sy) = w.pixel_scale(x, y);
-        let deg = size.si.to_degrees();
-        (x, y, (deg / sx / 2.0, deg / sy / 2.0))
-    } else {
-        (a, b, (size.si / 2.0, size.si / 2.0))
+        })?,
+        None => (a, b),
     };
+    let placed = w.sky_to_pixel(l, b2);
+    let (x, y) = match placed {
+        Some((x, y)) if on_map(map, x, y) => (x, y),
+        _ => {
+            let whence = match placed {
+                Some((x, y)) => format!("falls off the map (at pixel {x:.0},{y:.0})"),
+                None => "is outside the map's projection".into(),
+            };
+            let hint = off_map_hint(map, &given, &parts, deg);
+            return Err(Error::usage(match &given {
+                Some(f) => format!(
+                    "--region centre {a},{b} ({}) is {l:.6},{b2:.6} in the map's frame ({}) and {whence}{hint}.",
+                    frame_name(f),
+                    frame_name(frame)
+                ),
+                None => format!(
+                    "--region centre {a},{b} {whence}; a sky centre is read in degrees in the map's own frame ({}){hint}.",
+                    frame_coordinates(frame)
+                ),
+            }));
+        }
+    };
+    // Square on the sky: each side in pixels of that axis's own length there.
+    let (sx, sy) = w.pixel_scale(x, y);
+    Ok(RegionAsked {
+        centre: (x, y),
+        size: (deg / sx, deg / sy),
+        note: None,
+    })
+}
+
+/// The end of the sentence refusing a sky centre off the map: the way to give it that would
+/// land on the map, tried in turn (the same numbers as a centre in the frame of the other
+/// kind, equatorial or galactic; in the map's own frame when a frame was named; as pixels with
+/// the size in pixels), else how to name another frame.
+fn off_map_hint(map: &Map, given: &Option<SkyFrame>, parts: &[&str], deg: f64) -> String {
+    let Some(w) = map.wcs.as_ref() else {
+        return String::new();
+    };
+    let frame = w.frame();
+    let lands = |from: &SkyFrame| -> bool {
+        let hours = is_equatorial(from);
+        let (Some(lon), Some(lat)) = (
+            crate::angles::parse_longitude(parts[0], hours),
+            crate::angles::parse_latitude(parts[1]),
+        ) else {
+            return false;
+        };
+        let converted = if from == frame {
+            Some((lon, lat))
+        } else {
+            crate::wcs::convert_frame(lon, lat, from, frame)
+        };
+        converted
+            .and_then(|(l, b)| w.sky_to_pixel(l, b))
+            .is_some_and(|(x, y)| on_map(map, x, y))
+    };
+    let centre = format!(
+        "{},{},{}",
+        parts[0].trim(),
+        parts[1].trim(),
+        parts[2].trim()
+    );
+    let other = match (given, frame) {
+        (None, SkyFrame::Galactic) => Some(("icrs", SkyFrame::Icrs)),
+        (None, f) if is_equatorial(f) => Some(("galactic", SkyFrame::Galactic)),
+        _ => None,
+    };
+    if let Some((prefix, f)) = &other
+        && lands(f)
+    {
+        return format!(
+            ", and as {} coordinates these fall on the map: give {prefix}:{centre}",
+            frame_name(f)
+        );
+    }
+    if given.is_some() && lands(frame) {
+        return format!(
+            ", and without the frame, in the map's own ({}), these fall on the map: give {centre}",
+            frame_name(frame)
+        );
+    }
+    let (a, b) = (parts[0].trim(), parts[1].trim());
+    if given.is_none()
+        && let (Ok(x), Ok(y)) = (a.parse::<f64>(), b.parse::<f64>())
+        && on_map(map, x, y)
+    {
+        let (sx, sy) = w.pixel_scale(x, y);
+        let px = (deg / (sx * sy).sqrt()).round();
+        if px.is_finite() && px >= 1.0 {
+            return format!(", and a pixel centre needs a size in pixels, such as {a},{b},{px}px");
+        }
+    }
+    match other {
+        Some((prefix, _)) => format!(
+            " unless another is named first (icrs:, fk5: or galactic:, such as {prefix}:LON,LAT,SIZE)"
+        ),
+        None => String::new(),
+    }
+}
+
+/// A region with a pixel centre at `(a, b)` and a size of `size` pixels (`dim`: given in
+/// pixels, or as a plain number): the centre must lie on the map.
+fn pixel_region(
+    text: &str,
+    map: &Map,
+    (a, b): (f64, f64),
+    size: f64,
+    dim: units::Dimension,
+    parts: &[&str],
+) -> Result<RegionAsked> {
+    let (nx, ny) = (map.nx(), map.ny());
+    // The same two numbers as a sky position in degrees in the map's frame, where it is on
+    // the map, with the size in pixels as an angle there.
+    let as_sky = map.wcs.as_ref().and_then(|w| {
+        let (x, y) = w.sky_to_pixel(a, b)?;
+        if !on_map(map, x, y) {
+            return None;
+        }
+        let (sx, sy) = w.pixel_scale(x, y);
+        let deg = size * (sx * sy).sqrt();
+        let angle = if deg.is_finite() && deg > 0.0 {
+            angle_size_text(deg)
+        } else {
+            "5arcmin".into()
+        };
+        Some(format!("{},{},{angle}", parts[0].trim(), parts[1].trim()))
+    });
+    let unit = if dim == units::Dimension::Pixels {
+        "in px"
+    } else {
+        "a plain number, read as pixels"
+    };
+    if !on_map(map, a, b) {
+        return Err(Error::usage(match as_sky {
+            Some(sky) => format!(
+                "--region '{text}' has its centre read as pixels because its size is {unit}, and pixel {a},{b} lies off the map of {nx} x {ny} pixels; for a sky centre in degrees give an angular size, such as {sky} (what {} spans there).",
+                parts[2].trim()
+            ),
+            None => format!(
+                "--region '{text}' has its pixel centre {a},{b} off the map, whose pixels run x 0 to {} and y 0 to {} (zero-based); centre it on the map, or give a sky centre with an angular size, such as 152.81,11.40,5arcmin.",
+                nx - 1,
+                ny - 1
+            ),
+        }));
+    }
+    let note = as_sky.map(|sky| {
+        format!(
+            "--region '{text}' is read as a pixel centre because its size is {unit}, though {a},{b} in degrees is also a sky position on the map; for that one give an angular size, such as {sky}"
+        )
+    });
+    Ok(RegionAsked {
+        centre: (a, b),
+        size: (size, size),
+        note,
+    })
+}
+
+/// A `--region` ([`region_asked`]) fitted to the map: (x0, y0, width, height) in pixels,
+/// clipped to the map, and what the user should be told (one sentence a line): for a region
+/// reaching past the map's edge, what part of it is drawn, and [`RegionAsked::note`].
+pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<String>)> {
+    let asked = region_asked(text, map)?;
+    let ((cx, cy), size) = (asked.centre, asked.size);
     let (nx, ny) = (map.nx() as f64, map.ny() as f64);
     // The size in whole pixels first, then its place: a size of a whole number of pixels
     // stays that size whatever the rounding of its edges.
-    let (w, h) = ((2.0 * half.0).round(), (2.0 * half.1).round());
+    let (w, h) = (size.0.round(), size.1.round());
     let (ax0, ay0) = ((cx - w / 2.0).round(), (cy - h / 2.0).round());
     let (ax1, ay1) = (ax0 + w, ay0 + h);
     let (x0, y0, x1, y1) = (ax0.max(0.0), ay0.max(0.0), ax1.min(nx), ay1.min(ny));
@@ -510,7 +788,7 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
             "--region '{text}' leaves less than 4 pixels of the map to draw; centre it on the map and give a larger size."
         )));
     }
-    let note = (x0 > ax0 || y0 > ay0 || x1 < ax1 || y1 < ay1).then(|| {
+    let clipped = (x0 > ax0 || y0 > ay0 || x1 < ax1 || y1 < ay1).then(|| {
         format!(
             "--region '{text}' reaches past the map's edge, so only its part on the map is drawn: {} x {} of the {} x {} pixels asked for (x {} to {}, y {} to {}, zero-based)",
             x1 - x0,
@@ -523,6 +801,7 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
             y1 - 1.0
         )
     });
+    let notes: Vec<String> = asked.note.into_iter().chain(clipped).collect();
     Ok((
         (
             x0 as usize,
@@ -530,7 +809,7 @@ pub fn parse_region(text: &str, map: &Map) -> Result<(render::Region, Option<Str
             (x1 - x0) as usize,
             (y1 - y0) as usize,
         ),
-        note,
+        (!notes.is_empty()).then(|| notes.join("\n")),
     ))
 }
 
@@ -1300,5 +1579,282 @@ mod tests {
         assert_eq!(unit_markup("K km s-1"), "K km s^-1");
         assert_eq!(unit_markup("MJy/sr"), "MJy/sr");
         assert_eq!(unit_markup("N(H2) 1e-3"), "N(H2) 1e-3");
+    }
+
+    /// An invented `nx` x `ny` map of 6" pixels centred at (lon, lat) of the frame given by
+    /// `ctypes` and `extra` cards, written to `dir` and loaded.
+    fn region_map(
+        dir: &Path,
+        ctypes: (&str, &str),
+        (lon, lat): (f64, f64),
+        extra: &[(&str, crate::header::Value)],
+        (nx, ny): (usize, usize),
+    ) -> Map {
+        use crate::header::{Header, Value};
+        let mut h = Header::new();
+        let mut cards = vec![
+            ("CTYPE1", Value::Str(ctypes.0.into())),
+            ("CTYPE2", Value::Str(ctypes.1.into())),
+            ("CRPIX1", Value::Float(nx as f64 / 2.0 + 0.5)),
+            ("CRPIX2", Value::Float(ny as f64 / 2.0 + 0.5)),
+            ("CRVAL1", Value::Float(lon)),
+            ("CRVAL2", Value::Float(lat)),
+            ("CDELT1", Value::Float(-6.0 / 3600.0)),
+            ("CDELT2", Value::Float(6.0 / 3600.0)),
+            ("BUNIT", Value::Str("Jy/beam".into())),
+        ];
+        cards.extend(extra.iter().cloned());
+        for (k, v) in cards {
+            h.set(k, v, "");
+        }
+        let p = dir.join(format!("{lon}_{lat}_{}_{}.fits", ctypes.0, extra.len()));
+        let data = Array2::from_elem((ny, nx), 1.0f32);
+        crate::fits_write::write_image_f32(&p, data.view(), &h, false).unwrap();
+        map::load(&p, &Default::default()).unwrap()
+    }
+
+    fn equatorial(dir: &Path, lon: f64, lat: f64) -> Map {
+        region_map(dir, ("RA---TAN", "DEC--TAN"), (lon, lat), &[], (200, 100))
+    }
+
+    fn refusal(text: &str, map: &Map) -> String {
+        match region_asked(text, map) {
+            Err(e) => e.to_string(),
+            Ok(r) => panic!("{text} was read as {r:?}"),
+        }
+    }
+
+    /// Sizes suggested in refusals: three significant digits in the unit that keeps them
+    /// below 120 (by hand).
+    #[test]
+    fn suggested_sizes_are_readable() {
+        assert_eq!(angle_size_text(180.0 / 3600.0), "3arcmin");
+        assert_eq!(angle_size_text(119.99 / 3600.0), "2arcmin");
+        assert_eq!(angle_size_text(41.99999 / 3600.0), "42arcsec");
+        assert_eq!(angle_size_text(0.5 / 3600.0), "0.5arcsec");
+        assert_eq!(angle_size_text(12.345 / 60.0), "12.3arcmin");
+        assert_eq!(angle_size_text(2.5), "2.5deg");
+    }
+
+    /// A pixel centre (a size in px or a plain number) must lie on the map, inside its outer
+    /// pixel edges; off the map, when its two numbers in degrees are a sky position on the
+    /// map, the refusal says the centre was read as pixels because of the size's unit and
+    /// gives the angular size of the same number of pixels there (30 pixels of 6" are 3',
+    /// 7 are 42": common practice, the arithmetic by hand).
+    #[test]
+    fn a_pixel_centre_lies_on_the_map() {
+        let dir = tempfile::tempdir().unwrap();
+        let m = equatorial(dir.path(), 120.0, -30.0);
+        for ok in ["0,0,20px", "199,99,20px", "-0.4,99.4,20", "100,50,30px"] {
+            let r = region_asked(ok, &m).unwrap();
+            assert_eq!(r.note, None, "{ok}");
+        }
+        let r = region_asked("100,50,30px", &m).unwrap();
+        assert_eq!((r.centre, r.size), ((100.0, 50.0), (30.0, 30.0)));
+        let e = refusal("120.01,-30.005,30px", &m);
+        assert!(
+            e.contains("has its centre read as pixels because its size is in px")
+                && e.contains("for a sky centre in degrees give an angular size, such as 120.01,-30.005,3arcmin (what 30px spans there)"),
+            "{e}"
+        );
+        let e = refusal("120.01,-30.005,7", &m);
+        assert!(
+            e.contains("because its size is a plain number, read as pixels")
+                && e.contains("such as 120.01,-30.005,42arcsec"),
+            "{e}"
+        );
+        // Off the map with no sky position there either: where the map's pixels run.
+        for bad in [
+            "250,50,20px",
+            "-0.6,50,20px",
+            "100,99.6,20px",
+            "10,-30,20px",
+        ] {
+            let e = refusal(bad, &m);
+            assert!(
+                e.contains("off the map, whose pixels run x 0 to 199 and y 0 to 99 (zero-based)"),
+                "{bad}: {e}"
+            );
+        }
+        // Without a WCS, the same rule.
+        let e = refusal("250,50,20px", &m_without_wcs(dir.path()));
+        assert!(e.contains("off the map"), "{e}");
+    }
+
+    fn m_without_wcs(dir: &Path) -> Map {
+        use crate::header::{Header, Value};
+        let mut h = Header::new();
+        h.set("BUNIT", Value::Str("Jy/beam".into()), "");
+        let p = dir.join("nowcs.fits");
+        let data = Array2::from_elem((100, 200), 1.0f32);
+        crate::fits_write::write_image_f32(&p, data.view(), &h, false).unwrap();
+        map::load(&p, &Default::default()).unwrap()
+    }
+
+    /// A pixel centre on the map whose numbers are also, in degrees, a sky position on it is
+    /// drawn as pixels, with a note saying how to ask for the sky position instead; the note
+    /// comes before the one on a region reaching past the edge.
+    #[test]
+    fn a_pixel_centre_that_is_also_on_the_sky_is_said() {
+        let dir = tempfile::tempdir().unwrap();
+        let m = equatorial(dir.path(), 50.0, 30.0);
+        let r = region_asked("50.01,30.01,20px", &m).unwrap();
+        assert_eq!(r.centre, (50.01, 30.01));
+        let note = r.note.expect("a note");
+        assert!(
+            note.contains("is read as a pixel centre because its size is in px")
+                && note.ends_with("such as 50.01,30.01,2arcmin"),
+            "{note}"
+        );
+        let (_, notes) = parse_region("50.01,30.01,80px", &m).unwrap();
+        let notes = notes.unwrap();
+        let lines: Vec<&str> = notes.lines().collect();
+        assert_eq!(lines.len(), 2, "{notes}");
+        assert!(lines[0].contains("also a sky position") && lines[1].contains("reaches past"));
+        assert_eq!(region_asked("120,60,20px", &m).unwrap().note, None);
+    }
+
+    /// A sky centre off the map is refused with the map's frame and, where one exists, the way
+    /// to give the same numbers that lands on the map: in the other frame (galactic on an
+    /// equatorial map, ICRS on a galactic one, numbers from cairn's own conversion, checked
+    /// against astropy in tests/wcs_astropy.rs), in the map's own frame when another was
+    /// named, or as pixels with a size in pixels (5' of 6" pixels is 50: by hand).
+    #[test]
+    fn a_sky_centre_off_the_map_says_how_to_give_it() {
+        let dir = tempfile::tempdir().unwrap();
+        let m = equatorial(dir.path(), 120.0, -30.0);
+        let (l, b) =
+            crate::wcs::convert_frame(120.0, -30.0, &SkyFrame::Icrs, &SkyFrame::Galactic).unwrap();
+        let e = refusal(&format!("{l},{b},2arcmin"), &m);
+        assert!(
+            e.contains(
+                "a sky centre is read in degrees in the map's own frame (equatorial RA,Dec)"
+            ) && e.contains(&format!(
+                "as galactic coordinates these fall on the map: give galactic:{l},{b},2arcmin"
+            )),
+            "{e}"
+        );
+        let r = region_asked(&format!("galactic:{l},{b},2arcmin"), &m).unwrap();
+        assert!((r.centre.0 - 99.5).abs() < 1e-6 && (r.centre.1 - 49.5).abs() < 1e-6);
+        let e = refusal("galactic:120.01,-30.005,2arcmin", &m);
+        assert!(
+            e.contains("(galactic) is ")
+                && e.contains("in the map's frame (ICRS) and is outside the map's projection")
+                && e.contains("without the frame, in the map's own (ICRS), these fall on the map: give 120.01,-30.005,2arcmin"),
+            "{e}"
+        );
+        let e = refusal("100,50,5arcmin", &m);
+        assert!(
+            e.contains("a pixel centre needs a size in pixels, such as 100,50,50px"),
+            "{e}"
+        );
+        let e = refusal("45,-1.5,2arcmin", &m);
+        assert!(
+            e.contains(
+                "unless another is named first (icrs:, fk5: or galactic:, such as galactic:LON,LAT,SIZE)"
+            ),
+            "{e}"
+        );
+        // On a galactic map the other frame is ICRS, in hours or degrees.
+        let g = region_map(
+            dir.path(),
+            ("GLON-TAN", "GLAT-TAN"),
+            (l, b),
+            &[],
+            (200, 100),
+        );
+        let e = refusal("08:00:02.4,-30.005,2arcmin", &g);
+        assert!(
+            e.contains("read as hours of right ascension, but the centre is in the galactic frame"),
+            "{e}"
+        );
+        let e = refusal("120.01,-30.005,2arcmin", &g);
+        assert!(
+            e.contains("(galactic l,b)")
+                && e.contains(
+                    "as ICRS coordinates these fall on the map: give icrs:120.01,-30.005,2arcmin"
+                ),
+            "{e}"
+        );
+        assert!(region_asked("icrs:08:00:02.4,-30:00:18,2arcmin", &g).is_ok());
+    }
+
+    /// A frame named first is one of icrs, fk5 and galactic (gal), in any case; any other
+    /// word is refused, as is a conversion cairn does not make (into FK4) and a size in pixels
+    /// with a named frame.
+    #[test]
+    fn region_frames_are_named_or_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let m = equatorial(dir.path(), 120.0, -30.0);
+        let (l, b) =
+            crate::wcs::convert_frame(120.0, -30.0, &SkyFrame::Icrs, &SkyFrame::Galactic).unwrap();
+        let at = |t: &str| region_asked(t, &m).unwrap().centre;
+        let gal = at(&format!("galactic:{l},{b},2arcmin"));
+        assert_eq!(at(&format!("GAL:{l},{b},2arcmin")), gal);
+        assert_eq!(at(&format!(" Galactic :{l},{b},2arcmin")), gal);
+        // The map's own frame named: the same as without it.
+        assert_eq!(
+            at("icrs:120.01,-30.005,2arcmin"),
+            at("120.01,-30.005,2arcmin")
+        );
+        // FK5 J2000 differs from ICRS by tens of milliarcseconds (the frame bias).
+        let (fx, _) = at("fk5:120.01,-30.005,2arcmin");
+        let (ix, _) = at("120.01,-30.005,2arcmin");
+        assert!(
+            (fx - ix).abs() > 1e-4 && (fx - ix).abs() < 0.05,
+            "{fx} {ix}"
+        );
+        let e = refusal("hcrs:120.01,-30.005,2arcmin", &m);
+        assert!(
+            e.contains(
+                "names a frame 'hcrs' that is not understood: give icrs, fk5 (J2000) or galactic"
+            ),
+            "{e}"
+        );
+        let e = refusal("icrs:120.01,-30.005,30px", &m);
+        assert!(
+            e.contains("has a sky centre, so its size is an angle"),
+            "{e}"
+        );
+        let fk4 = region_map(
+            dir.path(),
+            ("RA---TAN", "DEC--TAN"),
+            (120.0, -30.0),
+            &[("RADESYS", crate::header::Value::Str("FK4".into()))],
+            (200, 100),
+        );
+        let e = refusal("icrs:120.01,-30.005,2arcmin", &fk4);
+        assert!(
+            e.contains("gives its centre in ICRS, which cairn does not convert to the map's frame (FK4 B1950)"),
+            "{e}"
+        );
+        assert!(region_asked("120.01,-30.005,2arcmin", &fk4).is_ok());
+        let e = refusal("icrs:120.01,-30.005,2arcmin", &m_without_wcs(dir.path()));
+        assert!(e.contains("needs a map with a celestial WCS"), "{e}");
+    }
+
+    /// Colon sexagesimal centres read as the letter forms: hours for a right ascension and
+    /// degrees for a latitude, placing the region at the same pixel as the degrees.
+    #[test]
+    fn colon_centres_equal_their_degrees() {
+        let dir = tempfile::tempdir().unwrap();
+        let m = equatorial(dir.path(), 120.0, -30.0);
+        // 120.01 deg = 8h00m02.4s; -30.005 deg = -30d00m18s (15 degrees per hour); the two
+        // differ by the rounding of their sums, about 1e-14 degree.
+        let deg = region_asked("120.01,-30.005,2arcmin", &m).unwrap();
+        for t in [
+            "08:00:02.4,-30:00:18,2arcmin",
+            "8h00m02.4s,-30d00m18s,2arcmin",
+            "08:00:02.4,-30d00m18s,2arcmin",
+        ] {
+            let r = region_asked(t, &m).unwrap();
+            assert!(
+                (r.centre.0 - deg.centre.0).abs() < 1e-6
+                    && (r.centre.1 - deg.centre.1).abs() < 1e-6
+                    && (r.size.0 - deg.size.0).abs() < 1e-6
+                    && (r.size.1 - deg.size.1).abs() < 1e-6,
+                "{t}: {r:?} against {deg:?}"
+            );
+        }
     }
 }

@@ -639,9 +639,13 @@ struct StyleArgs {
     /// 2Msun (needs the run's masses). Labels are placed highest peak first.
     #[arg(long, default_value = "all", value_name = "WHICH")]
     labels: String,
-    /// Draw only a square part: `X,Y,SIZE` with a pixel centre and a size in px (256,192,100px)
-    /// or a sky centre in degrees or sexagesimal and an angular size (152.81,11.40,5arcmin or
-    /// 10h11m15s,+11d24m,5arcmin), square on the sky.
+    /// Draw only a square part: `X,Y,SIZE`. The size's unit says how the centre is read: with a
+    /// size in px (or a plain number), a pixel centre on the map (256,192,100px); with an
+    /// angular size, a sky centre, square on the sky, in degrees or sexagesimal
+    /// (152.81,11.40,5arcmin, 10h11m15s,+11d24m,5arcmin or 10:11:15,+11:24:00,5arcmin; colons
+    /// are hours for a right ascension, degrees for a latitude), in the map's frame unless one
+    /// is named first and converted from: icrs:, fk5: (J2000) or galactic: (gal:), such as
+    /// galactic:231.5,-4.25,5arcmin.
     #[arg(long, value_name = "X,Y,SIZE", allow_hyphen_values = true)]
     region: Option<String>,
 }
@@ -723,9 +727,10 @@ impl StyleArgs {
         }
         let region = match self.region.as_deref() {
             Some(r) => {
-                let (region, clipped) = cairn::draw::parse_region(r, map)?;
-                // A region reaching past the map's edge is drawn as far as the map goes.
-                if let Some(note) = clipped.filter(|_| drawn) {
+                let (region, notes) = cairn::draw::parse_region(r, map)?;
+                // A region reaching past the map's edge is drawn as far as the map goes; a
+                // pixel centre that is also a sky position on the map is said.
+                for note in notes.iter().filter(|_| drawn).flat_map(|n| n.lines()) {
                     errln!("warning: {note}");
                 }
                 Some(region)

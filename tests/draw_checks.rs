@@ -356,3 +356,56 @@ fn a_region_past_the_edge_says_what_is_drawn() {
     let (r, note) = cairn::draw::parse_region("120,60,20px", &m).unwrap();
     assert_eq!((r, note), ((110, 50, 20, 20), None));
 }
+
+/// A `--region` centre given in another frame than the map's (`icrs:`, `fk5:`, `galactic:`
+/// first) is converted to the map's frame and placed where astropy 8.0.2 places it:
+/// astropy.coordinates SkyCoord.transform_to the map's frame (galactic, or FK5 at equinox
+/// J1975) and WCS.all_world2pix (fixtures/draw/region_frames.json,
+/// tests/oracle/draw_region_astropy.py). The same numbers without the frame are read in the
+/// map's own frame and land elsewhere.
+#[test]
+fn a_region_centre_in_another_frame_lands_where_astropy_puts_it() {
+    let v = fixture_json("draw/region_frames.json");
+    let dir = tempfile::tempdir().unwrap();
+    for (name, m) in v["maps"].as_object().unwrap() {
+        let cards: Vec<String> = m["cards"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| format!("{:<80}", c.as_str().unwrap()))
+            .collect();
+        let mut h = Header::parse(&cards.concat());
+        h.set("BUNIT", cairn::header::Value::Str("Jy/beam".into()), "");
+        let (nx, ny) = (
+            m["nx"].as_u64().unwrap() as usize,
+            m["ny"].as_u64().unwrap() as usize,
+        );
+        let p = dir.path().join(format!("{name}.fits"));
+        let data = ndarray::Array2::from_elem((ny, nx), 1.0f32);
+        cairn::fits_write::write_image_f32(&p, data.view(), &h, false).unwrap();
+        let map = cairn::map::load(&p, &Default::default()).unwrap();
+        for c in m["cases"].as_array().unwrap() {
+            let (prefix, lon, lat) = (
+                c["prefix"].as_str().unwrap(),
+                common::num(&c["lon"]),
+                common::num(&c["lat"]),
+            );
+            let text = format!("{prefix}:{lon},{lat},2arcmin");
+            let asked = cairn::draw::region_asked(&text, &map).unwrap();
+            let (x, y) = (common::num(&c["x"]), common::num(&c["y"]));
+            // 1e-6 pixel is 6e-9 degree on these 6" pixels: the WCS agrees with astropy to
+            // 1e-9 degree and the frame conversions to 1e-13 (tests/wcs_astropy.rs).
+            common::assert_close(asked.centre.0, x, 0.0, 1e-6, &format!("{name} {text} x"));
+            common::assert_close(asked.centre.1, y, 0.0, 1e-6, &format!("{name} {text} y"));
+            assert_eq!(asked.note, None, "{text}");
+            // Without the frame the numbers are the map's own coordinates, elsewhere or off
+            // the map altogether.
+            if let Ok(own) = cairn::draw::region_asked(&format!("{lon},{lat},2arcmin"), &map) {
+                assert!(
+                    (own.centre.0 - x).hypot(own.centre.1 - y) > 10.0,
+                    "{name} {text}: the frame changes nothing"
+                );
+            }
+        }
+    }
+}

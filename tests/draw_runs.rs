@@ -4,6 +4,7 @@
 
 #[path = "common/cli.rs"]
 mod cli;
+mod common;
 
 use cairn::header::{Header, Value};
 use cli::{Outcome, cairn_limited, demo_run};
@@ -1346,6 +1347,230 @@ fn the_scale_bar_takes_a_corner_clear_of_the_leaves() {
         bar.2 > frame.0 + 0.75 * (frame.2 - frame.0)
             && bar.3 > frame.1 + 0.75 * (frame.3 - frame.1),
         "bar {bar:?} frame {frame:?}"
+    );
+}
+
+/// A sky centre in degrees with a size in pixels is read as a pixel centre, which lies off the
+/// map: `segment` and `draw` refuse it with one sentence saying the centre is read as pixels
+/// because of the size's unit, with the angular size to give instead (40 pixels of 6" are
+/// 4': by hand), and write nothing; the angular size it names draws the region.
+#[test]
+fn a_sky_centre_with_a_size_in_pixels_is_refused() {
+    let d = tempfile::tempdir().unwrap();
+    write_map(d.path(), "eq.fits", 200, 100);
+    let args = [
+        "segment",
+        "eq.fits",
+        "-o",
+        "run",
+        "--min-area",
+        "2px",
+        "--region",
+        "120.01,-30.005,40px",
+        "-q",
+    ];
+    let o = cairn(&args, d.path());
+    let says = "has its centre read as pixels because its size is in px, and pixel 120.01,-30.005 lies off the map of 200 x 100 pixels; for a sky centre in degrees give an angular size, such as 120.01,-30.005,4arcmin";
+    cli::check_refused(&o, &args, "--region '120.01,-30.005,40px'", says);
+    assert!(
+        !d.path().join("run").exists(),
+        "{:?}",
+        cli::listing(d.path())
+    );
+    let o = cairn(
+        &[
+            "segment",
+            "eq.fits",
+            "-o",
+            "run",
+            "--min-area",
+            "2px",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let args = ["draw", "run", "-o", "figs", "--region", "120.01,-30.005,40"];
+    let o = cairn(&args, d.path());
+    cli::check_refused(
+        &o,
+        &args,
+        "--region '120.01,-30.005,40'",
+        "because its size is a plain number, read as pixels",
+    );
+    assert!(
+        !d.path().join("figs").exists(),
+        "{:?}",
+        cli::listing(d.path())
+    );
+    let o = cairn(
+        &[
+            "draw",
+            "run",
+            "-o",
+            "figs",
+            "--region",
+            "120.01,-30.005,4arcmin",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(d.path().join("figs/overlay.png").is_file());
+}
+
+/// Colon sexagesimal centres are hours, minutes and seconds for the right ascension and
+/// degrees, minutes and seconds for the declination: a region drawn around
+/// 10:11:15,-31:37:30 is the one drawn around 152.8125,-31.625 (an hour is 15 degrees),
+/// byte for byte.
+#[test]
+fn colon_sexagesimal_centres_equal_their_degrees() {
+    let d = tempfile::tempdir().unwrap();
+    let o = cairn(
+        &[
+            "synth",
+            "-o",
+            "s",
+            "--size",
+            "96",
+            "--cores",
+            "6",
+            "--centre",
+            "10:11:15,-31:37:30",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let o = cairn(
+        &["segment", "s/synth.fits", "-o", "run", "--no-figure", "-q"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for (out, region) in [
+        ("r1", "152.8125,-31.625,4arcmin"),
+        ("r2", "10:11:15,-31:37:30,4arcmin"),
+        ("r3", "10:11:15.0,-31:37:30.0,4arcmin"),
+    ] {
+        let o = cairn(
+            &["draw", "run", "-o", out, "--region", region, "-q"],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{region}: {}", o.stderr);
+    }
+    let png = |out: &str| std::fs::read(d.path().join(out).join("overlay.png")).unwrap();
+    assert_eq!(png("r1"), png("r2"));
+    assert_eq!(png("r1"), png("r3"));
+}
+
+/// The invented galactic map of fixtures/draw/region_frames.json (tests/oracle/
+/// draw_region_astropy.py), with the bumps of `write_map`.
+fn write_galactic_fixture_map(dir: &Path) -> serde_json::Value {
+    let v = common::fixture_json("draw/region_frames.json");
+    let m = v["maps"]["galactic_tan"].clone();
+    let p = write_map(
+        dir,
+        "bumps.fits",
+        m["nx"].as_u64().unwrap() as usize,
+        m["ny"].as_u64().unwrap() as usize,
+    );
+    let data = cairn::map::load(&p, &Default::default()).unwrap().data;
+    let cards: Vec<String> = m["cards"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| format!("{:<80}", c.as_str().unwrap()))
+        .collect();
+    let mut h = Header::parse(&cards.concat());
+    h.set("BUNIT", Value::Str("Jy/beam".into()), "");
+    cairn::fits_write::write_image_f32(&dir.join("gal.fits"), data.view(), &h, false).unwrap();
+    m
+}
+
+/// On a galactic map, a centre given in ICRS (`icrs:` first, in degrees or with colons in
+/// hours) is converted to the map's frame: the region is the one drawn around the galactic
+/// position astropy 8.0.2 gives for it (SkyCoord transform_to Galactic,
+/// fixtures/draw/region_frames.json), byte for byte. Without the frame, colons on the
+/// galactic longitude are refused, saying that they are hours of right ascension, and the
+/// same numbers in degrees are refused as off the map with the way to give them in ICRS;
+/// nothing is written.
+#[test]
+fn a_centre_in_another_frame_is_converted_to_the_maps() {
+    let d = tempfile::tempdir().unwrap();
+    let m = write_galactic_fixture_map(d.path());
+    let case = m["cases"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["prefix"] == "icrs")
+        .unwrap();
+    let (ra, dec) = (common::num(&case["lon"]), common::num(&case["lat"]));
+    // The fixture's ICRS position typed in hours: 107.6125 deg = 7h10m27.0s,
+    // -18.4375 deg = -18d26m15s (by hand).
+    assert_eq!((ra, dec), (107.6125, -18.4375));
+    let (l, b) = (common::num(&case["map_lon"]), common::num(&case["map_lat"]));
+    let o = cairn(
+        &[
+            "segment",
+            "gal.fits",
+            "-o",
+            "run",
+            "--min-area",
+            "2px",
+            "--no-figure",
+            "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    for (out, region) in [
+        ("own", format!("{l},{b},2arcmin")),
+        ("icrs", format!("icrs:{ra},{dec},2arcmin")),
+        ("hours", "ICRS:07:10:27.0,-18:26:15,2arcmin".to_string()),
+    ] {
+        let o = cairn(
+            &["draw", "run", "-o", out, "--region", &region, "-q"],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{region}: {}", o.stderr);
+    }
+    let png = |out: &str| std::fs::read(d.path().join(out).join("overlay.png")).unwrap();
+    assert_eq!(png("own"), png("icrs"));
+    assert_eq!(png("own"), png("hours"));
+    let args = [
+        "draw",
+        "run",
+        "-o",
+        "colons",
+        "--region",
+        "07:10:27.0,-18:26:15,2arcmin",
+    ];
+    let o = cairn(&args, d.path());
+    cli::check_refused(
+        &o,
+        &args,
+        "--region '07:10:27.0,-18:26:15,2arcmin'",
+        "gives its longitude with colons, which are read as hours of right ascension, but the centre is in the galactic frame",
+    );
+    let args = [
+        "draw",
+        "run",
+        "-o",
+        "degrees",
+        "--region",
+        "107.6125,-18.4375,2arcmin",
+    ];
+    let o = cairn(&args, d.path());
+    cli::check_refused(
+        &o,
+        &args,
+        "the map's own frame (galactic l,b)",
+        "as ICRS coordinates these fall on the map: give icrs:107.6125,-18.4375,2arcmin",
+    );
+    assert!(
+        !d.path().join("colons").exists() && !d.path().join("degrees").exists(),
+        "{:?}",
+        cli::listing(d.path())
     );
 }
 
