@@ -138,10 +138,12 @@ pub fn unknown_reason(map: &Map, distance_pc: Option<f64>) -> String {
 /// that reason is not about the masses: then an emission map lacked its temperature.
 fn no_mass_reason(map: &Map, distance_pc: Option<f64>) -> String {
     let r = unknown_reason(map, distance_pc);
-    if r.contains("mass") && !r.starts_with("no stability") {
+    if !r.starts_with("no stability") {
         r
-    } else {
+    } else if map.unit.is_some_and(|u| u.is_emission()) {
         "a dust-emission map's masses need --temperature or --temperature-map".into()
+    } else {
+        "no leaf has a positive mass".into()
     }
 }
 
@@ -257,26 +259,68 @@ impl LabelChoice {
     pub fn needs_masses(&self) -> bool {
         matches!(self, LabelChoice::MassAtLeast(_))
     }
+
+    /// Whether the choice needs the leaves' gravitational states (states other than
+    /// `unknown`).
+    pub fn needs_states(&self) -> bool {
+        matches!(self, LabelChoice::States(k) if !k.contains(&3))
+    }
+}
+
+/// Why a run on `map` at `distance_pc`, with or without a gas `temperature`, would have no
+/// masses (`states`: or no gravitational states), as far as can be known before the run;
+/// None when it would have them.
+pub fn no_masses_before_run(
+    map: &Map,
+    distance_pc: Option<f64>,
+    temperature: bool,
+    states: bool,
+) -> Option<String> {
+    let r = unknown_reason(map, distance_pc);
+    if !r.starts_with("no stability") {
+        return Some(r);
+    }
+    if map.unit.is_some_and(|u| u.is_emission()) && !temperature {
+        return Some("a dust-emission map's masses need --temperature or --temperature-map".into());
+    }
+    if states && !temperature {
+        return Some("the states need a gas temperature, --temperature".into());
+    }
+    None
 }
 
 /// The leaves of `structures` in the order their labels are placed (highest peak first,
 /// equal peaks by id), each with its label: its id, or empty when `choice` leaves it out.
-pub fn leaf_labels(structures: &[FigStructure], choice: &LabelChoice) -> Vec<(u32, String)> {
+/// With a `region` (x0, y0, width, height), the N highest peaks of [`LabelChoice::Brightest`]
+/// are those of the leaves whose peak lies in it.
+pub fn leaf_labels<'a>(
+    structures: &'a [FigStructure],
+    choice: &LabelChoice,
+    region: Option<(usize, usize, usize, usize)>,
+) -> Vec<(&'a FigStructure, String)> {
     let mut leaves: Vec<&FigStructure> = structures.iter().filter(|s| s.is_leaf).collect();
     leaves.sort_by(|a, b| b.peak_value.total_cmp(&a.peak_value).then(a.id.cmp(&b.id)));
+    let shown = |s: &FigStructure| {
+        region.is_none_or(|(x0, y0, w, h)| {
+            (x0..x0 + w).contains(&s.peak.0) && (y0..y0 + h).contains(&s.peak.1)
+        })
+    };
+    let mut rank = 0;
     leaves
-        .iter()
-        .enumerate()
-        .map(|(rank, s)| {
+        .into_iter()
+        .map(|s| {
             let chosen = match choice {
                 LabelChoice::All => true,
                 LabelChoice::None => false,
                 LabelChoice::States(k) => k.contains(&state_index(s.state.as_deref())),
-                LabelChoice::Brightest(n) => rank < *n,
+                LabelChoice::Brightest(n) => shown(s) && rank < *n,
                 LabelChoice::MassAtLeast(m) => s.mass_msun.is_some_and(|x| x >= *m),
             };
+            if shown(s) {
+                rank += 1;
+            }
             (
-                s.id,
+                s,
                 if chosen {
                     s.id.to_string()
                 } else {
@@ -904,6 +948,18 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             .collect()
     });
     let n_leaves = input.structures.iter().filter(|s| s.is_leaf).count();
+    if input.label_choice.needs_states()
+        && n_leaves > 0
+        && !input
+            .structures
+            .iter()
+            .any(|s| s.is_leaf && s.state.as_deref().is_some_and(|w| w != "unknown"))
+    {
+        return Err(Error::usage(format!(
+            "--labels chooses leaves by their gravitational state, but no leaf of this run has one ({}); give the run what the states need, or label the leaves another way, such as --labels 30.",
+            unknown_reason(map, input.distance_pc)
+        )));
+    }
     if let LabelChoice::MassAtLeast(m) = input.label_choice
         && n_leaves > 0
         && !input
@@ -916,16 +972,13 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             no_mass_reason(map, input.distance_pc)
         )));
     }
-    let leaves: Vec<LeafStyle> = leaf_labels(&input.structures, &input.label_choice)
+    let leaves: Vec<LeafStyle> = leaf_labels(&input.structures, &input.label_choice, style.region)
         .into_iter()
-        .map(|(id, label)| {
-            let s = &input.structures[id as usize];
-            LeafStyle {
-                id: id as i32,
-                label,
-                state: state_index(s.state.as_deref()),
-                peak: (s.peak.0 as f64, s.peak.1 as f64),
-            }
+        .map(|(s, label)| LeafStyle {
+            id: s.id as i32,
+            label,
+            state: state_index(s.state.as_deref()),
+            peak: (s.peak.0 as f64, s.peak.1 as f64),
         })
         .collect();
     // The criterion the known states come from: the virial parameter, alpha_BE, or both.
@@ -1531,7 +1584,7 @@ mod tests {
             id,
             parent: None,
             is_leaf,
-            peak: (0, 0),
+            peak: (id as usize, 0),
             peak_value: peak,
             merge_level: 0.0,
             state: Some(state.into()),
@@ -1545,7 +1598,12 @@ mod tests {
             s(3, true, 2.0, "marginal", Some(0.5)),
             s(4, true, 7.0, "bound", Some(1.0)),
         ];
-        let got = |c: LabelChoice| -> Vec<(u32, String)> { leaf_labels(&v, &c) };
+        let got = |c: LabelChoice| -> Vec<(u32, String)> {
+            leaf_labels(&v, &c, None)
+                .into_iter()
+                .map(|(s, l)| (s.id, l))
+                .collect()
+        };
         let order: Vec<u32> = got(LabelChoice::All).iter().map(|l| l.0).collect();
         assert_eq!(order, vec![4, 2, 1, 3]);
         let named = |c: LabelChoice| -> Vec<u32> {
@@ -1562,6 +1620,13 @@ mod tests {
         assert_eq!(named(LabelChoice::Brightest(3)), vec![4, 2, 1]);
         assert_eq!(named(LabelChoice::MassAtLeast(1.0)), vec![4, 1]);
         assert_eq!(got(LabelChoice::All)[0].1, "4");
+        // In a region without leaf 4 (peaks at x = id), the highest peak shown is leaf 2's.
+        let in_region: Vec<u32> = leaf_labels(&v, &LabelChoice::Brightest(1), Some((0, 0, 4, 1)))
+            .into_iter()
+            .filter(|l| !l.1.is_empty())
+            .map(|l| l.0.id)
+            .collect();
+        assert_eq!(in_region, vec![2]);
     }
 
     #[test]

@@ -318,6 +318,16 @@ struct SynthArgs {
         allow_hyphen_values = true
     )]
     wavelength: Option<String>,
+    /// With --into: a pixel value that marks missing pixels besides NaN and BLANK, such as 0
+    /// for a zero-filled border; no core is placed over them, and they are written as NaN in
+    /// the injected map, so it is segmented without --missing-value.
+    #[arg(
+        long,
+        value_name = "VALUE",
+        requires = "into",
+        allow_hyphen_values = true
+    )]
+    missing_value: Option<String>,
     /// Dust opacity per gram of gas at --opacity-frequency, for --emission or an emission map
     /// given --into [default: 0.1cm2/g].
     #[arg(long, value_name = "OPACITY", allow_hyphen_values = true)]
@@ -635,8 +645,9 @@ struct StyleArgs {
     #[arg(long)]
     branches: bool,
     /// Which leaves get their id written beside them (all are outlined): all, none, states
-    /// (bound, or bound,marginal), a number N for the N highest peaks, or a least mass such as
-    /// 2Msun (needs the run's masses). Labels are placed highest peak first.
+    /// (bound, or bound,marginal; needs the run's states), a number N for the N highest peaks
+    /// (of those in --region), or a least mass such as 2Msun (needs the run's masses). Labels
+    /// are placed highest peak first.
     #[arg(long, default_value = "all", value_name = "WHICH")]
     labels: String,
     /// Draw only a square part: `X,Y,SIZE`. The size's unit says how the centre is read: with a
@@ -1552,7 +1563,7 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         extinction_band: a.extinction_band.clone(),
         beam: a.beam.clone(),
         wavelength: a.wavelength.clone(),
-        missing_value: None,
+        missing_value: a.missing_value.clone(),
         noise: None,
         noise_map: None,
     };
@@ -1640,12 +1651,12 @@ fn run_inject(a: &SynthArgs, path: &std::path::Path, quiet: bool) -> Result<()> 
         seed: a.seed.unwrap_or(1),
         min_separation_arcsec,
     };
-    if !quiet {
-        for w in &m.warnings {
-            errln!("warning: {w}");
-        }
-    }
     let injected = cairn::inject::inject(&mut m, &ctx, &inject_opts)?;
+    // Warnings on stderr with --quiet too, as every command gives them (after the checks of
+    // the injection, so that a refusal stays one sentence).
+    for w in &m.warnings {
+        errln!("warning: {w}");
+    }
     let names = [
         format!("{}.fits", a.name),
         format!("{}-truth.csv", a.name),
@@ -2107,11 +2118,28 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         },
         label_choice: cairn::draw::LabelChoice::parse(&a.style.labels)?,
     };
-    // Known before the work: leaves labelled by mass need masses, which need a distance.
-    if so.figure.is_some() && so.label_choice.needs_masses() && so.physics.distance_m.is_none() {
+    // Known before the work: leaves labelled by mass or by state need masses (and states a
+    // gas temperature too).
+    let (by_mass, by_state) = (
+        so.label_choice.needs_masses(),
+        so.label_choice.needs_states(),
+    );
+    if so.figure.is_some()
+        && (by_mass || by_state)
+        && let Some(why) = cairn::draw::no_masses_before_run(
+            &m,
+            so.physics
+                .distance_m
+                .map(|d| d / cairn::physics::constants::PC),
+            so.physics.temperature_k.is_some(),
+            by_state,
+        )
+    {
         return Err(Error::usage(format!(
-            "--labels {} labels the leaves by mass, but without --distance the run has no masses; give --distance, or label the leaves another way, such as --labels bound or --labels 30.",
-            a.style.labels
+            "--labels {} labels the leaves by {}, but this run would have no {} ({why}); give the run what they need, or label the leaves another way, such as --labels 30.",
+            a.style.labels,
+            if by_mass { "mass" } else { "state" },
+            if by_mass { "masses" } else { "states" },
         )));
     }
     let bar = progress_bar(quiet, m.nx() * m.ny());

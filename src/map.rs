@@ -976,13 +976,29 @@ fn primary_keys_note(
     move_to(fits, path, 0)?;
     let primary = read_header(fits, path)?;
     move_to(fits, path, index)?;
-    let wanted = [
-        "CTYPE1", "CTYPE2", "CRVAL1", "CRVAL2", "CDELT1", "CDELT2", "CD1_1", "BUNIT", "BMAJ",
-        "BMIN", "RESTFRQ", "RESTFREQ",
+    // Only a primary without data of its own holds keywords for its extensions (the
+    // convention's case); a primary image's unit or beam is its own.
+    if primary.get_i64("NAXIS").unwrap_or(0) > 0 {
+        return Ok(None);
+    }
+    // Keywords that stand in for each other count as one: the pixel's size (CDELT or a CD
+    // matrix) and the rest frequency (RESTFRQ or RESTFREQ).
+    let groups: [&[&str]; 8] = [
+        &["CTYPE1"],
+        &["CTYPE2"],
+        &["CRVAL1"],
+        &["CRVAL2"],
+        &["CDELT1", "CDELT2", "CD1_1", "CD1_2", "CD2_1", "CD2_2"],
+        &["BUNIT"],
+        &["BMAJ"],
+        &["RESTFRQ", "RESTFREQ"],
     ];
-    let lacking: Vec<&str> = wanted
-        .into_iter()
-        .filter(|k| primary.contains(k) && !header.contains(k))
+    let lacking: Vec<&str> = groups
+        .iter()
+        .filter_map(|g| {
+            let in_primary = g.iter().find(|k| primary.contains(k))?;
+            (!g.iter().any(|k| header.contains(k))).then_some(*in_primary)
+        })
         .collect();
     Ok((!lacking.is_empty()).then(|| {
         format!(

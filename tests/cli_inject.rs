@@ -2167,3 +2167,49 @@ fn injections_into_different_maps_pool_with_a_baseline_each() {
         o.stderr
     );
 }
+
+/// `synth --into --missing-value 0` on a map whose left quarter is zero-filled reads those
+/// pixels as missing: no core is placed over them (every injected pixel that changed lies
+/// right of the border) and they are written as NaN in the injected map, whose other pixels
+/// are the input's or the input's plus cores.
+#[test]
+fn injection_into_a_zero_filled_border_keeps_off_it() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    let full = cairn::map::load(
+        &dir.join("base/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let mut data = full.data.clone();
+    for ((_, x), v) in data.indexed_iter_mut() {
+        if x < 64 {
+            *v = 0.0;
+        }
+    }
+    cairn::fits_write::write_image_f32(&dir.join("zeros.fits"), data.view(), &full.header, false)
+        .unwrap();
+    let o = inject(dir, "zeros.fits", "inj", &["--missing-value", "0"]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("are exactly 0"), "{}", o.stderr);
+    let inj = cairn::map::load(
+        &dir.join("inj/synth.fits"),
+        &cairn::map::LoadOptions::default(),
+    )
+    .unwrap();
+    let mut changed = 0;
+    for (((_, x), &a), &b) in inj.data.indexed_iter().zip(data.iter()) {
+        if x < 64 {
+            assert!(a.is_nan(), "column {x}: {a}");
+        } else if a != b {
+            assert!(a > b, "cores add to the map");
+            changed += 1;
+        }
+    }
+    assert!(changed > 1000, "{changed} pixels changed");
+    // Without the option the zeros are data, which is said.
+    let o = inject(dir, "zeros.fits", "inj0", &[]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stderr.contains("are exactly 0"), "{}", o.stderr);
+}

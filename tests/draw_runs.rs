@@ -1215,7 +1215,7 @@ fn labels_choose_which_leaves_get_an_id() {
     assert_eq!(o.code, 2);
     assert!(
         o.stderr
-            .contains("without --distance the run has no masses"),
+            .contains("--labels 1Msun labels the leaves by mass, but this run would have no masses (no distance, so no masses)"),
         "{}",
         o.stderr
     );
@@ -1241,6 +1241,46 @@ fn labels_choose_which_leaves_get_an_id() {
         o.stderr
     );
     assert!(!d.path().join("nodist/overlay.png").exists());
+    // States need a gas temperature: refused before the work.
+    let o = cairn(
+        &[
+            "segment",
+            map.to_str().unwrap(),
+            "-o",
+            "notemp",
+            "-q",
+            "--distance",
+            "410pc",
+            "--labels",
+            "bound",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 2);
+    assert!(
+        o.stderr.contains(
+            "this run would have no states (the states need a gas temperature, --temperature)"
+        ),
+        "{}",
+        o.stderr
+    );
+    assert!(!d.path().join("notemp").exists());
+    // A state on a run without states, the same.
+    let o = cairn(&["draw", "nodist", "--labels", "bound"], d.path());
+    assert_eq!(o.code, 2);
+    assert!(
+        o.stderr
+            .contains("no leaf of this run has one (no distance, so no masses)"),
+        "{}",
+        o.stderr
+    );
+    assert!(!d.path().join("nodist/overlay.png").exists());
+    // unknown is a state every leaf of such a run has.
+    let o = cairn(
+        &["draw", "nodist", "-o", "unknown", "--labels", "unknown"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
 }
 
 /// The scale bar, its text and the frame (boxes), and the leaf outlines clipped to the frame.
@@ -1608,6 +1648,107 @@ fn a_flat_strip_gets_a_scale_bar_that_fits_between_its_structures() {
         assert!(
             svg_layout::distance(&outlines, b) > 0.0,
             "the scale bar or its text at {b:?} on an outline"
+        );
+    }
+}
+
+/// An invented 160 x 120 map of 6" pixels with a bump in the middle, its sky axes turned by
+/// `crota2` degrees (CROTA2, FITS WCS paper II section 6.1) and with east to the right when
+/// `mirrored` (CDELT1 positive).
+fn write_turned_map(dir: &Path, name: &str, crota2: f64, mirrored: bool) -> PathBuf {
+    let (nx, ny) = (160, 120);
+    let mut h = Header::new();
+    let mut set = |k: &str, v: Value| h.set(k, v, "");
+    set("CTYPE1", Value::Str("RA---TAN".into()));
+    set("CTYPE2", Value::Str("DEC--TAN".into()));
+    set("CRPIX1", Value::Float(80.5));
+    set("CRPIX2", Value::Float(60.5));
+    set("CRVAL1", Value::Float(120.0));
+    set("CRVAL2", Value::Float(-30.0));
+    let sx = if mirrored { 6.0 } else { -6.0 };
+    set("CDELT1", Value::Float(sx / 3600.0));
+    set("CDELT2", Value::Float(6.0 / 3600.0));
+    set("CROTA2", Value::Float(crota2));
+    set("BUNIT", Value::Str("Jy/beam".into()));
+    set("BMAJ", Value::Float(0.005));
+    set("BMIN", Value::Float(0.005));
+    let data = ndarray::Array2::from_shape_fn((ny, nx), |(y, x)| {
+        let r2 = (x as f64 - 90.0).powi(2) + (y as f64 - 50.0).powi(2);
+        ((-r2 / 50.0).exp() + 0.01 * (0.37 * (x * 7 + y * 3) as f64).sin()) as f32
+    });
+    let p = dir.join(name);
+    cairn::fits_write::write_image_f32(&p, data.view(), &h, false).unwrap();
+    p
+}
+
+/// A map whose north is not up, or whose east is to the right, carries north and east arrows
+/// pointing where a step north and a step east at the map's centre go on the figure (by
+/// cairn's WCS, itself checked against astropy 8.0.2 in tests/wcs_astropy.rs), within half a
+/// degree; a map with north up and east to the left has none. Read from the SVG.
+#[test]
+fn turned_or_mirrored_maps_carry_north_and_east_arrows() {
+    let d = tempfile::tempdir().unwrap();
+    for (name, crota2, mirrored) in [
+        ("plain.fits", 0.0, false),
+        ("turned.fits", 30.0, false),
+        ("steep.fits", -110.0, false),
+        ("mirrored.fits", 0.0, true),
+    ] {
+        let path = write_turned_map(d.path(), name, crota2, mirrored);
+        let out = format!("run-{name}");
+        let o = cairn(
+            &[
+                "segment",
+                path.to_str().unwrap(),
+                "-o",
+                &out,
+                "--floor",
+                "0.3",
+                "--prominence",
+                "0.1",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{name}: {}", o.stderr);
+        let svg = std::fs::read_to_string(d.path().join(&out).join("overlay.svg")).unwrap();
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let arrows = doc
+            .descendants()
+            .find(|n| n.attribute("class") == Some("compass"));
+        if crota2 == 0.0 && !mirrored {
+            assert!(arrows.is_none(), "{name}: arrows on a map with north up");
+            continue;
+        }
+        let arrows = svg_layout::subpaths(arrows.expect(name).attribute("d").unwrap());
+        assert_eq!(arrows.len(), 2, "{name}");
+        // The figure's directions (y down) against the WCS's at the map's centre.
+        let m = cairn::map::load(&path, &cairn::map::LoadOptions::default()).unwrap();
+        let w = m.wcs.as_ref().unwrap();
+        let (cx, cy) = (79.5, 59.5);
+        let (lon, lat) = w.pixel_to_sky(cx, cy).unwrap();
+        let step = 1.0 / 60.0;
+        let towards = |lon2: f64, lat2: f64| {
+            let (x, y) = w.sky_to_pixel(lon2, lat2).unwrap();
+            (x - cx).atan2(-(y - cy)).to_degrees()
+        };
+        let expect = [
+            towards(lon, lat + step),
+            towards(lon + step / lat.to_radians().cos(), lat),
+        ];
+        for (arrow, want) in arrows.iter().zip(expect) {
+            let (a, b) = (arrow[0], arrow[arrow.len() - 1]);
+            let got = (b.0 - a.0).atan2(b.1 - a.1).to_degrees();
+            let diff = (got - want + 540.0).rem_euclid(360.0) - 180.0;
+            assert!(
+                diff.abs() < 0.5,
+                "{name}: arrow at {got} deg, the sky's at {want}"
+            );
+        }
+        assert_eq!(
+            svg.matches("class=\"compass-letter\"").count(),
+            2,
+            "{name}: N and E"
         );
     }
 }

@@ -385,17 +385,32 @@ fn an_extension_without_inherit_names_the_primary_keywords_it_lacks() {
         }
         h.into_bytes()
     };
-    let write = |name: &str, inherit: bool| {
-        let mut bytes = block(&[
+    // `primary_image`: the primary holds a 2 x 2 image of its own.
+    let write = |name: &str, inherit: bool, primary_image: bool| {
+        let mut primary = vec![
             "SIMPLE  =                    T",
             "BITPIX  =                    8",
-            "NAXIS   =                    0",
+        ];
+        if primary_image {
+            primary.extend([
+                "NAXIS   =                    2",
+                "NAXIS1  =                    2",
+                "NAXIS2  =                    2",
+            ]);
+        } else {
+            primary.push("NAXIS   =                    0");
+        }
+        primary.extend([
             "EXTEND  =                    T",
             "BUNIT   = 'MJy/sr  '",
             "CTYPE1  = 'RA---TAN'",
             "CTYPE2  = 'DEC--TAN'",
             "BMAJ    =                0.005",
         ]);
+        let mut bytes = block(&primary);
+        if primary_image {
+            bytes.extend(vec![0u8; 2880]);
+        }
         let mut ext = vec![
             "XTENSION= 'IMAGE   '",
             "BITPIX  =                  -32",
@@ -424,7 +439,7 @@ fn an_extension_without_inherit_names_the_primary_keywords_it_lacks() {
         require_unit: false,
         ..opts()
     };
-    let m = map::load(&write("plain.fits", false), &o).unwrap();
+    let m = map::load(&write("plain.fits", false, false), &o).unwrap();
     assert_eq!(m.hdu_index, 1);
     assert!(m.beam.is_none() && m.unit_text.is_empty());
     let said: Vec<&String> = m
@@ -439,9 +454,24 @@ fn an_extension_without_inherit_names_the_primary_keywords_it_lacks() {
         "{}",
         said[0]
     );
-    let m = map::load(&write("inherit.fits", true), &o).unwrap();
+    let m = map::load(&write("inherit.fits", true, false), &o).unwrap();
     assert_eq!(m.unit_text, "MJy/sr");
     assert!(m.beam.is_some());
+    assert!(
+        m.warnings
+            .iter()
+            .all(|w| !w.contains("the primary header (HDU 0)")),
+        "{:?}",
+        m.warnings
+    );
+    // A primary with an image of its own: its unit and beam are its own, so no note (the
+    // extension, say a coverage map, is read as it is).
+    let second = LoadOptions {
+        hdu: HduChoice::Index(1),
+        ..o.clone()
+    };
+    let m = map::load(&write("own.fits", false, true), &second).unwrap();
+    assert_eq!(m.hdu_index, 1);
     assert!(
         m.warnings
             .iter()

@@ -373,13 +373,22 @@ pub fn axis_ticks(
             left_title: String::new(),
         };
     }
-    // Which coordinate runs along the bottom edge: the one changing most along it.
-    let along = |x: f64| sky.pixel_to_sky(x, yb);
-    let lon_on_bottom = match (along(xl + 0.45 * (xr - xl)), along(xl + 0.55 * (xr - xl))) {
-        (Some(a), Some(b)) => {
-            let cosd = a.1.to_radians().cos().abs();
-            wrap180(b.0 - a.0).abs() * cosd >= (b.1 - a.1).abs()
-        }
+    // Which coordinate runs along the bottom edge: the pairing of coordinates with edges
+    // that follows the map best, longitude along x and latitude along y unless latitude
+    // changes along the bottom edge and longitude along the left edge more (the products of
+    // the changes: on a rotated grid of unequal pixels one coordinate may change most along
+    // both edges). Without the left edge on the sky, the coordinate changing most along the
+    // bottom.
+    let change = |p: (f64, f64), q: (f64, f64)| -> Option<(f64, f64)> {
+        let (a, b) = (sky.pixel_to_sky(p.0, p.1)?, sky.pixel_to_sky(q.0, q.1)?);
+        let cosd = a.1.to_radians().cos().abs();
+        Some((wrap180(b.0 - a.0).abs() * cosd, (b.1 - a.1).abs()))
+    };
+    let bottom = change((xl + 0.45 * (xr - xl), yb), (xl + 0.55 * (xr - xl), yb));
+    let left = change((xl, yb + 0.45 * (yt - yb)), (xl, yb + 0.55 * (yt - yb)));
+    let lon_on_bottom = match (bottom, left) {
+        (Some((lon_x, lat_x)), Some((lon_y, lat_y))) => lon_x * lat_y >= lat_x * lon_y,
+        (Some((lon_x, lat_x)), None) => lon_x >= lat_x,
         _ => true,
     };
     let (lon_kind, lat_kind) = if eq {

@@ -135,6 +135,10 @@ pub struct Layout {
     scale_text_beside: bool,
     /// The scale bar and its text are left out, as the frame is too narrow for them.
     pub scale_bar_left_out: bool,
+    /// The north and east arrows of a map whose north is not up or whose east is not to the
+    /// left: their common origin and the unit directions of north and east, in figure
+    /// pixels (y down).
+    pub compass: Option<Compass>,
 }
 
 impl Layout {
@@ -340,6 +344,131 @@ fn pixel_aspect(sky: Option<&dyn SkyAxes>, region: Region) -> f64 {
 
 /// Computes the layout of a map figure (including the display limits of the colour scale).
 pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
+    let mut lay = frame_layout(o, s)?;
+    place_compass(o, s, &mut lay);
+    Ok(lay)
+}
+
+/// The arrows' length and the gap from their tips to their letters, in text sizes.
+const COMPASS_ARROW: f64 = 2.0;
+const COMPASS_GAP: f64 = 0.35;
+
+/// Directions of north and east on the figure at the centre of the shown part (unit vectors
+/// in figure pixels, y down), from the sky axes; None without them or off the sky.
+fn sky_directions(o: &Overlay, lay: &Layout) -> Option<((f64, f64), (f64, f64))> {
+    let sky = o.sky?;
+    let (x0, y0, w, h) = lay.region;
+    let c = (
+        x0 as f64 + (w as f64 - 1.0) / 2.0,
+        y0 as f64 + (h as f64 - 1.0) / 2.0,
+    );
+    let (lon, lat) = sky.pixel_to_sky(c.0, c.1)?;
+    let d = sky.pixel_scale_deg().abs().max(1e-9);
+    let cosd = lat.to_radians().cos().max(1e-6);
+    let dir = |p: Option<(f64, f64)>, q: Option<(f64, f64)>| -> Option<(f64, f64)> {
+        let ((x1, y1), (xa, ya)) = (p?, q?);
+        // Map pixels to figure pixels: y turns down.
+        let (dx, dy) = ((x1 - xa) * lay.kx, -(y1 - ya) * lay.ky);
+        let n = dx.hypot(dy);
+        (n.is_finite() && n > 0.0).then(|| (dx / n, dy / n))
+    };
+    let north = dir(
+        sky.sky_to_pixel(lon, (lat + d).min(90.0)),
+        sky.sky_to_pixel(lon, (lat - d).max(-90.0)),
+    )?;
+    let east = dir(
+        sky.sky_to_pixel(lon + d / cosd, lat),
+        sky.sky_to_pixel(lon - d / cosd, lat),
+    )?;
+    Some((north, east))
+}
+
+/// Adds north and east arrows to a figure whose north is not up (by more than a degree) or
+/// whose east is not to the left, in a corner of the frame clear of the beam, the scale bar
+/// and, where one is, of the leaves' outlines: the upper left first, then the upper right,
+/// the lower right and the lower left (the first free, else the least crossed).
+fn place_compass(o: &Overlay, s: &Style, lay: &mut Layout) {
+    let Some((north, east)) = sky_directions(o, lay) else {
+        return;
+    };
+    let up = -north.1;
+    let turned = north.0.atan2(up).to_degrees().abs() > 1.0;
+    // East to the left of north as seen on the figure (the sky seen from inside): the
+    // cross product of north and east, y down, is negative.
+    let mirrored = north.0 * east.1 - north.1 * east.0 > 0.0;
+    if !(turned || mirrored) {
+        return;
+    }
+    let m = Metrics::new(s.dpi);
+    let fs = m.fs;
+    let (fx, fy, fw, fh) = lay.frame;
+    // The box the arrows and letters take about their origin.
+    let reach = COMPASS_ARROW * fs;
+    let letter = COMPASS_GAP * fs + 0.5 * fs;
+    let pts = [
+        (0.0, 0.0),
+        (north.0 * (reach + letter), north.1 * (reach + letter)),
+        (east.0 * (reach + letter), east.1 * (reach + letter)),
+    ];
+    let pad = 0.45 * fs;
+    let bx0 = pts.iter().map(|p| p.0).fold(f64::INFINITY, f64::min) - pad;
+    let bx1 = pts.iter().map(|p| p.0).fold(f64::NEG_INFINITY, f64::max) + pad;
+    let by0 = pts.iter().map(|p| p.1).fold(f64::INFINITY, f64::min) - pad;
+    let by1 = pts.iter().map(|p| p.1).fold(f64::NEG_INFINITY, f64::max) + pad;
+    let (bw, bh) = (bx1 - bx0, by1 - by0);
+    let inset = 0.6 * fs;
+    if bw + 2.0 * inset > fw || bh + 2.0 * inset > fh {
+        return;
+    }
+    // What the compass keeps clear of: the beam's and the scale bar's boxes.
+    let mut taken: Vec<Rect> = Vec::new();
+    if let Some(b) = &lay.beam {
+        let (ex, ey) = b.half_extent();
+        let (cx, cy) = lay.map_to_figure(b.centre.0, b.centre.1);
+        let (ex, ey) = (ex * lay.kx, ey * lay.ky);
+        taken.push((cx - ex, cy - ey, cx + ex, cy + ey));
+    }
+    if let Some((a, b)) = lay.scale_bar {
+        let (ax, ay) = lay.map_to_figure(a.0, a.1);
+        let (bx, by) = lay.map_to_figure(b.0, b.1);
+        // The bar and its text, generously (the text's width is not known here).
+        let h = 2.0 * fs;
+        let w = (bx - ax).abs().max(4.0 * fs);
+        let cx = 0.5 * (ax + bx);
+        taken.push((cx - w, ay.min(by) - h, cx + w, ay.max(by) + 0.5 * fs));
+    }
+    let view: &Layout = lay;
+    let covered = leaf_pixels_counter(o, view);
+    let corners = [
+        (fx + inset, fy + inset),
+        (fx + fw - inset - bw, fy + inset),
+        (fx + fw - inset - bw, fy + fh - inset - bh),
+        (fx + inset, fy + fh - inset - bh),
+    ];
+    let meets = |a: Rect, b: Rect| a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3;
+    let mut best: Option<(Rect, usize)> = None;
+    for (cx, cy) in corners {
+        let bb = (cx, cy, cx + bw, cy + bh);
+        if taken.iter().any(|t| meets(*t, bb)) {
+            continue;
+        }
+        let n = covered(bb);
+        if best.is_none_or(|(_, k)| n < k) {
+            best = Some((bb, n));
+        }
+        if n == 0 {
+            break;
+        }
+    }
+    let origin = best.map(|(bb, _)| (bb.0 - bx0, bb.1 - by0));
+    drop(covered);
+    if let Some(origin) = origin {
+        lay.compass = Some((origin, north, east));
+    }
+}
+
+/// The layout of a map figure but for its compass.
+fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let region = validate(o, s)?;
     let (x0, y0, rw, rh) = region;
     let m = Metrics::new(s.dpi);
@@ -510,6 +639,7 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         legend_rows: rows,
         scale_text_beside: false,
         scale_bar_left_out: false,
+        compass: None,
     };
 
     // Beam in the lower left corner, scale bar in the lower right unless leaves lie there,
@@ -619,6 +749,10 @@ pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
 
 /// A box on the figure: left, top, right, bottom.
 type Rect = (f64, f64, f64, f64);
+
+/// North and east arrows: their origin and the unit directions of north and east, in figure
+/// pixels (y down).
+pub type Compass = ((f64, f64), (f64, f64), (f64, f64));
 
 /// A counter of the map pixels under a box of the figure laid out by `lay` where an outline
 /// of `o`'s leaves runs: pixels whose label differs from their right or upper neighbour's,
@@ -1283,6 +1417,71 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                 white_halo,
             );
         }
+    }
+
+    // North and east arrows of a turned or mirrored map, with a white halo like the scale
+    // bar's, their letters beyond the tips.
+    if let Some(((ox, oy), north, east)) = lay.compass {
+        let reach = COMPASS_ARROW * fs;
+        let head = 0.35 * fs;
+        let mut d = PathData::new();
+        let mut heads = PathData::new();
+        for (u, letter) in [(north, "N"), (east, "E")] {
+            let tip = (ox + u.0 * reach, oy + u.1 * reach);
+            d.move_to(ox, oy);
+            d.line_to(tip.0 - u.0 * 0.5 * head, tip.1 - u.1 * 0.5 * head);
+            // The arrowhead: a triangle at the tip.
+            let (px, py) = (-u.1, u.0);
+            heads.move_to(tip.0, tip.1);
+            heads.line_to(
+                tip.0 - u.0 * head + px * 0.45 * head,
+                tip.1 - u.1 * head + py * 0.45 * head,
+            );
+            heads.line_to(
+                tip.0 - u.0 * head - px * 0.45 * head,
+                tip.1 - u.1 * head - py * 0.45 * head,
+            );
+            heads.close();
+            let g = COMPASS_GAP * fs + 0.3 * fs;
+            let (lx, ly) = (tip.0 + u.0 * g, tip.1 + u.1 * g);
+            keep_out.push((lx - 0.5 * fs, ly - 0.5 * fs, lx + 0.5 * fs, ly + 0.5 * fs));
+            sc.text(
+                letter,
+                lx,
+                ly,
+                0.8 * fs,
+                0.5,
+                0.5,
+                false,
+                Rgba::BLACK,
+                white_halo,
+            );
+            if let Some(Item::Path { class, .. }) = sc.items.last_mut() {
+                *class = "compass-letter".into();
+            }
+            keep_out.push((
+                ox.min(tip.0) - 0.3 * fs,
+                oy.min(tip.1) - 0.3 * fs,
+                ox.max(tip.0) + 0.3 * fs,
+                oy.max(tip.1) + 0.3 * fs,
+            ));
+        }
+        sc.path(
+            d,
+            vec![
+                Paint::Stroke(Line::solid(Rgba(255, 255, 255, 235), 2.6 * m.pt)),
+                Paint::Stroke(Line::solid(Rgba::BLACK, 1.0 * m.pt)),
+            ],
+            "compass",
+        );
+        sc.path(
+            heads,
+            vec![
+                Paint::Stroke(Line::solid(Rgba(255, 255, 255, 235), 1.6 * m.pt)),
+                Paint::Fill(Rgba::BLACK),
+            ],
+            "compass-heads",
+        );
     }
 
     // Leaf labels, in two rounds. The rule: a label lies nearer its own leaf (its outline as
