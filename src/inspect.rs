@@ -319,7 +319,8 @@ pub fn beam_too_large(map: &Map) -> Option<String> {
             "one beam ({shown} pixels) is larger than the whole map {path} ({n} pixels): check --beam"
         ),
         _ => format!(
-            "the map {path} ({n} pixels) is smaller than one beam ({shown} pixels), too small to hold a structure the beam resolves: give a larger map, or check the beam (BMAJ and BMIN, in degrees) or give --beam"
+            "the map {path} ({n} pixel{}) is smaller than one beam ({shown} pixels), too small to hold a structure the beam resolves: give a larger map, or check the beam (BMAJ and BMIN, in degrees) or give --beam",
+            if n == 1 { "" } else { "s" }
         ),
     })
 }
@@ -1050,7 +1051,16 @@ pub fn render_text(s: &Summary) -> String {
     match &s.wavelength {
         Some(w) => line(
             "wavelength",
-            format!("{:.1} um ({:.2} GHz)", w.wavelength_um, w.frequency_ghz),
+            format!(
+                "{:.1} um ({:.2} GHz){}",
+                w.wavelength_um,
+                w.frequency_ghz,
+                if matches!(w.source, Source::Option) {
+                    " (from --wavelength)"
+                } else {
+                    ""
+                }
+            ),
         ),
         None => line("wavelength", "unknown".into()),
     }

@@ -1999,6 +1999,11 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             errln!("{said}");
         }
     }
+    // A beam larger than the map is refused before any warning, so that the refusal is one
+    // sentence (segment::run refuses it too).
+    if let Some(why) = cairn::inspect::beam_too_large(&m) {
+        return Err(Error::usage(format!("{why}.")));
+    }
     // Warnings are printed with --quiet too, as its help says.
     for w in &m.warnings {
         errln!("warning: {w}");

@@ -821,10 +821,43 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
         },
     };
 
+    // A beam given that replaces another in the header: said, as --unit's replacement is.
+    if let (Some(b), Ok(Some(h))) = (opts.beam, beam_from_header(&header))
+        && ((b.major_deg / h.major_deg - 1.0).abs() > 1e-3
+            || (b.minor_deg / h.minor_deg - 1.0).abs() > 1e-3)
+    {
+        warnings.push(format!(
+            "--beam ({}\" x {}\") replaces the header's beam ({}\" x {}\"): every area in beams, deconvolved size and beam-based default changes with it; leave out --beam to use the header's",
+            units::tidy(b.major_deg * 3600.0),
+            units::tidy(b.minor_deg * 3600.0),
+            units::tidy(h.major_deg * 3600.0),
+            units::tidy(h.minor_deg * 3600.0)
+        ));
+    }
+
     // Wavelength: for a plane of a cube along a FREQ or WAVE axis, that plane's own value.
     let plane_axis = plane.and_then(|_| (2..axes.len()).find(|&k| axes[k] > 1));
     let (wavelength_m, wavelength_source) = match opts.wavelength {
-        Some(q) => (Some(wavelength_from_quantity(q)), Some(Source::Option)),
+        Some(q) => {
+            let given = wavelength_from_quantity(q);
+            // One that replaces another in the header: said.
+            let at_plane = match (plane, plane_axis) {
+                (Some(p), Some(k)) => plane_wavelength(&header, k + 1, p, &mut Vec::new()),
+                _ => None,
+            };
+            let header_m =
+                at_plane.unwrap_or_else(|| wavelength_from_header(&header, &mut Vec::new()));
+            if let Some(h) = header_m
+                && (given / h - 1.0).abs() > 1e-3
+            {
+                warnings.push(format!(
+                    "--wavelength ({}) replaces the header's ({}): the dust emission's conversion to column density and mass changes with it; leave out --wavelength to use the header's",
+                    describe_length(given),
+                    describe_length(h)
+                ));
+            }
+            (Some(given), Some(Source::Option))
+        }
         None => {
             let at_plane = match (plane, plane_axis) {
                 (Some(p), Some(k)) => plane_wavelength(&header, k + 1, p, &mut warnings),
@@ -1394,10 +1427,25 @@ fn plan_read(
         (1, None) => {
             let k = long[0];
             let name = axis_name(k).map(|n| format!(" ({n})")).unwrap_or_default();
+            // A Stokes axis: the plane of Stokes I (value 1, FITS WCS paper I table 7), the
+            // total intensity a dust map holds, named.
+            let stokes_i = (axis_name(k).is_some_and(|n| n.eq_ignore_ascii_case("STOKES")))
+                .then(|| {
+                    let get =
+                        |key: &str, d: f64| header.get_f64(&format!("{key}{}", k + 1)).unwrap_or(d);
+                    let (crval, crpix, cdelt) =
+                        (get("CRVAL", 1.0), get("CRPIX", 1.0), get("CDELT", 1.0));
+                    let p = (1.0 - crval) / cdelt + crpix - 1.0;
+                    (p.is_finite() && p >= 0.0 && p.fract() == 0.0 && (p as usize) < axes[k])
+                        .then_some(p as usize)
+                })
+                .flatten()
+                .map(|p| format!(", Stokes I (total intensity) being plane {p}"))
+                .unwrap_or_default();
             Err(Error::input(
                 path,
                 format!(
-                    "is a cube: axis {}{name} has {} planes; choose one with --plane K (0 to {}).",
+                    "is a cube: axis {}{name} has {} planes; choose one with --plane K (0 to {}){stokes_i}.",
                     k + 1,
                     axes[k],
                     axes[k] - 1

@@ -779,3 +779,89 @@ fn disagreeing_frequency_keywords_are_said() {
         }
     }
 }
+
+/// A beam or a wavelength given on the command line that replaces a different one in the
+/// header is said (as --unit's replacement is); one equal to the header's is not; the text
+/// says where the wavelength came from. A Stokes cube's hint names the plane of Stokes I
+/// (value 1, FITS WCS paper I, Greisen & Calabretta 2002, table 7).
+#[test]
+fn replaced_beams_and_wavelengths_are_said_and_stokes_i_is_named() {
+    let dir = tempfile::tempdir().unwrap();
+    let (nx, ny) = (40, 30);
+    let cards = sky_cards(
+        nx,
+        ny,
+        Some((6.0 / 3600.0, 6.0 / 3600.0)),
+        &[
+            "BMAJ    =                0.005",
+            "BMIN    =                0.005",
+            "RESTFRQ =          3.52697E11",
+        ],
+    );
+    let path = write_map(dir.path(), "m.fits", nx, ny, &cards);
+    let said = |extra: &[&str], what: &str| -> bool {
+        warnings(&inspect_json(dir.path(), &path, extra))
+            .iter()
+            .any(|w| w.contains(what))
+    };
+    assert!(said(
+        &["--beam", "20arcsec"],
+        "--beam (20\" x 20\") replaces the header's beam (18\" x 18\")"
+    ));
+    assert!(!said(&["--beam", "18arcsec"], "replaces the header's beam"));
+    assert!(said(
+        &["--wavelength", "1.1mm"],
+        "--wavelength (1.1 mm) replaces the header's (850 um)"
+    ));
+    assert!(!said(
+        &["--wavelength", "352.697GHz"],
+        "replaces the header's ("
+    ));
+    let text = cairn(
+        &["inspect", path.to_str().unwrap(), "--wavelength", "1.1mm"],
+        dir.path(),
+    )
+    .stdout;
+    assert!(text.contains("(from --wavelength)"), "{text}");
+    // A cube along a Stokes axis whose planes are I, Q, U, V (CRVAL3 = 1, CDELT3 = 1), and
+    // one that starts at Q (CRVAL3 = 2): I is plane 0, and no plane of the second.
+    for (crval, expect) in [("1.0", Some(0)), ("2.0", None)] {
+        let mut h = String::new();
+        for c in [
+            "SIMPLE  =                    T".to_string(),
+            "BITPIX  =                  -32".to_string(),
+            "NAXIS   =                    3".to_string(),
+            "NAXIS1  =                    8".to_string(),
+            "NAXIS2  =                    6".to_string(),
+            "NAXIS3  =                    4".to_string(),
+            "CTYPE3  = 'STOKES  '".to_string(),
+            format!("CRVAL3  = {crval:>20}"),
+            "CRPIX3  =                  1.0".to_string(),
+            "CDELT3  =                  1.0".to_string(),
+            "END".to_string(),
+        ] {
+            h.push_str(&format!("{c:<80}"));
+        }
+        while !h.len().is_multiple_of(2880) {
+            h.push(' ');
+        }
+        let mut bytes = h.into_bytes();
+        bytes.extend(vec![0u8; 8 * 6 * 4 * 4]);
+        while !bytes.len().is_multiple_of(2880) {
+            bytes.push(0);
+        }
+        let p = dir.path().join(format!("stokes{crval}.fits"));
+        std::fs::write(&p, bytes).unwrap();
+        let o = cairn(&["inspect", p.to_str().unwrap()], dir.path());
+        assert_eq!(o.code, 2, "{}", o.stderr);
+        match expect {
+            Some(k) => assert!(
+                o.stderr
+                    .contains(&format!("Stokes I (total intensity) being plane {k}")),
+                "{}",
+                o.stderr
+            ),
+            None => assert!(!o.stderr.contains("Stokes I"), "{}", o.stderr),
+        }
+    }
+}

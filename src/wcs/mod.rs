@@ -356,6 +356,15 @@ impl Wcs {
         } else {
             (code, phi0, theta0, use_offset)
         };
+        // Distortion conventions written in place of the projection code (TPV, TNX and ZPX
+        // are TAN or ZPN with polynomial distortions that WCSLIB and astropy read as such):
+        // named as what they are.
+        if matches!(code.as_str(), "TPV" | "TNX" | "ZPX") {
+            return Err(WcsError(format!(
+                "CTYPE{lo} = '{}' names the {code} distortion convention (a projection with distortion polynomials), which cairn does not read (it reads SIP); resample the map to an undistorted grid, such as a plain TAN",
+                ct[lon_axis]
+            )));
+        }
         let proj = Projection::new(&code, &pv, phi0, theta0, use_offset).map_err(|e| {
             if e.starts_with("unknown projection code") {
                 WcsError(format!(
@@ -1186,6 +1195,17 @@ mod tests {
             e.contains("names the distortion 'TPV'") && e.contains("reads SIP"),
             "{e}"
         );
+        // TPV (and TNX) as the projection code itself, as most headers write it.
+        for code in ["TPV", "TNX"] {
+            let e = with(&format!("RA---{code}"), &format!("DEC--{code}"), &[])
+                .unwrap_err()
+                .to_string();
+            assert!(
+                e.contains(&format!("names the {code} distortion convention"))
+                    && e.contains("reads SIP"),
+                "{e}"
+            );
+        }
         // TAN with the polynomial cards of TPV (PV1_5 and on), as astropy 8.0.2's WCS reads
         // such a header (as TPV): refused, not read as TAN.
         for cards in [
