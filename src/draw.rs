@@ -12,6 +12,7 @@ use std::path::{Path, PathBuf};
 use ndarray::{Array2, ArrayView2};
 
 use crate::error::{Error, Result};
+use crate::inspect::frame_name;
 use crate::map::{self, LoadOptions, Map};
 use crate::render::{self, LeafStyle, SkyAxes, StateLegend, Style, TreeNode};
 use crate::units::{self, PixelUnit};
@@ -486,19 +487,6 @@ fn region_frame(name: &str) -> Option<SkyFrame> {
         "fk5" => Some(SkyFrame::Fk5 { equinox: 2000.0 }),
         "galactic" | "gal" => Some(SkyFrame::Galactic),
         _ => None,
-    }
-}
-
-/// A frame's name in sentences: ICRS, FK5 J2000, FK4 B1950, galactic, ecliptic, or the
-/// CTYPE pair of any other.
-fn frame_name(frame: &SkyFrame) -> String {
-    match frame {
-        SkyFrame::Icrs => "ICRS".into(),
-        SkyFrame::Fk5 { equinox } => format!("FK5 J{equinox}"),
-        SkyFrame::Fk4 { equinox } => format!("FK4 B{equinox}"),
-        SkyFrame::Galactic => "galactic".into(),
-        SkyFrame::Ecliptic => "ecliptic".into(),
-        SkyFrame::Other(s) => s.clone(),
     }
 }
 

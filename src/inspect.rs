@@ -206,7 +206,9 @@ pub struct Summary {
     pub warnings: Vec<String>,
 }
 
-fn frame_name(f: &SkyFrame) -> String {
+/// A frame's name in sentences: ICRS, FK5 J2000, FK4 B1950, galactic, ecliptic, or the
+/// CTYPE pair of any other.
+pub(crate) fn frame_name(f: &SkyFrame) -> String {
     match f {
         SkyFrame::Icrs => "ICRS".into(),
         SkyFrame::Fk5 { equinox } => format!("FK5 J{equinox}"),
