@@ -1325,8 +1325,8 @@ fn bar_frame_outlines(svg: &str) -> BarFrameOutlines {
 /// The scale bar takes the corner of the frame where no leaf's outline runs: on the 850 um
 /// demo map the lower right corner holds leaves (the bar and its text stood on their outlines
 /// there), and the bar moves beside the beam in the lower left, clear of every outline; in a
-/// zoom into one large leaf, whose outline runs through the lower left only, it stays in the
-/// lower right over the leaf's inside. Read from the SVG.
+/// zoom into one large leaf, whose outline runs through the lower left only, it stands over
+/// the leaf's inside, clear of the outline. Read from the SVG.
 #[test]
 fn the_scale_bar_takes_a_corner_clear_of_the_leaves() {
     let d = tempfile::tempdir().unwrap();
@@ -1364,8 +1364,7 @@ fn the_scale_bar_takes_a_corner_clear_of_the_leaves() {
             "width {width}: bar {bar:?} beam {beam:?} frame {frame:?}"
         );
     }
-    // A zoom into leaf 41, its outline crossing the lower left: the bar stays in the lower
-    // right.
+    // A zoom into leaf 41, its outline crossing the lower left.
     let o = cairn(
         &[
             "draw",
@@ -1381,11 +1380,17 @@ fn the_scale_bar_takes_a_corner_clear_of_the_leaves() {
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
     let svg = std::fs::read_to_string(d.path().join("zoom/overlay.svg")).unwrap();
-    let (bar, _, frame, outlines) = bar_frame_outlines(&svg);
-    assert!(svg_layout::distance(&outlines, bar) > 2.0);
+    let (bar, text, frame, outlines) = bar_frame_outlines(&svg);
+    for b in [bar, text] {
+        assert!(svg_layout::distance(&outlines, b) > 2.0, "{b:?}");
+        assert!(
+            b.0 >= frame.0 && b.2 <= frame.2 && b.1 >= frame.1 && b.3 <= frame.3,
+            "{b:?} outside {frame:?}"
+        );
+    }
+    // Not in the lower left, where the leaf's outline runs.
     assert!(
-        bar.2 > frame.0 + 0.75 * (frame.2 - frame.0)
-            && bar.3 > frame.1 + 0.75 * (frame.3 - frame.1),
+        bar.0 > frame.0 + 0.25 * (frame.2 - frame.0) || bar.3 < frame.1 + 0.5 * (frame.3 - frame.1),
         "bar {bar:?} frame {frame:?}"
     );
 }
@@ -1751,4 +1756,36 @@ fn turned_or_mirrored_maps_carry_north_and_east_arrows() {
             "{name}: N and E"
         );
     }
+}
+
+/// On a zoom the legend lists the states of the leaves that have a pixel in the shown part
+/// only: a corner of the 850 um demo map with no leaf has no state entries, and a zoom into
+/// leaf 41 (unbound) alone lists the unbound state only, where the whole map lists three.
+#[test]
+fn a_zoom_lists_the_states_it_shows() {
+    let d = tempfile::tempdir().unwrap();
+    let map = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-maps/velloran-850um.fits");
+    let mut args = vec!["segment", map.to_str().unwrap(), "-o", "run"];
+    args.extend_from_slice(&cli::DEMO_RUN);
+    let o = cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let states = |out: &str, region: Option<&str>| -> Vec<String> {
+        let mut a = vec!["draw", "run", "-o", out, "-q"];
+        if let Some(r) = region {
+            a.extend_from_slice(&["--region", r]);
+        }
+        let o = cairn(&a, d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let svg = std::fs::read_to_string(d.path().join(out).join("overlay.svg")).unwrap();
+        legend_entries(&svg)
+            .iter()
+            .map(|e| e.split(':').next().unwrap().to_string())
+            .collect()
+    };
+    assert_eq!(states("whole", None), ["bound", "marginal", "unbound"]);
+    assert!(states("empty", Some("25,25,50px")).is_empty());
+    assert_eq!(
+        states("one", Some("152.8125,11.40625,3arcmin")),
+        ["unbound"]
+    );
 }

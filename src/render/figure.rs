@@ -386,7 +386,8 @@ fn sky_directions(o: &Overlay, lay: &Layout) -> Option<((f64, f64), (f64, f64))>
 /// Adds north and east arrows to a figure whose north is not up (by more than a degree) or
 /// whose east is not to the left, in a corner of the frame clear of the beam, the scale bar
 /// and, where one is, of the leaves' outlines: the upper left first, then the upper right,
-/// the lower right and the lower left (the first free, else the least crossed).
+/// the lower right, the lower left beside the beam, and the middles of the edges (the first
+/// free, else the least crossed).
 fn place_compass(o: &Overlay, s: &Style, lay: &mut Layout) {
     let Some((north, east)) = sky_directions(o, lay) else {
         return;
@@ -439,24 +440,33 @@ fn place_compass(o: &Overlay, s: &Style, lay: &mut Layout) {
     }
     let view: &Layout = lay;
     let covered = leaf_pixels_counter(o, view);
+    // The corners, the lower left beside the beam, then the middles of the edges.
+    let beam_right = taken.first().filter(|_| lay.beam.is_some()).map(|b| b.2);
     let corners = [
         (fx + inset, fy + inset),
         (fx + fw - inset - bw, fy + inset),
         (fx + fw - inset - bw, fy + fh - inset - bh),
-        (fx + inset, fy + fh - inset - bh),
+        (
+            beam_right.map_or(fx + inset, |r| r + 0.35 * fs),
+            fy + fh - inset - bh,
+        ),
+        (fx + (fw - bw) / 2.0, fy + inset),
+        (fx + (fw - bw) / 2.0, fy + fh - inset - bh),
+        (fx + inset, fy + (fh - bh) / 2.0),
+        (fx + fw - inset - bw, fy + (fh - bh) / 2.0),
     ];
     let meets = |a: Rect, b: Rect| a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3;
-    let mut best: Option<(Rect, usize)> = None;
+    let mut best: Option<(Rect, (usize, usize))> = None;
     for (cx, cy) in corners {
         let bb = (cx, cy, cx + bw, cy + bh);
-        if taken.iter().any(|t| meets(*t, bb)) {
+        if bb.2 > fx + fw - inset || taken.iter().any(|t| meets(*t, bb)) {
             continue;
         }
         let n = covered(bb);
         if best.is_none_or(|(_, k)| n < k) {
             best = Some((bb, n));
         }
-        if n == 0 {
+        if n.1 == 0 {
             break;
         }
     }
@@ -605,8 +615,22 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     // Legend rows below the axis title.
     // Only the states of the leaves drawn, and the branches' outlines when they are drawn.
     let mut shown = vec![false; o.states.len()];
+    // On a zoom, the leaves with a pixel in the shown part only.
+    let present: Option<Vec<bool>> = s.region.map(|_| {
+        let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
+        let mut seen = vec![false; n];
+        for &l in o.labels.slice(s![y0..y0 + rh, x0..x0 + rw]).iter() {
+            if l >= 0 && (l as usize) < n {
+                seen[l as usize] = true;
+            }
+        }
+        seen
+    });
     for l in &o.leaves {
-        if let Some(f) = shown.get_mut(l.state) {
+        let drawn = present
+            .as_ref()
+            .is_none_or(|p| l.id >= 0 && p.get(l.id as usize).copied().unwrap_or(false));
+        if let Some(f) = shown.get_mut(l.state).filter(|_| drawn) {
             *f = true;
         }
     }
@@ -672,41 +696,38 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         }
         let (ex, ey) = if fh >= over {
             // The corner whose box holds the fewest pixels of the leaves' outlines: the lower
-            // right unless outlines run under it, then the upper right, the upper left, and the
-            // lower left beside the beam (the first of the least covered).
+            // right unless outlines run under it, then the upper right, the upper left, the
+            // lower left beside the beam, and the middles of the lower and upper edges (the
+            // first of the least covered).
             let overhang = ((tw - bar_w) / 2.0).max(0.0);
             let (block_w, block_h) = (bar_w.max(tw), over - 2.0 * inset);
-            let mut corners = vec![(true, true), (true, false), (false, false)];
+            let (right_x, left_x, mid_x) = (
+                left + fw - inset - block_w,
+                left + inset,
+                left + (fw - block_w) / 2.0,
+            );
+            let (low_y, high_y) = (frame.1 + fh - inset - block_h, frame.1 + inset);
+            let mut corners = vec![(right_x, low_y), (right_x, high_y), (left_x, high_y)];
             if beam_room + block_w <= room {
-                corners.push((false, true));
+                corners.push((left_x + beam_room, low_y));
             }
-            let block = |(right, bottom): (bool, bool)| -> Rect {
-                let x0 = if right {
-                    left + fw - inset - block_w
-                } else if bottom {
-                    left + inset + beam_room
-                } else {
-                    left + inset
-                };
-                let y0 = if bottom {
-                    frame.1 + fh - inset - block_h
-                } else {
-                    frame.1 + inset
-                };
-                (x0, y0, x0 + block_w, y0 + block_h)
-            };
+            if mid_x - left - inset >= beam_room {
+                corners.push((mid_x, low_y));
+            }
+            corners.push((mid_x, high_y));
+            let block = |(x0, y0): (f64, f64)| -> Rect { (x0, y0, x0 + block_w, y0 + block_h) };
             let covered = leaf_pixels_counter(o, &lay);
             // Leaves just beside the box count too: an outline along the bar's end is as
             // much in the way as one under it.
             let near = 0.3 * fs;
-            let mut best = (corners[0], usize::MAX);
+            let mut best = (corners[0], (usize::MAX, usize::MAX));
             for &c in &corners {
                 let b = block(c);
                 let n = covered((b.0 - near, b.1 - near, b.2 + near, b.3 + near));
                 if n < best.1 {
                     best = (c, n);
                 }
-                if n == 0 {
+                if n.1 == 0 {
                     break;
                 }
             }
@@ -729,13 +750,13 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             let covered = leaf_pixels_counter(o, &lay);
             let near = 0.3 * fs;
             let yc = frame.1 + fh / 2.0;
-            let mut best = (starts[0], usize::MAX);
+            let mut best = (starts[0], (usize::MAX, usize::MAX));
             for &x0 in &starts {
                 let n = covered((x0 - near, yc - h - near, x0 + block_w + near, yc + h + near));
                 if n < best.1 {
                     best = (x0, n);
                 }
-                if n == 0 {
+                if n.1 == 0 {
                     break;
                 }
             }
@@ -754,12 +775,17 @@ type Rect = (f64, f64, f64, f64);
 /// pixels (y down).
 pub type Compass = ((f64, f64), (f64, f64), (f64, f64));
 
-/// A counter of the map pixels under a box of the figure laid out by `lay` where an outline
-/// of `o`'s leaves runs: pixels whose label differs from their right or upper neighbour's,
-/// one of the two a listed leaf (every pixel of a box up to about 40,000 map pixels, else a
-/// regular sample of that many, each against the next sample, scaled up). The inside of a leaf larger than the box (a zoom
-/// into one) does not count: only its outline would be hidden.
-fn leaf_pixels_counter<'a>(o: &'a Overlay, lay: &'a Layout) -> impl Fn(Rect) -> usize + 'a {
+/// A counter of what a box of the figure laid out by `lay` would hide of `o`'s leaves: the
+/// number of leaves whose outline runs under it, and the map pixels where one does (pixels
+/// whose label differs from their right or upper neighbour's, one of the two a listed leaf;
+/// every pixel of a box up to about 40,000 map pixels, else a regular sample of that many,
+/// each against the next sample, scaled up). Compared as a pair, fewer leaves first. The
+/// inside of a leaf larger than the box (a zoom into one) does not count: only its outline
+/// would be hidden.
+fn leaf_pixels_counter<'a>(
+    o: &'a Overlay,
+    lay: &'a Layout,
+) -> impl Fn(Rect) -> (usize, usize) + 'a {
     let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
     let mut listed = vec![false; n];
     for l in o.leaves.iter().filter(|l| l.id >= 0) {
@@ -767,7 +793,7 @@ fn leaf_pixels_counter<'a>(o: &'a Overlay, lay: &'a Layout) -> impl Fn(Rect) -> 
     }
     move |bb: Rect| {
         if listed.is_empty() {
-            return 0;
+            return (0, 0);
         }
         let (x0, y0, w, h) = lay.region;
         let (ax, ay) = lay.figure_to_map(bb.0, bb.3);
@@ -784,24 +810,34 @@ fn leaf_pixels_counter<'a>(o: &'a Overlay, lay: &'a Layout) -> impl Fn(Rect) -> 
         let is_listed = |l: i32| l >= 0 && listed.get(l as usize).copied().unwrap_or(false);
         let (nx, ny) = (o.labels.ncols(), o.labels.nrows());
         let mut count = 0;
+        let mut crossed: Vec<i32> = Vec::new();
         for y in (ya..=yb).step_by(step) {
             for x in (xa..=xb).step_by(step) {
                 // Against the next sample along x and along y, so that no outline passes
                 // between samples unseen.
                 let l = o.labels[[y, x]];
-                let edge = [(x + step, y), (x, y + step)]
-                    .into_iter()
-                    .filter(|&(i, j)| i < nx && j < ny)
-                    .any(|(i, j)| {
-                        let k = o.labels[[j, i]];
-                        k != l && (is_listed(k) || is_listed(l))
-                    });
+                let mut edge = false;
+                for (i, j) in [(x + step, y), (x, y + step)] {
+                    // Within the shown part: outlines beyond it are not drawn.
+                    if i >= nx || j >= ny || i >= x0 + w || j >= y0 + h {
+                        continue;
+                    }
+                    let k = o.labels[[j, i]];
+                    if k != l {
+                        for m in [k, l].into_iter().filter(|&m| is_listed(m)) {
+                            edge = true;
+                            if !crossed.contains(&m) {
+                                crossed.push(m);
+                            }
+                        }
+                    }
+                }
                 if edge {
                     count += step * step;
                 }
             }
         }
-        count
+        (crossed.len(), count)
     }
 }
 
