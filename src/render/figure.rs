@@ -281,7 +281,16 @@ fn colorbar_ticks(lo: f64, hi: f64, stretch: Stretch) -> Vec<(f64, String)> {
     if t.len() >= 2 {
         t
     } else {
-        axes::linear_ticks(lo, hi, 5)
+        // About five steps; where rounding the step up to 1, 2 or 5 leaves two labels only,
+        // a finer step.
+        let t = axes::linear_ticks(lo, hi, 5);
+        if t.len() < 3 {
+            let finer = axes::linear_ticks(lo, hi, 8);
+            if finer.len() > t.len() {
+                return finer;
+            }
+        }
+        t
     }
 }
 
@@ -1850,6 +1859,23 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A colour bar whose about-five steps round up to two labels only (0.05 and 0.10 on
+    /// 0.0098-0.117) gets the finer step of 0.02 instead; one with three or more keeps its own.
+    #[test]
+    fn colour_bars_get_at_least_three_labels_where_a_finer_step_gives_them() {
+        let labels = |lo: f64, hi: f64| -> Vec<String> {
+            colorbar_ticks(lo, hi, Stretch::Linear)
+                .into_iter()
+                .map(|t| t.1)
+                .collect()
+        };
+        assert_eq!(
+            labels(0.0098, 0.117),
+            ["0.02", "0.04", "0.06", "0.08", "0.10"]
+        );
+        assert_eq!(labels(0.0, 1.0), ["0.0", "0.2", "0.4", "0.6", "0.8", "1.0"]);
+    }
 
     /// The gap test that skips segments in `SegIndex::distances` never changes its result:
     /// with no early stop, both distances equal the minima over every segment the grid
