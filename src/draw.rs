@@ -26,7 +26,7 @@ impl SkyAxes for Wcs {
         Wcs::sky_to_pixel(self, lon, lat)
     }
     fn equatorial(&self) -> bool {
-        is_equatorial(self.frame())
+        self.frame().is_equatorial()
     }
     fn pixel_scale_deg(&self) -> f64 {
         // At the reference of the figure: the geometric mean of the two axes at the centre of
@@ -499,14 +499,6 @@ fn frame_coordinates(frame: &SkyFrame) -> &'static str {
     }
 }
 
-/// Whether a frame's longitude is a right ascension (ICRS, FK5, FK4).
-fn is_equatorial(frame: &SkyFrame) -> bool {
-    matches!(
-        frame,
-        SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
-    )
-}
-
 /// Whether pixel (x, y) lies on the map (inside its outer pixel edges).
 fn on_map(map: &Map, x: f64, y: f64) -> bool {
     x > -0.5 && y > -0.5 && x < map.nx() as f64 - 0.5 && y < map.ny() as f64 - 0.5
@@ -603,7 +595,7 @@ pub fn region_asked(text: &str, map: &Map) -> Result<RegionAsked> {
     // Hours (letters or colons) only for the longitude of an equatorial frame: the one named,
     // else the map's.
     let centre_frame = given.as_ref().or(map_frame);
-    let hours = centre_frame.is_some_and(is_equatorial);
+    let hours = centre_frame.is_some_and(SkyFrame::is_equatorial);
     if let Some(f) = centre_frame.filter(|_| !hours && crate::angles::has_colons(parts[0])) {
         return Err(Error::usage(format!(
             "--region '{text}' gives its longitude with colons, which are read as hours of right ascension, but the centre is in the {} frame; give the longitude in degrees, such as 152.8125 or 152d48m45s, or an RA,Dec centre with icrs: first.",
@@ -685,7 +677,7 @@ fn off_map_hint(map: &Map, given: &Option<SkyFrame>, parts: &[&str], deg: f64) -
     };
     let frame = w.frame();
     let lands = |from: &SkyFrame| -> bool {
-        let hours = is_equatorial(from);
+        let hours = from.is_equatorial();
         let (Some(lon), Some(lat)) = (
             crate::angles::parse_longitude(parts[0], hours),
             crate::angles::parse_latitude(parts[1]),
@@ -709,7 +701,7 @@ fn off_map_hint(map: &Map, given: &Option<SkyFrame>, parts: &[&str], deg: f64) -
     );
     let other = match (given, frame) {
         (None, SkyFrame::Galactic) => Some(("icrs", SkyFrame::Icrs)),
-        (None, f) if is_equatorial(f) => Some(("galactic", SkyFrame::Galactic)),
+        (None, f) if f.is_equatorial() => Some(("galactic", SkyFrame::Galactic)),
         _ => None,
     };
     if let Some((prefix, f)) = &other

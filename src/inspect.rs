@@ -690,10 +690,7 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
     let (cx, cy) = ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0);
     let at = scale_pixel(map);
     let sky = map.wcs.as_ref().map(|w| {
-        let equatorial = matches!(
-            w.frame(),
-            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
-        );
+        let equatorial = w.frame().is_equatorial();
         let text = |lon: f64, lat: f64| {
             if equatorial {
                 format!(

@@ -354,7 +354,7 @@ fn pixel_aspect(sky: Option<&dyn SkyAxes>, region: Region) -> f64 {
 /// Computes the layout of a map figure (including the display limits of the colour scale).
 pub fn overlay_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let mut lay = frame_layout(o, s)?;
-    place_compass(o, s, &mut lay);
+    lay.compass = place_compass(o, s, &lay);
     Ok(lay)
 }
 
@@ -392,22 +392,20 @@ fn sky_directions(o: &Overlay, lay: &Layout) -> Option<((f64, f64), (f64, f64))>
     Some((north, east))
 }
 
-/// Adds north and east arrows to a figure whose north is not up (by more than a degree) or
+/// Where north and east arrows go on a figure whose north is not up (by more than a degree) or
 /// whose east is not to the left, in a corner of the frame clear of the beam, the scale bar
 /// and, where one is, of the leaves' outlines: the upper left first, then the upper right,
 /// the lower right, the lower left beside the beam, and the middles of the edges (the first
 /// free, else the least crossed).
-fn place_compass(o: &Overlay, s: &Style, lay: &mut Layout) {
-    let Some((north, east)) = sky_directions(o, lay) else {
-        return;
-    };
+fn place_compass(o: &Overlay, s: &Style, lay: &Layout) -> Option<Compass> {
+    let (north, east) = sky_directions(o, lay)?;
     let up = -north.1;
     let turned = north.0.atan2(up).to_degrees().abs() > 1.0;
     // East to the left of north as seen on the figure (the sky seen from inside): the
     // cross product of north and east, y down, is negative.
     let mirrored = north.0 * east.1 - north.1 * east.0 > 0.0;
     if !(turned || mirrored) {
-        return;
+        return None;
     }
     let m = Metrics::new(s.dpi);
     let fs = m.fs;
@@ -428,7 +426,7 @@ fn place_compass(o: &Overlay, s: &Style, lay: &mut Layout) {
     let (bw, bh) = (bx1 - bx0, by1 - by0);
     let inset = 0.6 * fs;
     if bw + 2.0 * inset > fw || bh + 2.0 * inset > fh {
-        return;
+        return None;
     }
     // What the compass keeps clear of: the beam's and the scale bar's boxes.
     let mut taken: Vec<Rect> = Vec::new();
@@ -447,8 +445,7 @@ fn place_compass(o: &Overlay, s: &Style, lay: &mut Layout) {
         let cx = 0.5 * (ax + bx);
         taken.push((cx - w, ay.min(by) - h, cx + w, ay.max(by) + 0.5 * fs));
     }
-    let view: &Layout = lay;
-    let covered = leaf_pixels_counter(o, view);
+    let covered = leaf_pixels_counter(o, lay);
     // The corners, the lower left beside the beam, then the middles of the edges.
     let beam_right = taken.first().filter(|_| lay.beam.is_some()).map(|b| b.2);
     let corners = [
@@ -465,25 +462,12 @@ fn place_compass(o: &Overlay, s: &Style, lay: &mut Layout) {
         (fx + fw - inset - bw, fy + (fh - bh) / 2.0),
     ];
     let meets = |a: Rect, b: Rect| a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3;
-    let mut best: Option<(Rect, (usize, usize))> = None;
-    for (cx, cy) in corners {
+    let chosen = least_crossed(corners, |(cx, cy)| {
         let bb = (cx, cy, cx + bw, cy + bh);
-        if bb.2 > fx + fw - inset || taken.iter().any(|t| meets(*t, bb)) {
-            continue;
-        }
-        let n = covered(bb);
-        if best.is_none_or(|(_, k)| n < k) {
-            best = Some((bb, n));
-        }
-        if n.1 == 0 {
-            break;
-        }
-    }
-    let origin = best.map(|(bb, _)| (bb.0 - bx0, bb.1 - by0));
-    drop(covered);
-    if let Some(origin) = origin {
-        lay.compass = Some((origin, north, east));
-    }
+        let free = bb.2 <= fx + fw - inset && !taken.iter().any(|t| meets(*t, bb));
+        free.then(|| covered(bb))
+    });
+    chosen.map(|(cx, cy)| ((cx - bx0, cy - by0), north, east))
 }
 
 /// The layout of a map figure but for its compass.
@@ -626,7 +610,7 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     let mut shown = vec![false; o.states.len()];
     // On a zoom, the leaves with a pixel in the shown part only.
     let present: Option<Vec<bool>> = s.region.map(|_| {
-        let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
+        let n = listed_leaves(o).len();
         let mut seen = vec![false; n];
         for &l in o.labels.slice(s![y0..y0 + rh, x0..x0 + rw]).iter() {
             if l >= 0 && (l as usize) < n {
@@ -729,18 +713,11 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             // Leaves just beside the box count too: an outline along the bar's end is as
             // much in the way as one under it.
             let near = 0.3 * fs;
-            let mut best = (corners[0], (usize::MAX, usize::MAX));
-            for &c in &corners {
+            let best = least_crossed(corners.iter().copied(), |c| {
                 let b = block(c);
-                let n = covered((b.0 - near, b.1 - near, b.2 + near, b.3 + near));
-                if n < best.1 {
-                    best = (c, n);
-                }
-                if n.1 == 0 {
-                    break;
-                }
-            }
-            let b = block(best.0);
+                Some(covered((b.0 - near, b.1 - near, b.2 + near, b.3 + near)))
+            });
+            let b = block(best.unwrap_or(corners[0]));
             (b.0 + overhang + bar_w, b.3 - 0.3 * fs)
         } else {
             // A flat panel: the text beside the bar, both centred on the frame's height, at
@@ -759,17 +736,15 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             let covered = leaf_pixels_counter(o, &lay);
             let near = 0.3 * fs;
             let yc = frame.1 + fh / 2.0;
-            let mut best = (starts[0], (usize::MAX, usize::MAX));
-            for &x0 in &starts {
-                let n = covered((x0 - near, yc - h - near, x0 + block_w + near, yc + h + near));
-                if n < best.1 {
-                    best = (x0, n);
-                }
-                if n.1 == 0 {
-                    break;
-                }
-            }
-            (best.0 + block_w, yc)
+            let best = least_crossed(starts.iter().copied(), |x0| {
+                Some(covered((
+                    x0 - near,
+                    yc - h - near,
+                    x0 + block_w + near,
+                    yc + h + near,
+                )))
+            });
+            (best.unwrap_or(starts[0]) + block_w, yc)
         };
         let end = lay.figure_to_map(ex, ey);
         lay.scale_bar = Some(((end.0 - len, end.1), end));
@@ -784,6 +759,38 @@ type Rect = (f64, f64, f64, f64);
 /// pixels (y down).
 pub type Compass = ((f64, f64), (f64, f64), (f64, f64));
 
+/// Whether each label-map id is one of the leaves `o` lists (indexed by id, up to the largest).
+fn listed_leaves(o: &Overlay) -> Vec<bool> {
+    let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
+    let mut v = vec![false; n];
+    for l in o.leaves.iter().filter(|l| l.id >= 0) {
+        v[l.id as usize] = true;
+    }
+    v
+}
+
+/// Of `candidates` in order of preference, the first whose `cost` (from
+/// [`leaf_pixels_counter`]) crosses no outline, else the first of the least cost; candidates
+/// whose cost is None are passed over. None when every one is.
+fn least_crossed<T: Copy>(
+    candidates: impl IntoIterator<Item = T>,
+    cost: impl Fn(T) -> Option<(usize, usize)>,
+) -> Option<T> {
+    let mut best: Option<(T, (usize, usize))> = None;
+    for c in candidates {
+        let Some(n) = cost(c) else {
+            continue;
+        };
+        if best.is_none_or(|(_, k)| n < k) {
+            best = Some((c, n));
+        }
+        if n.1 == 0 {
+            break;
+        }
+    }
+    best.map(|(c, _)| c)
+}
+
 /// A counter of what a box of the figure laid out by `lay` would hide of `o`'s leaves: the
 /// number of leaves whose outline runs under it, and the map pixels where one does (pixels
 /// whose label differs from their right or upper neighbour's, one of the two a listed leaf;
@@ -795,11 +802,7 @@ fn leaf_pixels_counter<'a>(
     o: &'a Overlay,
     lay: &'a Layout,
 ) -> impl Fn(Rect) -> (usize, usize) + 'a {
-    let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
-    let mut listed = vec![false; n];
-    for l in o.leaves.iter().filter(|l| l.id >= 0) {
-        listed[l.id as usize] = true;
-    }
+    let listed = listed_leaves(o);
     move |bb: Rect| {
         if listed.is_empty() {
             return (0, 0);
@@ -1226,14 +1229,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         }
     }
     // Only the listed leaves are traced: the label map may hold other structures too.
-    let listed = {
-        let n = o.leaves.iter().map(|l| l.id.max(-1) + 1).max().unwrap_or(0) as usize;
-        let mut v = vec![false; n];
-        for l in o.leaves.iter().filter(|l| l.id >= 0) {
-            v[l.id as usize] = true;
-        }
-        v
-    };
+    let listed = listed_leaves(o);
     let traced = trace_outlines_mapped(
         o.labels.slice(s![wy0..wy1, wx0..wx1]),
         (wx0 as f64, wy0 as f64),

@@ -65,6 +65,16 @@ pub enum SkyFrame {
     Other(String),
 }
 
+impl SkyFrame {
+    /// Whether the frame's longitude is a right ascension (ICRS, FK5, FK4).
+    pub fn is_equatorial(&self) -> bool {
+        matches!(
+            self,
+            SkyFrame::Icrs | SkyFrame::Fk5 { .. } | SkyFrame::Fk4 { .. }
+        )
+    }
+}
+
 /// A WCS problem in a header, as one sentence naming the keyword.
 #[derive(Debug, Clone, PartialEq)]
 pub struct WcsError(pub String);
