@@ -893,9 +893,10 @@ pub fn check_figure_style(map: &Map, style: &Style) -> Result<()> {
 pub struct Figures {
     /// The map with the leaves' outlines and labels.
     pub overlay: render::MapFigure,
-    /// The tree diagram as PNG and SVG; empty when there is no structure.
+    /// The tree diagram as PNG, SVG and PDF; empty when there is no structure.
     pub tree_png: Vec<u8>,
     pub tree_svg: String,
+    pub tree_pdf: Vec<u8>,
     /// The tree's leaves, and how many of them are drawn without their id (all of them when
     /// the diagram is too crowded for ids, which it says under its legend).
     pub tree_leaves: usize,
@@ -1040,6 +1041,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             overlay,
             tree_png: t.png,
             tree_svg: t.svg,
+            tree_pdf: t.pdf,
             tree_leaves: t.leaves,
             tree_ids_left_out: t.ids_left_out,
             labels_chosen,
@@ -1048,6 +1050,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             overlay,
             tree_png: Vec::new(),
             tree_svg: String::new(),
+            tree_pdf: Vec::new(),
             tree_leaves: 0,
             tree_ids_left_out: 0,
             labels_chosen,

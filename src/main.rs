@@ -80,7 +80,7 @@ const SEGMENT_HELP: &str = "Thresholds take units: --floor 5sigma or 2e21cm-2, -
 A floor in sigma is that many noise widths above the background (the clipped median of the map); a value in map units is an absolute level.
 Without them: floor 3 sigma above the clipped median, prominence 3 sigma, min-area one beam (a starting point: check `cairn inspect`).
 Writes structures.csv/.fits/.vot, labels.fits (smallest structure per pixel, with the map's WCS), hierarchy.json/.dot and run.json;
-overlay.png/.svg and tree.png/.svg unless --no-figure; with --grow-leaves, leaves-grown.fits and
+overlay.png/.svg/.pdf and tree.png/.svg/.pdf unless --no-figure; with --grow-leaves, leaves-grown.fits and
 structures-grown.csv/.fits/.vot (the leaves measured over those footprints, above the floor).
 Caution: the catalogue's masses carry factor-of-two systematics from dust opacity, temperature and distance
 (mass_err is the map noise only); density, Jeans, Bonnor-Ebert and virial columns use mass_excess.";
@@ -141,7 +141,7 @@ struct SegmentArgs {
     /// 0.05pc (needs --distance and a beam), so clouds at different distances compare fairly.
     #[arg(long, value_name = "LENGTH", allow_hyphen_values = true)]
     common_resolution: Option<String>,
-    /// Draw no figures (overlay.png/svg, tree.png/svg).
+    /// Draw no figures (overlay.png/svg/pdf, tree.png/svg/pdf).
     #[arg(long)]
     no_figure: bool,
     #[command(flatten)]
@@ -1863,6 +1863,10 @@ fn run_completeness(a: &CompareArgs, quiet: bool) -> Result<()> {
                 .map_err(plot_err)?
                 .into_bytes(),
         ),
+        (
+            "completeness.pdf".into(),
+            cairn::render::plot::plot_pdf(&plot, a.width, 300.0).map_err(plot_err)?,
+        ),
         ("matches.csv".into(), matches.to_csv().into_bytes()),
         (
             "completeness.csv".into(),
@@ -2535,6 +2539,10 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
                 .map_err(plot_err)?
                 .into_bytes(),
         ));
+        files.push((
+            format!("{name}.pdf"),
+            cairn::render::plot::plot_pdf(plot, a.width, 300.0).map_err(plot_err)?,
+        ));
     }
     let names: Vec<String> = files.iter().map(|(n, _)| n.clone()).collect();
     // A catalogue given as a file could sit in the output folder under an output's name.
@@ -2598,37 +2606,28 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     // whenever the run has structures.
     let with_tree = !run.structures.is_empty();
     let dir = a.output.clone().unwrap_or_else(|| a.run.clone());
-    let mut list = vec![
-        names::OVERLAY_PNG.to_string(),
-        names::OVERLAY_SVG.to_string(),
-    ];
-    if with_tree {
-        list.push(names::TREE_PNG.into());
-        list.push(names::TREE_SVG.into());
-    }
+    let every: Vec<String> = names::FIGURES.map(String::from).to_vec();
+    let list: Vec<String> = every
+        .iter()
+        .filter(|n| with_tree || !names::TREE_FIGURES.contains(&n.as_str()))
+        .cloned()
+        .collect();
     // The map (given or recorded in the run) must not be one of the figures' names.
-    let every: Vec<String> = [
-        names::OVERLAY_PNG,
-        names::OVERLAY_SVG,
-        names::TREE_PNG,
-        names::TREE_SVG,
-    ]
-    .map(String::from)
-    .to_vec();
     output::refuse_inputs_as_outputs(&dir, &every, &[run.map.path.as_path()])?;
     let outputs = output::Outputs::plan(&dir, &list, a.force)?;
     let figs = cairn::draw::figures(&input, &style)?;
     stage("writing", 900);
-    let (png, svg) = (&figs.overlay.png, &figs.overlay.svg);
-    let (tpng, tsvg) = (&figs.tree_png, &figs.tree_svg);
-    if tpng.is_empty() == with_tree {
+    if figs.tree_png.is_empty() == with_tree {
         return Err(Error::internal("the tree diagram was not drawn as planned"));
     }
-    output::write_bytes(&outputs.temp(names::OVERLAY_PNG), png)?;
-    output::write_bytes(&outputs.temp(names::OVERLAY_SVG), svg.as_bytes())?;
-    if !tpng.is_empty() {
-        output::write_bytes(&outputs.temp(names::TREE_PNG), tpng)?;
-        output::write_bytes(&outputs.temp(names::TREE_SVG), tsvg.as_bytes())?;
+    let o = &figs.overlay;
+    output::write_bytes(&outputs.temp(names::OVERLAY_PNG), &o.png)?;
+    output::write_bytes(&outputs.temp(names::OVERLAY_SVG), o.svg.as_bytes())?;
+    output::write_bytes(&outputs.temp(names::OVERLAY_PDF), &o.pdf)?;
+    if with_tree {
+        output::write_bytes(&outputs.temp(names::TREE_PNG), &figs.tree_png)?;
+        output::write_bytes(&outputs.temp(names::TREE_SVG), figs.tree_svg.as_bytes())?;
+        output::write_bytes(&outputs.temp(names::TREE_PDF), &figs.tree_pdf)?;
     }
     let written = outputs.commit()?;
     if let Some(b) = bar {

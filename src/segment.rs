@@ -848,8 +848,23 @@ pub mod names {
     pub const TREE_PNG: &str = "tree.png";
     /// The tree diagram (SVG).
     pub const TREE_SVG: &str = "tree.svg";
+    /// The map with its leaves (PDF).
+    pub const OVERLAY_PDF: &str = "overlay.pdf";
+    /// The tree diagram (PDF).
+    pub const TREE_PDF: &str = "tree.pdf";
+    /// The figures, in the order they are listed: map then tree, each as PNG, SVG and PDF.
+    pub const FIGURES: [&str; 6] = [
+        OVERLAY_PNG,
+        OVERLAY_SVG,
+        OVERLAY_PDF,
+        TREE_PNG,
+        TREE_SVG,
+        TREE_PDF,
+    ];
+    /// The tree diagram's files.
+    pub const TREE_FIGURES: [&str; 3] = [TREE_PNG, TREE_SVG, TREE_PDF];
     /// Every file a run may write.
-    pub const ALL: [&str; 15] = [
+    pub const ALL: [&str; 17] = [
         CSV,
         FITS_TABLE,
         VOTABLE,
@@ -863,8 +878,10 @@ pub mod names {
         RUN,
         OVERLAY_PNG,
         OVERLAY_SVG,
+        OVERLAY_PDF,
         TREE_PNG,
         TREE_SVG,
+        TREE_PDF,
     ];
 }
 
@@ -1658,14 +1675,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         }
     }
     if o.figure.is_some() {
-        for n in [
-            names::OVERLAY_PNG,
-            names::OVERLAY_SVG,
-            names::TREE_PNG,
-            names::TREE_SVG,
-        ] {
-            names_list.push(n.into());
-        }
+        names_list.extend(names::FIGURES.map(String::from));
     }
     // Every name a run may write or (with --force) remove must spare the inputs.
     let every: Vec<String> = names::ALL.iter().map(|s| s.to_string()).collect();
@@ -1994,25 +2004,27 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         };
         progress("figures", 0.0);
         let figs = crate::draw::figures(&input, style)?;
-        let (tpng, tsvg) = (&figs.tree_png, &figs.tree_svg);
         output::write_bytes(&outputs.temp(names::OVERLAY_PNG), &figs.overlay.png)?;
         output::write_bytes(
             &outputs.temp(names::OVERLAY_SVG),
             figs.overlay.svg.as_bytes(),
         )?;
+        output::write_bytes(&outputs.temp(names::OVERLAY_PDF), &figs.overlay.pdf)?;
         labels = Some((figs.overlay.leaves_in_frame, figs.overlay.labels_left_out));
         labels_chosen = Some(figs.labels_chosen);
         tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
         beam_px = figs.overlay.beam_px;
         scale_bar_left_out = figs.overlay.scale_bar_left_out;
-        if tpng.is_empty() {
+        if figs.tree_png.is_empty() {
             // No structure: there is no tree to draw.
-            outputs.skip(names::TREE_PNG);
-            outputs.skip(names::TREE_SVG);
+            for n in names::TREE_FIGURES {
+                outputs.skip(n);
+            }
         } else {
-            output::write_bytes(&outputs.temp(names::TREE_PNG), tpng)?;
-            output::write_bytes(&outputs.temp(names::TREE_SVG), tsvg.as_bytes())?;
+            output::write_bytes(&outputs.temp(names::TREE_PNG), &figs.tree_png)?;
+            output::write_bytes(&outputs.temp(names::TREE_SVG), figs.tree_svg.as_bytes())?;
+            output::write_bytes(&outputs.temp(names::TREE_PDF), &figs.tree_pdf)?;
         }
         progress("figures", 1.0);
     }

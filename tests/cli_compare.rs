@@ -201,8 +201,10 @@ fn compare_reports_statistics_and_fairness() {
         "tests.csv",
         "mass_functions.png",
         "mass_functions.svg",
+        "mass_functions.pdf",
         "mass_size.png",
         "mass_size.svg",
+        "mass_size.pdf",
     ] {
         assert!(d.path().join("cmp").join(f).is_file());
     }

@@ -391,7 +391,9 @@ fn force_leaves_no_file_of_the_earlier_run() {
     assert_eq!(code, 0, "{stderr}");
     for name in [
         "overlay.png",
+        "overlay.pdf",
         "tree.svg",
+        "tree.pdf",
         "leaves-grown.fits",
         "structures-grown.csv",
         "structures-grown.fits",
@@ -503,7 +505,7 @@ fn an_interrupted_run_leaves_no_partial_output() {
         // before the handler is installed ends the process at once, with no folder either.
         let files = std::fs::read_dir(&run).map(|r| r.count()).unwrap_or(0);
         assert!(
-            !run.exists() || files == 11,
+            !run.exists() || files == 13,
             "signal at {delay_ms} ms ({status:?}): {files} files left"
         );
         // Ended by the signal itself (after the clean-up), as its default action would.
@@ -538,7 +540,7 @@ fn a_run_under_nohup_outlives_a_hang_up() {
     let status = child.wait().unwrap();
     assert!(status.success(), "{status:?}");
     let files = std::fs::read_dir(d.path().join("run")).unwrap().count();
-    assert_eq!(files, 11, "the whole run");
+    assert_eq!(files, 13, "the whole run");
 }
 
 /// Messages that name what the user did: a negative prominence in sigma is quoted as given,

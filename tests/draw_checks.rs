@@ -161,7 +161,14 @@ fn segment_figures_are_well_formed_and_redrawn_identically() {
         .status()
         .unwrap();
     assert!(status.success());
-    for f in ["overlay.png", "overlay.svg", "tree.png", "tree.svg"] {
+    for f in [
+        "overlay.png",
+        "overlay.svg",
+        "overlay.pdf",
+        "tree.png",
+        "tree.svg",
+        "tree.pdf",
+    ] {
         assert!(
             std::fs::read(out.join(f)).unwrap() == std::fs::read(redraw.join(f)).unwrap(),
             "{f} redrawn identically"

@@ -399,7 +399,7 @@ fn draw_redoes_the_smoothing_of_a_common_resolution_run() {
         d.path(),
     );
     assert_eq!(o.code, 0, "{}", o.stderr);
-    for f in ["overlay.png", "overlay.svg"] {
+    for f in ["overlay.png", "overlay.svg", "overlay.pdf"] {
         assert!(
             std::fs::read(d.path().join("drawn").join(f)).unwrap()
                 == std::fs::read(d.path().join("again").join(f)).unwrap(),

@@ -6,7 +6,7 @@
 //! With `CAIRN_PLOT_DIR` set, the figures are also written there to be looked at.
 
 use cairn::render::plot::{
-    AxisScale, Guide, Plot, PlotTick, Series, plot_axes, plot_png, plot_svg, scale_ticks,
+    AxisScale, Guide, Plot, PlotTick, Series, plot_axes, plot_pdf, plot_png, plot_svg, scale_ticks,
 };
 
 /// A small deterministic generator of uniform numbers in (0, 1).
@@ -528,6 +528,26 @@ fn png_decodes_at_the_requested_width() {
             let ax = plot_axes(&p, w, dpi).unwrap();
             assert_eq!(img.height(), ax.height);
             assert!(img.height() > w / 2 && img.height() < w);
+            // The PDF is one page of the same print size: 72 points to the inch
+            // (ISO 32000-1 sec. 8.3.2.3), written as 32-bit numbers.
+            let pdf = plot_pdf(&p, w, dpi).unwrap();
+            let text = String::from_utf8_lossy(&pdf);
+            let at = text.find("/MediaBox [0 0 ").unwrap() + "/MediaBox [0 0 ".len();
+            let size: Vec<f64> = text[at..at + text[at..].find(']').unwrap()]
+                .split_whitespace()
+                .map(|t| t.parse().unwrap())
+                .collect();
+            assert!((size[0] - w as f64 / dpi * 72.0).abs() < 1e-3, "{name}");
+            assert!(
+                (size[1] - ax.height as f64 / dpi * 72.0).abs() < 1e-3,
+                "{name}"
+            );
+            assert_eq!(text.matches("/Type /Page\n").count(), 1, "{name}");
+            assert_eq!(
+                pdf,
+                plot_pdf(&p, w, dpi).unwrap(),
+                "{name}: PDF bytes repeat"
+            );
         }
     }
 }

@@ -6,6 +6,8 @@ use cairn::render::{
     TreeNode, axis_ticks, beam_geometry, overlay_layout, render_png, render_svg, trace_outlines,
     tree_png, tree_svg,
 };
+#[path = "common/mod.rs"]
+mod common;
 #[path = "common/svg_layout.rs"]
 mod svg_layout;
 
@@ -1629,4 +1631,122 @@ fn a_flat_panel_keeps_the_scale_bar_text_inside_the_frame() {
     );
     let fig = render::render_map_figure(&o, &Style::default()).unwrap();
     assert!(!fig.scale_bar_left_out && fig.svg.contains("scale-bar"));
+}
+
+/// The largest difference over the three colour channels of each pixel of two RGB images of
+/// the same size.
+fn channel_differences(a: &image::RgbImage, b: &image::RgbImage) -> Vec<u8> {
+    assert_eq!(
+        a.dimensions(),
+        b.dimensions(),
+        "the two images have one size"
+    );
+    a.pixels()
+        .zip(b.pixels())
+        .map(|(p, q)| (0..3).map(|c| p[c].abs_diff(q[c])).max().unwrap_or(0))
+        .collect()
+}
+
+#[test]
+fn pdf_check_figure_is_what_cairn_makes_now() {
+    // The oracle rendered the stored PDF; it must still be cairn's output, byte for byte.
+    let (png, pdf) = render::pdf_check_figure().unwrap();
+    for (name, fresh) in [("check.png", &png), ("check.pdf", &pdf)] {
+        let stored = std::fs::read(common::fixture_path(&format!("render/{name}"))).unwrap();
+        assert!(
+            *fresh == stored,
+            "{name} differs from fixtures/render/{name}: run `cargo run --example make_render_fixture` and tests/oracle/render_pdf_pdfium.py"
+        );
+    }
+}
+
+#[test]
+fn pdf_drawn_by_pdfium_matches_the_png_of_the_same_figure() {
+    // pypdfium2 5.15.2 (PDFium) rendered cairn's PDF of its check figure at the figure's
+    // resolution (tests/oracle/render_pdf_pdfium.py); cairn's PNG of the same scene is drawn
+    // by tiny-skia. The two renderers smooth edges in their own ways, so pixels along edges
+    // differ by some levels; a wrong transformation, a flipped image, a lost clip, a missing
+    // translucency, dash or halo would differ over whole areas.
+    let meta = common::fixture_json("render/check-pdfium.json");
+    let pdfium = image::open(common::fixture_path("render/check-pdfium.png"))
+        .unwrap()
+        .to_rgb8();
+    let ours = image::open(common::fixture_path("render/check.png"))
+        .unwrap()
+        .to_rgb8();
+    // One page of the print size: 240 x 180 figure pixels at 144 dpi are 120 x 90 points
+    // (72 points to the inch, ISO 32000-1 sec. 8.3.2.3).
+    assert_eq!(meta["pages"], 1);
+    assert_eq!(meta["width_pt"].as_f64(), Some(240.0 / 144.0 * 72.0));
+    assert_eq!(meta["height_pt"].as_f64(), Some(180.0 / 144.0 * 72.0));
+    let d = channel_differences(&pdfium, &ours);
+    let mean = d.iter().map(|&v| v as f64).sum::<f64>() / d.len() as f64;
+    let over = |t: u8| d.iter().filter(|&&v| v > t).count() as f64 / d.len() as f64;
+    assert!(mean < 2.0, "mean difference {mean} levels");
+    assert!(
+        over(32) < 0.01,
+        "{} of the pixels differ by more than 32",
+        over(32)
+    );
+    assert_eq!(over(96), 0.0, "no pixel differs by more than 96 levels");
+    // The comparison tells a wrong figure apart: the same PNG upside down differs widely.
+    let flipped = image::imageops::flip_vertical(&ours);
+    let df = channel_differences(&pdfium, &flipped);
+    let mean_flipped = df.iter().map(|&v| v as f64).sum::<f64>() / df.len() as f64;
+    assert!(mean_flipped > 10.0 * mean.max(1.0), "{mean_flipped}");
+}
+
+/// The numbers of a PDF's `/MediaBox [0 0 w h]`.
+fn media_box(pdf: &[u8]) -> (f64, f64) {
+    let text = String::from_utf8_lossy(pdf);
+    let at = text.find("/MediaBox [").expect("a MediaBox") + "/MediaBox [".len();
+    let end = at + text[at..].find(']').unwrap();
+    let v: Vec<f64> = text[at..end]
+        .split_whitespace()
+        .map(|t| t.parse().unwrap())
+        .collect();
+    assert_eq!((v[0], v[1]), (0.0, 0.0));
+    (v[2], v[3])
+}
+
+#[test]
+fn map_and_tree_pdfs_are_one_page_of_the_print_size_and_repeat() {
+    let l = tricky_labels();
+    let map = smooth_map(6, 10);
+    let o = plain_overlay(&map, &l, leaves_of(&l));
+    let style = Style {
+        width_px: 700,
+        dpi: 100.0,
+        ..Style::default()
+    };
+    let fig = render::render_map_figure(&o, &style).unwrap();
+    let lay = overlay_layout(&o, &style).unwrap();
+    assert!(fig.pdf.starts_with(b"%PDF-1.7"));
+    let (w, h) = media_box(&fig.pdf);
+    // Points are 1/72 inch; the figure is width/dpi inches wide (f32 in the file).
+    assert!((w - 700.0 / 100.0 * 72.0).abs() < 1e-3, "{w}");
+    assert!((h - lay.height as f64 / 100.0 * 72.0).abs() < 1e-3, "{h}");
+    assert_eq!(fig.pdf, render::render_map_figure(&o, &style).unwrap().pdf);
+    let node = |id, parent, top, bottom, is_leaf| TreeNode {
+        id,
+        parent,
+        top,
+        bottom,
+        is_leaf,
+        state: None,
+    };
+    let nodes = vec![
+        node(0, None, 5.0, 1.0, false),
+        node(1, Some(0), 4.0, 2.0, true),
+        node(2, Some(0), 4.5, 2.0, true),
+    ];
+    let t = render::render_tree_figure(&nodes, &states(), "level", &style).unwrap();
+    let (tw, _) = media_box(&t.pdf);
+    assert!((tw - 700.0 / 100.0 * 72.0).abs() < 1e-3, "{tw}");
+    assert_eq!(
+        t.pdf,
+        render::render_tree_figure(&nodes, &states(), "level", &style)
+            .unwrap()
+            .pdf
+    );
 }

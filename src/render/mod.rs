@@ -10,10 +10,11 @@
 //!
 //! Inputs are plain data ([`Overlay`], [`TreeNode`], [`Style`]) so this module needs nothing
 //! from the rest of cairn; sky coordinates come through the [`SkyAxes`] trait. Every figure is
-//! built once as a list of primitives and written either as PNG (anti-aliased with
-//! `tiny-skia`) or as SVG (vector outlines, the map as an embedded PNG, text as glyph outlines
-//! of the bundled DejaVu Sans font), so both outputs agree and are byte-identical from run to
-//! run and machine to machine.
+//! built once as a list of primitives and written as PNG (anti-aliased with `tiny-skia`), as
+//! SVG (vector outlines, the map as an embedded PNG, text as glyph outlines of the bundled
+//! DejaVu Sans font) and as PDF (the same vector outlines and image on one page of the print
+//! size, `pdf.rs`), so the outputs agree and are byte-identical from run to run and machine to
+//! machine.
 //!
 //! Colours of states follow the palette of Okabe & Ito (2008, "Color Universal Design",
 //! chosen to stay distinguishable for the common forms of colour-vision deficiency), and each
@@ -27,6 +28,7 @@ pub mod axes;
 mod figure;
 mod legend;
 pub mod outline;
+mod pdf;
 pub mod plot;
 pub mod raster;
 mod scene;
@@ -39,6 +41,7 @@ pub use figure::{
     beam_geometry, narrowest_width_px, overlay_layout,
 };
 pub use outline::{Ring, ring_area, simplify_ring, trace_outlines};
+pub use pdf::check_scene as pdf_check_figure;
 pub use raster::colorize;
 pub use tree::{MIN_ID_PT, TreeLayout, tree_layout};
 
@@ -293,10 +296,11 @@ pub fn render_svg(o: &Overlay, s: &Style) -> Result<String, RenderError> {
     figure::scene(o, s)?.to_svg()
 }
 
-/// The map figure in both formats, drawn once, with how its leaf labels fared.
+/// The map figure in its three formats, drawn once, with how its leaf labels fared.
 pub struct MapFigure {
     pub png: Vec<u8>,
     pub svg: String,
+    pub pdf: Vec<u8>,
     /// Leaves to be labelled (a non-empty [`LeafStyle::label`]) whose peak lies inside the
     /// figure's frame.
     pub leaves_in_frame: usize,
@@ -317,14 +321,15 @@ pub struct MapFigure {
 /// said to be too small to be seen (common practice: a few pixels of a printed figure).
 pub const LEAST_VISIBLE_BEAM_PX: f64 = 4.0;
 
-/// Draws the map figure as PNG and SVG ([`render_png`], [`render_svg`]) from one layout.
+/// Draws the map figure as PNG, SVG and PDF ([`render_png`], [`render_svg`]) from one layout.
 pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderError> {
     let sc = figure::scene(o, s)?;
-    // The two encodings share nothing but the scene; each compresses an image of the map.
-    let (png, svg) = rayon::join(|| sc.to_png(), || sc.to_svg());
+    // The encodings share nothing but the scene; each compresses an image of the map.
+    let (png, (svg, pdf)) = rayon::join(|| sc.to_png(), || (sc.to_svg(), sc.to_pdf()));
     Ok(MapFigure {
         png: png?,
         svg: svg?,
+        pdf: pdf?,
         leaves_in_frame: sc.leaves_to_label,
         labels_left_out: sc.labels_left_out,
         y_stretch: sc.y_stretch,
@@ -344,10 +349,11 @@ pub fn tree_png(
     tree::scene(nodes, states, level_label, s)?.to_png()
 }
 
-/// The tree diagram in both formats, drawn once, with how its leaf ids fared.
+/// The tree diagram in its three formats, drawn once, with how its leaf ids fared.
 pub struct TreeFigure {
     pub png: Vec<u8>,
     pub svg: String,
+    pub pdf: Vec<u8>,
     /// The leaves of the tree.
     pub leaves: usize,
     /// Leaves drawn without their id: all of them when the diagram has no room for ids of
@@ -355,7 +361,7 @@ pub struct TreeFigure {
     pub ids_left_out: usize,
 }
 
-/// Draws the tree diagram as PNG and SVG ([`tree_png`], [`tree_svg`]) from one layout.
+/// Draws the tree diagram as PNG, SVG and PDF ([`tree_png`], [`tree_svg`]) from one layout.
 pub fn render_tree_figure(
     nodes: &[TreeNode],
     states: &[StateLegend],
@@ -363,10 +369,11 @@ pub fn render_tree_figure(
     s: &Style,
 ) -> Result<TreeFigure, RenderError> {
     let sc = tree::scene(nodes, states, level_label, s)?;
-    let (png, svg) = rayon::join(|| sc.to_png(), || sc.to_svg());
+    let (png, (svg, pdf)) = rayon::join(|| sc.to_png(), || (sc.to_svg(), sc.to_pdf()));
     Ok(TreeFigure {
         png: png?,
         svg: svg?,
+        pdf: pdf?,
         leaves: sc.leaves_to_label,
         ids_left_out: sc.labels_left_out,
     })

@@ -128,7 +128,12 @@ pub struct PlotAxes {
 /// Draws the plot as PNG bytes (RGB, resolution recorded), `width_px` wide; the height
 /// follows from the frame's 4:3 shape and the margins. Text is 9 pt at `dpi`.
 pub fn plot_png(p: &Plot, width_px: u32, dpi: f64) -> Result<Vec<u8>, RenderError> {
-    build(p, width_px, dpi)?.to_png()
+    build(p, width_px, dpi)?.flat_scene().to_png()
+}
+
+/// Draws the plot as a one-page PDF (see [`plot_png`]).
+pub fn plot_pdf(p: &Plot, width_px: u32, dpi: f64) -> Result<Vec<u8>, RenderError> {
+    build(p, width_px, dpi)?.flat_scene().to_pdf()
 }
 
 /// Draws the plot as SVG text (see [`plot_png`]).
@@ -684,7 +689,9 @@ impl Group {
 }
 
 impl Figure {
-    fn to_png(&self) -> Result<Vec<u8>, RenderError> {
+    /// The plot as a flat scene (turned text turned into its outlines), for the PNG and the
+    /// PDF.
+    fn flat_scene(&self) -> Scene {
         let mut sc = Scene::new(self.width, self.height, self.dpi, &self.title);
         sc.clip = Some(self.frame);
         for g in &self.groups {
@@ -702,7 +709,7 @@ impl Figure {
                 });
             }
         }
-        sc.to_png()
+        sc
     }
 
     fn to_svg(&self) -> String {
