@@ -2274,6 +2274,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         }
         labels_note(in_frame, left_out);
         stretch_note(summary.figure_y_stretch);
+        narrowed_note(summary.figure_narrowed_to, a.style.width);
         beam_note(summary.figure_beam_px);
         scale_bar_note(summary.figure_scale_bar_left_out);
     }
@@ -2636,6 +2637,10 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     chosen_note(&a.style.labels, figs.labels_chosen);
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
+    narrowed_note(
+        Some(figs.overlay.width_px).filter(|&w| w < a.style.width),
+        a.style.width,
+    );
     beam_note(figs.overlay.beam_px);
     scale_bar_note(figs.overlay.scale_bar_left_out);
     tree_note(figs.tree_leaves, figs.tree_ids_left_out);
@@ -2687,6 +2692,15 @@ fn stretch_note(y_stretch: Option<f64>) {
     if let Some(r) = y_stretch {
         outln!(
             "figure: the map is drawn at {r:.3} times the scale along y as along x, to keep the figure a usable size; draw a --region for equal scales"
+        );
+    }
+}
+
+/// Says that the overlay is narrower than `--width` asked for, and why.
+fn narrowed_note(narrowed_to: Option<u32>, asked: u32) {
+    if let Some(w) = narrowed_to {
+        outln!(
+            "figure: {w} pixels wide rather than --width {asked}, as the tall map's panel (at most twice the width tall) fills no more"
         );
     }
 }

@@ -920,6 +920,9 @@ pub struct RunSummary {
     /// With a figure of a very long and narrow map: the scale along y over that along x
     /// (the map is then drawn at unequal scales to keep the figure a usable size).
     pub figure_y_stretch: Option<f64>,
+    /// The overlay's width in pixels when it is narrower than the requested width (a tall
+    /// map, whose panel fills no more).
+    pub figure_narrowed_to: Option<u32>,
     /// With a figure: the beam's drawn size in figure pixels (the smaller side of its box).
     pub figure_beam_px: Option<f64>,
     /// With a figure: its scale bar was left out, the map's frame too narrow for it.
@@ -1960,6 +1963,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let mut labels_chosen = None;
     let mut tree_ids = None;
     let mut y_stretch = None;
+    let mut narrowed_to = None;
     let mut beam_px = None;
     let mut scale_bar_left_out = false;
     if let Some(style) = &o.figure {
@@ -2014,6 +2018,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         labels_chosen = Some(figs.labels_chosen);
         tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
+        narrowed_to = Some(figs.overlay.width_px).filter(|&w| w < style.width_px);
         beam_px = figs.overlay.beam_px;
         scale_bar_left_out = figs.overlay.scale_bar_left_out;
         if figs.tree_png.is_empty() {
@@ -2132,6 +2137,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         figure_labels_chosen: labels_chosen,
         figure_tree_ids: tree_ids,
         figure_y_stretch: y_stretch,
+        figure_narrowed_to: narrowed_to,
         figure_beam_px: beam_px,
         figure_scale_bar_left_out: scale_bar_left_out,
     })

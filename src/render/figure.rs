@@ -104,6 +104,8 @@ pub fn beam_geometry(
 /// Where everything goes on a map figure, in output pixels (origin top left, y down).
 #[derive(Debug, Clone)]
 pub struct Layout {
+    /// The figure's width: the requested width, or less for a map whose panel (bounded in
+    /// height, see [`PANEL_MAX_HEIGHT`]) is narrower than the width would allow.
     pub width: u32,
     pub height: u32,
     /// The shown part of the map: x0, y0, width, height in map pixels.
@@ -571,7 +573,7 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
                 return Err((w_total + need + 1.0).ceil());
             }
             if (b_ok || nb <= 2) && (l_ok || nl <= 2) {
-                return Ok((ticks, left, fw, fh, kx, ky, equal));
+                return Ok((ticks, left, fw, fh, kx, ky, equal, avail));
             }
             if !b_ok && nb > 2 {
                 nb -= 1;
@@ -581,7 +583,7 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             }
         }
     };
-    let (ticks, left, fw, fh, kx, ky, equal) = match fit(w_total) {
+    let (ticks, left, fw, fh, kx, ky, equal, avail) = match fit(w_total) {
         Ok(v) => v,
         Err(need) => {
             // The narrowest width that works, found the way the layout decides.
@@ -631,15 +633,36 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         && o.branch_labels.is_some()
         && o.branch_of.is_none_or(|of| of.iter().any(|&b| b >= 0));
     let keys = legend::keys(&o.states, &shown, branches);
-    let rows = legend::rows(&keys, fs, m.gap, w_total - 2.0 * m.pad);
+    // A tall map's panel is narrower than the width available to it: the figure is then
+    // narrowed to what it holds (the panel with its margins, the titles centred on the panel,
+    // the legend's entries broken between words where they need it), rather than left blank
+    // on the right.
+    let width = if fw < avail {
+        let centred = |t: &str, size: f64| left + fw / 2.0 + text::width(t, size) / 2.0 + m.pad;
+        let legend_w = keys
+            .iter()
+            .flat_map(|(_, words)| words.split(' '))
+            .map(|word| legend::SAMPLE_FS * fs + m.gap + text::width(word, fs))
+            .fold(0.0, f64::max);
+        let title_w = o.title.as_deref().map_or(0.0, |t| centred(t, 1.15 * fs));
+        (left + fw + right)
+            .max(centred(&ticks.bottom_title, fs))
+            .max(title_w)
+            .max(legend_w + 2.0 * m.pad)
+            .ceil()
+            .min(w_total)
+    } else {
+        w_total
+    };
+    let rows = legend::rows(&keys, fs, m.gap, width - 2.0 * m.pad);
     let below = (m.tick + m.gap + 1.25 * lfs + m.gap + 1.3 * fs).max(spill + m.gap);
     let legend_top = frame.1 + fh + below + m.pad;
     let legend_h = rows.len() as f64 * 1.5 * fs;
     let height = (legend_top + legend_h + m.pad).ceil() as u32;
-    check_figure_size(s.width_px, height)?;
+    check_figure_size(width as u32, height)?;
 
     let mut lay = Layout {
-        width: s.width_px,
+        width: width as u32,
         height,
         region,
         frame,

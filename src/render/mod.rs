@@ -315,6 +315,9 @@ pub struct MapFigure {
     pub beam_px: Option<f64>,
     /// The scale bar was asked for and left out, the map's frame too narrow for it.
     pub scale_bar_left_out: bool,
+    /// The figure's width in pixels: the requested width, or less for a tall map whose panel
+    /// is narrower than that width allows (the figure is not left blank beside it).
+    pub width_px: u32,
 }
 
 /// A beam drawn smaller than this many figure pixels across (its box's smaller side) is
@@ -334,6 +337,7 @@ pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderErro
         labels_left_out: sc.labels_left_out,
         y_stretch: sc.y_stretch,
         beam_px: sc.beam_px,
+        width_px: sc.width,
         scale_bar_left_out: sc.scale_bar_left_out,
     })
 }
