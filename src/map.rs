@@ -1963,7 +1963,7 @@ fn keyword_wavelength(h: &Header, warnings: &mut Vec<String>) -> Option<f64> {
 
 /// Whether a BUNIT that cairn does not parse still names a quantity cairn converts: a column
 /// density, an extinction or a dust brightness written with a scale factor (`1e21 cm-2`) or an
-/// unfamiliar spelling (`H2/cm2`, `mJy/arcmin2`, `W m-2 sr-1`). Velocity-integrated units
+/// unfamiliar spelling (`H2/cm2`, `mJy/sqarcmin`, `W m-2 sr-1`). Velocity-integrated units
 /// (`K km/s`, `Jy/beam km/s`) are not: they are line maps, measured for their structure.
 fn looks_convertible(text: &str) -> bool {
     let t = text.trim().to_ascii_lowercase();

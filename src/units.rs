@@ -3,16 +3,18 @@
 //! Owns one small parser for quantities written with their unit (`18.2arcsec`, `850um`,
 //! `300pc`, `12K`, `3sigma`, `2e21cm-2`, `3beam`), conversion of each to SI, and the reading
 //! of a FITS `BUNIT` string into the kind of quantity a map holds (column density, extinction,
-//! surface brightness per steradian or per square arcsecond, flux density per beam or per
-//! pixel). Unit strings follow the FITS Standard, Definition of the Flexible Image Transport
-//! System (FITS), version 4.0 (IAU FITS Working Group, 2016; document of 2018 August 13),
-//! section 4.3 on units and their prefixes (the prefix table is Table 4.3 of version 3.0,
-//! Pence et al. 2010, A&A 524, A42, whose section 4.3 version 4.0 keeps), with the common
-//! spellings found in archive headers (`cm^-2`, `MJy sr-1`, `JY/BEAM`, `beam-1 Jy`).
+//! surface brightness per steradian or per square arcsecond, arcminute or degree, flux density
+//! per beam or per pixel). Unit strings follow the FITS Standard, Definition of the Flexible
+//! Image Transport System (FITS), version 4.0 (IAU FITS Working Group, 2016; document of 2018
+//! August 13), section 4.3 on units and their prefixes (the prefix table is Table 4.3 of
+//! version 3.0, Pence et al. 2010, A&A 524, A42, whose section 4.3 version 4.0 keeps), with
+//! the common spellings found in archive headers (`cm^-2`, `MJy sr-1`, `JY/BEAM`,
+//! `beam-1 Jy`).
 //!
-//! Conventions: an all-upper-case `BUNIT` such as `MJY/SR` is read case-insensitively, with
-//! `M` as mega (common practice for headers written by older software); `mJy` is recognised
-//! only in its mixed-case spelling.
+//! Conventions: an all-upper-case `BUNIT` such as `MJY/SR` or `JY BEAM-1` is read
+//! case-insensitively, with `M` as mega (common practice for headers written by older
+//! software); `mJy` is recognised only in its mixed-case spelling. The factor after the jansky
+//! is read in any case (`mJy ARCSEC-2`, `Jy/Beam`): only the prefix's case carries meaning.
 
 use std::fmt;
 
@@ -26,6 +28,12 @@ pub const ARCSEC: f64 = DEG / 3600.0;
 /// (1/60)' = pi/648000 rad by definition: BIPM, The International System of Units (SI
 /// Brochure), 8th edition 2006, Table 6).
 pub const ARCSEC2: f64 = ARCSEC * ARCSEC;
+/// One square arcminute in steradians: (pi/10800)^2, about 8.461595e-8 (the minute of arc is
+/// (1/60) degree = pi/10800 rad by definition: BIPM SI Brochure, 8th edition 2006, Table 6).
+pub const ARCMIN2: f64 = ARCMIN * ARCMIN;
+/// One square degree in steradians: (pi/180)^2, about 3.046174e-4 (the degree is pi/180 rad
+/// by definition: BIPM SI Brochure, 8th edition 2006, Table 6).
+pub const DEG2: f64 = DEG * DEG;
 /// The parsec in metres (from [`crate::physics::constants`]).
 pub const PARSEC: f64 = crate::physics::constants::PC;
 /// The astronomical unit in metres.
@@ -248,6 +256,14 @@ fn unit_table() -> &'static [(&'static str, Dimension, f64)] {
         ("Jy/arcsec2", SurfaceBrightness, JY / ARCSEC2),
         ("mJy/arcsec2", SurfaceBrightness, 1e-3 * JY / ARCSEC2),
         ("uJy/arcsec2", SurfaceBrightness, 1e-6 * JY / ARCSEC2),
+        // Per square arcminute and per square degree, likewise.
+        ("Jy/arcmin2", SurfaceBrightness, JY / ARCMIN2),
+        ("mJy/arcmin2", SurfaceBrightness, 1e-3 * JY / ARCMIN2),
+        ("uJy/arcmin2", SurfaceBrightness, 1e-6 * JY / ARCMIN2),
+        ("MJy/deg2", SurfaceBrightness, 1e6 * JY / DEG2),
+        ("kJy/deg2", SurfaceBrightness, 1e3 * JY / DEG2),
+        ("Jy/deg2", SurfaceBrightness, JY / DEG2),
+        ("mJy/deg2", SurfaceBrightness, 1e-3 * JY / DEG2),
         ("Jy/beam", FluxPerBeam, JY),
         ("mJy/beam", FluxPerBeam, 1e-3 * JY),
         ("uJy/beam", FluxPerBeam, 1e-6 * JY),
@@ -260,13 +276,17 @@ fn unit_table() -> &'static [(&'static str, Dimension, f64)] {
 }
 
 /// Normalises the spelling of a unit: `^`, `**`, blanks and ` sr-1`-style powers (`arcsec-2`
-/// as `/arcsec2`).
+/// as `/arcsec2`). The power's factor is recognised in any case and written in lower case
+/// (`JY BEAM-1` as `JY/beam`, `mJy ARCSEC-2` as `mJy/arcsec2`), what comes before it keeping
+/// its own, whose case tells milli from mega.
 fn normalise_unit(u: &str) -> String {
     let mut s = u.trim().replace("**", "").replace(['^', ' '], "");
     for (from, to) in [
         ("cm2", "cm2"),
         ("sr-1", "/sr"),
         ("arcsec-2", "/arcsec2"),
+        ("arcmin-2", "/arcmin2"),
+        ("deg-2", "/deg2"),
         ("beam-1", "/beam"),
         ("pixel-1", "/pixel"),
         ("pix-1", "/pixel"),
@@ -275,8 +295,11 @@ fn normalise_unit(u: &str) -> String {
         ("g-1", "/g"),
         ("/pix", "/pixel"),
     ] {
-        if s.ends_with(from) && from != to {
-            let cut = s.len() - from.len();
+        let cut = s.len().saturating_sub(from.len());
+        if from != to
+            && s.get(cut..)
+                .is_some_and(|end| end.eq_ignore_ascii_case(from))
+        {
             s = format!("{}{}", &s[..cut], to);
         }
     }
@@ -473,9 +496,11 @@ impl PixelUnit {
 
 /// Reads a FITS `BUNIT` (or a `--unit` value) into what the pixels measure.
 ///
-/// A jansky unit is per steradian, per square arcsecond, per beam or per pixel, with a `/` or
-/// as a product with a negative power in either order (`MJy/sr`, `MJy sr-1`, `MJy.sr-1`,
-/// `sr-1 MJy`; `mJy/arcsec**2`, `mJy arcsec-2`, `arcsec-2 mJy`; `Jy/beam`, `beam-1 Jy`).
+/// A jansky unit is per steradian, per square arcsecond, per square arcminute, per square
+/// degree, per beam or per pixel, with a `/` or as a product with a negative power in either
+/// order (`MJy/sr`, `MJy sr-1`, `MJy.sr-1`, `sr-1 MJy`; `mJy/arcsec**2`, `mJy arcsec-2`,
+/// `arcsec-2 mJy`; `Jy/arcmin2`, `MJy deg-2`; `Jy/beam`, `beam-1 Jy`), the factor after the
+/// jansky in any case (`JY BEAM-1`, `mJy ARCSEC-2`).
 /// `band` chooses the extinction band for `mag` maps. `1`, the FITS unit of a dimensionless
 /// value (FITS Standard 4.0 sec. 4.3.1), reads as [`PixelUnit::Other`]: values without a
 /// unit, measured for their structure alone. Returns `None` for strings that name no quantity
@@ -535,6 +560,12 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
         "/arcsec2" => Some(PixelUnit::SurfaceBrightness {
             to_si: si / ARCSEC2,
         }),
+        // Per square arcminute and per square degree, the same way: 1 Jy/arcmin2 is
+        // 11.818102860... MJy/sr, 1 MJy/deg2 is 3282.8063500... MJy/sr.
+        "/arcmin2" => Some(PixelUnit::SurfaceBrightness {
+            to_si: si / ARCMIN2,
+        }),
+        "/deg2" => Some(PixelUnit::SurfaceBrightness { to_si: si / DEG2 }),
         "/beam" => Some(PixelUnit::FluxPerBeam { to_si: si }),
         "/pixel" | "/pix" | "/px" => Some(PixelUnit::FluxPerPixel { to_si: si }),
         _ => None,
@@ -542,12 +573,12 @@ pub fn parse_pixel_unit(bunit: &str, band: ExtinctionBand) -> Option<PixelUnit> 
 }
 
 /// A unit written as a product with its inverse factor first (`beam-1 Jy`, `sr-1 MJy`,
-/// `pixel-1.Jy`, `arcsec-2 mJy`, as some writers put it) with its two factors the other way
-/// round (`Jy beam-1`): the FITS Standard 4.0 section 4.3 writes a product of factors with
-/// blanks or `.` between them, and a product is the same whatever the order of its factors.
-/// `None` for text that is not two factors of which only the first has a negative power; what
-/// the swapped text means is for the caller's parser to decide, so nothing that is not a unit
-/// the other way round is read as one.
+/// `pixel-1.Jy`, `arcsec-2 mJy`, `deg-2 MJy`, `BEAM-1 JY`, as some writers put it) with its
+/// two factors the other way round (`Jy beam-1`): the FITS Standard 4.0 section 4.3 writes a
+/// product of factors with blanks or `.` between them, and a product is the same whatever the
+/// order of its factors. `None` for text that is not two factors of which only the first has a
+/// negative power; what the swapped text means is for the caller's parser to decide, so
+/// nothing that is not a unit the other way round is read as one.
 fn inverse_factor_last(raw: &str) -> Option<String> {
     let factors: Vec<&str> = raw
         .split(|c: char| c.is_whitespace() || c == '.')
@@ -570,9 +601,10 @@ pub fn is_dimensionless(text: &str) -> bool {
 }
 
 /// The unit of a map's values as cairn writes it in its outputs: the canonical spelling of the
-/// unit it recognised and converts (`cm-2`, `m-2`, `mag`, `MJy/sr`, `mJy/arcsec2`, `Jy/beam`,
-/// `mJy/beam`, `Jy/pixel`, ...), whatever spelling the map's BUNIT or `--unit` used (`1/cm2`,
-/// `mag(AK)`, `JY/BEAM`, `MJy/steradian`, `Jansky/beam`, `beam-1 Jy`, `mJy/arcsec**2`), so
+/// unit it recognised and converts (`cm-2`, `m-2`, `mag`, `MJy/sr`, `mJy/arcsec2`,
+/// `Jy/arcmin2`, `MJy/deg2`, `Jy/beam`, `mJy/beam`, `Jy/pixel`, ...), whatever spelling the
+/// map's BUNIT or `--unit` used (`1/cm2`, `mag(AK)`, `JY/BEAM`, `JY BEAM-1`, `MJy/steradian`,
+/// `Jansky/beam`, `beam-1 Jy`, `mJy/arcsec**2`, `deg-2 MJy`), so
 /// that a FITS or VO unit parser reads it (FITS Standard 4.0 sec. 4.3; IVOA VOUnits 1.0). A
 /// unit cairn does not convert ([`PixelUnit::Other`]) is kept as `text` gives it, trimmed,
 /// except the dimensionless `1`, written as no unit. An extinction's band is no part of its
@@ -600,11 +632,20 @@ pub fn canonical_unit(unit: Option<PixelUnit>, text: &str) -> String {
             None => format!("{} Jy/{per}", tidy(ratio)),
         }
     };
-    // A surface brightness per steradian, or else per square arcsecond (the two scales are
-    // some 4e10 apart, so no factor has a prefix in both).
-    let surface = |to_si: f64| match prefix(to_si / JANSKY * ARCSEC2) {
-        Some(t) if prefix(to_si / JANSKY).is_none() => format!("{t}Jy/arcsec2"),
-        _ => jansky(to_si, "sr"),
+    // A surface brightness per steradian, or else per square arcsecond, arcminute or degree,
+    // whichever solid angle gives a prefix of the table: no factor has a prefix for two of
+    // them, as their ratios (3600 between the last three, 3282.8... from the square degree to
+    // the steradian) are no powers of ten.
+    let surface = |to_si: f64| {
+        [
+            ("sr", 1.0),
+            ("arcsec2", ARCSEC2),
+            ("arcmin2", ARCMIN2),
+            ("deg2", DEG2),
+        ]
+        .into_iter()
+        .find_map(|(per, omega)| prefix(to_si / JANSKY * omega).map(|t| format!("{t}Jy/{per}")))
+        .unwrap_or_else(|| jansky(to_si, "sr"))
     };
     match unit {
         Some(PixelUnit::ColumnDensity { to_si: 1.0 }) => "m-2".into(),
@@ -645,8 +686,7 @@ pub fn named_band(text: &str) -> Option<ExtinctionBand> {
 }
 
 /// The units `--unit` names cairn converts to column density, for messages.
-pub const CONVERTED_UNITS: &str =
-    "cm-2, m-2, mag, MJy/sr, Jy/sr, mJy/arcsec2, Jy/beam, mJy/beam or Jy/pixel";
+pub const CONVERTED_UNITS: &str = "cm-2, m-2, mag, MJy/sr, Jy/sr, mJy/arcsec2, Jy/arcmin2, MJy/deg2, Jy/beam, mJy/beam or Jy/pixel";
 
 /// Reads a `--unit` value: a unit cairn converts (spelt as in BUNIT); `other:TEXT` for a map in
 /// a unit cairn does not convert, such as `other:K km/s`, whose structure alone is measured,
@@ -803,6 +843,162 @@ mod tests {
             n.contains("read as mJy/sr") && n.contains("--unit MJy/sr"),
             "{n}"
         );
+    }
+
+    /// Negative powers written in capitals, as some FITS writers put a whole unit in upper
+    /// case (`JY BEAM-1`, `MJY SR-1`, `BEAM-1 JY`), read as in lower case: the factor after the
+    /// jansky in any case, the prefix by the rule for one-case units (mega when all upper
+    /// case), which `prefix_case_note` names for these spellings too.
+    #[test]
+    fn reads_negative_powers_in_capitals() {
+        let v = ExtinctionBand::V;
+        let cases = [
+            ("JY BEAM-1", PixelUnit::FluxPerBeam { to_si: JANSKY }),
+            ("JY.BEAM-1", PixelUnit::FluxPerBeam { to_si: JANSKY }),
+            ("JY BEAM**-1", PixelUnit::FluxPerBeam { to_si: JANSKY }),
+            ("BEAM-1 JY", PixelUnit::FluxPerBeam { to_si: JANSKY }),
+            ("Jy Beam-1", PixelUnit::FluxPerBeam { to_si: JANSKY }),
+            (
+                "mJy BEAM-1",
+                PixelUnit::FluxPerBeam {
+                    to_si: 1e-3 * JANSKY,
+                },
+            ),
+            (
+                "MJY SR-1",
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e6 * JANSKY,
+                },
+            ),
+            (
+                "MJY.SR-1",
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e6 * JANSKY,
+                },
+            ),
+            (
+                "SR-1 MJY",
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e6 * JANSKY,
+                },
+            ),
+            (
+                "MJY/SR",
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e6 * JANSKY,
+                },
+            ),
+            ("JY/PIXEL", PixelUnit::FluxPerPixel { to_si: JANSKY }),
+            ("JY/PIX", PixelUnit::FluxPerPixel { to_si: JANSKY }),
+            ("JY PIXEL-1", PixelUnit::FluxPerPixel { to_si: JANSKY }),
+            ("JY PIX-1", PixelUnit::FluxPerPixel { to_si: JANSKY }),
+            ("PIXEL-1 JY", PixelUnit::FluxPerPixel { to_si: JANSKY }),
+            (
+                "mJy ARCSEC-2",
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e-3 * JANSKY / ARCSEC2,
+                },
+            ),
+            (
+                "ARCSEC-2 mJy",
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e-3 * JANSKY / ARCSEC2,
+                },
+            ),
+            (
+                "JY ARCMIN-2",
+                PixelUnit::SurfaceBrightness {
+                    to_si: JANSKY / ARCMIN2,
+                },
+            ),
+            (
+                "MJY DEG-2",
+                PixelUnit::SurfaceBrightness {
+                    to_si: 1e6 * JANSKY / DEG2,
+                },
+            ),
+        ];
+        for (s, unit) in cases {
+            assert_eq!(parse_pixel_unit(s, v), Some(unit), "{s}");
+            assert_eq!(parse_unit_option(s, v), Some((unit, s.into())), "{s}");
+        }
+        assert_eq!(
+            canonical_unit(parse_pixel_unit("JY BEAM-1", v), ""),
+            "Jy/beam"
+        );
+        assert_eq!(
+            canonical_unit(parse_pixel_unit("MJY SR-1", v), ""),
+            "MJy/sr"
+        );
+        assert_eq!(
+            canonical_unit(parse_pixel_unit("JY PIXEL-1", v), ""),
+            "Jy/pixel"
+        );
+        // Mega when all upper case: the usual unit per steradian says nothing, per beam or per
+        // pixel or per square arcsecond the note names the reading and the other one, whichever
+        // factor comes first and however the power is written.
+        for s in [
+            "MJY SR-1",
+            "MJY.SR-1",
+            "SR-1 MJY",
+            "MJY SR**-1",
+            "JY BEAM-1",
+            "mJy BEAM-1",
+        ] {
+            assert_eq!(prefix_case_note(s), None, "{s}");
+        }
+        assert_eq!(
+            parse_pixel_unit("MJY BEAM-1", v),
+            Some(PixelUnit::FluxPerBeam {
+                to_si: 1e6 * JANSKY
+            })
+        );
+        for (s, read) in [
+            ("MJY BEAM-1", "beam"),
+            ("MJY.BEAM-1", "beam"),
+            ("BEAM-1 MJY", "beam"),
+            ("MJY PIXEL-1", "pixel"),
+            ("MJY ARCSEC-2", "arcsec2"),
+            ("ARCSEC-2 MJY", "arcsec2"),
+        ] {
+            let n = prefix_case_note(s).unwrap_or_else(|| panic!("{s}"));
+            assert!(
+                n.contains(&format!("BUNIT '{s}'"))
+                    && n.contains(&format!("read as MJy/{read};"))
+                    && n.contains(&format!("--unit mJy/{read}")),
+                "{n}"
+            );
+        }
+        // All lower case: milli, noted per steradian only.
+        let n = prefix_case_note("mjy sr-1").unwrap();
+        assert!(
+            n.contains("read as mJy/sr;") && n.contains("--unit MJy/sr"),
+            "{n}"
+        );
+        assert_eq!(prefix_case_note("mjy beam-1"), None);
+        // Still not units cairn reads: other powers, no power, no jansky, other angles alone.
+        for s in [
+            "JY BEAM",
+            "BEAM JY",
+            "JY BEAM-2",
+            "BEAM-2 JY",
+            "JY SR-2",
+            "JY/BEAM-1",
+            "JY PX-1",
+            "BEAM-1",
+            "BEAM-1 K",
+            "K BEAM-1",
+            "K",
+            "COUNTS",
+            "DEG",
+            "DEG-2",
+            "JY DEG-1",
+            "JY/DEG",
+            "XJY BEAM-1",
+        ] {
+            assert_eq!(parse_pixel_unit(s, v), None, "{s}");
+            assert_eq!(parse_unit_option(s, v), None, "{s}");
+        }
     }
 
     /// An opacity is read in either of its usual spellings, with a slash or with a negative
@@ -1028,15 +1224,19 @@ mod tests {
             ("pix-1 Jy", "Jy pix-1"),
             ("pixel-1 mJy", "mJy pixel-1"),
             ("arcsec-2 mJy", "mJy arcsec-2"),
+            ("arcmin-2 Jy", "Jy arcmin-2"),
+            ("deg-2 MJy", "MJy deg-2"),
+            ("BEAM-1 JY", "JY BEAM-1"),
+            ("SR-1 MJY", "MJY SR-1"),
+            ("PIXEL-1.JY", "JY.PIXEL-1"),
         ] {
             let unit = parse_pixel_unit(first, v);
             assert!(unit.is_some(), "{first}");
             assert_eq!(unit, parse_pixel_unit(last, v), "{first} / {last}");
         }
-        // Refused the one way round, refused the other (negative powers in capitals, the
-        // steradian by name with a power, `px` with a power).
+        // Refused the one way round, refused the other (the steradian by name with a power,
+        // `px` with a power).
         for (first, last) in [
-            ("BEAM-1 JY", "JY BEAM-1"),
             ("steradian-1 MJy", "MJy steradian-1"),
             ("px-1 Jy", "Jy px-1"),
         ] {
@@ -1166,8 +1366,7 @@ mod tests {
             "arcsec-1 mJy",
             "mJy/arcsec3",
             "mJy/arcsec**3",
-            "mJy/arcmin2",
-            "mJy/deg2",
+            "mJy/rad2",
             "mJy2/arcsec2",
             "arcsec-2",
             "K arcsec-2",
@@ -1189,6 +1388,161 @@ mod tests {
         );
         assert_eq!(prefix_case_note("mjy/arcsec2"), None);
         assert_eq!(prefix_case_note("mJy/arcsec2"), None);
+    }
+
+    /// A surface brightness per square arcminute or per square degree (`Jy/arcmin2`,
+    /// `MJy/deg2`) in each FITS spelling of the power, as per square arcsecond, with its
+    /// prefix times the jansky over the solid angle in steradians.
+    #[test]
+    fn reads_a_surface_brightness_per_square_arcminute_and_degree() {
+        let v = ExtinctionBand::V;
+        let per = |to_si: f64| Some(PixelUnit::SurfaceBrightness { to_si });
+        for (s, to_si) in [
+            ("Jy/arcmin2", JANSKY / ARCMIN2),
+            ("Jy/arcmin**2", JANSKY / ARCMIN2),
+            ("Jy/arcmin^2", JANSKY / ARCMIN2),
+            ("Jy arcmin-2", JANSKY / ARCMIN2),
+            ("Jy.arcmin**-2", JANSKY / ARCMIN2),
+            ("arcmin-2 Jy", JANSKY / ARCMIN2),
+            ("mJy/arcmin2", 1e-3 * JANSKY / ARCMIN2),
+            ("mJy arcmin-2", 1e-3 * JANSKY / ARCMIN2),
+            ("arcmin-2.mJy", 1e-3 * JANSKY / ARCMIN2),
+            ("uJy/arcmin2", 1e-6 * JANSKY / ARCMIN2),
+            ("MJy/deg2", 1e6 * JANSKY / DEG2),
+            ("MJy/deg**2", 1e6 * JANSKY / DEG2),
+            ("MJy deg-2", 1e6 * JANSKY / DEG2),
+            ("deg-2 MJy", 1e6 * JANSKY / DEG2),
+            ("kJy/deg2", 1e3 * JANSKY / DEG2),
+            ("Jy/deg2", JANSKY / DEG2),
+            ("Jy deg-2", JANSKY / DEG2),
+            ("deg-2 Jy", JANSKY / DEG2),
+            ("Jy deg^-2", JANSKY / DEG2),
+            ("mJy/deg2", 1e-3 * JANSKY / DEG2),
+        ] {
+            assert_eq!(parse_pixel_unit(s, v), per(to_si), "{s}");
+            assert_eq!(
+                parse_unit_option(s, v),
+                Some((per(to_si).unwrap(), s.into())),
+                "{s}"
+            );
+        }
+        // The minute of arc is pi/10800 rad, the degree pi/180 rad (BIPM SI Brochure, 8th
+        // edition 2006, Table 6).
+        let pi = std::f64::consts::PI;
+        assert!((ARCMIN2 / (pi / 10800.0).powi(2) - 1.0).abs() <= 2.0 * f64::EPSILON);
+        assert!((DEG2 / (pi / 180.0).powi(2) - 1.0).abs() <= 2.0 * f64::EPSILON);
+        // In SI and in MJy/sr: astropy 8.0.2 gives `(u.Jy / u.arcmin**2).si.scale`
+        // 1.181810286004228e-19 and `.to(u.MJy / u.sr)` 11.818102860042279, and
+        // `(u.MJy / u.deg**2).si.scale` 3.282806350011744e-17 and `.to(u.MJy / u.sr)`
+        // 3282.8063500117437; by hand 1e-6 (10800/pi)^2 = 11.818102860042279 and
+        // (180/pi)^2 = 3282.806350011744. (The stored oracle, fixtures/segment/reference.json,
+        // is compared in tests/segment_reference.rs.)
+        let mjy_sr = parse_pixel_unit("MJy/sr", v).unwrap().to_si().unwrap();
+        for (s, si, in_mjy_sr) in [
+            ("Jy/arcmin2", 1.181810286004228e-19, 11.818102860042279),
+            ("MJy/deg2", 3.282806350011744e-17, 3282.806350011744),
+        ] {
+            let got = parse_pixel_unit(s, v).unwrap().to_si().unwrap();
+            assert!((got / si - 1.0).abs() < 1e-15, "{s}: {got}");
+            assert!((got / mjy_sr / in_mjy_sr - 1.0).abs() < 1e-15, "{s}: {got}");
+        }
+        // Not these units: a product with the solid angle, another power, the angle alone or
+        // with a power on the jansky, no jansky.
+        for s in [
+            "Jy arcmin2",
+            "arcmin2 Jy",
+            "Jy/arcmin",
+            "Jy/arcmin-2",
+            "Jy arcmin-1",
+            "arcmin-1 Jy",
+            "Jy/arcmin3",
+            "MJy deg2",
+            "deg2 MJy",
+            "MJy/deg",
+            "MJy deg-1",
+            "deg-1 MJy",
+            "MJy/deg**3",
+            "MJy deg-3",
+            "MJy2/deg2",
+            "deg",
+            "deg2",
+            "deg-2",
+            "arcmin-2",
+            "K deg-2",
+            "K/arcmin2",
+            "counts/deg2",
+            "MJy/deg2/beam",
+            "xJy/deg2",
+        ] {
+            assert_eq!(parse_pixel_unit(s, v), None, "{s}");
+            assert_eq!(parse_unit_option(s, v), None, "{s}");
+        }
+        // In capitals: mega, with the note of a one-case unit read against the usual milli.
+        assert_eq!(parse_pixel_unit("MJY/DEG2", v), per(1e6 * JANSKY / DEG2));
+        let n = prefix_case_note("MJY/ARCMIN**2").unwrap();
+        assert!(
+            n.contains("read as MJy/arcmin2;") && n.contains("--unit mJy/arcmin2"),
+            "{n}"
+        );
+        assert_eq!(prefix_case_note("MJy/deg2"), None);
+        assert_eq!(prefix_case_note("mJy/arcmin2"), None);
+    }
+
+    /// Levels typed per square arcminute or degree: in the map's own unit, the decimal typed;
+    /// on a map in MJy/sr, converted by the same factor as the map's unit.
+    #[test]
+    fn levels_per_square_arcminute_and_degree_convert_to_mjy_per_sr() {
+        let v = ExtinctionBand::V;
+        let per_sr = parse_pixel_unit("MJy/sr", v);
+        for (map_unit, texts, in_mjy_sr) in [
+            (
+                "Jy/arcmin2",
+                [
+                    "0.5Jy/arcmin2",
+                    "0.5Jy/arcmin**2",
+                    "0.5Jy arcmin-2",
+                    "500mJy/arcmin2",
+                ],
+                11.818102860042279,
+            ),
+            (
+                "MJy/deg2",
+                [
+                    "0.5MJy/deg2",
+                    "0.5MJy/deg**2",
+                    "0.5MJy deg-2",
+                    "500kJy/deg2",
+                ],
+                3282.806350011744,
+            ),
+        ] {
+            let own = parse_pixel_unit(map_unit, v);
+            for text in texts {
+                assert_eq!(parse_map_value(text, own, "--floor"), Ok(0.5), "{text}");
+                let got = parse_map_value(text, per_sr, "--floor").unwrap();
+                assert!(
+                    (got / (0.5 * in_mjy_sr) - 1.0).abs() < 1e-15,
+                    "{text}: {got}"
+                );
+            }
+        }
+        assert_eq!(
+            parse_map_value(
+                "2e3uJy/arcmin2",
+                parse_pixel_unit("mJy/arcmin2", v),
+                "--noise"
+            ),
+            Ok(2.0)
+        );
+        assert_eq!(
+            parse_map_value("2e-3Jy/deg2", parse_pixel_unit("mJy/deg2", v), "--noise"),
+            Ok(2.0)
+        );
+        assert!(
+            parse_quantity("0.5Jy/deg", &[SurfaceBrightness], "--floor")
+                .unwrap_err()
+                .contains("not understood")
+        );
     }
 
     /// Levels typed per square arcsecond: in the map's own unit, the decimal typed; on a map in
@@ -1278,6 +1632,23 @@ mod tests {
             ("Jy/arcsec2", "Jy/arcsec2"),
             ("uJy/arcsec2", "uJy/arcsec2"),
             ("MJY/ARCSEC2", "MJy/arcsec2"),
+            ("Jy/arcmin2", "Jy/arcmin2"),
+            ("Jy/arcmin**2", "Jy/arcmin2"),
+            ("mJy arcmin-2", "mJy/arcmin2"),
+            ("arcmin-2 uJy", "uJy/arcmin2"),
+            ("MJy/deg2", "MJy/deg2"),
+            ("MJy deg-2", "MJy/deg2"),
+            ("deg-2 Jy", "Jy/deg2"),
+            ("Jy deg-2", "Jy/deg2"),
+            ("kJy/deg**2", "kJy/deg2"),
+            ("MJY/DEG2", "MJy/deg2"),
+            ("JY BEAM-1", "Jy/beam"),
+            ("JY.BEAM-1", "Jy/beam"),
+            ("BEAM-1 JY", "Jy/beam"),
+            ("MJY SR-1", "MJy/sr"),
+            ("JY/PIXEL", "Jy/pixel"),
+            ("JY PIXEL-1", "Jy/pixel"),
+            ("mJy ARCSEC-2", "mJy/arcsec2"),
             ("1", ""),
         ];
         for band in [ExtinctionBand::V, ExtinctionBand::K] {

@@ -537,7 +537,7 @@ fn a_column_density_or_brightness_cairn_cannot_read_is_refused() {
     for (i, bunit) in [
         "1e21 cm-2",
         "H2/cm2",
-        "mJy/arcmin2",
+        "mJy/sqarcmin",
         "W m-2 sr-1",
         "MJy/str",
     ]
@@ -751,7 +751,8 @@ fn the_jansky_by_name_is_read_as_jy() {
 /// astropy 8.0.2 reads `beam-1 Jy` as Jy/beam), is the flux density per beam of `Jy/beam`,
 /// in the header and in `--unit`: the same catalogue to the last digit, masses included, in
 /// the unit written `Jy/beam`, with the header's spelling as `bunit`; so `beam-1 mJy` is
-/// `mJy/beam` and `sr-1 MJy` is `MJy/sr`.
+/// `mJy/beam` and `sr-1 MJy` is `MJy/sr`, and so in capitals (`JY BEAM-1`, `BEAM-1 JY`,
+/// `MJY SR-1`, as some writers put a whole unit in upper case).
 #[test]
 fn a_unit_with_its_inverse_factor_first_is_read_as_the_other_way_round() {
     let d = tempfile::tempdir().unwrap();
@@ -767,6 +768,11 @@ fn a_unit_with_its_inverse_factor_first_is_read_as_the_other_way_round() {
         ("beam-1 mJy", "mJy/beam"),
         ("MJy/sr", "MJy/sr"),
         ("sr-1 MJy", "MJy/sr"),
+        ("JY BEAM-1", "Jy/beam"),
+        ("BEAM-1 JY", "Jy/beam"),
+        ("JY.BEAM-1", "Jy/beam"),
+        ("MJY SR-1", "MJy/sr"),
+        ("SR-1 MJY", "MJy/sr"),
     ]
     .into_iter()
     .enumerate()
@@ -849,5 +855,59 @@ fn the_unit_option_reads_a_surface_brightness_per_square_arcsecond() {
         let o = cairn(&args, dir);
         check_refused(&o, &args, "--unit", "is not understood");
         assert!(o.stderr.contains("mJy/arcsec2"), "{}", o.stderr);
+    }
+}
+
+/// `--unit` per square arcminute or per square degree (`Jy/arcmin2`, `MJy/deg2`, in each
+/// spelling of the power): `inspect` reads it and says by how much it changes the header's
+/// MJy/sr, 11.81810286 times larger for Jy/arcmin2 (1e-6 (10800/pi)^2, the arcminute being
+/// pi/10800 rad), 84.6159499408 times smaller for mJy/arcmin2 and 3282.80635001 times larger
+/// for MJy/deg2 ((180/pi)^2, the degree being pi/180 rad; BIPM SI Brochure, 8th edition 2006,
+/// Table 6; astropy 8.0.2's `(u.Jy / u.arcmin**2).to(u.MJy / u.sr)` gives 11.818102860042279
+/// and `(u.MJy / u.deg**2).to(u.MJy / u.sr)` 3282.8063500117437); a misspelt one is refused
+/// with the list of units, which names both.
+#[test]
+fn the_unit_option_reads_a_surface_brightness_per_square_arcminute_and_degree() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    maps(dir);
+    let base = cairn::map::load(&dir.join("s/synth.fits"), &Default::default()).unwrap();
+    let mut h = base.header.clone();
+    h.set("BUNIT", cairn::header::Value::Str("MJy/sr".into()), "");
+    cairn::fits_write::write_image_f32(&dir.join("sr.fits"), base.data.view(), &h, false).unwrap();
+    for (unit, change) in [
+        ("Jy/arcmin2", "11.81810286 times larger"),
+        ("Jy/arcmin**2", "11.81810286 times larger"),
+        ("Jy arcmin-2", "11.81810286 times larger"),
+        ("arcmin-2 Jy", "11.81810286 times larger"),
+        ("mJy/arcmin2", "84.6159499408 times smaller"),
+        ("MJy/deg2", "3282.80635001 times larger"),
+        ("MJy deg-2", "3282.80635001 times larger"),
+        ("deg-2 MJy", "3282.80635001 times larger"),
+        ("MJY/DEG**2", "3282.80635001 times larger"),
+    ] {
+        let o = cairn(&["inspect", "sr.fits", "--json", "--unit", unit], dir);
+        assert_eq!(o.code, 0, "{unit}: {}", o.stderr);
+        let j: serde_json::Value = serde_json::from_str(&o.stdout).unwrap();
+        assert_eq!(j["unit"], unit);
+        assert_eq!(j["unit_kind"], "surface brightness");
+        assert_eq!(j["unit_source"], "option");
+        let w = j["warnings"].to_string();
+        assert!(
+            w.contains(&format!(
+                "--unit '{unit}' replaces the header's BUNIT 'MJy/sr': every value is read as {change}"
+            )),
+            "{unit}: {w}"
+        );
+    }
+    for unit in ["Jy/arcmin", "Jy arcmin2", "MJy/deg", "MJy deg-1", "deg-2"] {
+        let args = ["inspect", "sr.fits", "--unit", unit];
+        let o = cairn(&args, dir);
+        check_refused(&o, &args, "--unit", "is not understood");
+        assert!(
+            o.stderr.contains("Jy/arcmin2") && o.stderr.contains("MJy/deg2"),
+            "{}",
+            o.stderr
+        );
     }
 }
