@@ -568,14 +568,16 @@ fn catalogue_units_parse_as_meant() {
 }
 
 /// The units a catalogue writes for a map whose BUNIT is spelt in any of the ways cairn reads
-/// (`mag(AK)`, `JY/BEAM`, `MJy/steradian`, `1/cm2`, `Jansky/beam`, `1`, ...) are what unit
-/// parsers read: astropy 8.0.2's `astropy.units` parses every unit of the columns and
-/// parameters, of both catalogues and in all three files, in the FITS format and in the VOUnit
-/// one (tests/oracle/segment_skimage.py on fixtures/segment/unit_spellings.json, which this
-/// test keeps equal to what cairn writes now). The unit written for the map's values is the
-/// unit cairn converts with (astropy's SI scale of it equals cairn's factor) and, where
-/// astropy reads the BUNIT as written, the same unit (a ratio of 1); a sum over pixels is
-/// that unit times the pixel.
+/// (`mag(AK)`, `JY/BEAM`, `JY BEAM-1`, `MJy/steradian`, `1/cm2`, `Jansky/beam`, `deg-2 Jy`,
+/// `1`, ...) are what unit parsers read: astropy 8.0.2's `astropy.units` parses every unit of
+/// the columns and parameters, of both catalogues and in all three files, in the FITS format
+/// and in the VOUnit one (tests/oracle/segment_skimage.py on
+/// fixtures/segment/unit_spellings.json, which this test keeps equal to what cairn writes
+/// now). The unit written for the map's values is the unit cairn converts with (astropy's SI
+/// scale of it equals cairn's factor, and for a surface brightness per steradian, square
+/// arcsecond, square arcminute or square degree so does astropy's factor to MJy/sr) and,
+/// where astropy reads the BUNIT as written, the same unit (a ratio of 1); a sum over pixels
+/// is that unit times the pixel.
 #[test]
 fn catalogue_units_of_every_spelling_of_the_map_unit_parse_as_fits_and_vo_units() {
     use cairn::units::{ExtinctionBand, PixelUnit};
@@ -599,6 +601,8 @@ fn catalogue_units_of_every_spelling_of_the_map_unit_parse_as_fits_and_vo_units(
             "{bunit}: fixtures/segment/unit_spellings.json is no longer what cairn writes; re-run the example and the oracle"
         );
         let v = &verdicts[bunit];
+        // The unit read is among those written, so astropy's parsers read its spelling.
+        assert!(read.is_empty() || units.contains(&read), "{bunit}: {read}");
         for u in &units {
             for format in ["fits", "vounit"] {
                 assert!(
@@ -636,6 +640,17 @@ fn catalogue_units_of_every_spelling_of_the_map_unit_parse_as_fits_and_vo_units(
             ),
             Some(None) => assert!(v["unit_si_scale"].is_null(), "{bunit}"),
         }
+        // A surface brightness in MJy/sr: astropy 8.0.2's `Unit(read).to(u.MJy / u.sr)`.
+        match cairn::units::parse_pixel_unit(bunit, ExtinctionBand::V) {
+            Some(PixelUnit::SurfaceBrightness { to_si }) => assert_close(
+                to_si / (1e6 * cairn::units::JANSKY),
+                num(&v["unit_in_mjy_per_sr"]),
+                1e-15,
+                0.0,
+                &format!("{bunit} read as '{read}', in MJy/sr (astropy 8.0.2)"),
+            ),
+            _ => assert!(v["unit_in_mjy_per_sr"].is_null(), "{bunit}"),
+        }
         if !v["bunit_in_unit"].is_null() {
             assert_close(
                 num(&v["bunit_in_unit"]),
@@ -662,8 +677,67 @@ fn catalogue_units_of_every_spelling_of_the_map_unit_parse_as_fits_and_vo_units(
         ("sr-1 MJy", "MJy/sr"),
         ("mJy/arcsec**2", "mJy/arcsec2"),
         ("mJy arcsec-2", "mJy/arcsec2"),
+        ("JY BEAM-1", "Jy/beam"),
+        ("JY.BEAM-1", "Jy/beam"),
+        ("BEAM-1 JY", "Jy/beam"),
+        ("MJY SR-1", "MJy/sr"),
+        ("JY PIXEL-1", "Jy/pixel"),
+        ("mJy ARCSEC-2", "mJy/arcsec2"),
+        ("Jy/arcmin2", "Jy/arcmin2"),
+        ("Jy/arcmin**2", "Jy/arcmin2"),
+        ("mJy arcmin-2", "mJy/arcmin2"),
+        ("arcmin-2 mJy", "mJy/arcmin2"),
+        ("MJy/deg2", "MJy/deg2"),
+        ("Jy deg-2", "Jy/deg2"),
+        ("deg-2 Jy", "Jy/deg2"),
+        ("MJY/DEG2", "MJy/deg2"),
     ] {
         assert_eq!(stored[bunit]["unit"], unit, "{bunit}");
+    }
+    // The canonical spellings per square arcminute and degree as astropy 8.0.2's FITS and
+    // VOUnit parsers read and write them back; and their factors to MJy/sr, 1e-6 (10800/pi)^2
+    // and (180/pi)^2 by hand from the arcminute's and the degree's definitions (BIPM SI
+    // Brochure, 8th edition 2006, Table 6).
+    for (bunit, unit, fits, vounit, in_mjy_sr) in [
+        (
+            "Jy/arcmin2",
+            "Jy/arcmin2",
+            "Jy arcmin-2",
+            "Jy.arcmin**-2",
+            11.818102860042279,
+        ),
+        (
+            "mJy arcmin-2",
+            "mJy/arcmin2",
+            "mJy arcmin-2",
+            "mJy.arcmin**-2",
+            0.01181810286004228,
+        ),
+        (
+            "MJy/deg2",
+            "MJy/deg2",
+            "MJy deg-2",
+            "MJy.deg**-2",
+            3282.806350011744,
+        ),
+        (
+            "deg-2 Jy",
+            "Jy/deg2",
+            "Jy deg-2",
+            "Jy.deg**-2",
+            0.003282806350011744,
+        ),
+    ] {
+        let v = &verdicts[bunit];
+        assert_eq!(v["units"][unit]["fits"], fits, "{bunit}");
+        assert_eq!(v["units"][unit]["vounit"], vounit, "{bunit}");
+        assert_close(
+            num(&v["unit_in_mjy_per_sr"]),
+            in_mjy_sr,
+            1e-15,
+            0.0,
+            &format!("{bunit}: astropy 8.0.2 against the definition"),
+        );
     }
 }
 

@@ -42,10 +42,11 @@ pub mod catalogue_files;
 /// Spellings of map units (BUNIT) that cairn reads, for the check of the units its catalogues
 /// write (`fixtures/segment/unit_spellings.json`, which tests/oracle/segment_skimage.py reads
 /// with astropy): the canonical ones, others in use for the same units (products with their
-/// inverse factor first among them), FITS's dimensionless `1`, and a unit cairn does not
+/// inverse factor first, and negative powers in capitals, among them), surface brightness per
+/// square arcsecond, arcminute and degree, FITS's dimensionless `1`, and a unit cairn does not
 /// convert (`K km/s`).
 #[allow(dead_code)]
-pub const UNIT_SPELLINGS: [&str; 38] = [
+pub const UNIT_SPELLINGS: [&str; 52] = [
     "cm-2",
     "CM-2",
     "1/cm2",
@@ -64,10 +65,20 @@ pub const UNIT_SPELLINGS: [&str; 38] = [
     "MJy.sr-1",
     "MJy sr-1",
     "sr-1 MJy",
+    "MJY SR-1",
     "Jy/sr",
     "mJy/arcsec**2",
     "mJy arcsec-2",
     "arcsec-2 mJy",
+    "mJy ARCSEC-2",
+    "Jy/arcmin2",
+    "Jy/arcmin**2",
+    "mJy arcmin-2",
+    "arcmin-2 mJy",
+    "MJy/deg2",
+    "Jy deg-2",
+    "deg-2 Jy",
+    "MJY/DEG2",
     "Jy/beam",
     "JY/BEAM",
     "Jy/Beam",
@@ -75,6 +86,9 @@ pub const UNIT_SPELLINGS: [&str; 38] = [
     "Jansky/beam",
     "JANSKY/BEAM",
     "beam-1 Jy",
+    "JY BEAM-1",
+    "JY.BEAM-1",
+    "BEAM-1 JY",
     "mJy/beam",
     "beam-1 mJy",
     "MJY/BEAM",
@@ -82,6 +96,7 @@ pub const UNIT_SPELLINGS: [&str; 38] = [
     "Jy/pixel",
     "Jy/pix",
     "pixel-1 Jy",
+    "JY PIXEL-1",
     "1",
     "K km/s",
 ];

@@ -60,7 +60,9 @@ descendants (from hierarchy.json). Sources:
   run/structures.fits, verified, with each parameter keyword's type.
 * astropy 8.0.2 astropy.units on every unit cairn's catalogues write for each spelling of a
   map's unit (fixtures/segment/unit_spellings.json): parsed in the FITS and VOUnit formats,
-  the unit read in SI, the BUNIT as astropy reads it in that unit, the sum over pixels.
+  the unit read in SI and, for a surface brightness (per steradian, square arcsecond, square
+  arcminute or square degree), in MJy/sr, the BUNIT as astropy reads it in that unit, the
+  sum over pixels.
 """
 import csv
 import json
@@ -374,7 +376,8 @@ pixel_sums = {b: (u.Unit(s, format="fits") / u.Unit(b, format="fits")).to_string
 # (fixtures/segment/unit_spellings.json, made by examples/make_segment_fixture.rs and kept
 # equal to cairn's current output by tests/segment_reference.rs): every one parsed by
 # astropy.units in the FITS format and in the VOUnit one; the unit cairn read (its `unit`
-# parameter) in SI (none for a magnitude); the map's BUNIT as astropy reads it (FITS format, else its generic one;
+# parameter) in SI (none for a magnitude) and, where it is a surface brightness, in MJy/sr
+# (null for others); the map's BUNIT as astropy reads it (FITS format, else its generic one;
 # null where it reads neither) in that unit; and the sum unit over the unit read.
 def unit_text(s, fmt):
     try:
@@ -418,6 +421,8 @@ for bunit, run in spellings.items():
         "units": {s: {"fits": unit_text(s, "fits"), "vounit": unit_text(s, "vounit")}
                   for s in run["units"]},
         "unit_si_scale": si_scale(read),
+        "unit_in_mjy_per_sr": float(read.to(u.MJy / u.sr))
+        if read.is_equivalent(u.MJy / u.sr) else None,
         "bunit_in_unit": in_read,
         "sum_over_unit": (u.Unit(run["sum_unit"], format="fits") / read).to_string("fits"),
     }
