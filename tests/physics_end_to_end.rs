@@ -183,18 +183,13 @@ fn masses_from_column_density_emission_and_extinction_maps() {
     }
 }
 
-/// A map in mJy per square arcsecond (BUNIT 'mJy/arcsec**2') holds the same sky as one in
-/// MJy/sr with its values divided by 42.54517029615221, the MJy/sr in 1 mJy/arcsec2:
-/// 1e-3 Jy / (pi/648000 rad)^2 = 1e-3 (648000/pi)^2 Jy/sr, computed by hand from the
-/// arcsecond's definition (BIPM SI Brochure, 8th edition 2006, Table 6); astropy 8.0.2's
-/// `(u.mJy / u.arcsec**2).to(u.MJy / u.sr)` gives 42.5451702961522. The two maps give the
-/// same leaves, and the same masses to the rounding of a pixel to 32 bits (each pixel of the
-/// second map is the nearest 32-bit float to the first's divided by the factor, so each
-/// pixel's mass, and so each sum of positive pixels, is within half a unit in the last place
-/// of a 32-bit float of the first's).
-#[test]
-fn masses_from_a_map_per_square_arcsecond_equal_those_per_steradian() {
-    const MJY_SR_PER_MJY_ARCSEC2: f64 = 42.54517029615221;
+/// The masses of one 850 um map written in MJy/sr and again in each unit of `others` (its
+/// BUNIT as written, the canonical unit cairn writes for it, and the MJy/sr in one of it),
+/// with its values divided by that factor: the same leaves, and the same masses to the
+/// rounding of a pixel to 32 bits (each pixel of the second map is the nearest 32-bit float to
+/// the first's divided by the factor, so each pixel's mass, and so each sum of positive
+/// pixels, is within half a unit in the last place of a 32-bit float of the first's).
+fn masses_equal_those_per_steradian(others: &[(&str, &str, f64)]) {
     let dir = tempfile::tempdir().unwrap();
     let opacity = cairn::physics::DustOpacity::default();
     let nu = cairn::physics::constants::C / 850e-6;
@@ -209,48 +204,69 @@ fn masses_from_a_map_per_square_arcsecond_equal_those_per_steradian() {
     let em = synth::generate(&spec(em_out, noise)).unwrap();
     assert_eq!(em.header.get_str("BUNIT"), Some("MJy/sr"));
     let per_sr = run(dir.path(), "per_sr", &em.data, &em.header, noise);
-
-    let data = em.data.mapv(|v| (v as f64 / MJY_SR_PER_MJY_ARCSEC2) as f32);
-    let mut h = em.header.clone();
-    h.set(
-        "BUNIT",
-        cairn::header::Value::Str("mJy/arcsec**2".into()),
-        "",
-    );
-    let per_arcsec2 = run(
-        dir.path(),
-        "per_arcsec2",
-        &data,
-        &h,
-        noise / MJY_SR_PER_MJY_ARCSEC2,
-    );
-    let text = std::fs::read_to_string(dir.path().join("per_arcsec2/structures.csv")).unwrap();
-    assert!(
-        text.contains("# parameter unit = mJy/arcsec2  ("),
-        "unit read"
-    );
-    assert!(
-        text.contains("# parameter bunit = mJy/arcsec**2  ("),
-        "BUNIT as written"
-    );
-
     assert!(per_sr.len() >= 10, "{}", per_sr.len());
-    assert_eq!(per_arcsec2.len(), per_sr.len());
-    let mut worst: f64 = 0.0;
-    for (a, s) in per_arcsec2.iter().zip(&per_sr) {
-        assert_eq!((a.0, a.1), (s.0, s.1), "same leaves");
-        assert!(s.2 > 0.0, "a mass: {}", s.2);
-        let rel = (a.2 / s.2 - 1.0).abs();
-        worst = worst.max(rel);
+
+    for (i, &(bunit, canonical, mjy_sr_per_unit)) in others.iter().enumerate() {
+        let data = em.data.mapv(|v| (v as f64 / mjy_sr_per_unit) as f32);
+        let mut h = em.header.clone();
+        h.set("BUNIT", cairn::header::Value::Str(bunit.into()), "");
+        let name = format!("other{i}");
+        let leaves = run(dir.path(), &name, &data, &h, noise / mjy_sr_per_unit);
+        let text = std::fs::read_to_string(dir.path().join(&name).join("structures.csv")).unwrap();
         assert!(
-            rel <= f32::EPSILON as f64 / 2.0 + 1e-14,
-            "mJy/arcsec2 mass {} vs MJy/sr mass {}",
-            a.2,
-            s.2
+            text.contains(&format!("# parameter unit = {canonical}  (")),
+            "{bunit}: unit read"
+        );
+        assert!(
+            text.contains(&format!("# parameter bunit = {bunit}  (")),
+            "{bunit}: BUNIT as written"
+        );
+
+        assert_eq!(leaves.len(), per_sr.len(), "{bunit}");
+        let mut worst: f64 = 0.0;
+        for (a, s) in leaves.iter().zip(&per_sr) {
+            assert_eq!((a.0, a.1), (s.0, s.1), "{bunit}: same leaves");
+            assert!(s.2 > 0.0, "a mass: {}", s.2);
+            let rel = (a.2 / s.2 - 1.0).abs();
+            worst = worst.max(rel);
+            assert!(
+                rel <= f32::EPSILON as f64 / 2.0 + 1e-14,
+                "{bunit} mass {} vs MJy/sr mass {}",
+                a.2,
+                s.2
+            );
+        }
+        eprintln!(
+            "{bunit}: {} leaves, worst relative difference in mass {worst:.2e}",
+            per_sr.len()
         );
     }
-    eprintln!(
-        "{} leaves, worst relative difference in mass {worst:.2e}",
-        per_sr.len()
-    );
+}
+
+/// A map in mJy per square arcsecond (BUNIT 'mJy/arcsec**2') holds the same sky as one in
+/// MJy/sr with its values divided by 42.54517029615221, the MJy/sr in 1 mJy/arcsec2:
+/// 1e-3 Jy / (pi/648000 rad)^2 = 1e-3 (648000/pi)^2 Jy/sr, computed by hand from the
+/// arcsecond's definition (BIPM SI Brochure, 8th edition 2006, Table 6); astropy 8.0.2's
+/// `(u.mJy / u.arcsec**2).to(u.MJy / u.sr)` gives 42.5451702961522. The two maps give the
+/// same leaves and the same masses (`masses_equal_those_per_steradian`).
+#[test]
+fn masses_from_a_map_per_square_arcsecond_equal_those_per_steradian() {
+    masses_equal_those_per_steradian(&[("mJy/arcsec**2", "mJy/arcsec2", 42.54517029615221)]);
+}
+
+/// Maps per square arcminute and per square degree (BUNIT 'Jy/arcmin**2', 'deg-2 MJy', and in
+/// capitals 'MJY DEG-2') hold the same sky as one in MJy/sr with its values divided by the
+/// MJy/sr in one of their unit: 1e-6 (10800/pi)^2 = 11.818102860042279 for Jy/arcmin2 and
+/// (180/pi)^2 = 3282.806350011744 for MJy/deg2, computed by hand from the arcminute's and the
+/// degree's definitions, pi/10800 and pi/180 rad (BIPM SI Brochure, 8th edition 2006, Table
+/// 6); astropy 8.0.2's `(u.Jy / u.arcmin**2).to(u.MJy / u.sr)` gives 11.818102860042279 and
+/// `(u.MJy / u.deg**2).to(u.MJy / u.sr)` 3282.8063500117437 (fixtures/segment/reference.json).
+/// They give the same leaves and the same masses (`masses_equal_those_per_steradian`).
+#[test]
+fn masses_from_maps_per_square_arcminute_and_degree_equal_those_per_steradian() {
+    masses_equal_those_per_steradian(&[
+        ("Jy/arcmin**2", "Jy/arcmin2", 11.818102860042279),
+        ("deg-2 MJy", "MJy/deg2", 3282.806350011744),
+        ("MJY DEG-2", "MJy/deg2", 3282.806350011744),
+    ]);
 }
