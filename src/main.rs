@@ -368,7 +368,7 @@ struct MapArgs {
     /// For a cube: the zero-based plane to take along its one long extra axis.
     #[arg(long, value_name = "K", allow_hyphen_values = true)]
     plane: Option<i64>,
-    /// Unit of the pixels, instead of BUNIT: cm-2, m-2, mag, MJy/sr, Jy/sr, mJy/arcsec2, Jy/beam, mJy/beam, Jy/pixel; or other:UNIT (such as other:K km/s) for a unit cairn does not convert to column density, or none for values without a unit: the structure alone is measured, without masses.
+    /// Unit of the pixels, instead of BUNIT: cm-2, m-2, mag, MJy/sr, Jy/sr, mJy/arcsec2, Jy/arcmin2, MJy/deg2, Jy/beam, mJy/beam, Jy/pixel; or other:UNIT (such as other:K km/s) for a unit cairn does not convert to column density, or none for values without a unit: the structure alone is measured, without masses.
     #[arg(long, value_name = "UNIT")]
     unit: Option<String>,
     /// Band of an extinction map in magnitudes: V (A_V) or K (A_K) [default: V, unless BUNIT

@@ -13,8 +13,8 @@
 //!   (Knutsson & Westin 1993): missing pixels get no weight and stay missing; the padding is
 //!   four kernel standard deviations but at most the map's length per axis, so the FFT grid
 //!   never exceeds three times the map's length per axis;
-//! * units: intensive units (column density, extinction, MJy/sr, Jy/sr, mJy/arcsec2) keep
-//!   their values' meaning; Jy/beam values are multiplied by the ratio of the new to the old
+//! * units: intensive units (column density, extinction, MJy/sr, Jy/sr, mJy/arcsec2,
+//!   Jy/arcmin2, MJy/deg2) keep their values' meaning; Jy/beam values are multiplied by the ratio of the new to the old
 //!   beam solid angle; Jy/pixel values keep their per-pixel meaning;
 //! * regridding: when the target beam spans more than six pixels, blocks of k x k pixels are
 //!   averaged (summed for Jy/pixel), with k the largest integer keeping at least three pixels
