@@ -1363,7 +1363,12 @@ fn figures_of_very_tall_or_wide_maps_keep_a_bounded_size() {
         // A panel narrower than the width allows (a tall map's) narrows the figure to it and
         // its margins: the figure is not left blank beside it.
         let narrow = ny as f64 > render::PANEL_MAX_HEIGHT * nx as f64;
-        assert_eq!(lay.width < style.width_px, narrow, "{what}: width {}", lay.width);
+        assert_eq!(
+            lay.width < style.width_px,
+            narrow,
+            "{what}: width {}",
+            lay.width
+        );
         if narrow {
             assert!(
                 (lay.width as f64) < fx + fw + 0.5 * w,

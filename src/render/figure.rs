@@ -447,7 +447,7 @@ fn place_compass(o: &Overlay, s: &Style, lay: &Layout) -> Option<Compass> {
         let cx = 0.5 * (ax + bx);
         taken.push((cx - w, ay.min(by) - h, cx + w, ay.max(by) + 0.5 * fs));
     }
-    let covered = leaf_pixels_counter(o, lay);
+    let covered = leaf_pixels_counter(o, lay, s.show_branches);
     // The corners, the lower left beside the beam, then the middles of the edges.
     let beam_right = taken.first().filter(|_| lay.beam.is_some()).map(|b| b.2);
     let corners = [
@@ -732,7 +732,7 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             }
             corners.push((mid_x, high_y));
             let block = |(x0, y0): (f64, f64)| -> Rect { (x0, y0, x0 + block_w, y0 + block_h) };
-            let covered = leaf_pixels_counter(o, &lay);
+            let covered = leaf_pixels_counter(o, &lay, s.show_branches);
             // Leaves just beside the box count too: an outline along the bar's end is as
             // much in the way as one under it.
             let near = 0.3 * fs;
@@ -756,7 +756,7 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
                 let n = (((hi - lo) / block_w).floor() as usize).min(16);
                 starts.extend((1..n).map(|k| hi - (hi - lo) * k as f64 / n as f64));
             }
-            let covered = leaf_pixels_counter(o, &lay);
+            let covered = leaf_pixels_counter(o, &lay, s.show_branches);
             let near = 0.3 * fs;
             let yc = frame.1 + fh / 2.0;
             let best = least_crossed(starts.iter().copied(), |x0| {
@@ -814,20 +814,33 @@ fn least_crossed<T: Copy>(
     best.map(|(c, _)| c)
 }
 
-/// A counter of what a box of the figure laid out by `lay` would hide of `o`'s leaves: the
-/// number of leaves whose outline runs under it, and the map pixels where one does (pixels
-/// whose label differs from their right or upper neighbour's, one of the two a listed leaf;
+/// A counter of what a box of the figure laid out by `lay` would hide of `o`'s leaves (and
+/// of its branches' outlines, when `branches` are drawn): the number of leaves (and branches)
+/// whose outline runs under it, and the map pixels where one does (pixels whose label differs
+/// from their right or upper neighbour's, one of the two a listed leaf or a branch;
 /// every pixel of a box up to about 40,000 map pixels, else a regular sample of that many,
-/// each against the next sample, scaled up). Compared as a pair, fewer leaves first. The
+/// each against the next sample, scaled up). Compared as a pair, fewer outlines first. The
 /// inside of a leaf larger than the box (a zoom into one) does not count: only its outline
 /// would be hidden.
 fn leaf_pixels_counter<'a>(
     o: &'a Overlay,
     lay: &'a Layout,
+    branches: bool,
 ) -> impl Fn(Rect) -> (usize, usize) + 'a {
     let listed = listed_leaves(o);
+    // The drawn branch of each pixel (its outline's id, see `scene`), or -1.
+    let branch_map = o.branch_labels.filter(|_| branches);
+    let branch_at = move |y: usize, x: usize| -> i32 {
+        let Some(bm) = branch_map else { return -1 };
+        let l = bm[[y, x]];
+        match o.branch_of {
+            Some(of) if l >= 0 => of.get(l as usize).copied().unwrap_or(-1),
+            Some(_) => -1,
+            None => l,
+        }
+    };
     move |bb: Rect| {
-        if listed.is_empty() {
+        if listed.is_empty() && branch_map.is_none() {
             return (0, 0);
         }
         let (x0, y0, w, h) = lay.region;
@@ -863,6 +876,16 @@ fn leaf_pixels_counter<'a>(
                             edge = true;
                             if !crossed.contains(&m) {
                                 crossed.push(m);
+                            }
+                        }
+                    }
+                    // Branches by their ids below -1, apart from the leaves' ids.
+                    let (bk, bl) = (branch_at(j, i), branch_at(y, x));
+                    if bk != bl {
+                        for m in [bk, bl].into_iter().filter(|&m| m >= 0) {
+                            edge = true;
+                            if !crossed.contains(&(-2 - m)) {
+                                crossed.push(-2 - m);
                             }
                         }
                     }
@@ -1224,7 +1247,9 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         }
         d
     };
-    let to_path = |rings: &[Vec<(f64, f64)>]| ring_path(&drawn_rings(rings));
+    // The branches' outlines as drawn, in figure pixels (labels keep clear of them where they
+    // can).
+    let mut branch_rings: Vec<Vec<(f64, f64)>> = Vec::new();
     if s.show_branches
         && let Some(bl) = o.branch_labels
     {
@@ -1241,8 +1266,11 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             None => trace_outlines(window, offset),
         };
         for (id, rings) in &traced {
+            let drawn = drawn_rings(rings);
+            let d = ring_path(&drawn);
+            branch_rings.extend(drawn);
             sc.items.push(Item::Path {
-                d: to_path(rings),
+                d,
                 paints: legend::branch_paints(m.pt),
                 clip: true,
                 id: Some(format!("branch-{id}")),
@@ -1577,6 +1605,17 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             }
         }
     }
+    // The branches' outlines (drawn 1 pt wide), which a label keeps clear of where a place
+    // clear of every line is found; a place that crosses one is taken only as a fallback.
+    let mut branch_lines = SegIndex::new(2.0 * label_fs);
+    for ring in &branch_rings {
+        for k in 0..ring.len() {
+            branch_lines.insert(ring[k], ring[(k + 1) % ring.len()], -1);
+        }
+    }
+    let branch_clear = 0.5 * m.pt + 0.5;
+    let clear_of_branches =
+        |bb: Rect| branch_lines.distances(bb, -2, branch_clear, branch_clear).1 >= branch_clear;
     // The listed leaf under a point of the figure, if any (from the label map, so a label over
     // another leaf's inside is seen even far from that leaf's outline).
     let leaf_under = |p: (f64, f64)| -> Option<i32> {
@@ -1683,7 +1722,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                 if d_other < clear || d_other < d_own + margin {
                     continue;
                 }
-                if d_own >= clear {
+                if d_own >= clear && clear_of_branches(ib) {
                     best = Some((bx, by));
                     break 'search;
                 }
