@@ -2275,6 +2275,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         labels_note(in_frame, left_out);
         stretch_note(summary.figure_y_stretch);
         narrowed_note(summary.figure_narrowed_to, a.style.width);
+        label_size_note(summary.figure_label_pt);
         beam_note(summary.figure_beam_px);
         scale_bar_note(summary.figure_scale_bar_left_out);
     }
@@ -2641,6 +2642,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
         Some(figs.overlay.width_px).filter(|&w| w < a.style.width),
         a.style.width,
     );
+    label_size_note(Some(figs.overlay.label_pt).filter(|&p| p < cairn::render::USUAL_LABEL_PT));
     beam_note(figs.overlay.beam_px);
     scale_bar_note(figs.overlay.scale_bar_left_out);
     tree_note(figs.tree_leaves, figs.tree_ids_left_out);
@@ -2692,6 +2694,16 @@ fn stretch_note(y_stretch: Option<f64>) {
     if let Some(r) = y_stretch {
         outln!(
             "figure: the map is drawn at {r:.3} times the scale along y as along x, to keep the figure a usable size; draw a --region for equal scales"
+        );
+    }
+}
+
+/// Says that the leaf labels are set smaller than usual to fit a crowded map.
+fn label_size_note(pt: Option<f64>) {
+    if let Some(pt) = pt {
+        outln!(
+            "figure: leaf ids set at {pt:.1} pt rather than {:.2} pt, so that more of them fit on this crowded map",
+            cairn::render::USUAL_LABEL_PT
         );
     }
 }

@@ -923,6 +923,8 @@ pub struct RunSummary {
     /// The overlay's width in pixels when it is narrower than the requested width (a tall
     /// map, whose panel fills no more).
     pub figure_narrowed_to: Option<u32>,
+    /// The leaf labels' size in points when it is smaller than the usual size (a crowded map).
+    pub figure_label_pt: Option<f64>,
     /// With a figure: the beam's drawn size in figure pixels (the smaller side of its box).
     pub figure_beam_px: Option<f64>,
     /// With a figure: its scale bar was left out, the map's frame too narrow for it.
@@ -1964,6 +1966,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
     let mut tree_ids = None;
     let mut y_stretch = None;
     let mut narrowed_to = None;
+    let mut label_pt = None;
     let mut beam_px = None;
     let mut scale_bar_left_out = false;
     if let Some(style) = &o.figure {
@@ -2019,6 +2022,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
         narrowed_to = Some(figs.overlay.width_px).filter(|&w| w < style.width_px);
+        label_pt = Some(figs.overlay.label_pt).filter(|&p| p < crate::render::USUAL_LABEL_PT);
         beam_px = figs.overlay.beam_px;
         scale_bar_left_out = figs.overlay.scale_bar_left_out;
         if figs.tree_png.is_empty() {
@@ -2138,6 +2142,7 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         figure_tree_ids: tree_ids,
         figure_y_stretch: y_stretch,
         figure_narrowed_to: narrowed_to,
+        figure_label_pt: label_pt,
         figure_beam_px: beam_px,
         figure_scale_bar_left_out: scale_bar_left_out,
     })

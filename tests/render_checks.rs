@@ -1161,7 +1161,7 @@ fn crowded_leaves_get_leader_lines_or_are_counted_as_unlabelled() {
     let map = smooth_map(h, w);
     let leaves = leaves_of(&l);
     let n = leaves.len();
-    let (mut left_out, mut all_leaders) = (Vec::new(), 0);
+    let (mut left_out, mut all_leaders, mut sizes) = (Vec::new(), 0, Vec::new());
     for width in [500, 700, 900, 1200, 1600] {
         let o = plain_overlay(&map, &l, leaves.clone());
         let style = Style {
@@ -1181,6 +1181,24 @@ fn crowded_leaves_get_leader_lines_or_are_counted_as_unlabelled() {
             "every leaf is labelled or counted as left out ({width} px)"
         );
         left_out.push(fig.labels_left_out);
+        sizes.push(fig.label_pt);
+        // Labels too many for the usual size are set smaller, down to the least size; the
+        // drawn digits are as tall as that size says (DejaVu Sans digits are 0.729 em tall,
+        // 1493 of 2048 font units, and round ones overshoot a little, to about 0.756 em, read
+        // from the font's glyph outlines).
+        assert!(
+            (render::LEAST_LABEL_PT..=render::USUAL_LABEL_PT).contains(&fig.label_pt),
+            "{}",
+            fig.label_pt
+        );
+        let px_per_pt = style.dpi / 72.0;
+        for b in &boxes {
+            let em = (b.3 - b.1) / (fig.label_pt * px_per_pt);
+            assert!(
+                (0.72..0.77).contains(&em),
+                "a label {em} em tall ({width} px)"
+            );
+        }
         // Each id is nearest its own leaf, or on a leader line starting on its own leaf.
         let (n_labels, n_leaders) = svg_layout::check_leaf_labels(&fig.svg, 0.02);
         assert_eq!(
@@ -1227,6 +1245,10 @@ fn crowded_leaves_get_leader_lines_or_are_counted_as_unlabelled() {
     assert!(all_leaders > 0);
     assert_eq!(left_out.last(), Some(&0), "{left_out:?}");
     assert!(left_out.windows(2).all(|w| w[1] <= w[0]), "{left_out:?}");
+    // The narrowest figure sets its labels smaller than usual to fit more of them; the widest
+    // has room for every label at the usual size.
+    assert!(sizes[0] < render::USUAL_LABEL_PT, "{sizes:?}");
+    assert_eq!(sizes.last(), Some(&render::USUAL_LABEL_PT), "{sizes:?}");
 }
 
 #[test]

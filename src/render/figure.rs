@@ -1127,6 +1127,38 @@ impl SegIndex {
     }
 }
 
+/// The leaves' labels as placed at one size (see `scene`).
+struct Placement<'a> {
+    /// The labels' text size in figure pixels.
+    label_fs: f64,
+    /// Each label shown: its leaf, the baseline-left of its text, its leader line if any.
+    shown: Vec<(&'a LeafStyle, f64, f64, Option<((f64, f64), (f64, f64))>)>,
+    /// Leaves to label (their peak inside the frame) and of those, the ones left out.
+    to_label: usize,
+    left_out: usize,
+}
+
+/// The smallest text size, in points, leaf labels are set at when a map is too crowded for
+/// them at the usual size: 6 pt, about the least journals accept in a printed figure (common
+/// practice; journals' figure guidelines ask for 6-8 pt at the least, from memory).
+pub const LEAST_LABEL_PT: f64 = 6.0;
+
+/// The usual text size of leaf labels, in points: 0.85 of the figure's 9-point text.
+pub const USUAL_LABEL_PT: f64 = 0.85 * 9.0;
+
+/// The sizes leaf labels are tried at, largest first: `usual` (figure pixels), then steps of
+/// about half a point down to [`LEAST_LABEL_PT`] (`pt` figure pixels per point).
+fn label_sizes(usual: f64, pt: f64) -> Vec<f64> {
+    let least = LEAST_LABEL_PT * pt;
+    let mut sizes = vec![usual];
+    let mut s = ((usual / pt - 0.5) * 2.0).floor() / 2.0;
+    while s * pt >= least - 1e-9 && s * pt < usual {
+        sizes.push(s * pt);
+        s -= 0.5;
+    }
+    sizes
+}
+
 /// Builds the whole map figure.
 pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     let lay = overlay_layout(o, s)?;
@@ -1583,11 +1615,9 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     // First, greedy placement just outside each leaf, avoiding the beam, the scale bar and
     // earlier labels. Then the leaves still without a label try places farther out, joined
     // to the leaf by a leader line that crosses no label, no other leader and no other leaf.
-    let label_fs = 0.85 * fs;
-    let mut placed = BoxIndex::new(2.0 * label_fs);
-    for b in &keep_out {
-        placed.insert(*b);
-    }
+    // Labels are set at 0.85 of the text size; where that leaves leaves without a label, at
+    // smaller sizes down to LEAST_LABEL_PT (see `label_sizes`).
+    let label_fs = USUAL_LABEL_PT / 9.0 * fs;
     // Half the width of a drawn outline with its dark casing.
     let half_line = 0.5 * (0.85 + 1.1) * m.pt;
     let mut outlines = SegIndex::new(2.0 * label_fs);
@@ -1633,7 +1663,6 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     // Both rounds refuse a place nearer another leaf than `clear`, so the search ends at the
     // first sign of one (a point of the box over another leaf: 0; an outline nearer than
     // `clear`: its distance), the own leaf's distance then left unknown (infinite).
-    let margin = 0.1 * label_fs;
     let clear = half_line + 0.5;
     let distances = |bb: Rect, own: i32, radius: f64| -> (f64, f64) {
         for i in 0..3 {
@@ -1657,152 +1686,197 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         }
         (d_own, d_other)
     };
-    // How much nearer its own leaf than any other a label must be (`margin`), and how far
-    // from other leaves' outlines (beyond their drawn width) every label and leader keeps
-    // (`clear`).
-    let cap_h = text::cap_height(label_fs);
-    let hpad = 0.15 * label_fs;
-    let inside =
-        |bb: (f64, f64, f64, f64)| bb.0 >= fx && bb.2 <= fx + fw && bb.1 >= fy && bb.3 <= fy + fh;
-    // Leaves waiting for the second round: (leaf, its extent, label width, ink box).
-    let mut waiting: Vec<(&LeafStyle, Rect, f64, Rect)> = Vec::new();
-    let mut shown = Vec::new();
-    for leaf in &o.leaves {
-        let Some(rings) = drawn.get(&leaf.id) else {
-            continue;
+    // The labels' places at one size: the labels shown (with their leader lines), the leaves
+    // to label (peak inside the frame) and those left without a label.
+    let place = |label_fs: f64| -> Placement {
+        let mut placed = BoxIndex::new(2.0 * label_fs);
+        for b in &keep_out {
+            placed.insert(*b);
+        }
+        let mut to_label = 0usize;
+        let mut left_out = 0usize;
+        // How much nearer its own leaf than any other a label must be (`margin`), and how far
+        // from other leaves' outlines (beyond their drawn width) every label and leader keeps
+        // (`clear`).
+        let margin = 0.1 * label_fs;
+        let cap_h = text::cap_height(label_fs);
+        let hpad = 0.15 * label_fs;
+        let inside = |bb: (f64, f64, f64, f64)| {
+            bb.0 >= fx && bb.2 <= fx + fw && bb.1 >= fy && bb.3 <= fy + fh
         };
-        // A leaf with an empty label is outlined only.
-        if leaf.label.is_empty() {
-            continue;
-        }
-        let (px, py) = lay.map_to_figure(leaf.peak.0, leaf.peak.1);
-        if px < fx || px > fx + fw || py < fy || py > fy + fh {
-            continue;
-        }
-        sc.leaves_to_label += 1;
-        let w = text::width(&leaf.label, label_fs);
-        let ink = text::ink_bounds(&leaf.label, label_fs);
-        // The leaf's extent on the figure: labels go just outside it, so a small leaf is
-        // never hidden under its own label.
-        let (mut ex0, mut ey0, mut ex1, mut ey1) = (px, py, px, py);
-        for &(qx, qy) in rings.iter().flatten() {
-            ex0 = ex0.min(qx);
-            ex1 = ex1.max(qx);
-            ey0 = ey0.min(qy);
-            ey1 = ey1.max(qy);
-        }
-        // Very large leaves keep their labels near the peak rather than at their far edge.
-        let reach = 0.8 * label_fs;
-        let (ex0, ex1) = (ex0.max(px - reach), ex1.min(px + reach));
-        let (ey0, ey1) = (ey0.max(py - reach), ey1.min(py + reach));
-        // The first place clear of labels and outlines; else the first clear of labels and of
-        // other leaves' outlines; either nearer its own leaf than any other.
-        let mut best: Option<(f64, f64)> = None;
-        let mut fallback: Option<(f64, f64)> = None;
-        'search: for ring in 1..=4 {
-            let r = 0.25 * label_fs * ring as f64;
-            // Baseline-left positions of the label around the leaf's extent.
-            let cands = [
-                (ex1 + r, ey0 - r),
-                (ex0 - r - w, ey0 - r),
-                (ex1 + r, ey1 + r + cap_h),
-                (ex0 - r - w, ey1 + r + cap_h),
-                (px - w / 2.0, ey0 - r),
-                (px - w / 2.0, ey1 + r + cap_h),
-                (ex1 + r, py + cap_h / 2.0),
-                (ex0 - r - w, py + cap_h / 2.0),
-            ];
-            for (bx, by) in cands {
-                let bb = (bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad);
-                if !inside(bb) || placed.overlaps(bb) {
-                    continue;
+        // Leaves waiting for the second round: (leaf, its extent, label width, ink box).
+        let mut waiting: Vec<(&LeafStyle, Rect, f64, Rect)> = Vec::new();
+        let mut shown = Vec::new();
+        for leaf in &o.leaves {
+            let Some(rings) = drawn.get(&leaf.id) else {
+                continue;
+            };
+            // A leaf with an empty label is outlined only.
+            if leaf.label.is_empty() {
+                continue;
+            }
+            let (px, py) = lay.map_to_figure(leaf.peak.0, leaf.peak.1);
+            if px < fx || px > fx + fw || py < fy || py > fy + fh {
+                continue;
+            }
+            to_label += 1;
+            let w = text::width(&leaf.label, label_fs);
+            let ink = text::ink_bounds(&leaf.label, label_fs);
+            // The leaf's extent on the figure: labels go just outside it, so a small leaf is
+            // never hidden under its own label.
+            let (mut ex0, mut ey0, mut ex1, mut ey1) = (px, py, px, py);
+            for &(qx, qy) in rings.iter().flatten() {
+                ex0 = ex0.min(qx);
+                ex1 = ex1.max(qx);
+                ey0 = ey0.min(qy);
+                ey1 = ey1.max(qy);
+            }
+            // Very large leaves keep their labels near the peak rather than at their far edge.
+            let reach = 0.8 * label_fs;
+            let (ex0, ex1) = (ex0.max(px - reach), ex1.min(px + reach));
+            let (ey0, ey1) = (ey0.max(py - reach), ey1.min(py + reach));
+            // The first place clear of labels and outlines; else the first clear of labels and of
+            // other leaves' outlines; either nearer its own leaf than any other.
+            let mut best: Option<(f64, f64)> = None;
+            let mut fallback: Option<(f64, f64)> = None;
+            'search: for ring in 1..=4 {
+                let r = 0.25 * label_fs * ring as f64;
+                // Baseline-left positions of the label around the leaf's extent.
+                let cands = [
+                    (ex1 + r, ey0 - r),
+                    (ex0 - r - w, ey0 - r),
+                    (ex1 + r, ey1 + r + cap_h),
+                    (ex0 - r - w, ey1 + r + cap_h),
+                    (px - w / 2.0, ey0 - r),
+                    (px - w / 2.0, ey1 + r + cap_h),
+                    (ex1 + r, py + cap_h / 2.0),
+                    (ex0 - r - w, py + cap_h / 2.0),
+                ];
+                for (bx, by) in cands {
+                    let bb = (bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad);
+                    if !inside(bb) || placed.overlaps(bb) {
+                        continue;
+                    }
+                    let ib = (bx + ink.0, by + ink.1, bx + ink.2, by + ink.3);
+                    let (d_own, d_other) = distances(ib, leaf.id, 4.0 * label_fs);
+                    if d_other < clear || d_other < d_own + margin {
+                        continue;
+                    }
+                    if d_own >= clear && clear_of_branches(ib) {
+                        best = Some((bx, by));
+                        break 'search;
+                    }
+                    fallback = fallback.or(Some((bx, by)));
                 }
-                let ib = (bx + ink.0, by + ink.1, bx + ink.2, by + ink.3);
-                let (d_own, d_other) = distances(ib, leaf.id, 4.0 * label_fs);
-                if d_other < clear || d_other < d_own + margin {
-                    continue;
+            }
+            match best.or(fallback) {
+                Some((bx, by)) => {
+                    placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
+                    shown.push((leaf, bx, by, None));
                 }
-                if d_own >= clear && clear_of_branches(ib) {
-                    best = Some((bx, by));
-                    break 'search;
-                }
-                fallback = fallback.or(Some((bx, by)));
+                None => waiting.push((leaf, (ex0, ey0, ex1, ey1), w, ink)),
             }
         }
-        match best.or(fallback) {
-            Some((bx, by)) => {
-                placed.insert((bx - hpad, by - cap_h - hpad, bx + w + hpad, by + hpad));
-                shown.push((leaf, bx, by, None));
+        // Second round: label centres on circles around the extent's centre, sixteen directions
+        // per circle, up to about five label heights beyond the leaf. The leader runs from the
+        // point of the leaf's outline nearest the label to the label's box.
+        let mut leaders: Vec<((f64, f64), (f64, f64))> = Vec::new();
+        let gap = 0.2 * label_fs;
+        for (leaf, (ex0, ey0, ex1, ey1), w, ink) in waiting {
+            let rings = &drawn[&leaf.id];
+            let (cx, cy) = (0.5 * (ex0 + ex1), 0.5 * (ey0 + ey1));
+            let half = (0.5 * (w + 2.0 * hpad), 0.5 * (cap_h + 2.0 * hpad));
+            let mut best = None;
+            'far: for ring in 1..=8 {
+                let r = 0.5 * (ex1 - ex0).hypot(ey1 - ey0)
+                    + half.0.hypot(half.1)
+                    + 0.6 * label_fs * ring as f64;
+                for dir in 0..16 {
+                    let a = std::f64::consts::PI * dir as f64 / 8.0;
+                    let (lx, ly) = (cx + r * a.cos(), cy - r * a.sin());
+                    let bb = (lx - half.0, ly - half.1, lx + half.0, ly + half.1);
+                    if !inside(bb) || placed.overlaps(bb) {
+                        continue;
+                    }
+                    if leaders
+                        .iter()
+                        .any(|&(p, q)| clip_segment(p, q, bb).is_some())
+                    {
+                        continue;
+                    }
+                    let (bx, by) = (lx - half.0 + hpad, ly + half.1 - hpad);
+                    let ib = (bx + ink.0, by + ink.1, bx + ink.2, by + ink.3);
+                    let (_, d_other) = distances(ib, leaf.id, clear);
+                    if d_other < clear {
+                        continue;
+                    }
+                    // The leader: from the point of the leaf's drawn outline nearest the label's
+                    // centre to the point of the label's box nearest that.
+                    let Some(from) = nearest_on_rings(rings, (lx, ly)) else {
+                        continue;
+                    };
+                    if inside_rings(rings, (lx, ly))
+                        || leaf_under(from).is_some_and(|l| l != leaf.id)
+                    {
+                        continue;
+                    }
+                    let to = (from.0.clamp(bb.0, bb.2), from.1.clamp(bb.1, bb.3));
+                    let len = (to.0 - from.0).hypot(to.1 - from.1);
+                    if len <= 2.0 * gap {
+                        continue;
+                    }
+                    if placed.crosses(from, to)
+                        || outlines.near_other(from, to, leaf.id, clear)
+                        || leaders.iter().any(|&(p, q)| segments_meet(p, q, from, to))
+                    {
+                        continue;
+                    }
+                    best = Some((bx, by, bb, (from, to)));
+                    break 'far;
+                }
             }
-            None => waiting.push((leaf, (ex0, ey0, ex1, ey1), w, ink)),
-        }
-    }
-    // Second round: label centres on circles around the extent's centre, sixteen directions
-    // per circle, up to about five label heights beyond the leaf. The leader runs from the
-    // point of the leaf's outline nearest the label to the label's box.
-    let mut leaders: Vec<((f64, f64), (f64, f64))> = Vec::new();
-    let gap = 0.2 * label_fs;
-    for (leaf, (ex0, ey0, ex1, ey1), w, ink) in waiting {
-        let rings = &drawn[&leaf.id];
-        let (cx, cy) = (0.5 * (ex0 + ex1), 0.5 * (ey0 + ey1));
-        let half = (0.5 * (w + 2.0 * hpad), 0.5 * (cap_h + 2.0 * hpad));
-        let mut best = None;
-        'far: for ring in 1..=8 {
-            let r = 0.5 * (ex1 - ex0).hypot(ey1 - ey0)
-                + half.0.hypot(half.1)
-                + 0.6 * label_fs * ring as f64;
-            for dir in 0..16 {
-                let a = std::f64::consts::PI * dir as f64 / 8.0;
-                let (lx, ly) = (cx + r * a.cos(), cy - r * a.sin());
-                let bb = (lx - half.0, ly - half.1, lx + half.0, ly + half.1);
-                if !inside(bb) || placed.overlaps(bb) {
-                    continue;
+            match best {
+                Some((bx, by, bb, leader)) => {
+                    placed.insert(bb);
+                    leaders.push(leader);
+                    shown.push((leaf, bx, by, Some(leader)));
                 }
-                if leaders
-                    .iter()
-                    .any(|&(p, q)| clip_segment(p, q, bb).is_some())
-                {
-                    continue;
-                }
-                let (bx, by) = (lx - half.0 + hpad, ly + half.1 - hpad);
-                let ib = (bx + ink.0, by + ink.1, bx + ink.2, by + ink.3);
-                let (_, d_other) = distances(ib, leaf.id, clear);
-                if d_other < clear {
-                    continue;
-                }
-                // The leader: from the point of the leaf's drawn outline nearest the label's
-                // centre to the point of the label's box nearest that.
-                let Some(from) = nearest_on_rings(rings, (lx, ly)) else {
-                    continue;
-                };
-                if inside_rings(rings, (lx, ly)) || leaf_under(from).is_some_and(|l| l != leaf.id) {
-                    continue;
-                }
-                let to = (from.0.clamp(bb.0, bb.2), from.1.clamp(bb.1, bb.3));
-                let len = (to.0 - from.0).hypot(to.1 - from.1);
-                if len <= 2.0 * gap {
-                    continue;
-                }
-                if placed.crosses(from, to)
-                    || outlines.near_other(from, to, leaf.id, clear)
-                    || leaders.iter().any(|&(p, q)| segments_meet(p, q, from, to))
-                {
-                    continue;
-                }
-                best = Some((bx, by, bb, (from, to)));
-                break 'far;
+                None => left_out += 1,
             }
         }
-        match best {
-            Some((bx, by, bb, leader)) => {
-                placed.insert(bb);
-                leaders.push(leader);
-                shown.push((leaf, bx, by, Some(leader)));
-            }
-            None => sc.labels_left_out += 1,
+        Placement {
+            label_fs,
+            shown,
+            to_label,
+            left_out,
         }
-    }
-    for (leaf, bx, by, leader) in shown {
+    };
+    let chosen = label_sizes(label_fs, m.pt)
+        .into_iter()
+        .map(&place)
+        .try_fold(None::<Placement>, |best, p| {
+            // Stop at the first size that labels every leaf; else keep the one that leaves
+            // the fewest out (the larger of equals). A map of thousands of leaves, most of
+            // them finding no place at the usual size, is not tried smaller: a point or two of
+            // text does not label a field that crowded (a --region or --labels does), and each
+            // try takes as long as the first, about a second there.
+            let done = p.left_out == 0
+                || (best.is_none() && p.to_label > 1000 && 2 * p.left_out > p.to_label);
+            let best = match best {
+                Some(b) if b.left_out <= p.left_out => b,
+                _ => p,
+            };
+            if done { Err(best) } else { Ok(Some(best)) }
+        });
+    let chosen = match chosen {
+        Ok(p) => p.expect("at least one label size"),
+        Err(p) => p,
+    };
+    sc.leaves_to_label = chosen.to_label;
+    sc.labels_left_out = chosen.left_out;
+    sc.label_pt = chosen.label_fs / m.pt;
+    let label_fs = chosen.label_fs;
+    for (leaf, bx, by, leader) in chosen.shown {
         if let Some((a, b)) = leader {
             sc.items.push(Item::Path {
                 d: PathData::line(a.0, a.1, b.0, b.1),

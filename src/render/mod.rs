@@ -37,8 +37,8 @@ mod tree;
 
 pub use axes::{AxisTicks, Coord, Edge, Region, Tick, axis_ticks};
 pub use figure::{
-    BeamGeometry, Layout, MAX_FIGURE_PIXELS, MAX_WIDTH_PX, PANEL_MAX_ASPECT, PANEL_MAX_HEIGHT,
-    beam_geometry, narrowest_width_px, overlay_layout,
+    BeamGeometry, LEAST_LABEL_PT, Layout, MAX_FIGURE_PIXELS, MAX_WIDTH_PX, PANEL_MAX_ASPECT,
+    PANEL_MAX_HEIGHT, USUAL_LABEL_PT, beam_geometry, narrowest_width_px, overlay_layout,
 };
 pub use outline::{Ring, ring_area, simplify_ring, trace_outlines};
 pub use pdf::check_scene as pdf_check_figure;
@@ -315,6 +315,9 @@ pub struct MapFigure {
     pub beam_px: Option<f64>,
     /// The scale bar was asked for and left out, the map's frame too narrow for it.
     pub scale_bar_left_out: bool,
+    /// The leaf labels' text size in points: the usual size ([`USUAL_LABEL_PT`]), or smaller,
+    /// down to [`LEAST_LABEL_PT`], on a map too crowded for every label at that size.
+    pub label_pt: f64,
     /// The figure's width in pixels: the requested width, or less for a tall map whose panel
     /// is narrower than that width allows (the figure is not left blank beside it).
     pub width_px: u32,
@@ -338,6 +341,7 @@ pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderErro
         y_stretch: sc.y_stretch,
         beam_px: sc.beam_px,
         width_px: sc.width,
+        label_pt: sc.label_pt,
         scale_bar_left_out: sc.scale_bar_left_out,
     })
 }

@@ -234,6 +234,8 @@ pub(crate) struct Scene {
     /// (no free place near them).
     pub leaves_to_label: usize,
     pub labels_left_out: usize,
+    /// Map figures: the leaf labels' text size in points (smaller than usual on a crowded map).
+    pub label_pt: f64,
     /// Map figures: the ratio of the scales along y and x when they differ.
     pub y_stretch: Option<f64>,
     /// Map figures: the beam's drawn size, the smaller side of its box in figure pixels.
@@ -253,6 +255,7 @@ impl Scene {
             title: title.to_string(),
             leaves_to_label: 0,
             labels_left_out: 0,
+            label_pt: 0.0,
             y_stretch: None,
             beam_px: None,
             scale_bar_left_out: false,
