@@ -1127,12 +1127,15 @@ impl SegIndex {
     }
 }
 
+/// A leader line from a leaf's outline to its label: its two ends.
+type Leader = ((f64, f64), (f64, f64));
+
 /// The leaves' labels as placed at one size (see `scene`).
 struct Placement<'a> {
     /// The labels' text size in figure pixels.
     label_fs: f64,
     /// Each label shown: its leaf, the baseline-left of its text, its leader line if any.
-    shown: Vec<(&'a LeafStyle, f64, f64, Option<((f64, f64), (f64, f64))>)>,
+    shown: Vec<(&'a LeafStyle, f64, f64, Option<Leader>)>,
     /// Leaves to label (their peak inside the frame) and of those, the ones left out.
     to_label: usize,
     left_out: usize,
