@@ -1788,3 +1788,53 @@ fn map_and_tree_pdfs_are_one_page_of_the_print_size_and_repeat() {
             .pdf
     );
 }
+
+#[test]
+fn a_beam_smaller_than_a_few_outline_widths_is_filled_at_its_exact_size() {
+    // A beam drawn as a white ellipse with a 0.8 pt outline centred on its edge is outline
+    // only, and larger than the beam, when it is a few outline widths across: below four of
+    // them it is filled black instead (over a thin white rim drawn beneath it).
+    let map = smooth_map(200, 200);
+    let l = Array2::from_elem((200, 200), -1);
+    for (dpi, filled) in [(100.0, false), (600.0, true)] {
+        let mut o = plain_overlay(&map, &l, Vec::new());
+        o.beam = Some((3.0, 3.0, 0.0));
+        let style = Style {
+            width_px: 1600,
+            dpi,
+            ..Style::default()
+        };
+        let fig = render::render_map_figure(&o, &style).unwrap();
+        let side = fig.beam_px.expect("the beam is drawn");
+        assert_eq!(
+            side < 4.0 * 0.8 * dpi / 72.0,
+            filled,
+            "{side} px at {dpi} dpi"
+        );
+        let doc = roxmltree::Document::parse(&fig.svg).unwrap();
+        let beam = doc
+            .descendants()
+            .find(|n| n.attribute("class") == Some("beam"))
+            .expect("a beam path");
+        let id = beam
+            .attribute("id")
+            .expect("the beam's geometry is painted twice");
+        let paints: Vec<(Option<&str>, Option<&str>)> = doc
+            .descendants()
+            .filter(|n| n.has_tag_name("use") && n.attribute("href") == Some(&format!("#{id}")))
+            .map(|n| (n.attribute("fill"), n.attribute("stroke")))
+            .collect();
+        let expected = if filled {
+            vec![
+                (Some("none"), Some("#FFFFFF")),
+                (Some("#000000"), Some("none")),
+            ]
+        } else {
+            vec![
+                (Some("#FFFFFF"), Some("none")),
+                (Some("none"), Some("#000000")),
+            ]
+        };
+        assert_eq!(paints, expected, "{dpi} dpi");
+    }
+}

@@ -1476,15 +1476,25 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             |b, &(x, y)| (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y)),
         );
         keep_out.push(bbox);
-        sc.beam_px = Some((bbox.2 - bbox.0).min(bbox.3 - bbox.1));
-        sc.path(
-            PathData::polygon(&pts),
+        let side = (bbox.2 - bbox.0).min(bbox.3 - bbox.1);
+        sc.beam_px = Some(side);
+        // A beam a few outline widths across or more is a white ellipse outlined in black
+        // (the outline centred on its edge); a smaller one, which an outline would fill and
+        // enlarge, is filled black at its exact size over a thin white rim that sets it off
+        // from a dark map.
+        let line = 0.8 * m.pt;
+        let paints = if side >= 4.0 * line {
             vec![
                 Paint::Fill(Rgba(255, 255, 255, 255)),
-                Paint::Stroke(Line::solid(Rgba::BLACK, 0.8 * m.pt)),
-            ],
-            "beam",
-        );
+                Paint::Stroke(Line::solid(Rgba::BLACK, line)),
+            ]
+        } else {
+            vec![
+                Paint::Stroke(Line::solid(Rgba(255, 255, 255, 255), 0.5 * m.pt)),
+                Paint::Fill(Rgba::BLACK),
+            ]
+        };
+        sc.path(PathData::polygon(&pts), paints, "beam");
     }
     if let (Some((a, b)), Some((_, label))) = (lay.scale_bar, &o.scale_bar) {
         let (ax, ay) = lay.map_to_figure(a.0, a.1);

@@ -26,6 +26,10 @@ use std::collections::BTreeMap;
 /// (ISO 32000-1 sec. 8.3.2.3).
 const POINTS_PER_INCH: f64 = 72.0;
 
+/// The largest side of a page in user space units (ISO 32000-1 Annex C, implementation
+/// limits).
+const MAX_PAGE_UNITS: f64 = 14_400.0;
+
 /// A coordinate as the figure's other vector output gives it: rounded to two decimals of a
 /// figure pixel (the SVG's `num`), so both carry the same geometry.
 fn r2(v: f64) -> f32 {
@@ -118,7 +122,11 @@ impl Scene {
     /// Writes the scene as a one-page PDF of the figure's print size (see the module's
     /// comment).
     pub fn to_pdf(&self) -> Result<Vec<u8>, RenderError> {
-        let scale = POINTS_PER_INCH / self.dpi;
+        // A page is at most 14,400 units on a side (ISO 32000-1 Annex C): a figure larger
+        // than 200 inches takes a user unit of several points (`/UserUnit`, sec. 14.11.2.1).
+        let inches = self.width.max(self.height) as f64 / self.dpi;
+        let unit = (inches * POINTS_PER_INCH / MAX_PAGE_UNITS).ceil().max(1.0);
+        let scale = POINTS_PER_INCH / self.dpi / unit;
         let (w_pt, h_pt) = (self.width as f64 * scale, self.height as f64 * scale);
         let by_id: BTreeMap<&str, &PathData> = self
             .items
@@ -229,6 +237,9 @@ impl Scene {
         pdf.pages(tree).kids([page_id]).count(1);
         let mut page = pdf.page(page_id);
         page.media_box(Rect::new(0.0, 0.0, w_pt as f32, h_pt as f32));
+        if unit > 1.0 {
+            page.user_unit(unit as f32);
+        }
         page.parent(tree);
         page.contents(content_id);
         let mut res = page.resources();
@@ -396,4 +407,45 @@ pub fn check_scene() -> Result<(Vec<u8>, Vec<u8>), RenderError> {
         clip: false,
     });
     Ok((sc.to_png()?, sc.to_pdf()?))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The page's size as written: MediaBox width and height, and the user unit (1 if none).
+    fn page_size(pdf: &[u8]) -> (f64, f64, f64) {
+        let text = String::from_utf8_lossy(pdf);
+        let at = text.find("/MediaBox [0 0 ").unwrap() + "/MediaBox [0 0 ".len();
+        let v: Vec<f64> = text[at..at + text[at..].find(']').unwrap()]
+            .split_whitespace()
+            .map(|t| t.parse().unwrap())
+            .collect();
+        let unit = text.find("/UserUnit ").map_or(1.0, |i| {
+            let rest = &text[i + "/UserUnit ".len()..];
+            rest[..rest.find(|c: char| c.is_whitespace()).unwrap()]
+                .parse()
+                .unwrap()
+        });
+        (v[0], v[1], unit)
+    }
+
+    #[test]
+    fn pages_beyond_the_size_limit_take_a_larger_user_unit() {
+        // ISO 32000-1 Annex C: a page side is at most 14,400 units; the figure's print size
+        // (width / dpi inches, 72 points to the inch) is kept through /UserUnit.
+        for (w, h, dpi, unit) in [(1600u32, 1000u32, 300.0, 1.0), (15000, 900, 72.0, 2.0)] {
+            let mut sc = Scene::new(w, h, dpi, "size check");
+            sc.path(
+                PathData::line(0.0, 0.0, w as f64, h as f64),
+                vec![Paint::Stroke(Line::solid(Rgba::BLACK, 1.0))],
+                "check",
+            );
+            let (pw, ph, u) = page_size(&sc.to_pdf().unwrap());
+            assert_eq!(u, unit, "{w} px at {dpi} dpi");
+            assert!(pw.max(ph) <= MAX_PAGE_UNITS);
+            assert!((pw * u - w as f64 / dpi * 72.0).abs() < 1e-2, "{pw} x {u}");
+            assert!((ph * u - h as f64 / dpi * 72.0).abs() < 1e-2, "{ph} x {u}");
+        }
+    }
 }
