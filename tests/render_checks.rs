@@ -1838,3 +1838,72 @@ fn a_beam_smaller_than_a_few_outline_widths_is_filled_at_its_exact_size() {
         assert_eq!(paints, expected, "{dpi} dpi");
     }
 }
+
+/// The map images the SVG embeds (the first `<image>` is the map's, the colour bar's after
+/// it): each image's PNG bytes decoded.
+fn svg_images(svg: &str) -> Vec<image::RgbImage> {
+    use base64::Engine;
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.has_tag_name("image"))
+        .map(|n| {
+            let href = n
+                .attributes()
+                .find(|a| a.name() == "href")
+                .map(|a| a.value())
+                .unwrap();
+            let b64 = href.strip_prefix("data:image/png;base64,").unwrap();
+            let png = base64::engine::general_purpose::STANDARD
+                .decode(b64)
+                .unwrap();
+            image::load_from_memory(&png).unwrap().to_rgb8()
+        })
+        .collect()
+}
+
+#[test]
+fn vector_figures_hold_the_maps_own_pixels_where_each_is_at_least_a_figure_pixel() {
+    // A 40 x 30 map in a panel hundreds of figure pixels wide: the SVG (and the PDF, from the
+    // same scene) embeds the map's 40 x 30 pixels, stretched over the panel without smoothing,
+    // and each agrees with the PNG's figure pixel at its centre. A map larger than its panel
+    // is embedded at the panel's resolution, area-averaged as in the PNG.
+    let l = Array2::from_elem((30, 40), -1);
+    let map = smooth_map(30, 40);
+    let o = plain_overlay(&map, &l, Vec::new());
+    let style = Style {
+        width_px: 700,
+        dpi: 100.0,
+        ..Style::default()
+    };
+    let fig = render::render_map_figure(&o, &style).unwrap();
+    let lay = overlay_layout(&o, &style).unwrap();
+    let own = &svg_images(&fig.svg)[0];
+    assert_eq!(own.dimensions(), (40, 30));
+    let pdf = String::from_utf8_lossy(&fig.pdf);
+    assert!(pdf.contains("/Width 40") && pdf.contains("/Height 30"), "the PDF's map image");
+    let png = image::load_from_memory(&fig.png).unwrap().to_rgb8();
+    let (fx, fy, fw, fh) = lay.frame;
+    for j in 0..30u32 {
+        for i in 0..40u32 {
+            // Image row j is map row 29 - j (north up); its centre on the figure.
+            let cx = fx + (i as f64 + 0.5) * fw / 40.0;
+            let cy = fy + (j as f64 + 0.5) * fh / 30.0;
+            assert_eq!(
+                own.get_pixel(i, j),
+                png.get_pixel(cx as u32, cy as u32),
+                "map pixel ({i}, {j})"
+            );
+        }
+    }
+    // A map of more pixels than its panel: the panel's resolution.
+    let big = smooth_map(900, 1200);
+    let lb = Array2::from_elem((900, 1200), -1);
+    let o = plain_overlay(&big, &lb, Vec::new());
+    let fig = render::render_map_figure(&o, &style).unwrap();
+    let lay = overlay_layout(&o, &style).unwrap();
+    let img = &svg_images(&fig.svg)[0];
+    assert_eq!(
+        (img.width() as f64, img.height() as f64),
+        (lay.frame.2, lay.frame.3)
+    );
+}

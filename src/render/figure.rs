@@ -1201,12 +1201,28 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         };
         px.copy_from_slice(&c);
     }
+    // Where every map pixel is at least a figure pixel, the vector outputs hold the map's
+    // own pixels (each figure pixel above shows the map pixel under its centre, so the
+    // two agree), unless missing pixels are hatched on a grey map, a pattern of figure pixels.
+    let hatched = s.colormap == ColorMap::Grey && view.iter().any(|v| v.is_nan());
+    let exact = (rw <= iw && rh <= ih && !hatched).then(|| {
+        let mut own = vec![0u8; rw * rh * 3];
+        for (j, row) in own.chunks_exact_mut(rw * 3).enumerate() {
+            // Image rows from the top; map rows count from the bottom.
+            let src = view.row(rh - 1 - j);
+            for (px, &v) in row.chunks_exact_mut(3).zip(src.iter()) {
+                px.copy_from_slice(&lut.get(scale.pos(v as f64)));
+            }
+        }
+        (rw as u32, rh as u32, own)
+    });
     sc.items.push(Item::Image {
         x: fx as i32,
         y: fy as i32,
         w: iw as u32,
         h: ih as u32,
         rgb,
+        exact,
     });
 
     // Outlines, traced on a window one pixel larger than the region so footprints cut by
@@ -1937,6 +1953,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
         w: cwi,
         h: chi,
         rgb: cb,
+        exact: None,
     });
     let cx = cx.round();
     sc.path(

@@ -148,10 +148,17 @@ impl Scene {
         );
         let mut next = 6;
         let mut images: Vec<(Ref, &[u8], u32, u32)> = Vec::new();
-        let mut pngs: Vec<Vec<u8>> = Vec::new();
+        // Each image's PNG encoding and its pixels' width and height.
+        let mut pngs: Vec<(Vec<u8>, u32, u32)> = Vec::new();
         for item in &self.items {
-            if let Item::Image { w, h, rgb, .. } = item {
-                pngs.push(encode_png(rgb, *w, *h, None)?);
+            if let Item::Image {
+                w, h, rgb, exact, ..
+            } = item
+            {
+                pngs.push(match exact {
+                    Some((ew, eh, erg)) => (encode_png(erg, *ew, *eh, None)?, *ew, *eh),
+                    None => (encode_png(rgb, *w, *h, None)?, *w, *h),
+                });
             }
         }
         let mut alphas = std::collections::BTreeSet::new();
@@ -169,9 +176,9 @@ impl Scene {
                 Item::Image { x, y, w, h, .. } => {
                     let id = Ref::new(next);
                     next += 1;
-                    let png = &pngs[image_at];
+                    let (png, pw, ph) = &pngs[image_at];
                     image_at += 1;
-                    images.push((id, png.as_slice(), *w, *h));
+                    images.push((id, png.as_slice(), *pw, *ph));
                     let name = format!("Im{}", images.len());
                     c.save_state();
                     // The image's unit square, its first row at the top, onto its pixels.
@@ -317,6 +324,7 @@ pub fn check_scene() -> Result<(Vec<u8>, Vec<u8>), RenderError> {
         w: iw,
         h: ih,
         rgb,
+        exact: None,
     });
     sc.clip = Some((30.0, 20.0, iw as f64, ih as f64));
     // A circle of quadratic segments, half outside the clip, filled translucent.

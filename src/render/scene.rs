@@ -201,6 +201,11 @@ pub(crate) enum Item {
         w: u32,
         h: u32,
         rgb: Vec<u8>,
+        /// For the vector outputs: the same picture at a coarser resolution of its own
+        /// (width, height, RGB), stretched over the same box without smoothing. The map's
+        /// own pixels, where each is at least a figure pixel: the exact picture, smaller,
+        /// whose pixels a reader zooming in sees at their true edges.
+        exact: Option<(u32, u32, Vec<u8>)>,
     },
     Path {
         d: PathData,
@@ -364,7 +369,9 @@ impl Scene {
             .collect();
         for item in &self.items {
             match item {
-                Item::Image { x, y, w, h, rgb } => {
+                Item::Image {
+                    x, y, w, h, rgb, ..
+                } => {
                     let mut rgba = Vec::with_capacity((*w as usize) * (*h as usize) * 4);
                     for px in rgb.chunks_exact(3) {
                         rgba.extend_from_slice(&[px[0], px[1], px[2], 255]);
@@ -488,8 +495,18 @@ impl Scene {
         let mut auto_id = 0usize;
         for item in &self.items {
             match item {
-                Item::Image { x, y, w, h, rgb } => {
-                    let png = encode_png(rgb, *w, *h, None)?;
+                Item::Image {
+                    x,
+                    y,
+                    w,
+                    h,
+                    rgb,
+                    exact,
+                } => {
+                    let png = match exact {
+                        Some((ew, eh, erg)) => encode_png(erg, *ew, *eh, None)?,
+                        None => encode_png(rgb, *w, *h, None)?,
+                    };
                     let b64 = base64::engine::general_purpose::STANDARD.encode(png);
                     let _ = writeln!(
                         s,
