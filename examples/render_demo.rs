@@ -225,6 +225,7 @@ fn main() {
             bottom: 4.0e21,
             is_leaf: false,
             state: None,
+            show_id: true,
         },
         TreeNode {
             id: 101,
@@ -233,6 +234,7 @@ fn main() {
             bottom: 9.0e21,
             is_leaf: false,
             state: None,
+            show_id: true,
         },
         TreeNode {
             id: 102,
@@ -241,6 +243,7 @@ fn main() {
             bottom: 9.0e21,
             is_leaf: false,
             state: None,
+            show_id: true,
         },
     ];
     let parents = [102, 101, 101, 102, 100, 100];
@@ -259,6 +262,7 @@ fn main() {
             },
             is_leaf: true,
             state: Some(leaves[i].state),
+            show_id: true,
         });
     }
     let ts = Style {

@@ -182,9 +182,9 @@ fn state_index(s: Option<&str>) -> usize {
     }
 }
 
-/// Which leaves of a map figure get a label (every leaf is outlined whatever the choice).
-/// Labels are placed brightest peak first, so on a crowded map the ones left without room
-/// are the faintest.
+/// Which leaves of a map figure get a label (every leaf is outlined whatever the choice),
+/// and which carry their id in the tree diagram. Labels are placed brightest peak first, so
+/// on a crowded map (or tree) the ones left without room are the faintest.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub enum LabelChoice {
     /// Every leaf.
@@ -368,7 +368,7 @@ pub struct FigureInput<'a> {
     pub distance_pc: Option<f64>,
     /// A title.
     pub title: Option<String>,
-    /// Which leaves get a label.
+    /// Which leaves get a label, on the map figure and in the tree diagram alike.
     pub label_choice: LabelChoice,
 }
 
@@ -898,7 +898,9 @@ pub struct Figures {
     pub tree_svg: String,
     pub tree_pdf: Vec<u8>,
     /// The tree's leaves, and how many of them are drawn without their id (all of them when
-    /// the diagram is too crowded for ids, which it says under its legend).
+    /// the diagram is too crowded for any; counted are the leaves
+    /// [`FigureInput::label_choice`] chooses for an id, see
+    /// [`render::TreeFigure::ids_left_out`]).
     pub tree_leaves: usize,
     pub tree_ids_left_out: usize,
     /// The leaves [`FigureInput::label_choice`] chose for a label, of all the run's leaves
@@ -991,6 +993,12 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
         leaves.iter().filter(|l| !l.label.is_empty()).count(),
         n_leaves,
     );
+    // The tree names the leaves the map figure is asked to name.
+    let with_id: std::collections::HashSet<i32> = leaves
+        .iter()
+        .filter(|l| !l.label.is_empty())
+        .map(|l| l.id)
+        .collect();
     let fsky = figure_sky(map, style.region);
     // Without a measurable pixel at the shown centre, the sky axes are still drawn (the
     // ticks find their own places), only the beam is not.
@@ -1024,6 +1032,7 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             bottom: s.merge_level,
             is_leaf: s.is_leaf,
             state: s.is_leaf.then(|| state_index(s.state.as_deref())),
+            show_id: with_id.contains(&(s.id as i32)),
         })
         .collect();
     let level = format!("level [{}]", unit_markup(&crate::segment::map_unit(map)));

@@ -644,7 +644,8 @@ struct StyleArgs {
     /// Also outline the top-level structures that have children.
     #[arg(long)]
     branches: bool,
-    /// Which leaves get their id written beside them (all are outlined): all, none, states
+    /// Which leaves get their id written beside them, and above them in the tree diagram (all
+    /// are outlined): all, none, states
     /// (bound, or bound,marginal; needs the run's states), a number N for the N highest peaks
     /// (of those in --region), or a least mass such as 2Msun (needs the run's masses). Labels
     /// are placed highest peak first.
@@ -2295,11 +2296,11 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
     Ok(())
 }
 
-/// Says when the tree diagram is too crowded for its leaves' ids.
+/// Says how many of the leaves chosen for an id the tree diagram had no room for.
 fn tree_note(leaves: usize, left_out: usize) {
     if left_out > 0 {
         outln!(
-            "tree: the ids of its {leaves} leaves left out, too crowded for ids of {} pt; a wider --width shows them",
+            "tree: {left_out} of {leaves} leaves left without their id where the diagram is too crowded for ids of {} pt (the highest peaks named first); a wider --width names more",
             cairn::render::MIN_ID_PT
         );
     }

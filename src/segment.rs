@@ -915,7 +915,8 @@ pub struct RunSummary {
     pub figure_labels: Option<(usize, usize)>,
     /// With a figure: the leaves chosen for a label (`label_choice`) and all the leaves.
     pub figure_labels_chosen: Option<(usize, usize)>,
-    /// With a figure: the tree's leaves and how many of their ids it left out (too crowded).
+    /// With a figure: the tree's leaves chosen for an id (`label_choice`) and how many of
+    /// those ids it left out (too crowded).
     pub figure_tree_ids: Option<(usize, usize)>,
     /// With a figure of a very long and narrow map: the scale along y over that along x
     /// (the map is then drawn at unequal scales to keep the figure a usable size).

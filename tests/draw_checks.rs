@@ -2,6 +2,9 @@
 //! structure, and redrawing a finished run.
 
 mod common;
+#[allow(dead_code)]
+#[path = "common/segment_fixture.rs"]
+mod segment_fixture;
 
 use std::path::PathBuf;
 
@@ -114,12 +117,7 @@ fn beam_and_scale_bar_follow_the_header() {
 fn segment_figures_are_well_formed_and_redrawn_identically() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("run");
-    let mut o = {
-        #[allow(dead_code)]
-        #[path = "common/segment_fixture.rs"]
-        mod fx;
-        fx::fixture_options(&out)
-    };
+    let mut o = segment_fixture::fixture_options(&out);
     o.figure = Some(cairn::render::Style {
         width_px: 900,
         ..Default::default()
@@ -412,6 +410,106 @@ fn a_region_centre_in_another_frame_lands_where_astropy_puts_it() {
                     (own.centre.0 - x).hypot(own.centre.1 - y) > 10.0,
                     "{name} {text}: the frame changes nothing"
                 );
+            }
+        }
+    }
+}
+
+/// The ids drawn by a figure's SVG with the given class (`leaf-label` on the map figure,
+/// `leaf-id` in the tree), read from their readable text, sorted.
+fn drawn_ids(svg: &str, class: &str) -> Vec<u32> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    let mut ids: Vec<u32> = doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some(class))
+        .filter_map(|n| n.attribute("aria-label")?.parse().ok())
+        .collect();
+    ids.sort_unstable();
+    ids
+}
+
+/// The stored segmentation's run, made again in `out` without figures, as `cairn draw` reads
+/// it.
+fn fixture_run(out: &std::path::Path) -> cairn::draw::SavedRun {
+    let o = segment_fixture::fixture_options(out);
+    cairn::segment::run(&fixture_map(), &o, &|_, _| {}).unwrap();
+    cairn::draw::read_run(out, None).unwrap()
+}
+
+/// The tree names the leaves `--labels` chooses for the map figure, so a paper's two figures
+/// show the same ids, and counts those it has no room for; the ids chosen are worked out here
+/// from the catalogue's own words (the N highest peaks, the states), not from cairn's choice.
+#[test]
+fn the_tree_names_the_leaves_the_map_figure_is_asked_to_name() {
+    use cairn::draw::LabelChoice;
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("run");
+    let run = fixture_run(&out);
+    let mut leaves: Vec<&cairn::draw::FigStructure> =
+        run.structures.iter().filter(|s| s.is_leaf).collect();
+    assert!(leaves.len() >= 6, "{} leaves", leaves.len());
+    leaves.sort_by(|a, b| b.peak_value.total_cmp(&a.peak_value).then(a.id.cmp(&b.id)));
+    let sorted = |mut v: Vec<u32>| {
+        v.sort_unstable();
+        v
+    };
+    let all = sorted(leaves.iter().map(|s| s.id).collect());
+    let bound = sorted(
+        leaves
+            .iter()
+            .filter(|s| s.state.as_deref() == Some("bound"))
+            .map(|s| s.id)
+            .collect(),
+    );
+    let cases = [
+        (LabelChoice::All, all.clone()),
+        (LabelChoice::None, Vec::new()),
+        (
+            LabelChoice::Brightest(3),
+            sorted(leaves[..3].iter().map(|s| s.id).collect()),
+        ),
+        (LabelChoice::States(vec![0]), bound),
+    ];
+    let style_at = |width_px: u32| cairn::render::Style {
+        width_px,
+        ..Default::default()
+    };
+    // The narrowest figure the map allows, where the tree is crowded.
+    let narrowest = (200..2000)
+        .find(|&w| cairn::draw::check_figure_style(&run.map, &style_at(w)).is_ok())
+        .unwrap();
+    for width in [1600, narrowest] {
+        let style = style_at(width);
+        for (choice, want) in &cases {
+            let input = cairn::draw::FigureInput {
+                map: &run.map,
+                labels: run.labels.view(),
+                structures: run.structures.clone(),
+                distance_pc: run.distance_pc,
+                title: None,
+                label_choice: choice.clone(),
+            };
+            let figs = cairn::draw::figures(&input, &style).unwrap();
+            let (on_map, in_tree) = (
+                drawn_ids(&figs.overlay.svg, "leaf-label"),
+                drawn_ids(&figs.tree_svg, "leaf-id"),
+            );
+            let what = format!("{choice:?} at {width} px");
+            assert_eq!(figs.labels_chosen, (want.len(), all.len()), "{what}");
+            assert_eq!(figs.tree_leaves, want.len(), "{what}");
+            assert_eq!(in_tree.len() + figs.tree_ids_left_out, want.len(), "{what}");
+            assert!(in_tree.iter().all(|id| want.contains(id)), "{what}");
+            assert!(on_map.iter().all(|id| want.contains(id)), "{what}");
+            if width == 1600 {
+                // Room for every id in both figures: the same ids.
+                assert_eq!(figs.tree_ids_left_out, 0, "{what}");
+                assert_eq!(figs.overlay.labels_left_out, 0, "{what}");
+                assert_eq!(&in_tree, want, "{what}");
+                assert_eq!(&on_map, want, "{what}");
+            } else if !want.is_empty() {
+                // Crowded: the highest peak chosen is among those named.
+                let first = leaves.iter().find(|s| want.contains(&s.id)).unwrap();
+                assert!(in_tree.contains(&first.id), "{what}: {in_tree:?}");
             }
         }
     }

@@ -813,6 +813,7 @@ fn tree_nodes() -> Vec<TreeNode> {
         bottom,
         is_leaf: leaf,
         state,
+        show_id: true,
     };
     vec![
         n(10, None, 9.0, 1.0, false, None),
@@ -913,6 +914,7 @@ fn random_tree(n: usize, seed: u64) -> Vec<TreeNode> {
             },
             is_leaf: false,
             state: None,
+            show_id: true,
         })
         .collect();
     for l in 0..n {
@@ -937,6 +939,7 @@ fn random_tree(n: usize, seed: u64) -> Vec<TreeNode> {
             bottom: h[p],
             is_leaf: true,
             state: (u >= 0.25).then_some((u * 12.0) as usize % 3),
+            show_id: true,
         });
     }
     nodes
@@ -1499,6 +1502,7 @@ fn flat_tree(n: u32) -> Vec<TreeNode> {
         bottom: 1.0,
         is_leaf: false,
         state: None,
+        show_id: true,
     }];
     v.extend((0..n).map(|id| TreeNode {
         id,
@@ -1507,6 +1511,7 @@ fn flat_tree(n: u32) -> Vec<TreeNode> {
         bottom: 2.0,
         is_leaf: true,
         state: Some(id as usize % 3),
+        show_id: true,
     }));
     v
 }
@@ -1520,8 +1525,21 @@ fn svg_texts(svg: &str) -> Vec<String> {
         .collect()
 }
 
+/// The leaf ids drawn in a tree figure (class `leaf-id`), each with the box of its glyphs.
+fn tree_ids(svg: &str) -> Vec<(u32, svg_layout::Bounds)> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.attribute("class") == Some("leaf-id"))
+        .map(|n| {
+            let id: u32 = n.attribute("aria-label").unwrap().parse().unwrap();
+            assert_eq!(n.attribute("id"), Some(format!("id-{id}").as_str()));
+            (id, svg_layout::bounds(n.attribute("d").unwrap()))
+        })
+        .collect()
+}
+
 #[test]
-fn crowded_trees_keep_their_leaf_ids_down_to_a_legible_size_and_say_when_they_cannot() {
+fn crowded_trees_keep_their_leaf_ids_down_to_a_legible_size() {
     let style = Style {
         width_px: 1600,
         dpi: 300.0,
@@ -1532,36 +1550,148 @@ fn crowded_trees_keep_their_leaf_ids_down_to_a_legible_size_and_say_when_they_ca
     let nodes = flat_tree(47);
     let fig = render::render_tree_figure(&nodes, &states(), "level [K]", &style).unwrap();
     assert_eq!((fig.leaves, fig.ids_left_out), (47, 0));
-    let texts = svg_texts(&fig.svg);
-    for id in 0..47 {
-        assert!(texts.contains(&id.to_string()), "id {id} is drawn");
-    }
-    assert!(!texts.iter().any(|t| t.contains("left out")));
+    let mut drawn: Vec<u32> = tree_ids(&fig.svg).iter().map(|d| d.0).collect();
+    drawn.sort_unstable();
+    assert_eq!(drawn, (0..47).collect::<Vec<u32>>(), "every id is drawn");
+    assert!(!svg_texts(&fig.svg).iter().any(|t| t.contains("left out")));
     // The ids' glyphs are at least MIN_ID_PT tall in capitals (digits are about as tall as
     // capitals in DejaVu Sans: 0.73 em).
-    let doc = roxmltree::Document::parse(&fig.svg).unwrap();
     let min_px = render::MIN_ID_PT * 300.0 / 72.0;
-    for n in doc.descendants().filter(|n| {
-        n.attribute("class") == Some("text")
-            && n.attribute("aria-label").is_some_and(|l| l == "8")
-            && n.attribute("fill") != Some("none")
-    }) {
-        let b = svg_layout::bounds(n.attribute("d").unwrap());
-        // Turned: the digit's height runs along x.
-        let along = (b.2 - b.0).max(b.3 - b.1);
-        assert!(
-            along >= 0.7 * min_px,
-            "an id {along:.1} px long at {min_px:.1} px per em"
-        );
+    for (id, b) in tree_ids(&fig.svg) {
+        // Turned: the digits' height runs along x.
+        if id < 10 {
+            let along = b.2 - b.0;
+            assert!(
+                along >= 0.7 * min_px,
+                "id {id} {along:.1} px long at {min_px:.1} px per em"
+            );
+        }
     }
-    // 400 leaves leave no room even for 5 pt ids: they are counted as left out for the caller
-    // to say, and the figure, meant for a paper, carries no message about it.
+}
+
+/// What a crowded tree figure must hold whatever its shape: the ids drawn and those counted
+/// as left out add up to the leaves chosen for one; no two ids overlap; no id meets a line
+/// (a structure's, with its casing, or a connector); the highest peak's id is drawn when it
+/// is chosen (equal peaks: the lowest id); and no text in the figure speaks of ids left out.
+fn check_crowded_ids(nodes: &[TreeNode], style: &Style) -> (Vec<u32>, usize) {
+    let fig = render::render_tree_figure(nodes, &states(), "level [K]", style).unwrap();
+    let leaf_ids: Vec<u32> = nodes
+        .iter()
+        .filter(|n| !nodes.iter().any(|c| c.parent == Some(n.id)))
+        .filter(|n| n.show_id)
+        .map(|n| n.id)
+        .collect();
+    let ids = tree_ids(&fig.svg);
+    assert_eq!(fig.leaves, leaf_ids.len());
+    assert_eq!(ids.len() + fig.ids_left_out, leaf_ids.len());
+    assert!(ids.iter().all(|(id, _)| leaf_ids.contains(id)));
+    for (i, a) in ids.iter().enumerate() {
+        for b in &ids[i + 1..] {
+            assert!(
+                !svg_layout::overlap(a.1, b.1),
+                "ids {} and {} overlap",
+                a.0,
+                b.0
+            );
+        }
+    }
+    // Lines as drawn: a structure's line is at most 0.9 pt wide over a casing 0.8 pt wider
+    // (1.7 pt in all), a connector or a dense drawing's run as wide as its stroke.
+    let pt = style.dpi / 72.0;
+    let doc = roxmltree::Document::parse(&fig.svg).unwrap();
+    for n in doc.descendants().filter(|n| n.has_tag_name("path")) {
+        let (class, d) = (n.attribute("class").unwrap_or(""), n.attribute("d"));
+        let stroke = n
+            .attribute("stroke-width")
+            .map(|w| w.parse::<f64>().unwrap());
+        let half = if n.attribute("id").is_some_and(|i| i.starts_with("node-")) {
+            // A line of a state is painted twice (casing and colour) from a shared path.
+            stroke.map_or(0.85 * pt, |w| 0.5 * w)
+        } else if class == "connector" || class.starts_with("dense") {
+            0.5 * stroke.unwrap()
+        } else {
+            continue;
+        };
+        let lines = svg_layout::subpaths(d.unwrap());
+        for (id, b) in &ids {
+            // Only the pieces near the id are measured (the measure samples finely).
+            let near: Vec<Vec<(f64, f64)>> = lines
+                .iter()
+                .filter(|l| {
+                    let (xs, ys) = (l.iter().map(|p| p.0), l.iter().map(|p| p.1));
+                    let lb = (
+                        xs.clone().fold(f64::INFINITY, f64::min) - half - 1.0,
+                        ys.clone().fold(f64::INFINITY, f64::min) - half - 1.0,
+                        xs.fold(f64::NEG_INFINITY, f64::max) + half + 1.0,
+                        ys.fold(f64::NEG_INFINITY, f64::max) + half + 1.0,
+                    );
+                    svg_layout::overlap(lb, *b)
+                })
+                .cloned()
+                .collect();
+            let dist = svg_layout::distance(&near, *b);
+            assert!(
+                dist >= half,
+                "id {id} lies {dist:.2} px from the middle of a line ({class}) {half:.2} px half wide"
+            );
+        }
+    }
+    let highest = nodes
+        .iter()
+        .filter(|n| !nodes.iter().any(|c| c.parent == Some(n.id)))
+        .min_by(|a, b| b.top.total_cmp(&a.top).then(a.id.cmp(&b.id)))
+        .unwrap();
+    assert_eq!(
+        ids.iter().any(|d| d.0 == highest.id),
+        highest.show_id,
+        "the highest peak is named when chosen"
+    );
+    assert!(!svg_texts(&fig.svg).iter().any(|t| t.contains("left out")));
+    let png = render::render_tree_figure(nodes, &states(), "level [K]", style)
+        .unwrap()
+        .png;
+    assert_eq!(png, fig.png, "drawn identically again");
+    (ids.into_iter().map(|d| d.0).collect(), fig.ids_left_out)
+}
+
+/// A tree too crowded for every id even at MIN_ID_PT names the leaves it has room for,
+/// highest peak first, and counts the others for the caller to say.
+#[test]
+fn crowded_trees_name_the_highest_peaks_they_have_room_for() {
+    let style = Style {
+        width_px: 1600,
+        dpi: 300.0,
+        ..Style::default()
+    };
+    // 400 leaves under one root on about 3.6 pixels each, peaks 3 to 9 in turn: the leaves of
+    // the highest peak (id % 7 == 6) stand seven leaves (about 25 pixels) apart, room for
+    // turned ids of 5 pt (21 pixels per em) between them, so each is named; the leaves beside
+    // them are lower and lie within an id's width of a higher line, so they are not.
     let nodes = flat_tree(400);
-    let fig = render::render_tree_figure(&nodes, &states(), "level [K]", &style).unwrap();
-    assert_eq!((fig.leaves, fig.ids_left_out), (400, 400));
-    let texts = svg_texts(&fig.svg).join(" ");
-    assert!(!texts.contains("left out"), "{texts}");
-    assert!(!svg_texts(&fig.svg).contains(&"399".to_string()));
+    let (drawn, left_out) = check_crowded_ids(&nodes, &style);
+    for id in (6..400).step_by(7) {
+        assert!(drawn.contains(&id), "id {id} of a highest peak is drawn");
+    }
+    assert!(left_out > 0);
+    // Random binary trees, a few hundred leaves on the same width.
+    for seed in 1..6 {
+        check_crowded_ids(&random_tree(300, seed), &style);
+    }
+    // Only the leaves chosen for an id are named, and only they are counted.
+    let mut some = random_tree(300, 7);
+    for n in &mut some {
+        n.show_id = n.id % 3 == 0;
+    }
+    check_crowded_ids(&some, &style);
+    // A narrow figure at a low resolution, and a tree with more leaves than pixel columns.
+    let narrow = Style {
+        width_px: 400,
+        dpi: 100.0,
+        ..Style::default()
+    };
+    check_crowded_ids(&random_tree(200, 8), &narrow);
+    let (drawn, left_out) = check_crowded_ids(&random_tree(5000, 9), &tree_style());
+    assert!(!drawn.is_empty() && left_out > 4000);
 }
 
 /// A figure too narrow for the map beside its labels is refused with the narrowest width

@@ -208,6 +208,10 @@ pub struct TreeNode {
     pub is_leaf: bool,
     /// Index into the states legend, or None (drawn in dark grey).
     pub state: Option<usize>,
+    /// Whether the leaf's id is written above it, where there is room (ignored for
+    /// structures with children). A map figure that labels only some leaves passes the same
+    /// choice here, so both figures name the same leaves.
+    pub show_id: bool,
 }
 
 /// Why a figure could not be drawn.
@@ -363,9 +367,12 @@ pub struct TreeFigure {
     pub svg: String,
     pub pdf: Vec<u8>,
     /// The leaves of the tree.
+    /// Of them, only those chosen for an id ([`TreeNode::show_id`]) are counted.
     pub leaves: usize,
-    /// Leaves drawn without their id: all of them when the diagram has no room for ids of
-    /// [`MIN_ID_PT`] (the figure says so under its legend), else none.
+    /// Of those, the leaves drawn without their id: on a diagram too crowded for every id at
+    /// [`MIN_ID_PT`], ids are placed highest peak first where they meet no line and no other
+    /// id, and the rest are left out (counted here for the caller to say; the figure, meant
+    /// for a paper, does not).
     pub ids_left_out: usize,
 }
 

@@ -16,7 +16,7 @@
 
 use super::axes;
 use super::legend;
-use super::scene::{Line, Paint, PathData, Rgba, Scene};
+use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
 use super::text;
 use super::{RenderError, StateLegend, Stretch, Style, TreeNode, state_colour, state_dash};
 use std::collections::BTreeMap;
@@ -24,6 +24,61 @@ use std::collections::BTreeMap;
 /// The smallest leaf ids the tree diagram draws, in points (common practice: print figures
 /// keep text at 5 pt or more).
 pub const MIN_ID_PT: f64 = 5.0;
+
+/// Turned ids stand at least this many times their size apart (centre to centre), so that
+/// neighbouring ids keep a gap of about a third of their size between their digits.
+const ID_SPACING: f64 = 1.1;
+
+/// How much wider than a leaf's coloured line its dark casing is, in points.
+const CASING_PT: f64 = 0.8;
+
+/// How leaf ids are written: upright, turned (every leaf has room for its id), or turned and
+/// fitted where they meet no line and no other id (a crowded diagram).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum IdMode {
+    Upright,
+    Turned,
+    Fitted,
+}
+
+/// The highest point drawn in each pixel column of the diagram (y down: the smallest y), for
+/// fitting the ids of a crowded diagram: an id goes where no line is drawn above the foot of
+/// its box across the columns the box covers (and where it meets no id placed before it).
+/// Columns outside the range count as empty.
+struct Sky {
+    col0: i64,
+    top: Vec<f64>,
+}
+
+impl Sky {
+    fn new(col0: i64, ncols: usize) -> Self {
+        Sky {
+            col0,
+            top: vec![f64::INFINITY; ncols],
+        }
+    }
+
+    /// The columns that the span `a..=b` of x touches (column c holds x in c..c+1).
+    fn columns(&self, a: f64, b: f64) -> std::ops::Range<usize> {
+        let n = self.top.len() as i64;
+        let c0 = (a.floor() as i64 - self.col0).clamp(0, n);
+        let c1 = (b.floor() as i64 - self.col0 + 1).clamp(c0, n);
+        c0 as usize..c1 as usize
+    }
+
+    /// Records ink up to `y` across `a..=b`.
+    fn lower(&mut self, a: f64, b: f64, y: f64) {
+        let r = self.columns(a, b);
+        for t in &mut self.top[r] {
+            *t = t.min(y);
+        }
+    }
+
+    /// Whether nothing is drawn at or above `y` across `a..=b`.
+    fn clear_above(&self, a: f64, b: f64, y: f64) -> bool {
+        self.top[self.columns(a, b)].iter().all(|&t| t > y)
+    }
+}
 
 /// Horizontal order of a tree: the leaf order of a depth-first walk and each node's position
 /// in leaf slots (leaves at 0, 1, 2, ...; a branch midway between its first and last child).
@@ -176,28 +231,38 @@ pub(crate) fn scene(
     }
     let nslots = tl.leaf_order.len().max(1) as f64;
     let slot = pw / nslots;
-    // Leaf ids: upright at 0.75 of the text size when they fit between neighbours; else
-    // turned, at that size or smaller down to MIN_ID_PT; else left out, which the figure's
-    // count (`ids_left_out`) lets the caller say.
+    // Leaf ids, of the leaves chosen for one: upright at 0.75 of the text size when every
+    // leaf has room for its id between its neighbours; else turned, at that size or smaller
+    // down to MIN_ID_PT; else, on a crowded diagram, turned at MIN_ID_PT where they fit,
+    // highest peak first ([`Sky`]). Those left out are counted (`ids_left_out`) for the
+    // caller to say.
+    let chosen: Vec<&TreeNode> = tl
+        .leaf_order
+        .iter()
+        .map(|id| by_id[id])
+        .filter(|n| n.show_id)
+        .collect();
     let full_fs = 0.75 * fs;
     let min_fs = MIN_ID_PT * pt;
     let max_id_w = |size: f64| {
-        tl.leaf_order
+        chosen
             .iter()
-            .map(|id| text::width(&id.to_string(), size))
+            .map(|n| text::width(&n.id.to_string(), size))
             .fold(0.0, f64::max)
     };
-    let (id_mode, id_fs) = if slot >= max_id_w(full_fs) + 0.3 * full_fs {
-        (1, full_fs)
-    } else if slot / 1.1 >= min_fs {
-        (2, full_fs.min(slot / 1.1))
+    let ids = if chosen.is_empty() {
+        None
+    } else if slot >= max_id_w(full_fs) + 0.3 * full_fs {
+        Some((IdMode::Upright, full_fs))
+    } else if slot / ID_SPACING >= min_fs {
+        Some((IdMode::Turned, full_fs.min(slot / ID_SPACING)))
     } else {
-        (0, full_fs)
+        Some((IdMode::Fitted, min_fs))
     };
-    let id_room = match id_mode {
-        1 => 1.3 * id_fs,
-        2 => max_id_w(id_fs) + 0.5 * id_fs,
-        _ => 0.0,
+    let id_room = match ids {
+        None => 0.0,
+        Some((IdMode::Upright, f)) => 1.3 * f,
+        Some((_, f)) => max_id_w(f) + 0.5 * f,
     };
     let top = (pad + id_room).round();
     let ph = (0.55 * w_total).round();
@@ -219,8 +284,8 @@ pub(crate) fn scene(
     if linear_instead {
         note.push("levels at or below zero: the level axis is linear, not logarithmic".into());
     }
-    // Ids left out (id_mode 0) are said by the caller in its summary, not in the figure,
-    // which would otherwise carry a message to its user into a paper.
+    // Ids left out are said by the caller in its summary, not in the figure, which would
+    // otherwise carry a message to its user into a paper.
     if dense {
         let (a, b) = (
             format!(
@@ -250,8 +315,7 @@ pub(crate) fn scene(
     let xmap = |slotx: f64| left + (slotx + 0.5) * slot;
 
     let mut sc = Scene::new(s.width_px, height, s.dpi, "tree of structures");
-    sc.leaves_to_label = tl.leaf_order.len();
-    sc.labels_left_out = if id_mode == 0 { tl.leaf_order.len() } else { 0 };
+    sc.leaves_to_label = chosen.len();
     let lw = (0.9 * pt).min(0.45 * slot).max(0.25 * pt);
     let grey = Rgba(60, 60, 60, 255);
     // The upper end of each structure's vertical line (its peak, or a branch's highest split).
@@ -364,7 +428,7 @@ pub(crate) fn scene(
                         vec![
                             Paint::Stroke(Line {
                                 color: Rgba(0, 0, 0, 200),
-                                width: lw + 0.8 * pt,
+                                width: lw + CASING_PT * pt,
                                 dash: dash.clone(),
                                 round: true,
                             }),
@@ -383,7 +447,7 @@ pub(crate) fn scene(
                     (if is_leaf { "leaf" } else { "branch" }).to_string(),
                 ),
             };
-            sc.items.push(super::scene::Item::Path {
+            sc.items.push(Item::Path {
                 d,
                 paints,
                 clip: false,
@@ -391,14 +455,75 @@ pub(crate) fn scene(
                 class,
                 label: None,
             });
-            if is_leaf && id_mode != 0 {
-                let y = ymap(n.top) - 0.4 * id_fs;
-                let t = n.id.to_string();
-                if id_mode == 1 {
-                    sc.text(&t, x, y, id_fs, 0.5, 0.0, false, Rgba::BLACK, None);
-                } else {
-                    sc.text(&t, x, y, id_fs, 0.0, 0.5, true, Rgba::BLACK, None);
+        }
+    }
+    // Leaf ids, over the lines.
+    if let Some((mode, id_fs)) = ids {
+        let at = |n: &TreeNode| (xmap(tl.x[&n.id]), ymap(n.top) - 0.4 * id_fs);
+        let placed: Vec<&TreeNode> = match mode {
+            IdMode::Upright | IdMode::Turned => chosen.clone(),
+            IdMode::Fitted => {
+                // The ink of every line, as drawn with its casing (a connector's half width
+                // below its row, a vertical line's round cap above its end).
+                let mut sky = Sky::new(left.floor() as i64 - 1, pw.ceil() as usize + 3);
+                let mut conns: Vec<(i64, f64, f64)> = Vec::new();
+                for n in nodes {
+                    if let Some(p) = n.parent {
+                        let (a, b) = (xmap(tl.x[&n.id]), xmap(tl.x[&p]));
+                        conns.push(((ymap(n.bottom) * 4.0).round() as i64, a.min(b), a.max(b)));
+                    }
+                    // The dense drawing's runs are whole pixels, up to one above the end.
+                    let h = 0.5
+                        * if n.state.is_some() {
+                            lw + CASING_PT * pt
+                        } else {
+                            lw
+                        };
+                    let h = if dense { h.max(1.0) } else { h };
+                    let x = xmap(tl.x[&n.id]);
+                    sky.lower(x - h, x + h, ymap(upper_of(n)).min(ymap(n.bottom)) - h);
                 }
+                for (row, a, b) in merge_spans(conns, 0.0) {
+                    sky.lower(a, b, row as f64 / 4.0 - 0.5 * lw - 0.125);
+                }
+                // Highest peak first (equal peaks by id), as the map figure places its labels.
+                let mut order = chosen.clone();
+                order.sort_by(|a, b| b.top.total_cmp(&a.top).then(a.id.cmp(&b.id)));
+                let half = 0.5 * ID_SPACING * id_fs;
+                let mut boxes: Vec<(f64, f64, f64, f64)> = Vec::new();
+                let mut placed = Vec::new();
+                for n in order {
+                    let (x, y) = at(n);
+                    let b = (
+                        x - half,
+                        y - text::width(&n.id.to_string(), id_fs) - 0.3 * id_fs,
+                        x + half,
+                        y,
+                    );
+                    let apart = |o: &(f64, f64, f64, f64)| {
+                        o.2 <= b.0 || b.2 <= o.0 || o.3 <= b.1 || b.3 <= o.1
+                    };
+                    if sky.clear_above(b.0, b.2, y) && boxes.iter().all(apart) {
+                        boxes.push(b);
+                        placed.push(n);
+                    }
+                }
+                placed.sort_by_key(|n| n.id);
+                placed
+            }
+        };
+        sc.labels_left_out = chosen.len() - placed.len();
+        for n in placed {
+            let (x, y) = at(n);
+            let t = n.id.to_string();
+            if mode == IdMode::Upright {
+                sc.text(&t, x, y, id_fs, 0.5, 0.0, false, Rgba::BLACK, None);
+            } else {
+                sc.text(&t, x, y, id_fs, 0.0, 0.5, true, Rgba::BLACK, None);
+            }
+            if let Some(Item::Path { class, id, .. }) = sc.items.last_mut() {
+                *class = "leaf-id".into();
+                *id = Some(format!("id-{}", n.id));
             }
         }
     }
@@ -542,6 +667,7 @@ mod tests {
             bottom: 0.0,
             is_leaf: false,
             state: None,
+            show_id: true,
         }
     }
 
