@@ -387,6 +387,9 @@ pub fn scale_bar_length(width_pc: f64) -> f64 {
     best
 }
 
+/// The title of the map figure's colour bar and of the tree diagram's level axis: the
+/// quantity with its unit (N(H_2), A_V, A_K), or the unit alone for maps of other kinds, its
+/// powers raised.
 fn unit_label(map: &Map) -> String {
     match map.unit {
         Some(PixelUnit::ColumnDensity { .. }) => {
@@ -402,7 +405,7 @@ fn unit_label(map: &Map) -> String {
         | Some(PixelUnit::FluxPerBeam { .. })
         | Some(PixelUnit::FluxPerPixel { .. })
         | Some(PixelUnit::Other)
-        | None => crate::segment::map_unit(map),
+        | None => unit_markup(&crate::segment::map_unit(map)),
     }
 }
 
@@ -1035,7 +1038,10 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
             show_id: with_id.contains(&(s.id as i32)),
         })
         .collect();
-    let level = format!("level [{}]", unit_markup(&crate::segment::map_unit(map)));
+    // The level axis names what the colour bar names (a map without a unit: "level").
+    let level = Some(unit_label(map))
+        .filter(|l| !l.is_empty())
+        .unwrap_or_else(|| "level".into());
     // The map figure and the tree diagram are drawn at once.
     let (overlay, tree) = rayon::join(
         || render::render_map_figure(&overlay, style),

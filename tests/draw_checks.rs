@@ -514,3 +514,43 @@ fn the_tree_names_the_leaves_the_map_figure_is_asked_to_name() {
         }
     }
 }
+
+/// The readable texts of a figure's SVG.
+fn texts(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter_map(|n| n.attribute("aria-label").map(String::from))
+        .collect()
+}
+
+/// The tree's level axis names the quantity the map figure's colour bar names: N(H2) with
+/// its unit on a column-density map, the unit alone on a map of another kind (here the
+/// fixture's pixels read as K km s-1), its powers raised in both (the readable text writes a
+/// raised minus as U+2212), and no longer "level".
+#[test]
+fn the_tree_axis_names_what_the_colour_bar_names() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("run");
+    let run = fixture_run(&out);
+    let mut other = run.map.clone();
+    other.unit = Some(cairn::units::PixelUnit::Other);
+    other.unit_text = "K km s-1".into();
+    for (map, title) in [
+        (&run.map, "N(H2) [cm\u{2212}2]"),
+        (&other, "K km s\u{2212}1"),
+    ] {
+        let input = cairn::draw::FigureInput {
+            map,
+            labels: run.labels.view(),
+            structures: run.structures.clone(),
+            distance_pc: None,
+            title: None,
+            label_choice: Default::default(),
+        };
+        let figs = cairn::draw::figures(&input, &Default::default()).unwrap();
+        let (bar, axis) = (texts(&figs.overlay.svg), texts(&figs.tree_svg));
+        assert!(bar.iter().any(|t| t == title), "colour bar: {bar:?}");
+        assert!(axis.iter().any(|t| t == title), "tree: {axis:?}");
+        assert!(!axis.iter().any(|t| t.starts_with("level")), "{axis:?}");
+    }
+}

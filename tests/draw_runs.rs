@@ -719,8 +719,9 @@ fn leaf_states(run: &Path) -> std::collections::BTreeSet<String> {
 /// The legend lists the states the run's leaves have and no other, with the bound state's
 /// symbols; with `--branches` it has an entry for the branch outlines; a run whose map is read
 /// without a unit says that is why its leaves have no state (not a missing distance or
-/// temperature); and the tree's level axis writes the unit's power as a superscript (a true
-/// minus sign, U+2212, in the readable text).
+/// temperature); and the tree's level axis, titled as the colour bar (N(H_2) on this
+/// column-density map), writes the unit's power as a superscript (a true minus sign, U+2212,
+/// in the readable text).
 #[test]
 fn the_legend_lists_the_states_present_and_why_a_state_is_unknown() {
     let d = tempfile::tempdir().unwrap();
@@ -763,8 +764,8 @@ fn the_legend_lists_the_states_present_and_why_a_state_is_unknown() {
     let tree_entries = legend_entries(&tree);
     assert_eq!(tree_entries.len(), states.len(), "{tree_entries:?}");
     assert!(
-        tree.contains("aria-label=\"level [cm\u{2212}2]\""),
-        "no level [cm^-2] axis title"
+        tree.contains("aria-label=\"N(H2) [cm\u{2212}2]\""),
+        "no N(H_2) [cm^-2] axis title"
     );
 
     let none = demo_run(d.path(), "none", &["--unit", "none"]);
