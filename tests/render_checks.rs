@@ -2036,4 +2036,106 @@ fn vector_figures_hold_the_maps_own_pixels_where_each_is_at_least_a_figure_pixel
         (img.width() as f64, img.height() as f64),
         (lay.frame.2, lay.frame.3)
     );
+
+/// The line styles of a tree's leaves stay apart at the narrowest widths and at a journal's
+/// column width (3.5 in at 300 dpi): each patterned line (and each legend sample) begins and
+/// ends with a dash, and its gaps stay open once the dark casing's round caps reach into them,
+/// by at least half the casing's width and 0.75 pixel (common practice: a gap narrower than
+/// that closes in print or on screen, and the styles look alike).
+#[test]
+fn tree_line_styles_keep_open_gaps_at_narrow_widths() {
+    let five: Vec<StateLegend> = ["solid", "dashed", "dotted", "dash-dot", "long-dash"]
+        .iter()
+        .map(|n| StateLegend {
+            name: n.to_string(),
+            description: String::new(),
+        })
+        .collect();
+    let mut nodes = random_tree(40, 4);
+    for n in &mut nodes {
+        n.state = n.is_leaf.then_some(n.id as usize % 5);
+    }
+    let (fit, dpi72) = (render::narrowest_width_px(300.0), 200);
+    for (width, dpi) in [(fit, 300.0), (1050, 300.0), (dpi72, 72.0), (1600, 300.0)] {
+        let style = Style {
+            width_px: width,
+            dpi,
+            ..Style::default()
+        };
+        let svg = tree_svg(&nodes, &five, "level [K]", &style).unwrap();
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let (mut by_style, mut samples) = ([0usize; 5], 0);
+        for def in doc.descendants().filter(|n| {
+            n.has_tag_name("path") && n.parent().is_some_and(|p| p.has_tag_name("defs"))
+        }) {
+            let Some(id) = def.attribute("id") else {
+                continue;
+            };
+            let class = def.attribute("class").unwrap_or("");
+            // A structure's line (its state in its class), or a legend sample.
+            let st: Option<usize> = class
+                .split(' ')
+                .find_map(|c| c.strip_prefix("state-"))
+                .map(|s| s.parse().unwrap());
+            if st.is_none() && class != "legend-sample" {
+                continue;
+            }
+            // The first painting is the casing, the wider.
+            let casing = doc
+                .descendants()
+                .find(|u| {
+                    u.has_tag_name("use") && u.attribute("href") == Some(format!("#{id}").as_str())
+                })
+                .unwrap();
+            let cw: f64 = casing.attribute("stroke-width").unwrap().parse().unwrap();
+            let pts = svg_layout::subpaths(def.attribute("d").unwrap());
+            let (a, b) = (pts[0][0], *pts[0].last().unwrap());
+            let len = (b.0 - a.0).hypot(b.1 - a.1);
+            let Some(dash) = casing.attribute("stroke-dasharray") else {
+                assert!(
+                    matches!(st, Some(0) | None),
+                    "{width} px: only the solid style has no dashes"
+                );
+                continue;
+            };
+            let p: Vec<f64> = dash.split(' ').map(|v| v.parse().unwrap()).collect();
+            match st {
+                Some(st) => by_style[st] += 1,
+                None => samples += 1,
+            }
+            // Long enough for three dashes of the pattern (a shorter line shows what fits):
+            // the gaps as seen stay open.
+            if len >= p[0] + p[1] + p[2 % p.len()] + p[3 % p.len()] + p[0] {
+                for g in p.iter().skip(1).step_by(2) {
+                    let seen = g - cw;
+                    assert!(
+                        seen >= (0.5 * cw).max(0.75) - 0.02,
+                        "{width} px at {dpi} dpi, {id} ({class}): a gap of {seen:.2} px seen on a line {cw} px wide ({dash} along {len:.2})"
+                    );
+                }
+            }
+            // Dashes laid from the line's first end: one ends at its other end (the SVG writes
+            // two decimals, so each number may be off by 0.005, and the errors add up).
+            let mut at = 0.0;
+            let mut k = 0;
+            let mut ends_on_a_dash = false;
+            let tol = |k: usize| 0.01 * (k + 1) as f64 + 0.01;
+            while at <= len + tol(k) {
+                let end = at + p[(2 * k) % p.len()];
+                ends_on_a_dash |= (end - len).abs() <= tol(k);
+                at = end + p[(2 * k + 1) % p.len()];
+                k += 1;
+            }
+            assert!(
+                ends_on_a_dash,
+                "{width} px at {dpi} dpi, {id}: {dash} on a line {len:.2} long"
+            );
+        }
+        // Every patterned style is drawn, in the diagram and in its legend.
+        assert!(
+            by_style[1..].iter().all(|&c| c >= 2),
+            "{width}: {by_style:?}"
+        );
+        assert_eq!(samples, 4, "{width}");
+    }
 }

@@ -137,6 +137,24 @@ pub(crate) fn draw(
     gap: f64,
     lines: &SampleLines,
 ) {
+    draw_with(sc, rows, left, top, fs, gap, lines, &|i, _| {
+        state_dash(i, lines.width)
+    });
+}
+
+/// [`draw`] with the states' samples dashed by `dash` (state index and the sample's length to
+/// a dash pattern), for a figure whose lines use their own patterns.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn draw_with(
+    sc: &mut Scene,
+    rows: &[Vec<Entry>],
+    left: f64,
+    top: f64,
+    fs: f64,
+    gap: f64,
+    lines: &SampleLines,
+    dash: &dyn Fn(usize, f64) -> Vec<f64>,
+) {
     let sample = SAMPLE_FS * fs;
     for (r, row) in rows.iter().enumerate() {
         let yc = top + (r as f64 + 0.5) * 1.5 * fs;
@@ -145,7 +163,7 @@ pub(crate) fn draw(
             let line = PathData::line(x + 0.2 * fs, yc, x + sample - 0.2 * fs, yc);
             match e.state {
                 Key::State(i) if e.sample => {
-                    let dash = state_dash(i, lines.width);
+                    let dash = dash(i, sample - 0.4 * fs);
                     sc.path(
                         line,
                         vec![

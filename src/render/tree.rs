@@ -6,6 +6,17 @@
 //! runs from its merge level up to the highest merge level of its children, where it splits;
 //! drawing it on to the branch's own peak would leave a stub with nothing attached.
 //!
+//! The line styles of the states are dashed as they are seen ([`leaf_dash`]): dashes and gaps
+//! in units of the line's drawn width with its casing (at least a pixel and a half), gaps
+//! measured clear of the casing's round caps, so that they stay open on thin lines, on
+//! narrow figures and at low resolutions; each line's pattern is fitted to its length
+//! ([`fit_dash`]) so that it begins at the upper end and ends at the merge level with a dash
+//! or a dot, and the legend's samples are drawn so too.
+//!
+//! Leaf ids stand above their peaks; on a diagram too crowded for every id at [`MIN_ID_PT`]
+//! they are placed highest peak first where they meet no line and no id already placed
+//! ([`Sky`]), and the rest counted for the caller.
+//!
 //! A tree with more leaves than the plot has pixel columns (large maps give hundreds of
 //! thousands) is drawn densely instead: single lines could not be told apart, and one path per
 //! structure made SVG files of hundreds of megabytes. Each pixel that structures' lines cross
@@ -18,7 +29,7 @@ use super::axes;
 use super::legend;
 use super::scene::{Item, Line, Paint, PathData, Rgba, Scene};
 use super::text;
-use super::{RenderError, StateLegend, Stretch, Style, TreeNode, state_colour, state_dash};
+use super::{RenderError, StateLegend, Stretch, Style, TreeNode, state_colour};
 use std::collections::BTreeMap;
 
 /// The smallest leaf ids the tree diagram draws, in points (common practice: print figures
@@ -420,15 +431,19 @@ pub(crate) fn scene(
         for n in ordered {
             let is_leaf = !tl.children.contains_key(&n.id);
             let x = xmap(tl.x[&n.id]);
-            let d = PathData::line(x, ymap(n.bottom), x, ymap(upper_of(n)));
+            // Drawn from the upper end down: a patterned line begins there with a whole dash
+            // (and ends with one at its merge level, `fit_dash`).
+            let d = PathData::line(x, ymap(upper_of(n)), x, ymap(n.bottom));
             let (paints, class) = match n.state {
                 Some(st) => {
-                    let dash = state_dash(st, lw);
+                    let len = (ymap(n.bottom) - ymap(upper_of(n))).abs();
+                    let casing = lw + CASING_PT * pt;
+                    let dash = fit_dash(&leaf_dash(st, lw, casing), len, casing);
                     (
                         vec![
                             Paint::Stroke(Line {
                                 color: Rgba(0, 0, 0, 200),
-                                width: lw + CASING_PT * pt,
+                                width: casing,
                                 dash: dash.clone(),
                                 round: true,
                             }),
@@ -571,7 +586,9 @@ pub(crate) fn scene(
     );
 
     // Legend.
-    legend::draw(
+    // Legend, its samples dashed as the lines of the diagram.
+    let (sample_w, sample_casing) = (0.9 * pt, (0.9 + CASING_PT) * pt);
+    legend::draw_with(
         &mut sc,
         &rows,
         pad,
@@ -579,12 +596,95 @@ pub(crate) fn scene(
         fs,
         gap,
         &legend::SampleLines {
-            width: 0.9 * pt,
-            casing: 1.7 * pt,
+            width: sample_w,
+            casing: sample_casing,
             pt,
         },
+        &|st, len| fit_dash(&leaf_dash(st, sample_w, sample_casing), len, sample_casing),
     );
     Ok(sc)
+}
+
+/// The dash pattern `p` (lengths on, off, on, off, ..., beginning with a dash) of a line with
+/// round caps `cap` wide, fitted to a line `len` long so that it begins and ends with a dash
+/// (or dot) of the pattern and both its ends (a structure's peak and merge level) are marked:
+/// the gaps as seen (each less the caps' `cap`) are stretched or shrunk alike, by the factor
+/// nearest 1 among those that keep them at least half as long, for the number of dashes that
+/// needs. A line too short for that gets a dash at each end, shortened to leave between them
+/// half the pattern's first gap, as far as the line allows. An empty pattern (solid) stays
+/// empty.
+pub(crate) fn fit_dash(p: &[f64], len: f64, cap: f64) -> Vec<f64> {
+    let usable = p.len() >= 2 && p.iter().all(|&v| v.is_finite() && v > 0.0);
+    if !usable || !len.is_finite() || len <= 0.0 {
+        return p.to_vec();
+    }
+    let dash = |k: usize| p[(2 * k) % p.len()];
+    // A gap as seen: the caps of the dashes either side reach into it.
+    let seen = |k: usize| (p[(2 * k + 1) % p.len()] - cap).max(0.0);
+    if (0..p.len() / 2).all(|k| seen(k) == 0.0) {
+        // Gaps the caps close: nothing to fit.
+        return p.to_vec();
+    }
+    // With n dashes and n - 1 gaps, the factor of the gaps as seen is (len - dashes - caps)
+    // / gaps, which falls as n grows.
+    let (mut dashes, mut gaps) = (dash(0), 0.0);
+    let mut best: Option<f64> = None;
+    for n in 2usize.. {
+        dashes += dash(n - 1);
+        gaps += seen(n - 2);
+        let f = (len - dashes - (n - 1) as f64 * cap) / gaps;
+        if f.is_nan() || f < 0.5 {
+            break;
+        }
+        if f.is_finite() && best.is_none_or(|b| f.ln().abs() < b.ln().abs()) {
+            best = Some(f);
+        }
+    }
+    match best {
+        Some(f) => p
+            .iter()
+            .enumerate()
+            .map(|(i, &v)| {
+                if i % 2 == 1 {
+                    cap + f * (v - cap).max(0.0)
+                } else {
+                    v
+                }
+            })
+            .collect(),
+        None => {
+            let g = cap + 0.5 * seen(0);
+            let d = ((len - g) / 2.0).max(0.01);
+            vec![d, (len - 2.0 * d).max(0.01)]
+        }
+    }
+}
+
+/// The least length, in output pixels, of a pattern unit of [`leaf_dash`]: at low
+/// resolutions (lines a pixel or two wide) the gaps stay at least a pixel and a half wide.
+const LEAST_DASH_UNIT_PX: f64 = 1.5;
+
+/// The dash pattern of state `st` (the line styles of [`super::state_line_style`]) for a line
+/// of width `w` over a dark casing `casing` wide, both with round caps. The pattern is set by
+/// what is seen: dashes, dots and gaps in units of the casing's width (the line's whole drawn
+/// width), at least [`LEAST_DASH_UNIT_PX`], with the round caps taken off the dashes and
+/// added to the gaps, so that the casing's caps do not close the gaps (a gap of a unit or
+/// more stays open at any width). Dashed: dashes of 2.5 units, gaps of 1.25; dotted: dots
+/// one casing wide, gaps of 1 unit; dash-dot: a dash of 2.5 units and a dot, gaps of 1 unit;
+/// long dash: dashes of 5 units, gaps of 1.25. An empty pattern is a solid line.
+pub(crate) fn leaf_dash(st: usize, w: f64, casing: f64) -> Vec<f64> {
+    let c = casing.max(w);
+    let u = c.max(LEAST_DASH_UNIT_PX);
+    // A dash seen `on` units long and a gap seen `off` units long.
+    let on = |k: f64| (k * u - c).max(0.01);
+    let off = |k: f64| k * u + c;
+    match super::state_line_style(st) {
+        "dashed" => vec![on(2.5), off(1.25)],
+        "dotted" => vec![0.01, off(1.0)],
+        "dash-dot" => vec![on(2.5), off(1.0), 0.01, off(1.0)],
+        "long-dash" => vec![on(5.0), off(1.25)],
+        _ => Vec::new(),
+    }
 }
 
 /// The majority drawing of a dense tree. Each input line `(column, group, r0, r1)` covers
@@ -776,6 +876,81 @@ mod tests {
                     assert!(w[1].1 > w[0].2 + 0.5);
                 }
             }
+        }
+    }
+
+    /// The ends of the dashes of a pattern laid along a line from 0: (start, end) of each
+    /// dash that begins before `len`.
+    fn dashes_along(p: &[f64], len: f64) -> Vec<(f64, f64)> {
+        let mut out = Vec::new();
+        let mut at = 0.0;
+        for k in 0.. {
+            if at > len + 1e-9 {
+                break;
+            }
+            let on = p[(2 * k) % p.len()];
+            out.push((at, at + on));
+            at += on + p[(2 * k + 1) % p.len()];
+        }
+        out
+    }
+
+    /// A fitted pattern ends with the end of a dash exactly at the line's end (so both ends are
+    /// marked), keeps its dashes, and keeps each gap as seen (less the caps) at least half as
+    /// long as the pattern's; a solid pattern stays solid.
+    #[test]
+    fn fitted_dashes_mark_both_ends_and_keep_their_gaps_open() {
+        let mut r = rng(3);
+        assert!(fit_dash(&[], 100.0, 2.0).is_empty());
+        for trial in 0..2000 {
+            let cap = 0.5 + r(40) as f64 / 10.0;
+            let st = 1 + trial % 4;
+            let p = leaf_dash(st, 0.5 * cap, cap);
+            let len = 0.1 + r(4000) as f64 / 10.0;
+            let q = fit_dash(&p, len, cap);
+            assert_eq!(q.len() % 2, 0);
+            let along = dashes_along(&q, len);
+            let last = along.last().unwrap();
+            assert!(
+                (last.1 - len).abs() < 1e-9 * len.max(1.0),
+                "style {st}, len {len}: the last dash ends at {}",
+                last.1
+            );
+            assert!(along.len() >= 2, "a dash at each end");
+            // Long enough for the pattern's two first dashes and half its first gap: the
+            // pattern itself, its gaps scaled.
+            let room = p[0] + p[2 % p.len()] + cap + 0.5 * (p[1] - cap);
+            if len >= room {
+                for (i, (&a, &b)) in p.iter().zip(&q).enumerate() {
+                    if i % 2 == 0 {
+                        assert_eq!(a, b);
+                    } else {
+                        assert!(b - cap >= 0.5 * (a - cap) - 1e-9, "gap {b} of {a}");
+                    }
+                }
+            }
+        }
+    }
+
+    /// Each style's gaps as seen are at least a unit (the casing's width, at least
+    /// LEAST_DASH_UNIT_PX) once the casing's round caps are taken off, and dashes are longer
+    /// than dots.
+    #[test]
+    fn line_styles_leave_gaps_of_a_unit() {
+        for (w, casing) in [(0.25, 1.05), (3.75, 7.08), (0.9, 1.7), (20.0, 35.0)] {
+            let u = f64::max(casing, LEAST_DASH_UNIT_PX);
+            assert!(leaf_dash(0, w, casing).is_empty());
+            for st in 1..5 {
+                let p = leaf_dash(st, w, casing);
+                for (i, v) in p.iter().enumerate() {
+                    if i % 2 == 1 {
+                        assert!(v - casing >= u - 1e-9, "style {st}: gap {v} at {casing}");
+                    }
+                }
+            }
+            assert!(leaf_dash(1, w, casing)[0] + casing >= 2.5 * u - 1e-9);
+            assert!(leaf_dash(4, w, casing)[0] > leaf_dash(1, w, casing)[0]);
+            assert_eq!(leaf_dash(2, w, casing)[0], 0.01);
         }
     }
 
