@@ -1902,6 +1902,7 @@ fn map_and_tree_pdfs_are_one_page_of_the_print_size_and_repeat() {
         bottom,
         is_leaf,
         state: None,
+        show_id: true,
     };
     let nodes = vec![
         node(0, None, 5.0, 1.0, false),
@@ -2010,7 +2011,10 @@ fn vector_figures_hold_the_maps_own_pixels_where_each_is_at_least_a_figure_pixel
     let own = &svg_images(&fig.svg)[0];
     assert_eq!(own.dimensions(), (40, 30));
     let pdf = String::from_utf8_lossy(&fig.pdf);
-    assert!(pdf.contains("/Width 40") && pdf.contains("/Height 30"), "the PDF's map image");
+    assert!(
+        pdf.contains("/Width 40") && pdf.contains("/Height 30"),
+        "the PDF's map image"
+    );
     let png = image::load_from_memory(&fig.png).unwrap().to_rgb8();
     let (fx, fy, fw, fh) = lay.frame;
     for j in 0..30u32 {
@@ -2036,6 +2040,7 @@ fn vector_figures_hold_the_maps_own_pixels_where_each_is_at_least_a_figure_pixel
         (img.width() as f64, img.height() as f64),
         (lay.frame.2, lay.frame.3)
     );
+}
 
 /// The line styles of a tree's leaves stay apart at the narrowest widths and at a journal's
 /// column width (3.5 in at 300 dpi): each patterned line (and each legend sample) begins and
