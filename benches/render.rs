@@ -4,7 +4,10 @@
 //! hundred Gaussian cores and their footprints, then measures, in the same run (median of 3):
 //! * the reference: colour-mapping the whole map at full resolution (`render::colorize`);
 //! * `render::render_png` of the overlay at the default style (1600 pixels wide);
-//! * `render::render_svg` of the same overlay.
+//! * `render::render_svg` of the same overlay;
+//! * `render::render_pdf` of the same overlay;
+//! * `render::render_map_figure`: the three drawn from one layout at once, as `segment` and
+//!   `draw` do.
 //!
 //! An argument ending in `.png` names a file to write the figure to, for looking at.
 
@@ -117,6 +120,8 @@ fn main() {
     let (t_ref, rgb) = time(|| render::colorize(map.view(), &style).expect("colour map"));
     let (t_png, png) = time(|| render::render_png(&o, &style).expect("png"));
     let (t_svg, svg) = time(|| render::render_svg(&o, &style).expect("svg"));
+    let (t_pdf, pdf) = time(|| render::render_pdf(&o, &style).expect("pdf"));
+    let (t_all, _) = time(|| render::render_map_figure(&o, &style).expect("all three"));
     if let Some(path) = std::env::args().skip(1).find(|a| a.ends_with(".png")) {
         std::fs::write(&path, &png).expect("write the figure");
     }
@@ -141,5 +146,16 @@ fn main() {
         t_svg,
         t_svg / t_ref,
         svg.len() / 1000
+    );
+    println!(
+        "render_pdf (overlay, default style)     {:8.3} s ({:.2}x reference, {} kB)",
+        t_pdf,
+        t_pdf / t_ref,
+        pdf.len() / 1000
+    );
+    println!(
+        "render_map_figure (all three at once)   {:8.3} s ({:.2}x reference)",
+        t_all,
+        t_all / t_ref
     );
 }

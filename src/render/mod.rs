@@ -300,6 +300,11 @@ pub fn render_svg(o: &Overlay, s: &Style) -> Result<String, RenderError> {
     figure::scene(o, s)?.to_svg()
 }
 
+/// Draws the map figure as a one-page PDF of its print size.
+pub fn render_pdf(o: &Overlay, s: &Style) -> Result<Vec<u8>, RenderError> {
+    figure::scene(o, s)?.to_pdf()
+}
+
 /// The map figure in its three formats, drawn once, with how its leaf labels fared.
 pub struct MapFigure {
     pub png: Vec<u8>,
@@ -335,7 +340,10 @@ pub const LEAST_VISIBLE_BEAM_PX: f64 = 4.0;
 pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderError> {
     let sc = figure::scene(o, s)?;
     // The encodings share nothing but the scene; each compresses an image of the map.
-    let (png, (svg, pdf)) = rayon::join(|| sc.to_png(), || (sc.to_svg(), sc.to_pdf()));
+    let (png, (svg, pdf)) = rayon::join(
+        || sc.to_png(),
+        || rayon::join(|| sc.to_svg(), || sc.to_pdf()),
+    );
     Ok(MapFigure {
         png: png?,
         svg: svg?,
@@ -384,7 +392,10 @@ pub fn render_tree_figure(
     s: &Style,
 ) -> Result<TreeFigure, RenderError> {
     let sc = tree::scene(nodes, states, level_label, s)?;
-    let (png, (svg, pdf)) = rayon::join(|| sc.to_png(), || (sc.to_svg(), sc.to_pdf()));
+    let (png, (svg, pdf)) = rayon::join(
+        || sc.to_png(),
+        || rayon::join(|| sc.to_svg(), || sc.to_pdf()),
+    );
     Ok(TreeFigure {
         png: png?,
         svg: svg?,
