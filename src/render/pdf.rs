@@ -20,7 +20,6 @@ use super::RenderError;
 use super::scene::{Item, Line, Paint, PathData, Rgba, Scene, Seg, encode_png};
 use pdf_writer::types::{LineCapStyle, LineJoinStyle, Predictor};
 use pdf_writer::{Content, Filter, Finish, Name, Pdf, Rect, Ref, TextStr};
-use std::collections::BTreeMap;
 
 /// PostScript points per inch: the PDF's default user space unit is 1/72 inch
 /// (ISO 32000-1 sec. 8.3.2.3).
@@ -128,16 +127,7 @@ impl Scene {
         let unit = (inches * POINTS_PER_INCH / MAX_PAGE_UNITS).ceil().max(1.0);
         let scale = POINTS_PER_INCH / self.dpi / unit;
         let (w_pt, h_pt) = (self.width as f64 * scale, self.height as f64 * scale);
-        let by_id: BTreeMap<&str, &PathData> = self
-            .items
-            .iter()
-            .filter_map(|it| match it {
-                Item::Path {
-                    d, id: Some(id), ..
-                } => Some((id.as_str(), d)),
-                _ => None,
-            })
-            .collect();
+        let by_id = self.paths_by_id();
         // Object numbers: catalog, page tree, page, content, information, then the images.
         let (catalog, tree, page_id, content_id, info) = (
             Ref::new(1),

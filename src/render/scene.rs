@@ -321,6 +321,19 @@ impl Scene {
         });
     }
 
+    /// The geometry of each path with an id, which [`Item::Reuse`] paints again.
+    pub fn paths_by_id(&self) -> std::collections::BTreeMap<&str, &PathData> {
+        self.items
+            .iter()
+            .filter_map(|it| match it {
+                Item::Path {
+                    d, id: Some(id), ..
+                } => Some((id.as_str(), d)),
+                _ => None,
+            })
+            .collect()
+    }
+
     /// Rasterises the scene and encodes it as an RGB PNG with its resolution recorded.
     pub fn to_png(&self) -> Result<Vec<u8>, RenderError> {
         use tiny_skia as sk;
@@ -357,16 +370,7 @@ impl Scene {
                 Some(m)
             }),
         };
-        let by_id: std::collections::BTreeMap<&str, &PathData> = self
-            .items
-            .iter()
-            .filter_map(|it| match it {
-                Item::Path {
-                    d, id: Some(id), ..
-                } => Some((id.as_str(), d)),
-                _ => None,
-            })
-            .collect();
+        let by_id = self.paths_by_id();
         for item in &self.items {
             match item {
                 Item::Image {
