@@ -900,9 +900,8 @@ pub struct Figures {
     pub tree_png: Vec<u8>,
     pub tree_svg: String,
     pub tree_pdf: Vec<u8>,
-    /// The tree's leaves, and how many of them are drawn without their id (all of them when
-    /// the diagram is too crowded for any; counted are the leaves
-    /// [`FigureInput::label_choice`] chooses for an id, see
+    /// The tree's leaves chosen for an id ([`FigureInput::label_choice`]), and how many of
+    /// them are drawn without it (those a crowded diagram has no room for, see
     /// [`render::TreeFigure::ids_left_out`]).
     pub tree_leaves: usize,
     pub tree_ids_left_out: usize,

@@ -623,9 +623,10 @@ struct StyleArgs {
     /// Colour map: viridis, inferno, magma, cividis or grey (for print).
     #[arg(long, default_value = "viridis", value_name = "NAME")]
     colormap: String,
-    /// Figure width in pixels (PNG), 200 to 20000; a width too narrow for the map beside its
-    /// axis and colour-bar labels at --dpi is refused with the narrowest that works, and so
-    /// is a figure of more than 150 megapixels.
+    /// Figure width in pixels (PNG; with --dpi, the print width of the SVG and PDF), 200 to
+    /// 20000; a width too narrow for the map beside its axis and colour-bar labels at --dpi is
+    /// refused with the narrowest that works, and so is a figure of more than 150 megapixels.
+    /// A map more than twice as tall as wide gets a narrower figure (said in the summary).
     #[arg(
         long,
         default_value_t = 1600,
@@ -633,7 +634,8 @@ struct StyleArgs {
         allow_hyphen_values = true
     )]
     width: u32,
-    /// Print resolution recorded in the PNG, 30 to 2400; text is 9 pt at this resolution.
+    /// Print resolution recorded in the PNG (and setting the PDF's page size with --width), 30
+    /// to 2400; text is 9 pt at this resolution.
     #[arg(
         long,
         default_value_t = 300.0,
@@ -2639,11 +2641,8 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     chosen_note(&a.style.labels, figs.labels_chosen);
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
-    narrowed_note(
-        Some(figs.overlay.width_px).filter(|&w| w < a.style.width),
-        a.style.width,
-    );
-    label_size_note(Some(figs.overlay.label_pt).filter(|&p| p < cairn::render::USUAL_LABEL_PT));
+    narrowed_note(figs.overlay.narrowed_to, a.style.width);
+    label_size_note(figs.overlay.smaller_label_pt);
     beam_note(figs.overlay.beam_px);
     scale_bar_note(figs.overlay.scale_bar_left_out);
     tree_note(figs.tree_leaves, figs.tree_ids_left_out);

@@ -2022,8 +2022,8 @@ pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Resul
         labels_chosen = Some(figs.labels_chosen);
         tree_ids = Some((figs.tree_leaves, figs.tree_ids_left_out));
         y_stretch = figs.overlay.y_stretch;
-        narrowed_to = Some(figs.overlay.width_px).filter(|&w| w < style.width_px);
-        label_pt = Some(figs.overlay.label_pt).filter(|&p| p < crate::render::USUAL_LABEL_PT);
+        narrowed_to = figs.overlay.narrowed_to;
+        label_pt = figs.overlay.smaller_label_pt;
         beam_px = figs.overlay.beam_px;
         scale_bar_left_out = figs.overlay.scale_bar_left_out;
         if figs.tree_png.is_empty() {

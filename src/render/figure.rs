@@ -636,7 +636,7 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
     // A tall map's panel is narrower than the width available to it: the figure is then
     // narrowed to what it holds (the panel with its margins, the titles centred on the panel,
     // the legend's entries broken between words where they need it), rather than left blank
-    // on the right.
+    // on the right, when that saves more than 2% of the width.
     let width = if fw < avail {
         let centred = |t: &str, size: f64| left + fw / 2.0 + text::width(t, size) / 2.0 + m.pad;
         let legend_w = keys
@@ -645,12 +645,18 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             .map(|word| legend::SAMPLE_FS * fs + m.gap + text::width(word, fs))
             .fold(0.0, f64::max);
         let title_w = o.title.as_deref().map_or(0.0, |t| centred(t, 1.15 * fs));
-        (left + fw + right)
+        let held = (left + fw + right)
             .max(centred(&ticks.bottom_title, fs))
             .max(title_w)
             .max(legend_w + 2.0 * m.pad)
-            .ceil()
-            .min(w_total)
+            .ceil();
+        // A map just over twice as tall as the width would leave a few pixels: not worth a
+        // figure of another width than the one asked for.
+        if w_total - held > (0.02 * w_total).max(m.pad) {
+            held
+        } else {
+            w_total
+        }
     } else {
         w_total
     };
@@ -1143,7 +1149,9 @@ struct Placement<'a> {
 
 /// The smallest text size, in points, leaf labels are set at when a map is too crowded for
 /// them at the usual size: 6 pt, about the least journals accept in a printed figure (common
-/// practice; journals' figure guidelines ask for 6-8 pt at the least, from memory).
+/// practice; journals' figure guidelines ask for 6-8 pt at the least, from memory). The tree
+/// diagram's ids, each alone in its column beside a line rather than among a map's
+/// structures, go down to [`crate::render::MIN_ID_PT`].
 pub const LEAST_LABEL_PT: f64 = 6.0;
 
 /// The usual text size of leaf labels, in points: 0.85 of the figure's 9-point text.
@@ -1206,15 +1214,11 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     // two agree), unless missing pixels are hatched on a grey map, a pattern of figure pixels.
     let hatched = s.colormap == ColorMap::Grey && view.iter().any(|v| v.is_nan());
     let exact = (rw <= iw && rh <= ih && !hatched).then(|| {
-        let mut own = vec![0u8; rw * rh * 3];
-        for (j, row) in own.chunks_exact_mut(rw * 3).enumerate() {
-            // Image rows from the top; map rows count from the bottom.
-            let src = view.row(rh - 1 - j);
-            for (px, &v) in row.chunks_exact_mut(3).zip(src.iter()) {
-                px.copy_from_slice(&lut.get(scale.pos(v as f64)));
-            }
-        }
-        (rw as u32, rh as u32, own)
+        (
+            rw as u32,
+            rh as u32,
+            raster::colorize_with(view, &scale, &lut),
+        )
     });
     sc.items.push(Item::Image {
         x: fx as i32,
@@ -1815,7 +1819,7 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             let rings = &drawn[&leaf.id];
             let (cx, cy) = (0.5 * (ex0 + ex1), 0.5 * (ey0 + ey1));
             let half = (0.5 * (w + 2.0 * hpad), 0.5 * (cap_h + 2.0 * hpad));
-            let mut best = None;
+            let (mut best, mut crossing) = (None, None);
             'far: for ring in 1..=8 {
                 let r = 0.5 * (ex1 - ex0).hypot(ey1 - ey0)
                     + half.0.hypot(half.1)
@@ -1860,11 +1864,17 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
                     {
                         continue;
                     }
-                    best = Some((bx, by, bb, (from, to)));
-                    break 'far;
+                    // A place whose label meets no branch's outline ends the search; the
+                    // first that does is kept in case none is found.
+                    let candidate = Some((bx, by, bb, (from, to)));
+                    if clear_of_branches(ib) {
+                        best = candidate;
+                        break 'far;
+                    }
+                    crossing = crossing.or(candidate);
                 }
             }
-            match best {
+            match best.or(crossing) {
                 Some((bx, by, bb, leader)) => {
                     placed.insert(bb);
                     leaders.push(leader);
@@ -1880,30 +1890,29 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
             left_out,
         }
     };
-    let chosen = label_sizes(label_fs, m.pt)
-        .into_iter()
-        .map(&place)
-        .try_fold(None::<Placement>, |best, p| {
-            // Stop at the first size that labels every leaf; else keep the one that leaves
-            // the fewest out (the larger of equals). A map of thousands of leaves, most of
-            // them finding no place at the usual size, is not tried smaller: a point or two of
-            // text does not label a field that crowded (a --region or --labels does), and each
-            // try takes as long as the first, about a second there.
-            let done = p.left_out == 0
-                || (best.is_none() && p.to_label > 1000 && 2 * p.left_out > p.to_label);
-            let best = match best {
-                Some(b) if b.left_out <= p.left_out => b,
-                _ => p,
-            };
-            if done { Err(best) } else { Ok(Some(best)) }
-        });
-    let chosen = match chosen {
-        Ok(p) => p.expect("at least one label size"),
-        Err(p) => p,
-    };
+    // The usual size first; smaller ones until every leaf is labelled, the one that leaves
+    // the fewest out kept (the larger of equals). A map of thousands of leaves, most of them
+    // finding no place at the usual size, is not tried smaller: a point or two of text does
+    // not label a field that crowded (a --region or --labels does), and each try takes as
+    // long as the first, about a second there.
+    let sizes = label_sizes(label_fs, m.pt);
+    let mut chosen = place(sizes[0]);
+    let mut step = 0;
+    let hopeless = chosen.to_label > 1000 && 2 * chosen.left_out > chosen.to_label;
+    if !hopeless {
+        for (k, &size) in sizes.iter().enumerate().skip(1) {
+            if chosen.left_out == 0 {
+                break;
+            }
+            let p = place(size);
+            if p.left_out < chosen.left_out {
+                (chosen, step) = (p, k);
+            }
+        }
+    }
     sc.leaves_to_label = chosen.to_label;
     sc.labels_left_out = chosen.left_out;
-    sc.label_pt = chosen.label_fs / m.pt;
+    sc.smaller_label_pt = (step > 0).then_some(chosen.label_fs / m.pt);
     let label_fs = chosen.label_fs;
     for (leaf, bx, by, leader) in chosen.shown {
         if let Some((a, b)) = leader {

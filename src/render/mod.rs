@@ -324,12 +324,14 @@ pub struct MapFigure {
     pub beam_px: Option<f64>,
     /// The scale bar was asked for and left out, the map's frame too narrow for it.
     pub scale_bar_left_out: bool,
-    /// The leaf labels' text size in points: the usual size ([`USUAL_LABEL_PT`]), or smaller,
-    /// down to [`LEAST_LABEL_PT`], on a map too crowded for every label at that size.
-    pub label_pt: f64,
-    /// The figure's width in pixels: the requested width, or less for a tall map whose panel
-    /// is narrower than that width allows (the figure is not left blank beside it).
-    pub width_px: u32,
+    /// The leaf labels' text size in points where it is smaller than the usual size
+    /// ([`USUAL_LABEL_PT`]), down to [`LEAST_LABEL_PT`]: a map too crowded for every label
+    /// at the usual size.
+    pub smaller_label_pt: Option<f64>,
+    /// The figure's width in pixels where it is narrower than the requested width: a tall map
+    /// whose panel is narrower than that width allows (the figure is not left blank beside
+    /// it).
+    pub narrowed_to: Option<u32>,
 }
 
 /// A beam drawn smaller than this many figure pixels across (its box's smaller side) is
@@ -352,8 +354,8 @@ pub fn render_map_figure(o: &Overlay, s: &Style) -> Result<MapFigure, RenderErro
         labels_left_out: sc.labels_left_out,
         y_stretch: sc.y_stretch,
         beam_px: sc.beam_px,
-        width_px: sc.width,
-        label_pt: sc.label_pt,
+        smaller_label_pt: sc.smaller_label_pt,
+        narrowed_to: (sc.width < s.width_px).then_some(sc.width),
         scale_bar_left_out: sc.scale_bar_left_out,
     })
 }
@@ -374,8 +376,7 @@ pub struct TreeFigure {
     pub png: Vec<u8>,
     pub svg: String,
     pub pdf: Vec<u8>,
-    /// The leaves of the tree.
-    /// Of them, only those chosen for an id ([`TreeNode::show_id`]) are counted.
+    /// The leaves chosen for an id ([`TreeNode::show_id`]).
     pub leaves: usize,
     /// Of those, the leaves drawn without their id: on a diagram too crowded for every id at
     /// [`MIN_ID_PT`], ids are placed highest peak first where they meet no line and no other

@@ -17,7 +17,7 @@
 //! `pdf-writer` crate's; the content stream is compressed with `flate2`.
 
 use super::RenderError;
-use super::scene::{Item, Line, Paint, PathData, Rgba, Scene, Seg, encode_png};
+use super::scene::{Item, Line, Paint, PathData, Rgba, Scene, Seg, encode_png, vector_pixels};
 use pdf_writer::types::{LineCapStyle, LineJoinStyle, Predictor};
 use pdf_writer::{Content, Filter, Finish, Name, Pdf, Rect, Ref, TextStr};
 
@@ -145,10 +145,8 @@ impl Scene {
                 w, h, rgb, exact, ..
             } = item
             {
-                pngs.push(match exact {
-                    Some((ew, eh, erg)) => (encode_png(erg, *ew, *eh, None)?, *ew, *eh),
-                    None => (encode_png(rgb, *w, *h, None)?, *w, *h),
-                });
+                let (pw, ph, pixels) = vector_pixels(*w, *h, rgb, exact);
+                pngs.push((encode_png(pixels, pw, ph, None)?, pw, ph));
             }
         }
         let mut alphas = std::collections::BTreeSet::new();
@@ -290,7 +288,8 @@ fn deflate(bytes: &[u8]) -> Result<Vec<u8>, RenderError> {
         .map_err(|e| RenderError::Encode(e.to_string()))
 }
 
-/// A small fixed figure that uses every primitive of a scene (an image, a clip, translucent
+/// A small fixed figure that uses every primitive of a scene (an image with its own coarser
+/// pixels for the vector outputs, a clip, translucent
 /// and opaque fills, solid and dashed strokes with round and mitred joins, quadratic and
 /// cubic curves, text as outlines with a halo, a reused path), drawn as PNG and as PDF: the
 /// PDF back end's outside check renders this PDF with another library and compares it with
@@ -299,22 +298,32 @@ fn deflate(bytes: &[u8]) -> Result<Vec<u8>, RenderError> {
 pub fn check_scene() -> Result<(Vec<u8>, Vec<u8>), RenderError> {
     let (w, h) = (240u32, 180u32);
     let mut sc = Scene::new(w, h, 144.0, "cairn PDF check");
-    // An image whose colours change along both axes, so a flip or a transposition shows.
-    let (iw, ih) = (120u32, 80u32);
-    let mut rgb = Vec::with_capacity((iw * ih * 3) as usize);
-    for y in 0..ih {
-        for x in 0..iw {
-            let corner = x < 12 && y < 12;
-            rgb.extend_from_slice(&[(x * 2) as u8, (y * 3) as u8, if corner { 255 } else { 96 }]);
-        }
-    }
+    // An image whose colours change along both axes, so a flip or a transposition shows,
+    // given at its own 24 x 16 pixels for the vector outputs and as each of them 5 x 5
+    // figure pixels for the raster (as a map whose pixels are larger than the figure's).
+    let (ew, eh, k) = (24u32, 16u32, 5u32);
+    let (iw, ih) = (ew * k, eh * k);
+    let colour = |x: u32, y: u32| -> [u8; 3] {
+        let corner = x < 3 && y < 3;
+        [
+            (x * 10) as u8,
+            (y * 15) as u8,
+            if corner { 255 } else { 96 },
+        ]
+    };
+    let own: Vec<u8> = (0..eh)
+        .flat_map(|y| (0..ew).flat_map(move |x| colour(x, y)))
+        .collect();
+    let rgb: Vec<u8> = (0..ih)
+        .flat_map(|y| (0..iw).flat_map(move |x| colour(x / k, y / k)))
+        .collect();
     sc.items.push(Item::Image {
         x: 30,
         y: 20,
         w: iw,
         h: ih,
         rgb,
-        exact: None,
+        exact: Some((ew, eh, own)),
     });
     sc.clip = Some((30.0, 20.0, iw as f64, ih as f64));
     // A circle of quadratic segments, half outside the clip, filled translucent.

@@ -689,7 +689,7 @@ impl Group {
 }
 
 impl Figure {
-    /// The plot as a flat scene (turned text turned into its outlines), for the PNG and the
+    /// The plot as a flat scene (turned text as its turned outlines), for the PNG and the
     /// PDF.
     fn flat_scene(&self) -> Scene {
         let mut sc = Scene::new(self.width, self.height, self.dpi, &self.title);

@@ -214,7 +214,12 @@ pub fn colorize(map: ArrayView2<f32>, style: &Style) -> Result<Vec<u8>, RenderEr
         hi,
         stretch: style.stretch,
     };
-    let lut = Lut::new(style.colormap);
+    Ok(colorize_with(map, &scale, &Lut::new(style.colormap)))
+}
+
+/// Colour-maps `map` at its own resolution with a scale and colour table already chosen (RGB
+/// bytes, row 0 of the map last so the image has north up).
+pub(crate) fn colorize_with(map: ArrayView2<f32>, scale: &Scale, lut: &Lut) -> Vec<u8> {
     let (h, w) = map.dim();
     let mut out = vec![0u8; w * h * 3];
     out.par_chunks_mut(w * 3).enumerate().for_each(|(j, row)| {
@@ -223,7 +228,7 @@ pub fn colorize(map: ArrayView2<f32>, style: &Style) -> Result<Vec<u8>, RenderEr
             px.copy_from_slice(&lut.get(scale.pos(v as f64)));
         }
     });
-    Ok(out)
+    out
 }
 
 /// For each output cell along one axis, the source cells it covers and their weights.

@@ -239,8 +239,9 @@ pub(crate) struct Scene {
     /// (no free place near them).
     pub leaves_to_label: usize,
     pub labels_left_out: usize,
-    /// Map figures: the leaf labels' text size in points (smaller than usual on a crowded map).
-    pub label_pt: f64,
+    /// Map figures: the leaf labels' text size in points where it is smaller than the usual
+    /// size (a crowded map).
+    pub smaller_label_pt: Option<f64>,
     /// Map figures: the ratio of the scales along y and x when they differ.
     pub y_stretch: Option<f64>,
     /// Map figures: the beam's drawn size, the smaller side of its box in figure pixels.
@@ -260,7 +261,7 @@ impl Scene {
             title: title.to_string(),
             leaves_to_label: 0,
             labels_left_out: 0,
-            label_pt: 0.0,
+            smaller_label_pt: None,
             y_stretch: None,
             beam_px: None,
             scale_bar_left_out: false,
@@ -507,10 +508,8 @@ impl Scene {
                     rgb,
                     exact,
                 } => {
-                    let png = match exact {
-                        Some((ew, eh, erg)) => encode_png(erg, *ew, *eh, None)?,
-                        None => encode_png(rgb, *w, *h, None)?,
-                    };
+                    let (pw, ph, pixels) = vector_pixels(*w, *h, rgb, exact);
+                    let png = encode_png(pixels, pw, ph, None)?;
                     let b64 = base64::engine::general_purpose::STANDARD.encode(png);
                     let _ = writeln!(
                         s,
@@ -628,6 +627,20 @@ pub(crate) fn stroke_attrs(l: &Line) -> String {
         let _ = write!(a, " stroke-dasharray=\"{}\"", d.join(" "));
     }
     a
+}
+
+/// The pixels an image item shows in the vector outputs (width, height, RGB): its exact ones
+/// where it has them (see [`Item::Image`]), else those of the raster.
+pub(crate) fn vector_pixels<'a>(
+    w: u32,
+    h: u32,
+    rgb: &'a [u8],
+    exact: &'a Option<(u32, u32, Vec<u8>)>,
+) -> (u32, u32, &'a [u8]) {
+    match exact {
+        Some((ew, eh, own)) => (*ew, *eh, own),
+        None => (w, h, rgb),
+    }
 }
 
 /// A number with at most two decimals and no trailing zeros.
