@@ -1862,3 +1862,44 @@ fn labels_and_the_scale_bar_keep_clear_of_branch_outlines() {
         l.labels.len()
     );
 }
+
+/// The note that leaf ids were set smaller comes only with a smaller size: at resolutions
+/// where the usual size in points, read back from figure pixels, is not exactly 7.65, a map
+/// whose every leaf has room at the usual size gets no such note; a narrow figure of the same
+/// map, too crowded for some ids at the usual size, says the size it took.
+#[test]
+fn the_smaller_label_note_comes_only_with_a_smaller_size() {
+    let d = tempfile::tempdir().unwrap();
+    let run = demo_run(d.path(), "demo", &[]);
+    for dpi in ["149", "298", "300"] {
+        let out = format!("f{dpi}");
+        let o = cairn(
+            &["draw", run.to_str().unwrap(), "-o", &out, "--dpi", dpi],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        assert!(
+            !o.stdout.contains("leaf ids set at"),
+            "{dpi} dpi: {}",
+            o.stdout
+        );
+    }
+    let o = cairn(
+        &[
+            "draw",
+            run.to_str().unwrap(),
+            "-o",
+            "narrow",
+            "--width",
+            "1000",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stdout.contains("figure: leaf ids set at ")
+            && o.stdout.contains(" pt rather than 7.65 pt"),
+        "{}",
+        o.stdout
+    );
+}
