@@ -15,7 +15,7 @@
 //! For each size N x N it makes a synthetic column-density map (log-normal background, 400
 //! cores, noise; `cairn::synth`), writes it as FITS, and measures in child processes:
 //! * the reference: a parallel sort of the map's pixel keys (the least any exact method
-//!   must do);
+//!   must do), the best of nine calls;
 //! * cairn's segmentation with outputs, its time (best of nine runs, each in a fresh
 //!   process) and its memory: the process's peak resident memory, less its resident memory
 //!   before loading the map and less the map's bytes, per pixel (the largest of the runs).
@@ -27,7 +27,12 @@
 //!   Not run above 2048^2: it grows faster than N log N.
 //!
 //! The runs alternate, one of cairn and one of `max_tree`, so that on a shared machine both
-//! meet the same slow and quiet spells.
+//! meet the same slow and quiet spells; and since the twenty-seventh session the rounds go
+//! through the sizes in turn (a sort, a cairn run and a `max_tree` process of the first size,
+//! then of the next, and so on, nine times over), so that the growth from the smallest size
+//! to the largest compares runs from the same spells too, not the best of one size's minutes
+//! with the best of another's. The reference sort is one call per round, each in a fresh
+//! process, as cairn's runs are.
 
 use std::path::Path;
 use std::process::Command;
@@ -146,11 +151,11 @@ fn main() {
         "| size | sort (reference) | segment | segment / sort | peak memory above map / pixel | leaves | max_tree | max_tree / segment |"
     );
     println!("| --- | --- | --- | --- | --- | --- | --- | --- |");
-    // (pixels, best segment time) of each size, for the growth line.
-    let mut segments: Vec<(f64, f64)> = Vec::new();
+    // Every size's map is made and written first; then the rounds go through the sizes in
+    // turn (see `Size`).
+    let mut all: Vec<Size> = Vec::new();
     for (base, tiles) in sizes {
         let n = base * tiles;
-        let runs = if tiles > 1 { 1 } else { RUNS };
         let spec = cairn::synth::SynthSpec {
             nx: base,
             ny: base,
@@ -194,32 +199,45 @@ fn main() {
         } else {
             cairn::fits_write::write_image_f32(&path, map.data.view(), &map.header, true).unwrap();
         }
-        let sort = Command::new(&exe)
-            .args(["--child-sort", path.to_str().unwrap(), &runs.to_string()])
-            .output()
-            .unwrap();
-        let sort_s: f64 = String::from_utf8_lossy(&sort.stdout)
-            .trim()
-            .parse()
-            .unwrap();
-        // Rounds of one cairn run and one max_tree process, so that both sample the same
-        // spells of a shared machine; the best of each is kept. max_tree is called twice per
-        // process and the faster call counts (the second runs warm; a first call in a fresh
-        // process was slower in trials), so it is timed at least as favourably as when all its
-        // calls ran in one process.
-        // Memory is the largest of cairn's runs.
-        let (mut seg_s, mut per_run_peak, mut leaves) = (f64::INFINITY, 0f64, 0f64);
-        let mut maxtree: Option<f64> = None;
-        let script = format!(
+        all.push(Size {
+            n,
+            runs: if tiles > 1 { 1 } else { RUNS },
+            path,
+            sort_s: f64::INFINITY,
+            seg_s: f64::INFINITY,
+            per_run_peak: 0.0,
+            leaves: 0.0,
+            maxtree: None,
+        });
+    }
+    // max_tree is called twice per process and the faster call counts (the second runs warm;
+    // a first call in a fresh process was slower in trials), so it is timed at least as
+    // favourably as when all its calls ran in one process.
+    let script = |path: &Path| {
+        format!(
             "import time, numpy as np\nfrom astropy.io import fits\nfrom skimage.morphology import max_tree\nd = fits.getdata(r'{}').astype(np.float32)\nbest = float('inf')\nfor _ in range(2):\n    t = time.perf_counter()\n    max_tree(d, connectivity=2)\n    best = min(best, time.perf_counter() - t)\nprint(best)\n",
             path.display()
-        );
-        for run in 0..runs {
+        )
+    };
+    let rounds = all.iter().map(|s| s.runs).max().unwrap_or(0);
+    for run in 0..rounds {
+        for size in all.iter_mut().filter(|s| run < s.runs) {
+            let n = size.n;
+            // The reference sort, one call per round in a fresh process.
+            let sort = Command::new(&exe)
+                .args(["--child-sort", size.path.to_str().unwrap(), "1"])
+                .output()
+                .unwrap();
+            let sort_s: f64 = String::from_utf8_lossy(&sort.stdout)
+                .trim()
+                .parse()
+                .unwrap();
+            size.sort_s = size.sort_s.min(sort_s);
             let out = dir.path().join(format!("run{n}-{run}"));
             let seg = Command::new(&exe)
                 .args([
                     "--child-segment",
-                    path.to_str().unwrap(),
+                    size.path.to_str().unwrap(),
                     out.to_str().unwrap(),
                 ])
                 .output()
@@ -230,37 +248,47 @@ fn main() {
                 .split_whitespace()
                 .map(|x| x.parse().unwrap())
                 .collect();
-            // Each round's outputs go before the next round: on this virtual machine, files
+            // Each round's outputs go before the next run: on this virtual machine, files
             // kept in the page cache make the next run's writes take fresh memory, which the
             // host backs page by page (a 268 MB write took 0.05 s into reused memory and
             // 0.6-0.9 s into fresh memory), a cost of the bench's own earlier rounds.
             std::fs::remove_dir_all(&out).unwrap();
-            seg_s = seg_s.min(f[0]);
-            per_run_peak = per_run_peak.max(f[1] - f[2]);
-            leaves = f[3];
+            size.seg_s = size.seg_s.min(f[0]);
+            size.per_run_peak = size.per_run_peak.max(f[1] - f[2]);
+            size.leaves = f[3];
             if let Some(py) = python.as_ref().filter(|_| n <= 2048) {
-                let o = Command::new(py).args(["-c", &script]).output().unwrap();
+                let o = Command::new(py)
+                    .args(["-c", &script(&size.path)])
+                    .output()
+                    .unwrap();
                 let t = String::from_utf8_lossy(&o.stdout)
                     .trim()
                     .parse::<f64>()
                     .unwrap_or(f64::NAN);
                 eprintln!("{n}^2 max_tree {t:.3} s");
-                maxtree = Some(maxtree.map_or(t, |b: f64| b.min(t)));
+                size.maxtree = Some(size.maxtree.map_or(t, |b: f64| b.min(t)));
             }
         }
+    }
+    // (pixels, best segment time) of each size, for the growth line.
+    let mut segments: Vec<(f64, f64)> = Vec::new();
+    for size in &all {
+        let n = size.n;
         let npix = (n * n) as f64;
         // Memory above what the process held with the map loaded, per pixel.
-        let per_pixel = per_run_peak / npix;
-        let (mt, ratio) = match maxtree {
-            Some(t) => (format!("{t:.2} s"), format!("{:.0}x", t / seg_s)),
+        let per_pixel = size.per_run_peak / npix;
+        let (mt, ratio) = match size.maxtree {
+            Some(t) => (format!("{t:.2} s"), format!("{:.0}x", t / size.seg_s)),
             None => ("not run".into(), "".into()),
         };
         println!(
-            "| {n}^2 | {sort_s:.3} s | {} | {:.1} | {per_pixel:.1} B | {leaves} | {mt} | {ratio} |",
-            seconds(seg_s),
-            seg_s / sort_s
+            "| {n}^2 | {:.3} s | {} | {:.1} | {per_pixel:.1} B | {} | {mt} | {ratio} |",
+            size.sort_s,
+            seconds(size.seg_s),
+            size.seg_s / size.sort_s,
+            size.leaves
         );
-        segments.push((npix, seg_s));
+        segments.push((npix, size.seg_s));
     }
     // The growth of the whole run from the smallest size to the largest, against N log N.
     if let (Some(&(n0, t0)), Some(&(n1, t1))) = (segments.first(), segments.last())
@@ -276,6 +304,22 @@ fn main() {
             n1 * n1.ln() / (n0 * n0.ln())
         );
     }
+}
+
+/// One size of the table: its map and the best of its rounds so far.
+struct Size {
+    /// Side in pixels.
+    n: usize,
+    /// Rounds (one for a tiled map).
+    runs: usize,
+    path: std::path::PathBuf,
+    /// Best reference sort, best cairn run, the largest memory of its runs (bytes above the
+    /// map), its leaves, and the fastest `max_tree` call.
+    sort_s: f64,
+    seg_s: f64,
+    per_run_peak: f64,
+    leaves: f64,
+    maxtree: Option<f64>,
 }
 
 /// Seconds with three decimals, or four significant digits below a tenth of a second.
