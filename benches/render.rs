@@ -115,6 +115,7 @@ fn main() {
         beam: Some((18.0, 12.0, 30.0)),
         scale_bar: Some((400.0, "0.1 pc".into())),
         title: None,
+        name: None,
     };
     let style = Style::default();
     let (t_ref, rgb) = time(|| render::colorize(map.view(), &style).expect("colour map"));

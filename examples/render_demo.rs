@@ -148,6 +148,7 @@ fn main() {
         beam: Some((9.0, 6.0, 30.0)),
         scale_bar: Some((25.0, "0.05 pc".into())),
         title: Some("Invented cloud".into()),
+        name: None,
     };
     let style = Style {
         show_branches: true,

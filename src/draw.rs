@@ -882,6 +882,7 @@ pub fn check_figure_style(map: &Map, style: &Style) -> Result<()> {
         beam: None,
         scale_bar: None,
         title: None,
+        name: None,
     };
     // Only the width is judged here; anything else the layout refuses is said when drawing.
     match render::overlay_layout(&overlay, style) {
@@ -1023,6 +1024,13 @@ pub fn figures(input: &FigureInput, style: &Style) -> Result<Figures> {
         beam,
         scale_bar,
         title: input.title.clone(),
+        name: Some(format!(
+            "{}: leaves outlined",
+            map.path.file_name().map_or_else(
+                || map.path.display().to_string(),
+                |f| f.to_string_lossy().into_owned()
+            )
+        )),
     };
     let nodes: Vec<TreeNode> = input
         .structures

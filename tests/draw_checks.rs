@@ -140,6 +140,15 @@ fn segment_figures_are_well_formed_and_redrawn_identically() {
         })
         .count();
     assert_eq!(leaf_paths, n_leaves, "one outline path per leaf");
+    // Without --title, the document's own title names the map's file (common practice: a
+    // figure's file says what it shows to a viewer's window and a document index).
+    let file = m.path.file_name().unwrap().to_string_lossy().to_string();
+    let title = doc
+        .descendants()
+        .find(|n| n.tag_name().name() == "title")
+        .and_then(|n| n.text())
+        .unwrap();
+    assert_eq!(title, format!("{file}: leaves outlined"));
     let png = image::load_from_memory(&std::fs::read(out.join("overlay.png")).unwrap()).unwrap();
     assert_eq!(png.width(), 900);
     roxmltree::Document::parse(&std::fs::read_to_string(out.join("tree.svg")).unwrap())

@@ -365,6 +365,7 @@ fn svg_is_well_formed_with_one_outline_path_per_leaf_on_exact_pixel_corners() {
         beam: None,
         scale_bar: Some((3.0, "0.1 pc".into())),
         title: Some("Test".into()),
+        name: None,
         ..plain_overlay(&map, &l, leaves_of(&l))
     };
     let style = Style {
@@ -460,6 +461,7 @@ fn branch_outlines_through_a_relabelling_equal_those_of_a_relabelled_copy() {
         beam: None,
         scale_bar: None,
         title: None,
+        name: None,
     };
     for (width_px, region) in [(700, None), (640, Some((2, 1, 5, 4)))] {
         let style = Style {
@@ -503,6 +505,7 @@ fn png_decodes_to_the_requested_width_and_output_is_deterministic() {
         beam: Some((2.0, 1.0, 0.0)),
         scale_bar: Some((3.0, "0.1 pc".into())),
         title: None,
+        name: None,
     };
     for style in [
         Style {
@@ -622,6 +625,7 @@ fn beam_in_the_figure_and_scale_bar_have_the_requested_sizes() {
         beam: Some((7.0, 4.0, 25.0)),
         scale_bar: Some((17.3, "1 pc".into())),
         title: None,
+        name: None,
     };
     for (width, region) in [(1000, None), (600, Some((10, 5, 30, 20)))] {
         let style = Style {
@@ -1071,6 +1075,7 @@ fn leaf_labels_do_not_overlap_each_other() {
         beam: Some((3.0, 2.0, 10.0)),
         scale_bar: Some((10.0, "1 pc".into())),
         title: None,
+        name: None,
     };
     let style = Style {
         width_px: 1200,
@@ -1107,6 +1112,7 @@ fn plain_overlay<'a>(
         beam: None,
         scale_bar: None,
         title: None,
+        name: None,
     }
 }
 

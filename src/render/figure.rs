@@ -1178,7 +1178,11 @@ pub(crate) fn scene(o: &Overlay, s: &Style) -> Result<Scene, RenderError> {
     let lfs = 0.9 * fs;
     let (x0, y0, rw, rh) = lay.region;
     let (fx, fy, fw, fh) = lay.frame;
-    let title = o.title.clone().unwrap_or_else(|| "map".to_string());
+    let title = o
+        .title
+        .clone()
+        .or_else(|| o.name.clone())
+        .unwrap_or_else(|| "map".to_string());
     let mut sc = Scene::new(lay.width, lay.height, s.dpi, &text::plain(&title));
     sc.clip = Some(lay.frame);
     sc.y_stretch = lay.y_stretch;

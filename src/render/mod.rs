@@ -129,7 +129,11 @@ pub struct Overlay<'a> {
     pub beam: Option<(f64, f64, f64)>,
     /// Scale bar: length in pixels along x and its text, e.g. "0.1 pc".
     pub scale_bar: Option<(f64, String)>,
+    /// A title drawn above the map.
     pub title: Option<String>,
+    /// What the figure shows, for the document's own title (SVG `<title>`, PDF Title) when
+    /// no `title` is drawn, e.g. the map's file name; "map" when neither is given.
+    pub name: Option<String>,
 }
 
 /// How values map to the colour scale.
