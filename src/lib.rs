@@ -17,6 +17,7 @@ pub mod inject;
 pub mod inspect;
 pub mod map;
 pub mod measure;
+pub mod memory;
 pub mod noise;
 pub mod output;
 pub mod physics;

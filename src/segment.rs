@@ -1639,9 +1639,53 @@ struct Analysed {
     input_sha: String,
 }
 
+/// Memory a `segment` run takes beyond its loaded map, in bytes, for a map of `npix` pixels:
+/// (address space, resident memory). Measured, with a margin, and an estimate: a run close to
+/// a limit may be refused that would just have fitted. The peak resident memory of the
+/// bench's runs was 13-14.5 bytes per pixel above the map (BENCHMARKS.md; the bound
+/// is 16), taken here as 16. Under an address-space limit (`ulimit -v`) the allocator
+/// reserves less ahead, and a 4096^2 run with its figures (with or without grown leaves)
+/// finished under a limit of 445 MB and not under 435 MB, when its address space was 281 MB
+/// as the run began: about 9.7 bytes per pixel more, taken here as 11.
+pub fn memory_needed(npix: u64) -> (u64, u64) {
+    let fixed = 32_000_000;
+    (
+        npix.saturating_mul(11).saturating_add(fixed),
+        npix.saturating_mul(16).saturating_add(fixed),
+    )
+}
+
+/// Refuses a run whose memory (see [`memory_needed`]) exceeds the room this process has
+/// ([`crate::memory`]), before any output is begun: a failed allocation later would abort
+/// the process with no sentence and leave temporary files.
+fn check_memory(map: &Map) -> Result<()> {
+    let npix = map.data.len() as u64;
+    let (virt, res) = memory_needed(npix);
+    let rooms = [
+        crate::memory::address_space_room().map(|r| (r, virt)),
+        crate::memory::resident_room().map(|r| (r, res)),
+    ];
+    for (room, need) in rooms.into_iter().flatten() {
+        if need > room.bytes {
+            let (ny, nx) = map.data.dim();
+            return Err(Error::input(
+                &map.path,
+                format!(
+                    "segmenting its {nx} x {ny} pixels needs about {} of memory beyond the map, and {} leaves room for {}: run it where more memory is free (or with the limit raised), or segment the map in parts.",
+                    crate::memory::describe_bytes(need),
+                    room.limit.describe(),
+                    crate::memory::describe_bytes(room.bytes)
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Runs the whole segmentation and writes the outputs. `progress` receives fractions 0..1.
 pub fn run(map: &Map, o: &SegmentOptions, progress: &dyn Fn(&str, f64)) -> Result<RunSummary> {
     let t0 = Instant::now();
+    check_memory(map)?;
     // The input's SHA-256 is computed beside the real work: started when a core falls idle
     // during the engine's sequential sweep (once the keys are sorted), so that it takes no
     // core from the sweep.

@@ -181,6 +181,36 @@ fn gzip_expanding_beyond_the_memory_allowed() {
     assert_eq!(s.listing(), before, "nothing written");
 }
 
+/// A map that loads within an address-space limit (`ulimit -v`) but whose segmentation
+/// would not fit is refused before any output is begun (the limit leaves at most 173 MB
+/// beside the 67 MB map, the run needs about 217 MB by `segment::memory_needed`), instead of
+/// ending in a failed allocation's abort with the output folder begun.
+#[test]
+fn segment_refused_when_its_memory_exceeds_the_address_space_limit() {
+    let s = Scratch::new();
+    let n = 4096;
+    // A unit cairn converts and sky axes, so that the refusal is the one line on stderr.
+    let mut cards = image_cards(n, n, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("large.fits", &fits_bytes(&cards, &good_pixels(n * n)));
+    let before = s.listing();
+    let args = [
+        "segment",
+        "large.fits",
+        "-o",
+        "run",
+        "--floor",
+        "1",
+        "--prominence",
+        "1",
+    ];
+    let o = cairn_limited(&args, s.dir.path(), 250_000);
+    check_refused(&o, &args, "large.fits", "memory");
+    assert_eq!(s.listing(), before, "nothing written, no output folder");
+    let (_, resident) = cairn::segment::memory_needed((n * n) as u64);
+    assert_eq!(resident, 16 * (n * n) as u64 + 32_000_000);
+}
+
 #[test]
 fn header_claiming_more_data_than_the_file_holds() {
     // 100000 x 100000 float32 would need 40 GB: refused before any allocation.
