@@ -401,11 +401,37 @@ fn unit_label(map: &Map) -> String {
         Some(PixelUnit::Extinction {
             band: units::ExtinctionBand::K,
         }) => "A_K [mag]".into(),
-        Some(PixelUnit::SurfaceBrightness { .. })
-        | Some(PixelUnit::FluxPerBeam { .. })
-        | Some(PixelUnit::FluxPerPixel { .. })
-        | Some(PixelUnit::Other)
-        | None => unit_markup(&crate::segment::map_unit(map)),
+        // Common practice: I for a surface brightness, S for a flux density (per beam or per
+        // pixel), with the wavelength as its index when it is known.
+        Some(PixelUnit::SurfaceBrightness { .. }) => format!(
+            "I_{{{}}} [{}]",
+            band_name(map.wavelength_m),
+            unit_markup(&crate::segment::map_unit(map))
+        ),
+        Some(PixelUnit::FluxPerBeam { .. }) | Some(PixelUnit::FluxPerPixel { .. }) => format!(
+            "S_{{{}}} [{}]",
+            band_name(map.wavelength_m),
+            unit_markup(&crate::segment::map_unit(map))
+        ),
+        Some(PixelUnit::Other) | None => unit_markup(&crate::segment::map_unit(map)),
+    }
+}
+
+/// The band of an emission map for its quantity's index: the wavelength in µm below a
+/// millimetre and in mm from it (`850 µm`, `1.3 mm`), to four significant digits; ν when the
+/// wavelength is not known.
+fn band_name(wavelength_m: Option<f64>) -> String {
+    match wavelength_m.filter(|w| w.is_finite() && *w > 0.0) {
+        Some(w) => {
+            let (v, unit) = if w < 1e-3 {
+                (w * 1e6, "µm")
+            } else {
+                (w * 1e3, "mm")
+            };
+            let digits: f64 = format!("{v:.3e}").parse().unwrap_or(v);
+            format!("{digits} {unit}")
+        }
+        None => "ν".to_string(),
     }
 }
 
@@ -1552,6 +1578,18 @@ fn check_labels(path: &Path, labels: ArrayView2<i32>, structures: &[FigStructure
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// An emission map's quantity takes its band as an index: micrometres below a millimetre,
+    /// millimetres from it, at most four significant digits; ν when no wavelength is known.
+    #[test]
+    fn bands_are_named_by_wavelength() {
+        assert_eq!(band_name(Some(850e-6)), "850 µm");
+        assert_eq!(band_name(Some(250e-6)), "250 µm");
+        assert_eq!(band_name(Some(299_792_458.0 / 352.7e9)), "850 µm");
+        assert_eq!(band_name(Some(1.3e-3)), "1.3 mm");
+        assert_eq!(band_name(Some(70e-6)), "70 µm");
+        assert_eq!(band_name(None), "ν");
+    }
 
     /// `--labels` reads its five forms, states in any case and order once each, and refuses
     /// other words, fractions of a leaf and negative masses.
