@@ -649,8 +649,8 @@ struct StyleArgs {
     /// Which leaves get their id written beside them, and above them in the tree diagram (all
     /// are outlined): all, none, states
     /// (bound, or bound,marginal; needs the run's states), a number N for the N highest peaks
-    /// (of those in --region), or a least mass such as 2Msun (needs the run's masses). Labels
-    /// are placed highest peak first.
+    /// (of those in --region), or a least mass such as 2Msun (the catalogue's `mass`, the whole
+    /// footprint's; needs the run's masses). Labels are placed highest peak first.
     #[arg(long, default_value = "all", value_name = "WHICH")]
     labels: String,
     /// Draw only a square part: `X,Y,SIZE`. The size's unit says how the centre is read: with a
