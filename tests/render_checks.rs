@@ -2152,3 +2152,53 @@ fn tree_line_styles_keep_open_gaps_at_narrow_widths() {
         assert_eq!(samples, 4, "{width}");
     }
 }
+
+/// The beam stands in the lower left corner unless a leaf's outline runs there; then it takes
+/// the next corner clear of outlines (the upper left here), as the scale bar does. Read from
+/// the SVG: the beam's box against the leaf outline's, and the frame's halves.
+#[test]
+fn the_beam_leaves_a_corner_where_a_leaf_outline_runs() {
+    let map = smooth_map(200, 200);
+    let style = Style {
+        width_px: 1200,
+        ..Style::default()
+    };
+    let beam_box = |labels: &Array2<i32>| {
+        let mut o = plain_overlay(&map, labels, leaves_of(labels));
+        o.beam = Some((10.0, 10.0, 0.0));
+        let fig = render::render_map_figure(&o, &style).unwrap();
+        let doc = roxmltree::Document::parse(&fig.svg).unwrap();
+        let d_of = |class: &str| {
+            doc.descendants()
+                .find(|n| {
+                    n.attribute("class")
+                        .is_some_and(|c| c.split(' ').next() == Some(class))
+                })
+                .and_then(|n| n.attribute("d"))
+                .map(svg_layout::bounds)
+        };
+        (d_of("beam").expect("a beam"), d_of("leaf"), fig)
+    };
+    // No leaf: the lower left (SVG y grows downwards).
+    let empty = Array2::from_elem((200, 200), -1);
+    let (b0, _, _) = beam_box(&empty);
+    // A small leaf around where that beam stood (map rows count from the bottom).
+    let mut l = Array2::from_elem((200, 200), -1);
+    for y in 2..12 {
+        for x in 2..12 {
+            l[[y, x]] = 0;
+        }
+    }
+    let (b1, leaf, _) = beam_box(&l);
+    let leaf = leaf.expect("the leaf is outlined");
+    let meets = |a: svg_layout::Bounds, b: svg_layout::Bounds| {
+        a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3
+    };
+    assert!(
+        meets(b0, leaf),
+        "the leaf lies where the beam stood: {b0:?} {leaf:?}"
+    );
+    assert!(!meets(b1, leaf), "beam {b1:?} on the leaf {leaf:?}");
+    // Same left edge, now in the upper half.
+    assert!((b1.0 - b0.0).abs() < 1.0 && b1.3 < b0.1, "{b0:?} -> {b1:?}");
+}

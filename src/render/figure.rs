@@ -449,7 +449,11 @@ fn place_compass(o: &Overlay, s: &Style, lay: &Layout) -> Option<Compass> {
     }
     let covered = leaf_pixels_counter(o, lay, s.show_branches);
     // The corners, the lower left beside the beam, then the middles of the edges.
-    let beam_right = taken.first().filter(|_| lay.beam.is_some()).map(|b| b.2);
+    // (beside it when it stands in the lower left corner, else the corner itself).
+    let beam_right = taken
+        .first()
+        .filter(|b| lay.beam.is_some() && b.0 < fx + fw / 2.0 && b.3 > fy + fh / 2.0)
+        .map(|b| b.2);
     let corners = [
         (fx + inset, fy + inset),
         (fx + fw - inset - bw, fy + inset),
@@ -688,18 +692,50 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
         compass: None,
     };
 
-    // Beam in the lower left corner, scale bar in the lower right unless leaves lie there,
-    // inside the frame.
+    // Beam in the lower left corner unless leaves' outlines run there (then the upper left,
+    // lower right or upper right, the first of the least crossed; on a flat panel always the
+    // lower left), scale bar in the lower right unless leaves lie there, inside the frame.
     let inset = 0.6 * fs;
-    // The width the beam takes from the left of the frame's lower edge.
+    // The width the beam takes from the left of the frame's lower edge (when it is there),
+    // and the box it takes.
     let mut beam_room = 0.0;
+    let mut beam_box: Option<Rect> = None;
     if let Some((maj, min, pa)) = o.beam {
         let probe = beam_geometry(maj, min, pa, o.sky, lay.figure_to_map(left, frame.1 + fh));
         let (ex, ey) = probe.half_extent();
         let (ex, ey) = (ex * kx, ey * ky);
-        beam_room = 2.0 * ex + m.gap;
-        let c = lay.figure_to_map(left + inset + ex, frame.1 + fh - inset - ey);
-        lay.beam = Some(beam_geometry(maj, min, pa, o.sky, c));
+        let (lx, rx) = (left + inset + ex, left + fw - inset - ex);
+        let (ly, uy) = (frame.1 + fh - inset - ey, frame.1 + inset + ey);
+        let over = inset + 0.3 * fs + 0.25 * fs + m.gap + text::cap_height(lfs) + inset;
+        let centres = if fh >= over {
+            vec![(lx, ly), (lx, uy), (rx, ly), (rx, uy)]
+        } else {
+            vec![(lx, ly)]
+        };
+        let (cx, cy) = {
+            let covered = leaf_pixels_counter(o, &lay, s.show_branches);
+            let near = 0.3 * fs;
+            least_crossed(centres.iter().copied(), |(cx, cy)| {
+                Some(covered((
+                    cx - ex - near,
+                    cy - ey - near,
+                    cx + ex + near,
+                    cy + ey + near,
+                )))
+            })
+            .unwrap_or(centres[0])
+        };
+        if (cx, cy) == (lx, ly) {
+            beam_room = 2.0 * ex + m.gap;
+        }
+        beam_box = Some((cx - ex, cy - ey, cx + ex, cy + ey));
+        lay.beam = Some(beam_geometry(
+            maj,
+            min,
+            pa,
+            o.sky,
+            lay.figure_to_map(cx, cy),
+        ));
     }
     if let Some((len, label)) = &o.scale_bar {
         // The text is centred over the bar, in a corner of the frame (below); text wider
@@ -738,6 +774,16 @@ fn frame_layout(o: &Overlay, s: &Style) -> Result<Layout, RenderError> {
             }
             corners.push((mid_x, high_y));
             let block = |(x0, y0): (f64, f64)| -> Rect { (x0, y0, x0 + block_w, y0 + block_h) };
+            // Not over the beam wherever it went (a corner beside it stays, when free).
+            let clear = |c: &(f64, f64)| {
+                beam_box.is_none_or(|bb| {
+                    let b = block(*c);
+                    b.2 <= bb.0 || bb.2 <= b.0 || b.3 <= bb.1 || bb.3 <= b.1
+                })
+            };
+            if corners.iter().any(clear) {
+                corners.retain(clear);
+            }
             let covered = leaf_pixels_counter(o, &lay, s.show_branches);
             // Leaves just beside the box count too: an outline along the bar's end is as
             // much in the way as one under it.
