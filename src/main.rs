@@ -2042,11 +2042,12 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
             .as_ref()
             .map_or(cairn::hierarchy::Connectivity::Eight, |f| f.connectivity),
     };
-    // The auxiliary maps must not be among the files the run replaces (the map and the noise
-    // map are checked by the library).
+    // The auxiliary maps and the earlier run's record must not be among the files the run
+    // replaces (the map and the noise map are checked by the library).
     let aux: Vec<&std::path::Path> = [
         a.physics.temperature_map.as_deref(),
         a.motion.sigma_nt_map.as_deref(),
+        from.as_ref().map(|f| f.record.as_path()),
     ]
     .into_iter()
     .flatten()

@@ -368,6 +368,61 @@ fn inputs_are_never_replaced_by_outputs() {
         std::fs::read(d.path().join("run/leaves-grown.fits")).unwrap(),
         original
     );
+    // The record of the earlier run whose thresholds this run takes, given as its folder or
+    // as the file itself, and a velocity-dispersion map kept in the folder.
+    let (code, _, stderr) = cairn(
+        &[
+            "segment",
+            m.to_str().unwrap(),
+            "-o",
+            "t2",
+            "--floor",
+            "4e21",
+            "--no-figure",
+            "--quiet",
+        ],
+        d.path(),
+    );
+    assert_eq!(code, 0, "{stderr}");
+    let record = std::fs::read(d.path().join("t2/run.json")).unwrap();
+    for from in ["t2", "t2/run.json"] {
+        refused(
+            d.path(),
+            &[
+                "segment",
+                m.to_str().unwrap(),
+                "-o",
+                "t2",
+                "--thresholds-from",
+                from,
+                "--force",
+                "--no-figure",
+                "--quiet",
+            ],
+            "t2/run.json: is an input of this run and would be replaced by its output run.json",
+        );
+        assert_eq!(std::fs::read(d.path().join("t2/run.json")).unwrap(), record);
+    }
+    refused(
+        d.path(),
+        &[
+            "segment",
+            m.to_str().unwrap(),
+            "-o",
+            "run",
+            "--floor",
+            "4e21",
+            "--sigma-nt-map",
+            "run/leaves-grown.fits",
+            "--force",
+            "--quiet",
+        ],
+        "is an input of this run",
+    );
+    assert_eq!(
+        std::fs::read(d.path().join("run/leaves-grown.fits")).unwrap(),
+        original
+    );
 }
 
 /// With `--force`, a run replaces every file of an earlier run in the folder: figures and grown
