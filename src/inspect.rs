@@ -281,6 +281,61 @@ pub fn noise_for_with(
     }
 }
 
+/// A sentence questioning a noise given (`--noise`, or the median `sigma` of a `--noise-map`)
+/// a hundred times or more away from the map's own pixel-difference estimate `difference`
+/// ([`noise::difference_sigma`]): most likely another unit (4 meant as mJy/beam on a map in
+/// Jy/beam), which every level in sigma, the default thresholds and the error columns would
+/// carry. The differences underestimate noise correlated by a beam of several pixels, by up
+/// to some tens for the widest beams, hence the wide margin. None for the estimate itself,
+/// and for a noise within the margin. Shared by `inspect` and `segment`.
+pub fn noise_given_warning(
+    map: &Map,
+    choice: &NoiseChoice,
+    sigma: f64,
+    difference: f64,
+) -> Option<String> {
+    let ratio = sigma / difference;
+    if !(difference > 0.0 && sigma > 0.0 && ratio.is_finite()) || (0.01..=100.0).contains(&ratio) {
+        return None;
+    }
+    // The ratio in words: a whole number up to ten thousand, beyond in scientific notation.
+    let how = if ratio >= 1.0 {
+        if ratio < 1e4 {
+            format!("about {} times", ratio.round())
+        } else {
+            format!("about {ratio:.1e} times")
+        }
+    } else if ratio > 1e-4 {
+        format!("about 1/{} of", (1.0 / ratio).round())
+    } else {
+        format!("about {ratio:.1e} times")
+    };
+    let unit = match map.unit_text.trim() {
+        "" => String::new(),
+        u => format!(", {u}"),
+    };
+    let what = match choice {
+        NoiseChoice::Value(_) => format!(
+            "the noise given ({}) is {how} the pixel-difference estimate ({difference:.4e}); check its unit (a bare --noise is in the map's unit{unit})",
+            units::tidy(sigma)
+        ),
+        NoiseChoice::Map(p) => format!(
+            "the noise map {} (median {}) is {how} the pixel-difference estimate ({difference:.4e}); check its unit (a noise map without BUNIT is read in the map's unit{unit})",
+            p.display(),
+            // The median of a map of 32-bit floats, in its shortest form when it is one.
+            if sigma == sigma as f32 as f64 {
+                units::tidy_f32(sigma as f32)
+            } else {
+                units::tidy(sigma)
+            }
+        ),
+        NoiseChoice::Estimate => return None,
+    };
+    Some(format!(
+        "{what}, since levels in sigma, the default thresholds and the error columns scale with it"
+    ))
+}
+
 /// The pixel where a map's scales are taken ([`crate::wcs::Wcs::scale_pixel`]): its centre,
 /// or the pixel on the sky nearest it; `None` without a celestial WCS or a pixel on the sky.
 pub fn scale_pixel(map: &Map) -> Option<(f64, f64)> {
@@ -464,6 +519,19 @@ pub fn load_aux_map(
     zero_allowed: bool,
     expect: AuxUnit,
 ) -> Result<ndarray::Array2<f32>> {
+    load_aux_map_with_unit(map, path, what, values, zero_allowed, expect).map(|(a, _)| a)
+}
+
+/// [`load_aux_map`], with the map's BUNIT as written (trimmed; empty without one), for
+/// messages about values that look like another unit's.
+pub fn load_aux_map_with_unit(
+    map: &Map,
+    path: &Path,
+    what: &str,
+    values: &str,
+    zero_allowed: bool,
+    expect: AuxUnit,
+) -> Result<(ndarray::Array2<f32>, String)> {
     let opts = LoadOptions {
         require_unit: false,
         ..LoadOptions::default()
@@ -549,10 +617,11 @@ pub fn load_aux_map(
             ),
         ));
     }
+    let bunit = bunit.to_string();
     if factor == 1.0 {
-        Ok(nm.data)
+        Ok((nm.data, bunit))
     } else {
-        Ok(nm.data.mapv(|v| (v as f64 * factor) as f32))
+        Ok((nm.data.mapv(|v| (v as f64 * factor) as f32), bunit))
     }
 }
 
@@ -843,30 +912,8 @@ pub fn summarise(map: &Map, noise_choice: &NoiseChoice) -> Result<Summary> {
             ));
         }
     }
-    // A noise given a hundred times or more away from the map's own pixel differences: most
-    // likely another unit (4 meant as mJy/beam on a map in Jy/beam), which every level in
-    // sigma and the suggested thresholds would carry. (The differences underestimate noise
-    // correlated by a beam of several pixels, by up to some tens for the widest beams, hence
-    // the wide margin.)
-    if let (NoiseChoice::Value(v), Ok(d)) = (noise_choice, &difference)
-        && *d > 0.0
-        && *v > 0.0
-        && !(0.01..=100.0).contains(&(v / d))
-    {
-        let ratio = v / d;
-        warnings.push(format!(
-            "the noise given ({}) is {} the pixel-difference estimate ({d:.4e}); check its unit (a bare --noise is in the map's unit{}), since levels in sigma and the suggested thresholds scale with it",
-            units::as_given(*v),
-            if ratio > 1.0 {
-                format!("{} times", units::as_given((ratio * 10.0).round() / 10.0))
-            } else {
-                format!("1/{} of", units::as_given((10.0 / ratio).round() / 10.0))
-            },
-            match map.unit_text.trim() {
-                "" => String::new(),
-                u => format!(", {u}"),
-            }
-        ));
+    if let (Some(sg), Ok(d)) = (sigma, &difference) {
+        warnings.extend(noise_given_warning(map, noise_choice, sg, *d));
     }
     if map.beam.is_none() {
         warnings.push(

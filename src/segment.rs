@@ -572,6 +572,12 @@ fn resolve_with(
         None => "default".to_string(),
     };
     let mut warnings = threshold_warnings(map, o, floor, sigma.is_some());
+    // A noise given far from the map's own, questioned as inspect questions it.
+    if let (Some(sg), NoiseChoice::Value(_) | NoiseChoice::Map(_)) = (sigma, &o.noise)
+        && let Ok(d) = noise::difference_sigma(map.data.view())
+    {
+        warnings.extend(inspect::noise_given_warning(map, &o.noise, sg, d));
+    }
     // An area given on the sky or in beams that comes to less than a pixel: every peak then
     // passes the area test, which a unit slip (arcsec2 for arcmin2) would make silently.
     if matches!(o.min_area, Some(Area::Beams(_) | Area::SolidAngle(_))) && area_px < 1.0 {

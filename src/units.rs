@@ -327,6 +327,18 @@ pub fn tidy(v: f64) -> String {
     }
 }
 
+/// [`tidy`] for a value held as a 32-bit float (a map's pixel), through its shortest
+/// decimal form: `1e20`, not the double nearest the float (`1.00000002e20`).
+pub fn tidy_f32(v: f32) -> String {
+    tidy(f32_as_given(v))
+}
+
+/// A 32-bit float as the double its shortest decimal form names (0.3, not 0.30000001192...),
+/// for messages that compute with a map's pixel before saying it.
+pub fn f32_as_given(v: f32) -> f64 {
+    format!("{v:e}").parse().unwrap_or(v as f64)
+}
+
 /// Parses `text` as a number followed by a unit whose dimension is one of `allowed`.
 ///
 /// `what` names the option or keyword for the error sentence (for example `--beam`).
