@@ -889,8 +889,24 @@ pub fn log_stretch_note(map: &Map, style: &Style) -> Option<String> {
 /// Checks that the map figure of `map` fits the width of `style` (room for
 /// the map beside its axis and colour-bar labels), as drawing it would decide, without a run:
 /// so that a width too narrow is refused with the narrowest that works before any work is
-/// done.
+/// done. The width is spoken of as given with `--width`; see [`check_figure_fits`].
 pub fn check_figure_style(map: &Map, style: &Style) -> Result<()> {
+    check_figure_fits(map, style, true, false)
+}
+
+/// [`check_figure_style`], its refusal in the words of the command line: `width_given`,
+/// whether `--width` was given (else the width is the default, and is said so);
+/// `can_skip`, whether the command can leave the figure out (`segment --no-figure`). A map
+/// that needs a figure wider than the widest cairn draws ([`render::MAX_WIDTH_PX`]; its
+/// axis labels may be that long on a map whose sky coordinates are odd) is not sent to a
+/// larger `--width`: a lower `--dpi` is suggested if one leaves it room, and otherwise
+/// leaving out the figure, or a part of the map with `--region`.
+pub fn check_figure_fits(
+    map: &Map,
+    style: &Style,
+    width_given: bool,
+    can_skip: bool,
+) -> Result<()> {
     let none = [-1i32];
     let one = ndarray::aview1(&none);
     let labels = one
@@ -911,12 +927,90 @@ pub fn check_figure_style(map: &Map, style: &Style) -> Result<()> {
         name: None,
     };
     // Only the width is judged here; anything else the layout refuses is said when drawing.
-    match render::overlay_layout(&overlay, style) {
-        Err(render::RenderError::TooNarrow { width, dpi, needed }) => Err(Error::usage(format!(
-            "--width {width} at --dpi {dpi} leaves no room for the map beside its axis and colour-bar labels: this map needs a figure at least {needed} pixels wide at that resolution; give a larger --width or a lower --dpi."
-        ))),
-        _ => Ok(()),
+    let Some(needed) = narrowest_fitting(&overlay, style) else {
+        return Ok(());
+    };
+    let (width, dpi) = (style.width_px, style.dpi);
+    let widest = render::MAX_WIDTH_PX;
+    let asked = if width_given {
+        format!("--width {width} at --dpi {dpi} leaves")
+    } else {
+        format!("the default figure width ({width} pixels) at --dpi {dpi} leaves")
+    };
+    if needed <= widest {
+        return Err(Error::usage(format!(
+            "{asked} no room for the map beside its axis and colour-bar labels: this map needs a figure at least {needed} pixels wide at that resolution; give --width {needed} or more (at most {widest}), or a lower --dpi."
+        )));
     }
+    // A narrower figure has fewer ticks, whose labels may be shorter: the narrowest width
+    // that leaves room, counted from the narrowest figure at this resolution.
+    let narrower = narrowest_fitting(
+        &overlay,
+        &Style {
+            width_px: render::narrowest_width_px(dpi).clamp(200, widest),
+            ..style.clone()
+        },
+    )
+    .filter(|&n| n <= widest)
+    .map(|n| format!("--width {n} (whose fewer axis ticks leave room) or "))
+    .unwrap_or_default();
+    // Text scales with the resolution: the lowest --dpi may leave the labels room.
+    let least_dpi = 30.0;
+    let lower_dpi = match narrowest_fitting(
+        &overlay,
+        &Style {
+            dpi: least_dpi,
+            ..style.clone()
+        },
+    ) {
+        None => Some(format!("--dpi {least_dpi}")),
+        Some(n) if n <= widest => Some(format!("--dpi {least_dpi} with --width {n} or more")),
+        Some(_) => None,
+    };
+    let fix = match (lower_dpi, can_skip) {
+        (Some(d), true) => format!(
+            "give {narrower}a lower resolution, such as {d}, or --no-figure (and draw a --region of the map later with cairn draw)"
+        ),
+        (Some(d), false) => {
+            format!("give {narrower}a lower resolution, such as {d}, or draw a --region of the map")
+        }
+        (None, true) => format!(
+            "give {narrower}--no-figure (and draw a --region of the map later with cairn draw, if a part of it leaves the labels room)"
+        ),
+        (None, false) => {
+            format!("give {narrower}a --region of the map, if a part of it leaves the labels room")
+        }
+    };
+    Err(Error::usage(format!(
+        "{asked} no room for the map beside its axis and colour-bar labels: this map needs a figure at least {needed} pixels wide at that resolution, more than the widest cairn draws ({widest}); {fix}."
+    )))
+}
+
+/// The narrowest width, from `style`'s, at which the map figure of `overlay` leaves room for
+/// the map beside its labels, or None when `style`'s width does. The width the layout says
+/// it needs is tried in turn, as more room may bring longer tick labels (a map whose sky
+/// coordinates are odd); past [`render::MAX_WIDTH_PX`] the first such width is returned.
+fn narrowest_fitting(overlay: &render::Overlay, style: &Style) -> Option<u32> {
+    let mut w = style.width_px;
+    // A few rounds settle it; the limit only keeps a layout that never settles finite.
+    for _ in 0..16 {
+        match render::overlay_layout(
+            overlay,
+            &Style {
+                width_px: w,
+                ..style.clone()
+            },
+        ) {
+            Err(render::RenderError::TooNarrow { needed, .. }) => {
+                w = needed.max(w + 1);
+                if w > render::MAX_WIDTH_PX {
+                    return Some(w);
+                }
+            }
+            _ => return (w != style.width_px).then_some(w),
+        }
+    }
+    Some(w)
 }
 
 /// The figures of a run.

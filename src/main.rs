@@ -748,13 +748,9 @@ struct StyleArgs {
     /// 20000; a width too narrow for the map beside its axis and colour-bar labels at --dpi is
     /// refused with the narrowest that works, and so is a figure of more than 150 megapixels.
     /// A map more than twice as tall as wide gets a narrower figure (said in the summary).
-    #[arg(
-        long,
-        default_value_t = 1600,
-        value_name = "PX",
-        allow_hyphen_values = true
-    )]
-    width: u32,
+    /// [default: 1600]
+    #[arg(long, value_name = "PX", allow_hyphen_values = true)]
+    width: Option<u32>,
     /// Print resolution recorded in the PNG (and setting the PDF's page size with --width), 30
     /// to 2400; text is 9 pt at this resolution.
     #[arg(
@@ -786,9 +782,15 @@ struct StyleArgs {
 }
 
 impl StyleArgs {
+    /// The figure width, `--width` or its default.
+    fn width(&self) -> u32 {
+        self.width.unwrap_or(1600)
+    }
+
     /// The figure style, its options checked; `drawn`: whether a figure will be drawn (else
     /// the notes about what a figure would show are not printed).
-    fn style(&self, map: &map::Map, drawn: bool) -> Result<cairn::render::Style> {
+    fn style(&self, map: &map::Map, drawn: bool, skippable: bool) -> Result<cairn::render::Style> {
+        let width = self.width();
         use cairn::render::{ColorMap, Limits, Stretch, Style};
         let pair = |t: &str, what: &str| -> Result<(f64, f64)> {
             let bad = || {
@@ -848,10 +850,9 @@ impl StyleArgs {
             }
         };
         let widest = cairn::render::MAX_WIDTH_PX;
-        if self.width < 200 || self.width > widest {
+        if !(200..=widest).contains(&width) {
             return Err(Error::usage(format!(
-                "--width {} is outside 200 to {widest} pixels; give a width in that range.",
-                self.width
+                "--width {width} is outside 200 to {widest} pixels; give a width in that range."
             )));
         }
         if !(self.dpi >= 30.0 && self.dpi <= 2400.0) {
@@ -876,7 +877,7 @@ impl StyleArgs {
             stretch,
             limits,
             colormap,
-            width_px: self.width,
+            width_px: width,
             dpi: self.dpi,
             show_branches: self.branches,
             region,
@@ -885,9 +886,14 @@ impl StyleArgs {
             errln!("warning: {note}");
         }
         // A width that may be too narrow for the map beside its labels is checked by the
-        // layout itself, which gives the narrowest width that works.
-        if self.width < 4 * cairn::render::narrowest_width_px(self.dpi) {
-            cairn::draw::check_figure_style(map, &style)?;
+        // layout itself, which gives the narrowest width that works: always for a figure to
+        // be drawn (a map whose sky coordinates are odd may need long axis labels at any
+        // width), and for a small --width given without a figure too (not the default, so
+        // that --no-figure runs where no figure fits).
+        if drawn
+            || (self.width.is_some() && width < 4 * cairn::render::narrowest_width_px(self.dpi))
+        {
+            cairn::draw::check_figure_fits(map, &style, self.width.is_some(), skippable)?;
         }
         Ok(style)
     }
@@ -2247,7 +2253,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
                 .or_else(|| from.as_ref().map(|f| from_text(f, f.min_area_px, "px"))),
         ],
         figure: {
-            let style = a.style.style(&m, !a.no_figure)?;
+            let style = a.style.style(&m, !a.no_figure, true)?;
             (!a.no_figure).then_some(style)
         },
         label_choice: cairn::draw::LabelChoice::parse(&a.style.labels)?,
@@ -2399,7 +2405,7 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
         }
         labels_note(in_frame, left_out);
         stretch_note(summary.figure_y_stretch);
-        narrowed_note(summary.figure_narrowed_to, a.style.width);
+        narrowed_note(summary.figure_narrowed_to, a.style.width());
         label_size_note(summary.figure_label_pt);
         beam_note(summary.figure_beam_px);
         scale_bar_note(summary.figure_scale_bar_left_out);
@@ -2719,7 +2725,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     stage("reading", 0);
     let run = cairn::draw::read_run(&a.run, a.map.as_deref())?;
     stage("drawing", 400);
-    let style = a.style.style(&run.map, true)?;
+    let style = a.style.style(&run.map, true, false)?;
     let input = cairn::draw::FigureInput {
         map: &run.map,
         labels: run.labels.view(),
@@ -2763,7 +2769,7 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     chosen_note(&a.style.labels, figs.labels_chosen);
     labels_note(figs.overlay.leaves_in_frame, figs.overlay.labels_left_out);
     stretch_note(figs.overlay.y_stretch);
-    narrowed_note(figs.overlay.narrowed_to, a.style.width);
+    narrowed_note(figs.overlay.narrowed_to, a.style.width());
     label_size_note(figs.overlay.smaller_label_pt);
     beam_note(figs.overlay.beam_px);
     scale_bar_note(figs.overlay.scale_bar_left_out);

@@ -599,3 +599,228 @@ fn inspect_questions_a_noise_far_from_the_maps_own() {
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(!format!("{}{}", o.stdout, o.stderr).contains("noise given"));
 }
+
+/// A side map beside the demo map, of `value` everywhere but `odd` at pixel (x 11, y 7),
+/// with BUNIT `bunit` (none when empty).
+fn side_map(dir: &Path, name: &str, value: f32, odd: f32, bunit: &str) {
+    use cairn::header::Value;
+    let m = cairn::map::load(&dir.join("col.fits"), &Default::default()).unwrap();
+    let mut h = m.header.clone();
+    if bunit.is_empty() {
+        h.remove("BUNIT");
+    } else {
+        h.set("BUNIT", Value::Str(bunit.into()), "");
+    }
+    let mut a = ndarray::Array2::from_elem(m.data.dim(), value);
+    a[(7, 11)] = odd;
+    cairn::fits_write::write_image_f32(&dir.join(name), a.view(), &h, true).unwrap();
+}
+
+/// The temperature and velocity-dispersion maps are held to the limits of --temperature and
+/// --sigma-nt: a pixel beyond them is refused by its position and value, with a hint at mK or
+/// m/s where the values look like them; a dispersion map above the warning's limit is run
+/// with a warning (kept in the run record); --sigma-nt itself is refused faster than 1000
+/// km/s and warned about above 50 km/s; a dispersion map with no value is refused as a
+/// temperature map with none is.
+#[test]
+fn side_maps_are_held_to_the_limits_of_their_options() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    let base = ["segment", "col.fits", "--distance", "410pc"];
+    let with = |extra: &[&str]| -> Vec<String> {
+        base.iter()
+            .chain(extra)
+            .map(|s| s.to_string())
+            .collect::<Vec<_>>()
+    };
+    let refused_with = |extra: &[&str], names: &str, says: &str| {
+        let mut args = with(extra);
+        args.extend(["-o".to_string(), "out".to_string()]);
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        refused(d.path(), &args, names, says);
+    };
+    // mK written without BUNIT (read in K), and K values beyond any dust.
+    side_map(d.path(), "t_mk.fits", 14000.0, 15000.0, "");
+    refused_with(
+        &["--temperature-map", "t_mk.fits"],
+        "t_mk.fits",
+        "holds 15000 K at pixel (11, 7), hotter than dust survives",
+    );
+    refused_with(
+        &["--temperature-map", "t_mk.fits"],
+        "t_mk.fits",
+        "look like millikelvin (15000 mK is 15 K)",
+    );
+    side_map(d.path(), "t_hot.fits", 14.0, 1e6, "K");
+    refused_with(
+        &["--temperature-map", "t_hot.fits"],
+        "t_hot.fits",
+        "holds 1000000 K at pixel (11, 7), hotter than dust survives",
+    );
+    // m/s written without BUNIT (read in km/s): refused past 1000, warned about past 50.
+    side_map(d.path(), "s_fast.fits", 300.0, 1e20, "km/s");
+    refused_with(
+        &["--temperature", "14K", "--sigma-nt-map", "s_fast.fits"],
+        "s_fast.fits",
+        "holds 1e20 km/s at pixel (11, 7), faster than any gas motion in a molecular cloud",
+    );
+    side_map(d.path(), "s_ms.fits", 200.0, 1500.0, "");
+    refused_with(
+        &["--temperature", "14K", "--sigma-nt-map", "s_ms.fits"],
+        "s_ms.fits",
+        "its values look like m/s (1500 m/s is 1.5 km/s)",
+    );
+    side_map(d.path(), "s_slow.fits", 200.0, 300.0, "");
+    let args = with(&[
+        "--temperature",
+        "14K",
+        "--sigma-nt-map",
+        "s_slow.fits",
+        "-o",
+        "out",
+        "--no-figure",
+        "-q",
+    ]);
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let o = cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let said = "the velocity-dispersion map s_slow.fits holds up to 300 km/s (at pixel (11, 7))";
+    assert!(
+        o.stderr.contains(said) && o.stderr.contains("look like m/s (300 m/s is 0.3 km/s)"),
+        "{}",
+        o.stderr
+    );
+    let record = run_json(&d.path().join("out"));
+    assert!(
+        record["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w.as_str().unwrap().contains(said)),
+        "{record}"
+    );
+    // Every pixel undefined: no structure could have a virial parameter.
+    side_map(d.path(), "s_nan.fits", f32::NAN, f32::NAN, "km/s");
+    refused_with(
+        &["--temperature", "14K", "--sigma-nt-map", "s_nan.fits"],
+        "s_nan.fits",
+        "has no defined pixel (all are NaN), so no structure would have a virial parameter",
+    );
+    // The option itself.
+    refused_with(
+        &["--sigma-nt", "400000km/s"],
+        "--sigma-nt 400000km/s",
+        "faster than any gas motion in a molecular cloud (above 1000 km/s)",
+    );
+    let args = with(&["--sigma-nt", "300km/s", "-o", "warned", "--no-figure", "-q"]);
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let o = cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(
+        o.stderr
+            .contains("warning: --sigma-nt 300km/s is more than the non-thermal dispersions"),
+        "{}",
+        o.stderr
+    );
+    let args = with(&["--sigma-nt", "0.3km/s", "-o", "quiet", "--no-figure", "-q"]);
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let o = cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(!o.stderr.contains("sigma-nt"), "{}", o.stderr);
+}
+
+/// `segment` questions a `--noise` far from the map's pixel-difference estimate as `inspect`
+/// does, in the same words, and both question a `--noise-map` whose median is; the ratio is
+/// said in scientific notation, not as a fraction of thirty digits.
+#[test]
+fn segment_and_inspect_question_a_noise_far_from_the_maps_own() {
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    side_map(d.path(), "n_tiny.fits", 1e-30, 1e-30, "");
+    for (how, noise, out) in [
+        ("--noise", "1e-30", "n1"),
+        ("--noise-map", "n_tiny.fits", "n2"),
+    ] {
+        let said = match how {
+            "--noise" => "warning: the noise given (1e-30) is about ".to_string(),
+            _ => "warning: the noise map n_tiny.fits (median 1e-30) is about ".to_string(),
+        };
+        let i = cairn(&["inspect", "col.fits", how, noise], d.path());
+        assert_eq!(i.code, 0, "{}", i.stderr);
+        let s = cairn(
+            &[
+                "segment",
+                "col.fits",
+                "-o",
+                out,
+                how,
+                noise,
+                "--no-figure",
+                "-q",
+            ],
+            d.path(),
+        );
+        assert_eq!(s.code, 0, "{}", s.stderr);
+        let line = |text: &str| {
+            text.lines()
+                .find(|l| l.starts_with(&said))
+                .unwrap_or_else(|| panic!("{how}: no warning in {text}"))
+                .to_string()
+        };
+        let (a, b) = (line(&format!("{}{}", i.stdout, i.stderr)), line(&s.stderr));
+        assert_eq!(a, b);
+        // The ratio, about 1e-50 on this map, in scientific notation.
+        let ratio: f64 = a[said.len()..]
+            .split_whitespace()
+            .next()
+            .unwrap()
+            .parse()
+            .unwrap();
+        assert!(ratio > 1e-52 && ratio < 1e-49, "{a}");
+        assert!(!a.contains("0000000000"), "{a}");
+    }
+}
+
+/// A map whose figure needs more room than the widest figure cairn draws (a reference pixel
+/// at -1e308 makes every axis label enormous) is refused before any work without sending the
+/// user to a larger --width, and without speaking of a --width that was not given; the
+/// message offers --no-figure, which then runs.
+#[test]
+fn a_figure_wider_than_any_width_is_refused_with_a_way_out() {
+    use cairn::header::Value;
+    let d = tempfile::tempdir().unwrap();
+    demo_map(d.path());
+    let m = cairn::map::load(&d.path().join("col.fits"), &Default::default()).unwrap();
+    let mut h = m.header.clone();
+    h.set("CRPIX2", Value::Float(-1e308), "");
+    cairn::fits_write::write_image_f32(&d.path().join("odd.fits"), m.data.view(), &h, true)
+        .unwrap();
+    let o = cairn(&["segment", "odd.fits", "-o", "out", "-q"], d.path());
+    assert!(!d.path().join("out").exists());
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    let last = o.stderr.trim_end().lines().last().unwrap().to_string();
+    assert!(
+        last.contains("the default figure width (1600 pixels)")
+            && last.contains("more than the widest cairn draws (20000)")
+            && last.contains("--no-figure")
+            && !last.contains("--width 1600")
+            && !last.contains("larger --width"),
+        "{last}"
+    );
+    let o = cairn(
+        &["segment", "odd.fits", "-o", "out", "-q", "--width", "3000"],
+        d.path(),
+    );
+    assert_eq!(o.code, 2, "{}", o.stderr);
+    assert!(
+        o.stderr.contains("--width 3000 at --dpi 300") && !o.stderr.contains("larger --width"),
+        "{}",
+        o.stderr
+    );
+    assert!(!d.path().join("out").exists());
+    let o = cairn(
+        &["segment", "odd.fits", "-o", "out", "-q", "--no-figure"],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+}

@@ -264,6 +264,10 @@ impl fmt::Display for RenderError {
                 "the zoom region x={x} y={y} width={w} height={h} is empty or leaves the map; choose one inside it"
             ),
             RenderError::BadStyle(m) => write!(f, "{m}"),
+            RenderError::TooNarrow { width, dpi, needed } if *needed > MAX_WIDTH_PX => write!(
+                f,
+                "a figure {width} pixels wide at {dpi} dpi leaves no room for the map beside its axis and colour-bar labels; this map needs a figure at least {needed} pixels wide at that resolution, more than the widest drawn ({MAX_WIDTH_PX}), so give a lower resolution or draw a part of the map"
+            ),
             RenderError::TooNarrow { width, dpi, needed } => write!(
                 f,
                 "a figure {width} pixels wide at {dpi} dpi leaves no room for the map beside its axis and colour-bar labels; this map needs a figure at least {needed} pixels wide at that resolution, so give a larger width or a lower resolution"
