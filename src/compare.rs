@@ -71,6 +71,16 @@ pub(crate) fn catalogue_number(
         return Ok(f64::NAN);
     }
     v.parse::<f64>().map_err(|_| {
+        if v.matches(',').count() == 1 && v.replacen(',', ".", 1).parse::<f64>().is_ok() {
+            return Error::input(
+                csv,
+                format!(
+                    "row {} holds '{v}' in the numeric column '{}', a number with a decimal comma: write numbers with a decimal point (and separate the columns by commas, tabs or semicolons).",
+                    n + 1,
+                    header[i]
+                ),
+            );
+        }
         Error::input(
             csv,
             format!(
@@ -135,6 +145,11 @@ fn read_text(path: &Path) -> Result<String> {
             format!("is {what}, but compare reads a run's CSV catalogue: {give}."),
         ));
     }
+    // A byte-order mark (as spreadsheet programs write before "CSV UTF-8") is no text.
+    let bytes = match bytes.strip_prefix("\u{feff}".as_bytes()) {
+        Some(rest) => rest.to_vec(),
+        None => bytes,
+    };
     String::from_utf8(bytes).map_err(|e| {
         Error::input(
             path,
@@ -199,6 +214,65 @@ fn too_few_leaves(
     )
 }
 
+/// The columns of a truth table written by `cairn synth` that a catalogue does not have (see
+/// `crate::synth`'s truth table).
+const TRUTH_COLUMNS: [&str; 5] = ["mass_msun", "lon_deg", "lat_deg", "profile", "peak_column_cm2"];
+
+/// The refusal of the catalogue `csv` (text `catalogue`, column names `header`) that lacks
+/// some of the columns compare needs (`kind`, `mass_column`, `radius_pc`): it names exactly the
+/// missing ones and gives the fix that fits what the file is (a truth table of `cairn synth`,
+/// a catalogue of a run made without a distance, or a catalogue made by hand, whose header as
+/// read it lists).
+fn missing_columns(csv: &Path, catalogue: &str, header: &[String], mass_column: &str) -> Error {
+    let has = |name: &str| header.iter().any(|h| h == name);
+    if TRUTH_COLUMNS.iter().all(|c| has(c)) && !has("kind") {
+        return Error::input(
+            csv,
+            "is a truth table written by cairn synth, not a run's catalogue: give it with --truth (cairn compare RUN --truth FILE) to score the run of its map against it.",
+        );
+    }
+    let missing: Vec<&str> = ["kind", mass_column, "radius_pc"]
+        .into_iter()
+        .filter(|c| !has(c))
+        .collect();
+    let named = match missing.as_slice() {
+        [one] => format!("the column '{one}'"),
+        [a, b] => format!("the columns '{a}' and '{b}'"),
+        [a, b, c] => format!("the columns '{a}', '{b}' and '{c}'"),
+        _ => "the columns it needs".to_string(),
+    };
+    // A catalogue that cairn segment wrote names its input in its commented header.
+    if header_parameters(catalogue).contains_key("input_sha256") && has("kind") {
+        return Error::input(
+            csv,
+            format!(
+                "lacks {named}, as its run was made without a distance: run cairn segment with --distance (and --temperature for emission maps) first."
+            ),
+        );
+    }
+    const SHOWN: usize = 12;
+    let mut read = header
+        .iter()
+        .take(SHOWN)
+        .map(|h| if h.is_empty() { "(empty)".to_string() } else { h.clone() })
+        .collect::<Vec<_>>()
+        .join(", ");
+    if header.len() > SHOWN {
+        read += &format!(" and {} more", header.len() - SHOWN);
+    }
+    let kind_note = if missing.contains(&"kind") {
+        " (kind holding leaf for each core; branch and root rows are left out)"
+    } else {
+        ""
+    };
+    Error::input(
+        csv,
+        format!(
+            "lacks {named} (its header reads: {read}): a catalogue needs the columns kind, {mass_column} and radius_pc{kind_note}, separated by commas, tabs or semicolons, so add or rename them, or give a run folder that cairn segment wrote with --distance."
+        ),
+    )
+}
+
 /// Reads a population from a run folder or a catalogue file. `mass_column` chooses the mass
 /// (`mass_excess` by default).
 pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Population> {
@@ -227,12 +301,7 @@ pub fn read_population(path: &Path, label: &str, mass_column: &str) -> Result<Po
                 ),
             ));
         }
-        return Err(Error::input(
-            &csv,
-            format!(
-                "has no '{mass_column}' or 'radius_pc' column: run cairn segment with --distance (and --temperature for emission maps) first."
-            ),
-        ));
+        return Err(missing_columns(&csv, &catalogue, &header, mass_column));
     };
     let (state, density) = (col("state"), col("density"));
     // Why leaves were left out, for the message when too few are left.

@@ -1084,11 +1084,16 @@ fn comment_cards(f: &mut fitsio::FitsFile, text: &str) -> i32 {
     status
 }
 
-/// Reads the rows of a catalogue CSV that cairn wrote (`text`, read from `path`): the
-/// header (the first line that is not a `#` comment) and every row, split at commas outside
-/// double quotes (a doubled quote inside quotes is a quote). A row whose number of fields
-/// differs from the header's is refused: the file was cut short or edited by hand.
+/// Reads the rows of a catalogue CSV (`text`, read from `path`): the header (the first line
+/// that is not a `#` comment) and every row, split at the separator outside double quotes (a
+/// doubled quote inside quotes is a quote). Catalogues made by hand are read as spreadsheet
+/// programs write them: a byte-order mark before the first line is skipped, spaces around
+/// cells and column names are dropped, and the separator is a comma, a tab or a semicolon,
+/// whichever of them the header line holds most of outside quotes (a comma when it holds
+/// none). A row whose number of fields differs from the header's is refused: the file was cut
+/// short or edited by hand.
 pub fn read_catalogue_csv(path: &Path, text: &str) -> Result<(Vec<String>, Vec<Vec<String>>)> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let mut lines = text
         .lines()
         .enumerate()
@@ -1099,10 +1104,11 @@ pub fn read_catalogue_csv(path: &Path, text: &str) -> Result<(Vec<String>, Vec<V
             "holds no catalogue header; give a catalogue written by cairn segment (or run it again).",
         ));
     };
-    let header = split_csv_line(header);
+    let sep = csv_separator(header);
+    let header = split_csv_line(header, sep);
     let mut rows = Vec::new();
     for (i, l) in lines {
-        let r = split_csv_line(l);
+        let r = split_csv_line(l, sep);
         if r.len() != header.len() {
             return Err(Error::input(
                 path,
@@ -1117,6 +1123,30 @@ pub fn read_catalogue_csv(path: &Path, text: &str) -> Result<(Vec<String>, Vec<V
         rows.push(r);
     }
     Ok((header, rows))
+}
+
+/// The separator of a catalogue whose header line is `header`: the one of comma, tab and
+/// semicolon that it holds most of outside double quotes (a comma on a tie or when it holds
+/// none of them).
+fn csv_separator(header: &str) -> char {
+    let mut counts = [0usize; 3];
+    let mut quoted = false;
+    for c in header.chars() {
+        match c {
+            '"' => quoted = !quoted,
+            ',' if !quoted => counts[0] += 1,
+            '\t' if !quoted => counts[1] += 1,
+            ';' if !quoted => counts[2] += 1,
+            _ => {}
+        }
+    }
+    let mut best = (',', counts[0]);
+    for (c, n) in [('\t', counts[1]), (';', counts[2])] {
+        if n > best.1 {
+            best = (c, n);
+        }
+    }
+    best.0
 }
 
 /// `text` with every character outside printable ASCII replaced by `?` (FITS header text).
@@ -1149,12 +1179,18 @@ fn one_line(text: &str) -> String {
         .collect()
 }
 
-/// One CSV line split at commas outside double quotes.
-fn split_csv_line(line: &str) -> Vec<String> {
+/// One CSV line split at `sep` outside double quotes, each cell without the spaces around
+/// it.
+fn split_csv_line(line: &str, sep: char) -> Vec<String> {
     let mut out = Vec::new();
     let mut cur = String::new();
     let mut quoted = false;
     let mut chars = line.chars().peekable();
+    let cell = |cur: &mut String| {
+        let c = std::mem::take(cur);
+        let t = c.trim_matches([' ', '\t']);
+        if t.len() == c.len() { c } else { t.to_string() }
+    };
     while let Some(c) = chars.next() {
         match c {
             '"' if quoted && chars.peek() == Some(&'"') => {
@@ -1162,11 +1198,11 @@ fn split_csv_line(line: &str) -> Vec<String> {
                 chars.next();
             }
             '"' => quoted = !quoted,
-            ',' if !quoted => out.push(std::mem::take(&mut cur)),
+            c if c == sep && !quoted => out.push(cell(&mut cur)),
             _ => cur.push(c),
         }
     }
-    out.push(cur);
+    out.push(cell(&mut cur));
     out
 }
 
@@ -1208,7 +1244,7 @@ mod tests {
     #[test]
     fn catalogue_lines_split_outside_quotes_and_damage_is_refused() {
         assert_eq!(
-            super::split_csv_line(r#"1,"a, ""b""",,x"#),
+            super::split_csv_line(r#"1,"a, ""b""",,x"#, ','),
             ["1", r#"a, "b""#, "", "x"]
         );
         let p = std::path::Path::new("c.csv");
@@ -1217,6 +1253,27 @@ mod tests {
         let e = super::read_catalogue_csv(p, "id,kind\n0,leaf\n1,leaf,extra\n").unwrap_err();
         assert!(e.message.contains("line 3 has 3 fields"), "{}", e.message);
         assert!(super::read_catalogue_csv(p, "# only notes\n").is_err());
+    }
+
+    #[test]
+    fn hand_made_catalogues_read_as_spreadsheets_write_them() {
+        let p = std::path::Path::new("c.csv");
+        let want = (
+            vec!["kind".to_string(), "mass_excess".into(), "radius_pc".into()],
+            vec![vec!["leaf".to_string(), "1.5".into(), "0.02".into()]],
+        );
+        for text in [
+            "\u{feff}kind,mass_excess,radius_pc\nleaf,1.5,0.02\n",
+            "kind, mass_excess , radius_pc\n leaf, 1.5,0.02 \n",
+            "kind\tmass_excess\tradius_pc\nleaf\t1.5\t0.02\n",
+            "# note, with a comma\nkind;mass_excess;radius_pc\r\nleaf; 1.5;0.02\r\n",
+            "\u{feff}\"kind\";\"mass_excess\";\"radius_pc\"\nleaf;1.5;0.02\n",
+        ] {
+            assert_eq!(super::read_catalogue_csv(p, text).unwrap(), want, "{text:?}");
+        }
+        // A comma inside quotes does not make a header comma-separated.
+        assert_eq!(super::csv_separator("\"a,b\";c;d"), ';');
+        assert_eq!(super::csv_separator("single"), ',');
     }
 
     #[test]

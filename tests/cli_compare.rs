@@ -1541,3 +1541,116 @@ fn thresholds_taken_from_a_run_compare_as_the_same() {
     assert!(err.contains("the floor (as given) differs"), "{err}");
     assert!(!err.contains("the prominence (as given) differs"), "{err}");
 }
+
+/// Hand-made catalogues are read as spreadsheet programs write them: with a byte-order mark,
+/// spaces after the separators, tabs or semicolons between the columns. Each gives the same
+/// populations table as the plain comma-separated file it was made from.
+#[test]
+fn hand_made_catalogues_in_spreadsheet_dialects_are_read() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("plain.csv"), &power_law_leaves(40, 0.5, 2.2));
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(30, 0.5, 2.0));
+    let plain = std::fs::read_to_string(d.path().join("plain.csv")).unwrap();
+    let dialects: [(&str, String); 4] = [
+        ("bom", format!("\u{feff}{plain}")),
+        ("spaced", plain.replace(',', ", ")),
+        ("tabbed", plain.replace(',', "\t")),
+        ("semicolons", plain.replace("\n", "\r\n").replace(',', ";")),
+    ];
+    let populations = |out: &str| {
+        let p = rows(&d.path().join(out).join("populations.csv"));
+        ["n", "median_mass", "mass_size_slope", "alpha"].map(|k| cell(&p[0], k))
+    };
+    let args = [
+        "compare",
+        "plain.csv",
+        "b.csv",
+        "-o",
+        "cmp_plain",
+        "--resamples",
+        "20",
+    ];
+    let o = cli::cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let want = populations("cmp_plain");
+    assert_eq!(want[0], 40.0);
+    for (name, text) in dialects {
+        let file = format!("{name}.csv");
+        std::fs::write(d.path().join(&file), text).unwrap();
+        let out = format!("cmp_{name}");
+        let args = [
+            "compare",
+            &file,
+            "b.csv",
+            "-o",
+            &out,
+            "--resamples",
+            "20",
+        ];
+        let o = cli::cairn(&args, d.path());
+        assert_eq!(o.code, 0, "{name}: {}", o.stderr);
+        let got = populations(&out);
+        for (g, w) in got.iter().zip(want) {
+            assert!(g == &w || (g.is_nan() && w.is_nan()), "{name}: {got:?} {want:?}");
+        }
+    }
+}
+
+/// A catalogue without the columns compare needs is refused naming exactly the missing ones
+/// and the header as read; a truth table of cairn synth given as a population is told to go
+/// with --truth; a number with a decimal comma is named as such. Nothing is written.
+#[test]
+fn missing_columns_are_named_and_a_truth_table_is_sent_to_truth() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(30, 0.5, 2.0));
+    std::fs::write(
+        d.path().join("nokind.csv"),
+        "mass_excess,radius_pc\n1.0,0.02\n2.0,0.03\n3.0,0.04\n",
+    )
+    .unwrap();
+    let args = ["compare", "nokind.csv", "b.csv", "-o", "c"];
+    let o = cli::cairn(&args, d.path());
+    cli::check_refused(&o, &args, "nokind.csv", "lacks the column 'kind'");
+    assert!(
+        o.stderr.contains("its header reads: mass_excess, radius_pc")
+            && o.stderr.contains("leaf for each core")
+            && !o.stderr.contains("'radius_pc'"),
+        "{}",
+        o.stderr
+    );
+    std::fs::write(
+        d.path().join("renamed.csv"),
+        "kind;mass;radius\nleaf;1.0;0.02\n",
+    )
+    .unwrap();
+    let args = ["compare", "renamed.csv", "b.csv", "-o", "c"];
+    let o = cli::cairn(&args, d.path());
+    cli::check_refused(
+        &o,
+        &args,
+        "renamed.csv",
+        "lacks the columns 'mass_excess' and 'radius_pc' (its header reads: kind, mass, radius)",
+    );
+    std::fs::write(
+        d.path().join("comma.csv"),
+        "kind;mass_excess;radius_pc\nleaf;0,5;0.02\nleaf;1.5;0.03\nleaf;2.5;0.04\n",
+    )
+    .unwrap();
+    let args = ["compare", "comma.csv", "b.csv", "-o", "c"];
+    let o = cli::cairn(&args, d.path());
+    cli::check_refused(&o, &args, "comma.csv", "'0,5'");
+    assert!(o.stderr.contains("decimal point"), "{}", o.stderr);
+    // A truth table that cairn synth writes.
+    let o = cli::cairn(
+        &[
+            "synth", "-o", "s", "--size", "64", "--cores", "3", "--seed", "1", "-q",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let args = ["compare", "b.csv", "s/synth-truth.csv", "-o", "c"];
+    let o = cli::cairn(&args, d.path());
+    cli::check_refused(&o, &args, "synth-truth.csv", "is a truth table");
+    assert!(o.stderr.contains("--truth"), "{}", o.stderr);
+    assert!(!d.path().join("c").exists());
+}
