@@ -1221,6 +1221,71 @@ pub struct SavedRun {
     pub distance_pc: Option<f64>,
 }
 
+/// What identifies a run in its record, with the words that name it: the input map (its
+/// SHA-256, HDU and plane), the thresholds and options, the physical assumptions, the beam and
+/// the common resolution. Timings, threads and the command line differ between two runs that
+/// are otherwise the same run.
+const RUN_IDENTITY: [(&[&str], &str); 7] = [
+    (&["input", "sha256"], "input SHA-256"),
+    (&["input", "hdu"], "input HDU"),
+    (&["input", "plane"], "input plane"),
+    (&["parameters"], "thresholds and options"),
+    (&["physics"], "physical assumptions"),
+    (&["beam"], "beam"),
+    (&["common_resolution"], "common resolution"),
+];
+
+/// Refuses to draw the run in `run_dir` into `out_dir` when `out_dir` holds the record
+/// (`run.json`) of another run: the figures would sit beside (or, with `--force`, replace)
+/// that run's own and no longer match its catalogue. The run's own folder, a copy of it, and a
+/// folder without a run record are allowed; so is any folder when the run's own record cannot
+/// be read (reading the run then says why).
+pub fn check_output_folder(run_dir: &Path, out_dir: &Path) -> Result<()> {
+    let name = crate::segment::names::RUN;
+    let there = out_dir.join(name);
+    if !there.exists() {
+        return Ok(());
+    }
+    let same_folder = match (run_dir.canonicalize(), out_dir.canonicalize()) {
+        (Ok(a), Ok(b)) => a == b,
+        _ => false,
+    };
+    if same_folder {
+        return Ok(());
+    }
+    let record = |p: &Path| -> Option<serde_json::Value> {
+        serde_json::from_str(&std::fs::read_to_string(p).ok()?).ok()
+    };
+    let differs = match (record(&run_dir.join(name)), record(&there)) {
+        (None, _) => None,
+        (Some(a), Some(b)) => RUN_IDENTITY.iter().find_map(|(keys, what)| {
+            let get = |v: &serde_json::Value| {
+                keys.iter()
+                    .try_fold(v, |v, k| v.get(*k))
+                    .cloned()
+                    .unwrap_or(serde_json::Value::Null)
+            };
+            (get(&a) != get(&b)).then(|| {
+                format!(
+                    "differs from {} in its {what}",
+                    run_dir.join(name).display()
+                )
+            })
+        }),
+        (Some(_), None) => Some("cannot be read as a run record".to_string()),
+    };
+    let Some(differs) = differs else {
+        return Ok(());
+    };
+    Err(Error::output(
+        out_dir,
+        format!(
+            "holds another run (its {name} {differs}), and this run's figures there would not match that run's catalogue; give -o a folder of its own, or draw that run with cairn draw {}.",
+            out_dir.display()
+        ),
+    ))
+}
+
 /// Reads a run folder: run.json, labels.fits, hierarchy.json and structures.csv; the map from
 /// `map_override` or the path recorded in run.json.
 pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {

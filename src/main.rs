@@ -2714,6 +2714,9 @@ fn run_compare(a: &CompareArgs, quiet: bool) -> Result<()> {
 
 fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     use cairn::segment::names;
+    // A folder of another run is refused before the work.
+    let dir = a.output.clone().unwrap_or_else(|| a.run.clone());
+    cairn::draw::check_output_folder(&a.run, &dir)?;
     // Large maps take a while to read and draw: a bar through the three stages.
     let bar = progress_bar(quiet, cairn::draw::run_pixels(&a.run).unwrap_or(0));
     let stage = |name: &str, done: u64| {
@@ -2738,7 +2741,6 @@ fn run_draw(a: &DrawArgs, quiet: bool) -> Result<()> {
     // drew, without --force) are refused at once rather than after the work. The tree is drawn
     // whenever the run has structures.
     let with_tree = !run.structures.is_empty();
-    let dir = a.output.clone().unwrap_or_else(|| a.run.clone());
     let every: Vec<String> = names::FIGURES.map(String::from).to_vec();
     let list: Vec<String> = every
         .iter()

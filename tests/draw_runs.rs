@@ -903,6 +903,63 @@ fn drawing_again_into_the_run_folder_needs_force() {
     );
 }
 
+/// `draw RUN -o OTHER`, where OTHER is the folder of another run (another map, or the same map
+/// with other thresholds), is refused with or without --force, naming what differs and leaving
+/// OTHER's figures as they were; a copy of the run's own folder and the run folder itself
+/// (given as -o) are drawn into.
+#[test]
+fn drawing_into_another_runs_folder_is_refused() {
+    let d = tempfile::tempdir().unwrap();
+    write_map(d.path(), "map.fits", 60, 40);
+    write_map(d.path(), "wide.fits", 70, 40);
+    for (map, run, extra) in [
+        ("map.fits", "a", None),
+        ("wide.fits", "b", None),
+        ("map.fits", "c", Some("--min-area")),
+    ] {
+        let mut args = vec!["segment", map, "-o", run, "-q"];
+        if let Some(opt) = extra {
+            args.extend_from_slice(&[opt, "20"]);
+        }
+        let o = cairn(&args, d.path());
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    for (other, says) in [
+        ("b", "input SHA-256"),
+        ("c", "thresholds and options"),
+    ] {
+        let before = std::fs::read(d.path().join(other).join("overlay.png")).unwrap();
+        let listing = cli::listing(&d.path().join(other));
+        for force in [false, true] {
+            let mut args = vec!["draw", "a", "-o", other, "--stretch", "sqrt"];
+            if force {
+                args.push("--force");
+            }
+            let o = cairn(&args, d.path());
+            cli::check_refused(&o, &args, other, "holds another run");
+            assert!(
+                o.stderr.contains(says) && o.stderr.contains("-o a folder of its own"),
+                "{}",
+                o.stderr
+            );
+            assert_eq!(cli::listing(&d.path().join(other)), listing);
+            assert_eq!(
+                std::fs::read(d.path().join(other).join("overlay.png")).unwrap(),
+                before,
+                "{other}'s figure untouched"
+            );
+        }
+    }
+    let copy = copy_run(&d.path().join("a"), d.path(), "a-copy");
+    for out in [copy.to_str().unwrap(), "a", "./a/"] {
+        let o = cairn(
+            &["draw", "a", "-o", out, "--stretch", "sqrt", "--force", "-q"],
+            d.path(),
+        );
+        assert_eq!(o.code, 0, "{out}: {}", o.stderr);
+    }
+}
+
 /// Sky coordinates typed sexagesimally, as `inspect` prints them, mean the same as in degrees
 /// (an hour of right ascension is 15 degrees): a synthetic map centred at 10h11m15s,-31d37m30s
 /// is the one centred at 152.8125,-31.625, byte for byte, and a region drawn around a
