@@ -80,6 +80,13 @@ pub fn map_note(name: &str, sha256: &str) -> String {
 
 /// Reads a truth table written by `cairn synth`.
 pub fn read_truth(path: &Path) -> Result<Truth> {
+    if let Some(e) = crate::error::not_text(
+        path,
+        "a truth table (a CSV text file)",
+        "give --truth the NAME-truth.csv that cairn synth wrote",
+    ) {
+        return Err(e);
+    }
     let text = std::fs::read_to_string(path).map_err(|e| {
         Error::input(
             path,

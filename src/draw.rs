@@ -1289,6 +1289,23 @@ pub fn check_output_folder(run_dir: &Path, out_dir: &Path) -> Result<()> {
 /// Reads a run folder: run.json, labels.fits, hierarchy.json and structures.csv; the map from
 /// `map_override` or the path recorded in run.json.
 pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
+    if !dir.exists() {
+        return Err(Error::input(
+            dir,
+            "no such folder; give the folder of a finished `cairn segment` run.",
+        ));
+    }
+    if !dir.is_dir() {
+        let what = if std::fs::read(dir).is_ok_and(|b| b.starts_with(b"SIMPLE  =")) {
+            "is a FITS file, not a run folder"
+        } else {
+            "is a file, not a run folder"
+        };
+        return Err(Error::input(
+            dir,
+            format!("{what}; give the folder cairn segment wrote (cairn segment MAP -o FOLDER makes one)."),
+        ));
+    }
     let read = |name: &str| -> Result<String> {
         let p = dir.join(name);
         std::fs::read_to_string(&p).map_err(|_| {

@@ -81,3 +81,57 @@ impl std::error::Error for Error {}
 
 /// Result with cairn's error.
 pub type Result<T> = std::result::Result<T, Error>;
+
+/// The refusal of `path`, given where a text file was expected (`expected`: "a JSON run
+/// record", say), when it is not text: a FITS file (its first card `SIMPLE`), a
+/// gzip-compressed file, or other binary data (a NUL byte or bytes that are not UTF-8 in its
+/// first block); `fix` ends the sentence. `None` when the file starts as text or cannot be
+/// read (its reader then says why). Only the first 2880 bytes are read, so a large map given
+/// by mistake costs nothing.
+pub fn not_text(path: &Path, expected: &str, fix: &str) -> Option<Error> {
+    use std::io::Read as _;
+    let mut head = Vec::new();
+    std::fs::File::open(path)
+        .ok()?
+        .take(2880)
+        .read_to_end(&mut head)
+        .ok()?;
+    let what = if head.starts_with(b"SIMPLE") {
+        "a FITS file"
+    } else if head.starts_with(&[0x1f, 0x8b]) {
+        "a gzip-compressed file"
+    } else if head.contains(&0)
+        || std::str::from_utf8(&head).is_err_and(|e| e.error_len().is_some())
+    {
+        "binary data, not text"
+    } else {
+        return None;
+    };
+    Some(Error::input(
+        path,
+        format!("is {what}, not {expected}; {fix}."),
+    ))
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn binary_files_given_for_text_are_named() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("x");
+        let says = |bytes: &[u8]| {
+            std::fs::write(&p, bytes).unwrap();
+            super::not_text(&p, "a JSON file", "give one").map(|e| e.message)
+        };
+        let fits = says(b"SIMPLE  =                    T").unwrap();
+        assert!(fits.contains("is a FITS file, not a JSON file; give one."), "{fits}");
+        assert!(says(&[0x1f, 0x8b, 8, 0]).unwrap().contains("gzip"));
+        assert!(says(&[b'{', 0xff, 0xfe]).unwrap().contains("binary data"));
+        assert!(says("{\"a\": \"é\"}".as_bytes()).is_none());
+        // A character cut at the end of the first block is still text.
+        let mut long = vec![b' '; 2879];
+        long.extend_from_slice("é".as_bytes());
+        assert!(says(&long).is_none());
+        assert!(super::not_text(&d.path().join("none"), "x", "y").is_none());
+    }
+}

@@ -1250,6 +1250,13 @@ fn core_profile(text: Option<&str>) -> Result<synth::Profile> {
 fn synth_spec(a: &SynthArgs, notes: &mut Vec<String>) -> Result<synth::SynthSpec> {
     let mut spec = match &a.spec {
         Some(p) => {
+            if let Some(e) = cairn::error::not_text(
+                p,
+                "a synth specification (a JSON text file)",
+                "give --spec the NAME-spec.json that cairn synth wrote, or one written in its form",
+            ) {
+                return Err(e);
+            }
             let text = std::fs::read_to_string(p)
                 .map_err(|e| Error::input(p, format!("cannot be read ({e}).")))?;
             synth::read_spec(&text).map_err(|e| Error::input(p, format!("{}.", e.0)))?
@@ -2151,6 +2158,18 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
                 a.prominence.is_none(),
                 a.min_area.is_none(),
             ];
+            let record = if r.is_dir() {
+                r.join(cairn::segment::names::RUN)
+            } else {
+                r.to_path_buf()
+            };
+            if let Some(e) = cairn::error::not_text(
+                &record,
+                "a run record (a JSON text file)",
+                "give --thresholds-from a run folder of segment or its run.json",
+            ) {
+                return Err(e);
+            }
             segment::thresholds_from_run(r, &m, taken)
         })
         .transpose()?;
@@ -2883,6 +2902,18 @@ fn main() -> ExitCode {
             let mut lines = text.lines();
             let head = lines.next().unwrap_or("").trim();
             let mut first = head.strip_prefix("error: ").unwrap_or(head).to_string();
+            // The standard library's words for a number it could not read say what was wrong
+            // with the text, not what was expected.
+            for (said, meant) in [
+                ("invalid digit found in string", "expected a whole number, such as 0 or 12"),
+                ("cannot parse integer from empty string", "expected a whole number, such as 0 or 12"),
+                ("number too large to fit in target type", "the number is too large"),
+                ("number too small to fit in target type", "the number is too small"),
+                ("invalid float literal", "expected a number, such as 2.5"),
+                ("cannot parse float from empty string", "expected a number, such as 2.5"),
+            ] {
+                first = first.replace(said, meant);
+            }
             let more: Vec<&str> = lines
                 .skip_while(|l| l.trim().is_empty())
                 .take_while(|l| l.starts_with("  "))

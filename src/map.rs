@@ -112,6 +112,18 @@ impl Beam {
         } else {
             0.0
         };
+        // A width that is not positive is named as it was typed.
+        for (width, typed, axis) in [
+            (major, parts[0], "major axis"),
+            (minor, parts.get(1).copied().unwrap_or(parts[0]), "minor axis"),
+        ] {
+            if !(width > 0.0 && width.is_finite()) {
+                return Err(format!(
+                    "--beam '{text}': the {axis}'s FWHM {} is not a positive width; give the FWHM, such as 18.2arcsec.",
+                    typed.trim()
+                ));
+            }
+        }
         let beam = Beam::from_axes(major, minor, pa);
         beam.check()
             .map_err(|e| format!("--beam '{text}': {e}; give the FWHM, such as 18.2arcsec."))?;
@@ -370,6 +382,31 @@ fn check_signature(path: &Path) -> Result<(u64, bool)> {
     let n = read_up_to(&mut f, &mut first)
         .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?;
     if n >= 2 && first.starts_with(&[0x1f, 0x8b]) {
+        // What it expands to must begin as a FITS file does.
+        let mut head = [0u8; 80];
+        let mut gz = flate2::read::MultiGzDecoder::new(std::io::BufReader::new(
+            std::fs::File::open(path)
+                .map_err(|e| Error::input(path, format!("cannot be read ({e}).")))?,
+        ));
+        let mut got = 0;
+        while got < head.len() {
+            match gz.read(&mut head[got..]) {
+                Ok(0) | Err(_) => break,
+                Ok(k) => got += k,
+            }
+        }
+        if got == 0 {
+            return Err(Error::input(
+                path,
+                "is gzip-compressed but damaged or cut short (nothing can be decompressed from it); re-export or re-download it.",
+            ));
+        }
+        if !head[..got].starts_with(b"SIMPLE  =") {
+            return Err(Error::input(
+                path,
+                "is gzip-compressed but not a compressed FITS file (what it expands to does not begin with the card SIMPLE = T); give a FITS image.",
+            ));
+        }
         return Ok((meta.len(), true));
     }
     if n < 80 || !first.starts_with(b"SIMPLE  =") {
@@ -379,6 +416,24 @@ fn check_signature(path: &Path) -> Result<(u64, bool)> {
         ));
     }
     Ok((meta.len(), false))
+}
+
+/// Whether the gzip-compressed file `path` is cut short or damaged: its whole stream is
+/// decompressed (to nowhere) and any failure counts. Called only once reading it has failed.
+fn gzip_damaged(path: &Path) -> bool {
+    let Ok(f) = std::fs::File::open(path) else {
+        return false;
+    };
+    let mut gz = flate2::read::MultiGzDecoder::new(std::io::BufReader::new(f));
+    std::io::copy(&mut gz, &mut std::io::sink()).is_err()
+}
+
+/// The refusal of a gzip-compressed `path` whose stream is cut short or damaged.
+fn gzip_truncated(path: &Path) -> Error {
+    Error::input(
+        path,
+        "is truncated or damaged: its gzip-compressed stream ends before the map does; re-export or re-download it.",
+    )
 }
 
 fn read_up_to(f: &mut std::fs::File, buf: &mut [u8]) -> std::io::Result<usize> {
@@ -403,6 +458,9 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     // SAFETY: cpath is a valid C string; ptr receives a new handle on success.
     unsafe { sys::ffdkopn(&mut ptr, cpath.as_ptr(), 0, &mut status) };
     if status != 0 || ptr.is_null() {
+        if gzipped && gzip_damaged(path) {
+            return Err(gzip_truncated(path));
+        }
         // CFITSIO decompresses a gzip-compressed file in memory as it opens it, so a stream
         // that expands beyond the memory the process may take fails here as a damaged one
         // does, with the same status.
@@ -495,6 +553,18 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
     buf.resize(npix, 0.0);
     status = read_pixels(&fits, &firstpix, &mut buf);
     if status != 0 {
+        if gzipped && gzip_damaged(path) {
+            return Err(gzip_truncated(path));
+        }
+        // CFITSIO's END_OF_FILE: the data end before the header's promise.
+        if status == 107 {
+            return Err(Error::input(
+                path,
+                format!(
+                    "is truncated: its data end before the {promised} bytes its header promises for HDU {index}; re-export or re-download it."
+                ),
+            ));
+        }
         return Err(Error::input(
             path,
             format!(
@@ -630,10 +700,22 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                 // '1e21 cm-2', or an unfamiliar spelling): refused rather than measured
                 // without masses, which would hide the masses the map holds.
                 (None, Some(_)) if looks_convertible(&text) => {
-                    let why = format!(
+                    let per = [format!("{text}/pixel"), format!("{text}/beam")];
+                    let why = if per
+                        .iter()
+                        .all(|u| units::parse_pixel_unit(u, opts.band).is_some())
+                    {
+                        // A flux density without the area it is per (a pixel or a beam).
+                        format!(
+                            "BUNIT '{text}', a flux density without the area it is per; give --unit {} if each pixel holds the flux density falling on it, or --unit {} if the map is per beam",
+                            per[0], per[1]
+                        )
+                    } else {
+                        format!(
                         "BUNIT '{text}', which looks like a column density, extinction or brightness that cairn cannot read (a scale factor or an unfamiliar spelling); give --unit with one of {} (dividing out a scale factor first), or --unit other:UNIT to measure only the map's structure",
                         units::CONVERTED_UNITS
-                    );
+                    )
+                    };
                     if opts.require_unit {
                         return Err(Error::input(path, format!("has {why}.")));
                     }

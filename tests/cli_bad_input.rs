@@ -128,24 +128,36 @@ fn truncated_files() {
         "cut_header.fits",
         "truncated",
     );
-    // A gzip-compressed file cut in half: CFITSIO decompresses it in memory as it opens it,
-    // and fails there as it does for a stream too large for the memory allowed, so the
-    // sentence names both causes and the remedy.
+    // A gzip-compressed file cut in half, and one cut inside its data (CFITSIO opens the part
+    // that decompresses and fails reading the pixels): truncated, as a plain file is, with
+    // no words of CFITSIO's.
     let gz = std::fs::read(
         std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/fits/gzipped.fits.gz"),
     )
     .unwrap();
     s.write("cut.fits.gz", &gz[..gz.len() / 2]);
+    let mut enc = flate2::write::GzEncoder::new(Vec::new(), flate2::Compression::fast());
+    std::io::Write::write_all(&mut enc, &full).unwrap();
+    let whole = enc.finish().unwrap();
+    s.write("cut_data.fits.gz", &whole[..whole.len() - 200]);
+    for name in ["cut.fits.gz", "cut_data.fits.gz"] {
+        assert_refused(&s, &["inspect", name], name, "is truncated");
+        let o = cairn(&["inspect", name], s.dir.path());
+        assert!(
+            o.stderr.contains("re-download it") && !o.stderr.contains("CFITSIO"),
+            "{}",
+            o.stderr
+        );
+    }
+    // A gzip-compressed file that is not FITS inside.
+    let mut enc = flate2::write::GzEncoder::new(Vec::new(), flate2::Compression::fast());
+    std::io::Write::write_all(&mut enc, b"observing notes, not an image\n").unwrap();
+    s.write("notes.fits.gz", &enc.finish().unwrap());
     assert_refused(
         &s,
-        &["inspect", "cut.fits.gz"],
-        "cut.fits.gz",
-        "is gzip-compressed and could not be opened",
-    );
-    let o = cairn(&["inspect", "cut.fits.gz"], s.dir.path());
-    assert!(
-        o.stderr.contains("decompress it (gunzip)"),
-        "the remedy is named"
+        &["inspect", "notes.fits.gz"],
+        "notes.fits.gz",
+        "is gzip-compressed but not a compressed FITS file",
     );
 }
 
@@ -784,5 +796,63 @@ fn a_cube_with_its_sky_axes_last_is_refused_by_name() {
         &["inspect", "freqfirst.fits"],
         "freqfirst.fits",
         "has a sky axis beyond the first two (CTYPE3 = 'DEC--TAN') and CTYPE1 = 'FREQ' among them",
+    );
+}
+
+/// Messages that once repeated what the parser or the reader said now say what was expected:
+/// a run folder that is missing or a file, a FITS map given where a JSON or CSV text file is
+/// read, a plane that is not a whole number, a beam width that is not positive (named as
+/// typed), and a BUNIT of a flux density without its area (the two units meant are named).
+#[test]
+fn refusals_say_what_was_expected() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("good.fits", &fits_bytes(&cards, &good_pixels(256)));
+    assert_refused(&s, &["draw", "nonexist"], "nonexist", "no such folder");
+    assert_refused(
+        &s,
+        &["draw", "good.fits"],
+        "good.fits",
+        "is a FITS file, not a run folder",
+    );
+    for (args, says) in [
+        (
+            &["synth", "-o", "out", "--spec", "good.fits"][..],
+            "not a synth specification (a JSON text file)",
+        ),
+        (
+            &["segment", "good.fits", "-o", "out", "--thresholds-from", "good.fits"][..],
+            "not a run record (a JSON text file)",
+        ),
+        (
+            &["compare", "run", "--truth", "good.fits", "-o", "out"][..],
+            "not a truth table (a CSV text file)",
+        ),
+    ] {
+        assert_refused(&s, args, "good.fits: is a FITS file", says);
+    }
+    assert_refused(
+        &s,
+        &["segment", "good.fits", "-o", "out", "--plane", "abc"],
+        "--plane",
+        "expected a whole number",
+    );
+    assert_refused(
+        &s,
+        &["segment", "good.fits", "-o", "out", "--beam", "-5arcsec"],
+        "--beam",
+        "FWHM -5arcsec is not a positive width",
+    );
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'Jy'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("jy.fits", &fits_bytes(&cards, &good_pixels(256)));
+    let args = ["segment", "jy.fits", "-o", "out", "--distance", "300pc"];
+    assert_refused(&s, &args, "jy.fits", "a flux density without the area it is per");
+    let o = cairn(&args, s.dir.path());
+    assert!(
+        o.stderr.contains("--unit Jy/pixel") && o.stderr.contains("--unit Jy/beam"),
+        "{}",
+        o.stderr
     );
 }
