@@ -139,6 +139,12 @@ pub fn inject(map: &mut Map, ctx: &Context, opts: &InjectOptions) -> Result<Inje
             "injecting cores of known mass needs the distance: give --distance, such as 300pc.",
         ));
     }
+    if !map.data.iter().any(|v| v.is_finite()) {
+        return Err(cannot(
+            map,
+            "has no valid pixel (every pixel is NaN, BLANK or infinite), so no core can be placed on it; check that this is the right HDU (--hdu) or plane (--plane), or give a map with data.",
+        ));
+    }
     let (nx, ny) = (map.nx(), map.ny());
     let (cx, cy) = ((nx as f64 - 1.0) / 2.0, (ny as f64 - 1.0) / 2.0);
     let (sx, sy) = wcs.pixel_scale(cx, cy);

@@ -2213,3 +2213,19 @@ fn injection_into_a_zero_filled_border_keeps_off_it() {
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(o.stderr.contains("are exactly 0"), "{}", o.stderr);
 }
+
+/// A map whose every pixel is missing is refused as having no valid pixel, not as lacking room
+/// for the cores, and nothing is written.
+#[test]
+fn a_map_without_valid_pixels_is_said_to_have_none() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    base_map(dir);
+    masked_base_map(dir, "empty.fits", |_| false);
+    let mut args = vec!["synth", "--into", "empty.fits", "-o", "out"];
+    args.extend_from_slice(&INJECT);
+    let o = cairn(&args, dir);
+    check_refused(&o, &args, "empty.fits", "has no valid pixel");
+    assert!(!o.stderr.contains("room for"), "{}", o.stderr);
+    assert!(!dir.join("out").exists());
+}
