@@ -46,11 +46,30 @@ impl Error {
         }
     }
 
-    /// A problem with an output path.
+    /// A problem with an output path. The temporary file of an output (`.NAME.partial-PID-K`,
+    /// or a FITS writer's `..NAME.partial-PID-K.part-PID`) is named as the output it was to
+    /// become, and a full disk is said as such with its remedy.
     pub fn output(path: &Path, message: impl AsRef<str>) -> Self {
+        let path = final_output(path);
+        let message = message.as_ref();
+        let message = match ["No space left on device", "Disk quota exceeded"]
+            .into_iter()
+            .find(|t| message.contains(t))
+        {
+            Some(said) => {
+                let dir = match path.parent() {
+                    Some(d) if !d.as_os_str().is_empty() => d.display().to_string(),
+                    _ => ".".to_string(),
+                };
+                format!(
+                    "cannot be written, as there is no room left for it in {dir} ({said}); free some space there or give another -o folder."
+                )
+            }
+            None => message.to_string(),
+        };
         Error {
             kind: ErrorKind::Output,
-            message: format!("{}: {}", path.display(), message.as_ref()),
+            message: format!("{}: {message}", path.display()),
         }
     }
 
@@ -81,6 +100,22 @@ impl std::error::Error for Error {}
 
 /// Result with cairn's error.
 pub type Result<T> = std::result::Result<T, Error>;
+
+/// The output a temporary file `path` was to become (`dir/.NAME.partial-PID-K` or
+/// `dir/..NAME.partial-PID-K.part-PID` is `dir/NAME`); any other path as it is.
+fn final_output(path: &Path) -> std::path::PathBuf {
+    let Some(file) = path.file_name().and_then(|n| n.to_str()) else {
+        return path.to_path_buf();
+    };
+    let Some(at) = file.rfind(".partial-").filter(|_| file.starts_with('.')) else {
+        return path.to_path_buf();
+    };
+    let name = file[..at].trim_start_matches('.');
+    if name.is_empty() {
+        return path.to_path_buf();
+    }
+    path.with_file_name(name)
+}
 
 /// The refusal of `path`, given where a text file was expected (`expected`: "a JSON run
 /// record", say), when it is not text: a FITS file (its first card `SIMPLE`), a
@@ -115,6 +150,22 @@ pub fn not_text(path: &Path, expected: &str, fix: &str) -> Option<Error> {
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn a_full_disk_names_the_output_and_the_folder() {
+        let p = std::path::Path::new("run/.overlay.pdf.partial-5500-9");
+        let e = super::Error::output(p, "cannot be written (No space left on device (os error 28)).");
+        assert_eq!(
+            e.message,
+            "run/overlay.pdf: cannot be written, as there is no room left for it in run (No space left on device); free some space there or give another -o folder."
+        );
+        assert_eq!(e.exit_code(), 2);
+        let p = std::path::Path::new("out/..labels.fits.partial-7-2.part-7");
+        let e = super::Error::output(p, "cannot be written (Permission denied).");
+        assert_eq!(e.message, "out/labels.fits: cannot be written (Permission denied).");
+        let p = std::path::Path::new("out/structures.csv");
+        assert_eq!(super::Error::output(p, "x.").message, "out/structures.csv: x.");
+    }
+
     #[test]
     fn binary_files_given_for_text_are_named() {
         let d = tempfile::tempdir().unwrap();
