@@ -1537,7 +1537,7 @@ fn plan_read(
         _ => Err(Error::input(
             path,
             format!(
-                "has {} axes longer than 1 beyond the first two (lengths {:?}); cairn reads 2-D maps or one plane of a 3-D cube.",
+                "has {} axes longer than 1 beyond the first two (lengths {:?}), and --plane chooses along one only; cut out one 2-D plane first (with astropy or a FITS tool, keeping the header's celestial axes) and give that file.",
                 long.len(),
                 &axes[2..]
             ),

@@ -856,3 +856,35 @@ fn refusals_say_what_was_expected() {
         o.stderr
     );
 }
+
+/// A map with two extra axes longer than 1 (2 x 2 planes) cannot be read by --plane, which
+/// chooses along one: the refusal says so and to cut out one plane first.
+#[test]
+fn two_long_extra_axes_are_refused_with_the_way_out() {
+    let s = Scratch::new();
+    let mut cards = vec![
+        "SIMPLE  =                    T".to_string(),
+        "BITPIX  =                  -32".to_string(),
+        "NAXIS   =                    4".to_string(),
+        "NAXIS1  =                   16".to_string(),
+        "NAXIS2  =                   16".to_string(),
+        "NAXIS3  =                    2".to_string(),
+        "NAXIS4  =                    2".to_string(),
+        "BUNIT   = 'MJy/sr'".to_string(),
+    ];
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("hyper.fits", &fits_bytes(&cards, &good_pixels(1024)));
+    for args in [
+        &["inspect", "hyper.fits"][..],
+        &["inspect", "hyper.fits", "--plane", "1"][..],
+    ] {
+        assert_refused(&s, args, "hyper.fits", "2 axes longer than 1");
+        let o = cairn(args, s.dir.path());
+        assert!(
+            o.stderr.contains("--plane chooses along one only")
+                && o.stderr.contains("cut out one 2-D plane first"),
+            "{}",
+            o.stderr
+        );
+    }
+}
