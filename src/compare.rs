@@ -216,7 +216,13 @@ fn too_few_leaves(
 
 /// The columns of a truth table written by `cairn synth` that a catalogue does not have (see
 /// `crate::synth`'s truth table).
-const TRUTH_COLUMNS: [&str; 5] = ["mass_msun", "lon_deg", "lat_deg", "profile", "peak_column_cm2"];
+const TRUTH_COLUMNS: [&str; 5] = [
+    "mass_msun",
+    "lon_deg",
+    "lat_deg",
+    "profile",
+    "peak_column_cm2",
+];
 
 /// The refusal of the catalogue `csv` (text `catalogue`, column names `header`) that lacks
 /// some of the columns compare needs (`kind`, `mass_column`, `radius_pc`): it names exactly the
@@ -254,7 +260,13 @@ fn missing_columns(csv: &Path, catalogue: &str, header: &[String], mass_column: 
     let mut read = header
         .iter()
         .take(SHOWN)
-        .map(|h| if h.is_empty() { "(empty)".to_string() } else { h.clone() })
+        .map(|h| {
+            if h.is_empty() {
+                "(empty)".to_string()
+            } else {
+                h.clone()
+            }
+        })
         .collect::<Vec<_>>()
         .join(", ");
     if header.len() > SHOWN {

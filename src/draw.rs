@@ -1303,7 +1303,9 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         };
         return Err(Error::input(
             dir,
-            format!("{what}; give the folder cairn segment wrote (cairn segment MAP -o FOLDER makes one)."),
+            format!(
+                "{what}; give the folder cairn segment wrote (cairn segment MAP -o FOLDER makes one)."
+            ),
         ));
     }
     let read = |name: &str| -> Result<String> {

@@ -153,7 +153,10 @@ mod tests {
     #[test]
     fn a_full_disk_names_the_output_and_the_folder() {
         let p = std::path::Path::new("run/.overlay.pdf.partial-5500-9");
-        let e = super::Error::output(p, "cannot be written (No space left on device (os error 28)).");
+        let e = super::Error::output(
+            p,
+            "cannot be written (No space left on device (os error 28)).",
+        );
         assert_eq!(
             e.message,
             "run/overlay.pdf: cannot be written, as there is no room left for it in run (No space left on device); free some space there or give another -o folder."
@@ -161,9 +164,15 @@ mod tests {
         assert_eq!(e.exit_code(), 2);
         let p = std::path::Path::new("out/..labels.fits.partial-7-2.part-7");
         let e = super::Error::output(p, "cannot be written (Permission denied).");
-        assert_eq!(e.message, "out/labels.fits: cannot be written (Permission denied).");
+        assert_eq!(
+            e.message,
+            "out/labels.fits: cannot be written (Permission denied)."
+        );
         let p = std::path::Path::new("out/structures.csv");
-        assert_eq!(super::Error::output(p, "x.").message, "out/structures.csv: x.");
+        assert_eq!(
+            super::Error::output(p, "x.").message,
+            "out/structures.csv: x."
+        );
     }
 
     #[test]
@@ -175,7 +184,10 @@ mod tests {
             super::not_text(&p, "a JSON file", "give one").map(|e| e.message)
         };
         let fits = says(b"SIMPLE  =                    T").unwrap();
-        assert!(fits.contains("is a FITS file, not a JSON file; give one."), "{fits}");
+        assert!(
+            fits.contains("is a FITS file, not a JSON file; give one."),
+            "{fits}"
+        );
         assert!(says(&[0x1f, 0x8b, 8, 0]).unwrap().contains("gzip"));
         assert!(says(&[b'{', 0xff, 0xfe]).unwrap().contains("binary data"));
         assert!(says("{\"a\": \"é\"}".as_bytes()).is_none());

@@ -2905,12 +2905,27 @@ fn main() -> ExitCode {
             // The standard library's words for a number it could not read say what was wrong
             // with the text, not what was expected.
             for (said, meant) in [
-                ("invalid digit found in string", "expected a whole number, such as 0 or 12"),
-                ("cannot parse integer from empty string", "expected a whole number, such as 0 or 12"),
-                ("number too large to fit in target type", "the number is too large"),
-                ("number too small to fit in target type", "the number is too small"),
+                (
+                    "invalid digit found in string",
+                    "expected a whole number, such as 0 or 12",
+                ),
+                (
+                    "cannot parse integer from empty string",
+                    "expected a whole number, such as 0 or 12",
+                ),
+                (
+                    "number too large to fit in target type",
+                    "the number is too large",
+                ),
+                (
+                    "number too small to fit in target type",
+                    "the number is too small",
+                ),
                 ("invalid float literal", "expected a number, such as 2.5"),
-                ("cannot parse float from empty string", "expected a number, such as 2.5"),
+                (
+                    "cannot parse float from empty string",
+                    "expected a number, such as 2.5",
+                ),
             ] {
                 first = first.replace(said, meant);
             }

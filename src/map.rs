@@ -115,7 +115,11 @@ impl Beam {
         // A width that is not positive is named as it was typed.
         for (width, typed, axis) in [
             (major, parts[0], "major axis"),
-            (minor, parts.get(1).copied().unwrap_or(parts[0]), "minor axis"),
+            (
+                minor,
+                parts.get(1).copied().unwrap_or(parts[0]),
+                "minor axis",
+            ),
         ] {
             if !(width > 0.0 && width.is_finite()) {
                 return Err(format!(
@@ -712,9 +716,9 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Map> {
                         )
                     } else {
                         format!(
-                        "BUNIT '{text}', which looks like a column density, extinction or brightness that cairn cannot read (a scale factor or an unfamiliar spelling); give --unit with one of {} (dividing out a scale factor first), or --unit other:UNIT to measure only the map's structure",
-                        units::CONVERTED_UNITS
-                    )
+                            "BUNIT '{text}', which looks like a column density, extinction or brightness that cairn cannot read (a scale factor or an unfamiliar spelling); give --unit with one of {} (dividing out a scale factor first), or --unit other:UNIT to measure only the map's structure",
+                            units::CONVERTED_UNITS
+                        )
                     };
                     if opts.require_unit {
                         return Err(Error::input(path, format!("has {why}.")));

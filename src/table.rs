@@ -1269,7 +1269,11 @@ mod tests {
             "# note, with a comma\nkind;mass_excess;radius_pc\r\nleaf; 1.5;0.02\r\n",
             "\u{feff}\"kind\";\"mass_excess\";\"radius_pc\"\nleaf;1.5;0.02\n",
         ] {
-            assert_eq!(super::read_catalogue_csv(p, text).unwrap(), want, "{text:?}");
+            assert_eq!(
+                super::read_catalogue_csv(p, text).unwrap(),
+                want,
+                "{text:?}"
+            );
         }
         // A comma inside quotes does not make a header comma-separated.
         assert_eq!(super::csv_separator("\"a,b\";c;d"), ';');

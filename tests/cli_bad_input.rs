@@ -822,7 +822,14 @@ fn refusals_say_what_was_expected() {
             "not a synth specification (a JSON text file)",
         ),
         (
-            &["segment", "good.fits", "-o", "out", "--thresholds-from", "good.fits"][..],
+            &[
+                "segment",
+                "good.fits",
+                "-o",
+                "out",
+                "--thresholds-from",
+                "good.fits",
+            ][..],
             "not a run record (a JSON text file)",
         ),
         (
@@ -848,7 +855,12 @@ fn refusals_say_what_was_expected() {
     cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
     s.write("jy.fits", &fits_bytes(&cards, &good_pixels(256)));
     let args = ["segment", "jy.fits", "-o", "out", "--distance", "300pc"];
-    assert_refused(&s, &args, "jy.fits", "a flux density without the area it is per");
+    assert_refused(
+        &s,
+        &args,
+        "jy.fits",
+        "a flux density without the area it is per",
+    );
     let o = cairn(&args, s.dir.path());
     assert!(
         o.stderr.contains("--unit Jy/pixel") && o.stderr.contains("--unit Jy/beam"),

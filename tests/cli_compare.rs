@@ -1578,20 +1578,15 @@ fn hand_made_catalogues_in_spreadsheet_dialects_are_read() {
         let file = format!("{name}.csv");
         std::fs::write(d.path().join(&file), text).unwrap();
         let out = format!("cmp_{name}");
-        let args = [
-            "compare",
-            &file,
-            "b.csv",
-            "-o",
-            &out,
-            "--resamples",
-            "20",
-        ];
+        let args = ["compare", &file, "b.csv", "-o", &out, "--resamples", "20"];
         let o = cli::cairn(&args, d.path());
         assert_eq!(o.code, 0, "{name}: {}", o.stderr);
         let got = populations(&out);
         for (g, w) in got.iter().zip(want) {
-            assert!(g == &w || (g.is_nan() && w.is_nan()), "{name}: {got:?} {want:?}");
+            assert!(
+                g == &w || (g.is_nan() && w.is_nan()),
+                "{name}: {got:?} {want:?}"
+            );
         }
     }
 }
@@ -1612,7 +1607,8 @@ fn missing_columns_are_named_and_a_truth_table_is_sent_to_truth() {
     let o = cli::cairn(&args, d.path());
     cli::check_refused(&o, &args, "nokind.csv", "lacks the column 'kind'");
     assert!(
-        o.stderr.contains("its header reads: mass_excess, radius_pc")
+        o.stderr
+            .contains("its header reads: mass_excess, radius_pc")
             && o.stderr.contains("leaf for each core")
             && !o.stderr.contains("'radius_pc'"),
         "{}",

@@ -924,10 +924,7 @@ fn drawing_into_another_runs_folder_is_refused() {
         let o = cairn(&args, d.path());
         assert_eq!(o.code, 0, "{}", o.stderr);
     }
-    for (other, says) in [
-        ("b", "input SHA-256"),
-        ("c", "thresholds and options"),
-    ] {
+    for (other, says) in [("b", "input SHA-256"), ("c", "thresholds and options")] {
         let before = std::fs::read(d.path().join(other).join("overlay.png")).unwrap();
         let listing = cli::listing(&d.path().join(other));
         for force in [false, true] {
