@@ -53,9 +53,9 @@ pub use mass_function::{
     mass_function,
 };
 pub use powerlaw::{
-    Bootstrap, NoTail, PowerLawBootstrap, PowerLawFit, PowerLawGof, TailFailures, XminCandidate,
-    XminSearch, bootstrap_power_law, bootstrap_power_law_with, fit_power_law, goodness_of_fit,
-    power_law_alpha, scan_xmin, try_fit_power_law,
+    ALPHA_CEILING, Bootstrap, NoTail, PowerLawBootstrap, PowerLawFit, PowerLawGof, TailFailures,
+    XminCandidate, XminSearch, bootstrap_power_law, bootstrap_power_law_with, fit_power_law,
+    goodness_of_fit, power_law_alpha, scan_xmin, try_fit_power_law,
 };
 pub use regression::{
     LineFit, SlopeBootstrap, SlopeDifference, bootstrap_mass_size, bootstrap_mass_size_with,

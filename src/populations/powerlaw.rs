@@ -37,7 +37,9 @@
 //! - Bootstrap (CSN section 3.4): the whole sample is resampled with replacement and refitted
 //!   (searching x_min again unless it was given); the spread of alpha and x_min over resamples
 //!   is their uncertainty. Resample r draws from ChaCha8 seeded by `seed` on stream r, so the
-//!   results do not depend on the rayon thread count.
+//!   results do not depend on the rayon thread count. The resamples that the window of alpha
+//!   held back (searched up to alpha [`ALPHA_CEILING`], they would choose a tail at or above
+//!   the window's end) are counted: a window that holds back many narrows the spread.
 //!
 //! Cost: every candidate's alpha comes from sums of the logarithms made once (O(n) for all
 //! candidates), and its KS distance is only worked out as far as needed: a candidate whose
@@ -581,6 +583,12 @@ pub struct PowerLawBootstrap {
     pub alpha_percentiles: [f64; 3],
     /// 16th, 50th and 84th percentiles of x_min.
     pub xmin_percentiles: [f64; 3],
+    /// Resamples with a tail whose search was held back by the window: searched again with
+    /// the window widened to [`ALPHA_CEILING`], they would choose a tail with alpha at or above
+    /// the window's upper end, and so took another lower mass inside it.
+    /// Their share is how far the window narrows the spread. 0 when x_min is given or the
+    /// window already reaches [`ALPHA_CEILING`].
+    pub window_limited: usize,
 }
 
 fn std_dev(v: &[f64]) -> f64 {
@@ -599,6 +607,43 @@ fn p16_50_84(v: &[f64]) -> [f64; 3] {
     }
     let q = quantiles_of(&finite, &[16.0, 50.0, 84.0]);
     [q[0], q[1], q[2]]
+}
+
+/// The widest window of alpha whose upper end a search is compared with, to tell the resamples
+/// whose choice the window held back ([`PowerLawBootstrap::window_limited`]); compare's largest
+/// `--alpha-max`.
+pub const ALPHA_CEILING: f64 = 10.0;
+
+/// The fit of one sorted resample `s` as [`fit_sorted`] gives it, and whether the window held
+/// it back: whether the search with the window's upper end raised to [`ALPHA_CEILING`] chooses
+/// a tail with alpha at or above the window's own end while the window's search finds a tail.
+///
+/// The wider search is made first: when its winner's alpha lies inside the window, that winner
+/// is the window's too (it has the smallest distance, and the first on ties, among candidates
+/// that include all the window's), so only resamples it takes outside the window are searched
+/// a second time; a wider search that finds no tail leaves none for the window either.
+fn fit_resample(
+    s: &[f64],
+    xmin: Option<f64>,
+    search: &XminSearch,
+) -> (Result<PowerLawFit, NoTail>, bool) {
+    let (lo, hi) = search.alpha_range;
+    if xmin.is_some() || hi >= ALPHA_CEILING {
+        return (fit_sorted(s, xmin, search), false);
+    }
+    let wide = XminSearch {
+        alpha_range: (lo, ALPHA_CEILING),
+        ..*search
+    };
+    match fit_sorted(s, None, &wide) {
+        Ok(f) if f.alpha < hi => (Ok(f), false),
+        Ok(_) => {
+            let fit = fit_sorted(s, None, search);
+            let limited = fit.is_ok();
+            (fit, limited)
+        }
+        Err(why) => (Err(why), false),
+    }
 }
 
 /// Bootstrap uncertainty of the power-law fit: resample all masses with replacement and refit
@@ -626,20 +671,25 @@ pub fn bootstrap_power_law_with(
         return Err(Error::usage("a bootstrap needs at least 2 resamples"));
     }
     let n = masses.len();
-    let results: Vec<Result<(f64, f64), NoTail>> = (0..boot.resamples)
+    // Each resample's (alpha, x_min) or why it has no tail, and whether the window held it back.
+    type Resampled = (Result<(f64, f64), NoTail>, bool);
+    let results: Vec<Resampled> = (0..boot.resamples)
         .into_par_iter()
         .map(|r| {
             let mut rng = ChaCha8Rng::seed_from_u64(boot.seed);
             rng.set_stream(r as u64);
             let mut sample: Vec<f64> = (0..n).map(|_| masses[rng.random_range(0..n)]).collect();
             sample.sort_by(f64::total_cmp);
-            let fit = fit_sorted(&sample, xmin, search).map(|f| (f.alpha, f.xmin));
+            let (fit, limited) = fit_resample(&sample, xmin, search);
             tick();
-            fit
+            (fit.map(|f| (f.alpha, f.xmin)), limited)
         })
         .collect();
+    let window_limited = results.iter().filter(|r| r.1).count();
+    let results: Vec<Result<(f64, f64), NoTail>> = results.into_iter().map(|r| r.0).collect();
     let (alphas, xmins): (Vec<f64>, Vec<f64>) = results.iter().flatten().copied().unzip();
     Ok(PowerLawBootstrap {
+        window_limited,
         n_failed: results.len() - alphas.len(),
         failures: TailFailures::count(results.iter().filter_map(|r| r.as_ref().err())),
         alpha_std: std_dev(&alphas),
@@ -931,6 +981,54 @@ mod tests {
             }
         }
         assert!(compared > 3000, "{compared} candidates compared");
+    }
+
+    /// The bootstrap's fits are those of each resample searched in the window alone (the wider
+    /// search made first changes none of them), and the resamples counted as held back by the
+    /// window are exactly those whose search up to alpha 10 chooses a tail at or above the
+    /// window's end while the window's search finds one: many on a steep tail (alpha 2.8 on 60
+    /// masses, near the default window's end of 3), few on a shallow one (alpha 2.0 on 300),
+    /// none with x_min given or with the window already reaching alpha 10.
+    #[test]
+    fn resamples_held_back_by_the_window_are_counted() {
+        let boot = Bootstrap {
+            resamples: 200,
+            seed: 7,
+        };
+        let narrow = XminSearch::default();
+        let wide = XminSearch {
+            alpha_range: (1.0, ALPHA_CEILING),
+            ..narrow
+        };
+        let mut shares = vec![];
+        for (alpha, n, seed) in [(2.8, 60, 11), (2.0, 300, 12)] {
+            let data = draw(alpha, 1.0, n, seed);
+            let b = bootstrap_power_law(&data, None, &narrow, &boot).unwrap();
+            let n = data.len();
+            let (mut alphas, mut limited) = (vec![], 0);
+            for r in 0..boot.resamples {
+                let mut rng = ChaCha8Rng::seed_from_u64(boot.seed);
+                rng.set_stream(r as u64);
+                let mut sample: Vec<f64> = (0..n).map(|_| data[rng.random_range(0..n)]).collect();
+                sample.sort_by(f64::total_cmp);
+                let own = fit_sorted(&sample, None, &narrow);
+                if let Ok(f) = &own {
+                    alphas.push(f.alpha);
+                    if fit_sorted(&sample, None, &wide).is_ok_and(|w| w.alpha >= 3.0) {
+                        limited += 1;
+                    }
+                }
+            }
+            assert_eq!(b.alphas, alphas);
+            assert_eq!(b.window_limited, limited);
+            shares.push(limited as f64 / boot.resamples as f64);
+            let fixed = bootstrap_power_law(&data, Some(1.0), &narrow, &boot).unwrap();
+            assert_eq!(fixed.window_limited, 0);
+            let widest = bootstrap_power_law(&data, None, &wide, &boot).unwrap();
+            assert_eq!(widest.window_limited, 0);
+        }
+        assert!(shares[0] > 0.1, "steep tail: {shares:?}");
+        assert!(shares[1] < 0.05, "shallow tail: {shares:?}");
     }
 
     #[test]
