@@ -588,7 +588,12 @@ pub const MIN_BOOT_FITTED: usize = 20;
 const SPREAD_FLOOR: f64 = 1e-9;
 
 /// The largest `--alpha-max`.
-pub const ALPHA_MAX_LIMIT: f64 = 10.0;
+pub const ALPHA_MAX_LIMIT: f64 = populations::ALPHA_CEILING;
+
+/// The share of bootstrap resamples held back by the search's window
+/// ([`TailBootstrap::window_limited`]) from which the report says that the bootstrap's spread
+/// is a lower bound: one in twenty (common practice for a share worth a note, not a test).
+pub const WINDOW_LIMITED_SHARE: f64 = 0.05;
 
 /// The bootstrap of a power-law tail, and whether its spread is the uncertainty reported.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -599,6 +604,10 @@ pub struct TailBootstrap {
     pub xmin_std: f64,
     /// Resamples with a tail.
     pub fitted: usize,
+    /// Resamples with a tail that a search up to alpha [`ALPHA_MAX_LIMIT`] would have given
+    /// one at or above `--alpha-max` (they took another lower mass inside the window); 0 when
+    /// `--mass-min` fixes the lower mass or `--alpha-max` is already the largest.
+    pub window_limited: usize,
     /// Whether the spread was measured: at least [`MIN_BOOT_FITTED`] resamples with a tail,
     /// and a spread beyond rounding. Otherwise the analytic (alpha - 1)/sqrt(n_tail) is the
     /// uncertainty reported and used.
@@ -794,6 +803,20 @@ fn bootstrap_failure_notes(failures: &populations::TailFailures, o: &Options) ->
     notes
 }
 
+/// The note when a notable share of the tail's bootstrap resamples were held back by the
+/// search's window (at least [`WINDOW_LIMITED_SHARE`]).
+fn window_limited_note(limited: usize, alpha_std: f64, o: &Options) -> String {
+    format!(
+        "{limited} of {} bootstrap resamples ({:.0}%) would have chosen a tail with alpha at or above {}, the top of the search window, had it reached alpha {}, and took another lower mass inside it instead: the window narrows the bootstrap's spread, so the uncertainty of alpha (+/- {}) is a lower bound, and the significances of its differences in tests.csv upper bounds; rerun with a larger --alpha-max (up to {}) to measure it",
+        o.resamples,
+        100.0 * limited as f64 / o.resamples as f64,
+        crate::units::tidy(o.alpha_max),
+        crate::units::tidy(ALPHA_MAX_LIMIT),
+        f(alpha_std),
+        crate::units::tidy(ALPHA_MAX_LIMIT)
+    )
+}
+
 /// Summarises one population.
 pub fn summarise(p: &Population, o: &Options) -> Summary {
     summarise_with(p, o, &|| {})
@@ -871,10 +894,20 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
         } else {
             true
         };
+        // The bootstrap repeats the fit as it was made, in the same window; where the window
+        // held back a notable share of the resamples (their searches would have gone steeper),
+        // their spread is narrowed by the window and the uncertainty is a lower bound. It is
+        // not widened here: a wider window in the resamples alone would measure the spread of
+        // another estimator than the one that gave alpha, whereas a run with a larger
+        // --alpha-max gives an estimate and a spread that belong together.
+        if usable && b.window_limited as f64 >= WINDOW_LIMITED_SHARE * o.resamples as f64 {
+            notes.push(window_limited_note(b.window_limited, b.alpha_std, o));
+        }
         Some(TailBootstrap {
             alpha_std: b.alpha_std,
             xmin_std: b.xmin_std,
             fitted: b.alphas.len(),
+            window_limited: b.window_limited,
             usable,
         })
     });
@@ -901,6 +934,30 @@ fn summarise_with(p: &Population, o: &Options, tick: &(dyn Fn() + Sync)) -> Summ
                 "this is the largest --alpha-max, so give --mass-min to fit above a chosen mass"
             }
         ));
+    }
+    // A searched tail that a wider window would have placed elsewhere, steeper: the window,
+    // not the data, chose this lower mass.
+    if let Some(t) = &tail
+        && t.xmin_fitted
+        && o.alpha_max < ALPHA_MAX_LIMIT
+    {
+        let widest = XminSearch {
+            alpha_range: (1.0, ALPHA_MAX_LIMIT),
+            ..search
+        };
+        if let Ok(Ok(w)) = populations::try_fit_power_law(&p.masses, None, &widest)
+            && w.alpha >= o.alpha_max
+        {
+            notes.push(format!(
+                "the search's window set this tail: searched up to alpha {} (--alpha-max {}), the lower mass would be {} Msun with alpha {:.2} over {} leaves, a closer power law by the KS distance than the one inside the window (alpha below {}); give a larger --alpha-max to see",
+                crate::units::tidy(ALPHA_MAX_LIMIT),
+                crate::units::tidy(ALPHA_MAX_LIMIT),
+                f(w.xmin),
+                w.alpha,
+                w.n_tail,
+                crate::units::tidy(o.alpha_max)
+            ));
+        }
     }
     let tail_vs_lognormal = match tail.as_ref() {
         Some(t) => match populations::power_law_vs_lognormal(&p.masses, t.xmin) {
@@ -1627,6 +1684,19 @@ pub fn summary_table(c: &Comparison) -> Table {
         "bootstrap resamples that gave a tail",
         s.iter()
             .map(|x| x.tail_bootstrap.map_or(0, |b| b.fitted as i64))
+            .collect(),
+    );
+    t.push_i64(
+        "tail_boot_window_limited",
+        "",
+        &format!(
+            "bootstrap resamples with a tail that, searched up to alpha {}, would have chosen one with alpha at or above --alpha-max and took another lower mass inside the window; from {}% of the resamples on, alpha_err_boot is a lower bound (the notes say so); 0 where --mass-min fixes the lower mass or --alpha-max is {}",
+            crate::units::tidy(ALPHA_MAX_LIMIT),
+            crate::units::tidy(100.0 * WINDOW_LIMITED_SHARE),
+            crate::units::tidy(ALPHA_MAX_LIMIT)
+        ),
+        s.iter()
+            .map(|x| x.tail_bootstrap.map_or(0, |b| b.window_limited as i64))
             .collect(),
     );
     t.push_f64(
@@ -2606,6 +2676,83 @@ mod tests {
             t.alpha,
             t.alpha_error
         );
+    }
+
+    /// A population of `n` masses drawn from a pure power law of exponent `alpha` above 0.5
+    /// Msun (inverting its cumulative distribution, CSN eq. D.4), seeded.
+    fn power_law_population(label: &str, alpha: f64, n: usize, seed: u64) -> Population {
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+        let masses: Vec<f64> = (0..n)
+            .map(|_| {
+                let u: f64 = rng.random();
+                0.5 * (1.0 - u).powf(-1.0 / (alpha - 1.0))
+            })
+            .collect();
+        Population {
+            label: label.into(),
+            source: PathBuf::from(format!("{label}.csv")),
+            radii: masses.iter().map(|m| 0.05 * m.sqrt()).collect(),
+            densities: vec![1e5; masses.len()],
+            masses,
+            states: Default::default(),
+            dropped: 0,
+            mass_column: "mass_excess".into(),
+            run: serde_json::Value::Null,
+            grown: false,
+        }
+    }
+
+    /// A steep tail (alpha 2.8, under the default window's top of 3) has many bootstrap
+    /// resamples whose search the window holds back: the notes say that the bootstrap's
+    /// uncertainty is a lower bound and what to do, and it is one: searched up to alpha 10,
+    /// the bootstrap's spread is larger. A shallow tail (alpha 2.3 on 200 leaves, whose
+    /// resamples' alphas stay well below 3) is not held back and gets no such note. (On a few
+    /// dozen leaves even a tail of alpha 2.3 to 2.4 may be: its resamples' alphas spread widely.)
+    #[test]
+    fn a_bootstrap_held_back_by_the_window_is_said_to_give_a_lower_bound() {
+        let o = Options {
+            resamples: 200,
+            ..Options::default()
+        };
+        let said = |s: &Summary| {
+            s.notes.iter().any(|n| {
+                n.contains("the top of the search window")
+                    && n.contains("is a lower bound")
+                    && n.contains("rerun with a larger --alpha-max")
+            })
+        };
+        let steep = power_law_population("steep", 2.8, 60, 3);
+        let narrow = summarise(&steep, &o);
+        let t = narrow.tail.expect("a tail inside (1, 3)");
+        assert!(t.alpha < 3.0);
+        let b = narrow.tail_bootstrap.unwrap();
+        assert!(b.usable);
+        assert!(
+            b.window_limited as f64 >= WINDOW_LIMITED_SHARE * o.resamples as f64,
+            "{b:?}"
+        );
+        assert!(said(&narrow), "{:?}", narrow.notes);
+        let wide = summarise(
+            &steep,
+            &Options {
+                alpha_max: ALPHA_MAX_LIMIT,
+                ..o.clone()
+            },
+        );
+        let w = wide.tail_bootstrap.unwrap();
+        assert_eq!(w.window_limited, 0);
+        assert!(w.alpha_std > b.alpha_std, "{w:?} against {b:?}");
+        assert!(!said(&wide), "{:?}", wide.notes);
+
+        let shallow = summarise(&power_law_population("shallow", 2.3, 200, 3), &o);
+        let b = shallow.tail_bootstrap.unwrap();
+        assert!(b.usable);
+        assert!(
+            (b.window_limited as f64) < WINDOW_LIMITED_SHARE * o.resamples as f64,
+            "{b:?}"
+        );
+        assert!(!said(&shallow), "{:?}", shallow.notes);
     }
 
     /// The smallest tail given a slope is the smallest n at which the exact standard

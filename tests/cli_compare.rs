@@ -1650,3 +1650,57 @@ fn missing_columns_are_named_and_a_truth_table_is_sent_to_truth() {
     assert!(o.stderr.contains("--truth"), "{}", o.stderr);
     assert!(!d.path().join("c").exists());
 }
+
+/// A steep tail (alpha 2.8, under the default search window's top of 3) has many bootstrap
+/// resamples that a search up to alpha 10 would have fitted steeper: the report, the summary
+/// and populations.csv say that its bootstrap uncertainty is then a lower bound and to rerun
+/// with a larger --alpha-max; a shallow tail (alpha 2.3 on 200 leaves) gets no such note.
+#[test]
+fn a_bootstrap_held_back_by_the_search_window_is_said_to_be_a_lower_bound() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("steep.csv"), &power_law_leaves(60, 0.5, 2.8));
+    catalogue(
+        &d.path().join("shallow.csv"),
+        &power_law_leaves(200, 0.5, 2.3),
+    );
+    let args = [
+        "compare",
+        "steep.csv",
+        "shallow.csv",
+        "-o",
+        "held",
+        "--resamples",
+        "200",
+    ];
+    let o = cli::cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let note = "the top of the search window, had it reached alpha 10, and took another lower mass inside it instead";
+    let report = std::fs::read_to_string(d.path().join("held/report.md")).unwrap();
+    let said = |text: &str, label: &str| {
+        text.lines().any(|l| {
+            l.contains(note)
+                && l.contains("is a lower bound")
+                && l.contains("rerun with a larger --alpha-max")
+                && l.trim_start().starts_with(&format!("{label}: "))
+        })
+    };
+    assert!(said(&report, "steep"), "{report}");
+    assert!(!said(&report, "shallow"), "{report}");
+    assert!(o.stdout.contains(note), "{}", o.stdout);
+    let rows = rows(&d.path().join("held/populations.csv"));
+    let limited = |label: &str| {
+        let row = rows.iter().find(|r| r["population"] == label).unwrap();
+        cell(row, "tail_boot_window_limited")
+    };
+    assert!(limited("steep") >= 10.0, "{}", limited("steep"));
+    assert!(limited("shallow") < 10.0, "{}", limited("shallow"));
+    // The share in the note is the column's.
+    assert!(
+        report.contains(&format!(
+            "{} of 200 bootstrap resamples ({:.0}%)",
+            limited("steep"),
+            limited("steep") / 2.0
+        )),
+        "{report}"
+    );
+}
