@@ -1579,6 +1579,10 @@ fn f(x: f64) -> String {
 /// The caution each table of masses carries.
 const MASS_CAUTION: &str = "caution: the masses carry factor-of-two systematics from dust opacity, temperature and distance, shared by runs made with the same assumptions (see the report's Fairness section)";
 
+/// The caution of the tables of tails and tests: compare does not know the catalogues'
+/// completeness.
+const COMPLETENESS_CAUTION: &str = "caution: the tail fits and the tests assume each catalogue complete above the masses they use (the tail above mass_min); measure a map's completeness limit with cairn synth --into and compare --truth, and give --mass-min or --tests-above at or above it (see the report)";
+
 /// The catalogue column compared, as a parameter of the tables' headers.
 fn mass_column_meta(column: &str) -> crate::table::Param {
     crate::table::Param::new(
@@ -1604,7 +1608,7 @@ pub fn summary_table(c: &Comparison) -> Table {
     let mut t = Table {
         name: "POPULATIONS".into(),
         meta: vec![mass_column_meta(&c.mass_column)],
-        notes: vec![MASS_CAUTION.into()],
+        notes: vec![MASS_CAUTION.into(), COMPLETENESS_CAUTION.into()],
         ..Default::default()
     };
     if let Some(cut) = c.tests_above {
@@ -2245,6 +2249,7 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
             let _ = writeln!(s, "\n{}: {n}.", x.label);
         }
     }
+    let _ = writeln!(s, "\n{}", completeness_caution(c));
     if c.summaries.iter().any(|x| x.tail_gof.is_some()) {
         let _ = writeln!(
             s,
@@ -2417,6 +2422,36 @@ pub fn report(c: &Comparison, pops: &[Population], o: &Options) -> String {
         "\nMasses carry factor-of-two systematics from dust opacity, temperature and distance; differences between clouds smaller than that need the same assumptions on both sides."
     );
     s
+}
+
+/// The report's caution on completeness, in its section on mass functions: compare cannot
+/// tell where a catalogue stops being complete, and a tail fitted below that mass fits the
+/// fall of the detections, not the cores' mass function.
+fn completeness_caution(c: &Comparison) -> String {
+    let starts: Vec<String> = c
+        .summaries
+        .iter()
+        .filter_map(|x| {
+            x.tail
+                .as_ref()
+                .map(|t| format!("{} {} Msun", x.label, f(t.xmin)))
+        })
+        .collect();
+    format!(
+        "**Completeness.** The tail fits and the tests between populations assume that each catalogue holds every core above the masses they use: the tail above its mass_min{}, the log-normal fits and {} every leaf. compare cannot tell where a map stops being complete, and a tail whose mass_min lies below that limit fits the fall of the detections, not the cores' mass function. Measure each map's limit by injecting cores of known mass and scoring a run of the injected map (`cairn synth --into MAP`, then `cairn compare RUN --truth TRUTH`, whose report gives the 90% completeness limit); then give `--mass-min` at or above the largest of the limits, so that every tail is fitted where its catalogue is complete, and `--tests-above` at it, so that the Kolmogorov-Smirnov and Anderson-Darling tests and the mass-size fits use only the leaves above one common mass (it leaves the tails and the log-normal fits as they are).",
+        if starts.is_empty() {
+            String::new()
+        } else {
+            format!(" (here {})", starts.join(", "))
+        },
+        match c.tests_above {
+            Some(cut) => format!(
+                "the tests the leaves at or above --tests-above {} Msun",
+                crate::units::tidy(cut)
+            ),
+            None => "the tests".into(),
+        }
+    )
 }
 
 /// The two plots of a comparison: mass functions (with fitted tails) and the mass-size

@@ -656,7 +656,11 @@ fn tests_above_a_common_mass_match_scipy_on_the_cut_samples() {
             "{what}: {stat} against {every}"
         );
     }
-    assert!(!report.contains("--tests-above"));
+    // No cut is said to be used (the completeness caution names the option as advice only).
+    assert!(
+        !report.contains("Common lower mass") && !report.contains("(--tests-above)"),
+        "{report}"
+    );
 
     // A cut that is not a positive mass is refused in one sentence, with nothing written.
     for bad in ["0Msun", "-1Msun", "0.5pc", "heavy"] {
@@ -1702,5 +1706,41 @@ fn a_bootstrap_held_back_by_the_search_window_is_said_to_be_a_lower_bound() {
             limited("steep") / 2.0
         )),
         "{report}"
+    );
+}
+
+/// The report's section on mass functions cautions that the tail fits and the tests assume
+/// each catalogue complete above the masses they use, names the tails' lower masses, and says
+/// how to measure the limit and how to compare above it; populations.csv carries the caution.
+#[test]
+fn the_report_cautions_that_the_fits_assume_completeness() {
+    let d = tempfile::tempdir().unwrap();
+    catalogue(&d.path().join("a.csv"), &power_law_leaves(60, 0.5, 2.3));
+    catalogue(&d.path().join("b.csv"), &power_law_leaves(80, 0.4, 2.0));
+    let args = ["compare", "a.csv", "b.csv", "-o", "c", "--resamples", "20"];
+    let o = cli::cairn(&args, d.path());
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let report = std::fs::read_to_string(d.path().join("c/report.md")).unwrap();
+    let section = report
+        .split("## Mass functions")
+        .nth(1)
+        .and_then(|r| r.split("## Mass-size").next())
+        .unwrap();
+    assert!(
+        section.contains("**Completeness.**")
+            && section.contains("`cairn synth --into MAP`, then `cairn compare RUN --truth TRUTH`")
+            && section.contains("`--tests-above`")
+            && section.contains("`--mass-min` at or above the largest of the limits"),
+        "{section}"
+    );
+    // The lower masses named are the tails' own.
+    for row in rows(&d.path().join("c/populations.csv")) {
+        let said = format!("{} {:.3} Msun", row["population"], cell(&row, "mass_min"));
+        assert!(section.contains(&said), "{said}: {section}");
+    }
+    let table = std::fs::read_to_string(d.path().join("c/populations.csv")).unwrap();
+    assert!(
+        table.contains("# note: caution: the tail fits and the tests assume each catalogue complete above the masses they use"),
+        "{table}"
     );
 }
