@@ -2454,6 +2454,17 @@ fn completeness_caution(c: &Comparison) -> String {
     )
 }
 
+/// The mass axis of the plots, naming the catalogue column compared in the plots' markup:
+/// `M_{excess}` for `mass_excess` (the mass above the merge level), `M` for `mass` (the whole
+/// footprint's).
+fn mass_axis_label(column: &str) -> String {
+    match column {
+        "mass" => "M [M_{sun}]".into(),
+        "mass_excess" => "M_{excess} [M_{sun}]".into(),
+        other => format!("{other} [M_{{sun}}]"),
+    }
+}
+
 /// The two plots of a comparison: mass functions (with fitted tails) and the mass-size
 /// diagram (with lines of constant column density and the critical Bonnor-Ebert mass at
 /// `temperatures_k`).
@@ -2464,8 +2475,9 @@ pub fn plots(
 ) -> (crate::render::plot::Plot, crate::render::plot::Plot) {
     use crate::physics::constants::{G, K_B, M_H, M_SUN, PC};
     use crate::render::plot::{AxisScale, Guide, Plot, Series};
+    let axis = mass_axis_label(&c.mass_column);
     let mut mf = Plot {
-        x_label: "M [M_{sun}]".into(),
+        x_label: axis.clone(),
         y_label: "dN/dlog_{10}M".into(),
         x_scale: AxisScale::Log10,
         y_scale: AxisScale::Log10,
@@ -2515,7 +2527,7 @@ pub fn plots(
     }
     let mut ms = Plot {
         x_label: "R_{eff} [pc]".into(),
-        y_label: "M [M_{sun}]".into(),
+        y_label: axis,
         x_scale: AxisScale::Log10,
         y_scale: AxisScale::Log10,
         ..Default::default()
@@ -2788,6 +2800,32 @@ mod tests {
             "{b:?}"
         );
         assert!(!said(&shallow), "{:?}", shallow.notes);
+    }
+
+    /// The plots' mass axis names the catalogue column compared (M_{excess} for mass_excess,
+    /// M for mass), in the plots' markup for indices.
+    #[test]
+    fn the_mass_axis_names_the_column_compared() {
+        let o = Options {
+            resamples: 2,
+            ..Options::default()
+        };
+        for (column, label) in [
+            ("mass_excess", "M_{excess} [M_{sun}]"),
+            ("mass", "M [M_{sun}]"),
+        ] {
+            let pops: Vec<Population> = [("a", 11), ("b", 12)]
+                .iter()
+                .map(|&(l, seed)| Population {
+                    mass_column: column.into(),
+                    ..power_law_population(l, 2.3, 30, seed)
+                })
+                .collect();
+            let c = compare(&pops, &o);
+            let (mf, ms) = plots(&c, &pops, &[]);
+            assert_eq!(mf.x_label, label);
+            assert_eq!(ms.y_label, label);
+        }
     }
 
     /// The smallest tail given a slope is the smallest n at which the exact standard
