@@ -1109,6 +1109,24 @@ pub fn fmt_msun(x: f64) -> String {
     }
 }
 
+/// A binned 90% limit to the digits its bins justify: it is known to a bin, a factor
+/// 10^`bin_dex` in mass, so it gets the fewest significant digits (two at least) whose last
+/// place is finer than that step: two for bins wider than log10 1.1 = 0.041 dex (a step of 10%
+/// or more), three for narrower bins down to 0.005 dex. "6.1" for 6.068 in bins of 0.2 dex, not "6.068".
+pub fn fmt_binned_limit(m: f64, bin_dex: f64) -> String {
+    if !(m.is_finite() && m > 0.0 && bin_dex.is_finite() && bin_dex > 0.0) {
+        return fmt_msun(m);
+    }
+    let step = 10f64.powf(bin_dex) - 1.0;
+    let digits = (1.0 + (-step.log10()).ceil()).max(2.0) as i32;
+    let decimals = (digits - 1 - m.log10().floor() as i32).max(0) as usize;
+    if (1e-3..1e5).contains(&m) {
+        format!("{m:.decimals$}")
+    } else {
+        format!("{m:.*e}", (digits - 1) as usize)
+    }
+}
+
 impl std::fmt::Display for NoLogisticFit {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self {
@@ -1725,7 +1743,16 @@ pub fn plot(s: &Scoring) -> crate::render::plot::Plot {
                 Some(m) if s.limit_at_lowest => {
                     format!("90% complete down to the least injected mass, {m:.3} M_{{sun}}")
                 }
-                Some(m) => format!("90% complete above {m:.3} M_{{sun}}"),
+                Some(m) => format!(
+                    "90% complete above {} M_{{sun}} ({} counted {} at or above it)",
+                    fmt_binned_limit(m, s.bin_dex),
+                    s.n_above_limit,
+                    if s.n_above_limit == 1 {
+                        "core"
+                    } else {
+                        "cores"
+                    }
+                ),
                 None => "never 90% complete".into(),
             },
             logistic_note,
@@ -2395,6 +2422,32 @@ mod tests {
         assert!(e.contains("lacks one of the columns id, x, y"), "{e}");
     }
 
+    /// The figure's binned limit has the digits its bins justify: a bin of w dex is a factor
+    /// 10^w, so the limit's last digit should be finer than that step and no finer than needed:
+    /// two significant digits for 0.2-dex bins (a factor of 1.58), three for 0.01-dex bins (a
+    /// factor of 1.023, where two digits would round by up to 5% near 1.0).
+    #[test]
+    fn the_binned_limit_is_shown_to_the_digits_of_its_bins() {
+        assert_eq!(fmt_binned_limit(6.068, 0.2), "6.1");
+        assert_eq!(fmt_binned_limit(10f64.powf(0.8), 0.2), "6.3");
+        assert_eq!(fmt_binned_limit(0.3631, 0.2), "0.36");
+        assert_eq!(fmt_binned_limit(25.12, 0.1), "25");
+        assert_eq!(fmt_binned_limit(1.023, 0.01), "1.02");
+        assert_eq!(fmt_binned_limit(6.068, 0.05), "6.1");
+        assert_eq!(fmt_binned_limit(6.068, 0.005), "6.07");
+        for w in [0.01, 0.05, 0.1, 0.2, 0.5, 1.0, 2.0] {
+            for k in -10..10 {
+                // A bin edge, shown: its rounding stays within half the bin's step.
+                let m = 10f64.powf(k as f64 * w);
+                let shown: f64 = fmt_binned_limit(m, w).parse().unwrap();
+                assert!(
+                    (shown / m - 1.0).abs() < 0.5 * (10f64.powf(w) - 1.0),
+                    "{m} in {w}-dex bins shown as {shown}"
+                );
+            }
+        }
+    }
+
     /// A limit is never below the masses tried: with every bin above 90%, the limit is the
     /// least injected mass (2 Msun), not the lower edge of its bin (10^0.2 = 1.585), and it is
     /// said to lie at or below it; when a lower bin fails, the limit is the next bin's least
@@ -2447,6 +2500,14 @@ mod tests {
         }
         assert!(p.guides[0].points.iter().all(|&(_, y)| y == 0.9));
         assert!(p.notes[0].starts_with("6 of 8 injected cores recovered"));
+        // The binned limit, with the count it rests on (none counted here, as set above).
+        assert_eq!(
+            p.notes[1],
+            format!(
+                "90% complete above {} M_{{sun}} (0 counted cores at or above it)",
+                fmt_binned_limit(s.limit_90.unwrap(), 0.5)
+            )
+        );
         // The logistic fit's curve spans the bins shown and is the fit's own probability.
         let f = s.logistic.as_ref().unwrap();
         let curve = p.series[1].line.as_ref().unwrap();
