@@ -435,7 +435,12 @@ fn resolve_with(
     if !map.data.iter().any(|v| v.is_finite()) {
         return Err(Error::input(
             &map.path,
-            "has no pixel with a value (every pixel is missing: NaN, BLANK or infinite); check that this is the right HDU (--hdu) or plane (--plane).",
+            match map.missing_value {
+                Some(m) => format!(
+                    "has no pixel with a value (every pixel is missing: NaN, BLANK, infinite or the --missing-value {m} given); check --missing-value, and that this is the right HDU (--hdu) or plane (--plane)."
+                ),
+                None => "has no pixel with a value (every pixel is missing: NaN, BLANK or infinite); check that this is the right HDU (--hdu) or plane (--plane).".to_string(),
+            },
         ));
     }
     let (sigma, source) = inspect::noise_for_with(map, &o.noise, noise_map)?;

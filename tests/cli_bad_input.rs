@@ -900,3 +900,19 @@ fn two_long_extra_axes_are_refused_with_the_way_out() {
         );
     }
 }
+
+/// A map every pixel of which is the `--missing-value` given has nothing left to segment: the
+/// refusal names that option as the cause (not only NaN, BLANK or infinite values).
+#[test]
+fn segment_of_a_map_that_missing_value_empties_names_the_option() {
+    let s = Scratch::new();
+    let mut cards = image_cards(16, 16, &["BUNIT   = 'MJy/sr'"]);
+    cards.extend(sky_cards("RA---TAN", "DEC--TAN"));
+    s.write("zero.fits", &fits_bytes(&cards, &[0.0; 256]));
+    assert_refused(
+        &s,
+        &["segment", "zero.fits", "-o", "run", "--missing-value", "0"],
+        "zero.fits",
+        "--missing-value 0 given",
+    );
+}
