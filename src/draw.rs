@@ -944,13 +944,16 @@ pub fn check_figure_fits(
     }
     // A narrower figure has fewer ticks, whose labels may be shorter: the narrowest width
     // that leaves room, counted from the narrowest figure at this resolution.
+    let start = render::narrowest_width_px(dpi).clamp(200, widest);
     let narrower = narrowest_fitting(
         &overlay,
         &Style {
-            width_px: render::narrowest_width_px(dpi).clamp(200, widest),
+            width_px: start,
             ..style.clone()
         },
     )
+    // None: the narrowest figure itself fits.
+    .or(Some(start))
     .filter(|&n| n <= widest)
     .map(|n| format!("--width {n} (whose fewer axis ticks leave room) or "))
     .unwrap_or_default();
@@ -1296,7 +1299,15 @@ pub fn read_run(dir: &Path, map_override: Option<&Path>) -> Result<SavedRun> {
         ));
     }
     if !dir.is_dir() {
-        let what = if std::fs::read(dir).is_ok_and(|b| b.starts_with(b"SIMPLE  =")) {
+        // The first card only: the file may be a map of gigabytes.
+        let starts_fits = || -> bool {
+            use std::io::Read as _;
+            let mut head = [0u8; 9];
+            std::fs::File::open(dir)
+                .and_then(|mut f| f.read_exact(&mut head))
+                .is_ok_and(|_| &head == b"SIMPLE  =")
+        };
+        let what = if starts_fits() {
             "is a FITS file, not a run folder"
         } else {
             "is a file, not a run folder"

@@ -316,11 +316,11 @@ pub fn noise_given_warning(
     };
     let what = match choice {
         NoiseChoice::Value(_) => format!(
-            "the noise given ({}) is {how} the pixel-difference estimate ({difference:.4e}); check its unit (a bare --noise is in the map's unit{unit})",
+            "the noise given ({}) is {how} the pixel-difference estimate (about {difference:.1e}); check its unit (a bare --noise is in the map's unit{unit})",
             units::tidy(sigma)
         ),
         NoiseChoice::Map(p) => format!(
-            "the noise map {} (median {}) is {how} the pixel-difference estimate ({difference:.4e}); check its unit (a noise map without BUNIT is read in the map's unit{unit})",
+            "the noise map {} (median {}) is {how} the pixel-difference estimate (about {difference:.1e}); check its unit (a noise map without BUNIT is read in the map's unit{unit})",
             p.display(),
             // The median of a map of 32-bit floats, in its shortest form when it is one.
             if sigma == sigma as f32 as f64 {

@@ -893,7 +893,7 @@ impl StyleArgs {
         if drawn
             || (self.width.is_some() && width < 4 * cairn::render::narrowest_width_px(self.dpi))
         {
-            cairn::draw::check_figure_fits(map, &style, self.width.is_some(), skippable)?;
+            cairn::draw::check_figure_fits(map, &style, self.width.is_some(), skippable && drawn)?;
         }
         Ok(style)
     }

@@ -106,20 +106,43 @@ fn meminfo_kb(key: &str) -> Option<u64> {
     kb_of(&std::fs::read_to_string("/proc/meminfo").ok()?, key)
 }
 
-/// Room under the cgroup v2 memory limit of this process's group, if it has one.
+/// Room under the cgroup v2 memory limits of this process's group and of the groups above it
+/// (a batch system may set the limit on a parent), the least of them, if any has one. A
+/// group's usage (`memory.current`) counts the file cache, which the kernel reclaims before
+/// it refuses memory: its inactive part (`inactive_file` of `memory.stat`) is taken as room.
+/// Control groups of version 1 are not read.
 fn cgroup_room() -> Option<u64> {
     let cg = std::fs::read_to_string("/proc/self/cgroup").ok()?;
     // The unified hierarchy's line is `0::/path`.
     let rel = cg.lines().find_map(|l| l.strip_prefix("0::"))?;
-    let dir = std::path::Path::new("/sys/fs/cgroup").join(rel.trim_start_matches('/'));
-    let max = std::fs::read_to_string(dir.join("memory.max")).ok()?;
-    let max: u64 = max.trim().parse().ok()?; // "max" (no limit) does not parse
-    let current: u64 = std::fs::read_to_string(dir.join("memory.current"))
-        .ok()?
-        .trim()
-        .parse()
-        .ok()?;
-    Some(max.saturating_sub(current))
+    let root = std::path::Path::new("/sys/fs/cgroup");
+    let mut dir = root.join(rel.trim_start_matches('/'));
+    let mut least: Option<u64> = None;
+    loop {
+        if let Some(room) = group_room(&dir) {
+            least = Some(least.map_or(room, |l| l.min(room)));
+        }
+        if dir == root || !dir.pop() || !dir.starts_with(root) {
+            break;
+        }
+    }
+    least
+}
+
+/// Room under one group's limit: `memory.max` less `memory.current`, plus its inactive file
+/// cache; None where it has no limit ("max") or the files cannot be read.
+fn group_room(dir: &std::path::Path) -> Option<u64> {
+    let read = |f: &str| std::fs::read_to_string(dir.join(f)).ok();
+    let max: u64 = read("memory.max")?.trim().parse().ok()?; // "max" does not parse
+    let current: u64 = read("memory.current")?.trim().parse().ok()?;
+    let inactive_file = read("memory.stat")
+        .and_then(|t| {
+            t.lines()
+                .find_map(|l| l.strip_prefix("inactive_file "))
+                .and_then(|v| v.trim().parse::<u64>().ok())
+        })
+        .unwrap_or(0);
+    Some(max.saturating_sub(current.saturating_sub(inactive_file)))
 }
 
 /// Gigabytes or megabytes with two or three significant digits, for messages.
@@ -153,8 +176,13 @@ mod tests {
     #[cfg(target_os = "linux")]
     #[test]
     fn this_machine_reports_its_resident_room() {
-        // Every Linux kernel since 3.14 has MemAvailable.
+        // Every Linux kernel since 3.14 has MemAvailable; a control group's room may be the
+        // smaller, and may be nothing in a group at its limit.
         let r = resident_room().expect("MemAvailable is read");
-        assert!(r.bytes > 0);
+        let machine = meminfo_kb("MemAvailable:").unwrap() * 1024;
+        assert!(
+            r.limit == Limit::ControlGroup || r.bytes >= machine,
+            "{r:?}"
+        );
     }
 }

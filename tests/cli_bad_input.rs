@@ -219,8 +219,6 @@ fn segment_refused_when_its_memory_exceeds_the_address_space_limit() {
     let o = cairn_limited(&args, s.dir.path(), 250_000);
     check_refused(&o, &args, "large.fits", "memory");
     assert_eq!(s.listing(), before, "nothing written, no output folder");
-    let (_, resident) = cairn::segment::memory_needed((n * n) as u64);
-    assert_eq!(resident, 16 * (n * n) as u64 + 32_000_000);
 }
 
 #[test]

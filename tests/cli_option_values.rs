@@ -768,7 +768,15 @@ fn segment_and_inspect_question_a_noise_far_from_the_maps_own() {
                 .to_string()
         };
         let (a, b) = (line(&format!("{}{}", i.stdout, i.stderr)), line(&s.stderr));
-        assert_eq!(a, b);
+        // The same sentence, but for the estimate's digits: segment takes it from a sample
+        // of the map's rows (enough for a factor of a hundred), inspect from the whole map.
+        let words = |l: &str| -> String {
+            l.split_whitespace()
+                .filter(|w| !w.chars().any(|c| c.is_ascii_digit()))
+                .collect::<Vec<_>>()
+                .join(" ")
+        };
+        assert_eq!(words(&a), words(&b));
         // The ratio, about 1e-50 on this map, in scientific notation.
         let ratio: f64 = a[said.len()..]
             .split_whitespace()

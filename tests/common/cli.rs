@@ -44,6 +44,9 @@ pub fn cairn_limited(args: &[&str], dir: &Path, kb: u64) -> Outcome {
         Command::new("sh")
             .arg("-c")
             .arg(format!("ulimit -v {kb} && exec \"$0\" \"$@\""))
+            // A fixed pool: each thread's stack counts against the limit, so that many-core
+            // machines would fail where this one passes.
+            .env("RAYON_NUM_THREADS", "2")
             .arg(env!("CARGO_BIN_EXE_cairn"))
             .args(args)
             .current_dir(dir)
