@@ -475,23 +475,12 @@ impl MotionArgs {
                 .map_err(Error::usage)?
                 .si;
             if v.is_nan() || v < 0.0 {
-                return Err(Error::usage("--sigma-nt must not be negative."));
-            }
-            let kms = v / 1e3;
-            if kms > SIGMA_NT_FASTEST_KMS {
                 return Err(Error::usage(format!(
-                    "--sigma-nt {} is faster than any gas motion in a molecular cloud (above {SIGMA_NT_FASTEST_KMS} km/s); give the one-dimensional non-thermal dispersion with its unit, such as 0.3km/s or 300m/s.",
+                    "--sigma-nt {} must be a dispersion of zero or more, such as 0.3km/s.",
                     s.trim()
                 )));
             }
-            if kms > SIGMA_NT_WARN_KMS {
-                notes.push(format!(
-                    "--sigma-nt {} is more than the non-thermal dispersions of molecular clouds (some tenths of a km/s to some tens, cairn warns above {SIGMA_NT_WARN_KMS} km/s); check its unit ({} m/s would be {} km/s), since every alpha_vir and virial state scales with it",
-                    s.trim(),
-                    cairn::units::tidy(kms),
-                    cairn::units::tidy(kms / 1e3)
-                ));
-            }
+            notes.extend(cairn::score::check_sigma_nt(v / 1e3, s.trim()).map_err(Error::usage)?);
             c.sigma_nt = Some(Field::Uniform(v));
         }
         if let Some(p) = &self.sigma_nt_map {
@@ -504,87 +493,11 @@ impl MotionArgs {
                 true,
                 inspect::AuxUnit::KmPerS,
             )?;
-            // A map with no value where the map has data gives no structure an alpha_vir.
-            if !m
-                .iter()
-                .zip(map.data.iter())
-                .any(|(s, v)| s.is_finite() && v.is_finite())
-            {
-                return Err(Error::input(
-                    p,
-                    if m.iter().any(|s| s.is_finite()) {
-                        format!(
-                            "has no defined pixel where the map {} has data (all are NaN there), so no structure would have a virial parameter; give a velocity-dispersion map with values there, or --sigma-nt.",
-                            map.path.display()
-                        )
-                    } else {
-                        "has no defined pixel (all are NaN), so no structure would have a virial parameter; give a velocity-dispersion map with values, or --sigma-nt.".to_string()
-                    },
-                ));
-            }
-            if let Some(((y, x), v)) = largest(&m) {
-                let v = cairn::units::f32_as_given(v);
-                // Values in m/s in a map without BUNIT (which is read in km/s) come out a
-                // thousand times too fast.
-                let bare = bunit.is_empty();
-                let hint = |fix: &str| {
-                    if bare && v / 1e3 <= SIGMA_NT_WARN_KMS {
-                        format!(
-                            "its values look like m/s ({} m/s is {} km/s), while a map without BUNIT is read in km/s: give it BUNIT 'm/s' (or its values in km/s)",
-                            cairn::units::tidy(v),
-                            cairn::units::tidy(v / 1e3)
-                        )
-                    } else {
-                        fix.to_string()
-                    }
-                };
-                if v > SIGMA_NT_FASTEST_KMS {
-                    return Err(Error::input(
-                        p,
-                        format!(
-                            "holds {} km/s at pixel ({x}, {y}), faster than any gas motion in a molecular cloud (above {SIGMA_NT_FASTEST_KMS} km/s); {}.",
-                            cairn::units::tidy(v),
-                            hint(
-                                "mark such pixels as NaN (they are then left out) or correct the map"
-                            )
-                        ),
-                    ));
-                }
-                if v > SIGMA_NT_WARN_KMS {
-                    notes.push(format!(
-                        "the velocity-dispersion map {} holds up to {} km/s (at pixel ({x}, {y})), more than the non-thermal dispersions of molecular clouds (some tenths of a km/s to some tens, cairn warns above {SIGMA_NT_WARN_KMS} km/s); {}",
-                        p.display(),
-                        cairn::units::tidy(v),
-                        hint("check its unit (its BUNIT, or km/s without one), since the alpha_vir and virial states of the structures there scale with it")
-                    ));
-                }
-            }
+            notes.extend(cairn::score::check_sigma_nt_map(map, p, &m, &bunit)?);
             c.sigma_nt = Some(Field::Map(m.mapv(|v| v * 1e3)));
         }
         Ok(())
     }
-}
-
-/// The highest temperature cairn takes, in kelvin (`--temperature` and every pixel of
-/// `--temperature-map`): dust sublimates near 1500-2000 K and molecular gas is dissociated
-/// long before (common practice; synth keeps to the same range).
-const T_HOTTEST_K: f64 = 2000.0;
-
-/// The fastest non-thermal velocity dispersion cairn takes, in km/s (`--sigma-nt` and every
-/// pixel of `--sigma-nt-map`), and the one above which it warns. cairn's own judgement from
-/// common practice: molecular clouds and their cores show dispersions of some tenths of a
-/// km/s to a few km/s, the most turbulent clouds some tens; 1000 km/s is far beyond the
-/// motions of gas in any molecular cloud, so such a value is a mistake (a dispersion in m/s
-/// read as km/s lands above the warning or there).
-const SIGMA_NT_FASTEST_KMS: f64 = 1000.0;
-const SIGMA_NT_WARN_KMS: f64 = 50.0;
-
-/// The largest finite value of `a` and its (row, column); None when none is finite.
-fn largest(a: &ndarray::Array2<f32>) -> Option<((usize, usize), f32)> {
-    a.indexed_iter()
-        .filter(|(_, v)| v.is_finite())
-        .max_by(|a, b| a.1.total_cmp(b.1))
-        .map(|(i, &v)| (i, v))
 }
 
 /// A quantity typed on the command line, of one of `dims`; a usage error names `what`.
@@ -628,7 +541,7 @@ impl PhysicsArgs {
                     "--temperature {t} is colder than the cosmic microwave background ({t_cmb} K), which no dust or gas in a molecular cloud is; give the temperature in kelvin, such as 15K."
                 )));
             }
-            if k > T_HOTTEST_K {
+            if k > cairn::score::T_HOTTEST_K {
                 return Err(Error::usage(format!(
                     "--temperature {t} is hotter than dust survives or molecules hold together (about 2000 K); give the temperature in kelvin, such as 15K."
                 )));
@@ -644,44 +557,7 @@ impl PhysicsArgs {
                 false,
                 inspect::AuxUnit::Kelvin,
             )?;
-            let coldest = t
-                .indexed_iter()
-                .filter(|(_, v)| v.is_finite())
-                .min_by(|a, b| a.1.total_cmp(b.1));
-            if let Some(((y, x), &v)) = coldest.filter(|(_, v)| (**v as f64) < t_cmb) {
-                return Err(Error::input(
-                    p,
-                    format!(
-                        "holds {} K at pixel ({x}, {y}), colder than the cosmic microwave background ({t_cmb} K), which no dust or gas in a molecular cloud is; mark such pixels as NaN (they then take the map's median) or correct the map.",
-                        cairn::units::tidy(v as f64)
-                    ),
-                ));
-            }
-            // The same limit as --temperature's. A map whose every value lies in the range in
-            // thousandths of a kelvin was most likely written in mK.
-            if let (Some(((y, x), v)), Some((_, &lo))) = (largest(&t), coldest) {
-                let (v, lo) = (cairn::units::f32_as_given(v), lo as f64);
-                if v > T_HOTTEST_K {
-                    // Dust in star-forming clouds is some 8 K to some 100 K warm (common
-                    // practice): a map whose values in thousandths lie there was in mK.
-                    let hint = if lo / 1e3 >= t_cmb && v / 1e3 <= 200.0 {
-                        format!(
-                            "its values look like millikelvin ({} mK is {} K): give the map in kelvin, its values divided by 1000",
-                            cairn::units::tidy(v),
-                            cairn::units::tidy(v / 1e3),
-                        )
-                    } else {
-                        "give the temperatures in kelvin, mark such pixels as NaN (they then take the map's median) or correct the map".to_string()
-                    };
-                    return Err(Error::input(
-                        p,
-                        format!(
-                            "holds {} K at pixel ({x}, {y}), hotter than dust survives or molecules hold together (about {T_HOTTEST_K} K); {hint}.",
-                            cairn::units::tidy(v)
-                        ),
-                    ));
-                }
-            }
+            cairn::score::check_temperature_map(p, &t)?;
             match cairn::score::fill_undefined_temperatures(&mut t, map.data.view()) {
                 Err(why) => return Err(Error::input(p, format!("{why}."))),
                 Ok(Some((n, median))) => notes.push(format!(

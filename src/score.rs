@@ -764,6 +764,168 @@ pub fn score(
     Ok(out)
 }
 
+// Checks of the physical inputs: values no molecular cloud has are refused as mistakes (most
+// often a unit slip), values far beyond the usual warned about.
+
+/// The highest temperature cairn takes, in kelvin (`--temperature` and every pixel of
+/// `--temperature-map`): dust sublimates near 1500-2000 K and molecular gas is dissociated
+/// long before (common practice; synth keeps to the same range).
+pub const T_HOTTEST_K: f64 = 2000.0;
+
+/// The fastest non-thermal velocity dispersion cairn takes, in km/s (`--sigma-nt` and every
+/// pixel of `--sigma-nt-map`), and the one above which it warns. cairn's own judgement from
+/// common practice: molecular clouds and their cores show dispersions of some tenths of a
+/// km/s to a few km/s, the most turbulent clouds some tens; 1000 km/s is far beyond the
+/// motions of gas in any molecular cloud, so such a value is a mistake (a dispersion in m/s
+/// read as km/s lands above the warning or there).
+pub const SIGMA_NT_FASTEST_KMS: f64 = 1000.0;
+pub const SIGMA_NT_WARN_KMS: f64 = 50.0;
+
+/// The largest finite value of `a` and its (row, column); None when none is finite.
+fn largest(a: &ndarray::Array2<f32>) -> Option<((usize, usize), f32)> {
+    a.indexed_iter()
+        .filter(|(_, v)| v.is_finite())
+        .max_by(|a, b| a.1.total_cmp(b.1))
+        .map(|(i, &v)| (i, v))
+}
+
+/// A uniform non-thermal dispersion of `kms` km/s, as typed (`typed`, the option's value):
+/// refused above [`SIGMA_NT_FASTEST_KMS`] (the sentence returned), and a warning above
+/// [`SIGMA_NT_WARN_KMS`].
+pub fn check_sigma_nt(kms: f64, typed: &str) -> Result<Option<String>, String> {
+    if kms > SIGMA_NT_FASTEST_KMS {
+        return Err(format!(
+            "--sigma-nt {typed} is faster than any gas motion in a molecular cloud (above {SIGMA_NT_FASTEST_KMS} km/s); give the one-dimensional non-thermal dispersion with its unit, such as 0.3km/s or 300m/s."
+        ));
+    }
+    Ok((kms > SIGMA_NT_WARN_KMS).then(|| {
+        format!(
+            "--sigma-nt {typed} is more than the non-thermal dispersions of molecular clouds (some tenths of a km/s to some tens, cairn warns above {SIGMA_NT_WARN_KMS} km/s); check its unit ({} m/s would be {} km/s), since every alpha_vir and virial state scales with it",
+            units::tidy(kms),
+            units::tidy(kms / 1e3)
+        )
+    }))
+}
+
+/// A velocity-dispersion map `m` (km/s) read from `path` for `map`, its BUNIT as written
+/// (`bunit`, empty without one): refused where it has no value on the map's data or a pixel
+/// above [`SIGMA_NT_FASTEST_KMS`] (with a hint at m/s read as km/s), and a warning above
+/// [`SIGMA_NT_WARN_KMS`].
+pub fn check_sigma_nt_map(
+    map: &Map,
+    p: &std::path::Path,
+    m: &Array2<f32>,
+    bunit: &str,
+) -> Result<Option<String>, crate::error::Error> {
+    use crate::error::Error;
+    // A map with no value where the map has data gives no structure an alpha_vir.
+    if !m
+        .iter()
+        .zip(map.data.iter())
+        .any(|(s, v)| s.is_finite() && v.is_finite())
+    {
+        return Err(Error::input(
+            p,
+            if m.iter().any(|s| s.is_finite()) {
+                format!(
+                    "has no defined pixel where the map {} has data (all are NaN there), so no structure would have a virial parameter; give a velocity-dispersion map with values there, or --sigma-nt.",
+                    map.path.display()
+                )
+            } else {
+                "has no defined pixel (all are NaN), so no structure would have a virial parameter; give a velocity-dispersion map with values, or --sigma-nt.".to_string()
+            },
+        ));
+    }
+    if let Some(((y, x), v)) = largest(m) {
+        let v = units::f32_as_given(v);
+        // Values in m/s in a map without BUNIT (which is read in km/s) come out a
+        // thousand times too fast.
+        let bare = bunit.is_empty();
+        let hint = |fix: &str| {
+            if bare && v / 1e3 <= SIGMA_NT_WARN_KMS {
+                format!(
+                    "its values look like m/s ({} m/s is {} km/s), while a map without BUNIT is read in km/s: give it BUNIT 'm/s' (or its values in km/s)",
+                    units::tidy(v),
+                    units::tidy(v / 1e3)
+                )
+            } else {
+                fix.to_string()
+            }
+        };
+        if v > SIGMA_NT_FASTEST_KMS {
+            return Err(Error::input(
+                p,
+                format!(
+                    "holds {} km/s at pixel ({x}, {y}), faster than any gas motion in a molecular cloud (above {SIGMA_NT_FASTEST_KMS} km/s); {}.",
+                    units::tidy(v),
+                    hint("mark such pixels as NaN (they are then left out) or correct the map")
+                ),
+            ));
+        }
+        if v > SIGMA_NT_WARN_KMS {
+            return Ok(Some(format!(
+                "the velocity-dispersion map {} holds up to {} km/s (at pixel ({x}, {y})), more than the non-thermal dispersions of molecular clouds (some tenths of a km/s to some tens, cairn warns above {SIGMA_NT_WARN_KMS} km/s); {}",
+                p.display(),
+                units::tidy(v),
+                hint(
+                    "check its unit (its BUNIT, or km/s without one), since the alpha_vir and virial states of the structures there scale with it"
+                )
+            )));
+        }
+    }
+    Ok(None)
+}
+
+/// A temperature map `t` (K) read from `p`: refused where a pixel is colder than the cosmic
+/// microwave background or hotter than [`T_HOTTEST_K`] (with a hint at millikelvin when every
+/// value reads as a cloud's temperature in thousandths).
+pub fn check_temperature_map(
+    p: &std::path::Path,
+    t: &Array2<f32>,
+) -> Result<(), crate::error::Error> {
+    use crate::error::Error;
+    let t_cmb = crate::physics::constants::T_CMB;
+    let coldest = t
+        .indexed_iter()
+        .filter(|(_, v)| v.is_finite())
+        .min_by(|a, b| a.1.total_cmp(b.1));
+    if let Some(((y, x), &v)) = coldest.filter(|(_, v)| (**v as f64) < t_cmb) {
+        return Err(Error::input(
+            p,
+            format!(
+                "holds {} K at pixel ({x}, {y}), colder than the cosmic microwave background ({t_cmb} K), which no dust or gas in a molecular cloud is; mark such pixels as NaN (they then take the map's median) or correct the map.",
+                units::tidy(v as f64)
+            ),
+        ));
+    }
+    // The same limit as --temperature's. A map whose every value lies in the range in
+    // thousandths of a kelvin was most likely written in mK.
+    if let (Some(((y, x), v)), Some((_, &lo))) = (largest(t), coldest) {
+        let (v, lo) = (units::f32_as_given(v), lo as f64);
+        if v > T_HOTTEST_K {
+            // Dust in star-forming clouds is some 8 K to some 100 K warm (common
+            // practice): a map whose values in thousandths lie there was in mK.
+            let hint = if lo / 1e3 >= t_cmb && v / 1e3 <= 200.0 {
+                format!(
+                    "its values look like millikelvin ({} mK is {} K): give the map in kelvin, its values divided by 1000",
+                    units::tidy(v),
+                    units::tidy(v / 1e3),
+                )
+            } else {
+                "give the temperatures in kelvin, mark such pixels as NaN (they then take the map's median) or correct the map".to_string()
+            };
+            return Err(Error::input(
+                p,
+                format!(
+                    "holds {} K at pixel ({x}, {y}), hotter than dust survives or molecules hold together (about {T_HOTTEST_K} K); {hint}.",
+                    units::tidy(v)
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

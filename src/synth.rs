@@ -689,8 +689,8 @@ fn validate(spec: &SynthSpec) -> Result<(), SynthError> {
             (
                 "--temperature (output.temperature_k)",
                 *temperature_k,
-                2.7,
-                2000.0,
+                crate::physics::constants::T_CMB,
+                crate::score::T_HOTTEST_K,
                 "K",
             ),
             ("output.opacity.beta", opacity.beta, 0.0, 5.0, ""),

@@ -228,7 +228,7 @@ fn emission_settings_out_of_range_are_named() {
     assert_refused(
         &["--emission", "850um", "--temperature", "1e-30K"],
         "--temperature",
-        "outside 2.7K to 2000.0K",
+        "outside 2.7255K to 2000.0K",
     );
 }
 
