@@ -543,7 +543,8 @@ impl PhysicsArgs {
             }
             if k > cairn::score::T_HOTTEST_K {
                 return Err(Error::usage(format!(
-                    "--temperature {t} is hotter than dust survives or molecules hold together (about 2000 K); give the temperature in kelvin, such as 15K."
+                    "--temperature {t} is hotter than dust survives or molecules hold together (about {} K); give the temperature in kelvin, such as 15K.",
+                    cairn::score::T_HOTTEST_K
                 )));
             }
             c.temperature_k = Some(Field::Uniform(k));
@@ -2034,18 +2035,6 @@ fn run_segment(a: &SegmentArgs, quiet: bool) -> Result<()> {
                 a.prominence.is_none(),
                 a.min_area.is_none(),
             ];
-            let record = if r.is_dir() {
-                r.join(cairn::segment::names::RUN)
-            } else {
-                r.to_path_buf()
-            };
-            if let Some(e) = cairn::error::not_text(
-                &record,
-                "a run record (a JSON text file)",
-                "give --thresholds-from a run folder of segment or its run.json",
-            ) {
-                return Err(e);
-            }
             segment::thresholds_from_run(r, &m, taken)
         })
         .transpose()?;

@@ -664,6 +664,13 @@ pub fn thresholds_from_run(run: &Path, map: &Map, taken: [bool; 3]) -> Result<Ru
     } else {
         run.to_path_buf()
     };
+    if let Some(e) = crate::error::not_text(
+        &record,
+        "a run record (a JSON text file)",
+        "give --thresholds-from a run folder of segment or its run.json",
+    ) {
+        return Err(e);
+    }
     let text = std::fs::read_to_string(&record).map_err(|e| {
         Error::input(
             &record,
